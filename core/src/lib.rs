@@ -1,0 +1,14 @@
+//! mobilis-core: what every part of mobilis shares and nothing that does I/O.
+//!
+//! - [`constants`]: CODATA 2018 physical constants.
+//! - [`units`]: the `quantity_unit` column convention and conversion from lab units to SI.
+//! - [`van_der_pauw`]: the exact van der Pauw relation and its derivatives.
+//! - [`forward`]: forward models, parameters in and raw readings out, shared by the demo
+//!   generator, the property tests and the plugins' fits.
+//! - [`abi`]: the C ABI between the daemon and plugin libraries (mirrored by
+//!   `include/mobilis_plugin.h`).
+//! - [`table_ffi`]: DataFrames across the Arrow C Data Interface.
+//! - [`sdk`]: the Rust SDK for plugin authors (typed analyses and the `export_plugin!` macro).
+
+pub mod constants;
+pub mod van_der_pauw;

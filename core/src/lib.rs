@@ -11,4 +11,6 @@
 //! - [`sdk`]: the Rust SDK for plugin authors (typed analyses and the `export_plugin!` macro).
 
 pub mod constants;
+pub mod contacts;
+pub mod readings;
 pub mod van_der_pauw;

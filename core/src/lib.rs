@@ -10,7 +10,10 @@
 //! - [`table_ffi`]: DataFrames across the Arrow C Data Interface.
 //! - [`sdk`]: the Rust SDK for plugin authors (typed analyses and the `export_plugin!` macro).
 
+pub mod abi;
 pub mod constants;
 pub mod contacts;
 pub mod readings;
+pub mod sdk;
+pub mod table_ffi;
 pub mod van_der_pauw;

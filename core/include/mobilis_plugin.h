@@ -1,0 +1,126 @@
+/*
+ * mobilis plugin ABI, version 1.0: the C view of core/src/abi.rs.
+ *
+ * A plugin is a shared library exporting one function:
+ *
+ *     const MobilisPluginDescriptor *mobilis_plugin_entry(void);
+ *
+ * returning a pointer to a static descriptor. The host reads abi_major and abi_minor
+ * first (they keep their place in every version) and refuses any other major version.
+ *
+ * Ownership: whoever allocates a thing frees it.
+ *  - Strings the plugin returns (from describe, and result_json / error_message written by
+ *    invoke) are freed by the host through release_string.
+ *  - Input tables belong to the host. A plugin may take one over by copying the structs and
+ *    setting release to NULL in the host's copy ("moving" in the Arrow C Data Interface);
+ *    whatever still has a release callback when invoke returns is released by the host.
+ *  - The output table is written by the plugin into output->schema / output->array with
+ *    release callbacks of its own; the host calls them when done.
+ *
+ * Tables are Arrow struct arrays, one child per column. Hosts send the classic layouts:
+ * "g" float64, "l" int64, "b" boolean, "U" large UTF-8 (int64 offsets); nulls through the
+ * validity bitmap. A plugin's output may use any layout the Arrow C Data Interface defines
+ * that the host understands (the same four, and "u" UTF-8, are always fine).
+ *
+ * Threads: invoke may be called from several host threads at once, for different calls.
+ * Never longjmp or throw across these functions.
+ */
+#ifndef MOBILIS_PLUGIN_H
+#define MOBILIS_PLUGIN_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+#define MOBILIS_ABI_MAJOR 1
+#define MOBILIS_ABI_MINOR 0
+#define MOBILIS_ENTRY_SYMBOL "mobilis_plugin_entry"
+
+/* Status codes returned by invoke. */
+#define MOBILIS_STATUS_OK 0
+#define MOBILIS_STATUS_INVALID_INPUT 1     /* parameters or data unusable: say what to change */
+#define MOBILIS_STATUS_NUMERICAL_FAILURE 2 /* valid input, computation failed */
+#define MOBILIS_STATUS_CANCELLED 3         /* is_cancelled returned nonzero */
+#define MOBILIS_STATUS_PANIC 4             /* internal bug in the plugin */
+#define MOBILIS_STATUS_UNKNOWN_ANALYSIS 5  /* no analysis of that name */
+
+/* The Arrow C Data Interface (https://arrow.apache.org/docs/format/CDataInterface.html). */
+#ifndef ARROW_C_DATA_INTERFACE
+#define ARROW_C_DATA_INTERFACE
+#define ARROW_FLAG_DICTIONARY_ORDERED 1
+#define ARROW_FLAG_NULLABLE 2
+#define ARROW_FLAG_MAP_KEYS_SORTED 4
+
+struct ArrowSchema {
+  const char *format;
+  const char *name;
+  const char *metadata;
+  int64_t flags;
+  int64_t n_children;
+  struct ArrowSchema **children;
+  struct ArrowSchema *dictionary;
+  void (*release)(struct ArrowSchema *);
+  void *private_data;
+};
+
+struct ArrowArray {
+  int64_t length;
+  int64_t null_count;
+  int64_t offset;
+  int64_t n_buffers;
+  int64_t n_children;
+  const void **buffers;
+  struct ArrowArray **children;
+  struct ArrowArray *dictionary;
+  void (*release)(struct ArrowArray *);
+  void *private_data;
+};
+#endif /* ARROW_C_DATA_INTERFACE */
+
+/* Services the host offers during invoke. Either callback may be NULL. */
+typedef struct MobilisHostContext {
+  void *host_data;
+  /* fraction in [0, 1]; message is NUL-terminated UTF-8 or NULL. */
+  void (*report_progress)(void *host_data, double fraction, const char *message);
+  /* nonzero once the client asked to cancel: stop and return MOBILIS_STATUS_CANCELLED. */
+  int32_t (*is_cancelled)(void *host_data);
+} MobilisHostContext;
+
+/* One named input table. */
+typedef struct MobilisInputTable {
+  const char *role; /* NUL-terminated UTF-8, e.g. "readings" */
+  struct ArrowSchema *schema;
+  struct ArrowArray *array;
+} MobilisInputTable;
+
+/* Written by invoke; the host initialises it to empty structs and NULL strings. */
+typedef struct MobilisInvokeOutput {
+  struct ArrowSchema schema;
+  struct ArrowArray array;
+  char *result_json;   /* on success: {"summary": {...}, "warnings": [...]} */
+  char *error_message; /* on failure: what to change */
+} MobilisInvokeOutput;
+
+typedef struct MobilisPluginDescriptor {
+  uint32_t abi_major; /* stays first in every version */
+  uint32_t abi_minor; /* stays second in every version */
+  const char *plugin_name;
+  const char *plugin_version;
+  /* JSON declaration of the analyses (see DEVELOPERS.md); released with release_string.
+   * NULL on failure. */
+  char *(*describe)(void);
+  int32_t (*invoke)(const char *analysis, const char *params_json, const MobilisInputTable *inputs,
+                    size_t input_count, const MobilisHostContext *context, MobilisInvokeOutput *output);
+  void (*release_string)(char *text);
+} MobilisPluginDescriptor;
+
+typedef const MobilisPluginDescriptor *(*MobilisEntryFn)(void);
+
+#ifdef __cplusplus
+}
+#endif
+
+#endif /* MOBILIS_PLUGIN_H */

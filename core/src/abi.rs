@@ -1,0 +1,232 @@
+//! The C ABI between the daemon and plugin libraries, version 1.0.
+//!
+//! **API Boundary.** Everything here is `#[repr(C)]` and mirrored field by field in
+//! `core/include/mobilis_plugin.h`; change both or neither, and bump [`ABI_MAJOR`] for any
+//! change that an older host or plugin would misread. Adding a status code or a field at
+//! the *end* of [`PluginDescriptor`] is a minor change.
+//!
+//! A plugin exports one function, [`ENTRY_SYMBOL`], returning a pointer to a static
+//! [`PluginDescriptor`]. The first two fields of the descriptor (`abi_major`, `abi_minor`)
+//! keep their place in every ABI version, so a host can read them before trusting the rest.
+//!
+//! Ownership follows the rule "whoever allocated it frees it":
+//! - strings returned by `describe` and written by `invoke` belong to the plugin and are
+//!   given back through `release_string`;
+//! - input tables are exported by the host; a plugin may take ownership of one by moving
+//!   the structs out (copying them and setting `release` to NULL in the host's copy, as
+//!   the Arrow C Data Interface describes); whatever still has a `release` callback when
+//!   `invoke` returns is released by the host;
+//! - the output table is exported by the plugin into [`InvokeOutput`] and released by the
+//!   host through the Arrow release callbacks (which run plugin code: a host never unloads a
+//!   library while it runs).
+//!
+//! Tables are Arrow struct arrays, one child per column, with the classic layouts (float64
+//! `g`, int64 `l`, boolean `b`, large UTF-8 `U`; no string views), so that a plugin written
+//! in C can read them with the Arrow specification alone.
+
+use polars_arrow::ffi::{ArrowArray, ArrowSchema};
+use serde::{Deserialize, Serialize};
+use std::os::raw::{c_char, c_void};
+
+/// Incompatible changes bump the major version; hosts refuse any other major.
+pub const ABI_MAJOR: u32 = 1;
+/// Compatible additions bump the minor version.
+pub const ABI_MINOR: u32 = 0;
+/// Name of the exported entry function, `const MobilisPluginDescriptor *mobilis_plugin_entry(void)`.
+pub const ENTRY_SYMBOL: &str = "mobilis_plugin_entry";
+
+/// `invoke` succeeded; `output` holds a table and a result JSON.
+pub const STATUS_OK: i32 = 0;
+/// The parameters or input tables are unusable; the error message says what to change.
+pub const STATUS_INVALID_INPUT: i32 = 1;
+/// The computation failed on valid input (no convergence, singular system, ...).
+pub const STATUS_NUMERICAL_FAILURE: i32 = 2;
+/// The host's cancel check returned true and the plugin stopped.
+pub const STATUS_CANCELLED: i32 = 3;
+/// The plugin caught a panic (or its C equivalent, an internal bug).
+pub const STATUS_PANIC: i32 = 4;
+/// The plugin has no analysis of that name.
+pub const STATUS_UNKNOWN_ANALYSIS: i32 = 5;
+
+/// Services the host offers to a running analysis.
+#[repr(C)]
+pub struct HostContext {
+    /// Opaque host state, passed back to the callbacks.
+    pub host_data: *mut c_void,
+    /// Reports progress: `fraction` in [0, 1] and an optional NUL-terminated UTF-8 message
+    /// (may be NULL). Safe to call from the invoking thread only; cheap; may be called often.
+    pub report_progress: Option<unsafe extern "C" fn(host_data: *mut c_void, fraction: f64, message: *const c_char)>,
+    /// Returns nonzero once the client has asked to cancel. Long loops should poll it and
+    /// return [`STATUS_CANCELLED`].
+    pub is_cancelled: Option<unsafe extern "C" fn(host_data: *mut c_void) -> i32>,
+}
+
+/// One named input table.
+#[repr(C)]
+pub struct InputTable {
+    /// The input role, NUL-terminated UTF-8 (for example `readings`).
+    pub role: *const c_char,
+    /// Schema of the struct array (one child field per column).
+    pub schema: *mut ArrowSchema,
+    /// The struct array itself.
+    pub array: *mut ArrowArray,
+}
+
+/// What `invoke` writes back. The host zero-initialises it (empty Arrow structs, NULL strings).
+#[repr(C)]
+pub struct InvokeOutput {
+    /// Schema of the output struct array (set on success).
+    pub schema: ArrowSchema,
+    /// The output struct array (set on success).
+    pub array: ArrowArray,
+    /// On success: JSON object `{"summary": {...}, "warnings": [...]}`; plugin-owned.
+    pub result_json: *mut c_char,
+    /// On failure: a message that says what to change; plugin-owned.
+    pub error_message: *mut c_char,
+}
+
+impl InvokeOutput {
+    pub fn empty() -> Self {
+        InvokeOutput {
+            schema: ArrowSchema::empty(),
+            array: ArrowArray::empty(),
+            result_json: std::ptr::null_mut(),
+            error_message: std::ptr::null_mut(),
+        }
+    }
+}
+
+/// `describe`: returns a plugin-owned NUL-terminated JSON [`PluginDeclaration`], or NULL on failure.
+pub type DescribeFn = unsafe extern "C" fn() -> *mut c_char;
+
+/// `invoke`: runs one analysis. Returns one of the `STATUS_*` codes.
+///
+/// # Safety
+/// `analysis` and `params_json` are valid NUL-terminated UTF-8 for the duration of the call;
+/// `inputs` points to `input_count` valid [`InputTable`]s whose Arrow structs are valid
+/// (possibly released by the plugin as described in the module documentation); `context`
+/// is valid for the duration of the call; `output` points to an [`InvokeOutput`] the host
+/// initialised with [`InvokeOutput::empty`].
+pub type InvokeFn = unsafe extern "C" fn(
+    analysis: *const c_char,
+    params_json: *const c_char,
+    inputs: *const InputTable,
+    input_count: usize,
+    context: *const HostContext,
+    output: *mut InvokeOutput,
+) -> i32;
+
+/// `release_string`: frees a string the plugin returned. NULL is allowed.
+pub type ReleaseStringFn = unsafe extern "C" fn(text: *mut c_char);
+
+/// The static descriptor a plugin's entry function returns.
+#[repr(C)]
+pub struct PluginDescriptor {
+    /// Must stay the first field in every ABI version.
+    pub abi_major: u32,
+    /// Must stay the second field in every ABI version.
+    pub abi_minor: u32,
+    /// Plugin name, NUL-terminated UTF-8, static (for example `hall`).
+    pub plugin_name: *const c_char,
+    /// The plugin's own version (not the ABI's), NUL-terminated UTF-8, static.
+    pub plugin_version: *const c_char,
+    pub describe: DescribeFn,
+    pub invoke: InvokeFn,
+    pub release_string: ReleaseStringFn,
+}
+
+// SAFETY: the descriptor is immutable and its pointers refer to static, read-only data
+// (string literals and functions), so sharing it between threads is sound.
+unsafe impl Sync for PluginDescriptor {}
+
+/// Type of the entry function named [`ENTRY_SYMBOL`].
+pub type EntryFn = unsafe extern "C" fn() -> *const PluginDescriptor;
+
+/// What `describe` returns, as JSON. This is part of the ABI, not of the JSON-RPC wire
+/// format: the host turns it into its own wire types.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct PluginDeclaration {
+    /// Optional capabilities beyond ABI 1.0; hosts ignore names they do not know.
+    #[serde(default)]
+    pub features: Vec<String>,
+    pub analyses: Vec<AnalysisDeclaration>,
+}
+
+/// One analysis a plugin offers.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct AnalysisDeclaration {
+    /// Globally unique, `plugin.analysis` by convention (for example `hall.reduce`).
+    pub name: String,
+    /// One line.
+    pub summary: String,
+    /// Method, conventions, references.
+    #[serde(default)]
+    pub description: String,
+    /// JSON Schema (the subset the host validates) of the parameters object.
+    pub params: serde_json::Value,
+    /// The input tables, by role.
+    pub inputs: Vec<InputRole>,
+    /// The columns of the output table.
+    pub outputs: Vec<ColumnSpec>,
+    /// The keys of the result's `summary` object.
+    #[serde(default)]
+    pub summary_keys: Vec<ColumnSpec>,
+}
+
+/// One input table of an analysis.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct InputRole {
+    pub role: String,
+    pub required: bool,
+    #[serde(default)]
+    pub description: String,
+    pub columns: Vec<ColumnSpec>,
+}
+
+/// The data type of a column as plugins see it.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum ColumnType {
+    F64,
+    I64,
+    Str,
+    Bool,
+}
+
+/// One column (or summary value) with its type, unit and meaning.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct ColumnSpec {
+    pub name: String,
+    pub dtype: ColumnType,
+    /// SI unit as written in the column name convention (`K`, `m2_per_Vs`, ...), if any.
+    #[serde(default)]
+    pub unit: Option<String>,
+    /// For inputs: must be present. For outputs: always present (may hold nulls).
+    #[serde(default = "default_true")]
+    pub required: bool,
+    #[serde(default)]
+    pub description: String,
+}
+
+fn default_true() -> bool {
+    true
+}
+
+impl ColumnSpec {
+    /// A required column.
+    pub fn new(name: &str, dtype: ColumnType, unit: Option<&str>, description: &str) -> Self {
+        ColumnSpec {
+            name: name.to_owned(),
+            dtype,
+            unit: unit.map(str::to_owned),
+            required: true,
+            description: description.to_owned(),
+        }
+    }
+
+    /// The same column, marked optional.
+    pub fn optional(mut self) -> Self {
+        self.required = false;
+        self
+    }
+}

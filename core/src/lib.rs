@@ -13,7 +13,10 @@
 pub mod abi;
 pub mod constants;
 pub mod contacts;
+pub mod forward;
+pub mod noise;
 pub mod readings;
 pub mod sdk;
 pub mod table_ffi;
+pub mod units;
 pub mod van_der_pauw;

@@ -1,1 +1,17 @@
+//! mobilisd: the analysis daemon. It holds datasets (polars in memory, Parquet on disk),
+//! hosts plugin libraries, and serves both over JSON-RPC.
+//!
+//! Data flow of a request: `transport` (HTTP, WebSocket or stdio) -> `methods` (parameter
+//! parsing, error codes) -> `service` (the daemon's logic) -> `store` / `plugin_host`
+//! (across the C ABI into a plugin) -> `store` -> back to the client.
 
+pub mod data_roots;
+pub mod errors;
+pub mod methods;
+pub mod openrpc;
+pub mod param_schema;
+pub mod plugin_host;
+pub mod service;
+pub mod store;
+pub mod tables;
+pub mod transport;

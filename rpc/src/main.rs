@@ -1,1 +1,131 @@
-fn main() {}
+//! `mobilisd`: starts the daemon. See `mobilisd --help`.
+
+use anyhow::{bail, Context};
+use clap::Parser;
+use mobilis_rpc::data_roots::DataRoots;
+use mobilis_rpc::plugin_host::PluginHost;
+use mobilis_rpc::service::Service;
+use mobilis_rpc::store::DatasetStore;
+use mobilis_rpc::transport::{self, AccessPolicy};
+use std::io::Write;
+use std::net::SocketAddr;
+use std::path::PathBuf;
+use std::sync::Arc;
+
+/// The mobilis analysis daemon: datasets, analysis plugins, JSON-RPC.
+#[derive(Parser, Debug)]
+#[command(name = "mobilisd", version)]
+struct Arguments {
+    /// Address to listen on (HTTP and WebSocket on one port); port 0 picks a free port.
+    #[arg(long, default_value = "127.0.0.1:8470")]
+    listen: SocketAddr,
+    /// Directory where datasets persist.
+    #[arg(long, default_value = "mobilis-workspace")]
+    workspace: PathBuf,
+    /// Directory of plugin libraries (repeatable). Default: the mobilis plugins built next to this binary.
+    #[arg(long = "plugin-dir")]
+    plugin_dirs: Vec<PathBuf>,
+    /// Serve JSON-RPC on stdin/stdout with Content-Length framing instead of the network.
+    #[arg(long)]
+    stdio: bool,
+    /// A directory path imports and exports may use (repeatable), besides the start directory and the workspace.
+    #[arg(long = "data-root")]
+    data_roots: Vec<PathBuf>,
+    /// A web origin allowed to call (repeatable), for example http://localhost:3000.
+    #[arg(long = "allow-origin")]
+    allowed_origins: Vec<String>,
+    /// Bearer token clients must present; required when listening beyond loopback.
+    #[arg(long, env = "MOBILIS_TOKEN", hide_env_values = true)]
+    token: Option<String>,
+}
+
+fn main() -> anyhow::Result<()> {
+    let arguments = Arguments::parse();
+    // Logs go to stderr: stdout carries the ready line, or the stdio transport.
+    tracing_subscriber::fmt()
+        .with_writer(std::io::stderr)
+        .with_env_filter(
+            tracing_subscriber::EnvFilter::try_from_env("MOBILIS_LOG")
+                .unwrap_or_else(|_| tracing_subscriber::EnvFilter::new("info")),
+        )
+        .init();
+
+    if !arguments.stdio && !arguments.listen.ip().is_loopback() && arguments.token.is_none() {
+        bail!(
+            "listening on {} reaches beyond this machine; pass --token (or set MOBILIS_TOKEN) so that only clients holding it can call",
+            arguments.listen
+        );
+    }
+
+    std::fs::create_dir_all(&arguments.workspace)
+        .with_context(|| format!("cannot create the workspace {}", arguments.workspace.display()))?;
+    let workspace = arguments.workspace.canonicalize()?;
+    let store =
+        DatasetStore::open(&workspace).with_context(|| format!("cannot open the workspace {}", workspace.display()))?;
+
+    let mut host = PluginHost::default();
+    if arguments.plugin_dirs.is_empty() {
+        let exe = std::env::current_exe()?;
+        let beside = exe.parent().context("the binary has no directory")?;
+        // Only mobilis's own plugin libraries: a build directory holds other shared objects too.
+        host.load_dir(beside, |file| {
+            file.starts_with("libmobilis_") || file.starts_with("mobilis_")
+        });
+    } else {
+        for dir in &arguments.plugin_dirs {
+            host.load_dir(dir, |_| true);
+        }
+    }
+
+    let start_directory = std::env::current_dir()?;
+    let mut roots = vec![start_directory, workspace.clone()];
+    roots.extend(arguments.data_roots.iter().cloned());
+    let service = Arc::new(Service::new(store, host, DataRoots::new(roots), workspace));
+    let module = mobilis_rpc::methods::module(service);
+
+    let runtime = tokio::runtime::Builder::new_multi_thread().enable_all().build()?;
+    runtime.block_on(async move {
+        if arguments.stdio {
+            tracing::info!("serving JSON-RPC on stdio");
+            transport::serve_stdio(module).await?;
+            return Ok(());
+        }
+        let policy = AccessPolicy {
+            allowed_origins: arguments.allowed_origins,
+            token: arguments.token,
+        };
+        let (address, handle) = transport::serve_http(arguments.listen, module, policy)
+            .await
+            .with_context(|| format!("cannot listen on {}", arguments.listen))?;
+        println!("listening on http://{address}");
+        std::io::stdout().flush()?;
+        tracing::info!(%address, "ready");
+        let stopped = handle.clone();
+        tokio::select! {
+            _ = stopped.stopped() => {}
+            _ = shutdown_signal() => {
+                tracing::info!("shutting down");
+                let _ = handle.stop();
+                handle.stopped().await;
+            }
+        }
+        anyhow::Ok(())
+    })
+}
+
+async fn shutdown_signal() {
+    let interrupt = tokio::signal::ctrl_c();
+    #[cfg(unix)]
+    {
+        let mut terminate =
+            tokio::signal::unix::signal(tokio::signal::unix::SignalKind::terminate()).expect("signal handler");
+        tokio::select! {
+            _ = interrupt => {}
+            _ = terminate.recv() => {}
+        }
+    }
+    #[cfg(not(unix))]
+    {
+        let _ = interrupt.await;
+    }
+}

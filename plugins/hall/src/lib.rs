@@ -1,1 +1,2 @@
-
+#![allow(dead_code)]
+mod reduce;

@@ -1,0 +1,790 @@
+//! `hall.reduce`: raw four-terminal readings to sheet resistance, resistivity, Hall
+//! coefficient, carrier type, density and mobility, with uncertainties and quality flags.
+//!
+//! Pure computation: no DataFrames, no I/O. The plugin's table glue turns the `readings` and
+//! `samples` roles into [`RawReading`]s (or borrowed [`ReadingColumns`]) and [`SampleInfo`]s
+//! and the [`Reduction`] back into a table.
+//!
+//! # Steps and the choices made
+//!
+//! 1. **Validation.** Every reading needs a finite temperature above 0 K, a finite field,
+//!    current and voltage, a nonzero current, and contacts that form a configuration of its
+//!    sample's geometry (`mobilis_core::contacts`). An invalid reading is an error naming its
+//!    0-based index; with [`ReduceSettings::skip_invalid_readings`] it is dropped, counted and
+//!    reported as a warning instead (the first [`DETAILED_SKIP_WARNINGS`] individually, the
+//!    rest in one summary line, so a bad million-row import does not produce a million
+//!    warnings). A sample with readings but no sheet row is an error listing every such name.
+//!    Without a sheet every sample is a 2D van der Pauw sample with Hall factor 1.
+//! 2. **Temperature groups.** Per sample, readings are sorted by temperature and consecutive
+//!    temperatures closer than `temperature_tolerance_k` share a group. Chains are allowed, so
+//!    a slow drift stays one group; the row reports the group's mean and its spread
+//!    (max - min) so that a drift is visible.
+//! 3. **Field magnitudes.** Within a group, |B| <= `zero_field_tolerance_t` is zero field;
+//!    the other readings are clustered by |B| the same way with `field_tolerance_t`. Each
+//!    nonzero magnitude gives one row; a group without field readings gives one row with null
+//!    Hall quantities and the flag `no_field_data`.
+//! 4. **Canonical readings and fits.** Each reading is put in the canonical orientation of its
+//!    configuration (I_c = current_sign * current_A, V_c = voltage_sign * voltage_V), so a
+//!    current reversed by the source sign and one reversed by swapping the leads are the same
+//!    measurement. Per configuration and field sign, V_c = R I_c + V_offset is fitted by least
+//!    squares whenever two distinct currents exist, which removes a thermoelectric offset; R's
+//!    standard error comes from the residuals when there are more than two readings. With a
+//!    single current, R is the mean of V_c / I_c (its error the standard error of that mean)
+//!    and the offset is unknown. A configuration seen at one current polarity raises
+//!    `no_current_reversal`.
+//! 5. **Resistances.** From the zero-field readings; when a temperature group has none of the
+//!    resistance configurations at zero field, from the field-even part (R(+B) + R(-B)) / 2 of
+//!    each row's field readings, which includes the magnetoresistance at that field
+//!    (`resistance_from_field_readings`, and a warning). R_A is the mean of the direct and
+//!    reciprocal configurations present (R_21,34 and R_43,12), R_B likewise (R_32,41 and
+//!    R_14,23); their uncertainty combines in quadrature the standard error of that mean
+//!    (which sees inhomogeneity and contact effects) and the configurations' own standard
+//!    errors over the number averaged (which see noise). The reciprocity mismatch is
+//!    |direct - reciprocal| / mean, the larger of the two families. When one family is
+//!    absent the sample is assumed symmetric (R_B = R_A, `missing_configurations`) and the
+//!    uncertainty propagates as fully correlated. The sheet resistance solves van der Pauw's
+//!    equation exactly (`mobilis_core::van_der_pauw`; geometry factor f from the same
+//!    solution) and its uncertainty uses the exact gradient. A resistance that is not
+//!    positive, which no uniform sample gives in canonical orientation, nulls the sheet
+//!    resistance and mobility and raises `nonpositive_resistance` with a warning rather than
+//!    failing the whole data set.
+//!    Hall bar: R_xx is the mean over the two longitudinal pairs (same uncertainty rule),
+//!    R_s = R_xx W / L with L the distance between the longitudinal voltage contacts; there
+//!    is no geometry factor, no R_B and no reciprocity. Reported in `resistance_a_ohm`.
+//! 6. **Hall.** Per Hall configuration (van der Pauw diagonals, Hall-bar transverse pairs) and
+//!    current polarity, the field-odd part rho_k = (V_c/I_c at +B - V_c/I_c at -B) / 2, each
+//!    side the mean of its repeats: these are the four NIST Hall voltages V_C..V_F over 2I.
+//!    Thermoelectric offsets (even in B) and misalignment (even in B) cancel; averaging the
+//!    two current polarities also cancels voltages odd in B but independent of the current.
+//!    R_xy is the mean of the rho_k with the same uncertainty rule as the resistances (spread
+//!    of the rho_k combined with their own errors from repeats), which is never smaller than
+//!    the standard error of the spread alone. R_Hs = R_xy / |B| with |B| the mean of the mean
+//!    |B| at +B and at -B (positive for holes, the sign convention of the NIST Hall-effect
+//!    pages); n_s = r_H / (e |R_Hs|); n = n_s / t; R_H = R_Hs t; mu_H = |R_Hs| / R_s (free of
+//!    the Hall factor and of the thickness); drift mobility mu_H / r_H. Uncertainties are
+//!    first order, the factors independent; the thickness uncertainty enters resistivity,
+//!    R_H and n, not the sheet quantities. A magnitude with no Hall configuration at both field
+//!    signs has null Hall quantities (`no_field_reversal`).
+//!    Quality numbers: the misalignment ratio is the largest |field-even part| of a Hall
+//!    configuration (averaged over the polarities, which removes the offset's V_offset / I)
+//!    over |R_xy|; the thermoelectric offset ratio is the largest |V_offset| / |R I_max| over
+//!    the fits the row uses (resistance configurations at the field the resistance came from,
+//!    Hall configurations at nonzero field); the current-reversal mismatch is the largest
+//!    |R(+I) - R(-I)| / |mean| of the raw V/I of a resistance configuration, as in the NIST
+//!    comparison of R_21,34 with R_12,43. With a single current magnitude that comparison
+//!    also sees the thermoelectric offset (mismatch = 2 x offset ratio).
+//! 7. **Flags.** See [`flags`]; a row lists its flags in the order of [`flags::ALL`] and
+//!    `quality_ok` is true when there is none.
+//!
+//! Uncertainties are `None` when no component could be estimated (a single configuration with
+//! one reading per polarity and no repeat has nothing to estimate a scatter from).
+//!
+//! # Performance
+//!
+//! Sample names are interned once (consecutive readings of one sample skip the hash); each
+//! valid reading becomes a 40-byte record; grouping is by sorting those records (by sample and
+//! temperature, then within a group by |B|, then within a cell by configuration, field sign
+//! and polarity) and walking contiguous slices. O(n log n), no allocation per reading.
+
+mod cells;
+pub mod error;
+pub mod flags;
+mod row;
+#[cfg(test)]
+mod tests;
+
+use std::collections::HashMap;
+
+use mobilis_core::contacts::{classify_hall_bar, classify_van_der_pauw, Configuration};
+pub use mobilis_core::readings::RawReading;
+
+use cells::{cell_key, gap_clusters, runs_by_key, summarize_cell, CellSummary, Prepared, MAX_SLOTS};
+pub use error::{ReadingProblem, ReduceError};
+use row::{build_row, FieldCells, ResolvedSample, TemperatureGroup, ZeroFieldCells};
+
+/// How many skipped readings get a warning of their own before the rest are summarized.
+pub const DETAILED_SKIP_WARNINGS: usize = 20;
+
+/// The contact layout of a sample.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Geometry {
+    /// Four contacts 1 to 4 on the perimeter, counterclockwise seen from the +B side.
+    VanDerPauw,
+    /// Six contacts (see `mobilis_core::contacts`): `length_m` is the distance between the
+    /// longitudinal voltage contacts (centre to centre), `width_m` the bar width.
+    HallBar { length_m: f64, width_m: f64 },
+}
+
+impl Geometry {
+    /// The name used in the output table: "van_der_pauw" or "hall_bar".
+    pub fn name(self) -> &'static str {
+        match self {
+            Geometry::VanDerPauw => "van_der_pauw",
+            Geometry::HallBar { .. } => "hall_bar",
+        }
+    }
+}
+
+/// One row of the sample sheet.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SampleInfo {
+    pub name: String,
+    /// Conducting thickness, m; `None` for a 2D sheet (volume quantities are then null).
+    pub thickness_m: Option<f64>,
+    /// Standard uncertainty of the thickness, m; ignored without a thickness.
+    pub thickness_unc_m: Option<f64>,
+    /// Hall scattering factor r_H = mu_H / mu_drift; 1 when unknown.
+    pub hall_factor: f64,
+    pub geometry: Geometry,
+}
+
+impl SampleInfo {
+    /// A 2D van der Pauw sample with Hall factor 1, what a sample without a sheet row is.
+    pub fn van_der_pauw_sheet(name: impl Into<String>) -> Self {
+        SampleInfo {
+            name: name.into(),
+            thickness_m: None,
+            thickness_unc_m: None,
+            hall_factor: 1.0,
+            geometry: Geometry::VanDerPauw,
+        }
+    }
+}
+
+/// Limits of the quality flags. The defaults are common practice, not taken from a standard.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct QualityThresholds {
+    /// Largest |direct - reciprocal| / mean of a resistance family (flag `reciprocity`).
+    /// Default 0.03, common practice.
+    pub reciprocity_tolerance: f64,
+    /// Largest max(R_A/R_B, R_B/R_A) (flag `resistance_ratio`). Default 2.0, common practice.
+    pub max_resistance_ratio: f64,
+    /// Largest (max - min) / |mean| of the Hall resistances of the configurations and
+    /// polarities (flag `hall_inconsistent`). Default 0.10, common practice.
+    pub hall_spread_tolerance: f64,
+    /// Largest |V_offset| / |R I| (flag `large_offset`). Default 0.2, common practice.
+    pub thermoelectric_offset_ratio: f64,
+    /// Largest |field-even| / |field-odd| part of the Hall configurations (flag
+    /// `large_offset`). Default 10, common practice.
+    pub misalignment_ratio: f64,
+    /// Largest |R(+I) - R(-I)| / mean of a resistance configuration (flag
+    /// `current_reversal`). Default 0.03, common practice.
+    pub current_reversal_tolerance: f64,
+}
+
+impl Default for QualityThresholds {
+    fn default() -> Self {
+        QualityThresholds {
+            reciprocity_tolerance: 0.03,
+            max_resistance_ratio: 2.0,
+            hall_spread_tolerance: 0.10,
+            thermoelectric_offset_ratio: 0.2,
+            misalignment_ratio: 10.0,
+            current_reversal_tolerance: 0.03,
+        }
+    }
+}
+
+/// How readings are grouped and judged.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ReduceSettings {
+    /// Readings whose sorted temperatures are no further apart than this share a row, K.
+    /// Default 0.5 K.
+    pub temperature_tolerance_k: f64,
+    /// |B| at or below this is zero field, T. Default 1e-4 T (1 G).
+    pub zero_field_tolerance_t: f64,
+    /// Readings whose sorted |B| are no further apart than this share a row, T.
+    /// Default 5e-3 T.
+    pub field_tolerance_t: f64,
+    pub thresholds: QualityThresholds,
+    /// Drop invalid readings with a warning instead of refusing the input. Default false.
+    pub skip_invalid_readings: bool,
+}
+
+impl Default for ReduceSettings {
+    fn default() -> Self {
+        ReduceSettings {
+            temperature_tolerance_k: 0.5,
+            zero_field_tolerance_t: 1e-4,
+            field_tolerance_t: 5e-3,
+            thresholds: QualityThresholds::default(),
+            skip_invalid_readings: false,
+        }
+    }
+}
+
+impl ReduceSettings {
+    fn validate(&self) -> Result<(), ReduceError> {
+        let non_negative = "give a finite value of 0 or more";
+        let positive = "give a finite positive value";
+        let thresholds = &self.thresholds;
+        let checks: [(&'static str, f64, bool, &'static str); 9] = [
+            (
+                "temperature_tolerance_K",
+                self.temperature_tolerance_k,
+                self.temperature_tolerance_k >= 0.0,
+                non_negative,
+            ),
+            (
+                "zero_field_tolerance_T",
+                self.zero_field_tolerance_t,
+                self.zero_field_tolerance_t >= 0.0,
+                non_negative,
+            ),
+            (
+                "field_tolerance_T",
+                self.field_tolerance_t,
+                self.field_tolerance_t >= 0.0,
+                non_negative,
+            ),
+            (
+                "reciprocity_tolerance",
+                thresholds.reciprocity_tolerance,
+                thresholds.reciprocity_tolerance > 0.0,
+                positive,
+            ),
+            (
+                "max_resistance_ratio",
+                thresholds.max_resistance_ratio,
+                thresholds.max_resistance_ratio >= 1.0,
+                "give a finite ratio of 1 or more (it compares the larger resistance with the smaller)",
+            ),
+            (
+                "hall_spread_tolerance",
+                thresholds.hall_spread_tolerance,
+                thresholds.hall_spread_tolerance > 0.0,
+                positive,
+            ),
+            (
+                "thermoelectric_offset_ratio",
+                thresholds.thermoelectric_offset_ratio,
+                thresholds.thermoelectric_offset_ratio > 0.0,
+                positive,
+            ),
+            (
+                "misalignment_ratio",
+                thresholds.misalignment_ratio,
+                thresholds.misalignment_ratio > 0.0,
+                positive,
+            ),
+            (
+                "current_reversal_tolerance",
+                thresholds.current_reversal_tolerance,
+                thresholds.current_reversal_tolerance > 0.0,
+                positive,
+            ),
+        ];
+        for (setting, value, ok, requirement) in checks {
+            if !(ok && value.is_finite()) {
+                return Err(ReduceError::InvalidSetting {
+                    setting,
+                    value,
+                    requirement,
+                });
+            }
+        }
+        Ok(())
+    }
+}
+
+/// One sample, temperature group and field magnitude. SI units throughout; `None` is null.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ReducedRow {
+    pub sample: String,
+    /// "van_der_pauw" or "hall_bar".
+    pub geometry: &'static str,
+    /// Mean temperature of the group, K.
+    pub temperature_k: f64,
+    /// max - min of the group's temperatures, K.
+    pub temperature_spread_k: f64,
+    /// The |B| the Hall quantities refer to, T; `None` without field readings.
+    pub field_t: Option<f64>,
+    /// Readings that entered the row: the group's zero-field readings plus this magnitude's.
+    pub reading_count: usize,
+    /// Van der Pauw R_A; for a Hall bar the longitudinal resistance R_xx. Ohm.
+    pub resistance_a_ohm: Option<f64>,
+    /// Van der Pauw R_B; `None` for a Hall bar. Ohm.
+    pub resistance_b_ohm: Option<f64>,
+    /// max(R_A/R_B, R_B/R_A).
+    pub resistance_ratio: Option<f64>,
+    /// Van der Pauw f of R_s = pi (R_A + R_B) / (2 ln 2) f.
+    pub geometry_factor: Option<f64>,
+    pub sheet_resistance_ohm_sq: Option<f64>,
+    pub sheet_resistance_ohm_sq_unc: Option<f64>,
+    pub resistivity_ohm_m: Option<f64>,
+    pub resistivity_ohm_m_unc: Option<f64>,
+    /// R_xy at `field_t`, positive for holes. Ohm.
+    pub hall_resistance_ohm: Option<f64>,
+    pub hall_resistance_ohm_unc: Option<f64>,
+    /// R_Hs = R_xy / |B|, m^2/C.
+    pub sheet_hall_coefficient_m2_per_c: Option<f64>,
+    pub sheet_hall_coefficient_m2_per_c_unc: Option<f64>,
+    /// R_H = R_Hs t, m^3/C.
+    pub hall_coefficient_m3_per_c: Option<f64>,
+    pub hall_coefficient_m3_per_c_unc: Option<f64>,
+    /// "p" when R_Hs > 0, "n" when R_Hs < 0.
+    pub carrier_type: Option<&'static str>,
+    pub sheet_density_m2: Option<f64>,
+    pub sheet_density_m2_unc: Option<f64>,
+    pub density_m3: Option<f64>,
+    pub density_m3_unc: Option<f64>,
+    pub hall_mobility_m2_per_vs: Option<f64>,
+    pub hall_mobility_m2_per_vs_unc: Option<f64>,
+    /// mu_H / r_H.
+    pub drift_mobility_m2_per_vs: Option<f64>,
+    pub drift_mobility_m2_per_vs_unc: Option<f64>,
+    pub hall_factor: f64,
+    pub reciprocity_mismatch: Option<f64>,
+    pub current_reversal_mismatch: Option<f64>,
+    /// (max - min) / |mean| of the Hall resistances of the configurations and polarities.
+    pub hall_spread: Option<f64>,
+    pub thermoelectric_offset_ratio: Option<f64>,
+    pub misalignment_ratio: Option<f64>,
+    /// Raised flags, in the order of [`flags::ALL`].
+    pub flags: Vec<&'static str>,
+    pub quality_ok: bool,
+}
+
+/// The result: rows sorted by sample, temperature and field, warnings for the result JSON.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Reduction {
+    pub rows: Vec<ReducedRow>,
+    pub warnings: Vec<String>,
+    /// Invalid readings dropped under `skip_invalid_readings`.
+    pub skipped_readings: usize,
+}
+
+/// The readings as borrowed columns, one entry per reading, so that a table can be reduced
+/// without building a [`RawReading`] (and its `String`) per row.
+#[derive(Debug, Clone, Copy)]
+pub struct ReadingColumns<'a> {
+    pub sample: &'a [&'a str],
+    pub temperature_k: &'a [f64],
+    pub field_t: &'a [f64],
+    pub i_in: &'a [i64],
+    pub i_out: &'a [i64],
+    pub v_pos: &'a [i64],
+    pub v_neg: &'a [i64],
+    pub current_a: &'a [f64],
+    pub voltage_v: &'a [f64],
+}
+
+/// Reduces readings given as [`RawReading`]s. `samples` is the sample sheet; without one every
+/// sample is a 2D van der Pauw sample with Hall factor 1.
+pub fn reduce(
+    readings: &[RawReading],
+    samples: Option<&[SampleInfo]>,
+    settings: &ReduceSettings,
+) -> Result<Reduction, ReduceError> {
+    reduce_source(&readings, samples, settings)
+}
+
+/// Reduces readings given as columns; see [`reduce`].
+pub fn reduce_columns(
+    columns: &ReadingColumns<'_>,
+    samples: Option<&[SampleInfo]>,
+    settings: &ReduceSettings,
+) -> Result<Reduction, ReduceError> {
+    let expected = columns.sample.len();
+    let lengths = [
+        ("temperature_K", columns.temperature_k.len()),
+        ("field_T", columns.field_t.len()),
+        ("i_in", columns.i_in.len()),
+        ("i_out", columns.i_out.len()),
+        ("v_pos", columns.v_pos.len()),
+        ("v_neg", columns.v_neg.len()),
+        ("current_A", columns.current_a.len()),
+        ("voltage_V", columns.voltage_v.len()),
+    ];
+    for (column, length) in lengths {
+        if length != expected {
+            return Err(ReduceError::ColumnLengthMismatch {
+                column,
+                length,
+                expected,
+            });
+        }
+    }
+    reduce_source(columns, samples, settings)
+}
+
+/// One reading, borrowed from either input form.
+#[derive(Clone, Copy)]
+struct ReadingView<'a> {
+    sample: &'a str,
+    temperature_k: f64,
+    field_t: f64,
+    i_in: i64,
+    i_out: i64,
+    v_pos: i64,
+    v_neg: i64,
+    current_a: f64,
+    voltage_v: f64,
+}
+
+trait ReadingSource {
+    fn reading_count(&self) -> usize;
+    fn reading(&self, index: usize) -> ReadingView<'_>;
+}
+
+impl ReadingSource for &[RawReading] {
+    fn reading_count(&self) -> usize {
+        self.len()
+    }
+
+    fn reading(&self, index: usize) -> ReadingView<'_> {
+        let reading = &self[index];
+        ReadingView {
+            sample: &reading.sample,
+            temperature_k: reading.temperature_k,
+            field_t: reading.field_t,
+            i_in: reading.i_in,
+            i_out: reading.i_out,
+            v_pos: reading.v_pos,
+            v_neg: reading.v_neg,
+            current_a: reading.current_a,
+            voltage_v: reading.voltage_v,
+        }
+    }
+}
+
+impl ReadingSource for ReadingColumns<'_> {
+    fn reading_count(&self) -> usize {
+        self.sample.len()
+    }
+
+    fn reading(&self, index: usize) -> ReadingView<'_> {
+        ReadingView {
+            sample: self.sample[index],
+            temperature_k: self.temperature_k[index],
+            field_t: self.field_t[index],
+            i_in: self.i_in[index],
+            i_out: self.i_out[index],
+            v_pos: self.v_pos[index],
+            v_neg: self.v_neg[index],
+            current_a: self.current_a[index],
+            voltage_v: self.voltage_v[index],
+        }
+    }
+}
+
+fn reduce_source<S: ReadingSource>(
+    source: &S,
+    samples: Option<&[SampleInfo]>,
+    settings: &ReduceSettings,
+) -> Result<Reduction, ReduceError> {
+    settings.validate()?;
+    let total = source.reading_count();
+    let mut warnings = Vec::new();
+
+    // Intern sample names; rank them so that rows come out sorted by name.
+    let mut ids: HashMap<&str, u32> = HashMap::new();
+    let mut names: Vec<&str> = Vec::new();
+    let mut reading_sample_id: Vec<u32> = Vec::with_capacity(total);
+    let mut last: Option<(&str, u32)> = None;
+    for index in 0..total {
+        let name = source.reading(index).sample;
+        let id = match last {
+            Some((last_name, last_id)) if last_name == name => last_id,
+            _ => *ids.entry(name).or_insert_with(|| {
+                names.push(name);
+                (names.len() - 1) as u32
+            }),
+        };
+        last = Some((name, id));
+        reading_sample_id.push(id);
+    }
+    let mut order: Vec<u32> = (0..names.len() as u32).collect();
+    order.sort_unstable_by(|a, b| names[*a as usize].cmp(names[*b as usize]));
+    let mut rank_of_id = vec![0u32; names.len()];
+    for (rank, id) in order.iter().enumerate() {
+        rank_of_id[*id as usize] = rank as u32;
+    }
+    let sorted_names: Vec<&str> = order.iter().map(|id| names[*id as usize]).collect();
+    let resolved = resolve_samples(&sorted_names, samples, &mut warnings)?;
+
+    // Validate and canonicalize.
+    let mut prepared: Vec<Prepared> = Vec::with_capacity(total);
+    let mut skipped = 0usize;
+    for index in 0..total {
+        let view = source.reading(index);
+        let rank = rank_of_id[reading_sample_id[index] as usize];
+        match prepare(&view, rank, resolved[rank as usize].geometry) {
+            Ok(reading) => prepared.push(reading),
+            Err(problem) if settings.skip_invalid_readings => {
+                skipped += 1;
+                if skipped <= DETAILED_SKIP_WARNINGS {
+                    warnings.push(format!("reading {index} (sample {:?}) skipped: {problem}", view.sample));
+                }
+            }
+            Err(problem) => {
+                return Err(ReduceError::InvalidReading {
+                    row: index,
+                    sample: view.sample.to_owned(),
+                    problem,
+                })
+            }
+        }
+    }
+    if skipped > DETAILED_SKIP_WARNINGS {
+        warnings.push(format!(
+            "{} further invalid readings skipped ({skipped} in all)",
+            skipped - DETAILED_SKIP_WARNINGS
+        ));
+    }
+    if prepared.is_empty() {
+        return Err(ReduceError::NoValidReadings { total, skipped });
+    }
+    drop(reading_sample_id);
+
+    prepared.sort_unstable_by(|a, b| {
+        a.sample_rank
+            .cmp(&b.sample_rank)
+            .then(a.temperature_k.total_cmp(&b.temperature_k))
+    });
+    let mut rows = Vec::new();
+    for sample_range in runs_by_key(&prepared, |reading| reading.sample_rank) {
+        let sample_readings = &mut prepared[sample_range];
+        let sample = &resolved[sample_readings[0].sample_rank as usize];
+        let temperature_ranges = gap_clusters(
+            sample_readings.iter().map(|reading| reading.temperature_k),
+            settings.temperature_tolerance_k,
+        );
+        for temperature_range in temperature_ranges {
+            reduce_temperature_group(
+                &mut sample_readings[temperature_range],
+                sample,
+                settings,
+                &mut rows,
+                &mut warnings,
+            );
+        }
+    }
+    Ok(Reduction {
+        rows,
+        warnings,
+        skipped_readings: skipped,
+    })
+}
+
+/// Checks the sheet and returns one resolved sample per name, in the order of `names`.
+fn resolve_samples<'a>(
+    names: &[&'a str],
+    samples: Option<&'a [SampleInfo]>,
+    warnings: &mut Vec<String>,
+) -> Result<Vec<ResolvedSample<'a>>, ReduceError> {
+    let Some(sheet) = samples else {
+        return Ok(names
+            .iter()
+            .map(|name| ResolvedSample {
+                name,
+                thickness_m: None,
+                thickness_unc_m: None,
+                hall_factor: 1.0,
+                geometry: Geometry::VanDerPauw,
+            })
+            .collect());
+    };
+    let mut by_name: HashMap<&str, &SampleInfo> = HashMap::with_capacity(sheet.len());
+    for info in sheet {
+        validate_sample(info)?;
+        if by_name.insert(info.name.as_str(), info).is_some() {
+            return Err(ReduceError::DuplicateSample {
+                sample: info.name.clone(),
+            });
+        }
+    }
+    let missing: Vec<String> = names
+        .iter()
+        .filter(|name| !by_name.contains_key(*name))
+        .map(|name| (*name).to_owned())
+        .collect();
+    if !missing.is_empty() {
+        return Err(ReduceError::SamplesMissingFromSheet { samples: missing });
+    }
+    if sheet.len() > names.len() {
+        let with_readings: std::collections::HashSet<&str> = names.iter().copied().collect();
+        let mut unused: Vec<&str> = sheet
+            .iter()
+            .map(|info| info.name.as_str())
+            .filter(|name| !with_readings.contains(name))
+            .collect();
+        unused.sort_unstable();
+        warnings.push(format!("sample sheet rows without readings: {}", unused.join(", ")));
+    }
+    Ok(names
+        .iter()
+        .map(|name| {
+            let info = by_name[name];
+            ResolvedSample {
+                name: info.name.as_str(),
+                thickness_m: info.thickness_m,
+                thickness_unc_m: info.thickness_m.and(info.thickness_unc_m),
+                hall_factor: info.hall_factor,
+                geometry: info.geometry,
+            }
+        })
+        .collect())
+}
+
+fn validate_sample(info: &SampleInfo) -> Result<(), ReduceError> {
+    let sample = || info.name.clone();
+    if let Some(thickness_m) = info.thickness_m {
+        if !(thickness_m > 0.0 && thickness_m.is_finite()) {
+            return Err(ReduceError::InvalidThickness {
+                sample: sample(),
+                thickness_m,
+            });
+        }
+        if let Some(thickness_unc_m) = info.thickness_unc_m {
+            if !(thickness_unc_m >= 0.0 && thickness_unc_m.is_finite()) {
+                return Err(ReduceError::InvalidThicknessUncertainty {
+                    sample: sample(),
+                    thickness_unc_m,
+                });
+            }
+        }
+    }
+    if !(info.hall_factor > 0.0 && info.hall_factor.is_finite()) {
+        return Err(ReduceError::InvalidHallFactor {
+            sample: sample(),
+            hall_factor: info.hall_factor,
+        });
+    }
+    if let Geometry::HallBar { length_m, width_m } = info.geometry {
+        let valid = |value: f64| value > 0.0 && value.is_finite();
+        if !(valid(length_m) && valid(width_m)) {
+            return Err(ReduceError::InvalidHallBarDimensions {
+                sample: sample(),
+                length_m,
+                width_m,
+            });
+        }
+    }
+    Ok(())
+}
+
+/// Validates one reading and puts it in canonical orientation.
+fn prepare(view: &ReadingView<'_>, sample_rank: u32, geometry: Geometry) -> Result<Prepared, ReadingProblem> {
+    if !view.temperature_k.is_finite() {
+        return Err(ReadingProblem::NonFiniteTemperature(view.temperature_k));
+    }
+    if view.temperature_k <= 0.0 {
+        return Err(ReadingProblem::NonPositiveTemperature(view.temperature_k));
+    }
+    if !view.field_t.is_finite() {
+        return Err(ReadingProblem::NonFiniteField(view.field_t));
+    }
+    if !view.current_a.is_finite() {
+        return Err(ReadingProblem::NonFiniteCurrent(view.current_a));
+    }
+    if view.current_a == 0.0 {
+        return Err(ReadingProblem::ZeroCurrent);
+    }
+    if !view.voltage_v.is_finite() {
+        return Err(ReadingProblem::NonFiniteVoltage(view.voltage_v));
+    }
+    let (classified, configurations) = match geometry {
+        Geometry::VanDerPauw => (
+            classify_van_der_pauw(view.i_in, view.i_out, view.v_pos, view.v_neg),
+            &Configuration::VAN_DER_PAUW[..],
+        ),
+        Geometry::HallBar { .. } => (
+            classify_hall_bar(view.i_in, view.i_out, view.v_pos, view.v_neg),
+            &Configuration::HALL_BAR[..],
+        ),
+    };
+    let classified = classified.map_err(|error| ReadingProblem::Contacts {
+        error,
+        geometry: geometry.name(),
+    })?;
+    let slot = configurations
+        .iter()
+        .position(|configuration| *configuration == classified.configuration)
+        .expect("the classifier returns a configuration of its own geometry") as u8;
+    Ok(Prepared {
+        sample_rank,
+        slot,
+        temperature_k: view.temperature_k,
+        field_t: view.field_t,
+        current_a: classified.current_sign * view.current_a,
+        voltage_v: classified.voltage_sign * view.voltage_v,
+    })
+}
+
+/// Rows of one sample's temperature group: one per nonzero field magnitude, or one without
+/// Hall quantities when the group has no field readings.
+fn reduce_temperature_group(
+    readings: &mut [Prepared],
+    sample: &ResolvedSample<'_>,
+    settings: &ReduceSettings,
+    rows: &mut Vec<ReducedRow>,
+    warnings: &mut Vec<String>,
+) {
+    // Sorted by temperature on entry.
+    let count = readings.len() as f64;
+    let temperature_k = readings.iter().map(|reading| reading.temperature_k).sum::<f64>() / count;
+    let temperature_spread_k = readings[readings.len() - 1].temperature_k - readings[0].temperature_k;
+    let group = TemperatureGroup {
+        sample,
+        temperature_k,
+        temperature_spread_k,
+    };
+
+    readings.sort_unstable_by(|a, b| a.field_t.abs().total_cmp(&b.field_t.abs()));
+    let zero_count = readings.partition_point(|reading| reading.field_t.abs() <= settings.zero_field_tolerance_t);
+    let (zero_readings, field_readings) = readings.split_at_mut(zero_count);
+
+    zero_readings.sort_unstable_by_key(|reading| cell_key(reading, false));
+    let mut zero = ZeroFieldCells {
+        cells: [None; MAX_SLOTS],
+        count: zero_readings.len(),
+    };
+    for range in runs_by_key(zero_readings, |reading| reading.slot) {
+        let slot = zero_readings[range.start].slot as usize;
+        zero.cells[slot] = Some(summarize_cell(&zero_readings[range]));
+    }
+
+    let field_ranges = gap_clusters(
+        field_readings.iter().map(|reading| reading.field_t.abs()),
+        settings.field_tolerance_t,
+    );
+    if field_ranges.is_empty() {
+        rows.push(build_row(&group, &zero, None, &settings.thresholds, warnings));
+        return;
+    }
+    for field_range in field_ranges {
+        let cluster = &mut field_readings[field_range];
+        cluster.sort_unstable_by_key(|reading| cell_key(reading, true));
+        let field = summarize_field_cluster(cluster);
+        rows.push(build_row(&group, &zero, Some(&field), &settings.thresholds, warnings));
+    }
+}
+
+fn summarize_field_cluster(cluster: &[Prepared]) -> FieldCells {
+    let mut cells: [[Option<CellSummary>; 2]; MAX_SLOTS] = [[None; 2]; MAX_SLOTS];
+    for range in runs_by_key(cluster, |reading| (reading.slot, reading.field_t < 0.0)) {
+        let first = cluster[range.start];
+        let sign = usize::from(first.field_t < 0.0);
+        cells[first.slot as usize][sign] = Some(summarize_cell(&cluster[range]));
+    }
+    let mean_abs = |negative: bool| {
+        let (sum, count) = cluster
+            .iter()
+            .filter(|reading| (reading.field_t < 0.0) == negative)
+            .fold((0.0, 0usize), |(sum, count), reading| {
+                (sum + reading.field_t.abs(), count + 1)
+            });
+        (count > 0).then(|| sum / count as f64)
+    };
+    let field_t = match (mean_abs(false), mean_abs(true)) {
+        (Some(plus), Some(minus)) => 0.5 * (plus + minus),
+        (Some(only), None) | (None, Some(only)) => only,
+        (None, None) => unreachable!("a field cluster holds at least one reading"),
+    };
+    FieldCells {
+        cells,
+        field_t,
+        count: cluster.len(),
+    }
+}

@@ -1,0 +1,256 @@
+//! The statistics of one cell: the readings of one configuration at one field sign within a
+//! temperature group and field magnitude.
+//!
+//! A cell's readings are contiguous after sorting by [`cell_key`], so each statistic is a pass
+//! over a slice and nothing is allocated per reading. Sums are centred on the cell means (two
+//! passes) because a thermoelectric offset can be many times the resistive voltage, and
+//! uncentred sums of I V would then lose the slope to cancellation.
+
+/// A validated reading in canonical orientation (see `mobilis_core::contacts`): `current_a`
+/// and `voltage_v` already carry the configuration's current and voltage signs.
+#[derive(Debug, Clone, Copy)]
+pub(super) struct Prepared {
+    /// Rank of the sample name in sorted order, so rows come out sorted by sample.
+    pub sample_rank: u32,
+    /// Position of the configuration in the geometry's configuration list.
+    pub slot: u8,
+    pub temperature_k: f64,
+    pub field_t: f64,
+    pub current_a: f64,
+    pub voltage_v: f64,
+}
+
+/// The largest number of configurations a geometry has (van der Pauw: 4 resistance + 2 Hall).
+pub(super) const MAX_SLOTS: usize = 6;
+
+/// Sort key grouping a field cluster by configuration, then field sign, then current
+/// polarity. At zero field the field sign is ignored: a residual field within the zero-field
+/// tolerance does not split the cell.
+pub(super) fn cell_key(reading: &Prepared, split_by_field_sign: bool) -> u8 {
+    let field_sign = u8::from(split_by_field_sign && reading.field_t < 0.0);
+    let polarity = u8::from(reading.current_a < 0.0);
+    reading.slot * 4 + field_sign * 2 + polarity
+}
+
+/// A value with its standard uncertainty, when the data allow one to be estimated.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(super) struct Estimate {
+    pub value: f64,
+    pub standard_error: Option<f64>,
+}
+
+/// Root sum of squares of the components that could be estimated; `None` when none could.
+pub(super) fn quadrature(components: &[Option<f64>]) -> Option<f64> {
+    let mut any = false;
+    let mut sum = 0.0;
+    for component in components.iter().flatten() {
+        any = true;
+        sum += component * component;
+    }
+    any.then(|| sum.sqrt())
+}
+
+/// Mean of values and the standard error of that mean (sample standard deviation over
+/// sqrt(n)); the error is `None` for a single value.
+pub(super) fn mean_with_standard_error(values: &[f64]) -> Option<Estimate> {
+    if values.is_empty() {
+        return None;
+    }
+    let count = values.len() as f64;
+    let mean = values.iter().sum::<f64>() / count;
+    let standard_error = (values.len() >= 2).then(|| {
+        let sum_of_squares: f64 = values.iter().map(|value| (value - mean).powi(2)).sum();
+        (sum_of_squares / (count - 1.0) / count).sqrt()
+    });
+    Some(Estimate {
+        value: mean,
+        standard_error,
+    })
+}
+
+/// The mean of redundant estimates of one quantity (the configurations of a family): its
+/// uncertainty combines the standard error of the mean of the estimates, which sees
+/// inhomogeneity and contact effects, with their own standard errors, which see the noise.
+pub(super) fn combine_redundant(estimates: &[Estimate]) -> Option<Estimate> {
+    let values: Vec<f64> = estimates.iter().map(|estimate| estimate.value).collect();
+    let spread = mean_with_standard_error(&values)?;
+    let own: Vec<Option<f64>> = estimates.iter().map(|estimate| estimate.standard_error).collect();
+    let own_of_mean = quadrature(&own).map(|combined| combined / estimates.len() as f64);
+    Some(Estimate {
+        value: spread.value,
+        standard_error: quadrature(&[spread.standard_error, own_of_mean]),
+    })
+}
+
+/// V_c = R I_c + V_offset over the readings of one cell.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(super) struct LineFit {
+    /// The slope R, ohm, with its standard error from the residuals (needs more than two
+    /// readings), or, without distinct currents, the standard error of the mean of V/I.
+    pub resistance: Estimate,
+    /// The intercept, V; `None` when all readings share one current and it cannot be
+    /// separated from R.
+    pub offset_v: Option<f64>,
+    /// The largest |I| of the cell, A: the scale against which the offset is judged.
+    pub max_abs_current_a: f64,
+}
+
+/// Everything the row computation needs from one cell.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(super) struct CellSummary {
+    pub fit: LineFit,
+    /// Mean of V_c / I_c per current polarity: `[positive, negative]` canonical current.
+    pub polarity: [Option<Estimate>; 2],
+    pub mean_abs_field_t: f64,
+    pub count: usize,
+}
+
+impl CellSummary {
+    pub fn has_both_polarities(&self) -> bool {
+        self.polarity.iter().all(Option::is_some)
+    }
+
+    /// |R(+I) - R(-I)| / |mean| from the raw V/I of each polarity, as in the NIST check of
+    /// R_21,34 against R_12,43; `None` with one polarity.
+    pub fn current_reversal_mismatch(&self) -> Option<f64> {
+        let positive = self.polarity[0]?.value;
+        let negative = self.polarity[1]?.value;
+        let mean = 0.5 * (positive + negative);
+        Some((positive - negative).abs() / mean.abs())
+    }
+
+    /// |V_offset| / |R I_max|; `None` when the offset is unknown or R is zero.
+    pub fn offset_ratio(&self) -> Option<f64> {
+        let offset = self.fit.offset_v?;
+        let signal = (self.fit.resistance.value * self.fit.max_abs_current_a).abs();
+        (signal > 0.0).then(|| offset.abs() / signal)
+    }
+}
+
+/// Relative width below which currents count as one current: a least-squares line through
+/// them would be ill-conditioned, and repeats at one set current agree to far better than this.
+const DISTINCT_CURRENT_RELATIVE: f64 = 1e-9;
+
+pub(super) fn summarize_cell(readings: &[Prepared]) -> CellSummary {
+    debug_assert!(!readings.is_empty());
+    let count = readings.len();
+    let n = count as f64;
+    let mut sum_current = 0.0;
+    let mut sum_voltage = 0.0;
+    let mut sum_abs_field = 0.0;
+    let mut min_current = f64::INFINITY;
+    let mut max_current = f64::NEG_INFINITY;
+    let mut max_abs_current = 0.0_f64;
+    for reading in readings {
+        sum_current += reading.current_a;
+        sum_voltage += reading.voltage_v;
+        sum_abs_field += reading.field_t.abs();
+        min_current = min_current.min(reading.current_a);
+        max_current = max_current.max(reading.current_a);
+        max_abs_current = max_abs_current.max(reading.current_a.abs());
+    }
+    let mean_current = sum_current / n;
+    let mean_voltage = sum_voltage / n;
+    let distinct_currents = max_current - min_current > DISTINCT_CURRENT_RELATIVE * max_abs_current;
+    let fit = if distinct_currents {
+        let mut sxx = 0.0;
+        let mut sxy = 0.0;
+        for reading in readings {
+            let dx = reading.current_a - mean_current;
+            sxx += dx * dx;
+            sxy += dx * (reading.voltage_v - mean_voltage);
+        }
+        let slope = sxy / sxx;
+        let offset = mean_voltage - slope * mean_current;
+        let standard_error = (count > 2).then(|| {
+            let residual_sum: f64 = readings
+                .iter()
+                .map(|reading| (reading.voltage_v - offset - slope * reading.current_a).powi(2))
+                .sum();
+            (residual_sum / (n - 2.0) / sxx).sqrt()
+        });
+        LineFit {
+            resistance: Estimate {
+                value: slope,
+                standard_error,
+            },
+            offset_v: Some(offset),
+            max_abs_current_a: max_abs_current,
+        }
+    } else {
+        LineFit {
+            resistance: ratio_mean(readings.iter()).expect("a cell holds at least one reading"),
+            offset_v: None,
+            max_abs_current_a: max_abs_current,
+        }
+    };
+    let positive = ratio_mean(readings.iter().filter(|reading| reading.current_a > 0.0));
+    let negative = ratio_mean(readings.iter().filter(|reading| reading.current_a < 0.0));
+    CellSummary {
+        fit,
+        polarity: [positive, negative],
+        mean_abs_field_t: sum_abs_field / n,
+        count,
+    }
+}
+
+/// Mean of V/I and its standard error, in two passes over an iterator that can be cloned.
+fn ratio_mean<'a>(readings: impl Iterator<Item = &'a Prepared> + Clone) -> Option<Estimate> {
+    let mut count = 0usize;
+    let mut sum = 0.0;
+    for reading in readings.clone() {
+        count += 1;
+        sum += reading.voltage_v / reading.current_a;
+    }
+    if count == 0 {
+        return None;
+    }
+    let n = count as f64;
+    let mean = sum / n;
+    let standard_error = (count >= 2).then(|| {
+        let sum_of_squares: f64 = readings
+            .map(|reading| (reading.voltage_v / reading.current_a - mean).powi(2))
+            .sum();
+        (sum_of_squares / (n - 1.0) / n).sqrt()
+    });
+    Some(Estimate {
+        value: mean,
+        standard_error,
+    })
+}
+
+/// Consecutive runs of sorted values whose neighbours differ by at most `tolerance`, as index
+/// ranges. Chains are allowed (a slow drift stays one cluster); the caller reports the spread.
+pub(super) fn gap_clusters(values: impl Iterator<Item = f64>, tolerance: f64) -> Vec<std::ops::Range<usize>> {
+    let mut ranges = Vec::new();
+    let mut start = 0usize;
+    let mut previous: Option<f64> = None;
+    let mut index = 0usize;
+    for value in values {
+        if let Some(last) = previous {
+            if value - last > tolerance {
+                ranges.push(start..index);
+                start = index;
+            }
+        }
+        previous = Some(value);
+        index += 1;
+    }
+    if index > start {
+        ranges.push(start..index);
+    }
+    ranges
+}
+
+/// Index ranges of the runs of equal keys in a slice sorted by that key.
+pub(super) fn runs_by_key<T, K: PartialEq>(items: &[T], key: impl Fn(&T) -> K) -> Vec<std::ops::Range<usize>> {
+    let mut ranges = Vec::new();
+    let mut start = 0usize;
+    for index in 1..=items.len() {
+        if index == items.len() || key(&items[index]) != key(&items[start]) {
+            ranges.push(start..index);
+            start = index;
+        }
+    }
+    ranges
+}

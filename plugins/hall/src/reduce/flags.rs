@@ -1,0 +1,102 @@
+//! Quality flags of a reduced row: stable names, what raises each one, and the threshold that
+//! governs it.
+//!
+//! Each flag names one cause, so that a lab knows what to remeasure: a missing configuration
+//! (`missing_configurations`) is kept apart from a missing current polarity
+//! (`no_current_reversal`) and a missing field sign (`no_field_reversal`). A row lists its
+//! flags in the order of [`ALL`]; `quality_ok` is true when the list is empty.
+
+/// R_A's (or R_B's) direct and reciprocal configurations differ by more than
+/// `reciprocity_tolerance` relative to their mean.
+pub const RECIPROCITY: &str = "reciprocity";
+/// max(R_A/R_B, R_B/R_A) exceeds `max_resistance_ratio`: contacts far from symmetric or the
+/// sample inhomogeneous.
+pub const RESISTANCE_RATIO: &str = "resistance_ratio";
+/// The Hall resistances of the configurations and current polarities differ in sign, or their
+/// spread (max - min) / |mean| exceeds `hall_spread_tolerance`.
+pub const HALL_INCONSISTENT: &str = "hall_inconsistent";
+/// A thermoelectric offset larger than `thermoelectric_offset_ratio` times the signal R I, or
+/// a field-even (misalignment) part of the Hall configurations larger than
+/// `misalignment_ratio` times the Hall part. The reduction cancels both; a large one means the
+/// result rests on a small difference of large numbers.
+pub const LARGE_OFFSET: &str = "large_offset";
+/// V/I of a resistance configuration at +I and at -I differ by more than
+/// `current_reversal_tolerance` relative to their mean (non-ohmic contacts, heating, or
+/// thermoelectric voltages).
+pub const CURRENT_REVERSAL: &str = "current_reversal";
+/// A resistance configuration (4 for van der Pauw, 2 longitudinal pairs for a Hall bar) or a
+/// Hall configuration (2 diagonals, 2 transverse pairs) has no reading in this row.
+pub const MISSING_CONFIGURATIONS: &str = "missing_configurations";
+/// A Hall configuration at this field magnitude was measured at one field sign only; when no
+/// configuration has both signs the Hall quantities are null.
+pub const NO_FIELD_REVERSAL: &str = "no_field_reversal";
+/// A configuration was measured at one current polarity only: its thermoelectric offset
+/// cannot be separated (unless it has two distinct currents) and the current-reversal check
+/// cannot be made.
+pub const NO_CURRENT_REVERSAL: &str = "no_current_reversal";
+/// The temperature group has no zero-field resistance reading; the resistances are the
+/// field-even part of the readings at +B and -B and include any magnetoresistance.
+pub const RESISTANCE_FROM_FIELD_READINGS: &str = "resistance_from_field_readings";
+/// The temperature group has no reading at nonzero field: the Hall quantities are null.
+pub const NO_FIELD_DATA: &str = "no_field_data";
+/// A canonical resistance came out zero or negative, which no uniform sample gives: the
+/// contacts are misnumbered (they go counterclockwise seen from the +B side) or one is
+/// broken. The sheet resistance and mobility are null.
+pub const NONPOSITIVE_RESISTANCE: &str = "nonpositive_resistance";
+
+/// Every flag, in the order a row lists them.
+pub const ALL: [&str; 11] = [
+    RECIPROCITY,
+    RESISTANCE_RATIO,
+    HALL_INCONSISTENT,
+    LARGE_OFFSET,
+    CURRENT_REVERSAL,
+    MISSING_CONFIGURATIONS,
+    NO_FIELD_REVERSAL,
+    NO_CURRENT_REVERSAL,
+    RESISTANCE_FROM_FIELD_READINGS,
+    NO_FIELD_DATA,
+    NONPOSITIVE_RESISTANCE,
+];
+
+/// One-line descriptions for a plugin's `describe` output, in the order of [`ALL`].
+pub const DESCRIPTIONS: [(&str, &str); 11] = [
+    (
+        RECIPROCITY,
+        "direct and reciprocal resistance configurations differ by more than reciprocity_tolerance",
+    ),
+    (RESISTANCE_RATIO, "max(R_A/R_B, R_B/R_A) exceeds max_resistance_ratio"),
+    (
+        HALL_INCONSISTENT,
+        "Hall resistances of the configurations differ in sign or spread more than hall_spread_tolerance",
+    ),
+    (
+        LARGE_OFFSET,
+        "thermoelectric offset or misalignment voltage above thermoelectric_offset_ratio or misalignment_ratio",
+    ),
+    (
+        CURRENT_REVERSAL,
+        "V/I at +I and -I differ by more than current_reversal_tolerance",
+    ),
+    (
+        MISSING_CONFIGURATIONS,
+        "a resistance or Hall configuration has no reading",
+    ),
+    (
+        NO_FIELD_REVERSAL,
+        "a Hall configuration was measured at one field sign only",
+    ),
+    (
+        NO_CURRENT_REVERSAL,
+        "a configuration was measured at one current polarity only",
+    ),
+    (
+        RESISTANCE_FROM_FIELD_READINGS,
+        "no zero-field readings: resistances are the field-even part of the in-field readings",
+    ),
+    (NO_FIELD_DATA, "no reading at nonzero field: Hall quantities are null"),
+    (
+        NONPOSITIVE_RESISTANCE,
+        "a resistance came out zero or negative: check contact numbering and wiring",
+    ),
+];

@@ -1,0 +1,551 @@
+//! One output row: resistances, sheet resistance, Hall quantities, derived densities and
+//! mobilities with their uncertainties, and the quality flags, from the cell statistics of one
+//! temperature group (zero-field cells) and one field magnitude (field cells).
+//!
+//! The physics and the choices behind it are documented in the parent module.
+
+use mobilis_core::constants::ELEMENTARY_CHARGE_C;
+use mobilis_core::van_der_pauw;
+
+use super::cells::{combine_redundant, mean_with_standard_error, quadrature, CellSummary, Estimate, MAX_SLOTS};
+use super::{flags, Geometry, QualityThresholds, ReducedRow};
+
+/// A sample-sheet row checked and ready for use.
+#[derive(Debug, Clone, Copy)]
+pub(super) struct ResolvedSample<'a> {
+    pub name: &'a str,
+    pub thickness_m: Option<f64>,
+    pub thickness_unc_m: Option<f64>,
+    pub hall_factor: f64,
+    pub geometry: Geometry,
+}
+
+/// Which configuration slots play which role for a geometry (slot = position in
+/// `Configuration::VAN_DER_PAUW` or `Configuration::HALL_BAR`).
+struct Layout {
+    /// Redundant estimates of each resistance: van der Pauw `[A: direct, reciprocal]`,
+    /// `[B: direct, reciprocal]`; Hall bar one family of the two longitudinal pairs.
+    families: &'static [[usize; 2]],
+    hall_slots: [usize; 2],
+}
+
+const VAN_DER_PAUW_LAYOUT: Layout = Layout {
+    families: &[[0, 1], [2, 3]],
+    hall_slots: [4, 5],
+};
+
+const HALL_BAR_LAYOUT: Layout = Layout {
+    families: &[[0, 1]],
+    hall_slots: [2, 3],
+};
+
+fn layout(geometry: Geometry) -> &'static Layout {
+    match geometry {
+        Geometry::VanDerPauw => &VAN_DER_PAUW_LAYOUT,
+        Geometry::HallBar { .. } => &HALL_BAR_LAYOUT,
+    }
+}
+
+/// The cells of one temperature group at zero field, by slot.
+pub(super) struct ZeroFieldCells {
+    pub cells: [Option<CellSummary>; MAX_SLOTS],
+    pub count: usize,
+}
+
+/// The cells of one field magnitude, by slot and field sign (`[+B, -B]`).
+pub(super) struct FieldCells {
+    pub cells: [[Option<CellSummary>; 2]; MAX_SLOTS],
+    /// The |B| the Hall resistance is divided by: the mean of the mean |B| at +B and at -B, so
+    /// that (R(+B1) - R(-B2)) / 2 = R_Hs (B1 + B2) / 2 is divided by the right field.
+    pub field_t: f64,
+    pub count: usize,
+}
+
+/// The temperature group a row belongs to.
+pub(super) struct TemperatureGroup<'a> {
+    pub sample: &'a ResolvedSample<'a>,
+    pub temperature_k: f64,
+    pub temperature_spread_k: f64,
+}
+
+/// The raised flags of a row, kept in the order of [`flags::ALL`].
+#[derive(Default)]
+struct RaisedFlags([bool; flags::ALL.len()]);
+
+impl RaisedFlags {
+    fn raise(&mut self, flag: &'static str) {
+        let index = flags::ALL
+            .iter()
+            .position(|known| *known == flag)
+            .expect("every raised flag is listed in flags::ALL");
+        self.0[index] = true;
+    }
+
+    fn into_list(self) -> Vec<&'static str> {
+        flags::ALL
+            .iter()
+            .zip(self.0)
+            .filter_map(|(flag, raised)| raised.then_some(*flag))
+            .collect()
+    }
+}
+
+/// Everything the resistance step yields.
+#[derive(Default)]
+struct ResistancePart {
+    resistance_a_ohm: Option<f64>,
+    resistance_b_ohm: Option<f64>,
+    resistance_ratio: Option<f64>,
+    geometry_factor: Option<f64>,
+    sheet_resistance: Option<Estimate>,
+    reciprocity_mismatch: Option<f64>,
+}
+
+/// Everything the Hall step yields.
+#[derive(Default)]
+struct HallPart {
+    hall_resistance: Option<Estimate>,
+    hall_spread: Option<f64>,
+    misalignment_ratio: Option<f64>,
+}
+
+/// Relative uncertainty of a product or quotient of independent factors.
+fn relative_quadrature(terms: &[(f64, Option<f64>)]) -> Option<f64> {
+    let relative: Vec<Option<f64>> = terms
+        .iter()
+        .map(|(value, uncertainty)| uncertainty.map(|u| u / value.abs()))
+        .collect();
+    quadrature(&relative)
+}
+
+pub(super) fn build_row(
+    group: &TemperatureGroup<'_>,
+    zero: &ZeroFieldCells,
+    field: Option<&FieldCells>,
+    thresholds: &QualityThresholds,
+    warnings: &mut Vec<String>,
+) -> ReducedRow {
+    let sample = group.sample;
+    let layout = layout(sample.geometry);
+    let mut raised = RaisedFlags::default();
+    // Cells whose fits enter the row: (cell, is a resistance configuration).
+    let mut used_cells: Vec<(&CellSummary, bool)> = Vec::new();
+
+    let resistance_slots = || layout.families.iter().flat_map(|family| family.iter().copied());
+    let zero_has_resistance = resistance_slots().any(|slot| zero.cells[slot].is_some());
+    let from_field = !zero_has_resistance && field.is_some();
+    if from_field {
+        raised.raise(flags::RESISTANCE_FROM_FIELD_READINGS);
+        warnings.push(format!(
+            "sample {:?} at {:.3} K: no zero-field resistance readings; the resistances at |B| = {} T are the field-even part of the readings at +B and -B and include magnetoresistance",
+            sample.name,
+            group.temperature_k,
+            field.map_or(0.0, |cells| cells.field_t)
+        ));
+    }
+
+    // Per-slot resistance estimates from the chosen source.
+    let mut slot_resistance: [Option<Estimate>; MAX_SLOTS] = [None; MAX_SLOTS];
+    for slot in resistance_slots() {
+        slot_resistance[slot] = match (from_field, field) {
+            (true, Some(field)) => field_even_resistance(&field.cells[slot], &mut used_cells),
+            _ => zero.cells[slot].as_ref().map(|cell| {
+                used_cells.push((cell, true));
+                cell.fit.resistance
+            }),
+        };
+        if slot_resistance[slot].is_none() {
+            raised.raise(flags::MISSING_CONFIGURATIONS);
+        }
+    }
+
+    let resistance = match sample.geometry {
+        Geometry::VanDerPauw => van_der_pauw_resistance(&slot_resistance, group, &mut raised, warnings),
+        Geometry::HallBar { length_m, width_m } => {
+            hall_bar_resistance(&slot_resistance, length_m, width_m, group, &mut raised, warnings)
+        }
+    };
+
+    let hall = match field {
+        Some(field) => hall_resistance(field, layout, &mut used_cells, &mut raised),
+        None => {
+            raised.raise(flags::NO_FIELD_DATA);
+            HallPart::default()
+        }
+    };
+
+    // Offsets, current reversal and polarity coverage over every fit the row rests on.
+    let mut thermoelectric_offset_ratio: Option<f64> = None;
+    let mut current_reversal_mismatch: Option<f64> = None;
+    for (cell, is_resistance) in &used_cells {
+        if !cell.has_both_polarities() {
+            raised.raise(flags::NO_CURRENT_REVERSAL);
+        }
+        if let Some(ratio) = cell.offset_ratio() {
+            thermoelectric_offset_ratio = Some(thermoelectric_offset_ratio.map_or(ratio, |max| max.max(ratio)));
+        }
+        if *is_resistance {
+            if let Some(mismatch) = cell.current_reversal_mismatch() {
+                current_reversal_mismatch = Some(current_reversal_mismatch.map_or(mismatch, |max| max.max(mismatch)));
+            }
+        }
+    }
+
+    if exceeds(resistance.reciprocity_mismatch, thresholds.reciprocity_tolerance) {
+        raised.raise(flags::RECIPROCITY);
+    }
+    if exceeds(resistance.resistance_ratio, thresholds.max_resistance_ratio) {
+        raised.raise(flags::RESISTANCE_RATIO);
+    }
+    if exceeds(hall.hall_spread, thresholds.hall_spread_tolerance) {
+        raised.raise(flags::HALL_INCONSISTENT);
+    }
+    if exceeds(thermoelectric_offset_ratio, thresholds.thermoelectric_offset_ratio)
+        || exceeds(hall.misalignment_ratio, thresholds.misalignment_ratio)
+    {
+        raised.raise(flags::LARGE_OFFSET);
+    }
+    if exceeds(current_reversal_mismatch, thresholds.current_reversal_tolerance) {
+        raised.raise(flags::CURRENT_REVERSAL);
+    }
+
+    // Derived quantities.
+    let thickness = sample.thickness_m;
+    let thickness_unc = sample.thickness_unc_m;
+    let sheet = resistance.sheet_resistance;
+    let resistivity = match (sheet, thickness) {
+        (Some(sheet), Some(thickness)) => {
+            let value = sheet.value * thickness;
+            let relative = relative_quadrature(&[(sheet.value, sheet.standard_error), (thickness, thickness_unc)]);
+            Some(Estimate {
+                value,
+                standard_error: relative.map(|r| r * value.abs()),
+            })
+        }
+        _ => None,
+    };
+
+    let field_t = field.map(|cells| cells.field_t);
+    let sheet_hall_coefficient = match (hall.hall_resistance, field_t) {
+        (Some(hall_resistance), Some(field_t)) => Some(Estimate {
+            value: hall_resistance.value / field_t,
+            standard_error: hall_resistance.standard_error.map(|u| u / field_t),
+        }),
+        _ => None,
+    };
+    // A Hall resistance of exactly zero has no carrier type and no finite density.
+    let usable_hall = sheet_hall_coefficient.filter(|coefficient| coefficient.value != 0.0);
+    let carrier_type = usable_hall.map(|coefficient| if coefficient.value > 0.0 { "p" } else { "n" });
+    let hall_coefficient = match (sheet_hall_coefficient, thickness) {
+        (Some(coefficient), Some(thickness)) => {
+            let value = coefficient.value * thickness;
+            let relative = relative_quadrature(&[
+                (coefficient.value, coefficient.standard_error),
+                (thickness, thickness_unc),
+            ]);
+            Some(Estimate {
+                value,
+                standard_error: if coefficient.value == 0.0 {
+                    coefficient.standard_error.map(|u| u * thickness)
+                } else {
+                    relative.map(|r| r * value.abs())
+                },
+            })
+        }
+        _ => None,
+    };
+    let sheet_density = usable_hall.map(|coefficient| {
+        let value = sample.hall_factor / (ELEMENTARY_CHARGE_C * coefficient.value.abs());
+        Estimate {
+            value,
+            standard_error: coefficient.standard_error.map(|u| value * u / coefficient.value.abs()),
+        }
+    });
+    let density = match (sheet_density, usable_hall, thickness) {
+        (Some(sheet_density), Some(coefficient), Some(thickness)) => {
+            let value = sheet_density.value / thickness;
+            let relative = relative_quadrature(&[
+                (coefficient.value, coefficient.standard_error),
+                (thickness, thickness_unc),
+            ]);
+            Some(Estimate {
+                value,
+                standard_error: relative.map(|r| r * value),
+            })
+        }
+        _ => None,
+    };
+    let hall_mobility = match (usable_hall, sheet.filter(|sheet| sheet.value > 0.0)) {
+        (Some(coefficient), Some(sheet)) => {
+            let value = coefficient.value.abs() / sheet.value;
+            let relative = relative_quadrature(&[
+                (coefficient.value, coefficient.standard_error),
+                (sheet.value, sheet.standard_error),
+            ]);
+            Some(Estimate {
+                value,
+                standard_error: relative.map(|r| r * value),
+            })
+        }
+        _ => None,
+    };
+    let drift_mobility = hall_mobility.map(|mobility| Estimate {
+        value: mobility.value / sample.hall_factor,
+        standard_error: mobility.standard_error.map(|u| u / sample.hall_factor),
+    });
+
+    let flags = raised.into_list();
+    let reading_count = zero.count + field.map_or(0, |cells| cells.count);
+    ReducedRow {
+        sample: sample.name.to_owned(),
+        geometry: sample.geometry.name(),
+        temperature_k: group.temperature_k,
+        temperature_spread_k: group.temperature_spread_k,
+        field_t,
+        reading_count,
+        resistance_a_ohm: resistance.resistance_a_ohm,
+        resistance_b_ohm: resistance.resistance_b_ohm,
+        resistance_ratio: resistance.resistance_ratio,
+        geometry_factor: resistance.geometry_factor,
+        sheet_resistance_ohm_sq: sheet.map(|e| e.value),
+        sheet_resistance_ohm_sq_unc: sheet.and_then(|e| e.standard_error),
+        resistivity_ohm_m: resistivity.map(|e| e.value),
+        resistivity_ohm_m_unc: resistivity.and_then(|e| e.standard_error),
+        hall_resistance_ohm: hall.hall_resistance.map(|e| e.value),
+        hall_resistance_ohm_unc: hall.hall_resistance.and_then(|e| e.standard_error),
+        sheet_hall_coefficient_m2_per_c: sheet_hall_coefficient.map(|e| e.value),
+        sheet_hall_coefficient_m2_per_c_unc: sheet_hall_coefficient.and_then(|e| e.standard_error),
+        hall_coefficient_m3_per_c: hall_coefficient.map(|e| e.value),
+        hall_coefficient_m3_per_c_unc: hall_coefficient.and_then(|e| e.standard_error),
+        carrier_type,
+        sheet_density_m2: sheet_density.map(|e| e.value),
+        sheet_density_m2_unc: sheet_density.and_then(|e| e.standard_error),
+        density_m3: density.map(|e| e.value),
+        density_m3_unc: density.and_then(|e| e.standard_error),
+        hall_mobility_m2_per_vs: hall_mobility.map(|e| e.value),
+        hall_mobility_m2_per_vs_unc: hall_mobility.and_then(|e| e.standard_error),
+        drift_mobility_m2_per_vs: drift_mobility.map(|e| e.value),
+        drift_mobility_m2_per_vs_unc: drift_mobility.and_then(|e| e.standard_error),
+        hall_factor: sample.hall_factor,
+        reciprocity_mismatch: resistance.reciprocity_mismatch,
+        current_reversal_mismatch,
+        hall_spread: hall.hall_spread,
+        thermoelectric_offset_ratio,
+        misalignment_ratio: hall.misalignment_ratio,
+        quality_ok: flags.is_empty(),
+        flags,
+    }
+}
+
+fn exceeds(value: Option<f64>, limit: f64) -> bool {
+    value.is_some_and(|value| value > limit)
+}
+
+/// The field-even part (R(+B) + R(-B)) / 2 of a resistance configuration, or the one field
+/// sign present.
+fn field_even_resistance<'a>(
+    cells: &'a [Option<CellSummary>; 2],
+    used_cells: &mut Vec<(&'a CellSummary, bool)>,
+) -> Option<Estimate> {
+    match cells {
+        [Some(plus), Some(minus)] => {
+            used_cells.push((plus, true));
+            used_cells.push((minus, true));
+            Some(Estimate {
+                value: 0.5 * (plus.fit.resistance.value + minus.fit.resistance.value),
+                standard_error: quadrature(&[plus.fit.resistance.standard_error, minus.fit.resistance.standard_error])
+                    .map(|u| 0.5 * u),
+            })
+        }
+        [Some(only), None] | [None, Some(only)] => {
+            used_cells.push((only, true));
+            Some(only.fit.resistance)
+        }
+        [None, None] => None,
+    }
+}
+
+fn van_der_pauw_resistance(
+    slot_resistance: &[Option<Estimate>; MAX_SLOTS],
+    group: &TemperatureGroup<'_>,
+    raised: &mut RaisedFlags,
+    warnings: &mut Vec<String>,
+) -> ResistancePart {
+    let mut reciprocity_mismatch: Option<f64> = None;
+    let mut family_estimate = |slots: [usize; 2]| -> Option<Estimate> {
+        let present: Vec<Estimate> = slots.iter().filter_map(|&slot| slot_resistance[slot]).collect();
+        if let [direct, reciprocal] = present[..] {
+            let mean = 0.5 * (direct.value + reciprocal.value);
+            let mismatch = (direct.value - reciprocal.value).abs() / mean.abs();
+            reciprocity_mismatch = Some(reciprocity_mismatch.map_or(mismatch, |max: f64| max.max(mismatch)));
+        }
+        combine_redundant(&present)
+    };
+    let family_a = family_estimate(VAN_DER_PAUW_LAYOUT.families[0]);
+    let family_b = family_estimate(VAN_DER_PAUW_LAYOUT.families[1]);
+    // One family absent: assume the symmetric sample (R_B = R_A). The two are then one
+    // measurement, so their uncertainties add linearly, not in quadrature.
+    let (resistance_a, resistance_b, fully_correlated) = match (family_a, family_b) {
+        (Some(a), Some(b)) => (a, b, false),
+        (Some(a), None) => (a, a, true),
+        (None, Some(b)) => (b, b, true),
+        (None, None) => {
+            return ResistancePart {
+                reciprocity_mismatch,
+                ..ResistancePart::default()
+            }
+        }
+    };
+    let mut part = ResistancePart {
+        resistance_a_ohm: Some(resistance_a.value),
+        resistance_b_ohm: Some(resistance_b.value),
+        reciprocity_mismatch,
+        ..ResistancePart::default()
+    };
+    if !(resistance_a.value > 0.0 && resistance_b.value > 0.0) {
+        raise_nonpositive(
+            group,
+            &format!("R_A = {} ohm, R_B = {} ohm", resistance_a.value, resistance_b.value),
+            raised,
+            warnings,
+        );
+        return part;
+    }
+    let (a, b) = (resistance_a.value, resistance_b.value);
+    part.resistance_ratio = Some((a / b).max(b / a));
+    // Positive finite inputs cannot fail; an error here would be a defect of the solver.
+    let sheet = van_der_pauw::sheet_resistance(a, b).ok();
+    let factor = van_der_pauw::correction_factor(a, b).ok();
+    let gradient = van_der_pauw::sheet_resistance_gradient(a, b).ok();
+    part.geometry_factor = factor;
+    part.sheet_resistance = sheet.map(|value| {
+        let standard_error = gradient.and_then(|(gradient_a, gradient_b)| {
+            if fully_correlated {
+                resistance_a.standard_error.map(|u| (gradient_a + gradient_b) * u)
+            } else {
+                quadrature(&[
+                    resistance_a.standard_error.map(|u| gradient_a * u),
+                    resistance_b.standard_error.map(|u| gradient_b * u),
+                ])
+            }
+        });
+        Estimate { value, standard_error }
+    });
+    part
+}
+
+fn hall_bar_resistance(
+    slot_resistance: &[Option<Estimate>; MAX_SLOTS],
+    length_m: f64,
+    width_m: f64,
+    group: &TemperatureGroup<'_>,
+    raised: &mut RaisedFlags,
+    warnings: &mut Vec<String>,
+) -> ResistancePart {
+    let present: Vec<Estimate> = HALL_BAR_LAYOUT.families[0]
+        .iter()
+        .filter_map(|&slot| slot_resistance[slot])
+        .collect();
+    let Some(longitudinal) = combine_redundant(&present) else {
+        return ResistancePart::default();
+    };
+    let mut part = ResistancePart {
+        resistance_a_ohm: Some(longitudinal.value),
+        ..ResistancePart::default()
+    };
+    if !(longitudinal.value > 0.0) {
+        raise_nonpositive(group, &format!("R_xx = {} ohm", longitudinal.value), raised, warnings);
+        return part;
+    }
+    // rho_s = R_xx W / L: the squares between the voltage contacts.
+    let squares = width_m / length_m;
+    part.sheet_resistance = Some(Estimate {
+        value: longitudinal.value * squares,
+        standard_error: longitudinal.standard_error.map(|u| u * squares),
+    });
+    part
+}
+
+fn raise_nonpositive(group: &TemperatureGroup<'_>, values: &str, raised: &mut RaisedFlags, warnings: &mut Vec<String>) {
+    raised.raise(flags::NONPOSITIVE_RESISTANCE);
+    warnings.push(format!(
+        "sample {:?} at {:.3} K: {values} is not positive; check that the contacts are numbered counterclockwise seen from the +B side and that none is broken",
+        group.sample.name, group.temperature_k
+    ));
+}
+
+/// The Hall resistance from the field-odd part of each Hall configuration and current
+/// polarity (the NIST V_C..V_F over 2I), and the field-even (misalignment) part.
+fn hall_resistance<'a>(
+    field: &'a FieldCells,
+    layout: &Layout,
+    used_cells: &mut Vec<(&'a CellSummary, bool)>,
+    raised: &mut RaisedFlags,
+) -> HallPart {
+    let mut odd_parts: Vec<Estimate> = Vec::with_capacity(4);
+    let mut misalignment: Vec<f64> = Vec::with_capacity(2);
+    for slot in layout.hall_slots {
+        let [plus, minus] = &field.cells[slot];
+        for cell in [plus, minus].into_iter().flatten() {
+            used_cells.push((cell, false));
+        }
+        let (plus, minus) = match (plus, minus) {
+            (Some(plus), Some(minus)) => (plus, minus),
+            (None, None) => {
+                raised.raise(flags::MISSING_CONFIGURATIONS);
+                continue;
+            }
+            _ => {
+                raised.raise(flags::NO_FIELD_REVERSAL);
+                continue;
+            }
+        };
+        let mut even_parts: Vec<f64> = Vec::with_capacity(2);
+        for polarity in 0..2 {
+            if let (Some(at_plus), Some(at_minus)) = (plus.polarity[polarity], minus.polarity[polarity]) {
+                odd_parts.push(Estimate {
+                    value: 0.5 * (at_plus.value - at_minus.value),
+                    standard_error: quadrature(&[at_plus.standard_error, at_minus.standard_error]).map(|u| 0.5 * u),
+                });
+                even_parts.push(0.5 * (at_plus.value + at_minus.value));
+            }
+        }
+        // The thermoelectric offset enters V/I as V_offset / I, odd in the current: averaging
+        // the two polarities leaves the misalignment alone.
+        if !even_parts.is_empty() {
+            misalignment.push(even_parts.iter().sum::<f64>() / even_parts.len() as f64);
+        }
+    }
+    if odd_parts.is_empty() {
+        // The flags raised above (missing configuration, one field sign) or the missing
+        // polarity found by the caller say why the Hall quantities are null.
+        return HallPart::default();
+    }
+    let hall_resistance = combine_redundant(&odd_parts).expect("at least one odd part");
+    let values: Vec<f64> = odd_parts.iter().map(|estimate| estimate.value).collect();
+    let mean = mean_with_standard_error(&values).expect("at least one odd part").value;
+    let mixed_signs = values.iter().any(|value| *value > 0.0) && values.iter().any(|value| *value < 0.0);
+    if mixed_signs {
+        raised.raise(flags::HALL_INCONSISTENT);
+    }
+    let hall_spread = (values.len() >= 2 && mean != 0.0).then(|| {
+        let max = values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        let min = values.iter().copied().fold(f64::INFINITY, f64::min);
+        (max - min) / mean.abs()
+    });
+    let misalignment_ratio = (mean != 0.0)
+        .then(|| {
+            misalignment
+                .iter()
+                .map(|even| even.abs() / mean.abs())
+                .fold(None, |max: Option<f64>, ratio| {
+                    Some(max.map_or(ratio, |max| max.max(ratio)))
+                })
+        })
+        .flatten();
+    HallPart {
+        hall_resistance: Some(hall_resistance),
+        hall_spread,
+        misalignment_ratio,
+    }
+}

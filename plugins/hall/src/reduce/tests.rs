@@ -1,0 +1,1480 @@
+//! Tests of the reduction against hand-built readings with known answers, against the check
+//! values of the van der Pauw and Hall-effect literature, and against every refusal and flag.
+//!
+//! The hand-built readings come from two small explicit sample models below: a table of the
+//! transfer resistances V_kl / I_ij of a van der Pauw sample in the NIST contact notation,
+//! and the contact potentials of a Hall bar. Each lead also carries a thermoelectric EMF of
+//! its own, so a voltage is R I + EMF(v_pos) - EMF(v_neg), as a voltmeter sees it. The
+//! property test at the end uses the shared forward model of mobilis-core instead.
+
+use std::f64::consts::{LN_2, PI};
+
+use mobilis_core::constants::ELEMENTARY_CHARGE_C;
+use mobilis_core::contacts::ContactError;
+
+use super::*;
+
+fn close(actual: f64, expected: f64, relative: f64) -> bool {
+    (actual - expected).abs() <= relative * expected.abs()
+}
+
+#[track_caller]
+fn assert_close(actual: Option<f64>, expected: f64, relative: f64, what: &str) {
+    let actual = actual.unwrap_or_else(|| panic!("{what} is null, expected {expected}"));
+    assert!(
+        close(actual, expected, relative),
+        "{what}: {actual} vs {expected} (relative {})",
+        (actual / expected - 1.0).abs()
+    );
+}
+
+/// A van der Pauw sample as a table of transfer resistances V_kl / I_ij (NIST notation
+/// R_ij,kl: current in at i, out at j, voltage V_k - V_l).
+#[derive(Debug, Clone)]
+struct VanDerPauwModel {
+    /// R_21,34 and R_43,12.
+    resistance_a_ohm: [f64; 2],
+    /// R_32,41 and R_14,23.
+    resistance_b_ohm: [f64; 2],
+    /// R_Hs: V_24 / I_13 = R_Hs B (positive for holes, NIST sign convention).
+    sheet_hall_coefficient_m2_per_c: f64,
+    /// Multiplies the Hall term of the second diagonal (V_31 / I_24); 1 for a uniform sample.
+    second_diagonal_hall_scale: f64,
+    /// Field-even transfer resistance of each diagonal (contact misalignment), ohm.
+    misalignment_ohm: [f64; 2],
+    /// Thermoelectric EMF of the lead of each contact 1..4, V.
+    contact_emf_v: [f64; 4],
+    /// Multiplies every transfer resistance when the current flows against the table's
+    /// direction: 1 for ohmic contacts.
+    reversed_current_scale: f64,
+}
+
+impl VanDerPauwModel {
+    fn symmetric(resistance_ohm: f64, sheet_hall_coefficient_m2_per_c: f64) -> Self {
+        Self::asymmetric(resistance_ohm, resistance_ohm, sheet_hall_coefficient_m2_per_c)
+    }
+
+    fn asymmetric(resistance_a_ohm: f64, resistance_b_ohm: f64, sheet_hall_coefficient_m2_per_c: f64) -> Self {
+        VanDerPauwModel {
+            resistance_a_ohm: [resistance_a_ohm; 2],
+            resistance_b_ohm: [resistance_b_ohm; 2],
+            sheet_hall_coefficient_m2_per_c,
+            second_diagonal_hall_scale: 1.0,
+            misalignment_ohm: [0.0; 2],
+            contact_emf_v: [0.0; 4],
+            reversed_current_scale: 1.0,
+        }
+    }
+
+    /// V_kl / I_ij at field `field_t` for the contacts (i, j, k, l).
+    fn transfer_ohm(&self, contacts: [i64; 4], field_t: f64) -> f64 {
+        let hall = self.sheet_hall_coefficient_m2_per_c * field_t;
+        let table = [
+            ([2, 1, 3, 4], self.resistance_a_ohm[0]),
+            ([4, 3, 1, 2], self.resistance_a_ohm[1]),
+            ([3, 2, 4, 1], self.resistance_b_ohm[0]),
+            ([1, 4, 2, 3], self.resistance_b_ohm[1]),
+            ([1, 3, 2, 4], hall + self.misalignment_ohm[0]),
+            (
+                [2, 4, 3, 1],
+                self.second_diagonal_hall_scale * hall + self.misalignment_ohm[1],
+            ),
+        ];
+        let [i, j, k, l] = contacts;
+        for ([ti, tj, tk, tl], value) in table {
+            let current_orientation = if (i, j) == (ti, tj) {
+                1.0
+            } else if (i, j) == (tj, ti) {
+                -1.0
+            } else {
+                continue;
+            };
+            let voltage_orientation = if (k, l) == (tk, tl) {
+                1.0
+            } else if (k, l) == (tl, tk) {
+                -1.0
+            } else {
+                continue;
+            };
+            return value * current_orientation * voltage_orientation;
+        }
+        panic!("contacts {contacts:?} are not in the model's table")
+    }
+
+    fn reading(
+        &self,
+        sample: &str,
+        temperature_k: f64,
+        field_t: f64,
+        contacts: [i64; 4],
+        current_a: f64,
+    ) -> RawReading {
+        let mut transfer = self.transfer_ohm(contacts, field_t);
+        // Whether this reading drives current along the table's current direction.
+        let along_table = [[2, 1], [4, 3], [3, 2], [1, 4], [1, 3], [2, 4]]
+            .iter()
+            .any(|pair| *pair == [contacts[0], contacts[1]]);
+        let physical_direction = if along_table { current_a } else { -current_a };
+        if physical_direction < 0.0 {
+            transfer *= self.reversed_current_scale;
+        }
+        let emf = self.contact_emf_v[contacts[2] as usize - 1] - self.contact_emf_v[contacts[3] as usize - 1];
+        RawReading {
+            sample: sample.to_owned(),
+            temperature_k,
+            field_t,
+            i_in: contacts[0],
+            i_out: contacts[1],
+            v_pos: contacts[2],
+            v_neg: contacts[3],
+            current_a,
+            voltage_v: transfer * current_a + emf,
+        }
+    }
+}
+
+/// The eight resistance readings of the NIST averaging, current reversed by swapping leads:
+/// R21,34, R12,43, R43,12, R34,21 (R_A) and R32,41, R23,14, R14,23, R41,32 (R_B).
+const NIST_RESISTANCE_CONTACTS: [[i64; 4]; 8] = [
+    [2, 1, 3, 4],
+    [1, 2, 4, 3],
+    [4, 3, 1, 2],
+    [3, 4, 2, 1],
+    [3, 2, 4, 1],
+    [2, 3, 1, 4],
+    [1, 4, 2, 3],
+    [4, 1, 3, 2],
+];
+
+/// The four NIST Hall voltages: V_C = V24 with I13, V_D = V42 with I31, V_E = V13 with I42,
+/// V_F = V31 with I24.
+const NIST_HALL_CONTACTS: [[i64; 4]; 4] = [[1, 3, 2, 4], [3, 1, 4, 2], [4, 2, 1, 3], [2, 4, 3, 1]];
+
+/// A full NIST measurement: the eight resistance readings at zero field and the four Hall
+/// readings at +B and at -B, all with a positive source current.
+fn nist_readings(
+    model: &VanDerPauwModel,
+    sample: &str,
+    temperature_k: f64,
+    field_t: f64,
+    current_a: f64,
+) -> Vec<RawReading> {
+    let mut readings = Vec::new();
+    for contacts in NIST_RESISTANCE_CONTACTS {
+        readings.push(model.reading(sample, temperature_k, 0.0, contacts, current_a));
+    }
+    for field in [field_t, -field_t] {
+        for contacts in NIST_HALL_CONTACTS {
+            readings.push(model.reading(sample, temperature_k, field, contacts, current_a));
+        }
+    }
+    readings
+}
+
+/// The same measurement with the current reversed by the source sign: the first contacts of
+/// each NIST pair at +I and at -I.
+fn source_reversed_readings(
+    model: &VanDerPauwModel,
+    sample: &str,
+    temperature_k: f64,
+    field_t: f64,
+    current_a: f64,
+) -> Vec<RawReading> {
+    let mut readings = Vec::new();
+    for contacts in NIST_RESISTANCE_CONTACTS.iter().step_by(2) {
+        for current in [current_a, -current_a] {
+            readings.push(model.reading(sample, temperature_k, 0.0, *contacts, current));
+        }
+    }
+    for field in [field_t, -field_t] {
+        for contacts in NIST_HALL_CONTACTS.iter().step_by(2) {
+            for current in [current_a, -current_a] {
+                readings.push(model.reading(sample, temperature_k, field, *contacts, current));
+            }
+        }
+    }
+    readings
+}
+
+/// A Hall bar (contacts as in `mobilis_core::contacts`): current 1 -> 2 along +x, 3 and 4 on
+/// the +y edge, 5 and 6 on the -y edge. Holes at +B are pushed to -y, so V5 - V3 = R_xy I > 0.
+#[derive(Debug, Clone)]
+struct HallBarModel {
+    longitudinal_ohm: f64,
+    sheet_hall_coefficient_m2_per_c: f64,
+    /// The -y contacts sit this far downstream (as a resistance): field-even transverse part.
+    misalignment_ohm: f64,
+    contact_emf_v: [f64; 6],
+}
+
+impl HallBarModel {
+    /// Potential of a voltage contact for current `current_a` entering at 1, relative to the
+    /// bar's centre line.
+    fn potential_v(&self, contact: i64, field_t: f64, current_a: f64) -> f64 {
+        let half_drop = 0.5 * self.longitudinal_ohm * current_a;
+        let hall = self.sheet_hall_coefficient_m2_per_c * field_t * current_a;
+        let misalignment = self.misalignment_ohm * current_a;
+        match contact {
+            3 => half_drop,
+            4 => -half_drop,
+            5 => half_drop + hall + misalignment,
+            6 => -half_drop + hall + misalignment,
+            _ => panic!("contact {contact} is not a voltage contact of the bar"),
+        }
+    }
+
+    fn reading(&self, sample: &str, temperature_k: f64, field_t: f64, voltage: [i64; 2], current_a: f64) -> RawReading {
+        let [pos, neg] = voltage;
+        let emf = self.contact_emf_v[pos as usize - 1] - self.contact_emf_v[neg as usize - 1];
+        RawReading {
+            sample: sample.to_owned(),
+            temperature_k,
+            field_t,
+            i_in: 1,
+            i_out: 2,
+            v_pos: pos,
+            v_neg: neg,
+            current_a,
+            voltage_v: self.potential_v(pos, field_t, current_a) - self.potential_v(neg, field_t, current_a) + emf,
+        }
+    }
+
+    fn readings(&self, sample: &str, temperature_k: f64, field_t: f64, current_a: f64) -> Vec<RawReading> {
+        let mut readings = Vec::new();
+        for current in [current_a, -current_a] {
+            for pair in [[3, 4], [5, 6]] {
+                readings.push(self.reading(sample, temperature_k, 0.0, pair, current));
+            }
+            for field in [field_t, -field_t] {
+                for pair in [[5, 3], [6, 4]] {
+                    readings.push(self.reading(sample, temperature_k, field, pair, current));
+                }
+            }
+        }
+        readings
+    }
+}
+
+fn reduce_default(readings: &[RawReading]) -> Reduction {
+    reduce(readings, None, &ReduceSettings::default()).expect("valid readings reduce")
+}
+
+fn single_row(reduction: &Reduction) -> &ReducedRow {
+    assert_eq!(reduction.rows.len(), 1, "rows: {:#?}", reduction.rows);
+    &reduction.rows[0]
+}
+
+// ---------------------------------------------------------------- sign convention and check values
+
+// NIST Hall-effect pages (from memory): V_C = V24P - V24N, V_D = V42P - V42N, V_E = V13P -
+// V13N, V_F = V31P - V31N; a positive sum means p-type, and n_s = 8 I B / (e |sum|).
+#[test]
+fn nist_sign_convention_gives_p_for_a_positive_hall_sum_and_n_for_a_negative_one() {
+    let current_a = 1e-4;
+    let field_t = 0.5;
+    for (sheet_hall_coefficient, expected_type) in [(250.0, "p"), (-250.0, "n")] {
+        let model = VanDerPauwModel::symmetric(100.0, sheet_hall_coefficient);
+        let readings = nist_readings(&model, "s", 300.0, field_t, current_a);
+        // The NIST sum, straight from the raw readings.
+        let voltage = |contacts: [i64; 4], field: f64| {
+            readings
+                .iter()
+                .find(|r| [r.i_in, r.i_out, r.v_pos, r.v_neg] == contacts && r.field_t == field)
+                .expect("reading present")
+                .voltage_v
+        };
+        let nist_sum: f64 = NIST_HALL_CONTACTS
+            .iter()
+            .map(|contacts| voltage(*contacts, field_t) - voltage(*contacts, -field_t))
+            .sum();
+        assert_eq!(
+            nist_sum > 0.0,
+            expected_type == "p",
+            "hand-built data follow the NIST convention"
+        );
+
+        let reduction = reduce_default(&readings);
+        let row = single_row(&reduction);
+        assert_eq!(row.carrier_type, Some(expected_type));
+        let nist_density = 8.0 * current_a * field_t / (ELEMENTARY_CHARGE_C * nist_sum.abs());
+        assert_close(
+            row.sheet_density_m2,
+            nist_density,
+            1e-12,
+            "n_s against NIST's 8 I B / (e |sum|)",
+        );
+        assert!(row.quality_ok, "flags: {:?}", row.flags);
+    }
+}
+
+// Check values (computed from n_s = I B / (e V_H) and mu_H = 1 / (e n_s R_s), CODATA 2018 e):
+// I = 1 mA, B = 0.5 T, n_s = 1e12 cm^-2 gives V_H = 0.312075 V; with R_s = 1000 ohm/sq,
+// mu_H = 6241.51 cm^2/Vs.
+#[test]
+fn hall_voltage_check_value_recovers_density_and_mobility() {
+    let current_a = 1e-3;
+    let field_t = 0.5;
+    let sheet_density_m2 = 1e12 * 1e4;
+    let hall_voltage_v = current_a * field_t / (ELEMENTARY_CHARGE_C * sheet_density_m2);
+    assert!((hall_voltage_v - 0.312_075).abs() <= 5e-7, "V_H = {hall_voltage_v}");
+    // n-type: the Hall voltage in canonical orientation is negative.
+    let sheet_hall_coefficient = -hall_voltage_v / (current_a * field_t);
+    let resistance = 1000.0 * LN_2 / PI;
+    let model = VanDerPauwModel::symmetric(resistance, sheet_hall_coefficient);
+    let row_set = reduce_default(&nist_readings(&model, "2deg", 4.2, field_t, current_a));
+    let row = single_row(&row_set);
+    assert_close(row.hall_resistance_ohm, -hall_voltage_v / current_a, 1e-12, "R_xy");
+    assert_close(row.sheet_density_m2, sheet_density_m2, 1e-12, "n_s");
+    assert_eq!(row.carrier_type, Some("n"));
+    assert_close(row.sheet_resistance_ohm_sq, 1000.0, 1e-12, "R_s");
+    let mobility_cm2_per_vs = row.hall_mobility_m2_per_vs.unwrap() * 1e4;
+    assert!(
+        (mobility_cm2_per_vs - 6241.51).abs() <= 0.005,
+        "mu_H = {mobility_cm2_per_vs} cm^2/Vs"
+    );
+    // A 2D sheet has no volume quantities.
+    assert_eq!(row.density_m3, None);
+    assert_eq!(row.resistivity_ohm_m, None);
+    assert_eq!(row.hall_coefficient_m3_per_c, None);
+}
+
+// Symmetric sample: R_s = pi R / ln 2 (van der Pauw, Philips Res. Rep. 13, 1958).
+#[test]
+fn symmetric_van_der_pauw_gives_pi_r_over_ln2() {
+    for resistance in [0.01, 3.7, 1234.5] {
+        let model = VanDerPauwModel::symmetric(resistance, 10.0);
+        let reduction = reduce_default(&nist_readings(&model, "s", 300.0, 1.0, 1e-3));
+        let row = single_row(&reduction);
+        assert_close(row.sheet_resistance_ohm_sq, PI * resistance / LN_2, 1e-13, "R_s");
+        assert_close(row.geometry_factor, 1.0, 1e-13, "f");
+        assert_close(row.resistance_ratio, 1.0, 1e-13, "ratio");
+        assert_eq!(row.reciprocity_mismatch, Some(0.0));
+    }
+}
+
+// R_s of asymmetric samples from the exact relation exp(-pi R_A/R_s) + exp(-pi R_B/R_s) = 1,
+// values computed from that relation (van der Pauw, Philips Res. Rep. 13, 1958), and f(Q=2) =
+// 0.960280 computed from cosh[((Q-1)/(Q+1)) ln2 / f] = exp(ln2 / f) / 2 (same source).
+#[test]
+fn asymmetric_van_der_pauw_uses_the_exact_equation() {
+    let cases = [
+        ((1.0, 2.0), 6.528_503),
+        ((10.0, 1.0), 17.431_126),
+        ((1.0, 10.0), 17.431_126),
+        ((100.0, 200.0), 652.850_3),
+    ];
+    for ((resistance_a, resistance_b), expected) in cases {
+        let model = VanDerPauwModel::asymmetric(resistance_a, resistance_b, 10.0);
+        let reduction = reduce_default(&nist_readings(&model, "s", 300.0, 1.0, 1e-3));
+        let row = single_row(&reduction);
+        assert_close(row.sheet_resistance_ohm_sq, expected, 1e-6, "R_s");
+        assert_close(row.resistance_a_ohm, resistance_a, 1e-13, "R_A");
+        assert_close(row.resistance_b_ohm, resistance_b, 1e-13, "R_B");
+    }
+    let model = VanDerPauwModel::asymmetric(2.0, 1.0, 10.0);
+    let reduction = reduce_default(&nist_readings(&model, "s", 300.0, 1.0, 1e-3));
+    let row = single_row(&reduction);
+    assert!((row.geometry_factor.unwrap() - 0.960_280).abs() < 1.5e-6);
+    assert_close(row.resistance_ratio, 2.0, 1e-13, "ratio");
+}
+
+// Hall bar: rho = (V_xx / I)(w t / L) (standard texts, from memory), R_H = V_H t / (I B),
+// n = 1/(e |R_H|), mu_H = |R_H| / rho (standard texts). Check value computed from
+// V_H = I B / (e n t): n = 1e17 cm^-3, t = 1 um, I = 1 mA, B = 1 T gives V_H = 62.4151 mV.
+#[test]
+fn hall_bar_check_values() {
+    let (current_a, field_t, thickness_m) = (1e-3, 1.0, 1e-6);
+    let density_m3 = 1e17 * 1e6;
+    let hall_voltage_v = current_a * field_t / (ELEMENTARY_CHARGE_C * density_m3 * thickness_m);
+    assert!((hall_voltage_v - 62.4151e-3).abs() <= 0.5e-7, "V_H = {hall_voltage_v}");
+    let (length_m, width_m) = (600e-6, 200e-6);
+    let longitudinal_voltage_v = 0.0421;
+    let model = HallBarModel {
+        longitudinal_ohm: longitudinal_voltage_v / current_a,
+        sheet_hall_coefficient_m2_per_c: -hall_voltage_v / (current_a * field_t),
+        misalignment_ohm: 0.0,
+        contact_emf_v: [0.0; 6],
+    };
+    let sheet = SampleInfo {
+        name: "bar".into(),
+        thickness_m: Some(thickness_m),
+        thickness_unc_m: None,
+        hall_factor: 1.0,
+        geometry: Geometry::HallBar { length_m, width_m },
+    };
+    let readings = model.readings("bar", 77.0, field_t, current_a);
+    let reduction = reduce(&readings, Some(&[sheet]), &ReduceSettings::default()).unwrap();
+    let row = single_row(&reduction);
+    let resistivity = longitudinal_voltage_v / current_a * width_m * thickness_m / length_m;
+    let hall_coefficient = -hall_voltage_v * thickness_m / (current_a * field_t);
+    assert_eq!(row.geometry, "hall_bar");
+    assert_close(row.resistivity_ohm_m, resistivity, 1e-12, "rho");
+    assert_close(row.hall_coefficient_m3_per_c, hall_coefficient, 1e-12, "R_H");
+    assert_close(row.density_m3, density_m3, 1e-12, "n");
+    assert_close(
+        row.hall_mobility_m2_per_vs,
+        hall_coefficient.abs() / resistivity,
+        1e-12,
+        "mu_H",
+    );
+    assert_eq!(row.carrier_type, Some("n"));
+    assert_eq!(row.geometry_factor, None);
+    assert_eq!(row.resistance_b_ohm, None);
+    assert_eq!(row.reciprocity_mismatch, None);
+    assert!(row.quality_ok, "flags: {:?}", row.flags);
+}
+
+// Hall factor r_H = 3 pi / 8 for acoustic-phonon scattering (Putley, The Hall Effect and
+// Related Phenomena, 1960): n = r_H / (e |R_H|) scales with r_H, mu_H = |R_H| / rho does not,
+// and the drift mobility is mu_H / r_H.
+#[test]
+fn hall_factor_scales_density_not_hall_mobility() {
+    let hall_factor = 3.0 * PI / 8.0;
+    assert!((hall_factor - 1.178_097_2).abs() < 1e-7);
+    let model = VanDerPauwModel::symmetric(50.0, -80.0);
+    let readings = nist_readings(&model, "si", 300.0, 0.8, 1e-3);
+    let sheet = |hall_factor: f64| SampleInfo {
+        name: "si".into(),
+        thickness_m: Some(500e-6),
+        thickness_unc_m: None,
+        hall_factor,
+        geometry: Geometry::VanDerPauw,
+    };
+    let settings = ReduceSettings::default();
+    let plain = reduce(&readings, Some(&[sheet(1.0)]), &settings).unwrap();
+    let scaled = reduce(&readings, Some(&[sheet(hall_factor)]), &settings).unwrap();
+    let (plain, scaled) = (single_row(&plain), single_row(&scaled));
+    assert_close(scaled.density_m3, plain.density_m3.unwrap() * hall_factor, 1e-14, "n");
+    assert_close(
+        scaled.sheet_density_m2,
+        plain.sheet_density_m2.unwrap() * hall_factor,
+        1e-14,
+        "n_s",
+    );
+    assert_eq!(scaled.hall_mobility_m2_per_vs, plain.hall_mobility_m2_per_vs);
+    assert_close(
+        scaled.drift_mobility_m2_per_vs,
+        plain.hall_mobility_m2_per_vs.unwrap() / hall_factor,
+        1e-14,
+        "drift mobility",
+    );
+    assert_eq!(scaled.hall_factor, hall_factor);
+}
+
+// ---------------------------------------------------------------- offsets and current reversal
+
+fn with_offsets(model: &VanDerPauwModel, emf_v: [f64; 4], misalignment_ohm: [f64; 2]) -> VanDerPauwModel {
+    VanDerPauwModel {
+        contact_emf_v: emf_v,
+        misalignment_ohm,
+        ..model.clone()
+    }
+}
+
+fn assert_same_physics(with: &ReducedRow, without: &ReducedRow, relative: f64) {
+    let pairs = [
+        ("R_A", with.resistance_a_ohm, without.resistance_a_ohm),
+        ("R_B", with.resistance_b_ohm, without.resistance_b_ohm),
+        ("R_s", with.sheet_resistance_ohm_sq, without.sheet_resistance_ohm_sq),
+        ("R_xy", with.hall_resistance_ohm, without.hall_resistance_ohm),
+        ("n_s", with.sheet_density_m2, without.sheet_density_m2),
+        ("mu_H", with.hall_mobility_m2_per_vs, without.hall_mobility_m2_per_vs),
+    ];
+    for (what, a, b) in pairs {
+        assert_close(a, b.expect("reference present"), relative, what);
+    }
+    assert_eq!(with.carrier_type, without.carrier_type);
+}
+
+#[test]
+fn thermoelectric_offsets_and_misalignment_cancel() {
+    let current_a = 1e-3;
+    let model = VanDerPauwModel::asymmetric(120.0, 180.0, 300.0);
+    let exact = reduce_default(&nist_readings(&model, "s", 300.0, 0.5, current_a));
+    // Offsets of the order of the resistive voltage (0.1 V) and a misalignment five times the
+    // Hall resistance at 0.5 T (150 ohm).
+    let noisy_model = with_offsets(&model, [0.03, -0.05, 0.02, 0.045], [700.0, -650.0]);
+    let offset = reduce_default(&nist_readings(&noisy_model, "s", 300.0, 0.5, current_a));
+    let (exact_row, offset_row) = (single_row(&exact), single_row(&offset));
+    assert_same_physics(offset_row, exact_row, 1e-9);
+    // The offsets are there and are measured: the largest is |EMF_1 - EMF_2| or similar
+    // against R I = 0.12 V.
+    let offset_ratio = offset_row.thermoelectric_offset_ratio.unwrap();
+    assert!(offset_ratio > 0.2, "offset ratio {offset_ratio}");
+    assert_close(offset_row.misalignment_ratio, 700.0 / 150.0, 1e-9, "misalignment ratio");
+    assert!(
+        offset_row.flags.contains(&flags::LARGE_OFFSET),
+        "flags {:?}",
+        offset_row.flags
+    );
+    assert!(!exact_row.flags.contains(&flags::LARGE_OFFSET));
+    assert!(exact_row.thermoelectric_offset_ratio.unwrap() < 1e-12);
+}
+
+#[test]
+fn large_offset_follows_its_thresholds() {
+    let model = VanDerPauwModel::symmetric(100.0, 200.0);
+    // Small EMFs (offset ratio about 1e-3) and a misalignment 12 times the Hall resistance
+    // at 0.5 T (100 ohm).
+    let offset_model = with_offsets(&model, [1e-4, 0.0, -1e-4, 0.0], [1200.0, 1200.0]);
+    let readings = nist_readings(&offset_model, "s", 300.0, 0.5, 1e-3);
+    let row = reduce_default(&readings).rows.remove(0);
+    assert_close(row.misalignment_ratio, 12.0, 1e-9, "misalignment ratio");
+    assert!(row.thermoelectric_offset_ratio.unwrap() < 0.01);
+    assert!(row.flags.contains(&flags::LARGE_OFFSET));
+    let mut lenient = ReduceSettings::default();
+    lenient.thresholds.misalignment_ratio = 15.0;
+    let row = reduce(&readings, None, &lenient).unwrap().rows.remove(0);
+    assert!(!row.flags.contains(&flags::LARGE_OFFSET), "flags {:?}", row.flags);
+}
+
+#[test]
+fn current_reversal_by_source_sign_or_by_swapped_leads_is_the_same_measurement() {
+    let model = with_offsets(
+        &VanDerPauwModel::asymmetric(75.0, 90.0, -42.0),
+        [2e-3, -1e-3, 0.5e-3, 1.5e-3],
+        [30.0, -12.0],
+    );
+    let by_leads = reduce_default(&nist_readings(&model, "s", 300.0, 0.5, 1e-3));
+    let by_source = reduce_default(&source_reversed_readings(&model, "s", 300.0, 0.5, 1e-3));
+    let (leads, source) = (single_row(&by_leads), single_row(&by_source));
+    assert_same_physics(source, leads, 1e-12);
+    assert_close(
+        source.misalignment_ratio,
+        leads.misalignment_ratio.unwrap(),
+        1e-12,
+        "misalignment",
+    );
+    assert_close(
+        source.thermoelectric_offset_ratio,
+        leads.thermoelectric_offset_ratio.unwrap(),
+        1e-12,
+        "offset ratio",
+    );
+    assert_eq!(source.flags, leads.flags);
+}
+
+#[test]
+fn non_ohmic_contacts_raise_current_reversal() {
+    let mut model = VanDerPauwModel::symmetric(100.0, 50.0);
+    model.reversed_current_scale = 1.05;
+    let row = reduce_default(&source_reversed_readings(&model, "s", 300.0, 0.5, 1e-3))
+        .rows
+        .remove(0);
+    // V/I at +I is R, at -I 1.05 R: mismatch 0.05 / 1.025.
+    assert_close(row.current_reversal_mismatch, 0.05 / 1.025, 1e-12, "mismatch");
+    assert!(row.flags.contains(&flags::CURRENT_REVERSAL), "flags {:?}", row.flags);
+    model.reversed_current_scale = 1.01;
+    let row = reduce_default(&source_reversed_readings(&model, "s", 300.0, 0.5, 1e-3))
+        .rows
+        .remove(0);
+    assert!(!row.flags.contains(&flags::CURRENT_REVERSAL), "flags {:?}", row.flags);
+}
+
+#[test]
+fn fit_removes_the_offset_of_a_current_sweep() {
+    // One polarity, several currents: the line fit still separates the offset, but the
+    // current was never reversed.
+    let model = with_offsets(
+        &VanDerPauwModel::symmetric(10.0, 5.0),
+        [0.0, 0.0, 0.02, -0.01],
+        [0.0; 2],
+    );
+    let mut readings = Vec::new();
+    for current in [1e-3, 2e-3, 3e-3, 4e-3] {
+        for contacts in NIST_RESISTANCE_CONTACTS.iter().step_by(2) {
+            readings.push(model.reading("s", 300.0, 0.0, *contacts, current));
+        }
+    }
+    let row = reduce_default(&readings).rows.remove(0);
+    assert_close(row.sheet_resistance_ohm_sq, PI * 10.0 / LN_2, 1e-12, "R_s");
+    assert!(row.flags.contains(&flags::NO_CURRENT_REVERSAL));
+    assert!(row.flags.contains(&flags::NO_FIELD_DATA));
+    // Four readings on an exact line: the residuals are rounding errors.
+    assert!(row.sheet_resistance_ohm_sq_unc.unwrap() < 1e-12 * row.sheet_resistance_ohm_sq.unwrap());
+}
+
+// ---------------------------------------------------------------- uncertainties
+
+// First-order propagation through the exact van der Pauw gradient: for R_A = R_B the two
+// partial derivatives are equal and sum to R_s / R (Euler's theorem for the degree-one
+// homogeneous R_s), so u(R_s) = (R_s / 2R) sqrt(u_A^2 + u_B^2).
+#[test]
+fn redundant_configurations_give_the_resistance_uncertainty() {
+    let resistance = 100.0;
+    let (spread_a, spread_b) = (0.01, 0.02);
+    let mut model = VanDerPauwModel::symmetric(resistance, 100.0);
+    model.resistance_a_ohm = [resistance * (1.0 + spread_a), resistance * (1.0 - spread_a)];
+    model.resistance_b_ohm = [resistance * (1.0 + spread_b), resistance * (1.0 - spread_b)];
+    let row = reduce_default(&nist_readings(&model, "s", 300.0, 1.0, 1e-3))
+        .rows
+        .remove(0);
+    // Two values a (1 +- d): standard error of their mean a d; each two-point fit has no
+    // residual degree of freedom and adds nothing.
+    let (u_a, u_b) = (resistance * spread_a, resistance * spread_b);
+    let sheet = PI * resistance / LN_2;
+    assert_close(row.sheet_resistance_ohm_sq, sheet, 1e-12, "R_s");
+    assert_close(
+        row.sheet_resistance_ohm_sq_unc,
+        sheet / (2.0 * resistance) * (u_a * u_a + u_b * u_b).sqrt(),
+        1e-9,
+        "u(R_s)",
+    );
+    assert_close(row.reciprocity_mismatch, 2.0 * spread_b, 1e-12, "reciprocity mismatch");
+    // Mobility uncertainty: relative u(R_s) (the Hall part is exact here).
+    let relative = row.sheet_resistance_ohm_sq_unc.unwrap() / sheet;
+    assert_close(
+        row.hall_mobility_m2_per_vs_unc,
+        relative * row.hall_mobility_m2_per_vs.unwrap(),
+        1e-9,
+        "u(mu_H)",
+    );
+    assert!(row.hall_resistance_ohm_unc.unwrap() < 1e-12 * row.hall_resistance_ohm.unwrap());
+}
+
+#[test]
+fn thickness_uncertainty_enters_volume_quantities_only() {
+    let model = VanDerPauwModel::symmetric(100.0, -300.0);
+    let readings = nist_readings(&model, "film", 300.0, 0.5, 1e-3);
+    let sheet = SampleInfo {
+        name: "film".into(),
+        thickness_m: Some(2e-6),
+        thickness_unc_m: Some(0.1e-6),
+        hall_factor: 1.0,
+        geometry: Geometry::VanDerPauw,
+    };
+    let row = reduce(&readings, Some(&[sheet]), &ReduceSettings::default())
+        .unwrap()
+        .rows
+        .remove(0);
+    // Exact readings: the sheet quantities have only rounding scatter.
+    assert!(row.sheet_density_m2_unc.unwrap() < 1e-12 * row.sheet_density_m2.unwrap());
+    assert!(row.hall_mobility_m2_per_vs_unc.unwrap() < 1e-12 * row.hall_mobility_m2_per_vs.unwrap());
+    assert_close(row.density_m3_unc, 0.05 * row.density_m3.unwrap(), 1e-12, "u(n)");
+    assert_close(
+        row.resistivity_ohm_m_unc,
+        0.05 * row.resistivity_ohm_m.unwrap(),
+        1e-12,
+        "u(rho)",
+    );
+    assert_close(
+        row.hall_coefficient_m3_per_c_unc,
+        0.05 * row.hall_coefficient_m3_per_c.unwrap().abs(),
+        1e-12,
+        "u(R_H)",
+    );
+}
+
+// ---------------------------------------------------------------- grouping
+
+#[test]
+fn temperatures_within_tolerance_share_a_row() {
+    let model = VanDerPauwModel::symmetric(100.0, 50.0);
+    let mut readings = Vec::new();
+    // A drift 300.0 -> 300.2 -> 300.4 chains into one group; 310 is another.
+    for temperature in [300.0, 300.2, 300.4] {
+        readings.extend(nist_readings(&model, "s", temperature, 0.5, 1e-3));
+    }
+    readings.extend(nist_readings(&model, "s", 310.0, 0.5, 1e-3));
+    let reduction = reduce_default(&readings);
+    assert_eq!(reduction.rows.len(), 2);
+    assert_close(Some(reduction.rows[0].temperature_k), 300.2, 1e-12, "mean T");
+    assert_close(Some(reduction.rows[0].temperature_spread_k), 0.4, 1e-9, "spread");
+    assert_eq!(reduction.rows[0].reading_count, 48);
+    assert_eq!(reduction.rows[1].temperature_k, 310.0);
+    let mut strict = ReduceSettings::default();
+    strict.temperature_tolerance_k = 0.1;
+    assert_eq!(reduce(&readings, None, &strict).unwrap().rows.len(), 4);
+}
+
+#[test]
+fn rows_sorted_by_sample_temperature_and_field() {
+    let model = VanDerPauwModel::symmetric(100.0, 50.0);
+    let mut readings = Vec::new();
+    for (sample, temperature) in [("zeta", 77.0), ("alpha", 300.0), ("alpha", 77.0)] {
+        readings.extend(nist_readings(&model, sample, temperature, 1.0, 1e-3));
+        // A second field magnitude shares the zero-field readings of the group.
+        for field in [0.25, -0.25] {
+            for contacts in NIST_HALL_CONTACTS {
+                readings.push(model.reading(sample, temperature, field, contacts, 1e-3));
+            }
+        }
+    }
+    let rows = reduce_default(&readings).rows;
+    let keys: Vec<(&str, f64, Option<f64>)> = rows
+        .iter()
+        .map(|row| (row.sample.as_str(), row.temperature_k, row.field_t))
+        .collect();
+    assert_eq!(
+        keys,
+        vec![
+            ("alpha", 77.0, Some(0.25)),
+            ("alpha", 77.0, Some(1.0)),
+            ("alpha", 300.0, Some(0.25)),
+            ("alpha", 300.0, Some(1.0)),
+            ("zeta", 77.0, Some(0.25)),
+            ("zeta", 77.0, Some(1.0)),
+        ]
+    );
+    for row in &rows {
+        assert_close(row.sheet_hall_coefficient_m2_per_c, 50.0, 1e-12, "R_Hs");
+        assert_eq!(row.reading_count, 16);
+    }
+}
+
+#[test]
+fn slightly_unequal_field_magnitudes_are_averaged() {
+    // +0.502 T and -0.498 T: the odd part is R_Hs (0.502 + 0.498) / 2.
+    let model = VanDerPauwModel::symmetric(100.0, 80.0);
+    let mut readings: Vec<RawReading> = NIST_RESISTANCE_CONTACTS
+        .iter()
+        .map(|contacts| model.reading("s", 300.0, 0.0, *contacts, 1e-3))
+        .collect();
+    for field in [0.502, -0.498] {
+        for contacts in NIST_HALL_CONTACTS {
+            readings.push(model.reading("s", 300.0, field, contacts, 1e-3));
+        }
+    }
+    let row = reduce_default(&readings).rows.remove(0);
+    assert_close(row.field_t, 0.5, 1e-12, "field");
+    assert_close(row.sheet_hall_coefficient_m2_per_c, 80.0, 1e-12, "R_Hs");
+}
+
+// ---------------------------------------------------------------- flags
+
+#[test]
+fn no_field_reversal_nulls_the_hall_quantities() {
+    let model = VanDerPauwModel::symmetric(100.0, 50.0);
+    let readings: Vec<RawReading> = nist_readings(&model, "s", 300.0, 0.5, 1e-3)
+        .into_iter()
+        .filter(|reading| reading.field_t >= 0.0)
+        .collect();
+    let row = reduce_default(&readings).rows.remove(0);
+    assert!(row.flags.contains(&flags::NO_FIELD_REVERSAL), "flags {:?}", row.flags);
+    assert!(!row.quality_ok);
+    assert_eq!(row.field_t, Some(0.5));
+    assert_eq!(row.hall_resistance_ohm, None);
+    assert_eq!(row.sheet_density_m2, None);
+    assert_eq!(row.carrier_type, None);
+    assert_eq!(row.hall_mobility_m2_per_vs, None);
+    // The resistance part is unaffected.
+    assert_close(row.sheet_resistance_ohm_sq, PI * 100.0 / LN_2, 1e-12, "R_s");
+}
+
+#[test]
+fn zero_field_only_gives_a_row_without_hall_quantities() {
+    let model = VanDerPauwModel::symmetric(100.0, 50.0);
+    let readings: Vec<RawReading> = nist_readings(&model, "s", 300.0, 0.5, 1e-3)
+        .into_iter()
+        .filter(|reading| reading.field_t == 0.0)
+        .collect();
+    let row = reduce_default(&readings).rows.remove(0);
+    assert_eq!(row.flags, vec![flags::NO_FIELD_DATA]);
+    assert_eq!(row.field_t, None);
+    assert_eq!(row.sheet_hall_coefficient_m2_per_c, None);
+    assert_close(row.sheet_resistance_ohm_sq, PI * 100.0 / LN_2, 1e-12, "R_s");
+}
+
+#[test]
+fn resistance_from_field_readings_when_there_is_no_zero_field() {
+    // Resistance configurations measured only at +-B (no magnetoresistance in this model).
+    let model = VanDerPauwModel::asymmetric(100.0, 150.0, 50.0);
+    let mut readings = Vec::new();
+    for field in [0.5, -0.5] {
+        for contacts in NIST_RESISTANCE_CONTACTS.iter().chain(NIST_HALL_CONTACTS.iter()) {
+            readings.push(model.reading("s", 300.0, field, *contacts, 1e-3));
+        }
+    }
+    let reduction = reduce_default(&readings);
+    let row = single_row(&reduction);
+    assert!(row.flags.contains(&flags::RESISTANCE_FROM_FIELD_READINGS));
+    assert_close(
+        row.sheet_resistance_ohm_sq,
+        mobilis_core::van_der_pauw::sheet_resistance(100.0, 150.0).unwrap(),
+        1e-12,
+        "R_s",
+    );
+    assert_close(row.sheet_hall_coefficient_m2_per_c, 50.0, 1e-12, "R_Hs");
+    assert!(
+        reduction.warnings.iter().any(|w| w.contains("field-even")),
+        "{:?}",
+        reduction.warnings
+    );
+}
+
+#[test]
+fn missing_family_assumes_symmetry_and_flags_it() {
+    let model = VanDerPauwModel::symmetric(100.0, 50.0);
+    // Drop every R_B reading (current on the edges 2-3 and 1-4).
+    let readings: Vec<RawReading> = nist_readings(&model, "s", 300.0, 0.5, 1e-3)
+        .into_iter()
+        .filter(|r| !matches!((r.i_in.min(r.i_out), r.i_in.max(r.i_out)), (2, 3) | (1, 4)))
+        .collect();
+    let row = reduce_default(&readings).rows.remove(0);
+    assert!(row.flags.contains(&flags::MISSING_CONFIGURATIONS));
+    assert_eq!(row.resistance_b_ohm, row.resistance_a_ohm);
+    assert_close(row.sheet_resistance_ohm_sq, PI * 100.0 / LN_2, 1e-12, "R_s");
+}
+
+#[test]
+fn missing_hall_diagonal_is_flagged_but_the_other_one_is_used() {
+    let model = VanDerPauwModel::symmetric(100.0, 50.0);
+    let readings: Vec<RawReading> = nist_readings(&model, "s", 300.0, 0.5, 1e-3)
+        .into_iter()
+        .filter(|r| !(r.field_t != 0.0 && (r.i_in == 2 || r.i_in == 4)))
+        .collect();
+    let row = reduce_default(&readings).rows.remove(0);
+    assert_eq!(row.flags, vec![flags::MISSING_CONFIGURATIONS]);
+    assert_close(row.sheet_hall_coefficient_m2_per_c, 50.0, 1e-12, "R_Hs");
+}
+
+#[test]
+fn opposite_signs_on_the_diagonals_are_inconsistent() {
+    let mut model = VanDerPauwModel::symmetric(100.0, 50.0);
+    model.second_diagonal_hall_scale = -1.0;
+    let row = reduce_default(&nist_readings(&model, "s", 300.0, 0.5, 1e-3))
+        .rows
+        .remove(0);
+    assert!(row.flags.contains(&flags::HALL_INCONSISTENT), "flags {:?}", row.flags);
+    // A 20 % difference between the diagonals: spread (1.2 - 1) / 1.1 above 0.10.
+    model.second_diagonal_hall_scale = 1.2;
+    let row = reduce_default(&nist_readings(&model, "s", 300.0, 0.5, 1e-3))
+        .rows
+        .remove(0);
+    assert_close(row.hall_spread, 0.2 / 1.1, 1e-12, "spread");
+    assert!(row.flags.contains(&flags::HALL_INCONSISTENT));
+    model.second_diagonal_hall_scale = 1.05;
+    let row = reduce_default(&nist_readings(&model, "s", 300.0, 0.5, 1e-3))
+        .rows
+        .remove(0);
+    assert!(row.quality_ok, "flags {:?}", row.flags);
+}
+
+#[test]
+fn reciprocity_and_resistance_ratio_flags() {
+    let mut model = VanDerPauwModel::symmetric(100.0, 50.0);
+    model.resistance_a_ohm = [100.0, 110.0];
+    let row = reduce_default(&nist_readings(&model, "s", 300.0, 0.5, 1e-3))
+        .rows
+        .remove(0);
+    assert_close(row.reciprocity_mismatch, 10.0 / 105.0, 1e-12, "mismatch");
+    assert_eq!(row.flags, vec![flags::RECIPROCITY]);
+    let model = VanDerPauwModel::asymmetric(100.0, 250.0, 50.0);
+    let row = reduce_default(&nist_readings(&model, "s", 300.0, 0.5, 1e-3))
+        .rows
+        .remove(0);
+    assert_eq!(row.flags, vec![flags::RESISTANCE_RATIO]);
+}
+
+#[test]
+fn swapped_voltmeter_leads_give_a_nonpositive_resistance_flag() {
+    let model = VanDerPauwModel::symmetric(100.0, 50.0);
+    let readings: Vec<RawReading> = nist_readings(&model, "s", 300.0, 0.5, 1e-3)
+        .into_iter()
+        .map(|mut reading| {
+            if reading.field_t == 0.0 {
+                reading.voltage_v = -reading.voltage_v;
+            }
+            reading
+        })
+        .collect();
+    let reduction = reduce_default(&readings);
+    let row = single_row(&reduction);
+    assert!(row.flags.contains(&flags::NONPOSITIVE_RESISTANCE));
+    assert_eq!(row.sheet_resistance_ohm_sq, None);
+    assert_eq!(row.hall_mobility_m2_per_vs, None);
+    assert!(row.sheet_density_m2.is_some());
+    assert!(reduction.warnings.iter().any(|w| w.contains("counterclockwise")));
+}
+
+#[test]
+fn flag_names_are_unique_and_described() {
+    for (index, flag) in flags::ALL.iter().enumerate() {
+        assert!(!flags::ALL[..index].contains(flag), "{flag} listed twice");
+        assert_eq!(flags::DESCRIPTIONS[index].0, *flag);
+    }
+}
+
+// ---------------------------------------------------------------- refusals
+
+#[test]
+fn sample_missing_from_the_sheet_is_named() {
+    let model = VanDerPauwModel::symmetric(100.0, 50.0);
+    let mut readings = nist_readings(&model, "wafer-b", 300.0, 0.5, 1e-3);
+    readings.extend(nist_readings(&model, "wafer-a", 300.0, 0.5, 1e-3));
+    readings.extend(nist_readings(&model, "wafer-c", 300.0, 0.5, 1e-3));
+    let sheet = [SampleInfo::van_der_pauw_sheet("wafer-a")];
+    let error = reduce(&readings, Some(&sheet), &ReduceSettings::default()).unwrap_err();
+    assert_eq!(
+        error,
+        ReduceError::SamplesMissingFromSheet {
+            samples: vec!["wafer-b".into(), "wafer-c".into()]
+        }
+    );
+    let message = error.to_string();
+    assert!(
+        message.contains("\"wafer-b\", \"wafer-c\"") && message.contains("add them"),
+        "{message}"
+    );
+}
+
+#[test]
+fn invalid_readings_are_refused_with_row_and_reason() {
+    let model = VanDerPauwModel::symmetric(100.0, 50.0);
+    let good = nist_readings(&model, "s", 300.0, 0.5, 1e-3);
+    let cases: Vec<(Box<dyn Fn(&mut RawReading)>, ReadingProblem)> = vec![
+        (Box::new(|r| r.current_a = 0.0), ReadingProblem::ZeroCurrent),
+        (
+            Box::new(|r| r.voltage_v = f64::NAN),
+            ReadingProblem::NonFiniteVoltage(f64::NAN),
+        ),
+        (
+            Box::new(|r| r.temperature_k = -3.0),
+            ReadingProblem::NonPositiveTemperature(-3.0),
+        ),
+        (
+            Box::new(|r| r.field_t = f64::INFINITY),
+            ReadingProblem::NonFiniteField(f64::INFINITY),
+        ),
+        (
+            Box::new(|r| r.current_a = f64::NAN),
+            ReadingProblem::NonFiniteCurrent(f64::NAN),
+        ),
+        (
+            Box::new(|r| r.temperature_k = f64::NAN),
+            ReadingProblem::NonFiniteTemperature(f64::NAN),
+        ),
+        (
+            Box::new(|r| r.v_neg = 5),
+            ReadingProblem::Contacts {
+                error: ContactError::OutOfRange {
+                    contact: 5,
+                    max: 4,
+                    geometry: "van der Pauw",
+                },
+                geometry: "van_der_pauw",
+            },
+        ),
+    ];
+    for (spoil, expected) in cases {
+        let mut readings = good.clone();
+        spoil(&mut readings[5]);
+        let error = reduce(&readings, None, &ReduceSettings::default()).unwrap_err();
+        let ReduceError::InvalidReading { row, sample, problem } = &error else {
+            panic!("expected an invalid reading, got {error:?}");
+        };
+        assert_eq!((*row, sample.as_str()), (5, "s"));
+        // NaN != NaN: compare the variants through their messages.
+        assert_eq!(problem.to_string(), expected.to_string());
+        let message = error.to_string();
+        assert!(message.starts_with("reading 5 (sample \"s\")"), "{message}");
+        assert!(
+            message.contains("skip_invalid_readings") && !message.ends_with('.'),
+            "{message}"
+        );
+
+        // With skipping, the reading is dropped and counted, and the result is unchanged.
+        let settings = ReduceSettings {
+            skip_invalid_readings: true,
+            ..ReduceSettings::default()
+        };
+        let reduction = reduce(&readings, None, &settings).unwrap();
+        assert_eq!(reduction.skipped_readings, 1);
+        assert!(
+            reduction.warnings[0].starts_with("reading 5"),
+            "{:?}",
+            reduction.warnings
+        );
+        // Reading 5 is R23,14 (an R_B reading); its partner R_32,41 still gives R_B.
+        assert_close(
+            reduction.rows[0].sheet_resistance_ohm_sq,
+            PI * 100.0 / LN_2,
+            1e-12,
+            "R_s after skipping",
+        );
+    }
+}
+
+#[test]
+fn contact_5_on_a_van_der_pauw_sample_suggests_the_hall_bar() {
+    let model = VanDerPauwModel::symmetric(100.0, 50.0);
+    let mut readings = nist_readings(&model, "s", 300.0, 0.5, 1e-3);
+    readings[0].v_pos = 5;
+    let message = reduce(&readings, None, &ReduceSettings::default())
+        .unwrap_err()
+        .to_string();
+    assert!(
+        message.contains("contact number 5") && message.contains("Hall bar"),
+        "{message}"
+    );
+}
+
+#[test]
+fn many_skipped_readings_are_summarized() {
+    let model = VanDerPauwModel::symmetric(100.0, 50.0);
+    let mut readings = nist_readings(&model, "s", 300.0, 0.5, 1e-3);
+    let broken = RawReading {
+        current_a: 0.0,
+        ..readings[0].clone()
+    };
+    readings.extend(std::iter::repeat_n(broken, 50));
+    let settings = ReduceSettings {
+        skip_invalid_readings: true,
+        ..ReduceSettings::default()
+    };
+    let reduction = reduce(&readings, None, &settings).unwrap();
+    assert_eq!(reduction.skipped_readings, 50);
+    assert_eq!(reduction.warnings.len(), DETAILED_SKIP_WARNINGS + 1);
+    assert!(reduction.warnings.last().unwrap().contains("30 further"));
+}
+
+#[test]
+fn empty_or_all_invalid_input_is_refused() {
+    let error = reduce(&[], None, &ReduceSettings::default()).unwrap_err();
+    assert_eq!(error, ReduceError::NoValidReadings { total: 0, skipped: 0 });
+    let model = VanDerPauwModel::symmetric(100.0, 50.0);
+    let mut reading = model.reading("s", 300.0, 0.0, [2, 1, 3, 4], 1e-3);
+    reading.current_a = 0.0;
+    let settings = ReduceSettings {
+        skip_invalid_readings: true,
+        ..ReduceSettings::default()
+    };
+    let error = reduce(&[reading], None, &settings).unwrap_err();
+    assert_eq!(error, ReduceError::NoValidReadings { total: 1, skipped: 1 });
+}
+
+#[test]
+fn bad_sample_sheet_rows_are_refused() {
+    let model = VanDerPauwModel::symmetric(100.0, 50.0);
+    let readings = nist_readings(&model, "s", 300.0, 0.5, 1e-3);
+    let settings = ReduceSettings::default();
+    let base = SampleInfo {
+        thickness_m: Some(1e-6),
+        ..SampleInfo::van_der_pauw_sheet("s")
+    };
+    let check = |info: SampleInfo, expected: ReduceError| {
+        let error = reduce(&readings, Some(&[info]), &settings).unwrap_err();
+        assert_eq!(error, expected);
+        assert!(!error.to_string().ends_with('.'));
+    };
+    check(
+        SampleInfo {
+            thickness_m: Some(0.0),
+            ..base.clone()
+        },
+        ReduceError::InvalidThickness {
+            sample: "s".into(),
+            thickness_m: 0.0,
+        },
+    );
+    check(
+        SampleInfo {
+            thickness_m: Some(-1e-6),
+            ..base.clone()
+        },
+        ReduceError::InvalidThickness {
+            sample: "s".into(),
+            thickness_m: -1e-6,
+        },
+    );
+    check(
+        SampleInfo {
+            hall_factor: 0.0,
+            ..base.clone()
+        },
+        ReduceError::InvalidHallFactor {
+            sample: "s".into(),
+            hall_factor: 0.0,
+        },
+    );
+    check(
+        SampleInfo {
+            thickness_unc_m: Some(-1e-9),
+            ..base.clone()
+        },
+        ReduceError::InvalidThicknessUncertainty {
+            sample: "s".into(),
+            thickness_unc_m: -1e-9,
+        },
+    );
+    check(
+        SampleInfo {
+            geometry: Geometry::HallBar {
+                length_m: 0.0,
+                width_m: 1e-4,
+            },
+            ..base.clone()
+        },
+        ReduceError::InvalidHallBarDimensions {
+            sample: "s".into(),
+            length_m: 0.0,
+            width_m: 1e-4,
+        },
+    );
+    let error = reduce(&readings, Some(&[base.clone(), base.clone()]), &settings).unwrap_err();
+    assert_eq!(error, ReduceError::DuplicateSample { sample: "s".into() });
+}
+
+#[test]
+fn bad_settings_are_refused() {
+    let readings = nist_readings(&VanDerPauwModel::symmetric(100.0, 50.0), "s", 300.0, 0.5, 1e-3);
+    let mut settings = ReduceSettings::default();
+    settings.field_tolerance_t = -1.0;
+    let error = reduce(&readings, None, &settings).unwrap_err();
+    assert!(matches!(
+        error,
+        ReduceError::InvalidSetting {
+            setting: "field_tolerance_T",
+            ..
+        }
+    ));
+    let mut settings = ReduceSettings::default();
+    settings.thresholds.max_resistance_ratio = 0.5;
+    let error = reduce(&readings, None, &settings).unwrap_err();
+    assert!(matches!(
+        error,
+        ReduceError::InvalidSetting {
+            setting: "max_resistance_ratio",
+            ..
+        }
+    ));
+    let mut settings = ReduceSettings::default();
+    settings.temperature_tolerance_k = f64::NAN;
+    assert!(reduce(&readings, None, &settings).is_err());
+}
+
+#[test]
+fn sheet_rows_without_readings_are_reported() {
+    let readings = nist_readings(&VanDerPauwModel::symmetric(100.0, 50.0), "s", 300.0, 0.5, 1e-3);
+    let sheet = [
+        SampleInfo::van_der_pauw_sheet("s"),
+        SampleInfo::van_der_pauw_sheet("spare"),
+    ];
+    let reduction = reduce(&readings, Some(&sheet), &ReduceSettings::default()).unwrap();
+    assert_eq!(reduction.rows.len(), 1);
+    assert!(reduction.warnings.iter().any(|w| w.contains("spare")));
+}
+
+#[test]
+fn hall_bar_refuses_van_der_pauw_contacts() {
+    let model = VanDerPauwModel::symmetric(100.0, 50.0);
+    let readings = nist_readings(&model, "bar", 300.0, 0.5, 1e-3);
+    let sheet = SampleInfo {
+        geometry: Geometry::HallBar {
+            length_m: 1e-3,
+            width_m: 2e-4,
+        },
+        ..SampleInfo::van_der_pauw_sheet("bar")
+    };
+    // Readings 0 and 1 (R21,34 and R12,43) happen to be a valid bar measurement; reading 2
+    // (R43,12) drives current between 4 and 3.
+    let error = reduce(&readings, Some(&[sheet]), &ReduceSettings::default()).unwrap_err();
+    let ReduceError::InvalidReading { row: 2, problem, .. } = &error else {
+        panic!("{error:?}")
+    };
+    assert!(matches!(
+        problem,
+        ReadingProblem::Contacts {
+            error: ContactError::BarCurrentContacts(4, 3),
+            ..
+        }
+    ));
+}
+
+// ---------------------------------------------------------------- columns
+
+#[test]
+fn columns_and_structs_give_the_same_reduction() {
+    let model = with_offsets(
+        &VanDerPauwModel::asymmetric(90.0, 60.0, 25.0),
+        [1e-3, 0.0, -2e-3, 0.0],
+        [5.0, 3.0],
+    );
+    let mut readings = nist_readings(&model, "b", 300.0, 0.5, 1e-3);
+    readings.extend(nist_readings(&model, "a", 10.0, 2.0, 1e-4));
+    let sample: Vec<&str> = readings.iter().map(|r| r.sample.as_str()).collect();
+    let float = |f: fn(&RawReading) -> f64| readings.iter().map(f).collect::<Vec<f64>>();
+    let int = |f: fn(&RawReading) -> i64| readings.iter().map(f).collect::<Vec<i64>>();
+    let (temperature, field, current, voltage) = (
+        float(|r| r.temperature_k),
+        float(|r| r.field_t),
+        float(|r| r.current_a),
+        float(|r| r.voltage_v),
+    );
+    let (i_in, i_out, v_pos, v_neg) = (int(|r| r.i_in), int(|r| r.i_out), int(|r| r.v_pos), int(|r| r.v_neg));
+    let columns = ReadingColumns {
+        sample: &sample,
+        temperature_k: &temperature,
+        field_t: &field,
+        i_in: &i_in,
+        i_out: &i_out,
+        v_pos: &v_pos,
+        v_neg: &v_neg,
+        current_a: &current,
+        voltage_v: &voltage,
+    };
+    let settings = ReduceSettings::default();
+    assert_eq!(
+        reduce_columns(&columns, None, &settings).unwrap(),
+        reduce(&readings, None, &settings).unwrap()
+    );
+    let short = ReadingColumns {
+        voltage_v: &voltage[1..],
+        ..columns
+    };
+    assert_eq!(
+        reduce_columns(&short, None, &settings).unwrap_err(),
+        ReduceError::ColumnLengthMismatch {
+            column: "voltage_V",
+            length: readings.len() - 1,
+            expected: readings.len(),
+        }
+    );
+}
+
+// ---------------------------------------------------------------- property test
+
+/// Readings generated by the shared forward model (mobilis-core `forward::readings`) from known
+/// parameters, with offsets, misalignment, every wiring habit and Gaussian noise, reduced
+/// again: the reduction must recover what went in, within its own reported uncertainties.
+pub(super) mod recovers_forward_model {
+    use mobilis_core::constants::ELEMENTARY_CHARGE_C;
+    use mobilis_core::forward::readings::{
+        hall_bar_readings, van_der_pauw_readings, CurrentReversal, HallBarSample, MeasurementProtocol,
+        VanDerPauwSample, VoltageNoise, VoltmeterWiring,
+    };
+    use mobilis_core::noise::Rng;
+    use proptest::prelude::*;
+    use proptest::test_runner::RngSeed;
+
+    use super::super::*;
+
+    /// How many reported standard uncertainties an estimate may be off. The uncertainties
+    /// rest on few degrees of freedom (two redundant configurations, four Hall values), so
+    /// their tails are wider than a normal distribution's.
+    const COVERAGE_FACTOR: f64 = 6.0;
+    /// Independent of the reported uncertainty: with relative noise at most 1e-5 per reading,
+    /// nothing should be off by more than this.
+    const LOOSE_RELATIVE_BOUND: f64 = 1e-2;
+    /// Every measurement is repeated, so that each fit has residual degrees of freedom.
+    const REPEATS: usize = 3;
+    const FIELD_T: f64 = 0.5;
+
+    #[derive(Debug, Clone)]
+    pub struct Case {
+        pub sheet_resistance_ohm_sq: f64,
+        pub ratio_b_over_a: f64,
+        pub hall_mobility_m2_per_vs: f64,
+        pub holes: bool,
+        /// Thermoelectric offsets as fractions of R_s I.
+        pub offset_fractions: [f64; 6],
+        /// Misalignment as fractions of R_s.
+        pub misalignment_fractions: [f64; 2],
+        pub noise_relative: f64,
+        pub noise_seed: u64,
+        pub swap_leads: bool,
+        pub wiring: u8,
+        pub hall_bar: bool,
+        pub usual_split: bool,
+    }
+
+    fn log_uniform(low: f64, high: f64) -> impl Strategy<Value = f64> {
+        (low.ln()..high.ln()).prop_map(f64::exp)
+    }
+
+    prop_compose! {
+        pub fn cases()(
+            sheet_resistance_ohm_sq in log_uniform(1e-1, 1e6),
+            ratio_b_over_a in 0.3..3.0f64,
+            hall_mobility_m2_per_vs in log_uniform(1e-3, 10.0),
+            holes in any::<bool>(),
+            offset_fractions in proptest::array::uniform6(-0.3..0.3f64),
+            misalignment_fractions in proptest::array::uniform2(-0.2..0.2f64),
+            noise_relative in log_uniform(1e-9, 1e-5),
+            noise_seed in any::<u64>(),
+            swap_leads in any::<bool>(),
+            wiring in 0u8..3,
+            hall_bar in proptest::bool::weighted(0.25),
+            usual_split in any::<bool>(),
+        ) -> Case {
+            Case {
+                sheet_resistance_ohm_sq, ratio_b_over_a, hall_mobility_m2_per_vs, holes, offset_fractions,
+                misalignment_fractions, noise_relative, noise_seed, swap_leads, wiring, hall_bar, usual_split,
+            }
+        }
+    }
+
+    fn protocol(case: &Case, current_a: f64) -> MeasurementProtocol {
+        let base = if case.hall_bar {
+            MeasurementProtocol::hall_bar(current_a, vec![FIELD_T])
+        } else {
+            MeasurementProtocol::van_der_pauw(current_a, vec![FIELD_T])
+        };
+        let base = if case.usual_split {
+            base.with_resistance_at_zero_and_hall_in_field()
+        } else {
+            base
+        };
+        MeasurementProtocol {
+            current_reversal: if case.swap_leads {
+                CurrentReversal::SwapLeads
+            } else {
+                CurrentReversal::SourceSign
+            },
+            voltmeter_wiring: match case.wiring {
+                0 => VoltmeterWiring::Canonical,
+                1 => VoltmeterWiring::Reversed,
+                _ => VoltmeterWiring::FollowsCurrentLeads,
+            },
+            noise: VoltageNoise {
+                absolute_v: 0.0,
+                relative: case.noise_relative,
+            },
+            ..base
+        }
+    }
+
+    /// The readings and the sample sheet of a case.
+    pub fn generate(case: &Case, sheet_hall_coefficient: f64) -> (Vec<RawReading>, SampleInfo) {
+        // About 10 mV across the resistance configurations.
+        let current_a = 1e-2 / case.sheet_resistance_ohm_sq;
+        let offset_scale_v = case.sheet_resistance_ohm_sq * current_a;
+        let misalignment_ohm = case.misalignment_fractions.map(|f| f * case.sheet_resistance_ohm_sq);
+        let protocol = protocol(case, current_a);
+        let mut rng = Rng::seeded(case.noise_seed);
+        let mut readings = Vec::new();
+        let sheet = if case.hall_bar {
+            let (probe_spacing_m, width_m) = (500e-6, 100e-6 * case.ratio_b_over_a);
+            let mut bar = HallBarSample::ideal(
+                "bar",
+                300.0,
+                case.sheet_resistance_ohm_sq,
+                probe_spacing_m,
+                width_m,
+                sheet_hall_coefficient,
+            );
+            bar.thermoelectric_offsets_v = [0, 1, 2, 3].map(|i| case.offset_fractions[i] * offset_scale_v);
+            bar.transverse_misalignment_ohm = misalignment_ohm;
+            for _ in 0..REPEATS {
+                readings.extend(hall_bar_readings(&bar, &protocol, &mut rng).expect("valid bar"));
+            }
+            SampleInfo {
+                geometry: Geometry::HallBar {
+                    length_m: probe_spacing_m,
+                    width_m,
+                },
+                ..SampleInfo::van_der_pauw_sheet("bar")
+            }
+        } else {
+            let mut sample = VanDerPauwSample::ideal(
+                "vdp",
+                300.0,
+                case.sheet_resistance_ohm_sq,
+                case.ratio_b_over_a,
+                sheet_hall_coefficient,
+            );
+            sample.thermoelectric_offsets_v = case.offset_fractions.map(|f| f * offset_scale_v);
+            sample.hall_misalignment_ohm = misalignment_ohm;
+            for _ in 0..REPEATS {
+                readings.extend(van_der_pauw_readings(&sample, &protocol, &mut rng).expect("valid sample"));
+            }
+            SampleInfo::van_der_pauw_sheet("vdp")
+        };
+        (readings, sheet)
+    }
+
+    fn check(what: &str, estimate: Option<f64>, uncertainty: Option<f64>, truth: f64) -> Result<(), TestCaseError> {
+        let estimate = estimate.ok_or_else(|| TestCaseError::fail(format!("{what} is null")))?;
+        let uncertainty = uncertainty.ok_or_else(|| TestCaseError::fail(format!("{what} has no uncertainty")))?;
+        let error = (estimate - truth).abs();
+        // The floor covers rounding when the noise is far below double precision of the sums.
+        prop_assert!(
+            error <= COVERAGE_FACTOR * uncertainty + 1e-9 * truth.abs(),
+            "{what}: {estimate} vs {truth}, error {error:e} = {:.2} reported uncertainties",
+            error / uncertainty
+        );
+        prop_assert!(
+            error <= LOOSE_RELATIVE_BOUND * truth.abs(),
+            "{what}: {estimate} vs {truth}, relative error {:e}",
+            error / truth.abs()
+        );
+        Ok(())
+    }
+
+    proptest! {
+        #![proptest_config(ProptestConfig {
+            cases: 64,
+            // A fixed seed keeps the suite reproducible; change it to explore other cases.
+            rng_seed: RngSeed::Fixed(0x4d6f_6269_6c69_7321),
+            ..ProptestConfig::default()
+        })]
+
+        #[test]
+        fn reduction_recovers_the_forward_model(case in cases()) {
+            let sign = if case.holes { 1.0 } else { -1.0 };
+            let sheet_hall_coefficient = sign * case.hall_mobility_m2_per_vs * case.sheet_resistance_ohm_sq;
+            let (readings, sheet) = generate(&case, sheet_hall_coefficient);
+            let reduction = reduce(&readings, Some(&[sheet]), &ReduceSettings::default())
+                .map_err(|error| TestCaseError::fail(error.to_string()))?;
+            prop_assert_eq!(reduction.rows.len(), 1);
+            let row = &reduction.rows[0];
+            prop_assert_eq!(row.carrier_type, Some(if case.holes { "p" } else { "n" }));
+            prop_assert_eq!(row.reading_count, readings.len());
+            check("R_s", row.sheet_resistance_ohm_sq, row.sheet_resistance_ohm_sq_unc, case.sheet_resistance_ohm_sq)?;
+            check(
+                "R_Hs",
+                row.sheet_hall_coefficient_m2_per_c,
+                row.sheet_hall_coefficient_m2_per_c_unc,
+                sheet_hall_coefficient,
+            )?;
+            check(
+                "n_s",
+                row.sheet_density_m2,
+                row.sheet_density_m2_unc,
+                1.0 / (ELEMENTARY_CHARGE_C * sheet_hall_coefficient.abs()),
+            )?;
+            check(
+                "mu_H",
+                row.hall_mobility_m2_per_vs,
+                row.hall_mobility_m2_per_vs_unc,
+                case.hall_mobility_m2_per_vs,
+            )?;
+            // Offsets and misalignment of any size never pass for a missing measurement.
+            for flag in [flags::MISSING_CONFIGURATIONS, flags::NO_FIELD_REVERSAL, flags::NO_CURRENT_REVERSAL] {
+                prop_assert!(!row.flags.contains(&flag), "unexpected {} in {:?}", flag, row.flags);
+            }
+        }
+    }
+}
+#[test]
+fn scratch_distribution() {
+    use proptest::strategy::{Strategy, ValueTree};
+    use proptest::test_runner::TestRunner;
+    use recovers_forward_model::*;
+    let mut runner = TestRunner::deterministic();
+    let mut worst = [0.0f64; 4];
+    let mut worst_rel = [0.0f64; 4];
+    let mut ratios: Vec<f64> = Vec::new();
+    for _ in 0..20000 {
+        let case = cases().new_tree(&mut runner).unwrap().current();
+        let sign = if case.holes { 1.0 } else { -1.0 };
+        let shc = sign * case.hall_mobility_m2_per_vs * case.sheet_resistance_ohm_sq;
+        let (readings, sheet) = generate(&case, shc);
+        let r = reduce(&readings, Some(&[sheet]), &ReduceSettings::default()).unwrap();
+        let row = &r.rows[0];
+        let truths = [case.sheet_resistance_ohm_sq, shc, 1.0/(ELEMENTARY_CHARGE_C*shc.abs()), case.hall_mobility_m2_per_vs];
+        let est = [(row.sheet_resistance_ohm_sq, row.sheet_resistance_ohm_sq_unc), (row.sheet_hall_coefficient_m2_per_c, row.sheet_hall_coefficient_m2_per_c_unc), (row.sheet_density_m2, row.sheet_density_m2_unc), (row.hall_mobility_m2_per_vs, row.hall_mobility_m2_per_vs_unc)];
+        for k in 0..4 {
+            let (e, u) = (est[k].0.unwrap(), est[k].1.unwrap());
+            let err = (e - truths[k]).abs();
+            let ratio = (err - 1e-9*truths[k].abs()).max(0.0) / u;
+            if k == 1 || k == 0 { ratios.push(ratio); }
+            worst[k] = worst[k].max(ratio);
+            worst_rel[k] = worst_rel[k].max(err / truths[k].abs());
+        }
+    }
+    ratios.sort_by(|a,b| a.partial_cmp(b).unwrap());
+    let n = ratios.len();
+    eprintln!("worst ratio {worst:?} worst rel {worst_rel:?}");
+    eprintln!("quantiles 0.5 {} 0.9 {} 0.99 {} 0.999 {} 0.9999 {}", ratios[n/2], ratios[n*9/10], ratios[n*99/100], ratios[n*999/1000], ratios[n*9999/10000]);
+}

@@ -1,0 +1,188 @@
+//! The OpenRPC document served by `rpc.discover`, generated from the method table below
+//! and from the loaded plugins' declarations.
+//!
+//! **Architecture Invariant.** [`METHODS`] is the single list of JSON-RPC methods: the
+//! server registers exactly these names (a test compares them with the registered
+//! module), so the document cannot drift from the code.
+
+use crate::errors::ErrorKind;
+use crate::service::Service;
+use serde_json::{json, Value};
+
+/// One JSON-RPC method as documented.
+pub struct MethodDoc {
+    pub name: &'static str,
+    pub summary: &'static str,
+    /// (name, required, JSON Schema as JSON text, description)
+    pub params: &'static [(&'static str, bool, &'static str, &'static str)],
+    /// JSON Schema of the result, as JSON text.
+    pub result: &'static str,
+}
+
+const STRING: &str = r#"{"type": "string"}"#;
+const OBJECT: &str = r#"{"type": "object"}"#;
+const ARRAY: &str = r#"{"type": "array"}"#;
+const UNITS: &str = r#"{"type": "object", "additionalProperties": {"anyOf": [{"type": "string"}, {"type": "object", "required": ["unit", "to"], "properties": {"unit": {"type": "string"}, "to": {"type": "string"}}}]}}"#;
+const DATASET_SUMMARY: &str = r#"{"type": "object", "required": ["name", "rows", "columns"], "properties": {"name": {"type": "string"}, "rows": {"type": "integer"}, "columns": {"type": "array", "items": {"type": "object", "properties": {"name": {"type": "string"}, "dtype": {"type": "string"}}}}}}"#;
+const RUN_RESULT: &str = r#"{"type": "object", "required": ["output", "rows", "summary", "warnings"], "properties": {"output": {"type": "string"}, "rows": {"type": "integer"}, "columns": {"type": "array"}, "summary": {"type": "object"}, "warnings": {"type": "array", "items": {"type": "string"}}}}"#;
+
+/// Every method the daemon serves.
+pub const METHODS: &[MethodDoc] = &[
+    MethodDoc {
+        name: "server.info",
+        summary: "Name, version, plugin ABI version, workspace, data roots, plugins loaded and refused, damaged workspace files",
+        params: &[],
+        result: OBJECT,
+    },
+    MethodDoc { name: "rpc.discover", summary: "This OpenRPC document", params: &[], result: OBJECT },
+    MethodDoc {
+        name: "plugin.list",
+        summary: "Each plugin: name, version, library file, analyses",
+        params: &[],
+        result: ARRAY,
+    },
+    MethodDoc { name: "analysis.list", summary: "Each analysis: name, plugin, one-line summary", params: &[], result: ARRAY },
+    MethodDoc {
+        name: "analysis.describe",
+        summary: "An analysis's parameters (JSON Schema), input roles with their columns and units, output columns and summary keys",
+        params: &[("analysis", true, STRING, "analysis name, for example hall.reduce")],
+        result: OBJECT,
+    },
+    MethodDoc {
+        name: "dataset.import",
+        summary: "Stores a table read from a file inside the data roots (CSV, Parquet, Arrow IPC) or sent inline as columns; `units` converts columns into SI",
+        params: &[
+            ("name", true, STRING, "dataset name: letters, digits, _ - ., no path separators"),
+            ("path", false, STRING, "file to read; relative paths resolve against the first data root"),
+            ("columns", false, OBJECT, "inline table {column: [values]}"),
+            ("format", false, r#"{"type": "string", "enum": ["csv", "parquet", "ipc"]}"#, "file format; default from the file name"),
+            ("units", false, UNITS, "{column: unit} or {column: {unit, to}}: convert into SI and rename by the quantity_unit convention"),
+            ("overwrite", false, r#"{"type": "boolean", "default": false}"#, "replace an existing dataset of that name"),
+        ],
+        result: DATASET_SUMMARY,
+    },
+    MethodDoc { name: "dataset.list", summary: "Every stored dataset with its rows and columns", params: &[], result: ARRAY },
+    MethodDoc {
+        name: "dataset.info",
+        summary: "A dataset's rows, columns, creation time and provenance",
+        params: &[("name", true, STRING, "dataset name")],
+        result: OBJECT,
+    },
+    MethodDoc {
+        name: "dataset.drop",
+        summary: "Removes a dataset from memory and from the workspace",
+        params: &[("name", true, STRING, "dataset name")],
+        result: OBJECT,
+    },
+    MethodDoc {
+        name: "dataset.rows",
+        summary: "A page of rows as columns of JSON values (SI units; NaN as null)",
+        params: &[
+            ("name", true, STRING, "dataset name"),
+            ("offset", false, r#"{"type": "integer", "minimum": 0, "default": 0}"#, "first row"),
+            ("limit", false, r#"{"type": "integer", "minimum": 0, "maximum": 100000, "default": 1000}"#, "number of rows"),
+        ],
+        result: r#"{"type": "object", "required": ["total_rows", "columns"], "properties": {"total_rows": {"type": "integer"}, "offset": {"type": "integer"}, "columns": {"type": "object"}}}"#,
+    },
+    MethodDoc {
+        name: "dataset.export",
+        summary: "Writes a dataset to a file inside the data roots (CSV, Parquet or Arrow IPC)",
+        params: &[
+            ("name", true, STRING, "dataset name"),
+            ("path", true, STRING, "file to write; its directory must exist inside a data root"),
+            ("format", false, r#"{"type": "string", "enum": ["csv", "parquet", "ipc"]}"#, "file format; default from the file name"),
+        ],
+        result: OBJECT,
+    },
+    MethodDoc {
+        name: "analysis.run",
+        summary: "Runs an analysis on stored datasets and stores its output table; with group_by, once per group of the first input, outputs concatenated and one summary per group",
+        params: &[
+            ("analysis", true, STRING, "analysis name"),
+            ("inputs", true, r#"{"type": "object", "additionalProperties": {"type": "string"}}"#, "{role: dataset}"),
+            ("params", false, OBJECT, "the analysis's parameters (see analysis.describe and components.schemas)"),
+            ("output", true, STRING, "name of the dataset to store the output table in"),
+            ("group_by", false, r#"{"anyOf": [{"type": "string"}, {"type": "array", "items": {"type": "string"}}]}"#, "column(s) of the first input to group by"),
+            ("overwrite", false, r#"{"type": "boolean", "default": false}"#, "replace an existing output dataset"),
+            ("call_id", false, STRING, "client-chosen id for analysis.cancel and analysis.progress"),
+        ],
+        result: RUN_RESULT,
+    },
+    MethodDoc {
+        name: "analysis.cancel",
+        summary: "Asks a running analysis.run (by its call_id) to stop; the run then fails with the cancelled error",
+        params: &[("call_id", true, STRING, "the call_id given to analysis.run")],
+        result: OBJECT,
+    },
+    MethodDoc {
+        name: "analysis.progress",
+        summary: "The progress last reported by a running analysis.run (by its call_id)",
+        params: &[("call_id", true, STRING, "the call_id given to analysis.run")],
+        result: OBJECT,
+    },
+    MethodDoc {
+        name: "pipeline.run",
+        summary: "Runs analysis.run steps in order; a step may name an earlier step's output; every step is checked before the first runs",
+        params: &[("steps", true, r#"{"type": "array", "items": {"type": "object"}, "minItems": 1}"#, "analysis.run parameter objects")],
+        result: r#"{"type": "object", "properties": {"steps": {"type": "array"}}}"#,
+    },
+];
+
+fn parse(text: &str) -> Value {
+    serde_json::from_str(text).expect("method table schemas are valid JSON")
+}
+
+/// The OpenRPC document of this daemon with its plugins.
+pub fn document(service: &Service) -> Value {
+    let errors: Vec<Value> = ErrorKind::ALL
+        .iter()
+        .map(|kind| json!({ "code": kind.code(), "message": kind.description(), "data": { "kind": kind.name() } }))
+        .collect();
+    let methods: Vec<Value> = METHODS
+        .iter()
+        .map(|method| {
+            let params: Vec<Value> = method
+                .params
+                .iter()
+                .map(|(name, required, schema, description)| {
+                    json!({ "name": name, "required": required, "description": description, "schema": parse(schema) })
+                })
+                .collect();
+            let mut entry = json!({
+                "name": method.name,
+                "summary": method.summary,
+                "paramStructure": "by-name",
+                "params": params,
+                "result": { "name": "result", "schema": parse(method.result) },
+            });
+            if !matches!(
+                method.name,
+                "rpc.discover" | "server.info" | "plugin.list" | "analysis.list" | "dataset.list"
+            ) {
+                entry["errors"] = Value::Array(errors.clone());
+            }
+            entry
+        })
+        .collect();
+    let mut schemas = serde_json::Map::new();
+    for (name, entry) in &service.host.analyses {
+        let mut schema = entry.declaration.params.clone();
+        if let Value::Object(map) = &mut schema {
+            map.insert(
+                "description".into(),
+                json!(format!("parameters of {name}: {}", entry.declaration.summary)),
+            );
+        }
+        schemas.insert(format!("{name}.params"), schema);
+    }
+    json!({
+        "openrpc": "1.3.2",
+        "info": {
+            "title": "mobilisd",
+            "version": env!("CARGO_PKG_VERSION"),
+            "description": "Analysis server for semiconductor transport measurements. Analyses come from plugins; their parameter schemas are in components.schemas as `<analysis>.params`.",
+        },
+        "methods": methods,
+        "components": { "schemas": schemas },
+    })
+}

@@ -1,0 +1,354 @@
+//! Loading plugin libraries and calling their analyses through the C ABI.
+//!
+//! **Architecture Invariant.** Libraries are never unloaded while the daemon runs: the
+//! Arrow release callbacks of every table a plugin produced run code inside it, and such
+//! tables live in the dataset store for as long as the daemon does.
+//!
+//! A library is refused, with its file name and the reason, when it lacks the entry
+//! symbol, reports another ABI major version, returns an unusable declaration, declares a
+//! parameter schema the host cannot validate, or offers an analysis whose name is already
+//! taken. A refused library is never half-registered; the daemon keeps serving.
+
+use crate::param_schema;
+use mobilis_core::abi::{
+    self, AnalysisDeclaration, EntryFn, HostContext, InputTable, InvokeOutput, PluginDeclaration, PluginDescriptor,
+};
+use mobilis_core::table_ffi;
+use polars::prelude::DataFrame;
+use std::collections::BTreeMap;
+use std::ffi::{CStr, CString};
+use std::os::raw::{c_char, c_void};
+use std::panic::{catch_unwind, AssertUnwindSafe};
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
+
+/// A plugin library that loaded.
+pub struct LoadedPlugin {
+    pub name: String,
+    pub version: String,
+    pub abi_minor: u32,
+    pub file: PathBuf,
+    pub features: Vec<String>,
+    pub analyses: Vec<String>,
+    descriptor: &'static PluginDescriptor,
+}
+
+/// A library that was refused, and why.
+#[derive(Debug, Clone)]
+pub struct RefusedPlugin {
+    pub file: PathBuf,
+    pub reason: String,
+}
+
+/// One analysis and the plugin that serves it.
+pub struct RegisteredAnalysis {
+    pub declaration: AnalysisDeclaration,
+    pub plugin_index: usize,
+}
+
+/// All plugins of the daemon.
+#[derive(Default)]
+pub struct PluginHost {
+    pub plugins: Vec<LoadedPlugin>,
+    pub refused: Vec<RefusedPlugin>,
+    pub analyses: BTreeMap<String, RegisteredAnalysis>,
+}
+
+/// How a call into a plugin failed.
+#[derive(Debug, Clone, PartialEq)]
+pub struct InvokeFailure {
+    pub status: i32,
+    pub message: String,
+}
+
+/// What a successful call returns.
+pub struct InvokeSuccess {
+    pub table: DataFrame,
+    pub summary: serde_json::Value,
+    pub warnings: Vec<String>,
+}
+
+/// Progress and cancellation of one running call, shared with the client side.
+#[derive(Default)]
+pub struct CallControl {
+    pub cancelled: AtomicBool,
+    pub progress: std::sync::Mutex<Option<(f64, String)>>,
+}
+
+/// The platform's file name suffix of shared libraries.
+pub fn is_shared_library(path: &Path) -> bool {
+    let extension = path.extension().and_then(|e| e.to_str()).unwrap_or("");
+    matches!(extension, "so" | "dylib" | "dll")
+}
+
+impl PluginHost {
+    /// Loads every shared library of `dir` whose file name passes `accept`; each refusal
+    /// is recorded, none stops the others.
+    pub fn load_dir(&mut self, dir: &Path, accept: impl Fn(&str) -> bool) {
+        let mut files: Vec<PathBuf> = match std::fs::read_dir(dir) {
+            Ok(entries) => entries.filter_map(|e| e.ok().map(|e| e.path())).collect(),
+            Err(error) => {
+                self.refused.push(RefusedPlugin {
+                    file: dir.to_owned(),
+                    reason: format!("cannot read the plugin directory: {error}"),
+                });
+                return;
+            }
+        };
+        files.sort();
+        for file in files {
+            let name = file.file_name().and_then(|n| n.to_str()).unwrap_or("");
+            if is_shared_library(&file) && accept(name) {
+                if let Err(reason) = self.load(&file) {
+                    tracing::warn!(file = %file.display(), %reason, "plugin refused");
+                    self.refused.push(RefusedPlugin { file, reason });
+                }
+            }
+        }
+    }
+
+    /// Loads one library. On error nothing of it is registered (the library itself may
+    /// stay mapped: unloading is never safe once its code ran).
+    pub fn load(&mut self, file: &Path) -> Result<(), String> {
+        // SAFETY: loading a library runs its initialisers. Plugins are trusted code chosen by
+        // whoever starts the daemon (--plugin-dir); this is the one place that trust is taken.
+        let library = unsafe { libloading::Library::new(file) }.map_err(|e| format!("cannot load the library: {e}"))?;
+        // SAFETY: the symbol's type is fixed by the ABI; a library exporting the name with
+        // another type breaks the ABI contract, which no check can detect.
+        let entry: EntryFn = unsafe { library.get::<EntryFn>(abi::ENTRY_SYMBOL.as_bytes()) }
+            .map(|symbol| *symbol)
+            .map_err(|_| format!("no entry symbol `{}`: not a mobilis plugin", abi::ENTRY_SYMBOL))?;
+        // Never unload: see the module documentation.
+        std::mem::forget(library);
+
+        // SAFETY: calling the entry function is the ABI's first step; it returns a pointer to
+        // a static descriptor or NULL. Only the two leading fields are read before the
+        // version check, and those keep their place in every ABI version.
+        let descriptor_pointer =
+            catch_unwind(|| unsafe { entry() }).map_err(|_| "the entry function panicked".to_owned())?;
+        if descriptor_pointer.is_null() {
+            return Err("the entry function returned no descriptor".into());
+        }
+        let descriptor: &'static PluginDescriptor = unsafe { &*descriptor_pointer };
+        if descriptor.abi_major != abi::ABI_MAJOR {
+            return Err(format!(
+                "built for plugin ABI {}.{}, this daemon speaks ABI {}.{}; rebuild the plugin against this version",
+                descriptor.abi_major,
+                descriptor.abi_minor,
+                abi::ABI_MAJOR,
+                abi::ABI_MINOR
+            ));
+        }
+        let name = static_str(descriptor.plugin_name).ok_or("the plugin name is not valid UTF-8")?;
+        let version = static_str(descriptor.plugin_version).ok_or("the plugin version is not valid UTF-8")?;
+
+        let declaration = describe(descriptor)?;
+        let mut seen = std::collections::BTreeSet::new();
+        for analysis in &declaration.analyses {
+            if let Some(existing) = self.analyses.get(&analysis.name) {
+                let owner = &self.plugins[existing.plugin_index];
+                return Err(format!(
+                    "analysis `{}` is already provided by plugin `{}` ({})",
+                    analysis.name,
+                    owner.name,
+                    owner.file.display()
+                ));
+            }
+            if !seen.insert(analysis.name.clone()) {
+                return Err(format!("analysis `{}` is declared twice", analysis.name));
+            }
+            param_schema::check_supported(&analysis.params, &analysis.name)?;
+        }
+
+        let plugin_index = self.plugins.len();
+        let analyses: Vec<String> = declaration.analyses.iter().map(|a| a.name.clone()).collect();
+        for analysis in declaration.analyses {
+            self.analyses.insert(
+                analysis.name.clone(),
+                RegisteredAnalysis {
+                    declaration: analysis,
+                    plugin_index,
+                },
+            );
+        }
+        tracing::info!(plugin = name, version, file = %file.display(), analyses = ?analyses, "plugin loaded");
+        self.plugins.push(LoadedPlugin {
+            name: name.to_owned(),
+            version: version.to_owned(),
+            abi_minor: descriptor.abi_minor,
+            file: file.to_owned(),
+            features: declaration.features,
+            analyses,
+            descriptor,
+        });
+        Ok(())
+    }
+
+    /// The plugin serving an analysis.
+    pub fn plugin_of(&self, analysis: &str) -> Option<&LoadedPlugin> {
+        self.analyses
+            .get(analysis)
+            .map(|entry| &self.plugins[entry.plugin_index])
+    }
+
+    /// Calls an analysis with named input tables. Blocking: run it off the async runtime.
+    pub fn invoke(
+        &self,
+        analysis: &str,
+        params: &serde_json::Value,
+        inputs: &[(String, DataFrame)],
+        control: &Arc<CallControl>,
+    ) -> Result<InvokeSuccess, InvokeFailure> {
+        let failure = |status: i32, message: String| InvokeFailure { status, message };
+        let plugin = self
+            .plugin_of(analysis)
+            .ok_or_else(|| failure(abi::STATUS_UNKNOWN_ANALYSIS, format!("no analysis `{analysis}`")))?;
+        let descriptor = plugin.descriptor;
+
+        let analysis_c =
+            CString::new(analysis).map_err(|_| failure(abi::STATUS_INVALID_INPUT, "NUL in analysis name".into()))?;
+        let params_c = CString::new(params.to_string())
+            .map_err(|_| failure(abi::STATUS_INVALID_INPUT, "NUL in parameters".into()))?;
+        let mut roles = Vec::with_capacity(inputs.len());
+        let mut exported = Vec::with_capacity(inputs.len());
+        for (role, frame) in inputs {
+            roles.push(
+                CString::new(role.as_str()).map_err(|_| failure(abi::STATUS_INVALID_INPUT, "NUL in role".into()))?,
+            );
+            let (schema, array) = table_ffi::export_frame(frame)
+                .map_err(|error| failure(abi::STATUS_INVALID_INPUT, format!("input `{role}`: {error}")))?;
+            exported.push((Box::new(schema), Box::new(array)));
+        }
+        let tables: Vec<InputTable> = roles
+            .iter()
+            .zip(exported.iter_mut())
+            .map(|(role, (schema, array))| InputTable {
+                role: role.as_ptr(),
+                schema: &mut **schema,
+                array: &mut **array,
+            })
+            .collect();
+        let context = HostContext {
+            host_data: Arc::as_ptr(control) as *mut c_void,
+            report_progress: Some(report_progress),
+            is_cancelled: Some(is_cancelled),
+        };
+        let mut output = InvokeOutput::empty();
+
+        // SAFETY: every pointer is valid for the call: the C strings, the input tables (owned
+        // by `exported`, which outlives the call), the context (whose host_data points into
+        // `control`, kept alive by the caller's Arc) and the zero-initialised output.
+        // catch_unwind guards against a plugin that breaks the no-unwind rule of the ABI.
+        let status = catch_unwind(AssertUnwindSafe(|| unsafe {
+            (descriptor.invoke)(
+                analysis_c.as_ptr(),
+                params_c.as_ptr(),
+                tables.as_ptr(),
+                tables.len(),
+                &context,
+                &mut output,
+            )
+        }))
+        .map_err(|_| failure(abi::STATUS_PANIC, "the plugin unwound across the ABI".into()))?;
+        // Inputs the plugin did not take over are released here, when `exported` drops.
+        drop(tables);
+        drop(exported);
+
+        let result_json = take_plugin_string(descriptor, &mut output.result_json);
+        let error_message = take_plugin_string(descriptor, &mut output.error_message);
+        if status != abi::STATUS_OK {
+            // A failed call leaves the output empty or, if the plugin wrote one anyway, its
+            // release callbacks free it when `output` drops.
+            let message =
+                error_message.unwrap_or_else(|| format!("the plugin failed with status {status} and no message"));
+            return Err(failure(status, message));
+        }
+        let array = std::mem::replace(&mut output.array, polars_arrow::ffi::ArrowArray::empty());
+        let schema = std::mem::replace(&mut output.schema, polars_arrow::ffi::ArrowSchema::empty());
+        if schema.is_null() {
+            return Err(failure(
+                abi::STATUS_PANIC,
+                "the plugin reported success but wrote no output table".into(),
+            ));
+        }
+        // SAFETY: the plugin wrote a schema and array per the ABI; its library stays loaded.
+        // Importing foreign structures may hit assertions inside the Arrow reader on
+        // malformed input: contain that as a plugin failure.
+        let table = catch_unwind(AssertUnwindSafe(|| unsafe { table_ffi::import_frame(&schema, array) }))
+            .map_err(|_| failure(abi::STATUS_PANIC, "the plugin's output table is malformed".into()))?
+            .map_err(|error| {
+                failure(
+                    abi::STATUS_PANIC,
+                    format!("the plugin's output table is unusable: {error}"),
+                )
+            })?;
+        let result: serde_json::Value = match result_json {
+            Some(text) => serde_json::from_str(&text)
+                .map_err(|error| failure(abi::STATUS_PANIC, format!("the plugin's result is not JSON: {error}")))?,
+            None => serde_json::json!({}),
+        };
+        let summary = result.get("summary").cloned().unwrap_or_else(|| serde_json::json!({}));
+        let warnings = result
+            .get("warnings")
+            .and_then(|w| w.as_array())
+            .map(|list| list.iter().filter_map(|w| w.as_str().map(str::to_owned)).collect())
+            .unwrap_or_default();
+        Ok(InvokeSuccess {
+            table,
+            summary,
+            warnings,
+        })
+    }
+}
+
+fn static_str(pointer: *const c_char) -> Option<&'static str> {
+    if pointer.is_null() {
+        return None;
+    }
+    // SAFETY: the ABI requires static NUL-terminated strings in the descriptor.
+    unsafe { CStr::from_ptr(pointer) }.to_str().ok()
+}
+
+/// Copies a plugin-owned string and gives it back to the plugin.
+fn take_plugin_string(descriptor: &PluginDescriptor, slot: &mut *mut c_char) -> Option<String> {
+    let pointer = std::mem::replace(slot, std::ptr::null_mut());
+    if pointer.is_null() {
+        return None;
+    }
+    // SAFETY: the plugin wrote a NUL-terminated string it owns; we copy it, then return it
+    // through the plugin's own release function, exactly once.
+    let text = unsafe { CStr::from_ptr(pointer) }.to_string_lossy().into_owned();
+    unsafe { (descriptor.release_string)(pointer) };
+    Some(text)
+}
+
+fn describe(descriptor: &PluginDescriptor) -> Result<PluginDeclaration, String> {
+    // SAFETY: `describe` takes no arguments and returns a plugin-owned string or NULL.
+    let mut pointer =
+        catch_unwind(|| unsafe { (descriptor.describe)() }).map_err(|_| "describe panicked".to_owned())?;
+    let text = take_plugin_string(descriptor, &mut pointer).ok_or("describe returned nothing")?;
+    serde_json::from_str(&text).map_err(|error| format!("describe returned an unusable declaration: {error}"))
+}
+
+unsafe extern "C" fn report_progress(host_data: *mut c_void, fraction: f64, message: *const c_char) {
+    // Never unwind into the plugin.
+    let _ = catch_unwind(|| {
+        // SAFETY: host_data is the CallControl passed in `invoke`, alive for the call.
+        let control = unsafe { &*(host_data as *const CallControl) };
+        let text = if message.is_null() {
+            String::new()
+        } else {
+            unsafe { CStr::from_ptr(message) }.to_string_lossy().into_owned()
+        };
+        if let Ok(mut slot) = control.progress.lock() {
+            *slot = Some((fraction, text));
+        }
+    });
+}
+
+unsafe extern "C" fn is_cancelled(host_data: *mut c_void) -> i32 {
+    // SAFETY: as in report_progress.
+    let control = unsafe { &*(host_data as *const CallControl) };
+    control.cancelled.load(Ordering::Relaxed) as i32
+}

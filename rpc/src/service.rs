@@ -1,0 +1,746 @@
+//! What the daemon does, independent of how requests arrive: datasets, analyses,
+//! pipelines. The JSON-RPC layer (`methods`) only parses parameters and calls in here.
+
+use crate::data_roots::DataRoots;
+use crate::errors::{ErrorKind, ServiceError, ServiceResult};
+use crate::param_schema;
+use crate::plugin_host::{CallControl, InvokeFailure, PluginHost};
+use crate::store::{self, DatasetStore, Provenance};
+use crate::tables::{self, FileFormat, UnitSpec};
+use mobilis_core::abi::{self, ColumnSpec, ColumnType};
+use polars::prelude::*;
+use serde::Deserialize;
+use serde_json::{json, Value};
+use std::collections::{BTreeMap, HashMap};
+use std::path::{Path, PathBuf};
+use std::sync::atomic::Ordering;
+use std::sync::{Arc, Mutex};
+
+/// Largest number of rows `dataset.rows` returns at once.
+pub const MAX_ROWS_PER_CALL: usize = 100_000;
+
+pub struct Service {
+    pub store: DatasetStore,
+    pub host: PluginHost,
+    pub roots: DataRoots,
+    pub workspace: PathBuf,
+    running: Mutex<HashMap<String, Arc<CallControl>>>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ImportParams {
+    pub name: String,
+    #[serde(default)]
+    pub path: Option<String>,
+    #[serde(default)]
+    pub columns: Option<serde_json::Map<String, Value>>,
+    #[serde(default)]
+    pub format: Option<String>,
+    #[serde(default)]
+    pub units: BTreeMap<String, UnitSpec>,
+    #[serde(default)]
+    pub overwrite: bool,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ExportParams {
+    pub name: String,
+    pub path: String,
+    #[serde(default)]
+    pub format: Option<String>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RowsParams {
+    pub name: String,
+    #[serde(default)]
+    pub offset: usize,
+    #[serde(default)]
+    pub limit: Option<usize>,
+}
+
+/// One column name or several.
+#[derive(Debug, Clone, Deserialize, Default)]
+#[serde(untagged)]
+pub enum GroupBy {
+    #[default]
+    None,
+    One(String),
+    Many(Vec<String>),
+}
+
+impl GroupBy {
+    fn columns(&self) -> Vec<String> {
+        match self {
+            GroupBy::None => Vec::new(),
+            GroupBy::One(name) => vec![name.clone()],
+            GroupBy::Many(names) => names.clone(),
+        }
+    }
+}
+
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RunParams {
+    pub analysis: String,
+    pub inputs: BTreeMap<String, String>,
+    #[serde(default)]
+    pub params: Value,
+    pub output: String,
+    #[serde(default)]
+    pub group_by: GroupBy,
+    #[serde(default)]
+    pub overwrite: bool,
+    /// A client-chosen identifier under which `analysis.cancel` can stop this call.
+    #[serde(default)]
+    pub call_id: Option<String>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PipelineParams {
+    pub steps: Vec<RunParams>,
+}
+
+fn invoke_error(analysis: &str, failure: InvokeFailure) -> ServiceError {
+    let kind = match failure.status {
+        abi::STATUS_INVALID_INPUT => ErrorKind::InvalidData,
+        abi::STATUS_NUMERICAL_FAILURE => ErrorKind::NumericalFailure,
+        abi::STATUS_CANCELLED => ErrorKind::Cancelled,
+        abi::STATUS_UNKNOWN_ANALYSIS => ErrorKind::UnknownAnalysis,
+        _ => ErrorKind::PluginFailure,
+    };
+    let error = ServiceError::new(kind, format!("{analysis}: {}", failure.message));
+    match kind {
+        ErrorKind::PluginFailure => {
+            error.with_help("this is a bug in the plugin; the daemon and its datasets are unaffected")
+        }
+        _ => error,
+    }
+}
+
+/// A JSON value of one cell.
+fn cell_to_json(value: AnyValue) -> Value {
+    match value {
+        AnyValue::Null => Value::Null,
+        AnyValue::Boolean(b) => Value::Bool(b),
+        AnyValue::String(s) => Value::String(s.to_owned()),
+        AnyValue::StringOwned(s) => Value::String(s.to_string()),
+        AnyValue::Float64(f) => serde_json::Number::from_f64(f)
+            .map(Value::Number)
+            .unwrap_or(Value::Null),
+        AnyValue::Float32(f) => serde_json::Number::from_f64(f as f64)
+            .map(Value::Number)
+            .unwrap_or(Value::Null),
+        AnyValue::Int64(i) => json!(i),
+        AnyValue::Int32(i) => json!(i),
+        AnyValue::Int16(i) => json!(i),
+        AnyValue::Int8(i) => json!(i),
+        AnyValue::UInt64(i) => json!(i),
+        AnyValue::UInt32(i) => json!(i),
+        AnyValue::UInt16(i) => json!(i),
+        AnyValue::UInt8(i) => json!(i),
+        other => Value::String(other.to_string()),
+    }
+}
+
+/// The frame's columns as JSON arrays.
+pub fn frame_to_json_columns(frame: &DataFrame) -> serde_json::Map<String, Value> {
+    let mut columns = serde_json::Map::new();
+    for column in frame.columns() {
+        let series = column.as_materialized_series();
+        let values: Vec<Value> = series.iter().map(cell_to_json).collect();
+        columns.insert(column.name().to_string(), Value::Array(values));
+    }
+    columns
+}
+
+/// Casts one declared column to the type the plugin expects, or says why it cannot.
+fn conform_column(frame: &mut DataFrame, spec: &ColumnSpec, role: &str, dataset: &str) -> ServiceResult<()> {
+    let Ok(column) = frame.column(&spec.name) else {
+        if !spec.required {
+            return Ok(());
+        }
+        let present: Vec<String> = frame.get_column_names().iter().map(|n| n.to_string()).collect();
+        let unit = spec
+            .unit
+            .as_deref()
+            .map(|u| format!(" (SI unit {u})"))
+            .unwrap_or_default();
+        return Err(ServiceError::new(
+            ErrorKind::ColumnProblem,
+            format!(
+                "input `{role}` (dataset `{dataset}`) lacks the required column `{}`{unit}",
+                spec.name
+            ),
+        )
+        .with_help(format!(
+            "the dataset has: {}; rename or convert a column at import (dataset.import units)",
+            present.join(", ")
+        )));
+    };
+    let dtype = column.dtype().clone();
+    let mistyped = |expected: &str| {
+        ServiceError::new(
+            ErrorKind::ColumnProblem,
+            format!(
+                "column `{}` of input `{role}` (dataset `{dataset}`) holds {dtype}, expected {expected}",
+                spec.name
+            ),
+        )
+    };
+    let target = match spec.dtype {
+        ColumnType::F64 if dtype.is_primitive_numeric() || dtype.is_null() => DataType::Float64,
+        ColumnType::F64 => return Err(mistyped("numbers")),
+        ColumnType::I64 if dtype.is_integer() || dtype.is_null() => DataType::Int64,
+        ColumnType::I64 if dtype.is_float() => {
+            let values = column.cast(&DataType::Float64).expect("float cast");
+            let whole = values
+                .f64()
+                .expect("f64")
+                .iter()
+                .flatten()
+                .all(|v| v.fract() == 0.0 && v.abs() < 9e15);
+            if !whole {
+                return Err(mistyped("whole numbers"));
+            }
+            DataType::Int64
+        }
+        ColumnType::I64 => return Err(mistyped("whole numbers")),
+        ColumnType::Str if dtype.is_string() || dtype.is_null() => DataType::String,
+        ColumnType::Str => return Err(mistyped("text")),
+        ColumnType::Bool if dtype == DataType::Boolean || dtype.is_null() => DataType::Boolean,
+        ColumnType::Bool => return Err(mistyped("booleans")),
+    };
+    if dtype != target {
+        let cast = column.cast(&target).map_err(|_| mistyped(&target.to_string()))?;
+        frame
+            .with_column(cast)
+            .map_err(|e| ServiceError::new(ErrorKind::ColumnProblem, e.to_string()))?;
+    }
+    Ok(())
+}
+
+/// Row indices of each group, in order of first appearance, with the key values.
+fn group_rows(frame: &DataFrame, columns: &[String]) -> ServiceResult<Vec<(Vec<AnyValue<'static>>, Vec<IdxSize>)>> {
+    let series: Vec<Series> = columns
+        .iter()
+        .map(|name| {
+            frame
+                .column(name)
+                .map(|c| c.as_materialized_series().clone())
+                .map_err(|_| {
+                    ServiceError::new(
+                        ErrorKind::ColumnProblem,
+                        format!("group_by column `{name}` is not in the first input table"),
+                    )
+                })
+        })
+        .collect::<ServiceResult<_>>()?;
+    let mut order: Vec<(Vec<AnyValue<'static>>, Vec<IdxSize>)> = Vec::new();
+    let mut index_of: HashMap<String, usize> = HashMap::new();
+    for row in 0..frame.height() {
+        let key: Vec<AnyValue<'static>> = series
+            .iter()
+            .map(|s| s.get(row).expect("row in range").into_static())
+            .collect();
+        let text = format!("{key:?}");
+        match index_of.get(&text) {
+            Some(&position) => order[position].1.push(row as IdxSize),
+            None => {
+                index_of.insert(text, order.len());
+                order.push((key, vec![row as IdxSize]));
+            }
+        }
+    }
+    Ok(order)
+}
+
+fn rows_matching(frame: &DataFrame, columns: &[String], key: &[AnyValue<'static>]) -> Vec<IdxSize> {
+    let series: Vec<&Series> = columns
+        .iter()
+        .map(|name| frame.column(name).expect("checked").as_materialized_series())
+        .collect();
+    (0..frame.height())
+        .filter(|&row| {
+            series
+                .iter()
+                .zip(key)
+                .all(|(s, k)| s.get(row).map(|v| v.into_static() == *k).unwrap_or(false))
+        })
+        .map(|row| row as IdxSize)
+        .collect()
+}
+
+impl Service {
+    pub fn new(store: DatasetStore, host: PluginHost, roots: DataRoots, workspace: PathBuf) -> Self {
+        Service {
+            store,
+            host,
+            roots,
+            workspace,
+            running: Mutex::new(HashMap::new()),
+        }
+    }
+
+    pub fn server_info(&self) -> Value {
+        json!({
+            "name": "mobilisd",
+            "version": env!("CARGO_PKG_VERSION"),
+            "abi": { "major": abi::ABI_MAJOR, "minor": abi::ABI_MINOR },
+            "workspace": self.workspace.display().to_string(),
+            "data_roots": self.roots.roots().iter().map(|r| r.display().to_string()).collect::<Vec<_>>(),
+            "plugins": self.host.plugins.iter().map(|p| json!({"name": p.name, "version": p.version})).collect::<Vec<_>>(),
+            "refused_plugins": self.host.refused.iter().map(|r| json!({"file": r.file.display().to_string(), "reason": r.reason})).collect::<Vec<_>>(),
+            "damaged_files": self.store.damaged(),
+        })
+    }
+
+    pub fn plugin_list(&self) -> Value {
+        Value::Array(
+            self.host
+                .plugins
+                .iter()
+                .map(|p| {
+                    json!({
+                        "name": p.name,
+                        "version": p.version,
+                        "abi_minor": p.abi_minor,
+                        "library": p.file.display().to_string(),
+                        "features": p.features,
+                        "analyses": p.analyses,
+                    })
+                })
+                .collect(),
+        )
+    }
+
+    pub fn analysis_list(&self) -> Value {
+        Value::Array(
+            self.host
+                .analyses
+                .iter()
+                .map(|(name, entry)| {
+                    json!({
+                        "name": name,
+                        "plugin": self.host.plugins[entry.plugin_index].name,
+                        "summary": entry.declaration.summary,
+                    })
+                })
+                .collect(),
+        )
+    }
+
+    fn unknown_analysis(&self, name: &str) -> ServiceError {
+        let known: Vec<&str> = self.host.analyses.keys().map(String::as_str).collect();
+        ServiceError::new(ErrorKind::UnknownAnalysis, format!("no analysis named `{name}`")).with_help(format!(
+            "loaded analyses: {}",
+            if known.is_empty() {
+                "none".to_owned()
+            } else {
+                known.join(", ")
+            }
+        ))
+    }
+
+    pub fn analysis_describe(&self, name: &str) -> ServiceResult<Value> {
+        let entry = self
+            .host
+            .analyses
+            .get(name)
+            .ok_or_else(|| self.unknown_analysis(name))?;
+        let plugin = &self.host.plugins[entry.plugin_index];
+        let mut value = serde_json::to_value(&entry.declaration).expect("declaration serialises");
+        value["plugin"] = json!({"name": plugin.name, "version": plugin.version});
+        Ok(value)
+    }
+
+    fn dataset_summary(dataset: &store::Dataset) -> Value {
+        json!({
+            "name": dataset.manifest.name,
+            "rows": dataset.manifest.rows,
+            "columns": dataset.manifest.columns,
+        })
+    }
+
+    pub fn dataset_list(&self) -> Value {
+        Value::Array(self.store.list().iter().map(|d| Self::dataset_summary(d)).collect())
+    }
+
+    pub fn dataset_info(&self, name: &str) -> ServiceResult<Value> {
+        let dataset = self.store.get(name)?;
+        let mut value = Self::dataset_summary(&dataset);
+        value["created"] = json!(dataset.manifest.created);
+        value["provenance"] = serde_json::to_value(&dataset.manifest.provenance).expect("provenance serialises");
+        Ok(value)
+    }
+
+    pub fn dataset_drop(&self, name: &str) -> ServiceResult<Value> {
+        self.store.remove(name)?;
+        Ok(json!({ "dropped": name }))
+    }
+
+    pub fn dataset_import(&self, params: ImportParams) -> ServiceResult<Value> {
+        store::validate_name(&params.name)?;
+        if !params.overwrite && self.store.contains(&params.name) {
+            return Err(ServiceError::new(
+                ErrorKind::DatasetExists,
+                format!("a dataset named `{}` exists already", params.name),
+            )
+            .with_help("choose another name, drop the old dataset, or pass overwrite: true"));
+        }
+        let units_text: BTreeMap<String, String> = params
+            .units
+            .iter()
+            .map(|(c, u)| (c.clone(), u.unit().to_owned()))
+            .collect();
+        let (frame, provenance) =
+            match (&params.path, &params.columns) {
+                (Some(path), None) => {
+                    let resolved = self.roots.readable(Path::new(path))?;
+                    let format = match &params.format {
+                        Some(name) => FileFormat::parse(name)?,
+                        None => FileFormat::from_extension(&resolved)?,
+                    };
+                    let frame = tables::read_file(&resolved, format)?;
+                    let provenance = Provenance::File {
+                        path: resolved.display().to_string(),
+                        format: format.name().into(),
+                        units: units_text,
+                    };
+                    (frame, provenance)
+                }
+                (None, Some(columns)) => (
+                    tables::frame_from_json_columns(columns)?,
+                    Provenance::Inline { units: units_text },
+                ),
+                _ => return Err(
+                    ServiceError::invalid_params("give exactly one of `path` and `columns`").with_help(
+                        "path: a CSV, Parquet or Arrow IPC file inside the data roots; columns: {\"name\": [values]}",
+                    ),
+                ),
+            };
+        let frame = tables::apply_units(frame, &params.units)?;
+        let dataset = self.store.insert(&params.name, frame, provenance, params.overwrite)?;
+        Ok(Self::dataset_summary(&dataset))
+    }
+
+    pub fn dataset_export(&self, params: ExportParams) -> ServiceResult<Value> {
+        let dataset = self.store.get(&params.name)?;
+        let target = self.roots.writable(Path::new(&params.path))?;
+        let format = match &params.format {
+            Some(name) => FileFormat::parse(name)?,
+            None => FileFormat::from_extension(&target)?,
+        };
+        tables::write_file(&dataset.frame, &target, format)?;
+        Ok(
+            json!({ "name": params.name, "path": target.display().to_string(), "format": format.name(), "rows": dataset.frame.height() }),
+        )
+    }
+
+    pub fn dataset_rows(&self, params: RowsParams) -> ServiceResult<Value> {
+        let dataset = self.store.get(&params.name)?;
+        let limit = params.limit.unwrap_or(1000);
+        if limit > MAX_ROWS_PER_CALL {
+            return Err(
+                ServiceError::invalid_params(format!("limit {limit} is above {MAX_ROWS_PER_CALL}"))
+                    .with_help("page through the dataset with offset and limit, or export it to a file"),
+            );
+        }
+        let total = dataset.frame.height();
+        let offset = params.offset.min(total);
+        let slice = dataset.frame.slice(offset as i64, limit);
+        Ok(json!({ "total_rows": total, "offset": offset, "columns": frame_to_json_columns(&slice) }))
+    }
+
+    /// Sets the cancel flag of a running call.
+    pub fn cancel(&self, call_id: &str) -> Value {
+        let running = self.running.lock().expect("running calls");
+        match running.get(call_id) {
+            Some(control) => {
+                control.cancelled.store(true, Ordering::Relaxed);
+                json!({ "call_id": call_id, "cancelled": true })
+            }
+            None => json!({ "call_id": call_id, "cancelled": false, "reason": "no running call with that id" }),
+        }
+    }
+
+    /// Progress last reported by a running call.
+    pub fn progress(&self, call_id: &str) -> Value {
+        let running = self.running.lock().expect("running calls");
+        match running
+            .get(call_id)
+            .and_then(|c| c.progress.lock().ok().and_then(|p| p.clone()))
+        {
+            Some((fraction, message)) => {
+                json!({ "call_id": call_id, "running": true, "fraction": fraction, "message": message })
+            }
+            None => json!({ "call_id": call_id, "running": running.contains_key(call_id) }),
+        }
+    }
+
+    /// Resolves and type-checks the inputs of a run; returns them in declaration order.
+    fn prepare_inputs(&self, run: &RunParams) -> ServiceResult<Vec<(String, DataFrame)>> {
+        let entry = self
+            .host
+            .analyses
+            .get(&run.analysis)
+            .ok_or_else(|| self.unknown_analysis(&run.analysis))?;
+        let declared: Vec<&str> = entry.declaration.inputs.iter().map(|r| r.role.as_str()).collect();
+        for role in run.inputs.keys() {
+            if !declared.contains(&role.as_str()) {
+                return Err(
+                    ServiceError::invalid_params(format!("{} has no input role `{role}`", run.analysis))
+                        .with_help(format!("its roles are: {}", declared.join(", "))),
+                );
+            }
+        }
+        let mut prepared = Vec::new();
+        for role in &entry.declaration.inputs {
+            let Some(dataset_name) = run.inputs.get(&role.role) else {
+                if role.required {
+                    return Err(ServiceError::invalid_params(format!(
+                        "{} needs input role `{}`",
+                        run.analysis, role.role
+                    ))
+                    .with_help(format!("pass inputs: {{\"{}\": \"<dataset>\"}}", role.role)));
+                }
+                continue;
+            };
+            let mut frame = self.store.get(dataset_name)?.frame.clone();
+            for column in &role.columns {
+                conform_column(&mut frame, column, &role.role, dataset_name)?;
+            }
+            prepared.push((role.role.clone(), frame));
+        }
+        Ok(prepared)
+    }
+
+    /// Runs one analysis (once per group with `group_by`) and stores its output.
+    pub fn run_analysis(&self, run: RunParams) -> ServiceResult<Value> {
+        store::validate_name(&run.output)?;
+        if !run.overwrite && self.store.contains(&run.output) {
+            return Err(ServiceError::new(
+                ErrorKind::DatasetExists,
+                format!("a dataset named `{}` exists already", run.output),
+            )
+            .with_help("choose another output name, drop the old dataset, or pass overwrite: true"));
+        }
+        let entry = self
+            .host
+            .analyses
+            .get(&run.analysis)
+            .ok_or_else(|| self.unknown_analysis(&run.analysis))?;
+        let params = if run.params.is_null() {
+            json!({})
+        } else {
+            run.params.clone()
+        };
+        param_schema::validate(&entry.declaration.params, &params).map_err(|message| {
+            ServiceError::invalid_params(format!("{}: {message}", run.analysis)).with_help(format!(
+                "see analysis.describe {{\"analysis\": \"{}\"}} for the parameters",
+                run.analysis
+            ))
+        })?;
+        let inputs = self.prepare_inputs(&run)?;
+        let group_columns = run.group_by.columns();
+
+        let control = Arc::new(CallControl::default());
+        if let Some(id) = &run.call_id {
+            self.running
+                .lock()
+                .expect("running calls")
+                .insert(id.clone(), control.clone());
+        }
+        let outcome = self.run_groups(&run, &params, &inputs, &group_columns, &control);
+        if let Some(id) = &run.call_id {
+            self.running.lock().expect("running calls").remove(id);
+        }
+        let (table, summary, warnings) = outcome?;
+
+        let plugin = self
+            .host
+            .plugin_of(&run.analysis)
+            .expect("registered analysis has a plugin");
+        let provenance = Provenance::Analysis {
+            analysis: run.analysis.clone(),
+            plugin: plugin.name.clone(),
+            plugin_version: plugin.version.clone(),
+            params,
+            inputs: run.inputs.clone(),
+            group_by: group_columns,
+        };
+        let stored = self.store.insert(&run.output, table, provenance, run.overwrite)?;
+        Ok(json!({
+            "output": run.output,
+            "rows": stored.frame.height(),
+            "columns": stored.manifest.columns,
+            "summary": summary,
+            "warnings": warnings,
+        }))
+    }
+
+    #[allow(clippy::type_complexity)]
+    fn run_groups(
+        &self,
+        run: &RunParams,
+        params: &Value,
+        inputs: &[(String, DataFrame)],
+        group_columns: &[String],
+        control: &Arc<CallControl>,
+    ) -> ServiceResult<(DataFrame, Value, Vec<String>)> {
+        if group_columns.is_empty() {
+            let result = self
+                .host
+                .invoke(&run.analysis, params, inputs, control)
+                .map_err(|f| invoke_error(&run.analysis, f))?;
+            return Ok((result.table, result.summary, result.warnings));
+        }
+        let (_, primary) = inputs
+            .first()
+            .ok_or_else(|| ServiceError::invalid_params("group_by needs at least one input table"))?;
+        let groups = group_rows(primary, group_columns)?;
+        let mut combined: Option<DataFrame> = None;
+        let mut group_summaries = Vec::with_capacity(groups.len());
+        let mut warnings = Vec::new();
+        for (key, rows) in groups {
+            if control.cancelled.load(Ordering::Relaxed) {
+                return Err(ServiceError::new(
+                    ErrorKind::Cancelled,
+                    format!("{}: cancelled by the client", run.analysis),
+                ));
+            }
+            let label: Vec<String> = group_columns
+                .iter()
+                .zip(&key)
+                .map(|(c, v)| format!("{c}={v}"))
+                .collect();
+            let label = label.join(", ");
+            let mut group_inputs = Vec::with_capacity(inputs.len());
+            for (index, (role, frame)) in inputs.iter().enumerate() {
+                let has_keys = group_columns.iter().all(|c| frame.column(c).is_ok());
+                let subset = if index == 0 {
+                    frame.take(&IdxCa::from_vec(PlSmallStr::from_static("rows"), rows.clone()))
+                } else if has_keys {
+                    frame.take(&IdxCa::from_vec(
+                        PlSmallStr::from_static("rows"),
+                        rows_matching(frame, group_columns, &key),
+                    ))
+                } else {
+                    Ok(frame.clone())
+                }
+                .map_err(|e| ServiceError::new(ErrorKind::InvalidData, e.to_string()))?;
+                group_inputs.push((role.clone(), subset));
+            }
+            let result = self
+                .host
+                .invoke(&run.analysis, params, &group_inputs, control)
+                .map_err(|f| invoke_error(&format!("{} [{label}]", run.analysis), f))?;
+            let mut table = result.table;
+            for (position, (column, value)) in group_columns.iter().zip(&key).enumerate() {
+                if table.column(column).is_err() {
+                    let constant = Series::from_any_values(
+                        PlSmallStr::from_str(column),
+                        &vec![value.clone(); table.height()],
+                        true,
+                    )
+                    .map_err(|e| ServiceError::new(ErrorKind::PluginFailure, e.to_string()))?;
+                    table
+                        .insert_column(position, constant.into_column())
+                        .map_err(|e| ServiceError::new(ErrorKind::PluginFailure, e.to_string()))?;
+                }
+            }
+            warnings.extend(result.warnings.iter().map(|w| format!("[{label}] {w}")));
+            let group_object: serde_json::Map<String, Value> = group_columns
+                .iter()
+                .zip(&key)
+                .map(|(c, v)| (c.clone(), cell_to_json(v.clone())))
+                .collect();
+            group_summaries
+                .push(json!({ "group": group_object, "summary": result.summary, "warnings": result.warnings }));
+            combined = Some(match combined {
+                None => table,
+                Some(mut all) => {
+                    all.vstack_mut(&table).map_err(|e| {
+                        ServiceError::new(
+                            ErrorKind::PluginFailure,
+                            format!("{}: group outputs differ in their columns: {e}", run.analysis),
+                        )
+                    })?;
+                    all
+                }
+            });
+        }
+        let table = combined.ok_or_else(|| {
+            ServiceError::new(
+                ErrorKind::InvalidData,
+                format!(
+                    "{}: the first input table is empty; there is nothing to group",
+                    run.analysis
+                ),
+            )
+        })?;
+        Ok((table, json!({ "groups": group_summaries }), warnings))
+    }
+
+    /// Runs steps in order; a step may name an earlier step's output as an input. Every
+    /// step is checked before the first one runs.
+    pub fn run_pipeline(&self, pipeline: PipelineParams) -> ServiceResult<Value> {
+        if pipeline.steps.is_empty() {
+            return Err(ServiceError::invalid_params("the pipeline has no steps"));
+        }
+        let mut produced: Vec<&str> = Vec::new();
+        for (index, step) in pipeline.steps.iter().enumerate() {
+            let context = |e: ServiceError| ServiceError {
+                message: format!("step {} ({}): {}", index + 1, step.analysis, e.message),
+                ..e
+            };
+            if !self.host.analyses.contains_key(&step.analysis) {
+                return Err(context(self.unknown_analysis(&step.analysis)));
+            }
+            store::validate_name(&step.output).map_err(context)?;
+            for dataset in step.inputs.values() {
+                if !produced.contains(&dataset.as_str()) && !self.store.contains(dataset) {
+                    return Err(context(ServiceError::unknown_dataset(dataset)));
+                }
+            }
+            if produced.contains(&step.output.as_str()) {
+                return Err(context(ServiceError::invalid_params(format!(
+                    "output `{}` is produced by an earlier step",
+                    step.output
+                ))));
+            }
+            produced.push(&step.output);
+        }
+        let mut results = Vec::with_capacity(pipeline.steps.len());
+        for (index, step) in pipeline.steps.into_iter().enumerate() {
+            let analysis = step.analysis.clone();
+            let result = self.run_analysis(step).map_err(|e| {
+                let done: Vec<String> = results
+                    .iter()
+                    .filter_map(|r: &Value| r["output"].as_str().map(str::to_owned))
+                    .collect();
+                ServiceError {
+                    message: format!("step {} ({analysis}): {}", index + 1, e.message),
+                    help: Some(match &e.help {
+                        Some(help) => format!("{help}; steps before it stored: {}", done.join(", ")),
+                        None => format!(
+                            "steps before it stored: {}",
+                            if done.is_empty() {
+                                "none".into()
+                            } else {
+                                done.join(", ")
+                            }
+                        ),
+                    }),
+                    ..e
+                }
+            })?;
+            results.push(result);
+        }
+        Ok(json!({ "steps": results }))
+    }
+}

@@ -1,0 +1,235 @@
+//! How requests reach the methods: HTTP and WebSocket on one port, or stdio with
+//! `Content-Length` framing as language servers use.
+//!
+//! A web page must not be able to drive a local daemon: browsers attach an `Origin`
+//! header to cross-site requests and to every WebSocket handshake, so requests carrying an
+//! Origin that is not explicitly allowed (`--allow-origin`) are refused. Clients that are
+//! not browsers (the CLI, curl, notebooks' HTTP libraries) send no Origin and pass. When
+//! the daemon listens beyond loopback it requires `Authorization: Bearer <token>`.
+
+use jsonrpsee::server::{HttpBody, HttpRequest, HttpResponse, Server, ServerConfig, ServerHandle};
+use jsonrpsee::RpcModule;
+use std::future::Future;
+use std::net::SocketAddr;
+use std::pin::Pin;
+use std::sync::Arc;
+use std::task::{Context, Poll};
+use tokio::io::{AsyncBufReadExt, AsyncReadExt, AsyncWrite, AsyncWriteExt, BufReader};
+
+/// Largest request body the HTTP transport accepts (inline imports are the large ones).
+pub const MAX_REQUEST_BYTES: u32 = 64 * 1024 * 1024;
+/// Largest response body (a page of `dataset.rows`).
+pub const MAX_RESPONSE_BYTES: u32 = 256 * 1024 * 1024;
+/// Simultaneous connections.
+pub const MAX_CONNECTIONS: u32 = 64;
+/// Largest stdio frame.
+pub const MAX_STDIO_FRAME_BYTES: usize = 64 * 1024 * 1024;
+
+/// Who may call over HTTP and WebSocket.
+#[derive(Debug, Clone, Default)]
+pub struct AccessPolicy {
+    pub allowed_origins: Vec<String>,
+    pub token: Option<String>,
+}
+
+impl AccessPolicy {
+    /// `None` when the request may pass, else the reason for refusing it.
+    fn check(&self, request: &HttpRequest<impl Sized>) -> Option<(u16, String)> {
+        if let Some(origin) = request.headers().get("origin") {
+            let origin = origin.to_str().unwrap_or("");
+            if !self
+                .allowed_origins
+                .iter()
+                .any(|allowed| allowed == origin || allowed == "*")
+            {
+                return Some((
+                    403,
+                    format!("requests from origin {origin} are not allowed; start mobilisd with --allow-origin {origin} to allow this page"),
+                ));
+            }
+        }
+        if let Some(token) = &self.token {
+            let presented = request
+                .headers()
+                .get("authorization")
+                .and_then(|v| v.to_str().ok())
+                .and_then(|v| v.strip_prefix("Bearer "));
+            if presented != Some(token.as_str()) {
+                return Some((
+                    401,
+                    "this daemon requires the header `Authorization: Bearer <token>`".into(),
+                ));
+            }
+        }
+        None
+    }
+}
+
+/// Tower layer applying an [`AccessPolicy`] before any JSON-RPC processing.
+#[derive(Clone)]
+pub struct AccessLayer(Arc<AccessPolicy>);
+
+impl<S> tower::Layer<S> for AccessLayer {
+    type Service = AccessService<S>;
+    fn layer(&self, inner: S) -> Self::Service {
+        AccessService {
+            inner,
+            policy: self.0.clone(),
+        }
+    }
+}
+
+#[derive(Clone)]
+pub struct AccessService<S> {
+    inner: S,
+    policy: Arc<AccessPolicy>,
+}
+
+type BoxError = Box<dyn std::error::Error + Send + Sync>;
+
+impl<S, B> tower::Service<HttpRequest<B>> for AccessService<S>
+where
+    S: tower::Service<HttpRequest<B>, Response = HttpResponse>,
+    S::Error: Into<BoxError> + 'static,
+    S::Future: Send + 'static,
+{
+    type Response = HttpResponse;
+    type Error = BoxError;
+    type Future = Pin<Box<dyn Future<Output = Result<HttpResponse, BoxError>> + Send>>;
+
+    fn poll_ready(&mut self, cx: &mut Context<'_>) -> Poll<Result<(), Self::Error>> {
+        self.inner.poll_ready(cx).map_err(Into::into)
+    }
+
+    fn call(&mut self, request: HttpRequest<B>) -> Self::Future {
+        if let Some((status, message)) = self.policy.check(&request) {
+            tracing::warn!(status, %message, "request refused");
+            let body = serde_json::json!({
+                "jsonrpc": "2.0",
+                "id": null,
+                "error": {"code": -32600, "message": message}
+            })
+            .to_string();
+            let response = HttpResponse::builder()
+                .status(status)
+                .header("content-type", "application/json")
+                .body(HttpBody::from(body))
+                .expect("static response parts are valid");
+            return Box::pin(async move { Ok(response) });
+        }
+        let future = self.inner.call(request);
+        Box::pin(async move { future.await.map_err(Into::into) })
+    }
+}
+
+/// Starts the HTTP and WebSocket server; returns its address and handle.
+pub async fn serve_http<C: Send + Sync + 'static>(
+    address: SocketAddr,
+    module: RpcModule<C>,
+    policy: AccessPolicy,
+) -> std::io::Result<(SocketAddr, ServerHandle)> {
+    let middleware = tower::ServiceBuilder::new().layer(AccessLayer(Arc::new(policy)));
+    let config = ServerConfig::builder()
+        .max_request_body_size(MAX_REQUEST_BYTES)
+        .max_response_body_size(MAX_RESPONSE_BYTES)
+        .max_connections(MAX_CONNECTIONS)
+        .build();
+    let server = Server::builder()
+        .set_config(config)
+        .set_http_middleware(middleware)
+        .build(address)
+        .await?;
+    let local = server.local_addr()?;
+    Ok((local, server.start(module)))
+}
+
+async fn write_frame(output: &mut (impl AsyncWrite + Unpin), body: &str) -> std::io::Result<()> {
+    output
+        .write_all(format!("Content-Length: {}\r\n\r\n", body.len()).as_bytes())
+        .await?;
+    output.write_all(body.as_bytes()).await?;
+    output.flush().await
+}
+
+fn error_response(code: i32, message: &str) -> String {
+    serde_json::json!({"jsonrpc": "2.0", "id": null, "error": {"code": code, "message": message}}).to_string()
+}
+
+async fn answer_one<C: Send + Sync + 'static>(module: &RpcModule<C>, request: &serde_json::Value) -> Option<String> {
+    // A notification (no id) gets no response.
+    request.get("id")?;
+    match module.raw_json_request(&request.to_string(), 16).await {
+        Ok((response, _notifications)) => Some(response.get().to_owned()),
+        Err(_) => Some(error_response(-32600, "invalid request")),
+    }
+}
+
+/// Serves JSON-RPC over stdin and stdout until stdin closes. Each message is
+/// `Content-Length: N\r\n\r\n` followed by N bytes of JSON; batches are answered as batches.
+pub async fn serve_stdio<C: Send + Sync + 'static>(module: RpcModule<C>) -> std::io::Result<()> {
+    let mut input = BufReader::new(tokio::io::stdin());
+    let mut output = tokio::io::stdout();
+    loop {
+        let mut content_length: Option<usize> = None;
+        loop {
+            let mut line = String::new();
+            if input.read_line(&mut line).await? == 0 {
+                return Ok(());
+            }
+            let line = line.trim_end_matches(['\r', '\n']);
+            if line.is_empty() {
+                break;
+            }
+            if let Some((name, value)) = line.split_once(':') {
+                if name.trim().eq_ignore_ascii_case("content-length") {
+                    content_length = value.trim().parse().ok();
+                }
+            }
+        }
+        let Some(length) = content_length else {
+            write_frame(&mut output, &error_response(-32700, "missing Content-Length header")).await?;
+            continue;
+        };
+        if length > MAX_STDIO_FRAME_BYTES {
+            // Skip the body so the stream stays in step, then refuse.
+            tokio::io::copy(&mut (&mut input).take(length as u64), &mut tokio::io::sink()).await?;
+            write_frame(
+                &mut output,
+                &error_response(
+                    -32600,
+                    &format!("message of {length} bytes exceeds {MAX_STDIO_FRAME_BYTES}"),
+                ),
+            )
+            .await?;
+            continue;
+        }
+        let mut body = vec![0u8; length];
+        input.read_exact(&mut body).await?;
+        let parsed: serde_json::Value = match serde_json::from_slice(&body) {
+            Ok(value) => value,
+            Err(_) => {
+                write_frame(
+                    &mut output,
+                    &error_response(-32700, "parse error: the body is not JSON"),
+                )
+                .await?;
+                continue;
+            }
+        };
+        let reply = match &parsed {
+            serde_json::Value::Array(batch) => {
+                let mut answers = Vec::new();
+                for request in batch {
+                    if let Some(answer) = answer_one(&module, request).await {
+                        answers.push(answer);
+                    }
+                }
+                (!answers.is_empty()).then(|| format!("[{}]", answers.join(",")))
+            }
+            request => answer_one(&module, request).await,
+        };
+        if let Some(reply) = reply {
+            write_frame(&mut output, &reply).await?;
+        }
+    }
+}

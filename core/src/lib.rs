@@ -3,6 +3,7 @@
 //! - [`constants`]: CODATA 2018 physical constants.
 //! - [`units`]: the `quantity_unit` column convention and conversion from lab units to SI.
 //! - [`van_der_pauw`]: the exact van der Pauw relation and its derivatives.
+//! - [`noise`]: a portable, seeded random generator for the forward models.
 //! - [`forward`]: forward models, parameters in and raw readings out, shared by the demo
 //!   generator, the property tests and the plugins' fits.
 //! - [`abi`]: the C ABI between the daemon and plugin libraries (mirrored by

@@ -155,9 +155,10 @@ pub fn portable_ln(x: f64) -> f64 {
         series = series * s2 + 1.0 / (2 * order + 1) as f64;
     }
     let ln_mantissa = 2.0 * s * series;
-    // ln 2 in two parts: the high part has trailing zero bits, so k * high is exact.
-    const LN2_HIGH: f64 = 6.931_471_803_691_238_164_90e-1;
-    const LN2_LOW: f64 = 1.908_214_929_270_587_700_02e-10;
+    // ln 2 in two parts (the split of fdlibm's e_log.c): the high part ends in 21 zero
+    // bits, so k * high is exact for every exponent k of a double.
+    const LN2_HIGH: f64 = f64::from_bits(0x3FE6_2E42_FEE0_0000);
+    const LN2_LOW: f64 = f64::from_bits(0x3DEA_39EF_3579_3C76);
     let k = exponent as f64;
     k * LN2_HIGH + (ln_mantissa + k * LN2_LOW)
 }

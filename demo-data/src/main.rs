@@ -114,7 +114,11 @@ mod tests {
             let classified = classify_van_der_pauw(reading.i_in, reading.i_out, reading.v_pos, reading.v_neg).unwrap();
             assert_eq!(classified.configuration.is_hall(), reading.field_t != 0.0);
             assert!(reading.current_a.abs() >= 1e-9 && reading.current_a.abs() <= 1e-3);
-            assert!(reading.voltage_v.abs() < 0.05, "{reading:?}");
+            // At 20 K the frozen-out layer needs more than 10 mV even at the smallest current
+            // (the Hall resistance is near 4e8 ohm); from 25 K on the current keeps |V| <= 10 mV
+            // up to the noise and the thermoelectric offsets.
+            let limit_v = if reading.temperature_k < 22.5 { 0.5 } else { 10.1e-3 };
+            assert!(reading.voltage_v.abs() < limit_v, "{reading:?}");
         }
     }
 

@@ -1,1 +1,283 @@
-fn main() {}
+//! `mobilis`: the command-line client of the mobilis daemon.
+//!
+//! Every command except `serve` and `demo` talks to a running daemon (`--url`, default
+//! `http://127.0.0.1:8470`, or `$MOBILIS_URL`). `demo` starts its own daemon on a free port
+//! with a temporary workspace and runs the demo pipeline through it.
+
+mod demo;
+mod pipeline_file;
+mod table;
+
+use anyhow::{bail, Context};
+use clap::{Parser, Subcommand};
+use mobilis_client::Client;
+use serde_json::{json, Value};
+use std::path::{Path, PathBuf};
+
+/// Command-line client of the mobilis analysis daemon.
+#[derive(Parser, Debug)]
+#[command(name = "mobilis", version)]
+struct Cli {
+    /// Address of the daemon.
+    #[arg(long, global = true, env = "MOBILIS_URL", default_value = "http://127.0.0.1:8470")]
+    url: String,
+    /// Bearer token, for a daemon started with --token.
+    #[arg(long, global = true, env = "MOBILIS_TOKEN", hide_env_values = true)]
+    token: Option<String>,
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand, Debug)]
+enum Command {
+    /// Run the daemon in the foreground (arguments after -- go to mobilisd).
+    Serve {
+        #[arg(trailing_var_arg = true, allow_hyphen_values = true)]
+        arguments: Vec<String>,
+    },
+    /// Show the daemon's version, plugins and workspace.
+    Info,
+    /// List the analyses the loaded plugins offer.
+    Analyses,
+    /// Import a CSV, Parquet or Arrow IPC file (a path on the daemon's machine).
+    Import {
+        name: String,
+        path: PathBuf,
+        #[arg(long)]
+        format: Option<String>,
+        /// Convert a column into SI, e.g. --unit temperature_C=degC (repeatable).
+        #[arg(long = "unit", value_parser = parse_key_value)]
+        units: Vec<(String, String)>,
+        #[arg(long)]
+        overwrite: bool,
+    },
+    /// Run one analysis.
+    Run {
+        analysis: String,
+        /// role=dataset (repeatable).
+        #[arg(long = "input", value_parser = parse_key_value, required = true)]
+        inputs: Vec<(String, String)>,
+        /// Name of the output dataset.
+        #[arg(long)]
+        output: String,
+        /// Parameters as a JSON object.
+        #[arg(long, default_value = "{}")]
+        params: String,
+        /// Column to group by (repeatable).
+        #[arg(long = "group-by")]
+        group_by: Vec<String>,
+        #[arg(long)]
+        overwrite: bool,
+    },
+    /// Run a pipeline file (TOML: [[import]] and [[step]] tables; see DEVELOPERS.md).
+    Pipeline { file: PathBuf },
+    /// Show a dataset in the customary units of the trade (cm^-3, cm^2/(V s), ohm cm).
+    Show {
+        name: String,
+        #[arg(long, default_value_t = 0)]
+        offset: usize,
+        #[arg(long, default_value_t = 50)]
+        limit: usize,
+        /// Only these columns (repeatable).
+        #[arg(long = "column")]
+        columns: Vec<String>,
+        /// Keep SI units.
+        #[arg(long)]
+        si: bool,
+    },
+    /// List the stored datasets.
+    Datasets,
+    /// Write a dataset to a file (a path on the daemon's machine).
+    Export {
+        name: String,
+        path: PathBuf,
+        #[arg(long)]
+        format: Option<String>,
+    },
+    /// Call any method with JSON parameters and print the JSON result.
+    Call {
+        method: String,
+        #[arg(default_value = "{}")]
+        params: String,
+    },
+    /// Run the demo: a real daemon, the plugins loaded dynamically, the invented demo data.
+    Demo {
+        /// The demo-data directory (default: the one in the source tree).
+        #[arg(long)]
+        data: Option<PathBuf>,
+        /// Keep the daemon's workspace in this directory instead of a temporary one.
+        #[arg(long)]
+        workspace: Option<PathBuf>,
+    },
+}
+
+fn parse_key_value(text: &str) -> Result<(String, String), String> {
+    text.split_once('=')
+        .map(|(k, v)| (k.trim().to_owned(), v.trim().to_owned()))
+        .ok_or_else(|| format!("expected key=value, got `{text}`"))
+}
+
+/// Makes a local path absolute, so the daemon resolves it as the user meant.
+fn absolute(path: &Path) -> anyhow::Result<String> {
+    let path = if path.is_absolute() {
+        path.to_owned()
+    } else {
+        std::env::current_dir()?.join(path)
+    };
+    Ok(path.display().to_string())
+}
+
+#[tokio::main(flavor = "current_thread")]
+async fn main() {
+    let cli = Cli::parse();
+    if let Err(error) = run(cli).await {
+        eprintln!("error: {error:#}");
+        std::process::exit(1);
+    }
+}
+
+async fn connect(cli: &Cli) -> anyhow::Result<Client> {
+    Client::connect(&cli.url, cli.token.as_deref())
+        .await
+        .with_context(|| format!("is a daemon running at {}? start one with `mobilis serve`", cli.url))
+}
+
+async fn run(cli: Cli) -> anyhow::Result<()> {
+    match &cli.command {
+        Command::Serve { arguments } => {
+            let binary = mobilis_client::locate_daemon().context("cannot find mobilisd next to mobilis")?;
+            let status = std::process::Command::new(binary).args(arguments).status()?;
+            if !status.success() {
+                bail!("mobilisd exited with {status}");
+            }
+            Ok(())
+        }
+        Command::Demo { data, workspace } => demo::run(data.clone(), workspace.clone()).await,
+        Command::Info => print_json(&connect(&cli).await?.call("server.info", json!({})).await?),
+        Command::Analyses => {
+            let list = connect(&cli).await?.call("analysis.list", json!({})).await?;
+            for entry in list.as_array().into_iter().flatten() {
+                println!(
+                    "{:<32} {}",
+                    entry["name"].as_str().unwrap_or(""),
+                    entry["summary"].as_str().unwrap_or("")
+                );
+            }
+            Ok(())
+        }
+        Command::Datasets => {
+            let list = connect(&cli).await?.call("dataset.list", json!({})).await?;
+            for entry in list.as_array().into_iter().flatten() {
+                println!(
+                    "{:<32} {:>10} rows",
+                    entry["name"].as_str().unwrap_or(""),
+                    entry["rows"]
+                );
+            }
+            Ok(())
+        }
+        Command::Import {
+            name,
+            path,
+            format,
+            units,
+            overwrite,
+        } => {
+            let units: serde_json::Map<String, Value> = units.iter().map(|(c, u)| (c.clone(), json!(u))).collect();
+            let mut params = json!({ "name": name, "path": absolute(path)?, "units": units, "overwrite": overwrite });
+            if let Some(format) = format {
+                params["format"] = json!(format);
+            }
+            let result = connect(&cli).await?.call("dataset.import", params).await?;
+            println!(
+                "imported {} ({} rows)",
+                result["name"].as_str().unwrap_or(name),
+                result["rows"]
+            );
+            Ok(())
+        }
+        Command::Run {
+            analysis,
+            inputs,
+            output,
+            params,
+            group_by,
+            overwrite,
+        } => {
+            let params: Value = serde_json::from_str(params).context("--params must be a JSON object")?;
+            let inputs: serde_json::Map<String, Value> = inputs.iter().map(|(r, d)| (r.clone(), json!(d))).collect();
+            let request = json!({
+                "analysis": analysis, "inputs": inputs, "params": params, "output": output,
+                "group_by": group_by, "overwrite": overwrite,
+            });
+            let result = connect(&cli).await?.call("analysis.run", request).await?;
+            print_run_result(&result);
+            Ok(())
+        }
+        Command::Pipeline { file } => {
+            let client = connect(&cli).await?;
+            let results = pipeline_file::run(&client, file).await?;
+            for result in results.as_array().into_iter().flatten() {
+                print_run_result(result);
+            }
+            Ok(())
+        }
+        Command::Show {
+            name,
+            offset,
+            limit,
+            columns,
+            si,
+        } => {
+            let client = connect(&cli).await?;
+            let page = client
+                .call(
+                    "dataset.rows",
+                    json!({ "name": name, "offset": offset, "limit": limit }),
+                )
+                .await?;
+            let rendered = table::render(&page["columns"], columns, !si);
+            print!("{rendered}");
+            let total = page["total_rows"].as_u64().unwrap_or(0);
+            println!(
+                "rows {}..{} of {total}",
+                offset,
+                (*offset as u64 + *limit as u64).min(total)
+            );
+            Ok(())
+        }
+        Command::Export { name, path, format } => {
+            let mut params = json!({ "name": name, "path": absolute(path)? });
+            if let Some(format) = format {
+                params["format"] = json!(format);
+            }
+            let result = connect(&cli).await?.call("dataset.export", params).await?;
+            println!(
+                "wrote {} rows to {}",
+                result["rows"],
+                result["path"].as_str().unwrap_or("")
+            );
+            Ok(())
+        }
+        Command::Call { method, params } => {
+            let params: Value = serde_json::from_str(params).context("parameters must be JSON")?;
+            print_json(&connect(&cli).await?.call(method, params).await?)
+        }
+    }
+}
+
+fn print_json(value: &Value) -> anyhow::Result<()> {
+    println!("{}", serde_json::to_string_pretty(value)?);
+    Ok(())
+}
+
+fn print_run_result(result: &Value) {
+    println!(
+        "{} -> {} rows",
+        result["output"].as_str().unwrap_or("?"),
+        result["rows"]
+    );
+    for warning in result["warnings"].as_array().into_iter().flatten() {
+        println!("  warning: {}", warning.as_str().unwrap_or(""));
+    }
+}

@@ -261,7 +261,7 @@ pub fn solve_charge_neutrality(
     require_positive("temperature_k", temperature_k)?;
     let thermal_ev = BOLTZMANN_EV_PER_K * temperature_k;
     let band_gap_ev = bands.band_gap_ev(temperature_k);
-    if !(band_gap_ev > 0.0) {
+    if band_gap_ev.is_nan() || band_gap_ev <= 0.0 {
         return Err(ForwardError::InvalidParameter {
             name: "temperature_k",
             value: temperature_k,
@@ -368,7 +368,7 @@ pub fn compensated_donor_root_m3(
     require_non_negative("freeze_out_constant_m3", freeze_out_constant_m3)?;
     require_finite("donor_density_m3", donor_density_m3)?;
     let net_donors = donor_density_m3 - acceptor_density_m3;
-    if !(net_donors > 0.0) {
+    if net_donors.is_nan() || net_donors <= 0.0 {
         return Err(ForwardError::InvalidParameter {
             name: "donor_density_m3",
             value: donor_density_m3,
@@ -517,8 +517,8 @@ mod tests {
     }
 
     // Intrinsic limit: n = p = n_i with n_i^2 = Nc Nv exp(-Eg / kT) (mass action, standard
-    // texts); the Levinshtein bands give n_i(300 K) = 8.68e9 cm^-3 (check-values, computed
-    // from those expressions).
+    // texts); the Levinshtein, Rumyantsev and Shur bands give n_i(300 K) = 8.68e9 cm^-3
+    // (computed from their Nc, Nv and Eg expressions).
     #[test]
     fn undoped_material_is_intrinsic() {
         let bands = BandModel::silicon();

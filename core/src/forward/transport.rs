@@ -169,8 +169,8 @@ mod tests {
             layer.hall_mobility_m2_per_vs,
             1e-12
         ));
-        // Lightly doped Si at 300 K: electrons about 1400 cm^2/Vs (check-values [R]); the
-        // impurity term takes a few percent off the 1448 lattice value.
+        // Lightly doped Si at 300 K: electrons about 1400 cm^2/Vs (common handbook value); the
+        // impurity term takes a few percent off the 1448 lattice value of Arora et al. (1982).
         let mobility_cm2 = layer.mobility_m2_per_vs * 1e4;
         assert!(mobility_cm2 > 1300.0 && mobility_cm2 < 1448.0, "{mobility_cm2}");
     }

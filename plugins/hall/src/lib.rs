@@ -1,2 +1,593 @@
-#![allow(dead_code)]
-mod reduce;
+//! The `hall` plugin: `hall.reduce`, raw four-terminal readings (van der Pauw or Hall bar)
+//! to one row per sample, temperature and field magnitude with sheet resistance,
+//! resistivity, Hall coefficient, carrier type, density and mobility, their uncertainties
+//! and quality flags.
+//!
+//! This file is the table glue: the physics is in [`reduce`] and knows nothing of
+//! DataFrames; the C side is written by `mobilis_core::export_plugin!`.
+
+pub mod reduce;
+
+use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
+use mobilis_core::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
+use polars::prelude::*;
+use reduce::{flags, Geometry, QualityThresholds, ReadingColumns, ReduceSettings, ReducedRow, SampleInfo};
+use serde::Deserialize;
+use serde_json::json;
+
+/// `hall.reduce`.
+pub struct HallReduce;
+
+/// Parameters of `hall.reduce`; every one has a documented default.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ReduceParams {
+    #[serde(rename = "temperature_tolerance_K", default = "defaults::temperature_tolerance")]
+    pub temperature_tolerance_k: f64,
+    #[serde(rename = "zero_field_tolerance_T", default = "defaults::zero_field_tolerance")]
+    pub zero_field_tolerance_t: f64,
+    #[serde(rename = "field_tolerance_T", default = "defaults::field_tolerance")]
+    pub field_tolerance_t: f64,
+    #[serde(default = "defaults::reciprocity")]
+    pub reciprocity_tolerance: f64,
+    #[serde(default = "defaults::resistance_ratio")]
+    pub max_resistance_ratio: f64,
+    #[serde(default = "defaults::hall_spread")]
+    pub hall_spread_tolerance: f64,
+    #[serde(default = "defaults::thermoelectric")]
+    pub thermoelectric_offset_ratio: f64,
+    #[serde(default = "defaults::misalignment")]
+    pub misalignment_ratio: f64,
+    #[serde(default = "defaults::current_reversal")]
+    pub current_reversal_tolerance: f64,
+    #[serde(default)]
+    pub skip_invalid_readings: bool,
+}
+
+mod defaults {
+    use super::{QualityThresholds, ReduceSettings};
+    pub fn temperature_tolerance() -> f64 {
+        ReduceSettings::default().temperature_tolerance_k
+    }
+    pub fn zero_field_tolerance() -> f64 {
+        ReduceSettings::default().zero_field_tolerance_t
+    }
+    pub fn field_tolerance() -> f64 {
+        ReduceSettings::default().field_tolerance_t
+    }
+    pub fn reciprocity() -> f64 {
+        QualityThresholds::default().reciprocity_tolerance
+    }
+    pub fn resistance_ratio() -> f64 {
+        QualityThresholds::default().max_resistance_ratio
+    }
+    pub fn hall_spread() -> f64 {
+        QualityThresholds::default().hall_spread_tolerance
+    }
+    pub fn thermoelectric() -> f64 {
+        QualityThresholds::default().thermoelectric_offset_ratio
+    }
+    pub fn misalignment() -> f64 {
+        QualityThresholds::default().misalignment_ratio
+    }
+    pub fn current_reversal() -> f64 {
+        QualityThresholds::default().current_reversal_tolerance
+    }
+}
+
+impl ReduceParams {
+    fn settings(&self) -> ReduceSettings {
+        ReduceSettings {
+            temperature_tolerance_k: self.temperature_tolerance_k,
+            zero_field_tolerance_t: self.zero_field_tolerance_t,
+            field_tolerance_t: self.field_tolerance_t,
+            thresholds: QualityThresholds {
+                reciprocity_tolerance: self.reciprocity_tolerance,
+                max_resistance_ratio: self.max_resistance_ratio,
+                hall_spread_tolerance: self.hall_spread_tolerance,
+                thermoelectric_offset_ratio: self.thermoelectric_offset_ratio,
+                misalignment_ratio: self.misalignment_ratio,
+                current_reversal_tolerance: self.current_reversal_tolerance,
+            },
+            skip_invalid_readings: self.skip_invalid_readings,
+        }
+    }
+}
+
+fn params_schema() -> serde_json::Value {
+    let settings = ReduceSettings::default();
+    let thresholds = settings.thresholds;
+    let number = |default: f64, description: &str| json!({"type": "number", "minimum": 0, "default": default, "description": description});
+    json!({
+        "type": "object",
+        "additionalProperties": false,
+        "properties": {
+            "temperature_tolerance_K": number(settings.temperature_tolerance_k, "readings whose sorted temperatures are no further apart than this share a row, K"),
+            "zero_field_tolerance_T": number(settings.zero_field_tolerance_t, "|B| at or below this counts as zero field, T"),
+            "field_tolerance_T": number(settings.field_tolerance_t, "readings whose sorted |B| are no further apart than this share a row, T"),
+            "reciprocity_tolerance": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.reciprocity_tolerance, "description": "flag `reciprocity` above this |direct - reciprocal| / mean (common practice)"},
+            "max_resistance_ratio": {"type": "number", "minimum": 1, "default": thresholds.max_resistance_ratio, "description": "flag `resistance_ratio` above this max(R_A/R_B, R_B/R_A) (common practice)"},
+            "hall_spread_tolerance": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.hall_spread_tolerance, "description": "flag `hall_inconsistent` above this (max - min) / |mean| of the Hall resistances (common practice)"},
+            "thermoelectric_offset_ratio": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.thermoelectric_offset_ratio, "description": "flag `large_offset` above this |V_offset| / |R I| (common practice)"},
+            "misalignment_ratio": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.misalignment_ratio, "description": "flag `large_offset` above this field-even / field-odd ratio of the Hall configurations (common practice)"},
+            "current_reversal_tolerance": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.current_reversal_tolerance, "description": "flag `current_reversal` above this |R(+I) - R(-I)| / mean (common practice)"},
+            "skip_invalid_readings": {"type": "boolean", "default": false, "description": "drop invalid readings (zero current, NaN, bad contacts) with a warning instead of refusing the input"}
+        }
+    })
+}
+
+/// How one output column is read from a reduced row.
+enum Getter {
+    Float(fn(&ReducedRow) -> Option<f64>),
+    Text(fn(&ReducedRow) -> Option<String>),
+    Count(fn(&ReducedRow) -> i64),
+    Flag(fn(&ReducedRow) -> bool),
+}
+
+/// The output table: one entry per column, used both to declare and to build it.
+const OUTPUT: &[(&str, Option<&str>, &str, Getter)] = &[
+    ("sample", None, "sample name", Getter::Text(|r| Some(r.sample.clone()))),
+    (
+        "geometry",
+        None,
+        "van_der_pauw or hall_bar",
+        Getter::Text(|r| Some(r.geometry.to_owned())),
+    ),
+    (
+        "temperature_K",
+        Some("K"),
+        "mean temperature of the group",
+        Getter::Float(|r| Some(r.temperature_k)),
+    ),
+    (
+        "temperature_spread_K",
+        Some("K"),
+        "max - min of the group's temperatures",
+        Getter::Float(|r| Some(r.temperature_spread_k)),
+    ),
+    (
+        "field_T",
+        Some("T"),
+        "|B| of the Hall quantities; null without field readings",
+        Getter::Float(|r| r.field_t),
+    ),
+    (
+        "reading_count",
+        None,
+        "readings that entered the row",
+        Getter::Count(|r| r.reading_count as i64),
+    ),
+    (
+        "resistance_a_ohm",
+        Some("ohm"),
+        "van der Pauw R_A (Hall bar: R_xx)",
+        Getter::Float(|r| r.resistance_a_ohm),
+    ),
+    (
+        "resistance_b_ohm",
+        Some("ohm"),
+        "van der Pauw R_B",
+        Getter::Float(|r| r.resistance_b_ohm),
+    ),
+    (
+        "resistance_ratio",
+        None,
+        "max(R_A/R_B, R_B/R_A)",
+        Getter::Float(|r| r.resistance_ratio),
+    ),
+    (
+        "geometry_factor",
+        None,
+        "van der Pauw f of R_s = pi (R_A + R_B) f / (2 ln 2)",
+        Getter::Float(|r| r.geometry_factor),
+    ),
+    (
+        "sheet_resistance_ohm_sq",
+        Some("ohm_sq"),
+        "sheet resistance from van der Pauw's exact equation (Hall bar: R_xx W / L)",
+        Getter::Float(|r| r.sheet_resistance_ohm_sq),
+    ),
+    (
+        "sheet_resistance_ohm_sq_unc",
+        Some("ohm_sq"),
+        "standard uncertainty",
+        Getter::Float(|r| r.sheet_resistance_ohm_sq_unc),
+    ),
+    (
+        "resistivity_ohm_m",
+        Some("ohm_m"),
+        "R_s t; null for a 2D sample",
+        Getter::Float(|r| r.resistivity_ohm_m),
+    ),
+    (
+        "resistivity_ohm_m_unc",
+        Some("ohm_m"),
+        "standard uncertainty",
+        Getter::Float(|r| r.resistivity_ohm_m_unc),
+    ),
+    (
+        "hall_resistance_ohm",
+        Some("ohm"),
+        "R_xy at field_T, positive for holes",
+        Getter::Float(|r| r.hall_resistance_ohm),
+    ),
+    (
+        "hall_resistance_ohm_unc",
+        Some("ohm"),
+        "standard uncertainty",
+        Getter::Float(|r| r.hall_resistance_ohm_unc),
+    ),
+    (
+        "sheet_hall_coefficient_m2_per_C",
+        Some("m2_per_C"),
+        "R_Hs = R_xy / |B|",
+        Getter::Float(|r| r.sheet_hall_coefficient_m2_per_c),
+    ),
+    (
+        "sheet_hall_coefficient_m2_per_C_unc",
+        Some("m2_per_C"),
+        "standard uncertainty",
+        Getter::Float(|r| r.sheet_hall_coefficient_m2_per_c_unc),
+    ),
+    (
+        "hall_coefficient_m3_per_C",
+        Some("m3_per_C"),
+        "R_H = R_Hs t; null for a 2D sample",
+        Getter::Float(|r| r.hall_coefficient_m3_per_c),
+    ),
+    (
+        "hall_coefficient_m3_per_C_unc",
+        Some("m3_per_C"),
+        "standard uncertainty",
+        Getter::Float(|r| r.hall_coefficient_m3_per_c_unc),
+    ),
+    (
+        "carrier_type",
+        None,
+        "n or p from the sign of the Hall coefficient",
+        Getter::Text(|r| r.carrier_type.map(str::to_owned)),
+    ),
+    (
+        "sheet_density_m2",
+        Some("m2"),
+        "r_H / (e |R_Hs|)",
+        Getter::Float(|r| r.sheet_density_m2),
+    ),
+    (
+        "sheet_density_m2_unc",
+        Some("m2"),
+        "standard uncertainty",
+        Getter::Float(|r| r.sheet_density_m2_unc),
+    ),
+    (
+        "density_m3",
+        Some("m3"),
+        "sheet density / t; null for a 2D sample",
+        Getter::Float(|r| r.density_m3),
+    ),
+    (
+        "density_m3_unc",
+        Some("m3"),
+        "standard uncertainty (includes the thickness uncertainty)",
+        Getter::Float(|r| r.density_m3_unc),
+    ),
+    (
+        "hall_mobility_m2_per_Vs",
+        Some("m2_per_Vs"),
+        "|R_Hs| / R_s",
+        Getter::Float(|r| r.hall_mobility_m2_per_vs),
+    ),
+    (
+        "hall_mobility_m2_per_Vs_unc",
+        Some("m2_per_Vs"),
+        "standard uncertainty",
+        Getter::Float(|r| r.hall_mobility_m2_per_vs_unc),
+    ),
+    (
+        "drift_mobility_m2_per_Vs",
+        Some("m2_per_Vs"),
+        "Hall mobility / r_H",
+        Getter::Float(|r| r.drift_mobility_m2_per_vs),
+    ),
+    (
+        "drift_mobility_m2_per_Vs_unc",
+        Some("m2_per_Vs"),
+        "standard uncertainty",
+        Getter::Float(|r| r.drift_mobility_m2_per_vs_unc),
+    ),
+    (
+        "hall_factor",
+        None,
+        "Hall scattering factor r_H used",
+        Getter::Float(|r| Some(r.hall_factor)),
+    ),
+    (
+        "reciprocity_mismatch",
+        None,
+        "largest |direct - reciprocal| / mean of R_A and R_B",
+        Getter::Float(|r| r.reciprocity_mismatch),
+    ),
+    (
+        "current_reversal_mismatch",
+        None,
+        "largest |R(+I) - R(-I)| / mean",
+        Getter::Float(|r| r.current_reversal_mismatch),
+    ),
+    (
+        "hall_spread",
+        None,
+        "(max - min) / |mean| of the Hall resistances of the configurations",
+        Getter::Float(|r| r.hall_spread),
+    ),
+    (
+        "thermoelectric_offset_ratio",
+        None,
+        "largest |V_offset| / |R I|",
+        Getter::Float(|r| r.thermoelectric_offset_ratio),
+    ),
+    (
+        "misalignment_ratio",
+        None,
+        "largest field-even / field-odd part of the Hall configurations",
+        Getter::Float(|r| r.misalignment_ratio),
+    ),
+    (
+        "flags",
+        None,
+        "raised quality flags, comma-separated (see DEVELOPERS.md)",
+        Getter::Text(|r| Some(r.flags.join(","))),
+    ),
+    (
+        "quality_ok",
+        None,
+        "true when no flag is raised",
+        Getter::Flag(|r| r.quality_ok),
+    ),
+];
+
+fn column_type(getter: &Getter) -> ColumnType {
+    match getter {
+        Getter::Float(_) => ColumnType::F64,
+        Getter::Text(_) => ColumnType::Str,
+        Getter::Count(_) => ColumnType::I64,
+        Getter::Flag(_) => ColumnType::Bool,
+    }
+}
+
+fn output_table(rows: &[ReducedRow]) -> Result<DataFrame, AnalysisError> {
+    let columns: Vec<Column> = OUTPUT
+        .iter()
+        .map(|(name, _, _, getter)| {
+            let name = PlSmallStr::from_static(name);
+            match getter {
+                Getter::Float(get) => Column::new(name, rows.iter().map(get).collect::<Vec<_>>()),
+                Getter::Text(get) => Column::new(name, rows.iter().map(get).collect::<Vec<_>>()),
+                Getter::Count(get) => Column::new(name, rows.iter().map(get).collect::<Vec<_>>()),
+                Getter::Flag(get) => Column::new(name, rows.iter().map(get).collect::<Vec<_>>()),
+            }
+        })
+        .collect();
+    DataFrame::new(rows.len(), columns).map_err(|e| AnalysisError::Numerical(e.to_string()))
+}
+
+/// A float column as a slice: zero-copy when it has one chunk and no nulls (nulls become NaN,
+/// which the reduction reports by row).
+fn floats<'a>(frame: &'a DataFrame, name: &str, storage: &'a mut Vec<f64>) -> Result<&'a [f64], AnalysisError> {
+    let column = frame
+        .column(name)
+        .map_err(|_| AnalysisError::InvalidInput(format!("column `{name}` is missing from the readings")))?;
+    let values = column
+        .f64()
+        .map_err(|_| AnalysisError::InvalidInput(format!("column `{name}` must hold numbers")))?;
+    if let Ok(slice) = values.cont_slice() {
+        return Ok(slice);
+    }
+    *storage = values.iter().map(|v| v.unwrap_or(f64::NAN)).collect();
+    Ok(storage)
+}
+
+fn integers<'a>(frame: &'a DataFrame, name: &str, storage: &'a mut Vec<i64>) -> Result<&'a [i64], AnalysisError> {
+    let column = frame
+        .column(name)
+        .map_err(|_| AnalysisError::InvalidInput(format!("column `{name}` is missing from the readings")))?;
+    let values = column
+        .i64()
+        .map_err(|_| AnalysisError::InvalidInput(format!("column `{name}` must hold whole contact numbers")))?;
+    if let Ok(slice) = values.cont_slice() {
+        return Ok(slice);
+    }
+    *storage = Vec::with_capacity(values.len());
+    for (row, value) in values.iter().enumerate() {
+        storage.push(value.ok_or_else(|| {
+            AnalysisError::InvalidInput(format!(
+                "reading {row}: `{name}` is empty; every reading needs its four contact numbers"
+            ))
+        })?);
+    }
+    Ok(storage)
+}
+
+/// Reads the sample sheet (role `samples`).
+fn sample_sheet(frame: &DataFrame) -> Result<Vec<SampleInfo>, AnalysisError> {
+    let names = sdk::string_column(frame, "sample")?;
+    let thickness = sdk::float_column(frame, "thickness_m")?;
+    let optional_floats = |name: &str| -> Result<Vec<Option<f64>>, AnalysisError> {
+        if frame.column(name).is_ok() {
+            sdk::float_column(frame, name)
+        } else {
+            Ok(vec![None; frame.height()])
+        }
+    };
+    let thickness_unc = optional_floats("thickness_m_unc")?;
+    let hall_factor = optional_floats("hall_factor")?;
+    let bar_length = optional_floats("bar_length_m")?;
+    let bar_width = optional_floats("bar_width_m")?;
+    let geometry = if frame.column("geometry").is_ok() {
+        sdk::string_column(frame, "geometry")?
+    } else {
+        vec![None; frame.height()]
+    };
+
+    let mut samples: Vec<SampleInfo> = Vec::with_capacity(frame.height());
+    for row in 0..frame.height() {
+        let name = names[row]
+            .clone()
+            .ok_or_else(|| AnalysisError::InvalidInput(format!("sample sheet row {row}: `sample` is empty")))?;
+        if samples.iter().any(|s| s.name == name) {
+            return Err(AnalysisError::InvalidInput(format!(
+                "sample sheet lists `{name}` twice; keep one row per sample"
+            )));
+        }
+        let geometry = match geometry[row].as_deref() {
+            None | Some("van_der_pauw") | Some("vdp") => Geometry::VanDerPauw,
+            Some("hall_bar") => match (bar_length[row], bar_width[row]) {
+                (Some(length_m), Some(width_m)) => Geometry::HallBar { length_m, width_m },
+                _ => {
+                    return Err(AnalysisError::InvalidInput(format!(
+                        "sample `{name}` is a hall_bar: give bar_length_m (between the longitudinal voltage contacts) and bar_width_m"
+                    )))
+                }
+            },
+            Some(other) => {
+                return Err(AnalysisError::InvalidInput(format!(
+                    "sample `{name}`: geometry `{other}` is unknown; use van_der_pauw or hall_bar"
+                )))
+            }
+        };
+        samples.push(SampleInfo {
+            name,
+            thickness_m: thickness[row],
+            thickness_unc_m: thickness_unc[row],
+            hall_factor: hall_factor[row].unwrap_or(1.0),
+            geometry,
+        });
+    }
+    Ok(samples)
+}
+
+fn column(name: &str, dtype: ColumnType, unit: Option<&str>, description: &str) -> ColumnSpec {
+    ColumnSpec::new(name, dtype, unit, description)
+}
+
+impl Analysis for HallReduce {
+    const NAME: &'static str = "hall.reduce";
+    type Params = ReduceParams;
+
+    fn declaration() -> AnalysisDeclaration {
+        use ColumnType::*;
+        AnalysisDeclaration {
+            name: String::new(),
+            summary: "Raw van der Pauw or Hall-bar readings to sheet resistance, resistivity, carrier type, density and Hall mobility per sample, temperature and field".into(),
+            description: "Resistances from whichever configurations are present (current reversal by source sign or swapped leads), sheet resistance from van der Pauw's exact equation, Hall coefficient from the field-odd part of the diagonal (or transverse) configurations, so thermoelectric and misalignment offsets cancel. Uncertainties from the spread of redundant configurations and fit residuals; quality flags with configurable thresholds. Contact numbering: counterclockwise 1-4 seen from the +B side (van der Pauw); 1-6 for Hall bars as described in DEVELOPERS.md.".into(),
+            params: params_schema(),
+            inputs: vec![
+                InputRole {
+                    role: "readings".into(),
+                    required: true,
+                    description: "one row per four-terminal reading".into(),
+                    columns: vec![
+                        column("sample", Str, None, "sample name"),
+                        column("temperature_K", F64, Some("K"), "sample temperature"),
+                        column("field_T", F64, Some("T"), "magnetic field, signed"),
+                        column("i_in", I64, None, "contact the current enters"),
+                        column("i_out", I64, None, "contact the current leaves"),
+                        column("v_pos", I64, None, "voltmeter positive contact"),
+                        column("v_neg", I64, None, "voltmeter negative contact"),
+                        column("current_A", F64, Some("A"), "current entering at i_in; negative for a reversed source"),
+                        column("voltage_V", F64, Some("V"), "V(v_pos) - V(v_neg)"),
+                    ],
+                },
+                InputRole {
+                    role: "samples".into(),
+                    required: false,
+                    description: "the sample sheet; without it every sample is a 2D van der Pauw sample with Hall factor 1".into(),
+                    columns: vec![
+                        column("sample", Str, None, "sample name"),
+                        column("thickness_m", F64, Some("m"), "conducting thickness; null for a 2D sheet"),
+                        column("thickness_m_unc", F64, Some("m"), "standard uncertainty of the thickness").optional(),
+                        column("hall_factor", F64, None, "Hall scattering factor r_H (default 1)").optional(),
+                        column("geometry", Str, None, "van_der_pauw (default) or hall_bar").optional(),
+                        column("bar_length_m", F64, Some("m"), "Hall bar: distance between the longitudinal voltage contacts").optional(),
+                        column("bar_width_m", F64, Some("m"), "Hall bar: width").optional(),
+                    ],
+                },
+            ],
+            outputs: OUTPUT.iter().map(|(name, unit, description, getter)| column(name, column_type(getter), *unit, description)).collect(),
+            summary_keys: vec![
+                column("rows", I64, None, "rows of the output table"),
+                column("samples", Str, None, "list of the samples reduced"),
+                column("flagged_rows", I64, None, "rows with at least one quality flag"),
+                column("flag_counts", Str, None, "object: rows raising each flag"),
+                column("skipped_readings", I64, None, "invalid readings dropped under skip_invalid_readings"),
+            ],
+        }
+    }
+
+    fn run(params: ReduceParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
+        let readings = inputs.required("readings")?;
+        let samples = inputs.optional("samples").map(sample_sheet).transpose()?;
+        host.progress(0.0, "reading columns");
+
+        let sample_column = readings
+            .column("sample")
+            .map_err(|_| AnalysisError::InvalidInput("column `sample` is missing from the readings".into()))?
+            .str()
+            .map_err(|_| AnalysisError::InvalidInput("column `sample` must hold text".into()))?;
+        let mut sample_names: Vec<&str> = Vec::with_capacity(sample_column.len());
+        for (row, name) in sample_column.iter().enumerate() {
+            sample_names.push(name.ok_or_else(|| {
+                AnalysisError::InvalidInput(format!(
+                    "reading {row}: `sample` is empty; name the sample of every reading"
+                ))
+            })?);
+        }
+        let (mut s1, mut s2, mut s3, mut s4) = (Vec::new(), Vec::new(), Vec::new(), Vec::new());
+        let (mut c1, mut c2, mut c3, mut c4) = (Vec::new(), Vec::new(), Vec::new(), Vec::new());
+        let columns = ReadingColumns {
+            sample: &sample_names,
+            temperature_k: floats(readings, "temperature_K", &mut s1)?,
+            field_t: floats(readings, "field_T", &mut s2)?,
+            i_in: integers(readings, "i_in", &mut c1)?,
+            i_out: integers(readings, "i_out", &mut c2)?,
+            v_pos: integers(readings, "v_pos", &mut c3)?,
+            v_neg: integers(readings, "v_neg", &mut c4)?,
+            current_a: floats(readings, "current_A", &mut s3)?,
+            voltage_v: floats(readings, "voltage_V", &mut s4)?,
+        };
+        host.check_cancelled()?;
+        let reduction = reduce::reduce_columns(&columns, samples.as_deref(), &params.settings())
+            .map_err(|error| AnalysisError::InvalidInput(error.to_string()))?;
+        host.progress(0.9, "building the output table");
+
+        let mut output = AnalysisOutput::new(output_table(&reduction.rows)?);
+        let mut sample_list: Vec<&str> = reduction.rows.iter().map(|r| r.sample.as_str()).collect();
+        sample_list.dedup();
+        let flag_counts: serde_json::Map<String, serde_json::Value> = flags::ALL
+            .iter()
+            .map(|flag| {
+                (
+                    flag.to_string(),
+                    json!(reduction.rows.iter().filter(|r| r.flags.contains(flag)).count()),
+                )
+            })
+            .filter(|(_, count)| count != &json!(0))
+            .collect();
+        output.summary.insert("rows".into(), json!(reduction.rows.len()));
+        output.summary.insert("samples".into(), json!(sample_list));
+        output.summary.insert(
+            "flagged_rows".into(),
+            json!(reduction.rows.iter().filter(|r| !r.quality_ok).count()),
+        );
+        output
+            .summary
+            .insert("flag_counts".into(), serde_json::Value::Object(flag_counts));
+        output
+            .summary
+            .insert("skipped_readings".into(), json!(reduction.skipped_readings));
+        output.warnings = reduction.warnings;
+        host.progress(1.0, "done");
+        Ok(output)
+    }
+}
+
+mobilis_core::export_plugin!(name: "hall", analyses: [HallReduce]);

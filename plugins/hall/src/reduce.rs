@@ -11,9 +11,10 @@
 //!    current and voltage, a nonzero current, and contacts that form a configuration of its
 //!    sample's geometry (`mobilis_core::contacts`). An invalid reading is an error naming its
 //!    0-based index; with [`ReduceSettings::skip_invalid_readings`] it is dropped, counted and
-//!    reported as a warning instead (the first [`DETAILED_SKIP_WARNINGS`] individually, the
-//!    rest in one summary line, so a bad million-row import does not produce a million
-//!    warnings). A sample with readings but no sheet row is an error listing every such name.
+//!    reported as a warning instead (the first [`DETAILED_WARNINGS`] individually, the rest in
+//!    one summary line, so a bad million-row import does not produce a million warnings; the
+//!    warnings about single rows are capped the same way, since every affected row also
+//!    carries its flag). A sample with readings but no sheet row is an error listing every such name.
 //!    Without a sheet every sample is a 2D van der Pauw sample with Hall factor 1.
 //! 2. **Temperature groups.** Per sample, readings are sorted by temperature and consecutive
 //!    temperatures closer than `temperature_tolerance_k` share a group. Chains are allowed, so
@@ -34,7 +35,8 @@
 //!    `no_current_reversal`.
 //! 5. **Resistances.** From the zero-field readings; when a temperature group has none of the
 //!    resistance configurations at zero field, from the field-even part (R(+B) + R(-B)) / 2 of
-//!    each row's field readings, which includes the magnetoresistance at that field
+//!    each row's field readings (or the one field sign measured), which includes the
+//!    magnetoresistance at that field
 //!    (`resistance_from_field_readings`, and a warning). R_A is the mean of the direct and
 //!    reciprocal configurations present (R_21,34 and R_43,12), R_B likewise (R_32,41 and
 //!    R_14,23); their uncertainty combines in quadrature the standard error of that mean
@@ -102,8 +104,9 @@ use cells::{cell_key, gap_clusters, runs_by_key, summarize_cell, CellSummary, Pr
 pub use error::{ReadingProblem, ReduceError};
 use row::{build_row, FieldCells, ResolvedSample, TemperatureGroup, ZeroFieldCells};
 
-/// How many skipped readings get a warning of their own before the rest are summarized.
-pub const DETAILED_SKIP_WARNINGS: usize = 20;
+/// How many skipped readings, and separately how many rows, get a warning of their own
+/// before the rest are summarized in one line.
+pub const DETAILED_WARNINGS: usize = 20;
 
 /// The contact layout of a sample.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -513,7 +516,7 @@ fn reduce_source<S: ReadingSource>(
             Ok(reading) => prepared.push(reading),
             Err(problem) if settings.skip_invalid_readings => {
                 skipped += 1;
-                if skipped <= DETAILED_SKIP_WARNINGS {
+                if skipped <= DETAILED_WARNINGS {
                     warnings.push(format!("reading {index} (sample {:?}) skipped: {problem}", view.sample));
                 }
             }
@@ -526,10 +529,10 @@ fn reduce_source<S: ReadingSource>(
             }
         }
     }
-    if skipped > DETAILED_SKIP_WARNINGS {
+    if skipped > DETAILED_WARNINGS {
         warnings.push(format!(
             "{} further invalid readings skipped ({skipped} in all)",
-            skipped - DETAILED_SKIP_WARNINGS
+            skipped - DETAILED_WARNINGS
         ));
     }
     if prepared.is_empty() {
@@ -543,6 +546,7 @@ fn reduce_source<S: ReadingSource>(
             .then(a.temperature_k.total_cmp(&b.temperature_k))
     });
     let mut rows = Vec::new();
+    let mut row_warnings = Vec::new();
     for sample_range in runs_by_key(&prepared, |reading| reading.sample_rank) {
         let sample_readings = &mut prepared[sample_range];
         let sample = &resolved[sample_readings[0].sample_rank as usize];
@@ -556,9 +560,17 @@ fn reduce_source<S: ReadingSource>(
                 sample,
                 settings,
                 &mut rows,
-                &mut warnings,
+                &mut row_warnings,
             );
         }
+    }
+    let row_warning_count = row_warnings.len();
+    warnings.extend(row_warnings.into_iter().take(DETAILED_WARNINGS));
+    if row_warning_count > DETAILED_WARNINGS {
+        warnings.push(format!(
+            "{} further row warnings not listed; the flags column marks every affected row",
+            row_warning_count - DETAILED_WARNINGS
+        ));
     }
     Ok(Reduction {
         rows,

@@ -101,8 +101,6 @@ pub(super) struct CellSummary {
     pub fit: LineFit,
     /// Mean of V_c / I_c per current polarity: `[positive, negative]` canonical current.
     pub polarity: [Option<Estimate>; 2],
-    pub mean_abs_field_t: f64,
-    pub count: usize,
 }
 
 impl CellSummary {
@@ -137,14 +135,12 @@ pub(super) fn summarize_cell(readings: &[Prepared]) -> CellSummary {
     let n = count as f64;
     let mut sum_current = 0.0;
     let mut sum_voltage = 0.0;
-    let mut sum_abs_field = 0.0;
     let mut min_current = f64::INFINITY;
     let mut max_current = f64::NEG_INFINITY;
     let mut max_abs_current = 0.0_f64;
     for reading in readings {
         sum_current += reading.current_a;
         sum_voltage += reading.voltage_v;
-        sum_abs_field += reading.field_t.abs();
         min_current = min_current.min(reading.current_a);
         max_current = max_current.max(reading.current_a);
         max_abs_current = max_abs_current.max(reading.current_a.abs());
@@ -189,8 +185,6 @@ pub(super) fn summarize_cell(readings: &[Prepared]) -> CellSummary {
     CellSummary {
         fit,
         polarity: [positive, negative],
-        mean_abs_field_t: sum_abs_field / n,
-        count,
     }
 }
 

@@ -1,0 +1,145 @@
+//! `mobilis demo`: starts a real `mobilisd` (which loads the plugin libraries built next to
+//! it), runs the demo pipeline on the invented demo data through JSON-RPC, and prints the
+//! results per sample and temperature in the trade's units beside the invented truth.
+
+use crate::pipeline_file;
+use crate::table::format_number;
+use anyhow::{bail, Context};
+use mobilis_client::{Client, Daemon, DaemonOptions};
+use serde_json::{json, Value};
+use std::path::PathBuf;
+
+/// The demo-data directory of the source tree this binary was built from.
+fn default_data_directory() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../../demo-data")
+}
+
+pub async fn run(data: Option<PathBuf>, workspace: Option<PathBuf>) -> anyhow::Result<()> {
+    let data = data.unwrap_or_else(default_data_directory);
+    let data = data
+        .canonicalize()
+        .with_context(|| format!("demo data not found at {}", data.display()))?;
+    let temporary;
+    let workspace = match workspace {
+        Some(dir) => dir,
+        None => {
+            temporary = std::env::temp_dir().join(format!("mobilis-demo-{}", std::process::id()));
+            temporary
+        }
+    };
+    let daemon = Daemon::spawn(&DaemonOptions {
+        workspace: Some(workspace.clone()),
+        data_roots: vec![data.clone()],
+        working_directory: Some(data.clone()),
+        ..DaemonOptions::default()
+    })?;
+    let outcome = run_with_daemon(&daemon, &data).await;
+    daemon.stop();
+    if std::env::temp_dir().join(format!("mobilis-demo-{}", std::process::id())) == workspace {
+        let _ = std::fs::remove_dir_all(&workspace);
+    }
+    outcome
+}
+
+async fn run_with_daemon(daemon: &Daemon, data: &std::path::Path) -> anyhow::Result<()> {
+    let client = Client::connect(daemon.url(), None).await?;
+    let info = client.call("server.info", json!({})).await?;
+    println!(
+        "mobilisd {} at {}",
+        info["version"].as_str().unwrap_or("?"),
+        daemon.url()
+    );
+    for plugin in info["plugins"].as_array().into_iter().flatten() {
+        println!(
+            "  plugin {} {} (loaded dynamically)",
+            plugin["name"].as_str().unwrap_or("?"),
+            plugin["version"].as_str().unwrap_or("?")
+        );
+    }
+    if info["plugins"].as_array().is_none_or(|p| p.is_empty()) {
+        bail!("the daemon loaded no plugins; build them with `cargo build --release` (or `cargo build`)");
+    }
+    println!();
+    println!("Demo data (invented): {}", data.display());
+    let steps = pipeline_file::run(&client, &data.join("pipeline.toml")).await?;
+    for step in steps.as_array().into_iter().flatten() {
+        println!(
+            "  step -> {} ({} rows)",
+            step["output"].as_str().unwrap_or("?"),
+            step["rows"]
+        );
+    }
+    let truth: Value = serde_json::from_str(&std::fs::read_to_string(data.join("si-wafer/truth.json"))?)?;
+    let page = client
+        .call("dataset.rows", json!({ "name": "si-hall", "limit": 10_000 }))
+        .await?;
+    print_hall_table(&page["columns"], &truth);
+    Ok(())
+}
+
+fn column<'a>(columns: &'a Value, name: &str) -> Vec<&'a Value> {
+    columns[name].as_array().map(|a| a.iter().collect()).unwrap_or_default()
+}
+
+fn number(value: &Value, factor: f64) -> String {
+    value
+        .as_f64()
+        .map(|v| format_number(v * factor))
+        .unwrap_or_else(|| "-".into())
+}
+
+/// The truth of one sample at the setpoint nearest to `temperature`.
+fn truth_at<'a>(truth: &'a Value, sample: &str, temperature: f64) -> Option<&'a Value> {
+    let sample = truth["samples"].as_array()?.iter().find(|s| s["sample"] == sample)?;
+    sample["temperatures"].as_array()?.iter().min_by(|a, b| {
+        let da = (a["temperature_K"].as_f64().unwrap_or(f64::MAX) - temperature).abs();
+        let db = (b["temperature_K"].as_f64().unwrap_or(f64::MAX) - temperature).abs();
+        da.total_cmp(&db)
+    })
+}
+
+fn print_hall_table(columns: &Value, truth: &Value) {
+    let samples = column(columns, "sample");
+    let temperature = column(columns, "temperature_K");
+    let sheet = column(columns, "sheet_resistance_ohm_sq");
+    let resistivity = column(columns, "resistivity_ohm_m");
+    let carrier = column(columns, "carrier_type");
+    let density = column(columns, "density_m3");
+    let density_unc = column(columns, "density_m3_unc");
+    let mobility = column(columns, "hall_mobility_m2_per_Vs");
+    let mobility_unc = column(columns, "hall_mobility_m2_per_Vs_unc");
+    let flags = column(columns, "flags");
+    let mut current_sample = None;
+    for row in 0..samples.len() {
+        let sample = samples[row].as_str().unwrap_or("?");
+        if current_sample != Some(sample) {
+            current_sample = Some(sample);
+            println!();
+            println!("Sample {sample}: hall.reduce per temperature (true values of the invented scenario in brackets)");
+            println!(
+                "{:>7}  {:>10}  {:>10}  {:>4}  {:>22}  {:>11}  {:>20}  {:>9}  flags",
+                "T (K)", "R_s (ohm)", "rho (ohm cm)", "type", "n (cm^-3)", "[true n]", "mu_H (cm^2/(V s))", "[true]"
+            );
+        }
+        let t = temperature[row].as_f64().unwrap_or(f64::NAN);
+        let true_row = truth_at(truth, sample, t);
+        let true_n = true_row
+            .map(|r| number(&r["electron_density_m3"], 1e-6))
+            .unwrap_or_else(|| "-".into());
+        let true_mu = true_row
+            .map(|r| number(&r["hall_mobility_m2_per_Vs"], 1e4))
+            .unwrap_or_else(|| "-".into());
+        println!(
+            "{:>7}  {:>10}  {:>12}  {:>4}  {:>22}  {:>11}  {:>20}  {:>9}  {}",
+            format_number(t),
+            number(sheet[row], 1.0),
+            number(resistivity[row], 100.0),
+            carrier[row].as_str().unwrap_or("-"),
+            format!("{} ± {}", number(density[row], 1e-6), number(density_unc[row], 1e-6)),
+            format!("[{true_n}]"),
+            format!("{} ± {}", number(mobility[row], 1e4), number(mobility_unc[row], 1e4)),
+            format!("[{true_mu}]"),
+            flags[row].as_str().filter(|f| !f.is_empty()).unwrap_or("ok"),
+        );
+    }
+}

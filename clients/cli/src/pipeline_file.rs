@@ -1,0 +1,87 @@
+//! Pipeline files: TOML with `[[import]]` tables (datasets to import first) and `[[step]]`
+//! tables (the parameters of `analysis.run`), run through `pipeline.run`.
+//!
+//! ```toml
+//! [[import]]
+//! name = "si-readings"
+//! path = "si-wafer/readings.csv"     # relative to the pipeline file
+//! units = { }                        # optional: column = "unit"
+//!
+//! [[step]]
+//! analysis = "hall.reduce"
+//! inputs = { readings = "si-readings", samples = "si-samples" }
+//! output = "si-hall"
+//! group_by = ["sample"]
+//! params = { temperature_tolerance_K = 0.5 }
+//! ```
+//!
+//! Imports and steps overwrite datasets of the same name: a pipeline file describes how
+//! its outputs are made, so running it again remakes them.
+
+use anyhow::{bail, Context};
+use mobilis_client::Client;
+use serde::Deserialize;
+use serde_json::{json, Value};
+use std::collections::BTreeMap;
+use std::path::Path;
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PipelineFile {
+    #[serde(default, rename = "import")]
+    pub imports: Vec<ImportEntry>,
+    #[serde(default, rename = "step")]
+    pub steps: Vec<toml::Table>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ImportEntry {
+    pub name: String,
+    pub path: String,
+    #[serde(default)]
+    pub format: Option<String>,
+    #[serde(default)]
+    pub units: BTreeMap<String, String>,
+}
+
+/// Reads a pipeline file.
+pub fn load(file: &Path) -> anyhow::Result<PipelineFile> {
+    let text = std::fs::read_to_string(file).with_context(|| format!("cannot read {}", file.display()))?;
+    let pipeline: PipelineFile =
+        toml::from_str(&text).with_context(|| format!("{} is not a valid pipeline file", file.display()))?;
+    if pipeline.steps.is_empty() {
+        bail!("{} has no [[step]]", file.display());
+    }
+    Ok(pipeline)
+}
+
+/// Imports the file's datasets, then runs its steps; returns the step results.
+pub async fn run(client: &Client, file: &Path) -> anyhow::Result<Value> {
+    let pipeline = load(file)?;
+    let base = file.canonicalize()?.parent().map(Path::to_owned).unwrap_or_default();
+    for import in &pipeline.imports {
+        let path = base.join(&import.path);
+        let mut params = json!({ "name": import.name, "path": path.display().to_string(), "units": import.units, "overwrite": true });
+        if let Some(format) = &import.format {
+            params["format"] = json!(format);
+        }
+        client
+            .call("dataset.import", params)
+            .await
+            .with_context(|| format!("importing {}", import.name))?;
+    }
+    let steps: Vec<Value> = pipeline
+        .steps
+        .iter()
+        .map(|step| {
+            let mut value = serde_json::to_value(step).expect("TOML converts to JSON");
+            if value.get("overwrite").is_none() {
+                value["overwrite"] = json!(true);
+            }
+            value
+        })
+        .collect();
+    let result = client.call("pipeline.run", json!({ "steps": steps })).await?;
+    Ok(result["steps"].clone())
+}

@@ -1,1 +1,184 @@
+//! Support for the end-to-end tests: build the daemon and the plugin libraries, start a
+//! real `mobilisd` on a free port with its own workspace, and talk to it through the Rust
+//! client, as users do.
+//!
+//! `cargo test` does not put the workspace's binaries and cdylibs where a daemon finds
+//! them, so [`ensure_built`] runs `cargo build --workspace` once per test process (a no-op
+//! when everything is fresh). A failure there fails the test with cargo's message; nothing
+//! is skipped.
 
+use mobilis_client::{Client, Daemon, DaemonOptions};
+use std::path::{Path, PathBuf};
+use std::sync::OnceLock;
+
+/// The workspace root.
+pub fn workspace_root() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+        .parent()
+        .expect("tests/ is inside the workspace")
+        .to_owned()
+}
+
+/// The directory holding the built binaries and plugin libraries (`target/debug`).
+pub fn build_directory() -> PathBuf {
+    let target = std::env::var_os("CARGO_TARGET_DIR")
+        .map(PathBuf::from)
+        .unwrap_or_else(|| workspace_root().join("target"));
+    let target = if target.is_absolute() {
+        target
+    } else {
+        workspace_root().join(target)
+    };
+    target.join("debug")
+}
+
+/// Builds every binary and plugin library of the workspace (debug), once per process.
+pub fn ensure_built() -> &'static Path {
+    static BUILT: OnceLock<PathBuf> = OnceLock::new();
+    BUILT.get_or_init(|| {
+        let cargo = std::env::var("CARGO").unwrap_or_else(|_| "cargo".into());
+        let output = std::process::Command::new(cargo)
+            .args(["build", "--workspace", "--bins", "--lib"])
+            .current_dir(workspace_root())
+            .output()
+            .expect("cannot run cargo to build mobilisd and the plugins");
+        assert!(
+            output.status.success(),
+            "building mobilisd and the plugins failed:\n{}",
+            String::from_utf8_lossy(&output.stderr)
+        );
+        let directory = build_directory();
+        assert!(
+            directory.join("mobilisd").is_file(),
+            "mobilisd is not in {}",
+            directory.display()
+        );
+        directory
+    })
+}
+
+/// The path of a plugin library built by this workspace (`libNAME.so` on Linux).
+pub fn plugin_library(lib_name: &str) -> PathBuf {
+    ensure_built().join(format!(
+        "{}{lib_name}{}",
+        std::env::consts::DLL_PREFIX,
+        std::env::consts::DLL_SUFFIX
+    ))
+}
+
+/// A daemon for one test, with its own workspace and data directory.
+pub struct TestDaemon {
+    pub daemon: Daemon,
+    pub client: Client,
+    /// The daemon's workspace (kept across [`TestDaemon::restart`]).
+    pub workspace: PathBuf,
+    /// A data root the test may write files into.
+    pub data: PathBuf,
+    options: DaemonOptions,
+    _scratch: tempfile::TempDir,
+}
+
+impl TestDaemon {
+    /// Starts `mobilisd` with the default plugins (those built next to it).
+    pub async fn start() -> TestDaemon {
+        Self::start_with(|_| {}).await
+    }
+
+    /// Starts `mobilisd` after `adjust` has changed its options.
+    pub async fn start_with(adjust: impl FnOnce(&mut DaemonOptions)) -> TestDaemon {
+        let directory = ensure_built();
+        let scratch = tempfile::tempdir().expect("temporary directory");
+        let workspace = scratch.path().join("workspace");
+        let data = scratch.path().join("data");
+        std::fs::create_dir_all(&data).expect("data directory");
+        let mut options = DaemonOptions {
+            binary: Some(directory.join("mobilisd")),
+            workspace: Some(workspace.clone()),
+            working_directory: Some(data.clone()),
+            show_log: std::env::var_os("MOBILIS_TEST_LOG").is_some(),
+            ..DaemonOptions::default()
+        };
+        adjust(&mut options);
+        let daemon = Daemon::spawn(&options).expect("mobilisd starts");
+        let client = Client::connect(daemon.url(), token_of(&options))
+            .await
+            .expect("client connects");
+        TestDaemon {
+            daemon,
+            client,
+            workspace,
+            data,
+            options,
+            _scratch: scratch,
+        }
+    }
+
+    /// Stops the daemon and starts a new one on the same workspace and options.
+    pub async fn restart(self) -> TestDaemon {
+        let TestDaemon {
+            daemon,
+            client,
+            workspace,
+            data,
+            options,
+            _scratch,
+        } = self;
+        drop(client);
+        daemon.stop();
+        let daemon = Daemon::spawn(&options).expect("mobilisd restarts");
+        let client = Client::connect(daemon.url(), token_of(&options))
+            .await
+            .expect("client reconnects");
+        TestDaemon {
+            daemon,
+            client,
+            workspace,
+            data,
+            options,
+            _scratch,
+        }
+    }
+
+    /// Calls a method and expects success.
+    pub async fn call(&self, method: &str, params: serde_json::Value) -> serde_json::Value {
+        match self.client.call(method, params.clone()).await {
+            Ok(value) => value,
+            Err(error) => panic!("{method} {params} failed: {error}"),
+        }
+    }
+
+    /// Calls a method and expects a JSON-RPC error; returns (code, message).
+    pub async fn call_error(&self, method: &str, params: serde_json::Value) -> (i32, String) {
+        match self.client.call(method, params.clone()).await {
+            Ok(value) => panic!("{method} {params} succeeded with {value}, an error was expected"),
+            Err(mobilis_client::ClientError::Rpc { code, message, .. }) => (code, message),
+            Err(other) => panic!("{method} {params}: transport failure {other}"),
+        }
+    }
+}
+
+/// The `--token` a daemon was given, so that the test's client presents it.
+fn token_of(options: &DaemonOptions) -> Option<&str> {
+    let position = options.extra_arguments.iter().position(|a| a == "--token")?;
+    options.extra_arguments.get(position + 1).map(String::as_str)
+}
+
+/// A float column of a `dataset.rows` answer.
+pub fn float_column(page: &serde_json::Value, name: &str) -> Vec<Option<f64>> {
+    page["columns"][name]
+        .as_array()
+        .unwrap_or_else(|| panic!("column {name} missing from {page}"))
+        .iter()
+        .map(|v| v.as_f64())
+        .collect()
+}
+
+/// A string column of a `dataset.rows` answer.
+pub fn string_column(page: &serde_json::Value, name: &str) -> Vec<Option<String>> {
+    page["columns"][name]
+        .as_array()
+        .unwrap_or_else(|| panic!("column {name} missing from {page}"))
+        .iter()
+        .map(|v| v.as_str().map(str::to_owned))
+        .collect()
+}

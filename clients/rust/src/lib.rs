@@ -137,6 +137,8 @@ pub struct DaemonOptions {
     pub working_directory: Option<PathBuf>,
     /// Pass the daemon's log to this process's stderr instead of discarding it.
     pub show_log: bool,
+    /// Further `mobilisd` arguments (for example `--allow-origin`, `--token`).
+    pub extra_arguments: Vec<String>,
 }
 
 /// A daemon this process started; stopped when dropped.
@@ -178,6 +180,7 @@ impl Daemon {
         for root in &options.data_roots {
             command.arg("--data-root").arg(root);
         }
+        command.args(&options.extra_arguments);
         if let Some(dir) = &options.working_directory {
             command.current_dir(dir);
         }

@@ -40,13 +40,14 @@ const NOISE: VoltageNoise = VoltageNoise {
 /// Standard deviation of the temperature controller about its setpoint, K.
 const CONTROLLER_JITTER_K: f64 = 0.02;
 /// Thermoelectric offsets are drawn uniformly within +- this, V.
-const THERMOELECTRIC_OFFSET_LIMIT_V: f64 = 60e-6;
+const THERMOELECTRIC_OFFSET_LIMIT_V: f64 = 10e-6;
 /// Significant digits the voltmeter records.
 const VOLTAGE_DIGITS: usize = 7;
 
-/// Currents the source offers, A: 1-2-5 steps from 1 nA to 1 mA.
-const CURRENT_LADDER_A: [f64; 19] = [
+/// Currents the source offers, A: 1-2-5 steps from 1 nA to 10 mA.
+const CURRENT_LADDER_A: [f64; 22] = [
     1e-9, 2e-9, 5e-9, 1e-8, 2e-8, 5e-8, 1e-7, 2e-7, 5e-7, 1e-6, 2e-6, 5e-6, 1e-5, 2e-5, 5e-5, 1e-4, 2e-4, 5e-4, 1e-3,
+    2e-3, 5e-3, 1e-2,
 ];
 
 /// One van der Pauw piece of the wafer and how the lab wired it.

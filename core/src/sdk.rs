@@ -263,6 +263,10 @@ pub unsafe fn invoke_registered(
     status
 }
 
+/// The work of [`invoke_registered`] without the panic guard.
+///
+/// # Safety
+/// The arguments satisfy the contract of [`abi::InvokeFn`]; `output` is not NULL.
 unsafe fn invoke_unguarded(
     registry: &[Registration],
     analysis: *const c_char,
@@ -385,6 +389,8 @@ macro_rules! export_plugin {
         const _: () = {
             static REGISTRY: &[$crate::sdk::Registration] = &[$($crate::sdk::registration::<$analysis>()),+];
 
+            /// # Safety
+            /// No requirement: `unsafe` only to match `mobilis_core::abi::DescribeFn`.
             unsafe extern "C" fn describe() -> *mut ::std::os::raw::c_char {
                 $crate::sdk::describe_registered(REGISTRY)
             }

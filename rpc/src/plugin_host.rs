@@ -331,6 +331,11 @@ fn describe(descriptor: &PluginDescriptor) -> Result<PluginDeclaration, String> 
     serde_json::from_str(&text).map_err(|error| format!("describe returned an unusable declaration: {error}"))
 }
 
+/// The host's progress callback.
+///
+/// # Safety
+/// `host_data` is the [`CallControl`] pointer this host put in the context of the running
+/// call; `message` is NULL or a NUL-terminated string valid for the duration of the call.
 unsafe extern "C" fn report_progress(host_data: *mut c_void, fraction: f64, message: *const c_char) {
     // Never unwind into the plugin.
     let _ = catch_unwind(|| {
@@ -347,6 +352,10 @@ unsafe extern "C" fn report_progress(host_data: *mut c_void, fraction: f64, mess
     });
 }
 
+/// The host's cancel check.
+///
+/// # Safety
+/// `host_data` is the [`CallControl`] pointer this host put in the context of the running call.
 unsafe extern "C" fn is_cancelled(host_data: *mut c_void) -> i32 {
     // SAFETY: as in report_progress.
     let control = unsafe { &*(host_data as *const CallControl) };

@@ -224,7 +224,7 @@ async fn readings_to_densities_through_a_real_daemon_and_back_after_a_restart() 
     assert_eq!(float_column(&second, "temperature_K").len(), 2);
 
     // Exports inside the data roots, in both formats; provenance recorded.
-    for file in ["reduced.csv", "reduced.parquet"] {
+    for file in ["reduced.csv", "reduced.parquet", "reduced.arrow"] {
         let exported = daemon
             .call("dataset.export", json!({"name": "reduced", "path": file}))
             .await;

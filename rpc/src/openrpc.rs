@@ -105,6 +105,7 @@ pub const METHODS: &[MethodDoc] = &[
             ("group_by", false, r#"{"anyOf": [{"type": "string"}, {"type": "array", "items": {"type": "string"}}]}"#, "column(s) of the first input to group by"),
             ("overwrite", false, r#"{"type": "boolean", "default": false}"#, "replace an existing output dataset"),
             ("call_id", false, STRING, "client-chosen id for analysis.cancel and analysis.progress"),
+            ("summary_output", false, STRING, "also store the summary as a dataset: one row per group, one column per scalar value"),
         ],
         result: RUN_RESULT,
     },

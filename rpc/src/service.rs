@@ -97,6 +97,10 @@ pub struct RunParams {
     /// A client-chosen identifier under which `analysis.cancel` can stop this call.
     #[serde(default)]
     pub call_id: Option<String>,
+    /// Also store the summary as a dataset: one row per group (or one row), one column
+    /// per scalar summary value, so that later steps can take fitted numbers as input.
+    #[serde(default)]
+    pub summary_output: Option<String>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -222,6 +226,73 @@ fn conform_column(frame: &mut DataFrame, spec: &ColumnSpec, role: &str, dataset:
             .map_err(|e| ServiceError::new(ErrorKind::ColumnProblem, e.to_string()))?;
     }
     Ok(())
+}
+
+/// The scalar values of a summary as a table: one row per group (group columns first) or
+/// a single row. Numbers become f64 columns, booleans and strings keep their type, nested
+/// objects and lists are kept as JSON text; a key missing from a group is null.
+pub fn summary_table(summary: &Value, group_columns: &[String]) -> ServiceResult<DataFrame> {
+    let rows: Vec<(serde_json::Map<String, Value>, &Value)> = if group_columns.is_empty() {
+        vec![(serde_json::Map::new(), summary)]
+    } else {
+        summary["groups"]
+            .as_array()
+            .map(|groups| {
+                groups
+                    .iter()
+                    .map(|g| (g["group"].as_object().cloned().unwrap_or_default(), &g["summary"]))
+                    .collect()
+            })
+            .unwrap_or_default()
+    };
+    let mut names: Vec<String> = group_columns.to_vec();
+    for (_, values) in &rows {
+        for key in values.as_object().into_iter().flat_map(|m| m.keys()) {
+            if !names.contains(key) {
+                names.push(key.clone());
+            }
+        }
+    }
+    if rows.is_empty() || names.is_empty() {
+        return Err(ServiceError::new(
+            ErrorKind::InvalidData,
+            "the analysis returned an empty summary; there is nothing to store",
+        ));
+    }
+    let columns: serde_json::Map<String, Value> = names
+        .iter()
+        .map(|name| {
+            let cells: Vec<Value> = rows
+                .iter()
+                .map(|(group, values)| {
+                    group
+                        .get(name)
+                        .or_else(|| values.get(name))
+                        .cloned()
+                        .unwrap_or(Value::Null)
+                })
+                .collect();
+            let uniform = cells.iter().filter(|v| !v.is_null()).all(|v| v.is_number())
+                || cells.iter().filter(|v| !v.is_null()).all(|v| v.is_string())
+                || cells.iter().filter(|v| !v.is_null()).all(|v| v.is_boolean());
+            let cells = if uniform {
+                cells
+                    .into_iter()
+                    .map(|v| match v {
+                        Value::Number(n) => json!(n.as_f64()),
+                        other => other,
+                    })
+                    .collect()
+            } else {
+                cells
+                    .into_iter()
+                    .map(|v| if v.is_null() { v } else { Value::String(v.to_string()) })
+                    .collect()
+            };
+            (name.clone(), Value::Array(cells))
+        })
+        .collect();
+    tables::frame_from_json_columns(&columns)
 }
 
 /// Row indices of each group, in order of first appearance, with the key values.
@@ -545,6 +616,19 @@ impl Service {
                 run.analysis
             ))
         })?;
+        if let Some(name) = &run.summary_output {
+            store::validate_name(name)?;
+            if name == &run.output {
+                return Err(ServiceError::invalid_params("summary_output must differ from output"));
+            }
+            if !run.overwrite && self.store.contains(name) {
+                return Err(ServiceError::new(
+                    ErrorKind::DatasetExists,
+                    format!("a dataset named `{name}` exists already"),
+                )
+                .with_help("choose another summary_output name, drop the old dataset, or pass overwrite: true"));
+            }
+        }
         let inputs = self.prepare_inputs(&run)?;
         let group_columns = run.group_by.columns();
 
@@ -565,22 +649,35 @@ impl Service {
             .host
             .plugin_of(&run.analysis)
             .expect("registered analysis has a plugin");
-        let provenance = Provenance::Analysis {
+        let provenance = |of_summary: bool| Provenance::Analysis {
             analysis: run.analysis.clone(),
             plugin: plugin.name.clone(),
             plugin_version: plugin.version.clone(),
-            params,
+            params: params.clone(),
             inputs: run.inputs.clone(),
-            group_by: group_columns,
+            group_by: group_columns.clone(),
+            summary: of_summary,
         };
-        let stored = self.store.insert(&run.output, table, provenance, run.overwrite)?;
-        Ok(json!({
+        let summary_frame = match &run.summary_output {
+            Some(_) => Some(summary_table(&summary, &group_columns)?),
+            None => None,
+        };
+        let stored = self
+            .store
+            .insert(&run.output, table, provenance(false), run.overwrite)?;
+        let mut answer = json!({
             "output": run.output,
             "rows": stored.frame.height(),
             "columns": stored.manifest.columns,
             "summary": summary,
             "warnings": warnings,
-        }))
+        });
+        if let (Some(name), Some(frame)) = (&run.summary_output, summary_frame) {
+            let stored = self.store.insert(name, frame, provenance(true), run.overwrite)?;
+            answer["summary_output"] = json!(name);
+            answer["summary_rows"] = json!(stored.frame.height());
+        }
+        Ok(answer)
     }
 
     #[allow(clippy::type_complexity)]
@@ -706,6 +803,9 @@ impl Service {
                 if !produced.contains(&dataset.as_str()) && !self.store.contains(dataset) {
                     return Err(context(ServiceError::unknown_dataset(dataset)));
                 }
+            }
+            if let Some(summary) = &step.summary_output {
+                produced.push(summary);
             }
             if produced.contains(&step.output.as_str()) {
                 return Err(context(ServiceError::invalid_params(format!(

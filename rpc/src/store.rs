@@ -47,6 +47,9 @@ pub enum Provenance {
         inputs: BTreeMap<String, String>,
         #[serde(default)]
         group_by: Vec<String>,
+        /// True for the table of an analysis's summary (`summary_output`).
+        #[serde(default)]
+        summary: bool,
     },
 }
 

@@ -193,6 +193,23 @@ async fn readings_to_densities_through_a_real_daemon_and_back_after_a_restart() 
         .await;
     assert_eq!(result["rows"], 6);
     assert_eq!(result["summary"]["groups"].as_array().unwrap().len(), 2);
+    // The per-group summaries as a table, for later steps.
+    let with_summary = daemon
+        .call(
+            "analysis.run",
+            json!({"analysis": "hall.reduce", "inputs": {"readings": "lab-readings", "samples": "samples"},
+                   "output": "reduced-again", "group_by": ["sample"], "summary_output": "reduced-summary"}),
+        )
+        .await;
+    assert_eq!(with_summary["summary_rows"], 2);
+    let summary_page = daemon.call("dataset.rows", json!({"name": "reduced-summary"})).await;
+    assert_eq!(
+        string_column(&summary_page, "sample"),
+        vec![Some("n-film".to_owned()), Some("p-film".to_owned())]
+    );
+    assert_eq!(float_column(&summary_page, "rows"), vec![Some(3.0), Some(3.0)]);
+    daemon.call("dataset.drop", json!({"name": "reduced-again"})).await;
+    daemon.call("dataset.drop", json!({"name": "reduced-summary"})).await;
     let page = daemon
         .call("dataset.rows", json!({"name": "reduced", "limit": 100}))
         .await;

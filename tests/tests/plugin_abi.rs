@@ -1,0 +1,507 @@
+//! The plugin boundary, end to end: a plugin written in C and built here with the system C
+//! compiler, the refusal of unusable libraries, and the Rust fixture plugin
+//! (`tests/fixture-plugin`) for panics, parameter validation, cancellation and missing
+//! columns. Each test runs its own `mobilisd`, with `--plugin-dir` pointing at a directory
+//! that holds exactly the libraries the test is about; two tests differ: one checks the
+//! daemon's default plugin scan, and one calls the C plugin in process through the host's
+//! loader, with tables a daemon would never send.
+//!
+//! The C libraries are compiled from `tests/c-plugin/cfixture.c` by each test that needs
+//! them (a second or so): the compiler and its flags come from the `cc` crate, which
+//! normally makes static archives for build scripts, so the shared object is linked by
+//! running that compiler directly with `-shared`.
+
+use mobilis_client::{Client, ClientError};
+use mobilis_core::abi;
+use mobilis_rpc::plugin_host::{CallControl, PluginHost};
+use mobilis_tests::{float_column, plugin_library, workspace_root, TestDaemon};
+use polars::prelude::{Column, DataFrame};
+use serde_json::{json, Value};
+use std::path::{Path, PathBuf};
+use std::process::Command;
+use std::sync::{Arc, OnceLock};
+use std::time::{Duration, Instant};
+
+/// Part of the message `fixture.panic` panics with (see `tests/fixture-plugin`).
+const FIXTURE_PANIC_TEXT: &str = "deliberate panic 7e3f";
+
+/// The Rust target triple of this machine, which `cc` needs outside a build script (where
+/// cargo would tell it). Tests run on the machine they were built for, so the host's
+/// triple is the target's.
+fn host_triple() -> &'static str {
+    static TRIPLE: OnceLock<String> = OnceLock::new();
+    TRIPLE.get_or_init(|| {
+        let rustc = std::env::var("RUSTC").unwrap_or_else(|_| "rustc".into());
+        let output = Command::new(&rustc)
+            .arg("-vV")
+            .output()
+            .unwrap_or_else(|error| panic!("cannot run `{rustc} -vV` to learn the target triple: {error}"));
+        let text = String::from_utf8_lossy(&output.stdout);
+        text.lines()
+            .find_map(|line| line.strip_prefix("host: "))
+            .unwrap_or_else(|| panic!("`{rustc} -vV` printed no host line:\n{text}"))
+            .trim()
+            .to_owned()
+    })
+}
+
+/// The file name of a shared library on this platform (`libNAME.so` on Linux).
+fn shared_library_name(name: &str) -> String {
+    format!("{}{name}{}", std::env::consts::DLL_PREFIX, std::env::consts::DLL_SUFFIX)
+}
+
+/// Compiles `tests/c-plugin/cfixture.c` with the given preprocessor definitions into the
+/// shared library `dir/libNAME.so` and returns its path.
+fn build_c_plugin(dir: &Path, name: &str, defines: &[(&str, Option<&str>)]) -> PathBuf {
+    let source = workspace_root().join("tests/c-plugin/cfixture.c");
+    let mut build = cc::Build::new();
+    build
+        .include(workspace_root().join("core/include"))
+        .std("c99")
+        // The plugin is meant as an example of clean C: any warning fails the test.
+        .warnings(true)
+        .extra_warnings(true)
+        .warnings_into_errors(true)
+        .pic(true)
+        .opt_level(0)
+        .debug(false)
+        .target(host_triple())
+        .host(host_triple())
+        .out_dir(dir)
+        // Not a build script: cargo must not read our output as instructions.
+        .cargo_metadata(false);
+    for (key, value) in defines {
+        build.define(key, *value);
+    }
+    let compiler = build.get_compiler();
+    let library = dir.join(shared_library_name(name));
+    let output = compiler
+        .to_command()
+        .args(["-shared", "-fPIC", "-o"])
+        .arg(&library)
+        .arg(&source)
+        .output()
+        .unwrap_or_else(|error| panic!("cannot run the C compiler {}: {error}", compiler.path().display()));
+    assert!(
+        output.status.success(),
+        "compiling {} into {} failed:\n{}{}",
+        source.display(),
+        library.display(),
+        String::from_utf8_lossy(&output.stdout),
+        String::from_utf8_lossy(&output.stderr)
+    );
+    library
+}
+
+/// A temporary directory holding the Rust fixture plugin (as a link to the built library,
+/// which is large in a debug build) and nothing else.
+fn fixture_plugin_dir() -> tempfile::TempDir {
+    let library = plugin_library("test_fixture_plugin");
+    assert!(
+        library.is_file(),
+        "{} was not built; is tests/fixture-plugin a workspace member?",
+        library.display()
+    );
+    let dir = tempfile::tempdir().expect("temporary directory");
+    let link = dir.path().join(library.file_name().expect("a file name"));
+    #[cfg(unix)]
+    std::os::unix::fs::symlink(&library, &link).expect("link the fixture plugin");
+    #[cfg(not(unix))]
+    std::fs::copy(&library, &link).expect("copy the fixture plugin");
+    dir
+}
+
+/// A daemon loading the plugins of `dir` only.
+async fn daemon_with_plugins(dir: &Path) -> TestDaemon {
+    let dir = dir.to_owned();
+    TestDaemon::start_with(move |options| options.plugin_dirs.push(dir)).await
+}
+
+/// The `dataset.list` answer, sorted by name, for before/after comparisons.
+async fn dataset_list(daemon: &TestDaemon) -> Vec<Value> {
+    let mut list = daemon
+        .call("dataset.list", json!({}))
+        .await
+        .as_array()
+        .expect("dataset.list returns an array")
+        .clone();
+    list.sort_by_key(|entry| entry["name"].as_str().unwrap_or_default().to_owned());
+    list
+}
+
+fn file_name_of(path: &str) -> &str {
+    Path::new(path).file_name().and_then(|n| n.to_str()).unwrap_or_default()
+}
+
+#[tokio::test(flavor = "multi_thread")]
+async fn the_c_plugin_loads_and_sums_a_column_with_nulls() {
+    let dir = tempfile::tempdir().unwrap();
+    build_c_plugin(dir.path(), "cfixture", &[]);
+    let daemon = daemon_with_plugins(dir.path()).await;
+
+    let plugins = daemon.call("plugin.list", json!({})).await;
+    let plugins = plugins.as_array().unwrap();
+    assert_eq!(plugins.len(), 1, "{plugins:?}");
+    assert_eq!(plugins[0]["name"], "cfixture");
+    assert_eq!(plugins[0]["analyses"], json!(["cfixture.sum"]));
+    assert_eq!(
+        file_name_of(plugins[0]["library"].as_str().unwrap()),
+        shared_library_name("cfixture")
+    );
+    let described = daemon
+        .call("analysis.describe", json!({"analysis": "cfixture.sum"}))
+        .await;
+    assert_eq!(described["inputs"][0]["role"], "values");
+    assert_eq!(described["inputs"][0]["columns"][0]["name"], "x");
+    assert_eq!(described["outputs"][1]["dtype"], "i64");
+
+    // A text column next to `x`: the plugin must find `x` among other children and skip a
+    // large UTF-8 child it does not read.
+    daemon
+        .call(
+            "dataset.import",
+            json!({"name": "small", "columns": {"label": ["a", "b", "c", "d"], "x": [1.5, null, 2.25, 4.0]}}),
+        )
+        .await;
+    let run = daemon
+        .call(
+            "analysis.run",
+            json!({"analysis": "cfixture.sum", "inputs": {"values": "small"}, "output": "small_sum"}),
+        )
+        .await;
+    assert_eq!(run["rows"], 1);
+    assert_eq!(run["summary"]["total"].as_f64(), Some(7.75));
+    assert_eq!(run["warnings"], json!([]));
+    let page = daemon.call("dataset.rows", json!({"name": "small_sum"})).await;
+    assert_eq!(float_column(&page, "total"), vec![Some(7.75)]);
+    assert_eq!(page["columns"]["count"], json!([3]));
+
+    // More rows than one byte of the validity bitmap holds, with nulls at irregular places,
+    // so that a wrong bit or byte index shows in the total.
+    let values: Vec<Value> = (0..1000)
+        .map(|i| if i % 7 == 3 { Value::Null } else { json!(i as f64 * 0.5) })
+        .collect();
+    let expected_total: f64 = (0..1000).filter(|i| i % 7 != 3).map(|i| i as f64 * 0.5).sum();
+    let expected_count = (0..1000).filter(|i| i % 7 != 3).count();
+    daemon
+        .call("dataset.import", json!({"name": "large", "columns": {"x": values}}))
+        .await;
+    let run = daemon
+        .call(
+            "analysis.run",
+            json!({"analysis": "cfixture.sum", "inputs": {"values": "large"}, "output": "large_sum"}),
+        )
+        .await;
+    assert_eq!(run["summary"]["total"].as_f64(), Some(expected_total));
+    let page = daemon.call("dataset.rows", json!({"name": "large_sum"})).await;
+    assert_eq!(page["columns"]["count"], json!([expected_count]));
+
+    // Integers are converted by the host to the declared float64 before the call.
+    daemon
+        .call("dataset.import", json!({"name": "whole", "columns": {"x": [1, 2, 3]}}))
+        .await;
+    let run = daemon
+        .call(
+            "analysis.run",
+            json!({"analysis": "cfixture.sum", "inputs": {"values": "whole"}, "output": "whole_sum"}),
+        )
+        .await;
+    assert_eq!(run["summary"]["total"].as_f64(), Some(6.0));
+}
+
+#[tokio::test(flavor = "multi_thread")]
+async fn unusable_libraries_are_refused_by_name_and_the_daemon_keeps_serving() {
+    let dir = tempfile::tempdir().unwrap();
+    build_c_plugin(dir.path(), "cfixture", &[]);
+    build_c_plugin(dir.path(), "cfixture_abi2", &[("FIXTURE_ABI_MAJOR", Some("2"))]);
+    build_c_plugin(dir.path(), "cfixture_no_entry", &[("FIXTURE_NO_ENTRY", None)]);
+    // Loaded after `libcfixture` (the daemon loads a directory in file name order), so this
+    // is the copy that finds `cfixture.sum` taken.
+    build_c_plugin(
+        dir.path(),
+        "cfixture_copy",
+        &[("FIXTURE_PLUGIN_NAME", Some("cfixture_copy"))],
+    );
+    let daemon = daemon_with_plugins(dir.path()).await;
+
+    let info = daemon.call("server.info", json!({})).await;
+    assert_eq!(info["plugins"].as_array().unwrap().len(), 1, "{info}");
+    assert_eq!(info["plugins"][0]["name"], "cfixture");
+    let refused = info["refused_plugins"].as_array().expect("refused_plugins is a list");
+    let reason_for = |name: &str| -> String {
+        let file = shared_library_name(name);
+        let entry = refused
+            .iter()
+            .find(|entry| file_name_of(entry["file"].as_str().unwrap_or_default()) == file)
+            .unwrap_or_else(|| panic!("{file} is not among the refused libraries: {refused:?}"));
+        entry["reason"].as_str().expect("a reason").to_owned()
+    };
+    assert_eq!(refused.len(), 3, "{refused:?}");
+
+    let reason = reason_for("cfixture_abi2");
+    assert!(
+        reason.contains("ABI 2.0") && reason.contains("ABI 1.0"),
+        "the reason should give both ABI versions: {reason}"
+    );
+    let reason = reason_for("cfixture_no_entry");
+    assert!(reason.contains(abi::ENTRY_SYMBOL), "{reason}");
+    let reason = reason_for("cfixture_copy");
+    assert!(
+        reason.contains("`cfixture.sum`") && reason.contains("already provided"),
+        "{reason}"
+    );
+    assert!(
+        reason.contains(&shared_library_name("cfixture")),
+        "the reason should name the library that provides the analysis: {reason}"
+    );
+
+    daemon
+        .call("dataset.import", json!({"name": "v", "columns": {"x": [1.0, 2.0]}}))
+        .await;
+    let run = daemon
+        .call(
+            "analysis.run",
+            json!({"analysis": "cfixture.sum", "inputs": {"values": "v"}, "output": "v_sum"}),
+        )
+        .await;
+    assert_eq!(run["summary"]["total"].as_f64(), Some(3.0));
+}
+
+#[tokio::test(flavor = "multi_thread")]
+async fn a_panic_in_a_plugin_is_an_error_and_the_plugin_keeps_working() {
+    let dir = fixture_plugin_dir();
+    let daemon = daemon_with_plugins(dir.path()).await;
+    daemon
+        .call(
+            "dataset.import",
+            json!({"name": "v", "columns": {"x": [1.0, 2.0, null, 3.0]}}),
+        )
+        .await;
+    let before = dataset_list(&daemon).await;
+    let rows_before = daemon.call("dataset.rows", json!({"name": "v"})).await;
+
+    // Twice: a plugin that panicked once must still be able to panic cleanly again.
+    for attempt in 0..2 {
+        let (code, message) = daemon
+            .call_error(
+                "analysis.run",
+                json!({"analysis": "fixture.panic", "inputs": {"values": "v"}, "output": format!("never_{attempt}")}),
+            )
+            .await;
+        assert_eq!(code, 5001, "{message}");
+        assert!(message.contains(FIXTURE_PANIC_TEXT), "{message}");
+    }
+
+    // The panic dropped the plugin's copy of the input; the stored dataset is untouched.
+    assert_eq!(dataset_list(&daemon).await, before);
+    assert_eq!(daemon.call("dataset.rows", json!({"name": "v"})).await, rows_before);
+
+    let run = daemon
+        .call(
+            "analysis.run",
+            json!({"analysis": "fixture.scale", "inputs": {"values": "v"}, "params": {"factor": 2.0}, "output": "scaled"}),
+        )
+        .await;
+    assert_eq!(run["summary"]["sum"], json!(12.0));
+    let page = daemon.call("dataset.rows", json!({"name": "scaled"})).await;
+    assert_eq!(
+        float_column(&page, "x_scaled"),
+        vec![Some(2.0), Some(4.0), None, Some(6.0)]
+    );
+}
+
+#[tokio::test(flavor = "multi_thread")]
+async fn bad_parameters_are_refused_before_the_plugin_runs() {
+    let dir = fixture_plugin_dir();
+    let daemon = daemon_with_plugins(dir.path()).await;
+    daemon
+        .call("dataset.import", json!({"name": "v", "columns": {"x": [1.0, 2.0]}}))
+        .await;
+    let before = dataset_list(&daemon).await;
+
+    // The code is the host's (4001, invalid params), not the one a plugin's own refusal gets
+    // (4007), and the message uses the host validator's words: the plugin was not called.
+    let cases = [
+        (json!({}), "params.factor is required"),
+        (json!({"factor": "2"}), "params.factor must be number"),
+        (
+            json!({"factor": 2.0, "fatcor": 2.0}),
+            "params.fatcor is not a known parameter",
+        ),
+    ];
+    for (params, expected) in cases {
+        let (code, message) = daemon
+            .call_error(
+                "analysis.run",
+                json!({"analysis": "fixture.scale", "inputs": {"values": "v"}, "params": params, "output": "scaled"}),
+            )
+            .await;
+        assert_eq!(code, 4001, "{params}: {message}");
+        assert!(message.contains(expected), "{params}: {message}");
+    }
+    assert_eq!(dataset_list(&daemon).await, before, "a refused call stored nothing");
+}
+
+#[tokio::test(flavor = "multi_thread")]
+async fn a_running_analysis_is_cancelled_from_another_connection() {
+    let dir = fixture_plugin_dir();
+    let daemon = daemon_with_plugins(dir.path()).await;
+    let call_id = "wait-to-cancel";
+
+    // The long call runs on its own connection, as a client waiting for it would.
+    let runner = Client::connect(daemon.daemon.url(), None).await.unwrap();
+    let started = Instant::now();
+    let running = tokio::spawn(async move {
+        runner
+            .call(
+                "analysis.run",
+                json!({"analysis": "fixture.wait", "inputs": {}, "params": {"seconds": 120}, "output": "waited", "call_id": call_id}),
+            )
+            .await
+    });
+
+    // Wait until the plugin has reported progress: the call is then inside the plugin's loop.
+    let deadline = Instant::now() + Duration::from_secs(60);
+    loop {
+        let progress = daemon.call("analysis.progress", json!({"call_id": call_id})).await;
+        if progress["running"] == true && progress["fraction"].is_number() {
+            assert_eq!(progress["message"], "waiting");
+            break;
+        }
+        assert!(!running.is_finished(), "fixture.wait ended before it was cancelled");
+        assert!(
+            Instant::now() < deadline,
+            "fixture.wait never reported progress: {progress}"
+        );
+        tokio::time::sleep(Duration::from_millis(20)).await;
+    }
+
+    let cancel = daemon.call("analysis.cancel", json!({"call_id": call_id})).await;
+    assert_eq!(cancel["cancelled"], true, "{cancel}");
+    let outcome = tokio::time::timeout(Duration::from_secs(30), running)
+        .await
+        .expect("the cancelled call ends promptly")
+        .expect("the calling task does not panic");
+    match outcome {
+        Err(ClientError::Rpc { code, message, .. }) => {
+            assert_eq!(code, 5003, "{message}");
+            assert!(message.contains("fixture.wait"), "{message}");
+        }
+        other => panic!("expected the cancelled error, got {other:?}"),
+    }
+    assert!(
+        started.elapsed() < Duration::from_secs(100),
+        "the call ran its full time instead of stopping"
+    );
+
+    let progress = daemon.call("analysis.progress", json!({"call_id": call_id})).await;
+    assert_eq!(progress["running"], false, "{progress}");
+    assert!(
+        dataset_list(&daemon).await.is_empty(),
+        "a cancelled call stores nothing"
+    );
+    let run = daemon
+        .call(
+            "analysis.run",
+            json!({"analysis": "fixture.wait", "inputs": {}, "params": {"seconds": 0.05}, "output": "short"}),
+        )
+        .await;
+    assert_eq!(run["rows"], 1);
+}
+
+#[tokio::test(flavor = "multi_thread")]
+async fn a_missing_or_mistyped_required_column_is_named() {
+    let dir = fixture_plugin_dir();
+    let daemon = daemon_with_plugins(dir.path()).await;
+    daemon
+        .call("dataset.import", json!({"name": "no_x", "columns": {"y": [1.0, 2.0]}}))
+        .await;
+    let (code, message) = daemon
+        .call_error(
+            "analysis.run",
+            json!({"analysis": "fixture.scale", "inputs": {"values": "no_x"}, "params": {"factor": 2.0}, "output": "scaled"}),
+        )
+        .await;
+    assert_eq!(code, 4004, "{message}");
+    assert!(
+        message.contains("`x`") && message.contains("no_x"),
+        "the message should name the column and the dataset: {message}"
+    );
+
+    daemon
+        .call(
+            "dataset.import",
+            json!({"name": "text_x", "columns": {"x": ["1", "2"]}}),
+        )
+        .await;
+    let (code, message) = daemon
+        .call_error(
+            "analysis.run",
+            json!({"analysis": "fixture.scale", "inputs": {"values": "text_x"}, "params": {"factor": 2.0}, "output": "scaled"}),
+        )
+        .await;
+    assert_eq!(code, 4004, "{message}");
+    assert!(message.contains("`x`"), "{message}");
+}
+
+#[tokio::test(flavor = "multi_thread")]
+async fn the_fixture_plugin_is_not_loaded_by_default() {
+    // The default scan next to the binary, where cargo also puts the fixture library.
+    plugin_library("test_fixture_plugin");
+    let daemon = TestDaemon::start().await;
+    let plugins = daemon.call("plugin.list", json!({})).await;
+    let names: Vec<&str> = plugins
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter_map(|plugin| plugin["name"].as_str())
+        .collect();
+    assert!(names.contains(&"hall"), "the default plugins should load: {names:?}");
+    assert!(!names.contains(&"fixture"), "{names:?}");
+}
+
+/// A one-column table for the in-process calls below.
+fn table(column: Column) -> DataFrame {
+    DataFrame::new(column.len(), vec![column]).unwrap()
+}
+
+/// The C plugin's own input checks, which a daemon never lets a table reach (it checks
+/// declared columns first): called in process through the host's plugin loader.
+#[test]
+fn the_c_plugin_refuses_unusable_tables_itself() {
+    let dir = tempfile::tempdir().unwrap();
+    let library = build_c_plugin(dir.path(), "cfixture", &[]);
+    let mut host = PluginHost::default();
+    host.load(&library).expect("the C plugin loads");
+    let control = Arc::new(CallControl::default());
+    let params = json!({});
+    let call = |analysis: &str, inputs: Vec<(String, DataFrame)>| host.invoke(analysis, &params, &inputs, &control);
+
+    let no_x = table(Column::new("y".into(), [1.0, 2.0]));
+    let failure = call("cfixture.sum", vec![("values".into(), no_x)]).err().unwrap();
+    assert_eq!(failure.status, abi::STATUS_INVALID_INPUT);
+    assert!(failure.message.contains("`x`"), "{}", failure.message);
+
+    let integer_x = table(Column::new("x".into(), [1i64, 2]));
+    let failure = call("cfixture.sum", vec![("values".into(), integer_x)]).err().unwrap();
+    assert_eq!(failure.status, abi::STATUS_INVALID_INPUT);
+    assert!(
+        failure.message.contains("float64") && failure.message.contains("\"l\""),
+        "{}",
+        failure.message
+    );
+
+    let failure = call("cfixture.sum", Vec::new()).err().unwrap();
+    assert_eq!(failure.status, abi::STATUS_INVALID_INPUT);
+    assert!(failure.message.contains("values"), "{}", failure.message);
+
+    let x = table(Column::new("x".into(), [Some(1.0), None, Some(2.5)]));
+    let success = call("cfixture.sum", vec![("values".into(), x)])
+        .map_err(|failure| failure.message)
+        .unwrap();
+    assert_eq!(success.summary["total"].as_f64(), Some(3.5));
+    assert_eq!(success.table.column("total").unwrap().f64().unwrap().get(0), Some(3.5));
+    assert_eq!(success.table.column("count").unwrap().i64().unwrap().get(0), Some(2));
+    // Dropping the table runs the plugin's release callbacks.
+    drop(success);
+}

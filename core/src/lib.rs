@@ -6,6 +6,9 @@
 //! - [`noise`]: a portable, seeded random generator for the forward models.
 //! - [`forward`]: forward models, parameters in and raw readings out, shared by the demo
 //!   generator, the property tests and the plugins' fits.
+//! - [`linalg`]: small dense linear algebra (Cholesky, QR, SVD, least squares, inverses).
+//! - [`fit`]: bounded Levenberg-Marquardt least squares, multi-start, the weighted line.
+//! - [`nnls`]: non-negative least squares (Lawson-Hanson active set, warm start, cancellable).
 //! - [`abi`]: the C ABI between the daemon and plugin libraries (mirrored by
 //!   `include/mobilis_plugin.h`).
 //! - [`table_ffi`]: DataFrames across the Arrow C Data Interface.
@@ -14,7 +17,10 @@
 pub mod abi;
 pub mod constants;
 pub mod contacts;
+pub mod fit;
 pub mod forward;
+pub mod linalg;
+pub mod nnls;
 pub mod noise;
 pub mod readings;
 pub mod sdk;

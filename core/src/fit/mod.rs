@@ -1,0 +1,158 @@
+//! Least-squares fitting shared by the analysis plugins: a bounded Levenberg-Marquardt
+//! solver, multi-start, and the weighted straight line.
+//!
+//! # Levenberg-Marquardt ([`LeastSquares`], [`minimize`])
+//!
+//! Minimizes the cost C(p) = (1/2) sum r_i(p)^2 of m residuals in n parameters, m >= n.
+//!
+//! - **Step.** Each iteration solves the damped Gauss-Newton system
+//!   (J^T J + lambda D^2) delta = -J^T r (Levenberg 1944, Marquardt 1963) through the SVD of
+//!   the column-scaled Jacobian J D^-1 = U S V^T: delta = -D^-1 V diag(s / (s^2 + lambda))
+//!   U^T r. One SVD per Jacobian serves every trial lambda, the condition number is never
+//!   squared, and exactly dependent directions simply get no step.
+//! - **Scaling.** D = diag(d_j) with d_j the largest Euclidean norm column j of J has had so
+//!   far (Moré, "The Levenberg-Marquardt algorithm: implementation and theory", Lecture Notes
+//!   in Mathematics 630, 1978), so the iterates do not depend on the parameters' units.
+//! - **Damping.** lambda starts at tau s_max^2 (tau = [`LmOptions::initial_damping`],
+//!   default 1e-3) and follows Nielsen's rule (H. B. Nielsen, "Damping parameter in
+//!   Marquardt's method", IMM-REP-1999-05, DTU; as in Madsen, Nielsen and Tingleff, "Methods
+//!   for non-linear least squares problems", 2004): with the gain ratio rho = actual cost
+//!   reduction / reduction predicted by the linear model, a step with rho > 0 is accepted and
+//!   lambda *= max(1/3, 1 - (2 rho - 1)^3), nu = 2; otherwise lambda *= nu, nu *= 2. A
+//!   trial point where a residual is not finite is rejected like an uphill step.
+//! - **Bounds** (lower <= p <= upper, either side may be infinite) by projection with an
+//!   active set: a parameter at a bound whose gradient component pushes it outward is held
+//!   for that iteration (its column leaves the step system); the step of the others is
+//!   computed as above and the trial point is clamped into the box, the predicted reduction
+//!   being that of the clamped step. Equal lower and upper bounds fix a parameter. The start
+//!   is clamped into the box.
+//! - **Jacobian.** Analytic when given ([`LeastSquares::with_jacobian`]); otherwise central
+//!   differences with step h_j = [`LmOptions::difference_step`] x max(|p_j|, s_j), s_j the
+//!   parameter's typical scale ([`LmOptions::parameter_scales`], by default |start_j| or 1
+//!   when the start is 0). Near a bound the stencil becomes the second-order one-sided
+//!   (-3 f(p) + 4 f(p + h) - f(p + 2h)) / 2h, so residuals are never evaluated outside the
+//!   box; a box narrower than 4h shrinks h.
+//! - **Convergence** ([`Termination`]): (a) every free parameter's gradient cosine
+//!   |J_j^T r| / (||J_j|| ||r||) <= `gradient_tolerance`; (b) an accepted step with
+//!   |delta_j| <= `step_tolerance` x max(|p_j|, s_j) for every j; (c) an accepted step whose
+//!   actual and predicted cost reductions are both <= `cost_tolerance` x C; (d) the
+//!   residuals have vanished, ||r|| <= 4 eps ||r_start||. If lambda grows past 1e16 s_max^2
+//!   without an accepted step (no downhill step exists within rounding), the run stops and
+//!   counts as converged only when the gradient cosines are below sqrt(`gradient_tolerance`).
+//!   Reaching `max_iterations` is not convergence.
+//!
+//! # Uncertainties
+//!
+//! The covariance is (J^T J)^-1 at the solution, from the SVD of the scaled Jacobian,
+//! multiplied by the reduced chi-square chi^2 / nu unless [`LmOptions::residuals_are_weighted`]
+//! says the residuals are already (model - data) / sigma with known sigma. chi^2 = sum r_i^2
+//! (in the residuals' own units when they are not weighted), nu = m minus the number of
+//! parameters not fixed by equal bounds. Parameters held at a bound are treated as fixed:
+//! their rows and columns of the covariance are zero and their standard error is NaN (the
+//! curvature says nothing about a one-sided minimum; [`LmFit::at_bound`] tells which). A
+//! Jacobian whose scaled singular values fall below [`LmOptions::singular_tolerance`] times
+//! the largest is refused ([`FitError::Singular`], naming the parameters of the
+//! undetermined direction).
+//!
+//! # Multi-start ([`LeastSquares::minimize_multi_start`])
+//!
+//! Runs from each start, keeps the converged run of lowest chi-square and counts how many
+//! converged runs reached the same minimum ([`SameMinimum`]).
+//!
+//! # Straight line ([`fit_line`])
+//!
+//! y = a + b x by weighted least squares in closed form, centred on the weighted mean of x
+//! so that nothing cancels, with the standard errors of slope and intercept, their
+//! covariance, chi-square and R^2.
+
+mod line;
+mod lm;
+mod multi_start;
+#[cfg(test)]
+mod tests;
+
+pub use line::{fit_line, LineFit};
+pub use lm::{minimize, Bounds, LeastSquares, LmFit, LmOptions, Termination};
+pub use multi_start::{MultiStartFit, SameMinimum, StartOutcome, StartSummary};
+
+use crate::linalg::LinalgError;
+
+/// Why a fit is refused or failed.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[non_exhaustive]
+pub enum FitError {
+    /// The problem has no parameters.
+    #[error("the fit has no parameters; give a starting value for each parameter to fit")]
+    NoParameters,
+    /// More free parameters than residuals (or as many, with unweighted residuals, whose
+    /// scatter then cannot be estimated).
+    #[error(
+        "{parameters} free parameters cannot be fitted to {residuals} residuals; give more data points (more than the parameters when no uncertainties are given) or fix parameters"
+    )]
+    TooFewResiduals { residuals: usize, parameters: usize },
+    /// A per-parameter input has the wrong length.
+    #[error("{what} has {got} entries but the problem has {expected} parameters; give one per parameter")]
+    LengthMismatch {
+        what: &'static str,
+        expected: usize,
+        got: usize,
+    },
+    /// A bound pair is NaN or reversed.
+    #[error("parameter {index} has bounds [{lower}, {upper}]; give lower <= upper, neither NaN")]
+    InvalidBounds { index: usize, lower: f64, upper: f64 },
+    /// A starting value is NaN or infinite.
+    #[error("the starting value of parameter {index} is {value}; give a finite number")]
+    NonFiniteStart { index: usize, value: f64 },
+    /// A residual is NaN or infinite at the start.
+    #[error(
+        "residual {index} is {value} at the starting parameters; start where the model is defined (check the starting values and the data)"
+    )]
+    NonFiniteResidual { index: usize, value: f64 },
+    /// A finite-difference or analytic Jacobian column is not finite.
+    #[error(
+        "the derivative of the residuals with respect to parameter {parameter} is not finite at {value}; bound the parameter away from where the model breaks down"
+    )]
+    NonFiniteJacobian { parameter: usize, value: f64 },
+    /// The data do not determine some combination of the parameters.
+    #[error(
+        "the data do not determine parameters {parameters:?} (the Jacobian is singular there); fix one of them with equal bounds, or add data that constrain them"
+    )]
+    Singular { parameters: Vec<usize> },
+    /// No start reached convergence.
+    #[error(
+        "none of {starts} starts converged within {max_iterations} iterations (best chi-square {best_chi_square:e}); raise max_iterations or give better starting values"
+    )]
+    NotConverged {
+        starts: usize,
+        max_iterations: usize,
+        best_chi_square: f64,
+    },
+    /// No starting point was given to a multi-start fit.
+    #[error("no starting point was given; give at least one")]
+    NoStarts,
+    /// A solver option is out of range.
+    #[error("option {name} is {value}; {requirement}")]
+    InvalidOption {
+        name: &'static str,
+        value: f64,
+        requirement: &'static str,
+    },
+    /// A data point of a line fit is not usable.
+    #[error("point {index}: {what} is {value}; give finite values and positive finite uncertainties")]
+    InvalidPoint {
+        index: usize,
+        what: &'static str,
+        value: f64,
+    },
+    /// Too few points for a line fit.
+    #[error(
+        "{points} points cannot fix a line with uncertainties; give at least {required} (3 without uncertainties, so that the scatter can be estimated)"
+    )]
+    TooFewPoints { points: usize, required: usize },
+    /// All x of a line fit are equal.
+    #[error("all x values are equal, so no slope can be fitted; give points at two or more distinct x")]
+    NoSpread,
+    /// A linear-algebra failure (non-finite Jacobian entries, SVD non-convergence).
+    #[error(transparent)]
+    Linalg(#[from] LinalgError),
+}

@@ -1,0 +1,1010 @@
+//! `carriers.freeze_out_fit`: donor and acceptor densities and the ionization energy of the
+//! majority dopant from the temperature dependence of the carrier density.
+//!
+//! Pure computation on slices: no DataFrames, no I/O. The plugin's table glue turns a
+//! `hall.reduce` output (or any table of `temperature_K`, `density_m3`, optional
+//! `density_m3_unc` and `carrier_type`) into [`DensityPoint`]s and the [`FreezeOutFit`] back
+//! into a summary and a table.
+//!
+//! # Model
+//!
+//! A non-degenerate crystal with one majority dopant level and fully (or, optionally,
+//! partially: [`CompensatingLevel`]) ionized compensating centres, in charge neutrality with
+//! the intrinsic minority carriers of the material's band gap. For an n-type crystal
+//!
+//! n + N_A- = p + N_D / (1 + n / K_D), K_D = (Nc(T) / g_D) exp(-E_D / kT),
+//! p = Nc Nv exp(-Eg(T) / kT) / n,
+//!
+//! with Nc, Nv scaled as T^1.5 from their 300 K values and Eg(T) from Varshni's relation
+//! ([`crate::materials::Material`]). Without minority carriers this is the compensated
+//! single-donor equation n (n + N_A) / (N_D - N_A - n) = K_D (Blakemore, Semiconductor
+//! Statistics, 1962; Look, Electrical Characterization of GaAs Materials and Devices, 1989);
+//! the minority term makes the fit exact into the onset of intrinsic conduction, where the
+//! closed form is not. A p-type crystal is the mirror image: holes, acceptors of density N_A
+//! and level E_A above the valence band with degeneracy g_A (default 4), compensating donors,
+//! Nv in place of Nc. The equation is solved exactly at every temperature ([`model`]; the
+//! same physics as `mobilis_core::forward::statistics::solve_charge_neutrality`).
+//!
+//! # Fit
+//!
+//! - **Hall factor.** A density from the Hall coefficient with r_H = 1 is n_H = n / r_H; with
+//!   [`HallFactor::Constant`] or [`HallFactor::ScatteringExponent`] (r_H of tau ~ E^s from
+//!   `mobilis_core::forward::mobility::hall_scattering_factor`) the densities and their
+//!   uncertainties are multiplied by r_H before fitting. Leave it at [`HallFactor::Unity`]
+//!   when `hall.reduce` already applied the sample sheet's Hall factor.
+//! - **Residuals** r_i = (ln n_model(T_i) - ln n_i) / w_i: in logarithms, because the
+//!   densities span decades and their errors are relative. w_i = u(n_i) / n_i (the relative
+//!   uncertainty) when every point has one, and the covariance is then taken as it stands
+//!   (the uncertainties are trusted); without uncertainties w_i = 1 and the covariance is
+//!   scaled by the reduced chi-square.
+//! - **Parameters** theta = (log10 N_net, log10 c, E) with N_net = N_maj - N_comp (what the
+//!   saturation plateau shows) and c = N_comp / N_maj (what the depth of freeze-out below the
+//!   plateau shows): nearly orthogonal, each of order one, and bounded: N_net within
+//!   [n_min / 3, 1000 n_max] of the data unless [`FreezeOutSettings::net_density_bounds_m3`]
+//!   says otherwise, c within [`FreezeOutSettings::compensation_bounds`] (default 1e-6 to
+//!   0.995), E within [`FreezeOutSettings::ionization_energy_bounds_ev`] (default 1 meV to
+//!   1 eV). Levenberg-Marquardt with box bounds (`mobilis_core::fit`).
+//! - **Starts.** Up to twelve from the data ([`FreezeOutSettings::derive_starts_from_data`]):
+//!   N_net = n_max and 3 n_max (the plateau, or above it if the data stop short of
+//!   saturation); E = E_a and 2 E_a, E_a from the slope of ln(n T^-1.5) against 1/kT over
+//!   the lowest-temperature third of the points (the slope is E in the compensated regime
+//!   and E/2 in the uncompensated one; both are tried); c = 0.01, 0.3 and the c that makes
+//!   the model pass through the lowest point in the compensated regime with E_a. Then up to
+//!   four from a grid over the whole bounded box ([`FreezeOutSettings::grid_search`]): the
+//!   chi-square at the plateau's N_net on 9 values of log10 c times 25 geometrically spaced
+//!   energies, whose best local minima become starts. The grid depends on the bounds only,
+//!   not on any guess; it is what finds the global minimum when every guess lies in the
+//!   basin of the local minimum that trades compensation for energy (strong compensation
+//!   with a lower level, which bends the curve much as the true one does; in the tests c
+//!   near 0.6 and E near two thirds of the truth). Starts given in
+//!   [`FreezeOutSettings::initial_guesses`] are added. The converged run of lowest
+//!   chi-square wins; the result says how many starts reached it.
+//! - **Uncertainties** of N_maj = N_net / (1 - c), N_comp = c N_net / (1 - c), c and E by
+//!   first-order propagation of the covariance of theta. A parameter that ends on a bound is
+//!   not determined by the data (its uncertainty is `None` and a warning says so), and the
+//!   others' uncertainties are conditional on it.
+//! - **Curve.** The fitted density on [`FreezeOutSettings::curve_points`] temperatures
+//!   spaced geometrically over the range of the data used.
+//!
+//! # Refused input
+//!
+//! Fewer than four distinct temperatures (three parameters plus one), the carrier type
+//! switching within the series, non-positive or non-finite densities or temperatures,
+//! uncertainties for some points but not others, a temperature range that excludes all data.
+
+mod error;
+pub mod model;
+#[cfg(test)]
+mod tests;
+
+use std::fmt;
+
+use mobilis_core::constants::BOLTZMANN_EV_PER_K;
+use mobilis_core::fit::{fit_line, Bounds, FitError, LeastSquares, LmOptions, SameMinimum};
+use mobilis_core::forward::mobility::hall_scattering_factor;
+use mobilis_core::forward::statistics::{ACCEPTOR_DEGENERACY_DEFAULT, DONOR_DEGENERACY_DEFAULT};
+use mobilis_core::linalg::Matrix;
+
+pub use error::{FreezeOutError, SeriesError};
+use model::{ln_majority_density, LevelParameters, TemperatureTerms};
+pub use model::{CompensatingLevel, FreezeOutModel};
+
+use crate::materials::Material;
+
+/// The smallest number of distinct temperatures for three parameters plus one degree of
+/// freedom.
+pub const MIN_TEMPERATURES: usize = 4;
+
+/// Which carriers dominate: electrons (n) or holes (p).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub enum CarrierType {
+    N,
+    P,
+}
+
+impl CarrierType {
+    /// "n" or "p", as in the `carrier_type` column of `hall.reduce`.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            CarrierType::N => "n",
+            CarrierType::P => "p",
+        }
+    }
+
+    /// Parses "n" or "p" (also "N", "P", "electrons", "holes").
+    pub fn parse(text: &str) -> Option<CarrierType> {
+        match text.trim().to_ascii_lowercase().as_str() {
+            "n" | "electron" | "electrons" => Some(CarrierType::N),
+            "p" | "hole" | "holes" => Some(CarrierType::P),
+            _ => None,
+        }
+    }
+
+    /// The default degeneracy of the majority dopant level: 2 for donors, 4 for acceptors.
+    pub fn default_degeneracy(self) -> f64 {
+        match self {
+            CarrierType::N => DONOR_DEGENERACY_DEFAULT,
+            CarrierType::P => ACCEPTOR_DEGENERACY_DEFAULT,
+        }
+    }
+}
+
+impl fmt::Display for CarrierType {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+/// One measured carrier density.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct DensityPoint {
+    pub temperature_k: f64,
+    /// Majority carrier density (a positive magnitude), m^-3.
+    pub density_m3: f64,
+    /// Its standard uncertainty, m^-3.
+    pub density_unc_m3: Option<f64>,
+    /// The carrier type of this point (from the sign of the Hall coefficient), if known.
+    pub carrier_type: Option<CarrierType>,
+}
+
+/// The Hall scattering factor to apply before fitting: n = r_H n_H.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub enum HallFactor {
+    /// r_H = 1: the densities are used as given.
+    #[default]
+    Unity,
+    /// A constant r_H.
+    Constant(f64),
+    /// r_H of a relaxation time tau ~ E^s (Putley 1960): s = -1/2 acoustic phonons
+    /// (3 pi / 8), s = 3/2 ionized impurities (315 pi / 512).
+    ScatteringExponent(f64),
+}
+
+impl HallFactor {
+    /// The factor r_H.
+    pub fn value(&self) -> Result<f64, SeriesError> {
+        let value = match *self {
+            HallFactor::Unity => 1.0,
+            HallFactor::Constant(value) => value,
+            HallFactor::ScatteringExponent(exponent) => {
+                let value = hall_scattering_factor(exponent);
+                if !value.is_finite() {
+                    return Err(SeriesError::InvalidHallFactor { value: exponent });
+                }
+                value
+            }
+        };
+        if value.is_finite() && value > 0.0 {
+            Ok(value)
+        } else {
+            Err(SeriesError::InvalidHallFactor { value })
+        }
+    }
+}
+
+/// A starting point given by the user.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct InitialGuess {
+    /// Majority dopant density, m^-3.
+    pub dopant_density_m3: f64,
+    /// Compensating density, m^-3 (0 is taken as the smallest compensation allowed).
+    pub compensating_density_m3: f64,
+    pub ionization_energy_ev: f64,
+}
+
+/// How to fit; [`FreezeOutSettings::default`] documents the defaults.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FreezeOutSettings {
+    /// The bands (default silicon).
+    pub material: Material,
+    /// Replaces the majority band's effective density of states at 300 K (Nc for n-type,
+    /// Nv for p-type; still scaled as T^1.5), m^-3. Handbooks differ by tens of percent
+    /// here, and the fitted ionization energy and compensation follow. `None` (default)
+    /// keeps the material's.
+    pub effective_dos_300k_m3: Option<f64>,
+    /// n or p; `None` (default) takes it from the points.
+    pub carrier_type: Option<CarrierType>,
+    /// Degeneracy of the majority level; `None` (default): 2 for donors, 4 for acceptors.
+    pub degeneracy: Option<f64>,
+    /// The compensating centres' level; `None` (default): fully ionized, which they are
+    /// whenever the Fermi level is far from their band (always, in a crystal whose majority
+    /// carriers are not degenerate).
+    pub compensating_level: Option<CompensatingLevel>,
+    /// Only points with min <= T <= max, K; `None` (default) uses all.
+    pub temperature_range_k: Option<(f64, f64)>,
+    pub hall_factor: HallFactor,
+    /// Bounds of E, eV. Default (0.001, 1.0).
+    pub ionization_energy_bounds_ev: (f64, f64),
+    /// Bounds of c = N_comp / N_maj. Default (1e-6, 0.995).
+    pub compensation_bounds: (f64, f64),
+    /// Bounds of N_maj - N_comp, m^-3; `None` (default): [n_min / 3, 1000 n_max] of the
+    /// data used.
+    pub net_density_bounds_m3: Option<(f64, f64)>,
+    /// Extra starting points.
+    pub initial_guesses: Vec<InitialGuess>,
+    /// Add the twelve starts derived from the data (default true).
+    pub derive_starts_from_data: bool,
+    /// Scan the bounded (compensation, energy) box on a grid and add its best local minima
+    /// as starts (default true): this makes the fit independent of any guess.
+    pub grid_search: bool,
+    /// Points of the fitted curve. Default 200.
+    pub curve_points: usize,
+    /// Iteration limit of each start. Default 200.
+    pub max_iterations: usize,
+}
+
+impl Default for FreezeOutSettings {
+    fn default() -> Self {
+        FreezeOutSettings {
+            material: Material::silicon(),
+            effective_dos_300k_m3: None,
+            carrier_type: None,
+            degeneracy: None,
+            compensating_level: None,
+            temperature_range_k: None,
+            hall_factor: HallFactor::Unity,
+            ionization_energy_bounds_ev: (0.001, 1.0),
+            compensation_bounds: (1e-6, 0.995),
+            net_density_bounds_m3: None,
+            initial_guesses: Vec::new(),
+            derive_starts_from_data: true,
+            grid_search: true,
+            curve_points: 200,
+            max_iterations: 200,
+        }
+    }
+}
+
+impl FreezeOutSettings {
+    /// The defaults with another material.
+    pub fn for_material(material: Material) -> Self {
+        FreezeOutSettings {
+            material,
+            ..FreezeOutSettings::default()
+        }
+    }
+
+    fn validate(&self) -> Result<(), FreezeOutError> {
+        self.material.validate()?;
+        let invalid = |setting, value, requirement| {
+            Err(FreezeOutError::InvalidSetting {
+                setting,
+                value,
+                requirement,
+            })
+        };
+        if let Some(dos) = self.effective_dos_300k_m3 {
+            if !(dos.is_finite() && dos > 0.0) {
+                return invalid(
+                    "effective_dos_300K_m3",
+                    dos,
+                    "give the band-edge effective density of states at 300 K as a finite positive number in m^-3",
+                );
+            }
+        }
+        if let Some(degeneracy) = self.degeneracy {
+            if !(degeneracy.is_finite() && degeneracy > 0.0) {
+                return invalid(
+                    "degeneracy",
+                    degeneracy,
+                    "give a finite positive degeneracy factor (2 for donors, 4 for acceptors)",
+                );
+            }
+        }
+        if let Some(level) = self.compensating_level {
+            if !(level.ionization_energy_ev.is_finite() && level.ionization_energy_ev >= 0.0) {
+                return invalid(
+                    "compensating_ionization_energy_eV",
+                    level.ionization_energy_ev,
+                    "give a finite energy of 0 or more",
+                );
+            }
+            if !(level.degeneracy.is_finite() && level.degeneracy > 0.0) {
+                return invalid(
+                    "compensating_degeneracy",
+                    level.degeneracy,
+                    "give a finite positive degeneracy factor",
+                );
+            }
+        }
+        let (low, high) = self.ionization_energy_bounds_ev;
+        if !(low.is_finite() && high.is_finite() && low > 0.0 && low < high) {
+            return invalid(
+                "ionization_energy_bounds_eV",
+                if low > 0.0 { high } else { low },
+                "give two finite energies above 0 eV, the lower first",
+            );
+        }
+        let (low, high) = self.compensation_bounds;
+        if !(low > 0.0 && low < high && high < 1.0) {
+            return invalid(
+                "compensation_bounds",
+                if low > 0.0 { high } else { low },
+                "give two ratios N_comp / N_maj with 0 < lower < upper < 1",
+            );
+        }
+        if let Some((low, high)) = self.net_density_bounds_m3 {
+            if !(low.is_finite() && high.is_finite() && low > 0.0 && low < high) {
+                return invalid(
+                    "net_density_bounds_m3",
+                    if low > 0.0 { high } else { low },
+                    "give two finite densities above 0, the lower first",
+                );
+            }
+        }
+        if self.curve_points < 2 {
+            return invalid("curve_points", self.curve_points as f64, "give 2 or more points");
+        }
+        if self.max_iterations == 0 {
+            return invalid("max_iterations", 0.0, "give at least 1 iteration");
+        }
+        for guess in &self.initial_guesses {
+            let ok = guess.dopant_density_m3.is_finite()
+                && guess.compensating_density_m3.is_finite()
+                && guess.compensating_density_m3 >= 0.0
+                && guess.dopant_density_m3 > guess.compensating_density_m3
+                && guess.ionization_energy_ev.is_finite();
+            if !ok {
+                return invalid(
+                    "initial_guesses",
+                    guess.dopant_density_m3,
+                    "give finite densities with 0 <= compensating < dopant and a finite energy",
+                );
+            }
+        }
+        Ok(())
+    }
+}
+
+/// One point as fitted.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct FittedPoint {
+    pub temperature_k: f64,
+    /// The density after the Hall-factor correction, m^-3.
+    pub density_m3: f64,
+    pub density_unc_m3: Option<f64>,
+    /// The fitted model at this temperature, m^-3.
+    pub model_density_m3: f64,
+    /// ln(model) - ln(data).
+    pub residual_ln: f64,
+    /// The residual over the relative uncertainty, when there is one.
+    pub normalized_residual: Option<f64>,
+}
+
+/// The fitted curve at one temperature.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CurvePoint {
+    pub temperature_k: f64,
+    pub density_m3: f64,
+}
+
+/// The names of the fitted parameters, in the order of the fit.
+pub const PARAMETER_NAMES: [&str; 3] = ["net dopant density", "compensation ratio", "ionization energy"];
+
+/// The result of [`fit_freeze_out`]. Uncertainties are one standard error; `None` where the
+/// parameter ended on a bound.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FreezeOutFit {
+    pub carrier_type: CarrierType,
+    /// Majority dopant density (donors for n-type), m^-3.
+    pub dopant_density_m3: f64,
+    pub dopant_density_m3_unc: Option<f64>,
+    /// Compensating density (acceptors for n-type), m^-3.
+    pub compensating_density_m3: f64,
+    pub compensating_density_m3_unc: Option<f64>,
+    /// Dopant minus compensating density (the saturation density), m^-3.
+    pub net_density_m3: f64,
+    pub net_density_m3_unc: Option<f64>,
+    /// Compensating over dopant density.
+    pub compensation_ratio: f64,
+    pub compensation_ratio_unc: Option<f64>,
+    /// The majority level's distance from its band edge, eV.
+    pub ionization_energy_ev: f64,
+    pub ionization_energy_ev_unc: Option<f64>,
+    /// Covariance of (dopant density, compensating density, ionization energy), in m^-3
+    /// and eV; rows and columns of a parameter on a bound are zero.
+    pub covariance: [[f64; 3]; 3],
+    /// The degeneracy factor used.
+    pub degeneracy: f64,
+    /// The Hall factor applied to the data.
+    pub hall_factor: f64,
+    /// True when the density uncertainties weighted the fit.
+    pub weighted: bool,
+    pub chi_square: f64,
+    pub degrees_of_freedom: usize,
+    pub reduced_chi_square: f64,
+    /// Names (from [`PARAMETER_NAMES`]) of the parameters that ended on a bound.
+    pub at_bound: Vec<&'static str>,
+    /// Starts tried, converged, and converged at the reported minimum.
+    pub starts: usize,
+    pub starts_converged: usize,
+    pub starts_at_best: usize,
+    /// Iterations of the best run.
+    pub iterations: usize,
+    /// The fitted model (to evaluate it anywhere).
+    pub model: FreezeOutModel,
+    /// The points used, sorted by temperature.
+    pub points: Vec<FittedPoint>,
+    pub curve: Vec<CurvePoint>,
+    pub warnings: Vec<String>,
+}
+
+/// A validated series: sorted by temperature, Hall factor applied.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct Series {
+    pub carrier_type: CarrierType,
+    pub temperatures_k: Vec<f64>,
+    pub densities_m3: Vec<f64>,
+    pub uncertainties_m3: Option<Vec<f64>>,
+    pub hall_factor: f64,
+}
+
+impl Series {
+    pub fn len(&self) -> usize {
+        self.temperatures_k.len()
+    }
+
+    /// Temperatures that differ (sorted input: count the changes).
+    pub fn distinct_temperatures(&self) -> usize {
+        let mut count = 0;
+        let mut last = f64::NAN;
+        for t in &self.temperatures_k {
+            if *t != last {
+                count += 1;
+                last = *t;
+            }
+        }
+        count
+    }
+}
+
+/// Checks the points, applies the temperature range and the Hall factor, and sorts by
+/// temperature. Every point is checked for finite values (also those outside the range);
+/// the carrier type and the uncertainties are judged over the points in the range.
+pub(crate) fn prepare_series(
+    points: &[DensityPoint],
+    carrier_type: Option<CarrierType>,
+    range_k: Option<(f64, f64)>,
+    hall_factor: &HallFactor,
+) -> Result<Series, SeriesError> {
+    if points.is_empty() {
+        return Err(SeriesError::NoPoints);
+    }
+    let factor = hall_factor.value()?;
+    for (index, point) in points.iter().enumerate() {
+        let t = point.temperature_k;
+        if !t.is_finite() {
+            return Err(SeriesError::NonFiniteTemperature { index, value: t });
+        }
+        if t <= 0.0 {
+            return Err(SeriesError::NonPositiveTemperature { index, value: t });
+        }
+        let n = point.density_m3;
+        if !n.is_finite() {
+            return Err(SeriesError::NonFiniteDensity { index, value: n });
+        }
+        if n <= 0.0 {
+            return Err(SeriesError::NonPositiveDensity { index, value: n });
+        }
+        if let Some(u) = point.density_unc_m3 {
+            if !(u.is_finite() && u > 0.0) {
+                return Err(SeriesError::InvalidUncertainty { index, value: u });
+            }
+        }
+    }
+    let mut selected: Vec<usize> = (0..points.len()).collect();
+    if let Some((min_k, max_k)) = range_k {
+        if !(min_k.is_finite() && max_k.is_finite() && min_k > 0.0 && min_k <= max_k) {
+            return Err(SeriesError::InvalidRange { min_k, max_k });
+        }
+        selected.retain(|&i| points[i].temperature_k >= min_k && points[i].temperature_k <= max_k);
+        if selected.is_empty() {
+            let data_min_k = points.iter().map(|p| p.temperature_k).fold(f64::INFINITY, f64::min);
+            let data_max_k = points.iter().map(|p| p.temperature_k).fold(f64::NEG_INFINITY, f64::max);
+            return Err(SeriesError::RangeExcludesAllData {
+                min_k,
+                max_k,
+                data_min_k,
+                data_max_k,
+            });
+        }
+    }
+    selected.sort_by(|a, b| points[*a].temperature_k.total_cmp(&points[*b].temperature_k));
+    let mut data_type: Option<(CarrierType, usize)> = None;
+    for &index in &selected {
+        if let Some(kind) = points[index].carrier_type {
+            match data_type {
+                None => data_type = Some((kind, index)),
+                Some((first, _)) if first != kind => {
+                    return Err(SeriesError::CarrierTypeSwitch {
+                        index,
+                        temperature_k: points[index].temperature_k,
+                        first,
+                        then: kind,
+                    })
+                }
+                Some(_) => {}
+            }
+        }
+    }
+    let carrier_type = match (carrier_type, data_type) {
+        (Some(requested), Some((found, index))) if requested != found => {
+            return Err(SeriesError::CarrierTypeMismatch {
+                requested,
+                found,
+                index,
+            })
+        }
+        (Some(requested), _) => requested,
+        (None, Some((found, _))) => found,
+        (None, None) => return Err(SeriesError::CarrierTypeUnknown),
+    };
+    let with = selected.iter().filter(|&&i| points[i].density_unc_m3.is_some()).count();
+    if with != 0 && with != selected.len() {
+        return Err(SeriesError::MixedUncertainties {
+            with,
+            without: selected.len() - with,
+        });
+    }
+    Ok(Series {
+        carrier_type,
+        temperatures_k: selected.iter().map(|&i| points[i].temperature_k).collect(),
+        densities_m3: selected.iter().map(|&i| factor * points[i].density_m3).collect(),
+        uncertainties_m3: (with > 0).then(|| {
+            selected
+                .iter()
+                .map(|&i| factor * points[i].density_unc_m3.expect("checked: every point has one"))
+                .collect()
+        }),
+        hall_factor: factor,
+    })
+}
+
+/// theta = (log10 N_net, log10 c, E) to the solver's parameters.
+fn level_parameters(theta: &[f64], ln_degeneracy: f64, compensating_level: Option<(f64, f64)>) -> LevelParameters {
+    let ln_net = theta[0] * std::f64::consts::LN_10;
+    let ln_ratio = theta[1] * std::f64::consts::LN_10;
+    // N_maj = N_net / (1 - c), N_comp = c N_maj.
+    let ln_dopant = ln_net - (-ln_ratio.exp()).ln_1p();
+    LevelParameters {
+        ln_dopant,
+        ln_compensating: ln_dopant + ln_ratio,
+        ln_net,
+        ionization_energy_ev: theta[2],
+        ln_degeneracy,
+        compensating_level,
+    }
+}
+
+/// The slope of ln(n T^-1.5) against 1/kT over the lowest-temperature third (at least three
+/// points) as an energy, eV; `None` when it is not a positive number.
+fn low_temperature_activation_ev(series: &Series) -> Option<f64> {
+    let count = (series.len() / 3).max(3).min(series.len());
+    let x: Vec<f64> = series.temperatures_k[..count]
+        .iter()
+        .map(|t| 1.0 / (BOLTZMANN_EV_PER_K * t))
+        .collect();
+    let y: Vec<f64> = series.temperatures_k[..count]
+        .iter()
+        .zip(&series.densities_m3)
+        .map(|(t, n)| n.ln() - 1.5 * t.ln())
+        .collect();
+    let line = fit_line(&x, &y, None).ok()?;
+    let energy = -line.slope;
+    (energy.is_finite() && energy > 0.0).then_some(energy)
+}
+
+/// Nodes of the start grid along log10 c (from its lower to its upper bound).
+const GRID_COMPENSATION_NODES: usize = 9;
+/// Nodes along E, spaced geometrically between its bounds: 25 nodes over the default
+/// 1 meV to 1 eV are a factor 1.33 apart, finer than the basin of the global minimum
+/// (about a factor 1.5 either side of the true energy in the synthetic tests).
+const GRID_ENERGY_NODES: usize = 25;
+/// How many grid minima become starts.
+const GRID_STARTS: usize = 4;
+
+/// The chi-square of theta on a (log10 c, E) grid at the plateau's net density; its local
+/// minima (no lower neighbour among the eight around it), best first, are returned as
+/// starts. The grid covers the whole bounded box, so it finds every basin wider than a grid
+/// step whatever the user guessed.
+fn grid_starts(
+    residual: &dyn Fn(&[f64], &mut [f64]),
+    count: usize,
+    log_net: f64,
+    lower: &[f64],
+    upper: &[f64],
+) -> Vec<Vec<f64>> {
+    let (rows, columns) = (GRID_COMPENSATION_NODES, GRID_ENERGY_NODES);
+    let compensation = |i: usize| lower[1] + (upper[1] - lower[1]) * i as f64 / (rows - 1) as f64;
+    let energy = |j: usize| lower[2] * (upper[2] / lower[2]).powf(j as f64 / (columns - 1) as f64);
+    let mut r = vec![0.0; count];
+    let mut chi = vec![vec![f64::INFINITY; columns]; rows];
+    for (i, row) in chi.iter_mut().enumerate() {
+        for (j, value) in row.iter_mut().enumerate() {
+            residual(&[log_net, compensation(i), energy(j)], &mut r);
+            let sum: f64 = r.iter().map(|x| x * x).sum();
+            if sum.is_finite() {
+                *value = sum;
+            }
+        }
+    }
+    let mut minima: Vec<(f64, usize, usize)> = Vec::new();
+    for i in 0..rows {
+        for j in 0..columns {
+            let value = chi[i][j];
+            if !value.is_finite() {
+                continue;
+            }
+            let mut lowest = true;
+            for di in -1i64..=1 {
+                for dj in -1i64..=1 {
+                    let (ni, nj) = (i as i64 + di, j as i64 + dj);
+                    if (di, dj) != (0, 0) && ni >= 0 && nj >= 0 && (ni as usize) < rows && (nj as usize) < columns {
+                        lowest &= chi[ni as usize][nj as usize] >= value;
+                    }
+                }
+            }
+            if lowest {
+                minima.push((value, i, j));
+            }
+        }
+    }
+    minima.sort_by(|a, b| a.0.total_cmp(&b.0));
+    minima
+        .into_iter()
+        .take(GRID_STARTS)
+        .map(|(_, i, j)| vec![log_net, compensation(i), energy(j)])
+        .collect()
+}
+
+/// Fits the charge-neutrality model to a temperature series of carrier densities.
+pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> Result<FreezeOutFit, FreezeOutError> {
+    settings.validate()?;
+    let series = prepare_series(
+        points,
+        settings.carrier_type,
+        settings.temperature_range_k,
+        &settings.hall_factor,
+    )?;
+    let distinct = series.distinct_temperatures();
+    if distinct < MIN_TEMPERATURES {
+        return Err(SeriesError::TooFewTemperatures {
+            count: distinct,
+            required: MIN_TEMPERATURES,
+        }
+        .into());
+    }
+    let carrier_type = series.carrier_type;
+    let mut bands = settings.material.band_model();
+    if let Some(dos) = settings.effective_dos_300k_m3 {
+        match carrier_type {
+            CarrierType::N => bands.conduction_dos_300k_m3 = dos,
+            CarrierType::P => bands.valence_dos_300k_m3 = dos,
+        }
+    }
+    let degeneracy = settings.degeneracy.unwrap_or(carrier_type.default_degeneracy());
+    let ln_degeneracy = degeneracy.ln();
+    let compensating_level = settings
+        .compensating_level
+        .map(|level| (level.ionization_energy_ev, level.degeneracy.ln()));
+    let terms: Vec<TemperatureTerms> = series
+        .temperatures_k
+        .iter()
+        .map(|t| TemperatureTerms::new(&bands, carrier_type, *t))
+        .collect();
+    let ln_data: Vec<f64> = series.densities_m3.iter().map(|n| n.ln()).collect();
+    let relative_unc: Option<Vec<f64>> = series
+        .uncertainties_m3
+        .as_ref()
+        .map(|unc| unc.iter().zip(&series.densities_m3).map(|(u, n)| u / n).collect());
+    let weights: Vec<f64> = relative_unc.clone().unwrap_or_else(|| vec![1.0; series.len()]);
+
+    // Bounds of theta.
+    let n_max = series.densities_m3.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let n_min = series.densities_m3.iter().copied().fold(f64::INFINITY, f64::min);
+    let (net_low, net_high) = settings.net_density_bounds_m3.unwrap_or((n_min / 3.0, 1000.0 * n_max));
+    let (c_low, c_high) = settings.compensation_bounds;
+    let (e_low, e_high) = settings.ionization_energy_bounds_ev;
+    let lower = vec![net_low.log10(), c_low.log10(), e_low];
+    let upper = vec![net_high.log10(), c_high.log10(), e_high];
+    let bounds = Bounds::new(lower.clone(), upper.clone()).map_err(FreezeOutError::Fit)?;
+    let clamp = |j: usize, value: f64| value.max(lower[j]).min(upper[j]);
+
+    // Starts.
+    let mut starts: Vec<Vec<f64>> = Vec::new();
+    if settings.derive_starts_from_data {
+        let activation = low_temperature_activation_ev(&series).unwrap_or(0.05);
+        let net_starts = [n_max.log10(), (3.0 * n_max).log10()];
+        let energy_starts = [activation, 2.0 * activation];
+        // c through the lowest point in the compensated regime with E = E_a:
+        // n = K N_net / N_comp, N_comp = K N_net / n, c = N_comp / (N_net + N_comp).
+        let lowest = &terms[0];
+        let ln_k = lowest.ln_majority_dos - ln_degeneracy - activation * lowest.inverse_thermal_ev;
+        let ratio = (ln_k - ln_data[0]).exp();
+        let c_estimate = ratio / (1.0 + ratio);
+        let mut compensation_starts = vec![0.01f64.log10(), 0.3f64.log10()];
+        if c_estimate.is_finite() && c_estimate > c_low && c_estimate < c_high {
+            compensation_starts.push(c_estimate.log10());
+        }
+        for net in net_starts {
+            for energy in energy_starts {
+                for compensation in &compensation_starts {
+                    starts.push(vec![clamp(0, net), clamp(1, *compensation), clamp(2, energy)]);
+                }
+            }
+        }
+    }
+    for guess in &settings.initial_guesses {
+        let net = guess.dopant_density_m3 - guess.compensating_density_m3;
+        let ratio = guess.compensating_density_m3 / guess.dopant_density_m3;
+        let compensation = if ratio > 0.0 { ratio.log10() } else { lower[1] };
+        starts.push(vec![
+            clamp(0, net.log10()),
+            clamp(1, compensation),
+            clamp(2, guess.ionization_energy_ev),
+        ]);
+    }
+    let residual = |theta: &[f64], r: &mut [f64]| {
+        let parameters = level_parameters(theta, ln_degeneracy, compensating_level);
+        for i in 0..r.len() {
+            r[i] = (ln_majority_density(&terms[i], &parameters) - ln_data[i]) / weights[i];
+        }
+    };
+    if settings.grid_search {
+        starts.extend(grid_starts(
+            &residual,
+            series.len(),
+            clamp(0, n_max.log10()),
+            &lower,
+            &upper,
+        ));
+    }
+    if starts.is_empty() {
+        return Err(FreezeOutError::InvalidSetting {
+            setting: "initial_guesses",
+            value: 0.0,
+            requirement: "give at least one initial guess when derive_starts_from_data and grid_search are false",
+        });
+    }
+    let problem = LeastSquares::new(series.len(), &residual).with_bounds(bounds);
+    let options = LmOptions {
+        residuals_are_weighted: relative_unc.is_some(),
+        // Typical magnitudes: decades for the two logarithms, 10 meV for the energy.
+        parameter_scales: Some(vec![1.0, 1.0, 0.01]),
+        max_iterations: settings.max_iterations,
+        ..LmOptions::default()
+    };
+    let multi = problem
+        .minimize_multi_start(&starts, &options, &SameMinimum::default())
+        .map_err(|error| match error {
+            FitError::Singular { parameters } => FreezeOutError::Undetermined {
+                parameters: parameters.iter().map(|&j| PARAMETER_NAMES[j]).collect(),
+            },
+            other => FreezeOutError::Fit(other),
+        })?;
+    let fit = &multi.best;
+    let theta = &fit.parameters;
+
+    // Physical parameters and first-order propagation of the covariance of theta.
+    let ln10 = std::f64::consts::LN_10;
+    let net = 10f64.powf(theta[0]);
+    let ratio = 10f64.powf(theta[1]);
+    let dopant = net / (1.0 - ratio);
+    let compensating = ratio * dopant;
+    let energy = theta[2];
+    // Rows: dopant, compensating, energy; columns: log10 N_net, log10 c, E.
+    let d_over_dc = net / ((1.0 - ratio) * (1.0 - ratio)) * ln10 * ratio;
+    let gradient = Matrix::from_rows(&[
+        [ln10 * dopant, d_over_dc, 0.0],
+        [ln10 * compensating, d_over_dc, 0.0],
+        [0.0, 0.0, 1.0],
+    ]);
+    let physical = gradient.matmul(&fit.covariance).matmul(&gradient.transpose());
+    let mut covariance = [[0.0; 3]; 3];
+    for (i, row) in covariance.iter_mut().enumerate() {
+        for (j, entry) in row.iter_mut().enumerate() {
+            *entry = physical[(i, j)];
+        }
+    }
+    let free = |j: usize| !fit.at_bound[j];
+    let standard = |variance: f64| (variance >= 0.0).then(|| variance.sqrt());
+    let dopant_unc = if free(0) { standard(physical[(0, 0)]) } else { None };
+    let compensating_unc = if free(0) && free(1) {
+        standard(physical[(1, 1)])
+    } else {
+        None
+    };
+    let energy_unc = if free(2) { standard(physical[(2, 2)]) } else { None };
+    let net_unc = if free(0) {
+        standard(fit.covariance[(0, 0)]).map(|sigma| ln10 * net * sigma)
+    } else {
+        None
+    };
+    let ratio_unc = if free(1) {
+        standard(fit.covariance[(1, 1)]).map(|sigma| ln10 * ratio * sigma)
+    } else {
+        None
+    };
+
+    let model = FreezeOutModel {
+        carrier_type,
+        bands,
+        dopant_density_m3: dopant,
+        compensating_density_m3: compensating,
+        ionization_energy_ev: energy,
+        degeneracy,
+        compensating_level: settings.compensating_level,
+    };
+    let parameters = level_parameters(theta, ln_degeneracy, compensating_level);
+    let fitted_points: Vec<FittedPoint> = (0..series.len())
+        .map(|i| {
+            let ln_model = ln_majority_density(&terms[i], &parameters);
+            let residual_ln = ln_model - ln_data[i];
+            FittedPoint {
+                temperature_k: series.temperatures_k[i],
+                density_m3: series.densities_m3[i],
+                density_unc_m3: series.uncertainties_m3.as_ref().map(|unc| unc[i]),
+                model_density_m3: ln_model.exp(),
+                residual_ln,
+                normalized_residual: relative_unc.as_ref().map(|unc| residual_ln / unc[i]),
+            }
+        })
+        .collect();
+    let t_min = series.temperatures_k[0];
+    let t_max = series.temperatures_k[series.len() - 1];
+    let curve: Vec<CurvePoint> = (0..settings.curve_points)
+        .map(|k| {
+            let fraction = k as f64 / (settings.curve_points - 1) as f64;
+            let temperature_k = if k + 1 == settings.curve_points {
+                t_max
+            } else {
+                t_min * (t_max / t_min).powf(fraction)
+            };
+            let terms = TemperatureTerms::new(&bands, carrier_type, temperature_k);
+            CurvePoint {
+                temperature_k,
+                density_m3: ln_majority_density(&terms, &parameters).exp(),
+            }
+        })
+        .collect();
+
+    let at_bound: Vec<&'static str> = (0..3)
+        .filter(|&j| fit.at_bound[j])
+        .map(|j| PARAMETER_NAMES[j])
+        .collect();
+    let warnings = collect_warnings(&WarningInputs {
+        fit_at_bound: &fit.at_bound,
+        theta,
+        lower: &lower,
+        weighted: relative_unc.is_some(),
+        reduced_chi_square: fit.reduced_chi_square,
+        degrees_of_freedom: fit.degrees_of_freedom,
+        starts: starts.len(),
+        starts_at_best: multi.same_minimum,
+        terms: &terms,
+        temperatures_k: &series.temperatures_k,
+        points: &fitted_points,
+        bands: &bands,
+        carrier_type,
+    });
+    Ok(FreezeOutFit {
+        carrier_type,
+        dopant_density_m3: dopant,
+        dopant_density_m3_unc: dopant_unc,
+        compensating_density_m3: compensating,
+        compensating_density_m3_unc: compensating_unc,
+        net_density_m3: net,
+        net_density_m3_unc: net_unc,
+        compensation_ratio: ratio,
+        compensation_ratio_unc: ratio_unc,
+        ionization_energy_ev: energy,
+        ionization_energy_ev_unc: energy_unc,
+        covariance,
+        degeneracy,
+        hall_factor: series.hall_factor,
+        weighted: relative_unc.is_some(),
+        chi_square: fit.chi_square,
+        degrees_of_freedom: fit.degrees_of_freedom,
+        reduced_chi_square: fit.reduced_chi_square,
+        at_bound,
+        starts: starts.len(),
+        starts_converged: multi.converged,
+        starts_at_best: multi.same_minimum,
+        iterations: fit.iterations,
+        model,
+        points: fitted_points,
+        curve,
+        warnings,
+    })
+}
+
+struct WarningInputs<'a> {
+    fit_at_bound: &'a [bool],
+    theta: &'a [f64],
+    lower: &'a [f64],
+    weighted: bool,
+    reduced_chi_square: f64,
+    degrees_of_freedom: usize,
+    starts: usize,
+    starts_at_best: usize,
+    terms: &'a [TemperatureTerms],
+    temperatures_k: &'a [f64],
+    points: &'a [FittedPoint],
+    bands: &'a mobilis_core::forward::statistics::BandModel,
+    carrier_type: CarrierType,
+}
+
+/// The conditions a careful analyst would want pointed out.
+fn collect_warnings(inputs: &WarningInputs<'_>) -> Vec<String> {
+    let mut warnings = Vec::new();
+    for j in 0..3 {
+        if inputs.fit_at_bound[j] {
+            let side = if inputs.theta[j] <= inputs.lower[j] {
+                "lower"
+            } else {
+                "upper"
+            };
+            let advice = match j {
+                0 => "check the data's density range or give net_density_bounds_m3",
+                1 if side == "lower" => {
+                    "the densities do not fall far enough below the compensating density to show it, so read the value as an upper estimate"
+                }
+                1 => "the data look more compensated than the bound allows: check the carrier type and the model",
+                _ => "widen ionization_energy_bounds_eV or check the temperature range",
+            };
+            warnings.push(format!(
+                "the {} ended on its {side} bound, so the data do not determine it and no uncertainty is given; {advice}",
+                PARAMETER_NAMES[j]
+            ));
+        }
+    }
+    let nu = inputs.degrees_of_freedom as f64;
+    if inputs.weighted && nu > 0.0 {
+        // chi^2 / nu has standard deviation sqrt(2 / nu): four of those is improbable.
+        let spread = 4.0 * (2.0 / nu).sqrt();
+        if inputs.reduced_chi_square > 1.0 + spread {
+            warnings.push(format!(
+                "the reduced chi-square is {:.3} for {} degrees of freedom: the density uncertainties are too small, or one dopant level with Boltzmann statistics does not describe the data (a second level, hopping conduction at the lowest temperatures); the standard errors are then too small",
+                inputs.reduced_chi_square, inputs.degrees_of_freedom
+            ));
+        } else if inputs.reduced_chi_square < 1.0 - spread && inputs.degrees_of_freedom >= 10 {
+            warnings.push(format!(
+                "the reduced chi-square is {:.3} for {} degrees of freedom: the density uncertainties look overestimated, so the standard errors are too large",
+                inputs.reduced_chi_square, inputs.degrees_of_freedom
+            ));
+        }
+    }
+    if inputs.starts > 1 && inputs.starts_at_best == 1 {
+        warnings.push(format!(
+            "only one of {} starting points reached the reported minimum: check the fitted curve against the data",
+            inputs.starts
+        ));
+    }
+    // Minority carriers: n_i^2 / n against n at the hottest point.
+    if let (Some(terms), Some(point)) = (inputs.terms.last(), inputs.points.last()) {
+        let ln_model = point.model_density_m3.ln();
+        let minority_fraction = (terms.ln_intrinsic_squared - 2.0 * ln_model).exp();
+        if minority_fraction > 0.01 {
+            warnings.push(format!(
+                "intrinsic carriers reach {:.1} % of the majority density at {:.1} K: the fit there depends on the material's band gap and densities of states",
+                100.0 * minority_fraction,
+                point.temperature_k
+            ));
+        }
+    }
+    // Boltzmann statistics need the density well below the band's density of states.
+    for (t, point) in inputs.temperatures_k.iter().zip(inputs.points) {
+        let dos = match inputs.carrier_type {
+            CarrierType::N => inputs.bands.conduction_dos_m3(*t),
+            CarrierType::P => inputs.bands.valence_dos_m3(*t),
+        };
+        if point.model_density_m3 > 0.1 * dos {
+            warnings.push(format!(
+                "at {t:.1} K the carrier density is {:.0} % of the band's effective density of states: Boltzmann statistics, which the model assumes, begin to fail",
+                100.0 * point.model_density_m3 / dos
+            ));
+            break;
+        }
+    }
+    warnings
+}

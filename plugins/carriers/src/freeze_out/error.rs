@@ -1,0 +1,208 @@
+//! Why a density series or a freeze-out fit is refused.
+//!
+//! Every message names what is wrong (the 0-based point index, the value) and what to change.
+//! `Display` is written by hand, as in the other plugins, so that the module needs nothing
+//! beyond the standard library and mobilis-core.
+
+use std::fmt;
+
+use mobilis_core::fit::FitError;
+
+use super::CarrierType;
+use crate::materials::MaterialError;
+
+/// What is wrong with a temperature series of carrier densities (shared by the freeze-out
+/// fit and the Arrhenius analysis).
+#[derive(Debug, Clone, PartialEq)]
+#[non_exhaustive]
+pub enum SeriesError {
+    /// No points at all.
+    NoPoints,
+    NonFiniteTemperature {
+        index: usize,
+        value: f64,
+    },
+    NonPositiveTemperature {
+        index: usize,
+        value: f64,
+    },
+    NonFiniteDensity {
+        index: usize,
+        value: f64,
+    },
+    NonPositiveDensity {
+        index: usize,
+        value: f64,
+    },
+    /// An uncertainty that is not a finite positive number.
+    InvalidUncertainty {
+        index: usize,
+        value: f64,
+    },
+    /// Some points have uncertainties and others not.
+    MixedUncertainties {
+        with: usize,
+        without: usize,
+    },
+    /// The carrier type changes within the series.
+    CarrierTypeSwitch {
+        index: usize,
+        temperature_k: f64,
+        first: CarrierType,
+        then: CarrierType,
+    },
+    /// The requested carrier type differs from the data's.
+    CarrierTypeMismatch {
+        requested: CarrierType,
+        found: CarrierType,
+        index: usize,
+    },
+    /// Neither the points nor the settings say which carriers these are.
+    CarrierTypeUnknown,
+    /// The temperature range is not a range.
+    InvalidRange {
+        min_k: f64,
+        max_k: f64,
+    },
+    /// No point lies in the temperature range.
+    RangeExcludesAllData {
+        min_k: f64,
+        max_k: f64,
+        data_min_k: f64,
+        data_max_k: f64,
+    },
+    /// Too few distinct temperatures for the analysis.
+    TooFewTemperatures {
+        count: usize,
+        required: usize,
+    },
+    /// The Hall factor is not a finite positive number (or the scattering exponent is
+    /// outside the range where r_H is defined).
+    InvalidHallFactor {
+        value: f64,
+    },
+}
+
+impl fmt::Display for SeriesError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            SeriesError::NoPoints => write!(f, "the series is empty; give carrier densities at four or more temperatures"),
+            SeriesError::NonFiniteTemperature { index, value } => {
+                write!(f, "point {index}: temperature_K is {value}; give a finite temperature in kelvin")
+            }
+            SeriesError::NonPositiveTemperature { index, value } => write!(
+                f,
+                "point {index}: temperature_K is {value}; give the absolute temperature in kelvin, above 0 (degC + 273.15)"
+            ),
+            SeriesError::NonFiniteDensity { index, value } => {
+                write!(f, "point {index}: density_m3 is {value}; give a finite carrier density in m^-3, or drop the point")
+            }
+            SeriesError::NonPositiveDensity { index, value } => write!(
+                f,
+                "point {index}: density_m3 is {value}; give the carrier density as a positive magnitude in m^-3 (the carrier type is given separately)"
+            ),
+            SeriesError::InvalidUncertainty { index, value } => write!(
+                f,
+                "point {index}: density_m3_unc is {value}; give a finite positive standard uncertainty, or leave every uncertainty out"
+            ),
+            SeriesError::MixedUncertainties { with, without } => write!(
+                f,
+                "{with} points have a density uncertainty and {without} have none; give an uncertainty for every point or for none"
+            ),
+            SeriesError::CarrierTypeSwitch {
+                index,
+                temperature_k,
+                first,
+                then,
+            } => write!(
+                f,
+                "the carrier type changes from {first} to {then} at point {index} ({temperature_k} K); a freeze-out analysis needs one carrier type, so restrict temperature_range_K to one side of the change"
+            ),
+            SeriesError::CarrierTypeMismatch { requested, found, index } => write!(
+                f,
+                "carrier_type {requested} was requested but point {index} is {found}-type; drop carrier_type to take it from the data, or check the series"
+            ),
+            SeriesError::CarrierTypeUnknown => write!(
+                f,
+                "no carrier type is known for this series; give carrier_type (\"n\" or \"p\") or a carrier_type for the points"
+            ),
+            SeriesError::InvalidRange { min_k, max_k } => write!(
+                f,
+                "temperature_range_K is [{min_k}, {max_k}]; give two finite temperatures above 0 K, the lower first"
+            ),
+            SeriesError::RangeExcludesAllData {
+                min_k,
+                max_k,
+                data_min_k,
+                data_max_k,
+            } => write!(
+                f,
+                "temperature_range_K [{min_k}, {max_k}] contains no point (the data span {data_min_k} K to {data_max_k} K); widen or move the range"
+            ),
+            SeriesError::TooFewTemperatures { count, required } => write!(
+                f,
+                "{count} distinct temperatures cannot determine the fit; give at least {required} (widen temperature_range_K or add measurements)"
+            ),
+            SeriesError::InvalidHallFactor { value } => write!(
+                f,
+                "the Hall factor is {value}; give a finite positive factor, or a scattering exponent above -1.25"
+            ),
+        }
+    }
+}
+
+impl std::error::Error for SeriesError {}
+
+/// Why `fit_freeze_out` refuses its input or cannot fit it.
+#[derive(Debug, Clone, PartialEq)]
+#[non_exhaustive]
+pub enum FreezeOutError {
+    /// The density series is not usable.
+    Series(SeriesError),
+    /// The material is not physical.
+    Material(MaterialError),
+    /// A setting is out of range.
+    InvalidSetting {
+        setting: &'static str,
+        value: f64,
+        requirement: &'static str,
+    },
+    /// The data do not determine these parameters at the best fit.
+    Undetermined { parameters: Vec<&'static str> },
+    /// The fit failed for another reason.
+    Fit(FitError),
+}
+
+impl fmt::Display for FreezeOutError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            FreezeOutError::Series(error) => error.fmt(f),
+            FreezeOutError::Material(error) => error.fmt(f),
+            FreezeOutError::InvalidSetting {
+                setting,
+                value,
+                requirement,
+            } => write!(f, "{setting} is {value}; {requirement}"),
+            FreezeOutError::Undetermined { parameters } => write!(
+                f,
+                "the data do not determine the {} (the fit is singular there); extend the temperature range into deeper freeze-out or up to the saturation plateau",
+                parameters.join(" and ")
+            ),
+            FreezeOutError::Fit(error) => write!(f, "the freeze-out fit failed: {error}"),
+        }
+    }
+}
+
+impl std::error::Error for FreezeOutError {}
+
+impl From<SeriesError> for FreezeOutError {
+    fn from(error: SeriesError) -> Self {
+        FreezeOutError::Series(error)
+    }
+}
+
+impl From<MaterialError> for FreezeOutError {
+    fn from(error: MaterialError) -> Self {
+        FreezeOutError::Material(error)
+    }
+}

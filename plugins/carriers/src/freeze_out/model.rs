@@ -1,0 +1,280 @@
+//! The exact charge-neutrality model that the freeze-out fit evaluates.
+//!
+//! For the majority carriers (electrons of density n in an n-type crystal; the p-type case
+//! is the mirror image with the roles of the bands and of donors and acceptors swapped) the
+//! condition p + N_D+ = n + N_A- of `mobilis_core::forward::statistics` is, with Boltzmann
+//! statistics,
+//!
+//! - N_D+ = N_D / (1 + n / K_D), K_D = (Nc / g_D) exp(-E_D / kT);
+//! - p = n_i^2 / n, n_i^2 = Nc Nv exp(-Eg(T) / kT) (Varshni gap);
+//! - N_A- = N_A / (1 + p / K_A), K_A = (Nv / g_A) exp(-E_A / kT) when the compensating level is
+//!   given, N_A- = N_A (fully ionized) when it is not.
+//!
+//! All four terms are functions of n alone, and the balance
+//! h(x) = ln(n + N_A-) - ln(p + N_D+), x = ln n, is strictly increasing in x (each term moves
+//! the right way), so there is exactly one root. It is found by Newton's method in x with a
+//! bracket (bisection whenever a Newton step would leave it), starting from the closed-form
+//! root of the compensated single-donor equation (holes and acceptor occupancy neglected;
+//! Blakemore, Semiconductor Statistics, 1962; Look, Electrical Characterization of GaAs
+//! Materials and Devices, 1989), which is already exact wherever those are negligible: two or
+//! three steps reach rounding. Everything is evaluated in logarithms (log-sum-exp, softplus),
+//! so densities from 1e-100 to 1e30 m^-3 cost the same and nothing underflows.
+//!
+//! This is the same physics as `solve_charge_neutrality` (a test compares them to 1e-10), but
+//! about fifty times cheaper than its bisection to the last bit, which matters because a fit
+//! evaluates it thousands of times.
+
+use mobilis_core::constants::BOLTZMANN_EV_PER_K;
+use mobilis_core::forward::statistics::BandModel;
+
+use super::CarrierType;
+
+/// The level of the compensating species, when its occupancy is to be modelled.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CompensatingLevel {
+    /// Distance of the level from its own band edge (acceptors above the valence band,
+    /// donors below the conduction band), eV.
+    pub ionization_energy_ev: f64,
+    /// Its degeneracy (4 for acceptors, 2 for donors usually).
+    pub degeneracy: f64,
+}
+
+/// A compensated semiconductor with one majority dopant level, as the freeze-out fit models
+/// it.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct FreezeOutModel {
+    pub carrier_type: CarrierType,
+    pub bands: BandModel,
+    /// Majority dopant density (donors for n-type), m^-3.
+    pub dopant_density_m3: f64,
+    /// Compensating dopant density (acceptors for n-type), m^-3; below the dopant density.
+    pub compensating_density_m3: f64,
+    /// Majority level below its band edge (E_c - E_D for donors), eV.
+    pub ionization_energy_ev: f64,
+    /// Majority level degeneracy (2 for donors, 4 for acceptors by default).
+    pub degeneracy: f64,
+    /// `None`: the compensating centres are fully ionized.
+    pub compensating_level: Option<CompensatingLevel>,
+}
+
+/// What the model needs of one temperature, computed once per data point.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct TemperatureTerms {
+    /// 1 / kT, eV^-1.
+    pub inverse_thermal_ev: f64,
+    /// ln of the majority band's effective density of states, ln(m^-3).
+    pub ln_majority_dos: f64,
+    /// ln of the minority band's effective density of states.
+    pub ln_minority_dos: f64,
+    /// ln n_i^2.
+    pub ln_intrinsic_squared: f64,
+}
+
+impl TemperatureTerms {
+    pub fn new(bands: &BandModel, carrier_type: CarrierType, temperature_k: f64) -> Self {
+        let inverse_thermal_ev = 1.0 / (BOLTZMANN_EV_PER_K * temperature_k);
+        let ln_conduction = bands.conduction_dos_m3(temperature_k).ln();
+        let ln_valence = bands.valence_dos_m3(temperature_k).ln();
+        let (ln_majority_dos, ln_minority_dos) = match carrier_type {
+            CarrierType::N => (ln_conduction, ln_valence),
+            CarrierType::P => (ln_valence, ln_conduction),
+        };
+        TemperatureTerms {
+            inverse_thermal_ev,
+            ln_majority_dos,
+            ln_minority_dos,
+            ln_intrinsic_squared: ln_conduction + ln_valence - bands.band_gap_ev(temperature_k) * inverse_thermal_ev,
+        }
+    }
+}
+
+/// The model's parameters in the form the solver uses.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct LevelParameters {
+    pub ln_dopant: f64,
+    /// ln of the compensating density; -inf when there is none.
+    pub ln_compensating: f64,
+    /// ln(dopant - compensating): given separately so that heavy compensation keeps its
+    /// digits.
+    pub ln_net: f64,
+    pub ionization_energy_ev: f64,
+    pub ln_degeneracy: f64,
+    /// (ionization energy, ln degeneracy) of the compensating level.
+    pub compensating_level: Option<(f64, f64)>,
+}
+
+/// ln(1 + e^z) without overflow or loss of precision.
+fn softplus(z: f64) -> f64 {
+    z.max(0.0) + (-z.abs()).exp().ln_1p()
+}
+
+/// 1 / (1 + e^-z).
+fn sigmoid(z: f64) -> f64 {
+    if z >= 0.0 {
+        1.0 / (1.0 + (-z).exp())
+    } else {
+        let e = z.exp();
+        e / (1.0 + e)
+    }
+}
+
+/// ln(e^a + e^b) and the weight e^a / (e^a + e^b); -inf terms allowed.
+fn log_sum_exp(a: f64, b: f64) -> (f64, f64) {
+    let largest = a.max(b);
+    if largest == f64::NEG_INFINITY {
+        return (f64::NEG_INFINITY, 0.5);
+    }
+    let ea = (a - largest).exp();
+    let eb = (b - largest).exp();
+    (largest + (ea + eb).ln(), ea / (ea + eb))
+}
+
+/// The closed-form root of n (n + N_A) / (N_D - N_A - n) = K in logarithms:
+/// n = 2 K (N_D - N_A) / ((N_A + K) + sqrt((N_A + K)^2 + 4 K (N_D - N_A))), evaluated relative
+/// to N_D, with the limits K >> N_D (n = N_D - N_A) and K << everything (n = K (N_D - N_A) / N_A,
+/// or sqrt(K N_D) without compensation) where the ratio would overflow or underflow.
+fn ln_closed_form_root(ln_k: f64, parameters: &LevelParameters) -> f64 {
+    let relative = ln_k - parameters.ln_dopant;
+    if relative > 600.0 {
+        return parameters.ln_net;
+    }
+    if relative < -600.0 {
+        return if parameters.ln_compensating > f64::NEG_INFINITY
+            && ln_k - parameters.ln_compensating < 0.5 * (ln_k - parameters.ln_dopant)
+        {
+            ln_k + parameters.ln_net - parameters.ln_compensating
+        } else {
+            0.5 * (ln_k + parameters.ln_dopant)
+        };
+    }
+    let k = relative.exp();
+    let a = (parameters.ln_compensating - parameters.ln_dopant).exp();
+    let d = (parameters.ln_net - parameters.ln_dopant).exp();
+    let linear = a + k;
+    let ratio = 2.0 * k * d / (linear + (linear * linear + 4.0 * k * d).sqrt());
+    parameters.ln_dopant + ratio.ln()
+}
+
+/// ln of the majority carrier density at one temperature, ln(m^-3).
+pub(crate) fn ln_majority_density(terms: &TemperatureTerms, parameters: &LevelParameters) -> f64 {
+    let ln_k =
+        terms.ln_majority_dos - parameters.ln_degeneracy - parameters.ionization_energy_ev * terms.inverse_thermal_ev;
+    let ln_k_compensating = parameters
+        .compensating_level
+        .map(|(energy, ln_degeneracy)| terms.ln_minority_dos - ln_degeneracy - energy * terms.inverse_thermal_ev);
+    // h(x) and h'(x) as in the module documentation; "carriers" are the majority, "minority"
+    // q = n_i^2 / n.
+    let balance = |x: f64| -> (f64, f64) {
+        let ln_minority = terms.ln_intrinsic_squared - x;
+        let (ln_compensating_ionized, compensating_slope) = match ln_k_compensating {
+            Some(ln_kc) => {
+                let z = ln_minority - ln_kc;
+                (parameters.ln_compensating - softplus(z), sigmoid(z))
+            }
+            None => (parameters.ln_compensating, 0.0),
+        };
+        let z = x - ln_k;
+        let ln_dopant_ionized = parameters.ln_dopant - softplus(z);
+        let dopant_slope = sigmoid(z);
+        let (negative, weight_carriers) = log_sum_exp(x, ln_compensating_ionized);
+        let (positive, weight_minority) = log_sum_exp(ln_minority, ln_dopant_ionized);
+        let derivative = weight_carriers
+            + (1.0 - weight_carriers) * compensating_slope
+            + weight_minority
+            + (1.0 - weight_minority) * dopant_slope;
+        (negative - positive, derivative)
+    };
+
+    let start = ln_closed_form_root(ln_k, parameters);
+    let (value, _) = balance(start);
+    if value == 0.0 {
+        return start;
+    }
+    if !value.is_finite() {
+        return f64::NAN;
+    }
+    // Bracket the root: h increases with x. The closed form is usually a lower bound
+    // already; 40 doublings (a factor e^(2^40)) cover any representable density.
+    let (mut low, mut high) = (start, start);
+    let mut step = 1.0;
+    let mut bracketed = false;
+    for _ in 0..40 {
+        if value < 0.0 {
+            high += step;
+            bracketed = balance(high).0 >= 0.0;
+        } else {
+            low -= step;
+            bracketed = balance(low).0 <= 0.0;
+        }
+        if bracketed {
+            break;
+        }
+        step *= 2.0;
+    }
+    if !bracketed {
+        return f64::NAN;
+    }
+    // Safeguarded Newton.
+    let mut x = start;
+    for _ in 0..200 {
+        let (h, derivative) = balance(x);
+        if h == 0.0 {
+            return x;
+        }
+        if h < 0.0 {
+            low = x;
+        } else {
+            high = x;
+        }
+        let mut next = x - h / derivative;
+        if !(next > low && next < high) {
+            next = 0.5 * (low + high);
+        }
+        if (next - x).abs() <= 4.0 * f64::EPSILON * x.abs().max(1.0)
+            || high - low <= 4.0 * f64::EPSILON * x.abs().max(1.0)
+        {
+            return next;
+        }
+        x = next;
+    }
+    x
+}
+
+impl FreezeOutModel {
+    pub(crate) fn level_parameters(&self) -> LevelParameters {
+        LevelParameters {
+            ln_dopant: self.dopant_density_m3.ln(),
+            ln_compensating: self.compensating_density_m3.ln(),
+            ln_net: (self.dopant_density_m3 - self.compensating_density_m3).ln(),
+            ionization_energy_ev: self.ionization_energy_ev,
+            ln_degeneracy: self.degeneracy.ln(),
+            compensating_level: self
+                .compensating_level
+                .map(|level| (level.ionization_energy_ev, level.degeneracy.ln())),
+        }
+    }
+
+    /// ln of the majority carrier density at `temperature_k`, ln(m^-3). NaN when the
+    /// parameters are unphysical (dopant density not above the compensating density, a
+    /// non-positive density or degeneracy).
+    pub fn ln_carrier_density(&self, temperature_k: f64) -> f64 {
+        let physical = self.dopant_density_m3 > self.compensating_density_m3
+            && self.compensating_density_m3 >= 0.0
+            && self.degeneracy > 0.0
+            && temperature_k > 0.0
+            && self.ionization_energy_ev.is_finite()
+            && self
+                .compensating_level
+                .is_none_or(|level| level.degeneracy > 0.0 && level.ionization_energy_ev.is_finite());
+        if !physical {
+            return f64::NAN;
+        }
+        let terms = TemperatureTerms::new(&self.bands, self.carrier_type, temperature_k);
+        ln_majority_density(&terms, &self.level_parameters())
+    }
+
+    /// The majority carrier density at `temperature_k`, m^-3.
+    pub fn carrier_density_m3(&self, temperature_k: f64) -> f64 {
+        self.ln_carrier_density(temperature_k).exp()
+    }
+}

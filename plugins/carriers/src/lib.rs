@@ -1,0 +1,5 @@
+pub mod materials;
+pub mod freeze_out;
+pub mod arrhenius;
+pub mod scattering;
+pub mod purity;

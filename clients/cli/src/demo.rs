@@ -74,7 +74,92 @@ async fn run_with_daemon(daemon: &Daemon, data: &std::path::Path) -> anyhow::Res
         .call("dataset.rows", json!({ "name": "si-hall", "limit": 10_000 }))
         .await?;
     print_hall_table(&page["columns"], &truth);
+    let summary = |name: &'static str| {
+        let client = &client;
+        async move {
+            client
+                .call("dataset.rows", json!({ "name": name }))
+                .await
+                .map(|page| page["columns"].clone())
+        }
+    };
+    let freeze_out = summary("si-freeze-out-summary").await?;
+    let arrhenius = summary("si-arrhenius-summary").await?;
+    let scattering = summary("si-scattering-summary").await?;
+    let purity = summary("si-purity").await?;
+    print_purity(&freeze_out, &arrhenius, &scattering, &purity, &truth);
     Ok(())
+}
+
+/// `value ± uncertainty` of row `row` of a summary table, scaled into display units.
+fn with_uncertainty(columns: &Value, name: &str, row: usize, factor: f64) -> String {
+    let value = &columns[name][row];
+    let uncertainty = &columns[format!("{name}_unc")][row];
+    format!("{} ± {}", number(value, factor), number(uncertainty, factor))
+}
+
+/// The row of `sample` in a summary table.
+fn row_of(columns: &Value, sample: &str) -> Option<usize> {
+    columns["sample"].as_array()?.iter().position(|s| s == sample)
+}
+
+fn print_purity(freeze_out: &Value, arrhenius: &Value, scattering: &Value, purity: &Value, truth: &Value) {
+    println!();
+    println!(
+        "Donors, acceptors and the donor level (carriers.freeze_out_fit, carriers.arrhenius), true values in brackets"
+    );
+    println!(
+        "{:<14} {:>24} {:>10} {:>24} {:>10} {:>18} {:>7} {:>18}",
+        "sample", "N_D (cm^-3)", "[true]", "N_A (cm^-3)", "[true]", "E_D (meV)", "[true]", "Arrhenius E (meV)"
+    );
+    for sample in truth["samples"].as_array().into_iter().flatten() {
+        let name = sample["sample"].as_str().unwrap_or("?");
+        let Some(row) = row_of(freeze_out, name) else { continue };
+        let arrhenius_energy = row_of(arrhenius, name)
+            .map(|r| with_uncertainty(arrhenius, "activation_energy_eV", r, 1e3))
+            .unwrap_or_else(|| "-".into());
+        println!(
+            "{:<14} {:>24} {:>10} {:>24} {:>10} {:>18} {:>7} {:>18}",
+            name,
+            with_uncertainty(freeze_out, "dopant_density_m3", row, 1e-6),
+            format!("[{}]", number(&sample["donor_density_m3"], 1e-6)),
+            with_uncertainty(freeze_out, "compensating_density_m3", row, 1e-6),
+            format!("[{}]", number(&sample["acceptor_density_m3"], 1e-6)),
+            with_uncertainty(freeze_out, "ionization_energy_eV", row, 1e3),
+            format!("[{}]", number(&sample["donor_ionization_energy_eV"], 1e3)),
+            arrhenius_energy,
+        );
+    }
+    println!();
+    println!("Mobility scattering and purity (carriers.mobility_scattering, carriers.purity)");
+    println!(
+        "{:<14} {:>18} {:>7} {:>22} {:>10} {:>18} {:>12}  counts agree",
+        "sample", "lattice exponent", "[true]", "N_A from mobility", "net doping", "N_A / N_D", "N_D + N_A"
+    );
+    let true_exponent = number(&truth["mobility_model"]["lattice_exponent"], 1.0);
+    for sample in truth["samples"].as_array().into_iter().flatten() {
+        let name = sample["sample"].as_str().unwrap_or("?");
+        let (Some(s), Some(p)) = (row_of(scattering, name), row_of(purity, name)) else {
+            continue;
+        };
+        println!(
+            "{:<14} {:>18} {:>7} {:>22} {:>10} {:>18} {:>12}  {}",
+            name,
+            with_uncertainty(scattering, "lattice_exponent", s, 1.0),
+            format!("[{true_exponent}]"),
+            with_uncertainty(scattering, "compensating_density_m3", s, 1e-6),
+            number(&purity["net_doping_m3"][p], 1e-6),
+            with_uncertainty(purity, "compensation_ratio", p, 1.0),
+            number(&purity["total_impurity_density_m3"][p], 1e-6),
+            match purity["freeze_out_consistent"][p].as_bool() {
+                Some(true) => "yes",
+                Some(false) => "NO",
+                None => "-",
+            }
+        );
+    }
+    println!();
+    println!("Densities in cm^-3. Every number above was computed from the raw readings by mobilisd and its plugins.");
 }
 
 fn column<'a>(columns: &'a Value, name: &str) -> Vec<&'a Value> {

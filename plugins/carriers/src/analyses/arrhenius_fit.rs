@@ -1,0 +1,171 @@
+//! `carriers.arrhenius`: table glue of [`crate::arrhenius`].
+
+use super::freeze_out_fit::hall_role;
+use super::*;
+use crate::arrhenius::{fit_arrhenius, ArrheniusRange, ArrheniusRegime, ArrheniusSettings, AutomaticRange};
+use mobilis_core::abi::AnalysisDeclaration;
+use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
+
+pub struct ArrheniusAnalysis;
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ArrheniusParams {
+    #[serde(default)]
+    regime: Option<String>,
+    #[serde(default)]
+    carrier_type: Option<String>,
+    #[serde(default)]
+    hall_factor: Option<f64>,
+    #[serde(default)]
+    hall_factor_scattering_exponent: Option<f64>,
+    #[serde(rename = "temperature_min_K", default)]
+    temperature_min_k: Option<f64>,
+    #[serde(rename = "temperature_max_K", default)]
+    temperature_max_k: Option<f64>,
+    #[serde(default)]
+    plateau_fraction: Option<f64>,
+    #[serde(default)]
+    slope_spread: Option<f64>,
+    #[serde(default)]
+    min_points: Option<usize>,
+}
+
+impl Analysis for ArrheniusAnalysis {
+    const NAME: &'static str = "carriers.arrhenius";
+    type Params = ArrheniusParams;
+
+    fn declaration() -> AnalysisDeclaration {
+        use ColumnType::*;
+        let defaults = AutomaticRange::default();
+        let shared = material_schema_properties();
+        let mut properties = serde_json::Map::new();
+        for key in [
+            "carrier_type",
+            "hall_factor",
+            "hall_factor_scattering_exponent",
+            "temperature_min_K",
+            "temperature_max_K",
+        ] {
+            properties.insert(key.into(), shared[key].clone());
+        }
+        properties.insert("regime".into(), json!({"type": "string", "enum": ["compensated", "uncompensated"], "default": "compensated", "description": "compensated: slope of ln(n T^-3/2) against 1/kT is -E; uncompensated (N_A << n << N_D): slope of ln(n T^-3/4) is -E/2 and 2 x slope is reported"}));
+        properties.insert("plateau_fraction".into(), json!({"type": "number", "exclusiveMinimum": 0, "exclusiveMaximum": 1, "default": defaults.plateau_fraction, "description": "automatic range: points below this fraction of the largest density"}));
+        properties.insert("slope_spread".into(), json!({"type": "number", "exclusiveMinimum": 0, "default": defaults.slope_spread, "description": "automatic range: largest relative spread of the local slopes"}));
+        properties.insert("min_points".into(), json!({"type": "integer", "minimum": 3, "default": defaults.min_points, "description": "automatic range: fewest temperatures"}));
+        AnalysisDeclaration {
+            name: String::new(),
+            summary: "Activation energy from the slope of the Arrhenius plot of carrier density, over a given or an automatically chosen freeze-out range".into(),
+            description: "Weighted straight line of ln(n T^-3/2) (or ln(n T^-3/4)) against 1/kT. Without temperature_min_K and temperature_max_K the range is the longest low-temperature window of steady negative local slope below the plateau; the range used is reported.".into(),
+            params: json!({"type": "object", "additionalProperties": false, "properties": properties}),
+            inputs: vec![hall_role(vec![
+                column("density_m3", F64, Some("m3"), "majority carrier density"),
+                column("density_m3_unc", F64, Some("m3"), "its standard uncertainty; weights the line").optional(),
+            ])],
+            outputs: vec![
+                column("temperature_K", F64, Some("K"), "temperature"),
+                column("inverse_thermal_energy_per_eV", F64, None, "1/kT, eV^-1 (the Arrhenius abscissa)"),
+                column("reduced_ln_density", F64, None, "ln(n / m^-3) - exponent ln(T / K)"),
+                column("reduced_ln_density_unc", F64, None, "u(n)/n"),
+                column("line", F64, None, "the fitted line at this abscissa"),
+                column("used", Bool, None, "inside the range of the line"),
+            ],
+            summary_keys: vec![
+                column("activation_energy_eV", F64, Some("eV"), "with activation_energy_eV_unc"),
+                column("temperature_min_K", F64, Some("K"), "lowest temperature of the line"),
+                column("temperature_max_K", F64, Some("K"), "highest temperature of the line"),
+                column("points_used", I64, None, "points on the line"),
+                column("automatic_range", Bool, None, "the range was chosen from the data"),
+            ],
+        }
+    }
+
+    fn run(params: ArrheniusParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
+        let hall = inputs.required("hall")?;
+        let mut warnings = Vec::new();
+        let points = density_points(hall, &mut warnings)?;
+        let regime = match params.regime.as_deref() {
+            None | Some("compensated") => ArrheniusRegime::Compensated,
+            Some("uncompensated") => ArrheniusRegime::Uncompensated,
+            Some(other) => {
+                return Err(invalid(format!(
+                    "regime `{other}` is unknown; use compensated or uncompensated"
+                )))
+            }
+        };
+        let range = match (params.temperature_min_k, params.temperature_max_k) {
+            (None, None) => {
+                let defaults = AutomaticRange::default();
+                ArrheniusRange::Automatic(AutomaticRange {
+                    plateau_fraction: params.plateau_fraction.unwrap_or(defaults.plateau_fraction),
+                    slope_spread: params.slope_spread.unwrap_or(defaults.slope_spread),
+                    min_points: params.min_points.unwrap_or(defaults.min_points),
+                })
+            }
+            (min, max) => {
+                let (min_k, max_k) = temperature_range(min, max)?.expect("one bound given");
+                ArrheniusRange::Temperatures { min_k, max_k }
+            }
+        };
+        let settings = ArrheniusSettings {
+            regime,
+            range,
+            carrier_type: parse_carrier_type(params.carrier_type.as_deref())?,
+            hall_factor: hall_factor(params.hall_factor, params.hall_factor_scattering_exponent)?,
+        };
+        host.check_cancelled()?;
+        let fit = fit_arrhenius(&points, &settings).map_err(|e| invalid(e.to_string()))?;
+        let rows = fit.points.len();
+        let table = frame(
+            rows,
+            vec![
+                float_series(
+                    "temperature_K",
+                    fit.points.iter().map(|p| Some(p.temperature_k)).collect(),
+                ),
+                float_series(
+                    "inverse_thermal_energy_per_eV",
+                    fit.points
+                        .iter()
+                        .map(|p| Some(p.inverse_thermal_energy_per_ev))
+                        .collect(),
+                ),
+                float_series(
+                    "reduced_ln_density",
+                    fit.points.iter().map(|p| Some(p.reduced_ln_density)).collect(),
+                ),
+                float_series(
+                    "reduced_ln_density_unc",
+                    fit.points.iter().map(|p| p.reduced_ln_density_unc).collect(),
+                ),
+                float_series(
+                    "line",
+                    fit.points
+                        .iter()
+                        .map(|p| Some(fit.line.evaluate(p.inverse_thermal_energy_per_ev)))
+                        .collect(),
+                ),
+                Column::new("used".into(), fit.points.iter().map(|p| p.used).collect::<Vec<bool>>()),
+            ],
+        )?;
+        let mut output = AnalysisOutput::new(table);
+        let summary = &mut output.summary;
+        insert_estimate(
+            summary,
+            "activation_energy_eV",
+            fit.activation_energy_ev,
+            Some(fit.activation_energy_ev_unc),
+        );
+        summary.insert("regime".into(), json!(fit.regime.as_str()));
+        summary.insert("carrier_type".into(), json!(fit.carrier_type.as_str()));
+        summary.insert("temperature_min_K".into(), json!(fit.temperature_min_k));
+        summary.insert("temperature_max_K".into(), json!(fit.temperature_max_k));
+        summary.insert("points_used".into(), json!(fit.points_used));
+        summary.insert("automatic_range".into(), json!(fit.automatic_range));
+        summary.insert("r_squared".into(), json!(fit.line.r_squared));
+        summary.insert("hall_factor".into(), json!(fit.hall_factor));
+        warnings.extend(fit.warnings.iter().cloned());
+        output.warnings = warnings;
+        Ok(output)
+    }
+}

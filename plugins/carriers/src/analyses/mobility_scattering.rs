@@ -1,0 +1,425 @@
+//! `carriers.mobility_scattering`: table glue of [`crate::scattering`].
+
+use super::freeze_out_fit::hall_role;
+use super::*;
+use crate::purity::{ConsistencyTolerance, DopantDensities};
+use crate::scattering::{
+    fit_mobility_scattering, medium_for, IonizedDensityModel, IonizedImpurityFormula, MobilityPoint,
+    NeutralImpurityModel, ScatteringSettings, ScreeningDensity,
+};
+use mobilis_core::abi::{AnalysisDeclaration, InputRole};
+use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
+
+pub struct MobilityScatteringAnalysis;
+
+fn default_material() -> String {
+    "Si".into()
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ScatteringParams {
+    #[serde(default = "default_material")]
+    material: String,
+    #[serde(default)]
+    material_overrides: MaterialOverrideParams,
+    #[serde(default)]
+    carrier_type: Option<String>,
+    #[serde(default)]
+    formula: Option<String>,
+    #[serde(default)]
+    ionized_density: Option<String>,
+    #[serde(default)]
+    neutral: Option<String>,
+    #[serde(default)]
+    constant_term: bool,
+    #[serde(default)]
+    charge_number: Option<f64>,
+    #[serde(default)]
+    hall_factor: Option<f64>,
+    #[serde(default)]
+    hall_factor_scattering_exponent: Option<f64>,
+    #[serde(rename = "temperature_min_K", default)]
+    temperature_min_k: Option<f64>,
+    #[serde(rename = "temperature_max_K", default)]
+    temperature_max_k: Option<f64>,
+    #[serde(default)]
+    fixed_lattice_exponent: Option<f64>,
+    #[serde(default)]
+    consistency_sigma_multiple: Option<f64>,
+    #[serde(default)]
+    model_relative_uncertainty: Option<f64>,
+    #[serde(default)]
+    mobility_column: Option<String>,
+}
+
+/// The `freeze_out` role: the summary table of `carriers.freeze_out_fit`.
+pub(crate) fn freeze_out_role(required: bool) -> InputRole {
+    use ColumnType::*;
+    InputRole {
+        role: "freeze_out".into(),
+        required,
+        description: "the summary table of carriers.freeze_out_fit (analysis.run summary_output), one row per sample"
+            .into(),
+        columns: vec![
+            column("dopant_density_m3", F64, Some("m3"), "majority dopant density"),
+            column("dopant_density_m3_unc", F64, Some("m3"), "its uncertainty").optional(),
+            column("compensating_density_m3", F64, Some("m3"), "compensating density"),
+            column("compensating_density_m3_unc", F64, Some("m3"), "its uncertainty").optional(),
+            column("dopant_compensating_covariance_m6", F64, None, "their covariance").optional(),
+            column("carrier_type", Str, None, "n or p").optional(),
+            column("sample", Str, None, "sample name").optional(),
+        ],
+    }
+}
+
+/// One row of a freeze-out summary table: the row of `sample` when both tables name
+/// samples, else the only row.
+pub(crate) fn freeze_out_densities(
+    table: &DataFrame,
+    sample: Option<&str>,
+) -> Result<(DopantDensities, Option<CarrierType>), AnalysisError> {
+    let samples = optional_strings(table, "sample")?;
+    let row = match sample {
+        Some(name) if samples.iter().any(|s| s.is_some()) => samples
+            .iter()
+            .position(|s| s.as_deref() == Some(name))
+            .ok_or_else(|| invalid(format!("the freeze_out table has no row for sample `{name}`")))?,
+        _ if table.height() == 1 => 0,
+        _ => {
+            return Err(invalid(format!(
+                "the freeze_out table has {} rows and no sample to match; run with group_by sample or pass one row",
+                table.height()
+            )))
+        }
+    };
+    let value = |name: &str| -> Result<Option<f64>, AnalysisError> { Ok(optional_floats(table, name)?[row]) };
+    let densities = DopantDensities {
+        dopant_density_m3: value("dopant_density_m3")?
+            .ok_or_else(|| invalid("the freeze_out table's dopant_density_m3 is empty"))?,
+        dopant_density_unc_m3: value("dopant_density_m3_unc")?,
+        compensating_density_m3: value("compensating_density_m3")?
+            .ok_or_else(|| invalid("the freeze_out table's compensating_density_m3 is empty"))?,
+        compensating_density_unc_m3: value("compensating_density_m3_unc")?,
+        covariance_m6: value("dopant_compensating_covariance_m6")?,
+    };
+    let carrier_type = parse_carrier_type(optional_strings(table, "carrier_type")?[row].as_deref())?;
+    Ok((densities, carrier_type))
+}
+
+/// The single sample named in a table, if it names one.
+pub(crate) fn single_sample(table: &DataFrame) -> Result<Option<String>, AnalysisError> {
+    let mut names: Vec<String> = optional_strings(table, "sample")?.into_iter().flatten().collect();
+    names.sort();
+    names.dedup();
+    match names.len() {
+        0 => Ok(None),
+        1 => Ok(names.pop()),
+        _ => Err(invalid(format!(
+            "the table holds several samples ({}); run with group_by sample",
+            names.join(", ")
+        ))),
+    }
+}
+
+impl Analysis for MobilityScatteringAnalysis {
+    const NAME: &'static str = "carriers.mobility_scattering";
+    type Params = ScatteringParams;
+
+    fn declaration() -> AnalysisDeclaration {
+        use ColumnType::*;
+        let tolerance = ConsistencyTolerance::default();
+        let mut properties = material_schema_properties();
+        properties.insert("formula".into(), json!({"type": "string", "enum": ["brooks_herring", "conwell_weisskopf"], "default": "brooks_herring", "description": "ionized-impurity scattering: screened (Brooks-Herring) or bare Coulomb with a cut-off (Conwell-Weisskopf)"}));
+        properties.insert("ionized_density".into(), json!({"type": "string", "enum": ["constant", "carriers_plus_compensation"], "default": "constant", "description": "constant: one N_I fitted; carriers_plus_compensation: N_I = n + 2 N_comp at each point with N_comp fitted (needs density_m3)"}));
+        properties.insert("neutral".into(), json!({"type": "string", "enum": ["none", "fitted", "from_carriers"], "default": "none", "description": "neutral-impurity scattering (Erginsoy): none, a fitted constant density, or N_D - N_A - n from the freeze_out input"}));
+        properties.insert(
+            "constant_term".into(),
+            json!({"type": "boolean", "default": false, "description": "fit a temperature-independent mobility term"}),
+        );
+        properties.insert("charge_number".into(), json!({"type": "number", "exclusiveMinimum": 0, "default": 1, "description": "charge number Z of the ionized impurities"}));
+        properties.insert("mobility_column".into(), json!({"type": "string", "enum": ["hall_mobility_m2_per_Vs", "drift_mobility_m2_per_Vs"], "default": "hall_mobility_m2_per_Vs", "description": "which mobility of the hall table to fit: the Hall mobility, or the drift mobility hall.reduce derived with the sample sheet's Hall factor"}));
+        properties.insert("fixed_lattice_exponent".into(), json!({"type": "number", "minimum": 0, "description": "hold the lattice exponent at this value instead of fitting it"}));
+        properties.insert("consistency_sigma_multiple".into(), json!({"type": "number", "exclusiveMinimum": 0, "default": tolerance.sigma_multiple, "description": "the two impurity counts agree within this many combined standard uncertainties (common practice: 2)"}));
+        properties.insert("model_relative_uncertainty".into(), json!({"type": "number", "minimum": 0, "default": tolerance.model_relative_uncertainty, "description": "relative uncertainty allowed for the scattering theory itself in the comparison"}));
+        AnalysisDeclaration {
+            name: String::new(),
+            summary: "Lattice exponent and ionized-impurity density from mobility against temperature (Matthiessen's rule), compared with the freeze-out count".into(),
+            description: "1/mu = 1/mu_L + 1/mu_I (+ 1/mu_N + 1/mu_C) with mu_L = mu_300 (T/300)^-alpha and Brooks-Herring or Conwell-Weisskopf ionized-impurity scattering, fitted in ln mu from several starts. Given the freeze-out summary (role freeze_out), Brooks-Herring screening uses the compensated screening density and the fitted N_I is compared with the freeze-out densities: two independent counts of the same impurities.".into(),
+            params: json!({"type": "object", "additionalProperties": false, "properties": properties}),
+            inputs: vec![
+                hall_role(vec![
+                    column("hall_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "Hall mobility"),
+                    column("hall_mobility_m2_per_Vs_unc", F64, Some("m2_per_Vs"), "its uncertainty; weights the fit").optional(),
+                    column("drift_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "drift mobility (mobility_column)").optional(),
+                    column("drift_mobility_m2_per_Vs_unc", F64, Some("m2_per_Vs"), "its uncertainty").optional(),
+                    column("density_m3", F64, Some("m3"), "carrier density (screening, comparison)").optional(),
+                ]),
+                freeze_out_role(false),
+            ],
+            outputs: vec![
+                column("temperature_K", F64, Some("K"), "temperature"),
+                column("in_fit_range", Bool, None, "the point was fitted"),
+                column("mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "measured mobility after the Hall-factor correction"),
+                column("mobility_m2_per_Vs_unc", F64, Some("m2_per_Vs"), "its uncertainty"),
+                column("fitted_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "the model"),
+                column("lattice_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "lattice term"),
+                column("ionized_impurity_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "ionized-impurity term"),
+                column("neutral_impurity_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "neutral-impurity term"),
+                column("constant_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "temperature-independent term"),
+                column("ionized_density_m3", F64, Some("m3"), "N_I at this point"),
+                column("screening_density_m3", F64, Some("m3"), "Brooks-Herring screening density"),
+                column("log_residual", F64, None, "ln(model) - ln(data)"),
+            ],
+            summary_keys: vec![
+                column("lattice_exponent", F64, None, "alpha of mu_L ~ T^-alpha, with _unc"),
+                column("lattice_mobility_300K_m2_per_Vs", F64, Some("m2_per_Vs"), "mu_L at 300 K, with _unc"),
+                column("ionized_impurity_density_m3", F64, Some("m3"), "N_I, with _unc"),
+                column("freeze_out_consistent", Bool, None, "the scattering and freeze-out counts agree"),
+            ],
+        }
+    }
+
+    fn run(params: ScatteringParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
+        let hall = inputs.required("hall")?;
+        let mut warnings = Vec::new();
+        let sample = single_sample(hall)?;
+        let freeze_out = match inputs.optional("freeze_out") {
+            Some(table) => Some(freeze_out_densities(table, sample.as_deref())?),
+            None => None,
+        };
+        let temperatures = sdk::float_column(hall, "temperature_K")?;
+        let mobility_column = params.mobility_column.as_deref().unwrap_or("hall_mobility_m2_per_Vs");
+        let mobilities = sdk::float_column(hall, mobility_column)?;
+        let uncertainties = optional_floats(hall, &format!("{mobility_column}_unc"))?;
+        let densities = optional_floats(hall, "density_m3")?;
+        let types = optional_strings(hall, "carrier_type")?;
+        let mut points = Vec::new();
+        for row in 0..hall.height() {
+            let (Some(temperature_k), Some(mobility)) = (temperatures[row], mobilities[row]) else {
+                continue;
+            };
+            points.push(MobilityPoint {
+                temperature_k,
+                mobility_m2_per_vs: mobility.abs(),
+                mobility_unc_m2_per_vs: uncertainties[row],
+                carrier_density_m3: densities[row],
+            });
+        }
+        if points.len() < hall.height() {
+            warnings.push(format!(
+                "{} rows without a temperature or mobility were skipped",
+                hall.height() - points.len()
+            ));
+        }
+        let carrier_type = match parse_carrier_type(params.carrier_type.as_deref())? {
+            Some(forced) => forced,
+            None => {
+                let mut seen: Vec<&str> = types.iter().flatten().map(String::as_str).collect();
+                seen.sort();
+                seen.dedup();
+                match seen.as_slice() {
+                    [] => freeze_out.as_ref().and_then(|(_, t)| *t).unwrap_or(CarrierType::N),
+                    [one] => parse_carrier_type(Some(one))?.expect("parsed"),
+                    _ => {
+                        return Err(invalid(
+                            "the carrier type changes within the series; fit one type (temperature_min_K/temperature_max_K) or force carrier_type",
+                        ))
+                    }
+                }
+            }
+        };
+        let material = resolve_material(&params.material, &params.material_overrides)?;
+        let mut settings = ScatteringSettings::new(medium_for(&material, carrier_type));
+        settings.formula = match params.formula.as_deref() {
+            None | Some("brooks_herring") => IonizedImpurityFormula::BrooksHerring,
+            Some("conwell_weisskopf") => IonizedImpurityFormula::ConwellWeisskopf,
+            Some(other) => {
+                return Err(invalid(format!(
+                    "formula `{other}` is unknown; use brooks_herring or conwell_weisskopf"
+                )))
+            }
+        };
+        settings.ionized_density = match params.ionized_density.as_deref() {
+            None | Some("constant") => IonizedDensityModel::Constant,
+            Some("carriers_plus_compensation") => IonizedDensityModel::CarriersPlusCompensation,
+            Some(other) => {
+                return Err(invalid(format!(
+                    "ionized_density `{other}` is unknown; use constant or carriers_plus_compensation"
+                )))
+            }
+        };
+        let have_densities = points.iter().all(|p| p.carrier_density_m3.is_some());
+        settings.screening = match (&freeze_out, have_densities) {
+            (Some((densities, _)), true) => ScreeningDensity::Compensated {
+                dopant_density_m3: densities.dopant_density_m3,
+                compensating_density_m3: densities.compensating_density_m3,
+            },
+            (_, true) => ScreeningDensity::MeasuredCarriers,
+            (_, false) => ScreeningDensity::ImpurityDensity,
+        };
+        settings.neutral = match params.neutral.as_deref() {
+            None | Some("none") => NeutralImpurityModel::None,
+            Some("fitted") => NeutralImpurityModel::FittedConstant,
+            Some("from_carriers") => match &freeze_out {
+                Some((densities, _)) => NeutralImpurityModel::FromCarrierDensity {
+                    net_doping_m3: densities.dopant_density_m3 - densities.compensating_density_m3,
+                },
+                None => {
+                    return Err(invalid(
+                        "neutral: from_carriers needs the freeze_out input (the net doping)",
+                    ))
+                }
+            },
+            Some(other) => {
+                return Err(invalid(format!(
+                    "neutral `{other}` is unknown; use none, fitted or from_carriers"
+                )))
+            }
+        };
+        settings.constant_term = params.constant_term;
+        if let Some(z) = params.charge_number {
+            settings.charge_number = z;
+        }
+        settings.hall_factor = hall_factor(params.hall_factor, params.hall_factor_scattering_exponent)?
+            .value()
+            .map_err(|e| invalid(e.to_string()))?;
+        let range = temperature_range(params.temperature_min_k, params.temperature_max_k)?;
+        settings.temperature_min_k = range.map(|r| r.0);
+        settings.temperature_max_k = range.and_then(|r| r.1.is_finite().then_some(r.1));
+        settings.fixed_lattice_exponent = params.fixed_lattice_exponent;
+        if let Some(k) = params.consistency_sigma_multiple {
+            settings.tolerance.sigma_multiple = k;
+        }
+        if let Some(m) = params.model_relative_uncertainty {
+            settings.tolerance.model_relative_uncertainty = m;
+        }
+        host.progress(0.1, "fitting");
+        host.check_cancelled()?;
+        let fit =
+            fit_mobility_scattering(&points, &settings, freeze_out.as_ref().map(|(d, _)| d)).map_err(|error| {
+                match error {
+                    crate::scattering::ScatteringError::FitFailed(_) => AnalysisError::Numerical(error.to_string()),
+                    other => invalid(other.to_string()),
+                }
+            })?;
+
+        let rows = &fit.rows;
+        let table = frame(
+            rows.len(),
+            vec![
+                float_series("temperature_K", rows.iter().map(|r| Some(r.temperature_k)).collect()),
+                Column::new(
+                    "in_fit_range".into(),
+                    rows.iter().map(|r| r.in_fit_range).collect::<Vec<bool>>(),
+                ),
+                float_series(
+                    "mobility_m2_per_Vs",
+                    rows.iter().map(|r| Some(r.mobility_data)).collect(),
+                ),
+                float_series(
+                    "mobility_m2_per_Vs_unc",
+                    rows.iter().map(|r| r.mobility_data_unc).collect(),
+                ),
+                float_series(
+                    "fitted_mobility_m2_per_Vs",
+                    rows.iter().map(|r| r.mobility_fit).collect(),
+                ),
+                float_series(
+                    "lattice_mobility_m2_per_Vs",
+                    rows.iter().map(|r| r.mobility_lattice).collect(),
+                ),
+                float_series(
+                    "ionized_impurity_mobility_m2_per_Vs",
+                    rows.iter().map(|r| r.mobility_ionized).collect(),
+                ),
+                float_series(
+                    "neutral_impurity_mobility_m2_per_Vs",
+                    rows.iter().map(|r| r.mobility_neutral).collect(),
+                ),
+                float_series(
+                    "constant_mobility_m2_per_Vs",
+                    rows.iter().map(|r| r.mobility_constant).collect(),
+                ),
+                float_series(
+                    "ionized_density_m3",
+                    rows.iter().map(|r| r.ionized_density_m3).collect(),
+                ),
+                float_series(
+                    "screening_density_m3",
+                    rows.iter().map(|r| r.screening_density_m3).collect(),
+                ),
+                float_series("log_residual", rows.iter().map(|r| r.log_residual).collect()),
+            ],
+        )?;
+        let mut output = AnalysisOutput::new(table);
+        let summary = &mut output.summary;
+        summary.insert("carrier_type".into(), json!(carrier_type.as_str()));
+        summary.insert("formula".into(), json!(fit.formula.name()));
+        insert_estimate(
+            summary,
+            "lattice_exponent",
+            fit.lattice_exponent.value,
+            fit.lattice_exponent.uncertainty,
+        );
+        summary.insert("lattice_exponent_fixed".into(), json!(fit.lattice_exponent_fixed));
+        insert_estimate(
+            summary,
+            "lattice_mobility_300K_m2_per_Vs",
+            fit.lattice_mobility_300k_m2_per_vs.value,
+            fit.lattice_mobility_300k_m2_per_vs.uncertainty,
+        );
+        insert_estimate(
+            summary,
+            "ionized_impurity_density_m3",
+            fit.ionized_impurity_density_m3.value,
+            fit.ionized_impurity_density_m3.uncertainty,
+        );
+        if let Some(estimate) = fit.compensating_density_m3 {
+            insert_estimate(summary, "compensating_density_m3", estimate.value, estimate.uncertainty);
+        }
+        if let Some(estimate) = fit.neutral_impurity_density_m3 {
+            insert_estimate(
+                summary,
+                "neutral_impurity_density_m3",
+                estimate.value,
+                estimate.uncertainty,
+            );
+        }
+        if let Some(estimate) = fit.constant_mobility_m2_per_vs {
+            insert_estimate(
+                summary,
+                "constant_mobility_m2_per_Vs",
+                estimate.value,
+                estimate.uncertainty,
+            );
+        }
+        summary.insert("reduced_chi_square".into(), json!(fit.goodness.reduced_chi_square));
+        summary.insert("degrees_of_freedom".into(), json!(fit.goodness.degrees_of_freedom));
+        summary.insert("points_used".into(), json!(fit.points_used));
+        summary.insert("hall_factor".into(), json!(fit.hall_factor));
+        summary.insert("mobility_column".into(), json!(mobility_column));
+        if let Some(comparison) = &fit.comparison {
+            summary.insert("freeze_out_reference_m3".into(), json!(comparison.reference.value));
+            summary.insert("freeze_out_reference_basis".into(), json!(comparison.basis.name()));
+            summary.insert("density_ratio".into(), json!(comparison.ratio));
+            summary.insert("density_ratio_unc".into(), json!(comparison.ratio_unc));
+            summary.insert("deviation_sigma".into(), json!(comparison.deviation_sigma));
+            summary.insert("freeze_out_consistent".into(), json!(comparison.consistent));
+            if !comparison.consistent {
+                warnings.push(format!(
+                    "the scattering fit's {} ({:.3e} m^-3) disagrees with the freeze-out {} ({:.3e} m^-3) by {:.1} combined standard uncertainties",
+                    comparison.quantity.replace('_', " "),
+                    comparison.fitted.value,
+                    comparison.basis.description(),
+                    comparison.reference.value,
+                    comparison.deviation_sigma
+                ));
+            }
+        }
+        warnings.extend(fit.warnings.iter().cloned());
+        output.warnings = warnings;
+        host.progress(1.0, "done");
+        Ok(output)
+    }
+}

@@ -1,0 +1,244 @@
+//! `carriers.purity`: table glue of [`crate::purity`].
+
+use super::mobility_scattering::{freeze_out_densities, freeze_out_role};
+use super::*;
+use crate::purity::{
+    summarize_purity, ConsistencyTolerance, DensityComparison, Estimate, PurityInput, ReferenceBasis,
+    ScatteringDensities,
+};
+use mobilis_core::abi::{AnalysisDeclaration, InputRole};
+use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
+
+pub struct PurityAnalysis;
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PurityParams {
+    #[serde(default)]
+    consistency_sigma_multiple: Option<f64>,
+    #[serde(default)]
+    model_relative_uncertainty: Option<f64>,
+}
+
+fn estimate(value: Option<f64>, uncertainty: Option<f64>) -> Option<Estimate> {
+    value.map(|value| Estimate { value, uncertainty })
+}
+
+/// The scattering densities of one sample from the summary table of `carriers.mobility_scattering`.
+fn scattering_densities(table: &DataFrame, sample: Option<&str>) -> Result<Option<ScatteringDensities>, AnalysisError> {
+    let samples = optional_strings(table, "sample")?;
+    let row = match sample {
+        Some(name) if samples.iter().any(|s| s.is_some()) => {
+            match samples.iter().position(|s| s.as_deref() == Some(name)) {
+                Some(row) => row,
+                None => return Ok(None),
+            }
+        }
+        _ if table.height() == 1 => 0,
+        _ => {
+            return Err(invalid(
+                "the scattering table has several rows and no sample to match; pass one row or name samples",
+            ))
+        }
+    };
+    let value = |name: &str| -> Result<Option<f64>, AnalysisError> { Ok(optional_floats(table, name)?[row]) };
+    let Some(ionized) = estimate(
+        value("ionized_impurity_density_m3")?,
+        value("ionized_impurity_density_m3_unc")?,
+    ) else {
+        return Ok(None);
+    };
+    let consistent = if table.column("freeze_out_consistent").is_ok() {
+        let column = table.column("freeze_out_consistent").expect("present");
+        column.bool().ok().and_then(|b| b.get(row))
+    } else {
+        None
+    };
+    let basis = match optional_strings(table, "freeze_out_reference_basis")?[row].as_deref() {
+        Some("total_impurities") => ReferenceBasis::TotalImpurities,
+        Some("compensating_density") => ReferenceBasis::CompensatingDensity,
+        _ => ReferenceBasis::IonizedAtFitTemperatures,
+    };
+    // Only a comparison against the ionized density at the fitted temperatures needs the
+    // scattering fit's own numbers; the others the purity summary recomputes from the
+    // freeze-out densities, with their uncertainties.
+    let comparison = match (value("freeze_out_reference_m3")?, value("density_ratio")?, consistent) {
+        (Some(reference), Some(ratio), Some(consistent)) if basis == ReferenceBasis::IonizedAtFitTemperatures => {
+            Some(DensityComparison {
+                quantity: "ionized_impurity_density",
+                fitted: ionized,
+                reference: Estimate {
+                    value: reference,
+                    uncertainty: None,
+                },
+                basis,
+                ratio,
+                ratio_unc: value("density_ratio_unc")?,
+                deviation_sigma: value("deviation_sigma")?.unwrap_or(f64::NAN),
+                consistent,
+            })
+        }
+        _ => None,
+    };
+    Ok(Some(ScatteringDensities {
+        ionized_impurity_density_m3: ionized,
+        compensating_density_m3: estimate(value("compensating_density_m3")?, value("compensating_density_m3_unc")?),
+        comparison,
+    }))
+}
+
+const ESTIMATE_COLUMNS: [(&str, &str); 7] = [
+    ("donor_density_m3", "N_D"),
+    ("acceptor_density_m3", "N_A"),
+    ("net_doping_m3", "|N_D - N_A|"),
+    ("compensation_ratio", "compensating / majority"),
+    ("total_impurity_density_m3", "N_D + N_A"),
+    ("scattering_ionized_density_m3", "N_I from the mobility fit"),
+    (
+        "scattering_compensating_density_m3",
+        "N_comp from the mobility fit (carriers_plus_compensation)",
+    ),
+];
+
+impl Analysis for PurityAnalysis {
+    const NAME: &'static str = "carriers.purity";
+    type Params = PurityParams;
+
+    fn declaration() -> AnalysisDeclaration {
+        use ColumnType::*;
+        let tolerance = ConsistencyTolerance::default();
+        let mut outputs = vec![
+            column("sample", Str, None, "sample name"),
+            column("carrier_type", Str, None, "n or p"),
+        ];
+        for (name, description) in ESTIMATE_COLUMNS {
+            let unit = name.ends_with("_m3").then_some("m3");
+            outputs.push(column(name, F64, unit, description));
+            outputs.push(column(&format!("{name}_unc"), F64, unit, "standard uncertainty"));
+        }
+        outputs.push(column(
+            "density_ratio",
+            F64,
+            None,
+            "scattering N_I over its freeze-out reference",
+        ));
+        outputs.push(column("freeze_out_consistent", Bool, None, "the two counts agree"));
+        AnalysisDeclaration {
+            name: String::new(),
+            summary: "Purity summary per sample: donor and acceptor densities, net doping, compensation ratio and total impurities from the freeze-out fit, beside the mobility fit's ionized-impurity count".into(),
+            description: "Reads the summary tables (analysis.run summary_output) of carriers.freeze_out_fit and, optionally, carriers.mobility_scattering; uncertainties propagate with the freeze-out covariance.".into(),
+            params: json!({"type": "object", "additionalProperties": false, "properties": {
+                "consistency_sigma_multiple": {"type": "number", "exclusiveMinimum": 0, "default": tolerance.sigma_multiple},
+                "model_relative_uncertainty": {"type": "number", "minimum": 0, "default": tolerance.model_relative_uncertainty}
+            }}),
+            inputs: vec![
+                freeze_out_role(true),
+                InputRole {
+                    role: "scattering".into(),
+                    required: false,
+                    description: "the summary table of carriers.mobility_scattering".into(),
+                    columns: vec![
+                        column("ionized_impurity_density_m3", F64, Some("m3"), "N_I"),
+                        column("ionized_impurity_density_m3_unc", F64, Some("m3"), "its uncertainty").optional(),
+                        column("sample", Str, None, "sample name").optional(),
+                    ],
+                },
+            ],
+            outputs,
+            summary_keys: vec![column("samples", I64, None, "rows of the output")],
+        }
+    }
+
+    fn run(params: PurityParams, inputs: &Inputs, _host: &Host) -> Result<AnalysisOutput, AnalysisError> {
+        let freeze_out = inputs.required("freeze_out")?;
+        let scattering = inputs.optional("scattering");
+        let mut tolerance = ConsistencyTolerance::default();
+        if let Some(k) = params.consistency_sigma_multiple {
+            tolerance.sigma_multiple = k;
+        }
+        if let Some(m) = params.model_relative_uncertainty {
+            tolerance.model_relative_uncertainty = m;
+        }
+        let samples = optional_strings(freeze_out, "sample")?;
+        let mut summaries = Vec::with_capacity(freeze_out.height());
+        for (row, sample) in samples.iter().enumerate() {
+            let single = freeze_out.slice(row as i64, 1);
+            let (densities, carrier_type) = freeze_out_densities(&single, None)?;
+            let scattering = match scattering {
+                Some(table) => scattering_densities(table, sample.as_deref())?,
+                None => None,
+            };
+            let input = PurityInput {
+                sample: sample.clone().unwrap_or_else(|| format!("row {row}")),
+                carrier_type,
+                freeze_out: Some(densities),
+                scattering,
+            };
+            summaries.push(summarize_purity(&input, &tolerance).map_err(|e| invalid(e.to_string()))?);
+        }
+        let pick =
+            |get: fn(&crate::purity::PuritySummary) -> Option<Estimate>| -> (Vec<Option<f64>>, Vec<Option<f64>>) {
+                summaries
+                    .iter()
+                    .map(|s| get(s).map(|e| (Some(e.value), e.uncertainty)).unwrap_or((None, None)))
+                    .unzip()
+            };
+        let getters: [fn(&crate::purity::PuritySummary) -> Option<Estimate>; 7] = [
+            |s| s.donor_density_m3,
+            |s| s.acceptor_density_m3,
+            |s| s.net_doping_m3,
+            |s| s.compensation_ratio,
+            |s| s.total_impurity_density_m3,
+            |s| s.scattering_ionized_density_m3,
+            |s| s.scattering_compensating_density_m3,
+        ];
+        let mut columns = vec![
+            Column::new(
+                "sample".into(),
+                summaries.iter().map(|s| s.sample.clone()).collect::<Vec<_>>(),
+            ),
+            Column::new(
+                "carrier_type".into(),
+                summaries
+                    .iter()
+                    .map(|s| s.carrier_type.map(|t| t.as_str().to_owned()))
+                    .collect::<Vec<_>>(),
+            ),
+        ];
+        for ((name, _), get) in ESTIMATE_COLUMNS.iter().zip(getters) {
+            let (values, uncertainties) = pick(get);
+            columns.push(float_series(name, values));
+            columns.push(float_series(&format!("{name}_unc"), uncertainties));
+        }
+        columns.push(float_series(
+            "density_ratio",
+            summaries.iter().map(|s| s.comparison.map(|c| c.ratio)).collect(),
+        ));
+        columns.push(Column::new(
+            "freeze_out_consistent".into(),
+            summaries
+                .iter()
+                .map(|s| s.comparison.map(|c| c.consistent))
+                .collect::<Vec<_>>(),
+        ));
+        let mut output = AnalysisOutput::new(frame(summaries.len(), columns)?);
+        output.summary.insert("samples".into(), json!(summaries.len()));
+        if let [only] = summaries.as_slice() {
+            for ((name, _), get) in ESTIMATE_COLUMNS.iter().zip(getters) {
+                if let Some(e) = get(only) {
+                    insert_estimate(&mut output.summary, name, e.value, e.uncertainty);
+                }
+            }
+            if let Some(comparison) = only.comparison {
+                output
+                    .summary
+                    .insert("freeze_out_consistent".into(), json!(comparison.consistent));
+            }
+        }
+        output.warnings = summaries
+            .iter()
+            .flat_map(|s| s.warnings.iter().map(move |w| format!("{}: {w}", s.sample)))
+            .collect();
+        Ok(output)
+    }
+}

@@ -9,6 +9,8 @@
 //! - [`linalg`]: small dense linear algebra (Cholesky, QR, SVD, least squares, inverses).
 //! - [`fit`]: bounded Levenberg-Marquardt least squares, multi-start, the weighted line.
 //! - [`nnls`]: non-negative least squares (Lawson-Hanson active set, warm start, cancellable).
+//! - [`sweep`]: field sweeps: symmetrization in field, resistivity <-> conductivity tensor,
+//!   sheet <-> volume quantities.
 //! - [`abi`]: the C ABI between the daemon and plugin libraries (mirrored by
 //!   `include/mobilis_plugin.h`).
 //! - [`table_ffi`]: DataFrames across the Arrow C Data Interface.
@@ -24,6 +26,7 @@ pub mod nnls;
 pub mod noise;
 pub mod readings;
 pub mod sdk;
+pub mod sweep;
 pub mod table_ffi;
 pub mod units;
 pub mod van_der_pauw;

@@ -110,7 +110,14 @@ pub enum NnlsError {
 /// # Panics
 /// When `b` does not have one entry per row of A.
 pub fn solve(a: &Matrix, b: &[f64], options: &NnlsOptions) -> Result<NnlsSolution, NnlsError> {
-    assert_eq!(b.len(), a.rows(), "a {}x{} matrix with {} right-hand sides", a.rows(), a.cols(), b.len());
+    assert_eq!(
+        b.len(),
+        a.rows(),
+        "a {}x{} matrix with {} right-hand sides",
+        a.rows(),
+        a.cols(),
+        b.len()
+    );
     if a.as_slice().iter().any(|v| !v.is_finite()) {
         return Err(NnlsError::NonFinite { what: "the matrix A" });
     }
@@ -133,10 +140,18 @@ pub fn solve_gram(
     cancelled: &dyn Fn() -> bool,
 ) -> Result<NnlsSolution, NnlsError> {
     let n = h.rows();
-    assert_eq!(h.cols(), n, "the Gram matrix must be square, not {}x{}", h.rows(), h.cols());
+    assert_eq!(
+        h.cols(),
+        n,
+        "the Gram matrix must be square, not {}x{}",
+        h.rows(),
+        h.cols()
+    );
     assert_eq!(g.len(), n, "a {n}x{n} Gram matrix with a gradient of {}", g.len());
     if h.as_slice().iter().any(|v| !v.is_finite()) {
-        return Err(NnlsError::NonFinite { what: "the Gram matrix H" });
+        return Err(NnlsError::NonFinite {
+            what: "the Gram matrix H",
+        });
     }
     if g.iter().any(|v| !v.is_finite()) {
         return Err(NnlsError::NonFinite { what: "the vector g" });
@@ -170,7 +185,16 @@ pub fn solve_gram(
             }
         }
         if !factor.order.is_empty() {
-            restore_feasibility(g, &mut x, &mut factor, &mut in_passive, None, &mut iterations, max_iterations, cancelled)?;
+            restore_feasibility(
+                g,
+                &mut x,
+                &mut factor,
+                &mut in_passive,
+                None,
+                &mut iterations,
+                max_iterations,
+                cancelled,
+            )?;
         }
     }
 
@@ -181,7 +205,9 @@ pub fn solve_gram(
         }
         iterations += 1;
         if iterations > max_iterations {
-            return Err(NnlsError::NotConverged { iterations: max_iterations });
+            return Err(NnlsError::NotConverged {
+                iterations: max_iterations,
+            });
         }
         let w = negative_gradient(h, g, &x, &factor.order);
         let hx_scale = hx_scale(h, &x, &factor.order);
@@ -255,11 +281,17 @@ fn restore_feasibility(
         }
         *iterations += 1;
         if *iterations > max_iterations {
-            return Err(NnlsError::NotConverged { iterations: max_iterations });
+            return Err(NnlsError::NotConverged {
+                iterations: max_iterations,
+            });
         }
         if first {
             if let Some(j) = entering {
-                let position = factor.order.iter().position(|&k| k == j).expect("the entering variable is passive");
+                let position = factor
+                    .order
+                    .iter()
+                    .position(|&k| k == j)
+                    .expect("the entering variable is passive");
                 if z[position] <= 0.0 && x[j] == 0.0 {
                     factor.remove(position);
                     in_passive[j] = false;
@@ -366,7 +398,10 @@ impl Factor {
         self.order.remove(position);
         self.rows.remove(position);
         // v: the deleted column, below the deleted row.
-        let mut v: Vec<f64> = self.rows[position..].iter_mut().map(|row| row.remove(position)).collect();
+        let mut v: Vec<f64> = self.rows[position..]
+            .iter_mut()
+            .map(|row| row.remove(position))
+            .collect();
         let trailing = &mut self.rows[position..];
         for i in 0..trailing.len() {
             let column = position + i;
@@ -455,7 +490,11 @@ mod tests {
         // = -1 < 0, so (1, 0) is optimal (worked by hand).
         let a = Matrix::from_rows(&[[1.0, 1.0], [1.0, -1.0], [0.0, 1.0]]);
         let solution = solve(&a, &[2.0, 0.0, -3.0], &NnlsOptions::default()).unwrap();
-        assert!((solution.x[0] - 1.0).abs() < 1e-14 && solution.x[1] == 0.0, "{:?}", solution.x);
+        assert!(
+            (solution.x[0] - 1.0).abs() < 1e-14 && solution.x[1] == 0.0,
+            "{:?}",
+            solution.x
+        );
         assert!((solution.negative_gradient[1] + 1.0).abs() < 1e-14);
         // b = 0: x = 0 without iterating into anything.
         let solution = solve(&a, &[0.0; 3], &NnlsOptions::default()).unwrap();
@@ -475,9 +514,16 @@ mod tests {
             let solution = solve(&a, &b, &NnlsOptions::default()).unwrap();
             let (reference, best) = brute_force(&h, &g);
             let cost = objective(&h, &g, &solution.x);
-            assert!(cost <= best + 1e-10 * best.abs().max(1.0), "trial {trial}: {cost} vs {best}");
+            assert!(
+                cost <= best + 1e-10 * best.abs().max(1.0),
+                "trial {trial}: {cost} vs {best}"
+            );
             for (got, want) in solution.x.iter().zip(&reference) {
-                assert!((got - want).abs() < 1e-8, "trial {trial}: {:?} vs {reference:?}", solution.x);
+                assert!(
+                    (got - want).abs() < 1e-8,
+                    "trial {trial}: {:?} vs {reference:?}",
+                    solution.x
+                );
             }
             // Karush-Kuhn-Tucker: feasible, stationary on the passive set, no descent
             // direction into the active set.
@@ -504,7 +550,11 @@ mod tests {
         });
         let truth: Vec<f64> = (0..n).map(|j| if j == 17 || j == 40 { 1.0 } else { 0.0 }).collect();
         let mut rng = Rng::seeded(3);
-        let b: Vec<f64> = a.mul_vec(&truth).iter().map(|v| v + 1e-3 * rng.standard_normal()).collect();
+        let b: Vec<f64> = a
+            .mul_vec(&truth)
+            .iter()
+            .map(|v| v + 1e-3 * rng.standard_normal())
+            .collect();
         let with_ridge = |ridge: f64| {
             let mut h = a.gram();
             for j in 0..n {
@@ -521,7 +571,12 @@ mod tests {
         for (c, w) in cold.x.iter().zip(&warm.x) {
             assert!((c - w).abs() < 1e-9, "{c} vs {w}");
         }
-        assert!(warm.iterations < cold.iterations, "{} vs {}", warm.iterations, cold.iterations);
+        assert!(
+            warm.iterations < cold.iterations,
+            "{} vs {}",
+            warm.iterations,
+            cold.iterations
+        );
         // Both spikes are found, within a few points.
         let total: f64 = cold.x.iter().sum();
         let near = |centre: usize| -> f64 { cold.x[centre - 4..=centre + 4].iter().sum() };
@@ -542,7 +597,9 @@ mod tests {
         assert_eq!(factor.order, vec![3, 7, 5, 6]);
         let sub = Matrix::from_fn(4, 4, |p, q| h[(factor.order[p], factor.order[q])]);
         let rebuilt = Matrix::from_fn(4, 4, |p, q| {
-            (0..=p.min(q)).map(|k| factor.rows[p][k] * factor.rows[q][k]).sum::<f64>()
+            (0..=p.min(q))
+                .map(|k| factor.rows[p][k] * factor.rows[q][k])
+                .sum::<f64>()
         });
         for p in 0..4 {
             for q in 0..4 {

@@ -275,9 +275,7 @@ pub enum SweepError {
         column: &'static str,
         value: f64,
     },
-    #[error(
-        "{with} points have uncertainties and {without} do not; give uncertainties for every point or for none"
-    )]
+    #[error("{with} points have uncertainties and {without} do not; give uncertainties for every point or for none")]
     MixedUncertainties { with: usize, without: usize },
     #[error(
         "the sweep has {present} fields only (|B| from {min_t} T to {max_t} T); symmetrizing needs fields of both signs, so measure the {missing} branch too"
@@ -303,8 +301,10 @@ pub enum SweepError {
     InvalidGridField { value: f64 },
     #[error("setting {name} is {value}; give a finite value of 0 or more")]
     InvalidSetting { name: &'static str, value: f64 },
-    #[error("thickness_m is {value}; give a positive thickness in metres (and a non-negative finite uncertainty)")]
+    #[error("thickness_m is {value}; give a positive finite thickness in metres")]
     InvalidThickness { value: f64 },
+    #[error("thickness_m_unc is {value}; give a finite standard uncertainty of 0 or more in metres, or none")]
+    InvalidThicknessUncertainty { value: f64 },
 }
 
 /// Checks every point and returns whether they carry uncertainties.
@@ -331,7 +331,10 @@ pub fn validate_points(points: &[SweepPoint]) -> Result<bool, SweepError> {
         }
         if let Some(unc) = point.uncertainty {
             with += 1;
-            for (column, value) in [("rho_xx_ohm_sq_unc", unc.rho_xx_ohm_sq), ("rho_xy_ohm_unc", unc.rho_xy_ohm)] {
+            for (column, value) in [
+                ("rho_xx_ohm_sq_unc", unc.rho_xx_ohm_sq),
+                ("rho_xy_ohm_unc", unc.rho_xy_ohm),
+            ] {
                 if !(value.is_finite() && value > 0.0) {
                     return Err(SweepError::InvalidUncertainty { index, column, value });
                 }
@@ -452,14 +455,22 @@ pub fn symmetrize(points: &[SweepPoint], settings: &SymmetrizeSettings) -> Resul
         .filter(|p| p.field_t.abs() <= tolerance)
         .map(|p| (0.0, p))
         .collect();
-    let positive: Vec<(f64, &SweepPoint)> =
-        points.iter().filter(|p| p.field_t > tolerance).map(|p| (p.field_t, p)).collect();
-    let negative: Vec<(f64, &SweepPoint)> =
-        points.iter().filter(|p| p.field_t < -tolerance).map(|p| (-p.field_t, p)).collect();
+    let positive: Vec<(f64, &SweepPoint)> = points
+        .iter()
+        .filter(|p| p.field_t > tolerance)
+        .map(|p| (p.field_t, p))
+        .collect();
+    let negative: Vec<(f64, &SweepPoint)> = points
+        .iter()
+        .filter(|p| p.field_t < -tolerance)
+        .map(|p| (-p.field_t, p))
+        .collect();
     let range = |members: &[(f64, &SweepPoint)]| {
         members
             .iter()
-            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), (b, _)| (lo.min(*b), hi.max(*b)))
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), (b, _)| {
+                (lo.min(*b), hi.max(*b))
+            })
     };
     match (positive.is_empty(), negative.is_empty()) {
         (false, false) => {}
@@ -521,30 +532,27 @@ pub fn symmetrize(points: &[SweepPoint], settings: &SymmetrizeSettings) -> Resul
             negative_t: negative_span,
         });
     }
-    let points_outside_overlap: usize = (0..nodes.len())
-        .filter(|&i| nodes[i].field_t < low || nodes[i].field_t > high)
-        .map(|i| nodes[i].count)
-        .sum();
+    // A node within the resolution of the overlap counts as inside it (its grid field is
+    // clamped to the overlap), so that branches whose ends differ by setpoint scatter lose
+    // nothing.
+    let inside = |b: f64| b >= low - resolution && b <= high + resolution;
+    let points_outside_overlap: usize = nodes.iter().filter(|n| !inside(n.field_t)).map(|n| n.count).sum();
 
     let grid: Vec<f64> = match &settings.grid {
         FieldGrid::Union => {
-            let mut fields: Vec<f64> = nodes
-                .iter()
-                .map(|n| n.field_t)
-                .filter(|b| *b >= low && *b <= high)
-                .collect();
+            let mut fields: Vec<f64> = nodes.iter().map(|n| n.field_t).filter(|b| inside(*b)).collect();
             fields.sort_by(f64::total_cmp);
             fields.dedup();
             chain_clusters(&fields, resolution)
                 .into_iter()
                 .map(|r| {
                     // A cluster holding the zero-field node stays at exactly 0, where the
-                    // antisymmetrized rho_xy vanishes by construction. Every other cluster
-                    // mean lies within the overlap, so no branch is extrapolated.
+                    // antisymmetrized rho_xy vanishes by construction; the others are
+                    // clamped into the overlap, so no branch is extrapolated.
                     if r.start == 0 && fields[0] == 0.0 {
                         0.0
                     } else {
-                        fields[r.clone()].iter().sum::<f64>() / r.len() as f64
+                        (fields[r.clone()].iter().sum::<f64>() / r.len() as f64).clamp(low, high)
                     }
                 })
                 .collect()
@@ -639,7 +647,10 @@ fn propagate_inversion(a: f64, b: f64, sd_a: f64, sd_b: f64, correlation: f64) -
     let scale = a.abs().max(b.abs());
     let (u, v) = (a / scale, b / scale);
     let d2 = (u * u + v * v).powi(2) * scale * scale;
-    let j = [[(v * v - u * u) / d2, -2.0 * u * v / d2], [-2.0 * u * v / d2, (u * u - v * v) / d2]];
+    let j = [
+        [(v * v - u * u) / d2, -2.0 * u * v / d2],
+        [-2.0 * u * v / d2, (u * u - v * v) / d2],
+    ];
     let cov_in = [
         [sd_a * sd_a, correlation * sd_a * sd_b],
         [correlation * sd_a * sd_b, sd_b * sd_b],
@@ -698,8 +709,13 @@ pub fn resistivity_point(point: &TensorPoint) -> SweepPoint {
         rho_xx_ohm_sq,
         rho_xy_ohm,
         uncertainty: point.uncertainty.map(|u| {
-            let (sd_xx, sd_xy, correlation) =
-                propagate_inversion(point.sigma_xx_s, point.sigma_xy_s, u.sigma_xx_s, u.sigma_xy_s, u.correlation);
+            let (sd_xx, sd_xy, correlation) = propagate_inversion(
+                point.sigma_xx_s,
+                point.sigma_xy_s,
+                u.sigma_xx_s,
+                u.sigma_xy_s,
+                u.correlation,
+            );
             ResistivityUncertainty {
                 rho_xx_ohm_sq: sd_xx,
                 rho_xy_ohm: sd_xy,
@@ -746,7 +762,7 @@ impl Thickness {
         }
         if let Some(unc) = unc_m {
             if !(unc.is_finite() && unc >= 0.0) {
-                return Err(SweepError::InvalidThickness { value: unc });
+                return Err(SweepError::InvalidThicknessUncertainty { value: unc });
             }
         }
         Ok(Thickness { value_m, unc_m })
@@ -775,7 +791,9 @@ impl Thickness {
         let t = self.value_m;
         let unc = match (x.unc, self.unc_m) {
             (None, None) => None,
-            (ux, ut) => Some(((ux.unwrap_or(0.0) / t).powi(2) + (x.value * ut.unwrap_or(0.0) / (t * t)).powi(2)).sqrt()),
+            (ux, ut) => {
+                Some(((ux.unwrap_or(0.0) / t).powi(2) + (x.value * ut.unwrap_or(0.0) / (t * t)).powi(2)).sqrt())
+            }
         };
         Measured::new(x.value / t, unc)
     }

@@ -13,10 +13,13 @@
 //!   coefficient of an n-type layer.
 //! - [`readings`]: raw four-terminal readings (van der Pauw and Hall bar) with offsets,
 //!   misalignment and noise, in the `readings` table convention.
+//! - [`tensor`]: the magnetoconductivity tensor of several carriers and synthetic field
+//!   sweeps, in the `sweep` table convention.
 
 pub mod mobility;
 pub mod readings;
 pub mod statistics;
+pub mod tensor;
 pub mod transport;
 
 /// Why a forward model cannot be evaluated for the given parameters.

@@ -320,7 +320,11 @@ pub fn synthetic_sweep(
             let rho_xy = ideal.rho_xy_ohm + imperfections.hall_misalignment * ideal.rho_xx_ohm_sq;
             let sd_xx = noise.absolute_ohm + noise.relative * rho_xx.abs();
             let sd_xy = noise.absolute_ohm + noise.relative * rho_xy.abs();
-            let point = SweepPoint::new(field, rho_xx + sd_xx * rng.standard_normal(), rho_xy + sd_xy * rng.standard_normal());
+            let point = SweepPoint::new(
+                field,
+                rho_xx + sd_xx * rng.standard_normal(),
+                rho_xy + sd_xy * rng.standard_normal(),
+            );
             Ok(if noise.absolute_ohm > 0.0 {
                 point.with_uncertainty(ResistivityUncertainty::independent(sd_xx, sd_xy))
             } else {
@@ -426,9 +430,15 @@ mod tests {
             let rho_0 = 1.0 / carrier.sheet_conductance_s();
             for field in [-30.0, -9.0, -0.5, 0.0, 0.01, 1.0, 9.0, 45.0] {
                 let rho = resistivity_tensor(&[carrier], field).unwrap();
-                assert!(close(rho.rho_xx_ohm_sq, rho_0, 1e-13), "{carrier:?} at {field} T: {rho:?}");
+                assert!(
+                    close(rho.rho_xx_ohm_sq, rho_0, 1e-13),
+                    "{carrier:?} at {field} T: {rho:?}"
+                );
                 let hall = carrier.kind.charge_sign() * field / (ELEMENTARY_CHARGE_C * carrier.sheet_density_m2);
-                assert!((rho.rho_xy_ohm - hall).abs() <= 1e-13 * rho_0.max(hall.abs()), "{rho:?} vs {hall}");
+                assert!(
+                    (rho.rho_xy_ohm - hall).abs() <= 1e-13 * rho_0.max(hall.abs()),
+                    "{rho:?} vs {hall}"
+                );
             }
         }
     }
@@ -446,11 +456,15 @@ mod tests {
             let d = (n * mu_n + p * mu_p).powi(2) + (p - n).powi(2) * mu_n.powi(2) * mu_p.powi(2) * field * field;
             let rho_xx = ((n * mu_n + p * mu_p) + (n * mu_n * mu_p * mu_p + p * mu_p * mu_n * mu_n) * field * field)
                 / (ELEMENTARY_CHARGE_C * d);
-            let rho_xy = field * ((p * mu_p * mu_p - n * mu_n * mu_n) + (p - n) * mu_n * mu_n * mu_p * mu_p * field * field)
+            let rho_xy = field
+                * ((p * mu_p * mu_p - n * mu_n * mu_n) + (p - n) * mu_n * mu_n * mu_p * mu_p * field * field)
                 / (ELEMENTARY_CHARGE_C * d);
             let rho = resistivity_tensor(&carriers, field).unwrap();
             assert!(close(rho.rho_xx_ohm_sq, rho_xx, 1e-12), "{field}: {rho:?} vs {rho_xx}");
-            assert!((rho.rho_xy_ohm - rho_xy).abs() <= 1e-12 * rho_xx, "{field}: {rho:?} vs {rho_xy}");
+            assert!(
+                (rho.rho_xy_ohm - rho_xy).abs() <= 1e-12 * rho_xx,
+                "{field}: {rho:?} vs {rho_xy}"
+            );
         }
     }
 
@@ -465,7 +479,10 @@ mod tests {
         for (xx, xy) in [(1.0, 0.0), (2.5e-3, -7.0e-4), (1e150, 3e149), (1e-150, -2e-151)] {
             let (a, b) = invert_tensor(xx, xy);
             let (back_xx, back_xy) = invert_tensor(a, b);
-            assert!(close(back_xx, xx, 1e-15) && (back_xy - xy).abs() <= 1e-15 * xx, "{xx} {xy}");
+            assert!(
+                close(back_xx, xx, 1e-15) && (back_xy - xy).abs() <= 1e-15 * xx,
+                "{xx} {xy}"
+            );
         }
     }
 
@@ -491,11 +508,7 @@ mod tests {
             let unc = point.uncertainty.unwrap();
             z.push((point.rho_xx_ohm_sq - ideal.rho_xx_ohm_sq) / unc.rho_xx_ohm_sq);
             z.push((point.rho_xy_ohm - ideal.rho_xy_ohm) / unc.rho_xy_ohm);
-            assert!(close(
-                unc.rho_xx_ohm_sq,
-                0.05 + 2e-3 * ideal.rho_xx_ohm_sq.abs(),
-                1e-12
-            ));
+            assert!(close(unc.rho_xx_ohm_sq, 0.05 + 2e-3 * ideal.rho_xx_ohm_sq.abs(), 1e-12));
         }
         let mean = z.iter().sum::<f64>() / z.len() as f64;
         let variance = z.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (z.len() - 1) as f64;
@@ -517,7 +530,14 @@ mod tests {
             hall_misalignment: 0.02,
             longitudinal_hall_pickup: -0.01,
         };
-        let sweep = synthetic_sweep(&carriers, &[-2.0, 2.0], &SweepNoise::NONE, &imperfections, &mut Rng::seeded(1)).unwrap();
+        let sweep = synthetic_sweep(
+            &carriers,
+            &[-2.0, 2.0],
+            &SweepNoise::NONE,
+            &imperfections,
+            &mut Rng::seeded(1),
+        )
+        .unwrap();
         let ideal = resistivity_tensor(&carriers, 2.0).unwrap();
         // rho_xx(+B) - rho_xx(-B) = 2 beta rho_xy(B); rho_xy(+B) + rho_xy(-B) = 2 alpha rho_xx.
         let odd_xx = (sweep[1].rho_xx_ohm_sq - sweep[0].rho_xx_ohm_sq) / 2.0;
@@ -539,7 +559,14 @@ mod tests {
             relative: 0.0,
         };
         let carriers = [Carrier::hole(1e15, 0.1)];
-        assert!(synthetic_sweep(&carriers, &[1.0], &noisy, &SweepImperfections::default(), &mut Rng::seeded(0)).is_err());
+        assert!(synthetic_sweep(
+            &carriers,
+            &[1.0],
+            &noisy,
+            &SweepImperfections::default(),
+            &mut Rng::seeded(0)
+        )
+        .is_err());
         assert!(symmetric_fields(0.0, 3).is_err());
         assert!(symmetric_fields(1.0, 0).is_err());
     }

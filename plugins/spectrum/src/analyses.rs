@@ -1,0 +1,494 @@
+//! Table glue of the spectrum analyses: the `sweep` role into [`SweepPoint`]s, the
+//! parameters into settings, and the results into tables ready to plot and summaries.
+
+use crate::mobility_spectrum::{
+    mobility_spectrum_of_sweep, GridRange, RegularizationRule, SpectrumError, SpectrumSettings,
+};
+use crate::multi_carrier::{
+    fit_sweep, CarrierSelection, InformationCriterion, MultiCarrierError, MultiCarrierSettings,
+};
+use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
+use mobilis_core::forward::tensor::CarrierKind;
+use mobilis_core::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
+use mobilis_core::sweep::{ResistivityUncertainty, SweepPoint, SymmetrizeSettings};
+use polars::prelude::*;
+use serde::Deserialize;
+use serde_json::{json, Value};
+
+fn invalid(message: impl Into<String>) -> AnalysisError {
+    AnalysisError::InvalidInput(message.into())
+}
+
+fn column(name: &str, dtype: ColumnType, unit: Option<&str>, description: &str) -> ColumnSpec {
+    ColumnSpec::new(name, dtype, unit, description)
+}
+
+/// The `sweep` role: one field sweep (one sample at one temperature).
+fn sweep_role() -> InputRole {
+    use ColumnType::*;
+    InputRole {
+        role: "sweep".into(),
+        required: true,
+        description: "a field sweep of one sample at one temperature (group_by sample and temperature_K for several); both field signs".into(),
+        columns: vec![
+            column("field_T", F64, Some("T"), "magnetic field, signed"),
+            column("rho_xx_ohm_sq", F64, Some("ohm_sq"), "longitudinal sheet resistivity"),
+            column("rho_xy_ohm", F64, Some("ohm"), "transverse sheet resistivity, positive for holes at positive field"),
+            column("rho_xx_ohm_sq_unc", F64, Some("ohm_sq"), "standard uncertainty; weights the fit").optional(),
+            column("rho_xy_ohm_unc", F64, Some("ohm"), "standard uncertainty").optional(),
+            column("temperature_K", F64, Some("K"), "temperature (one per call)").optional(),
+            column("sample", Str, None, "sample name (one per call)").optional(),
+        ],
+    }
+}
+
+fn sweep_schema_properties() -> serde_json::Map<String, Value> {
+    let mut properties = serde_json::Map::new();
+    properties.insert(
+        "zero_field_tolerance_T".into(),
+        json!({"type": "number", "minimum": 0, "default": 1e-4, "description": "|B| at or below this is zero field"}),
+    );
+    properties.insert("field_resolution_T".into(), json!({"type": "number", "exclusiveMinimum": 0, "default": 1e-4, "description": "fields closer than this are one field when the two branches are merged"}));
+    properties.insert("thickness_m".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "conducting thickness: also report volume densities"}));
+    properties
+}
+
+// No deny_unknown_fields here or on the structs that flatten this one: serde does not
+// support it together with `flatten`; the host's schema check (additionalProperties: false)
+// already refuses unknown parameters.
+#[derive(Debug, Deserialize)]
+struct SweepParams {
+    #[serde(rename = "zero_field_tolerance_T", default)]
+    zero_field_tolerance_t: Option<f64>,
+    #[serde(rename = "field_resolution_T", default)]
+    field_resolution_t: Option<f64>,
+    #[serde(default)]
+    thickness_m: Option<f64>,
+}
+
+impl SweepParams {
+    fn settings(&self) -> SymmetrizeSettings {
+        let mut settings = SymmetrizeSettings::default();
+        if let Some(t) = self.zero_field_tolerance_t {
+            settings.zero_field_tolerance_t = t;
+        }
+        if let Some(r) = self.field_resolution_t {
+            settings.field_resolution_t = r;
+        }
+        settings
+    }
+}
+
+fn optional_floats(frame: &DataFrame, name: &str) -> Result<Vec<Option<f64>>, AnalysisError> {
+    if frame.column(name).is_ok() {
+        sdk::float_column(frame, name)
+    } else {
+        Ok(vec![None; frame.height()])
+    }
+}
+
+/// The sweep's points; refuses a table holding several samples or temperatures.
+fn sweep_points(frame: &DataFrame) -> Result<(Vec<SweepPoint>, Value), AnalysisError> {
+    let mut identity = serde_json::Map::new();
+    if frame.column("sample").is_ok() {
+        let mut names: Vec<String> = sdk::string_column(frame, "sample")?.into_iter().flatten().collect();
+        names.sort();
+        names.dedup();
+        if names.len() > 1 {
+            return Err(invalid(format!(
+                "the sweep holds {} samples ({}); run with group_by [\"sample\", \"temperature_K\"]",
+                names.len(),
+                names.join(", ")
+            )));
+        }
+        if let Some(name) = names.pop() {
+            identity.insert("sample".into(), json!(name));
+        }
+    }
+    let temperatures: Vec<f64> = optional_floats(frame, "temperature_K")?.into_iter().flatten().collect();
+    if let (Some(low), Some(high)) = (
+        temperatures.iter().copied().reduce(f64::min),
+        temperatures.iter().copied().reduce(f64::max),
+    ) {
+        // A sweep is taken at one set point; a spread beyond a kelvin means two sweeps.
+        if high - low > 1.0 {
+            return Err(invalid(format!(
+                "the sweep spans {low} K to {high} K; run with group_by [\"sample\", \"temperature_K\"] so that each call sees one temperature"
+            )));
+        }
+        identity.insert(
+            "temperature_K".into(),
+            json!(temperatures.iter().sum::<f64>() / temperatures.len() as f64),
+        );
+    }
+    let fields = sdk::float_column(frame, "field_T")?;
+    let rho_xx = sdk::float_column(frame, "rho_xx_ohm_sq")?;
+    let rho_xy = sdk::float_column(frame, "rho_xy_ohm")?;
+    let rho_xx_unc = optional_floats(frame, "rho_xx_ohm_sq_unc")?;
+    let rho_xy_unc = optional_floats(frame, "rho_xy_ohm_unc")?;
+    let mut points = Vec::with_capacity(frame.height());
+    for row in 0..frame.height() {
+        let value = |v: Option<f64>, name: &str| {
+            v.ok_or_else(|| {
+                invalid(format!(
+                    "row {row}: `{name}` is empty; every sweep point needs B, rho_xx and rho_xy"
+                ))
+            })
+        };
+        let mut point = SweepPoint::new(
+            value(fields[row], "field_T")?,
+            value(rho_xx[row], "rho_xx_ohm_sq")?,
+            value(rho_xy[row], "rho_xy_ohm")?,
+        );
+        if let (Some(xx), Some(xy)) = (rho_xx_unc[row], rho_xy_unc[row]) {
+            point = point.with_uncertainty(ResistivityUncertainty::independent(xx, xy));
+        }
+        points.push(point);
+    }
+    Ok((points, Value::Object(identity)))
+}
+
+fn carrier_type(kind: CarrierKind) -> &'static str {
+    kind.code()
+}
+
+fn float_series(name: &str, values: Vec<f64>) -> Column {
+    Column::new(PlSmallStr::from_str(name), values)
+}
+
+/// `spectrum.multi_carrier_fit`.
+pub struct MultiCarrierFitAnalysis;
+
+#[derive(Debug, Deserialize)]
+pub struct MultiCarrierParams {
+    #[serde(flatten)]
+    sweep: SweepParams,
+    #[serde(default)]
+    carriers: Option<Vec<String>>,
+    #[serde(default)]
+    max_carriers: Option<usize>,
+    #[serde(default)]
+    criterion: Option<String>,
+    #[serde(default)]
+    random_starts: Option<usize>,
+    #[serde(default)]
+    seed: Option<u64>,
+}
+
+impl Analysis for MultiCarrierFitAnalysis {
+    const NAME: &'static str = "spectrum.multi_carrier_fit";
+    type Params = MultiCarrierParams;
+
+    fn declaration() -> AnalysisDeclaration {
+        use ColumnType::*;
+        let mut properties = sweep_schema_properties();
+        properties.insert("carriers".into(), json!({"type": "array", "items": {"type": "string", "enum": ["n", "p"]}, "minItems": 1, "maxItems": 6, "description": "the carrier list, e.g. [\"n\", \"n\"]; default: chosen automatically by the information criterion"}));
+        properties.insert("max_carriers".into(), json!({"type": "integer", "minimum": 1, "maximum": 5, "default": 3, "description": "automatic selection: the most carriers tried"}));
+        properties.insert("criterion".into(), json!({"type": "string", "enum": ["bic", "aicc"], "default": "bic", "description": "information criterion of the automatic selection"}));
+        properties.insert("random_starts".into(), json!({"type": "integer", "minimum": 0, "maximum": 200, "default": 12, "description": "random starts per carrier list, besides those derived from the data"}));
+        properties.insert(
+            "seed".into(),
+            json!({"type": "integer", "minimum": 0, "default": 1, "description": "seed of the random starts"}),
+        );
+        AnalysisDeclaration {
+            name: String::new(),
+            summary: "Sheet density and mobility of each carrier from the field dependence of sigma_xx and sigma_xy (discrete multi-carrier fit)".into(),
+            description: "Symmetrizes rho_xx and antisymmetrizes rho_xy (interpolating each field branch), converts to the conductivity tensor and fits N Drude carriers jointly to sigma_xx(B) and sigma_xy(B), weighted by the uncertainties, from many starts. Without a carrier list N grows while the information criterion improves, trying every electron/hole split. Warns when carriers cannot be told apart in the field range (mu B_max < 1).".into(),
+            params: json!({"type": "object", "additionalProperties": false, "properties": properties}),
+            inputs: vec![sweep_role()],
+            outputs: vec![
+                column("field_T", F64, Some("T"), "field (symmetrized, |B|)"),
+                column("sigma_xx_S", F64, Some("S"), "sheet conductivity from the data"),
+                column("sigma_xy_S", F64, Some("S"), "transverse sheet conductivity from the data"),
+                column("sigma_xx_fit_S", F64, Some("S"), "the fitted model"),
+                column("sigma_xy_fit_S", F64, Some("S"), "the fitted model"),
+                column("rho_xx_ohm_sq", F64, Some("ohm_sq"), "symmetrized data"),
+                column("rho_xy_ohm", F64, Some("ohm"), "antisymmetrized data"),
+                column("rho_xx_fit_ohm_sq", F64, Some("ohm_sq"), "the fitted model"),
+                column("rho_xy_fit_ohm", F64, Some("ohm"), "the fitted model"),
+                column("residual_xx", F64, None, "whitened residual of sigma_xx"),
+                column("residual_xy", F64, None, "whitened residual of sigma_xy"),
+            ],
+            summary_keys: vec![column("carriers", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc")],
+        }
+    }
+
+    fn run(params: MultiCarrierParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
+        let sweep = inputs.required("sweep")?;
+        let (points, identity) = sweep_points(sweep)?;
+        let mut settings = MultiCarrierSettings::default();
+        settings.selection = match (&params.carriers, params.max_carriers) {
+            (Some(list), _) => CarrierSelection::Kinds(
+                list.iter()
+                    .map(|kind| match kind.as_str() {
+                        "n" => Ok(CarrierKind::Electron),
+                        "p" => Ok(CarrierKind::Hole),
+                        other => Err(invalid(format!("carrier `{other}` is unknown; use n or p"))),
+                    })
+                    .collect::<Result<_, _>>()?,
+            ),
+            (None, Some(max_carriers)) => CarrierSelection::Automatic { max_carriers },
+            (None, None) => CarrierSelection::default(),
+        };
+        settings.criterion = match params.criterion.as_deref() {
+            None | Some("bic") => InformationCriterion::Bic,
+            Some("aicc") => InformationCriterion::Aicc,
+            Some(other) => return Err(invalid(format!("criterion `{other}` is unknown; use bic or aicc"))),
+        };
+        if let Some(starts) = params.random_starts {
+            settings.random_starts = starts;
+        }
+        if let Some(seed) = params.seed {
+            settings.seed = seed;
+        }
+        host.progress(0.05, "fitting carriers");
+        host.check_cancelled()?;
+        let result = fit_sweep(&points, &params.sweep.settings(), &settings).map_err(|error| match error {
+            MultiCarrierError::NotConverged { .. } => AnalysisError::Numerical(error.to_string()),
+            other => invalid(other.to_string()),
+        })?;
+        let fit = &result.fit;
+        let curve = &fit.curve;
+        let table = DataFrame::new(
+            curve.len(),
+            vec![
+                float_series("field_T", curve.iter().map(|p| p.field_t).collect()),
+                float_series("sigma_xx_S", curve.iter().map(|p| p.sigma_xx_s).collect()),
+                float_series("sigma_xy_S", curve.iter().map(|p| p.sigma_xy_s).collect()),
+                float_series("sigma_xx_fit_S", curve.iter().map(|p| p.sigma_xx_fit_s).collect()),
+                float_series("sigma_xy_fit_S", curve.iter().map(|p| p.sigma_xy_fit_s).collect()),
+                float_series("rho_xx_ohm_sq", curve.iter().map(|p| p.rho_xx_ohm_sq).collect()),
+                float_series("rho_xy_ohm", curve.iter().map(|p| p.rho_xy_ohm).collect()),
+                float_series("rho_xx_fit_ohm_sq", curve.iter().map(|p| p.rho_xx_fit_ohm_sq).collect()),
+                float_series("rho_xy_fit_ohm", curve.iter().map(|p| p.rho_xy_fit_ohm).collect()),
+                float_series("residual_xx", curve.iter().map(|p| p.residual_xx).collect()),
+                Column::new(
+                    "residual_xy".into(),
+                    curve.iter().map(|p| p.residual_xy).collect::<Vec<_>>(),
+                ),
+            ],
+        )
+        .map_err(|e| AnalysisError::Numerical(e.to_string()))?;
+        let carriers: Vec<Value> = fit
+            .carriers
+            .iter()
+            .map(|c| {
+                let mut carrier = json!({
+                    "carrier_type": carrier_type(c.kind),
+                    "sheet_density_m2": c.sheet_density_m2,
+                    "sheet_density_m2_unc": c.sheet_density_unc_m2,
+                    "mobility_m2_per_Vs": c.mobility_m2_per_vs,
+                    "mobility_m2_per_Vs_unc": c.mobility_unc_m2_per_vs,
+                    "sheet_conductance_S": c.sheet_conductance_s,
+                    "mobility_field_product": c.mobility_field_product,
+                    "at_bound": c.at_bound,
+                });
+                if let Some(t) = params.sweep.thickness_m {
+                    carrier["density_m3"] = json!(c.sheet_density_m2 / t);
+                    carrier["density_m3_unc"] = json!(c.sheet_density_unc_m2.map(|u| u / t));
+                }
+                carrier
+            })
+            .collect();
+        let mut output = AnalysisOutput::new(table);
+        let summary = &mut output.summary;
+        if let Value::Object(identity) = identity {
+            summary.extend(identity);
+        }
+        summary.insert("carrier_count".into(), json!(carriers.len()));
+        summary.insert("carriers".into(), Value::Array(carriers));
+        summary.insert("criterion".into(), json!(fit.criterion.name()));
+        summary.insert("score".into(), json!(fit.score));
+        summary.insert("chi_square".into(), json!(fit.chi_square));
+        summary.insert("degrees_of_freedom".into(), json!(fit.degrees_of_freedom));
+        summary.insert("reduced_chi_square".into(), json!(fit.reduced_chi_square));
+        summary.insert("weighted".into(), json!(fit.weighted));
+        summary.insert("max_field_T".into(), json!(fit.max_field_t));
+        summary.insert(
+            "candidates".into(),
+            Value::Array(
+                fit.candidates
+                    .iter()
+                    .map(|c| {
+                        json!({
+                            "carriers": c.kinds.iter().map(|k| carrier_type(*k)).collect::<Vec<_>>(),
+                            "score": c.score,
+                            "chi_square": c.chi_square,
+                            "failure": c.failure,
+                        })
+                    })
+                    .collect(),
+            ),
+        );
+        summary.insert(
+            "max_rho_xx_asymmetry".into(),
+            json!(result.symmetrized.max_rho_xx_asymmetry),
+        );
+        summary.insert(
+            "max_rho_xy_asymmetry".into(),
+            json!(result.symmetrized.max_rho_xy_asymmetry),
+        );
+        output.warnings = fit.warnings.clone();
+        host.progress(1.0, "done");
+        Ok(output)
+    }
+}
+
+/// `spectrum.mobility`.
+pub struct MobilitySpectrumAnalysis;
+
+#[derive(Debug, Deserialize)]
+pub struct SpectrumParams {
+    #[serde(flatten)]
+    sweep: SweepParams,
+    #[serde(default)]
+    points_per_sign: Option<usize>,
+    #[serde(default)]
+    mobility_min_m2_per_vs: Option<f64>,
+    #[serde(default)]
+    mobility_max_m2_per_vs: Option<f64>,
+    #[serde(default)]
+    regularization: Option<String>,
+    #[serde(default)]
+    regularization_strength: Option<f64>,
+    #[serde(default)]
+    peak_threshold: Option<f64>,
+    #[serde(default)]
+    uncertainty_replicas: Option<usize>,
+}
+
+impl Analysis for MobilitySpectrumAnalysis {
+    const NAME: &'static str = "spectrum.mobility";
+    type Params = SpectrumParams;
+
+    fn declaration() -> AnalysisDeclaration {
+        use ColumnType::*;
+        let defaults = SpectrumSettings::default();
+        let mut properties = sweep_schema_properties();
+        properties.insert("points_per_sign".into(), json!({"type": "integer", "minimum": 8, "maximum": 1000, "default": defaults.points_per_sign, "description": "grid mobilities per carrier sign (logarithmic grid)"}));
+        properties.insert("mobility_min_m2_per_vs".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "lowest grid mobility; default 0.1 / B_max"}));
+        properties.insert("mobility_max_m2_per_vs".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "highest grid mobility; default 10 / B_min"}));
+        properties.insert("regularization".into(), json!({"type": "string", "enum": ["auto", "discrepancy", "l_curve", "fixed"], "default": "auto", "description": "how the smoothing strength is chosen: auto (discrepancy principle with uncertainties, L-curve without), or fixed (regularization_strength)"}));
+        properties.insert("regularization_strength".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "the dimensionless strength for regularization: fixed"}));
+        properties.insert("peak_threshold".into(), json!({"type": "number", "exclusiveMinimum": 0, "exclusiveMaximum": 1, "default": defaults.peak_threshold, "description": "a local maximum is a peak above this fraction of the largest spectrum value"}));
+        properties.insert("uncertainty_replicas".into(), json!({"type": "integer", "minimum": 0, "maximum": 1000, "default": defaults.uncertainty_replicas, "description": "bootstrap replicas for the peaks' uncertainties (0: none)"}));
+        AnalysisDeclaration {
+            name: String::new(),
+            summary: "Mobility spectrum of electrons and holes: the Beck-Anderson envelope and a regularized non-negative spectrum with its peaks integrated into sheet densities and mobilities".into(),
+            description: "On a logarithmic mobility grid for each sign: the Beck-Anderson upper bound (J. Appl. Phys. 62, 541, 1987) and a quantitative spectrum by non-negative least squares with a second-difference penalty in ln mu (Provencher's CONTIN approach on the Beck-Anderson kernel), its strength chosen by the discrepancy principle or the L-curve. Reports progress and stops promptly when cancelled (analysis.cancel).".into(),
+            params: json!({"type": "object", "additionalProperties": false, "properties": properties}),
+            inputs: vec![sweep_role()],
+            outputs: vec![
+                column("mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "grid mobility magnitude"),
+                column("electron_envelope_S", F64, Some("S"), "Beck-Anderson bound for electrons"),
+                column("electron_spectrum_S", F64, Some("S"), "d sigma / d ln mu of electrons"),
+                column("electron_density_m2", F64, Some("m2"), "d n / d ln mu of electrons"),
+                column("hole_envelope_S", F64, Some("S"), "Beck-Anderson bound for holes"),
+                column("hole_spectrum_S", F64, Some("S"), "d sigma / d ln mu of holes"),
+                column("hole_density_m2", F64, Some("m2"), "d n / d ln mu of holes"),
+            ],
+            summary_keys: vec![column("peaks", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc")],
+        }
+    }
+
+    fn run(params: SpectrumParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
+        let sweep = inputs.required("sweep")?;
+        let (points, identity) = sweep_points(sweep)?;
+        let mut settings = SpectrumSettings::default();
+        if let Some(count) = params.points_per_sign {
+            settings.points_per_sign = count;
+        }
+        settings.mobility_range = match (params.mobility_min_m2_per_vs, params.mobility_max_m2_per_vs) {
+            (Some(min), Some(max)) => Some(GridRange {
+                min_mobility_m2_per_vs: min,
+                max_mobility_m2_per_vs: max,
+            }),
+            (None, None) => None,
+            _ => {
+                return Err(invalid(
+                    "give both mobility_min_m2_per_vs and mobility_max_m2_per_vs, or neither",
+                ))
+            }
+        };
+        settings.rule = match (params.regularization.as_deref(), params.regularization_strength) {
+            (None | Some("auto"), None) => RegularizationRule::Auto,
+            (Some("discrepancy"), None) => RegularizationRule::Discrepancy,
+            (Some("l_curve"), None) => RegularizationRule::LCurve,
+            (Some("fixed") | None, Some(strength)) => RegularizationRule::Fixed(strength),
+            (Some("fixed"), None) => return Err(invalid("regularization: fixed needs regularization_strength")),
+            (Some(other), Some(_)) => {
+                return Err(invalid(format!(
+                    "regularization_strength goes with regularization: fixed, not `{other}`"
+                )))
+            }
+            (Some(other), None) => {
+                return Err(invalid(format!(
+                    "regularization `{other}` is unknown; use auto, discrepancy, l_curve or fixed"
+                )))
+            }
+        };
+        if let Some(threshold) = params.peak_threshold {
+            settings.peak_threshold = threshold;
+        }
+        if let Some(replicas) = params.uncertainty_replicas {
+            settings.uncertainty_replicas = replicas;
+        }
+        let spectrum = mobility_spectrum_of_sweep(&points, &params.sweep.settings(), &settings, host).map_err(
+            |error| match error {
+                SpectrumError::Cancelled => AnalysisError::Cancelled,
+                SpectrumError::Numerical(_) => AnalysisError::Numerical(error.to_string()),
+                other => invalid(other.to_string()),
+            },
+        )?;
+        let rows = spectrum.mobility_m2_per_vs.len();
+        let table = DataFrame::new(
+            rows,
+            vec![
+                float_series("mobility_m2_per_Vs", spectrum.mobility_m2_per_vs.clone()),
+                float_series("electron_envelope_S", spectrum.electron.envelope_s.clone()),
+                float_series("electron_spectrum_S", spectrum.electron.spectrum_s.clone()),
+                float_series("electron_density_m2", spectrum.electron.density_m2.clone()),
+                float_series("hole_envelope_S", spectrum.hole.envelope_s.clone()),
+                float_series("hole_spectrum_S", spectrum.hole.spectrum_s.clone()),
+                float_series("hole_density_m2", spectrum.hole.density_m2.clone()),
+            ],
+        )
+        .map_err(|e| AnalysisError::Numerical(e.to_string()))?;
+        let finite = |v: f64| v.is_finite().then_some(v);
+        let peaks: Vec<Value> = spectrum
+            .peaks
+            .iter()
+            .map(|p| {
+                let mut peak = json!({
+                    "carrier_type": carrier_type(p.carrier),
+                    "sheet_density_m2": p.sheet_density_m2,
+                    "sheet_density_m2_unc": finite(p.sheet_density_unc_m2),
+                    "mobility_m2_per_Vs": p.mobility_m2_per_vs,
+                    "mobility_m2_per_Vs_unc": finite(p.mobility_unc_m2_per_vs),
+                    "peak_mobility_m2_per_Vs": p.peak_mobility_m2_per_vs,
+                    "conductance_S": p.conductance_s,
+                    "conductance_fraction": p.conductance_fraction,
+                    "at_grid_edge": p.at_grid_edge,
+                    "within_field_window": p.within_field_window,
+                });
+                if let Some(t) = params.sweep.thickness_m {
+                    peak["density_m3"] = json!(p.sheet_density_m2 / t);
+                }
+                peak
+            })
+            .collect();
+        let mut output = AnalysisOutput::new(table);
+        let summary = &mut output.summary;
+        if let Value::Object(identity) = identity {
+            summary.extend(identity);
+        }
+        summary.insert("peaks".into(), Value::Array(peaks));
+        summary.insert("regularization".into(), json!(spectrum.regularization.rule.name()));
+        summary.insert("regularization_strength".into(), json!(spectrum.regularization.lambda));
+        summary.insert("chi_square".into(), json!(spectrum.regularization.chi_square));
+        summary.insert("data_count".into(), json!(spectrum.regularization.data_count));
+        summary.insert("total_conductance_S".into(), json!(spectrum.total_conductance_s));
+        output.warnings = spectrum.warnings.clone();
+        Ok(output)
+    }
+}

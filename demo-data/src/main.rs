@@ -1,49 +1,106 @@
 //! `mobilis-demo-gen`: writes the invented demo scenario of mobilis.
 //!
 //! Usage: `mobilis-demo-gen [DIR]` (default `demo-data`). It writes, always the same bytes
-//! for the same program (fixed seed, rounded numbers):
+//! for the same program (fixed seeds, rounded numbers):
 //!
 //! - `DIR/si-wafer/readings.csv`: raw van der Pauw readings, the `readings` role of
 //!   `hall.reduce`;
 //! - `DIR/si-wafer/samples.csv`: thickness and Hall factor per piece, the `samples` role;
-//! - `DIR/si-wafer/truth.json`: the invented true parameters the readings were made from.
+//! - `DIR/si-wafer/truth.json`: the invented true parameters the readings were made from;
+//! - `DIR/heterostructure/sweeps.csv` and `DIR/inas-film/sweeps.csv`: field sweeps of the
+//!   AlGaN/GaN heterostructure and of the InAs film, the `sweep` role;
+//! - `DIR/heterostructure/truth.json` and `DIR/inas-film/truth.json`: the invented carriers
+//!   the sweeps were made from.
 //!
 //! The data are made up; see `README.md` next to this crate. The physics is
 //! `mobilis_core::forward`, the same models the plugins fit.
 
 mod format;
+mod heterostructure;
+mod inas_film;
 mod si_wafer;
+mod sweeps;
 
 use anyhow::Context as _;
 use std::path::{Path, PathBuf};
 
-/// Generates the scenario and writes its files under `root`; returns the one-line summary.
+/// One file of the scenario: its directory under the demo-data root, its name and its bytes.
+struct DemoFile {
+    directory: &'static str,
+    name: &'static str,
+    contents: String,
+}
+
+/// The wafers measured in the magnet, each written to its own directory.
+const SWEPT_WAFERS: [&sweeps::Wafer; 2] = [&heterostructure::WAFER, &inas_film::WAFER];
+
+/// Generates the whole scenario in memory: every file, and one summary line per directory.
+fn demo_files() -> anyhow::Result<(Vec<DemoFile>, Vec<String>)> {
+    let mut files = Vec::new();
+    let mut summaries = Vec::new();
+
+    let silicon = si_wafer::generate()?;
+    let si_directory = "si-wafer";
+    files.push(DemoFile {
+        directory: si_directory,
+        name: "readings.csv",
+        contents: si_wafer::readings_csv(&silicon.readings),
+    });
+    files.push(DemoFile {
+        directory: si_directory,
+        name: "samples.csv",
+        contents: si_wafer::samples_csv(&silicon.sample_rows),
+    });
+    files.push(DemoFile {
+        directory: si_directory,
+        name: "truth.json",
+        contents: silicon.truth.to_pretty_string(),
+    });
+    summaries.push(format!(
+        "{} readings of {} samples at {} temperatures in {si_directory}",
+        silicon.readings.len(),
+        silicon.sample_rows.len(),
+        silicon.temperature_count,
+    ));
+
+    for wafer in SWEPT_WAFERS {
+        let generated = sweeps::generate(wafer)?;
+        files.push(DemoFile {
+            directory: wafer.directory,
+            name: "sweeps.csv",
+            contents: sweeps::sweeps_csv(&generated.rows),
+        });
+        files.push(DemoFile {
+            directory: wafer.directory,
+            name: "truth.json",
+            contents: generated.truth.to_pretty_string(),
+        });
+        summaries.push(format!(
+            "{} sweep points in {} sweeps in {}",
+            generated.rows.len(),
+            generated.sweep_count,
+            wafer.directory
+        ));
+    }
+    Ok((files, summaries))
+}
+
+/// Generates the scenario and writes its files under `root`; returns the summary.
 fn write_demo_data(root: &Path) -> anyhow::Result<String> {
-    let generated = si_wafer::generate()?;
-    let directory = root.join("si-wafer");
-    std::fs::create_dir_all(&directory).with_context(|| {
-        format!(
-            "cannot create {}; choose a writable output directory",
-            directory.display()
-        )
-    })?;
-    let files = [
-        ("readings.csv", si_wafer::readings_csv(&generated.readings)),
-        ("samples.csv", si_wafer::samples_csv(&generated.sample_rows)),
-        ("truth.json", generated.truth.to_pretty_string()),
-    ];
-    for (name, contents) in files {
-        let path = directory.join(name);
-        std::fs::write(&path, contents)
+    let (files, summaries) = demo_files()?;
+    for file in &files {
+        let directory = root.join(file.directory);
+        std::fs::create_dir_all(&directory).with_context(|| {
+            format!(
+                "cannot create {}; choose a writable output directory",
+                directory.display()
+            )
+        })?;
+        let path = directory.join(file.name);
+        std::fs::write(&path, &file.contents)
             .with_context(|| format!("cannot write {}; choose a writable output directory", path.display()))?;
     }
-    Ok(format!(
-        "wrote {} readings of {} samples at {} temperatures to {}",
-        generated.readings.len(),
-        generated.sample_rows.len(),
-        generated.temperature_count,
-        directory.display()
-    ))
+    Ok(format!("wrote under {}:\n  {}", root.display(), summaries.join("\n  ")))
 }
 
 fn main() -> anyhow::Result<()> {
@@ -66,8 +123,8 @@ mod tests {
     use mobilis_core::contacts::{classify_van_der_pauw, Configuration, ResistanceFamily};
     use mobilis_core::van_der_pauw::sheet_resistance;
 
-    fn committed_directory() -> PathBuf {
-        Path::new(env!("CARGO_MANIFEST_DIR")).join("si-wafer")
+    fn committed_root() -> PathBuf {
+        PathBuf::from(env!("CARGO_MANIFEST_DIR"))
     }
 
     /// A fresh directory under the system's temporary directory.
@@ -90,13 +147,31 @@ mod tests {
     fn committed_files_are_what_the_generator_writes() {
         let scratch = scratch_directory("regenerate");
         write_demo_data(&scratch).unwrap();
-        for name in ["readings.csv", "samples.csv", "truth.json"] {
-            let fresh = std::fs::read(scratch.join("si-wafer").join(name)).unwrap();
-            let committed = std::fs::read(committed_directory().join(name))
-                .unwrap_or_else(|error| panic!("cannot read the committed demo-data/si-wafer/{name}: {error}"));
+        let (files, _) = demo_files().unwrap();
+        let written: Vec<String> = files
+            .iter()
+            .map(|file| format!("{}/{}", file.directory, file.name))
+            .collect();
+        // The list is spelled out so that a file the generator stops writing is noticed too.
+        assert_eq!(
+            written,
+            [
+                "si-wafer/readings.csv",
+                "si-wafer/samples.csv",
+                "si-wafer/truth.json",
+                "heterostructure/sweeps.csv",
+                "heterostructure/truth.json",
+                "inas-film/sweeps.csv",
+                "inas-film/truth.json",
+            ]
+        );
+        for relative in &written {
+            let fresh = std::fs::read(scratch.join(relative)).unwrap();
+            let committed = std::fs::read(committed_root().join(relative))
+                .unwrap_or_else(|error| panic!("cannot read the committed demo-data/{relative}: {error}"));
             assert!(
                 fresh == committed,
-                "demo-data/si-wafer/{name} differs from what the generator writes; regenerate it with `cargo run -p mobilis-demo-data -- demo-data` from the repository root"
+                "demo-data/{relative} differs from what the generator writes; regenerate it with `cargo run -p mobilis-demo-data -- demo-data` from the repository root"
             );
         }
         std::fs::remove_dir_all(&scratch).unwrap();

@@ -88,7 +88,65 @@ async fn run_with_daemon(daemon: &Daemon, data: &std::path::Path) -> anyhow::Res
     let scattering = summary("si-scattering-summary").await?;
     let purity = summary("si-purity").await?;
     print_purity(&freeze_out, &arrhenius, &scattering, &purity, &truth);
+    for (directory, fit_output, spectrum_output) in
+        [("heterostructure", "hemt-carriers", "hemt-spectrum"), ("inas-film", "inas-carriers", "inas-spectrum")]
+    {
+        let truth: Value = serde_json::from_str(&std::fs::read_to_string(data.join(directory).join("truth.json"))?)?;
+        let step = |output: &str| steps.as_array().and_then(|all| all.iter().find(|s| s["output"] == output)).cloned();
+        if let (Some(fit), Some(spectrum)) = (step(fit_output), step(spectrum_output)) {
+            print_carriers(&fit, &spectrum, &truth);
+        }
+    }
     Ok(())
+}
+
+/// One carrier as `n 9.000e12 cm^-2 at 15000 cm^2/(V s)`.
+fn describe_carrier(carrier: &Value, density: &str, mobility: &str) -> String {
+    format!(
+        "{} {} cm^-2 at {} cm^2/(V s)",
+        carrier["carrier_type"].as_str().unwrap_or("?"),
+        number(&carrier[density], 1e-4),
+        number(&carrier[mobility], 1e4)
+    )
+}
+
+fn print_carriers(fit: &Value, spectrum: &Value, truth: &Value) {
+    let groups = |result: &Value| result["summary"]["groups"].as_array().cloned().unwrap_or_default();
+    for group in groups(fit) {
+        let sample = group["group"]["sample"].as_str().unwrap_or("?");
+        let temperature = group["group"]["temperature_K"].as_f64().unwrap_or(f64::NAN);
+        println!();
+        println!("Sample {sample} at {} K: carriers from the field sweep (spectrum plugin)", format_number(temperature));
+        let true_carriers = truth["samples"]
+            .as_array()
+            .and_then(|samples| samples.iter().find(|s| s["sample"] == sample))
+            .and_then(|s| s["temperatures"].as_array())
+            .and_then(|ts| ts.iter().find(|t| (t["temperature_K"].as_f64().unwrap_or(f64::NAN) - temperature).abs() < 0.5))
+            .map(|t| t["carriers"].as_array().cloned().unwrap_or_default())
+            .unwrap_or_default();
+        for carrier in &true_carriers {
+            println!("  invented truth         {}", describe_carrier(carrier, "sheet_density_m2", "mobility_m2_per_Vs"));
+        }
+        for carrier in group["summary"]["carriers"].as_array().into_iter().flatten() {
+            println!(
+                "  multi-carrier fit      {}  (± {} cm^-2, ± {} cm^2/(V s))",
+                describe_carrier(carrier, "sheet_density_m2", "mobility_m2_per_Vs"),
+                number(&carrier["sheet_density_m2_unc"], 1e-4),
+                number(&carrier["mobility_m2_per_Vs_unc"], 1e4)
+            );
+        }
+        let peaks = groups(spectrum)
+            .into_iter()
+            .find(|g| g["group"] == group["group"])
+            .map(|g| g["summary"]["peaks"].as_array().cloned().unwrap_or_default())
+            .unwrap_or_default();
+        for peak in &peaks {
+            println!("  mobility spectrum peak {}", describe_carrier(peak, "sheet_density_m2", "mobility_m2_per_Vs"));
+        }
+        for warning in group["warnings"].as_array().into_iter().flatten() {
+            println!("  note: {}", warning.as_str().unwrap_or(""));
+        }
+    }
 }
 
 /// `value ± uncertainty` of row `row` of a summary table, scaled into display units.

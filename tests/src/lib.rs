@@ -7,6 +7,8 @@
 //! when everything is fresh). A failure there fails the test with cargo's message; nothing
 //! is skipped.
 
+pub mod bench;
+
 use mobilis_client::{Client, Daemon, DaemonOptions};
 use std::path::{Path, PathBuf};
 use std::sync::OnceLock;

@@ -1,0 +1,135 @@
+//! Speed of the fitting analyses through the plugin ABI, as the daemon calls them:
+//!
+//! - `carriers.freeze_out_fit` on a temperature series of 100 points (20 K to 400 K) of an
+//!   invented compensated n-type silicon sample, generated with the full charge-neutrality
+//!   model of `mobilis_core::forward::statistics` and 0.5 % noise;
+//! - `spectrum.mobility` on a 200-point grid per carrier sign and 140 fields (two 70-point
+//!   branches to 9 T), three invented carriers, 5e-4 noise, with its default 24 bootstrap
+//!   replicas for the peak uncertainties;
+//! - `spectrum.multi_carrier_fit` on the same sweep with automatic carrier selection.
+//!
+//! Run it with
+//!
+//! ```text
+//! cargo bench -p mobilis-tests --bench analyses
+//! ```
+//!
+//! It builds the release plugin libraries first. Each figure is the wall time of one call
+//! after one untimed warm-up, median and fastest of several repetitions.
+
+use mobilis_core::forward::statistics::{solve_charge_neutrality, BandModel, Dopants};
+use mobilis_core::forward::tensor::{symmetric_fields, synthetic_sweep, Carrier, SweepImperfections, SweepNoise};
+use mobilis_core::noise::Rng;
+use mobilis_rpc::plugin_host::CallControl;
+use mobilis_tests::bench::{
+    build_release_plugins, fail, format_kib, format_seconds, invoked_as_benchmark, load_plugins, measure, peak_rss_kib,
+};
+use polars::prelude::*;
+use serde_json::json;
+use std::sync::Arc;
+
+const BENCH: &str = "analyses";
+
+/// 100 temperatures of an invented sample: N_D 3e15, N_A 2e14 cm^-3, E_D 45 meV.
+fn temperature_series() -> DataFrame {
+    let bands = BandModel::silicon();
+    let dopants = Dopants::new(3e21, 2e20, 0.045, 0.045);
+    let mut rng = Rng::seeded(100);
+    let (mut temperatures, mut densities, mut uncertainties) = (Vec::new(), Vec::new(), Vec::new());
+    for step in 0..100 {
+        let temperature = 20.0 + 380.0 * step as f64 / 99.0;
+        let equilibrium = solve_charge_neutrality(&dopants, &bands, temperature)
+            .unwrap_or_else(|error| fail(BENCH, &format!("forward model: {error}")));
+        let density = equilibrium.electron_density_m3 * (1.0 + 0.005 * rng.standard_normal());
+        temperatures.push(temperature);
+        densities.push(density);
+        uncertainties.push(0.005 * density);
+    }
+    df!(
+        "temperature_K" => temperatures,
+        "density_m3" => densities,
+        "density_m3_unc" => uncertainties,
+        "carrier_type" => vec!["n"; 100],
+    )
+    .expect("columns of equal length")
+}
+
+/// A 140-field sweep of three invented carriers.
+fn sweep() -> DataFrame {
+    let carriers = [
+        Carrier::electron(9e16, 1.5),
+        Carrier::electron(2e17, 0.2),
+        Carrier::hole(5e17, 0.05),
+    ];
+    let fields: Vec<f64> = symmetric_fields(9.0, 70)
+        .unwrap_or_else(|error| fail(BENCH, &error.to_string()))
+        .into_iter()
+        .filter(|b| *b != 0.0)
+        .collect();
+    let noise = SweepNoise {
+        absolute_ohm: 1e-3,
+        relative: 5e-4,
+    };
+    let points = synthetic_sweep(
+        &carriers,
+        &fields,
+        &noise,
+        &SweepImperfections::default(),
+        &mut Rng::seeded(140),
+    )
+    .unwrap_or_else(|error| fail(BENCH, &error.to_string()));
+    df!(
+        "field_T" => points.iter().map(|p| p.field_t).collect::<Vec<_>>(),
+        "rho_xx_ohm_sq" => points.iter().map(|p| p.rho_xx_ohm_sq).collect::<Vec<_>>(),
+        "rho_xy_ohm" => points.iter().map(|p| p.rho_xy_ohm).collect::<Vec<_>>(),
+    )
+    .expect("columns of equal length")
+}
+
+fn main() {
+    if !invoked_as_benchmark(BENCH) {
+        return;
+    }
+    let release = build_release_plugins(BENCH, &["mobilis-plugin-carriers", "mobilis-plugin-spectrum"]);
+    let host = load_plugins(BENCH, &release, &["mobilis_carriers", "mobilis_spectrum"]);
+    let control = Arc::new(CallControl::default());
+
+    let series = vec![("hall".to_owned(), temperature_series())];
+    let sweep = vec![("sweep".to_owned(), sweep())];
+    let cases = [
+        (
+            "carriers.freeze_out_fit, 100 temperatures",
+            "carriers.freeze_out_fit",
+            json!({"material": "Si"}),
+            &series,
+            5,
+        ),
+        (
+            "spectrum.mobility, 200-point grid, 140 fields",
+            "spectrum.mobility",
+            json!({"points_per_sign": 200}),
+            &sweep,
+            5,
+        ),
+        (
+            "spectrum.multi_carrier_fit, 140 fields, automatic",
+            "spectrum.multi_carrier_fit",
+            json!({}),
+            &sweep,
+            3,
+        ),
+    ];
+    println!("{:<52} {:>12} {:>12}", "analysis", "median", "fastest");
+    for (label, analysis, params, inputs, repetitions) in cases {
+        let timing = measure(1, repetitions, || {
+            host.invoke(analysis, &params, inputs, &control)
+                .unwrap_or_else(|failure| fail(BENCH, &format!("{analysis}: {}", failure.message)))
+        });
+        println!(
+            "{label:<52} {:>12} {:>12}",
+            format_seconds(timing.median_s),
+            format_seconds(timing.min_s)
+        );
+    }
+    println!("peak RSS {}", format_kib(peak_rss_kib()));
+}

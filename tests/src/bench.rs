@@ -28,7 +28,9 @@ pub fn invoked_as_benchmark(bench: &str) -> bool {
 pub fn build_release_plugins(bench: &str, packages: &[&str]) -> PathBuf {
     let root = crate::workspace_root();
     let cargo = std::env::var_os("CARGO").unwrap_or_else(|| "cargo".into());
-    let mut arguments = vec!["build", "--release"];
+    // mobilis-rpc joins the build so that polars is built with the same features as in a
+    // workspace build (`cargo build --release`), whose artefacts are then reused.
+    let mut arguments = vec!["build", "--release", "-p", "mobilis-rpc"];
     for package in packages {
         arguments.extend(["-p", package]);
     }

@@ -9,8 +9,12 @@
 //! - [`linalg`]: small dense linear algebra (Cholesky, QR, SVD, least squares, inverses).
 //! - [`fit`]: bounded Levenberg-Marquardt least squares, multi-start, the weighted line.
 //! - [`nnls`]: non-negative least squares (Lawson-Hanson active set, warm start, cancellable).
+//! - [`fft`]: the discrete Fourier transform of any length (radix-2, Bluestein), spectral
+//!   windows, the amplitude spectrum of a real record.
+//! - [`special`]: digamma and trigamma functions, the bracket psi(1/2 + x) - ln x.
 //! - [`sweep`]: field sweeps: symmetrization in field, resistivity <-> conductivity tensor,
 //!   sheet <-> volume quantities.
+//! - [`sweep_table`]: the `sweep` input role of plugins and its conversion into sweep points.
 //! - [`abi`]: the C ABI between the daemon and plugin libraries (mirrored by
 //!   `include/mobilis_plugin.h`).
 //! - [`table_ffi`]: DataFrames across the Arrow C Data Interface.
@@ -19,6 +23,7 @@
 pub mod abi;
 pub mod constants;
 pub mod contacts;
+pub mod fft;
 pub mod fit;
 pub mod forward;
 pub mod linalg;
@@ -26,7 +31,9 @@ pub mod nnls;
 pub mod noise;
 pub mod readings;
 pub mod sdk;
+pub mod special;
 pub mod sweep;
+pub mod sweep_table;
 pub mod table_ffi;
 pub mod units;
 pub mod van_der_pauw;

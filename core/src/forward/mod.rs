@@ -15,8 +15,11 @@
 //!   misalignment and noise, in the `readings` table convention.
 //! - [`tensor`]: the magnetoconductivity tensor of several carriers and synthetic field
 //!   sweeps, in the `sweep` table convention.
+//! - [`oscillations`]: Shubnikov-de Haas oscillations with Lifshitz-Kosevich damping, the
+//!   Hikami-Larkin-Nagaoka weak-localization correction, synthetic sweeps of both.
 
 pub mod mobility;
+pub mod oscillations;
 pub mod readings;
 pub mod statistics;
 pub mod tensor;

@@ -7,10 +7,10 @@ use crate::mobility_spectrum::{
 use crate::multi_carrier::{
     fit_sweep, CarrierSelection, InformationCriterion, MultiCarrierError, MultiCarrierSettings,
 };
-use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
+use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType};
 use mobilis_core::forward::tensor::CarrierKind;
-use mobilis_core::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
-use mobilis_core::sweep::{ResistivityUncertainty, SweepPoint, SymmetrizeSettings};
+use mobilis_core::sdk::{Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
+use mobilis_core::sweep_table::{single_sweep, sweep_role, sweep_schema_properties, SweepParams};
 use polars::prelude::*;
 use serde::Deserialize;
 use serde_json::{json, Value};
@@ -21,131 +21,6 @@ fn invalid(message: impl Into<String>) -> AnalysisError {
 
 fn column(name: &str, dtype: ColumnType, unit: Option<&str>, description: &str) -> ColumnSpec {
     ColumnSpec::new(name, dtype, unit, description)
-}
-
-/// The `sweep` role: one field sweep (one sample at one temperature).
-fn sweep_role() -> InputRole {
-    use ColumnType::*;
-    InputRole {
-        role: "sweep".into(),
-        required: true,
-        description: "a field sweep of one sample at one temperature (group_by sample and temperature_K for several); both field signs".into(),
-        columns: vec![
-            column("field_T", F64, Some("T"), "magnetic field, signed"),
-            column("rho_xx_ohm_sq", F64, Some("ohm_sq"), "longitudinal sheet resistivity"),
-            column("rho_xy_ohm", F64, Some("ohm"), "transverse sheet resistivity, positive for holes at positive field"),
-            column("rho_xx_ohm_sq_unc", F64, Some("ohm_sq"), "standard uncertainty; weights the fit").optional(),
-            column("rho_xy_ohm_unc", F64, Some("ohm"), "standard uncertainty").optional(),
-            column("temperature_K", F64, Some("K"), "temperature (one per call)").optional(),
-            column("sample", Str, None, "sample name (one per call)").optional(),
-        ],
-    }
-}
-
-fn sweep_schema_properties() -> serde_json::Map<String, Value> {
-    let mut properties = serde_json::Map::new();
-    properties.insert(
-        "zero_field_tolerance_T".into(),
-        json!({"type": "number", "minimum": 0, "default": 1e-4, "description": "|B| at or below this is zero field"}),
-    );
-    properties.insert("field_resolution_T".into(), json!({"type": "number", "exclusiveMinimum": 0, "default": 1e-4, "description": "fields closer than this are one field when the two branches are merged"}));
-    properties.insert("thickness_m".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "conducting thickness: also report volume densities"}));
-    properties
-}
-
-// No deny_unknown_fields here or on the structs that flatten this one: serde does not
-// support it together with `flatten`; the host's schema check (additionalProperties: false)
-// already refuses unknown parameters.
-#[derive(Debug, Deserialize)]
-struct SweepParams {
-    #[serde(rename = "zero_field_tolerance_T", default)]
-    zero_field_tolerance_t: Option<f64>,
-    #[serde(rename = "field_resolution_T", default)]
-    field_resolution_t: Option<f64>,
-    #[serde(default)]
-    thickness_m: Option<f64>,
-}
-
-impl SweepParams {
-    fn settings(&self) -> SymmetrizeSettings {
-        let mut settings = SymmetrizeSettings::default();
-        if let Some(t) = self.zero_field_tolerance_t {
-            settings.zero_field_tolerance_t = t;
-        }
-        if let Some(r) = self.field_resolution_t {
-            settings.field_resolution_t = r;
-        }
-        settings
-    }
-}
-
-fn optional_floats(frame: &DataFrame, name: &str) -> Result<Vec<Option<f64>>, AnalysisError> {
-    if frame.column(name).is_ok() {
-        sdk::float_column(frame, name)
-    } else {
-        Ok(vec![None; frame.height()])
-    }
-}
-
-/// The sweep's points; refuses a table holding several samples or temperatures.
-fn sweep_points(frame: &DataFrame) -> Result<(Vec<SweepPoint>, Value), AnalysisError> {
-    let mut identity = serde_json::Map::new();
-    if frame.column("sample").is_ok() {
-        let mut names: Vec<String> = sdk::string_column(frame, "sample")?.into_iter().flatten().collect();
-        names.sort();
-        names.dedup();
-        if names.len() > 1 {
-            return Err(invalid(format!(
-                "the sweep holds {} samples ({}); run with group_by [\"sample\", \"temperature_K\"]",
-                names.len(),
-                names.join(", ")
-            )));
-        }
-        if let Some(name) = names.pop() {
-            identity.insert("sample".into(), json!(name));
-        }
-    }
-    let temperatures: Vec<f64> = optional_floats(frame, "temperature_K")?.into_iter().flatten().collect();
-    if let (Some(low), Some(high)) = (
-        temperatures.iter().copied().reduce(f64::min),
-        temperatures.iter().copied().reduce(f64::max),
-    ) {
-        // A sweep is taken at one set point; a spread beyond a kelvin means two sweeps.
-        if high - low > 1.0 {
-            return Err(invalid(format!(
-                "the sweep spans {low} K to {high} K; run with group_by [\"sample\", \"temperature_K\"] so that each call sees one temperature"
-            )));
-        }
-        identity.insert(
-            "temperature_K".into(),
-            json!(temperatures.iter().sum::<f64>() / temperatures.len() as f64),
-        );
-    }
-    let fields = sdk::float_column(frame, "field_T")?;
-    let rho_xx = sdk::float_column(frame, "rho_xx_ohm_sq")?;
-    let rho_xy = sdk::float_column(frame, "rho_xy_ohm")?;
-    let rho_xx_unc = optional_floats(frame, "rho_xx_ohm_sq_unc")?;
-    let rho_xy_unc = optional_floats(frame, "rho_xy_ohm_unc")?;
-    let mut points = Vec::with_capacity(frame.height());
-    for row in 0..frame.height() {
-        let value = |v: Option<f64>, name: &str| {
-            v.ok_or_else(|| {
-                invalid(format!(
-                    "row {row}: `{name}` is empty; every sweep point needs B, rho_xx and rho_xy"
-                ))
-            })
-        };
-        let mut point = SweepPoint::new(
-            value(fields[row], "field_T")?,
-            value(rho_xx[row], "rho_xx_ohm_sq")?,
-            value(rho_xy[row], "rho_xy_ohm")?,
-        );
-        if let (Some(xx), Some(xy)) = (rho_xx_unc[row], rho_xy_unc[row]) {
-            point = point.with_uncertainty(ResistivityUncertainty::independent(xx, xy));
-        }
-        points.push(point);
-    }
-    Ok((points, Value::Object(identity)))
 }
 
 fn carrier_type(kind: CarrierKind) -> &'static str {
@@ -163,6 +38,8 @@ pub struct MultiCarrierFitAnalysis;
 pub struct MultiCarrierParams {
     #[serde(flatten)]
     sweep: SweepParams,
+    #[serde(default)]
+    thickness_m: Option<f64>,
     #[serde(default)]
     carriers: Option<Vec<String>>,
     #[serde(default)]
@@ -182,6 +59,7 @@ impl Analysis for MultiCarrierFitAnalysis {
     fn declaration() -> AnalysisDeclaration {
         use ColumnType::*;
         let mut properties = sweep_schema_properties();
+        properties.insert("thickness_m".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "conducting thickness: also report volume densities"}));
         properties.insert("carriers".into(), json!({"type": "array", "items": {"type": "string", "enum": ["n", "p"]}, "minItems": 1, "maxItems": 6, "description": "the carrier list, e.g. [\"n\", \"n\"]; default: chosen automatically by the information criterion"}));
         properties.insert("max_carriers".into(), json!({"type": "integer", "minimum": 1, "maximum": 5, "default": 3, "description": "automatic selection: the most carriers tried"}));
         properties.insert("criterion".into(), json!({"type": "string", "enum": ["bic", "aicc"], "default": "bic", "description": "information criterion of the automatic selection"}));
@@ -195,7 +73,7 @@ impl Analysis for MultiCarrierFitAnalysis {
             summary: "Sheet density and mobility of each carrier from the field dependence of sigma_xx and sigma_xy (discrete multi-carrier fit)".into(),
             description: "Symmetrizes rho_xx and antisymmetrizes rho_xy (interpolating each field branch), converts to the conductivity tensor and fits N Drude carriers jointly to sigma_xx(B) and sigma_xy(B), weighted by the uncertainties, from many starts. Without a carrier list N grows while the information criterion improves, trying every electron/hole split. Warns when carriers cannot be told apart in the field range (mu B_max < 1).".into(),
             params: json!({"type": "object", "additionalProperties": false, "properties": properties}),
-            inputs: vec![sweep_role()],
+            inputs: vec![sweep_role(false)],
             outputs: vec![
                 column("field_T", F64, Some("T"), "field (symmetrized, |B|)"),
                 column("sigma_xx_S", F64, Some("S"), "sheet conductivity from the data"),
@@ -215,7 +93,8 @@ impl Analysis for MultiCarrierFitAnalysis {
 
     fn run(params: MultiCarrierParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
         let sweep = inputs.required("sweep")?;
-        let (points, identity) = sweep_points(sweep)?;
+        let table = single_sweep(sweep)?;
+        let (points, identity) = (table.points.clone(), Value::Object(table.identity()));
         let mut settings = MultiCarrierSettings::default();
         settings.selection = match (&params.carriers, params.max_carriers) {
             (Some(list), _) => CarrierSelection::Kinds(
@@ -283,7 +162,7 @@ impl Analysis for MultiCarrierFitAnalysis {
                     "mobility_field_product": c.mobility_field_product,
                     "at_bound": c.at_bound,
                 });
-                if let Some(t) = params.sweep.thickness_m {
+                if let Some(t) = params.thickness_m {
                     carrier["density_m3"] = json!(c.sheet_density_m2 / t);
                     carrier["density_m3_unc"] = json!(c.sheet_density_unc_m2.map(|u| u / t));
                 }
@@ -342,6 +221,8 @@ pub struct SpectrumParams {
     #[serde(flatten)]
     sweep: SweepParams,
     #[serde(default)]
+    thickness_m: Option<f64>,
+    #[serde(default)]
     points_per_sign: Option<usize>,
     #[serde(default)]
     mobility_min_m2_per_vs: Option<f64>,
@@ -365,6 +246,7 @@ impl Analysis for MobilitySpectrumAnalysis {
         use ColumnType::*;
         let defaults = SpectrumSettings::default();
         let mut properties = sweep_schema_properties();
+        properties.insert("thickness_m".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "conducting thickness: also report volume densities"}));
         properties.insert("points_per_sign".into(), json!({"type": "integer", "minimum": 8, "maximum": 1000, "default": defaults.points_per_sign, "description": "grid mobilities per carrier sign (logarithmic grid)"}));
         properties.insert("mobility_min_m2_per_vs".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "lowest grid mobility; default 0.1 / B_max"}));
         properties.insert("mobility_max_m2_per_vs".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "highest grid mobility; default 10 / B_min"}));
@@ -377,7 +259,7 @@ impl Analysis for MobilitySpectrumAnalysis {
             summary: "Mobility spectrum of electrons and holes: the Beck-Anderson envelope and a regularized non-negative spectrum with its peaks integrated into sheet densities and mobilities".into(),
             description: "On a logarithmic mobility grid for each sign: the Beck-Anderson upper bound (J. Appl. Phys. 62, 541, 1987) and a quantitative spectrum by non-negative least squares with a second-difference penalty in ln mu (Provencher's CONTIN approach on the Beck-Anderson kernel), its strength chosen by the discrepancy principle or the L-curve. Reports progress and stops promptly when cancelled (analysis.cancel).".into(),
             params: json!({"type": "object", "additionalProperties": false, "properties": properties}),
-            inputs: vec![sweep_role()],
+            inputs: vec![sweep_role(false)],
             outputs: vec![
                 column("mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "grid mobility magnitude"),
                 column("electron_envelope_S", F64, Some("S"), "Beck-Anderson bound for electrons"),
@@ -393,7 +275,8 @@ impl Analysis for MobilitySpectrumAnalysis {
 
     fn run(params: SpectrumParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
         let sweep = inputs.required("sweep")?;
-        let (points, identity) = sweep_points(sweep)?;
+        let table = single_sweep(sweep)?;
+        let (points, identity) = (table.points.clone(), Value::Object(table.identity()));
         let mut settings = SpectrumSettings::default();
         if let Some(count) = params.points_per_sign {
             settings.points_per_sign = count;
@@ -471,7 +354,7 @@ impl Analysis for MobilitySpectrumAnalysis {
                     "at_grid_edge": p.at_grid_edge,
                     "within_field_window": p.within_field_window,
                 });
-                if let Some(t) = params.sweep.thickness_m {
+                if let Some(t) = params.thickness_m {
                     peak["density_m3"] = json!(p.sheet_density_m2 / t);
                 }
                 peak

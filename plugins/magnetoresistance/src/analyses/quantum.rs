@@ -1,0 +1,484 @@
+//! `mr.oscillations` and `mr.weak_localization`: the quantum corrections.
+
+use super::*;
+use crate::oscillations::{
+    analyze_oscillations, Background, MassMethod, MassRequest, OscillationError, OscillationSettings, OscillationSweep,
+};
+use crate::weak_localization::{fit_weak_localization, WeakLocalizationSettings, WeakLocalizationSweep};
+use mobilis_core::abi::AnalysisDeclaration;
+use mobilis_core::fft::Window;
+use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
+use mobilis_core::sweep::symmetrize;
+use mobilis_core::sweep_table::{
+    single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature, SweepParams,
+};
+use serde::Deserialize;
+use serde_json::{json, Value};
+
+pub struct OscillationsAnalysis;
+
+#[derive(Debug, Deserialize)]
+pub struct OscillationParams {
+    #[serde(flatten)]
+    sweep: SweepParams,
+    #[serde(rename = "field_min_T", default)]
+    field_min_t: Option<f64>,
+    #[serde(rename = "field_max_T", default)]
+    field_max_t: Option<f64>,
+    #[serde(default)]
+    background: Option<String>,
+    #[serde(default)]
+    background_degree: Option<usize>,
+    #[serde(rename = "background_width_per_T", default)]
+    background_width_per_t: Option<f64>,
+    #[serde(default)]
+    window: Option<String>,
+    #[serde(default)]
+    zero_padding: Option<usize>,
+    #[serde(default)]
+    frequencies: Option<usize>,
+    #[serde(default)]
+    spin_degeneracy: Option<f64>,
+    #[serde(default)]
+    mass: Option<String>,
+    #[serde(default)]
+    effective_mass_ratio: Option<f64>,
+    #[serde(default)]
+    mass_method: Option<String>,
+    #[serde(default)]
+    dingle: Option<bool>,
+    #[serde(default)]
+    landau_fan: Option<bool>,
+}
+
+impl OscillationParams {
+    fn settings(&self) -> Result<OscillationSettings, AnalysisError> {
+        let mut settings = OscillationSettings::default();
+        settings.field_min_t = self.field_min_t;
+        settings.field_max_t = self.field_max_t;
+        settings.background = match (
+            self.background.as_deref(),
+            self.background_degree,
+            self.background_width_per_t,
+        ) {
+            (None | Some("polynomial"), degree, None) => Background::Polynomial {
+                degree: degree.unwrap_or(3),
+            },
+            (Some("smoothing"), None, Some(width)) => Background::Smoothing { width_inverse_t: width },
+            (Some("smoothing"), None, None) => {
+                return Err(invalid(
+                    "background: smoothing needs background_width_per_T (several periods 1/F)",
+                ))
+            }
+            (Some(other), _, _) if other != "polynomial" && other != "smoothing" => {
+                return Err(invalid(format!(
+                    "background `{other}` is unknown; use polynomial or smoothing"
+                )))
+            }
+            _ => return Err(invalid(
+                "background_degree goes with background: polynomial, background_width_per_T with background: smoothing",
+            )),
+        };
+        settings.window = match self.window.as_deref() {
+            None | Some("hann") => Window::Hann,
+            Some("rectangular") => Window::Rectangular,
+            Some("blackman") => Window::Blackman,
+            Some(other) => {
+                return Err(invalid(format!(
+                    "window `{other}` is unknown; use hann, rectangular or blackman"
+                )))
+            }
+        };
+        if let Some(padding) = self.zero_padding {
+            settings.zero_padding = padding;
+        }
+        if let Some(count) = self.frequencies {
+            settings.frequencies = count;
+        }
+        if let Some(g) = self.spin_degeneracy {
+            settings.spin_degeneracy = g;
+        }
+        settings.mass = match (self.mass.as_deref(), self.effective_mass_ratio) {
+            (None | Some("auto"), None) => MassRequest::Auto,
+            (Some("fit"), None) => MassRequest::Fit,
+            (Some("skip"), None) => MassRequest::Skip,
+            (None | Some("known"), Some(ratio)) => MassRequest::Known {
+                effective_mass_ratio: ratio,
+            },
+            (Some("known"), None) => return Err(invalid("mass: known needs effective_mass_ratio")),
+            (Some(other), _) => {
+                return Err(invalid(format!(
+                    "mass `{other}` with effective_mass_ratio: give mass: known, or leave effective_mass_ratio out"
+                )))
+            }
+        };
+        settings.mass_method = match self.mass_method.as_deref() {
+            None | Some("waveform_fit") => MassMethod::WaveformFit,
+            Some("narrow_windows") => MassMethod::NarrowWindows,
+            Some(other) => {
+                return Err(invalid(format!(
+                    "mass_method `{other}` is unknown; use waveform_fit or narrow_windows"
+                )))
+            }
+        };
+        if let Some(dingle) = self.dingle {
+            settings.dingle = dingle;
+        }
+        if let Some(fan) = self.landau_fan {
+            settings.landau_fan = fan;
+        }
+        Ok(settings)
+    }
+}
+
+impl Analysis for OscillationsAnalysis {
+    const NAME: &'static str = "mr.oscillations";
+    type Params = OscillationParams;
+
+    fn declaration() -> AnalysisDeclaration {
+        use ColumnType::*;
+        let mut p = sweep_schema_properties();
+        p.insert("field_min_T".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "lower end of the field window; default where the oscillation rises above the noise"}));
+        p.insert("field_max_T".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "upper end of the field window; default the largest field"}));
+        p.insert("background".into(), json!({"type": "string", "enum": ["polynomial", "smoothing"], "default": "polynomial", "description": "how the smooth background is removed: a polynomial in B, or a smoothing in 1/B"}));
+        p.insert(
+            "background_degree".into(),
+            json!({"type": "integer", "minimum": 0, "maximum": 12, "default": 3}),
+        );
+        p.insert("background_width_per_T".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "smoothing half-width in 1/B, several periods 1/F"}));
+        p.insert("window".into(), json!({"type": "string", "enum": ["hann", "rectangular", "blackman"], "default": "hann", "description": "FFT window"}));
+        p.insert("zero_padding".into(), json!({"type": "integer", "minimum": 1, "maximum": 64, "default": 8, "description": "FFT zero-padding factor"}));
+        p.insert("frequencies".into(), json!({"type": "integer", "minimum": 1, "maximum": 10, "default": 1, "description": "dominant frequencies to report"}));
+        p.insert(
+            "spin_degeneracy".into(),
+            json!({"type": "number", "exclusiveMinimum": 0, "default": 2, "description": "g_s of n = g_s e F / h"}),
+        );
+        p.insert("mass".into(), json!({"type": "string", "enum": ["auto", "fit", "known", "skip"], "default": "auto", "description": "effective mass: fitted from the temperature dependence (auto: when several temperatures), given (known, with effective_mass_ratio), or skipped"}));
+        p.insert("effective_mass_ratio".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "m*/m0 for mass: known (the Dingle analysis needs a mass)"}));
+        p.insert("mass_method".into(), json!({"type": "string", "enum": ["waveform_fit", "narrow_windows"], "default": "waveform_fit", "description": "fit the damped waveform across temperatures, or fit the Lifshitz-Kosevich damping in narrow 1/B windows each with its own field; both avoid the bias of one wide FFT window"}));
+        p.insert("dingle".into(), json!({"type": "boolean", "default": true, "description": "Dingle temperature and quantum lifetime from the amplitude's field dependence"}));
+        p.insert("landau_fan".into(), json!({"type": "boolean", "default": false, "description": "Landau-level fan of the extrema for the phase"}));
+        AnalysisDeclaration {
+            name: String::new(),
+            summary: "Shubnikov-de Haas analysis: frequencies and 2D densities, the effective mass from the thermal damping, the Dingle temperature and quantum lifetime".into(),
+            description: "Each temperature's sweep is symmetrized; the background is removed (polynomial in B or smoothing), the oscillation resampled on a uniform 1/B grid and transformed (windowed, zero-padded FFT). n = g_s e F / h (Onsager). The mass comes from the Lifshitz-Kosevich factor X / sinh X, X = 2 pi^2 k_B T m* / (hbar e B), fitted where each amplitude has its own effective field, never from one wide-window FFT amplitude (which mixes very different damping); the Dingle temperature from ln(A sinh X / X) against 1/B, tau_q = hbar / (2 pi k_B T_D).".into(),
+            params: json!({"type": "object", "additionalProperties": false, "properties": p}),
+            inputs: vec![sweep_role(true)],
+            outputs: vec![
+                column("kind", Str, None, "oscillation (the curve), fft (the spectrum), mass (window amplitudes) or dingle (Dingle plot)"),
+                column("temperature_K", F64, Some("K"), "temperature of the sweep"),
+                column("field_T", F64, Some("T"), "field (oscillation rows) or effective field (mass rows)"),
+                column("inverse_field_per_T", F64, None, "1/B, 1/T (oscillation and dingle rows)"),
+                column("frequency_T", F64, Some("T"), "frequency (fft rows)"),
+                column("rho_xx_ohm_sq", F64, Some("ohm_sq"), "symmetrized rho_xx (oscillation rows)"),
+                column("background_ohm_sq", F64, Some("ohm_sq"), "removed background (oscillation rows)"),
+                column("value_ohm_sq", F64, Some("ohm_sq"), "the oscillation (oscillation rows) or amplitude (fft, mass and dingle rows)"),
+                column("value_ohm_sq_unc", F64, Some("ohm_sq"), "amplitude uncertainty (mass and dingle rows)"),
+                column("dingle_ordinate", F64, None, "ln(A sinh X / X) (dingle rows)"),
+            ],
+            summary_keys: vec![
+                column("frequency_T", F64, Some("T"), "the dominant frequency, with _unc"),
+                column("sheet_density_m2", F64, Some("m2"), "g_s e F / h, with _unc"),
+                column("effective_mass_ratio", F64, None, "m*/m0, with _unc"),
+                column("dingle_temperature_K", F64, Some("K"), "with _unc"),
+                column("quantum_lifetime_s", F64, Some("s"), "hbar / (2 pi k_B T_D), with _unc"),
+            ],
+        }
+    }
+
+    fn run(params: OscillationParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
+        let tables = sweeps_by_temperature(inputs.required("sweep")?)?;
+        let symmetrize_settings = params.sweep.settings();
+        let mut sweeps = Vec::with_capacity(tables.len());
+        for table in &tables {
+            let temperature_k = table
+                .temperature_k
+                .ok_or_else(|| invalid("mr.oscillations needs temperature_K for every sweep"))?;
+            let symmetrized = symmetrize(&table.points, &symmetrize_settings)
+                .map_err(|e| invalid(format!("sweep at {temperature_k} K: {e}")))?;
+            let (field_t, rho_xx_ohm_sq) = symmetrized
+                .points
+                .iter()
+                .filter(|p| p.field_t > 0.0)
+                .map(|p| (p.field_t, p.rho_xx_ohm_sq))
+                .unzip();
+            sweeps.push(OscillationSweep {
+                temperature_k,
+                field_t,
+                rho_xx_ohm_sq,
+            });
+        }
+        host.progress(0.2, "transforming");
+        host.check_cancelled()?;
+        let analysis = analyze_oscillations(&sweeps, &params.settings()?).map_err(|error| match error {
+            OscillationError::Fit { .. } => AnalysisError::Numerical(error.to_string()),
+            other => invalid(other.to_string()),
+        })?;
+
+        // One long table, a `kind` per plot.
+        let mut kind: Vec<&str> = Vec::new();
+        let mut cells: [Vec<Option<f64>>; 8] = Default::default();
+        let mut push = |k: &'static str, values: [Option<f64>; 8]| {
+            kind.push(k);
+            for (cell, value) in cells.iter_mut().zip(values) {
+                cell.push(value);
+            }
+        };
+        for curve in &analysis.curves {
+            for i in 0..curve.field_t.len() {
+                push(
+                    "oscillation",
+                    [
+                        Some(curve.temperature_k),
+                        Some(curve.field_t[i]),
+                        Some(curve.inverse_field_per_t[i]),
+                        None,
+                        Some(curve.rho_xx_ohm_sq[i]),
+                        Some(curve.background_ohm_sq[i]),
+                        Some(curve.oscillation_ohm_sq[i]),
+                        None,
+                    ],
+                );
+            }
+        }
+        for spectrum in &analysis.spectra {
+            for (f, a) in spectrum.frequencies_t.iter().zip(&spectrum.amplitudes_ohm_sq) {
+                push(
+                    "fft",
+                    [
+                        Some(spectrum.temperature_k),
+                        None,
+                        None,
+                        Some(*f),
+                        None,
+                        None,
+                        Some(*a),
+                        None,
+                    ],
+                );
+            }
+        }
+        if let Some(windows) = &analysis.narrow_windows {
+            for window in &windows.windows {
+                for a in &window.amplitudes {
+                    push(
+                        "mass",
+                        [
+                            Some(a.temperature_k),
+                            Some(window.effective_field_t),
+                            None,
+                            None,
+                            None,
+                            None,
+                            Some(a.amplitude_ohm_sq),
+                            Some(a.amplitude_unc_ohm_sq),
+                        ],
+                    );
+                }
+            }
+        }
+        let mut dingle_ordinates = Vec::new();
+        if let Some(dingle) = &analysis.dingle {
+            for point in &dingle.points {
+                push(
+                    "dingle",
+                    [
+                        Some(dingle.temperature_k),
+                        None,
+                        Some(point.inverse_field_per_t),
+                        None,
+                        None,
+                        None,
+                        Some(point.amplitude_ohm_sq),
+                        Some(point.amplitude_unc_ohm_sq),
+                    ],
+                );
+                dingle_ordinates.push(point.ordinate);
+            }
+        }
+        let rows = kind.len();
+        let mut ordinate = vec![None; rows - dingle_ordinates.len()];
+        ordinate.extend(dingle_ordinates.into_iter().map(Some));
+        let [t, b, inv, f, rho, bg, value, unc] = cells;
+        let table = frame(
+            rows,
+            vec![
+                Column::new("kind".into(), kind),
+                optional("temperature_K", t),
+                optional("field_T", b),
+                optional("inverse_field_per_T", inv),
+                optional("frequency_T", f),
+                optional("rho_xx_ohm_sq", rho),
+                optional("background_ohm_sq", bg),
+                optional("value_ohm_sq", value),
+                optional("value_ohm_sq_unc", unc),
+                optional("dingle_ordinate", ordinate),
+            ],
+        )?;
+
+        let summary_values = analysis.summary();
+        let mut output = AnalysisOutput::new(table);
+        let summary = &mut output.summary;
+        if let Some(sample) = &tables[0].sample {
+            summary.insert("sample".into(), json!(sample));
+        }
+        summary.insert(
+            "temperatures_K".into(),
+            json!(sweeps.iter().map(|s| s.temperature_k).collect::<Vec<_>>()),
+        );
+        summary.insert("frequency_T".into(), json!(summary_values.frequency_t));
+        summary.insert("frequency_T_unc".into(), json!(summary_values.frequency_unc_t));
+        summary.insert("sheet_density_m2".into(), json!(summary_values.sheet_density_m2));
+        summary.insert(
+            "sheet_density_m2_unc".into(),
+            json!(summary_values.sheet_density_unc_m2),
+        );
+        summary.insert(
+            "effective_mass_ratio".into(),
+            json!(summary_values.effective_mass_ratio),
+        );
+        summary.insert(
+            "effective_mass_ratio_unc".into(),
+            json!(summary_values.effective_mass_ratio_unc),
+        );
+        summary.insert("mass_method".into(), json!(summary_values.mass_method));
+        summary.insert(
+            "dingle_temperature_K".into(),
+            json!(summary_values.dingle_temperature_k),
+        );
+        summary.insert(
+            "dingle_temperature_K_unc".into(),
+            json!(summary_values.dingle_temperature_unc_k),
+        );
+        summary.insert("quantum_lifetime_s".into(), json!(summary_values.quantum_lifetime_s));
+        summary.insert(
+            "quantum_lifetime_s_unc".into(),
+            json!(summary_values.quantum_lifetime_unc_s),
+        );
+        summary.insert(
+            "field_window_T".into(),
+            json!([analysis.field_window_t.0, analysis.field_window_t.1]),
+        );
+        summary.insert("resolution_T".into(), json!(analysis.resolution_t));
+        summary.insert(
+            "lines".into(),
+            Value::Array(
+                analysis
+                    .lines
+                    .iter()
+                    .map(|l| {
+                        json!({"frequency_T": l.frequency_t, "frequency_T_unc": l.frequency_unc_t, "amplitude_ohm_sq": l.amplitude_ohm_sq,
+                               "sheet_density_m2": l.sheet_density_m2, "sheet_density_m2_unc": l.sheet_density_unc_m2,
+                               "periods_in_window": l.periods_in_window, "harmonic_of": l.harmonic_of.map(|(line, order)| json!([line, order]))})
+                    })
+                    .collect(),
+            ),
+        );
+        if let Some(fan) = &analysis.landau_fan {
+            summary.insert("landau_fan_intercept".into(), json!(fan.intercept));
+            summary.insert("landau_fan_intercept_unc".into(), json!(fan.intercept_unc));
+            summary.insert("landau_fan_phase_rad".into(), json!(fan.phase_rad));
+        }
+        output.warnings = analysis.warnings.clone();
+        host.progress(1.0, "done");
+        Ok(output)
+    }
+}
+
+pub struct WeakLocalizationAnalysis;
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct WeakLocalizationParams {
+    #[serde(rename = "max_field_T", default)]
+    max_field_t: Option<f64>,
+    #[serde(rename = "zero_field_tolerance_T", default)]
+    zero_field_tolerance_t: Option<f64>,
+    #[serde(default)]
+    classical_term: bool,
+    #[serde(default)]
+    fit_offset: bool,
+}
+
+impl Analysis for WeakLocalizationAnalysis {
+    const NAME: &'static str = "mr.weak_localization";
+    type Params = WeakLocalizationParams;
+
+    fn declaration() -> AnalysisDeclaration {
+        use ColumnType::*;
+        AnalysisDeclaration {
+            name: String::new(),
+            summary: "Hikami-Larkin-Nagaoka fit of the low-field conductance correction of a thin film: phase-coherence length and prefactor".into(),
+            description: "d_sigma(B) = sigma(B) - sigma(0) = alpha e^2/(2 pi^2 hbar) [psi(1/2 + B_phi/B) - ln(B_phi/B)], B_phi = hbar / (4 e l_phi^2) (Hikami, Larkin and Nagaoka 1980), fitted for alpha and l_phi (optionally with a classical B^2 term and an offset) over |B| <= max_field_T. HLN assumes a mean free path well below l_phi.".into(),
+            params: json!({"type": "object", "additionalProperties": false, "properties": {
+                "max_field_T": {"type": "number", "exclusiveMinimum": 0, "description": "fit up to this field; default the whole sweep"},
+                "zero_field_tolerance_T": {"type": "number", "minimum": 0, "default": 1e-3, "description": "|B| at or below this gives sigma(0)"},
+                "classical_term": {"type": "boolean", "default": false, "description": "also fit a classical -c B^2 term"},
+                "fit_offset": {"type": "boolean", "default": false, "description": "also fit an offset of sigma(0)"}
+            }}),
+            inputs: vec![sweep_role(false)],
+            outputs: vec![
+                column("field_T", F64, Some("T"), "field"),
+                column("delta_sigma_S", F64, Some("S"), "sigma(B) - sigma(0)"),
+                column("delta_sigma_S_unc", F64, Some("S"), "standard uncertainty"),
+                column("model_S", F64, Some("S"), "the fitted correction"),
+                column("fitted", Bool, None, "inside the fitted range"),
+            ],
+            summary_keys: vec![
+                column("phase_coherence_length_m", F64, Some("m"), "l_phi, with _unc"),
+                column("alpha", F64, None, "HLN prefactor (-1/2 for one channel with strong spin-orbit coupling), with _unc"),
+            ],
+        }
+    }
+
+    fn run(params: WeakLocalizationParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
+        let table = single_sweep(inputs.required("sweep")?)?;
+        let sweep = WeakLocalizationSweep {
+            field_t: table.points.iter().map(|p| p.field_t).collect(),
+            rho_xx_ohm_sq: table.points.iter().map(|p| p.rho_xx_ohm_sq).collect(),
+            rho_xy_ohm: Some(table.points.iter().map(|p| p.rho_xy_ohm).collect()),
+            rho_xx_unc_ohm_sq: table
+                .points
+                .iter()
+                .map(|p| p.uncertainty.map(|u| u.rho_xx_ohm_sq))
+                .collect::<Option<Vec<f64>>>(),
+        };
+        let mut settings = WeakLocalizationSettings::default();
+        settings.max_field_t = params.max_field_t;
+        if let Some(tolerance) = params.zero_field_tolerance_t {
+            settings.zero_field_tolerance_t = tolerance;
+        }
+        settings.classical_term = params.classical_term;
+        settings.fit_offset = params.fit_offset;
+        host.check_cancelled()?;
+        let fit = fit_weak_localization(&sweep, &settings).map_err(|e| invalid(e.to_string()))?;
+        let curve = &fit.curve;
+        let out = frame(
+            curve.len(),
+            vec![
+                floats("field_T", curve.iter().map(|p| p.field_t).collect()),
+                floats("delta_sigma_S", curve.iter().map(|p| p.delta_sigma_s).collect()),
+                optional("delta_sigma_S_unc", curve.iter().map(|p| p.delta_sigma_unc_s).collect()),
+                floats("model_S", curve.iter().map(|p| p.model_s).collect()),
+                Column::new("fitted".into(), curve.iter().map(|p| p.fitted).collect::<Vec<bool>>()),
+            ],
+        )?;
+        let mut output = AnalysisOutput::new(out);
+        let summary = &mut output.summary;
+        summary.extend(table.identity());
+        summary.insert("phase_coherence_length_m".into(), json!(fit.phase_coherence_length_m));
+        summary.insert(
+            "phase_coherence_length_m_unc".into(),
+            json!(fit.phase_coherence_length_unc_m),
+        );
+        summary.insert("phase_coherence_field_T".into(), json!(fit.phase_coherence_field_t));
+        summary.insert("alpha".into(), json!(fit.alpha));
+        summary.insert("alpha_unc".into(), json!(fit.alpha_unc));
+        summary.insert("classical_S_per_T2".into(), json!(fit.classical_s_per_t2));
+        summary.insert("zero_field_conductance_S".into(), json!(fit.zero_field_conductance_s));
+        summary.insert("reduced_chi_square".into(), json!(fit.reduced_chi_square));
+        summary.insert("fitted_points".into(), json!(fit.fitted_points));
+        output.warnings = fit.warnings.clone();
+        Ok(output)
+    }
+}

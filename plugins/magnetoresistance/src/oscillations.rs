@@ -1,0 +1,1165 @@
+//! `mr.oscillations`: Shubnikov-de Haas analysis of rho_xx(B) sweeps: the oscillation
+//! frequencies and the sheet densities they imply, the effective mass from the thermal
+//! damping, the Dingle temperature and quantum lifetime from the field damping, and an
+//! optional Landau-level fan for the phase.
+//!
+//! Pure computation: no DataFrames, no I/O. The table glue turns the sweeps (one per
+//! temperature, or several at one temperature) into [`OscillationSweep`]s and the
+//! [`OscillationAnalysis`] back into a summary ([`OscillationAnalysis::summary`]) and
+//! tables (spectra, per-window amplitudes, Dingle and fan points).
+//!
+//! # Physics
+//!
+//! The oscillatory part of rho_xx is periodic in 1/B with the Onsager frequency F, and in
+//! two dimensions F fixes the sheet density, n = g_s e F / h (g_s the spin degeneracy of the
+//! levels, 2 unless the spin splitting is resolved). Its amplitude is damped by the
+//! Lifshitz-Kosevich factors R_T = X / sinh X, X = c m* T / B, and R_D = exp(-c m* T_D / B),
+//! c = 2 pi^2 k_B m_0 / (hbar e) = 14.69 T/K (`mobilis_core::forward::oscillations`, which
+//! also generates the synthetic sweeps of the tests, so that simulated and fitted physics
+//! are the same code). Lifshitz and Kosevich, Sov. Phys. JETP 2, 636 (1956); Shoenberg,
+//! Magnetic Oscillations in Metals (1984).
+//!
+//! # Steps and the choices made
+//!
+//! 1. **Validation.** Every sweep needs a finite positive temperature, as many rho_xx values
+//!    as fields, finite values, and fields that increase or decrease strictly: a sweep that
+//!    goes up and down, or repeats fields, is refused (symmetrize it first with
+//!    `mr.symmetrize`, which gives one branch in |B|). A sweep through zero field is
+//!    accepted; only its part inside the window is used.
+//! 2. **Field window** [B_min, B_max]: given, or by default from the largest B_max / 10 and
+//!    lowest positive field of any sweep up to the lowest highest field. Below about a tenth
+//!    of B_max the oscillations of most samples are damped into the noise and the 1/B axis
+//!    is sampled coarsely; a wider window is one parameter away. Each sweep needs
+//!    16 points inside it (more for a polynomial background of high degree).
+//! 3. **Background** ([`Background`]). The smooth classical magnetoresistance is removed
+//!    before the transform, or it dominates the low frequencies and leaks into the line:
+//!    - `Polynomial { degree }` (default degree 3): least squares in B over the window (an
+//!      orthonormal Legendre basis in the scaled field, so high degrees stay well
+//!      conditioned). A polynomial of low degree cannot follow an oscillation with many
+//!      periods, but near B_max, where a period B^2 / F spans teslas, it takes up part of
+//!      the oscillation, which would shift the fitted frequency, phase and damping.
+//!      Therefore every later least-squares fit (steps 6 and 7) fits the background jointly
+//!      with the oscillation, by variable projection (Golub and Pereyra, SIAM J. Numer.
+//!      Anal. 10, 413, 1973): the model is projected off the polynomials and compared with
+//!      the data projected the same way, which is the fit of model plus best polynomial.
+//!      The degrees of freedom the polynomials use are counted in the uncertainties.
+//!    - `Smoothing { width_inverse_t }`: local quadratic regression (LOESS, Cleveland, J. Am.
+//!      Stat. Assoc. 74, 829, 1979, tricube weights, no robustness iterations) in 1/B with
+//!      the given half-width. It is done in 1/B, not in B, because the oscillation is
+//!      periodic in 1/B: a half-width of several periods 1/F averages it away equally at every
+//!      field, where in B the period B^2 / F changes across the window. It follows
+//!      backgrounds that no low polynomial fits (a saturating two-band MR over a wide
+//!      window). The smoother is not a projection, so the fits instead backfit it
+//!      (Hastie and Tibshirani, Generalized Additive Models, 1990): the background is
+//!      re-estimated from the data minus the fitted oscillation and the fit repeated,
+//!      [`BACKFITTING_ROUNDS`] times.
+//!
+//!    What is left, rho_xx - background, is the oscillation at the measured points (reported
+//!    with the background as last re-estimated). Its amplitude is used in ohm per square, not
+//!    divided by the background: the Lifshitz-Kosevich prefactor of Delta rho is rho_0, the
+//!    zero-field resistivity (Ando's form Delta rho / rho_0 = 4 R_T R_D cos(...), Isihara and
+//!    Smrcka, J. Phys. C 19, 6777, 1986), so dividing by a field-dependent background would
+//!    bend the Dingle plot.
+//! 4. **Uniform 1/B grid.** The oscillation is interpolated by a natural cubic spline in
+//!    1/B onto `grid_points` equally spaced values between 1/B_max and 1/B_min (default:
+//!    twice the most points any sweep has in the window, at least 512), and its mean removed.
+//!    A spline, unlike straight lines, does not flatten the peaks of an oscillation sampled
+//!    with a few points per period. If the sweep samples fewer than 4 points per period
+//!    anywhere in the window (the field step is widest in 1/B at B_min), a warning says so.
+//! 5. **Spectrum and lines.** Each sweep's grid is multiplied by the window function
+//!    (`mobilis_core::fft::Window`, Hann by default, rectangular or Blackman), zero-padded
+//!    to a power of two at least `zero_padding` (default 8) times the grid, and transformed
+//!    (`mobilis_core::fft`); the amplitude is scaled so that a sinusoid on a bin shows its
+//!    amplitude in ohm per square. Lines are searched in the spectrum of the reference
+//!    sweep (the coldest; the first given among equals) between `frequency_min_t` (default
+//!    `min_periods` / (1/B_min - 1/B_max): fewer periods than that in the window are not
+//!    an oscillation one can count) and `frequency_max_t` (default the grid's Nyquist
+//!    frequency): local maxima, refined by a parabola through three bins, at least
+//!    `min_peak_ratio` (default 6) times the median amplitude around them (within 20
+//!    resolutions or half their frequency, whichever is wider: the noise passed by the
+//!    resampling falls off above the sweep's own sampling limit at B_min, so a band-wide
+//!    median would understate the noise at low frequencies; the amplitude of Gaussian noise
+//!    exceeds 6 times its median with probability about 1e-11 per bin),
+//!    at least `min_relative_amplitude` (default 0.05) of the strongest line, and outside
+//!    1.5 main-lobe half-widths of a stronger line (its own lobe and sidelobes). At most
+//!    `frequencies` (default 1) lines, strongest first. A line near an integer multiple of a
+//!    stronger one (within 1.5 / span) is marked as its harmonic. When a feature below the
+//!    lowest frequency is stronger than every line and itself significant, the window is
+//!    refused with [`OscillationError::TooFewPeriods`]; when nothing stands out, with
+//!    [`OscillationError::NoOscillation`]. Both say to widen the window.
+//! 6. **Refinement.** The FFT's frequency is good to a fraction of the resolution 1/span,
+//!    often a few per cent. The lines are refined by fitting
+//!    sum_k A_k exp(-lambda_k (x - x_c)) cos(2 pi F_k (x - x_c) + psi_k) (x = 1/B, x_c the
+//!    window centre, where phase and frequency are nearly uncorrelated) to the reference
+//!    sweep's points with bounded Levenberg-Marquardt (`mobilis_core::fit`), from the FFT
+//!    values (F within 1.5 / span of them) and linear least-squares amplitudes and phases,
+//!    two starts in lambda. The exponential envelope stands in for R_T R_D at one
+//!    temperature; F, its standard error (scaled by the scatter), the phase phi of
+//!    cos(2 pi F / B + phi) and its error come from this fit. If it fails, the FFT values
+//!    are kept with a warning. When the waveform fit of step 7 runs, its frequencies and
+//!    phases (all sweeps, the exact damping) replace these for the lines it includes
+//!    ([`FrequencyLine::source`]). The sheet density n = g_s e F / h carries the relative
+//!    error of F.
+//! 7. **Effective mass** ([`MassRequest`], [`MassMethod`]). Needs sweeps at two or more
+//!    distinct temperatures (closer than 1e-3 relative count as one);
+//!    asked for with one temperature it is an error, in `Auto` mode a warning. Why not the
+//!    FFT amplitude: over a wide window R_T varies strongly with 1/B (X = c m* T / B), and
+//!    more so the hotter the sweep, so the FFT amplitude of a hot sweep comes from the
+//!    high-field end while that of a cold one spans the window. Fitting R_T(T) to those
+//!    amplitudes at one effective field biases the mass by tens of per cent (a test shows
+//!    it). Two methods avoid this, and both are computed:
+//!    - **Waveform fit** (default for the reported mass): the damped waveform itself,
+//!      A_k R_T(c m_k T x) exp(-c m_k T_D,k (x - x_c)) cos(2 pi F_k (x - x_c) + psi_k), fitted
+//!      to the points of all sweeps at once, each at its own temperature, for every line
+//!      that is not a harmonic: parameters A, m*, T_D, F and psi per line, bounded (m* in
+//!      [1e-3, 20], T_D in [0, 200] K), three starts (the narrow-window mass, halved and
+//!      doubled). The model is exact at every field, so the window may be as wide as the data
+//!      allow. It assumes the Lifshitz-Kosevich form with a field-independent prefactor and
+//!      the same noise in every sweep (the errors are scaled by the scatter).
+//!    - **Narrow windows**: the 1/B range is split into `mass_windows` equal windows
+//!      (default: as many as hold `mass_window_periods`, default 3, periods each, at most
+//!      12). In each, the amplitude of every sweep is the in-phase coefficient of a least-
+//!      squares fit of a g(x) cos(theta) + b g(x) sin(theta) + c + d (x - x_mid), theta =
+//!      2 pi F x + phi_w, phi_w the window's phase in the reference sweep: projecting on a
+//!      fixed phase (the LK phase does not depend on temperature) keeps a weak hot amplitude
+//!      unbiased, where the magnitude sqrt(a^2 + b^2) would be pushed up by the noise. Its
+//!      standard error comes from the fit's scatter. g(x) = R_T(c m* T x) R_D(x) / (the same
+//!      at the window's mean 1/B) refers the amplitude to the window's own effective field
+//!      B_eff = 1 / mean(1/B), even though the damping changes across the window: at the
+//!      higher temperatures R_T falls several-fold within even three periods, and a constant
+//!      envelope would weight the window's high-field end and bias the mass low by per
+//!      cents. g needs m* and T_D: the first pass takes g = 1, later passes the previous
+//!      pass's mass and the Dingle temperature of the waveform fit (or of the refinement's
+//!      decay), until the mass changes by less than 1e-5 of itself (at most 6 passes).
+//!      R_T(T; m*, B_eff) is fitted to each window's amplitudes ([`fit_thermal_damping`],
+//!      weighted), and the windows' masses are combined by their inverse-variance mean, its
+//!      error scaled up by the Birge ratio when they scatter more than their errors.
+//!      Windows where the reference sweep shows no oscillation above three standard errors
+//!      are left out. The method uses the Lifshitz-Kosevich form only within each window,
+//!      so a mass that changes with field shows as a trend of the windows' masses.
+//!
+//!    `MassRequest::Known` uses a given mass instead (for the Dingle plot of one sweep).
+//!    When the two methods disagree by more than three combined standard errors, a warning
+//!    says so.
+//! 8. **Dingle plot** (with a mass, at the reference temperature): in-phase amplitudes in
+//!    consecutive windows of `dingle_window_periods` periods (default 2, fewer down to 1
+//!    when the window holds fewer than 10 periods, so that there are 5 windows), projected on the
+//!    refined phase; windows whose amplitude is not above twice its error are dropped. The
+//!    amplitudes are referred to each window's mean 1/B with the envelope of the previous
+//!    estimate of T_D, as for the narrow windows (a few passes from the waveform fit's T_D).
+//!    The line ln(A sinh X / X) = const - c m* T_D / B (X at the window's mean 1/B) is fitted with
+//!    weights from the amplitude errors (sigma of ln A = sigma_A / A), its slope error scaled
+//!    by sqrt(chi^2 / nu) when above 1. T_D = -slope / (c m*); the mass's error adds half the
+//!    change of T_D between m* - u and m* + u. tau_q = hbar / (2 pi k_B T_D). The waveform fit
+//!    gives its own T_D, reported beside it.
+//! 9. **Landau fan** (optional, `landau_fan`): near each extremum of the refined waveform at
+//!    the reference temperature, a parabola fitted to the points within a quarter period
+//!    locates the measured extremum (kept when its curvature has the right sign and its
+//!    vertex lies within the quarter period). Minima get integer indices, maxima half-
+//!    integers, so that the line index = F_fan / B + beta has beta in (-1/2, 1/2]. beta = 0
+//!    is the conventional 2D electron gas (rho_xx minima at even filling), beta = +-1/2 a
+//!    Berry phase pi; F_fan checks F. The phase of cos(2 pi F / B + phi) is
+//!    phi = 2 pi (beta + 1/2).
+//!
+//! Multiple lines: the frequencies and densities are reported for each; the narrow-window
+//! mass, the Dingle plot and the fan use the strongest line only, and the other lines are
+//! noise to them (a warning says when a second line is above 20 % of the first).
+
+mod error;
+mod mass;
+mod prepare;
+mod spectrum;
+#[cfg(test)]
+mod tests;
+mod waveform;
+
+use std::f64::consts::PI;
+
+use mobilis_core::fft::{amplitude_spectrum, Window};
+use mobilis_core::forward::oscillations::{
+    sheet_density_from_frequency_m2, thermal_damping, thermal_damping_log_derivative, LK_FIELD_PER_KELVIN,
+};
+
+pub use error::OscillationError;
+pub use mass::fit_thermal_damping;
+use prepare::{field_window, make_grid, prepare_sweep, resample, validate_sweeps};
+use spectrum::{find_peaks, PeakSearch, SearchLimits};
+use waveform::{fit_waveform, in_phase_amplitude, refine_components, FitSweep, RefinedComponent, WaveformStart};
+
+/// Rounds of backfitting (background re-estimated from the data minus the fitted
+/// oscillation) for the smoothing background: each round shrinks the share of the
+/// oscillation the smoother took by that share again.
+pub const BACKFITTING_ROUNDS: usize = 3;
+
+/// One rho_xx(B) sweep at one temperature.
+#[derive(Debug, Clone, PartialEq)]
+pub struct OscillationSweep {
+    pub temperature_k: f64,
+    /// Fields, T, strictly increasing or decreasing.
+    pub field_t: Vec<f64>,
+    /// Sheet rho_xx, ohm per square (symmetrized in field).
+    pub rho_xx_ohm_sq: Vec<f64>,
+}
+
+/// How the smooth background is removed (step 3 of the module documentation).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Background {
+    /// Least-squares polynomial of this degree in B over the window.
+    Polynomial { degree: usize },
+    /// Local quadratic regression in 1/B with this half-width, 1/T.
+    Smoothing { width_inverse_t: f64 },
+}
+
+impl Default for Background {
+    fn default() -> Self {
+        Background::Polynomial { degree: 3 }
+    }
+}
+
+/// Whether and how a mass is obtained.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub enum MassRequest {
+    /// Fitted when the sweeps span two or more temperatures, otherwise none (a warning).
+    #[default]
+    Auto,
+    /// Fitted; an error when the sweeps are at one temperature.
+    Fit,
+    /// Given (for the Dingle plot); no fit.
+    Known { effective_mass_ratio: f64 },
+    /// No mass and no Dingle plot.
+    Skip,
+}
+
+/// Which fitted mass is reported as the result (both are computed).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum MassMethod {
+    /// The damped waveform fitted across temperatures.
+    #[default]
+    WaveformFit,
+    /// R_T fitted per narrow window of 1/B, windows combined.
+    NarrowWindows,
+}
+
+impl MassMethod {
+    pub fn name(self) -> &'static str {
+        match self {
+            MassMethod::WaveformFit => "waveform_fit",
+            MassMethod::NarrowWindows => "narrow_windows",
+        }
+    }
+}
+
+/// Settings of [`analyze_oscillations`]; [`OscillationSettings::default`] gives the defaults
+/// of the module documentation.
+#[derive(Debug, Clone, PartialEq)]
+pub struct OscillationSettings {
+    /// B_min of the window, T (default: see step 2).
+    pub field_min_t: Option<f64>,
+    /// B_max of the window, T (default: the lowest highest field of the sweeps).
+    pub field_max_t: Option<f64>,
+    pub background: Background,
+    /// Points of the uniform 1/B grid (default: twice the most points in the window, >= 512).
+    pub grid_points: Option<usize>,
+    pub window: Window,
+    /// The transform is at least this many times the grid (default 8).
+    pub zero_padding: usize,
+    /// Lines to report (default 1).
+    pub frequencies: usize,
+    /// Lowest frequency searched, T (default: min_periods / span of 1/B).
+    pub frequency_min_t: Option<f64>,
+    /// Highest frequency searched, T (default: the grid's Nyquist frequency).
+    pub frequency_max_t: Option<f64>,
+    /// Periods a line must complete in the window (default 2).
+    pub min_periods: f64,
+    /// A line must be this many times the median amplitude of the band (default 6).
+    pub min_peak_ratio: f64,
+    /// A line must be this fraction of the strongest (default 0.05).
+    pub min_relative_amplitude: f64,
+    /// g_s of n = g_s e F / h (default 2).
+    pub spin_degeneracy: f64,
+    pub mass: MassRequest,
+    pub mass_method: MassMethod,
+    /// Narrow windows (default: as many as hold `mass_window_periods` periods, 1 to 12).
+    pub mass_windows: Option<usize>,
+    /// Periods per narrow window when their number is not given (default 3).
+    pub mass_window_periods: f64,
+    /// Fit the Dingle plot when a mass is known (default true).
+    pub dingle: bool,
+    /// Periods per window of the Dingle plot (default: 2, or fewer down to 1 so that the
+    /// window holds at least 5 Dingle windows).
+    pub dingle_window_periods: Option<f64>,
+    /// Build the Landau-level fan (default false).
+    pub landau_fan: bool,
+}
+
+impl Default for OscillationSettings {
+    fn default() -> Self {
+        OscillationSettings {
+            field_min_t: None,
+            field_max_t: None,
+            background: Background::default(),
+            grid_points: None,
+            window: Window::Hann,
+            zero_padding: 8,
+            frequencies: 1,
+            frequency_min_t: None,
+            frequency_max_t: None,
+            min_periods: 2.0,
+            min_peak_ratio: 6.0,
+            min_relative_amplitude: 0.05,
+            spin_degeneracy: 2.0,
+            mass: MassRequest::Auto,
+            mass_method: MassMethod::WaveformFit,
+            mass_windows: None,
+            mass_window_periods: 3.0,
+            dingle: true,
+            dingle_window_periods: None,
+            landau_fan: false,
+        }
+    }
+}
+
+impl OscillationSettings {
+    fn validate(&self) -> Result<(), OscillationError> {
+        let invalid = |name: &'static str, value: f64, requirement: &'static str| {
+            Err(OscillationError::InvalidSetting {
+                name,
+                value,
+                requirement,
+            })
+        };
+        let positive = |value: f64| value.is_finite() && value > 0.0;
+        for (name, value) in [
+            ("field_min_t", self.field_min_t),
+            ("field_max_t", self.field_max_t),
+            ("frequency_min_t", self.frequency_min_t),
+            ("frequency_max_t", self.frequency_max_t),
+        ] {
+            if let Some(value) = value {
+                if !positive(value) {
+                    return invalid(
+                        name,
+                        value,
+                        "give a finite positive value, or leave it out for the default",
+                    );
+                }
+            }
+        }
+        match self.background {
+            Background::Polynomial { degree } if degree > 12 => return invalid(
+                "background.degree",
+                degree as f64,
+                "give a degree of at most 12 (a smooth background needs few terms; more would follow the oscillation)",
+            ),
+            Background::Smoothing { width_inverse_t } if !positive(width_inverse_t) => {
+                return invalid(
+                    "background.width_inverse_t",
+                    width_inverse_t,
+                    "give a finite positive half-width in 1/T, several oscillation periods 1/F",
+                )
+            }
+            _ => {}
+        }
+        if let Some(points) = self.grid_points {
+            if !(64..=1 << 22).contains(&points) {
+                return invalid("grid_points", points as f64, "give between 64 and 4194304 grid points");
+            }
+        }
+        if !(1..=64).contains(&self.zero_padding) {
+            return invalid(
+                "zero_padding",
+                self.zero_padding as f64,
+                "give a padding factor from 1 to 64",
+            );
+        }
+        if !(1..=10).contains(&self.frequencies) {
+            return invalid("frequencies", self.frequencies as f64, "ask for 1 to 10 frequencies");
+        }
+        if !(self.min_periods.is_finite() && self.min_periods >= 1.0) {
+            return invalid(
+                "min_periods",
+                self.min_periods,
+                "give at least 1 period (2 is the default)",
+            );
+        }
+        if !(self.min_peak_ratio.is_finite() && self.min_peak_ratio > 1.0) {
+            return invalid(
+                "min_peak_ratio",
+                self.min_peak_ratio,
+                "give a ratio above 1 (6 is the default)",
+            );
+        }
+        if !(0.0..=1.0).contains(&self.min_relative_amplitude) {
+            return invalid(
+                "min_relative_amplitude",
+                self.min_relative_amplitude,
+                "give a fraction of the strongest line from 0 to 1",
+            );
+        }
+        if !positive(self.spin_degeneracy) {
+            return invalid(
+                "spin_degeneracy",
+                self.spin_degeneracy,
+                "give g_s > 0 (2 without resolved spin splitting, 1 with)",
+            );
+        }
+        if let MassRequest::Known { effective_mass_ratio } = self.mass {
+            if !positive(effective_mass_ratio) {
+                return invalid(
+                    "effective_mass_ratio",
+                    effective_mass_ratio,
+                    "give a finite positive m*/m_0",
+                );
+            }
+        }
+        if let Some(windows) = self.mass_windows {
+            if !(1..=50).contains(&windows) {
+                return invalid("mass_windows", windows as f64, "give 1 to 50 windows");
+            }
+        }
+        if !(self.mass_window_periods.is_finite() && self.mass_window_periods >= 1.0) {
+            return invalid(
+                "mass_window_periods",
+                self.mass_window_periods,
+                "give at least 1 period per window",
+            );
+        }
+        if let Some(periods) = self.dingle_window_periods {
+            if !(periods.is_finite() && periods >= 0.5) {
+                return invalid(
+                    "dingle_window_periods",
+                    periods,
+                    "give at least half a period per window, or leave it out for the default",
+                );
+            }
+        }
+        Ok(())
+    }
+}
+
+/// One line of the spectrum, refined.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FrequencyLine {
+    /// F, T: from the waveform fit across temperatures when the line is in it, else from
+    /// the refinement at the reference temperature, else the FFT peak ([`Self::source`]).
+    pub frequency_t: f64,
+    pub frequency_unc_t: Option<f64>,
+    /// The FFT peak, T, and its amplitude, ohm per square.
+    pub fft_frequency_t: f64,
+    pub fft_amplitude_ohm_sq: f64,
+    /// The refined envelope at the window centre in 1/B, reference sweep, ohm per square.
+    pub amplitude_ohm_sq: f64,
+    /// phi of cos(2 pi F / B + phi), rad.
+    pub phase_rad: f64,
+    /// From the refinement; None when the phase comes from the waveform fit or the FFT.
+    pub phase_unc_rad: Option<f64>,
+    /// n = g_s e F / h, m^-2.
+    pub sheet_density_m2: f64,
+    pub sheet_density_unc_m2: Option<f64>,
+    /// F times the span of 1/B.
+    pub periods_in_window: f64,
+    /// The index of the stronger line this one is a harmonic of, and the order.
+    pub harmonic_of: Option<(usize, u32)>,
+    /// Where F, its error and the phase come from: "waveform_fit", "refinement" or "fft".
+    pub source: &'static str,
+}
+
+/// The amplitude spectrum of one sweep.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SweepSpectrum {
+    pub temperature_k: f64,
+    pub frequencies_t: Vec<f64>,
+    pub amplitudes_ohm_sq: Vec<f64>,
+}
+
+/// One sweep in the window: data, background and oscillation, ordered by increasing 1/B.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SweepCurve {
+    pub temperature_k: f64,
+    pub field_t: Vec<f64>,
+    pub inverse_field_per_t: Vec<f64>,
+    pub rho_xx_ohm_sq: Vec<f64>,
+    pub background_ohm_sq: Vec<f64>,
+    pub oscillation_ohm_sq: Vec<f64>,
+    /// The oscillation on the uniform 1/B grid (mean removed).
+    pub resampled_ohm_sq: Vec<f64>,
+}
+
+/// R_T(T) fitted at one effective field ([`fit_thermal_damping`]).
+#[derive(Debug, Clone, PartialEq)]
+pub struct ThermalDampingFit {
+    pub effective_mass_ratio: f64,
+    pub effective_mass_ratio_unc: Option<f64>,
+    /// A_0 of A_0 R_T, ohm per square.
+    pub prefactor_ohm_sq: f64,
+    pub effective_field_t: f64,
+    pub chi_square: f64,
+    pub points: usize,
+    pub converged: bool,
+}
+
+/// One sweep's amplitude in one window.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct WindowAmplitude {
+    pub temperature_k: f64,
+    pub amplitude_ohm_sq: f64,
+    pub amplitude_unc_ohm_sq: f64,
+}
+
+/// One narrow window of the mass analysis (the points of the mass plot).
+#[derive(Debug, Clone, PartialEq)]
+pub struct MassWindow {
+    pub inverse_field_range_per_t: (f64, f64),
+    /// B_eff = 1 / mean(1/B), T.
+    pub effective_field_t: f64,
+    pub amplitudes: Vec<WindowAmplitude>,
+    /// None when the fit failed (a warning says why).
+    pub fit: Option<ThermalDampingFit>,
+}
+
+/// The narrow-window mass.
+#[derive(Debug, Clone, PartialEq)]
+pub struct NarrowWindowMass {
+    pub windows: Vec<MassWindow>,
+    pub effective_mass_ratio: f64,
+    pub effective_mass_ratio_unc: Option<f64>,
+    /// sqrt(chi^2 / (K - 1)) of the windows' masses about their mean.
+    pub birge_ratio: Option<f64>,
+}
+
+/// One line of the waveform fit.
+#[derive(Debug, Clone, PartialEq)]
+pub struct WaveformComponent {
+    /// Index into [`OscillationAnalysis::lines`].
+    pub line: usize,
+    pub frequency_t: f64,
+    pub frequency_unc_t: Option<f64>,
+    pub effective_mass_ratio: f64,
+    pub effective_mass_ratio_unc: Option<f64>,
+    pub dingle_temperature_k: f64,
+    pub dingle_temperature_unc_k: Option<f64>,
+    /// A_0 at the window centre without thermal damping, ohm per square.
+    pub amplitude_ohm_sq: f64,
+    pub phase_rad: f64,
+}
+
+/// The damped waveform fitted across temperatures.
+#[derive(Debug, Clone, PartialEq)]
+pub struct WaveformFit {
+    pub components: Vec<WaveformComponent>,
+    pub reduced_chi_square: f64,
+    pub points: usize,
+    /// Starts that reached the best minimum, of how many.
+    pub starts_at_best: usize,
+    pub starts: usize,
+}
+
+/// The reported mass and where it came from.
+#[derive(Debug, Clone, PartialEq)]
+pub struct MassEstimate {
+    pub effective_mass_ratio: f64,
+    pub effective_mass_ratio_unc: Option<f64>,
+    /// "waveform_fit", "narrow_windows" or "known".
+    pub method: &'static str,
+}
+
+/// One window of the Dingle plot.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct DinglePoint {
+    pub inverse_field_per_t: f64,
+    pub amplitude_ohm_sq: f64,
+    pub amplitude_unc_ohm_sq: f64,
+    /// ln(A sinh X / X), A in ohm per square.
+    pub ordinate: f64,
+    pub ordinate_unc: f64,
+}
+
+/// The Dingle plot and the Dingle temperature and quantum lifetime from it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct DinglePlot {
+    pub temperature_k: f64,
+    pub effective_mass_ratio: f64,
+    pub window_periods: f64,
+    pub points: Vec<DinglePoint>,
+    /// Slope of ln(A sinh X / X) against 1/B, T.
+    pub slope_t: f64,
+    pub slope_unc_t: f64,
+    pub intercept: f64,
+    pub reduced_chi_square: f64,
+    pub dingle_temperature_k: f64,
+    pub dingle_temperature_unc_k: f64,
+    pub quantum_lifetime_s: f64,
+    pub quantum_lifetime_unc_s: f64,
+    /// Windows left out (too few points or no amplitude above twice its error).
+    pub dropped_windows: usize,
+}
+
+/// A minimum or a maximum of rho_xx.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Extremum {
+    Minimum,
+    Maximum,
+}
+
+/// One extremum of the Landau fan.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct FanPoint {
+    pub inverse_field_per_t: f64,
+    /// Integer for minima, half-integer for maxima.
+    pub index: f64,
+    pub kind: Extremum,
+}
+
+/// The Landau-level fan: index = F_fan / B + intercept.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LandauFan {
+    pub temperature_k: f64,
+    pub points: Vec<FanPoint>,
+    pub frequency_t: f64,
+    pub frequency_unc_t: f64,
+    /// beta, in about (-1/2, 1/2]: 0 for a conventional 2D gas, +-1/2 for a Berry phase pi.
+    pub intercept: f64,
+    pub intercept_unc: f64,
+    /// phi = 2 pi (beta + 1/2), rad.
+    pub phase_rad: f64,
+}
+
+/// The contract's summary numbers (and their uncertainties).
+#[derive(Debug, Clone, PartialEq)]
+pub struct OscillationSummary {
+    pub frequency_t: f64,
+    pub frequency_unc_t: Option<f64>,
+    pub sheet_density_m2: f64,
+    pub sheet_density_unc_m2: Option<f64>,
+    pub effective_mass_ratio: Option<f64>,
+    pub effective_mass_ratio_unc: Option<f64>,
+    pub mass_method: Option<&'static str>,
+    pub dingle_temperature_k: Option<f64>,
+    pub dingle_temperature_unc_k: Option<f64>,
+    pub quantum_lifetime_s: Option<f64>,
+    pub quantum_lifetime_unc_s: Option<f64>,
+}
+
+/// Everything [`analyze_oscillations`] found.
+#[derive(Debug, Clone, PartialEq)]
+pub struct OscillationAnalysis {
+    /// [B_min, B_max], T.
+    pub field_window_t: (f64, f64),
+    /// [1/B_max, 1/B_min], 1/T.
+    pub inverse_field_window_per_t: (f64, f64),
+    pub grid_points: usize,
+    pub grid_spacing_per_t: f64,
+    /// The transform length after padding.
+    pub padded_length: usize,
+    /// 1 / span of 1/B, T.
+    pub resolution_t: f64,
+    /// Index of the reference (coldest) sweep.
+    pub reference_sweep: usize,
+    /// Strongest first.
+    pub lines: Vec<FrequencyLine>,
+    /// One per sweep, in input order.
+    pub spectra: Vec<SweepSpectrum>,
+    pub curves: Vec<SweepCurve>,
+    pub mass: Option<MassEstimate>,
+    pub narrow_windows: Option<NarrowWindowMass>,
+    pub waveform: Option<WaveformFit>,
+    pub dingle: Option<DinglePlot>,
+    pub landau_fan: Option<LandauFan>,
+    pub warnings: Vec<String>,
+}
+
+impl OscillationAnalysis {
+    /// The summary numbers of the strongest line.
+    pub fn summary(&self) -> OscillationSummary {
+        let line = &self.lines[0];
+        OscillationSummary {
+            frequency_t: line.frequency_t,
+            frequency_unc_t: line.frequency_unc_t,
+            sheet_density_m2: line.sheet_density_m2,
+            sheet_density_unc_m2: line.sheet_density_unc_m2,
+            effective_mass_ratio: self.mass.as_ref().map(|m| m.effective_mass_ratio),
+            effective_mass_ratio_unc: self.mass.as_ref().and_then(|m| m.effective_mass_ratio_unc),
+            mass_method: self.mass.as_ref().map(|m| m.method),
+            dingle_temperature_k: self.dingle.as_ref().map(|d| d.dingle_temperature_k),
+            dingle_temperature_unc_k: self.dingle.as_ref().map(|d| d.dingle_temperature_unc_k),
+            quantum_lifetime_s: self.dingle.as_ref().map(|d| d.quantum_lifetime_s),
+            quantum_lifetime_unc_s: self.dingle.as_ref().map(|d| d.quantum_lifetime_unc_s),
+        }
+    }
+}
+
+/// Runs the analysis of the module documentation on `sweeps`.
+pub fn analyze_oscillations(
+    sweeps: &[OscillationSweep],
+    settings: &OscillationSettings,
+) -> Result<OscillationAnalysis, OscillationError> {
+    settings.validate()?;
+    validate_sweeps(sweeps)?;
+    let window = field_window(sweeps, settings)?;
+    let mut prepared = sweeps
+        .iter()
+        .enumerate()
+        .map(|(index, sweep)| prepare_sweep(index, sweep, window, &settings.background))
+        .collect::<Result<Vec<_>, _>>()?;
+    let grid = make_grid(&prepared, window, settings);
+    resample(&mut prepared, &grid);
+    let range = (1.0 / window.1, 1.0 / window.0);
+    let span = range.1 - range.0;
+    let centre = 0.5 * (range.0 + range.1);
+    let mut warnings = Vec::new();
+
+    let spectra: Vec<_> = prepared
+        .iter()
+        .map(|sweep| amplitude_spectrum(&sweep.grid_values, grid.spacing, settings.window, settings.zero_padding))
+        .collect();
+    let reference = (0..prepared.len())
+        .min_by(|a, b| prepared[*a].temperature_k.total_cmp(&prepared[*b].temperature_k))
+        .unwrap_or(0);
+
+    // Lines.
+    let lowest = settings.frequency_min_t.unwrap_or(settings.min_periods / span);
+    let highest = settings.frequency_max_t.unwrap_or(0.5 / grid.spacing);
+    if lowest >= highest {
+        return Err(OscillationError::InvalidSetting {
+            name: "frequency_min_t",
+            value: lowest,
+            requirement: "the lowest frequency searched is not below the highest; lower frequency_min_t, raise frequency_max_t or grid_points, or widen the window",
+        });
+    }
+    let limits = SearchLimits {
+        lowest_t: lowest,
+        highest_t: highest,
+        count: settings.frequencies,
+        window: settings.window,
+        min_ratio: settings.min_peak_ratio,
+        min_relative_amplitude: settings.min_relative_amplitude,
+    };
+    let peaks = match find_peaks(&spectra[reference], &limits) {
+        PeakSearch::Found(peaks) => peaks,
+        PeakSearch::TooFewPeriods { frequency_t } => {
+            return Err(OscillationError::TooFewPeriods {
+                frequency_t,
+                periods: frequency_t * span,
+                required: settings.min_periods,
+                inverse_span_per_t: span,
+            })
+        }
+        PeakSearch::Nothing { best_ratio } => {
+            return Err(OscillationError::NoOscillation {
+                lowest_frequency_t: lowest,
+                highest_frequency_t: highest,
+                best_ratio,
+                required_ratio: settings.min_peak_ratio,
+            })
+        }
+    };
+    if peaks.len() < settings.frequencies {
+        warnings.push(format!(
+            "{} frequencies were asked for but only {} line(s) stand out of the noise; the others are not reported",
+            settings.frequencies,
+            peaks.len()
+        ));
+    }
+    let fft_frequencies: Vec<f64> = peaks.iter().map(|p| p.frequency_t).collect();
+    // A smoothing background is re-estimated from the data minus the fitted oscillation and
+    // the fit repeated (backfitting); a polynomial one is fitted jointly in one pass.
+    let rounds = match settings.background {
+        Background::Polynomial { .. } => 1,
+        Background::Smoothing { .. } => BACKFITTING_ROUNDS,
+    };
+    let mut refined: Option<Vec<RefinedComponent>> = None;
+    let mut source = "refinement";
+    for _ in 0..rounds {
+        let sweep = &prepared[reference];
+        let fit_sweep = FitSweep {
+            x: &sweep.inverse_field,
+            target: sweep.fit_target(),
+            temperature_k: sweep.temperature_k,
+            projection: sweep.projection(),
+        };
+        match refine_components(&fit_sweep, &fft_frequencies, centre, span) {
+            Ok(refinement) => {
+                prepared[reference].update_background(&refinement.model)?;
+                refined = Some(refinement.components);
+            }
+            Err(error) => {
+                if refined.is_none() {
+                    warnings.push(format!(
+                        "the damped-cosine refinement of the frequencies failed ({error}); the FFT frequencies are reported without uncertainties"
+                    ));
+                }
+                break;
+            }
+        }
+    }
+    let reference_sweep = &prepared[reference];
+    if refined.is_none() {
+        source = "fft";
+    }
+    let refined: Vec<RefinedComponent> = refined.unwrap_or_else(|| {
+        peaks
+            .iter()
+            .map(|peak| {
+                let whole = in_phase_amplitude(
+                    &reference_sweep.inverse_field,
+                    &reference_sweep.oscillation,
+                    range,
+                    peak.frequency_t,
+                    0.0,
+                    None,
+                );
+                RefinedComponent {
+                    frequency_t: peak.frequency_t,
+                    frequency_unc_t: None,
+                    amplitude_ohm_sq: peak.amplitude,
+                    decay_t: 0.0,
+                    phase_rad: whole.map_or(0.0, |w| waveform::wrap_phase(-w.phase_correction())),
+                    phase_unc_rad: None,
+                }
+            })
+            .collect()
+    });
+    let mut lines: Vec<FrequencyLine> = Vec::with_capacity(peaks.len());
+    for (peak, component) in peaks.iter().zip(&refined) {
+        let density = sheet_density_from_frequency_m2(component.frequency_t, settings.spin_degeneracy);
+        let harmonic_of = lines.iter().enumerate().find_map(|(index, stronger)| {
+            let order = (component.frequency_t / stronger.frequency_t).round();
+            (order >= 2.0 && (component.frequency_t - order * stronger.frequency_t).abs() <= 1.5 / span)
+                .then_some((index, order as u32))
+        });
+        lines.push(FrequencyLine {
+            frequency_t: component.frequency_t,
+            frequency_unc_t: component.frequency_unc_t,
+            fft_frequency_t: peak.frequency_t,
+            fft_amplitude_ohm_sq: peak.amplitude,
+            amplitude_ohm_sq: component.amplitude_ohm_sq,
+            phase_rad: component.phase_rad,
+            phase_unc_rad: component.phase_unc_rad,
+            sheet_density_m2: density,
+            sheet_density_unc_m2: component
+                .frequency_unc_t
+                .map(|unc| density * unc / component.frequency_t),
+            periods_in_window: component.frequency_t * span,
+            harmonic_of,
+            source,
+        });
+    }
+    let mut dominant_frequency = lines[0].frequency_t;
+    let mut dominant_phase = lines[0].phase_rad;
+    let widest_step = reference_sweep
+        .inverse_field
+        .windows(2)
+        .map(|pair| pair[1] - pair[0])
+        .fold(0.0f64, f64::max);
+    let samples_per_period = 1.0 / (dominant_frequency * widest_step);
+    if samples_per_period < 4.0 {
+        warnings.push(format!(
+            "the field step samples the {dominant_frequency:.3} T oscillation with only {samples_per_period:.1} points per period near B_min; raise field_min_t or measure more densely there"
+        ));
+    }
+    if lines.len() > 1 && lines[1].amplitude_ohm_sq > 0.2 * lines[0].amplitude_ohm_sq {
+        warnings.push(
+            "a second line above 20 % of the strongest beats with it in the narrow-window amplitudes, the Dingle plot and the fan, which use the strongest line only".to_string(),
+        );
+    }
+
+    // Mass.
+    let temperatures: Vec<f64> = prepared.iter().map(|p| p.temperature_k).collect();
+    let distinct = mass::distinct_temperatures(&temperatures);
+    let fit_mass = match settings.mass {
+        MassRequest::Fit if distinct.len() < 2 => {
+            return Err(OscillationError::SingleTemperature {
+                temperature_k: distinct[0],
+                sweeps: prepared.len(),
+            })
+        }
+        MassRequest::Auto if distinct.len() < 2 => {
+            warnings.push(format!(
+                "all sweeps are at {} K, so no effective mass is fitted (it needs two or more temperatures) and there is no Dingle plot unless a known mass is given",
+                distinct[0]
+            ));
+            false
+        }
+        MassRequest::Fit | MassRequest::Auto => true,
+        MassRequest::Known { .. } | MassRequest::Skip => false,
+    };
+    let mut narrow = None;
+    let mut waveform_fit = None;
+    let mut mass_estimate = match settings.mass {
+        MassRequest::Known { effective_mass_ratio } => Some(MassEstimate {
+            effective_mass_ratio,
+            effective_mass_ratio_unc: None,
+            method: "known",
+        }),
+        _ => None,
+    };
+    if fit_mass {
+        let periods = dominant_frequency * span;
+        // With the damping across each window taken into account, a single window is
+        // unbiased too; more windows show whether the mass depends on the field.
+        let count = settings
+            .mass_windows
+            .unwrap_or(((periods / settings.mass_window_periods).floor() as usize).clamp(1, 12));
+        // First pass: a starting mass for the waveform fit, with the Dingle temperature the
+        // refinement's decay implies for a typical mass.
+        let reference_temperature = prepared[reference].temperature_k;
+        let dingle_from_decay = |mass: f64, decay: f64| {
+            let x_centre = LK_FIELD_PER_KELVIN * mass * reference_temperature * centre;
+            (decay / (LK_FIELD_PER_KELVIN * mass) + reference_temperature * thermal_damping_log_derivative(x_centre))
+                .clamp(0.0, 100.0)
+        };
+        let mut scratch = Vec::new();
+        let (_, first) = mass::narrow_window_mass(
+            &prepared,
+            reference,
+            dominant_frequency,
+            range,
+            count,
+            dingle_from_decay(0.1, refined[0].decay_t),
+            &mut scratch,
+        );
+        let mass_start = first.map_or(0.1, |(m, _, _)| m.clamp(0.005, 5.0));
+        let included: Vec<usize> = (0..lines.len()).filter(|&i| lines[i].harmonic_of.is_none()).collect();
+        let mut starts: Vec<WaveformStart> = included
+            .iter()
+            .map(|&i| {
+                let component = &refined[i];
+                let x_centre = LK_FIELD_PER_KELVIN * mass_start * reference_temperature * centre;
+                WaveformStart {
+                    amplitude: component.amplitude_ohm_sq / thermal_damping(x_centre).max(1e-12),
+                    mass: mass_start,
+                    dingle_k: dingle_from_decay(mass_start, component.decay_t).max(0.05),
+                    frequency: component.frequency_t,
+                    phase: waveform::wrap_phase(component.phase_rad + 2.0 * PI * component.frequency_t * centre),
+                }
+            })
+            .collect();
+        for round in 0..rounds {
+            let fit_sweeps: Vec<FitSweep> = prepared
+                .iter()
+                .map(|sweep| FitSweep {
+                    x: &sweep.inverse_field,
+                    target: sweep.fit_target(),
+                    temperature_k: sweep.temperature_k,
+                    projection: sweep.projection(),
+                })
+                .collect();
+            match fit_waveform(&fit_sweeps, &starts, centre, span) {
+                Ok(outcome) => {
+                    for (sweep, model) in prepared.iter_mut().zip(&outcome.models) {
+                        sweep.update_background(model)?;
+                    }
+                    // The next round starts where this one ended.
+                    for (start, component) in starts.iter_mut().zip(&outcome.components) {
+                        start.mass = component.effective_mass_ratio;
+                        start.dingle_k = component.dingle_temperature_k;
+                        start.frequency = component.frequency_t;
+                        start.amplitude = component.amplitude_ohm_sq;
+                        start.phase =
+                            waveform::wrap_phase(component.phase_rad + 2.0 * PI * component.frequency_t * centre);
+                    }
+                    waveform_fit = Some(WaveformFit {
+                        components: outcome
+                            .components
+                            .iter()
+                            .zip(&included)
+                            .map(|(c, &line)| WaveformComponent {
+                                line,
+                                frequency_t: c.frequency_t,
+                                frequency_unc_t: c.frequency_unc_t,
+                                effective_mass_ratio: c.effective_mass_ratio,
+                                effective_mass_ratio_unc: c.effective_mass_ratio_unc,
+                                dingle_temperature_k: c.dingle_temperature_k,
+                                dingle_temperature_unc_k: c.dingle_temperature_unc_k,
+                                amplitude_ohm_sq: c.amplitude_ohm_sq,
+                                phase_rad: c.phase_rad,
+                            })
+                            .collect(),
+                        reduced_chi_square: outcome.reduced_chi_square,
+                        points: outcome.points,
+                        starts_at_best: outcome.starts_at_best,
+                        starts: outcome.starts,
+                    });
+                }
+                Err(error) => {
+                    if round == 0 {
+                        warnings.push(format!("the waveform fit across temperatures failed: {error}"));
+                    }
+                    break;
+                }
+            }
+        }
+        // The waveform fit's frequencies and phases use every sweep and the exact damping.
+        if let Some(fit) = &waveform_fit {
+            for component in &fit.components {
+                let line = &mut lines[component.line];
+                line.frequency_t = component.frequency_t;
+                line.frequency_unc_t = component.frequency_unc_t;
+                line.phase_rad = component.phase_rad;
+                line.phase_unc_rad = None;
+                line.sheet_density_m2 =
+                    sheet_density_from_frequency_m2(component.frequency_t, settings.spin_degeneracy);
+                line.sheet_density_unc_m2 = component
+                    .frequency_unc_t
+                    .map(|unc| line.sheet_density_m2 * unc / component.frequency_t);
+                line.periods_in_window = component.frequency_t * span;
+                line.source = "waveform_fit";
+            }
+            dominant_frequency = lines[0].frequency_t;
+            dominant_phase = lines[0].phase_rad;
+        }
+        // Second pass, on the backgrounds the waveform fit re-estimated and with its Dingle
+        // temperature for the damping across each window.
+        let dingle_hint = waveform_fit.as_ref().map_or_else(
+            || dingle_from_decay(mass_start, refined[0].decay_t),
+            |w| w.components[0].dingle_temperature_k,
+        );
+        let (windows, combined) = mass::narrow_window_mass(
+            &prepared,
+            reference,
+            dominant_frequency,
+            range,
+            count,
+            dingle_hint,
+            &mut warnings,
+        );
+        match combined {
+            Some((mass, unc, birge)) => {
+                narrow = Some(NarrowWindowMass {
+                    windows,
+                    effective_mass_ratio: mass,
+                    effective_mass_ratio_unc: unc,
+                    birge_ratio: birge,
+                })
+            }
+            None => warnings.push("no narrow window gave a mass".to_string()),
+        }
+        let from_waveform = waveform_fit.as_ref().map(|w| MassEstimate {
+            effective_mass_ratio: w.components[0].effective_mass_ratio,
+            effective_mass_ratio_unc: w.components[0].effective_mass_ratio_unc,
+            method: MassMethod::WaveformFit.name(),
+        });
+        let from_windows = narrow.as_ref().map(|n| MassEstimate {
+            effective_mass_ratio: n.effective_mass_ratio,
+            effective_mass_ratio_unc: n.effective_mass_ratio_unc,
+            method: MassMethod::NarrowWindows.name(),
+        });
+        if let (Some(a), Some(b)) = (&from_waveform, &from_windows) {
+            if let (Some(ua), Some(ub)) = (a.effective_mass_ratio_unc, b.effective_mass_ratio_unc) {
+                let difference = (a.effective_mass_ratio - b.effective_mass_ratio).abs();
+                if difference > 3.0 * ua.hypot(ub) {
+                    warnings.push(format!(
+                        "the waveform-fit mass {:.4} and the narrow-window mass {:.4} differ by more than three combined standard errors: a temperature or field dependence other than Lifshitz-Kosevich's (a mass that changes with field, a drifting temperature, a second line) affects the two differently; compare the masses of the narrow windows",
+                        a.effective_mass_ratio, b.effective_mass_ratio
+                    ));
+                }
+            }
+        }
+        let (primary, secondary) = match settings.mass_method {
+            MassMethod::WaveformFit => (from_waveform, from_windows),
+            MassMethod::NarrowWindows => (from_windows, from_waveform),
+        };
+        mass_estimate = match (primary, secondary) {
+            (Some(primary), _) => Some(primary),
+            (None, Some(secondary)) => {
+                warnings.push(format!(
+                    "the {} mass is not available; the {} mass is reported instead",
+                    settings.mass_method.name(),
+                    secondary.method
+                ));
+                Some(secondary)
+            }
+            (None, None) => {
+                if settings.mass == MassRequest::Fit {
+                    return Err(OscillationError::MassNotDetermined { reasons: warnings });
+                }
+                None
+            }
+        };
+    }
+
+    // Dingle plot.
+    let mut dingle = None;
+    if settings.dingle {
+        if let Some(estimate) = &mass_estimate {
+            match mass::dingle_plot(
+                &prepared[reference],
+                dominant_frequency,
+                dominant_phase,
+                range,
+                settings
+                    .dingle_window_periods
+                    .unwrap_or((dominant_frequency * span / 5.0).clamp(1.0, 2.0)),
+                estimate.effective_mass_ratio,
+                estimate.effective_mass_ratio_unc,
+                waveform_fit
+                    .as_ref()
+                    .map_or(0.0, |w| w.components[0].dingle_temperature_k),
+            ) {
+                Ok(plot) => {
+                    if plot.dingle_temperature_k < 0.0 {
+                        warnings.push(format!(
+                            "the Dingle plot rises with 1/B (T_D = {:.3} K < 0): the amplitude grows toward low field, which the Lifshitz-Kosevich form does not allow; check the background removal and the window",
+                            plot.dingle_temperature_k
+                        ));
+                    }
+                    dingle = Some(plot);
+                }
+                Err(message) => warnings.push(message),
+            }
+        }
+    }
+
+    // Landau fan.
+    let mut landau_fan = None;
+    if settings.landau_fan {
+        match mass::landau_fan(&prepared[reference], dominant_frequency, dominant_phase) {
+            Ok(fan) => landau_fan = Some(fan),
+            Err(message) => warnings.push(message),
+        }
+    }
+
+    let spectra_out = prepared
+        .iter()
+        .zip(&spectra)
+        .map(|(sweep, spectrum)| {
+            let keep = spectrum.frequencies.iter().take_while(|f| **f <= highest).count();
+            SweepSpectrum {
+                temperature_k: sweep.temperature_k,
+                frequencies_t: spectrum.frequencies[..keep].to_vec(),
+                amplitudes_ohm_sq: spectrum.amplitudes[..keep].to_vec(),
+            }
+        })
+        .collect();
+    let padded_length = spectra[reference].padded_length;
+    let curves = prepared
+        .into_iter()
+        .map(|sweep| SweepCurve {
+            temperature_k: sweep.temperature_k,
+            field_t: sweep.field_t,
+            inverse_field_per_t: sweep.inverse_field,
+            rho_xx_ohm_sq: sweep.rho_xx,
+            background_ohm_sq: sweep.background,
+            oscillation_ohm_sq: sweep.oscillation,
+            resampled_ohm_sq: sweep.grid_values,
+        })
+        .collect();
+    Ok(OscillationAnalysis {
+        field_window_t: window,
+        inverse_field_window_per_t: range,
+        grid_points: grid.points,
+        grid_spacing_per_t: grid.spacing,
+        padded_length,
+        resolution_t: 1.0 / span,
+        reference_sweep: reference,
+        lines,
+        spectra: spectra_out,
+        curves,
+        mass: mass_estimate,
+        narrow_windows: narrow,
+        waveform: waveform_fit,
+        dingle,
+        landau_fan,
+        warnings,
+    })
+}

@@ -138,7 +138,7 @@ impl Analysis for OscillationsAnalysis {
     fn declaration() -> AnalysisDeclaration {
         use ColumnType::*;
         let mut p = sweep_schema_properties();
-        p.insert("field_min_T".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "lower end of the field window; default where the oscillation rises above the noise"}));
+        p.insert("field_min_T".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "lower end of the field window; default the larger of the lowest positive field and B_max / 10"}));
         p.insert("field_max_T".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "upper end of the field window; default the largest field"}));
         p.insert("background".into(), json!({"type": "string", "enum": ["polynomial", "smoothing"], "default": "polynomial", "description": "how the smooth background is removed: a polynomial in B, or a smoothing in 1/B"}));
         p.insert(

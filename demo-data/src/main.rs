@@ -10,7 +10,14 @@
 //! - `DIR/heterostructure/sweeps.csv` and `DIR/inas-film/sweeps.csv`: field sweeps of the
 //!   AlGaN/GaN heterostructure and of the InAs film, the `sweep` role;
 //! - `DIR/heterostructure/truth.json` and `DIR/inas-film/truth.json`: the invented carriers
-//!   the sweeps were made from.
+//!   the sweeps were made from;
+//! - `DIR/heterostructure/sdh-sweeps.csv`: the heterostructure from 1 T to 9 T at six
+//!   temperatures from 2 K to 10 K, with the Shubnikov-de Haas oscillations of its channel;
+//! - `DIR/heterostructure/truth-sdh.json`: the invented oscillation parameters of that file;
+//! - `DIR/thin-film/wl-sweep.csv`: a thin disordered GaN film at 2 K below 0.1 T, with its
+//!   weak-localization cusp;
+//! - `DIR/thin-film/truth.json`: the invented film and weak-localization parameters of that
+//!   file.
 //!
 //! The data are made up; see `README.md` next to this crate. The physics is
 //! `mobilis_core::forward`, the same models the plugins fit.
@@ -18,8 +25,11 @@
 mod format;
 mod heterostructure;
 mod inas_film;
+mod quantum;
 mod si_wafer;
 mod sweeps;
+mod thin_film;
+mod weak_localization;
 
 use anyhow::Context as _;
 use std::path::{Path, PathBuf};
@@ -82,6 +92,41 @@ fn demo_files() -> anyhow::Result<(Vec<DemoFile>, Vec<String>)> {
             wafer.directory
         ));
     }
+
+    let quantum = quantum::generate(&heterostructure::QUANTUM)?;
+    let quantum_directory = heterostructure::QUANTUM.directory;
+    files.push(DemoFile {
+        directory: quantum_directory,
+        name: "sdh-sweeps.csv",
+        contents: sweeps::sweeps_csv(&quantum.sdh_rows),
+    });
+    files.push(DemoFile {
+        directory: quantum_directory,
+        name: "truth-sdh.json",
+        contents: quantum.truth.to_pretty_string(),
+    });
+    summaries.push(format!(
+        "{} oscillation sweep points at {} temperatures in {quantum_directory}",
+        quantum.sdh_rows.len(),
+        heterostructure::QUANTUM.sdh_temperatures_k.len(),
+    ));
+
+    let film = weak_localization::generate(&thin_film::FILM)?;
+    let film_directory = thin_film::FILM.directory;
+    files.push(DemoFile {
+        directory: film_directory,
+        name: "wl-sweep.csv",
+        contents: sweeps::sweeps_csv(&film.rows),
+    });
+    files.push(DemoFile {
+        directory: film_directory,
+        name: "truth.json",
+        contents: film.truth.to_pretty_string(),
+    });
+    summaries.push(format!(
+        "{} weak-localization sweep points in {film_directory}",
+        film.rows.len()
+    ));
     Ok((files, summaries))
 }
 
@@ -163,6 +208,10 @@ mod tests {
                 "heterostructure/truth.json",
                 "inas-film/sweeps.csv",
                 "inas-film/truth.json",
+                "heterostructure/sdh-sweeps.csv",
+                "heterostructure/truth-sdh.json",
+                "thin-film/wl-sweep.csv",
+                "thin-film/truth.json",
             ]
         );
         for relative in &written {

@@ -97,7 +97,8 @@ pub struct GeneratedSweeps {
     pub sweep_count: usize,
 }
 
-fn round_to_resolution(field_t: f64) -> f64 {
+/// `field_t` rounded to the field readback's resolution, [`FIELD_RESOLUTION_T`].
+pub fn round_to_resolution(field_t: f64) -> f64 {
     (field_t / FIELD_RESOLUTION_T).round() * FIELD_RESOLUTION_T
 }
 
@@ -122,7 +123,7 @@ pub fn sweep_fields() -> anyhow::Result<Vec<f64>> {
 }
 
 /// The truth-file entry of one carrier population.
-fn layer_truth(layer: &Layer) -> Json {
+pub fn layer_truth(layer: &Layer) -> Json {
     let carrier = &layer.carrier;
     let mut entries = vec![
         ("layer".to_owned(), Json::text(layer.name)),

@@ -88,16 +88,103 @@ async fn run_with_daemon(daemon: &Daemon, data: &std::path::Path) -> anyhow::Res
     let scattering = summary("si-scattering-summary").await?;
     let purity = summary("si-purity").await?;
     print_purity(&freeze_out, &arrhenius, &scattering, &purity, &truth);
-    for (directory, fit_output, spectrum_output) in
-        [("heterostructure", "hemt-carriers", "hemt-spectrum"), ("inas-film", "inas-carriers", "inas-spectrum")]
-    {
+    for (directory, fit_output, spectrum_output) in [
+        ("heterostructure", "hemt-carriers", "hemt-spectrum"),
+        ("inas-film", "inas-carriers", "inas-spectrum"),
+    ] {
         let truth: Value = serde_json::from_str(&std::fs::read_to_string(data.join(directory).join("truth.json"))?)?;
-        let step = |output: &str| steps.as_array().and_then(|all| all.iter().find(|s| s["output"] == output)).cloned();
+        let step = |output: &str| {
+            steps
+                .as_array()
+                .and_then(|all| all.iter().find(|s| s["output"] == output))
+                .cloned()
+        };
         if let (Some(fit), Some(spectrum)) = (step(fit_output), step(spectrum_output)) {
             print_carriers(&fit, &spectrum, &truth);
         }
     }
+    let find = |output: &str| {
+        steps
+            .as_array()
+            .and_then(|all| all.iter().find(|s| s["output"] == output))
+            .cloned()
+    };
+    let read_truth =
+        |file: &str| -> anyhow::Result<Value> { Ok(serde_json::from_str(&std::fs::read_to_string(data.join(file))?)?) };
+    let oscillation_truth = read_truth("heterostructure/truth-sdh.json")?;
+    let film_truth = read_truth("thin-film/truth.json")?;
+    if let (Some(oscillations), Some(weak)) = (find("hemt-oscillations"), find("film-weak-localization")) {
+        print_quantum(&oscillations, &oscillation_truth, &weak, &film_truth);
+    }
     Ok(())
+}
+
+fn print_quantum(oscillations: &Value, oscillation_truth: &Value, weak: &Value, film_truth: &Value) {
+    let summary = &oscillations["summary"]["groups"][0]["summary"];
+    let sdh = &oscillation_truth["oscillations"];
+    println!();
+    println!(
+        "Sample {} quantum transport (magnetoresistance plugin), invented truth in brackets",
+        summary["sample"].as_str().unwrap_or("?")
+    );
+    let row = |label: &str, name: &str, factor: f64, truth: &Value| {
+        println!(
+            "  {label:<28} {:>24}  [{}]",
+            format!(
+                "{} ± {}",
+                number(&summary[name], factor),
+                number(&summary[format!("{name}_unc")], factor)
+            ),
+            number(truth, factor)
+        );
+    };
+    row("SdH frequency (T)", "frequency_T", 1.0, &sdh["frequency_T"]);
+    row("2D density (cm^-2)", "sheet_density_m2", 1e-4, &sdh["sheet_density_m2"]);
+    row(
+        "effective mass (m*/m0)",
+        "effective_mass_ratio",
+        1.0,
+        &sdh["effective_mass_ratio"],
+    );
+    row(
+        "Dingle temperature (K)",
+        "dingle_temperature_K",
+        1.0,
+        &sdh["dingle_temperature_K"],
+    );
+    row(
+        "quantum lifetime (ps)",
+        "quantum_lifetime_s",
+        1e12,
+        &sdh["quantum_lifetime_s"],
+    );
+    let weak_summary = &weak["summary"]["groups"][0]["summary"];
+    let wl = &film_truth["weak_localization"];
+    println!();
+    println!(
+        "Sample {} weak localization at 2 K (mr.weak_localization), invented truth in brackets",
+        weak_summary["sample"].as_str().unwrap_or("?")
+    );
+    println!(
+        "  {:<28} {:>24}  [{}]",
+        "phase-coherence length (nm)",
+        format!(
+            "{} ± {}",
+            number(&weak_summary["phase_coherence_length_m"], 1e9),
+            number(&weak_summary["phase_coherence_length_m_unc"], 1e9)
+        ),
+        number(&wl["phase_coherence_length_m"], 1e9)
+    );
+    println!(
+        "  {:<28} {:>24}  [{}]",
+        "HLN prefactor alpha",
+        format!(
+            "{} ± {}",
+            number(&weak_summary["alpha"], 1.0),
+            number(&weak_summary["alpha_unc"], 1.0)
+        ),
+        number(&wl["alpha"], 1.0)
+    );
 }
 
 /// One carrier as `n 9.000e12 cm^-2 at 15000 cm^2/(V s)`.
@@ -116,16 +203,25 @@ fn print_carriers(fit: &Value, spectrum: &Value, truth: &Value) {
         let sample = group["group"]["sample"].as_str().unwrap_or("?");
         let temperature = group["group"]["temperature_K"].as_f64().unwrap_or(f64::NAN);
         println!();
-        println!("Sample {sample} at {} K: carriers from the field sweep (spectrum plugin)", format_number(temperature));
+        println!(
+            "Sample {sample} at {} K: carriers from the field sweep (spectrum plugin)",
+            format_number(temperature)
+        );
         let true_carriers = truth["samples"]
             .as_array()
             .and_then(|samples| samples.iter().find(|s| s["sample"] == sample))
             .and_then(|s| s["temperatures"].as_array())
-            .and_then(|ts| ts.iter().find(|t| (t["temperature_K"].as_f64().unwrap_or(f64::NAN) - temperature).abs() < 0.5))
+            .and_then(|ts| {
+                ts.iter()
+                    .find(|t| (t["temperature_K"].as_f64().unwrap_or(f64::NAN) - temperature).abs() < 0.5)
+            })
             .map(|t| t["carriers"].as_array().cloned().unwrap_or_default())
             .unwrap_or_default();
         for carrier in &true_carriers {
-            println!("  invented truth         {}", describe_carrier(carrier, "sheet_density_m2", "mobility_m2_per_Vs"));
+            println!(
+                "  invented truth         {}",
+                describe_carrier(carrier, "sheet_density_m2", "mobility_m2_per_Vs")
+            );
         }
         for carrier in group["summary"]["carriers"].as_array().into_iter().flatten() {
             println!(
@@ -141,7 +237,10 @@ fn print_carriers(fit: &Value, spectrum: &Value, truth: &Value) {
             .map(|g| g["summary"]["peaks"].as_array().cloned().unwrap_or_default())
             .unwrap_or_default();
         for peak in &peaks {
-            println!("  mobility spectrum peak {}", describe_carrier(peak, "sheet_density_m2", "mobility_m2_per_Vs"));
+            println!(
+                "  mobility spectrum peak {}",
+                describe_carrier(peak, "sheet_density_m2", "mobility_m2_per_Vs")
+            );
         }
         for warning in group["warnings"].as_array().into_iter().flatten() {
             println!("  note: {}", warning.as_str().unwrap_or(""));

@@ -396,8 +396,16 @@ pub struct WeakLocalizationParams {
     zero_field_tolerance_t: Option<f64>,
     #[serde(default)]
     classical_term: bool,
-    #[serde(default)]
+    #[serde(default = "fit_offset_default")]
     fit_offset: bool,
+}
+
+/// A fitted offset is the default: the points averaged into sigma(0) (within
+/// zero_field_tolerance_T) already carry part of the cusp when B_phi is of the same order,
+/// which biases alpha and l_phi by many times their uncertainties; the offset lets every
+/// field set the zero-field reference.
+fn fit_offset_default() -> bool {
+    true
 }
 
 impl Analysis for WeakLocalizationAnalysis {
@@ -414,7 +422,7 @@ impl Analysis for WeakLocalizationAnalysis {
                 "max_field_T": {"type": "number", "exclusiveMinimum": 0, "description": "fit up to this field; default the whole sweep"},
                 "zero_field_tolerance_T": {"type": "number", "minimum": 0, "default": 1e-3, "description": "|B| at or below this gives sigma(0)"},
                 "classical_term": {"type": "boolean", "default": false, "description": "also fit a classical -c B^2 term"},
-                "fit_offset": {"type": "boolean", "default": false, "description": "also fit an offset of sigma(0)"}
+                "fit_offset": {"type": "boolean", "default": true, "description": "fit an offset of sigma(0) instead of trusting the zero-field average (which already holds part of the cusp when B_phi is small)"}
             }}),
             inputs: vec![sweep_role(false)],
             outputs: vec![

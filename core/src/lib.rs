@@ -15,6 +15,8 @@
 //! - [`sweep`]: field sweeps: symmetrization in field, resistivity <-> conductivity tensor,
 //!   sheet <-> volume quantities.
 //! - [`sweep_table`]: the `sweep` input role of plugins and its conversion into sweep points.
+//! - [`tensor_data`]: validated two-component tensor data of a sweep (rho or sigma) and the
+//!   whitening of their residuals, shared by the carrier fits.
 //! - [`abi`]: the C ABI between the daemon and plugin libraries (mirrored by
 //!   `include/mobilis_plugin.h`).
 //! - [`table_ffi`]: DataFrames across the Arrow C Data Interface.
@@ -35,5 +37,6 @@ pub mod special;
 pub mod sweep;
 pub mod sweep_table;
 pub mod table_ffi;
+pub mod tensor_data;
 pub mod units;
 pub mod van_der_pauw;

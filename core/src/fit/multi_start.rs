@@ -59,6 +59,47 @@ pub struct MultiStartFit {
     pub outcomes: Vec<StartOutcome>,
 }
 
+impl MultiStartFit {
+    /// Converged starts at the best minimum when parameter sets are compared after
+    /// reordering: `canonical(parameters)` lists the indices of `parameters` in a canonical
+    /// order (for interchangeable carriers, say, so that a run that found the same carriers
+    /// with their labels swapped is the same minimum). Agreement: a chi-square within 1e-3
+    /// of the noise variance (1 for weighted residuals, chi^2 / nu otherwise) or 1e-12 of
+    /// the best chi-square, and every parameter within 0.1 standard errors of the best run's
+    /// (the default tolerances of [`SameMinimum`]); a parameter without a standard error
+    /// must agree to 1e-6 of max(|value|, 1).
+    pub fn starts_at_best_minimum_reordered(&self, canonical: impl Fn(&[f64]) -> Vec<usize>) -> usize {
+        let best = &self.best;
+        let best_order = canonical(&best.parameters);
+        let variance = if best.residuals_are_weighted {
+            1.0
+        } else {
+            best.reduced_chi_square
+        };
+        self.outcomes
+            .iter()
+            .filter_map(|outcome| outcome.result.as_ref().ok())
+            .filter(|summary| {
+                if !summary.converged
+                    || (summary.chi_square - best.chi_square).abs() > 1e-3 * variance + 1e-12 * best.chi_square
+                {
+                    return false;
+                }
+                let order = canonical(&summary.parameters);
+                order.iter().zip(&best_order).all(|(&j, &jb)| {
+                    let difference = (summary.parameters[j] - best.parameters[jb]).abs();
+                    let error = best.standard_errors[jb];
+                    if error.is_finite() && error > 0.0 {
+                        difference <= 0.1 * error
+                    } else {
+                        difference <= 1e-6 * best.parameters[jb].abs().max(1.0)
+                    }
+                })
+            })
+            .count()
+    }
+}
+
 impl LeastSquares<'_> {
     /// Runs [`LeastSquares::minimize`] from each start and keeps the converged run of lowest
     /// chi-square. Fails with [`FitError::NotConverged`] when runs finished but none

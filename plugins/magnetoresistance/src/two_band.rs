@@ -85,6 +85,7 @@ use mobilis_core::forward::tensor::{
 use mobilis_core::linalg::{Matrix, Svd};
 use mobilis_core::noise::Rng;
 use mobilis_core::sweep::{symmetrize, SweepError, SymmetrizeSettings, Symmetrized};
+use mobilis_core::tensor_data::{TensorData, TensorDataError};
 
 pub use mobilis_core::forward::tensor::{Carrier, CarrierKind, ResistivityTensor};
 pub use mobilis_core::sweep::{ResistivityUncertainty, SweepPoint};
@@ -373,6 +374,21 @@ impl From<SweepError> for TwoBandError {
     }
 }
 
+impl From<TensorDataError> for TwoBandError {
+    fn from(error: TensorDataError) -> Self {
+        match error {
+            TensorDataError::NoPoints => TwoBandError::NoPoints,
+            TensorDataError::NonFinite { index, column, value } => TwoBandError::NonFinite { index, column, value },
+            TensorDataError::NonPositiveXx { index, value, .. } => TwoBandError::NonPositiveRhoXx { index, value },
+            TensorDataError::InvalidUncertainty { index, column, value } => {
+                TwoBandError::InvalidUncertainty { index, column, value }
+            }
+            TensorDataError::MixedUncertainties { with, without } => TwoBandError::MixedUncertainties { with, without },
+            TensorDataError::NoField { points } => TwoBandError::NoField { points },
+        }
+    }
+}
+
 impl From<FitError> for TwoBandError {
     fn from(error: FitError) -> Self {
         match error {
@@ -382,155 +398,22 @@ impl From<FitError> for TwoBandError {
     }
 }
 
-/// Turns (d_xx, d_xy) of one field into independent unit-variance residuals: L^-1 d with L
-/// the lower Cholesky factor of [[a^2, c a b], [c a b, b^2]], r_1 = d_xx / a,
-/// r_2 = (d_xy - c b r_1) / (b s), s = sqrt(1 - c^2). At zero field only r_1.
-#[derive(Debug, Clone, Copy)]
-struct Whitening {
-    a: f64,
-    b: f64,
-    c: f64,
-    s: f64,
-    uses_xy: bool,
-}
+/// Validated resistivity data: xx is rho_xx in ohm per square, xy is rho_xy in ohm.
+type Data = TensorData;
 
-impl Whitening {
-    fn new(a: f64, b: f64, c: f64, uses_xy: bool) -> Self {
-        Whitening {
-            a,
-            b,
-            c,
-            s: (1.0 - c * c).sqrt(),
-            uses_xy,
-        }
+/// Checks the points and builds the whitening; refuses fewer residuals than the four
+/// parameters need (one more without uncertainties, whose scale is then estimated from the
+/// same residuals).
+fn validated_data(points: &[SweepPoint]) -> Result<Data, TwoBandError> {
+    let data = TensorData::new(points)?;
+    if data.max_parameters() < 4 {
+        return Err(TwoBandError::TooFewPoints {
+            points: points.len(),
+            residuals: data.residual_count,
+            weighted: data.weighted,
+        });
     }
-
-    fn count(&self) -> usize {
-        1 + usize::from(self.uses_xy)
-    }
-
-    fn apply(&self, d_xx: f64, d_xy: f64, out: &mut [f64]) {
-        let r1 = d_xx / self.a;
-        out[0] = r1;
-        if self.uses_xy {
-            out[1] = (d_xy - self.c * self.b * r1) / (self.b * self.s);
-        }
-    }
-}
-
-/// Validated resistivity data.
-struct Data {
-    fields_t: Vec<f64>,
-    rho_xx: Vec<f64>,
-    rho_xy: Vec<f64>,
-    whitening: Vec<Whitening>,
-    offsets: Vec<usize>,
-    residual_count: usize,
-    weighted: bool,
-    max_field_t: f64,
-    min_field_t: f64,
-}
-
-impl Data {
-    fn new(points: &[SweepPoint]) -> Result<Data, TwoBandError> {
-        if points.is_empty() {
-            return Err(TwoBandError::NoPoints);
-        }
-        let mut with = 0;
-        for (index, point) in points.iter().enumerate() {
-            for (column, value) in [
-                ("field_T", point.field_t),
-                ("rho_xx_ohm_sq", point.rho_xx_ohm_sq),
-                ("rho_xy_ohm", point.rho_xy_ohm),
-            ] {
-                if !value.is_finite() {
-                    return Err(TwoBandError::NonFinite { index, column, value });
-                }
-            }
-            if point.rho_xx_ohm_sq <= 0.0 {
-                return Err(TwoBandError::NonPositiveRhoXx {
-                    index,
-                    value: point.rho_xx_ohm_sq,
-                });
-            }
-            if let Some(unc) = point.uncertainty {
-                with += 1;
-                let invalid =
-                    |column: &'static str, value: f64| TwoBandError::InvalidUncertainty { index, column, value };
-                if !(unc.rho_xx_ohm_sq.is_finite() && unc.rho_xx_ohm_sq > 0.0) {
-                    return Err(invalid("rho_xx_ohm_sq_unc", unc.rho_xx_ohm_sq));
-                }
-                // At zero field rho_xy is not fitted, and a symmetrized sweep gives it exactly
-                // zero uncertainty there.
-                if point.field_t != 0.0 && !(unc.rho_xy_ohm.is_finite() && unc.rho_xy_ohm > 0.0) {
-                    return Err(invalid("rho_xy_ohm_unc", unc.rho_xy_ohm));
-                }
-                if !(unc.correlation.is_finite() && unc.correlation.abs() < 1.0) {
-                    return Err(invalid("correlation", unc.correlation));
-                }
-            }
-        }
-        if with != 0 && with != points.len() {
-            return Err(TwoBandError::MixedUncertainties {
-                with,
-                without: points.len() - with,
-            });
-        }
-        let weighted = with > 0;
-        let max_field_t = points.iter().map(|p| p.field_t.abs()).fold(0.0, f64::max);
-        if max_field_t == 0.0 {
-            return Err(TwoBandError::NoField { points: points.len() });
-        }
-        let min_field_t = points
-            .iter()
-            .map(|p| p.field_t.abs())
-            .filter(|b| *b > 0.0)
-            .fold(f64::INFINITY, f64::min);
-        let whitening: Vec<Whitening> = points
-            .iter()
-            .map(|p| {
-                let uses_xy = p.field_t != 0.0;
-                match p.uncertainty {
-                    Some(u) => Whitening::new(
-                        u.rho_xx_ohm_sq,
-                        u.rho_xy_ohm,
-                        if uses_xy { u.correlation } else { 0.0 },
-                        uses_xy,
-                    ),
-                    None => {
-                        let magnitude = p.rho_xx_ohm_sq.hypot(p.rho_xy_ohm);
-                        Whitening::new(magnitude, magnitude, 0.0, uses_xy)
-                    }
-                }
-            })
-            .collect();
-        let mut offsets = Vec::with_capacity(points.len());
-        let mut residual_count = 0;
-        for w in &whitening {
-            offsets.push(residual_count);
-            residual_count += w.count();
-        }
-        // Four parameters, and one more residual without uncertainties, whose scale is then
-        // estimated from the same residuals.
-        if residual_count < 4 + usize::from(!weighted) {
-            return Err(TwoBandError::TooFewPoints {
-                points: points.len(),
-                residuals: residual_count,
-                weighted,
-            });
-        }
-        Ok(Data {
-            fields_t: points.iter().map(|p| p.field_t).collect(),
-            rho_xx: points.iter().map(|p| p.rho_xx_ohm_sq).collect(),
-            rho_xy: points.iter().map(|p| p.rho_xy_ohm).collect(),
-            whitening,
-            offsets,
-            residual_count,
-            weighted,
-            max_field_t,
-            min_field_t,
-        })
-    }
+    Ok(data)
 }
 
 /// The carriers of a parameter vector (ln n_1, ln mu_1, ln n_2, ln mu_2).
@@ -549,8 +432,8 @@ fn residuals(data: &Data, kinds: &[CarrierKind; 2], p: &[f64], out: &mut [f64]) 
         let offset = data.offsets[k];
         let w = &data.whitening[k];
         w.apply(
-            model.rho_xx_ohm_sq - data.rho_xx[k],
-            model.rho_xy_ohm - data.rho_xy[k],
+            model.rho_xx_ohm_sq - data.xx[k],
+            model.rho_xy_ohm - data.xy[k],
             &mut out[offset..offset + w.count()],
         );
     }
@@ -609,7 +492,7 @@ fn densities_for(data: &Data, kinds: &[CarrierKind; 2], mobilities: [f64; 2], bo
     let mut zero_field_conductance = 0.0;
     let mut lowest = f64::INFINITY;
     for (k, &field) in data.fields_t.iter().enumerate() {
-        let (sigma_xx, sigma_xy) = invert_tensor(data.rho_xx[k], data.rho_xy[k]);
+        let (sigma_xx, sigma_xy) = invert_tensor(data.xx[k], data.xy[k]);
         let weight = 1.0 / sigma_xx.hypot(sigma_xy);
         if field.abs() < lowest {
             lowest = field.abs();
@@ -691,7 +574,7 @@ fn starts(data: &Data, settings: &TwoBandSettings, bounds: &LogBounds) -> Vec<Ve
         .filter(|&k| data.fields_t[k] != 0.0)
         .min_by(|&a, &b| data.fields_t[a].abs().total_cmp(&data.fields_t[b].abs()))
     {
-        let hall = data.rho_xy[k].abs() / (data.rho_xx[k] * data.fields_t[k].abs());
+        let hall = data.xy[k].abs() / (data.xx[k] * data.fields_t[k].abs());
         if hall.is_finite() && hall > 0.0 {
             let spread = 3f64.ln();
             list.push(start_from([hall.ln() + spread, hall.ln() - spread]));
@@ -783,7 +666,7 @@ pub fn fit_two_band_sweep(
 /// documentation).
 pub fn fit_two_band(points: &[SweepPoint], settings: &TwoBandSettings) -> Result<TwoBandFit, TwoBandError> {
     let bounds = validate_settings(settings)?;
-    let data = Data::new(points)?;
+    let data = validated_data(points)?;
     let kinds = settings.kinds;
     let box_bounds = Bounds::new(
         vec![
@@ -835,40 +718,12 @@ fn output_order(kinds: &[CarrierKind; 2], p: &[f64]) -> [usize; 2] {
 /// chi-square within 1e-3 of the noise variance and every parameter within 0.1 standard
 /// errors (the tolerances of `mobilis_core::fit::SameMinimum`).
 fn starts_at_best_minimum(kinds: &[CarrierKind; 2], run: &MultiStartFit) -> usize {
-    let best = &run.best;
-    let canonical = |p: &[f64]| -> Vec<usize> {
+    run.starts_at_best_minimum_reordered(|p: &[f64]| -> Vec<usize> {
         output_order(kinds, p)
             .iter()
             .flat_map(|&i| [2 * i, 2 * i + 1])
             .collect()
-    };
-    let best_order = canonical(&best.parameters);
-    let variance = if best.residuals_are_weighted {
-        1.0
-    } else {
-        best.reduced_chi_square
-    };
-    run.outcomes
-        .iter()
-        .filter_map(|outcome| outcome.result.as_ref().ok())
-        .filter(|summary| {
-            if !summary.converged
-                || (summary.chi_square - best.chi_square).abs() > 1e-3 * variance + 1e-12 * best.chi_square
-            {
-                return false;
-            }
-            let order = canonical(&summary.parameters);
-            order.iter().zip(&best_order).all(|(&j, &jb)| {
-                let difference = (summary.parameters[j] - best.parameters[jb]).abs();
-                let error = best.standard_errors[jb];
-                if error.is_finite() && error > 0.0 {
-                    difference <= 0.1 * error
-                } else {
-                    difference <= 1e-6 * best.parameters[jb].abs().max(1.0)
-                }
-            })
-        })
-        .count()
+    })
 }
 
 /// Orders the carriers and computes uncertainties, the curve and the warnings.

@@ -575,8 +575,7 @@ const POORLY_DETERMINED: f64 = 0.1;
 /// within 1e-3 of the noise variance and every parameter within 0.1 standard errors (the
 /// tolerances of `mobilis_core::fit::SameMinimum`).
 fn starts_at_best_minimum(kinds: &[CarrierKind], run: &MultiStartFit) -> usize {
-    let best = &run.best;
-    let canonical = |parameters: &[f64]| -> Vec<usize> {
+    run.starts_at_best_minimum_reordered(|parameters: &[f64]| -> Vec<usize> {
         let mut order: Vec<usize> = (0..kinds.len()).collect();
         order.sort_by(|&a, &b| {
             kinds[a]
@@ -584,34 +583,7 @@ fn starts_at_best_minimum(kinds: &[CarrierKind], run: &MultiStartFit) -> usize {
                 .then(parameters[2 * a + 1].total_cmp(&parameters[2 * b + 1]))
         });
         order.iter().flat_map(|&i| [2 * i, 2 * i + 1]).collect()
-    };
-    let best_order = canonical(&best.parameters);
-    let variance = if best.residuals_are_weighted {
-        1.0
-    } else {
-        best.reduced_chi_square
-    };
-    run.outcomes
-        .iter()
-        .filter_map(|outcome| outcome.result.as_ref().ok())
-        .filter(|summary| {
-            if !summary.converged
-                || (summary.chi_square - best.chi_square).abs() > 1e-3 * variance + 1e-12 * best.chi_square
-            {
-                return false;
-            }
-            let order = canonical(&summary.parameters);
-            order.iter().zip(&best_order).all(|(&j, &jb)| {
-                let difference = (summary.parameters[j] - best.parameters[jb]).abs();
-                let error = best.standard_errors[jb];
-                if error.is_finite() && error > 0.0 {
-                    difference <= 0.1 * error
-                } else {
-                    difference <= 1e-6 * best.parameters[jb].abs().max(1.0)
-                }
-            })
-        })
-        .count()
+    })
 }
 
 /// Orders the carriers, computes uncertainties, the curve and the warnings.

@@ -9,6 +9,7 @@ use std::fmt;
 use mobilis_core::fit::FitError;
 use mobilis_core::forward::tensor::CarrierKind;
 use mobilis_core::sweep::SweepError;
+use mobilis_core::tensor_data::TensorDataError;
 
 /// Why `fit_carriers` or `fit_sweep` refuses its input or finds no fit.
 #[derive(Debug, Clone, PartialEq)]
@@ -154,6 +155,27 @@ impl std::error::Error for MultiCarrierError {}
 impl From<SweepError> for MultiCarrierError {
     fn from(error: SweepError) -> Self {
         MultiCarrierError::Sweep(error)
+    }
+}
+
+impl From<TensorDataError> for MultiCarrierError {
+    fn from(error: TensorDataError) -> Self {
+        match error {
+            TensorDataError::NoPoints => MultiCarrierError::NoPoints,
+            TensorDataError::NonFinite { index, column, value } => {
+                MultiCarrierError::NonFinite { index, column, value }
+            }
+            TensorDataError::NonPositiveXx { index, value, .. } => {
+                MultiCarrierError::NonPositiveSigmaXx { index, value }
+            }
+            TensorDataError::InvalidUncertainty { index, column, value } => {
+                MultiCarrierError::InvalidUncertainty { index, column, value }
+            }
+            TensorDataError::MixedUncertainties { with, without } => {
+                MultiCarrierError::MixedUncertainties { with, without }
+            }
+            TensorDataError::NoField { points } => MultiCarrierError::NoField { points },
+        }
     }
 }
 

@@ -57,7 +57,7 @@ pub(super) fn hall_mobility(data: &Data) -> f64 {
         .filter(|&k| data.fields_t[k] != 0.0)
         .min_by(|&a, &b| data.fields_t[a].abs().total_cmp(&data.fields_t[b].abs()))
         .expect("the data have a nonzero field");
-    data.sigma_xy_s[k].abs() / (data.sigma_xx_s[k] * data.fields_t[k].abs())
+    data.xy[k].abs() / (data.xx[k] * data.fields_t[k].abs())
 }
 
 /// The zero-field conductance, approximated by sigma_xx at the smallest |B|.
@@ -65,7 +65,7 @@ fn low_field_conductance(data: &Data) -> f64 {
     let k = (0..data.fields_t.len())
         .min_by(|&a, &b| data.fields_t[a].abs().total_cmp(&data.fields_t[b].abs()))
         .expect("the data are not empty");
-    data.sigma_xx_s[k]
+    data.xx[k]
 }
 
 /// The densities (ln n) that best fit the data for fixed mobilities (see the module
@@ -79,7 +79,7 @@ pub(super) fn densities_for(data: &Data, kinds: &[CarrierKind], mobilities: &[f6
     for (k, &field) in data.fields_t.iter().enumerate() {
         let offset = data.offsets[k];
         let w = &data.whitening[k];
-        w.apply(data.sigma_xx_s[k], data.sigma_xy_s[k], &mut pair);
+        w.apply(data.xx[k], data.xy[k], &mut pair);
         target[offset..offset + w.count()].copy_from_slice(&pair[..w.count()]);
         for (i, (&kind, &mu)) in kinds.iter().zip(mobilities).enumerate() {
             // The tensor of a unit sheet density.

@@ -1,3 +1,5 @@
+//! Tests of the `fit` module: published check values, recovery from forward-generated data, and bad input.
+
 use super::*;
 use crate::linalg::Matrix;
 use crate::noise::Rng;

@@ -1,3 +1,5 @@
+//! Tests of the `sweep` module: published check values, recovery from forward-generated data, and bad input.
+
 use super::*;
 use crate::forward::tensor::{
     resistivity_tensor, symmetric_fields, synthetic_sweep, Carrier, SweepImperfections, SweepNoise,

@@ -1,3 +1,5 @@
+//! Tests of the `freeze_out` module: published check values, recovery from forward-generated data, and bad input.
+
 use super::*;
 use crate::materials::{Material, MaterialOverrides};
 use mobilis_core::forward::statistics::{solve_charge_neutrality, Dopants};

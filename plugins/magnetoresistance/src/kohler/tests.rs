@@ -1,3 +1,5 @@
+//! Tests of the `kohler` module: published check values, recovery from forward-generated data, and bad input.
+
 use super::*;
 use crate::ratio::{magnetoresistance, RatioSettings};
 use mobilis_core::forward::tensor::{symmetric_fields, synthetic_sweep, Carrier, SweepImperfections, SweepNoise};

@@ -1,3 +1,5 @@
+//! Tests of the `two_band` module: published check values, recovery from forward-generated data, and bad input.
+
 use super::*;
 use mobilis_core::fit::{LeastSquares, LmOptions};
 use mobilis_core::forward::tensor::{symmetric_fields, synthetic_sweep, SweepImperfections, SweepNoise};

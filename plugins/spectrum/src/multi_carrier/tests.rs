@@ -1,3 +1,5 @@
+//! Tests of the `multi_carrier` module: published check values, recovery from forward-generated data, and bad input.
+
 use super::*;
 use mobilis_core::forward::tensor::{
     resistivity_tensor, symmetric_fields, synthetic_sweep, SweepImperfections, SweepNoise,

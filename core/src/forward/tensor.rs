@@ -75,6 +75,15 @@ impl CarrierKind {
         }
     }
 
+    /// The kind of a `carrier_type` code, "n" or "p"; the error says what to give instead.
+    pub fn from_code(code: &str) -> Result<CarrierKind, String> {
+        match code {
+            "n" => Ok(CarrierKind::Electron),
+            "p" => Ok(CarrierKind::Hole),
+            other => Err(format!("carrier `{other}` is unknown; use n or p")),
+        }
+    }
+
     /// "electron" or "hole".
     pub fn name(self) -> &'static str {
         match self {

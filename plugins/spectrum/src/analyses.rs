@@ -99,11 +99,7 @@ impl Analysis for MultiCarrierFitAnalysis {
         settings.selection = match (&params.carriers, params.max_carriers) {
             (Some(list), _) => CarrierSelection::Kinds(
                 list.iter()
-                    .map(|kind| match kind.as_str() {
-                        "n" => Ok(CarrierKind::Electron),
-                        "p" => Ok(CarrierKind::Hole),
-                        other => Err(invalid(format!("carrier `{other}` is unknown; use n or p"))),
-                    })
+                    .map(|kind| CarrierKind::from_code(kind).map_err(invalid))
                     .collect::<Result<_, _>>()?,
             ),
             (None, Some(max_carriers)) => CarrierSelection::Automatic { max_carriers },

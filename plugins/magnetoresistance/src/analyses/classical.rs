@@ -399,11 +399,7 @@ impl Analysis for TwoBandAnalysis {
         let sweep = single_sweep(inputs.required("sweep")?)?;
         let mut settings = TwoBandSettings::default();
         if let Some(kinds) = &params.carriers {
-            let parse = |k: &str| match k {
-                "n" => Ok(CarrierKind::Electron),
-                "p" => Ok(CarrierKind::Hole),
-                other => Err(invalid(format!("carrier `{other}` is unknown; use n or p"))),
-            };
+            let parse = |k: &str| CarrierKind::from_code(k).map_err(invalid);
             match kinds.as_slice() {
                 [a, b] => settings.kinds = [parse(a)?, parse(b)?],
                 _ => return Err(invalid("carriers must name exactly two bands, e.g. [\"n\", \"p\"]")),

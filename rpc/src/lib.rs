@@ -11,6 +11,7 @@ pub mod methods;
 pub mod openrpc;
 pub mod param_schema;
 pub mod plugin_host;
+pub mod progress;
 pub mod service;
 pub mod store;
 pub mod tables;

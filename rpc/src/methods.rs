@@ -136,7 +136,42 @@ pub fn module(service: Arc<Service>) -> RpcModule<Service> {
         guarded(|| s.run_pipeline(p))
     });
     module
+        .register_subscription(
+            "progress.subscribe",
+            PROGRESS_NOTIFICATION,
+            "progress.unsubscribe",
+            |params, pending, service, _| async move {
+                let call: CallIdParam = match parse(&params) {
+                    Ok(call) => call,
+                    Err(error) => {
+                        pending.reject(error).await;
+                        return Ok(());
+                    }
+                };
+                let mut events = service.progress_hub.subscribe(&call.call_id);
+                let sink = pending.accept().await?;
+                loop {
+                    tokio::select! {
+                        event = events.recv() => {
+                            let Some(event) = event else { break };
+                            let last = event["kind"] == "end";
+                            sink.send(serde_json::value::to_raw_value(&event)?).await?;
+                            if last {
+                                break;
+                            }
+                        }
+                        _ = sink.closed() => break,
+                    }
+                }
+                Ok(())
+            },
+        )
+        .expect("subscription names are unique");
+    module
 }
+
+/// The method name of the notifications a progress subscription sends.
+pub const PROGRESS_NOTIFICATION: &str = "progress.event";
 
 #[cfg(test)]
 mod tests {

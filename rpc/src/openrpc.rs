@@ -104,7 +104,7 @@ pub const METHODS: &[MethodDoc] = &[
             ("output", true, STRING, "name of the dataset to store the output table in"),
             ("group_by", false, r#"{"anyOf": [{"type": "string"}, {"type": "array", "items": {"type": "string"}}]}"#, "column(s) of the first input to group by"),
             ("overwrite", false, r#"{"type": "boolean", "default": false}"#, "replace an existing output dataset"),
-            ("call_id", false, STRING, "client-chosen id for analysis.cancel and analysis.progress"),
+            ("call_id", false, STRING, "client-chosen id, unique among running calls: the token of its progress (progress.subscribe, analysis.progress) and the handle to cancel it (analysis.cancel)"),
             ("summary_output", false, STRING, "also store the summary as a dataset: one row per group, one column per scalar value"),
         ],
         result: RUN_RESULT,
@@ -124,8 +124,23 @@ pub const METHODS: &[MethodDoc] = &[
     MethodDoc {
         name: "pipeline.run",
         summary: "Runs analysis.run steps in order; a step may name an earlier step's output; every step is checked before the first runs",
-        params: &[("steps", true, r#"{"type": "array", "items": {"type": "object"}, "minItems": 1}"#, "analysis.run parameter objects")],
+        params: &[
+            ("steps", true, r#"{"type": "array", "items": {"type": "object"}, "minItems": 1}"#, "analysis.run parameter objects, without call_id"),
+            ("call_id", false, STRING, "client-chosen id of the whole pipeline: its progress token and the handle to cancel it"),
+        ],
         result: r#"{"type": "object", "properties": {"steps": {"type": "array"}}}"#,
+    },
+    MethodDoc {
+        name: "progress.subscribe",
+        summary: "WebSocket and stdio only: subscribes to the progress of the call with this call_id (subscribe before starting the call). The daemon sends `progress.event` notifications, params {subscription, result: event}, where event is {call_id, kind: \"begin\", title}, then {call_id, kind: \"report\", fraction 0-1, message} at most every 100 ms, then {call_id, kind: \"end\", outcome: \"done\"|\"failed\"|\"cancelled\", message?}, after which the subscription is over. A call that ended recently answers with its end event at once",
+        params: &[("call_id", true, STRING, "the call_id the call will be (or was) given")],
+        result: r#"{"description": "subscription id", "anyOf": [{"type": "integer"}, {"type": "string"}]}"#,
+    },
+    MethodDoc {
+        name: "progress.unsubscribe",
+        summary: "Ends a progress subscription early; params by position: [subscription id]",
+        params: &[("subscription", true, r#"{"anyOf": [{"type": "integer"}, {"type": "string"}]}"#, "the id progress.subscribe returned")],
+        result: r#"{"type": "boolean"}"#,
     },
 ];
 
@@ -152,7 +167,7 @@ pub fn document(service: &Service) -> Value {
             let mut entry = json!({
                 "name": method.name,
                 "summary": method.summary,
-                "paramStructure": "by-name",
+                "paramStructure": if method.name == "progress.unsubscribe" { "by-position" } else { "by-name" },
                 "params": params,
                 "result": { "name": "result", "schema": parse(method.result) },
             });

@@ -5,6 +5,7 @@ use crate::data_roots::DataRoots;
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use crate::param_schema;
 use crate::plugin_host::{CallControl, InvokeFailure, PluginHost};
+use crate::progress::{Outcome, ProgressHub};
 use crate::store::{self, DatasetStore, Provenance};
 use crate::tables::{self, FileFormat, UnitSpec};
 use mobilis_core::abi::{self, ColumnSpec, ColumnType};
@@ -25,6 +26,8 @@ pub struct Service {
     pub roots: DataRoots,
     pub workspace: PathBuf,
     running: Mutex<HashMap<String, Arc<CallControl>>>,
+    /// Progress events of calls that carry a `call_id`, for subscribers.
+    pub progress_hub: Arc<ProgressHub>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -107,6 +110,41 @@ pub struct RunParams {
 #[serde(deny_unknown_fields)]
 pub struct PipelineParams {
     pub steps: Vec<RunParams>,
+    /// Cancels the whole pipeline (`analysis.cancel`) and carries its progress.
+    #[serde(default)]
+    pub call_id: Option<String>,
+}
+
+/// A running call registered under its `call_id`; unregistered, with its end announced,
+/// when dropped, so that no return path can leave a stale entry behind.
+struct RegisteredCall<'a> {
+    service: &'a Service,
+    call_id: Option<String>,
+    control: Arc<CallControl>,
+    outcome: Option<(Outcome, Option<String>)>,
+}
+
+impl Drop for RegisteredCall<'_> {
+    fn drop(&mut self) {
+        if let Some(id) = &self.call_id {
+            self.service.running.lock().expect("running calls").remove(id);
+            let (outcome, message) = self
+                .outcome
+                .take()
+                .unwrap_or((Outcome::Failed, Some("the call stopped unexpectedly".into())));
+            self.service.progress_hub.end(id, outcome, message.as_deref());
+        }
+    }
+}
+
+impl RegisteredCall<'_> {
+    fn finish<T>(&mut self, result: &ServiceResult<T>) {
+        self.outcome = Some(match result {
+            Ok(_) => (Outcome::Done, None),
+            Err(error) if error.kind == ErrorKind::Cancelled => (Outcome::Cancelled, Some(error.message.clone())),
+            Err(error) => (Outcome::Failed, Some(error.message.clone())),
+        });
+    }
 }
 
 fn invoke_error(analysis: &str, failure: InvokeFailure) -> ServiceError {
@@ -354,6 +392,7 @@ impl Service {
             roots,
             workspace,
             running: Mutex::new(HashMap::new()),
+            progress_hub: Arc::new(ProgressHub::default()),
         }
     }
 
@@ -527,6 +566,44 @@ impl Service {
         Ok(json!({ "total_rows": total, "offset": offset, "columns": frame_to_json_columns(&slice) }))
     }
 
+    /// Registers a call under its `call_id` (if any) with progress going to the hub, and
+    /// announces its beginning. Refuses an id that is in use.
+    fn register_call(&self, call_id: Option<&str>, title: &str) -> ServiceResult<RegisteredCall<'_>> {
+        let Some(id) = call_id else {
+            return Ok(RegisteredCall {
+                service: self,
+                call_id: None,
+                control: Arc::new(CallControl::default()),
+                outcome: None,
+            });
+        };
+        if id.is_empty() {
+            return Err(ServiceError::invalid_params("call_id must not be empty"));
+        }
+        let hub = self.progress_hub.clone();
+        let owned_id = id.to_owned();
+        let control = Arc::new(CallControl::with_listener(Box::new(move |fraction, message| {
+            hub.report(&owned_id, fraction, message)
+        })));
+        {
+            let mut running = self.running.lock().expect("running calls");
+            if running.contains_key(id) {
+                return Err(
+                    ServiceError::invalid_params(format!("a call with call_id `{id}` is running already"))
+                        .with_help("choose a call_id that is unique among running calls, for example a UUID"),
+                );
+            }
+            running.insert(id.to_owned(), control.clone());
+        }
+        self.progress_hub.begin(id, title);
+        Ok(RegisteredCall {
+            service: self,
+            call_id: Some(id.to_owned()),
+            control,
+            outcome: None,
+        })
+    }
+
     /// Sets the cancel flag of a running call.
     pub fn cancel(&self, call_id: &str) -> Value {
         let running = self.running.lock().expect("running calls");
@@ -592,6 +669,15 @@ impl Service {
 
     /// Runs one analysis (once per group with `group_by`) and stores its output.
     pub fn run_analysis(&self, run: RunParams) -> ServiceResult<Value> {
+        let title = format!("{} -> {}", run.analysis, run.output);
+        let mut call = self.register_call(run.call_id.as_deref(), &title)?;
+        let result = self.run_analysis_under(run, &call.control);
+        call.finish(&result);
+        result
+    }
+
+    /// [`Self::run_analysis`] under a control the caller owns (a pipeline shares one).
+    fn run_analysis_under(&self, run: RunParams, control: &Arc<CallControl>) -> ServiceResult<Value> {
         store::validate_name(&run.output)?;
         if !run.overwrite && self.store.contains(&run.output) {
             return Err(ServiceError::new(
@@ -632,18 +718,7 @@ impl Service {
         let inputs = self.prepare_inputs(&run)?;
         let group_columns = run.group_by.columns();
 
-        let control = Arc::new(CallControl::default());
-        if let Some(id) = &run.call_id {
-            self.running
-                .lock()
-                .expect("running calls")
-                .insert(id.clone(), control.clone());
-        }
-        let outcome = self.run_groups(&run, &params, &inputs, &group_columns, &control);
-        if let Some(id) = &run.call_id {
-            self.running.lock().expect("running calls").remove(id);
-        }
-        let (table, summary, warnings) = outcome?;
+        let (table, summary, warnings) = self.run_groups(&run, &params, &inputs, &group_columns, control)?;
 
         let plugin = self
             .host
@@ -689,7 +764,9 @@ impl Service {
         group_columns: &[String],
         control: &Arc<CallControl>,
     ) -> ServiceResult<(DataFrame, Value, Vec<String>)> {
+        let whole = control.span();
         if group_columns.is_empty() {
+            control.enter(whole.part(0, 1, ""));
             let result = self
                 .host
                 .invoke(&run.analysis, params, inputs, control)
@@ -703,7 +780,8 @@ impl Service {
         let mut combined: Option<DataFrame> = None;
         let mut group_summaries = Vec::with_capacity(groups.len());
         let mut warnings = Vec::new();
-        for (key, rows) in groups {
+        let group_count = groups.len();
+        for (group_index, (key, rows)) in groups.into_iter().enumerate() {
             if control.cancelled.load(Ordering::Relaxed) {
                 return Err(ServiceError::new(
                     ErrorKind::Cancelled,
@@ -716,6 +794,7 @@ impl Service {
                 .map(|(c, v)| format!("{c}={v}"))
                 .collect();
             let label = label.join(", ");
+            control.enter(whole.part(group_index, group_count, &format!("[{label}]")));
             let mut group_inputs = Vec::with_capacity(inputs.len());
             for (index, (role, frame)) in inputs.iter().enumerate() {
                 let has_keys = group_columns.iter().all(|c| frame.column(c).is_ok());
@@ -798,6 +877,12 @@ impl Service {
             if !self.host.analyses.contains_key(&step.analysis) {
                 return Err(context(self.unknown_analysis(&step.analysis)));
             }
+            if step.call_id.is_some() {
+                return Err(context(
+                    ServiceError::invalid_params("a pipeline step cannot carry its own call_id")
+                        .with_help("give call_id to pipeline.run; it cancels and reports the whole pipeline"),
+                ));
+            }
             store::validate_name(&step.output).map_err(context)?;
             for dataset in step.inputs.values() {
                 if !produced.contains(&dataset.as_str()) && !self.store.contains(dataset) {
@@ -815,10 +900,30 @@ impl Service {
             }
             produced.push(&step.output);
         }
-        let mut results = Vec::with_capacity(pipeline.steps.len());
-        for (index, step) in pipeline.steps.into_iter().enumerate() {
+        let title = format!("pipeline of {} steps", pipeline.steps.len());
+        let mut call = self.register_call(pipeline.call_id.as_deref(), &title)?;
+        let result = self.run_steps(pipeline.steps, &call.control);
+        call.finish(&result);
+        result
+    }
+
+    fn run_steps(&self, steps: Vec<RunParams>, control: &Arc<CallControl>) -> ServiceResult<Value> {
+        let whole = control.span();
+        let count = steps.len();
+        let mut results = Vec::with_capacity(count);
+        for (index, step) in steps.into_iter().enumerate() {
             let analysis = step.analysis.clone();
-            let result = self.run_analysis(step).map_err(|e| {
+            if control.cancelled.load(Ordering::Relaxed) {
+                return Err(ServiceError::new(
+                    ErrorKind::Cancelled,
+                    format!(
+                        "pipeline cancelled by the client before step {} ({analysis})",
+                        index + 1
+                    ),
+                ));
+            }
+            control.enter(whole.part(index, count, &format!("step {} of {count} ({analysis})", index + 1)));
+            let result = self.run_analysis_under(step, control).map_err(|e| {
                 let done: Vec<String> = results
                     .iter()
                     .filter_map(|r: &Value| r["output"].as_str().map(str::to_owned))

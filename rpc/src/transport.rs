@@ -15,6 +15,9 @@ use std::pin::Pin;
 use std::sync::Arc;
 use std::task::{Context, Poll};
 use tokio::io::{AsyncBufReadExt, AsyncReadExt, AsyncWrite, AsyncWriteExt, BufReader};
+use tokio::sync::mpsc::{unbounded_channel, UnboundedSender};
+use tokio::sync::Mutex;
+use tokio::task::JoinSet;
 
 /// Largest request body the HTTP transport accepts (inline imports are the large ones).
 pub const MAX_REQUEST_BYTES: u32 = 64 * 1024 * 1024;
@@ -155,81 +158,154 @@ fn error_response(code: i32, message: &str) -> String {
     serde_json::json!({"jsonrpc": "2.0", "id": null, "error": {"code": code, "message": message}}).to_string()
 }
 
-async fn answer_one<C: Send + Sync + 'static>(module: &RpcModule<C>, request: &serde_json::Value) -> Option<String> {
-    // A notification (no id) gets no response.
+type Notifications = tokio::sync::mpsc::Receiver<Box<serde_json::value::RawValue>>;
+
+/// Answers one request, with the channel of its notifications when it opened a
+/// subscription. A notification (no id) gets no response.
+async fn answer_one<C: Send + Sync + 'static>(
+    module: &RpcModule<C>,
+    request: &serde_json::Value,
+) -> Option<(String, Option<Notifications>)> {
     request.get("id")?;
     match module.raw_json_request(&request.to_string(), 16).await {
-        Ok((response, _notifications)) => Some(response.get().to_owned()),
-        Err(_) => Some(error_response(-32600, "invalid request")),
+        Ok((response, notifications)) => {
+            // Only a subscription keeps its channel open (or has events waiting in it).
+            let open = !(notifications.is_closed() && notifications.is_empty());
+            Some((response.get().to_owned(), open.then_some(notifications)))
+        }
+        Err(_) => Some((error_response(-32600, "invalid request"), None)),
     }
+}
+
+/// Answers a frame's body (one request or a batch) and then forwards the notifications of
+/// any subscription it opened, so that a client learns a subscription's id before its events.
+async fn answer_body<C: Send + Sync + 'static>(
+    module: &RpcModule<C>,
+    body: &[u8],
+    output: &UnboundedSender<String>,
+    forwarders: &Mutex<JoinSet<()>>,
+) {
+    let parsed: serde_json::Value = match serde_json::from_slice(body) {
+        Ok(value) => value,
+        Err(_) => {
+            let _ = output.send(error_response(-32700, "parse error: the body is not JSON"));
+            return;
+        }
+    };
+    let mut subscriptions = Vec::new();
+    let reply = match &parsed {
+        serde_json::Value::Array(batch) => {
+            let mut answers = Vec::new();
+            for request in batch {
+                if let Some((answer, notifications)) = answer_one(module, request).await {
+                    answers.push(answer);
+                    subscriptions.extend(notifications);
+                }
+            }
+            (!answers.is_empty()).then(|| format!("[{}]", answers.join(",")))
+        }
+        request => answer_one(module, request).await.map(|(answer, notifications)| {
+            subscriptions.extend(notifications);
+            answer
+        }),
+    };
+    if let Some(reply) = reply {
+        let _ = output.send(reply);
+    }
+    if subscriptions.is_empty() {
+        return;
+    }
+    let mut forwarders = forwarders.lock().await;
+    while forwarders.try_join_next().is_some() {}
+    for mut notifications in subscriptions {
+        let output = output.clone();
+        forwarders.spawn(async move {
+            while let Some(notification) = notifications.recv().await {
+                if output.send(notification.get().to_owned()).is_err() {
+                    break;
+                }
+            }
+        });
+    }
+}
+
+/// What the reader found next on stdin.
+enum Frame {
+    Body(Vec<u8>),
+    /// A frame the reader could not take; the text is the error response to send.
+    Refused(String),
+    End,
+}
+
+async fn read_frame(input: &mut (impl AsyncBufReadExt + Unpin)) -> std::io::Result<Frame> {
+    let mut content_length: Option<usize> = None;
+    loop {
+        let mut line = String::new();
+        if input.read_line(&mut line).await? == 0 {
+            return Ok(Frame::End);
+        }
+        let line = line.trim_end_matches(['\r', '\n']);
+        if line.is_empty() {
+            break;
+        }
+        if let Some((name, value)) = line.split_once(':') {
+            if name.trim().eq_ignore_ascii_case("content-length") {
+                content_length = value.trim().parse().ok();
+            }
+        }
+    }
+    let Some(length) = content_length else {
+        return Ok(Frame::Refused(error_response(-32700, "missing Content-Length header")));
+    };
+    if length > MAX_STDIO_FRAME_BYTES {
+        // Skip the body so the stream stays in step, then refuse.
+        tokio::io::copy(&mut input.take(length as u64), &mut tokio::io::sink()).await?;
+        return Ok(Frame::Refused(error_response(
+            -32600,
+            &format!("message of {length} bytes exceeds {MAX_STDIO_FRAME_BYTES}"),
+        )));
+    }
+    let mut body = vec![0u8; length];
+    input.read_exact(&mut body).await?;
+    Ok(Frame::Body(body))
 }
 
 /// Serves JSON-RPC over stdin and stdout until stdin closes. Each message is
 /// `Content-Length: N\r\n\r\n` followed by N bytes of JSON; batches are answered as batches.
+///
+/// Requests are handled concurrently, as over a WebSocket: an editor can subscribe to a
+/// call's progress, start the call and cancel it while it runs. Responses and notifications
+/// share stdout through one writer so that frames never interleave. When stdin closes, the
+/// requests in flight are answered before the daemon exits.
 pub async fn serve_stdio<C: Send + Sync + 'static>(module: RpcModule<C>) -> std::io::Result<()> {
+    let module = Arc::new(module);
+    let (output, mut outgoing) = unbounded_channel::<String>();
+    let writer = tokio::spawn(async move {
+        let mut stdout = tokio::io::stdout();
+        while let Some(body) = outgoing.recv().await {
+            write_frame(&mut stdout, &body).await?;
+        }
+        Ok::<_, std::io::Error>(())
+    });
+    let forwarders = Arc::new(Mutex::new(JoinSet::new()));
+    let mut requests = JoinSet::new();
     let mut input = BufReader::new(tokio::io::stdin());
-    let mut output = tokio::io::stdout();
     loop {
-        let mut content_length: Option<usize> = None;
-        loop {
-            let mut line = String::new();
-            if input.read_line(&mut line).await? == 0 {
-                return Ok(());
+        match read_frame(&mut input).await? {
+            Frame::End => break,
+            Frame::Refused(reply) => {
+                let _ = output.send(reply);
             }
-            let line = line.trim_end_matches(['\r', '\n']);
-            if line.is_empty() {
-                break;
+            Frame::Body(body) => {
+                while requests.try_join_next().is_some() {}
+                let (module, output, forwarders) = (module.clone(), output.clone(), forwarders.clone());
+                requests.spawn(async move { answer_body(&module, &body, &output, &forwarders).await });
             }
-            if let Some((name, value)) = line.split_once(':') {
-                if name.trim().eq_ignore_ascii_case("content-length") {
-                    content_length = value.trim().parse().ok();
-                }
-            }
-        }
-        let Some(length) = content_length else {
-            write_frame(&mut output, &error_response(-32700, "missing Content-Length header")).await?;
-            continue;
-        };
-        if length > MAX_STDIO_FRAME_BYTES {
-            // Skip the body so the stream stays in step, then refuse.
-            tokio::io::copy(&mut (&mut input).take(length as u64), &mut tokio::io::sink()).await?;
-            write_frame(
-                &mut output,
-                &error_response(
-                    -32600,
-                    &format!("message of {length} bytes exceeds {MAX_STDIO_FRAME_BYTES}"),
-                ),
-            )
-            .await?;
-            continue;
-        }
-        let mut body = vec![0u8; length];
-        input.read_exact(&mut body).await?;
-        let parsed: serde_json::Value = match serde_json::from_slice(&body) {
-            Ok(value) => value,
-            Err(_) => {
-                write_frame(
-                    &mut output,
-                    &error_response(-32700, "parse error: the body is not JSON"),
-                )
-                .await?;
-                continue;
-            }
-        };
-        let reply = match &parsed {
-            serde_json::Value::Array(batch) => {
-                let mut answers = Vec::new();
-                for request in batch {
-                    if let Some(answer) = answer_one(&module, request).await {
-                        answers.push(answer);
-                    }
-                }
-                (!answers.is_empty()).then(|| format!("[{}]", answers.join(",")))
-            }
-            request => answer_one(&module, request).await,
-        };
-        if let Some(reply) = reply {
-            write_frame(&mut output, &reply).await?;
         }
     }
+    while requests.join_next().await.is_some() {}
+    // Subscriptions still waiting for events end with the session.
+    forwarders.lock().await.abort_all();
+    drop(output);
+    writer.await.map_err(std::io::Error::other)?
 }

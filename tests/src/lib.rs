@@ -68,6 +68,24 @@ pub fn plugin_library(lib_name: &str) -> PathBuf {
     ))
 }
 
+/// A temporary directory holding the Rust fixture plugin (as a link to the built library,
+/// which is large in a debug build) and nothing else.
+pub fn fixture_plugin_dir() -> tempfile::TempDir {
+    let library = plugin_library("test_fixture_plugin");
+    assert!(
+        library.is_file(),
+        "{} was not built; is tests/fixture-plugin a workspace member?",
+        library.display()
+    );
+    let dir = tempfile::tempdir().expect("temporary directory");
+    let link = dir.path().join(library.file_name().expect("a file name"));
+    #[cfg(unix)]
+    std::os::unix::fs::symlink(&library, &link).expect("link the fixture plugin");
+    #[cfg(not(unix))]
+    std::fs::copy(&library, &link).expect("copy the fixture plugin");
+    dir
+}
+
 /// A daemon for one test, with its own workspace and data directory.
 pub struct TestDaemon {
     pub daemon: Daemon,

@@ -14,7 +14,7 @@
 use mobilis_client::{Client, ClientError};
 use mobilis_core::abi;
 use mobilis_rpc::plugin_host::{CallControl, PluginHost};
-use mobilis_tests::{float_column, plugin_library, workspace_root, TestDaemon};
+use mobilis_tests::{fixture_plugin_dir, float_column, plugin_library, workspace_root, TestDaemon};
 use polars::prelude::{Column, DataFrame};
 use serde_json::{json, Value};
 use std::path::{Path, PathBuf};
@@ -91,24 +91,6 @@ fn build_c_plugin(dir: &Path, name: &str, defines: &[(&str, Option<&str>)]) -> P
         String::from_utf8_lossy(&output.stderr)
     );
     library
-}
-
-/// A temporary directory holding the Rust fixture plugin (as a link to the built library,
-/// which is large in a debug build) and nothing else.
-fn fixture_plugin_dir() -> tempfile::TempDir {
-    let library = plugin_library("test_fixture_plugin");
-    assert!(
-        library.is_file(),
-        "{} was not built; is tests/fixture-plugin a workspace member?",
-        library.display()
-    );
-    let dir = tempfile::tempdir().expect("temporary directory");
-    let link = dir.path().join(library.file_name().expect("a file name"));
-    #[cfg(unix)]
-    std::os::unix::fs::symlink(&library, &link).expect("link the fixture plugin");
-    #[cfg(not(unix))]
-    std::fs::copy(&library, &link).expect("copy the fixture plugin");
-    dir
 }
 
 /// A daemon loading the plugins of `dir` only.
@@ -504,4 +486,65 @@ fn the_c_plugin_refuses_unusable_tables_itself() {
     assert_eq!(success.table.column("count").unwrap().i64().unwrap().get(0), Some(2));
     // Dropping the table runs the plugin's release callbacks.
     drop(success);
+}
+
+#[tokio::test(flavor = "multi_thread")]
+async fn a_pipeline_pushes_its_progress_over_websocket_step_by_step() {
+    let dir = fixture_plugin_dir();
+    let daemon = daemon_with_plugins(dir.path()).await;
+    let steps = json!([
+        {"analysis": "fixture.wait", "inputs": {}, "params": {"seconds": 0.5}, "output": "first"},
+        {"analysis": "fixture.wait", "inputs": {}, "params": {"seconds": 0.5}, "output": "second"}
+    ]);
+    let mut events = Vec::new();
+    let result = daemon
+        .client
+        .call_with_progress("pipeline.run", json!({"steps": steps}), |event| {
+            events.push(event.clone())
+        })
+        .await
+        .expect("the pipeline runs");
+    assert_eq!(result["steps"].as_array().map(Vec::len), Some(2));
+
+    use mobilis_client::ProgressEvent;
+    assert!(
+        matches!(&events[0], ProgressEvent::Begin { title } if title.contains("2 steps")),
+        "{events:?}"
+    );
+    assert!(
+        matches!(events.last(), Some(ProgressEvent::End { outcome, .. }) if outcome == "done"),
+        "{events:?}"
+    );
+    let reports: Vec<(f64, &str)> = events
+        .iter()
+        .filter_map(|e| match e {
+            ProgressEvent::Report { fraction, message } => Some((*fraction, message.as_str())),
+            _ => None,
+        })
+        .collect();
+    assert!(
+        reports.windows(2).all(|w| w[0].0 <= w[1].0),
+        "fractions never go back: {reports:?}"
+    );
+    // Each step covers its half of the whole, and says which step it is.
+    let first = reports
+        .iter()
+        .filter(|(_, m)| m.starts_with("step 1 of 2 (fixture.wait)"));
+    let second: Vec<_> = reports
+        .iter()
+        .filter(|(_, m)| m.starts_with("step 2 of 2 (fixture.wait)"))
+        .collect();
+    assert!(first.clone().all(|(f, _)| *f <= 0.5), "{reports:?}");
+    assert!(first.count() >= 1 && !second.is_empty(), "{reports:?}");
+    assert!(second.iter().all(|(f, _)| *f >= 0.5), "{reports:?}");
+
+    // A call_id inside a step is refused with what to do instead; a running id is refused too.
+    let (code, message) = daemon
+        .call_error(
+            "pipeline.run",
+            json!({"steps": [{"analysis": "fixture.wait", "inputs": {}, "output": "x", "call_id": "inner"}]}),
+        )
+        .await;
+    assert_eq!(code, 4001, "{message}");
+    assert!(message.contains("cannot carry its own call_id"), "{message}");
 }

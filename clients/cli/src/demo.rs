@@ -3,6 +3,7 @@
 //! results per sample and temperature in the trade's units beside the invented truth.
 
 use crate::pipeline_file;
+use crate::progress_bar::{ProgressBar, ProgressMode};
 use crate::table::format_number;
 use anyhow::{bail, Context};
 use mobilis_client::{Client, Daemon, DaemonOptions};
@@ -14,7 +15,7 @@ fn default_data_directory() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../../demo-data")
 }
 
-pub async fn run(data: Option<PathBuf>, workspace: Option<PathBuf>) -> anyhow::Result<()> {
+pub async fn run(data: Option<PathBuf>, workspace: Option<PathBuf>, progress: ProgressMode) -> anyhow::Result<()> {
     let data = data.unwrap_or_else(default_data_directory);
     let data = data
         .canonicalize()
@@ -33,7 +34,7 @@ pub async fn run(data: Option<PathBuf>, workspace: Option<PathBuf>) -> anyhow::R
         working_directory: Some(data.clone()),
         ..DaemonOptions::default()
     })?;
-    let outcome = run_with_daemon(&daemon, &data).await;
+    let outcome = run_with_daemon(&daemon, &data, progress).await;
     daemon.stop();
     if std::env::temp_dir().join(format!("mobilis-demo-{}", std::process::id())) == workspace {
         let _ = std::fs::remove_dir_all(&workspace);
@@ -41,7 +42,7 @@ pub async fn run(data: Option<PathBuf>, workspace: Option<PathBuf>) -> anyhow::R
     outcome
 }
 
-async fn run_with_daemon(daemon: &Daemon, data: &std::path::Path) -> anyhow::Result<()> {
+async fn run_with_daemon(daemon: &Daemon, data: &std::path::Path, progress: ProgressMode) -> anyhow::Result<()> {
     let client = Client::connect(daemon.url(), None).await?;
     let info = client.call("server.info", json!({})).await?;
     println!(
@@ -61,7 +62,9 @@ async fn run_with_daemon(daemon: &Daemon, data: &std::path::Path) -> anyhow::Res
     }
     println!();
     println!("Demo data (invented): {}", data.display());
-    let steps = pipeline_file::run(&client, &data.join("pipeline.toml")).await?;
+    let mut bar = ProgressBar::new(progress);
+    let steps = pipeline_file::run(&client, &data.join("pipeline.toml"), |event| bar.update(event)).await?;
+    drop(bar);
     for step in steps.as_array().into_iter().flatten() {
         println!(
             "  step -> {} ({} rows)",

@@ -6,11 +6,13 @@
 
 mod demo;
 mod pipeline_file;
+mod progress_bar;
 mod table;
 
 use anyhow::{bail, Context};
 use clap::{Parser, Subcommand};
 use mobilis_client::Client;
+use progress_bar::{ProgressBar, ProgressMode};
 use serde_json::{json, Value};
 use std::path::{Path, PathBuf};
 
@@ -24,6 +26,9 @@ struct Cli {
     /// Bearer token, for a daemon started with --token.
     #[arg(long, global = true, env = "MOBILIS_TOKEN", hide_env_values = true)]
     token: Option<String>,
+    /// When to draw a progress bar for analyses and pipelines: auto draws it when stderr is a terminal.
+    #[arg(long, global = true, value_enum, default_value = "auto")]
+    progress: ProgressMode,
     #[command(subcommand)]
     command: Command,
 }
@@ -152,7 +157,7 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             }
             Ok(())
         }
-        Command::Demo { data, workspace } => demo::run(data.clone(), workspace.clone()).await,
+        Command::Demo { data, workspace } => demo::run(data.clone(), workspace.clone(), cli.progress).await,
         Command::Info => print_json(&connect(&cli).await?.call("server.info", json!({})).await?),
         Command::Analyses => {
             let list = connect(&cli).await?.call("analysis.list", json!({})).await?;
@@ -210,13 +215,20 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
                 "analysis": analysis, "inputs": inputs, "params": params, "output": output,
                 "group_by": group_by, "overwrite": overwrite,
             });
-            let result = connect(&cli).await?.call("analysis.run", request).await?;
+            let mut bar = ProgressBar::new(cli.progress);
+            let result = connect(&cli)
+                .await?
+                .call_with_progress("analysis.run", request, |event| bar.update(event))
+                .await?;
+            drop(bar);
             print_run_result(&result);
             Ok(())
         }
         Command::Pipeline { file } => {
             let client = connect(&cli).await?;
-            let results = pipeline_file::run(&client, file).await?;
+            let mut bar = ProgressBar::new(cli.progress);
+            let results = pipeline_file::run(&client, file, |event| bar.update(event)).await?;
+            drop(bar);
             for result in results.as_array().into_iter().flatten() {
                 print_run_result(result);
             }

@@ -56,8 +56,13 @@ pub fn load(file: &Path) -> anyhow::Result<PipelineFile> {
     Ok(pipeline)
 }
 
-/// Imports the file's datasets, then runs its steps; returns the step results.
-pub async fn run(client: &Client, file: &Path) -> anyhow::Result<Value> {
+/// Imports the file's datasets, then runs its steps, handing the pipeline's progress to
+/// `on_progress`; returns the step results.
+pub async fn run(
+    client: &Client,
+    file: &Path,
+    on_progress: impl FnMut(&mobilis_client::ProgressEvent),
+) -> anyhow::Result<Value> {
     let pipeline = load(file)?;
     let base = file.canonicalize()?.parent().map(Path::to_owned).unwrap_or_default();
     for import in &pipeline.imports {
@@ -82,6 +87,8 @@ pub async fn run(client: &Client, file: &Path) -> anyhow::Result<Value> {
             value
         })
         .collect();
-    let result = client.call("pipeline.run", json!({ "steps": steps })).await?;
+    let result = client
+        .call_with_progress("pipeline.run", json!({ "steps": steps }), on_progress)
+        .await?;
     Ok(result["steps"].clone())
 }

@@ -10,7 +10,7 @@
 //! # Ok(()) }
 //! ```
 
-use jsonrpsee::core::client::ClientT;
+use jsonrpsee::core::client::{ClientT, SubscriptionClientT};
 use jsonrpsee::core::params::{ArrayParams, ObjectParams};
 use jsonrpsee_ws_client::{WsClient, WsClientBuilder};
 use serde_json::Value;
@@ -119,6 +119,130 @@ impl Client {
             },
             other => ClientError::Transport(other.to_string()),
         })
+    }
+
+    /// Subscribes to the progress of the call that is (or will be) given `call_id`.
+    /// Subscribe before starting the call; a call that ended recently yields its end at once.
+    pub async fn subscribe_progress(&self, call_id: &str) -> Result<ProgressEvents, ClientError> {
+        let mut params = ObjectParams::new();
+        params
+            .insert("call_id", call_id)
+            .map_err(|e| ClientError::Transport(e.to_string()))?;
+        let inner = self
+            .inner
+            .subscribe::<Value, _>("progress.subscribe", params, "progress.unsubscribe")
+            .await
+            .map_err(|e| ClientError::Transport(format!("cannot subscribe to progress: {e}")))?;
+        Ok(ProgressEvents { inner })
+    }
+
+    /// Calls `method` (analysis.run or pipeline.run) with a `call_id` (the one in `params`,
+    /// else a new one) and hands each progress event to `on_event` while it runs.
+    pub async fn call_with_progress(
+        &self,
+        method: &str,
+        mut params: Value,
+        mut on_event: impl FnMut(&ProgressEvent),
+    ) -> Result<Value, ClientError> {
+        let call_id = match params.get("call_id").and_then(Value::as_str) {
+            Some(id) => id.to_owned(),
+            None => {
+                let id = new_call_id();
+                if let Some(map) = params.as_object_mut() {
+                    map.insert("call_id".into(), Value::String(id.clone()));
+                }
+                id
+            }
+        };
+        let mut events = self.subscribe_progress(&call_id).await?;
+        let call = self.call(method, params);
+        tokio::pin!(call);
+        let mut events_open = true;
+        loop {
+            tokio::select! {
+                result = &mut call => {
+                    // Hand over what arrived before the answer, ending with the end event.
+                    while events_open {
+                        match tokio::time::timeout(Duration::from_millis(500), events.next()).await {
+                            Ok(Some(event)) => {
+                                events_open = !matches!(event, ProgressEvent::End { .. });
+                                on_event(&event);
+                            }
+                            _ => events_open = false,
+                        }
+                    }
+                    return result;
+                }
+                event = events.next(), if events_open => match event {
+                    Some(event) => {
+                        events_open = !matches!(event, ProgressEvent::End { .. });
+                        on_event(&event);
+                    }
+                    None => events_open = false,
+                },
+            }
+        }
+    }
+}
+
+/// A call id unique to this process and moment, for calls whose caller gave none.
+pub fn new_call_id() -> String {
+    use std::sync::atomic::{AtomicU64, Ordering};
+    static COUNTER: AtomicU64 = AtomicU64::new(0);
+    let nanos = std::time::SystemTime::now()
+        .duration_since(std::time::UNIX_EPOCH)
+        .map(|d| d.as_nanos())
+        .unwrap_or(0);
+    format!(
+        "rust-{}-{nanos}-{}",
+        std::process::id(),
+        COUNTER.fetch_add(1, Ordering::Relaxed)
+    )
+}
+
+/// One progress event of a call (see `progress.subscribe` in the OpenRPC document).
+#[derive(Debug, Clone, PartialEq)]
+pub enum ProgressEvent {
+    Begin { title: String },
+    Report { fraction: f64, message: String },
+    End { outcome: String, message: Option<String> },
+}
+
+impl ProgressEvent {
+    /// Reads an event as the daemon sends it; `None` for a shape this client does not know.
+    pub fn from_json(event: &Value) -> Option<ProgressEvent> {
+        let text = |key: &str| event.get(key).and_then(Value::as_str).map(str::to_owned);
+        match event.get("kind")?.as_str()? {
+            "begin" => Some(ProgressEvent::Begin {
+                title: text("title").unwrap_or_default(),
+            }),
+            "report" => Some(ProgressEvent::Report {
+                fraction: event.get("fraction")?.as_f64()?,
+                message: text("message").unwrap_or_default(),
+            }),
+            "end" => Some(ProgressEvent::End {
+                outcome: text("outcome")?,
+                message: text("message"),
+            }),
+            _ => None,
+        }
+    }
+}
+
+/// The progress events of one call, ending after its end event.
+pub struct ProgressEvents {
+    inner: jsonrpsee::core::client::Subscription<Value>,
+}
+
+impl ProgressEvents {
+    /// The next event; `None` once the subscription is over.
+    pub async fn next(&mut self) -> Option<ProgressEvent> {
+        loop {
+            let event = self.inner.next().await?.ok()?;
+            if let Some(event) = ProgressEvent::from_json(&event) {
+                return Some(event);
+            }
+        }
     }
 }
 

@@ -770,6 +770,21 @@ impl Display {
     }
 }
 
+/// Formats a number with four significant digits, switching to exponent form outside
+/// 1e-3..1e5 where fixed notation would hide the digits.
+pub fn format_number(value: f64) -> String {
+    if value == 0.0 {
+        return "0".into();
+    }
+    let magnitude = value.abs();
+    if (1e-3..1e5).contains(&magnitude) {
+        let decimals = (3 - magnitude.log10().floor() as i32).max(0) as usize;
+        format!("{value:.decimals$}")
+    } else {
+        format!("{value:.3e}")
+    }
+}
+
 /// SI suffix, displayed suffix and displayed unit; longer suffixes first, so that `_ohm_m` is
 /// not taken for `_m` nor `_m2_per_Vs` for anything shorter.
 static DISPLAYS: &[(&str, &str, Unit)] = &[

@@ -58,6 +58,19 @@ struct AnalysisParam {
 
 #[derive(Deserialize)]
 #[serde(deny_unknown_fields)]
+struct SampleParam {
+    sample: String,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct DatasetOption {
+    #[serde(default)]
+    dataset: Option<String>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
 struct CallIdParam {
     call_id: String,
 }
@@ -134,6 +147,21 @@ pub fn module(service: Arc<Service>) -> RpcModule<Service> {
     register(&mut module, "pipeline.run", true, |p, s| {
         let p: PipelineParams = parse(p)?;
         guarded(|| s.run_pipeline(p))
+    });
+    register(&mut module, "plot.render", true, |p, s| {
+        let p: serde_json::Map<String, Value> = parse(p)?;
+        guarded(|| s.plot_render(p))
+    });
+    register(&mut module, "report.samples", false, |_, s| {
+        guarded(|| Ok(s.report_samples()))
+    });
+    register(&mut module, "report.render", true, |p, s| {
+        let p: SampleParam = parse(p)?;
+        guarded(|| s.report_render(&p.sample))
+    });
+    register(&mut module, "plot.kinds", false, |p, s| {
+        let p: DatasetOption = parse(p)?;
+        guarded(|| s.plot_kinds(p.dataset.as_deref()))
     });
     module
         .register_subscription(

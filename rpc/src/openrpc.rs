@@ -131,6 +131,45 @@ pub const METHODS: &[MethodDoc] = &[
         result: r#"{"type": "object", "properties": {"steps": {"type": "array"}}}"#,
     },
     MethodDoc {
+        name: "plot.render",
+        summary: "Draws a stored dataset: SVG drawn by the daemon and the same figure as a Vega-Lite v5 specification. Without `kind`, the figure suits the analysis that produced the dataset (see plot.kinds); axes in the customary units of the trade, uncertainties as error bars",
+        params: &[
+            ("dataset", true, STRING, "dataset name"),
+            ("kind", false, STRING, "a kind from plot.kinds; default: the first kind for the analysis that made the dataset, else `columns`"),
+            ("filter", false, r#"{"type": "object", "additionalProperties": {"type": ["string", "number", "boolean"]}}"#, "keep rows whose columns equal these values, for example {\"sample\": \"W1\"}"),
+            ("format", false, r#"{"type": "string", "enum": ["svg", "vega-lite", "both"], "default": "both"}"#, "which renderings to return"),
+            ("x", false, STRING, "x column, for kind `columns`"),
+            ("y", false, r#"{"type": "array", "items": {"type": "string"}}"#, "y column(s), for kind `columns`"),
+            ("y_error", false, r#"{"type": "array", "items": {"type": "string"}}"#, "1-sigma uncertainty column per y column, for kind `columns`"),
+            ("series_by", false, r#"{"type": "array", "items": {"type": "string"}}"#, "columns whose value combinations become separate series"),
+            ("log_x", false, r#"{"type": "boolean"}"#, "override the kind's choice of a logarithmic x axis"),
+            ("log_y", false, r#"{"type": "boolean"}"#, "override the kind's choice of a logarithmic y axis"),
+            ("title", false, STRING, "figure title"),
+            ("width", false, r#"{"type": "number", "exclusiveMinimum": 0}"#, "width in pixels"),
+            ("height", false, r#"{"type": "number", "exclusiveMinimum": 0}"#, "height in pixels"),
+            ("analysis", false, STRING, "draw as if the dataset came from this analysis (default: its provenance)"),
+        ],
+        result: r#"{"type": "object", "required": ["dataset", "kind", "title"], "properties": {"dataset": {"type": "string"}, "kind": {"type": "string"}, "title": {"type": "string"}, "svg": {"type": "string"}, "vega_lite": {"type": "object"}}}"#,
+    },
+    MethodDoc {
+        name: "plot.kinds",
+        summary: "The figures plot.render can draw, each with the analyses whose outputs it draws; with `dataset`, only those that apply to it",
+        params: &[("dataset", false, STRING, "dataset name")],
+        result: ARRAY,
+    },
+    MethodDoc {
+        name: "report.samples",
+        summary: "Every sample named in a `sample` column of a stored dataset, with the datasets that hold it",
+        params: &[],
+        result: r#"{"type": "array", "items": {"type": "object", "required": ["sample", "datasets"], "properties": {"sample": {"type": "string"}, "datasets": {"type": "array", "items": {"type": "string"}}}}}"#,
+    },
+    MethodDoc {
+        name: "report.render",
+        summary: "One self-contained HTML page for a sample: every dataset holding it, in the order the work went, with figures (inline SVG), tables in customary units, quality flags, and provenance (source files, analyses, parameters, plugin and daemon versions)",
+        params: &[("sample", true, STRING, "the sample's name, as in the `sample` column")],
+        result: r#"{"type": "object", "required": ["sample", "datasets", "figures", "html"], "properties": {"sample": {"type": "string"}, "datasets": {"type": "array", "items": {"type": "string"}}, "figures": {"type": "integer"}, "html": {"type": "string"}}}"#,
+    },
+    MethodDoc {
         name: "progress.subscribe",
         summary: "WebSocket and stdio only: subscribes to the progress of the call with this call_id (subscribe before starting the call). The daemon sends `progress.event` notifications, params {subscription, result: event}, where event is {call_id, kind: \"begin\", title}, then {call_id, kind: \"report\", fraction 0-1, message} at most every 100 ms, then {call_id, kind: \"end\", outcome: \"done\"|\"failed\"|\"cancelled\", message?}, after which the subscription is over. A call that ended recently answers with its end event at once",
         params: &[("call_id", true, STRING, "the call_id the call will be (or was) given")],
@@ -173,7 +212,7 @@ pub fn document(service: &Service) -> Value {
             });
             if !matches!(
                 method.name,
-                "rpc.discover" | "server.info" | "plugin.list" | "analysis.list" | "dataset.list"
+                "rpc.discover" | "server.info" | "plugin.list" | "analysis.list" | "dataset.list" | "report.samples"
             ) {
                 entry["errors"] = Value::Array(errors.clone());
             }

@@ -105,6 +105,40 @@ enum Command {
         #[arg(default_value = "{}")]
         params: String,
     },
+    /// Draw a dataset: an SVG file, and with --vega-lite the same figure as a Vega-Lite specification.
+    Plot {
+        dataset: String,
+        /// Figure kind (see `mobilis plot --list`); default: the one that suits the analysis that made the dataset.
+        #[arg(long)]
+        kind: Option<String>,
+        /// Keep only rows where column=value (repeatable), e.g. --where sample=W1.
+        #[arg(long = "where", value_parser = parse_key_value)]
+        filter: Vec<(String, String)>,
+        /// x column, for kind `columns`.
+        #[arg(long)]
+        x: Option<String>,
+        /// y column (repeatable), for kind `columns`.
+        #[arg(long)]
+        y: Vec<String>,
+        /// SVG file to write (default: <dataset>[-<kind>].svg).
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Also write the Vega-Lite specification to this file.
+        #[arg(long = "vega-lite")]
+        vega_lite: Option<PathBuf>,
+        /// List the figure kinds (of this dataset) instead of drawing.
+        #[arg(long)]
+        list: bool,
+    },
+    /// Write one self-contained HTML report per sample (figures, tables, quality flags, provenance).
+    Report {
+        /// Directory to write <sample>.html into.
+        #[arg(long, default_value = "reports")]
+        out: PathBuf,
+        /// Only these samples (repeatable); default: every sample with data.
+        #[arg(long)]
+        sample: Vec<String>,
+    },
     /// Run the demo: a real daemon, the plugins loaded dynamically, the invented demo data.
     Demo {
         /// The demo-data directory (default: the one in the source tree).
@@ -271,10 +305,119 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             );
             Ok(())
         }
+        Command::Plot {
+            dataset,
+            kind,
+            filter,
+            x,
+            y,
+            out,
+            vega_lite,
+            list,
+        } => {
+            let client = connect(&cli).await?;
+            if *list {
+                let kinds = client.call("plot.kinds", json!({ "dataset": dataset })).await?;
+                for kind in kinds.as_array().into_iter().flatten() {
+                    println!(
+                        "{:<28} {}",
+                        kind["name"].as_str().unwrap_or(""),
+                        kind["description"].as_str().unwrap_or("")
+                    );
+                }
+                return Ok(());
+            }
+            let filter: serde_json::Map<String, Value> = filter
+                .iter()
+                .map(|(column, value)| (column.clone(), filter_value(value)))
+                .collect();
+            let mut params = json!({ "dataset": dataset, "filter": filter });
+            if let Some(kind) = kind {
+                params["kind"] = json!(kind);
+            }
+            if let Some(x) = x {
+                params["x"] = json!(x);
+            }
+            if !y.is_empty() {
+                params["y"] = json!(y);
+            }
+            let figure = client.call("plot.render", params).await?;
+            let kind = figure["kind"].as_str().unwrap_or("plot");
+            let out = out
+                .clone()
+                .unwrap_or_else(|| PathBuf::from(format!("{dataset}-{kind}.svg")));
+            std::fs::write(&out, figure["svg"].as_str().unwrap_or(""))
+                .with_context(|| format!("cannot write {}", out.display()))?;
+            println!("wrote {} ({kind})", out.display());
+            if let Some(path) = vega_lite {
+                std::fs::write(path, serde_json::to_string_pretty(&figure["vega_lite"])?)
+                    .with_context(|| format!("cannot write {}", path.display()))?;
+                println!("wrote {}", path.display());
+            }
+            Ok(())
+        }
+        Command::Report { out, sample } => {
+            let client = connect(&cli).await?;
+            let samples: Vec<String> = if sample.is_empty() {
+                let known = client.call("report.samples", json!({})).await?;
+                known
+                    .as_array()
+                    .into_iter()
+                    .flatten()
+                    .filter_map(|s| s["sample"].as_str().map(str::to_owned))
+                    .collect()
+            } else {
+                sample.clone()
+            };
+            if samples.is_empty() {
+                bail!("no stored dataset has a `sample` column; import data first (mobilis import, mobilis pipeline)");
+            }
+            std::fs::create_dir_all(out).with_context(|| format!("cannot create {}", out.display()))?;
+            for sample in &samples {
+                let page = client.call("report.render", json!({ "sample": sample })).await?;
+                let path = out.join(format!("{}.html", file_stem(sample)));
+                std::fs::write(&path, page["html"].as_str().unwrap_or(""))
+                    .with_context(|| format!("cannot write {}", path.display()))?;
+                println!(
+                    "wrote {} ({} datasets, {} figures)",
+                    path.display(),
+                    page["datasets"].as_array().map_or(0, Vec::len),
+                    page["figures"]
+                );
+            }
+            Ok(())
+        }
         Command::Call { method, params } => {
             let params: Value = serde_json::from_str(params).context("parameters must be JSON")?;
             print_json(&connect(&cli).await?.call(method, params).await?)
         }
+    }
+}
+
+/// A `--where` value: a number when it reads as one, else text.
+fn filter_value(text: &str) -> Value {
+    match text.parse::<f64>() {
+        Ok(number) if number.is_finite() => json!(number),
+        _ => json!(text),
+    }
+}
+
+/// A sample name made safe as a file name: anything but letters, digits, `-`, `_` and `.` becomes `_`.
+fn file_stem(sample: &str) -> String {
+    let stem: String = sample
+        .chars()
+        .map(|c| {
+            if c.is_ascii_alphanumeric() || "-_.".contains(c) {
+                c
+            } else {
+                '_'
+            }
+        })
+        .collect();
+    if stem.is_empty() || stem.starts_with('.') {
+        format!("sample{stem}")
+    } else {
+        stem
     }
 }
 

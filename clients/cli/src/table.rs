@@ -1,22 +1,8 @@
 //! Plain-text tables of dataset pages, in the customary units of the trade.
 
 use mobilis_core::units::customary_display;
+pub use mobilis_core::units::format_number;
 use serde_json::Value;
-
-/// Formats a number with four significant digits, switching to exponent form outside
-/// 1e-3..1e5 where fixed notation would hide the digits.
-pub fn format_number(value: f64) -> String {
-    if value == 0.0 {
-        return "0".into();
-    }
-    let magnitude = value.abs();
-    if (1e-3..1e5).contains(&magnitude) {
-        let decimals = (3 - magnitude.log10().floor() as i32).max(0) as usize;
-        format!("{value:.decimals$}")
-    } else {
-        format!("{value:.3e}")
-    }
-}
 
 /// Renders `{column: [values]}` as aligned text; numbers converted to customary units
 /// when `customary` is true.

@@ -69,6 +69,7 @@ impl Analysis for ArrheniusAnalysis {
                 column("reduced_ln_density_unc", F64, None, "u(n)/n"),
                 column("line", F64, None, "the fitted line at this abscissa"),
                 column("used", Bool, None, "inside the range of the line"),
+                column("temperature_exponent", F64, None, "r of ln(n T^-r): 1.5 (compensated) or 0.75 (uncompensated), so that a plot can name its ordinate"),
             ],
             summary_keys: vec![
                 column("activation_energy_eV", F64, Some("eV"), "with activation_energy_eV_unc"),
@@ -146,6 +147,10 @@ impl Analysis for ArrheniusAnalysis {
                         .collect(),
                 ),
                 Column::new("used".into(), fit.points.iter().map(|p| p.used).collect::<Vec<bool>>()),
+                float_series(
+                    "temperature_exponent",
+                    vec![Some(fit.regime.temperature_exponent()); rows],
+                ),
             ],
         )?;
         let mut output = AnalysisOutput::new(table);
@@ -167,5 +172,52 @@ impl Analysis for ArrheniusAnalysis {
         warnings.extend(fit.warnings.iter().cloned());
         output.warnings = warnings;
         Ok(output)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use mobilis_core::sdk::run_typed;
+
+    /// The output names the power of T it divided out, per regime, on every row.
+    #[test]
+    fn output_carries_the_temperature_exponent_of_its_regime() {
+        // n = 1e22 m^-3 * exp(-0.045 eV / kT) T^1.5: a donor freeze-out with a steady slope.
+        let temperatures: Vec<f64> = (0..20).map(|k| 20.0 + 4.0 * k as f64).collect();
+        let densities: Vec<f64> = temperatures
+            .iter()
+            .map(|t| 1e18 * t.powf(1.5) * (-0.045 / (8.617_333e-5 * t)).exp())
+            .collect();
+        let hall = DataFrame::new(
+            temperatures.len(),
+            vec![
+                Column::new("temperature_K".into(), temperatures),
+                Column::new("density_m3".into(), densities),
+            ],
+        )
+        .unwrap();
+        for (params, exponent) in [
+            (
+                r#"{"carrier_type": "n", "temperature_min_K": 20, "temperature_max_K": 60}"#,
+                1.5,
+            ),
+            (
+                r#"{"carrier_type": "n", "temperature_min_K": 20, "temperature_max_K": 60, "regime": "uncompensated"}"#,
+                0.75,
+            ),
+        ] {
+            let inputs = Inputs::from_tables([("hall".to_string(), hall.clone())]);
+            let output = run_typed::<ArrheniusAnalysis>(params, &inputs, &Host::detached()).unwrap();
+            let column = output
+                .table
+                .column("temperature_exponent")
+                .unwrap()
+                .f64()
+                .unwrap()
+                .clone();
+            assert_eq!(column.len(), output.table.height());
+            assert!(column.iter().all(|v| v == Some(exponent)), "{params}");
+        }
     }
 }

@@ -7,6 +7,7 @@ use crate::oscillations::{
 use crate::weak_localization::{fit_weak_localization, WeakLocalizationSettings, WeakLocalizationSweep};
 use mobilis_core::abi::AnalysisDeclaration;
 use mobilis_core::fft::Window;
+use mobilis_core::forward::oscillations::thermal_damping_factor;
 use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 use mobilis_core::sweep::symmetrize;
 use mobilis_core::sweep_table::{
@@ -165,14 +166,14 @@ impl Analysis for OscillationsAnalysis {
             params: json!({"type": "object", "additionalProperties": false, "properties": p}),
             inputs: vec![sweep_role(true)],
             outputs: vec![
-                column("kind", Str, None, "oscillation (the curve), fft (the spectrum), mass (window amplitudes) or dingle (Dingle plot)"),
+                column("kind", Str, None, "oscillation (the curve), fft (the spectrum), mass (window amplitudes), mass_fit (each window's Lifshitz-Kosevich fit A_0 R_T on a temperature grid) or dingle (Dingle plot)"),
                 column("temperature_K", F64, Some("K"), "temperature of the sweep"),
-                column("field_T", F64, Some("T"), "field (oscillation rows) or effective field (mass rows)"),
+                column("field_T", F64, Some("T"), "field (oscillation rows) or effective field (mass and mass_fit rows)"),
                 column("inverse_field_per_T", F64, None, "1/B, 1/T (oscillation and dingle rows)"),
                 column("frequency_T", F64, Some("T"), "frequency (fft rows)"),
                 column("rho_xx_ohm_sq", F64, Some("ohm_sq"), "symmetrized rho_xx (oscillation rows)"),
                 column("background_ohm_sq", F64, Some("ohm_sq"), "removed background (oscillation rows)"),
-                column("value_ohm_sq", F64, Some("ohm_sq"), "the oscillation (oscillation rows) or amplitude (fft, mass and dingle rows)"),
+                column("value_ohm_sq", F64, Some("ohm_sq"), "the oscillation (oscillation rows), amplitude (fft, mass and dingle rows) or fitted amplitude (mass_fit rows)"),
                 column("value_ohm_sq_unc", F64, Some("ohm_sq"), "amplitude uncertainty (mass and dingle rows)"),
                 column("dingle_ordinate", F64, None, "ln(A sinh X / X) (dingle rows)"),
             ],
@@ -274,6 +275,28 @@ impl Analysis for OscillationsAnalysis {
                             Some(a.amplitude_unc_ohm_sq),
                         ],
                     );
+                }
+                // The fitted curve itself, so that a mass plot draws the fit and not a line
+                // joining the few measured temperatures.
+                if let Some(fit) = &window.fit {
+                    let temperatures: Vec<f64> = window.amplitudes.iter().map(|a| a.temperature_k).collect();
+                    for temperature_k in mass_fit_temperatures(&temperatures) {
+                        let damping =
+                            thermal_damping_factor(temperature_k, fit.effective_mass_ratio, window.effective_field_t);
+                        push(
+                            "mass_fit",
+                            [
+                                Some(temperature_k),
+                                Some(window.effective_field_t),
+                                None,
+                                None,
+                                None,
+                                None,
+                                Some(fit.prefactor_ohm_sq * damping),
+                                None,
+                            ],
+                        );
+                    }
                 }
             }
         }
@@ -385,6 +408,23 @@ impl Analysis for OscillationsAnalysis {
     }
 }
 
+/// Points of each window's fitted Lifshitz-Kosevich curve.
+const MASS_FIT_POINTS: usize = 48;
+
+/// The temperatures of a window's fitted curve: from half the coldest to 1.1 times the
+/// hottest measured temperature, where the fit is backed by data; empty without a spread.
+fn mass_fit_temperatures(measured_k: &[f64]) -> Vec<f64> {
+    let low = measured_k.iter().copied().fold(f64::INFINITY, f64::min);
+    let high = measured_k.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    if !(low.is_finite() && high.is_finite() && high > low && low > 0.0) {
+        return Vec::new();
+    }
+    let (start, end) = (0.5 * low, 1.1 * high);
+    (0..MASS_FIT_POINTS)
+        .map(|k| start + (end - start) * k as f64 / (MASS_FIT_POINTS - 1) as f64)
+        .collect()
+}
+
 pub struct WeakLocalizationAnalysis;
 
 #[derive(Debug, Deserialize)]
@@ -488,5 +528,98 @@ impl Analysis for WeakLocalizationAnalysis {
         summary.insert("fitted_points".into(), json!(fit.fitted_points));
         output.warnings = fit.warnings.clone();
         Ok(output)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use mobilis_core::forward::oscillations::{OscillationComponent, SdhModel};
+    use mobilis_core::sdk::run_typed;
+
+    fn text(frame: &DataFrame, name: &str) -> Vec<String> {
+        let column = frame.column(name).unwrap().str().unwrap().clone();
+        column.iter().map(|v| v.unwrap_or_default().to_owned()).collect()
+    }
+
+    fn numbers(frame: &DataFrame, name: &str) -> Vec<Option<f64>> {
+        frame.column(name).unwrap().f64().unwrap().iter().collect()
+    }
+
+    /// The mass_fit rows are A_0 R_T of each window's own fit: at the measured temperatures
+    /// they pass through the window's amplitudes (noise-free sweeps, so within 2 %), and the
+    /// curve spans the measured temperatures.
+    #[test]
+    fn mass_fit_rows_trace_each_windows_lifshitz_kosevich_fit() {
+        // A 2D gas with F = 10 T, m* = 0.067 m0, T_D = 0.5 K over a smooth background.
+        let model = SdhModel {
+            background_ohm_sq: vec![100.0, 0.0, 3.0, -0.1],
+            components: vec![OscillationComponent {
+                amplitude: 0.2,
+                ..OscillationComponent::two_dimensional(10.0, 0.067, 0.5)
+            }],
+        };
+        let temperatures = [1.5, 3.0, 6.0, 10.0];
+        let (mut field, mut rho_xx, mut rho_xy, mut temperature) = (vec![], vec![], vec![], vec![]);
+        for &t in &temperatures {
+            for k in -1500..=1500 {
+                let b = 9.0 * k as f64 / 1500.0;
+                field.push(b);
+                rho_xx.push(model.rho_xx_ohm_sq(b, t));
+                rho_xy.push(-50.0 * b);
+                temperature.push(t);
+            }
+        }
+        let rows = field.len();
+        let sweep = DataFrame::new(
+            rows,
+            vec![
+                floats("field_T", field),
+                floats("rho_xx_ohm_sq", rho_xx),
+                floats("rho_xy_ohm", rho_xy),
+                floats("temperature_K", temperature),
+            ],
+        )
+        .unwrap();
+        let inputs = Inputs::from_tables([("sweep".to_string(), sweep)]);
+        let output = run_typed::<OscillationsAnalysis>("{}", &inputs, &Host::detached()).unwrap();
+        let table = &output.table;
+        let kinds = text(table, "kind");
+        let t = numbers(table, "temperature_K");
+        let b = numbers(table, "field_T");
+        let value = numbers(table, "value_ohm_sq");
+        let fit_rows: Vec<usize> = (0..kinds.len()).filter(|&i| kinds[i] == "mass_fit").collect();
+        let mass_rows: Vec<usize> = (0..kinds.len()).filter(|&i| kinds[i] == "mass").collect();
+        assert!(!mass_rows.is_empty() && !fit_rows.is_empty(), "kinds: {kinds:?}");
+        assert_eq!(fit_rows.len() % MASS_FIT_POINTS, 0);
+        // Dingle rows stay last (their ordinate column is filled from the end).
+        let first_dingle = kinds.iter().position(|k| k == "dingle").unwrap_or(kinds.len());
+        assert!(fit_rows.iter().all(|&i| i < first_dingle));
+        for &row in &mass_rows {
+            let curve: Vec<usize> = fit_rows.iter().copied().filter(|&i| b[i] == b[row]).collect();
+            assert_eq!(curve.len(), MASS_FIT_POINTS, "window at {:?} T", b[row]);
+            let temperature = t[row].unwrap();
+            let (low, high) = (t[curve[0]].unwrap(), t[*curve.last().unwrap()].unwrap());
+            assert!(low < temperature && temperature < high);
+            // Linear interpolation of the fitted curve at the measured temperature.
+            let k = curve.windows(2).position(|w| t[w[1]].unwrap() >= temperature).unwrap();
+            let (t0, t1) = (t[curve[k]].unwrap(), t[curve[k + 1]].unwrap());
+            let (a0, a1) = (value[curve[k]].unwrap(), value[curve[k + 1]].unwrap());
+            let fitted = a0 + (a1 - a0) * (temperature - t0) / (t1 - t0);
+            let measured = value[row].unwrap();
+            assert!(
+                (fitted - measured).abs() <= 0.02 * measured.abs().max(1e-3),
+                "T = {temperature} K, B = {:?}: fit {fitted} against {measured}",
+                b[row]
+            );
+        }
+    }
+
+    #[test]
+    fn mass_fit_temperatures_span_the_data() {
+        let grid = mass_fit_temperatures(&[2.0, 8.0, 4.0]);
+        assert_eq!(grid.len(), MASS_FIT_POINTS);
+        assert!((grid[0] - 1.0).abs() < 1e-12 && (grid[MASS_FIT_POINTS - 1] - 8.8).abs() < 1e-12);
+        assert!(mass_fit_temperatures(&[3.0, 3.0]).is_empty());
     }
 }

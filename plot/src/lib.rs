@@ -1,0 +1,238 @@
+//! Figures of mobilis datasets: one figure model, drawn as SVG in Rust and written as the
+//! same figure in Vega-Lite for notebooks that render it interactively.
+//!
+//! [`build`] turns a dataset (a polars DataFrame in SI units, columns named as the plugins
+//! write them) into a [`Figure`] by a recipe, a "kind": the plots the trade draws from each
+//! analysis's output (carrier density against temperature, the Arrhenius plot, the mobility
+//! spectrum, the Kohler plot, ...) or `columns` for anything else. Axes are in the customary
+//! units (cm^-3, cm^2/(V s), ohm cm, T, K, 1000/T), logarithmic where the trade draws them so,
+//! and uncertainty columns (`_unc`, one sigma) become error bars.
+//!
+//! The SVG is written here rather than by a plotting crate: the figures are few and
+//! specific, a dependency would bring its own fonts and rasterizers, and the renderer is small
+//! enough to test element by element. The crate knows nothing of JSON-RPC, the store or
+//! files; callers pass a frame and get text or JSON back.
+
+mod figure;
+mod recipes;
+mod svg;
+mod units;
+mod vega;
+
+#[cfg(test)]
+mod tests;
+
+use polars::prelude::DataFrame;
+use serde::{Deserialize, Deserializer};
+
+pub use figure::Figure;
+
+/// What to draw. Every field is optional, so that the JSON-RPC layer can take it from the
+/// request parameters as they are.
+#[derive(Debug, Clone, Default, PartialEq, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct PlotOptions {
+    /// A recipe name (see [`kinds`]); None or "auto": the first recipe of `analysis`, else
+    /// "columns".
+    pub kind: Option<String>,
+    /// The analysis that produced the dataset (from its provenance), if any.
+    pub analysis: Option<String>,
+    /// For kind "columns": the x column.
+    pub x: Option<String>,
+    /// For kind "columns": one or more y columns (a single string is accepted too).
+    #[serde(deserialize_with = "one_or_many")]
+    pub y: Vec<String>,
+    /// Optional 1-sigma uncertainty columns, one per y column; without them a y column's
+    /// `_unc` companion is used when the dataset has it.
+    #[serde(deserialize_with = "one_or_many")]
+    pub y_error: Vec<String>,
+    /// Columns whose value combinations become separate series; None: the recipe's default
+    /// (sample, temperature, field where present and varying).
+    pub series_by: Option<Vec<String>>,
+    /// Override the recipe's choice of logarithmic axes.
+    pub log_x: Option<bool>,
+    pub log_y: Option<bool>,
+    pub title: Option<String>,
+    /// Size of one panel in pixels (default 640 x 420); figures of several panels tile them.
+    pub width: Option<f64>,
+    pub height: Option<f64>,
+}
+
+fn one_or_many<'de, D: Deserializer<'de>>(deserializer: D) -> Result<Vec<String>, D::Error> {
+    #[derive(Deserialize)]
+    #[serde(untagged)]
+    enum OneOrMany {
+        One(String),
+        Many(Vec<String>),
+        Null(()),
+    }
+    Ok(match OneOrMany::deserialize(deserializer)? {
+        OneOrMany::One(one) => vec![one],
+        OneOrMany::Many(many) => many,
+        OneOrMany::Null(()) => Vec::new(),
+    })
+}
+
+/// A recipe as listed to clients.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct KindInfo {
+    pub name: &'static str,
+    pub description: &'static str,
+    /// The analyses whose output the recipe draws; empty for `columns`, which draws any.
+    pub analyses: &'static [&'static str],
+}
+
+/// Why no figure could be built; every message says what to change.
+#[derive(thiserror::Error, Debug, Clone, PartialEq)]
+#[non_exhaustive]
+pub enum PlotError {
+    #[error("unknown plot kind `{kind}`; use one of: {known}")]
+    UnknownKind { kind: String, known: String },
+    #[error("plot kind `{kind}` needs column `{column}`, which dataset `{dataset}` does not have; {detail}")]
+    MissingColumn {
+        kind: String,
+        column: String,
+        dataset: String,
+        /// The columns the kind needs, the dataset's columns and the analyses that make such a
+        /// dataset.
+        detail: String,
+    },
+    #[error("column `{column}` holds {dtype}, not numbers; choose a numeric column")]
+    NotNumeric { column: String, dtype: String },
+    #[error("dataset `{dataset}` has no finite values to draw as kind `{kind}`{hint}")]
+    NoFinitePoints {
+        dataset: String,
+        kind: String,
+        hint: String,
+    },
+    #[error("{0}")]
+    BadOption(String),
+    #[error("{0}")]
+    Unusable(String),
+}
+
+static KINDS: std::sync::OnceLock<Vec<KindInfo>> = std::sync::OnceLock::new();
+
+/// Every recipe, `columns` first.
+pub fn kinds() -> &'static [KindInfo] {
+    KINDS.get_or_init(|| {
+        recipes::RECIPES
+            .iter()
+            .map(|r| KindInfo {
+                name: r.name,
+                description: r.description,
+                analyses: r.analyses,
+            })
+            .collect()
+    })
+}
+
+/// The recipes that draw a dataset made by `analysis`, its default first: all the plots of
+/// the dataset for a report. Imported data, and analyses without a recipe, get `columns`.
+pub fn kinds_for(analysis: Option<&str>) -> Vec<&'static str> {
+    let found: Vec<&'static str> = match analysis {
+        Some(analysis) => recipes::RECIPES
+            .iter()
+            .filter(|r| r.analyses.contains(&analysis))
+            .map(|r| r.name)
+            .collect(),
+        None => Vec::new(),
+    };
+    if found.is_empty() {
+        vec!["columns"]
+    } else {
+        found
+    }
+}
+
+const DEFAULT_WIDTH: f64 = 640.0;
+const DEFAULT_HEIGHT: f64 = 420.0;
+
+fn size(name: &str, value: Option<f64>, default: f64) -> Result<f64, PlotError> {
+    match value {
+        None => Ok(default),
+        Some(v) if v.is_finite() && (160.0..=4000.0).contains(&v) => Ok(v),
+        Some(v) => Err(PlotError::BadOption(format!(
+            "{name} {v} is out of range; give a panel {name} from 160 to 4000 pixels (default {default})"
+        ))),
+    }
+}
+
+/// Builds the figure of `frame` (named `dataset` in titles and messages) that `options` ask
+/// for.
+pub fn build(frame: &DataFrame, dataset: &str, options: &PlotOptions) -> Result<Figure, PlotError> {
+    let width = size("width", options.width, DEFAULT_WIDTH)?;
+    let height = size("height", options.height, DEFAULT_HEIGHT)?;
+    let kind = match options.kind.as_deref().map(str::trim) {
+        None | Some("") | Some("auto") => kinds_for(options.analysis.as_deref())[0],
+        Some(kind) => kind,
+    };
+    let recipe = recipes::find(kind).ok_or_else(|| PlotError::UnknownKind {
+        kind: kind.to_owned(),
+        known: std::iter::once("auto")
+            .chain(recipes::RECIPES.iter().map(|r| r.name))
+            .collect::<Vec<_>>()
+            .join(", "),
+    })?;
+    if kind != "columns" && (options.x.is_some() || !options.y.is_empty()) {
+        return Err(PlotError::BadOption(format!(
+            "x and y choose the columns of kind `columns`; kind `{kind}` draws fixed columns ({}); leave x and y out or ask for kind `columns`",
+            recipe.needs
+        )));
+    }
+    let context = recipes::Context {
+        frame,
+        dataset,
+        options,
+        recipe,
+    };
+    let drawing = (recipe.build)(&context)?;
+    let mut panels = drawing.panels;
+    for panel in &mut panels {
+        if let Some(log) = options.log_x {
+            panel.x.log = log;
+        }
+        if let Some(log) = options.log_y {
+            panel.y.log = log;
+        }
+    }
+    let title = match &options.title {
+        Some(title) if !title.trim().is_empty() => title.clone(),
+        _ => format!("{} — {dataset}", drawing.title),
+    };
+    let mut figure = Figure {
+        kind: recipe.name.to_owned(),
+        title,
+        panels,
+        panel_width: width,
+        panel_height: height,
+    };
+    if !figure.finish() {
+        let hint = if options.log_x == Some(true)
+            || options.log_y == Some(true)
+            || figure.panels.iter().any(|p| p.x.log || p.y.log)
+        {
+            "; a log axis drops values at or below zero (set log_x or log_y to false)".to_owned()
+        } else {
+            String::new()
+        };
+        return Err(PlotError::NoFinitePoints {
+            dataset: dataset.to_owned(),
+            kind: recipe.name.to_owned(),
+            hint,
+        });
+    }
+    Ok(figure)
+}
+
+impl Figure {
+    /// The figure as a standalone SVG document.
+    pub fn to_svg(&self) -> String {
+        svg::render(self)
+    }
+
+    /// The figure as a Vega-Lite v5 specification with the data inline.
+    pub fn to_vega_lite(&self) -> serde_json::Value {
+        vega::render(self)
+    }
+}

@@ -1,0 +1,382 @@
+//! The recipes: which figure each kind draws from a dataset, and the shared reading of
+//! columns, series grouping and unit conversion they use.
+//!
+//! A recipe knows the output table of the analysis it serves (its columns, and for tables
+//! with several row kinds the `kind` values) and draws what the trade draws from it. Values
+//! enter the figure already in displayed units (`crate::units`), so the renderers never
+//! convert.
+
+mod carriers;
+mod columns;
+mod sweeps;
+
+use polars::prelude::*;
+
+use crate::figure::{format_value, Panel, Point};
+use crate::units::column_display;
+use crate::{PlotError, PlotOptions};
+
+/// What a recipe returns: its panels and a default title.
+pub(crate) struct Drawing {
+    pub title: String,
+    pub panels: Vec<Panel>,
+}
+
+/// One recipe: its public description, the columns it needs (for the error message) and its
+/// builder.
+pub(crate) struct Recipe {
+    pub name: &'static str,
+    pub description: &'static str,
+    pub analyses: &'static [&'static str],
+    pub needs: &'static str,
+    pub build: fn(&Context) -> Result<Drawing, PlotError>,
+}
+
+/// Every recipe, `columns` first; for an analysis the first recipe listing it is its default.
+pub(crate) static RECIPES: &[Recipe] = &[
+    Recipe {
+        name: "columns",
+        description: "Any dataset: the columns `y` against `x`, one series per combination of `series_by`, with error bars from `y_error` or the columns' `_unc` companions; axes in the units of the trade.",
+        analyses: &[],
+        needs: "the columns named by x and y",
+        build: columns::build,
+    },
+    Recipe {
+        name: "hall_density",
+        description: "Carrier density against temperature, log density axis, one series per sample (and field): the volume density in cm^-3, or the sheet density in cm^-2 for 2D samples.",
+        analyses: &["hall.reduce"],
+        needs: "temperature_K and density_m3 (or sheet_density_m2)",
+        build: carriers::hall_density,
+    },
+    Recipe {
+        name: "hall_mobility",
+        description: "Hall mobility in cm^2/(V s) against temperature, log-log, one series per sample (and field).",
+        analyses: &["hall.reduce"],
+        needs: "temperature_K and hall_mobility_m2_per_Vs",
+        build: carriers::hall_mobility,
+    },
+    Recipe {
+        name: "hall_resistivity",
+        description: "Resistivity in ohm cm (sheet resistance in ohm/sq for 2D samples) against temperature, log resistivity axis, one series per sample.",
+        analyses: &["hall.reduce"],
+        needs: "temperature_K and resistivity_ohm_m (or sheet_resistance_ohm_sq)",
+        build: carriers::hall_resistivity,
+    },
+    Recipe {
+        name: "freeze_out",
+        description: "Freeze-out: measured density (points with error bars) and the fitted charge-neutrality model (line) against 1000/T, log density axis, one colour per sample.",
+        analyses: &["carriers.freeze_out_fit"],
+        needs: "kind, temperature_K, density_m3 and fitted_density_m3",
+        build: carriers::freeze_out,
+    },
+    Recipe {
+        name: "arrhenius",
+        description: "Arrhenius plot: ln(n T^-3/2) (or ln(n T^-3/4), as the fit used) with n in cm^-3 against 1000/T; points on the fitted line filled, the others open, and the fitted line over its range.",
+        analyses: &["carriers.arrhenius"],
+        needs: "temperature_K, reduced_ln_density, line and used",
+        build: carriers::arrhenius,
+    },
+    Recipe {
+        name: "mobility_scattering",
+        description: "Mobility against temperature, log-log: measured points with error bars (open when outside the fitted range), the fitted total (Matthiessen) and each scattering term as dashed lines.",
+        analyses: &["carriers.mobility_scattering"],
+        needs: "temperature_K, mobility_m2_per_Vs and fitted_mobility_m2_per_Vs",
+        build: carriers::mobility_scattering,
+    },
+    Recipe {
+        name: "mobility_spectrum",
+        description: "Mobility spectrum: d sigma / d ln mu against mobility (log axis), electrons and holes in their own colours, the regularized spectrum solid and the Beck-Anderson envelope dashed; one panel per sample and temperature.",
+        analyses: &["spectrum.mobility"],
+        needs: "mobility_m2_per_Vs, electron_spectrum_S, hole_spectrum_S (envelopes optional)",
+        build: sweeps::mobility_spectrum,
+    },
+    Recipe {
+        name: "conductivity_fit",
+        description: "Multi-carrier fit in conductivity space: measured sigma_xx and sigma_xy (points) and the fitted model (lines) against field, one panel each.",
+        analyses: &["spectrum.multi_carrier_fit"],
+        needs: "field_T, sigma_xx_S, sigma_xy_S, sigma_xx_fit_S and sigma_xy_fit_S",
+        build: sweeps::conductivity_fit,
+    },
+    Recipe {
+        name: "resistivity_fit",
+        description: "Fit in resistivity space: measured rho_xx and rho_xy (points) and the fitted model (lines) against field, one panel each.",
+        analyses: &["mr.two_band_fit", "spectrum.multi_carrier_fit"],
+        needs: "field_T, rho_xx_ohm_sq, rho_xy_ohm, rho_xx_fit_ohm_sq and rho_xy_fit_ohm",
+        build: sweeps::resistivity_fit,
+    },
+    Recipe {
+        name: "magnetoresistance",
+        description: "Magnetoresistance (rho(B) - rho(0)) / rho(0) in percent against field, one series per sample and temperature, with error bars; from mr.symmetrize output rho(0) is the zero-field row.",
+        analyses: &["mr.ratio", "mr.symmetrize"],
+        needs: "field_T and magnetoresistance (or rho_xx_ohm_sq with a zero-field row)",
+        build: sweeps::magnetoresistance,
+    },
+    Recipe {
+        name: "symmetrized",
+        description: "The symmetrized sweep: even rho_xx and odd rho_xy against field, one panel each, with error bars.",
+        analyses: &["mr.symmetrize"],
+        needs: "field_T, rho_xx_ohm_sq and rho_xy_ohm",
+        build: sweeps::symmetrized,
+    },
+    Recipe {
+        name: "kohler",
+        description: "Kohler plot: Delta rho / rho0 against B / rho0, log-log, one series per temperature; points outside the range common to all curves open.",
+        analyses: &["mr.kohler"],
+        needs: "temperature_K, x_T_per_ohm and magnetoresistance",
+        build: sweeps::kohler,
+    },
+    Recipe {
+        name: "oscillation_fft",
+        description: "Shubnikov-de Haas spectrum: FFT amplitude against frequency (T), one line per temperature (rows of kind fft).",
+        analyses: &["mr.oscillations"],
+        needs: "kind, temperature_K, frequency_T and value_ohm_sq",
+        build: sweeps::oscillation_fft,
+    },
+    Recipe {
+        name: "oscillation_mass",
+        description: "Mass plot: oscillation amplitude / T against T (log amplitude axis) for each narrow 1/B window, with the window's Lifshitz-Kosevich fit as a line (rows of kind mass and mass_fit).",
+        analyses: &["mr.oscillations"],
+        needs: "kind, temperature_K, field_T, value_ohm_sq (rows of kind mass)",
+        build: sweeps::oscillation_mass,
+    },
+    Recipe {
+        name: "oscillation_curves",
+        description: "The oscillatory part of rho_xx (background removed) against 1/B, one line per temperature (rows of kind oscillation).",
+        analyses: &["mr.oscillations"],
+        needs: "kind, temperature_K, inverse_field_per_T and value_ohm_sq",
+        build: sweeps::oscillation_curves,
+    },
+    Recipe {
+        name: "dingle",
+        description: "Dingle plot: ln(A sinh X / X) against 1/B at the reference temperature, with error bars (rows of kind dingle).",
+        analyses: &["mr.oscillations"],
+        needs: "kind, inverse_field_per_T and dingle_ordinate",
+        build: sweeps::dingle,
+    },
+    Recipe {
+        name: "weak_localization",
+        description: "Weak localization: Delta sigma against field (points with error bars, open outside the fitted range) and the Hikami-Larkin-Nagaoka fit (line).",
+        analyses: &["mr.weak_localization"],
+        needs: "field_T, delta_sigma_S and model_S",
+        build: sweeps::weak_localization,
+    },
+];
+
+pub(crate) fn find(name: &str) -> Option<&'static Recipe> {
+    RECIPES.iter().find(|r| r.name == name)
+}
+
+/// The error for a column `recipe` needs and `dataset` lacks.
+pub(crate) fn missing_column(recipe: &Recipe, dataset: &str, column: &str, columns: &[String]) -> PlotError {
+    let made_by = if recipe.analyses.is_empty() {
+        "any analysis or import".to_owned()
+    } else {
+        recipe.analyses.join(" or ")
+    };
+    PlotError::MissingColumn {
+        kind: recipe.name.to_owned(),
+        column: column.to_owned(),
+        dataset: dataset.to_owned(),
+        detail: format!(
+            "kind `{}` draws {}; the dataset's columns are {}; such a dataset is made by {made_by}",
+            recipe.name,
+            recipe.needs,
+            columns.join(", ")
+        ),
+    }
+}
+
+/// A row set that becomes one series (or panel), with its label.
+pub(crate) struct Group {
+    pub label: String,
+    pub rows: Vec<usize>,
+}
+
+/// What a recipe reads: the table, the options and who it is, for error messages.
+pub(crate) struct Context<'a> {
+    pub frame: &'a DataFrame,
+    pub dataset: &'a str,
+    pub options: &'a PlotOptions,
+    pub recipe: &'static Recipe,
+}
+
+impl Context<'_> {
+    pub fn has(&self, name: &str) -> bool {
+        self.frame.column(name).is_ok()
+    }
+
+    fn missing(&self, name: &str) -> PlotError {
+        let mut columns: Vec<String> = self.frame.get_column_names().iter().map(|c| c.to_string()).collect();
+        columns.sort();
+        missing_column(self.recipe, self.dataset, name, &columns)
+    }
+
+    /// A numeric column as f64 (nulls as NaN, which the figure skips).
+    pub fn floats(&self, name: &str) -> Result<Vec<f64>, PlotError> {
+        let column = self.frame.column(name).map_err(|_| self.missing(name))?;
+        let numeric = column.dtype().is_primitive_numeric() || column.dtype().is_null() || column.dtype().is_bool();
+        let cast = column
+            .cast(&DataType::Float64)
+            .ok()
+            .filter(|_| numeric)
+            .ok_or_else(|| PlotError::NotNumeric {
+                column: name.to_owned(),
+                dtype: column.dtype().to_string(),
+            })?;
+        Ok(cast
+            .f64()
+            .expect("cast to Float64")
+            .iter()
+            .map(|v| v.unwrap_or(f64::NAN))
+            .collect())
+    }
+
+    /// A numeric column in displayed units.
+    pub fn displayed(&self, name: &str) -> Result<Vec<f64>, PlotError> {
+        let factor = column_display(name).factor;
+        Ok(self.floats(name)?.into_iter().map(|v| v * factor).collect())
+    }
+
+    /// An optional numeric column in displayed units.
+    pub fn displayed_opt(&self, name: &str) -> Result<Option<Vec<f64>>, PlotError> {
+        if self.has(name) {
+            self.displayed(name).map(Some)
+        } else {
+            Ok(None)
+        }
+    }
+
+    /// A column as text (numbers formatted), nulls as None.
+    pub fn texts(&self, name: &str) -> Result<Vec<Option<String>>, PlotError> {
+        let column = self.frame.column(name).map_err(|_| self.missing(name))?;
+        if column.dtype().is_primitive_numeric() {
+            return Ok(self
+                .floats(name)?
+                .into_iter()
+                .map(|v| v.is_finite().then(|| format_value(v)))
+                .collect());
+        }
+        let cast = column.cast(&DataType::String).map_err(|_| PlotError::NotNumeric {
+            column: name.to_owned(),
+            dtype: column.dtype().to_string(),
+        })?;
+        Ok(cast
+            .str()
+            .expect("cast to String")
+            .iter()
+            .map(|v| v.map(str::to_owned))
+            .collect())
+    }
+
+    /// A boolean column (absent: None; nulls as false).
+    pub fn flags(&self, name: &str) -> Option<Vec<bool>> {
+        let column = self.frame.column(name).ok()?;
+        let cast = column.cast(&DataType::Boolean).ok()?;
+        Some(cast.bool().ok()?.iter().map(|v| v.unwrap_or(false)).collect())
+    }
+
+    /// The rows whose `kind` column holds `kind`; all rows when `kind_column` is absent.
+    pub fn rows_of_kind(&self, kind: &str) -> Result<Vec<usize>, PlotError> {
+        let kinds = self.texts("kind")?;
+        Ok((0..kinds.len())
+            .filter(|&i| kinds[i].as_deref() == Some(kind))
+            .collect())
+    }
+
+    /// Splits `rows` into series by `options.series_by`, or by the recipe's `defaults` that
+    /// are present and take more than one value among the rows.
+    pub fn groups(&self, rows: &[usize], defaults: &[&str]) -> Result<Vec<Group>, PlotError> {
+        let columns: Vec<String> = match &self.options.series_by {
+            Some(columns) => {
+                for column in columns {
+                    if !self.has(column) {
+                        return Err(PlotError::BadOption(format!(
+                            "series_by names `{column}`, which dataset `{}` does not have; its columns are {}",
+                            self.dataset,
+                            self.frame
+                                .get_column_names()
+                                .iter()
+                                .map(|c| c.to_string())
+                                .collect::<Vec<_>>()
+                                .join(", ")
+                        )));
+                    }
+                }
+                columns.clone()
+            }
+            None => {
+                let mut chosen = Vec::new();
+                for &column in defaults {
+                    if !self.has(column) {
+                        continue;
+                    }
+                    let values = self.texts(column)?;
+                    let mut distinct: Vec<&Option<String>> = rows.iter().map(|&r| &values[r]).collect();
+                    distinct.sort();
+                    distinct.dedup();
+                    if distinct.len() > 1 {
+                        chosen.push(column.to_owned());
+                    }
+                }
+                chosen
+            }
+        };
+        let values: Vec<Vec<Option<String>>> = columns.iter().map(|c| self.texts(c)).collect::<Result<_, _>>()?;
+        let mut groups: Vec<(Vec<Option<String>>, Group)> = Vec::new();
+        for &row in rows {
+            let key: Vec<Option<String>> = values.iter().map(|v| v[row].clone()).collect();
+            match groups.iter_mut().find(|(k, _)| *k == key) {
+                Some((_, group)) => group.rows.push(row),
+                None => {
+                    let label = group_label(&columns, &key);
+                    groups.push((key, Group { label, rows: vec![row] }));
+                }
+            }
+        }
+        Ok(groups.into_iter().map(|(_, g)| g).collect())
+    }
+}
+
+/// "A, 300 K, 0.5 T": sample names as they are, quantities with their unit.
+fn group_label(columns: &[String], key: &[Option<String>]) -> String {
+    let parts: Vec<String> = columns
+        .iter()
+        .zip(key)
+        .map(|(column, value)| {
+            let value = value.clone().unwrap_or_else(|| "none".to_owned());
+            match column.as_str() {
+                "sample" => value,
+                "temperature_K" => format!("{value} K"),
+                "field_T" => format!("{value} T"),
+                other => format!("{other} = {value}"),
+            }
+        })
+        .collect();
+    parts.join(", ")
+}
+
+/// Points at `rows` from displayed x and y (and optional y errors).
+pub(crate) fn points(rows: &[usize], x: &[f64], y: &[f64], y_err: Option<&[f64]>) -> Vec<Point> {
+    rows.iter()
+        .map(|&r| Point::new(x[r], y[r]).with_y_err(y_err.map(|e| e[r])))
+        .collect()
+}
+
+/// 1000/T in 1/K, the customary abscissa of freeze-out and Arrhenius plots.
+pub(crate) fn inverse_temperature(temperatures_k: &[f64]) -> Vec<f64> {
+    temperatures_k.iter().map(|t| 1000.0 / t).collect()
+}
+
+/// A series name within a group: "A: fit", or just "fit" when there is one group.
+pub(crate) fn named(group: &Group, groups: usize, what: &str) -> String {
+    if groups <= 1 || group.label.is_empty() {
+        what.to_owned()
+    } else {
+        format!("{}: {what}", group.label)
+    }
+}
+
+/// All rows of the table.
+pub(crate) fn all_rows(frame: &DataFrame) -> Vec<usize> {
+    (0..frame.height()).collect()
+}

@@ -1,0 +1,209 @@
+//! `plot.render` and `plot.kinds`: figures of stored datasets, drawn by mobilis-plot.
+//!
+//! The daemon's part is small on purpose: find the dataset, keep the rows the client asked
+//! for (`filter`), tell the plot crate which analysis made the dataset (its provenance), and
+//! return the SVG and the Vega-Lite specification.
+
+use crate::errors::{ErrorKind, ServiceError, ServiceResult};
+use crate::service::Service;
+use crate::store::Provenance;
+use mobilis_plot::{PlotError, PlotOptions};
+use polars::prelude::*;
+use serde_json::{json, Map, Value};
+
+/// Which renderings a `plot.render` call returns.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Formats {
+    Svg,
+    VegaLite,
+    Both,
+}
+
+/// The parameters of `plot.render` that are the daemon's, not the plot options.
+const OWN_PARAMS: [&str; 3] = ["dataset", "filter", "format"];
+
+fn plot_error(dataset: &str, error: PlotError) -> ServiceError {
+    ServiceError::invalid_params(format!("plot of `{dataset}`: {error}"))
+        .with_help("plot.kinds lists the kinds and the analyses whose outputs each one draws")
+}
+
+/// The analysis that produced a dataset, if it is an analysis's main output table.
+fn producing_analysis(provenance: &Provenance) -> Option<String> {
+    match provenance {
+        Provenance::Analysis {
+            analysis,
+            summary: false,
+            ..
+        } => Some(analysis.clone()),
+        _ => None,
+    }
+}
+
+/// Keeps the rows whose `column` equals each given value (strings exactly, numbers to a
+/// relative 1e-9, so that a temperature typed as 300 matches 300.0000000001).
+pub fn filter_rows(frame: &DataFrame, filter: &Map<String, Value>) -> ServiceResult<DataFrame> {
+    if filter.is_empty() {
+        return Ok(frame.clone());
+    }
+    let mut keep = vec![true; frame.height()];
+    for (name, wanted) in filter {
+        let column = frame.column(name).map_err(|_| {
+            ServiceError::new(
+                ErrorKind::ColumnProblem,
+                format!("filter: the dataset has no column `{name}`"),
+            )
+            .with_help(format!(
+                "its columns are: {}",
+                frame
+                    .get_column_names()
+                    .iter()
+                    .map(|c| c.as_str())
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ))
+        })?;
+        let matches: Vec<bool> = match wanted {
+            Value::String(text) => {
+                let strings = column.str().map_err(|_| {
+                    ServiceError::invalid_params(format!("filter: `{name}` is not a text column; give a number"))
+                })?;
+                strings.iter().map(|cell| cell == Some(text.as_str())).collect()
+            }
+            Value::Number(number) => {
+                let target = number.as_f64().unwrap_or(f64::NAN);
+                if !column.dtype().is_primitive_numeric() {
+                    return Err(ServiceError::invalid_params(format!(
+                        "filter: `{name}` is not numeric; give text"
+                    )));
+                }
+                let numbers = column
+                    .cast(&DataType::Float64)
+                    .map_err(|_| ServiceError::invalid_params(format!("filter: `{name}` is not numeric; give text")))?;
+                let numbers = numbers.f64().expect("cast to f64").clone();
+                numbers
+                    .iter()
+                    .map(|cell| cell.is_some_and(|v| (v - target).abs() <= 1e-9 * target.abs().max(1e-300)))
+                    .collect()
+            }
+            Value::Bool(flag) => {
+                let flags = column
+                    .bool()
+                    .map_err(|_| ServiceError::invalid_params(format!("filter: `{name}` is not a boolean column")))?;
+                flags.iter().map(|cell| cell == Some(*flag)).collect()
+            }
+            other => {
+                return Err(ServiceError::invalid_params(format!(
+                    "filter: `{name}` must be compared with a string, number or boolean, not {other}"
+                )))
+            }
+        };
+        for (slot, matched) in keep.iter_mut().zip(matches) {
+            *slot &= matched;
+        }
+    }
+    let mask = BooleanChunked::from_slice(PlSmallStr::from_static("keep"), &keep);
+    frame
+        .filter(&mask)
+        .map_err(|e| ServiceError::new(ErrorKind::InvalidData, e.to_string()))
+}
+
+impl Service {
+    /// Draws a dataset (see `plot.render` in the OpenRPC document).
+    pub fn plot_render(&self, params: Map<String, Value>) -> ServiceResult<Value> {
+        let dataset_name = params
+            .get("dataset")
+            .and_then(Value::as_str)
+            .ok_or_else(|| ServiceError::invalid_params("plot.render needs `dataset`: the name of a stored dataset"))?
+            .to_owned();
+        let filter = match params.get("filter") {
+            None | Some(Value::Null) => Map::new(),
+            Some(Value::Object(map)) => map.clone(),
+            Some(_) => {
+                return Err(ServiceError::invalid_params(
+                    "filter must be an object {column: value}, for example {\"sample\": \"W1\"}",
+                ))
+            }
+        };
+        let formats = match params.get("format").and_then(Value::as_str) {
+            None | Some("both") => Formats::Both,
+            Some("svg") => Formats::Svg,
+            Some("vega-lite") => Formats::VegaLite,
+            Some(other) => {
+                return Err(ServiceError::invalid_params(format!(
+                    "format `{other}` is not known; use svg, vega-lite or both"
+                )))
+            }
+        };
+        let option_values: Map<String, Value> = params
+            .into_iter()
+            .filter(|(key, _)| !OWN_PARAMS.contains(&key.as_str()))
+            .collect();
+        let mut options: PlotOptions = serde_json::from_value(Value::Object(option_values)).map_err(|error| {
+            ServiceError::invalid_params(format!("plot.render: {error}"))
+                .with_help("see rpc.discover for the parameters of plot.render")
+        })?;
+        let dataset = self.store.get(&dataset_name)?;
+        if options.analysis.is_none() {
+            options.analysis = producing_analysis(&dataset.manifest.provenance);
+        }
+        let frame = filter_rows(&dataset.frame, &filter)?;
+        if frame.height() == 0 {
+            return Err(ServiceError::new(
+                ErrorKind::InvalidData,
+                format!("no rows of `{dataset_name}` match the filter"),
+            )
+            .with_help("check the filter's values with dataset.rows"));
+        }
+        let figure = mobilis_plot::build(&frame, &dataset_name, &options).map_err(|e| plot_error(&dataset_name, e))?;
+        let mut answer = json!({ "dataset": dataset_name, "kind": figure.kind(), "title": figure.title() });
+        if formats != Formats::VegaLite {
+            answer["svg"] = json!(figure.to_svg());
+        }
+        if formats != Formats::Svg {
+            answer["vega_lite"] = figure.to_vega_lite();
+        }
+        Ok(answer)
+    }
+
+    /// The plot kinds; with a dataset, the kinds that apply to it.
+    pub fn plot_kinds(&self, dataset: Option<&str>) -> ServiceResult<Value> {
+        let describe = |kind: &mobilis_plot::KindInfo| json!({ "name": kind.name, "description": kind.description, "analyses": kind.analyses });
+        match dataset {
+            None => Ok(Value::Array(mobilis_plot::kinds().iter().map(describe).collect())),
+            Some(name) => {
+                let dataset = self.store.get(name)?;
+                let analysis = producing_analysis(&dataset.manifest.provenance);
+                let applicable = mobilis_plot::kinds_for(analysis.as_deref());
+                Ok(Value::Array(
+                    mobilis_plot::kinds()
+                        .iter()
+                        .filter(|kind| applicable.contains(&kind.name))
+                        .map(describe)
+                        .collect(),
+                ))
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_filter_keeps_rows_equal_to_each_value() {
+        let frame = df!(
+            "sample" => ["A", "B", "A", "A"],
+            "temperature_K" => [2.0, 2.0, 300.0000000001, 77.0],
+        )
+        .unwrap();
+        let filter: Map<String, Value> = serde_json::from_value(json!({"sample": "A", "temperature_K": 300})).unwrap();
+        let kept = filter_rows(&frame, &filter).unwrap();
+        assert_eq!(kept.height(), 1);
+        let error = filter_rows(&frame, &serde_json::from_value(json!({"wafer": "A"})).unwrap()).unwrap_err();
+        assert_eq!(error.kind, ErrorKind::ColumnProblem);
+        assert!(error.help.unwrap().contains("sample, temperature_K"));
+        let error = filter_rows(&frame, &serde_json::from_value(json!({"sample": 3})).unwrap()).unwrap_err();
+        assert!(error.message.contains("not numeric"), "{}", error.message);
+    }
+}

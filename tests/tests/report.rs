@@ -1,0 +1,162 @@
+//! `mobilis report` end to end: the demo pipeline through the CLI and a real daemon, one HTML
+//! page per sample, each opened in headless Chromium to check that the browser lays out
+//! every figure; one page is also saved as a screenshot for people to look at.
+//!
+//! Chromium comes from Debian's `chromium` package (`.ci/run` installs it); `$CHROMIUM`
+//! names another binary.
+
+use mobilis_tests::{ensure_built, workspace_root, TestDaemon};
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+/// The browser binary, or a failure that says what to install.
+fn chromium() -> PathBuf {
+    if let Some(path) = std::env::var_os("CHROMIUM") {
+        return PathBuf::from(path);
+    }
+    for candidate in [
+        "/usr/bin/chromium",
+        "/usr/bin/chromium-browser",
+        "/usr/bin/google-chrome",
+    ] {
+        if Path::new(candidate).is_file() {
+            return PathBuf::from(candidate);
+        }
+    }
+    panic!("no Chromium found: install Debian's `chromium` package (.ci/run does) or set $CHROMIUM");
+}
+
+/// Runs headless Chromium on a local page with `mode` (`--dump-dom` or `--screenshot=...`).
+fn headless(page: &Path, mode: &str, profile: &Path) -> Output {
+    Command::new(chromium())
+        .args([
+            "--headless",
+            "--no-sandbox",
+            "--disable-gpu",
+            "--disable-quic",
+            "--no-first-run",
+            "--disable-background-networking",
+            "--disable-component-update",
+            "--disable-sync",
+            "--hide-scrollbars",
+            "--window-size=1280,2600",
+            "--virtual-time-budget=5000",
+        ])
+        .arg(format!("--user-data-dir={}", profile.display()))
+        .arg(mode)
+        .arg(format!("file://{}", page.display()))
+        .output()
+        .expect("Chromium starts")
+}
+
+/// The value of an attribute of the `<html>` element in a dumped DOM.
+fn html_attribute(dom: &str, name: &str) -> Option<usize> {
+    let start = dom.find("<html")?;
+    let tag = &dom[start..start + dom[start..].find('>')?];
+    let value_start = tag.find(&format!("{name}=\""))? + name.len() + 2;
+    tag[value_start..].split('"').next()?.parse().ok()
+}
+
+fn mobilis(url: &str, arguments: &[&str]) -> String {
+    let output = Command::new(ensure_built().join("mobilis"))
+        .args(["--url", url, "--progress", "never"])
+        .args(arguments)
+        .output()
+        .expect("mobilis runs");
+    assert!(
+        output.status.success(),
+        "mobilis {arguments:?} failed:\n{}\n{}",
+        String::from_utf8_lossy(&output.stdout),
+        String::from_utf8_lossy(&output.stderr)
+    );
+    String::from_utf8_lossy(&output.stdout).into_owned()
+}
+
+#[tokio::test(flavor = "multi_thread")]
+async fn each_sample_gets_a_page_that_renders_with_its_figures() {
+    let demo_data = workspace_root().join("demo-data");
+    let roots = demo_data.clone();
+    let daemon = TestDaemon::start_with(move |options| options.data_roots.push(roots)).await;
+    let url = daemon.daemon.url().to_owned();
+    let pipeline = demo_data.join("pipeline.toml");
+    mobilis(&url, &["pipeline", pipeline.to_str().unwrap()]);
+
+    // The pages and a screenshot stay under the build directory for people to look at.
+    let out = workspace_root().join("target").join("report-check");
+    let _ = std::fs::remove_dir_all(&out);
+    let written = mobilis(&url, &["report", "--out", out.to_str().unwrap()]);
+    let samples = daemon.call("report.samples", serde_json::json!({})).await;
+    let samples: Vec<String> = samples
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|s| s["sample"].as_str().unwrap().to_owned())
+        .collect();
+    // The demo's five samples: two silicon pieces, the heterostructure, the InAs film, the GaN film.
+    assert!(samples.len() >= 5, "{samples:?}");
+    let profile = tempfile::tempdir().unwrap();
+    for sample in &samples {
+        let page = out.join(format!("{sample}.html"));
+        assert!(page.is_file(), "no page for {sample}; mobilis wrote:\n{written}");
+        let html = std::fs::read_to_string(&page).unwrap();
+        // Self-contained: nothing is fetched from anywhere.
+        for external in [
+            "src=\"http",
+            "href=\"http",
+            "<link ",
+            "@import",
+            "url(http",
+            "url(\"http",
+            "url('http",
+        ] {
+            assert!(
+                !html.contains(external),
+                "{sample}: the page refers outside itself ({external})"
+            );
+        }
+        assert!(
+            html.contains("support, and do not replace"),
+            "{sample}: the caution is missing"
+        );
+        let figures_in_file = html.matches("<figure class=\"plot\"").count();
+        assert!(figures_in_file >= 1, "{sample}: no figure in the page");
+
+        let dump = headless(&page, "--dump-dom", profile.path());
+        let dom = String::from_utf8_lossy(&dump.stdout);
+        assert!(
+            dump.status.success(),
+            "Chromium failed on {sample}: {}",
+            String::from_utf8_lossy(&dump.stderr)
+        );
+        let figures =
+            html_attribute(&dom, "data-figures").unwrap_or_else(|| panic!("{sample}: the page's script did not run"));
+        let drawn = html_attribute(&dom, "data-figures-drawn").unwrap();
+        assert_eq!(figures, figures_in_file, "{sample}");
+        assert_eq!(
+            drawn, figures,
+            "{sample}: Chromium laid out {drawn} of {figures} figures"
+        );
+    }
+
+    // The silicon report carries the reduction's quality flags and the provenance chain.
+    let silicon = std::fs::read_to_string(out.join("SiRef-centre.html")).unwrap();
+    for expected in [
+        "Quality flags",
+        "hall.reduce",
+        "carriers.freeze_out_fit",
+        "si-wafer/readings.csv",
+        "plugin hall",
+    ] {
+        assert!(silicon.contains(expected), "SiRef-centre.html lacks {expected}");
+    }
+
+    let shot = out.join("SiRef-centre.png");
+    let output = headless(
+        &out.join("SiRef-centre.html"),
+        &format!("--screenshot={}", shot.display()),
+        profile.path(),
+    );
+    assert!(output.status.success(), "{}", String::from_utf8_lossy(&output.stderr));
+    let size = std::fs::metadata(&shot).map(|m| m.len()).unwrap_or(0);
+    assert!(size > 50_000, "the screenshot is suspiciously small ({size} bytes)");
+}

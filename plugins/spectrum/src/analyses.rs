@@ -5,7 +5,7 @@ use crate::mobility_spectrum::{
     mobility_spectrum_of_sweep, GridRange, RegularizationRule, SpectrumError, SpectrumSettings,
 };
 use crate::multi_carrier::{
-    fit_sweep, CarrierSelection, InformationCriterion, MultiCarrierError, MultiCarrierSettings,
+    fit_sweep_monitored, CarrierSelection, InformationCriterion, MultiCarrierError, MultiCarrierSettings,
 };
 use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType};
 use mobilis_core::forward::tensor::CarrierKind;
@@ -116,12 +116,12 @@ impl Analysis for MultiCarrierFitAnalysis {
         if let Some(seed) = params.seed {
             settings.seed = seed;
         }
-        host.progress(0.05, "fitting carriers");
-        host.check_cancelled()?;
-        let result = fit_sweep(&points, &params.sweep.settings(), &settings).map_err(|error| match error {
-            MultiCarrierError::NotConverged { .. } => AnalysisError::Numerical(error.to_string()),
-            other => invalid(other.to_string()),
-        })?;
+        let result =
+            fit_sweep_monitored(&points, &params.sweep.settings(), &settings, host).map_err(|error| match error {
+                MultiCarrierError::Cancelled => AnalysisError::Cancelled,
+                MultiCarrierError::NotConverged { .. } => AnalysisError::Numerical(error.to_string()),
+                other => invalid(other.to_string()),
+            })?;
         let fit = &result.fit;
         let curve = &fit.curve;
         let table = DataFrame::new(

@@ -96,6 +96,7 @@ use mobilis_core::linalg::Matrix;
 use mobilis_core::noise::Rng;
 use mobilis_core::sweep::{conductivity_points, symmetrize};
 
+use crate::mobility_spectrum::{Monitor, Unmonitored};
 use model::Data;
 use seeds::LogBounds;
 
@@ -338,8 +339,18 @@ pub fn fit_sweep(
     sweep_settings: &SymmetrizeSettings,
     settings: &MultiCarrierSettings,
 ) -> Result<SweepFit, MultiCarrierError> {
+    fit_sweep_monitored(points, sweep_settings, settings, &Unmonitored)
+}
+
+/// [`fit_sweep`] with progress reports and cancellation (see [`fit_carriers_monitored`]).
+pub fn fit_sweep_monitored(
+    points: &[SweepPoint],
+    sweep_settings: &SymmetrizeSettings,
+    settings: &MultiCarrierSettings,
+    monitor: &dyn Monitor,
+) -> Result<SweepFit, MultiCarrierError> {
     let symmetrized = symmetrize(points, sweep_settings)?;
-    let fit = fit_carriers(&conductivity_points(&symmetrized), settings)?;
+    let fit = fit_carriers_monitored(&conductivity_points(&symmetrized), settings, monitor)?;
     Ok(SweepFit { symmetrized, fit })
 }
 
@@ -475,6 +486,16 @@ pub fn fit_carriers(
     points: &[TensorPoint],
     settings: &MultiCarrierSettings,
 ) -> Result<MultiCarrierFit, MultiCarrierError> {
+    fit_carriers_monitored(points, settings, &Unmonitored)
+}
+
+/// [`fit_carriers`], reporting after each candidate carrier list of an automatic selection
+/// (the part that runs long: one multi-start fit per list) and stopping when cancelled.
+pub fn fit_carriers_monitored(
+    points: &[TensorPoint],
+    settings: &MultiCarrierSettings,
+    monitor: &dyn Monitor,
+) -> Result<MultiCarrierFit, MultiCarrierError> {
     let bounds = validate_settings(settings)?;
     let data = Data::new(points)?;
     let too_few = |carriers: usize| MultiCarrierError::TooFewPoints {
@@ -517,9 +538,20 @@ pub fn fit_carriers(
             let mut best: Option<CandidateFit> = None;
             let mut first_error: Option<MultiCarrierError> = None;
             let mut improved_at_last = false;
+            // n carriers come in n + 1 sign mixtures: lists 1 + 2 + ... with n = 1..=allowed.
+            let total_lists = (allowed * (allowed + 3) / 2) as f64;
+            let mut lists_done = 0usize;
             for n in 1..=allowed {
                 let mut best_here: Option<CandidateFit> = None;
                 for holes in 0..=n {
+                    if monitor.is_cancelled() {
+                        return Err(MultiCarrierError::Cancelled);
+                    }
+                    monitor.progress(
+                        lists_done as f64 / total_lists,
+                        &format!("fitting {n} carrier(s), {holes} of them holes"),
+                    );
+                    lists_done += 1;
                     let kinds: Vec<CarrierKind> = std::iter::repeat_n(CarrierKind::Electron, n - holes)
                         .chain(std::iter::repeat_n(CarrierKind::Hole, holes))
                         .collect();

@@ -71,6 +71,8 @@ pub enum MultiCarrierError {
     },
     /// Any other failure of the least-squares solver.
     Fit { kinds: Vec<CarrierKind>, error: FitError },
+    /// The caller asked to stop between two candidate carrier lists.
+    Cancelled,
 }
 
 fn kinds_text(kinds: &[CarrierKind]) -> String {
@@ -82,6 +84,7 @@ impl fmt::Display for MultiCarrierError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
             MultiCarrierError::Sweep(error) => write!(f, "{error}"),
+            MultiCarrierError::Cancelled => write!(f, "cancelled by the client"),
             MultiCarrierError::NoPoints => {
                 write!(f, "no conductivity points were given; give sigma_xx and sigma_xy over a field sweep")
             }

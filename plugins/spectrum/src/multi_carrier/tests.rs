@@ -452,3 +452,40 @@ fn multi_carrier_refuses_bad_input_with_clear_errors() {
         assert!(!error.to_string().ends_with('.'), "{error}");
     }
 }
+
+/// Records progress and cancels after `cancel_after` reports.
+struct Recorder {
+    fractions: std::cell::RefCell<Vec<f64>>,
+    cancel_after: usize,
+}
+
+impl Monitor for Recorder {
+    fn progress(&self, fraction: f64, _message: &str) {
+        self.fractions.borrow_mut().push(fraction);
+    }
+    fn is_cancelled(&self) -> bool {
+        self.fractions.borrow().len() >= self.cancel_after
+    }
+}
+
+#[test]
+fn automatic_selection_reports_each_candidate_list_and_stops_when_cancelled() {
+    let fields: Vec<f64> = (0..=20).map(|i| 0.45 * i as f64).collect();
+    let points = exact_points(&[Carrier::electron(4e15, 1.5), Carrier::hole(3e17, 0.02)], &fields);
+    let watching = Recorder {
+        fractions: Default::default(),
+        cancel_after: usize::MAX,
+    };
+    fit_carriers_monitored(&points, &MultiCarrierSettings::default(), &watching).unwrap();
+    let fractions = watching.fractions.into_inner();
+    assert!(fractions.len() >= 2, "{fractions:?}");
+    assert!(fractions.windows(2).all(|w| w[0] < w[1]), "{fractions:?}");
+    assert!(fractions.iter().all(|f| (0.0..1.0).contains(f)), "{fractions:?}");
+
+    let impatient = Recorder {
+        fractions: Default::default(),
+        cancel_after: 1,
+    };
+    let error = fit_carriers_monitored(&points, &MultiCarrierSettings::default(), &impatient).unwrap_err();
+    assert!(matches!(error, MultiCarrierError::Cancelled), "{error}");
+}

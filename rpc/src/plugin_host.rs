@@ -137,10 +137,15 @@ impl CallControl {
 
     /// Sets the span the next invocation reports into and announces its start.
     pub fn enter(&self, span: ProgressSpan) {
+        let labelled = !span.label.is_empty();
         if let Ok(mut slot) = self.span.lock() {
             *slot = span;
         }
-        self.record(0.0, "");
+        // A labelled part (a group, a pipeline step) says it has started; a whole call
+        // leaves its first word to the plugin.
+        if labelled {
+            self.record(0.0, "");
+        }
     }
 
     /// Records a plugin's fraction of its own invocation (0 to 1) as progress of the whole call.

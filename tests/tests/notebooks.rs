@@ -2,6 +2,7 @@
 //! in by `build.rs`) and of `notebooks/demo-deno.ipynb` (run under Node with the JS client)
 //! against a real daemon that may read the demo data.
 
+use mobilis_tests::node::{node_command, run_with_timeout};
 use mobilis_tests::{workspace_root, TestDaemon};
 
 /// The Rust notebook's code cells, in order, as one block.
@@ -39,4 +40,79 @@ fn the_rust_notebook_runs_against_a_real_daemon() {
     for expected in ["si-readings", "si-hall", "si-freeze-out", "si-arrhenius"] {
         assert!(names.contains(&expected), "the notebook stored {names:?}");
     }
+}
+
+/// Stands in for the Deno kernel under Node: `Deno.env`, `Deno.cwd` and a
+/// `Deno.jupyter.display` that records what the notebook shows, checked at the end.
+const DENO_STAND_IN: &str = r#"
+const shown = [];
+globalThis.Deno = {
+  env: { get: (name) => process.env[name] },
+  cwd: () => process.cwd(),
+  jupyter: { display: async (bundle, options) => { shown.push({ bundle, options }); } },
+};
+"#;
+
+const DISPLAY_CHECK: &str = r#"
+if (shown.length < 7) throw new Error(`the notebook showed ${shown.length} figures, 7 expected`);
+for (const { bundle, options } of shown) {
+  if (!options?.raw) throw new Error("figures are shown as raw MIME bundles");
+  if (!String(bundle["image/svg+xml"]).startsWith("<svg")) throw new Error("a figure without SVG");
+  const spec = bundle["application/vnd.vegalite.v5+json"];
+  if (!String(spec?.$schema).includes("vega-lite/v5")) throw new Error("a figure without a Vega-Lite v5 spec");
+}
+console.log(`notebook ran; ${shown.length} figures shown`);
+"#;
+
+/// The code cells of a notebook, in order.
+fn code_cells(notebook: &std::path::Path) -> Vec<String> {
+    let text = std::fs::read_to_string(notebook).expect("the notebook is readable");
+    let notebook: serde_json::Value = serde_json::from_str(&text).expect("the notebook is JSON");
+    notebook["cells"]
+        .as_array()
+        .expect("a cells array")
+        .iter()
+        .filter(|cell| cell["cell_type"] == "code")
+        .map(|cell| match &cell["source"] {
+            serde_json::Value::Array(lines) => lines.iter().filter_map(|l| l.as_str()).collect(),
+            other => other.as_str().unwrap_or_default().to_owned(),
+        })
+        .collect()
+}
+
+#[test]
+fn the_javascript_notebook_runs_under_node_against_a_real_daemon() {
+    let runtime = tokio::runtime::Runtime::new().unwrap();
+    let daemon = daemon_with_demo_data(&runtime);
+    let client = workspace_root().join("clients/js/mobilis.js");
+    let client_url = format!("file://{}", client.display());
+    let mut module = String::from(DENO_STAND_IN);
+    for (index, cell) in code_cells(&workspace_root().join("notebooks/demo-deno.ipynb"))
+        .iter()
+        .enumerate()
+    {
+        // The notebook imports the client relative to its own directory.
+        let cell = cell.replace("\"../clients/js/mobilis.js\"", &format!("{client_url:?}"));
+        // Cells share one scope, as in the kernel, so they are not wrapped in blocks.
+        module.push_str(&format!("\n// cell {}\n", index + 1));
+        module.push_str(&cell);
+        module.push('\n');
+    }
+    module.push_str(DISPLAY_CHECK);
+    let scratch = tempfile::tempdir().unwrap();
+    let script = scratch.path().join("demo-deno.mjs");
+    std::fs::write(&script, &module).unwrap();
+
+    let mut node = node_command();
+    node.arg(&script)
+        .current_dir(workspace_root().join("notebooks"))
+        .env("MOBILIS_URL", daemon.daemon.url())
+        .env("MOBILIS_DEMO_DATA", workspace_root().join("demo-data"));
+    let (status, output) = run_with_timeout(node, std::time::Duration::from_secs(600));
+    println!("{output}");
+    assert!(
+        status.is_some_and(|s| s.success()),
+        "a cell of notebooks/demo-deno.ipynb failed ({status:?}):\n{output}"
+    );
+    assert!(output.contains("figures shown"), "{output}");
 }

@@ -1,0 +1,78 @@
+//! The JavaScript client's tests (`clients/js/test/*.test.mjs`, Node's test runner) against a
+//! real daemon: this test starts `mobilisd` with the workspace's plugins and the fixture
+//! plugin (for `fixture.wait`), installs the client's test dependencies with `npm ci` when
+//! `clients/js/node_modules` is missing, and runs `node --test` with `MOBILIS_URL` set.
+//! Node.js 20 or later must be installed; without it the test fails and says so.
+
+use mobilis_tests::node::{install_npm_dependencies, node_command, run_with_timeout};
+use mobilis_tests::{ensure_built, plugin_library, workspace_root, TestDaemon};
+use std::path::{Path, PathBuf};
+use std::time::Duration;
+
+/// How long the Node tests may take in all (they take seconds; a debug daemon on a busy
+/// 2-core machine is slower).
+const NODE_TIMEOUT: Duration = Duration::from_secs(600);
+
+/// A temporary directory with links to the workspace's plugins and the fixture plugin.
+fn plugin_dir() -> tempfile::TempDir {
+    let fixture = plugin_library("test_fixture_plugin");
+    let prefix = format!("{}mobilis_", std::env::consts::DLL_PREFIX);
+    let mut libraries: Vec<PathBuf> = std::fs::read_dir(ensure_built())
+        .expect("the build directory is readable")
+        .flatten()
+        .map(|entry| entry.path())
+        .filter(|path| {
+            let name = path.file_name().and_then(|n| n.to_str()).unwrap_or("");
+            name.starts_with(&prefix) && name.ends_with(std::env::consts::DLL_SUFFIX)
+        })
+        .collect();
+    libraries.push(fixture);
+    let dir = tempfile::tempdir().expect("temporary directory");
+    for library in libraries {
+        let link = dir.path().join(library.file_name().expect("a file name"));
+        #[cfg(unix)]
+        std::os::unix::fs::symlink(&library, &link).expect("link a plugin");
+        #[cfg(not(unix))]
+        std::fs::copy(&library, &link).expect("copy a plugin");
+    }
+    dir
+}
+
+/// The Node test files, relative to `clients/js`.
+fn test_files(client_dir: &Path) -> Vec<String> {
+    let mut files: Vec<String> = std::fs::read_dir(client_dir.join("test"))
+        .expect("clients/js/test exists")
+        .flatten()
+        .filter_map(|entry| entry.file_name().into_string().ok())
+        .filter(|name| name.ends_with(".test.mjs"))
+        .map(|name| format!("test/{name}"))
+        .collect();
+    files.sort();
+    assert!(!files.is_empty(), "no *.test.mjs files in clients/js/test");
+    files
+}
+
+#[tokio::test(flavor = "multi_thread")]
+async fn the_javascript_client_passes_its_node_tests() {
+    let client_dir = workspace_root().join("clients/js");
+    install_npm_dependencies(&client_dir);
+    let plugins = plugin_dir();
+    let plugin_path = plugins.path().to_owned();
+    let daemon = TestDaemon::start_with(move |options| options.plugin_dirs.push(plugin_path)).await;
+
+    let mut node = node_command();
+    node.args(["--test", "--test-reporter=spec"])
+        .args(test_files(&client_dir))
+        .current_dir(&client_dir)
+        .env("MOBILIS_URL", daemon.daemon.url())
+        .env("MOBILIS_DATA", &daemon.data);
+    let (status, output) = tokio::task::spawn_blocking(move || run_with_timeout(node, NODE_TIMEOUT))
+        .await
+        .expect("the waiting task does not panic");
+    println!("{output}");
+    match status {
+        Some(status) => assert!(status.success(), "node --test failed ({status}):\n{output}"),
+        None => panic!("node --test ran longer than {NODE_TIMEOUT:?} and was stopped:\n{output}"),
+    }
+    drop(daemon);
+}

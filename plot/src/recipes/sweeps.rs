@@ -291,27 +291,35 @@ pub(crate) fn kohler(ctx: &Context) -> Result<Drawing, PlotError> {
     })
 }
 
+/// One solid line per sweep (sample and temperature) of `rows`, labelled by the sweep, or by
+/// `fallback` when there is a single unlabelled one.
+fn lines_per_sweep(
+    ctx: &Context,
+    rows: &[usize],
+    x: &[f64],
+    y: &[f64],
+    fallback: &str,
+) -> Result<Vec<Series>, PlotError> {
+    let groups = ctx.groups(rows, &["sample", "temperature_K"])?;
+    Ok(groups
+        .iter()
+        .enumerate()
+        .map(|(k, g)| {
+            let label = if g.label.is_empty() {
+                fallback.to_owned()
+            } else {
+                g.label.clone()
+            };
+            Series::line(label, k, Dash::Solid, points(&g.rows, x, y, None))
+        })
+        .collect())
+}
+
 pub(crate) fn oscillation_fft(ctx: &Context) -> Result<Drawing, PlotError> {
     let rows = ctx.rows_of_kind("fft")?;
     let frequency = ctx.displayed("frequency_T")?;
     let amplitude = ctx.displayed("value_ohm_sq")?;
-    let groups = ctx.groups(&rows, &["sample", "temperature_K"])?;
-    let series = groups
-        .iter()
-        .enumerate()
-        .map(|(k, g)| {
-            Series::line(
-                if g.label.is_empty() {
-                    "FFT".to_owned()
-                } else {
-                    g.label.clone()
-                },
-                k,
-                Dash::Solid,
-                points(&g.rows, &frequency, &amplitude, None),
-            )
-        })
-        .collect();
+    let series = lines_per_sweep(ctx, &rows, &frequency, &amplitude, "FFT")?;
     Ok(Drawing {
         title: "Shubnikov-de Haas oscillation spectrum".into(),
         panels: vec![Panel::new(
@@ -392,23 +400,7 @@ pub(crate) fn oscillation_curves(ctx: &Context) -> Result<Drawing, PlotError> {
     let rows = ctx.rows_of_kind("oscillation")?;
     let inverse_field = ctx.floats("inverse_field_per_T")?;
     let value = ctx.displayed("value_ohm_sq")?;
-    let groups = ctx.groups(&rows, &["sample", "temperature_K"])?;
-    let series = groups
-        .iter()
-        .enumerate()
-        .map(|(k, g)| {
-            Series::line(
-                if g.label.is_empty() {
-                    "Δρ_{xx}".to_owned()
-                } else {
-                    g.label.clone()
-                },
-                k,
-                Dash::Solid,
-                points(&g.rows, &inverse_field, &value, None),
-            )
-        })
-        .collect();
+    let series = lines_per_sweep(ctx, &rows, &inverse_field, &value, "Δρ_{xx}")?;
     Ok(Drawing {
         title: "Shubnikov-de Haas oscillations (background removed)".into(),
         panels: vec![Panel::new(

@@ -6,6 +6,11 @@
 //! Origin that is not explicitly allowed (`--allow-origin`) are refused. Clients that are
 //! not browsers (the CLI, curl, notebooks' HTTP libraries) send no Origin and pass. When
 //! the daemon listens beyond loopback it requires `Authorization: Bearer <token>`.
+//!
+//! Pages of an allowed origin get what browsers need to read the answers (CORS): their
+//! preflight is answered here, before the token check (browsers send no credentials with a
+//! preflight), and every answer names the origin in `Access-Control-Allow-Origin`. Browser
+//! WebSockets cannot set headers, so a page reaching a token-protected daemon uses HTTP.
 
 use jsonrpsee::server::{HttpBody, HttpRequest, HttpResponse, Server, ServerConfig, ServerHandle};
 use jsonrpsee::RpcModule;
@@ -35,22 +40,48 @@ pub struct AccessPolicy {
     pub token: Option<String>,
 }
 
+/// What the access layer decided about a request.
+enum Verdict {
+    Pass,
+    /// A browser's CORS preflight from an allowed origin: answered here, before the token
+    /// check, because browsers never send credentials with a preflight.
+    Preflight(String),
+    Refuse(u16, String),
+}
+
 impl AccessPolicy {
-    /// `None` when the request may pass, else the reason for refusing it.
-    fn check(&self, request: &HttpRequest<impl Sized>) -> Option<(u16, String)> {
-        if let Some(origin) = request.headers().get("origin") {
-            let origin = origin.to_str().unwrap_or("");
+    /// The request's Origin header, if it has one.
+    fn origin(request: &HttpRequest<impl Sized>) -> Option<String> {
+        request
+            .headers()
+            .get("origin")
+            .map(|origin| origin.to_str().unwrap_or("").to_owned())
+    }
+
+    fn judge(&self, request: &HttpRequest<impl Sized>) -> Verdict {
+        if let Some(origin) = Self::origin(request) {
             if !self
                 .allowed_origins
                 .iter()
-                .any(|allowed| allowed == origin || allowed == "*")
+                .any(|allowed| *allowed == origin || allowed == "*")
             {
-                return Some((
+                return Verdict::Refuse(
                     403,
                     format!("requests from origin {origin} are not allowed; start mobilisd with --allow-origin {origin} to allow this page"),
-                ));
+                );
+            }
+            if request.method() == http::Method::OPTIONS {
+                return Verdict::Preflight(origin);
             }
         }
+        match self.check_token(request) {
+            Some((status, message)) => Verdict::Refuse(status, message),
+            None => Verdict::Pass,
+        }
+    }
+
+    /// `None` when the request carries the token (or none is required), else the refusal.
+    fn check_token(&self, request: &HttpRequest<impl Sized>) -> Option<(u16, String)> {
         if let Some(token) = &self.token {
             let presented = request
                 .headers()
@@ -105,23 +136,48 @@ where
     }
 
     fn call(&mut self, request: HttpRequest<B>) -> Self::Future {
-        if let Some((status, message)) = self.policy.check(&request) {
-            tracing::warn!(status, %message, "request refused");
-            let body = serde_json::json!({
-                "jsonrpc": "2.0",
-                "id": null,
-                "error": {"code": -32600, "message": message}
-            })
-            .to_string();
-            let response = HttpResponse::builder()
-                .status(status)
-                .header("content-type", "application/json")
-                .body(HttpBody::from(body))
-                .expect("static response parts are valid");
-            return Box::pin(async move { Ok(response) });
-        }
-        let future = self.inner.call(request);
-        Box::pin(async move { future.await.map_err(Into::into) })
+        let (status, message) = match self.policy.judge(&request) {
+            Verdict::Pass => {
+                // An allowed page may read the answer (CORS); other clients send no Origin.
+                let origin = AccessPolicy::origin(&request);
+                let future = self.inner.call(request);
+                return Box::pin(async move {
+                    let mut response = future.await.map_err(Into::into)?;
+                    if let Some(origin) = origin.and_then(|o| http::HeaderValue::from_str(&o).ok()) {
+                        let headers = response.headers_mut();
+                        headers.insert("access-control-allow-origin", origin);
+                        headers.insert("vary", http::HeaderValue::from_static("Origin"));
+                    }
+                    Ok(response)
+                });
+            }
+            Verdict::Preflight(origin) => {
+                let response = HttpResponse::builder()
+                    .status(204)
+                    .header("access-control-allow-origin", origin)
+                    .header("access-control-allow-methods", "POST, OPTIONS")
+                    .header("access-control-allow-headers", "content-type, authorization")
+                    .header("access-control-max-age", "600")
+                    .header("vary", "Origin")
+                    .body(HttpBody::from(""))
+                    .expect("static response parts are valid");
+                return Box::pin(async move { Ok(response) });
+            }
+            Verdict::Refuse(status, message) => (status, message),
+        };
+        tracing::warn!(status, %message, "request refused");
+        let body = serde_json::json!({
+            "jsonrpc": "2.0",
+            "id": null,
+            "error": {"code": -32600, "message": message}
+        })
+        .to_string();
+        let response = HttpResponse::builder()
+            .status(status)
+            .header("content-type", "application/json")
+            .body(HttpBody::from(body))
+            .expect("static response parts are valid");
+        Box::pin(async move { Ok(response) })
     }
 }
 

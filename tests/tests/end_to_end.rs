@@ -464,9 +464,15 @@ async fn bad_requests_get_clear_errors(daemon: &TestDaemon, readings: &[RawReadi
 
 /// Sends one raw HTTP request and returns the status line and body.
 fn raw_http(url: &str, headers: &[(&str, &str)], body: &str) -> (String, String) {
+    let (status, _, body) = raw_request("POST", url, headers, body);
+    (status, body)
+}
+
+/// One HTTP/1.1 request; returns the status line, the header block and the body.
+fn raw_request(method: &str, url: &str, headers: &[(&str, &str)], body: &str) -> (String, String, String) {
     let address = url.strip_prefix("http://").unwrap();
     let mut stream = std::net::TcpStream::connect(address).unwrap();
-    let mut request = format!("POST / HTTP/1.1\r\nHost: {address}\r\nContent-Type: application/json\r\nContent-Length: {}\r\nConnection: close\r\n", body.len());
+    let mut request = format!("{method} / HTTP/1.1\r\nHost: {address}\r\nContent-Type: application/json\r\nContent-Length: {}\r\nConnection: close\r\n", body.len());
     for (name, value) in headers {
         request += &format!("{name}: {value}\r\n");
     }
@@ -476,8 +482,8 @@ fn raw_http(url: &str, headers: &[(&str, &str)], body: &str) -> (String, String)
     let mut response = String::new();
     stream.read_to_string(&mut response).unwrap();
     let status = response.lines().next().unwrap_or("").to_owned();
-    let body = response.split("\r\n\r\n").nth(1).unwrap_or("").to_owned();
-    (status, body)
+    let (head, body) = response.split_once("\r\n\r\n").unwrap_or((&response, ""));
+    (status, head.to_ascii_lowercase(), body.to_owned())
 }
 
 #[tokio::test(flavor = "multi_thread")]
@@ -512,6 +518,39 @@ async fn web_pages_cannot_drive_the_daemon_unless_allowed_and_tokens_are_enforce
     assert!(status.contains("200") && body.contains("mobilisd"), "{status} {body}");
     let (status, body) = raw_http(&url, &[("Authorization", "Bearer s3cret")], request);
     assert!(status.contains("200") && body.contains("mobilisd"), "{status} {body}");
+    // A browser's CORS preflight from the allowed page is answered without the token (browsers
+    // send none with it); the answer to the real request names the page's origin.
+    let (status, head, _) = raw_request(
+        "OPTIONS",
+        &url,
+        &[
+            ("Origin", "http://localhost:5173"),
+            ("Access-Control-Request-Method", "POST"),
+            ("Access-Control-Request-Headers", "authorization, content-type"),
+        ],
+        "",
+    );
+    assert!(status.contains("204"), "{status}");
+    assert!(
+        head.contains("access-control-allow-origin: http://localhost:5173"),
+        "{head}"
+    );
+    assert!(
+        head.contains("access-control-allow-headers: content-type, authorization"),
+        "{head}"
+    );
+    let (status, _, _) = raw_request("OPTIONS", &url, &[("Origin", "http://evil.example")], "");
+    assert!(status.contains("403"), "{status}");
+    let (_, head, _) = raw_request(
+        "POST",
+        &url,
+        &[("Origin", "http://localhost:5173"), ("Authorization", "Bearer s3cret")],
+        request,
+    );
+    assert!(
+        head.contains("access-control-allow-origin: http://localhost:5173"),
+        "{head}"
+    );
     // The WebSocket client presents the token too.
     let client = mobilis_client::Client::connect(&url, Some("s3cret")).await.unwrap();
     assert_eq!(client.call("server.info", json!({})).await.unwrap()["name"], "mobilisd");
@@ -556,9 +595,14 @@ fn the_stdio_transport_speaks_content_length_frames() {
         .filter(|part| !part.is_empty())
         .map(|part| serde_json::from_str(part.split_once("\r\n\r\n").unwrap().1).unwrap())
         .collect();
+    // Requests are served concurrently, so answers come in any order; ids tell them apart.
     assert_eq!(bodies.len(), 3, "{text}");
-    assert_eq!(bodies[0]["result"]["name"], "mobilisd");
-    assert_eq!(bodies[1].as_array().unwrap().len(), 2);
-    assert_eq!(bodies[1][1]["error"]["code"], 4002);
-    assert_eq!(bodies[2]["error"]["code"], -32700);
+    let info = bodies.iter().find(|b| b["id"] == 1).expect("the server.info answer");
+    assert_eq!(info["result"]["name"], "mobilisd");
+    let batch = bodies.iter().find_map(|b| b.as_array()).expect("the batch answer");
+    assert_eq!(batch.len(), 2);
+    let rows = batch.iter().find(|b| b["id"] == 3).expect("the dataset.rows answer");
+    assert_eq!(rows["error"]["code"], 4002);
+    let parse_error = bodies.iter().find(|b| b["id"].is_null()).expect("the parse error");
+    assert_eq!(parse_error["error"]["code"], -32700);
 }

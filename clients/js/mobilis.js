@@ -25,10 +25,11 @@
  * Over HTTP the client sends that header. The daemon accepts the token in no other way (no
  * query parameter, no subprotocol), and the browser WebSocket API cannot set headers, so
  * over WebSocket the token works only where the constructor takes a non-standard
- * `{headers}` option: Node's built-in WebSocket does, Deno's only in recent versions. The
- * daemon also answers no CORS preflight, so a browser page (always of another origin than
- * the daemon) can use the WebSocket transport only, started with `--allow-origin`: a
- * token-protected daemon cannot be reached from a browser.
+ * `{headers}` option: Node's built-in WebSocket does, Deno's only in recent versions. A
+ * browser page (always of another origin than the daemon, which must be started with
+ * `--allow-origin <page origin>`) uses either transport without a token, and `transport:
+ * "http"` with one: the daemon answers the page's CORS preflight and names the origin in its
+ * answers.
  *
  * @module mobilis
  */
@@ -417,7 +418,7 @@ class HttpTransport {
     } catch (cause) {
       const hint =
         typeof document !== "undefined"
-          ? " (from a browser page: the daemon answers no CORS requests; use the WebSocket transport)"
+          ? " (from a browser page: was the daemon started with --allow-origin naming this page's origin?)"
           : "";
       throw transportError(`cannot reach the daemon at ${this.url}${hint}: ${String(cause)}`, cause, method);
     }

@@ -1,8 +1,8 @@
 //! The example notebooks run: every code cell of `notebooks/rust-client.ipynb` (compiled
-//! in by `build.rs`) and of `notebooks/demo-deno.ipynb` (run under Node with the JS client)
-//! against a real daemon that may read the demo data.
+//! in by `build.rs`) and of `notebooks/demo-deno.ipynb` (run under Deno, the notebook's own
+//! runtime, with the JS client) against a real daemon that may read the demo data.
 
-use mobilis_tests::node::{node_command, run_with_timeout};
+use mobilis_tests::node::{install_npm_dependencies, run_with_timeout};
 use mobilis_tests::{workspace_root, TestDaemon};
 
 /// The Rust notebook's code cells, in order, as one block.
@@ -42,15 +42,11 @@ fn the_rust_notebook_runs_against_a_real_daemon() {
     }
 }
 
-/// Stands in for the Deno kernel under Node: `Deno.env`, `Deno.cwd` and a
-/// `Deno.jupyter.display` that records what the notebook shows, checked at the end.
-const DENO_STAND_IN: &str = r#"
+/// `Deno.jupyter` exists only inside `deno jupyter`; under `deno run` the notebook's
+/// `Deno.jupyter.display` calls go to this stand-in, which records what would be shown.
+const JUPYTER_STAND_IN: &str = r#"
 const shown = [];
-globalThis.Deno = {
-  env: { get: (name) => process.env[name] },
-  cwd: () => process.cwd(),
-  jupyter: { display: async (bundle, options) => { shown.push({ bundle, options }); } },
-};
+const jupyterStandIn = { display: async (bundle, options) => { shown.push({ bundle, options }); } };
 "#;
 
 const DISPLAY_CHECK: &str = r#"
@@ -81,18 +77,26 @@ fn code_cells(notebook: &std::path::Path) -> Vec<String> {
 }
 
 #[test]
-fn the_javascript_notebook_runs_under_node_against_a_real_daemon() {
+fn the_javascript_notebook_runs_under_deno_against_a_real_daemon() {
+    // Deno comes from the npm registry as a test-only dependency of the JS client.
+    let client_dir = workspace_root().join("clients/js");
+    install_npm_dependencies(&client_dir);
+    let deno = client_dir.join("node_modules/.bin/deno");
+    assert!(deno.is_file(), "{} is missing after npm ci", deno.display());
+
     let runtime = tokio::runtime::Runtime::new().unwrap();
     let daemon = daemon_with_demo_data(&runtime);
-    let client = workspace_root().join("clients/js/mobilis.js");
-    let client_url = format!("file://{}", client.display());
-    let mut module = String::from(DENO_STAND_IN);
+    let client_url = format!("file://{}", client_dir.join("mobilis.js").display());
+    let mut module = String::from(JUPYTER_STAND_IN);
     for (index, cell) in code_cells(&workspace_root().join("notebooks/demo-deno.ipynb"))
         .iter()
         .enumerate()
     {
-        // The notebook imports the client relative to its own directory.
-        let cell = cell.replace("\"../clients/js/mobilis.js\"", &format!("{client_url:?}"));
+        // The notebook imports the client relative to its own directory, and displays
+        // through the kernel.
+        let cell = cell
+            .replace("\"../clients/js/mobilis.js\"", &format!("{client_url:?}"))
+            .replace("Deno.jupyter.", "jupyterStandIn.");
         // Cells share one scope, as in the kernel, so they are not wrapped in blocks.
         module.push_str(&format!("\n// cell {}\n", index + 1));
         module.push_str(&cell);
@@ -100,19 +104,22 @@ fn the_javascript_notebook_runs_under_node_against_a_real_daemon() {
     }
     module.push_str(DISPLAY_CHECK);
     let scratch = tempfile::tempdir().unwrap();
-    let script = scratch.path().join("demo-deno.mjs");
+    let script = scratch.path().join("demo-deno.js");
     std::fs::write(&script, &module).unwrap();
 
-    let mut node = node_command();
-    node.arg(&script)
+    let mut command = std::process::Command::new(&deno);
+    command
+        .args(["run", "--allow-net", "--allow-env", "--allow-read", "--no-prompt"])
+        .arg(&script)
         .current_dir(workspace_root().join("notebooks"))
         .env("MOBILIS_URL", daemon.daemon.url())
-        .env("MOBILIS_DEMO_DATA", workspace_root().join("demo-data"));
-    let (status, output) = run_with_timeout(node, std::time::Duration::from_secs(600));
+        .env("MOBILIS_DEMO_DATA", workspace_root().join("demo-data"))
+        .env("NO_COLOR", "1");
+    let (status, output) = run_with_timeout(command, std::time::Duration::from_secs(600));
     println!("{output}");
     assert!(
         status.is_some_and(|s| s.success()),
-        "a cell of notebooks/demo-deno.ipynb failed ({status:?}):\n{output}"
+        "a cell of notebooks/demo-deno.ipynb failed under Deno ({status:?}):\n{output}"
     );
     assert!(output.contains("figures shown"), "{output}");
 }

@@ -385,17 +385,25 @@ fn apply_prefix(label: &mut Label, series: &mut [Series], axis: Axis) {
 }
 
 /// Every x and y that must fit on the axes, error bars included (on a log axis only their
-/// positive ends).
+/// positive ends). When a panel has measured points, they alone set the y range: a fitted
+/// curve drawn beside them (a Lifshitz-Kosevich fit extrapolated to where the signal is
+/// gone, say) is clipped to the plot area rather than stretching it over decades of nothing.
 fn extents(series: &[Series]) -> (Vec<f64>, Vec<f64>) {
+    let has_points = series.iter().any(|s| !s.is_line() && s.drawn_points() > 0);
     let (mut xs, mut ys) = (Vec::new(), Vec::new());
-    for point in series.iter().flat_map(|s| s.runs.iter().flatten()) {
-        xs.push(point.x);
-        ys.push(point.y);
-        if let Some(e) = point.x_err {
-            xs.extend([point.x - e, point.x + e]);
-        }
-        if let Some(e) = point.y_err {
-            ys.extend([point.y - e, point.y + e]);
+    for s in series {
+        let sets_y = !has_points || !s.is_line();
+        for point in s.runs.iter().flatten() {
+            xs.push(point.x);
+            if let Some(e) = point.x_err {
+                xs.extend([point.x - e, point.x + e]);
+            }
+            if sets_y {
+                ys.push(point.y);
+                if let Some(e) = point.y_err {
+                    ys.extend([point.y - e, point.y + e]);
+                }
+            }
         }
     }
     (xs, ys)
@@ -573,6 +581,33 @@ pub(crate) fn text_width(markup: &str, font_size: f64) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn measured_points_alone_set_the_y_range_beside_a_fitted_curve() {
+        let measured = Series::points(
+            "data",
+            0,
+            SHAPES[0],
+            true,
+            vec![Point::new(2.0, 10.0), Point::new(4.0, 1.0)],
+        );
+        let fit = Series::line(
+            "fit",
+            0,
+            Dash::Solid,
+            vec![Point::new(1.0, 30.0), Point::new(12.0, 1e-12)],
+        );
+        let [measured, fit] = [measured, fit].map(|mut series| {
+            series.runs = drawable_runs(&series, false, true);
+            series
+        });
+        let (xs, ys) = extents(&[measured.clone(), fit.clone()]);
+        assert_eq!(ys, vec![10.0, 1.0], "the fit does not stretch the y axis");
+        assert!(xs.contains(&12.0) && xs.contains(&1.0), "but it does widen x");
+        // A panel of lines only is ranged by its lines.
+        let (_, ys) = extents(&[fit]);
+        assert_eq!(ys, vec![30.0, 1e-12]);
+    }
 
     #[test]
     fn nice_steps_are_one_two_five() {

@@ -315,10 +315,34 @@ fn lines_per_sweep(
         .collect())
 }
 
+/// The FFT is kept up to 1.5 times the highest frequency whose amplitude reaches 2 % of the
+/// strongest line: the transform runs to the grid's Nyquist frequency, often ten times the
+/// lines, and the lines would otherwise crowd the left edge.
+const FFT_VISIBLE_FRACTION: f64 = 0.02;
+const FFT_MARGIN: f64 = 1.5;
+
 pub(crate) fn oscillation_fft(ctx: &Context) -> Result<Drawing, PlotError> {
     let rows = ctx.rows_of_kind("fft")?;
     let frequency = ctx.displayed("frequency_T")?;
     let amplitude = ctx.displayed("value_ohm_sq")?;
+    let strongest = rows
+        .iter()
+        .map(|&r| amplitude[r].abs())
+        .filter(|a| a.is_finite())
+        .fold(0.0, f64::max);
+    let highest_line = rows
+        .iter()
+        .filter(|&&r| amplitude[r].abs() >= FFT_VISIBLE_FRACTION * strongest)
+        .map(|&r| frequency[r])
+        .filter(|f| f.is_finite())
+        .fold(0.0, f64::max);
+    let rows: Vec<usize> = if highest_line > 0.0 {
+        rows.into_iter()
+            .filter(|&r| frequency[r] <= FFT_MARGIN * highest_line)
+            .collect()
+    } else {
+        rows
+    };
     let series = lines_per_sweep(ctx, &rows, &frequency, &amplitude, "FFT")?;
     Ok(Drawing {
         title: "Shubnikov-de Haas oscillation spectrum".into(),

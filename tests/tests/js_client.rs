@@ -58,14 +58,22 @@ async fn the_javascript_client_passes_its_node_tests() {
     install_npm_dependencies(&client_dir);
     let plugins = plugin_dir();
     let plugin_path = plugins.path().to_owned();
-    let daemon = TestDaemon::start_with(move |options| options.plugin_dirs.push(plugin_path)).await;
+    // The figure tests draw analysis outputs of the demo data.
+    let demo_data = workspace_root().join("demo-data");
+    let demo_root = demo_data.clone();
+    let daemon = TestDaemon::start_with(move |options| {
+        options.plugin_dirs.push(plugin_path);
+        options.data_roots.push(demo_root);
+    })
+    .await;
 
     let mut node = node_command();
     node.args(["--test", "--test-reporter=spec"])
         .args(test_files(&client_dir))
         .current_dir(&client_dir)
         .env("MOBILIS_URL", daemon.daemon.url())
-        .env("MOBILIS_DATA", &daemon.data);
+        .env("MOBILIS_DATA", &daemon.data)
+        .env("MOBILIS_DEMO_DATA", &demo_data);
     let (status, output) = tokio::task::spawn_blocking(move || run_with_timeout(node, NODE_TIMEOUT))
         .await
         .expect("the waiting task does not panic");

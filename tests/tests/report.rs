@@ -57,9 +57,10 @@ fn html_attribute(dom: &str, name: &str) -> Option<usize> {
     tag[value_start..].split('"').next()?.parse().ok()
 }
 
-fn mobilis(url: &str, arguments: &[&str]) -> String {
+/// Runs the CLI; returns what it printed on stdout and on stderr.
+fn mobilis(url: &str, progress: &str, arguments: &[&str]) -> (String, String) {
     let output = Command::new(ensure_built().join("mobilis"))
-        .args(["--url", url, "--progress", "never"])
+        .args(["--url", url, "--progress", progress])
         .args(arguments)
         .output()
         .expect("mobilis runs");
@@ -69,7 +70,10 @@ fn mobilis(url: &str, arguments: &[&str]) -> String {
         String::from_utf8_lossy(&output.stdout),
         String::from_utf8_lossy(&output.stderr)
     );
-    String::from_utf8_lossy(&output.stdout).into_owned()
+    (
+        String::from_utf8_lossy(&output.stdout).into_owned(),
+        String::from_utf8_lossy(&output.stderr).into_owned(),
+    )
 }
 
 #[tokio::test(flavor = "multi_thread")]
@@ -79,12 +83,18 @@ async fn each_sample_gets_a_page_that_renders_with_its_figures() {
     let daemon = TestDaemon::start_with(move |options| options.data_roots.push(roots)).await;
     let url = daemon.daemon.url().to_owned();
     let pipeline = demo_data.join("pipeline.toml");
-    mobilis(&url, &["pipeline", pipeline.to_str().unwrap()]);
+    // The pipeline runs with the progress bar forced on: it is drawn on stderr, step by step.
+    let (_, bar) = mobilis(&url, "always", &["pipeline", pipeline.to_str().unwrap()]);
+    assert!(bar.contains("] 100% ") || bar.contains("step 12 of 12"), "{bar}");
+    assert!(
+        bar.contains("step 1 of 12 (hall.reduce)"),
+        "no progress bar on stderr:\n{bar}"
+    );
 
     // The pages and a screenshot stay under the build directory for people to look at.
     let out = workspace_root().join("target").join("report-check");
     let _ = std::fs::remove_dir_all(&out);
-    let written = mobilis(&url, &["report", "--out", out.to_str().unwrap()]);
+    let (written, _) = mobilis(&url, "never", &["report", "--out", out.to_str().unwrap()]);
     let samples = daemon.call("report.samples", serde_json::json!({})).await;
     let samples: Vec<String> = samples
         .as_array()

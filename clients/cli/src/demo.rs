@@ -15,7 +15,12 @@ fn default_data_directory() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../../demo-data")
 }
 
-pub async fn run(data: Option<PathBuf>, workspace: Option<PathBuf>, progress: ProgressMode) -> anyhow::Result<()> {
+pub async fn run(
+    data: Option<PathBuf>,
+    workspace: Option<PathBuf>,
+    reports: Option<PathBuf>,
+    progress: ProgressMode,
+) -> anyhow::Result<()> {
     let data = data.unwrap_or_else(default_data_directory);
     let data = data
         .canonicalize()
@@ -34,7 +39,7 @@ pub async fn run(data: Option<PathBuf>, workspace: Option<PathBuf>, progress: Pr
         working_directory: Some(data.clone()),
         ..DaemonOptions::default()
     })?;
-    let outcome = run_with_daemon(&daemon, &data, progress).await;
+    let outcome = run_with_daemon(&daemon, &data, reports.as_deref(), progress).await;
     daemon.stop();
     if std::env::temp_dir().join(format!("mobilis-demo-{}", std::process::id())) == workspace {
         let _ = std::fs::remove_dir_all(&workspace);
@@ -42,7 +47,12 @@ pub async fn run(data: Option<PathBuf>, workspace: Option<PathBuf>, progress: Pr
     outcome
 }
 
-async fn run_with_daemon(daemon: &Daemon, data: &std::path::Path, progress: ProgressMode) -> anyhow::Result<()> {
+async fn run_with_daemon(
+    daemon: &Daemon,
+    data: &std::path::Path,
+    reports: Option<&std::path::Path>,
+    progress: ProgressMode,
+) -> anyhow::Result<()> {
     let client = Client::connect(daemon.url(), None).await?;
     let info = client.call("server.info", json!({})).await?;
     println!(
@@ -118,6 +128,19 @@ async fn run_with_daemon(daemon: &Daemon, data: &std::path::Path, progress: Prog
     let film_truth = read_truth("thin-film/truth.json")?;
     if let (Some(oscillations), Some(weak)) = (find("hemt-oscillations"), find("film-weak-localization")) {
         print_quantum(&oscillations, &oscillation_truth, &weak, &film_truth);
+    }
+    match reports {
+        Some(directory) => {
+            println!();
+            println!("Reports, one self-contained page per sample:");
+            crate::report_files::write_reports(&client, directory, &[]).await?;
+        }
+        None => {
+            println!();
+            println!(
+                "`mobilis demo --reports DIR` also writes each sample's HTML report (figures, tables, provenance)."
+            );
+        }
     }
     Ok(())
 }

@@ -7,6 +7,7 @@
 mod demo;
 mod pipeline_file;
 mod progress_bar;
+mod report_files;
 mod table;
 
 use anyhow::{bail, Context};
@@ -147,6 +148,9 @@ enum Command {
         /// Keep the daemon's workspace in this directory instead of a temporary one.
         #[arg(long)]
         workspace: Option<PathBuf>,
+        /// Also write each demo sample's HTML report into this directory.
+        #[arg(long)]
+        reports: Option<PathBuf>,
     },
 }
 
@@ -191,7 +195,11 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             }
             Ok(())
         }
-        Command::Demo { data, workspace } => demo::run(data.clone(), workspace.clone(), cli.progress).await,
+        Command::Demo {
+            data,
+            workspace,
+            reports,
+        } => demo::run(data.clone(), workspace.clone(), reports.clone(), cli.progress).await,
         Command::Info => print_json(&connect(&cli).await?.call("server.info", json!({})).await?),
         Command::Analyses => {
             let list = connect(&cli).await?.call("analysis.list", json!({})).await?;
@@ -357,34 +365,7 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             Ok(())
         }
         Command::Report { out, sample } => {
-            let client = connect(&cli).await?;
-            let samples: Vec<String> = if sample.is_empty() {
-                let known = client.call("report.samples", json!({})).await?;
-                known
-                    .as_array()
-                    .into_iter()
-                    .flatten()
-                    .filter_map(|s| s["sample"].as_str().map(str::to_owned))
-                    .collect()
-            } else {
-                sample.clone()
-            };
-            if samples.is_empty() {
-                bail!("no stored dataset has a `sample` column; import data first (mobilis import, mobilis pipeline)");
-            }
-            std::fs::create_dir_all(out).with_context(|| format!("cannot create {}", out.display()))?;
-            for sample in &samples {
-                let page = client.call("report.render", json!({ "sample": sample })).await?;
-                let path = out.join(format!("{}.html", file_stem(sample)));
-                std::fs::write(&path, page["html"].as_str().unwrap_or(""))
-                    .with_context(|| format!("cannot write {}", path.display()))?;
-                println!(
-                    "wrote {} ({} datasets, {} figures)",
-                    path.display(),
-                    page["datasets"].as_array().map_or(0, Vec::len),
-                    page["figures"]
-                );
-            }
+            report_files::write_reports(&connect(&cli).await?, out, sample).await?;
             Ok(())
         }
         Command::Call { method, params } => {
@@ -399,25 +380,6 @@ fn filter_value(text: &str) -> Value {
     match text.parse::<f64>() {
         Ok(number) if number.is_finite() => json!(number),
         _ => json!(text),
-    }
-}
-
-/// A sample name made safe as a file name: anything but letters, digits, `-`, `_` and `.` becomes `_`.
-fn file_stem(sample: &str) -> String {
-    let stem: String = sample
-        .chars()
-        .map(|c| {
-            if c.is_ascii_alphanumeric() || "-_.".contains(c) {
-                c
-            } else {
-                '_'
-            }
-        })
-        .collect();
-    if stem.is_empty() || stem.starts_with('.') {
-        format!("sample{stem}")
-    } else {
-        stem
     }
 }
 

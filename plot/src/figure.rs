@@ -299,6 +299,26 @@ impl Figure {
             for series in &mut panel.series {
                 series.runs = drawable_runs(series, panel.x.log, panel.y.log);
             }
+            let count = |lines: bool| -> usize {
+                panel
+                    .series
+                    .iter()
+                    .filter(|s| s.is_line() == lines)
+                    .map(Series::drawn_points)
+                    .sum()
+            };
+            let (markers, vertices) = (count(false), count(true));
+            for series in &mut panel.series {
+                // Each series gets the share of the panel's budget that its size earns, and
+                // never more than a series of its own may draw.
+                let (panel_total, panel_budget, own_budget) = if series.is_line() {
+                    (vertices, MAX_PANEL_VERTICES, MAX_LINE_VERTICES)
+                } else {
+                    (markers, MAX_PANEL_MARKERS, MAX_MARKERS)
+                };
+                let share = (panel_budget as f64 * series.drawn_points() as f64 / panel_total.max(1) as f64) as usize;
+                thin(series, share.clamp(2, own_budget));
+            }
             if !panel.y.log {
                 apply_prefix(&mut panel.y.label, &mut panel.series, Axis::Y);
             }
@@ -312,6 +332,62 @@ impl Figure {
         }
         any
     }
+}
+
+/// The most markers one series draws. Above it an evenly spaced subset is drawn and the
+/// legend says so: 4000 markers already cover a panel, while the markers of a million
+/// readings would make an SVG of tens of megabytes that no browser lays out quickly. The
+/// dataset keeps every value.
+pub(crate) const MAX_MARKERS: usize = 4000;
+
+/// The most vertices of one line. Above it, each bucket of consecutive vertices keeps its
+/// lowest and highest value, in their order, so that narrow peaks (an FFT line) survive.
+pub(crate) const MAX_LINE_VERTICES: usize = 8000;
+
+/// The most markers and line vertices of one panel, all series together: a hundred samples
+/// of 625 temperatures each would otherwise make a 17 MB figure.
+pub(crate) const MAX_PANEL_MARKERS: usize = 12_000;
+pub(crate) const MAX_PANEL_VERTICES: usize = 24_000;
+
+/// Thins a series to at most `budget` markers, or about `budget` line vertices.
+fn thin(series: &mut Series, budget: usize) {
+    let total = series.drawn_points();
+    if total <= budget {
+        return;
+    }
+    if series.is_line() {
+        let buckets = (budget / 2).max(1);
+        for run in &mut series.runs {
+            let share = (buckets * run.len()).div_ceil(total).max(1);
+            *run = min_max_decimate(run, share);
+        }
+    } else {
+        let stride = total.div_ceil(budget);
+        for run in &mut series.runs {
+            *run = run.iter().step_by(stride).copied().collect();
+        }
+        series.name = format!("{} (1 in {stride} of {total} shown)", series.name);
+    }
+}
+
+/// At most two points (the lowest and the highest y, in their order) from each of
+/// `buckets` runs of consecutive points.
+fn min_max_decimate(run: &[Point], buckets: usize) -> Vec<Point> {
+    if run.len() <= 2 * buckets {
+        return run.to_vec();
+    }
+    let size = run.len().div_ceil(buckets);
+    let mut kept = Vec::with_capacity(2 * buckets);
+    for chunk in run.chunks(size) {
+        let by_y = |a: &(usize, &Point), b: &(usize, &Point)| a.1.y.total_cmp(&b.1.y);
+        let low = chunk.iter().enumerate().min_by(by_y).map_or(0, |(i, _)| i);
+        let high = chunk.iter().enumerate().max_by(by_y).map_or(0, |(i, _)| i);
+        kept.push(chunk[low.min(high)]);
+        if low != high {
+            kept.push(chunk[low.max(high)]);
+        }
+    }
+    kept
 }
 
 /// The stretches of a series that can be drawn: finite, and positive on a log axis. Error
@@ -581,6 +657,34 @@ pub(crate) fn text_width(markup: &str, font_size: f64) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn large_series_are_thinned_and_lines_keep_their_peaks() {
+        let many: Vec<Point> = (0..100_000).map(|i| Point::new(i as f64, (i % 7) as f64)).collect();
+        let mut markers = Series::points("readings", 0, SHAPES[0], true, many.clone());
+        markers.runs = drawable_runs(&markers, false, false);
+        thin(&mut markers, MAX_MARKERS);
+        assert!(markers.drawn_points() <= MAX_MARKERS, "{}", markers.drawn_points());
+        assert_eq!(markers.name, "readings (1 in 25 of 100000 shown)");
+
+        // A flat line with one narrow spike: the spike's vertex survives the thinning.
+        let mut spiky: Vec<Point> = (0..100_000).map(|i| Point::new(i as f64, 1.0)).collect();
+        spiky[54_321].y = 500.0;
+        let mut line = Series::line("fft", 0, Dash::Solid, spiky);
+        line.runs = drawable_runs(&line, false, false);
+        thin(&mut line, MAX_LINE_VERTICES);
+        assert!(line.drawn_points() <= MAX_LINE_VERTICES, "{}", line.drawn_points());
+        let kept: Vec<&Point> = line.runs.iter().flatten().collect();
+        assert!(kept.iter().any(|p| p.y == 500.0 && p.x == 54_321.0));
+        assert!(kept.windows(2).all(|w| w[0].x < w[1].x), "vertices stay in order");
+        assert_eq!(line.name, "fft", "a thinned line looks the same and keeps its name");
+
+        // Small series are left alone.
+        let mut few = Series::points("few", 0, SHAPES[0], true, many[..10].to_vec());
+        few.runs = drawable_runs(&few, false, false);
+        thin(&mut few, MAX_MARKERS);
+        assert_eq!(few.drawn_points(), 10);
+    }
 
     #[test]
     fn measured_points_alone_set_the_y_range_beside_a_fitted_curve() {

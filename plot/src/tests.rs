@@ -1058,3 +1058,33 @@ fn write_samples_when_asked() {
         .unwrap();
     }
 }
+
+#[test]
+fn a_crowded_panel_is_thinned_to_its_budget_and_says_so() {
+    // 60 samples x 500 temperatures: 30 000 markers asked for, a panel draws at most 12 000.
+    let (mut sample, mut temperature, mut density) = (Vec::new(), Vec::new(), Vec::new());
+    for s in 0..60 {
+        for t in 0..500 {
+            sample.push(format!("S{s:02}"));
+            temperature.push(20.0 + t as f64);
+            density.push(1e21 * (1.0 + s as f64 * 0.01));
+        }
+    }
+    let sample: Vec<&str> = sample.iter().map(String::as_str).collect();
+    let frame = table(vec![
+        texts("sample", sample),
+        floats("temperature_K", temperature),
+        floats("density_m3", density),
+    ]);
+    let figure = build(&frame, "crowded", &options("hall_density")).unwrap();
+    let (svg, _) = checked_svg(&figure);
+    let marks = svg.matches("class=\"mark ").count();
+    assert!(
+        (6_000..=crate::figure::MAX_PANEL_MARKERS).contains(&marks),
+        "{marks} marks"
+    );
+    assert!(
+        svg.contains("(1 in 3 of 500 shown)"),
+        "the legend says the series are thinned"
+    );
+}

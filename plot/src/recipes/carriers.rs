@@ -2,7 +2,7 @@
 //! Arrhenius, mobility scattering).
 
 use super::{all_rows, inverse_temperature, named, points, Context, Drawing};
-use crate::figure::{AxisSpec, Dash, Panel, Series, SHAPES};
+use crate::figure::{AxisSpec, Dash, Series, SHAPES};
 use crate::PlotError;
 
 const TEMPERATURE: &str = "Temperature T";
@@ -40,15 +40,12 @@ fn hall_series(ctx: &Context, column: &str, y: AxisSpec, log_x: bool, title: &st
             )
         })
         .collect();
-    Ok(Drawing {
-        title: title.to_owned(),
-        panels: vec![Panel::new(
-            None,
-            AxisSpec::new(TEMPERATURE, Some("K"), log_x),
-            y,
-            series,
-        )],
-    })
+    Ok(Drawing::single(
+        title,
+        AxisSpec::new(TEMPERATURE, Some("K"), log_x),
+        y,
+        series,
+    ))
 }
 
 pub(crate) fn hall_density(ctx: &Context) -> Result<Drawing, PlotError> {
@@ -104,15 +101,12 @@ pub(crate) fn freeze_out(ctx: &Context) -> Result<Drawing, PlotError> {
             points(&data, &x, &density, errors.as_deref()),
         ));
     }
-    Ok(Drawing {
-        title: "Carrier freeze-out and charge-neutrality fit".into(),
-        panels: vec![Panel::new(
-            None,
-            AxisSpec::new(INVERSE_TEMPERATURE, Some(INVERSE_TEMPERATURE_UNIT), false),
-            AxisSpec::new("Carrier density n", Some("cm^{−3}"), true),
-            series,
-        )],
-    })
+    Ok(Drawing::single(
+        "Carrier freeze-out and charge-neutrality fit",
+        AxisSpec::new(INVERSE_TEMPERATURE, Some(INVERSE_TEMPERATURE_UNIT), false),
+        AxisSpec::new("Carrier density n", Some("cm^{−3}"), true),
+        series,
+    ))
 }
 
 /// ln(n / m^-3) - r ln(T / K) as the plugin writes it, shifted to n in cm^-3 (the unit the
@@ -167,15 +161,12 @@ pub(crate) fn arrhenius(ctx: &Context) -> Result<Drawing, PlotError> {
         ));
     }
     let ordinate = format!("ln[(n/cm^{{−3}}) (T/K)^{{−{power}}}]");
-    Ok(Drawing {
-        title: "Arrhenius plot".into(),
-        panels: vec![Panel::new(
-            None,
-            AxisSpec::new(INVERSE_TEMPERATURE, Some(INVERSE_TEMPERATURE_UNIT), false),
-            AxisSpec::new(ordinate, None, false),
-            series,
-        )],
-    })
+    Ok(Drawing::single(
+        "Arrhenius plot",
+        AxisSpec::new(INVERSE_TEMPERATURE, Some(INVERSE_TEMPERATURE_UNIT), false),
+        AxisSpec::new(ordinate, None, false),
+        series,
+    ))
 }
 
 fn ctx_missing(ctx: &Context, column: &str) -> PlotError {
@@ -251,13 +242,10 @@ pub(crate) fn mobility_scattering(ctx: &Context) -> Result<Drawing, PlotError> {
             points(&outside, &temperature, &mobility, errors.as_deref()),
         ));
     }
-    Ok(Drawing {
-        title: "Mobility and scattering mechanisms".into(),
-        panels: vec![Panel::new(
-            None,
-            AxisSpec::new(TEMPERATURE, Some("K"), true),
-            AxisSpec::new("Mobility μ", Some("cm^{2}/(V s)"), true),
-            series,
-        )],
-    })
+    Ok(Drawing::single(
+        "Mobility and scattering mechanisms",
+        AxisSpec::new(TEMPERATURE, Some("K"), true),
+        AxisSpec::new("Mobility μ", Some("cm^{2}/(V s)"), true),
+        series,
+    ))
 }

@@ -22,6 +22,21 @@ pub(crate) struct Drawing {
     pub panels: Vec<Panel>,
 }
 
+impl Drawing {
+    /// A drawing of one untitled panel, as most recipes make.
+    pub(crate) fn single(
+        title: &str,
+        x: crate::figure::AxisSpec,
+        y: crate::figure::AxisSpec,
+        series: Vec<crate::figure::Series>,
+    ) -> Drawing {
+        Drawing {
+            title: title.into(),
+            panels: vec![Panel::new(None, x, y, series)],
+        }
+    }
+}
+
 /// One recipe: its public description, the columns it needs (for the error message) and its
 /// builder.
 pub(crate) struct Recipe {

@@ -231,15 +231,12 @@ pub(crate) fn magnetoresistance(ctx: &Context) -> Result<Drawing, PlotError> {
             )
         })
         .collect();
-    Ok(Drawing {
-        title: "Magnetoresistance".into(),
-        panels: vec![Panel::new(
-            None,
-            AxisSpec::new(FIELD, Some("T"), false),
-            AxisSpec::new("Δρ/ρ_{0}", Some("%"), false),
-            series,
-        )],
-    })
+    Ok(Drawing::single(
+        "Magnetoresistance",
+        AxisSpec::new(FIELD, Some("T"), false),
+        AxisSpec::new("Δρ/ρ_{0}", Some("%"), false),
+        series,
+    ))
 }
 
 pub(crate) fn kohler(ctx: &Context) -> Result<Drawing, PlotError> {
@@ -280,15 +277,12 @@ pub(crate) fn kohler(ctx: &Context) -> Result<Drawing, PlotError> {
             points(&outside, &x, &mr, errors.as_deref()),
         ));
     }
-    Ok(Drawing {
-        title: "Kohler plot".into(),
-        panels: vec![Panel::new(
-            None,
-            AxisSpec::new("B/ρ_{0}", Some("T/Ω"), true),
-            AxisSpec::new("Δρ/ρ_{0}", None, true),
-            series,
-        )],
-    })
+    Ok(Drawing::single(
+        "Kohler plot",
+        AxisSpec::new("B/ρ_{0}", Some("T/Ω"), true),
+        AxisSpec::new("Δρ/ρ_{0}", None, true),
+        series,
+    ))
 }
 
 /// One solid line per sweep (sample and temperature) of `rows`, labelled by the sweep, or by
@@ -344,15 +338,12 @@ pub(crate) fn oscillation_fft(ctx: &Context) -> Result<Drawing, PlotError> {
         rows
     };
     let series = lines_per_sweep(ctx, &rows, &frequency, &amplitude, "FFT")?;
-    Ok(Drawing {
-        title: "Shubnikov-de Haas oscillation spectrum".into(),
-        panels: vec![Panel::new(
-            None,
-            AxisSpec::new("Frequency F", Some("T"), false),
-            AxisSpec::new("FFT amplitude", Some("Ω/sq"), false),
-            series,
-        )],
-    })
+    Ok(Drawing::single(
+        "Shubnikov-de Haas oscillation spectrum",
+        AxisSpec::new("Frequency F", Some("T"), false),
+        AxisSpec::new("FFT amplitude", Some("Ω/sq"), false),
+        series,
+    ))
 }
 
 /// Amplitude / T, the ordinate whose logarithm falls linearly with T at large X, so that a
@@ -409,15 +400,12 @@ pub(crate) fn oscillation_mass(ctx: &Context) -> Result<Drawing, PlotError> {
             points(&data, &temperature, &per_t, per_t_err.as_deref()),
         ));
     }
-    Ok(Drawing {
-        title: "Effective mass from the thermal damping".into(),
-        panels: vec![Panel::new(
-            None,
-            AxisSpec::new("Temperature T", Some("K"), false),
-            AxisSpec::new("Amplitude/T", Some("Ω/sq K^{−1}"), true),
-            series,
-        )],
-    })
+    Ok(Drawing::single(
+        "Effective mass from the thermal damping",
+        AxisSpec::new("Temperature T", Some("K"), false),
+        AxisSpec::new("Amplitude/T", Some("Ω/sq K^{−1}"), true),
+        series,
+    ))
 }
 
 pub(crate) fn oscillation_curves(ctx: &Context) -> Result<Drawing, PlotError> {
@@ -425,15 +413,12 @@ pub(crate) fn oscillation_curves(ctx: &Context) -> Result<Drawing, PlotError> {
     let inverse_field = ctx.floats("inverse_field_per_T")?;
     let value = ctx.displayed("value_ohm_sq")?;
     let series = lines_per_sweep(ctx, &rows, &inverse_field, &value, "Δρ_{xx}")?;
-    Ok(Drawing {
-        title: "Shubnikov-de Haas oscillations (background removed)".into(),
-        panels: vec![Panel::new(
-            None,
-            AxisSpec::new("1/B", Some("T^{−1}"), false),
-            AxisSpec::new("Δρ_{xx}", Some("Ω/sq"), false),
-            series,
-        )],
-    })
+    Ok(Drawing::single(
+        "Shubnikov-de Haas oscillations (background removed)",
+        AxisSpec::new("1/B", Some("T^{−1}"), false),
+        AxisSpec::new("Δρ_{xx}", Some("Ω/sq"), false),
+        series,
+    ))
 }
 
 pub(crate) fn dingle(ctx: &Context) -> Result<Drawing, PlotError> {
@@ -467,15 +452,12 @@ pub(crate) fn dingle(ctx: &Context) -> Result<Drawing, PlotError> {
             )
         })
         .collect();
-    Ok(Drawing {
-        title: "Dingle plot".into(),
-        panels: vec![Panel::new(
-            None,
-            AxisSpec::new("1/B", Some("T^{−1}"), false),
-            AxisSpec::new("ln(A sinh X / X), A in Ω/sq", None, false),
-            series,
-        )],
-    })
+    Ok(Drawing::single(
+        "Dingle plot",
+        AxisSpec::new("1/B", Some("T^{−1}"), false),
+        AxisSpec::new("ln(A sinh X / X), A in Ω/sq", None, false),
+        series,
+    ))
 }
 
 pub(crate) fn weak_localization(ctx: &Context) -> Result<Drawing, PlotError> {
@@ -514,13 +496,10 @@ pub(crate) fn weak_localization(ctx: &Context) -> Result<Drawing, PlotError> {
             points(&outside, &field, &delta, errors.as_deref()),
         ));
     }
-    Ok(Drawing {
-        title: "Weak localization".into(),
-        panels: vec![Panel::new(
-            None,
-            AxisSpec::new(FIELD, Some("T"), false),
-            AxisSpec::new("Δσ", Some("S"), false),
-            series,
-        )],
-    })
+    Ok(Drawing::single(
+        "Weak localization",
+        AxisSpec::new(FIELD, Some("T"), false),
+        AxisSpec::new("Δσ", Some("S"), false),
+        series,
+    ))
 }

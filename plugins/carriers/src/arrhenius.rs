@@ -216,7 +216,7 @@ impl fmt::Display for ArrheniusError {
             } => write!(f, "{setting} is {value}; {requirement}"),
             ArrheniusError::NoFreezeOutRange { candidates, min_points } => write!(
                 f,
-                "no steady freeze-out range of {min_points} or more temperatures was found ({candidates} temperatures lie well below the saturation density); give temperature_range_K, or relax slope_spread or plateau_fraction"
+                "no steady freeze-out range of {min_points} or more temperatures was found ({candidates} temperatures lie well below the saturation density); give temperature_min_K and temperature_max_K, or relax slope_spread or plateau_fraction"
             ),
             ArrheniusError::TooFewPointsInRange { count, required } => write!(
                 f,

@@ -494,7 +494,9 @@ pub(crate) fn prepare_series(
     }
     let mut selected: Vec<usize> = (0..points.len()).collect();
     if let Some((min_k, max_k)) = range_k {
-        if !(min_k.is_finite() && max_k.is_finite() && min_k > 0.0 && min_k <= max_k) {
+        // A missing bound is 0 K or infinity (`temperature_min_K` or `temperature_max_K`
+        // given alone), so only NaN, a negative lower bound and a reversed range are wrong.
+        if !(min_k >= 0.0 && max_k >= min_k) {
             return Err(SeriesError::InvalidRange { min_k, max_k });
         }
         selected.retain(|&i| points[i].temperature_k >= min_k && points[i].temperature_k <= max_k);

@@ -219,5 +219,31 @@ mod tests {
             assert_eq!(column.len(), output.table.height());
             assert!(column.iter().all(|v| v == Some(exponent)), "{params}");
         }
+
+        // Either bound alone leaves the other side open; the line then takes every point on
+        // the given side, and the slope still returns the 45 meV the data were made with.
+        for (params, expected_points) in [
+            (r#"{"carrier_type": "n", "temperature_max_K": 60}"#, 11),
+            (r#"{"carrier_type": "n", "temperature_min_K": 60}"#, 10),
+        ] {
+            let inputs = Inputs::from_tables([("hall".to_string(), hall.clone())]);
+            let output = run_typed::<ArrheniusAnalysis>(params, &inputs, &Host::detached()).unwrap();
+            assert_eq!(
+                output.summary["points_used"], expected_points,
+                "{params}: {:?}",
+                output.summary
+            );
+            let energy = output.summary["activation_energy_eV"].as_f64().unwrap();
+            assert!((energy - 0.045).abs() < 1e-6, "{params}: {energy}");
+        }
+        // A reversed range names the parameters to change.
+        let inputs = Inputs::from_tables([("hall".to_string(), hall.clone())]);
+        let error = run_typed::<ArrheniusAnalysis>(
+            r#"{"carrier_type": "n", "temperature_min_K": 60, "temperature_max_K": 20}"#,
+            &inputs,
+            &Host::detached(),
+        )
+        .unwrap_err();
+        assert!(error.to_string().contains("temperature_min_K"), "{error}");
     }
 }

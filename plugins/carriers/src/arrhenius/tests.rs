@@ -360,7 +360,7 @@ fn refuses_bad_input_and_impossible_ranges() {
         min_points: 4,
     }
     .to_string();
-    assert!(message.contains("give temperature_range_K") && !message.ends_with('.'));
+    assert!(message.contains("give temperature_min_K and temperature_max_K") && !message.ends_with('.'));
     // A range where the density falls with temperature is fitted but flagged.
     let falling: Vec<DensityPoint> = geometric(20.0, 40.0, 5)
         .into_iter()

@@ -116,7 +116,7 @@ impl fmt::Display for SeriesError {
                 then,
             } => write!(
                 f,
-                "the carrier type changes from {first} to {then} at point {index} ({temperature_k} K); a freeze-out analysis needs one carrier type, so restrict temperature_range_K to one side of the change"
+                "the carrier type changes from {first} to {then} at point {index} ({temperature_k} K); a freeze-out analysis needs one carrier type, so restrict temperature_min_K and temperature_max_K to one side of the change"
             ),
             SeriesError::CarrierTypeMismatch { requested, found, index } => write!(
                 f,
@@ -128,7 +128,7 @@ impl fmt::Display for SeriesError {
             ),
             SeriesError::InvalidRange { min_k, max_k } => write!(
                 f,
-                "temperature_range_K is [{min_k}, {max_k}]; give two finite temperatures above 0 K, the lower first"
+                "the temperature range is [{min_k}, {max_k}] K; give temperature_min_K >= 0 and temperature_max_K >= temperature_min_K (either alone leaves that side open)"
             ),
             SeriesError::RangeExcludesAllData {
                 min_k,
@@ -137,11 +137,11 @@ impl fmt::Display for SeriesError {
                 data_max_k,
             } => write!(
                 f,
-                "temperature_range_K [{min_k}, {max_k}] contains no point (the data span {data_min_k} K to {data_max_k} K); widen or move the range"
+                "the temperature range [{min_k}, {max_k}] K (temperature_min_K, temperature_max_K) contains no point (the data span {data_min_k} K to {data_max_k} K); widen or move the range"
             ),
             SeriesError::TooFewTemperatures { count, required } => write!(
                 f,
-                "{count} distinct temperatures cannot determine the fit; give at least {required} (widen temperature_range_K or add measurements)"
+                "{count} distinct temperatures cannot determine the fit; give at least {required} (widen temperature_min_K..temperature_max_K or add measurements)"
             ),
             SeriesError::InvalidHallFactor { value } => write!(
                 f,

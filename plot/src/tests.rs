@@ -813,7 +813,8 @@ fn oscillation_recipes_pick_their_row_kinds() {
     let spec = check_vega(&figure);
     assert_eq!(scale_types(&spec, "y")[0], "log");
     // Amplitude / T at 1.5 K in the 5 T window.
-    let points = vega_values(&spec, "B_{eff} = 5 T", "y");
+    // Legend names are plain text in Vega-Lite, where markup would show raw.
+    let points = vega_values(&spec, "B_eff = 5 T", "y");
     assert!(!points.is_empty());
 
     let figure = build(&frame, "sdh", &options("oscillation_curves")).unwrap();

@@ -220,7 +220,8 @@ pub(crate) fn plain_text(text: &str) -> String {
             },
             Script::Sub => match run.chars().map(subscript).collect::<Option<String>>() {
                 Some(mapped) => out.push_str(&mapped),
-                None => out.push_str(&run),
+                // Unicode has no subscript f or c: `B_eff` reads better than `Beff`.
+                None => out.push_str(&format!("_{run}")),
             },
         }
     }
@@ -287,7 +288,8 @@ mod tests {
         assert_eq!(plain_text("n (cm^{−3})"), "n (cm⁻³)");
         assert_eq!(plain_text("μ (cm^{2}/(V s))"), "μ (cm²/(V s))");
         assert_eq!(plain_text("ρ_{xx}"), "ρₓₓ");
-        assert_eq!(plain_text("σ_{xy}"), "σxy");
+        assert_eq!(plain_text("σ_{xy}"), "σ_xy");
+        assert_eq!(plain_text("B_{eff}"), "B_eff");
         assert_eq!(plain_text("10^{ab}"), "10^(ab)");
         assert_eq!(
             parse_markup("a^{2}b_{c}"),

@@ -33,9 +33,13 @@ fn position(field: &str, title: Option<String>, scale: &Scale) -> Value {
             "type": if scale.log { "log" } else { "linear" },
             "domain": [scale.lo, scale.hi],
             "nice": false,
-            "zero": false,
         },
     });
+    // A linear scale would otherwise stretch to include zero; a log scale never does, and
+    // Vega-Lite warns when told so.
+    if !scale.log {
+        encoding["scale"]["zero"] = json!(false);
+    }
     match title {
         Some(title) => encoding["title"] = json!(title),
         None => encoding["title"] = Value::Null,
@@ -45,13 +49,13 @@ fn position(field: &str, title: Option<String>, scale: &Scale) -> Value {
 
 fn color(panel: &Panel) -> Value {
     let entries = panel.legend();
-    let domain: Vec<&str> = entries.iter().map(|s| s.name.as_str()).collect();
+    let domain: Vec<String> = entries.iter().map(|s| plain_text(&s.name)).collect();
     let range: Vec<&str> = entries.iter().map(|s| PALETTE[s.color % PALETTE.len()]).collect();
     let mut encoding = json!({
         "field": "series",
         "type": "nominal",
         "scale": {"domain": domain, "range": range},
-        "legend": {"title": null},
+        "legend": {"title": null, "labelLimit": 360},
     });
     if entries.len() < 2 {
         encoding["legend"] = Value::Null;
@@ -79,7 +83,7 @@ fn layers(panel: &Panel) -> Vec<Value> {
                 for (segment, run) in series.runs.iter().enumerate() {
                     for p in run {
                         values.push(
-                            json!({"series": series.name, "segment": segment, "order": order, "x": p.x, "y": p.y}),
+                            json!({"series": plain_text(&series.name), "segment": segment, "order": order, "x": p.x, "y": p.y}),
                         );
                         order += 1;
                     }
@@ -102,13 +106,13 @@ fn layers(panel: &Panel) -> Vec<Value> {
                 let points: Vec<_> = series.runs.iter().flatten().collect();
                 let values: Vec<Value> = points
                     .iter()
-                    .map(|p| json!({"series": series.name, "x": p.x, "y": p.y}))
+                    .map(|p| json!({"series": plain_text(&series.name), "x": p.x, "y": p.y}))
                     .collect();
                 let y_bars: Vec<Value> = points
                     .iter()
                     .filter_map(|p| {
                         p.y_err.map(|e| {
-                            json!({"series": series.name, "x": p.x,
+                            json!({"series": plain_text(&series.name), "x": p.x,
                                    "y_low": panel.y_scale.lower(p.y, e), "y_high": panel.y_scale.upper(p.y, e)})
                         })
                     })
@@ -117,7 +121,7 @@ fn layers(panel: &Panel) -> Vec<Value> {
                     .iter()
                     .filter_map(|p| {
                         p.x_err.map(|e| {
-                            json!({"series": series.name, "y": p.y,
+                            json!({"series": plain_text(&series.name), "y": p.y,
                                    "x_low": panel.x_scale.lower(p.x, e), "x_high": panel.x_scale.upper(p.x, e)})
                         })
                     })

@@ -8,6 +8,7 @@
 //! is skipped.
 
 pub mod bench;
+pub mod browser;
 pub mod node;
 
 use mobilis_client::{Client, Daemon, DaemonOptions};

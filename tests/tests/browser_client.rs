@@ -6,11 +6,11 @@
 //! Chromium comes from Debian's `chromium` package (`.ci/run` installs it); `$CHROMIUM`
 //! names another binary.
 
+use mobilis_tests::browser::headless_chromium;
 use mobilis_tests::{fixture_plugin_dir, workspace_root, TestDaemon};
 use serde_json::Value;
 use std::io::{BufRead, BufReader, Read, Write};
 use std::net::{TcpListener, TcpStream};
-use std::path::PathBuf;
 use std::sync::mpsc::{channel, Sender};
 use std::time::Duration;
 
@@ -57,21 +57,6 @@ try {
 }
 </script></body></html>
 "#;
-
-fn chromium() -> PathBuf {
-    if let Some(path) = std::env::var_os("CHROMIUM") {
-        return PathBuf::from(path);
-    }
-    [
-        "/usr/bin/chromium",
-        "/usr/bin/chromium-browser",
-        "/usr/bin/google-chrome",
-    ]
-    .iter()
-    .map(PathBuf::from)
-    .find(|path| path.is_file())
-    .expect("no Chromium found: install Debian's `chromium` package (.ci/run does) or set $CHROMIUM")
-}
 
 /// Serves the page and the client module; hands the posted result to `results`.
 fn serve(listener: TcpListener, page: String, results: Sender<String>) {
@@ -143,18 +128,7 @@ async fn the_js_client_runs_unchanged_in_a_browser() {
     std::thread::spawn(move || serve(listener, page, results));
 
     let profile = tempfile::tempdir().unwrap();
-    let mut browser = std::process::Command::new(chromium())
-        .args([
-            "--headless",
-            "--no-sandbox",
-            "--disable-gpu",
-            "--disable-quic",
-            "--no-first-run",
-            "--disable-background-networking",
-            "--disable-component-update",
-            "--disable-sync",
-        ])
-        .arg(format!("--user-data-dir={}", profile.path().display()))
+    let mut browser = headless_chromium(profile.path())
         .arg(format!("{page_origin}/"))
         .stdout(std::process::Stdio::null())
         .stderr(std::process::Stdio::null())

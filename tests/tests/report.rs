@@ -5,44 +5,19 @@
 //! Chromium comes from Debian's `chromium` package (`.ci/run` installs it); `$CHROMIUM`
 //! names another binary.
 
+use mobilis_tests::browser::headless_chromium;
 use mobilis_tests::{ensure_built, workspace_root, TestDaemon};
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::process::{Command, Output};
-
-/// The browser binary, or a failure that says what to install.
-fn chromium() -> PathBuf {
-    if let Some(path) = std::env::var_os("CHROMIUM") {
-        return PathBuf::from(path);
-    }
-    for candidate in [
-        "/usr/bin/chromium",
-        "/usr/bin/chromium-browser",
-        "/usr/bin/google-chrome",
-    ] {
-        if Path::new(candidate).is_file() {
-            return PathBuf::from(candidate);
-        }
-    }
-    panic!("no Chromium found: install Debian's `chromium` package (.ci/run does) or set $CHROMIUM");
-}
 
 /// Runs headless Chromium on a local page with `mode` (`--dump-dom` or `--screenshot=...`).
 fn headless(page: &Path, mode: &str, profile: &Path) -> Output {
-    Command::new(chromium())
+    headless_chromium(profile)
         .args([
-            "--headless",
-            "--no-sandbox",
-            "--disable-gpu",
-            "--disable-quic",
-            "--no-first-run",
-            "--disable-background-networking",
-            "--disable-component-update",
-            "--disable-sync",
             "--hide-scrollbars",
             "--window-size=1280,2600",
             "--virtual-time-budget=5000",
         ])
-        .arg(format!("--user-data-dir={}", profile.display()))
         .arg(mode)
         .arg(format!("file://{}", page.display()))
         .output()

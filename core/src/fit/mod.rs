@@ -59,6 +59,12 @@
 //! Runs from each start, keeps the converged run of lowest chi-square and counts how many
 //! converged runs reached the same minimum ([`SameMinimum`]).
 //!
+//! # Fit quality ([`quality`])
+//!
+//! The p-value of a chi-square, the Birge scaling of a covariance when the data disagree
+//! with their errors, the floor on relative per-point uncertainties, the effective variance
+//! of errors in both variables, and the coverage count of Monte Carlo honesty checks.
+//!
 //! # Straight line ([`fit_line`])
 //!
 //! y = a + b x by weighted least squares in closed form, centred on the weighted mean of x
@@ -68,12 +74,17 @@
 mod line;
 mod lm;
 mod multi_start;
+pub mod quality;
 #[cfg(test)]
 mod tests;
 
 pub use line::{fit_line, LineFit};
 pub use lm::{minimize, Bounds, LeastSquares, LmFit, LmOptions, Termination};
 pub use multi_start::{MultiStartFit, SameMinimum, StartOutcome, StartSummary};
+pub use quality::{
+    chi_square_p_value, effective_uncertainty, floored_relative_uncertainty, Coverage, FitQuality,
+    RELATIVE_UNCERTAINTY_FLOOR,
+};
 
 use crate::linalg::LinalgError;
 

@@ -255,9 +255,9 @@ mod quantum {
         let summary = &result["summary"]["groups"][0]["summary"];
         let frequency = summary["frequency_T"].as_f64().unwrap();
         assert!((frequency - 120.0).abs() < 0.5, "{summary}");
-        // Onsager: n = g_s e F / h = 5.80317e16 m^-2 for F = 120 T, g_s = 2 (computed from
-        // n_2D = g_s e F / h with CODATA 2018 constants; 12 x the check-values 4.835978e11 cm^-2
-        // of F = 10 T).
+        // Onsager (Phil. Mag. 43, 1006, 1952): n = g_s e F / h = 5.80317e16 m^-2 for F = 120 T
+        // and g_s = 2, computed with the exact CODATA 2018 values of e and h
+        // (e / h = 2.417989242e14 A/J).
         let density = summary["sheet_density_m2"].as_f64().unwrap();
         assert!((density / 5.80317e16 - 1.0).abs() < 5e-3, "{density}");
         let mass = summary["effective_mass_ratio"].as_f64().unwrap();

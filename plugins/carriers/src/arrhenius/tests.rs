@@ -21,6 +21,7 @@ fn point(temperature_k: f64, density_m3: f64, carrier_type: CarrierType) -> Dens
         density_m3,
         density_unc_m3: None,
         carrier_type: Some(carrier_type),
+        ..DensityPoint::default()
     }
 }
 
@@ -250,6 +251,7 @@ fn noisy_weighted_data_give_the_energy_within_its_uncertainty() {
                 density_m3: n,
                 density_unc_m3: Some(0.02 * n),
                 carrier_type: Some(CarrierType::N),
+                ..DensityPoint::default()
             }
         })
         .collect();

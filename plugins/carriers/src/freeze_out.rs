@@ -117,8 +117,14 @@
 //! stands in for them, a Hall factor table that is not a function of temperature, a
 //! temperature range that excludes all data.
 
+#[cfg(test)]
+mod budget_tests;
+#[cfg(test)]
+mod coverage;
 mod error;
 pub mod model;
+#[cfg(test)]
+pub(crate) mod realistic;
 #[cfg(test)]
 mod tests;
 
@@ -568,23 +574,23 @@ pub struct CurvePoint {
 /// The names of the fitted parameters, in the order of the fit.
 pub const PARAMETER_NAMES: [&str; 3] = ["net dopant density", "compensation ratio", "ionization energy"];
 
-/// A density estimate with its budget: `unc` is the total, the quadrature sum of `unc_stat`
-/// (from the fit) and `unc_sys` (the common scale).
+/// A fitted value with its budget: `unc` is the total, the quadrature sum of `unc_stat`
+/// (from the fit) and `unc_sys` (the common scale of the densities).
 #[derive(Debug, Clone, Copy, PartialEq)]
-pub struct DensityEstimate {
+pub struct Estimate {
     pub value: f64,
     /// Total standard uncertainty; `None` when the fit does not determine the value.
     pub unc: Option<f64>,
     /// Statistical part: reading noise and temperature errors through the fit.
     pub unc_stat: Option<f64>,
-    /// Systematic part: the common scale of the densities (0 when not given).
+    /// Systematic part: what the common scale of the densities moves the value by (0 when
+    /// no scale uncertainty was given).
     pub unc_sys: f64,
 }
 
-impl DensityEstimate {
-    fn new(value: f64, unc_stat: Option<f64>, relative_scale: f64) -> Self {
-        let unc_sys = relative_scale * value.abs();
-        DensityEstimate {
+impl Estimate {
+    fn new(value: f64, unc_stat: Option<f64>, unc_sys: f64) -> Self {
+        Estimate {
             value,
             unc: unc_stat.map(|stat| stat.hypot(unc_sys)),
             unc_stat,
@@ -609,19 +615,23 @@ pub struct FreezeOutFit {
     pub net_density_m3: f64,
     pub net_density_m3_unc: Option<f64>,
     /// The three densities with their budgets (the same values as above).
-    pub dopant: DensityEstimate,
-    pub compensating: DensityEstimate,
-    pub net: DensityEstimate,
-    /// Compensating over dopant density (a common scale does not move it).
+    pub dopant: Estimate,
+    pub compensating: Estimate,
+    pub net: Estimate,
+    /// Compensating over dopant density.
     pub compensation_ratio: f64,
+    /// Its total uncertainty.
     pub compensation_ratio_unc: Option<f64>,
     /// The majority level's distance from its band edge, eV.
     pub ionization_energy_ev: f64,
-    /// Its uncertainty: statistical only (a common density scale does not move it).
+    /// Its total uncertainty.
     pub ionization_energy_ev_unc: Option<f64>,
+    /// The compensation ratio and the energy with their budgets.
+    pub ratio: Estimate,
+    pub energy: Estimate,
     /// Total covariance of (dopant density, compensating density, ionization energy), in
-    /// m^-3 and eV: the fit's (after Birge scaling) plus the common scale; rows and columns
-    /// of a parameter on a bound hold only the scale.
+    /// m^-3 and eV: the fit's (after Birge scaling) plus the common scale's, which is fully
+    /// correlated; rows and columns of a parameter on a bound are zero.
     pub covariance: [[f64; 3]; 3],
     /// The degeneracy factor used.
     pub degeneracy: f64,
@@ -1066,6 +1076,50 @@ impl NeutralityProblem<'_> {
     }
 }
 
+/// d theta / d delta: how the best parameters move when every ln n_i moves by delta, to
+/// first order: (J^T J)^-1 J^T (1 / sigma) with J the Jacobian of the weighted residuals at
+/// the solution, over the parameters not on a bound (those do not move). Zero when J^T J
+/// cannot be inverted.
+fn common_shift_sensitivity(
+    problem: &NeutralityProblem<'_>,
+    theta: &[f64],
+    sigma: &[f64],
+    at_bound: &[bool],
+) -> [f64; 3] {
+    // Central differences of the residuals; steps of 1e-6 in log10 N_net and log10 c and
+    // 1e-8 eV in E, far inside every basin and far above rounding.
+    let steps = [1e-6, 1e-6, 1e-8];
+    let free: Vec<usize> = (0..3).filter(|&j| !at_bound[j]).collect();
+    let count = sigma.len();
+    let mut jacobian = Matrix::zeros(count, free.len());
+    let (mut above, mut below) = (vec![0.0; count], vec![0.0; count]);
+    for (column, &j) in free.iter().enumerate() {
+        let mut shifted = theta.to_vec();
+        shifted[j] = theta[j] + steps[j];
+        problem.residuals(&shifted, sigma, &mut above);
+        shifted[j] = theta[j] - steps[j];
+        problem.residuals(&shifted, sigma, &mut below);
+        for i in 0..count {
+            jacobian[(i, column)] = (above[i] - below[i]) / (2.0 * steps[j]);
+        }
+    }
+    let mut shift = [0.0; 3];
+    if free.is_empty() {
+        return shift;
+    }
+    let inverse_weights: Vec<f64> = sigma.iter().map(|s| 1.0 / s).collect();
+    let Ok(inverse) = jacobian.gram().inverse() else {
+        return shift;
+    };
+    let moved = inverse.mul_vec(&jacobian.transpose_mul_vec(&inverse_weights));
+    for (column, &j) in free.iter().enumerate() {
+        if moved[column].is_finite() {
+            shift[j] = moved[column];
+        }
+    }
+    shift
+}
+
 /// Fits the charge-neutrality model to a temperature series of carrier densities.
 pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> Result<FreezeOutFit, FreezeOutError> {
     settings.validate()?;
@@ -1291,14 +1345,26 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
         [0.0, 0.0, 1.0],
     ]);
     let physical = gradient.matmul(&theta_covariance).matmul(&gradient.transpose());
-    // The common scale s of the densities adds s^2 N_i N_j to the densities' covariance
-    // (fully correlated) and nothing to the energy's.
+    // The common scale of the densities, applied once: a relative error s of every
+    // density shifts every ln n_i by s, and the fit's parameters by s times their
+    // sensitivity to that shift (first-order propagation of a fully correlated input, the
+    // GUM's 5.2). On the saturation plateau it lands on N_net in full; in the compensated
+    // regime n ~ (N_net / N_comp) K(T) it leaves N_comp alone; between the two the model
+    // cannot follow a pure scale, and the fit trades some of it against E and c. Zero
+    // without a stated scale.
     let scale = series.density_scale_relative_unc;
-    let scaled = [dopant, compensating, 0.0];
+    let theta_shift = if scale > 0.0 {
+        common_shift_sensitivity(&problem, theta, &sigma, &fit.at_bound)
+    } else {
+        [0.0; 3]
+    };
+    let physical_shift: Vec<f64> = (0..3)
+        .map(|i| scale * (0..3).map(|j| gradient[(i, j)] * theta_shift[j]).sum::<f64>())
+        .collect();
     let mut covariance = [[0.0; 3]; 3];
     for (i, row) in covariance.iter_mut().enumerate() {
         for (j, entry) in row.iter_mut().enumerate() {
-            *entry = physical[(i, j)] + scale * scale * scaled[i] * scaled[j];
+            *entry = physical[(i, j)] + physical_shift[i] * physical_shift[j];
         }
     }
     let free = |j: usize| !fit.at_bound[j];
@@ -1320,9 +1386,11 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
     } else {
         None
     };
-    let dopant_estimate = DensityEstimate::new(dopant, dopant_unc, scale);
-    let compensating_estimate = DensityEstimate::new(compensating, compensating_unc, scale);
-    let net_estimate = DensityEstimate::new(net, net_unc, scale);
+    let dopant_estimate = Estimate::new(dopant, dopant_unc, physical_shift[0].abs());
+    let compensating_estimate = Estimate::new(compensating, compensating_unc, physical_shift[1].abs());
+    let energy_estimate = Estimate::new(energy, energy_unc, physical_shift[2].abs());
+    let net_estimate = Estimate::new(net, net_unc, (ln10 * net * scale * theta_shift[0]).abs());
+    let ratio_estimate = Estimate::new(ratio, ratio_unc, (ln10 * ratio * scale * theta_shift[1]).abs());
 
     let model = FreezeOutModel {
         carrier_type,
@@ -1422,9 +1490,11 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
         compensating: compensating_estimate,
         net: net_estimate,
         compensation_ratio: ratio,
-        compensation_ratio_unc: ratio_unc,
+        compensation_ratio_unc: ratio_estimate.unc,
         ionization_energy_ev: energy,
-        ionization_energy_ev_unc: energy_unc,
+        ionization_energy_ev_unc: energy_estimate.unc,
+        ratio: ratio_estimate,
+        energy: energy_estimate,
         covariance,
         degeneracy,
         hall_factor: series.common_hall_factor(),

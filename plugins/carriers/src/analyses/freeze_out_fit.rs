@@ -3,7 +3,7 @@
 //! shares with it.
 
 use super::*;
-use crate::freeze_out::{fit_freeze_out, DensityEstimate, FreezeOutSettings, UncertaintySource};
+use crate::freeze_out::{fit_freeze_out, Estimate, FreezeOutSettings, UncertaintySource};
 use mobilis_core::abi::{AnalysisDeclaration, InputRole};
 use mobilis_core::fit::RELATIVE_UNCERTAINTY_FLOOR;
 use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
@@ -118,7 +118,7 @@ pub(crate) fn temperature_source_name(source: UncertaintySource) -> &'static str
 }
 
 /// Inserts `name`, `name_unc`, `name_unc_stat` and `name_unc_sys`.
-fn insert_budget(summary: &mut serde_json::Map<String, Value>, name: &str, estimate: &DensityEstimate) {
+fn insert_budget(summary: &mut serde_json::Map<String, Value>, name: &str, estimate: &Estimate) {
     insert_estimate(summary, name, estimate.value, estimate.unc);
     summary.insert(format!("{name}_unc_stat"), json!(estimate.unc_stat));
     summary.insert(format!("{name}_unc_sys"), json!(estimate.unc_sys));
@@ -186,8 +186,8 @@ impl Analysis for FreezeOutFitAnalysis {
                     column("dopant_density_m3", F64, Some("m3"), "majority dopant density (donors for n-type), with _unc (total), _unc_stat and _unc_sys"),
                     column("compensating_density_m3", F64, Some("m3"), "compensating density (acceptors for n-type), with _unc, _unc_stat and _unc_sys"),
                     column("net_density_m3", F64, Some("m3"), "dopant minus compensating, with _unc, _unc_stat and _unc_sys"),
-                    column("compensation_ratio", F64, None, "compensating / dopant, with _unc"),
-                    column("ionization_energy_eV", F64, Some("eV"), "majority level below its band edge, with _unc and _unc_stat (a density scale does not move it)"),
+                    column("compensation_ratio", F64, None, "compensating / dopant, with _unc, _unc_stat and _unc_sys"),
+                    column("ionization_energy_eV", F64, Some("eV"), "majority level below its band edge, with _unc, _unc_stat and _unc_sys (what the common density scale moves it by through the fit: small, from the bend between saturation and freeze-out)"),
                     column("dopant_compensating_covariance_m6", F64, None, "total covariance of the two densities (the common scale included)"),
                     column("density_scale_relative_uncertainty", F64, None, "the common relative scale uncertainty applied to the densities (0 when not given)"),
                     column("density_scale_source", Str, None, "density_m3_unc_sys (largest of the rows), density_scale_relative_uncertainty or not given"),
@@ -294,22 +294,8 @@ impl Analysis for FreezeOutFitAnalysis {
         insert_budget(summary, "dopant_density_m3", &fit.dopant);
         insert_budget(summary, "compensating_density_m3", &fit.compensating);
         insert_budget(summary, "net_density_m3", &fit.net);
-        insert_estimate(
-            summary,
-            "compensation_ratio",
-            fit.compensation_ratio,
-            fit.compensation_ratio_unc,
-        );
-        insert_estimate(
-            summary,
-            "ionization_energy_eV",
-            fit.ionization_energy_ev,
-            fit.ionization_energy_ev_unc,
-        );
-        summary.insert(
-            "ionization_energy_eV_unc_stat".into(),
-            json!(fit.ionization_energy_ev_unc),
-        );
+        insert_budget(summary, "compensation_ratio", &fit.ratio);
+        insert_budget(summary, "ionization_energy_eV", &fit.energy);
         let both = fit.dopant_density_m3_unc.is_some() && fit.compensating_density_m3_unc.is_some();
         summary.insert(
             "dopant_compensating_covariance_m6".into(),

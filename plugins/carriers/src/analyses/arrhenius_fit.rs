@@ -293,3 +293,58 @@ mod tests {
         assert!(error.to_string().contains("temperature_min_K"), "{error}");
     }
 }
+
+#[cfg(test)]
+mod budget_tests {
+    use super::*;
+    use crate::freeze_out::realistic::{geometric, RealisticSeries};
+    use mobilis_core::noise::Rng;
+    use mobilis_core::sdk::run_typed;
+
+    #[test]
+    fn the_summary_carries_the_diagnostics_and_the_table_the_weights() {
+        let series = RealisticSeries {
+            temperatures_k: geometric(20.0, 30.0, 16),
+            ..RealisticSeries::compensated_silicon()
+        };
+        let points = series.draw(&mut Rng::seeded(5)).points;
+        let float = |f: &dyn Fn(&crate::freeze_out::DensityPoint) -> f64| points.iter().map(f).collect::<Vec<f64>>();
+        let hall = DataFrame::new(
+            points.len(),
+            vec![
+                Column::new("temperature_K".into(), float(&|p| p.temperature_k)),
+                Column::new("density_m3".into(), float(&|p| p.density_m3)),
+                Column::new("density_m3_unc_stat".into(), float(&|p| p.density_unc_m3.unwrap())),
+                Column::new("density_m3_unc_sys".into(), float(&|p| p.density_unc_sys_m3.unwrap())),
+                Column::new("temperature_K_unc".into(), float(&|p| p.temperature_unc_k.unwrap())),
+                Column::new("carrier_type".into(), vec!["n"; points.len()]),
+            ],
+        )
+        .unwrap();
+        let inputs = Inputs::from_tables([("hall".to_string(), hall)]);
+        let output = run_typed::<ArrheniusAnalysis>(
+            r#"{"temperature_min_K": 1, "temperature_max_K": 100}"#,
+            &inputs,
+            &Host::detached(),
+        )
+        .unwrap();
+        let summary = &output.summary;
+        for key in [
+            "activation_energy_eV_unc",
+            "activation_energy_eV_unc_stat",
+            "reduced_chi_square",
+            "chi_square_p_value",
+            "birge_ratio",
+        ] {
+            assert!(summary[key].as_f64().is_some(), "{key}: {:?}", summary[key]);
+        }
+        assert_eq!(summary["temperature_uncertainty_source"], "temperature_K_unc");
+        assert_eq!(summary["weighted"], json!(true));
+        let energy = summary["activation_energy_eV"].as_f64().unwrap();
+        let unc = summary["activation_energy_eV_unc"].as_f64().unwrap();
+        assert!((energy - 0.0452).abs() < 4.0 * unc, "{energy} +- {unc}");
+        for column in ["temperature_K_unc", "hall_factor", "reduced_ln_density_unc"] {
+            assert!(output.table.column(column).is_ok(), "{column}");
+        }
+    }
+}

@@ -349,3 +349,144 @@ impl Analysis for FreezeOutFitAnalysis {
         Ok(output)
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::freeze_out::realistic::RealisticSeries;
+    use mobilis_core::noise::Rng;
+    use mobilis_core::sdk::run_typed;
+
+    /// A realistic series as `hall.reduce` writes it (with the budget columns), or as an
+    /// older table did (`density_m3_unc` only).
+    fn hall_table(with_budget: bool) -> DataFrame {
+        let series = RealisticSeries::compensated_silicon();
+        let points = series.draw(&mut Rng::seeded(3)).points;
+        let float = |f: &dyn Fn(&DensityPoint) -> f64| points.iter().map(f).collect::<Vec<f64>>();
+        let mut columns = vec![
+            Column::new("temperature_K".into(), float(&|p| p.temperature_k)),
+            Column::new("density_m3".into(), float(&|p| p.density_m3)),
+            Column::new("carrier_type".into(), vec!["n"; points.len()]),
+        ];
+        if with_budget {
+            let total = float(&|p| p.density_unc_m3.unwrap().hypot(p.density_unc_sys_m3.unwrap()));
+            columns.extend([
+                Column::new("density_m3_unc".into(), total),
+                Column::new("density_m3_unc_stat".into(), float(&|p| p.density_unc_m3.unwrap())),
+                Column::new("density_m3_unc_sys".into(), float(&|p| p.density_unc_sys_m3.unwrap())),
+                Column::new("temperature_K_unc".into(), float(&|p| p.temperature_unc_k.unwrap())),
+                Column::new("hall_factor".into(), vec![1.0; points.len()]),
+            ]);
+        } else {
+            columns.push(Column::new(
+                "density_m3_unc".into(),
+                float(&|p| p.density_unc_m3.unwrap()),
+            ));
+        }
+        DataFrame::new(points.len(), columns).unwrap()
+    }
+
+    fn run(params: &str, table: DataFrame) -> Result<AnalysisOutput, AnalysisError> {
+        let inputs = Inputs::from_tables([("hall".to_string(), table)]);
+        run_typed::<FreezeOutFitAnalysis>(params, &inputs, &Host::detached())
+    }
+
+    #[test]
+    fn the_summary_carries_the_budget_and_the_diagnostics() {
+        let output = run("{}", hall_table(true)).unwrap();
+        let summary = &output.summary;
+        let value = |key: &str| {
+            summary[key]
+                .as_f64()
+                .unwrap_or_else(|| panic!("{key}: {:?}", summary[key]))
+        };
+        for name in [
+            "dopant_density_m3",
+            "compensating_density_m3",
+            "net_density_m3",
+            "ionization_energy_eV",
+            "compensation_ratio",
+        ] {
+            let (total, stat, sys) = (
+                value(&format!("{name}_unc")),
+                value(&format!("{name}_unc_stat")),
+                value(&format!("{name}_unc_sys")),
+            );
+            assert!((total - stat.hypot(sys)).abs() <= 1e-12 * total, "{name}");
+        }
+        // The 3 % thickness calibration reaches N_D through the fit's sensitivity: about
+        // 3 %, somewhat more where the loose low-temperature points let the fit trade it
+        // against the compensation (3.6 % for this draw).
+        let relative_sys = value("dopant_density_m3_unc_sys") / value("dopant_density_m3");
+        assert!((0.025..0.045).contains(&relative_sys), "{relative_sys}");
+        assert!((value("density_scale_relative_uncertainty") - 0.03).abs() < 1e-12);
+        assert_eq!(summary["density_scale_source"], "density_m3_unc_sys");
+        assert_eq!(summary["temperature_uncertainty_source"], "temperature_K_unc");
+        assert_eq!(summary["uncertainties_not_given"], json!([]));
+        assert!(value("reduced_chi_square") > 0.0);
+        assert!((0.0..=1.0).contains(&value("chi_square_p_value")));
+        assert!(value("birge_ratio") >= 1.0);
+        assert!(summary["floored_points"].as_u64().is_some());
+        assert_eq!(summary["hall_factor"], json!(1.0));
+        for column in [
+            "temperature_K_unc",
+            "density_m3_unc_stat",
+            "hall_factor",
+            "normalized_residual",
+        ] {
+            assert!(output.table.column(column).is_ok(), "{column}");
+        }
+        assert!(
+            output.warnings.iter().all(|w| !w.contains("no calibration budget")),
+            "{:?}",
+            output.warnings
+        );
+    }
+
+    #[test]
+    fn an_older_table_is_read_as_statistical_and_says_what_was_not_given() {
+        let output = run("{}", hall_table(false)).unwrap();
+        assert!(
+            output
+                .warnings
+                .iter()
+                .any(|w| w.contains("no calibration budget was given")),
+            "{:?}",
+            output.warnings
+        );
+        let not_given = output.summary["uncertainties_not_given"].as_array().unwrap();
+        assert_eq!(not_given.len(), 2, "{not_given:?}");
+        assert_eq!(output.summary["dopant_density_m3_unc_sys"], json!(0.0));
+        // Stated for the call instead: the scale and the temperature accuracy.
+        let output = run(
+            r#"{"density_scale_relative_uncertainty": 0.03, "temperature_uncertainty_K": 0.03}"#,
+            hall_table(false),
+        )
+        .unwrap();
+        assert_eq!(
+            output.summary["density_scale_source"],
+            "density_scale_relative_uncertainty"
+        );
+        assert_eq!(
+            output.summary["temperature_uncertainty_source"],
+            "temperature_uncertainty_K"
+        );
+        assert_eq!(output.summary["uncertainties_not_given"], json!([]));
+    }
+
+    #[test]
+    fn hall_factor_parameters_exclude_each_other_and_bad_values_name_the_parameter() {
+        let error = run(
+            r#"{"hall_factor": 1.2, "hall_factor_table": [[30, 1.9], [300, 1.2]]}"#,
+            hall_table(true),
+        )
+        .unwrap_err();
+        assert!(error.to_string().contains("hall_factor_table"), "{error}");
+        let error = run(r#"{"hall_factor_table": [[30, 1.9], [30, 1.2]]}"#, hall_table(true)).unwrap_err();
+        assert!(error.to_string().contains("hall_factor_table"), "{error}");
+        let output = run(r#"{"hall_factor_table": [[24, 1.2], [400, 1.2]]}"#, hall_table(true)).unwrap();
+        assert_eq!(output.summary["hall_factor"], json!(1.2));
+        let error = run(r#"{"relative_uncertainty_floor": 2}"#, hall_table(true)).unwrap_err();
+        assert!(error.to_string().contains("relative_uncertainty_floor"), "{error}");
+    }
+}

@@ -30,7 +30,7 @@
 //! - **Hall factor.** A density from the Hall coefficient with r_H = 1 is n_H = n / r_H. The
 //!   points may say which factor was already applied to them
 //!   ([`DensityPoint::applied_hall_factor`], the `hall_factor` column of `hall.reduce`).
-//!   [`HallFactor::AsGiven`] leaves the densities as they are; [`HallFactor::Constant`],
+//!   [`HallFactor::Unity`] leaves the densities as they are; [`HallFactor::Constant`],
 //!   [`HallFactor::ScatteringExponent`] (r_H of tau ~ E^s from
 //!   `mobilis_core::forward::mobility::hall_scattering_factor`) and [`HallFactor::Table`]
 //!   (r_H(T) from (temperature, factor) pairs, linear in T between them and held at the end
@@ -45,9 +45,9 @@
 //!   may carry a systematic one u_sys that is common to every point of the series (the
 //!   thickness, current, voltage and field calibrations of `hall.reduce`: one scale error
 //!   shared by the whole series, JCGM 100:2008, the GUM, 5.2 on correlated inputs). The
-//!   common part never weights the fit: it is applied once, after the fit, as a scale on
-//!   the densities (see Uncertainties). The relative statistical uncertainty is raised to
-//!   at least [`FreezeOutSettings::relative_uncertainty_floor`] (default
+//!   common part never weights the fit: it is applied once, after the fit (see "The
+//!   common scale" below). The relative statistical uncertainty is raised to at least
+//!   [`FreezeOutSettings::relative_uncertainty_floor`] (default
 //!   `mobilis_core::fit::RELATIVE_UNCERTAINTY_FLOOR`, 0.1 %), so that no single point can
 //!   pin the fit (a Hall density reported to 5e-13 would otherwise outweigh the rest by
 //!   twenty orders of magnitude).
@@ -1282,7 +1282,7 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
     };
     let solve = |sigma: &[f64], starts: &[Vec<f64>]| -> Result<MultiStartFit, FreezeOutError> {
         let residual = |theta: &[f64], r: &mut [f64]| problem.residuals(theta, sigma, r);
-        let result = LeastSquares::new(count, &residual)
+        let result = LeastSquares::new(count, residual)
             .with_bounds(bounds.clone())
             .minimize_multi_start(starts, &options, &SameMinimum::default());
         result.map_err(|error| match error {

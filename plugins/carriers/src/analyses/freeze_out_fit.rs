@@ -83,6 +83,14 @@ pub(crate) fn budget_columns() -> Vec<ColumnSpec> {
 /// The parameters of the uncertainty budget shared by the temperature-series fits.
 pub(crate) fn budget_schema_properties(properties: &mut serde_json::Map<String, Value>) {
     properties.insert(
+        "hall_factor".into(),
+        json!({"type": "number", "exclusiveMinimum": 0, "description": "a constant Hall factor r_H replacing the one already applied to the densities (the hall_factor column of hall.reduce, 1 without it): n = n_given r_H / r_applied; default: the densities as given"}),
+    );
+    properties.insert(
+        "hall_factor_scattering_exponent".into(),
+        json!({"type": "number", "description": "instead of hall_factor: r_H of a relaxation time tau ~ E^s (s = -0.5 acoustic phonons, 1.5 ionized impurities; Putley 1960), replacing the applied factor"}),
+    );
+    properties.insert(
         "hall_factor_table".into(),
         json!({"type": "array", "minItems": 1, "items": {"type": "array", "items": {"type": "number", "exclusiveMinimum": 0}, "minItems": 2, "maxItems": 2}, "description": "instead of hall_factor: r_H(T) as [temperature_K, hall_factor] pairs, linear in T between them and the end values beyond; replaces the factor hall.reduce applied (its hall_factor column)"}),
     );

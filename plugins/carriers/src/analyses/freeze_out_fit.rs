@@ -480,6 +480,15 @@ mod tests {
             "temperature_uncertainty_K"
         );
         assert_eq!(output.summary["uncertainties_not_given"], json!([]));
+        // Without any density uncertainty the fit is unweighted: the scatter sets the
+        // errors, and there is no p-value or Birge ratio to report.
+        let mut bare = hall_table(false);
+        let _ = bare.drop_in_place("density_m3_unc").unwrap();
+        let output = run("{}", bare).unwrap();
+        assert_eq!(output.summary["weighted"], json!(false));
+        assert_eq!(output.summary["chi_square_p_value"], Value::Null);
+        assert_eq!(output.summary["birge_ratio"], Value::Null);
+        assert!(output.summary["dopant_density_m3_unc"].as_f64().is_some());
     }
 
     #[test]

@@ -212,7 +212,7 @@ pub(crate) fn density_points(hall: &DataFrame, warnings: &mut Vec<String>) -> Re
     }
     if !has_budget && points.iter().any(|point| point.density_unc_m3.is_some()) {
         warnings.push(
-            "the table has density_m3_unc but no density_m3_unc_stat: density_m3_unc was taken as statistical (it weights the fit) and no calibration budget was given; reduce with a current hall.reduce, or give density_scale_relative_uncertainty for the common scale (thickness, current, field)"
+            "the table has density_m3_unc but no density_m3_unc_stat: density_m3_unc was taken as statistical (it weights the fit) and no calibration budget was given; reduce with a current hall.reduce, or state the common scale (thickness, current, field) with density_scale_relative_uncertainty where the analysis takes it (carriers.freeze_out_fit; a slope does not depend on it)"
                 .into(),
         );
     }

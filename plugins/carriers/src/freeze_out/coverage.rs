@@ -61,3 +61,25 @@ fn freeze_out_error_bars_cover_the_truth_on_a_realistic_series() {
         "{within_five_percent}/{count}"
     );
 }
+
+#[test]
+fn without_a_calibration_error_n_d_comes_back_within_five_percent_every_time() {
+    // The same series with the thickness known exactly (stage drift and reading noise
+    // only): N_D's uncertainty is then all statistical, and its coverage tests that part;
+    // every realization must recover N_D to 5 %.
+    let series = RealisticSeries {
+        thickness_relative_unc: 0.0,
+        ..RealisticSeries::compensated_silicon()
+    };
+    let count = realizations(60, 300);
+    let (coverage, worst, within_five_percent) = freeze_out_coverage(&series, count, 1932);
+    for (name, coverage) in ["N_D", "N_A", "E_D"].iter().zip(&coverage) {
+        eprintln!("freeze-out without calibration error {name}: {}", coverage.describe());
+    }
+    eprintln!("N_D: worst {worst:.4}");
+    assert_eq!(within_five_percent, count);
+    assert!(worst < 0.05, "{worst}");
+    for (name, coverage) in ["N_D", "N_A", "E_D"].iter().zip(&coverage) {
+        assert!(coverage.is_honest(), "{name}: {}", coverage.describe());
+    }
+}

@@ -705,6 +705,9 @@ pub(crate) struct Series {
     /// The common relative scale uncertainty of the densities (0 when not given).
     pub density_scale_relative_unc: f64,
     pub density_scale_source: UncertaintySource,
+    /// The smallest relative systematic uncertainty among the points (equal to the
+    /// largest when the rows agree, as one sample's calibration does).
+    pub smallest_point_scale: f64,
     /// Points outside the temperature range of a Hall factor table (they take its end
     /// values).
     pub outside_hall_factor_table: usize,
@@ -891,6 +894,7 @@ pub(crate) fn prepare_series(points: &[DensityPoint], options: &SeriesOptions<'_
         .iter()
         .filter_map(|&i| points[i].density_unc_sys_m3.map(|u| u / points[i].density_m3))
         .collect();
+    let smallest_point_scale = point_scales.iter().copied().fold(f64::INFINITY, f64::min);
     let (density_scale_relative_unc, density_scale_source) = if !point_scales.is_empty() {
         (
             point_scales.iter().copied().fold(0.0, f64::max),
@@ -942,6 +946,7 @@ pub(crate) fn prepare_series(points: &[DensityPoint], options: &SeriesOptions<'_
         hall_factors,
         density_scale_relative_unc,
         density_scale_source,
+        smallest_point_scale,
         outside_hall_factor_table,
     })
 }
@@ -1484,6 +1489,12 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
         warnings.push(format!(
             "{implausibly_small} points state a relative density uncertainty below {:.0e}, which no Hall measurement reproduces; they were raised to relative_uncertainty_floor ({floor}) so that no point pins the fit",
             IMPLAUSIBLE_BELOW_FLOOR * floor
+        ));
+    }
+    if series.density_scale_source == UncertaintySource::Points && series.smallest_point_scale < 0.9 * scale {
+        warnings.push(format!(
+            "the rows' density_m3_unc_sys / density_m3 range from {:.3e} to {scale:.3e}; the largest was applied as the scale common to the series, but a part that differs between rows is not common to them (check the calibration inputs of hall.reduce)",
+            series.smallest_point_scale
         ));
     }
     if series.outside_hall_factor_table > 0 {

@@ -294,6 +294,21 @@ fn the_common_density_scale_is_applied_once_after_the_fit_through_its_sensitivit
     .unwrap();
     assert_eq!(ignored.density_scale_source, UncertaintySource::Points);
     assert!((ignored.density_scale_relative_unc - 0.03).abs() < 1e-15);
+    assert!(
+        fit.warnings.iter().all(|w| !w.contains("density_m3_unc_sys")),
+        "{:?}",
+        fit.warnings
+    );
+    // Rows that disagree: the largest is applied, and the fit says so.
+    let mut disagreeing = with_scale.clone();
+    disagreeing[5].density_unc_sys_m3 = Some(0.05 * disagreeing[5].density_m3);
+    let fit = fit_freeze_out(&disagreeing, &FreezeOutSettings::default()).unwrap();
+    assert!((fit.density_scale_relative_unc - 0.05).abs() < 1e-15);
+    assert!(
+        fit.warnings.iter().any(|w| w.contains("the largest was applied")),
+        "{:?}",
+        fit.warnings
+    );
 }
 
 /// r_H(T) falling from 1.93 at 24 K to 1.18 at 400 K, linear in ln T (an invented test

@@ -24,9 +24,25 @@
 //!
 //! # The straight line
 //!
-//! A weighted least-squares line (`mobilis_core::fit::fit_line`) with weights 1/u_y^2,
-//! u_y = u(n)/n, when every point has a density uncertainty (standard errors from those
-//! uncertainties); unweighted otherwise (standard errors from the scatter about the line).
+//! A weighted least-squares line (`mobilis_core::fit::fit_line`) when every point has a
+//! density uncertainty; unweighted otherwise (standard errors from the scatter about the
+//! line, and no use for temperature uncertainties). The weights:
+//!
+//! - **Statistical part.** u_y = u_stat(n) / n, raised to at least
+//!   [`ArrheniusSettings::relative_uncertainty_floor`] (default
+//!   `mobilis_core::fit::RELATIVE_UNCERTAINTY_FLOOR`, 0.1 %) so that no point pins the
+//!   line. A common scale of the densities (thickness, current, field calibrations) moves
+//!   every y by the same amount and leaves the slope alone, so it has no part here.
+//! - **Temperature (effective variance).** The temperature enters x = 1/kT and the
+//!   T^-r of y. An error dT of the reported temperature moves the point off the line by
+//!   (b / kT^2 - r / T) dT (b the slope, r the exponent), so u_y^2 + (b / kT^2 - r / T)^2
+//!   u_T^2 is the point's variance (Clutton-Brock, Technometrics 9, 261, 1967; Orear, Am.
+//!   J. Phys. 50, 912, 1982). u_T is the point's `temperature_K_unc` or
+//!   [`ArrheniusSettings::temperature_unc_k`]. The line is refitted with the weights of its
+//!   own slope until no weight changes by more than 0.1 % (at most 20 passes).
+//! - **Birge scaling.** With chi^2 / nu above 1 the slope's standard error is multiplied by
+//!   sqrt(chi^2 / nu) (Birge, Phys. Rev. 40, 207, 1932; the Particle Data Group's practice)
+//!   and never reduced; with a p-value below 1e-3 a warning names the worst points.
 //!
 //! # The range
 //!
@@ -54,9 +70,15 @@ mod tests;
 use std::fmt;
 
 use mobilis_core::constants::BOLTZMANN_EV_PER_K;
-use mobilis_core::fit::{fit_line, FitError, LineFit};
+use mobilis_core::fit::{
+    effective_uncertainty, fit_line, floored_relative_uncertainty, FitError, FitQuality, LineFit,
+    RELATIVE_UNCERTAINTY_FLOOR,
+};
 
-use crate::freeze_out::{prepare_series, CarrierType, DensityPoint, HallFactor, Series, SeriesError};
+use crate::freeze_out::{
+    prepare_series, validate_stated_uncertainties, CarrierType, DensityPoint, HallFactor, Series, SeriesError,
+    SeriesOptions, UncertaintySource, EFFECTIVE_VARIANCE_PASSES, EFFECTIVE_VARIANCE_TOLERANCE,
+};
 
 /// Which limit of the freeze-out equation the range is taken to be in.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -124,13 +146,19 @@ pub enum ArrheniusRange {
 }
 
 /// How to fit; the default is the compensated regime over the automatic range.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, PartialEq)]
 pub struct ArrheniusSettings {
     pub regime: ArrheniusRegime,
     pub range: ArrheniusRange,
     /// n or p; `None` (default) takes it from the points.
     pub carrier_type: Option<CarrierType>,
     pub hall_factor: HallFactor,
+    /// The smallest relative statistical uncertainty a point keeps in a weighted line.
+    /// Default `RELATIVE_UNCERTAINTY_FLOOR` (1e-3).
+    pub relative_uncertainty_floor: f64,
+    /// Standard uncertainty of the temperature of every point that carries none, K; `None`
+    /// (default): not given, taken as 0.
+    pub temperature_unc_k: Option<f64>,
 }
 
 impl Default for ArrheniusSettings {
@@ -140,6 +168,8 @@ impl Default for ArrheniusSettings {
             range: ArrheniusRange::Automatic(AutomaticRange::default()),
             carrier_type: None,
             hall_factor: HallFactor::Unity,
+            relative_uncertainty_floor: RELATIVE_UNCERTAINTY_FLOOR,
+            temperature_unc_k: None,
         }
     }
 }
@@ -154,8 +184,15 @@ pub struct ArrheniusPoint {
     pub inverse_thermal_energy_per_ev: f64,
     /// y = ln(n / m^-3) - exponent ln(T / K).
     pub reduced_ln_density: f64,
-    /// u(n) / n, when given.
+    /// The standard uncertainty of y that weighs the point: u_stat(n) / n raised to the
+    /// floor, with the temperature's through the line's slope (weighted lines only).
     pub reduced_ln_density_unc: Option<f64>,
+    /// u_stat(n) / n as given.
+    pub relative_density_unc_stat: Option<f64>,
+    /// The temperature's standard uncertainty, K.
+    pub temperature_unc_k: f64,
+    /// The Hall factor in effect.
+    pub hall_factor: f64,
     /// Inside the range of the line.
     pub used: bool,
 }
@@ -165,10 +202,24 @@ pub struct ArrheniusPoint {
 pub struct ArrheniusFit {
     /// E (see the module documentation for what it is in each regime), eV.
     pub activation_energy_ev: f64,
+    /// Its standard uncertainty (statistical: reading noise and temperature errors; after
+    /// Birge scaling).
     pub activation_energy_ev_unc: f64,
     pub regime: ArrheniusRegime,
     pub carrier_type: CarrierType,
-    pub hall_factor: f64,
+    /// The Hall factor when it is the same for every point.
+    pub hall_factor: Option<f64>,
+    /// P(chi^2_nu >= chi^2) of a weighted line; NaN unweighted or without degrees of
+    /// freedom.
+    pub chi_square_p_value: f64,
+    /// The factor the slope's standard error was multiplied by; NaN unweighted.
+    pub birge_ratio: f64,
+    /// Points on the line whose relative uncertainty was raised to the floor.
+    pub floored_points: usize,
+    pub relative_uncertainty_floor: f64,
+    /// Line fits repeated with updated effective-variance weights.
+    pub effective_variance_passes: usize,
+    pub temperature_unc_source: UncertaintySource,
     /// The range of the line: the lowest and highest temperature used, K.
     pub temperature_min_k: f64,
     pub temperature_max_k: f64,
@@ -322,11 +373,20 @@ fn arrhenius_points(series: &Series, exponent: f64) -> Vec<ArrheniusPoint> {
                 density_m3: n,
                 inverse_thermal_energy_per_ev: 1.0 / (BOLTZMANN_EV_PER_K * t),
                 reduced_ln_density: n.ln() - exponent * t.ln(),
-                reduced_ln_density_unc: series.uncertainties_m3.as_ref().map(|unc| unc[i] / n),
+                reduced_ln_density_unc: None,
+                relative_density_unc_stat: series.uncertainties_m3.as_ref().map(|unc| unc[i] / n),
+                temperature_unc_k: series.temperature_unc_k[i],
+                hall_factor: series.hall_factors[i],
                 used: false,
             }
         })
         .collect()
+}
+
+/// d(y - line)/dT of a point: how far an error of its reported temperature moves it off a
+/// line of slope `slope` (x = 1/kT, y = ln n - r ln T), per kelvin.
+fn temperature_sensitivity(slope: f64, exponent: f64, temperature_k: f64) -> f64 {
+    slope / (BOLTZMANN_EV_PER_K * temperature_k * temperature_k) - exponent / temperature_k
 }
 
 /// The activation energy from the Arrhenius slope over a given or automatic range.
@@ -361,7 +421,21 @@ pub fn fit_arrhenius(points: &[DensityPoint], settings: &ArrheniusSettings) -> R
             (None, Some(rule))
         }
     };
-    let series = prepare_series(points, settings.carrier_type, range_k, &settings.hall_factor)?;
+    if let Err((setting, value, requirement)) =
+        validate_stated_uncertainties(settings.relative_uncertainty_floor, settings.temperature_unc_k, None)
+    {
+        return invalid(setting, value, requirement);
+    }
+    let series = prepare_series(
+        points,
+        &SeriesOptions {
+            carrier_type: settings.carrier_type,
+            range_k,
+            hall_factor: &settings.hall_factor,
+            temperature_unc_k: settings.temperature_unc_k,
+            density_scale_relative_unc: None,
+        },
+    )?;
     let exponent = settings.regime.temperature_exponent();
     let mut arrhenius = arrhenius_points(&series, exponent);
     let (low_k, high_k) = match rule {
@@ -371,8 +445,8 @@ pub fn fit_arrhenius(points: &[DensityPoint], settings: &ArrheniusSettings) -> R
     for point in arrhenius.iter_mut() {
         point.used = point.temperature_k >= low_k && point.temperature_k <= high_k;
     }
-    let used: Vec<&ArrheniusPoint> = arrhenius.iter().filter(|point| point.used).collect();
-    let distinct = nodes(&used.iter().map(|point| **point).collect::<Vec<_>>()).len();
+    let used: Vec<ArrheniusPoint> = arrhenius.iter().filter(|point| point.used).copied().collect();
+    let distinct = nodes(&used).len();
     if distinct < 3 {
         return Err(ArrheniusError::TooFewPointsInRange {
             count: distinct,
@@ -381,8 +455,66 @@ pub fn fit_arrhenius(points: &[DensityPoint], settings: &ArrheniusSettings) -> R
     }
     let x: Vec<f64> = used.iter().map(|point| point.inverse_thermal_energy_per_ev).collect();
     let y: Vec<f64> = used.iter().map(|point| point.reduced_ln_density).collect();
-    let sigma: Option<Vec<f64>> = used.iter().map(|point| point.reduced_ln_density_unc).collect();
-    let line = fit_line(&x, &y, sigma.as_deref()).map_err(ArrheniusError::Fit)?;
+    let floor = settings.relative_uncertainty_floor;
+    let floored = |relative: f64| floored_relative_uncertainty(relative, floor);
+    let base: Option<Vec<f64>> = used
+        .iter()
+        .map(|point| point.relative_density_unc_stat.map(|u| floored(u).0))
+        .collect();
+    let floored_points = used
+        .iter()
+        .filter(|point| point.relative_density_unc_stat.is_some_and(|u| floored(u).1))
+        .count();
+    let effective = |slope: f64, point: &ArrheniusPoint, base: f64| {
+        effective_uncertainty(
+            base,
+            temperature_sensitivity(slope, exponent, point.temperature_k),
+            point.temperature_unc_k,
+        )
+    };
+    let mut line = fit_line(&x, &y, base.as_deref()).map_err(ArrheniusError::Fit)?;
+    let mut passes = 0;
+    let mut settled = true;
+    if let Some(base) = &base {
+        if used.iter().any(|point| point.temperature_unc_k > 0.0) {
+            // Effective variance: weights from the line's own slope until they settle.
+            let mut sigma = base.clone();
+            settled = false;
+            while passes < EFFECTIVE_VARIANCE_PASSES {
+                let updated: Vec<f64> = used
+                    .iter()
+                    .zip(base)
+                    .map(|(point, base)| effective(line.slope, point, *base))
+                    .collect();
+                let change = updated
+                    .iter()
+                    .zip(&sigma)
+                    .map(|(new, old)| (new / old - 1.0).abs())
+                    .fold(0.0, f64::max);
+                if change <= EFFECTIVE_VARIANCE_TOLERANCE {
+                    settled = true;
+                    break;
+                }
+                sigma = updated;
+                line = fit_line(&x, &y, Some(&sigma)).map_err(ArrheniusError::Fit)?;
+                passes += 1;
+            }
+        }
+    }
+    // The uncertainty of y that weighed each point (the final slope for the points off the
+    // line too, so that a plot shows comparable error bars).
+    for point in arrhenius.iter_mut() {
+        point.reduced_ln_density_unc = point
+            .relative_density_unc_stat
+            .map(|u| effective(line.slope, point, floored(u).0));
+    }
+    let quality = FitQuality::assess(line.chi_square, line.degrees_of_freedom);
+    let birge_ratio = if line.weighted { quality.birge_ratio } else { f64::NAN };
+    let slope_unc = if line.weighted {
+        quality.birge_ratio * line.slope_unc
+    } else {
+        line.slope_unc
+    };
     let factor = settings.regime.energy_per_slope();
     let activation_energy_ev = -factor * line.slope;
 
@@ -393,21 +525,49 @@ pub fn fit_arrhenius(points: &[DensityPoint], settings: &ArrheniusSettings) -> R
             line.slope
         ));
     }
-    if line.weighted && line.degrees_of_freedom > 0 {
-        let nu = line.degrees_of_freedom as f64;
-        if line.reduced_chi_square > 1.0 + 4.0 * (2.0 / nu).sqrt() {
+    if line.weighted {
+        let residuals: Vec<f64> = used
+            .iter()
+            .enumerate()
+            .map(|(i, point)| {
+                let sigma = effective(line.slope, point, base.as_ref().expect("weighted")[i]);
+                (line.evaluate(x[i]) - y[i]) / sigma
+            })
+            .collect();
+        if let Some(warning) = quality.warning(&residuals, |i| format!("{} K", used[i].temperature_k)) {
             warnings.push(format!(
-                "the points scatter about the line with reduced chi-square {:.3}: the range may include the bend towards another regime, or the uncertainties are too small",
-                line.reduced_chi_square
+                "{warning}. The range may include the bend towards another regime (narrow temperature_min_K..temperature_max_K), or the weights are too small: the statistical density uncertainties (density_m3_unc_stat, at least relative_uncertainty_floor) and the temperature uncertainties (temperature_K_unc or temperature_uncertainty_K)"
             ));
         }
+    } else if used.iter().any(|point| point.temperature_unc_k > 0.0) {
+        warnings.push(
+            "the temperature uncertainties were not used: without density uncertainties the line is unweighted and its errors come from the scatter; give density_m3_unc_stat (or density_m3_unc)"
+                .into(),
+        );
+    }
+    if !settled {
+        warnings.push(format!(
+            "the effective-variance weights still changed after {EFFECTIVE_VARIANCE_PASSES} passes, so the uncertainty is approximate; check temperature_K_unc (or temperature_uncertainty_K)"
+        ));
+    }
+    if series.outside_hall_factor_table > 0 {
+        warnings.push(format!(
+            "{} points lie outside the temperatures of hall_factor_table and take its end values; extend the table",
+            series.outside_hall_factor_table
+        ));
     }
     Ok(ArrheniusFit {
         activation_energy_ev,
-        activation_energy_ev_unc: factor * line.slope_unc,
+        activation_energy_ev_unc: factor * slope_unc,
         regime: settings.regime,
         carrier_type: series.carrier_type,
-        hall_factor: series.hall_factor,
+        hall_factor: series.common_hall_factor(),
+        chi_square_p_value: if line.weighted { quality.p_value } else { f64::NAN },
+        birge_ratio,
+        floored_points,
+        relative_uncertainty_floor: floor,
+        effective_variance_passes: passes,
+        temperature_unc_source: series.temperature_unc_source,
         temperature_min_k: low_k,
         temperature_max_k: high_k,
         points_used: used.len(),

@@ -27,16 +27,44 @@
 //!
 //! # Fit
 //!
-//! - **Hall factor.** A density from the Hall coefficient with r_H = 1 is n_H = n / r_H; with
-//!   [`HallFactor::Constant`] or [`HallFactor::ScatteringExponent`] (r_H of tau ~ E^s from
-//!   `mobilis_core::forward::mobility::hall_scattering_factor`) the densities and their
-//!   uncertainties are multiplied by r_H before fitting. Leave it at [`HallFactor::Unity`]
-//!   when `hall.reduce` already applied the sample sheet's Hall factor.
-//! - **Residuals** r_i = (ln n_model(T_i) - ln n_i) / w_i: in logarithms, because the
-//!   densities span decades and their errors are relative. w_i = u(n_i) / n_i (the relative
-//!   uncertainty) when every point has one, and the covariance is then taken as it stands
-//!   (the uncertainties are trusted); without uncertainties w_i = 1 and the covariance is
-//!   scaled by the reduced chi-square.
+//! - **Hall factor.** A density from the Hall coefficient with r_H = 1 is n_H = n / r_H. The
+//!   points may say which factor was already applied to them
+//!   ([`DensityPoint::applied_hall_factor`], the `hall_factor` column of `hall.reduce`).
+//!   [`HallFactor::Unity`] leaves the densities as they are; [`HallFactor::Constant`],
+//!   [`HallFactor::ScatteringExponent`] (r_H of tau ~ E^s from
+//!   `mobilis_core::forward::mobility::hall_scattering_factor`) and [`HallFactor::Table`]
+//!   (r_H(T) from (temperature, factor) pairs, linear in T between them and held at the end
+//!   values beyond them) *replace* the applied factor: n = n_given r_H(T) / r_applied. A
+//!   Hall factor that changes through the series changes the slope of ln n(T), so a
+//!   constant one where r_H falls from about 1.9 to 1.2 biases the energy and the
+//!   compensation (a test shows it).
+//! - **Residuals** r_i = (ln n_model(T_i) - ln n_i) / s_i: in logarithms, because the
+//!   densities span decades and their errors are relative.
+//! - **Weights: the uncertainty budget.** The densities carry a statistical (Type A, from
+//!   the scatter of the readings) standard uncertainty u_stat, which weights the fit, and
+//!   may carry a systematic one u_sys that is common to every point of the series (the
+//!   thickness, current, voltage and field calibrations of `hall.reduce`: one scale error
+//!   shared by the whole series, JCGM 100:2008, the GUM, 5.2 on correlated inputs). The
+//!   common part never weights the fit: it is applied once, after the fit (see "The
+//!   common scale" below). The relative statistical uncertainty is raised to at least
+//!   [`FreezeOutSettings::relative_uncertainty_floor`] (default
+//!   `mobilis_core::fit::RELATIVE_UNCERTAINTY_FLOOR`, 0.1 %), so that no single point can
+//!   pin the fit (a Hall density reported to 5e-13 would otherwise outweigh the rest by
+//!   twenty orders of magnitude).
+//! - **Temperature errors (effective variance).** Each point's temperature has a standard
+//!   uncertainty u_T (the readings' spread and the thermometer's accuracy, `hall.reduce`'s
+//!   `temperature_K_unc`, or [`FreezeOutSettings::temperature_unc_k`] when the points carry
+//!   none). It enters through the model's slope: s_i^2 = (u_stat/n)^2 + (d ln n/dT)^2 u_T^2
+//!   at the current parameters (Clutton-Brock, Technometrics 9, 261, 1967; Orear, Am. J.
+//!   Phys. 50, 912, 1982). In freeze-out d ln n/dT reaches about 0.5 to 1 per kelvin near
+//!   20 K, so 30 mK of stage drift is a 1.5 to 3 % error there, far above the reading noise;
+//!   on the saturation plateau the slope vanishes and the temperature costs nothing. The
+//!   slope is taken by central differences of the exact model; the fit is repeated with the
+//!   updated weights (from the best parameters of the previous pass, the first repetition
+//!   from every start again) until no weight changes by more than 0.1 %
+//!   ([`EFFECTIVE_VARIANCE_TOLERANCE`], at most [`EFFECTIVE_VARIANCE_PASSES`] passes).
+//!   Without density uncertainties the fit is unweighted (s_i = 1) and the temperature
+//!   uncertainties are not used (a warning says so).
 //! - **Parameters** theta = (log10 N_net, log10 c, E) with N_net = N_maj - N_comp (what the
 //!   saturation plateau shows) and c = N_comp / N_maj (what the depth of freeze-out below the
 //!   plateau shows): nearly orthogonal, each of order one, and bounded: N_net within
@@ -59,10 +87,38 @@
 //!   near 0.6 and E near two thirds of the truth). Starts given in
 //!   [`FreezeOutSettings::initial_guesses`] are added. The converged run of lowest
 //!   chi-square wins; the result says how many starts reached it.
+//! - **Is the model right within the errors?** chi^2 / nu and its p-value
+//!   (`mobilis_core::fit::FitQuality`). In a weighted fit the covariance is multiplied by
+//!   chi^2 / nu when that exceeds 1 (the Birge ratio, Birge, Phys. Rev. 40, 207, 1932; the
+//!   Particle Data Group's practice for inconsistent data) and never shrunk; when the
+//!   p-value is below 1e-3 a warning names the worst points and the inputs that set the
+//!   weights. Unweighted, the covariance is scaled by chi^2 / nu both ways (the scatter is
+//!   the only measure of the noise) and there is no p-value.
 //! - **Uncertainties** of N_maj = N_net / (1 - c), N_comp = c N_net / (1 - c), c and E by
-//!   first-order propagation of the covariance of theta. A parameter that ends on a bound is
-//!   not determined by the data (its uncertainty is `None` and a warning says so), and the
-//!   others' uncertainties are conditional on it.
+//!   first-order propagation of the covariance of theta: the statistical part
+//!   (`_unc_stat`), which holds the reading noise and the temperature errors.
+//! - **The common scale, applied once after the fit.** The relative systematic
+//!   uncertainty s of the densities (the largest u_sys / n over the points, so that a
+//!   series whose rows disagree is not under-reported; they agree when they come from one
+//!   sample's calibration), or [`FreezeOutSettings::density_scale_relative_unc`] when the
+//!   points carry none, is one error shared by every point: it shifts every ln n_i by the
+//!   same s. Its effect on the parameters is the fit's own first-order response to that
+//!   shift, d theta = (J^T J)^-1 J^T (1 / sigma) s (J the Jacobian of the weighted
+//!   residuals at the solution; the GUM's propagation of a fully correlated input), which
+//!   is what a refit of data scaled by 1 + s gives (a test checks it to 10 %). It is not a
+//!   plain scale on every density: on the saturation plateau n = N_net, so N_net takes s
+//!   nearly in full; deep in the compensated regime n = (N_net / N_comp) K(T) does not
+//!   change when N_net and N_comp scale together, so N_comp takes little of it; between the
+//!   two the model cannot follow a pure scale and the fit trades a little of it against E
+//!   and c (for the silicon of the tests, 3 % moves N_net by 3.2 %, N_A by 0.5 % and E_D by
+//!   0.01 meV; with the larger low-temperature errors of a real series, up to a few tenths
+//!   of a meV). These shifts are the `_unc_sys` of every parameter, fully correlated among
+//!   them in the reported covariance; the totals `_unc` are the quadrature sums. Without
+//!   this, a coverage test shows E_D within 1 sigma of the truth in 13 % of realizations
+//!   instead of 68 %.
+//! - **Bounds.** A parameter that ends on a bound is not determined by the data (its
+//!   uncertainty is `None` and a warning says so), and the others' uncertainties are
+//!   conditional on it.
 //! - **Curve.** The fitted density on [`FreezeOutSettings::curve_points`] temperatures
 //!   spaced geometrically over the range of the data used.
 //!
@@ -70,17 +126,29 @@
 //!
 //! Fewer than four distinct temperatures (three parameters plus one), the carrier type
 //! switching within the series, non-positive or non-finite densities or temperatures,
-//! uncertainties for some points but not others, a temperature range that excludes all data.
+//! density uncertainties for some points but not others, negative or non-finite
+//! uncertainties, temperature uncertainties missing for some points when no stated one
+//! stands in for them, a Hall factor table that is not a function of temperature, a
+//! temperature range that excludes all data.
 
+#[cfg(test)]
+mod budget_tests;
+#[cfg(test)]
+mod coverage;
 mod error;
 pub mod model;
+#[cfg(test)]
+pub(crate) mod realistic;
 #[cfg(test)]
 mod tests;
 
 use std::fmt;
 
 use mobilis_core::constants::BOLTZMANN_EV_PER_K;
-use mobilis_core::fit::{fit_line, Bounds, FitError, LeastSquares, LmOptions, SameMinimum};
+use mobilis_core::fit::{
+    effective_uncertainty, fit_line, floored_relative_uncertainty, Bounds, FitError, FitQuality, LeastSquares,
+    LmOptions, MultiStartFit, SameMinimum, RELATIVE_UNCERTAINTY_FLOOR,
+};
 use mobilis_core::forward::mobility::hall_scattering_factor;
 use mobilis_core::forward::statistics::{ACCEPTOR_DEGENERACY_DEFAULT, DONOR_DEGENERACY_DEFAULT};
 use mobilis_core::linalg::Matrix;
@@ -136,43 +204,57 @@ impl fmt::Display for CarrierType {
 }
 
 /// One measured carrier density.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
 pub struct DensityPoint {
     pub temperature_k: f64,
     /// Majority carrier density (a positive magnitude), m^-3.
     pub density_m3: f64,
-    /// Its standard uncertainty, m^-3.
+    /// Its statistical (Type A) standard uncertainty, m^-3: what weights the fit.
     pub density_unc_m3: Option<f64>,
+    /// Its systematic standard uncertainty common to the whole series (calibrations of
+    /// thickness, current, voltage and field), m^-3: applied once after the fit as a scale.
+    pub density_unc_sys_m3: Option<f64>,
+    /// Standard uncertainty of the temperature, K.
+    pub temperature_unc_k: Option<f64>,
+    /// The Hall factor already applied to `density_m3` (`None`: 1).
+    pub applied_hall_factor: Option<f64>,
     /// The carrier type of this point (from the sign of the Hall coefficient), if known.
     pub carrier_type: Option<CarrierType>,
 }
 
-/// The Hall scattering factor to apply before fitting: n = r_H n_H.
-#[derive(Debug, Clone, Copy, PartialEq, Default)]
+/// The Hall scattering factor in effect when fitting: n = r_H n_H.
+#[derive(Debug, Clone, PartialEq, Default)]
 pub enum HallFactor {
-    /// r_H = 1: the densities are used as given.
+    /// The densities are used as given (with whatever factor was applied to them).
     #[default]
     Unity,
-    /// A constant r_H.
+    /// A constant r_H, replacing the factor applied to the points.
     Constant(f64),
     /// r_H of a relaxation time tau ~ E^s (Putley 1960): s = -1/2 acoustic phonons
-    /// (3 pi / 8), s = 3/2 ionized impurities (315 pi / 512).
+    /// (3 pi / 8), s = 3/2 ionized impurities (315 pi / 512); replaces the applied factor.
     ScatteringExponent(f64),
+    /// r_H(T) from (temperature in K, r_H) pairs: linear in T between them, the end values
+    /// beyond them; replaces the applied factor.
+    Table(Vec<(f64, f64)>),
 }
 
 impl HallFactor {
-    /// The factor r_H.
+    /// The factor r_H when it does not depend on temperature (a one-entry table counts).
     pub fn value(&self) -> Result<f64, SeriesError> {
-        let value = match *self {
+        let value = match self {
             HallFactor::Unity => 1.0,
-            HallFactor::Constant(value) => value,
+            HallFactor::Constant(value) => *value,
             HallFactor::ScatteringExponent(exponent) => {
-                let value = hall_scattering_factor(exponent);
+                let value = hall_scattering_factor(*exponent);
                 if !value.is_finite() {
-                    return Err(SeriesError::InvalidHallFactor { value: exponent });
+                    return Err(SeriesError::InvalidHallFactor { value: *exponent });
                 }
                 value
             }
+            HallFactor::Table(table) => match table.as_slice() {
+                [(_, value)] => *value,
+                _ => return Err(SeriesError::HallFactorVaries),
+            },
         };
         if value.is_finite() && value > 0.0 {
             Ok(value)
@@ -180,6 +262,64 @@ impl HallFactor {
             Err(SeriesError::InvalidHallFactor { value })
         }
     }
+
+    /// Whether the factor replaces the one applied to the points.
+    fn replaces_applied(&self) -> bool {
+        !matches!(self, HallFactor::Unity)
+    }
+
+    /// The checked table sorted by temperature, or `None` for the other kinds.
+    fn sorted_table(&self) -> Result<Option<Vec<(f64, f64)>>, SeriesError> {
+        let HallFactor::Table(table) = self else {
+            return Ok(None);
+        };
+        if table.is_empty() {
+            return Err(SeriesError::EmptyHallFactorTable);
+        }
+        for (index, &(temperature_k, hall_factor)) in table.iter().enumerate() {
+            if !(temperature_k.is_finite() && temperature_k > 0.0 && hall_factor.is_finite() && hall_factor > 0.0) {
+                return Err(SeriesError::InvalidHallFactorEntry {
+                    index,
+                    temperature_k,
+                    hall_factor,
+                });
+            }
+        }
+        let mut sorted = table.clone();
+        sorted.sort_by(|a, b| a.0.total_cmp(&b.0));
+        if let Some(pair) = sorted.windows(2).find(|pair| pair[0].0 == pair[1].0) {
+            return Err(SeriesError::RepeatedHallFactorTemperature {
+                temperature_k: pair[0].0,
+            });
+        }
+        Ok(Some(sorted))
+    }
+}
+
+/// r_H at `temperature_k` from a sorted table: linear between the nodes, the end values
+/// beyond them.
+pub fn interpolate_hall_factor(sorted: &[(f64, f64)], temperature_k: f64) -> f64 {
+    let (first, last) = (sorted[0], sorted[sorted.len() - 1]);
+    if temperature_k <= first.0 {
+        return first.1;
+    }
+    if temperature_k >= last.0 {
+        return last.1;
+    }
+    let upper = sorted.partition_point(|node| node.0 <= temperature_k);
+    let (low, high) = (sorted[upper - 1], sorted[upper]);
+    low.1 + (high.1 - low.1) * (temperature_k - low.0) / (high.0 - low.0)
+}
+
+/// Where an uncertainty of the budget came from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum UncertaintySource {
+    /// From the points themselves (columns of the input).
+    Points,
+    /// From a value stated in the settings (for every point, or the points without one).
+    Stated,
+    /// Nobody gave it: it counts as zero.
+    NotGiven,
 }
 
 /// A starting point given by the user.
@@ -213,6 +353,16 @@ pub struct FreezeOutSettings {
     /// Only points with min <= T <= max, K; `None` (default) uses all.
     pub temperature_range_k: Option<(f64, f64)>,
     pub hall_factor: HallFactor,
+    /// The smallest relative statistical uncertainty a point keeps in a weighted fit.
+    /// Default `RELATIVE_UNCERTAINTY_FLOOR` (1e-3).
+    pub relative_uncertainty_floor: f64,
+    /// Standard uncertainty of the temperature of every point that carries none, K; `None`
+    /// (default): not given, taken as 0.
+    pub temperature_unc_k: Option<f64>,
+    /// Relative standard uncertainty of a scale common to all densities (thickness,
+    /// current, voltage, field calibrations) when no point carries `density_unc_sys_m3`;
+    /// `None` (default): not given, taken as 0.
+    pub density_scale_relative_unc: Option<f64>,
     /// Bounds of E, eV. Default (0.001, 1.0).
     pub ionization_energy_bounds_ev: (f64, f64),
     /// Bounds of c = N_comp / N_maj. Default (1e-6, 0.995).
@@ -243,6 +393,9 @@ impl Default for FreezeOutSettings {
             compensating_level: None,
             temperature_range_k: None,
             hall_factor: HallFactor::Unity,
+            relative_uncertainty_floor: RELATIVE_UNCERTAINTY_FLOOR,
+            temperature_unc_k: None,
+            density_scale_relative_unc: None,
             ionization_energy_bounds_ev: (0.001, 1.0),
             compensation_bounds: (1e-6, 0.995),
             net_density_bounds_m3: None,
@@ -338,6 +491,16 @@ impl FreezeOutSettings {
         if self.max_iterations == 0 {
             return invalid("max_iterations", 0.0, "give at least 1 iteration");
         }
+        validate_stated_uncertainties(
+            self.relative_uncertainty_floor,
+            self.temperature_unc_k,
+            self.density_scale_relative_unc,
+        )
+        .map_err(|(setting, value, requirement)| FreezeOutError::InvalidSetting {
+            setting,
+            value,
+            requirement,
+        })?;
         for guess in &self.initial_guesses {
             let ok = guess.dopant_density_m3.is_finite()
                 && guess.compensating_density_m3.is_finite()
@@ -356,18 +519,62 @@ impl FreezeOutSettings {
     }
 }
 
+/// Checks the stated parts of the uncertainty budget shared by the freeze-out and
+/// Arrhenius fits; the error names the setting, its value and what to give instead.
+pub(crate) fn validate_stated_uncertainties(
+    floor: f64,
+    temperature_unc_k: Option<f64>,
+    density_scale_relative_unc: Option<f64>,
+) -> Result<(), (&'static str, f64, &'static str)> {
+    if !(floor.is_finite() && (0.0..1.0).contains(&floor)) {
+        return Err((
+            "relative_uncertainty_floor",
+            floor,
+            "give a relative uncertainty of 0 or more and below 1 (default 0.001)",
+        ));
+    }
+    if let Some(value) = temperature_unc_k {
+        if !(value.is_finite() && value >= 0.0) {
+            return Err((
+                "temperature_uncertainty_K",
+                value,
+                "give the standard uncertainty of the temperatures in kelvin, 0 or more",
+            ));
+        }
+    }
+    if let Some(value) = density_scale_relative_unc {
+        if !(value.is_finite() && (0.0..1.0).contains(&value)) {
+            return Err((
+                "density_scale_relative_uncertainty",
+                value,
+                "give the relative standard uncertainty of the density scale, 0 or more and below 1 (0.03 for 3 %)",
+            ));
+        }
+    }
+    Ok(())
+}
+
 /// One point as fitted.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct FittedPoint {
     pub temperature_k: f64,
     /// The density after the Hall-factor correction, m^-3.
     pub density_m3: f64,
+    /// Its statistical uncertainty as given (after the Hall-factor correction), m^-3.
     pub density_unc_m3: Option<f64>,
+    /// The temperature's standard uncertainty used, K.
+    pub temperature_unc_k: f64,
+    /// The Hall factor in effect for this point.
+    pub hall_factor: f64,
+    /// The relative uncertainty that weighted the point: the floored statistical part and
+    /// the temperature's through the model's slope, before any Birge scaling (weighted
+    /// fits only).
+    pub effective_relative_unc: Option<f64>,
     /// The fitted model at this temperature, m^-3.
     pub model_density_m3: f64,
     /// ln(model) - ln(data).
     pub residual_ln: f64,
-    /// The residual over the relative uncertainty, when there is one.
+    /// The residual over the effective relative uncertainty (weighted fits only).
     pub normalized_residual: Option<f64>,
 }
 
@@ -381,13 +588,39 @@ pub struct CurvePoint {
 /// The names of the fitted parameters, in the order of the fit.
 pub const PARAMETER_NAMES: [&str; 3] = ["net dopant density", "compensation ratio", "ionization energy"];
 
-/// The result of [`fit_freeze_out`]. Uncertainties are one standard error; `None` where the
-/// parameter ended on a bound.
+/// A fitted value with its budget: `unc` is the total, the quadrature sum of `unc_stat`
+/// (from the fit) and `unc_sys` (the common scale of the densities).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Estimate {
+    pub value: f64,
+    /// Total standard uncertainty; `None` when the fit does not determine the value.
+    pub unc: Option<f64>,
+    /// Statistical part: reading noise and temperature errors through the fit.
+    pub unc_stat: Option<f64>,
+    /// Systematic part: what the common scale of the densities moves the value by (0 when
+    /// no scale uncertainty was given).
+    pub unc_sys: f64,
+}
+
+impl Estimate {
+    fn new(value: f64, unc_stat: Option<f64>, unc_sys: f64) -> Self {
+        Estimate {
+            value,
+            unc: unc_stat.map(|stat| stat.hypot(unc_sys)),
+            unc_stat,
+            unc_sys,
+        }
+    }
+}
+
+/// The result of [`fit_freeze_out`]. Uncertainties are one standard uncertainty; `None`
+/// where the parameter ended on a bound.
 #[derive(Debug, Clone, PartialEq)]
 pub struct FreezeOutFit {
     pub carrier_type: CarrierType,
     /// Majority dopant density (donors for n-type), m^-3.
     pub dopant_density_m3: f64,
+    /// Its total uncertainty (statistical and common scale).
     pub dopant_density_m3_unc: Option<f64>,
     /// Compensating density (acceptors for n-type), m^-3.
     pub compensating_density_m3: f64,
@@ -395,24 +628,51 @@ pub struct FreezeOutFit {
     /// Dopant minus compensating density (the saturation density), m^-3.
     pub net_density_m3: f64,
     pub net_density_m3_unc: Option<f64>,
+    /// The three densities with their budgets (the same values as above).
+    pub dopant: Estimate,
+    pub compensating: Estimate,
+    pub net: Estimate,
     /// Compensating over dopant density.
     pub compensation_ratio: f64,
+    /// Its total uncertainty.
     pub compensation_ratio_unc: Option<f64>,
     /// The majority level's distance from its band edge, eV.
     pub ionization_energy_ev: f64,
+    /// Its total uncertainty.
     pub ionization_energy_ev_unc: Option<f64>,
-    /// Covariance of (dopant density, compensating density, ionization energy), in m^-3
-    /// and eV; rows and columns of a parameter on a bound are zero.
+    /// The compensation ratio and the energy with their budgets.
+    pub ratio: Estimate,
+    pub energy: Estimate,
+    /// Total covariance of (dopant density, compensating density, ionization energy), in
+    /// m^-3 and eV: the fit's (after Birge scaling) plus the common scale's, which is fully
+    /// correlated; rows and columns of a parameter on a bound are zero.
     pub covariance: [[f64; 3]; 3],
     /// The degeneracy factor used.
     pub degeneracy: f64,
-    /// The Hall factor applied to the data.
-    pub hall_factor: f64,
+    /// The Hall factor in effect when it is the same for every point; `None` when it
+    /// varies with temperature (see the points).
+    pub hall_factor: Option<f64>,
     /// True when the density uncertainties weighted the fit.
     pub weighted: bool,
     pub chi_square: f64,
     pub degrees_of_freedom: usize,
     pub reduced_chi_square: f64,
+    /// P(chi^2_nu >= chi^2) of a weighted fit; NaN unweighted.
+    pub chi_square_p_value: f64,
+    /// The factor the statistical uncertainties were multiplied by (1 when chi^2/nu <= 1);
+    /// NaN unweighted.
+    pub birge_ratio: f64,
+    /// Points whose relative statistical uncertainty was raised to the floor.
+    pub floored_points: usize,
+    /// The floor used.
+    pub relative_uncertainty_floor: f64,
+    /// Fits repeated with updated effective-variance weights (0 without temperature
+    /// uncertainties).
+    pub effective_variance_passes: usize,
+    /// The common relative scale uncertainty applied to the densities (0 when not given).
+    pub density_scale_relative_unc: f64,
+    pub density_scale_source: UncertaintySource,
+    pub temperature_unc_source: UncertaintySource,
     /// Names (from [`PARAMETER_NAMES`]) of the parameters that ended on a bound.
     pub at_bound: Vec<&'static str>,
     /// Starts tried, converged, and converged at the reported minimum.
@@ -435,8 +695,22 @@ pub(crate) struct Series {
     pub carrier_type: CarrierType,
     pub temperatures_k: Vec<f64>,
     pub densities_m3: Vec<f64>,
+    /// Statistical uncertainties (after the Hall-factor correction).
     pub uncertainties_m3: Option<Vec<f64>>,
-    pub hall_factor: f64,
+    /// Standard uncertainty of each temperature, K (0 when not given).
+    pub temperature_unc_k: Vec<f64>,
+    pub temperature_unc_source: UncertaintySource,
+    /// The Hall factor in effect for each point.
+    pub hall_factors: Vec<f64>,
+    /// The common relative scale uncertainty of the densities (0 when not given).
+    pub density_scale_relative_unc: f64,
+    pub density_scale_source: UncertaintySource,
+    /// The smallest relative systematic uncertainty among the points (equal to the
+    /// largest when the rows agree, as one sample's calibration does).
+    pub smallest_point_scale: f64,
+    /// Points outside the temperature range of a Hall factor table (they take its end
+    /// values).
+    pub outside_hall_factor_table: usize,
 }
 
 impl Series {
@@ -456,21 +730,45 @@ impl Series {
         }
         count
     }
+
+    /// The Hall factor when every point has the same one.
+    pub fn common_hall_factor(&self) -> Option<f64> {
+        let first = *self.hall_factors.first()?;
+        self.hall_factors.iter().all(|f| *f == first).then_some(first)
+    }
+
+    /// Whether any temperature uncertainty is above zero.
+    pub fn has_temperature_unc(&self) -> bool {
+        self.temperature_unc_k.iter().any(|u| *u > 0.0)
+    }
+}
+
+/// What [`prepare_series`] needs besides the points.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct SeriesOptions<'a> {
+    pub carrier_type: Option<CarrierType>,
+    pub range_k: Option<(f64, f64)>,
+    pub hall_factor: &'a HallFactor,
+    /// For points without their own temperature uncertainty.
+    pub temperature_unc_k: Option<f64>,
+    /// For a series whose points carry no systematic uncertainty.
+    pub density_scale_relative_unc: Option<f64>,
 }
 
 /// Checks the points, applies the temperature range and the Hall factor, and sorts by
 /// temperature. Every point is checked for finite values (also those outside the range);
 /// the carrier type and the uncertainties are judged over the points in the range.
-pub(crate) fn prepare_series(
-    points: &[DensityPoint],
-    carrier_type: Option<CarrierType>,
-    range_k: Option<(f64, f64)>,
-    hall_factor: &HallFactor,
-) -> Result<Series, SeriesError> {
+pub(crate) fn prepare_series(points: &[DensityPoint], options: &SeriesOptions<'_>) -> Result<Series, SeriesError> {
     if points.is_empty() {
         return Err(SeriesError::NoPoints);
     }
-    let factor = hall_factor.value()?;
+    let hall_factor = options.hall_factor;
+    let table = hall_factor.sorted_table()?;
+    let constant = if table.is_none() {
+        Some(hall_factor.value()?)
+    } else {
+        None
+    };
     for (index, point) in points.iter().enumerate() {
         let t = point.temperature_k;
         if !t.is_finite() {
@@ -491,9 +789,24 @@ pub(crate) fn prepare_series(
                 return Err(SeriesError::InvalidUncertainty { index, value: u });
             }
         }
+        if let Some(u) = point.density_unc_sys_m3 {
+            if !(u.is_finite() && u >= 0.0) {
+                return Err(SeriesError::InvalidSystematicUncertainty { index, value: u });
+            }
+        }
+        if let Some(u) = point.temperature_unc_k {
+            if !(u.is_finite() && u >= 0.0) {
+                return Err(SeriesError::InvalidTemperatureUncertainty { index, value: u });
+            }
+        }
+        if let Some(factor) = point.applied_hall_factor {
+            if !(factor.is_finite() && factor > 0.0) {
+                return Err(SeriesError::InvalidAppliedHallFactor { index, value: factor });
+            }
+        }
     }
     let mut selected: Vec<usize> = (0..points.len()).collect();
-    if let Some((min_k, max_k)) = range_k {
+    if let Some((min_k, max_k)) = options.range_k {
         // A missing bound is 0 K or infinity (`temperature_min_K` or `temperature_max_K`
         // given alone), so only NaN, a negative lower bound and a reversed range are wrong.
         if !(min_k >= 0.0 && max_k >= min_k) {
@@ -529,7 +842,7 @@ pub(crate) fn prepare_series(
             }
         }
     }
-    let carrier_type = match (carrier_type, data_type) {
+    let carrier_type = match (options.carrier_type, data_type) {
         (Some(requested), Some((found, index))) if requested != found => {
             return Err(SeriesError::CarrierTypeMismatch {
                 requested,
@@ -548,17 +861,93 @@ pub(crate) fn prepare_series(
             without: selected.len() - with,
         });
     }
+
+    // Temperature uncertainties: the point's own, else the stated one.
+    let own = selected
+        .iter()
+        .filter(|&&i| points[i].temperature_unc_k.is_some())
+        .count();
+    let temperature_unc_source = match (own, options.temperature_unc_k) {
+        (0, None) => UncertaintySource::NotGiven,
+        (own, None) if own < selected.len() => {
+            let index = *selected
+                .iter()
+                .find(|&&i| points[i].temperature_unc_k.is_none())
+                .expect("a point without one");
+            return Err(SeriesError::MissingTemperatureUncertainty {
+                index,
+                with: own,
+                without: selected.len() - own,
+            });
+        }
+        (own, _) if own == selected.len() => UncertaintySource::Points,
+        _ => UncertaintySource::Stated,
+    };
+    let temperature_unc_k: Vec<f64> = selected
+        .iter()
+        .map(|&i| points[i].temperature_unc_k.or(options.temperature_unc_k).unwrap_or(0.0))
+        .collect();
+
+    // The common scale: the largest relative systematic uncertainty of the points, else
+    // the stated one.
+    let point_scales: Vec<f64> = selected
+        .iter()
+        .filter_map(|&i| points[i].density_unc_sys_m3.map(|u| u / points[i].density_m3))
+        .collect();
+    let smallest_point_scale = point_scales.iter().copied().fold(f64::INFINITY, f64::min);
+    let (density_scale_relative_unc, density_scale_source) = if !point_scales.is_empty() {
+        (
+            point_scales.iter().copied().fold(0.0, f64::max),
+            UncertaintySource::Points,
+        )
+    } else if let Some(stated) = options.density_scale_relative_unc {
+        (stated, UncertaintySource::Stated)
+    } else {
+        (0.0, UncertaintySource::NotGiven)
+    };
+
+    // Hall factors: as given, or replacing the applied one.
+    let mut outside_hall_factor_table = 0;
+    let mut hall_factors = Vec::with_capacity(selected.len());
+    let mut corrections = Vec::with_capacity(selected.len());
+    for &i in &selected {
+        let applied = points[i].applied_hall_factor.unwrap_or(1.0);
+        let in_effect = match (&table, constant) {
+            (Some(table), _) => {
+                let t = points[i].temperature_k;
+                if t < table[0].0 || t > table[table.len() - 1].0 {
+                    outside_hall_factor_table += 1;
+                }
+                interpolate_hall_factor(table, t)
+            }
+            (None, Some(value)) if hall_factor.replaces_applied() => value,
+            _ => applied,
+        };
+        hall_factors.push(in_effect);
+        corrections.push(in_effect / applied);
+    }
     Ok(Series {
         carrier_type,
         temperatures_k: selected.iter().map(|&i| points[i].temperature_k).collect(),
-        densities_m3: selected.iter().map(|&i| factor * points[i].density_m3).collect(),
+        densities_m3: selected
+            .iter()
+            .zip(&corrections)
+            .map(|(&i, factor)| factor * points[i].density_m3)
+            .collect(),
         uncertainties_m3: (with > 0).then(|| {
             selected
                 .iter()
-                .map(|&i| factor * points[i].density_unc_m3.expect("checked: every point has one"))
+                .zip(&corrections)
+                .map(|(&i, factor)| factor * points[i].density_unc_m3.expect("checked: every point has one"))
                 .collect()
         }),
-        hall_factor: factor,
+        temperature_unc_k,
+        temperature_unc_source,
+        hall_factors,
+        density_scale_relative_unc,
+        density_scale_source,
+        smallest_point_scale,
+        outside_hall_factor_table,
     })
 }
 
@@ -659,14 +1048,109 @@ fn grid_starts(
         .collect()
 }
 
+/// The largest relative change of an effective-variance weight at which the passes stop.
+pub const EFFECTIVE_VARIANCE_TOLERANCE: f64 = 1e-3;
+/// The most fits one call repeats with updated effective-variance weights.
+pub const EFFECTIVE_VARIANCE_PASSES: usize = 20;
+/// The relative temperature step of the central difference d ln n / dT: small enough for
+/// the curvature of ln n(T) not to matter (its error is of order step^2), large enough for
+/// rounding of ln n (about 1e-14 absolute) to stay below 1e-8 of the slope.
+const SLOPE_STEP: f64 = 1e-4;
+/// A stated relative uncertainty this far below the floor is worth a warning: whatever
+/// produced it did not measure the point's reproducibility.
+const IMPLAUSIBLE_BELOW_FLOOR: f64 = 1e-2;
+
+/// The model at the series' temperatures, and the residuals a pass minimizes.
+struct NeutralityProblem<'a> {
+    terms: &'a [TemperatureTerms],
+    /// The terms at T (1 + step) and T (1 - step) for the slope.
+    slope_terms: Vec<(TemperatureTerms, TemperatureTerms, f64)>,
+    ln_data: &'a [f64],
+    ln_degeneracy: f64,
+    compensating_level: Option<(f64, f64)>,
+}
+
+impl NeutralityProblem<'_> {
+    fn residuals(&self, theta: &[f64], sigma: &[f64], r: &mut [f64]) {
+        let parameters = level_parameters(theta, self.ln_degeneracy, self.compensating_level);
+        for i in 0..r.len() {
+            r[i] = (ln_majority_density(&self.terms[i], &parameters) - self.ln_data[i]) / sigma[i];
+        }
+    }
+
+    /// d ln n / dT of the model at every point, K^-1 (0 where the model is not finite).
+    fn ln_density_slopes(&self, theta: &[f64]) -> Vec<f64> {
+        let parameters = level_parameters(theta, self.ln_degeneracy, self.compensating_level);
+        self.slope_terms
+            .iter()
+            .map(|(above, below, span)| {
+                let slope = (ln_majority_density(above, &parameters) - ln_majority_density(below, &parameters)) / span;
+                if slope.is_finite() {
+                    slope
+                } else {
+                    0.0
+                }
+            })
+            .collect()
+    }
+}
+
+/// d theta / d delta: how the best parameters move when every ln n_i moves by delta, to
+/// first order: (J^T J)^-1 J^T (1 / sigma) with J the Jacobian of the weighted residuals at
+/// the solution, over the parameters not on a bound (those do not move). Zero when J^T J
+/// cannot be inverted.
+fn common_shift_sensitivity(
+    problem: &NeutralityProblem<'_>,
+    theta: &[f64],
+    sigma: &[f64],
+    at_bound: &[bool],
+) -> [f64; 3] {
+    // Central differences of the residuals; steps of 1e-6 in log10 N_net and log10 c and
+    // 1e-8 eV in E, far inside every basin and far above rounding.
+    let steps = [1e-6, 1e-6, 1e-8];
+    let free: Vec<usize> = (0..3).filter(|&j| !at_bound[j]).collect();
+    let count = sigma.len();
+    let mut jacobian = Matrix::zeros(count, free.len());
+    let (mut above, mut below) = (vec![0.0; count], vec![0.0; count]);
+    for (column, &j) in free.iter().enumerate() {
+        let mut shifted = theta.to_vec();
+        shifted[j] = theta[j] + steps[j];
+        problem.residuals(&shifted, sigma, &mut above);
+        shifted[j] = theta[j] - steps[j];
+        problem.residuals(&shifted, sigma, &mut below);
+        for i in 0..count {
+            jacobian[(i, column)] = (above[i] - below[i]) / (2.0 * steps[j]);
+        }
+    }
+    let mut shift = [0.0; 3];
+    if free.is_empty() {
+        return shift;
+    }
+    let inverse_weights: Vec<f64> = sigma.iter().map(|s| 1.0 / s).collect();
+    let Ok(inverse) = jacobian.gram().inverse() else {
+        return shift;
+    };
+    let moved = inverse.mul_vec(&jacobian.transpose_mul_vec(&inverse_weights));
+    for (column, &j) in free.iter().enumerate() {
+        if moved[column].is_finite() {
+            shift[j] = moved[column];
+        }
+    }
+    shift
+}
+
 /// Fits the charge-neutrality model to a temperature series of carrier densities.
 pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> Result<FreezeOutFit, FreezeOutError> {
     settings.validate()?;
     let series = prepare_series(
         points,
-        settings.carrier_type,
-        settings.temperature_range_k,
-        &settings.hall_factor,
+        &SeriesOptions {
+            carrier_type: settings.carrier_type,
+            range_k: settings.temperature_range_k,
+            hall_factor: &settings.hall_factor,
+            temperature_unc_k: settings.temperature_unc_k,
+            density_scale_relative_unc: settings.density_scale_relative_unc,
+        },
     )?;
     let distinct = series.distinct_temperatures();
     if distinct < MIN_TEMPERATURES {
@@ -695,11 +1179,48 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
         .map(|t| TemperatureTerms::new(&bands, carrier_type, *t))
         .collect();
     let ln_data: Vec<f64> = series.densities_m3.iter().map(|n| n.ln()).collect();
-    let relative_unc: Option<Vec<f64>> = series
-        .uncertainties_m3
-        .as_ref()
-        .map(|unc| unc.iter().zip(&series.densities_m3).map(|(u, n)| u / n).collect());
-    let weights: Vec<f64> = relative_unc.clone().unwrap_or_else(|| vec![1.0; series.len()]);
+    let count = series.len();
+
+    // The statistical weights, floored.
+    let weighted = series.uncertainties_m3.is_some();
+    let floor = settings.relative_uncertainty_floor;
+    let mut floored_points = 0;
+    let mut implausibly_small = 0;
+    let base: Vec<f64> = match &series.uncertainties_m3 {
+        Some(unc) => unc
+            .iter()
+            .zip(&series.densities_m3)
+            .map(|(u, n)| {
+                let (relative, raised) = floored_relative_uncertainty(u / n, floor);
+                floored_points += usize::from(raised);
+                implausibly_small += usize::from(u / n < IMPLAUSIBLE_BELOW_FLOOR * floor);
+                relative
+            })
+            .collect(),
+        None => vec![1.0; count],
+    };
+    let use_temperature = weighted && series.has_temperature_unc();
+    let problem = NeutralityProblem {
+        terms: &terms,
+        slope_terms: if use_temperature {
+            series
+                .temperatures_k
+                .iter()
+                .map(|t| {
+                    (
+                        TemperatureTerms::new(&bands, carrier_type, t * (1.0 + SLOPE_STEP)),
+                        TemperatureTerms::new(&bands, carrier_type, t * (1.0 - SLOPE_STEP)),
+                        2.0 * SLOPE_STEP * t,
+                    )
+                })
+                .collect()
+        } else {
+            Vec::new()
+        },
+        ln_data: &ln_data,
+        ln_degeneracy,
+        compensating_level,
+    };
 
     // Bounds of theta.
     let n_max = series.densities_m3.iter().copied().fold(f64::NEG_INFINITY, f64::max);
@@ -746,20 +1267,9 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
             clamp(2, guess.ionization_energy_ev),
         ]);
     }
-    let residual = |theta: &[f64], r: &mut [f64]| {
-        let parameters = level_parameters(theta, ln_degeneracy, compensating_level);
-        for i in 0..r.len() {
-            r[i] = (ln_majority_density(&terms[i], &parameters) - ln_data[i]) / weights[i];
-        }
-    };
     if settings.grid_search {
-        starts.extend(grid_starts(
-            &residual,
-            series.len(),
-            clamp(0, n_max.log10()),
-            &lower,
-            &upper,
-        ));
+        let residual = |theta: &[f64], r: &mut [f64]| problem.residuals(theta, &base, r);
+        starts.extend(grid_starts(&residual, count, clamp(0, n_max.log10()), &lower, &upper));
     }
     if starts.is_empty() {
         return Err(FreezeOutError::InvalidSetting {
@@ -768,24 +1278,76 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
             requirement: "give at least one initial guess when derive_starts_from_data and grid_search are false",
         });
     }
-    let problem = LeastSquares::new(series.len(), &residual).with_bounds(bounds);
     let options = LmOptions {
-        residuals_are_weighted: relative_unc.is_some(),
+        residuals_are_weighted: weighted,
         // Typical magnitudes: decades for the two logarithms, 10 meV for the energy.
         parameter_scales: Some(vec![1.0, 1.0, 0.01]),
         max_iterations: settings.max_iterations,
         ..LmOptions::default()
     };
-    let multi = problem
-        .minimize_multi_start(&starts, &options, &SameMinimum::default())
-        .map_err(|error| match error {
+    let solve = |sigma: &[f64], starts: &[Vec<f64>]| -> Result<MultiStartFit, FreezeOutError> {
+        let residual = |theta: &[f64], r: &mut [f64]| problem.residuals(theta, sigma, r);
+        let result = LeastSquares::new(count, residual)
+            .with_bounds(bounds.clone())
+            .minimize_multi_start(starts, &options, &SameMinimum::default());
+        result.map_err(|error| match error {
             FitError::Singular { parameters } => FreezeOutError::Undetermined {
                 parameters: parameters.iter().map(|&j| PARAMETER_NAMES[j]).collect(),
             },
             other => FreezeOutError::Fit(other),
-        })?;
+        })
+    };
+
+    // The first pass weighs by the statistical part alone; then the temperature errors
+    // enter through the slope of the model at the previous pass's best parameters, until
+    // the weights settle (effective variance).
+    let mut sigma = base.clone();
+    let mut multi = solve(&sigma, &starts)?;
+    let (mut starts_converged, mut starts_at_best) = (multi.converged, multi.same_minimum);
+    let mut passes = 0;
+    let mut settled = true;
+    if use_temperature {
+        settled = false;
+        while passes < EFFECTIVE_VARIANCE_PASSES {
+            let slopes = problem.ln_density_slopes(&multi.best.parameters);
+            let updated: Vec<f64> = (0..count)
+                .map(|i| effective_uncertainty(base[i], slopes[i], series.temperature_unc_k[i]))
+                .collect();
+            let change = updated
+                .iter()
+                .zip(&sigma)
+                .map(|(new, old)| (new / old - 1.0).abs())
+                .fold(0.0, f64::max);
+            if change <= EFFECTIVE_VARIANCE_TOLERANCE {
+                settled = true;
+                break;
+            }
+            sigma = updated;
+            if passes == 0 {
+                // The new weights may move the global minimum: every start again, and the
+                // previous best.
+                let mut again = starts.clone();
+                again.push(multi.best.parameters.clone());
+                multi = solve(&sigma, &again)?;
+                starts_converged = multi.converged;
+                starts_at_best = multi.same_minimum;
+            } else {
+                multi = solve(&sigma, std::slice::from_ref(&multi.best.parameters))?;
+            }
+            passes += 1;
+        }
+    }
     let fit = &multi.best;
     let theta = &fit.parameters;
+
+    // Is the model right within the errors? Birge scaling of a weighted fit's covariance.
+    let quality = FitQuality::assess(fit.chi_square, fit.degrees_of_freedom);
+    let theta_covariance = if weighted {
+        let factor = quality.birge_ratio * quality.birge_ratio;
+        Matrix::from_fn(3, 3, |i, j| factor * fit.covariance[(i, j)])
+    } else {
+        fit.covariance.clone()
+    };
 
     // Physical parameters and first-order propagation of the covariance of theta.
     let ln10 = std::f64::consts::LN_10;
@@ -801,11 +1363,27 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
         [ln10 * compensating, d_over_dc, 0.0],
         [0.0, 0.0, 1.0],
     ]);
-    let physical = gradient.matmul(&fit.covariance).matmul(&gradient.transpose());
+    let physical = gradient.matmul(&theta_covariance).matmul(&gradient.transpose());
+    // The common scale of the densities, applied once: a relative error s of every
+    // density shifts every ln n_i by s, and the fit's parameters by s times their
+    // sensitivity to that shift (first-order propagation of a fully correlated input, the
+    // GUM's 5.2). On the saturation plateau it lands on N_net in full; in the compensated
+    // regime n ~ (N_net / N_comp) K(T) it leaves N_comp alone; between the two the model
+    // cannot follow a pure scale, and the fit trades some of it against E and c. Zero
+    // without a stated scale.
+    let scale = series.density_scale_relative_unc;
+    let theta_shift = if scale > 0.0 {
+        common_shift_sensitivity(&problem, theta, &sigma, &fit.at_bound)
+    } else {
+        [0.0; 3]
+    };
+    let physical_shift: Vec<f64> = (0..3)
+        .map(|i| scale * (0..3).map(|j| gradient[(i, j)] * theta_shift[j]).sum::<f64>())
+        .collect();
     let mut covariance = [[0.0; 3]; 3];
     for (i, row) in covariance.iter_mut().enumerate() {
         for (j, entry) in row.iter_mut().enumerate() {
-            *entry = physical[(i, j)];
+            *entry = physical[(i, j)] + physical_shift[i] * physical_shift[j];
         }
     }
     let free = |j: usize| !fit.at_bound[j];
@@ -818,15 +1396,20 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
     };
     let energy_unc = if free(2) { standard(physical[(2, 2)]) } else { None };
     let net_unc = if free(0) {
-        standard(fit.covariance[(0, 0)]).map(|sigma| ln10 * net * sigma)
+        standard(theta_covariance[(0, 0)]).map(|sigma| ln10 * net * sigma)
     } else {
         None
     };
     let ratio_unc = if free(1) {
-        standard(fit.covariance[(1, 1)]).map(|sigma| ln10 * ratio * sigma)
+        standard(theta_covariance[(1, 1)]).map(|sigma| ln10 * ratio * sigma)
     } else {
         None
     };
+    let dopant_estimate = Estimate::new(dopant, dopant_unc, physical_shift[0].abs());
+    let compensating_estimate = Estimate::new(compensating, compensating_unc, physical_shift[1].abs());
+    let energy_estimate = Estimate::new(energy, energy_unc, physical_shift[2].abs());
+    let net_estimate = Estimate::new(net, net_unc, (ln10 * net * scale * theta_shift[0]).abs());
+    let ratio_estimate = Estimate::new(ratio, ratio_unc, (ln10 * ratio * scale * theta_shift[1]).abs());
 
     let model = FreezeOutModel {
         carrier_type,
@@ -838,7 +1421,7 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
         compensating_level: settings.compensating_level,
     };
     let parameters = level_parameters(theta, ln_degeneracy, compensating_level);
-    let fitted_points: Vec<FittedPoint> = (0..series.len())
+    let fitted_points: Vec<FittedPoint> = (0..count)
         .map(|i| {
             let ln_model = ln_majority_density(&terms[i], &parameters);
             let residual_ln = ln_model - ln_data[i];
@@ -846,14 +1429,17 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
                 temperature_k: series.temperatures_k[i],
                 density_m3: series.densities_m3[i],
                 density_unc_m3: series.uncertainties_m3.as_ref().map(|unc| unc[i]),
+                temperature_unc_k: series.temperature_unc_k[i],
+                hall_factor: series.hall_factors[i],
+                effective_relative_unc: weighted.then_some(sigma[i]),
                 model_density_m3: ln_model.exp(),
                 residual_ln,
-                normalized_residual: relative_unc.as_ref().map(|unc| residual_ln / unc[i]),
+                normalized_residual: weighted.then_some(residual_ln / sigma[i]),
             }
         })
         .collect();
     let t_min = series.temperatures_k[0];
-    let t_max = series.temperatures_k[series.len() - 1];
+    let t_max = series.temperatures_k[count - 1];
     let curve: Vec<CurvePoint> = (0..settings.curve_points)
         .map(|k| {
             let fraction = k as f64 / (settings.curve_points - 1) as f64;
@@ -874,44 +1460,85 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
         .filter(|&j| fit.at_bound[j])
         .map(|j| PARAMETER_NAMES[j])
         .collect();
-    let warnings = collect_warnings(&WarningInputs {
+    let mut warnings = collect_warnings(&WarningInputs {
         fit_at_bound: &fit.at_bound,
         theta,
         lower: &lower,
-        weighted: relative_unc.is_some(),
-        reduced_chi_square: fit.reduced_chi_square,
-        degrees_of_freedom: fit.degrees_of_freedom,
+        weighted,
+        quality: &quality,
         starts: starts.len(),
-        starts_at_best: multi.same_minimum,
+        starts_at_best,
         terms: &terms,
         temperatures_k: &series.temperatures_k,
         points: &fitted_points,
         bands: &bands,
         carrier_type,
     });
+    if !settled {
+        warnings.push(format!(
+            "the effective-variance weights still changed after {EFFECTIVE_VARIANCE_PASSES} passes: the temperature uncertainties are large against the curvature of ln n(T), so the uncertainties are approximate; check temperature_K_unc (or temperature_uncertainty_K)"
+        ));
+    }
+    if series.uncertainties_m3.is_none() && series.has_temperature_unc() {
+        warnings.push(
+            "the temperature uncertainties were not used: without density uncertainties the fit is unweighted and its errors come from the scatter; give density_m3_unc_stat (or density_m3_unc) to weigh the points and propagate the temperatures"
+                .into(),
+        );
+    }
+    if implausibly_small > 0 {
+        warnings.push(format!(
+            "{implausibly_small} points state a relative density uncertainty below {:.0e}, which no Hall measurement reproduces; they were raised to relative_uncertainty_floor ({floor}) so that no point pins the fit",
+            IMPLAUSIBLE_BELOW_FLOOR * floor
+        ));
+    }
+    if series.density_scale_source == UncertaintySource::Points && series.smallest_point_scale < 0.9 * scale {
+        warnings.push(format!(
+            "the rows' density_m3_unc_sys / density_m3 range from {:.3e} to {scale:.3e}; the largest was applied as the scale common to the series, but a part that differs between rows is not common to them (check the calibration inputs of hall.reduce)",
+            series.smallest_point_scale
+        ));
+    }
+    if series.outside_hall_factor_table > 0 {
+        warnings.push(format!(
+            "{} points lie outside the temperatures of hall_factor_table and take its end values; extend the table to cover {t_min} K to {t_max} K",
+            series.outside_hall_factor_table
+        ));
+    }
     Ok(FreezeOutFit {
         carrier_type,
         dopant_density_m3: dopant,
-        dopant_density_m3_unc: dopant_unc,
+        dopant_density_m3_unc: dopant_estimate.unc,
         compensating_density_m3: compensating,
-        compensating_density_m3_unc: compensating_unc,
+        compensating_density_m3_unc: compensating_estimate.unc,
         net_density_m3: net,
-        net_density_m3_unc: net_unc,
+        net_density_m3_unc: net_estimate.unc,
+        dopant: dopant_estimate,
+        compensating: compensating_estimate,
+        net: net_estimate,
         compensation_ratio: ratio,
-        compensation_ratio_unc: ratio_unc,
+        compensation_ratio_unc: ratio_estimate.unc,
         ionization_energy_ev: energy,
-        ionization_energy_ev_unc: energy_unc,
+        ionization_energy_ev_unc: energy_estimate.unc,
+        ratio: ratio_estimate,
+        energy: energy_estimate,
         covariance,
         degeneracy,
-        hall_factor: series.hall_factor,
-        weighted: relative_unc.is_some(),
+        hall_factor: series.common_hall_factor(),
+        weighted,
         chi_square: fit.chi_square,
         degrees_of_freedom: fit.degrees_of_freedom,
         reduced_chi_square: fit.reduced_chi_square,
+        chi_square_p_value: if weighted { quality.p_value } else { f64::NAN },
+        birge_ratio: if weighted { quality.birge_ratio } else { f64::NAN },
+        floored_points,
+        relative_uncertainty_floor: floor,
+        effective_variance_passes: passes,
+        density_scale_relative_unc: scale,
+        density_scale_source: series.density_scale_source,
+        temperature_unc_source: series.temperature_unc_source,
         at_bound,
         starts: starts.len(),
-        starts_converged: multi.converged,
-        starts_at_best: multi.same_minimum,
+        starts_converged,
+        starts_at_best,
         iterations: fit.iterations,
         model,
         points: fitted_points,
@@ -925,8 +1552,7 @@ struct WarningInputs<'a> {
     theta: &'a [f64],
     lower: &'a [f64],
     weighted: bool,
-    reduced_chi_square: f64,
-    degrees_of_freedom: usize,
+    quality: &'a FitQuality,
     starts: usize,
     starts_at_best: usize,
     terms: &'a [TemperatureTerms],
@@ -960,19 +1586,24 @@ fn collect_warnings(inputs: &WarningInputs<'_>) -> Vec<String> {
             ));
         }
     }
-    let nu = inputs.degrees_of_freedom as f64;
-    if inputs.weighted && nu > 0.0 {
-        // chi^2 / nu has standard deviation sqrt(2 / nu): four of those is improbable.
-        let spread = 4.0 * (2.0 / nu).sqrt();
-        if inputs.reduced_chi_square > 1.0 + spread {
+    let quality = inputs.quality;
+    if inputs.weighted {
+        let residuals: Vec<f64> = inputs
+            .points
+            .iter()
+            .map(|point| point.normalized_residual.unwrap_or(f64::NAN))
+            .collect();
+        if let Some(warning) = quality.warning(&residuals, |i| format!("{} K", inputs.points[i].temperature_k)) {
             warnings.push(format!(
-                "the reduced chi-square is {:.3} for {} degrees of freedom: the density uncertainties are too small, or one dopant level with Boltzmann statistics does not describe the data (a second level, hopping conduction at the lowest temperatures); the standard errors are then too small",
-                inputs.reduced_chi_square, inputs.degrees_of_freedom
+                "{warning}. The weights are the statistical density uncertainties (density_m3_unc_stat, at least relative_uncertainty_floor) and the temperature uncertainties (temperature_K_unc or temperature_uncertainty_K) through the model's slope: check them, or the model (a second level, hopping conduction at the lowest temperatures, a Hall factor that varies with temperature: hall_factor_table)"
             ));
-        } else if inputs.reduced_chi_square < 1.0 - spread && inputs.degrees_of_freedom >= 10 {
+        }
+        let nu = quality.degrees_of_freedom as f64;
+        // chi^2 / nu has standard deviation sqrt(2 / nu): four of those below 1 is improbable.
+        if nu >= 10.0 && quality.reduced_chi_square < 1.0 - 4.0 * (2.0 / nu).sqrt() {
             warnings.push(format!(
-                "the reduced chi-square is {:.3} for {} degrees of freedom: the density uncertainties look overestimated, so the standard errors are too large",
-                inputs.reduced_chi_square, inputs.degrees_of_freedom
+                "the reduced chi-square is {:.3} for {} degrees of freedom: the density uncertainties look overestimated, so the standard errors are too large (they are never scaled down)",
+                quality.reduced_chi_square, quality.degrees_of_freedom
             ));
         }
     }

@@ -1,6 +1,9 @@
 //! `carriers.arrhenius`: table glue of [`crate::arrhenius`].
 
-use super::freeze_out_fit::hall_role;
+use super::freeze_out_fit::{
+    budget_columns, budget_schema_properties, budget_summary_keys, hall_factor_setting, hall_role,
+    temperature_source_name,
+};
 use super::*;
 use crate::arrhenius::{fit_arrhenius, ArrheniusRange, ArrheniusRegime, ArrheniusSettings, AutomaticRange};
 use mobilis_core::abi::AnalysisDeclaration;
@@ -29,6 +32,12 @@ pub struct ArrheniusParams {
     slope_spread: Option<f64>,
     #[serde(default)]
     min_points: Option<usize>,
+    #[serde(default)]
+    hall_factor_table: Option<Vec<[f64; 2]>>,
+    #[serde(default)]
+    relative_uncertainty_floor: Option<f64>,
+    #[serde(rename = "temperature_uncertainty_K", default)]
+    temperature_uncertainty_k: Option<f64>,
 }
 
 impl Analysis for ArrheniusAnalysis {
@@ -53,31 +62,35 @@ impl Analysis for ArrheniusAnalysis {
         properties.insert("plateau_fraction".into(), json!({"type": "number", "exclusiveMinimum": 0, "exclusiveMaximum": 1, "default": defaults.plateau_fraction, "description": "automatic range: points below this fraction of the largest density"}));
         properties.insert("slope_spread".into(), json!({"type": "number", "exclusiveMinimum": 0, "default": defaults.slope_spread, "description": "automatic range: largest relative spread of the local slopes"}));
         properties.insert("min_points".into(), json!({"type": "integer", "minimum": 3, "default": defaults.min_points, "description": "automatic range: fewest temperatures"}));
+        budget_schema_properties(&mut properties);
         AnalysisDeclaration {
             name: String::new(),
             summary: "Activation energy from the slope of the Arrhenius plot of carrier density, over a given or an automatically chosen freeze-out range".into(),
-            description: "Weighted straight line of ln(n T^-3/2) (or ln(n T^-3/4)) against 1/kT. Without temperature_min_K and temperature_max_K the range is the longest low-temperature window of steady negative local slope below the plateau; the range used is reported.".into(),
+            description: "Weighted straight line of ln(n T^-3/2) (or ln(n T^-3/4)) against 1/kT, weighted by the statistical density uncertainties (floored) and the temperature uncertainties through the line's slope (effective variance, iterated); the slope's error is scaled by the Birge ratio when chi-square says the errors fall short. Without temperature_min_K and temperature_max_K the range is the longest low-temperature window of steady negative local slope below the plateau; the range used is reported.".into(),
             params: json!({"type": "object", "additionalProperties": false, "properties": properties}),
-            inputs: vec![hall_role(vec![
-                column("density_m3", F64, Some("m3"), "majority carrier density"),
-                column("density_m3_unc", F64, Some("m3"), "its standard uncertainty; weights the line").optional(),
-            ])],
+            inputs: vec![hall_role(budget_columns())],
             outputs: vec![
                 column("temperature_K", F64, Some("K"), "temperature"),
                 column("inverse_thermal_energy_per_eV", F64, None, "1/kT, eV^-1 (the Arrhenius abscissa)"),
                 column("reduced_ln_density", F64, None, "ln(n / m^-3) - exponent ln(T / K)"),
-                column("reduced_ln_density_unc", F64, None, "u(n)/n"),
+                column("reduced_ln_density_unc", F64, None, "the standard uncertainty of the ordinate that weighted the point: u_stat(n)/n (floored) with the temperature's through the line's slope"),
+                column("temperature_K_unc", F64, Some("K"), "the temperature's standard uncertainty as used"),
+                column("hall_factor", F64, None, "the Hall factor in effect"),
                 column("line", F64, None, "the fitted line at this abscissa"),
                 column("used", Bool, None, "inside the range of the line"),
                 column("temperature_exponent", F64, None, "r of ln(n T^-r): 1.5 (compensated) or 0.75 (uncompensated), so that a plot can name its ordinate"),
             ],
-            summary_keys: vec![
-                column("activation_energy_eV", F64, Some("eV"), "with activation_energy_eV_unc"),
-                column("temperature_min_K", F64, Some("K"), "lowest temperature of the line"),
-                column("temperature_max_K", F64, Some("K"), "highest temperature of the line"),
-                column("points_used", I64, None, "points on the line"),
-                column("automatic_range", Bool, None, "the range was chosen from the data"),
-            ],
+            summary_keys: {
+                let mut keys = vec![
+                    column("activation_energy_eV", F64, Some("eV"), "with activation_energy_eV_unc and _unc_stat (the same: a density scale does not move the slope)"),
+                    column("temperature_min_K", F64, Some("K"), "lowest temperature of the line"),
+                    column("temperature_max_K", F64, Some("K"), "highest temperature of the line"),
+                    column("points_used", I64, None, "points on the line"),
+                    column("automatic_range", Bool, None, "the range was chosen from the data"),
+                ];
+                keys.extend(budget_summary_keys());
+                keys
+            },
         }
     }
 
@@ -112,7 +125,15 @@ impl Analysis for ArrheniusAnalysis {
             regime,
             range,
             carrier_type: parse_carrier_type(params.carrier_type.as_deref())?,
-            hall_factor: hall_factor(params.hall_factor, params.hall_factor_scattering_exponent)?,
+            hall_factor: hall_factor_setting(
+                params.hall_factor,
+                params.hall_factor_scattering_exponent,
+                params.hall_factor_table.as_deref(),
+            )?,
+            relative_uncertainty_floor: params
+                .relative_uncertainty_floor
+                .unwrap_or(ArrheniusSettings::default().relative_uncertainty_floor),
+            temperature_unc_k: params.temperature_uncertainty_k,
         };
         host.check_cancelled()?;
         let fit = fit_arrhenius(&points, &settings).map_err(|e| invalid(e.to_string()))?;
@@ -139,6 +160,11 @@ impl Analysis for ArrheniusAnalysis {
                     "reduced_ln_density_unc",
                     fit.points.iter().map(|p| p.reduced_ln_density_unc).collect(),
                 ),
+                float_series(
+                    "temperature_K_unc",
+                    fit.points.iter().map(|p| Some(p.temperature_unc_k)).collect(),
+                ),
+                float_series("hall_factor", fit.points.iter().map(|p| Some(p.hall_factor)).collect()),
                 float_series(
                     "line",
                     fit.points
@@ -168,7 +194,27 @@ impl Analysis for ArrheniusAnalysis {
         summary.insert("points_used".into(), json!(fit.points_used));
         summary.insert("automatic_range".into(), json!(fit.automatic_range));
         summary.insert("r_squared".into(), json!(fit.line.r_squared));
+        summary.insert(
+            "activation_energy_eV_unc_stat".into(),
+            json!(fit.activation_energy_ev_unc),
+        );
         summary.insert("hall_factor".into(), json!(fit.hall_factor));
+        summary.insert("chi_square".into(), json!(fit.line.chi_square));
+        summary.insert("degrees_of_freedom".into(), json!(fit.line.degrees_of_freedom));
+        summary.insert("reduced_chi_square".into(), json!(fit.line.reduced_chi_square));
+        summary.insert("chi_square_p_value".into(), json!(fit.chi_square_p_value));
+        summary.insert("birge_ratio".into(), json!(fit.birge_ratio));
+        summary.insert("floored_points".into(), json!(fit.floored_points));
+        summary.insert(
+            "relative_uncertainty_floor".into(),
+            json!(fit.relative_uncertainty_floor),
+        );
+        summary.insert("effective_variance_passes".into(), json!(fit.effective_variance_passes));
+        summary.insert("weighted".into(), json!(fit.line.weighted));
+        summary.insert(
+            "temperature_uncertainty_source".into(),
+            json!(temperature_source_name(fit.temperature_unc_source)),
+        );
         warnings.extend(fit.warnings.iter().cloned());
         output.warnings = warnings;
         Ok(output)
@@ -245,5 +291,60 @@ mod tests {
         )
         .unwrap_err();
         assert!(error.to_string().contains("temperature_min_K"), "{error}");
+    }
+}
+
+#[cfg(test)]
+mod budget_tests {
+    use super::*;
+    use crate::freeze_out::realistic::{geometric, RealisticSeries};
+    use mobilis_core::noise::Rng;
+    use mobilis_core::sdk::run_typed;
+
+    #[test]
+    fn the_summary_carries_the_diagnostics_and_the_table_the_weights() {
+        let series = RealisticSeries {
+            temperatures_k: geometric(20.0, 30.0, 16),
+            ..RealisticSeries::compensated_silicon()
+        };
+        let points = series.draw(&mut Rng::seeded(5)).points;
+        let float = |f: &dyn Fn(&crate::freeze_out::DensityPoint) -> f64| points.iter().map(f).collect::<Vec<f64>>();
+        let hall = DataFrame::new(
+            points.len(),
+            vec![
+                Column::new("temperature_K".into(), float(&|p| p.temperature_k)),
+                Column::new("density_m3".into(), float(&|p| p.density_m3)),
+                Column::new("density_m3_unc_stat".into(), float(&|p| p.density_unc_m3.unwrap())),
+                Column::new("density_m3_unc_sys".into(), float(&|p| p.density_unc_sys_m3.unwrap())),
+                Column::new("temperature_K_unc".into(), float(&|p| p.temperature_unc_k.unwrap())),
+                Column::new("carrier_type".into(), vec!["n"; points.len()]),
+            ],
+        )
+        .unwrap();
+        let inputs = Inputs::from_tables([("hall".to_string(), hall)]);
+        let output = run_typed::<ArrheniusAnalysis>(
+            r#"{"temperature_min_K": 1, "temperature_max_K": 100}"#,
+            &inputs,
+            &Host::detached(),
+        )
+        .unwrap();
+        let summary = &output.summary;
+        for key in [
+            "activation_energy_eV_unc",
+            "activation_energy_eV_unc_stat",
+            "reduced_chi_square",
+            "chi_square_p_value",
+            "birge_ratio",
+        ] {
+            assert!(summary[key].as_f64().is_some(), "{key}: {:?}", summary[key]);
+        }
+        assert_eq!(summary["temperature_uncertainty_source"], "temperature_K_unc");
+        assert_eq!(summary["weighted"], json!(true));
+        let energy = summary["activation_energy_eV"].as_f64().unwrap();
+        let unc = summary["activation_energy_eV_unc"].as_f64().unwrap();
+        assert!((energy - 0.0452).abs() < 4.0 * unc, "{energy} +- {unc}");
+        for column in ["temperature_K_unc", "hall_factor", "reduced_ln_density_unc"] {
+            assert!(output.table.column(column).is_ok(), "{column}");
+        }
     }
 }

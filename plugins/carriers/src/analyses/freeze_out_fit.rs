@@ -1,8 +1,11 @@
-//! `carriers.freeze_out_fit`: table glue of [`crate::freeze_out`].
+//! `carriers.freeze_out_fit`: table glue of [`crate::freeze_out`], and the parts of the
+//! uncertainty budget (input columns, parameters, summary keys) that `carriers.arrhenius`
+//! shares with it.
 
 use super::*;
-use crate::freeze_out::{fit_freeze_out, FreezeOutSettings};
+use crate::freeze_out::{fit_freeze_out, Estimate, FreezeOutSettings, UncertaintySource};
 use mobilis_core::abi::{AnalysisDeclaration, InputRole};
+use mobilis_core::fit::RELATIVE_UNCERTAINTY_FLOOR;
 use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 
 pub struct FreezeOutFitAnalysis;
@@ -38,6 +41,95 @@ pub struct FreezeOutParams {
     compensation_bounds: Option<[f64; 2]>,
     #[serde(default)]
     curve_points: Option<usize>,
+    #[serde(default)]
+    hall_factor_table: Option<Vec<[f64; 2]>>,
+    #[serde(default)]
+    relative_uncertainty_floor: Option<f64>,
+    #[serde(rename = "temperature_uncertainty_K", default)]
+    temperature_uncertainty_k: Option<f64>,
+    #[serde(default)]
+    density_scale_relative_uncertainty: Option<f64>,
+}
+
+/// The Hall factor from `hall_factor`, `hall_factor_scattering_exponent` or
+/// `hall_factor_table` (one of them at most).
+pub(crate) fn hall_factor_setting(
+    constant: Option<f64>,
+    exponent: Option<f64>,
+    table: Option<&[[f64; 2]]>,
+) -> Result<HallFactor, AnalysisError> {
+    match table {
+        None => hall_factor(constant, exponent),
+        Some(_) if constant.is_some() || exponent.is_some() => Err(invalid(
+            "give one of hall_factor, hall_factor_scattering_exponent and hall_factor_table, not several",
+        )),
+        Some(table) => Ok(HallFactor::Table(table.iter().map(|pair| (pair[0], pair[1])).collect())),
+    }
+}
+
+/// The input columns of the uncertainty budget, beside `density_m3`.
+pub(crate) fn budget_columns() -> Vec<ColumnSpec> {
+    use ColumnType::*;
+    vec![
+        column("density_m3", F64, Some("m3"), "majority carrier density"),
+        column("density_m3_unc_stat", F64, Some("m3"), "its statistical standard uncertainty (from the scatter of the readings); weights the fit").optional(),
+        column("density_m3_unc_sys", F64, Some("m3"), "its systematic standard uncertainty common to the whole series (thickness, current, voltage, field calibrations); applied once after the fit as a scale").optional(),
+        column("density_m3_unc", F64, Some("m3"), "total standard uncertainty; used as statistical only when density_m3_unc_stat is absent (an older table)").optional(),
+        column("temperature_K_unc", F64, Some("K"), "standard uncertainty of the sample temperature (readings' spread and thermometer accuracy); propagated through the slope of the model").optional(),
+        column("hall_factor", F64, None, "the Hall factor already applied to density_m3 (default 1); replaced when a Hall factor parameter is given").optional(),
+    ]
+}
+
+/// The parameters of the uncertainty budget shared by the temperature-series fits.
+pub(crate) fn budget_schema_properties(properties: &mut serde_json::Map<String, Value>) {
+    properties.insert(
+        "hall_factor".into(),
+        json!({"type": "number", "exclusiveMinimum": 0, "description": "a constant Hall factor r_H replacing the one already applied to the densities (the hall_factor column of hall.reduce, 1 without it): n = n_given r_H / r_applied; default: the densities as given"}),
+    );
+    properties.insert(
+        "hall_factor_scattering_exponent".into(),
+        json!({"type": "number", "description": "instead of hall_factor: r_H of a relaxation time tau ~ E^s (s = -0.5 acoustic phonons, 1.5 ionized impurities; Putley 1960), replacing the applied factor"}),
+    );
+    properties.insert(
+        "hall_factor_table".into(),
+        json!({"type": "array", "minItems": 1, "items": {"type": "array", "items": {"type": "number", "exclusiveMinimum": 0}, "minItems": 2, "maxItems": 2}, "description": "instead of hall_factor: r_H(T) as [temperature_K, hall_factor] pairs, linear in T between them and the end values beyond; replaces the factor hall.reduce applied (its hall_factor column)"}),
+    );
+    properties.insert(
+        "relative_uncertainty_floor".into(),
+        json!({"type": "number", "minimum": 0, "exclusiveMaximum": 1, "default": RELATIVE_UNCERTAINTY_FLOOR, "description": "smallest relative statistical density uncertainty a point keeps, so that no point pins the fit"}),
+    );
+    properties.insert(
+        "temperature_uncertainty_K".into(),
+        json!({"type": "number", "minimum": 0, "description": "standard uncertainty of the temperature for rows without temperature_K_unc, K; default: not given (0)"}),
+    );
+}
+
+/// The summary keys of the uncertainty budget shared by the temperature-series fits.
+pub(crate) fn budget_summary_keys() -> Vec<ColumnSpec> {
+    use ColumnType::*;
+    vec![
+        column("reduced_chi_square", F64, None, "chi-square per degree of freedom"),
+        column("chi_square_p_value", F64, None, "probability of a chi-square at least this large if the model and the weights are right (weighted fits)"),
+        column("birge_ratio", F64, None, "factor the statistical uncertainties were multiplied by: sqrt(reduced chi-square) when above 1, else 1 (weighted fits)"),
+        column("floored_points", I64, None, "points whose relative uncertainty was raised to relative_uncertainty_floor"),
+        column("temperature_uncertainty_source", Str, None, "temperature_K_unc, temperature_uncertainty_K or not given"),
+    ]
+}
+
+/// What the source of the temperature uncertainties is called in a summary.
+pub(crate) fn temperature_source_name(source: UncertaintySource) -> &'static str {
+    match source {
+        UncertaintySource::Points => "temperature_K_unc",
+        UncertaintySource::Stated => "temperature_uncertainty_K",
+        UncertaintySource::NotGiven => "not given",
+    }
+}
+
+/// Inserts `name`, `name_unc`, `name_unc_stat` and `name_unc_sys`.
+fn insert_budget(summary: &mut serde_json::Map<String, Value>, name: &str, estimate: &Estimate) {
+    insert_estimate(summary, name, estimate.value, estimate.unc);
+    summary.insert(format!("{name}_unc_stat"), json!(estimate.unc_stat));
+    summary.insert(format!("{name}_unc_sys"), json!(estimate.unc_sys));
 }
 
 /// The `hall` input role shared by the carriers analyses that read a temperature series.
@@ -76,34 +168,41 @@ impl Analysis for FreezeOutFitAnalysis {
         properties.insert("ionization_energy_bounds_eV".into(), json!({"type": "array", "items": {"type": "number", "exclusiveMinimum": 0}, "minItems": 2, "maxItems": 2, "description": "bounds of the fitted ionization energy, default [0.001, 1.0]"}));
         properties.insert("compensation_bounds".into(), json!({"type": "array", "items": {"type": "number", "exclusiveMinimum": 0, "exclusiveMaximum": 1}, "minItems": 2, "maxItems": 2, "description": "bounds of N_comp / N_maj, default [1e-6, 0.995]"}));
         properties.insert("curve_points".into(), json!({"type": "integer", "minimum": 2, "maximum": 100000, "default": 200, "description": "points of the fitted curve"}));
+        budget_schema_properties(&mut properties);
+        properties.insert("density_scale_relative_uncertainty".into(), json!({"type": "number", "minimum": 0, "exclusiveMaximum": 1, "description": "relative standard uncertainty of a scale common to every density (thickness, current, voltage, field calibrations) when the table has no density_m3_unc_sys, e.g. 0.03 for 3 %; applied once to N_D, N_A and the net density after the fit; default: not given (0)"}));
         AnalysisDeclaration {
             name: String::new(),
             summary: "Majority and compensating dopant densities and the ionization energy from carrier density against temperature (charge neutrality of a compensated semiconductor)".into(),
-            description: "Fits ln n(T) with the exact charge-neutrality equation p + N_D+ = n + N_A- (mirrored for p-type): Boltzmann bands with Nc, Nv ~ T^1.5, the majority level with its degeneracy factor, fully ionized compensating centres, and the intrinsic carriers of the Varshni band gap at high temperature. Bounded Levenberg-Marquardt from many starts (derived from the data and a grid over compensation and energy), so the result does not depend on a guess. Uncertainties from the covariance; a parameter on a bound gets none.".into(),
+            description: "Fits ln n(T) with the exact charge-neutrality equation p + N_D+ = n + N_A- (mirrored for p-type): Boltzmann bands with Nc, Nv ~ T^1.5, the majority level with its degeneracy factor, fully ionized compensating centres, and the intrinsic carriers of the Varshni band gap at high temperature. Bounded Levenberg-Marquardt from many starts (derived from the data and a grid over compensation and energy), so the result does not depend on a guess. Weighted by the statistical density uncertainties (floored) and the temperature uncertainties through the model's slope (effective variance, iterated); the covariance is scaled by the Birge ratio when chi-square says the errors fall short; the common density scale (density_m3_unc_sys) is applied once to the densities after the fit. A parameter on a bound gets no uncertainty.".into(),
             params: json!({"type": "object", "additionalProperties": false, "properties": properties}),
-            inputs: vec![hall_role(vec![
-                column("density_m3", F64, Some("m3"), "majority carrier density"),
-                column("density_m3_unc", F64, Some("m3"), "its standard uncertainty; weights the fit").optional(),
-            ])],
+            inputs: vec![hall_role(budget_columns())],
             outputs: vec![
                 column("kind", Str, None, "data (a measured point) or curve (the fitted model)"),
                 column("temperature_K", F64, Some("K"), "temperature"),
+                column("temperature_K_unc", F64, Some("K"), "its standard uncertainty as used (data rows)"),
                 column("density_m3", F64, Some("m3"), "measured density after the Hall-factor correction (data rows)"),
-                column("density_m3_unc", F64, Some("m3"), "its uncertainty (data rows)"),
+                column("density_m3_unc", F64, Some("m3"), "the uncertainty that weighted the point: statistical (floored) and the temperature's through the model's slope, before Birge scaling; the common scale is not in it (data rows of weighted fits)"),
+                column("density_m3_unc_stat", F64, Some("m3"), "the statistical uncertainty as given, after the Hall-factor correction (data rows)"),
+                column("hall_factor", F64, None, "the Hall factor in effect (data rows)"),
                 column("fitted_density_m3", F64, Some("m3"), "the fitted model"),
                 column("log_residual", F64, None, "ln(model) - ln(data) (data rows)"),
-                column("normalized_residual", F64, None, "the residual over the relative uncertainty (data rows)"),
+                column("normalized_residual", F64, None, "the residual over the relative uncertainty that weighted the point (data rows of weighted fits)"),
             ],
-            summary_keys: vec![
-                column("carrier_type", Str, None, "n or p"),
-                column("dopant_density_m3", F64, Some("m3"), "majority dopant density (donors for n-type), with _unc"),
-                column("compensating_density_m3", F64, Some("m3"), "compensating density (acceptors for n-type), with _unc"),
-                column("net_density_m3", F64, Some("m3"), "dopant minus compensating, with _unc"),
-                column("compensation_ratio", F64, None, "compensating / dopant, with _unc"),
-                column("ionization_energy_eV", F64, Some("eV"), "majority level below its band edge, with _unc"),
-                column("dopant_compensating_covariance_m6", F64, None, "covariance of the two densities"),
-                column("reduced_chi_square", F64, None, "goodness of fit"),
-            ],
+            summary_keys: {
+                let mut keys = vec![
+                    column("carrier_type", Str, None, "n or p"),
+                    column("dopant_density_m3", F64, Some("m3"), "majority dopant density (donors for n-type), with _unc (total), _unc_stat and _unc_sys"),
+                    column("compensating_density_m3", F64, Some("m3"), "compensating density (acceptors for n-type), with _unc, _unc_stat and _unc_sys"),
+                    column("net_density_m3", F64, Some("m3"), "dopant minus compensating, with _unc, _unc_stat and _unc_sys"),
+                    column("compensation_ratio", F64, None, "compensating / dopant, with _unc, _unc_stat and _unc_sys"),
+                    column("ionization_energy_eV", F64, Some("eV"), "majority level below its band edge, with _unc, _unc_stat and _unc_sys (what the common density scale moves it by through the fit: small, from the bend between saturation and freeze-out)"),
+                    column("dopant_compensating_covariance_m6", F64, None, "total covariance of the two densities (the common scale included)"),
+                    column("density_scale_relative_uncertainty", F64, None, "the common relative scale uncertainty applied to the densities (0 when not given)"),
+                    column("density_scale_source", Str, None, "density_m3_unc_sys (largest of the rows), density_scale_relative_uncertainty or not given"),
+                ];
+                keys.extend(budget_summary_keys());
+                keys
+            },
         }
     }
 
@@ -116,7 +215,16 @@ impl Analysis for FreezeOutFitAnalysis {
         settings.carrier_type = parse_carrier_type(params.carrier_type.as_deref())?;
         settings.effective_dos_300k_m3 = params.effective_dos_300k_m3;
         settings.degeneracy = params.degeneracy;
-        settings.hall_factor = hall_factor(params.hall_factor, params.hall_factor_scattering_exponent)?;
+        settings.hall_factor = hall_factor_setting(
+            params.hall_factor,
+            params.hall_factor_scattering_exponent,
+            params.hall_factor_table.as_deref(),
+        )?;
+        if let Some(floor) = params.relative_uncertainty_floor {
+            settings.relative_uncertainty_floor = floor;
+        }
+        settings.temperature_unc_k = params.temperature_uncertainty_k;
+        settings.density_scale_relative_unc = params.density_scale_relative_uncertainty;
         settings.temperature_range_k = temperature_range(params.temperature_min_k, params.temperature_max_k)?;
         if let Some([low, high]) = params.ionization_energy_bounds_ev {
             settings.ionization_energy_bounds_ev = (low, high);
@@ -140,13 +248,18 @@ impl Analysis for FreezeOutFitAnalysis {
         let data_rows = fit.points.len();
         let rows = data_rows + fit.curve.len();
         let mut kind = Vec::with_capacity(rows);
-        let (mut temperature, mut density, mut density_unc) = (Vec::new(), Vec::new(), Vec::new());
-        let (mut fitted, mut residual, mut normalized) = (Vec::new(), Vec::new(), Vec::new());
+        let (mut temperature, mut temperature_unc) = (Vec::new(), Vec::new());
+        let (mut density, mut density_unc, mut density_unc_stat) = (Vec::new(), Vec::new(), Vec::new());
+        let (mut hall_factors, mut fitted, mut residual, mut normalized) =
+            (Vec::new(), Vec::new(), Vec::new(), Vec::new());
         for point in &fit.points {
             kind.push("data");
             temperature.push(Some(point.temperature_k));
+            temperature_unc.push(Some(point.temperature_unc_k));
             density.push(Some(point.density_m3));
-            density_unc.push(point.density_unc_m3);
+            density_unc.push(point.effective_relative_unc.map(|relative| relative * point.density_m3));
+            density_unc_stat.push(point.density_unc_m3);
+            hall_factors.push(Some(point.hall_factor));
             fitted.push(Some(point.model_density_m3));
             residual.push(Some(point.residual_ln));
             normalized.push(point.normalized_residual);
@@ -154,19 +267,29 @@ impl Analysis for FreezeOutFitAnalysis {
         for point in &fit.curve {
             kind.push("curve");
             temperature.push(Some(point.temperature_k));
-            density.push(None);
-            density_unc.push(None);
             fitted.push(Some(point.density_m3));
-            residual.push(None);
-            normalized.push(None);
+        }
+        for column in [
+            &mut temperature_unc,
+            &mut density,
+            &mut density_unc,
+            &mut density_unc_stat,
+            &mut hall_factors,
+            &mut residual,
+            &mut normalized,
+        ] {
+            column.resize(rows, None);
         }
         let table = frame(
             rows,
             vec![
                 Column::new("kind".into(), kind),
                 float_series("temperature_K", temperature),
+                float_series("temperature_K_unc", temperature_unc),
                 float_series("density_m3", density),
                 float_series("density_m3_unc", density_unc),
+                float_series("density_m3_unc_stat", density_unc_stat),
+                float_series("hall_factor", hall_factors),
                 float_series("fitted_density_m3", fitted),
                 float_series("log_residual", residual),
                 float_series("normalized_residual", normalized),
@@ -176,41 +299,53 @@ impl Analysis for FreezeOutFitAnalysis {
         let summary = &mut output.summary;
         summary.insert("carrier_type".into(), json!(fit.carrier_type.as_str()));
         summary.insert("material".into(), json!(params.material));
-        insert_estimate(
-            summary,
-            "dopant_density_m3",
-            fit.dopant_density_m3,
-            fit.dopant_density_m3_unc,
-        );
-        insert_estimate(
-            summary,
-            "compensating_density_m3",
-            fit.compensating_density_m3,
-            fit.compensating_density_m3_unc,
-        );
-        insert_estimate(summary, "net_density_m3", fit.net_density_m3, fit.net_density_m3_unc);
-        insert_estimate(
-            summary,
-            "compensation_ratio",
-            fit.compensation_ratio,
-            fit.compensation_ratio_unc,
-        );
-        insert_estimate(
-            summary,
-            "ionization_energy_eV",
-            fit.ionization_energy_ev,
-            fit.ionization_energy_ev_unc,
-        );
+        insert_budget(summary, "dopant_density_m3", &fit.dopant);
+        insert_budget(summary, "compensating_density_m3", &fit.compensating);
+        insert_budget(summary, "net_density_m3", &fit.net);
+        insert_budget(summary, "compensation_ratio", &fit.ratio);
+        insert_budget(summary, "ionization_energy_eV", &fit.energy);
         let both = fit.dopant_density_m3_unc.is_some() && fit.compensating_density_m3_unc.is_some();
         summary.insert(
             "dopant_compensating_covariance_m6".into(),
             json!(both.then_some(fit.covariance[0][1])),
         );
+        summary.insert(
+            "density_scale_relative_uncertainty".into(),
+            json!(fit.density_scale_relative_unc),
+        );
+        summary.insert(
+            "density_scale_source".into(),
+            json!(match fit.density_scale_source {
+                UncertaintySource::Points => "density_m3_unc_sys",
+                UncertaintySource::Stated => "density_scale_relative_uncertainty",
+                UncertaintySource::NotGiven => "not given",
+            }),
+        );
+        summary.insert(
+            "temperature_uncertainty_source".into(),
+            json!(temperature_source_name(fit.temperature_unc_source)),
+        );
+        let mut not_given = Vec::new();
+        if fit.density_scale_source == UncertaintySource::NotGiven {
+            not_given.push("density scale (density_m3_unc_sys or density_scale_relative_uncertainty)");
+        }
+        if fit.temperature_unc_source == UncertaintySource::NotGiven {
+            not_given.push("temperature (temperature_K_unc or temperature_uncertainty_K)");
+        }
+        summary.insert("uncertainties_not_given".into(), json!(not_given));
         summary.insert("degeneracy".into(), json!(fit.degeneracy));
         summary.insert("hall_factor".into(), json!(fit.hall_factor));
         summary.insert("chi_square".into(), json!(fit.chi_square));
         summary.insert("degrees_of_freedom".into(), json!(fit.degrees_of_freedom));
         summary.insert("reduced_chi_square".into(), json!(fit.reduced_chi_square));
+        summary.insert("chi_square_p_value".into(), json!(fit.chi_square_p_value));
+        summary.insert("birge_ratio".into(), json!(fit.birge_ratio));
+        summary.insert("floored_points".into(), json!(fit.floored_points));
+        summary.insert(
+            "relative_uncertainty_floor".into(),
+            json!(fit.relative_uncertainty_floor),
+        );
+        summary.insert("effective_variance_passes".into(), json!(fit.effective_variance_passes));
         summary.insert("weighted".into(), json!(fit.weighted));
         summary.insert("points".into(), json!(data_rows));
         summary.insert("at_bound".into(), json!(fit.at_bound));
@@ -220,5 +355,155 @@ impl Analysis for FreezeOutFitAnalysis {
         output.warnings = warnings;
         host.progress(1.0, "done");
         Ok(output)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::freeze_out::realistic::RealisticSeries;
+    use mobilis_core::noise::Rng;
+    use mobilis_core::sdk::run_typed;
+
+    /// A realistic series as `hall.reduce` writes it (with the budget columns), or as an
+    /// older table did (`density_m3_unc` only).
+    fn hall_table(with_budget: bool) -> DataFrame {
+        let series = RealisticSeries::compensated_silicon();
+        let points = series.draw(&mut Rng::seeded(3)).points;
+        let float = |f: &dyn Fn(&DensityPoint) -> f64| points.iter().map(f).collect::<Vec<f64>>();
+        let mut columns = vec![
+            Column::new("temperature_K".into(), float(&|p| p.temperature_k)),
+            Column::new("density_m3".into(), float(&|p| p.density_m3)),
+            Column::new("carrier_type".into(), vec!["n"; points.len()]),
+        ];
+        if with_budget {
+            let total = float(&|p| p.density_unc_m3.unwrap().hypot(p.density_unc_sys_m3.unwrap()));
+            columns.extend([
+                Column::new("density_m3_unc".into(), total),
+                Column::new("density_m3_unc_stat".into(), float(&|p| p.density_unc_m3.unwrap())),
+                Column::new("density_m3_unc_sys".into(), float(&|p| p.density_unc_sys_m3.unwrap())),
+                Column::new("temperature_K_unc".into(), float(&|p| p.temperature_unc_k.unwrap())),
+                Column::new("hall_factor".into(), vec![1.0; points.len()]),
+            ]);
+        } else {
+            columns.push(Column::new(
+                "density_m3_unc".into(),
+                float(&|p| p.density_unc_m3.unwrap()),
+            ));
+        }
+        DataFrame::new(points.len(), columns).unwrap()
+    }
+
+    fn run(params: &str, table: DataFrame) -> Result<AnalysisOutput, AnalysisError> {
+        let inputs = Inputs::from_tables([("hall".to_string(), table)]);
+        run_typed::<FreezeOutFitAnalysis>(params, &inputs, &Host::detached())
+    }
+
+    #[test]
+    fn the_summary_carries_the_budget_and_the_diagnostics() {
+        let output = run("{}", hall_table(true)).unwrap();
+        let summary = &output.summary;
+        let value = |key: &str| {
+            summary[key]
+                .as_f64()
+                .unwrap_or_else(|| panic!("{key}: {:?}", summary[key]))
+        };
+        for name in [
+            "dopant_density_m3",
+            "compensating_density_m3",
+            "net_density_m3",
+            "ionization_energy_eV",
+            "compensation_ratio",
+        ] {
+            let (total, stat, sys) = (
+                value(&format!("{name}_unc")),
+                value(&format!("{name}_unc_stat")),
+                value(&format!("{name}_unc_sys")),
+            );
+            assert!((total - stat.hypot(sys)).abs() <= 1e-12 * total, "{name}");
+        }
+        // The 3 % thickness calibration reaches N_D through the fit's sensitivity: about
+        // 3 %, somewhat more where the loose low-temperature points let the fit trade it
+        // against the compensation (3.6 % for this draw).
+        let relative_sys = value("dopant_density_m3_unc_sys") / value("dopant_density_m3");
+        assert!((0.025..0.045).contains(&relative_sys), "{relative_sys}");
+        assert!((value("density_scale_relative_uncertainty") - 0.03).abs() < 1e-12);
+        assert_eq!(summary["density_scale_source"], "density_m3_unc_sys");
+        assert_eq!(summary["temperature_uncertainty_source"], "temperature_K_unc");
+        assert_eq!(summary["uncertainties_not_given"], json!([]));
+        assert!(value("reduced_chi_square") > 0.0);
+        assert!((0.0..=1.0).contains(&value("chi_square_p_value")));
+        assert!(value("birge_ratio") >= 1.0);
+        assert!(summary["floored_points"].as_u64().is_some());
+        assert_eq!(summary["hall_factor"], json!(1.0));
+        for column in [
+            "temperature_K_unc",
+            "density_m3_unc_stat",
+            "hall_factor",
+            "normalized_residual",
+        ] {
+            assert!(output.table.column(column).is_ok(), "{column}");
+        }
+        assert!(
+            output.warnings.iter().all(|w| !w.contains("no calibration budget")),
+            "{:?}",
+            output.warnings
+        );
+    }
+
+    #[test]
+    fn an_older_table_is_read_as_statistical_and_says_what_was_not_given() {
+        let output = run("{}", hall_table(false)).unwrap();
+        assert!(
+            output
+                .warnings
+                .iter()
+                .any(|w| w.contains("no calibration budget was given")),
+            "{:?}",
+            output.warnings
+        );
+        let not_given = output.summary["uncertainties_not_given"].as_array().unwrap();
+        assert_eq!(not_given.len(), 2, "{not_given:?}");
+        assert_eq!(output.summary["dopant_density_m3_unc_sys"], json!(0.0));
+        // Stated for the call instead: the scale and the temperature accuracy.
+        let output = run(
+            r#"{"density_scale_relative_uncertainty": 0.03, "temperature_uncertainty_K": 0.03}"#,
+            hall_table(false),
+        )
+        .unwrap();
+        assert_eq!(
+            output.summary["density_scale_source"],
+            "density_scale_relative_uncertainty"
+        );
+        assert_eq!(
+            output.summary["temperature_uncertainty_source"],
+            "temperature_uncertainty_K"
+        );
+        assert_eq!(output.summary["uncertainties_not_given"], json!([]));
+        // Without any density uncertainty the fit is unweighted: the scatter sets the
+        // errors, and there is no p-value or Birge ratio to report.
+        let mut bare = hall_table(false);
+        let _ = bare.drop_in_place("density_m3_unc").unwrap();
+        let output = run("{}", bare).unwrap();
+        assert_eq!(output.summary["weighted"], json!(false));
+        assert_eq!(output.summary["chi_square_p_value"], Value::Null);
+        assert_eq!(output.summary["birge_ratio"], Value::Null);
+        assert!(output.summary["dopant_density_m3_unc"].as_f64().is_some());
+    }
+
+    #[test]
+    fn hall_factor_parameters_exclude_each_other_and_bad_values_name_the_parameter() {
+        let error = run(
+            r#"{"hall_factor": 1.2, "hall_factor_table": [[30, 1.9], [300, 1.2]]}"#,
+            hall_table(true),
+        )
+        .unwrap_err();
+        assert!(error.to_string().contains("hall_factor_table"), "{error}");
+        let error = run(r#"{"hall_factor_table": [[30, 1.9], [30, 1.2]]}"#, hall_table(true)).unwrap_err();
+        assert!(error.to_string().contains("hall_factor_table"), "{error}");
+        let output = run(r#"{"hall_factor_table": [[24, 1.2], [400, 1.2]]}"#, hall_table(true)).unwrap();
+        assert_eq!(output.summary["hall_factor"], json!(1.2));
+        let error = run(r#"{"relative_uncertainty_floor": 2}"#, hall_table(true)).unwrap_err();
+        assert!(error.to_string().contains("relative_uncertainty_floor"), "{error}");
     }
 }

@@ -165,10 +165,23 @@ pub(crate) fn optional_strings(frame: &DataFrame, name: &str) -> Result<Vec<Opti
 
 /// The density points of a `hall` table. Rows without a density (a temperature where the
 /// Hall reduction had no field data) are skipped with a warning, not refused.
+///
+/// The budget: `density_m3_unc_stat` weights the fit and `density_m3_unc_sys` is the
+/// common scale; an older table with only `density_m3_unc` has it taken as statistical,
+/// with a warning that no calibration budget was given. `temperature_K_unc` is the
+/// temperature's standard uncertainty and `hall_factor` the factor already applied.
 pub(crate) fn density_points(hall: &DataFrame, warnings: &mut Vec<String>) -> Result<Vec<DensityPoint>, AnalysisError> {
     let temperatures = sdk::float_column(hall, "temperature_K")?;
     let densities = sdk::float_column(hall, "density_m3")?;
-    let uncertainties = optional_floats(hall, "density_m3_unc")?;
+    let has_budget = hall.column("density_m3_unc_stat").is_ok();
+    let statistical = if has_budget {
+        optional_floats(hall, "density_m3_unc_stat")?
+    } else {
+        optional_floats(hall, "density_m3_unc")?
+    };
+    let systematic = optional_floats(hall, "density_m3_unc_sys")?;
+    let temperature_unc = optional_floats(hall, "temperature_K_unc")?;
+    let applied_hall_factor = optional_floats(hall, "hall_factor")?;
     let types = optional_strings(hall, "carrier_type")?;
     let mut points = Vec::with_capacity(hall.height());
     let mut skipped = 0;
@@ -187,12 +200,21 @@ pub(crate) fn density_points(hall: &DataFrame, warnings: &mut Vec<String>) -> Re
         points.push(DensityPoint {
             temperature_k,
             density_m3,
-            density_unc_m3: uncertainties[row],
+            density_unc_m3: statistical[row],
+            density_unc_sys_m3: systematic[row],
+            temperature_unc_k: temperature_unc[row],
+            applied_hall_factor: applied_hall_factor[row],
             carrier_type,
         });
     }
     if skipped > 0 {
         warnings.push(format!("{skipped} rows without a temperature or density were skipped"));
+    }
+    if !has_budget && points.iter().any(|point| point.density_unc_m3.is_some()) {
+        warnings.push(
+            "the table has density_m3_unc but no density_m3_unc_stat: density_m3_unc was taken as statistical (it weights the fit) and no calibration budget was given; reduce with a current hall.reduce, or state the common scale (thickness, current, field) with density_scale_relative_uncertainty where the analysis takes it (carriers.freeze_out_fit; a slope does not depend on it)"
+                .into(),
+        );
     }
     Ok(points)
 }

@@ -1,11 +1,11 @@
 //! Tests of the `arrhenius` module: published check values, recovery from forward-generated data, and bad input.
 
 use super::*;
+use crate::freeze_out::realistic::{realizations, RealisticSeries, CM3};
 use crate::materials::Material;
+use mobilis_core::fit::Coverage;
 use mobilis_core::forward::statistics::{solve_charge_neutrality, Dopants};
 use mobilis_core::noise::Rng;
-
-const CM3: f64 = 1e6; // cm^-3 to m^-3
 
 /// Electron density of n-type silicon (Levinshtein bands) from core's full neutrality
 /// solver.
@@ -21,6 +21,7 @@ fn point(temperature_k: f64, density_m3: f64, carrier_type: CarrierType) -> Dens
         density_m3,
         density_unc_m3: None,
         carrier_type: Some(carrier_type),
+        ..DensityPoint::default()
     }
 }
 
@@ -250,6 +251,7 @@ fn noisy_weighted_data_give_the_energy_within_its_uncertainty() {
                 density_m3: n,
                 density_unc_m3: Some(0.02 * n),
                 carrier_type: Some(CarrierType::N),
+                ..DensityPoint::default()
             }
         })
         .collect();
@@ -379,4 +381,215 @@ fn refuses_bad_input_and_impossible_ranges() {
     .unwrap();
     assert!(fit.activation_energy_ev < 0.0);
     assert!(fit.warnings.iter().any(|w| w.contains("not a freeze-out range")));
+}
+
+/// The compensated silicon of the freeze-out coverage test measured densely in deep
+/// freeze-out, 16 temperatures from 20 K to 30 K, where n stays below 3e-4 N_A: the
+/// Arrhenius slope is -E_D / (1 + eps) with eps < 3e-4 (the compensated test above), a
+/// bias below 0.015 meV, a tenth of the statistical uncertainty.
+fn deep_freeze_out_series() -> RealisticSeries {
+    RealisticSeries {
+        temperatures_k: geometric(20.0, 30.0, 16),
+        ..RealisticSeries::compensated_silicon()
+    }
+}
+
+#[test]
+fn arrhenius_error_bars_cover_the_truth_on_a_realistic_series() {
+    // Reading noise of 1-1.5 % estimated from eight readings, 30 mK of stage drift and a 3 %
+    // thickness calibration (which moves every ordinate alike and so not the slope); the
+    // truth is E_D. Honest: 55-80 % within 1 sigma and at least 90 % within 2 sigma.
+    let series = deep_freeze_out_series();
+    let eps_max = series
+        .temperatures_k
+        .iter()
+        .map(|t| series.true_density(*t + 0.2) / series.acceptors_m3)
+        .fold(0.0, f64::max);
+    assert!(eps_max < 3e-4, "{eps_max}");
+    let settings = ArrheniusSettings {
+        range: ArrheniusRange::Temperatures {
+            min_k: 0.0,
+            max_k: f64::INFINITY,
+        },
+        ..ArrheniusSettings::default()
+    };
+    let count = realizations(400, 2000);
+    let mut rng = Rng::seeded(1982);
+    let mut coverage = Coverage::default();
+    let mut without_temperatures = Coverage::default();
+    for _ in 0..count {
+        let drawn = series.draw(&mut rng);
+        let fit = fit_arrhenius(&drawn.points, &settings).unwrap();
+        coverage.record(
+            fit.activation_energy_ev,
+            fit.activation_energy_ev_unc,
+            series.donor_energy_ev,
+        );
+        assert!(fit.effective_variance_passes >= 1);
+        // The same data with the drift left out of the weights: the bars are too short.
+        let mut blind = drawn.points.clone();
+        blind.iter_mut().for_each(|point| point.temperature_unc_k = None);
+        let blind_fit = fit_arrhenius(&blind, &settings).unwrap();
+        without_temperatures.record(
+            blind_fit.activation_energy_ev,
+            blind_fit.activation_energy_ev_unc,
+            series.donor_energy_ev,
+        );
+    }
+    eprintln!("Arrhenius E: {}", coverage.describe());
+    eprintln!(
+        "Arrhenius E without temperature errors: {}",
+        without_temperatures.describe()
+    );
+    assert!(coverage.is_honest(), "{}", coverage.describe());
+    assert!(without_temperatures.two_sigma_fraction() < coverage.two_sigma_fraction());
+}
+
+#[test]
+fn a_point_stated_absurdly_precisely_is_floored_and_the_temperature_enters_through_the_slope() {
+    let series = deep_freeze_out_series();
+    let mut drawn = series.draw(&mut Rng::seeded(7)).points;
+    drawn[0].density_unc_m3 = Some(5e-13 * drawn[0].density_m3);
+    let settings = ArrheniusSettings {
+        range: ArrheniusRange::Temperatures {
+            min_k: 0.0,
+            max_k: f64::INFINITY,
+        },
+        ..ArrheniusSettings::default()
+    };
+    let fit = fit_arrhenius(&drawn, &settings).unwrap();
+    assert!(fit.floored_points >= 1);
+    // The point's weight: the floor (1e-3) with the drift through the line's slope,
+    // (b / kT^2 - 1.5 / T) u_T with b = -E: (E + 1.5 kT) / kT^2 x 30 mK, about 3.7 % at
+    // 20 K (the derivative of ln(n T^-3/2) = const - E / kT).
+    let kt = mobilis_core::constants::BOLTZMANN_EV_PER_K * 20.0;
+    let expected = (1e-6 + ((-fit.line.slope + 1.5 * kt) / (kt * 20.0) * 0.030f64).powi(2)).sqrt();
+    let coldest = fit.points[0].reduced_ln_density_unc.unwrap();
+    assert!((coldest / expected - 1.0).abs() < 1e-9, "{coldest} vs {expected}");
+    assert!(
+        (fit.activation_energy_ev - series.donor_energy_ev).abs() < 4.0 * fit.activation_energy_ev_unc,
+        "{} +- {}",
+        fit.activation_energy_ev,
+        fit.activation_energy_ev_unc
+    );
+    assert_eq!(fit.temperature_unc_source, crate::freeze_out::UncertaintySource::Points);
+    assert!(fit.chi_square_p_value.is_finite() && fit.birge_ratio >= 1.0);
+}
+
+#[test]
+fn understated_errors_widen_the_slope_by_the_birge_ratio_and_name_the_worst_points() {
+    // 2 % noise stated as 0.4 %: the standard error of the slope grows by sqrt(chi^2 / nu)
+    // to about that of the honest statement (within the spread of the Birge ratio,
+    // sqrt(1 / 2 nu) = 0.18 for 14 degrees of freedom, doubled).
+    let (donors, acceptors, energy) = (5e15 * CM3, 1e15 * CM3, 0.054);
+    let dopants = Dopants::new(donors, acceptors, energy, 0.045);
+    let mut rng = Rng::seeded(78);
+    let honest: Vec<DensityPoint> = geometric(14.0, 24.0, 16)
+        .into_iter()
+        .map(|t| {
+            let n = silicon_electrons(&dopants, t) * (1.0 + 0.02 * rng.standard_normal());
+            DensityPoint {
+                temperature_k: t,
+                density_m3: n,
+                density_unc_m3: Some(0.02 * n),
+                carrier_type: Some(CarrierType::N),
+                ..DensityPoint::default()
+            }
+        })
+        .collect();
+    let understated: Vec<DensityPoint> = honest
+        .iter()
+        .map(|point| DensityPoint {
+            density_unc_m3: Some(0.004 * point.density_m3),
+            ..*point
+        })
+        .collect();
+    let settings = ArrheniusSettings {
+        range: ArrheniusRange::Temperatures {
+            min_k: 10.0,
+            max_k: 30.0,
+        },
+        ..ArrheniusSettings::default()
+    };
+    let fit = fit_arrhenius(&understated, &settings).unwrap();
+    let reference = fit_arrhenius(&honest, &settings).unwrap();
+    assert!(fit.birge_ratio > 3.0, "{}", fit.birge_ratio);
+    assert!((fit.birge_ratio - fit.line.reduced_chi_square.sqrt()).abs() < 1e-12);
+    assert!(fit.chi_square_p_value < 1e-3);
+    let ratio = fit.activation_energy_ev_unc / reference.activation_energy_ev_unc;
+    assert!((ratio - 1.0).abs() < 0.36, "{ratio}");
+    // The same slope: the weights are proportional.
+    assert!((fit.activation_energy_ev - reference.activation_energy_ev).abs() < 1e-12);
+    let warning = fit
+        .warnings
+        .iter()
+        .find(|w| w.contains("Birge ratio"))
+        .expect("a poor-fit warning");
+    assert!(
+        warning.contains("worst points") && warning.contains("relative_uncertainty_floor"),
+        "{warning}"
+    );
+    // Without uncertainties the line is unweighted and reports no p-value.
+    let bare: Vec<DensityPoint> = honest
+        .iter()
+        .map(|point| DensityPoint {
+            density_unc_m3: None,
+            temperature_unc_k: Some(0.03),
+            ..*point
+        })
+        .collect();
+    let unweighted = fit_arrhenius(&bare, &settings).unwrap();
+    assert!(unweighted.chi_square_p_value.is_nan() && unweighted.birge_ratio.is_nan());
+    assert!(unweighted
+        .warnings
+        .iter()
+        .any(|w| w.contains("temperature uncertainties were not used")));
+}
+
+#[test]
+fn a_hall_factor_table_straightens_the_arrhenius_line() {
+    // r_H falling from 1.93 to 1.18 across the window (linear in T, an invented test input)
+    // tilts ln(n_H T^-3/2) and so the slope; the table restores E_D to its noiseless bound.
+    let (donors, acceptors, energy) = (1e16 * CM3, 1e15 * CM3, 0.045);
+    let dopants = Dopants::new(donors, acceptors, energy, 0.045);
+    let hall_factor = |t: f64| 1.93 - 0.75 * (t - 14.0) / 8.0;
+    let points: Vec<DensityPoint> = geometric(14.0, 22.0, 10)
+        .into_iter()
+        .map(|t| point(t, silicon_electrons(&dopants, t) / hall_factor(t), CarrierType::N))
+        .collect();
+    let range = ArrheniusRange::Temperatures {
+        min_k: 10.0,
+        max_k: 25.0,
+    };
+    let tilted = fit_arrhenius(
+        &points,
+        &ArrheniusSettings {
+            range,
+            ..ArrheniusSettings::default()
+        },
+    )
+    .unwrap();
+    assert!(
+        (tilted.activation_energy_ev / energy - 1.0).abs() > 0.03,
+        "{}",
+        tilted.activation_energy_ev
+    );
+    let table = vec![(14.0, 1.93), (22.0, 1.18)];
+    let fit = fit_arrhenius(
+        &points,
+        &ArrheniusSettings {
+            range,
+            hall_factor: HallFactor::Table(table),
+            ..ArrheniusSettings::default()
+        },
+    )
+    .unwrap();
+    // Deep in the compensated regime (eps < 2e-3, the first test), as there.
+    assert!(
+        (fit.activation_energy_ev / energy - 1.0).abs() < 2e-3,
+        "{}",
+        fit.activation_energy_ev
+    );
+    assert_eq!(fit.hall_factor, None);
+    assert!((fit.points[0].hall_factor - 1.93).abs() < 1e-12);
 }

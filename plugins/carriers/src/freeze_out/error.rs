@@ -81,6 +81,41 @@ pub enum SeriesError {
     InvalidHallFactor {
         value: f64,
     },
+    /// A single Hall factor was asked of a table that varies with temperature.
+    HallFactorVaries,
+    /// The Hall factor table has no entries.
+    EmptyHallFactorTable,
+    /// A Hall factor table entry is not a positive temperature with a positive factor.
+    InvalidHallFactorEntry {
+        index: usize,
+        temperature_k: f64,
+        hall_factor: f64,
+    },
+    /// Two Hall factor table entries at one temperature.
+    RepeatedHallFactorTemperature {
+        temperature_k: f64,
+    },
+    /// A systematic density uncertainty that is not a finite number of 0 or more.
+    InvalidSystematicUncertainty {
+        index: usize,
+        value: f64,
+    },
+    /// A temperature uncertainty that is not a finite number of 0 or more.
+    InvalidTemperatureUncertainty {
+        index: usize,
+        value: f64,
+    },
+    /// The Hall factor said to be applied to a point is not a finite positive number.
+    InvalidAppliedHallFactor {
+        index: usize,
+        value: f64,
+    },
+    /// Some points have a temperature uncertainty, others not, and none is stated.
+    MissingTemperatureUncertainty {
+        index: usize,
+        with: usize,
+        without: usize,
+    },
 }
 
 impl fmt::Display for SeriesError {
@@ -146,6 +181,42 @@ impl fmt::Display for SeriesError {
             SeriesError::InvalidHallFactor { value } => write!(
                 f,
                 "the Hall factor is {value}; give a finite positive factor, or a scattering exponent above -1.25"
+            ),
+            SeriesError::HallFactorVaries => write!(
+                f,
+                "the Hall factor table varies with temperature, so it has no single value; give hall_factor for a constant factor"
+            ),
+            SeriesError::EmptyHallFactorTable => write!(
+                f,
+                "hall_factor_table is empty; give at least one [temperature_K, hall_factor] pair"
+            ),
+            SeriesError::InvalidHallFactorEntry {
+                index,
+                temperature_k,
+                hall_factor,
+            } => write!(
+                f,
+                "hall_factor_table entry {index} is [{temperature_k}, {hall_factor}]; give a temperature above 0 K and a finite positive Hall factor"
+            ),
+            SeriesError::RepeatedHallFactorTemperature { temperature_k } => write!(
+                f,
+                "hall_factor_table gives two factors at {temperature_k} K; give one factor per temperature"
+            ),
+            SeriesError::InvalidSystematicUncertainty { index, value } => write!(
+                f,
+                "point {index}: density_m3_unc_sys is {value}; give a finite standard uncertainty of 0 or more, or leave the column out"
+            ),
+            SeriesError::InvalidTemperatureUncertainty { index, value } => write!(
+                f,
+                "point {index}: temperature_K_unc is {value}; give a finite standard uncertainty in kelvin, 0 or more"
+            ),
+            SeriesError::InvalidAppliedHallFactor { index, value } => write!(
+                f,
+                "point {index}: hall_factor (the factor already applied) is {value}; give a finite positive factor, or leave the column out for 1"
+            ),
+            SeriesError::MissingTemperatureUncertainty { index, with, without } => write!(
+                f,
+                "{with} points have a temperature_K_unc and {without} have none (the first is point {index}); fill the column, or give temperature_uncertainty_K for the points without one"
             ),
         }
     }

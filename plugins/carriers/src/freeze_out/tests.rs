@@ -79,6 +79,7 @@ impl Case {
                     density_m3: density,
                     density_unc_m3: self.weighted.then_some(self.noise * density),
                     carrier_type: Some(self.carrier_type),
+                    ..DensityPoint::default()
                 }
             })
             .collect()
@@ -114,8 +115,9 @@ fn case(
 
 /// Parameter sets spanning n and p type, compensation 0.01 to 0.8, levels 10 to 150 meV and
 /// six materials. The levels are those of real dopants (Si: P 45 meV, As 54 meV, B 45 meV,
-/// In 157 meV from the Sze-type table of check-values; the others from memory) but any
-/// values would do: the data are synthetic.
+/// In 157 meV, the handbook ionization energies as charted in S. M. Sze, Physics of
+/// Semiconductor Devices, recalled from memory; the others from memory too) but any values
+/// would do: the data are synthetic.
 fn recovery_cases() -> Vec<Case> {
     let mut cases = vec![
         case("Si:P light", Material::silicon(), CarrierType::N, 1e15, 0.05, 0.045),
@@ -347,7 +349,7 @@ fn deliberately_poor_guesses_do_not_spoil_the_data_derived_starts() {
     assert!(fit.starts > 14 && fit.starts <= 18, "{}", fit.starts);
 }
 
-// Nc = 2.86e19 (T/300)^1.5 cm^-3 (Green 1990, as in check-values), g = 2, E_D = 0.045 eV,
+// Nc = 2.86e19 (T/300)^1.5 cm^-3 (M. A. Green, J. Appl. Phys. 67, 2944, 1990), g = 2, E_D = 0.045 eV,
 // N_D = 1e16, N_A = 1e14 cm^-3: n(77 K) = 3.5964e15, n(100 K) = 6.7691e15,
 // n(300 K) = 9.8608e15 cm^-3, computed from the compensated single-donor equation
 // (Blakemore 1962; Look 1989). The fit's model adds holes, negligible here (n_i^2 / n is
@@ -472,6 +474,7 @@ fn intrinsic_conduction_is_fitted_exactly_and_flagged() {
             density_m3: density,
             density_unc_m3: Some(case.noise * density),
             carrier_type: Some(CarrierType::N),
+            ..DensityPoint::default()
         });
     }
     let net = 0.9 * case.dopant_cm3 * CM3;
@@ -492,7 +495,7 @@ fn intrinsic_conduction_is_fitted_exactly_and_flagged() {
 
 #[test]
 fn effective_density_of_states_override_changes_the_majority_band() {
-    // Data from silicon with Green's Nc (2.86e19 cm^-3, check-values) are recovered when the
+    // Data from silicon with Green's Nc (2.86e19 cm^-3, Green 1990 as above) are recovered when the
     // fit is told that Nc; with the default Levinshtein Nc (3.22e19) the fitted energy and
     // compensation shift to absorb the 13 % difference.
     let green = Material::silicon()
@@ -538,7 +541,7 @@ fn effective_density_of_states_override_changes_the_majority_band() {
 #[test]
 fn hall_factor_correction_is_applied_before_fitting() {
     // Densities reduced with r_H = 1 are n / r_H; acoustic-phonon scattering (s = -1/2)
-    // gives r_H = 3 pi / 8 (Putley 1960, check-values).
+    // gives r_H = 3 pi / 8 (E. H. Putley, The Hall Effect and Related Phenomena, 1960).
     let case = case(
         "Si:P Hall factor",
         Material::silicon(),
@@ -560,7 +563,7 @@ fn hall_factor_correction_is_applied_before_fitting() {
     let mut settings = case.settings();
     settings.hall_factor = HallFactor::ScatteringExponent(-0.5);
     let fit = fit_freeze_out(&hall_points, &settings).unwrap();
-    assert!((fit.hall_factor - r_h).abs() < 1e-12);
+    assert!((fit.hall_factor.unwrap() - r_h).abs() < 1e-12);
     assert_recovered(&case, &fit);
     settings.hall_factor = HallFactor::Constant(r_h);
     let constant = fit_freeze_out(&hall_points, &settings).unwrap();
@@ -646,6 +649,7 @@ fn an_uncompensated_series_puts_the_compensation_on_its_bound_and_says_so() {
                 density_m3: density,
                 density_unc_m3: Some(0.01 * density),
                 carrier_type: Some(CarrierType::N),
+                ..DensityPoint::default()
             }
         })
         .collect();
@@ -670,6 +674,7 @@ fn simple_points(count: usize) -> Vec<DensityPoint> {
             density_m3: 1e20 * (1.0 + k as f64),
             density_unc_m3: None,
             carrier_type: Some(CarrierType::N),
+            ..DensityPoint::default()
         })
         .collect()
 }

@@ -8,6 +8,11 @@
 //! - Matthiessen's rule, 1/mu = sum of 1/mu_i.
 //! - The empirical doping dependence of Masetti, Severi and Solmi, IEEE Trans. Electron
 //!   Devices 30, 764 (1983), with their Table I parameters for silicon at 300 K.
+//! - The empirical doping and temperature dependence of Arora, Hauser and Roulston, IEEE
+//!   Trans. Electron Devices 29, 292 (1982), for silicon electrons and holes (their fit to
+//!   measured drift mobilities from about 250 to 500 K and 1e13 to 1e20 cm^-3; the
+//!   parameters are recalled from memory of the paper and its textbook reproductions).
+//!   With Masetti's, it is what the scattering model is validated against.
 //! - The Hall scattering factor r_H of a relaxation time tau ~ E^s (Putley, The Hall Effect
 //!   and Related Phenomena, 1960), through a Lanczos log-gamma.
 //!
@@ -196,6 +201,64 @@ impl MasettiParameters {
         low_doping_term
             + (self.mu_max_m2_per_vs - self.mu_min2_m2_per_vs) / (1.0 + (doping_m3 / self.cr_m3).powf(self.alpha))
             - self.mu_1_m2_per_vs / (1.0 + (self.cs_m3 / doping_m3).powf(self.beta))
+    }
+}
+
+/// The doping and temperature dependence of Arora, Hauser and Roulston (1982):
+/// mu(N, T) = mu_min + mu_0 / (1 + (N / N_ref)^alpha), with T_n = T / 300 K and
+/// mu_min = A_min T_n^beta_min, mu_0 = A_0 T^beta_0 (T in kelvin, as published),
+/// N_ref = A_ref T_n^beta_ref, alpha = A_alpha T_n^beta_alpha. Stored in SI (m^2/(V s), m^-3).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct AroraParameters {
+    /// A_min, m^2/(V s).
+    pub mu_min_m2_per_vs: f64,
+    pub mu_min_exponent: f64,
+    /// A_0, m^2/(V s) K^-beta_0: the coefficient of T^beta_0 with T in kelvin.
+    pub mu_0_coefficient_m2_per_vs: f64,
+    pub mu_0_exponent: f64,
+    /// A_ref, m^-3.
+    pub reference_density_m3: f64,
+    pub reference_density_exponent: f64,
+    pub alpha: f64,
+    pub alpha_exponent: f64,
+}
+
+impl AroraParameters {
+    /// Electrons in silicon: 88 T_n^-0.57 + 7.4e8 T^-2.33 / (1 + (N / (1.26e17 T_n^2.4))^(0.88
+    /// T_n^-0.146)) cm^2/(V s) (Arora et al. 1982; from memory).
+    pub const SILICON_ELECTRONS: AroraParameters = AroraParameters {
+        mu_min_m2_per_vs: 88.0 * CM2_PER_VS,
+        mu_min_exponent: -0.57,
+        mu_0_coefficient_m2_per_vs: 7.4e8 * CM2_PER_VS,
+        mu_0_exponent: -2.33,
+        reference_density_m3: 1.26e17 * PER_CM3,
+        reference_density_exponent: 2.4,
+        alpha: 0.88,
+        alpha_exponent: -0.146,
+    };
+
+    /// Holes in silicon: 54.3 T_n^-0.57 + 1.36e8 T^-2.23 / (1 + (N / (2.35e17 T_n^2.4))^(0.88
+    /// T_n^-0.146)) cm^2/(V s) (Arora et al. 1982; from memory).
+    pub const SILICON_HOLES: AroraParameters = AroraParameters {
+        mu_min_m2_per_vs: 54.3 * CM2_PER_VS,
+        mu_min_exponent: -0.57,
+        mu_0_coefficient_m2_per_vs: 1.36e8 * CM2_PER_VS,
+        mu_0_exponent: -2.23,
+        reference_density_m3: 2.35e17 * PER_CM3,
+        reference_density_exponent: 2.4,
+        alpha: 0.88,
+        alpha_exponent: -0.146,
+    };
+
+    /// Mobility at total dopant density `doping_m3` (0 or more) and `temperature_k`,
+    /// m^2/(V s).
+    pub fn mobility_m2_per_vs(&self, doping_m3: f64, temperature_k: f64) -> f64 {
+        let reduced = temperature_k / 300.0;
+        let minimum = self.mu_min_m2_per_vs * reduced.powf(self.mu_min_exponent);
+        let excess = self.mu_0_coefficient_m2_per_vs * temperature_k.powf(self.mu_0_exponent);
+        let reference = self.reference_density_m3 * reduced.powf(self.reference_density_exponent);
+        let alpha = self.alpha * reduced.powf(self.alpha_exponent);
+        minimum + excess / (1.0 + (doping_m3.max(0.0) / reference).powf(alpha))
     }
 }
 

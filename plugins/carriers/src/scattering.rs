@@ -124,7 +124,10 @@ mod tests;
 pub use error::ScatteringError;
 
 use mobilis_core::constants::{ELECTRON_MASS_KG, ELEMENTARY_CHARGE_C, REDUCED_PLANCK_J_S, VACUUM_PERMITTIVITY_F_PER_M};
-use mobilis_core::fit::{Bounds, FitError, LeastSquares, LmOptions, SameMinimum, StartSummary};
+use mobilis_core::fit::{
+    effective_uncertainty, floored_relative_uncertainty, Bounds, FitError, FitQuality, LeastSquares, LmFit, LmOptions,
+    MultiStartFit, SameMinimum, StartSummary, RELATIVE_UNCERTAINTY_FLOOR,
+};
 use mobilis_core::forward::mobility::{lattice_mobility_m2_per_vs, ScatteringMedium};
 use mobilis_core::linalg::Matrix;
 use std::f64::consts::PI;
@@ -159,15 +162,21 @@ pub fn neutral_impurity_mobility_m2_per_vs(medium: &ScatteringMedium, neutral_de
 }
 
 /// One measured mobility.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
 pub struct MobilityPoint {
     /// K.
     pub temperature_k: f64,
     /// Hall or drift mobility magnitude, m^2/(V s) (see [`ScatteringSettings::hall_factor`]).
     pub mobility_m2_per_vs: f64,
-    /// Standard uncertainty of the mobility, m^2/(V s); give it for every fitted point or
-    /// for none.
+    /// Statistical (Type A) standard uncertainty of the mobility, m^2/(V s): the part that
+    /// is independent from point to point and weights the fit. Give it for every fitted
+    /// point or for none. An error common to the whole series (a field calibration) belongs
+    /// in [`ScatteringSettings::mobility_scale_relative_unc`] instead.
     pub mobility_unc_m2_per_vs: Option<f64>,
+    /// Standard uncertainty of the sample temperature, K (the readings' spread and the
+    /// thermometer's stated accuracy in quadrature); propagated through d ln mu / dT of the
+    /// model (effective variance). `None` counts as exact.
+    pub temperature_unc_k: Option<f64>,
     /// Measured majority carrier density at this temperature, m^-3 (for screening, the
     /// carriers-plus-compensation model, the neutral density and the freeze-out comparison).
     pub carrier_density_m3: Option<f64>,
@@ -288,6 +297,17 @@ pub struct ScatteringSettings {
     pub bounds: ParameterBounds,
     /// How far the fitted density may be from the freeze-out one.
     pub tolerance: ConsistencyTolerance,
+    /// The smallest relative uncertainty a mobility keeps in a weighted fit, so that no
+    /// point can pin the fit. Default [`RELATIVE_UNCERTAINTY_FLOOR`] (0.1 %).
+    pub relative_uncertainty_floor: f64,
+    /// Relative standard uncertainty of the mobility scale common to every point (Type B:
+    /// the field calibration of a Hall mobility), applied after the fit. `None`: not stated.
+    pub mobility_scale_relative_unc: Option<f64>,
+    /// Relative standard uncertainty of the carrier-density scale common to every point
+    /// (Type B: thickness, field, current and voltage calibrations), propagated after the
+    /// fit through the screening and the carriers-plus-compensation model. `None`: not
+    /// stated.
+    pub density_scale_relative_unc: Option<f64>,
 }
 
 impl ScatteringSettings {
@@ -308,6 +328,9 @@ impl ScatteringSettings {
             fixed_lattice_exponent: None,
             bounds: ParameterBounds::default(),
             tolerance: ConsistencyTolerance::default(),
+            relative_uncertainty_floor: RELATIVE_UNCERTAINTY_FLOOR,
+            mobility_scale_relative_unc: None,
+            density_scale_relative_unc: None,
         }
     }
 
@@ -328,6 +351,12 @@ impl ScatteringSettings {
             ),
             ("charge_number", self.charge_number, self.charge_number > 0.0, positive),
             (
+                "relative_uncertainty_floor",
+                self.relative_uncertainty_floor,
+                (0.0..1.0).contains(&self.relative_uncertainty_floor),
+                "give a relative uncertainty from 0 up to (not including) 1; 0.001 is the default",
+            ),
+            (
                 "hall_factor",
                 self.hall_factor,
                 self.hall_factor > 0.0,
@@ -344,6 +373,19 @@ impl ScatteringSettings {
                     value,
                     value > 0.0,
                     "give a temperature in kelvin above 0, or none",
+                ));
+            }
+        }
+        for (name, scale) in [
+            ("mobility_scale_relative_unc", self.mobility_scale_relative_unc),
+            ("density_scale_relative_unc", self.density_scale_relative_unc),
+        ] {
+            if let Some(value) = scale {
+                checks.push((
+                    name,
+                    value,
+                    value >= 0.0,
+                    "give a finite relative standard uncertainty of 0 or more, or none",
                 ));
             }
         }
@@ -494,6 +536,18 @@ pub struct GoodnessOfFit {
     pub chi_square: f64,
     pub degrees_of_freedom: usize,
     pub reduced_chi_square: f64,
+    /// P(chi^2_nu >= chi^2) of a weighted fit; NaN for an unweighted one, whose chi-square
+    /// is the noise estimate itself.
+    pub p_value: f64,
+    /// sqrt(chi^2/nu) when above 1, else 1, for a weighted fit (the factor its standard
+    /// uncertainties were multiplied by); NaN for an unweighted one.
+    pub birge_ratio: f64,
+    /// Points whose relative mobility uncertainty was raised to the floor.
+    pub floored_points: usize,
+    /// True when temperature uncertainties entered the weights (effective variance).
+    pub temperature_uncertainty_used: bool,
+    /// Refits with updated effective variances after the first fit.
+    pub effective_variance_passes: usize,
     /// Root mean square of ln(mu_data / mu_fit) over the fitted points: the typical
     /// relative misfit.
     pub rms_log_residual: f64,
@@ -523,6 +577,13 @@ pub struct ScatteringFit {
     pub neutral_impurity_density_m3: Option<Estimate>,
     /// The fitted mu_C, m^2/(V s).
     pub constant_mobility_m2_per_vs: Option<Estimate>,
+    /// The statistical and systematic parts of each reported uncertainty, by the summary
+    /// name of the quantity ("lattice_exponent", "ionized_impurity_density_m3", ...). The
+    /// `uncertainty` of each estimate is their quadrature sum.
+    pub budget: Vec<(&'static str, UncertaintySplit)>,
+    /// The common-scale calibrations that could matter and were not stated (their
+    /// systematic part is then absent, not zero).
+    pub calibrations_not_stated: Vec<&'static str>,
     /// The fitted parameters in order, with their names ([`FittedParameter::name`]).
     pub parameters: Vec<FittedParameter>,
     /// The fitted model's parameters, for [`evaluate_model`] (smooth curves).
@@ -551,14 +612,43 @@ pub struct ScatteringFit {
     pub warnings: Vec<String>,
 }
 
+/// The statistical (Type A, from the scatter of the data) and systematic (Type B, from
+/// stated calibrations) parts of a standard uncertainty, in the quantity's unit. `None`: not
+/// estimated (statistical) or no calibration stated (systematic).
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct UncertaintySplit {
+    pub statistical: Option<f64>,
+    pub systematic: Option<f64>,
+}
+
+/// The total standard uncertainty of a statistical and a systematic part: their quadrature
+/// sum, the statistical part alone when no calibration was stated, none without a
+/// statistical part.
+fn combine(statistical: Option<f64>, systematic: Option<f64>) -> Option<f64> {
+    match (statistical, systematic) {
+        (Some(a), Some(b)) => Some(a.hypot(b)),
+        (Some(a), None) => Some(a),
+        (None, _) => None,
+    }
+}
+
 /// A validated point of the fitted range, in the fit's variables.
 #[derive(Debug, Clone, Copy)]
 struct FitPoint {
+    /// Position in the input.
+    index: usize,
     temperature_k: f64,
     /// ln of the drift mobility.
     ln_mobility: f64,
-    /// Uncertainty of ln mu (the relative uncertainty), 1 for an unweighted fit.
+    /// Uncertainty of ln mu used as the weight: the data's (floored) relative uncertainty,
+    /// widened by the temperature's through the effective variance; 1 for an unweighted fit.
     ln_sigma: f64,
+    /// The data's own relative uncertainty after the floor (1 for an unweighted fit).
+    ln_sigma_data: f64,
+    /// Whether the floor raised it.
+    floored: bool,
+    /// Standard uncertainty of the temperature, K (0 when not given).
+    temperature_unc_k: f64,
     carrier_density_m3: Option<f64>,
 }
 
@@ -659,6 +749,13 @@ struct Model<'a> {
 
 /// Chi-square margin, in noise variances, within which another minimum is reported.
 const RIVAL_CHI_SQUARE: f64 = 4.0;
+
+/// Refits with updated effective variances at most; two or three suffice in practice, since
+/// the variances depend on the parameters only through the model's slope.
+const EFFECTIVE_VARIANCE_PASSES: usize = 6;
+
+/// Relative step in T of the central difference of d ln mu / dT.
+const TEMPERATURE_STEP: f64 = 1e-4;
 
 /// Relative step in ln N_I of the central difference of the ionized term; the truncation
 /// error h^2/6 times a third derivative of order one is far below any data's noise.
@@ -835,6 +932,39 @@ impl<'a> Model<'a> {
         }
     }
 
+    /// d ln mu_fit / dT at a point with the carrier density held (the measured n belongs to
+    /// the true temperature, so only the model's explicit temperature dependence turns a
+    /// temperature error into a mobility error), by a central difference.
+    fn log_mobility_temperature_slope(&self, values: &[f64], point: &FitPoint) -> f64 {
+        let step = TEMPERATURE_STEP * point.temperature_k;
+        let at = |temperature_k: f64| {
+            self.log_mobility(
+                values,
+                &FitPoint {
+                    temperature_k,
+                    ..*point
+                },
+            )
+        };
+        let slope = (at(point.temperature_k + step) - at(point.temperature_k - step)) / (2.0 * step);
+        if slope.is_finite() {
+            slope
+        } else {
+            0.0
+        }
+    }
+
+    /// Whether the model reads the measured carrier densities at the fitted points.
+    fn uses_carrier_densities(&self, points: &[FitPoint]) -> bool {
+        let settings = self.settings;
+        if carrier_density_needed_by(settings).is_some() {
+            return true;
+        }
+        settings.formula == IonizedImpurityFormula::BrooksHerring
+            && settings.screening == ScreeningDensity::MeasuredCarriers
+            && points.iter().any(|point| point.carrier_density_m3.is_some())
+    }
+
     fn log_mobility(&self, values: &[f64], point: &FitPoint) -> f64 {
         let parameters = self.unpack(values);
         self.terms(&parameters, point.temperature_k, point.carrier_density_m3)
@@ -878,7 +1008,7 @@ pub fn fit_mobility_scattering(
     freeze_out: Option<&DopantDensities>,
 ) -> Result<ScatteringFit, ScatteringError> {
     settings.validate()?;
-    let fit_points = select_points(points, settings)?;
+    let mut fit_points = select_points(points, settings)?;
     let model = Model::new(settings);
     let parameter_count = model.parameters.len();
     let free = model.free_parameter_count();
@@ -891,41 +1021,49 @@ pub fn fit_mobility_scattering(
     let weighted = points_are_weighted(points, settings);
     let bounds = fit_bounds(&model);
     let starts = starting_points(&model, &fit_points, &bounds);
+    let floored_points = fit_points.iter().filter(|point| point.floored).count();
+    let temperature_uncertainty_used = weighted && fit_points.iter().any(|point| point.temperature_unc_k > 0.0);
 
-    let residual_model = &model;
-    let residual_points = &fit_points;
-    let problem = LeastSquares::new(fit_points.len(), move |values: &[f64], residuals: &mut [f64]| {
-        for (residual, point) in residuals.iter_mut().zip(residual_points) {
-            *residual = (residual_model.log_mobility(values, point) - point.ln_mobility) / point.ln_sigma;
-        }
-    })
-    .with_jacobian(move |values: &[f64], jacobian: &mut Matrix| {
-        let mut gradient = vec![0.0; residual_model.parameters.len()];
-        for (row, point) in residual_points.iter().enumerate() {
-            residual_model.log_mobility_gradient(values, point, &mut gradient);
-            for (column, derivative) in gradient.iter().enumerate() {
-                jacobian[(row, column)] = derivative / point.ln_sigma;
+    let mut multi =
+        solve(&model, &fit_points, &bounds, &starts, weighted).map_err(|error| describe_fit_error(error, &model))?;
+    // Errors in both variables (effective variance, Clutton-Brock 1967; Orear 1982): each
+    // point's variance in ln mu gains (d ln mu / dT)^2 u_T^2 at the current parameters, and
+    // the fit is repeated from its own solution with those variances until the parameters
+    // settle (iteratively reweighted, so the variances are never themselves minimized).
+    let mut effective_variance_passes = 0;
+    if temperature_uncertainty_used {
+        for _ in 0..EFFECTIVE_VARIANCE_PASSES {
+            let previous = multi.best.parameters.clone();
+            for point in fit_points.iter_mut() {
+                let slope = model.log_mobility_temperature_slope(&previous, point);
+                point.ln_sigma = effective_uncertainty(point.ln_sigma_data, slope, point.temperature_unc_k);
+            }
+            multi = solve(&model, &fit_points, &bounds, &[previous.clone()], weighted)
+                .map_err(|error| describe_fit_error(error, &model))?;
+            effective_variance_passes += 1;
+            let settled = multi
+                .best
+                .parameters
+                .iter()
+                .zip(&previous)
+                .zip(&multi.best.standard_errors)
+                .all(|((now, before), error)| {
+                    let step = (now - before).abs();
+                    step <= 1e-9 * before.abs().max(1.0) || (error.is_finite() && step <= 1e-3 * error)
+                });
+            if settled {
+                break;
             }
         }
-    })
-    .with_bounds(bounds.clone());
-    let options = LmOptions {
-        residuals_are_weighted: weighted,
-        max_iterations: 500,
-        // The parameters are logarithms and an exponent: all of order one in their own
-        // units, whatever the start.
-        parameter_scales: Some(vec![1.0; parameter_count]),
-        ..LmOptions::default()
-    };
-    let multi = problem
-        .minimize_multi_start(&starts, &options, &SameMinimum::default())
-        .map_err(|error| describe_fit_error(error, &model))?;
-    let best = multi.best;
+    }
+    let best = multi.best.clone();
+    let quality = FitQuality::assess(best.chi_square, best.degrees_of_freedom);
 
-    // Weighted residuals give an unscaled covariance; scale it by max(1, chi^2/nu) (module
-    // documentation). Unweighted, the solver has already scaled it by chi^2/nu.
+    // Weighted residuals give an unscaled covariance; scale it by the Birge ratio squared,
+    // max(1, chi^2/nu) (module documentation). Unweighted, the solver has already scaled it
+    // by chi^2/nu.
     let covariance_scale = if weighted {
-        best.reduced_chi_square.max(1.0)
+        quality.birge_ratio * quality.birge_ratio
     } else {
         best.reduced_chi_square
     };
@@ -946,12 +1084,34 @@ pub fn fit_mobility_scattering(
             .filter(|error| error.is_finite() && *error > 0.0)
     };
     let fitted = model.unpack(&best.parameters);
-    let log_estimate = |value: f64, parameter: FittedParameter| Estimate {
-        value,
-        uncertainty: error_of(parameter).map(|error| value * error),
+    // The common-scale calibrations, as shifts of the fitted parameters per unit of their
+    // relative error (the fit's linear response; module documentation).
+    let shifts = systematic_shifts(&model, &fit_points, &best, weighted, settings);
+    let systematic_of = |parameter: FittedParameter| -> Option<f64> {
+        let index = model.position(parameter)?;
+        let of = |shift: &Option<Vec<f64>>| shift.as_ref().map(|shift| shift[index]);
+        match (of(&shifts.mobility), of(&shifts.density)) {
+            (None, None) => None,
+            (a, b) => Some(a.unwrap_or(0.0).hypot(b.unwrap_or(0.0))),
+        }
+    };
+    let log_estimate = |value: f64, parameter: FittedParameter| {
+        let statistical = error_of(parameter).map(|error| value * error);
+        let systematic = systematic_of(parameter).map(|error| value * error);
+        (
+            Estimate {
+                value,
+                uncertainty: combine(statistical, systematic),
+            },
+            UncertaintySplit {
+                statistical,
+                systematic,
+            },
+        )
     };
 
-    let rows = build_rows(points, settings, &model, &best.parameters, weighted);
+    let effective_sigmas: Vec<(usize, f64)> = fit_points.iter().map(|point| (point.index, point.ln_sigma)).collect();
+    let rows = build_rows(points, settings, &model, &best.parameters, weighted, &effective_sigmas);
     let mut warnings = Vec::new();
     let log_residuals: Vec<f64> = rows
         .iter()
@@ -963,15 +1123,53 @@ pub fn fit_mobility_scattering(
         chi_square: best.chi_square,
         degrees_of_freedom: best.degrees_of_freedom,
         reduced_chi_square: best.reduced_chi_square,
+        p_value: if weighted { quality.p_value } else { f64::NAN },
+        birge_ratio: if weighted { quality.birge_ratio } else { f64::NAN },
         rms_log_residual,
         weighted,
         covariance_scale,
+        floored_points,
+        temperature_uncertainty_used,
+        effective_variance_passes,
     };
+    if weighted {
+        let fitted_rows: Vec<&ScatteringRow> = rows.iter().filter(|row| row.in_fit_range).collect();
+        // FitQuality wants (model - data) / sigma; the rows hold (data - model) / sigma.
+        let residuals: Vec<f64> = fitted_rows
+            .iter()
+            .map(|row| row.normalized_residual.map_or(f64::NAN, |r| -r))
+            .collect();
+        if let Some(warning) = quality.warning(&residuals, |i| format!("T = {} K", fitted_rows[i].temperature_k)) {
+            warnings.push(format!(
+                "{warning}. The weights come from the mobility uncertainties (hall_mobility_m2_per_Vs_unc_stat), \
+                 temperature_K_unc and relative_uncertainty_floor; consider another ionized-density model, \
+                 screening, or a narrower temperature range"
+            ));
+        }
+        if floored_points > 0 {
+            warnings.push(format!(
+                "{floored_points} point(s) had a mobility uncertainty below {} of the mobility and were raised to it \
+                 (relative_uncertainty_floor)",
+                settings.relative_uncertainty_floor
+            ));
+        }
+    }
+    let mut calibrations_not_stated = Vec::new();
+    if settings.mobility_scale_relative_unc.is_none() {
+        calibrations_not_stated.push("mobility scale (field calibration)");
+    }
+    if settings.density_scale_relative_unc.is_none() && model.uses_carrier_densities(&fit_points) {
+        calibrations_not_stated.push("carrier-density scale (thickness, field, current and voltage calibrations)");
+    }
 
     let lattice_exponent_fixed = settings.fixed_lattice_exponent.is_some();
-    let ionized_parameter = log_estimate(fitted.ionized_density_m3, FittedParameter::LnIonizedDensity);
+    let (ionized_parameter, ionized_split) = log_estimate(fitted.ionized_density_m3, FittedParameter::LnIonizedDensity);
+    let mut budget: Vec<(&'static str, UncertaintySplit)> = Vec::new();
     let (ionized_impurity_density_m3, compensating_density_m3) = match settings.ionized_density {
-        IonizedDensityModel::Constant => (ionized_parameter, None),
+        IonizedDensityModel::Constant => {
+            budget.push(("ionized_impurity_density_m3", ionized_split));
+            (ionized_parameter, None)
+        }
         IonizedDensityModel::CarriersPlusCompensation => {
             let hottest = fit_points
                 .iter()
@@ -980,10 +1178,36 @@ pub fn fit_mobility_scattering(
             let carriers = hottest
                 .carrier_density_m3
                 .expect("validated: every fitted point has a density");
+            // The measured n scales with the density calibration too, fully correlated with
+            // the shift it causes in N_comp.
+            let index = model
+                .position(FittedParameter::LnIonizedDensity)
+                .expect("the ionized density is always a parameter");
+            let density_shift = shifts.density.as_ref().map(|shift| {
+                carriers * settings.density_scale_relative_unc.unwrap_or(0.0)
+                    + 2.0 * ionized_parameter.value * shift[index]
+            });
+            let mobility_shift = shifts
+                .mobility
+                .as_ref()
+                .map(|shift| 2.0 * ionized_parameter.value * shift[index]);
+            let statistical = ionized_split.statistical.map(|error| 2.0 * error);
+            let systematic = match (mobility_shift, density_shift) {
+                (None, None) => None,
+                (a, b) => Some(a.unwrap_or(0.0).hypot(b.unwrap_or(0.0))),
+            };
             let implied = Estimate {
                 value: carriers + 2.0 * ionized_parameter.value,
-                uncertainty: ionized_parameter.uncertainty.map(|error| 2.0 * error),
+                uncertainty: combine(statistical, systematic),
             };
+            budget.push((
+                "ionized_impurity_density_m3",
+                UncertaintySplit {
+                    statistical,
+                    systematic,
+                },
+            ));
+            budget.push(("compensating_density_m3", ionized_split));
             (implied, Some(ionized_parameter))
         }
     };
@@ -1028,14 +1252,6 @@ pub fn fit_mobility_scattering(
             described.join(", ")
         ));
     }
-    if weighted && best.reduced_chi_square > 4.0 {
-        warnings.push(format!(
-            "the reduced chi-square is {:.3}: the model misses the data by more than their uncertainties; the \
-             uncertainties were scaled up accordingly. Consider another ionized-density model, screening, or a \
-             narrower temperature range",
-            best.reduced_chi_square
-        ));
-    }
     // The share of ionized-impurity scattering in 1/mu, mu_fit / mu_I, at its largest.
     let largest_ionized_share = rows
         .iter()
@@ -1050,30 +1266,46 @@ pub fn fit_mobility_scattering(
         ));
     }
 
+    let (lattice_mobility_300k_m2_per_vs, lattice_split) = log_estimate(
+        fitted.lattice_mobility_300k_m2_per_vs,
+        FittedParameter::LnLatticeMobility300K,
+    );
+    budget.push(("lattice_mobility_300K_m2_per_Vs", lattice_split));
+    let exponent_split = if lattice_exponent_fixed {
+        UncertaintySplit::default()
+    } else {
+        UncertaintySplit {
+            statistical: error_of(FittedParameter::LatticeExponent),
+            systematic: systematic_of(FittedParameter::LatticeExponent),
+        }
+    };
+    let lattice_exponent = Estimate {
+        value: fitted.lattice_exponent,
+        uncertainty: combine(exponent_split.statistical, exponent_split.systematic),
+    };
+    budget.push(("lattice_exponent", exponent_split));
+    let neutral_impurity_density_m3 = fitted.neutral_density_m3.map(|value| {
+        let (estimate, split) = log_estimate(value, FittedParameter::LnNeutralDensity);
+        budget.push(("neutral_impurity_density_m3", split));
+        estimate
+    });
+    let constant_mobility_m2_per_vs = fitted.constant_mobility_m2_per_vs.map(|value| {
+        let (estimate, split) = log_estimate(value, FittedParameter::LnConstantMobility);
+        budget.push(("constant_mobility_m2_per_Vs", split));
+        estimate
+    });
     let mut fit = ScatteringFit {
         formula: settings.formula,
         ionized_density_model: settings.ionized_density,
-        lattice_mobility_300k_m2_per_vs: log_estimate(
-            fitted.lattice_mobility_300k_m2_per_vs,
-            FittedParameter::LnLatticeMobility300K,
-        ),
-        lattice_exponent: Estimate {
-            value: fitted.lattice_exponent,
-            uncertainty: if lattice_exponent_fixed {
-                None
-            } else {
-                error_of(FittedParameter::LatticeExponent)
-            },
-        },
+        lattice_mobility_300k_m2_per_vs,
+        lattice_exponent,
         lattice_exponent_fixed,
         ionized_impurity_density_m3,
         compensating_density_m3,
-        neutral_impurity_density_m3: fitted
-            .neutral_density_m3
-            .map(|value| log_estimate(value, FittedParameter::LnNeutralDensity)),
-        constant_mobility_m2_per_vs: fitted
-            .constant_mobility_m2_per_vs
-            .map(|value| log_estimate(value, FittedParameter::LnConstantMobility)),
+        neutral_impurity_density_m3,
+        constant_mobility_m2_per_vs,
+        budget,
+        calibrations_not_stated,
         fitted_parameters: fitted,
         parameter_names: model
             .parameters
@@ -1268,11 +1500,26 @@ fn select_points(points: &[MobilityPoint], settings: &ScatteringSettings) -> Res
                 return Err(ScatteringError::MissingCarrierDensity { index, needed_by });
             }
         }
+        let temperature_unc_k = match point.temperature_unc_k {
+            Some(unc) if !(unc.is_finite() && unc >= 0.0) => {
+                return Err(ScatteringError::InvalidTemperatureUncertainty { index, value: unc });
+            }
+            Some(unc) => unc,
+            None => 0.0,
+        };
         let drift_mobility = mobility / settings.hall_factor;
+        let (ln_sigma_data, floored) = match point.mobility_unc_m2_per_vs {
+            Some(unc) => floored_relative_uncertainty(unc / mobility, settings.relative_uncertainty_floor),
+            None => (1.0, false),
+        };
         selected.push(FitPoint {
+            index,
             temperature_k: point.temperature_k,
             ln_mobility: drift_mobility.ln(),
-            ln_sigma: point.mobility_unc_m2_per_vs.map_or(1.0, |unc| unc / mobility),
+            ln_sigma: ln_sigma_data,
+            ln_sigma_data,
+            floored,
+            temperature_unc_k,
             carrier_density_m3: point.carrier_density_m3,
         });
     }
@@ -1312,6 +1559,125 @@ fn carrier_density_needed_by(settings: &ScatteringSettings) -> Option<&'static s
         }
     }
     None
+}
+
+/// The multi-start least-squares fit of `points` with their current weights.
+fn solve(
+    model: &Model,
+    points: &[FitPoint],
+    bounds: &Bounds,
+    starts: &[Vec<f64>],
+    weighted: bool,
+) -> Result<MultiStartFit, FitError> {
+    let problem = LeastSquares::new(points.len(), move |values: &[f64], residuals: &mut [f64]| {
+        for (residual, point) in residuals.iter_mut().zip(points) {
+            *residual = (model.log_mobility(values, point) - point.ln_mobility) / point.ln_sigma;
+        }
+    })
+    .with_jacobian(move |values: &[f64], jacobian: &mut Matrix| {
+        let mut gradient = vec![0.0; model.parameters.len()];
+        for (row, point) in points.iter().enumerate() {
+            model.log_mobility_gradient(values, point, &mut gradient);
+            for (column, derivative) in gradient.iter().enumerate() {
+                jacobian[(row, column)] = derivative / point.ln_sigma;
+            }
+        }
+    })
+    .with_bounds(bounds.clone());
+    let options = LmOptions {
+        residuals_are_weighted: weighted,
+        max_iterations: 500,
+        // The parameters are logarithms and an exponent: all of order one in their own
+        // units, whatever the start.
+        parameter_scales: Some(vec![1.0; model.parameters.len()]),
+        ..LmOptions::default()
+    };
+    problem.minimize_multi_start(starts, &options, &SameMinimum::default())
+}
+
+/// Shifts of the fitted parameters (in the fit's variables) caused by a one-standard-
+/// uncertainty error of each stated common-scale calibration; `None` for a calibration not
+/// stated (or, for the density scale, one the model does not read).
+struct SystematicShifts {
+    mobility: Option<Vec<f64>>,
+    density: Option<Vec<f64>>,
+}
+
+/// The fit's linear response to an error shared by every point: a change dr of the weighted
+/// residuals moves the least-squares solution by dp = -(J^T J)^-1 J^T dr (to first order, the
+/// GUM's sensitivity coefficients of the fitted parameters to the calibration; JCGM
+/// 100:2008, 5.1.3). Held parameters have zero rows in the covariance and do not move.
+fn systematic_shifts(
+    model: &Model,
+    points: &[FitPoint],
+    best: &LmFit,
+    weighted: bool,
+    settings: &ScatteringSettings,
+) -> SystematicShifts {
+    let none = SystematicShifts {
+        mobility: None,
+        density: None,
+    };
+    // The solver scales an unweighted covariance by chi^2/nu; undo it to get (J^T J)^-1.
+    let scale = if weighted { 1.0 } else { best.reduced_chi_square };
+    if !(scale.is_finite() && scale > 0.0) {
+        return none;
+    }
+    let count = model.parameters.len();
+    let mut jacobian = Matrix::zeros(points.len(), count);
+    let mut gradient = vec![0.0; count];
+    for (row, point) in points.iter().enumerate() {
+        model.log_mobility_gradient(&best.parameters, point, &mut gradient);
+        for (column, derivative) in gradient.iter().enumerate() {
+            jacobian[(row, column)] = derivative / point.ln_sigma;
+        }
+    }
+    let response = |change: &[f64], relative_unc: f64| -> Vec<f64> {
+        let projected = jacobian.transpose_mul_vec(change);
+        (0..count)
+            .map(|i| {
+                let shift: f64 = (0..count).map(|j| best.covariance[(i, j)] / scale * projected[j]).sum();
+                -shift * relative_unc
+            })
+            .collect()
+    };
+    // Mobilities scaled by (1 + u): every ln mu_data grows by u, every residual falls by
+    // u / sigma.
+    let mobility = settings.mobility_scale_relative_unc.map(|unc| {
+        let change: Vec<f64> = points.iter().map(|point| -1.0 / point.ln_sigma).collect();
+        response(&change, unc)
+    });
+    let density = settings
+        .density_scale_relative_unc
+        .filter(|_| model.uses_carrier_densities(points))
+        .map(|unc| {
+            let change: Vec<f64> = points
+                .iter()
+                .map(|point| {
+                    let Some(density) = point.carrier_density_m3 else {
+                        return 0.0;
+                    };
+                    let at = |factor: f64| {
+                        model.log_mobility(
+                            &best.parameters,
+                            &FitPoint {
+                                carrier_density_m3: Some(density * factor),
+                                ..*point
+                            },
+                        )
+                    };
+                    let step = LN_DENSITY_STEP;
+                    let slope = (at(step.exp()) - at((-step).exp())) / (2.0 * step);
+                    if slope.is_finite() {
+                        slope / point.ln_sigma
+                    } else {
+                        0.0
+                    }
+                })
+                .collect();
+            response(&change, unc)
+        });
+    SystematicShifts { mobility, density }
 }
 
 /// Bounds in the fit's variables; a fixed exponent has equal bounds.
@@ -1413,6 +1779,7 @@ fn build_rows(
     model: &Model,
     values: &[f64],
     weighted: bool,
+    effective_sigmas: &[(usize, f64)],
 ) -> Vec<ScatteringRow> {
     let parameters = model.unpack(values);
     let ionized_index = model
@@ -1432,17 +1799,30 @@ fn build_rows(
             let log_residual = mobility_fit
                 .filter(|_| mobility_data.is_finite() && mobility_data > 0.0)
                 .map(|fit| (mobility_data / fit).ln());
-            let ln_sigma = match (weighted, point.mobility_unc_m2_per_vs) {
-                (true, Some(unc)) => Some(unc / point.mobility_m2_per_vs),
-                (true, None) => None,
-                (false, _) => Some(1.0),
+            // The weight the fit used (floor and effective variance included); a point outside
+            // the range gets the floored uncertainty of its own mobility.
+            let fitted_sigma = effective_sigmas
+                .iter()
+                .find(|(fitted, _)| *fitted == index)
+                .map(|(_, sigma)| *sigma);
+            let ln_sigma = match (weighted, fitted_sigma, point.mobility_unc_m2_per_vs) {
+                (true, Some(sigma), _) => Some(sigma),
+                (true, None, Some(unc)) => Some(
+                    floored_relative_uncertainty(unc / point.mobility_m2_per_vs, settings.relative_uncertainty_floor).0,
+                ),
+                (true, None, None) => None,
+                (false, _, _) => Some(1.0),
             };
             let normalized_residual = log_residual.zip(ln_sigma).map(|(residual, sigma)| residual / sigma);
             let ionized_sensitivity = terms.map(|_| {
                 let fit_point = FitPoint {
+                    index,
                     temperature_k: point.temperature_k,
                     ln_mobility: f64::NAN,
                     ln_sigma: 1.0,
+                    ln_sigma_data: 1.0,
+                    floored: false,
+                    temperature_unc_k: 0.0,
                     carrier_density_m3: point.carrier_density_m3,
                 };
                 model.log_mobility_gradient(values, &fit_point, &mut gradient);

@@ -8,6 +8,7 @@ use crate::scattering::{
     NeutralImpurityModel, ScatteringSettings, ScreeningDensity,
 };
 use mobilis_core::abi::{AnalysisDeclaration, InputRole};
+use mobilis_core::fit::RELATIVE_UNCERTAINTY_FLOOR;
 use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 
 pub struct MobilityScatteringAnalysis;
@@ -51,6 +52,8 @@ pub struct ScatteringParams {
     model_relative_uncertainty: Option<f64>,
     #[serde(default)]
     mobility_column: Option<String>,
+    #[serde(default)]
+    relative_uncertainty_floor: Option<f64>,
 }
 
 /// The `freeze_out` role: the summary table of `carriers.freeze_out_fit`.
@@ -141,6 +144,7 @@ impl Analysis for MobilityScatteringAnalysis {
         properties.insert("mobility_column".into(), json!({"type": "string", "enum": ["hall_mobility_m2_per_Vs", "drift_mobility_m2_per_Vs"], "default": "hall_mobility_m2_per_Vs", "description": "which mobility of the hall table to fit: the Hall mobility, or the drift mobility hall.reduce derived with the sample sheet's Hall factor"}));
         properties.insert("fixed_lattice_exponent".into(), json!({"type": "number", "minimum": 0, "description": "hold the lattice exponent at this value instead of fitting it"}));
         properties.insert("consistency_sigma_multiple".into(), json!({"type": "number", "exclusiveMinimum": 0, "default": tolerance.sigma_multiple, "description": "the two impurity counts agree within this many combined standard uncertainties (common practice: 2)"}));
+        properties.insert("relative_uncertainty_floor".into(), json!({"type": "number", "minimum": 0, "exclusiveMaximum": 1, "default": RELATIVE_UNCERTAINTY_FLOOR, "description": "the smallest relative uncertainty a mobility keeps in the weights, so that no point can pin the fit"}));
         properties.insert("model_relative_uncertainty".into(), json!({"type": "number", "minimum": 0, "default": tolerance.model_relative_uncertainty, "description": "relative uncertainty allowed for the scattering theory itself in the comparison"}));
         AnalysisDeclaration {
             name: String::new(),
@@ -150,10 +154,16 @@ impl Analysis for MobilityScatteringAnalysis {
             inputs: vec![
                 hall_role(vec![
                     column("hall_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "Hall mobility"),
-                    column("hall_mobility_m2_per_Vs_unc", F64, Some("m2_per_Vs"), "its uncertainty; weights the fit").optional(),
+                    column("hall_mobility_m2_per_Vs_unc", F64, Some("m2_per_Vs"), "its total uncertainty; weights the fit when the _stat column is absent").optional(),
+                    column("hall_mobility_m2_per_Vs_unc_stat", F64, Some("m2_per_Vs"), "its statistical uncertainty; weights the fit").optional(),
+                    column("hall_mobility_m2_per_Vs_unc_sys", F64, Some("m2_per_Vs"), "its calibration uncertainty common to the series; applied after the fit").optional(),
                     column("drift_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "drift mobility (mobility_column)").optional(),
                     column("drift_mobility_m2_per_Vs_unc", F64, Some("m2_per_Vs"), "its uncertainty").optional(),
+                    column("drift_mobility_m2_per_Vs_unc_stat", F64, Some("m2_per_Vs"), "its statistical uncertainty").optional(),
+                    column("drift_mobility_m2_per_Vs_unc_sys", F64, Some("m2_per_Vs"), "its calibration uncertainty").optional(),
                     column("density_m3", F64, Some("m3"), "carrier density (screening, comparison)").optional(),
+                    column("density_m3_unc_sys", F64, Some("m3"), "its calibration uncertainty common to the series").optional(),
+                    column("temperature_K_unc", F64, Some("K"), "standard uncertainty of the temperature; propagated through the model's slope").optional(),
                 ]),
                 freeze_out_role(false),
             ],
@@ -169,13 +179,18 @@ impl Analysis for MobilityScatteringAnalysis {
                 column("constant_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "temperature-independent term"),
                 column("ionized_density_m3", F64, Some("m3"), "N_I at this point"),
                 column("screening_density_m3", F64, Some("m3"), "Brooks-Herring screening density"),
-                column("log_residual", F64, None, "ln(model) - ln(data)"),
+                column("log_residual", F64, None, "ln(data) - ln(model)"),
+                column("normalized_residual", F64, None, "the log residual over the uncertainty the fit weighted it by (floor and temperature included)"),
             ],
             summary_keys: vec![
                 column("lattice_exponent", F64, None, "alpha of mu_L ~ T^-alpha, with _unc"),
                 column("lattice_mobility_300K_m2_per_Vs", F64, Some("m2_per_Vs"), "mu_L at 300 K, with _unc"),
                 column("ionized_impurity_density_m3", F64, Some("m3"), "N_I, with _unc"),
                 column("freeze_out_consistent", Bool, None, "the scattering and freeze-out counts agree"),
+                column("reduced_chi_square", F64, None, "chi^2 / nu"),
+                column("chi_square_p_value", F64, None, "P(chi^2_nu >= chi^2) of a weighted fit"),
+                column("birge_ratio", F64, None, "the factor the uncertainties were scaled by (1: not scaled)"),
+                column("floored_points", I64, None, "points whose uncertainty was raised to relative_uncertainty_floor"),
             ],
         }
     }
@@ -191,8 +206,40 @@ impl Analysis for MobilityScatteringAnalysis {
         let temperatures = sdk::float_column(hall, "temperature_K")?;
         let mobility_column = params.mobility_column.as_deref().unwrap_or("hall_mobility_m2_per_Vs");
         let mobilities = sdk::float_column(hall, mobility_column)?;
-        let uncertainties = optional_floats(hall, &format!("{mobility_column}_unc"))?;
+        // The fit weights by the statistical part; a table without one (not from hall.reduce,
+        // or from an older version) has its total taken as statistical.
+        let statistical_column = format!("{mobility_column}_unc_stat");
+        let total_column = format!("{mobility_column}_unc");
+        let (uncertainties, weight_column) = if hall.column(&statistical_column).is_ok() {
+            (
+                optional_floats(hall, &statistical_column)?,
+                Some(statistical_column.clone()),
+            )
+        } else if hall.column(&total_column).is_ok() {
+            warnings.push(format!(
+                "the hall table has {total_column} but no {statistical_column}: it was taken as statistical, and no \
+                 calibration budget was given (give the hall.reduce output, or the _unc_stat and _unc_sys columns)"
+            ));
+            (optional_floats(hall, &total_column)?, Some(total_column.clone()))
+        } else {
+            (vec![None; hall.height()], None)
+        };
+        let mobility_systematic = optional_floats(hall, &format!("{mobility_column}_unc_sys"))?;
+        let temperature_uncertainties = optional_floats(hall, "temperature_K_unc")?;
         let densities = optional_floats(hall, "density_m3")?;
+        let density_systematic = optional_floats(hall, "density_m3_unc_sys")?;
+        // A calibration error is one scale for the whole series: its relative size, the
+        // largest a row states (rows normally state the same).
+        let common_scale = |values: &[Option<f64>], systematic: &[Option<f64>]| -> Option<f64> {
+            values
+                .iter()
+                .zip(systematic)
+                .filter_map(|(value, unc)| Some(unc.as_ref()? / value.as_ref()?.abs()))
+                .filter(|relative| relative.is_finite() && *relative >= 0.0)
+                .reduce(f64::max)
+        };
+        let mobility_scale_relative_unc = common_scale(&mobilities, &mobility_systematic);
+        let density_scale_relative_unc = common_scale(&densities, &density_systematic);
         let types = optional_strings(hall, "carrier_type")?;
         let mut points = Vec::new();
         for row in 0..hall.height() {
@@ -203,6 +250,7 @@ impl Analysis for MobilityScatteringAnalysis {
                 temperature_k,
                 mobility_m2_per_vs: mobility.abs(),
                 mobility_unc_m2_per_vs: uncertainties[row],
+                temperature_unc_k: temperature_uncertainties[row],
                 carrier_density_m3: densities[row],
             });
         }
@@ -294,6 +342,19 @@ impl Analysis for MobilityScatteringAnalysis {
         if let Some(m) = params.model_relative_uncertainty {
             settings.tolerance.model_relative_uncertainty = m;
         }
+        if let Some(floor) = params.relative_uncertainty_floor {
+            settings.relative_uncertainty_floor = floor;
+        }
+        settings.mobility_scale_relative_unc = mobility_scale_relative_unc;
+        settings.density_scale_relative_unc = density_scale_relative_unc;
+        let temperature_unc_given = points.iter().any(|point| point.temperature_unc_k.is_some());
+        if temperature_unc_given && weight_column.is_none() {
+            warnings.push(
+                "temperature_K_unc was not used: the mobilities carry no uncertainty, so the fit is unweighted \
+                 (give the mobility's _unc_stat column to weigh the points)"
+                    .to_string(),
+            );
+        }
         host.progress(0.1, "fitting");
         host.check_cancelled()?;
         let fit =
@@ -350,6 +411,10 @@ impl Analysis for MobilityScatteringAnalysis {
                     rows.iter().map(|r| r.screening_density_m3).collect(),
                 ),
                 float_series("log_residual", rows.iter().map(|r| r.log_residual).collect()),
+                float_series(
+                    "normalized_residual",
+                    rows.iter().map(|r| r.normalized_residual).collect(),
+                ),
             ],
         )?;
         let mut output = AnalysisOutput::new(table);
@@ -394,8 +459,28 @@ impl Analysis for MobilityScatteringAnalysis {
                 estimate.uncertainty,
             );
         }
-        summary.insert("reduced_chi_square".into(), json!(fit.goodness.reduced_chi_square));
-        summary.insert("degrees_of_freedom".into(), json!(fit.goodness.degrees_of_freedom));
+        for (name, split) in &fit.budget {
+            summary.insert(format!("{name}_unc_stat"), json!(split.statistical));
+            summary.insert(format!("{name}_unc_sys"), json!(split.systematic));
+        }
+        let finite = |value: f64| if value.is_finite() { json!(value) } else { Value::Null };
+        let goodness = &fit.goodness;
+        summary.insert("reduced_chi_square".into(), finite(goodness.reduced_chi_square));
+        summary.insert("chi_square_p_value".into(), finite(goodness.p_value));
+        summary.insert("birge_ratio".into(), finite(goodness.birge_ratio));
+        summary.insert("weighted".into(), json!(goodness.weighted));
+        summary.insert("weights_column".into(), json!(weight_column));
+        summary.insert("floored_points".into(), json!(goodness.floored_points));
+        summary.insert(
+            "relative_uncertainty_floor".into(),
+            json!(settings.relative_uncertainty_floor),
+        );
+        summary.insert(
+            "temperature_uncertainty_used".into(),
+            json!(goodness.temperature_uncertainty_used),
+        );
+        summary.insert("calibrations_not_stated".into(), json!(fit.calibrations_not_stated));
+        summary.insert("degrees_of_freedom".into(), json!(goodness.degrees_of_freedom));
         summary.insert("points_used".into(), json!(fit.points_used));
         summary.insert("hall_factor".into(), json!(fit.hall_factor));
         summary.insert("mobility_column".into(), json!(mobility_column));

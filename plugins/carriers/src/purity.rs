@@ -302,9 +302,14 @@ pub struct DensityComparison {
     pub ratio: f64,
     /// Uncertainty of the ratio from the two estimates' uncertainties (not the theory's).
     pub ratio_unc: Option<f64>,
-    /// |ln ratio| in combined standard uncertainties (theory included).
+    /// |ln ratio| in combined standard uncertainties (theory included); for an upper limit,
+    /// how far the reference lies above it, ln(reference / limit), in the same units (0 when
+    /// it lies below).
     pub deviation_sigma: f64,
     pub consistent: bool,
+    /// The fitted density's upper limit, m^-3, when the fit could not determine the density
+    /// itself ([`compare_with_upper_limit`]).
+    pub upper_limit_m3: Option<f64>,
 }
 
 /// Compares two positive densities (module documentation). A missing uncertainty counts as
@@ -344,6 +349,44 @@ pub fn compare_densities(
         deviation_sigma,
         // NaN (a non-positive density) is never consistent.
         consistent: deviation_sigma <= tolerance.sigma_multiple,
+        upper_limit_m3: None,
+    }
+}
+
+/// Compares a density the fit could only bound from above with a reference: consistent
+/// when the reference does not exceed the limit (already at `sigma_multiple` standard
+/// uncertainties of the data) by more than `sigma_multiple` times the theory's and the
+/// reference's relative uncertainties combined, ln(reference / limit) <= k sqrt(m^2 +
+/// (u_r / r)^2). A reference below the limit always agrees: the data cannot tell it from
+/// nothing.
+pub fn compare_with_upper_limit(
+    quantity: &'static str,
+    fitted: Estimate,
+    upper_limit_m3: f64,
+    reference: Estimate,
+    basis: ReferenceBasis,
+    tolerance: &ConsistencyTolerance,
+) -> DensityComparison {
+    let reference_relative = reference.relative_uncertainty().unwrap_or(0.0);
+    let combined = reference_relative.hypot(tolerance.model_relative_uncertainty);
+    let excess = (reference.value / upper_limit_m3).ln().max(0.0);
+    let deviation_sigma = if combined > 0.0 {
+        excess / combined
+    } else if excess == 0.0 {
+        0.0
+    } else {
+        f64::INFINITY
+    };
+    DensityComparison {
+        quantity,
+        fitted,
+        reference,
+        basis,
+        ratio: fitted.value / reference.value,
+        ratio_unc: None,
+        deviation_sigma,
+        consistent: deviation_sigma <= tolerance.sigma_multiple,
+        upper_limit_m3: Some(upper_limit_m3),
     }
 }
 
@@ -357,6 +400,9 @@ pub struct ScatteringDensities {
     /// The comparison the scattering fit made with the freeze-out result, if it was given
     /// one.
     pub comparison: Option<DensityComparison>,
+    /// The upper limit of the fitted density (N_I, or N_comp when the fit has it), m^-3,
+    /// when the mobilities could not determine the density itself.
+    pub upper_limit_m3: Option<f64>,
 }
 
 impl From<&crate::scattering::ScatteringFit> for ScatteringDensities {
@@ -365,6 +411,7 @@ impl From<&crate::scattering::ScatteringFit> for ScatteringDensities {
             ionized_impurity_density_m3: fit.ionized_impurity_density_m3,
             compensating_density_m3: fit.compensating_density_m3,
             comparison: fit.comparison,
+            upper_limit_m3: fit.ionized_parameter_upper_limit_m3,
         }
     }
 }
@@ -492,23 +539,25 @@ pub fn summarize_purity(input: &PurityInput, tolerance: &ConsistencyTolerance) -
         summary.scattering_compensating_density_m3 = scattering.compensating_density_m3;
     }
     if let (Some(densities), Some(scattering)) = (&input.freeze_out, &input.scattering) {
-        let comparison = match (scattering.comparison, scattering.compensating_density_m3) {
-            // The scattering fit chose the reference; the verdict uses this tolerance.
-            (Some(made), _) => compare_densities(made.quantity, made.fitted, made.reference, made.basis, tolerance),
-            (None, Some(compensating)) => compare_densities(
+        // The scattering fit chose the reference; the verdict uses this tolerance.
+        let (quantity, fitted, reference, basis) = match (scattering.comparison, scattering.compensating_density_m3) {
+            (Some(made), _) => (made.quantity, made.fitted, made.reference, made.basis),
+            (None, Some(compensating)) => (
                 "compensating_density",
                 compensating,
                 summary.compensating_density_m3.expect("set from the freeze-out result"),
                 ReferenceBasis::CompensatingDensity,
-                tolerance,
             ),
-            (None, None) => compare_densities(
+            (None, None) => (
                 "ionized_impurity_density",
                 scattering.ionized_impurity_density_m3,
                 densities.total_impurity_density_m3(),
                 ReferenceBasis::TotalImpurities,
-                tolerance,
             ),
+        };
+        let comparison = match scattering.upper_limit_m3 {
+            Some(limit) => compare_with_upper_limit(quantity, fitted, limit, reference, basis, tolerance),
+            None => compare_densities(quantity, fitted, reference, basis, tolerance),
         };
         if !comparison.consistent {
             warnings.push(format!(

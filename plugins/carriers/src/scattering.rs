@@ -117,9 +117,13 @@
 //! includes a relative uncertainty of the scattering theory itself
 //! ([`ConsistencyTolerance`]).
 
+#[cfg(test)]
+mod budget_tests;
 mod error;
 #[cfg(test)]
 mod tests;
+#[cfg(test)]
+mod validation;
 
 pub use error::ScatteringError;
 
@@ -136,7 +140,8 @@ use crate::freeze_out::CarrierType;
 use crate::materials::Material;
 
 pub use crate::purity::{
-    compare_densities, ConsistencyTolerance, DensityComparison, DopantDensities, Estimate, PurityError, ReferenceBasis,
+    compare_densities, compare_with_upper_limit, ConsistencyTolerance, DensityComparison, DopantDensities, Estimate,
+    PurityError, ReferenceBasis,
 };
 
 /// The lattice power law's reference temperature, K.
@@ -571,6 +576,13 @@ pub struct ScatteringFit {
     /// at the highest fitted temperature (the closest to full ionization), its uncertainty
     /// that of 2 N_comp alone (the measured n is taken as exact).
     pub ionized_impurity_density_m3: Estimate,
+    /// When the data do not determine the ionized-impurity parameter (it ended on its lower
+    /// bound, or has no uncertainty): the largest value of it (N_I, or N_comp for the
+    /// carriers-plus-compensation model), m^-3, that raises the chi-square by no more than
+    /// `sigma_multiple`^2 noise variances with the other parameters refitted (a profile
+    /// upper limit at that many standard uncertainties). `None` when the parameter is
+    /// determined, or no value up to the upper bound is excluded.
+    pub ionized_parameter_upper_limit_m3: Option<f64>,
     /// N_comp of the carriers-plus-compensation model, m^-3.
     pub compensating_density_m3: Option<Estimate>,
     /// The fitted constant N_N, m^-3.
@@ -1294,7 +1306,38 @@ pub fn fit_mobility_scattering(
         budget.push(("constant_mobility_m2_per_Vs", split));
         estimate
     });
+    let ionized_index = model
+        .position(FittedParameter::LnIonizedDensity)
+        .expect("the ionized density is always a parameter");
+    let ionized_lower_bound = bounds.lower()[ionized_index];
+    let undetermined = error_of(FittedParameter::LnIonizedDensity).is_none()
+        || best.parameters[ionized_index] <= ionized_lower_bound + 1e-9;
+    let ionized_parameter_upper_limit_m3 = if undetermined {
+        profile_upper_limit(
+            &model,
+            &fit_points,
+            &bounds,
+            &best,
+            weighted,
+            settings.tolerance.sigma_multiple.powi(2) * covariance_scale,
+        )
+    } else {
+        None
+    };
+    if let Some(limit) = ionized_parameter_upper_limit_m3 {
+        warnings.push(format!(
+            "the mobilities do not determine the {}: it ended at {:.3e} m^-3 without an uncertainty; the data \
+             exclude values above {limit:.3e} m^-3 ({} standard uncertainties), which is what a comparison uses",
+            match settings.ionized_density {
+                IonizedDensityModel::Constant => "ionized-impurity density",
+                IonizedDensityModel::CarriersPlusCompensation => "compensating density",
+            },
+            fitted.ionized_density_m3,
+            settings.tolerance.sigma_multiple
+        ));
+    }
     let mut fit = ScatteringFit {
+        ionized_parameter_upper_limit_m3,
         formula: settings.formula,
         ionized_density_model: settings.ionized_density,
         lattice_mobility_300k_m2_per_vs,
@@ -1363,23 +1406,43 @@ pub fn compare_with_freeze_out(
                 value: densities.compensating_density_m3,
                 uncertainty: densities.compensating_density_unc_m3,
             };
-            Ok(compare_densities(
-                "compensating_density",
-                fitted,
-                reference,
-                ReferenceBasis::CompensatingDensity,
-                tolerance,
-            ))
+            Ok(match fit.ionized_parameter_upper_limit_m3 {
+                Some(limit) => compare_with_upper_limit(
+                    "compensating_density",
+                    fitted,
+                    limit,
+                    reference,
+                    ReferenceBasis::CompensatingDensity,
+                    tolerance,
+                ),
+                None => compare_densities(
+                    "compensating_density",
+                    fitted,
+                    reference,
+                    ReferenceBasis::CompensatingDensity,
+                    tolerance,
+                ),
+            })
         }
         IonizedDensityModel::Constant => {
             let (reference, basis) = ionized_reference(fit, densities);
-            Ok(compare_densities(
-                "ionized_impurity_density",
-                fit.ionized_impurity_density_m3,
-                reference,
-                basis,
-                tolerance,
-            ))
+            Ok(match fit.ionized_parameter_upper_limit_m3 {
+                Some(limit) => compare_with_upper_limit(
+                    "ionized_impurity_density",
+                    fit.ionized_impurity_density_m3,
+                    limit,
+                    reference,
+                    basis,
+                    tolerance,
+                ),
+                None => compare_densities(
+                    "ionized_impurity_density",
+                    fit.ionized_impurity_density_m3,
+                    reference,
+                    basis,
+                    tolerance,
+                ),
+            })
         }
     }
 }
@@ -1770,6 +1833,57 @@ fn describe_fit_error(error: FitError, model: &Model) -> ScatteringError {
         }
         other => ScatteringError::FitFailed(other.to_string()),
     }
+}
+
+/// The profile upper limit of the ionized-impurity parameter (see
+/// [`ScatteringFit::ionized_parameter_upper_limit_m3`]): the parameter is held at increasing
+/// values, the others refitted from the best solution, until the chi-square exceeds the best
+/// by `chi_square_margin`; the crossing is then bisected in ln to 1e-3.
+fn profile_upper_limit(
+    model: &Model,
+    points: &[FitPoint],
+    bounds: &Bounds,
+    best: &LmFit,
+    weighted: bool,
+    chi_square_margin: f64,
+) -> Option<f64> {
+    let index = model.position(FittedParameter::LnIonizedDensity)?;
+    let threshold = best.chi_square + chi_square_margin;
+    let chi_square_at = |ln_value: f64| -> Option<f64> {
+        let mut lower = bounds.lower().to_vec();
+        let mut upper = bounds.upper().to_vec();
+        lower[index] = ln_value;
+        upper[index] = ln_value;
+        let held = Bounds::new(lower, upper).ok()?;
+        let mut start = best.parameters.clone();
+        start[index] = ln_value;
+        solve(model, points, &held, &[start], weighted)
+            .ok()
+            .map(|fit| fit.best.chi_square)
+    };
+    let ceiling = bounds.upper()[index];
+    let mut low = best.parameters[index];
+    let mut high = low;
+    loop {
+        // Half a decade per step.
+        high = (high + 0.5 * std::f64::consts::LN_10).min(ceiling);
+        if chi_square_at(high)? > threshold {
+            break;
+        }
+        if high >= ceiling {
+            return None;
+        }
+        low = high;
+    }
+    while high - low > 1e-3 {
+        let middle = 0.5 * (low + high);
+        if chi_square_at(middle)? > threshold {
+            high = middle;
+        } else {
+            low = middle;
+        }
+    }
+    Some(high.exp())
 }
 
 /// The result table: every input point with the fitted model's terms.

@@ -440,6 +440,13 @@ impl Analysis for MobilityScatteringAnalysis {
             fit.ionized_impurity_density_m3.value,
             fit.ionized_impurity_density_m3.uncertainty,
         );
+        if let Some(limit) = fit.ionized_parameter_upper_limit_m3 {
+            let name = match fit.ionized_density_model {
+                IonizedDensityModel::Constant => "ionized_impurity_density_upper_limit_m3",
+                IonizedDensityModel::CarriersPlusCompensation => "compensating_density_upper_limit_m3",
+            };
+            summary.insert(name.into(), json!(limit));
+        }
         if let Some(estimate) = fit.compensating_density_m3 {
             insert_estimate(summary, "compensating_density_m3", estimate.value, estimate.uncertainty);
         }
@@ -491,6 +498,9 @@ impl Analysis for MobilityScatteringAnalysis {
             summary.insert("density_ratio_unc".into(), json!(comparison.ratio_unc));
             summary.insert("deviation_sigma".into(), json!(comparison.deviation_sigma));
             summary.insert("freeze_out_consistent".into(), json!(comparison.consistent));
+            if comparison.upper_limit_m3.is_some() {
+                summary.insert("freeze_out_comparison".into(), json!("upper_limit"));
+            }
             if !comparison.consistent {
                 warnings.push(format!(
                     "the scattering fit's {} ({:.3e} m^-3) disagrees with the freeze-out {} ({:.3e} m^-3) by {:.1} combined standard uncertainties",

@@ -62,6 +62,9 @@ fn scattering_densities(table: &DataFrame, sample: Option<&str>) -> Result<Optio
     // Only a comparison against the ionized density at the fitted temperatures needs the
     // scattering fit's own numbers; the others the purity summary recomputes from the
     // freeze-out densities, with their uncertainties.
+    // Written by the scattering fit when the mobilities only bound the density from above.
+    let upper_limit =
+        value("ionized_impurity_density_upper_limit_m3")?.or(value("compensating_density_upper_limit_m3")?);
     let comparison = match (value("freeze_out_reference_m3")?, value("density_ratio")?, consistent) {
         (Some(reference), Some(ratio), Some(consistent)) if basis == ReferenceBasis::IonizedAtFitTemperatures => {
             Some(DensityComparison {
@@ -76,6 +79,7 @@ fn scattering_densities(table: &DataFrame, sample: Option<&str>) -> Result<Optio
                 ratio_unc: value("density_ratio_unc")?,
                 deviation_sigma: value("deviation_sigma")?.unwrap_or(f64::NAN),
                 consistent,
+                upper_limit_m3: upper_limit,
             })
         }
         _ => None,
@@ -84,6 +88,7 @@ fn scattering_densities(table: &DataFrame, sample: Option<&str>) -> Result<Optio
         ionized_impurity_density_m3: ionized,
         compensating_density_m3: estimate(value("compensating_density_m3")?, value("compensating_density_m3_unc")?),
         comparison,
+        upper_limit_m3: upper_limit,
     }))
 }
 

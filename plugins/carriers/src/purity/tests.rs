@@ -236,6 +236,7 @@ fn both_fits_side_by_side() {
         },
         compensating_density_m3: None,
         comparison: None,
+        upper_limit_m3: None,
     };
     let input = PurityInput {
         sample: "s".into(),
@@ -324,6 +325,7 @@ fn only_the_scattering_fit() {
             },
             compensating_density_m3: None,
             comparison: None,
+            upper_limit_m3: None,
         }),
     };
     let summary = summarize_purity(&input, &ConsistencyTolerance::default()).unwrap();

@@ -1,0 +1,1 @@
+//! Validation against published measured and empirical data.

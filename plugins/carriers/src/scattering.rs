@@ -73,22 +73,55 @@
 //! how many runs reached it is reported, and a warning names another minimum that fits
 //! almost as well (chi-square within 4 noise variances of the best): then the data allow
 //! more than one decomposition. Other warnings: a parameter that ended on a bound, a
-//! weighted fit with chi^2/nu above 4, and ionized-impurity scattering below 5 % of the
-//! scattering rate at every fitted point (N_I then rests on almost nothing).
+//! weighted fit the model does not describe within the errors (below), and
+//! ionized-impurity scattering below 5 % of the scattering rate at every fitted point (N_I
+//! then rests on almost nothing).
 //!
 //! Points outside [`ScatteringSettings::temperature_min_k`, `temperature_max_k`] are not
 //! fitted, but are evaluated with the fitted model for the table (flagged
 //! `in_fit_range = false`). Every temperature must be valid; the other checks apply to the
 //! points in the range only, so that the range is also how a bad point is left out.
 //!
-//! Weights: with mobility uncertainties the residual of a point is ln(mu_fit/mu) / (u/mu)
-//! and the covariance is (J^T J)^-1 scaled by max(1, chi^2/nu): an uncertainty is never
-//! smaller than the one the given errors imply, and grows when the model misses the data by
-//! more than they allow (the scale factor of the Particle Data Group's averages, recalled
-//! from memory). Without uncertainties the residuals are unweighted and the covariance is
-//! scaled by chi^2/nu (the scatter of the residuals is the noise estimate). Uncertainties
-//! of mu_300, N_I, N_N and mu_C are first order from those of their logarithms
-//! (u(x) = x u(ln x)).
+//! # The uncertainty budget
+//!
+//! - **Weights** (Type A). With mobility uncertainties the residual of a point is
+//!   ln(mu_fit/mu) / s with s the point's relative uncertainty: its statistical part only
+//!   (`hall_mobility_m2_per_Vs_unc_stat` of `hall.reduce`), raised to
+//!   [`ScatteringSettings::relative_uncertainty_floor`] (default 0.1 %, so that no point can
+//!   pin the fit; `floored_points` counts them), and widened by the temperature's
+//!   uncertainty through the model's slope, s^2 = s_mu^2 + (d ln mu / dT)^2 u_T^2 (effective
+//!   variance: J. A. Clutton-Brock, Technometrics 9, 261, 1967; J. Orear, Am. J. Phys. 50,
+//!   912, 1982). The slope is the fitted model's at the point with its measured carrier
+//!   density held, so the fit is repeated from its own solution with updated variances until
+//!   the parameters settle (at most [`EFFECTIVE_VARIANCE_PASSES`] times). Where
+//!   ionized-impurity scattering rules, d ln mu / dT is steep and the temperature dominates
+//!   the weight; on the lattice side it adds little.
+//! - **Chi-square.** The summary carries chi^2/nu, its p-value and the Birge ratio
+//!   R_B = sqrt(chi^2/nu) (R. T. Birge, Phys. Rev. 40, 207, 1932). The covariance
+//!   (J^T J)^-1 is multiplied by R_B^2 when it exceeds 1 and never shrunk, as the Particle
+//!   Data Group does for inconsistent data; when the p-value is below 1e-3 a warning names
+//!   the worst points and the parameters that govern the weights. Without uncertainties the
+//!   residuals are unweighted and the covariance is scaled by chi^2/nu (the scatter of the
+//!   residuals is the noise estimate); p-value and Birge ratio are then not defined.
+//! - **Calibrations** (Type B). An error common to the whole series is applied once, after
+//!   the fit, never as per-point noise: the relative uncertainty of the mobility scale (a
+//!   field calibration; `_unc_sys` of the mobility column) and of the carrier-density scale
+//!   (thickness, field, current, voltage; `density_m3_unc_sys`, which matters only where
+//!   the model reads the densities: screening by the measured carriers, the
+//!   carriers-plus-compensation model). Each moves the fitted parameters by the fit's linear
+//!   response dp = -(J^T J)^-1 J^T dr to the change dr it makes in the weighted residuals,
+//!   the first-order sensitivity of the GUM (JCGM 100:2008, 5.1.3): a 1 % mobility scale
+//!   moves mu_300 by 1 %, N_I by about 1 % the other way and alpha hardly at all. Each
+//!   reported quantity X has `X_unc_stat` (from the scaled covariance), `X_unc_sys` (null
+//!   when no calibration was stated; `calibrations_not_stated` lists them) and `X_unc`,
+//!   their quadrature sum. Uncertainties of mu_300, N_I, N_N and mu_C are first order from
+//!   those of their logarithms (u(x) = x u(ln x)).
+//! - **An undetermined density.** When the ionized-impurity parameter ends on its lower
+//!   bound (or has no uncertainty), the data do not determine it. The fit then reports a
+//!   profile upper limit: the parameter is held at increasing values with the others refitted
+//!   until chi-square grows by k^2 noise variances (k = `consistency_sigma_multiple`), and a
+//!   comparison asks only whether the reference exceeds it
+//!   ([`crate::purity::compare_with_upper_limit`]).
 //!
 //! # Comparison with a freeze-out fit
 //!

@@ -93,7 +93,7 @@
 //!   variance: J. A. Clutton-Brock, Technometrics 9, 261, 1967; J. Orear, Am. J. Phys. 50,
 //!   912, 1982). The slope is the fitted model's at the point with its measured carrier
 //!   density held, so the fit is repeated from its own solution with updated variances until
-//!   the parameters settle (at most [`EFFECTIVE_VARIANCE_PASSES`] times). Where
+//!   the parameters settle (at most six times). Where
 //!   ionized-impurity scattering rules, d ln mu / dT is steep and the temperature dominates
 //!   the weight; on the lattice side it adds little.
 //! - **Chi-square.** The summary carries chi^2/nu, its p-value and the Birge ratio

@@ -72,6 +72,21 @@ pub(crate) fn freeze_out_role(required: bool) -> InputRole {
             column("dopant_compensating_covariance_m6", F64, None, "their covariance").optional(),
             column("carrier_type", Str, None, "n or p").optional(),
             column("sample", Str, None, "sample name").optional(),
+            column(
+                "material",
+                Str,
+                None,
+                "the material preset of the fit (names candidate dopants)",
+            )
+            .optional(),
+            column(
+                "ionization_energy_eV",
+                F64,
+                Some("eV"),
+                "the majority level's ionization energy",
+            )
+            .optional(),
+            column("ionization_energy_eV_unc", F64, Some("eV"), "its uncertainty").optional(),
         ],
     }
 }
@@ -516,5 +531,149 @@ impl Analysis for MobilityScatteringAnalysis {
         output.warnings = warnings;
         host.progress(1.0, "done");
         Ok(output)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::scattering::{evaluate_model, ScatteringParameters};
+    use mobilis_core::noise::Rng;
+    use mobilis_core::sdk::run_typed;
+
+    /// A hall table of n-Si mobilities from 30 to 400 K (Brooks-Herring on 1e16 cm^-3, a
+    /// lattice law of 1448 (T/300)^-2.33 cm^2/Vs; invented test input), with 0.5 %
+    /// statistical noise, a 1 % field calibration and 0.1 K of temperature uncertainty, as
+    /// hall.reduce writes them.
+    fn hall_table() -> DataFrame {
+        let settings = ScatteringSettings {
+            screening: ScreeningDensity::MeasuredCarriers,
+            ..ScatteringSettings::new(medium_for(&Material::silicon(), CarrierType::N))
+        };
+        let truth = ScatteringParameters {
+            lattice_mobility_300k_m2_per_vs: 0.1448,
+            lattice_exponent: 2.33,
+            ionized_density_m3: 1e22,
+            neutral_density_m3: None,
+            constant_mobility_m2_per_vs: None,
+        };
+        let mut rng = Rng::seeded(9);
+        let temperatures: Vec<f64> = (0..38).map(|i| 30.0 + 10.0 * i as f64).collect();
+        let mobilities: Vec<f64> = temperatures
+            .iter()
+            .map(|&t| {
+                evaluate_model(&settings, &truth, t, Some(1e22)).unwrap().total * (1.0 + 0.005 * rng.standard_normal())
+            })
+            .collect();
+        let column = |name: &str, values: Vec<f64>| Column::new(name.into(), values);
+        DataFrame::new(
+            temperatures.len(),
+            vec![
+                column("temperature_K", temperatures.clone()),
+                column("temperature_K_unc", vec![0.1; temperatures.len()]),
+                column("hall_mobility_m2_per_Vs", mobilities.clone()),
+                column(
+                    "hall_mobility_m2_per_Vs_unc_stat",
+                    mobilities.iter().map(|mu| 0.005 * mu).collect(),
+                ),
+                column(
+                    "hall_mobility_m2_per_Vs_unc_sys",
+                    mobilities.iter().map(|mu| 0.01 * mu).collect(),
+                ),
+                column(
+                    "hall_mobility_m2_per_Vs_unc",
+                    mobilities.iter().map(|mu| 0.005f64.hypot(0.01) * mu).collect(),
+                ),
+                column("density_m3", vec![1e22; temperatures.len()]),
+                column("density_m3_unc_sys", vec![0.03e22; temperatures.len()]),
+            ],
+        )
+        .unwrap()
+    }
+
+    fn run(params: &str, hall: DataFrame) -> AnalysisOutput {
+        let inputs = Inputs::from_tables([("hall".to_string(), hall)]);
+        run_typed::<MobilityScatteringAnalysis>(params, &inputs, &Host::detached()).unwrap()
+    }
+
+    #[test]
+    fn the_summary_carries_the_budget_and_the_fit_quality() {
+        let output = run("{}", hall_table());
+        let summary = &output.summary;
+        for name in [
+            "lattice_exponent",
+            "lattice_mobility_300K_m2_per_Vs",
+            "ionized_impurity_density_m3",
+        ] {
+            let total = summary[&format!("{name}_unc")].as_f64().unwrap();
+            let statistical = summary[&format!("{name}_unc_stat")].as_f64().unwrap();
+            let systematic = summary[&format!("{name}_unc_sys")].as_f64().unwrap();
+            assert!((total - statistical.hypot(systematic)).abs() <= 1e-12 * total, "{name}");
+        }
+        // The 1 % field calibration is 1 % of mu_300 (the fit's linear response).
+        let mu_300 = summary["lattice_mobility_300K_m2_per_Vs"].as_f64().unwrap();
+        let systematic = summary["lattice_mobility_300K_m2_per_Vs_unc_sys"].as_f64().unwrap();
+        assert!((systematic / mu_300 - 0.01).abs() < 1e-3, "{systematic}");
+        assert_eq!(summary["weights_column"], json!("hall_mobility_m2_per_Vs_unc_stat"));
+        assert_eq!(summary["temperature_uncertainty_used"], json!(true));
+        assert_eq!(summary["calibrations_not_stated"], json!([]));
+        assert_eq!(summary["floored_points"], json!(0));
+        assert_eq!(summary["relative_uncertainty_floor"], json!(RELATIVE_UNCERTAINTY_FLOOR));
+        let reduced = summary["reduced_chi_square"].as_f64().unwrap();
+        assert!(reduced > 0.5 && reduced < 1.6, "{reduced}");
+        assert!(summary["chi_square_p_value"].as_f64().unwrap() > 1e-3);
+        assert_eq!(summary["birge_ratio"].as_f64().unwrap(), reduced.sqrt().max(1.0));
+        assert!(output.warnings.is_empty(), "{:?}", output.warnings);
+        let normalized = output
+            .table
+            .column("normalized_residual")
+            .unwrap()
+            .f64()
+            .unwrap()
+            .clone();
+        assert!(normalized.iter().all(|value| value.is_some_and(f64::is_finite)));
+    }
+
+    #[test]
+    fn an_old_table_is_taken_as_statistical_with_a_warning() {
+        let hall = hall_table()
+            .drop("hall_mobility_m2_per_Vs_unc_stat")
+            .unwrap()
+            .drop("hall_mobility_m2_per_Vs_unc_sys")
+            .unwrap()
+            .drop("density_m3_unc_sys")
+            .unwrap();
+        let output = run(r#"{"relative_uncertainty_floor": 0.02}"#, hall);
+        assert_eq!(output.summary["weights_column"], json!("hall_mobility_m2_per_Vs_unc"));
+        assert!(output.summary["lattice_exponent_unc_sys"].is_null());
+        assert_eq!(
+            output.summary["calibrations_not_stated"],
+            json!([
+                "mobility scale (field calibration)",
+                "carrier-density scale (thickness, field, current and voltage calibrations)"
+            ])
+        );
+        assert!(output
+            .warnings
+            .iter()
+            .any(|warning| warning.contains("no calibration budget was given")));
+        // A floor above every point's 1.1 % raises them all, and says so.
+        assert_eq!(output.summary["floored_points"], json!(38));
+        assert!(output
+            .warnings
+            .iter()
+            .any(|warning| warning.contains("relative_uncertainty_floor")));
+    }
+
+    #[test]
+    fn a_floor_out_of_range_is_refused_by_name() {
+        let inputs = Inputs::from_tables([("hall".to_string(), hall_table())]);
+        let error = run_typed::<MobilityScatteringAnalysis>(
+            r#"{"relative_uncertainty_floor": 1.0}"#,
+            &inputs,
+            &Host::detached(),
+        )
+        .unwrap_err();
+        assert!(error.to_string().contains("relative_uncertainty_floor"), "{error}");
     }
 }

@@ -438,6 +438,30 @@ mod tests {
         ));
     }
 
+    // Arora, Hauser and Roulston, IEEE TED 29, 292 (1982) (parameters from memory): electrons
+    // at 300 K and 1e17 cm^-3, 88 + 1252.2 / (1 + (1e17 / 1.26e17)^0.88) = 777.3 cm^2/Vs, and
+    // holes at 400 K and 1e16 cm^-3, 54.3 (4/3)^-0.57 + 1.36e8 400^-2.23 / (1 + (1e16 /
+    // (2.35e17 (4/3)^2.4))^(0.88 (4/3)^-0.146)) = 249.5 cm^2/Vs; computed from the formula.
+    #[test]
+    fn arora_matches_values_computed_from_the_formula() {
+        let electrons = AroraParameters::SILICON_ELECTRONS.mobility_m2_per_vs(1e17 * CM3, 300.0) / CM2;
+        assert!((electrons - 777.3).abs() < 0.05, "{electrons}");
+        let holes = AroraParameters::SILICON_HOLES.mobility_m2_per_vs(1e16 * CM3, 400.0) / CM2;
+        let reduced: f64 = 400.0 / 300.0;
+        let expected = 54.3 * reduced.powf(-0.57)
+            + 1.36e8 * 400f64.powf(-2.23)
+                / (1.0 + (1e16 / (2.35e17 * reduced.powf(2.4))).powf(0.88 * reduced.powf(-0.146)));
+        assert!((holes - expected).abs() < 1e-9 * expected, "{holes} against {expected}");
+        // Heavy doping leaves the minimum term: 88 cm^2/Vs at 300 K.
+        let limit = AroraParameters::SILICON_ELECTRONS.mobility_m2_per_vs(1e24 * CM3, 300.0) / CM2;
+        assert!((limit - 88.0).abs() < 0.5, "{limit}");
+        // Negative doping counts as none.
+        assert_eq!(
+            AroraParameters::SILICON_ELECTRONS.mobility_m2_per_vs(-1.0, 300.0),
+            AroraParameters::SILICON_ELECTRONS.mobility_m2_per_vs(0.0, 300.0)
+        );
+    }
+
     // Gamma at integers is a factorial, Gamma(1/2) = sqrt(pi) (standard identities).
     #[test]
     fn ln_gamma_matches_exact_values() {

@@ -1310,6 +1310,31 @@ pub fn fit_mobility_scattering(
             100.0 * largest_ionized_share
         ));
     }
+    // Brooks-Herring assumes a screening length well above the carriers' wavelength, b >> 1
+    // (Chattopadhyay and Queisser 1981). Below b = 1 its mobility falls with temperature like
+    // a second lattice term, which a fit can use to mimic the phonons with an absurd N_I.
+    if settings.formula == IonizedImpurityFormula::BrooksHerring {
+        let weakest = rows
+            .iter()
+            .filter(|row| row.in_fit_range)
+            .filter(|row| matches!((row.mobility_fit, row.mobility_ionized), (Some(fit), Some(ionized)) if fit / ionized > 0.05))
+            .filter_map(|row| {
+                let screening = row.screening_density_m3?;
+                let b = settings
+                    .medium
+                    .brooks_herring_screening_parameter(screening, row.temperature_k);
+                Some((b, row.temperature_k))
+            })
+            .min_by(|a, b| a.0.total_cmp(&b.0));
+        if let Some((b, temperature_k)) = weakest.filter(|(b, _)| *b < 1.0) {
+            warnings.push(format!(
+                "the Brooks-Herring screening parameter b falls to {b:.3} at {temperature_k} K, where ionized-impurity \
+                 scattering matters; the formula assumes b >> 1, so the fitted density is outside its validity. Give \
+                 the measured carrier densities (density_m3) for the screening, narrow the temperature range, or use \
+                 formula conwell_weisskopf"
+            ));
+        }
+    }
 
     let (lattice_mobility_300k_m2_per_vs, lattice_split) = log_estimate(
         fitted.lattice_mobility_300k_m2_per_vs,

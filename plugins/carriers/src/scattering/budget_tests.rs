@@ -413,3 +413,59 @@ fn an_undetermined_density_is_compared_as_an_upper_limit() {
     assert!(!comparison.consistent, "{comparison:?}");
     assert!(comparison.deviation_sigma > 2.0);
 }
+
+// Without carrier densities the screening is N_I itself, and on data that hardly show the
+// impurities (1e13 cm^-3 from 250 to 500 K) the fit can find a second minimum at an absurd
+// N_I where b << 1 and the Brooks-Herring term falls with temperature like a lattice term.
+// The fit names the formula's limit instead of reporting that density silently.
+#[test]
+fn brooks_herring_outside_its_validity_is_named() {
+    let settings = settings();
+    let faint = ScatteringParameters {
+        ionized_density_m3: 1e13 * CM3,
+        ..truth()
+    };
+    let mut rng = Rng::seeded(41);
+    let points: Vec<MobilityPoint> = (0..=25)
+        .map(|i| {
+            let temperature_k = 250.0 + 10.0 * i as f64;
+            let mobility = evaluate_model(&settings, &faint, temperature_k, None).unwrap().total
+                * (1.0 + 0.01 * rng.standard_normal());
+            MobilityPoint {
+                temperature_k,
+                mobility_m2_per_vs: mobility,
+                mobility_unc_m2_per_vs: Some(0.01 * mobility),
+                temperature_unc_k: None,
+                carrier_density_m3: None,
+            }
+        })
+        .collect();
+    let fit = fit_mobility_scattering(&points, &settings, None).unwrap();
+    // With this seed the fit lands there (N_I near 7e20 cm^-3), and says so.
+    assert!(
+        fit.ionized_impurity_density_m3.value > 1e18 * CM3,
+        "{:?}",
+        fit.ionized_impurity_density_m3
+    );
+    assert!(
+        fit.warnings
+            .iter()
+            .any(|warning| warning.contains("screening parameter b falls to") && warning.contains("density_m3")),
+        "{:?}",
+        fit.warnings
+    );
+    // Screening by the measured carriers keeps the fit on the physical branch.
+    let screened: Vec<MobilityPoint> = points
+        .iter()
+        .map(|point| MobilityPoint {
+            carrier_density_m3: Some(1e13 * CM3),
+            ..*point
+        })
+        .collect();
+    let physical = fit_mobility_scattering(&screened, &ScatteringSettings::new(silicon_electrons()), None).unwrap();
+    assert!(!physical
+        .warnings
+        .iter()
+        .any(|warning| warning.contains("screening parameter b")));
+    assert!(physical.ionized_impurity_density_m3.value < 1e16 * CM3);
+}

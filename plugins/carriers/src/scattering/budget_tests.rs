@@ -469,3 +469,63 @@ fn brooks_herring_outside_its_validity_is_named() {
         .any(|warning| warning.contains("screening parameter b")));
     assert!(physical.ionized_impurity_density_m3.value < 1e16 * CM3);
 }
+
+// Coverage through freeze-out (JCGM 100:2008; Birge 1932): the invented compensated wafer of
+// the demo scenario (N_D 3e15, N_A 2e14 cm^-3, 45 meV donors; core's forward model of the
+// statistics and the transport), measured from 20 to 400 K with a 3 % thickness error and a
+// 1 % field calibration drawn once per series and stated, 1 % mobility and 0.5 % density
+// noise, and the stage 0.05 K off each reading, stated. The carriers-plus-compensation fit
+// with Brooks' screening from the (equally mis-scaled) freeze-out densities covers N_A, mu_300
+// and alpha honestly. 100 series take about 10 s in a debug build.
+#[test]
+fn compensation_through_freeze_out_is_covered_with_calibration_errors() {
+    use mobilis_core::forward::statistics::{BandModel, Dopants};
+    use mobilis_core::forward::transport::{n_type_transport, MobilityModel};
+    let dopants = Dopants::new(3e15 * CM3, 2e14 * CM3, 0.045, 0.045);
+    let bands = BandModel::silicon();
+    let model = MobilityModel::silicon_electrons();
+    let mut rng = Rng::seeded(1202);
+    let (mut compensating, mut lattice, mut exponent) = (Coverage::default(), Coverage::default(), Coverage::default());
+    for _ in 0..100 {
+        let thickness_scale = 1.0 + 0.03 * rng.standard_normal();
+        let field_scale = 1.0 + 0.01 * rng.standard_normal();
+        let points: Vec<MobilityPoint> = (0..=38)
+            .map(|i| {
+                let reading_k = 20.0 + 10.0 * i as f64;
+                let true_k = reading_k + 0.05 * rng.standard_normal();
+                let layer = n_type_transport(&dopants, &bands, 500e-6, true_k, &model).unwrap();
+                let mobility = field_scale * layer.mobility_m2_per_vs * (1.0 + 0.01 * rng.standard_normal());
+                let density =
+                    thickness_scale * layer.equilibrium.electron_density_m3 * (1.0 + 0.005 * rng.standard_normal());
+                MobilityPoint {
+                    temperature_k: reading_k,
+                    mobility_m2_per_vs: mobility,
+                    mobility_unc_m2_per_vs: Some(0.01 * mobility),
+                    temperature_unc_k: Some(0.05),
+                    carrier_density_m3: Some(density),
+                }
+            })
+            .collect();
+        let settings = ScatteringSettings {
+            ionized_density: IonizedDensityModel::CarriersPlusCompensation,
+            screening: ScreeningDensity::Compensated {
+                dopant_density_m3: thickness_scale * 3e15 * CM3,
+                compensating_density_m3: thickness_scale * 2e14 * CM3,
+            },
+            mobility_scale_relative_unc: Some(0.01),
+            density_scale_relative_unc: Some(0.03),
+            ..ScatteringSettings::new(silicon_electrons())
+        };
+        let fit = fit_mobility_scattering(&points, &settings, None).unwrap();
+        let n_a = fit.compensating_density_m3.unwrap();
+        compensating.record(n_a.value, n_a.uncertainty.unwrap_or(f64::NAN), 2e14 * CM3);
+        let mu = fit.lattice_mobility_300k_m2_per_vs;
+        lattice.record(mu.value, mu.uncertainty.unwrap_or(f64::NAN), model.lattice_mobility_300k_m2_per_vs);
+        let alpha = fit.lattice_exponent;
+        exponent.record(alpha.value, alpha.uncertainty.unwrap_or(f64::NAN), model.lattice_exponent);
+    }
+    for (name, coverage) in [("N_A", &compensating), ("mu_300", &lattice), ("alpha", &exponent)] {
+        println!("coverage {name}: {}", coverage.describe());
+        assert!(coverage.is_honest(), "{name}: {}", coverage.describe());
+    }
+}

@@ -1101,6 +1101,16 @@ pub fn fit_mobility_scattering(
             }
         }
     }
+    // The passes refit from one start; the last weights get every start again (and the
+    // passes' solution), so that other minima and the start counts refer to the final fit.
+    let mut start_count = starts.len();
+    if effective_variance_passes > 0 {
+        let mut final_starts = starts.clone();
+        final_starts.push(multi.best.parameters.clone());
+        start_count = final_starts.len();
+        multi = solve(&model, &fit_points, &bounds, &final_starts, weighted)
+            .map_err(|error| describe_fit_error(error, &model))?;
+    }
     let best = multi.best.clone();
     let quality = FitQuality::assess(best.chi_square, best.degrees_of_freedom);
 
@@ -1420,7 +1430,7 @@ pub fn fit_mobility_scattering(
         at_bound: best.at_bound.clone(),
         goodness,
         points_used: fit_points.len(),
-        starts: starts.len(),
+        starts: start_count,
         converged_starts: multi.converged,
         same_minimum_starts: multi.same_minimum,
         rows,

@@ -520,9 +520,17 @@ fn compensation_through_freeze_out_is_covered_with_calibration_errors() {
         let n_a = fit.compensating_density_m3.unwrap();
         compensating.record(n_a.value, n_a.uncertainty.unwrap_or(f64::NAN), 2e14 * CM3);
         let mu = fit.lattice_mobility_300k_m2_per_vs;
-        lattice.record(mu.value, mu.uncertainty.unwrap_or(f64::NAN), model.lattice_mobility_300k_m2_per_vs);
+        lattice.record(
+            mu.value,
+            mu.uncertainty.unwrap_or(f64::NAN),
+            model.lattice_mobility_300k_m2_per_vs,
+        );
         let alpha = fit.lattice_exponent;
-        exponent.record(alpha.value, alpha.uncertainty.unwrap_or(f64::NAN), model.lattice_exponent);
+        exponent.record(
+            alpha.value,
+            alpha.uncertainty.unwrap_or(f64::NAN),
+            model.lattice_exponent,
+        );
     }
     for (name, coverage) in [("N_A", &compensating), ("mu_300", &lattice), ("alpha", &exponent)] {
         println!("coverage {name}: {}", coverage.describe());

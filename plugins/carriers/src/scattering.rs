@@ -1083,7 +1083,7 @@ pub fn fit_mobility_scattering(
                 let slope = model.log_mobility_temperature_slope(&previous, point);
                 point.ln_sigma = effective_uncertainty(point.ln_sigma_data, slope, point.temperature_unc_k);
             }
-            multi = solve(&model, &fit_points, &bounds, &[previous.clone()], weighted)
+            multi = solve(&model, &fit_points, &bounds, std::slice::from_ref(&previous), weighted)
                 .map_err(|error| describe_fit_error(error, &model))?;
             effective_variance_passes += 1;
             let settled = multi

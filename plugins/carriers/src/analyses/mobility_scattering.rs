@@ -125,6 +125,58 @@ pub(crate) fn freeze_out_densities(
     Ok((densities, carrier_type))
 }
 
+/// The statistical and systematic uncertainties of the chosen mobility column, per row
+/// (absolute), and the column the weights come from. The statistical part is the column's
+/// `_unc_stat`; for the drift mobility without one, the Hall mobility's relative `_unc_stat`
+/// (hall.reduce divides by one Hall factor per sample, which leaves relative errors alone);
+/// failing both, the column's `_unc` taken as statistical, with a warning that no calibration
+/// budget was given. The systematic part likewise from `_unc_sys`.
+#[allow(clippy::type_complexity)]
+fn mobility_budget(
+    hall: &DataFrame,
+    mobility_column: &str,
+    mobilities: &[Option<f64>],
+    warnings: &mut Vec<String>,
+) -> Result<(Vec<Option<f64>>, Vec<Option<f64>>, Option<String>), AnalysisError> {
+    const HALL: &str = "hall_mobility_m2_per_Vs";
+    let present = |name: &str| hall.column(name).is_ok();
+    // `part` of the Hall mobility carried over to the chosen column as a relative error.
+    let from_hall = |part: &str| -> Result<Vec<Option<f64>>, AnalysisError> {
+        let hall_values = optional_floats(hall, HALL)?;
+        let hall_part = optional_floats(hall, &format!("{HALL}_{part}"))?;
+        Ok(mobilities
+            .iter()
+            .zip(hall_values.iter().zip(&hall_part))
+            .map(|(value, (hall_value, unc))| Some(value.as_ref()?.abs() * unc.as_ref()? / hall_value.as_ref()?.abs()))
+            .collect())
+    };
+    let statistical = format!("{mobility_column}_unc_stat");
+    let systematic = format!("{mobility_column}_unc_sys");
+    let total = format!("{mobility_column}_unc");
+    let carried_over = mobility_column != HALL;
+    let (weights, source) = if present(&statistical) {
+        (optional_floats(hall, &statistical)?, Some(statistical.clone()))
+    } else if carried_over && present(&format!("{HALL}_unc_stat")) {
+        (from_hall("unc_stat")?, Some(format!("{HALL}_unc_stat")))
+    } else if present(&total) {
+        warnings.push(format!(
+            "the hall table has {total} but no {statistical}: it was taken as statistical, and no calibration \
+             budget was given (give the hall.reduce output, or the _unc_stat and _unc_sys columns)"
+        ));
+        (optional_floats(hall, &total)?, Some(total.clone()))
+    } else {
+        (vec![None; hall.height()], None)
+    };
+    let calibration = if present(&systematic) {
+        optional_floats(hall, &systematic)?
+    } else if carried_over && present(&format!("{HALL}_unc_sys")) {
+        from_hall("unc_sys")?
+    } else {
+        vec![None; hall.height()]
+    };
+    Ok((weights, calibration, source))
+}
+
 /// The single sample named in a table, if it names one.
 pub(crate) fn single_sample(table: &DataFrame) -> Result<Option<String>, AnalysisError> {
     let mut names: Vec<String> = optional_strings(table, "sample")?.into_iter().flatten().collect();
@@ -223,23 +275,8 @@ impl Analysis for MobilityScatteringAnalysis {
         let mobilities = sdk::float_column(hall, mobility_column)?;
         // The fit weights by the statistical part; a table without one (not from hall.reduce,
         // or from an older version) has its total taken as statistical.
-        let statistical_column = format!("{mobility_column}_unc_stat");
-        let total_column = format!("{mobility_column}_unc");
-        let (uncertainties, weight_column) = if hall.column(&statistical_column).is_ok() {
-            (
-                optional_floats(hall, &statistical_column)?,
-                Some(statistical_column.clone()),
-            )
-        } else if hall.column(&total_column).is_ok() {
-            warnings.push(format!(
-                "the hall table has {total_column} but no {statistical_column}: it was taken as statistical, and no \
-                 calibration budget was given (give the hall.reduce output, or the _unc_stat and _unc_sys columns)"
-            ));
-            (optional_floats(hall, &total_column)?, Some(total_column.clone()))
-        } else {
-            (vec![None; hall.height()], None)
-        };
-        let mobility_systematic = optional_floats(hall, &format!("{mobility_column}_unc_sys"))?;
+        let (uncertainties, mobility_systematic, weight_column) =
+            mobility_budget(hall, mobility_column, &mobilities, &mut warnings)?;
         let temperature_uncertainties = optional_floats(hall, "temperature_K_unc")?;
         let densities = optional_floats(hall, "density_m3")?;
         let density_systematic = optional_floats(hall, "density_m3_unc_sys")?;
@@ -663,6 +700,45 @@ mod tests {
             .warnings
             .iter()
             .any(|warning| warning.contains("relative_uncertainty_floor")));
+    }
+
+    // The drift mobility of hall.reduce is the Hall mobility over one Hall factor per sample:
+    // it takes the Hall mobility's relative budget when it has none of its own.
+    #[test]
+    fn the_drift_mobility_borrows_the_hall_budget() {
+        let hall = hall_table();
+        let drift: Vec<f64> = hall
+            .column("hall_mobility_m2_per_Vs")
+            .unwrap()
+            .f64()
+            .unwrap()
+            .into_no_null_iter()
+            .map(|mu| mu / 1.18)
+            .collect();
+        let mut with_drift = hall.clone();
+        with_drift
+            .with_column(Column::new("drift_mobility_m2_per_Vs".into(), drift))
+            .unwrap();
+        let drift_output = run(r#"{"mobility_column": "drift_mobility_m2_per_Vs"}"#, with_drift);
+        let hall_output = run("{}", hall);
+        assert_eq!(
+            drift_output.summary["weights_column"],
+            json!("hall_mobility_m2_per_Vs_unc_stat")
+        );
+        assert!(drift_output.warnings.is_empty(), "{:?}", drift_output.warnings);
+        // Same relative errors: the same exponent and uncertainties; mu_300 1.18 times lower.
+        for key in ["lattice_exponent", "lattice_exponent_unc", "lattice_exponent_unc_sys"] {
+            let (a, b) = (
+                drift_output.summary[key].as_f64().unwrap(),
+                hall_output.summary[key].as_f64().unwrap(),
+            );
+            assert!((a - b).abs() <= 1e-6 * b.abs(), "{key}: {a} against {b}");
+        }
+        let ratio = hall_output.summary["lattice_mobility_300K_m2_per_Vs"].as_f64().unwrap()
+            / drift_output.summary["lattice_mobility_300K_m2_per_Vs"]
+                .as_f64()
+                .unwrap();
+        assert!((ratio - 1.18).abs() < 1e-5, "{ratio}");
     }
 
     #[test]

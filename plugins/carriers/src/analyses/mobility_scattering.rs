@@ -216,7 +216,7 @@ impl Analysis for MobilityScatteringAnalysis {
         AnalysisDeclaration {
             name: String::new(),
             summary: "Lattice exponent and ionized-impurity density from mobility against temperature (Matthiessen's rule), compared with the freeze-out count".into(),
-            description: "1/mu = 1/mu_L + 1/mu_I (+ 1/mu_N + 1/mu_C) with mu_L = mu_300 (T/300)^-alpha and Brooks-Herring or Conwell-Weisskopf ionized-impurity scattering, fitted in ln mu from several starts. Given the freeze-out summary (role freeze_out), Brooks-Herring screening uses the compensated screening density and the fitted N_I is compared with the freeze-out densities: two independent counts of the same impurities.".into(),
+            description: "1/mu = 1/mu_L + 1/mu_I (+ 1/mu_N + 1/mu_C) with mu_L = mu_300 (T/300)^-alpha and Brooks-Herring or Conwell-Weisskopf ionized-impurity scattering, fitted in ln mu from several starts. Points are weighted by the mobility's statistical uncertainty (_unc_stat, floored at relative_uncertainty_floor) widened by temperature_K_unc through the model's slope (effective variance); calibration errors common to the series (_unc_sys of the mobility and of density_m3) are applied once after the fit, as _unc_sys of each result; the covariance is scaled by the Birge ratio when chi-square says the model misses the data. Given the freeze-out summary (role freeze_out), Brooks-Herring screening uses the compensated screening density and the fitted N_I is compared with the freeze-out densities: two independent counts of the same impurities (an upper limit when the mobility cannot determine N_I).".into(),
             params: json!({"type": "object", "additionalProperties": false, "properties": properties}),
             inputs: vec![
                 hall_role(vec![
@@ -250,9 +250,10 @@ impl Analysis for MobilityScatteringAnalysis {
                 column("normalized_residual", F64, None, "the log residual over the uncertainty the fit weighted it by (floor and temperature included)"),
             ],
             summary_keys: vec![
-                column("lattice_exponent", F64, None, "alpha of mu_L ~ T^-alpha, with _unc"),
-                column("lattice_mobility_300K_m2_per_Vs", F64, Some("m2_per_Vs"), "mu_L at 300 K, with _unc"),
-                column("ionized_impurity_density_m3", F64, Some("m3"), "N_I, with _unc"),
+                column("lattice_exponent", F64, None, "alpha of mu_L ~ T^-alpha, with _unc, _unc_stat and _unc_sys"),
+                column("lattice_mobility_300K_m2_per_Vs", F64, Some("m2_per_Vs"), "mu_L at 300 K, with _unc, _unc_stat and _unc_sys"),
+                column("ionized_impurity_density_m3", F64, Some("m3"), "N_I, with _unc, _unc_stat and _unc_sys"),
+                column("ionized_impurity_density_upper_limit_m3", F64, Some("m3"), "when the mobility does not determine N_I: the largest it allows"),
                 column("freeze_out_consistent", Bool, None, "the scattering and freeze-out counts agree"),
                 column("reduced_chi_square", F64, None, "chi^2 / nu"),
                 column("chi_square_p_value", F64, None, "P(chi^2_nu >= chi^2) of a weighted fit"),

@@ -52,7 +52,7 @@
 //! multiple scattering; Chattopadhyay and Queisser, Rev. Mod. Phys. 53, 745, 1981), and the
 //! fit pays for it with more centres. With m = 0.7 in ln N every one of those samples
 //! agrees within 1.8 combined standard uncertainties; the former m = 0.3 (the spread between
-//! Brooks-Herring and Conwell-Weisskopf alone) called every good sample above 1e17 cm^-3
+//! Brooks-Herring and Conwell-Weisskopf alone) called every good sample from 1e17 cm^-3 up
 //! inconsistent. The price: two counts within a factor of about 4 (e^(2 m)) of each other
 //! agree. A count a tenth of the doping, or 20 times it, is still caught wherever the
 //! mobility determines N_I.

@@ -235,14 +235,15 @@ fn empirical_cases() -> Vec<(&'static str, CarrierType, AroraParameters, Option<
 // The consistency margin, measured. Brooks-Herring plus a power-law lattice term, fitted to
 // the empirical silicon mobility of Arora et al. (1982) from 250 to 500 K, returns N_I at
 // 1.3 to 1.4 times the doping at 3e16 cm^-3 (electrons; holes from 6e16), 2.1 to 2.2 at
-// 1e17 and 2.8 (electrons) to 3.4 (holes) at 1e18 cm^-3: the formula's known overestimate of the mobility at high doping (it leaves
-// out the dispersion of the screening and multiple scattering; Chattopadhyay and Queisser
-// 1981), which the fit pays for with more centres. Below about 1e16 cm^-3 (electrons) or
-// 2e16 cm^-3 (holes) the impurities are a few per cent of the scattering and the fit can only
-// give an upper limit, 1.4 to 55 times the doping; just above, N_I is fitted with a relative
-// uncertainty from 0.6 to 22 and any count agrees with it. The default model_relative_uncertainty, 0.7 in ln N (a factor of 2 at one
+// 1e17 and 2.8 (electrons) to 3.4 (holes) at 1e18 cm^-3: the formula's known overestimate
+// of the mobility at high doping (it leaves out the dispersion of the screening and multiple
+// scattering; Chattopadhyay and Queisser 1981), which the fit pays for with more centres.
+// Below about 1e16 cm^-3 (electrons) or 2e16 cm^-3 (holes) the impurities are a few per cent
+// of the scattering and the fit can only give an upper limit, 1.4 to 55 times the doping;
+// just above, N_I is fitted with a relative uncertainty from 0.6 to 22 and any count agrees
+// with it. The default model_relative_uncertainty, 0.7 in ln N (a factor of 2 at one
 // standard uncertainty), keeps every one of these within 2 combined standard uncertainties
-// (the largest deviation is 1.8); the former 0.3 called every sample above 1e17 cm^-3
+// (the largest deviation is 1.7); the former 0.3 called every sample from 1e17 cm^-3 up
 // inconsistent.
 #[test]
 fn no_good_silicon_sample_is_called_inconsistent_from_1e14_to_1e18() {

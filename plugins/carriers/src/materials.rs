@@ -430,9 +430,9 @@ pub struct DopantLevel {
 
 /// Shallow dopants in silicon with the ionization energies of Sze and Ng, Physics of
 /// Semiconductor Devices, 3rd ed. (Wiley, 2007), chapter 1 (all recalled from memory; the
-/// handbook's figure of measured levels is the source to check them against). Antimony
-/// appears there as 39 meV in some printings; 43 meV is the optical value (Ramdas and
-/// Rodriguez, Rep. Prog. Phys. 44, 1297, 1981, from memory), and thermal and optical
+/// handbook's figure of measured levels is the source to check them against). Antimony is
+/// given its optical value, 43 meV (Ramdas and Rodriguez, Rep. Prog. Phys. 44, 1297, 1981,
+/// from memory); a value near 39 meV is also quoted (from memory). Thermal and optical
 /// determinations of one dopant differ by a few meV in general ([`DOPANT_LEVEL_SPREAD_EV`]).
 pub const SILICON_DOPANT_LEVELS: [DopantLevel; 7] = [
     DopantLevel {

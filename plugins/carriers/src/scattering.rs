@@ -560,6 +560,9 @@ pub struct ScatteringRow {
     /// The residual in units of its uncertainty (ln space); equal to `log_residual` for an
     /// unweighted fit.
     pub normalized_residual: Option<f64>,
+    /// The uncertainty of ln mu the fit weighted this point by (floor and temperature
+    /// included; 1 for an unweighted fit).
+    pub ln_sigma: Option<f64>,
     /// d ln mu_fit / d ln N_I (d ln N_comp for the carriers-plus-compensation model): how
     /// strongly this point constrains the ionized density.
     pub ionized_sensitivity: Option<f64>,
@@ -1539,9 +1542,10 @@ fn ionized_reference(fit: &ScatteringFit, densities: &DopantDensities) -> (Estim
         let (Some(sensitivity), Some(carriers)) = (row.ionized_sensitivity, row.carrier_density_m3) else {
             continue;
         };
-        let ln_sigma = match (row.mobility_data_unc, fit.goodness.weighted) {
-            (Some(unc), true) => unc / row.mobility_data,
-            _ => 1.0,
+        let ln_sigma = if fit.goodness.weighted {
+            row.ln_sigma.unwrap_or(1.0)
+        } else {
+            1.0
         };
         let weight = (sensitivity / ln_sigma).powi(2);
         if !(weight.is_finite() && weight > 0.0) {
@@ -2026,6 +2030,7 @@ fn build_rows(
                 neutral_density_m3: terms.and_then(|terms| terms.neutral_density_m3),
                 log_residual,
                 normalized_residual,
+                ln_sigma,
                 ionized_sensitivity,
                 carrier_density_m3: point.carrier_density_m3,
             }

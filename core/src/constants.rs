@@ -25,7 +25,7 @@ mod tests {
         assert!((BOLTZMANN_EV_PER_K / 8.617_333_262e-5 - 1.0).abs() < 1e-9);
         let von_klitzing = PLANCK_J_S / (ELEMENTARY_CHARGE_C * ELEMENTARY_CHARGE_C);
         assert!((von_klitzing / 25_812.807_45 - 1.0).abs() < 1e-9);
-        // kT at 300 K = 25.851999 meV (check-values, computed from CODATA 2018).
+        // kT at 300 K = 25.851999 meV, computed from the CODATA 2018 k_B/e above.
         assert!((BOLTZMANN_EV_PER_K * 300.0 * 1e3 / 25.851_999 - 1.0).abs() < 1e-7);
     }
 }

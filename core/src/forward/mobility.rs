@@ -8,6 +8,11 @@
 //! - Matthiessen's rule, 1/mu = sum of 1/mu_i.
 //! - The empirical doping dependence of Masetti, Severi and Solmi, IEEE Trans. Electron
 //!   Devices 30, 764 (1983), with their Table I parameters for silicon at 300 K.
+//! - The empirical doping and temperature dependence of Arora, Hauser and Roulston, IEEE
+//!   Trans. Electron Devices 29, 292 (1982), for silicon electrons and holes (their fit to
+//!   measured drift mobilities from about 250 to 500 K and 1e13 to 1e20 cm^-3; the
+//!   parameters are recalled from memory of the paper and its textbook reproductions).
+//!   With Masetti's, it is what the scattering model is validated against.
 //! - The Hall scattering factor r_H of a relaxation time tau ~ E^s (Putley, The Hall Effect
 //!   and Related Phenomena, 1960), through a Lanczos log-gamma.
 //!
@@ -199,6 +204,64 @@ impl MasettiParameters {
     }
 }
 
+/// The doping and temperature dependence of Arora, Hauser and Roulston (1982):
+/// mu(N, T) = mu_min + mu_0 / (1 + (N / N_ref)^alpha), with T_n = T / 300 K and
+/// mu_min = A_min T_n^beta_min, mu_0 = A_0 T^beta_0 (T in kelvin, as published),
+/// N_ref = A_ref T_n^beta_ref, alpha = A_alpha T_n^beta_alpha. Stored in SI (m^2/(V s), m^-3).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct AroraParameters {
+    /// A_min, m^2/(V s).
+    pub mu_min_m2_per_vs: f64,
+    pub mu_min_exponent: f64,
+    /// A_0, m^2/(V s) K^-beta_0: the coefficient of T^beta_0 with T in kelvin.
+    pub mu_0_coefficient_m2_per_vs: f64,
+    pub mu_0_exponent: f64,
+    /// A_ref, m^-3.
+    pub reference_density_m3: f64,
+    pub reference_density_exponent: f64,
+    pub alpha: f64,
+    pub alpha_exponent: f64,
+}
+
+impl AroraParameters {
+    /// Electrons in silicon: 88 T_n^-0.57 + 7.4e8 T^-2.33 / (1 + (N / (1.26e17 T_n^2.4))^(0.88
+    /// T_n^-0.146)) cm^2/(V s) (Arora et al. 1982; from memory).
+    pub const SILICON_ELECTRONS: AroraParameters = AroraParameters {
+        mu_min_m2_per_vs: 88.0 * CM2_PER_VS,
+        mu_min_exponent: -0.57,
+        mu_0_coefficient_m2_per_vs: 7.4e8 * CM2_PER_VS,
+        mu_0_exponent: -2.33,
+        reference_density_m3: 1.26e17 * PER_CM3,
+        reference_density_exponent: 2.4,
+        alpha: 0.88,
+        alpha_exponent: -0.146,
+    };
+
+    /// Holes in silicon: 54.3 T_n^-0.57 + 1.36e8 T^-2.23 / (1 + (N / (2.35e17 T_n^2.4))^(0.88
+    /// T_n^-0.146)) cm^2/(V s) (Arora et al. 1982; from memory).
+    pub const SILICON_HOLES: AroraParameters = AroraParameters {
+        mu_min_m2_per_vs: 54.3 * CM2_PER_VS,
+        mu_min_exponent: -0.57,
+        mu_0_coefficient_m2_per_vs: 1.36e8 * CM2_PER_VS,
+        mu_0_exponent: -2.23,
+        reference_density_m3: 2.35e17 * PER_CM3,
+        reference_density_exponent: 2.4,
+        alpha: 0.88,
+        alpha_exponent: -0.146,
+    };
+
+    /// Mobility at total dopant density `doping_m3` (0 or more) and `temperature_k`,
+    /// m^2/(V s).
+    pub fn mobility_m2_per_vs(&self, doping_m3: f64, temperature_k: f64) -> f64 {
+        let reduced = temperature_k / 300.0;
+        let minimum = self.mu_min_m2_per_vs * reduced.powf(self.mu_min_exponent);
+        let excess = self.mu_0_coefficient_m2_per_vs * temperature_k.powf(self.mu_0_exponent);
+        let reference = self.reference_density_m3 * reduced.powf(self.reference_density_exponent);
+        let alpha = self.alpha * reduced.powf(self.alpha_exponent);
+        minimum + excess / (1.0 + (doping_m3.max(0.0) / reference).powf(alpha))
+    }
+}
+
 /// ln Gamma(x) for real x > 0 (Lanczos approximation, g = 7, nine coefficients; relative
 /// error near 1e-15), with the reflection formula for 0 < x < 1/2. Returns ln|Gamma(x)|
 /// for negative non-integer x and +inf at the poles.
@@ -373,6 +436,30 @@ mod tests {
             470.5 * CM2,
             1e-15
         ));
+    }
+
+    // Arora, Hauser and Roulston, IEEE TED 29, 292 (1982) (parameters from memory): electrons
+    // at 300 K and 1e17 cm^-3, 88 + 1252.2 / (1 + (1e17 / 1.26e17)^0.88) = 777.3 cm^2/Vs, and
+    // holes at 400 K and 1e16 cm^-3, 54.3 (4/3)^-0.57 + 1.36e8 400^-2.23 / (1 + (1e16 /
+    // (2.35e17 (4/3)^2.4))^(0.88 (4/3)^-0.146)) = 249.5 cm^2/Vs; computed from the formula.
+    #[test]
+    fn arora_matches_values_computed_from_the_formula() {
+        let electrons = AroraParameters::SILICON_ELECTRONS.mobility_m2_per_vs(1e17 * CM3, 300.0) / CM2;
+        assert!((electrons - 777.3).abs() < 0.05, "{electrons}");
+        let holes = AroraParameters::SILICON_HOLES.mobility_m2_per_vs(1e16 * CM3, 400.0) / CM2;
+        let reduced: f64 = 400.0 / 300.0;
+        let expected = 54.3 * reduced.powf(-0.57)
+            + 1.36e8 * 400f64.powf(-2.23)
+                / (1.0 + (1e16 / (2.35e17 * reduced.powf(2.4))).powf(0.88 * reduced.powf(-0.146)));
+        assert!((holes - expected).abs() < 1e-9 * expected, "{holes} against {expected}");
+        // Heavy doping leaves the minimum term: 88 cm^2/Vs at 300 K.
+        let limit = AroraParameters::SILICON_ELECTRONS.mobility_m2_per_vs(1e24 * CM3, 300.0) / CM2;
+        assert!((limit - 88.0).abs() < 0.5, "{limit}");
+        // Negative doping counts as none.
+        assert_eq!(
+            AroraParameters::SILICON_ELECTRONS.mobility_m2_per_vs(-1.0, 300.0),
+            AroraParameters::SILICON_ELECTRONS.mobility_m2_per_vs(0.0, 300.0)
+        );
     }
 
     // Gamma at integers is a factorial, Gamma(1/2) = sqrt(pi) (standard identities).

@@ -73,22 +73,55 @@
 //! how many runs reached it is reported, and a warning names another minimum that fits
 //! almost as well (chi-square within 4 noise variances of the best): then the data allow
 //! more than one decomposition. Other warnings: a parameter that ended on a bound, a
-//! weighted fit with chi^2/nu above 4, and ionized-impurity scattering below 5 % of the
-//! scattering rate at every fitted point (N_I then rests on almost nothing).
+//! weighted fit the model does not describe within the errors (below), and
+//! ionized-impurity scattering below 5 % of the scattering rate at every fitted point (N_I
+//! then rests on almost nothing).
 //!
 //! Points outside [`ScatteringSettings::temperature_min_k`, `temperature_max_k`] are not
 //! fitted, but are evaluated with the fitted model for the table (flagged
 //! `in_fit_range = false`). Every temperature must be valid; the other checks apply to the
 //! points in the range only, so that the range is also how a bad point is left out.
 //!
-//! Weights: with mobility uncertainties the residual of a point is ln(mu_fit/mu) / (u/mu)
-//! and the covariance is (J^T J)^-1 scaled by max(1, chi^2/nu): an uncertainty is never
-//! smaller than the one the given errors imply, and grows when the model misses the data by
-//! more than they allow (the scale factor of the Particle Data Group's averages, recalled
-//! from memory). Without uncertainties the residuals are unweighted and the covariance is
-//! scaled by chi^2/nu (the scatter of the residuals is the noise estimate). Uncertainties
-//! of mu_300, N_I, N_N and mu_C are first order from those of their logarithms
-//! (u(x) = x u(ln x)).
+//! # The uncertainty budget
+//!
+//! - **Weights** (Type A). With mobility uncertainties the residual of a point is
+//!   ln(mu_fit/mu) / s with s the point's relative uncertainty: its statistical part only
+//!   (`hall_mobility_m2_per_Vs_unc_stat` of `hall.reduce`), raised to
+//!   [`ScatteringSettings::relative_uncertainty_floor`] (default 0.1 %, so that no point can
+//!   pin the fit; `floored_points` counts them), and widened by the temperature's
+//!   uncertainty through the model's slope, s^2 = s_mu^2 + (d ln mu / dT)^2 u_T^2 (effective
+//!   variance: J. A. Clutton-Brock, Technometrics 9, 261, 1967; J. Orear, Am. J. Phys. 50,
+//!   912, 1982). The slope is the fitted model's at the point with its measured carrier
+//!   density held, so the fit is repeated from its own solution with updated variances until
+//!   the parameters settle (at most six times). Where
+//!   ionized-impurity scattering rules, d ln mu / dT is steep and the temperature dominates
+//!   the weight; on the lattice side it adds little.
+//! - **Chi-square.** The summary carries chi^2/nu, its p-value and the Birge ratio
+//!   R_B = sqrt(chi^2/nu) (R. T. Birge, Phys. Rev. 40, 207, 1932). The covariance
+//!   (J^T J)^-1 is multiplied by R_B^2 when it exceeds 1 and never shrunk, as the Particle
+//!   Data Group does for inconsistent data; when the p-value is below 1e-3 a warning names
+//!   the worst points and the parameters that govern the weights. Without uncertainties the
+//!   residuals are unweighted and the covariance is scaled by chi^2/nu (the scatter of the
+//!   residuals is the noise estimate); p-value and Birge ratio are then not defined.
+//! - **Calibrations** (Type B). An error common to the whole series is applied once, after
+//!   the fit, never as per-point noise: the relative uncertainty of the mobility scale (a
+//!   field calibration; `_unc_sys` of the mobility column) and of the carrier-density scale
+//!   (thickness, field, current, voltage; `density_m3_unc_sys`, which matters only where
+//!   the model reads the densities: screening by the measured carriers, the
+//!   carriers-plus-compensation model). Each moves the fitted parameters by the fit's linear
+//!   response dp = -(J^T J)^-1 J^T dr to the change dr it makes in the weighted residuals,
+//!   the first-order sensitivity of the GUM (JCGM 100:2008, 5.1.3): a 1 % mobility scale
+//!   moves mu_300 by 1 %, N_I by about 1 % the other way and alpha hardly at all. Each
+//!   reported quantity X has `X_unc_stat` (from the scaled covariance), `X_unc_sys` (null
+//!   when no calibration was stated; `calibrations_not_stated` lists them) and `X_unc`,
+//!   their quadrature sum. Uncertainties of mu_300, N_I, N_N and mu_C are first order from
+//!   those of their logarithms (u(x) = x u(ln x)).
+//! - **An undetermined density.** When the ionized-impurity parameter ends on its lower
+//!   bound (or has no uncertainty), the data do not determine it. The fit then reports a
+//!   profile upper limit: the parameter is held at increasing values with the others refitted
+//!   until chi-square grows by k^2 noise variances (k = `consistency_sigma_multiple`), and a
+//!   comparison asks only whether the reference exceeds it
+//!   ([`crate::purity::compare_with_upper_limit`]).
 //!
 //! # Comparison with a freeze-out fit
 //!
@@ -117,14 +150,21 @@
 //! includes a relative uncertainty of the scattering theory itself
 //! ([`ConsistencyTolerance`]).
 
+#[cfg(test)]
+mod budget_tests;
 mod error;
 #[cfg(test)]
 mod tests;
+#[cfg(test)]
+mod validation;
 
 pub use error::ScatteringError;
 
 use mobilis_core::constants::{ELECTRON_MASS_KG, ELEMENTARY_CHARGE_C, REDUCED_PLANCK_J_S, VACUUM_PERMITTIVITY_F_PER_M};
-use mobilis_core::fit::{Bounds, FitError, LeastSquares, LmOptions, SameMinimum, StartSummary};
+use mobilis_core::fit::{
+    effective_uncertainty, floored_relative_uncertainty, Bounds, FitError, FitQuality, LeastSquares, LmFit, LmOptions,
+    MultiStartFit, SameMinimum, StartSummary, RELATIVE_UNCERTAINTY_FLOOR,
+};
 use mobilis_core::forward::mobility::{lattice_mobility_m2_per_vs, ScatteringMedium};
 use mobilis_core::linalg::Matrix;
 use std::f64::consts::PI;
@@ -133,7 +173,8 @@ use crate::freeze_out::CarrierType;
 use crate::materials::Material;
 
 pub use crate::purity::{
-    compare_densities, ConsistencyTolerance, DensityComparison, DopantDensities, Estimate, PurityError, ReferenceBasis,
+    compare_densities, compare_with_upper_limit, ConsistencyTolerance, DensityComparison, DopantDensities, Estimate,
+    PurityError, ReferenceBasis,
 };
 
 /// The lattice power law's reference temperature, K.
@@ -159,15 +200,21 @@ pub fn neutral_impurity_mobility_m2_per_vs(medium: &ScatteringMedium, neutral_de
 }
 
 /// One measured mobility.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
 pub struct MobilityPoint {
     /// K.
     pub temperature_k: f64,
     /// Hall or drift mobility magnitude, m^2/(V s) (see [`ScatteringSettings::hall_factor`]).
     pub mobility_m2_per_vs: f64,
-    /// Standard uncertainty of the mobility, m^2/(V s); give it for every fitted point or
-    /// for none.
+    /// Statistical (Type A) standard uncertainty of the mobility, m^2/(V s): the part that
+    /// is independent from point to point and weights the fit. Give it for every fitted
+    /// point or for none. An error common to the whole series (a field calibration) belongs
+    /// in [`ScatteringSettings::mobility_scale_relative_unc`] instead.
     pub mobility_unc_m2_per_vs: Option<f64>,
+    /// Standard uncertainty of the sample temperature, K (the readings' spread and the
+    /// thermometer's stated accuracy in quadrature); propagated through d ln mu / dT of the
+    /// model (effective variance). `None` counts as exact.
+    pub temperature_unc_k: Option<f64>,
     /// Measured majority carrier density at this temperature, m^-3 (for screening, the
     /// carriers-plus-compensation model, the neutral density and the freeze-out comparison).
     pub carrier_density_m3: Option<f64>,
@@ -288,6 +335,17 @@ pub struct ScatteringSettings {
     pub bounds: ParameterBounds,
     /// How far the fitted density may be from the freeze-out one.
     pub tolerance: ConsistencyTolerance,
+    /// The smallest relative uncertainty a mobility keeps in a weighted fit, so that no
+    /// point can pin the fit. Default [`RELATIVE_UNCERTAINTY_FLOOR`] (0.1 %).
+    pub relative_uncertainty_floor: f64,
+    /// Relative standard uncertainty of the mobility scale common to every point (Type B:
+    /// the field calibration of a Hall mobility), applied after the fit. `None`: not stated.
+    pub mobility_scale_relative_unc: Option<f64>,
+    /// Relative standard uncertainty of the carrier-density scale common to every point
+    /// (Type B: thickness, field, current and voltage calibrations), propagated after the
+    /// fit through the screening and the carriers-plus-compensation model. `None`: not
+    /// stated.
+    pub density_scale_relative_unc: Option<f64>,
 }
 
 impl ScatteringSettings {
@@ -308,6 +366,9 @@ impl ScatteringSettings {
             fixed_lattice_exponent: None,
             bounds: ParameterBounds::default(),
             tolerance: ConsistencyTolerance::default(),
+            relative_uncertainty_floor: RELATIVE_UNCERTAINTY_FLOOR,
+            mobility_scale_relative_unc: None,
+            density_scale_relative_unc: None,
         }
     }
 
@@ -328,6 +389,12 @@ impl ScatteringSettings {
             ),
             ("charge_number", self.charge_number, self.charge_number > 0.0, positive),
             (
+                "relative_uncertainty_floor",
+                self.relative_uncertainty_floor,
+                (0.0..1.0).contains(&self.relative_uncertainty_floor),
+                "give a relative uncertainty from 0 up to (not including) 1; 0.001 is the default",
+            ),
+            (
                 "hall_factor",
                 self.hall_factor,
                 self.hall_factor > 0.0,
@@ -344,6 +411,19 @@ impl ScatteringSettings {
                     value,
                     value > 0.0,
                     "give a temperature in kelvin above 0, or none",
+                ));
+            }
+        }
+        for (name, scale) in [
+            ("mobility_scale_relative_unc", self.mobility_scale_relative_unc),
+            ("density_scale_relative_unc", self.density_scale_relative_unc),
+        ] {
+            if let Some(value) = scale {
+                checks.push((
+                    name,
+                    value,
+                    value >= 0.0,
+                    "give a finite relative standard uncertainty of 0 or more, or none",
                 ));
             }
         }
@@ -480,6 +560,9 @@ pub struct ScatteringRow {
     /// The residual in units of its uncertainty (ln space); equal to `log_residual` for an
     /// unweighted fit.
     pub normalized_residual: Option<f64>,
+    /// The uncertainty of ln mu the fit weighted this point by (floor and temperature
+    /// included; 1 for an unweighted fit).
+    pub ln_sigma: Option<f64>,
     /// d ln mu_fit / d ln N_I (d ln N_comp for the carriers-plus-compensation model): how
     /// strongly this point constrains the ionized density.
     pub ionized_sensitivity: Option<f64>,
@@ -494,6 +577,18 @@ pub struct GoodnessOfFit {
     pub chi_square: f64,
     pub degrees_of_freedom: usize,
     pub reduced_chi_square: f64,
+    /// P(chi^2_nu >= chi^2) of a weighted fit; NaN for an unweighted one, whose chi-square
+    /// is the noise estimate itself.
+    pub p_value: f64,
+    /// sqrt(chi^2/nu) when above 1, else 1, for a weighted fit (the factor its standard
+    /// uncertainties were multiplied by); NaN for an unweighted one.
+    pub birge_ratio: f64,
+    /// Points whose relative mobility uncertainty was raised to the floor.
+    pub floored_points: usize,
+    /// True when temperature uncertainties entered the weights (effective variance).
+    pub temperature_uncertainty_used: bool,
+    /// Refits with updated effective variances after the first fit.
+    pub effective_variance_passes: usize,
     /// Root mean square of ln(mu_data / mu_fit) over the fitted points: the typical
     /// relative misfit.
     pub rms_log_residual: f64,
@@ -517,12 +612,26 @@ pub struct ScatteringFit {
     /// at the highest fitted temperature (the closest to full ionization), its uncertainty
     /// that of 2 N_comp alone (the measured n is taken as exact).
     pub ionized_impurity_density_m3: Estimate,
+    /// When the data do not determine the ionized-impurity parameter (it ended on its lower
+    /// bound, or has no uncertainty): the largest value of it (N_I, or N_comp for the
+    /// carriers-plus-compensation model), m^-3, that raises the chi-square by no more than
+    /// `sigma_multiple`^2 noise variances with the other parameters refitted (a profile
+    /// upper limit at that many standard uncertainties). `None` when the parameter is
+    /// determined, or no value up to the upper bound is excluded.
+    pub ionized_parameter_upper_limit_m3: Option<f64>,
     /// N_comp of the carriers-plus-compensation model, m^-3.
     pub compensating_density_m3: Option<Estimate>,
     /// The fitted constant N_N, m^-3.
     pub neutral_impurity_density_m3: Option<Estimate>,
     /// The fitted mu_C, m^2/(V s).
     pub constant_mobility_m2_per_vs: Option<Estimate>,
+    /// The statistical and systematic parts of each reported uncertainty, by the summary
+    /// name of the quantity ("lattice_exponent", "ionized_impurity_density_m3", ...). The
+    /// `uncertainty` of each estimate is their quadrature sum.
+    pub budget: Vec<(&'static str, UncertaintySplit)>,
+    /// The common-scale calibrations that could matter and were not stated (their
+    /// systematic part is then absent, not zero).
+    pub calibrations_not_stated: Vec<&'static str>,
     /// The fitted parameters in order, with their names ([`FittedParameter::name`]).
     pub parameters: Vec<FittedParameter>,
     /// The fitted model's parameters, for [`evaluate_model`] (smooth curves).
@@ -551,14 +660,43 @@ pub struct ScatteringFit {
     pub warnings: Vec<String>,
 }
 
+/// The statistical (Type A, from the scatter of the data) and systematic (Type B, from
+/// stated calibrations) parts of a standard uncertainty, in the quantity's unit. `None`: not
+/// estimated (statistical) or no calibration stated (systematic).
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct UncertaintySplit {
+    pub statistical: Option<f64>,
+    pub systematic: Option<f64>,
+}
+
+/// The total standard uncertainty of a statistical and a systematic part: their quadrature
+/// sum, the statistical part alone when no calibration was stated, none without a
+/// statistical part.
+fn combine(statistical: Option<f64>, systematic: Option<f64>) -> Option<f64> {
+    match (statistical, systematic) {
+        (Some(a), Some(b)) => Some(a.hypot(b)),
+        (Some(a), None) => Some(a),
+        (None, _) => None,
+    }
+}
+
 /// A validated point of the fitted range, in the fit's variables.
 #[derive(Debug, Clone, Copy)]
 struct FitPoint {
+    /// Position in the input.
+    index: usize,
     temperature_k: f64,
     /// ln of the drift mobility.
     ln_mobility: f64,
-    /// Uncertainty of ln mu (the relative uncertainty), 1 for an unweighted fit.
+    /// Uncertainty of ln mu used as the weight: the data's (floored) relative uncertainty,
+    /// widened by the temperature's through the effective variance; 1 for an unweighted fit.
     ln_sigma: f64,
+    /// The data's own relative uncertainty after the floor (1 for an unweighted fit).
+    ln_sigma_data: f64,
+    /// Whether the floor raised it.
+    floored: bool,
+    /// Standard uncertainty of the temperature, K (0 when not given).
+    temperature_unc_k: f64,
     carrier_density_m3: Option<f64>,
 }
 
@@ -659,6 +797,13 @@ struct Model<'a> {
 
 /// Chi-square margin, in noise variances, within which another minimum is reported.
 const RIVAL_CHI_SQUARE: f64 = 4.0;
+
+/// Refits with updated effective variances at most; two or three suffice in practice, since
+/// the variances depend on the parameters only through the model's slope.
+const EFFECTIVE_VARIANCE_PASSES: usize = 6;
+
+/// Relative step in T of the central difference of d ln mu / dT.
+const TEMPERATURE_STEP: f64 = 1e-4;
 
 /// Relative step in ln N_I of the central difference of the ionized term; the truncation
 /// error h^2/6 times a third derivative of order one is far below any data's noise.
@@ -835,6 +980,39 @@ impl<'a> Model<'a> {
         }
     }
 
+    /// d ln mu_fit / dT at a point with the carrier density held (the measured n belongs to
+    /// the true temperature, so only the model's explicit temperature dependence turns a
+    /// temperature error into a mobility error), by a central difference.
+    fn log_mobility_temperature_slope(&self, values: &[f64], point: &FitPoint) -> f64 {
+        let step = TEMPERATURE_STEP * point.temperature_k;
+        let at = |temperature_k: f64| {
+            self.log_mobility(
+                values,
+                &FitPoint {
+                    temperature_k,
+                    ..*point
+                },
+            )
+        };
+        let slope = (at(point.temperature_k + step) - at(point.temperature_k - step)) / (2.0 * step);
+        if slope.is_finite() {
+            slope
+        } else {
+            0.0
+        }
+    }
+
+    /// Whether the model reads the measured carrier densities at the fitted points.
+    fn uses_carrier_densities(&self, points: &[FitPoint]) -> bool {
+        let settings = self.settings;
+        if carrier_density_needed_by(settings).is_some() {
+            return true;
+        }
+        settings.formula == IonizedImpurityFormula::BrooksHerring
+            && settings.screening == ScreeningDensity::MeasuredCarriers
+            && points.iter().any(|point| point.carrier_density_m3.is_some())
+    }
+
     fn log_mobility(&self, values: &[f64], point: &FitPoint) -> f64 {
         let parameters = self.unpack(values);
         self.terms(&parameters, point.temperature_k, point.carrier_density_m3)
@@ -878,7 +1056,7 @@ pub fn fit_mobility_scattering(
     freeze_out: Option<&DopantDensities>,
 ) -> Result<ScatteringFit, ScatteringError> {
     settings.validate()?;
-    let fit_points = select_points(points, settings)?;
+    let mut fit_points = select_points(points, settings)?;
     let model = Model::new(settings);
     let parameter_count = model.parameters.len();
     let free = model.free_parameter_count();
@@ -891,41 +1069,59 @@ pub fn fit_mobility_scattering(
     let weighted = points_are_weighted(points, settings);
     let bounds = fit_bounds(&model);
     let starts = starting_points(&model, &fit_points, &bounds);
+    let floored_points = fit_points.iter().filter(|point| point.floored).count();
+    let temperature_uncertainty_used = weighted && fit_points.iter().any(|point| point.temperature_unc_k > 0.0);
 
-    let residual_model = &model;
-    let residual_points = &fit_points;
-    let problem = LeastSquares::new(fit_points.len(), move |values: &[f64], residuals: &mut [f64]| {
-        for (residual, point) in residuals.iter_mut().zip(residual_points) {
-            *residual = (residual_model.log_mobility(values, point) - point.ln_mobility) / point.ln_sigma;
-        }
-    })
-    .with_jacobian(move |values: &[f64], jacobian: &mut Matrix| {
-        let mut gradient = vec![0.0; residual_model.parameters.len()];
-        for (row, point) in residual_points.iter().enumerate() {
-            residual_model.log_mobility_gradient(values, point, &mut gradient);
-            for (column, derivative) in gradient.iter().enumerate() {
-                jacobian[(row, column)] = derivative / point.ln_sigma;
+    let mut multi =
+        solve(&model, &fit_points, &bounds, &starts, weighted).map_err(|error| describe_fit_error(error, &model))?;
+    // Errors in both variables (effective variance, Clutton-Brock 1967; Orear 1982): each
+    // point's variance in ln mu gains (d ln mu / dT)^2 u_T^2 at the current parameters, and
+    // the fit is repeated from its own solution with those variances until the parameters
+    // settle (iteratively reweighted, so the variances are never themselves minimized).
+    let mut effective_variance_passes = 0;
+    if temperature_uncertainty_used {
+        for _ in 0..EFFECTIVE_VARIANCE_PASSES {
+            let previous = multi.best.parameters.clone();
+            for point in fit_points.iter_mut() {
+                let slope = model.log_mobility_temperature_slope(&previous, point);
+                point.ln_sigma = effective_uncertainty(point.ln_sigma_data, slope, point.temperature_unc_k);
+            }
+            multi = solve(&model, &fit_points, &bounds, std::slice::from_ref(&previous), weighted)
+                .map_err(|error| describe_fit_error(error, &model))?;
+            effective_variance_passes += 1;
+            let settled = multi
+                .best
+                .parameters
+                .iter()
+                .zip(&previous)
+                .zip(&multi.best.standard_errors)
+                .all(|((now, before), error)| {
+                    let step = (now - before).abs();
+                    step <= 1e-9 * before.abs().max(1.0) || (error.is_finite() && step <= 1e-3 * error)
+                });
+            if settled {
+                break;
             }
         }
-    })
-    .with_bounds(bounds.clone());
-    let options = LmOptions {
-        residuals_are_weighted: weighted,
-        max_iterations: 500,
-        // The parameters are logarithms and an exponent: all of order one in their own
-        // units, whatever the start.
-        parameter_scales: Some(vec![1.0; parameter_count]),
-        ..LmOptions::default()
-    };
-    let multi = problem
-        .minimize_multi_start(&starts, &options, &SameMinimum::default())
-        .map_err(|error| describe_fit_error(error, &model))?;
-    let best = multi.best;
+    }
+    // The passes refit from one start; the last weights get every start again (and the
+    // passes' solution), so that other minima and the start counts refer to the final fit.
+    let mut start_count = starts.len();
+    if effective_variance_passes > 0 {
+        let mut final_starts = starts.clone();
+        final_starts.push(multi.best.parameters.clone());
+        start_count = final_starts.len();
+        multi = solve(&model, &fit_points, &bounds, &final_starts, weighted)
+            .map_err(|error| describe_fit_error(error, &model))?;
+    }
+    let best = multi.best.clone();
+    let quality = FitQuality::assess(best.chi_square, best.degrees_of_freedom);
 
-    // Weighted residuals give an unscaled covariance; scale it by max(1, chi^2/nu) (module
-    // documentation). Unweighted, the solver has already scaled it by chi^2/nu.
+    // Weighted residuals give an unscaled covariance; scale it by the Birge ratio squared,
+    // max(1, chi^2/nu) (module documentation). Unweighted, the solver has already scaled it
+    // by chi^2/nu.
     let covariance_scale = if weighted {
-        best.reduced_chi_square.max(1.0)
+        quality.birge_ratio * quality.birge_ratio
     } else {
         best.reduced_chi_square
     };
@@ -946,12 +1142,34 @@ pub fn fit_mobility_scattering(
             .filter(|error| error.is_finite() && *error > 0.0)
     };
     let fitted = model.unpack(&best.parameters);
-    let log_estimate = |value: f64, parameter: FittedParameter| Estimate {
-        value,
-        uncertainty: error_of(parameter).map(|error| value * error),
+    // The common-scale calibrations, as shifts of the fitted parameters per unit of their
+    // relative error (the fit's linear response; module documentation).
+    let shifts = systematic_shifts(&model, &fit_points, &best, weighted, settings);
+    let systematic_of = |parameter: FittedParameter| -> Option<f64> {
+        let index = model.position(parameter)?;
+        let of = |shift: &Option<Vec<f64>>| shift.as_ref().map(|shift| shift[index]);
+        match (of(&shifts.mobility), of(&shifts.density)) {
+            (None, None) => None,
+            (a, b) => Some(a.unwrap_or(0.0).hypot(b.unwrap_or(0.0))),
+        }
+    };
+    let log_estimate = |value: f64, parameter: FittedParameter| {
+        let statistical = error_of(parameter).map(|error| value * error);
+        let systematic = systematic_of(parameter).map(|error| value * error);
+        (
+            Estimate {
+                value,
+                uncertainty: combine(statistical, systematic),
+            },
+            UncertaintySplit {
+                statistical,
+                systematic,
+            },
+        )
     };
 
-    let rows = build_rows(points, settings, &model, &best.parameters, weighted);
+    let effective_sigmas: Vec<(usize, f64)> = fit_points.iter().map(|point| (point.index, point.ln_sigma)).collect();
+    let rows = build_rows(points, settings, &model, &best.parameters, weighted, &effective_sigmas);
     let mut warnings = Vec::new();
     let log_residuals: Vec<f64> = rows
         .iter()
@@ -963,15 +1181,53 @@ pub fn fit_mobility_scattering(
         chi_square: best.chi_square,
         degrees_of_freedom: best.degrees_of_freedom,
         reduced_chi_square: best.reduced_chi_square,
+        p_value: if weighted { quality.p_value } else { f64::NAN },
+        birge_ratio: if weighted { quality.birge_ratio } else { f64::NAN },
         rms_log_residual,
         weighted,
         covariance_scale,
+        floored_points,
+        temperature_uncertainty_used,
+        effective_variance_passes,
     };
+    if weighted {
+        let fitted_rows: Vec<&ScatteringRow> = rows.iter().filter(|row| row.in_fit_range).collect();
+        // FitQuality wants (model - data) / sigma; the rows hold (data - model) / sigma.
+        let residuals: Vec<f64> = fitted_rows
+            .iter()
+            .map(|row| row.normalized_residual.map_or(f64::NAN, |r| -r))
+            .collect();
+        if let Some(warning) = quality.warning(&residuals, |i| format!("T = {} K", fitted_rows[i].temperature_k)) {
+            warnings.push(format!(
+                "{warning}. The weights come from the mobility uncertainties (hall_mobility_m2_per_Vs_unc_stat), \
+                 temperature_K_unc and relative_uncertainty_floor; consider another ionized-density model, \
+                 screening, or a narrower temperature range"
+            ));
+        }
+        if floored_points > 0 {
+            warnings.push(format!(
+                "{floored_points} point(s) had a mobility uncertainty below {} of the mobility and were raised to it \
+                 (relative_uncertainty_floor)",
+                settings.relative_uncertainty_floor
+            ));
+        }
+    }
+    let mut calibrations_not_stated = Vec::new();
+    if settings.mobility_scale_relative_unc.is_none() {
+        calibrations_not_stated.push("mobility scale (field calibration)");
+    }
+    if settings.density_scale_relative_unc.is_none() && model.uses_carrier_densities(&fit_points) {
+        calibrations_not_stated.push("carrier-density scale (thickness, field, current and voltage calibrations)");
+    }
 
     let lattice_exponent_fixed = settings.fixed_lattice_exponent.is_some();
-    let ionized_parameter = log_estimate(fitted.ionized_density_m3, FittedParameter::LnIonizedDensity);
+    let (ionized_parameter, ionized_split) = log_estimate(fitted.ionized_density_m3, FittedParameter::LnIonizedDensity);
+    let mut budget: Vec<(&'static str, UncertaintySplit)> = Vec::new();
     let (ionized_impurity_density_m3, compensating_density_m3) = match settings.ionized_density {
-        IonizedDensityModel::Constant => (ionized_parameter, None),
+        IonizedDensityModel::Constant => {
+            budget.push(("ionized_impurity_density_m3", ionized_split));
+            (ionized_parameter, None)
+        }
         IonizedDensityModel::CarriersPlusCompensation => {
             let hottest = fit_points
                 .iter()
@@ -980,10 +1236,36 @@ pub fn fit_mobility_scattering(
             let carriers = hottest
                 .carrier_density_m3
                 .expect("validated: every fitted point has a density");
+            // The measured n scales with the density calibration too, fully correlated with
+            // the shift it causes in N_comp.
+            let index = model
+                .position(FittedParameter::LnIonizedDensity)
+                .expect("the ionized density is always a parameter");
+            let density_shift = shifts.density.as_ref().map(|shift| {
+                carriers * settings.density_scale_relative_unc.unwrap_or(0.0)
+                    + 2.0 * ionized_parameter.value * shift[index]
+            });
+            let mobility_shift = shifts
+                .mobility
+                .as_ref()
+                .map(|shift| 2.0 * ionized_parameter.value * shift[index]);
+            let statistical = ionized_split.statistical.map(|error| 2.0 * error);
+            let systematic = match (mobility_shift, density_shift) {
+                (None, None) => None,
+                (a, b) => Some(a.unwrap_or(0.0).hypot(b.unwrap_or(0.0))),
+            };
             let implied = Estimate {
                 value: carriers + 2.0 * ionized_parameter.value,
-                uncertainty: ionized_parameter.uncertainty.map(|error| 2.0 * error),
+                uncertainty: combine(statistical, systematic),
             };
+            budget.push((
+                "ionized_impurity_density_m3",
+                UncertaintySplit {
+                    statistical,
+                    systematic,
+                },
+            ));
+            budget.push(("compensating_density_m3", ionized_split));
             (implied, Some(ionized_parameter))
         }
     };
@@ -1028,14 +1310,6 @@ pub fn fit_mobility_scattering(
             described.join(", ")
         ));
     }
-    if weighted && best.reduced_chi_square > 4.0 {
-        warnings.push(format!(
-            "the reduced chi-square is {:.3}: the model misses the data by more than their uncertainties; the \
-             uncertainties were scaled up accordingly. Consider another ionized-density model, screening, or a \
-             narrower temperature range",
-            best.reduced_chi_square
-        ));
-    }
     // The share of ionized-impurity scattering in 1/mu, mu_fit / mu_I, at its largest.
     let largest_ionized_share = rows
         .iter()
@@ -1049,31 +1323,103 @@ pub fn fit_mobility_scattering(
             100.0 * largest_ionized_share
         ));
     }
+    // Brooks-Herring assumes a screening length well above the carriers' wavelength, b >> 1
+    // (Chattopadhyay and Queisser 1981). Below b = 1 its mobility falls with temperature like
+    // a second lattice term, which a fit can use to mimic the phonons with an absurd N_I.
+    if settings.formula == IonizedImpurityFormula::BrooksHerring {
+        let weakest = rows
+            .iter()
+            .filter(|row| row.in_fit_range)
+            .filter(|row| matches!((row.mobility_fit, row.mobility_ionized), (Some(fit), Some(ionized)) if fit / ionized > 0.05))
+            .filter_map(|row| {
+                let screening = row.screening_density_m3?;
+                let b = settings
+                    .medium
+                    .brooks_herring_screening_parameter(screening, row.temperature_k);
+                Some((b, row.temperature_k))
+            })
+            .min_by(|a, b| a.0.total_cmp(&b.0));
+        if let Some((b, temperature_k)) = weakest.filter(|(b, _)| *b < 1.0) {
+            warnings.push(format!(
+                "the Brooks-Herring screening parameter b falls to {b:.3} at {temperature_k} K, where ionized-impurity \
+                 scattering matters; the formula assumes b >> 1, so the fitted density is outside its validity. Give \
+                 the measured carrier densities (density_m3) for the screening, narrow the temperature range, or use \
+                 formula conwell_weisskopf"
+            ));
+        }
+    }
 
+    let (lattice_mobility_300k_m2_per_vs, lattice_split) = log_estimate(
+        fitted.lattice_mobility_300k_m2_per_vs,
+        FittedParameter::LnLatticeMobility300K,
+    );
+    budget.push(("lattice_mobility_300K_m2_per_Vs", lattice_split));
+    let exponent_split = if lattice_exponent_fixed {
+        UncertaintySplit::default()
+    } else {
+        UncertaintySplit {
+            statistical: error_of(FittedParameter::LatticeExponent),
+            systematic: systematic_of(FittedParameter::LatticeExponent),
+        }
+    };
+    let lattice_exponent = Estimate {
+        value: fitted.lattice_exponent,
+        uncertainty: combine(exponent_split.statistical, exponent_split.systematic),
+    };
+    budget.push(("lattice_exponent", exponent_split));
+    let neutral_impurity_density_m3 = fitted.neutral_density_m3.map(|value| {
+        let (estimate, split) = log_estimate(value, FittedParameter::LnNeutralDensity);
+        budget.push(("neutral_impurity_density_m3", split));
+        estimate
+    });
+    let constant_mobility_m2_per_vs = fitted.constant_mobility_m2_per_vs.map(|value| {
+        let (estimate, split) = log_estimate(value, FittedParameter::LnConstantMobility);
+        budget.push(("constant_mobility_m2_per_Vs", split));
+        estimate
+    });
+    let ionized_index = model
+        .position(FittedParameter::LnIonizedDensity)
+        .expect("the ionized density is always a parameter");
+    let ionized_lower_bound = bounds.lower()[ionized_index];
+    let undetermined = error_of(FittedParameter::LnIonizedDensity).is_none()
+        || best.parameters[ionized_index] <= ionized_lower_bound + 1e-9;
+    let ionized_parameter_upper_limit_m3 = if undetermined {
+        profile_upper_limit(
+            &model,
+            &fit_points,
+            &bounds,
+            &best,
+            weighted,
+            settings.tolerance.sigma_multiple.powi(2) * covariance_scale,
+        )
+    } else {
+        None
+    };
+    if let Some(limit) = ionized_parameter_upper_limit_m3 {
+        warnings.push(format!(
+            "the mobilities do not determine the {}: it ended at {:.3e} m^-3 without an uncertainty; the data \
+             exclude values above {limit:.3e} m^-3 ({} standard uncertainties), which is what a comparison uses",
+            match settings.ionized_density {
+                IonizedDensityModel::Constant => "ionized-impurity density",
+                IonizedDensityModel::CarriersPlusCompensation => "compensating density",
+            },
+            fitted.ionized_density_m3,
+            settings.tolerance.sigma_multiple
+        ));
+    }
     let mut fit = ScatteringFit {
+        ionized_parameter_upper_limit_m3,
         formula: settings.formula,
         ionized_density_model: settings.ionized_density,
-        lattice_mobility_300k_m2_per_vs: log_estimate(
-            fitted.lattice_mobility_300k_m2_per_vs,
-            FittedParameter::LnLatticeMobility300K,
-        ),
-        lattice_exponent: Estimate {
-            value: fitted.lattice_exponent,
-            uncertainty: if lattice_exponent_fixed {
-                None
-            } else {
-                error_of(FittedParameter::LatticeExponent)
-            },
-        },
+        lattice_mobility_300k_m2_per_vs,
+        lattice_exponent,
         lattice_exponent_fixed,
         ionized_impurity_density_m3,
         compensating_density_m3,
-        neutral_impurity_density_m3: fitted
-            .neutral_density_m3
-            .map(|value| log_estimate(value, FittedParameter::LnNeutralDensity)),
-        constant_mobility_m2_per_vs: fitted
-            .constant_mobility_m2_per_vs
-            .map(|value| log_estimate(value, FittedParameter::LnConstantMobility)),
+        neutral_impurity_density_m3,
+        constant_mobility_m2_per_vs,
+        budget,
+        calibrations_not_stated,
         fitted_parameters: fitted,
         parameter_names: model
             .parameters
@@ -1087,7 +1433,7 @@ pub fn fit_mobility_scattering(
         at_bound: best.at_bound.clone(),
         goodness,
         points_used: fit_points.len(),
-        starts: starts.len(),
+        starts: start_count,
         converged_starts: multi.converged,
         same_minimum_starts: multi.same_minimum,
         rows,
@@ -1131,23 +1477,43 @@ pub fn compare_with_freeze_out(
                 value: densities.compensating_density_m3,
                 uncertainty: densities.compensating_density_unc_m3,
             };
-            Ok(compare_densities(
-                "compensating_density",
-                fitted,
-                reference,
-                ReferenceBasis::CompensatingDensity,
-                tolerance,
-            ))
+            Ok(match fit.ionized_parameter_upper_limit_m3 {
+                Some(limit) => compare_with_upper_limit(
+                    "compensating_density",
+                    fitted,
+                    limit,
+                    reference,
+                    ReferenceBasis::CompensatingDensity,
+                    tolerance,
+                ),
+                None => compare_densities(
+                    "compensating_density",
+                    fitted,
+                    reference,
+                    ReferenceBasis::CompensatingDensity,
+                    tolerance,
+                ),
+            })
         }
         IonizedDensityModel::Constant => {
             let (reference, basis) = ionized_reference(fit, densities);
-            Ok(compare_densities(
-                "ionized_impurity_density",
-                fit.ionized_impurity_density_m3,
-                reference,
-                basis,
-                tolerance,
-            ))
+            Ok(match fit.ionized_parameter_upper_limit_m3 {
+                Some(limit) => compare_with_upper_limit(
+                    "ionized_impurity_density",
+                    fit.ionized_impurity_density_m3,
+                    limit,
+                    reference,
+                    basis,
+                    tolerance,
+                ),
+                None => compare_densities(
+                    "ionized_impurity_density",
+                    fit.ionized_impurity_density_m3,
+                    reference,
+                    basis,
+                    tolerance,
+                ),
+            })
         }
     }
 }
@@ -1176,9 +1542,10 @@ fn ionized_reference(fit: &ScatteringFit, densities: &DopantDensities) -> (Estim
         let (Some(sensitivity), Some(carriers)) = (row.ionized_sensitivity, row.carrier_density_m3) else {
             continue;
         };
-        let ln_sigma = match (row.mobility_data_unc, fit.goodness.weighted) {
-            (Some(unc), true) => unc / row.mobility_data,
-            _ => 1.0,
+        let ln_sigma = if fit.goodness.weighted {
+            row.ln_sigma.unwrap_or(1.0)
+        } else {
+            1.0
         };
         let weight = (sensitivity / ln_sigma).powi(2);
         if !(weight.is_finite() && weight > 0.0) {
@@ -1268,11 +1635,26 @@ fn select_points(points: &[MobilityPoint], settings: &ScatteringSettings) -> Res
                 return Err(ScatteringError::MissingCarrierDensity { index, needed_by });
             }
         }
+        let temperature_unc_k = match point.temperature_unc_k {
+            Some(unc) if !(unc.is_finite() && unc >= 0.0) => {
+                return Err(ScatteringError::InvalidTemperatureUncertainty { index, value: unc });
+            }
+            Some(unc) => unc,
+            None => 0.0,
+        };
         let drift_mobility = mobility / settings.hall_factor;
+        let (ln_sigma_data, floored) = match point.mobility_unc_m2_per_vs {
+            Some(unc) => floored_relative_uncertainty(unc / mobility, settings.relative_uncertainty_floor),
+            None => (1.0, false),
+        };
         selected.push(FitPoint {
+            index,
             temperature_k: point.temperature_k,
             ln_mobility: drift_mobility.ln(),
-            ln_sigma: point.mobility_unc_m2_per_vs.map_or(1.0, |unc| unc / mobility),
+            ln_sigma: ln_sigma_data,
+            ln_sigma_data,
+            floored,
+            temperature_unc_k,
             carrier_density_m3: point.carrier_density_m3,
         });
     }
@@ -1312,6 +1694,125 @@ fn carrier_density_needed_by(settings: &ScatteringSettings) -> Option<&'static s
         }
     }
     None
+}
+
+/// The multi-start least-squares fit of `points` with their current weights.
+fn solve(
+    model: &Model,
+    points: &[FitPoint],
+    bounds: &Bounds,
+    starts: &[Vec<f64>],
+    weighted: bool,
+) -> Result<MultiStartFit, FitError> {
+    let problem = LeastSquares::new(points.len(), move |values: &[f64], residuals: &mut [f64]| {
+        for (residual, point) in residuals.iter_mut().zip(points) {
+            *residual = (model.log_mobility(values, point) - point.ln_mobility) / point.ln_sigma;
+        }
+    })
+    .with_jacobian(move |values: &[f64], jacobian: &mut Matrix| {
+        let mut gradient = vec![0.0; model.parameters.len()];
+        for (row, point) in points.iter().enumerate() {
+            model.log_mobility_gradient(values, point, &mut gradient);
+            for (column, derivative) in gradient.iter().enumerate() {
+                jacobian[(row, column)] = derivative / point.ln_sigma;
+            }
+        }
+    })
+    .with_bounds(bounds.clone());
+    let options = LmOptions {
+        residuals_are_weighted: weighted,
+        max_iterations: 500,
+        // The parameters are logarithms and an exponent: all of order one in their own
+        // units, whatever the start.
+        parameter_scales: Some(vec![1.0; model.parameters.len()]),
+        ..LmOptions::default()
+    };
+    problem.minimize_multi_start(starts, &options, &SameMinimum::default())
+}
+
+/// Shifts of the fitted parameters (in the fit's variables) caused by a one-standard-
+/// uncertainty error of each stated common-scale calibration; `None` for a calibration not
+/// stated (or, for the density scale, one the model does not read).
+struct SystematicShifts {
+    mobility: Option<Vec<f64>>,
+    density: Option<Vec<f64>>,
+}
+
+/// The fit's linear response to an error shared by every point: a change dr of the weighted
+/// residuals moves the least-squares solution by dp = -(J^T J)^-1 J^T dr (to first order, the
+/// GUM's sensitivity coefficients of the fitted parameters to the calibration; JCGM
+/// 100:2008, 5.1.3). Held parameters have zero rows in the covariance and do not move.
+fn systematic_shifts(
+    model: &Model,
+    points: &[FitPoint],
+    best: &LmFit,
+    weighted: bool,
+    settings: &ScatteringSettings,
+) -> SystematicShifts {
+    let none = SystematicShifts {
+        mobility: None,
+        density: None,
+    };
+    // The solver scales an unweighted covariance by chi^2/nu; undo it to get (J^T J)^-1.
+    let scale = if weighted { 1.0 } else { best.reduced_chi_square };
+    if !(scale.is_finite() && scale > 0.0) {
+        return none;
+    }
+    let count = model.parameters.len();
+    let mut jacobian = Matrix::zeros(points.len(), count);
+    let mut gradient = vec![0.0; count];
+    for (row, point) in points.iter().enumerate() {
+        model.log_mobility_gradient(&best.parameters, point, &mut gradient);
+        for (column, derivative) in gradient.iter().enumerate() {
+            jacobian[(row, column)] = derivative / point.ln_sigma;
+        }
+    }
+    let response = |change: &[f64], relative_unc: f64| -> Vec<f64> {
+        let projected = jacobian.transpose_mul_vec(change);
+        (0..count)
+            .map(|i| {
+                let shift: f64 = (0..count).map(|j| best.covariance[(i, j)] / scale * projected[j]).sum();
+                -shift * relative_unc
+            })
+            .collect()
+    };
+    // Mobilities scaled by (1 + u): every ln mu_data grows by u, every residual falls by
+    // u / sigma.
+    let mobility = settings.mobility_scale_relative_unc.map(|unc| {
+        let change: Vec<f64> = points.iter().map(|point| -1.0 / point.ln_sigma).collect();
+        response(&change, unc)
+    });
+    let density = settings
+        .density_scale_relative_unc
+        .filter(|_| model.uses_carrier_densities(points))
+        .map(|unc| {
+            let change: Vec<f64> = points
+                .iter()
+                .map(|point| {
+                    let Some(density) = point.carrier_density_m3 else {
+                        return 0.0;
+                    };
+                    let at = |factor: f64| {
+                        model.log_mobility(
+                            &best.parameters,
+                            &FitPoint {
+                                carrier_density_m3: Some(density * factor),
+                                ..*point
+                            },
+                        )
+                    };
+                    let step = LN_DENSITY_STEP;
+                    let slope = (at(step.exp()) - at((-step).exp())) / (2.0 * step);
+                    if slope.is_finite() {
+                        slope / point.ln_sigma
+                    } else {
+                        0.0
+                    }
+                })
+                .collect();
+            response(&change, unc)
+        });
+    SystematicShifts { mobility, density }
 }
 
 /// Bounds in the fit's variables; a fixed exponent has equal bounds.
@@ -1406,6 +1907,57 @@ fn describe_fit_error(error: FitError, model: &Model) -> ScatteringError {
     }
 }
 
+/// The profile upper limit of the ionized-impurity parameter (see
+/// [`ScatteringFit::ionized_parameter_upper_limit_m3`]): the parameter is held at increasing
+/// values, the others refitted from the best solution, until the chi-square exceeds the best
+/// by `chi_square_margin`; the crossing is then bisected in ln to 1e-3.
+fn profile_upper_limit(
+    model: &Model,
+    points: &[FitPoint],
+    bounds: &Bounds,
+    best: &LmFit,
+    weighted: bool,
+    chi_square_margin: f64,
+) -> Option<f64> {
+    let index = model.position(FittedParameter::LnIonizedDensity)?;
+    let threshold = best.chi_square + chi_square_margin;
+    let chi_square_at = |ln_value: f64| -> Option<f64> {
+        let mut lower = bounds.lower().to_vec();
+        let mut upper = bounds.upper().to_vec();
+        lower[index] = ln_value;
+        upper[index] = ln_value;
+        let held = Bounds::new(lower, upper).ok()?;
+        let mut start = best.parameters.clone();
+        start[index] = ln_value;
+        solve(model, points, &held, &[start], weighted)
+            .ok()
+            .map(|fit| fit.best.chi_square)
+    };
+    let ceiling = bounds.upper()[index];
+    let mut low = best.parameters[index];
+    let mut high = low;
+    loop {
+        // Half a decade per step.
+        high = (high + 0.5 * std::f64::consts::LN_10).min(ceiling);
+        if chi_square_at(high)? > threshold {
+            break;
+        }
+        if high >= ceiling {
+            return None;
+        }
+        low = high;
+    }
+    while high - low > 1e-3 {
+        let middle = 0.5 * (low + high);
+        if chi_square_at(middle)? > threshold {
+            high = middle;
+        } else {
+            low = middle;
+        }
+    }
+    Some(high.exp())
+}
+
 /// The result table: every input point with the fitted model's terms.
 fn build_rows(
     points: &[MobilityPoint],
@@ -1413,6 +1965,7 @@ fn build_rows(
     model: &Model,
     values: &[f64],
     weighted: bool,
+    effective_sigmas: &[(usize, f64)],
 ) -> Vec<ScatteringRow> {
     let parameters = model.unpack(values);
     let ionized_index = model
@@ -1432,17 +1985,30 @@ fn build_rows(
             let log_residual = mobility_fit
                 .filter(|_| mobility_data.is_finite() && mobility_data > 0.0)
                 .map(|fit| (mobility_data / fit).ln());
-            let ln_sigma = match (weighted, point.mobility_unc_m2_per_vs) {
-                (true, Some(unc)) => Some(unc / point.mobility_m2_per_vs),
-                (true, None) => None,
-                (false, _) => Some(1.0),
+            // The weight the fit used (floor and effective variance included); a point outside
+            // the range gets the floored uncertainty of its own mobility.
+            let fitted_sigma = effective_sigmas
+                .iter()
+                .find(|(fitted, _)| *fitted == index)
+                .map(|(_, sigma)| *sigma);
+            let ln_sigma = match (weighted, fitted_sigma, point.mobility_unc_m2_per_vs) {
+                (true, Some(sigma), _) => Some(sigma),
+                (true, None, Some(unc)) => Some(
+                    floored_relative_uncertainty(unc / point.mobility_m2_per_vs, settings.relative_uncertainty_floor).0,
+                ),
+                (true, None, None) => None,
+                (false, _, _) => Some(1.0),
             };
             let normalized_residual = log_residual.zip(ln_sigma).map(|(residual, sigma)| residual / sigma);
             let ionized_sensitivity = terms.map(|_| {
                 let fit_point = FitPoint {
+                    index,
                     temperature_k: point.temperature_k,
                     ln_mobility: f64::NAN,
                     ln_sigma: 1.0,
+                    ln_sigma_data: 1.0,
+                    floored: false,
+                    temperature_unc_k: 0.0,
                     carrier_density_m3: point.carrier_density_m3,
                 };
                 model.log_mobility_gradient(values, &fit_point, &mut gradient);
@@ -1464,6 +2030,7 @@ fn build_rows(
                 neutral_density_m3: terms.and_then(|terms| terms.neutral_density_m3),
                 log_residual,
                 normalized_residual,
+                ln_sigma,
                 ionized_sensitivity,
                 carrier_density_m3: point.carrier_density_m3,
             }

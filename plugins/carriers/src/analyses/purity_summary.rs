@@ -2,6 +2,7 @@
 
 use super::mobility_scattering::{freeze_out_densities, freeze_out_role};
 use super::*;
+use crate::materials::{dopant_levels, matching_dopant_levels};
 use crate::purity::{
     summarize_purity, ConsistencyTolerance, DensityComparison, Estimate, PurityInput, ReferenceBasis,
     ScatteringDensities,
@@ -62,6 +63,9 @@ fn scattering_densities(table: &DataFrame, sample: Option<&str>) -> Result<Optio
     // Only a comparison against the ionized density at the fitted temperatures needs the
     // scattering fit's own numbers; the others the purity summary recomputes from the
     // freeze-out densities, with their uncertainties.
+    // Written by the scattering fit when the mobilities only bound the density from above.
+    let upper_limit =
+        value("ionized_impurity_density_upper_limit_m3")?.or(value("compensating_density_upper_limit_m3")?);
     let comparison = match (value("freeze_out_reference_m3")?, value("density_ratio")?, consistent) {
         (Some(reference), Some(ratio), Some(consistent)) if basis == ReferenceBasis::IonizedAtFitTemperatures => {
             Some(DensityComparison {
@@ -76,6 +80,7 @@ fn scattering_densities(table: &DataFrame, sample: Option<&str>) -> Result<Optio
                 ratio_unc: value("density_ratio_unc")?,
                 deviation_sigma: value("deviation_sigma")?.unwrap_or(f64::NAN),
                 consistent,
+                upper_limit_m3: upper_limit,
             })
         }
         _ => None,
@@ -84,6 +89,7 @@ fn scattering_densities(table: &DataFrame, sample: Option<&str>) -> Result<Optio
         ionized_impurity_density_m3: ionized,
         compensating_density_m3: estimate(value("compensating_density_m3")?, value("compensating_density_m3_unc")?),
         comparison,
+        upper_limit_m3: upper_limit,
     }))
 }
 
@@ -123,6 +129,18 @@ impl Analysis for PurityAnalysis {
             "scattering N_I over its freeze-out reference",
         ));
         outputs.push(column("freeze_out_consistent", Bool, None, "the two counts agree"));
+        outputs.push(column(
+            "scattering_upper_limit_m3",
+            F64,
+            Some("m3"),
+            "when the mobility does not determine its density: the largest it allows",
+        ));
+        outputs.push(column(
+            "candidate_dopants",
+            Str,
+            None,
+            "tabulated dopants within two standard uncertainties of the fitted ionization energy (silicon; Sze and Ng 2007)",
+        ));
         AnalysisDeclaration {
             name: String::new(),
             summary: "Purity summary per sample: donor and acceptor densities, net doping, compensation ratio and total impurities from the freeze-out fit, beside the mobility fit's ionized-impurity count".into(),
@@ -160,10 +178,44 @@ impl Analysis for PurityAnalysis {
             tolerance.model_relative_uncertainty = m;
         }
         let samples = optional_strings(freeze_out, "sample")?;
+        let materials = optional_strings(freeze_out, "material")?;
+        let energies = optional_floats(freeze_out, "ionization_energy_eV")?;
+        let energy_uncertainties = optional_floats(freeze_out, "ionization_energy_eV_unc")?;
+        let mut candidates: Vec<Option<String>> = Vec::with_capacity(freeze_out.height());
+        let mut candidate_warnings = Vec::new();
         let mut summaries = Vec::with_capacity(freeze_out.height());
         for (row, sample) in samples.iter().enumerate() {
             let single = freeze_out.slice(row as i64, 1);
             let (densities, carrier_type) = freeze_out_densities(&single, None)?;
+            let levels = materials[row].as_deref().map_or(&[][..], dopant_levels);
+            let candidate = match (carrier_type, energies[row]) {
+                (Some(carrier_type), Some(energy)) if !levels.is_empty() => {
+                    let matches = matching_dopant_levels(levels, carrier_type, energy, energy_uncertainties[row]);
+                    if matches.is_empty() {
+                        candidate_warnings.push(format!(
+                            "{}: the fitted ionization energy {:.1} meV matches no tabulated shallow {} (Sze and Ng \
+                             2007): a deeper centre, or a freeze-out fit to check",
+                            sample.as_deref().unwrap_or("?"),
+                            energy * 1e3,
+                            match carrier_type {
+                                CarrierType::N => "donor",
+                                CarrierType::P => "acceptor",
+                            }
+                        ));
+                        Some("none".to_string())
+                    } else {
+                        Some(
+                            matches
+                                .iter()
+                                .map(|level| format!("{} ({:.0} meV)", level.symbol, level.ionization_energy_ev * 1e3))
+                                .collect::<Vec<_>>()
+                                .join(", "),
+                        )
+                    }
+                }
+                _ => None,
+            };
+            candidates.push(candidate);
             let scattering = match scattering {
                 Some(table) => scattering_densities(table, sample.as_deref())?,
                 None => None,
@@ -221,6 +273,14 @@ impl Analysis for PurityAnalysis {
                 .map(|s| s.comparison.map(|c| c.consistent))
                 .collect::<Vec<_>>(),
         ));
+        columns.push(float_series(
+            "scattering_upper_limit_m3",
+            summaries
+                .iter()
+                .map(|s| s.comparison.and_then(|c| c.upper_limit_m3))
+                .collect(),
+        ));
+        columns.push(Column::new("candidate_dopants".into(), candidates.clone()));
         let mut output = AnalysisOutput::new(frame(summaries.len(), columns)?);
         output.summary.insert("samples".into(), json!(summaries.len()));
         if let [only] = summaries.as_slice() {
@@ -233,12 +293,76 @@ impl Analysis for PurityAnalysis {
                 output
                     .summary
                     .insert("freeze_out_consistent".into(), json!(comparison.consistent));
+                if let Some(limit) = comparison.upper_limit_m3 {
+                    output.summary.insert("scattering_upper_limit_m3".into(), json!(limit));
+                }
+            }
+            if let Some(Some(candidate)) = candidates.first() {
+                output.summary.insert("candidate_dopants".into(), json!(candidate));
             }
         }
         output.warnings = summaries
             .iter()
             .flat_map(|s| s.warnings.iter().map(move |w| format!("{}: {w}", s.sample)))
             .collect();
+        output.warnings.extend(candidate_warnings);
         Ok(output)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use mobilis_core::sdk::run_typed;
+
+    fn freeze_out_summary(material: &str, energy_ev: f64) -> DataFrame {
+        DataFrame::new(
+            1,
+            vec![
+                Column::new("sample".into(), vec!["W1"]),
+                Column::new("carrier_type".into(), vec!["n"]),
+                Column::new("material".into(), vec![material]),
+                Column::new("dopant_density_m3".into(), vec![3.3e21]),
+                Column::new("dopant_density_m3_unc".into(), vec![0.05e21]),
+                Column::new("compensating_density_m3".into(), vec![4.1e20]),
+                Column::new("compensating_density_m3_unc".into(), vec![0.2e20]),
+                Column::new("ionization_energy_eV".into(), vec![energy_ev]),
+                Column::new("ionization_energy_eV_unc".into(), vec![0.0003]),
+            ],
+        )
+        .unwrap()
+    }
+
+    fn candidates(output: &AnalysisOutput) -> Option<String> {
+        output
+            .table
+            .column("candidate_dopants")
+            .unwrap()
+            .str()
+            .unwrap()
+            .get(0)
+            .map(str::to_owned)
+    }
+
+    // The demo-like 45.2 meV donor in silicon: phosphorus (45 meV) or antimony (43 meV) by
+    // the handbook (Sze and Ng 2007, from memory); 120 meV matches no shallow donor.
+    #[test]
+    fn candidate_dopants_from_the_fitted_level() {
+        let run = |table: DataFrame| {
+            let inputs = Inputs::from_tables([("freeze_out".to_string(), table)]);
+            run_typed::<PurityAnalysis>("{}", &inputs, &Host::detached()).unwrap()
+        };
+        let output = run(freeze_out_summary("Si", 0.0452));
+        assert_eq!(candidates(&output).as_deref(), Some("P (45 meV), Sb (43 meV)"));
+        assert_eq!(output.summary["candidate_dopants"], json!("P (45 meV), Sb (43 meV)"));
+        let deep = run(freeze_out_summary("Si", 0.120));
+        assert_eq!(candidates(&deep).as_deref(), Some("none"));
+        assert!(deep
+            .warnings
+            .iter()
+            .any(|warning| warning.contains("matches no tabulated shallow donor")));
+        // No table for GaAs: no verdict rather than a wrong one.
+        let gallium_arsenide = run(freeze_out_summary("GaAs", 0.006));
+        assert_eq!(candidates(&gallium_arsenide), None);
     }
 }

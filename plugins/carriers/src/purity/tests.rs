@@ -171,7 +171,8 @@ fn comparison_verdict() {
         &tolerance,
     );
     assert!(same.consistent && same.deviation_sigma == 0.0 && same.ratio == 1.0);
-    // ln 1.5 / sqrt(0.1^2 + 0.1^2 + 0.3^2) = 1.2224: consistent at 2 sigma.
+    // ln 1.5 / sqrt(0.1^2 + 0.1^2 + 0.7^2) = 0.5678: consistent at 2 sigma (computed from the
+    // rule of the module documentation with the default theory uncertainty 0.7).
     let near = compare_densities(
         "x",
         estimate(1.5e21, 0.1),
@@ -179,13 +180,14 @@ fn comparison_verdict() {
         ReferenceBasis::TotalImpurities,
         &tolerance,
     );
-    assert!(close(near.deviation_sigma, 1.5f64.ln() / 0.11f64.sqrt(), 1e-12));
+    assert!(close(near.deviation_sigma, 1.5f64.ln() / 0.51f64.sqrt(), 1e-12));
     assert!(near.consistent);
     assert!(close(near.ratio_unc.unwrap(), 1.5 * 0.02f64.sqrt(), 1e-12));
-    // A factor 3: 3.3 sigma, inconsistent; symmetric in which side is larger.
+    // A factor 5: ln 5 / sqrt(0.51) = 2.25 sigma, inconsistent; symmetric in which side is
+    // larger.
     let far = compare_densities(
         "x",
-        estimate(3e21, 0.1),
+        estimate(5e21, 0.1),
         estimate(1e21, 0.1),
         ReferenceBasis::TotalImpurities,
         &tolerance,
@@ -193,7 +195,7 @@ fn comparison_verdict() {
     let far_inverse = compare_densities(
         "x",
         estimate(1e21, 0.1),
-        estimate(3e21, 0.1),
+        estimate(5e21, 0.1),
         ReferenceBasis::TotalImpurities,
         &tolerance,
     );
@@ -206,7 +208,7 @@ fn comparison_verdict() {
     assert!(
         compare_densities(
             "x",
-            estimate(3e21, 0.1),
+            estimate(5e21, 0.1),
             estimate(1e21, 0.1),
             ReferenceBasis::TotalImpurities,
             &lenient
@@ -236,6 +238,7 @@ fn both_fits_side_by_side() {
         },
         compensating_density_m3: None,
         comparison: None,
+        upper_limit_m3: None,
     };
     let input = PurityInput {
         sample: "s".into(),
@@ -256,8 +259,8 @@ fn both_fits_side_by_side() {
         "ionized_impurity_density",
         scattering.ionized_impurity_density_m3,
         Estimate {
-            value: 1e15 * CM3,
-            uncertainty: Some(1e14 * CM3),
+            value: 3e14 * CM3,
+            uncertainty: Some(3e13 * CM3),
         },
         ReferenceBasis::IonizedAtFitTemperatures,
         &ConsistencyTolerance::default(),
@@ -324,6 +327,7 @@ fn only_the_scattering_fit() {
             },
             compensating_density_m3: None,
             comparison: None,
+            upper_limit_m3: None,
         }),
     };
     let summary = summarize_purity(&input, &ConsistencyTolerance::default()).unwrap();

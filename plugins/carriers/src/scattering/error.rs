@@ -12,6 +12,8 @@ use std::fmt;
 pub enum ScatteringError {
     /// A temperature is NaN, infinite, zero or negative.
     InvalidTemperature { index: usize, value: f64 },
+    /// A temperature uncertainty inside the fitted range is NaN, infinite or negative.
+    InvalidTemperatureUncertainty { index: usize, value: f64 },
     /// A mobility inside the fitted range is NaN, infinite, zero or negative.
     InvalidMobility { index: usize, value: f64 },
     /// A mobility uncertainty inside the fitted range is NaN, infinite, zero or negative.
@@ -50,6 +52,11 @@ impl fmt::Display for ScatteringError {
             ScatteringError::InvalidTemperature { index, value } => write!(
                 f,
                 "point {index}: temperature_K is {value}; give the absolute temperature in kelvin, finite and above 0"
+            ),
+            ScatteringError::InvalidTemperatureUncertainty { index, value } => write!(
+                f,
+                "point {index}: temperature_K_unc is {value} K; give a finite standard uncertainty of 0 or more, or \
+                 leave it out"
             ),
             ScatteringError::InvalidMobility { index, value } => write!(
                 f,

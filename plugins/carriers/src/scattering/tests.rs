@@ -215,9 +215,13 @@ fn analytic_jacobian_matches_central_differences() {
         assert_eq!(model.parameters.len(), values.len());
         for (temperature_k, carriers) in [(25.0, 3e19), (77.0, 1.5e21), (300.0, 2.8e21)] {
             let point = FitPoint {
+                index: 0,
                 temperature_k,
                 ln_mobility: 0.0,
                 ln_sigma: 1.0,
+                ln_sigma_data: 1.0,
+                floored: false,
+                temperature_unc_k: 0.0,
                 carrier_density_m3: Some(carriers),
             };
             let mut gradient = vec![0.0; values.len()];
@@ -272,6 +276,7 @@ fn synthetic(
                 temperature_k,
                 mobility_m2_per_vs: mobility * settings.hall_factor,
                 mobility_unc_m2_per_vs: weighted.then_some(relative_noise * mobility * settings.hall_factor),
+                temperature_unc_k: None,
                 carrier_density_m3,
             }
         })
@@ -590,6 +595,7 @@ fn forward_model_points(seed: u64) -> Vec<MobilityPoint> {
                 temperature_k,
                 mobility_m2_per_vs: mobility,
                 mobility_unc_m2_per_vs: Some(0.01 * mobility),
+                temperature_unc_k: None,
                 carrier_density_m3: Some(layer.equilibrium.electron_density_m3),
             }
         })

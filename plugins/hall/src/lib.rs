@@ -11,7 +11,10 @@ pub mod reduce;
 use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
 use mobilis_core::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
 use polars::prelude::*;
-use reduce::{flags, Geometry, QualityThresholds, ReadingColumns, ReduceSettings, ReducedRow, SampleInfo};
+use reduce::{
+    calibration_names, flags, Calibration, Geometry, QualityThresholds, ReadingColumns, ReduceSettings, ReducedRow,
+    SampleInfo,
+};
 use serde::Deserialize;
 use serde_json::json;
 
@@ -42,6 +45,15 @@ pub struct ReduceParams {
     pub current_reversal_tolerance: f64,
     #[serde(default)]
     pub skip_invalid_readings: bool,
+    /// Relative standard uncertainty of the field scale; `None`: not stated.
+    #[serde(default)]
+    pub field_calibration_rel: Option<f64>,
+    #[serde(default)]
+    pub current_calibration_rel: Option<f64>,
+    #[serde(default)]
+    pub voltage_calibration_rel: Option<f64>,
+    #[serde(rename = "temperature_accuracy_K", default)]
+    pub temperature_accuracy_k: Option<f64>,
 }
 
 mod defaults {
@@ -90,6 +102,12 @@ impl ReduceParams {
                 current_reversal_tolerance: self.current_reversal_tolerance,
             },
             skip_invalid_readings: self.skip_invalid_readings,
+            calibration: Calibration {
+                field_rel: self.field_calibration_rel,
+                current_rel: self.current_calibration_rel,
+                voltage_rel: self.voltage_calibration_rel,
+                temperature_accuracy_k: self.temperature_accuracy_k,
+            },
         }
     }
 }
@@ -111,7 +129,11 @@ fn params_schema() -> serde_json::Value {
             "thermoelectric_offset_ratio": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.thermoelectric_offset_ratio, "description": "flag `large_offset` above this |V_offset| / |R I| (common practice)"},
             "misalignment_ratio": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.misalignment_ratio, "description": "flag `large_offset` above this field-even / field-odd ratio of the Hall configurations (common practice)"},
             "current_reversal_tolerance": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.current_reversal_tolerance, "description": "flag `current_reversal` above this |R(+I) - R(-I)| / mean (common practice)"},
-            "skip_invalid_readings": {"type": "boolean", "default": false, "description": "drop invalid readings (zero current, NaN, bad contacts) with a warning instead of refusing the input"}
+            "skip_invalid_readings": {"type": "boolean", "default": false, "description": "drop invalid readings (zero current, NaN, bad contacts) with a warning instead of refusing the input"},
+            "field_calibration_rel": {"type": "number", "minimum": 0, "description": format!("relative standard uncertainty of the field scale (gaussmeter, magnet constant); a sample-sheet column of the same name takes precedence; when not stated {} is assumed (common practice) and the summary says so", reduce::DEFAULT_FIELD_CALIBRATION_REL)},
+            "current_calibration_rel": {"type": "number", "minimum": 0, "description": format!("relative standard uncertainty of the current source's scale; sample-sheet column of the same name takes precedence; when not stated {} is assumed (common practice)", reduce::DEFAULT_CURRENT_CALIBRATION_REL)},
+            "voltage_calibration_rel": {"type": "number", "minimum": 0, "description": format!("relative standard uncertainty of the voltmeter's gain; sample-sheet column of the same name takes precedence; when not stated {} is assumed (common practice)", reduce::DEFAULT_VOLTAGE_CALIBRATION_REL)},
+            "temperature_accuracy_K": {"type": "number", "minimum": 0, "description": format!("standard uncertainty of the thermometer, K, added in quadrature to the readings' temperature spread in temperature_K_unc; sample-sheet column of the same name takes precedence; when not stated {} K is assumed (common practice)", reduce::DEFAULT_TEMPERATURE_ACCURACY_K)}
         }
     })
 }
@@ -138,6 +160,12 @@ const OUTPUT: &[(&str, Option<&str>, &str, Getter)] = &[
         Some("K"),
         "mean temperature of the group",
         Getter::Float(|r| Some(r.temperature_k)),
+    ),
+    (
+        "temperature_K_unc",
+        Some("K"),
+        "standard uncertainty of the temperature: standard deviation of the readings' temperatures and the thermometer accuracy in quadrature",
+        Getter::Float(|r| Some(r.temperature_k_unc)),
     ),
     (
         "temperature_spread_K",
@@ -190,8 +218,20 @@ const OUTPUT: &[(&str, Option<&str>, &str, Getter)] = &[
     (
         "sheet_resistance_ohm_sq_unc",
         Some("ohm_sq"),
-        "standard uncertainty",
+        "total standard uncertainty: _unc_stat and _unc_sys in quadrature",
         Getter::Float(|r| r.sheet_resistance_ohm_sq_unc),
+    ),
+    (
+        "sheet_resistance_ohm_sq_unc_stat",
+        Some("ohm_sq"),
+        "statistical part (Type A): the scatter of the readings, or the sample's pooled reading noise if larger",
+        Getter::Float(|r| r.sheet_resistance_ohm_sq_unc_stat),
+    ),
+    (
+        "sheet_resistance_ohm_sq_unc_sys",
+        Some("ohm_sq"),
+        "systematic part (Type B): the calibrations, common to every row of the sample; apply once, after a fit",
+        Getter::Float(|r| r.sheet_resistance_ohm_sq_unc_sys),
     ),
     (
         "resistivity_ohm_m",
@@ -202,8 +242,20 @@ const OUTPUT: &[(&str, Option<&str>, &str, Getter)] = &[
     (
         "resistivity_ohm_m_unc",
         Some("ohm_m"),
-        "standard uncertainty",
+        "total standard uncertainty: _unc_stat and _unc_sys in quadrature",
         Getter::Float(|r| r.resistivity_ohm_m_unc),
+    ),
+    (
+        "resistivity_ohm_m_unc_stat",
+        Some("ohm_m"),
+        "statistical part (Type A): the scatter of the readings, or the sample's pooled reading noise if larger",
+        Getter::Float(|r| r.resistivity_ohm_m_unc_stat),
+    ),
+    (
+        "resistivity_ohm_m_unc_sys",
+        Some("ohm_m"),
+        "systematic part (Type B): the calibrations, common to every row of the sample; apply once, after a fit",
+        Getter::Float(|r| r.resistivity_ohm_m_unc_sys),
     ),
     (
         "hall_resistance_ohm",
@@ -256,8 +308,20 @@ const OUTPUT: &[(&str, Option<&str>, &str, Getter)] = &[
     (
         "sheet_density_m2_unc",
         Some("m2"),
-        "standard uncertainty",
+        "total standard uncertainty: _unc_stat and _unc_sys in quadrature",
         Getter::Float(|r| r.sheet_density_m2_unc),
+    ),
+    (
+        "sheet_density_m2_unc_stat",
+        Some("m2"),
+        "statistical part (Type A): the scatter of the readings, or the sample's pooled reading noise if larger",
+        Getter::Float(|r| r.sheet_density_m2_unc_stat),
+    ),
+    (
+        "sheet_density_m2_unc_sys",
+        Some("m2"),
+        "systematic part (Type B): the calibrations, common to every row of the sample; apply once, after a fit",
+        Getter::Float(|r| r.sheet_density_m2_unc_sys),
     ),
     (
         "density_m3",
@@ -268,8 +332,20 @@ const OUTPUT: &[(&str, Option<&str>, &str, Getter)] = &[
     (
         "density_m3_unc",
         Some("m3"),
-        "standard uncertainty (includes the thickness uncertainty)",
+        "total standard uncertainty: _unc_stat and _unc_sys in quadrature",
         Getter::Float(|r| r.density_m3_unc),
+    ),
+    (
+        "density_m3_unc_stat",
+        Some("m3"),
+        "statistical part (Type A): the scatter of the readings, or the sample's pooled reading noise if larger",
+        Getter::Float(|r| r.density_m3_unc_stat),
+    ),
+    (
+        "density_m3_unc_sys",
+        Some("m3"),
+        "systematic part (Type B): the calibrations, common to every row of the sample; apply once, after a fit",
+        Getter::Float(|r| r.density_m3_unc_sys),
     ),
     (
         "hall_mobility_m2_per_Vs",
@@ -280,8 +356,20 @@ const OUTPUT: &[(&str, Option<&str>, &str, Getter)] = &[
     (
         "hall_mobility_m2_per_Vs_unc",
         Some("m2_per_Vs"),
-        "standard uncertainty",
+        "total standard uncertainty: _unc_stat and _unc_sys in quadrature",
         Getter::Float(|r| r.hall_mobility_m2_per_vs_unc),
+    ),
+    (
+        "hall_mobility_m2_per_Vs_unc_stat",
+        Some("m2_per_Vs"),
+        "statistical part (Type A): the scatter of the readings, or the sample's pooled reading noise if larger",
+        Getter::Float(|r| r.hall_mobility_m2_per_vs_unc_stat),
+    ),
+    (
+        "hall_mobility_m2_per_Vs_unc_sys",
+        Some("m2_per_Vs"),
+        "systematic part (Type B): the calibrations, common to every row of the sample; apply once, after a fit",
+        Getter::Float(|r| r.hall_mobility_m2_per_vs_unc_sys),
     ),
     (
         "drift_mobility_m2_per_Vs",
@@ -330,6 +418,12 @@ const OUTPUT: &[(&str, Option<&str>, &str, Getter)] = &[
         None,
         "largest field-even / field-odd part of the Hall configurations",
         Getter::Float(|r| r.misalignment_ratio),
+    ),
+    (
+        "reading_noise_V",
+        Some("V"),
+        "pooled standard deviation of one reading's voltage over the sample's series",
+        Getter::Float(|r| r.reading_noise_v),
     ),
     (
         "flags",
@@ -422,6 +516,10 @@ fn sample_sheet(frame: &DataFrame) -> Result<Vec<SampleInfo>, AnalysisError> {
     let hall_factor = optional_floats("hall_factor")?;
     let bar_length = optional_floats("bar_length_m")?;
     let bar_width = optional_floats("bar_width_m")?;
+    let field_calibration = optional_floats(calibration_names::FIELD)?;
+    let current_calibration = optional_floats(calibration_names::CURRENT)?;
+    let voltage_calibration = optional_floats(calibration_names::VOLTAGE)?;
+    let temperature_accuracy = optional_floats(calibration_names::TEMPERATURE)?;
     let geometry = if frame.column("geometry").is_ok() {
         sdk::string_column(frame, "geometry")?
     } else {
@@ -460,6 +558,12 @@ fn sample_sheet(frame: &DataFrame) -> Result<Vec<SampleInfo>, AnalysisError> {
             thickness_unc_m: thickness_unc[row],
             hall_factor: hall_factor[row].unwrap_or(1.0),
             geometry,
+            calibration: Calibration {
+                field_rel: field_calibration[row],
+                current_rel: current_calibration[row],
+                voltage_rel: voltage_calibration[row],
+                temperature_accuracy_k: temperature_accuracy[row],
+            },
         });
     }
     Ok(samples)
@@ -509,6 +613,10 @@ impl Analysis for HallReduce {
                         column("geometry", Str, None, "van_der_pauw (default) or hall_bar").optional(),
                         column("bar_length_m", F64, Some("m"), "Hall bar: distance between the longitudinal voltage contacts").optional(),
                         column("bar_width_m", F64, Some("m"), "Hall bar: width").optional(),
+                        column(calibration_names::FIELD, F64, None, "relative standard uncertainty of the field scale (overrides the parameter)").optional(),
+                        column(calibration_names::CURRENT, F64, None, "relative standard uncertainty of the current scale (overrides the parameter)").optional(),
+                        column(calibration_names::VOLTAGE, F64, None, "relative standard uncertainty of the voltmeter gain (overrides the parameter)").optional(),
+                        column(calibration_names::TEMPERATURE, F64, Some("K"), "standard uncertainty of the thermometer (overrides the parameter)").optional(),
                     ],
                 },
             ],
@@ -519,6 +627,8 @@ impl Analysis for HallReduce {
                 column("flagged_rows", I64, None, "rows with at least one quality flag"),
                 column("flag_counts", Str, None, "object: rows raising each flag"),
                 column("skipped_readings", I64, None, "invalid readings dropped under skip_invalid_readings"),
+                column("calibrations", Str, None, "object per sample: the calibrations used (relative standard uncertainties, temperature_accuracy_K), the names not stated and assumed, and reading_noise_V, the pooled voltage noise of one reading"),
+                column("calibrations_not_stated", Str, None, "list of the calibration parameters some sample did not state (their defaults were assumed)"),
             ],
         }
     }
@@ -584,6 +694,38 @@ impl Analysis for HallReduce {
         output
             .summary
             .insert("skipped_readings".into(), json!(reduction.skipped_readings));
+        let calibrations: serde_json::Map<String, serde_json::Value> = reduction
+            .calibrations
+            .iter()
+            .map(|used| {
+                (
+                    used.sample.clone(),
+                    json!({
+                        "thickness_rel": used.thickness_rel,
+                        "field_calibration_rel": used.field_rel,
+                        "current_calibration_rel": used.current_rel,
+                        "voltage_calibration_rel": used.voltage_rel,
+                        "temperature_accuracy_K": used.temperature_accuracy_k,
+                        "not_stated": used.not_stated,
+                        "reading_noise_V": used.reading_noise_v,
+                    }),
+                )
+            })
+            .collect();
+        let mut not_stated: Vec<&str> = Vec::new();
+        for used in &reduction.calibrations {
+            for name in &used.not_stated {
+                if !not_stated.contains(name) {
+                    not_stated.push(name);
+                }
+            }
+        }
+        output
+            .summary
+            .insert("calibrations".into(), serde_json::Value::Object(calibrations));
+        output
+            .summary
+            .insert("calibrations_not_stated".into(), json!(not_stated));
         output.warnings = reduction.warnings;
         host.progress(1.0, "done");
         Ok(output)

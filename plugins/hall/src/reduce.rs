@@ -100,9 +100,14 @@ use std::collections::HashMap;
 use mobilis_core::contacts::{classify_hall_bar, classify_van_der_pauw, Configuration};
 pub use mobilis_core::readings::RawReading;
 
-use cells::{cell_key, gap_clusters, runs_by_key, summarize_cell, CellSummary, Prepared, MAX_SLOTS};
+use cells::{
+    cell_key, gap_clusters, runs_by_key, setpoint_clusters, summarize_cell, CellSummary, NoiseEvidence, Prepared,
+    MAX_SLOTS,
+};
 pub use error::{ReadingProblem, ReduceError};
-use row::{build_row, FieldCells, ResolvedSample, TemperatureGroup, ZeroFieldCells};
+use row::{
+    build_row, finish_row, FieldCells, ResolvedCalibration, ResolvedSample, RowDraft, TemperatureGroup, ZeroFieldCells,
+};
 
 /// How many skipped readings, and separately how many rows, get a warning of their own
 /// before the rest are summarized in one line.
@@ -139,6 +144,8 @@ pub struct SampleInfo {
     /// Hall scattering factor r_H = mu_H / mu_drift; 1 when unknown.
     pub hall_factor: f64,
     pub geometry: Geometry,
+    /// Calibrations stated for this sample; they take precedence over the call's.
+    pub calibration: Calibration,
 }
 
 impl SampleInfo {
@@ -150,8 +157,66 @@ impl SampleInfo {
             thickness_unc_m: None,
             hall_factor: 1.0,
             geometry: Geometry::VanDerPauw,
+            calibration: Calibration::default(),
         }
     }
+}
+
+/// The calibrations of a measurement, as standard uncertainties: `None` is "not stated",
+/// and then the default below is assumed and the reduction says so. Each one is an error
+/// common to every reading of a sample's series (one gaussmeter, one source, one
+/// voltmeter, one thermometer), so it goes into the systematic part of the budget, never
+/// into the statistical one.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct Calibration {
+    /// Relative standard uncertainty of the field scale (gaussmeter or magnet constant).
+    pub field_rel: Option<f64>,
+    /// Relative standard uncertainty of the current source's scale.
+    pub current_rel: Option<f64>,
+    /// Relative standard uncertainty of the voltmeter's gain.
+    pub voltage_rel: Option<f64>,
+    /// Standard uncertainty of the thermometer's reading of the sample temperature, K.
+    pub temperature_accuracy_k: Option<f64>,
+}
+
+/// Assumed when the field calibration is not stated: 0.5 %, a Hall-probe gaussmeter or a
+/// magnet constant as usually calibrated (common practice).
+pub const DEFAULT_FIELD_CALIBRATION_REL: f64 = 5e-3;
+/// Assumed when the current calibration is not stated: 0.1 %, the accuracy of a precision
+/// current source on its usual ranges (common practice).
+pub const DEFAULT_CURRENT_CALIBRATION_REL: f64 = 1e-3;
+/// Assumed when the voltage calibration is not stated: 0.01 %, the gain accuracy of a
+/// nanovoltmeter or digital multimeter on a millivolt range (common practice).
+pub const DEFAULT_VOLTAGE_CALIBRATION_REL: f64 = 1e-4;
+/// Assumed when the thermometer accuracy is not stated: 0.02 K, a calibrated cryogenic
+/// sensor (common practice).
+pub const DEFAULT_TEMPERATURE_ACCURACY_K: f64 = 0.02;
+
+/// The parameter (and sample-sheet column) names of the calibrations, for messages.
+pub mod calibration_names {
+    pub const THICKNESS: &str = "thickness_m_unc";
+    pub const FIELD: &str = "field_calibration_rel";
+    pub const CURRENT: &str = "current_calibration_rel";
+    pub const VOLTAGE: &str = "voltage_calibration_rel";
+    pub const TEMPERATURE: &str = "temperature_accuracy_K";
+}
+
+/// The calibrations one sample was reduced with, and which of them were assumed.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CalibrationUsed {
+    pub sample: String,
+    /// Relative standard uncertainty of the thickness (0 for a 2D sheet or when not stated).
+    pub thickness_rel: f64,
+    pub field_rel: f64,
+    pub current_rel: f64,
+    pub voltage_rel: f64,
+    pub temperature_accuracy_k: f64,
+    /// Names (see [`calibration_names`]) of the calibrations that were not stated for this
+    /// sample, neither in the sheet nor in the call, and were assumed.
+    pub not_stated: Vec<&'static str>,
+    /// The pooled standard deviation of one reading's voltage over the sample's series, V
+    /// (see the module documentation); `None` when no reading was repeated or redundant.
+    pub reading_noise_v: Option<f64>,
 }
 
 /// Limits of the quality flags. The defaults are common practice, not taken from a standard.
@@ -194,11 +259,14 @@ pub struct ReduceSettings {
     /// Readings whose sorted temperatures are no further apart than this share a row, K.
     /// Default 0.5 K.
     pub temperature_tolerance_k: f64,
-    /// |B| at or below this is zero field, T. Default 1e-4 T (1 G).
+    /// |B| at or below this is zero field, T. Default 1e-2 T (100 G): well above the few mT
+    /// an electromagnet keeps at a nominal zero, well below a Hall field (common practice).
     pub zero_field_tolerance_t: f64,
-    /// Readings whose sorted |B| are no further apart than this share a row, T.
-    /// Default 5e-3 T.
+    /// Width of a field setpoint, T: a row takes the readings whose |B| lie within this of
+    /// its smallest |B|. Default 5e-3 T.
     pub field_tolerance_t: f64,
+    /// Calibrations stated for the whole call (a sample-sheet value takes precedence).
+    pub calibration: Calibration,
     pub thresholds: QualityThresholds,
     /// Drop invalid readings with a warning instead of refusing the input. Default false.
     pub skip_invalid_readings: bool,
@@ -208,8 +276,9 @@ impl Default for ReduceSettings {
     fn default() -> Self {
         ReduceSettings {
             temperature_tolerance_k: 0.5,
-            zero_field_tolerance_t: 1e-4,
+            zero_field_tolerance_t: 1e-2,
             field_tolerance_t: 5e-3,
+            calibration: Calibration::default(),
             thresholds: QualityThresholds::default(),
             skip_invalid_readings: false,
         }
@@ -221,6 +290,29 @@ impl ReduceSettings {
         let non_negative = "give a finite value of 0 or more";
         let positive = "give a finite positive value";
         let thresholds = &self.thresholds;
+        let relative = "give a finite relative standard uncertainty of 0 or more (0.005 is 0.5 %)";
+        let calibration = &self.calibration;
+        let calibration_checks = [
+            (calibration_names::FIELD, calibration.field_rel, relative),
+            (calibration_names::CURRENT, calibration.current_rel, relative),
+            (calibration_names::VOLTAGE, calibration.voltage_rel, relative),
+            (
+                calibration_names::TEMPERATURE,
+                calibration.temperature_accuracy_k,
+                "give a finite standard uncertainty of the thermometer in K, 0 or more",
+            ),
+        ];
+        for (setting, value, requirement) in calibration_checks {
+            if let Some(value) = value {
+                if !(value >= 0.0 && value.is_finite()) {
+                    return Err(ReduceError::InvalidSetting {
+                        setting,
+                        value,
+                        requirement,
+                    });
+                }
+            }
+        }
         let checks: [(&'static str, f64, bool, &'static str); 9] = [
             (
                 "temperature_tolerance_K",
@@ -298,6 +390,9 @@ pub struct ReducedRow {
     pub geometry: &'static str,
     /// Mean temperature of the group, K.
     pub temperature_k: f64,
+    /// Standard uncertainty of that temperature, K: the standard deviation of the group's
+    /// readings' temperatures and the thermometer accuracy in quadrature.
+    pub temperature_k_unc: f64,
     /// max - min of the group's temperatures, K.
     pub temperature_spread_k: f64,
     /// The |B| the Hall quantities refer to, T; `None` without field readings.
@@ -313,9 +408,17 @@ pub struct ReducedRow {
     /// Van der Pauw f of R_s = pi (R_A + R_B) / (2 ln 2) f.
     pub geometry_factor: Option<f64>,
     pub sheet_resistance_ohm_sq: Option<f64>,
+    /// Total standard uncertainty (statistical and systematic in quadrature); likewise every
+    /// `_unc` below.
     pub sheet_resistance_ohm_sq_unc: Option<f64>,
+    /// From the scatter of the readings (Type A).
+    pub sheet_resistance_ohm_sq_unc_stat: Option<f64>,
+    /// From the calibrations, common to every row of the sample (Type B).
+    pub sheet_resistance_ohm_sq_unc_sys: Option<f64>,
     pub resistivity_ohm_m: Option<f64>,
     pub resistivity_ohm_m_unc: Option<f64>,
+    pub resistivity_ohm_m_unc_stat: Option<f64>,
+    pub resistivity_ohm_m_unc_sys: Option<f64>,
     /// R_xy at `field_t`, positive for holes. Ohm.
     pub hall_resistance_ohm: Option<f64>,
     pub hall_resistance_ohm_unc: Option<f64>,
@@ -329,10 +432,16 @@ pub struct ReducedRow {
     pub carrier_type: Option<&'static str>,
     pub sheet_density_m2: Option<f64>,
     pub sheet_density_m2_unc: Option<f64>,
+    pub sheet_density_m2_unc_stat: Option<f64>,
+    pub sheet_density_m2_unc_sys: Option<f64>,
     pub density_m3: Option<f64>,
     pub density_m3_unc: Option<f64>,
+    pub density_m3_unc_stat: Option<f64>,
+    pub density_m3_unc_sys: Option<f64>,
     pub hall_mobility_m2_per_vs: Option<f64>,
     pub hall_mobility_m2_per_vs_unc: Option<f64>,
+    pub hall_mobility_m2_per_vs_unc_stat: Option<f64>,
+    pub hall_mobility_m2_per_vs_unc_sys: Option<f64>,
     /// mu_H / r_H.
     pub drift_mobility_m2_per_vs: Option<f64>,
     pub drift_mobility_m2_per_vs_unc: Option<f64>,
@@ -343,6 +452,8 @@ pub struct ReducedRow {
     pub hall_spread: Option<f64>,
     pub thermoelectric_offset_ratio: Option<f64>,
     pub misalignment_ratio: Option<f64>,
+    /// The pooled standard deviation of one reading's voltage over the sample's series, V.
+    pub reading_noise_v: Option<f64>,
     /// Raised flags, in the order of [`flags::ALL`].
     pub flags: Vec<&'static str>,
     pub quality_ok: bool,
@@ -355,6 +466,8 @@ pub struct Reduction {
     pub warnings: Vec<String>,
     /// Invalid readings dropped under `skip_invalid_readings`.
     pub skipped_readings: usize,
+    /// Per sample, in the order of the rows: the calibrations used and the pooled noise.
+    pub calibrations: Vec<CalibrationUsed>,
 }
 
 /// The readings as borrowed columns, one entry per reading, so that a table can be reduced
@@ -504,7 +617,7 @@ fn reduce_source<S: ReadingSource>(
         rank_of_id[*id as usize] = rank as u32;
     }
     let sorted_names: Vec<&str> = order.iter().map(|id| names[*id as usize]).collect();
-    let resolved = resolve_samples(&sorted_names, samples, &mut warnings)?;
+    let resolved = resolve_samples(&sorted_names, samples, &settings.calibration, &mut warnings)?;
 
     // Validate and canonicalize.
     let mut prepared: Vec<Prepared> = Vec::with_capacity(total);
@@ -547,6 +660,7 @@ fn reduce_source<S: ReadingSource>(
     });
     let mut rows = Vec::new();
     let mut row_warnings = Vec::new();
+    let mut calibrations = Vec::new();
     for sample_range in runs_by_key(&prepared, |reading| reading.sample_rank) {
         let sample_readings = &mut prepared[sample_range];
         let sample = &resolved[sample_readings[0].sample_rank as usize];
@@ -554,15 +668,71 @@ fn reduce_source<S: ReadingSource>(
             sample_readings.iter().map(|reading| reading.temperature_k),
             settings.temperature_tolerance_k,
         );
+        let mut drafts: Vec<(ReducedRow, RowDraft)> = Vec::new();
+        let mut largest_zero_field_t = 0.0_f64;
         for temperature_range in temperature_ranges {
-            reduce_temperature_group(
+            let largest = reduce_temperature_group(
                 &mut sample_readings[temperature_range],
                 sample,
                 settings,
-                &mut rows,
+                &mut drafts,
                 &mut row_warnings,
             );
+            largest_zero_field_t = largest_zero_field_t.max(largest);
         }
+        if largest_zero_field_t > STRICT_ZERO_FIELD_T {
+            warnings.push(format!(
+                "sample {:?}: readings with |B| up to {:.4} T were taken as zero field (zero_field_tolerance_T = {} T), a remanent field at a nominal zero; if they were meant as a Hall field, lower zero_field_tolerance_T",
+                sample.name, largest_zero_field_t, settings.zero_field_tolerance_t
+            ));
+        }
+        // The sample's voltage noise pooled over every row of its series (JCGM 100:2008,
+        // 4.2.8): one voltmeter, so one noise.
+        let mut evidence = NoiseEvidence::default();
+        for (_, draft) in &drafts {
+            evidence.add(draft.evidence);
+        }
+        let reading_noise_v = evidence.pooled_noise_v();
+        for (mut row, draft) in drafts {
+            finish_row(&mut row, &draft, reading_noise_v, &sample.calibration);
+            row.reading_noise_v = reading_noise_v;
+            rows.push(row);
+        }
+        calibrations.push(CalibrationUsed {
+            sample: sample.name.to_owned(),
+            thickness_rel: sample.calibration.thickness_rel,
+            field_rel: sample.calibration.field_rel,
+            current_rel: sample.calibration.current_rel,
+            voltage_rel: sample.calibration.voltage_rel,
+            temperature_accuracy_k: sample.calibration.temperature_accuracy_k,
+            not_stated: sample.not_stated.clone(),
+            reading_noise_v,
+        });
+    }
+    let mut not_stated: Vec<(&'static str, usize)> = Vec::new();
+    for used in &calibrations {
+        for name in &used.not_stated {
+            match not_stated.iter_mut().find(|(known, _)| known == name) {
+                Some((_, count)) => *count += 1,
+                None => not_stated.push((name, 1)),
+            }
+        }
+    }
+    if !not_stated.is_empty() {
+        let listed: Vec<String> = not_stated
+            .iter()
+            .map(|(name, count)| {
+                format!(
+                    "{name} (assumed {}; {count} of {} samples)",
+                    assumed_value(name),
+                    calibrations.len()
+                )
+            })
+            .collect();
+        warnings.push(format!(
+            "calibrations not stated: {}; the *_unc_sys columns rest on these assumptions (common practice); state them as parameters or sample-sheet columns",
+            listed.join(", ")
+        ));
     }
     let row_warning_count = row_warnings.len();
     warnings.extend(row_warnings.into_iter().take(DETAILED_WARNINGS));
@@ -576,6 +746,7 @@ fn reduce_source<S: ReadingSource>(
         rows,
         warnings,
         skipped_readings: skipped,
+        calibrations,
     })
 }
 
@@ -583,17 +754,23 @@ fn reduce_source<S: ReadingSource>(
 fn resolve_samples<'a>(
     names: &[&'a str],
     samples: Option<&'a [SampleInfo]>,
+    call_calibration: &Calibration,
     warnings: &mut Vec<String>,
 ) -> Result<Vec<ResolvedSample<'a>>, ReduceError> {
     let Some(sheet) = samples else {
         return Ok(names
             .iter()
-            .map(|name| ResolvedSample {
-                name,
-                thickness_m: None,
-                thickness_unc_m: None,
-                hall_factor: 1.0,
-                geometry: Geometry::VanDerPauw,
+            .map(|name| {
+                let (calibration, not_stated) =
+                    resolve_calibration(None, None, &Calibration::default(), call_calibration);
+                ResolvedSample {
+                    name,
+                    thickness_m: None,
+                    hall_factor: 1.0,
+                    geometry: Geometry::VanDerPauw,
+                    calibration,
+                    not_stated,
+                }
             })
             .collect());
     };
@@ -628,19 +805,110 @@ fn resolve_samples<'a>(
         .iter()
         .map(|name| {
             let info = by_name[name];
+            let thickness_unc_m = info.thickness_m.and(info.thickness_unc_m);
+            let (calibration, not_stated) =
+                resolve_calibration(info.thickness_m, thickness_unc_m, &info.calibration, call_calibration);
             ResolvedSample {
                 name: info.name.as_str(),
                 thickness_m: info.thickness_m,
-                thickness_unc_m: info.thickness_m.and(info.thickness_unc_m),
                 hall_factor: info.hall_factor,
                 geometry: info.geometry,
+                calibration,
+                not_stated,
             }
         })
         .collect())
 }
 
+/// A sheet value, else the call's, else the default (and the name goes on the not-stated
+/// list).
+fn resolve_calibration(
+    thickness_m: Option<f64>,
+    thickness_unc_m: Option<f64>,
+    sample: &Calibration,
+    call: &Calibration,
+) -> (ResolvedCalibration, Vec<&'static str>) {
+    let mut not_stated = Vec::new();
+    let mut pick = |name: &'static str, sheet: Option<f64>, call: Option<f64>, default: f64| {
+        sheet.or(call).unwrap_or_else(|| {
+            not_stated.push(name);
+            default
+        })
+    };
+    let field_rel = pick(
+        calibration_names::FIELD,
+        sample.field_rel,
+        call.field_rel,
+        DEFAULT_FIELD_CALIBRATION_REL,
+    );
+    let current_rel = pick(
+        calibration_names::CURRENT,
+        sample.current_rel,
+        call.current_rel,
+        DEFAULT_CURRENT_CALIBRATION_REL,
+    );
+    let voltage_rel = pick(
+        calibration_names::VOLTAGE,
+        sample.voltage_rel,
+        call.voltage_rel,
+        DEFAULT_VOLTAGE_CALIBRATION_REL,
+    );
+    let temperature_accuracy_k = pick(
+        calibration_names::TEMPERATURE,
+        sample.temperature_accuracy_k,
+        call.temperature_accuracy_k,
+        DEFAULT_TEMPERATURE_ACCURACY_K,
+    );
+    let thickness_rel = match (thickness_m, thickness_unc_m) {
+        (Some(thickness), Some(unc)) => unc / thickness,
+        (Some(_), None) => {
+            not_stated.push(calibration_names::THICKNESS);
+            0.0
+        }
+        (None, _) => 0.0,
+    };
+    (
+        ResolvedCalibration {
+            thickness_rel,
+            field_rel,
+            current_rel,
+            voltage_rel,
+            temperature_accuracy_k,
+        },
+        not_stated,
+    )
+}
+
+/// The value assumed for a calibration that was not stated, for messages.
+fn assumed_value(name: &str) -> String {
+    match name {
+        calibration_names::FIELD => format!("{DEFAULT_FIELD_CALIBRATION_REL}"),
+        calibration_names::CURRENT => format!("{DEFAULT_CURRENT_CALIBRATION_REL}"),
+        calibration_names::VOLTAGE => format!("{DEFAULT_VOLTAGE_CALIBRATION_REL}"),
+        calibration_names::TEMPERATURE => format!("{DEFAULT_TEMPERATURE_ACCURACY_K} K"),
+        _ => "0".to_owned(),
+    }
+}
+
 fn validate_sample(info: &SampleInfo) -> Result<(), ReduceError> {
     let sample = || info.name.clone();
+    let calibration_columns = [
+        (calibration_names::FIELD, info.calibration.field_rel),
+        (calibration_names::CURRENT, info.calibration.current_rel),
+        (calibration_names::VOLTAGE, info.calibration.voltage_rel),
+        (calibration_names::TEMPERATURE, info.calibration.temperature_accuracy_k),
+    ];
+    for (column, value) in calibration_columns {
+        if let Some(value) = value {
+            if !(value >= 0.0 && value.is_finite()) {
+                return Err(ReduceError::InvalidSampleCalibration {
+                    sample: sample(),
+                    column,
+                    value,
+                });
+            }
+        }
+    }
     if let Some(thickness_m) = info.thickness_m {
         if !(thickness_m > 0.0 && thickness_m.is_finite()) {
             return Err(ReduceError::InvalidThickness {
@@ -724,28 +992,44 @@ fn prepare(view: &ReadingView<'_>, sample_rank: u32, geometry: Geometry) -> Resu
     })
 }
 
-/// Rows of one sample's temperature group: one per nonzero field magnitude, or one without
-/// Hall quantities when the group has no field readings.
+/// |B| up to which a reading is zero field for certain, whatever `zero_field_tolerance_T`
+/// says: readings above it that are taken as zero field are reported in a warning.
+const STRICT_ZERO_FIELD_T: f64 = 1e-4;
+
+/// Rows of one sample's temperature group: one per field setpoint, or one without Hall
+/// quantities when the group has no field readings. Returns the largest |B| taken as zero
+/// field.
 fn reduce_temperature_group(
     readings: &mut [Prepared],
     sample: &ResolvedSample<'_>,
     settings: &ReduceSettings,
-    rows: &mut Vec<ReducedRow>,
+    rows: &mut Vec<(ReducedRow, RowDraft)>,
     warnings: &mut Vec<String>,
-) {
+) -> f64 {
     // Sorted by temperature on entry.
     let count = readings.len() as f64;
     let temperature_k = readings.iter().map(|reading| reading.temperature_k).sum::<f64>() / count;
     let temperature_spread_k = readings[readings.len() - 1].temperature_k - readings[0].temperature_k;
+    let temperature_deviation_k = if readings.len() > 1 {
+        let squares: f64 = readings
+            .iter()
+            .map(|reading| (reading.temperature_k - temperature_k).powi(2))
+            .sum();
+        (squares / (count - 1.0)).sqrt()
+    } else {
+        0.0
+    };
     let group = TemperatureGroup {
         sample,
         temperature_k,
         temperature_spread_k,
+        temperature_deviation_k,
     };
 
     readings.sort_unstable_by(|a, b| a.field_t.abs().total_cmp(&b.field_t.abs()));
     let zero_count = readings.partition_point(|reading| reading.field_t.abs() <= settings.zero_field_tolerance_t);
     let (zero_readings, field_readings) = readings.split_at_mut(zero_count);
+    let largest_zero_field_t = zero_readings.last().map_or(0.0, |reading| reading.field_t.abs());
 
     zero_readings.sort_unstable_by_key(|reading| cell_key(reading, false));
     let mut zero = ZeroFieldCells {
@@ -757,20 +1041,21 @@ fn reduce_temperature_group(
         zero.cells[slot] = Some(summarize_cell(&zero_readings[range]));
     }
 
-    let field_ranges = gap_clusters(
+    let field_ranges = setpoint_clusters(
         field_readings.iter().map(|reading| reading.field_t.abs()),
         settings.field_tolerance_t,
     );
     if field_ranges.is_empty() {
-        rows.push(build_row(&group, &zero, None, &settings.thresholds, warnings));
-        return;
+        rows.push(build_row(&group, &zero, None, settings, warnings));
+        return largest_zero_field_t;
     }
     for field_range in field_ranges {
         let cluster = &mut field_readings[field_range];
         cluster.sort_unstable_by_key(|reading| cell_key(reading, true));
         let field = summarize_field_cluster(cluster);
-        rows.push(build_row(&group, &zero, Some(&field), &settings.thresholds, warnings));
+        rows.push(build_row(&group, &zero, Some(&field), settings, warnings));
     }
+    largest_zero_field_t
 }
 
 fn summarize_field_cluster(cluster: &[Prepared]) -> FieldCells {

@@ -255,6 +255,16 @@ impl HallBarModel {
     }
 }
 
+/// Every calibration stated, as perfect: no assumption, no warning about it.
+fn perfect_instruments() -> Calibration {
+    Calibration {
+        field_rel: Some(0.0),
+        current_rel: Some(0.0),
+        voltage_rel: Some(0.0),
+        temperature_accuracy_k: Some(0.0),
+    }
+}
+
 fn reduce_default(readings: &[RawReading]) -> Reduction {
     reduce(readings, None, &ReduceSettings::default()).expect("valid readings reduce")
 }
@@ -401,6 +411,7 @@ fn hall_bar_check_values() {
         thickness_unc_m: None,
         hall_factor: 1.0,
         geometry: Geometry::HallBar { length_m, width_m },
+        calibration: Calibration::default(),
     };
     let readings = model.readings("bar", 77.0, field_t, current_a);
     let reduction = reduce(&readings, Some(&[sheet]), &ReduceSettings::default()).unwrap();
@@ -500,6 +511,7 @@ fn hall_factor_scales_density_not_hall_mobility() {
         thickness_unc_m: None,
         hall_factor,
         geometry: Geometry::VanDerPauw,
+        calibration: Calibration::default(),
     };
     let settings = ReduceSettings::default();
     let plain = reduce(&readings, Some(&[sheet(1.0)]), &settings).unwrap();
@@ -651,8 +663,18 @@ fn fit_removes_the_offset_of_a_current_sweep() {
     assert_close(row.sheet_resistance_ohm_sq, PI * 10.0 / LN_2, 1e-12, "R_s");
     assert!(row.flags.contains(&flags::NO_CURRENT_REVERSAL));
     assert!(row.flags.contains(&flags::NO_FIELD_DATA));
-    // Four readings on an exact line: the residuals are rounding errors.
-    assert!(row.sheet_resistance_ohm_sq_unc.unwrap() < 1e-12 * row.sheet_resistance_ohm_sq.unwrap());
+    // Four readings on an exact line: the residuals are rounding errors, and the statistical
+    // part is the arithmetic's resolution, never zero.
+    let sheet = row.sheet_resistance_ohm_sq.unwrap();
+    let statistical = row.sheet_resistance_ohm_sq_unc_stat.unwrap();
+    assert!(statistical > 0.0 && statistical <= 2e-12 * sheet, "{statistical}");
+    // The systematic part is the assumed current and voltage calibrations (0.1 % and 0.01 %).
+    assert_close(
+        row.sheet_resistance_ohm_sq_unc_sys,
+        (1e-3f64).hypot(1e-4) * sheet,
+        1e-12,
+        "u_sys(R_s)",
+    );
 }
 
 // ---------------------------------------------------------------- uncertainties
@@ -676,21 +698,31 @@ fn redundant_configurations_give_the_resistance_uncertainty() {
     let sheet = PI * resistance / LN_2;
     assert_close(row.sheet_resistance_ohm_sq, sheet, 1e-12, "R_s");
     assert_close(
-        row.sheet_resistance_ohm_sq_unc,
+        row.sheet_resistance_ohm_sq_unc_stat,
         sheet / (2.0 * resistance) * (u_a * u_a + u_b * u_b).sqrt(),
         1e-9,
-        "u(R_s)",
+        "u_stat(R_s)",
     );
     assert_close(row.reciprocity_mismatch, 2.0 * spread_b, 1e-12, "reciprocity mismatch");
-    // Mobility uncertainty: relative u(R_s) (the Hall part is exact here).
-    let relative = row.sheet_resistance_ohm_sq_unc.unwrap() / sheet;
-    assert_close(
-        row.hall_mobility_m2_per_vs_unc,
-        relative * row.hall_mobility_m2_per_vs.unwrap(),
-        1e-9,
-        "u(mu_H)",
+    // The pooled noise of the row (the spread of the families over the 5 degrees of freedom
+    // of the families and the Hall values) is smaller than the families' own scatter here,
+    // so the row's own scatter stands.
+    let relative = row.sheet_resistance_ohm_sq_unc_stat.unwrap() / sheet;
+    let mobility_relative = row.hall_mobility_m2_per_vs_unc_stat.unwrap() / row.hall_mobility_m2_per_vs.unwrap();
+    assert!(
+        mobility_relative >= relative * (1.0 - 1e-12),
+        "{mobility_relative} vs {relative}"
     );
-    assert!(row.hall_resistance_ohm_unc.unwrap() < 1e-12 * row.hall_resistance_ohm.unwrap());
+    // The Hall values agree exactly, but the same voltmeter measured them: they keep the
+    // pooled noise.
+    assert!(row.hall_resistance_ohm_unc.unwrap() > 0.0);
+    // The mobility's systematic part is the field calibration alone (0.5 % assumed).
+    assert_close(
+        row.hall_mobility_m2_per_vs_unc_sys,
+        5e-3 * row.hall_mobility_m2_per_vs.unwrap(),
+        1e-12,
+        "u_sys(mu_H)",
+    );
 }
 
 #[test]
@@ -703,14 +735,25 @@ fn thickness_uncertainty_enters_volume_quantities_only() {
         thickness_unc_m: Some(0.1e-6),
         hall_factor: 1.0,
         geometry: Geometry::VanDerPauw,
+        calibration: Calibration::default(),
     };
-    let row = reduce(&readings, Some(&[sheet]), &ReduceSettings::default())
-        .unwrap()
-        .rows
-        .remove(0);
+    // Every other calibration stated perfect, so that the thickness stands alone.
+    let settings = ReduceSettings {
+        calibration: perfect_instruments(),
+        ..ReduceSettings::default()
+    };
+    let row = reduce(&readings, Some(&[sheet]), &settings).unwrap().rows.remove(0);
     // Exact readings: the sheet quantities have only rounding scatter.
-    assert!(row.sheet_density_m2_unc.unwrap() < 1e-12 * row.sheet_density_m2.unwrap());
-    assert!(row.hall_mobility_m2_per_vs_unc.unwrap() < 1e-12 * row.hall_mobility_m2_per_vs.unwrap());
+    assert!(row.sheet_density_m2_unc.unwrap() <= 2e-12 * row.sheet_density_m2.unwrap());
+    assert!(row.hall_mobility_m2_per_vs_unc.unwrap() <= 2e-12 * row.hall_mobility_m2_per_vs.unwrap());
+    // The thickness is one error for the whole series: systematic, not statistical.
+    assert!(row.density_m3_unc_stat.unwrap() <= 2e-12 * row.density_m3.unwrap());
+    assert_close(
+        row.density_m3_unc_sys,
+        0.05 * row.density_m3.unwrap(),
+        1e-12,
+        "u_sys(n)",
+    );
     assert_close(row.density_m3_unc, 0.05 * row.density_m3.unwrap(), 1e-12, "u(n)");
     assert_close(
         row.resistivity_ohm_m_unc,
@@ -1081,6 +1124,7 @@ fn many_skipped_readings_are_summarized() {
     readings.extend(std::iter::repeat_n(broken, 50));
     let settings = ReduceSettings {
         skip_invalid_readings: true,
+        calibration: perfect_instruments(),
         ..ReduceSettings::default()
     };
     let reduction = reduce(&readings, None, &settings).unwrap();
@@ -1101,7 +1145,11 @@ fn row_warnings_are_capped() {
             }
         }
     }
-    let reduction = reduce_default(&readings);
+    let settings = ReduceSettings {
+        calibration: perfect_instruments(),
+        ..ReduceSettings::default()
+    };
+    let reduction = reduce(&readings, None, &settings).unwrap();
     assert_eq!(reduction.rows.len(), 30);
     assert!(reduction
         .rows

@@ -89,6 +89,8 @@
 //! and polarity) and walking contiguous slices. O(n log n), no allocation per reading.
 
 mod cells;
+#[cfg(test)]
+mod coverage_tests;
 pub mod error;
 pub mod flags;
 mod row;
@@ -390,9 +392,13 @@ pub struct ReducedRow {
     pub geometry: &'static str,
     /// Mean temperature of the group, K.
     pub temperature_k: f64,
-    /// Standard uncertainty of that temperature, K: the standard deviation of the group's
-    /// readings' temperatures and the thermometer accuracy in quadrature.
+    /// Standard uncertainty of that temperature, K: the thermometer accuracy, in quadrature
+    /// with the standard deviation of the group's readings' temperatures when their drift
+    /// could not be corrected.
     pub temperature_k_unc: f64,
+    /// Whether the readings of a drifting stage were brought to the mean temperature with
+    /// the series' own slopes.
+    pub drift_corrected: bool,
     /// max - min of the group's temperatures, K.
     pub temperature_spread_k: f64,
     /// The |B| the Hall quantities refer to, T; `None` without field readings.
@@ -452,7 +458,8 @@ pub struct ReducedRow {
     pub hall_spread: Option<f64>,
     pub thermoelectric_offset_ratio: Option<f64>,
     pub misalignment_ratio: Option<f64>,
-    /// The pooled standard deviation of one reading's voltage over the sample's series, V.
+    /// The pooled standard deviation of one reading's voltage in this row, V (from the
+    /// residuals of its fits and the spread of its redundant configurations).
     pub reading_noise_v: Option<f64>,
     /// Raised flags, in the order of [`flags::ALL`].
     pub flags: Vec<&'static str>,
@@ -668,18 +675,62 @@ fn reduce_source<S: ReadingSource>(
             sample_readings.iter().map(|reading| reading.temperature_k),
             settings.temperature_tolerance_k,
         );
-        let mut drafts: Vec<(ReducedRow, RowDraft)> = Vec::new();
+        // First pass: every temperature group as measured.
         let mut largest_zero_field_t = 0.0_f64;
-        for temperature_range in temperature_ranges {
+        let mut groups: Vec<Vec<(ReducedRow, RowDraft)>> = Vec::with_capacity(temperature_ranges.len());
+        let mut group_warnings: Vec<Vec<String>> = Vec::with_capacity(temperature_ranges.len());
+        for temperature_range in &temperature_ranges {
+            let mut group_rows = Vec::new();
+            let mut warnings_of_group = Vec::new();
             let largest = reduce_temperature_group(
-                &mut sample_readings[temperature_range],
+                &mut sample_readings[temperature_range.clone()],
                 sample,
                 settings,
-                &mut drafts,
-                &mut row_warnings,
+                None,
+                &mut group_rows,
+                &mut warnings_of_group,
             );
             largest_zero_field_t = largest_zero_field_t.max(largest);
+            groups.push(group_rows);
+            group_warnings.push(warnings_of_group);
         }
+        // Further passes for the groups whose readings drifted: each reading brought to the
+        // group's mean temperature with the series' own slopes, taken from the previous
+        // pass (whose values the drift biased a little; a second correction removes what
+        // the first left).
+        for _ in 0..DRIFT_CORRECTION_PASSES {
+            let slopes = drift_slopes(&groups);
+            let mut any = false;
+            for (index, temperature_range) in temperature_ranges.iter().enumerate() {
+                let readings = &sample_readings[temperature_range.clone()];
+                let drifted = readings
+                    .iter()
+                    .any(|reading| reading.temperature_k != readings[0].temperature_k);
+                let Some(group_slopes) = slopes[index].filter(|_| drifted) else {
+                    continue;
+                };
+                any = true;
+                let mut corrected = readings.to_vec();
+                correct_drift(&mut corrected, group_slopes, sample.geometry);
+                let mut group_rows = Vec::new();
+                let mut warnings_of_group = Vec::new();
+                reduce_temperature_group(
+                    &mut corrected,
+                    sample,
+                    settings,
+                    Some(group_slopes),
+                    &mut group_rows,
+                    &mut warnings_of_group,
+                );
+                groups[index] = group_rows;
+                group_warnings[index] = warnings_of_group;
+            }
+            if !any {
+                break;
+            }
+        }
+        let drafts: Vec<(ReducedRow, RowDraft)> = groups.into_iter().flatten().collect();
+        row_warnings.extend(group_warnings.into_iter().flatten());
         if largest_zero_field_t > STRICT_ZERO_FIELD_T {
             warnings.push(format!(
                 "sample {:?}: readings with |B| up to {:.4} T were taken as zero field (zero_field_tolerance_T = {} T), a remanent field at a nominal zero; if they were meant as a Hall field, lower zero_field_tolerance_T",
@@ -687,15 +738,15 @@ fn reduce_source<S: ReadingSource>(
             ));
         }
         // The sample's voltage noise pooled over every row of its series (JCGM 100:2008,
-        // 4.2.8): one voltmeter, so one noise.
+        // 4.2.8): one voltmeter, so one noise, for the rows with too little evidence of
+        // their own.
         let mut evidence = NoiseEvidence::default();
         for (_, draft) in &drafts {
             evidence.add(draft.evidence);
         }
         let reading_noise_v = evidence.pooled_noise_v();
         for (mut row, draft) in drafts {
-            finish_row(&mut row, &draft, reading_noise_v, &sample.calibration);
-            row.reading_noise_v = reading_noise_v;
+            finish_row(&mut row, &draft, &evidence, &sample.calibration);
             rows.push(row);
         }
         calibrations.push(CalibrationUsed {
@@ -992,6 +1043,100 @@ fn prepare(view: &ReadingView<'_>, sample_rank: u32, geometry: Geometry) -> Resu
     })
 }
 
+/// How many times the readings of a drifting series are brought to their groups' mean
+/// temperatures, each time with the slopes of the previous pass.
+const DRIFT_CORRECTION_PASSES: usize = 2;
+
+/// The logarithmic temperature slopes of one group, per K, that bring its readings to the
+/// group's mean temperature: of the resistances (d ln R_s / dT) and of the Hall
+/// configurations (d ln |R_Hs| / dT).
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct DriftSlopes {
+    resistance_per_k: f64,
+    hall_per_k: f64,
+}
+
+/// The slopes of each temperature group from the previous pass over the series: the
+/// derivative of the parabola in 1/T through ln R_s (or ln |R_Hs|) of the group and of its
+/// two nearest groups that have one (a neighbour on each side, or the two next ones at an
+/// end). In 1/T a thermally activated density is a straight line, which the parabola follows
+/// exactly; a power law in T is followed to second order. `None` for a group without a resistance slope, or without a
+/// Hall slope when it has Hall quantities, and for a series of one temperature.
+fn drift_slopes(groups: &[Vec<(ReducedRow, RowDraft)>]) -> Vec<Option<DriftSlopes>> {
+    fn first_row(group: &[(ReducedRow, RowDraft)]) -> Option<&ReducedRow> {
+        group.first().map(|(row, _)| row)
+    }
+    let points = |value: fn(&ReducedRow) -> Option<f64>| -> Vec<Option<(f64, f64)>> {
+        groups
+            .iter()
+            .map(|group| {
+                let row = first_row(group)?;
+                let value = value(row)?.abs();
+                (value > 0.0 && value.is_finite()).then(|| (1.0 / row.temperature_k, value.ln()))
+            })
+            .collect()
+    };
+    let resistance = points(|row| row.sheet_resistance_ohm_sq);
+    let hall = points(|row| row.sheet_hall_coefficient_m2_per_c);
+    let slope_at = |series: &[Option<(f64, f64)>], index: usize| -> Option<f64> {
+        let centre = series[index]?;
+        let mut before = series[..index].iter().rev().flatten();
+        let mut after = series[index + 1..].iter().flatten();
+        // The two nearest neighbours, one on each side where there is one, so that the
+        // derivative of the parabola through the three points is second-order accurate.
+        let (first, second) = match (before.next(), after.next()) {
+            (Some(low), Some(high)) => (*low, *high),
+            (Some(low), None) => (*low, *before.next()?),
+            (None, Some(high)) => (*high, *after.next()?),
+            (None, None) => return None,
+        };
+        // In x = 1/T, where a thermally activated quantity is a straight line: d/dT = -x^2 d/dx.
+        let slope = -centre.0 * centre.0 * parabola_slope(centre, first, second);
+        slope.is_finite().then_some(slope)
+    };
+    (0..groups.len())
+        .map(|index| {
+            let resistance_per_k = slope_at(&resistance, index)?;
+            let hall_per_k = match hall[index] {
+                Some(_) => slope_at(&hall, index)?,
+                None => 0.0,
+            };
+            Some(DriftSlopes {
+                resistance_per_k,
+                hall_per_k,
+            })
+        })
+        .collect()
+}
+
+/// The derivative at `centre.0` of the parabola through three points (x, y) (Lagrange
+/// interpolation, differentiated).
+fn parabola_slope(centre: (f64, f64), first: (f64, f64), second: (f64, f64)) -> f64 {
+    let (x0, y0) = centre;
+    let (xa, ya) = first;
+    let (xb, yb) = second;
+    y0 * (2.0 * x0 - xa - xb) / ((x0 - xa) * (x0 - xb))
+        + ya * (x0 - xb) / ((xa - x0) * (xa - xb))
+        + yb * (x0 - xa) / ((xb - x0) * (xb - xa))
+}
+
+/// Brings every reading of a group to the group's mean temperature T: V x exp(s (T - T_k))
+/// with s the Hall slope on a Hall configuration and the resistance slope on the others.
+/// The offsets and the misalignment are scaled with it, which is harmless: both cancel in
+/// the fits and the field-odd parts, and the factor differs from 1 by s (T - T_k), a few
+/// parts in a thousand at most.
+fn correct_drift(readings: &mut [Prepared], slopes: DriftSlopes, geometry: Geometry) {
+    let mean_k = readings.iter().map(|reading| reading.temperature_k).sum::<f64>() / readings.len() as f64;
+    for reading in readings {
+        let slope = if row::is_hall_slot(geometry, reading.slot as usize) {
+            slopes.hall_per_k
+        } else {
+            slopes.resistance_per_k
+        };
+        reading.voltage_v *= (slope * (mean_k - reading.temperature_k)).exp();
+    }
+}
+
 /// |B| up to which a reading is zero field for certain, whatever `zero_field_tolerance_T`
 /// says: readings above it that are taken as zero field are reported in a warning.
 const STRICT_ZERO_FIELD_T: f64 = 1e-4;
@@ -1003,27 +1148,36 @@ fn reduce_temperature_group(
     readings: &mut [Prepared],
     sample: &ResolvedSample<'_>,
     settings: &ReduceSettings,
+    drift_correction: Option<DriftSlopes>,
     rows: &mut Vec<(ReducedRow, RowDraft)>,
     warnings: &mut Vec<String>,
 ) -> f64 {
-    // Sorted by temperature on entry.
     let count = readings.len() as f64;
     let temperature_k = readings.iter().map(|reading| reading.temperature_k).sum::<f64>() / count;
-    let temperature_spread_k = readings[readings.len() - 1].temperature_k - readings[0].temperature_k;
-    let temperature_deviation_k = if readings.len() > 1 {
+    let (coldest_k, warmest_k) = readings
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(low, high), reading| {
+            (low.min(reading.temperature_k), high.max(reading.temperature_k))
+        });
+    let temperature_spread_k = warmest_k - coldest_k;
+    // A drift the second pass corrected no longer enters to first order. Without a
+    // correction (one temperature, or no slope to correct with), the row's quantities refer
+    // to some temperature within the readings' spread: their standard deviation.
+    let temperature_reading_unc_k = if drift_correction.is_some() || readings.len() < 2 {
+        0.0
+    } else {
         let squares: f64 = readings
             .iter()
             .map(|reading| (reading.temperature_k - temperature_k).powi(2))
             .sum();
         (squares / (count - 1.0)).sqrt()
-    } else {
-        0.0
     };
     let group = TemperatureGroup {
         sample,
         temperature_k,
         temperature_spread_k,
-        temperature_deviation_k,
+        temperature_reading_unc_k,
+        drift_corrected: drift_correction.is_some(),
     };
 
     readings.sort_unstable_by(|a, b| a.field_t.abs().total_cmp(&b.field_t.abs()));

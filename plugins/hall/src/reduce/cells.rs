@@ -177,6 +177,10 @@ pub(super) struct CellSummary {
     pub fit: LineFit,
     /// Mean of V_c / I_c per current polarity: `[positive, negative]` canonical current.
     pub polarity: [Option<Estimate>; 2],
+    /// Mean |B| of the readings of each polarity, T (0 when the polarity is absent): the
+    /// Hall step divides each polarity's field-odd part by its own field, so that a setpoint
+    /// that wanders between readings neither biases R_Hs nor passes for voltage noise.
+    pub polarity_field_t: [f64; 2],
     /// The residuals of the cell's fit: what its readings say about their noise.
     pub noise: NoiseEvidence,
 }
@@ -278,9 +282,23 @@ pub(super) fn summarize_cell(readings: &[Prepared]) -> CellSummary {
     };
     let positive = ratio_mean(readings.iter().filter(|reading| reading.current_a > 0.0));
     let negative = ratio_mean(readings.iter().filter(|reading| reading.current_a < 0.0));
+    let mean_field = |positive_current: bool| {
+        let (sum, count) = readings
+            .iter()
+            .filter(|reading| (reading.current_a > 0.0) == positive_current)
+            .fold((0.0, 0usize), |(sum, count), reading| {
+                (sum + reading.field_t.abs(), count + 1)
+            });
+        if count > 0 {
+            sum / count as f64
+        } else {
+            0.0
+        }
+    };
     CellSummary {
         fit,
         polarity: [positive, negative],
+        polarity_field_t: [mean_field(true), mean_field(false)],
         noise,
     }
 }

@@ -102,21 +102,43 @@ pub(super) struct Budget {
     pub systematic: Option<f64>,
 }
 
+/// The standard deviation of a Student t variable with `degrees_of_freedom` over its scale,
+/// sqrt(nu / (nu - 2)): the factor that turns a scatter evaluated on few degrees of freedom
+/// into a standard uncertainty (JCGM 101:2008, 6.4.9.4, where a Type A evaluation is
+/// assigned a scaled and shifted t distribution). `None` below 3 degrees of freedom, where
+/// that variance is infinite.
+pub(super) fn student_factor(degrees_of_freedom: usize) -> Option<f64> {
+    (degrees_of_freedom >= 3).then(|| {
+        let nu = degrees_of_freedom as f64;
+        (nu / (nu - 2.0)).sqrt()
+    })
+}
+
 impl RowDraft {
-    /// The budget of one quantity: the statistical part is the larger of the row's own
-    /// scatter and the pooled noise times the noise coefficient; the systematic part the
-    /// calibrations; the total their quadrature sum.
-    pub fn budget(&self, quantity: Quantity, pooled_noise_v: Option<f64>, calibration: &ResolvedCalibration) -> Budget {
+    /// The budget of one quantity. The statistical part is the noise coefficient times the
+    /// row's own pooled reading noise, widened by [`student_factor`] of its degrees of
+    /// freedom; a row with fewer than 3 degrees of freedom borrows the noise pooled over its
+    /// sample's whole series (`series_evidence`), and with fewer than 3 there as well keeps
+    /// its own scatter-based standard error. The systematic part is the calibrations; the
+    /// total their quadrature sum.
+    pub fn budget(
+        &self,
+        quantity: Quantity,
+        series_evidence: &NoiseEvidence,
+        calibration: &ResolvedCalibration,
+    ) -> Budget {
         let index = Quantity::ALL.iter().position(|q| *q == quantity).expect("listed");
         let Some(estimate) = self.estimates[index] else {
             return Budget::default();
         };
-        let pooled = pooled_noise_v.map(|noise| noise * estimate.noise_coefficient);
-        let statistical = match (estimate.standard_error, pooled) {
-            (Some(local), Some(pooled)) => Some(local.max(pooled)),
-            (one, other) => one.or(other),
-        }
-        .map(|u| u.max(ARITHMETIC_RELATIVE_RESOLUTION * estimate.value.abs()));
+        let pooled = |evidence: &NoiseEvidence| {
+            let factor = student_factor(evidence.degrees_of_freedom)?;
+            Some(evidence.pooled_noise_v()? * factor * estimate.noise_coefficient)
+        };
+        let statistical = pooled(&self.evidence)
+            .or_else(|| pooled(series_evidence))
+            .or(estimate.standard_error)
+            .map(|u| u.max(ARITHMETIC_RELATIVE_RESOLUTION * estimate.value.abs()));
         let systematic = Some(quantity.systematic_relative(calibration) * estimate.value.abs());
         let total = statistical.map(|stat| stat.hypot(systematic.unwrap_or(0.0)));
         Budget {
@@ -158,6 +180,11 @@ const HALL_BAR_LAYOUT: Layout = Layout {
     hall_slots: [2, 3],
 };
 
+/// Whether a configuration slot of the geometry is a Hall configuration.
+pub(super) fn is_hall_slot(geometry: Geometry, slot: usize) -> bool {
+    layout(geometry).hall_slots.contains(&slot)
+}
+
 fn layout(geometry: Geometry) -> &'static Layout {
     match geometry {
         Geometry::VanDerPauw => &VAN_DER_PAUW_LAYOUT,
@@ -185,8 +212,11 @@ pub(super) struct TemperatureGroup<'a> {
     pub sample: &'a ResolvedSample<'a>,
     pub temperature_k: f64,
     pub temperature_spread_k: f64,
-    /// Standard deviation of the group's readings' temperatures, K.
-    pub temperature_deviation_k: f64,
+    /// The part of the temperature uncertainty from the readings' spread, K (0 when the
+    /// drift was corrected).
+    pub temperature_reading_unc_k: f64,
+    /// Whether the readings were brought to the mean temperature (second pass).
+    pub drift_corrected: bool,
 }
 
 /// The raised flags of a row, kept in the order of [`flags::ALL`].
@@ -421,8 +451,9 @@ pub(super) fn build_row(
         temperature_k: group.temperature_k,
         temperature_spread_k: group.temperature_spread_k,
         temperature_k_unc: group
-            .temperature_deviation_k
+            .temperature_reading_unc_k
             .hypot(sample.calibration.temperature_accuracy_k),
+        drift_corrected: group.drift_corrected,
         field_t,
         reading_count,
         resistance_a_ohm: resistance.resistance_a_ohm,
@@ -475,10 +506,11 @@ pub(super) fn build_row(
 pub(super) fn finish_row(
     row: &mut ReducedRow,
     draft: &RowDraft,
-    pooled_noise_v: Option<f64>,
+    series_evidence: &NoiseEvidence,
     calibration: &ResolvedCalibration,
 ) {
-    let budget = |quantity| draft.budget(quantity, pooled_noise_v, calibration);
+    row.reading_noise_v = draft.evidence.pooled_noise_v();
+    let budget = |quantity| draft.budget(quantity, series_evidence, calibration);
     let sheet = budget(Quantity::SheetResistance);
     row.sheet_resistance_ohm_sq_unc = sheet.total;
     row.sheet_resistance_ohm_sq_unc_stat = sheet.statistical;
@@ -727,10 +759,18 @@ fn hall_resistance<'a>(
         let mut even_parts: Vec<f64> = Vec::with_capacity(2);
         for polarity in 0..2 {
             if let (Some(at_plus), Some(at_minus)) = (plus.polarity[polarity], minus.polarity[polarity]) {
+                // (R(+B1) - R(-B2)) / (B1 + B2) is R_Hs whatever the two fields; times the
+                // row's field it is the Hall resistance at that field.
+                let field_sum = plus.polarity_field_t[polarity] + minus.polarity_field_t[polarity];
+                let scale = if field_sum > 0.0 {
+                    field.field_t / field_sum
+                } else {
+                    0.5
+                };
                 odd_parts.push(Estimate {
-                    value: 0.5 * (at_plus.value - at_minus.value),
-                    standard_error: quadrature(&[at_plus.standard_error, at_minus.standard_error]).map(|u| 0.5 * u),
-                    noise_coefficient: 0.5 * at_plus.noise_coefficient.hypot(at_minus.noise_coefficient),
+                    value: scale * (at_plus.value - at_minus.value),
+                    standard_error: quadrature(&[at_plus.standard_error, at_minus.standard_error]).map(|u| scale * u),
+                    noise_coefficient: scale * at_plus.noise_coefficient.hypot(at_minus.noise_coefficient),
                 });
                 even_parts.push(0.5 * (at_plus.value + at_minus.value));
             }

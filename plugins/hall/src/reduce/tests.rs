@@ -692,21 +692,23 @@ fn redundant_configurations_give_the_resistance_uncertainty() {
     let row = reduce_default(&nist_readings(&model, "s", 300.0, 1.0, 1e-3))
         .rows
         .remove(0);
-    // Two values a (1 +- d): standard error of their mean a d; each two-point fit has no
-    // residual degree of freedom and adds nothing.
-    let (u_a, u_b) = (resistance * spread_a, resistance * spread_b);
     let sheet = PI * resistance / LN_2;
     assert_close(row.sheet_resistance_ohm_sq, sheet, 1e-12, "R_s");
+    // The statistical part pools the row's evidence about its voltage noise: each family's
+    // two estimates (weights 2 I^2, the two-reading fits' 1 / c^2) give 4 I^2 R^2 d^2 on one
+    // degree of freedom, the four Hall values agree exactly on three more. So
+    // sigma_V^2 = 4 I^2 R^2 (d_A^2 + d_B^2) / 5; with the noise coefficient of R_s,
+    // R_s / (2 sqrt(2) R I), and the Student factor sqrt(5/3) (JCGM 101:2008, 6.4.9.4):
+    // u_stat(R_s) = R_s sqrt((d_A^2 + d_B^2) / 6). The scatter of the families alone
+    // would give R_s sqrt(d_A^2 + d_B^2) / 2 (first-order propagation through the exact
+    // van der Pauw gradient; for R_A = R_B the partial derivatives are R_s / 2R each).
     assert_close(
         row.sheet_resistance_ohm_sq_unc_stat,
-        sheet / (2.0 * resistance) * (u_a * u_a + u_b * u_b).sqrt(),
+        sheet * ((spread_a * spread_a + spread_b * spread_b) / 6.0).sqrt(),
         1e-9,
         "u_stat(R_s)",
     );
     assert_close(row.reciprocity_mismatch, 2.0 * spread_b, 1e-12, "reciprocity mismatch");
-    // The pooled noise of the row (the spread of the families over the 5 degrees of freedom
-    // of the families and the Hall values) is smaller than the families' own scatter here,
-    // so the row's own scatter stands.
     let relative = row.sheet_resistance_ohm_sq_unc_stat.unwrap() / sheet;
     let mobility_relative = row.hall_mobility_m2_per_vs_unc_stat.unwrap() / row.hall_mobility_m2_per_vs.unwrap();
     assert!(

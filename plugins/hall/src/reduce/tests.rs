@@ -1369,6 +1369,357 @@ fn columns_and_structs_give_the_same_reduction() {
     );
 }
 
+// ---------------------------------------------------------------- real setups
+
+/// The forward model's readings of a lab (remanence, wander, drift as asked) for a sample
+/// whose sheet density freezes out with 12 meV and whose mobility goes as T^-1.5 (invented).
+mod real_setups {
+    use mobilis_core::constants::{BOLTZMANN_EV_PER_K, ELEMENTARY_CHARGE_C};
+    use mobilis_core::forward::readings::{
+        lab_van_der_pauw_series, LabConditions, MeasurementProtocol, VanDerPauwSample, VoltageNoise,
+    };
+    use mobilis_core::forward::ForwardError;
+    use mobilis_core::noise::Rng;
+
+    use super::super::*;
+    use super::assert_close;
+
+    fn sheet_density_m2(temperature_k: f64) -> f64 {
+        5e15 * (-(0.012 / BOLTZMANN_EV_PER_K) * (1.0 / temperature_k - 1.0 / 300.0)).exp()
+    }
+
+    fn mobility(temperature_k: f64) -> f64 {
+        0.2 * (temperature_k / 300.0).powf(-1.5)
+    }
+
+    fn sheet_resistance(temperature_k: f64) -> f64 {
+        1.0 / (ELEMENTARY_CHARGE_C * sheet_density_m2(temperature_k) * mobility(temperature_k))
+    }
+
+    fn layer_at(temperature_k: f64) -> Result<VanDerPauwSample, ForwardError> {
+        let sheet = sheet_resistance(temperature_k);
+        let mut sample = VanDerPauwSample::ideal(
+            "layer",
+            temperature_k,
+            sheet,
+            1.1,
+            -1.0 / (ELEMENTARY_CHARGE_C * sheet_density_m2(temperature_k)),
+        );
+        sample.thermoelectric_offsets_v = [3e-6, -2e-6, 1e-6, 4e-6, -3e-6, 2e-6];
+        sample.hall_misalignment_ohm = [0.03 * sheet, -0.03 * sheet];
+        Ok(sample)
+    }
+
+    fn setpoints() -> Vec<f64> {
+        (0..16).map(|i| 30.0 + 18.0 * i as f64).collect()
+    }
+
+    fn series(lab: &LabConditions, noise_v: f64) -> Vec<RawReading> {
+        let protocol = MeasurementProtocol {
+            noise: VoltageNoise {
+                absolute_v: noise_v,
+                relative: 0.0,
+            },
+            ..MeasurementProtocol::van_der_pauw(1e-6, vec![0.5]).with_resistance_at_zero_and_hall_in_field()
+        };
+        lab_van_der_pauw_series(&setpoints(), layer_at, &protocol, lab, &mut Rng::seeded(12))
+            .expect("valid series")
+            .readings
+    }
+
+    fn sheet(thickness_m: f64) -> SampleInfo {
+        SampleInfo {
+            thickness_m: Some(thickness_m),
+            ..SampleInfo::van_der_pauw_sheet("layer")
+        }
+    }
+
+    /// Checks one row per setpoint, free of flags, with rho and mu at the row's temperature.
+    #[track_caller]
+    fn assert_one_clean_row_per_temperature(reduction: &Reduction, relative: f64) {
+        assert_eq!(reduction.rows.len(), 16, "one row per temperature");
+        for row in &reduction.rows {
+            assert!(row.flags.is_empty(), "{:?} at {} K", row.flags, row.temperature_k);
+            let t = row.temperature_k;
+            assert_close(row.resistivity_ohm_m, sheet_resistance(t) * 1e-6, relative, "rho");
+            assert_close(row.hall_mobility_m2_per_vs, mobility(t), relative, "mu_H");
+            assert_close(row.sheet_density_m2, sheet_density_m2(t), relative, "n_s");
+        }
+    }
+
+    #[test]
+    fn three_millitesla_of_remanence_give_one_row_per_temperature() {
+        let lab = LabConditions {
+            remanent_field_t: 3e-3,
+            autorange: Some(mobilis_core::forward::readings::Autorange::TYPICAL),
+            ..LabConditions::IDEAL
+        };
+        let readings = series(&lab, 1e-7);
+        let reduction = reduce(&readings, Some(&[sheet(1e-6)]), &ReduceSettings::default()).unwrap();
+        // 1e-7 V on about 10 mV: 1e-5 relative per reading.
+        assert_one_clean_row_per_temperature(&reduction, 1e-4);
+        let named = reduction
+            .warnings
+            .iter()
+            .find(|warning| warning.contains("taken as zero field"))
+            .expect("the remanence is reported");
+        assert!(
+            named.contains("zero_field_tolerance_T") && named.contains("0.0030"),
+            "{named}"
+        );
+        // With a 1 G zero-field window the remanent readings become a field of their own:
+        // rows split, and every such row's warning names the parameters to widen.
+        let strict = ReduceSettings {
+            zero_field_tolerance_t: 1e-4,
+            ..ReduceSettings::default()
+        };
+        let split = reduce(&readings, Some(&[sheet(1e-6)]), &strict).unwrap();
+        assert_eq!(split.rows.len(), 32);
+        assert!(split
+            .warnings
+            .iter()
+            .any(|warning| warning.contains("zero_field_tolerance_T") && warning.contains("field_tolerance_T")));
+    }
+
+    #[test]
+    fn wandering_field_setpoints_give_one_row_and_the_right_hall_coefficient() {
+        let lab = LabConditions {
+            remanent_field_t: -2e-3,
+            field_wander_t: 4e-4,
+            ..LabConditions::IDEAL
+        };
+        // Noise-free: what remains is the reduction's own error. Each polarity's field-odd
+        // part is divided by its own fields, so the wander leaves no trace.
+        let reduction = reduce(&series(&lab, 0.0), Some(&[sheet(1e-6)]), &ReduceSettings::default()).unwrap();
+        assert_one_clean_row_per_temperature(&reduction, 1e-9);
+    }
+
+    #[test]
+    fn a_drifting_stage_is_brought_to_the_mean_temperature() {
+        let lab = LabConditions {
+            stage_drift_k: 0.03,
+            ..LabConditions::IDEAL
+        };
+        let readings = series(&lab, 0.0);
+        let reduction = reduce(&readings, Some(&[sheet(1e-6)]), &ReduceSettings::default()).unwrap();
+        // At 30 K, d ln n_s / dT = 0.15 per K and the readings spread over about 0.13 K: of
+        // order a percent off before the correction, a few parts in 1e5 after it (what is
+        // left is the second order: the parabola's error in the series' slope, largest at
+        // the coldest end where the parabola is one-sided, and the misalignment corrected
+        // with the Hall slope).
+        assert_one_clean_row_per_temperature(&reduction, 3e-4);
+        assert!(reduction.rows.iter().all(|row| row.drift_corrected));
+        // The thermometer accuracy alone remains (0.02 K assumed).
+        assert!(reduction
+            .rows
+            .iter()
+            .all(|row| (row.temperature_k_unc - 0.02).abs() < 1e-15));
+    }
+
+    /// 40 000 Hall readings logged along a ramp to +-1 T, 1e-4 T apart, far closer than
+    /// field_tolerance_T: setpoints of at most 5 mT each, never one chained cluster.
+    #[test]
+    fn a_densely_logged_ramp_keeps_its_field_range() {
+        let model = super::VanDerPauwModel::symmetric(100.0, -250.0);
+        let mut readings: Vec<RawReading> = super::NIST_RESISTANCE_CONTACTS
+            .iter()
+            .map(|contacts| model.reading("ramp", 4.2, 0.0, *contacts, 1e-4))
+            .collect();
+        for step in 1..=10_000 {
+            let field = 1e-4 * step as f64;
+            for signed in [field, -field] {
+                for offset in 0..2 {
+                    let contacts = super::NIST_HALL_CONTACTS[(2 * step + offset) % 4];
+                    readings.push(model.reading("ramp", 4.2, signed, contacts, 1e-4));
+                }
+            }
+        }
+        assert_eq!(readings.len(), 40_008);
+        let reduction = super::reduce_default(&readings);
+        let fields: Vec<f64> = reduction.rows.iter().map(|row| row.field_t.unwrap()).collect();
+        // The ramp from 0.0101 T (the first above the 0.01 T zero-field window) to 1 T in
+        // pieces 5 mT wide: 198 of them.
+        assert!((197..=199).contains(&fields.len()), "{} rows", fields.len());
+        assert!(
+            fields[0] < 0.016 && *fields.last().unwrap() > 0.99,
+            "{:?}",
+            (fields[0], fields.last())
+        );
+        for row in &reduction.rows {
+            assert_close(row.sheet_hall_coefficient_m2_per_c, -250.0, 1e-9, "R_Hs");
+        }
+    }
+
+    #[test]
+    fn calibrations_make_the_systematic_part_and_are_reported() {
+        let readings = series(&LabConditions::IDEAL, 1e-7);
+        let stated = SampleInfo {
+            thickness_unc_m: Some(0.03e-6),
+            calibration: Calibration {
+                field_rel: Some(0.02),
+                ..Calibration::default()
+            },
+            ..sheet(1e-6)
+        };
+        let settings = ReduceSettings {
+            calibration: Calibration {
+                field_rel: Some(0.01),
+                current_rel: Some(0.002),
+                voltage_rel: Some(0.001),
+                temperature_accuracy_k: Some(0.05),
+            },
+            ..ReduceSettings::default()
+        };
+        let reduction = reduce(&readings, Some(&[stated]), &settings).unwrap();
+        assert!(reduction.calibrations[0].not_stated.is_empty());
+        assert!(!reduction.warnings.iter().any(|w| w.contains("not stated")));
+        // First-order budget (JCGM 100:2008, 5.1.6, relative form for products and
+        // quotients): R = V/I; R_Hs = R_xy / B; rho = R_s t; n = n_s / t; mu_H = R_Hs / R_s,
+        // in which voltage and current cancel. The sheet's field calibration (2 %)
+        // overrides the call's (1 %).
+        let (voltage, current, field, thickness) = (0.001f64, 0.002f64, 0.02f64, 0.03f64);
+        let electrical = voltage.hypot(current);
+        for row in &reduction.rows {
+            let check = |value: Option<f64>, systematic: Option<f64>, relative: f64, what: &str| {
+                assert_close(systematic, relative * value.unwrap().abs(), 1e-12, what);
+            };
+            check(
+                row.sheet_resistance_ohm_sq,
+                row.sheet_resistance_ohm_sq_unc_sys,
+                electrical,
+                "R_s",
+            );
+            check(
+                row.resistivity_ohm_m,
+                row.resistivity_ohm_m_unc_sys,
+                electrical.hypot(thickness),
+                "rho",
+            );
+            check(
+                row.sheet_density_m2,
+                row.sheet_density_m2_unc_sys,
+                electrical.hypot(field),
+                "n_s",
+            );
+            check(
+                row.density_m3,
+                row.density_m3_unc_sys,
+                electrical.hypot(field).hypot(thickness),
+                "n",
+            );
+            check(
+                row.hall_mobility_m2_per_vs,
+                row.hall_mobility_m2_per_vs_unc_sys,
+                field,
+                "mu_H",
+            );
+            // The total is the quadrature sum; the statistical part is the scatter's.
+            let total = row.density_m3_unc_stat.unwrap().hypot(row.density_m3_unc_sys.unwrap());
+            assert_close(row.density_m3_unc, total, 1e-12, "u(n)");
+            assert!(row.density_m3_unc_stat.unwrap() < 1e-3 * row.density_m3.unwrap());
+            assert_close(Some(row.temperature_k_unc), 0.05, 1e-12, "u(T)");
+        }
+
+        // Nothing stated: the defaults are assumed, listed and warned about by name.
+        let reduction = reduce(&readings, Some(&[sheet(1e-6)]), &ReduceSettings::default()).unwrap();
+        assert_eq!(
+            reduction.calibrations[0].not_stated,
+            vec![
+                calibration_names::FIELD,
+                calibration_names::CURRENT,
+                calibration_names::VOLTAGE,
+                calibration_names::TEMPERATURE,
+                calibration_names::THICKNESS
+            ]
+        );
+        let warning = reduction
+            .warnings
+            .iter()
+            .find(|w| w.starts_with("calibrations not stated"))
+            .expect("a warning lists the assumptions");
+        assert!(warning.contains("field_calibration_rel (assumed 0.005"), "{warning}");
+        assert!(warning.contains("temperature_accuracy_K (assumed 0.02 K"), "{warning}");
+    }
+
+    #[test]
+    fn bad_calibrations_are_refused_with_their_names() {
+        let readings = series(&LabConditions::IDEAL, 1e-7);
+        let cases: [(Calibration, &str); 4] = [
+            (
+                Calibration {
+                    field_rel: Some(-0.01),
+                    ..Calibration::default()
+                },
+                "field_calibration_rel",
+            ),
+            (
+                Calibration {
+                    current_rel: Some(f64::NAN),
+                    ..Calibration::default()
+                },
+                "current_calibration_rel",
+            ),
+            (
+                Calibration {
+                    voltage_rel: Some(f64::INFINITY),
+                    ..Calibration::default()
+                },
+                "voltage_calibration_rel",
+            ),
+            (
+                Calibration {
+                    temperature_accuracy_k: Some(-1.0),
+                    ..Calibration::default()
+                },
+                "temperature_accuracy_K",
+            ),
+        ];
+        for (calibration, name) in cases {
+            let settings = ReduceSettings {
+                calibration,
+                ..ReduceSettings::default()
+            };
+            let message = reduce(&readings, None, &settings).unwrap_err().to_string();
+            assert!(message.starts_with(&format!("setting {name} is ")), "{message}");
+            assert!(!message.ends_with('.'), "{message}");
+            let in_sheet = SampleInfo {
+                calibration,
+                ..sheet(1e-6)
+            };
+            let message = reduce(&readings, Some(&[in_sheet]), &ReduceSettings::default())
+                .unwrap_err()
+                .to_string();
+            assert!(
+                message.starts_with(&format!("{name} of sample \"layer\" is ")),
+                "{message}"
+            );
+        }
+    }
+
+    #[test]
+    fn a_single_drifting_temperature_reports_the_spread_of_its_readings() {
+        let model = super::VanDerPauwModel::symmetric(100.0, 50.0);
+        let mut readings = Vec::new();
+        for temperature in [300.0, 300.2, 300.4] {
+            readings.extend(super::nist_readings(&model, "s", temperature, 0.5, 1e-3));
+        }
+        let settings = ReduceSettings {
+            calibration: Calibration {
+                temperature_accuracy_k: Some(0.1),
+                ..Calibration::default()
+            },
+            ..ReduceSettings::default()
+        };
+        let row = reduce(&readings, None, &settings).unwrap().rows.remove(0);
+        // No neighbouring temperature to take a slope from: no correction, and the
+        // readings' standard deviation (16 readings at each of three temperatures 0.2 K
+        // apart: sqrt(32 x 0.04 / 47)) joins the thermometer's 0.1 K.
+        assert!(!row.drift_corrected);
+        let deviation = (32.0f64 * 0.04 / 47.0).sqrt();
+        assert_close(Some(row.temperature_k_unc), deviation.hypot(0.1), 1e-9, "u(T)");
+    }
+}
+
 // ---------------------------------------------------------------- property test
 
 /// Readings generated by the shared forward model (mobilis-core `forward::readings`) from known

@@ -121,8 +121,8 @@ fn params_schema() -> serde_json::Value {
         "additionalProperties": false,
         "properties": {
             "temperature_tolerance_K": number(settings.temperature_tolerance_k, "readings whose sorted temperatures are no further apart than this share a row, K"),
-            "zero_field_tolerance_T": number(settings.zero_field_tolerance_t, "|B| at or below this counts as zero field, T"),
-            "field_tolerance_T": number(settings.field_tolerance_t, "readings whose sorted |B| are no further apart than this share a row, T"),
+            "zero_field_tolerance_T": number(settings.zero_field_tolerance_t, "|B| at or below this counts as zero field, T: wide enough for the few mT of remanence an electromagnet keeps at a nominal zero (common practice); lower it for a Hall field below 10 mT"),
+            "field_tolerance_T": number(settings.field_tolerance_t, "width of a field setpoint, T: a row takes the readings whose |B| lie within this of its smallest |B|, so a densely logged ramp is cut into setpoints rather than chained into one row"),
             "reciprocity_tolerance": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.reciprocity_tolerance, "description": "flag `reciprocity` above this |direct - reciprocal| / mean (common practice)"},
             "max_resistance_ratio": {"type": "number", "minimum": 1, "default": thresholds.max_resistance_ratio, "description": "flag `resistance_ratio` above this max(R_A/R_B, R_B/R_A) (common practice)"},
             "hall_spread_tolerance": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.hall_spread_tolerance, "description": "flag `hall_inconsistent` above this (max - min) / |mean| of the Hall resistances (common practice)"},
@@ -420,6 +420,12 @@ const OUTPUT: &[(&str, Option<&str>, &str, Getter)] = &[
         Getter::Float(|r| r.misalignment_ratio),
     ),
     (
+        "drift_corrected",
+        None,
+        "true when the readings of a drifting stage were brought to the group's mean temperature with the series' own slopes",
+        Getter::Flag(|r| r.drift_corrected),
+    ),
+    (
         "reading_noise_V",
         Some("V"),
         "pooled standard deviation of one reading's voltage over the sample's series",
@@ -582,7 +588,7 @@ impl Analysis for HallReduce {
         AnalysisDeclaration {
             name: String::new(),
             summary: "Raw van der Pauw or Hall-bar readings to sheet resistance, resistivity, carrier type, density and Hall mobility per sample, temperature and field".into(),
-            description: "Resistances from whichever configurations are present (current reversal by source sign or swapped leads), sheet resistance from van der Pauw's exact equation, Hall coefficient from the field-odd part of the diagonal (or transverse) configurations, so thermoelectric and misalignment offsets cancel. Uncertainties from the spread of redundant configurations and fit residuals; quality flags with configurable thresholds. Contact numbering: counterclockwise 1-4 seen from the +B side (van der Pauw); 1-6 for Hall bars as described in DEVELOPERS.md.".into(),
+            description: "Resistances from whichever configurations are present (current reversal by source sign or swapped leads), sheet resistance from van der Pauw's exact equation, Hall coefficient from the field-odd part of the diagonal (or transverse) configurations, so thermoelectric and misalignment offsets cancel. Uncertainty budget: _unc is the total, _unc_stat the reading noise pooled over the row's fit residuals and redundant configurations, _unc_sys the calibrations (thickness, field, current, voltage) common to a sample's series; temperature_K_unc the thermometer accuracy. Readings of a drifting stage are brought to the mean temperature; |B| up to zero_field_tolerance_T (10 mT) is zero field; field setpoints are never wider than field_tolerance_T. Quality flags with configurable thresholds. Contact numbering: counterclockwise 1-4 seen from the +B side (van der Pauw); 1-6 for Hall bars as described in DEVELOPERS.md.".into(),
             params: params_schema(),
             inputs: vec![
                 InputRole {
@@ -733,3 +739,147 @@ impl Analysis for HallReduce {
 }
 
 mobilis_core::export_plugin!(name: "hall", analyses: [HallReduce]);
+
+#[cfg(test)]
+mod tests {
+    //! The table glue: calibration parameters and sample-sheet columns in, budget columns and
+    //! summary keys out, through the SDK without the C boundary.
+
+    use super::*;
+    use mobilis_core::forward::readings::{van_der_pauw_readings, MeasurementProtocol, VanDerPauwSample, VoltageNoise};
+    use mobilis_core::noise::Rng;
+    use mobilis_core::sdk::run_typed;
+
+    fn readings_frame() -> DataFrame {
+        let sample = VanDerPauwSample::ideal("w1", 77.0, 300.0, 1.1, -600.0);
+        let protocol = MeasurementProtocol {
+            noise: VoltageNoise {
+                absolute_v: 1e-7,
+                relative: 0.0,
+            },
+            ..MeasurementProtocol::van_der_pauw(1e-4, vec![0.5]).with_resistance_at_zero_and_hall_in_field()
+        };
+        let readings = van_der_pauw_readings(&sample, &protocol, &mut Rng::seeded(3)).unwrap();
+        let floats =
+            |get: fn(&mobilis_core::readings::RawReading) -> f64| readings.iter().map(get).collect::<Vec<f64>>();
+        let ints = |get: fn(&mobilis_core::readings::RawReading) -> i64| readings.iter().map(get).collect::<Vec<i64>>();
+        DataFrame::new(
+            readings.len(),
+            vec![
+                Column::new(
+                    "sample".into(),
+                    readings.iter().map(|r| r.sample.clone()).collect::<Vec<_>>(),
+                ),
+                Column::new("temperature_K".into(), floats(|r| r.temperature_k)),
+                Column::new("field_T".into(), floats(|r| r.field_t)),
+                Column::new("i_in".into(), ints(|r| r.i_in)),
+                Column::new("i_out".into(), ints(|r| r.i_out)),
+                Column::new("v_pos".into(), ints(|r| r.v_pos)),
+                Column::new("v_neg".into(), ints(|r| r.v_neg)),
+                Column::new("current_A".into(), floats(|r| r.current_a)),
+                Column::new("voltage_V".into(), floats(|r| r.voltage_v)),
+            ],
+        )
+        .unwrap()
+    }
+
+    fn sheet_frame(field_calibration: Option<f64>) -> DataFrame {
+        DataFrame::new(
+            1,
+            vec![
+                Column::new("sample".into(), vec!["w1"]),
+                Column::new("thickness_m".into(), vec![5e-4]),
+                Column::new("thickness_m_unc".into(), vec![1e-5]),
+                Column::new("field_calibration_rel".into(), vec![field_calibration]),
+            ],
+        )
+        .unwrap()
+    }
+
+    fn run(params: &str, field_calibration: Option<f64>) -> Result<AnalysisOutput, AnalysisError> {
+        let inputs = Inputs::from_tables([
+            ("readings".to_owned(), readings_frame()),
+            ("samples".to_owned(), sheet_frame(field_calibration)),
+        ]);
+        run_typed::<HallReduce>(params, &inputs, &Host::detached())
+    }
+
+    #[test]
+    fn budget_columns_and_calibration_summary() {
+        let output = run(
+            r#"{"current_calibration_rel": 0.002, "voltage_calibration_rel": 0.0005, "temperature_accuracy_K": 0.01}"#,
+            Some(0.01),
+        )
+        .unwrap();
+        for name in [
+            "temperature_K_unc",
+            "sheet_resistance_ohm_sq_unc_stat",
+            "sheet_resistance_ohm_sq_unc_sys",
+            "resistivity_ohm_m_unc_stat",
+            "resistivity_ohm_m_unc_sys",
+            "sheet_density_m2_unc_stat",
+            "sheet_density_m2_unc_sys",
+            "density_m3_unc_stat",
+            "density_m3_unc_sys",
+            "hall_mobility_m2_per_Vs_unc_stat",
+            "hall_mobility_m2_per_Vs_unc_sys",
+            "reading_noise_V",
+            "drift_corrected",
+        ] {
+            assert!(output.table.column(name).is_ok(), "column {name} is missing");
+        }
+        let declared: Vec<String> = HallReduce::declaration()
+            .outputs
+            .iter()
+            .map(|c| c.name.clone())
+            .collect();
+        let produced: Vec<String> = output.table.get_column_names().iter().map(|n| n.to_string()).collect();
+        assert_eq!(declared, produced);
+        let used = &output.summary["calibrations"]["w1"];
+        assert_eq!(used["field_calibration_rel"], json!(0.01), "the sheet's value");
+        assert_eq!(used["current_calibration_rel"], json!(0.002), "the call's value");
+        assert_eq!(used["not_stated"], json!([]));
+        assert_eq!(output.summary["calibrations_not_stated"], json!([]));
+        // mu_H: the field calibration alone (1 %).
+        let mobility = output
+            .table
+            .column("hall_mobility_m2_per_Vs")
+            .unwrap()
+            .f64()
+            .unwrap()
+            .get(0)
+            .unwrap();
+        let systematic = output
+            .table
+            .column("hall_mobility_m2_per_Vs_unc_sys")
+            .unwrap()
+            .f64()
+            .unwrap()
+            .get(0)
+            .unwrap();
+        assert!((systematic / mobility - 0.01).abs() < 1e-12);
+    }
+
+    #[test]
+    fn unstated_calibrations_are_listed_and_bad_ones_refused() {
+        let output = run("{}", None).unwrap();
+        assert_eq!(
+            output.summary["calibrations_not_stated"],
+            json!([
+                "field_calibration_rel",
+                "current_calibration_rel",
+                "voltage_calibration_rel",
+                "temperature_accuracy_K"
+            ])
+        );
+        assert!(output.warnings.iter().any(|w| w.starts_with("calibrations not stated")));
+        let Err(AnalysisError::InvalidInput(message)) = run(r#"{"voltage_calibration_rel": -0.1}"#, None) else {
+            panic!("a negative calibration is refused")
+        };
+        assert!(message.contains("voltage_calibration_rel"), "{message}");
+        let Err(AnalysisError::InvalidInput(message)) = run("{}", Some(-1.0)) else {
+            panic!("a negative sheet calibration is refused")
+        };
+        assert!(message.contains("field_calibration_rel of sample \"w1\""), "{message}");
+    }
+}

@@ -20,10 +20,20 @@
 //!    temperatures closer than `temperature_tolerance_k` share a group. Chains are allowed, so
 //!    a slow drift stays one group; the row reports the group's mean and its spread
 //!    (max - min) so that a drift is visible.
-//! 3. **Field magnitudes.** Within a group, |B| <= `zero_field_tolerance_t` is zero field;
-//!    the other readings are clustered by |B| the same way with `field_tolerance_t`. Each
-//!    nonzero magnitude gives one row; a group without field readings gives one row with null
-//!    Hall quantities and the flag `no_field_data`.
+//! 3. **Zero field and field setpoints.** Within a group, |B| <= `zero_field_tolerance_t`
+//!    (default 10 mT) is zero field: an electromagnet keeps a few mT at a nominal zero, and
+//!    a gaussmeter records it, so the window is wide enough for that remanence and far below
+//!    any Hall field (common practice); readings above 1e-4 T taken as zero field are named
+//!    in a warning with the parameter. The other readings are grouped by |B| around
+//!    setpoints: a row starts at the smallest |B| not yet placed and takes every reading
+//!    within `field_tolerance_t` (5 mT) of it, so a row is never wider than that and a
+//!    densely logged ramp is cut into setpoints instead of being chained into one. A field
+//!    that wanders by tenths of a mT between readings stays one row, and each polarity's
+//!    field-odd part is divided by its own fields (step 6). Each setpoint gives one row; a
+//!    group without field readings gives one row with null Hall quantities and the flag
+//!    `no_field_data`. A row with a missing configuration or field sign warns and names
+//!    `field_tolerance_T`, `zero_field_tolerance_T` and `temperature_tolerance_K`, the
+//!    parameters that decide which readings share it.
 //! 4. **Canonical readings and fits.** Each reading is put in the canonical orientation of its
 //!    configuration (I_c = current_sign * current_A, V_c = voltage_sign * voltage_V), so a
 //!    current reversed by the source sign and one reversed by swapping the leads are the same
@@ -58,15 +68,14 @@
 //!    side the mean of its repeats: these are the four NIST Hall voltages V_C..V_F over 2I.
 //!    Thermoelectric offsets (even in B) and misalignment (even in B) cancel; averaging the
 //!    two current polarities also cancels voltages odd in B but independent of the current.
-//!    R_xy is the mean of the rho_k with the same uncertainty rule as the resistances (spread
-//!    of the rho_k combined with their own errors from repeats), which is never smaller than
-//!    the standard error of the spread alone. R_Hs = R_xy / |B| with |B| the mean of the mean
+//!    When the fields at +B and -B differ (a wandering setpoint), each rho_k is
+//!    (V/I at +B1 - V/I at -B2) / (B1 + B2) times the row's |B|, each B the mean |B| of that
+//!    polarity's readings, so that R_Hs B1 and R_Hs B2 are divided by their own fields.
+//!    R_xy is the mean of the rho_k. R_Hs = R_xy / |B| with |B| the mean of the mean
 //!    |B| at +B and at -B (positive for holes, the sign convention of the NIST Hall-effect
 //!    pages); n_s = r_H / (e |R_Hs|); n = n_s / t; R_H = R_Hs t; mu_H = |R_Hs| / R_s (free of
-//!    the Hall factor and of the thickness); drift mobility mu_H / r_H. Uncertainties are
-//!    first order, the factors independent; the thickness uncertainty enters resistivity,
-//!    R_H and n, not the sheet quantities. A magnitude with no Hall configuration at both field
-//!    signs has null Hall quantities (`no_field_reversal`).
+//!    the Hall factor and of the thickness); drift mobility mu_H / r_H. A magnitude with no
+//!    Hall configuration at both field signs has null Hall quantities (`no_field_reversal`).
 //!    Quality numbers: the misalignment ratio is the largest |field-even part| of a Hall
 //!    configuration (averaged over the polarities, which removes the offset's V_offset / I)
 //!    over |R_xy|; the thermoelectric offset ratio is the largest |V_offset| / |R I_max| over
@@ -77,9 +86,60 @@
 //!    also sees the thermoelectric offset (mismatch = 2 x offset ratio).
 //! 7. **Flags.** See [`flags`]; a row lists its flags in the order of [`flags::ALL`] and
 //!    `quality_ok` is true when there is none.
+//! 8. **A drifting stage.** Each reading records its own temperature. When the readings of a
+//!    group drift and the series has neighbouring temperatures, the group is reduced again
+//!    with every reading brought to the group's mean temperature T: V x exp(s (T - T_k)),
+//!    with s = d ln R_s / dT on the resistance configurations and d ln |R_Hs| / dT on the
+//!    Hall ones, both from the series itself (the derivative in 1/T of the parabola through
+//!    the group and its two nearest groups, in which a thermally activated density is a
+//!    straight line). The slopes come from the previous pass, whose values the drift
+//!    biased a little, so the correction is made twice. What remains is second order. The
+//!    row says `drift_corrected`.
 //!
-//! Uncertainties are `None` when no component could be estimated (a single configuration with
-//! one reading per polarity and no repeat has nothing to estimate a scatter from).
+//! # The uncertainty budget
+//!
+//! Every `_unc` is a total standard uncertainty (one sigma). For the sheet resistance,
+//! resistivity, sheet density, density and Hall mobility it is split into `_unc_stat` and
+//! `_unc_sys`, with `_unc` their quadrature sum (JCGM 100:2008, the GUM: Type A and Type B
+//! evaluations, first-order propagation, 5.1.2 and 5.1.6).
+//!
+//! - **Statistical (Type A).** All readings of a sample share one voltmeter, so the noise of
+//!   a reading is modelled as one standard deviation sigma_V in volts. Every estimate carries
+//!   its noise coefficient (its standard uncertainty per volt of that noise, propagated
+//!   through the same formulas as the value), and every row collects its evidence about
+//!   sigma_V: the residuals of the cell fits and the spread of its redundant estimates (the
+//!   direct and reciprocal configurations of a family, the Hall values of the diagonals and
+//!   polarities), each weighted by its noise coefficient, with its degrees of freedom (the
+//!   usual van der Pauw protocol gives 5). The statistical part is the noise coefficient
+//!   times the row's pooled sigma_V times sqrt(nu / (nu - 2)), the standard deviation of the
+//!   Student t distribution that a Type A evaluation on nu degrees of freedom is assigned
+//!   (JCGM 101:2008, 6.4.9.4). With fewer than 3 degrees of freedom a row borrows sigma_V
+//!   pooled over its sample's whole series (JCGM 100:2008, 4.2.8); with fewer there too, it
+//!   keeps the standard error of its own scatter. Autoranged currents are handled by the
+//!   coefficients (a reading at I carries sigma_V / I in V/I). The statistical part is never
+//!   below 1e-12 of the value, the resolution of the arithmetic: never zero.
+//! - **Systematic (Type B).** The calibrations, each one error common to every row of the
+//!   sample: thickness (`thickness_m_unc`), field scale (`field_calibration_rel`), current
+//!   scale (`current_calibration_rel`), voltmeter gain (`voltage_calibration_rel`). To first
+//!   order, relative: R_s and R_xy depend on V and I; R_Hs and n_s on V, I and B; rho on V, I
+//!   and t; R_H and n on V, I, B and t; mu_H = R_Hs / R_s on B only (the voltmeter's gain and
+//!   the source's scale cancel, since one voltmeter and one source measure both). A fit over
+//!   the series weights its points by `_unc_stat` and applies `_unc_sys / X` once, after the
+//!   fit, as a common scale (never as per-point noise).
+//! - **Temperature.** `temperature_K_unc` is the stated thermometer accuracy
+//!   (`temperature_accuracy_K`), in quadrature with the standard deviation of the readings'
+//!   temperatures when a drift could not be corrected (a single temperature). A
+//!   temperature-series fit propagates it through its model's slope (effective variance).
+//! - **Stated or assumed.** Each calibration comes from the sample sheet (a column of the
+//!   parameter's name, or `thickness_m_unc`), else from the call's parameter, else from its
+//!   default (0.5 % field, 0.1 % current, 0.01 % voltage, 0.02 K; 0 for an unstated
+//!   thickness uncertainty), common practice; the assumed ones are listed per sample and
+//!   named in a warning.
+//!
+//! The scatter-based standard errors described in steps 5 and 6 are the fallback of the
+//! statistical part. Uncertainties are `None` when no statistical part could be estimated
+//! (a single configuration with one reading per polarity and no repeat, in a series with no
+//! other evidence, has nothing to estimate a scatter from).
 //!
 //! # Performance
 //!

@@ -120,7 +120,7 @@ fn params_schema() -> serde_json::Value {
         "type": "object",
         "additionalProperties": false,
         "properties": {
-            "temperature_tolerance_K": number(settings.temperature_tolerance_k, "readings whose sorted temperatures are no further apart than this share a row, K"),
+            "temperature_tolerance_K": number(settings.temperature_tolerance_k, "readings whose sorted temperatures are no further apart than this, and than 5 % of the temperature, share a row, K (so sub-kelvin setpoints stay apart)"),
             "zero_field_tolerance_T": number(settings.zero_field_tolerance_t, "|B| at or below this counts as zero field, T: wide enough for the few mT of remanence an electromagnet keeps at a nominal zero (common practice); lower it for a Hall field below 10 mT"),
             "field_tolerance_T": number(settings.field_tolerance_t, "width of a field setpoint, T: a row takes the readings whose |B| lie within this of its smallest |B|, so a densely logged ramp is cut into setpoints rather than chained into one row"),
             "reciprocity_tolerance": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.reciprocity_tolerance, "description": "flag `reciprocity` above this |direct - reciprocal| / mean (common practice)"},

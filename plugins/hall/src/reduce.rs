@@ -17,9 +17,10 @@
 //!    carries its flag). A sample with readings but no sheet row is an error listing every such name.
 //!    Without a sheet every sample is a 2D van der Pauw sample with Hall factor 1.
 //! 2. **Temperature groups.** Per sample, readings are sorted by temperature and consecutive
-//!    temperatures closer than `temperature_tolerance_k` share a group. Chains are allowed, so
-//!    a slow drift stays one group; the row reports the group's mean and its spread
-//!    (max - min) so that a drift is visible.
+//!    temperatures closer than `temperature_tolerance_k` and than 5 % of the temperature
+//!    share a group (the second limit keeps a sub-kelvin series apart: 0.3, 0.4, 0.5 K are
+//!    three groups). Chains are allowed, so a slow drift stays one group; the row reports
+//!    the group's mean and its spread (max - min) so that a drift is visible.
 //! 3. **Zero field and field setpoints.** Within a group, |B| <= `zero_field_tolerance_t`
 //!    (default 10 mT) is zero field: an electromagnet keeps a few mT at a nominal zero, and
 //!    a gaussmeter records it, so the window is wide enough for that remanence and far below
@@ -318,8 +319,8 @@ impl Default for QualityThresholds {
 /// How readings are grouped and judged.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct ReduceSettings {
-    /// Readings whose sorted temperatures are no further apart than this share a row, K.
-    /// Default 0.5 K.
+    /// Readings whose sorted temperatures are no further apart than this (and than 5 % of
+    /// the temperature) share a row, K. Default 0.5 K.
     pub temperature_tolerance_k: f64,
     /// |B| at or below this is zero field, T. Default 1e-2 T (100 G): well above the few mT
     /// an electromagnet keeps at a nominal zero, well below a Hall field (common practice).

@@ -331,8 +331,15 @@ fn ratio_mean<'a>(readings: impl Iterator<Item = &'a Prepared> + Clone) -> Optio
     })
 }
 
-/// Consecutive runs of sorted values whose neighbours differ by at most `tolerance`, as index
-/// ranges. Chains are allowed (a slow drift stays one cluster); the caller reports the spread.
+/// Below this fraction of the temperature, neighbouring readings may share a temperature
+/// group whatever `temperature_tolerance_K` says: 5 %, so that sub-kelvin setpoints 0.1 K
+/// apart stay apart while a drift of a few percent between readings still chains (common
+/// practice).
+pub(super) const TEMPERATURE_RELATIVE_GAP: f64 = 0.05;
+
+/// Consecutive runs of sorted temperatures whose neighbours differ by at most `tolerance`
+/// and by at most [`TEMPERATURE_RELATIVE_GAP`] of the lower one, as index ranges. Chains are
+/// allowed (a slow drift stays one cluster); the caller reports the spread.
 pub(super) fn gap_clusters(values: impl Iterator<Item = f64>, tolerance: f64) -> Vec<std::ops::Range<usize>> {
     let mut ranges = Vec::new();
     let mut start = 0usize;
@@ -340,7 +347,7 @@ pub(super) fn gap_clusters(values: impl Iterator<Item = f64>, tolerance: f64) ->
     let mut index = 0usize;
     for value in values {
         if let Some(last) = previous {
-            if value - last > tolerance {
+            if value - last > tolerance.min(TEMPERATURE_RELATIVE_GAP * last.abs()) {
                 ranges.push(start..index);
                 start = index;
             }

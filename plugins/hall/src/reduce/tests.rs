@@ -794,6 +794,33 @@ fn temperatures_within_tolerance_share_a_row() {
 }
 
 #[test]
+fn a_sub_kelvin_series_stays_apart() {
+    // Setpoints 0.1 K apart from 0.3 to 1.5 K, each read 16 times while the stage drifts by
+    // 2 mK: thirteen rows, not one chain.
+    let model = VanDerPauwModel::symmetric(100.0, 50.0);
+    let mut readings = Vec::new();
+    for step in 0..13 {
+        let setpoint = 0.3 + 0.1 * step as f64;
+        for (index, reading) in nist_readings(&model, "s", setpoint, 0.5, 1e-3).into_iter().enumerate() {
+            readings.push(RawReading {
+                temperature_k: setpoint + 0.002 * index as f64 / 16.0,
+                ..reading
+            });
+        }
+    }
+    let reduction = reduce_default(&readings);
+    assert_eq!(reduction.rows.len(), 13);
+    for (step, row) in reduction.rows.iter().enumerate() {
+        assert!(
+            (row.temperature_k - (0.3 + 0.1 * step as f64)).abs() < 2e-3,
+            "{}",
+            row.temperature_k
+        );
+        assert!(row.quality_ok, "{:?}", row.flags);
+    }
+}
+
+#[test]
 fn rows_sorted_by_sample_temperature_and_field() {
     let model = VanDerPauwModel::symmetric(100.0, 50.0);
     let mut readings = Vec::new();

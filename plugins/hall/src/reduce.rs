@@ -94,8 +94,9 @@
 //!    Hall ones, both from the series itself (the derivative in 1/T of the parabola through
 //!    the group and its two nearest groups, in which a thermally activated density is a
 //!    straight line). The slopes come from the previous pass, whose values the drift
-//!    biased a little, so the correction is made twice. What remains is second order. The
-//!    row says `drift_corrected`.
+//!    biased a little, so the correction is made twice. What remains is second order. A
+//!    group whose correction would change a reading by more than 10 % (a Hall coefficient
+//!    crossing zero, a transition) is left as measured. The row says `drift_corrected`.
 //!
 //! # The uncertainty budget
 //!
@@ -770,6 +771,11 @@ fn reduce_source<S: ReadingSource>(
                 let Some(group_slopes) = slopes[index].filter(|_| drifted) else {
                     continue;
                 };
+                if largest_drift_correction(readings, group_slopes, sample.geometry) > LARGEST_DRIFT_CORRECTION {
+                    // Beyond first order (a Hall coefficient crossing zero, a transition):
+                    // the group stays as measured, with its readings' spread in u(T).
+                    continue;
+                }
                 any = true;
                 let mut corrected = readings.to_vec();
                 correct_drift(&mut corrected, group_slopes, sample.geometry);
@@ -1179,6 +1185,26 @@ fn parabola_slope(centre: (f64, f64), first: (f64, f64), second: (f64, f64)) -> 
     y0 * (2.0 * x0 - xa - xb) / ((x0 - xa) * (x0 - xb))
         + ya * (x0 - xb) / ((xa - x0) * (xa - xb))
         + yb * (x0 - xa) / ((xb - x0) * (xb - xa))
+}
+
+/// The largest relative change a drift correction may make to a reading (10 %); beyond it
+/// the first-order correction is not trusted and the group is reduced as measured.
+const LARGEST_DRIFT_CORRECTION: f64 = 0.1;
+
+/// The largest |s (T - T_k)| the correction of a group would apply.
+fn largest_drift_correction(readings: &[Prepared], slopes: DriftSlopes, geometry: Geometry) -> f64 {
+    let mean_k = readings.iter().map(|reading| reading.temperature_k).sum::<f64>() / readings.len() as f64;
+    readings
+        .iter()
+        .map(|reading| {
+            let slope = if row::is_hall_slot(geometry, reading.slot as usize) {
+                slopes.hall_per_k
+            } else {
+                slopes.resistance_per_k
+            };
+            (slope * (mean_k - reading.temperature_k)).abs()
+        })
+        .fold(0.0, f64::max)
 }
 
 /// Brings every reading of a group to the group's mean temperature T: V x exp(s (T - T_k))

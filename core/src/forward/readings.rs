@@ -24,6 +24,17 @@
 //!
 //! Readings come out in a fixed order (field, then configuration, then polarity), and the
 //! noise is drawn in that order, so a seed fixes every value.
+//!
+//! # A lab's conditions
+//!
+//! [`lab_van_der_pauw_series`] generates a whole temperature series as a real setup records
+//! it ([`LabConditions`]): a current autoranged per temperature on a 1-2-5 ladder, voltmeter
+//! noise in volts (the protocol's [`VoltageNoise`]), a stage temperature that drifts between
+//! readings (each reading records its own moment's temperature, and the sample follows it),
+//! a remanent field at nominal zero, field setpoints that wander, and calibration errors of
+//! thickness, field, current, voltage and thermometer drawn once per series
+//! ([`CalibrationErrors`]). It is the generator for coverage tests: draw many series, reduce
+//! and fit each, and count how often the truth lies within the reported uncertainties.
 
 use super::{require_finite, require_non_negative, require_positive, ForwardError};
 use crate::contacts::{Configuration, ResistanceFamily};
@@ -470,6 +481,321 @@ pub fn hall_bar_readings(
     )
 }
 
+// ------------------------------------------------------------ a lab's conditions
+
+/// Errors of a lab's calibrations, one value per series. As drawn values (from
+/// [`CalibrationErrors::draw`]) they say how the instruments of one series are off; as a
+/// spread (the argument of `draw`, and [`LabConditions::calibration_spread`]) they are the
+/// standard deviations the errors are drawn from.
+///
+/// - recorded field = actual field x (1 + `field_rel`)
+/// - recorded current = actual current x (1 + `current_rel`)
+/// - recorded voltage = actual voltage x (1 + `voltage_rel`)
+/// - recorded temperature = actual temperature + `thermometer_offset_k`
+/// - stated thickness = true thickness x (1 + `thickness_rel`)
+///
+/// The thickness does not enter a reading; it enters the sample sheet, through
+/// [`CalibrationErrors::stated_thickness_m`].
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct CalibrationErrors {
+    pub thickness_rel: f64,
+    pub field_rel: f64,
+    pub current_rel: f64,
+    pub voltage_rel: f64,
+    pub thermometer_offset_k: f64,
+}
+
+impl CalibrationErrors {
+    /// Perfect instruments.
+    pub const NONE: CalibrationErrors = CalibrationErrors {
+        thickness_rel: 0.0,
+        field_rel: 0.0,
+        current_rel: 0.0,
+        voltage_rel: 0.0,
+        thermometer_offset_k: 0.0,
+    };
+
+    /// One series' errors, each drawn from a normal distribution with mean 0 and the
+    /// standard deviation given in `spread` (in the order thickness, field, current, voltage,
+    /// thermometer, so that a seed fixes them).
+    pub fn draw(spread: &CalibrationErrors, rng: &mut Rng) -> CalibrationErrors {
+        // A zero spread draws nothing, so that an ideal series uses the noise sequence of the
+        // ideal generator.
+        let mut draw = |standard_deviation: f64| {
+            if standard_deviation > 0.0 {
+                rng.normal(0.0, standard_deviation)
+            } else {
+                0.0
+            }
+        };
+        CalibrationErrors {
+            thickness_rel: draw(spread.thickness_rel),
+            field_rel: draw(spread.field_rel),
+            current_rel: draw(spread.current_rel),
+            voltage_rel: draw(spread.voltage_rel),
+            thermometer_offset_k: draw(spread.thermometer_offset_k),
+        }
+    }
+
+    /// The thickness a lab with this calibration error writes into its sample sheet.
+    pub fn stated_thickness_m(&self, true_thickness_m: f64) -> f64 {
+        true_thickness_m * (1.0 + self.thickness_rel)
+    }
+
+    fn validate_as_spread(&self) -> Result<(), ForwardError> {
+        require_non_negative("calibration_spread.thickness_rel", self.thickness_rel)?;
+        require_non_negative("calibration_spread.field_rel", self.field_rel)?;
+        require_non_negative("calibration_spread.current_rel", self.current_rel)?;
+        require_non_negative("calibration_spread.voltage_rel", self.voltage_rel)?;
+        require_non_negative("calibration_spread.thermometer_offset_k", self.thermometer_offset_k)?;
+        Ok(())
+    }
+}
+
+/// A current source that picks, per temperature, the largest current of a 1-2-5 ladder
+/// (`smallest_current_a` up to `largest_current_a`) that keeps the largest expected voltage
+/// of the protocol at or below `target_voltage_v`.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Autorange {
+    pub target_voltage_v: f64,
+    pub smallest_current_a: f64,
+    pub largest_current_a: f64,
+}
+
+impl Autorange {
+    /// 10 mV target between 1 nA and 10 mA (common practice for a resistivity and Hall setup).
+    pub const TYPICAL: Autorange = Autorange {
+        target_voltage_v: 1e-2,
+        smallest_current_a: 1e-9,
+        largest_current_a: 1e-2,
+    };
+
+    /// The current for a sample whose largest |V/I| is `largest_resistance_ohm`, A.
+    pub fn current_a(&self, largest_resistance_ohm: f64) -> f64 {
+        let wanted = self.target_voltage_v / largest_resistance_ohm;
+        let mut chosen = self.smallest_current_a;
+        let mut decade = 10f64.powf(self.smallest_current_a.log10().floor());
+        while decade <= self.largest_current_a * 1.000_001 {
+            for step in [1.0, 2.0, 5.0] {
+                let current = decade * step;
+                if current >= self.smallest_current_a * 0.999_999
+                    && current <= self.largest_current_a * 1.000_001
+                    && current <= wanted
+                {
+                    chosen = current;
+                }
+            }
+            decade *= 10.0;
+        }
+        chosen
+    }
+
+    fn validate(&self) -> Result<(), ForwardError> {
+        require_positive("autorange.target_voltage_v", self.target_voltage_v)?;
+        require_positive("autorange.smallest_current_a", self.smallest_current_a)?;
+        require_positive("autorange.largest_current_a", self.largest_current_a)?;
+        if self.largest_current_a < self.smallest_current_a {
+            return Err(ForwardError::InvalidParameter {
+                name: "autorange.largest_current_a",
+                value: self.largest_current_a,
+                requirement: "give a largest current of at least the smallest current",
+            });
+        }
+        Ok(())
+    }
+}
+
+/// How a real series departs from the ideal protocol. Every field is optional in effect:
+/// [`LabConditions::IDEAL`] reproduces the ideal generator (one fixed temperature per
+/// setpoint, exact fields, the protocol's current, no calibration error).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct LabConditions {
+    /// Current chosen per temperature; `None` uses the protocol's `current_a` throughout.
+    pub autorange: Option<Autorange>,
+    /// Standard deviation of the stage temperature's step between consecutive readings, K:
+    /// the actual temperature is a random walk that starts at the setpoint. Each reading
+    /// records the temperature of its own moment.
+    pub stage_drift_k: f64,
+    /// The actual field at a nominal zero, T (signed): the remanence of an electromagnet. The
+    /// gaussmeter records it.
+    pub remanent_field_t: f64,
+    /// Standard deviation of the actual field around a nonzero setpoint, per reading, T. The
+    /// gaussmeter records it.
+    pub field_wander_t: f64,
+    /// Standard deviations of the calibration errors, drawn once per series.
+    pub calibration_spread: CalibrationErrors,
+}
+
+impl LabConditions {
+    /// No departure from the protocol.
+    pub const IDEAL: LabConditions = LabConditions {
+        autorange: None,
+        stage_drift_k: 0.0,
+        remanent_field_t: 0.0,
+        field_wander_t: 0.0,
+        calibration_spread: CalibrationErrors::NONE,
+    };
+
+    /// A realistic cryostat with an electromagnet: autoranged current (10 mV target), 30 mK
+    /// of stage drift between readings, 3 mT of remanence, 0.3 mT of field wander, and
+    /// calibrations known to 3 % (thickness), 0.5 % (field), 0.1 % (current), 0.01 %
+    /// (voltage) and 20 mK (thermometer). Invented to resemble a lab, not taken from one.
+    pub const TYPICAL: LabConditions = LabConditions {
+        autorange: Some(Autorange::TYPICAL),
+        stage_drift_k: 0.03,
+        remanent_field_t: 3e-3,
+        field_wander_t: 3e-4,
+        calibration_spread: CalibrationErrors {
+            thickness_rel: 0.03,
+            field_rel: 5e-3,
+            current_rel: 1e-3,
+            voltage_rel: 1e-4,
+            thermometer_offset_k: 0.02,
+        },
+    };
+
+    fn validate(&self) -> Result<(), ForwardError> {
+        if let Some(autorange) = &self.autorange {
+            autorange.validate()?;
+        }
+        require_non_negative("stage_drift_k", self.stage_drift_k)?;
+        require_finite("remanent_field_t", self.remanent_field_t)?;
+        require_non_negative("field_wander_t", self.field_wander_t)?;
+        self.calibration_spread.validate_as_spread()
+    }
+}
+
+/// What was measured at one setpoint of a [`LabSeries`].
+#[derive(Debug, Clone, PartialEq)]
+pub struct SetpointRecord {
+    pub setpoint_k: f64,
+    /// The current the source was set to (and recorded), A.
+    pub current_a: f64,
+    /// Mean of the actual stage temperatures over the setpoint's readings, K.
+    pub mean_actual_temperature_k: f64,
+    /// Mean of the recorded temperatures (actual plus the thermometer's offset), K.
+    pub mean_recorded_temperature_k: f64,
+}
+
+/// The readings of one sample over a temperature series, with the errors that were drawn.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LabSeries {
+    pub readings: Vec<RawReading>,
+    /// This series' calibration errors (use `stated_thickness_m` for the sample sheet).
+    pub calibration: CalibrationErrors,
+    pub setpoints: Vec<SetpointRecord>,
+}
+
+/// Raw readings of one van der Pauw sample over a temperature series, as a real lab records
+/// them. `sample_at(T)` gives the sample at actual temperature T (its name, transport,
+/// offsets, misalignment); it is called for every reading, so that a drifting stage changes
+/// the sample between readings.
+///
+/// Per series, the calibration errors are drawn first ([`CalibrationErrors::draw`]). Per
+/// setpoint, the current is chosen (autorange from the sample at the setpoint, or the
+/// protocol's), then the readings follow the protocol's order (zero field, then each
+/// magnitude at +B and -B, configurations, polarities). Per reading: the stage takes one
+/// step of its random walk; the actual field is the remanence at a nominal zero or the
+/// setpoint plus wander; the actual current is the set current / (1 + current_rel);
+/// V = R(T, B) I + offset + voltmeter noise, recorded with the voltmeter's gain error; field
+/// and temperature are recorded with their calibration errors.
+pub fn lab_van_der_pauw_series(
+    setpoints_k: &[f64],
+    sample_at: impl Fn(f64) -> Result<VanDerPauwSample, ForwardError>,
+    protocol: &MeasurementProtocol,
+    lab: &LabConditions,
+    rng: &mut Rng,
+) -> Result<LabSeries, ForwardError> {
+    protocol.validate()?;
+    lab.validate()?;
+    let calibration = CalibrationErrors::draw(&lab.calibration_spread, rng);
+    let polarities: &[bool] = if protocol.both_current_polarities {
+        &[true, false]
+    } else {
+        &[true]
+    };
+    let schedule = protocol.schedule();
+    let mut readings = Vec::with_capacity(setpoints_k.len() * schedule.len() * polarities.len());
+    let mut setpoints = Vec::with_capacity(setpoints_k.len());
+    for &setpoint_k in setpoints_k {
+        require_positive("setpoints_k", setpoint_k)?;
+        let at_setpoint = sample_at(setpoint_k)?;
+        at_setpoint.validate()?;
+        let current_a = match &lab.autorange {
+            Some(autorange) => {
+                let mut largest_ohm = 0.0_f64;
+                for &(field_t, configuration) in &schedule {
+                    largest_ohm = largest_ohm.max(at_setpoint.canonical_resistance_ohm(configuration, field_t)?.abs());
+                }
+                autorange.current_a(largest_ohm.max(f64::MIN_POSITIVE))
+            }
+            None => protocol.current_a,
+        };
+        let actual_current_a = current_a / (1.0 + calibration.current_rel);
+        let mut temperature_k = setpoint_k;
+        let mut actual_sum = 0.0;
+        let mut count = 0usize;
+        for &(nominal_field_t, configuration) in &schedule {
+            for &positive in polarities {
+                if lab.stage_drift_k > 0.0 {
+                    temperature_k += lab.stage_drift_k * rng.standard_normal();
+                }
+                require_positive("stage temperature (lower stage_drift_k)", temperature_k)?;
+                let sample = sample_at(temperature_k)?;
+                sample.validate()?;
+                let field_t = if nominal_field_t == 0.0 {
+                    lab.remanent_field_t
+                } else if lab.field_wander_t > 0.0 {
+                    nominal_field_t + lab.field_wander_t * rng.standard_normal()
+                } else {
+                    nominal_field_t
+                };
+                let resistance_ohm = sample.canonical_resistance_ohm(configuration, field_t)?;
+                let offset_v = sample.thermoelectric_offset_v(configuration)?;
+                let canonical_current_a = if positive { actual_current_a } else { -actual_current_a };
+                let exact_voltage_v = resistance_ohm * canonical_current_a + offset_v;
+                let sigma_v = protocol.noise.standard_deviation_v(exact_voltage_v);
+                let measured_v = if sigma_v > 0.0 {
+                    exact_voltage_v + sigma_v * rng.standard_normal()
+                } else {
+                    exact_voltage_v
+                };
+                let (contacts, current_sign, voltage_sign) = physical_wiring(configuration, positive, protocol);
+                let recorded_current_a = if positive { current_a } else { -current_a };
+                readings.push(RawReading {
+                    sample: sample.sample.clone(),
+                    temperature_k: temperature_k + calibration.thermometer_offset_k,
+                    field_t: field_t * (1.0 + calibration.field_rel),
+                    i_in: contacts[0],
+                    i_out: contacts[1],
+                    v_pos: contacts[2],
+                    v_neg: contacts[3],
+                    current_a: current_sign * recorded_current_a,
+                    voltage_v: voltage_sign * measured_v * (1.0 + calibration.voltage_rel),
+                });
+                actual_sum += temperature_k;
+                count += 1;
+            }
+        }
+        let mean_actual_temperature_k = if count > 0 {
+            actual_sum / count as f64
+        } else {
+            setpoint_k
+        };
+        setpoints.push(SetpointRecord {
+            setpoint_k,
+            current_a,
+            mean_actual_temperature_k,
+            mean_recorded_temperature_k: mean_actual_temperature_k + calibration.thermometer_offset_k,
+        });
+    }
+    Ok(LabSeries {
+        readings,
+        calibration,
+        setpoints,
+    })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -762,5 +1088,168 @@ mod tests {
         let bar = HallBarSample::ideal("bar", 300.0, 1.0, 1e-3, 0.0, 0.0);
         let bar_protocol = MeasurementProtocol::hall_bar(1e-4, vec![0.5]);
         assert!(hall_bar_readings(&bar, &bar_protocol, &mut Rng::seeded(1)).is_err());
+    }
+
+    fn constant_sample(temperature_k: f64) -> Result<VanDerPauwSample, ForwardError> {
+        let mut sample = VanDerPauwSample::ideal("lab", temperature_k, 400.0, 1.2, -2.0e3);
+        sample.thermoelectric_offsets_v = [2e-6, -1e-6, 3e-6, 0.5e-6, -4e-6, 1e-6];
+        sample.hall_misalignment_ohm = [3.0, -3.0];
+        Ok(sample)
+    }
+
+    #[test]
+    fn ideal_lab_series_is_the_ideal_generator_setpoint_by_setpoint() {
+        let protocol = MeasurementProtocol {
+            noise: VoltageNoise {
+                absolute_v: 1e-6,
+                relative: 0.0,
+            },
+            ..MeasurementProtocol::van_der_pauw(1e-4, vec![0.5]).with_resistance_at_zero_and_hall_in_field()
+        };
+        let setpoints = [10.0, 20.0];
+        let series = lab_van_der_pauw_series(
+            &setpoints,
+            constant_sample,
+            &protocol,
+            &LabConditions::IDEAL,
+            &mut Rng::seeded(9),
+        )
+        .unwrap();
+        let mut rng = Rng::seeded(9);
+        let mut expected = Vec::new();
+        for setpoint in setpoints {
+            expected.extend(van_der_pauw_readings(&constant_sample(setpoint).unwrap(), &protocol, &mut rng).unwrap());
+        }
+        assert_eq!(series.readings, expected);
+        assert_eq!(series.calibration, CalibrationErrors::NONE);
+        assert_eq!(series.setpoints[1].current_a, 1e-4);
+    }
+
+    #[test]
+    fn calibration_errors_scale_the_recorded_values() {
+        let protocol = MeasurementProtocol::van_der_pauw(1e-4, vec![1.0]).with_resistance_at_zero_and_hall_in_field();
+        let lab = LabConditions {
+            calibration_spread: CalibrationErrors {
+                thickness_rel: 0.05,
+                field_rel: 0.01,
+                current_rel: 0.01,
+                voltage_rel: 0.01,
+                thermometer_offset_k: 0.1,
+            },
+            ..LabConditions::IDEAL
+        };
+        let series = lab_van_der_pauw_series(&[50.0], constant_sample, &protocol, &lab, &mut Rng::seeded(4)).unwrap();
+        let errors = series.calibration;
+        assert!(errors.field_rel != 0.0 && errors.current_rel != 0.0 && errors.voltage_rel != 0.0);
+        let sample = constant_sample(50.0).unwrap();
+        let (resistance_a, _) = sample.characteristic_resistances_ohm().unwrap();
+        for reading in &series.readings {
+            assert!((reading.temperature_k - (50.0 + errors.thermometer_offset_k)).abs() < 1e-12);
+            let classified = classify_van_der_pauw(reading.i_in, reading.i_out, reading.v_pos, reading.v_neg).unwrap();
+            if reading.field_t != 0.0 {
+                assert!((reading.field_t.abs() - (1.0 + errors.field_rel)).abs() < 1e-12);
+            }
+            if classified.configuration
+                == (Configuration::Resistance {
+                    family: ResistanceFamily::A,
+                    reciprocal: false,
+                })
+            {
+                // Recorded V / recorded I = (R I_actual + offset)(1 + e_V) / (I_actual (1 + e_I)).
+                let canonical_current = classified.current_sign * reading.current_a;
+                let actual_current = canonical_current / (1.0 + errors.current_rel);
+                let expected_v = (resistance_a * actual_current + 2e-6) * (1.0 + errors.voltage_rel);
+                assert!(close(classified.voltage_sign * reading.voltage_v, expected_v, 1e-12));
+            }
+        }
+        assert!(close(
+            errors.stated_thickness_m(1e-6),
+            1e-6 * (1.0 + errors.thickness_rel),
+            1e-15
+        ));
+    }
+
+    #[test]
+    fn autorange_takes_the_largest_ladder_current_under_the_target() {
+        // 1-2-5 ladder, 10 mV target (the rule of Autorange, computed by hand).
+        let cases = [(1000.0, 1e-5), (300.0, 2e-5), (40.0, 2e-4), (1e9, 1e-9), (1e-3, 1e-2)];
+        for (resistance_ohm, expected_a) in cases {
+            let chosen = Autorange::TYPICAL.current_a(resistance_ohm);
+            assert!(close(chosen, expected_a, 1e-12), "{resistance_ohm} ohm: {chosen} A");
+        }
+    }
+
+    #[test]
+    fn typical_lab_drifts_wanders_and_keeps_remanence() {
+        let protocol = MeasurementProtocol {
+            noise: VoltageNoise {
+                absolute_v: 1e-6,
+                relative: 0.0,
+            },
+            ..MeasurementProtocol::van_der_pauw(1e-4, vec![0.5]).with_resistance_at_zero_and_hall_in_field()
+        };
+        let lab = LabConditions {
+            calibration_spread: CalibrationErrors::NONE,
+            ..LabConditions::TYPICAL
+        };
+        let setpoints: Vec<f64> = (0..40).map(|i| 20.0 + 5.0 * i as f64).collect();
+        let series =
+            lab_van_der_pauw_series(&setpoints, constant_sample, &protocol, &lab, &mut Rng::seeded(2)).unwrap();
+        assert_eq!(series.readings.len(), 40 * 16);
+        // The Hall diagonal at 0.5 T, 2000 m^2/C x 0.5 T + 3 ohm = 1003 ohm, is the largest
+        // |V/I|: 10 mV / 1003 ohm = 9.97 uA, so 5 uA from the 1-2-5 ladder.
+        assert!(series
+            .setpoints
+            .iter()
+            .all(|record| close(record.current_a, 5e-6, 1e-12)));
+        let mut step_squares = 0.0;
+        let mut steps = 0usize;
+        for chunk in series.readings.chunks(16) {
+            for pair in chunk.windows(2) {
+                step_squares += (pair[1].temperature_k - pair[0].temperature_k).powi(2);
+                steps += 1;
+            }
+            for reading in chunk {
+                if reading.field_t.abs() < 0.1 {
+                    assert_eq!(reading.field_t, 3e-3, "remanence at nominal zero");
+                } else {
+                    assert!(
+                        (reading.field_t.abs() - 0.5).abs() < 5.0 * 3e-4,
+                        "wander {}",
+                        reading.field_t
+                    );
+                    assert!(reading.field_t.abs() != 0.5);
+                }
+            }
+        }
+        // 600 steps: the standard deviation of a step is known to about 3 %.
+        let step_sd = (step_squares / steps as f64).sqrt();
+        assert!(close(step_sd, 0.03, 0.12), "{step_sd}");
+    }
+
+    #[test]
+    fn lab_conditions_refuse_unphysical_values() {
+        let protocol = MeasurementProtocol::van_der_pauw(1e-4, vec![0.5]);
+        let bad = [
+            LabConditions {
+                stage_drift_k: -1.0,
+                ..LabConditions::IDEAL
+            },
+            LabConditions {
+                field_wander_t: f64::NAN,
+                ..LabConditions::IDEAL
+            },
+            LabConditions {
+                autorange: Some(Autorange {
+                    largest_current_a: 1e-9,
+                    smallest_current_a: 1e-3,
+                    target_voltage_v: 1e-2,
+                }),
+                ..LabConditions::IDEAL
+            },
+        ];
+        for lab in bad {
+            assert!(lab_van_der_pauw_series(&[10.0], constant_sample, &protocol, &lab, &mut Rng::seeded(1)).is_err());
+        }
     }
 }

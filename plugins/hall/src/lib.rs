@@ -11,7 +11,10 @@ pub mod reduce;
 use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
 use mobilis_core::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
 use polars::prelude::*;
-use reduce::{flags, Geometry, QualityThresholds, ReadingColumns, ReduceSettings, ReducedRow, SampleInfo};
+use reduce::{
+    calibration_names, flags, Calibration, Geometry, QualityThresholds, ReadingColumns, ReduceSettings, ReducedRow,
+    SampleInfo,
+};
 use serde::Deserialize;
 use serde_json::json;
 
@@ -42,6 +45,15 @@ pub struct ReduceParams {
     pub current_reversal_tolerance: f64,
     #[serde(default)]
     pub skip_invalid_readings: bool,
+    /// Relative standard uncertainty of the field scale; `None`: not stated.
+    #[serde(default)]
+    pub field_calibration_rel: Option<f64>,
+    #[serde(default)]
+    pub current_calibration_rel: Option<f64>,
+    #[serde(default)]
+    pub voltage_calibration_rel: Option<f64>,
+    #[serde(rename = "temperature_accuracy_K", default)]
+    pub temperature_accuracy_k: Option<f64>,
 }
 
 mod defaults {
@@ -90,6 +102,12 @@ impl ReduceParams {
                 current_reversal_tolerance: self.current_reversal_tolerance,
             },
             skip_invalid_readings: self.skip_invalid_readings,
+            calibration: Calibration {
+                field_rel: self.field_calibration_rel,
+                current_rel: self.current_calibration_rel,
+                voltage_rel: self.voltage_calibration_rel,
+                temperature_accuracy_k: self.temperature_accuracy_k,
+            },
         }
     }
 }
@@ -102,16 +120,20 @@ fn params_schema() -> serde_json::Value {
         "type": "object",
         "additionalProperties": false,
         "properties": {
-            "temperature_tolerance_K": number(settings.temperature_tolerance_k, "readings whose sorted temperatures are no further apart than this share a row, K"),
-            "zero_field_tolerance_T": number(settings.zero_field_tolerance_t, "|B| at or below this counts as zero field, T"),
-            "field_tolerance_T": number(settings.field_tolerance_t, "readings whose sorted |B| are no further apart than this share a row, T"),
+            "temperature_tolerance_K": number(settings.temperature_tolerance_k, "readings whose sorted temperatures are no further apart than this, and than 5 % of the temperature, share a row, K (so sub-kelvin setpoints stay apart)"),
+            "zero_field_tolerance_T": number(settings.zero_field_tolerance_t, "|B| at or below this counts as zero field, T: wide enough for the few mT of remanence an electromagnet keeps at a nominal zero (common practice); lower it for a Hall field below 10 mT"),
+            "field_tolerance_T": number(settings.field_tolerance_t, "width of a field setpoint, T: a row takes the readings whose |B| lie within this of its smallest |B|, so a densely logged ramp is cut into setpoints rather than chained into one row"),
             "reciprocity_tolerance": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.reciprocity_tolerance, "description": "flag `reciprocity` above this |direct - reciprocal| / mean (common practice)"},
             "max_resistance_ratio": {"type": "number", "minimum": 1, "default": thresholds.max_resistance_ratio, "description": "flag `resistance_ratio` above this max(R_A/R_B, R_B/R_A) (common practice)"},
             "hall_spread_tolerance": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.hall_spread_tolerance, "description": "flag `hall_inconsistent` above this (max - min) / |mean| of the Hall resistances (common practice)"},
             "thermoelectric_offset_ratio": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.thermoelectric_offset_ratio, "description": "flag `large_offset` above this |V_offset| / |R I| (common practice)"},
             "misalignment_ratio": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.misalignment_ratio, "description": "flag `large_offset` above this field-even / field-odd ratio of the Hall configurations (common practice)"},
             "current_reversal_tolerance": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.current_reversal_tolerance, "description": "flag `current_reversal` above this |R(+I) - R(-I)| / mean (common practice)"},
-            "skip_invalid_readings": {"type": "boolean", "default": false, "description": "drop invalid readings (zero current, NaN, bad contacts) with a warning instead of refusing the input"}
+            "skip_invalid_readings": {"type": "boolean", "default": false, "description": "drop invalid readings (zero current, NaN, bad contacts) with a warning instead of refusing the input"},
+            "field_calibration_rel": {"type": "number", "minimum": 0, "description": format!("relative standard uncertainty of the field scale (gaussmeter, magnet constant); a sample-sheet column of the same name takes precedence; when not stated {} is assumed (common practice) and the summary says so", reduce::DEFAULT_FIELD_CALIBRATION_REL)},
+            "current_calibration_rel": {"type": "number", "minimum": 0, "description": format!("relative standard uncertainty of the current source's scale; sample-sheet column of the same name takes precedence; when not stated {} is assumed (common practice)", reduce::DEFAULT_CURRENT_CALIBRATION_REL)},
+            "voltage_calibration_rel": {"type": "number", "minimum": 0, "description": format!("relative standard uncertainty of the voltmeter's gain; sample-sheet column of the same name takes precedence; when not stated {} is assumed (common practice)", reduce::DEFAULT_VOLTAGE_CALIBRATION_REL)},
+            "temperature_accuracy_K": {"type": "number", "minimum": 0, "description": format!("standard uncertainty of the thermometer, K, added in quadrature to the readings' temperature spread in temperature_K_unc; sample-sheet column of the same name takes precedence; when not stated {} K is assumed (common practice)", reduce::DEFAULT_TEMPERATURE_ACCURACY_K)}
         }
     })
 }
@@ -138,6 +160,12 @@ const OUTPUT: &[(&str, Option<&str>, &str, Getter)] = &[
         Some("K"),
         "mean temperature of the group",
         Getter::Float(|r| Some(r.temperature_k)),
+    ),
+    (
+        "temperature_K_unc",
+        Some("K"),
+        "standard uncertainty of the temperature: standard deviation of the readings' temperatures and the thermometer accuracy in quadrature",
+        Getter::Float(|r| Some(r.temperature_k_unc)),
     ),
     (
         "temperature_spread_K",
@@ -190,8 +218,20 @@ const OUTPUT: &[(&str, Option<&str>, &str, Getter)] = &[
     (
         "sheet_resistance_ohm_sq_unc",
         Some("ohm_sq"),
-        "standard uncertainty",
+        "total standard uncertainty: _unc_stat and _unc_sys in quadrature",
         Getter::Float(|r| r.sheet_resistance_ohm_sq_unc),
+    ),
+    (
+        "sheet_resistance_ohm_sq_unc_stat",
+        Some("ohm_sq"),
+        "statistical part (Type A): the scatter of the readings, or the sample's pooled reading noise if larger",
+        Getter::Float(|r| r.sheet_resistance_ohm_sq_unc_stat),
+    ),
+    (
+        "sheet_resistance_ohm_sq_unc_sys",
+        Some("ohm_sq"),
+        "systematic part (Type B): the calibrations, common to every row of the sample; apply once, after a fit",
+        Getter::Float(|r| r.sheet_resistance_ohm_sq_unc_sys),
     ),
     (
         "resistivity_ohm_m",
@@ -202,8 +242,20 @@ const OUTPUT: &[(&str, Option<&str>, &str, Getter)] = &[
     (
         "resistivity_ohm_m_unc",
         Some("ohm_m"),
-        "standard uncertainty",
+        "total standard uncertainty: _unc_stat and _unc_sys in quadrature",
         Getter::Float(|r| r.resistivity_ohm_m_unc),
+    ),
+    (
+        "resistivity_ohm_m_unc_stat",
+        Some("ohm_m"),
+        "statistical part (Type A): the scatter of the readings, or the sample's pooled reading noise if larger",
+        Getter::Float(|r| r.resistivity_ohm_m_unc_stat),
+    ),
+    (
+        "resistivity_ohm_m_unc_sys",
+        Some("ohm_m"),
+        "systematic part (Type B): the calibrations, common to every row of the sample; apply once, after a fit",
+        Getter::Float(|r| r.resistivity_ohm_m_unc_sys),
     ),
     (
         "hall_resistance_ohm",
@@ -256,8 +308,20 @@ const OUTPUT: &[(&str, Option<&str>, &str, Getter)] = &[
     (
         "sheet_density_m2_unc",
         Some("m2"),
-        "standard uncertainty",
+        "total standard uncertainty: _unc_stat and _unc_sys in quadrature",
         Getter::Float(|r| r.sheet_density_m2_unc),
+    ),
+    (
+        "sheet_density_m2_unc_stat",
+        Some("m2"),
+        "statistical part (Type A): the scatter of the readings, or the sample's pooled reading noise if larger",
+        Getter::Float(|r| r.sheet_density_m2_unc_stat),
+    ),
+    (
+        "sheet_density_m2_unc_sys",
+        Some("m2"),
+        "systematic part (Type B): the calibrations, common to every row of the sample; apply once, after a fit",
+        Getter::Float(|r| r.sheet_density_m2_unc_sys),
     ),
     (
         "density_m3",
@@ -268,8 +332,20 @@ const OUTPUT: &[(&str, Option<&str>, &str, Getter)] = &[
     (
         "density_m3_unc",
         Some("m3"),
-        "standard uncertainty (includes the thickness uncertainty)",
+        "total standard uncertainty: _unc_stat and _unc_sys in quadrature",
         Getter::Float(|r| r.density_m3_unc),
+    ),
+    (
+        "density_m3_unc_stat",
+        Some("m3"),
+        "statistical part (Type A): the scatter of the readings, or the sample's pooled reading noise if larger",
+        Getter::Float(|r| r.density_m3_unc_stat),
+    ),
+    (
+        "density_m3_unc_sys",
+        Some("m3"),
+        "systematic part (Type B): the calibrations, common to every row of the sample; apply once, after a fit",
+        Getter::Float(|r| r.density_m3_unc_sys),
     ),
     (
         "hall_mobility_m2_per_Vs",
@@ -280,8 +356,20 @@ const OUTPUT: &[(&str, Option<&str>, &str, Getter)] = &[
     (
         "hall_mobility_m2_per_Vs_unc",
         Some("m2_per_Vs"),
-        "standard uncertainty",
+        "total standard uncertainty: _unc_stat and _unc_sys in quadrature",
         Getter::Float(|r| r.hall_mobility_m2_per_vs_unc),
+    ),
+    (
+        "hall_mobility_m2_per_Vs_unc_stat",
+        Some("m2_per_Vs"),
+        "statistical part (Type A): the scatter of the readings, or the sample's pooled reading noise if larger",
+        Getter::Float(|r| r.hall_mobility_m2_per_vs_unc_stat),
+    ),
+    (
+        "hall_mobility_m2_per_Vs_unc_sys",
+        Some("m2_per_Vs"),
+        "systematic part (Type B): the calibrations, common to every row of the sample; apply once, after a fit",
+        Getter::Float(|r| r.hall_mobility_m2_per_vs_unc_sys),
     ),
     (
         "drift_mobility_m2_per_Vs",
@@ -330,6 +418,18 @@ const OUTPUT: &[(&str, Option<&str>, &str, Getter)] = &[
         None,
         "largest field-even / field-odd part of the Hall configurations",
         Getter::Float(|r| r.misalignment_ratio),
+    ),
+    (
+        "drift_corrected",
+        None,
+        "true when the readings of a drifting stage were brought to the group's mean temperature with the series' own slopes",
+        Getter::Flag(|r| r.drift_corrected),
+    ),
+    (
+        "reading_noise_V",
+        Some("V"),
+        "pooled standard deviation of one reading's voltage over the sample's series",
+        Getter::Float(|r| r.reading_noise_v),
     ),
     (
         "flags",
@@ -422,6 +522,10 @@ fn sample_sheet(frame: &DataFrame) -> Result<Vec<SampleInfo>, AnalysisError> {
     let hall_factor = optional_floats("hall_factor")?;
     let bar_length = optional_floats("bar_length_m")?;
     let bar_width = optional_floats("bar_width_m")?;
+    let field_calibration = optional_floats(calibration_names::FIELD)?;
+    let current_calibration = optional_floats(calibration_names::CURRENT)?;
+    let voltage_calibration = optional_floats(calibration_names::VOLTAGE)?;
+    let temperature_accuracy = optional_floats(calibration_names::TEMPERATURE)?;
     let geometry = if frame.column("geometry").is_ok() {
         sdk::string_column(frame, "geometry")?
     } else {
@@ -460,6 +564,12 @@ fn sample_sheet(frame: &DataFrame) -> Result<Vec<SampleInfo>, AnalysisError> {
             thickness_unc_m: thickness_unc[row],
             hall_factor: hall_factor[row].unwrap_or(1.0),
             geometry,
+            calibration: Calibration {
+                field_rel: field_calibration[row],
+                current_rel: current_calibration[row],
+                voltage_rel: voltage_calibration[row],
+                temperature_accuracy_k: temperature_accuracy[row],
+            },
         });
     }
     Ok(samples)
@@ -478,7 +588,7 @@ impl Analysis for HallReduce {
         AnalysisDeclaration {
             name: String::new(),
             summary: "Raw van der Pauw or Hall-bar readings to sheet resistance, resistivity, carrier type, density and Hall mobility per sample, temperature and field".into(),
-            description: "Resistances from whichever configurations are present (current reversal by source sign or swapped leads), sheet resistance from van der Pauw's exact equation, Hall coefficient from the field-odd part of the diagonal (or transverse) configurations, so thermoelectric and misalignment offsets cancel. Uncertainties from the spread of redundant configurations and fit residuals; quality flags with configurable thresholds. Contact numbering: counterclockwise 1-4 seen from the +B side (van der Pauw); 1-6 for Hall bars as described in DEVELOPERS.md.".into(),
+            description: "Resistances from whichever configurations are present (current reversal by source sign or swapped leads), sheet resistance from van der Pauw's exact equation, Hall coefficient from the field-odd part of the diagonal (or transverse) configurations, so thermoelectric and misalignment offsets cancel. Uncertainty budget: _unc is the total, _unc_stat the reading noise pooled over the row's fit residuals and redundant configurations, _unc_sys the calibrations (thickness, field, current, voltage) common to a sample's series; temperature_K_unc the thermometer accuracy. Readings of a drifting stage are brought to the mean temperature; |B| up to zero_field_tolerance_T (10 mT) is zero field; field setpoints are never wider than field_tolerance_T. Quality flags with configurable thresholds. Contact numbering: counterclockwise 1-4 seen from the +B side (van der Pauw); 1-6 for Hall bars as described in DEVELOPERS.md.".into(),
             params: params_schema(),
             inputs: vec![
                 InputRole {
@@ -509,6 +619,10 @@ impl Analysis for HallReduce {
                         column("geometry", Str, None, "van_der_pauw (default) or hall_bar").optional(),
                         column("bar_length_m", F64, Some("m"), "Hall bar: distance between the longitudinal voltage contacts").optional(),
                         column("bar_width_m", F64, Some("m"), "Hall bar: width").optional(),
+                        column(calibration_names::FIELD, F64, None, "relative standard uncertainty of the field scale (overrides the parameter)").optional(),
+                        column(calibration_names::CURRENT, F64, None, "relative standard uncertainty of the current scale (overrides the parameter)").optional(),
+                        column(calibration_names::VOLTAGE, F64, None, "relative standard uncertainty of the voltmeter gain (overrides the parameter)").optional(),
+                        column(calibration_names::TEMPERATURE, F64, Some("K"), "standard uncertainty of the thermometer (overrides the parameter)").optional(),
                     ],
                 },
             ],
@@ -519,6 +633,8 @@ impl Analysis for HallReduce {
                 column("flagged_rows", I64, None, "rows with at least one quality flag"),
                 column("flag_counts", Str, None, "object: rows raising each flag"),
                 column("skipped_readings", I64, None, "invalid readings dropped under skip_invalid_readings"),
+                column("calibrations", Str, None, "object per sample: the calibrations used (relative standard uncertainties, temperature_accuracy_K), the names not stated and assumed, and reading_noise_V, the pooled voltage noise of one reading"),
+                column("calibrations_not_stated", Str, None, "list of the calibration parameters some sample did not state (their defaults were assumed)"),
             ],
         }
     }
@@ -584,6 +700,38 @@ impl Analysis for HallReduce {
         output
             .summary
             .insert("skipped_readings".into(), json!(reduction.skipped_readings));
+        let calibrations: serde_json::Map<String, serde_json::Value> = reduction
+            .calibrations
+            .iter()
+            .map(|used| {
+                (
+                    used.sample.clone(),
+                    json!({
+                        "thickness_rel": used.thickness_rel,
+                        "field_calibration_rel": used.field_rel,
+                        "current_calibration_rel": used.current_rel,
+                        "voltage_calibration_rel": used.voltage_rel,
+                        "temperature_accuracy_K": used.temperature_accuracy_k,
+                        "not_stated": used.not_stated,
+                        "reading_noise_V": used.reading_noise_v,
+                    }),
+                )
+            })
+            .collect();
+        let mut not_stated: Vec<&str> = Vec::new();
+        for used in &reduction.calibrations {
+            for name in &used.not_stated {
+                if !not_stated.contains(name) {
+                    not_stated.push(name);
+                }
+            }
+        }
+        output
+            .summary
+            .insert("calibrations".into(), serde_json::Value::Object(calibrations));
+        output
+            .summary
+            .insert("calibrations_not_stated".into(), json!(not_stated));
         output.warnings = reduction.warnings;
         host.progress(1.0, "done");
         Ok(output)
@@ -591,3 +739,147 @@ impl Analysis for HallReduce {
 }
 
 mobilis_core::export_plugin!(name: "hall", analyses: [HallReduce]);
+
+#[cfg(test)]
+mod tests {
+    //! The table glue: calibration parameters and sample-sheet columns in, budget columns and
+    //! summary keys out, through the SDK without the C boundary.
+
+    use super::*;
+    use mobilis_core::forward::readings::{van_der_pauw_readings, MeasurementProtocol, VanDerPauwSample, VoltageNoise};
+    use mobilis_core::noise::Rng;
+    use mobilis_core::sdk::run_typed;
+
+    fn readings_frame() -> DataFrame {
+        let sample = VanDerPauwSample::ideal("w1", 77.0, 300.0, 1.1, -600.0);
+        let protocol = MeasurementProtocol {
+            noise: VoltageNoise {
+                absolute_v: 1e-7,
+                relative: 0.0,
+            },
+            ..MeasurementProtocol::van_der_pauw(1e-4, vec![0.5]).with_resistance_at_zero_and_hall_in_field()
+        };
+        let readings = van_der_pauw_readings(&sample, &protocol, &mut Rng::seeded(3)).unwrap();
+        let floats =
+            |get: fn(&mobilis_core::readings::RawReading) -> f64| readings.iter().map(get).collect::<Vec<f64>>();
+        let ints = |get: fn(&mobilis_core::readings::RawReading) -> i64| readings.iter().map(get).collect::<Vec<i64>>();
+        DataFrame::new(
+            readings.len(),
+            vec![
+                Column::new(
+                    "sample".into(),
+                    readings.iter().map(|r| r.sample.clone()).collect::<Vec<_>>(),
+                ),
+                Column::new("temperature_K".into(), floats(|r| r.temperature_k)),
+                Column::new("field_T".into(), floats(|r| r.field_t)),
+                Column::new("i_in".into(), ints(|r| r.i_in)),
+                Column::new("i_out".into(), ints(|r| r.i_out)),
+                Column::new("v_pos".into(), ints(|r| r.v_pos)),
+                Column::new("v_neg".into(), ints(|r| r.v_neg)),
+                Column::new("current_A".into(), floats(|r| r.current_a)),
+                Column::new("voltage_V".into(), floats(|r| r.voltage_v)),
+            ],
+        )
+        .unwrap()
+    }
+
+    fn sheet_frame(field_calibration: Option<f64>) -> DataFrame {
+        DataFrame::new(
+            1,
+            vec![
+                Column::new("sample".into(), vec!["w1"]),
+                Column::new("thickness_m".into(), vec![5e-4]),
+                Column::new("thickness_m_unc".into(), vec![1e-5]),
+                Column::new("field_calibration_rel".into(), vec![field_calibration]),
+            ],
+        )
+        .unwrap()
+    }
+
+    fn run(params: &str, field_calibration: Option<f64>) -> Result<AnalysisOutput, AnalysisError> {
+        let inputs = Inputs::from_tables([
+            ("readings".to_owned(), readings_frame()),
+            ("samples".to_owned(), sheet_frame(field_calibration)),
+        ]);
+        run_typed::<HallReduce>(params, &inputs, &Host::detached())
+    }
+
+    #[test]
+    fn budget_columns_and_calibration_summary() {
+        let output = run(
+            r#"{"current_calibration_rel": 0.002, "voltage_calibration_rel": 0.0005, "temperature_accuracy_K": 0.01}"#,
+            Some(0.01),
+        )
+        .unwrap();
+        for name in [
+            "temperature_K_unc",
+            "sheet_resistance_ohm_sq_unc_stat",
+            "sheet_resistance_ohm_sq_unc_sys",
+            "resistivity_ohm_m_unc_stat",
+            "resistivity_ohm_m_unc_sys",
+            "sheet_density_m2_unc_stat",
+            "sheet_density_m2_unc_sys",
+            "density_m3_unc_stat",
+            "density_m3_unc_sys",
+            "hall_mobility_m2_per_Vs_unc_stat",
+            "hall_mobility_m2_per_Vs_unc_sys",
+            "reading_noise_V",
+            "drift_corrected",
+        ] {
+            assert!(output.table.column(name).is_ok(), "column {name} is missing");
+        }
+        let declared: Vec<String> = HallReduce::declaration()
+            .outputs
+            .iter()
+            .map(|c| c.name.clone())
+            .collect();
+        let produced: Vec<String> = output.table.get_column_names().iter().map(|n| n.to_string()).collect();
+        assert_eq!(declared, produced);
+        let used = &output.summary["calibrations"]["w1"];
+        assert_eq!(used["field_calibration_rel"], json!(0.01), "the sheet's value");
+        assert_eq!(used["current_calibration_rel"], json!(0.002), "the call's value");
+        assert_eq!(used["not_stated"], json!([]));
+        assert_eq!(output.summary["calibrations_not_stated"], json!([]));
+        // mu_H: the field calibration alone (1 %).
+        let mobility = output
+            .table
+            .column("hall_mobility_m2_per_Vs")
+            .unwrap()
+            .f64()
+            .unwrap()
+            .get(0)
+            .unwrap();
+        let systematic = output
+            .table
+            .column("hall_mobility_m2_per_Vs_unc_sys")
+            .unwrap()
+            .f64()
+            .unwrap()
+            .get(0)
+            .unwrap();
+        assert!((systematic / mobility - 0.01).abs() < 1e-12);
+    }
+
+    #[test]
+    fn unstated_calibrations_are_listed_and_bad_ones_refused() {
+        let output = run("{}", None).unwrap();
+        assert_eq!(
+            output.summary["calibrations_not_stated"],
+            json!([
+                "field_calibration_rel",
+                "current_calibration_rel",
+                "voltage_calibration_rel",
+                "temperature_accuracy_K"
+            ])
+        );
+        assert!(output.warnings.iter().any(|w| w.starts_with("calibrations not stated")));
+        let Err(AnalysisError::InvalidInput(message)) = run(r#"{"voltage_calibration_rel": -0.1}"#, None) else {
+            panic!("a negative calibration is refused")
+        };
+        assert!(message.contains("voltage_calibration_rel"), "{message}");
+        let Err(AnalysisError::InvalidInput(message)) = run("{}", Some(-1.0)) else {
+            panic!("a negative sheet calibration is refused")
+        };
+        assert!(message.contains("field_calibration_rel of sample \"w1\""), "{message}");
+    }
+}

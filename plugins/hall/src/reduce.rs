@@ -17,13 +17,24 @@
 //!    carries its flag). A sample with readings but no sheet row is an error listing every such name.
 //!    Without a sheet every sample is a 2D van der Pauw sample with Hall factor 1.
 //! 2. **Temperature groups.** Per sample, readings are sorted by temperature and consecutive
-//!    temperatures closer than `temperature_tolerance_k` share a group. Chains are allowed, so
-//!    a slow drift stays one group; the row reports the group's mean and its spread
-//!    (max - min) so that a drift is visible.
-//! 3. **Field magnitudes.** Within a group, |B| <= `zero_field_tolerance_t` is zero field;
-//!    the other readings are clustered by |B| the same way with `field_tolerance_t`. Each
-//!    nonzero magnitude gives one row; a group without field readings gives one row with null
-//!    Hall quantities and the flag `no_field_data`.
+//!    temperatures closer than `temperature_tolerance_k` and than 5 % of the temperature
+//!    share a group (the second limit keeps a sub-kelvin series apart: 0.3, 0.4, 0.5 K are
+//!    three groups). Chains are allowed, so a slow drift stays one group; the row reports
+//!    the group's mean and its spread (max - min) so that a drift is visible.
+//! 3. **Zero field and field setpoints.** Within a group, |B| <= `zero_field_tolerance_t`
+//!    (default 10 mT) is zero field: an electromagnet keeps a few mT at a nominal zero, and
+//!    a gaussmeter records it, so the window is wide enough for that remanence and far below
+//!    any Hall field (common practice); readings above 1e-4 T taken as zero field are named
+//!    in a warning with the parameter. The other readings are grouped by |B| around
+//!    setpoints: a row starts at the smallest |B| not yet placed and takes every reading
+//!    within `field_tolerance_t` (5 mT) of it, so a row is never wider than that and a
+//!    densely logged ramp is cut into setpoints instead of being chained into one. A field
+//!    that wanders by tenths of a mT between readings stays one row, and each polarity's
+//!    field-odd part is divided by its own fields (step 6). Each setpoint gives one row; a
+//!    group without field readings gives one row with null Hall quantities and the flag
+//!    `no_field_data`. A row with a missing configuration or field sign warns and names
+//!    `field_tolerance_T`, `zero_field_tolerance_T` and `temperature_tolerance_K`, the
+//!    parameters that decide which readings share it.
 //! 4. **Canonical readings and fits.** Each reading is put in the canonical orientation of its
 //!    configuration (I_c = current_sign * current_A, V_c = voltage_sign * voltage_V), so a
 //!    current reversed by the source sign and one reversed by swapping the leads are the same
@@ -58,15 +69,14 @@
 //!    side the mean of its repeats: these are the four NIST Hall voltages V_C..V_F over 2I.
 //!    Thermoelectric offsets (even in B) and misalignment (even in B) cancel; averaging the
 //!    two current polarities also cancels voltages odd in B but independent of the current.
-//!    R_xy is the mean of the rho_k with the same uncertainty rule as the resistances (spread
-//!    of the rho_k combined with their own errors from repeats), which is never smaller than
-//!    the standard error of the spread alone. R_Hs = R_xy / |B| with |B| the mean of the mean
+//!    When the fields at +B and -B differ (a wandering setpoint), each rho_k is
+//!    (V/I at +B1 - V/I at -B2) / (B1 + B2) times the row's |B|, each B the mean |B| of that
+//!    polarity's readings, so that R_Hs B1 and R_Hs B2 are divided by their own fields.
+//!    R_xy is the mean of the rho_k. R_Hs = R_xy / |B| with |B| the mean of the mean
 //!    |B| at +B and at -B (positive for holes, the sign convention of the NIST Hall-effect
 //!    pages); n_s = r_H / (e |R_Hs|); n = n_s / t; R_H = R_Hs t; mu_H = |R_Hs| / R_s (free of
-//!    the Hall factor and of the thickness); drift mobility mu_H / r_H. Uncertainties are
-//!    first order, the factors independent; the thickness uncertainty enters resistivity,
-//!    R_H and n, not the sheet quantities. A magnitude with no Hall configuration at both field
-//!    signs has null Hall quantities (`no_field_reversal`).
+//!    the Hall factor and of the thickness); drift mobility mu_H / r_H. A magnitude with no
+//!    Hall configuration at both field signs has null Hall quantities (`no_field_reversal`).
 //!    Quality numbers: the misalignment ratio is the largest |field-even part| of a Hall
 //!    configuration (averaged over the polarities, which removes the offset's V_offset / I)
 //!    over |R_xy|; the thermoelectric offset ratio is the largest |V_offset| / |R I_max| over
@@ -77,9 +87,61 @@
 //!    also sees the thermoelectric offset (mismatch = 2 x offset ratio).
 //! 7. **Flags.** See [`flags`]; a row lists its flags in the order of [`flags::ALL`] and
 //!    `quality_ok` is true when there is none.
+//! 8. **A drifting stage.** Each reading records its own temperature. When the readings of a
+//!    group drift and the series has neighbouring temperatures, the group is reduced again
+//!    with every reading brought to the group's mean temperature T: V x exp(s (T - T_k)),
+//!    with s = d ln R_s / dT on the resistance configurations and d ln |R_Hs| / dT on the
+//!    Hall ones, both from the series itself (the derivative in 1/T of the parabola through
+//!    the group and its two nearest groups, in which a thermally activated density is a
+//!    straight line). The slopes come from the previous pass, whose values the drift
+//!    biased a little, so the correction is made twice. What remains is second order. A
+//!    group whose correction would change a reading by more than 10 % (a Hall coefficient
+//!    crossing zero, a transition) is left as measured. The row says `drift_corrected`.
 //!
-//! Uncertainties are `None` when no component could be estimated (a single configuration with
-//! one reading per polarity and no repeat has nothing to estimate a scatter from).
+//! # The uncertainty budget
+//!
+//! Every `_unc` is a total standard uncertainty (one sigma). For the sheet resistance,
+//! resistivity, sheet density, density and Hall mobility it is split into `_unc_stat` and
+//! `_unc_sys`, with `_unc` their quadrature sum (JCGM 100:2008, the GUM: Type A and Type B
+//! evaluations, first-order propagation, 5.1.2 and 5.1.6).
+//!
+//! - **Statistical (Type A).** All readings of a sample share one voltmeter, so the noise of
+//!   a reading is modelled as one standard deviation sigma_V in volts. Every estimate carries
+//!   its noise coefficient (its standard uncertainty per volt of that noise, propagated
+//!   through the same formulas as the value), and every row collects its evidence about
+//!   sigma_V: the residuals of the cell fits and the spread of its redundant estimates (the
+//!   direct and reciprocal configurations of a family, the Hall values of the diagonals and
+//!   polarities), each weighted by its noise coefficient, with its degrees of freedom (the
+//!   usual van der Pauw protocol gives 5). The statistical part is the noise coefficient
+//!   times the row's pooled sigma_V times sqrt(nu / (nu - 2)), the standard deviation of the
+//!   Student t distribution that a Type A evaluation on nu degrees of freedom is assigned
+//!   (JCGM 101:2008, 6.4.9.4). With fewer than 3 degrees of freedom a row borrows sigma_V
+//!   pooled over its sample's whole series (JCGM 100:2008, 4.2.8); with fewer there too, it
+//!   keeps the standard error of its own scatter. Autoranged currents are handled by the
+//!   coefficients (a reading at I carries sigma_V / I in V/I). The statistical part is never
+//!   below 1e-12 of the value, the resolution of the arithmetic: never zero.
+//! - **Systematic (Type B).** The calibrations, each one error common to every row of the
+//!   sample: thickness (`thickness_m_unc`), field scale (`field_calibration_rel`), current
+//!   scale (`current_calibration_rel`), voltmeter gain (`voltage_calibration_rel`). To first
+//!   order, relative: R_s and R_xy depend on V and I; R_Hs and n_s on V, I and B; rho on V, I
+//!   and t; R_H and n on V, I, B and t; mu_H = R_Hs / R_s on B only (the voltmeter's gain and
+//!   the source's scale cancel, since one voltmeter and one source measure both). A fit over
+//!   the series weights its points by `_unc_stat` and applies `_unc_sys / X` once, after the
+//!   fit, as a common scale (never as per-point noise).
+//! - **Temperature.** `temperature_K_unc` is the stated thermometer accuracy
+//!   (`temperature_accuracy_K`), in quadrature with the standard deviation of the readings'
+//!   temperatures when a drift could not be corrected (a single temperature). A
+//!   temperature-series fit propagates it through its model's slope (effective variance).
+//! - **Stated or assumed.** Each calibration comes from the sample sheet (a column of the
+//!   parameter's name, or `thickness_m_unc`), else from the call's parameter, else from its
+//!   default (0.5 % field, 0.1 % current, 0.01 % voltage, 0.02 K; 0 for an unstated
+//!   thickness uncertainty), common practice; the assumed ones are listed per sample and
+//!   named in a warning.
+//!
+//! The scatter-based standard errors described in steps 5 and 6 are the fallback of the
+//! statistical part. Uncertainties are `None` when no statistical part could be estimated
+//! (a single configuration with one reading per polarity and no repeat, in a series with no
+//! other evidence, has nothing to estimate a scatter from).
 //!
 //! # Performance
 //!
@@ -89,6 +151,8 @@
 //! and polarity) and walking contiguous slices. O(n log n), no allocation per reading.
 
 mod cells;
+#[cfg(test)]
+mod coverage_tests;
 pub mod error;
 pub mod flags;
 mod row;
@@ -100,9 +164,14 @@ use std::collections::HashMap;
 use mobilis_core::contacts::{classify_hall_bar, classify_van_der_pauw, Configuration};
 pub use mobilis_core::readings::RawReading;
 
-use cells::{cell_key, gap_clusters, runs_by_key, summarize_cell, CellSummary, Prepared, MAX_SLOTS};
+use cells::{
+    cell_key, gap_clusters, runs_by_key, setpoint_clusters, summarize_cell, CellSummary, NoiseEvidence, Prepared,
+    MAX_SLOTS,
+};
 pub use error::{ReadingProblem, ReduceError};
-use row::{build_row, FieldCells, ResolvedSample, TemperatureGroup, ZeroFieldCells};
+use row::{
+    build_row, finish_row, FieldCells, ResolvedCalibration, ResolvedSample, RowDraft, TemperatureGroup, ZeroFieldCells,
+};
 
 /// How many skipped readings, and separately how many rows, get a warning of their own
 /// before the rest are summarized in one line.
@@ -139,6 +208,8 @@ pub struct SampleInfo {
     /// Hall scattering factor r_H = mu_H / mu_drift; 1 when unknown.
     pub hall_factor: f64,
     pub geometry: Geometry,
+    /// Calibrations stated for this sample; they take precedence over the call's.
+    pub calibration: Calibration,
 }
 
 impl SampleInfo {
@@ -150,8 +221,66 @@ impl SampleInfo {
             thickness_unc_m: None,
             hall_factor: 1.0,
             geometry: Geometry::VanDerPauw,
+            calibration: Calibration::default(),
         }
     }
+}
+
+/// The calibrations of a measurement, as standard uncertainties: `None` is "not stated",
+/// and then the default below is assumed and the reduction says so. Each one is an error
+/// common to every reading of a sample's series (one gaussmeter, one source, one
+/// voltmeter, one thermometer), so it goes into the systematic part of the budget, never
+/// into the statistical one.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct Calibration {
+    /// Relative standard uncertainty of the field scale (gaussmeter or magnet constant).
+    pub field_rel: Option<f64>,
+    /// Relative standard uncertainty of the current source's scale.
+    pub current_rel: Option<f64>,
+    /// Relative standard uncertainty of the voltmeter's gain.
+    pub voltage_rel: Option<f64>,
+    /// Standard uncertainty of the thermometer's reading of the sample temperature, K.
+    pub temperature_accuracy_k: Option<f64>,
+}
+
+/// Assumed when the field calibration is not stated: 0.5 %, a Hall-probe gaussmeter or a
+/// magnet constant as usually calibrated (common practice).
+pub const DEFAULT_FIELD_CALIBRATION_REL: f64 = 5e-3;
+/// Assumed when the current calibration is not stated: 0.1 %, the accuracy of a precision
+/// current source on its usual ranges (common practice).
+pub const DEFAULT_CURRENT_CALIBRATION_REL: f64 = 1e-3;
+/// Assumed when the voltage calibration is not stated: 0.01 %, the gain accuracy of a
+/// nanovoltmeter or digital multimeter on a millivolt range (common practice).
+pub const DEFAULT_VOLTAGE_CALIBRATION_REL: f64 = 1e-4;
+/// Assumed when the thermometer accuracy is not stated: 0.02 K, a calibrated cryogenic
+/// sensor (common practice).
+pub const DEFAULT_TEMPERATURE_ACCURACY_K: f64 = 0.02;
+
+/// The parameter (and sample-sheet column) names of the calibrations, for messages.
+pub mod calibration_names {
+    pub const THICKNESS: &str = "thickness_m_unc";
+    pub const FIELD: &str = "field_calibration_rel";
+    pub const CURRENT: &str = "current_calibration_rel";
+    pub const VOLTAGE: &str = "voltage_calibration_rel";
+    pub const TEMPERATURE: &str = "temperature_accuracy_K";
+}
+
+/// The calibrations one sample was reduced with, and which of them were assumed.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CalibrationUsed {
+    pub sample: String,
+    /// Relative standard uncertainty of the thickness (0 for a 2D sheet or when not stated).
+    pub thickness_rel: f64,
+    pub field_rel: f64,
+    pub current_rel: f64,
+    pub voltage_rel: f64,
+    pub temperature_accuracy_k: f64,
+    /// Names (see [`calibration_names`]) of the calibrations that were not stated for this
+    /// sample, neither in the sheet nor in the call, and were assumed.
+    pub not_stated: Vec<&'static str>,
+    /// The pooled standard deviation of one reading's voltage over the sample's series, V
+    /// (see the module documentation); `None` when no reading was repeated or redundant.
+    pub reading_noise_v: Option<f64>,
 }
 
 /// Limits of the quality flags. The defaults are common practice, not taken from a standard.
@@ -191,14 +320,17 @@ impl Default for QualityThresholds {
 /// How readings are grouped and judged.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct ReduceSettings {
-    /// Readings whose sorted temperatures are no further apart than this share a row, K.
-    /// Default 0.5 K.
+    /// Readings whose sorted temperatures are no further apart than this (and than 5 % of
+    /// the temperature) share a row, K. Default 0.5 K.
     pub temperature_tolerance_k: f64,
-    /// |B| at or below this is zero field, T. Default 1e-4 T (1 G).
+    /// |B| at or below this is zero field, T. Default 1e-2 T (100 G): well above the few mT
+    /// an electromagnet keeps at a nominal zero, well below a Hall field (common practice).
     pub zero_field_tolerance_t: f64,
-    /// Readings whose sorted |B| are no further apart than this share a row, T.
-    /// Default 5e-3 T.
+    /// Width of a field setpoint, T: a row takes the readings whose |B| lie within this of
+    /// its smallest |B|. Default 5e-3 T.
     pub field_tolerance_t: f64,
+    /// Calibrations stated for the whole call (a sample-sheet value takes precedence).
+    pub calibration: Calibration,
     pub thresholds: QualityThresholds,
     /// Drop invalid readings with a warning instead of refusing the input. Default false.
     pub skip_invalid_readings: bool,
@@ -208,8 +340,9 @@ impl Default for ReduceSettings {
     fn default() -> Self {
         ReduceSettings {
             temperature_tolerance_k: 0.5,
-            zero_field_tolerance_t: 1e-4,
+            zero_field_tolerance_t: 1e-2,
             field_tolerance_t: 5e-3,
+            calibration: Calibration::default(),
             thresholds: QualityThresholds::default(),
             skip_invalid_readings: false,
         }
@@ -221,6 +354,29 @@ impl ReduceSettings {
         let non_negative = "give a finite value of 0 or more";
         let positive = "give a finite positive value";
         let thresholds = &self.thresholds;
+        let relative = "give a finite relative standard uncertainty of 0 or more (0.005 is 0.5 %)";
+        let calibration = &self.calibration;
+        let calibration_checks = [
+            (calibration_names::FIELD, calibration.field_rel, relative),
+            (calibration_names::CURRENT, calibration.current_rel, relative),
+            (calibration_names::VOLTAGE, calibration.voltage_rel, relative),
+            (
+                calibration_names::TEMPERATURE,
+                calibration.temperature_accuracy_k,
+                "give a finite standard uncertainty of the thermometer in K, 0 or more",
+            ),
+        ];
+        for (setting, value, requirement) in calibration_checks {
+            if let Some(value) = value {
+                if !(value >= 0.0 && value.is_finite()) {
+                    return Err(ReduceError::InvalidSetting {
+                        setting,
+                        value,
+                        requirement,
+                    });
+                }
+            }
+        }
         let checks: [(&'static str, f64, bool, &'static str); 9] = [
             (
                 "temperature_tolerance_K",
@@ -298,6 +454,13 @@ pub struct ReducedRow {
     pub geometry: &'static str,
     /// Mean temperature of the group, K.
     pub temperature_k: f64,
+    /// Standard uncertainty of that temperature, K: the thermometer accuracy, in quadrature
+    /// with the standard deviation of the group's readings' temperatures when their drift
+    /// could not be corrected.
+    pub temperature_k_unc: f64,
+    /// Whether the readings of a drifting stage were brought to the mean temperature with
+    /// the series' own slopes.
+    pub drift_corrected: bool,
     /// max - min of the group's temperatures, K.
     pub temperature_spread_k: f64,
     /// The |B| the Hall quantities refer to, T; `None` without field readings.
@@ -313,9 +476,17 @@ pub struct ReducedRow {
     /// Van der Pauw f of R_s = pi (R_A + R_B) / (2 ln 2) f.
     pub geometry_factor: Option<f64>,
     pub sheet_resistance_ohm_sq: Option<f64>,
+    /// Total standard uncertainty (statistical and systematic in quadrature); likewise every
+    /// `_unc` below.
     pub sheet_resistance_ohm_sq_unc: Option<f64>,
+    /// From the scatter of the readings (Type A).
+    pub sheet_resistance_ohm_sq_unc_stat: Option<f64>,
+    /// From the calibrations, common to every row of the sample (Type B).
+    pub sheet_resistance_ohm_sq_unc_sys: Option<f64>,
     pub resistivity_ohm_m: Option<f64>,
     pub resistivity_ohm_m_unc: Option<f64>,
+    pub resistivity_ohm_m_unc_stat: Option<f64>,
+    pub resistivity_ohm_m_unc_sys: Option<f64>,
     /// R_xy at `field_t`, positive for holes. Ohm.
     pub hall_resistance_ohm: Option<f64>,
     pub hall_resistance_ohm_unc: Option<f64>,
@@ -329,10 +500,16 @@ pub struct ReducedRow {
     pub carrier_type: Option<&'static str>,
     pub sheet_density_m2: Option<f64>,
     pub sheet_density_m2_unc: Option<f64>,
+    pub sheet_density_m2_unc_stat: Option<f64>,
+    pub sheet_density_m2_unc_sys: Option<f64>,
     pub density_m3: Option<f64>,
     pub density_m3_unc: Option<f64>,
+    pub density_m3_unc_stat: Option<f64>,
+    pub density_m3_unc_sys: Option<f64>,
     pub hall_mobility_m2_per_vs: Option<f64>,
     pub hall_mobility_m2_per_vs_unc: Option<f64>,
+    pub hall_mobility_m2_per_vs_unc_stat: Option<f64>,
+    pub hall_mobility_m2_per_vs_unc_sys: Option<f64>,
     /// mu_H / r_H.
     pub drift_mobility_m2_per_vs: Option<f64>,
     pub drift_mobility_m2_per_vs_unc: Option<f64>,
@@ -343,6 +520,9 @@ pub struct ReducedRow {
     pub hall_spread: Option<f64>,
     pub thermoelectric_offset_ratio: Option<f64>,
     pub misalignment_ratio: Option<f64>,
+    /// The pooled standard deviation of one reading's voltage in this row, V (from the
+    /// residuals of its fits and the spread of its redundant configurations).
+    pub reading_noise_v: Option<f64>,
     /// Raised flags, in the order of [`flags::ALL`].
     pub flags: Vec<&'static str>,
     pub quality_ok: bool,
@@ -355,6 +535,8 @@ pub struct Reduction {
     pub warnings: Vec<String>,
     /// Invalid readings dropped under `skip_invalid_readings`.
     pub skipped_readings: usize,
+    /// Per sample, in the order of the rows: the calibrations used and the pooled noise.
+    pub calibrations: Vec<CalibrationUsed>,
 }
 
 /// The readings as borrowed columns, one entry per reading, so that a table can be reduced
@@ -504,7 +686,7 @@ fn reduce_source<S: ReadingSource>(
         rank_of_id[*id as usize] = rank as u32;
     }
     let sorted_names: Vec<&str> = order.iter().map(|id| names[*id as usize]).collect();
-    let resolved = resolve_samples(&sorted_names, samples, &mut warnings)?;
+    let resolved = resolve_samples(&sorted_names, samples, &settings.calibration, &mut warnings)?;
 
     // Validate and canonicalize.
     let mut prepared: Vec<Prepared> = Vec::with_capacity(total);
@@ -547,6 +729,7 @@ fn reduce_source<S: ReadingSource>(
     });
     let mut rows = Vec::new();
     let mut row_warnings = Vec::new();
+    let mut calibrations = Vec::new();
     for sample_range in runs_by_key(&prepared, |reading| reading.sample_rank) {
         let sample_readings = &mut prepared[sample_range];
         let sample = &resolved[sample_readings[0].sample_rank as usize];
@@ -554,15 +737,120 @@ fn reduce_source<S: ReadingSource>(
             sample_readings.iter().map(|reading| reading.temperature_k),
             settings.temperature_tolerance_k,
         );
-        for temperature_range in temperature_ranges {
-            reduce_temperature_group(
-                &mut sample_readings[temperature_range],
+        // First pass: every temperature group as measured.
+        let mut largest_zero_field_t = 0.0_f64;
+        let mut groups: Vec<Vec<(ReducedRow, RowDraft)>> = Vec::with_capacity(temperature_ranges.len());
+        let mut group_warnings: Vec<Vec<String>> = Vec::with_capacity(temperature_ranges.len());
+        for temperature_range in &temperature_ranges {
+            let mut group_rows = Vec::new();
+            let mut warnings_of_group = Vec::new();
+            let largest = reduce_temperature_group(
+                &mut sample_readings[temperature_range.clone()],
                 sample,
                 settings,
-                &mut rows,
-                &mut row_warnings,
+                None,
+                &mut group_rows,
+                &mut warnings_of_group,
             );
+            largest_zero_field_t = largest_zero_field_t.max(largest);
+            groups.push(group_rows);
+            group_warnings.push(warnings_of_group);
         }
+        // Further passes for the groups whose readings drifted: each reading brought to the
+        // group's mean temperature with the series' own slopes, taken from the previous
+        // pass (whose values the drift biased a little; a second correction removes what
+        // the first left).
+        for _ in 0..DRIFT_CORRECTION_PASSES {
+            let slopes = drift_slopes(&groups);
+            let mut any = false;
+            for (index, temperature_range) in temperature_ranges.iter().enumerate() {
+                let readings = &sample_readings[temperature_range.clone()];
+                let drifted = readings
+                    .iter()
+                    .any(|reading| reading.temperature_k != readings[0].temperature_k);
+                let Some(group_slopes) = slopes[index].filter(|_| drifted) else {
+                    continue;
+                };
+                if largest_drift_correction(readings, group_slopes, sample.geometry) > LARGEST_DRIFT_CORRECTION {
+                    // Beyond first order (a Hall coefficient crossing zero, a transition):
+                    // the group stays as measured, with its readings' spread in u(T).
+                    continue;
+                }
+                any = true;
+                let mut corrected = readings.to_vec();
+                correct_drift(&mut corrected, group_slopes, sample.geometry);
+                let mut group_rows = Vec::new();
+                let mut warnings_of_group = Vec::new();
+                reduce_temperature_group(
+                    &mut corrected,
+                    sample,
+                    settings,
+                    Some(group_slopes),
+                    &mut group_rows,
+                    &mut warnings_of_group,
+                );
+                groups[index] = group_rows;
+                group_warnings[index] = warnings_of_group;
+            }
+            if !any {
+                break;
+            }
+        }
+        let drafts: Vec<(ReducedRow, RowDraft)> = groups.into_iter().flatten().collect();
+        row_warnings.extend(group_warnings.into_iter().flatten());
+        if largest_zero_field_t > STRICT_ZERO_FIELD_T {
+            warnings.push(format!(
+                "sample {:?}: readings with |B| up to {:.4} T were taken as zero field (zero_field_tolerance_T = {} T), a remanent field at a nominal zero; if they were meant as a Hall field, lower zero_field_tolerance_T",
+                sample.name, largest_zero_field_t, settings.zero_field_tolerance_t
+            ));
+        }
+        // The sample's voltage noise pooled over every row of its series (JCGM 100:2008,
+        // 4.2.8): one voltmeter, so one noise, for the rows with too little evidence of
+        // their own.
+        let mut evidence = NoiseEvidence::default();
+        for (_, draft) in &drafts {
+            evidence.add(draft.evidence);
+        }
+        let reading_noise_v = evidence.pooled_noise_v();
+        for (mut row, draft) in drafts {
+            finish_row(&mut row, &draft, &evidence, &sample.calibration);
+            rows.push(row);
+        }
+        calibrations.push(CalibrationUsed {
+            sample: sample.name.to_owned(),
+            thickness_rel: sample.calibration.thickness_rel,
+            field_rel: sample.calibration.field_rel,
+            current_rel: sample.calibration.current_rel,
+            voltage_rel: sample.calibration.voltage_rel,
+            temperature_accuracy_k: sample.calibration.temperature_accuracy_k,
+            not_stated: sample.not_stated.clone(),
+            reading_noise_v,
+        });
+    }
+    let mut not_stated: Vec<(&'static str, usize)> = Vec::new();
+    for used in &calibrations {
+        for name in &used.not_stated {
+            match not_stated.iter_mut().find(|(known, _)| known == name) {
+                Some((_, count)) => *count += 1,
+                None => not_stated.push((name, 1)),
+            }
+        }
+    }
+    if !not_stated.is_empty() {
+        let listed: Vec<String> = not_stated
+            .iter()
+            .map(|(name, count)| {
+                format!(
+                    "{name} (assumed {}; {count} of {} samples)",
+                    assumed_value(name),
+                    calibrations.len()
+                )
+            })
+            .collect();
+        warnings.push(format!(
+            "calibrations not stated: {}; the *_unc_sys columns rest on these assumptions (common practice); state them as parameters or sample-sheet columns",
+            listed.join(", ")
+        ));
     }
     let row_warning_count = row_warnings.len();
     warnings.extend(row_warnings.into_iter().take(DETAILED_WARNINGS));
@@ -576,6 +864,7 @@ fn reduce_source<S: ReadingSource>(
         rows,
         warnings,
         skipped_readings: skipped,
+        calibrations,
     })
 }
 
@@ -583,17 +872,23 @@ fn reduce_source<S: ReadingSource>(
 fn resolve_samples<'a>(
     names: &[&'a str],
     samples: Option<&'a [SampleInfo]>,
+    call_calibration: &Calibration,
     warnings: &mut Vec<String>,
 ) -> Result<Vec<ResolvedSample<'a>>, ReduceError> {
     let Some(sheet) = samples else {
         return Ok(names
             .iter()
-            .map(|name| ResolvedSample {
-                name,
-                thickness_m: None,
-                thickness_unc_m: None,
-                hall_factor: 1.0,
-                geometry: Geometry::VanDerPauw,
+            .map(|name| {
+                let (calibration, not_stated) =
+                    resolve_calibration(None, None, &Calibration::default(), call_calibration);
+                ResolvedSample {
+                    name,
+                    thickness_m: None,
+                    hall_factor: 1.0,
+                    geometry: Geometry::VanDerPauw,
+                    calibration,
+                    not_stated,
+                }
             })
             .collect());
     };
@@ -628,19 +923,110 @@ fn resolve_samples<'a>(
         .iter()
         .map(|name| {
             let info = by_name[name];
+            let thickness_unc_m = info.thickness_m.and(info.thickness_unc_m);
+            let (calibration, not_stated) =
+                resolve_calibration(info.thickness_m, thickness_unc_m, &info.calibration, call_calibration);
             ResolvedSample {
                 name: info.name.as_str(),
                 thickness_m: info.thickness_m,
-                thickness_unc_m: info.thickness_m.and(info.thickness_unc_m),
                 hall_factor: info.hall_factor,
                 geometry: info.geometry,
+                calibration,
+                not_stated,
             }
         })
         .collect())
 }
 
+/// A sheet value, else the call's, else the default (and the name goes on the not-stated
+/// list).
+fn resolve_calibration(
+    thickness_m: Option<f64>,
+    thickness_unc_m: Option<f64>,
+    sample: &Calibration,
+    call: &Calibration,
+) -> (ResolvedCalibration, Vec<&'static str>) {
+    let mut not_stated = Vec::new();
+    let mut pick = |name: &'static str, sheet: Option<f64>, call: Option<f64>, default: f64| {
+        sheet.or(call).unwrap_or_else(|| {
+            not_stated.push(name);
+            default
+        })
+    };
+    let field_rel = pick(
+        calibration_names::FIELD,
+        sample.field_rel,
+        call.field_rel,
+        DEFAULT_FIELD_CALIBRATION_REL,
+    );
+    let current_rel = pick(
+        calibration_names::CURRENT,
+        sample.current_rel,
+        call.current_rel,
+        DEFAULT_CURRENT_CALIBRATION_REL,
+    );
+    let voltage_rel = pick(
+        calibration_names::VOLTAGE,
+        sample.voltage_rel,
+        call.voltage_rel,
+        DEFAULT_VOLTAGE_CALIBRATION_REL,
+    );
+    let temperature_accuracy_k = pick(
+        calibration_names::TEMPERATURE,
+        sample.temperature_accuracy_k,
+        call.temperature_accuracy_k,
+        DEFAULT_TEMPERATURE_ACCURACY_K,
+    );
+    let thickness_rel = match (thickness_m, thickness_unc_m) {
+        (Some(thickness), Some(unc)) => unc / thickness,
+        (Some(_), None) => {
+            not_stated.push(calibration_names::THICKNESS);
+            0.0
+        }
+        (None, _) => 0.0,
+    };
+    (
+        ResolvedCalibration {
+            thickness_rel,
+            field_rel,
+            current_rel,
+            voltage_rel,
+            temperature_accuracy_k,
+        },
+        not_stated,
+    )
+}
+
+/// The value assumed for a calibration that was not stated, for messages.
+fn assumed_value(name: &str) -> String {
+    match name {
+        calibration_names::FIELD => format!("{DEFAULT_FIELD_CALIBRATION_REL}"),
+        calibration_names::CURRENT => format!("{DEFAULT_CURRENT_CALIBRATION_REL}"),
+        calibration_names::VOLTAGE => format!("{DEFAULT_VOLTAGE_CALIBRATION_REL}"),
+        calibration_names::TEMPERATURE => format!("{DEFAULT_TEMPERATURE_ACCURACY_K} K"),
+        _ => "0".to_owned(),
+    }
+}
+
 fn validate_sample(info: &SampleInfo) -> Result<(), ReduceError> {
     let sample = || info.name.clone();
+    let calibration_columns = [
+        (calibration_names::FIELD, info.calibration.field_rel),
+        (calibration_names::CURRENT, info.calibration.current_rel),
+        (calibration_names::VOLTAGE, info.calibration.voltage_rel),
+        (calibration_names::TEMPERATURE, info.calibration.temperature_accuracy_k),
+    ];
+    for (column, value) in calibration_columns {
+        if let Some(value) = value {
+            if !(value >= 0.0 && value.is_finite()) {
+                return Err(ReduceError::InvalidSampleCalibration {
+                    sample: sample(),
+                    column,
+                    value,
+                });
+            }
+        }
+    }
     if let Some(thickness_m) = info.thickness_m {
         if !(thickness_m > 0.0 && thickness_m.is_finite()) {
             return Err(ReduceError::InvalidThickness {
@@ -724,28 +1110,167 @@ fn prepare(view: &ReadingView<'_>, sample_rank: u32, geometry: Geometry) -> Resu
     })
 }
 
-/// Rows of one sample's temperature group: one per nonzero field magnitude, or one without
-/// Hall quantities when the group has no field readings.
+/// How many times the readings of a drifting series are brought to their groups' mean
+/// temperatures, each time with the slopes of the previous pass.
+const DRIFT_CORRECTION_PASSES: usize = 2;
+
+/// The logarithmic temperature slopes of one group, per K, that bring its readings to the
+/// group's mean temperature: of the resistances (d ln R_s / dT) and of the Hall
+/// configurations (d ln |R_Hs| / dT).
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct DriftSlopes {
+    resistance_per_k: f64,
+    hall_per_k: f64,
+}
+
+/// The slopes of each temperature group from the previous pass over the series: the
+/// derivative of the parabola in 1/T through ln R_s (or ln |R_Hs|) of the group and of its
+/// two nearest groups that have one (a neighbour on each side, or the two next ones at an
+/// end). In 1/T a thermally activated density is a straight line, which the parabola follows
+/// exactly; a power law in T is followed to second order. `None` for a group without a resistance slope, or without a
+/// Hall slope when it has Hall quantities, and for a series of one temperature.
+fn drift_slopes(groups: &[Vec<(ReducedRow, RowDraft)>]) -> Vec<Option<DriftSlopes>> {
+    fn first_row(group: &[(ReducedRow, RowDraft)]) -> Option<&ReducedRow> {
+        group.first().map(|(row, _)| row)
+    }
+    let points = |value: fn(&ReducedRow) -> Option<f64>| -> Vec<Option<(f64, f64)>> {
+        groups
+            .iter()
+            .map(|group| {
+                let row = first_row(group)?;
+                let value = value(row)?.abs();
+                (value > 0.0 && value.is_finite()).then(|| (1.0 / row.temperature_k, value.ln()))
+            })
+            .collect()
+    };
+    let resistance = points(|row| row.sheet_resistance_ohm_sq);
+    let hall = points(|row| row.sheet_hall_coefficient_m2_per_c);
+    let slope_at = |series: &[Option<(f64, f64)>], index: usize| -> Option<f64> {
+        let centre = series[index]?;
+        let mut before = series[..index].iter().rev().flatten();
+        let mut after = series[index + 1..].iter().flatten();
+        // The two nearest neighbours, one on each side where there is one, so that the
+        // derivative of the parabola through the three points is second-order accurate.
+        let (first, second) = match (before.next(), after.next()) {
+            (Some(low), Some(high)) => (*low, *high),
+            (Some(low), None) => (*low, *before.next()?),
+            (None, Some(high)) => (*high, *after.next()?),
+            (None, None) => return None,
+        };
+        // In x = 1/T, where a thermally activated quantity is a straight line: d/dT = -x^2 d/dx.
+        let slope = -centre.0 * centre.0 * parabola_slope(centre, first, second);
+        slope.is_finite().then_some(slope)
+    };
+    (0..groups.len())
+        .map(|index| {
+            let resistance_per_k = slope_at(&resistance, index)?;
+            let hall_per_k = match hall[index] {
+                Some(_) => slope_at(&hall, index)?,
+                None => 0.0,
+            };
+            Some(DriftSlopes {
+                resistance_per_k,
+                hall_per_k,
+            })
+        })
+        .collect()
+}
+
+/// The derivative at `centre.0` of the parabola through three points (x, y) (Lagrange
+/// interpolation, differentiated).
+fn parabola_slope(centre: (f64, f64), first: (f64, f64), second: (f64, f64)) -> f64 {
+    let (x0, y0) = centre;
+    let (xa, ya) = first;
+    let (xb, yb) = second;
+    y0 * (2.0 * x0 - xa - xb) / ((x0 - xa) * (x0 - xb))
+        + ya * (x0 - xb) / ((xa - x0) * (xa - xb))
+        + yb * (x0 - xa) / ((xb - x0) * (xb - xa))
+}
+
+/// The largest relative change a drift correction may make to a reading (10 %); beyond it
+/// the first-order correction is not trusted and the group is reduced as measured.
+const LARGEST_DRIFT_CORRECTION: f64 = 0.1;
+
+/// The largest |s (T - T_k)| the correction of a group would apply.
+fn largest_drift_correction(readings: &[Prepared], slopes: DriftSlopes, geometry: Geometry) -> f64 {
+    let mean_k = readings.iter().map(|reading| reading.temperature_k).sum::<f64>() / readings.len() as f64;
+    readings
+        .iter()
+        .map(|reading| {
+            let slope = if row::is_hall_slot(geometry, reading.slot as usize) {
+                slopes.hall_per_k
+            } else {
+                slopes.resistance_per_k
+            };
+            (slope * (mean_k - reading.temperature_k)).abs()
+        })
+        .fold(0.0, f64::max)
+}
+
+/// Brings every reading of a group to the group's mean temperature T: V x exp(s (T - T_k))
+/// with s the Hall slope on a Hall configuration and the resistance slope on the others.
+/// The offsets and the misalignment are scaled with it, which is harmless: both cancel in
+/// the fits and the field-odd parts, and the factor differs from 1 by s (T - T_k), a few
+/// parts in a thousand at most.
+fn correct_drift(readings: &mut [Prepared], slopes: DriftSlopes, geometry: Geometry) {
+    let mean_k = readings.iter().map(|reading| reading.temperature_k).sum::<f64>() / readings.len() as f64;
+    for reading in readings {
+        let slope = if row::is_hall_slot(geometry, reading.slot as usize) {
+            slopes.hall_per_k
+        } else {
+            slopes.resistance_per_k
+        };
+        reading.voltage_v *= (slope * (mean_k - reading.temperature_k)).exp();
+    }
+}
+
+/// |B| up to which a reading is zero field for certain, whatever `zero_field_tolerance_T`
+/// says: readings above it that are taken as zero field are reported in a warning.
+const STRICT_ZERO_FIELD_T: f64 = 1e-4;
+
+/// Rows of one sample's temperature group: one per field setpoint, or one without Hall
+/// quantities when the group has no field readings. Returns the largest |B| taken as zero
+/// field.
 fn reduce_temperature_group(
     readings: &mut [Prepared],
     sample: &ResolvedSample<'_>,
     settings: &ReduceSettings,
-    rows: &mut Vec<ReducedRow>,
+    drift_correction: Option<DriftSlopes>,
+    rows: &mut Vec<(ReducedRow, RowDraft)>,
     warnings: &mut Vec<String>,
-) {
-    // Sorted by temperature on entry.
+) -> f64 {
     let count = readings.len() as f64;
     let temperature_k = readings.iter().map(|reading| reading.temperature_k).sum::<f64>() / count;
-    let temperature_spread_k = readings[readings.len() - 1].temperature_k - readings[0].temperature_k;
+    let (coldest_k, warmest_k) = readings
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(low, high), reading| {
+            (low.min(reading.temperature_k), high.max(reading.temperature_k))
+        });
+    let temperature_spread_k = warmest_k - coldest_k;
+    // A drift the second pass corrected no longer enters to first order. Without a
+    // correction (one temperature, or no slope to correct with), the row's quantities refer
+    // to some temperature within the readings' spread: their standard deviation.
+    let temperature_reading_unc_k = if drift_correction.is_some() || readings.len() < 2 {
+        0.0
+    } else {
+        let squares: f64 = readings
+            .iter()
+            .map(|reading| (reading.temperature_k - temperature_k).powi(2))
+            .sum();
+        (squares / (count - 1.0)).sqrt()
+    };
     let group = TemperatureGroup {
         sample,
         temperature_k,
         temperature_spread_k,
+        temperature_reading_unc_k,
+        drift_corrected: drift_correction.is_some(),
     };
 
     readings.sort_unstable_by(|a, b| a.field_t.abs().total_cmp(&b.field_t.abs()));
     let zero_count = readings.partition_point(|reading| reading.field_t.abs() <= settings.zero_field_tolerance_t);
     let (zero_readings, field_readings) = readings.split_at_mut(zero_count);
+    let largest_zero_field_t = zero_readings.last().map_or(0.0, |reading| reading.field_t.abs());
 
     zero_readings.sort_unstable_by_key(|reading| cell_key(reading, false));
     let mut zero = ZeroFieldCells {
@@ -757,20 +1282,21 @@ fn reduce_temperature_group(
         zero.cells[slot] = Some(summarize_cell(&zero_readings[range]));
     }
 
-    let field_ranges = gap_clusters(
+    let field_ranges = setpoint_clusters(
         field_readings.iter().map(|reading| reading.field_t.abs()),
         settings.field_tolerance_t,
     );
     if field_ranges.is_empty() {
-        rows.push(build_row(&group, &zero, None, &settings.thresholds, warnings));
-        return;
+        rows.push(build_row(&group, &zero, None, settings, warnings));
+        return largest_zero_field_t;
     }
     for field_range in field_ranges {
         let cluster = &mut field_readings[field_range];
         cluster.sort_unstable_by_key(|reading| cell_key(reading, true));
         let field = summarize_field_cluster(cluster);
-        rows.push(build_row(&group, &zero, Some(&field), &settings.thresholds, warnings));
+        rows.push(build_row(&group, &zero, Some(&field), settings, warnings));
     }
+    largest_zero_field_t
 }
 
 fn summarize_field_cluster(cluster: &[Prepared]) -> FieldCells {

@@ -5,6 +5,14 @@
 //! over a slice and nothing is allocated per reading. Sums are centred on the cell means (two
 //! passes) because a thermoelectric offset can be many times the resistive voltage, and
 //! uncentred sums of I V would then lose the slope to cancellation.
+//!
+//! Beside the scatter-based standard error, every estimate carries its *noise coefficient*:
+//! the standard uncertainty it would have if each reading's voltage carried independent
+//! noise of 1 V (for a line fit 1 / sqrt(sum (I - mean I)^2), for a mean of V/I
+//! sqrt(sum 1/I^2) / n). Multiplied by the pooled voltage noise of the sample's series it
+//! gives the pooled evaluation of the statistical uncertainty (see the parent module). Each
+//! cell also hands over its evidence about that noise: the residual sum of squares of its
+//! fit, in V^2, with its degrees of freedom.
 
 /// A validated reading in canonical orientation (see `mobilis_core::contacts`): `current_a`
 /// and `voltage_v` already carry the configuration's current and voltage signs.
@@ -36,7 +44,67 @@ pub(super) fn cell_key(reading: &Prepared, split_by_field_sign: bool) -> u8 {
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub(super) struct Estimate {
     pub value: f64,
+    /// From the scatter of this estimate's own readings (and redundant configurations).
     pub standard_error: Option<f64>,
+    /// The standard uncertainty per volt of independent reading noise (see the module
+    /// documentation).
+    pub noise_coefficient: f64,
+}
+
+impl Estimate {
+    /// The estimate multiplied by a known constant.
+    pub fn scaled(self, factor: f64) -> Estimate {
+        Estimate {
+            value: self.value * factor,
+            standard_error: self.standard_error.map(|u| u * factor.abs()),
+            noise_coefficient: self.noise_coefficient * factor.abs(),
+        }
+    }
+}
+
+/// What the readings say about their voltage noise: a residual sum of squares, V^2, and its
+/// degrees of freedom. Evidence from independent contrasts adds.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub(super) struct NoiseEvidence {
+    pub sum_of_squares_v2: f64,
+    pub degrees_of_freedom: usize,
+}
+
+impl NoiseEvidence {
+    pub fn add(&mut self, other: NoiseEvidence) {
+        self.sum_of_squares_v2 += other.sum_of_squares_v2;
+        self.degrees_of_freedom += other.degrees_of_freedom;
+    }
+
+    /// The pooled standard deviation of one reading's voltage, V; `None` without degrees of
+    /// freedom.
+    pub fn pooled_noise_v(&self) -> Option<f64> {
+        (self.degrees_of_freedom > 0).then(|| (self.sum_of_squares_v2 / self.degrees_of_freedom as f64).sqrt())
+    }
+}
+
+/// The weighted spread of redundant estimates of one quantity, in V^2: sum (x_k - x_w)^2 /
+/// c_k^2 with weights 1 / c_k^2 (c_k the noise coefficients), on K - 1 degrees of freedom.
+/// Under the noise model it is a chi-square times the voltage variance.
+pub(super) fn redundancy_evidence(estimates: &[Estimate]) -> NoiseEvidence {
+    if estimates.len() < 2 || estimates.iter().any(|estimate| !(estimate.noise_coefficient > 0.0)) {
+        return NoiseEvidence::default();
+    }
+    let weights: Vec<f64> = estimates
+        .iter()
+        .map(|e| 1.0 / (e.noise_coefficient * e.noise_coefficient))
+        .collect();
+    let total: f64 = weights.iter().sum();
+    let mean = estimates.iter().zip(&weights).map(|(e, w)| e.value * w).sum::<f64>() / total;
+    let sum_of_squares_v2 = estimates
+        .iter()
+        .zip(&weights)
+        .map(|(e, w)| (e.value - mean).powi(2) * w)
+        .sum();
+    NoiseEvidence {
+        sum_of_squares_v2,
+        degrees_of_freedom: estimates.len() - 1,
+    }
 }
 
 /// Root sum of squares of the components that could be estimated; `None` when none could.
@@ -65,6 +133,7 @@ pub(super) fn mean_with_standard_error(values: &[f64]) -> Option<Estimate> {
     Some(Estimate {
         value: mean,
         standard_error,
+        noise_coefficient: 0.0,
     })
 }
 
@@ -76,9 +145,16 @@ pub(super) fn combine_redundant(estimates: &[Estimate]) -> Option<Estimate> {
     let spread = mean_with_standard_error(&values)?;
     let own: Vec<Option<f64>> = estimates.iter().map(|estimate| estimate.standard_error).collect();
     let own_of_mean = quadrature(&own).map(|combined| combined / estimates.len() as f64);
+    let noise_coefficient = estimates
+        .iter()
+        .map(|estimate| estimate.noise_coefficient.powi(2))
+        .sum::<f64>()
+        .sqrt()
+        / estimates.len() as f64;
     Some(Estimate {
         value: spread.value,
         standard_error: quadrature(&[spread.standard_error, own_of_mean]),
+        noise_coefficient,
     })
 }
 
@@ -101,6 +177,12 @@ pub(super) struct CellSummary {
     pub fit: LineFit,
     /// Mean of V_c / I_c per current polarity: `[positive, negative]` canonical current.
     pub polarity: [Option<Estimate>; 2],
+    /// Mean |B| of the readings of each polarity, T (0 when the polarity is absent): the
+    /// Hall step divides each polarity's field-odd part by its own field, so that a setpoint
+    /// that wanders between readings neither biases R_Hs nor passes for voltage noise.
+    pub polarity_field_t: [f64; 2],
+    /// The residuals of the cell's fit: what its readings say about their noise.
+    pub noise: NoiseEvidence,
 }
 
 impl CellSummary {
@@ -148,6 +230,7 @@ pub(super) fn summarize_cell(readings: &[Prepared]) -> CellSummary {
     let mean_current = sum_current / n;
     let mean_voltage = sum_voltage / n;
     let distinct_currents = max_current - min_current > DISTINCT_CURRENT_RELATIVE * max_abs_current;
+    let noise;
     let fit = if distinct_currents {
         let mut sxx = 0.0;
         let mut sxy = 0.0;
@@ -158,22 +241,39 @@ pub(super) fn summarize_cell(readings: &[Prepared]) -> CellSummary {
         }
         let slope = sxy / sxx;
         let offset = mean_voltage - slope * mean_current;
-        let standard_error = (count > 2).then(|| {
-            let residual_sum: f64 = readings
-                .iter()
-                .map(|reading| (reading.voltage_v - offset - slope * reading.current_a).powi(2))
-                .sum();
-            (residual_sum / (n - 2.0) / sxx).sqrt()
-        });
+        let residual_sum: f64 = readings
+            .iter()
+            .map(|reading| (reading.voltage_v - offset - slope * reading.current_a).powi(2))
+            .sum();
+        let standard_error = (count > 2).then(|| (residual_sum / (n - 2.0) / sxx).sqrt());
+        noise = NoiseEvidence {
+            sum_of_squares_v2: residual_sum,
+            degrees_of_freedom: count - 2,
+        };
         LineFit {
             resistance: Estimate {
                 value: slope,
                 standard_error,
+                noise_coefficient: 1.0 / sxx.sqrt(),
             },
             offset_v: Some(offset),
             max_abs_current_a: max_abs_current,
         }
     } else {
+        // One current: V = R I through the origin (weights I^2) gives the residuals.
+        let (mut sum_iv, mut sum_ii) = (0.0, 0.0);
+        for reading in readings {
+            sum_iv += reading.current_a * reading.voltage_v;
+            sum_ii += reading.current_a * reading.current_a;
+        }
+        let through_origin = sum_iv / sum_ii;
+        noise = NoiseEvidence {
+            sum_of_squares_v2: readings
+                .iter()
+                .map(|reading| (reading.voltage_v - through_origin * reading.current_a).powi(2))
+                .sum(),
+            degrees_of_freedom: count - 1,
+        };
         LineFit {
             resistance: ratio_mean(readings.iter()).expect("a cell holds at least one reading"),
             offset_v: None,
@@ -182,9 +282,24 @@ pub(super) fn summarize_cell(readings: &[Prepared]) -> CellSummary {
     };
     let positive = ratio_mean(readings.iter().filter(|reading| reading.current_a > 0.0));
     let negative = ratio_mean(readings.iter().filter(|reading| reading.current_a < 0.0));
+    let mean_field = |positive_current: bool| {
+        let (sum, count) = readings
+            .iter()
+            .filter(|reading| (reading.current_a > 0.0) == positive_current)
+            .fold((0.0, 0usize), |(sum, count), reading| {
+                (sum + reading.field_t.abs(), count + 1)
+            });
+        if count > 0 {
+            sum / count as f64
+        } else {
+            0.0
+        }
+    };
     CellSummary {
         fit,
         polarity: [positive, negative],
+        polarity_field_t: [mean_field(true), mean_field(false)],
+        noise,
     }
 }
 
@@ -192,9 +307,11 @@ pub(super) fn summarize_cell(readings: &[Prepared]) -> CellSummary {
 fn ratio_mean<'a>(readings: impl Iterator<Item = &'a Prepared> + Clone) -> Option<Estimate> {
     let mut count = 0usize;
     let mut sum = 0.0;
+    let mut sum_inverse_square_current = 0.0;
     for reading in readings.clone() {
         count += 1;
         sum += reading.voltage_v / reading.current_a;
+        sum_inverse_square_current += 1.0 / (reading.current_a * reading.current_a);
     }
     if count == 0 {
         return None;
@@ -210,11 +327,19 @@ fn ratio_mean<'a>(readings: impl Iterator<Item = &'a Prepared> + Clone) -> Optio
     Some(Estimate {
         value: mean,
         standard_error,
+        noise_coefficient: sum_inverse_square_current.sqrt() / n,
     })
 }
 
-/// Consecutive runs of sorted values whose neighbours differ by at most `tolerance`, as index
-/// ranges. Chains are allowed (a slow drift stays one cluster); the caller reports the spread.
+/// Below this fraction of the temperature, neighbouring readings may share a temperature
+/// group whatever `temperature_tolerance_K` says: 5 %, so that sub-kelvin setpoints 0.1 K
+/// apart stay apart while a drift of a few percent between readings still chains (common
+/// practice).
+pub(super) const TEMPERATURE_RELATIVE_GAP: f64 = 0.05;
+
+/// Consecutive runs of sorted temperatures whose neighbours differ by at most `tolerance`
+/// and by at most [`TEMPERATURE_RELATIVE_GAP`] of the lower one, as index ranges. Chains are
+/// allowed (a slow drift stays one cluster); the caller reports the spread.
 pub(super) fn gap_clusters(values: impl Iterator<Item = f64>, tolerance: f64) -> Vec<std::ops::Range<usize>> {
     let mut ranges = Vec::new();
     let mut start = 0usize;
@@ -222,12 +347,39 @@ pub(super) fn gap_clusters(values: impl Iterator<Item = f64>, tolerance: f64) ->
     let mut index = 0usize;
     for value in values {
         if let Some(last) = previous {
-            if value - last > tolerance {
+            if value - last > tolerance.min(TEMPERATURE_RELATIVE_GAP * last.abs()) {
                 ranges.push(start..index);
                 start = index;
             }
         }
         previous = Some(value);
+        index += 1;
+    }
+    if index > start {
+        ranges.push(start..index);
+    }
+    ranges
+}
+
+/// Clusters of sorted values around setpoints, as index ranges: a cluster starts at its
+/// smallest value and takes every following value within `tolerance` of it, so no cluster
+/// is wider than `tolerance`. A densely logged ramp is cut into pieces of that width instead
+/// of being chained into one cluster.
+pub(super) fn setpoint_clusters(values: impl Iterator<Item = f64>, tolerance: f64) -> Vec<std::ops::Range<usize>> {
+    let mut ranges = Vec::new();
+    let mut start = 0usize;
+    let mut first: Option<f64> = None;
+    let mut index = 0usize;
+    for value in values {
+        match first {
+            Some(first_value) if value - first_value <= tolerance => {}
+            Some(_) => {
+                ranges.push(start..index);
+                start = index;
+                first = Some(value);
+            }
+            None => first = Some(value),
+        }
         index += 1;
     }
     if index > start {

@@ -95,6 +95,12 @@ pub enum ReduceError {
     InvalidThicknessUncertainty { sample: String, thickness_unc_m: f64 },
     /// `hall_factor` is zero, negative or not finite.
     InvalidHallFactor { sample: String, hall_factor: f64 },
+    /// A calibration column of the sample sheet is negative or not finite.
+    InvalidSampleCalibration {
+        sample: String,
+        column: &'static str,
+        value: f64,
+    },
     /// A Hall bar's length or width is zero, negative or not finite.
     InvalidHallBarDimensions {
         sample: String,
@@ -146,6 +152,10 @@ impl fmt::Display for ReduceError {
             ReduceError::InvalidHallFactor { sample, hall_factor } => write!(
                 f,
                 "hall_factor of sample {sample:?} is {hall_factor}; give a positive Hall scattering factor (1 when unknown)"
+            ),
+            ReduceError::InvalidSampleCalibration { sample, column, value } => write!(
+                f,
+                "{column} of sample {sample:?} is {value}; give a finite standard uncertainty of 0 or more (relative for the scales, in K for the thermometer), or null to use the call's value"
             ),
             ReduceError::InvalidHallBarDimensions {
                 sample,

@@ -7,17 +7,158 @@
 use mobilis_core::constants::ELEMENTARY_CHARGE_C;
 use mobilis_core::van_der_pauw;
 
-use super::cells::{combine_redundant, mean_with_standard_error, quadrature, CellSummary, Estimate, MAX_SLOTS};
-use super::{flags, Geometry, QualityThresholds, ReducedRow};
+use super::cells::{
+    combine_redundant, mean_with_standard_error, quadrature, redundancy_evidence, CellSummary, Estimate, NoiseEvidence,
+    MAX_SLOTS,
+};
+use super::{flags, Geometry, ReduceSettings, ReducedRow};
+
+/// The calibrations of one sample as resolved from the sheet, the call and the defaults:
+/// relative standard uncertainties of the scales, the thermometer's accuracy in K.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(super) struct ResolvedCalibration {
+    pub thickness_rel: f64,
+    pub field_rel: f64,
+    pub current_rel: f64,
+    pub voltage_rel: f64,
+    pub temperature_accuracy_k: f64,
+}
+
+/// The quantities whose uncertainty is split into statistical and systematic parts, and
+/// the scales each one depends on (first order, relative): R = V / I, R_Hs = R_xy / B,
+/// rho = R_s t, n = n_s / t, mu_H = R_Hs / R_s (voltage and current cancel: one voltmeter
+/// and one source measure both).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(super) enum Quantity {
+    SheetResistance,
+    Resistivity,
+    HallResistance,
+    SheetHallCoefficient,
+    HallCoefficient,
+    SheetDensity,
+    Density,
+    HallMobility,
+    DriftMobility,
+}
+
+impl Quantity {
+    pub const ALL: [Quantity; 9] = [
+        Quantity::SheetResistance,
+        Quantity::Resistivity,
+        Quantity::HallResistance,
+        Quantity::SheetHallCoefficient,
+        Quantity::HallCoefficient,
+        Quantity::SheetDensity,
+        Quantity::Density,
+        Quantity::HallMobility,
+        Quantity::DriftMobility,
+    ];
+
+    /// Which scales enter: (voltage and current, field, thickness).
+    fn scales(self) -> (bool, bool, bool) {
+        match self {
+            Quantity::SheetResistance | Quantity::HallResistance => (true, false, false),
+            Quantity::Resistivity => (true, false, true),
+            Quantity::SheetHallCoefficient | Quantity::SheetDensity => (true, true, false),
+            Quantity::HallCoefficient | Quantity::Density => (true, true, true),
+            Quantity::HallMobility | Quantity::DriftMobility => (false, true, false),
+        }
+    }
+
+    /// The relative systematic standard uncertainty: the calibrations in quadrature.
+    pub fn systematic_relative(self, calibration: &ResolvedCalibration) -> f64 {
+        let (electrical, field, thickness) = self.scales();
+        let mut sum = 0.0;
+        if electrical {
+            sum += calibration.voltage_rel.powi(2) + calibration.current_rel.powi(2);
+        }
+        if field {
+            sum += calibration.field_rel.powi(2);
+        }
+        if thickness {
+            sum += calibration.thickness_rel.powi(2);
+        }
+        sum.sqrt()
+    }
+}
+
+/// What a row still needs once the sample's pooled noise is known: each quantity's estimate
+/// (scatter-based standard error and noise coefficient) and the row's noise evidence.
+#[derive(Debug, Clone)]
+pub(super) struct RowDraft {
+    pub estimates: [Option<Estimate>; 9],
+    pub evidence: NoiseEvidence,
+}
+
+/// The smallest relative statistical uncertainty reported: the resolution of the
+/// double-precision arithmetic of the reduction, so that no uncertainty comes out zero.
+pub(super) const ARITHMETIC_RELATIVE_RESOLUTION: f64 = 1e-12;
+
+/// A standard uncertainty split into its parts; `None` where it cannot be evaluated.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub(super) struct Budget {
+    pub total: Option<f64>,
+    pub statistical: Option<f64>,
+    pub systematic: Option<f64>,
+}
+
+/// The standard deviation of a Student t variable with `degrees_of_freedom` over its scale,
+/// sqrt(nu / (nu - 2)): the factor that turns a scatter evaluated on few degrees of freedom
+/// into a standard uncertainty (JCGM 101:2008, 6.4.9.4, where a Type A evaluation is
+/// assigned a scaled and shifted t distribution). `None` below 3 degrees of freedom, where
+/// that variance is infinite.
+pub(super) fn student_factor(degrees_of_freedom: usize) -> Option<f64> {
+    (degrees_of_freedom >= 3).then(|| {
+        let nu = degrees_of_freedom as f64;
+        (nu / (nu - 2.0)).sqrt()
+    })
+}
+
+impl RowDraft {
+    /// The budget of one quantity. The statistical part is the noise coefficient times the
+    /// row's own pooled reading noise, widened by [`student_factor`] of its degrees of
+    /// freedom; a row with fewer than 3 degrees of freedom borrows the noise pooled over its
+    /// sample's whole series (`series_evidence`), and with fewer than 3 there as well keeps
+    /// its own scatter-based standard error. The systematic part is the calibrations; the
+    /// total their quadrature sum.
+    pub fn budget(
+        &self,
+        quantity: Quantity,
+        series_evidence: &NoiseEvidence,
+        calibration: &ResolvedCalibration,
+    ) -> Budget {
+        let index = Quantity::ALL.iter().position(|q| *q == quantity).expect("listed");
+        let Some(estimate) = self.estimates[index] else {
+            return Budget::default();
+        };
+        let pooled = |evidence: &NoiseEvidence| {
+            let factor = student_factor(evidence.degrees_of_freedom)?;
+            Some(evidence.pooled_noise_v()? * factor * estimate.noise_coefficient)
+        };
+        let statistical = pooled(&self.evidence)
+            .or_else(|| pooled(series_evidence))
+            .or(estimate.standard_error)
+            .map(|u| u.max(ARITHMETIC_RELATIVE_RESOLUTION * estimate.value.abs()));
+        let systematic = Some(quantity.systematic_relative(calibration) * estimate.value.abs());
+        let total = statistical.map(|stat| stat.hypot(systematic.unwrap_or(0.0)));
+        Budget {
+            total,
+            statistical,
+            systematic,
+        }
+    }
+}
 
 /// A sample-sheet row checked and ready for use.
-#[derive(Debug, Clone, Copy)]
+#[derive(Debug, Clone)]
 pub(super) struct ResolvedSample<'a> {
     pub name: &'a str,
     pub thickness_m: Option<f64>,
-    pub thickness_unc_m: Option<f64>,
     pub hall_factor: f64,
     pub geometry: Geometry,
+    pub calibration: ResolvedCalibration,
+    /// The calibrations assumed because nobody stated them.
+    pub not_stated: Vec<&'static str>,
 }
 
 /// Which configuration slots play which role for a geometry (slot = position in
@@ -38,6 +179,11 @@ const HALL_BAR_LAYOUT: Layout = Layout {
     families: &[[0, 1]],
     hall_slots: [2, 3],
 };
+
+/// Whether a configuration slot of the geometry is a Hall configuration.
+pub(super) fn is_hall_slot(geometry: Geometry, slot: usize) -> bool {
+    layout(geometry).hall_slots.contains(&slot)
+}
 
 fn layout(geometry: Geometry) -> &'static Layout {
     match geometry {
@@ -66,6 +212,11 @@ pub(super) struct TemperatureGroup<'a> {
     pub sample: &'a ResolvedSample<'a>,
     pub temperature_k: f64,
     pub temperature_spread_k: f64,
+    /// The part of the temperature uncertainty from the readings' spread, K (0 when the
+    /// drift was corrected).
+    pub temperature_reading_unc_k: f64,
+    /// Whether the readings were brought to the mean temperature (second pass).
+    pub drift_corrected: bool,
 }
 
 /// The raised flags of a row, kept in the order of [`flags::ALL`].
@@ -99,6 +250,8 @@ struct ResistancePart {
     geometry_factor: Option<f64>,
     sheet_resistance: Option<Estimate>,
     reciprocity_mismatch: Option<f64>,
+    /// Spread of the redundant configurations, in the noise model's units.
+    evidence: NoiseEvidence,
 }
 
 /// Everything the Hall step yields.
@@ -107,6 +260,7 @@ struct HallPart {
     hall_resistance: Option<Estimate>,
     hall_spread: Option<f64>,
     misalignment_ratio: Option<f64>,
+    evidence: NoiseEvidence,
 }
 
 /// Relative uncertainty of a product or quotient of independent factors.
@@ -122,9 +276,10 @@ pub(super) fn build_row(
     group: &TemperatureGroup<'_>,
     zero: &ZeroFieldCells,
     field: Option<&FieldCells>,
-    thresholds: &QualityThresholds,
+    settings: &ReduceSettings,
     warnings: &mut Vec<String>,
-) -> ReducedRow {
+) -> (ReducedRow, RowDraft) {
+    let thresholds = &settings.thresholds;
     let sample = group.sample;
     let layout = layout(sample.geometry);
     let mut raised = RaisedFlags::default();
@@ -209,72 +364,43 @@ pub(super) fn build_row(
         raised.raise(flags::CURRENT_REVERSAL);
     }
 
-    // Derived quantities.
+    // Derived quantities. The thickness is a calibration, common to the whole series: it
+    // enters the systematic part only (see `Quantity`), never the statistical one.
     let thickness = sample.thickness_m;
-    let thickness_unc = sample.thickness_unc_m;
     let sheet = resistance.sheet_resistance;
     let resistivity = match (sheet, thickness) {
-        (Some(sheet), Some(thickness)) => {
-            let value = sheet.value * thickness;
-            let relative = relative_quadrature(&[(sheet.value, sheet.standard_error), (thickness, thickness_unc)]);
-            Some(Estimate {
-                value,
-                standard_error: relative.map(|r| r * value.abs()),
-            })
-        }
+        (Some(sheet), Some(thickness)) => Some(sheet.scaled(thickness)),
         _ => None,
     };
 
     let field_t = field.map(|cells| cells.field_t);
     let sheet_hall_coefficient = match (hall.hall_resistance, field_t) {
-        (Some(hall_resistance), Some(field_t)) => Some(Estimate {
-            value: hall_resistance.value / field_t,
-            standard_error: hall_resistance.standard_error.map(|u| u / field_t),
-        }),
+        (Some(hall_resistance), Some(field_t)) => Some(hall_resistance.scaled(1.0 / field_t)),
         _ => None,
     };
     // A Hall resistance of exactly zero has no carrier type and no finite density.
     let usable_hall = sheet_hall_coefficient.filter(|coefficient| coefficient.value != 0.0);
     let carrier_type = usable_hall.map(|coefficient| if coefficient.value > 0.0 { "p" } else { "n" });
     let hall_coefficient = match (sheet_hall_coefficient, thickness) {
-        (Some(coefficient), Some(thickness)) => {
-            let value = coefficient.value * thickness;
-            let relative = relative_quadrature(&[
-                (coefficient.value, coefficient.standard_error),
-                (thickness, thickness_unc),
-            ]);
-            Some(Estimate {
-                value,
-                standard_error: if coefficient.value == 0.0 {
-                    coefficient.standard_error.map(|u| u * thickness)
-                } else {
-                    relative.map(|r| r * value.abs())
-                },
-            })
-        }
+        (Some(coefficient), Some(thickness)) => Some(coefficient.scaled(thickness)),
         _ => None,
     };
+    // n_s = r_H / (e |R_Hs|): the relative uncertainty of R_Hs carries over.
     let sheet_density = usable_hall.map(|coefficient| {
         let value = sample.hall_factor / (ELEMENTARY_CHARGE_C * coefficient.value.abs());
+        let relative = value / coefficient.value.abs();
         Estimate {
             value,
-            standard_error: coefficient.standard_error.map(|u| value * u / coefficient.value.abs()),
+            standard_error: coefficient.standard_error.map(|u| relative * u),
+            noise_coefficient: relative * coefficient.noise_coefficient,
         }
     });
-    let density = match (sheet_density, usable_hall, thickness) {
-        (Some(sheet_density), Some(coefficient), Some(thickness)) => {
-            let value = sheet_density.value / thickness;
-            let relative = relative_quadrature(&[
-                (coefficient.value, coefficient.standard_error),
-                (thickness, thickness_unc),
-            ]);
-            Some(Estimate {
-                value,
-                standard_error: relative.map(|r| r * value),
-            })
-        }
+    let density = match (sheet_density, thickness) {
+        (Some(sheet_density), Some(thickness)) => Some(sheet_density.scaled(1.0 / thickness)),
         _ => None,
     };
+    // mu_H = |R_Hs| / R_s: the Hall and resistance readings are different readings, so
+    // their relative uncertainties add in quadrature.
     let hall_mobility = match (usable_hall, sheet.filter(|sheet| sheet.value > 0.0)) {
         (Some(coefficient), Some(sheet)) => {
             let value = coefficient.value.abs() / sheet.value;
@@ -282,25 +408,52 @@ pub(super) fn build_row(
                 (coefficient.value, coefficient.standard_error),
                 (sheet.value, sheet.standard_error),
             ]);
+            let noise_relative =
+                (coefficient.noise_coefficient / coefficient.value).hypot(sheet.noise_coefficient / sheet.value);
             Some(Estimate {
                 value,
                 standard_error: relative.map(|r| r * value),
+                noise_coefficient: noise_relative * value,
             })
         }
         _ => None,
     };
-    let drift_mobility = hall_mobility.map(|mobility| Estimate {
-        value: mobility.value / sample.hall_factor,
-        standard_error: mobility.standard_error.map(|u| u / sample.hall_factor),
-    });
+    let drift_mobility = hall_mobility.map(|mobility| mobility.scaled(1.0 / sample.hall_factor));
+
+    let mut evidence = resistance.evidence;
+    evidence.add(hall.evidence);
+    for (cell, _) in &used_cells {
+        evidence.add(cell.noise);
+    }
+    let draft = RowDraft {
+        estimates: [
+            sheet,
+            resistivity,
+            hall.hall_resistance,
+            sheet_hall_coefficient,
+            hall_coefficient,
+            sheet_density,
+            density,
+            hall_mobility,
+            drift_mobility,
+        ],
+        evidence,
+    };
 
     let flags = raised.into_list();
+    if let Some(warning) = grouping_warning(group, field, &flags, settings) {
+        warnings.push(warning);
+    }
     let reading_count = zero.count + field.map_or(0, |cells| cells.count);
-    ReducedRow {
+    let row = ReducedRow {
         sample: sample.name.to_owned(),
         geometry: sample.geometry.name(),
         temperature_k: group.temperature_k,
         temperature_spread_k: group.temperature_spread_k,
+        temperature_k_unc: group
+            .temperature_reading_unc_k
+            .hypot(sample.calibration.temperature_accuracy_k),
+        drift_corrected: group.drift_corrected,
         field_t,
         reading_count,
         resistance_a_ohm: resistance.resistance_a_ohm,
@@ -308,24 +461,34 @@ pub(super) fn build_row(
         resistance_ratio: resistance.resistance_ratio,
         geometry_factor: resistance.geometry_factor,
         sheet_resistance_ohm_sq: sheet.map(|e| e.value),
-        sheet_resistance_ohm_sq_unc: sheet.and_then(|e| e.standard_error),
+        sheet_resistance_ohm_sq_unc: None,
+        sheet_resistance_ohm_sq_unc_stat: None,
+        sheet_resistance_ohm_sq_unc_sys: None,
         resistivity_ohm_m: resistivity.map(|e| e.value),
-        resistivity_ohm_m_unc: resistivity.and_then(|e| e.standard_error),
+        resistivity_ohm_m_unc: None,
+        resistivity_ohm_m_unc_stat: None,
+        resistivity_ohm_m_unc_sys: None,
         hall_resistance_ohm: hall.hall_resistance.map(|e| e.value),
-        hall_resistance_ohm_unc: hall.hall_resistance.and_then(|e| e.standard_error),
+        hall_resistance_ohm_unc: None,
         sheet_hall_coefficient_m2_per_c: sheet_hall_coefficient.map(|e| e.value),
-        sheet_hall_coefficient_m2_per_c_unc: sheet_hall_coefficient.and_then(|e| e.standard_error),
+        sheet_hall_coefficient_m2_per_c_unc: None,
         hall_coefficient_m3_per_c: hall_coefficient.map(|e| e.value),
-        hall_coefficient_m3_per_c_unc: hall_coefficient.and_then(|e| e.standard_error),
+        hall_coefficient_m3_per_c_unc: None,
         carrier_type,
         sheet_density_m2: sheet_density.map(|e| e.value),
-        sheet_density_m2_unc: sheet_density.and_then(|e| e.standard_error),
+        sheet_density_m2_unc: None,
+        sheet_density_m2_unc_stat: None,
+        sheet_density_m2_unc_sys: None,
         density_m3: density.map(|e| e.value),
-        density_m3_unc: density.and_then(|e| e.standard_error),
+        density_m3_unc: None,
+        density_m3_unc_stat: None,
+        density_m3_unc_sys: None,
         hall_mobility_m2_per_vs: hall_mobility.map(|e| e.value),
-        hall_mobility_m2_per_vs_unc: hall_mobility.and_then(|e| e.standard_error),
+        hall_mobility_m2_per_vs_unc: None,
+        hall_mobility_m2_per_vs_unc_stat: None,
+        hall_mobility_m2_per_vs_unc_sys: None,
         drift_mobility_m2_per_vs: drift_mobility.map(|e| e.value),
-        drift_mobility_m2_per_vs_unc: drift_mobility.and_then(|e| e.standard_error),
+        drift_mobility_m2_per_vs_unc: None,
         hall_factor: sample.hall_factor,
         reciprocity_mismatch: resistance.reciprocity_mismatch,
         current_reversal_mismatch,
@@ -333,8 +496,81 @@ pub(super) fn build_row(
         thermoelectric_offset_ratio,
         misalignment_ratio: hall.misalignment_ratio,
         quality_ok: flags.is_empty(),
+        reading_noise_v: None,
         flags,
+    };
+    (row, draft)
+}
+
+/// Fills a row's uncertainties once the pooled voltage noise of its sample is known.
+pub(super) fn finish_row(
+    row: &mut ReducedRow,
+    draft: &RowDraft,
+    series_evidence: &NoiseEvidence,
+    calibration: &ResolvedCalibration,
+) {
+    row.reading_noise_v = draft.evidence.pooled_noise_v();
+    let budget = |quantity| draft.budget(quantity, series_evidence, calibration);
+    let sheet = budget(Quantity::SheetResistance);
+    row.sheet_resistance_ohm_sq_unc = sheet.total;
+    row.sheet_resistance_ohm_sq_unc_stat = sheet.statistical;
+    row.sheet_resistance_ohm_sq_unc_sys = sheet.systematic;
+    let resistivity = budget(Quantity::Resistivity);
+    row.resistivity_ohm_m_unc = resistivity.total;
+    row.resistivity_ohm_m_unc_stat = resistivity.statistical;
+    row.resistivity_ohm_m_unc_sys = resistivity.systematic;
+    row.hall_resistance_ohm_unc = budget(Quantity::HallResistance).total;
+    row.sheet_hall_coefficient_m2_per_c_unc = budget(Quantity::SheetHallCoefficient).total;
+    row.hall_coefficient_m3_per_c_unc = budget(Quantity::HallCoefficient).total;
+    let sheet_density = budget(Quantity::SheetDensity);
+    row.sheet_density_m2_unc = sheet_density.total;
+    row.sheet_density_m2_unc_stat = sheet_density.statistical;
+    row.sheet_density_m2_unc_sys = sheet_density.systematic;
+    let density = budget(Quantity::Density);
+    row.density_m3_unc = density.total;
+    row.density_m3_unc_stat = density.statistical;
+    row.density_m3_unc_sys = density.systematic;
+    let mobility = budget(Quantity::HallMobility);
+    row.hall_mobility_m2_per_vs_unc = mobility.total;
+    row.hall_mobility_m2_per_vs_unc_stat = mobility.statistical;
+    row.hall_mobility_m2_per_vs_unc_sys = mobility.systematic;
+    row.drift_mobility_m2_per_vs_unc = budget(Quantity::DriftMobility).total;
+}
+
+/// For a row that lacks configurations, field signs or field readings: what is missing and
+/// the grouping parameters that decide which readings share the row.
+fn grouping_warning(
+    group: &TemperatureGroup<'_>,
+    field: Option<&FieldCells>,
+    raised: &[&'static str],
+    settings: &ReduceSettings,
+) -> Option<String> {
+    let at = match field {
+        Some(cells) => format!("|B| = {:.4} T", cells.field_t),
+        None => "zero field".to_owned(),
+    };
+    let place = format!("sample {:?} at {:.3} K, {at}", group.sample.name, group.temperature_k);
+    if raised.contains(&flags::NO_FIELD_DATA) {
+        return Some(format!(
+            "{place}: no reading above zero_field_tolerance_T = {} T, so no Hall quantities; lower zero_field_tolerance_T if the Hall field is below it",
+            settings.zero_field_tolerance_t
+        ));
     }
+    if raised.contains(&flags::MISSING_CONFIGURATIONS) || raised.contains(&flags::NO_FIELD_REVERSAL) {
+        return Some(format!(
+            "{place}: {} in this row; if one setpoint's readings were split, widen field_tolerance_T (now {} T, the width of a field setpoint) or zero_field_tolerance_T (now {} T), or temperature_tolerance_K (now {} K) for a temperature",
+            raised
+                .iter()
+                .filter(|flag| [flags::MISSING_CONFIGURATIONS, flags::NO_FIELD_REVERSAL].contains(flag))
+                .copied()
+                .collect::<Vec<_>>()
+                .join(" and "),
+            settings.field_tolerance_t,
+            settings.zero_field_tolerance_t,
+            settings.temperature_tolerance_k
+        ));
+    }
+    None
 }
 
 fn exceeds(value: Option<f64>, limit: f64) -> bool {
@@ -355,6 +591,12 @@ fn field_even_resistance<'a>(
                 value: 0.5 * (plus.fit.resistance.value + minus.fit.resistance.value),
                 standard_error: quadrature(&[plus.fit.resistance.standard_error, minus.fit.resistance.standard_error])
                     .map(|u| 0.5 * u),
+                noise_coefficient: 0.5
+                    * plus
+                        .fit
+                        .resistance
+                        .noise_coefficient
+                        .hypot(minus.fit.resistance.noise_coefficient),
             })
         }
         [Some(only), None] | [None, Some(only)] => {
@@ -372,8 +614,10 @@ fn van_der_pauw_resistance(
     warnings: &mut Vec<String>,
 ) -> ResistancePart {
     let mut reciprocity_mismatch: Option<f64> = None;
+    let mut evidence = NoiseEvidence::default();
     let mut family_estimate = |slots: [usize; 2]| -> Option<Estimate> {
         let present: Vec<Estimate> = slots.iter().filter_map(|&slot| slot_resistance[slot]).collect();
+        evidence.add(redundancy_evidence(&present));
         if let [direct, reciprocal] = present[..] {
             let mean = 0.5 * (direct.value + reciprocal.value);
             let mismatch = (direct.value - reciprocal.value).abs() / mean.abs();
@@ -392,6 +636,7 @@ fn van_der_pauw_resistance(
         (None, None) => {
             return ResistancePart {
                 reciprocity_mismatch,
+                evidence,
                 ..ResistancePart::default()
             }
         }
@@ -400,6 +645,7 @@ fn van_der_pauw_resistance(
         resistance_a_ohm: Some(resistance_a.value),
         resistance_b_ohm: Some(resistance_b.value),
         reciprocity_mismatch,
+        evidence,
         ..ResistancePart::default()
     };
     if !(resistance_a.value > 0.0 && resistance_b.value > 0.0) {
@@ -429,7 +675,18 @@ fn van_der_pauw_resistance(
                 ])
             }
         });
-        Estimate { value, standard_error }
+        let noise_coefficient = gradient.map_or(0.0, |(gradient_a, gradient_b)| {
+            if fully_correlated {
+                (gradient_a + gradient_b) * resistance_a.noise_coefficient
+            } else {
+                (gradient_a * resistance_a.noise_coefficient).hypot(gradient_b * resistance_b.noise_coefficient)
+            }
+        });
+        Estimate {
+            value,
+            standard_error,
+            noise_coefficient,
+        }
     });
     part
 }
@@ -446,11 +703,13 @@ fn hall_bar_resistance(
         .iter()
         .filter_map(|&slot| slot_resistance[slot])
         .collect();
+    let evidence = redundancy_evidence(&present);
     let Some(longitudinal) = combine_redundant(&present) else {
         return ResistancePart::default();
     };
     let mut part = ResistancePart {
         resistance_a_ohm: Some(longitudinal.value),
+        evidence,
         ..ResistancePart::default()
     };
     if !(longitudinal.value > 0.0) {
@@ -459,10 +718,7 @@ fn hall_bar_resistance(
     }
     // rho_s = R_xx W / L: the squares between the voltage contacts.
     let squares = width_m / length_m;
-    part.sheet_resistance = Some(Estimate {
-        value: longitudinal.value * squares,
-        standard_error: longitudinal.standard_error.map(|u| u * squares),
-    });
+    part.sheet_resistance = Some(longitudinal.scaled(squares));
     part
 }
 
@@ -503,9 +759,18 @@ fn hall_resistance<'a>(
         let mut even_parts: Vec<f64> = Vec::with_capacity(2);
         for polarity in 0..2 {
             if let (Some(at_plus), Some(at_minus)) = (plus.polarity[polarity], minus.polarity[polarity]) {
+                // (R(+B1) - R(-B2)) / (B1 + B2) is R_Hs whatever the two fields; times the
+                // row's field it is the Hall resistance at that field.
+                let field_sum = plus.polarity_field_t[polarity] + minus.polarity_field_t[polarity];
+                let scale = if field_sum > 0.0 {
+                    field.field_t / field_sum
+                } else {
+                    0.5
+                };
                 odd_parts.push(Estimate {
-                    value: 0.5 * (at_plus.value - at_minus.value),
-                    standard_error: quadrature(&[at_plus.standard_error, at_minus.standard_error]).map(|u| 0.5 * u),
+                    value: scale * (at_plus.value - at_minus.value),
+                    standard_error: quadrature(&[at_plus.standard_error, at_minus.standard_error]).map(|u| scale * u),
+                    noise_coefficient: scale * at_plus.noise_coefficient.hypot(at_minus.noise_coefficient),
                 });
                 even_parts.push(0.5 * (at_plus.value + at_minus.value));
             }
@@ -547,5 +812,6 @@ fn hall_resistance<'a>(
         hall_resistance: Some(hall_resistance),
         hall_spread,
         misalignment_ratio,
+        evidence: redundancy_evidence(&odd_parts),
     }
 }

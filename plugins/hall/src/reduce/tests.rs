@@ -255,6 +255,16 @@ impl HallBarModel {
     }
 }
 
+/// Every calibration stated, as perfect: no assumption, no warning about it.
+fn perfect_instruments() -> Calibration {
+    Calibration {
+        field_rel: Some(0.0),
+        current_rel: Some(0.0),
+        voltage_rel: Some(0.0),
+        temperature_accuracy_k: Some(0.0),
+    }
+}
+
 fn reduce_default(readings: &[RawReading]) -> Reduction {
     reduce(readings, None, &ReduceSettings::default()).expect("valid readings reduce")
 }
@@ -401,6 +411,7 @@ fn hall_bar_check_values() {
         thickness_unc_m: None,
         hall_factor: 1.0,
         geometry: Geometry::HallBar { length_m, width_m },
+        calibration: Calibration::default(),
     };
     let readings = model.readings("bar", 77.0, field_t, current_a);
     let reduction = reduce(&readings, Some(&[sheet]), &ReduceSettings::default()).unwrap();
@@ -500,6 +511,7 @@ fn hall_factor_scales_density_not_hall_mobility() {
         thickness_unc_m: None,
         hall_factor,
         geometry: Geometry::VanDerPauw,
+        calibration: Calibration::default(),
     };
     let settings = ReduceSettings::default();
     let plain = reduce(&readings, Some(&[sheet(1.0)]), &settings).unwrap();
@@ -651,8 +663,18 @@ fn fit_removes_the_offset_of_a_current_sweep() {
     assert_close(row.sheet_resistance_ohm_sq, PI * 10.0 / LN_2, 1e-12, "R_s");
     assert!(row.flags.contains(&flags::NO_CURRENT_REVERSAL));
     assert!(row.flags.contains(&flags::NO_FIELD_DATA));
-    // Four readings on an exact line: the residuals are rounding errors.
-    assert!(row.sheet_resistance_ohm_sq_unc.unwrap() < 1e-12 * row.sheet_resistance_ohm_sq.unwrap());
+    // Four readings on an exact line: the residuals are rounding errors, and the statistical
+    // part is the arithmetic's resolution, never zero.
+    let sheet = row.sheet_resistance_ohm_sq.unwrap();
+    let statistical = row.sheet_resistance_ohm_sq_unc_stat.unwrap();
+    assert!(statistical > 0.0 && statistical <= 2e-12 * sheet, "{statistical}");
+    // The systematic part is the assumed current and voltage calibrations (0.1 % and 0.01 %).
+    assert_close(
+        row.sheet_resistance_ohm_sq_unc_sys,
+        (1e-3f64).hypot(1e-4) * sheet,
+        1e-12,
+        "u_sys(R_s)",
+    );
 }
 
 // ---------------------------------------------------------------- uncertainties
@@ -670,27 +692,39 @@ fn redundant_configurations_give_the_resistance_uncertainty() {
     let row = reduce_default(&nist_readings(&model, "s", 300.0, 1.0, 1e-3))
         .rows
         .remove(0);
-    // Two values a (1 +- d): standard error of their mean a d; each two-point fit has no
-    // residual degree of freedom and adds nothing.
-    let (u_a, u_b) = (resistance * spread_a, resistance * spread_b);
     let sheet = PI * resistance / LN_2;
     assert_close(row.sheet_resistance_ohm_sq, sheet, 1e-12, "R_s");
+    // The statistical part pools the row's evidence about its voltage noise: each family's
+    // two estimates (weights 2 I^2, the two-reading fits' 1 / c^2) give 4 I^2 R^2 d^2 on one
+    // degree of freedom, the four Hall values agree exactly on three more. So
+    // sigma_V^2 = 4 I^2 R^2 (d_A^2 + d_B^2) / 5; with the noise coefficient of R_s,
+    // R_s / (2 sqrt(2) R I), and the Student factor sqrt(5/3) (JCGM 101:2008, 6.4.9.4):
+    // u_stat(R_s) = R_s sqrt((d_A^2 + d_B^2) / 6). The scatter of the families alone
+    // would give R_s sqrt(d_A^2 + d_B^2) / 2 (first-order propagation through the exact
+    // van der Pauw gradient; for R_A = R_B the partial derivatives are R_s / 2R each).
     assert_close(
-        row.sheet_resistance_ohm_sq_unc,
-        sheet / (2.0 * resistance) * (u_a * u_a + u_b * u_b).sqrt(),
+        row.sheet_resistance_ohm_sq_unc_stat,
+        sheet * ((spread_a * spread_a + spread_b * spread_b) / 6.0).sqrt(),
         1e-9,
-        "u(R_s)",
+        "u_stat(R_s)",
     );
     assert_close(row.reciprocity_mismatch, 2.0 * spread_b, 1e-12, "reciprocity mismatch");
-    // Mobility uncertainty: relative u(R_s) (the Hall part is exact here).
-    let relative = row.sheet_resistance_ohm_sq_unc.unwrap() / sheet;
-    assert_close(
-        row.hall_mobility_m2_per_vs_unc,
-        relative * row.hall_mobility_m2_per_vs.unwrap(),
-        1e-9,
-        "u(mu_H)",
+    let relative = row.sheet_resistance_ohm_sq_unc_stat.unwrap() / sheet;
+    let mobility_relative = row.hall_mobility_m2_per_vs_unc_stat.unwrap() / row.hall_mobility_m2_per_vs.unwrap();
+    assert!(
+        mobility_relative >= relative * (1.0 - 1e-12),
+        "{mobility_relative} vs {relative}"
     );
-    assert!(row.hall_resistance_ohm_unc.unwrap() < 1e-12 * row.hall_resistance_ohm.unwrap());
+    // The Hall values agree exactly, but the same voltmeter measured them: they keep the
+    // pooled noise.
+    assert!(row.hall_resistance_ohm_unc.unwrap() > 0.0);
+    // The mobility's systematic part is the field calibration alone (0.5 % assumed).
+    assert_close(
+        row.hall_mobility_m2_per_vs_unc_sys,
+        5e-3 * row.hall_mobility_m2_per_vs.unwrap(),
+        1e-12,
+        "u_sys(mu_H)",
+    );
 }
 
 #[test]
@@ -703,14 +737,25 @@ fn thickness_uncertainty_enters_volume_quantities_only() {
         thickness_unc_m: Some(0.1e-6),
         hall_factor: 1.0,
         geometry: Geometry::VanDerPauw,
+        calibration: Calibration::default(),
     };
-    let row = reduce(&readings, Some(&[sheet]), &ReduceSettings::default())
-        .unwrap()
-        .rows
-        .remove(0);
+    // Every other calibration stated perfect, so that the thickness stands alone.
+    let settings = ReduceSettings {
+        calibration: perfect_instruments(),
+        ..ReduceSettings::default()
+    };
+    let row = reduce(&readings, Some(&[sheet]), &settings).unwrap().rows.remove(0);
     // Exact readings: the sheet quantities have only rounding scatter.
-    assert!(row.sheet_density_m2_unc.unwrap() < 1e-12 * row.sheet_density_m2.unwrap());
-    assert!(row.hall_mobility_m2_per_vs_unc.unwrap() < 1e-12 * row.hall_mobility_m2_per_vs.unwrap());
+    assert!(row.sheet_density_m2_unc.unwrap() <= 2e-12 * row.sheet_density_m2.unwrap());
+    assert!(row.hall_mobility_m2_per_vs_unc.unwrap() <= 2e-12 * row.hall_mobility_m2_per_vs.unwrap());
+    // The thickness is one error for the whole series: systematic, not statistical.
+    assert!(row.density_m3_unc_stat.unwrap() <= 2e-12 * row.density_m3.unwrap());
+    assert_close(
+        row.density_m3_unc_sys,
+        0.05 * row.density_m3.unwrap(),
+        1e-12,
+        "u_sys(n)",
+    );
     assert_close(row.density_m3_unc, 0.05 * row.density_m3.unwrap(), 1e-12, "u(n)");
     assert_close(
         row.resistivity_ohm_m_unc,
@@ -746,6 +791,33 @@ fn temperatures_within_tolerance_share_a_row() {
     let mut strict = ReduceSettings::default();
     strict.temperature_tolerance_k = 0.1;
     assert_eq!(reduce(&readings, None, &strict).unwrap().rows.len(), 4);
+}
+
+#[test]
+fn a_sub_kelvin_series_stays_apart() {
+    // Setpoints 0.1 K apart from 0.3 to 1.5 K, each read 16 times while the stage drifts by
+    // 2 mK: thirteen rows, not one chain.
+    let model = VanDerPauwModel::symmetric(100.0, 50.0);
+    let mut readings = Vec::new();
+    for step in 0..13 {
+        let setpoint = 0.3 + 0.1 * step as f64;
+        for (index, reading) in nist_readings(&model, "s", setpoint, 0.5, 1e-3).into_iter().enumerate() {
+            readings.push(RawReading {
+                temperature_k: setpoint + 0.002 * index as f64 / 16.0,
+                ..reading
+            });
+        }
+    }
+    let reduction = reduce_default(&readings);
+    assert_eq!(reduction.rows.len(), 13);
+    for (step, row) in reduction.rows.iter().enumerate() {
+        assert!(
+            (row.temperature_k - (0.3 + 0.1 * step as f64)).abs() < 2e-3,
+            "{}",
+            row.temperature_k
+        );
+        assert!(row.quality_ok, "{:?}", row.flags);
+    }
 }
 
 #[test]
@@ -1081,6 +1153,7 @@ fn many_skipped_readings_are_summarized() {
     readings.extend(std::iter::repeat_n(broken, 50));
     let settings = ReduceSettings {
         skip_invalid_readings: true,
+        calibration: perfect_instruments(),
         ..ReduceSettings::default()
     };
     let reduction = reduce(&readings, None, &settings).unwrap();
@@ -1101,7 +1174,11 @@ fn row_warnings_are_capped() {
             }
         }
     }
-    let reduction = reduce_default(&readings);
+    let settings = ReduceSettings {
+        calibration: perfect_instruments(),
+        ..ReduceSettings::default()
+    };
+    let reduction = reduce(&readings, None, &settings).unwrap();
     assert_eq!(reduction.rows.len(), 30);
     assert!(reduction
         .rows
@@ -1317,6 +1394,357 @@ fn columns_and_structs_give_the_same_reduction() {
             expected: readings.len(),
         }
     );
+}
+
+// ---------------------------------------------------------------- real setups
+
+/// The forward model's readings of a lab (remanence, wander, drift as asked) for a sample
+/// whose sheet density freezes out with 12 meV and whose mobility goes as T^-1.5 (invented).
+mod real_setups {
+    use mobilis_core::constants::{BOLTZMANN_EV_PER_K, ELEMENTARY_CHARGE_C};
+    use mobilis_core::forward::readings::{
+        lab_van_der_pauw_series, LabConditions, MeasurementProtocol, VanDerPauwSample, VoltageNoise,
+    };
+    use mobilis_core::forward::ForwardError;
+    use mobilis_core::noise::Rng;
+
+    use super::super::*;
+    use super::assert_close;
+
+    fn sheet_density_m2(temperature_k: f64) -> f64 {
+        5e15 * (-(0.012 / BOLTZMANN_EV_PER_K) * (1.0 / temperature_k - 1.0 / 300.0)).exp()
+    }
+
+    fn mobility(temperature_k: f64) -> f64 {
+        0.2 * (temperature_k / 300.0).powf(-1.5)
+    }
+
+    fn sheet_resistance(temperature_k: f64) -> f64 {
+        1.0 / (ELEMENTARY_CHARGE_C * sheet_density_m2(temperature_k) * mobility(temperature_k))
+    }
+
+    fn layer_at(temperature_k: f64) -> Result<VanDerPauwSample, ForwardError> {
+        let sheet = sheet_resistance(temperature_k);
+        let mut sample = VanDerPauwSample::ideal(
+            "layer",
+            temperature_k,
+            sheet,
+            1.1,
+            -1.0 / (ELEMENTARY_CHARGE_C * sheet_density_m2(temperature_k)),
+        );
+        sample.thermoelectric_offsets_v = [3e-6, -2e-6, 1e-6, 4e-6, -3e-6, 2e-6];
+        sample.hall_misalignment_ohm = [0.03 * sheet, -0.03 * sheet];
+        Ok(sample)
+    }
+
+    fn setpoints() -> Vec<f64> {
+        (0..16).map(|i| 30.0 + 18.0 * i as f64).collect()
+    }
+
+    fn series(lab: &LabConditions, noise_v: f64) -> Vec<RawReading> {
+        let protocol = MeasurementProtocol {
+            noise: VoltageNoise {
+                absolute_v: noise_v,
+                relative: 0.0,
+            },
+            ..MeasurementProtocol::van_der_pauw(1e-6, vec![0.5]).with_resistance_at_zero_and_hall_in_field()
+        };
+        lab_van_der_pauw_series(&setpoints(), layer_at, &protocol, lab, &mut Rng::seeded(12))
+            .expect("valid series")
+            .readings
+    }
+
+    fn sheet(thickness_m: f64) -> SampleInfo {
+        SampleInfo {
+            thickness_m: Some(thickness_m),
+            ..SampleInfo::van_der_pauw_sheet("layer")
+        }
+    }
+
+    /// Checks one row per setpoint, free of flags, with rho and mu at the row's temperature.
+    #[track_caller]
+    fn assert_one_clean_row_per_temperature(reduction: &Reduction, relative: f64) {
+        assert_eq!(reduction.rows.len(), 16, "one row per temperature");
+        for row in &reduction.rows {
+            assert!(row.flags.is_empty(), "{:?} at {} K", row.flags, row.temperature_k);
+            let t = row.temperature_k;
+            assert_close(row.resistivity_ohm_m, sheet_resistance(t) * 1e-6, relative, "rho");
+            assert_close(row.hall_mobility_m2_per_vs, mobility(t), relative, "mu_H");
+            assert_close(row.sheet_density_m2, sheet_density_m2(t), relative, "n_s");
+        }
+    }
+
+    #[test]
+    fn three_millitesla_of_remanence_give_one_row_per_temperature() {
+        let lab = LabConditions {
+            remanent_field_t: 3e-3,
+            autorange: Some(mobilis_core::forward::readings::Autorange::TYPICAL),
+            ..LabConditions::IDEAL
+        };
+        let readings = series(&lab, 1e-7);
+        let reduction = reduce(&readings, Some(&[sheet(1e-6)]), &ReduceSettings::default()).unwrap();
+        // 1e-7 V on about 10 mV: 1e-5 relative per reading.
+        assert_one_clean_row_per_temperature(&reduction, 1e-4);
+        let named = reduction
+            .warnings
+            .iter()
+            .find(|warning| warning.contains("taken as zero field"))
+            .expect("the remanence is reported");
+        assert!(
+            named.contains("zero_field_tolerance_T") && named.contains("0.0030"),
+            "{named}"
+        );
+        // With a 1 G zero-field window the remanent readings become a field of their own:
+        // rows split, and every such row's warning names the parameters to widen.
+        let strict = ReduceSettings {
+            zero_field_tolerance_t: 1e-4,
+            ..ReduceSettings::default()
+        };
+        let split = reduce(&readings, Some(&[sheet(1e-6)]), &strict).unwrap();
+        assert_eq!(split.rows.len(), 32);
+        assert!(split
+            .warnings
+            .iter()
+            .any(|warning| warning.contains("zero_field_tolerance_T") && warning.contains("field_tolerance_T")));
+    }
+
+    #[test]
+    fn wandering_field_setpoints_give_one_row_and_the_right_hall_coefficient() {
+        let lab = LabConditions {
+            remanent_field_t: -2e-3,
+            field_wander_t: 4e-4,
+            ..LabConditions::IDEAL
+        };
+        // Noise-free: what remains is the reduction's own error. Each polarity's field-odd
+        // part is divided by its own fields, so the wander leaves no trace.
+        let reduction = reduce(&series(&lab, 0.0), Some(&[sheet(1e-6)]), &ReduceSettings::default()).unwrap();
+        assert_one_clean_row_per_temperature(&reduction, 1e-9);
+    }
+
+    #[test]
+    fn a_drifting_stage_is_brought_to_the_mean_temperature() {
+        let lab = LabConditions {
+            stage_drift_k: 0.03,
+            ..LabConditions::IDEAL
+        };
+        let readings = series(&lab, 0.0);
+        let reduction = reduce(&readings, Some(&[sheet(1e-6)]), &ReduceSettings::default()).unwrap();
+        // At 30 K, d ln n_s / dT = 0.15 per K and the readings spread over about 0.13 K: of
+        // order a percent off before the correction, a few parts in 1e5 after it (what is
+        // left is the second order: the parabola's error in the series' slope, largest at
+        // the coldest end where the parabola is one-sided, and the misalignment corrected
+        // with the Hall slope).
+        assert_one_clean_row_per_temperature(&reduction, 3e-4);
+        assert!(reduction.rows.iter().all(|row| row.drift_corrected));
+        // The thermometer accuracy alone remains (0.02 K assumed).
+        assert!(reduction
+            .rows
+            .iter()
+            .all(|row| (row.temperature_k_unc - 0.02).abs() < 1e-15));
+    }
+
+    /// 40 000 Hall readings logged along a ramp to +-1 T, 1e-4 T apart, far closer than
+    /// field_tolerance_T: setpoints of at most 5 mT each, never one chained cluster.
+    #[test]
+    fn a_densely_logged_ramp_keeps_its_field_range() {
+        let model = super::VanDerPauwModel::symmetric(100.0, -250.0);
+        let mut readings: Vec<RawReading> = super::NIST_RESISTANCE_CONTACTS
+            .iter()
+            .map(|contacts| model.reading("ramp", 4.2, 0.0, *contacts, 1e-4))
+            .collect();
+        for step in 1..=10_000 {
+            let field = 1e-4 * step as f64;
+            for signed in [field, -field] {
+                for offset in 0..2 {
+                    let contacts = super::NIST_HALL_CONTACTS[(2 * step + offset) % 4];
+                    readings.push(model.reading("ramp", 4.2, signed, contacts, 1e-4));
+                }
+            }
+        }
+        assert_eq!(readings.len(), 40_008);
+        let reduction = super::reduce_default(&readings);
+        let fields: Vec<f64> = reduction.rows.iter().map(|row| row.field_t.unwrap()).collect();
+        // The ramp from 0.0101 T (the first above the 0.01 T zero-field window) to 1 T in
+        // pieces 5 mT wide: 198 of them.
+        assert!((197..=199).contains(&fields.len()), "{} rows", fields.len());
+        assert!(
+            fields[0] < 0.016 && *fields.last().unwrap() > 0.99,
+            "{:?}",
+            (fields[0], fields.last())
+        );
+        for row in &reduction.rows {
+            assert_close(row.sheet_hall_coefficient_m2_per_c, -250.0, 1e-9, "R_Hs");
+        }
+    }
+
+    #[test]
+    fn calibrations_make_the_systematic_part_and_are_reported() {
+        let readings = series(&LabConditions::IDEAL, 1e-7);
+        let stated = SampleInfo {
+            thickness_unc_m: Some(0.03e-6),
+            calibration: Calibration {
+                field_rel: Some(0.02),
+                ..Calibration::default()
+            },
+            ..sheet(1e-6)
+        };
+        let settings = ReduceSettings {
+            calibration: Calibration {
+                field_rel: Some(0.01),
+                current_rel: Some(0.002),
+                voltage_rel: Some(0.001),
+                temperature_accuracy_k: Some(0.05),
+            },
+            ..ReduceSettings::default()
+        };
+        let reduction = reduce(&readings, Some(&[stated]), &settings).unwrap();
+        assert!(reduction.calibrations[0].not_stated.is_empty());
+        assert!(!reduction.warnings.iter().any(|w| w.contains("not stated")));
+        // First-order budget (JCGM 100:2008, 5.1.6, relative form for products and
+        // quotients): R = V/I; R_Hs = R_xy / B; rho = R_s t; n = n_s / t; mu_H = R_Hs / R_s,
+        // in which voltage and current cancel. The sheet's field calibration (2 %)
+        // overrides the call's (1 %).
+        let (voltage, current, field, thickness) = (0.001f64, 0.002f64, 0.02f64, 0.03f64);
+        let electrical = voltage.hypot(current);
+        for row in &reduction.rows {
+            let check = |value: Option<f64>, systematic: Option<f64>, relative: f64, what: &str| {
+                assert_close(systematic, relative * value.unwrap().abs(), 1e-12, what);
+            };
+            check(
+                row.sheet_resistance_ohm_sq,
+                row.sheet_resistance_ohm_sq_unc_sys,
+                electrical,
+                "R_s",
+            );
+            check(
+                row.resistivity_ohm_m,
+                row.resistivity_ohm_m_unc_sys,
+                electrical.hypot(thickness),
+                "rho",
+            );
+            check(
+                row.sheet_density_m2,
+                row.sheet_density_m2_unc_sys,
+                electrical.hypot(field),
+                "n_s",
+            );
+            check(
+                row.density_m3,
+                row.density_m3_unc_sys,
+                electrical.hypot(field).hypot(thickness),
+                "n",
+            );
+            check(
+                row.hall_mobility_m2_per_vs,
+                row.hall_mobility_m2_per_vs_unc_sys,
+                field,
+                "mu_H",
+            );
+            // The total is the quadrature sum; the statistical part is the scatter's.
+            let total = row.density_m3_unc_stat.unwrap().hypot(row.density_m3_unc_sys.unwrap());
+            assert_close(row.density_m3_unc, total, 1e-12, "u(n)");
+            assert!(row.density_m3_unc_stat.unwrap() < 1e-3 * row.density_m3.unwrap());
+            assert_close(Some(row.temperature_k_unc), 0.05, 1e-12, "u(T)");
+        }
+
+        // Nothing stated: the defaults are assumed, listed and warned about by name.
+        let reduction = reduce(&readings, Some(&[sheet(1e-6)]), &ReduceSettings::default()).unwrap();
+        assert_eq!(
+            reduction.calibrations[0].not_stated,
+            vec![
+                calibration_names::FIELD,
+                calibration_names::CURRENT,
+                calibration_names::VOLTAGE,
+                calibration_names::TEMPERATURE,
+                calibration_names::THICKNESS
+            ]
+        );
+        let warning = reduction
+            .warnings
+            .iter()
+            .find(|w| w.starts_with("calibrations not stated"))
+            .expect("a warning lists the assumptions");
+        assert!(warning.contains("field_calibration_rel (assumed 0.005"), "{warning}");
+        assert!(warning.contains("temperature_accuracy_K (assumed 0.02 K"), "{warning}");
+    }
+
+    #[test]
+    fn bad_calibrations_are_refused_with_their_names() {
+        let readings = series(&LabConditions::IDEAL, 1e-7);
+        let cases: [(Calibration, &str); 4] = [
+            (
+                Calibration {
+                    field_rel: Some(-0.01),
+                    ..Calibration::default()
+                },
+                "field_calibration_rel",
+            ),
+            (
+                Calibration {
+                    current_rel: Some(f64::NAN),
+                    ..Calibration::default()
+                },
+                "current_calibration_rel",
+            ),
+            (
+                Calibration {
+                    voltage_rel: Some(f64::INFINITY),
+                    ..Calibration::default()
+                },
+                "voltage_calibration_rel",
+            ),
+            (
+                Calibration {
+                    temperature_accuracy_k: Some(-1.0),
+                    ..Calibration::default()
+                },
+                "temperature_accuracy_K",
+            ),
+        ];
+        for (calibration, name) in cases {
+            let settings = ReduceSettings {
+                calibration,
+                ..ReduceSettings::default()
+            };
+            let message = reduce(&readings, None, &settings).unwrap_err().to_string();
+            assert!(message.starts_with(&format!("setting {name} is ")), "{message}");
+            assert!(!message.ends_with('.'), "{message}");
+            let in_sheet = SampleInfo {
+                calibration,
+                ..sheet(1e-6)
+            };
+            let message = reduce(&readings, Some(&[in_sheet]), &ReduceSettings::default())
+                .unwrap_err()
+                .to_string();
+            assert!(
+                message.starts_with(&format!("{name} of sample \"layer\" is ")),
+                "{message}"
+            );
+        }
+    }
+
+    #[test]
+    fn a_single_drifting_temperature_reports_the_spread_of_its_readings() {
+        let model = super::VanDerPauwModel::symmetric(100.0, 50.0);
+        let mut readings = Vec::new();
+        for temperature in [300.0, 300.2, 300.4] {
+            readings.extend(super::nist_readings(&model, "s", temperature, 0.5, 1e-3));
+        }
+        let settings = ReduceSettings {
+            calibration: Calibration {
+                temperature_accuracy_k: Some(0.1),
+                ..Calibration::default()
+            },
+            ..ReduceSettings::default()
+        };
+        let row = reduce(&readings, None, &settings).unwrap().rows.remove(0);
+        // No neighbouring temperature to take a slope from: no correction, and the
+        // readings' standard deviation (16 readings at each of three temperatures 0.2 K
+        // apart: sqrt(32 x 0.04 / 47)) joins the thermometer's 0.1 K.
+        assert!(!row.drift_corrected);
+        let deviation = (32.0f64 * 0.04 / 47.0).sqrt();
+        assert_close(Some(row.temperature_k_unc), deviation.hypot(0.1), 1e-9, "u(T)");
+    }
 }
 
 // ---------------------------------------------------------------- property test

@@ -366,6 +366,10 @@ async fn a_drifting_lab_series_gives_freeze_out_error_bars_that_cover_the_truth(
         // The project's rule for honest error bars: 55-80 % within 1 sigma, >= 90 % within 2.
         assert!(coverage.is_honest(), "freeze-out {quantity}: {}", coverage.describe());
     }
+    eprintln!(
+        "freeze-out N_D with the thickness error divided out: worst {:.2} %",
+        100.0 * worst_donor_error
+    );
     assert!(
         worst_donor_error < 0.05,
         "N_D off by {:.2} % once the thickness error is divided out",

@@ -304,6 +304,16 @@ pub fn generate() -> anyhow::Result<Generated> {
                 ("noise_relative", Json::Number(NOISE.relative)),
                 ("temperature_jitter_K", Json::Number(CONTROLLER_JITTER_K)),
                 (
+                    "stated_calibrations",
+                    Json::object([
+                        ("thickness_m_unc", Json::Number(STATED_THICKNESS_UNC_M)),
+                        ("field_calibration_rel", Json::Number(STATED_FIELD_CALIBRATION_REL)),
+                        ("current_calibration_rel", Json::Number(STATED_CURRENT_CALIBRATION_REL)),
+                        ("voltage_calibration_rel", Json::Number(STATED_VOLTAGE_CALIBRATION_REL)),
+                        ("temperature_accuracy_K", Json::Number(STATED_TEMPERATURE_ACCURACY_K)),
+                    ]),
+                ),
+                (
                     "thermoelectric_offset_limit_V",
                     Json::Number(THERMOELECTRIC_OFFSET_LIMIT_V),
                 ),
@@ -341,14 +351,32 @@ pub fn readings_csv(readings: &[RawReading]) -> String {
     out
 }
 
-/// samples.csv: the `samples` role, one row per piece.
+/// The calibrations the invented lab states for its own instruments, as `hall.reduce` reads
+/// them from the sample sheet: its micrometer (thickness, m), the Hall probe that sets the
+/// field scale, the current source and the voltmeter (relative), and the thermometer (K).
+/// The readings were made with perfect instruments, so these only widen the error bars, as a
+/// stated budget does; `truth.json` repeats them.
+pub const STATED_THICKNESS_UNC_M: f64 = 5e-6;
+pub const STATED_FIELD_CALIBRATION_REL: f64 = 5e-3;
+pub const STATED_CURRENT_CALIBRATION_REL: f64 = 1e-3;
+pub const STATED_VOLTAGE_CALIBRATION_REL: f64 = 2e-4;
+pub const STATED_TEMPERATURE_ACCURACY_K: f64 = 0.05;
+
+/// samples.csv: the `samples` role, one row per piece, with the lab's stated calibrations.
 pub fn samples_csv(rows: &[(String, f64, f64)]) -> String {
-    let mut out = String::from("sample,thickness_m,hall_factor\n");
+    let mut out = String::from(
+        "sample,thickness_m,thickness_m_unc,hall_factor,field_calibration_rel,current_calibration_rel,voltage_calibration_rel,temperature_accuracy_K\n",
+    );
     for (sample, thickness_m, hall_factor) in rows {
         out.push_str(&format!(
-            "{sample},{},{}\n",
+            "{sample},{},{},{},{},{},{},{}\n",
             number(*thickness_m, 10),
-            number(*hall_factor, 10)
+            number(STATED_THICKNESS_UNC_M, 10),
+            number(*hall_factor, 10),
+            number(STATED_FIELD_CALIBRATION_REL, 10),
+            number(STATED_CURRENT_CALIBRATION_REL, 10),
+            number(STATED_VOLTAGE_CALIBRATION_REL, 10),
+            number(STATED_TEMPERATURE_ACCURACY_K, 10),
         ));
     }
     out

@@ -72,6 +72,9 @@ async fn run_with_daemon(
     }
     println!();
     println!("Demo data (invented): {}", data.display());
+    println!(
+        "Every ± below is one standard uncertainty (coverage factor k = 1): the scatter of the data and the calibrations the lab stated, in quadrature."
+    );
     let mut bar = ProgressBar::new(progress);
     let steps = pipeline_file::run(&client, &data.join("pipeline.toml"), |event| bar.update(event)).await?;
     drop(bar);

@@ -5,7 +5,7 @@ use crate::mobility_spectrum::{
     mobility_spectrum_of_sweep, GridRange, RegularizationRule, SpectrumError, SpectrumSettings,
 };
 use crate::multi_carrier::{
-    fit_sweep_monitored, CarrierSelection, InformationCriterion, MultiCarrierError, MultiCarrierSettings,
+    fit_sweep_monitored, Calibration, CarrierSelection, InformationCriterion, MultiCarrierError, MultiCarrierSettings,
 };
 use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType};
 use mobilis_core::forward::tensor::CarrierKind;
@@ -50,6 +50,12 @@ pub struct MultiCarrierParams {
     random_starts: Option<usize>,
     #[serde(default)]
     seed: Option<u64>,
+    #[serde(default)]
+    relative_uncertainty_floor: Option<f64>,
+    #[serde(default)]
+    field_calibration_relative: Option<f64>,
+    #[serde(default)]
+    resistivity_calibration_relative: Option<f64>,
 }
 
 impl Analysis for MultiCarrierFitAnalysis {
@@ -68,6 +74,7 @@ impl Analysis for MultiCarrierFitAnalysis {
             "seed".into(),
             json!({"type": "integer", "minimum": 0, "default": 1, "description": "seed of the random starts"}),
         );
+        properties.extend(crate::multi_carrier::summary::schema_properties());
         AnalysisDeclaration {
             name: String::new(),
             summary: "Sheet density and mobility of each carrier from the field dependence of sigma_xx and sigma_xy (discrete multi-carrier fit)".into(),
@@ -116,6 +123,13 @@ impl Analysis for MultiCarrierFitAnalysis {
         if let Some(seed) = params.seed {
             settings.seed = seed;
         }
+        if let Some(floor) = params.relative_uncertainty_floor {
+            settings.relative_uncertainty_floor = floor;
+        }
+        settings.calibration = Calibration {
+            field_relative: params.field_calibration_relative,
+            resistivity_relative: params.resistivity_calibration_relative,
+        };
         let result =
             fit_sweep_monitored(&points, &params.sweep.settings(), &settings, host).map_err(|error| match error {
                 MultiCarrierError::Cancelled => AnalysisError::Cancelled,
@@ -147,23 +161,7 @@ impl Analysis for MultiCarrierFitAnalysis {
         let carriers: Vec<Value> = fit
             .carriers
             .iter()
-            .map(|c| {
-                let mut carrier = json!({
-                    "carrier_type": carrier_type(c.kind),
-                    "sheet_density_m2": c.sheet_density_m2,
-                    "sheet_density_m2_unc": c.sheet_density_unc_m2,
-                    "mobility_m2_per_Vs": c.mobility_m2_per_vs,
-                    "mobility_m2_per_Vs_unc": c.mobility_unc_m2_per_vs,
-                    "sheet_conductance_S": c.sheet_conductance_s,
-                    "mobility_field_product": c.mobility_field_product,
-                    "at_bound": c.at_bound,
-                });
-                if let Some(t) = params.thickness_m {
-                    carrier["density_m3"] = json!(c.sheet_density_m2 / t);
-                    carrier["density_m3_unc"] = json!(c.sheet_density_unc_m2.map(|u| u / t));
-                }
-                carrier
-            })
+            .map(|c| crate::multi_carrier::summary::carrier_summary(c, params.thickness_m))
             .collect();
         let mut output = AnalysisOutput::new(table);
         let summary = &mut output.summary;
@@ -176,7 +174,7 @@ impl Analysis for MultiCarrierFitAnalysis {
         summary.insert("score".into(), json!(fit.score));
         summary.insert("chi_square".into(), json!(fit.chi_square));
         summary.insert("degrees_of_freedom".into(), json!(fit.degrees_of_freedom));
-        summary.insert("reduced_chi_square".into(), json!(fit.reduced_chi_square));
+        summary.extend(crate::multi_carrier::summary::fit_summary(fit));
         summary.insert("weighted".into(), json!(fit.weighted));
         summary.insert("max_field_T".into(), json!(fit.max_field_t));
         summary.insert(

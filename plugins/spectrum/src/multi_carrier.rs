@@ -80,17 +80,20 @@
 //! ([`MultiCarrierFit::curve`]) and the model on any field grid
 //! ([`MultiCarrierFit::model_curve`]), ready to plot.
 
+pub mod budget;
 mod error;
 mod model;
 mod seeds;
+pub mod summary;
 #[cfg(test)]
 mod tests;
 
+pub use budget::{Budget, Calibration, SWEEP_RELATIVE_UNCERTAINTY_FLOOR};
 pub use error::MultiCarrierError;
 pub use mobilis_core::forward::tensor::{Carrier, CarrierKind};
 pub use mobilis_core::sweep::{SweepPoint, SymmetrizeSettings, Symmetrized, TensorPoint, TensorUncertainty};
 
-use mobilis_core::fit::{Bounds, LeastSquares, LmOptions, MultiStartFit, SameMinimum};
+use mobilis_core::fit::{Bounds, FitQuality, LeastSquares, LmOptions, MultiStartFit, SameMinimum};
 use mobilis_core::forward::tensor::sum_conductivity;
 use mobilis_core::linalg::Matrix;
 use mobilis_core::noise::Rng;
@@ -183,6 +186,13 @@ pub struct MultiCarrierSettings {
     pub sheet_density_bounds_m2: (f64, f64),
     /// Iterations per start. Default 300.
     pub max_iterations: usize,
+    /// A stated component uncertainty below this fraction of |sigma(B)| is raised to it, so
+    /// that no point pins the fit. Default [`SWEEP_RELATIVE_UNCERTAINTY_FLOOR`] (1e-5; the
+    /// `budget` submodule says why it is below the temperature series' 1e-3).
+    pub relative_uncertainty_floor: f64,
+    /// Stated scale calibrations of the sweep, applied once after the fit. Default: none
+    /// stated.
+    pub calibration: Calibration,
 }
 
 impl Default for MultiCarrierSettings {
@@ -196,6 +206,8 @@ impl Default for MultiCarrierSettings {
             mobility_bounds_m2_per_vs: (1e-5, 1e4),
             sheet_density_bounds_m2: (1e6, 1e26),
             max_iterations: 300,
+            relative_uncertainty_floor: SWEEP_RELATIVE_UNCERTAINTY_FLOOR,
+            calibration: Calibration::default(),
         }
     }
 }
@@ -205,11 +217,15 @@ impl Default for MultiCarrierSettings {
 pub struct FittedCarrier {
     pub kind: CarrierKind,
     pub sheet_density_m2: f64,
-    /// Standard uncertainty; `None` when the density ended on its bound.
+    /// Total standard uncertainty (statistical and calibration in quadrature); `None` when
+    /// the density ended on its bound.
     pub sheet_density_unc_m2: Option<f64>,
+    /// Its statistical and calibration parts.
+    pub sheet_density_budget: Budget,
     pub mobility_m2_per_vs: f64,
-    /// Standard uncertainty; `None` when the mobility ended on its bound.
+    /// Total standard uncertainty; `None` when the mobility ended on its bound.
     pub mobility_unc_m2_per_vs: Option<f64>,
+    pub mobility_budget: Budget,
     /// Zero-field sheet conductance e n mu, S.
     pub sheet_conductance_s: f64,
     /// mu B_max: below 1 the sweep does not reach this carrier's magnetoresistance.
@@ -283,6 +299,22 @@ pub struct MultiCarrierFit {
     /// chi^2 / nu; without uncertainties, the square of the relative scatter of the data
     /// about the fit.
     pub reduced_chi_square: f64,
+    /// P(chi^2_nu >= chi^2): `None` without uncertainties, where the noise scale is
+    /// estimated from the same residuals and chi-square tests nothing.
+    pub chi_square_p_value: Option<f64>,
+    /// The factor the statistical uncertainties were multiplied by: sqrt(chi^2 / nu) when
+    /// the weighted fit is worse than its uncertainties allow (Birge 1932), else 1.
+    pub birge_ratio: f64,
+    /// Points whose stated uncertainty was raised to the floor.
+    pub floored_points: usize,
+    /// How many times over the symmetrized grid counts the readings (1 for conductivity
+    /// points given directly); the statistical variances are multiplied by it (see the
+    /// `budget` submodule).
+    pub reading_reuse_factor: f64,
+    /// The floor applied (relative to |sigma(B)|).
+    pub relative_uncertainty_floor: f64,
+    /// The calibrations applied after the fit.
+    pub calibration: Calibration,
     pub residual_count: usize,
     /// The data carried uncertainties.
     pub weighted: bool,
@@ -350,7 +382,8 @@ pub fn fit_sweep_monitored(
     monitor: &dyn Monitor,
 ) -> Result<SweepFit, MultiCarrierError> {
     let symmetrized = symmetrize(points, sweep_settings)?;
-    let fit = fit_carriers_monitored(&conductivity_points(&symmetrized), settings, monitor)?;
+    let reuse = budget::reading_reuse_factor(points, sweep_settings, &symmetrized);
+    let fit = fit_points(&conductivity_points(&symmetrized), settings, monitor, reuse)?;
     Ok(SweepFit { symmetrized, fit })
 }
 
@@ -381,6 +414,22 @@ fn validate_settings(settings: &MultiCarrierSettings) -> Result<LogBounds, Multi
             name: "min_criterion_improvement",
             value: settings.min_criterion_improvement,
             requirement: "give a finite value of 0 or more",
+        });
+    }
+    let floor = settings.relative_uncertainty_floor;
+    if !(floor.is_finite() && (0.0..0.1).contains(&floor)) {
+        return Err(MultiCarrierError::InvalidSetting {
+            name: "relative_uncertainty_floor",
+            value: floor,
+            requirement: "give a relative uncertainty of 0 or more and below 0.1 (1e-5 is the default)",
+        });
+    }
+    if let Some((name, value)) = settings.calibration.invalid() {
+        return Err(MultiCarrierError::InvalidSetting {
+            name,
+            value,
+            requirement:
+                "give a relative standard uncertainty of 0 or more and below 1 (0.002 is 0.2 %), or leave it out",
         });
     }
     if settings.max_iterations == 0 {
@@ -496,7 +545,20 @@ pub fn fit_carriers_monitored(
     settings: &MultiCarrierSettings,
     monitor: &dyn Monitor,
 ) -> Result<MultiCarrierFit, MultiCarrierError> {
+    fit_points(points, settings, monitor, 1.0)
+}
+
+/// The fit of independent conductivity points, or of a symmetrized grid whose points count
+/// the readings `reading_reuse_factor` times over (see the `budget` submodule).
+fn fit_points(
+    points: &[TensorPoint],
+    settings: &MultiCarrierSettings,
+    monitor: &dyn Monitor,
+    reading_reuse_factor: f64,
+) -> Result<MultiCarrierFit, MultiCarrierError> {
     let bounds = validate_settings(settings)?;
+    let (floored, floored_points) = budget::floor_uncertainties(points, settings.relative_uncertainty_floor);
+    let points = floored.as_slice();
     let data = Data::new(points)?;
     let too_few = |carriers: usize| MultiCarrierError::TooFewPoints {
         points: points.len(),
@@ -592,7 +654,11 @@ pub fn fit_carriers_monitored(
             best
         }
     };
-    Ok(finish(&data, points, chosen, candidates, warnings, settings))
+    let counts = Counts {
+        floored_points,
+        reading_reuse_factor,
+    };
+    Ok(finish(&data, points, chosen, candidates, warnings, settings, counts))
 }
 
 /// Relative standard uncertainty above which a carrier with mu B_max < 1 gets a warning of
@@ -618,6 +684,25 @@ fn starts_at_best_minimum(kinds: &[CarrierKind], run: &MultiStartFit) -> usize {
     })
 }
 
+/// Bookkeeping of the data passed on to [`finish`].
+struct Counts {
+    floored_points: usize,
+    reading_reuse_factor: f64,
+}
+
+/// What each whitened residual is, for warnings: "sigma_xx at B = 2.5 T". The second
+/// residual of a point is sigma_xy after its correlation with sigma_xx is removed.
+fn residual_labels(data: &Data) -> Vec<String> {
+    let mut labels = Vec::with_capacity(data.residual_count);
+    for (k, &field) in data.fields_t.iter().enumerate() {
+        labels.push(format!("sigma_xx at B = {field:.4} T (point {k})"));
+        if data.whitening[k].count() == 2 {
+            labels.push(format!("sigma_xy at B = {field:.4} T (point {k})"));
+        }
+    }
+    labels
+}
+
 /// Orders the carriers, computes uncertainties, the curve and the warnings.
 fn finish(
     data: &Data,
@@ -626,10 +711,22 @@ fn finish(
     candidates: Vec<Candidate>,
     mut warnings: Vec<String>,
     settings: &MultiCarrierSettings,
+    counts: Counts,
 ) -> MultiCarrierFit {
+    let Counts {
+        floored_points,
+        reading_reuse_factor,
+    } = counts;
     let CandidateFit { kinds, run, score } = chosen;
     let best = &run.best;
     let n = kinds.len();
+    // With stated uncertainties the covariance is (J^T J)^-1 as it stands; when chi^2 / nu
+    // exceeds 1 it is widened by the Birge ratio (never narrowed). Without them the solver
+    // already scaled it by the estimated noise, and chi-square has nothing left to test.
+    let quality = FitQuality::assess(best.chi_square, best.degrees_of_freedom);
+    let birge_ratio = if data.weighted { quality.birge_ratio } else { 1.0 };
+    let statistical_scale = birge_ratio * reading_reuse_factor.max(1.0).sqrt();
+    let calibration = settings.calibration;
     let mut order: Vec<usize> = (0..n).collect();
     order.sort_by(|&a, &b| {
         kinds[a]
@@ -641,7 +738,7 @@ fn finish(
     let correlation = Matrix::from_fn(2 * n, 2 * n, |i, j| {
         correlation_raw[(parameter_index(i), parameter_index(j))]
     });
-    let unc = |value: f64, se: f64| (se.is_finite()).then_some(value * se);
+    let stat = |value: f64, se: f64| (se.is_finite()).then_some(value * se * statistical_scale);
     let carriers: Vec<FittedCarrier> = order
         .iter()
         .map(|&i| {
@@ -652,12 +749,24 @@ fn finish(
                 sheet_density_m2: density,
                 mobility_m2_per_vs: mobility,
             };
+            let sheet_density_budget = Budget::new(
+                density,
+                stat(density, best.standard_errors[2 * i]),
+                calibration.density_relative(),
+            );
+            let mobility_budget = Budget::new(
+                mobility,
+                stat(mobility, best.standard_errors[2 * i + 1]),
+                calibration.mobility_relative(),
+            );
             FittedCarrier {
                 kind: kinds[i],
                 sheet_density_m2: density,
-                sheet_density_unc_m2: unc(density, best.standard_errors[2 * i]),
+                sheet_density_unc_m2: sheet_density_budget.total(),
+                sheet_density_budget,
                 mobility_m2_per_vs: mobility,
-                mobility_unc_m2_per_vs: unc(mobility, best.standard_errors[2 * i + 1]),
+                mobility_unc_m2_per_vs: mobility_budget.total(),
+                mobility_budget,
                 sheet_conductance_s: carrier.sheet_conductance_s(),
                 mobility_field_product: mobility * data.max_field_t,
                 at_bound: best.at_bound[2 * i] || best.at_bound[2 * i + 1],
@@ -742,14 +851,21 @@ fn finish(
             ));
         }
     }
-    if data.weighted && best.degrees_of_freedom > 0 {
-        let nu = best.degrees_of_freedom as f64;
-        if best.reduced_chi_square > 1.0 + 4.0 * (2.0 / nu).sqrt() {
+    if data.weighted {
+        let describe = residual_labels(data);
+        if let Some(warning) = quality.warning(&best.residuals, |i| describe[i].clone()) {
             warnings.push(format!(
-                "chi-square per degree of freedom is {:.3}, more than the uncertainties explain: a carrier may be missing, a mobility may depend on field, or the uncertainties are underestimated",
-                best.reduced_chi_square
+                "{warning}; a carrier may be missing or a mobility may depend on field, or the stated uncertainties (the sweep's rho_xx_ohm_sq_unc and rho_xy_ohm_unc, raised to relative_uncertainty_floor = {:.1e} of |sigma|) are too small",
+                settings.relative_uncertainty_floor
             ));
         }
+    }
+    if floored_points > 0 {
+        warnings.push(format!(
+            "{floored_points} of {} points had a stated uncertainty below relative_uncertainty_floor = {:.1e} of |sigma(B)| and were raised to it, so that no point pins the fit; lower relative_uncertainty_floor if the instrument really resolves that finely",
+            points.len(),
+            settings.relative_uncertainty_floor
+        ));
     }
     let starts_at_minimum = starts_at_best_minimum(&kinds, &run);
     if run.converged > 1 && starts_at_minimum == 1 {
@@ -764,6 +880,12 @@ fn finish(
         chi_square: best.chi_square,
         degrees_of_freedom: best.degrees_of_freedom,
         reduced_chi_square: best.reduced_chi_square,
+        chi_square_p_value: (data.weighted && quality.p_value.is_finite()).then_some(quality.p_value),
+        birge_ratio,
+        floored_points,
+        reading_reuse_factor: reading_reuse_factor.max(1.0),
+        relative_uncertainty_floor: settings.relative_uncertainty_floor,
+        calibration,
         residual_count: data.residual_count,
         weighted: data.weighted,
         criterion: settings.criterion,

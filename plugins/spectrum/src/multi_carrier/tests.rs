@@ -6,6 +6,7 @@ use mobilis_core::forward::tensor::{
 };
 use mobilis_core::sweep::{conductivity_point, SweepError};
 
+mod coverage;
 mod recovery;
 
 fn close(actual: f64, expected: f64, relative: f64) -> bool {

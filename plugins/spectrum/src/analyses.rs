@@ -230,6 +230,12 @@ pub struct SpectrumParams {
     peak_threshold: Option<f64>,
     #[serde(default)]
     uncertainty_replicas: Option<usize>,
+    #[serde(default)]
+    relative_uncertainty_floor: Option<f64>,
+    #[serde(default)]
+    field_calibration_relative: Option<f64>,
+    #[serde(default)]
+    resistivity_calibration_relative: Option<f64>,
 }
 
 impl Analysis for MobilitySpectrumAnalysis {
@@ -248,6 +254,7 @@ impl Analysis for MobilitySpectrumAnalysis {
         properties.insert("regularization_strength".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "the dimensionless strength for regularization: fixed"}));
         properties.insert("peak_threshold".into(), json!({"type": "number", "exclusiveMinimum": 0, "exclusiveMaximum": 1, "default": defaults.peak_threshold, "description": "a local maximum is a peak above this fraction of the largest spectrum value"}));
         properties.insert("uncertainty_replicas".into(), json!({"type": "integer", "minimum": 0, "maximum": 1000, "default": defaults.uncertainty_replicas, "description": "bootstrap replicas for the peaks' uncertainties (0: none)"}));
+        properties.extend(crate::multi_carrier::summary::schema_properties());
         AnalysisDeclaration {
             name: String::new(),
             summary: "Mobility spectrum of electrons and holes: the Beck-Anderson envelope and a regularized non-negative spectrum with its peaks integrated into sheet densities and mobilities".into(),
@@ -310,6 +317,13 @@ impl Analysis for MobilitySpectrumAnalysis {
         if let Some(replicas) = params.uncertainty_replicas {
             settings.uncertainty_replicas = replicas;
         }
+        if let Some(floor) = params.relative_uncertainty_floor {
+            settings.relative_uncertainty_floor = floor;
+        }
+        settings.calibration = Calibration {
+            field_relative: params.field_calibration_relative,
+            resistivity_relative: params.resistivity_calibration_relative,
+        };
         let spectrum = mobility_spectrum_of_sweep(&points, &params.sweep.settings(), &settings, host).map_err(
             |error| match error {
                 SpectrumError::Cancelled => AnalysisError::Cancelled,
@@ -331,28 +345,10 @@ impl Analysis for MobilitySpectrumAnalysis {
             ],
         )
         .map_err(|e| AnalysisError::Numerical(e.to_string()))?;
-        let finite = |v: f64| v.is_finite().then_some(v);
         let peaks: Vec<Value> = spectrum
             .peaks
             .iter()
-            .map(|p| {
-                let mut peak = json!({
-                    "carrier_type": carrier_type(p.carrier),
-                    "sheet_density_m2": p.sheet_density_m2,
-                    "sheet_density_m2_unc": finite(p.sheet_density_unc_m2),
-                    "mobility_m2_per_Vs": p.mobility_m2_per_vs,
-                    "mobility_m2_per_Vs_unc": finite(p.mobility_unc_m2_per_vs),
-                    "peak_mobility_m2_per_Vs": p.peak_mobility_m2_per_vs,
-                    "conductance_S": p.conductance_s,
-                    "conductance_fraction": p.conductance_fraction,
-                    "at_grid_edge": p.at_grid_edge,
-                    "within_field_window": p.within_field_window,
-                });
-                if let Some(t) = params.thickness_m {
-                    peak["density_m3"] = json!(p.sheet_density_m2 / t);
-                }
-                peak
-            })
+            .map(|p| crate::mobility_spectrum::summary::peak_summary(p, params.thickness_m))
             .collect();
         let mut output = AnalysisOutput::new(table);
         let summary = &mut output.summary;
@@ -365,6 +361,7 @@ impl Analysis for MobilitySpectrumAnalysis {
         summary.insert("chi_square".into(), json!(spectrum.regularization.chi_square));
         summary.insert("data_count".into(), json!(spectrum.regularization.data_count));
         summary.insert("total_conductance_S".into(), json!(spectrum.total_conductance_s));
+        summary.extend(crate::mobility_spectrum::summary::spectrum_summary(&spectrum));
         output.warnings = spectrum.warnings.clone();
         Ok(output)
     }

@@ -58,9 +58,18 @@
 //!    AICc (Hurvich and Tsai, Biometrika 76, 297, 1989), AIC + 2k(k + 1) / (m - k - 1), is the
 //!    alternative. A chi-square below rounding (noise-free data) is floored at m eps^2 so
 //!    that the logarithm stays finite.
-//! 6. **Uncertainties.** From the covariance of the best run, (J^T J)^-1 at the minimum
+//! 6. **Uncertainties** (the budget of JCGM 100:2008, the GUM; see the `budget` submodule).
+//!    Statistical part: from the covariance of the best run, (J^T J)^-1 at the minimum
 //!    (times chi^2 / nu without uncertainties), in ln n and ln mu; the standard uncertainty
-//!    reported for n is n times that of ln n (first order), likewise for mu. A parameter that
+//!    reported for n is n times that of ln n (first order), likewise for mu. With stated
+//!    uncertainties, a chi^2 / nu above 1 widens it by the Birge ratio sqrt(chi^2 / nu)
+//!    (R. T. Birge, Phys. Rev. 40, 207, 1932; the Particle Data Group's practice), never
+//!    narrows it; a symmetrized grid that holds each reading more than once widens it by the
+//!    square root of the reading reuse factor. Calibration part: the stated field and
+//!    resistivity scale uncertainties ([`Calibration`]), applied once after the fit as the
+//!    relative uncertainties they give n and mu. The total is their quadrature sum. Before
+//!    the fit, a stated uncertainty below `relative_uncertainty_floor` |sigma(B)| is raised
+//!    to it, so that no point pins the fit. A parameter that
 //!    ends on its bound has no uncertainty (the curvature says nothing about a one-sided
 //!    minimum) and raises a warning. A best minimum whose parameters the data do not
 //!    determine (singular Jacobian) is refused with [`MultiCarrierError::Indistinguishable`].
@@ -69,9 +78,10 @@
 //!    B, and two such carriers add up to what one carrier gives, so the field range does not
 //!    distinguish them. Warned: every such pair; each such carrier of a multi-carrier fit
 //!    whose density or mobility is uncertain by more than 10 %; parameters on their bounds;
-//!    a chi-square per degree of freedom above 1 + 4 sqrt(2 / nu) when the uncertainties are
-//!    given (more than the noise explains: a missing carrier, a field-dependent mobility, or
-//!    underestimated uncertainties); an automatic selection still improving at the largest N
+//!    a chi-square p-value below 1e-3 when the uncertainties are given (more than the noise
+//!    explains: a missing carrier, a field-dependent mobility, or underestimated
+//!    uncertainties), naming the worst points by component and field and the parameters
+//!    that set the weights; points raised to the floor; an automatic selection still improving at the largest N
 //!    allowed; and a best minimum that only one of several converged starts reached
 //!    (carriers of one kind compared in mobility order, since their labels are arbitrary).
 //!

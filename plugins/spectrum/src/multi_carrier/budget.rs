@@ -144,7 +144,9 @@ impl Budget {
 }
 
 /// `points` with each stated component uncertainty raised to `floor` |sigma(B)|, and how
-/// many points were raised. Points without uncertainties are returned as they are.
+/// many points were raised. Points without uncertainties are returned as they are, and so
+/// are uncertainties that are not finite and positive: those are refused by the validation
+/// that follows, with the point named, rather than quietly raised.
 pub fn floor_uncertainties(points: &[TensorPoint], floor: f64) -> (Vec<TensorPoint>, usize) {
     let mut raised = 0;
     let floored = points
@@ -156,8 +158,9 @@ pub fn floor_uncertainties(points: &[TensorPoint], floor: f64) -> (Vec<TensorPoi
             let minimum = floor * point.sigma_xx_s.hypot(point.sigma_xy_s);
             // At zero field sigma_xy is not fitted and may carry no uncertainty at all.
             let xy_fitted = point.field_t != 0.0;
-            let raise_xx = u.sigma_xx_s < minimum;
-            let raise_xy = xy_fitted && u.sigma_xy_s < minimum;
+            let below = |value: f64| value.is_finite() && value > 0.0 && value < minimum;
+            let raise_xx = below(u.sigma_xx_s);
+            let raise_xy = xy_fitted && below(u.sigma_xy_s);
             if !(raise_xx || raise_xy) {
                 return *point;
             }
@@ -230,6 +233,9 @@ mod tests {
         assert!((first.sigma_xx_s - 5e-6).abs() < 1e-18 && first.sigma_xy_s == 1e-5);
         assert_eq!(first.correlation, 0.2);
         assert_eq!(&floored[1..], &points[1..]);
+        // A zero uncertainty is an error of the input, left for the validation to refuse.
+        let zero = [TensorPoint::new(1.0, 3e-3, 4e-3).with_uncertainty(u(0.0, 1e-5))];
+        assert_eq!(floor_uncertainties(&zero, 1e-3), (zero.to_vec(), 0));
     }
 }
 

@@ -703,8 +703,7 @@ impl Replicas {
         }
         let median = median_of(&mut values);
         let mut deviations: Vec<f64> = values.iter().map(|v| (v - median).abs()).collect();
-        let spread = MAD_TO_STANDARD_DEVIATION * median_of(&mut deviations);
-        spread
+        MAD_TO_STANDARD_DEVIATION * median_of(&mut deviations)
     }
 }
 

@@ -174,3 +174,42 @@ fn mobility_spectrum_peak_densities_cover_the_truth() {
     let table = coverage_of(&truth, 1e-3, realizations(50, 200), 0x5bec);
     assert_totals_honest(&table, "mobility spectrum, two carriers");
 }
+
+// One spectrum's budget: the density is the midpoint of its two bounds, the calibrations
+// add their relative uncertainties (sqrt(e_B^2 + e_R^2) on densities, e_B on mobilities, as
+// the Drude sums scale them), the totals are quadrature sums, and the offset branches are
+// counted about twice by the union grid.
+#[test]
+fn mobility_spectrum_peak_budget_adds_up() {
+    let truth = [Carrier::electron(1e16, 1.0), Carrier::hole(5e16, 0.12)];
+    let (sweep, _) = lab_sweep(&truth, 1e-3, &mut Rng::seeded(91));
+    let settings = SpectrumSettings {
+        points_per_sign: 80,
+        calibration: Calibration {
+            field_relative: Some(3e-3),
+            resistivity_relative: Some(4e-3),
+        },
+        ..SpectrumSettings::default()
+    };
+    let result = mobility_spectrum_of_sweep(&sweep, &SymmetrizeSettings::default(), &settings, &Unmonitored).unwrap();
+    assert!(
+        (result.reading_reuse_factor - 2.0).abs() < 0.2,
+        "{}",
+        result.reading_reuse_factor
+    );
+    assert!(result.calibration.not_given().is_empty());
+    for carrier in &truth {
+        let peak = peak_of(&result, carrier).unwrap();
+        let n = peak.sheet_density_m2;
+        assert!(peak.hall_density_m2 <= n && n <= peak.integrated_density_m2, "{peak:?}");
+        assert!((n - 0.5 * (peak.hall_density_m2 + peak.integrated_density_m2)).abs() <= 1e-12 * n);
+        let density = &peak.sheet_density_budget;
+        assert!((density.sys / n - 5e-3).abs() < 1e-12);
+        assert!((peak.mobility_budget.sys / peak.mobility_m2_per_vs - 3e-3).abs() < 1e-12);
+        let stat = density.stat.unwrap();
+        assert!((peak.sheet_density_unc_m2 - stat.hypot(density.sys)).abs() <= 1e-12 * n);
+        // The width term alone is part of the statistical part.
+        let width = (peak.integrated_density_m2 - peak.hall_density_m2) / 12f64.sqrt();
+        assert!(stat >= width * (1.0 - 1e-12), "{stat} < {width}");
+    }
+}

@@ -210,3 +210,112 @@ fn multi_carrier_three_carrier_uncertainties_cover_the_truth() {
     let table = coverage_of(&truth, 72, 0.0, realizations(100, 400), 0x3c0f);
     assert_honest(&table, "three carriers");
 }
+
+// The diagnostics on one sweep whose stated uncertainties are 4 times too small: chi^2 / nu
+// near 16, a p-value far below 1e-3, the statistical uncertainties widened by the Birge
+// ratio sqrt(chi^2 / nu) (Birge 1932), and a warning that names the worst points by
+// component and field and the parameters that set the weights.
+#[test]
+fn multi_carrier_understated_uncertainties_are_widened_by_the_birge_ratio() {
+    let truth = [Carrier::electron(1e16, 1.0), Carrier::hole(5e16, 0.12)];
+    let (sweep, _) = lab_sweep(&truth, 36, 0.0, &mut Rng::seeded(77));
+    let understated: Vec<SweepPoint> = sweep
+        .iter()
+        .map(|p| SweepPoint {
+            uncertainty: p.uncertainty.map(|u| ResistivityUncertainty {
+                rho_xx_ohm_sq: u.rho_xx_ohm_sq / 4.0,
+                rho_xy_ohm: u.rho_xy_ohm / 4.0,
+                correlation: u.correlation,
+            }),
+            ..*p
+        })
+        .collect();
+    let settings = given(&[Electron, Hole]);
+    let honest = fit_sweep(&sweep, &SymmetrizeSettings::default(), &settings)
+        .unwrap()
+        .fit;
+    let fit = fit_sweep(&understated, &SymmetrizeSettings::default(), &settings)
+        .unwrap()
+        .fit;
+    assert!((fit.birge_ratio - fit.reduced_chi_square.sqrt()).abs() < 1e-12);
+    // A chi-square of 16 nu is far out: the ratio lands near 4 (3 to 5 for 72 points).
+    assert!(fit.birge_ratio > 3.0 && fit.birge_ratio < 5.0, "{}", fit.birge_ratio);
+    assert!(fit.chi_square_p_value.unwrap() < 1e-6);
+    assert!(honest.birge_ratio < 1.3 && honest.chi_square_p_value.unwrap() > 1e-3);
+    // Widened, the statistical uncertainties are those of the honest fit again (within the
+    // scatter of chi-square, 15 % here).
+    for (scaled, reference) in fit.carriers.iter().zip(&honest.carriers) {
+        let ratio = scaled.sheet_density_budget.stat.unwrap() / reference.sheet_density_budget.stat.unwrap();
+        assert!((ratio - 1.0).abs() < 0.15 * honest.birge_ratio.max(1.0), "{ratio}");
+    }
+    let warning = fit
+        .warnings
+        .iter()
+        .find(|w| w.contains("Birge ratio"))
+        .unwrap_or_else(|| panic!("{:#?}", fit.warnings));
+    assert!(
+        warning.contains(" at B = ") && warning.contains(" T (point "),
+        "{warning}"
+    );
+    assert!(
+        warning.contains("rho_xx_ohm_sq_unc") && warning.contains("relative_uncertainty_floor"),
+        "{warning}"
+    );
+}
+
+// The floor raises a point whose stated uncertainty no instrument has, and says so; the
+// calibrations left out are listed; branches measured at the same fields count each reading
+// once, offset ones about twice (the union grid holds each reading at its own field and,
+// interpolated, at the other branch's neighbouring field).
+#[test]
+fn multi_carrier_floor_calibrations_and_reading_reuse_are_reported() {
+    let truth = [Carrier::electron(1e16, 1.0), Carrier::hole(5e16, 0.12)];
+    let mut rng = Rng::seeded(78);
+    let (aligned, _) = lab_sweep(&truth, 36, 0.0, &mut rng);
+    let (offset, _) = lab_sweep(&truth, 36, 0.004, &mut rng);
+    // Both components of both readings at |B| = 1 T (indices 40 and 32 of the 73 fields
+    // from -9 T), so that the symmetrized conductivity there is pinned too.
+    let mut pinned = aligned.clone();
+    for index in [40, 32] {
+        let u = pinned[index].uncertainty.unwrap();
+        pinned[index].uncertainty = Some(ResistivityUncertainty {
+            rho_xx_ohm_sq: u.rho_xx_ohm_sq * 1e-9,
+            rho_xy_ohm: u.rho_xy_ohm * 1e-9,
+            correlation: u.correlation,
+        });
+    }
+    let pinned_at = pinned[40].field_t;
+    // 1 T read through the drawn field calibration (0.1 %).
+    assert!((pinned_at - 1.0).abs() < 1e-2 && (pinned[32].field_t + pinned_at).abs() < 1e-12);
+    let settings = given(&[Electron, Hole]);
+    let fit = fit_sweep(&pinned, &SymmetrizeSettings::default(), &settings)
+        .unwrap()
+        .fit;
+    assert_eq!(fit.floored_points, 1, "the point at {pinned_at} T");
+    assert!(fit.warnings.iter().any(|w| w.contains("relative_uncertainty_floor")));
+    assert_eq!(
+        fit.calibration.not_given(),
+        vec!["field_calibration_relative", "resistivity_calibration_relative"]
+    );
+    // Without calibrations the total is the statistical part alone.
+    let carrier = &fit.carriers[0];
+    assert_eq!(carrier.sheet_density_budget.sys, 0.0);
+    assert_eq!(carrier.sheet_density_unc_m2, carrier.sheet_density_budget.stat);
+
+    let aligned_fit = fit_sweep(&aligned, &SymmetrizeSettings::default(), &settings)
+        .unwrap()
+        .fit;
+    let offset_fit = fit_sweep(&offset, &SymmetrizeSettings::default(), &settings)
+        .unwrap()
+        .fit;
+    assert!(
+        (aligned_fit.reading_reuse_factor - 1.0).abs() < 0.05,
+        "{}",
+        aligned_fit.reading_reuse_factor
+    );
+    assert!(
+        (offset_fit.reading_reuse_factor - 2.0).abs() < 0.2,
+        "{}",
+        offset_fit.reading_reuse_factor
+    );
+}

@@ -175,70 +175,6 @@ pub fn floor_uncertainties(points: &[TensorPoint], floor: f64) -> (Vec<TensorPoi
     (floored, raised)
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn calibrations_scale_densities_and_mobilities_as_the_drude_sums_say() {
-        // sigma_xx(0) = e n mu and mu B: a field scale moves n and mu by the same relative
-        // amount, a resistivity scale only n (computed from the Drude sums, Beck and
-        // Anderson, J. Appl. Phys. 62, 541, 1987).
-        let calibration = Calibration {
-            field_relative: Some(0.003),
-            resistivity_relative: Some(0.004),
-        };
-        assert!((calibration.density_relative() - 0.005).abs() < 1e-15);
-        assert_eq!(calibration.mobility_relative(), 0.003);
-        assert!(calibration.not_given().is_empty());
-        let none = Calibration::default();
-        assert_eq!(none.density_relative(), 0.0);
-        assert_eq!(
-            none.not_given(),
-            vec!["field_calibration_relative", "resistivity_calibration_relative"]
-        );
-        let bad = Calibration {
-            field_relative: Some(-0.1),
-            resistivity_relative: None,
-        };
-        assert_eq!(bad.invalid(), Some(("field_calibration_relative", -0.1)));
-    }
-
-    #[test]
-    fn budgets_add_in_quadrature_and_need_a_statistical_part() {
-        let budget = Budget::new(-200.0, Some(3.0), 0.02);
-        assert_eq!(budget.sys, 4.0);
-        assert!((budget.total().unwrap() - 5.0).abs() < 1e-12);
-        assert_eq!(Budget::new(1.0, None, 0.1).total(), None);
-        assert_eq!(Budget::new(1.0, Some(f64::NAN), 0.1).total(), None);
-    }
-
-    #[test]
-    fn the_floor_raises_only_what_is_below_it() {
-        let u = |xx: f64, xy: f64| TensorUncertainty {
-            sigma_xx_s: xx,
-            sigma_xy_s: xy,
-            correlation: 0.2,
-        };
-        // |sigma| = 5e-3 S at 1 T (3e-3, 4e-3): the floor 1e-3 gives 5e-6 S.
-        let points = [
-            TensorPoint::new(1.0, 3e-3, 4e-3).with_uncertainty(u(1e-9, 1e-5)),
-            TensorPoint::new(2.0, 3e-3, 4e-3).with_uncertainty(u(1e-5, 1e-5)),
-            TensorPoint::new(0.0, 5e-3, 0.0).with_uncertainty(u(1e-5, 0.0)),
-            TensorPoint::new(3.0, 3e-3, 4e-3),
-        ];
-        let (floored, raised) = floor_uncertainties(&points, 1e-3);
-        assert_eq!(raised, 1);
-        let first = floored[0].uncertainty.unwrap();
-        assert!((first.sigma_xx_s - 5e-6).abs() < 1e-18 && first.sigma_xy_s == 1e-5);
-        assert_eq!(first.correlation, 0.2);
-        assert_eq!(&floored[1..], &points[1..]);
-        // A zero uncertainty is an error of the input, left for the validation to refuse.
-        let zero = [TensorPoint::new(1.0, 3e-3, 4e-3).with_uncertainty(u(0.0, 1e-5))];
-        assert_eq!(floor_uncertainties(&zero, 1e-3), (zero.to_vec(), 0));
-    }
-}
-
 /// How many times over the symmetrized grid counts the readings' information (at least 1;
 /// see the module documentation). `raw` is the sweep as measured and `symmetrized` what
 /// `symmetrize(raw, settings)` returned. Readings without uncertainties are given a
@@ -301,4 +237,68 @@ fn reuse_of(readings: &[SweepPoint], settings: &SymmetrizeSettings, grid: &Symme
         }
     }
     factor
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn calibrations_scale_densities_and_mobilities_as_the_drude_sums_say() {
+        // sigma_xx(0) = e n mu and mu B: a field scale moves n and mu by the same relative
+        // amount, a resistivity scale only n (computed from the Drude sums, Beck and
+        // Anderson, J. Appl. Phys. 62, 541, 1987).
+        let calibration = Calibration {
+            field_relative: Some(0.003),
+            resistivity_relative: Some(0.004),
+        };
+        assert!((calibration.density_relative() - 0.005).abs() < 1e-15);
+        assert_eq!(calibration.mobility_relative(), 0.003);
+        assert!(calibration.not_given().is_empty());
+        let none = Calibration::default();
+        assert_eq!(none.density_relative(), 0.0);
+        assert_eq!(
+            none.not_given(),
+            vec!["field_calibration_relative", "resistivity_calibration_relative"]
+        );
+        let bad = Calibration {
+            field_relative: Some(-0.1),
+            resistivity_relative: None,
+        };
+        assert_eq!(bad.invalid(), Some(("field_calibration_relative", -0.1)));
+    }
+
+    #[test]
+    fn budgets_add_in_quadrature_and_need_a_statistical_part() {
+        let budget = Budget::new(-200.0, Some(3.0), 0.02);
+        assert_eq!(budget.sys, 4.0);
+        assert!((budget.total().unwrap() - 5.0).abs() < 1e-12);
+        assert_eq!(Budget::new(1.0, None, 0.1).total(), None);
+        assert_eq!(Budget::new(1.0, Some(f64::NAN), 0.1).total(), None);
+    }
+
+    #[test]
+    fn the_floor_raises_only_what_is_below_it() {
+        let u = |xx: f64, xy: f64| TensorUncertainty {
+            sigma_xx_s: xx,
+            sigma_xy_s: xy,
+            correlation: 0.2,
+        };
+        // |sigma| = 5e-3 S at 1 T (3e-3, 4e-3): the floor 1e-3 gives 5e-6 S.
+        let points = [
+            TensorPoint::new(1.0, 3e-3, 4e-3).with_uncertainty(u(1e-9, 1e-5)),
+            TensorPoint::new(2.0, 3e-3, 4e-3).with_uncertainty(u(1e-5, 1e-5)),
+            TensorPoint::new(0.0, 5e-3, 0.0).with_uncertainty(u(1e-5, 0.0)),
+            TensorPoint::new(3.0, 3e-3, 4e-3),
+        ];
+        let (floored, raised) = floor_uncertainties(&points, 1e-3);
+        assert_eq!(raised, 1);
+        let first = floored[0].uncertainty.unwrap();
+        assert!((first.sigma_xx_s - 5e-6).abs() < 1e-18 && first.sigma_xy_s == 1e-5);
+        assert_eq!(first.correlation, 0.2);
+        assert_eq!(&floored[1..], &points[1..]);
+        // A zero uncertainty is an error of the input, left for the validation to refuse.
+        let zero = [TensorPoint::new(1.0, 3e-3, 4e-3).with_uncertainty(u(0.0, 1e-5))];
+        assert_eq!(floor_uncertainties(&zero, 1e-3), (zero.to_vec(), 0));
+    }
 }

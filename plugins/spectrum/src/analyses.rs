@@ -201,6 +201,10 @@ impl Analysis for MultiCarrierFitAnalysis {
             "max_rho_xy_asymmetry".into(),
             json!(result.symmetrized.max_rho_xy_asymmetry),
         );
+        summary.insert(
+            "max_interpolation_correction".into(),
+            json!(result.max_interpolation_correction),
+        );
         output.warnings = fit.warnings.clone();
         host.progress(1.0, "done");
         Ok(output)

@@ -26,6 +26,9 @@
 //!    sigma_xx and sigma_xy with their propagated uncertainties and correlation;
 //!    [`fit_carriers`] takes the conductivity points directly. Every value must be finite,
 //!    sigma_xx > 0, uncertainties on all points or none, and some point must be in field.
+//!    After a first fit, [`fit_sweep`] removes from the symmetrized data the error of the
+//!    linear interpolation between field points, computed on the fitted model (the
+//!    `interpolation` submodule), and fits again from the first fit's carriers.
 //! 2. **Residuals.** Two per field, (model - data) of sigma_xx and sigma_xy jointly, whitened
 //!    by the point's 2 x 2 covariance (uncertainties and correlation), so that the sum of
 //!    squares is the generalized chi-square. At B = 0 only sigma_xx enters: sigma_xy vanishes
@@ -92,6 +95,7 @@
 
 pub mod budget;
 mod error;
+mod interpolation;
 mod model;
 mod seeds;
 pub mod summary;
@@ -373,6 +377,9 @@ impl MultiCarrierFit {
 pub struct SweepFit {
     pub symmetrized: Symmetrized,
     pub fit: MultiCarrierFit,
+    /// The largest correction of the interpolation between field points, relative to
+    /// |rho(B)|, that the second pass applied (0 when the branches needed none).
+    pub max_interpolation_correction: f64,
 }
 
 /// Symmetrizes a sweep, converts it to the conductivity tensor and fits it.
@@ -393,8 +400,39 @@ pub fn fit_sweep_monitored(
 ) -> Result<SweepFit, MultiCarrierError> {
     let symmetrized = symmetrize(points, sweep_settings)?;
     let reuse = budget::reading_reuse_factor(points, sweep_settings, &symmetrized);
-    let fit = fit_points(&conductivity_points(&symmetrized), settings, monitor, reuse)?;
-    Ok(SweepFit { symmetrized, fit })
+    let first = fit_points(&conductivity_points(&symmetrized), settings, monitor, reuse)?;
+    let Some((corrected, max_interpolation_correction)) =
+        interpolation::corrected(points, sweep_settings, &symmetrized, &first.model_carriers())
+    else {
+        return Ok(SweepFit {
+            symmetrized,
+            fit: first,
+            max_interpolation_correction: 0.0,
+        });
+    };
+    // The second pass starts from the first's carriers; the carrier list stays the one the
+    // first pass chose, with its candidates and score.
+    let refine = MultiCarrierSettings {
+        selection: CarrierSelection::Guess(first.model_carriers()),
+        random_starts: 0,
+        ..settings.clone()
+    };
+    let mut fit = fit_points(&corrected, &refine, monitor, reuse)?;
+    fit.candidates = first.candidates;
+    fit.score = first.score;
+    fit.criterion = first.criterion;
+    for warning in first.warnings {
+        // Warnings of the selection (not of the fit, which the second pass repeats).
+        if (warning.contains("max_carriers") || warning.contains("residuals allow")) && !fit.warnings.contains(&warning)
+        {
+            fit.warnings.push(warning);
+        }
+    }
+    Ok(SweepFit {
+        symmetrized,
+        fit,
+        max_interpolation_correction,
+    })
 }
 
 /// One fitted carrier list.

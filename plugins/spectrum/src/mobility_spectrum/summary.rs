@@ -4,7 +4,8 @@
 //!
 //! Per peak: `sheet_density_m2` and `mobility_m2_per_Vs` with `_unc` (total), `_unc_stat`
 //! (replica spread and, for the density, the width term) and `_unc_sys` (stated
-//! calibrations), the two bounds `integrated_density_m2` and `hall_density_m2`, and
+//! calibrations), the bounds `integrated_density_m2` and `hall_density_m2` of the density
+//! and `hall_mobility_m2_per_Vs` and `density_mobility_m2_per_Vs` of the mobility, and
 //! `density_m3` likewise when a thickness is given. For the spectrum: `floored_points`,
 //! `reading_reuse_factor` and `calibrations_not_given`.
 
@@ -32,6 +33,8 @@ pub fn peak_summary(peak: &Peak, thickness_m: Option<f64>) -> Value {
         "mobility_m2_per_Vs_unc": finite(peak.mobility_unc_m2_per_vs),
         "mobility_m2_per_Vs_unc_stat": mobility.stat,
         "mobility_m2_per_Vs_unc_sys": mobility.sys,
+        "hall_mobility_m2_per_Vs": peak.hall_mobility_m2_per_vs,
+        "density_mobility_m2_per_Vs": peak.density_mobility_m2_per_vs,
         "peak_mobility_m2_per_Vs": peak.peak_mobility_m2_per_vs,
         "conductance_S": peak.conductance_s,
         "conductance_fraction": peak.conductance_fraction,

@@ -109,15 +109,12 @@ fn coverage_of(truth: &[Carrier], relative_noise: f64, count: usize, seed: u64) 
         .flat_map(|(k, c)| {
             let name = c.kind.name();
             [
-                (
-                    format!("carrier {k} ({name}) peak sheet density, total"),
-                    Coverage::default(),
-                ),
-                (
-                    format!("carrier {k} ({name}) peak sheet density, statistical part"),
-                    Coverage::default(),
-                ),
+                "sheet density, total",
+                "sheet density, statistical part",
+                "mobility, total",
+                "mobility, statistical part",
             ]
+            .map(|what| (format!("carrier {k} ({name}) peak {what}"), Coverage::default()))
         })
         .collect();
     for _ in 0..count {
@@ -125,24 +122,28 @@ fn coverage_of(truth: &[Carrier], relative_noise: f64, count: usize, seed: u64) 
         let result =
             mobility_spectrum_of_sweep(&sweep, &SymmetrizeSettings::default(), &settings, &Unmonitored).unwrap();
         for (k, carrier) in truth.iter().enumerate() {
-            let (estimate, total, stat) = match peak_of(&result, carrier) {
-                Some(peak) => (
+            let missing = [f64::NAN; 6];
+            let [n, n_total, n_stat, mu, mu_total, mu_stat] = peak_of(&result, carrier).map_or(missing, |peak| {
+                [
                     peak.sheet_density_m2,
                     peak.sheet_density_unc_m2,
                     peak.sheet_density_budget.stat.unwrap_or(f64::NAN),
-                ),
-                None => (f64::NAN, f64::NAN, f64::NAN),
-            };
-            table[2 * k].1.record(estimate, total, carrier.sheet_density_m2);
-            table[2 * k + 1]
-                .1
-                .record(estimate, stat, miscalibrated[k].sheet_density_m2);
+                    peak.mobility_m2_per_vs,
+                    peak.mobility_unc_m2_per_vs,
+                    peak.mobility_budget.stat.unwrap_or(f64::NAN),
+                ]
+            });
+            let rows = &mut table[4 * k..4 * k + 4];
+            rows[0].1.record(n, n_total, carrier.sheet_density_m2);
+            rows[1].1.record(n, n_stat, miscalibrated[k].sheet_density_m2);
+            rows[2].1.record(mu, mu_total, carrier.mobility_m2_per_vs);
+            rows[3].1.record(mu, mu_stat, miscalibrated[k].mobility_m2_per_vs);
         }
     }
     table
 }
 
-/// Asserts the totals (every even row) and prints every row.
+/// Asserts the density totals (the first of every four rows) and prints every row.
 fn assert_totals_honest(table: &[(String, Coverage)], case: &str) {
     let report: Vec<String> = table
         .iter()
@@ -150,7 +151,7 @@ fn assert_totals_honest(table: &[(String, Coverage)], case: &str) {
         .collect();
     // Printed so that `cargo test -- --nocapture` shows the measured table.
     println!("{case}\n  {}", report.join("\n  "));
-    for (what, coverage) in table.iter().step_by(2) {
+    for (what, coverage) in table.iter().step_by(4) {
         assert!(
             coverage.is_honest(),
             "{case}: {what}: {}\n  {}",
@@ -167,7 +168,10 @@ fn assert_totals_honest(table: &[(String, Coverage)], case: &str) {
 // point inside that interval, so the statistical part alone holds the miscalibrated truth
 // more often than 80 % (89 % and 91 % of 100 realizations when this test was written),
 // as a bound-type term does; with the calibrations added the totals are as a standard
-// uncertainty should be.
+// uncertainty should be. The peak mobilities are printed, not required: the electron's
+// (mu = 1 m^2/(V s)) comes out 0.3 % high on this 80-point grid, beyond its uncertainty
+// (12 % of realizations within 1 sigma, 50 % within 2 sigma), while the hole's holds (70 %
+// and 94 %); see the module documentation.
 #[test]
 fn mobility_spectrum_peak_densities_cover_the_truth() {
     let truth = [Carrier::electron(1e16, 1.0), Carrier::hole(5e16, 0.12)];

@@ -418,16 +418,20 @@ pub fn fit_sweep_monitored(
         ..settings.clone()
     };
     let mut fit = fit_points(&corrected, &refine, monitor, reuse)?;
+    // The choice of carriers and the search for the best minimum were the first pass's:
+    // its candidates, score and starts stand, and so do its warnings about them. The
+    // warnings about the fit itself come from the second pass.
     fit.candidates = first.candidates;
     fit.score = first.score;
     fit.criterion = first.criterion;
-    for warning in first.warnings {
-        // Warnings of the selection (not of the fit, which the second pass repeats).
-        if (warning.contains("max_carriers") || warning.contains("residuals allow")) && !fit.warnings.contains(&warning)
-        {
-            fit.warnings.push(warning);
-        }
-    }
+    fit.starts = first.starts;
+    fit.starts_converged = first.starts_converged;
+    fit.starts_at_minimum = first.starts_at_minimum;
+    let about_the_search =
+        |w: &String| w.contains("max_carriers") || w.contains("residuals allow") || w.contains("converged starts");
+    fit.warnings.retain(|w| !about_the_search(w));
+    fit.warnings
+        .extend(first.warnings.into_iter().filter(|w| about_the_search(w)));
     Ok(SweepFit {
         symmetrized,
         fit,

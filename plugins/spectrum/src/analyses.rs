@@ -53,9 +53,11 @@ pub struct MultiCarrierParams {
     #[serde(default)]
     relative_uncertainty_floor: Option<f64>,
     #[serde(default)]
-    field_calibration_relative: Option<f64>,
+    field_calibration_rel: Option<f64>,
     #[serde(default)]
-    resistivity_calibration_relative: Option<f64>,
+    current_calibration_rel: Option<f64>,
+    #[serde(default)]
+    voltage_calibration_rel: Option<f64>,
 }
 
 impl Analysis for MultiCarrierFitAnalysis {
@@ -127,8 +129,9 @@ impl Analysis for MultiCarrierFitAnalysis {
             settings.relative_uncertainty_floor = floor;
         }
         settings.calibration = Calibration {
-            field_relative: params.field_calibration_relative,
-            resistivity_relative: params.resistivity_calibration_relative,
+            field_rel: params.field_calibration_rel,
+            current_rel: params.current_calibration_rel,
+            voltage_rel: params.voltage_calibration_rel,
         };
         let result =
             fit_sweep_monitored(&points, &params.sweep.settings(), &settings, host).map_err(|error| match error {
@@ -237,9 +240,11 @@ pub struct SpectrumParams {
     #[serde(default)]
     relative_uncertainty_floor: Option<f64>,
     #[serde(default)]
-    field_calibration_relative: Option<f64>,
+    field_calibration_rel: Option<f64>,
     #[serde(default)]
-    resistivity_calibration_relative: Option<f64>,
+    current_calibration_rel: Option<f64>,
+    #[serde(default)]
+    voltage_calibration_rel: Option<f64>,
 }
 
 impl Analysis for MobilitySpectrumAnalysis {
@@ -325,8 +330,9 @@ impl Analysis for MobilitySpectrumAnalysis {
             settings.relative_uncertainty_floor = floor;
         }
         settings.calibration = Calibration {
-            field_relative: params.field_calibration_relative,
-            resistivity_relative: params.resistivity_calibration_relative,
+            field_rel: params.field_calibration_rel,
+            current_rel: params.current_calibration_rel,
+            voltage_rel: params.voltage_calibration_rel,
         };
         let spectrum = mobility_spectrum_of_sweep(&points, &params.sweep.settings(), &settings, host).map_err(
             |error| match error {

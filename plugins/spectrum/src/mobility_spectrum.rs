@@ -253,7 +253,8 @@ pub struct SpectrumSettings {
     /// A stated component uncertainty below this fraction of |sigma(B)| is raised to it.
     /// Default 1e-5 (see `multi_carrier::budget`).
     pub relative_uncertainty_floor: f64,
-    /// Stated scale calibrations, applied to the peaks after the spectrum. Default: none.
+    /// Stated scale calibrations, applied to the peaks after the spectrum. Default: none
+    /// stated, the defaults of `multi_carrier::budget` assumed.
     pub calibration: Calibration,
 }
 

@@ -205,7 +205,7 @@ pub struct MultiCarrierSettings {
     /// `budget` submodule says why it is below the temperature series' 1e-3).
     pub relative_uncertainty_floor: f64,
     /// Stated scale calibrations of the sweep, applied once after the fit. Default: none
-    /// stated.
+    /// stated, the defaults of the `budget` submodule assumed.
     pub calibration: Calibration,
 }
 

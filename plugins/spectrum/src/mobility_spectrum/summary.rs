@@ -7,7 +7,7 @@
 //! calibrations), the bounds `integrated_density_m2` and `hall_density_m2` of the density
 //! and `hall_mobility_m2_per_Vs` and `density_mobility_m2_per_Vs` of the mobility, and
 //! `density_m3` likewise when a thickness is given. For the spectrum: `floored_points`,
-//! `reading_reuse_factor` and `calibrations_not_given`.
+//! `reading_reuse_factor` and `calibrations_not_stated`.
 
 use serde_json::{json, Map, Value};
 
@@ -55,6 +55,9 @@ pub fn spectrum_summary(spectrum: &MobilitySpectrum) -> Map<String, Value> {
     let mut summary = Map::new();
     summary.insert("floored_points".into(), json!(spectrum.floored_points));
     summary.insert("reading_reuse_factor".into(), json!(spectrum.reading_reuse_factor));
-    summary.insert("calibrations_not_given".into(), json!(spectrum.calibration.not_given()));
+    summary.insert(
+        "calibrations_not_stated".into(),
+        json!(spectrum.calibration.not_stated()),
+    );
     summary
 }

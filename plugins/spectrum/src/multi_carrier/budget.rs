@@ -9,9 +9,13 @@
 //!   user. A field scale error B_read = (1 + e_B) B_true makes every mu B product look
 //!   (1 + e_B) larger, so the fitted mobilities come out divided by (1 + e_B) and, since
 //!   e n mu = sigma_xx(0) is fixed by the data, the densities multiplied by it. A scale
-//!   error of the resistivity (current source, voltmeter gain, the geometry factor of the
-//!   contacts) rho_read = (1 + e_R) rho_true divides every conductivity, and with it every
-//!   density, by (1 + e_R), and leaves the mobilities alone. Both are one error for the
+//!   error of the resistivity, rho = V / I read through a current source and a voltmeter,
+//!   rho_read = (1 + e_R) rho_true with u(e_R)^2 = u_I^2 + u_V^2, divides every
+//!   conductivity, and with it every density, by (1 + e_R), and leaves the mobilities
+//!   alone. (The geometry that turns a resistance into rho is the user's, already in the
+//!   sweep's values.) Not stated, each calibration takes the default `hall.reduce`
+//!   assumes (0.5 % field, 0.1 % current, 0.01 % voltage; common practice), and the
+//!   outputs list it in `calibrations_not_stated`. Both are one error for the
 //!   whole sweep, fully correlated between its points, so they are applied once after the
 //!   fit as a relative uncertainty of the result and never as per-point noise:
 //!   u_sys(n) / n = sqrt(e_B^2 + e_R^2), u_sys(mu) / mu = e_B (first order).
@@ -59,60 +63,100 @@ use mobilis_core::sweep::{
 /// The default per-point relative floor of the sweep fits (see the module documentation).
 pub const SWEEP_RELATIVE_UNCERTAINTY_FLOOR: f64 = 1e-5;
 
+/// Assumed when the field calibration is not stated: 0.5 % (a Hall-probe gaussmeter or a
+/// magnet constant as usually calibrated; common practice, the value `hall.reduce` assumes).
+pub const DEFAULT_FIELD_CALIBRATION_REL: f64 = 5e-3;
+/// Assumed when the current calibration is not stated: 0.1 % (a precision current source on
+/// its usual ranges; common practice, as in `hall.reduce`).
+pub const DEFAULT_CURRENT_CALIBRATION_REL: f64 = 1e-3;
+/// Assumed when the voltage calibration is not stated: 0.01 % (the gain of a nanovoltmeter
+/// or lock-in on its range; common practice, as in `hall.reduce`).
+pub const DEFAULT_VOLTAGE_CALIBRATION_REL: f64 = 1e-4;
+
 /// Stated calibrations: relative standard uncertainties of scale errors common to a whole
-/// sweep. `None` means not stated: it contributes nothing, and the outputs list it.
+/// sweep. `None` means not stated: the default is assumed and the outputs list it.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
 pub struct Calibration {
-    /// Relative standard uncertainty of the field scale (the magnet's field-to-current
-    /// constant or the Hall probe's calibration).
-    pub field_relative: Option<f64>,
-    /// Relative standard uncertainty of the resistivity scale (current source, voltmeter
-    /// gain, contact geometry).
-    pub resistivity_relative: Option<f64>,
+    /// The field scale (the magnet's field-to-current constant or the Hall probe).
+    pub field_rel: Option<f64>,
+    /// The current source's scale.
+    pub current_rel: Option<f64>,
+    /// The voltmeter's gain.
+    pub voltage_rel: Option<f64>,
 }
 
 impl Calibration {
-    /// The parameter names of the calibrations, as the analyses take them.
-    pub const FIELD_PARAMETER: &'static str = "field_calibration_relative";
-    pub const RESISTIVITY_PARAMETER: &'static str = "resistivity_calibration_relative";
+    /// The parameter names, as the analyses (and `hall.reduce`) take them.
+    pub const FIELD_PARAMETER: &'static str = "field_calibration_rel";
+    pub const CURRENT_PARAMETER: &'static str = "current_calibration_rel";
+    pub const VOLTAGE_PARAMETER: &'static str = "voltage_calibration_rel";
+
+    /// Every calibration stated as `value`.
+    pub fn all(value: f64) -> Calibration {
+        Calibration {
+            field_rel: Some(value),
+            current_rel: Some(value),
+            voltage_rel: Some(value),
+        }
+    }
+
+    fn entries(&self) -> [(&'static str, Option<f64>, f64); 3] {
+        [
+            (Self::FIELD_PARAMETER, self.field_rel, DEFAULT_FIELD_CALIBRATION_REL),
+            (
+                Self::CURRENT_PARAMETER,
+                self.current_rel,
+                DEFAULT_CURRENT_CALIBRATION_REL,
+            ),
+            (
+                Self::VOLTAGE_PARAMETER,
+                self.voltage_rel,
+                DEFAULT_VOLTAGE_CALIBRATION_REL,
+            ),
+        ]
+    }
 
     /// The first stated value that is not a finite number in [0, 1), by parameter name.
     pub fn invalid(&self) -> Option<(&'static str, f64)> {
-        [
-            (Self::FIELD_PARAMETER, self.field_relative),
-            (Self::RESISTIVITY_PARAMETER, self.resistivity_relative),
-        ]
-        .into_iter()
-        .find_map(|(name, value)| {
+        self.entries().into_iter().find_map(|(name, value, _)| {
             value
                 .filter(|v| !(v.is_finite() && (0.0..1.0).contains(v)))
                 .map(|v| (name, v))
         })
     }
 
+    /// The field, current and voltage uncertainties in use: stated, or the defaults.
+    fn used(&self) -> (f64, f64, f64) {
+        let [field, current, voltage] = self.entries().map(|(_, value, default)| value.unwrap_or(default));
+        (field, current, voltage)
+    }
+
+    /// Relative uncertainty of the resistivity scale: rho is V / I times a geometry that
+    /// the sweep's own values already carry, so sqrt(u_I^2 + u_V^2).
+    pub fn resistivity_relative(&self) -> f64 {
+        let (_, current, voltage) = self.used();
+        current.hypot(voltage)
+    }
+
     /// Relative calibration uncertainty of a density (sheet or volume, or a conductance
-    /// divided by a mobility).
+    /// divided by a mobility): sqrt(u_B^2 + u_R^2).
     pub fn density_relative(&self) -> f64 {
-        self.field_relative
-            .unwrap_or(0.0)
-            .hypot(self.resistivity_relative.unwrap_or(0.0))
+        self.used().0.hypot(self.resistivity_relative())
     }
 
-    /// Relative calibration uncertainty of a mobility.
+    /// Relative calibration uncertainty of a mobility: u_B.
     pub fn mobility_relative(&self) -> f64 {
-        self.field_relative.unwrap_or(0.0)
+        self.used().0
     }
 
-    /// The calibrations the caller did not state, by parameter name.
-    pub fn not_given(&self) -> Vec<&'static str> {
-        let mut names = Vec::new();
-        if self.field_relative.is_none() {
-            names.push(Self::FIELD_PARAMETER);
-        }
-        if self.resistivity_relative.is_none() {
-            names.push(Self::RESISTIVITY_PARAMETER);
-        }
-        names
+    /// The calibrations the caller did not state (their defaults were assumed), by
+    /// parameter name.
+    pub fn not_stated(&self) -> Vec<&'static str> {
+        self.entries()
+            .into_iter()
+            .filter(|(_, value, _)| value.is_none())
+            .map(|(name, _, _)| name)
+            .collect()
     }
 }
 
@@ -246,26 +290,38 @@ mod tests {
     #[test]
     fn calibrations_scale_densities_and_mobilities_as_the_drude_sums_say() {
         // sigma_xx(0) = e n mu and mu B: a field scale moves n and mu by the same relative
-        // amount, a resistivity scale only n (computed from the Drude sums, Beck and
+        // amount, a resistivity scale V / I only n (computed from the Drude sums, Beck and
         // Anderson, J. Appl. Phys. 62, 541, 1987).
         let calibration = Calibration {
-            field_relative: Some(0.003),
-            resistivity_relative: Some(0.004),
+            field_rel: Some(0.003),
+            current_rel: Some(0.0024),
+            voltage_rel: Some(0.0032),
         };
+        assert!((calibration.resistivity_relative() - 0.004).abs() < 1e-15);
         assert!((calibration.density_relative() - 0.005).abs() < 1e-15);
         assert_eq!(calibration.mobility_relative(), 0.003);
-        assert!(calibration.not_given().is_empty());
+        assert!(calibration.not_stated().is_empty());
+        // Not stated: the defaults, listed.
         let none = Calibration::default();
-        assert_eq!(none.density_relative(), 0.0);
+        assert_eq!(none.mobility_relative(), DEFAULT_FIELD_CALIBRATION_REL);
+        let expected = DEFAULT_FIELD_CALIBRATION_REL
+            .hypot(DEFAULT_CURRENT_CALIBRATION_REL)
+            .hypot(DEFAULT_VOLTAGE_CALIBRATION_REL);
+        assert!((none.density_relative() - expected).abs() < 1e-15);
         assert_eq!(
-            none.not_given(),
-            vec!["field_calibration_relative", "resistivity_calibration_relative"]
+            none.not_stated(),
+            vec![
+                "field_calibration_rel",
+                "current_calibration_rel",
+                "voltage_calibration_rel"
+            ]
         );
+        assert_eq!(Calibration::all(0.0).density_relative(), 0.0);
         let bad = Calibration {
-            field_relative: Some(-0.1),
-            resistivity_relative: None,
+            field_rel: Some(-0.1),
+            ..Calibration::default()
         };
-        assert_eq!(bad.invalid(), Some(("field_calibration_relative", -0.1)));
+        assert_eq!(bad.invalid(), Some(("field_calibration_rel", -0.1)));
     }
 
     #[test]

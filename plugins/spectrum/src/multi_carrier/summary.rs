@@ -7,10 +7,11 @@
 //! ratio and the reading reuse factor) and `_unc_sys` (from the stated calibrations), and
 //! `density_m3` likewise when a thickness is given. For the fit: `reduced_chi_square`,
 //! `chi_square_p_value`, `birge_ratio`, `floored_points`, `relative_uncertainty_floor`,
-//! `reading_reuse_factor` and `calibrations_not_given`.
+//! `reading_reuse_factor` and `calibrations_not_stated`.
 
 use serde_json::{json, Map, Value};
 
+use super::budget::{DEFAULT_CURRENT_CALIBRATION_REL, DEFAULT_FIELD_CALIBRATION_REL, DEFAULT_VOLTAGE_CALIBRATION_REL};
 use super::{Calibration, FittedCarrier, MultiCarrierFit, SWEEP_RELATIVE_UNCERTAINTY_FLOOR};
 
 /// The JSON Schema properties of the budget's parameters.
@@ -20,14 +21,29 @@ pub fn schema_properties() -> Map<String, Value> {
         "relative_uncertainty_floor".into(),
         json!({"type": "number", "minimum": 0, "exclusiveMaximum": 0.1, "default": SWEEP_RELATIVE_UNCERTAINTY_FLOOR, "description": "a stated uncertainty of sigma_xx or sigma_xy below this fraction of |sigma(B)| is raised to it, so that no point pins the fit"}),
     );
-    properties.insert(
-        Calibration::FIELD_PARAMETER.into(),
-        json!({"type": "number", "minimum": 0, "exclusiveMaximum": 1, "description": "relative standard uncertainty of the field scale (magnet or Hall-probe calibration), applied once after the fit to densities and mobilities; not stated: not included, and listed in calibrations_not_given"}),
-    );
-    properties.insert(
-        Calibration::RESISTIVITY_PARAMETER.into(),
-        json!({"type": "number", "minimum": 0, "exclusiveMaximum": 1, "description": "relative standard uncertainty of the resistivity scale (current source, voltmeter gain, contact geometry), applied once after the fit to the densities; not stated: not included, and listed in calibrations_not_given"}),
-    );
+    let calibrations = [
+        (
+            Calibration::FIELD_PARAMETER,
+            "the field scale (gaussmeter, magnet constant), applied once after the fit to densities and mobilities",
+            DEFAULT_FIELD_CALIBRATION_REL,
+        ),
+        (
+            Calibration::CURRENT_PARAMETER,
+            "the current source's scale, applied once after the fit to the densities",
+            DEFAULT_CURRENT_CALIBRATION_REL,
+        ),
+        (
+            Calibration::VOLTAGE_PARAMETER,
+            "the voltmeter's gain, applied once after the fit to the densities",
+            DEFAULT_VOLTAGE_CALIBRATION_REL,
+        ),
+    ];
+    for (name, what, default) in calibrations {
+        properties.insert(
+            name.into(),
+            json!({"type": "number", "minimum": 0, "exclusiveMaximum": 1, "description": format!("relative standard uncertainty of {what}; when not stated {default} is assumed (common practice) and calibrations_not_stated says so")}),
+        );
+    }
     properties
 }
 
@@ -72,6 +88,6 @@ pub fn fit_summary(fit: &MultiCarrierFit) -> Map<String, Value> {
         json!(fit.relative_uncertainty_floor),
     );
     summary.insert("reading_reuse_factor".into(), json!(fit.reading_reuse_factor));
-    summary.insert("calibrations_not_given".into(), json!(fit.calibration.not_given()));
+    summary.insert("calibrations_not_stated".into(), json!(fit.calibration.not_stated()));
     summary
 }

@@ -211,8 +211,9 @@ fn multi_carrier_uncertainties_match_the_scatter_of_repeated_fits() {
             .unwrap()
             .fit;
         for (fitted, true_carrier) in fit.carriers.iter().zip(&truth) {
-            let se_n = fitted.sheet_density_unc_m2.unwrap() / fitted.sheet_density_m2;
-            let se_mu = fitted.mobility_unc_m2_per_vs.unwrap() / fitted.mobility_m2_per_vs;
+            // The statistical parts: these sweeps have no calibration error.
+            let se_n = fitted.sheet_density_budget.stat.unwrap() / fitted.sheet_density_m2;
+            let se_mu = fitted.mobility_budget.stat.unwrap() / fitted.mobility_m2_per_vs;
             squares.push(((fitted.sheet_density_m2 / true_carrier.sheet_density_m2).ln() / se_n).powi(2));
             squares.push(((fitted.mobility_m2_per_vs / true_carrier.mobility_m2_per_vs).ln() / se_mu).powi(2));
         }

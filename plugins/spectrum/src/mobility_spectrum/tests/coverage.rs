@@ -94,8 +94,10 @@ fn peak_of<'a>(result: &'a MobilitySpectrum, carrier: &Carrier) -> Option<&'a Pe
 fn coverage_of(truth: &[Carrier], relative_noise: f64, count: usize, seed: u64) -> Vec<(String, Coverage)> {
     let settings = SpectrumSettings {
         calibration: Calibration {
-            field_relative: Some(FIELD_CALIBRATION),
-            resistivity_relative: Some(RESISTIVITY_CALIBRATION),
+            field_rel: Some(FIELD_CALIBRATION),
+            // rho = V / I: the drawn resistivity error is that of the pair, u_R^2 = u_I^2 + u_V^2.
+            current_rel: Some(RESISTIVITY_CALIBRATION / std::f64::consts::SQRT_2),
+            voltage_rel: Some(RESISTIVITY_CALIBRATION / std::f64::consts::SQRT_2),
         },
         // 80 grid mobilities per sign (about 25 per decade over the default range) keep
         // a debug build at about half a second per spectrum.
@@ -190,8 +192,9 @@ fn mobility_spectrum_peak_budget_adds_up() {
     let settings = SpectrumSettings {
         points_per_sign: 80,
         calibration: Calibration {
-            field_relative: Some(3e-3),
-            resistivity_relative: Some(4e-3),
+            field_rel: Some(3e-3),
+            current_rel: Some(2.4e-3),
+            voltage_rel: Some(3.2e-3),
         },
         ..SpectrumSettings::default()
     };
@@ -201,7 +204,7 @@ fn mobility_spectrum_peak_budget_adds_up() {
         "{}",
         result.reading_reuse_factor
     );
-    assert!(result.calibration.not_given().is_empty());
+    assert!(result.calibration.not_stated().is_empty());
     for carrier in &truth {
         let peak = peak_of(&result, carrier).unwrap();
         let n = peak.sheet_density_m2;

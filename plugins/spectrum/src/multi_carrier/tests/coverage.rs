@@ -108,8 +108,10 @@ fn coverage_of(
     let settings = MultiCarrierSettings {
         selection: CarrierSelection::Kinds(kinds),
         calibration: Calibration {
-            field_relative: Some(FIELD_CALIBRATION),
-            resistivity_relative: Some(RESISTIVITY_CALIBRATION),
+            field_rel: Some(FIELD_CALIBRATION),
+            // rho = V / I: the drawn resistivity error is that of the pair, u_R^2 = u_I^2 + u_V^2.
+            current_rel: Some(RESISTIVITY_CALIBRATION / std::f64::consts::SQRT_2),
+            voltage_rel: Some(RESISTIVITY_CALIBRATION / std::f64::consts::SQRT_2),
         },
         // The deterministic starts from the data find these carriers; random ones
         // would only slow the test in a debug build.
@@ -287,24 +289,37 @@ fn multi_carrier_floor_calibrations_and_reading_reuse_are_reported() {
     let pinned_at = pinned[40].field_t;
     // 1 T read through the drawn field calibration (0.1 %).
     assert!((pinned_at - 1.0).abs() < 1e-2 && (pinned[32].field_t + pinned_at).abs() < 1e-12);
-    let settings = given(&[Electron, Hole]);
+    let settings = MultiCarrierSettings {
+        calibration: Calibration::all(0.0),
+        ..given(&[Electron, Hole])
+    };
     let fit = fit_sweep(&pinned, &SymmetrizeSettings::default(), &settings)
         .unwrap()
         .fit;
     assert_eq!(fit.floored_points, 1, "the point at {pinned_at} T");
     assert!(fit.warnings.iter().any(|w| w.contains("relative_uncertainty_floor")));
-    assert_eq!(
-        fit.calibration.not_given(),
-        vec!["field_calibration_relative", "resistivity_calibration_relative"]
-    );
-    // Without calibrations the total is the statistical part alone.
+    // Calibrations stated as exact: the total is the statistical part alone.
+    assert!(fit.calibration.not_stated().is_empty());
     let carrier = &fit.carriers[0];
     assert_eq!(carrier.sheet_density_budget.sys, 0.0);
     assert_eq!(carrier.sheet_density_unc_m2, carrier.sheet_density_budget.stat);
 
+    // Not stated, the calibrations take their defaults and are listed.
+    let settings = given(&[Electron, Hole]);
     let aligned_fit = fit_sweep(&aligned, &SymmetrizeSettings::default(), &settings)
         .unwrap()
         .fit;
+    assert_eq!(
+        aligned_fit.calibration.not_stated(),
+        vec![
+            "field_calibration_rel",
+            "current_calibration_rel",
+            "voltage_calibration_rel"
+        ]
+    );
+    let carrier = &aligned_fit.carriers[0];
+    let relative_sys = carrier.sheet_density_budget.sys / carrier.sheet_density_m2;
+    assert!((relative_sys - Calibration::default().density_relative()).abs() < 1e-12);
     let offset_fit = fit_sweep(&offset, &SymmetrizeSettings::default(), &settings)
         .unwrap()
         .fit;

@@ -5,7 +5,7 @@ use crate::mobility_spectrum::{
     mobility_spectrum_of_sweep, GridRange, RegularizationRule, SpectrumError, SpectrumSettings,
 };
 use crate::multi_carrier::{
-    fit_sweep_monitored, CarrierSelection, InformationCriterion, MultiCarrierError, MultiCarrierSettings,
+    fit_sweep_monitored, Calibration, CarrierSelection, InformationCriterion, MultiCarrierError, MultiCarrierSettings,
 };
 use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType};
 use mobilis_core::forward::tensor::CarrierKind;
@@ -50,6 +50,14 @@ pub struct MultiCarrierParams {
     random_starts: Option<usize>,
     #[serde(default)]
     seed: Option<u64>,
+    #[serde(default)]
+    relative_uncertainty_floor: Option<f64>,
+    #[serde(default)]
+    field_calibration_rel: Option<f64>,
+    #[serde(default)]
+    current_calibration_rel: Option<f64>,
+    #[serde(default)]
+    voltage_calibration_rel: Option<f64>,
 }
 
 impl Analysis for MultiCarrierFitAnalysis {
@@ -68,6 +76,7 @@ impl Analysis for MultiCarrierFitAnalysis {
             "seed".into(),
             json!({"type": "integer", "minimum": 0, "default": 1, "description": "seed of the random starts"}),
         );
+        properties.extend(crate::multi_carrier::summary::schema_properties());
         AnalysisDeclaration {
             name: String::new(),
             summary: "Sheet density and mobility of each carrier from the field dependence of sigma_xx and sigma_xy (discrete multi-carrier fit)".into(),
@@ -116,6 +125,14 @@ impl Analysis for MultiCarrierFitAnalysis {
         if let Some(seed) = params.seed {
             settings.seed = seed;
         }
+        if let Some(floor) = params.relative_uncertainty_floor {
+            settings.relative_uncertainty_floor = floor;
+        }
+        settings.calibration = Calibration {
+            field_rel: params.field_calibration_rel,
+            current_rel: params.current_calibration_rel,
+            voltage_rel: params.voltage_calibration_rel,
+        };
         let result =
             fit_sweep_monitored(&points, &params.sweep.settings(), &settings, host).map_err(|error| match error {
                 MultiCarrierError::Cancelled => AnalysisError::Cancelled,
@@ -147,23 +164,7 @@ impl Analysis for MultiCarrierFitAnalysis {
         let carriers: Vec<Value> = fit
             .carriers
             .iter()
-            .map(|c| {
-                let mut carrier = json!({
-                    "carrier_type": carrier_type(c.kind),
-                    "sheet_density_m2": c.sheet_density_m2,
-                    "sheet_density_m2_unc": c.sheet_density_unc_m2,
-                    "mobility_m2_per_Vs": c.mobility_m2_per_vs,
-                    "mobility_m2_per_Vs_unc": c.mobility_unc_m2_per_vs,
-                    "sheet_conductance_S": c.sheet_conductance_s,
-                    "mobility_field_product": c.mobility_field_product,
-                    "at_bound": c.at_bound,
-                });
-                if let Some(t) = params.thickness_m {
-                    carrier["density_m3"] = json!(c.sheet_density_m2 / t);
-                    carrier["density_m3_unc"] = json!(c.sheet_density_unc_m2.map(|u| u / t));
-                }
-                carrier
-            })
+            .map(|c| crate::multi_carrier::summary::carrier_summary(c, params.thickness_m))
             .collect();
         let mut output = AnalysisOutput::new(table);
         let summary = &mut output.summary;
@@ -176,7 +177,7 @@ impl Analysis for MultiCarrierFitAnalysis {
         summary.insert("score".into(), json!(fit.score));
         summary.insert("chi_square".into(), json!(fit.chi_square));
         summary.insert("degrees_of_freedom".into(), json!(fit.degrees_of_freedom));
-        summary.insert("reduced_chi_square".into(), json!(fit.reduced_chi_square));
+        summary.extend(crate::multi_carrier::summary::fit_summary(fit));
         summary.insert("weighted".into(), json!(fit.weighted));
         summary.insert("max_field_T".into(), json!(fit.max_field_t));
         summary.insert(
@@ -202,6 +203,10 @@ impl Analysis for MultiCarrierFitAnalysis {
         summary.insert(
             "max_rho_xy_asymmetry".into(),
             json!(result.symmetrized.max_rho_xy_asymmetry),
+        );
+        summary.insert(
+            "max_interpolation_correction".into(),
+            json!(result.max_interpolation_correction),
         );
         output.warnings = fit.warnings.clone();
         host.progress(1.0, "done");
@@ -232,6 +237,14 @@ pub struct SpectrumParams {
     peak_threshold: Option<f64>,
     #[serde(default)]
     uncertainty_replicas: Option<usize>,
+    #[serde(default)]
+    relative_uncertainty_floor: Option<f64>,
+    #[serde(default)]
+    field_calibration_rel: Option<f64>,
+    #[serde(default)]
+    current_calibration_rel: Option<f64>,
+    #[serde(default)]
+    voltage_calibration_rel: Option<f64>,
 }
 
 impl Analysis for MobilitySpectrumAnalysis {
@@ -250,6 +263,7 @@ impl Analysis for MobilitySpectrumAnalysis {
         properties.insert("regularization_strength".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "the dimensionless strength for regularization: fixed"}));
         properties.insert("peak_threshold".into(), json!({"type": "number", "exclusiveMinimum": 0, "exclusiveMaximum": 1, "default": defaults.peak_threshold, "description": "a local maximum is a peak above this fraction of the largest spectrum value"}));
         properties.insert("uncertainty_replicas".into(), json!({"type": "integer", "minimum": 0, "maximum": 1000, "default": defaults.uncertainty_replicas, "description": "bootstrap replicas for the peaks' uncertainties (0: none)"}));
+        properties.extend(crate::multi_carrier::summary::schema_properties());
         AnalysisDeclaration {
             name: String::new(),
             summary: "Mobility spectrum of electrons and holes: the Beck-Anderson envelope and a regularized non-negative spectrum with its peaks integrated into sheet densities and mobilities".into(),
@@ -312,6 +326,14 @@ impl Analysis for MobilitySpectrumAnalysis {
         if let Some(replicas) = params.uncertainty_replicas {
             settings.uncertainty_replicas = replicas;
         }
+        if let Some(floor) = params.relative_uncertainty_floor {
+            settings.relative_uncertainty_floor = floor;
+        }
+        settings.calibration = Calibration {
+            field_rel: params.field_calibration_rel,
+            current_rel: params.current_calibration_rel,
+            voltage_rel: params.voltage_calibration_rel,
+        };
         let spectrum = mobility_spectrum_of_sweep(&points, &params.sweep.settings(), &settings, host).map_err(
             |error| match error {
                 SpectrumError::Cancelled => AnalysisError::Cancelled,
@@ -333,28 +355,10 @@ impl Analysis for MobilitySpectrumAnalysis {
             ],
         )
         .map_err(|e| AnalysisError::Numerical(e.to_string()))?;
-        let finite = |v: f64| v.is_finite().then_some(v);
         let peaks: Vec<Value> = spectrum
             .peaks
             .iter()
-            .map(|p| {
-                let mut peak = json!({
-                    "carrier_type": carrier_type(p.carrier),
-                    "sheet_density_m2": p.sheet_density_m2,
-                    "sheet_density_m2_unc": finite(p.sheet_density_unc_m2),
-                    "mobility_m2_per_Vs": p.mobility_m2_per_vs,
-                    "mobility_m2_per_Vs_unc": finite(p.mobility_unc_m2_per_vs),
-                    "peak_mobility_m2_per_Vs": p.peak_mobility_m2_per_vs,
-                    "conductance_S": p.conductance_s,
-                    "conductance_fraction": p.conductance_fraction,
-                    "at_grid_edge": p.at_grid_edge,
-                    "within_field_window": p.within_field_window,
-                });
-                if let Some(t) = params.thickness_m {
-                    peak["density_m3"] = json!(p.sheet_density_m2 / t);
-                }
-                peak
-            })
+            .map(|p| crate::mobility_spectrum::summary::peak_summary(p, params.thickness_m))
             .collect();
         let mut output = AnalysisOutput::new(table);
         let summary = &mut output.summary;
@@ -367,6 +371,7 @@ impl Analysis for MobilitySpectrumAnalysis {
         summary.insert("chi_square".into(), json!(spectrum.regularization.chi_square));
         summary.insert("data_count".into(), json!(spectrum.regularization.data_count));
         summary.insert("total_conductance_S".into(), json!(spectrum.total_conductance_s));
+        summary.extend(crate::mobility_spectrum::summary::spectrum_summary(&spectrum));
         output.warnings = spectrum.warnings.clone();
         Ok(output)
     }

@@ -26,6 +26,9 @@
 //!    sigma_xx and sigma_xy with their propagated uncertainties and correlation;
 //!    [`fit_carriers`] takes the conductivity points directly. Every value must be finite,
 //!    sigma_xx > 0, uncertainties on all points or none, and some point must be in field.
+//!    After a first fit, [`fit_sweep`] removes from the symmetrized data the error of the
+//!    linear interpolation between field points, computed on the fitted model (the
+//!    `interpolation` submodule), and fits again from the first fit's carriers.
 //! 2. **Residuals.** Two per field, (model - data) of sigma_xx and sigma_xy jointly, whitened
 //!    by the point's 2 x 2 covariance (uncertainties and correlation), so that the sum of
 //!    squares is the generalized chi-square. At B = 0 only sigma_xx enters: sigma_xy vanishes
@@ -58,9 +61,18 @@
 //!    AICc (Hurvich and Tsai, Biometrika 76, 297, 1989), AIC + 2k(k + 1) / (m - k - 1), is the
 //!    alternative. A chi-square below rounding (noise-free data) is floored at m eps^2 so
 //!    that the logarithm stays finite.
-//! 6. **Uncertainties.** From the covariance of the best run, (J^T J)^-1 at the minimum
+//! 6. **Uncertainties** (the budget of JCGM 100:2008, the GUM; see the `budget` submodule).
+//!    Statistical part: from the covariance of the best run, (J^T J)^-1 at the minimum
 //!    (times chi^2 / nu without uncertainties), in ln n and ln mu; the standard uncertainty
-//!    reported for n is n times that of ln n (first order), likewise for mu. A parameter that
+//!    reported for n is n times that of ln n (first order), likewise for mu. With stated
+//!    uncertainties, a chi^2 / nu above 1 widens it by the Birge ratio sqrt(chi^2 / nu)
+//!    (R. T. Birge, Phys. Rev. 40, 207, 1932; the Particle Data Group's practice), never
+//!    narrows it; a symmetrized grid that holds each reading more than once widens it by the
+//!    square root of the reading reuse factor. Calibration part: the stated field and
+//!    resistivity scale uncertainties ([`Calibration`]), applied once after the fit as the
+//!    relative uncertainties they give n and mu. The total is their quadrature sum. Before
+//!    the fit, a stated uncertainty below `relative_uncertainty_floor` |sigma(B)| is raised
+//!    to it, so that no point pins the fit. A parameter that
 //!    ends on its bound has no uncertainty (the curvature says nothing about a one-sided
 //!    minimum) and raises a warning. A best minimum whose parameters the data do not
 //!    determine (singular Jacobian) is refused with [`MultiCarrierError::Indistinguishable`].
@@ -69,9 +81,10 @@
 //!    B, and two such carriers add up to what one carrier gives, so the field range does not
 //!    distinguish them. Warned: every such pair; each such carrier of a multi-carrier fit
 //!    whose density or mobility is uncertain by more than 10 %; parameters on their bounds;
-//!    a chi-square per degree of freedom above 1 + 4 sqrt(2 / nu) when the uncertainties are
-//!    given (more than the noise explains: a missing carrier, a field-dependent mobility, or
-//!    underestimated uncertainties); an automatic selection still improving at the largest N
+//!    a chi-square p-value below 1e-3 when the uncertainties are given (more than the noise
+//!    explains: a missing carrier, a field-dependent mobility, or underestimated
+//!    uncertainties), naming the worst points by component and field and the parameters
+//!    that set the weights; points raised to the floor; an automatic selection still improving at the largest N
 //!    allowed; and a best minimum that only one of several converged starts reached
 //!    (carriers of one kind compared in mobility order, since their labels are arbitrary).
 //!
@@ -80,17 +93,21 @@
 //! ([`MultiCarrierFit::curve`]) and the model on any field grid
 //! ([`MultiCarrierFit::model_curve`]), ready to plot.
 
+pub mod budget;
 mod error;
+mod interpolation;
 mod model;
 mod seeds;
+pub mod summary;
 #[cfg(test)]
 mod tests;
 
+pub use budget::{Budget, Calibration, SWEEP_RELATIVE_UNCERTAINTY_FLOOR};
 pub use error::MultiCarrierError;
 pub use mobilis_core::forward::tensor::{Carrier, CarrierKind};
 pub use mobilis_core::sweep::{SweepPoint, SymmetrizeSettings, Symmetrized, TensorPoint, TensorUncertainty};
 
-use mobilis_core::fit::{Bounds, LeastSquares, LmOptions, MultiStartFit, SameMinimum};
+use mobilis_core::fit::{Bounds, FitQuality, LeastSquares, LmOptions, MultiStartFit, SameMinimum};
 use mobilis_core::forward::tensor::sum_conductivity;
 use mobilis_core::linalg::Matrix;
 use mobilis_core::noise::Rng;
@@ -183,6 +200,13 @@ pub struct MultiCarrierSettings {
     pub sheet_density_bounds_m2: (f64, f64),
     /// Iterations per start. Default 300.
     pub max_iterations: usize,
+    /// A stated component uncertainty below this fraction of |sigma(B)| is raised to it, so
+    /// that no point pins the fit. Default [`SWEEP_RELATIVE_UNCERTAINTY_FLOOR`] (1e-5; the
+    /// `budget` submodule says why it is below the temperature series' 1e-3).
+    pub relative_uncertainty_floor: f64,
+    /// Stated scale calibrations of the sweep, applied once after the fit. Default: none
+    /// stated, the defaults of the `budget` submodule assumed.
+    pub calibration: Calibration,
 }
 
 impl Default for MultiCarrierSettings {
@@ -196,6 +220,8 @@ impl Default for MultiCarrierSettings {
             mobility_bounds_m2_per_vs: (1e-5, 1e4),
             sheet_density_bounds_m2: (1e6, 1e26),
             max_iterations: 300,
+            relative_uncertainty_floor: SWEEP_RELATIVE_UNCERTAINTY_FLOOR,
+            calibration: Calibration::default(),
         }
     }
 }
@@ -205,11 +231,15 @@ impl Default for MultiCarrierSettings {
 pub struct FittedCarrier {
     pub kind: CarrierKind,
     pub sheet_density_m2: f64,
-    /// Standard uncertainty; `None` when the density ended on its bound.
+    /// Total standard uncertainty (statistical and calibration in quadrature); `None` when
+    /// the density ended on its bound.
     pub sheet_density_unc_m2: Option<f64>,
+    /// Its statistical and calibration parts.
+    pub sheet_density_budget: Budget,
     pub mobility_m2_per_vs: f64,
-    /// Standard uncertainty; `None` when the mobility ended on its bound.
+    /// Total standard uncertainty; `None` when the mobility ended on its bound.
     pub mobility_unc_m2_per_vs: Option<f64>,
+    pub mobility_budget: Budget,
     /// Zero-field sheet conductance e n mu, S.
     pub sheet_conductance_s: f64,
     /// mu B_max: below 1 the sweep does not reach this carrier's magnetoresistance.
@@ -283,6 +313,22 @@ pub struct MultiCarrierFit {
     /// chi^2 / nu; without uncertainties, the square of the relative scatter of the data
     /// about the fit.
     pub reduced_chi_square: f64,
+    /// P(chi^2_nu >= chi^2): `None` without uncertainties, where the noise scale is
+    /// estimated from the same residuals and chi-square tests nothing.
+    pub chi_square_p_value: Option<f64>,
+    /// The factor the statistical uncertainties were multiplied by: sqrt(chi^2 / nu) when
+    /// the weighted fit is worse than its uncertainties allow (Birge 1932), else 1.
+    pub birge_ratio: f64,
+    /// Points whose stated uncertainty was raised to the floor.
+    pub floored_points: usize,
+    /// How many times over the symmetrized grid counts the readings (1 for conductivity
+    /// points given directly); the statistical variances are multiplied by it (see the
+    /// `budget` submodule).
+    pub reading_reuse_factor: f64,
+    /// The floor applied (relative to |sigma(B)|).
+    pub relative_uncertainty_floor: f64,
+    /// The calibrations applied after the fit.
+    pub calibration: Calibration,
     pub residual_count: usize,
     /// The data carried uncertainties.
     pub weighted: bool,
@@ -331,6 +377,9 @@ impl MultiCarrierFit {
 pub struct SweepFit {
     pub symmetrized: Symmetrized,
     pub fit: MultiCarrierFit,
+    /// The largest correction of the interpolation between field points, relative to
+    /// |rho(B)|, that the second pass applied (0 when the branches needed none).
+    pub max_interpolation_correction: f64,
 }
 
 /// Symmetrizes a sweep, converts it to the conductivity tensor and fits it.
@@ -350,8 +399,44 @@ pub fn fit_sweep_monitored(
     monitor: &dyn Monitor,
 ) -> Result<SweepFit, MultiCarrierError> {
     let symmetrized = symmetrize(points, sweep_settings)?;
-    let fit = fit_carriers_monitored(&conductivity_points(&symmetrized), settings, monitor)?;
-    Ok(SweepFit { symmetrized, fit })
+    let reuse = budget::reading_reuse_factor(points, sweep_settings, &symmetrized);
+    let first = fit_points(&conductivity_points(&symmetrized), settings, monitor, reuse)?;
+    let Some((corrected, max_interpolation_correction)) =
+        interpolation::corrected(points, sweep_settings, &symmetrized, &first.model_carriers())
+    else {
+        return Ok(SweepFit {
+            symmetrized,
+            fit: first,
+            max_interpolation_correction: 0.0,
+        });
+    };
+    // The second pass starts from the first's carriers; the carrier list stays the one the
+    // first pass chose, with its candidates and score.
+    let refine = MultiCarrierSettings {
+        selection: CarrierSelection::Guess(first.model_carriers()),
+        random_starts: 0,
+        ..settings.clone()
+    };
+    let mut fit = fit_points(&corrected, &refine, monitor, reuse)?;
+    // The choice of carriers and the search for the best minimum were the first pass's:
+    // its candidates, score and starts stand, and so do its warnings about them. The
+    // warnings about the fit itself come from the second pass.
+    fit.candidates = first.candidates;
+    fit.score = first.score;
+    fit.criterion = first.criterion;
+    fit.starts = first.starts;
+    fit.starts_converged = first.starts_converged;
+    fit.starts_at_minimum = first.starts_at_minimum;
+    let about_the_search =
+        |w: &String| w.contains("max_carriers") || w.contains("residuals allow") || w.contains("converged starts");
+    fit.warnings.retain(|w| !about_the_search(w));
+    fit.warnings
+        .extend(first.warnings.into_iter().filter(|w| about_the_search(w)));
+    Ok(SweepFit {
+        symmetrized,
+        fit,
+        max_interpolation_correction,
+    })
 }
 
 /// One fitted carrier list.
@@ -381,6 +466,22 @@ fn validate_settings(settings: &MultiCarrierSettings) -> Result<LogBounds, Multi
             name: "min_criterion_improvement",
             value: settings.min_criterion_improvement,
             requirement: "give a finite value of 0 or more",
+        });
+    }
+    let floor = settings.relative_uncertainty_floor;
+    if !(floor.is_finite() && (0.0..0.1).contains(&floor)) {
+        return Err(MultiCarrierError::InvalidSetting {
+            name: "relative_uncertainty_floor",
+            value: floor,
+            requirement: "give a relative uncertainty of 0 or more and below 0.1 (1e-5 is the default)",
+        });
+    }
+    if let Some((name, value)) = settings.calibration.invalid() {
+        return Err(MultiCarrierError::InvalidSetting {
+            name,
+            value,
+            requirement:
+                "give a relative standard uncertainty of 0 or more and below 1 (0.002 is 0.2 %), or leave it out",
         });
     }
     if settings.max_iterations == 0 {
@@ -496,7 +597,20 @@ pub fn fit_carriers_monitored(
     settings: &MultiCarrierSettings,
     monitor: &dyn Monitor,
 ) -> Result<MultiCarrierFit, MultiCarrierError> {
+    fit_points(points, settings, monitor, 1.0)
+}
+
+/// The fit of independent conductivity points, or of a symmetrized grid whose points count
+/// the readings `reading_reuse_factor` times over (see the `budget` submodule).
+fn fit_points(
+    points: &[TensorPoint],
+    settings: &MultiCarrierSettings,
+    monitor: &dyn Monitor,
+    reading_reuse_factor: f64,
+) -> Result<MultiCarrierFit, MultiCarrierError> {
     let bounds = validate_settings(settings)?;
+    let (floored, floored_points) = budget::floor_uncertainties(points, settings.relative_uncertainty_floor);
+    let points = floored.as_slice();
     let data = Data::new(points)?;
     let too_few = |carriers: usize| MultiCarrierError::TooFewPoints {
         points: points.len(),
@@ -592,7 +706,11 @@ pub fn fit_carriers_monitored(
             best
         }
     };
-    Ok(finish(&data, points, chosen, candidates, warnings, settings))
+    let counts = Counts {
+        floored_points,
+        reading_reuse_factor,
+    };
+    Ok(finish(&data, points, chosen, candidates, warnings, settings, counts))
 }
 
 /// Relative standard uncertainty above which a carrier with mu B_max < 1 gets a warning of
@@ -618,6 +736,25 @@ fn starts_at_best_minimum(kinds: &[CarrierKind], run: &MultiStartFit) -> usize {
     })
 }
 
+/// Bookkeeping of the data passed on to [`finish`].
+struct Counts {
+    floored_points: usize,
+    reading_reuse_factor: f64,
+}
+
+/// What each whitened residual is, for warnings: "sigma_xx at B = 2.5 T". The second
+/// residual of a point is sigma_xy after its correlation with sigma_xx is removed.
+fn residual_labels(data: &Data) -> Vec<String> {
+    let mut labels = Vec::with_capacity(data.residual_count);
+    for (k, &field) in data.fields_t.iter().enumerate() {
+        labels.push(format!("sigma_xx at B = {field:.4} T (point {k})"));
+        if data.whitening[k].count() == 2 {
+            labels.push(format!("sigma_xy at B = {field:.4} T (point {k})"));
+        }
+    }
+    labels
+}
+
 /// Orders the carriers, computes uncertainties, the curve and the warnings.
 fn finish(
     data: &Data,
@@ -626,10 +763,22 @@ fn finish(
     candidates: Vec<Candidate>,
     mut warnings: Vec<String>,
     settings: &MultiCarrierSettings,
+    counts: Counts,
 ) -> MultiCarrierFit {
+    let Counts {
+        floored_points,
+        reading_reuse_factor,
+    } = counts;
     let CandidateFit { kinds, run, score } = chosen;
     let best = &run.best;
     let n = kinds.len();
+    // With stated uncertainties the covariance is (J^T J)^-1 as it stands; when chi^2 / nu
+    // exceeds 1 it is widened by the Birge ratio (never narrowed). Without them the solver
+    // already scaled it by the estimated noise, and chi-square has nothing left to test.
+    let quality = FitQuality::assess(best.chi_square, best.degrees_of_freedom);
+    let birge_ratio = if data.weighted { quality.birge_ratio } else { 1.0 };
+    let statistical_scale = birge_ratio * reading_reuse_factor.max(1.0).sqrt();
+    let calibration = settings.calibration;
     let mut order: Vec<usize> = (0..n).collect();
     order.sort_by(|&a, &b| {
         kinds[a]
@@ -641,7 +790,7 @@ fn finish(
     let correlation = Matrix::from_fn(2 * n, 2 * n, |i, j| {
         correlation_raw[(parameter_index(i), parameter_index(j))]
     });
-    let unc = |value: f64, se: f64| (se.is_finite()).then_some(value * se);
+    let stat = |value: f64, se: f64| (se.is_finite()).then_some(value * se * statistical_scale);
     let carriers: Vec<FittedCarrier> = order
         .iter()
         .map(|&i| {
@@ -652,12 +801,24 @@ fn finish(
                 sheet_density_m2: density,
                 mobility_m2_per_vs: mobility,
             };
+            let sheet_density_budget = Budget::new(
+                density,
+                stat(density, best.standard_errors[2 * i]),
+                calibration.density_relative(),
+            );
+            let mobility_budget = Budget::new(
+                mobility,
+                stat(mobility, best.standard_errors[2 * i + 1]),
+                calibration.mobility_relative(),
+            );
             FittedCarrier {
                 kind: kinds[i],
                 sheet_density_m2: density,
-                sheet_density_unc_m2: unc(density, best.standard_errors[2 * i]),
+                sheet_density_unc_m2: sheet_density_budget.total(),
+                sheet_density_budget,
                 mobility_m2_per_vs: mobility,
-                mobility_unc_m2_per_vs: unc(mobility, best.standard_errors[2 * i + 1]),
+                mobility_unc_m2_per_vs: mobility_budget.total(),
+                mobility_budget,
                 sheet_conductance_s: carrier.sheet_conductance_s(),
                 mobility_field_product: mobility * data.max_field_t,
                 at_bound: best.at_bound[2 * i] || best.at_bound[2 * i + 1],
@@ -742,14 +903,21 @@ fn finish(
             ));
         }
     }
-    if data.weighted && best.degrees_of_freedom > 0 {
-        let nu = best.degrees_of_freedom as f64;
-        if best.reduced_chi_square > 1.0 + 4.0 * (2.0 / nu).sqrt() {
+    if data.weighted {
+        let describe = residual_labels(data);
+        if let Some(warning) = quality.warning(&best.residuals, |i| describe[i].clone()) {
             warnings.push(format!(
-                "chi-square per degree of freedom is {:.3}, more than the uncertainties explain: a carrier may be missing, a mobility may depend on field, or the uncertainties are underestimated",
-                best.reduced_chi_square
+                "{warning}; a carrier may be missing or a mobility may depend on field, or the stated uncertainties (the sweep's rho_xx_ohm_sq_unc and rho_xy_ohm_unc, raised to relative_uncertainty_floor = {:.1e} of |sigma|) are too small",
+                settings.relative_uncertainty_floor
             ));
         }
+    }
+    if floored_points > 0 {
+        warnings.push(format!(
+            "{floored_points} of {} points had a stated uncertainty below relative_uncertainty_floor = {:.1e} of |sigma(B)| and were raised to it, so that no point pins the fit; lower relative_uncertainty_floor if the instrument really resolves that finely",
+            points.len(),
+            settings.relative_uncertainty_floor
+        ));
     }
     let starts_at_minimum = starts_at_best_minimum(&kinds, &run);
     if run.converged > 1 && starts_at_minimum == 1 {
@@ -764,6 +932,12 @@ fn finish(
         chi_square: best.chi_square,
         degrees_of_freedom: best.degrees_of_freedom,
         reduced_chi_square: best.reduced_chi_square,
+        chi_square_p_value: (data.weighted && quality.p_value.is_finite()).then_some(quality.p_value),
+        birge_ratio,
+        floored_points,
+        reading_reuse_factor: reading_reuse_factor.max(1.0),
+        relative_uncertainty_floor: settings.relative_uncertainty_floor,
+        calibration,
         residual_count: data.residual_count,
         weighted: data.weighted,
         criterion: settings.criterion,

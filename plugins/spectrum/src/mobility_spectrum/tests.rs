@@ -2,7 +2,8 @@
 //! closed forms, bad input, cancellation and the benchmark case.
 //!
 //! Every synthetic sweep comes from `mobilis_core::forward::tensor` (the Drude sums of
-//! Beck and Anderson, J. Appl. Phys. 62, 541, 1987, checked there against the check values)
+//! Beck and Anderson, J. Appl. Phys. 62, 541, 1987, tested there against values computed
+//! from those sums)
 //! and goes through the same symmetrization and tensor inversion as measured data.
 
 use std::cell::{Cell, RefCell};
@@ -16,6 +17,8 @@ use mobilis_core::forward::tensor::{
 };
 use mobilis_core::sdk::AnalysisError;
 use mobilis_core::sweep::SweepError;
+
+mod coverage;
 
 /// A synthetic sweep of `carriers` from -`max_field_t` to +`max_field_t` with `steps`
 /// fields per sign and Gaussian noise of `relative` |rho| plus a floor of a tenth of that at

@@ -1,4 +1,4 @@
-//! Tests of the `multi_carrier` module: published check values, recovery from forward-generated data, and bad input.
+//! Tests of the `multi_carrier` module: published values, recovery from forward-generated data, coverage of the uncertainties, and bad input.
 
 use super::*;
 use mobilis_core::forward::tensor::{
@@ -6,6 +6,7 @@ use mobilis_core::forward::tensor::{
 };
 use mobilis_core::sweep::{conductivity_point, SweepError};
 
+mod coverage;
 mod recovery;
 
 fn close(actual: f64, expected: f64, relative: f64) -> bool {
@@ -53,13 +54,15 @@ fn given(kinds: &[CarrierKind]) -> MultiCarrierSettings {
 
 use CarrierKind::{Electron, Hole};
 
-// Computed from the Beck and Anderson sums (check-values, "Multi-carrier conductivity"):
+// Computed from the Drude sums of Beck and Anderson (J. Appl. Phys. 62, 541, 1987) with the
+// CODATA 2018 elementary charge (sigma_0 = e (n mu_n + p mu_p) = 320.4 S/m, so rho_0 =
+// 1 / sigma_0):
 // electrons 1e16 cm^-3 at 1000 cm^2/Vs plus holes 1e17 cm^-3 at 100 cm^2/Vs give rho_0 =
 // 3.1207545e-3 ohm m, and at 1 T rho_xx 3.1301757e-3, rho_xy -1.4001000e-4, at 10 T
 // 3.9058092e-3, -1.0510649e-3. Fitting those five numbers (as sheet values of a 1 um layer)
 // must return the two carriers: 1e16 m^-2 at 0.1 m^2/(V s) and 1e17 m^-2 at 0.01.
 #[test]
-fn multi_carrier_fit_of_the_check_value_tensor_returns_its_carriers() {
+fn multi_carrier_fit_of_a_computed_two_carrier_tensor_returns_its_carriers() {
     let t = 1e-6;
     let sheet = |rho: f64| rho / t;
     let sweep = [
@@ -75,7 +78,7 @@ fn multi_carrier_fit_of_the_check_value_tensor_returns_its_carriers() {
     assert_eq!(fit.residual_count, 5);
     let (electrons, holes) = (&fit.carriers[0], &fit.carriers[1]);
     assert_eq!((electrons.kind, holes.kind), (Electron, Hole));
-    // The check values carry 8 digits, so the carriers come back to about 1e-6.
+    // The values carry 8 digits, so the carriers come back to about 1e-6.
     assert!(close(electrons.sheet_density_m2, 1e16, 2e-5), "{electrons:?}");
     assert!(close(electrons.mobility_m2_per_vs, 0.1, 2e-5), "{electrons:?}");
     assert!(close(holes.sheet_density_m2, 1e17, 2e-5), "{holes:?}");
@@ -83,8 +86,9 @@ fn multi_carrier_fit_of_the_check_value_tensor_returns_its_carriers() {
     assert!(fit.reduced_chi_square < 1e-10, "{}", fit.reduced_chi_square);
 }
 
-// "One carrier alone gives no magnetoresistance" (check-values, from the Beck and Anderson
-// sums): exact one-carrier data are fitted by one carrier, automatic selection stops there,
+// One carrier alone gives no magnetoresistance: rho_xx = 1 / (e n mu) at every field, the
+// Drude result (N. W. Ashcroft and N. D. Mermin, Solid State Physics, 1976, ch. 1, from
+// memory; it follows from the Beck and Anderson sums with one term): exact one-carrier data are fitted by one carrier, automatic selection stops there,
 // and the fitted rho_xx is flat in field.
 #[test]
 fn multi_carrier_one_carrier_data_give_one_carrier_and_no_magnetoresistance() {
@@ -207,8 +211,9 @@ fn multi_carrier_uncertainties_match_the_scatter_of_repeated_fits() {
             .unwrap()
             .fit;
         for (fitted, true_carrier) in fit.carriers.iter().zip(&truth) {
-            let se_n = fitted.sheet_density_unc_m2.unwrap() / fitted.sheet_density_m2;
-            let se_mu = fitted.mobility_unc_m2_per_vs.unwrap() / fitted.mobility_m2_per_vs;
+            // The statistical parts: these sweeps have no calibration error.
+            let se_n = fitted.sheet_density_budget.stat.unwrap() / fitted.sheet_density_m2;
+            let se_mu = fitted.mobility_budget.stat.unwrap() / fitted.mobility_m2_per_vs;
             squares.push(((fitted.sheet_density_m2 / true_carrier.sheet_density_m2).ln() / se_n).powi(2));
             squares.push(((fitted.mobility_m2_per_vs / true_carrier.mobility_m2_per_vs).ln() / se_mu).powi(2));
         }

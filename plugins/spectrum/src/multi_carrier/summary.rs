@@ -1,0 +1,93 @@
+//! The summary entries of `spectrum.multi_carrier_fit` that carry the uncertainty budget
+//! and the fit diagnostics, kept beside the physics they describe so that the table glue
+//! in `analyses.rs` only places them.
+//!
+//! Per carrier: `sheet_density_m2` and `mobility_m2_per_Vs` with `_unc` (the total
+//! standard uncertainty), `_unc_stat` (from the scatter of the sweep, widened by the Birge
+//! ratio and the reading reuse factor) and `_unc_sys` (from the stated calibrations), and
+//! `density_m3` likewise when a thickness is given. For the fit: `reduced_chi_square`,
+//! `chi_square_p_value`, `birge_ratio`, `floored_points`, `relative_uncertainty_floor`,
+//! `reading_reuse_factor` and `calibrations_not_stated`.
+
+use serde_json::{json, Map, Value};
+
+use super::budget::{DEFAULT_CURRENT_CALIBRATION_REL, DEFAULT_FIELD_CALIBRATION_REL, DEFAULT_VOLTAGE_CALIBRATION_REL};
+use super::{Calibration, FittedCarrier, MultiCarrierFit, SWEEP_RELATIVE_UNCERTAINTY_FLOOR};
+
+/// The JSON Schema properties of the budget's parameters.
+pub fn schema_properties() -> Map<String, Value> {
+    let mut properties = Map::new();
+    properties.insert(
+        "relative_uncertainty_floor".into(),
+        json!({"type": "number", "minimum": 0, "exclusiveMaximum": 0.1, "default": SWEEP_RELATIVE_UNCERTAINTY_FLOOR, "description": "a stated uncertainty of sigma_xx or sigma_xy below this fraction of |sigma(B)| is raised to it, so that no point pins the fit"}),
+    );
+    let calibrations = [
+        (
+            Calibration::FIELD_PARAMETER,
+            "the field scale (gaussmeter, magnet constant), applied once after the fit to densities and mobilities",
+            DEFAULT_FIELD_CALIBRATION_REL,
+        ),
+        (
+            Calibration::CURRENT_PARAMETER,
+            "the current source's scale, applied once after the fit to the densities",
+            DEFAULT_CURRENT_CALIBRATION_REL,
+        ),
+        (
+            Calibration::VOLTAGE_PARAMETER,
+            "the voltmeter's gain, applied once after the fit to the densities",
+            DEFAULT_VOLTAGE_CALIBRATION_REL,
+        ),
+    ];
+    for (name, what, default) in calibrations {
+        properties.insert(
+            name.into(),
+            json!({"type": "number", "minimum": 0, "exclusiveMaximum": 1, "description": format!("relative standard uncertainty of {what}; when not stated {default} is assumed (common practice) and calibrations_not_stated says so")}),
+        );
+    }
+    properties
+}
+
+/// One carrier's summary entry. `thickness_m` adds the volume density (the thickness
+/// taken as exact: it is the user's model of where the carriers live).
+pub fn carrier_summary(carrier: &FittedCarrier, thickness_m: Option<f64>) -> Value {
+    let density = &carrier.sheet_density_budget;
+    let mobility = &carrier.mobility_budget;
+    let mut entry = json!({
+        "carrier_type": carrier.kind.code(),
+        "sheet_density_m2": carrier.sheet_density_m2,
+        "sheet_density_m2_unc": carrier.sheet_density_unc_m2,
+        "sheet_density_m2_unc_stat": density.stat,
+        "sheet_density_m2_unc_sys": density.sys,
+        "mobility_m2_per_Vs": carrier.mobility_m2_per_vs,
+        "mobility_m2_per_Vs_unc": carrier.mobility_unc_m2_per_vs,
+        "mobility_m2_per_Vs_unc_stat": mobility.stat,
+        "mobility_m2_per_Vs_unc_sys": mobility.sys,
+        "sheet_conductance_S": carrier.sheet_conductance_s,
+        "mobility_field_product": carrier.mobility_field_product,
+        "at_bound": carrier.at_bound,
+    });
+    if let Some(t) = thickness_m {
+        entry["density_m3"] = json!(carrier.sheet_density_m2 / t);
+        entry["density_m3_unc"] = json!(carrier.sheet_density_unc_m2.map(|u| u / t));
+        entry["density_m3_unc_stat"] = json!(density.stat.map(|u| u / t));
+        entry["density_m3_unc_sys"] = json!(density.sys / t);
+    }
+    entry
+}
+
+/// The fit's diagnostics and budget entries.
+pub fn fit_summary(fit: &MultiCarrierFit) -> Map<String, Value> {
+    let finite = |v: f64| v.is_finite().then_some(v);
+    let mut summary = Map::new();
+    summary.insert("reduced_chi_square".into(), json!(finite(fit.reduced_chi_square)));
+    summary.insert("chi_square_p_value".into(), json!(fit.chi_square_p_value));
+    summary.insert("birge_ratio".into(), json!(fit.birge_ratio));
+    summary.insert("floored_points".into(), json!(fit.floored_points));
+    summary.insert(
+        "relative_uncertainty_floor".into(),
+        json!(fit.relative_uncertainty_floor),
+    );
+    summary.insert("reading_reuse_factor".into(), json!(fit.reading_reuse_factor));
+    summary.insert("calibrations_not_stated".into(), json!(fit.calibration.not_stated()));
+    summary
+}

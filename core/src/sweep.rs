@@ -375,7 +375,7 @@ pub enum SweepError {
     #[error("{with} points have uncertainties and {without} do not; give uncertainties for every point or for none")]
     MixedUncertainties { with: usize, without: usize },
     #[error(
-        "the sweep has {present} fields only (|B| from {min_t} T to {max_t} T); symmetrizing needs fields of both signs, so measure the {missing} branch too (zero field is |B| <= zero_field_tolerance_T)"
+        "the sweep has {present} fields only (|B| from {min_t} T to {max_t} T); separating the even and odd parts needs fields of both signs, so measure the {missing} branch too (zero field is |B| <= zero_field_tolerance_T; the analyses of the parts accept one sign and flag it single_field_sign)"
     )]
     OneFieldSign {
         present: &'static str,

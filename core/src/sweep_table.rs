@@ -134,7 +134,7 @@ pub fn sweep_schema_properties() -> Map<String, Value> {
     let mut properties = Map::new();
     properties.insert(
         "zero_field_tolerance_T".into(),
-        json!({"type": "number", "minimum": 0, "default": 1e-4, "description": "|B| at or below this is zero field"}),
+        json!({"type": "number", "minimum": 0, "default": 1e-4, "description": "|B| at or below this is zero field; raise it above a magnet's remanence (a few mT) when the readings at its nominal zero read a field"}),
     );
     properties.insert("field_resolution_T".into(), json!({"type": "number", "exclusiveMinimum": 0, "default": 1e-4, "description": "readings within this of the lowest |B| of their group are averaged into one field (groups are anchored, so a densely logged ramp keeps its field range)"}));
     properties.insert("temperature_tolerance_K".into(), json!({"type": "number", "minimum": 0, "default": DEFAULT_TEMPERATURE_TOLERANCE_K, "description": "sorted temperatures further apart than this (and than temperature_relative_tolerance x T) start a new sweep"}));

@@ -302,12 +302,10 @@ pub enum SweepUse {
 impl Symmetrized {
     /// The sign of the measured branch of a single-sign sweep: "positive" or "negative".
     pub fn measured_sign(&self) -> Option<&'static str> {
-        self.single_field_sign.then(|| {
-            if self.positive_points > 0 {
-                "positive"
-            } else {
-                "negative"
-            }
+        self.single_field_sign.then_some(if self.positive_points > 0 {
+            "positive"
+        } else {
+            "negative"
         })
     }
 

@@ -698,6 +698,7 @@ fn sweep_densely_logged_ramps_keep_their_field_range() {
 // Anchored grouping: a group never spans more than the resolution, however close the
 // neighbours; equal values stay in one group; chained neighbours are split.
 #[test]
+#[allow(clippy::single_range_in_vec_init)] // one group of index ranges is an expected value
 fn sweep_anchored_groups_are_never_wider_than_the_resolution() {
     let check = |values: &[f64], resolution: f64, expected: Vec<std::ops::Range<usize>>| {
         assert_eq!(anchored_groups(values, resolution), expected, "{values:?}");

@@ -213,3 +213,44 @@ fn temperature_grouping_parameters_are_checked_and_used() {
         assert!(error.to_string().contains(&name), "{error}");
     }
 }
+
+// The demo's Shubnikov-de Haas series (demo-data/heterostructure/sdh-sweeps.csv) keeps its
+// six temperatures: the former fixed 1 K spread merged 2 K and 3 K into one "2.5 K" sweep.
+#[test]
+fn the_demo_sdh_series_keeps_six_temperatures() {
+    let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../../demo-data/heterostructure/sdh-sweeps.csv");
+    let text = std::fs::read_to_string(&path).unwrap();
+    let mut lines = text.lines();
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let index = |name: &str| header.iter().position(|h| *h == name).unwrap();
+    let (t, b, xx, xy) = (
+        index("temperature_K"),
+        index("field_T"),
+        index("rho_xx_ohm_sq"),
+        index("rho_xy_ohm"),
+    );
+    let rows: Vec<(f64, f64, f64, f64)> = lines
+        .map(|line| {
+            let cells: Vec<f64> = line.split(',').map(|c| c.parse().unwrap_or(f64::NAN)).collect();
+            (cells[t], cells[b], cells[xx], cells[xy])
+        })
+        .collect();
+    let frame = frame(
+        rows.len(),
+        vec![
+            floats("temperature_K", rows.iter().map(|r| r.0).collect()),
+            floats("field_T", rows.iter().map(|r| r.1).collect()),
+            floats("rho_xx_ohm_sq", rows.iter().map(|r| r.2).collect()),
+            floats("rho_xy_ohm", rows.iter().map(|r| r.3).collect()),
+        ],
+    )
+    .unwrap();
+    let sweeps = mobilis_core::sweep_table::sweeps_by_temperature(
+        &frame,
+        &mobilis_core::sweep_table::TemperatureGrouping::default(),
+    )
+    .unwrap();
+    let temperatures: Vec<f64> = sweeps.iter().map(|s| s.temperature_k.unwrap()).collect();
+    assert_eq!(temperatures, vec![2.0, 3.0, 4.5, 6.0, 8.0, 10.0]);
+    assert!(sweeps.iter().all(|s| s.points.len() == 4000 && s.warnings.is_empty()));
+}

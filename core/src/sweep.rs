@@ -222,9 +222,10 @@ pub struct SymmetrizeSettings {
     /// |B| at or below this is zero field, T. Default 1e-4 T (1 G), the zero-field
     /// tolerance of `hall.reduce`.
     pub zero_field_tolerance_t: f64,
-    /// |B| values of one branch (and of the union grid) closer than this are one field, T.
-    /// Default 1e-4 T: below the setpoint scatter of a superconducting magnet, above the
-    /// resolution of its readback (common practice).
+    /// |B| values of one branch (and of the union grid) within this of the lowest of their
+    /// group are one field (groups anchored, never chained), T. Default 1e-4 T: below the
+    /// setpoint scatter of a superconducting magnet, above the resolution of its readback
+    /// (common practice).
     pub field_resolution_t: f64,
     pub grid: FieldGrid,
 }

@@ -179,6 +179,19 @@ impl SweepParams {
     }
 }
 
+/// The one warning of an analysis of several sweeps whose sweeps at `temperatures_k` had
+/// one field sign each (instead of one warning per sweep); `None` when there are none.
+pub fn single_field_sign_series_warning(temperatures_k: &[f64]) -> Option<String> {
+    if temperatures_k.is_empty() {
+        return None;
+    }
+    let list: Vec<String> = temperatures_k.iter().map(|t| format!("{t}")).collect();
+    Some(format!(
+        "single_field_sign: the sweeps at {} K have one field sign only, so rho_xx was taken as even in B as measured, not symmetrized: a Hall voltage picked up by misaligned longitudinal contacts (odd in B) stays in it; measure both field signs to remove it",
+        list.join(", ")
+    ))
+}
+
 /// An optional float column (absent: all `None`).
 pub fn optional_floats(frame: &DataFrame, name: &str) -> Result<Vec<Option<f64>>, AnalysisError> {
     if frame.column(name).is_ok() {

@@ -10,7 +10,8 @@ use mobilis_core::abi::AnalysisDeclaration;
 use mobilis_core::forward::tensor::CarrierKind;
 use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 use mobilis_core::sweep_table::{
-    single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature, SweepParams,
+    single_field_sign_series_warning, single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature,
+    SweepParams,
 };
 use serde::Deserialize;
 use serde_json::{json, Value};
@@ -294,7 +295,13 @@ impl Analysis for KohlerAnalysis {
                 single_sign_temperatures.push(temperature);
             }
             sweep_warnings.extend(sweep.warnings.iter().cloned());
-            sweep_warnings.extend(curve.warnings.iter().map(|w| format!("sweep at {temperature} K: {w}")));
+            sweep_warnings.extend(
+                curve
+                    .warnings
+                    .iter()
+                    .filter(|w| !w.starts_with("single_field_sign"))
+                    .map(|w| format!("sweep at {temperature} K: {w}")),
+            );
             curves.push(KohlerCurve::from_ratio(temperature, &curve));
         }
         let mut settings = KohlerSettings::default();
@@ -368,7 +375,10 @@ impl Analysis for KohlerAnalysis {
             "single_field_sign_temperatures_K".into(),
             json!(single_sign_temperatures),
         );
-        output.warnings = sweep_warnings;
+        output.warnings = single_field_sign_series_warning(&single_sign_temperatures)
+            .into_iter()
+            .chain(sweep_warnings)
+            .collect();
         output.warnings.extend(analysis.warnings.iter().cloned());
         Ok(output)
     }

@@ -11,7 +11,8 @@ use mobilis_core::forward::oscillations::thermal_damping_factor;
 use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 use mobilis_core::sweep::{symmetrize, SweepUse};
 use mobilis_core::sweep_table::{
-    single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature, SweepParams,
+    single_field_sign_series_warning, single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature,
+    SweepParams,
 };
 use serde::Deserialize;
 use serde_json::{json, Value};
@@ -208,6 +209,7 @@ impl Analysis for OscillationsAnalysis {
                 symmetrized
                     .warnings(SweepUse::EvenRhoXx)
                     .into_iter()
+                    .filter(|w| !w.starts_with("single_field_sign"))
                     .map(|w| format!("sweep at {temperature_k} K: {w}")),
             );
             let (field_t, rho_xx_ohm_sq) = symmetrized
@@ -420,7 +422,10 @@ impl Analysis for OscillationsAnalysis {
             "single_field_sign_temperatures_K".into(),
             json!(single_sign_temperatures),
         );
-        output.warnings = sweep_warnings;
+        output.warnings = single_field_sign_series_warning(&single_sign_temperatures)
+            .into_iter()
+            .chain(sweep_warnings)
+            .collect();
         output.warnings.extend(analysis.warnings.iter().cloned());
         host.progress(1.0, "done");
         Ok(output)

@@ -281,6 +281,8 @@ pub struct Symmetrized {
     pub zero_field_points: usize,
     /// Measured points outside the overlap, not used.
     pub points_outside_overlap: usize,
+    /// The largest |B| of any measured point, T.
+    pub measured_max_field_t: f64,
     /// Largest |rho_xx odd part| / rho_xx over the grid; NaN for a single field sign.
     pub max_rho_xx_asymmetry: f64,
     /// Largest |rho_xy even part| / rho_xx over the grid; NaN for a single field sign.
@@ -290,6 +292,10 @@ pub struct Symmetrized {
     /// (see "One field sign" in the module documentation).
     pub single_field_sign: bool,
 }
+
+/// The fraction of the measured field range that points outside the overlap must take with
+/// them before [`Symmetrized::warnings`] mentions them (a choice, not a standard).
+pub const SIGNIFICANT_RANGE_LOSS: f64 = 0.1;
 
 /// What an analysis takes from a symmetrized sweep, for the wording of its warnings.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -337,13 +343,25 @@ impl Symmetrized {
                 self.overlap_t.1,
             ));
         }
-        if self.points_outside_overlap > 0 {
-            warnings.push(format!(
-                "{} measured point(s) lie outside the |B| range both field signs cover, [{:.4}, {:.4}] T, and were not used; measure both signs over the same range to use them, or, if one sign holds only readings near zero field (a magnet's remanence), raise zero_field_tolerance_T above them so that they count as zero field",
-                self.points_outside_overlap, self.overlap_t.0, self.overlap_t.1
-            ));
+        // Points beyond the overlap matter to an analysis when they take a real part of the
+        // field range with them (a tenth or more; an end point of one branch a few mT beyond
+        // the other's is setpoint scatter).
+        let kept = self.overlap_t.1 - self.overlap_t.0;
+        if kept < (1.0 - SIGNIFICANT_RANGE_LOSS) * self.measured_max_field_t {
+            warnings.extend(self.outside_overlap_warning());
         }
         warnings
+    }
+
+    /// The measured points outside the overlap, if any, in words (naming
+    /// `zero_field_tolerance_T` for a magnet's remanence at its nominal zero).
+    pub fn outside_overlap_warning(&self) -> Option<String> {
+        (self.points_outside_overlap > 0).then(|| {
+            format!(
+                "{} measured point(s) lie outside the |B| range both field signs cover, [{:.4}, {:.4}] T of [0, {:.4}] T measured, and were not used; measure both signs over the same range to use them, or, if one sign holds only readings near zero field (a magnet's remanence), raise zero_field_tolerance_T above them so that they count as zero field",
+                self.points_outside_overlap, self.overlap_t.0, self.overlap_t.1, self.measured_max_field_t
+            )
+        })
     }
 }
 
@@ -746,6 +764,7 @@ pub fn symmetrize(points: &[SweepPoint], settings: &SymmetrizeSettings) -> Resul
         max_rho_xx_asymmetry: if single_sign.is_none() { max_xx_asym } else { f64::NAN },
         max_rho_xy_asymmetry: if single_sign.is_none() { max_xy_asym } else { f64::NAN },
         single_field_sign: single_sign.is_some(),
+        measured_max_field_t: points.iter().map(|p| p.field_t.abs()).fold(0.0, f64::max),
     })
 }
 

@@ -743,3 +743,31 @@ fn sweep_remanence_at_nominal_zero_is_governed_by_the_zero_field_tolerance() {
     assert_eq!(result.zero_field_points, 1);
     assert_eq!(result.points.len(), 37);
 }
+
+// Points beyond the overlap are mentioned to every analysis only when they take a tenth of
+// the field range or more; an end point of one branch a few mT beyond the other's (setpoint
+// scatter) is reported by outside_overlap_warning alone (mr.symmetrize shows it).
+#[test]
+fn sweep_outside_overlap_is_a_warning_when_it_costs_field_range() {
+    let good = |b: f64| SweepPoint::new(b, 1000.0 + b * b, 10.0 * b);
+    let mut scatter: Vec<SweepPoint> = (0..=18).map(|k| good(0.5 * k as f64)).collect();
+    scatter.extend((1..18).map(|k| good(-0.5 * k as f64)));
+    scatter.push(good(-8.996));
+    let result = symmetrize(&scatter, &settings()).unwrap();
+    assert_eq!(result.points_outside_overlap, 1);
+    assert_eq!(result.measured_max_field_t, 9.0);
+    assert!(result.warnings(SweepUse::Tensor).is_empty());
+    assert!(result
+        .outside_overlap_warning()
+        .unwrap()
+        .contains("1 measured point(s)"));
+    let mut short: Vec<SweepPoint> = (0..=18).map(|k| good(0.5 * k as f64)).collect();
+    short.extend((1..=10).map(|k| good(-0.5 * k as f64)));
+    let result = symmetrize(&short, &settings()).unwrap();
+    assert_eq!(result.points_outside_overlap, 8);
+    let warnings = result.warnings(SweepUse::Tensor);
+    assert!(
+        warnings.len() == 1 && warnings[0].contains("[0.0000, 5.0000] T of [0, 9.0000] T"),
+        "{warnings:?}"
+    );
+}

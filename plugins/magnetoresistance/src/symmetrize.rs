@@ -60,7 +60,7 @@
 //! # Warnings
 //!
 //! - measured points outside the field range both branches cover (they are not used; the
-//!   warning of `mobilis_core::sweep::Symmetrized::warnings`, which names
+//!   warning of `mobilis_core::sweep::Symmetrized::outside_overlap_warning`, which names
 //!   `zero_field_tolerance_T` for a magnet's remanence at its nominal zero);
 //! - |rho_xy_even| above |rho_xy| at the highest field of the grid: the Hall signal is then
 //!   the small difference of two large readings, and any drift or field error between the
@@ -240,7 +240,14 @@ pub fn describe(symmetrized: Symmetrized, misalignment_max_field_t: Option<f64>)
     let misalignment = misalignment_estimate(&rows, symmetrized.overlap_t.1, misalignment_max_field_t);
     let hall_pickup = pickup_estimate(&rows);
 
+    // Every unused point is reported here, however little field range it takes: describing
+    // the symmetrization is this analysis's job.
     let mut warnings = symmetrized.warnings(SweepUse::Tensor);
+    if let Some(outside) = symmetrized.outside_overlap_warning() {
+        if !warnings.contains(&outside) {
+            warnings.push(outside);
+        }
+    }
     if let Some(top) = rows.last() {
         if top.field_t > 0.0 && top.rho_xy_even_ohm.abs() > top.rho_xy_ohm.abs() {
             warnings.push(format!(

@@ -20,19 +20,25 @@
 //! 1. **Validation.** Every field, rho_xx and rho_xy finite; rho_xx > 0 (a passive sample
 //!    dissipates); uncertainties on every point or on none, each finite and positive, their
 //!    correlation in (-1, 1). Errors name the 0-based point.
-//! 2. **Branches.** Points with |B| <= `zero_field_tolerance_t` are zero field; their mean is
-//!    one node at B = 0 that belongs to both branches. The others form the positive and the
-//!    negative branch, each indexed by |B|. A sweep without nonzero fields of both signs is
-//!    refused: with one sign only, the even and odd parts cannot be separated.
-//! 3. **Repeats.** Within a branch, points whose sorted |B| are no further apart than
-//!    `field_resolution_t` (chains allowed) become one node: the means of |B|, rho_xx and
-//!    rho_xy. An up and a down sweep thus average, and no two nodes are closer than the
-//!    resolution, which keeps the interpolation well conditioned.
+//! 2. **Branches.** Points with |B| <= `zero_field_tolerance_t` are zero field (see "Zero
+//!    field" below); their mean is one node at B = 0 that belongs to both branches. The
+//!    others form the positive and the negative branch, each indexed by |B|. A sweep with
+//!    nonzero fields of one sign only is used as measured (see "One field sign"); a sweep
+//!    with zero-field points only is refused.
+//! 3. **Repeats.** Within a branch, points sorted by |B| are grouped around anchors: a group
+//!    starts at its lowest |B| and takes every following point within `field_resolution_t`
+//!    of that anchor; the next point starts the next group. Each group becomes one node: the
+//!    means of |B|, rho_xx and rho_xy. An up and a down sweep thus average, and no group is
+//!    wider than the resolution. Groups are anchored, not chained (a point joining when it is
+//!    within the resolution of its *neighbour*), because a sweep logged continuously along a
+//!    slow ramp has every neighbour closer than any sensible resolution: chaining would
+//!    merge the whole ramp into one node at its mean field, while anchoring keeps its field
+//!    range, averaging only what lies within one resolution.
 //! 4. **Common grid.** The two branches need not share field points. The grid is the union
 //!    of the |B| of both branches' nodes within their overlap [max of the two lowest, min of
-//!    the two highest] (clustered with the same resolution, each cluster at its mean), or a
-//!    grid given by the caller, which must lie within the overlap. Nodes outside the overlap
-//!    are not used and are counted.
+//!    the two highest] (grouped around anchors with the same resolution, each group at its
+//!    mean), or a grid given by the caller, which must lie within the overlap. Nodes outside
+//!    the overlap are not used and are counted.
 //! 5. **Interpolation.** Each branch is interpolated linearly in |B| onto the grid (exact at
 //!    its own nodes). Linear interpolation never overshoots, which matters for noisy data,
 //!    and its error, at most h^2 max|f''| / 8 for a node spacing h, is small against the
@@ -43,10 +49,39 @@
 //!    are the same node: the symmetrized rho_xy is exactly 0 with zero uncertainty, and its
 //!    even part is the zero-field offset.
 //!
+//! # Zero field
+//!
+//! A reading is at zero field when |B| <= `zero_field_tolerance_t` (the analyses' parameter
+//! `zero_field_tolerance_T`, default 1e-4 T, as in `hall.reduce`). An electromagnet or a
+//! superconducting magnet at a nominal zero keeps a remanent field of a few mT; when the
+//! logged field is the setpoint such readings sit at exactly 0, but when it is a Hall
+//! probe's readback they sit at a few mT of either sign and are then field points of the
+//! branch of that sign. Raise `zero_field_tolerance_T` above the remanence when those
+//! readings are to be the zero-field node: that matters for rho(0) of a magnetoresistance
+//! ratio, and for a sweep at one sign whose nominal zero reads a remanence of the other
+//! sign, which otherwise makes a second branch of one point (the warning about points
+//! outside the overlap says so and names the parameter).
+//!
+//! # One field sign
+//!
+//! Most superconducting-magnet runs sweep one sign only. By Onsager's reciprocity rho_xx is
+//! even and rho_xy odd in B, so one branch determines both, up to the contact
+//! imperfections that the second branch would have removed. Such a sweep is used as
+//! measured and [`Symmetrized::single_field_sign`] is set: at |B| the branch's rho_xx is
+//! taken as the even part and its rho_xy as the odd part (for a negative-only sweep
+//! rho_xy(+|B|) = -rho_xy(-|B|), the sign convention of an odd function); at B = 0 the
+//! odd part is 0 by symmetry, so the zero-field node enters rho_xx only and its rho_xy is
+//! the even part there (the zero-field offset, the one measure of the Hall misalignment a
+//! single branch gives). The removed parts at nonzero field are not known and are NaN,
+//! as are the largest asymmetries. A Hall pickup of the longitudinal contacts stays in
+//! rho_xx and a misalignment of the Hall contacts stays in rho_xy:
+//! [`Symmetrized::warnings`] says so.
+//!
 //! The summary numbers [`Symmetrized::max_rho_xx_asymmetry`] and
 //! [`Symmetrized::max_rho_xy_asymmetry`] are the largest |odd part of rho_xx| and |even part
 //! of rho_xy| over the grid, each relative to the symmetrized rho_xx there: the second is
-//! the Hall misalignment fraction of a sample whose Hall contacts are offset.
+//! the Hall misalignment fraction of a sample whose Hall contacts are offset. Both are NaN
+//! for a sweep at one field sign, which cannot measure them.
 //!
 //! # Uncertainties
 //!
@@ -187,9 +222,10 @@ pub struct SymmetrizeSettings {
     /// |B| at or below this is zero field, T. Default 1e-4 T (1 G), the zero-field
     /// tolerance of `hall.reduce`.
     pub zero_field_tolerance_t: f64,
-    /// |B| values of one branch (and of the union grid) closer than this are one field, T.
-    /// Default 1e-4 T: below the setpoint scatter of a superconducting magnet, above the
-    /// resolution of its readback (common practice).
+    /// |B| values of one branch (and of the union grid) within this of the lowest of their
+    /// group are one field (groups anchored, never chained), T. Default 1e-4 T: below the
+    /// setpoint scatter of a superconducting magnet, above the resolution of its readback
+    /// (common practice).
     pub field_resolution_t: f64,
     pub grid: FieldGrid,
 }
@@ -245,17 +281,95 @@ pub struct Symmetrized {
     pub zero_field_points: usize,
     /// Measured points outside the overlap, not used.
     pub points_outside_overlap: usize,
-    /// Largest |rho_xx odd part| / rho_xx over the grid.
+    /// The largest |B| of any measured point, T.
+    pub measured_max_field_t: f64,
+    /// Largest |rho_xx odd part| / rho_xx over the grid; NaN for a single field sign.
     pub max_rho_xx_asymmetry: f64,
-    /// Largest |rho_xy even part| / rho_xx over the grid.
+    /// Largest |rho_xy even part| / rho_xx over the grid; NaN for a single field sign.
     pub max_rho_xy_asymmetry: f64,
+    /// True when the sweep had nonzero fields of one sign only and that branch was used as
+    /// measured: rho_xx taken as even, rho_xy as odd, the contact misalignment not removed
+    /// (see "One field sign" in the module documentation).
+    pub single_field_sign: bool,
+}
+
+/// The fraction of the measured field range that points outside the overlap must take with
+/// them before [`Symmetrized::warnings`] mentions them (a choice, not a standard).
+pub const SIGNIFICANT_RANGE_LOSS: f64 = 0.1;
+
+/// What an analysis takes from a symmetrized sweep, for the wording of its warnings.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SweepUse {
+    /// The even part of rho_xx only (magnetoresistance, oscillations, weak localization).
+    EvenRhoXx,
+    /// Both components (the multi-carrier, spectrum and two-band fits).
+    Tensor,
+}
+
+impl Symmetrized {
+    /// The sign of the measured branch of a single-sign sweep: "positive" or "negative".
+    pub fn measured_sign(&self) -> Option<&'static str> {
+        self.single_field_sign.then_some(if self.positive_points > 0 {
+            "positive"
+        } else {
+            "negative"
+        })
+    }
+
+    /// The warnings every analysis of this sweep passes on: a single field sign (what could
+    /// not be removed), and measured points outside the overlap (with the remanence hint
+    /// naming `zero_field_tolerance_T`).
+    pub fn warnings(&self, uses: SweepUse) -> Vec<String> {
+        let mut warnings = Vec::new();
+        if let Some(sign) = self.measured_sign() {
+            let what = match uses {
+                SweepUse::EvenRhoXx => "rho_xx was taken as even in B as measured, not symmetrized: a Hall voltage picked up by misaligned longitudinal contacts (odd in B) stays in it",
+                SweepUse::Tensor => "rho_xx was taken as even and rho_xy as odd in B as measured, not symmetrized: the misalignment of the Hall contacts (a part of rho_xx picked up in rho_xy, even in B) could not be removed, nor a Hall pickup in rho_xx",
+            };
+            let offset = self
+                .points
+                .first()
+                .filter(|p| p.field_t == 0.0 && uses == SweepUse::Tensor)
+                .map(|p| {
+                    format!(
+                        "; rho_xy at zero field is {:.3e} of rho_xx, a measure of that misalignment",
+                        p.rho_xy_even_ohm / p.rho_xx_ohm_sq
+                    )
+                })
+                .unwrap_or_default();
+            warnings.push(format!(
+                "single_field_sign: the sweep has {sign} fields only ({} points up to |B| = {:.4} T), so {what}{offset}; measure both field signs to remove it",
+                self.positive_points + self.negative_points,
+                self.overlap_t.1,
+            ));
+        }
+        // Points beyond the overlap matter to an analysis when they take a real part of the
+        // field range with them (a tenth or more; an end point of one branch a few mT beyond
+        // the other's is setpoint scatter).
+        let kept = self.overlap_t.1 - self.overlap_t.0;
+        if kept < (1.0 - SIGNIFICANT_RANGE_LOSS) * self.measured_max_field_t {
+            warnings.extend(self.outside_overlap_warning());
+        }
+        warnings
+    }
+
+    /// The measured points outside the overlap, if any, in words (naming
+    /// `zero_field_tolerance_T` for a magnet's remanence at its nominal zero).
+    pub fn outside_overlap_warning(&self) -> Option<String> {
+        (self.points_outside_overlap > 0).then(|| {
+            format!(
+                "{} measured point(s) lie outside the |B| range both field signs cover, [{:.4}, {:.4}] T of [0, {:.4}] T measured, and were not used; measure both signs over the same range to use them, or, if one sign holds only readings near zero field (a magnet's remanence), raise zero_field_tolerance_T above them so that they count as zero field",
+                self.points_outside_overlap, self.overlap_t.0, self.overlap_t.1, self.measured_max_field_t
+            )
+        })
+    }
 }
 
 /// Why a sweep is refused.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 #[non_exhaustive]
 pub enum SweepError {
-    #[error("the sweep has no points; give rho_xx and rho_xy at fields of both signs")]
+    #[error("the sweep has no points; give rho_xx and rho_xy against field")]
     Empty,
     #[error("point {index}: {column} is {value}; give a finite number or drop the point")]
     NonFinite {
@@ -278,7 +392,7 @@ pub enum SweepError {
     #[error("{with} points have uncertainties and {without} do not; give uncertainties for every point or for none")]
     MixedUncertainties { with: usize, without: usize },
     #[error(
-        "the sweep has {present} fields only (|B| from {min_t} T to {max_t} T); symmetrizing needs fields of both signs, so measure the {missing} branch too"
+        "the sweep has {present} fields only (|B| from {min_t} T to {max_t} T); separating the even and odd parts needs fields of both signs, so measure the {missing} branch too (zero field is |B| <= zero_field_tolerance_T; the analyses of the parts accept one sign and flag it single_field_sign)"
     )]
     OneFieldSign {
         present: &'static str,
@@ -287,7 +401,11 @@ pub enum SweepError {
         max_t: f64,
     },
     #[error(
-        "the positive branch covers |B| {positive_t:?} T and the negative branch {negative_t:?} T, which do not overlap; measure both signs over a common field range"
+        "all {points} points are at zero field (|B| <= zero_field_tolerance_T = {tolerance_t} T); give readings in field, or lower zero_field_tolerance_T if the field points were taken for zero field"
+    )]
+    ZeroFieldOnly { points: usize, tolerance_t: f64 },
+    #[error(
+        "the positive branch covers |B| {positive_t:?} T and the negative branch {negative_t:?} T, which do not overlap; measure both signs over a common field range, or, if one sign holds only readings near zero field (a magnet's remanence), raise zero_field_tolerance_T above them so that they count as zero field"
     )]
     NoOverlap {
         positive_t: (f64, f64),
@@ -299,7 +417,7 @@ pub enum SweepError {
     GridOutsideOverlap { field_t: f64, low_t: f64, high_t: f64 },
     #[error("grid field {value} is not a finite |B| of 0 or more; give magnitudes in tesla")]
     InvalidGridField { value: f64 },
-    #[error("setting {name} is {value}; give a finite value of 0 or more")]
+    #[error("{name} is {value}; give a finite value of 0 or more")]
     InvalidSetting { name: &'static str, value: f64 },
     #[error("thickness_m is {value}; give a positive finite thickness in metres")]
     InvalidThickness { value: f64 },
@@ -392,27 +510,28 @@ fn average(group: &[(f64, &SweepPoint)]) -> Node {
     }
 }
 
-/// Splits ascending values into runs whose neighbours are at most `resolution` apart;
-/// returns the index ranges.
-fn chain_clusters(sorted: &[f64], resolution: f64) -> Vec<std::ops::Range<usize>> {
-    let mut clusters = Vec::new();
+/// Splits ascending values into groups around anchors: a group starts at its first value
+/// and takes every following value within `resolution` of it (not of its neighbour, so that
+/// a densely sampled ramp is never chained into one group); returns the index ranges.
+pub fn anchored_groups(sorted: &[f64], resolution: f64) -> Vec<std::ops::Range<usize>> {
+    let mut groups = Vec::new();
     let mut start = 0;
     for i in 1..=sorted.len() {
-        if i == sorted.len() || sorted[i] - sorted[i - 1] > resolution {
+        if i == sorted.len() || sorted[i] - sorted[start] > resolution {
             if start < i {
-                clusters.push(start..i);
+                groups.push(start..i);
             }
             start = i;
         }
     }
-    clusters
+    groups
 }
 
 /// The nodes of one branch (|B| ascending), from its points as (|B|, point).
 fn branch_nodes(mut members: Vec<(f64, &SweepPoint)>, resolution: f64) -> Vec<Node> {
     members.sort_by(|a, b| a.0.total_cmp(&b.0));
     let fields: Vec<f64> = members.iter().map(|(b, _)| *b).collect();
-    chain_clusters(&fields, resolution)
+    anchored_groups(&fields, resolution)
         .into_iter()
         .map(|range| average(&members[range]))
         .collect()
@@ -441,8 +560,8 @@ fn interpolation_weights(nodes: &[Node], field: f64) -> Vec<(usize, f64)> {
 /// Symmetrizes rho_xx and antisymmetrizes rho_xy of a sweep (see the module documentation).
 pub fn symmetrize(points: &[SweepPoint], settings: &SymmetrizeSettings) -> Result<Symmetrized, SweepError> {
     for (name, value) in [
-        ("zero_field_tolerance_t", settings.zero_field_tolerance_t),
-        ("field_resolution_t", settings.field_resolution_t),
+        ("zero_field_tolerance_T", settings.zero_field_tolerance_t),
+        ("field_resolution_T", settings.field_resolution_t),
     ] {
         if !(value.is_finite() && value >= 0.0) {
             return Err(SweepError::InvalidSetting { name, value });
@@ -465,46 +584,23 @@ pub fn symmetrize(points: &[SweepPoint], settings: &SymmetrizeSettings) -> Resul
         .filter(|p| p.field_t < -tolerance)
         .map(|p| (-p.field_t, p))
         .collect();
-    let range = |members: &[(f64, &SweepPoint)]| {
-        members
-            .iter()
-            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), (b, _)| {
-                (lo.min(*b), hi.max(*b))
-            })
-    };
-    match (positive.is_empty(), negative.is_empty()) {
-        (false, false) => {}
+    // The sign of the one measured branch of a single-sign sweep (see "One field sign").
+    let single_sign: Option<f64> = match (positive.is_empty(), negative.is_empty()) {
+        (false, false) => None,
         (true, true) => {
-            return Err(SweepError::OneFieldSign {
-                present: "zero",
-                missing: "positive and the negative",
-                min_t: 0.0,
-                max_t: 0.0,
+            return Err(SweepError::ZeroFieldOnly {
+                points: zero.len(),
+                tolerance_t: tolerance,
             })
         }
-        (false, true) => {
-            let (min_t, max_t) = range(&positive);
-            return Err(SweepError::OneFieldSign {
-                present: "positive",
-                missing: "negative",
-                min_t,
-                max_t,
-            });
-        }
-        (true, false) => {
-            let (min_t, max_t) = range(&negative);
-            return Err(SweepError::OneFieldSign {
-                present: "negative",
-                missing: "positive",
-                min_t,
-                max_t,
-            });
-        }
-    }
+        (false, true) => Some(1.0),
+        (true, false) => Some(-1.0),
+    };
     let (positive_points, negative_points, zero_field_points) = (positive.len(), negative.len(), zero.len());
 
     // Node list of each branch, the zero-field node first in both; the shared node gets
-    // the same global index so that its correlation between the branches is exact.
+    // the same global index so that its correlation between the branches is exact. A
+    // single-sign sweep has one branch, listed twice.
     let zero_node = (!zero.is_empty()).then(|| average(&zero));
     let resolution = settings.field_resolution_t;
     let mut nodes: Vec<Node> = Vec::new();
@@ -519,6 +615,14 @@ pub fn symmetrize(points: &[SweepPoint], settings: &SymmetrizeSettings) -> Resul
             branch_indices[branch].push(nodes.len());
             nodes.push(node);
         }
+    }
+    if single_sign.is_some() {
+        let measured = if branch_indices[0].len() >= branch_indices[1].len() {
+            0
+        } else {
+            1
+        };
+        branch_indices[1 - measured] = branch_indices[measured].clone();
     }
     let branch_nodes_of = |branch: usize| -> Vec<Node> { branch_indices[branch].iter().map(|&i| nodes[i]).collect() };
     let branches = [branch_nodes_of(0), branch_nodes_of(1)];
@@ -543,7 +647,7 @@ pub fn symmetrize(points: &[SweepPoint], settings: &SymmetrizeSettings) -> Resul
             let mut fields: Vec<f64> = nodes.iter().map(|n| n.field_t).filter(|b| inside(*b)).collect();
             fields.sort_by(f64::total_cmp);
             fields.dedup();
-            chain_clusters(&fields, resolution)
+            anchored_groups(&fields, resolution)
                 .into_iter()
                 .map(|r| {
                     // A cluster holding the zero-field node stays at exactly 0, where the
@@ -586,11 +690,25 @@ pub fn symmetrize(points: &[SweepPoint], settings: &SymmetrizeSettings) -> Resul
         // Coefficients of each global node in the even (c) and odd (d) combinations.
         let mut even: BTreeMap<usize, f64> = BTreeMap::new();
         let mut odd: BTreeMap<usize, f64> = BTreeMap::new();
-        for (branch, sign) in [(0usize, 1.0), (1usize, -1.0)] {
-            for (local, weight) in interpolation_weights(&branches[branch], field) {
-                let global = branch_indices[branch][local];
-                *even.entry(global).or_insert(0.0) += 0.5 * weight;
-                *odd.entry(global).or_insert(0.0) += sign * 0.5 * weight;
+        match single_sign {
+            None => {
+                for (branch, sign) in [(0usize, 1.0), (1usize, -1.0)] {
+                    for (local, weight) in interpolation_weights(&branches[branch], field) {
+                        let global = branch_indices[branch][local];
+                        *even.entry(global).or_insert(0.0) += 0.5 * weight;
+                        *odd.entry(global).or_insert(0.0) += sign * 0.5 * weight;
+                    }
+                }
+            }
+            // One branch as measured: rho_xx even, rho_xy odd (mirrored for a negative
+            // branch), and the odd part 0 at the zero-field node by symmetry.
+            Some(sign) => {
+                for (local, weight) in interpolation_weights(&branches[0], field) {
+                    let global = branch_indices[0][local];
+                    *even.entry(global).or_insert(0.0) += weight;
+                    let at_zero = zero_node.is_some() && global == 0;
+                    *odd.entry(global).or_insert(0.0) += if at_zero { 0.0 } else { sign * weight };
+                }
             }
         }
         let combine = |coefficients: &BTreeMap<usize, f64>, value: &dyn Fn(&Node) -> f64| -> f64 {
@@ -598,8 +716,13 @@ pub fn symmetrize(points: &[SweepPoint], settings: &SymmetrizeSettings) -> Resul
         };
         let rho_xx = combine(&even, &|n| n.rho_xx);
         let rho_xy = combine(&odd, &|n| n.rho_xy);
-        let rho_xx_odd = combine(&odd, &|n| n.rho_xx);
-        let rho_xy_even = combine(&even, &|n| n.rho_xy);
+        let (rho_xx_odd, rho_xy_even) = match single_sign {
+            None => (combine(&odd, &|n| n.rho_xx), combine(&even, &|n| n.rho_xy)),
+            // One branch measures the parts of the wrong parity only at zero field, where
+            // the odd part vanishes and the even part is the measured offset.
+            Some(_) if field == 0.0 && zero_node.is_some() => (0.0, nodes[0].rho_xy),
+            Some(_) => (f64::NAN, f64::NAN),
+        };
         let uncertainty = with_uncertainty.then(|| {
             let var_xx: f64 = even.iter().map(|(i, c)| c * c * nodes[*i].var_xx).sum();
             let var_xy: f64 = odd.iter().map(|(i, d)| d * d * nodes[*i].var_xy).sum();
@@ -618,8 +741,10 @@ pub fn symmetrize(points: &[SweepPoint], settings: &SymmetrizeSettings) -> Resul
                 },
             }
         });
-        max_xx_asym = max_xx_asym.max(rho_xx_odd.abs() / rho_xx);
-        max_xy_asym = max_xy_asym.max(rho_xy_even.abs() / rho_xx);
+        if single_sign.is_none() {
+            max_xx_asym = max_xx_asym.max(rho_xx_odd.abs() / rho_xx);
+            max_xy_asym = max_xy_asym.max(rho_xy_even.abs() / rho_xx);
+        }
         output.push(SymmetrizedPoint {
             field_t: field,
             rho_xx_ohm_sq: rho_xx,
@@ -636,8 +761,10 @@ pub fn symmetrize(points: &[SweepPoint], settings: &SymmetrizeSettings) -> Resul
         negative_points,
         zero_field_points,
         points_outside_overlap,
-        max_rho_xx_asymmetry: max_xx_asym,
-        max_rho_xy_asymmetry: max_xy_asym,
+        max_rho_xx_asymmetry: if single_sign.is_none() { max_xx_asym } else { f64::NAN },
+        max_rho_xy_asymmetry: if single_sign.is_none() { max_xy_asym } else { f64::NAN },
+        single_field_sign: single_sign.is_some(),
+        measured_max_field_t: points.iter().map(|p| p.field_t.abs()).fold(0.0, f64::max),
     })
 }
 

@@ -1,6 +1,22 @@
 //! Field sweeps as plugin input tables: the `sweep` role's declaration and its conversion
 //! into [`SweepPoint`]s, shared by the plugins that analyse sweeps (spectrum,
 //! magnetoresistance). Pure table glue over [`crate::sdk`]; no I/O.
+//!
+//! # Sweeps by temperature
+//!
+//! A table may hold one sample's sweeps at several temperatures. Its rows are sorted by
+//! temperature, and a new sweep starts wherever two consecutive temperatures are further
+//! apart than the larger of `temperature_tolerance_K` (default
+//! [`DEFAULT_TEMPERATURE_TOLERANCE_K`], 0.05 K) and `temperature_relative_tolerance` times the
+//! lower of the two (default [`DEFAULT_TEMPERATURE_RELATIVE_TOLERANCE`], 0.5 %). A gap, not
+//! a spread around the first reading: a stage that drifts slowly during a sweep logs
+//! temperatures close to each other, however far the drift goes in total, while distinct
+//! setpoints leave a gap between their readings. With the defaults 0.3, 0.4, ... 1.5 K stay
+//! apart (gaps of 0.1 K), 2 K and 3 K stay apart, and a sweep whose stage drifts by tens of
+//! mK, or by 1 % of T over a few dozen readings at room temperature, stays one sweep. A
+//! sweep whose temperatures span more than ten times the gap allowed at its lowest
+//! temperature is reported in a warning naming both parameters: it may be several setpoints
+//! chained by readings in between.
 
 use crate::abi::{ColumnSpec, ColumnType, InputRole};
 use crate::sdk::{self, AnalysisError};
@@ -9,9 +25,64 @@ use polars::prelude::DataFrame;
 use serde::Deserialize;
 use serde_json::{json, Map, Value};
 
-/// Temperatures of one sweep stay within this of each other, K: a sweep is taken at one set
-/// point, and a larger spread means two sweeps in one table.
-pub const ONE_SWEEP_TEMPERATURE_SPREAD_K: f64 = 1.0;
+/// Default of `temperature_tolerance_K`: consecutive sorted temperatures further apart than
+/// this (and than the relative tolerance) belong to different sweeps, K. Below the 0.1 K
+/// steps of a sub-kelvin series, above the scatter of a stage held at one setpoint (common
+/// practice).
+pub const DEFAULT_TEMPERATURE_TOLERANCE_K: f64 = 0.05;
+
+/// Default of `temperature_relative_tolerance`: the same gap relative to T, which matters
+/// above about 10 K, where a stage scatters by a fraction of T rather than by mK (common
+/// practice).
+pub const DEFAULT_TEMPERATURE_RELATIVE_TOLERANCE: f64 = 0.005;
+
+/// A sweep spanning more than this many allowed gaps is reported: it may be chained.
+const CHAINED_SPAN_GAPS: f64 = 10.0;
+
+/// How the rows of a table are told apart into sweeps by temperature (see the module
+/// documentation).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct TemperatureGrouping {
+    /// K, 0 or more.
+    pub tolerance_k: f64,
+    /// Dimensionless, 0 or more.
+    pub relative_tolerance: f64,
+}
+
+impl Default for TemperatureGrouping {
+    fn default() -> Self {
+        TemperatureGrouping {
+            tolerance_k: DEFAULT_TEMPERATURE_TOLERANCE_K,
+            relative_tolerance: DEFAULT_TEMPERATURE_RELATIVE_TOLERANCE,
+        }
+    }
+}
+
+impl TemperatureGrouping {
+    /// The largest gap between consecutive temperatures of one sweep at `temperature_k`, K.
+    pub fn allowed_gap_k(&self, temperature_k: f64) -> f64 {
+        self.tolerance_k.max(self.relative_tolerance * temperature_k.abs())
+    }
+
+    fn validate(&self) -> Result<(), AnalysisError> {
+        for (name, value) in [
+            ("temperature_tolerance_K", self.tolerance_k),
+            ("temperature_relative_tolerance", self.relative_tolerance),
+        ] {
+            if !(value.is_finite() && value >= 0.0) {
+                return Err(invalid(format!("{name} is {value}; give a finite value of 0 or more")));
+            }
+        }
+        Ok(())
+    }
+
+    fn describe(&self) -> String {
+        format!(
+            "temperature_tolerance_K = {} K, temperature_relative_tolerance = {}",
+            self.tolerance_k, self.relative_tolerance
+        )
+    }
+}
 
 fn invalid(message: impl Into<String>) -> AnalysisError {
     AnalysisError::InvalidInput(message.into())
@@ -22,9 +93,9 @@ fn invalid(message: impl Into<String>) -> AnalysisError {
 pub fn sweep_role(several_temperatures: bool) -> InputRole {
     use ColumnType::*;
     let description = if several_temperatures {
-        "field sweeps of one sample at several temperatures (group_by sample for several samples); both field signs"
+        "field sweeps of one sample at several temperatures (group_by sample for several samples); both field signs, or one (flagged single_field_sign)"
     } else {
-        "a field sweep of one sample at one temperature (group_by sample and temperature_K for several); both field signs"
+        "a field sweep of one sample at one temperature (group_by sample and temperature_K for several); both field signs, or one (flagged single_field_sign)"
     };
     let temperature = ColumnSpec::new("temperature_K", F64, Some("K"), "temperature of the sweep");
     InputRole {
@@ -63,9 +134,11 @@ pub fn sweep_schema_properties() -> Map<String, Value> {
     let mut properties = Map::new();
     properties.insert(
         "zero_field_tolerance_T".into(),
-        json!({"type": "number", "minimum": 0, "default": 1e-4, "description": "|B| at or below this is zero field"}),
+        json!({"type": "number", "minimum": 0, "default": 1e-4, "description": "|B| at or below this is zero field; raise it above a magnet's remanence (a few mT) when the readings at its nominal zero read a field"}),
     );
-    properties.insert("field_resolution_T".into(), json!({"type": "number", "exclusiveMinimum": 0, "default": 1e-4, "description": "fields closer than this are one field when the two branches are merged"}));
+    properties.insert("field_resolution_T".into(), json!({"type": "number", "exclusiveMinimum": 0, "default": 1e-4, "description": "readings within this of the lowest |B| of their group are averaged into one field (groups are anchored, so a densely logged ramp keeps its field range)"}));
+    properties.insert("temperature_tolerance_K".into(), json!({"type": "number", "minimum": 0, "default": DEFAULT_TEMPERATURE_TOLERANCE_K, "description": "sorted temperatures further apart than this (and than temperature_relative_tolerance x T) start a new sweep"}));
+    properties.insert("temperature_relative_tolerance".into(), json!({"type": "number", "minimum": 0, "maximum": 1, "default": DEFAULT_TEMPERATURE_RELATIVE_TOLERANCE, "description": "the same gap relative to the temperature"}));
     properties
 }
 
@@ -76,6 +149,10 @@ pub struct SweepParams {
     pub zero_field_tolerance_t: Option<f64>,
     #[serde(rename = "field_resolution_T", default)]
     pub field_resolution_t: Option<f64>,
+    #[serde(rename = "temperature_tolerance_K", default)]
+    pub temperature_tolerance_k: Option<f64>,
+    #[serde(default)]
+    pub temperature_relative_tolerance: Option<f64>,
 }
 
 impl SweepParams {
@@ -89,6 +166,30 @@ impl SweepParams {
         }
         settings
     }
+
+    /// The temperature grouping of these parameters (defaults where not given).
+    pub fn grouping(&self) -> TemperatureGrouping {
+        let defaults = TemperatureGrouping::default();
+        TemperatureGrouping {
+            tolerance_k: self.temperature_tolerance_k.unwrap_or(defaults.tolerance_k),
+            relative_tolerance: self
+                .temperature_relative_tolerance
+                .unwrap_or(defaults.relative_tolerance),
+        }
+    }
+}
+
+/// The one warning of an analysis of several sweeps whose sweeps at `temperatures_k` had
+/// one field sign each (instead of one warning per sweep); `None` when there are none.
+pub fn single_field_sign_series_warning(temperatures_k: &[f64]) -> Option<String> {
+    if temperatures_k.is_empty() {
+        return None;
+    }
+    let list: Vec<String> = temperatures_k.iter().map(|t| format!("{t}")).collect();
+    Some(format!(
+        "single_field_sign: the sweeps at {} K have one field sign only, so rho_xx was taken as even in B as measured, not symmetrized: a Hall voltage picked up by misaligned longitudinal contacts (odd in B) stays in it; measure both field signs to remove it",
+        list.join(", ")
+    ))
 }
 
 /// An optional float column (absent: all `None`).
@@ -107,7 +208,11 @@ pub struct SweepTable {
     pub sample: Option<String>,
     /// The mean temperature, when the table has one, K.
     pub temperature_k: Option<f64>,
+    /// The lowest and highest temperature of its rows, K.
+    pub temperature_range_k: Option<(f64, f64)>,
     pub points: Vec<SweepPoint>,
+    /// What the grouping found questionable (a span that may chain several setpoints).
+    pub warnings: Vec<String>,
 }
 
 impl SweepTable {
@@ -141,10 +246,14 @@ fn single_sample(frame: &DataFrame) -> Result<Option<String>, AnalysisError> {
     Ok(names.pop())
 }
 
-/// The sweeps of one sample, one per temperature (rows of one table sorted into sweeps by
-/// their temperature, consecutive temperatures within [`ONE_SWEEP_TEMPERATURE_SPREAD_K`]
-/// forming one sweep), in order of temperature.
-pub fn sweeps_by_temperature(frame: &DataFrame) -> Result<Vec<SweepTable>, AnalysisError> {
+/// The sweeps of one sample, one per temperature (rows of one table sorted by temperature
+/// and split where consecutive temperatures leave a gap wider than `grouping` allows; see
+/// the module documentation), in order of temperature.
+pub fn sweeps_by_temperature(
+    frame: &DataFrame,
+    grouping: &TemperatureGrouping,
+) -> Result<Vec<SweepTable>, AnalysisError> {
+    grouping.validate()?;
     let sample = single_sample(frame)?;
     let fields = sdk::float_column(frame, "field_T")?;
     let rho_xx = sdk::float_column(frame, "rho_xx_ohm_sq")?;
@@ -169,42 +278,63 @@ pub fn sweeps_by_temperature(frame: &DataFrame) -> Result<Vec<SweepTable>, Analy
         if let (Some(xx), Some(xy)) = (rho_xx_unc[row], rho_xy_unc[row]) {
             point = point.with_uncertainty(ResistivityUncertainty::independent(xx, xy));
         }
+        if let Some(t) = temperatures[row] {
+            if !t.is_finite() {
+                return Err(invalid(format!(
+                    "row {row}: temperature_K is {t}; give a finite temperature or leave the cell empty"
+                )));
+            }
+        }
         rows.push((temperatures[row], point));
     }
-    // Stable sort by temperature keeps each sweep's own point order.
-    rows.sort_by(|a, b| a.0.unwrap_or(f64::NAN).total_cmp(&b.0.unwrap_or(f64::NAN)));
+    // Stable sort by temperature keeps each sweep's own point order; rows without a
+    // temperature sort last and join the last sweep.
+    rows.sort_by(|a, b| a.0.unwrap_or(f64::INFINITY).total_cmp(&b.0.unwrap_or(f64::INFINITY)));
     let mut sweeps: Vec<SweepTable> = Vec::new();
-    let mut first_temperature: Option<f64> = None;
+    let mut previous: Option<f64> = None;
     for (temperature, point) in rows {
-        let starts_new = match (sweeps.last(), temperature, first_temperature) {
+        let starts_new = match (sweeps.last(), temperature, previous) {
             (None, _, _) => true,
-            (Some(_), Some(t), Some(first)) => t - first > ONE_SWEEP_TEMPERATURE_SPREAD_K,
+            (Some(_), Some(t), Some(before)) => t - before > grouping.allowed_gap_k(before),
             _ => false,
         };
         if starts_new {
-            first_temperature = temperature;
             sweeps.push(SweepTable {
                 sample: sample.clone(),
                 temperature_k: None,
+                temperature_range_k: None,
                 points: Vec::new(),
+                warnings: Vec::new(),
             });
         }
-        sweeps.last_mut().expect("a sweep exists").points.push(point);
+        let sweep = sweeps.last_mut().expect("a sweep exists");
+        sweep.points.push(point);
         if let Some(t) = temperature {
-            let sweep = sweeps.last_mut().expect("a sweep exists");
+            previous = Some(t);
             let count = sweep.points.len() as f64;
             sweep.temperature_k = Some(sweep.temperature_k.map_or(t, |mean| mean + (t - mean) / count));
+            sweep.temperature_range_k = Some(sweep.temperature_range_k.map_or((t, t), |(low, _)| (low, t)));
         }
     }
     if sweeps.is_empty() {
         return Err(invalid("the sweep table is empty"));
     }
+    for sweep in &mut sweeps {
+        if let (Some((low, high)), Some(mean)) = (sweep.temperature_range_k, sweep.temperature_k) {
+            if high - low > CHAINED_SPAN_GAPS * grouping.allowed_gap_k(low) && high > low {
+                sweep.warnings.push(format!(
+                    "the sweep at {mean:.4} K holds temperatures from {low:.4} K to {high:.4} K, each within the allowed gap of the next ({}); if these are several setpoints, lower temperature_tolerance_K or temperature_relative_tolerance so that they are told apart",
+                    grouping.describe()
+                ));
+            }
+        }
+    }
     Ok(sweeps)
 }
 
 /// The single sweep of a table; refuses a table holding several samples or temperatures.
-pub fn single_sweep(frame: &DataFrame) -> Result<SweepTable, AnalysisError> {
-    let mut sweeps = sweeps_by_temperature(frame)?;
+pub fn single_sweep(frame: &DataFrame, grouping: &TemperatureGrouping) -> Result<SweepTable, AnalysisError> {
+    let mut sweeps = sweeps_by_temperature(frame, grouping)?;
     if sweeps.len() > 1 {
         let temperatures: Vec<String> = sweeps
             .iter()
@@ -212,8 +342,9 @@ pub fn single_sweep(frame: &DataFrame) -> Result<SweepTable, AnalysisError> {
             .map(|t| format!("{t:.4} K"))
             .collect();
         return Err(invalid(format!(
-            "the sweep table holds sweeps at {}; run with group_by [\"sample\", \"temperature_K\"] so that each call sees one temperature",
-            temperatures.join(", ")
+            "the sweep table holds sweeps at {} (a gap between sorted temperatures wider than {} starts a new sweep); run with group_by [\"sample\", \"temperature_K\"] so that each call sees one temperature, or raise temperature_tolerance_K if they are one sweep",
+            temperatures.join(", "),
+            grouping.describe()
         )));
     }
     Ok(sweeps.pop().expect("one sweep"))
@@ -234,22 +365,131 @@ mod tests {
             "rho_xy_ohm" => [1.0, 2.0, 3.0, 4.0, 5.0, 6.0],
         )
         .unwrap();
-        let sweeps = sweeps_by_temperature(&frame).unwrap();
+        let sweeps = sweeps_by_temperature(&frame, &TemperatureGrouping::default()).unwrap();
         assert_eq!(sweeps.len(), 2);
         assert_eq!(sweeps[0].points.len(), 3);
         assert!((sweeps[0].temperature_k.unwrap() - 2.00333).abs() < 1e-4);
         assert_eq!(sweeps[0].sample.as_deref(), Some("s"));
         // Point order within a sweep is kept.
         assert_eq!(sweeps[0].points[0].field_t, -1.0);
-        assert!(single_sweep(&frame).unwrap_err().to_string().contains("group_by"));
+        assert!(single_sweep(&frame, &TemperatureGrouping::default())
+            .unwrap_err()
+            .to_string()
+            .contains("group_by"));
     }
 
     #[test]
     fn several_samples_and_empty_cells_are_refused() {
         let frame = df!("sample" => ["a", "b"], "field_T" => [1.0, -1.0], "rho_xx_ohm_sq" => [1.0, 1.0], "rho_xy_ohm" => [0.1, -0.1]).unwrap();
-        assert!(single_sweep(&frame).unwrap_err().to_string().contains("2 samples"));
+        assert!(single_sweep(&frame, &TemperatureGrouping::default())
+            .unwrap_err()
+            .to_string()
+            .contains("2 samples"));
         let frame =
             df!("field_T" => [Some(1.0), None], "rho_xx_ohm_sq" => [1.0, 1.0], "rho_xy_ohm" => [0.1, -0.1]).unwrap();
-        assert!(single_sweep(&frame).unwrap_err().to_string().contains("row 1"));
+        assert!(single_sweep(&frame, &TemperatureGrouping::default())
+            .unwrap_err()
+            .to_string()
+            .contains("row 1"));
+    }
+
+    /// A table of `per_sweep` rows at each temperature, each row's temperature offset by
+    /// `drift(k)` (the stage's drift during the sweep).
+    fn series(temperatures: &[f64], per_sweep: usize, drift: impl Fn(usize) -> f64) -> DataFrame {
+        let (mut t, mut b, mut xx, mut xy) = (vec![], vec![], vec![], vec![]);
+        for &temperature in temperatures {
+            for k in 0..per_sweep {
+                t.push(temperature + drift(k));
+                b.push(k as f64 - (per_sweep / 2) as f64);
+                xx.push(100.0);
+                xy.push(1.0);
+            }
+        }
+        df!("temperature_K" => t, "field_T" => b, "rho_xx_ohm_sq" => xx, "rho_xy_ohm" => xy).unwrap()
+    }
+
+    fn means(sweeps: &[SweepTable]) -> Vec<f64> {
+        sweeps.iter().map(|s| s.temperature_k.unwrap()).collect()
+    }
+
+    // The default grouping keeps distinct setpoints apart (a sub-kelvin series in 0.1 K
+    // steps, 2 K and 3 K) and keeps together one sweep whose stage drifts by tens of mK, or
+    // by 1 % of T at room temperature over 25 readings.
+    #[test]
+    fn grouping_never_merges_distinct_setpoints_and_keeps_drifting_sweeps_whole() {
+        let grouping = TemperatureGrouping::default();
+        let sub_kelvin: Vec<f64> = (3..=15).map(|k| 0.1 * k as f64).collect();
+        let sweeps = sweeps_by_temperature(&series(&sub_kelvin, 21, |_| 0.0), &grouping).unwrap();
+        assert_eq!(sweeps.len(), 13);
+        for (mean, expected) in means(&sweeps).iter().zip(&sub_kelvin) {
+            assert!((mean - expected).abs() < 1e-12, "{mean} vs {expected}");
+        }
+        let demo = [2.0, 3.0, 4.5, 6.0, 8.0, 10.0];
+        let sweeps = sweeps_by_temperature(&series(&demo, 11, |_| 0.0), &grouping).unwrap();
+        assert_eq!(means(&sweeps), demo.to_vec());
+        // 30 mK of drift along each sweep at 0.3 .. 1.5 K (a ramp of 21 readings).
+        let sweeps = sweeps_by_temperature(&series(&sub_kelvin, 21, |k| 0.0015 * k as f64), &grouping).unwrap();
+        assert_eq!(sweeps.len(), 13);
+        assert!(sweeps.iter().all(|s| s.points.len() == 21 && s.warnings.is_empty()));
+        let (low, high) = sweeps[0].temperature_range_k.unwrap();
+        assert!((high - low - 0.03).abs() < 1e-12);
+        // 1 % of 300 K (3 K) over 25 readings: gaps of 0.125 K against the 1.5 K allowed.
+        let sweeps = sweeps_by_temperature(&series(&[300.0], 25, |k| 0.125 * k as f64), &grouping).unwrap();
+        assert_eq!(sweeps.len(), 1);
+        assert!(sweeps[0].warnings.is_empty());
+    }
+
+    // The tolerance is a parameter: raised, it merges 2 K and 3 K; zero keeps every distinct
+    // temperature apart; bad values are refused naming the parameter.
+    #[test]
+    fn grouping_tolerance_is_a_parameter_and_bad_values_are_refused() {
+        let frame = series(&[2.0, 3.0], 5, |_| 0.0);
+        let params: SweepParams = serde_json::from_value(json!({"temperature_tolerance_K": 1.5})).unwrap();
+        assert_eq!(sweeps_by_temperature(&frame, &params.grouping()).unwrap().len(), 1);
+        let exact = TemperatureGrouping {
+            tolerance_k: 0.0,
+            relative_tolerance: 0.0,
+        };
+        let drifting = series(&[2.0], 4, |k| 1e-3 * k as f64);
+        assert_eq!(sweeps_by_temperature(&drifting, &exact).unwrap().len(), 4);
+        for (tolerance_k, relative_tolerance, name) in [
+            (-0.1, 0.0, "temperature_tolerance_K"),
+            (f64::NAN, 0.0, "temperature_tolerance_K"),
+            (0.05, -1.0, "temperature_relative_tolerance"),
+        ] {
+            let grouping = TemperatureGrouping {
+                tolerance_k,
+                relative_tolerance,
+            };
+            let message = sweeps_by_temperature(&frame, &grouping).unwrap_err().to_string();
+            assert!(message.contains(name), "{message}");
+            assert!(!message.ends_with('.'));
+        }
+        let message = single_sweep(&frame, &TemperatureGrouping::default())
+            .unwrap_err()
+            .to_string();
+        assert!(message.contains("temperature_tolerance_K"), "{message}");
+        let bad = df!("temperature_K" => [2.0, f64::NAN], "field_T" => [1.0, -1.0], "rho_xx_ohm_sq" => [1.0, 1.0], "rho_xy_ohm" => [0.1, -0.1]).unwrap();
+        let message = single_sweep(&bad, &TemperatureGrouping::default())
+            .unwrap_err()
+            .to_string();
+        assert!(
+            message.contains("row 1") && message.contains("temperature_K"),
+            "{message}"
+        );
+    }
+
+    // Setpoints chained by readings in between (a temperature ramp logged as one table) are
+    // one group by the gap rule; the warning names both parameters.
+    #[test]
+    fn grouping_warns_when_a_sweep_spans_many_allowed_gaps() {
+        let ramp = series(&[2.0], 41, |k| 0.025 * k as f64);
+        let sweeps = sweeps_by_temperature(&ramp, &TemperatureGrouping::default()).unwrap();
+        assert_eq!(sweeps.len(), 1);
+        let warning = sweeps[0].warnings.join(" ");
+        assert!(
+            warning.contains("temperature_tolerance_K") && warning.contains("temperature_relative_tolerance"),
+            "{warning}"
+        );
     }
 }

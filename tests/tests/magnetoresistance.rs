@@ -154,16 +154,22 @@ async fn sweeps_without_zero_field_or_with_one_sign_are_refused_clearly() {
     daemon
         .call("dataset.import", json!({"name": "one-sign", "columns": one_sign}))
         .await;
-    for analysis in ["mr.symmetrize", "mr.ratio", "mr.two_band_fit"] {
-        let (code, message) = daemon
-            .call_error(
-                "analysis.run",
-                json!({"analysis": analysis, "inputs": {"sweep": "one-sign"}, "output": "y"}),
-            )
-            .await;
-        assert_eq!(code, 4007, "{analysis}: {message}");
-        assert!(message.contains("sign"), "{analysis}: {message}");
-    }
+    // Separating the parts needs both signs; the ratio takes one sign as measured, flagged.
+    let (code, message) = daemon
+        .call_error(
+            "analysis.run",
+            json!({"analysis": "mr.symmetrize", "inputs": {"sweep": "one-sign"}, "output": "y"}),
+        )
+        .await;
+    assert_eq!(code, 4007, "{message}");
+    assert!(message.contains("measure the negative branch"), "{message}");
+    let ratio = daemon
+        .call(
+            "analysis.run",
+            json!({"analysis": "mr.ratio", "inputs": {"sweep": "one-sign"}, "output": "y"}),
+        )
+        .await;
+    assert_eq!(ratio["summary"]["single_field_sign"], json!(true), "{ratio}");
     // Kohler needs the temperature of each curve, and more than one curve.
     let (code, message) = daemon
         .call_error(

@@ -179,8 +179,27 @@ async fn bad_sweeps_get_clear_errors() {
     missing["rho_xy_ohm"][4] = Value::Null;
     let tiny =
         json!({"field_T": [-1.0, 0.0, 1.0], "rho_xx_ohm_sq": [100.0, 100.0, 100.0], "rho_xy_ohm": [10.0, 0.0, -10.0]});
+    // One field sign with rho_xy is used as measured and flagged.
+    daemon
+        .call("dataset.import", json!({"name": "one-sign", "columns": positive_only}))
+        .await;
+    for analysis in ["spectrum.multi_carrier_fit", "spectrum.mobility"] {
+        let result = daemon
+            .call(
+                "analysis.run",
+                json!({"analysis": analysis, "inputs": {"sweep": "one-sign"}, "output": "one-sign-result", "overwrite": true}),
+            )
+            .await;
+        assert_eq!(
+            result["summary"]["single_field_sign"],
+            json!(true),
+            "{analysis}: {result}"
+        );
+    }
+    let zero_only =
+        json!({"field_T": [0.0, 0.0, 0.0], "rho_xx_ohm_sq": [100.0, 100.0, 100.0], "rho_xy_ohm": [0.0, 0.0, 0.0]});
     for (name, columns, fragment) in [
-        ("one-sign", positive_only, "sign"),
+        ("zero-only", zero_only, "zero field"),
         ("negative-rho", negative, "rho_xx"),
         ("missing", missing, "rho_xy_ohm"),
         ("tiny", tiny, "point"),

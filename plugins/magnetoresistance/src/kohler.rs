@@ -11,8 +11,7 @@
 //! In a conductor whose carriers keep their densities and share one relaxation time tau(T),
 //! every mobility is tau times a constant, so mu_i B is proportional to B / rho(0) and the
 //! magnetoresistance, a function of the mu_i B alone, is MR = F(B / rho(0)) with one F for
-//! every temperature (M. Kohler, 1938, from memory; the rule MR = F(B / rho_0) as in
-//! check-values, "Magnetoresistance").
+//! every temperature (M. Kohler, Ann. Phys. 424, 211, 1938; the reference from memory).
 //! The curves of MR against x = B / rho(0) then collapse onto one. They do not when the
 //! density changes with temperature (freeze-out, a thermally activated band), when carriers
 //! scatter differently (their mobilities scale by different factors), or when a mechanism

@@ -9,11 +9,14 @@
 //! 1. **Symmetrization.** The sweep is symmetrized by `mobilis_core::sweep::symmetrize`
 //!    (the same as `mr.symmetrize`): MR is computed from the even part of rho_xx on the
 //!    common |B| grid, so a Hall voltage picked up by the longitudinal contacts (odd in B)
-//!    does not enter it. A sweep with one field sign only is refused there.
+//!    does not enter it. A sweep with one field sign only (most superconducting-magnet runs)
+//!    is used as measured, rho_xx being even in B: the curve says so
+//!    ([`MrCurve::single_field_sign`]) and warns that such a pickup stays in it.
 //! 2. **rho(0)**, by [`ZeroFieldResistivity`]:
 //!    - `Measured` (default): the mean rho_xx of the points with |B| at or below the
-//!      zero-field tolerance of the symmetrization (the zero-field node of the symmetrized
-//!      sweep). Its uncertainty is the propagated one when the points carry uncertainties
+//!      zero-field tolerance of the symmetrization (`zero_field_tolerance_T`, default
+//!      1e-4 T; the zero-field node of the symmetrized sweep). A magnet's remanence of a few
+//!      mT at its nominal zero is a field unless that tolerance is raised above it. Its uncertainty is the propagated one when the points carry uncertainties
 //!      (sqrt(sum u_i^2) / k), otherwise the standard error of the mean of two or more
 //!      points, otherwise none. A sweep without such a point is refused: MR is a ratio to
 //!      rho(0), and a value invented for it would shift every point.
@@ -39,7 +42,7 @@
 //!    scattering, or a drifting temperature between the zero-field and the field points.
 
 use mobilis_core::fit::{fit_line, FitError};
-use mobilis_core::sweep::{symmetrize, SweepError, SweepPoint, SymmetrizeSettings, Symmetrized};
+use mobilis_core::sweep::{symmetrize, SweepError, SweepPoint, SweepUse, SymmetrizeSettings, Symmetrized};
 
 /// Grid fields the default extrapolation uses.
 pub const DEFAULT_EXTRAPOLATION_POINTS: usize = 5;
@@ -123,6 +126,8 @@ pub struct MrCurve {
     pub max_mr: f64,
     pub max_mr_field_t: f64,
     pub symmetrized: Symmetrized,
+    /// True when the sweep had one field sign and was used as measured.
+    pub single_field_sign: bool,
     pub warnings: Vec<String>,
 }
 
@@ -157,7 +162,7 @@ impl std::fmt::Display for RatioError {
                 lowest_field_t,
             } => write!(
                 f,
-                "the sweep has no point at zero field (|B| <= {tolerance_t} T; the lowest |B| is {lowest_field_t} T), so rho(0) is unknown; measure at zero field, raise zero_field_tolerance_t if the lowest field is zero within the magnet's remanence, or extrapolate rho(0) quadratically from the lowest fields"
+                "the sweep has no point at zero field (|B| <= {tolerance_t} T; the lowest |B| is {lowest_field_t} T), so rho(0) is unknown; measure at zero field, raise zero_field_tolerance_T if the lowest field is zero within the magnet's remanence, or extrapolate rho(0) quadratically from the lowest fields"
             ),
             RatioError::TooFewForExtrapolation { available, required } => write!(
                 f,
@@ -342,7 +347,7 @@ fn curve(symmetrized: Symmetrized, zero_field: ZeroFieldValue) -> MrCurve {
         }
     });
 
-    let mut warnings = Vec::new();
+    let mut warnings = symmetrized.warnings(SweepUse::EvenRhoXx);
     let negative: Vec<&MrPoint> = points
         .iter()
         .filter(|p| match p.mr_unc {
@@ -375,6 +380,7 @@ fn curve(symmetrized: Symmetrized, zero_field: ZeroFieldValue) -> MrCurve {
         max_mr_field_t,
         points,
         zero_field,
+        single_field_sign: symmetrized.single_field_sign,
         symmetrized,
         warnings,
     }

@@ -50,14 +50,23 @@
 //! Both are diagnostics of the contacts; the symmetrized parts are free of them to first
 //! order whatever their size.
 //!
+//! # One field sign
+//!
+//! A sweep measured at one field sign has no second branch to separate the parts with, so
+//! `mr.symmetrize` refuses it (naming the missing sign); the analyses that need only the
+//! even part of rho_xx, or accept the misalignment with a flag, take it as measured
+//! (`single_field_sign`).
+//!
 //! # Warnings
 //!
-//! - measured points outside the field range both branches cover (they are not used);
+//! - measured points outside the field range both branches cover (they are not used; the
+//!   warning of `mobilis_core::sweep::Symmetrized::outside_overlap_warning`, which names
+//!   `zero_field_tolerance_T` for a magnet's remanence at its nominal zero);
 //! - |rho_xy_even| above |rho_xy| at the highest field of the grid: the Hall signal is then
 //!   the small difference of two large readings, and any drift or field error between the
 //!   branches enters it at full size.
 
-use mobilis_core::sweep::{symmetrize, SweepError, SymmetrizeSettings, Symmetrized};
+use mobilis_core::sweep::{symmetrize, SweepError, SweepUse, SymmetrizeSettings, Symmetrized};
 
 pub use mobilis_core::sweep::{FieldGrid, ResistivityUncertainty, SweepPoint};
 
@@ -196,6 +205,15 @@ pub fn symmetrize_sweep(
         }
     }
     let symmetrized = symmetrize(points, &options.sweep)?;
+    if let Some(present) = symmetrized.measured_sign() {
+        let fields = points.iter().map(|p| p.field_t.abs());
+        return Err(SymmetrizeError::Sweep(SweepError::OneFieldSign {
+            present,
+            missing: if present == "positive" { "negative" } else { "positive" },
+            min_t: fields.clone().fold(f64::INFINITY, f64::min),
+            max_t: fields.fold(0.0, f64::max),
+        }));
+    }
     Ok(describe(symmetrized, options.misalignment_max_field_t))
 }
 
@@ -222,12 +240,13 @@ pub fn describe(symmetrized: Symmetrized, misalignment_max_field_t: Option<f64>)
     let misalignment = misalignment_estimate(&rows, symmetrized.overlap_t.1, misalignment_max_field_t);
     let hall_pickup = pickup_estimate(&rows);
 
-    let mut warnings = Vec::new();
-    if symmetrized.points_outside_overlap > 0 {
-        warnings.push(format!(
-            "{} measured point(s) lie outside the |B| range both field signs cover, [{:.4}, {:.4}] T, and were not used; measure both signs over the same range to use them",
-            symmetrized.points_outside_overlap, symmetrized.overlap_t.0, symmetrized.overlap_t.1
-        ));
+    // Every unused point is reported here, however little field range it takes: describing
+    // the symmetrization is this analysis's job.
+    let mut warnings = symmetrized.warnings(SweepUse::Tensor);
+    if let Some(outside) = symmetrized.outside_overlap_warning() {
+        if !warnings.contains(&outside) {
+            warnings.push(outside);
+        }
     }
     if let Some(top) = rows.last() {
         if top.field_t > 0.0 && top.rho_xy_even_ohm.abs() > top.rho_xy_ohm.abs() {

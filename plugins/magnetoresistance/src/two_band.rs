@@ -13,8 +13,8 @@
 //! tensors add (Beck and Anderson, J. Appl. Phys. 62, 541, 1987), and the resistivity is the
 //! inverse of the sum: `mobilis_core::forward::tensor`, the same forward model that
 //! generates the synthetic sweeps, evaluated by [`two_band_resistivity`]. For an electron
-//! (n, mu_n) and a hole (p, mu_p) band it is the closed two-band form of check-values
-//! ("Magnetoresistance"), D = (n mu_n + p mu_p)^2 + (p - n)^2 mu_n^2 mu_p^2 B^2,
+//! (n, mu_n) and a hole (p, mu_p) band it is the closed two-band form (the two-band model,
+//! Ashcroft and Mermin, Solid State Physics, 1976, ch. 12, problem 4; from memory), D = (n mu_n + p mu_p)^2 + (p - n)^2 mu_n^2 mu_p^2 B^2,
 //!
 //! - rho_xx = [(n mu_n + p mu_p) + (n mu_n mu_p^2 + p mu_p mu_n^2) B^2] / (e D),
 //! - rho_xy = B [(p mu_p^2 - n mu_n^2) + (p - n) mu_n^2 mu_p^2 B^2] / (e D),
@@ -27,7 +27,10 @@
 //!
 //! 1. **Data.** [`fit_two_band_sweep`] symmetrizes the sweep (`mobilis_core::sweep`, as
 //!    `mr.symmetrize` does) and fits the even rho_xx and odd rho_xy at +|B| of the common
-//!    grid; [`fit_two_band`] fits resistivity points as given (any field sign). Every value
+//!    grid; a sweep at one field sign is used as measured, rho_xy taken as odd without the
+//!    Hall misalignment removed (`single_field_sign` and a warning, from
+//!    `mobilis_core::sweep::Symmetrized::warnings`); [`fit_two_band`] fits resistivity
+//!    points as given (any field sign). Every value
 //!    finite, rho_xx > 0, uncertainties on every point or none, some point in field.
 //! 2. **Residuals, in resistivity space.** Two per field, (model - data) of rho_xx and
 //!    rho_xy, whitened jointly by the point's 2 x 2 covariance (uncertainties and
@@ -84,7 +87,7 @@ use mobilis_core::forward::tensor::{
 };
 use mobilis_core::linalg::{Matrix, Svd};
 use mobilis_core::noise::Rng;
-use mobilis_core::sweep::{symmetrize, SweepError, SymmetrizeSettings, Symmetrized};
+use mobilis_core::sweep::{symmetrize, SweepError, SweepUse, SymmetrizeSettings, Symmetrized};
 use mobilis_core::tensor_data::{TensorData, TensorDataError};
 
 pub use mobilis_core::forward::tensor::{Carrier, CarrierKind, ResistivityTensor};
@@ -258,7 +261,7 @@ pub struct TwoBandSweepFit {
 #[derive(Debug, Clone, PartialEq)]
 #[non_exhaustive]
 pub enum TwoBandError {
-    /// The sweep could not be symmetrized (one field sign only, rho_xx <= 0, NaN ...).
+    /// The sweep could not be symmetrized (zero field only, rho_xx <= 0, NaN ...).
     Sweep(SweepError),
     NoPoints,
     NonFinite {
@@ -658,7 +661,8 @@ pub fn fit_two_band_sweep(
     validate_settings(settings)?;
     let symmetrized = symmetrize(points, sweep_settings)?;
     let grid: Vec<SweepPoint> = symmetrized.points.iter().map(|p| p.to_sweep_point()).collect();
-    let fit = fit_two_band(&grid, settings)?;
+    let mut fit = fit_two_band(&grid, settings)?;
+    fit.warnings.splice(0..0, symmetrized.warnings(SweepUse::Tensor));
     Ok(TwoBandSweepFit { symmetrized, fit })
 }
 

@@ -30,6 +30,10 @@
 //!    tensor inversion), 1 / rho_xx otherwise (exact to second order in the Hall angle,
 //!    which is small in the films this fit is for). The sweep need not be symmetrized: the
 //!    correction is even in B and the fit uses |B|, so the two branches simply both enter.
+//!    A sweep at one field sign (nonzero fields of one sign only) is fitted the same way and
+//!    flagged ([`WeakLocalizationFit::single_field_sign`], with a warning): a Hall voltage
+//!    picked up by misaligned longitudinal contacts, odd in B, then stays in rho_xx instead
+//!    of averaging out between the branches.
 //! 3. **Zero field.** sigma(0) is the mean sigma_xx of the points with |B| <=
 //!    `zero_field_tolerance_t` (default 1e-3 T); a sweep without such a point is refused,
 //!    since d_sigma is defined against it and the cusp at zero field carries B_phi. With
@@ -148,6 +152,8 @@ pub struct WeakLocalizationFit {
     pub fitted_points: usize,
     /// True when the residuals were weighted by the given uncertainties.
     pub weighted: bool,
+    /// True when the nonzero fields were all of one sign (see the module documentation).
+    pub single_field_sign: bool,
     /// Every point of the sweep, in input order.
     pub curve: Vec<CorrectionPoint>,
     pub warnings: Vec<String>,
@@ -233,11 +239,11 @@ impl fmt::Display for WeakLocalizationError {
                 lowest_field_t,
             } => write!(
                 f,
-                "no point lies at zero field (|B| <= {tolerance_t} T; the lowest |B| is {lowest_field_t} T): d_sigma is sigma(B) - sigma(0), so measure a point at zero field, or raise zero_field_tolerance_t if the zero-field setpoint reads a small residual field"
+                "no point lies at zero field (|B| <= {tolerance_t} T; the lowest |B| is {lowest_field_t} T): d_sigma is sigma(B) - sigma(0), so measure a point at zero field, or raise zero_field_tolerance_T if the zero-field setpoint reads a small residual field (a magnet's remanence)"
             ),
             WeakLocalizationError::TooFewPoints { points, required } => write!(
                 f,
-                "{points} nonzero fields are within the fitted range, but the fit needs at least {required}; give more low-field points, raise max_field_t, or fit fewer terms"
+                "{points} nonzero fields are within the fitted range, but the fit needs at least {required}; give more low-field points, raise max_field_T, or fit fewer terms"
             ),
             WeakLocalizationError::InvalidSetting {
                 name,
@@ -433,6 +439,23 @@ pub fn fit_weak_localization(
     let ln_b_unc = finite(fit.standard_errors[1]);
     let l_phi = phase_coherence_length_m(b_phi);
     let mut warnings = Vec::new();
+    let nonzero = || {
+        sweep
+            .field_t
+            .iter()
+            .filter(|b| b.abs() > settings.zero_field_tolerance_t)
+    };
+    let single_field_sign = !(nonzero().any(|b| *b > 0.0) && nonzero().any(|b| *b < 0.0));
+    if single_field_sign {
+        let sign = if nonzero().any(|b| *b > 0.0) {
+            "positive"
+        } else {
+            "negative"
+        };
+        warnings.push(format!(
+            "single_field_sign: the sweep has {sign} fields only, so rho_xx was taken as even in B as measured, not averaged over both signs: a Hall voltage picked up by misaligned longitudinal contacts (odd in B) stays in it; measure both field signs to remove it"
+        ));
+    }
     if b_phi < lowest / 3.0 {
         warnings.push(format!(
             "B_phi = {b_phi:.3e} T lies below a third of the lowest nonzero field ({lowest:.3e} T): the cusp is not resolved and l_phi = {l_phi:.3e} m is only a lower bound; measure closer to zero field"
@@ -461,7 +484,7 @@ pub fn fit_weak_localization(
     let dof = fit.degrees_of_freedom as f64;
     if weighted && dof > 0.0 && fit.reduced_chi_square > 1.0 + 4.0 * (2.0 / dof).sqrt() {
         warnings.push(format!(
-            "chi^2 per degree of freedom is {:.2}: more than the noise explains; add the classical term or lower max_field_t, or check the uncertainties",
+            "chi^2 per degree of freedom is {:.2}: more than the noise explains; add the classical term or lower max_field_T, or check the uncertainties",
             fit.reduced_chi_square
         ));
     }
@@ -508,6 +531,7 @@ pub fn fit_weak_localization(
         reduced_chi_square: fit.reduced_chi_square,
         fitted_points: fields.len(),
         weighted,
+        single_field_sign,
         curve,
         warnings,
     })
@@ -571,7 +595,7 @@ fn validate(sweep: &WeakLocalizationSweep, settings: &WeakLocalizationSettings) 
     };
     if !(settings.zero_field_tolerance_t.is_finite() && settings.zero_field_tolerance_t >= 0.0) {
         return invalid(
-            "zero_field_tolerance_t",
+            "zero_field_tolerance_T",
             settings.zero_field_tolerance_t,
             "give a finite tolerance of 0 or more (1e-3 T is the default)",
         );
@@ -579,7 +603,7 @@ fn validate(sweep: &WeakLocalizationSweep, settings: &WeakLocalizationSettings) 
     if let Some(max) = settings.max_field_t {
         if !(max.is_finite() && max > settings.zero_field_tolerance_t) {
             return invalid(
-                "max_field_t",
+                "max_field_T",
                 max,
                 "give a finite field above the zero-field tolerance, or leave it out to fit every field",
             );

@@ -1,8 +1,13 @@
 //! Table glue of the spectrum analyses: the `sweep` role into [`SweepPoint`]s, the
 //! parameters into settings, and the results into tables ready to plot and summaries.
+//!
+//! A sweep at one field sign is accepted when it has rho_xy (the `sweep` role requires it):
+//! `mobilis_core::sweep::symmetrize` uses the branch as measured, and both analyses report
+//! `single_field_sign: true` with a warning that the misalignment of the Hall contacts (a
+//! part of rho_xx picked up in rho_xy, even in B) could not be removed.
 
 use crate::mobility_spectrum::{
-    mobility_spectrum_of_sweep, GridRange, RegularizationRule, SpectrumError, SpectrumSettings,
+    mobility_spectrum_of_symmetrized, GridRange, RegularizationRule, SpectrumError, SpectrumSettings,
 };
 use crate::multi_carrier::{
     fit_sweep_monitored, Calibration, CarrierSelection, InformationCriterion, MultiCarrierError, MultiCarrierSettings,
@@ -10,6 +15,7 @@ use crate::multi_carrier::{
 use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType};
 use mobilis_core::forward::tensor::CarrierKind;
 use mobilis_core::sdk::{Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
+use mobilis_core::sweep::{symmetrize, SweepUse};
 use mobilis_core::sweep_table::{single_sweep, sweep_role, sweep_schema_properties, SweepParams};
 use polars::prelude::*;
 use serde::Deserialize;
@@ -21,6 +27,16 @@ fn invalid(message: impl Into<String>) -> AnalysisError {
 
 fn column(name: &str, dtype: ColumnType, unit: Option<&str>, description: &str) -> ColumnSpec {
     ColumnSpec::new(name, dtype, unit, description)
+}
+
+/// The summary key that says a sweep was used as measured at one field sign.
+fn single_field_sign_key() -> ColumnSpec {
+    column(
+        "single_field_sign",
+        ColumnType::Bool,
+        None,
+        "true when the sweep had one field sign: used as measured, the Hall contacts' misalignment not removed",
+    )
 }
 
 fn carrier_type(kind: CarrierKind) -> &'static str {
@@ -80,7 +96,7 @@ impl Analysis for MultiCarrierFitAnalysis {
         AnalysisDeclaration {
             name: String::new(),
             summary: "Sheet density and mobility of each carrier from the field dependence of sigma_xx and sigma_xy (discrete multi-carrier fit)".into(),
-            description: "Symmetrizes rho_xx and antisymmetrizes rho_xy (interpolating each field branch), converts to the conductivity tensor and fits N Drude carriers jointly to sigma_xx(B) and sigma_xy(B), weighted by the uncertainties, from many starts. Without a carrier list N grows while the information criterion improves, trying every electron/hole split. Warns when carriers cannot be told apart in the field range (mu B_max < 1).".into(),
+            description: "Symmetrizes rho_xx and antisymmetrizes rho_xy (interpolating each field branch), converts to the conductivity tensor and fits N Drude carriers jointly to sigma_xx(B) and sigma_xy(B), weighted by the uncertainties, from many starts. Without a carrier list N grows while the information criterion improves, trying every electron/hole split. Warns when carriers cannot be told apart in the field range (mu B_max < 1). A sweep at one field sign is used as measured and flagged single_field_sign.".into(),
             params: json!({"type": "object", "additionalProperties": false, "properties": properties}),
             inputs: vec![sweep_role(false)],
             outputs: vec![
@@ -96,14 +112,18 @@ impl Analysis for MultiCarrierFitAnalysis {
                 column("residual_xx", F64, None, "whitened residual of sigma_xx"),
                 column("residual_xy", F64, None, "whitened residual of sigma_xy"),
             ],
-            summary_keys: vec![column("carriers", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc")],
+            summary_keys: vec![
+                column("carriers", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc"),
+                single_field_sign_key(),
+            ],
         }
     }
 
     fn run(params: MultiCarrierParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
         let sweep = inputs.required("sweep")?;
-        let table = single_sweep(sweep)?;
+        let table = single_sweep(sweep, &params.sweep.grouping())?;
         let (points, identity) = (table.points.clone(), Value::Object(table.identity()));
+        let grouping_warnings = table.warnings.clone();
         let mut settings = MultiCarrierSettings::default();
         settings.selection = match (&params.carriers, params.max_carriers) {
             (Some(list), _) => CarrierSelection::Kinds(
@@ -208,7 +228,10 @@ impl Analysis for MultiCarrierFitAnalysis {
             "max_interpolation_correction".into(),
             json!(result.max_interpolation_correction),
         );
-        output.warnings = fit.warnings.clone();
+        summary.insert("single_field_sign".into(), json!(result.symmetrized.single_field_sign));
+        output.warnings = grouping_warnings;
+        output.warnings.extend(result.symmetrized.warnings(SweepUse::Tensor));
+        output.warnings.extend(fit.warnings.iter().cloned());
         host.progress(1.0, "done");
         Ok(output)
     }
@@ -279,14 +302,18 @@ impl Analysis for MobilitySpectrumAnalysis {
                 column("hole_spectrum_S", F64, Some("S"), "d sigma / d ln mu of holes"),
                 column("hole_density_m2", F64, Some("m2"), "d n / d ln mu of holes"),
             ],
-            summary_keys: vec![column("peaks", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc")],
+            summary_keys: vec![
+                column("peaks", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc"),
+                single_field_sign_key(),
+            ],
         }
     }
 
     fn run(params: SpectrumParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
         let sweep = inputs.required("sweep")?;
-        let table = single_sweep(sweep)?;
+        let table = single_sweep(sweep, &params.sweep.grouping())?;
         let (points, identity) = (table.points.clone(), Value::Object(table.identity()));
+        let grouping_warnings = table.warnings.clone();
         let mut settings = SpectrumSettings::default();
         if let Some(count) = params.points_per_sign {
             settings.points_per_sign = count;
@@ -334,13 +361,18 @@ impl Analysis for MobilitySpectrumAnalysis {
             current_rel: params.current_calibration_rel,
             voltage_rel: params.voltage_calibration_rel,
         };
-        let spectrum = mobility_spectrum_of_sweep(&points, &params.sweep.settings(), &settings, host).map_err(
-            |error| match error {
-                SpectrumError::Cancelled => AnalysisError::Cancelled,
-                SpectrumError::Numerical(_) => AnalysisError::Numerical(error.to_string()),
-                other => invalid(other.to_string()),
-            },
-        )?;
+        let to_analysis_error = |error: SpectrumError| match error {
+            SpectrumError::Cancelled => AnalysisError::Cancelled,
+            SpectrumError::Numerical(_) => AnalysisError::Numerical(error.to_string()),
+            other => invalid(other.to_string()),
+        };
+        // Symmetrized here rather than inside the spectrum, so that the summary can say
+        // whether the sweep had one field sign.
+        let sweep_settings = params.sweep.settings();
+        let symmetrized =
+            symmetrize(&points, &sweep_settings).map_err(|error| to_analysis_error(SpectrumError::from(error)))?;
+        let spectrum = mobility_spectrum_of_symmetrized(&points, &sweep_settings, &symmetrized, &settings, host)
+            .map_err(to_analysis_error)?;
         let rows = spectrum.mobility_m2_per_vs.len();
         let table = DataFrame::new(
             rows,
@@ -372,7 +404,94 @@ impl Analysis for MobilitySpectrumAnalysis {
         summary.insert("data_count".into(), json!(spectrum.regularization.data_count));
         summary.insert("total_conductance_S".into(), json!(spectrum.total_conductance_s));
         summary.extend(crate::mobility_spectrum::summary::spectrum_summary(&spectrum));
-        output.warnings = spectrum.warnings.clone();
+        summary.insert("single_field_sign".into(), json!(symmetrized.single_field_sign));
+        output.warnings = grouping_warnings;
+        output.warnings.extend(symmetrized.warnings(SweepUse::Tensor));
+        output.warnings.extend(spectrum.warnings.iter().cloned());
         Ok(output)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use mobilis_core::forward::tensor::{synthetic_sweep, Carrier, SweepImperfections, SweepNoise};
+    use mobilis_core::noise::Rng;
+    use mobilis_core::sdk::run_typed;
+
+    /// A sweep table of one electron with a Hall misalignment, at the given signed fields.
+    fn table(fields: &[f64]) -> Inputs {
+        let carriers = [Carrier::electron(5e15, 1.2)];
+        let points = synthetic_sweep(
+            &carriers,
+            fields,
+            &SweepNoise {
+                absolute_ohm: 0.0,
+                relative: 1e-4,
+            },
+            &SweepImperfections {
+                hall_misalignment: 0.01,
+                longitudinal_hall_pickup: 0.0,
+            },
+            &mut Rng::seeded(4),
+        )
+        .unwrap();
+        let frame = DataFrame::new(
+            points.len(),
+            vec![
+                float_series("field_T", points.iter().map(|p| p.field_t).collect()),
+                float_series("rho_xx_ohm_sq", points.iter().map(|p| p.rho_xx_ohm_sq).collect()),
+                float_series("rho_xy_ohm", points.iter().map(|p| p.rho_xy_ohm).collect()),
+                float_series("temperature_K", vec![4.2; points.len()]),
+            ],
+        )
+        .unwrap();
+        Inputs::from_tables([("sweep".to_string(), frame)])
+    }
+
+    // One branch with rho_xy: both analyses run, flag single_field_sign and warn that the
+    // misalignment could not be removed; with both branches the flag is false.
+    #[test]
+    fn one_field_sign_is_flagged_by_both_analyses() {
+        let positive: Vec<f64> = (0..=30).map(|k| 0.3 * k as f64).collect();
+        let negative: Vec<f64> = positive.iter().map(|b| -b).collect();
+        let both: Vec<f64> = positive.iter().chain(&negative[1..]).copied().collect();
+        for (fields, single) in [(&positive, true), (&negative, true), (&both, false)] {
+            let inputs = table(fields);
+            let fit =
+                run_typed::<MultiCarrierFitAnalysis>(r#"{"carriers": ["n"]}"#, &inputs, &Host::detached()).unwrap();
+            assert_eq!(fit.summary["single_field_sign"], json!(single));
+            let density = fit.summary["carriers"][0]["sheet_density_m2"].as_f64().unwrap();
+            // The misalignment (1 % of rho_xx in rho_xy) stays in a single branch and moves
+            // the density by about that much; both branches remove it.
+            let tolerance = if single { 0.03 } else { 1e-3 };
+            assert!((density / 5e15 - 1.0).abs() < tolerance, "{density}");
+            let warned = fit
+                .warnings
+                .iter()
+                .any(|w| w.starts_with("single_field_sign") && w.contains("misalignment"));
+            assert_eq!(warned, single, "{:?}", fit.warnings);
+            let spectrum = run_typed::<MobilitySpectrumAnalysis>(
+                r#"{"uncertainty_replicas": 0, "points_per_sign": 40}"#,
+                &inputs,
+                &Host::detached(),
+            )
+            .unwrap();
+            assert_eq!(spectrum.summary["single_field_sign"], json!(single));
+            assert_eq!(
+                spectrum.warnings.iter().any(|w| w.starts_with("single_field_sign")),
+                single
+            );
+        }
+    }
+
+    // The temperature grouping is a parameter; a bad value is refused naming it.
+    #[test]
+    fn bad_temperature_tolerance_is_refused_with_its_name() {
+        let inputs = table(&[0.0, 1.0, 2.0, 3.0, -1.0, -2.0, -3.0]);
+        let error =
+            run_typed::<MultiCarrierFitAnalysis>(r#"{"temperature_tolerance_K": -1}"#, &inputs, &Host::detached())
+                .unwrap_err();
+        assert!(error.to_string().contains("temperature_tolerance_K"), "{error}");
     }
 }

@@ -150,7 +150,7 @@ use mobilis_core::constants::ELEMENTARY_CHARGE_C;
 pub use mobilis_core::forward::tensor::CarrierKind;
 use mobilis_core::noise::Rng;
 use mobilis_core::sdk::Host;
-use mobilis_core::sweep::{conductivity_points, symmetrize, SweepPoint, SymmetrizeSettings};
+use mobilis_core::sweep::{conductivity_points, symmetrize, SweepPoint, SymmetrizeSettings, Symmetrized};
 pub use mobilis_core::sweep::{TensorPoint, TensorUncertainty};
 
 use crate::multi_carrier::budget::{floor_uncertainties, reading_reuse_factor};
@@ -635,8 +635,21 @@ pub fn mobility_spectrum_of_sweep(
     monitor: &dyn Monitor,
 ) -> Result<MobilitySpectrum, SpectrumError> {
     let symmetrized = symmetrize(sweep, symmetrize_settings)?;
-    let reuse = reading_reuse_factor(sweep, symmetrize_settings, &symmetrized);
-    spectrum_of_points(&conductivity_points(&symmetrized), settings, monitor, reuse)
+    mobility_spectrum_of_symmetrized(sweep, symmetrize_settings, &symmetrized, settings, monitor)
+}
+
+/// The spectrum of a sweep its caller has already symmetrized (to report how, for example
+/// whether it had one field sign): `sweep` and `symmetrize_settings` are what `symmetrized`
+/// was made from, needed to count how often the grid reuses each reading.
+pub fn mobility_spectrum_of_symmetrized(
+    sweep: &[SweepPoint],
+    symmetrize_settings: &SymmetrizeSettings,
+    symmetrized: &Symmetrized,
+    settings: &SpectrumSettings,
+    monitor: &dyn Monitor,
+) -> Result<MobilitySpectrum, SpectrumError> {
+    let reuse = reading_reuse_factor(sweep, symmetrize_settings, symmetrized);
+    spectrum_of_points(&conductivity_points(symmetrized), settings, monitor, reuse)
 }
 
 /// The parametric bootstrap of the quantitative spectrum (see the module documentation):

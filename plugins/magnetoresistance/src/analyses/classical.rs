@@ -10,13 +10,24 @@ use mobilis_core::abi::AnalysisDeclaration;
 use mobilis_core::forward::tensor::CarrierKind;
 use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 use mobilis_core::sweep_table::{
-    single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature, SweepParams,
+    single_field_sign_series_warning, single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature,
+    SweepParams,
 };
 use serde::Deserialize;
 use serde_json::{json, Value};
 
 fn schema(properties: serde_json::Map<String, Value>) -> Value {
     json!({"type": "object", "additionalProperties": false, "properties": properties})
+}
+
+/// The summary key every analysis of a sweep carries.
+pub(crate) fn single_field_sign_key() -> ColumnSpec {
+    column(
+        "single_field_sign",
+        ColumnType::Bool,
+        None,
+        "true when the sweep had one field sign and was used as measured, not symmetrized (contact misalignment not removed)",
+    )
 }
 
 fn zero_field_properties(properties: &mut serde_json::Map<String, Value>) {
@@ -99,7 +110,7 @@ impl Analysis for SymmetrizeAnalysis {
     }
 
     fn run(params: SymmetrizeParams, inputs: &Inputs, _host: &Host) -> Result<AnalysisOutput, AnalysisError> {
-        let sweep = single_sweep(inputs.required("sweep")?)?;
+        let sweep = single_sweep(inputs.required("sweep")?, &params.sweep.grouping())?;
         let options = SymmetrizeOptions {
             sweep: params.sweep.settings(),
             misalignment_max_field_t: params.misalignment_max_field_t,
@@ -134,7 +145,8 @@ impl Analysis for SymmetrizeAnalysis {
         summary.insert("max_rho_xy_asymmetry".into(), json!(s.max_rho_xy_asymmetry));
         summary.insert("overlap_T".into(), json!([s.overlap_t.0, s.overlap_t.1]));
         summary.insert("points_outside_overlap".into(), json!(s.points_outside_overlap));
-        output.warnings = result.warnings.clone();
+        output.warnings = sweep.warnings.clone();
+        output.warnings.extend(result.warnings.iter().cloned());
         Ok(output)
     }
 }
@@ -163,7 +175,7 @@ impl Analysis for RatioAnalysis {
         AnalysisDeclaration {
             name: String::new(),
             summary: "Magnetoresistance (rho(B) - rho(0)) / rho(0) of a symmetrized sweep, rho(0) from the data at zero field".into(),
-            description: "rho_xx is symmetrized first; rho(0) is the mean of the zero-field points (or, with zero_field: extrapolated, a quadratic fit to the lowest fields). Uncertainties propagate when the sweep has them.".into(),
+            description: "rho_xx is symmetrized first (a sweep at one field sign is used as measured, rho_xx being even in B, and flagged single_field_sign); rho(0) is the mean of the zero-field points (|B| <= zero_field_tolerance_T) (or, with zero_field: extrapolated, a quadratic fit to the lowest fields). Uncertainties propagate when the sweep has them.".into(),
             params: schema(properties),
             inputs: vec![sweep_role(false)],
             outputs: vec![
@@ -176,12 +188,13 @@ impl Analysis for RatioAnalysis {
             summary_keys: vec![
                 column("rho0_ohm_sq", F64, Some("ohm_sq"), "zero-field sheet resistivity, with _unc"),
                 column("magnetoresistance_at_max_field", F64, None, "MR at the largest field"),
+                single_field_sign_key(),
             ],
         }
     }
 
     fn run(params: RatioParams, inputs: &Inputs, _host: &Host) -> Result<AnalysisOutput, AnalysisError> {
-        let sweep = single_sweep(inputs.required("sweep")?)?;
+        let sweep = single_sweep(inputs.required("sweep")?, &params.sweep.grouping())?;
         let settings = ratio_settings(&params.sweep, &params.zero)?;
         let curve = magnetoresistance(&sweep.points, &settings).map_err(|e| invalid(e.to_string()))?;
         let points = &curve.points;
@@ -208,7 +221,9 @@ impl Analysis for RatioAnalysis {
         summary.insert("magnetoresistance_at_max_field".into(), json!(curve.mr_at_max_field));
         summary.insert("max_magnetoresistance".into(), json!(curve.max_mr));
         summary.insert("max_magnetoresistance_field_T".into(), json!(curve.max_mr_field_t));
-        output.warnings = curve.warnings.clone();
+        summary.insert("single_field_sign".into(), json!(curve.single_field_sign));
+        output.warnings = sweep.warnings.clone();
+        output.warnings.extend(curve.warnings.iter().cloned());
         Ok(output)
     }
 }
@@ -258,14 +273,17 @@ impl Analysis for KohlerAnalysis {
             summary_keys: vec![
                 column("kohler_holds", Bool, None, "the curves collapse within the tolerance (null when nothing could be judged)"),
                 column("rms_excess_spread", F64, None, "rms spread of ln MR beyond the noise"),
+                single_field_sign_key(),
             ],
         }
     }
 
     fn run(params: KohlerParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
-        let sweeps = sweeps_by_temperature(inputs.required("sweep")?)?;
+        let sweeps = sweeps_by_temperature(inputs.required("sweep")?, &params.sweep.grouping())?;
         let ratio = ratio_settings(&params.sweep, &params.zero)?;
         let mut curves = Vec::with_capacity(sweeps.len());
+        let mut sweep_warnings: Vec<String> = Vec::new();
+        let mut single_sign_temperatures: Vec<f64> = Vec::new();
         for sweep in &sweeps {
             host.check_cancelled()?;
             let temperature = sweep
@@ -273,6 +291,17 @@ impl Analysis for KohlerAnalysis {
                 .ok_or_else(|| invalid("mr.kohler needs temperature_K: one curve per temperature"))?;
             let curve = magnetoresistance(&sweep.points, &ratio)
                 .map_err(|e| invalid(format!("sweep at {temperature} K: {e}")))?;
+            if curve.single_field_sign {
+                single_sign_temperatures.push(temperature);
+            }
+            sweep_warnings.extend(sweep.warnings.iter().cloned());
+            sweep_warnings.extend(
+                curve
+                    .warnings
+                    .iter()
+                    .filter(|w| !w.starts_with("single_field_sign"))
+                    .map(|w| format!("sweep at {temperature} K: {w}")),
+            );
             curves.push(KohlerCurve::from_ratio(temperature, &curve));
         }
         let mut settings = KohlerSettings::default();
@@ -341,7 +370,16 @@ impl Analysis for KohlerAnalysis {
                     .collect(),
             ),
         );
-        output.warnings = analysis.warnings.clone();
+        summary.insert("single_field_sign".into(), json!(!single_sign_temperatures.is_empty()));
+        summary.insert(
+            "single_field_sign_temperatures_K".into(),
+            json!(single_sign_temperatures),
+        );
+        output.warnings = single_field_sign_series_warning(&single_sign_temperatures)
+            .into_iter()
+            .chain(sweep_warnings)
+            .collect();
+        output.warnings.extend(analysis.warnings.iter().cloned());
         Ok(output)
     }
 }
@@ -391,12 +429,15 @@ impl Analysis for TwoBandAnalysis {
                 column("residual_xx", F64, None, "whitened residual"),
                 column("residual_xy", F64, None, "whitened residual"),
             ],
-            summary_keys: vec![column("carriers", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc")],
+            summary_keys: vec![
+                column("carriers", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc"),
+                single_field_sign_key(),
+            ],
         }
     }
 
     fn run(params: TwoBandParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
-        let sweep = single_sweep(inputs.required("sweep")?)?;
+        let sweep = single_sweep(inputs.required("sweep")?, &params.sweep.grouping())?;
         let mut settings = TwoBandSettings::default();
         if let Some(kinds) = &params.carriers {
             let parse = |k: &str| CarrierKind::from_code(k).map_err(invalid);
@@ -465,7 +506,9 @@ impl Analysis for TwoBandAnalysis {
             "high_field_hall_coefficient_m2_per_C".into(),
             json!(fit.high_field_hall_coefficient_m2_per_c),
         );
-        output.warnings = fit.warnings.clone();
+        summary.insert("single_field_sign".into(), json!(result.symmetrized.single_field_sign));
+        output.warnings = sweep.warnings.clone();
+        output.warnings.extend(fit.warnings.iter().cloned());
         Ok(output)
     }
 }

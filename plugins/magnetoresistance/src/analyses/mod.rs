@@ -28,3 +28,6 @@ pub(crate) fn optional(name: &str, values: Vec<Option<f64>>) -> Column {
 pub(crate) fn frame(height: usize, columns: Vec<Column>) -> Result<DataFrame, AnalysisError> {
     DataFrame::new(height, columns).map_err(|e| AnalysisError::Numerical(e.to_string()))
 }
+
+#[cfg(test)]
+mod sweep_tests;

@@ -9,9 +9,10 @@ use mobilis_core::abi::AnalysisDeclaration;
 use mobilis_core::fft::Window;
 use mobilis_core::forward::oscillations::thermal_damping_factor;
 use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
-use mobilis_core::sweep::symmetrize;
+use mobilis_core::sweep::{symmetrize, SweepUse};
 use mobilis_core::sweep_table::{
-    single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature, SweepParams,
+    single_field_sign_series_warning, single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature,
+    SweepParams,
 };
 use serde::Deserialize;
 use serde_json::{json, Value};
@@ -183,20 +184,34 @@ impl Analysis for OscillationsAnalysis {
                 column("effective_mass_ratio", F64, None, "m*/m0, with _unc"),
                 column("dingle_temperature_K", F64, Some("K"), "with _unc"),
                 column("quantum_lifetime_s", F64, Some("s"), "hbar / (2 pi k_B T_D), with _unc"),
+                super::classical::single_field_sign_key(),
             ],
         }
     }
 
     fn run(params: OscillationParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
-        let tables = sweeps_by_temperature(inputs.required("sweep")?)?;
+        let tables = sweeps_by_temperature(inputs.required("sweep")?, &params.sweep.grouping())?;
         let symmetrize_settings = params.sweep.settings();
         let mut sweeps = Vec::with_capacity(tables.len());
+        let mut sweep_warnings: Vec<String> = Vec::new();
+        let mut single_sign_temperatures: Vec<f64> = Vec::new();
         for table in &tables {
             let temperature_k = table
                 .temperature_k
                 .ok_or_else(|| invalid("mr.oscillations needs temperature_K for every sweep"))?;
             let symmetrized = symmetrize(&table.points, &symmetrize_settings)
                 .map_err(|e| invalid(format!("sweep at {temperature_k} K: {e}")))?;
+            if symmetrized.single_field_sign {
+                single_sign_temperatures.push(temperature_k);
+            }
+            sweep_warnings.extend(table.warnings.iter().cloned());
+            sweep_warnings.extend(
+                symmetrized
+                    .warnings(SweepUse::EvenRhoXx)
+                    .into_iter()
+                    .filter(|w| !w.starts_with("single_field_sign"))
+                    .map(|w| format!("sweep at {temperature_k} K: {w}")),
+            );
             let (field_t, rho_xx_ohm_sq) = symmetrized
                 .points
                 .iter()
@@ -402,7 +417,16 @@ impl Analysis for OscillationsAnalysis {
             summary.insert("landau_fan_intercept_unc".into(), json!(fan.intercept_unc));
             summary.insert("landau_fan_phase_rad".into(), json!(fan.phase_rad));
         }
-        output.warnings = analysis.warnings.clone();
+        summary.insert("single_field_sign".into(), json!(!single_sign_temperatures.is_empty()));
+        summary.insert(
+            "single_field_sign_temperatures_K".into(),
+            json!(single_sign_temperatures),
+        );
+        output.warnings = single_field_sign_series_warning(&single_sign_temperatures)
+            .into_iter()
+            .chain(sweep_warnings)
+            .collect();
+        output.warnings.extend(analysis.warnings.iter().cloned());
         host.progress(1.0, "done");
         Ok(output)
     }
@@ -438,6 +462,10 @@ pub struct WeakLocalizationParams {
     classical_term: bool,
     #[serde(default = "fit_offset_default")]
     fit_offset: bool,
+    #[serde(rename = "temperature_tolerance_K", default)]
+    temperature_tolerance_k: Option<f64>,
+    #[serde(default)]
+    temperature_relative_tolerance: Option<f64>,
 }
 
 /// A fitted offset is the default: the points averaged into sigma(0) (within
@@ -462,7 +490,9 @@ impl Analysis for WeakLocalizationAnalysis {
                 "max_field_T": {"type": "number", "exclusiveMinimum": 0, "description": "fit up to this field; default the whole sweep"},
                 "zero_field_tolerance_T": {"type": "number", "minimum": 0, "default": 1e-3, "description": "|B| at or below this gives sigma(0)"},
                 "classical_term": {"type": "boolean", "default": false, "description": "also fit a classical -c B^2 term"},
-                "fit_offset": {"type": "boolean", "default": true, "description": "fit an offset of sigma(0) instead of trusting the zero-field average (which already holds part of the cusp when B_phi is small)"}
+                "fit_offset": {"type": "boolean", "default": true, "description": "fit an offset of sigma(0) instead of trusting the zero-field average (which already holds part of the cusp when B_phi is small)"},
+                "temperature_tolerance_K": sweep_schema_properties()["temperature_tolerance_K"],
+                "temperature_relative_tolerance": sweep_schema_properties()["temperature_relative_tolerance"]
             }}),
             inputs: vec![sweep_role(false)],
             outputs: vec![
@@ -475,12 +505,19 @@ impl Analysis for WeakLocalizationAnalysis {
             summary_keys: vec![
                 column("phase_coherence_length_m", F64, Some("m"), "l_phi, with _unc"),
                 column("alpha", F64, None, "HLN prefactor (-1/2 for one channel with strong spin-orbit coupling), with _unc"),
+                super::classical::single_field_sign_key(),
             ],
         }
     }
 
     fn run(params: WeakLocalizationParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
-        let table = single_sweep(inputs.required("sweep")?)?;
+        let grouping = SweepParams {
+            temperature_tolerance_k: params.temperature_tolerance_k,
+            temperature_relative_tolerance: params.temperature_relative_tolerance,
+            ..SweepParams::default()
+        }
+        .grouping();
+        let table = single_sweep(inputs.required("sweep")?, &grouping)?;
         let sweep = WeakLocalizationSweep {
             field_t: table.points.iter().map(|p| p.field_t).collect(),
             rho_xx_ohm_sq: table.points.iter().map(|p| p.rho_xx_ohm_sq).collect(),
@@ -526,7 +563,9 @@ impl Analysis for WeakLocalizationAnalysis {
         summary.insert("zero_field_conductance_S".into(), json!(fit.zero_field_conductance_s));
         summary.insert("reduced_chi_square".into(), json!(fit.reduced_chi_square));
         summary.insert("fitted_points".into(), json!(fit.fitted_points));
-        output.warnings = fit.warnings.clone();
+        summary.insert("single_field_sign".into(), json!(fit.single_field_sign));
+        output.warnings = table.warnings.clone();
+        output.warnings.extend(fit.warnings.iter().cloned());
         Ok(output)
     }
 }

@@ -114,8 +114,8 @@ fn kohler_spread_of_two_power_laws_is_exact() {
     assert!(analysis.failures.is_empty());
 }
 
-// Kohler's rule for a two-band conductor with one relaxation time (check-values,
-// "Magnetoresistance": MR = F(B / rho_0)): scaling both mobilities by a common factor at
+// Kohler's rule for a two-band conductor with one relaxation time (M. Kohler, Ann. Phys.
+// 424, 211, 1938, from memory: MR = F(B / rho_0)): scaling both mobilities by a common factor at
 // fixed densities multiplies rho(0) by its inverse and MR depends on mu_i B only, so the
 // curves coincide exactly. What remains is the resampling error: a line through the curved
 // ln MR over a bin of half width w (0.13 in ln x here) is off by about f'' w^2 / 6, up to
@@ -133,7 +133,8 @@ fn kohler_holds_for_a_common_scattering_time() {
     );
     assert!(analysis.grid.iter().all(|g| g.curves >= 2));
     // The low-x exponent is 2 and the prefactors agree. The two-band MR that follows from the
-    // rho_xx of check-values is MR = A B^2 / (1 + g B^2), g = ((sigma_e mu_h + sigma_h mu_e) /
+    // two-band rho_xx (Ashcroft and Mermin 1976, ch. 12, problem 4; from memory) is
+    // MR = A B^2 / (1 + g B^2), g = ((sigma_e mu_h + sigma_h mu_e) /
     // (sigma_e + sigma_h))^2 with signed mobilities, 0.01 T^-2 at 300 K here; up to 0.2 T at
     // 300 K (the same x at the other temperatures) its local exponent differs from 2 by
     // 2 g B^2 / (1 + g B^2) < 1e-3.

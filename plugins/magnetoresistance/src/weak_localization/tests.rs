@@ -32,10 +32,11 @@ fn sweep(model: &WeakLocalizationModel, fields: &[f64], relative_noise: f64, see
 }
 
 // Computed from the HLN formula (Hikami, Larkin and Nagaoka, Prog. Theor. Phys. 63, 707,
-// 1980) with CODATA 2018 constants, check-values [C]: l_phi = 100 nm -> B_phi = 0.01645530 T;
+// 1980) with CODATA 2018 constants, evaluated independently (digamma by its recurrence and
+// asymptotic series, Abramowitz and Stegun 6.3.5 and 6.3.18): l_phi = 100 nm -> B_phi = 0.01645530 T;
 // alpha = -1/2: d_sigma(0.1 T) = -2.95829e-6 S, d_sigma(1 T) = -1.37039e-5 S; alpha = 1,
 // l_phi = 1 um: d_sigma(0.1 T) = +5.49278e-5 S. Noise-free sweeps are fitted, and the fitted
-// model reproduces the check values.
+// model reproduces these values.
 #[test]
 fn weak_localization_check_values_through_the_fit() {
     for (alpha, l_phi, checks) in [

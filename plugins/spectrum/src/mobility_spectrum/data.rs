@@ -7,7 +7,8 @@ use mobilis_core::sweep::TensorPoint;
 use super::error::SpectrumError;
 use super::{GridRange, SpectrumSettings, MIN_DISTINCT_FIELDS};
 
-/// Fields closer than this (T) count as one when the distinct fields are counted.
+/// Fields within this (T) of the lowest of their group count as one when the distinct
+/// fields are counted.
 const DISTINCT_FIELD_RESOLUTION_T: f64 = 1e-6;
 
 /// One weighted residual: cxx (model_xx - data_xx) + cxy (model_xy - data_xy) at a point.
@@ -101,11 +102,8 @@ impl Data {
         }
         let mut nonzero: Vec<f64> = points.iter().map(|p| p.field_t).filter(|&b| b > 0.0).collect();
         nonzero.sort_by(f64::total_cmp);
-        let distinct = nonzero
-            .windows(2)
-            .filter(|pair| pair[1] - pair[0] > DISTINCT_FIELD_RESOLUTION_T)
-            .count()
-            + usize::from(!nonzero.is_empty());
+        // Anchored groups, so that a densely logged ramp is never chained into one field.
+        let distinct = mobilis_core::sweep::anchored_groups(&nonzero, DISTINCT_FIELD_RESOLUTION_T).len();
         if distinct < MIN_DISTINCT_FIELDS {
             return Err(SpectrumError::TooFewFields {
                 distinct,

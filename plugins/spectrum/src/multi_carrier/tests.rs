@@ -343,14 +343,14 @@ fn multi_carrier_refuses_bad_input_with_clear_errors() {
     let sweep = noisy_sweep(&truth, 9.0, 8, 1);
     let settings = MultiCarrierSettings::default();
     let sym = SymmetrizeSettings::default();
-    // One field sign only.
-    let positive: Vec<SweepPoint> = sweep.iter().filter(|p| p.field_t >= 0.0).copied().collect();
-    let error = fit_sweep(&positive, &sym, &settings).unwrap_err();
+    // Readings at zero field only (one field sign is accepted, flagged single_field_sign).
+    let zero: Vec<SweepPoint> = sweep.iter().filter(|p| p.field_t == 0.0).copied().collect();
+    let error = fit_sweep(&zero, &sym, &settings).unwrap_err();
     assert!(
-        matches!(error, MultiCarrierError::Sweep(SweepError::OneFieldSign { .. })),
+        matches!(error, MultiCarrierError::Sweep(SweepError::ZeroFieldOnly { .. })),
         "{error:?}"
     );
-    assert!(error.to_string().contains("measure the negative branch too"), "{error}");
+    assert!(error.to_string().contains("zero_field_tolerance_T"), "{error}");
     // rho_xx <= 0.
     let mut negative_rho = sweep.clone();
     negative_rho[3].rho_xx_ohm_sq = -negative_rho[3].rho_xx_ohm_sq;

@@ -165,6 +165,9 @@
 //! mass, the Dingle plot and the fan use the strongest line only, and the other lines are
 //! noise to them (a warning says when a second line is above 20 % of the first).
 
+#[cfg(test)]
+mod coverage;
+mod budget;
 mod error;
 mod mass;
 mod prepare;
@@ -290,6 +293,15 @@ pub struct OscillationSettings {
     pub dingle_window_periods: Option<f64>,
     /// Build the Landau-level fan (default false).
     pub landau_fan: bool,
+    /// Repeat the analysis with other backgrounds and a shorter window and add the spread of
+    /// the results to the uncertainties (default true; see "Uncertainties").
+    pub model_spread: bool,
+    /// Relative standard uncertainty of the field calibration (Type B; default: not given,
+    /// not included).
+    pub field_relative_accuracy: Option<f64>,
+    /// Standard uncertainty of the thermometer, K, common to every sweep (Type B; default:
+    /// not given, not included).
+    pub temperature_accuracy_k: Option<f64>,
 }
 
 impl Default for OscillationSettings {
@@ -315,6 +327,9 @@ impl Default for OscillationSettings {
             dingle: true,
             dingle_window_periods: None,
             landau_fan: false,
+            model_spread: true,
+            field_relative_accuracy: None,
+            temperature_accuracy_k: None,
         }
     }
 }
@@ -423,6 +438,24 @@ impl OscillationSettings {
                 self.mass_window_periods,
                 "give at least 1 period per window",
             );
+        }
+        if let Some(accuracy) = self.field_relative_accuracy {
+            if !(accuracy.is_finite() && (0.0..0.5).contains(&accuracy)) {
+                return invalid(
+                    "field_relative_accuracy",
+                    accuracy,
+                    "give the field calibration's relative standard uncertainty, from 0 to 0.5 (0.001 is 0.1 %)",
+                );
+            }
+        }
+        if let Some(accuracy) = self.temperature_accuracy_k {
+            if !(accuracy.is_finite() && accuracy >= 0.0) {
+                return invalid(
+                    "temperature_accuracy_K",
+                    accuracy,
+                    "give the thermometer's standard uncertainty in K, 0 or more",
+                );
+            }
         }
         if let Some(periods) = self.dingle_window_periods {
             if !(periods.is_finite() && periods >= 0.5) {
@@ -624,11 +657,16 @@ pub struct LandauFan {
     pub phase_rad: f64,
 }
 
-/// The contract's summary numbers (and their uncertainties).
+/// The contract's summary numbers (and their uncertainties: `_unc` the total standard
+/// uncertainty, the budgets its parts).
 #[derive(Debug, Clone, PartialEq)]
 pub struct OscillationSummary {
     pub frequency_t: f64,
     pub frequency_unc_t: Option<f64>,
+    pub frequency_budget: Option<UncertaintyBudget>,
+    pub sheet_density_budget: Option<UncertaintyBudget>,
+    pub effective_mass_budget: Option<UncertaintyBudget>,
+    pub dingle_temperature_budget: Option<UncertaintyBudget>,
     pub sheet_density_m2: f64,
     pub sheet_density_unc_m2: Option<f64>,
     pub effective_mass_ratio: Option<f64>,
@@ -665,31 +703,127 @@ pub struct OscillationAnalysis {
     pub waveform: Option<WaveformFit>,
     pub dingle: Option<DinglePlot>,
     pub landau_fan: Option<LandauFan>,
+    /// The uncertainty budget of F, n, m* and T_D ("Uncertainties" in the module
+    /// documentation).
+    pub budget: OscillationBudget,
+    /// d m* / d T_thermometer and d T_D / d T_thermometer of the waveform fit (per K), from
+    /// a refit with every temperature raised by the stated thermometer accuracy.
+    temperature_sensitivity: Option<(f64, f64)>,
     pub warnings: Vec<String>,
 }
 
-impl OscillationAnalysis {
-    /// The summary numbers of the strongest line.
-    pub fn summary(&self) -> OscillationSummary {
-        let line = &self.lines[0];
-        OscillationSummary {
-            frequency_t: line.frequency_t,
-            frequency_unc_t: line.frequency_unc_t,
-            sheet_density_m2: line.sheet_density_m2,
-            sheet_density_unc_m2: line.sheet_density_unc_m2,
-            effective_mass_ratio: self.mass.as_ref().map(|m| m.effective_mass_ratio),
-            effective_mass_ratio_unc: self.mass.as_ref().and_then(|m| m.effective_mass_ratio_unc),
-            mass_method: self.mass.as_ref().map(|m| m.method),
-            dingle_temperature_k: self.dingle.as_ref().map(|d| d.dingle_temperature_k),
-            dingle_temperature_unc_k: self.dingle.as_ref().map(|d| d.dingle_temperature_unc_k),
-            quantum_lifetime_s: self.dingle.as_ref().map(|d| d.quantum_lifetime_s),
-            quantum_lifetime_unc_s: self.dingle.as_ref().map(|d| d.quantum_lifetime_unc_s),
+/// The uncertainty budget of one result: `statistical` (Type A: the fit's standard error,
+/// scaled by the residual scatter, and the spread over backgrounds and windows) and
+/// `systematic` (Type B: the stated calibrations), `total` their quadrature sum.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct UncertaintyBudget {
+    /// The fit's own standard error (scaled by the scatter of the residuals).
+    pub fit: Option<f64>,
+    /// The spread over the other backgrounds and windows beyond what their noise explains.
+    pub analysis_spread: f64,
+    /// From the stated field and temperature calibrations.
+    pub calibration: f64,
+    pub statistical: Option<f64>,
+    pub systematic: f64,
+    pub total: Option<f64>,
+}
+
+impl UncertaintyBudget {
+    fn new(fit: Option<f64>, analysis_spread: f64, calibration: f64) -> Self {
+        let statistical = fit.map(|u| u.hypot(analysis_spread));
+        UncertaintyBudget {
+            fit,
+            analysis_spread,
+            calibration,
+            statistical,
+            systematic: calibration,
+            total: statistical.map(|u| u.hypot(calibration)),
         }
     }
 }
 
-/// Runs the analysis of the module documentation on `sweeps`.
+/// The budgets of the summary's numbers and what went into them.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct OscillationBudget {
+    pub frequency: Option<UncertaintyBudget>,
+    pub sheet_density: Option<UncertaintyBudget>,
+    pub effective_mass: Option<UncertaintyBudget>,
+    pub dingle_temperature: Option<UncertaintyBudget>,
+    /// The repeated analyses whose spread entered ("background degree 5", ...).
+    pub variants: Vec<String>,
+    /// Calibrations not stated, so not included: parameter names.
+    pub calibrations_not_given: Vec<&'static str>,
+}
+
+impl OscillationAnalysis {
+    /// The summary numbers of the strongest line, with the totals of the budget as their
+    /// uncertainties.
+    pub fn summary(&self) -> OscillationSummary {
+        let line = &self.lines[0];
+        let budget = &self.budget;
+        let total = |b: &Option<UncertaintyBudget>, fit: Option<f64>| match b {
+            Some(b) => b.total,
+            None => fit,
+        };
+        let dingle_temperature_k = self.dingle.as_ref().map(|d| d.dingle_temperature_k);
+        let dingle_temperature_unc_k = total(
+            &budget.dingle_temperature,
+            self.dingle.as_ref().map(|d| d.dingle_temperature_unc_k),
+        );
+        let quantum_lifetime_s = self.dingle.as_ref().map(|d| d.quantum_lifetime_s);
+        // tau_q = hbar / (2 pi k_B T_D): the relative uncertainty of T_D.
+        let quantum_lifetime_unc_s = match (quantum_lifetime_s, dingle_temperature_k, dingle_temperature_unc_k) {
+            (Some(tau), Some(t), Some(u)) => Some((tau * u / t).abs()),
+            _ => None,
+        };
+        OscillationSummary {
+            frequency_t: line.frequency_t,
+            frequency_unc_t: total(&budget.frequency, line.frequency_unc_t),
+            frequency_budget: budget.frequency,
+            sheet_density_budget: budget.sheet_density,
+            effective_mass_budget: budget.effective_mass,
+            dingle_temperature_budget: budget.dingle_temperature,
+            sheet_density_m2: line.sheet_density_m2,
+            sheet_density_unc_m2: total(&budget.sheet_density, line.sheet_density_unc_m2),
+            effective_mass_ratio: self.mass.as_ref().map(|m| m.effective_mass_ratio),
+            effective_mass_ratio_unc: total(
+                &budget.effective_mass,
+                self.mass.as_ref().and_then(|m| m.effective_mass_ratio_unc),
+            ),
+            mass_method: self.mass.as_ref().map(|m| m.method),
+            dingle_temperature_k,
+            dingle_temperature_unc_k,
+            quantum_lifetime_s,
+            quantum_lifetime_unc_s,
+        }
+    }
+}
+
+/// Runs the analysis of the module documentation on `sweeps`, with its uncertainty budget.
 pub fn analyze_oscillations(
+    sweeps: &[OscillationSweep],
+    settings: &OscillationSettings,
+) -> Result<OscillationAnalysis, OscillationError> {
+    let mut analysis = analyze_once(sweeps, settings)?;
+    let mut outcomes = Vec::new();
+    if settings.model_spread {
+        for (label, variant) in budget::variants(settings, &analysis) {
+            // A variant that fails (too few points for a high degree, a window without a
+            // line) has nothing to say about the spread; it is left out, and named.
+            match analyze_once(sweeps, &variant) {
+                Ok(other) => outcomes.push((label, other)),
+                Err(error) => analysis
+                    .warnings
+                    .push(format!("the check of the uncertainty with {label} failed and was left out: {error}")),
+            }
+        }
+    }
+    budget::assign(&mut analysis, &outcomes, settings);
+    Ok(analysis)
+}
+
+/// One pass of the analysis with these settings, without the spread over variants.
+fn analyze_once(
     sweeps: &[OscillationSweep],
     settings: &OscillationSettings,
 ) -> Result<OscillationAnalysis, OscillationError> {
@@ -807,6 +941,7 @@ pub fn analyze_oscillations(
                     peak.frequency_t,
                     0.0,
                     None,
+                    None,
                 );
                 RefinedComponent {
                     frequency_t: peak.frequency_t,
@@ -885,6 +1020,7 @@ pub fn analyze_oscillations(
     };
     let mut narrow = None;
     let mut waveform_fit = None;
+    let mut temperature_sensitivity = None;
     let mut mass_estimate = match settings.mass {
         MassRequest::Known { effective_mass_ratio } => Some(MassEstimate {
             effective_mass_ratio,
@@ -986,6 +1122,30 @@ pub fn analyze_oscillations(
                         warnings.push(format!("the waveform fit across temperatures failed: {error}"));
                     }
                     break;
+                }
+            }
+        }
+        // The thermometer's stated accuracy: the waveform refitted with every temperature
+        // raised by it, from where the fit ended (a numerical sensitivity coefficient, JCGM
+        // 100:2008 5.1.3).
+        if let (Some(accuracy), Some(fit)) = (settings.temperature_accuracy_k, &waveform_fit) {
+            if accuracy > 0.0 {
+                let shifted: Vec<FitSweep> = prepared
+                    .iter()
+                    .map(|sweep| FitSweep {
+                        x: &sweep.inverse_field,
+                        target: sweep.fit_target(),
+                        temperature_k: sweep.temperature_k + accuracy,
+                        projection: sweep.projection(),
+                    })
+                    .collect();
+                if let Ok(outcome) = fit_waveform(&shifted, &starts, centre, span) {
+                    let base = &fit.components[0];
+                    let moved = &outcome.components[0];
+                    temperature_sensitivity = Some((
+                        (moved.effective_mass_ratio - base.effective_mass_ratio) / accuracy,
+                        (moved.dingle_temperature_k - base.dingle_temperature_k) / accuracy,
+                    ));
                 }
             }
         }
@@ -1160,6 +1320,8 @@ pub fn analyze_oscillations(
         waveform: waveform_fit,
         dingle,
         landau_fan,
+        budget: OscillationBudget::default(),
+        temperature_sensitivity,
         warnings,
     })
 }

@@ -50,6 +50,12 @@ pub struct OscillationParams {
     dingle: Option<bool>,
     #[serde(default)]
     landau_fan: Option<bool>,
+    #[serde(default)]
+    model_spread: Option<bool>,
+    #[serde(default)]
+    field_relative_accuracy: Option<f64>,
+    #[serde(rename = "temperature_accuracy_K", default)]
+    temperature_accuracy_k: Option<f64>,
 }
 
 impl OscillationParams {
@@ -128,6 +134,11 @@ impl OscillationParams {
         if let Some(fan) = self.landau_fan {
             settings.landau_fan = fan;
         }
+        if let Some(spread) = self.model_spread {
+            settings.model_spread = spread;
+        }
+        settings.field_relative_accuracy = self.field_relative_accuracy;
+        settings.temperature_accuracy_k = self.temperature_accuracy_k;
         Ok(settings)
     }
 }
@@ -159,6 +170,9 @@ impl Analysis for OscillationsAnalysis {
         p.insert("mass_method".into(), json!({"type": "string", "enum": ["waveform_fit", "narrow_windows"], "default": "waveform_fit", "description": "fit the damped waveform across temperatures, or fit the Lifshitz-Kosevich damping in narrow 1/B windows each with its own field; both avoid the bias of one wide FFT window"}));
         p.insert("dingle".into(), json!({"type": "boolean", "default": true, "description": "Dingle temperature and quantum lifetime from the amplitude's field dependence"}));
         p.insert("landau_fan".into(), json!({"type": "boolean", "default": false, "description": "Landau-level fan of the extrema for the phase"}));
+        p.insert("model_spread".into(), json!({"type": "boolean", "default": true, "description": "repeat the analysis with higher background degrees (or other smoothing widths) and a shorter field window, and add the spread of F, m* and T_D beyond their noise to the statistical uncertainty"}));
+        p.insert("field_relative_accuracy".into(), json!({"type": "number", "minimum": 0, "maximum": 0.5, "description": "relative standard uncertainty of the magnet's field calibration (Type B); scales F, n and m*. Not included when not given"}));
+        p.insert("temperature_accuracy_K".into(), json!({"type": "number", "minimum": 0, "description": "standard uncertainty of the thermometer, common to every sweep (Type B); moves m* and T_D. Not included when not given"}));
         AnalysisDeclaration {
             name: String::new(),
             summary: "Shubnikov-de Haas analysis: frequencies and 2D densities, the effective mass from the thermal damping, the Dingle temperature and quantum lifetime".into(),
@@ -183,6 +197,8 @@ impl Analysis for OscillationsAnalysis {
                 column("effective_mass_ratio", F64, None, "m*/m0, with _unc"),
                 column("dingle_temperature_K", F64, Some("K"), "with _unc"),
                 column("quantum_lifetime_s", F64, Some("s"), "hbar / (2 pi k_B T_D), with _unc"),
+                column("calibrations_not_given", Str, None, "the calibration parameters not stated, so not in the _unc_sys parts (JSON list)"),
+                column("uncertainty_checks", Str, None, "the repeated analyses whose spread is in the _unc_stat parts (JSON list)"),
             ],
         }
     }
@@ -373,6 +389,35 @@ impl Analysis for OscillationsAnalysis {
             "dingle_temperature_K_unc".into(),
             json!(summary_values.dingle_temperature_unc_k),
         );
+        // The budget: _unc the total, _unc_stat (the fit's scatter-scaled error and the spread
+        // over backgrounds and windows), _unc_sys (the stated calibrations), and the parts of
+        // the statistical one.
+        for (key, budget) in [
+            ("frequency_T", summary_values.frequency_budget),
+            ("sheet_density_m2", summary_values.sheet_density_budget),
+            ("effective_mass_ratio", summary_values.effective_mass_budget),
+            ("dingle_temperature_K", summary_values.dingle_temperature_budget),
+        ] {
+            if let Some(budget) = budget {
+                summary.insert(format!("{key}_unc_stat"), json!(budget.statistical));
+                summary.insert(format!("{key}_unc_sys"), json!(budget.systematic));
+                summary.insert(format!("{key}_unc_fit"), json!(budget.fit));
+                summary.insert(format!("{key}_unc_analysis_spread"), json!(budget.analysis_spread));
+            }
+        }
+        summary.insert(
+            "calibrations_not_given".into(),
+            json!(analysis.budget.calibrations_not_given),
+        );
+        summary.insert("uncertainty_checks".into(), json!(analysis.budget.variants));
+        if let Some(fit) = &analysis.waveform {
+            // The waveform fit weights every point alike and scales its errors by the
+            // residual scatter: its reduced chi-square is that scatter's variance.
+            summary.insert(
+                "waveform_residual_rms_ohm_sq".into(),
+                json!(fit.reduced_chi_square.max(0.0).sqrt()),
+            );
+        }
         summary.insert("quantum_lifetime_s".into(), json!(summary_values.quantum_lifetime_s));
         summary.insert(
             "quantum_lifetime_s_unc".into(),

@@ -68,6 +68,8 @@ use mobilis_core::forward::oscillations::{
 use mobilis_core::linalg::{Matrix, Svd};
 
 #[cfg(test)]
+mod coverage;
+#[cfg(test)]
 mod tests;
 
 /// One low-field sweep of a thin film.

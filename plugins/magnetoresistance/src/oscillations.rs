@@ -125,7 +125,10 @@
 //!      unbiased, where the magnitude sqrt(a^2 + b^2) would be pushed up by the noise. Its
 //!      standard error comes from the fit's scatter. g(x) = R_T(c m* T x) R_D(x) / (the same
 //!      at the window's mean 1/B) refers the amplitude to the window's own effective field
-//!      B_eff = 1 / mean(1/B), even though the damping changes across the window: at the
+//!      B_eff = 1 / mean(1/B) of the reference sweep's points, the same field for every
+//!      sweep (each sweep's own mean 1/B differs when the sweeps are sampled differently,
+//!      and referring each amplitude to its own field biased the mass by per cents), even
+//!      though the damping changes across the window: at the
 //!      higher temperatures R_T falls several-fold within even three periods, and a constant
 //!      envelope would weight the window's high-field end and bias the mass low by per
 //!      cents. g needs m* and T_D: the first pass takes g = 1, later passes the previous
@@ -161,13 +164,49 @@
 //!    Berry phase pi; F_fan checks F. The phase of cos(2 pi F / B + phi) is
 //!    phi = 2 pi (beta + 1/2).
 //!
+//! # Uncertainties
+//!
+//! Each reported number (F and n, m*, T_D and tau_q) carries a budget in the sense of the
+//! GUM (JCGM 100:2008): `_unc` is the total standard uncertainty, the quadrature sum of a
+//! statistical part (Type A, from the data) and a systematic part (Type B, from stated
+//! calibrations) ([`UncertaintyBudget`], [`OscillationBudget`]).
+//!
+//! - **The fit's own error.** The waveform and refinement fits weight every point alike and
+//!   scale their covariance by the scatter of the residuals (chi^2 / nu with unit weights),
+//!   which is the Birge scaling (Birge 1932) of a fit without stated errors; the Dingle line
+//!   is weighted by its window amplitudes' errors and scaled by sqrt(chi^2 / nu) when above
+//!   1. These errors assume independent residuals, which a background that the model does
+//!   not follow breaks: the misfit is smooth, correlated from point to point, and moves F,
+//!   m* and T_D by several of these errors (a test shows it for F).
+//! - **The spread over backgrounds and windows.** The analysis is repeated with the
+//!   polynomial degree raised by 2 and by 4 (up to 12), or the smoothing half-width at 0.6
+//!   and 1.5 times the given, and with the window shortened by the lowest fifth of its 1/B
+//!   span (`model_spread`, default on; the variants are listed in the summary as
+//!   `uncertainty_checks`). For each variant the squared change of the result, less the
+//!   part the noise explains (|u_variant^2 - u^2|, the variance of the difference of two
+//!   estimates from the same data when both are unbiased; after Barlow, "Systematic errors:
+//!   facts and fictions", 2002, from memory), is the squared size of the choice's effect;
+//!   the largest over the variants enters the statistical part in quadrature. A variant
+//!   whose strongest line is another line, or that fails, is left out with a warning. This
+//!   costs three more passes of the analysis.
+//! - **Calibrations** (Type B, stated per call; not included when not given, and the
+//!   summary lists them under `calibrations_not_given`): `field_relative_accuracy` scales F
+//!   and n, and m* (X = c m* T / B), by the same relative amount, and leaves T_D (c m* T_D /
+//!   B is what the data fix); `temperature_accuracy_k`, a thermometer error common to every
+//!   sweep, moves m* by the change of a refit of the waveform with every temperature raised
+//!   by it (a numerical sensitivity coefficient, JCGM 100:2008 5.1.3), and T_D by the same
+//!   relative amount the other way (the Dingle slope fixes m* T_D).
+//!
+//! The coverage test (`oscillations/coverage.rs`) checks on realistic sweep sets that the
+//! totals cover the truth as often as standard uncertainties should.
+//!
 //! Multiple lines: the frequencies and densities are reported for each; the narrow-window
 //! mass, the Dingle plot and the fan use the strongest line only, and the other lines are
 //! noise to them (a warning says when a second line is above 20 % of the first).
 
+mod budget;
 #[cfg(test)]
 mod coverage;
-mod budget;
 mod error;
 mod mass;
 mod prepare;
@@ -812,9 +851,9 @@ pub fn analyze_oscillations(
             // line) has nothing to say about the spread; it is left out, and named.
             match analyze_once(sweeps, &variant) {
                 Ok(other) => outcomes.push((label, other)),
-                Err(error) => analysis
-                    .warnings
-                    .push(format!("the check of the uncertainty with {label} failed and was left out: {error}")),
+                Err(error) => analysis.warnings.push(format!(
+                    "the check of the uncertainty with {label} failed and was left out: {error}"
+                )),
             }
         }
     }

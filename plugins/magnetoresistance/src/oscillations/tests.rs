@@ -67,8 +67,8 @@ fn analyze(data: &[OscillationSweep], field_min_t: Option<f64>) -> OscillationAn
     analyze_oscillations(data, &settings).unwrap()
 }
 
-// Onsager with n = g_s e F / h (check-values, "Magnetoresistance and quantum oscillations",
-// [C] computed from the formula with CODATA 2018: F = 10 T gives 4.835978e11 cm^-2 for
+// Onsager's relation with n = g_s e F / h (L. Onsager, Phil. Mag. 43, 1006, 1952; computed
+// from the formula with the CODATA 2018 constants: F = 10 T gives 4.835978e11 cm^-2 for
 // g_s = 2 and 2.41799e11 cm^-2 for g_s = 1). The density reported is that of the recovered
 // frequency, which is within 1e-3 of 10 T.
 #[test]
@@ -210,7 +210,8 @@ fn oscillations_wide_window_fft_amplitude_biases_the_mass_and_the_methods_do_not
     assert!(biases[1].abs() < biases[0].abs() / 3.0, "{biases:?}");
 }
 
-// T_D = hbar / (2 pi k_B tau_q) (check-values [C]: tau_q = 1 ps gives T_D = 1.21566 K, so
+// T_D = hbar / (2 pi k_B tau_q) (R. B. Dingle, Proc. R. Soc. A 211, 517, 1952; computed from
+// the formula with the CODATA 2018 constants: tau_q = 1 ps gives T_D = 1.21566 K, so
 // tau_q = 0.8 ps gives 1.519575 K): a sweep set generated with that T_D gives back tau_q.
 #[test]
 fn oscillations_dingle_plot_gives_the_quantum_lifetime() {
@@ -366,8 +367,8 @@ fn oscillations_smoothing_background_handles_a_saturating_magnetoresistance() {
     );
 }
 
-// Computed from R_T = X / sinh X (Lifshitz and Kosevich 1956; check-values [C]: X(4.2 K,
-// 0.067, 2 T) = 2.067329, R_T = 0.531641): amplitudes A_0 R_T(T) at 2 T give back the mass,
+// Computed from R_T = X / sinh X (Lifshitz and Kosevich, Sov. Phys. JETP 2, 636, 1956) with
+// the CODATA 2018 constants: X(4.2 K, 0.067, 2 T) = 2.067329, R_T = 0.531641): amplitudes A_0 R_T(T) at 2 T give back the mass,
 // and a single temperature is refused.
 #[test]
 fn oscillations_thermal_damping_fit_recovers_the_mass() {
@@ -514,4 +515,33 @@ fn oscillations_noise_alone_is_no_oscillation() {
         panic!("a line was reported in noise: {:?}", result.map(|a| a.lines));
     };
     assert!(matches!(error, OscillationError::NoOscillation { .. }), "{error}");
+}
+
+// A sweep logged along a ramp: 40,000 points at 10 Hz from 0 to 14 T (0.35 mT apart, far
+// closer than a period anywhere in the window) at each of three temperatures. Nothing in the
+// analysis grows faster than the points times the windows, so it runs, and it recovers the
+// frequency and the mass.
+#[test]
+fn oscillations_long_logged_ramp() {
+    let sdh = model(&[(40.0, 0.067, 1.0)], 0.2);
+    let ramp = fields(14.0, 39_999);
+    let data = sweeps(&sdh, &temperatures_for(0.067, 14.0)[..3], &ramp, 0.2, 101);
+    let start = std::time::Instant::now();
+    let settings = OscillationSettings {
+        field_min_t: Some(2.0),
+        model_spread: std::env::var("SPREAD").is_ok(),
+        ..OscillationSettings::default()
+    };
+    let analysis = analyze_oscillations(&data, &settings).unwrap();
+    eprintln!("40,000-point ramp x 3 sweeps: {:?}", start.elapsed());
+    let summary = analysis.summary();
+    assert!(relative_error(summary.frequency_t, 40.0) < 2e-4, "{summary:?}");
+    assert!(
+        relative_error(summary.effective_mass_ratio.unwrap(), 0.067) < 0.01,
+        "{summary:?}"
+    );
+    assert_eq!(
+        analysis.curves[0].field_t.len(),
+        ramp.iter().filter(|b| **b >= 2.0).count()
+    );
 }

@@ -13,7 +13,10 @@ const SHORTER_WINDOW_FRACTION: f64 = 0.8;
 /// half-widths 0.6 and 1.5 times the given, and the window without the lowest fifth of its
 /// 1/B span. Each keeps the settings otherwise, without the fan and without a spread of its
 /// own.
-pub(super) fn variants(settings: &OscillationSettings, analysis: &OscillationAnalysis) -> Vec<(String, OscillationSettings)> {
+pub(super) fn variants(
+    settings: &OscillationSettings,
+    analysis: &OscillationAnalysis,
+) -> Vec<(String, OscillationSettings)> {
     let base = OscillationSettings {
         landau_fan: false,
         model_spread: false,

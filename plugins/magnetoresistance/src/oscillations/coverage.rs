@@ -80,7 +80,9 @@ fn realization(rng: &mut Rng) -> Vec<OscillationSweep> {
                 .map(|&reading| {
                     let b = reading * field_scale;
                     let background = 100.0 * (1.0 + strength_here * b * b / (1.0 + saturation * b * b));
-                    background + model.oscillatory_part_ohm_sq(b, actual_temperature) + NOISE_OHM_SQ * rng.standard_normal()
+                    background
+                        + model.oscillatory_part_ohm_sq(b, actual_temperature)
+                        + NOISE_OHM_SQ * rng.standard_normal()
                 })
                 .collect();
             OscillationSweep {
@@ -107,7 +109,11 @@ fn oscillations_uncertainties_cover_the_truth() {
     for _ in 0..realizations() {
         let analysis = analyze_oscillations(&realization(&mut rng), &settings).unwrap();
         let summary = analysis.summary();
-        frequency.record(summary.frequency_t, summary.frequency_unc_t.unwrap_or(f64::NAN), FREQUENCY_T);
+        frequency.record(
+            summary.frequency_t,
+            summary.frequency_unc_t.unwrap_or(f64::NAN),
+            FREQUENCY_T,
+        );
         mass.record(
             summary.effective_mass_ratio.unwrap_or(f64::NAN),
             summary.effective_mass_ratio_unc.unwrap_or(f64::NAN),

@@ -224,7 +224,7 @@ use mobilis_core::forward::oscillations::{
 
 pub use error::OscillationError;
 pub use mass::fit_thermal_damping;
-use prepare::{field_window, make_grid, prepare_sweep, resample, validate_sweeps};
+use prepare::{condense_sweep, field_window, make_grid, prepare_sweep, resample, validate_sweeps};
 use spectrum::{find_peaks, PeakSearch, SearchLimits};
 use waveform::{fit_waveform, in_phase_amplitude, refine_components, FitSweep, RefinedComponent, WaveformStart};
 
@@ -940,6 +940,21 @@ fn analyze_once(
         Background::Polynomial { .. } => 1,
         Background::Smoothing { .. } => BACKFITTING_ROUNDS,
     };
+    // Dense sweeps are condensed for the fits (the spectra above used every point).
+    let highest_line = fft_frequencies.iter().copied().fold(0.0f64, f64::max) + 2.0 / span;
+    for (index, sweep) in sweeps.iter().enumerate() {
+        if let Some(condensed) = condense_sweep(sweep, window, highest_line) {
+            let grid_values = std::mem::take(&mut prepared[index].grid_values);
+            let merged = sweep.field_t.len() / condensed.field_t.len().max(1);
+            prepared[index] = prepare_sweep(index, &condensed, window, &settings.background)?;
+            prepared[index].grid_values = grid_values;
+            prepared[index].merged_points = merged;
+            warnings.push(format!(
+                "the sweep at {} K samples each period densely: about {merged} consecutive points were averaged into one for the fits (each group spans at most 1/32 of the shortest period), which keeps the result and takes a fraction of the time",
+                sweep.temperature_k
+            ));
+        }
+    }
     let mut refined: Option<Vec<RefinedComponent>> = None;
     let mut source = "refinement";
     for _ in 0..rounds {

@@ -660,6 +660,48 @@ mod tests {
         }
     }
 
+    /// A weak-localization sweep logged along a ramp: 40,000 points at 10 Hz from 0 to 14 T,
+    /// positive field only, fitted up to 0.1 T. The film is invented (sigma_0 = 1/2080.5 S,
+    /// alpha = 1, l_phi = 250 nm); the fit finds l_phi within its uncertainty.
+    #[test]
+    fn weak_localization_runs_on_a_long_logged_ramp() {
+        use mobilis_core::forward::oscillations::{synthetic_weak_localization_sweep, WeakLocalizationModel};
+        use mobilis_core::forward::tensor::SweepNoise;
+        use mobilis_core::noise::Rng;
+        let model = WeakLocalizationModel {
+            sigma_0_s: 1.0 / 2080.5,
+            alpha: 1.0,
+            phase_coherence_length_m: 250e-9,
+            classical_s_per_t2: 0.0,
+        };
+        let field: Vec<f64> = (0..40_000).map(|k| 14.0 * k as f64 / 39_999.0).collect();
+        let noise = SweepNoise {
+            absolute_ohm: 2e-3,
+            relative: 1e-5,
+        };
+        let rho_xx = synthetic_weak_localization_sweep(&model, &field, &noise, &mut Rng::seeded(5)).unwrap();
+        let rows = field.len();
+        let sweep = DataFrame::new(
+            rows,
+            vec![
+                floats("field_T", field),
+                floats("rho_xx_ohm_sq", rho_xx),
+                floats("rho_xy_ohm", vec![0.0; rows]),
+            ],
+        )
+        .unwrap();
+        let inputs = Inputs::from_tables([("sweep".to_string(), sweep)]);
+        let output =
+            run_typed::<WeakLocalizationAnalysis>(r#"{"max_field_T": 0.1}"#, &inputs, &Host::detached()).unwrap();
+        let l_phi = output.summary["phase_coherence_length_m"].as_f64().unwrap();
+        let unc = output.summary["phase_coherence_length_m_unc"].as_f64().unwrap();
+        assert!(
+            (l_phi - 250e-9).abs() < 3.0 * unc && unc < 0.05 * l_phi,
+            "{l_phi} +- {unc}"
+        );
+        assert_eq!(output.table.height(), rows);
+    }
+
     #[test]
     fn mass_fit_temperatures_span_the_data() {
         let grid = mass_fit_temperatures(&[2.0, 8.0, 4.0]);

@@ -628,6 +628,25 @@ mod tests {
         .unwrap();
         let inputs = Inputs::from_tables([("sweep".to_string(), sweep)]);
         let output = run_typed::<OscillationsAnalysis>("{}", &inputs, &Host::detached()).unwrap();
+        // The budget: _unc is the quadrature sum of _unc_stat and _unc_sys, and the
+        // calibrations not stated are named.
+        let summary = &output.summary;
+        for key in [
+            "frequency_T",
+            "sheet_density_m2",
+            "effective_mass_ratio",
+            "dingle_temperature_K",
+        ] {
+            let total = summary[&format!("{key}_unc")].as_f64().unwrap();
+            let stat = summary[&format!("{key}_unc_stat")].as_f64().unwrap();
+            let sys = summary[&format!("{key}_unc_sys")].as_f64().unwrap();
+            assert!((total - stat.hypot(sys)).abs() <= 1e-12 * total, "{key}: {summary:?}");
+        }
+        assert_eq!(
+            summary["calibrations_not_given"],
+            json!(["field_relative_accuracy", "temperature_accuracy_K"])
+        );
+        assert!(output.warnings.iter().any(|w| w.contains("no calibration was stated")));
         let table = &output.table;
         let kinds = text(table, "kind");
         let t = numbers(table, "temperature_K");

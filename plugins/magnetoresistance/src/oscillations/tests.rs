@@ -62,6 +62,7 @@ fn temperatures_for(mass: f64, field_t: f64) -> Vec<f64> {
 fn analyze(data: &[OscillationSweep], field_min_t: Option<f64>) -> OscillationAnalysis {
     let settings = OscillationSettings {
         field_min_t,
+        model_spread: false,
         ..OscillationSettings::default()
     };
     analyze_oscillations(data, &settings).unwrap()
@@ -78,6 +79,7 @@ fn oscillations_onsager_density_check_values() {
     for (spin_degeneracy, per_10_t_cm2) in [(2.0, 4.835_978e11), (1.0, 2.417_99e11)] {
         let settings = OscillationSettings {
             spin_degeneracy,
+            model_spread: false,
             ..OscillationSettings::default()
         };
         let analysis = analyze_oscillations(&data, &settings).unwrap();
@@ -236,6 +238,7 @@ fn oscillations_dingle_plot_gives_the_quantum_lifetime() {
         mass: MassRequest::Known {
             effective_mass_ratio: 0.067,
         },
+        model_spread: false,
         ..OscillationSettings::default()
     };
     let single = analyze_oscillations(&data[..1], &settings).unwrap();
@@ -260,6 +263,7 @@ fn oscillations_landau_fan_gives_the_phase() {
             field_min_t: Some(1.5),
             landau_fan: true,
             mass: MassRequest::Skip,
+            model_spread: false,
             ..OscillationSettings::default()
         };
         let analysis = analyze_oscillations(&data, &settings).unwrap();
@@ -290,6 +294,7 @@ fn oscillations_two_frequencies_each_with_its_mass() {
     let settings = OscillationSettings {
         field_min_t: Some(1.5),
         frequencies: 3,
+        model_spread: false,
         ..OscillationSettings::default()
     };
     let analysis = analyze_oscillations(&data, &settings).unwrap();
@@ -324,6 +329,7 @@ fn oscillations_second_harmonic_is_marked() {
     let settings = OscillationSettings {
         field_min_t: Some(1.5),
         frequencies: 2,
+        model_spread: false,
         ..OscillationSettings::default()
     };
     let analysis = analyze_oscillations(&data, &settings).unwrap();
@@ -352,6 +358,7 @@ fn oscillations_smoothing_background_handles_a_saturating_magnetoresistance() {
         background: Background::Smoothing {
             width_inverse_t: 3.0 / frequency,
         },
+        model_spread: false,
         ..OscillationSettings::default()
     };
     let analysis = analyze_oscillations(&data, &settings).unwrap();
@@ -390,7 +397,10 @@ fn oscillations_thermal_damping_fit_recovers_the_mass() {
 fn oscillations_refuse_bad_input_with_clear_errors() {
     let sdh = model(&[(40.0, 0.067, 1.0)], 0.2);
     let good = sweeps(&sdh, &[2.0, 8.0], &fields(9.0, 2000), 0.1, 81);
-    let settings = OscillationSettings::default();
+    let settings = OscillationSettings {
+        model_spread: false,
+        ..OscillationSettings::default()
+    };
 
     // Non-monotonic fields (a sweep that turns back).
     let mut turned = good.clone();
@@ -405,6 +415,7 @@ fn oscillations_refuse_bad_input_with_clear_errors() {
     // Too short a 1/B range: 8 to 9 T holds 0.6 periods of 40 T.
     let short = OscillationSettings {
         field_min_t: Some(8.0),
+        model_spread: false,
         ..OscillationSettings::default()
     };
     let error = analyze_oscillations(&good, &short).unwrap_err();
@@ -420,6 +431,7 @@ fn oscillations_refuse_bad_input_with_clear_errors() {
     // A mass asked for with one temperature.
     let fit = OscillationSettings {
         mass: MassRequest::Fit,
+        model_spread: false,
         ..OscillationSettings::default()
     };
     let error = analyze_oscillations(&good[..1], &fit).unwrap_err();
@@ -471,6 +483,7 @@ fn oscillations_refuse_bad_input_with_clear_errors() {
     let reversed = OscillationSettings {
         field_min_t: Some(9.0),
         field_max_t: Some(2.0),
+        model_spread: false,
         ..OscillationSettings::default()
     };
     assert!(matches!(
@@ -488,6 +501,7 @@ fn oscillations_refuse_bad_input_with_clear_errors() {
     ));
     let no_padding = OscillationSettings {
         zero_padding: 0,
+        model_spread: false,
         ..OscillationSettings::default()
     };
     let error = analyze_oscillations(&good, &no_padding).unwrap_err();
@@ -510,7 +524,13 @@ fn oscillations_refuse_bad_input_with_clear_errors() {
 fn oscillations_noise_alone_is_no_oscillation() {
     let sdh = model(&[], 0.0);
     let data = sweeps(&sdh, &[2.0, 6.0], &fields(9.0, 2000), 0.1, 91);
-    let result = analyze_oscillations(&data, &OscillationSettings::default());
+    let result = analyze_oscillations(
+        &data,
+        &OscillationSettings {
+            model_spread: false,
+            ..OscillationSettings::default()
+        },
+    );
     let Err(error) = result else {
         panic!("a line was reported in noise: {:?}", result.map(|a| a.lines));
     };

@@ -520,6 +520,9 @@ impl Analysis for WeakLocalizationAnalysis {
             summary_keys: vec![
                 column("phase_coherence_length_m", F64, Some("m"), "l_phi, with _unc"),
                 column("alpha", F64, None, "HLN prefactor (-1/2 for one channel with strong spin-orbit coupling), with _unc"),
+                column("reduced_chi_square", F64, None, "chi^2 / nu of the fit"),
+                column("chi_square_p_value", F64, None, "P(chi^2 >= observed) when rho_xx_ohm_sq_unc weights the fit, else null"),
+                column("birge_ratio", F64, None, "sqrt(chi^2 / nu) when above 1 (the uncertainties were multiplied by it), else 1; null without stated uncertainties"),
             ],
         }
     }
@@ -570,6 +573,12 @@ impl Analysis for WeakLocalizationAnalysis {
         summary.insert("classical_S_per_T2".into(), json!(fit.classical_s_per_t2));
         summary.insert("zero_field_conductance_S".into(), json!(fit.zero_field_conductance_s));
         summary.insert("reduced_chi_square".into(), json!(fit.reduced_chi_square));
+        // p-value and Birge ratio only mean something against stated errors.
+        summary.insert(
+            "chi_square_p_value".into(),
+            json!(fit.quality.as_ref().map(|q| q.p_value)),
+        );
+        summary.insert("birge_ratio".into(), json!(fit.quality.as_ref().map(|q| q.birge_ratio)));
         summary.insert("fitted_points".into(), json!(fit.fitted_points));
         output.warnings = fit.warnings.clone();
         Ok(output)

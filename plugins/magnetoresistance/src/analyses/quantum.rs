@@ -7,6 +7,7 @@ use crate::oscillations::{
 use crate::weak_localization::{fit_weak_localization, WeakLocalizationSettings, WeakLocalizationSweep};
 use mobilis_core::abi::AnalysisDeclaration;
 use mobilis_core::fft::Window;
+use mobilis_core::fit::FitQuality;
 use mobilis_core::forward::oscillations::thermal_damping_factor;
 use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 use mobilis_core::sweep::symmetrize;
@@ -410,6 +411,21 @@ impl Analysis for OscillationsAnalysis {
             json!(analysis.budget.calibrations_not_given),
         );
         summary.insert("uncertainty_checks".into(), json!(analysis.budget.variants));
+        if let Some(plot) = &analysis.dingle {
+            // The Dingle line is weighted by its windows' amplitude errors; its slope's error
+            // was scaled by the Birge ratio when chi^2 / nu > 1.
+            let nu = plot.points.len().saturating_sub(2);
+            let quality = FitQuality::assess(plot.reduced_chi_square * nu as f64, nu);
+            summary.insert(
+                "dingle_reduced_chi_square".into(),
+                json!(finite_or_null(quality.reduced_chi_square)),
+            );
+            summary.insert(
+                "dingle_chi_square_p_value".into(),
+                json!(finite_or_null(quality.p_value)),
+            );
+            summary.insert("dingle_birge_ratio".into(), json!(quality.birge_ratio));
+        }
         if let Some(fit) = &analysis.waveform {
             // The waveform fit weights every point alike and scales its errors by the
             // residual scatter: its reduced chi-square is that scatter's variance.
@@ -451,6 +467,11 @@ impl Analysis for OscillationsAnalysis {
         host.progress(1.0, "done");
         Ok(output)
     }
+}
+
+/// A number for the summary, or null when it is not finite (no degrees of freedom).
+fn finite_or_null(value: f64) -> Option<f64> {
+    value.is_finite().then_some(value)
 }
 
 /// Points of each window's fitted Lifshitz-Kosevich curve.

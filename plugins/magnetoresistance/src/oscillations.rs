@@ -206,6 +206,12 @@
 //!   sweep, moves m* by the change of a refit of the waveform with every temperature raised
 //!   by it (a numerical sensitivity coefficient, JCGM 100:2008 5.1.3), and T_D by the same
 //!   relative amount the other way (the Dingle slope fixes m* T_D).
+//! - **Temperature stability** (`temperature_stability_k`, stated per call; not included
+//!   when not given): each sweep's own temperature error (the stage's drift and setpoint
+//!   scatter), independent from sweep to sweep. The waveform is refitted with one sweep's
+//!   temperature raised by it at a time, and the changes of m* add in quadrature; T_D moves
+//!   by the same relative amount. It is random from sweep to sweep, so it enters the
+//!   statistical part.
 //!
 //! The coverage test (`oscillations/coverage.rs`) checks on realistic sweep sets that the
 //! totals cover the truth as often as standard uncertainties should.
@@ -236,7 +242,10 @@ pub use error::OscillationError;
 pub use mass::fit_thermal_damping;
 use prepare::{condense_sweep, field_window, make_grid, prepare_sweep, resample, validate_sweeps};
 use spectrum::{find_peaks, PeakSearch, SearchLimits};
-use waveform::{fit_waveform, in_phase_amplitude, refine_components, FitSweep, RefinedComponent, WaveformStart};
+use waveform::{
+    fit_waveform, in_phase_amplitude, refine_components, FitSweep, RefinedComponent, WaveformStart,
+    WAVEFORM_MASS_FACTORS,
+};
 
 /// Rounds of backfitting (background re-estimated from the data minus the fitted
 /// oscillation) for the smoothing background: each round shrinks the share of the
@@ -351,6 +360,10 @@ pub struct OscillationSettings {
     /// Standard uncertainty of the thermometer, K, common to every sweep (Type B; default:
     /// not given, not included).
     pub temperature_accuracy_k: Option<f64>,
+    /// Standard uncertainty of each sweep's temperature on its own, K: the stage's drift and
+    /// setpoint scatter, independent from sweep to sweep (Type A; default: not given, not
+    /// included).
+    pub temperature_stability_k: Option<f64>,
 }
 
 impl Default for OscillationSettings {
@@ -379,6 +392,7 @@ impl Default for OscillationSettings {
             model_spread: true,
             field_relative_accuracy: None,
             temperature_accuracy_k: None,
+            temperature_stability_k: None,
         }
     }
 }
@@ -503,6 +517,15 @@ impl OscillationSettings {
                     "temperature_accuracy_K",
                     accuracy,
                     "give the thermometer's standard uncertainty in K, 0 or more",
+                );
+            }
+        }
+        if let Some(stability) = self.temperature_stability_k {
+            if !(stability.is_finite() && stability >= 0.0) {
+                return invalid(
+                    "temperature_stability_K",
+                    stability,
+                    "give each sweep's temperature stability as a standard uncertainty in K, 0 or more",
                 );
             }
         }
@@ -758,6 +781,9 @@ pub struct OscillationAnalysis {
     /// d m* / d T_thermometer and d T_D / d T_thermometer of the waveform fit (per K), from
     /// a refit with every temperature raised by the stated thermometer accuracy.
     temperature_sensitivity: Option<(f64, f64)>,
+    /// The change of m* and of the waveform's T_D from the stated per-sweep temperature
+    /// stability, each sweep's effect in quadrature.
+    temperature_stability_effect: Option<(f64, f64)>,
     pub warnings: Vec<String>,
 }
 
@@ -768,7 +794,8 @@ pub struct OscillationAnalysis {
 pub struct UncertaintyBudget {
     /// The fit's own standard error (scaled by the scatter of the residuals).
     pub fit: Option<f64>,
-    /// The spread over the other backgrounds and windows beyond what their noise explains.
+    /// The spread over the other backgrounds and windows beyond what their noise explains,
+    /// with the effect of the stated per-sweep temperature stability in quadrature.
     pub analysis_spread: f64,
     /// From the stated field and temperature calibrations.
     pub calibration: f64,
@@ -1085,6 +1112,7 @@ fn analyze_once(
     let mut narrow = None;
     let mut waveform_fit = None;
     let mut temperature_sensitivity = None;
+    let mut temperature_stability_effect = None;
     let mut mass_estimate = match settings.mass {
         MassRequest::Known { effective_mass_ratio } => Some(MassEstimate {
             effective_mass_ratio,
@@ -1144,7 +1172,7 @@ fn analyze_once(
                     projection: sweep.projection(),
                 })
                 .collect();
-            match fit_waveform(&fit_sweeps, &starts, centre, span) {
+            match fit_waveform(&fit_sweeps, &starts, centre, span, &WAVEFORM_MASS_FACTORS) {
                 Ok(outcome) => {
                     for (sweep, model) in prepared.iter_mut().zip(&outcome.models) {
                         sweep.update_background(model)?;
@@ -1189,28 +1217,43 @@ fn analyze_once(
                 }
             }
         }
-        // The thermometer's stated accuracy: the waveform refitted with every temperature
-        // raised by it, from where the fit ended (a numerical sensitivity coefficient, JCGM
-        // 100:2008 5.1.3).
-        if let (Some(accuracy), Some(fit)) = (settings.temperature_accuracy_k, &waveform_fit) {
-            if accuracy > 0.0 {
+        // The thermometer: the waveform refitted, from where the fit ended, with every
+        // temperature raised by the stated accuracy (an error common to the series), and
+        // with each sweep's alone raised by the stated stability (errors independent from
+        // sweep to sweep, added in quadrature): numerical sensitivity coefficients, JCGM
+        // 100:2008 5.1.3.
+        if let Some(fit) = &waveform_fit {
+            let base = &fit.components[0];
+            let refit = |raise: &dyn Fn(usize) -> f64| -> Option<(f64, f64)> {
                 let shifted: Vec<FitSweep> = prepared
                     .iter()
-                    .map(|sweep| FitSweep {
+                    .enumerate()
+                    .map(|(index, sweep)| FitSweep {
                         x: &sweep.inverse_field,
                         target: sweep.fit_target(),
-                        temperature_k: sweep.temperature_k + accuracy,
+                        temperature_k: sweep.temperature_k + raise(index),
                         projection: sweep.projection(),
                     })
                     .collect();
-                if let Ok(outcome) = fit_waveform(&shifted, &starts, centre, span) {
-                    let base = &fit.components[0];
-                    let moved = &outcome.components[0];
-                    temperature_sensitivity = Some((
-                        (moved.effective_mass_ratio - base.effective_mass_ratio) / accuracy,
-                        (moved.dingle_temperature_k - base.dingle_temperature_k) / accuracy,
-                    ));
+                let outcome = fit_waveform(&shifted, &starts, centre, span, &[1.0]).ok()?;
+                let moved = &outcome.components[0];
+                Some((
+                    moved.effective_mass_ratio - base.effective_mass_ratio,
+                    moved.dingle_temperature_k - base.dingle_temperature_k,
+                ))
+            };
+            if let Some(accuracy) = settings.temperature_accuracy_k.filter(|a| *a > 0.0) {
+                temperature_sensitivity = refit(&|_| accuracy).map(|(m, t)| (m / accuracy, t / accuracy));
+            }
+            if let Some(stability) = settings.temperature_stability_k.filter(|s| *s > 0.0) {
+                let mut squares = (0.0, 0.0);
+                for index in 0..prepared.len() {
+                    if let Some((m, t)) = refit(&|i| if i == index { stability } else { 0.0 }) {
+                        squares.0 += m * m;
+                        squares.1 += t * t;
+                    }
                 }
+                temperature_stability_effect = Some((squares.0.sqrt(), squares.1.sqrt()));
             }
         }
         // The waveform fit's frequencies and phases use every sweep and the exact damping.
@@ -1386,6 +1429,7 @@ fn analyze_once(
         landau_fan,
         budget: OscillationBudget::default(),
         temperature_sensitivity,
+        temperature_stability_effect,
         warnings,
     })
 }

@@ -57,6 +57,8 @@ pub struct OscillationParams {
     field_relative_accuracy: Option<f64>,
     #[serde(rename = "temperature_accuracy_K", default)]
     temperature_accuracy_k: Option<f64>,
+    #[serde(rename = "temperature_stability_K", default)]
+    temperature_stability_k: Option<f64>,
 }
 
 impl OscillationParams {
@@ -140,6 +142,7 @@ impl OscillationParams {
         }
         settings.field_relative_accuracy = self.field_relative_accuracy;
         settings.temperature_accuracy_k = self.temperature_accuracy_k;
+        settings.temperature_stability_k = self.temperature_stability_k;
         Ok(settings)
     }
 }
@@ -173,6 +176,7 @@ impl Analysis for OscillationsAnalysis {
         p.insert("landau_fan".into(), json!({"type": "boolean", "default": false, "description": "Landau-level fan of the extrema for the phase"}));
         p.insert("model_spread".into(), json!({"type": "boolean", "default": true, "description": "repeat the analysis with higher background degrees (or other smoothing widths) and a shorter field window, and add the spread of F, m* and T_D beyond their noise to the statistical uncertainty"}));
         p.insert("field_relative_accuracy".into(), json!({"type": "number", "minimum": 0, "maximum": 0.5, "description": "relative standard uncertainty of the magnet's field calibration (Type B); scales F, n and m*. Not included when not given"}));
+        p.insert("temperature_stability_K".into(), json!({"type": "number", "minimum": 0, "description": "standard uncertainty of each sweep's own temperature (stage drift, setpoint scatter), independent from sweep to sweep; moves m* and T_D in the statistical part. Not included when not given"}));
         p.insert("temperature_accuracy_K".into(), json!({"type": "number", "minimum": 0, "description": "standard uncertainty of the thermometer, common to every sweep (Type B); moves m* and T_D. Not included when not given"}));
         AnalysisDeclaration {
             name: String::new(),

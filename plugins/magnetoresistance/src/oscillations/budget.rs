@@ -4,6 +4,12 @@
 
 use super::{Background, OscillationAnalysis, OscillationBudget, OscillationSettings, UncertaintyBudget};
 
+/// The analysis spread and the per-sweep temperature stability both belong to the
+/// statistical part; they enter it as one quadrature term.
+fn spread_and_stability(spread: f64, stability: f64) -> f64 {
+    spread.hypot(stability)
+}
+
 /// The part of the 1/B window a shorter-window variant keeps (from 1/B_max up): the lowest
 /// fields, where the oscillation is weakest and the background least certain, are left out.
 const SHORTER_WINDOW_FRACTION: f64 = 0.8;
@@ -21,6 +27,7 @@ pub(super) fn variants(
         landau_fan: false,
         model_spread: false,
         temperature_accuracy_k: None,
+        temperature_stability_k: None,
         field_min_t: Some(analysis.field_window_t.0),
         field_max_t: Some(analysis.field_window_t.1),
         ..settings.clone()
@@ -143,6 +150,7 @@ pub(super) fn assign(
     // thermometer error moves it by the sensitivity of the refit (or, without a waveform
     // fit, by m* u_T / T at the mean temperature).
     let mut mass_temperature_relative = 0.0;
+    let mut mass_stability = 0.0;
     if let Some(mass) = analysis.mass.clone().filter(|m| m.method != "known") {
         let others: Vec<(f64, Option<f64>)> = comparable
             .iter()
@@ -159,9 +167,10 @@ pub(super) fn assign(
             }
         };
         mass_temperature_relative = (temperature_shift / mass.effective_mass_ratio).abs();
+        mass_stability = analysis.temperature_stability_effect.map_or(0.0, |(m, _)| m);
         budget.effective_mass = Some(UncertaintyBudget::new(
             mass.effective_mass_ratio_unc,
-            mass_spread,
+            spread_and_stability(mass_spread, mass_stability),
             (field_relative * mass.effective_mass_ratio).hypot(temperature_shift),
         ));
     }
@@ -177,9 +186,13 @@ pub(super) fn assign(
             (plot.dingle_temperature_k, Some(plot.dingle_temperature_unc_k)),
             &others,
         );
+        let relative_stability = analysis
+            .mass
+            .as_ref()
+            .map_or(0.0, |m| mass_stability / m.effective_mass_ratio);
         budget.dingle_temperature = Some(UncertaintyBudget::new(
             Some(plot.dingle_temperature_unc_k),
-            dingle_spread,
+            spread_and_stability(dingle_spread, plot.dingle_temperature_k * relative_stability),
             (plot.dingle_temperature_k * mass_temperature_relative).abs(),
         ));
     }

@@ -131,6 +131,9 @@ pub(super) fn wrap_phase(angle: f64) -> f64 {
     }
 }
 
+/// The waveform fit starts from the narrow-window mass, and from it halved and doubled.
+pub(super) const WAVEFORM_MASS_FACTORS: [f64; 3] = [1.0, 0.5, 2.0];
+
 /// One sweep as the nonlinear fits see it.
 #[derive(Debug, Clone, Copy)]
 pub(super) struct FitSweep<'a> {
@@ -455,12 +458,14 @@ fn lifshitz_kosevich_derivatives(p: &[f64], x: f64, temperature_k: f64, centre: 
 /// Fits sum_k A_k R_T(X_k(T, x)) exp(-c m_k T_D,k (x - x_c)) cos(2 pi F_k (x - x_c) + psi_k),
 /// X_k = c m_k T x, c = 2 pi^2 k_B m_0 / (hbar e), jointly to every sweep's points, each
 /// sweep at its own temperature and with its own polynomial background when there is one.
-/// Starts: the given ones and the masses halved and doubled.
+/// Starts: the given ones with their masses times each of `mass_factors` (the analysis
+/// uses [`WAVEFORM_MASS_FACTORS`]; a refit from a converged fit needs only 1).
 pub(super) fn fit_waveform(
     sweeps: &[FitSweep],
     starts: &[WaveformStart],
     centre: f64,
     span: f64,
+    mass_factors: &[f64],
 ) -> Result<WaveformOutcome, FitError> {
     let count = starts.len();
     let points: usize = sweeps.iter().map(|s| s.x.len()).sum();
@@ -486,7 +491,7 @@ pub(super) fn fit_waveform(
         ]);
     }
     let bounds = Bounds::new(lower, upper)?;
-    let start_vectors: Vec<Vec<f64>> = [1.0, 0.5, 2.0]
+    let start_vectors: Vec<Vec<f64>> = mass_factors
         .iter()
         .map(|factor| {
             starts

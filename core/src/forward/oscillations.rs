@@ -373,9 +373,9 @@ mod tests {
         ((actual - expected) / expected).abs() <= relative
     }
 
-    // Computed from the Lifshitz-Kosevich and Dingle formulas (Lifshitz and Kosevich 1956;
-    // Shoenberg 1984) with CODATA 2018 constants: check-values, "Magnetoresistance and
-    // quantum oscillations" [C].
+    // Computed from the Lifshitz-Kosevich and Dingle formulas (Lifshitz and Kosevich, Sov.
+    // Phys. JETP 2, 636, 1956; R. B. Dingle, Proc. R. Soc. A 211, 517, 1952; Shoenberg 1984)
+    // with the CODATA 2018 constants.
     #[test]
     fn oscillations_lifshitz_kosevich_check_values() {
         assert!(close(LK_FIELD_PER_KELVIN, 14.693_17, 1e-6), "{LK_FIELD_PER_KELVIN}");
@@ -391,9 +391,10 @@ mod tests {
         assert_eq!(dingle_damping(5.0, 0.067, -5.0), dingle_damping(5.0, 0.067, 5.0));
     }
 
-    // Computed from T_D = hbar / (2 pi k_B tau_q) (check-values [C], "tau_q = 1 ps ->
-    // T_D = 1.21566 K") and from Onsager with n = g_s e F / h (check-values [C]: F = 10 T
-    // gives 4.835978e11 cm^-2 for g_s = 2 and 2.41799e11 cm^-2 for g_s = 1).
+    // Computed from T_D = hbar / (2 pi k_B tau_q) (Dingle 1952: tau_q = 1 ps gives
+    // T_D = 1.21566 K) and from Onsager's relation with n = g_s e F / h (L. Onsager, Phil.
+    // Mag. 43, 1006, 1952: F = 10 T gives 4.835978e11 cm^-2 for g_s = 2 and 2.41799e11 cm^-2
+    // for g_s = 1), both with the CODATA 2018 constants.
     #[test]
     fn oscillations_dingle_lifetime_and_onsager_density_check_values() {
         assert!(
@@ -440,7 +441,7 @@ mod tests {
     }
 
     // Computed from the HLN formula (Hikami, Larkin and Nagaoka, Prog. Theor. Phys. 63, 707,
-    // 1980) with CODATA 2018 constants: check-values [C]: e^2/(2 pi^2 hbar) = 1.2331471e-5 S;
+    // 1980) with the CODATA 2018 constants: e^2/(2 pi^2 hbar) = 1.2331471e-5 S;
     // l_phi = 100 nm -> B_phi = 0.01645530 T; alpha = -1/2: d_sigma(0.1 T) = -2.95829e-6 S,
     // d_sigma(1 T) = -1.37039e-5 S; alpha = 1, l_phi = 1 um: d_sigma(0.1 T) = +5.49278e-5 S.
     #[test]

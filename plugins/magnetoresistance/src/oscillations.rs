@@ -87,6 +87,16 @@
 //!    lowest frequency is stronger than every line and itself significant, the window is
 //!    refused with [`OscillationError::TooFewPeriods`]; when nothing stands out, with
 //!    [`OscillationError::NoOscillation`]. Both say to widen the window.
+//!
+//!    **Dense sweeps.** Once the lines are known, a sweep that samples the highest line's
+//!    period in 1/B far more finely than needed (a ramp logged at 10 Hz: tens of thousands
+//!    of points) is condensed for the fits of steps 6 to 9: runs of k consecutive points are
+//!    replaced by their means, k the largest count whose widest run spans at most 1/32 of that
+//!    period (`prepare::condense_sweep`; a warning says how many were merged). The spectra
+//!    keep every point. The mean over 1/32 of a period keeps the amplitude to 0.998, the same
+//!    factor at every field and temperature, and runs of equal count keep the noise equal
+//!    from point to point; every later step then costs the condensed count, so the analysis
+//!    of a 40,000-point sweep takes seconds, not minutes.
 //! 6. **Refinement.** The FFT's frequency is good to a fraction of the resolution 1/span,
 //!    often a few per cent. The lines are refined by fitting
 //!    sum_k A_k exp(-lambda_k (x - x_c)) cos(2 pi F_k (x - x_c) + psi_k) (x = 1/B, x_c the
@@ -125,7 +135,10 @@
 //!      unbiased, where the magnitude sqrt(a^2 + b^2) would be pushed up by the noise. Its
 //!      standard error comes from the fit's scatter. g(x) = R_T(c m* T x) R_D(x) / (the same
 //!      at the window's mean 1/B) refers the amplitude to the window's own effective field
-//!      B_eff = 1 / mean(1/B), even though the damping changes across the window: at the
+//!      B_eff = 1 / mean(1/B) of the reference sweep's points, the same field for every
+//!      sweep (each sweep's own mean 1/B differs when the sweeps are sampled differently,
+//!      and referring each amplitude to its own field biased the mass by per cents), even
+//!      though the damping changes across the window: at the
 //!      higher temperatures R_T falls several-fold within even three periods, and a constant
 //!      envelope would weight the window's high-field end and bias the mass low by per
 //!      cents. g needs m* and T_D: the first pass takes g = 1, later passes the previous
@@ -161,10 +174,55 @@
 //!    Berry phase pi; F_fan checks F. The phase of cos(2 pi F / B + phi) is
 //!    phi = 2 pi (beta + 1/2).
 //!
+//! # Uncertainties
+//!
+//! Each reported number (F and n, m*, T_D and tau_q) carries a budget in the sense of the
+//! GUM (JCGM 100:2008): `_unc` is the total standard uncertainty, the quadrature sum of a
+//! statistical part (Type A, from the data) and a systematic part (Type B, from stated
+//! calibrations) ([`UncertaintyBudget`], [`OscillationBudget`]).
+//!
+//! - **The fit's own error.** The waveform and refinement fits weight every point alike and
+//!   scale their covariance by the scatter of the residuals (chi^2 / nu with unit weights),
+//!   which is the Birge scaling (Birge 1932) of a fit without stated errors; the Dingle line
+//!   is weighted by its window amplitudes' errors and scaled by sqrt(chi^2 / nu) when that
+//!   exceeds one. These errors assume independent residuals, which a background that the
+//!   model does not follow breaks: the misfit is smooth, correlated from point to point, and
+//!   moves F, m* and T_D by several of these errors (a test shows it for F).
+//! - **The spread over backgrounds and windows.** The analysis is repeated with the
+//!   polynomial degree raised by 2 and by 4 (up to 12), or the smoothing half-width at 0.6
+//!   and 1.5 times the given, and with the window shortened by the lowest fifth of its 1/B
+//!   span (`model_spread`, default on; the variants are listed in the summary as
+//!   `uncertainty_checks`). For each variant the squared change of the result, less the
+//!   part the noise explains (|u_variant^2 - u^2|, the variance of the difference of two
+//!   estimates from the same data when both are unbiased; after Barlow, "Systematic errors:
+//!   facts and fictions", 2002, from memory), is the squared size of the choice's effect;
+//!   the largest over the variants enters the statistical part in quadrature. A variant
+//!   whose strongest line is another line, or that fails, is left out with a warning. This
+//!   costs three more passes of the analysis.
+//! - **Calibrations** (Type B, stated per call; not included when not given, and the
+//!   summary lists them under `calibrations_not_stated`): `field_calibration_rel` scales F
+//!   and n, and m* (X = c m* T / B), by the same relative amount, and leaves T_D (c m* T_D /
+//!   B is what the data fix); `temperature_accuracy_k`, a thermometer error common to every
+//!   sweep, moves m* by the change of a refit of the waveform with every temperature raised
+//!   by it (a numerical sensitivity coefficient, JCGM 100:2008 5.1.3), and T_D by the same
+//!   relative amount the other way (the Dingle slope fixes m* T_D).
+//! - **Temperature stability** (`temperature_stability_k`, stated per call; not included
+//!   when not given): each sweep's own temperature error (the stage's drift and setpoint
+//!   scatter), independent from sweep to sweep. The waveform is refitted with one sweep's
+//!   temperature raised by it at a time, and the changes of m* add in quadrature; T_D moves
+//!   by the same relative amount. It is random from sweep to sweep, so it enters the
+//!   statistical part.
+//!
+//! The coverage test (`oscillations/coverage.rs`) checks on realistic sweep sets that the
+//! totals cover the truth as often as standard uncertainties should.
+//!
 //! Multiple lines: the frequencies and densities are reported for each; the narrow-window
 //! mass, the Dingle plot and the fan use the strongest line only, and the other lines are
 //! noise to them (a warning says when a second line is above 20 % of the first).
 
+mod budget;
+#[cfg(test)]
+mod coverage;
 mod error;
 mod mass;
 mod prepare;
@@ -182,9 +240,12 @@ use mobilis_core::forward::oscillations::{
 
 pub use error::OscillationError;
 pub use mass::fit_thermal_damping;
-use prepare::{field_window, make_grid, prepare_sweep, resample, validate_sweeps};
+use prepare::{condense_sweep, field_window, make_grid, prepare_sweep, resample, validate_sweeps};
 use spectrum::{find_peaks, PeakSearch, SearchLimits};
-use waveform::{fit_waveform, in_phase_amplitude, refine_components, FitSweep, RefinedComponent, WaveformStart};
+use waveform::{
+    fit_waveform, in_phase_amplitude, refine_components, FitSweep, RefinedComponent, WaveformStart,
+    WAVEFORM_MASS_FACTORS,
+};
 
 /// Rounds of backfitting (background re-estimated from the data minus the fitted
 /// oscillation) for the smoothing background: each round shrinks the share of the
@@ -290,6 +351,19 @@ pub struct OscillationSettings {
     pub dingle_window_periods: Option<f64>,
     /// Build the Landau-level fan (default false).
     pub landau_fan: bool,
+    /// Repeat the analysis with other backgrounds and a shorter window and add the spread of
+    /// the results to the uncertainties (default true; see "Uncertainties").
+    pub model_spread: bool,
+    /// Relative standard uncertainty of the field calibration (Type B; default: not given,
+    /// not included).
+    pub field_calibration_rel: Option<f64>,
+    /// Standard uncertainty of the thermometer, K, common to every sweep (Type B; default:
+    /// not given, not included).
+    pub temperature_accuracy_k: Option<f64>,
+    /// Standard uncertainty of each sweep's temperature on its own, K: the stage's drift and
+    /// setpoint scatter, independent from sweep to sweep (Type A; default: not given, not
+    /// included).
+    pub temperature_stability_k: Option<f64>,
 }
 
 impl Default for OscillationSettings {
@@ -315,6 +389,10 @@ impl Default for OscillationSettings {
             dingle: true,
             dingle_window_periods: None,
             landau_fan: false,
+            model_spread: true,
+            field_calibration_rel: None,
+            temperature_accuracy_k: None,
+            temperature_stability_k: None,
         }
     }
 }
@@ -423,6 +501,33 @@ impl OscillationSettings {
                 self.mass_window_periods,
                 "give at least 1 period per window",
             );
+        }
+        if let Some(accuracy) = self.field_calibration_rel {
+            if !(accuracy.is_finite() && (0.0..0.5).contains(&accuracy)) {
+                return invalid(
+                    "field_calibration_rel",
+                    accuracy,
+                    "give the field calibration's relative standard uncertainty, from 0 to 0.5 (0.001 is 0.1 %)",
+                );
+            }
+        }
+        if let Some(accuracy) = self.temperature_accuracy_k {
+            if !(accuracy.is_finite() && accuracy >= 0.0) {
+                return invalid(
+                    "temperature_accuracy_K",
+                    accuracy,
+                    "give the thermometer's standard uncertainty in K, 0 or more",
+                );
+            }
+        }
+        if let Some(stability) = self.temperature_stability_k {
+            if !(stability.is_finite() && stability >= 0.0) {
+                return invalid(
+                    "temperature_stability_K",
+                    stability,
+                    "give each sweep's temperature stability as a standard uncertainty in K, 0 or more",
+                );
+            }
         }
         if let Some(periods) = self.dingle_window_periods {
             if !(periods.is_finite() && periods >= 0.5) {
@@ -624,11 +729,16 @@ pub struct LandauFan {
     pub phase_rad: f64,
 }
 
-/// The contract's summary numbers (and their uncertainties).
+/// The contract's summary numbers (and their uncertainties: `_unc` the total standard
+/// uncertainty, the budgets its parts).
 #[derive(Debug, Clone, PartialEq)]
 pub struct OscillationSummary {
     pub frequency_t: f64,
     pub frequency_unc_t: Option<f64>,
+    pub frequency_budget: Option<UncertaintyBudget>,
+    pub sheet_density_budget: Option<UncertaintyBudget>,
+    pub effective_mass_budget: Option<UncertaintyBudget>,
+    pub dingle_temperature_budget: Option<UncertaintyBudget>,
     pub sheet_density_m2: f64,
     pub sheet_density_unc_m2: Option<f64>,
     pub effective_mass_ratio: Option<f64>,
@@ -665,31 +775,131 @@ pub struct OscillationAnalysis {
     pub waveform: Option<WaveformFit>,
     pub dingle: Option<DinglePlot>,
     pub landau_fan: Option<LandauFan>,
+    /// The uncertainty budget of F, n, m* and T_D ("Uncertainties" in the module
+    /// documentation).
+    pub budget: OscillationBudget,
+    /// d m* / d T_thermometer and d T_D / d T_thermometer of the waveform fit (per K), from
+    /// a refit with every temperature raised by the stated thermometer accuracy.
+    temperature_sensitivity: Option<(f64, f64)>,
+    /// The change of m* and of the waveform's T_D from the stated per-sweep temperature
+    /// stability, each sweep's effect in quadrature.
+    temperature_stability_effect: Option<(f64, f64)>,
     pub warnings: Vec<String>,
 }
 
-impl OscillationAnalysis {
-    /// The summary numbers of the strongest line.
-    pub fn summary(&self) -> OscillationSummary {
-        let line = &self.lines[0];
-        OscillationSummary {
-            frequency_t: line.frequency_t,
-            frequency_unc_t: line.frequency_unc_t,
-            sheet_density_m2: line.sheet_density_m2,
-            sheet_density_unc_m2: line.sheet_density_unc_m2,
-            effective_mass_ratio: self.mass.as_ref().map(|m| m.effective_mass_ratio),
-            effective_mass_ratio_unc: self.mass.as_ref().and_then(|m| m.effective_mass_ratio_unc),
-            mass_method: self.mass.as_ref().map(|m| m.method),
-            dingle_temperature_k: self.dingle.as_ref().map(|d| d.dingle_temperature_k),
-            dingle_temperature_unc_k: self.dingle.as_ref().map(|d| d.dingle_temperature_unc_k),
-            quantum_lifetime_s: self.dingle.as_ref().map(|d| d.quantum_lifetime_s),
-            quantum_lifetime_unc_s: self.dingle.as_ref().map(|d| d.quantum_lifetime_unc_s),
+/// The uncertainty budget of one result: `statistical` (Type A: the fit's standard error,
+/// scaled by the residual scatter, and the spread over backgrounds and windows) and
+/// `systematic` (Type B: the stated calibrations), `total` their quadrature sum.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct UncertaintyBudget {
+    /// The fit's own standard error (scaled by the scatter of the residuals).
+    pub fit: Option<f64>,
+    /// The spread over the other backgrounds and windows beyond what their noise explains,
+    /// with the effect of the stated per-sweep temperature stability in quadrature.
+    pub analysis_spread: f64,
+    /// From the stated field and temperature calibrations.
+    pub calibration: f64,
+    pub statistical: Option<f64>,
+    pub systematic: f64,
+    pub total: Option<f64>,
+}
+
+impl UncertaintyBudget {
+    fn new(fit: Option<f64>, analysis_spread: f64, calibration: f64) -> Self {
+        let statistical = fit.map(|u| u.hypot(analysis_spread));
+        UncertaintyBudget {
+            fit,
+            analysis_spread,
+            calibration,
+            statistical,
+            systematic: calibration,
+            total: statistical.map(|u| u.hypot(calibration)),
         }
     }
 }
 
-/// Runs the analysis of the module documentation on `sweeps`.
+/// The budgets of the summary's numbers and what went into them.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct OscillationBudget {
+    pub frequency: Option<UncertaintyBudget>,
+    pub sheet_density: Option<UncertaintyBudget>,
+    pub effective_mass: Option<UncertaintyBudget>,
+    pub dingle_temperature: Option<UncertaintyBudget>,
+    /// The repeated analyses whose spread entered ("background degree 5", ...).
+    pub variants: Vec<String>,
+    /// Calibrations not stated, so not included: parameter names.
+    pub calibrations_not_stated: Vec<&'static str>,
+}
+
+impl OscillationAnalysis {
+    /// The summary numbers of the strongest line, with the totals of the budget as their
+    /// uncertainties.
+    pub fn summary(&self) -> OscillationSummary {
+        let line = &self.lines[0];
+        let budget = &self.budget;
+        let total = |b: &Option<UncertaintyBudget>, fit: Option<f64>| match b {
+            Some(b) => b.total,
+            None => fit,
+        };
+        let dingle_temperature_k = self.dingle.as_ref().map(|d| d.dingle_temperature_k);
+        let dingle_temperature_unc_k = total(
+            &budget.dingle_temperature,
+            self.dingle.as_ref().map(|d| d.dingle_temperature_unc_k),
+        );
+        let quantum_lifetime_s = self.dingle.as_ref().map(|d| d.quantum_lifetime_s);
+        // tau_q = hbar / (2 pi k_B T_D): the relative uncertainty of T_D.
+        let quantum_lifetime_unc_s = match (quantum_lifetime_s, dingle_temperature_k, dingle_temperature_unc_k) {
+            (Some(tau), Some(t), Some(u)) => Some((tau * u / t).abs()),
+            _ => None,
+        };
+        OscillationSummary {
+            frequency_t: line.frequency_t,
+            frequency_unc_t: total(&budget.frequency, line.frequency_unc_t),
+            frequency_budget: budget.frequency,
+            sheet_density_budget: budget.sheet_density,
+            effective_mass_budget: budget.effective_mass,
+            dingle_temperature_budget: budget.dingle_temperature,
+            sheet_density_m2: line.sheet_density_m2,
+            sheet_density_unc_m2: total(&budget.sheet_density, line.sheet_density_unc_m2),
+            effective_mass_ratio: self.mass.as_ref().map(|m| m.effective_mass_ratio),
+            effective_mass_ratio_unc: total(
+                &budget.effective_mass,
+                self.mass.as_ref().and_then(|m| m.effective_mass_ratio_unc),
+            ),
+            mass_method: self.mass.as_ref().map(|m| m.method),
+            dingle_temperature_k,
+            dingle_temperature_unc_k,
+            quantum_lifetime_s,
+            quantum_lifetime_unc_s,
+        }
+    }
+}
+
+/// Runs the analysis of the module documentation on `sweeps`, with its uncertainty budget.
 pub fn analyze_oscillations(
+    sweeps: &[OscillationSweep],
+    settings: &OscillationSettings,
+) -> Result<OscillationAnalysis, OscillationError> {
+    let mut analysis = analyze_once(sweeps, settings)?;
+    let mut outcomes = Vec::new();
+    if settings.model_spread {
+        for (label, variant) in budget::variants(settings, &analysis) {
+            // A variant that fails (too few points for a high degree, a window without a
+            // line) has nothing to say about the spread; it is left out, and named.
+            match analyze_once(sweeps, &variant) {
+                Ok(other) => outcomes.push((label, other)),
+                Err(error) => analysis.warnings.push(format!(
+                    "the check of the uncertainty with {label} failed and was left out: {error}"
+                )),
+            }
+        }
+    }
+    budget::assign(&mut analysis, &outcomes, settings);
+    Ok(analysis)
+}
+
+/// One pass of the analysis with these settings, without the spread over variants.
+fn analyze_once(
     sweeps: &[OscillationSweep],
     settings: &OscillationSettings,
 ) -> Result<OscillationAnalysis, OscillationError> {
@@ -767,6 +977,21 @@ pub fn analyze_oscillations(
         Background::Polynomial { .. } => 1,
         Background::Smoothing { .. } => BACKFITTING_ROUNDS,
     };
+    // Dense sweeps are condensed for the fits (the spectra above used every point).
+    let highest_line = fft_frequencies.iter().copied().fold(0.0f64, f64::max) + 2.0 / span;
+    for (index, sweep) in sweeps.iter().enumerate() {
+        if let Some(condensed) = condense_sweep(sweep, window, highest_line) {
+            let grid_values = std::mem::take(&mut prepared[index].grid_values);
+            let merged = sweep.field_t.len() / condensed.field_t.len().max(1);
+            prepared[index] = prepare_sweep(index, &condensed, window, &settings.background)?;
+            prepared[index].grid_values = grid_values;
+            prepared[index].merged_points = merged;
+            warnings.push(format!(
+                "the sweep at {} K samples each period densely: about {merged} consecutive points were averaged into one for the fits (each group spans at most 1/32 of the shortest period), which keeps the result and takes a fraction of the time",
+                sweep.temperature_k
+            ));
+        }
+    }
     let mut refined: Option<Vec<RefinedComponent>> = None;
     let mut source = "refinement";
     for _ in 0..rounds {
@@ -806,6 +1031,7 @@ pub fn analyze_oscillations(
                     range,
                     peak.frequency_t,
                     0.0,
+                    None,
                     None,
                 );
                 RefinedComponent {
@@ -885,6 +1111,8 @@ pub fn analyze_oscillations(
     };
     let mut narrow = None;
     let mut waveform_fit = None;
+    let mut temperature_sensitivity = None;
+    let mut temperature_stability_effect = None;
     let mut mass_estimate = match settings.mass {
         MassRequest::Known { effective_mass_ratio } => Some(MassEstimate {
             effective_mass_ratio,
@@ -944,7 +1172,7 @@ pub fn analyze_oscillations(
                     projection: sweep.projection(),
                 })
                 .collect();
-            match fit_waveform(&fit_sweeps, &starts, centre, span) {
+            match fit_waveform(&fit_sweeps, &starts, centre, span, &WAVEFORM_MASS_FACTORS) {
                 Ok(outcome) => {
                     for (sweep, model) in prepared.iter_mut().zip(&outcome.models) {
                         sweep.update_background(model)?;
@@ -987,6 +1215,45 @@ pub fn analyze_oscillations(
                     }
                     break;
                 }
+            }
+        }
+        // The thermometer: the waveform refitted, from where the fit ended, with every
+        // temperature raised by the stated accuracy (an error common to the series), and
+        // with each sweep's alone raised by the stated stability (errors independent from
+        // sweep to sweep, added in quadrature): numerical sensitivity coefficients, JCGM
+        // 100:2008 5.1.3.
+        if let Some(fit) = &waveform_fit {
+            let base = &fit.components[0];
+            let refit = |raise: &dyn Fn(usize) -> f64| -> Option<(f64, f64)> {
+                let shifted: Vec<FitSweep> = prepared
+                    .iter()
+                    .enumerate()
+                    .map(|(index, sweep)| FitSweep {
+                        x: &sweep.inverse_field,
+                        target: sweep.fit_target(),
+                        temperature_k: sweep.temperature_k + raise(index),
+                        projection: sweep.projection(),
+                    })
+                    .collect();
+                let outcome = fit_waveform(&shifted, &starts, centre, span, &[1.0]).ok()?;
+                let moved = &outcome.components[0];
+                Some((
+                    moved.effective_mass_ratio - base.effective_mass_ratio,
+                    moved.dingle_temperature_k - base.dingle_temperature_k,
+                ))
+            };
+            if let Some(accuracy) = settings.temperature_accuracy_k.filter(|a| *a > 0.0) {
+                temperature_sensitivity = refit(&|_| accuracy).map(|(m, t)| (m / accuracy, t / accuracy));
+            }
+            if let Some(stability) = settings.temperature_stability_k.filter(|s| *s > 0.0) {
+                let mut squares = (0.0, 0.0);
+                for index in 0..prepared.len() {
+                    if let Some((m, t)) = refit(&|i| if i == index { stability } else { 0.0 }) {
+                        squares.0 += m * m;
+                        squares.1 += t * t;
+                    }
+                }
+                temperature_stability_effect = Some((squares.0.sqrt(), squares.1.sqrt()));
             }
         }
         // The waveform fit's frequencies and phases use every sweep and the exact damping.
@@ -1160,6 +1427,9 @@ pub fn analyze_oscillations(
         waveform: waveform_fit,
         dingle,
         landau_fan,
+        budget: OscillationBudget::default(),
+        temperature_sensitivity,
+        temperature_stability_effect,
         warnings,
     })
 }

@@ -55,22 +55,28 @@
 //!    scatter sets the errors (the shared error of sigma(0) is then invisible to the fit;
 //!    use `fit_offset`).
 //! 5. **Uncertainties.** From the fit's covariance; l_phi = sqrt(hbar / (4 e B_phi)) has
-//!    the relative error of B_phi halved.
+//!    the relative error of B_phi halved. Weighted by stated errors, the covariance is
+//!    multiplied by chi^2 / nu when that exceeds 1 (the Birge ratio, Birge 1932, as the
+//!    Particle Data Group does; never shrunk); weighted by the scatter, it is scaled by the
+//!    scatter. A coverage test (`weak_localization/coverage.rs`) checks that l_phi's
+//!    uncertainty covers the truth as often as a standard uncertainty should.
 //! 6. **Warnings.** B_phi below a third of the lowest nonzero |B| (the cusp is not resolved:
 //!    only a lower bound on l_phi is meaningful; measure closer to zero field); B_phi above the
 //!    highest field (every point is in the quadratic regime, where only alpha / B_phi^2 is
-//!    determined); a parameter on its bound; chi^2 / nu above 1 + 4 sqrt(2 / nu) with
-//!    uncertainties given (the HLN form alone does not describe the data: add the classical
-//!    term or lower `max_field_t`).
+//!    determined); a parameter on its bound; with uncertainties given, a chi-square p-value
+//!    below 1e-3, naming the worst points (the HLN form alone does not describe the data:
+//!    add the classical term or lower `max_field_t`, or check the stated uncertainties).
 
 use std::fmt;
 
-use mobilis_core::fit::{Bounds, FitError, LeastSquares, LmOptions, SameMinimum};
+use mobilis_core::fit::{Bounds, FitError, FitQuality, LeastSquares, LmOptions, SameMinimum};
 use mobilis_core::forward::oscillations::{
     hln_bracket, phase_coherence_field_t, phase_coherence_length_m, HLN_CONDUCTANCE_S,
 };
 use mobilis_core::linalg::{Matrix, Svd};
 
+#[cfg(test)]
+mod coverage;
 #[cfg(test)]
 mod tests;
 
@@ -149,6 +155,9 @@ pub struct WeakLocalizationFit {
     pub zero_field_points: usize,
     pub chi_square: f64,
     pub reduced_chi_square: f64,
+    /// The chi-square statistics of a fit weighted by stated errors (p-value, Birge ratio,
+    /// which scaled the uncertainties when above 1); None when the scatter set the weights.
+    pub quality: Option<FitQuality>,
     pub fitted_points: usize,
     /// True when the residuals were weighted by the given uncertainties.
     pub weighted: bool,
@@ -434,9 +443,16 @@ pub fn fit_weak_localization(
         .minimize_multi_start(&starts, &options, &SameMinimum::default())
         .map_err(WeakLocalizationError::Fit)?;
     let fit = multi.best;
+    // Weighted by stated errors, the covariance is (J^T J)^-1 as it stands; when chi^2 / nu
+    // exceeds 1 it is multiplied by chi^2 / nu (the Birge ratio squared, Birge 1932, as the
+    // Particle Data Group does), never shrunk. Weighted by the scatter, the solver has
+    // already scaled it.
+    let quality = FitQuality::assess(fit.chi_square, fit.degrees_of_freedom);
+    let error_scale = if weighted { quality.birge_ratio } else { 1.0 };
+    let standard_errors: Vec<f64> = fit.standard_errors.iter().map(|e| e * error_scale).collect();
     let (alpha, b_phi, beta, offset) = unpack(&fit.parameters);
     let finite = |v: f64| v.is_finite().then_some(v);
-    let ln_b_unc = finite(fit.standard_errors[1]);
+    let ln_b_unc = finite(standard_errors[1]);
     let l_phi = phase_coherence_length_m(b_phi);
     let mut warnings = Vec::new();
     let nonzero = || {
@@ -481,14 +497,14 @@ pub fn fit_weak_localization(
             ));
         }
     }
-    let dof = fit.degrees_of_freedom as f64;
-    if weighted && dof > 0.0 && fit.reduced_chi_square > 1.0 + 4.0 * (2.0 / dof).sqrt() {
-        warnings.push(format!(
-            "chi^2 per degree of freedom is {:.2}: more than the noise explains; add the classical term or lower max_field_T, or check the uncertainties",
-            fit.reduced_chi_square
-        ));
+    if weighted {
+        if let Some(warning) = quality.warning(&fit.residuals, |i| format!("B = {:.5} T", fields[i])) {
+            warnings.push(format!(
+                "{warning}; add the classical term or lower max_field_T, or check the stated rho_xx uncertainties (rho_xx_ohm_sq_unc), which weight the points"
+            ));
+        }
     }
-    let result_unc = |j: Option<usize>| j.and_then(|j| finite(fit.standard_errors[j]));
+    let result_unc = |j: Option<usize>| j.and_then(|j| finite(standard_errors[j]));
     let curve = (0..n)
         .map(|i| {
             let b = sweep.field_t[i];
@@ -515,7 +531,7 @@ pub fn fit_weak_localization(
         .collect();
     Ok(WeakLocalizationFit {
         alpha,
-        alpha_unc: finite(fit.standard_errors[0]),
+        alpha_unc: finite(standard_errors[0]),
         phase_coherence_length_m: l_phi,
         phase_coherence_length_unc_m: ln_b_unc.map(|u| 0.5 * u * l_phi),
         phase_coherence_field_t: b_phi,
@@ -529,6 +545,7 @@ pub fn fit_weak_localization(
         zero_field_points: zero.len(),
         chi_square: fit.chi_square,
         reduced_chi_square: fit.reduced_chi_square,
+        quality: weighted.then_some(quality),
         fitted_points: fields.len(),
         weighted,
         single_field_sign,

@@ -7,6 +7,7 @@ use crate::oscillations::{
 use crate::weak_localization::{fit_weak_localization, WeakLocalizationSettings, WeakLocalizationSweep};
 use mobilis_core::abi::AnalysisDeclaration;
 use mobilis_core::fft::Window;
+use mobilis_core::fit::FitQuality;
 use mobilis_core::forward::oscillations::thermal_damping_factor;
 use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 use mobilis_core::sweep::{symmetrize, SweepUse};
@@ -51,6 +52,14 @@ pub struct OscillationParams {
     dingle: Option<bool>,
     #[serde(default)]
     landau_fan: Option<bool>,
+    #[serde(default)]
+    model_spread: Option<bool>,
+    #[serde(default)]
+    field_calibration_rel: Option<f64>,
+    #[serde(rename = "temperature_accuracy_K", default)]
+    temperature_accuracy_k: Option<f64>,
+    #[serde(rename = "temperature_stability_K", default)]
+    temperature_stability_k: Option<f64>,
 }
 
 impl OscillationParams {
@@ -129,6 +138,12 @@ impl OscillationParams {
         if let Some(fan) = self.landau_fan {
             settings.landau_fan = fan;
         }
+        if let Some(spread) = self.model_spread {
+            settings.model_spread = spread;
+        }
+        settings.field_calibration_rel = self.field_calibration_rel;
+        settings.temperature_accuracy_k = self.temperature_accuracy_k;
+        settings.temperature_stability_k = self.temperature_stability_k;
         Ok(settings)
     }
 }
@@ -160,10 +175,14 @@ impl Analysis for OscillationsAnalysis {
         p.insert("mass_method".into(), json!({"type": "string", "enum": ["waveform_fit", "narrow_windows"], "default": "waveform_fit", "description": "fit the damped waveform across temperatures, or fit the Lifshitz-Kosevich damping in narrow 1/B windows each with its own field; both avoid the bias of one wide FFT window"}));
         p.insert("dingle".into(), json!({"type": "boolean", "default": true, "description": "Dingle temperature and quantum lifetime from the amplitude's field dependence"}));
         p.insert("landau_fan".into(), json!({"type": "boolean", "default": false, "description": "Landau-level fan of the extrema for the phase"}));
+        p.insert("model_spread".into(), json!({"type": "boolean", "default": true, "description": "repeat the analysis with higher background degrees (or other smoothing widths) and a shorter field window, and add the spread of F, m* and T_D beyond their noise to the statistical uncertainty"}));
+        p.insert("field_calibration_rel".into(), json!({"type": "number", "minimum": 0, "maximum": 0.5, "description": "relative standard uncertainty of the magnet's field calibration (Type B); scales F, n and m*. Not included when not given"}));
+        p.insert("temperature_stability_K".into(), json!({"type": "number", "minimum": 0, "description": "standard uncertainty of each sweep's own temperature (stage drift, setpoint scatter), independent from sweep to sweep; moves m* and T_D in the statistical part. Not included when not given"}));
+        p.insert("temperature_accuracy_K".into(), json!({"type": "number", "minimum": 0, "description": "standard uncertainty of the thermometer, common to every sweep (Type B); moves m* and T_D. Not included when not given"}));
         AnalysisDeclaration {
             name: String::new(),
             summary: "Shubnikov-de Haas analysis: frequencies and 2D densities, the effective mass from the thermal damping, the Dingle temperature and quantum lifetime".into(),
-            description: "Each temperature's sweep is symmetrized; the background is removed (polynomial in B or smoothing), the oscillation resampled on a uniform 1/B grid and transformed (windowed, zero-padded FFT). n = g_s e F / h (Onsager). The mass comes from the Lifshitz-Kosevich factor X / sinh X, X = 2 pi^2 k_B T m* / (hbar e B), fitted where each amplitude has its own effective field, never from one wide-window FFT amplitude (which mixes very different damping); the Dingle temperature from ln(A sinh X / X) against 1/B, tau_q = hbar / (2 pi k_B T_D).".into(),
+            description: "Each temperature's sweep is symmetrized; the background is removed (polynomial in B or smoothing), the oscillation resampled on a uniform 1/B grid and transformed (windowed, zero-padded FFT). n = g_s e F / h (Onsager). The mass comes from the Lifshitz-Kosevich factor X / sinh X, X = 2 pi^2 k_B T m* / (hbar e B), fitted where each amplitude has its own effective field, never from one wide-window FFT amplitude (which mixes very different damping); the Dingle temperature from ln(A sinh X / X) against 1/B, tau_q = hbar / (2 pi k_B T_D). Each result's _unc is the total standard uncertainty: _unc_stat (the fit's scatter-scaled error and the spread over higher background degrees and a shorter window) and _unc_sys (the stated field_calibration_rel and temperature_accuracy_K) in quadrature.".into(),
             params: json!({"type": "object", "additionalProperties": false, "properties": p}),
             inputs: vec![sweep_role(true)],
             outputs: vec![
@@ -185,6 +204,8 @@ impl Analysis for OscillationsAnalysis {
                 column("dingle_temperature_K", F64, Some("K"), "with _unc"),
                 column("quantum_lifetime_s", F64, Some("s"), "hbar / (2 pi k_B T_D), with _unc"),
                 super::classical::single_field_sign_key(),
+                column("calibrations_not_stated", Str, None, "the calibration parameters not stated, so not in the _unc_sys parts (JSON list)"),
+                column("uncertainty_checks", Str, None, "the repeated analyses whose spread is in the _unc_stat parts (JSON list)"),
             ],
         }
     }
@@ -388,6 +409,50 @@ impl Analysis for OscillationsAnalysis {
             "dingle_temperature_K_unc".into(),
             json!(summary_values.dingle_temperature_unc_k),
         );
+        // The budget: _unc the total, _unc_stat (the fit's scatter-scaled error and the spread
+        // over backgrounds and windows), _unc_sys (the stated calibrations), and the parts of
+        // the statistical one.
+        for (key, budget) in [
+            ("frequency_T", summary_values.frequency_budget),
+            ("sheet_density_m2", summary_values.sheet_density_budget),
+            ("effective_mass_ratio", summary_values.effective_mass_budget),
+            ("dingle_temperature_K", summary_values.dingle_temperature_budget),
+        ] {
+            if let Some(budget) = budget {
+                summary.insert(format!("{key}_unc_stat"), json!(budget.statistical));
+                summary.insert(format!("{key}_unc_sys"), json!(budget.systematic));
+                summary.insert(format!("{key}_unc_fit"), json!(budget.fit));
+                summary.insert(format!("{key}_unc_analysis_spread"), json!(budget.analysis_spread));
+            }
+        }
+        summary.insert(
+            "calibrations_not_stated".into(),
+            json!(analysis.budget.calibrations_not_stated),
+        );
+        summary.insert("uncertainty_checks".into(), json!(analysis.budget.variants));
+        if let Some(plot) = &analysis.dingle {
+            // The Dingle line is weighted by its windows' amplitude errors; its slope's error
+            // was scaled by the Birge ratio when chi^2 / nu > 1.
+            let nu = plot.points.len().saturating_sub(2);
+            let quality = FitQuality::assess(plot.reduced_chi_square * nu as f64, nu);
+            summary.insert(
+                "dingle_reduced_chi_square".into(),
+                json!(finite_or_null(quality.reduced_chi_square)),
+            );
+            summary.insert(
+                "dingle_chi_square_p_value".into(),
+                json!(finite_or_null(quality.p_value)),
+            );
+            summary.insert("dingle_birge_ratio".into(), json!(quality.birge_ratio));
+        }
+        if let Some(fit) = &analysis.waveform {
+            // The waveform fit weights every point alike and scales its errors by the
+            // residual scatter: its reduced chi-square is that scatter's variance.
+            summary.insert(
+                "waveform_residual_rms_ohm_sq".into(),
+                json!(fit.reduced_chi_square.max(0.0).sqrt()),
+            );
+        }
         summary.insert("quantum_lifetime_s".into(), json!(summary_values.quantum_lifetime_s));
         summary.insert(
             "quantum_lifetime_s_unc".into(),
@@ -430,6 +495,11 @@ impl Analysis for OscillationsAnalysis {
         host.progress(1.0, "done");
         Ok(output)
     }
+}
+
+/// A number for the summary, or null when it is not finite (no degrees of freedom).
+fn finite_or_null(value: f64) -> Option<f64> {
+    value.is_finite().then_some(value)
 }
 
 /// Points of each window's fitted Lifshitz-Kosevich curve.
@@ -506,6 +576,9 @@ impl Analysis for WeakLocalizationAnalysis {
                 column("phase_coherence_length_m", F64, Some("m"), "l_phi, with _unc"),
                 column("alpha", F64, None, "HLN prefactor (-1/2 for one channel with strong spin-orbit coupling), with _unc"),
                 super::classical::single_field_sign_key(),
+                column("reduced_chi_square", F64, None, "chi^2 / nu of the fit"),
+                column("chi_square_p_value", F64, None, "P(chi^2 >= observed) when rho_xx_ohm_sq_unc weights the fit, else null"),
+                column("birge_ratio", F64, None, "sqrt(chi^2 / nu) when above 1 (the uncertainties were multiplied by it), else 1; null without stated uncertainties"),
             ],
         }
     }
@@ -562,6 +635,12 @@ impl Analysis for WeakLocalizationAnalysis {
         summary.insert("classical_S_per_T2".into(), json!(fit.classical_s_per_t2));
         summary.insert("zero_field_conductance_S".into(), json!(fit.zero_field_conductance_s));
         summary.insert("reduced_chi_square".into(), json!(fit.reduced_chi_square));
+        // p-value and Birge ratio only mean something against stated errors.
+        summary.insert(
+            "chi_square_p_value".into(),
+            json!(fit.quality.as_ref().map(|q| q.p_value)),
+        );
+        summary.insert("birge_ratio".into(), json!(fit.quality.as_ref().map(|q| q.birge_ratio)));
         summary.insert("fitted_points".into(), json!(fit.fitted_points));
         summary.insert("single_field_sign".into(), json!(fit.single_field_sign));
         output.warnings = table.warnings.clone();
@@ -622,6 +701,25 @@ mod tests {
         .unwrap();
         let inputs = Inputs::from_tables([("sweep".to_string(), sweep)]);
         let output = run_typed::<OscillationsAnalysis>("{}", &inputs, &Host::detached()).unwrap();
+        // The budget: _unc is the quadrature sum of _unc_stat and _unc_sys, and the
+        // calibrations not stated are named.
+        let summary = &output.summary;
+        for key in [
+            "frequency_T",
+            "sheet_density_m2",
+            "effective_mass_ratio",
+            "dingle_temperature_K",
+        ] {
+            let total = summary[&format!("{key}_unc")].as_f64().unwrap();
+            let stat = summary[&format!("{key}_unc_stat")].as_f64().unwrap();
+            let sys = summary[&format!("{key}_unc_sys")].as_f64().unwrap();
+            assert!((total - stat.hypot(sys)).abs() <= 1e-12 * total, "{key}: {summary:?}");
+        }
+        assert_eq!(
+            summary["calibrations_not_stated"],
+            json!(["field_calibration_rel", "temperature_accuracy_K"])
+        );
+        assert!(output.warnings.iter().any(|w| w.contains("no calibration was stated")));
         let table = &output.table;
         let kinds = text(table, "kind");
         let t = numbers(table, "temperature_K");
@@ -652,6 +750,48 @@ mod tests {
                 b[row]
             );
         }
+    }
+
+    /// A weak-localization sweep logged along a ramp: 40,000 points at 10 Hz from 0 to 14 T,
+    /// positive field only, fitted up to 0.1 T. The film is invented (sigma_0 = 1/2080.5 S,
+    /// alpha = 1, l_phi = 250 nm); the fit finds l_phi within its uncertainty.
+    #[test]
+    fn weak_localization_runs_on_a_long_logged_ramp() {
+        use mobilis_core::forward::oscillations::{synthetic_weak_localization_sweep, WeakLocalizationModel};
+        use mobilis_core::forward::tensor::SweepNoise;
+        use mobilis_core::noise::Rng;
+        let model = WeakLocalizationModel {
+            sigma_0_s: 1.0 / 2080.5,
+            alpha: 1.0,
+            phase_coherence_length_m: 250e-9,
+            classical_s_per_t2: 0.0,
+        };
+        let field: Vec<f64> = (0..40_000).map(|k| 14.0 * k as f64 / 39_999.0).collect();
+        let noise = SweepNoise {
+            absolute_ohm: 2e-3,
+            relative: 1e-5,
+        };
+        let rho_xx = synthetic_weak_localization_sweep(&model, &field, &noise, &mut Rng::seeded(5)).unwrap();
+        let rows = field.len();
+        let sweep = DataFrame::new(
+            rows,
+            vec![
+                floats("field_T", field),
+                floats("rho_xx_ohm_sq", rho_xx),
+                floats("rho_xy_ohm", vec![0.0; rows]),
+            ],
+        )
+        .unwrap();
+        let inputs = Inputs::from_tables([("sweep".to_string(), sweep)]);
+        let output =
+            run_typed::<WeakLocalizationAnalysis>(r#"{"max_field_T": 0.1}"#, &inputs, &Host::detached()).unwrap();
+        let l_phi = output.summary["phase_coherence_length_m"].as_f64().unwrap();
+        let unc = output.summary["phase_coherence_length_m_unc"].as_f64().unwrap();
+        assert!(
+            (l_phi - 250e-9).abs() < 3.0 * unc && unc < 0.05 * l_phi,
+            "{l_phi} +- {unc}"
+        );
+        assert_eq!(output.table.height(), rows);
     }
 
     #[test]

@@ -255,6 +255,7 @@ pub(super) fn narrow_windows(
             frequency,
             0.0,
             reference_envelope.as_ref().map(|g| g as &dyn Fn(f64, f64) -> f64),
+            None,
         ) else {
             warnings.push(format!(
                 "mass window {j} (1/B in [{:.4}, {:.4}] 1/T) has too few points in the reference sweep and was skipped",
@@ -280,6 +281,9 @@ pub(super) fn narrow_windows(
                 frequency,
                 phase,
                 envelope.as_ref().map(|g| g as &dyn Fn(f64, f64) -> f64),
+                // Every sweep's amplitude refers to the reference sweep's mean 1/B, the
+                // field the window's R_T(T) is fitted at.
+                Some(probe.mean_inverse_field),
             ) {
                 Some(window) => amplitudes.push(WindowAmplitude {
                     temperature_k: sweep.temperature_k,
@@ -435,6 +439,7 @@ fn dingle_plot_once(
             frequency,
             phase,
             Some(&envelope),
+            None,
         ) else {
             dropped += 1;
             continue;
@@ -534,7 +539,10 @@ pub(super) fn landau_fan(sweep: &Prepared, frequency: f64, phase: f64) -> Result
         } else {
             Extremum::Maximum
         };
-        let selected: Vec<usize> = (0..x.len()).filter(|&i| (x[i] - predicted).abs() <= quarter).collect();
+        // x ascending: the points within a quarter period are one run, found by bisection.
+        let first = x.partition_point(|v| *v < predicted - quarter);
+        let end = x.partition_point(|v| *v <= predicted + quarter);
+        let selected: Vec<usize> = (first..end.max(first)).collect();
         if selected.len() < 5 {
             continue;
         }

@@ -28,6 +28,9 @@ pub(super) struct Prepared {
     /// (I - P) rho_xx for a polynomial background: what the joint fits compare the
     /// projected model with.
     pub projected: Vec<f64>,
+    /// Consecutive points averaged into one for the fits (1: the sweep as measured; see
+    /// [`condense_sweep`]).
+    pub merged_points: usize,
 }
 
 /// The background as a linear operator on a sweep's values.
@@ -241,6 +244,61 @@ pub(super) fn field_window(
     Ok((field_min, field_max))
 }
 
+/// A dense sweep is condensed for the fits until the widest group of merged points spans at
+/// most this fraction of the highest line's period in 1/B.
+pub const CONDENSED_FRACTION_OF_PERIOD: f64 = 1.0 / 32.0;
+
+/// The sweep's points in the window condensed for the fits: runs of k consecutive points
+/// (in 1/B order) replaced by their mean field (taken in 1/B) and mean rho_xx, with k the
+/// largest count whose widest run still spans at most [`CONDENSED_FRACTION_OF_PERIOD`] of the
+/// period 1 / `highest_frequency_t`. None when k < 2 (the sweep is not dense).
+///
+/// Why: a sweep logged along a ramp (10 Hz, tens of thousands of points) samples each period
+/// hundreds of times, and every least-squares fit of the analysis costs its point count. A
+/// mean over 1/32 of a period keeps the oscillation's amplitude to sinc(pi/32) = 0.998 (the
+/// same factor at every field and temperature, so neither m* nor T_D notices) and its noise
+/// information (the mean of k points with equal noise is a sufficient statistic for a model
+/// that is straight across them), and groups of equal count keep the noise equal from point
+/// to point as the unweighted fits assume.
+pub(super) fn condense_sweep(
+    data: &OscillationSweep,
+    window: (f64, f64),
+    highest_frequency_t: f64,
+) -> Option<OscillationSweep> {
+    let mut points: Vec<(f64, f64)> = data
+        .field_t
+        .iter()
+        .zip(&data.rho_xx_ohm_sq)
+        .filter(|(b, _)| **b >= window.0 && **b <= window.1)
+        .map(|(b, rho)| (1.0 / *b, *rho))
+        .collect();
+    points.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let widest_step = points
+        .windows(2)
+        .map(|pair| pair[1].0 - pair[0].0)
+        .fold(0.0f64, f64::max);
+    if !(widest_step > 0.0 && highest_frequency_t > 0.0) {
+        return None;
+    }
+    let allowed = CONDENSED_FRACTION_OF_PERIOD / highest_frequency_t;
+    // A run of k points spans k - 1 steps.
+    let count = (allowed / widest_step).floor() as usize + 1;
+    if count < 2 || points.len() / count < MIN_WINDOW_POINTS {
+        return None;
+    }
+    let (mut field_t, mut rho_xx_ohm_sq) = (Vec::new(), Vec::new());
+    for run in points.chunks(count) {
+        let n = run.len() as f64;
+        field_t.push(n / run.iter().map(|p| p.0).sum::<f64>());
+        rho_xx_ohm_sq.push(run.iter().map(|p| p.1).sum::<f64>() / n);
+    }
+    Some(OscillationSweep {
+        temperature_k: data.temperature_k,
+        field_t,
+        rho_xx_ohm_sq,
+    })
+}
+
 /// The default window starts at B_max divided by this.
 pub const DEFAULT_FIELD_RATIO: f64 = 10.0;
 
@@ -313,6 +371,7 @@ pub(super) fn prepare_sweep(
         grid_values: Vec::new(),
         model,
         projected,
+        merged_points: 1,
     })
 }
 

@@ -87,27 +87,34 @@ pub(super) fn find_peaks(spectrum: &AmplitudeSpectrum, limits: &SearchLimits) ->
         near.select_nth_unstable_by(middle, f64::total_cmp);
         near[middle].max(f64::MIN_POSITIVE)
     };
+    // The median is taken only for the peaks the search looks at, strongest first: its
+    // neighbourhood grows with the frequency, so taking it at every local maximum of a long
+    // sweep's spectrum would cost the square of the bins.
     let refine = |k: usize| {
         let (offset, height) = parabolic_vertex(amplitudes[k - 1], amplitudes[k], amplitudes[k + 1]);
-        let frequency_t = (k as f64 + offset) * bin;
         Peak {
-            frequency_t,
+            frequency_t: (k as f64 + offset) * bin,
             amplitude: height,
-            ratio_to_median: height / local_median(frequency_t.max(limits.lowest_t)),
+            ratio_to_median: f64::NAN,
         }
+    };
+    let with_ratio = |peak: Peak| Peak {
+        ratio_to_median: peak.amplitude / local_median(peak.frequency_t.max(limits.lowest_t)),
+        ..peak
     };
     let mut candidates: Vec<Peak> = local_maxima(amplitudes, first, last + 1)
         .into_iter()
         .map(refine)
         .collect();
     candidates.sort_by(|a, b| b.amplitude.total_cmp(&a.amplitude));
-    let best_ratio = candidates.first().map_or(0.0, |p| p.ratio_to_median);
+    let best_ratio = candidates.first().map_or(0.0, |p| with_ratio(*p).ratio_to_median);
     // Below the band: a feature stronger than every line above it, and itself out of the
     // noise, is the oscillation (or left-over background) with too few periods.
     let below = local_maxima(amplitudes, 1, first)
         .into_iter()
         .map(refine)
-        .max_by(|a, b| a.amplitude.total_cmp(&b.amplitude));
+        .max_by(|a, b| a.amplitude.total_cmp(&b.amplitude))
+        .map(with_ratio);
     if let Some(low) = below {
         let strongest = candidates.first().map_or(0.0, |p| p.amplitude);
         if low.amplitude > strongest && low.ratio_to_median >= limits.min_ratio {
@@ -119,7 +126,11 @@ pub(super) fn find_peaks(spectrum: &AmplitudeSpectrum, limits: &SearchLimits) ->
     let exclusion = 1.5 * main_lobe_half_width(limits.window) * spectrum.resolution;
     let mut accepted: Vec<Peak> = Vec::new();
     for candidate in candidates {
-        if accepted.len() == limits.count || candidate.ratio_to_median < limits.min_ratio {
+        if accepted.len() == limits.count {
+            break;
+        }
+        let candidate = with_ratio(candidate);
+        if candidate.ratio_to_median < limits.min_ratio {
             break;
         }
         if let Some(strongest) = accepted.first() {

@@ -62,13 +62,14 @@ fn temperatures_for(mass: f64, field_t: f64) -> Vec<f64> {
 fn analyze(data: &[OscillationSweep], field_min_t: Option<f64>) -> OscillationAnalysis {
     let settings = OscillationSettings {
         field_min_t,
+        model_spread: false,
         ..OscillationSettings::default()
     };
     analyze_oscillations(data, &settings).unwrap()
 }
 
-// Onsager with n = g_s e F / h (check-values, "Magnetoresistance and quantum oscillations",
-// [C] computed from the formula with CODATA 2018: F = 10 T gives 4.835978e11 cm^-2 for
+// Onsager's relation with n = g_s e F / h (L. Onsager, Phil. Mag. 43, 1006, 1952; computed
+// from the formula with the CODATA 2018 constants: F = 10 T gives 4.835978e11 cm^-2 for
 // g_s = 2 and 2.41799e11 cm^-2 for g_s = 1). The density reported is that of the recovered
 // frequency, which is within 1e-3 of 10 T.
 #[test]
@@ -78,6 +79,7 @@ fn oscillations_onsager_density_check_values() {
     for (spin_degeneracy, per_10_t_cm2) in [(2.0, 4.835_978e11), (1.0, 2.417_99e11)] {
         let settings = OscillationSettings {
             spin_degeneracy,
+            model_spread: false,
             ..OscillationSettings::default()
         };
         let analysis = analyze_oscillations(&data, &settings).unwrap();
@@ -210,7 +212,8 @@ fn oscillations_wide_window_fft_amplitude_biases_the_mass_and_the_methods_do_not
     assert!(biases[1].abs() < biases[0].abs() / 3.0, "{biases:?}");
 }
 
-// T_D = hbar / (2 pi k_B tau_q) (check-values [C]: tau_q = 1 ps gives T_D = 1.21566 K, so
+// T_D = hbar / (2 pi k_B tau_q) (R. B. Dingle, Proc. R. Soc. A 211, 517, 1952; computed from
+// the formula with the CODATA 2018 constants: tau_q = 1 ps gives T_D = 1.21566 K, so
 // tau_q = 0.8 ps gives 1.519575 K): a sweep set generated with that T_D gives back tau_q.
 #[test]
 fn oscillations_dingle_plot_gives_the_quantum_lifetime() {
@@ -235,6 +238,7 @@ fn oscillations_dingle_plot_gives_the_quantum_lifetime() {
         mass: MassRequest::Known {
             effective_mass_ratio: 0.067,
         },
+        model_spread: false,
         ..OscillationSettings::default()
     };
     let single = analyze_oscillations(&data[..1], &settings).unwrap();
@@ -259,6 +263,7 @@ fn oscillations_landau_fan_gives_the_phase() {
             field_min_t: Some(1.5),
             landau_fan: true,
             mass: MassRequest::Skip,
+            model_spread: false,
             ..OscillationSettings::default()
         };
         let analysis = analyze_oscillations(&data, &settings).unwrap();
@@ -289,6 +294,7 @@ fn oscillations_two_frequencies_each_with_its_mass() {
     let settings = OscillationSettings {
         field_min_t: Some(1.5),
         frequencies: 3,
+        model_spread: false,
         ..OscillationSettings::default()
     };
     let analysis = analyze_oscillations(&data, &settings).unwrap();
@@ -323,6 +329,7 @@ fn oscillations_second_harmonic_is_marked() {
     let settings = OscillationSettings {
         field_min_t: Some(1.5),
         frequencies: 2,
+        model_spread: false,
         ..OscillationSettings::default()
     };
     let analysis = analyze_oscillations(&data, &settings).unwrap();
@@ -351,6 +358,7 @@ fn oscillations_smoothing_background_handles_a_saturating_magnetoresistance() {
         background: Background::Smoothing {
             width_inverse_t: 3.0 / frequency,
         },
+        model_spread: false,
         ..OscillationSettings::default()
     };
     let analysis = analyze_oscillations(&data, &settings).unwrap();
@@ -366,8 +374,8 @@ fn oscillations_smoothing_background_handles_a_saturating_magnetoresistance() {
     );
 }
 
-// Computed from R_T = X / sinh X (Lifshitz and Kosevich 1956; check-values [C]: X(4.2 K,
-// 0.067, 2 T) = 2.067329, R_T = 0.531641): amplitudes A_0 R_T(T) at 2 T give back the mass,
+// Computed from R_T = X / sinh X (Lifshitz and Kosevich, Sov. Phys. JETP 2, 636, 1956) with
+// the CODATA 2018 constants: X(4.2 K, 0.067, 2 T) = 2.067329, R_T = 0.531641): amplitudes A_0 R_T(T) at 2 T give back the mass,
 // and a single temperature is refused.
 #[test]
 fn oscillations_thermal_damping_fit_recovers_the_mass() {
@@ -389,7 +397,10 @@ fn oscillations_thermal_damping_fit_recovers_the_mass() {
 fn oscillations_refuse_bad_input_with_clear_errors() {
     let sdh = model(&[(40.0, 0.067, 1.0)], 0.2);
     let good = sweeps(&sdh, &[2.0, 8.0], &fields(9.0, 2000), 0.1, 81);
-    let settings = OscillationSettings::default();
+    let settings = OscillationSettings {
+        model_spread: false,
+        ..OscillationSettings::default()
+    };
 
     // Non-monotonic fields (a sweep that turns back).
     let mut turned = good.clone();
@@ -404,6 +415,7 @@ fn oscillations_refuse_bad_input_with_clear_errors() {
     // Too short a 1/B range: 8 to 9 T holds 0.6 periods of 40 T.
     let short = OscillationSettings {
         field_min_t: Some(8.0),
+        model_spread: false,
         ..OscillationSettings::default()
     };
     let error = analyze_oscillations(&good, &short).unwrap_err();
@@ -419,6 +431,7 @@ fn oscillations_refuse_bad_input_with_clear_errors() {
     // A mass asked for with one temperature.
     let fit = OscillationSettings {
         mass: MassRequest::Fit,
+        model_spread: false,
         ..OscillationSettings::default()
     };
     let error = analyze_oscillations(&good[..1], &fit).unwrap_err();
@@ -470,6 +483,7 @@ fn oscillations_refuse_bad_input_with_clear_errors() {
     let reversed = OscillationSettings {
         field_min_t: Some(9.0),
         field_max_t: Some(2.0),
+        model_spread: false,
         ..OscillationSettings::default()
     };
     assert!(matches!(
@@ -487,6 +501,7 @@ fn oscillations_refuse_bad_input_with_clear_errors() {
     ));
     let no_padding = OscillationSettings {
         zero_padding: 0,
+        model_spread: false,
         ..OscillationSettings::default()
     };
     let error = analyze_oscillations(&good, &no_padding).unwrap_err();
@@ -509,9 +524,104 @@ fn oscillations_refuse_bad_input_with_clear_errors() {
 fn oscillations_noise_alone_is_no_oscillation() {
     let sdh = model(&[], 0.0);
     let data = sweeps(&sdh, &[2.0, 6.0], &fields(9.0, 2000), 0.1, 91);
-    let result = analyze_oscillations(&data, &OscillationSettings::default());
+    let result = analyze_oscillations(
+        &data,
+        &OscillationSettings {
+            model_spread: false,
+            ..OscillationSettings::default()
+        },
+    );
     let Err(error) = result else {
         panic!("a line was reported in noise: {:?}", result.map(|a| a.lines));
     };
     assert!(matches!(error, OscillationError::NoOscillation { .. }), "{error}");
+}
+
+// A sweep logged along a ramp: 40,000 points at 10 Hz from 0 to 14 T (0.35 mT apart, far
+// closer than a period anywhere in the window) at each of three temperatures. The fits run on
+// the sweep condensed to groups of 1/32 of a period (prepare::condense_sweep), so nothing
+// grows with the point count beyond the transform: the analysis runs in seconds in a debug
+// build, keeps the whole field window, and recovers the frequency, the mass and T_D. (The
+// spread over backgrounds and windows is off here only to keep the test short: it repeats
+// this same path three times.)
+#[test]
+fn oscillations_long_logged_ramp() {
+    let sdh = model(&[(40.0, 0.067, 1.0)], 0.2);
+    let ramp = fields(14.0, 39_999);
+    let data = sweeps(&sdh, &temperatures_for(0.067, 14.0)[..3], &ramp, 0.2, 101);
+    let settings = OscillationSettings {
+        field_min_t: Some(2.0),
+        model_spread: false,
+        ..OscillationSettings::default()
+    };
+    let analysis = analyze_oscillations(&data, &settings).unwrap();
+    let summary = analysis.summary();
+    assert!(relative_error(summary.frequency_t, 40.0) < 2e-4, "{summary:?}");
+    let mass = summary.effective_mass_ratio.unwrap();
+    assert!(relative_error(mass, 0.067) < 0.01, "{summary:?}");
+    assert!(
+        (mass - 0.067).abs() < 4.0 * summary.effective_mass_ratio_unc.unwrap(),
+        "{summary:?}"
+    );
+    assert!(
+        (summary.dingle_temperature_k.unwrap() - 1.0).abs() < 0.05,
+        "{summary:?}"
+    );
+    // The window is kept whole: the condensed curve still reaches both of its ends (within
+    // one group of 1/32 of a period in 1/B).
+    let curve = &analysis.curves[0];
+    let period = 1.0 / 40.0;
+    assert!(curve.field_t.len() < ramp.len() / 4, "{}", curve.field_t.len());
+    let (x_low, x_high) = analysis.inverse_field_window_per_t;
+    assert!(curve.inverse_field_per_t[0] - x_low < period / 32.0);
+    assert!(x_high - curve.inverse_field_per_t.last().unwrap() < period / 32.0);
+    assert!(analysis
+        .warnings
+        .iter()
+        .any(|w| w.contains("averaged into one for the fits")));
+}
+
+// Sweeps sampled differently (the coldest in equal steps of B, the others in equal steps of
+// 1/B, with different counts): each window's amplitudes all refer to one field, the
+// reference sweep's mean 1/B, so the narrow-window mass is not biased by the sampling
+// (referring each sweep to its own mean 1/B biased it by per cents). Noise-free sweeps, so
+// that what is left is the method's own bias.
+#[test]
+fn oscillations_narrow_window_mass_ignores_how_each_sweep_is_sampled() {
+    let (frequency, mass, dingle) = (40.0, 0.067, 1.0);
+    let sdh = model(&[(frequency, mass, dingle)], 0.2);
+    let temperatures = temperatures_for(mass, 9.0);
+    let data: Vec<OscillationSweep> = temperatures
+        .iter()
+        .enumerate()
+        .map(|(k, &t)| {
+            let field_t: Vec<f64> = if k == 0 {
+                fields(9.0, 1500)
+            } else {
+                let points = 700 + 400 * k;
+                (0..points)
+                    .map(|i| 1.0 / (1.0 + i as f64 * (1.0 / 9.0 - 1.0) / (points - 1) as f64))
+                    .collect()
+            };
+            let rho_xx_ohm_sq = field_t.iter().map(|b| sdh.rho_xx_ohm_sq(*b, t)).collect();
+            OscillationSweep {
+                temperature_k: t,
+                field_t,
+                rho_xx_ohm_sq,
+            }
+        })
+        .collect();
+    let settings = OscillationSettings {
+        field_min_t: Some(1.5),
+        mass_method: MassMethod::NarrowWindows,
+        model_spread: false,
+        ..OscillationSettings::default()
+    };
+    let analysis = analyze_oscillations(&data, &settings).unwrap();
+    let narrow = analysis.narrow_windows.as_ref().unwrap();
+    assert!(relative_error(narrow.effective_mass_ratio, mass) < 1e-3, "{narrow:?}");
+    for window in &narrow.windows {
+        let fit = window.fit.as_ref().unwrap();
+        assert!(relative_error(fit.effective_mass_ratio, mass) < 3e-3, "{window:?}");
+    }
 }

@@ -56,7 +56,8 @@ pub(super) struct InPhase {
     pub amplitude_unc: f64,
     /// Coefficient of sin(2 pi F x + phase): near zero when the phase is right.
     pub quadrature: f64,
-    /// Mean 1/B of the points used.
+    /// The 1/B the amplitude refers to: `normalize_at` when given, else the mean 1/B of the
+    /// points used.
     pub mean_inverse_field: f64,
     pub points: usize,
 }
@@ -71,9 +72,12 @@ impl InPhase {
 
 /// Fits a g(x) cos(theta) + b g(x) sin(theta) + c + d (x - x_mid) with theta = 2 pi F x +
 /// phase to the points with x in `range` (the constant and the slope take up what the
-/// background left). g is the expected envelope relative to its value at the window's mean
-/// 1/B (1 for none), so that a is the amplitude there even when the damping changes across
-/// the window. None with fewer than [`MIN_WINDOW_FIT_POINTS`] points or a degenerate design.
+/// background left). g(x, x_ref) is the expected envelope relative to its value at x_ref (1
+/// for none), so that a is the amplitude at x_ref even when the damping changes across the
+/// window. x_ref is `normalize_at` when given, else the mean 1/B of this sweep's points in
+/// the window: sweeps compared with each other (the narrow-window mass) must share one x_ref,
+/// or differently sampled sweeps refer their amplitudes to different fields, which biases
+/// the mass. None with fewer than [`MIN_WINDOW_FIT_POINTS`] points or a degenerate design.
 pub(super) fn in_phase_amplitude(
     x: &[f64],
     y: &[f64],
@@ -81,14 +85,20 @@ pub(super) fn in_phase_amplitude(
     frequency: f64,
     phase: f64,
     envelope: Option<&dyn Fn(f64, f64) -> f64>,
+    normalize_at: Option<f64>,
 ) -> Option<InPhase> {
-    let selected: Vec<usize> = (0..x.len()).filter(|&i| x[i] >= range.0 && x[i] <= range.1).collect();
+    // x is ascending: the window is one contiguous run, found by bisection, so that many
+    // windows over a long sweep cost their own points only.
+    let first = x.partition_point(|v| *v < range.0);
+    let end = x.partition_point(|v| *v <= range.1);
+    let selected: Vec<usize> = (first..end.max(first)).collect();
     if selected.len() < MIN_WINDOW_FIT_POINTS {
         return None;
     }
     let middle = 0.5 * (range.0 + range.1);
     let half = 0.5 * (range.1 - range.0);
-    let mean = selected.iter().map(|&i| x[i]).sum::<f64>() / selected.len() as f64;
+    let own_mean = selected.iter().map(|&i| x[i]).sum::<f64>() / selected.len() as f64;
+    let mean = normalize_at.unwrap_or(own_mean);
     let design = Matrix::from_fn(selected.len(), 4, |row, col| {
         let xi = x[selected[row]];
         let theta = 2.0 * PI * frequency * xi + phase;
@@ -120,6 +130,9 @@ pub(super) fn wrap_phase(angle: f64) -> f64 {
         wrapped
     }
 }
+
+/// The waveform fit starts from the narrow-window mass, and from it halved and doubled.
+pub(super) const WAVEFORM_MASS_FACTORS: [f64; 3] = [1.0, 0.5, 2.0];
 
 /// One sweep as the nonlinear fits see it.
 #[derive(Debug, Clone, Copy)]
@@ -445,12 +458,14 @@ fn lifshitz_kosevich_derivatives(p: &[f64], x: f64, temperature_k: f64, centre: 
 /// Fits sum_k A_k R_T(X_k(T, x)) exp(-c m_k T_D,k (x - x_c)) cos(2 pi F_k (x - x_c) + psi_k),
 /// X_k = c m_k T x, c = 2 pi^2 k_B m_0 / (hbar e), jointly to every sweep's points, each
 /// sweep at its own temperature and with its own polynomial background when there is one.
-/// Starts: the given ones and the masses halved and doubled.
+/// Starts: the given ones with their masses times each of `mass_factors` (the analysis
+/// uses [`WAVEFORM_MASS_FACTORS`]; a refit from a converged fit needs only 1).
 pub(super) fn fit_waveform(
     sweeps: &[FitSweep],
     starts: &[WaveformStart],
     centre: f64,
     span: f64,
+    mass_factors: &[f64],
 ) -> Result<WaveformOutcome, FitError> {
     let count = starts.len();
     let points: usize = sweeps.iter().map(|s| s.x.len()).sum();
@@ -476,7 +491,7 @@ pub(super) fn fit_waveform(
         ]);
     }
     let bounds = Bounds::new(lower, upper)?;
-    let start_vectors: Vec<Vec<f64>> = [1.0, 0.5, 2.0]
+    let start_vectors: Vec<Vec<f64>> = mass_factors
         .iter()
         .map(|factor| {
             starts
@@ -614,20 +629,20 @@ mod tests {
             .iter()
             .map(|v| 2.5 * (2.0 * PI * frequency * v + phase).cos())
             .collect();
-        let window = in_phase_amplitude(&x, &y, (0.15, 0.35), frequency, phase, None).unwrap();
+        let window = in_phase_amplitude(&x, &y, (0.15, 0.35), frequency, phase, None, None).unwrap();
         assert!((window.amplitude - 2.5).abs() < 1e-10, "{window:?}");
         assert!(window.quadrature.abs() < 1e-10);
-        let shifted = in_phase_amplitude(&x, &y, (0.15, 0.35), frequency, phase - PI / 2.0, None).unwrap();
+        let shifted = in_phase_amplitude(&x, &y, (0.15, 0.35), frequency, phase - PI / 2.0, None, None).unwrap();
         assert!(shifted.amplitude.abs() < 1e-10 && (shifted.quadrature.abs() - 2.5).abs() < 1e-10);
         assert!((wrap_phase(phase - PI / 2.0 - shifted.phase_correction()) - phase).abs() < 1e-10);
-        assert!(in_phase_amplitude(&x, &y, (0.15, 0.152), frequency, phase, None).is_none());
+        assert!(in_phase_amplitude(&x, &y, (0.15, 0.152), frequency, phase, None, None).is_none());
         // A decaying cosine with the decay as the envelope: the amplitude at the mean x.
         let decaying: Vec<f64> = x
             .iter()
             .map(|v| 2.5 * (-3.0 * v).exp() * (2.0 * PI * frequency * v + phase).cos())
             .collect();
         let shape = |v: f64, mean: f64| (-3.0 * (v - mean)).exp();
-        let window = in_phase_amplitude(&x, &decaying, (0.15, 0.35), frequency, phase, Some(&shape)).unwrap();
+        let window = in_phase_amplitude(&x, &decaying, (0.15, 0.35), frequency, phase, Some(&shape), None).unwrap();
         let expected = 2.5 * (-3.0 * window.mean_inverse_field).exp();
         assert!((window.amplitude - expected).abs() < 1e-10 * expected, "{window:?}");
         assert!((wrap_phase(3.0 * PI) - PI).abs() < 1e-15);

@@ -1,6 +1,8 @@
 //! mobilis-core: what every part of mobilis shares and nothing that does I/O.
 //!
 //! - [`constants`]: CODATA 2018 physical constants.
+//! - [`calibration`]: the names of the instrument calibrations a lab states and the values
+//!   assumed when it states none.
 //! - [`units`]: the `quantity_unit` column convention and conversion from lab units to SI.
 //! - [`van_der_pauw`]: the exact van der Pauw relation and its derivatives.
 //! - [`noise`]: a portable, seeded random generator for the forward models.
@@ -23,6 +25,7 @@
 //! - [`sdk`]: the Rust SDK for plugin authors (typed analyses and the `export_plugin!` macro).
 
 pub mod abi;
+pub mod calibration;
 pub mod constants;
 pub mod contacts;
 pub mod fft;

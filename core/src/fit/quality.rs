@@ -51,7 +51,11 @@ impl FitQuality {
         } else {
             (chi_square / nu, chi_square_p_value(chi_square, degrees_of_freedom))
         };
-        let birge_ratio = if reduced.is_finite() && reduced > 1.0 { reduced.sqrt() } else { 1.0 };
+        let birge_ratio = if reduced.is_finite() && reduced > 1.0 {
+            reduced.sqrt()
+        } else {
+            1.0
+        };
         FitQuality {
             chi_square,
             degrees_of_freedom,

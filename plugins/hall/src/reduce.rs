@@ -243,18 +243,12 @@ pub struct Calibration {
     pub temperature_accuracy_k: Option<f64>,
 }
 
-/// Assumed when the field calibration is not stated: 0.5 %, a Hall-probe gaussmeter or a
-/// magnet constant as usually calibrated (common practice).
-pub const DEFAULT_FIELD_CALIBRATION_REL: f64 = 5e-3;
-/// Assumed when the current calibration is not stated: 0.1 %, the accuracy of a precision
-/// current source on its usual ranges (common practice).
-pub const DEFAULT_CURRENT_CALIBRATION_REL: f64 = 1e-3;
-/// Assumed when the voltage calibration is not stated: 0.01 %, the gain accuracy of a
-/// nanovoltmeter or digital multimeter on a millivolt range (common practice).
-pub const DEFAULT_VOLTAGE_CALIBRATION_REL: f64 = 1e-4;
-/// Assumed when the thermometer accuracy is not stated: 0.02 K, a calibrated cryogenic
-/// sensor (common practice).
-pub const DEFAULT_TEMPERATURE_ACCURACY_K: f64 = 0.02;
+/// The values assumed when a calibration is not stated (common practice, shared by every
+/// analysis that applies calibrations).
+pub use mobilis_core::calibration::{
+    DEFAULT_CURRENT_CALIBRATION_REL, DEFAULT_FIELD_CALIBRATION_REL, DEFAULT_TEMPERATURE_ACCURACY_K,
+    DEFAULT_VOLTAGE_CALIBRATION_REL,
+};
 
 /// The parameter (and sample-sheet column) names of the calibrations, for messages.
 pub mod calibration_names {

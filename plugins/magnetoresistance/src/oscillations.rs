@@ -199,8 +199,9 @@
 //!   the largest over the variants enters the statistical part in quadrature. A variant
 //!   whose strongest line is another line, or that fails, is left out with a warning. This
 //!   costs three more passes of the analysis.
-//! - **Calibrations** (Type B, stated per call; not included when not given, and the
-//!   summary lists them under `calibrations_not_stated`): `field_calibration_rel` scales F
+//! - **Calibrations** (Type B, stated per call; when not given the common-practice values of
+//!   `mobilis_core::calibration` are assumed, 0.5 % and 0.02 K, and the summary lists them
+//!   under `calibrations_not_stated`): `field_calibration_rel` scales F
 //!   and n, and m* (X = c m* T / B), by the same relative amount, and leaves T_D (c m* T_D /
 //!   B is what the data fix); `temperature_accuracy_k`, a thermometer error common to every
 //!   sweep, moves m* by the change of a refit of the waveform with every temperature raised
@@ -354,11 +355,11 @@ pub struct OscillationSettings {
     /// Repeat the analysis with other backgrounds and a shorter window and add the spread of
     /// the results to the uncertainties (default true; see "Uncertainties").
     pub model_spread: bool,
-    /// Relative standard uncertainty of the field calibration (Type B; default: not given,
-    /// not included).
+    /// Relative standard uncertainty of the field calibration (Type B; not given: 0.5 % is
+    /// assumed and listed).
     pub field_calibration_rel: Option<f64>,
-    /// Standard uncertainty of the thermometer, K, common to every sweep (Type B; default:
-    /// not given, not included).
+    /// Standard uncertainty of the thermometer, K, common to every sweep (Type B; not given:
+    /// 0.02 K is assumed and listed).
     pub temperature_accuracy_k: Option<f64>,
     /// Standard uncertainty of each sweep's temperature on its own, K: the stage's drift and
     /// setpoint scatter, independent from sweep to sweep (Type A; default: not given, not
@@ -827,7 +828,7 @@ pub struct OscillationBudget {
     pub dingle_temperature: Option<UncertaintyBudget>,
     /// The repeated analyses whose spread entered ("background degree 5", ...).
     pub variants: Vec<String>,
-    /// Calibrations not stated, so not included: parameter names.
+    /// Calibrations not stated, so assumed: parameter names.
     pub calibrations_not_stated: Vec<&'static str>,
 }
 

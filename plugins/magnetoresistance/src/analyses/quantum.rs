@@ -176,9 +176,9 @@ impl Analysis for OscillationsAnalysis {
         p.insert("dingle".into(), json!({"type": "boolean", "default": true, "description": "Dingle temperature and quantum lifetime from the amplitude's field dependence"}));
         p.insert("landau_fan".into(), json!({"type": "boolean", "default": false, "description": "Landau-level fan of the extrema for the phase"}));
         p.insert("model_spread".into(), json!({"type": "boolean", "default": true, "description": "repeat the analysis with higher background degrees (or other smoothing widths) and a shorter field window, and add the spread of F, m* and T_D beyond their noise to the statistical uncertainty"}));
-        p.insert("field_calibration_rel".into(), json!({"type": "number", "minimum": 0, "maximum": 0.5, "description": "relative standard uncertainty of the magnet's field calibration (Type B); scales F, n and m*. Not included when not given"}));
+        p.insert("field_calibration_rel".into(), json!({"type": "number", "minimum": 0, "maximum": 0.5, "description": "relative standard uncertainty of the magnet's field calibration (Type B); scales F, n and m*. Not given: 0.005 is assumed and listed in calibrations_not_stated"}));
         p.insert("temperature_stability_K".into(), json!({"type": "number", "minimum": 0, "description": "standard uncertainty of each sweep's own temperature (stage drift, setpoint scatter), independent from sweep to sweep; moves m* and T_D in the statistical part. Not included when not given"}));
-        p.insert("temperature_accuracy_K".into(), json!({"type": "number", "minimum": 0, "description": "standard uncertainty of the thermometer, common to every sweep (Type B); moves m* and T_D. Not included when not given"}));
+        p.insert("temperature_accuracy_K".into(), json!({"type": "number", "minimum": 0, "description": "standard uncertainty of the thermometer, common to every sweep (Type B); moves m* and T_D. Not given: 0.02 K is assumed and listed in calibrations_not_stated"}));
         AnalysisDeclaration {
             name: String::new(),
             summary: "Shubnikov-de Haas analysis: frequencies and 2D densities, the effective mass from the thermal damping, the Dingle temperature and quantum lifetime".into(),
@@ -204,7 +204,7 @@ impl Analysis for OscillationsAnalysis {
                 column("dingle_temperature_K", F64, Some("K"), "with _unc"),
                 column("quantum_lifetime_s", F64, Some("s"), "hbar / (2 pi k_B T_D), with _unc"),
                 super::classical::single_field_sign_key(),
-                column("calibrations_not_stated", Str, None, "the calibration parameters not stated, so not in the _unc_sys parts (JSON list)"),
+                column("calibrations_not_stated", Str, None, "the calibration parameters not stated, whose common-practice values were assumed in the _unc_sys parts (JSON list)"),
                 column("uncertainty_checks", Str, None, "the repeated analyses whose spread is in the _unc_stat parts (JSON list)"),
             ],
         }

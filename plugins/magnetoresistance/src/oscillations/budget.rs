@@ -119,8 +119,13 @@ pub(super) fn assign(
         variants: comparable.iter().map(|(label, _)| label.clone()).collect(),
         ..OscillationBudget::default()
     };
-    let field_relative = settings.field_calibration_rel.unwrap_or(0.0);
-    let temperature_accuracy = settings.temperature_accuracy_k.unwrap_or(0.0);
+    // Not stated is assumed at the common-practice values every analysis assumes, and said.
+    let field_relative = settings
+        .field_calibration_rel
+        .unwrap_or(mobilis_core::calibration::DEFAULT_FIELD_CALIBRATION_REL);
+    let temperature_accuracy = settings
+        .temperature_accuracy_k
+        .unwrap_or(mobilis_core::calibration::DEFAULT_TEMPERATURE_ACCURACY_K);
     if settings.field_calibration_rel.is_none() {
         budget.calibrations_not_stated.push("field_calibration_rel");
     }
@@ -198,8 +203,10 @@ pub(super) fn assign(
     }
     if !budget.calibrations_not_stated.is_empty() {
         analysis.warnings.push(format!(
-            "no calibration was stated for {}: the uncertainties hold the scatter of the data and the spread over backgrounds and windows, not the calibration of the magnet or the thermometer",
-            budget.calibrations_not_stated.join(" and ")
+            "no calibration was stated for {}: the common-practice values were assumed ({} 0.5 % of the field, {} 0.02 K); state your magnet's and thermometer's calibrations to replace them",
+            budget.calibrations_not_stated.join(" and "),
+            mobilis_core::calibration::FIELD_CALIBRATION,
+            mobilis_core::calibration::TEMPERATURE_ACCURACY
         ));
     }
     analysis.budget = budget;

@@ -58,11 +58,14 @@ fn temperatures_for(mass: f64, field_t: f64) -> Vec<f64> {
         .collect()
 }
 
-/// The analysis with the default settings except the window's lower field.
+/// The analysis with the default settings except the window's lower field. The synthetic
+/// sweeps come from perfect instruments, so their calibrations are stated as exact.
 fn analyze(data: &[OscillationSweep], field_min_t: Option<f64>) -> OscillationAnalysis {
     let settings = OscillationSettings {
         field_min_t,
         model_spread: false,
+        field_calibration_rel: Some(0.0),
+        temperature_accuracy_k: Some(0.0),
         ..OscillationSettings::default()
     };
     analyze_oscillations(data, &settings).unwrap()

@@ -63,15 +63,10 @@ use mobilis_core::sweep::{
 /// The default per-point relative floor of the sweep fits (see the module documentation).
 pub const SWEEP_RELATIVE_UNCERTAINTY_FLOOR: f64 = 1e-5;
 
-/// Assumed when the field calibration is not stated: 0.5 % (a Hall-probe gaussmeter or a
-/// magnet constant as usually calibrated; common practice, the value `hall.reduce` assumes).
-pub const DEFAULT_FIELD_CALIBRATION_REL: f64 = 5e-3;
-/// Assumed when the current calibration is not stated: 0.1 % (a precision current source on
-/// its usual ranges; common practice, as in `hall.reduce`).
-pub const DEFAULT_CURRENT_CALIBRATION_REL: f64 = 1e-3;
-/// Assumed when the voltage calibration is not stated: 0.01 % (the gain of a nanovoltmeter
-/// or lock-in on its range; common practice, as in `hall.reduce`).
-pub const DEFAULT_VOLTAGE_CALIBRATION_REL: f64 = 1e-4;
+/// The values assumed when a calibration is not stated, as in `hall.reduce` (common practice).
+pub use mobilis_core::calibration::{
+    DEFAULT_CURRENT_CALIBRATION_REL, DEFAULT_FIELD_CALIBRATION_REL, DEFAULT_VOLTAGE_CALIBRATION_REL,
+};
 
 /// Stated calibrations: relative standard uncertainties of scale errors common to a whole
 /// sweep. `None` means not stated: the default is assumed and the outputs list it.

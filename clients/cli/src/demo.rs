@@ -167,6 +167,25 @@ fn print_quantum(oscillations: &Value, oscillation_truth: &Value, weak: &Value, 
             number(truth, factor)
         );
     };
+    let kelvin_list = |values: Vec<f64>| values.iter().map(|t| format!("{t}")).collect::<Vec<_>>().join(", ");
+    let found: Vec<f64> = summary["temperatures_K"]
+        .as_array()
+        .into_iter()
+        .flatten()
+        .filter_map(Value::as_f64)
+        .collect();
+    let measured: Vec<f64> = sdh["temperatures"]
+        .as_array()
+        .into_iter()
+        .flatten()
+        .filter_map(|t| t["temperature_K"].as_f64())
+        .collect();
+    println!(
+        "  {:<28} {:>24}  [{}]",
+        "sweeps at (K)",
+        kelvin_list(found.iter().map(|t| (t * 100.0).round() / 100.0).collect()),
+        kelvin_list(measured)
+    );
     row("SdH frequency (T)", "frequency_T", 1.0, &sdh["frequency_T"]);
     row("2D density (cm^-2)", "sheet_density_m2", 1e-4, &sdh["sheet_density_m2"]);
     row(

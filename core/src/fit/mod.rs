@@ -82,8 +82,8 @@ pub use line::{fit_line, LineFit};
 pub use lm::{minimize, Bounds, LeastSquares, LmFit, LmOptions, Termination};
 pub use multi_start::{MultiStartFit, SameMinimum, StartOutcome, StartSummary};
 pub use quality::{
-    chi_square_p_value, effective_uncertainty, floored_relative_uncertainty, Coverage, FitQuality,
-    RELATIVE_UNCERTAINTY_FLOOR,
+    chi_square_p_value, effective_uncertainty, floored_relative_uncertainty, largest_relative_change, Coverage,
+    FitQuality, RELATIVE_UNCERTAINTY_FLOOR,
 };
 
 use crate::linalg::LinalgError;

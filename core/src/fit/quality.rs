@@ -123,6 +123,15 @@ pub fn effective_uncertainty(u_y: f64, dy_dx: f64, u_x: f64) -> f64 {
     (u_y * u_y + (dy_dx * u_x).powi(2)).sqrt()
 }
 
+/// The largest |new_i / old_i - 1|: how far one pass of re-weighting (effective variance)
+/// moved the per-point uncertainties, to decide when they have settled.
+pub fn largest_relative_change(new: &[f64], old: &[f64]) -> f64 {
+    new.iter()
+        .zip(old)
+        .map(|(new, old)| (new / old - 1.0).abs())
+        .fold(0.0, f64::max)
+}
+
 /// P(chi^2_nu >= chi_square): the probability that a chi-square variable with nu degrees of
 /// freedom is at least as large. 1 for chi_square <= 0, NaN for nu = 0 or a NaN argument.
 pub fn chi_square_p_value(chi_square: f64, degrees_of_freedom: usize) -> f64 {
@@ -343,5 +352,6 @@ mod tests {
         assert_eq!(floored_relative_uncertainty(1e-9, 1e-3), (1e-3, true));
         assert_eq!(floored_relative_uncertainty(0.02, 1e-3), (0.02, false));
         assert!((effective_uncertainty(3.0, 2.0, 2.0) - 5.0).abs() < 1e-15);
+        assert!((largest_relative_change(&[1.0, 2.2, 3.0], &[1.0, 2.0, 3.3]) - 0.1).abs() < 1e-12);
     }
 }

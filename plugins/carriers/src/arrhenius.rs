@@ -486,11 +486,7 @@ pub fn fit_arrhenius(points: &[DensityPoint], settings: &ArrheniusSettings) -> R
                     .zip(base)
                     .map(|(point, base)| effective(line.slope, point, *base))
                     .collect();
-                let change = updated
-                    .iter()
-                    .zip(&sigma)
-                    .map(|(new, old)| (new / old - 1.0).abs())
-                    .fold(0.0, f64::max);
+                let change = mobilis_core::fit::largest_relative_change(&updated, &sigma);
                 if change <= EFFECTIVE_VARIANCE_TOLERANCE {
                     settled = true;
                     break;

@@ -1313,11 +1313,7 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
             let updated: Vec<f64> = (0..count)
                 .map(|i| effective_uncertainty(base[i], slopes[i], series.temperature_unc_k[i]))
                 .collect();
-            let change = updated
-                .iter()
-                .zip(&sigma)
-                .map(|(new, old)| (new / old - 1.0).abs())
-                .fold(0.0, f64::max);
+            let change = mobilis_core::fit::largest_relative_change(&updated, &sigma);
             if change <= EFFECTIVE_VARIANCE_TOLERANCE {
                 settled = true;
                 break;

@@ -81,7 +81,7 @@
 //! as `spectrum.multi_carrier_fit` reports them.
 
 use mobilis_core::constants::ELEMENTARY_CHARGE_C;
-use mobilis_core::fit::{Bounds, FitError, LeastSquares, LmOptions, MultiStartFit, SameMinimum};
+use mobilis_core::fit::{Bounds, FitError, FitQuality, LeastSquares, LmOptions, MultiStartFit, SameMinimum};
 use mobilis_core::forward::tensor::{
     high_field_hall_coefficient_m2_per_c, invert_tensor, low_field_hall_coefficient_m2_per_c, sum_conductivity,
 };
@@ -206,6 +206,12 @@ pub struct TwoBandFit {
     /// chi^2 / nu; without uncertainties, the square of the relative scatter of the data
     /// about the fit.
     pub reduced_chi_square: f64,
+    /// P(chi^2_nu >= chi^2) when the data carried uncertainties.
+    pub chi_square_p_value: Option<f64>,
+    /// The factor the uncertainties were widened by when the data carried uncertainties and
+    /// chi^2 / nu exceeded 1 (Birge 1932), else 1; `None` without uncertainties (the scatter
+    /// then sets the errors).
+    pub birge_ratio: Option<f64>,
     pub residual_count: usize,
     /// The data carried uncertainties.
     pub weighted: bool,
@@ -737,7 +743,13 @@ fn finish(data: &Data, points: &[SweepPoint], kinds: &[CarrierKind; 2], run: &Mu
     let raw_correlation = best.correlation();
     let index = |k: usize| 2 * order[k / 2] + k % 2;
     let correlation = Matrix::from_fn(4, 4, |i, j| raw_correlation[(index(i), index(j))]);
-    let unc = |value: f64, se: f64| se.is_finite().then_some(value * se);
+    // Weighted by stated uncertainties, the covariance is taken as it stands unless the fit is
+    // worse than they allow: then it is widened by the Birge ratio, never narrowed.
+    let quality = data
+        .weighted
+        .then(|| FitQuality::assess(best.chi_square, best.degrees_of_freedom));
+    let widening = quality.as_ref().map_or(1.0, |q| q.birge_ratio);
+    let unc = |value: f64, se: f64| se.is_finite().then_some(value * se * widening);
     let carriers: [TwoBandCarrier; 2] = order.map(|i| {
         let density = best.parameters[2 * i].exp();
         let mobility = best.parameters[2 * i + 1].exp();
@@ -806,12 +818,21 @@ fn finish(data: &Data, points: &[SweepPoint], kinds: &[CarrierKind; 2], run: &Mu
             carriers[0].mobility_field_product, carriers[1].mobility_field_product
         ));
     }
-    if data.weighted && best.degrees_of_freedom > 0 {
-        let nu = best.degrees_of_freedom as f64;
-        if best.reduced_chi_square > 1.0 + 4.0 * (2.0 / nu).sqrt() {
+    if let Some(quality) = &quality {
+        // Each residual belongs to a field; the whitened pair of a point shares its field.
+        let field_of_residual: Vec<f64> = points
+            .iter()
+            .enumerate()
+            .flat_map(|(k, p)| std::iter::repeat_n(p.field_t, data.whitening[k].count()))
+            .collect();
+        let describe = |i: usize| {
+            field_of_residual
+                .get(i)
+                .map_or_else(|| format!("residual {i}"), |b| format!("B = {b:.4} T"))
+        };
+        if let Some(warning) = quality.warning(&best.residuals, describe) {
             warnings.push(format!(
-                "chi-square per degree of freedom is {:.3}, more than the uncertainties explain: a third carrier may conduct, a mobility may depend on field, or the uncertainties are underestimated (spectrum.multi_carrier_fit can try more carriers)",
-                best.reduced_chi_square
+                "{warning}: a third carrier may conduct, a mobility may depend on field, or the stated rho_xx_ohm_sq_unc and rho_xy_ohm_unc are too small (spectrum.multi_carrier_fit can try more carriers)"
             ));
         }
     }
@@ -828,6 +849,8 @@ fn finish(data: &Data, points: &[SweepPoint], kinds: &[CarrierKind; 2], run: &Mu
         chi_square: best.chi_square,
         degrees_of_freedom: best.degrees_of_freedom,
         reduced_chi_square: best.reduced_chi_square,
+        chi_square_p_value: quality.as_ref().map(|q| q.p_value),
+        birge_ratio: quality.as_ref().map(|q| q.birge_ratio),
         residual_count: data.residual_count,
         weighted: data.weighted,
         starts: run.outcomes.len(),

@@ -431,6 +431,9 @@ impl Analysis for TwoBandAnalysis {
             ],
             summary_keys: vec![
                 column("carriers", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc"),
+                column("reduced_chi_square", F64, None, "chi^2 / nu of the fit"),
+                column("chi_square_p_value", F64, None, "P(chi^2 >= observed) when the sweep's uncertainties weight the fit, else null"),
+                column("birge_ratio", F64, None, "sqrt(chi^2 / nu) when above 1 (the uncertainties were multiplied by it), else 1; null without stated uncertainties"),
                 single_field_sign_key(),
             ],
         }
@@ -496,6 +499,8 @@ impl Analysis for TwoBandAnalysis {
         );
         summary.insert("chi_square".into(), json!(fit.chi_square));
         summary.insert("reduced_chi_square".into(), json!(fit.reduced_chi_square));
+        summary.insert("chi_square_p_value".into(), json!(fit.chi_square_p_value));
+        summary.insert("birge_ratio".into(), json!(fit.birge_ratio));
         summary.insert("degrees_of_freedom".into(), json!(fit.degrees_of_freedom));
         summary.insert("zero_field_rho_ohm_sq".into(), json!(fit.zero_field_rho_ohm_sq));
         summary.insert(

@@ -249,6 +249,9 @@ fn two_band_agrees_with_the_conductivity_space_fit() {
             .collect();
         let sigma_fit = problem.minimize(&truth_start, &options).unwrap();
         assert!(sigma_fit.converged);
+        // Both fits widen their covariance by the Birge ratio of their own chi-square.
+        let sigma_widening =
+            mobilis_core::fit::FitQuality::assess(sigma_fit.chi_square, sigma_fit.degrees_of_freedom).birge_ratio;
         let rho_fit = &result.fit;
         for (i, carrier) in rho_fit.carriers.iter().enumerate() {
             let values = [carrier.sheet_density_m2.ln(), carrier.mobility_m2_per_vs.ln()];
@@ -258,7 +261,7 @@ fn two_band_agrees_with_the_conductivity_space_fit() {
             ];
             for q in 0..2 {
                 let sigma_value = sigma_fit.parameters[2 * i + q];
-                let sigma_error = sigma_fit.standard_errors[2 * i + q];
+                let sigma_error = sigma_fit.standard_errors[2 * i + q] * sigma_widening;
                 assert!(
                     (values[q] - sigma_value).abs() < 0.2 * errors[q],
                     "seed {seed}, carrier {i}, parameter {q}: {} vs {sigma_value} (+- {})",
@@ -461,4 +464,57 @@ fn two_band_fits_one_field_sign_with_a_flag() {
             );
         }
     }
+}
+
+/// `count` points at positive fields with 0.5 ohm of noise on rho_xx and rho_xy, each stating
+/// `stated_ohm` as its standard uncertainty.
+fn sweep_stating(stated_ohm: f64, seed: u64) -> Vec<SweepPoint> {
+    let fields: Vec<f64> = (1..=60).map(|k| 0.15 * k as f64).collect();
+    let noise = SweepNoise {
+        absolute_ohm: 0.5,
+        relative: 0.0,
+    };
+    synthetic_sweep(
+        &electron_hole(),
+        &fields,
+        &noise,
+        &SweepImperfections::default(),
+        &mut Rng::seeded(seed),
+    )
+    .unwrap()
+    .into_iter()
+    .map(|p| p.with_uncertainty(ResistivityUncertainty::independent(stated_ohm, stated_ohm)))
+    .collect()
+}
+
+// Weighted by stated uncertainties four times smaller than the noise, chi^2/nu comes out near
+// 16: the uncertainties are widened by the Birge ratio (Birge, Phys. Rev. 40, 207, 1932; the
+// Particle Data Group's practice) to what honest ones give, the p-value says the fit is poor,
+// and a warning names the worst fields and the columns that weight the points. Honest
+// uncertainties leave the covariance as it stands.
+#[test]
+fn understated_uncertainties_are_widened_by_the_birge_ratio() {
+    let honest = fit_two_band(&sweep_stating(0.5, 3), &TwoBandSettings::default()).unwrap();
+    let understated = fit_two_band(&sweep_stating(0.125, 3), &TwoBandSettings::default()).unwrap();
+    let birge = understated.birge_ratio.unwrap();
+    assert!((3.0..5.5).contains(&birge), "Birge ratio {birge}");
+    assert!(understated.chi_square_p_value.unwrap() < 1e-3);
+    let honest_birge = honest.birge_ratio.unwrap();
+    assert!(honest_birge < 1.4, "honest Birge ratio {honest_birge}");
+    assert!(honest.chi_square_p_value.unwrap() > 1e-3);
+    for (wide, fair) in understated.carriers.iter().zip(&honest.carriers) {
+        let ratio = wide.mobility_unc_m2_per_vs.unwrap() / fair.mobility_unc_m2_per_vs.unwrap();
+        assert!(
+            (ratio / (birge / 4.0 / honest_birge) - 1.0).abs() < 0.3,
+            "widened to {ratio} of the honest"
+        );
+    }
+    assert!(
+        understated
+            .warnings
+            .iter()
+            .any(|w| w.contains("Birge ratio") && w.contains("B = ") && w.contains("rho_xx_ohm_sq_unc")),
+        "{:?}",
+        understated.warnings
+    );
 }

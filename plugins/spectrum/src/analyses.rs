@@ -10,7 +10,7 @@ use crate::mobility_spectrum::{
     mobility_spectrum_of_symmetrized, GridRange, RegularizationRule, SpectrumError, SpectrumSettings,
 };
 use crate::multi_carrier::{
-    fit_sweep_monitored, Calibration, CarrierSelection, InformationCriterion, MultiCarrierError, MultiCarrierSettings,
+    fit_sweep_monitored, CarrierSelection, InformationCriterion, MultiCarrierError, MultiCarrierSettings,
 };
 use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType};
 use mobilis_core::forward::tensor::CarrierKind;
@@ -66,14 +66,8 @@ pub struct MultiCarrierParams {
     random_starts: Option<usize>,
     #[serde(default)]
     seed: Option<u64>,
-    #[serde(default)]
-    relative_uncertainty_floor: Option<f64>,
-    #[serde(default)]
-    field_calibration_rel: Option<f64>,
-    #[serde(default)]
-    current_calibration_rel: Option<f64>,
-    #[serde(default)]
-    voltage_calibration_rel: Option<f64>,
+    #[serde(flatten)]
+    budget: crate::multi_carrier::summary::BudgetParams,
 }
 
 impl Analysis for MultiCarrierFitAnalysis {
@@ -145,14 +139,10 @@ impl Analysis for MultiCarrierFitAnalysis {
         if let Some(seed) = params.seed {
             settings.seed = seed;
         }
-        if let Some(floor) = params.relative_uncertainty_floor {
+        if let Some(floor) = params.budget.relative_uncertainty_floor {
             settings.relative_uncertainty_floor = floor;
         }
-        settings.calibration = Calibration {
-            field_rel: params.field_calibration_rel,
-            current_rel: params.current_calibration_rel,
-            voltage_rel: params.voltage_calibration_rel,
-        };
+        settings.calibration = params.budget.calibration();
         let result =
             fit_sweep_monitored(&points, &params.sweep.settings(), &settings, host).map_err(|error| match error {
                 MultiCarrierError::Cancelled => AnalysisError::Cancelled,
@@ -260,14 +250,8 @@ pub struct SpectrumParams {
     peak_threshold: Option<f64>,
     #[serde(default)]
     uncertainty_replicas: Option<usize>,
-    #[serde(default)]
-    relative_uncertainty_floor: Option<f64>,
-    #[serde(default)]
-    field_calibration_rel: Option<f64>,
-    #[serde(default)]
-    current_calibration_rel: Option<f64>,
-    #[serde(default)]
-    voltage_calibration_rel: Option<f64>,
+    #[serde(flatten)]
+    budget: crate::multi_carrier::summary::BudgetParams,
 }
 
 impl Analysis for MobilitySpectrumAnalysis {
@@ -353,14 +337,10 @@ impl Analysis for MobilitySpectrumAnalysis {
         if let Some(replicas) = params.uncertainty_replicas {
             settings.uncertainty_replicas = replicas;
         }
-        if let Some(floor) = params.relative_uncertainty_floor {
+        if let Some(floor) = params.budget.relative_uncertainty_floor {
             settings.relative_uncertainty_floor = floor;
         }
-        settings.calibration = Calibration {
-            field_rel: params.field_calibration_rel,
-            current_rel: params.current_calibration_rel,
-            voltage_rel: params.voltage_calibration_rel,
-        };
+        settings.calibration = params.budget.calibration();
         let to_analysis_error = |error: SpectrumError| match error {
             SpectrumError::Cancelled => AnalysisError::Cancelled,
             SpectrumError::Numerical(_) => AnalysisError::Numerical(error.to_string()),
@@ -483,6 +463,42 @@ mod tests {
                 single
             );
         }
+    }
+
+    // The budget's parameters reach both analyses by their names: stated calibrations
+    // make the systematic part (densities take the field, current and voltage scales in
+    // quadrature), and what is not stated is listed.
+    #[test]
+    fn stated_calibrations_reach_both_analyses() {
+        let positive: Vec<f64> = (0..=30).map(|k| 0.3 * k as f64).collect();
+        let fields: Vec<f64> = positive
+            .iter()
+            .chain(&positive[1..])
+            .enumerate()
+            .map(|(i, b)| if i > 30 { -b } else { *b })
+            .collect();
+        let inputs = table(&fields);
+        let params = r#"{"carriers": ["n"], "field_calibration_rel": 0.01, "current_calibration_rel": 0.002}"#;
+        let fit = run_typed::<MultiCarrierFitAnalysis>(params, &inputs, &Host::detached()).unwrap();
+        let carrier = &fit.summary["carriers"][0];
+        let relative =
+            carrier["sheet_density_m2_unc_sys"].as_f64().unwrap() / carrier["sheet_density_m2"].as_f64().unwrap();
+        let expected = (0.01f64.powi(2) + 0.002f64.powi(2) + 1e-4f64.powi(2)).sqrt();
+        assert!(
+            (relative / expected - 1.0).abs() < 1e-9,
+            "{relative} against {expected}"
+        );
+        assert_eq!(
+            fit.summary["calibrations_not_stated"],
+            json!(["voltage_calibration_rel"])
+        );
+        let spectrum = run_typed::<MobilitySpectrumAnalysis>(
+            r#"{"uncertainty_replicas": 0, "points_per_sign": 40, "field_calibration_rel": 0.01, "current_calibration_rel": 0.002, "voltage_calibration_rel": 0.0}"#,
+            &inputs,
+            &Host::detached(),
+        )
+        .unwrap();
+        assert_eq!(spectrum.summary["calibrations_not_stated"], json!([]));
     }
 
     // The temperature grouping is a parameter; a bad value is refused naming it.

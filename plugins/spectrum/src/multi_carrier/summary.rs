@@ -14,6 +14,31 @@ use serde_json::{json, Map, Value};
 use super::budget::{DEFAULT_CURRENT_CALIBRATION_REL, DEFAULT_FIELD_CALIBRATION_REL, DEFAULT_VOLTAGE_CALIBRATION_REL};
 use super::{Calibration, FittedCarrier, MultiCarrierFit, SWEEP_RELATIVE_UNCERTAINTY_FLOOR};
 
+/// The budget's parameters as both spectrum analyses take them (flattened into their
+/// parameters; `schema_properties` declares them).
+#[derive(Debug, Default, serde::Deserialize)]
+pub struct BudgetParams {
+    #[serde(default)]
+    pub relative_uncertainty_floor: Option<f64>,
+    #[serde(default)]
+    pub field_calibration_rel: Option<f64>,
+    #[serde(default)]
+    pub current_calibration_rel: Option<f64>,
+    #[serde(default)]
+    pub voltage_calibration_rel: Option<f64>,
+}
+
+impl BudgetParams {
+    /// The stated calibrations (`None` where not stated, to be assumed and listed).
+    pub fn calibration(&self) -> Calibration {
+        Calibration {
+            field_rel: self.field_calibration_rel,
+            current_rel: self.current_calibration_rel,
+            voltage_rel: self.voltage_calibration_rel,
+        }
+    }
+}
+
 /// The JSON Schema properties of the budget's parameters.
 pub fn schema_properties() -> Map<String, Value> {
     let mut properties = Map::new();

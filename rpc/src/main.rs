@@ -44,6 +44,8 @@ fn main() -> anyhow::Result<()> {
     // Logs go to stderr: stdout carries the ready line, or the stdio transport.
     tracing_subscriber::fmt()
         .with_writer(std::io::stderr)
+        // Colour only for a person at a terminal, never into a redirected log file.
+        .with_ansi(std::io::IsTerminal::is_terminal(&std::io::stderr()))
         .with_env_filter(
             tracing_subscriber::EnvFilter::try_from_env("MOBILIS_LOG")
                 .unwrap_or_else(|_| tracing_subscriber::EnvFilter::new("info")),

@@ -1,6 +1,8 @@
 //! `mobilis report` end to end: the demo pipeline through the CLI and a real daemon, one HTML
 //! page per sample, each opened in headless Chromium to check that the browser lays out
-//! every figure; one page is also saved as a screenshot for people to look at.
+//! every figure; one page is also saved as a screenshot for people to look at. Also how the
+//! command line and the daemon behave in a shell: output piped into a reader that goes away
+//! ends quietly, and a log redirected to a file carries no colour codes.
 //!
 //! Chromium comes from Debian's `chromium` package (`.ci/run` installs it); `$CHROMIUM`
 //! names another binary.
@@ -144,4 +146,46 @@ async fn each_sample_gets_a_page_that_renders_with_its_figures() {
     assert!(output.status.success(), "{}", String::from_utf8_lossy(&output.stderr));
     let size = std::fs::metadata(&shot).map(|m| m.len()).unwrap_or(0);
     assert!(size > 50_000, "the screenshot is suspiciously small ({size} bytes)");
+}
+
+// A command line piped into `head` ends quietly when the reader goes away, as other tools do:
+// the reader's end is closed before the CLI prints, so every write meets a broken pipe.
+#[tokio::test(flavor = "multi_thread")]
+async fn output_into_a_closed_pipe_ends_quietly() {
+    let daemon = TestDaemon::start().await;
+    let mut child = Command::new(ensure_built().join("mobilis"))
+        .args(["--url", daemon.daemon.url(), "analyses"])
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .expect("mobilis starts");
+    drop(child.stdout.take());
+    let output = child.wait_with_output().expect("mobilis ends");
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    assert!(
+        !stderr.contains("panicked") && !stderr.contains("Broken pipe"),
+        "mobilis complained about the closed pipe:\n{stderr}"
+    );
+}
+
+// The daemon's log, redirected to a file, holds plain text: no terminal colour codes.
+#[test]
+fn a_redirected_daemon_log_has_no_colour_codes() {
+    let workspace = tempfile::tempdir().unwrap();
+    let log = workspace.path().join("daemon.log");
+    let mut daemon = Command::new(ensure_built().join("mobilisd"))
+        .args(["--listen", "127.0.0.1:0", "--workspace"])
+        .arg(workspace.path().join("ws"))
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::fs::File::create(&log).unwrap())
+        .spawn()
+        .expect("mobilisd starts");
+    let mut ready = String::new();
+    std::io::BufRead::read_line(&mut std::io::BufReader::new(daemon.stdout.take().unwrap()), &mut ready).unwrap();
+    assert!(ready.starts_with("listening on http://"), "{ready}");
+    daemon.kill().unwrap();
+    daemon.wait().unwrap();
+    let text = std::fs::read_to_string(&log).unwrap();
+    assert!(!text.is_empty(), "the daemon logged nothing to check");
+    assert!(!text.contains('\u{1b}'), "colour codes in a redirected log:\n{text}");
 }

@@ -172,6 +172,15 @@ fn absolute(path: &Path) -> anyhow::Result<String> {
 
 #[tokio::main(flavor = "current_thread")]
 async fn main() {
+    // Rust ignores SIGPIPE, so printing into a closed pipe (`mobilis analyses | head -3`)
+    // would panic with "Broken pipe". Command-line tools end quietly there instead: restore
+    // the default action, which ends the process when the reader has gone.
+    #[cfg(unix)]
+    // SAFETY: the disposition is process-wide and may be set at any time; SIG_DFL is a valid
+    // action for SIGPIPE and no handler of ours is replaced.
+    unsafe {
+        libc::signal(libc::SIGPIPE, libc::SIG_DFL);
+    }
     let cli = Cli::parse();
     if let Err(error) = run(cli).await {
         eprintln!("error: {error:#}");

@@ -137,6 +137,9 @@ where
 
     fn call(&mut self, request: HttpRequest<B>) -> Self::Future {
         let (status, message) = match self.policy.judge(&request) {
+            Verdict::Pass if is_plain_visit(&request) => {
+                return Box::pin(async move { Ok(self_description()) });
+            }
             Verdict::Pass => {
                 // An allowed page may read the answer (CORS); other clients send no Origin.
                 let origin = AccessPolicy::origin(&request);
@@ -179,6 +182,32 @@ where
             .expect("static response parts are valid");
         Box::pin(async move { Ok(response) })
     }
+}
+
+/// A GET of `/` that is not a WebSocket upgrade: a person (or a script) asking what answers
+/// on this port. JSON-RPC itself arrives by POST or over the WebSocket.
+fn is_plain_visit<B>(request: &HttpRequest<B>) -> bool {
+    request.method() == http::Method::GET
+        && request.uri().path() == "/"
+        && !request.headers().contains_key(http::header::UPGRADE)
+}
+
+/// What this port is and where its documentation is, as a short JSON document.
+fn self_description() -> HttpResponse {
+    let body = serde_json::json!({
+        "name": "mobilisd",
+        "version": env!("CARGO_PKG_VERSION"),
+        "what": "the mobilis analysis server for resistivity, Hall-effect, multi-carrier and magnetoresistance measurements",
+        "protocol": "JSON-RPC 2.0: POST a request to this address, or open a WebSocket here",
+        "discover": "call rpc.discover for the OpenRPC document of every method and analysis.list for the analyses",
+        "docs": "README.md (using it) and DEVELOPERS.md (methods, tables, plugins) in the mobilis source tree"
+    })
+    .to_string();
+    HttpResponse::builder()
+        .status(200)
+        .header("content-type", "application/json")
+        .body(HttpBody::from(body))
+        .expect("static response parts are valid")
 }
 
 /// Starts the HTTP and WebSocket server; returns its address and handle.

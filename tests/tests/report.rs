@@ -2,7 +2,8 @@
 //! page per sample, each opened in headless Chromium to check that the browser lays out
 //! every figure; one page is also saved as a screenshot for people to look at. Also how the
 //! command line and the daemon behave in a shell: output piped into a reader that goes away
-//! ends quietly, and a log redirected to a file carries no colour codes.
+//! ends quietly, a log redirected to a file carries no colour codes, and a browser opening
+//! the daemon's address is told what answers there.
 //!
 //! Chromium comes from Debian's `chromium` package (`.ci/run` installs it); `$CHROMIUM`
 //! names another binary.
@@ -188,4 +189,25 @@ fn a_redirected_daemon_log_has_no_colour_codes() {
     let text = std::fs::read_to_string(&log).unwrap();
     assert!(!text.is_empty(), "the daemon logged nothing to check");
     assert!(!text.contains('\u{1b}'), "colour codes in a redirected log:\n{text}");
+}
+
+// A person who opens the daemon's address in a browser (a plain GET of `/`) learns what
+// answers there and where the documentation is, instead of a bare 405.
+#[tokio::test(flavor = "multi_thread")]
+async fn a_plain_visit_says_what_answers_here() {
+    use std::io::{Read, Write};
+    let daemon = TestDaemon::start().await;
+    let address = daemon.daemon.url().trim_start_matches("http://").to_owned();
+    let mut stream = std::net::TcpStream::connect(&address).unwrap();
+    write!(stream, "GET / HTTP/1.1\r\nHost: {address}\r\nConnection: close\r\n\r\n").unwrap();
+    let mut answer = String::new();
+    stream.read_to_string(&mut answer).unwrap();
+    assert!(answer.starts_with("HTTP/1.1 200"), "{answer}");
+    assert!(
+        answer.contains("\"name\":\"mobilisd\"") && answer.contains("rpc.discover"),
+        "{answer}"
+    );
+    // JSON-RPC still answers on the same address.
+    let info = daemon.call("server.info", serde_json::json!({})).await;
+    assert_eq!(info["name"], serde_json::json!("mobilisd"));
 }

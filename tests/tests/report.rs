@@ -3,7 +3,8 @@
 //! every figure; one page is also saved as a screenshot for people to look at. Also how the
 //! command line and the daemon behave in a shell: output piped into a reader that goes away
 //! ends quietly, a log redirected to a file carries no colour codes, and a browser opening
-//! the daemon's address is told what answers there.
+//! the daemon's address is told what answers there, and `show` names the columns there are
+//! when asked for one that is not.
 //!
 //! Chromium comes from Debian's `chromium` package (`.ci/run` installs it); `$CHROMIUM`
 //! names another binary.
@@ -210,4 +211,29 @@ async fn a_plain_visit_says_what_answers_here() {
     // JSON-RPC still answers on the same address.
     let info = daemon.call("server.info", serde_json::json!({})).await;
     assert_eq!(info["name"], serde_json::json!("mobilisd"));
+}
+
+// `mobilis show --column` with a column the dataset lacks is an error that lists the columns
+// there are, not a silently shorter table.
+#[tokio::test(flavor = "multi_thread")]
+async fn show_refuses_an_unknown_column_and_lists_the_real_ones() {
+    let daemon = TestDaemon::start().await;
+    daemon
+        .call(
+            "dataset.import",
+            serde_json::json!({"name": "few", "columns": {"sample": ["a", "b"], "density_m3": [1e21, 2e21]}}),
+        )
+        .await;
+    let output = Command::new(ensure_built().join("mobilis"))
+        .args(["--url", daemon.daemon.url(), "show", "few", "--column", "density_cm3"])
+        .output()
+        .expect("mobilis runs");
+    assert!(!output.status.success());
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    assert!(
+        stderr.contains("no column density_cm3") && stderr.contains("sample, density_m3"),
+        "{stderr}"
+    );
+    let (shown, _) = mobilis(daemon.daemon.url(), "never", &["show", "few", "--column", "density_m3"]);
+    assert!(shown.contains("rows 0..2 of 2"), "{shown}");
 }

@@ -299,6 +299,22 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
                     json!({ "name": name, "offset": offset, "limit": limit }),
                 )
                 .await?;
+            let present: Vec<&str> = page["columns"]
+                .as_object()
+                .map(|map| map.keys().map(String::as_str).collect())
+                .unwrap_or_default();
+            let unknown: Vec<&str> = columns
+                .iter()
+                .map(String::as_str)
+                .filter(|column| !present.contains(column))
+                .collect();
+            if !unknown.is_empty() {
+                bail!(
+                    "{name} has no column {}; --column takes the stored names (SI units), which are: {}",
+                    unknown.join(", "),
+                    present.join(", ")
+                );
+            }
             let rendered = table::render(&page["columns"], columns, !si);
             print!("{rendered}");
             let total = page["total_rows"].as_u64().unwrap_or(0);

@@ -47,18 +47,23 @@ enum Command {
     Analyses,
     /// Import a CSV, Parquet or Arrow IPC file (a path on the daemon's machine).
     Import {
+        /// Name to store the dataset under.
         name: String,
+        /// The file to read, on the daemon's machine inside its data roots.
         path: PathBuf,
+        /// csv, parquet or ipc; default: from the file's extension.
         #[arg(long)]
         format: Option<String>,
         /// Convert a column into SI, e.g. --unit temperature_C=degC (repeatable).
         #[arg(long = "unit", value_parser = parse_key_value)]
         units: Vec<(String, String)>,
+        /// Replace a stored dataset of the same name (refused otherwise).
         #[arg(long)]
         overwrite: bool,
     },
     /// Run one analysis.
     Run {
+        /// The analysis, e.g. hall.reduce (see `mobilis analyses`).
         analysis: String,
         /// role=dataset (repeatable).
         #[arg(long = "input", value_parser = parse_key_value, required = true)]
@@ -72,6 +77,7 @@ enum Command {
         /// Column to group by (repeatable).
         #[arg(long = "group-by")]
         group_by: Vec<String>,
+        /// Replace a stored output dataset of the same name (refused otherwise).
         #[arg(long)]
         overwrite: bool,
     },
@@ -79,9 +85,12 @@ enum Command {
     Pipeline { file: PathBuf },
     /// Show a dataset in the customary units of the trade (cm^-3, cm^2/(V s), ohm cm).
     Show {
+        /// The dataset to show.
         name: String,
+        /// First row to show (0 is the first).
         #[arg(long, default_value_t = 0)]
         offset: usize,
+        /// How many rows to show.
         #[arg(long, default_value_t = 50)]
         limit: usize,
         /// Only these columns (repeatable).
@@ -95,8 +104,11 @@ enum Command {
     Datasets,
     /// Write a dataset to a file (a path on the daemon's machine).
     Export {
+        /// The dataset to write.
         name: String,
+        /// The file to write, on the daemon's machine inside its data roots.
         path: PathBuf,
+        /// csv, parquet or ipc; default: from the file's extension.
         #[arg(long)]
         format: Option<String>,
     },

@@ -370,15 +370,7 @@ impl Analysis for KohlerAnalysis {
                     .collect(),
             ),
         );
-        summary.insert("single_field_sign".into(), json!(!single_sign_temperatures.is_empty()));
-        summary.insert(
-            "single_field_sign_temperatures_K".into(),
-            json!(single_sign_temperatures),
-        );
-        output.warnings = single_field_sign_series_warning(&single_sign_temperatures)
-            .into_iter()
-            .chain(sweep_warnings)
-            .collect();
+        report_series_field_signs(&mut output, &single_sign_temperatures, sweep_warnings);
         output.warnings.extend(analysis.warnings.iter().cloned());
         Ok(output)
     }
@@ -516,4 +508,25 @@ impl Analysis for TwoBandAnalysis {
         output.warnings.extend(fit.warnings.iter().cloned());
         Ok(output)
     }
+}
+
+/// The field-sign report of an analysis of several sweeps (Kohler, oscillations): the
+/// `single_field_sign` flag and the temperatures measured at one sign in the summary, and as
+/// the first warnings the one series warning followed by the sweeps' own.
+pub(super) fn report_series_field_signs(
+    output: &mut AnalysisOutput,
+    single_sign_temperatures: &[f64],
+    sweep_warnings: Vec<String>,
+) {
+    output
+        .summary
+        .insert("single_field_sign".into(), json!(!single_sign_temperatures.is_empty()));
+    output.summary.insert(
+        "single_field_sign_temperatures_K".into(),
+        json!(single_sign_temperatures),
+    );
+    output.warnings = single_field_sign_series_warning(single_sign_temperatures)
+        .into_iter()
+        .chain(sweep_warnings)
+        .collect();
 }

@@ -12,8 +12,7 @@ use mobilis_core::forward::oscillations::thermal_damping_factor;
 use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 use mobilis_core::sweep::{symmetrize, SweepUse};
 use mobilis_core::sweep_table::{
-    single_field_sign_series_warning, single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature,
-    SweepParams,
+    single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature, SweepParams,
 };
 use serde::Deserialize;
 use serde_json::{json, Value};
@@ -482,15 +481,7 @@ impl Analysis for OscillationsAnalysis {
             summary.insert("landau_fan_intercept_unc".into(), json!(fan.intercept_unc));
             summary.insert("landau_fan_phase_rad".into(), json!(fan.phase_rad));
         }
-        summary.insert("single_field_sign".into(), json!(!single_sign_temperatures.is_empty()));
-        summary.insert(
-            "single_field_sign_temperatures_K".into(),
-            json!(single_sign_temperatures),
-        );
-        output.warnings = single_field_sign_series_warning(&single_sign_temperatures)
-            .into_iter()
-            .chain(sweep_warnings)
-            .collect();
+        super::classical::report_series_field_signs(&mut output, &single_sign_temperatures, sweep_warnings);
         output.warnings.extend(analysis.warnings.iter().cloned());
         host.progress(1.0, "done");
         Ok(output)

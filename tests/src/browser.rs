@@ -1,5 +1,5 @@
 //! Headless Chromium for the tests that open pages: the report pages and the JS client's
-//! browser test. Chromium comes from Debian's `chromium` package (`.ci/run` installs it);
+//! browser test. Chromium comes from Debian's `chromium` package (`tests/run` installs it);
 //! `$CHROMIUM` names another binary. Without one the tests fail and say what to install.
 
 use std::path::{Path, PathBuf};
@@ -18,7 +18,7 @@ pub fn chromium() -> PathBuf {
     .iter()
     .map(PathBuf::from)
     .find(|path| path.is_file())
-    .expect("no Chromium found: install Debian's `chromium` package (.ci/run does) or set $CHROMIUM")
+    .expect("no Chromium found: install Debian's `chromium` package (tests/run does) or set $CHROMIUM")
 }
 
 /// Headless Chromium with its own empty profile in `profile`. Background networking,

@@ -3,7 +3,7 @@
 //! daemons — over WebSocket, and over HTTP with a bearer token through CORS — then posts
 //! what it saw back to the static server.
 //!
-//! Chromium comes from Debian's `chromium` package (`.ci/run` installs it); `$CHROMIUM`
+//! Chromium comes from Debian's `chromium` package (`tests/run` installs it); `$CHROMIUM`
 //! names another binary.
 
 use mobilis_tests::browser::headless_chromium;

@@ -6,7 +6,7 @@
 //! the daemon's address is told what answers there, and `show` names the columns there are
 //! when asked for one that is not.
 //!
-//! Chromium comes from Debian's `chromium` package (`.ci/run` installs it); `$CHROMIUM`
+//! Chromium comes from Debian's `chromium` package (`tests/run` installs it); `$CHROMIUM`
 //! names another binary.
 
 use mobilis_tests::browser::headless_chromium;

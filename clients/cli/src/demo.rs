@@ -4,6 +4,7 @@
 
 use crate::pipeline_file;
 use crate::progress_bar::{ProgressBar, ProgressMode};
+use crate::summary::plus_minus_json;
 use crate::table::format_number;
 use anyhow::{bail, Context};
 use mobilis_client::{Client, Daemon, DaemonOptions};
@@ -159,11 +160,7 @@ fn print_quantum(oscillations: &Value, oscillation_truth: &Value, weak: &Value, 
     let row = |label: &str, name: &str, factor: f64, truth: &Value| {
         println!(
             "  {label:<28} {:>24}  [{}]",
-            format!(
-                "{} ± {}",
-                number(&summary[name], factor),
-                number(&summary[format!("{name}_unc")], factor)
-            ),
+            plus_minus_json(&summary[name], &summary[format!("{name}_unc")], factor),
             number(truth, factor)
         );
     };
@@ -216,21 +213,17 @@ fn print_quantum(oscillations: &Value, oscillation_truth: &Value, weak: &Value, 
     println!(
         "  {:<28} {:>24}  [{}]",
         "phase-coherence length (nm)",
-        format!(
-            "{} ± {}",
-            number(&weak_summary["phase_coherence_length_m"], 1e9),
-            number(&weak_summary["phase_coherence_length_m_unc"], 1e9)
+        plus_minus_json(
+            &weak_summary["phase_coherence_length_m"],
+            &weak_summary["phase_coherence_length_m_unc"],
+            1e9
         ),
         number(&wl["phase_coherence_length_m"], 1e9)
     );
     println!(
         "  {:<28} {:>24}  [{}]",
         "HLN prefactor alpha",
-        format!(
-            "{} ± {}",
-            number(&weak_summary["alpha"], 1.0),
-            number(&weak_summary["alpha_unc"], 1.0)
-        ),
+        plus_minus_json(&weak_summary["alpha"], &weak_summary["alpha_unc"], 1.0),
         number(&wl["alpha"], 1.0)
     );
 }
@@ -273,10 +266,10 @@ fn print_carriers(fit: &Value, spectrum: &Value, truth: &Value) {
         }
         for carrier in group["summary"]["carriers"].as_array().into_iter().flatten() {
             println!(
-                "  multi-carrier fit      {}  (± {} cm^-2, ± {} cm^2/(V s))",
-                describe_carrier(carrier, "sheet_density_m2", "mobility_m2_per_Vs"),
-                number(&carrier["sheet_density_m2_unc"], 1e-4),
-                number(&carrier["mobility_m2_per_Vs_unc"], 1e4)
+                "  multi-carrier fit      {} {} cm^-2 at {} cm^2/(V s)",
+                carrier["carrier_type"].as_str().unwrap_or("?"),
+                plus_minus_json(&carrier["sheet_density_m2"], &carrier["sheet_density_m2_unc"], 1e-4),
+                plus_minus_json(&carrier["mobility_m2_per_Vs"], &carrier["mobility_m2_per_Vs_unc"], 1e4)
             );
         }
         let peaks = groups(spectrum)
@@ -298,9 +291,7 @@ fn print_carriers(fit: &Value, spectrum: &Value, truth: &Value) {
 
 /// `value ± uncertainty` of row `row` of a summary table, scaled into display units.
 fn with_uncertainty(columns: &Value, name: &str, row: usize, factor: f64) -> String {
-    let value = &columns[name][row];
-    let uncertainty = &columns[format!("{name}_unc")][row];
-    format!("{} ± {}", number(value, factor), number(uncertainty, factor))
+    plus_minus_json(&columns[name][row], &columns[format!("{name}_unc")][row], factor)
 }
 
 /// The row of `sample` in a summary table.
@@ -425,9 +416,9 @@ fn print_hall_table(columns: &Value, truth: &Value) {
             number(sheet[row], 1.0),
             number(resistivity[row], 100.0),
             carrier[row].as_str().unwrap_or("-"),
-            format!("{} ± {}", number(density[row], 1e-6), number(density_unc[row], 1e-6)),
+            plus_minus_json(density[row], density_unc[row], 1e-6),
             format!("[{true_n}]"),
-            format!("{} ± {}", number(mobility[row], 1e4), number(mobility_unc[row], 1e4)),
+            plus_minus_json(mobility[row], mobility_unc[row], 1e4),
             format!("[{true_mu}]"),
             flags[row].as_str().filter(|f| !f.is_empty()).unwrap_or("ok"),
         );

@@ -8,6 +8,7 @@ mod demo;
 mod pipeline_file;
 mod progress_bar;
 mod report_files;
+mod summary;
 mod table;
 
 use anyhow::{bail, Context};
@@ -80,6 +81,10 @@ enum Command {
         /// Replace a stored output dataset of the same name (refused otherwise).
         #[arg(long)]
         overwrite: bool,
+        /// Also store the summary (the fitted values) as a dataset of this name: one row per
+        /// group, one column per value, in SI.
+        #[arg(long = "summary-output", value_name = "NAME")]
+        summary_output: Option<String>,
     },
     /// Run a pipeline file (TOML: [[import]] and [[step]] tables; see DEVELOPERS.md).
     Pipeline { file: PathBuf },
@@ -271,13 +276,17 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             params,
             group_by,
             overwrite,
+            summary_output,
         } => {
             let params: Value = serde_json::from_str(params).context("--params must be a JSON object")?;
             let inputs: serde_json::Map<String, Value> = inputs.iter().map(|(r, d)| (r.clone(), json!(d))).collect();
-            let request = json!({
+            let mut request = json!({
                 "analysis": analysis, "inputs": inputs, "params": params, "output": output,
                 "group_by": group_by, "overwrite": overwrite,
             });
+            if let Some(name) = summary_output {
+                request["summary_output"] = json!(name);
+            }
             let mut bar = ProgressBar::new(cli.progress);
             let result = connect(&cli)
                 .await?
@@ -426,12 +435,5 @@ fn print_json(value: &Value) -> anyhow::Result<()> {
 }
 
 fn print_run_result(result: &Value) {
-    println!(
-        "{} -> {} rows",
-        result["output"].as_str().unwrap_or("?"),
-        result["rows"]
-    );
-    for warning in result["warnings"].as_array().into_iter().flatten() {
-        println!("  warning: {}", warning.as_str().unwrap_or(""));
-    }
+    print!("{}", summary::render_run(result));
 }

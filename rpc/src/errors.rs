@@ -14,6 +14,10 @@ pub struct ServiceError {
     pub kind: ErrorKind,
     pub message: String,
     pub help: Option<String>,
+    /// The request parameter at fault, as a path (`overwrite`, `inputs.readings`,
+    /// `params.temperature_tolerance_K`, `group_by`), so that a client can name its own
+    /// option for it instead of the JSON field.
+    pub param: Option<String>,
 }
 
 /// The kinds of failure, each with a stable code.
@@ -124,7 +128,14 @@ impl ServiceError {
             kind,
             message: message.into(),
             help: None,
+            param: None,
         }
+    }
+
+    /// Names the request parameter at fault (`data.param`).
+    pub fn with_param(mut self, param: impl Into<String>) -> Self {
+        self.param = Some(param.into());
+        self
     }
 
     pub fn with_help(mut self, help: impl Into<String>) -> Self {
@@ -143,10 +154,14 @@ impl ServiceError {
 
     /// The `data` member of the JSON-RPC error object.
     pub fn data(&self) -> serde_json::Value {
-        match &self.help {
-            Some(help) => json!({ "kind": self.kind.name(), "help": help }),
-            None => json!({ "kind": self.kind.name() }),
+        let mut data = json!({ "kind": self.kind.name() });
+        if let Some(help) = &self.help {
+            data["help"] = json!(help);
         }
+        if let Some(param) = &self.param {
+            data["param"] = json!(param);
+        }
+        data
     }
 }
 

@@ -333,6 +333,39 @@ pub fn summary_table(summary: &Value, group_columns: &[String]) -> ServiceResult
     tables::frame_from_json_columns(&columns)
 }
 
+/// Edit distance between two names (Levenshtein: insertions, deletions, substitutions),
+/// compared without case.
+fn edit_distance(a: &str, b: &str) -> usize {
+    let a: Vec<char> = a.to_lowercase().chars().collect();
+    let b: Vec<char> = b.to_lowercase().chars().collect();
+    let mut previous: Vec<usize> = (0..=b.len()).collect();
+    for (i, ca) in a.iter().enumerate() {
+        let mut current = vec![i + 1; b.len() + 1];
+        for (j, cb) in b.iter().enumerate() {
+            let substitution = previous[j] + usize::from(ca != cb);
+            current[j + 1] = substitution.min(previous[j + 1] + 1).min(current[j] + 1);
+        }
+        previous = current;
+    }
+    previous[b.len()]
+}
+
+/// The known names closest to `name`: those within a third of its length in edit distance,
+/// or that contain it or its part after the last dot, nearest first, at most three.
+fn closest_names<'a>(name: &str, known: &[&'a str]) -> Vec<&'a str> {
+    let tail = name.rsplit('.').next().unwrap_or(name).to_lowercase();
+    let limit = (name.chars().count() / 3).max(2);
+    let mut scored: Vec<(usize, &str)> = known
+        .iter()
+        .map(|&candidate| (edit_distance(name, candidate), candidate))
+        .filter(|&(distance, candidate)| {
+            distance <= limit || (tail.len() >= 3 && candidate.to_lowercase().contains(&tail))
+        })
+        .collect();
+    scored.sort();
+    scored.into_iter().take(3).map(|(_, candidate)| candidate).collect()
+}
+
 /// Row indices of each group, in order of first appearance, with the key values.
 fn group_rows(frame: &DataFrame, columns: &[String]) -> ServiceResult<Vec<(Vec<AnyValue<'static>>, Vec<IdxSize>)>> {
     let series: Vec<Series> = columns
@@ -342,10 +375,13 @@ fn group_rows(frame: &DataFrame, columns: &[String]) -> ServiceResult<Vec<(Vec<A
                 .column(name)
                 .map(|c| c.as_materialized_series().clone())
                 .map_err(|_| {
+                    let present: Vec<&str> = frame.get_column_names().iter().map(|c| c.as_str()).collect();
                     ServiceError::new(
                         ErrorKind::ColumnProblem,
                         format!("group_by column `{name}` is not in the first input table"),
                     )
+                    .with_help(format!("its columns are: {}", present.join(", ")))
+                    .with_param("group_by")
                 })
         })
         .collect::<ServiceResult<_>>()?;
@@ -446,14 +482,19 @@ impl Service {
 
     fn unknown_analysis(&self, name: &str) -> ServiceError {
         let known: Vec<&str> = self.host.analyses.keys().map(String::as_str).collect();
-        ServiceError::new(ErrorKind::UnknownAnalysis, format!("no analysis named `{name}`")).with_help(format!(
-            "loaded analyses: {}",
-            if known.is_empty() {
-                "none".to_owned()
-            } else {
+        let closest = closest_names(name, &known);
+        let help = match (closest.as_slice(), known.is_empty()) {
+            (_, true) => "loaded analyses: none".to_owned(),
+            ([], false) => format!("loaded analyses: {}", known.join(", ")),
+            (closest, false) => format!(
+                "did you mean {}? loaded analyses: {}",
+                closest.join(" or "),
                 known.join(", ")
-            }
-        ))
+            ),
+        };
+        ServiceError::new(ErrorKind::UnknownAnalysis, format!("no analysis named `{name}`"))
+            .with_help(help)
+            .with_param("analysis")
     }
 
     pub fn analysis_describe(&self, name: &str) -> ServiceResult<Value> {
@@ -642,7 +683,8 @@ impl Service {
             if !declared.contains(&role.as_str()) {
                 return Err(
                     ServiceError::invalid_params(format!("{} has no input role `{role}`", run.analysis))
-                        .with_help(format!("its roles are: {}", declared.join(", "))),
+                        .with_help(format!("its roles are: {}", declared.join(", ")))
+                        .with_param(format!("inputs.{role}")),
                 );
             }
         }
@@ -654,7 +696,8 @@ impl Service {
                         "{} needs input role `{}`",
                         run.analysis, role.role
                     ))
-                    .with_help(format!("pass inputs: {{\"{}\": \"<dataset>\"}}", role.role)));
+                    .with_help(format!("pass inputs: {{\"{}\": \"<dataset>\"}}", role.role))
+                    .with_param(format!("inputs.{}", role.role)));
                 }
                 continue;
             };
@@ -684,7 +727,8 @@ impl Service {
                 ErrorKind::DatasetExists,
                 format!("a dataset named `{}` exists already", run.output),
             )
-            .with_help("choose another output name, drop the old dataset, or pass overwrite: true"));
+            .with_help("choose another output name, drop the old dataset, or pass overwrite: true")
+            .with_param("output"));
         }
         let entry = self
             .host
@@ -697,22 +741,34 @@ impl Service {
             run.params.clone()
         };
         param_schema::validate(&entry.declaration.params, &params).map_err(|message| {
-            ServiceError::invalid_params(format!("{}: {message}", run.analysis)).with_help(format!(
-                "see analysis.describe {{\"analysis\": \"{}\"}} for the parameters",
-                run.analysis
-            ))
+            // The message starts with the path of the offending parameter (`params.x`).
+            let param = message
+                .split_whitespace()
+                .next()
+                .unwrap_or("params")
+                .trim_end_matches(':');
+            let param = param.split('[').next().unwrap_or(param).to_owned();
+            ServiceError::invalid_params(format!("{}: {message}", run.analysis))
+                .with_help(format!(
+                    "see analysis.describe {{\"analysis\": \"{}\"}} for the parameters",
+                    run.analysis
+                ))
+                .with_param(param)
         })?;
         if let Some(name) = &run.summary_output {
             store::validate_name(name)?;
             if name == &run.output {
-                return Err(ServiceError::invalid_params("summary_output must differ from output"));
+                return Err(
+                    ServiceError::invalid_params("summary_output must differ from output").with_param("summary_output")
+                );
             }
             if !run.overwrite && self.store.contains(name) {
                 return Err(ServiceError::new(
                     ErrorKind::DatasetExists,
                     format!("a dataset named `{name}` exists already"),
                 )
-                .with_help("choose another summary_output name, drop the old dataset, or pass overwrite: true"));
+                .with_help("choose another summary_output name, drop the old dataset, or pass overwrite: true")
+                .with_param("summary_output"));
             }
         }
         let inputs = self.prepare_inputs(&run)?;
@@ -947,5 +1003,33 @@ impl Service {
             results.push(result);
         }
         Ok(json!({ "steps": results }))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_closest_names_come_first() {
+        let known = [
+            "hall.reduce",
+            "carriers.freeze_out_fit",
+            "carriers.arrhenius",
+            "mr.oscillations",
+        ];
+        // (asked, expected suggestions)
+        let cases: &[(&str, &[&str])] = &[
+            ("hall.reduc", &["hall.reduce"]),
+            ("Hall.Reduce", &["hall.reduce"]),
+            ("carriers.arrhenus", &["carriers.arrhenius"]),
+            ("oscillations", &["mr.oscillations"]),
+            ("freeze_out", &["carriers.freeze_out_fit"]),
+            ("spectrum.mobility", &[]),
+        ];
+        for (asked, expected) in cases {
+            assert_eq!(&closest_names(asked, &known), expected, "{asked}");
+        }
+        assert_eq!(edit_distance("kitten", "sitting"), 3);
     }
 }

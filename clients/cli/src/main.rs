@@ -4,6 +4,7 @@
 //! `http://127.0.0.1:8470`, or `$MOBILIS_URL`). `demo` starts its own daemon on a free port
 //! with a temporary workspace and runs the demo pipeline through it.
 
+mod cli_errors;
 mod demo;
 mod pipeline_file;
 mod progress_bar;
@@ -199,8 +200,13 @@ async fn main() {
         libc::signal(libc::SIGPIPE, libc::SIG_DFL);
     }
     let cli = Cli::parse();
+    let words = match &cli.command {
+        Command::Call { .. } => cli_errors::Words::Json,
+        Command::Pipeline { .. } | Command::Demo { .. } => cli_errors::Words::PipelineFile,
+        _ => cli_errors::Words::Options,
+    };
     if let Err(error) = run(cli).await {
-        eprintln!("error: {error:#}");
+        eprintln!("error: {}", cli_errors::describe(&error, words));
         std::process::exit(1);
     }
 }

@@ -1,0 +1,243 @@
+//! The `mobilis` command line against a real daemon and the real plugins: what a run prints
+//! (the fitted values in customary units with uncertainties, the fit quality, the warnings),
+//! `--summary-output`, `describe`, `export --units customary`, and errors in the words of
+//! the command line (options, not JSON fields).
+
+use mobilis_tests::{ensure_built, workspace_root, TestDaemon};
+use serde_json::json;
+use std::process::Command;
+
+/// Runs the CLI against `url`; returns whether it succeeded, its stdout and its stderr.
+fn mobilis(url: &str, arguments: &[&str]) -> (bool, String, String) {
+    let output = Command::new(ensure_built().join("mobilis"))
+        .args(["--url", url, "--progress", "never"])
+        .args(arguments)
+        .output()
+        .expect("mobilis runs");
+    (
+        output.status.success(),
+        String::from_utf8_lossy(&output.stdout).into_owned(),
+        String::from_utf8_lossy(&output.stderr).into_owned(),
+    )
+}
+
+/// Runs the CLI and requires success; returns stdout.
+fn mobilis_ok(url: &str, arguments: &[&str]) -> String {
+    let (ok, stdout, stderr) = mobilis(url, arguments);
+    assert!(ok, "mobilis {arguments:?} failed:\n{stdout}\n{stderr}");
+    stdout
+}
+
+/// Runs the CLI and requires failure; returns stderr.
+fn mobilis_fails(url: &str, arguments: &[&str]) -> String {
+    let (ok, stdout, stderr) = mobilis(url, arguments);
+    assert!(!ok, "mobilis {arguments:?} should have failed:\n{stdout}");
+    stderr
+}
+
+/// A daemon that may read the demo data, with the silicon wafer's readings and sample sheet
+/// imported and reduced.
+async fn daemon_with_silicon() -> TestDaemon {
+    let demo = workspace_root().join("demo-data");
+    let roots = demo.clone();
+    let daemon = TestDaemon::start_with(move |options| options.data_roots.push(roots)).await;
+    let url = daemon.daemon.url().to_owned();
+    let readings = demo.join("si-wafer/readings.csv");
+    let samples = demo.join("si-wafer/samples.csv");
+    mobilis_ok(&url, &["import", "si-readings", readings.to_str().unwrap()]);
+    mobilis_ok(&url, &["import", "si-samples", samples.to_str().unwrap()]);
+    mobilis_ok(
+        &url,
+        &[
+            "run",
+            "hall.reduce",
+            "--input",
+            "readings=si-readings",
+            "--input",
+            "samples=si-samples",
+            "--output",
+            "si-hall",
+            "--group-by",
+            "sample",
+        ],
+    );
+    daemon
+}
+
+#[tokio::test(flavor = "multi_thread")]
+async fn run_prints_the_fitted_values_and_stores_the_summary() {
+    let daemon = daemon_with_silicon().await;
+    let url = daemon.daemon.url();
+    let printed = mobilis_ok(
+        url,
+        &[
+            "run",
+            "carriers.freeze_out_fit",
+            "--input",
+            "hall=si-hall",
+            "--output",
+            "si-freeze-out",
+            "--group-by",
+            "sample",
+            "--params",
+            r#"{"material": "Si"}"#,
+            "--summary-output",
+            "si-freeze-out-summary",
+        ],
+    );
+    // The demo wafer's pieces were made with N_D = 3.0e15 and 3.2e15 cm^-3, E_D = 45 meV.
+    for expected in [
+        "si-freeze-out -> ",
+        "summary stored as si-freeze-out-summary (2 rows)",
+        "[sample=SiRef-centre]",
+        "[sample=SiRef-edge]",
+        "fit: reduced chi-square",
+    ] {
+        assert!(printed.contains(expected), "no `{expected}` in:\n{printed}");
+    }
+    let line = |name: &str| -> Vec<String> {
+        printed
+            .lines()
+            .filter(|line| line.trim_start().starts_with(name))
+            .map(str::to_owned)
+            .collect()
+    };
+    let donors = line("dopant density");
+    assert_eq!(donors.len(), 2, "{printed}");
+    for (row, truth) in donors.iter().zip([3.0, 3.2]) {
+        // `dopant density  3.000e15 ± 0.038e15 cm^-3`
+        let fields: Vec<&str> = row.split_whitespace().collect();
+        assert_eq!(fields[fields.len() - 1], "cm^-3", "{row}");
+        assert_eq!(fields[fields.len() - 3], "±", "{row}");
+        let value: f64 = fields[fields.len() - 4].parse().unwrap();
+        let uncertainty: f64 = fields[fields.len() - 2].parse().unwrap();
+        assert!((value / 1e15 - truth).abs() < 0.1, "{row}");
+        assert!(uncertainty > 0.0 && uncertainty < 0.1 * value, "{row}");
+    }
+    for row in line("ionization energy") {
+        assert!(row.trim_end().ends_with("meV"), "{row}");
+        let value: f64 = row.split_whitespace().nth(2).unwrap().parse().unwrap();
+        assert!((value - 45.0).abs() < 2.0, "{row}");
+    }
+    // The stored summary holds the same numbers, in SI.
+    let summary = daemon
+        .call("dataset.rows", json!({"name": "si-freeze-out-summary"}))
+        .await;
+    let donors = summary["columns"]["dopant_density_m3"].as_array().unwrap();
+    assert!((donors[0].as_f64().unwrap() / 3.0e21 - 1.0).abs() < 0.03, "{summary}");
+
+    // Warnings are printed once, under their group.
+    let arrhenius = mobilis_ok(
+        url,
+        &[
+            "run",
+            "carriers.arrhenius",
+            "--input",
+            "hall=si-hall",
+            "--output",
+            "si-arrhenius",
+            "--group-by",
+            "sample",
+        ],
+    );
+    assert!(
+        arrhenius.contains("activation energy") && arrhenius.contains(" meV"),
+        "{arrhenius}"
+    );
+    let warnings = arrhenius.matches("warning: ").count();
+    assert!(warnings >= 1 && !arrhenius.contains("warning: [sample="), "{arrhenius}");
+}
+
+#[tokio::test(flavor = "multi_thread")]
+async fn errors_name_the_options_to_change() {
+    let daemon = daemon_with_silicon().await;
+    let url = daemon.daemon.url();
+    // (arguments, what the message must say, what it must not)
+    let cases: &[(&[&str], &[&str], &[&str])] = &[
+        (
+            &["run", "hall.reduce", "--input", "samples=si-samples", "--output", "x"],
+            &["needs input role `readings`", "--input readings=DATASET"],
+            &["pass inputs", "{"],
+        ),
+        (
+            &[
+                "run",
+                "hall.reduce",
+                "--input",
+                "readings=si-readings",
+                "--output",
+                "si-hall",
+            ],
+            &["exists already", "--overwrite", "--output"],
+            &["overwrite: true"],
+        ),
+        (
+            &[
+                "run",
+                "hall.reduce",
+                "--input",
+                "readings=si-readings",
+                "--output",
+                "x",
+                "--params",
+                r#"{"temperature_tolerance_K": "half"}"#,
+            ],
+            &[
+                "--params key `temperature_tolerance_K`",
+                "mobilis describe hall.reduce",
+                r#"--params '{"temperature_tolerance_K": VALUE}'"#,
+            ],
+            &["params.", "analysis.describe"],
+        ),
+        (
+            &["run", "hall.reduce", "--input", "readings=run17", "--output", "x"],
+            &["no dataset named `run17`", "`mobilis datasets`", "mobilis import"],
+            &["dataset.list", "dataset.import"],
+        ),
+        (
+            &[
+                "run",
+                "hall.reduce",
+                "--input",
+                "readings=si-readings",
+                "--output",
+                "x",
+                "--group-by",
+                "wafer",
+            ],
+            &["--group-by column `wafer`", "its columns are: ", "sample", "field_T"],
+            &["group_by"],
+        ),
+        (
+            &["run", "hall.reduc", "--input", "readings=si-readings", "--output", "x"],
+            &["no analysis named `hall.reduc`", "did you mean hall.reduce?"],
+            &[],
+        ),
+        (
+            &[
+                "run",
+                "carriers.freeze_out_fit",
+                "--input",
+                "hall=si-hall",
+                "--output",
+                "x",
+                "--summary-output",
+                "si-hall",
+            ],
+            &["exists already", "--summary-output", "--overwrite"],
+            &["summary_output", "overwrite: true"],
+        ),
+    ];
+    for (arguments, says, not) in cases {
+        let stderr = mobilis_fails(url, arguments);
+        for text in *says {
+            assert!(stderr.contains(text), "{arguments:?}: no `{text}` in:\n{stderr}");
+        }
+        for text in *not {
+            assert!(!stderr.contains(text), "{arguments:?}: `{text}` in:\n{stderr}");
+        }
+    }
+    // `mobilis call` speaks JSON, so the daemon's own words stand there.
+    let stderr = mobilis_fails(url, &["call", "dataset.rows", r#"{"name": "run17"}"#]);
+    assert!(stderr.contains("dataset.list"), "{stderr}");
+}

@@ -241,3 +241,36 @@ async fn errors_name_the_options_to_change() {
     let stderr = mobilis_fails(url, &["call", "dataset.rows", r#"{"name": "run17"}"#]);
     assert!(stderr.contains("dataset.list"), "{stderr}");
 }
+
+#[tokio::test(flavor = "multi_thread")]
+async fn describe_shows_parameters_with_unit_default_and_meaning() {
+    let daemon = TestDaemon::start().await;
+    let url = daemon.daemon.url();
+    let text = mobilis_ok(url, &["describe", "hall.reduce"]);
+    for expected in [
+        "hall.reduce (plugin hall ",
+        "Inputs (--input ROLE=DATASET):",
+        "readings (required): ",
+        "samples (optional): ",
+        "Parameters (--params '{\"NAME\": VALUE, ...}', SI units):",
+        "temperature_tolerance_K  number, K; default 0.5; >= 0",
+        "zero_field_tolerance_T  number, T; default 0.01",
+    ] {
+        assert!(text.contains(expected), "no `{expected}` in:\n{text}");
+    }
+    // Every declared parameter is there, each followed by its meaning.
+    let described = daemon
+        .call("analysis.describe", json!({"analysis": "hall.reduce"}))
+        .await;
+    for (name, schema) in described["params"]["properties"].as_object().unwrap() {
+        assert!(text.contains(&format!("\n  {name}  ")), "{name} missing:\n{text}");
+        let meaning = schema["description"].as_str().unwrap();
+        let first_word = meaning.split_whitespace().next().unwrap();
+        assert!(text.contains(first_word), "{name}'s meaning missing");
+    }
+    let stderr = mobilis_fails(url, &["describe", "carriers.arrhenus"]);
+    assert!(
+        stderr.contains("no analysis named `carriers.arrhenus`") && stderr.contains("did you mean carriers.arrhenius?"),
+        "{stderr}"
+    );
+}

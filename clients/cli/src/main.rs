@@ -6,6 +6,7 @@
 
 mod cli_errors;
 mod demo;
+mod describe;
 mod pipeline_file;
 mod progress_bar;
 mod report_files;
@@ -47,6 +48,12 @@ enum Command {
     Info,
     /// List the analyses the loaded plugins offer.
     Analyses,
+    /// Show an analysis's input roles with their columns, and each parameter with its unit,
+    /// default, allowed values and meaning.
+    Describe {
+        /// The analysis, e.g. hall.reduce (see `mobilis analyses`).
+        analysis: String,
+    },
     /// Import a CSV, Parquet or Arrow IPC file (a path on the daemon's machine).
     Import {
         /// Name to store the dataset under.
@@ -242,6 +249,14 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
                     entry["summary"].as_str().unwrap_or("")
                 );
             }
+            Ok(())
+        }
+        Command::Describe { analysis } => {
+            let description = connect(&cli)
+                .await?
+                .call("analysis.describe", json!({ "analysis": analysis }))
+                .await?;
+            print!("{}", describe::render(&description));
             Ok(())
         }
         Command::Datasets => {

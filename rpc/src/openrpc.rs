@@ -91,6 +91,7 @@ pub const METHODS: &[MethodDoc] = &[
             ("name", true, STRING, "dataset name"),
             ("path", true, STRING, "file to write; its directory must exist inside a data root"),
             ("format", false, r#"{"type": "string", "enum": ["csv", "parquet", "ipc"]}"#, "file format; default from the file name"),
+            ("units", false, r#"{"type": "string", "enum": ["si", "customary"], "default": "si"}"#, "si: as stored; customary: densities in cm^-3 and cm^-2, mobilities in cm^2/(V s), resistivities in ohm cm, lengths in um, each column renamed after its unit (density_m3 -> density_cm3)"),
         ],
         result: OBJECT,
     },

@@ -53,6 +53,10 @@ pub struct ExportParams {
     pub path: String,
     #[serde(default)]
     pub format: Option<String>,
+    /// `si` (as stored, the default) or `customary` (cm^-3, cm^2/(V s), ohm cm, um, with
+    /// column names saying so).
+    #[serde(default)]
+    pub units: crate::customary::ExportUnits,
 }
 
 #[derive(Debug, Deserialize)]
@@ -586,10 +590,16 @@ impl Service {
             Some(name) => FileFormat::parse(name)?,
             None => FileFormat::from_extension(&target)?,
         };
-        tables::write_file(&dataset.frame, &target, format)?;
-        Ok(
-            json!({ "name": params.name, "path": target.display().to_string(), "format": format.name(), "rows": dataset.frame.height() }),
-        )
+        let frame = match params.units {
+            crate::customary::ExportUnits::Si => dataset.frame.clone(),
+            crate::customary::ExportUnits::Customary => crate::customary::to_customary(&dataset.frame)?,
+        };
+        tables::write_file(&frame, &target, format)?;
+        let columns: Vec<String> = frame.get_column_names().iter().map(|n| n.to_string()).collect();
+        Ok(json!({
+            "name": params.name, "path": target.display().to_string(), "format": format.name(),
+            "rows": frame.height(), "units": params.units.name(), "columns": columns,
+        }))
     }
 
     pub fn dataset_rows(&self, params: RowsParams) -> ServiceResult<Value> {

@@ -274,3 +274,56 @@ async fn describe_shows_parameters_with_unit_default_and_meaning() {
         "{stderr}"
     );
 }
+
+#[tokio::test(flavor = "multi_thread")]
+async fn export_writes_customary_units_when_asked() {
+    let out = tempfile::tempdir().unwrap();
+    let root = out.path().to_owned();
+    let daemon = TestDaemon::start_with(move |options| options.data_roots.push(root)).await;
+    let url = daemon.daemon.url();
+    // Round numbers: 1e21 m^-3 = 1e15 cm^-3, 0.15 m^2/(V s) = 1500 cm^2/(V s), 0.02 ohm m =
+    // 2 ohm cm, 5e-4 m = 500 um (SI prefixes).
+    daemon
+        .call(
+            "dataset.import",
+            json!({"name": "round", "columns": {
+                "sample": ["a"], "temperature_K": [300.0], "density_m3": [1.0e21], "density_m3_unc": [2.0e19],
+                "hall_mobility_m2_per_Vs": [0.15], "resistivity_ohm_m": [0.02], "thickness_m": [5.0e-4]
+            }}),
+        )
+        .await;
+    let customary = out.path().join("round-customary.csv");
+    let printed = mobilis_ok(
+        url,
+        &["export", "round", customary.to_str().unwrap(), "--units", "customary"],
+    );
+    assert!(printed.contains("(customary units)"), "{printed}");
+    let text = std::fs::read_to_string(&customary).unwrap();
+    let mut lines = text.lines();
+    assert_eq!(
+        lines.next().unwrap(),
+        "sample,temperature_K,density_cm3,density_cm3_unc,hall_mobility_cm2_per_Vs,resistivity_ohm_cm,thickness_um"
+    );
+    let values: Vec<f64> = lines
+        .next()
+        .unwrap()
+        .split(',')
+        .skip(1)
+        .map(|v| v.parse().unwrap())
+        .collect();
+    for (got, want) in values.iter().zip([300.0, 1.0e15, 2.0e13, 1500.0, 2.0, 500.0]) {
+        assert!((got - want).abs() <= 1e-9 * want, "{got} != {want} in\n{text}");
+    }
+    // The default stays SI, as stored.
+    let si = out.path().join("round-si.csv");
+    mobilis_ok(url, &["export", "round", si.to_str().unwrap()]);
+    let text = std::fs::read_to_string(&si).unwrap();
+    assert!(
+        text.starts_with("sample,temperature_K,density_m3,density_m3_unc,"),
+        "{text}"
+    );
+    assert!(
+        text.contains("1e21") || text.contains("1000000000000000000000"),
+        "{text}"
+    );
+}

@@ -124,6 +124,11 @@ enum Command {
         /// csv, parquet or ipc; default: from the file's extension.
         #[arg(long)]
         format: Option<String>,
+        /// si writes the stored SI values; customary writes densities in cm^-3 and cm^-2,
+        /// mobilities in cm^2/(V s), resistivities in ohm cm and lengths in um, with column
+        /// names saying so (density_cm3), as a spreadsheet user expects.
+        #[arg(long, value_enum, default_value = "si")]
+        units: ExportUnits,
     },
     /// Call any method with JSON parameters and print the JSON result.
     Call {
@@ -177,6 +182,13 @@ enum Command {
         #[arg(long)]
         reports: Option<PathBuf>,
     },
+}
+
+/// The units `mobilis export` writes.
+#[derive(Debug, Clone, Copy, clap::ValueEnum)]
+enum ExportUnits {
+    Si,
+    Customary,
 }
 
 fn parse_key_value(text: &str) -> Result<(String, String), String> {
@@ -367,16 +379,26 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             );
             Ok(())
         }
-        Command::Export { name, path, format } => {
-            let mut params = json!({ "name": name, "path": absolute(path)? });
+        Command::Export {
+            name,
+            path,
+            format,
+            units,
+        } => {
+            let units = match units {
+                ExportUnits::Si => "si",
+                ExportUnits::Customary => "customary",
+            };
+            let mut params = json!({ "name": name, "path": absolute(path)?, "units": units });
             if let Some(format) = format {
                 params["format"] = json!(format);
             }
             let result = connect(&cli).await?.call("dataset.export", params).await?;
             println!(
-                "wrote {} rows to {}",
+                "wrote {} rows to {} ({} units)",
                 result["rows"],
-                result["path"].as_str().unwrap_or("")
+                result["path"].as_str().unwrap_or(""),
+                result["units"].as_str().unwrap_or(units)
             );
             Ok(())
         }

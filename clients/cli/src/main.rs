@@ -24,14 +24,33 @@ use std::path::{Path, PathBuf};
 #[derive(Parser, Debug)]
 #[command(name = "mobilis", version)]
 struct Cli {
-    /// Address of the daemon.
-    #[arg(long, global = true, env = "MOBILIS_URL", default_value = "http://127.0.0.1:8470")]
+    /// Address of the daemon every command except serve and demo talks to.
+    #[arg(
+        long,
+        global = true,
+        env = "MOBILIS_URL",
+        default_value = "http://127.0.0.1:8470",
+        help_heading = "Global options (any command)"
+    )]
     url: String,
-    /// Bearer token, for a daemon started with --token.
-    #[arg(long, global = true, env = "MOBILIS_TOKEN", hide_env_values = true)]
+    /// Bearer token, for a daemon started with --token (sent as Authorization: Bearer).
+    #[arg(
+        long,
+        global = true,
+        env = "MOBILIS_TOKEN",
+        hide_env_values = true,
+        help_heading = "Global options (any command)"
+    )]
     token: Option<String>,
-    /// When to draw a progress bar for analyses and pipelines: auto draws it when stderr is a terminal.
-    #[arg(long, global = true, value_enum, default_value = "auto")]
+    /// When to draw a progress bar on stderr for run, pipeline and demo: auto draws it when
+    /// stderr is a terminal, never and always as they say.
+    #[arg(
+        long,
+        global = true,
+        value_enum,
+        default_value = "auto",
+        help_heading = "Global options (any command)"
+    )]
     progress: ProgressMode,
     #[command(subcommand)]
     command: Command,
@@ -41,6 +60,7 @@ struct Cli {
 enum Command {
     /// Run the daemon in the foreground (arguments after -- go to mobilisd).
     Serve {
+        /// Options for mobilisd, e.g. -- --workspace lab --data-root /data (see mobilisd --help).
         #[arg(trailing_var_arg = true, allow_hyphen_values = true)]
         arguments: Vec<String>,
     },
@@ -74,17 +94,20 @@ enum Command {
     Run {
         /// The analysis, e.g. hall.reduce (see `mobilis analyses`).
         analysis: String,
-        /// role=dataset (repeatable).
-        #[arg(long = "input", value_parser = parse_key_value, required = true)]
+        /// ROLE=DATASET: the stored dataset for one input role, e.g. readings=run17 (repeatable;
+        /// `mobilis describe ANALYSIS` lists the roles).
+        #[arg(long = "input", value_name = "ROLE=DATASET", value_parser = parse_key_value, required = true)]
         inputs: Vec<(String, String)>,
         /// Name of the output dataset.
         #[arg(long)]
         output: String,
-        /// Parameters as a JSON object.
+        /// Parameters as a JSON object in SI units, e.g. '{"material": "Si"}' (`mobilis describe
+        /// ANALYSIS` lists them with their units and defaults).
         #[arg(long, default_value = "{}")]
         params: String,
-        /// Column to group by (repeatable).
-        #[arg(long = "group-by")]
+        /// Run once per group of rows of the first input that share this column's value
+        /// (repeatable: sample, temperature_K); the outputs are stacked, one summary per group.
+        #[arg(long = "group-by", value_name = "COLUMN")]
         group_by: Vec<String>,
         /// Replace a stored output dataset of the same name (refused otherwise).
         #[arg(long)]
@@ -95,7 +118,10 @@ enum Command {
         summary_output: Option<String>,
     },
     /// Run a pipeline file (TOML: [[import]] and [[step]] tables; see DEVELOPERS.md).
-    Pipeline { file: PathBuf },
+    Pipeline {
+        /// The pipeline file; its import paths are relative to it.
+        file: PathBuf,
+    },
     /// Show a dataset in the customary units of the trade (cm^-3, cm^2/(V s), ohm cm).
     Show {
         /// The dataset to show.
@@ -132,7 +158,9 @@ enum Command {
     },
     /// Call any method with JSON parameters and print the JSON result.
     Call {
+        /// The JSON-RPC method, e.g. dataset.info (`mobilis call rpc.discover` lists them all).
         method: String,
+        /// The method's parameters as a JSON object.
         #[arg(default_value = "{}")]
         params: String,
     },
@@ -197,6 +225,23 @@ fn parse_key_value(text: &str) -> Result<(String, String), String> {
         .ok_or_else(|| format!("expected key=value, got `{text}`"))
 }
 
+/// The units `--unit COLUMN=UNIT` accepts, per quantity, as the unit table lists them.
+fn accepted_units_help() -> String {
+    use mobilis_core::units::Quantity;
+    let mut text = String::from(
+        "Units accepted by `mobilis import --unit COLUMN=UNIT` (the column is converted into SI \
+         and renamed after the SI unit, e.g. temperature_C=degC becomes temperature_K):\n",
+    );
+    for quantity in Quantity::ALL {
+        let units = quantity.accepted_units();
+        if !units.is_empty() {
+            text.push_str(&format!("  {quantity}: {units}\n"));
+        }
+    }
+    text.push_str("`mobilis show` and `mobilis export --units customary` give cm^-3, cm^2/(V s) and ohm cm.");
+    text
+}
+
 /// Makes a local path absolute, so the daemon resolves it as the user meant.
 fn absolute(path: &Path) -> anyhow::Result<String> {
     let path = if path.is_absolute() {
@@ -218,7 +263,13 @@ async fn main() {
     unsafe {
         libc::signal(libc::SIGPIPE, libc::SIG_DFL);
     }
-    let cli = Cli::parse();
+    // `--help` of mobilis and of `mobilis import` ends with the units --unit accepts, from
+    // the unit table itself.
+    let command = <Cli as clap::CommandFactory>::command()
+        .after_long_help(accepted_units_help())
+        .mut_subcommand("import", |import| import.after_long_help(accepted_units_help()));
+    let cli =
+        <Cli as clap::FromArgMatches>::from_arg_matches(&command.get_matches()).unwrap_or_else(|error| error.exit());
     let words = match &cli.command {
         Command::Call { .. } => cli_errors::Words::Json,
         Command::Pipeline { .. } | Command::Demo { .. } => cli_errors::Words::PipelineFile,

@@ -123,3 +123,46 @@ fn the_javascript_notebook_runs_under_deno_against_a_real_daemon() {
     );
     assert!(output.contains("figures shown"), "{output}");
 }
+
+// Each notebook says at the top which kernel it needs and how to install it, and starts the
+// daemon from the release build, as the README builds it.
+#[test]
+fn each_notebook_names_its_kernel_and_the_release_build() {
+    // (notebook, kernelspec name, what its first cell must say)
+    let cases: &[(&str, &str, &[&str])] = &[
+        (
+            "demo-deno.ipynb",
+            "deno",
+            &["**Kernel: Deno**", "deno jupyter --install", "jupyterlab"],
+        ),
+        (
+            "rust-client.ipynb",
+            "rust",
+            &[
+                "**Kernel: Rust",
+                "cargo install evcxr_jupyter",
+                "evcxr_jupyter --install",
+                "jupyterlab",
+            ],
+        ),
+    ];
+    for (file, kernel, says) in cases {
+        let path = workspace_root().join("notebooks").join(file);
+        let notebook: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&path).unwrap()).unwrap();
+        assert_eq!(notebook["metadata"]["kernelspec"]["name"], *kernel, "{file}");
+        let first: String = notebook["cells"][0]["source"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .filter_map(|line| line.as_str())
+            .collect();
+        for text in says.iter().chain(&["target/release/mobilisd --data-root demo-data"]) {
+            assert!(
+                first.contains(text),
+                "{file}'s first cell does not say `{text}`:\n{first}"
+            );
+        }
+        let whole = std::fs::read_to_string(&path).unwrap();
+        assert!(!whole.contains("target/debug"), "{file} points at the debug build");
+    }
+}

@@ -15,7 +15,13 @@ import { client } from "./helpers.mjs";
 
 const require = createRequire(import.meta.url);
 const Ajv = require("ajv").default;
-const vegaLiteSchema = require("vega-lite/vega-lite-schema.json");
+const vegaLiteSchema = require("vega-lite/build/vega-lite-schema.json");
+const vegaLiteVersion = require("vega-lite/package.json").version;
+const vegaLitePeers = require("vega-lite/package.json").peerDependencies;
+const vegaVersion = require("vega/package.json").version;
+
+/** The major version of a version text (`5.23.0`, `^5.24.0`). */
+const major = (/** @type {string} */ version) => Number(/(\d+)/.exec(version)?.[1]);
 
 const demoData = process.env.MOBILIS_DEMO_DATA;
 
@@ -96,6 +102,9 @@ test("every figure of every analysis output is a valid, renderable Vega-Lite spe
         const where = `${step.output} as ${kind.name}`;
         assert.match(figure.svg ?? "", /^<svg[\s\S]*<\/svg>\s*$/, `${where}: not an SVG document`);
         assert.doesNotMatch(figure.svg ?? "", /NaN|Infinity/, `${where}: the SVG holds non-numbers`);
+        const declared = /\/vega-lite\/v(\d+)\.json$/.exec(figure.vega_lite?.$schema ?? "");
+        assert.ok(declared, `${where}: no Vega-Lite $schema URL: ${figure.vega_lite?.$schema}`);
+        assert.equal(Number(declared[1]), major(vegaLiteVersion), `${where}: declares v${declared[1]}, validated with vega-lite ${vegaLiteVersion}`);
         const valid = validate(figure.vega_lite);
         assert.ok(valid, `${where}: invalid Vega-Lite:\n${JSON.stringify(validate.errors?.slice(0, 5), null, 1)}`);
         const drawn = await renderVegaLite(figure.vega_lite);
@@ -115,3 +124,18 @@ test("every figure of every analysis output is a valid, renderable Vega-Lite spe
     c.close();
   }
 });
+
+// One Vega-Lite version everywhere: the figures' $schema (checked per figure above), the
+// notebook's display MIME type, the vega-lite package that validates and compiles them, and
+// the vega that draws them (the one vega-lite is made for).
+test("the declared Vega-Lite version is the one the tests validate and draw with", async () => {
+  const fs = await import("node:fs");
+  const notebook = fs.readFileSync(new URL("../../../notebooks/demo-deno.ipynb", import.meta.url), "utf8");
+  const mimeTypes = [...notebook.matchAll(/application\/vnd\.vegalite\.v(\d+)\+json/g)];
+  assert.ok(mimeTypes.length > 0, "the Deno notebook displays no Vega-Lite figure");
+  for (const [mime, version] of mimeTypes) {
+    assert.equal(Number(version), major(vegaLiteVersion), `the notebook shows ${mime}, the tests use vega-lite ${vegaLiteVersion}`);
+  }
+  assert.equal(major(vegaVersion), major(vegaLitePeers.vega), `vega ${vegaVersion} draws, vega-lite ${vegaLiteVersion} wants vega ${vegaLitePeers.vega}`);
+});
+

@@ -236,7 +236,7 @@ pub fn document(service: &Service) -> Value {
         "info": {
             "title": "mobilisd",
             "version": env!("CARGO_PKG_VERSION"),
-            "description": "Analysis server for semiconductor transport measurements. Analyses come from plugins; their parameter schemas are in components.schemas as `<analysis>.params`.",
+            "description": "Analysis server for semiconductor transport measurements. Analyses come from plugins; their parameter schemas are in components.schemas as `<analysis>.params`. An error's data holds its kind, often a help line, and, when one request parameter is at fault, its path as param (`output`, `inputs.readings`, `params.temperature_tolerance_K`, `group_by`).",
         },
         "methods": methods,
         "components": { "schemas": schemas },

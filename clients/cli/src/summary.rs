@@ -74,14 +74,20 @@ const FIT_QUALITY: &[&str] = &[
 
 /// The SI suffix of a key, the readable name without it, and the customary display: densities
 /// per cm^3 and cm^2, mobilities in cm^2/(V s), resistivities in ohm cm (the table `show` and
-/// the reports use), energies in meV. `None` for a key that carries no unit.
+/// the reports use), energies in meV, lifetimes in ps. `None` for a key that carries no unit.
 fn shown(key: &str) -> Option<Shown> {
-    if let Some(base) = key.strip_suffix("_eV") {
-        return Some(Shown {
-            name: base.replace('_', " "),
-            factor: 1e3,
-            unit: "meV",
-        });
+    // Energies in meV, lifetimes in ps, as the trade quotes them.
+    for (suffix, factor, unit) in [("_eV", 1e3, "meV"), ("_s", 1e12, "ps")] {
+        if suffix == "_s" && !key.contains("lifetime") {
+            continue;
+        }
+        if let Some(base) = key.strip_suffix(suffix) {
+            return Some(Shown {
+                name: base.replace('_', " "),
+                factor,
+                unit,
+            });
+        }
     }
     let display = customary_display(key)?;
     // The label is the base name followed by the displayed unit token (`dopant_density_cm3`).
@@ -115,7 +121,9 @@ fn is_uncertainty(key: &str) -> bool {
 /// The value lines of one summary object: `name  value ± uncertainty unit`, strings and lists
 /// of names as they are; numbers without a unit or an uncertainty (counts, settings) are left
 /// to the stored summary.
-fn value_lines(object: &Map<String, Value>, skip: &[&str]) -> Vec<(String, String)> {
+/// With `results_only` (the items of a list: carriers, peaks), only values with an
+/// uncertainty and texts.
+fn value_lines(object: &Map<String, Value>, skip: &[&str], results_only: bool) -> Vec<(String, String)> {
     let mut lines = Vec::new();
     for (key, value) in object {
         if skip.contains(&key.as_str()) || FIT_QUALITY.contains(&key.as_str()) || is_uncertainty(key) {
@@ -127,6 +135,7 @@ fn value_lines(object: &Map<String, Value>, skip: &[&str]) -> Vec<(String, Strin
                 let number = number.as_f64().unwrap_or(f64::NAN);
                 let unc = uncertainty.and_then(Value::as_f64).unwrap_or(f64::NAN);
                 match shown(key) {
+                    _ if results_only && uncertainty.is_none() => {}
                     Some(shown) => lines.push((
                         shown.name,
                         format!(
@@ -142,6 +151,7 @@ fn value_lines(object: &Map<String, Value>, skip: &[&str]) -> Vec<(String, Strin
             Value::String(text) if !key.ends_with("_source") && !text.is_empty() => {
                 lines.push((key.replace('_', " "), text.clone()));
             }
+            Value::Array(_) if results_only => {}
             Value::Array(items) if !items.is_empty() && items.iter().all(Value::is_string) => {
                 let names: Vec<&str> = items.iter().filter_map(Value::as_str).collect();
                 lines.push((key.replace('_', " "), names.join(", ")));
@@ -197,7 +207,7 @@ fn fit_quality(object: &Map<String, Value>) -> Option<String> {
 /// peaks), nested result objects, and the fit quality.
 fn write_object(out: &mut String, object: &Map<String, Value>, skip: &[&str], indent: usize) {
     let pad = " ".repeat(indent);
-    let lines = value_lines(object, skip);
+    let lines = value_lines(object, skip, false);
     let width = lines.iter().map(|(name, _)| name.len()).max().unwrap_or(0).min(32);
     for (name, value) in &lines {
         let _ = writeln!(out, "{pad}{name:<width$}  {value}");
@@ -211,7 +221,7 @@ fn write_object(out: &mut String, object: &Map<String, Value>, skip: &[&str], in
                 }
                 let _ = writeln!(out, "{pad}{}:", key.replace('_', " "));
                 for (number, item) in objects.iter().enumerate() {
-                    let parts: Vec<String> = value_lines(item, &[])
+                    let parts: Vec<String> = value_lines(item, &[], true)
                         .into_iter()
                         .map(|(name, value)| {
                             if name == "carrier type" || name == "kind" {
@@ -317,11 +327,13 @@ mod tests {
                     "dopant_density_m3": 3.0e21, "dopant_density_m3_unc": 3.8e19,
                     "dopant_density_m3_unc_stat": 3.0e18,
                     "ionization_energy_eV": 0.045, "ionization_energy_eV_unc": 9.4e-5,
+                    "quantum_lifetime_s": 3.04e-13, "quantum_lifetime_s_unc": 3.7e-16,
                     "reduced_chi_square": 1.2, "degrees_of_freedom": 44, "chi_square_p_value": 0.17,
                     "birge_ratio": 1.0, "starts": 15,
                     "calibrations_not_stated": ["field_calibration_rel"],
                     "carriers": [{"carrier_type": "p", "sheet_density_m2": 1.0e16, "sheet_density_m2_unc": 2.0e14,
-                                  "mobility_m2_per_Vs": 0.5, "mobility_m2_per_Vs_unc": 0.01}]
+                                  "mobility_m2_per_Vs": 0.5, "mobility_m2_per_Vs_unc": 0.01,
+                                  "hall_mobility_m2_per_Vs": 0.49}]
                 },
                 "warnings": ["a warning of this group"]
             }]},
@@ -346,6 +358,7 @@ mod tests {
             "[sample=W1]",
             "dopant density 3.000e15 ± 0.038e15 cm^-3",
             "ionization energy 45.000 ± 0.094 meV",
+            "quantum lifetime 0.30400 ± 0.00037 ps",
             "carrier type n",
             "calibrations not stated field_calibration_rel",
             "1. p, sheet density 1.000e12 ± 0.020e12 cm^-2, mobility 5000 ± 100 cm^2/(V s)",
@@ -354,7 +367,10 @@ mod tests {
         ] {
             assert!(text.contains(expected), "missing `{expected}` in\n{text}");
         }
-        assert!(!text.contains("starts") && !text.contains("unc stat"), "{text}");
+        assert!(
+            !text.contains("starts") && !text.contains("unc stat") && !text.contains("hall mobility"),
+            "{text}"
+        );
         assert_eq!(text.matches("a warning of this group").count(), 1, "{text}");
     }
 }

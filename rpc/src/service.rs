@@ -1,6 +1,7 @@
 //! What the daemon does, independent of how requests arrive: datasets, analyses,
 //! pipelines. The JSON-RPC layer (`methods`) only parses parameters and calls in here.
 
+use crate::csv_dialect::CsvDialect;
 use crate::data_roots::DataRoots;
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use crate::param_schema;
@@ -40,8 +41,15 @@ pub struct ImportParams {
     pub columns: Option<serde_json::Map<String, Value>>,
     #[serde(default)]
     pub format: Option<String>,
+    /// Source column name to new name, any column, applied before `units`.
+    #[serde(default)]
+    pub rename: BTreeMap<String, String>,
+    /// Units by column name after renaming.
     #[serde(default)]
     pub units: BTreeMap<String, UnitSpec>,
+    /// The CSV dialect (CSV files only).
+    #[serde(default)]
+    pub csv: Option<CsvDialect>,
     #[serde(default)]
     pub overwrite: bool,
 }
@@ -507,7 +515,7 @@ impl Service {
             .iter()
             .map(|(c, u)| (c.clone(), u.unit().to_owned()))
             .collect();
-        let (frame, provenance) =
+        let (frame, source_map, provenance) =
             match (&params.path, &params.columns) {
                 (Some(path), None) => {
                     let resolved = self.roots.readable(Path::new(path))?;
@@ -515,25 +523,53 @@ impl Service {
                         Some(name) => FileFormat::parse(name)?,
                         None => FileFormat::from_extension(&resolved)?,
                     };
-                    let frame = tables::read_file(&resolved, format)?;
+                    if params.csv.is_some() && format != FileFormat::Csv {
+                        return Err(ServiceError::invalid_params(format!(
+                            "csv options apply to CSV files; {} is read as {}",
+                            resolved.display(),
+                            format.name()
+                        ))
+                        .with_help("leave out csv, or pass format: csv if the file is CSV text"));
+                    }
+                    let dialect = params.csv.clone().unwrap_or_default();
+                    let source = tables::load_source(&resolved)?;
+                    let rename = &params.rename;
+                    // The contacts pair notation (`21,34`) keeps its comma under decimal_comma.
+                    let keeps_commas = |name: &str| rename.get(name).map(String::as_str).unwrap_or(name) == "contacts";
+                    let (frame, map) = tables::read_bytes(&resolved, source.bytes, format, &dialect, keeps_commas)?;
                     let provenance = Provenance::File {
                         path: resolved.display().to_string(),
                         format: format.name().into(),
                         units: units_text,
+                        rename: params.rename.clone(),
+                        csv: params.csv.clone().filter(|d| *d != CsvDialect::default()),
+                        sha256: Some(source.sha256),
+                        size_bytes: Some(source.size_bytes),
+                        modified: source.modified,
                     };
-                    (frame, provenance)
+                    (frame, map, provenance)
                 }
-                (None, Some(columns)) => (
-                    tables::frame_from_json_columns(columns)?,
-                    Provenance::Inline { units: units_text },
-                ),
+                (None, Some(columns)) => {
+                    if params.csv.is_some() {
+                        return Err(
+                            ServiceError::invalid_params("csv options apply to files, not to inline columns")
+                                .with_help("leave out csv when sending columns"),
+                        );
+                    }
+                    (
+                        tables::frame_from_json_columns(columns)?,
+                        None,
+                        Provenance::Inline { units: units_text },
+                    )
+                }
                 _ => return Err(
                     ServiceError::invalid_params("give exactly one of `path` and `columns`").with_help(
                         "path: a CSV, Parquet or Arrow IPC file inside the data roots; columns: {\"name\": [values]}",
                     ),
                 ),
             };
-        let frame = tables::apply_units(frame, &params.units)?;
+        let frame = tables::apply_rename(frame, &params.rename)?;
+        let frame = tables::apply_units(frame, &params.units, source_map.as_ref())?;
         let dataset = self.store.insert(&params.name, frame, provenance, params.overwrite)?;
         Ok(Self::dataset_summary(&dataset))
     }

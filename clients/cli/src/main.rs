@@ -5,6 +5,7 @@
 //! with a temporary workspace and runs the demo pipeline through it.
 
 mod demo;
+mod import_recipe;
 mod pipeline_file;
 mod progress_bar;
 mod report_files;
@@ -45,18 +46,15 @@ enum Command {
     Info,
     /// List the analyses the loaded plugins offer.
     Analyses,
-    /// Import a CSV, Parquet or Arrow IPC file (a path on the daemon's machine).
+    /// Import a CSV, Parquet or Arrow IPC file (a path on the daemon's machine), as the lab
+    /// wrote it: --recipe, or the flags, describe its dialect, names and units.
     Import {
         /// Name to store the dataset under.
         name: String,
         /// The file to read, on the daemon's machine inside its data roots.
         path: PathBuf,
-        /// csv, parquet or ipc; default: from the file's extension.
-        #[arg(long)]
-        format: Option<String>,
-        /// Convert a column into SI, e.g. --unit temperature_C=degC (repeatable).
-        #[arg(long = "unit", value_parser = parse_key_value)]
-        units: Vec<(String, String)>,
+        #[command(flatten)]
+        layout: import_recipe::ImportFlags,
         /// Replace a stored dataset of the same name (refused otherwise).
         #[arg(long)]
         overwrite: bool,
@@ -247,16 +245,17 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Import {
             name,
             path,
-            format,
-            units,
+            layout,
             overwrite,
         } => {
-            let units: serde_json::Map<String, Value> = units.iter().map(|(c, u)| (c.clone(), json!(u))).collect();
-            let mut params = json!({ "name": name, "path": absolute(path)?, "units": units, "overwrite": overwrite });
-            if let Some(format) = format {
-                params["format"] = json!(format);
-            }
-            let result = connect(&cli).await?.call("dataset.import", params).await?;
+            let mut params = layout.recipe()?.to_params()?;
+            params.insert("name".into(), json!(name));
+            params.insert("path".into(), json!(absolute(path)?));
+            params.insert("overwrite".into(), json!(overwrite));
+            let result = connect(&cli)
+                .await?
+                .call("dataset.import", Value::Object(params))
+                .await?;
             println!(
                 "imported {} ({} rows)",
                 result["name"].as_str().unwrap_or(name),

@@ -134,17 +134,9 @@ struct Field {
 
 struct Record {
     line: usize,
+    /// The text of the record's first line, as written.
+    raw: String,
     fields: Vec<Field>,
-}
-
-impl Record {
-    fn first_text(&self) -> String {
-        self.fields
-            .iter()
-            .map(|f| f.text.as_str())
-            .collect::<Vec<_>>()
-            .join(" ")
-    }
 }
 
 fn file_error(message: String) -> ServiceError {
@@ -233,6 +225,7 @@ fn scan(text: &str, separator: char, dialect: &CsvDialect) -> ServiceResult<Vec<
         fields.push(Field { text, quoted });
         records.push(Record {
             line: line_number,
+            raw: line.to_owned(),
             fields,
         });
         index += 1;
@@ -245,10 +238,12 @@ fn option_help(rpc: &str, cli: &str) -> String {
     format!("{rpc} in dataset.import (mobilis import {cli})")
 }
 
-/// Explains a file whose rows all have one field: the wrong separator.
+/// Explains a header that is one field: the wrong separator.
 fn separator_problem(records: &[Record], separator: char) -> Option<ServiceError> {
     let header = records.first()?;
-    if header.fields.len() != 1 || records.iter().any(|r| r.fields.len() != 1) {
+    // A header that is one field holding another separator: the data rows may split at
+    // decimal commas, so only the header decides.
+    if header.fields.len() != 1 || header.fields[0].quoted {
         return None;
     }
     let text = &header.fields[0].text;
@@ -320,7 +315,7 @@ fn preamble_problem(records: &[Record], dialect: &CsvDialect) -> Option<ServiceE
     let first = &records[0];
     let commented = records[..first_table_row]
         .iter()
-        .map(|r| r.first_text().trim_start().chars().next())
+        .map(|r| r.raw.trim_start().chars().next())
         .collect::<Vec<_>>();
     let mut help = format!(
         "skip the {} lines above the header: {}",
@@ -349,7 +344,7 @@ fn preamble_problem(records: &[Record], dialect: &CsvDialect) -> Option<ServiceE
             first.line,
             first.fields.len(),
             if first.fields.len() == 1 { "" } else { "s" },
-            shorten(&first.first_text())
+            shorten(&first.raw)
         ))
         .with_help(help),
     )

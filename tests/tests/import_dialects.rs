@@ -285,6 +285,58 @@ async fn a_stations_own_exports_import_unedited_with_one_recipe_and_reduce_to_th
         "{stderr}"
     );
 
+    // The station's newer export writes the configuration in pair notation ("21,34")
+    // instead of four contact columns; flags alone, without a recipe, read it.
+    let mut notation = String::from("# Hall station export, contacts in pair notation\n");
+    notation += "Sample ID, T (C), B (G), Config, I (mA), V (mV)\n";
+    for r in &readings {
+        notation += &format!(
+            "{}, {:.9e}, {:.9e}, \"{}{},{}{}\", {:.9e}, {:.9e}\n",
+            r.sample,
+            r.temperature_k - 273.15,
+            r.field_t * 1e4,
+            r.i_in,
+            r.i_out,
+            r.v_pos,
+            r.v_neg,
+            r.current_a * 1e3,
+            r.voltage_v * 1e3
+        );
+    }
+    let notation_file = write(&data, "station-run-config.csv", &notation);
+    let (ok, stdout, stderr) = mobilis(
+        &url,
+        &[
+            "import",
+            "station-run-config",
+            &notation_file,
+            "--comment-prefix",
+            "#",
+            "--rename",
+            "Sample ID=sample",
+            "--rename",
+            "T (C)=temperature",
+            "--rename",
+            "B (G)=field",
+            "--rename",
+            "Config=contacts",
+            "--rename",
+            "I (mA)=current",
+            "--rename",
+            "V (mV)=voltage",
+            "--unit",
+            "temperature=degC",
+            "--unit",
+            "field=G",
+            "--unit",
+            "current=mA",
+            "--unit",
+            "voltage=mV",
+        ],
+    );
+    assert!(ok, "import failed:\n{stdout}\n{stderr}");
+    check_reduction(&daemon, "station-run-config", "station-hall-config").await;
+
     // None of the failed imports stored anything.
     let list = daemon.call("dataset.list", json!({})).await;
     let names: Vec<&str> = list

@@ -91,11 +91,50 @@ fn check_params(method: &str, params: &Params) -> Result<(), ErrorObjectOwned> {
             .with_help(params_summary(method)),
         ));
     }
+    let refuse = |message: String| {
+        to_rpc_error(ServiceError::invalid_params(format!("{method}: {message}")).with_help(params_summary(method)))
+    };
+    // Top-level choices read as a list of words: `format must be svg, vega-lite or both`.
+    for (name, given) in value.as_object().into_iter().flatten() {
+        let Some(Value::Array(allowed)) = schema["properties"][name].get("enum") else {
+            continue;
+        };
+        if !allowed.contains(given) {
+            let words: Vec<String> = allowed
+                .iter()
+                .map(|v| v.as_str().map(str::to_owned).unwrap_or_else(|| v.to_string()))
+                .collect();
+            let listed = match words.split_last() {
+                Some((last, rest)) if !rest.is_empty() => format!("{} or {last}", rest.join(", ")),
+                _ => words.join(""),
+            };
+            return Err(refuse(format!("{name} must be {listed} (got {given})")));
+        }
+    }
     crate::param_schema::validate(&schema, &value).map_err(|message| {
         let message = message.strip_prefix("params.").unwrap_or(&message);
-        let message = message.replace("params.", "");
-        to_rpc_error(ServiceError::invalid_params(format!("{method}: {message}")).with_help(params_summary(method)))
+        refuse(plain_schema_words(&message.replace("params.", "")))
     })
+}
+
+/// The validator's type names in plain words: `must be an object (got a list)`.
+fn plain_schema_words(message: &str) -> String {
+    let mut text = message.to_owned();
+    for (schema_word, plain) in [
+        ("object", "an object"),
+        ("array", "a list"),
+        ("string", "text"),
+        ("integer", "a whole number"),
+        ("number", "a number"),
+        ("boolean", "true or false"),
+        ("null", "null"),
+    ] {
+        text = text
+            .replace(&format!("must be {schema_word}"), &format!("must be {plain}"))
+            .replace(&format!("or {schema_word}"), &format!("or {plain}"))
+            .replace(&format!("(got {schema_word})"), &format!("(got {plain})"));
+    }
+    text
 }
 
 fn json_kind(value: &Value) -> &'static str {

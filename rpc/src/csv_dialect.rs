@@ -516,15 +516,20 @@ pub fn read_csv(
         }
         plain.push('\n');
     }
-    let frame = CsvReadOptions::default()
-        .with_has_header(true)
-        .with_infer_schema_length(Some(10_000))
-        .into_reader_with_file_handle(Cursor::new(plain.into_bytes()))
-        .finish()
-        .map_err(|error| {
-            file_error(format!("the rows could not be turned into columns: {error}"))
-                .with_help("check the file's rows for values that break the table's columns")
-        })?;
+    let plain = plain.into_bytes();
+    let read = |infer_rows: Option<usize>| {
+        CsvReadOptions::default()
+            .with_has_header(true)
+            .with_infer_schema_length(infer_rows)
+            .into_reader_with_file_handle(Cursor::new(plain.as_slice()))
+            .finish()
+    };
+    // Types from the first 10 000 rows; a later row that does not fit them (a text cell
+    // far down a numeric column) makes the whole file decide.
+    let frame = read(Some(10_000)).or_else(|_| read(None)).map_err(|error| {
+        file_error(format!("the rows could not be turned into columns: {error}"))
+            .with_help("check the file's rows for values that break the table's columns")
+    })?;
     let map = SourceMap {
         lines: data.iter().map(|r| r.line).collect(),
         header_line,
@@ -685,5 +690,24 @@ mod tests {
         for no in ["1.5", "abc", "1,5,6", "1,5x", "", ","] {
             assert!(!is_decimal_comma_number(no), "{no}");
         }
+    }
+
+    #[test]
+    fn a_late_text_cell_does_not_break_type_inference() {
+        let mut text = String::from("sample,T\n");
+        for row in 0..10_050 {
+            text += &format!(
+                "a,{}\n",
+                if row == 10_020 {
+                    "n/a".to_owned()
+                } else {
+                    row.to_string()
+                }
+            );
+        }
+        let (frame, map) = read(&text, &CsvDialect::default()).unwrap();
+        assert_eq!(frame.height(), 10_050);
+        assert_eq!(frame.column("T").unwrap().dtype(), &DataType::String);
+        assert_eq!(map.lines[10_020], 10_022);
     }
 }

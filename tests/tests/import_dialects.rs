@@ -217,8 +217,14 @@ async fn a_stations_own_exports_import_unedited_with_one_recipe_and_reduce_to_th
     // And the report page's provenance line shows them.
     let page = daemon.call("report.render", json!({"sample": "W1"})).await;
     let html = page["html"].as_str().unwrap();
-    assert!(html.contains(&sha256_hex(&bytes)), "the report names the file's SHA-256");
-    assert!(html.contains(&format!("{} bytes", bytes.len())), "the report names the file's size");
+    assert!(
+        html.contains(&sha256_hex(&bytes)),
+        "the report names the file's SHA-256"
+    );
+    assert!(
+        html.contains(&format!("{} bytes", bytes.len())),
+        "the report names the file's size"
+    );
 
     // The semicolon export with decimal commas, through its own recipe.
     let export_eu = write(&data, "station-run-eu.csv", &station_export(&readings, true));

@@ -570,8 +570,16 @@ impl Service {
             };
         let frame = tables::apply_rename(frame, &params.rename)?;
         let frame = tables::apply_units(frame, &params.units, source_map.as_ref())?;
+        let notes = match (&source_map, params.csv.as_ref().is_some_and(|d| d.decimal_comma)) {
+            (Some(map), false) => tables::decimal_comma_notes(&frame, map),
+            _ => Vec::new(),
+        };
         let dataset = self.store.insert(&params.name, frame, provenance, params.overwrite)?;
-        Ok(Self::dataset_summary(&dataset))
+        let mut answer = Self::dataset_summary(&dataset);
+        if !notes.is_empty() {
+            answer["notes"] = json!(notes);
+        }
+        Ok(answer)
     }
 
     pub fn dataset_export(&self, params: ExportParams) -> ServiceResult<Value> {

@@ -333,6 +333,47 @@ pub fn apply_units(
     Ok(frame)
 }
 
+/// Notes on text columns of a CSV file that look like numbers written with a decimal
+/// comma (every cell, `25,5`), read without `decimal_comma`: the import stands, but an
+/// analysis will find text where it expects numbers. The `contacts` column is left alone
+/// (its pair notation `21,34` looks the same).
+pub fn decimal_comma_notes(frame: &DataFrame, source: &SourceMap) -> Vec<String> {
+    let mut columns = Vec::new();
+    let mut example = None;
+    for (position, column) in frame.columns().iter().enumerate() {
+        if column.name().as_str() == "contacts" || !column.dtype().is_string() {
+            continue;
+        }
+        let texts = column.str().expect("a string column");
+        let mut first = None;
+        let mut all = true;
+        for (row, text) in texts.iter().enumerate() {
+            let Some(text) = text else { continue };
+            if csv_dialect::is_decimal_comma_number(text) {
+                first.get_or_insert((row, text.to_owned()));
+            } else {
+                all = false;
+                break;
+            }
+        }
+        if let (true, Some((row, text))) = (all, first) {
+            columns.push(format!("`{}`", column.name()));
+            example.get_or_insert(format!("`{text}` at {}", source.locate(row, position)));
+        }
+    }
+    let Some(example) = example else {
+        return Vec::new();
+    };
+    let subject = if columns.len() == 1 {
+        format!("column {} holds", columns[0])
+    } else {
+        format!("columns {} hold", columns.join(", "))
+    };
+    vec![format!(
+        "{subject} text such as {example}: numbers with a decimal comma? Import again with csv.decimal_comma true and a separator other than `,` (mobilis import --decimal-comma --separator ';')"
+    )]
+}
+
 /// A text column given a unit: fine when every cell reads as a number (a file that quotes
 /// its numbers); otherwise an error naming the first cell that does not, and the option
 /// that would read it when it is a number with a decimal comma.

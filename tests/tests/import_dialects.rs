@@ -254,6 +254,28 @@ async fn a_stations_own_exports_import_unedited_with_one_recipe_and_reduce_to_th
     );
     assert!(ok, "import failed:\n{stdout}\n{stderr}");
 
+    // A semicolon file read without --decimal-comma imports, with a note naming the cells.
+    let (ok, stdout, stderr) = mobilis(
+        &url,
+        &[
+            "import",
+            "station-run-text",
+            &export_eu,
+            "--comment-prefix",
+            "#",
+            "--separator",
+            ";",
+        ],
+    );
+    assert!(ok, "import failed:\n{stdout}\n{stderr}");
+    assert!(
+        stdout.contains(
+            "note: columns `T (C)`, `B (G)`, `I (mA)`, `V (mV)` hold text such as `-2,315000000e1` at line 5, column 2: numbers with a decimal comma?"
+        ),
+        "{stdout}"
+    );
+    assert!(stdout.contains("--decimal-comma"), "{stdout}");
+
     // The comma recipe alone on the semicolon export: the separator is named.
     let (ok, _, stderr) = mobilis(&url, &["import", "wrong-separator", &export_eu, "--recipe", &station]);
     assert!(!ok);

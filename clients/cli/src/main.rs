@@ -261,6 +261,9 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
                 result["name"].as_str().unwrap_or(name),
                 result["rows"]
             );
+            for note in result["notes"].as_array().into_iter().flatten() {
+                println!("  note: {}", note.as_str().unwrap_or(""));
+            }
             Ok(())
         }
         Command::Run {

@@ -25,8 +25,7 @@ const ARRAY: &str = r#"{"type": "array"}"#;
 const UNITS: &str = r#"{"type": "object", "additionalProperties": {"anyOf": [{"type": "string"}, {"type": "object", "required": ["unit", "to"], "properties": {"unit": {"type": "string"}, "to": {"type": "string"}}}]}}"#;
 const RENAME: &str = r#"{"type": "object", "additionalProperties": {"type": "string"}}"#;
 const CSV_DIALECT: &str = r#"{"type": "object", "additionalProperties": false, "properties": {"separator": {"type": "string", "default": ",", "description": "one character, or \"tab\""}, "decimal_comma": {"type": "boolean", "default": false}, "comment_prefix": {"type": "string"}, "skip_rows": {"type": "integer", "minimum": 0, "default": 0, "description": "lines to skip before the header"}, "header": {"type": "boolean", "default": true, "description": "without a header the columns are column_1, column_2, ..."}}}"#;
-const DATASET_SUMMARY: &str = r#"{"type": "object", "required": ["name", "rows", "columns"], "properties": {"name": {"type": "string"}, "rows": {"type": "integer"}, "columns": {"type": "array", "items": {"type": "object", "properties": {"name": {"type": "string"}, "dtype": {"type": "string"}}}}}}"#;
-const IMPORT_RESULT: &str = r#"{"type": "object", "required": ["name", "rows", "columns"], "properties": {"name": {"type": "string"}, "rows": {"type": "integer"}, "columns": {"type": "array", "items": {"type": "object", "properties": {"name": {"type": "string"}, "dtype": {"type": "string"}}}}, "notes": {"type": "array", "items": {"type": "string"}, "description": "things the import noticed but did not refuse, such as text columns that look like numbers with a decimal comma"}}}"#;
+const DATASET_SUMMARY: &str = r#"{"type": "object", "required": ["name", "rows", "columns"], "properties": {"name": {"type": "string"}, "rows": {"type": "integer"}, "columns": {"type": "array", "items": {"type": "object", "properties": {"name": {"type": "string"}, "dtype": {"type": "string"}}}}, "notes": {"type": "array", "items": {"type": "string"}, "description": "things the import noticed but did not refuse, such as text columns that look like numbers with a decimal comma"}}}"#;
 const RUN_RESULT: &str = r#"{"type": "object", "required": ["output", "rows", "summary", "warnings"], "properties": {"output": {"type": "string"}, "rows": {"type": "integer"}, "columns": {"type": "array"}, "summary": {"type": "object"}, "warnings": {"type": "array", "items": {"type": "string"}}}}"#;
 
 /// Every method the daemon serves.
@@ -64,7 +63,7 @@ pub const METHODS: &[MethodDoc] = &[
             ("csv", false, CSV_DIALECT, "CSV dialect: separator, decimal_comma, comment_prefix, skip_rows (lines before the header), header; rows with another number of fields than the header are errors naming their line"),
             ("overwrite", false, r#"{"type": "boolean", "default": false}"#, "replace an existing dataset of that name"),
         ],
-        result: IMPORT_RESULT,
+        result: DATASET_SUMMARY,
     },
     MethodDoc { name: "dataset.list", summary: "Every stored dataset with its rows and columns", params: &[], result: ARRAY },
     MethodDoc {

@@ -212,6 +212,35 @@ pub fn classify_hall_bar(i_in: i64, i_out: i64, v_pos: i64, v_neg: i64) -> Resul
     Ok(orient(configuration, contacts))
 }
 
+/// A configuration written in the pair notation of the standard methods: the current pair,
+/// then the voltage pair. `"21,34"` is current entering at contact 2 and leaving at 1, with
+/// the voltage V3 - V4 (the R_21,34 of ASTM F76 and of van der Pauw's method), so
+/// (i_in, i_out, v_pos, v_neg) = (2, 1, 3, 4). Contacts are single digits 1 to 6 (Hall bars
+/// use 5 and 6); blanks around the pairs are allowed. Whether the four contacts make a
+/// measurement of the geometry is checked by [`classify_van_der_pauw`] and
+/// [`classify_hall_bar`], not here.
+pub fn parse_pair_notation(text: &str) -> Result<[i64; 4], NotationError> {
+    let malformed = || NotationError(text.to_owned());
+    let (current, voltage) = text.split_once(',').ok_or_else(malformed)?;
+    let pair = |part: &str| -> Result<[i64; 2], NotationError> {
+        let digits: Vec<char> = part.trim().chars().collect();
+        match digits[..] {
+            [a, b] if ('1'..='6').contains(&a) && ('1'..='6').contains(&b) => {
+                Ok([a as i64 - '0' as i64, b as i64 - '0' as i64])
+            }
+            _ => Err(malformed()),
+        }
+    };
+    let [i_in, i_out] = pair(current)?;
+    let [v_pos, v_neg] = pair(voltage)?;
+    Ok([i_in, i_out, v_pos, v_neg])
+}
+
+/// A cell that is not a configuration in the pair notation.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+#[error("`{0}` is not a contact configuration; write the current pair and the voltage pair as in \"21,34\" (current in at 2, out at 1; voltage V3 - V4), contacts 1 to 6")]
+pub struct NotationError(pub String);
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -292,5 +321,30 @@ mod tests {
         let t = classify_hall_bar(1, 2, 4, 6).unwrap();
         assert_eq!(t.configuration, BarTransverse { pair: 1 });
         assert_eq!((t.current_sign, t.voltage_sign), (1.0, -1.0));
+    }
+
+    // The pair notation of ASTM F76 and van der Pauw's method: R_ij,kl = V_kl / I_ij with
+    // the current entering at i and leaving at j, and V_kl = V_k - V_l.
+    #[test]
+    fn pair_notation_reads_current_pair_then_voltage_pair() {
+        assert_eq!(parse_pair_notation("21,34"), Ok([2, 1, 3, 4]));
+        assert_eq!(parse_pair_notation(" 13, 24 "), Ok([1, 3, 2, 4]));
+        assert_eq!(parse_pair_notation("12,56"), Ok([1, 2, 5, 6]));
+        // Every canonical configuration round-trips through its written name.
+        for configuration in Configuration::VAN_DER_PAUW {
+            let [a, b, c, d] = configuration.canonical_contacts();
+            let text = format!("{a}{b},{c}{d}");
+            let contacts = parse_pair_notation(&text).unwrap();
+            let classified = classify_van_der_pauw(contacts[0], contacts[1], contacts[2], contacts[3]).unwrap();
+            assert_eq!(classified.configuration, configuration, "{text}");
+            assert_eq!((classified.current_sign, classified.voltage_sign), (1.0, 1.0), "{text}");
+        }
+        for bad in [
+            "21;34", "2134", "21,3", "21,345", "71,34", "a1,34", "", ",", "21,34,", "2 1,34",
+        ] {
+            let error = parse_pair_notation(bad).unwrap_err();
+            assert_eq!(error.0, bad);
+            assert!(error.to_string().contains("\"21,34\""), "{error}");
+        }
     }
 }

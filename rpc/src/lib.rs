@@ -5,6 +5,7 @@
 //! parsing, error codes) -> `service` (the daemon's logic) -> `store` / `plugin_host`
 //! (across the C ABI into a plugin) -> `store` -> back to the client.
 
+pub mod csv_dialect;
 pub mod customary;
 pub mod data_roots;
 pub mod errors;
@@ -17,5 +18,6 @@ pub mod progress;
 pub mod report;
 pub mod service;
 pub mod store;
+pub mod suggest;
 pub mod tables;
 pub mod transport;

@@ -18,19 +18,197 @@ fn to_rpc_error(error: ServiceError) -> ErrorObjectOwned {
     ErrorObjectOwned::owned(error.kind.code(), error.message.clone(), Some(error.data()))
 }
 
-/// Parses by-name parameters; a missing params member counts as `{}`.
-fn parse<T: for<'de> Deserialize<'de>>(params: &Params) -> Result<T, ErrorObjectOwned> {
+/// The params of a request as JSON; a missing params member, or an empty array, counts as `{}`.
+fn params_value(params: &Params) -> Result<Value, ErrorObjectOwned> {
     let value: Value = if params.as_str().is_none() {
         Value::Object(Default::default())
     } else {
         params.parse()?
     };
+    Ok(match value {
+        Value::Array(items) if items.is_empty() => Value::Object(Default::default()),
+        other => other,
+    })
+}
+
+/// The JSON Schema of a method's params object, from its entry in [`openrpc::METHODS`].
+fn params_schema(method: &str) -> Option<Value> {
+    let doc = openrpc::METHODS.iter().find(|m| m.name == method)?;
+    let mut properties = serde_json::Map::new();
+    let mut required = Vec::new();
+    for (name, is_required, schema, _) in doc.params {
+        let mut schema: Value = serde_json::from_str(schema).expect("method table schemas are valid JSON");
+        if method == "pipeline.run" && *name == "steps" {
+            // Each step is an analysis.run parameter object.
+            schema["items"] = params_schema("analysis.run").expect("analysis.run is documented");
+        }
+        properties.insert((*name).to_owned(), schema);
+        if *is_required {
+            required.push(Value::String((*name).to_owned()));
+        }
+    }
+    // plot.render passes further figure options on to the plotting crate, which checks them.
+    let closed = method != "plot.render";
+    Some(serde_json::json!({
+        "type": "object",
+        "properties": properties,
+        "required": required,
+        "additionalProperties": !closed,
+    }))
+}
+
+/// What a method takes, for help lines: `name (required), offset, limit`.
+fn params_summary(method: &str) -> String {
+    let Some(doc) = openrpc::METHODS.iter().find(|m| m.name == method) else {
+        return String::new();
+    };
+    if doc.params.is_empty() {
+        return format!("{method} takes no parameters");
+    }
+    let listed: Vec<String> = doc
+        .params
+        .iter()
+        .map(|(name, required, _, description)| {
+            format!("{name}{}: {description}", if *required { " (required)" } else { "" })
+        })
+        .collect();
+    format!("{method} takes, by name: {}", listed.join("; "))
+}
+
+/// Checks a request's params against the method's documented parameters, so that a
+/// mistake is reported in the words of the documentation: which parameter, what it takes.
+fn check_params(method: &str, params: &Params) -> Result<(), ErrorObjectOwned> {
+    let value = params_value(params)?;
+    let Some(schema) = params_schema(method) else {
+        return Ok(());
+    };
+    if !value.is_object() {
+        return Err(to_rpc_error(
+            ServiceError::invalid_params(format!(
+                "{method} takes its parameters by name, as a JSON object, not as {}",
+                json_kind(&value)
+            ))
+            .with_help(params_summary(method)),
+        ));
+    }
+    let refuse = |message: String| {
+        to_rpc_error(ServiceError::invalid_params(format!("{method}: {message}")).with_help(params_summary(method)))
+    };
+    // Top-level choices read as a list of words: `format must be svg, vega-lite or both`.
+    for (name, given) in value.as_object().into_iter().flatten() {
+        let Some(Value::Array(allowed)) = schema["properties"][name].get("enum") else {
+            continue;
+        };
+        if !allowed.contains(given) {
+            let words: Vec<String> = allowed
+                .iter()
+                .map(|v| v.as_str().map(str::to_owned).unwrap_or_else(|| v.to_string()))
+                .collect();
+            let listed = match words.split_last() {
+                Some((last, rest)) if !rest.is_empty() => format!("{} or {last}", rest.join(", ")),
+                _ => words.join(""),
+            };
+            return Err(refuse(format!("{name} must be {listed} (got {given})")));
+        }
+    }
+    crate::param_schema::validate(&schema, &value).map_err(|message| {
+        let message = message.strip_prefix("params.").unwrap_or(&message);
+        refuse(plain_schema_words(&message.replace("params.", "")))
+    })
+}
+
+/// The validator's type names in plain words: `must be an object (got a list)`.
+fn plain_schema_words(message: &str) -> String {
+    let mut text = message.to_owned();
+    for (schema_word, plain) in [
+        ("object", "an object"),
+        ("array", "a list"),
+        ("string", "text"),
+        ("integer", "a whole number"),
+        ("number", "a number"),
+        ("boolean", "true or false"),
+        ("null", "null"),
+    ] {
+        text = text
+            .replace(&format!("must be {schema_word}"), &format!("must be {plain}"))
+            .replace(&format!("or {schema_word}"), &format!("or {plain}"))
+            .replace(&format!("(got {schema_word})"), &format!("(got {plain})"));
+    }
+    text
+}
+
+fn json_kind(value: &Value) -> &'static str {
+    match value {
+        Value::Null => "null",
+        Value::Bool(_) => "a boolean",
+        Value::Number(_) => "a number",
+        Value::String(_) => "text",
+        Value::Array(_) => "a list",
+        Value::Object(_) => "an object",
+    }
+}
+
+/// Parses by-name parameters (checked before by [`check_params`]); a missing params member
+/// counts as `{}`.
+fn parse<T: for<'de> Deserialize<'de>>(params: &Params) -> Result<T, ErrorObjectOwned> {
+    let value = params_value(params)?;
     serde_json::from_value(value).map_err(|error| {
         to_rpc_error(
-            ServiceError::invalid_params(format!("invalid parameters: {error}"))
+            ServiceError::invalid_params(format!("invalid parameters: {}", plain_words(&error.to_string())))
                 .with_help("see rpc.discover for each method's parameters"),
         )
     })
+}
+
+/// A deserializer's message without the names of Rust types (`struct NameParam`, `untagged
+/// enum UnitSpec`, `usize`), which mean nothing to the person who sent the request.
+pub fn plain_words(message: &str) -> String {
+    let message = match message.find(" at line ") {
+        Some(at) => &message[..at],
+        None => message,
+    };
+    let message = message.replace(
+        "data did not match any variant of untagged enum",
+        "the value has none of the accepted forms: enum",
+    );
+    let words: Vec<&str> = message.split(' ').collect();
+    let mut out: Vec<String> = Vec::with_capacity(words.len());
+    let mut index = 0;
+    while index < words.len() {
+        let word = words[index];
+        let bare = word.trim_end_matches([',', ';', ')']);
+        let tail = &word[bare.len()..];
+        match bare {
+            "struct" | "enum"
+                if words
+                    .get(index + 1)
+                    .is_some_and(|next| next.chars().next().is_some_and(char::is_uppercase)) =>
+            {
+                // Drop the keyword and the type name after it.
+                let name = words[index + 1];
+                let name_bare = name.trim_end_matches([',', ';', ')']);
+                let name_tail = &name[name_bare.len()..];
+                if bare == "struct" {
+                    out.push(format!("an object{name_tail}"));
+                } else if out.last().map(String::as_str) == Some("forms:") {
+                    out.pop();
+                    out.push(format!("forms{name_tail}"));
+                } else {
+                    out.push(format!("one of the accepted values{name_tail}"));
+                }
+                index += 2;
+                continue;
+            }
+            "usize" | "u64" | "u32" | "u16" | "u8" => out.push(format!("a whole number of 0 or more{tail}")),
+            "isize" | "i64" | "i32" | "i16" | "i8" => out.push(format!("a whole number{tail}")),
+            "f64" | "f32" => out.push(format!("a number{tail}")),
+            "map" => out.push(format!("an object{tail}")),
+            "sequence" => out.push(format!("a list{tail}")),
+            _ => out.push(word.replace("::", ".")),
+        }
+        index += 1;
+    }
+    out.join(" ")
 }
 
 /// Runs a service call, turning a panic in the daemon into an error instead of a dropped connection.
@@ -84,11 +262,17 @@ pub fn module(service: Arc<Service>) -> RpcModule<Service> {
                     f: fn(&Params, &Service) -> Result<Value, ErrorObjectOwned>| {
         let result = if blocking {
             module
-                .register_blocking_method(name, move |params, service, _| f(&params, &service))
+                .register_blocking_method(name, move |params, service, _| {
+                    check_params(name, &params)?;
+                    f(&params, &service)
+                })
                 .map(|_| ())
         } else {
             module
-                .register_method(name, move |params, service, _| f(&params, service))
+                .register_method(name, move |params, service, _| {
+                    check_params(name, &params)?;
+                    f(&params, service)
+                })
                 .map(|_| ())
         };
         result.expect("method names are unique");
@@ -169,7 +353,7 @@ pub fn module(service: Arc<Service>) -> RpcModule<Service> {
             PROGRESS_NOTIFICATION,
             "progress.unsubscribe",
             |params, pending, service, _| async move {
-                let call: CallIdParam = match parse(&params) {
+                let call: CallIdParam = match check_params("progress.subscribe", &params).and_then(|_| parse(&params)) {
                     Ok(call) => call,
                     Err(error) => {
                         pending.reject(error).await;
@@ -220,5 +404,217 @@ mod tests {
         registered.sort();
         documented.sort();
         assert_eq!(registered, documented);
+    }
+
+    /// The names of the types this crate declares (`NameParam`, `UnitSpec`, ...).
+    fn crate_type_names() -> Vec<String> {
+        let directory = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("src");
+        let mut names = Vec::new();
+        for entry in std::fs::read_dir(directory).unwrap() {
+            let text = std::fs::read_to_string(entry.unwrap().path()).unwrap();
+            let words: Vec<&str> = text.split(|c: char| !(c.is_alphanumeric() || c == '_')).collect();
+            for pair in words.windows(2) {
+                if matches!(pair[0], "struct" | "enum" | "trait")
+                    && pair[1].chars().next().is_some_and(char::is_uppercase)
+                {
+                    names.push(pair[1].to_owned());
+                }
+            }
+        }
+        names.sort();
+        names.dedup();
+        names
+    }
+
+    /// A plausible value of a documented parameter's type, to fill required ones.
+    fn plausible(schema: &str) -> Value {
+        let schema: Value = serde_json::from_str(schema).unwrap();
+        match schema["type"].as_str() {
+            Some("object") => serde_json::json!({}),
+            Some("array") => serde_json::json!([{}]),
+            Some("boolean") => serde_json::json!(false),
+            Some("integer") | Some("number") => serde_json::json!(1),
+            _ => serde_json::json!("x"),
+        }
+    }
+
+    #[tokio::test(flavor = "multi_thread")]
+    async fn malformed_params_get_messages_without_rust_names() {
+        use serde_json::json;
+        let workspace = tempfile::tempdir().unwrap();
+        let service = Service::new(
+            crate::store::DatasetStore::open(workspace.path()).unwrap(),
+            crate::plugin_host::PluginHost::default(),
+            crate::data_roots::DataRoots::new([workspace.path().to_owned()]),
+            workspace.path().to_owned(),
+        );
+        let module = module(Arc::new(service));
+        let type_names = crate_type_names();
+        assert!(type_names.contains(&"NameParam".to_owned()) && type_names.contains(&"UnitSpec".to_owned()));
+        let wrong_values = [
+            json!(12.5),
+            json!("text"),
+            json!(-1),
+            json!(true),
+            json!([1]),
+            json!({"a": 1}),
+            json!(null),
+            json!(1e30),
+        ];
+        let mut requests: Vec<(String, Value)> = Vec::new();
+        for doc in openrpc::METHODS {
+            let method = doc.name.to_owned();
+            let filled: serde_json::Map<String, Value> = doc
+                .params
+                .iter()
+                .filter(|(_, required, _, _)| *required)
+                .map(|(name, _, schema, _)| ((*name).to_owned(), plausible(schema)))
+                .collect();
+            requests.push((method.clone(), json!([1, 2])));
+            requests.push((method.clone(), json!("text")));
+            requests.push((method.clone(), json!({})));
+            let mut unknown = filled.clone();
+            unknown.insert("colour".into(), json!(1));
+            requests.push((method.clone(), Value::Object(unknown)));
+            for (name, _, _, _) in doc.params {
+                for wrong in &wrong_values {
+                    let mut params = filled.clone();
+                    params.insert((*name).to_owned(), wrong.clone());
+                    requests.push((method.clone(), Value::Object(params)));
+                }
+            }
+        }
+        // Nested members, and values the documented types let through to the parser.
+        let nested = [
+            (
+                "dataset.import",
+                json!({"name": "a", "path": "a.csv", "units": {"T": 5}}),
+            ),
+            (
+                "dataset.import",
+                json!({"name": "a", "path": "a.csv", "units": {"T": {"unit": 1}}}),
+            ),
+            (
+                "dataset.import",
+                json!({"name": "a", "path": "a.csv", "rename": {"T": 1}}),
+            ),
+            (
+                "dataset.import",
+                json!({"name": "a", "path": "a.csv", "csv": {"skip_rows": -1}}),
+            ),
+            (
+                "dataset.import",
+                json!({"name": "a", "path": "a.csv", "csv": {"skip_rows": 1e12}}),
+            ),
+            (
+                "dataset.import",
+                json!({"name": "a", "path": "a.csv", "csv": {"separator": 5}}),
+            ),
+            (
+                "dataset.import",
+                json!({"name": "a", "path": "a.csv", "csv": {"delimiter": ";"}}),
+            ),
+            ("dataset.import", json!({"name": "a", "columns": {"x": 5}})),
+            ("dataset.rows", json!({"name": "a", "limit": 1e30})),
+            ("dataset.rows", json!({"name": "a", "offset": 2.5})),
+            ("dataset.rows", json!({"name": "a", "offset": 1e300})),
+            (
+                "pipeline.run",
+                json!({"steps": [{"analysis": "a", "inputs": {}, "output": "o", "group_by": 5}]}),
+            ),
+            (
+                "pipeline.run",
+                json!({"steps": [{"analysis": "a", "inputs": {"r": 1}, "output": "o"}]}),
+            ),
+            (
+                "pipeline.run",
+                json!({"steps": [{"analysis": "a", "inputs": {}, "output": "o", "colour": 1}]}),
+            ),
+            ("pipeline.run", json!({"steps": [5]})),
+            (
+                "analysis.run",
+                json!({"analysis": "a", "inputs": {}, "output": "o", "group_by": [1]}),
+            ),
+            ("plot.render", json!({"dataset": "a", "width": "wide"})),
+            ("plot.render", json!({"dataset": "a", "colour": 1})),
+        ];
+        requests.extend(nested.into_iter().map(|(m, p)| (m.to_owned(), p)));
+        let forbidden = ["struct ", "enum ", "usize", "u64", "f64", "::", "serde"];
+        let mut checked = 0;
+        for (id, (method, params)) in requests.iter().enumerate() {
+            let request = json!({"jsonrpc": "2.0", "id": id, "method": method, "params": params}).to_string();
+            let (response, _) = module.raw_json_request(&request, 16).await.unwrap();
+            let response: Value = serde_json::from_str(response.get()).unwrap();
+            let Some(error) = response.get("error") else { continue };
+            let text = format!("{} {}", error["message"].as_str().unwrap_or(""), error["data"]);
+            for word in forbidden {
+                assert!(!text.contains(word), "{method} {params}: `{word}` in {text}");
+            }
+            let words: Vec<&str> = text.split(|c: char| !(c.is_alphanumeric() || c == '_')).collect();
+            for name in &type_names {
+                assert!(
+                    !words.contains(&name.as_str()),
+                    "{method} {params}: type name `{name}` in {text}"
+                );
+            }
+            checked += 1;
+        }
+        assert!(checked > 400, "only {checked} requests failed");
+        // The messages name the parameter and what it takes.
+        let answer = |method: &str, params: Value| {
+            let request = json!({"jsonrpc": "2.0", "id": 1, "method": method, "params": params}).to_string();
+            let module = &module;
+            async move {
+                let (response, _) = module.raw_json_request(&request, 16).await.unwrap();
+                let response: Value = serde_json::from_str(response.get()).unwrap();
+                response["error"]["message"].as_str().unwrap_or("").to_owned()
+            }
+        };
+        assert_eq!(
+            answer("dataset.rows", json!({"name": "a", "offset": -1})).await,
+            "dataset.rows: offset must be at least 0 (got -1)"
+        );
+        assert_eq!(
+            answer("dataset.info", json!({})).await,
+            "dataset.info: name is required"
+        );
+        assert!(answer("dataset.info", json!({"name": "a", "colour": 1}))
+            .await
+            .starts_with("dataset.info: colour is not a known parameter; known: name"));
+        assert_eq!(
+            answer("dataset.info", json!([1])).await,
+            "dataset.info takes its parameters by name, as a JSON object, not as a list"
+        );
+        let offset = answer("dataset.rows", json!({"name": "a", "offset": 1e300})).await;
+        assert!(offset.contains("a whole number of 0 or more"), "{offset}");
+        let group_by = answer(
+            "pipeline.run",
+            json!({"steps": [{"analysis": "a", "inputs": {}, "output": "o", "group_by": 5}]}),
+        )
+        .await;
+        assert!(
+            group_by.starts_with("pipeline.run: steps[0].group_by matches none of the allowed forms"),
+            "{group_by}"
+        );
+    }
+
+    #[test]
+    fn deserializer_messages_lose_their_rust_names() {
+        assert_eq!(
+            plain_words("invalid type: sequence, expected struct NameParam at line 1 column 2"),
+            "invalid type: a list, expected an object"
+        );
+        assert_eq!(
+            plain_words("data did not match any variant of untagged enum UnitSpec"),
+            "the value has none of the accepted forms"
+        );
+        assert_eq!(
+            plain_words("invalid type: floating point `1e300`, expected usize"),
+            "invalid type: floating point `1e300`, expected a whole number of 0 or more"
+        );
+        assert_eq!(
+            plain_words("unknown variant `x`, expected enum FileFormat"),
+            "unknown variant `x`, expected one of the accepted values"
+        );
     }
 }

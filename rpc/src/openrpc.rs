@@ -23,7 +23,9 @@ const STRING: &str = r#"{"type": "string"}"#;
 const OBJECT: &str = r#"{"type": "object"}"#;
 const ARRAY: &str = r#"{"type": "array"}"#;
 const UNITS: &str = r#"{"type": "object", "additionalProperties": {"anyOf": [{"type": "string"}, {"type": "object", "required": ["unit", "to"], "properties": {"unit": {"type": "string"}, "to": {"type": "string"}}}]}}"#;
-const DATASET_SUMMARY: &str = r#"{"type": "object", "required": ["name", "rows", "columns"], "properties": {"name": {"type": "string"}, "rows": {"type": "integer"}, "columns": {"type": "array", "items": {"type": "object", "properties": {"name": {"type": "string"}, "dtype": {"type": "string"}}}}}}"#;
+const RENAME: &str = r#"{"type": "object", "additionalProperties": {"type": "string"}}"#;
+const CSV_DIALECT: &str = r#"{"type": "object", "additionalProperties": false, "properties": {"separator": {"type": "string", "default": ",", "description": "one character, or \"tab\""}, "decimal_comma": {"type": "boolean", "default": false}, "comment_prefix": {"type": "string"}, "skip_rows": {"type": "integer", "minimum": 0, "default": 0, "description": "lines to skip before the header"}, "header": {"type": "boolean", "default": true, "description": "without a header the columns are column_1, column_2, ..."}}}"#;
+const DATASET_SUMMARY: &str = r#"{"type": "object", "required": ["name", "rows", "columns"], "properties": {"name": {"type": "string"}, "rows": {"type": "integer"}, "columns": {"type": "array", "items": {"type": "object", "properties": {"name": {"type": "string"}, "dtype": {"type": "string"}}}}, "notes": {"type": "array", "items": {"type": "string"}, "description": "things the import noticed but did not refuse, such as text columns that look like numbers with a decimal comma"}}}"#;
 const RUN_RESULT: &str = r#"{"type": "object", "required": ["output", "rows", "summary", "warnings"], "properties": {"output": {"type": "string"}, "rows": {"type": "integer"}, "columns": {"type": "array"}, "summary": {"type": "object"}, "warnings": {"type": "array", "items": {"type": "string"}}}}"#;
 
 /// Every method the daemon serves.
@@ -50,13 +52,15 @@ pub const METHODS: &[MethodDoc] = &[
     },
     MethodDoc {
         name: "dataset.import",
-        summary: "Stores a table read from a file inside the data roots (CSV, Parquet, Arrow IPC) or sent inline as columns; `units` converts columns into SI",
+        summary: "Stores a table read from a file inside the data roots (CSV, Parquet, Arrow IPC) or sent inline as columns; `rename` renames columns, then `units` converts columns into SI; `csv` describes a CSV file's dialect",
         params: &[
             ("name", true, STRING, "dataset name: letters, digits, _ - ., no path separators"),
             ("path", false, STRING, "file to read; relative paths resolve against the first data root"),
             ("columns", false, OBJECT, "inline table {column: [values]}"),
             ("format", false, r#"{"type": "string", "enum": ["csv", "parquet", "ipc"]}"#, "file format; default from the file name"),
-            ("units", false, UNITS, "{column: unit} or {column: {unit, to}}: convert into SI and rename by the quantity_unit convention"),
+            ("rename", false, RENAME, "{\"source name\": \"new_name\"}: rename any column (text ones too); applied first"),
+            ("units", false, UNITS, "{column: unit} or {column: {unit, to}}, columns named after rename: convert into SI and rename by the quantity_unit convention"),
+            ("csv", false, CSV_DIALECT, "CSV dialect: separator, decimal_comma, comment_prefix, skip_rows (lines before the header), header; rows with another number of fields than the header are errors naming their line"),
             ("overwrite", false, r#"{"type": "boolean", "default": false}"#, "replace an existing dataset of that name"),
         ],
         result: DATASET_SUMMARY,

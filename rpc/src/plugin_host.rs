@@ -208,7 +208,7 @@ impl PluginHost {
     pub fn load(&mut self, file: &Path) -> Result<(), String> {
         // SAFETY: loading a library runs its initialisers. Plugins are trusted code chosen by
         // whoever starts the daemon (--plugin-dir); this is the one place that trust is taken.
-        let library = unsafe { libloading::Library::new(file) }.map_err(|e| format!("cannot load the library: {e}"))?;
+        let library = unsafe { libloading::Library::new(file) }.map_err(|e| load_failure(file, &e))?;
         // SAFETY: the symbol's type is fixed by the ABI; a library exporting the name with
         // another type breaks the ABI contract, which no check can detect.
         let entry: EntryFn = unsafe { library.get::<EntryFn>(abi::ENTRY_SYMBOL.as_bytes()) }
@@ -453,4 +453,83 @@ unsafe extern "C" fn is_cancelled(host_data: *mut c_void) -> i32 {
     // SAFETY: as in report_progress.
     let control = unsafe { &*(host_data as *const CallControl) };
     control.cancelled.load(Ordering::Relaxed) as i32
+}
+
+/// Why the system loader refused a library, in words, with the loader's own reason.
+/// libloading's message alone is only "dlopen failed"; the reason is its source.
+pub fn load_failure(file: &Path, error: &libloading::Error) -> String {
+    use std::error::Error;
+    let reason = error
+        .source()
+        .map(|source| source.to_string())
+        .unwrap_or_else(|| error.to_string());
+    // The loader names the file first; the rest is its reason.
+    let file_text = file.display().to_string();
+    let reason = reason
+        .strip_prefix(&format!("{file_text}: "))
+        .unwrap_or(&reason)
+        .to_owned();
+    let lower = reason.to_ascii_lowercase();
+    let meaning = if [
+        "invalid elf header",
+        "file too short",
+        "not a mach-o",
+        "not a valid win32",
+    ]
+    .iter()
+    .any(|m| lower.contains(m))
+    {
+        "it is not a shared library"
+    } else if ["wrong elf class", "architecture", "machine"]
+        .iter()
+        .any(|m| lower.contains(m))
+    {
+        "it was built for another architecture"
+    } else if ["undefined symbol", "symbol not found"]
+        .iter()
+        .any(|m| lower.contains(m))
+    {
+        "a symbol it needs is missing (built against other libraries or another version?)"
+    } else if ["no such file", "cannot open shared object", "image not found"]
+        .iter()
+        .any(|m| lower.contains(m))
+    {
+        "it, or a library it depends on, was not found"
+    } else if lower.contains("permission denied") {
+        "the daemon may not read it"
+    } else {
+        "the system loader refused it"
+    };
+    format!("cannot load the library: {meaning} (loader: {reason})")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_refused_library_says_why() {
+        let directory = tempfile::tempdir().unwrap();
+        let fake = directory.path().join(format!(
+            "{}fake{}",
+            std::env::consts::DLL_PREFIX,
+            std::env::consts::DLL_SUFFIX
+        ));
+        std::fs::write(&fake, "this is text, not a library\n").unwrap();
+        // SAFETY: the file is not a library; the loader refuses it before running anything.
+        let error = unsafe { libloading::Library::new(&fake) }.unwrap_err();
+        let message = load_failure(&fake, &error);
+        assert!(!message.contains("dlopen failed"), "{message}");
+        if cfg!(target_os = "linux") {
+            assert!(
+                message.starts_with("cannot load the library: it is not a shared library (loader: "),
+                "{message}"
+            );
+        }
+        let missing = directory.path().join("libmissing.so");
+        // SAFETY: no file, nothing to run.
+        let error = unsafe { libloading::Library::new(&missing) }.unwrap_err();
+        let message = load_failure(&missing, &error);
+        assert!(message.contains("was not found"), "{message}");
+    }
 }

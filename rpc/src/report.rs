@@ -143,8 +143,50 @@ fn flags_html(frame: &DataFrame) -> Option<String> {
 
 fn provenance_html(provenance: &Provenance) -> String {
     match provenance {
-        Provenance::File { path, format, units } => {
-            let mut text = format!("Imported from <code>{}</code> ({}).", escape(path), escape(format));
+        Provenance::File {
+            path,
+            format,
+            units,
+            rename,
+            csv,
+            sha256,
+            size_bytes,
+            modified,
+        } => {
+            let mut text = format!("Imported from <code>{}</code> ({}", escape(path), escape(format));
+            if let Some(size) = size_bytes {
+                let _ = write!(text, ", {size} bytes");
+            }
+            if let Some(modified) = modified {
+                let _ = write!(text, ", modified {}", escape(modified));
+            }
+            if let Some(sha256) = sha256 {
+                let _ = write!(text, ", SHA-256 <code>{}</code>", escape(sha256));
+            }
+            text.push_str(").");
+            if let Some(csv) = csv {
+                let mut dialect = vec![format!("separator <code>{}</code>", escape(&csv.separator))];
+                if csv.decimal_comma {
+                    dialect.push("decimal comma".into());
+                }
+                if let Some(prefix) = &csv.comment_prefix {
+                    dialect.push(format!("comments <code>{}</code>", escape(prefix)));
+                }
+                if csv.skip_rows > 0 {
+                    dialect.push(format!("{} lines skipped", csv.skip_rows));
+                }
+                if !csv.header {
+                    dialect.push("no header".into());
+                }
+                let _ = write!(text, " Read as CSV with {}.", dialect.join(", "));
+            }
+            if !rename.is_empty() {
+                let renamed: Vec<String> = rename
+                    .iter()
+                    .map(|(source, target)| format!("{} to {}", escape(source), escape(target)))
+                    .collect();
+                let _ = write!(text, " Renamed: {}.", renamed.join(", "));
+            }
             if !units.is_empty() {
                 let converted: Vec<String> = units
                     .iter()

@@ -1,6 +1,7 @@
 //! What the daemon does, independent of how requests arrive: datasets, analyses,
 //! pipelines. The JSON-RPC layer (`methods`) only parses parameters and calls in here.
 
+use crate::csv_dialect::CsvDialect;
 use crate::data_roots::DataRoots;
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use crate::param_schema;
@@ -40,8 +41,15 @@ pub struct ImportParams {
     pub columns: Option<serde_json::Map<String, Value>>,
     #[serde(default)]
     pub format: Option<String>,
+    /// Source column name to new name, any column, applied before `units`.
+    #[serde(default)]
+    pub rename: BTreeMap<String, String>,
+    /// Units by column name after renaming.
     #[serde(default)]
     pub units: BTreeMap<String, UnitSpec>,
+    /// The CSV dialect (CSV files only).
+    #[serde(default)]
+    pub csv: Option<CsvDialect>,
     #[serde(default)]
     pub overwrite: bool,
 }
@@ -337,39 +345,6 @@ pub fn summary_table(summary: &Value, group_columns: &[String]) -> ServiceResult
     tables::frame_from_json_columns(&columns)
 }
 
-/// Edit distance between two names (Levenshtein: insertions, deletions, substitutions),
-/// compared without case.
-fn edit_distance(a: &str, b: &str) -> usize {
-    let a: Vec<char> = a.to_lowercase().chars().collect();
-    let b: Vec<char> = b.to_lowercase().chars().collect();
-    let mut previous: Vec<usize> = (0..=b.len()).collect();
-    for (i, ca) in a.iter().enumerate() {
-        let mut current = vec![i + 1; b.len() + 1];
-        for (j, cb) in b.iter().enumerate() {
-            let substitution = previous[j] + usize::from(ca != cb);
-            current[j + 1] = substitution.min(previous[j + 1] + 1).min(current[j] + 1);
-        }
-        previous = current;
-    }
-    previous[b.len()]
-}
-
-/// The known names closest to `name`: those within a third of its length in edit distance,
-/// or that contain it or its part after the last dot, nearest first, at most three.
-fn closest_names<'a>(name: &str, known: &[&'a str]) -> Vec<&'a str> {
-    let tail = name.rsplit('.').next().unwrap_or(name).to_lowercase();
-    let limit = (name.chars().count() / 3).max(2);
-    let mut scored: Vec<(usize, &str)> = known
-        .iter()
-        .map(|&candidate| (edit_distance(name, candidate), candidate))
-        .filter(|&(distance, candidate)| {
-            distance <= limit || (tail.len() >= 3 && candidate.to_lowercase().contains(&tail))
-        })
-        .collect();
-    scored.sort();
-    scored.into_iter().take(3).map(|(_, candidate)| candidate).collect()
-}
-
 /// Row indices of each group, in order of first appearance, with the key values.
 fn group_rows(frame: &DataFrame, columns: &[String]) -> ServiceResult<Vec<(Vec<AnyValue<'static>>, Vec<IdxSize>)>> {
     let series: Vec<Series> = columns
@@ -486,7 +461,7 @@ impl Service {
 
     fn unknown_analysis(&self, name: &str) -> ServiceError {
         let known: Vec<&str> = self.host.analyses.keys().map(String::as_str).collect();
-        let closest = closest_names(name, &known);
+        let closest = crate::suggest::closest_names(name, known.iter().copied());
         let help = match (closest.as_slice(), known.is_empty()) {
             (_, true) => "loaded analyses: none".to_owned(),
             ([], false) => format!("loaded analyses: {}", known.join(", ")),
@@ -552,7 +527,7 @@ impl Service {
             .iter()
             .map(|(c, u)| (c.clone(), u.unit().to_owned()))
             .collect();
-        let (frame, provenance) =
+        let (frame, source_map, provenance) =
             match (&params.path, &params.columns) {
                 (Some(path), None) => {
                     let resolved = self.roots.readable(Path::new(path))?;
@@ -560,27 +535,63 @@ impl Service {
                         Some(name) => FileFormat::parse(name)?,
                         None => FileFormat::from_extension(&resolved)?,
                     };
-                    let frame = tables::read_file(&resolved, format)?;
+                    if params.csv.is_some() && format != FileFormat::Csv {
+                        return Err(ServiceError::invalid_params(format!(
+                            "csv options apply to CSV files; {} is read as {}",
+                            resolved.display(),
+                            format.name()
+                        ))
+                        .with_help("leave out csv, or pass format: csv if the file is CSV text"));
+                    }
+                    let dialect = params.csv.clone().unwrap_or_default();
+                    let source = tables::load_source(&resolved)?;
+                    let rename = &params.rename;
+                    // The contacts pair notation (`21,34`) keeps its comma under decimal_comma.
+                    let keeps_commas = |name: &str| rename.get(name).map(String::as_str).unwrap_or(name) == "contacts";
+                    let (frame, map) = tables::read_bytes(&resolved, source.bytes, format, &dialect, keeps_commas)?;
                     let provenance = Provenance::File {
                         path: resolved.display().to_string(),
                         format: format.name().into(),
                         units: units_text,
+                        rename: params.rename.clone(),
+                        csv: params.csv.clone().filter(|d| *d != CsvDialect::default()),
+                        sha256: Some(source.sha256),
+                        size_bytes: Some(source.size_bytes),
+                        modified: source.modified,
                     };
-                    (frame, provenance)
+                    (frame, map, provenance)
                 }
-                (None, Some(columns)) => (
-                    tables::frame_from_json_columns(columns)?,
-                    Provenance::Inline { units: units_text },
-                ),
+                (None, Some(columns)) => {
+                    if params.csv.is_some() {
+                        return Err(
+                            ServiceError::invalid_params("csv options apply to files, not to inline columns")
+                                .with_help("leave out csv when sending columns"),
+                        );
+                    }
+                    (
+                        tables::frame_from_json_columns(columns)?,
+                        None,
+                        Provenance::Inline { units: units_text },
+                    )
+                }
                 _ => return Err(
                     ServiceError::invalid_params("give exactly one of `path` and `columns`").with_help(
                         "path: a CSV, Parquet or Arrow IPC file inside the data roots; columns: {\"name\": [values]}",
                     ),
                 ),
             };
-        let frame = tables::apply_units(frame, &params.units)?;
+        let frame = tables::apply_rename(frame, &params.rename)?;
+        let frame = tables::apply_units(frame, &params.units, source_map.as_ref())?;
+        let notes = match (&source_map, params.csv.as_ref().is_some_and(|d| d.decimal_comma)) {
+            (Some(map), false) => tables::decimal_comma_notes(&frame, map),
+            _ => Vec::new(),
+        };
         let dataset = self.store.insert(&params.name, frame, provenance, params.overwrite)?;
-        Ok(Self::dataset_summary(&dataset))
+        let mut answer = Self::dataset_summary(&dataset);
+        if !notes.is_empty() {
+            answer["notes"] = json!(notes);
+        }
+        Ok(answer)
     }
 
     pub fn dataset_export(&self, params: ExportParams) -> ServiceResult<Value> {
@@ -1013,33 +1024,5 @@ impl Service {
             results.push(result);
         }
         Ok(json!({ "steps": results }))
-    }
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn the_closest_names_come_first() {
-        let known = [
-            "hall.reduce",
-            "carriers.freeze_out_fit",
-            "carriers.arrhenius",
-            "mr.oscillations",
-        ];
-        // (asked, expected suggestions)
-        let cases: &[(&str, &[&str])] = &[
-            ("hall.reduc", &["hall.reduce"]),
-            ("Hall.Reduce", &["hall.reduce"]),
-            ("carriers.arrhenus", &["carriers.arrhenius"]),
-            ("oscillations", &["mr.oscillations"]),
-            ("freeze_out", &["carriers.freeze_out_fit"]),
-            ("spectrum.mobility", &[]),
-        ];
-        for (asked, expected) in cases {
-            assert_eq!(&closest_names(asked, &known), expected, "{asked}");
-        }
-        assert_eq!(edit_distance("kitten", "sitting"), 3);
     }
 }

@@ -32,6 +32,21 @@ pub enum Provenance {
         format: String,
         #[serde(default)]
         units: BTreeMap<String, String>,
+        /// Columns renamed before the units applied, source name to new name.
+        #[serde(default, skip_serializing_if = "BTreeMap::is_empty")]
+        rename: BTreeMap<String, String>,
+        /// The CSV dialect the file was read with (absent for other formats and the defaults).
+        #[serde(default, skip_serializing_if = "Option::is_none")]
+        csv: Option<crate::csv_dialect::CsvDialect>,
+        /// SHA-256 of the file's bytes as read, lower-case hex (absent in older workspaces).
+        #[serde(default, skip_serializing_if = "Option::is_none")]
+        sha256: Option<String>,
+        /// The file's size in bytes.
+        #[serde(default, skip_serializing_if = "Option::is_none")]
+        size_bytes: Option<u64>,
+        /// The file's last modification, UTC, RFC 3339.
+        #[serde(default, skip_serializing_if = "Option::is_none")]
+        modified: Option<String>,
     },
     /// Sent inline by a client.
     Inline {
@@ -413,5 +428,24 @@ mod tests {
     fn timestamps_are_rfc3339() {
         let t = std::time::UNIX_EPOCH + std::time::Duration::from_secs(1_700_000_000);
         assert_eq!(utc_timestamp(t), "2023-11-14T22:13:20Z");
+    }
+
+    #[test]
+    fn file_provenance_of_older_workspaces_still_loads() {
+        let old = serde_json::json!({"kind": "file", "path": "/data/r.csv", "format": "csv", "units": {}});
+        let provenance: Provenance = serde_json::from_value(old).unwrap();
+        let Provenance::File {
+            sha256,
+            size_bytes,
+            rename,
+            ..
+        } = &provenance
+        else {
+            panic!("a file provenance")
+        };
+        assert!(sha256.is_none() && size_bytes.is_none() && rename.is_empty());
+        // And an absent member stays absent when written again.
+        let written = serde_json::to_value(&provenance).unwrap();
+        assert!(written.get("sha256").is_none());
     }
 }

@@ -1,12 +1,14 @@
 //! Reading and writing tables: CSV, Parquet and Arrow IPC files, inline JSON columns, and
 //! conversion of lab units into the SI columns of the table convention.
 
+use crate::csv_dialect::{self, CsvDialect, SourceMap};
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use mobilis_core::units;
 use polars::prelude::*;
 use serde::Deserialize;
 use std::collections::BTreeMap;
 use std::fs::File;
+use std::io::Cursor;
 use std::path::Path;
 
 /// File formats of imports and exports.
@@ -62,28 +64,113 @@ fn file_error(path: &Path, error: impl std::fmt::Display) -> ServiceError {
     )
 }
 
-/// Reads a whole file into a DataFrame.
-pub fn read_file(path: &Path, format: FileFormat) -> ServiceResult<DataFrame> {
-    let frame = match format {
-        FileFormat::Csv => CsvReadOptions::default()
-            .with_has_header(true)
-            .with_infer_schema_length(Some(10_000))
-            .try_into_reader_with_file_path(Some(path.to_owned()))
-            .and_then(|reader| reader.finish()),
-        FileFormat::Parquet => {
-            let file = File::open(path).map_err(|e| file_error(path, e))?;
-            ParquetReader::new(file).finish()
+/// A source file as read for an import: its bytes and what identifies them.
+pub struct SourceFile {
+    pub bytes: Vec<u8>,
+    /// SHA-256 of the bytes, lower-case hex.
+    pub sha256: String,
+    pub size_bytes: u64,
+    /// Last modification, UTC, RFC 3339 (absent where the file system does not keep it).
+    pub modified: Option<String>,
+}
+
+/// Reads a file whole, once, so that the table and its checksum describe the same bytes.
+pub fn load_source(path: &Path) -> ServiceResult<SourceFile> {
+    use sha2::{Digest, Sha256};
+    let bytes = std::fs::read(path).map_err(|e| file_error(path, e))?;
+    let modified = std::fs::metadata(path)
+        .and_then(|m| m.modified())
+        .ok()
+        .map(crate::store::utc_timestamp);
+    let digest = Sha256::digest(&bytes);
+    let sha256 = digest.iter().map(|b| format!("{b:02x}")).collect();
+    Ok(SourceFile {
+        size_bytes: bytes.len() as u64,
+        bytes,
+        sha256,
+        modified,
+    })
+}
+
+/// Reads a file's bytes into a DataFrame; CSV in the given dialect, with the line of
+/// every row (see [`csv_dialect::read_csv`] for `keeps_commas`).
+pub fn read_bytes(
+    path: &Path,
+    bytes: Vec<u8>,
+    format: FileFormat,
+    dialect: &CsvDialect,
+    keeps_commas: impl Fn(&str) -> bool,
+) -> ServiceResult<(DataFrame, Option<SourceMap>)> {
+    let (frame, map) = match format {
+        FileFormat::Csv => {
+            let (frame, map) = csv_dialect::read_csv(&bytes, dialect, keeps_commas).map_err(|e| ServiceError {
+                message: format!("{}: {}", path.display(), e.message),
+                ..e
+            })?;
+            (frame, Some(map))
         }
-        FileFormat::ArrowIpc => {
-            let file = File::open(path).map_err(|e| file_error(path, e))?;
-            IpcReader::new(file).finish()
-        }
-    }
-    .map_err(|e| file_error(path, e).with_help(format!("check that the file is valid {}", format.name())))?;
+        FileFormat::Parquet => (
+            ParquetReader::new(Cursor::new(bytes))
+                .finish()
+                .map_err(|e| file_error(path, e).with_help("check that the file is valid parquet"))?,
+            None,
+        ),
+        FileFormat::ArrowIpc => (
+            IpcReader::new(Cursor::new(bytes))
+                .finish()
+                .map_err(|e| file_error(path, e).with_help("check that the file is valid Arrow IPC"))?,
+            None,
+        ),
+    };
     if frame.width() == 0 {
         return Err(file_error(path, "the file has no columns"));
     }
+    Ok((frame, map))
+}
+
+/// Renames columns (`{"source name": "new_name"}`), any column, before units apply.
+pub fn apply_rename(frame: DataFrame, rename: &BTreeMap<String, String>) -> ServiceResult<DataFrame> {
+    if rename.is_empty() {
+        return Ok(frame);
+    }
+    let present: Vec<String> = frame.get_column_names().iter().map(|n| n.to_string()).collect();
+    let mut names = present.clone();
+    for (source, target) in rename {
+        let Some(position) = present.iter().position(|n| n == source) else {
+            return Err(ServiceError::new(
+                ErrorKind::ColumnProblem,
+                format!("rename names column `{source}`, which the table lacks"),
+            )
+            .with_help(format!("the table's columns are: {}", quoted_list(&present))));
+        };
+        if target.trim().is_empty() {
+            return Err(ServiceError::invalid_params(format!(
+                "rename gives column `{source}` an empty name"
+            )));
+        }
+        names[position] = target.clone();
+    }
+    for (position, name) in names.iter().enumerate() {
+        if let Some(other) = names[..position].iter().position(|n| n == name) {
+            return Err(ServiceError::new(
+                ErrorKind::ColumnProblem,
+                format!(
+                    "after rename two columns would be named `{name}` (`{}` and `{}`)",
+                    present[other], present[position]
+                ),
+            )
+            .with_help("rename one of them to another name, or rename the existing column away"));
+        }
+    }
+    let mut frame = frame;
+    frame
+        .set_column_names(&names)
+        .map_err(|e| ServiceError::new(ErrorKind::ColumnProblem, e.to_string()))?;
     Ok(frame)
+}
+
+fn quoted_list(names: &[String]) -> String {
+    names.iter().map(|n| format!("`{n}`")).collect::<Vec<_>>().join(", ")
 }
 
 /// Writes a DataFrame to a file (the caller has checked the path).
@@ -175,7 +262,13 @@ impl UnitSpec {
 
 /// Converts the named columns into SI and renames them by the table convention
 /// (`temperature_C` in degC becomes `temperature_K`), or to the explicit `to` name.
-pub fn apply_units(frame: DataFrame, units_by_column: &BTreeMap<String, UnitSpec>) -> ServiceResult<DataFrame> {
+/// `source` locates a cell in the file it came from, for errors; without it cells are
+/// named by row.
+pub fn apply_units(
+    frame: DataFrame,
+    units_by_column: &BTreeMap<String, UnitSpec>,
+    source: Option<&SourceMap>,
+) -> ServiceResult<DataFrame> {
     let mut frame = frame;
     for (column_name, spec) in units_by_column {
         let unit = units::parse_unit(spec.unit())
@@ -186,9 +279,18 @@ pub fn apply_units(frame: DataFrame, units_by_column: &BTreeMap<String, UnitSpec
                 ErrorKind::ColumnProblem,
                 format!("units names column `{column_name}`, which the table lacks"),
             )
-            .with_help(format!("the table's columns are: {}", present.join(", ")))
+            .with_help(format!(
+                "the table's columns are (after rename): {}; units names columns by their name after rename",
+                quoted_list(&present)
+            ))
         })?;
-        if !column.dtype().is_primitive_numeric() {
+        let position = frame.get_column_index(column_name).expect("column exists");
+        let numbers = if column.dtype().is_primitive_numeric() || column.dtype().is_null() {
+            column.cast(&DataType::Float64)
+        } else if column.dtype().is_string() {
+            check_text_numbers(column, column_name, position, source)?;
+            column.cast(&DataType::Float64)
+        } else {
             return Err(ServiceError::new(
                 ErrorKind::ColumnProblem,
                 format!(
@@ -196,9 +298,8 @@ pub fn apply_units(frame: DataFrame, units_by_column: &BTreeMap<String, UnitSpec
                     column.dtype()
                 ),
             ));
-        }
-        let mut values: Vec<Option<f64>> = column
-            .cast(&DataType::Float64)
+        };
+        let mut values: Vec<Option<f64>> = numbers
             .map_err(|e| ServiceError::new(ErrorKind::ColumnProblem, e.to_string()))?
             .f64()
             .expect("cast to Float64")
@@ -225,12 +326,89 @@ pub fn apply_units(frame: DataFrame, units_by_column: &BTreeMap<String, UnitSpec
             ));
         }
         let converted = Column::new(PlSmallStr::from_str(&new_name), values);
-        let index = frame.get_column_index(column_name).expect("column exists");
         frame
-            .replace_column(index, converted)
+            .replace_column(position, converted)
             .map_err(|e| ServiceError::new(ErrorKind::ColumnProblem, e.to_string()))?;
     }
     Ok(frame)
+}
+
+/// Notes on text columns of a CSV file that look like numbers written with a decimal
+/// comma (every cell, `25,5`), read without `decimal_comma`: the import stands, but an
+/// analysis will find text where it expects numbers. The `contacts` column is left alone
+/// (its pair notation `21,34` looks the same).
+pub fn decimal_comma_notes(frame: &DataFrame, source: &SourceMap) -> Vec<String> {
+    let mut columns = Vec::new();
+    let mut example = None;
+    for (position, column) in frame.columns().iter().enumerate() {
+        if column.name().as_str() == "contacts" || !column.dtype().is_string() {
+            continue;
+        }
+        let texts = column.str().expect("a string column");
+        let mut first = None;
+        let mut all = true;
+        for (row, text) in texts.iter().enumerate() {
+            let Some(text) = text else { continue };
+            if csv_dialect::is_decimal_comma_number(text) {
+                first.get_or_insert((row, text.to_owned()));
+            } else {
+                all = false;
+                break;
+            }
+        }
+        if let (true, Some((row, text))) = (all, first) {
+            columns.push(format!("`{}`", column.name()));
+            example.get_or_insert(format!("`{text}` at {}", source.locate(row, position)));
+        }
+    }
+    let Some(example) = example else {
+        return Vec::new();
+    };
+    let subject = if columns.len() == 1 {
+        format!("column {} holds", columns[0])
+    } else {
+        format!("columns {} hold", columns.join(", "))
+    };
+    vec![format!(
+        "{subject} text such as {example}: numbers with a decimal comma? Import again with csv.decimal_comma true and a separator other than `,` (mobilis import --decimal-comma --separator ';')"
+    )]
+}
+
+/// A text column given a unit: fine when every cell reads as a number (a file that quotes
+/// its numbers); otherwise an error naming the first cell that does not, and the option
+/// that would read it when it is a number with a decimal comma.
+fn check_text_numbers(
+    column: &Column,
+    column_name: &str,
+    position: usize,
+    source: Option<&SourceMap>,
+) -> ServiceResult<()> {
+    let texts = column.str().expect("a string column");
+    for (row, text) in texts.iter().enumerate() {
+        let Some(text) = text else { continue };
+        if text.trim().is_empty() || text.trim().parse::<f64>().is_ok() {
+            continue;
+        }
+        let place = match source {
+            Some(map) => map.locate(row, position),
+            None => format!("row {}", row + 1),
+        };
+        let error = ServiceError::new(
+            ErrorKind::ColumnProblem,
+            format!("{place} (`{column_name}`): `{text}` is not a number, and units gives this column a unit"),
+        );
+        let comma = csv_dialect::is_decimal_comma_number(text);
+        return Err(match (comma, source) {
+            (true, Some(map)) if !map.decimal_comma => error.with_help(
+                "the file writes decimal commas: csv.decimal_comma true and a separator other than `,` in dataset.import (mobilis import --decimal-comma --separator ';')",
+            ),
+            (true, None) => error.with_help("send numbers with a decimal point, as JSON numbers"),
+            _ => error.with_help(format!(
+                "correct the cell, leave it empty for a missing value, or leave `{column_name}` out of units"
+            )),
+        });
+    }
+    Ok(())
 }
 
 #[cfg(test)]
@@ -269,7 +447,7 @@ mod tests {
                 to: "field_T".into(),
             },
         );
-        let converted = apply_units(frame, &spec).unwrap();
+        let converted = apply_units(frame, &spec, None).unwrap();
         let temperature: Vec<f64> = converted
             .column("temperature_K")
             .unwrap()
@@ -290,6 +468,56 @@ mod tests {
         assert_eq!(field, vec![0.5, -0.5]);
         let mut wrong = BTreeMap::new();
         wrong.insert("sample".to_owned(), UnitSpec::Unit("K".into()));
-        assert!(apply_units(converted, &wrong).is_err());
+        assert!(apply_units(converted, &wrong, None).is_err());
+    }
+
+    #[test]
+    fn rename_comes_first_and_takes_text_columns() {
+        let frame = df!("Sample ID" => ["a", "b"], "T (C)" => [0.0, 100.0]).unwrap();
+        let rename = BTreeMap::from([
+            ("Sample ID".to_owned(), "sample".to_owned()),
+            ("T (C)".to_owned(), "temperature_C".to_owned()),
+        ]);
+        let renamed = apply_rename(frame.clone(), &rename).unwrap();
+        let names: Vec<String> = renamed.get_column_names().iter().map(|n| n.to_string()).collect();
+        assert_eq!(names, vec!["sample", "temperature_C"]);
+        let units = BTreeMap::from([("temperature_C".to_owned(), UnitSpec::Unit("degC".into()))]);
+        assert!(apply_units(renamed, &units, None)
+            .unwrap()
+            .column("temperature_K")
+            .is_ok());
+        let missing = BTreeMap::from([("Sample".to_owned(), "sample".to_owned())]);
+        let error = apply_rename(frame.clone(), &missing).unwrap_err();
+        assert!(error.message.contains("`Sample`"), "{}", error.message);
+        assert!(error.help.unwrap().contains("`Sample ID`"));
+        let clash = BTreeMap::from([("Sample ID".to_owned(), "T (C)".to_owned())]);
+        assert!(apply_rename(frame, &clash).unwrap_err().message.contains("two columns"));
+    }
+
+    #[test]
+    fn text_in_a_column_given_a_unit_is_located_in_the_file() {
+        let dialect = CsvDialect {
+            separator: ";".into(),
+            ..CsvDialect::default()
+        };
+        let text = "# export\nsample;T\na;25\nb;n/a\n";
+        let dialect = CsvDialect {
+            comment_prefix: Some("#".into()),
+            ..dialect
+        };
+        let (frame, map) = csv_dialect::read_csv(text.as_bytes(), &dialect, |_| false).unwrap();
+        let units = BTreeMap::from([("T".to_owned(), UnitSpec::Unit("degC".into()))]);
+        let error = apply_units(frame, &units, Some(&map)).unwrap_err();
+        assert_eq!(
+            error.message,
+            "line 4, column 2 (`T`): `n/a` is not a number, and units gives this column a unit"
+        );
+        let (frame, map) = csv_dialect::read_csv("sample;T\na;25,5\n".as_bytes(), &dialect, |_| false).unwrap();
+        let error = apply_units(frame, &units, Some(&map)).unwrap_err();
+        assert!(error.message.starts_with("line 2, column 2"), "{}", error.message);
+        assert!(error.help.unwrap().contains("--decimal-comma"));
+        // Quoted numbers are numbers.
+        let (frame, map) = csv_dialect::read_csv("sample;T\na;\"25\"\n".as_bytes(), &dialect, |_| false).unwrap();
+        assert!(apply_units(frame, &units, Some(&map)).is_ok());
     }
 }

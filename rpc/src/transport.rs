@@ -12,7 +12,11 @@
 //! preflight), and every answer names the origin in `Access-Control-Allow-Origin`. Browser
 //! WebSockets cannot set headers, so a page reaching a token-protected daemon uses HTTP.
 
-use jsonrpsee::server::{HttpBody, HttpRequest, HttpResponse, Server, ServerConfig, ServerHandle};
+use jsonrpsee::server::middleware::rpc::{
+    Batch, BatchEntry, BatchEntryErr, Notification, RpcServiceBuilder, RpcServiceT,
+};
+use jsonrpsee::server::{HttpBody, HttpRequest, HttpResponse, MethodResponse, Server, ServerConfig, ServerHandle};
+use jsonrpsee::types::{ErrorObjectOwned, Request};
 use jsonrpsee::RpcModule;
 use std::future::Future;
 use std::net::SocketAddr;
@@ -210,6 +214,92 @@ fn self_description() -> HttpResponse {
         .expect("static response parts are valid")
 }
 
+/// The JSON-RPC code of an unknown method (kept: clients recognise it).
+pub const METHOD_NOT_FOUND: i32 = -32601;
+
+/// The error for a method the daemon does not serve: names it and the closest ones.
+pub fn method_not_found(asked: &str, known: &[String]) -> ErrorObjectOwned {
+    let closest = crate::suggest::closest_names(asked, known.iter().map(String::as_str));
+    let message = if closest.is_empty() {
+        format!("no method named `{asked}`; rpc.discover lists every method")
+    } else {
+        format!("no method named `{asked}`; did you mean {}?", closest.join(", "))
+    };
+    ErrorObjectOwned::owned(
+        METHOD_NOT_FOUND,
+        message,
+        Some(serde_json::json!({
+            "kind": "method_not_found",
+            "method": asked,
+            "closest": closest,
+            "help": "rpc.discover lists every method with its parameters",
+        })),
+    )
+}
+
+/// RPC middleware answering calls of unknown methods with [`method_not_found`] (jsonrpsee's
+/// own answer names neither the method nor what was meant).
+#[derive(Clone)]
+pub struct KnownMethods<S> {
+    service: S,
+    known: Arc<Vec<String>>,
+}
+
+impl<S> KnownMethods<S> {
+    fn refusal(&self, method: &str) -> Option<ErrorObjectOwned> {
+        (!self.known.iter().any(|known| known == method)).then(|| method_not_found(method, &self.known))
+    }
+}
+
+impl<S> RpcServiceT for KnownMethods<S>
+where
+    S: RpcServiceT<
+            MethodResponse = MethodResponse,
+            BatchResponse = MethodResponse,
+            NotificationResponse = MethodResponse,
+        > + Send
+        + Sync
+        + Clone
+        + 'static,
+{
+    type MethodResponse = MethodResponse;
+    type NotificationResponse = MethodResponse;
+    type BatchResponse = MethodResponse;
+
+    fn call<'a>(&self, request: Request<'a>) -> impl Future<Output = Self::MethodResponse> + Send + 'a {
+        let refusal = self.refusal(request.method_name());
+        let service = self.service.clone();
+        async move {
+            match refusal {
+                Some(error) => MethodResponse::error(request.id, error).with_extensions(request.extensions),
+                None => service.call(request).await,
+            }
+        }
+    }
+
+    fn batch<'a>(&self, mut batch: Batch<'a>) -> impl Future<Output = Self::BatchResponse> + Send + 'a {
+        for entry in batch.iter_mut() {
+            let refusal = match entry {
+                Ok(BatchEntry::Call(request)) => self
+                    .refusal(request.method_name())
+                    .map(|error| (request.id.clone(), error)),
+                _ => None,
+            };
+            if let Some((id, error)) = refusal {
+                *entry = Err(BatchEntryErr::new(id, error));
+            }
+        }
+        self.service.batch(batch)
+    }
+
+    fn notification<'a>(
+        &self,
+        notification: Notification<'a>,
+    ) -> impl Future<Output = Self::NotificationResponse> + Send + 'a {
+        self.service.notification(notification)
+    }
+}
+
 /// Starts the HTTP and WebSocket server; returns its address and handle.
 pub async fn serve_http<C: Send + Sync + 'static>(
     address: SocketAddr,
@@ -222,9 +312,15 @@ pub async fn serve_http<C: Send + Sync + 'static>(
         .max_response_body_size(MAX_RESPONSE_BYTES)
         .max_connections(MAX_CONNECTIONS)
         .build();
+    let known: Arc<Vec<String>> = Arc::new(module.method_names().map(str::to_owned).collect());
+    let rpc_middleware = RpcServiceBuilder::new().layer_fn(move |service| KnownMethods {
+        service,
+        known: known.clone(),
+    });
     let server = Server::builder()
         .set_config(config)
         .set_http_middleware(middleware)
+        .set_rpc_middleware(rpc_middleware)
         .build(address)
         .await?;
     let local = server.local_addr()?;
@@ -251,7 +347,15 @@ async fn answer_one<C: Send + Sync + 'static>(
     module: &RpcModule<C>,
     request: &serde_json::Value,
 ) -> Option<(String, Option<Notifications>)> {
-    request.get("id")?;
+    let id = request.get("id")?;
+    if let Some(method) = request.get("method").and_then(serde_json::Value::as_str) {
+        if !module.method_names().any(|known| known == method) {
+            let known: Vec<String> = module.method_names().map(str::to_owned).collect();
+            let error = method_not_found(method, &known);
+            let answer = serde_json::json!({"jsonrpc": "2.0", "id": id, "error": error});
+            return Some((answer.to_string(), None));
+        }
+    }
     match module.raw_json_request(&request.to_string(), 16).await {
         Ok((response, notifications)) => {
             // Only a subscription keeps its channel open (or has events waiting in it).
@@ -393,4 +497,29 @@ pub async fn serve_stdio<C: Send + Sync + 'static>(module: RpcModule<C>) -> std:
     forwarders.lock().await.abort_all();
     drop(output);
     writer.await.map_err(std::io::Error::other)?
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn unknown_methods_are_named_with_the_closest_known_ones() {
+        let known: Vec<String> = crate::openrpc::METHODS.iter().map(|m| m.name.to_owned()).collect();
+        let closest = |asked: &str| crate::suggest::closest_names(asked, known.iter().map(String::as_str));
+        assert_eq!(closest("dataset.lst")[0], "dataset.list");
+        assert_eq!(closest("datasets.list")[0], "dataset.list");
+        assert_eq!(closest("import"), vec!["dataset.import"]);
+        assert_eq!(closest("analysis.runn")[0], "analysis.run");
+        assert!(closest("frobnicate").is_empty());
+        let error = method_not_found("dataset.lst", &known);
+        assert_eq!(error.code(), METHOD_NOT_FOUND);
+        assert!(error
+            .message()
+            .starts_with("no method named `dataset.lst`; did you mean dataset.list"));
+        assert_eq!(
+            method_not_found("frobnicate", &known).message(),
+            "no method named `frobnicate`; rpc.discover lists every method"
+        );
+    }
 }

@@ -7,6 +7,7 @@
 mod cli_errors;
 mod demo;
 mod describe;
+mod import_recipe;
 mod pipeline_file;
 mod progress_bar;
 mod report_files;
@@ -74,18 +75,15 @@ enum Command {
         /// The analysis, e.g. hall.reduce (see `mobilis analyses`).
         analysis: String,
     },
-    /// Import a CSV, Parquet or Arrow IPC file (a path on the daemon's machine).
+    /// Import a CSV, Parquet or Arrow IPC file (a path on the daemon's machine), as the lab
+    /// wrote it: --recipe, or the flags, describe its dialect, names and units.
     Import {
         /// Name to store the dataset under.
         name: String,
         /// The file to read, on the daemon's machine inside its data roots.
         path: PathBuf,
-        /// csv, parquet or ipc; default: from the file's extension.
-        #[arg(long)]
-        format: Option<String>,
-        /// Convert a column into SI, e.g. --unit temperature_C=degC (repeatable).
-        #[arg(long = "unit", value_parser = parse_key_value)]
-        units: Vec<(String, String)>,
+        #[command(flatten)]
+        layout: import_recipe::ImportFlags,
         /// Replace a stored dataset of the same name (refused otherwise).
         #[arg(long)]
         overwrite: bool,
@@ -336,21 +334,25 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Import {
             name,
             path,
-            format,
-            units,
+            layout,
             overwrite,
         } => {
-            let units: serde_json::Map<String, Value> = units.iter().map(|(c, u)| (c.clone(), json!(u))).collect();
-            let mut params = json!({ "name": name, "path": absolute(path)?, "units": units, "overwrite": overwrite });
-            if let Some(format) = format {
-                params["format"] = json!(format);
-            }
-            let result = connect(&cli).await?.call("dataset.import", params).await?;
+            let mut params = layout.recipe()?.to_params()?;
+            params.insert("name".into(), json!(name));
+            params.insert("path".into(), json!(absolute(path)?));
+            params.insert("overwrite".into(), json!(overwrite));
+            let result = connect(&cli)
+                .await?
+                .call("dataset.import", Value::Object(params))
+                .await?;
             println!(
                 "imported {} ({} rows)",
                 result["name"].as_str().unwrap_or(name),
                 result["rows"]
             );
+            for note in result["notes"].as_array().into_iter().flatten() {
+                println!("  note: {}", note.as_str().unwrap_or(""));
+            }
             Ok(())
         }
         Command::Run {

@@ -6,6 +6,8 @@
 //! name = "si-readings"
 //! path = "si-wafer/readings.csv"     # relative to the pipeline file
 //! units = { }                        # optional: column = "unit"
+//! # optional, as in an import recipe: recipe = "station.toml" (relative to this file),
+//! # format, rename = { "Sample ID" = "sample" }, csv = { separator = ";" }
 //!
 //! [[step]]
 //! analysis = "hall.reduce"
@@ -22,27 +24,16 @@ use anyhow::{bail, Context};
 use mobilis_client::Client;
 use serde::Deserialize;
 use serde_json::{json, Value};
-use std::collections::BTreeMap;
 use std::path::Path;
 
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct PipelineFile {
+    /// The `[[import]]` tables: name, path and the keys of an import recipe.
     #[serde(default, rename = "import")]
-    pub imports: Vec<ImportEntry>,
+    pub imports: Vec<toml::Table>,
     #[serde(default, rename = "step")]
     pub steps: Vec<toml::Table>,
-}
-
-#[derive(Debug, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct ImportEntry {
-    pub name: String,
-    pub path: String,
-    #[serde(default)]
-    pub format: Option<String>,
-    #[serde(default)]
-    pub units: BTreeMap<String, String>,
 }
 
 /// Reads a pipeline file.
@@ -65,16 +56,12 @@ pub async fn run(
 ) -> anyhow::Result<Value> {
     let pipeline = load(file)?;
     let base = file.canonicalize()?.parent().map(Path::to_owned).unwrap_or_default();
-    for import in &pipeline.imports {
-        let path = base.join(&import.path);
-        let mut params = json!({ "name": import.name, "path": path.display().to_string(), "units": import.units, "overwrite": true });
-        if let Some(format) = &import.format {
-            params["format"] = json!(format);
-        }
+    for import in pipeline.imports {
+        let (name, params) = crate::import_recipe::pipeline_import(import, &base)?;
         client
             .call("dataset.import", params)
             .await
-            .with_context(|| format!("importing {}", import.name))?;
+            .with_context(|| format!("importing {name}"))?;
     }
     let steps: Vec<Value> = pipeline
         .steps

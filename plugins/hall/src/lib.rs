@@ -507,6 +507,85 @@ fn integers<'a>(frame: &'a DataFrame, name: &str, storage: &'a mut Vec<i64>) -> 
     Ok(storage)
 }
 
+const CONTACT_COLUMNS: [&str; 4] = ["i_in", "i_out", "v_pos", "v_neg"];
+
+/// The four contact numbers of every reading: from the columns i_in, i_out, v_pos, v_neg,
+/// or from a `contacts` column in pair notation ("21,34"). With both, they must agree.
+fn contact_columns<'a>(frame: &'a DataFrame, storage: [&'a mut Vec<i64>; 4]) -> Result<[&'a [i64]; 4], AnalysisError> {
+    let present: Vec<&str> = CONTACT_COLUMNS
+        .into_iter()
+        .filter(|name| frame.column(name).is_ok())
+        .collect();
+    let notation = frame.column("contacts").ok();
+    let Some(notation) = notation else {
+        if present.len() < 4 {
+            let missing: Vec<&str> = CONTACT_COLUMNS
+                .into_iter()
+                .filter(|name| !present.contains(name))
+                .collect();
+            return Err(AnalysisError::InvalidInput(format!(
+                "the readings need either a `contacts` column in pair notation (\"21,34\" = current in at 2, out at 1, voltage V3 - V4) or the four columns i_in, i_out, v_pos, v_neg; {} missing",
+                missing.join(", ")
+            )));
+        }
+        let [s1, s2, s3, s4] = storage;
+        return Ok([
+            integers(frame, "i_in", s1)?,
+            integers(frame, "i_out", s2)?,
+            integers(frame, "v_pos", s3)?,
+            integers(frame, "v_neg", s4)?,
+        ]);
+    };
+    let cells = notation.str().map_err(|_| {
+        AnalysisError::InvalidInput(
+            "column `contacts` must hold text in pair notation such as \"21,34\"; import it as text (quote the cells)"
+                .into(),
+        )
+    })?;
+    let mut parsed: Vec<[i64; 4]> = Vec::with_capacity(cells.len());
+    for (row, cell) in cells.iter().enumerate() {
+        let cell = cell.ok_or_else(|| {
+            AnalysisError::InvalidInput(format!(
+                "reading {row}: `contacts` is empty; every reading needs its configuration, such as \"21,34\""
+            ))
+        })?;
+        let contacts = mobilis_core::contacts::parse_pair_notation(cell)
+            .map_err(|error| AnalysisError::InvalidInput(format!("reading {row}: {error}")))?;
+        parsed.push(contacts);
+    }
+    if !present.is_empty() {
+        let mut given = [Vec::new(), Vec::new(), Vec::new(), Vec::new()];
+        for (index, name) in CONTACT_COLUMNS.into_iter().enumerate() {
+            if present.contains(&name) {
+                given[index] = integers(frame, name, &mut Vec::new())?.to_vec();
+            }
+        }
+        for (row, contacts) in parsed.iter().enumerate() {
+            for (index, name) in CONTACT_COLUMNS.into_iter().enumerate() {
+                if let Some(&value) = given[index].get(row) {
+                    if value != contacts[index] {
+                        return Err(AnalysisError::InvalidInput(format!(
+                            "reading {row}: `contacts` says {name} = {}, the column {name} says {value}; give one of the two, or make them agree",
+                            contacts[index]
+                        )));
+                    }
+                }
+            }
+        }
+    }
+    fn fill(target: &mut Vec<i64>, values: impl Iterator<Item = i64>) -> &[i64] {
+        *target = values.collect();
+        target
+    }
+    let [s1, s2, s3, s4] = storage;
+    Ok([
+        fill(s1, parsed.iter().map(|c| c[0])),
+        fill(s2, parsed.iter().map(|c| c[1])),
+        fill(s3, parsed.iter().map(|c| c[2])),
+        fill(s4, parsed.iter().map(|c| c[3])),
+    ])
+}
+
 /// Reads the sample sheet (role `samples`).
 fn sample_sheet(frame: &DataFrame) -> Result<Vec<SampleInfo>, AnalysisError> {
     let names = sdk::string_column(frame, "sample")?;
@@ -599,10 +678,11 @@ impl Analysis for HallReduce {
                         column("sample", Str, None, "sample name"),
                         column("temperature_K", F64, Some("K"), "sample temperature"),
                         column("field_T", F64, Some("T"), "magnetic field, signed"),
-                        column("i_in", I64, None, "contact the current enters"),
-                        column("i_out", I64, None, "contact the current leaves"),
-                        column("v_pos", I64, None, "voltmeter positive contact"),
-                        column("v_neg", I64, None, "voltmeter negative contact"),
+                        column("i_in", I64, None, "contact the current enters (or give contacts)").optional(),
+                        column("i_out", I64, None, "contact the current leaves (or give contacts)").optional(),
+                        column("v_pos", I64, None, "voltmeter positive contact (or give contacts)").optional(),
+                        column("v_neg", I64, None, "voltmeter negative contact (or give contacts)").optional(),
+                        column("contacts", Str, None, "instead of i_in, i_out, v_pos, v_neg: the configuration in pair notation, \"21,34\" = current in at 2, out at 1, voltage V3 - V4").optional(),
                         column("current_A", F64, Some("A"), "current entering at i_in; negative for a reversed source"),
                         column("voltage_V", F64, Some("V"), "V(v_pos) - V(v_neg)"),
                     ],
@@ -659,14 +739,15 @@ impl Analysis for HallReduce {
         }
         let (mut s1, mut s2, mut s3, mut s4) = (Vec::new(), Vec::new(), Vec::new(), Vec::new());
         let (mut c1, mut c2, mut c3, mut c4) = (Vec::new(), Vec::new(), Vec::new(), Vec::new());
+        let [i_in, i_out, v_pos, v_neg] = contact_columns(readings, [&mut c1, &mut c2, &mut c3, &mut c4])?;
         let columns = ReadingColumns {
             sample: &sample_names,
             temperature_k: floats(readings, "temperature_K", &mut s1)?,
             field_t: floats(readings, "field_T", &mut s2)?,
-            i_in: integers(readings, "i_in", &mut c1)?,
-            i_out: integers(readings, "i_out", &mut c2)?,
-            v_pos: integers(readings, "v_pos", &mut c3)?,
-            v_neg: integers(readings, "v_neg", &mut c4)?,
+            i_in,
+            i_out,
+            v_pos,
+            v_neg,
             current_a: floats(readings, "current_A", &mut s3)?,
             voltage_v: floats(readings, "voltage_V", &mut s4)?,
         };
@@ -881,5 +962,86 @@ mod tests {
             panic!("a negative sheet calibration is refused")
         };
         assert!(message.contains("field_calibration_rel of sample \"w1\""), "{message}");
+    }
+
+    /// The readings with the four contact columns replaced by `contacts` in pair notation.
+    fn with_contacts_notation(frame: &DataFrame) -> DataFrame {
+        let contact = |name: &str| frame.column(name).unwrap().i64().unwrap().clone();
+        let (a, b, c, d) = (contact("i_in"), contact("i_out"), contact("v_pos"), contact("v_neg"));
+        let notation: Vec<String> = (0..frame.height())
+            .map(|row| {
+                format!(
+                    "{}{},{}{}",
+                    a.get(row).unwrap(),
+                    b.get(row).unwrap(),
+                    c.get(row).unwrap(),
+                    d.get(row).unwrap()
+                )
+            })
+            .collect();
+        let mut converted = frame.drop_many(["i_in", "i_out", "v_pos", "v_neg"]);
+        converted.with_column(Column::new("contacts".into(), notation)).unwrap();
+        converted
+    }
+
+    fn run_readings(readings: DataFrame) -> Result<AnalysisOutput, AnalysisError> {
+        let inputs = Inputs::from_tables([("readings".to_owned(), readings)]);
+        run_typed::<HallReduce>("{}", &inputs, &Host::detached())
+    }
+
+    #[test]
+    fn contacts_in_pair_notation_reduce_like_the_four_columns() {
+        let four = run_readings(readings_frame()).unwrap();
+        let notation_frame = with_contacts_notation(&readings_frame());
+        assert!(notation_frame.column("i_in").is_err());
+        let notation = run_readings(notation_frame.clone()).unwrap();
+        for column in ["sheet_resistance_ohm_sq", "sheet_density_m2", "hall_mobility_m2_per_Vs"] {
+            assert_eq!(
+                four.table.column(column).unwrap().f64().unwrap().get(0),
+                notation.table.column(column).unwrap().f64().unwrap().get(0),
+                "{column}"
+            );
+        }
+        // Both given and agreeing is fine; disagreeing names the reading.
+        let mut both = readings_frame();
+        both.with_column(notation_frame.column("contacts").unwrap().clone())
+            .unwrap();
+        assert!(run_readings(both.clone()).is_ok());
+        let mut cells: Vec<String> = notation_frame
+            .column("contacts")
+            .unwrap()
+            .str()
+            .unwrap()
+            .iter()
+            .map(|c| c.unwrap().to_owned())
+            .collect();
+        let first = cells[0].clone();
+        cells[0] = format!("{},{}", &first[3..5], &first[0..2]);
+        both.with_column(Column::new("contacts".into(), cells.clone())).unwrap();
+        let Err(AnalysisError::InvalidInput(message)) = run_readings(both) else {
+            panic!("disagreeing contacts are refused")
+        };
+        assert!(message.starts_with("reading 0: `contacts` says i_in"), "{message}");
+        // A malformed cell names its reading and the expected form.
+        cells[0] = "21;3".into();
+        let mut malformed = notation_frame.clone();
+        malformed.with_column(Column::new("contacts".into(), cells)).unwrap();
+        let Err(AnalysisError::InvalidInput(message)) = run_readings(malformed) else {
+            panic!("a malformed cell is refused")
+        };
+        assert!(
+            message.starts_with("reading 0: `21;3` is not a contact configuration"),
+            "{message}"
+        );
+        assert!(message.contains("\"21,34\""), "{message}");
+        // Neither form: the message names both.
+        let bare = notation_frame.drop("contacts").unwrap();
+        let Err(AnalysisError::InvalidInput(message)) = run_readings(bare) else {
+            panic!("readings without contacts are refused")
+        };
+        assert!(
+            message.contains("either a `contacts` column") && message.contains("i_in, i_out, v_pos, v_neg missing"),
+            "{message}"
+        );
     }
 }

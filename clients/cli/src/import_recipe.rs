@@ -1,0 +1,329 @@
+//! Import recipes: how one station writes its files, written once.
+//!
+//! A recipe is a TOML file with the keys of `dataset.import` that describe a file's layout:
+//!
+//! ```toml
+//! format = "csv"
+//! csv = { separator = ";", decimal_comma = true, comment_prefix = "#" }
+//!
+//! [rename]                       # source header = new name; applied first
+//! "Sample ID" = "sample"
+//! "T (C)" = "temperature_C"
+//!
+//! [units]                        # column (after rename) = unit
+//! temperature_C = "degC"
+//! ```
+//!
+//! `mobilis import NAME PATH --recipe station.toml` reads it; flags given beside it add to
+//! it and win over it (`--rename`, `--unit`, `--separator`, `--decimal-comma`,
+//! `--comment-prefix`, `--skip-rows`, `--no-header`, `--format`). The `[[import]]` tables of
+//! a pipeline file take the same keys, and `recipe = "station.toml"` (relative to the
+//! pipeline file) beside them.
+
+use anyhow::{bail, Context};
+use serde::Deserialize;
+use serde_json::{json, Value};
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+/// The layout of a lab's file: the keys of `dataset.import` besides name and path.
+#[derive(Debug, Default, Clone, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct ImportRecipe {
+    /// csv, parquet or ipc.
+    #[serde(default)]
+    pub format: Option<String>,
+    /// Source column name = new name.
+    #[serde(default)]
+    pub rename: BTreeMap<String, String>,
+    /// Column (after rename) = unit, or = { unit, to }.
+    #[serde(default)]
+    pub units: BTreeMap<String, toml::Value>,
+    #[serde(default)]
+    pub csv: CsvOptions,
+}
+
+/// The CSV dialect; a member left out keeps the daemon's default.
+#[derive(Debug, Default, Clone, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct CsvOptions {
+    #[serde(default)]
+    pub separator: Option<String>,
+    #[serde(default)]
+    pub decimal_comma: Option<bool>,
+    #[serde(default)]
+    pub comment_prefix: Option<String>,
+    #[serde(default)]
+    pub skip_rows: Option<u32>,
+    #[serde(default)]
+    pub header: Option<bool>,
+}
+
+/// The import flags of `mobilis import`.
+#[derive(clap::Args, Debug, Default, Clone)]
+pub struct ImportFlags {
+    /// A TOML file with the keys format, rename, units and csv = {...}, so that a station's
+    /// layout is written once; the flags below add to it and win over it.
+    #[arg(long, value_name = "FILE.toml")]
+    pub recipe: Option<PathBuf>,
+    /// csv, parquet or ipc; default: from the file's extension.
+    #[arg(long)]
+    pub format: Option<String>,
+    /// Rename a column before units apply, any column, text ones too (repeatable). Split at
+    /// the first `=`: --rename 'T (C)=temperature_C' --rename 'Sample ID=sample'.
+    #[arg(long = "rename", value_name = "SOURCE=NEW", value_parser = parse_pair)]
+    pub rename: Vec<(String, String)>,
+    /// Convert a column into SI, named as after --rename (repeatable), e.g. --unit
+    /// temperature_C=degC; split at the first `=`.
+    #[arg(long = "unit", value_name = "COLUMN=UNIT", value_parser = parse_pair)]
+    pub units: Vec<(String, String)>,
+    /// CSV: the character between fields, e.g. --separator ';' (or tab); default `,`.
+    #[arg(long, value_name = "CHAR")]
+    pub separator: Option<String>,
+    /// CSV: numbers are written with a decimal comma (1,5); needs a separator other than `,`.
+    #[arg(long)]
+    pub decimal_comma: bool,
+    /// CSV: lines starting with this text are comments, e.g. --comment-prefix '#'.
+    #[arg(long, value_name = "TEXT")]
+    pub comment_prefix: Option<String>,
+    /// CSV: lines to skip at the top of the file, before the header.
+    #[arg(long, value_name = "N")]
+    pub skip_rows: Option<u32>,
+    /// CSV: the file has no header line; the columns are then column_1, column_2, ...
+    #[arg(long)]
+    pub no_header: bool,
+}
+
+/// Splits `key=value` at the first `=` (column names may hold spaces and parentheses;
+/// a name holding `=` itself cannot be given this way, use a recipe file).
+pub fn parse_pair(text: &str) -> Result<(String, String), String> {
+    match text.split_once('=') {
+        Some((key, value)) if !key.trim().is_empty() && !value.trim().is_empty() => {
+            Ok((key.trim().to_owned(), value.trim().to_owned()))
+        }
+        _ => Err(format!("expected NAME=VALUE, got `{text}`")),
+    }
+}
+
+impl ImportRecipe {
+    /// Reads a recipe file.
+    pub fn load(file: &Path) -> anyhow::Result<ImportRecipe> {
+        let text =
+            std::fs::read_to_string(file).with_context(|| format!("cannot read the recipe {}", file.display()))?;
+        toml::from_str(&text).with_context(|| {
+            format!(
+                "{} is not a valid import recipe (keys: format, rename, units, csv)",
+                file.display()
+            )
+        })
+    }
+
+    /// Reads a recipe from a pipeline file's `[[import]]` table without its `name`, `path`
+    /// and `recipe` keys.
+    pub fn from_table(table: toml::Table) -> anyhow::Result<ImportRecipe> {
+        ImportRecipe::deserialize(toml::Value::Table(table)).map_err(|error| {
+            anyhow::anyhow!(
+                "{} (an [[import]] takes name, path, recipe, format, rename, units, csv)",
+                error.message()
+            )
+        })
+    }
+
+    /// This recipe with `other` laid over it: maps merge (other wins per key), set
+    /// options of other replace ours.
+    pub fn overridden_by(mut self, other: ImportRecipe) -> ImportRecipe {
+        if other.format.is_some() {
+            self.format = other.format;
+        }
+        self.rename.extend(other.rename);
+        self.units.extend(other.units);
+        let csv = other.csv;
+        self.csv = CsvOptions {
+            separator: csv.separator.or(self.csv.separator),
+            decimal_comma: csv.decimal_comma.or(self.csv.decimal_comma),
+            comment_prefix: csv.comment_prefix.or(self.csv.comment_prefix),
+            skip_rows: csv.skip_rows.or(self.csv.skip_rows),
+            header: csv.header.or(self.csv.header),
+        };
+        self
+    }
+
+    /// The parameters of `dataset.import` besides name, path and overwrite.
+    pub fn to_params(&self) -> anyhow::Result<serde_json::Map<String, Value>> {
+        let mut params = serde_json::Map::new();
+        if let Some(format) = &self.format {
+            params.insert("format".into(), json!(format));
+        }
+        if !self.rename.is_empty() {
+            params.insert("rename".into(), json!(self.rename));
+        }
+        if !self.units.is_empty() {
+            let units: serde_json::Map<String, Value> = self
+                .units
+                .iter()
+                .map(|(column, unit)| Ok((column.clone(), serde_json::to_value(unit)?)))
+                .collect::<anyhow::Result<_>>()?;
+            params.insert("units".into(), Value::Object(units));
+        }
+        let mut csv = serde_json::Map::new();
+        let c = &self.csv;
+        if let Some(v) = &c.separator {
+            csv.insert("separator".into(), json!(v));
+        }
+        if let Some(v) = c.decimal_comma {
+            csv.insert("decimal_comma".into(), json!(v));
+        }
+        if let Some(v) = &c.comment_prefix {
+            csv.insert("comment_prefix".into(), json!(v));
+        }
+        if let Some(v) = c.skip_rows {
+            csv.insert("skip_rows".into(), json!(v));
+        }
+        if let Some(v) = c.header {
+            csv.insert("header".into(), json!(v));
+        }
+        if !csv.is_empty() {
+            params.insert("csv".into(), Value::Object(csv));
+        }
+        Ok(params)
+    }
+}
+
+impl ImportFlags {
+    /// The recipe the flags describe: the recipe file, if any, with the flags over it.
+    pub fn recipe(&self) -> anyhow::Result<ImportRecipe> {
+        let base = match &self.recipe {
+            Some(file) => ImportRecipe::load(file)?,
+            None => ImportRecipe::default(),
+        };
+        let flags = ImportRecipe {
+            format: self.format.clone(),
+            rename: self.rename.iter().cloned().collect(),
+            units: self
+                .units
+                .iter()
+                .map(|(c, u)| (c.clone(), toml::Value::String(u.clone())))
+                .collect(),
+            csv: CsvOptions {
+                separator: self.separator.clone(),
+                decimal_comma: self.decimal_comma.then_some(true),
+                comment_prefix: self.comment_prefix.clone(),
+                skip_rows: self.skip_rows,
+                header: self.no_header.then_some(false),
+            },
+        };
+        Ok(base.overridden_by(flags))
+    }
+}
+
+/// The `dataset.import` parameters of a pipeline file's `[[import]]` table, whose paths
+/// (`path`, `recipe`) are relative to the pipeline file's directory `base`.
+pub fn pipeline_import(mut table: toml::Table, base: &Path) -> anyhow::Result<(String, Value)> {
+    let mut take_string = |key: &str| -> anyhow::Result<Option<String>> {
+        match table.remove(key) {
+            None => Ok(None),
+            Some(toml::Value::String(text)) => Ok(Some(text)),
+            Some(other) => bail!("`{key}` of an [[import]] must be text, not {}", other.type_str()),
+        }
+    };
+    let Some(name) = take_string("name")? else {
+        bail!("an [[import]] lacks `name` (the dataset name)")
+    };
+    let Some(path) = take_string("path")? else {
+        bail!("[[import]] {name} lacks `path` (the file, relative to the pipeline file)")
+    };
+    let recipe_file = take_string("recipe")?;
+    let inline = ImportRecipe::from_table(table).with_context(|| format!("[[import]] {name}"))?;
+    let recipe = match recipe_file {
+        Some(file) => ImportRecipe::load(&base.join(file))?.overridden_by(inline),
+        None => inline,
+    };
+    let mut params = recipe.to_params()?;
+    params.insert("name".into(), json!(name));
+    params.insert("path".into(), json!(base.join(&path).display().to_string()));
+    params.insert("overwrite".into(), json!(true));
+    Ok((name, Value::Object(params)))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn pairs_split_at_the_first_equals_sign() {
+        assert_eq!(
+            parse_pair("T (C)=temperature_C").unwrap(),
+            ("T (C)".to_owned(), "temperature_C".to_owned())
+        );
+        assert_eq!(parse_pair("a=b=c").unwrap(), ("a".to_owned(), "b=c".to_owned()));
+        assert!(parse_pair("no-equals").is_err());
+        assert!(parse_pair("=x").is_err());
+    }
+
+    #[test]
+    fn flags_add_to_the_recipe_and_win_over_it() {
+        let recipe: ImportRecipe = toml::from_str(
+            r##"
+            csv = { separator = ";", comment_prefix = "#" }
+            [rename]
+            "Sample ID" = "sample"
+            "T (C)" = "temperature_C"
+            [units]
+            temperature_C = "degC"
+            "##,
+        )
+        .unwrap();
+        let flags = ImportRecipe {
+            rename: BTreeMap::from([("T (C)".to_owned(), "temp_C".to_owned())]),
+            csv: CsvOptions {
+                decimal_comma: Some(true),
+                separator: Some("tab".into()),
+                ..CsvOptions::default()
+            },
+            ..ImportRecipe::default()
+        };
+        let params = recipe.overridden_by(flags).to_params().unwrap();
+        assert_eq!(
+            Value::Object(params),
+            json!({
+                "rename": {"Sample ID": "sample", "T (C)": "temp_C"},
+                "units": {"temperature_C": "degC"},
+                "csv": {"separator": "tab", "decimal_comma": true, "comment_prefix": "#"},
+            })
+        );
+    }
+
+    #[test]
+    fn unknown_recipe_keys_are_refused() {
+        assert!(toml::from_str::<ImportRecipe>("separator = \";\"").is_err());
+        assert!(toml::from_str::<ImportRecipe>("csv = { delimiter = \";\" }").is_err());
+    }
+
+    #[test]
+    fn pipeline_imports_take_the_same_keys_and_a_recipe_file() {
+        let directory = tempfile_dir();
+        std::fs::write(
+            directory.join("station.toml"),
+            "csv = { separator = \";\" }\n[units]\nT = \"degC\"\n",
+        )
+        .unwrap();
+        let table: toml::Table =
+            toml::from_str("name = \"r\"\npath = \"r.csv\"\nrecipe = \"station.toml\"\ncsv = { skip_rows = 2 }\n")
+                .unwrap();
+        let (name, params) = pipeline_import(table, &directory).unwrap();
+        assert_eq!(name, "r");
+        assert_eq!(params["csv"], json!({"separator": ";", "skip_rows": 2}));
+        assert_eq!(params["units"], json!({"T": "degC"}));
+        assert!(params["path"].as_str().unwrap().ends_with("r.csv"));
+        let table: toml::Table = toml::from_str("name = \"r\"\npath = \"r.csv\"\ncolour = 1\n").unwrap();
+        let error = format!("{:#}", pipeline_import(table, &directory).unwrap_err());
+        assert!(error.contains("colour"), "{error}");
+        std::fs::remove_dir_all(&directory).unwrap();
+    }
+
+    fn tempfile_dir() -> PathBuf {
+        let directory = std::env::temp_dir().join(format!("mobilis-recipe-test-{}", std::process::id()));
+        std::fs::create_dir_all(&directory).unwrap();
+        directory
+    }
+}

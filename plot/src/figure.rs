@@ -134,6 +134,15 @@ impl Series {
     }
 }
 
+/// The order in which both renderers draw a panel's series: markers (with their error bars)
+/// first, lines after them, so that a fitted line is never hidden under the points it was
+/// fitted to. Within each, the recipe's order.
+pub(crate) fn drawing_order(series: &[Series]) -> Vec<&Series> {
+    let mut order: Vec<&Series> = series.iter().filter(|s| !s.is_line()).collect();
+    order.extend(series.iter().filter(|s| s.is_line()));
+    order
+}
+
 /// An axis title: the quantity and its unit, both in markup.
 #[derive(Debug, Clone, PartialEq)]
 pub(crate) struct Label {

@@ -53,6 +53,12 @@ pub struct PlotOptions {
     pub log_x: Option<bool>,
     pub log_y: Option<bool>,
     pub title: Option<String>,
+    /// The rows the caller kept, as (column, value) pairs: the daemon's `filter`. The title
+    /// names them ("... (sample = W1)"), so that a figure of part of a dataset says which
+    /// part it shows. Not a request parameter of its own: `plot.render` fills it from
+    /// `filter`.
+    #[serde(skip)]
+    pub selection: Vec<(String, String)>,
     /// Size of one panel in pixels (default 640 x 420); figures of several panels tile them.
     pub width: Option<f64>,
     pub height: Option<f64>,
@@ -158,6 +164,30 @@ fn size(name: &str, value: Option<f64>, default: f64) -> Result<f64, PlotError> 
     }
 }
 
+/// "sample = W1, temperature = 300 K": the kept rows as a reader names them, quantities by
+/// their name and displayed unit; None without a selection.
+fn selection_text(selection: &[(String, String)]) -> Option<String> {
+    if selection.is_empty() {
+        return None;
+    }
+    let parts: Vec<String> = selection
+        .iter()
+        .map(|(column, value)| {
+            let display = units::column_display(column);
+            let number = value.trim().parse::<f64>().ok().filter(|v| v.is_finite());
+            match (number, &display.unit) {
+                (Some(number), Some(unit)) => format!(
+                    "{} = {} {unit}",
+                    display.name,
+                    figure::format_value(number * display.factor + display.offset)
+                ),
+                _ => format!("{column} = {value}"),
+            }
+        })
+        .collect();
+    Some(parts.join(", "))
+}
+
 /// Builds the figure of `frame` (named `dataset` in titles and messages) that `options` ask
 /// for.
 pub fn build(frame: &DataFrame, dataset: &str, options: &PlotOptions) -> Result<Figure, PlotError> {
@@ -196,10 +226,13 @@ pub fn build(frame: &DataFrame, dataset: &str, options: &PlotOptions) -> Result<
             panel.y.log = log;
         }
     }
-    let title = match &options.title {
+    let mut title = match &options.title {
         Some(title) if !title.trim().is_empty() => title.clone(),
         _ => format!("{} — {dataset}", drawing.title),
     };
+    if let Some(selection) = selection_text(&options.selection) {
+        title = format!("{title} ({selection})");
+    }
     let mut figure = Figure {
         kind: recipe.name.to_owned(),
         title,

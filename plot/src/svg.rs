@@ -320,10 +320,9 @@ fn render_panel(out: &mut String, figure: &Figure, panel: &Panel, index: usize, 
     }
     out.push_str("</g>");
 
-    // Series: lines first, so that markers stay on top of fits.
-    let mut order: Vec<&crate::figure::Series> = panel.series.iter().filter(|s| s.is_line()).collect();
-    order.extend(panel.series.iter().filter(|s| !s.is_line()));
-    for series in order {
+    // Series: markers first, lines last, so that a fitted line stays visible through the
+    // points it was fitted to.
+    for series in crate::figure::drawing_order(&panel.series) {
         if series.drawn_points() == 0 {
             continue;
         }

@@ -508,9 +508,9 @@ fn arrhenius_frame(exponent: f64) -> DataFrame {
     table(vec![
         floats("temperature_K", t.clone()),
         floats("inverse_thermal_energy_per_eV", inverse_kt),
-        floats("reduced_ln_density", reduced),
-        floats("reduced_ln_density_unc", vec![0.02; t.len()]),
-        floats("line", line),
+        floats("ln_reduced_density_m3", reduced),
+        floats("ln_reduced_density_m3_unc", vec![0.02; t.len()]),
+        floats("ln_reduced_density_fit_m3", line),
         Column::new("used".into(), used),
         floats("temperature_exponent", vec![exponent; t.len()]),
     ])
@@ -532,7 +532,7 @@ fn arrhenius_marks_the_fitted_points_and_draws_the_line() {
     // n in cm^-3: ln(n / cm^-3) = ln(n / m^-3) - ln(1e6).
     let shown = vega_values(&spec, "in fit", "y");
     let stored = frame
-        .column("reduced_ln_density")
+        .column("ln_reduced_density_m3")
         .unwrap()
         .f64()
         .unwrap()

@@ -12,13 +12,15 @@
 
 use mobilis_core::units::customary_display;
 
-/// How a column is shown: displayed = SI value * `factor`, in `unit` (markup), with a readable
-/// `name` taken from the column's stem.
+/// How a column is shown: displayed = SI value * `factor` + `offset`, in `unit` (markup), with
+/// a readable `name` taken from the column's stem. The offset is zero except for the logarithm
+/// of a density (`ln_..._m3`, shown as ln(n / cm^-3)); uncertainties take the factor alone.
 #[derive(Debug, Clone, PartialEq)]
 pub(crate) struct ColumnDisplay {
     pub name: String,
     pub unit: Option<String>,
     pub factor: f64,
+    pub offset: f64,
 }
 
 /// Suffixes that `customary_display` would misread (`x_T_per_ohm` is no resistance) or does
@@ -55,21 +57,37 @@ pub(crate) fn column_display(column: &str) -> ColumnDisplay {
                 name: with_unc(base),
                 unit: Some(unit.to_owned()),
                 factor,
+                offset: 0.0,
             };
         }
     }
-    if let Some(display) = customary_display(stem) {
+    if let Some(display) = customary_display(column) {
+        if let Some(inner) = stem.strip_prefix("ln_") {
+            // ln(n / cm^-3): the unit belongs inside the logarithm, so it goes in the name.
+            let (base, unit) = match inner.strip_suffix("_m2") {
+                Some(base) => (base, "cm^{−2}"),
+                None => (inner.strip_suffix("_m3").unwrap_or(inner), "cm^{−3}"),
+            };
+            return ColumnDisplay {
+                name: with_unc(&format!("ln {base} (n in {unit})")),
+                unit: None,
+                factor: display.factor,
+                offset: display.offset,
+            };
+        }
         let base = strip_display_suffix(stem);
         return ColumnDisplay {
             name: with_unc(base),
             unit: Some(unit_markup(display.unit_label)),
             factor: display.factor,
+            offset: display.offset,
         };
     }
     ColumnDisplay {
         name: with_unc(stem),
         unit: None,
         factor: 1.0,
+        offset: 0.0,
     }
 }
 

@@ -142,6 +142,17 @@ impl Service {
             ServiceError::invalid_params(format!("plot.render: {error}"))
                 .with_help("see rpc.discover for the parameters of plot.render")
         })?;
+        // The title names the rows kept, so that a figure of part of a dataset says so.
+        options.selection = filter
+            .iter()
+            .map(|(column, value)| {
+                let text = match value {
+                    Value::String(text) => text.clone(),
+                    other => other.to_string(),
+                };
+                (column.clone(), text)
+            })
+            .collect();
         let dataset = self.store.get(&dataset_name)?;
         if options.analysis.is_none() {
             options.analysis = producing_analysis(&dataset.manifest.provenance);

@@ -133,6 +133,11 @@ enum Command {
         /// y column (repeatable), for kind `columns`.
         #[arg(long)]
         y: Vec<String>,
+        /// Column whose values make separate series (repeatable), e.g. --series-by sample
+        /// --series-by field_T; temperatures and fields count by their nominal values
+        /// (0.4997 T and 0.5002 T are one series "0.5 T"). Default: the figure kind's choice.
+        #[arg(long = "series-by", value_name = "COLUMN")]
+        series_by: Vec<String>,
         /// SVG file to write (default: <dataset>[-<kind>].svg).
         #[arg(long)]
         out: Option<PathBuf>,
@@ -356,6 +361,7 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             filter,
             x,
             y,
+            series_by,
             out,
             vega_lite,
             list,
@@ -385,6 +391,9 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             }
             if !y.is_empty() {
                 params["y"] = json!(y);
+            }
+            if !series_by.is_empty() {
+                params["series_by"] = json!(series_by);
             }
             let figure = client.call("plot.render", params).await?;
             let kind = figure["kind"].as_str().unwrap_or("plot");

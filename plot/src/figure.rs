@@ -288,12 +288,12 @@ impl Figure {
         &self.title
     }
 
-    /// Panels per row: one or two, three from five panels on, so that panels stay legible.
+    /// Panels per row: one, or two side by side, never more, so that a figure of several
+    /// panels stays about 1000 px wide and its text legible there.
     pub(crate) fn columns(&self) -> usize {
         match self.panels.len() {
             0 | 1 => 1,
-            2..=4 => 2,
-            _ => 3,
+            _ => 2,
         }
     }
 

@@ -59,7 +59,8 @@ pub struct PlotOptions {
     /// `filter`.
     #[serde(skip)]
     pub selection: Vec<(String, String)>,
-    /// Size of one panel in pixels (default 640 x 420); figures of several panels tile them.
+    /// Size of one panel in pixels (default 640 x 420 for a figure of one panel, 500 x 400
+    /// for figures of several, which tile them two to a row, 1000 px wide).
     pub width: Option<f64>,
     pub height: Option<f64>,
 }
@@ -153,6 +154,10 @@ pub fn kinds_for(analysis: Option<&str>) -> Vec<&'static str> {
 
 const DEFAULT_WIDTH: f64 = 640.0;
 const DEFAULT_HEIGHT: f64 = 420.0;
+/// The panel size of figures of several panels: two side by side make 1000 px, the width a
+/// report gives them, so that their text is drawn at its own size.
+const DEFAULT_MULTI_WIDTH: f64 = 500.0;
+const DEFAULT_MULTI_HEIGHT: f64 = 400.0;
 
 fn size(name: &str, value: Option<f64>, default: f64) -> Result<f64, PlotError> {
     match value {
@@ -191,8 +196,8 @@ fn selection_text(selection: &[(String, String)]) -> Option<String> {
 /// Builds the figure of `frame` (named `dataset` in titles and messages) that `options` ask
 /// for.
 pub fn build(frame: &DataFrame, dataset: &str, options: &PlotOptions) -> Result<Figure, PlotError> {
-    let width = size("width", options.width, DEFAULT_WIDTH)?;
-    let height = size("height", options.height, DEFAULT_HEIGHT)?;
+    size("width", options.width, DEFAULT_WIDTH)?;
+    size("height", options.height, DEFAULT_HEIGHT)?;
     let kind = match options.kind.as_deref().map(str::trim) {
         None | Some("") | Some("auto") => kinds_for(options.analysis.as_deref())[0],
         Some(kind) => kind,
@@ -217,6 +222,13 @@ pub fn build(frame: &DataFrame, dataset: &str, options: &PlotOptions) -> Result<
         recipe,
     };
     let drawing = (recipe.build)(&context)?;
+    let (default_width, default_height) = if drawing.panels.len() > 1 {
+        (DEFAULT_MULTI_WIDTH, DEFAULT_MULTI_HEIGHT)
+    } else {
+        (DEFAULT_WIDTH, DEFAULT_HEIGHT)
+    };
+    let width = size("width", options.width, default_width)?;
+    let height = size("height", options.height, default_height)?;
     let mut panels = drawing.panels;
     for panel in &mut panels {
         if let Some(log) = options.log_x {

@@ -192,7 +192,13 @@ pub(crate) fn render(figure: &Figure) -> Value {
     top.insert("usermeta".into(), json!({"mobilis_kind": figure.kind}));
     top.insert(
         "config".into(),
-        json!({"font": "DejaVu Sans, Helvetica Neue, Arial, sans-serif"}),
+        json!({
+            "font": "DejaVu Sans, Helvetica Neue, Arial, sans-serif",
+            "title": {"fontSize": crate::svg::TITLE_FONT},
+            "axis": {"labelFontSize": crate::svg::TICK_FONT, "titleFontSize": crate::svg::AXIS_TITLE_FONT},
+            "legend": {"labelFontSize": crate::svg::LEGEND_FONT},
+            "header": {"labelFontSize": crate::svg::PANEL_TITLE_FONT},
+        }),
     );
     if figure.panels.len() == 1 {
         top.extend(panel_spec(&figure.panels[0], figure.panel_width, figure.panel_height));

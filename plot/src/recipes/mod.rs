@@ -163,10 +163,17 @@ pub(crate) static RECIPES: &[Recipe] = &[
     },
     Recipe {
         name: "dingle",
-        description: "Dingle plot: ln(A sinh X / X) against 1/B at the reference temperature, with error bars (rows of kind dingle).",
+        description: "Dingle plot: ln(A sinh X / X) against 1/B at the reference temperature, with error bars (rows of kind dingle), and the fitted line whose slope gives T_D (rows of kind dingle_fit).",
         analyses: &["mr.oscillations"],
         needs: "kind, inverse_field_per_T and dingle_ordinate",
         build: sweeps::dingle,
+    },
+    Recipe {
+        name: "landau_fan",
+        description: "Landau fan: the Landau level index of each extremum of rho_xx against 1/B (minima filled at integers, maxima open at half-integers, rows of kind landau) and the fitted line from 1/B = 0, slope F and intercept beta (rows of kind landau_fit); needs mr.oscillations with landau_fan: true.",
+        analyses: &["mr.oscillations"],
+        needs: "kind, inverse_field_per_T and landau_index",
+        build: sweeps::landau_fan,
     },
     Recipe {
         name: "weak_localization",

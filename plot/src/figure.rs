@@ -100,6 +100,9 @@ pub(crate) struct Series {
     pub mark: Mark,
     pub points: Vec<Point>,
     pub runs: Vec<Vec<Point>>,
+    /// A line that sets the y range as measured points do (see [`extents`]): the Landau
+    /// fan's line, whose value at 1/B = 0 is read off the figure.
+    pub sets_range: bool,
 }
 
 impl Series {
@@ -110,6 +113,7 @@ impl Series {
             mark: Mark::Points { shape, filled },
             points,
             runs: Vec::new(),
+            sets_range: false,
         }
     }
 
@@ -122,7 +126,14 @@ impl Series {
             mark: Mark::Line { dash, width: 1.8 },
             points,
             runs: Vec::new(),
+            sets_range: false,
         }
+    }
+
+    /// The same series, setting the y range even as a line beside measured points.
+    pub fn setting_range(mut self) -> Series {
+        self.sets_range = true;
+        self
     }
 
     pub fn is_line(&self) -> bool {
@@ -477,7 +488,7 @@ fn extents(series: &[Series]) -> (Vec<f64>, Vec<f64>) {
     let has_points = series.iter().any(|s| !s.is_line() && s.drawn_points() > 0);
     let (mut xs, mut ys) = (Vec::new(), Vec::new());
     for s in series {
-        let sets_y = !has_points || !s.is_line();
+        let sets_y = !has_points || !s.is_line() || s.sets_range;
         for point in s.runs.iter().flatten() {
             xs.push(point.x);
             if let Some(e) = point.x_err {

@@ -800,7 +800,9 @@ fn oscillation_frame() -> DataFrame {
     let inverse_field = cells[2].clone();
     let dingle: Vec<Option<f64>> = (0..rows)
         .map(|r| match kind[r] {
-            "dingle" => Some(-1.0 - 3.0 * r as f64 / rows as f64),
+            "dingle" => Some(
+                DINGLE_INTERCEPT + DINGLE_SLOPE * inverse_field[r].unwrap() + if r % 2 == 0 { 0.03 } else { -0.03 },
+            ),
             "dingle_fit" => Some(DINGLE_INTERCEPT + DINGLE_SLOPE * inverse_field[r].unwrap()),
             _ => None,
         })
@@ -1094,6 +1096,27 @@ fn write_samples_when_asked() {
             "resistivity_fit",
             build(&tensor_frame(), "inas-two-band", &options("resistivity_fit")).unwrap(),
         ),
+        (
+            "dingle",
+            build(&oscillation_frame(), "hemt-oscillations", &options("dingle")).unwrap(),
+        ),
+        (
+            "landau_fan",
+            build(&oscillation_frame(), "hemt-oscillations", &options("landau_fan")).unwrap(),
+        ),
+        (
+            "hall_density_jittered",
+            build(
+                &jittered_hall_frame(),
+                "si-hall",
+                &PlotOptions {
+                    series_by: Some(vec!["sample".into(), "field_T".into()]),
+                    selection: vec![("field_T".into(), "0.5".into())],
+                    ..options("hall_density")
+                },
+            )
+            .unwrap(),
+        ),
     ];
     for (name, figure) in figures {
         std::fs::write(format!("{folder}/{name}.svg"), figure.to_svg()).unwrap();
@@ -1303,6 +1326,9 @@ fn landau_fan_draws_the_extrema_and_a_line_whose_slope_is_the_frequency() {
     let (x, y) = (vega_values(&spec, name, "x"), vega_values(&spec, name, "y"));
     assert_eq!(x[0], 0.0, "the line starts at 1/B = 0");
     assert!(close(y[0], LANDAU_BETA, 1e-12));
+    // The y axis reaches down to the line's intercept, which the figure is read for.
+    let domain = &vega_layers(&spec)[0]["encoding"]["y"]["scale"]["domain"];
+    assert!(domain[0].as_f64().unwrap() <= LANDAU_BETA, "{domain}");
     let slope = (y[1] - y[0]) / (x[1] - x[0]);
     assert!(close(slope, LANDAU_F, 1e-9), "{slope}");
     // Every extremum lies on the line.

@@ -512,12 +512,11 @@ pub(crate) fn landau_fan(ctx: &Context) -> Result<Drawing, PlotError> {
             false,
             points(&maxima, &inverse_field, &index, None),
         ));
-        series.push(Series::line(
-            named(group, groups.len(), &fit_name),
-            k,
-            Dash::Solid,
-            line,
-        ));
+        series.push(
+            Series::line(named(group, groups.len(), &fit_name), k, Dash::Solid, line)
+                // The line sets the range too: its value at 1/B = 0 is the phase offset beta.
+                .setting_range(),
+        );
     }
     Ok(Drawing::single(
         "Landau fan",

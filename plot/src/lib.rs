@@ -169,6 +169,19 @@ fn size(name: &str, value: Option<f64>, default: f64) -> Result<f64, PlotError> 
     }
 }
 
+/// Whether a stored `value` of `column` is the nominal `target` a person typed: within a
+/// setpoint's tolerance for `temperature_K` (the sweep grouping's gap at the target, the larger
+/// of 0.05 K and 0.5 % of T) and `field_T` (5 mT), the widths that name series "300 K" or
+/// "0.5 T"; to a relative 1e-9 for any other column, so that 300 matches 300.0000000001.
+pub fn matches_nominal(column: &str, value: f64, target: f64) -> bool {
+    let tolerance = match column {
+        "temperature_K" => mobilis_core::sweep_table::TemperatureGrouping::default().allowed_gap_k(target),
+        "field_T" => recipes::FIELD_SETPOINT_T,
+        _ => 1e-9 * target.abs().max(1e-300),
+    };
+    (value - target).abs() <= tolerance
+}
+
 /// "sample = W1, temperature = 300 K": the kept rows as a reader names them, quantities by
 /// their name and displayed unit; None without a selection.
 fn selection_text(selection: &[(String, String)]) -> Option<String> {

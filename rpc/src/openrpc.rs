@@ -136,7 +136,7 @@ pub const METHODS: &[MethodDoc] = &[
         params: &[
             ("dataset", true, STRING, "dataset name"),
             ("kind", false, STRING, "a kind from plot.kinds; default: the first kind for the analysis that made the dataset, else `columns`"),
-            ("filter", false, r#"{"type": "object", "additionalProperties": {"type": ["string", "number", "boolean"]}}"#, "keep rows whose columns equal these values, for example {\"sample\": \"W1\"}; the title names them"),
+            ("filter", false, r#"{"type": "object", "additionalProperties": {"type": ["string", "number", "boolean"]}}"#, "keep rows whose columns equal these values, for example {\"sample\": \"W1\"} (temperature_K and field_T within their setpoint's tolerance); the title names them"),
             ("format", false, r#"{"type": "string", "enum": ["svg", "vega-lite", "both"], "default": "both"}"#, "which renderings to return"),
             ("x", false, STRING, "x column, for kind `columns`"),
             ("y", false, r#"{"type": "array", "items": {"type": "string"}}"#, "y column(s), for kind `columns`"),

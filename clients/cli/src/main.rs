@@ -124,7 +124,9 @@ enum Command {
         /// Figure kind (see `mobilis plot --list`); default: the one that suits the analysis that made the dataset.
         #[arg(long)]
         kind: Option<String>,
-        /// Keep only rows where column=value (repeatable), e.g. --where sample=W1.
+        /// Keep only rows where column=value (repeatable), e.g. --where sample=W1; temperature_K
+        /// and field_T match their nominal value (--where field_T=0.5 keeps 0.4997 T). The
+        /// figure's title names the rows kept.
         #[arg(long = "where", value_parser = parse_key_value)]
         filter: Vec<(String, String)>,
         /// x column, for kind `columns`.

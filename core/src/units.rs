@@ -833,7 +833,18 @@ const LN_PER_SQUARE_CENTIMETRE: Unit = Unit::new(Dimensionless, "ln cm^-2", 1.0,
 /// holding ln(n / cm^-3): the same number less ln(1e6) (ln(1e4)), with `offset` set; its
 /// `_unc` is unchanged.
 pub fn customary_display(column_name: &str) -> Option<Display> {
-    let (stem, uncertainty) = split_uncertainty(column_name);
+    // The parts of an uncertainty budget (`_unc_stat`, `_unc_sys`) are in the unit of their
+    // value, as `_unc` is.
+    let (stem, uncertainty_suffix) = ["_unc_stat", "_unc_sys", "_unc"]
+        .iter()
+        .find_map(|suffix| {
+            column_name
+                .strip_suffix(suffix)
+                .filter(|stem| !stem.is_empty())
+                .map(|stem| (stem, *suffix))
+        })
+        .unwrap_or((column_name, ""));
+    let uncertainty = !uncertainty_suffix.is_empty();
     if let Some(inner) = stem.strip_prefix("ln_") {
         for (si_suffix, display_suffix, unit) in [
             ("_m3", "_cm3", LN_PER_CUBIC_CENTIMETRE),
@@ -842,10 +853,7 @@ pub fn customary_display(column_name: &str) -> Option<Display> {
             let Some(base) = inner.strip_suffix(si_suffix).filter(|b| !b.is_empty()) else {
                 continue;
             };
-            let mut label = format!("ln_{base}{display_suffix}");
-            if uncertainty {
-                label.push_str("_unc");
-            }
+            let label = format!("ln_{base}{display_suffix}{uncertainty_suffix}");
             return Some(Display {
                 label,
                 unit: if uncertainty { NUMBER } else { unit },
@@ -861,10 +869,7 @@ pub fn customary_display(column_name: &str) -> Option<Display> {
         if base.is_empty() {
             return None;
         }
-        let mut label = format!("{base}_{display_suffix}");
-        if uncertainty {
-            label.push_str("_unc");
-        }
+        let label = format!("{base}_{display_suffix}{uncertainty_suffix}");
         Some(Display {
             label,
             unit,
@@ -1439,5 +1444,23 @@ mod tests {
         assert!(close(display.from_si(1e16f64.ln()), 1e12f64.ln()));
         // Not a density: left alone.
         assert_eq!(customary_display("ln_ratio"), None);
+    }
+
+    #[test]
+    fn the_parts_of_an_uncertainty_budget_are_shown_in_their_values_unit() {
+        for (column, label, factor) in [
+            ("density_m3_unc_stat", "density_cm3_unc_stat", 1e-6),
+            ("density_m3_unc_sys", "density_cm3_unc_sys", 1e-6),
+            ("resistivity_ohm_m_unc_stat", "resistivity_ohm_cm_unc_stat", 100.0),
+            (
+                "hall_mobility_m2_per_Vs_unc_sys",
+                "hall_mobility_cm2_per_Vs_unc_sys",
+                1e4,
+            ),
+        ] {
+            let display = customary_display(column).unwrap();
+            assert_eq!((display.label.as_str(), display.factor), (label, factor), "{column}");
+        }
+        assert_eq!(customary_display("_unc_stat"), None);
     }
 }

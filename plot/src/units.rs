@@ -39,18 +39,21 @@ const LOCAL: &[(&str, &str, f64)] = &[
 
 /// The display of an SI column; a column without a known unit suffix is shown as it is.
 pub(crate) fn column_display(column: &str) -> ColumnDisplay {
-    let (stem, uncertainty) = match column.strip_suffix("_unc") {
-        Some(stem) => (stem, true),
-        None => (column, false),
-    };
-    let with_unc = |name: &str| {
-        let name = name.replace('_', " ");
-        if uncertainty {
-            format!("{name} uncertainty")
-        } else {
-            name
-        }
-    };
+    // An uncertainty and the parts of its budget are shown in the unit of their value.
+    let (stem, which) = [
+        ("_unc_stat", " statistical uncertainty"),
+        ("_unc_sys", " systematic uncertainty"),
+        ("_unc", " uncertainty"),
+    ]
+    .iter()
+    .find_map(|(suffix, which)| {
+        column
+            .strip_suffix(suffix)
+            .filter(|stem| !stem.is_empty())
+            .map(|stem| (stem, *which))
+    })
+    .unwrap_or((column, ""));
+    let with_unc = |name: &str| format!("{}{which}", name.replace('_', " "));
     for &(suffix, unit, factor) in LOCAL {
         if let Some(base) = stem.strip_suffix(suffix).filter(|b| !b.is_empty()) {
             return ColumnDisplay {
@@ -263,6 +266,13 @@ mod tests {
             // (column, name, unit, SI value, displayed value)
             ("density_m3", "density", Some("cm^{−3}"), 1e21, 1e15),
             ("density_m3_unc", "density uncertainty", Some("cm^{−3}"), 2e19, 2e13),
+            (
+                "density_m3_unc_sys",
+                "density systematic uncertainty",
+                Some("cm^{−3}"),
+                2e19,
+                2e13,
+            ),
             ("sheet_density_m2", "sheet density", Some("cm^{−2}"), 5e15, 5e11),
             (
                 "hall_mobility_m2_per_Vs",

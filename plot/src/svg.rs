@@ -211,15 +211,31 @@ fn legend_width(panel: &Panel, panel_width: f64) -> f64 {
 
 /// Legend names are cut with an ellipsis where the legend would take more than about 40 %
 /// of the panel's width (at most 34 characters, at least 14).
-fn truncate(name: &str, panel_width: f64) -> String {
+pub(crate) fn truncate(name: &str, panel_width: f64) -> String {
     let fitting = (0.4 * panel_width - 40.0) / (0.58 * LEGEND_FONT);
     let limit = (fitting.floor() as usize).clamp(14, 34);
-    if name.chars().count() <= limit {
-        name.to_owned()
-    } else {
-        let cut: String = name.chars().take(limit - 1).collect();
-        format!("{cut}…")
+    let runs = parse_markup(name);
+    let visible: usize = runs.iter().map(|(_, run)| run.chars().count()).sum();
+    if visible <= limit {
+        return name.to_owned();
     }
+    // Cut the visible text, keeping the markup of the runs kept whole.
+    let mut left = limit - 1;
+    let mut out = String::new();
+    for (script, run) in runs {
+        if left == 0 {
+            break;
+        }
+        let kept: String = run.chars().take(left).collect();
+        left -= kept.chars().count();
+        match script {
+            Script::Normal => out.push_str(&kept),
+            Script::Super => out.push_str(&format!("^{{{kept}}}")),
+            Script::Sub => out.push_str(&format!("_{{{kept}}}")),
+        }
+    }
+    out.push('…');
+    out
 }
 
 /// The width of the widest labelled y tick.

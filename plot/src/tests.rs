@@ -1483,3 +1483,22 @@ fn no_text_is_under_ten_pixels_at_the_drawn_width() {
         .to_svg()
         .starts_with(r#"<svg xmlns="http://www.w3.org/2000/svg" width="1000""#));
 }
+
+#[test]
+fn long_legend_names_are_cut_in_their_visible_text_and_keep_their_markup() {
+    use crate::svg::truncate;
+    let name = "HEMT-A1, B_{eff} = 6.756 T: Lifshitz-Kosevich fit";
+    // 14 to 34 visible characters, 40 % of the panel.
+    let cut = truncate(name, 500.0);
+    assert!(cut.ends_with('…'), "{cut}");
+    assert!(cut.starts_with("HEMT-A1, B_{eff} = "), "{cut}");
+    assert_eq!(cut.matches('{').count(), cut.matches('}').count(), "{cut}");
+    let visible = crate::units::plain_text(&cut).chars().count();
+    assert!((14..=27).contains(&visible), "{visible}: {cut}");
+    // Short names, and names that fit a wide panel, are left alone.
+    assert_eq!(truncate("W1, 0.5 T", 500.0), "W1, 0.5 T");
+    assert_eq!(
+        truncate("B_{eff} = 6.756 T: LK fit", 640.0),
+        "B_{eff} = 6.756 T: LK fit"
+    );
+}

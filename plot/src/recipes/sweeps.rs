@@ -368,13 +368,19 @@ pub(crate) fn oscillation_mass(ctx: &Context) -> Result<Drawing, PlotError> {
     let mut all = rows.clone();
     all.extend(&fit_rows);
     let groups = ctx.groups(&all, &["sample", "field_T"])?;
+    // The sample is named only when there are several: legends stay short.
+    let several_samples = ctx.has("sample") && {
+        let samples = ctx.texts("sample")?;
+        let first = &samples[all[0]];
+        all.iter().any(|&r| samples[r] != *first)
+    };
     let mut series = Vec::new();
     for (k, group) in groups.iter().enumerate() {
         let data: Vec<usize> = group.rows.iter().copied().filter(|r| rows.contains(r)).collect();
         let fit: Vec<usize> = group.rows.iter().copied().filter(|r| fit_rows.contains(r)).collect();
         let label = match data.first() {
             Some(&r) if group.label.is_empty() || ctx.options.series_by.is_none() => {
-                let sample = if ctx.has("sample") {
+                let sample = if several_samples {
                     ctx.texts("sample")?[r]
                         .clone()
                         .map(|s| format!("{s}, "))

@@ -753,9 +753,12 @@ pub struct Display {
     pub unit: Unit,
     /// The human unit label (`cm^-3`, `cm^2/(V s)`, `ohm cm`, `um`).
     pub unit_label: &'static str,
-    /// Displayed value = SI value * factor (1e-6 for m^-3 -> cm^-3). Display units are pure
-    /// scalings, so the same factor serves values and their uncertainties.
+    /// Displayed value = SI value * factor + offset (factor 1e-6 for m^-3 -> cm^-3). The
+    /// factor alone converts an uncertainty or a difference.
     pub factor: f64,
+    /// Zero except for the logarithm of a density (`ln_..._m3`), which changes unit by a
+    /// shift: ln(n / cm^-3) = ln(n / m^-3) - ln(1e6). Its uncertainty has no offset.
+    pub offset: f64,
 }
 
 impl Display {
@@ -788,6 +791,9 @@ pub fn format_number(value: f64) -> String {
 /// SI suffix, displayed suffix and displayed unit; longer suffixes first, so that `_ohm_m` is
 /// not taken for `_m` nor `_m2_per_Vs` for anything shorter.
 static DISPLAYS: &[(&str, &str, Unit)] = &[
+    // Hall coefficients are quoted in cm^3/C (cm^2/C for a sheet), as densities in cm^-3.
+    ("m3_per_C", "cm3_per_C", CUBIC_CENTIMETRE_PER_COULOMB),
+    ("m2_per_C", "cm2_per_C", SQUARE_CENTIMETRE_PER_COULOMB),
     ("m2_per_Vs", "cm2_per_Vs", SQUARE_CENTIMETRE_PER_VOLT_SECOND),
     ("ohm_sq", "ohm_sq", OHM_PER_SQUARE),
     ("ohm_m", "ohm_cm", OHM_CENTIMETRE),
@@ -802,30 +808,75 @@ static DISPLAYS: &[(&str, &str, Unit)] = &[
     ("V", "V", VOLT),
 ];
 
+/// Hall coefficients in cm^3/C and cm^2/C. They have no quantity of the import table (a lab
+/// file gives densities, not Hall coefficients), so their units count as dimensionless
+/// scalings: 1 cm^3/C = 1e-6 m^3/C, 1 cm^2/C = 1e-4 m^2/C.
+const CUBIC_CENTIMETRE_PER_COULOMB: Unit = Unit::new(Dimensionless, "cm^3/C", 1.0, 1e6, 0.0);
+const SQUARE_CENTIMETRE_PER_COULOMB: Unit = Unit::new(Dimensionless, "cm^2/C", 1.0, 1e4, 0.0);
+
+/// ln(1e6) and ln(1e4): ln(n / cm^-3) = ln(n / m^-3) - ln(1e6), ln(n / cm^-2) = ln(n / m^-2) -
+/// ln(1e4).
+const LN_1E6: f64 = 13.815_510_557_964_274;
+const LN_1E4: f64 = 9.210_340_371_976_184;
+const LN_PER_CUBIC_CENTIMETRE: Unit = Unit::new(Dimensionless, "ln cm^-3", 1.0, 1.0, LN_1E6);
+const LN_PER_SQUARE_CENTIMETRE: Unit = Unit::new(Dimensionless, "ln cm^-2", 1.0, 1.0, LN_1E4);
+
 /// The customary display of an SI column (`_m3`, `_m2`, `_m2_per_Vs`, `_ohm_m`, `_ohm_sq`,
-/// `_ohm`, `_m`, `_K`, `_T`, `_A`, `_V`, each also with `_unc`), or `None` for a column that is
-/// not an SI quantity column (`sample`, `hall_factor`, `density_cm3`).
+/// `_ohm`, `_m`, `_K`, `_T`, `_A`, `_V`, `_m3_per_C`, `_m2_per_C`, each also with `_unc`), or
+/// `None` for a column that is not an SI quantity column (`sample`, `hall_factor`,
+/// `density_cm3`).
 ///
 /// Number densities are shown per cm^3 and cm^2, mobilities in cm^2/(V s), resistivities in
-/// ohm cm and lengths in um; temperatures, fields, currents, voltages and (sheet) resistances
-/// are shown in SI.
+/// ohm cm, Hall coefficients in cm^3/C (cm^2/C) and lengths in um; temperatures, fields,
+/// currents, voltages and (sheet) resistances are shown in SI. The logarithm of a density,
+/// a column `ln_..._m3` (or `ln_..._m2`) holding ln(n / m^-3), is shown as `ln_..._cm3`
+/// holding ln(n / cm^-3): the same number less ln(1e6) (ln(1e4)), with `offset` set; its
+/// `_unc` is unchanged.
 pub fn customary_display(column_name: &str) -> Option<Display> {
-    let (stem, uncertainty) = split_uncertainty(column_name);
+    // The parts of an uncertainty budget (`_unc_stat`, `_unc_sys`) are in the unit of their
+    // value, as `_unc` is.
+    let (stem, uncertainty_suffix) = ["_unc_stat", "_unc_sys", "_unc"]
+        .iter()
+        .find_map(|suffix| {
+            column_name
+                .strip_suffix(suffix)
+                .filter(|stem| !stem.is_empty())
+                .map(|stem| (stem, *suffix))
+        })
+        .unwrap_or((column_name, ""));
+    let uncertainty = !uncertainty_suffix.is_empty();
+    if let Some(inner) = stem.strip_prefix("ln_") {
+        for (si_suffix, display_suffix, unit) in [
+            ("_m3", "_cm3", LN_PER_CUBIC_CENTIMETRE),
+            ("_m2", "_cm2", LN_PER_SQUARE_CENTIMETRE),
+        ] {
+            let Some(base) = inner.strip_suffix(si_suffix).filter(|b| !b.is_empty()) else {
+                continue;
+            };
+            let label = format!("ln_{base}{display_suffix}{uncertainty_suffix}");
+            return Some(Display {
+                label,
+                unit: if uncertainty { NUMBER } else { unit },
+                unit_label: "",
+                factor: 1.0,
+                offset: if uncertainty { 0.0 } else { -unit.offset },
+            });
+        }
+        return None;
+    }
     DISPLAYS.iter().find_map(|&(si_suffix, display_suffix, unit)| {
         let base = stem.strip_suffix(si_suffix)?.strip_suffix('_')?;
         if base.is_empty() {
             return None;
         }
-        let mut label = format!("{base}_{display_suffix}");
-        if uncertainty {
-            label.push_str("_unc");
-        }
+        let label = format!("{base}_{display_suffix}{uncertainty_suffix}");
         Some(Display {
             label,
             unit,
             unit_label: unit.symbol,
             // den / num is exact or correctly rounded: 1 / 1e6 is the double nearest 1e-6.
             factor: unit.den / unit.num,
+            offset: 0.0,
         })
     })
 }
@@ -1359,5 +1410,57 @@ mod tests {
         }
         // 1e23 m^-3 is shown as 1e17 cm^-3 (centimetre definition).
         assert!(close(customary_display("density_m3").unwrap().from_si(1e23), 1e17));
+    }
+
+    #[test]
+    fn hall_coefficients_and_log_densities_are_shown_per_centimetre() {
+        // 1 m^3/C = 1e6 cm^3/C and 1 m^2/C = 1e4 cm^2/C (centimetre definition).
+        let display = customary_display("hall_coefficient_m3_per_C").unwrap();
+        assert_eq!(display.label, "hall_coefficient_cm3_per_C");
+        assert_eq!(display.unit_label, "cm^3/C");
+        assert_eq!((display.factor, display.offset), (1e6, 0.0));
+        assert!(close(display.from_si(-6.25e-4), -625.0));
+        let display = customary_display("hall_coefficient_m3_per_C_unc").unwrap();
+        assert_eq!(display.label, "hall_coefficient_cm3_per_C_unc");
+        let display = customary_display("sheet_hall_coefficient_m2_per_C").unwrap();
+        assert_eq!(display.label, "sheet_hall_coefficient_cm2_per_C");
+        assert!(close(display.from_si(2.5e-3), 25.0));
+
+        // ln(n / cm^-3) = ln(n / m^-3) - ln(1e6): n = 1e21 m^-3 = 1e15 cm^-3.
+        let display = customary_display("ln_reduced_density_m3").unwrap();
+        assert_eq!(display.label, "ln_reduced_density_cm3");
+        let si = 1e21f64.ln();
+        assert!(close(display.from_si(si), 1e15f64.ln()), "{}", display.from_si(si));
+        assert!(close(si * display.factor + display.offset, 1e15f64.ln()));
+        assert!(close(display.to_si(1e15f64.ln()), si));
+        // An uncertainty of a logarithm is a relative one and keeps its value.
+        let display = customary_display("ln_reduced_density_m3_unc").unwrap();
+        assert_eq!(display.label, "ln_reduced_density_cm3_unc");
+        assert_eq!(
+            (display.factor, display.offset, display.from_si(0.02)),
+            (1.0, 0.0, 0.02)
+        );
+        let display = customary_display("ln_sheet_density_m2").unwrap();
+        assert!(close(display.from_si(1e16f64.ln()), 1e12f64.ln()));
+        // Not a density: left alone.
+        assert_eq!(customary_display("ln_ratio"), None);
+    }
+
+    #[test]
+    fn the_parts_of_an_uncertainty_budget_are_shown_in_their_values_unit() {
+        for (column, label, factor) in [
+            ("density_m3_unc_stat", "density_cm3_unc_stat", 1e-6),
+            ("density_m3_unc_sys", "density_cm3_unc_sys", 1e-6),
+            ("resistivity_ohm_m_unc_stat", "resistivity_ohm_cm_unc_stat", 100.0),
+            (
+                "hall_mobility_m2_per_Vs_unc_sys",
+                "hall_mobility_cm2_per_Vs_unc_sys",
+                1e4,
+            ),
+        ] {
+            let display = customary_display(column).unwrap();
+            assert_eq!((display.label.as_str(), display.factor), (label, factor), "{column}");
+        }
+        assert_eq!(customary_display("_unc_stat"), None);
     }
 }

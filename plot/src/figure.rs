@@ -100,6 +100,9 @@ pub(crate) struct Series {
     pub mark: Mark,
     pub points: Vec<Point>,
     pub runs: Vec<Vec<Point>>,
+    /// A line that sets the y range as measured points do (see [`extents`]): the Landau
+    /// fan's line, whose value at 1/B = 0 is read off the figure.
+    pub sets_range: bool,
 }
 
 impl Series {
@@ -110,6 +113,7 @@ impl Series {
             mark: Mark::Points { shape, filled },
             points,
             runs: Vec::new(),
+            sets_range: false,
         }
     }
 
@@ -122,7 +126,14 @@ impl Series {
             mark: Mark::Line { dash, width: 1.8 },
             points,
             runs: Vec::new(),
+            sets_range: false,
         }
+    }
+
+    /// The same series, setting the y range even as a line beside measured points.
+    pub fn setting_range(mut self) -> Series {
+        self.sets_range = true;
+        self
     }
 
     pub fn is_line(&self) -> bool {
@@ -132,6 +143,15 @@ impl Series {
     pub fn drawn_points(&self) -> usize {
         self.runs.iter().map(Vec::len).sum()
     }
+}
+
+/// The order in which both renderers draw a panel's series: markers (with their error bars)
+/// first, lines after them, so that a fitted line is never hidden under the points it was
+/// fitted to. Within each, the recipe's order.
+pub(crate) fn drawing_order(series: &[Series]) -> Vec<&Series> {
+    let mut order: Vec<&Series> = series.iter().filter(|s| !s.is_line()).collect();
+    order.extend(series.iter().filter(|s| s.is_line()));
+    order
 }
 
 /// An axis title: the quantity and its unit, both in markup.
@@ -279,12 +299,12 @@ impl Figure {
         &self.title
     }
 
-    /// Panels per row: one or two, three from five panels on, so that panels stay legible.
+    /// Panels per row: one, or two side by side, never more, so that a figure of several
+    /// panels stays about 1000 px wide and its text legible there.
     pub(crate) fn columns(&self) -> usize {
         match self.panels.len() {
             0 | 1 => 1,
-            2..=4 => 2,
-            _ => 3,
+            _ => 2,
         }
     }
 
@@ -468,7 +488,7 @@ fn extents(series: &[Series]) -> (Vec<f64>, Vec<f64>) {
     let has_points = series.iter().any(|s| !s.is_line() && s.drawn_points() > 0);
     let (mut xs, mut ys) = (Vec::new(), Vec::new());
     for s in series {
-        let sets_y = !has_points || !s.is_line();
+        let sets_y = !has_points || !s.is_line() || s.sets_range;
         for point in s.runs.iter().flatten() {
             xs.push(point.x);
             if let Some(e) = point.x_err {

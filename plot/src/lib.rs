@@ -53,7 +53,14 @@ pub struct PlotOptions {
     pub log_x: Option<bool>,
     pub log_y: Option<bool>,
     pub title: Option<String>,
-    /// Size of one panel in pixels (default 640 x 420); figures of several panels tile them.
+    /// The rows the caller kept, as (column, value) pairs: the daemon's `filter`. The title
+    /// names them ("... (sample = W1)"), so that a figure of part of a dataset says which
+    /// part it shows. Not a request parameter of its own: `plot.render` fills it from
+    /// `filter`.
+    #[serde(skip)]
+    pub selection: Vec<(String, String)>,
+    /// Size of one panel in pixels (default 640 x 420 for a figure of one panel, 500 x 400
+    /// for figures of several, which tile them two to a row, 1000 px wide).
     pub width: Option<f64>,
     pub height: Option<f64>,
 }
@@ -147,6 +154,10 @@ pub fn kinds_for(analysis: Option<&str>) -> Vec<&'static str> {
 
 const DEFAULT_WIDTH: f64 = 640.0;
 const DEFAULT_HEIGHT: f64 = 420.0;
+/// The panel size of figures of several panels: two side by side make 1000 px, the width a
+/// report gives them, so that their text is drawn at its own size.
+const DEFAULT_MULTI_WIDTH: f64 = 500.0;
+const DEFAULT_MULTI_HEIGHT: f64 = 400.0;
 
 fn size(name: &str, value: Option<f64>, default: f64) -> Result<f64, PlotError> {
     match value {
@@ -158,11 +169,48 @@ fn size(name: &str, value: Option<f64>, default: f64) -> Result<f64, PlotError> 
     }
 }
 
+/// Whether a stored `value` of `column` is the nominal `target` a person typed: within a
+/// setpoint's tolerance for `temperature_K` (the sweep grouping's gap at the target, the larger
+/// of 0.05 K and 0.5 % of T) and `field_T` (5 mT), the widths that name series "300 K" or
+/// "0.5 T"; to a relative 1e-9 for any other column, so that 300 matches 300.0000000001.
+pub fn matches_nominal(column: &str, value: f64, target: f64) -> bool {
+    let tolerance = match column {
+        "temperature_K" => mobilis_core::sweep_table::TemperatureGrouping::default().allowed_gap_k(target),
+        "field_T" => recipes::FIELD_SETPOINT_T,
+        _ => 1e-9 * target.abs().max(1e-300),
+    };
+    (value - target).abs() <= tolerance
+}
+
+/// "sample = W1, temperature = 300 K": the kept rows as a reader names them, quantities by
+/// their name and displayed unit; None without a selection.
+fn selection_text(selection: &[(String, String)]) -> Option<String> {
+    if selection.is_empty() {
+        return None;
+    }
+    let parts: Vec<String> = selection
+        .iter()
+        .map(|(column, value)| {
+            let display = units::column_display(column);
+            let number = value.trim().parse::<f64>().ok().filter(|v| v.is_finite());
+            match (number, &display.unit) {
+                (Some(number), Some(unit)) => format!(
+                    "{} = {} {unit}",
+                    display.name,
+                    figure::format_value(number * display.factor + display.offset)
+                ),
+                _ => format!("{column} = {value}"),
+            }
+        })
+        .collect();
+    Some(parts.join(", "))
+}
+
 /// Builds the figure of `frame` (named `dataset` in titles and messages) that `options` ask
 /// for.
 pub fn build(frame: &DataFrame, dataset: &str, options: &PlotOptions) -> Result<Figure, PlotError> {
-    let width = size("width", options.width, DEFAULT_WIDTH)?;
-    let height = size("height", options.height, DEFAULT_HEIGHT)?;
+    size("width", options.width, DEFAULT_WIDTH)?;
+    size("height", options.height, DEFAULT_HEIGHT)?;
     let kind = match options.kind.as_deref().map(str::trim) {
         None | Some("") | Some("auto") => kinds_for(options.analysis.as_deref())[0],
         Some(kind) => kind,
@@ -187,6 +235,13 @@ pub fn build(frame: &DataFrame, dataset: &str, options: &PlotOptions) -> Result<
         recipe,
     };
     let drawing = (recipe.build)(&context)?;
+    let (default_width, default_height) = if drawing.panels.len() > 1 {
+        (DEFAULT_MULTI_WIDTH, DEFAULT_MULTI_HEIGHT)
+    } else {
+        (DEFAULT_WIDTH, DEFAULT_HEIGHT)
+    };
+    let width = size("width", options.width, default_width)?;
+    let height = size("height", options.height, default_height)?;
     let mut panels = drawing.panels;
     for panel in &mut panels {
         if let Some(log) = options.log_x {
@@ -196,10 +251,13 @@ pub fn build(frame: &DataFrame, dataset: &str, options: &PlotOptions) -> Result<
             panel.y.log = log;
         }
     }
-    let title = match &options.title {
+    let mut title = match &options.title {
         Some(title) if !title.trim().is_empty() => title.clone(),
         _ => format!("{} — {dataset}", drawing.title),
     };
+    if let Some(selection) = selection_text(&options.selection) {
+        title = format!("{title} ({selection})");
+    }
     let mut figure = Figure {
         kind: recipe.name.to_owned(),
         title,

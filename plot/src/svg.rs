@@ -11,6 +11,18 @@ use crate::figure::{text_width, Dash, Figure, Mark, Panel, Point, Scale, Shape, 
 use crate::units::{parse_markup, Script};
 
 const FONT: &str = "'DejaVu Sans', 'Helvetica Neue', Arial, sans-serif";
+
+/// Font sizes in pixels. A figure is drawn at its natural width or narrower in a report
+/// (640 px for one panel, 1000 px for two side by side), and no text of it, super- and
+/// subscripts ([`SCRIPT_PERCENT`] of their text) included, may be under 10 px there.
+pub(crate) const TITLE_FONT: f64 = 16.0;
+pub(crate) const MIN_TITLE_FONT: f64 = 12.5;
+pub(crate) const PANEL_TITLE_FONT: f64 = 14.0;
+pub(crate) const AXIS_TITLE_FONT: f64 = 14.0;
+pub(crate) const TICK_FONT: f64 = 13.0;
+pub(crate) const LEGEND_FONT: f64 = 12.5;
+pub(crate) const SCRIPT_PERCENT: f64 = 80.0;
+const LEGEND_ROW: f64 = 19.0;
 const TITLE_BAND: f64 = 34.0;
 const MARGIN_LEFT: f64 = 84.0;
 const MARGIN_BOTTOM: f64 = 54.0;
@@ -46,14 +58,14 @@ fn rich_text(markup: &str) -> String {
             Script::Super => {
                 let _ = write!(
                     out,
-                    r#"<tspan baseline-shift="super" font-size="70%">{}</tspan>"#,
+                    r#"<tspan baseline-shift="super" font-size="{SCRIPT_PERCENT}%">{}</tspan>"#,
                     escape(&run)
                 );
             }
             Script::Sub => {
                 let _ = write!(
                     out,
-                    r#"<tspan baseline-shift="sub" font-size="70%">{}</tspan>"#,
+                    r#"<tspan baseline-shift="sub" font-size="{SCRIPT_PERCENT}%">{}</tspan>"#,
                     escape(&run)
                 );
             }
@@ -185,27 +197,56 @@ fn dash_attribute(dash: Dash) -> String {
 }
 
 /// The width the legend needs, zero without one (a single series needs none).
-fn legend_width(panel: &Panel) -> f64 {
+fn legend_width(panel: &Panel, panel_width: f64) -> f64 {
     let entries = panel.legend();
     if entries.len() < 2 {
         return 0.0;
     }
     let widest = entries
         .iter()
-        .map(|s| text_width(&truncate(&s.name), 11.0))
+        .map(|s| text_width(&truncate(&s.name, panel_width), LEGEND_FONT))
         .fold(0.0, f64::max);
     widest + 40.0
 }
 
-/// Legend names longer than this are cut with an ellipsis.
-fn truncate(name: &str) -> String {
-    const LIMIT: usize = 34;
-    if name.chars().count() <= LIMIT {
-        name.to_owned()
-    } else {
-        let cut: String = name.chars().take(LIMIT - 1).collect();
-        format!("{cut}…")
+/// Legend names are cut with an ellipsis where the legend would take more than about 40 %
+/// of the panel's width (at most 34 characters, at least 14).
+pub(crate) fn truncate(name: &str, panel_width: f64) -> String {
+    let fitting = (0.4 * panel_width - 40.0) / (0.58 * LEGEND_FONT);
+    let limit = (fitting.floor() as usize).clamp(14, 34);
+    let runs = parse_markup(name);
+    let visible: usize = runs.iter().map(|(_, run)| run.chars().count()).sum();
+    if visible <= limit {
+        return name.to_owned();
     }
+    // Cut the visible text, keeping the markup of the runs kept whole.
+    let mut left = limit - 1;
+    let mut out = String::new();
+    for (script, run) in runs {
+        if left == 0 {
+            break;
+        }
+        let kept: String = run.chars().take(left).collect();
+        left -= kept.chars().count();
+        match script {
+            Script::Normal => out.push_str(&kept),
+            Script::Super => out.push_str(&format!("^{{{kept}}}")),
+            Script::Sub => out.push_str(&format!("_{{{kept}}}")),
+        }
+    }
+    out.push('…');
+    out
+}
+
+/// The width of the widest labelled y tick.
+fn y_tick_width(panel: &Panel) -> f64 {
+    panel
+        .y_scale
+        .ticks
+        .iter()
+        .filter_map(|t| t.label.as_deref())
+        .map(|label| text_width(label, TICK_FONT))
+        .fold(0.0, f64::max)
 }
 
 /// Renders the figure.
@@ -218,7 +259,7 @@ pub(crate) fn render(figure: &Figure) -> String {
     let mut out = String::new();
     let _ = write!(
         out,
-        r#"<svg xmlns="http://www.w3.org/2000/svg" width="{w}" height="{h}" viewBox="0 0 {w} {h}" class="mobilis-figure" data-kind="{kind}" font-family="{FONT}" font-size="12">"#,
+        r#"<svg xmlns="http://www.w3.org/2000/svg" width="{w}" height="{h}" viewBox="0 0 {w} {h}" class="mobilis-figure" data-kind="{kind}" font-family="{FONT}" font-size="{TICK_FONT}">"#,
         w = n(width),
         h = n(height),
         kind = escape(&figure.kind),
@@ -235,8 +276,8 @@ pub(crate) fn render(figure: &Figure) -> String {
         n(height)
     );
     // A long title shrinks to the width rather than running off the picture.
-    let natural = text_width(&figure.title, 15.0) * 1.08;
-    let title_size = (15.0 * (width - 24.0) / natural.max(1.0)).clamp(9.0, 15.0);
+    let natural = text_width(&figure.title, TITLE_FONT) * 1.08;
+    let title_size = (TITLE_FONT * (width - 24.0) / natural.max(1.0)).clamp(MIN_TITLE_FONT, TITLE_FONT);
     let _ = write!(
         out,
         r#"<text class="figure-title" x="{}" y="22" text-anchor="middle" font-size="{}" font-weight="600" fill="{AXIS_COLOR}">{}</text>"#,
@@ -255,8 +296,10 @@ pub(crate) fn render(figure: &Figure) -> String {
 
 #[allow(clippy::too_many_arguments)]
 fn render_panel(out: &mut String, figure: &Figure, panel: &Panel, index: usize, ox: f64, oy: f64, id: &str) {
-    let legend = legend_width(panel);
-    let left = MARGIN_LEFT;
+    let legend = legend_width(panel, figure.panel_width);
+    // Room for the widest y tick label and the axis title beside it.
+    let tick_width = y_tick_width(panel);
+    let left = (tick_width + 40.0).max(MARGIN_LEFT);
     let top = MARGIN_TOP;
     let right = figure.panel_width - MARGIN_RIGHT - legend;
     let bottom = figure.panel_height - MARGIN_BOTTOM;
@@ -273,7 +316,7 @@ fn render_panel(out: &mut String, figure: &Figure, panel: &Panel, index: usize, 
     if let Some(title) = &panel.title {
         let _ = write!(
             out,
-            r#"<text class="panel-title" x="{}" y="16" text-anchor="middle" font-size="12.5" fill="{AXIS_COLOR}">{}</text>"#,
+            r#"<text class="panel-title" x="{}" y="16" text-anchor="middle" font-size="{PANEL_TITLE_FONT}" fill="{AXIS_COLOR}">{}</text>"#,
             n(left + pw / 2.0),
             rich_text(title)
         );
@@ -320,10 +363,9 @@ fn render_panel(out: &mut String, figure: &Figure, panel: &Panel, index: usize, 
     }
     out.push_str("</g>");
 
-    // Series: lines first, so that markers stay on top of fits.
-    let mut order: Vec<&crate::figure::Series> = panel.series.iter().filter(|s| s.is_line()).collect();
-    order.extend(panel.series.iter().filter(|s| !s.is_line()));
-    for series in order {
+    // Series: markers first, lines last, so that a fitted line stays visible through the
+    // points it was fitted to.
+    for series in crate::figure::drawing_order(&panel.series) {
         if series.drawn_points() == 0 {
             continue;
         }
@@ -389,7 +431,7 @@ fn render_panel(out: &mut String, figure: &Figure, panel: &Panel, index: usize, 
 
     axes(out, panel, left, top, pw, ph, &x_of, &y_of);
     if legend > 0.0 {
-        legend_block(out, panel, right + 12.0, top);
+        legend_block(out, panel, right + 12.0, top, figure.panel_width);
     }
     if panel.series.iter().all(|s| s.drawn_points() == 0) {
         let _ = write!(
@@ -489,7 +531,7 @@ fn axes(
         if let Some(label) = &tick.label {
             let _ = write!(
                 out,
-                r#"<text class="tick-label" x="{}" y="{}" text-anchor="middle" stroke="none" font-size="11">{}</text>"#,
+                r#"<text class="tick-label" x="{}" y="{}" text-anchor="middle" stroke="none" font-size="{TICK_FONT}">{}</text>"#,
                 n(x),
                 n(bottom + 20.0),
                 rich_text(label)
@@ -498,7 +540,7 @@ fn axes(
     }
     let _ = write!(
         out,
-        r#"<text class="axis-title" x="{}" y="{}" text-anchor="middle" stroke="none" font-size="12.5">{}</text>"#,
+        r#"<text class="axis-title" x="{}" y="{}" text-anchor="middle" stroke="none" font-size="{AXIS_TITLE_FONT}">{}</text>"#,
         n(left + pw / 2.0),
         n(bottom + 42.0),
         rich_text(&panel.x.label.markup())
@@ -527,18 +569,18 @@ fn axes(
         if let Some(label) = &tick.label {
             let _ = write!(
                 out,
-                r#"<text class="tick-label" x="{}" y="{}" text-anchor="end" stroke="none" font-size="11">{}</text>"#,
+                r#"<text class="tick-label" x="{}" y="{}" text-anchor="end" stroke="none" font-size="{TICK_FONT}">{}</text>"#,
                 n(left - 9.0),
                 n(y + 4.0),
                 rich_text(label)
             );
         }
     }
-    let cx = left - 62.0;
+    let cx = (left - 9.0 - y_tick_width(panel) - 14.0).max(12.0);
     let cy = top + ph / 2.0;
     let _ = write!(
         out,
-        r#"<text class="axis-title" x="{}" y="{}" text-anchor="middle" stroke="none" font-size="12.5" transform="rotate(-90 {} {})">{}</text>"#,
+        r#"<text class="axis-title" x="{}" y="{}" text-anchor="middle" stroke="none" font-size="{AXIS_TITLE_FONT}" transform="rotate(-90 {} {})">{}</text>"#,
         n(cx),
         n(cy),
         n(cx),
@@ -548,10 +590,10 @@ fn axes(
     out.push_str("</g>");
 }
 
-fn legend_block(out: &mut String, panel: &Panel, x: f64, top: f64) {
+fn legend_block(out: &mut String, panel: &Panel, x: f64, top: f64, panel_width: f64) {
     let entries = panel.legend();
-    let height = 8.0 + 17.0 * entries.len() as f64;
-    let width = legend_width(panel) - 6.0;
+    let height = 8.0 + LEGEND_ROW * entries.len() as f64;
+    let width = legend_width(panel, panel_width) - 6.0;
     let _ = write!(
         out,
         r##"<g class="legend"><rect x="{}" y="{}" width="{}" height="{}" fill="#ffffff" stroke="#c9ced4" rx="3"/>"##,
@@ -561,7 +603,7 @@ fn legend_block(out: &mut String, panel: &Panel, x: f64, top: f64) {
         n(height)
     );
     for (k, series) in entries.iter().enumerate() {
-        let y = top + 14.0 + 17.0 * k as f64;
+        let y = top + 15.0 + LEGEND_ROW * k as f64;
         let color = PALETTE[series.color % PALETTE.len()];
         let _ = write!(
             out,
@@ -597,10 +639,10 @@ fn legend_block(out: &mut String, panel: &Panel, x: f64, top: f64) {
         }
         let _ = write!(
             out,
-            r##"<text x="{}" y="{}" font-size="11" fill="#222222">{}</text></g>"##,
+            r##"<text x="{}" y="{}" font-size="{LEGEND_FONT}" fill="#222222">{}</text></g>"##,
             n(x + 32.0),
             n(y),
-            rich_text(&truncate(&series.name))
+            rich_text(&truncate(&series.name, panel_width))
         );
     }
     out.push_str("</g>");

@@ -363,9 +363,9 @@ fn hall_density_converts_to_per_cubic_centimetre_on_a_log_axis() {
     let y_axis = elements.iter().find(|e| e.has_class("y-axis")).unwrap();
     assert_eq!(y_axis.attribute("data-scale"), Some("log"));
     // Units with a real superscript, and decade tick labels 10^n.
-    assert!(svg.contains(r#"cm<tspan baseline-shift="super" font-size="70%">−3</tspan>"#));
+    assert!(svg.contains(r#"cm<tspan baseline-shift="super" font-size="80%">−3</tspan>"#));
     assert!(
-        svg.contains(r#">10<tspan baseline-shift="super" font-size="70%">15</tspan>"#),
+        svg.contains(r#">10<tspan baseline-shift="super" font-size="80%">15</tspan>"#),
         "{svg}"
     );
 
@@ -508,9 +508,9 @@ fn arrhenius_frame(exponent: f64) -> DataFrame {
     table(vec![
         floats("temperature_K", t.clone()),
         floats("inverse_thermal_energy_per_eV", inverse_kt),
-        floats("reduced_ln_density", reduced),
-        floats("reduced_ln_density_unc", vec![0.02; t.len()]),
-        floats("line", line),
+        floats("ln_reduced_density_m3", reduced),
+        floats("ln_reduced_density_m3_unc", vec![0.02; t.len()]),
+        floats("ln_reduced_density_fit_m3", line),
         Column::new("used".into(), used),
         floats("temperature_exponent", vec![exponent; t.len()]),
     ])
@@ -532,7 +532,7 @@ fn arrhenius_marks_the_fitted_points_and_draws_the_line() {
     // n in cm^-3: ln(n / cm^-3) = ln(n / m^-3) - ln(1e6).
     let shown = vega_values(&spec, "in fit", "y");
     let stored = frame
-        .column("reduced_ln_density")
+        .column("ln_reduced_density_m3")
         .unwrap()
         .f64()
         .unwrap()
@@ -660,7 +660,7 @@ fn tensor_fits_draw_two_panels_of_data_and_model() {
         assert_eq!(count(&elements, "panel"), 2, "{kind}");
         assert_eq!(count(&elements, "point"), 60, "{kind}");
         assert_eq!(count(&elements, "line"), 2, "{kind}");
-        assert!(svg.contains(r#"<tspan baseline-shift="sub" font-size="70%">xy</tspan>"#));
+        assert!(svg.contains(r#"<tspan baseline-shift="sub" font-size="80%">xy</tspan>"#));
         check_vega(&figure);
     }
 }
@@ -780,9 +780,39 @@ fn oscillation_frame() -> DataFrame {
             [Some(1.5), None, Some(x), None, Some(0.3 * (-3.0 * x).exp()), Some(0.01)],
         );
     }
+    // The fitted Dingle line at the first and last window.
+    for x in [0.12, 0.24] {
+        push("dingle_fit", [Some(1.5), None, Some(x), None, None, None]);
+    }
+    // The Landau fan of F = 10 T and beta = 0.25: minima at integer n, maxima at half-integer
+    // n, where n = F / B + beta; its line from 1/B = 0.
+    for k in 4..12 {
+        let n = 0.5 * k as f64;
+        push(
+            "landau",
+            [Some(1.5), None, Some((n - LANDAU_BETA) / LANDAU_F), None, None, None],
+        );
+    }
+    for x in [0.0, (5.5 - LANDAU_BETA) / LANDAU_F] {
+        push("landau_fit", [Some(1.5), None, Some(x), None, None, None]);
+    }
     let rows = kind.len();
+    let inverse_field = cells[2].clone();
     let dingle: Vec<Option<f64>> = (0..rows)
-        .map(|r| (kind[r] == "dingle").then(|| -1.0 - 3.0 * r as f64 / rows as f64))
+        .map(|r| match kind[r] {
+            "dingle" => Some(
+                DINGLE_INTERCEPT + DINGLE_SLOPE * inverse_field[r].unwrap() + if r % 2 == 0 { 0.03 } else { -0.03 },
+            ),
+            "dingle_fit" => Some(DINGLE_INTERCEPT + DINGLE_SLOPE * inverse_field[r].unwrap()),
+            _ => None,
+        })
+        .collect();
+    let landau_index: Vec<Option<f64>> = (0..rows)
+        .map(|r| {
+            kind[r]
+                .starts_with("landau")
+                .then(|| LANDAU_F * inverse_field[r].unwrap() + LANDAU_BETA)
+        })
         .collect();
     let [t, b, inv, f, value, unc] = cells;
     table(vec![
@@ -794,8 +824,14 @@ fn oscillation_frame() -> DataFrame {
         optional("value_ohm_sq", value),
         optional("value_ohm_sq_unc", unc),
         optional("dingle_ordinate", dingle),
+        optional("landau_index", landau_index),
     ])
 }
+
+const LANDAU_F: f64 = 10.0;
+const LANDAU_BETA: f64 = 0.25;
+const DINGLE_INTERCEPT: f64 = 0.5;
+const DINGLE_SLOPE: f64 = -12.0;
 
 #[test]
 fn oscillation_recipes_pick_their_row_kinds() {
@@ -822,9 +858,20 @@ fn oscillation_recipes_pick_their_row_kinds() {
     assert_eq!(count(&elements, "line"), 3);
 
     let figure = build(&frame, "sdh", &options("dingle")).unwrap();
-    let (_, elements) = checked_svg(&figure);
+    let (svg, elements) = checked_svg(&figure);
     assert_eq!(count(&elements, "point"), 5);
     assert_eq!(count(&elements, "error-bar"), 5);
+    // The fitted line, from the dingle_fit rows, over the windows.
+    assert_eq!(count(&elements, "line"), 1);
+    assert_eq!(series_marks(&svg, "fitted line"), 1);
+    let spec = check_vega(&figure);
+    let (x, y) = (
+        vega_values(&spec, "fitted line", "x"),
+        vega_values(&spec, "fitted line", "y"),
+    );
+    assert_eq!(x, [0.12, 0.24]);
+    let slope = (y[1] - y[0]) / (x[1] - x[0]);
+    assert!(close(slope, DINGLE_SLOPE, 1e-9), "{slope}");
 
     // Without mass rows the mass plot says why.
     let no_mass = frame
@@ -1049,6 +1096,27 @@ fn write_samples_when_asked() {
             "resistivity_fit",
             build(&tensor_frame(), "inas-two-band", &options("resistivity_fit")).unwrap(),
         ),
+        (
+            "dingle",
+            build(&oscillation_frame(), "hemt-oscillations", &options("dingle")).unwrap(),
+        ),
+        (
+            "landau_fan",
+            build(&oscillation_frame(), "hemt-oscillations", &options("landau_fan")).unwrap(),
+        ),
+        (
+            "hall_density_jittered",
+            build(
+                &jittered_hall_frame(),
+                "si-hall",
+                &PlotOptions {
+                    series_by: Some(vec!["sample".into(), "field_T".into()]),
+                    selection: vec![("field_T".into(), "0.5".into())],
+                    ..options("hall_density")
+                },
+            )
+            .unwrap(),
+        ),
     ];
     for (name, figure) in figures {
         std::fs::write(format!("{folder}/{name}.svg"), figure.to_svg()).unwrap();
@@ -1087,5 +1155,350 @@ fn a_crowded_panel_is_thinned_to_its_budget_and_says_so() {
     assert!(
         svg.contains("(1 in 3 of 500 shown)"),
         "the legend says the series are thinned"
+    );
+}
+
+// ---------------------------------------------------------------------------------------
+// Series by nominal setpoints, drawing order, the Landau fan, titles and units.
+
+/// `hall.reduce` output of two samples whose field setpoint wandered: every row's mean field
+/// lies between 0.4997 and 0.5002 T, and the temperatures scatter around their setpoints.
+fn jittered_hall_frame() -> DataFrame {
+    let mut frame = hall_frame();
+    let rows = frame.height();
+    let field: Vec<f64> = (0..rows)
+        .map(|r| 0.4997 + 0.0005 * ((r * 7) % 11) as f64 / 10.0)
+        .collect();
+    let distinct = {
+        let mut f = field.clone();
+        f.sort_by(f64::total_cmp);
+        f.dedup();
+        f.len()
+    };
+    assert!(distinct >= 10, "the fields differ: {distinct}");
+    frame.with_column(floats("field_T", field)).unwrap();
+    frame
+}
+
+fn legend_names(figure: &Figure) -> Vec<String> {
+    let (_, elements) = checked_svg(figure);
+    elements
+        .iter()
+        .filter(|e| e.has_class("legend-entry"))
+        .map(|e| e.attribute("data-series").unwrap().to_owned())
+        .collect()
+}
+
+#[test]
+fn jittered_fields_make_one_series_per_sample_named_by_the_nominal_value() {
+    let frame = jittered_hall_frame();
+    // Default: sample, and the field only where its nominal value varies: two series.
+    let figure = build(&frame, "hall", &options("hall_density")).unwrap();
+    assert_eq!(legend_names(&figure), ["W1", "W2"]);
+    // Asked for by field too: still two, labelled with the nominal field.
+    let by_field = PlotOptions {
+        series_by: Some(vec!["sample".into(), "field_T".into()]),
+        ..options("hall_density")
+    };
+    let figure = build(&frame, "hall", &by_field).unwrap();
+    assert_eq!(legend_names(&figure), ["W1, 0.5 T", "W2, 0.5 T"]);
+    // A second setpoint 0.1 T higher is a series of its own.
+    let mut two_fields = frame.clone();
+    let field: Vec<f64> = frame
+        .column("field_T")
+        .unwrap()
+        .f64()
+        .unwrap()
+        .iter()
+        .enumerate()
+        .map(|(r, b)| b.unwrap() + if r % 2 == 0 { 0.1 } else { 0.0 })
+        .collect();
+    two_fields.with_column(floats("field_T", field)).unwrap();
+    let figure = build(&two_fields, "hall", &options("hall_density")).unwrap();
+    assert_eq!(
+        legend_names(&figure),
+        ["W1, 0.6 T", "W1, 0.5 T", "W2, 0.6 T", "W2, 0.5 T"]
+    );
+}
+
+#[test]
+fn temperatures_group_by_setpoint_and_are_named_by_their_nominal_value() {
+    // Two setpoints whose readings scatter: 299.6-300.4 K and 77.12-77.2 K; a third at 4.2 K.
+    let t = vec![299.6, 300.4, 300.1, 77.12, 77.2, 77.15, 4.2, 4.21];
+    let field: Vec<f64> = (0..t.len()).map(|k| 0.1 * k as f64 - 0.35).collect();
+    let rows = t.len();
+    let frame = table(vec![
+        floats("temperature_K", t),
+        floats("field_T", field),
+        floats("magnetoresistance", vec![0.01; rows]),
+    ]);
+    let figure = build(&frame, "mr", &options("magnetoresistance")).unwrap();
+    assert_eq!(legend_names(&figure), ["300 K", "77 K", "4.2 K"]);
+}
+
+#[test]
+fn nominal_values_are_the_roundest_within_the_tolerance() {
+    use crate::recipes::{nominal_keys, roundest, Setpoint};
+    assert_eq!(roundest(0.49996, 2.5e-3), 0.5);
+    assert_eq!(roundest(0.5002, 2.5e-3), 0.5);
+    assert_eq!(roundest(9.0001, 2.5e-3), 9.0);
+    assert_eq!(roundest(-0.0003, 2.5e-3), 0.0);
+    assert!((roundest(77.31, 0.19) - 77.3).abs() < 1e-12);
+    assert_eq!(roundest(1.998, 0.025), 2.0);
+    // Sub-kelvin setpoints 0.1 K apart stay apart (the sweep grouping allows 0.05 K).
+    let values = [0.3, 0.301, 0.4, 0.5, 1.5];
+    let keys = nominal_keys(&values, &[0, 1, 2, 3, 4], Setpoint::Temperature);
+    let keys: Vec<&str> = keys.iter().map(|k| k.as_deref().unwrap()).collect();
+    assert_eq!(keys, ["0.3", "0.3", "0.4", "0.5", "1.5"]);
+    // Fields: runs no wider than 5 mT, signs kept.
+    let values = [-0.5001, -0.4998, 0.4999, 0.5003, 0.52, 1.0];
+    let keys = nominal_keys(&values, &[0, 1, 2, 3, 4, 5], Setpoint::Field);
+    let keys: Vec<&str> = keys.iter().map(|k| k.as_deref().unwrap()).collect();
+    assert_eq!(keys, ["−0.5", "−0.5", "0.5", "0.5", "0.52", "1"]);
+    // Rows outside the selection get no key.
+    let keys = nominal_keys(&values, &[5], Setpoint::Field);
+    assert_eq!(keys.iter().filter(|k| k.is_some()).count(), 1);
+}
+
+/// In every panel of the SVG, each series group drawn as a line comes after every group of
+/// markers; in Vega-Lite, every line layer after every point layer.
+fn assert_lines_drawn_last(figure: &Figure) {
+    let (_, elements) = checked_svg(figure);
+    let mut panel_marks: Vec<Vec<String>> = Vec::new();
+    for element in &elements {
+        if element.has_class("panel") {
+            panel_marks.push(Vec::new());
+        }
+        if element.has_class("series") {
+            let mark = element.attribute("data-mark").unwrap().to_owned();
+            panel_marks.last_mut().unwrap().push(mark);
+        }
+    }
+    for marks in &panel_marks {
+        let first_line = marks.iter().position(|m| m == "line").expect("a line");
+        let last_points = marks.iter().rposition(|m| m == "points").expect("points");
+        assert!(last_points < first_line, "{marks:?}");
+    }
+    let spec = check_vega(figure);
+    let panels: Vec<&Value> = match spec.get("concat") {
+        Some(panels) => panels.as_array().unwrap().iter().collect(),
+        None => vec![&spec],
+    };
+    for panel in panels {
+        let marks: Vec<&str> = panel["layer"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|l| l["mark"]["type"].as_str().unwrap())
+            .collect();
+        let first_line = marks.iter().position(|m| *m == "line").unwrap();
+        let last_point = marks.iter().rposition(|m| *m == "point").unwrap();
+        assert!(last_point < first_line, "{marks:?}");
+    }
+}
+
+#[test]
+fn fit_lines_are_drawn_above_the_markers() {
+    let figure = build(&arrhenius_frame(1.5), "a", &options("arrhenius")).unwrap();
+    assert_lines_drawn_last(&figure);
+    let figure = build(&tensor_frame(), "t", &options("resistivity_fit")).unwrap();
+    assert_eq!(figure.panels.len(), 2);
+    assert_lines_drawn_last(&figure);
+    let frame = oscillation_frame();
+    for kind in ["dingle", "landau_fan", "oscillation_mass"] {
+        assert_lines_drawn_last(&build(&frame, "sdh", &options(kind)).unwrap());
+    }
+}
+
+#[test]
+fn landau_fan_draws_the_extrema_and_a_line_whose_slope_is_the_frequency() {
+    let frame = oscillation_frame();
+    assert!(kinds_for(Some("mr.oscillations")).contains(&"landau_fan"));
+    let figure = build(&frame, "sdh", &options("landau_fan")).unwrap();
+    let (svg, elements) = checked_svg(&figure);
+    // Minima (integer index) filled, maxima (half-integer) open.
+    assert_eq!(series_marks(&svg, "minima"), 4);
+    assert_eq!(series_marks(&svg, "maxima"), 4);
+    assert_eq!(count(&elements, "line"), 1);
+    let spec = check_vega(&figure);
+    let name = "fit, F = 10 T";
+    assert!(svg.contains(name), "{svg}");
+    let (x, y) = (vega_values(&spec, name, "x"), vega_values(&spec, name, "y"));
+    assert_eq!(x[0], 0.0, "the line starts at 1/B = 0");
+    assert!(close(y[0], LANDAU_BETA, 1e-12));
+    // The y axis reaches down to the line's intercept, which the figure is read for.
+    let domain = &vega_layers(&spec)[0]["encoding"]["y"]["scale"]["domain"];
+    assert!(domain[0].as_f64().unwrap() <= LANDAU_BETA, "{domain}");
+    let slope = (y[1] - y[0]) / (x[1] - x[0]);
+    assert!(close(slope, LANDAU_F, 1e-9), "{slope}");
+    // Every extremum lies on the line.
+    for kind in ["minima", "maxima"] {
+        let (px, py) = (vega_values(&spec, kind, "x"), vega_values(&spec, kind, "y"));
+        for (x, n) in px.iter().zip(&py) {
+            assert!((slope * x + y[0] - n).abs() < 1e-9);
+        }
+    }
+    // A table without extrema says how to get them.
+    let no_fan = frame
+        .filter(&frame.column("kind").unwrap().str().unwrap().equal("fft"))
+        .unwrap();
+    let error = build(&no_fan, "sdh", &options("landau_fan")).unwrap_err();
+    assert!(error.to_string().contains("landau_fan: true"), "{error}");
+}
+
+#[test]
+fn the_title_names_the_rows_kept() {
+    let filtered = PlotOptions {
+        selection: vec![("sample".into(), "W1".into()), ("temperature_K".into(), "300".into())],
+        ..options("hall_density")
+    };
+    let figure = build(&hall_frame(), "si-hall", &filtered).unwrap();
+    assert_eq!(
+        figure.title(),
+        "Carrier density — si-hall (sample = W1, temperature = 300 K)"
+    );
+    let (_, elements) = checked_svg(&figure);
+    let title = elements.iter().find(|e| e.name == "title").unwrap();
+    assert!(title.text.contains("sample = W1"), "{}", title.text);
+    assert!(check_vega(&figure)["title"].as_str().unwrap().contains("sample = W1"));
+    // A title given by the caller keeps the selection too.
+    let titled = PlotOptions {
+        title: Some("Wafer W1".into()),
+        ..filtered
+    };
+    assert_eq!(
+        build(&hall_frame(), "si-hall", &titled).unwrap().title(),
+        "Wafer W1 (sample = W1, temperature = 300 K)"
+    );
+    // Without a selection, no parentheses.
+    assert_eq!(
+        build(&hall_frame(), "si-hall", &options("hall_density"))
+            .unwrap()
+            .title(),
+        "Carrier density — si-hall"
+    );
+}
+
+#[test]
+fn hall_coefficients_and_log_densities_are_shown_in_the_tables_units() {
+    // The Hall coefficient in cm^3/C, as the table shows it (1 m^3/C = 1e6 cm^3/C).
+    let frame = table(vec![
+        floats("temperature_K", vec![100.0, 200.0, 300.0]),
+        floats("hall_coefficient_m3_per_C", vec![-6.25e-3, -6.0e-3, -5.5e-3]),
+        floats("ln_reduced_density_m3", vec![40.0, 41.0, 42.0]),
+    ]);
+    let figure = build(
+        &frame,
+        "rh",
+        &PlotOptions {
+            x: Some("temperature_K".into()),
+            y: vec!["hall_coefficient_m3_per_C".into()],
+            ..options("columns")
+        },
+    )
+    .unwrap();
+    let (svg, _) = checked_svg(&figure);
+    assert!(
+        svg.contains(r#"cm<tspan baseline-shift="super" font-size="80%">3</tspan>/C"#),
+        "{svg}"
+    );
+    let spec = check_vega(&figure);
+    assert_eq!(
+        vega_values(&spec, "hall_coefficient_m3_per_C", "y"),
+        [-6250.0, -6000.0, -5500.0]
+    );
+    // ln(n / cm^-3) = ln(n / m^-3) - ln(1e6), as customary_display shows the column.
+    let figure = build(
+        &frame,
+        "ln",
+        &PlotOptions {
+            x: Some("temperature_K".into()),
+            y: vec!["ln_reduced_density_m3".into()],
+            ..options("columns")
+        },
+    )
+    .unwrap();
+    let spec = check_vega(&figure);
+    let shown = vega_values(&spec, "ln_reduced_density_m3", "y");
+    let table_shows = mobilis_core::units::customary_display("ln_reduced_density_m3").unwrap();
+    for (shown, stored) in shown.iter().zip([40.0, 41.0, 42.0]) {
+        assert!(close(*shown, stored - 1e6f64.ln(), 1e-12));
+        assert!(close(*shown, table_shows.from_si(stored), 1e-12));
+    }
+    assert!(
+        figure.to_svg().contains("n in cm"),
+        "the axis says the unit inside the logarithm"
+    );
+}
+
+/// The smallest text of a figure as drawn at the width a report gives it (its natural width,
+/// at most 1000 px), super- and subscripts included.
+fn smallest_drawn_text(figure: &Figure) -> (f64, String) {
+    let svg = figure.to_svg();
+    let elements = parse_xml(&svg).unwrap();
+    let width: f64 = elements[0].attribute("width").unwrap().parse().unwrap();
+    let scale = (1000.0 / width).min(1.0);
+    let root: f64 = elements[0].attribute("font-size").unwrap().parse().unwrap();
+    let mut smallest = (f64::INFINITY, String::new());
+    for element in &elements {
+        let size = match element.name.as_str() {
+            "text" => element
+                .attribute("font-size")
+                .map_or(root, |s| s.parse::<f64>().unwrap()),
+            _ => continue,
+        };
+        // A script inside shrinks to its percentage of the text.
+        let inner = if svg.contains("<tspan") {
+            crate::svg::SCRIPT_PERCENT / 100.0
+        } else {
+            1.0
+        };
+        let drawn = size * scale * inner;
+        if drawn < smallest.0 {
+            smallest = (drawn, element.text.clone());
+        }
+    }
+    smallest
+}
+
+#[test]
+fn no_text_is_under_ten_pixels_at_the_drawn_width() {
+    let oscillations = oscillation_frame();
+    let figures = [
+        build(&hall_frame(), "si-hall", &options("hall_density")).unwrap(),
+        build(&arrhenius_frame(1.5), "si-arrhenius", &options("arrhenius")).unwrap(),
+        build(&tensor_frame(), "inas-two-band", &options("resistivity_fit")).unwrap(),
+        build(&tensor_frame(), "inas-two-band", &options("conductivity_fit")).unwrap(),
+        build(&oscillations, "sdh", &options("oscillation_mass")).unwrap(),
+        build(&oscillations, "sdh", &options("landau_fan")).unwrap(),
+    ];
+    for figure in &figures {
+        let (size, text) = smallest_drawn_text(figure);
+        assert!(size >= 10.0, "{}: {size} px for {text:?}", figure.kind());
+    }
+    // Two panels side by side fit the 1000 px a report gives them.
+    let two = &figures[2];
+    assert_eq!(two.panels.len(), 2);
+    assert!(two
+        .to_svg()
+        .starts_with(r#"<svg xmlns="http://www.w3.org/2000/svg" width="1000""#));
+}
+
+#[test]
+fn long_legend_names_are_cut_in_their_visible_text_and_keep_their_markup() {
+    use crate::svg::truncate;
+    let name = "HEMT-A1, B_{eff} = 6.756 T: Lifshitz-Kosevich fit";
+    // 14 to 34 visible characters, 40 % of the panel.
+    let cut = truncate(name, 500.0);
+    assert!(cut.ends_with('…'), "{cut}");
+    assert!(cut.starts_with("HEMT-A1, B_{eff} = "), "{cut}");
+    assert_eq!(cut.matches('{').count(), cut.matches('}').count(), "{cut}");
+    let visible = crate::units::plain_text(&cut).chars().count();
+    assert!((14..=27).contains(&visible), "{visible}: {cut}");
+    // Short names, and names that fit a wide panel, are left alone.
+    assert_eq!(truncate("W1, 0.5 T", 500.0), "W1, 0.5 T");
+    assert_eq!(
+        truncate("B_{eff} = 6.756 T: LK fit", 640.0),
+        "B_{eff} = 6.756 T: LK fit"
     );
 }

@@ -12,13 +12,15 @@
 
 use mobilis_core::units::customary_display;
 
-/// How a column is shown: displayed = SI value * `factor`, in `unit` (markup), with a readable
-/// `name` taken from the column's stem.
+/// How a column is shown: displayed = SI value * `factor` + `offset`, in `unit` (markup), with
+/// a readable `name` taken from the column's stem. The offset is zero except for the logarithm
+/// of a density (`ln_..._m3`, shown as ln(n / cm^-3)); uncertainties take the factor alone.
 #[derive(Debug, Clone, PartialEq)]
 pub(crate) struct ColumnDisplay {
     pub name: String,
     pub unit: Option<String>,
     pub factor: f64,
+    pub offset: f64,
 }
 
 /// Suffixes that `customary_display` would misread (`x_T_per_ohm` is no resistance) or does
@@ -37,39 +39,58 @@ const LOCAL: &[(&str, &str, f64)] = &[
 
 /// The display of an SI column; a column without a known unit suffix is shown as it is.
 pub(crate) fn column_display(column: &str) -> ColumnDisplay {
-    let (stem, uncertainty) = match column.strip_suffix("_unc") {
-        Some(stem) => (stem, true),
-        None => (column, false),
-    };
-    let with_unc = |name: &str| {
-        let name = name.replace('_', " ");
-        if uncertainty {
-            format!("{name} uncertainty")
-        } else {
-            name
-        }
-    };
+    // An uncertainty and the parts of its budget are shown in the unit of their value.
+    let (stem, which) = [
+        ("_unc_stat", " statistical uncertainty"),
+        ("_unc_sys", " systematic uncertainty"),
+        ("_unc", " uncertainty"),
+    ]
+    .iter()
+    .find_map(|(suffix, which)| {
+        column
+            .strip_suffix(suffix)
+            .filter(|stem| !stem.is_empty())
+            .map(|stem| (stem, *which))
+    })
+    .unwrap_or((column, ""));
+    let with_unc = |name: &str| format!("{}{which}", name.replace('_', " "));
     for &(suffix, unit, factor) in LOCAL {
         if let Some(base) = stem.strip_suffix(suffix).filter(|b| !b.is_empty()) {
             return ColumnDisplay {
                 name: with_unc(base),
                 unit: Some(unit.to_owned()),
                 factor,
+                offset: 0.0,
             };
         }
     }
-    if let Some(display) = customary_display(stem) {
+    if let Some(display) = customary_display(column) {
+        if let Some(inner) = stem.strip_prefix("ln_") {
+            // ln(n / cm^-3): the unit belongs inside the logarithm, so it goes in the name.
+            let (base, unit) = match inner.strip_suffix("_m2") {
+                Some(base) => (base, "cm^{−2}"),
+                None => (inner.strip_suffix("_m3").unwrap_or(inner), "cm^{−3}"),
+            };
+            return ColumnDisplay {
+                name: with_unc(&format!("ln {base} (n in {unit})")),
+                unit: None,
+                factor: display.factor,
+                offset: display.offset,
+            };
+        }
         let base = strip_display_suffix(stem);
         return ColumnDisplay {
             name: with_unc(base),
             unit: Some(unit_markup(display.unit_label)),
             factor: display.factor,
+            offset: display.offset,
         };
     }
     ColumnDisplay {
         name: with_unc(stem),
         unit: None,
         factor: 1.0,
+        offset: 0.0,
     }
 }
 
@@ -245,6 +266,13 @@ mod tests {
             // (column, name, unit, SI value, displayed value)
             ("density_m3", "density", Some("cm^{−3}"), 1e21, 1e15),
             ("density_m3_unc", "density uncertainty", Some("cm^{−3}"), 2e19, 2e13),
+            (
+                "density_m3_unc_sys",
+                "density systematic uncertainty",
+                Some("cm^{−3}"),
+                2e19,
+                2e13,
+            ),
             ("sheet_density_m2", "sheet density", Some("cm^{−2}"), 5e15, 5e11),
             (
                 "hall_mobility_m2_per_Vs",

@@ -8,7 +8,7 @@
 
 use serde_json::{json, Map, Value};
 
-use crate::figure::{Figure, Mark, Panel, Scale, Series, Shape, PALETTE};
+use crate::figure::{Figure, Mark, Panel, Scale, Shape, PALETTE};
 use crate::units::plain_text;
 
 pub(crate) const SCHEMA: &str = "https://vega.github.io/schema/vega-lite/v5.json";
@@ -68,9 +68,8 @@ fn layers(panel: &Panel) -> Vec<Value> {
     let y_title = plain_text(&panel.y.label.markup());
     let color = color(panel);
     let mut layers = Vec::new();
-    let mut lines: Vec<&Series> = panel.series.iter().filter(|s| s.is_line()).collect();
-    lines.extend(panel.series.iter().filter(|s| !s.is_line()));
-    for series in lines {
+    // Later layers are drawn on top: markers first, fitted lines last, as in the SVG.
+    for series in crate::figure::drawing_order(&panel.series) {
         if series.drawn_points() == 0 {
             continue;
         }
@@ -193,7 +192,13 @@ pub(crate) fn render(figure: &Figure) -> Value {
     top.insert("usermeta".into(), json!({"mobilis_kind": figure.kind}));
     top.insert(
         "config".into(),
-        json!({"font": "DejaVu Sans, Helvetica Neue, Arial, sans-serif"}),
+        json!({
+            "font": "DejaVu Sans, Helvetica Neue, Arial, sans-serif",
+            "title": {"fontSize": crate::svg::TITLE_FONT},
+            "axis": {"labelFontSize": crate::svg::TICK_FONT, "titleFontSize": crate::svg::AXIS_TITLE_FONT},
+            "legend": {"labelFontSize": crate::svg::LEGEND_FONT},
+            "header": {"labelFontSize": crate::svg::PANEL_TITLE_FONT},
+        }),
     );
     if figure.panels.len() == 1 {
         top.extend(panel_spec(&figure.panels[0], figure.panel_width, figure.panel_height));

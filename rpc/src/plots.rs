@@ -40,7 +40,9 @@ fn producing_analysis(provenance: &Provenance) -> Option<String> {
 }
 
 /// Keeps the rows whose `column` equals each given value (strings exactly, numbers to a
-/// relative 1e-9, so that a temperature typed as 300 matches 300.0000000001).
+/// relative 1e-9, so that a temperature typed as 300 matches 300.0000000001; temperatures and
+/// fields to their setpoint's tolerance, so that `field_T: 0.5` keeps the rows at 0.4997 T that
+/// a figure names "0.5 T", see `mobilis_plot::matches_nominal`).
 pub fn filter_rows(frame: &DataFrame, filter: &Map<String, Value>) -> ServiceResult<DataFrame> {
     if filter.is_empty() {
         return Ok(frame.clone());
@@ -82,7 +84,7 @@ pub fn filter_rows(frame: &DataFrame, filter: &Map<String, Value>) -> ServiceRes
                 let numbers = numbers.f64().expect("cast to f64").clone();
                 numbers
                     .iter()
-                    .map(|cell| cell.is_some_and(|v| (v - target).abs() <= 1e-9 * target.abs().max(1e-300)))
+                    .map(|cell| cell.is_some_and(|v| mobilis_plot::matches_nominal(name, v, target)))
                     .collect()
             }
             Value::Bool(flag) => {
@@ -142,6 +144,17 @@ impl Service {
             ServiceError::invalid_params(format!("plot.render: {error}"))
                 .with_help("see rpc.discover for the parameters of plot.render")
         })?;
+        // The title names the rows kept, so that a figure of part of a dataset says so.
+        options.selection = filter
+            .iter()
+            .map(|(column, value)| {
+                let text = match value {
+                    Value::String(text) => text.clone(),
+                    other => other.to_string(),
+                };
+                (column.clone(), text)
+            })
+            .collect();
         let dataset = self.store.get(&dataset_name)?;
         if options.analysis.is_none() {
             options.analysis = producing_analysis(&dataset.manifest.provenance);
@@ -200,6 +213,19 @@ mod tests {
         let filter: Map<String, Value> = serde_json::from_value(json!({"sample": "A", "temperature_K": 300})).unwrap();
         let kept = filter_rows(&frame, &filter).unwrap();
         assert_eq!(kept.height(), 1);
+        // Fields and temperatures match their nominal value, as figures name them.
+        let wandering = df!(
+            "field_T" => [0.4997, 0.5002, 0.52, 1.0],
+            "temperature_K" => [299.6, 300.3, 77.0, 302.0],
+            "thickness_m" => [5e-7, 5.0000001e-7, 5e-7, 5e-7],
+        )
+        .unwrap();
+        let filter: Map<String, Value> = serde_json::from_value(json!({"field_T": 0.5})).unwrap();
+        assert_eq!(filter_rows(&wandering, &filter).unwrap().height(), 2);
+        let filter: Map<String, Value> = serde_json::from_value(json!({"temperature_K": 300})).unwrap();
+        assert_eq!(filter_rows(&wandering, &filter).unwrap().height(), 2);
+        let filter: Map<String, Value> = serde_json::from_value(json!({"thickness_m": 5e-7})).unwrap();
+        assert_eq!(filter_rows(&wandering, &filter).unwrap().height(), 3);
         let error = filter_rows(&frame, &serde_json::from_value(json!({"wafer": "A"})).unwrap()).unwrap_err();
         assert_eq!(error.kind, ErrorKind::ColumnProblem);
         assert!(error.help.unwrap().contains("sample, temperature_K"));

@@ -256,7 +256,7 @@ mod quantum {
             )
             .await;
         let result = daemon
-            .call("analysis.run", json!({"analysis": "mr.oscillations", "inputs": {"sweep": "sdh"}, "output": "osc", "group_by": "sample"}))
+            .call("analysis.run", json!({"analysis": "mr.oscillations", "inputs": {"sweep": "sdh"}, "output": "osc", "group_by": "sample", "params": {"landau_fan": true}}))
             .await;
         let summary = &result["summary"]["groups"][0]["summary"];
         let frequency = summary["frequency_T"].as_f64().unwrap();
@@ -280,6 +280,70 @@ mod quantum {
             .filter_map(Value::as_str)
             .collect();
         assert!(kinds.contains(&"fft") && kinds.contains(&"oscillation"));
+        for kind in ["dingle_fit", "landau", "landau_fit"] {
+            assert!(kinds.contains(&kind), "{kind}");
+        }
+
+        // The figures of the daemon: the Dingle plot with its fitted line drawn above the
+        // windows, and the Landau fan, whose line rises by F per unit of 1/B; both titles say
+        // which rows they show.
+        let lines = |figure: &Value| -> Vec<Vec<(f64, f64)>> {
+            figure["vega_lite"]["layer"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .filter(|layer| layer["mark"]["type"] == "line")
+                .map(|layer| {
+                    layer["data"]["values"]
+                        .as_array()
+                        .unwrap()
+                        .iter()
+                        .map(|v| (v["x"].as_f64().unwrap(), v["y"].as_f64().unwrap()))
+                        .collect()
+                })
+                .collect()
+        };
+        let dingle_figure = daemon
+            .call(
+                "plot.render",
+                json!({"dataset": "osc", "kind": "dingle", "filter": {"sample": "2deg"}}),
+            )
+            .await;
+        assert!(
+            dingle_figure["title"].as_str().unwrap().ends_with("(sample = 2deg)"),
+            "{}",
+            dingle_figure["title"]
+        );
+        let svg = dingle_figure["svg"].as_str().unwrap();
+        let (windows, line) = (
+            svg.find(r#"data-series="Dingle windows""#).unwrap(),
+            svg.find(r#"data-series="fitted line""#).unwrap(),
+        );
+        assert!(windows < line, "the line is drawn after the markers");
+        let dingle_line = &lines(&dingle_figure)[0];
+        let slope = (dingle_line[1].1 - dingle_line[0].1) / (dingle_line[1].0 - dingle_line[0].0);
+        // -c m* T_D, c = 2 pi^2 k_B m0 / (hbar e) = 14.6933 T/K (CODATA 2018 constants).
+        let expected = -14.6933 * mass * dingle;
+        assert!(
+            (slope / expected - 1.0).abs() < 1e-4,
+            "slope {slope}, expected {expected}"
+        );
+
+        let fan = daemon
+            .call(
+                "plot.render",
+                json!({"dataset": "osc", "kind": "landau_fan", "filter": {"sample": "2deg"}}),
+            )
+            .await;
+        let fan_line = &lines(&fan)[0];
+        let fan_frequency = (fan_line[1].1 - fan_line[0].1) / (fan_line[1].0 - fan_line[0].0);
+        assert!(
+            (fan_frequency / frequency - 1.0).abs() < 5e-3,
+            "fan {fan_frequency} T, FFT {frequency} T"
+        );
+        assert!(fan["svg"].as_str().unwrap().contains("maxima"));
+        let kinds = daemon.call("plot.kinds", json!({"dataset": "osc"})).await;
+        assert!(kinds.as_array().unwrap().iter().any(|k| k["name"] == "landau_fan"));
     }
 
     #[tokio::test(flavor = "multi_thread")]

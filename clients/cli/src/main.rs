@@ -168,7 +168,9 @@ enum Command {
         /// Figure kind (see `mobilis plot --list`); default: the one that suits the analysis that made the dataset.
         #[arg(long)]
         kind: Option<String>,
-        /// Keep only rows where column=value (repeatable), e.g. --where sample=W1.
+        /// Keep only rows where column=value (repeatable), e.g. --where sample=W1; temperature_K
+        /// and field_T match their nominal value (--where field_T=0.5 keeps 0.4997 T). The
+        /// figure's title names the rows kept.
         #[arg(long = "where", value_parser = parse_key_value)]
         filter: Vec<(String, String)>,
         /// x column, for kind `columns`.
@@ -177,6 +179,11 @@ enum Command {
         /// y column (repeatable), for kind `columns`.
         #[arg(long)]
         y: Vec<String>,
+        /// Column whose values make separate series (repeatable), e.g. --series-by sample
+        /// --series-by field_T; temperatures and fields count by their nominal values
+        /// (0.4997 T and 0.5002 T are one series "0.5 T"). Default: the figure kind's choice.
+        #[arg(long = "series-by", value_name = "COLUMN")]
+        series_by: Vec<String>,
         /// SVG file to write (default: <dataset>[-<kind>].svg).
         #[arg(long)]
         out: Option<PathBuf>,
@@ -461,6 +468,7 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             filter,
             x,
             y,
+            series_by,
             out,
             vega_lite,
             list,
@@ -490,6 +498,9 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             }
             if !y.is_empty() {
                 params["y"] = json!(y);
+            }
+            if !series_by.is_empty() {
+                params["series_by"] = json!(series_by);
             }
             let figure = client.call("plot.render", params).await?;
             let kind = figure["kind"].as_str().unwrap_or("plot");

@@ -23,7 +23,8 @@ pub fn render(columns: &Value, only: &[String], customary: bool) -> String {
                 .map(|d| d.label.clone())
                 .unwrap_or_else(|| name.clone()),
         );
-        let factor = display.as_ref().map(|d| d.factor).unwrap_or(1.0);
+        // Displayed = SI * factor + offset (the offset shifts ln n from m^-3 to cm^-3).
+        let (factor, offset) = display.as_ref().map_or((1.0, 0.0), |d| (d.factor, d.offset));
         cells.push(
             values
                 .as_array()
@@ -33,7 +34,7 @@ pub fn render(columns: &Value, only: &[String], customary: bool) -> String {
                     Value::Null => "-".to_owned(),
                     Value::Number(n) => match n.as_i64() {
                         Some(i) if display.is_none() => i.to_string(),
-                        _ => format_number(n.as_f64().unwrap_or(f64::NAN) * factor),
+                        _ => format_number(n.as_f64().unwrap_or(f64::NAN) * factor + offset),
                     },
                     Value::String(s) if s.is_empty() => "-".to_owned(),
                     Value::String(s) => s.clone(),

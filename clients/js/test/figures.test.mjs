@@ -39,7 +39,8 @@ const STEPS = [
     group_by: ["sample", "temperature_K"] },
   { analysis: "spectrum.mobility", inputs: { sweep: "fig-hemt-sweeps" }, output: "fig-hemt-spectrum",
     group_by: ["sample", "temperature_K"] },
-  { analysis: "mr.oscillations", inputs: { sweep: "fig-hemt-sdh" }, output: "fig-hemt-oscillations", group_by: ["sample"] },
+  { analysis: "mr.oscillations", inputs: { sweep: "fig-hemt-sdh" }, output: "fig-hemt-oscillations", group_by: ["sample"],
+    params: { landau_fan: true } },
   { analysis: "mr.two_band_fit", inputs: { sweep: "fig-inas-sweeps" }, output: "fig-inas-two-band",
     group_by: ["sample", "temperature_K"] },
   { analysis: "mr.symmetrize", inputs: { sweep: "fig-inas-sweeps" }, output: "fig-inas-symmetrized",
@@ -117,6 +118,7 @@ test("every figure of every analysis output is a valid, renderable Vega-Lite spe
     for (const kind of [
       "hall_density", "hall_mobility", "hall_resistivity", "arrhenius", "mobility_scattering",
       "mobility_spectrum", "magnetoresistance", "kohler", "oscillation_fft", "oscillation_mass",
+      "dingle", "landau_fan",
     ]) {
       assert.ok(drawnKinds.has(kind), `no ${kind} figure was drawn; drawn: ${[...drawnKinds].join(", ")}`);
     }

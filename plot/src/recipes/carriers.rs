@@ -109,18 +109,30 @@ pub(crate) fn freeze_out(ctx: &Context) -> Result<Drawing, PlotError> {
     ))
 }
 
-/// ln(n / m^-3) - r ln(T / K) as the plugin writes it, shifted to n in cm^-3 (the unit the
-/// trade quotes densities in): ln(n / cm^-3) = ln(n / m^-3) - ln(1e6).
+/// ln(n / m^-3) - r ln(T / K) as the plugin stores it (`ln_reduced_density_m3`), shown with n
+/// in cm^-3 (the unit the trade quotes densities in, and the table's display):
+/// ln(n / cm^-3) = ln(n / m^-3) - ln(1e6). Tables stored before the columns carried their unit
+/// (`reduced_ln_density`, `line`) are read too.
 pub(crate) fn arrhenius(ctx: &Context) -> Result<Drawing, PlotError> {
-    let shift = 1e6f64.ln();
     let x = inverse_temperature(&ctx.floats("temperature_K")?);
-    let y: Vec<f64> = ctx.floats("reduced_ln_density")?.iter().map(|v| v - shift).collect();
-    let errors = if ctx.has("reduced_ln_density_unc") {
-        Some(ctx.floats("reduced_ln_density_unc")?)
+    let legacy = !ctx.has("ln_reduced_density_m3") && ctx.has("reduced_ln_density");
+    let (ordinate, uncertainty, fitted) = if legacy {
+        ("reduced_ln_density", "reduced_ln_density_unc", "line")
+    } else {
+        (
+            "ln_reduced_density_m3",
+            "ln_reduced_density_m3_unc",
+            "ln_reduced_density_fit_m3",
+        )
+    };
+    let shift = if legacy { 1e6f64.ln() } else { 0.0 };
+    let y: Vec<f64> = ctx.displayed(ordinate)?.iter().map(|v| v - shift).collect();
+    let errors = if ctx.has(uncertainty) {
+        Some(ctx.floats(uncertainty)?)
     } else {
         None
     };
-    let line: Vec<f64> = ctx.floats("line")?.iter().map(|v| v - shift).collect();
+    let line: Vec<f64> = ctx.displayed(fitted)?.iter().map(|v| v - shift).collect();
     let used = ctx.flags("used").ok_or_else(|| ctx_missing(ctx, "used"))?;
     let exponent = if ctx.has("temperature_exponent") {
         ctx.floats("temperature_exponent")?.into_iter().find(|v| v.is_finite())

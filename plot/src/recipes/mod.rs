@@ -88,7 +88,7 @@ pub(crate) static RECIPES: &[Recipe] = &[
         name: "arrhenius",
         description: "Arrhenius plot: ln(n T^-3/2) (or ln(n T^-3/4), as the fit used) with n in cm^-3 against 1000/T; points on the fitted line filled, the others open, and the fitted line over its range.",
         analyses: &["carriers.arrhenius"],
-        needs: "temperature_K, reduced_ln_density, line and used",
+        needs: "temperature_K, ln_reduced_density_m3, ln_reduced_density_fit_m3 and used",
         build: carriers::arrhenius,
     },
     Recipe {
@@ -163,10 +163,17 @@ pub(crate) static RECIPES: &[Recipe] = &[
     },
     Recipe {
         name: "dingle",
-        description: "Dingle plot: ln(A sinh X / X) against 1/B at the reference temperature, with error bars (rows of kind dingle).",
+        description: "Dingle plot: ln(A sinh X / X) against 1/B at the reference temperature, with error bars (rows of kind dingle), and the fitted line whose slope gives T_D (rows of kind dingle_fit).",
         analyses: &["mr.oscillations"],
         needs: "kind, inverse_field_per_T and dingle_ordinate",
         build: sweeps::dingle,
+    },
+    Recipe {
+        name: "landau_fan",
+        description: "Landau fan: the Landau level index of each extremum of rho_xx against 1/B (minima filled at integers, maxima open at half-integers, rows of kind landau) and the fitted line from 1/B = 0, slope F and intercept beta (rows of kind landau_fit); needs mr.oscillations with landau_fan: true.",
+        analyses: &["mr.oscillations"],
+        needs: "kind, inverse_field_per_T and landau_index",
+        build: sweeps::landau_fan,
     },
     Recipe {
         name: "weak_localization",
@@ -248,8 +255,12 @@ impl Context<'_> {
 
     /// A numeric column in displayed units.
     pub fn displayed(&self, name: &str) -> Result<Vec<f64>, PlotError> {
-        let factor = column_display(name).factor;
-        Ok(self.floats(name)?.into_iter().map(|v| v * factor).collect())
+        let display = column_display(name);
+        Ok(self
+            .floats(name)?
+            .into_iter()
+            .map(|v| v * display.factor + display.offset)
+            .collect())
     }
 
     /// An optional numeric column in displayed units.
@@ -299,9 +310,11 @@ impl Context<'_> {
     }
 
     /// Splits `rows` into series by `options.series_by`, or by the recipe's `defaults` that
-    /// are present and take more than one value among the rows.
+    /// are present and take more than one value among the rows. Temperatures and fields
+    /// count by their nominal values ([`nominal_keys`]), other columns by their text.
     pub fn groups(&self, rows: &[usize], defaults: &[&str]) -> Result<Vec<Group>, PlotError> {
-        let columns: Vec<String> = match &self.options.series_by {
+        let chosen_by_caller = self.options.series_by.is_some();
+        let candidates: Vec<String> = match &self.options.series_by {
             Some(columns) => {
                 for column in columns {
                     if !self.has(column) {
@@ -319,24 +332,27 @@ impl Context<'_> {
                 }
                 columns.clone()
             }
-            None => {
-                let mut chosen = Vec::new();
-                for &column in defaults {
-                    if !self.has(column) {
-                        continue;
-                    }
-                    let values = self.texts(column)?;
-                    let mut distinct: Vec<&Option<String>> = rows.iter().map(|&r| &values[r]).collect();
-                    distinct.sort();
-                    distinct.dedup();
-                    if distinct.len() > 1 {
-                        chosen.push(column.to_owned());
-                    }
-                }
-                chosen
-            }
+            None => defaults
+                .iter()
+                .filter(|c| self.has(c))
+                .map(|c| (*c).to_owned())
+                .collect(),
         };
-        let values: Vec<Vec<Option<String>>> = columns.iter().map(|c| self.texts(c)).collect::<Result<_, _>>()?;
+        let mut columns = Vec::new();
+        let mut values: Vec<Vec<Option<String>>> = Vec::new();
+        for column in candidates {
+            let keys = self.group_keys(&column, rows)?;
+            if !chosen_by_caller {
+                let mut distinct: Vec<&Option<String>> = rows.iter().map(|&r| &keys[r]).collect();
+                distinct.sort();
+                distinct.dedup();
+                if distinct.len() < 2 {
+                    continue;
+                }
+            }
+            columns.push(column);
+            values.push(keys);
+        }
         let mut groups: Vec<(Vec<Option<String>>, Group)> = Vec::new();
         for &row in rows {
             let key: Vec<Option<String>> = values.iter().map(|v| v[row].clone()).collect();
@@ -350,6 +366,98 @@ impl Context<'_> {
         }
         Ok(groups.into_iter().map(|(_, g)| g).collect())
     }
+
+    /// The grouping key of every row of the table (None outside `rows` and for nulls): the
+    /// nominal value of a numeric temperature or field, the text of anything else.
+    fn group_keys(&self, column: &str, rows: &[usize]) -> Result<Vec<Option<String>>, PlotError> {
+        let setpoint = match column {
+            "temperature_K" => Some(Setpoint::Temperature),
+            "field_T" => Some(Setpoint::Field),
+            _ => None,
+        };
+        let numeric = self
+            .frame
+            .column(column)
+            .is_ok_and(|c| c.dtype().is_primitive_numeric());
+        match setpoint {
+            Some(setpoint) if numeric => Ok(nominal_keys(&self.floats(column)?, rows, setpoint)),
+            _ => self.texts(column),
+        }
+    }
+}
+
+/// The quantities whose measured values scatter around a setpoint.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum Setpoint {
+    Temperature,
+    Field,
+}
+
+/// Width of a field setpoint, T: the default `field_tolerance_T` of `hall.reduce`, which cuts
+/// the readings of one setpoint into a row the same way.
+pub(crate) const FIELD_SETPOINT_T: f64 = 5e-3;
+
+/// The nominal value of each of `rows` (indexed by row, None elsewhere and for non-finite
+/// values), as the label text of a series.
+///
+/// The values are sorted and cut into setpoints as the analyses cut them: temperatures where
+/// two consecutive values are further apart than `mr.*`'s and `spectrum.*`'s default sweep
+/// grouping allows (the larger of 0.05 K and 0.5 % of T, `TemperatureGrouping`), fields into
+/// runs no wider than [`FIELD_SETPOINT_T`] from their smallest value. Each setpoint is named
+/// by the roundest number within half that tolerance of its mean ([`roundest`]): a sample
+/// measured at 0.4997-0.5002 T is one series "0.5 T", not ten series of exact means.
+pub(crate) fn nominal_keys(values: &[f64], rows: &[usize], setpoint: Setpoint) -> Vec<Option<String>> {
+    let grouping = mobilis_core::sweep_table::TemperatureGrouping::default();
+    let mut sorted: Vec<(f64, usize)> = rows
+        .iter()
+        .filter(|&&r| values[r].is_finite())
+        .map(|&r| (values[r], r))
+        .collect();
+    sorted.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let mut keys = vec![None; values.len()];
+    let mut start = 0;
+    while start < sorted.len() {
+        let mut end = start + 1;
+        while end < sorted.len() {
+            let joins = match setpoint {
+                Setpoint::Temperature => sorted[end].0 - sorted[end - 1].0 <= grouping.allowed_gap_k(sorted[end - 1].0),
+                Setpoint::Field => sorted[end].0 - sorted[start].0 <= FIELD_SETPOINT_T,
+            };
+            if !joins {
+                break;
+            }
+            end += 1;
+        }
+        let cluster = &sorted[start..end];
+        let mean = cluster.iter().map(|(v, _)| v).sum::<f64>() / cluster.len() as f64;
+        let tolerance = match setpoint {
+            Setpoint::Temperature => grouping.allowed_gap_k(mean),
+            Setpoint::Field => FIELD_SETPOINT_T,
+        };
+        let label = format_value(roundest(mean, 0.5 * tolerance));
+        for &(_, row) in cluster {
+            keys[row] = Some(label.clone());
+        }
+        start = end;
+    }
+    keys
+}
+
+/// The number with the fewest significant digits (a multiple of the largest power of ten)
+/// within `tolerance` of `value`: 0.49996 with 2.5e-3 gives 0.5, 77.31 with 0.19 gives 77.3.
+pub(crate) fn roundest(value: f64, tolerance: f64) -> f64 {
+    if !(tolerance > 0.0 && value.is_finite()) {
+        return value;
+    }
+    let mut step = 10f64.powf((value.abs() + tolerance).log10().ceil());
+    while step >= tolerance * 1e-3 {
+        let candidate = (value / step).round() * step;
+        if (candidate - value).abs() <= tolerance {
+            return if candidate == 0.0 { 0.0 } else { candidate };
+        }
+        step /= 10.0;
+    }
+    value
 }
 
 /// "A, 300 K, 0.5 T": sample names as they are, quantities with their unit.

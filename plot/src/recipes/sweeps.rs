@@ -368,13 +368,19 @@ pub(crate) fn oscillation_mass(ctx: &Context) -> Result<Drawing, PlotError> {
     let mut all = rows.clone();
     all.extend(&fit_rows);
     let groups = ctx.groups(&all, &["sample", "field_T"])?;
+    // The sample is named only when there are several: legends stay short.
+    let several_samples = ctx.has("sample") && {
+        let samples = ctx.texts("sample")?;
+        let first = &samples[all[0]];
+        all.iter().any(|&r| samples[r] != *first)
+    };
     let mut series = Vec::new();
     for (k, group) in groups.iter().enumerate() {
         let data: Vec<usize> = group.rows.iter().copied().filter(|r| rows.contains(r)).collect();
         let fit: Vec<usize> = group.rows.iter().copied().filter(|r| fit_rows.contains(r)).collect();
         let label = match data.first() {
             Some(&r) if group.label.is_empty() || ctx.options.series_by.is_none() => {
-                let sample = if ctx.has("sample") {
+                let sample = if several_samples {
                     ctx.texts("sample")?[r]
                         .clone()
                         .map(|s| format!("{s}, "))
@@ -421,8 +427,12 @@ pub(crate) fn oscillation_curves(ctx: &Context) -> Result<Drawing, PlotError> {
     ))
 }
 
+/// The Dingle plot: the windows' ln(A sinh X / X) with error bars and, above them, the line
+/// the analysis fitted (rows of kind dingle_fit; a table stored without them shows the
+/// windows alone).
 pub(crate) fn dingle(ctx: &Context) -> Result<Drawing, PlotError> {
     let rows = ctx.rows_of_kind("dingle")?;
+    let fit_rows = ctx.rows_of_kind("dingle_fit")?;
     let inverse_field = ctx.floats("inverse_field_per_T")?;
     let ordinate = ctx.floats("dingle_ordinate")?;
     // sigma of ln A is sigma_A / A.
@@ -433,31 +443,100 @@ pub(crate) fn dingle(ctx: &Context) -> Result<Drawing, PlotError> {
     } else {
         None
     };
-    let groups = ctx.groups(&rows, &["sample", "temperature_K"])?;
-    let series = groups
-        .iter()
-        .enumerate()
-        .map(|(k, g)| {
-            let pts: Vec<Point> = points(&g.rows, &inverse_field, &ordinate, errors.as_deref());
-            Series::points(
-                if g.label.is_empty() {
-                    "Dingle windows".to_owned()
-                } else {
-                    g.label.clone()
-                },
-                k,
-                SHAPES[k % SHAPES.len()],
-                true,
-                pts,
-            )
-        })
-        .collect();
+    let mut all = rows.clone();
+    all.extend(&fit_rows);
+    let groups = ctx.groups(&all, &["sample", "temperature_K"])?;
+    let mut series = Vec::new();
+    for (k, group) in groups.iter().enumerate() {
+        let data: Vec<usize> = group.rows.iter().copied().filter(|r| rows.contains(r)).collect();
+        let fit: Vec<usize> = group.rows.iter().copied().filter(|r| fit_rows.contains(r)).collect();
+        series.push(Series::points(
+            named(group, groups.len(), "Dingle windows"),
+            k,
+            SHAPES[k % SHAPES.len()],
+            true,
+            points(&data, &inverse_field, &ordinate, errors.as_deref()),
+        ));
+        series.push(Series::line(
+            named(group, groups.len(), "fitted line"),
+            k,
+            Dash::Solid,
+            points(&fit, &inverse_field, &ordinate, None),
+        ));
+    }
     Ok(Drawing::single(
         "Dingle plot",
         AxisSpec::new("1/B", Some("T^{−1}"), false),
         AxisSpec::new("ln(A sinh X / X), A in Ω/sq", None, false),
         series,
     ))
+}
+
+/// The Landau fan: the level index of each extremum of rho_xx against 1/B, minima (integer
+/// index) filled and maxima (half-integer) open, with the analysis's fitted line from 1/B = 0,
+/// whose slope is the frequency F and whose intercept is the phase offset beta.
+pub(crate) fn landau_fan(ctx: &Context) -> Result<Drawing, PlotError> {
+    let rows = ctx.rows_of_kind("landau")?;
+    if rows.is_empty() {
+        return Err(PlotError::Unusable(format!(
+            "dataset `{}` has no rows of kind landau: run mr.oscillations with landau_fan: true to locate the extrema of the oscillation",
+            ctx.dataset
+        )));
+    }
+    let fit_rows = ctx.rows_of_kind("landau_fit")?;
+    let inverse_field = ctx.floats("inverse_field_per_T")?;
+    let index = ctx.floats("landau_index")?;
+    let mut all = rows.clone();
+    all.extend(&fit_rows);
+    let groups = ctx.groups(&all, &["sample", "temperature_K"])?;
+    let mut series = Vec::new();
+    for (k, group) in groups.iter().enumerate() {
+        let (minima, maxima): (Vec<usize>, Vec<usize>) = group
+            .rows
+            .iter()
+            .copied()
+            .filter(|r| rows.contains(r))
+            .partition(|&r| index[r].fract() == 0.0);
+        let fit: Vec<usize> = group.rows.iter().copied().filter(|r| fit_rows.contains(r)).collect();
+        let line = points(&fit, &inverse_field, &index, None);
+        let fit_name = match line_slope(&line) {
+            Some(slope) => format!("fit, F = {} T", format_value(slope)),
+            None => "fit".to_owned(),
+        };
+        let shape = SHAPES[k % SHAPES.len()];
+        series.push(Series::points(
+            named(group, groups.len(), "minima"),
+            k,
+            shape,
+            true,
+            points(&minima, &inverse_field, &index, None),
+        ));
+        series.push(Series::points(
+            named(group, groups.len(), "maxima"),
+            k,
+            shape,
+            false,
+            points(&maxima, &inverse_field, &index, None),
+        ));
+        series.push(
+            Series::line(named(group, groups.len(), &fit_name), k, Dash::Solid, line)
+                // The line sets the range too: its value at 1/B = 0 is the phase offset beta.
+                .setting_range(),
+        );
+    }
+    Ok(Drawing::single(
+        "Landau fan",
+        AxisSpec::new("1/B", Some("T^{−1}"), false),
+        AxisSpec::new("Landau level index n", None, false),
+        series,
+    ))
+}
+
+/// The slope of a straight line given by its end points (None for fewer than two).
+fn line_slope(line: &[Point]) -> Option<f64> {
+    let (first, last) = (line.first()?, line.last()?);
+    let slope = (last.y - first.y) / (last.x - first.x);
+    slope.is_finite().then_some(slope)
 }
 
 pub(crate) fn weak_localization(ctx: &Context) -> Result<Drawing, PlotError> {

@@ -523,9 +523,10 @@ pub fn summarize_purity(input: &PurityInput, tolerance: &ConsistencyTolerance) -
         let net = densities.net_doping_m3();
         if net.value < 0.0 {
             warnings.push(format!(
-                "the compensating density ({:.4e} m^-3) exceeds the dopant density ({:.4e} m^-3): the freeze-out \
+                "the compensating density ({:.4e} cm^-3) exceeds the dopant density ({:.4e} cm^-3): the freeze-out \
                  result contradicts the carrier type; check which species the fit took as the majority",
-                densities.compensating_density_m3, densities.dopant_density_m3
+                densities.compensating_density_m3 * 1e-6,
+                densities.dopant_density_m3 * 1e-6
             ));
         }
         summary.net_doping_m3 = Some(Estimate {

@@ -1397,13 +1397,14 @@ pub fn fit_mobility_scattering(
     };
     if let Some(limit) = ionized_parameter_upper_limit_m3 {
         warnings.push(format!(
-            "the mobilities do not determine the {}: it ended at {:.3e} m^-3 without an uncertainty; the data \
-             exclude values above {limit:.3e} m^-3 ({} standard uncertainties), which is what a comparison uses",
+            "the mobilities do not determine the {}: it ended at {:.3e} cm^-3 without an uncertainty; the data \
+             exclude values above {:.3e} cm^-3 ({} standard uncertainties), which is what a comparison uses",
             match settings.ionized_density {
                 IonizedDensityModel::Constant => "ionized-impurity density",
                 IonizedDensityModel::CarriersPlusCompensation => "compensating density",
             },
-            fitted.ionized_density_m3,
+            fitted.ionized_density_m3 * 1e-6,
+            limit * 1e-6,
             settings.tolerance.sigma_multiple
         ));
     }
@@ -1445,12 +1446,12 @@ pub fn fit_mobility_scattering(
         let comparison = compare_with_freeze_out(&fit, densities, &settings.tolerance)?;
         if !comparison.consistent {
             fit.warnings.push(format!(
-                "the fitted {} ({:.4e} m^-3) and the freeze-out {} ({:.4e} m^-3) differ by {:.2} combined standard \
+                "the fitted {} ({:.4e} cm^-3) and the freeze-out {} ({:.4e} cm^-3) differ by {:.2} combined standard \
                  uncertainties, more than the tolerance of {}",
                 comparison.quantity,
-                comparison.fitted.value,
+                comparison.fitted.value * 1e-6,
                 comparison.basis.description(),
-                comparison.reference.value,
+                comparison.reference.value * 1e-6,
                 comparison.deviation_sigma,
                 settings.tolerance.sigma_multiple
             ));

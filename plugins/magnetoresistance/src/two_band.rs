@@ -786,9 +786,9 @@ fn finish(data: &Data, points: &[SweepPoint], kinds: &[CarrierKind; 2], run: &Mu
     let mut warnings = Vec::new();
     let label = |c: &TwoBandCarrier| {
         format!(
-            "the {} band (mu = {:.4e} m^2/(V s))",
+            "the {} band (mu = {:.4e} cm^2/(V s))",
             c.kind.name(),
-            c.mobility_m2_per_vs
+            c.mobility_m2_per_vs * 1e4
         )
     };
     for c in &carriers {
@@ -806,9 +806,9 @@ fn finish(data: &Data, points: &[SweepPoint], kinds: &[CarrierKind; 2], run: &Mu
         }
         if c.at_bound {
             warnings.push(format!(
-                "{} ended on a bound of its density or mobility (sheet density {:.4e} m^-2), so it has no uncertainty; the sample may hold one band only, or the bounds are too narrow",
+                "{} ended on a bound of its density or mobility (sheet density {:.4e} cm^-2), so it has no uncertainty; the sample may hold one band only, or the bounds are too narrow",
                 label(c),
-                c.sheet_density_m2
+                c.sheet_density_m2 * 1e-4
             ));
         }
     }

@@ -554,17 +554,17 @@ fn spectrum_of_points(
         let kind = peak.carrier.name();
         if peak.at_grid_edge {
             warnings.push(format!(
-                "the {kind} peak at {:.4e} m^2/(V s) reaches the edge of the mobility grid; widen the mobility range so that the whole peak is inside",
-                peak.mobility_m2_per_vs
+                "the {kind} peak at {:.4e} cm^2/(V s) reaches the edge of the mobility grid; widen the mobility range so that the whole peak is inside",
+                peak.mobility_m2_per_vs * 1e4
             ));
         } else if peak.mobility_m2_per_vs * data.max_field_t < 1.0 / 3.0
             || peak.mobility_m2_per_vs * data.min_nonzero_field_t > 3.0
         {
             warnings.push(format!(
-                "the {kind} peak at {:.4e} m^2/(V s) lies more than a factor 3 outside 1/B_max .. 1/B_min ({:.3e} .. {:.3e} m^2/(V s)), where the measured fields constrain its mobility weakly; measure to higher fields (low mobility) or at lower fields (high mobility)",
-                peak.mobility_m2_per_vs,
-                1.0 / data.max_field_t,
-                1.0 / data.min_nonzero_field_t
+                "the {kind} peak at {:.4e} cm^2/(V s) lies more than a factor 3 outside 1/B_max .. 1/B_min ({:.3e} .. {:.3e} cm^2/(V s)), where the measured fields constrain its mobility weakly; measure to higher fields (low mobility) or at lower fields (high mobility)",
+                peak.mobility_m2_per_vs * 1e4,
+                1e4 / data.max_field_t,
+                1e4 / data.min_nonzero_field_t
             ));
         }
     }

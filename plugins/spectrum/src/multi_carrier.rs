@@ -861,9 +861,9 @@ fn finish(
     let label = |k: usize| {
         let c = &carriers[k];
         format!(
-            "carrier {k} ({}, mu = {:.4e} m^2/(V s))",
+            "carrier {k} ({}, mu = {:.4e} cm^2/(V s))",
             c.kind.name(),
-            c.mobility_m2_per_vs
+            c.mobility_m2_per_vs * 1e4
         )
     };
     if n > 1 {
@@ -897,9 +897,9 @@ fn finish(
     for (k, carrier) in carriers.iter().enumerate() {
         if carrier.at_bound {
             warnings.push(format!(
-                "{} ended on a bound of its density or mobility (sheet density {:.4e} m^-2), so it has no uncertainty; it may not be present: fit fewer carriers, or widen the bounds if it is real",
+                "{} ended on a bound of its density or mobility (sheet density {:.4e} cm^-2), so it has no uncertainty; it may not be present: fit fewer carriers, or widen the bounds if it is real",
                 label(k),
-                carrier.sheet_density_m2
+                carrier.sheet_density_m2 * 1e-4
             ));
         }
     }

@@ -72,11 +72,11 @@ impl Analysis for ArrheniusAnalysis {
             outputs: vec![
                 column("temperature_K", F64, Some("K"), "temperature"),
                 column("inverse_thermal_energy_per_eV", F64, None, "1/kT, eV^-1 (the Arrhenius abscissa)"),
-                column("reduced_ln_density", F64, None, "ln(n / m^-3) - exponent ln(T / K)"),
-                column("reduced_ln_density_unc", F64, None, "the standard uncertainty of the ordinate that weighted the point: u_stat(n)/n (floored) with the temperature's through the line's slope"),
+                column("ln_reduced_density_m3", F64, None, "ln(n / m^-3) - exponent ln(T / K) (SI; shown as ln_reduced_density_cm3, ln(n / cm^-3) - exponent ln(T / K), which is ln(1e6) less)"),
+                column("ln_reduced_density_m3_unc", F64, None, "the standard uncertainty of the ordinate that weighted the point: u_stat(n)/n (floored) with the temperature's through the line's slope"),
                 column("temperature_K_unc", F64, Some("K"), "the temperature's standard uncertainty as used"),
                 column("hall_factor", F64, None, "the Hall factor in effect"),
-                column("line", F64, None, "the fitted line at this abscissa"),
+                column("ln_reduced_density_fit_m3", F64, None, "the fitted line at this abscissa, as ln_reduced_density_m3"),
                 column("used", Bool, None, "inside the range of the line"),
                 column("temperature_exponent", F64, None, "r of ln(n T^-r): 1.5 (compensated) or 0.75 (uncompensated), so that a plot can name its ordinate"),
             ],
@@ -153,11 +153,11 @@ impl Analysis for ArrheniusAnalysis {
                         .collect(),
                 ),
                 float_series(
-                    "reduced_ln_density",
+                    "ln_reduced_density_m3",
                     fit.points.iter().map(|p| Some(p.reduced_ln_density)).collect(),
                 ),
                 float_series(
-                    "reduced_ln_density_unc",
+                    "ln_reduced_density_m3_unc",
                     fit.points.iter().map(|p| p.reduced_ln_density_unc).collect(),
                 ),
                 float_series(
@@ -166,7 +166,7 @@ impl Analysis for ArrheniusAnalysis {
                 ),
                 float_series("hall_factor", fit.points.iter().map(|p| Some(p.hall_factor)).collect()),
                 float_series(
-                    "line",
+                    "ln_reduced_density_fit_m3",
                     fit.points
                         .iter()
                         .map(|p| Some(fit.line.evaluate(p.inverse_thermal_energy_per_ev)))
@@ -343,7 +343,7 @@ mod budget_tests {
         let energy = summary["activation_energy_eV"].as_f64().unwrap();
         let unc = summary["activation_energy_eV_unc"].as_f64().unwrap();
         assert!((energy - 0.0452).abs() < 4.0 * unc, "{energy} +- {unc}");
-        for column in ["temperature_K_unc", "hall_factor", "reduced_ln_density_unc"] {
+        for column in ["temperature_K_unc", "hall_factor", "ln_reduced_density_m3_unc"] {
             assert!(output.table.column(column).is_ok(), "{column}");
         }
     }

@@ -556,11 +556,11 @@ impl Analysis for MobilityScatteringAnalysis {
             }
             if !comparison.consistent {
                 warnings.push(format!(
-                    "the scattering fit's {} ({:.3e} m^-3) disagrees with the freeze-out {} ({:.3e} m^-3) by {:.1} combined standard uncertainties",
+                    "the scattering fit's {} ({:.3e} cm^-3) disagrees with the freeze-out {} ({:.3e} cm^-3) by {:.1} combined standard uncertainties",
                     comparison.quantity.replace('_', " "),
-                    comparison.fitted.value,
+                    comparison.fitted.value * 1e-6,
                     comparison.basis.description(),
-                    comparison.reference.value,
+                    comparison.reference.value * 1e-6,
                     comparison.deviation_sigma
                 ));
             }

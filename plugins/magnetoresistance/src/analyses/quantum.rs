@@ -185,16 +185,17 @@ impl Analysis for OscillationsAnalysis {
             params: json!({"type": "object", "additionalProperties": false, "properties": p}),
             inputs: vec![sweep_role(true)],
             outputs: vec![
-                column("kind", Str, None, "oscillation (the curve), fft (the spectrum), mass (window amplitudes), mass_fit (each window's Lifshitz-Kosevich fit A_0 R_T on a temperature grid) or dingle (Dingle plot)"),
+                column("kind", Str, None, "oscillation (the curve), fft (the spectrum), mass (window amplitudes), mass_fit (each window's Lifshitz-Kosevich fit A_0 R_T on a temperature grid), dingle (Dingle plot windows), dingle_fit (the fitted Dingle line at the first and last window), landau (extrema of the Landau fan, with landau_fan) or landau_fit (the fan's fitted line at 1/B = 0 and at the last extremum)"),
                 column("temperature_K", F64, Some("K"), "temperature of the sweep"),
                 column("field_T", F64, Some("T"), "field (oscillation rows) or effective field (mass and mass_fit rows)"),
-                column("inverse_field_per_T", F64, None, "1/B, 1/T (oscillation and dingle rows)"),
+                column("inverse_field_per_T", F64, None, "1/B, 1/T (oscillation, dingle, dingle_fit, landau and landau_fit rows)"),
                 column("frequency_T", F64, Some("T"), "frequency (fft rows)"),
                 column("rho_xx_ohm_sq", F64, Some("ohm_sq"), "symmetrized rho_xx (oscillation rows)"),
                 column("background_ohm_sq", F64, Some("ohm_sq"), "removed background (oscillation rows)"),
                 column("value_ohm_sq", F64, Some("ohm_sq"), "the oscillation (oscillation rows), amplitude (fft, mass and dingle rows) or fitted amplitude (mass_fit rows)"),
                 column("value_ohm_sq_unc", F64, Some("ohm_sq"), "amplitude uncertainty (mass and dingle rows)"),
-                column("dingle_ordinate", F64, None, "ln(A sinh X / X) (dingle rows)"),
+                column("dingle_ordinate", F64, None, "ln(A sinh X / X), A in ohm per square (dingle rows; the fitted line on dingle_fit rows)"),
+                column("landau_index", F64, None, "Landau level index: integer at minima of rho_xx, half-integer at maxima (landau rows); F_fan / B + beta on landau_fit rows"),
             ],
             summary_keys: vec![
                 column("frequency_T", F64, Some("T"), "the dominant frequency, with _unc"),
@@ -335,28 +336,78 @@ impl Analysis for OscillationsAnalysis {
                 }
             }
         }
-        let mut dingle_ordinates = Vec::new();
+        // The Dingle plot and the Landau fan come last: their rows alone carry dingle_ordinate
+        // and landau_index. Each has its fitted line as two rows, so that a figure draws the
+        // line the analysis fitted rather than one of its own.
+        let mut tail: Vec<(&'static str, [Option<f64>; 8], Option<f64>, Option<f64>)> = Vec::new();
+        let at = |temperature_k: f64, inverse_field: f64, value: Option<f64>, unc: Option<f64>| {
+            [
+                Some(temperature_k),
+                None,
+                Some(inverse_field),
+                None,
+                None,
+                None,
+                value,
+                unc,
+            ]
+        };
         if let Some(dingle) = &analysis.dingle {
             for point in &dingle.points {
-                push(
+                tail.push((
                     "dingle",
-                    [
-                        Some(dingle.temperature_k),
-                        None,
-                        Some(point.inverse_field_per_t),
-                        None,
-                        None,
-                        None,
+                    at(
+                        dingle.temperature_k,
+                        point.inverse_field_per_t,
                         Some(point.amplitude_ohm_sq),
                         Some(point.amplitude_unc_ohm_sq),
-                    ],
-                );
-                dingle_ordinates.push(point.ordinate);
+                    ),
+                    Some(point.ordinate),
+                    None,
+                ));
+            }
+            // ln(A sinh X / X) = intercept + slope / B across the windows.
+            let (first, last) = span(dingle.points.iter().map(|p| p.inverse_field_per_t));
+            for x in [first, last] {
+                tail.push((
+                    "dingle_fit",
+                    at(dingle.temperature_k, x, None, None),
+                    Some(dingle.intercept + dingle.slope_t * x),
+                    None,
+                ));
             }
         }
+        if let Some(fan) = &analysis.landau_fan {
+            for point in &fan.points {
+                tail.push((
+                    "landau",
+                    at(fan.temperature_k, point.inverse_field_per_t, None, None),
+                    None,
+                    Some(point.index),
+                ));
+            }
+            // index = F_fan / B + beta, from 1/B = 0 (where the intercept beta is read) to the
+            // last extremum.
+            let (_, last) = span(fan.points.iter().map(|p| p.inverse_field_per_t));
+            for x in [0.0, last] {
+                tail.push((
+                    "landau_fit",
+                    at(fan.temperature_k, x, None, None),
+                    None,
+                    Some(fan.frequency_t * x + fan.intercept),
+                ));
+            }
+        }
+        let tail_ordinates: Vec<Option<f64>> = tail.iter().map(|row| row.2).collect();
+        let tail_indices: Vec<Option<f64>> = tail.iter().map(|row| row.3).collect();
+        for (k, values, _, _) in tail {
+            push(k, values);
+        }
         let rows = kind.len();
-        let mut ordinate = vec![None; rows - dingle_ordinates.len()];
-        ordinate.extend(dingle_ordinates.into_iter().map(Some));
+        let mut ordinate = vec![None; rows - tail_ordinates.len()];
+        ordinate.extend(tail_ordinates);
+        let mut landau_index = vec![None; rows - tail_indices.len()];
+        landau_index.extend(tail_indices);
         let [t, b, inv, f, rho, bg, value, unc] = cells;
         let table = frame(
             rows,
@@ -371,6 +422,7 @@ impl Analysis for OscillationsAnalysis {
                 optional("value_ohm_sq", value),
                 optional("value_ohm_sq_unc", unc),
                 optional("dingle_ordinate", ordinate),
+                optional("landau_index", landau_index),
             ],
         )?;
 
@@ -486,6 +538,11 @@ impl Analysis for OscillationsAnalysis {
         host.progress(1.0, "done");
         Ok(output)
     }
+}
+
+/// The smallest and largest of some values (both NaN without any).
+fn span(values: impl Iterator<Item = f64>) -> (f64, f64) {
+    values.fold((f64::NAN, f64::NAN), |(lo, hi), v| (lo.min(v), hi.max(v)))
 }
 
 /// A number for the summary, or null when it is not finite (no degrees of freedom).
@@ -740,6 +797,96 @@ mod tests {
                 "T = {temperature} K, B = {:?}: fit {fitted} against {measured}",
                 b[row]
             );
+        }
+    }
+
+    /// The Dingle and Landau-fan rows carry their fitted lines: the dingle_fit slope is
+    /// -c m* T_D with the reported m* and T_D (c = 2 pi^2 k_B m0 / (hbar e)), and the
+    /// landau_fit slope is the fan's frequency, which agrees with the FFT's F; every extremum
+    /// lies on the fan line (noise-free sweeps of a 2D gas with F = 10 T, m* = 0.067 m0,
+    /// T_D = 0.5 K).
+    #[test]
+    fn dingle_and_landau_rows_carry_their_fitted_lines() {
+        use mobilis_core::forward::oscillations::LK_FIELD_PER_KELVIN;
+        let model = SdhModel {
+            background_ohm_sq: vec![100.0, 0.0, 3.0, -0.1],
+            components: vec![OscillationComponent {
+                amplitude: 0.2,
+                ..OscillationComponent::two_dimensional(10.0, 0.067, 0.5)
+            }],
+        };
+        let (mut field, mut rho_xx, mut temperature) = (vec![], vec![], vec![]);
+        for t in [1.5, 3.0, 6.0] {
+            for k in -1500..=1500 {
+                let b = 9.0 * k as f64 / 1500.0;
+                field.push(b);
+                rho_xx.push(model.rho_xx_ohm_sq(b, t));
+                temperature.push(t);
+            }
+        }
+        let rows = field.len();
+        let sweep = DataFrame::new(
+            rows,
+            vec![
+                floats("rho_xy_ohm", field.iter().map(|b| -50.0 * b).collect()),
+                floats("field_T", field),
+                floats("rho_xx_ohm_sq", rho_xx),
+                floats("temperature_K", temperature),
+            ],
+        )
+        .unwrap();
+        let inputs = Inputs::from_tables([("sweep".to_string(), sweep)]);
+        let output = run_typed::<OscillationsAnalysis>(r#"{"landau_fan": true}"#, &inputs, &Host::detached()).unwrap();
+        let summary = &output.summary;
+        let table = &output.table;
+        let kinds = text(table, "kind");
+        let x = numbers(table, "inverse_field_per_T");
+        let ordinate = numbers(table, "dingle_ordinate");
+        let index = numbers(table, "landau_index");
+        let of = |kind: &str| -> Vec<usize> { (0..kinds.len()).filter(|&i| kinds[i] == kind).collect() };
+        let slope = |rows: &[usize], y: &[Option<f64>]| {
+            assert_eq!(rows.len(), 2, "a line of two rows");
+            let (a, b) = (rows[0], rows[1]);
+            (y[b].unwrap() - y[a].unwrap()) / (x[b].unwrap() - x[a].unwrap())
+        };
+
+        let dingle_fit = of("dingle_fit");
+        let mass = summary["effective_mass_ratio"].as_f64().unwrap();
+        let dingle_k = summary["dingle_temperature_K"].as_f64().unwrap();
+        let expected = -LK_FIELD_PER_KELVIN * mass * dingle_k;
+        let measured = slope(&dingle_fit, &ordinate);
+        assert!(
+            (measured - expected).abs() <= 1e-9 * expected.abs(),
+            "{measured} against {expected}"
+        );
+        assert!((dingle_k - 0.5).abs() < 0.05, "T_D = {dingle_k}");
+        // The line spans the windows.
+        let windows = of("dingle");
+        let first = windows.iter().map(|&i| x[i].unwrap()).fold(f64::INFINITY, f64::min);
+        assert_eq!(x[dingle_fit[0]], Some(first));
+
+        let fan = of("landau");
+        assert!(fan.len() >= 10, "{} extrema", fan.len());
+        let fan_fit = of("landau_fit");
+        let frequency = summary["frequency_T"].as_f64().unwrap();
+        let fan_frequency = slope(&fan_fit, &index);
+        assert!(
+            (fan_frequency - frequency).abs() <= 2e-3 * frequency,
+            "fan {fan_frequency} T, FFT {frequency} T"
+        );
+        assert_eq!(x[fan_fit[0]], Some(0.0), "the fan line starts at 1/B = 0");
+        let beta = index[fan_fit[0]].unwrap();
+        assert_eq!(summary["landau_fan_intercept"].as_f64(), Some(beta));
+        for &row in &fan {
+            let on_line = fan_frequency * x[row].unwrap() + beta;
+            let n = index[row].unwrap();
+            assert!((n - on_line).abs() < 0.05, "extremum {n} at {:?}", x[row]);
+            assert!((2.0 * n).fract() == 0.0, "integer or half-integer: {n}");
+        }
+        // Only these rows carry the two columns.
+        for (i, kind) in kinds.iter().enumerate() {
+            assert_eq!(ordinate[i].is_some(), kind.starts_with("dingle"), "row {i} ({kind})");
+            assert_eq!(index[i].is_some(), kind.starts_with("landau"), "row {i} ({kind})");
         }
     }
 

@@ -1,0 +1,845 @@
+//! `report.samples` and `report.render`: one self-contained HTML page per sample that a lab
+//! can file with the wafer — every dataset that holds the sample, its figures, tables,
+//! quality flags and provenance (which readings, which analyses with which parameters,
+//! which versions).
+//!
+//! Self-contained means no external resource at all: styles inline, figures as inline SVG
+//! drawn by mobilis-plot, so the page opens the same on any machine, years later.
+
+mod numbers;
+mod summary;
+
+use crate::errors::{ServiceError, ServiceResult};
+use crate::plots::filter_rows;
+use crate::service::Service;
+use crate::store::{Dataset, Provenance};
+use mobilis_core::abi;
+use mobilis_core::units::{customary_display, format_number};
+use polars::prelude::*;
+use serde_json::{json, Map, Value};
+use std::collections::BTreeSet;
+use std::fmt::Write;
+use std::sync::Arc;
+
+/// The column that names the sample a row belongs to.
+pub const SAMPLE_COLUMN: &str = "sample";
+/// Rows shown of a dataset produced by an analysis (they are few: one per temperature or peak).
+const ANALYSIS_ROWS_SHOWN: usize = 200;
+/// Rows shown of imported data, which can be large: the full table stays in the workspace.
+const IMPORTED_ROWS_SHOWN: usize = 12;
+/// The largest table (rows times columns) embedded in the page as a CSV download; larger
+/// ones stay in the workspace (`mobilis export`), so that a page stays a few megabytes.
+const CSV_CELLS_EMBEDDED: usize = 60_000;
+/// The smallest text a figure may be drawn with, in CSS pixels.
+const SMALLEST_TEXT_PX: f64 = 10.0;
+
+pub(crate) fn escape(text: &str) -> String {
+    let mut out = String::with_capacity(text.len());
+    for c in text.chars() {
+        match c {
+            '&' => out.push_str("&amp;"),
+            '<' => out.push_str("&lt;"),
+            '>' => out.push_str("&gt;"),
+            '"' => out.push_str("&quot;"),
+            '\'' => out.push_str("&#39;"),
+            c => out.push(c),
+        }
+    }
+    out
+}
+
+/// The distinct sample names of a dataset, if it has a text `sample` column.
+pub(crate) fn samples_of(dataset: &Dataset) -> BTreeSet<String> {
+    let Ok(column) = dataset.frame.column(SAMPLE_COLUMN) else {
+        return BTreeSet::new();
+    };
+    let Ok(strings) = column.str() else {
+        return BTreeSet::new();
+    };
+    strings.iter().flatten().map(str::to_owned).collect()
+}
+
+/// A cell as the report shows it, numbers in the column's customary unit.
+fn cell_text(value: AnyValue, factor: f64) -> String {
+    match value {
+        AnyValue::Null => String::new(),
+        AnyValue::Boolean(flag) => if flag { "yes" } else { "no" }.into(),
+        AnyValue::String(text) => text.to_owned(),
+        AnyValue::StringOwned(text) => text.to_string(),
+        other => match other.extract::<f64>() {
+            Some(number) if matches!(other, AnyValue::Float32(_) | AnyValue::Float64(_)) => {
+                if number.is_finite() {
+                    format_number(number * factor)
+                } else {
+                    String::new()
+                }
+            }
+            Some(number) => format!("{number}"),
+            None => other.to_string(),
+        },
+    }
+}
+
+/// An HTML table of the first `limit` rows of `columns` (all but the sample column when
+/// empty), in customary units.
+fn table_html(frame: &DataFrame, columns: &[String], limit: usize, class: &str) -> String {
+    let columns: Vec<&Column> = if columns.is_empty() {
+        frame
+            .columns()
+            .iter()
+            .filter(|c| c.name().as_str() != SAMPLE_COLUMN)
+            .collect()
+    } else {
+        columns.iter().filter_map(|name| frame.column(name).ok()).collect()
+    };
+    let displays: Vec<(String, f64)> = columns
+        .iter()
+        .map(|c| match customary_display(c.name()) {
+            Some(display) => (display.label, display.factor),
+            None => (c.name().to_string(), 1.0),
+        })
+        .collect();
+    let mut html = format!("<div class=\"table-wrap\"><table class=\"{class}\"><thead><tr>");
+    for (label, _) in &displays {
+        // Long stored names may break after their underscores.
+        let _ = write!(html, "<th>{}</th>", escape(label).replace('_', "_<wbr>"));
+    }
+    html.push_str("</tr></thead><tbody>");
+    for row in 0..frame.height().min(limit) {
+        html.push_str("<tr>");
+        for (column, (_, factor)) in columns.iter().zip(&displays) {
+            let value = column.get(row).unwrap_or(AnyValue::Null);
+            let _ = write!(html, "<td>{}</td>", escape(&cell_text(value, *factor)));
+        }
+        html.push_str("</tr>");
+    }
+    html.push_str("</tbody></table></div>");
+    if frame.height() > limit {
+        let _ = write!(
+            html,
+            "<p class=\"note\">First {limit} of {} rows; the whole table is in the CSV download and the workspace (mobilis export).</p>",
+            frame.height()
+        );
+    }
+    html
+}
+
+/// The columns a person reads first: for `hall.reduce` temperature, carrier type, density,
+/// mobility, resistivity and sheet resistance with their uncertainties, and the flags; for
+/// other tables the temperature, the carrier type and each quantity with an `_unc` column,
+/// at most twelve.
+fn key_columns(analysis: Option<&str>, frame: &DataFrame) -> Vec<String> {
+    let has = |name: &str| frame.column(name).is_ok();
+    let mut key: Vec<String> = Vec::new();
+    if analysis == Some("hall.reduce") {
+        for name in [
+            "temperature_K",
+            "carrier_type",
+            "density_m3",
+            "density_m3_unc",
+            "sheet_density_m2",
+            "sheet_density_m2_unc",
+            "hall_mobility_m2_per_Vs",
+            "hall_mobility_m2_per_Vs_unc",
+            "resistivity_ohm_m",
+            "resistivity_ohm_m_unc",
+            "sheet_resistance_ohm_sq",
+            "sheet_resistance_ohm_sq_unc",
+            "flags",
+        ] {
+            // A bulk sample's sheet density repeats its density; a film without a thickness has only the sheet one.
+            if name.starts_with("sheet_density") && has("density_m3") {
+                continue;
+            }
+            if has(name) {
+                key.push(name.to_owned());
+            }
+        }
+        return key;
+    }
+    for name in ["temperature_K", "carrier_type"] {
+        if has(name) {
+            key.push(name.to_owned());
+        }
+    }
+    for column in frame.columns() {
+        let name = column.name().as_str();
+        let uncertainty = format!("{name}_unc");
+        if key.len() + 2 <= 12 && name != "temperature_K" && !name.contains("_unc") && has(&uncertainty) {
+            key.push(name.to_owned());
+            key.push(uncertainty);
+        }
+    }
+    for name in ["flags", "freeze_out_consistent", "quality_ok"] {
+        if has(name) && key.len() < 13 {
+            key.push(name.to_owned());
+        }
+    }
+    key
+}
+
+/// Every column but the sample, the key ones first.
+fn ordered_columns(frame: &DataFrame, key: &[String]) -> Vec<String> {
+    let mut columns = key.to_vec();
+    for column in frame.columns() {
+        let name = column.name().to_string();
+        if name != SAMPLE_COLUMN && !columns.contains(&name) {
+            columns.push(name);
+        }
+    }
+    columns
+}
+
+/// Standard Base64 (RFC 4648, section 4) of `bytes`.
+fn base64(bytes: &[u8]) -> String {
+    const ALPHABET: &[u8; 64] = b"ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
+    let mut out = String::with_capacity(bytes.len().div_ceil(3) * 4);
+    for chunk in bytes.chunks(3) {
+        let b = [chunk[0], *chunk.get(1).unwrap_or(&0), *chunk.get(2).unwrap_or(&0)];
+        let n = (u32::from(b[0]) << 16) | (u32::from(b[1]) << 8) | u32::from(b[2]);
+        for (i, shift) in [18, 12, 6, 0].into_iter().enumerate() {
+            if i <= chunk.len() {
+                out.push(ALPHABET[((n >> shift) & 63) as usize] as char);
+            } else {
+                out.push('=');
+            }
+        }
+    }
+    out
+}
+
+/// The rows as CSV (RFC 4180): stored column names, SI values, numbers in full precision.
+fn csv_text(frame: &DataFrame) -> String {
+    let quote = |text: &str| {
+        if text.contains([',', '"', '\n', '\r']) {
+            format!("\"{}\"", text.replace('"', "\"\""))
+        } else {
+            text.to_owned()
+        }
+    };
+    let mut csv = frame
+        .columns()
+        .iter()
+        .map(|c| quote(c.name()))
+        .collect::<Vec<_>>()
+        .join(",");
+    csv.push_str("\r\n");
+    for row in 0..frame.height() {
+        let cells: Vec<String> = frame
+            .columns()
+            .iter()
+            .map(|column| match column.get(row).unwrap_or(AnyValue::Null) {
+                AnyValue::Null => String::new(),
+                AnyValue::Boolean(flag) => flag.to_string(),
+                AnyValue::String(text) => quote(text),
+                AnyValue::StringOwned(text) => quote(&text),
+                other => match other.extract::<f64>() {
+                    // Shortest text that reads back as the same double; exponent form far from 1.
+                    Some(number) if number.is_finite() => {
+                        let magnitude = number.abs();
+                        if magnitude != 0.0 && !(1e-4..1e15).contains(&magnitude) {
+                            format!("{number:e}")
+                        } else {
+                            format!("{number}")
+                        }
+                    }
+                    Some(_) => String::new(),
+                    None => quote(&other.to_string()),
+                },
+            })
+            .collect();
+        csv.push_str(&cells.join(","));
+        csv.push_str("\r\n");
+    }
+    csv
+}
+
+/// A link that downloads the rows as CSV, or where they are when too large to embed.
+fn csv_html(frame: &DataFrame, dataset: &str, sample: &str) -> String {
+    let cells = frame.height() * frame.width();
+    if cells > CSV_CELLS_EMBEDDED {
+        return format!(
+            "<p class=\"note csv\">All {} rows: <code>mobilis export {}</code> (too large to embed in this page).</p>",
+            frame.height(),
+            escape(dataset)
+        );
+    }
+    format!(
+        "<p class=\"note csv\"><a class=\"csv\" download=\"{}-{}.csv\" href=\"data:text/csv;charset=utf-8;base64,{}\">Download all {} rows as CSV</a> (SI units, stored column names).</p>",
+        escape(dataset),
+        escape(sample),
+        base64(csv_text(frame).as_bytes()),
+        frame.height()
+    )
+}
+
+/// The drawn width of a figure: its own width, or wider where its smallest text (the
+/// `font-size` attributes) would be drawn under [`SMALLEST_TEXT_PX`].
+fn figure_width(svg: &str) -> (f64, f64) {
+    let attribute = |name: &str| -> Vec<f64> {
+        svg.match_indices(&format!("{name}=\""))
+            .filter_map(|(at, matched)| {
+                let rest = &svg[at + matched.len()..];
+                rest[..rest.find('"')?].parse::<f64>().ok()
+            })
+            .collect()
+    };
+    let width = attribute("width").first().copied().unwrap_or(640.0);
+    let smallest = attribute("font-size").into_iter().fold(f64::INFINITY, f64::min);
+    let scale = if smallest.is_finite() && smallest > 0.0 {
+        (SMALLEST_TEXT_PX / smallest).max(1.0)
+    } else {
+        1.0
+    };
+    (width, width * scale)
+}
+
+/// The quality-flag callout of a table with `flags` and `quality_ok` columns (hall.reduce).
+fn flags_html(frame: &DataFrame) -> Option<String> {
+    let flags = frame.column("flags").ok()?.str().ok()?.clone();
+    let mut counts: std::collections::BTreeMap<String, usize> = Default::default();
+    let mut flagged = 0;
+    for cell in flags.iter().flatten() {
+        let raised: Vec<&str> = cell.split(',').map(str::trim).filter(|f| !f.is_empty()).collect();
+        if !raised.is_empty() {
+            flagged += 1;
+        }
+        for flag in raised {
+            *counts.entry(flag.to_owned()).or_default() += 1;
+        }
+    }
+    if flagged == 0 {
+        return Some(format!(
+            "<p class=\"flags ok\">Quality flags: none raised on {} rows.</p>",
+            frame.height()
+        ));
+    }
+    let list: Vec<String> = counts
+        .iter()
+        .map(|(flag, count)| format!("<code>{}</code> on {count}", escape(flag)))
+        .collect();
+    Some(format!(
+        "<p class=\"flags raised\">Quality flags: {flagged} of {} rows flagged — {}. Thresholds and meanings: DEVELOPERS.md, hall.reduce.</p>",
+        frame.height(),
+        list.join(", ")
+    ))
+}
+
+fn provenance_html(provenance: &Provenance) -> String {
+    match provenance {
+        Provenance::File { path, format, units } => {
+            let mut text = format!("Imported from <code>{}</code> ({}).", escape(path), escape(format));
+            if !units.is_empty() {
+                let converted: Vec<String> = units
+                    .iter()
+                    .map(|(column, unit)| format!("{} from {}", escape(column), escape(unit)))
+                    .collect();
+                let _ = write!(text, " Converted into SI: {}.", converted.join(", "));
+            }
+            text
+        }
+        Provenance::Inline { units } => {
+            let mut text = String::from("Sent inline by a client.");
+            if !units.is_empty() {
+                let _ = write!(text, " Converted into SI: {}.", escape(&format!("{units:?}")));
+            }
+            text
+        }
+        Provenance::Analysis {
+            analysis,
+            plugin,
+            plugin_version,
+            params,
+            inputs,
+            group_by,
+            summary,
+            ..
+        } => {
+            let inputs: Vec<String> = inputs
+                .iter()
+                .map(|(role, dataset)| {
+                    format!(
+                        "{} = <a href=\"#dataset-{}\">{}</a>",
+                        escape(role),
+                        escape(dataset),
+                        escape(dataset)
+                    )
+                })
+                .collect();
+            let mut text = format!(
+                "{} of <code>{}</code> (plugin {} {}), inputs {}",
+                if *summary { "Summary" } else { "Output" },
+                escape(analysis),
+                escape(plugin),
+                escape(plugin_version),
+                inputs.join(", ")
+            );
+            if !group_by.is_empty() {
+                let _ = write!(text, ", run per {}", escape(&group_by.join(", ")));
+            }
+            let params = serde_json::to_string(params).unwrap_or_default();
+            let _ = write!(text, ". Parameters: <code>{}</code>.", escape(&params));
+            text
+        }
+    }
+}
+
+const STYLE: &str = r#"
+:root { --ink: #1d2430; --muted: #5b6577; --rule: #d5dae3; --accent: #0d6e6e; --warn: #a4461a; --paper: #fbfbf8; }
+* { box-sizing: border-box; }
+body { margin: 0; background: var(--paper); color: var(--ink); font: 15px/1.45 "Segoe UI", "Helvetica Neue", Arial, sans-serif; }
+header { padding: 24px 20px 16px; border-bottom: 3px solid var(--accent); background: #fff; }
+header h1 { margin: 0 0 4px; font-size: 26px; letter-spacing: 0.01em; }
+header .meta { color: var(--muted); font-size: 13px; }
+main { padding: 8px 20px 40px; max-width: 1280px; }
+section.results { margin-top: 18px; }
+section.results h2, section.dataset h2 { font-size: 19px; margin: 0 0 6px; color: var(--accent); }
+.result { margin: 14px 0 18px; }
+.result h3 { font-size: 15px; margin: 0 0 4px; }
+.result h3 .from { font-weight: normal; font-size: 13px; color: var(--muted); }
+.quality { font-size: 13px; color: var(--muted); margin: 4px 0; }
+section.dataset { margin-top: 30px; padding-top: 10px; border-top: 1px solid var(--rule); }
+.provenance { color: var(--muted); font-size: 13px; margin: 0 0 10px; overflow-wrap: anywhere; }
+.figures { display: flex; flex-wrap: wrap; gap: 12px; margin: 12px 0; }
+figure.plot { margin: 0; background: #fff; border: 1px solid var(--rule); border-radius: 4px; padding: 6px; flex: 1 1 580px; max-width: 680px; }
+figure.plot.wide { flex: 1 1 100%; max-width: none; }
+figure.plot svg { display: block; width: 100%; height: auto; }
+figure.plot figcaption { font-size: 12px; color: var(--muted); padding: 2px 4px; }
+.table-wrap { overflow-x: auto; border: 1px solid var(--rule); background: #fff; max-width: 100%; }
+table { border-collapse: collapse; font-size: 12px; font-variant-numeric: tabular-nums; }
+th, td { padding: 3px 8px; border-bottom: 1px solid #eceff4; text-align: right; white-space: nowrap; }
+th { background: #f0f3f6; font-weight: 600; }
+table.key { background: #fff; border: 1px solid var(--rule); font-size: 13px; }
+table.key td, table.key th { text-align: left; }
+table.quantities th { background: none; font-weight: normal; }
+table.quantities td { font-weight: 600; }
+details { margin: 8px 0; }
+details > summary { cursor: pointer; color: var(--accent); font-size: 13px; }
+.note { color: var(--muted); font-size: 12px; }
+.flags { padding: 4px 10px; margin: 4px 0; border-left: 4px solid; font-size: 13px; }
+.flags.ok { border-color: var(--accent); background: #eef6f5; }
+.flags.raised { border-color: var(--warn); background: #fbf0ea; }
+.caution { font-size: 12px; color: var(--muted); border-top: 1px solid var(--rule); margin-top: 36px; padding-top: 10px; }
+code { font-size: 12px; background: #eef0f4; padding: 0 3px; border-radius: 2px; word-break: break-word; }
+"#;
+
+/// Print (A4 and Letter alike): nothing wider than the paper. Tables wrap their cells and
+/// shrink their type, figures take the text width one below the other and never split
+/// across pages, closed disclosures and download links stay off paper. Kept in a style
+/// element of its own (`media="print"`) so that a check can apply it on screen.
+const PRINT_STYLE: &str = r#"
+@page { margin: 12mm; }
+body { background: #fff; font-size: 11px; }
+header { padding: 0 0 8px; border-bottom-width: 2px; }
+header h1 { font-size: 20px; }
+main { padding: 0; max-width: none; }
+.table-wrap { overflow: visible; border: none; }
+table { width: 100%; font-size: 8.5px; }
+table.key { font-size: 10px; }
+th, td { white-space: normal; overflow-wrap: anywhere; padding: 2px 3px; }
+tr, .result, figure.plot, .flags { break-inside: avoid; }
+h2, h3 { break-after: avoid; }
+thead { display: table-header-group; }
+.figures { display: block; }
+figure.plot, figure.plot.wide { max-width: 100% !important; margin: 0 0 8px; border: none; padding: 0; }
+p.csv, a.csv { display: none; }
+code { font-size: 10px; }
+"#;
+
+/// Counts the figures the browser laid out and the smallest text drawn in them, for
+/// automated checks of a filed report. With `#print-check` in the address it first applies
+/// the print style and then tells whether any table is wider than the space it has.
+const LAYOUT_CHECK: &str = r#"
+window.addEventListener("load", function () {
+  var root = document.documentElement;
+  if (location.hash.indexOf("print-check") >= 0) {
+    document.getElementById("print-style").media = "all";
+  }
+  var drawn = 0, figures = document.querySelectorAll("figure.plot svg");
+  var smallestText = Infinity, smallestPart = Infinity;
+  figures.forEach(function (svg) {
+    var box = svg.getBoundingClientRect(); if (box.width > 0 && box.height > 0) drawn += 1;
+    svg.querySelectorAll("text, tspan").forEach(function (text) {
+      if (!text.textContent.trim()) return;
+      var m = text.getScreenCTM(); if (!m) return;
+      var size = parseFloat(getComputedStyle(text).fontSize) * Math.hypot(m.a, m.b);
+      if (text.tagName === "text") smallestText = Math.min(smallestText, size);
+      else smallestPart = Math.min(smallestPart, size);
+    });
+  });
+  root.setAttribute("data-figures", String(figures.length));
+  root.setAttribute("data-figures-drawn", String(drawn));
+  root.setAttribute("data-smallest-text-px", smallestText === Infinity ? "none" : smallestText.toFixed(2));
+  root.setAttribute("data-smallest-raised-text-px", smallestPart === Infinity ? "none" : smallestPart.toFixed(2));
+  var tables = 0, clipped = [];
+  document.querySelectorAll("table").forEach(function (table) {
+    if (!table.offsetParent) return;
+    tables += 1;
+    var container = table.parentElement;
+    var overflow = table.scrollWidth > container.clientWidth + 1 ||
+      table.getBoundingClientRect().right > root.clientWidth + 1;
+    if (overflow) clipped.push((table.closest("section") || {}).id || "table");
+  });
+  root.setAttribute("data-tables", String(tables));
+  root.setAttribute("data-tables-clipped", clipped.join(" "));
+  root.setAttribute("data-page-width", String(root.clientWidth));
+  root.setAttribute("data-content-width", String(root.scrollWidth));
+});
+"#;
+
+/// How many analyses lie between a dataset and the imported data it derives from.
+fn chain_depth(
+    name: &str,
+    all: &[Arc<Dataset>],
+    depths: &mut std::collections::HashMap<String, usize>,
+    guard: usize,
+) -> usize {
+    if let Some(depth) = depths.get(name) {
+        return *depth;
+    }
+    let depth = match all
+        .iter()
+        .find(|d| d.manifest.name == name)
+        .map(|d| &d.manifest.provenance)
+    {
+        // An overwritten input could in principle point back at its reader: stop at any depth
+        // no real chain reaches.
+        Some(Provenance::Analysis { inputs, .. }) if guard < 64 => {
+            1 + inputs
+                .values()
+                .map(|input| chain_depth(input, all, depths, guard + 1))
+                .max()
+                .unwrap_or(0)
+        }
+        _ => 0,
+    };
+    depths.insert(name.to_owned(), depth);
+    depth
+}
+
+impl Service {
+    /// Every sample named in a `sample` column, with the datasets that hold it.
+    pub fn report_samples(&self) -> Value {
+        let mut samples: std::collections::BTreeMap<String, Vec<String>> = Default::default();
+        for dataset in self.store.list() {
+            for sample in samples_of(&dataset) {
+                samples.entry(sample).or_default().push(dataset.manifest.name.clone());
+            }
+        }
+        Value::Array(
+            samples
+                .into_iter()
+                .map(|(sample, datasets)| json!({ "sample": sample, "datasets": datasets }))
+                .collect(),
+        )
+    }
+
+    /// The HTML page of one sample.
+    pub fn report_render(&self, sample: &str) -> ServiceResult<Value> {
+        let mut datasets: Vec<Arc<Dataset>> = self
+            .store
+            .list()
+            .into_iter()
+            .filter(|d| samples_of(d).contains(sample))
+            .collect();
+        if datasets.is_empty() {
+            let known: Vec<String> = self
+                .report_samples()
+                .as_array()
+                .into_iter()
+                .flatten()
+                .filter_map(|s| s["sample"].as_str().map(str::to_owned))
+                .collect();
+            return Err(
+                ServiceError::invalid_params(format!("no dataset has rows of sample `{sample}`")).with_help(
+                    if known.is_empty() {
+                        "no stored dataset has a `sample` column yet; import data with one".to_owned()
+                    } else {
+                        format!("samples with data: {}", known.join(", "))
+                    },
+                ),
+            );
+        }
+        // Imports first, then each analysis after the datasets it read: the page reads as
+        // the work went (creation times have whole seconds and cannot order a fast pipeline).
+        let all = self.store.list();
+        let mut depths: std::collections::HashMap<String, usize> = Default::default();
+        for dataset in &datasets {
+            chain_depth(&dataset.manifest.name, &all, &mut depths, 0);
+        }
+        datasets.sort_by(|a, b| {
+            let key = |d: &Dataset| {
+                (
+                    depths.get(&d.manifest.name).copied().unwrap_or(0),
+                    d.manifest.created.clone(),
+                )
+            };
+            key(a).cmp(&key(b)).then_with(|| a.manifest.name.cmp(&b.manifest.name))
+        });
+        let filter: Map<String, Value> = [(SAMPLE_COLUMN.to_owned(), json!(sample))].into_iter().collect();
+        let mut frames = Vec::with_capacity(datasets.len());
+        for dataset in &datasets {
+            frames.push((dataset.as_ref(), filter_rows(&dataset.frame, &filter)?));
+        }
+        let results = summary::blocks(sample, &frames);
+        let mut body = summary::html(&results);
+        let mut figures_drawn = 0usize;
+        let mut contents = Vec::new();
+        for (dataset, frame) in &frames {
+            let name = &dataset.manifest.name;
+            let _ = write!(
+                body,
+                "<section class=\"dataset\" id=\"dataset-{}\"><h2>{}</h2><p class=\"provenance\">{} {} rows of this sample (of {} in the dataset); stored {}.</p>",
+                escape(name),
+                escape(name),
+                provenance_html(&dataset.manifest.provenance),
+                frame.height(),
+                dataset.frame.height(),
+                escape(&dataset.manifest.created)
+            );
+            if let Some(flags) = flags_html(&frame) {
+                body.push_str(&flags);
+            }
+            let analysis = match &dataset.manifest.provenance {
+                Provenance::Analysis {
+                    analysis,
+                    summary: false,
+                    ..
+                } => Some(analysis.as_str()),
+                _ => None,
+            };
+            let kinds: Vec<&str> = match analysis {
+                Some(analysis) => mobilis_plot::kinds_for(Some(analysis))
+                    .into_iter()
+                    .filter(|k| *k != "columns")
+                    .collect(),
+                None => Vec::new(),
+            };
+            let mut drawn = Vec::new();
+            let mut not_drawn = Vec::new();
+            for kind in kinds {
+                let options = mobilis_plot::PlotOptions {
+                    kind: Some(kind.to_owned()),
+                    analysis: analysis.map(str::to_owned),
+                    ..Default::default()
+                };
+                match mobilis_plot::build(&frame, name, &options) {
+                    Ok(figure) => {
+                        let svg = figure.to_svg();
+                        let (width, drawn_width) = figure_width(&svg);
+                        // Two panels side by side take the full width; single panels share a row
+                        // where two fit at a size their text stays legible at.
+                        let (class, style) = if width > 800.0 {
+                            ("plot wide", String::new())
+                        } else {
+                            (
+                                "plot",
+                                format!(
+                                    " style=\"flex-basis: {:.0}px; max-width: {:.0}px\"",
+                                    width * 0.92,
+                                    drawn_width.max(width)
+                                ),
+                            )
+                        };
+                        drawn.push(format!(
+                            "<figure class=\"{class}\" data-kind=\"{}\"{style}>{svg}<figcaption>figure kind {} (plot.render)</figcaption></figure>",
+                            escape(kind),
+                            escape(kind)
+                        ))
+                    }
+                    Err(error) => not_drawn.push(format!("{kind}: {error}")),
+                }
+            }
+            if !drawn.is_empty() {
+                figures_drawn += drawn.len();
+                let _ = write!(body, "<div class=\"figures\">{}</div>", drawn.join(""));
+            }
+            for reason in &not_drawn {
+                let _ = write!(body, "<p class=\"note\">Not drawn: {}</p>", escape(reason));
+            }
+            let produced = matches!(dataset.manifest.provenance, Provenance::Analysis { .. });
+            // hall.reduce's rows are its results; other analyses' rows (points, fitted curves,
+            // spectrum grids) are what their figures draw.
+            let rows_are_results = analysis == Some("hall.reduce") || (produced && drawn.is_empty());
+            if rows_are_results {
+                let key = key_columns(analysis, &frame);
+                body.push_str(&table_html(&frame, &key, ANALYSIS_ROWS_SHOWN, "key"));
+                let all = ordered_columns(&frame, &key);
+                let _ = write!(
+                    body,
+                    "<details><summary>All {} columns, the key ones first</summary>{}</details>",
+                    all.len(),
+                    table_html(&frame, &all, ANALYSIS_ROWS_SHOWN, "full")
+                );
+            } else if produced {
+                let _ = write!(
+                    body,
+                    "<p class=\"note\">Its {} rows of this sample (points, fitted curves, grids) are drawn in the figures above, not tabulated.</p>",
+                    frame.height()
+                );
+            } else {
+                let _ = write!(
+                    body,
+                    "<details><summary>Imported rows of this sample ({})</summary>{}</details>",
+                    frame.height(),
+                    table_html(&frame, &[], IMPORTED_ROWS_SHOWN, "full")
+                );
+            }
+            body.push_str(&csv_html(&frame, name, sample));
+            body.push_str("</section>");
+            contents.push(name.clone());
+        }
+
+        let plugins: Vec<String> = self
+            .host
+            .plugins
+            .iter()
+            .map(|p| format!("{} {}", escape(&p.name), escape(&p.version)))
+            .collect();
+        let generated = crate::store::utc_timestamp(std::time::SystemTime::now());
+        let toc: Vec<String> = contents
+            .iter()
+            .map(|n| format!("<a href=\"#dataset-{}\">{}</a>", escape(n), escape(n)))
+            .collect();
+        let html = format!(
+            "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\
+<meta name=\"generator\" content=\"mobilisd {version}\"><title>Sample {sample_escaped} — transport report</title><style>{STYLE}</style>\
+<style media=\"print\" id=\"print-style\">{PRINT_STYLE}</style><script>{LAYOUT_CHECK}</script></head><body><header><h1>Sample {sample_escaped}</h1>\
+<div class=\"meta\">Transport report generated {generated} by mobilisd {version} (plugin ABI {major}.{minor}); plugins: {plugins}.<br>\
+Contents: <a href=\"#results\">Results</a> · {toc}</div></header><main>{body}\
+<p class=\"caution\">Values are in the customary units of the trade (densities per cm³ or cm², mobilities in cm²/(V s), \
+resistivities in Ω cm); the workspace keeps SI. These analyses support, and do not replace, the laboratory's own \
+procedures and review.</p></main></body></html>\n",
+            version = env!("CARGO_PKG_VERSION"),
+            sample_escaped = escape(sample),
+            major = abi::ABI_MAJOR,
+            minor = abi::ABI_MINOR,
+            plugins = plugins.join(", "),
+            toc = toc.join(" · "),
+        );
+        Ok(json!({
+            "sample": sample,
+            "datasets": contents,
+            "figures": figures_drawn,
+            "html": html,
+        }))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn text_is_escaped_for_html() {
+        assert_eq!(
+            escape("<a href=\"x\">R&D</a>'"),
+            "&lt;a href=&quot;x&quot;&gt;R&amp;D&lt;/a&gt;&#39;"
+        );
+    }
+
+    #[test]
+    fn tables_show_customary_units_and_leave_out_the_sample() {
+        let frame = df!(
+            "sample" => ["W1", "W1"],
+            "temperature_K" => [77.0, 300.0],
+            "density_m3" => [3.0e21, f64::NAN],
+        )
+        .unwrap();
+        let html = table_html(&frame, &[], 1, "full");
+        assert!(html.contains("<th>density_<wbr>cm3</th>"), "{html}");
+        assert!(html.contains("<td>3.000e15</td>"), "{html}");
+        assert!(!html.contains("W1") && !html.contains(">sample<"), "{html}");
+        assert!(html.contains("First 1 of 2 rows"), "{html}");
+    }
+
+    #[test]
+    fn key_columns_come_first_and_the_csv_keeps_si_and_stored_names() {
+        let frame = df!(
+            "sample" => ["W1", "W1"],
+            "geometry" => ["vdp", "vdp"],
+            "temperature_K" => [77.0, 300.0],
+            "resistivity_ohm_m" => [0.01, 0.02],
+            "hall_mobility_m2_per_Vs" => [0.5, 0.1],
+            "hall_mobility_m2_per_Vs_unc" => [0.005, 0.001],
+            "carrier_type" => ["n", "n"],
+            "density_m3" => [3.0e21, 3.1e21],
+            "density_m3_unc" => [3.0e19, 3.1e19],
+            "flags" => ["", "note, \"quoted\""],
+        )
+        .unwrap();
+        let key = key_columns(Some("hall.reduce"), &frame);
+        assert_eq!(
+            key,
+            [
+                "temperature_K",
+                "carrier_type",
+                "density_m3",
+                "density_m3_unc",
+                "hall_mobility_m2_per_Vs",
+                "hall_mobility_m2_per_Vs_unc",
+                "resistivity_ohm_m",
+                "flags"
+            ]
+        );
+        let all = ordered_columns(&frame, &key);
+        assert_eq!(all[..key.len()], key[..]);
+        assert_eq!(all.last().map(String::as_str), Some("geometry"));
+        assert!(!all.iter().any(|c| c == "sample"));
+        // Other tables: temperature, carrier type, then each quantity with its uncertainty.
+        let generic = key_columns(Some("carriers.purity"), &frame);
+        assert_eq!(
+            generic[..4],
+            [
+                "temperature_K",
+                "carrier_type",
+                "hall_mobility_m2_per_Vs",
+                "hall_mobility_m2_per_Vs_unc"
+            ]
+        );
+        let csv = csv_text(&frame);
+        let mut lines = csv.lines();
+        assert_eq!(
+            lines.next(),
+            Some("sample,geometry,temperature_K,resistivity_ohm_m,hall_mobility_m2_per_Vs,hall_mobility_m2_per_Vs_unc,carrier_type,density_m3,density_m3_unc,flags")
+        );
+        assert_eq!(
+            lines.nth(1),
+            Some("W1,vdp,300,0.02,0.1,0.001,n,3.1e21,3.1e19,\"note, \"\"quoted\"\"\"")
+        );
+    }
+
+    #[test]
+    fn base64_follows_rfc_4648() {
+        for (plain, encoded) in [
+            ("", ""),
+            ("f", "Zg=="),
+            ("fo", "Zm8="),
+            ("foo", "Zm9v"),
+            ("foobar", "Zm9vYmFy"),
+        ] {
+            assert_eq!(base64(plain.as_bytes()), encoded);
+        }
+    }
+
+    #[test]
+    fn figures_are_widened_until_their_smallest_text_is_legible() {
+        let svg = r#"<svg width="640" height="454" font-size="12"><text font-size="8">x</text></svg>"#;
+        assert_eq!(figure_width(svg), (640.0, 800.0));
+        let svg = r#"<svg width="1280" height="454" font-size="12"><text font-size="11">x</text></svg>"#;
+        assert_eq!(figure_width(svg), (1280.0, 1280.0));
+    }
+
+    #[test]
+    fn raised_flags_are_counted_by_name() {
+        let frame = df!(
+            "flags" => ["", "current_reversal", "current_reversal,geometry"],
+            "quality_ok" => [true, false, false],
+        )
+        .unwrap();
+        let html = flags_html(&frame).unwrap();
+        assert!(html.contains("2 of 3 rows flagged"), "{html}");
+        assert!(html.contains("<code>current_reversal</code> on 2"), "{html}");
+        assert!(html.contains("<code>geometry</code> on 1"), "{html}");
+    }
+}

@@ -109,7 +109,13 @@ fn table_html(frame: &DataFrame, columns: &[String], limit: usize, class: &str) 
         html.push_str("<tr>");
         for (column, (_, factor)) in columns.iter().zip(&displays) {
             let value = column.get(row).unwrap_or(AnyValue::Null);
-            let _ = write!(html, "<td>{}</td>", escape(&cell_text(value, *factor)));
+            // Text may wrap anywhere on paper; numbers stay whole.
+            let class = if column.dtype() == &DataType::String {
+                " class=\"text\""
+            } else {
+                ""
+            };
+            let _ = write!(html, "<td{class}>{}</td>", escape(&cell_text(value, *factor)));
         }
         html.push_str("</tr>");
     }
@@ -424,8 +430,8 @@ code { font-size: 12px; background: #eef0f4; padding: 0 3px; border-radius: 2px;
 "#;
 
 /// Print (A4 and Letter alike): nothing wider than the paper. Tables wrap their cells and
-/// shrink their type, figures take the text width one below the other and never split
-/// across pages, closed disclosures and download links stay off paper. Kept in a style
+/// shrink their type, figures stand one below the other (two single panels to a page) and
+/// never split across pages; disclosures and download links stay off paper. Kept in a style
 /// element of its own (`media="print"`) so that a check can apply it on screen.
 const PRINT_STYLE: &str = r#"
 @page { margin: 12mm; }
@@ -436,13 +442,16 @@ main { padding: 0; max-width: none; }
 .table-wrap { overflow: visible; border: none; }
 table { width: 100%; font-size: 8.5px; }
 table.key { font-size: 10px; }
-th, td { white-space: normal; overflow-wrap: anywhere; padding: 2px 3px; }
+th, td { white-space: normal; padding: 2px 3px; }
+td.text { overflow-wrap: anywhere; }
 tr, .result, figure.plot, .flags { break-inside: avoid; }
 h2, h3 { break-after: avoid; }
 thead { display: table-header-group; }
 .figures { display: block; }
-figure.plot, figure.plot.wide { max-width: 100% !important; margin: 0 0 8px; border: none; padding: 0; }
-p.csv, a.csv { display: none; }
+figure.plot { width: 78%; max-width: 100% !important; margin: 0 auto 8px; border: none; padding: 0; }
+figure.plot.wide { width: 100%; }
+table.key { width: auto; max-width: 100%; }
+p.csv, a.csv, details { display: none; }
 code { font-size: 10px; }
 "#;
 

@@ -32,6 +32,11 @@ const IMPORTED_ROWS_SHOWN: usize = 12;
 const CSV_CELLS_EMBEDDED: usize = 60_000;
 /// The smallest text a figure may be drawn with, in CSS pixels.
 const SMALLEST_TEXT_PX: f64 = 10.0;
+/// The panel size of figures of several panels on paper: two side by side span about the
+/// text width of A4 and Letter (186 to 192 mm, 703 to 725 CSS pixels), so that their text
+/// is drawn near its own size.
+const PRINT_PANEL_WIDTH: f64 = 380.0;
+const PRINT_PANEL_HEIGHT: f64 = 300.0;
 
 pub(crate) fn escape(text: &str) -> String {
     let mut out = String::with_capacity(text.len());
@@ -409,11 +414,13 @@ section.dataset { margin-top: 30px; padding-top: 10px; border-top: 1px solid var
 .figures { display: flex; flex-wrap: wrap; gap: 12px; margin: 12px 0; }
 figure.plot { margin: 0; background: #fff; border: 1px solid var(--rule); border-radius: 4px; padding: 6px; flex: 1 1 580px; max-width: 680px; }
 figure.plot.wide { flex: 1 1 100%; max-width: none; }
+figure.plot.print-only { display: none; }
 figure.plot svg { display: block; width: 100%; height: auto; }
 figure.plot figcaption { font-size: 12px; color: var(--muted); padding: 2px 4px; }
 .table-wrap { overflow-x: auto; border: 1px solid var(--rule); background: #fff; max-width: 100%; }
 table { border-collapse: collapse; font-size: 12px; font-variant-numeric: tabular-nums; }
 th, td { padding: 3px 8px; border-bottom: 1px solid #eceff4; text-align: right; white-space: nowrap; }
+th { white-space: normal; min-width: 4em; }
 th { background: #f0f3f6; font-weight: 600; }
 table.key { background: #fff; border: 1px solid var(--rule); font-size: 13px; }
 table.key td, table.key th { text-align: left; }
@@ -448,8 +455,10 @@ tr, .result, figure.plot, .flags { break-inside: avoid; }
 h2, h3 { break-after: avoid; }
 thead { display: table-header-group; }
 .figures { display: block; }
-figure.plot { width: 78%; max-width: 100% !important; margin: 0 auto 8px; border: none; padding: 0; }
+figure.plot { width: 88%; max-width: 100% !important; margin: 0 auto 8px; border: none; padding: 0; }
 figure.plot.wide { width: 100%; }
+figure.plot.print-only { display: block; }
+figure.plot.screen-only { display: none; }
 table.key { width: auto; max-width: 100%; }
 p.csv, a.csv, details { display: none; }
 code { font-size: 10px; }
@@ -457,14 +466,16 @@ code { font-size: 10px; }
 
 /// Counts the figures the browser laid out and the smallest text drawn in them, for
 /// automated checks of a filed report. With `#print-check` in the address it first applies
-/// the print style and then tells whether any table is wider than the space it has.
+/// the print style; then it tells whether any table shown (not in a closed disclosure) is
+/// wider than the space it has.
 const LAYOUT_CHECK: &str = r#"
 window.addEventListener("load", function () {
   var root = document.documentElement;
   if (location.hash.indexOf("print-check") >= 0) {
     document.getElementById("print-style").media = "all";
   }
-  var drawn = 0, figures = document.querySelectorAll("figure.plot svg");
+  var drawn = 0, figures = Array.prototype.filter.call(document.querySelectorAll("figure.plot svg"),
+    function (svg) { return getComputedStyle(svg.parentElement).display !== "none"; });
   var smallestText = Infinity, smallestPart = Infinity;
   figures.forEach(function (svg) {
     var box = svg.getBoundingClientRect(); if (box.width > 0 && box.height > 0) drawn += 1;
@@ -482,7 +493,7 @@ window.addEventListener("load", function () {
   root.setAttribute("data-smallest-raised-text-px", smallestPart === Infinity ? "none" : smallestPart.toFixed(2));
   var tables = 0, clipped = [];
   document.querySelectorAll("table").forEach(function (table) {
-    if (!table.offsetParent) return;
+    if (!table.offsetParent || table.closest("details:not([open])")) return;
     tables += 1;
     var container = table.parentElement;
     var overflow = table.scrollWidth > container.clientWidth + 1 ||
@@ -632,14 +643,29 @@ impl Service {
                     analysis: analysis.map(str::to_owned),
                     ..Default::default()
                 };
-                match mobilis_plot::build(&frame, name, &options) {
+                match mobilis_plot::build(frame, name, &options) {
                     Ok(figure) => {
                         let svg = figure.to_svg();
                         let (width, drawn_width) = figure_width(&svg);
                         // Two panels side by side take the full width; single panels share a row
                         // where two fit at a size their text stays legible at.
                         let (class, style) = if width > 800.0 {
-                            ("plot wide", String::new())
+                            // Paper is narrower than a screen: smaller panels, drawn for print
+                            // only, keep the text as large as on screen.
+                            let print = mobilis_plot::PlotOptions {
+                                width: Some(PRINT_PANEL_WIDTH),
+                                height: Some(PRINT_PANEL_HEIGHT),
+                                ..options.clone()
+                            };
+                            if let Ok(small) = mobilis_plot::build(frame, name, &print) {
+                                drawn.push(format!(
+                                    "<figure class=\"plot wide print-only\" data-kind=\"{}\">{}<figcaption>figure kind {} (plot.render)</figcaption></figure>",
+                                    escape(kind),
+                                    small.to_svg(),
+                                    escape(kind)
+                                ));
+                            }
+                            ("plot wide screen-only", String::new())
                         } else {
                             (
                                 "plot",
@@ -660,7 +686,7 @@ impl Service {
                 }
             }
             if !drawn.is_empty() {
-                figures_drawn += drawn.len();
+                figures_drawn += drawn.iter().filter(|f| !f.contains("print-only")).count();
                 let _ = write!(body, "<div class=\"figures\">{}</div>", drawn.join(""));
             }
             for reason in &not_drawn {

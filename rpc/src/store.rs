@@ -23,6 +23,8 @@ use std::sync::{Arc, Mutex, RwLock};
 pub const MANIFEST_FORMAT: u32 = 1;
 
 /// Where a dataset came from: enough to reproduce it.
+// One per dataset, read and written with its manifest: the size of the analysis variant costs nothing.
+#[allow(clippy::large_enum_variant)]
 #[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
 #[serde(tag = "kind", rename_all = "snake_case")]
 pub enum Provenance {

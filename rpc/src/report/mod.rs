@@ -617,7 +617,7 @@ impl Service {
                 dataset.frame.height(),
                 escape(&dataset.manifest.created)
             );
-            if let Some(flags) = flags_html(&frame) {
+            if let Some(flags) = flags_html(frame) {
                 body.push_str(&flags);
             }
             let analysis = match &dataset.manifest.provenance {
@@ -697,14 +697,14 @@ impl Service {
             // spectrum grids) are what their figures draw.
             let rows_are_results = analysis == Some("hall.reduce") || (produced && drawn.is_empty());
             if rows_are_results {
-                let key = key_columns(analysis, &frame);
-                body.push_str(&table_html(&frame, &key, ANALYSIS_ROWS_SHOWN, "key"));
-                let all = ordered_columns(&frame, &key);
+                let key = key_columns(analysis, frame);
+                body.push_str(&table_html(frame, &key, ANALYSIS_ROWS_SHOWN, "key"));
+                let all = ordered_columns(frame, &key);
                 let _ = write!(
                     body,
                     "<details><summary>All {} columns, the key ones first</summary>{}</details>",
                     all.len(),
-                    table_html(&frame, &all, ANALYSIS_ROWS_SHOWN, "full")
+                    table_html(frame, &all, ANALYSIS_ROWS_SHOWN, "full")
                 );
             } else if produced {
                 let _ = write!(
@@ -717,10 +717,10 @@ impl Service {
                     body,
                     "<details><summary>Imported rows of this sample ({})</summary>{}</details>",
                     frame.height(),
-                    table_html(&frame, &[], IMPORTED_ROWS_SHOWN, "full")
+                    table_html(frame, &[], IMPORTED_ROWS_SHOWN, "full")
                 );
             }
-            body.push_str(&csv_html(&frame, name, sample));
+            body.push_str(&csv_html(frame, name, sample));
             body.push_str("</section>");
             contents.push(name.clone());
         }

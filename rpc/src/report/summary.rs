@@ -278,13 +278,16 @@ fn conditions(group: &Map<String, Value>, summary: &Map<String, Value>) -> Strin
     parts.join(", ")
 }
 
+/// One group of a run: its group values, its summary and its warnings.
+type Group<'a> = (Map<String, Value>, &'a Map<String, Value>, Vec<String>);
+
 /// The summaries of a run that belong to `sample`, with their group and warnings.
 fn groups_of<'a>(
     run_summary: &'a Value,
     run_warnings: &'a [String],
     sample: &str,
     only_this_sample: bool,
-) -> Vec<(Map<String, Value>, &'a Map<String, Value>, Vec<String>)> {
+) -> Vec<Group<'a>> {
     let belongs = |group: &Map<String, Value>, summary: &Map<String, Value>| match group
         .get(SAMPLE_COLUMN)
         .or_else(|| summary.get(SAMPLE_COLUMN))
@@ -636,4 +639,142 @@ pub fn html(blocks: &[Block]) -> String {
     }
     html.push_str("</section>");
     html
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::store::{column_infos, Manifest, MANIFEST_FORMAT};
+    use serde_json::json;
+
+    fn dataset(name: &str, frame: DataFrame, provenance: Provenance) -> Dataset {
+        Dataset {
+            manifest: Manifest {
+                format: MANIFEST_FORMAT,
+                name: name.to_owned(),
+                rows: frame.height(),
+                columns: column_infos(&frame),
+                created: "2026-01-01T00:00:00Z".into(),
+                provenance,
+            },
+            frame,
+        }
+    }
+
+    fn analysis(name: &str, summary: bool, run_summary: Value) -> Provenance {
+        Provenance::Analysis {
+            analysis: name.to_owned(),
+            plugin: "carriers".into(),
+            plugin_version: "0.1.0".into(),
+            params: json!({}),
+            inputs: [("hall".to_owned(), "w-hall".to_owned())].into_iter().collect(),
+            group_by: vec!["sample".into()],
+            summary,
+            run_summary,
+            warnings: Vec::new(),
+        }
+    }
+
+    fn page(blocks: &[Block]) -> String {
+        html(blocks)
+    }
+
+    #[test]
+    fn a_kept_run_summary_gives_the_samples_key_numbers_and_flags() {
+        let run_summary = json!({"groups": [
+            {"group": {"sample": "W1"}, "warnings": ["few points"], "summary": {
+                "carrier_type": "n", "dopant_density_m3": 3.0e21, "dopant_density_m3_unc": 3.8e19,
+                "dopant_density_m3_unc_stat": 1e18, "ionization_energy_eV": 0.045,
+                "ionization_energy_eV_unc": 9.4e-5, "reduced_chi_square": 0.9, "chi_square_p_value": 0.6,
+                "at_bound": ["compensating_density_m3"]}},
+            {"group": {"sample": "W2"}, "warnings": [], "summary": {
+                "carrier_type": "n", "dopant_density_m3": 9.0e21, "dopant_density_m3_unc": 1e20}}
+        ]});
+        let frame = df!("sample" => ["W1"], "temperature_K" => [20.0]).unwrap();
+        let fit = dataset(
+            "w-fit",
+            frame.clone(),
+            analysis("carriers.freeze_out_fit", false, run_summary),
+        );
+        let blocks = blocks("W1", &[(&fit, frame)]);
+        let text = page(&blocks);
+        assert!(text.contains("N<sub>D</sub>, majority dopants"), "{text}");
+        assert!(text.contains("(3.000 ± 0.038) × 10¹⁵ cm⁻³"), "{text}");
+        assert!(text.contains("45.000 ± 0.094 meV"), "{text}");
+        assert!(text.contains("χ²/ν = 0.9000, p = 0.6000"), "{text}");
+        assert!(
+            text.contains("at a bound of the fit: compensating_density_m3"),
+            "{text}"
+        );
+        assert!(text.contains("few points"), "{text}");
+        // The other sample's numbers and the partial uncertainties stay out.
+        assert!(!text.contains("9.000") && !text.contains("unc_stat"), "{text}");
+    }
+
+    #[test]
+    fn an_older_workspace_shows_its_summary_table_and_a_kept_summary_is_not_shown_twice() {
+        let table = df!(
+            "sample" => ["W1"],
+            "activation_energy_eV" => [0.0432],
+            "activation_energy_eV_unc" => [0.00085],
+        )
+        .unwrap();
+        let points = df!("sample" => ["W1"], "temperature_K" => [20.0]).unwrap();
+        let old_output = dataset(
+            "w-arr",
+            points.clone(),
+            analysis("carriers.arrhenius", false, Value::Null),
+        );
+        let old_table = dataset(
+            "w-arr-summary",
+            table.clone(),
+            analysis("carriers.arrhenius", true, Value::Null),
+        );
+        let text = page(&blocks(
+            "W1",
+            &[(&old_output, points.clone()), (&old_table, table.clone())],
+        ));
+        assert_eq!(text.matches("43.20 ± 0.85 meV").count(), 1, "{text}");
+        assert!(text.contains("w-arr-summary"), "{text}");
+
+        let kept = json!({"groups": [{"group": {"sample": "W1"}, "warnings": [], "summary": {
+            "activation_energy_eV": 0.0432, "activation_energy_eV_unc": 0.00085,
+            "temperature_min_K": 20.0, "temperature_max_K": 45.0}}]});
+        let new_output = dataset("w-arr", points.clone(), analysis("carriers.arrhenius", false, kept));
+        let text = page(&blocks("W1", &[(&new_output, points), (&old_table, table)]));
+        assert_eq!(text.matches("43.20 ± 0.85 meV").count(), 1, "{text}");
+        assert!(text.contains("fitted from 20.00 K to 45.00 K"), "{text}");
+        assert!(!text.contains("w-arr-summary"), "{text}");
+    }
+
+    #[test]
+    fn hall_rows_at_300_k_77_k_and_the_lowest_temperature() {
+        let frame = df!(
+            "sample" => ["W1"; 5],
+            "temperature_K" => [20.0, 75.0, 80.0, 290.0, 310.0],
+            "carrier_type" => ["n", "n", "n", "n", "p"],
+            "density_m3" => [1e13, 1.5e21, 1.7e21, 2.8e21, 2.9e21],
+            "density_m3_unc" => [1e11, 1.7e19, 2e19, 3.1e19, 3.2e19],
+            "hall_mobility_m2_per_Vs" => [3.9, 2.5, 2.2, 0.18, 0.16],
+            "resistivity_ohm_m" => [1e5, 0.002, 0.0019, 0.015, 0.016],
+            "flags" => ["", "", "", "current_reversal", ""],
+        )
+        .unwrap();
+        let hall = dataset(
+            "w-hall",
+            frame.clone(),
+            analysis("hall.reduce", false, json!({"rows": 5})),
+        );
+        let blocks = blocks("W1", &[(&hall, frame)]);
+        let (_, rows) = blocks[0].table.as_ref().unwrap();
+        let temperatures: Vec<&str> = rows.iter().map(|r| r[0].as_str()).collect();
+        // 290 K and 310 K are equally near 300 K: the first found is taken.
+        assert_eq!(temperatures, ["290.0 K", "75.00 K", "20.00 K"]);
+        assert_eq!(rows[0][1], "nearest 300 K");
+        assert_eq!(rows[0][3], "n = (2.800 ± 0.031) × 10¹⁵ cm⁻³");
+        assert_eq!(rows[0][5], "1.500 Ω cm");
+        assert_eq!(rows[0][6], "current_reversal");
+        assert_eq!(rows[2][1], "lowest");
+        assert!(blocks[0].flags.iter().any(|f| f.starts_with("1 of 5 temperatures")));
+    }
 }

@@ -68,7 +68,7 @@ pub const METHODS: &[MethodDoc] = &[
     MethodDoc { name: "dataset.list", summary: "Every stored dataset with its rows and columns", params: &[], result: ARRAY },
     MethodDoc {
         name: "dataset.info",
-        summary: "A dataset's rows, columns, creation time and provenance",
+        summary: "A dataset's rows, columns, creation time and provenance (for an analysis output also the run's summary and warnings as answered: run_summary, warnings)",
         params: &[("name", true, STRING, "dataset name")],
         result: OBJECT,
     },
@@ -170,7 +170,7 @@ pub const METHODS: &[MethodDoc] = &[
     },
     MethodDoc {
         name: "report.render",
-        summary: "One self-contained HTML page for a sample: every dataset holding it, in the order the work went, with figures (inline SVG), tables in customary units, quality flags, and provenance (source files, analyses, parameters, plugin and daemon versions)",
+        summary: "One self-contained HTML page for a sample: first its results (each analysis's key numbers with uncertainties, fit quality and flags, from the stored run summaries), then every dataset holding it, in the order the work went, with figures (inline SVG), key columns first, the full table behind a disclosure and as a CSV download, quality flags, and provenance (source files, analyses, parameters, plugin and daemon versions); prints on A4 and Letter",
         params: &[("sample", true, STRING, "the sample's name, as in the `sample` column")],
         result: r#"{"type": "object", "required": ["sample", "datasets", "figures", "html"], "properties": {"sample": {"type": "string"}, "datasets": {"type": "array", "items": {"type": "string"}}, "figures": {"type": "integer"}, "html": {"type": "string"}}}"#,
     },

@@ -809,6 +809,9 @@ impl Service {
             inputs: run.inputs.clone(),
             group_by: group_columns.clone(),
             summary: of_summary,
+            // The output keeps the summary as answered; the summary table holds it as rows.
+            run_summary: if of_summary { Value::Null } else { summary.clone() },
+            warnings: if of_summary { Vec::new() } else { warnings.clone() },
         };
         let summary_frame = match &run.summary_output {
             Some(_) => Some(summary_table(&summary, &group_columns)?),

@@ -23,6 +23,8 @@ use std::sync::{Arc, Mutex, RwLock};
 pub const MANIFEST_FORMAT: u32 = 1;
 
 /// Where a dataset came from: enough to reproduce it.
+// One per dataset, read and written with its manifest: the size of the analysis variant costs nothing.
+#[allow(clippy::large_enum_variant)]
 #[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
 #[serde(tag = "kind", rename_all = "snake_case")]
 pub enum Provenance {
@@ -65,6 +67,15 @@ pub enum Provenance {
         /// True for the table of an analysis's summary (`summary_output`).
         #[serde(default)]
         summary: bool,
+        /// The summary the run answered (per group under `groups` for a grouped run), kept
+        /// on its output dataset so that a report shows the fitted values as they were
+        /// computed, without running anything again. Null in manifests written before it
+        /// was kept, and on the `summary_output` table, which holds it as rows.
+        #[serde(default, skip_serializing_if = "serde_json::Value::is_null")]
+        run_summary: serde_json::Value,
+        /// The run's warnings, as answered.
+        #[serde(default, skip_serializing_if = "Vec::is_empty")]
+        warnings: Vec<String>,
     },
 }
 
@@ -422,6 +433,26 @@ mod tests {
             workspace.path().join("datasets/two.parquet").exists(),
             "damaged files are never deleted"
         );
+    }
+
+    #[test]
+    fn manifests_written_before_run_summaries_were_kept_still_load() {
+        let old = r#"{"kind": "analysis", "analysis": "hall.reduce", "plugin": "hall",
+            "plugin_version": "0.1.0", "params": {}, "inputs": {"readings": "r"}}"#;
+        let provenance: Provenance = serde_json::from_str(old).unwrap();
+        let Provenance::Analysis {
+            run_summary,
+            warnings,
+            summary,
+            ..
+        } = &provenance
+        else {
+            panic!("{provenance:?}")
+        };
+        assert!(run_summary.is_null() && warnings.is_empty() && !summary);
+        // Written back, it reads as before: nothing new appears for what was not kept.
+        let text = serde_json::to_string(&provenance).unwrap();
+        assert!(!text.contains("run_summary") && !text.contains("warnings"), "{text}");
     }
 
     #[test]

@@ -194,7 +194,7 @@ enum Command {
         #[arg(long)]
         list: bool,
     },
-    /// Write one self-contained HTML report per sample (figures, tables, quality flags, provenance).
+    /// Write one self-contained HTML report per sample (results summary, figures, tables, quality flags, provenance); --pdf also prints each to PDF.
     Report {
         /// Directory to write <sample>.html into.
         #[arg(long, default_value = "reports")]
@@ -202,6 +202,9 @@ enum Command {
         /// Only these samples (repeatable); default: every sample with data.
         #[arg(long)]
         sample: Vec<String>,
+        /// Also print each page to <sample>.pdf with headless Chromium ($CHROMIUM, or chromium on the PATH); without it the HTML is written and a message says what to install.
+        #[arg(long)]
+        pdf: bool,
     },
     /// Run the demo: a real daemon, the plugins loaded dynamically, the invented demo data.
     Demo {
@@ -517,8 +520,8 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             }
             Ok(())
         }
-        Command::Report { out, sample } => {
-            report_files::write_reports(&connect(&cli).await?, out, sample).await?;
+        Command::Report { out, sample, pdf } => {
+            report_files::write_reports_as(&connect(&cli).await?, out, sample, *pdf).await?;
             Ok(())
         }
         Command::Call { method, params } => {

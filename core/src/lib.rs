@@ -34,6 +34,7 @@ pub mod forward;
 pub mod linalg;
 pub mod nnls;
 pub mod noise;
+pub mod quote;
 pub mod readings;
 pub mod sdk;
 pub mod special;

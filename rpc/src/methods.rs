@@ -408,10 +408,21 @@ mod tests {
 
     /// The names of the types this crate declares (`NameParam`, `UnitSpec`, ...).
     fn crate_type_names() -> Vec<String> {
-        let directory = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("src");
+        let mut directories = vec![std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("src")];
+        let mut files = Vec::new();
+        while let Some(directory) = directories.pop() {
+            for entry in std::fs::read_dir(directory).unwrap() {
+                let path = entry.unwrap().path();
+                if path.is_dir() {
+                    directories.push(path);
+                } else if path.extension().is_some_and(|e| e == "rs") {
+                    files.push(path);
+                }
+            }
+        }
         let mut names = Vec::new();
-        for entry in std::fs::read_dir(directory).unwrap() {
-            let text = std::fs::read_to_string(entry.unwrap().path()).unwrap();
+        for file in files {
+            let text = std::fs::read_to_string(file).unwrap();
             let words: Vec<&str> = text.split(|c: char| !(c.is_alphanumeric() || c == '_')).collect();
             for pair in words.windows(2) {
                 if matches!(pair[0], "struct" | "enum" | "trait")

@@ -6,7 +6,6 @@
 //! Self-contained means no external resource at all: styles inline, figures as inline SVG
 //! drawn by mobilis-plot, so the page opens the same on any machine, years later.
 
-mod numbers;
 mod summary;
 
 use crate::errors::{ServiceError, ServiceResult};

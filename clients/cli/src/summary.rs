@@ -3,48 +3,15 @@
 //! the warnings; per group when the run was grouped. `mobilis run`, `mobilis pipeline` and
 //! the demo print values the same way.
 
-use mobilis_core::units::{customary_display, format_number};
+use mobilis_core::quote::{self, Notation};
+use mobilis_core::units::format_number;
 use serde_json::{Map, Value};
 use std::fmt::Write;
 
-/// `value ± uncertainty` with the uncertainty to two significant digits and the value to the
-/// same decimal place (GUM, JCGM 100:2008, 7.2.6); large and small numbers share one exponent:
-/// `3.000e15 ± 0.038e15`, `44.999 ± 0.094`. A missing or zero uncertainty leaves the value
-/// alone.
+/// `value ± uncertainty` as the command line prints it (`3.000e15 ± 0.038e15`,
+/// `44.999 ± 0.094`); a missing or zero uncertainty leaves the value alone.
 pub fn plus_minus(value: f64, uncertainty: f64) -> String {
-    if !value.is_finite() {
-        return "-".into();
-    }
-    if !uncertainty.is_finite() || uncertainty <= 0.0 {
-        return format_number(value);
-    }
-    // The power of ten of the uncertainty's second significant digit.
-    let last = uncertainty.log10().floor() as i32 - 1;
-    let magnitude = value.abs().max(uncertainty);
-    if (1e-3..1e5).contains(&magnitude) {
-        let decimals = (-last).max(0) as usize;
-        if decimals <= 8 {
-            return format!("{value:.decimals$} ± {uncertainty:.decimals$}");
-        }
-    } else {
-        let mut exponent = magnitude.log10().floor() as i32;
-        let decimals = (exponent - last).max(0) as usize;
-        if decimals <= 6 {
-            let scale = 10f64.powi(exponent);
-            let mut mantissa = format!("{:.decimals$}", value / scale);
-            // Rounding can carry into the next power of ten (9.9996e14 -> 10.000e14).
-            if mantissa.trim_start_matches('-').starts_with("10") {
-                exponent += 1;
-                let decimals = decimals + 1;
-                let scale = 10f64.powi(exponent);
-                mantissa = format!("{:.decimals$}", value / scale);
-                return format!("{mantissa}e{exponent} ± {:.decimals$}e{exponent}", uncertainty / scale);
-            }
-            return format!("{mantissa}e{exponent} ± {:.decimals$}e{exponent}", uncertainty / scale);
-        }
-    }
-    // An uncertainty far below the value's own digits: both as plain numbers.
-    format!("{} ± {}", format_number(value), format_number(uncertainty))
+    quote::with_uncertainty(value, Some(uncertainty), Notation::Plain)
 }
 
 /// `plus_minus` of two JSON numbers scaled by `factor` (into display units); `-` when the
@@ -60,7 +27,7 @@ pub fn plus_minus_json(value: &Value, uncertainty: &Value, factor: f64) -> Strin
 struct Shown {
     name: String,
     factor: f64,
-    unit: &'static str,
+    unit: String,
 }
 
 /// Keys of the fit quality, printed on one line of their own.
@@ -72,45 +39,14 @@ const FIT_QUALITY: &[&str] = &[
     "birge_ratio",
 ];
 
-/// The SI suffix of a key, the readable name without it, and the customary display: densities
-/// per cm^3 and cm^2, mobilities in cm^2/(V s), resistivities in ohm cm (the table `show` and
-/// the reports use), energies in meV, lifetimes in ps. `None` for a key that carries no unit.
-fn shown(key: &str) -> Option<Shown> {
-    // Energies in meV, lifetimes in ps, as the trade quotes them.
-    for (suffix, factor, unit) in [("_eV", 1e3, "meV"), ("_s", 1e12, "ps")] {
-        if suffix == "_s" && !key.contains("lifetime") {
-            continue;
-        }
-        if let Some(base) = key.strip_suffix(suffix) {
-            return Some(Shown {
-                name: base.replace('_', " "),
-                factor,
-                unit,
-            });
-        }
-    }
-    let display = customary_display(key)?;
-    // The label is the base name followed by the displayed unit token (`dopant_density_cm3`).
-    let base = [
-        "_cm2_per_Vs",
-        "_ohm_sq",
-        "_ohm_cm",
-        "_ohm",
-        "_cm3",
-        "_cm2",
-        "_um",
-        "_K",
-        "_T",
-        "_A",
-        "_V",
-    ]
-    .iter()
-    .find_map(|token| display.label.strip_suffix(token))
-    .unwrap_or(&display.label);
+/// The readable name of a key and its customary unit (`mobilis_core::quote`, as the report
+/// pages quote it). `None` for a key that carries no unit.
+fn shown(key: &str, value: f64) -> Option<Shown> {
+    let unit = quote::summary_unit(key, value)?;
     Some(Shown {
-        name: base.replace('_', " "),
-        factor: display.factor,
-        unit: display.unit_label,
+        name: unit.quantity.replace('_', " "),
+        factor: unit.factor,
+        unit: unit.ascii,
     })
 }
 
@@ -134,7 +70,7 @@ fn value_lines(object: &Map<String, Value>, skip: &[&str], results_only: bool) -
             Value::Number(number) => {
                 let number = number.as_f64().unwrap_or(f64::NAN);
                 let unc = uncertainty.and_then(Value::as_f64).unwrap_or(f64::NAN);
-                match shown(key) {
+                match shown(key, number) {
                     _ if results_only && uncertainty.is_none() => {}
                     Some(shown) => lines.push((
                         shown.name,
@@ -157,8 +93,10 @@ fn value_lines(object: &Map<String, Value>, skip: &[&str], results_only: bool) -
                 lines.push((key.replace('_', " "), names.join(", ")));
             }
             Value::Array(items) if !items.is_empty() && items.len() <= 16 && items.iter().all(Value::is_number) => {
-                let (name, factor, unit) =
-                    shown(key).map_or((key.replace('_', " "), 1.0, ""), |s| (s.name, s.factor, s.unit));
+                let first = items.first().and_then(Value::as_f64).unwrap_or(0.0);
+                let (name, factor, unit) = shown(key, first).map_or((key.replace('_', " "), 1.0, String::new()), |s| {
+                    (s.name, s.factor, s.unit)
+                });
                 let numbers: Vec<String> = items
                     .iter()
                     .filter_map(Value::as_f64)
@@ -296,25 +234,6 @@ pub fn render_run(result: &Value) -> String {
 mod tests {
     use super::*;
     use serde_json::json;
-
-    #[test]
-    fn uncertainties_keep_two_digits_and_values_the_same_place() {
-        // (value, uncertainty, printed)
-        let cases = [
-            (2.9999921e15, 3.802e13, "3.000e15 ± 0.038e15"),
-            (44.999266, 0.0938, "44.999 ± 0.094"),
-            (1234.5, 12.3, "1234 ± 12"),
-            (140.17, 0.7293, "140.17 ± 0.73"),
-            (9.99963e14, 2.1e10, "9.99963e14 ± 0.00021e14"),
-            (9.99996e14, 2.1e12, "1.0000e15 ± 0.0021e15"),
-            (-3.2e-6, 1.5e-7, "-3.20e-6 ± 0.15e-6"),
-            (4.93e14, 0.0, "4.930e14"),
-            (4.93e14, 1e3, "4.930e14 ± 1000"),
-        ];
-        for (value, uncertainty, printed) in cases {
-            assert_eq!(plus_minus(value, uncertainty), printed, "{value} ± {uncertainty}");
-        }
-    }
 
     #[test]
     fn a_grouped_summary_prints_each_group_in_customary_units() {

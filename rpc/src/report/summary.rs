@@ -16,12 +16,17 @@
 //! calibrations not stated, one field sign, counts that disagree, the run's warnings) go
 //! with each block.
 
-use super::numbers::{display_unit, plain, with_uncertainty};
 use super::{escape, SAMPLE_COLUMN};
 use crate::store::{Dataset, Provenance};
+use mobilis_core::quote::{self, Notation};
 use polars::prelude::*;
 use serde_json::{Map, Value};
 use std::fmt::Write;
+
+/// A number without an uncertainty, four significant digits, as the page prints it.
+fn plain(value: f64) -> String {
+    quote::number(value, Notation::Typeset)
+}
 
 /// One key number.
 pub struct Quantity {
@@ -106,36 +111,23 @@ fn label(analysis: &str, key: &str, majority: &str) -> String {
         return known;
     }
     // Unknown keys read as their name without the unit token.
-    let units = [
-        "_m2_per_Vs",
-        "_m3_per_C",
-        "_m2_per_C",
-        "_ohm_sq",
-        "_ohm_m",
-        "_ohm",
-        "_m3",
-        "_m2",
-        "_eV",
-        "_s",
-        "_S",
-        "_K",
-        "_T",
-        "_V",
-        "_A",
-        "_m",
-    ];
-    let stem = units.iter().find_map(|u| key.strip_suffix(u)).unwrap_or(key);
+    let stem = quote::summary_unit(key, 0.0).map_or_else(|| key.to_owned(), |unit| unit.quantity);
     escape(&stem.replace('_', " "))
 }
 
 /// `value ± uncertainty unit` of an SI value and its uncertainty.
 fn quantity_text(key: &str, value: f64, uncertainty: Option<f64>) -> String {
-    let (factor, unit) = display_unit(key, value);
-    let text = with_uncertainty(value * factor, uncertainty.map(|u| u * factor));
-    if unit.is_empty() {
-        text
-    } else {
-        format!("{text} {unit}")
+    match quote::summary_unit(key, value) {
+        Some(unit) => format!(
+            "{} {}",
+            quote::with_uncertainty(
+                value * unit.factor,
+                uncertainty.map(|u| u * unit.factor),
+                Notation::Typeset
+            ),
+            unit.typeset
+        ),
+        None => quote::with_uncertainty(value, uncertainty, Notation::Typeset),
     }
 }
 

@@ -530,7 +530,7 @@ pub fn fit_arrhenius(points: &[DensityPoint], settings: &ArrheniusSettings) -> R
                 (line.evaluate(x[i]) - y[i]) / sigma
             })
             .collect();
-        if let Some(warning) = quality.warning(&residuals, |i| format!("{} K", used[i].temperature_k)) {
+        if let Some(warning) = quality.warning(&residuals, |i| format!("{:.2} K", used[i].temperature_k)) {
             warnings.push(format!(
                 "{warning}. The range may include the bend towards another regime (narrow temperature_min_K..temperature_max_K), or the weights are too small: the statistical density uncertainties (density_m3_unc_stat, at least relative_uncertainty_floor) and the temperature uncertainties (temperature_K_unc or temperature_uncertainty_K)"
             ));

@@ -1589,7 +1589,7 @@ fn collect_warnings(inputs: &WarningInputs<'_>) -> Vec<String> {
             .iter()
             .map(|point| point.normalized_residual.unwrap_or(f64::NAN))
             .collect();
-        if let Some(warning) = quality.warning(&residuals, |i| format!("{} K", inputs.points[i].temperature_k)) {
+        if let Some(warning) = quality.warning(&residuals, |i| format!("{:.2} K", inputs.points[i].temperature_k)) {
             warnings.push(format!(
                 "{warning}. The weights are the statistical density uncertainties (density_m3_unc_stat, at least relative_uncertainty_floor) and the temperature uncertainties (temperature_K_unc or temperature_uncertainty_K) through the model's slope: check them, or the model (a second level, hopping conduction at the lowest temperatures, a Hall factor that varies with temperature: hall_factor_table)"
             ));

@@ -1197,7 +1197,7 @@ pub fn fit_mobility_scattering(
             .iter()
             .map(|row| row.normalized_residual.map_or(f64::NAN, |r| -r))
             .collect();
-        if let Some(warning) = quality.warning(&residuals, |i| format!("T = {} K", fitted_rows[i].temperature_k)) {
+        if let Some(warning) = quality.warning(&residuals, |i| format!("T = {:.2} K", fitted_rows[i].temperature_k)) {
             warnings.push(format!(
                 "{warning}. The weights come from the mobility uncertainties (hall_mobility_m2_per_Vs_unc_stat), \
                  temperature_K_unc and relative_uncertainty_floor; consider another ionized-density model, \

@@ -157,7 +157,10 @@
 //! 8. **Dingle plot** (with a mass, at the reference temperature): in-phase amplitudes in
 //!    consecutive windows of `dingle_window_periods` periods (default 2, fewer down to 1
 //!    when the window holds fewer than 10 periods, so that there are 5 windows), projected on the
-//!    refined phase; windows whose amplitude is not above twice its error are dropped. The
+//!    refined phase; windows whose amplitude is not above three times its error are dropped,
+//!    and so is every weaker window beyond the first such one after usable windows (the plot
+//!    ends where the oscillation sinks into the noise; a noise window passing by chance would
+//!    sit far above the line). The
 //!    amplitudes are referred to each window's mean 1/B with the envelope of the previous
 //!    estimate of T_D, as for the narrow windows (a few passes from the waveform fit's T_D).
 //!    The line ln(A sinh X / X) = const - c m* T_D / B (X at the window's mean 1/B) is fitted with
@@ -696,7 +699,8 @@ pub struct DinglePlot {
     pub dingle_temperature_unc_k: f64,
     pub quantum_lifetime_s: f64,
     pub quantum_lifetime_unc_s: f64,
-    /// Windows left out (too few points or no amplitude above twice its error).
+    /// Windows left out (too few points, no amplitude above three times its error, or beyond
+    /// the first such window).
     pub dropped_windows: usize,
 }
 

@@ -407,6 +407,9 @@ pub(super) fn dingle_plot(
     Ok(plot)
 }
 
+/// Standard errors by which a Dingle window's amplitude must exceed zero.
+const DINGLE_WINDOW_SIGNIFICANCE: f64 = 3.0;
+
 /// Rounds of the Dingle plot with the envelope of the previous T_D.
 const DINGLE_ITERATIONS: usize = 5;
 
@@ -432,6 +435,15 @@ fn dingle_plot_once(
     let mut dropped = 0;
     for j in 0..count {
         let bounds = (range.0 + j as f64 * width, range.0 + (j + 1) as f64 * width);
+        // The plot runs from the strongest field down to where the oscillation sinks into
+        // the noise: once a window has failed after usable ones, every later (weaker) window
+        // is left out too. A window that passed there by a chance excursion of the noise
+        // would sit far above the line (ln A of noise is biased up by the selection) and
+        // dominate the fit.
+        if !points.is_empty() && dropped > 0 {
+            dropped += 1;
+            continue;
+        }
         let Some(window) = in_phase_amplitude(
             &sweep.inverse_field,
             &sweep.oscillation,
@@ -444,9 +456,9 @@ fn dingle_plot_once(
             dropped += 1;
             continue;
         };
-        // A window whose amplitude is within two standard errors of zero has no logarithm
-        // worth plotting (and a negative one none at all).
-        if !(window.amplitude > 2.0 * window.amplitude_unc) {
+        // A window whose amplitude is not above three standard errors (the rule of the mass
+        // windows) has no logarithm worth plotting (and a negative one none at all).
+        if !(window.amplitude > DINGLE_WINDOW_SIGNIFICANCE * window.amplitude_unc) {
             dropped += 1;
             continue;
         }
@@ -460,7 +472,7 @@ fn dingle_plot_once(
     }
     if points.len() < 3 {
         return Err(format!(
-            "the Dingle plot has {} usable windows of {periods} periods ({dropped} had no amplitude above twice its error); it needs 3: widen the field window or use shorter windows",
+            "the Dingle plot has {} usable windows of {periods} periods ({dropped} left out: no amplitude above three times its error, or weaker than such a window); it needs 3: widen the field window or use shorter windows",
             points.len()
         ));
     }

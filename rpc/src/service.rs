@@ -232,7 +232,7 @@ fn conform_column(frame: &mut DataFrame, spec: &ColumnSpec, role: &str, dataset:
             ),
         )
         .with_help(format!(
-            "the dataset has: {}; rename or convert a column at import (dataset.import units)",
+            "the dataset has: {}; rename a column at import (dataset.import rename, units)",
             present.join(", ")
         )));
     };

@@ -185,6 +185,63 @@ fn token_of(options: &DaemonOptions) -> Option<&str> {
     options.extra_arguments.get(position + 1).map(String::as_str)
 }
 
+/// An invented van der Pauw sample of the end-to-end tests: name, sheet resistance (ohm/sq),
+/// resistance ratio R_B/R_A, sheet Hall coefficient (m^2/C).
+pub type InventedSample = (&'static str, f64, f64, f64);
+
+/// Raw readings of `samples` at each of `temperatures_k` and +-0.5 T from the forward model,
+/// with the offsets a real run has (thermoelectric voltages `offsets_v`, a Hall misalignment of
+/// `misalignment` times the sheet resistance) and a little voltage noise (0.1 uV plus 1e-5
+/// of the reading), seeded by `seed`.
+pub fn van_der_pauw_run(
+    samples: &[InventedSample],
+    temperatures_k: &[f64],
+    offsets_v: [f64; 6],
+    misalignment: f64,
+    seed: u64,
+) -> Vec<mobilis_core::readings::RawReading> {
+    use mobilis_core::forward::readings::{van_der_pauw_readings, MeasurementProtocol, VanDerPauwSample, VoltageNoise};
+    let mut rng = mobilis_core::noise::Rng::seeded(seed);
+    let mut readings = Vec::new();
+    for &(name, sheet, ratio, hall) in samples {
+        for &temperature in temperatures_k {
+            let mut sample = VanDerPauwSample::ideal(name, temperature, sheet, ratio, hall);
+            sample.thermoelectric_offsets_v = offsets_v;
+            sample.hall_misalignment_ohm = [misalignment * sheet, -misalignment * sheet];
+            let mut protocol =
+                MeasurementProtocol::van_der_pauw(1e-4, vec![0.5]).with_resistance_at_zero_and_hall_in_field();
+            protocol.noise = VoltageNoise {
+                absolute_v: 1e-7,
+                relative: 1e-5,
+            };
+            readings.extend(van_der_pauw_readings(&sample, &protocol, &mut rng).expect("forward model"));
+        }
+    }
+    readings
+}
+
+/// What one run of the `mobilis` command line printed, and whether it succeeded.
+pub struct CliRun {
+    pub success: bool,
+    pub stdout: String,
+    pub stderr: String,
+}
+
+/// Runs the real `mobilis` against the daemon at `url`, with `--progress` as given (`never`,
+/// `always`, `auto`), as a user types it.
+pub fn run_cli(url: &str, progress: &str, arguments: &[&str]) -> CliRun {
+    let output = std::process::Command::new(ensure_built().join("mobilis"))
+        .args(["--url", url, "--progress", progress])
+        .args(arguments)
+        .output()
+        .expect("mobilis runs");
+    CliRun {
+        success: output.status.success(),
+        stdout: String::from_utf8_lossy(&output.stdout).into_owned(),
+        stderr: String::from_utf8_lossy(&output.stderr).into_owned(),
+    }
+}
+
 /// A float column of a `dataset.rows` answer.
 pub fn float_column(page: &serde_json::Value, name: &str) -> Vec<Option<f64>> {
     page["columns"][name]

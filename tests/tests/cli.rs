@@ -3,22 +3,13 @@
 //! `--summary-output`, `describe`, `export --units customary`, and errors in the words of
 //! the command line (options, not JSON fields).
 
-use mobilis_tests::{ensure_built, workspace_root, TestDaemon};
+use mobilis_tests::{run_cli, workspace_root, TestDaemon};
 use serde_json::json;
-use std::process::Command;
 
 /// Runs the CLI against `url`; returns whether it succeeded, its stdout and its stderr.
 fn mobilis(url: &str, arguments: &[&str]) -> (bool, String, String) {
-    let output = Command::new(ensure_built().join("mobilis"))
-        .args(["--url", url, "--progress", "never"])
-        .args(arguments)
-        .output()
-        .expect("mobilis runs");
-    (
-        output.status.success(),
-        String::from_utf8_lossy(&output.stdout).into_owned(),
-        String::from_utf8_lossy(&output.stderr).into_owned(),
-    )
+    let run = run_cli(url, "never", arguments);
+    (run.success, run.stdout, run.stderr)
 }
 
 /// Runs the CLI and requires success; returns stdout.

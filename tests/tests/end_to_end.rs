@@ -5,37 +5,25 @@
 //! clear errors while the daemon keeps serving, and a restart on the same workspace finds
 //! every dataset intact.
 
-use mobilis_core::forward::readings::{van_der_pauw_readings, MeasurementProtocol, VanDerPauwSample, VoltageNoise};
-use mobilis_core::noise::Rng;
 use mobilis_core::readings::RawReading;
-use mobilis_tests::{float_column, string_column, TestDaemon};
+use mobilis_tests::{float_column, string_column, van_der_pauw_run, InventedSample, TestDaemon};
 use serde_json::{json, Value};
 use std::io::{Read, Write};
 
 const ELEMENTARY_CHARGE: f64 = mobilis_core::constants::ELEMENTARY_CHARGE_C;
 
 /// The invented samples of this test: (name, sheet resistance ohm/sq, R_B/R_A, sheet Hall coefficient m^2/C).
-const SAMPLES: [(&str, f64, f64, f64); 2] = [("n-film", 250.0, 1.3, -624.15), ("p-film", 4000.0, 0.8, 3120.75)];
+const SAMPLES: [InventedSample; 2] = [("n-film", 250.0, 1.3, -624.15), ("p-film", 4000.0, 0.8, 3120.75)];
 const TEMPERATURES_K: [f64; 3] = [77.0, 200.0, 300.0];
 
 fn generate_readings() -> Vec<RawReading> {
-    let mut rng = Rng::seeded(20261201);
-    let mut readings = Vec::new();
-    for (name, sheet, ratio, hall) in SAMPLES {
-        for temperature in TEMPERATURES_K {
-            let mut sample = VanDerPauwSample::ideal(name, temperature, sheet, ratio, hall);
-            sample.thermoelectric_offsets_v = [20e-6, -15e-6, 8e-6, 30e-6, -12e-6, 25e-6];
-            sample.hall_misalignment_ohm = [0.02 * sheet, -0.02 * sheet];
-            let mut protocol =
-                MeasurementProtocol::van_der_pauw(1e-4, vec![0.5]).with_resistance_at_zero_and_hall_in_field();
-            protocol.noise = VoltageNoise {
-                absolute_v: 1e-7,
-                relative: 1e-5,
-            };
-            readings.extend(van_der_pauw_readings(&sample, &protocol, &mut rng).expect("forward model"));
-        }
-    }
-    readings
+    van_der_pauw_run(
+        &SAMPLES,
+        &TEMPERATURES_K,
+        [20e-6, -15e-6, 8e-6, 30e-6, -12e-6, 25e-6],
+        0.02,
+        20261201,
+    )
 }
 
 /// The readings as inline JSON columns, in SI.

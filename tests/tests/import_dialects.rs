@@ -7,18 +7,15 @@
 //! that do not match their recipe get errors naming the line and the option to change, and
 //! the provenance identifies the file by its SHA-256, size and modification time.
 
-use mobilis_core::forward::readings::{van_der_pauw_readings, MeasurementProtocol, VanDerPauwSample, VoltageNoise};
-use mobilis_core::noise::Rng;
 use mobilis_core::readings::RawReading;
-use mobilis_tests::{ensure_built, float_column, string_column, TestDaemon};
+use mobilis_tests::{float_column, run_cli, string_column, van_der_pauw_run, InventedSample, TestDaemon};
 use serde_json::json;
 use std::path::Path;
-use std::process::Command;
 
 const ELEMENTARY_CHARGE: f64 = mobilis_core::constants::ELEMENTARY_CHARGE_C;
 
 /// The invented wafers: (name, sheet resistance ohm/sq, R_B/R_A, sheet Hall coefficient m^2/C).
-const WAFERS: [(&str, f64, f64, f64); 2] = [("W1", 180.0, 1.2, -450.0), ("W2", 2600.0, 0.9, 1900.0)];
+const WAFERS: [InventedSample; 2] = [("W1", 180.0, 1.2, -450.0), ("W2", 2600.0, 0.9, 1900.0)];
 const TEMPERATURES_K: [f64; 2] = [250.0, 300.0];
 const HEADER: [&str; 9] = [
     "Sample ID",
@@ -33,23 +30,13 @@ const HEADER: [&str; 9] = [
 ];
 
 fn generate_readings() -> Vec<RawReading> {
-    let mut rng = Rng::seeded(20261202);
-    let mut readings = Vec::new();
-    for (name, sheet, ratio, hall) in WAFERS {
-        for temperature in TEMPERATURES_K {
-            let mut sample = VanDerPauwSample::ideal(name, temperature, sheet, ratio, hall);
-            sample.thermoelectric_offsets_v = [15e-6, -10e-6, 5e-6, 20e-6, -8e-6, 12e-6];
-            sample.hall_misalignment_ohm = [0.01 * sheet, -0.01 * sheet];
-            let mut protocol =
-                MeasurementProtocol::van_der_pauw(1e-4, vec![0.5]).with_resistance_at_zero_and_hall_in_field();
-            protocol.noise = VoltageNoise {
-                absolute_v: 1e-7,
-                relative: 1e-5,
-            };
-            readings.extend(van_der_pauw_readings(&sample, &protocol, &mut rng).expect("forward model"));
-        }
-    }
-    readings
+    van_der_pauw_run(
+        &WAFERS,
+        &TEMPERATURES_K,
+        [15e-6, -10e-6, 5e-6, 20e-6, -8e-6, 12e-6],
+        0.01,
+        20261202,
+    )
 }
 
 /// The station's export: a `#` preamble, then its header and rows in its units (degC, G,
@@ -120,16 +107,8 @@ voltage = "mV"
 
 /// Runs the CLI; returns (success, stdout, stderr).
 fn mobilis(url: &str, arguments: &[&str]) -> (bool, String, String) {
-    let output = Command::new(ensure_built().join("mobilis"))
-        .args(["--url", url, "--progress", "never"])
-        .args(arguments)
-        .output()
-        .expect("mobilis runs");
-    (
-        output.status.success(),
-        String::from_utf8_lossy(&output.stdout).into_owned(),
-        String::from_utf8_lossy(&output.stderr).into_owned(),
-    )
+    let run = run_cli(url, "never", arguments);
+    (run.success, run.stdout, run.stderr)
 }
 
 fn write(directory: &Path, name: &str, text: &str) -> String {

@@ -13,7 +13,7 @@
 //! names another binary. `pdftotext` comes from Debian's `poppler-utils` (`tests/run` installs it too).
 
 use mobilis_tests::browser::{headless_chromium, pdf_text, print_to_pdf};
-use mobilis_tests::{ensure_built, workspace_root, TestDaemon};
+use mobilis_tests::{ensure_built, run_cli, workspace_root, TestDaemon};
 use std::path::Path;
 use std::process::{Command, Output};
 
@@ -41,21 +41,13 @@ fn html_attribute(dom: &str, name: &str) -> Option<usize> {
 
 /// Runs the CLI; returns what it printed on stdout and on stderr.
 fn mobilis(url: &str, progress: &str, arguments: &[&str]) -> (String, String) {
-    let output = Command::new(ensure_built().join("mobilis"))
-        .args(["--url", url, "--progress", progress])
-        .args(arguments)
-        .output()
-        .expect("mobilis runs");
+    let run = run_cli(url, progress, arguments);
     assert!(
-        output.status.success(),
+        run.success,
         "mobilis {arguments:?} failed:\n{}\n{}",
-        String::from_utf8_lossy(&output.stdout),
-        String::from_utf8_lossy(&output.stderr)
+        run.stdout, run.stderr
     );
-    (
-        String::from_utf8_lossy(&output.stdout).into_owned(),
-        String::from_utf8_lossy(&output.stderr).into_owned(),
-    )
+    (run.stdout, run.stderr)
 }
 
 #[tokio::test(flavor = "multi_thread")]

@@ -24,6 +24,10 @@ pub enum Words {
 /// Method names and JSON phrases that remain in a daemon's message or help, and what a
 /// command-line user types instead. Longer phrases first.
 const PHRASES: &[(&str, &str)] = &[
+    (
+        "rename a column at import (dataset.import rename, units)",
+        "rename a column at import (`mobilis import --rename SRC=DST`, `--unit COL=UNIT`)",
+    ),
     ("pass overwrite: true", "add --overwrite"),
     (
         "import it with dataset.import or list the stored ones with dataset.list",
@@ -38,6 +42,7 @@ const PHRASES: &[(&str, &str)] = &[
     ("analysis.list", "`mobilis analyses`"),
     ("plot.kinds", "`mobilis plot DATASET --list`"),
     ("report.samples", "`mobilis report`"),
+    ("series_by names", "--series-by names"),
 ];
 
 fn replace_phrases(text: &str) -> String {
@@ -212,6 +217,24 @@ mod tests {
                 Words::Options,
                 "no dataset named `run17`",
                 Some("`mobilis datasets` lists the stored datasets; `mobilis import NAME PATH` adds one"),
+            ),
+            (
+                "input role `readings` lacks column `field_T`",
+                Some("the dataset has: sample, B (G); rename a column at import (dataset.import rename, units)"),
+                "column_problem",
+                Some("inputs.readings"),
+                Words::Options,
+                "input role `readings` lacks column `field_T`",
+                Some("the dataset has: sample, B (G); rename a column at import (`mobilis import --rename SRC=DST`, `--unit COL=UNIT`)"),
+            ),
+            (
+                "series_by names `wafer`, which dataset `d` does not have; its columns are sample",
+                None,
+                "column_problem",
+                None,
+                Words::Options,
+                "--series-by names `wafer`, which dataset `d` does not have; its columns are sample",
+                None,
             ),
             (
                 "group_by column `wafer` is not in the first input table",

@@ -164,6 +164,7 @@ enum Command {
     },
     /// Draw a dataset: an SVG file, and with --vega-lite the same figure as a Vega-Lite specification.
     Plot {
+        /// The dataset to draw (see `mobilis datasets`).
         dataset: String,
         /// Figure kind (see `mobilis plot --list`); default: the one that suits the analysis that made the dataset.
         #[arg(long)]

@@ -225,7 +225,7 @@ mod tests {
                 Some("inputs.readings"),
                 Words::Options,
                 "input role `readings` lacks column `field_T`",
-                Some("the dataset has: sample, B (G); rename a column at import (`mobilis import --rename SRC=DST`, `--unit COL=UNIT`)"),
+                Some("--input takes ROLE=DATASET; the dataset has: sample, B (G); rename a column at import (`mobilis import --rename SRC=DST`, `--unit COL=UNIT`)"),
             ),
             (
                 "series_by names `wafer`, which dataset `d` does not have; its columns are sample",

@@ -33,14 +33,31 @@ fn fixed(value: f64, decimals: i32) -> String {
     }
 }
 
+/// The Unicode superscript digits 0 to 9.
+const SUPERSCRIPT_DIGITS: [char; 10] = ['⁰', '¹', '²', '³', '⁴', '⁵', '⁶', '⁷', '⁸', '⁹'];
+
 /// Digits as Unicode superscripts, so that a power of ten survives copying and PDF text.
-fn superscript(exponent: i32) -> String {
-    const DIGITS: [char; 10] = ['⁰', '¹', '²', '³', '⁴', '⁵', '⁶', '⁷', '⁸', '⁹'];
+pub fn superscript(exponent: i32) -> String {
     exponent
         .to_string()
         .chars()
-        .map(|c| c.to_digit(10).map_or('⁻', |d| DIGITS[d as usize]))
+        .map(|c| c.to_digit(10).map_or('⁻', |d| SUPERSCRIPT_DIGITS[d as usize]))
         .collect()
+}
+
+/// The digit a superscript digit stands for (`²` -> `2`).
+pub fn superscript_digit(c: char) -> Option<char> {
+    let position = SUPERSCRIPT_DIGITS.iter().position(|&digit| digit == c)?;
+    char::from_digit(position as u32, 10)
+}
+
+/// An exponent written as [`superscript`] writes it (`⁻¹⁵` -> -15).
+pub fn parse_superscript(text: &str) -> Option<i32> {
+    let digits: String = text
+        .chars()
+        .map(|c| if c == '⁻' { Some('-') } else { superscript_digit(c) })
+        .collect::<Option<String>>()?;
+    digits.parse().ok()
 }
 
 fn with_exponent(digits: &str, exponent: i32, notation: Notation) -> String {
@@ -237,6 +254,10 @@ mod tests {
         assert_eq!(with_uncertainty(f64::NAN, Some(1.0), Notation::Plain), "-");
         assert_eq!(number(2.8e15, Notation::Typeset), "2.800 × 10¹⁵");
         assert_eq!(number(300.0, Notation::Typeset), "300.0");
+        for exponent in [-15, -4, 0, 7, 23] {
+            assert_eq!(parse_superscript(&superscript(exponent)), Some(exponent));
+        }
+        assert_eq!(parse_superscript("1x"), None);
     }
 
     #[test]

@@ -52,6 +52,7 @@
 //! reciprocal, so that 3 kG becomes 0.3 T, the double nearest the exact value, where 3 * 0.1
 //! would give 0.30000000000000004.
 
+use crate::quote::superscript_digit;
 use std::collections::HashMap;
 use std::fmt;
 use std::sync::OnceLock;
@@ -419,22 +420,6 @@ fn lookup_table() -> &'static HashMap<String, usize> {
 // ---------------------------------------------------------------------------------------------
 // Parsing
 // ---------------------------------------------------------------------------------------------
-
-fn superscript_digit(c: char) -> Option<char> {
-    match c {
-        '⁰' => Some('0'),
-        '¹' => Some('1'),
-        '²' => Some('2'),
-        '³' => Some('3'),
-        '⁴' => Some('4'),
-        '⁵' => Some('5'),
-        '⁶' => Some('6'),
-        '⁷' => Some('7'),
-        '⁸' => Some('8'),
-        '⁹' => Some('9'),
-        _ => None,
-    }
-}
 
 /// Replaces the first `ohm`/`ohms` in any capitalisation by `ohm`, keeping what precedes it, so
 /// that `kOhm`, `MOhms` and `OHM` meet `kohm`, `Mohm` and `ohm` while the prefix keeps its case.

@@ -389,8 +389,9 @@ pub const PROGRESS_NOTIFICATION: &str = "progress.event";
 mod tests {
     use super::*;
 
-    #[test]
-    fn the_openrpc_table_lists_exactly_the_registered_methods() {
+    /// The methods over an empty workspace and no plugins (the workspace lives as long as the
+    /// returned directory).
+    fn module_without_plugins() -> (tempfile::TempDir, RpcModule<Service>) {
         let workspace = tempfile::tempdir().unwrap();
         let service = Service::new(
             crate::store::DatasetStore::open(workspace.path()).unwrap(),
@@ -398,7 +399,12 @@ mod tests {
             crate::data_roots::DataRoots::new([workspace.path().to_owned()]),
             workspace.path().to_owned(),
         );
-        let module = module(Arc::new(service));
+        (workspace, module(Arc::new(service)))
+    }
+
+    #[test]
+    fn the_openrpc_table_lists_exactly_the_registered_methods() {
+        let (_workspace, module) = module_without_plugins();
         let mut registered: Vec<&str> = module.method_names().collect();
         let mut documented: Vec<&str> = openrpc::METHODS.iter().map(|m| m.name).collect();
         registered.sort();
@@ -452,14 +458,7 @@ mod tests {
     #[tokio::test(flavor = "multi_thread")]
     async fn malformed_params_get_messages_without_rust_names() {
         use serde_json::json;
-        let workspace = tempfile::tempdir().unwrap();
-        let service = Service::new(
-            crate::store::DatasetStore::open(workspace.path()).unwrap(),
-            crate::plugin_host::PluginHost::default(),
-            crate::data_roots::DataRoots::new([workspace.path().to_owned()]),
-            workspace.path().to_owned(),
-        );
-        let module = module(Arc::new(service));
+        let (_workspace, module) = module_without_plugins();
         let type_names = crate_type_names();
         assert!(type_names.contains(&"NameParam".to_owned()) && type_names.contains(&"UnitSpec".to_owned()));
         let wrong_values = [

@@ -178,24 +178,7 @@ fn parse_printed(token: &str) -> Option<Printed> {
 
 /// Superscript digits back to a number: `¹⁵` -> 15, `⁻³¹` -> -31.
 fn superscript_number(text: &str) -> Option<i32> {
-    let digits: String = text
-        .chars()
-        .map(|c| match c {
-            '⁻' => Some('-'),
-            '⁰' => Some('0'),
-            '¹' => Some('1'),
-            '²' => Some('2'),
-            '³' => Some('3'),
-            '⁴' => Some('4'),
-            '⁵' => Some('5'),
-            '⁶' => Some('6'),
-            '⁷' => Some('7'),
-            '⁸' => Some('8'),
-            '⁹' => Some('9'),
-            _ => None,
-        })
-        .collect::<Option<String>>()?;
-    digits.parse().ok()
+    mobilis_core::quote::parse_superscript(text)
 }
 
 /// Every number in a text: plain ones (`2.797e15`, `45.00`), `a ± b` (the value good to the

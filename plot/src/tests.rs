@@ -363,9 +363,9 @@ fn hall_density_converts_to_per_cubic_centimetre_on_a_log_axis() {
     let y_axis = elements.iter().find(|e| e.has_class("y-axis")).unwrap();
     assert_eq!(y_axis.attribute("data-scale"), Some("log"));
     // Units with a real superscript, and decade tick labels 10^n.
-    assert!(svg.contains(r#"cm<tspan baseline-shift="super" font-size="80%">−3</tspan>"#));
+    assert!(svg.contains(r#"cm<tspan baseline-shift="super" font-size="90%">−3</tspan>"#));
     assert!(
-        svg.contains(r#">10<tspan baseline-shift="super" font-size="80%">15</tspan>"#),
+        svg.contains(r#">10<tspan baseline-shift="super" font-size="90%">15</tspan>"#),
         "{svg}"
     );
 
@@ -660,7 +660,7 @@ fn tensor_fits_draw_two_panels_of_data_and_model() {
         assert_eq!(count(&elements, "panel"), 2, "{kind}");
         assert_eq!(count(&elements, "point"), 60, "{kind}");
         assert_eq!(count(&elements, "line"), 2, "{kind}");
-        assert!(svg.contains(r#"<tspan baseline-shift="sub" font-size="80%">xy</tspan>"#));
+        assert!(svg.contains(r#"<tspan baseline-shift="sub" font-size="90%">xy</tspan>"#));
         check_vega(&figure);
     }
 }
@@ -1399,7 +1399,7 @@ fn hall_coefficients_and_log_densities_are_shown_in_the_tables_units() {
     .unwrap();
     let (svg, _) = checked_svg(&figure);
     assert!(
-        svg.contains(r#"cm<tspan baseline-shift="super" font-size="80%">3</tspan>/C"#),
+        svg.contains(r#"cm<tspan baseline-shift="super" font-size="90%">3</tspan>/C"#),
         "{svg}"
     );
     let spec = check_vega(&figure);

@@ -454,10 +454,11 @@ section.results h2, section.dataset h2 { font-size: 19px; margin: 0 0 6px; color
 section.dataset { margin-top: 30px; padding-top: 10px; border-top: 1px solid var(--rule); }
 .provenance { color: var(--muted); font-size: 13px; margin: 0 0 10px; overflow-wrap: anywhere; }
 .figures { display: flex; flex-wrap: wrap; gap: 12px; margin: 12px 0; }
-figure.plot { margin: 0; background: #fff; border: 1px solid var(--rule); border-radius: 4px; padding: 6px; flex: 1 1 580px; max-width: 680px; }
+figure.plot { margin: 0; background: #fff; border: 1px solid var(--rule); border-radius: 4px; padding: 6px; flex: 0 1 auto; max-width: 100%; }
 figure.plot.wide { flex: 1 1 100%; max-width: none; }
 figure.plot.print-only { display: none; }
-figure.plot svg { display: block; width: 100%; height: auto; }
+figure.plot svg { display: block; max-width: 100%; height: auto; }
+figure.plot.wide svg { width: 100%; }
 figure.plot figcaption { font-size: 12px; color: var(--muted); padding: 2px 4px; }
 .table-wrap { overflow-x: auto; border: 1px solid var(--rule); background: #fff; max-width: 100%; }
 table { border-collapse: collapse; font-size: 12px; font-variant-numeric: tabular-nums; }

@@ -387,6 +387,13 @@ fn demo_pages_print_every_key_number_without_clipping() {
                 smallest >= 10.0,
                 "{sample} ({paper}): figure text drawn at {smallest} px, under 10 px"
             );
+            // Super- and subscripts (10^15, mu_H) are text a person reads too.
+            if let Ok(raised) = attribute("data-smallest-raised-text-px").parse::<f64>() {
+                assert!(
+                    raised >= 10.0,
+                    "{sample} ({paper}): a super- or subscript drawn at {raised} px, under 10 px"
+                );
+            }
             if mode.is_empty() {
                 continue;
             }

@@ -52,10 +52,12 @@ export const ERROR_CODES = Object.freeze({
   pathRefused: 4006,
   invalidData: 4007,
   fileProblem: 4008,
+  resourceLimit: 4009,
   pluginFailure: 5001,
   numericalFailure: 5002,
   cancelled: 5003,
   storageFailure: 5004,
+  deadlineExceeded: 5005,
 });
 
 /** How often the HTTP transport polls `analysis.progress` while a call runs, ms. */

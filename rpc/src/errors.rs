@@ -48,6 +48,10 @@ pub enum ErrorKind {
     Cancelled,
     /// The workspace could not be written.
     StorageFailure,
+    /// The request asks for more than the daemon allows (memory budget, figure size).
+    ResourceLimit,
+    /// The call ran past its deadline and was stopped.
+    DeadlineExceeded,
 }
 
 impl ErrorKind {
@@ -66,6 +70,8 @@ impl ErrorKind {
             ErrorKind::NumericalFailure => 5002,
             ErrorKind::Cancelled => 5003,
             ErrorKind::StorageFailure => 5004,
+            ErrorKind::ResourceLimit => 4009,
+            ErrorKind::DeadlineExceeded => 5005,
         }
     }
 
@@ -84,11 +90,13 @@ impl ErrorKind {
             ErrorKind::NumericalFailure => "numerical_failure",
             ErrorKind::Cancelled => "cancelled",
             ErrorKind::StorageFailure => "storage_failure",
+            ErrorKind::ResourceLimit => "resource_limit",
+            ErrorKind::DeadlineExceeded => "deadline_exceeded",
         }
     }
 
     /// Every kind, for the OpenRPC document.
-    pub const ALL: [ErrorKind; 12] = [
+    pub const ALL: [ErrorKind; 14] = [
         ErrorKind::InvalidParams,
         ErrorKind::UnknownDataset,
         ErrorKind::UnknownAnalysis,
@@ -101,6 +109,8 @@ impl ErrorKind {
         ErrorKind::NumericalFailure,
         ErrorKind::Cancelled,
         ErrorKind::StorageFailure,
+        ErrorKind::ResourceLimit,
+        ErrorKind::DeadlineExceeded,
     ];
 
     /// One line for the OpenRPC document.
@@ -118,6 +128,8 @@ impl ErrorKind {
             ErrorKind::NumericalFailure => "the computation failed on valid input",
             ErrorKind::Cancelled => "the client cancelled the request",
             ErrorKind::StorageFailure => "the workspace could not be written",
+            ErrorKind::ResourceLimit => "the request asks for more than the daemon allows; the message names the limit and what to change",
+            ErrorKind::DeadlineExceeded => "the call ran past its deadline and was stopped; pass a longer deadline_s or narrow the work",
         }
     }
 }

@@ -1,0 +1,1 @@
+//! Faulty plugin libraries: truncated files, and plugins that crash, exit or hang in a worker.

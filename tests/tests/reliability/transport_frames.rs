@@ -1,0 +1,1 @@
+//! Malformed JSON-RPC and stdio frames, and every id the JSON-RPC specification allows.

@@ -1,0 +1,1 @@
+//! Path attacks (the workspace included), bounded calls and figures, paged listings.

@@ -104,6 +104,10 @@ fn table_html(frame: &DataFrame, columns: &[String], limit: usize, class: &str) 
             None => (c.name().to_string(), (1.0, 0.0)),
         })
         .collect();
+    let shown = frame.height().min(limit);
+    if shown <= TRANSPOSED_MAX_ROWS && columns.len() > TRANSPOSED_MIN_COLUMNS {
+        return transposed_table_html(&columns, &displays, shown, class);
+    }
     let mut html = format!("<div class=\"table-wrap\"><table class=\"{class}\"><thead><tr>");
     for (label, _) in &displays {
         // Long stored names may break after their underscores.
@@ -132,6 +136,46 @@ fn table_html(frame: &DataFrame, columns: &[String], limit: usize, class: &str) 
             frame.height()
         );
     }
+    html
+}
+
+/// A table of at most this many rows and more than `TRANSPOSED_MIN_COLUMNS` columns (a
+/// summary: one fit, one row per carrier) is shown one quantity per row. Its width then
+/// grows with its rows, not its columns, and fits paper whatever the font: a number such as
+/// `3.000e15` has no place to break, so a wide row of them cannot wrap.
+const TRANSPOSED_MAX_ROWS: usize = 4;
+const TRANSPOSED_MIN_COLUMNS: usize = 6;
+
+/// A few rows of many columns, one quantity per table row and one data row per column.
+fn transposed_table_html(columns: &[&Column], displays: &[(String, (f64, f64))], rows: usize, class: &str) -> String {
+    let mut html =
+        format!("<div class=\"table-wrap\"><table class=\"{class} transposed\"><thead><tr><th>Quantity</th>");
+    for row in 0..rows {
+        if rows == 1 {
+            html.push_str("<th>Value</th>");
+        } else {
+            let _ = write!(html, "<th>Row {}</th>", row + 1);
+        }
+    }
+    html.push_str("</tr></thead><tbody>");
+    for (column, (label, conversion)) in columns.iter().zip(displays) {
+        let _ = write!(
+            html,
+            "<tr><th scope=\"row\">{}</th>",
+            escape(label).replace('_', "_<wbr>")
+        );
+        let class = if column.dtype() == &DataType::String {
+            " class=\"text\""
+        } else {
+            ""
+        };
+        for row in 0..rows {
+            let value = column.get(row).unwrap_or(AnyValue::Null);
+            let _ = write!(html, "<td{class}>{}</td>", escape(&cell_text(value, *conversion)));
+        }
+        html.push_str("</tr>");
+    }
+    html.push_str("</tbody></table></div>");
     html
 }
 
@@ -467,6 +511,7 @@ th { white-space: normal; min-width: 4em; }
 th { background: #f0f3f6; font-weight: 600; }
 table.key { background: #fff; border: 1px solid var(--rule); font-size: 13px; }
 table.key td, table.key th { text-align: left; }
+table.transposed th[scope=row] { background: #f7f9fb; font-weight: normal; white-space: normal; }
 table.quantities th { background: none; font-weight: normal; }
 table.quantities td { font-weight: 600; }
 details { margin: 8px 0; }
@@ -829,6 +874,28 @@ mod tests {
         assert!(html.contains("<td>3.000e15</td>"), "{html}");
         assert!(!html.contains("W1") && !html.contains(">sample<"), "{html}");
         assert!(html.contains("First 1 of 2 rows"), "{html}");
+    }
+
+    #[test]
+    fn a_summary_of_many_columns_is_shown_one_quantity_per_row() {
+        let names: Vec<String> = (0..9).map(|i| format!("quantity_{i}")).collect();
+        let columns: Vec<Column> = names
+            .iter()
+            .enumerate()
+            .map(|(i, name)| Column::new(name.as_str().into(), [1.5e15 * (i + 1) as f64]))
+            .collect();
+        let frame = DataFrame::new(1, columns).unwrap();
+        let html = table_html(&frame, &[], 200, "key");
+        assert!(html.contains("transposed"), "{html}");
+        // One header row and one row per quantity, each with one value.
+        assert_eq!(html.matches("<tr>").count(), 1 + names.len(), "{html}");
+        assert!(
+            html.contains("<th scope=\"row\">quantity_<wbr>8</th><td>1.350e16</td>"),
+            "{html}"
+        );
+        // A long table keeps its columns.
+        let long = df!("a" => [1.0; 5], "b" => [2.0; 5], "c" => [3.0; 5], "d" => [4.0; 5], "e" => [5.0; 5], "f" => [6.0; 5], "g" => [7.0; 5]).unwrap();
+        assert!(!table_html(&long, &[], 200, "key").contains("transposed"));
     }
 
     #[test]

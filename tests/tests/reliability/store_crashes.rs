@@ -26,7 +26,9 @@ fn rows_of_version(k: u64) -> usize {
 
 const BASE_ROWS: usize = 6_000;
 const VERSIONS: u64 = 8;
-const IMPORTED: [&str; 3] = ["imp-0", "imp-1", "imp-2"];
+/// Names of imported datasets, two per importing client: one client per name, so that the
+/// calls on a name are in the order the ledger records them.
+const IMPORTED: [[&str; 2]; 2] = [["imp-0", "imp-1"], ["imp-2", "imp-3"]];
 const ANALYSED: [&str; 2] = ["out-0", "out-1"];
 
 /// SplitMix64 (Steele, Lea, Flood: "Fast splittable pseudorandom number generators",
@@ -57,6 +59,9 @@ struct Known {
 
 type Ledger = Arc<Mutex<BTreeMap<String, Known>>>;
 
+/// Calls answered in all rounds, so that a run shows the clients did write between kills.
+static ANSWERED: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
+
 fn write_sources(data: &Path) {
     let mut base = String::from("x\n");
     for i in 0..BASE_ROWS {
@@ -86,6 +91,7 @@ fn settle(ledger: &Ledger, names: &[&str], outcome: &Result<Value, mobilis_clien
         let known = ledger.get_mut(*name).expect("begun");
         match outcome {
             Ok(_) => {
+                ANSWERED.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
                 known.acknowledged = known.in_flight.take().expect("in flight");
             }
             // Refused by the daemon: nothing changed.
@@ -97,9 +103,9 @@ fn settle(ledger: &Ledger, names: &[&str], outcome: &Result<Value, mobilis_clien
 }
 
 /// Imports, overwrites and drops of the imported names, until the daemon dies.
-async fn importer(client: Client, ledger: Ledger, mut rng: Rng) {
+async fn importer(client: Client, names: [&'static str; 2], ledger: Ledger, mut rng: Rng) {
     loop {
-        let name = IMPORTED[rng.below(IMPORTED.len() as u64) as usize];
+        let name = names[rng.below(2) as usize];
         let present = ledger.lock().unwrap().get(name).and_then(|k| k.acknowledged).is_some();
         let outcome = if present && rng.below(4) == 0 {
             begin(&ledger, &[name], None);
@@ -304,18 +310,20 @@ async fn kill_rounds(rounds: usize) {
         .call("dataset.import", json!({"name": "base", "path": "base.csv"}))
         .await;
     let ledger: Ledger = Arc::default();
-    let (mut failed, mut lost) = (0, 0);
+    let (mut failed, mut lost, mut killed_in_flight) = (0, 0, 0);
     let started = std::time::Instant::now();
     for round in 0..rounds {
         let url = daemon.daemon.url().to_owned();
         let workers = vec![
             tokio::spawn(importer(
                 Client::connect(&url, None).await.unwrap(),
+                IMPORTED[0],
                 ledger.clone(),
                 Rng(rng.next()),
             )),
             tokio::spawn(importer(
                 Client::connect(&url, None).await.unwrap(),
+                IMPORTED[1],
                 ledger.clone(),
                 Rng(rng.next()),
             )),
@@ -331,6 +339,12 @@ async fn kill_rounds(rounds: usize) {
         for worker in workers {
             let _ = tokio::time::timeout(Duration::from_secs(30), worker).await;
         }
+        killed_in_flight += ledger
+            .lock()
+            .unwrap()
+            .values()
+            .filter(|k| k.in_flight.is_some())
+            .count();
         let (problems, round_lost) = audit(&daemon, &ledger).await;
         if !problems.is_empty() {
             failed += 1;
@@ -342,8 +356,9 @@ async fn kill_rounds(rounds: usize) {
     assert_eq!(base["rows"], BASE_ROWS, "the dataset nobody wrote to changed");
     counts::report("store kill -9 rounds", rounds, failed, lost);
     println!(
-        "store crash rounds: {rounds} in {:.1} s (seed {seed})",
-        started.elapsed().as_secs_f64()
+        "store crash rounds: {rounds} in {:.1} s, {} dataset writes acknowledged, {killed_in_flight} writes cut by a kill (seed {seed})",
+        started.elapsed().as_secs_f64(),
+        ANSWERED.load(std::sync::atomic::Ordering::Relaxed)
     );
     assert_eq!((failed, lost), (0, 0), "seed {seed}: see the rounds above");
 }
@@ -351,4 +366,96 @@ async fn kill_rounds(rounds: usize) {
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn killed_daemons_keep_every_dataset_whole_with_its_own_provenance() {
     kill_rounds(counts::rounds(12, 200)).await;
+}
+
+/// The daemon's resident anonymous memory in bytes (`RssAnon` in `/proc/<pid>/status`,
+/// proc(5)): its heap and stacks, without the pages of code it first ran during the check,
+/// which a debug build has many of and which say nothing about tables kept or returned.
+fn resident_bytes(pid: u32) -> u64 {
+    let status = std::fs::read_to_string(format!("/proc/{pid}/status")).unwrap_or_default();
+    status
+        .lines()
+        .find_map(|line| line.strip_prefix("RssAnon:"))
+        .and_then(|rest| rest.split_whitespace().next())
+        .and_then(|kib| kib.parse::<u64>().ok())
+        .map_or(0, |kib| kib * 1024)
+}
+
+#[cfg(target_os = "linux")]
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn memory_comes_back_after_a_large_dataset_is_dropped() {
+    let daemon = TestDaemon::start().await;
+    let rows = 1_000_000;
+    // Parquet rather than CSV: a debug build parses a million CSV lines slowly, and the
+    // check is about what the store keeps, not about the reader.
+    let mut frame = polars::df!(
+        "temperature_K" => (0..rows).map(|i| (i % 400) as f64 + 0.5).collect::<Vec<_>>(),
+        "resistance_ohm" => (0..rows).map(|i| i as f64 + 0.25).collect::<Vec<_>>()
+    )
+    .unwrap();
+    polars::prelude::ParquetWriter::new(std::fs::File::create(daemon.data.join("large.parquet")).unwrap())
+        .finish(&mut frame)
+        .unwrap();
+    drop(frame);
+    let pid = daemon.daemon.pid();
+    let before = resident_bytes(pid);
+    let (mut tried, mut failed) = (0, 0);
+    let mut figures = Vec::new();
+    // Import-and-drop cycles: memory that stayed after each drop would add up.
+    for cycle in 0..counts::rounds(2, 5) {
+        tried += 1;
+        daemon
+            .call("dataset.import", json!({"name": "large", "path": "large.parquet"}))
+            .await;
+        let loaded = resident_bytes(pid);
+        let stored = daemon.call("server.info", json!({})).await["memory"]["stored_bytes"]
+            .as_u64()
+            .unwrap_or(0);
+        daemon.call("dataset.drop", json!({"name": "large"})).await;
+        let dropped = resident_bytes(pid);
+        let after = daemon.call("server.info", json!({})).await["memory"].clone();
+        figures.push(format!(
+            "cycle {cycle}: anonymous RSS {} MiB before, {} MiB with 1e6 rows ({} MiB stored), {} MiB after the drop",
+            before >> 20,
+            loaded >> 20,
+            stored >> 20,
+            dropped >> 20
+        ));
+        // The table's bytes leave the budget's account, and the process gives back at least
+        // half of what the import added.
+        let returned = dropped <= before + (loaded.saturating_sub(before)) / 2;
+        if after["stored_bytes"] != 0 || stored < 8 << 20 || !returned {
+            failed += 1;
+        }
+    }
+    for line in &figures {
+        println!("memory after drops: {line}");
+    }
+    counts::report("memory returned after drops", tried, failed, 0);
+    assert_eq!(failed, 0, "{figures:#?}");
+}
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn imports_past_the_memory_budget_are_refused_with_what_to_do() {
+    let daemon = TestDaemon::start_with(|options| {
+        options
+            .extra_arguments
+            .extend(["--memory-budget".into(), "64KiB".into()])
+    })
+    .await;
+    let info = daemon.call("server.info", json!({})).await;
+    assert_eq!(info["memory"]["budget_bytes"], 64 * 1024, "{info}");
+    let small = json!({"name": "small", "columns": {"x": [1.0, 2.0, 3.0]}});
+    daemon.call("dataset.import", small).await;
+    let values: Vec<f64> = (0..20_000).map(f64::from).collect();
+    let (code, message) = daemon
+        .call_error("dataset.import", json!({"name": "big", "columns": {"x": values}}))
+        .await;
+    let refused = code == 4009 && message.contains("memory budget") && message.contains("64.00 KiB");
+    counts::report("imports past the memory budget", 1, usize::from(!refused), 0);
+    assert!(refused, "{code} {message}");
+    // The refusal changed nothing, and what fits is still stored.
+    daemon.call("dataset.info", json!({"name": "small"})).await;
+    let (code, _) = daemon.call_error("dataset.info", json!({"name": "big"})).await;
+    assert_eq!(code, 4002);
 }

@@ -334,13 +334,20 @@ impl DatasetStore {
         if legacy {
             // One file, one rename: the footer now carries the manifest, then the old
             // manifest goes. A crash between the two leaves a stale manifest that the next
-            // start removes, since the footer's copy wins.
-            let staged = disk::stage_dataset(&self.directory, parquet, &mut frame, &manifest, false)
-                .map_err(|e| format!("could not migrate to one file: {}", e.message))?;
-            disk::commit(&self.directory, vec![staged])
-                .map_err(|e| format!("could not migrate to one file: {}", e.message))?;
-            let _ = std::fs::remove_file(&legacy_path);
-            disk::sync_directory(&self.directory);
+            // start removes, since the footer's copy wins. A workspace that cannot be
+            // written (read-only, full) keeps its two files and still loads.
+            let migrated = disk::stage_dataset(&self.directory, parquet, &mut frame, &manifest, false)
+                .and_then(|staged| disk::commit(&self.directory, vec![staged]));
+            match migrated {
+                Ok(()) => {
+                    let _ = std::fs::remove_file(&legacy_path);
+                    disk::sync_directory(&self.directory);
+                }
+                Err(error) => {
+                    tracing::warn!(dataset = name, error = %error.message, "kept in the two-file form of earlier versions");
+                    return Ok((Dataset { frame, manifest }, false));
+                }
+            }
         }
         Ok((Dataset { frame, manifest }, legacy))
     }

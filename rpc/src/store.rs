@@ -869,7 +869,8 @@ mod tests {
         })
         .join()
         .unwrap();
-        assert!(store.contains("free"));
+        // Readers do not wait for a writer either.
+        assert!(store.contains("free") && store.get("free").is_ok() && store.list().len() == 1);
     }
 
     #[test]

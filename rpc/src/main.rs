@@ -37,6 +37,10 @@ struct Arguments {
     /// Bearer token clients must present; required when listening beyond loopback.
     #[arg(long, env = "MOBILIS_TOKEN", hide_env_values = true)]
     token: Option<String>,
+    /// Memory budget for stored tables, for example 4GiB or 512MiB; imports and analysis
+    /// outputs past it are refused. Default: half of the machine's memory.
+    #[arg(long = "memory-budget", value_parser = mobilis_rpc::store::memory::parse_size)]
+    memory_budget: Option<u64>,
 }
 
 fn main() -> anyhow::Result<()> {
@@ -64,6 +68,9 @@ fn main() -> anyhow::Result<()> {
     let workspace = arguments.workspace.canonicalize()?;
     let store =
         DatasetStore::open(&workspace).with_context(|| format!("cannot open the workspace {}", workspace.display()))?;
+    if let Some(budget) = arguments.memory_budget {
+        store.set_memory_budget(budget);
+    }
 
     let mut host = PluginHost::default();
     if arguments.plugin_dirs.is_empty() {

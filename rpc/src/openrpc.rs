@@ -32,7 +32,7 @@ const RUN_RESULT: &str = r#"{"type": "object", "required": ["output", "rows", "s
 pub const METHODS: &[MethodDoc] = &[
     MethodDoc {
         name: "server.info",
-        summary: "Name, version, plugin ABI version, workspace, data roots, plugins loaded and refused, damaged workspace files",
+        summary: "Name, version, plugin ABI version, workspace, data roots, plugins loaded and refused, damaged workspace files, memory {stored_bytes, budget_bytes} of the stored tables",
         params: &[],
         result: OBJECT,
     },

@@ -421,6 +421,10 @@ impl Service {
             "plugins": self.host.plugins.iter().map(|p| json!({"name": p.name, "version": p.version})).collect::<Vec<_>>(),
             "refused_plugins": self.host.refused.iter().map(|r| json!({"file": r.file.display().to_string(), "reason": r.reason})).collect::<Vec<_>>(),
             "damaged_files": self.store.damaged(),
+            "memory": {
+                "stored_bytes": self.store.memory_usage().0,
+                "budget_bytes": self.store.memory_usage().1,
+            },
         })
     }
 
@@ -817,20 +821,30 @@ impl Service {
             Some(_) => Some(summary_table(&summary, &group_columns)?),
             None => None,
         };
-        let stored = self
-            .store
-            .insert(&run.output, table, provenance(false), run.overwrite)?;
+        // The output and its summary commit together: a crash never keeps one without the other.
+        let mut writes = vec![store::NewDataset {
+            name: run.output.clone(),
+            frame: table,
+            provenance: provenance(false),
+        }];
+        if let (Some(name), Some(frame)) = (&run.summary_output, summary_frame) {
+            writes.push(store::NewDataset {
+                name: name.clone(),
+                frame,
+                provenance: provenance(true),
+            });
+        }
+        let stored = self.store.insert_all(writes, run.overwrite)?;
         let mut answer = json!({
             "output": run.output,
-            "rows": stored.frame.height(),
-            "columns": stored.manifest.columns,
+            "rows": stored[0].frame.height(),
+            "columns": stored[0].manifest.columns,
             "summary": summary,
             "warnings": warnings,
         });
-        if let (Some(name), Some(frame)) = (&run.summary_output, summary_frame) {
-            let stored = self.store.insert(name, frame, provenance(true), run.overwrite)?;
+        if let (Some(name), Some(summary_stored)) = (&run.summary_output, stored.get(1)) {
             answer["summary_output"] = json!(name);
-            answer["summary_rows"] = json!(stored.frame.height());
+            answer["summary_rows"] = json!(summary_stored.frame.height());
         }
         Ok(answer)
     }

@@ -1,23 +1,32 @@
-//! The dataset store: polars DataFrames in memory, each persisted in the workspace as a
-//! Parquet file plus a JSON manifest with its provenance.
+//! The dataset store: polars DataFrames in memory, each persisted in the workspace as one
+//! Parquet file that carries its own manifest (provenance included) in its footer.
 //!
-//! **Architecture Invariant.** A dataset is in memory only once both of its files are on
-//! disk: writes go to a temporary file, are flushed with fsync and renamed into place, so a
-//! crash leaves either the old dataset or the new one, never a torn file. On start every
-//! manifest is reloaded; a file that cannot be read is reported (logged and listed by
-//! `server.info`) and left untouched on disk for a person to inspect, never deleted.
+//! **Architecture Invariant.** A dataset is in memory only once its file is committed on
+//! disk, and every dataset has one commit point, the rename of its file into place (see
+//! [`disk`]): a crash leaves either the old dataset or the new one, whole and with its own
+//! provenance. Datasets that belong together (an analysis's output and its summary) commit
+//! as a group through a commit record. On start, groups a crash interrupted are finished,
+//! files of unfinished writes are removed (logged once), and every committed file is loaded;
+//! one that cannot be read is reported (logged and listed by `server.info`) and left
+//! untouched on disk for a person to inspect, never deleted.
 //!
-//! Layout: `<workspace>/datasets/<name>.parquet` and `<workspace>/datasets/<name>.json`.
+//! Writers of different names run in parallel: each name has its own write lock, and the
+//! map that readers use is locked only for the in-memory swap, never across a write or an
+//! fsync. Locks ignore poisoning, and a panic inside the Parquet writer fails only its call.
+//!
+//! Layout: `<workspace>/datasets/<name>.parquet`. Workspaces of earlier versions kept the
+//! manifest beside it as `<name>.json`; such pairs are migrated to the one-file form on load.
+
+pub mod disk;
+pub mod memory;
 
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use polars::prelude::*;
 use serde::{Deserialize, Serialize};
-use std::collections::BTreeMap;
-use std::fs::File;
-use std::io::Write;
+use std::collections::{BTreeMap, HashMap};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicU64, Ordering};
-use std::sync::{Arc, Mutex, RwLock};
+use std::sync::{Arc, Mutex, MutexGuard, PoisonError, RwLock};
 
 /// Version of the manifest format written by this daemon.
 pub const MANIFEST_FORMAT: u32 = 1;
@@ -79,7 +88,7 @@ pub enum Provenance {
     },
 }
 
-/// The manifest persisted beside each dataset's Parquet file.
+/// The manifest persisted in the footer of each dataset's Parquet file.
 #[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct Manifest {
     pub format: u32,
@@ -112,10 +121,25 @@ pub struct DamagedFile {
 
 pub struct DatasetStore {
     directory: PathBuf,
+    /// What readers see. Locked only to look up or swap an entry, never across disk work.
     datasets: RwLock<BTreeMap<String, Arc<Dataset>>>,
-    /// Serialises writers so that two writes of one name cannot interleave their renames.
-    write_lock: Mutex<()>,
+    /// One write lock per dataset name, so that two writes of one name cannot interleave
+    /// their renames while writes of different names proceed in parallel.
+    name_locks: Mutex<HashMap<String, Arc<Mutex<()>>>>,
+    /// Bytes of the stored tables plus those reserved by writes under way.
+    stored_bytes: AtomicU64,
+    budget_bytes: AtomicU64,
     damaged: Vec<DamagedFile>,
+    /// Makes the next Parquet write panic, to test that the store survives it.
+    #[cfg(test)]
+    panic_in_next_write: std::sync::atomic::AtomicBool,
+}
+
+/// The write lock of one dataset name, held from the first check to the in-memory swap.
+struct NameLock<'a> {
+    store: &'a DatasetStore,
+    name: String,
+    lock: Arc<Mutex<()>>,
 }
 
 /// Checks a dataset name: 1 to 128 characters from `A-Z a-z 0-9 _ - .`, starting with a
@@ -152,99 +176,144 @@ fn storage_error(action: &str, path: &Path, error: impl std::fmt::Display) -> Se
     .with_help("check the workspace directory's permissions and free space; stored datasets are unchanged")
 }
 
-static TEMPORARY_COUNTER: AtomicU64 = AtomicU64::new(0);
+/// Locks a mutex whether or not an earlier holder panicked: every structure behind the
+/// store's locks is changed by single assignments, so a panic cannot leave it half-changed.
+fn lock<T>(mutex: &Mutex<T>) -> MutexGuard<'_, T> {
+    mutex.lock().unwrap_or_else(PoisonError::into_inner)
+}
 
-/// Writes `bytes_writer`'s output to `target` atomically: temporary file, fsync, rename, fsync dir.
-fn write_atomically(target: &Path, write: impl FnOnce(&mut File) -> Result<(), String>) -> ServiceResult<()> {
-    let directory = target.parent().expect("dataset files live in a directory");
-    let temporary = directory.join(format!(
-        ".tmp-{}-{}-{}",
-        std::process::id(),
-        TEMPORARY_COUNTER.fetch_add(1, Ordering::Relaxed),
-        target.file_name().and_then(|n| n.to_str()).unwrap_or("file")
-    ));
-    let result = (|| {
-        let mut file = File::create(&temporary).map_err(|e| storage_error("create", &temporary, e))?;
-        write(&mut file).map_err(|e| storage_error("write", &temporary, e))?;
-        file.sync_all().map_err(|e| storage_error("flush", &temporary, e))?;
-        std::fs::rename(&temporary, target).map_err(|e| storage_error("rename into", target, e))?;
-        if let Ok(dir) = File::open(directory) {
-            // Persist the rename itself; not every platform supports syncing a directory.
-            let _ = dir.sync_all();
-        }
-        Ok(())
-    })();
-    if result.is_err() {
-        let _ = std::fs::remove_file(&temporary);
-    }
-    result
+/// The size of a table as the memory budget counts it.
+fn table_bytes(frame: &DataFrame) -> u64 {
+    frame.estimated_size() as u64
+}
+
+/// A dataset to store with [`DatasetStore::insert_all`].
+pub struct NewDataset {
+    pub name: String,
+    pub frame: DataFrame,
+    pub provenance: Provenance,
 }
 
 impl DatasetStore {
-    /// Opens (creating if needed) a workspace and loads every dataset in it.
+    /// Opens (creating if needed) a workspace and loads every dataset in it, with the
+    /// default memory budget ([`memory::default_budget`]).
     pub fn open(workspace: &Path) -> std::io::Result<Self> {
         let directory = workspace.join("datasets");
         std::fs::create_dir_all(&directory)?;
         let mut store = DatasetStore {
             directory,
             datasets: RwLock::new(BTreeMap::new()),
-            write_lock: Mutex::new(()),
+            name_locks: Mutex::new(HashMap::new()),
+            stored_bytes: AtomicU64::new(0),
+            budget_bytes: AtomicU64::new(memory::default_budget()),
             damaged: Vec::new(),
+            #[cfg(test)]
+            panic_in_next_write: std::sync::atomic::AtomicBool::new(false),
         };
         store.reload()?;
         Ok(store)
     }
 
+    /// Sets the memory budget for stored tables (`--memory-budget`). Tables stored already
+    /// stay; while they exceed the budget, new ones are refused.
+    pub fn set_memory_budget(&self, bytes: u64) {
+        self.budget_bytes.store(bytes, Ordering::Relaxed);
+        let stored = self.stored_bytes.load(Ordering::Relaxed);
+        if stored > bytes {
+            tracing::warn!(
+                stored = %memory::human_bytes(stored),
+                budget = %memory::human_bytes(bytes),
+                "the stored datasets exceed the memory budget; imports are refused until some are dropped"
+            );
+        }
+    }
+
+    /// Bytes held by stored tables, and the budget.
+    pub fn memory_usage(&self) -> (u64, u64) {
+        (
+            self.stored_bytes.load(Ordering::Relaxed),
+            self.budget_bytes.load(Ordering::Relaxed),
+        )
+    }
+
     fn reload(&mut self) -> std::io::Result<()> {
+        let sweep = disk::sweep(&self.directory)?;
+        if sweep.removed > 0 || sweep.rolled_forward > 0 {
+            tracing::info!(
+                removed = sweep.removed,
+                finished_commits = sweep.rolled_forward,
+                "cleaned up after interrupted writes"
+            );
+        }
         let mut entries: Vec<PathBuf> = std::fs::read_dir(&self.directory)?
             .filter_map(|e| e.ok().map(|e| e.path()))
             .collect();
-        entries.sort();
+        // Dataset files first, manifests of earlier versions after: whether such a manifest
+        // is stale depends on whether its dataset file loaded.
+        entries.sort_by_key(|path| (path.extension().is_some_and(|e| e == "json"), path.clone()));
         let mut loaded = BTreeMap::new();
         let mut damaged = Vec::new();
+        let mut migrated = 0;
         for path in &entries {
             let file_name = path.file_name().and_then(|n| n.to_str()).unwrap_or("").to_owned();
-            if file_name.starts_with(".tmp-") {
-                // An interrupted write: the rename never happened, so nothing refers to it.
-                damaged.push(DamagedFile {
-                    file: path.display().to_string(),
-                    reason: "left over from an interrupted write".into(),
-                });
-                continue;
-            }
-            let Some(name) = file_name.strip_suffix(".json") else {
-                if let Some(name) = file_name.strip_suffix(".parquet") {
-                    if !self.directory.join(format!("{name}.json")).exists() {
-                        damaged.push(DamagedFile {
-                            file: path.display().to_string(),
-                            reason: "Parquet file without a manifest".into(),
-                        });
+            if let Some(name) = file_name.strip_suffix(".parquet") {
+                if file_name.starts_with('.') {
+                    continue;
+                }
+                match self.load_one(name) {
+                    Ok((dataset, was_legacy)) => {
+                        migrated += usize::from(was_legacy);
+                        loaded.insert(name.to_owned(), Arc::new(dataset));
                     }
+                    Err(reason) => damaged.push(DamagedFile {
+                        file: path.display().to_string(),
+                        reason,
+                    }),
                 }
-                continue;
-            };
-            match Self::load_one(&self.directory, name) {
-                Ok(dataset) => {
-                    loaded.insert(name.to_owned(), Arc::new(dataset));
+            } else if let Some(name) = file_name.strip_suffix(".json") {
+                if file_name.starts_with('.') {
+                    continue;
                 }
-                Err(reason) => damaged.push(DamagedFile {
-                    file: path.display().to_string(),
-                    reason,
-                }),
+                let parquet = self.directory.join(format!("{name}.parquet"));
+                if loaded.contains_key(name) {
+                    // Manifest of an earlier version whose dataset is now one file (a
+                    // migration stopped after its commit): the footer is the truth.
+                    let _ = std::fs::remove_file(path);
+                } else if !parquet.exists() {
+                    damaged.push(DamagedFile {
+                        file: path.display().to_string(),
+                        reason: "manifest of an earlier workspace version without its Parquet file".into(),
+                    });
+                }
             }
         }
         for file in &damaged {
             tracing::warn!(file = %file.file, reason = %file.reason, "workspace file skipped");
         }
+        if migrated > 0 {
+            tracing::info!(datasets = migrated, "migrated to one file per dataset");
+        }
         tracing::info!(datasets = loaded.len(), damaged = damaged.len(), "workspace loaded");
+        let bytes = loaded.values().map(|d: &Arc<Dataset>| table_bytes(&d.frame)).sum();
+        self.stored_bytes = AtomicU64::new(bytes);
         self.datasets = RwLock::new(loaded);
         self.damaged = damaged;
         Ok(())
     }
 
-    fn load_one(directory: &Path, name: &str) -> Result<Dataset, String> {
-        let manifest_text =
-            std::fs::read_to_string(directory.join(format!("{name}.json"))).map_err(|e| e.to_string())?;
+    /// Loads one committed dataset file; true when it was in the two-file form of earlier
+    /// versions and has just been migrated.
+    fn load_one(&self, name: &str) -> Result<(Dataset, bool), String> {
+        let parquet = self.directory.join(format!("{name}.parquet"));
+        let (mut frame, footer) = disk::read_dataset(&parquet)?;
+        let legacy_path = self.directory.join(format!("{name}.json"));
+        let (manifest_text, legacy) = match footer {
+            Some(text) => (text, false),
+            None => match std::fs::read_to_string(&legacy_path) {
+                Ok(text) => (text, true),
+                Err(_) => return Err("Parquet file without a manifest".into()),
+            },
+        };
         let manifest: Manifest =
             serde_json::from_str(&manifest_text).map_err(|e| format!("manifest unreadable: {e}"))?;
         if manifest.format != MANIFEST_FORMAT {
@@ -253,11 +322,6 @@ impl DatasetStore {
         if manifest.name != name {
             return Err(format!("manifest names `{}` but the file is `{name}`", manifest.name));
         }
-        let parquet = directory.join(format!("{name}.parquet"));
-        let file = File::open(&parquet).map_err(|e| format!("{}: {e}", parquet.display()))?;
-        let frame = ParquetReader::new(file)
-            .finish()
-            .map_err(|e| format!("Parquet unreadable: {e}"))?;
         if frame.height() != manifest.rows || column_infos(&frame) != manifest.columns {
             return Err(format!(
                 "Parquet file holds {} rows and columns {:?}, the manifest says {} rows and {:?}",
@@ -267,7 +331,25 @@ impl DatasetStore {
                 manifest.columns.iter().map(|c| &c.name).collect::<Vec<_>>()
             ));
         }
-        Ok(Dataset { frame, manifest })
+        if legacy {
+            // One file, one rename: the footer now carries the manifest, then the old
+            // manifest goes. A crash between the two leaves a stale manifest that the next
+            // start removes, since the footer's copy wins. A workspace that cannot be
+            // written (read-only, full) keeps its two files and still loads.
+            let migrated = disk::stage_dataset(&self.directory, parquet, &mut frame, &manifest, false)
+                .and_then(|staged| disk::commit(&self.directory, vec![staged]));
+            match migrated {
+                Ok(()) => {
+                    let _ = std::fs::remove_file(&legacy_path);
+                    disk::sync_directory(&self.directory);
+                }
+                Err(error) => {
+                    tracing::warn!(dataset = name, error = %error.message, "kept in the two-file form of earlier versions");
+                    return Ok((Dataset { frame, manifest }, false));
+                }
+            }
+        }
+        Ok((Dataset { frame, manifest }, legacy))
     }
 
     pub fn directory(&self) -> &Path {
@@ -278,90 +360,227 @@ impl DatasetStore {
         &self.damaged
     }
 
+    fn read_map(&self) -> std::sync::RwLockReadGuard<'_, BTreeMap<String, Arc<Dataset>>> {
+        self.datasets.read().unwrap_or_else(PoisonError::into_inner)
+    }
+
+    fn write_map(&self) -> std::sync::RwLockWriteGuard<'_, BTreeMap<String, Arc<Dataset>>> {
+        self.datasets.write().unwrap_or_else(PoisonError::into_inner)
+    }
+
     pub fn get(&self, name: &str) -> ServiceResult<Arc<Dataset>> {
-        self.datasets
-            .read()
-            .expect("store lock")
+        self.read_map()
             .get(name)
             .cloned()
             .ok_or_else(|| ServiceError::unknown_dataset(name))
     }
 
     pub fn contains(&self, name: &str) -> bool {
-        self.datasets.read().expect("store lock").contains_key(name)
+        self.read_map().contains_key(name)
     }
 
     pub fn list(&self) -> Vec<Arc<Dataset>> {
-        self.datasets.read().expect("store lock").values().cloned().collect()
+        self.read_map().values().cloned().collect()
+    }
+
+    /// Takes the write locks of `names` in sorted order, so that two groups of names can
+    /// never wait for each other.
+    fn lock_names(&self, names: &[&str]) -> Vec<NameLock<'_>> {
+        let mut sorted: Vec<&str> = names.to_vec();
+        sorted.sort_unstable();
+        sorted.dedup();
+        sorted
+            .into_iter()
+            .map(|name| {
+                let lock = lock(&self.name_locks).entry(name.to_owned()).or_default().clone();
+                NameLock {
+                    store: self,
+                    name: name.to_owned(),
+                    lock,
+                }
+            })
+            .collect()
+    }
+
+    /// Reserves `adding` bytes of the budget, counting `freeing` bytes that the same write
+    /// releases (an overwrite). The reservation is atomic so that parallel writers of
+    /// different names cannot together pass the budget.
+    fn reserve(&self, adding: u64, freeing: u64) -> ServiceResult<()> {
+        let budget = self.budget_bytes.load(Ordering::Relaxed);
+        self.stored_bytes
+            .fetch_update(Ordering::SeqCst, Ordering::SeqCst, |stored| {
+                (stored.saturating_sub(freeing).saturating_add(adding) <= budget).then(|| stored + adding)
+            })
+            .map(|_| ())
+            .map_err(|stored| {
+                ServiceError::new(
+                    ErrorKind::ResourceLimit,
+                    format!(
+                        "storing {} more would pass the memory budget: stored tables hold {} of {}",
+                        memory::human_bytes(adding.saturating_sub(freeing)),
+                        memory::human_bytes(stored),
+                        memory::human_bytes(budget)
+                    ),
+                )
+                .with_help("drop datasets that are no longer needed (dataset.drop), or start mobilisd with a larger --memory-budget")
+            })
+    }
+
+    fn release(&self, bytes: u64) {
+        let _ = self
+            .stored_bytes
+            .fetch_update(Ordering::SeqCst, Ordering::SeqCst, |s| Some(s.saturating_sub(bytes)));
     }
 
     /// Persists and stores a dataset. Refuses to replace an existing one unless `overwrite`.
     pub fn insert(
         &self,
         name: &str,
-        mut frame: DataFrame,
+        frame: DataFrame,
         provenance: Provenance,
         overwrite: bool,
     ) -> ServiceResult<Arc<Dataset>> {
-        validate_name(name)?;
-        let _writer = self.write_lock.lock().expect("store write lock");
-        if !overwrite && self.contains(name) {
+        let mut stored = self.insert_all(
+            vec![NewDataset {
+                name: name.to_owned(),
+                frame,
+                provenance,
+            }],
+            overwrite,
+        )?;
+        Ok(stored.remove(0))
+    }
+
+    /// Persists and stores several datasets as one commit: after a crash at any moment,
+    /// either all of them are stored or none is (old versions stay). Refuses to replace
+    /// existing ones unless `overwrite`.
+    pub fn insert_all(&self, items: Vec<NewDataset>, overwrite: bool) -> ServiceResult<Vec<Arc<Dataset>>> {
+        if items.is_empty() {
+            return Ok(Vec::new());
+        }
+        for (index, item) in items.iter().enumerate() {
+            validate_name(&item.name)?;
+            if items[..index].iter().any(|earlier| earlier.name == item.name) {
+                return Err(ServiceError::invalid_params(format!(
+                    "dataset `{}` is named twice in one write",
+                    item.name
+                )));
+            }
+            if item.frame.width() == 0 {
+                return Err(ServiceError::new(
+                    ErrorKind::InvalidData,
+                    format!("dataset `{}` would have no columns", item.name),
+                ));
+            }
+        }
+        let names: Vec<&str> = items.iter().map(|i| i.name.as_str()).collect();
+        let locks = self.lock_names(&names);
+        let _guards: Vec<MutexGuard<'_, ()>> = locks.iter().map(|l| lock(&l.lock)).collect();
+        let replaced: Vec<Arc<Dataset>> = {
+            let map = self.read_map();
+            items.iter().filter_map(|i| map.get(&i.name).cloned()).collect()
+        };
+        if let (false, Some(existing)) = (overwrite, replaced.first()) {
             return Err(ServiceError::new(
                 ErrorKind::DatasetExists,
-                format!("a dataset named `{name}` exists already"),
+                format!("a dataset named `{}` exists already", existing.manifest.name),
             )
             .with_help("choose another name, drop the old dataset, or pass overwrite: true"));
         }
-        if frame.width() == 0 {
-            return Err(ServiceError::new(
-                ErrorKind::InvalidData,
-                format!("dataset `{name}` would have no columns"),
-            ));
+        let created = utc_timestamp(std::time::SystemTime::now());
+        let mut prepared: Vec<(DataFrame, Manifest)> = items
+            .into_iter()
+            .map(|item| {
+                let mut frame = item.frame;
+                frame.rechunk_mut();
+                let manifest = Manifest {
+                    format: MANIFEST_FORMAT,
+                    name: item.name,
+                    rows: frame.height(),
+                    columns: column_infos(&frame),
+                    created: created.clone(),
+                    provenance: item.provenance,
+                };
+                (frame, manifest)
+            })
+            .collect();
+        let adding: u64 = prepared.iter().map(|(frame, _)| table_bytes(frame)).sum();
+        let freeing: u64 = replaced.iter().map(|d| table_bytes(&d.frame)).sum();
+        self.reserve(adding, freeing)?;
+        let committed = self.write_files(&mut prepared);
+        if let Err(error) = committed {
+            self.release(adding);
+            return Err(error);
         }
-        frame.rechunk_mut();
-        let manifest = Manifest {
-            format: MANIFEST_FORMAT,
-            name: name.to_owned(),
-            rows: frame.height(),
-            columns: column_infos(&frame),
-            created: utc_timestamp(std::time::SystemTime::now()),
-            provenance,
-        };
-        let parquet_path = self.directory.join(format!("{name}.parquet"));
-        let manifest_path = self.directory.join(format!("{name}.json"));
-        write_atomically(&parquet_path, |file| {
-            ParquetWriter::new(&mut *file)
-                .finish(&mut frame)
-                .map(|_| ())
-                .map_err(|e| e.to_string())
-        })?;
-        let manifest_json = serde_json::to_vec_pretty(&manifest).expect("manifest serialises");
-        write_atomically(&manifest_path, |file| {
-            file.write_all(&manifest_json).map_err(|e| e.to_string())
-        })?;
-        let dataset = Arc::new(Dataset { frame, manifest });
-        self.datasets
-            .write()
-            .expect("store lock")
-            .insert(name.to_owned(), dataset.clone());
-        Ok(dataset)
+        let stored: Vec<Arc<Dataset>> = prepared
+            .into_iter()
+            .map(|(frame, manifest)| Arc::new(Dataset { frame, manifest }))
+            .collect();
+        {
+            let mut map = self.write_map();
+            for dataset in &stored {
+                map.insert(dataset.manifest.name.clone(), dataset.clone());
+            }
+        }
+        self.release(freeing);
+        if !replaced.is_empty() {
+            drop(replaced);
+            memory::return_freed_memory();
+        }
+        Ok(stored)
     }
 
-    /// Removes a dataset from memory and disk.
+    /// Stages every file, then commits them together; nothing is left behind on failure.
+    fn write_files(&self, prepared: &mut [(DataFrame, Manifest)]) -> ServiceResult<()> {
+        let mut staged = Vec::with_capacity(prepared.len());
+        for (frame, manifest) in prepared.iter_mut() {
+            #[cfg(test)]
+            let inject = self.panic_in_next_write.swap(false, Ordering::SeqCst);
+            #[cfg(not(test))]
+            let inject = false;
+            let target = self.directory.join(format!("{}.parquet", manifest.name));
+            match disk::stage_dataset(&self.directory, target, frame, manifest, inject) {
+                Ok(one) => staged.push(one),
+                Err(error) => {
+                    for one in staged {
+                        one.discard();
+                    }
+                    return Err(error);
+                }
+            }
+        }
+        disk::commit(&self.directory, staged)
+    }
+
+    /// Removes a dataset from memory and disk: one unlink is its commit point.
     pub fn remove(&self, name: &str) -> ServiceResult<()> {
-        let _writer = self.write_lock.lock().expect("store write lock");
+        let locks = self.lock_names(&[name]);
+        let _guard = lock(&locks[0].lock);
         if !self.contains(name) {
             return Err(ServiceError::unknown_dataset(name));
         }
-        // Manifest first: without it the dataset is gone at the next start, whatever happens next.
-        let manifest_path = self.directory.join(format!("{name}.json"));
-        std::fs::remove_file(&manifest_path).map_err(|e| storage_error("remove", &manifest_path, e))?;
-        let parquet_path = self.directory.join(format!("{name}.parquet"));
-        if let Err(error) = std::fs::remove_file(&parquet_path) {
-            tracing::warn!(file = %parquet_path.display(), %error, "could not remove a dropped dataset's Parquet file");
+        let path = self.directory.join(format!("{name}.parquet"));
+        std::fs::remove_file(&path).map_err(|e| storage_error("remove", &path, e))?;
+        disk::sync_directory(&self.directory);
+        let removed = self.write_map().remove(name);
+        if let Some(dataset) = removed {
+            self.release(table_bytes(&dataset.frame));
+            drop(dataset);
+            memory::return_freed_memory();
         }
-        self.datasets.write().expect("store lock").remove(name);
         Ok(())
+    }
+}
+
+impl Drop for NameLock<'_> {
+    /// Forgets a name's lock once nobody else holds or waits for it, so that the lock table
+    /// does not grow with every name ever written. Runs after the guard is released; the
+    /// check and removal happen under the table's lock, where new waiters take their copy.
+    fn drop(&mut self) {
+        let mut table = lock(&self.store.name_locks);
+        if Arc::strong_count(&self.lock) == 2 {
+            table.remove(&self.name);
+        }
     }
 }
 
@@ -433,6 +652,225 @@ mod tests {
             workspace.path().join("datasets/two.parquet").exists(),
             "damaged files are never deleted"
         );
+    }
+
+    fn inline(name: &str, frame: DataFrame) -> NewDataset {
+        NewDataset {
+            name: name.into(),
+            frame,
+            provenance: provenance(),
+        }
+    }
+
+    fn listing(directory: &Path) -> Vec<String> {
+        let mut names: Vec<String> = std::fs::read_dir(directory)
+            .unwrap()
+            .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+            .collect();
+        names.sort();
+        names
+    }
+
+    #[test]
+    fn a_dataset_is_one_file_with_its_manifest_in_the_footer() {
+        let workspace = tempfile::tempdir().unwrap();
+        let store = DatasetStore::open(workspace.path()).unwrap();
+        store
+            .insert("wafer", df!("x" => [1.0, 2.0, 3.0]).unwrap(), provenance(), false)
+            .unwrap();
+        assert_eq!(listing(store.directory()), ["wafer.parquet"]);
+        let (frame, footer) = disk::read_dataset(&store.directory().join("wafer.parquet")).unwrap();
+        let manifest: Manifest = serde_json::from_str(&footer.expect("a manifest in the footer")).unwrap();
+        assert_eq!((manifest.name.as_str(), manifest.rows, frame.height()), ("wafer", 3, 3));
+        store.remove("wafer").unwrap();
+        assert!(listing(store.directory()).is_empty(), "a drop removes the one file");
+    }
+
+    #[test]
+    fn a_panic_in_the_writer_fails_that_call_and_the_store_serves_on() {
+        let workspace = tempfile::tempdir().unwrap();
+        let store = DatasetStore::open(workspace.path()).unwrap();
+        store
+            .insert("kept", df!("x" => [1]).unwrap(), provenance(), false)
+            .unwrap();
+        store.panic_in_next_write.store(true, Ordering::SeqCst);
+        let error = store
+            .insert("kept", df!("x" => [7, 8]).unwrap(), provenance(), true)
+            .err()
+            .expect("the write is refused");
+        assert_eq!(error.kind, ErrorKind::StorageFailure, "{error:?}");
+        assert!(error.message.contains("injected failure"), "{}", error.message);
+        // The old version is untouched, nothing is left behind, and writes work again.
+        assert_eq!(store.get("kept").unwrap().frame.height(), 1);
+        assert_eq!(listing(store.directory()), ["kept.parquet"]);
+        store
+            .insert("next", df!("x" => [1, 2]).unwrap(), provenance(), false)
+            .unwrap();
+        store
+            .insert("kept", df!("x" => [3, 4, 5]).unwrap(), provenance(), true)
+            .unwrap();
+        store.remove("next").unwrap();
+        let reopened = DatasetStore::open(workspace.path()).unwrap();
+        assert_eq!(reopened.get("kept").unwrap().frame.height(), 3);
+        assert!(reopened.damaged().is_empty());
+    }
+
+    #[test]
+    fn a_poisoned_lock_does_not_stop_later_writes() {
+        let workspace = tempfile::tempdir().unwrap();
+        let store = Arc::new(DatasetStore::open(workspace.path()).unwrap());
+        let poisoner = store.clone();
+        // A thread that panics while holding both the map lock and a name lock.
+        let _ = std::thread::spawn(move || {
+            let locks = poisoner.lock_names(&["held"]);
+            let _name = locks[0].lock.lock().unwrap();
+            let _map = poisoner.datasets.write().unwrap();
+            panic!("a writer panicked while holding the store's locks");
+        })
+        .join();
+        assert!(store.datasets.is_poisoned());
+        store
+            .insert("held", df!("x" => [1]).unwrap(), provenance(), false)
+            .unwrap();
+        assert_eq!(store.list().len(), 1);
+        store.remove("held").unwrap();
+    }
+
+    #[test]
+    fn two_file_workspaces_are_migrated_on_load() {
+        let workspace = tempfile::tempdir().unwrap();
+        let directory = workspace.path().join("datasets");
+        std::fs::create_dir_all(&directory).unwrap();
+        // The layout of earlier versions: plain Parquet plus a JSON manifest beside it.
+        let mut frame = df!("temperature_K" => [10.0, 20.0]).unwrap();
+        ParquetWriter::new(std::fs::File::create(directory.join("old.parquet")).unwrap())
+            .finish(&mut frame)
+            .unwrap();
+        let manifest = Manifest {
+            format: MANIFEST_FORMAT,
+            name: "old".into(),
+            rows: 2,
+            columns: column_infos(&frame),
+            created: "2025-01-01T00:00:00Z".into(),
+            provenance: Provenance::File {
+                path: "/data/old.csv".into(),
+                format: "csv".into(),
+                units: BTreeMap::new(),
+                rename: BTreeMap::new(),
+                csv: None,
+                sha256: None,
+                size_bytes: None,
+                modified: None,
+            },
+        };
+        std::fs::write(directory.join("old.json"), serde_json::to_vec(&manifest).unwrap()).unwrap();
+        let store = DatasetStore::open(workspace.path()).unwrap();
+        assert!(store.damaged().is_empty(), "{:?}", store.damaged());
+        assert_eq!(store.get("old").unwrap().manifest.provenance, manifest.provenance);
+        assert_eq!(listing(&directory), ["old.parquet"]);
+        // A stale manifest beside a migrated file (a migration stopped before removing it)
+        // is removed and does not override the footer.
+        std::fs::write(directory.join("old.json"), b"{\"stale\": true}").unwrap();
+        let store = DatasetStore::open(workspace.path()).unwrap();
+        assert!(store.damaged().is_empty(), "{:?}", store.damaged());
+        assert_eq!(store.get("old").unwrap().manifest.created, "2025-01-01T00:00:00Z");
+        assert_eq!(listing(&directory), ["old.parquet"]);
+    }
+
+    #[test]
+    fn an_interrupted_group_commit_is_finished_and_leftovers_removed() {
+        let workspace = tempfile::tempdir().unwrap();
+        let store = DatasetStore::open(workspace.path()).unwrap();
+        let directory = store.directory().to_owned();
+        store
+            .insert("output", df!("x" => [1]).unwrap(), provenance(), false)
+            .unwrap();
+        // Stage a group as a killed daemon would have left it: both files written, the
+        // commit record in place, only the first rename done.
+        let mut staged = Vec::new();
+        for (name, rows) in [("output", 3), ("summary", 1)] {
+            let mut frame = DataFrame::new(rows, vec![Column::new("x".into(), vec![1i32; rows])]).unwrap();
+            let manifest = Manifest {
+                format: MANIFEST_FORMAT,
+                name: name.into(),
+                rows,
+                columns: column_infos(&frame),
+                created: "2026-01-01T00:00:00Z".into(),
+                provenance: provenance(),
+            };
+            let target = directory.join(format!("{name}.parquet"));
+            staged.push(disk::stage_dataset(&directory, target, &mut frame, &manifest, false).unwrap());
+        }
+        let record = serde_json::json!({"renames": staged.iter().map(|s| serde_json::json!({
+            "from": s.temporary.file_name().unwrap().to_str().unwrap(),
+            "to": s.target.file_name().unwrap().to_str().unwrap(),
+        })).collect::<Vec<_>>()});
+        std::fs::write(directory.join(".commit-1-1.json"), record.to_string()).unwrap();
+        std::fs::rename(&staged[0].temporary, &staged[0].target).unwrap();
+        // And the leftovers of writes that never reached their commit point.
+        std::fs::write(directory.join(".tmp-99-0-lost.parquet"), b"half a file").unwrap();
+        std::fs::write(directory.join(".commit-2-2.json"), b"{\"renames\": []}").unwrap();
+        drop(store);
+        let store = DatasetStore::open(workspace.path()).unwrap();
+        assert!(store.damaged().is_empty(), "{:?}", store.damaged());
+        assert_eq!(store.get("output").unwrap().frame.height(), 3);
+        assert_eq!(store.get("summary").unwrap().frame.height(), 1);
+        assert_eq!(listing(&directory), ["output.parquet", "summary.parquet"]);
+    }
+
+    #[test]
+    fn groups_commit_together_and_the_budget_refuses_what_does_not_fit() {
+        let workspace = tempfile::tempdir().unwrap();
+        let store = DatasetStore::open(workspace.path()).unwrap();
+        let stored = store
+            .insert_all(
+                vec![
+                    inline("out", df!("x" => [1.0; 1000]).unwrap()),
+                    inline("out.summary", df!("y" => [2.0]).unwrap()),
+                ],
+                false,
+            )
+            .unwrap();
+        assert_eq!(stored.len(), 2);
+        assert_eq!(listing(store.directory()), ["out.parquet", "out.summary.parquet"]);
+        let (stored_bytes, _) = store.memory_usage();
+        assert!(stored_bytes >= 8000, "{stored_bytes}");
+        store.set_memory_budget(stored_bytes + 4000);
+        let error = store
+            .insert("big", df!("x" => [1.0; 1000]).unwrap(), provenance(), false)
+            .err()
+            .expect("the write is refused");
+        assert_eq!(error.kind, ErrorKind::ResourceLimit);
+        assert!(error.help.as_deref().unwrap().contains("--memory-budget"), "{error:?}");
+        assert!(!store.contains("big") && !store.directory().join("big.parquet").exists());
+        // An overwrite counts what it frees; a drop gives its bytes back.
+        store
+            .insert("out", df!("x" => [1.0; 1200]).unwrap(), provenance(), true)
+            .unwrap();
+        store.remove("out").unwrap();
+        assert!(store.memory_usage().0 < 1000, "{:?}", store.memory_usage());
+        store
+            .insert("big", df!("x" => [1.0; 1000]).unwrap(), provenance(), false)
+            .unwrap();
+    }
+
+    #[test]
+    fn writes_of_different_names_run_in_parallel() {
+        let workspace = tempfile::tempdir().unwrap();
+        let store = Arc::new(DatasetStore::open(workspace.path()).unwrap());
+        // Hold one name's write lock: writes of other names and reads go on meanwhile.
+        let locks = store.lock_names(&["busy"]);
+        let _held = locks[0].lock.lock().unwrap();
+        let other = store.clone();
+        std::thread::spawn(move || {
+            other
+                .insert("free", df!("x" => [1]).unwrap(), provenance(), false)
+                .unwrap();
+        })
+        .join()
+        .unwrap();
+        // Readers do not wait for a writer either.
+        assert!(store.contains("free") && store.get("free").is_ok() && store.list().len() == 1);
     }
 
     #[test]

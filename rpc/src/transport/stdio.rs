@@ -96,6 +96,14 @@ impl<R: AsyncBufRead + Unpin> FrameReader<R> {
         }
     }
 
+    /// A frame whose first line is no header cannot say where it ends: it is refused at once
+    /// and the reader looks for the next `Content-Length:` line, which may follow directly
+    /// (the good frame after a stray line is not swallowed).
+    fn refuse_start_with(&mut self, why: String) -> Frame {
+        self.resyncing = true;
+        Frame::Refused(format!("parse error: {why}"))
+    }
+
     pub(super) async fn next(&mut self) -> std::io::Result<Frame> {
         let mut length: Option<Result<usize, String>> = None;
         let mut problem: Option<String> = None;
@@ -110,6 +118,11 @@ impl<R: AsyncBufRead + Unpin> FrameReader<R> {
                 Line::TooLong => {
                     if !self.resyncing {
                         lines += 1;
+                        if lines == 1 {
+                            return Ok(self.refuse_start_with(format!(
+                                "a header line is longer than {MAX_HEADER_LINE} bytes; headers are short `Name: value` lines"
+                            )));
+                        }
                         problem.get_or_insert(format!(
                             "a header line is longer than {MAX_HEADER_LINE} bytes; headers are short `Name: value` lines"
                         ));
@@ -149,17 +162,25 @@ impl<R: AsyncBufRead + Unpin> FrameReader<R> {
             }
             let Ok(header) = std::str::from_utf8(text) else {
                 let at = text.iter().position(|b| !b.is_ascii()).unwrap_or(0);
-                problem.get_or_insert(format!(
+                let why = format!(
                     "header line {lines} is not text (byte 0x{:02x} at column {}); headers are ASCII `Name: value` lines",
                     text[at],
                     at + 1
-                ));
+                );
+                if lines == 1 {
+                    return Ok(self.refuse_start_with(why));
+                }
+                problem.get_or_insert(why);
                 continue;
             };
             let Some((name, value)) = header.split_once(':') else {
-                problem.get_or_insert(format!(
+                let why = format!(
                     "header line {lines} is not a `Name: value` header; a frame is `Content-Length: N`, an empty line and N bytes of JSON"
-                ));
+                );
+                if lines == 1 {
+                    return Ok(self.refuse_start_with(why));
+                }
+                problem.get_or_insert(why);
                 continue;
             };
             if name.trim().eq_ignore_ascii_case("content-length") {
@@ -302,6 +323,8 @@ mod tests {
                 .flat_map(|i| format!("X-{i}: y\r\n").into_bytes())
                 .chain(good("{}"))
                 .collect(),
+            b"\xfe\xfe no header here\r\n".to_vec(),
+            [vec![b'z'; 3 * MAX_HEADER_LINE], b"\r\n".to_vec()].concat(),
         ];
         for input in bad {
             let mut stream = input.clone();

@@ -34,7 +34,8 @@ struct Arguments {
     /// A web origin allowed to call (repeatable), for example http://localhost:3000.
     #[arg(long = "allow-origin")]
     allowed_origins: Vec<String>,
-    /// Bearer token clients must present; required when listening beyond loopback.
+    /// Bearer token clients must present; required when listening beyond loopback. Prefer the
+    /// environment variable MOBILIS_TOKEN: every local user can read a command line.
     #[arg(long, env = "MOBILIS_TOKEN", hide_env_values = true)]
     token: Option<String>,
     /// Memory budget for stored tables, for example 4GiB or 512MiB; imports and analysis
@@ -56,6 +57,15 @@ fn main() -> anyhow::Result<()> {
         )
         .init();
 
+    if let Some(token) = &arguments.token {
+        if let Err(problem) = transport::check_token_setting(token) {
+            bail!("{problem}");
+        }
+        // clap reads MOBILIS_TOKEN too; a token that is not the environment's came from the command line.
+        if std::env::var("MOBILIS_TOKEN").ok().as_deref() != Some(token.as_str()) {
+            tracing::warn!("the token was given with --token, which every user of this machine can read in the process list; set MOBILIS_TOKEN in the daemon's environment instead");
+        }
+    }
     if !arguments.stdio && !arguments.listen.ip().is_loopback() && arguments.token.is_none() {
         bail!(
             "listening on {} reaches beyond this machine; pass --token (or set MOBILIS_TOKEN) so that only clients holding it can call",
@@ -114,7 +124,7 @@ fn main() -> anyhow::Result<()> {
             _ = stopped.stopped() => {}
             _ = shutdown_signal() => {
                 tracing::info!("shutting down");
-                let _ = handle.stop();
+                handle.stop();
                 handle.stopped().await;
             }
         }

@@ -138,10 +138,13 @@ mod tests {
 
     #[test]
     fn messages_and_tables_survive_the_round_trip() {
-        let table = DataFrame::new(2, vec![
-            Column::new("x".into(), [1.0f64, 2.5]),
-            Column::new("name".into(), ["a", "b"]),
-        ])
+        let table = DataFrame::new(
+            2,
+            vec![
+                Column::new("x".into(), [1.0f64, 2.5]),
+                Column::new("name".into(), ["a", "b"]),
+            ],
+        )
         .unwrap();
         let mut stream = Vec::new();
         write_message(

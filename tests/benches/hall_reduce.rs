@@ -231,11 +231,15 @@ fn main() {
         readings.width(),
         numeric.width()
     );
+    let signed = |seconds: f64| {
+        let sign = if seconds < 0.0 { "-" } else { "+" };
+        format!("{sign}{}", format_seconds(seconds.abs()))
+    };
     println!(
-        "cost of isolation: hall.reduce {:+.1} % ({} more per call), the boundary both ways {} more",
+        "cost of isolation (median, isolated minus in process): hall.reduce {} per call ({:+.1} %), the boundary both ways {}",
+        signed(reduce_isolated.median_s - reduce.median_s),
         100.0 * (reduce_isolated.median_s / reduce.median_s - 1.0),
-        format_seconds(reduce_isolated.median_s - reduce.median_s),
-        format_seconds(identity_isolated.median_s - identity.median_s)
+        signed(identity_isolated.median_s - identity.median_s)
     );
     println!(
         "peak RSS (VmHWM): {} after generating the dataset, {} at the end",

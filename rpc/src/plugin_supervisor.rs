@@ -489,3 +489,23 @@ enum Conversation {
     /// The worker died, hung or broke the protocol; it is not used again.
     Lost(InvokeFailure),
 }
+
+#[cfg(all(test, unix))]
+mod tests {
+    use super::*;
+
+    fn ended(script: &str) -> String {
+        let status = Command::new("sh").args(["-c", script]).status().expect("sh runs");
+        describe_exit(status)
+    }
+
+    #[test]
+    fn a_worker_s_end_is_told_in_words() {
+        assert_eq!(ended("exit 3"), "exited with code 3");
+        assert_eq!(ended("kill -SEGV $$"), "killed by SIGSEGV (segmentation fault)");
+        assert_eq!(ended("kill -ABRT $$"), "killed by SIGABRT (abort)");
+        if cfg!(target_os = "linux") {
+            assert_eq!(ended("kill -USR1 $$"), "killed by signal 10");
+        }
+    }
+}

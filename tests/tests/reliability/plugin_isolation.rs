@@ -276,3 +276,64 @@ async fn truncated_libraries_are_refused_and_the_daemon_serves_on() {
     counts::report("truncated plugin libraries", tried, failed, 0);
     assert_eq!(failed, 0, "{refused:?}");
 }
+
+#[tokio::test(flavor = "multi_thread")]
+async fn a_hanging_plugin_that_ignores_cancel_is_killed_after_the_grace() {
+    let dir = tempfile::tempdir().unwrap();
+    build_fixture(dir.path(), "cfixture", &[("FIXTURE_FAULT", Some("3"))]);
+    let daemon = isolated_daemon(dir.path(), "600").await;
+    daemon
+        .call(
+            "dataset.import",
+            json!({"name": "good", "columns": {"x": [1.0, 2.0, 3.5]}}),
+        )
+        .await;
+    let unlucky: Vec<f64> = (0..13).map(f64::from).collect();
+    daemon
+        .call("dataset.import", json!({"name": "unlucky", "columns": {"x": unlucky}}))
+        .await;
+    let rounds = counts::rounds(1, 5);
+    let (mut failed, mut lost) = (0, 0);
+    for round in 0..rounds {
+        let call_id = format!("hang-{round}");
+        let runner = mobilis_client::Client::connect(daemon.daemon.url(), None)
+            .await
+            .unwrap();
+        let mut call = sum_call("unlucky", "out");
+        call["call_id"] = json!(call_id);
+        let running = tokio::spawn(async move { runner.call("analysis.run", call).await });
+        // The call is registered, and then inside the plugin's endless loop.
+        loop {
+            let progress = daemon.call("analysis.progress", json!({"call_id": call_id})).await;
+            if progress["running"] == true {
+                break;
+            }
+            tokio::time::sleep(std::time::Duration::from_millis(20)).await;
+        }
+        tokio::time::sleep(std::time::Duration::from_millis(300)).await;
+        daemon.call("analysis.cancel", json!({"call_id": call_id})).await;
+        let outcome = tokio::time::timeout(std::time::Duration::from_secs(30), running).await;
+        match outcome {
+            Ok(Ok(Err(ClientError::Rpc {
+                code: 5003, message, ..
+            }))) if message.contains("was killed") => {}
+            other => {
+                eprintln!("round {round}: the cancelled hang answered {other:?}");
+                failed += 1;
+            }
+        }
+        match daemon.client.call("analysis.run", sum_call("good", "good_sum")).await {
+            Ok(run) if run["summary"]["total"].as_f64() == Some(6.5) => {}
+            other => {
+                eprintln!("round {round}: the good call after the kill answered {other:?}");
+                failed += 1;
+            }
+        }
+        match daemon.client.call("dataset.info", json!({"name": "good"})).await {
+            Ok(info) if info["rows"] == 3 => {}
+            _ => lost += 1,
+        }
+    }
+    counts::report("hanging plugin cancelled by its client, isolated", rounds, failed, lost);
+    assert_eq!((failed, lost), (0, 0));
+}

@@ -8,6 +8,11 @@
 //! symbol, reports another ABI major version, returns an unusable declaration, declares a
 //! parameter schema the host cannot validate, or offers an analysis whose name is already
 //! taken. A refused library is never half-registered; the daemon keeps serving.
+//!
+//! A plugin runs in process (the daemon's own plugins, `--trusted-plugin-dir`) or isolated
+//! in worker processes (`--plugin-dir`, see [`crate::plugin_supervisor`]); [`PluginHost::invoke`]
+//! is the same call for both. Before any library is mapped, here or in a worker, its ELF
+//! headers are checked against its size ([`crate::library_check`]).
 
 use crate::param_schema;
 use crate::plugin_supervisor::{WorkerPool, WorkerSettings};
@@ -247,8 +252,9 @@ fn library_files(dir: &Path, accept: impl Fn(&str) -> bool) -> Result<Vec<PathBu
 pub fn open_in_process(file: &Path) -> Result<OpenedLibrary, String> {
     // A truncated file would fault inside the loader (SIGBUS), so its headers are read first.
     crate::library_check::check_library(file).map_err(|reason| format!("refused before loading: {reason}"))?;
-    // SAFETY: loading a library runs its initialisers. Plugins are trusted code chosen by
-    // whoever starts the daemon (--plugin-dir); this is the one place that trust is taken.
+    // SAFETY: loading a library runs its initialisers. In the daemon, only libraries its
+    // starter trusts (its own, --trusted-plugin-dir, after a trial load in a worker) get
+    // here; in a worker process a faulty one takes only that worker down.
     let library = unsafe { libloading::Library::new(file) }.map_err(|e| load_failure(file, &e))?;
     // SAFETY: the symbol's type is fixed by the ABI; a library exporting the name with
     // another type breaks the ABI contract, which no check can detect.

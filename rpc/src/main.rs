@@ -3,7 +3,8 @@
 use anyhow::{bail, Context};
 use clap::Parser;
 use mobilis_rpc::data_roots::DataRoots;
-use mobilis_rpc::plugin_host::PluginHost;
+use mobilis_rpc::plugin_host::{Isolation, PluginHost};
+use mobilis_rpc::plugin_supervisor::WorkerSettings;
 use mobilis_rpc::service::Service;
 use mobilis_rpc::store::DatasetStore;
 use mobilis_rpc::transport::{self, AccessPolicy};
@@ -22,9 +23,19 @@ struct Arguments {
     /// Directory where datasets persist.
     #[arg(long, default_value = "mobilis-workspace")]
     workspace: PathBuf,
-    /// Directory of plugin libraries (repeatable). Default: the mobilis plugins built next to this binary.
+    /// Directory of plugin libraries (repeatable), each run isolated in worker processes.
+    /// Default, without this or --trusted-plugin-dir: the mobilis plugins built next to this binary, in process.
     #[arg(long = "plugin-dir")]
     plugin_dirs: Vec<PathBuf>,
+    /// Directory of plugin libraries (repeatable) loaded into the daemon's own process: faster, but a crash of such a plugin is a crash of the daemon.
+    #[arg(long = "trusted-plugin-dir")]
+    trusted_plugin_dirs: Vec<PathBuf>,
+    /// Seconds a call into an isolated plugin may run before its worker is stopped.
+    #[arg(long = "plugin-call-timeout", default_value_t = 600.0)]
+    plugin_call_timeout: f64,
+    /// Runs as the worker process of one isolated plugin library (started by the daemon itself).
+    #[arg(long = "plugin-worker", hide = true)]
+    plugin_worker: Option<PathBuf>,
     /// Serve JSON-RPC on stdin/stdout with Content-Length framing instead of the network.
     #[arg(long)]
     stdio: bool,
@@ -57,6 +68,10 @@ fn main() -> anyhow::Result<()> {
         )
         .init();
 
+    if let Some(library) = &arguments.plugin_worker {
+        std::process::exit(mobilis_rpc::plugin_worker::run(library));
+    }
+
     if let Some(token) = &arguments.token {
         if let Err(problem) = transport::check_token_setting(token) {
             bail!("{problem}");
@@ -82,8 +97,15 @@ fn main() -> anyhow::Result<()> {
         store.set_memory_budget(budget);
     }
 
-    let mut host = PluginHost::default();
-    if arguments.plugin_dirs.is_empty() {
+    if !(arguments.plugin_call_timeout.is_finite() && arguments.plugin_call_timeout > 0.0) {
+        bail!(
+            "--plugin-call-timeout {} is not a number of seconds above zero; give for example 600",
+            arguments.plugin_call_timeout
+        );
+    }
+    let call_timeout = std::time::Duration::from_secs_f64(arguments.plugin_call_timeout.min(1e9));
+    let mut host = PluginHost::default().with_workers(WorkerSettings::new(std::env::current_exe()?, call_timeout));
+    if arguments.plugin_dirs.is_empty() && arguments.trusted_plugin_dirs.is_empty() {
         let exe = std::env::current_exe()?;
         let beside = exe.parent().context("the binary has no directory")?;
         // Only mobilis's own plugin libraries: a build directory holds other shared objects too.
@@ -91,8 +113,11 @@ fn main() -> anyhow::Result<()> {
             file.starts_with("libmobilis_") || file.starts_with("mobilis_")
         });
     } else {
+        for dir in &arguments.trusted_plugin_dirs {
+            host.load_dir_as(dir, Isolation::InProcess, |_| true);
+        }
         for dir in &arguments.plugin_dirs {
-            host.load_dir(dir, |_| true);
+            host.load_dir_as(dir, Isolation::Isolated, |_| true);
         }
     }
 

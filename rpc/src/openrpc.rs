@@ -32,14 +32,14 @@ const RUN_RESULT: &str = r#"{"type": "object", "required": ["output", "rows", "s
 pub const METHODS: &[MethodDoc] = &[
     MethodDoc {
         name: "server.info",
-        summary: "Name, version, plugin ABI version, workspace, data roots, plugins loaded and refused, damaged workspace files, memory {stored_bytes, budget_bytes} of the stored tables",
+        summary: "Name, version, plugin ABI version, workspace, data roots, plugins loaded (name, version, isolation) and refused (file, reason), damaged workspace files, memory {stored_bytes, budget_bytes} of the stored tables",
         params: &[],
         result: OBJECT,
     },
     MethodDoc { name: "rpc.discover", summary: "This OpenRPC document", params: &[], result: OBJECT },
     MethodDoc {
         name: "plugin.list",
-        summary: "Each plugin: name, version, library file, analyses",
+        summary: "Each plugin: name, version, library file, analyses, isolation (\"in_process\": in the daemon's process; \"isolated\": in supervised worker processes, where a crash, exit or hang fails one call with 5001)",
         params: &[],
         result: ARRAY,
     },

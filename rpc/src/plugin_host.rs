@@ -8,8 +8,14 @@
 //! symbol, reports another ABI major version, returns an unusable declaration, declares a
 //! parameter schema the host cannot validate, or offers an analysis whose name is already
 //! taken. A refused library is never half-registered; the daemon keeps serving.
+//!
+//! A plugin runs in process (the daemon's own plugins, `--trusted-plugin-dir`) or isolated
+//! in worker processes (`--plugin-dir`, see [`crate::plugin_supervisor`]); [`PluginHost::invoke`]
+//! is the same call for both. Before any library is mapped, here or in a worker, its ELF
+//! headers are checked against its size ([`crate::library_check`]).
 
 use crate::param_schema;
+use crate::plugin_supervisor::{WorkerPool, WorkerSettings};
 use mobilis_core::abi::{
     self, AnalysisDeclaration, EntryFn, HostContext, InputTable, InvokeOutput, PluginDeclaration, PluginDescriptor,
 };
@@ -31,7 +37,49 @@ pub struct LoadedPlugin {
     pub file: PathBuf,
     pub features: Vec<String>,
     pub analyses: Vec<String>,
-    descriptor: &'static PluginDescriptor,
+    /// Where the plugin's code runs.
+    pub isolation: Isolation,
+    backend: Backend,
+}
+
+/// Where a plugin's code runs.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Isolation {
+    /// Mapped into the daemon: fastest, and a crash of the plugin is a crash of the daemon.
+    InProcess,
+    /// In supervised worker processes: a crash, exit or hang fails one call.
+    Isolated,
+}
+
+impl Isolation {
+    /// The name clients see (`plugin.list`, `server.info`).
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Isolation::InProcess => "in_process",
+            Isolation::Isolated => "isolated",
+        }
+    }
+}
+
+/// How calls reach a plugin.
+enum Backend {
+    InProcess(&'static PluginDescriptor),
+    Isolated(Box<WorkerPool>),
+}
+
+/// A plugin's descriptor fields, as the host reports them.
+#[derive(Debug, Clone)]
+pub struct PluginIdentity {
+    pub name: String,
+    pub version: String,
+    pub abi_minor: u32,
+}
+
+/// A library opened in this process and checked up to its declaration.
+pub struct OpenedLibrary {
+    pub identity: PluginIdentity,
+    pub declaration: PluginDeclaration,
+    pub descriptor: &'static PluginDescriptor,
 }
 
 /// A library that was refused, and why.
@@ -53,6 +101,8 @@ pub struct PluginHost {
     pub plugins: Vec<LoadedPlugin>,
     pub refused: Vec<RefusedPlugin>,
     pub analyses: BTreeMap<String, RegisteredAnalysis>,
+    /// How isolated plugins run; without it every library loads in process.
+    workers: Option<WorkerSettings>,
 }
 
 /// How a call into a plugin failed.
@@ -177,68 +227,160 @@ pub fn is_shared_library(path: &Path) -> bool {
     matches!(extension, "so" | "dylib" | "dll")
 }
 
+/// The shared libraries of `dir` whose file name passes `accept`, sorted.
+fn library_files(dir: &Path, accept: impl Fn(&str) -> bool) -> Result<Vec<PathBuf>, RefusedPlugin> {
+    let mut files: Vec<PathBuf> = match std::fs::read_dir(dir) {
+        Ok(entries) => entries.filter_map(|e| e.ok().map(|e| e.path())).collect(),
+        Err(error) => {
+            return Err(RefusedPlugin {
+                file: dir.to_owned(),
+                reason: format!("cannot read the plugin directory: {error}"),
+            })
+        }
+    };
+    files.retain(|file| {
+        let name = file.file_name().and_then(|n| n.to_str()).unwrap_or("");
+        is_shared_library(file) && accept(name)
+    });
+    files.sort();
+    Ok(files)
+}
+
+/// Opens a library in this process: checks its file, maps it, calls its entry function and
+/// reads its declaration. The library stays mapped whatever happens after (see the module
+/// documentation).
+pub fn open_in_process(file: &Path) -> Result<OpenedLibrary, String> {
+    // A truncated file would fault inside the loader (SIGBUS), so its headers are read first.
+    crate::library_check::check_library(file).map_err(|reason| format!("refused before loading: {reason}"))?;
+    // SAFETY: loading a library runs its initialisers. In the daemon, only libraries its
+    // starter trusts (its own, --trusted-plugin-dir, after a trial load in a worker) get
+    // here; in a worker process a faulty one takes only that worker down.
+    let library = unsafe { libloading::Library::new(file) }.map_err(|e| load_failure(file, &e))?;
+    // SAFETY: the symbol's type is fixed by the ABI; a library exporting the name with
+    // another type breaks the ABI contract, which no check can detect.
+    let entry: EntryFn = unsafe { library.get::<EntryFn>(abi::ENTRY_SYMBOL.as_bytes()) }
+        .map(|symbol| *symbol)
+        .map_err(|_| format!("no entry symbol `{}`: not a mobilis plugin", abi::ENTRY_SYMBOL))?;
+    // Never unload: see the module documentation.
+    std::mem::forget(library);
+
+    // SAFETY: calling the entry function is the ABI's first step; it returns a pointer to
+    // a static descriptor or NULL. Only the two leading fields are read before the
+    // version check, and those keep their place in every ABI version.
+    let descriptor_pointer =
+        catch_unwind(|| unsafe { entry() }).map_err(|_| "the entry function panicked".to_owned())?;
+    if descriptor_pointer.is_null() {
+        return Err("the entry function returned no descriptor".into());
+    }
+    let descriptor: &'static PluginDescriptor = unsafe { &*descriptor_pointer };
+    if descriptor.abi_major != abi::ABI_MAJOR {
+        return Err(format!(
+            "built for plugin ABI {}.{}, this daemon speaks ABI {}.{}; rebuild the plugin against this version",
+            descriptor.abi_major,
+            descriptor.abi_minor,
+            abi::ABI_MAJOR,
+            abi::ABI_MINOR
+        ));
+    }
+    let name = static_str(descriptor.plugin_name).ok_or("the plugin name is not valid UTF-8")?;
+    let version = static_str(descriptor.plugin_version).ok_or("the plugin version is not valid UTF-8")?;
+    let declaration = describe(descriptor)?;
+    Ok(OpenedLibrary {
+        identity: PluginIdentity {
+            name: name.to_owned(),
+            version: version.to_owned(),
+            abi_minor: descriptor.abi_minor,
+        },
+        declaration,
+        descriptor,
+    })
+}
+
 impl PluginHost {
-    /// Loads every shared library of `dir` whose file name passes `accept`; each refusal
-    /// is recorded, none stops the others.
+    /// Loads every shared library of `dir` whose file name passes `accept` into this process
+    /// (the daemon's own plugins); each refusal is recorded, none stops the others.
     pub fn load_dir(&mut self, dir: &Path, accept: impl Fn(&str) -> bool) {
-        let mut files: Vec<PathBuf> = match std::fs::read_dir(dir) {
-            Ok(entries) => entries.filter_map(|e| e.ok().map(|e| e.path())).collect(),
-            Err(error) => {
-                self.refused.push(RefusedPlugin {
-                    file: dir.to_owned(),
-                    reason: format!("cannot read the plugin directory: {error}"),
-                });
-                return;
-            }
+        let files = match library_files(dir, accept) {
+            Ok(files) => files,
+            Err(refusal) => return self.refused.push(refusal),
         };
-        files.sort();
         for file in files {
-            let name = file.file_name().and_then(|n| n.to_str()).unwrap_or("");
-            if is_shared_library(&file) && accept(name) {
-                if let Err(reason) = self.load(&file) {
-                    tracing::warn!(file = %file.display(), %reason, "plugin refused");
-                    self.refused.push(RefusedPlugin { file, reason });
-                }
+            if let Err(reason) = self.load(&file) {
+                tracing::warn!(file = %file.display(), %reason, "plugin refused");
+                self.refused.push(RefusedPlugin { file, reason });
             }
         }
     }
 
-    /// Loads one library. On error nothing of it is registered (the library itself may
-    /// stay mapped: unloading is never safe once its code ran).
+    /// Loads one library into this process. On error nothing of it is registered (the
+    /// library itself may stay mapped: unloading is never safe once its code ran).
     pub fn load(&mut self, file: &Path) -> Result<(), String> {
-        // SAFETY: loading a library runs its initialisers. Plugins are trusted code chosen by
-        // whoever starts the daemon (--plugin-dir); this is the one place that trust is taken.
-        let library = unsafe { libloading::Library::new(file) }.map_err(|e| load_failure(file, &e))?;
-        // SAFETY: the symbol's type is fixed by the ABI; a library exporting the name with
-        // another type breaks the ABI contract, which no check can detect.
-        let entry: EntryFn = unsafe { library.get::<EntryFn>(abi::ENTRY_SYMBOL.as_bytes()) }
-            .map(|symbol| *symbol)
-            .map_err(|_| format!("no entry symbol `{}`: not a mobilis plugin", abi::ENTRY_SYMBOL))?;
-        // Never unload: see the module documentation.
-        std::mem::forget(library);
+        let opened = open_in_process(file)?;
+        let descriptor = opened.descriptor;
+        self.register(
+            file,
+            opened.identity,
+            opened.declaration,
+            Backend::InProcess(descriptor),
+        )
+    }
 
-        // SAFETY: calling the entry function is the ABI's first step; it returns a pointer to
-        // a static descriptor or NULL. Only the two leading fields are read before the
-        // version check, and those keep their place in every ABI version.
-        let descriptor_pointer =
-            catch_unwind(|| unsafe { entry() }).map_err(|_| "the entry function panicked".to_owned())?;
-        if descriptor_pointer.is_null() {
-            return Err("the entry function returned no descriptor".into());
+    /// Loads one library into this process after a short-lived worker process has loaded
+    /// it first, so that a library whose initialisers crash is refused instead of taking
+    /// the daemon down. Without a worker program (see [`PluginHost::with_workers`]) this
+    /// is [`PluginHost::load`].
+    pub fn load_probed(&mut self, file: &Path) -> Result<(), String> {
+        if let Some(settings) = &self.workers {
+            crate::plugin_supervisor::probe(settings, file)?;
         }
-        let descriptor: &'static PluginDescriptor = unsafe { &*descriptor_pointer };
-        if descriptor.abi_major != abi::ABI_MAJOR {
-            return Err(format!(
-                "built for plugin ABI {}.{}, this daemon speaks ABI {}.{}; rebuild the plugin against this version",
-                descriptor.abi_major,
-                descriptor.abi_minor,
-                abi::ABI_MAJOR,
-                abi::ABI_MINOR
-            ));
-        }
-        let name = static_str(descriptor.plugin_name).ok_or("the plugin name is not valid UTF-8")?;
-        let version = static_str(descriptor.plugin_version).ok_or("the plugin version is not valid UTF-8")?;
+        self.load(file)
+    }
 
-        let declaration = describe(descriptor)?;
+    /// Registers one library served by supervised worker processes: it is never mapped into
+    /// this process. Needs a worker program (see [`PluginHost::with_workers`]).
+    pub fn load_isolated(&mut self, file: &Path) -> Result<(), String> {
+        let settings = self
+            .workers
+            .clone()
+            .ok_or("isolated plugins need the daemon's worker program, and none is set")?;
+        let (pool, identity, declaration) = crate::plugin_supervisor::WorkerPool::start(settings, file)?;
+        self.register(file, identity, declaration, Backend::Isolated(Box::new(pool)))
+    }
+
+    /// Loads every shared library of `dir` whose file name passes `accept`, in `isolation`;
+    /// each refusal is recorded, none stops the others. An in-process library from a
+    /// directory other than the daemon's own is probed in a worker first.
+    pub fn load_dir_as(&mut self, dir: &Path, isolation: Isolation, accept: impl Fn(&str) -> bool) {
+        let files = match library_files(dir, accept) {
+            Ok(files) => files,
+            Err(refusal) => return self.refused.push(refusal),
+        };
+        for file in files {
+            let loaded = match isolation {
+                Isolation::InProcess => self.load_probed(&file),
+                Isolation::Isolated => self.load_isolated(&file),
+            };
+            if let Err(reason) = loaded {
+                tracing::warn!(file = %file.display(), %reason, "plugin refused");
+                self.refused.push(RefusedPlugin { file, reason });
+            }
+        }
+    }
+
+    /// Sets how isolated plugins run: the program started as a worker and the deadline of
+    /// each call.
+    pub fn with_workers(mut self, settings: WorkerSettings) -> Self {
+        self.workers = Some(settings);
+        self
+    }
+
+    fn register(
+        &mut self,
+        file: &Path,
+        identity: PluginIdentity,
+        declaration: PluginDeclaration,
+        backend: Backend,
+    ) -> Result<(), String> {
         let mut seen = std::collections::BTreeSet::new();
         for analysis in &declaration.analyses {
             if let Some(existing) = self.analyses.get(&analysis.name) {
@@ -267,15 +409,27 @@ impl PluginHost {
                 },
             );
         }
-        tracing::info!(plugin = name, version, file = %file.display(), analyses = ?analyses, "plugin loaded");
+        let isolation = match backend {
+            Backend::InProcess(_) => Isolation::InProcess,
+            Backend::Isolated(_) => Isolation::Isolated,
+        };
+        tracing::info!(
+            plugin = identity.name,
+            version = identity.version,
+            file = %file.display(),
+            isolation = isolation.as_str(),
+            analyses = ?analyses,
+            "plugin loaded"
+        );
         self.plugins.push(LoadedPlugin {
-            name: name.to_owned(),
-            version: version.to_owned(),
-            abi_minor: descriptor.abi_minor,
+            name: identity.name,
+            version: identity.version,
+            abi_minor: identity.abi_minor,
             file: file.to_owned(),
             features: declaration.features,
             analyses,
-            descriptor,
+            isolation,
+            backend,
         });
         Ok(())
     }
@@ -299,102 +453,113 @@ impl PluginHost {
         let plugin = self
             .plugin_of(analysis)
             .ok_or_else(|| failure(abi::STATUS_UNKNOWN_ANALYSIS, format!("no analysis `{analysis}`")))?;
-        let descriptor = plugin.descriptor;
-
-        let analysis_c =
-            CString::new(analysis).map_err(|_| failure(abi::STATUS_INVALID_INPUT, "NUL in analysis name".into()))?;
-        let params_c = CString::new(params.to_string())
-            .map_err(|_| failure(abi::STATUS_INVALID_INPUT, "NUL in parameters".into()))?;
-        let mut roles = Vec::with_capacity(inputs.len());
-        let mut exported = Vec::with_capacity(inputs.len());
-        for (role, frame) in inputs {
-            roles.push(
-                CString::new(role.as_str()).map_err(|_| failure(abi::STATUS_INVALID_INPUT, "NUL in role".into()))?,
-            );
-            let (schema, array) = table_ffi::export_frame(frame)
-                .map_err(|error| failure(abi::STATUS_INVALID_INPUT, format!("input `{role}`: {error}")))?;
-            exported.push((Box::new(schema), Box::new(array)));
+        match &plugin.backend {
+            Backend::InProcess(descriptor) => invoke_descriptor(descriptor, analysis, params, inputs, control),
+            Backend::Isolated(pool) => pool.invoke(analysis, params, inputs, control),
         }
-        let tables: Vec<InputTable> = roles
-            .iter()
-            .zip(exported.iter_mut())
-            .map(|(role, (schema, array))| InputTable {
-                role: role.as_ptr(),
-                schema: &mut **schema,
-                array: &mut **array,
-            })
-            .collect();
-        let context = HostContext {
-            host_data: Arc::as_ptr(control) as *mut c_void,
-            report_progress: Some(report_progress),
-            is_cancelled: Some(is_cancelled),
-        };
-        let mut output = InvokeOutput::empty();
-
-        // SAFETY: every pointer is valid for the call: the C strings, the input tables (owned
-        // by `exported`, which outlives the call), the context (whose host_data points into
-        // `control`, kept alive by the caller's Arc) and the zero-initialised output.
-        // catch_unwind guards against a plugin that breaks the no-unwind rule of the ABI.
-        let status = catch_unwind(AssertUnwindSafe(|| unsafe {
-            (descriptor.invoke)(
-                analysis_c.as_ptr(),
-                params_c.as_ptr(),
-                tables.as_ptr(),
-                tables.len(),
-                &context,
-                &mut output,
-            )
-        }))
-        .map_err(|_| failure(abi::STATUS_PANIC, "the plugin unwound across the ABI".into()))?;
-        // Inputs the plugin did not take over are released here, when `exported` drops.
-        drop(tables);
-        drop(exported);
-
-        let result_json = take_plugin_string(descriptor, &mut output.result_json);
-        let error_message = take_plugin_string(descriptor, &mut output.error_message);
-        if status != abi::STATUS_OK {
-            // A failed call leaves the output empty or, if the plugin wrote one anyway, its
-            // release callbacks free it when `output` drops.
-            let message =
-                error_message.unwrap_or_else(|| format!("the plugin failed with status {status} and no message"));
-            return Err(failure(status, message));
-        }
-        let array = std::mem::replace(&mut output.array, polars_arrow::ffi::ArrowArray::empty());
-        let schema = std::mem::replace(&mut output.schema, polars_arrow::ffi::ArrowSchema::empty());
-        if schema.is_null() {
-            return Err(failure(
-                abi::STATUS_PANIC,
-                "the plugin reported success but wrote no output table".into(),
-            ));
-        }
-        // SAFETY: the plugin wrote a schema and array per the ABI; its library stays loaded.
-        // Importing foreign structures may hit assertions inside the Arrow reader on
-        // malformed input: contain that as a plugin failure.
-        let table = catch_unwind(AssertUnwindSafe(|| unsafe { table_ffi::import_frame(&schema, array) }))
-            .map_err(|_| failure(abi::STATUS_PANIC, "the plugin's output table is malformed".into()))?
-            .map_err(|error| {
-                failure(
-                    abi::STATUS_PANIC,
-                    format!("the plugin's output table is unusable: {error}"),
-                )
-            })?;
-        let result: serde_json::Value = match result_json {
-            Some(text) => serde_json::from_str(&text)
-                .map_err(|error| failure(abi::STATUS_PANIC, format!("the plugin's result is not JSON: {error}")))?,
-            None => serde_json::json!({}),
-        };
-        let summary = result.get("summary").cloned().unwrap_or_else(|| serde_json::json!({}));
-        let warnings = result
-            .get("warnings")
-            .and_then(|w| w.as_array())
-            .map(|list| list.iter().filter_map(|w| w.as_str().map(str::to_owned)).collect())
-            .unwrap_or_default();
-        Ok(InvokeSuccess {
-            table,
-            summary,
-            warnings,
-        })
     }
+}
+
+/// Calls an analysis of a library loaded in this process. Blocking.
+pub fn invoke_descriptor(
+    descriptor: &PluginDescriptor,
+    analysis: &str,
+    params: &serde_json::Value,
+    inputs: &[(String, DataFrame)],
+    control: &Arc<CallControl>,
+) -> Result<InvokeSuccess, InvokeFailure> {
+    let failure = |status: i32, message: String| InvokeFailure { status, message };
+
+    let analysis_c =
+        CString::new(analysis).map_err(|_| failure(abi::STATUS_INVALID_INPUT, "NUL in analysis name".into()))?;
+    let params_c =
+        CString::new(params.to_string()).map_err(|_| failure(abi::STATUS_INVALID_INPUT, "NUL in parameters".into()))?;
+    let mut roles = Vec::with_capacity(inputs.len());
+    let mut exported = Vec::with_capacity(inputs.len());
+    for (role, frame) in inputs {
+        roles.push(CString::new(role.as_str()).map_err(|_| failure(abi::STATUS_INVALID_INPUT, "NUL in role".into()))?);
+        let (schema, array) = table_ffi::export_frame(frame)
+            .map_err(|error| failure(abi::STATUS_INVALID_INPUT, format!("input `{role}`: {error}")))?;
+        exported.push((Box::new(schema), Box::new(array)));
+    }
+    let tables: Vec<InputTable> = roles
+        .iter()
+        .zip(exported.iter_mut())
+        .map(|(role, (schema, array))| InputTable {
+            role: role.as_ptr(),
+            schema: &mut **schema,
+            array: &mut **array,
+        })
+        .collect();
+    let context = HostContext {
+        host_data: Arc::as_ptr(control) as *mut c_void,
+        report_progress: Some(report_progress),
+        is_cancelled: Some(is_cancelled),
+    };
+    let mut output = InvokeOutput::empty();
+
+    // SAFETY: every pointer is valid for the call: the C strings, the input tables (owned
+    // by `exported`, which outlives the call), the context (whose host_data points into
+    // `control`, kept alive by the caller's Arc) and the zero-initialised output.
+    // catch_unwind guards against a plugin that breaks the no-unwind rule of the ABI.
+    let status = catch_unwind(AssertUnwindSafe(|| unsafe {
+        (descriptor.invoke)(
+            analysis_c.as_ptr(),
+            params_c.as_ptr(),
+            tables.as_ptr(),
+            tables.len(),
+            &context,
+            &mut output,
+        )
+    }))
+    .map_err(|_| failure(abi::STATUS_PANIC, "the plugin unwound across the ABI".into()))?;
+    // Inputs the plugin did not take over are released here, when `exported` drops.
+    drop(tables);
+    drop(exported);
+
+    let result_json = take_plugin_string(descriptor, &mut output.result_json);
+    let error_message = take_plugin_string(descriptor, &mut output.error_message);
+    if status != abi::STATUS_OK {
+        // A failed call leaves the output empty or, if the plugin wrote one anyway, its
+        // release callbacks free it when `output` drops.
+        let message = error_message.unwrap_or_else(|| format!("the plugin failed with status {status} and no message"));
+        return Err(failure(status, message));
+    }
+    let array = std::mem::replace(&mut output.array, polars_arrow::ffi::ArrowArray::empty());
+    let schema = std::mem::replace(&mut output.schema, polars_arrow::ffi::ArrowSchema::empty());
+    if schema.is_null() {
+        return Err(failure(
+            abi::STATUS_PANIC,
+            "the plugin reported success but wrote no output table".into(),
+        ));
+    }
+    // SAFETY: the plugin wrote a schema and array per the ABI; its library stays loaded.
+    // Importing foreign structures may hit assertions inside the Arrow reader on
+    // malformed input: contain that as a plugin failure.
+    let table = catch_unwind(AssertUnwindSafe(|| unsafe { table_ffi::import_frame(&schema, array) }))
+        .map_err(|_| failure(abi::STATUS_PANIC, "the plugin's output table is malformed".into()))?
+        .map_err(|error| {
+            failure(
+                abi::STATUS_PANIC,
+                format!("the plugin's output table is unusable: {error}"),
+            )
+        })?;
+    let result: serde_json::Value = match result_json {
+        Some(text) => serde_json::from_str(&text)
+            .map_err(|error| failure(abi::STATUS_PANIC, format!("the plugin's result is not JSON: {error}")))?,
+        None => serde_json::json!({}),
+    };
+    let summary = result.get("summary").cloned().unwrap_or_else(|| serde_json::json!({}));
+    let warnings = result
+        .get("warnings")
+        .and_then(|w| w.as_array())
+        .map(|list| list.iter().filter_map(|w| w.as_str().map(str::to_owned)).collect())
+        .unwrap_or_default();
+    Ok(InvokeSuccess {
+        table,
+        summary,
+        warnings,
+    })
 }
 
 fn static_str(pointer: *const c_char) -> Option<&'static str> {

@@ -418,7 +418,7 @@ impl Service {
             "abi": { "major": abi::ABI_MAJOR, "minor": abi::ABI_MINOR },
             "workspace": self.workspace.display().to_string(),
             "data_roots": self.roots.roots().iter().map(|r| r.display().to_string()).collect::<Vec<_>>(),
-            "plugins": self.host.plugins.iter().map(|p| json!({"name": p.name, "version": p.version})).collect::<Vec<_>>(),
+            "plugins": self.host.plugins.iter().map(|p| json!({"name": p.name, "version": p.version, "isolation": p.isolation.as_str()})).collect::<Vec<_>>(),
             "refused_plugins": self.host.refused.iter().map(|r| json!({"file": r.file.display().to_string(), "reason": r.reason})).collect::<Vec<_>>(),
             "damaged_files": self.store.damaged(),
             "memory": {
@@ -441,6 +441,7 @@ impl Service {
                         "library": p.file.display().to_string(),
                         "features": p.features,
                         "analyses": p.analyses,
+                        "isolation": p.isolation.as_str(),
                     })
                 })
                 .collect(),

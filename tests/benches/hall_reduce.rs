@@ -34,6 +34,11 @@
 //!   back to string views on import (see `mobilis_core::abi`), so the difference between
 //!   (b) and (b') is what the text column costs.
 //!
+//! - (a-iso) and (b-iso): (a) and (b) with the plugins isolated, as the daemon runs a
+//!   `--plugin-dir` library: the call goes to a worker process (`mobilisd --plugin-worker`,
+//!   the release binary), inputs and output cross its pipes as Arrow IPC. The difference to
+//!   (a) and (b) is the cost of isolation.
+//!
 //! Peak RSS is the process's high-water mark (`VmHWM` of `/proc/self/status`; Linux only),
 //! read after the dataset is built and at the end, so that the second figure shows what the
 //! calls added on top of the data.
@@ -49,7 +54,8 @@ use mobilis_core::forward::statistics::{BandModel, Dopants};
 use mobilis_core::forward::transport::{n_type_transport, MobilityModel};
 use mobilis_core::noise::Rng;
 use mobilis_core::table_ffi;
-use mobilis_rpc::plugin_host::CallControl;
+use mobilis_rpc::plugin_host::{CallControl, PluginHost};
+use mobilis_rpc::plugin_supervisor::WorkerSettings;
 use mobilis_tests::bench::{self, format_kib, format_seconds, peak_rss_kib, Timing};
 use polars::prelude::*;
 use std::sync::Arc;
@@ -115,6 +121,21 @@ fn main() {
 
     let release = bench::build_release_plugins(BENCH, &["mobilis-plugin-hall", "mobilis-test-fixture"]);
     let host = bench::load_plugins(BENCH, &release, &["mobilis_hall", "test_fixture_plugin"]);
+    let worker_program = release.join(format!("mobilisd{}", std::env::consts::EXE_SUFFIX));
+    let mut isolated_host = PluginHost::default().with_workers(WorkerSettings::new(
+        worker_program,
+        std::time::Duration::from_secs(3600),
+    ));
+    for lib_name in ["mobilis_hall", "test_fixture_plugin"] {
+        let file = release.join(format!(
+            "{}{lib_name}{}",
+            std::env::consts::DLL_PREFIX,
+            std::env::consts::DLL_SUFFIX
+        ));
+        if let Err(reason) = isolated_host.load_isolated(&file) {
+            fail(&format!("cannot load {} isolated: {reason}", file.display()));
+        }
+    }
 
     let started = Instant::now();
     let (readings, sheet) = generate();
@@ -132,7 +153,7 @@ fn main() {
         .drop("sample")
         .unwrap_or_else(|error| fail(&format!("cannot drop the sample column: {error}")));
 
-    let invoke = |analysis: &str, inputs: &[(String, DataFrame)]| {
+    let invoke_in = |host: &PluginHost, analysis: &str, inputs: &[(String, DataFrame)]| {
         host.invoke(analysis, &no_params, inputs, &control)
             .unwrap_or_else(|failure| {
                 fail(&format!(
@@ -141,6 +162,8 @@ fn main() {
                 ))
             })
     };
+    let invoke = |analysis: &str, inputs: &[(String, DataFrame)]| invoke_in(&host, analysis, inputs);
+    let invoke_isolated = |analysis: &str, inputs: &[(String, DataFrame)]| invoke_in(&isolated_host, analysis, inputs);
 
     // Checked once, untimed: a figure for a call that returned the wrong thing means nothing.
     let reduced = invoke("hall.reduce", &reduce_inputs);
@@ -155,6 +178,11 @@ fn main() {
         fail("fixture.identity did not return its input table unchanged");
     }
     drop(echoed);
+    let isolated_reduced = invoke_isolated("hall.reduce", &reduce_inputs);
+    if isolated_reduced.table.height() != output_rows {
+        fail("hall.reduce in a worker returned another number of rows than in process");
+    }
+    drop(isolated_reduced);
     println!("hall.reduce: {output_rows} output rows, {flagged_rows} of them flagged {flag_counts}");
 
     let reduce = bench::measure(WARM_UP, REDUCE_REPETITIONS, || invoke("hall.reduce", &reduce_inputs));
@@ -163,6 +191,12 @@ fn main() {
     });
     let identity_numeric = bench::measure(WARM_UP, BOUNDARY_REPETITIONS, || {
         invoke("fixture.identity", &numeric_inputs)
+    });
+    let reduce_isolated = bench::measure(WARM_UP, REDUCE_REPETITIONS, || {
+        invoke_isolated("hall.reduce", &reduce_inputs)
+    });
+    let identity_isolated = bench::measure(WARM_UP, BOUNDARY_REPETITIONS, || {
+        invoke_isolated("fixture.identity", &identity_inputs)
     });
     let in_process = bench::measure(WARM_UP, BOUNDARY_REPETITIONS, || round_trip(&readings));
     let in_process_numeric = bench::measure(WARM_UP, BOUNDARY_REPETITIONS, || round_trip(&numeric));
@@ -183,7 +217,9 @@ fn main() {
         );
     };
     line("(a)  hall.reduce via PluginHost::invoke", &reduce);
+    line("(a-iso) hall.reduce in an isolated worker", &reduce_isolated);
     line("(b)  fixture.identity via PluginHost::invoke", &identity);
+    line("(b-iso) fixture.identity in an isolated worker", &identity_isolated);
     line("(b') fixture.identity, without the sample column", &identity_numeric);
     line("(c)  export_frame + import_frame in-process", &in_process);
     line(
@@ -191,9 +227,19 @@ fn main() {
         &in_process_numeric,
     );
     println!(
-        "timed calls: {REDUCE_REPETITIONS} for (a), {BOUNDARY_REPETITIONS} for the others, each after {WARM_UP} warm-up; {} columns, {} numeric",
+        "timed calls: {REDUCE_REPETITIONS} for (a) and (a-iso), {BOUNDARY_REPETITIONS} for the others, each after {WARM_UP} warm-up; {} columns, {} numeric",
         readings.width(),
         numeric.width()
+    );
+    let signed = |seconds: f64| {
+        let sign = if seconds < 0.0 { "-" } else { "+" };
+        format!("{sign}{}", format_seconds(seconds.abs()))
+    };
+    println!(
+        "cost of isolation (median, isolated minus in process): hall.reduce {} per call ({:+.1} %), the boundary both ways {}",
+        signed(reduce_isolated.median_s - reduce.median_s),
+        100.0 * (reduce_isolated.median_s / reduce.median_s - 1.0),
+        signed(identity_isolated.median_s - identity.median_s)
     );
     println!(
         "peak RSS (VmHWM): {} after generating the dataset, {} at the end",

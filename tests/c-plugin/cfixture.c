@@ -12,6 +12,11 @@
  *   FIXTURE_PLUGIN_NAME=id  another plugin name, same analysis (a duplicate to be refused)
  *   FIXTURE_NO_ENTRY        export the descriptor under a misspelled symbol, as a plugin with
  *                           a typo would, so the library has no entry symbol
+ *   FIXTURE_FAULT=N         misbehave when the `values` table has exactly FIXTURE_FAULT_ROWS (13)
+ *                           rows, and sum every other table as usual: 1 dereferences NULL
+ *                           (SIGSEGV), 2 calls exit(3), 3 spins for ever without looking at
+ *                           the cancel flag; the plugin-isolation tests use these
+ *   FIXTURE_ABORT_ON_LOAD   call abort() from a library constructor, before any entry point
  */
 #include "mobilis_plugin.h"
 
@@ -44,6 +49,17 @@
 #define FIXTURE_EXPORT __declspec(dllexport)
 #else
 #define FIXTURE_EXPORT __attribute__((visibility("default")))
+#endif
+
+#ifndef FIXTURE_FAULT
+#define FIXTURE_FAULT 0
+#endif
+#define FIXTURE_FAULT_ROWS 13
+
+#ifdef FIXTURE_ABORT_ON_LOAD
+/* Runs when the loader maps the library (a GCC and Clang extension), as a broken static
+ * initialiser of a real plugin would. */
+__attribute__((constructor)) static void abort_on_load(void) { abort(); }
 #endif
 
 #define SUM_ANALYSIS "cfixture.sum"
@@ -350,6 +366,21 @@ static int32_t sum_values(const MobilisInputTable *input, const MobilisHostConte
   return MOBILIS_STATUS_OK;
 }
 
+/* The faults of FIXTURE_FAULT. volatile keeps the compiler from reasoning them away. */
+static void misbehave(void) {
+  if (FIXTURE_FAULT == 1) {
+    volatile int *nowhere = NULL;
+    *nowhere = 1;
+  } else if (FIXTURE_FAULT == 2) {
+    exit(3);
+  } else if (FIXTURE_FAULT == 3) {
+    volatile unsigned long turns = 0;
+    for (;;) {
+      turns++;
+    }
+  }
+}
+
 static int32_t invoke(const char *analysis, const char *params_json, const MobilisInputTable *inputs,
                       size_t input_count, const MobilisHostContext *context, MobilisInvokeOutput *output) {
   /* The host validated the parameters against the declared schema, which allows none. */
@@ -364,6 +395,9 @@ static int32_t invoke(const char *analysis, const char *params_json, const Mobil
   }
   for (size_t index = 0; index < input_count; index++) {
     if (inputs[index].role != NULL && strcmp(inputs[index].role, VALUES_ROLE) == 0) {
+      if (FIXTURE_FAULT != 0 && inputs[index].array != NULL && inputs[index].array->length == FIXTURE_FAULT_ROWS) {
+        misbehave();
+      }
       return sum_values(&inputs[index], context, output);
     }
   }

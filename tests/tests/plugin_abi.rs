@@ -1,8 +1,9 @@
 //! The plugin boundary, end to end: a plugin written in C and built here with the system C
 //! compiler, the refusal of unusable libraries, and the Rust fixture plugin
 //! (`tests/fixture-plugin`) for panics, parameter validation, cancellation and missing
-//! columns. Each test runs its own `mobilisd`, with `--plugin-dir` pointing at a directory
-//! that holds exactly the libraries the test is about; two tests differ: one checks the
+//! columns. Each test runs its own `mobilisd`, with a plugin directory that holds exactly
+//! the libraries the test is about, twice: once as `--trusted-plugin-dir` (in process) and
+//! once as `--plugin-dir` (isolated in worker processes); two tests differ: one checks the
 //! daemon's default plugin scan, and one calls the C plugin in process through the host's
 //! loader, with tables a daemon would never send.
 //!
@@ -93,10 +94,42 @@ fn build_c_plugin(dir: &Path, name: &str, defines: &[(&str, Option<&str>)]) -> P
     library
 }
 
-/// A daemon loading the plugins of `dir` only.
-async fn daemon_with_plugins(dir: &Path) -> TestDaemon {
+/// Where the daemon runs the plugins of a test's directory.
+#[derive(Clone, Copy, Debug)]
+enum Mode {
+    /// `--trusted-plugin-dir`: in the daemon's process.
+    InProcess,
+    /// `--plugin-dir`: in supervised worker processes.
+    Isolated,
+}
+
+/// A daemon loading the plugins of `dir` only, in `mode`.
+async fn daemon_with_plugins(dir: &Path, mode: Mode) -> TestDaemon {
     let dir = dir.to_owned();
-    TestDaemon::start_with(move |options| options.plugin_dirs.push(dir)).await
+    TestDaemon::start_with(move |options| match mode {
+        Mode::InProcess => options
+            .extra_arguments
+            .extend(["--trusted-plugin-dir".to_owned(), dir.display().to_string()]),
+        Mode::Isolated => options.plugin_dirs.push(dir),
+    })
+    .await
+}
+
+/// Runs a test of the plugin boundary once with the plugins in process and once isolated:
+/// the ABI is the same in both, and so must be everything a client sees.
+macro_rules! in_both_modes {
+    ($($test:ident),* $(,)?) => {$(
+        mod $test {
+            #[tokio::test(flavor = "multi_thread")]
+            async fn in_process() {
+                super::$test(super::Mode::InProcess).await
+            }
+            #[tokio::test(flavor = "multi_thread")]
+            async fn isolated() {
+                super::$test(super::Mode::Isolated).await
+            }
+        }
+    )*};
 }
 
 /// The `dataset.list` answer, sorted by name, for before/after comparisons.
@@ -115,17 +148,21 @@ fn file_name_of(path: &str) -> &str {
     Path::new(path).file_name().and_then(|n| n.to_str()).unwrap_or_default()
 }
 
-#[tokio::test(flavor = "multi_thread")]
-async fn the_c_plugin_loads_and_sums_a_column_with_nulls() {
+async fn the_c_plugin_loads_and_sums_a_column_with_nulls(mode: Mode) {
     let dir = tempfile::tempdir().unwrap();
     build_c_plugin(dir.path(), "cfixture", &[]);
-    let daemon = daemon_with_plugins(dir.path()).await;
+    let daemon = daemon_with_plugins(dir.path(), mode).await;
 
     let plugins = daemon.call("plugin.list", json!({})).await;
     let plugins = plugins.as_array().unwrap();
     assert_eq!(plugins.len(), 1, "{plugins:?}");
     assert_eq!(plugins[0]["name"], "cfixture");
     assert_eq!(plugins[0]["analyses"], json!(["cfixture.sum"]));
+    let isolation = match mode {
+        Mode::InProcess => "in_process",
+        Mode::Isolated => "isolated",
+    };
+    assert_eq!(plugins[0]["isolation"], isolation, "{plugins:?}");
     assert_eq!(
         file_name_of(plugins[0]["library"].as_str().unwrap()),
         shared_library_name("cfixture")
@@ -191,8 +228,7 @@ async fn the_c_plugin_loads_and_sums_a_column_with_nulls() {
     assert_eq!(run["summary"]["total"].as_f64(), Some(6.0));
 }
 
-#[tokio::test(flavor = "multi_thread")]
-async fn unusable_libraries_are_refused_by_name_and_the_daemon_keeps_serving() {
+async fn unusable_libraries_are_refused_by_name_and_the_daemon_keeps_serving(mode: Mode) {
     let dir = tempfile::tempdir().unwrap();
     build_c_plugin(dir.path(), "cfixture", &[]);
     build_c_plugin(dir.path(), "cfixture_abi2", &[("FIXTURE_ABI_MAJOR", Some("2"))]);
@@ -204,7 +240,7 @@ async fn unusable_libraries_are_refused_by_name_and_the_daemon_keeps_serving() {
         "cfixture_copy",
         &[("FIXTURE_PLUGIN_NAME", Some("cfixture_copy"))],
     );
-    let daemon = daemon_with_plugins(dir.path()).await;
+    let daemon = daemon_with_plugins(dir.path(), mode).await;
 
     let info = daemon.call("server.info", json!({})).await;
     assert_eq!(info["plugins"].as_array().unwrap().len(), 1, "{info}");
@@ -249,10 +285,9 @@ async fn unusable_libraries_are_refused_by_name_and_the_daemon_keeps_serving() {
     assert_eq!(run["summary"]["total"].as_f64(), Some(3.0));
 }
 
-#[tokio::test(flavor = "multi_thread")]
-async fn a_panic_in_a_plugin_is_an_error_and_the_plugin_keeps_working() {
+async fn a_panic_in_a_plugin_is_an_error_and_the_plugin_keeps_working(mode: Mode) {
     let dir = fixture_plugin_dir();
-    let daemon = daemon_with_plugins(dir.path()).await;
+    let daemon = daemon_with_plugins(dir.path(), mode).await;
     daemon
         .call(
             "dataset.import",
@@ -292,10 +327,9 @@ async fn a_panic_in_a_plugin_is_an_error_and_the_plugin_keeps_working() {
     );
 }
 
-#[tokio::test(flavor = "multi_thread")]
-async fn bad_parameters_are_refused_before_the_plugin_runs() {
+async fn bad_parameters_are_refused_before_the_plugin_runs(mode: Mode) {
     let dir = fixture_plugin_dir();
-    let daemon = daemon_with_plugins(dir.path()).await;
+    let daemon = daemon_with_plugins(dir.path(), mode).await;
     daemon
         .call("dataset.import", json!({"name": "v", "columns": {"x": [1.0, 2.0]}}))
         .await;
@@ -324,10 +358,9 @@ async fn bad_parameters_are_refused_before_the_plugin_runs() {
     assert_eq!(dataset_list(&daemon).await, before, "a refused call stored nothing");
 }
 
-#[tokio::test(flavor = "multi_thread")]
-async fn a_running_analysis_is_cancelled_from_another_connection() {
+async fn a_running_analysis_is_cancelled_from_another_connection(mode: Mode) {
     let dir = fixture_plugin_dir();
-    let daemon = daemon_with_plugins(dir.path()).await;
+    let daemon = daemon_with_plugins(dir.path(), mode).await;
     let call_id = "wait-to-cancel";
 
     // The long call runs on its own connection, as a client waiting for it would.
@@ -391,10 +424,9 @@ async fn a_running_analysis_is_cancelled_from_another_connection() {
     assert_eq!(run["rows"], 1);
 }
 
-#[tokio::test(flavor = "multi_thread")]
-async fn a_missing_or_mistyped_required_column_is_named() {
+async fn a_missing_or_mistyped_required_column_is_named(mode: Mode) {
     let dir = fixture_plugin_dir();
-    let daemon = daemon_with_plugins(dir.path()).await;
+    let daemon = daemon_with_plugins(dir.path(), mode).await;
     daemon
         .call("dataset.import", json!({"name": "no_x", "columns": {"y": [1.0, 2.0]}}))
         .await;
@@ -488,10 +520,9 @@ fn the_c_plugin_refuses_unusable_tables_itself() {
     drop(success);
 }
 
-#[tokio::test(flavor = "multi_thread")]
-async fn a_pipeline_pushes_its_progress_over_websocket_step_by_step() {
+async fn a_pipeline_pushes_its_progress_over_websocket_step_by_step(mode: Mode) {
     let dir = fixture_plugin_dir();
-    let daemon = daemon_with_plugins(dir.path()).await;
+    let daemon = daemon_with_plugins(dir.path(), mode).await;
     let steps = json!([
         {"analysis": "fixture.wait", "inputs": {}, "params": {"seconds": 0.5}, "output": "first"},
         {"analysis": "fixture.wait", "inputs": {}, "params": {"seconds": 0.5}, "output": "second"}
@@ -548,3 +579,13 @@ async fn a_pipeline_pushes_its_progress_over_websocket_step_by_step() {
     assert_eq!(code, 4001, "{message}");
     assert!(message.contains("cannot carry its own call_id"), "{message}");
 }
+
+in_both_modes!(
+    the_c_plugin_loads_and_sums_a_column_with_nulls,
+    unusable_libraries_are_refused_by_name_and_the_daemon_keeps_serving,
+    a_panic_in_a_plugin_is_an_error_and_the_plugin_keeps_working,
+    bad_parameters_are_refused_before_the_plugin_runs,
+    a_running_analysis_is_cancelled_from_another_connection,
+    a_missing_or_mistyped_required_column_is_named,
+    a_pipeline_pushes_its_progress_over_websocket_step_by_step,
+);

@@ -355,9 +355,11 @@ async fn exports_replace_a_file_only_when_asked_and_never_show_half_a_file() {
     let racers = counts::rounds(8, 32);
     let calls: Vec<_> = (0..racers)
         .map(|index| {
-            let client = &daemon.client;
+            let url = daemon.daemon.url().to_owned();
             let name = if index % 2 == 0 { "src" } else { "victim" };
             async move {
+                // A connection each, so that the calls arrive together.
+                let client = Client::connect(&url, None).await.unwrap();
                 client
                     .call("dataset.export", json!({"name": name, "path": "raced.csv"}))
                     .await
@@ -386,9 +388,9 @@ async fn exports_replace_a_file_only_when_asked_and_never_show_half_a_file() {
 }
 
 /// Awaits every future (the tests crate has no futures dependency).
-async fn futures_join_all<F: std::future::Future>(futures: Vec<F>) -> Vec<F::Output>
+async fn futures_join_all<F>(futures: Vec<F>) -> Vec<F::Output>
 where
-    F: Send + 'static,
+    F: std::future::Future + Send + 'static,
     F::Output: Send + 'static,
 {
     let mut handles = Vec::new();

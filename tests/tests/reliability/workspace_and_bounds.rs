@@ -12,7 +12,7 @@
 
 use super::counts;
 use mobilis_client::{Client, ClientError};
-use mobilis_tests::{fixture_plugin_dir, TestDaemon};
+use mobilis_tests::{fixture_plugin_dir, run_cli, TestDaemon};
 use serde_json::{json, Value};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
@@ -351,6 +351,24 @@ async fn exports_replace_a_file_only_when_asked_and_never_show_half_a_file() {
     assert_eq!(reimported["rows"], 3);
     let rows = daemon.call("dataset.rows", json!({"name": "back"})).await;
     assert_eq!(rows["columns"]["who"][0], "src");
+    // The command line: refused without --overwrite, with the option named; replaced with it.
+    let cli_target = daemon.data.join("cli.csv");
+    let cli_path = cli_target.to_str().unwrap();
+    let url = daemon.daemon.url().to_owned();
+    let first = run_cli(&url, "never", &["export", "src", cli_path]);
+    let again = run_cli(&url, "never", &["export", "victim", cli_path]);
+    let forced = run_cli(&url, "never", &["export", "victim", cli_path, "--overwrite"]);
+    tried += 3;
+    if !first.success || again.success || !again.stderr.contains("--overwrite") || !forced.success {
+        eprintln!(
+            "mobilis export: first {} / again {} {} / forced {} {}",
+            first.success, again.success, again.stderr, forced.success, forced.stderr
+        );
+        failed += 1;
+    }
+    if !std::fs::read_to_string(&cli_target).unwrap().contains("victim") {
+        failed += 1;
+    }
     // Racing exports of one new name: exactly one wins, the others are refused.
     let racers = counts::rounds(8, 32);
     let calls: Vec<_> = (0..racers)

@@ -160,7 +160,16 @@ pub fn watch(control: &Arc<CallControl>) {
 /// Stores through `store` while the call is live; a stopped call stores nothing and gets
 /// the reason as its error. Outside a bounded call it just runs `store`.
 pub fn commit<T>(store: impl FnOnce() -> ServiceResult<T>) -> ServiceResult<T> {
-    let Some(bound) = current() else { return store() };
+    let _gate = committing()?;
+    store()
+}
+
+/// Holds the current call's commit gate until dropped: stores made meanwhile are the call's,
+/// and a stop asked for meanwhile waits for them. A stopped call gets the reason instead.
+pub fn committing() -> ServiceResult<CommitGate> {
+    let Some(bound) = current() else {
+        return Ok(CommitGate(None));
+    };
     {
         let mut state = bound.state();
         if let Some(stop) = state.stop {
@@ -168,18 +177,21 @@ pub fn commit<T>(store: impl FnOnce() -> ServiceResult<T>) -> ServiceResult<T> {
         }
         state.committing = true;
     }
-    struct Reopen<'a>(&'a CallBound);
-    impl Drop for Reopen<'_> {
-        fn drop(&mut self) {
-            let mut state = self.0.state();
-            state.committing = false;
-            if let Some(stop) = state.pending.take() {
-                state.apply(stop);
-            }
+    Ok(CommitGate(Some(bound)))
+}
+
+/// See [`committing`].
+pub struct CommitGate(Option<Arc<CallBound>>);
+
+impl Drop for CommitGate {
+    fn drop(&mut self) {
+        let Some(bound) = &self.0 else { return };
+        let mut state = bound.state();
+        state.committing = false;
+        if let Some(stop) = state.pending.take() {
+            state.apply(stop);
         }
     }
-    let _reopen = Reopen(&bound);
-    store()
 }
 
 /// Owns a call on behalf of its request; dropped before the call finished (the client

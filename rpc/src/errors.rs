@@ -128,12 +128,8 @@ impl ErrorKind {
             ErrorKind::NumericalFailure => "the computation failed on valid input",
             ErrorKind::Cancelled => "the client cancelled the request",
             ErrorKind::StorageFailure => "the workspace could not be written",
-            ErrorKind::ResourceLimit => {
-                "the request asks for more than the daemon allows; the message names the limit and what to change"
-            }
-            ErrorKind::DeadlineExceeded => {
-                "the call ran past its deadline and was stopped; pass a longer deadline_s or narrow the work"
-            }
+            ErrorKind::ResourceLimit => "the request asks for more than the daemon allows; the message names the limit and what to change",
+            ErrorKind::DeadlineExceeded => "the call ran past its deadline and was stopped; pass a longer deadline_s or narrow the work",
         }
     }
 }

@@ -837,24 +837,23 @@ impl Service {
         };
         // One commit for the output and its summary: a call stopped by its deadline or its
         // client stores neither.
-        crate::bounded_calls::commit(|| {
-            let stored = self
-                .store
-                .insert(&run.output, table, provenance(false), run.overwrite)?;
-            let mut answer = json!({
-                "output": run.output,
-                "rows": stored.frame.height(),
-                "columns": stored.manifest.columns,
-                "summary": summary,
-                "warnings": warnings,
-            });
-            if let (Some(name), Some(frame)) = (&run.summary_output, summary_frame) {
-                let stored = self.store.insert(name, frame, provenance(true), run.overwrite)?;
-                answer["summary_output"] = json!(name);
-                answer["summary_rows"] = json!(stored.frame.height());
-            }
-            Ok(answer)
-        })
+        let _commit = crate::bounded_calls::committing()?;
+        let stored = self
+            .store
+            .insert(&run.output, table, provenance(false), run.overwrite)?;
+        let mut answer = json!({
+            "output": run.output,
+            "rows": stored.frame.height(),
+            "columns": stored.manifest.columns,
+            "summary": summary,
+            "warnings": warnings,
+        });
+        if let (Some(name), Some(frame)) = (&run.summary_output, summary_frame) {
+            let stored = self.store.insert(name, frame, provenance(true), run.overwrite)?;
+            answer["summary_output"] = json!(name);
+            answer["summary_rows"] = json!(stored.frame.height());
+        }
+        Ok(answer)
     }
 
     #[allow(clippy::type_complexity)]

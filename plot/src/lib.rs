@@ -26,6 +26,7 @@ use polars::prelude::DataFrame;
 use serde::{Deserialize, Deserializer};
 
 pub use figure::Figure;
+pub use recipes::MAX_SERIES;
 
 /// What to draw. Every field is optional, so that the JSON-RPC layer can take it from the
 /// request parameters as they are.
@@ -116,6 +117,10 @@ pub enum PlotError {
     BadOption(String),
     #[error("{0}")]
     Unusable(String),
+    /// More than the daemon draws in one figure (series, points); the message names the
+    /// filter to use.
+    #[error("{0}")]
+    TooLarge(String),
 }
 
 static KINDS: std::sync::OnceLock<Vec<KindInfo>> = std::sync::OnceLock::new();

@@ -121,7 +121,7 @@ impl ErrorKind {
             ErrorKind::UnknownAnalysis => "no analysis of that name; see analysis.list",
             ErrorKind::ColumnProblem => "an input table lacks a required column or has it with an unusable type",
             ErrorKind::DatasetExists => "the output name is taken; choose another or pass overwrite: true",
-            ErrorKind::PathRefused => "the path lies outside the daemon's data roots",
+            ErrorKind::PathRefused => "the path lies outside the daemon's data roots, or in its workspace",
             ErrorKind::InvalidData => "the data are unusable for the analysis",
             ErrorKind::FileProblem => "a file could not be read or written",
             ErrorKind::PluginFailure => "the plugin failed internally",

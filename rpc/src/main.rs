@@ -39,7 +39,7 @@ struct Arguments {
     /// Serve JSON-RPC on stdin/stdout with Content-Length framing instead of the network.
     #[arg(long)]
     stdio: bool,
-    /// A directory path imports and exports may use (repeatable), besides the start directory and the workspace.
+    /// A directory path imports and exports may use (repeatable), besides the start directory. The workspace is never one.
     #[arg(long = "data-root")]
     data_roots: Vec<PathBuf>,
     /// A web origin allowed to call (repeatable), for example http://localhost:3000.
@@ -122,7 +122,8 @@ fn main() -> anyhow::Result<()> {
     }
 
     let start_directory = std::env::current_dir()?;
-    let mut roots = vec![start_directory, workspace.clone()];
+    // The workspace is not a data root: no import or export may touch the daemon's files.
+    let mut roots = vec![start_directory];
     roots.extend(arguments.data_roots.iter().cloned());
     let service = Arc::new(Service::new(store, host, DataRoots::new(roots), workspace));
     let module = mobilis_rpc::methods::module(service);

@@ -4,6 +4,7 @@
 //! jsonrpsee. CPU- and file-bound methods are registered as blocking methods so that they
 //! run off the async runtime and a long analysis never stalls other clients.
 
+use crate::bounded_calls;
 use crate::errors::ServiceError;
 use crate::openrpc;
 use crate::service::{ExportParams, ImportParams, PipelineParams, RowsParams, RunParams, Service};
@@ -41,6 +42,10 @@ fn params_schema(method: &str) -> Option<Value> {
         if method == "pipeline.run" && *name == "steps" {
             // Each step is an analysis.run parameter object.
             schema["items"] = params_schema("analysis.run").expect("analysis.run is documented");
+            // The deadline is the whole pipeline's.
+            if let Some(step) = schema["items"]["properties"].as_object_mut() {
+                step.remove("deadline_s");
+            }
         }
         properties.insert((*name).to_owned(), schema);
         if *is_required {
@@ -261,10 +266,14 @@ pub fn module(service: Arc<Service>) -> RpcModule<Service> {
                     blocking: bool,
                     f: fn(&Params, &Service) -> Result<Value, ErrorObjectOwned>| {
         let result = if blocking {
+            // Bounded: a deadline, and stopped when the client goes away (see bounded_calls).
             module
-                .register_blocking_method(name, move |params, service, _| {
+                .register_async_method(name, move |params, service, _| async move {
                     check_params(name, &params)?;
-                    f(&params, &service)
+                    let (deadline, params) = bounded_calls::take_deadline(name, params)?;
+                    bounded_calls::CallScope::new(name, deadline)
+                        .run(move || f(&params, &service))
+                        .await
                 })
                 .map(|_| ())
         } else {

@@ -26,6 +26,7 @@ const UNITS: &str = r#"{"type": "object", "additionalProperties": {"anyOf": [{"t
 const RENAME: &str = r#"{"type": "object", "additionalProperties": {"type": "string"}}"#;
 const CSV_DIALECT: &str = r#"{"type": "object", "additionalProperties": false, "properties": {"separator": {"type": "string", "default": ",", "description": "one character, or \"tab\""}, "decimal_comma": {"type": "boolean", "default": false}, "comment_prefix": {"type": "string"}, "skip_rows": {"type": "integer", "minimum": 0, "default": 0, "description": "lines to skip before the header"}, "header": {"type": "boolean", "default": true, "description": "without a header the columns are column_1, column_2, ..."}}}"#;
 const DATASET_SUMMARY: &str = r#"{"type": "object", "required": ["name", "rows", "columns"], "properties": {"name": {"type": "string"}, "rows": {"type": "integer"}, "columns": {"type": "array", "items": {"type": "object", "properties": {"name": {"type": "string"}, "dtype": {"type": "string"}}}}, "notes": {"type": "array", "items": {"type": "string"}, "description": "things the import noticed but did not refuse, such as text columns that look like numbers with a decimal comma"}}}"#;
+const DEADLINE: &str = r#"{"type": "number", "exclusiveMinimum": 0, "maximum": 86400}"#;
 const RUN_RESULT: &str = r#"{"type": "object", "required": ["output", "rows", "summary", "warnings"], "properties": {"output": {"type": "string"}, "rows": {"type": "integer"}, "columns": {"type": "array"}, "summary": {"type": "object"}, "warnings": {"type": "array", "items": {"type": "string"}}}}"#;
 
 /// Every method the daemon serves.
@@ -96,6 +97,7 @@ pub const METHODS: &[MethodDoc] = &[
             ("path", true, STRING, "file to write; its directory must exist inside a data root"),
             ("format", false, r#"{"type": "string", "enum": ["csv", "parquet", "ipc"]}"#, "file format; default from the file name"),
             ("units", false, r#"{"type": "string", "enum": ["si", "customary"], "default": "si"}"#, "si: as stored; customary: densities in cm^-3 and cm^-2, mobilities in cm^2/(V s), resistivities in ohm cm, lengths in um, each column renamed after its unit (density_m3 -> density_cm3)"),
+            ("overwrite", false, r#"{"type": "boolean", "default": false}"#, "replace an existing file at path; without it an existing file is left as it is and the call fails. The file is written under a temporary name and renamed into place, so it is never seen half-written"),
         ],
         result: OBJECT,
     },
@@ -111,6 +113,7 @@ pub const METHODS: &[MethodDoc] = &[
             ("overwrite", false, r#"{"type": "boolean", "default": false}"#, "replace an existing output dataset"),
             ("call_id", false, STRING, "client-chosen id, unique among running calls: the token of its progress (progress.subscribe, analysis.progress) and the handle to cancel it (analysis.cancel)"),
             ("summary_output", false, STRING, "also store the summary as a dataset: one row per group, one column per scalar value"),
+            ("deadline_s", false, DEADLINE, "stop the call after this many seconds with error 5005 deadline_exceeded, storing nothing (default 600, at most 86400)"),
         ],
         result: RUN_RESULT,
     },
@@ -132,6 +135,7 @@ pub const METHODS: &[MethodDoc] = &[
         params: &[
             ("steps", true, r#"{"type": "array", "items": {"type": "object"}, "minItems": 1}"#, "analysis.run parameter objects, without call_id"),
             ("call_id", false, STRING, "client-chosen id of the whole pipeline: its progress token and the handle to cancel it"),
+            ("deadline_s", false, DEADLINE, "stop the pipeline after this many seconds with error 5005 deadline_exceeded; outputs of steps finished before are kept (default 600, at most 86400)"),
         ],
         result: r#"{"type": "object", "properties": {"steps": {"type": "array"}}}"#,
     },
@@ -153,6 +157,7 @@ pub const METHODS: &[MethodDoc] = &[
             ("width", false, r#"{"type": "number", "exclusiveMinimum": 0}"#, "width in pixels"),
             ("height", false, r#"{"type": "number", "exclusiveMinimum": 0}"#, "height in pixels"),
             ("analysis", false, STRING, "draw as if the dataset came from this analysis (default: its provenance)"),
+            ("deadline_s", false, DEADLINE, "stop after this many seconds with error 5005 deadline_exceeded (default 120, at most 86400)"),
         ],
         result: r#"{"type": "object", "required": ["dataset", "kind", "title"], "properties": {"dataset": {"type": "string"}, "kind": {"type": "string"}, "title": {"type": "string"}, "svg": {"type": "string"}, "vega_lite": {"type": "object"}}}"#,
     },
@@ -171,7 +176,10 @@ pub const METHODS: &[MethodDoc] = &[
     MethodDoc {
         name: "report.render",
         summary: "One self-contained HTML page for a sample: first its results (each analysis's key numbers with uncertainties, fit quality and flags, from the stored run summaries), then every dataset holding it, in the order the work went, with figures (inline SVG), key columns first, the full table behind a disclosure and as a CSV download, quality flags, and provenance (source files, analyses, parameters, plugin and daemon versions); prints on A4 and Letter",
-        params: &[("sample", true, STRING, "the sample's name, as in the `sample` column")],
+        params: &[
+            ("sample", true, STRING, "the sample's name, as in the `sample` column"),
+            ("deadline_s", false, DEADLINE, "stop after this many seconds with error 5005 deadline_exceeded (default 120, at most 86400)"),
+        ],
         result: r#"{"type": "object", "required": ["sample", "datasets", "figures", "html"], "properties": {"sample": {"type": "string"}, "datasets": {"type": "array", "items": {"type": "string"}}, "figures": {"type": "integer"}, "html": {"type": "string"}}}"#,
     },
     MethodDoc {

@@ -22,7 +22,17 @@ enum Formats {
 /// The parameters of `plot.render` that are the daemon's, not the plot options.
 const OWN_PARAMS: [&str; 3] = ["dataset", "filter", "format"];
 
+/// The most rows one figure draws from (after `filter`). Drawing thins markers to a budget
+/// per panel, but every row is still read, grouped and converted: past this the answer
+/// would no longer come within a second.
+pub const MAX_PLOT_ROWS: usize = 2_000_000;
+
 fn plot_error(dataset: &str, error: PlotError) -> ServiceError {
+    if let PlotError::TooLarge(_) = error {
+        return ServiceError::new(ErrorKind::ResourceLimit, format!("plot of `{dataset}`: {error}"))
+            .with_param("filter")
+            .with_help("dataset.rows or report.samples show the values to filter on");
+    }
     ServiceError::invalid_params(format!("plot of `{dataset}`: {error}"))
         .with_help("plot.kinds lists the kinds and the analyses whose outputs each one draws")
 }
@@ -160,6 +170,18 @@ impl Service {
             options.analysis = producing_analysis(&dataset.manifest.provenance);
         }
         let frame = filter_rows(&dataset.frame, &filter)?;
+        // Checked before anything is drawn, so that a refusal is as quick as the filter.
+        if frame.height() > MAX_PLOT_ROWS {
+            return Err(ServiceError::new(
+                ErrorKind::ResourceLimit,
+                format!(
+                    "plot of `{dataset_name}`: {} rows are more than one figure draws ({MAX_PLOT_ROWS})",
+                    frame.height()
+                ),
+            )
+            .with_param("filter")
+            .with_help("keep part of the rows with filter, for example {\"sample\": \"W1\"}, or export the dataset and draw it elsewhere"));
+        }
         if frame.height() == 0 {
             return Err(ServiceError::new(
                 ErrorKind::InvalidData,

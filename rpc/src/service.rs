@@ -65,6 +65,9 @@ pub struct ExportParams {
     /// column names saying so).
     #[serde(default)]
     pub units: crate::customary::ExportUnits,
+    /// Replace an existing file at `path` (refused otherwise).
+    #[serde(default)]
+    pub overwrite: bool,
 }
 
 #[derive(Debug, Deserialize)]
@@ -404,7 +407,8 @@ impl Service {
         Service {
             store,
             host,
-            roots,
+            // Whatever the roots, imports and exports never touch the workspace.
+            roots: roots.keeping_out(&workspace),
             workspace,
             running: Mutex::new(HashMap::new()),
             progress_hub: Arc::new(ProgressHub::default()),
@@ -514,7 +518,7 @@ impl Service {
     }
 
     pub fn dataset_drop(&self, name: &str) -> ServiceResult<Value> {
-        self.store.remove(name)?;
+        crate::bounded_calls::commit(|| self.store.remove(name))?;
         Ok(json!({ "dropped": name }))
     }
 
@@ -535,7 +539,7 @@ impl Service {
         let (frame, source_map, provenance) =
             match (&params.path, &params.columns) {
                 (Some(path), None) => {
-                    let resolved = self.roots.readable(Path::new(path))?;
+                    let (resolved, opened) = self.roots.open_readable(Path::new(path))?;
                     let format = match &params.format {
                         Some(name) => FileFormat::parse(name)?,
                         None => FileFormat::from_extension(&resolved)?,
@@ -549,7 +553,7 @@ impl Service {
                         .with_help("leave out csv, or pass format: csv if the file is CSV text"));
                     }
                     let dialect = params.csv.clone().unwrap_or_default();
-                    let source = tables::load_source(&resolved)?;
+                    let source = tables::load_opened(&resolved, opened)?;
                     let rename = &params.rename;
                     // The contacts pair notation (`21,34`) keeps its comma under decimal_comma.
                     let keeps_commas = |name: &str| rename.get(name).map(String::as_str).unwrap_or(name) == "contacts";
@@ -591,7 +595,8 @@ impl Service {
             (Some(map), false) => tables::decimal_comma_notes(&frame, map),
             _ => Vec::new(),
         };
-        let dataset = self.store.insert(&params.name, frame, provenance, params.overwrite)?;
+        let dataset =
+            crate::bounded_calls::commit(|| self.store.insert(&params.name, frame, provenance, params.overwrite))?;
         let mut answer = Self::dataset_summary(&dataset);
         if !notes.is_empty() {
             answer["notes"] = json!(notes);
@@ -601,16 +606,26 @@ impl Service {
 
     pub fn dataset_export(&self, params: ExportParams) -> ServiceResult<Value> {
         let dataset = self.store.get(&params.name)?;
-        let target = self.roots.writable(Path::new(&params.path))?;
         let format = match &params.format {
             Some(name) => FileFormat::parse(name)?,
-            None => FileFormat::from_extension(&target)?,
+            None => FileFormat::from_extension(Path::new(&params.path))?,
         };
         let frame = match params.units {
             crate::customary::ExportUnits::Si => dataset.frame.clone(),
             crate::customary::ExportUnits::Customary => crate::customary::to_customary(&dataset.frame)?,
         };
-        tables::write_file(&frame, &target, format)?;
+        // A temporary file renamed into place: readers never see half a file, and an
+        // existing file is replaced only with overwrite.
+        let target = self.roots.place(
+            Path::new(&params.path),
+            params.overwrite,
+            |file| {
+                tables::write_into(&frame, file, format).map_err(|e| {
+                    ServiceError::new(ErrorKind::FileProblem, format!("cannot write {}: {e}", params.path))
+                })
+            },
+            |rename| crate::bounded_calls::commit(rename),
+        )?;
         let columns: Vec<String> = frame.get_column_names().iter().map(|n| n.to_string()).collect();
         Ok(json!({
             "name": params.name, "path": target.display().to_string(), "format": format.name(),
@@ -637,10 +652,12 @@ impl Service {
     /// announces its beginning. Refuses an id that is in use.
     fn register_call(&self, call_id: Option<&str>, title: &str) -> ServiceResult<RegisteredCall<'_>> {
         let Some(id) = call_id else {
+            let control = Arc::new(CallControl::default());
+            crate::bounded_calls::watch(&control);
             return Ok(RegisteredCall {
                 service: self,
                 call_id: None,
-                control: Arc::new(CallControl::default()),
+                control,
                 outcome: None,
             });
         };
@@ -662,6 +679,7 @@ impl Service {
             }
             running.insert(id.to_owned(), control.clone());
         }
+        crate::bounded_calls::watch(&control);
         self.progress_hub.begin(id, title);
         Ok(RegisteredCall {
             service: self,
@@ -835,6 +853,8 @@ impl Service {
                 provenance: provenance(true),
             });
         }
+        // A call stopped by its deadline or its client stores neither.
+        let _commit = crate::bounded_calls::committing()?;
         let stored = self.store.insert_all(writes, run.overwrite)?;
         let mut answer = json!({
             "output": run.output,

@@ -76,9 +76,19 @@ pub struct SourceFile {
 
 /// Reads a file whole, once, so that the table and its checksum describe the same bytes.
 pub fn load_source(path: &Path) -> ServiceResult<SourceFile> {
+    let file = File::open(path).map_err(|e| file_error(path, e))?;
+    load_opened(path, file)
+}
+
+/// [`load_source`] of a file already opened (and checked) by the caller; `path` names it
+/// in messages.
+pub fn load_opened(path: &Path, mut file: File) -> ServiceResult<SourceFile> {
     use sha2::{Digest, Sha256};
-    let bytes = std::fs::read(path).map_err(|e| file_error(path, e))?;
-    let modified = std::fs::metadata(path)
+    use std::io::Read;
+    let mut bytes = Vec::new();
+    file.read_to_end(&mut bytes).map_err(|e| file_error(path, e))?;
+    let modified = file
+        .metadata()
         .and_then(|m| m.modified())
         .ok()
         .map(crate::store::utc_timestamp);
@@ -179,14 +189,18 @@ pub fn write_file(frame: &DataFrame, path: &Path, format: FileFormat) -> Service
         ServiceError::new(ErrorKind::FileProblem, format!("cannot write {}: {e}", path.display()))
     };
     let mut file = File::create(path).map_err(|e| write_error(&e))?;
-    let mut frame = frame.clone();
-    let result = match format {
-        FileFormat::Csv => CsvWriter::new(&mut file).include_header(true).finish(&mut frame),
-        FileFormat::Parquet => ParquetWriter::new(&mut file).finish(&mut frame).map(|_| ()),
-        FileFormat::ArrowIpc => IpcWriter::new(&mut file).finish(&mut frame),
-    };
-    result.map_err(|e| write_error(&e))?;
+    write_into(frame, &mut file, format).map_err(|e| write_error(&e))?;
     file.sync_all().map_err(|e| write_error(&e))
+}
+
+/// Writes a DataFrame into an open file in `format` (the caller syncs and names it).
+pub fn write_into(frame: &DataFrame, file: &mut File, format: FileFormat) -> PolarsResult<()> {
+    let mut frame = frame.clone();
+    match format {
+        FileFormat::Csv => CsvWriter::new(file).include_header(true).finish(&mut frame),
+        FileFormat::Parquet => ParquetWriter::new(file).finish(&mut frame).map(|_| ()),
+        FileFormat::ArrowIpc => IpcWriter::new(file).finish(&mut frame),
+    }
 }
 
 /// Builds a DataFrame from inline JSON columns `{name: [values]}`. Each column holds

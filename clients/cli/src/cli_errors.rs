@@ -29,6 +29,7 @@ const PHRASES: &[(&str, &str)] = &[
         "rename a column at import (`mobilis import --rename SRC=DST`, `--unit COL=UNIT`)",
     ),
     ("pass overwrite: true", "add --overwrite"),
+    ("pass a longer deadline_s", "pass a longer --deadline"),
     (
         "import it with dataset.import or list the stored ones with dataset.list",
         "import it with `mobilis import NAME PATH`, or list the stored ones with `mobilis datasets`",

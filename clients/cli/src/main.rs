@@ -114,6 +114,10 @@ enum Command {
         /// group, one column per value, in SI.
         #[arg(long = "summary-output", value_name = "NAME")]
         summary_output: Option<String>,
+        /// Stop the run after this many seconds (the daemon's default is 600; at most 86400),
+        /// for example --deadline 3600 for a long fit.
+        #[arg(long, value_name = "SECONDS")]
+        deadline: Option<f64>,
     },
     /// Run a pipeline file (TOML: [[import]] and [[step]] tables; see DEVELOPERS.md).
     Pipeline {
@@ -153,6 +157,9 @@ enum Command {
         /// names saying so (density_cm3), as a spreadsheet user expects.
         #[arg(long, value_enum, default_value = "si")]
         units: ExportUnits,
+        /// Replace an existing file at PATH (refused otherwise).
+        #[arg(long)]
+        overwrite: bool,
     },
     /// Call any method with JSON parameters and print the JSON result.
     Call {
@@ -374,6 +381,7 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             group_by,
             overwrite,
             summary_output,
+            deadline,
         } => {
             let params: Value = serde_json::from_str(params).context("--params must be a JSON object")?;
             let inputs: serde_json::Map<String, Value> = inputs.iter().map(|(r, d)| (r.clone(), json!(d))).collect();
@@ -383,6 +391,9 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             });
             if let Some(name) = summary_output {
                 request["summary_output"] = json!(name);
+            }
+            if let Some(seconds) = deadline {
+                request["deadline_s"] = json!(seconds);
             }
             let mut bar = ProgressBar::new(cli.progress);
             let result = connect(&cli)
@@ -448,12 +459,13 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             path,
             format,
             units,
+            overwrite,
         } => {
             let units = match units {
                 ExportUnits::Si => "si",
                 ExportUnits::Customary => "customary",
             };
-            let mut params = json!({ "name": name, "path": absolute(path)?, "units": units });
+            let mut params = json!({ "name": name, "path": absolute(path)?, "units": units, "overwrite": overwrite });
             if let Some(format) = format {
                 params["format"] = json!(format);
             }

@@ -208,6 +208,9 @@ pub(crate) fn missing_column(recipe: &Recipe, dataset: &str, column: &str, colum
     }
 }
 
+/// The most series (or panels) one figure draws; more are refused, naming the filter to use.
+pub const MAX_SERIES: usize = 200;
+
 /// A row set that becomes one series (or panel), with its label.
 pub(crate) struct Group {
     pub label: String,
@@ -343,28 +346,50 @@ impl Context<'_> {
         for column in candidates {
             let keys = self.group_keys(&column, rows)?;
             if !chosen_by_caller {
-                let mut distinct: Vec<&Option<String>> = rows.iter().map(|&r| &keys[r]).collect();
-                distinct.sort();
-                distinct.dedup();
-                if distinct.len() < 2 {
+                let varies = rows
+                    .first()
+                    .is_some_and(|&first| rows.iter().any(|&r| keys[r] != keys[first]));
+                if !varies {
                     continue;
                 }
             }
             columns.push(column);
             values.push(keys);
         }
-        let mut groups: Vec<(Vec<Option<String>>, Group)> = Vec::new();
+        // One hash lookup per row: a search through the groups found so far made a million
+        // rows in tens of thousands of series take minutes.
+        let mut index_of: std::collections::HashMap<Vec<Option<&str>>, usize> = std::collections::HashMap::new();
+        let mut groups: Vec<Group> = Vec::new();
         for &row in rows {
-            let key: Vec<Option<String>> = values.iter().map(|v| v[row].clone()).collect();
-            match groups.iter_mut().find(|(k, _)| *k == key) {
-                Some((_, group)) => group.rows.push(row),
-                None => {
-                    let label = group_label(&columns, &key);
-                    groups.push((key, Group { label, rows: vec![row] }));
-                }
+            let key: Vec<Option<&str>> = values.iter().map(|v| v[row].as_deref()).collect();
+            if let Some(&index) = index_of.get(&key) {
+                groups[index].rows.push(row);
+                continue;
             }
+            if groups.len() == MAX_SERIES {
+                return Err(self.too_many_series(&columns));
+            }
+            let owned: Vec<Option<String>> = key.iter().map(|k| k.map(str::to_owned)).collect();
+            index_of.insert(key, groups.len());
+            groups.push(Group {
+                label: group_label(&columns, &owned),
+                rows: vec![row],
+            });
         }
-        Ok(groups.into_iter().map(|(_, g)| g).collect())
+        Ok(groups)
+    }
+
+    /// The refusal of a figure with more than [`MAX_SERIES`] series, before anything is drawn.
+    fn too_many_series(&self, columns: &[String]) -> PlotError {
+        let by = if columns.is_empty() {
+            "its series".to_owned()
+        } else {
+            columns.join(", ")
+        };
+        PlotError::TooLarge(format!(
+            "dataset `{}` would draw more than {MAX_SERIES} series (one per value of {by}), too many to read or to draw in time; keep part of the rows with filter, for example {{\"sample\": \"W1\"}}, or choose series_by with fewer values (series_by: [] draws one series)",
+            self.dataset
+        ))
     }
 
     /// The grouping key of every row of the table (None outside `rows` and for nulls): the

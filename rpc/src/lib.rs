@@ -5,6 +5,7 @@
 //! parsing, error codes) -> `service` (the daemon's logic) -> `store` / `plugin_host`
 //! (across the C ABI into a plugin) -> `store` -> back to the client.
 
+pub mod compute_slots;
 pub mod csv_dialect;
 pub mod customary;
 pub mod data_roots;

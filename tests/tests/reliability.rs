@@ -7,11 +7,13 @@
 
 #[path = "reliability/counts.rs"]
 mod counts;
+#[path = "reliability/load.rs"]
+mod load;
+#[path = "reliability/plugin_isolation.rs"]
+mod plugin_isolation;
 #[path = "reliability/store_crashes.rs"]
 mod store_crashes;
 #[path = "reliability/transport_frames.rs"]
 mod transport_frames;
-#[path = "reliability/plugin_isolation.rs"]
-mod plugin_isolation;
 #[path = "reliability/workspace_and_bounds.rs"]
 mod workspace_and_bounds;

@@ -21,7 +21,9 @@
 //!
 //! - `MOBILIS_LOAD_CLIENTS` (32), `MOBILIS_LOAD_REQUESTS` (1000 per client);
 //! - `MOBILIS_LOAD_TRANSPORTS` (`http,websocket`);
-//! - `MOBILIS_COMPUTE_SLOTS`: passed as `--compute-slots` (default: the daemon's, one per CPU).
+//! - `MOBILIS_COMPUTE_SLOTS`: passed as `--compute-slots` (default: the daemon's, one per CPU);
+//! - `MOBILIS_LOAD_DAEMON`: another `mobilisd` to measure (its directory must hold the hall
+//!   plugin), for example a debug build to compare; the header line names the binary.
 //!
 //! The daemon's CPU share is its user plus system time (`/proc/PID/stat`) over the run's wall
 //! time; the generator's own share is printed beside it, to show that it was not the limit.
@@ -59,9 +61,11 @@ fn main() {
         .collect();
     let slots = std::env::var("MOBILIS_COMPUTE_SLOTS").ok();
 
-    let release = release_directory();
-    let daemon_binary = release.join("mobilisd");
-    let hall = release.join(format!(
+    let daemon_binary = std::env::var_os("MOBILIS_LOAD_DAEMON")
+        .map(PathBuf::from)
+        .unwrap_or_else(|| release_directory().join("mobilisd"));
+    let beside = daemon_binary.parent().map(PathBuf::from).unwrap_or_default();
+    let hall = beside.join(format!(
         "{}mobilis_hall{}",
         std::env::consts::DLL_PREFIX,
         std::env::consts::DLL_SUFFIX

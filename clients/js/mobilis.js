@@ -183,8 +183,18 @@ const UNSUBSCRIBE_RETRY_MS = 50;
  */
 
 /**
- * A stored dataset (result of `dataset.import`, entry of `dataset.list`).
+ * A stored dataset (result of `dataset.import`).
  * @typedef {{name: string, rows: number, columns: ColumnInfo[], [key: string]: unknown}} DatasetSummary
+ */
+
+/**
+ * An entry of `dataset.list`: lean; `dataset.info` has the columns and provenance.
+ * @typedef {{name: string, rows: number, column_count: number}} DatasetEntry
+ */
+
+/**
+ * A page of `dataset.list`: `total` counts every dataset matching the prefix, over all pages.
+ * @typedef {{total: number, offset: number, datasets: DatasetEntry[]}} DatasetPage
  */
 
 /**
@@ -1049,11 +1059,32 @@ export class MobilisClient {
   }
 
   /**
-   * `dataset.list`: every stored dataset.
-   * @returns {Promise<DatasetSummary[]>}
+   * `dataset.list`: one page of the stored datasets, in name order (at most 5000 a page).
+   * @param {{offset?: number, limit?: number, prefix?: string}} [page]
+   * @returns {Promise<DatasetPage>}
    */
-  listDatasets() {
-    return this.call("dataset.list");
+  listDatasets(page = {}) {
+    return this.call("dataset.list", { ...page });
+  }
+
+  /**
+   * Every stored dataset (optionally those whose name starts with `prefix`), walking the
+   * pages of `dataset.list` until `total` is reached.
+   * @param {{prefix?: string, pageSize?: number}} [options]
+   * @returns {Promise<DatasetEntry[]>}
+   */
+  async allDatasets({ prefix, pageSize = 1000 } = {}) {
+    /** @type {DatasetEntry[]} */
+    const all = [];
+    for (;;) {
+      /** @type {{offset: number, limit: number, prefix?: string}} */
+      const page = { offset: all.length, limit: pageSize };
+      if (prefix !== undefined) page.prefix = prefix;
+      const answer = await this.listDatasets(page);
+      all.push(...answer.datasets);
+      // A dataset dropped meanwhile can make a page short; an empty page ends the walk.
+      if (answer.datasets.length === 0 || all.length >= answer.total) return all;
+    }
   }
 
   /**

@@ -217,10 +217,31 @@ impl CallScope {
     /// soon as the deadline passes.
     pub async fn run(
         mut self,
+        slots: Option<&crate::compute_slots::ComputeSlots>,
         work: impl FnOnce() -> Result<Value, ErrorObjectOwned> + Send + 'static,
     ) -> Result<Value, ErrorObjectOwned> {
+        // Heavy calls wait for a compute slot first; the wait counts against the deadline.
+        let permit = match slots {
+            Some(slots) => match tokio::time::timeout(self.bound.deadline, slots.acquire()).await {
+                Ok(Ok(permit)) => Some(permit),
+                Ok(Err(_)) => {
+                    self.finished = true;
+                    return Err(to_rpc_error(ServiceError::new(
+                        ErrorKind::StorageFailure,
+                        "the daemon is shutting down and ran no more work; send the request again once it is back",
+                    )));
+                }
+                Err(_) => {
+                    self.finished = true;
+                    return Err(to_rpc_error(deadline_error(self.bound.method, self.bound.deadline)));
+                }
+            },
+            None => None,
+        };
         let bound = self.bound.clone();
         let mut handle = tokio::task::spawn_blocking(move || {
+            // The slot stays taken until the work really ends, even if its client has gone.
+            let _slot = permit;
             let result = bound.enter(work);
             // A stopped call's own error (a plugin's "cancelled") is reported as the stop.
             match (result, bound.state().stop) {
@@ -310,7 +331,7 @@ mod tests {
         let flag = stored.clone();
         let started = std::time::Instant::now();
         let answer = CallScope::new("analysis.run", Duration::from_millis(50))
-            .run(move || {
+            .run(None, move || {
                 watch(&seen);
                 while !seen.cancelled.load(Ordering::Relaxed) {
                     std::thread::sleep(Duration::from_millis(5));
@@ -335,7 +356,7 @@ mod tests {
     async fn a_dropped_scope_cancels_its_analyses() {
         let control = Arc::new(CallControl::default());
         let seen = control.clone();
-        let call = CallScope::new("analysis.run", Duration::from_secs(60)).run(move || {
+        let call = CallScope::new("analysis.run", Duration::from_secs(60)).run(None, move || {
             watch(&seen);
             while !seen.cancelled.load(Ordering::Relaxed) {
                 std::thread::sleep(Duration::from_millis(5));

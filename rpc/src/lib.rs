@@ -6,6 +6,7 @@
 //! (across the C ABI into a plugin) -> `store` -> back to the client.
 
 pub mod bounded_calls;
+pub mod compute_slots;
 pub mod csv_dialect;
 pub mod customary;
 pub mod data_roots;

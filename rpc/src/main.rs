@@ -2,6 +2,7 @@
 
 use anyhow::{bail, Context};
 use clap::Parser;
+use mobilis_rpc::compute_slots::ComputeSlots;
 use mobilis_rpc::data_roots::DataRoots;
 use mobilis_rpc::plugin_host::{Isolation, PluginHost};
 use mobilis_rpc::plugin_supervisor::WorkerSettings;
@@ -53,6 +54,9 @@ struct Arguments {
     /// outputs past it are refused. Default: half of the machine's memory.
     #[arg(long = "memory-budget", value_parser = mobilis_rpc::store::memory::parse_size)]
     memory_budget: Option<u64>,
+    /// Heavy calls (analyses, pipelines, imports, exports, rows, figures, reports) running at once; more wait their turn. Default: one per CPU.
+    #[arg(long = "compute-slots", value_parser = clap::value_parser!(u16).range(1..=1024))]
+    compute_slots: Option<u16>,
 }
 
 fn main() -> anyhow::Result<()> {
@@ -126,7 +130,15 @@ fn main() -> anyhow::Result<()> {
     let mut roots = vec![start_directory];
     roots.extend(arguments.data_roots.iter().cloned());
     let service = Arc::new(Service::new(store, host, DataRoots::new(roots), workspace));
-    let module = mobilis_rpc::methods::module(service);
+    let slots = match arguments.compute_slots {
+        Some(count) => ComputeSlots::new(count.into()),
+        None => ComputeSlots::per_core(),
+    };
+    tracing::info!(
+        compute_slots = slots.count(),
+        "heavy calls run at most this many at once"
+    );
+    let module = mobilis_rpc::methods::module_with_slots(service, slots);
 
     let runtime = tokio::runtime::Builder::new_multi_thread().enable_all().build()?;
     runtime.block_on(async move {

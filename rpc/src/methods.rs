@@ -1,13 +1,15 @@
 //! The JSON-RPC methods: parameter parsing, error conversion, dispatch into [`Service`].
 //!
 //! **Architecture Invariant.** This module and `transport` are the only ones that know
-//! jsonrpsee. CPU- and file-bound methods are registered as blocking methods so that they
-//! run off the async runtime and a long analysis never stalls other clients.
+//! jsonrpsee. CPU- and file-bound methods run off the async runtime, at most one per core
+//! ([`crate::compute_slots`]), so that a long analysis never stalls other clients and cheap
+//! calls never queue behind analyses.
 
 use crate::bounded_calls;
+use crate::compute_slots::ComputeSlots;
 use crate::errors::ServiceError;
 use crate::openrpc;
-use crate::service::{ExportParams, ImportParams, PipelineParams, RowsParams, RunParams, Service};
+use crate::service::{ExportParams, ImportParams, ListParams, PipelineParams, RowsParams, RunParams, Service};
 use jsonrpsee::types::{ErrorObjectOwned, Params};
 use jsonrpsee::RpcModule;
 use serde::Deserialize;
@@ -258,101 +260,127 @@ struct CallIdParam {
     call_id: String,
 }
 
-/// Builds the module with every method of [`openrpc::METHODS`].
+/// Where a method's work runs.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Runs {
+    /// On the async runtime: cheap reads of state held in memory, answered at once.
+    Inline,
+    /// On a blocking thread, outside the compute slots: short file work that must not wait
+    /// behind analyses (dropping a dataset).
+    Blocking,
+    /// On a blocking thread holding one of the [`ComputeSlots`]: CPU- or file-heavy work.
+    InComputeSlot,
+}
+
+/// Builds the module with every method of [`openrpc::METHODS`], heavy calls limited to one
+/// per core.
 pub fn module(service: Arc<Service>) -> RpcModule<Service> {
+    module_with_slots(service, ComputeSlots::per_core())
+}
+
+/// Builds the module with every method of [`openrpc::METHODS`], heavy calls sharing `slots`.
+pub fn module_with_slots(service: Arc<Service>, slots: ComputeSlots) -> RpcModule<Service> {
     let mut module = RpcModule::from_arc(service);
     let register = |module: &mut RpcModule<Service>,
                     name: &'static str,
-                    blocking: bool,
+                    runs: Runs,
                     f: fn(&Params, &Service) -> Result<Value, ErrorObjectOwned>| {
-        let result = if blocking {
-            // Bounded: a deadline, and stopped when the client goes away (see bounded_calls).
-            module
-                .register_async_method(name, move |params, service, _| async move {
-                    check_params(name, &params)?;
-                    let (deadline, params) = bounded_calls::take_deadline(name, params)?;
-                    bounded_calls::CallScope::new(name, deadline)
-                        .run(move || f(&params, &service))
-                        .await
-                })
-                .map(|_| ())
-        } else {
-            module
+        let result = match runs {
+            Runs::Inline => module
                 .register_method(name, move |params, service, _| {
                     check_params(name, &params)?;
                     f(&params, service)
                 })
-                .map(|_| ())
+                .map(|_| ()),
+            // Bounded: a deadline, and stopped when the client goes away (see bounded_calls);
+            // heavy calls also wait for one of the compute slots.
+            Runs::Blocking | Runs::InComputeSlot => {
+                let slots = (runs == Runs::InComputeSlot).then(|| slots.clone());
+                module
+                    .register_async_method(name, move |params, service, _| {
+                        let slots = slots.clone();
+                        async move {
+                            // A malformed request is refused at once, without waiting for a slot.
+                            check_params(name, &params)?;
+                            let (deadline, params) = bounded_calls::take_deadline(name, params)?;
+                            bounded_calls::CallScope::new(name, deadline)
+                                .run(slots.as_ref(), move || f(&params, &service))
+                                .await
+                        }
+                    })
+                    .map(|_| ())
+            }
         };
         result.expect("method names are unique");
     };
-    register(&mut module, "server.info", false, |_, s| {
+    register(&mut module, "server.info", Runs::Inline, |_, s| {
         guarded(|| Ok(s.server_info()))
     });
-    register(&mut module, "rpc.discover", false, |_, s| {
+    register(&mut module, "rpc.discover", Runs::Inline, |_, s| {
         guarded(|| Ok(openrpc::document(s)))
     });
-    register(&mut module, "plugin.list", false, |_, s| {
+    register(&mut module, "plugin.list", Runs::Inline, |_, s| {
         guarded(|| Ok(s.plugin_list()))
     });
-    register(&mut module, "analysis.list", false, |_, s| {
+    register(&mut module, "analysis.list", Runs::Inline, |_, s| {
         guarded(|| Ok(s.analysis_list()))
     });
-    register(&mut module, "analysis.describe", false, |p, s| {
+    register(&mut module, "analysis.describe", Runs::Inline, |p, s| {
         let p: AnalysisParam = parse(p)?;
         guarded(|| s.analysis_describe(&p.analysis))
     });
-    register(&mut module, "dataset.list", false, |_, s| {
-        guarded(|| Ok(s.dataset_list()))
+    register(&mut module, "dataset.list", Runs::Inline, |p, s| {
+        let p: ListParams = parse(p)?;
+        guarded(|| s.dataset_list(p))
     });
-    register(&mut module, "dataset.info", false, |p, s| {
+    register(&mut module, "dataset.info", Runs::Inline, |p, s| {
         let p: NameParam = parse(p)?;
         guarded(|| s.dataset_info(&p.name))
     });
-    register(&mut module, "dataset.drop", true, |p, s| {
+    register(&mut module, "dataset.drop", Runs::Blocking, |p, s| {
         let p: NameParam = parse(p)?;
         guarded(|| s.dataset_drop(&p.name))
     });
-    register(&mut module, "dataset.rows", true, |p, s| {
+    register(&mut module, "dataset.rows", Runs::InComputeSlot, |p, s| {
         let p: RowsParams = parse(p)?;
         guarded(|| s.dataset_rows(p))
     });
-    register(&mut module, "dataset.import", true, |p, s| {
+    register(&mut module, "dataset.import", Runs::InComputeSlot, |p, s| {
         let p: ImportParams = parse(p)?;
         guarded(|| s.dataset_import(p))
     });
-    register(&mut module, "dataset.export", true, |p, s| {
+    register(&mut module, "dataset.export", Runs::InComputeSlot, |p, s| {
         let p: ExportParams = parse(p)?;
         guarded(|| s.dataset_export(p))
     });
-    register(&mut module, "analysis.run", true, |p, s| {
+    register(&mut module, "analysis.run", Runs::InComputeSlot, |p, s| {
         let p: RunParams = parse(p)?;
         guarded(|| s.run_analysis(p))
     });
-    register(&mut module, "analysis.cancel", false, |p, s| {
+    register(&mut module, "analysis.cancel", Runs::Inline, |p, s| {
         let p: CallIdParam = parse(p)?;
         guarded(|| Ok(s.cancel(&p.call_id)))
     });
-    register(&mut module, "analysis.progress", false, |p, s| {
+    register(&mut module, "analysis.progress", Runs::Inline, |p, s| {
         let p: CallIdParam = parse(p)?;
         guarded(|| Ok(s.progress(&p.call_id)))
     });
-    register(&mut module, "pipeline.run", true, |p, s| {
+    register(&mut module, "pipeline.run", Runs::InComputeSlot, |p, s| {
         let p: PipelineParams = parse(p)?;
         guarded(|| s.run_pipeline(p))
     });
-    register(&mut module, "plot.render", true, |p, s| {
+    register(&mut module, "plot.render", Runs::InComputeSlot, |p, s| {
         let p: serde_json::Map<String, Value> = parse(p)?;
         guarded(|| s.plot_render(p))
     });
-    register(&mut module, "report.samples", false, |_, s| {
+    register(&mut module, "report.samples", Runs::Inline, |_, s| {
         guarded(|| Ok(s.report_samples()))
     });
-    register(&mut module, "report.render", true, |p, s| {
+    register(&mut module, "report.render", Runs::InComputeSlot, |p, s| {
         let p: SampleParam = parse(p)?;
         guarded(|| s.report_render(&p.sample))
     });
-    register(&mut module, "plot.kinds", false, |p, s| {
+    register(&mut module, "plot.kinds", Runs::Inline, |p, s| {
         let p: DatasetOption = parse(p)?;
         guarded(|| s.plot_kinds(p.dataset.as_deref()))
     });
@@ -635,5 +663,72 @@ mod tests {
             plain_words("unknown variant `x`, expected enum FileFormat"),
             "unknown variant `x`, expected one of the accepted values"
         );
+    }
+
+    #[tokio::test(flavor = "multi_thread")]
+    async fn dataset_list_answers_pages_in_name_order() {
+        use serde_json::json;
+        let (_workspace, module) = module_without_plugins();
+        let call = |method: &str, params: Value| {
+            let request = json!({"jsonrpc": "2.0", "id": 1, "method": method, "params": params}).to_string();
+            let module = &module;
+            async move {
+                let (response, _) = module.raw_json_request(&request, 16).await.unwrap();
+                serde_json::from_str::<Value>(response.get()).unwrap()
+            }
+        };
+        for name in ["run-b", "run-a", "other", "run-c", "run-e", "run-d"] {
+            let stored = call(
+                "dataset.import",
+                json!({"name": name, "columns": {"x": [1.0, 2.0], "y": [3, 4]}}),
+            )
+            .await;
+            assert!(stored.get("result").is_some(), "{stored}");
+        }
+        let names = |answer: &Value| -> Vec<String> {
+            answer["result"]["datasets"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .map(|d| d["name"].as_str().unwrap().to_owned())
+                .collect()
+        };
+        let all = call("dataset.list", json!({})).await;
+        assert_eq!(all["result"]["total"], 6);
+        assert_eq!(names(&all), ["other", "run-a", "run-b", "run-c", "run-d", "run-e"]);
+        assert_eq!(
+            all["result"]["datasets"][0],
+            json!({"name": "other", "rows": 2, "column_count": 2})
+        );
+
+        let second = call("dataset.list", json!({"prefix": "run-", "offset": 2, "limit": 2})).await;
+        assert_eq!(second["result"]["total"], 5);
+        assert_eq!(second["result"]["offset"], 2);
+        assert_eq!(names(&second), ["run-c", "run-d"]);
+        let past_the_end = call("dataset.list", json!({"offset": 100})).await;
+        assert_eq!(past_the_end["result"]["total"], 6);
+        assert!(names(&past_the_end).is_empty());
+
+        let too_many = call("dataset.list", json!({"limit": 5001})).await;
+        assert_eq!(too_many["error"]["code"], 4001, "{too_many}");
+        let message = too_many["error"]["message"].as_str().unwrap();
+        assert!(message.contains("limit") && message.contains("5000"), "{message}");
+        let unknown = call("dataset.list", json!({"page": 2})).await;
+        assert_eq!(unknown["error"]["code"], 4001, "{unknown}");
+        // Asked directly, past the schema, the service refuses the same way and says what to do.
+        let workspace = tempfile::tempdir().unwrap();
+        let service = Service::new(
+            crate::store::DatasetStore::open(workspace.path()).unwrap(),
+            crate::plugin_host::PluginHost::default(),
+            crate::data_roots::DataRoots::new([workspace.path().to_owned()]),
+            workspace.path().to_owned(),
+        );
+        let service_refusal = service
+            .dataset_list(crate::service::ListParams {
+                limit: Some(6000),
+                ..Default::default()
+            })
+            .unwrap_err();
+        assert!(service_refusal.help.unwrap().contains("offset"));
     }
 }

@@ -27,6 +27,7 @@ const RENAME: &str = r#"{"type": "object", "additionalProperties": {"type": "str
 const CSV_DIALECT: &str = r#"{"type": "object", "additionalProperties": false, "properties": {"separator": {"type": "string", "default": ",", "description": "one character, or \"tab\""}, "decimal_comma": {"type": "boolean", "default": false}, "comment_prefix": {"type": "string"}, "skip_rows": {"type": "integer", "minimum": 0, "default": 0, "description": "lines to skip before the header"}, "header": {"type": "boolean", "default": true, "description": "without a header the columns are column_1, column_2, ..."}}}"#;
 const DATASET_SUMMARY: &str = r#"{"type": "object", "required": ["name", "rows", "columns"], "properties": {"name": {"type": "string"}, "rows": {"type": "integer"}, "columns": {"type": "array", "items": {"type": "object", "properties": {"name": {"type": "string"}, "dtype": {"type": "string"}}}}, "notes": {"type": "array", "items": {"type": "string"}, "description": "things the import noticed but did not refuse, such as text columns that look like numbers with a decimal comma"}}}"#;
 const DEADLINE: &str = r#"{"type": "number", "exclusiveMinimum": 0, "maximum": 86400}"#;
+const DATASET_PAGE: &str = r#"{"type": "object", "required": ["total", "offset", "datasets"], "properties": {"total": {"type": "integer", "description": "datasets matching prefix, over all pages"}, "offset": {"type": "integer"}, "datasets": {"type": "array", "items": {"type": "object", "required": ["name", "rows", "column_count"], "properties": {"name": {"type": "string"}, "rows": {"type": "integer"}, "column_count": {"type": "integer"}}}}}}"#;
 const RUN_RESULT: &str = r#"{"type": "object", "required": ["output", "rows", "summary", "warnings"], "properties": {"output": {"type": "string"}, "rows": {"type": "integer"}, "columns": {"type": "array"}, "summary": {"type": "object"}, "warnings": {"type": "array", "items": {"type": "string"}}}}"#;
 
 /// Every method the daemon serves.
@@ -66,7 +67,16 @@ pub const METHODS: &[MethodDoc] = &[
         ],
         result: DATASET_SUMMARY,
     },
-    MethodDoc { name: "dataset.list", summary: "Every stored dataset with its rows and columns", params: &[], result: ARRAY },
+    MethodDoc {
+        name: "dataset.list",
+        summary: "A page of the stored datasets in name order: name, rows and column count of each (dataset.info has the columns and provenance); total counts every match, so a client pages with offset until it has them all",
+        params: &[
+            ("offset", false, r#"{"type": "integer", "minimum": 0, "default": 0}"#, "first dataset of the page, counted in name order among the matches"),
+            ("limit", false, r#"{"type": "integer", "minimum": 0, "maximum": 5000, "default": 200}"#, "datasets per page, at most 5000"),
+            ("prefix", false, STRING, "only datasets whose name starts with this text"),
+        ],
+        result: DATASET_PAGE,
+    },
     MethodDoc {
         name: "dataset.info",
         summary: "A dataset's rows, columns, creation time and provenance (for an analysis output also the run's summary and warnings as answered: run_summary, warnings)",
@@ -225,7 +235,7 @@ pub fn document(service: &Service) -> Value {
             });
             if !matches!(
                 method.name,
-                "rpc.discover" | "server.info" | "plugin.list" | "analysis.list" | "dataset.list" | "report.samples"
+                "rpc.discover" | "server.info" | "plugin.list" | "analysis.list" | "report.samples"
             ) {
                 entry["errors"] = Value::Array(errors.clone());
             }

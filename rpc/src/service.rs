@@ -80,6 +80,25 @@ pub struct RowsParams {
     pub limit: Option<usize>,
 }
 
+/// A page of `dataset.list`: datasets in name order from `offset`, at most `limit` of them,
+/// optionally only names that start with `prefix`.
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ListParams {
+    #[serde(default)]
+    pub offset: usize,
+    #[serde(default)]
+    pub limit: Option<usize>,
+    #[serde(default)]
+    pub prefix: Option<String>,
+}
+
+/// Datasets per `dataset.list` page unless the caller says otherwise.
+pub const DEFAULT_LIST_PAGE: usize = 200;
+/// The largest `dataset.list` page: a page stays small on the wire (a few hundred kB at
+/// most) however many datasets the workspace holds.
+pub const MAX_LIST_PAGE: usize = 5000;
+
 /// One column name or several.
 #[derive(Debug, Clone, Deserialize, Default)]
 #[serde(untagged)]
@@ -505,8 +524,41 @@ impl Service {
         })
     }
 
-    pub fn dataset_list(&self) -> Value {
-        Value::Array(self.store.list().iter().map(|d| Self::dataset_summary(d)).collect())
+    /// One page of the stored datasets, lean entries only (`dataset.info` has the columns and
+    /// provenance): the whole list at thousands of datasets was megabytes per call.
+    pub fn dataset_list(&self, params: ListParams) -> ServiceResult<Value> {
+        let limit = params.limit.unwrap_or(DEFAULT_LIST_PAGE);
+        if limit > MAX_LIST_PAGE {
+            return Err(ServiceError::invalid_params(format!(
+                "limit {limit} is above {MAX_LIST_PAGE} datasets per page"
+            ))
+            .with_help(
+                "page through the list with offset and limit (total says how many there are), or narrow it with prefix",
+            )
+            .with_param("limit"));
+        }
+        let prefix = params.prefix.as_deref().unwrap_or("");
+        // The store keeps datasets in name order, so pages are stable between calls.
+        let matching: Vec<_> = self
+            .store
+            .list()
+            .into_iter()
+            .filter(|d| d.manifest.name.starts_with(prefix))
+            .collect();
+        let total = matching.len();
+        let datasets: Vec<Value> = matching
+            .iter()
+            .skip(params.offset)
+            .take(limit)
+            .map(|d| {
+                json!({
+                    "name": d.manifest.name,
+                    "rows": d.manifest.rows,
+                    "column_count": d.manifest.columns.len(),
+                })
+            })
+            .collect();
+        Ok(json!({ "total": total, "offset": params.offset.min(total), "datasets": datasets }))
     }
 
     pub fn dataset_info(&self, name: &str) -> ServiceResult<Value> {

@@ -9,6 +9,7 @@
 
 pub mod bench;
 pub mod browser;
+pub mod load;
 pub mod node;
 
 use mobilis_client::{Client, Daemon, DaemonOptions};

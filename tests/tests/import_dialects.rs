@@ -351,7 +351,7 @@ async fn a_stations_own_exports_import_unedited_with_one_recipe_and_reduce_to_th
 
     // None of the failed imports stored anything.
     let list = daemon.call("dataset.list", json!({})).await;
-    let names: Vec<&str> = list
+    let names: Vec<&str> = list["datasets"]
         .as_array()
         .unwrap()
         .iter()

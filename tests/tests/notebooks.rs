@@ -31,7 +31,7 @@ fn the_rust_notebook_runs_against_a_real_daemon() {
         panic!("a cell of notebooks/rust-client.ipynb failed: {error}");
     }
     let datasets = runtime.block_on(daemon.call("dataset.list", serde_json::json!({})));
-    let names: Vec<&str> = datasets
+    let names: Vec<&str> = datasets["datasets"]
         .as_array()
         .unwrap()
         .iter()

@@ -134,11 +134,9 @@ macro_rules! in_both_modes {
 
 /// The `dataset.list` answer, sorted by name, for before/after comparisons.
 async fn dataset_list(daemon: &TestDaemon) -> Vec<Value> {
-    let mut list = daemon
-        .call("dataset.list", json!({}))
-        .await
+    let mut list = daemon.call("dataset.list", json!({})).await["datasets"]
         .as_array()
-        .expect("dataset.list returns an array")
+        .expect("dataset.list returns a page of datasets")
         .clone();
     list.sort_by_key(|entry| entry["name"].as_str().unwrap_or_default().to_owned());
     list

@@ -7,6 +7,8 @@
 
 #[path = "reliability/counts.rs"]
 mod counts;
+#[path = "reliability/load.rs"]
+mod load;
 #[path = "reliability/plugin_isolation.rs"]
 mod plugin_isolation;
 #[path = "reliability/store_crashes.rs"]

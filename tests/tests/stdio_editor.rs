@@ -199,15 +199,15 @@ fn an_editor_runs_a_call_with_progress_then_cancels_one_over_stdio() {
     let answers = batch.as_array().expect("a batch is answered as a batch");
     assert_eq!(answers.len(), 2, "{batch}");
     // Only the completed call stored a dataset; the cancelled one stored nothing.
-    assert_eq!(answers[0]["result"][0]["name"], "waited", "{batch}");
-    assert_eq!(answers[0]["result"].as_array().map(Vec::len), Some(1), "{batch}");
+    assert_eq!(answers[0]["result"]["datasets"][0]["name"], "waited", "{batch}");
+    assert_eq!(answers[0]["result"]["total"], 1, "{batch}");
     assert_eq!(answers[1]["error"]["code"], -32601);
     editor.send_raw(b"{not json");
     assert_eq!(editor.next()["error"]["code"], -32700);
 
     // The daemon still serves, and closing stdin ends it cleanly.
     editor.request(9, "dataset.list", json!({}));
-    assert_eq!(editor.until_response(9).1["result"][0]["name"], "waited");
+    assert_eq!(editor.until_response(9).1["result"]["datasets"][0]["name"], "waited");
     drop(editor.stdin.take());
     let status = editor.child.wait().expect("mobilisd exits");
     assert!(status.success(), "mobilisd exited with {status}");

@@ -141,8 +141,12 @@ enum Command {
         #[arg(long)]
         si: bool,
     },
-    /// List the stored datasets.
-    Datasets,
+    /// List the stored datasets (every page of dataset.list, in name order).
+    Datasets {
+        /// Only datasets whose name starts with this text.
+        #[arg(long)]
+        prefix: Option<String>,
+    },
     /// Write a dataset to a file (a path on the daemon's machine).
     Export {
         /// The dataset to write.
@@ -338,14 +342,29 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             print!("{}", describe::render(&description));
             Ok(())
         }
-        Command::Datasets => {
-            let list = connect(&cli).await?.call("dataset.list", json!({})).await?;
-            for entry in list.as_array().into_iter().flatten() {
-                println!(
-                    "{:<32} {:>10} rows",
-                    entry["name"].as_str().unwrap_or(""),
-                    entry["rows"]
-                );
+        Command::Datasets { prefix } => {
+            let client = connect(&cli).await?;
+            // dataset.list answers a page at a time; walk the pages until total is reached.
+            let mut offset = 0u64;
+            loop {
+                let mut params = json!({ "offset": offset, "limit": 1000 });
+                if let Some(prefix) = &prefix {
+                    params["prefix"] = json!(prefix);
+                }
+                let page = client.call("dataset.list", params).await?;
+                let entries = page["datasets"].as_array().cloned().unwrap_or_default();
+                for entry in &entries {
+                    println!(
+                        "{:<32} {:>10} rows {:>4} columns",
+                        entry["name"].as_str().unwrap_or(""),
+                        entry["rows"],
+                        entry["column_count"]
+                    );
+                }
+                offset += entries.len() as u64;
+                if entries.is_empty() || offset >= page["total"].as_u64().unwrap_or(0) {
+                    break;
+                }
             }
             Ok(())
         }

@@ -44,8 +44,11 @@ for (const transport of TRANSPORTS) {
       assert.deepEqual(page.columns, columns);
       const second = await c.rows(name, { offset: 1, limit: 1 });
       assert.deepEqual(second.columns.temperature_K, [150.5]);
-      const listed = await c.listDatasets();
+      const listed = await c.allDatasets();
       assert.ok(listed.some((dataset) => dataset.name === name && dataset.rows === 3));
+      const onePage = await c.listDatasets({ prefix: name, limit: 1 });
+      assert.equal(onePage.total, 1);
+      assert.deepEqual(onePage.datasets, [{ name, rows: 3, column_count: 3 }]);
     } finally {
       c.close();
     }

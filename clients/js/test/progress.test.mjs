@@ -106,7 +106,7 @@ for (const transport of TRANSPORTS) {
       const last = events[events.length - 1];
       assert.equal(last.kind, "end", JSON.stringify(events));
       assert.equal(/** @type {any} */ (last).outcome, "cancelled");
-      assert.ok(!(await c.listDatasets()).some((dataset) => dataset.name === output), "a cancelled run stores nothing");
+      assert.ok(!(await c.allDatasets()).some((dataset) => dataset.name === output), "a cancelled run stores nothing");
 
       const short = await c.run(waitRun(0.05, uniqueName(`after_${transport}`)));
       assert.equal(short.rows, 1);
@@ -123,7 +123,7 @@ for (const transport of TRANSPORTS) {
         c.run(waitRun(0.05, output), { signal: AbortSignal.abort() }),
         (e) => e instanceof MobilisError && e.code === ERROR_CODES.cancelled,
       );
-      assert.ok(!(await c.listDatasets()).some((dataset) => dataset.name === output));
+      assert.ok(!(await c.allDatasets()).some((dataset) => dataset.name === output));
     } finally {
       c.close();
     }

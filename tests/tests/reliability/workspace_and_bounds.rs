@@ -201,9 +201,7 @@ async fn paths_into_the_workspace_are_refused_and_change_nothing() {
     lost += lost_files(&before, &workspace);
     // The datasets are all still there after a restart.
     let daemon = daemon.restart().await;
-    let names: Vec<String> = daemon
-        .call("dataset.list", json!({}))
-        .await
+    let names: Vec<String> = daemon.call("dataset.list", json!({})).await["datasets"]
         .as_array()
         .unwrap()
         .iter()

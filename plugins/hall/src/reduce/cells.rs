@@ -226,12 +226,24 @@ pub(super) fn summarize_cell(readings: &[Prepared]) -> CellSummary {
     let mut min_current = f64::INFINITY;
     let mut max_current = f64::NEG_INFINITY;
     let mut max_abs_current = 0.0_f64;
+    // The first pass also gathers, per current polarity, the sums of the means of V/I and
+    // of |B| (index 0: positive current, 1: negative), each in reading order as its own
+    // pass would: one walk over the cell instead of five.
+    let mut polarity_sums = [RatioSums::default(); 2];
+    let mut field_sums = [(0.0_f64, 0usize); 2];
     for reading in readings {
         sum_current += reading.current_a;
         sum_voltage += reading.voltage_v;
         min_current = min_current.min(reading.current_a);
         max_current = max_current.max(reading.current_a);
         max_abs_current = max_abs_current.max(reading.current_a.abs());
+        if reading.current_a > 0.0 {
+            polarity_sums[0].add(reading);
+        } else if reading.current_a < 0.0 {
+            polarity_sums[1].add(reading);
+        }
+        let side = usize::from(!(reading.current_a > 0.0));
+        field_sums[side] = (field_sums[side].0 + reading.field_t.abs(), field_sums[side].1 + 1);
     }
     let mean_current = sum_current / n;
     let mean_voltage = sum_voltage / n;
@@ -286,15 +298,9 @@ pub(super) fn summarize_cell(readings: &[Prepared]) -> CellSummary {
             max_abs_current_a: max_abs_current,
         }
     };
-    let positive = ratio_mean(readings.iter().filter(|reading| reading.current_a > 0.0));
-    let negative = ratio_mean(readings.iter().filter(|reading| reading.current_a < 0.0));
-    let mean_field = |positive_current: bool| {
-        let (sum, count) = readings
-            .iter()
-            .filter(|reading| (reading.current_a > 0.0) == positive_current)
-            .fold((0.0, 0usize), |(sum, count), reading| {
-                (sum + reading.field_t.abs(), count + 1)
-            });
+    let positive = polarity_sums[0].finish(readings.iter().filter(|reading| reading.current_a > 0.0));
+    let negative = polarity_sums[1].finish(readings.iter().filter(|reading| reading.current_a < 0.0));
+    let mean_field = |(sum, count): (f64, usize)| {
         if count > 0 {
             sum / count as f64
         } else {
@@ -304,37 +310,55 @@ pub(super) fn summarize_cell(readings: &[Prepared]) -> CellSummary {
     CellSummary {
         fit,
         polarity: [positive, negative],
-        polarity_field_t: [mean_field(true), mean_field(false)],
+        polarity_field_t: [mean_field(field_sums[0]), mean_field(field_sums[1])],
         noise,
+    }
+}
+
+/// The first-pass sums of [`ratio_mean`], gathered while another pass walks the cell.
+#[derive(Clone, Copy, Default)]
+struct RatioSums {
+    count: usize,
+    sum: f64,
+    sum_inverse_square_current: f64,
+}
+
+impl RatioSums {
+    #[inline]
+    fn add(&mut self, reading: &Prepared) {
+        self.count += 1;
+        self.sum += reading.voltage_v / reading.current_a;
+        self.sum_inverse_square_current += 1.0 / (reading.current_a * reading.current_a);
+    }
+
+    /// [`ratio_mean`] from these sums and its second pass over the same readings.
+    fn finish<'a>(self, readings: impl Iterator<Item = &'a Prepared>) -> Option<Estimate> {
+        if self.count == 0 {
+            return None;
+        }
+        let n = self.count as f64;
+        let mean = self.sum / n;
+        let standard_error = (self.count >= 2).then(|| {
+            let sum_of_squares: f64 = readings
+                .map(|reading| (reading.voltage_v / reading.current_a - mean).powi(2))
+                .sum();
+            (sum_of_squares / (n - 1.0) / n).sqrt()
+        });
+        Some(Estimate {
+            value: mean,
+            standard_error,
+            noise_coefficient: self.sum_inverse_square_current.sqrt() / n,
+        })
     }
 }
 
 /// Mean of V/I and its standard error, in two passes over an iterator that can be cloned.
 fn ratio_mean<'a>(readings: impl Iterator<Item = &'a Prepared> + Clone) -> Option<Estimate> {
-    let mut count = 0usize;
-    let mut sum = 0.0;
-    let mut sum_inverse_square_current = 0.0;
+    let mut sums = RatioSums::default();
     for reading in readings.clone() {
-        count += 1;
-        sum += reading.voltage_v / reading.current_a;
-        sum_inverse_square_current += 1.0 / (reading.current_a * reading.current_a);
+        sums.add(reading);
     }
-    if count == 0 {
-        return None;
-    }
-    let n = count as f64;
-    let mean = sum / n;
-    let standard_error = (count >= 2).then(|| {
-        let sum_of_squares: f64 = readings
-            .map(|reading| (reading.voltage_v / reading.current_a - mean).powi(2))
-            .sum();
-        (sum_of_squares / (n - 1.0) / n).sqrt()
-    });
-    Some(Estimate {
-        value: mean,
-        standard_error,
-        noise_coefficient: sum_inverse_square_current.sqrt() / n,
-    })
+    sums.finish(readings)
 }
 
 /// Below this fraction of the temperature, neighbouring readings may share a temperature

@@ -2,8 +2,10 @@
 //!
 //! **API Boundary.** Everything here is `#[repr(C)]` and mirrored field by field in
 //! `core/include/mobilis_plugin.h`; change both or neither, and bump [`ABI_MAJOR`] for any
-//! change that an older host or plugin would misread. Adding a status code or a field at
-//! the *end* of [`PluginDescriptor`] is a minor change.
+//! change that an older host or plugin would misread. Adding a status code, a declaration
+//! feature or a field at the *end* of [`PluginDescriptor`] is a minor change; a host reads
+//! an appended field only from plugins whose `abi_minor` is at least the version that
+//! added it.
 //!
 //! A plugin exports one function, [`ENTRY_SYMBOL`], returning a pointer to a static
 //! [`PluginDescriptor`]. The first two fields of the descriptor (`abi_major`, `abi_minor`)

@@ -48,7 +48,9 @@
 //!   the host, so this is the whole cost of the boundary (both ways) for this table, with
 //!   no compute. (c) `table_ffi::export_frame` followed by `table_ffi::import_frame` in the
 //!   same process: one crossing without a plugin. (b') and (c'): the same without the
-//!   `sample` column, so that the difference is what the text column costs.
+//!   `sample` column. Every column crosses without a copy (text as Arrow string views, see
+//!   `mobilis_core::table_ffi`), so the difference between (b) and (b') is what the text
+//!   column costs: one buffer more, no copy.
 //! - `isolated`: (a-iso) and (b-iso): (a) and (b) with the plugins isolated, as the daemon
 //!   runs a `--plugin-dir` library: the call goes to a worker process (`mobilisd
 //!   --plugin-worker`, the release binary), inputs and output cross its pipes as Arrow IPC.

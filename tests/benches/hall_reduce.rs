@@ -343,11 +343,13 @@ fn signed(seconds: f64) -> String {
     format!("{sign}{}", format_seconds(seconds.abs()))
 }
 
+/// A call of an analysis through a host.
+type Invoke<'a> = &'a dyn Fn(&str, &[(String, DataFrame)]) -> mobilis_rpc::plugin_host::InvokeSuccess;
+/// A call of `hall.reduce` through a host.
+type InvokeReduce<'a> = &'a dyn Fn(&[(String, DataFrame)]) -> mobilis_rpc::plugin_host::InvokeSuccess;
+
 /// The boundary figures (b), (b'), (c), (c').
-fn boundary(
-    readings: &DataFrame,
-    invoke: &dyn Fn(&str, &[(String, DataFrame)]) -> mobilis_rpc::plugin_host::InvokeSuccess,
-) {
+fn boundary(readings: &DataFrame, invoke: Invoke<'_>) {
     let numeric = readings
         .drop("sample")
         .unwrap_or_else(|error| fail(&format!("cannot drop the sample column: {error}")));
@@ -392,12 +394,7 @@ fn boundary(
 /// 10 samples of the dataset; the 1e7 table is the dataset tiled ten times under new sample
 /// names (the readings repeat, which costs the reduction exactly what new ones would: it
 /// does the same work whatever the values), so that generating it stays a matter of seconds.
-fn scaling(
-    readings: &DataFrame,
-    sheet: &DataFrame,
-    invoke: &dyn Fn(&[(String, DataFrame)]) -> mobilis_rpc::plugin_host::InvokeSuccess,
-    million: Option<Timing>,
-) {
+fn scaling(readings: &DataFrame, sheet: &DataFrame, invoke: InvokeReduce<'_>, million: Option<Timing>) {
     let per_sample = SETPOINT_COUNT * READINGS_PER_TEMPERATURE;
     println!();
     header("hall.reduce as the readings grow (one call)");
@@ -413,8 +410,7 @@ fn scaling(
                     tiled(readings, sheet, samples / SAMPLE_COUNT)
                 };
                 let inputs = vec![("readings".to_owned(), table), ("samples".to_owned(), sample_sheet)];
-                let timing = bench::measure(WARM_UP, repetitions, || invoke(&inputs));
-                timing
+                bench::measure(WARM_UP, repetitions, || invoke(&inputs))
             }
         };
         line(

@@ -1203,7 +1203,7 @@ impl ContactTables {
     fn index(i_in: i64, i_out: i64, v_pos: i64, v_neg: i64) -> Option<usize> {
         let in_range = |contact: i64| (0..8).contains(&contact);
         (in_range(i_in) && in_range(i_out) && in_range(v_pos) && in_range(v_neg))
-            .then(|| ((i_in as usize) << 9) | ((i_out as usize) << 6) | ((v_pos as usize) << 3) | v_neg as usize)
+            .then_some(((i_in as usize) << 9) | ((i_out as usize) << 6) | ((v_pos as usize) << 3) | v_neg as usize)
     }
 
     fn entry(classified: Result<Classified, ContactError>, configurations: &[Configuration]) -> u8 {

@@ -242,7 +242,7 @@ pub(super) fn summarize_cell(readings: &[Prepared]) -> CellSummary {
         } else if reading.current_a < 0.0 {
             polarity_sums[1].add(reading);
         }
-        let side = usize::from(!(reading.current_a > 0.0));
+        let side = if reading.current_a > 0.0 { 0 } else { 1 };
         field_sums[side] = (field_sums[side].0 + reading.field_t.abs(), field_sums[side].1 + 1);
     }
     let mean_current = sum_current / n;

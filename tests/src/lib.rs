@@ -8,6 +8,7 @@
 //! is skipped.
 
 pub mod bench;
+pub mod hall_readings;
 pub mod browser;
 pub mod load;
 pub mod node;

@@ -770,7 +770,10 @@ mod tests {
             comment_prefix: Some("#".into()),
             ..CsvDialect::default()
         };
-        let plain = ["sample,temperature (K),i_in,x\nW1,4.5,1,\nW2,300,2,7e-3\nW3,1e2,3,-0", "a,b\n1,2"];
+        let plain = [
+            "sample,temperature (K),i_in,x\nW1,4.5,1,\nW2,300,2,7e-3\nW3,1e2,3,-0",
+            "a,b\n1,2",
+        ];
         for text in plain {
             assert!(plain_file_rows(text, &CsvDialect::default()).is_some(), "{text}");
             let (fast, fast_map) = read(text, &CsvDialect::default()).unwrap();

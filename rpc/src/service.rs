@@ -244,7 +244,10 @@ pub fn frame_to_json_columns(frame: &DataFrame) -> serde_json::Map<String, Value
                 .f64()
                 .expect("a Float64 column")
                 .iter()
-                .map(|v| v.and_then(serde_json::Number::from_f64).map_or(Value::Null, Value::Number))
+                .map(|v| {
+                    v.and_then(serde_json::Number::from_f64)
+                        .map_or(Value::Null, Value::Number)
+                })
                 .collect(),
             DataType::Int64 => series
                 .i64()

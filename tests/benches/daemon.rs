@@ -266,11 +266,31 @@ fn main() {
             format!("<= {}", format_seconds(goal_s))
         );
     };
-    line("dataset.import, 1e6 rows x 9 columns, CSV", &import_csv, IMPORT_CSV_GOAL_S);
-    line("dataset.import, the same as Parquet", &import_parquet, IMPORT_PARQUET_GOAL_S);
-    line("analysis.run hall.reduce on 1e6 readings, output stored", &run, RUN_GOAL_S);
-    line("server.info round trip, HTTP keep-alive", &server_info_http, SERVER_INFO_HTTP_GOAL_S);
-    line("server.info round trip, WebSocket", &server_info_ws, SERVER_INFO_WS_GOAL_S);
+    line(
+        "dataset.import, 1e6 rows x 9 columns, CSV",
+        &import_csv,
+        IMPORT_CSV_GOAL_S,
+    );
+    line(
+        "dataset.import, the same as Parquet",
+        &import_parquet,
+        IMPORT_PARQUET_GOAL_S,
+    );
+    line(
+        "analysis.run hall.reduce on 1e6 readings, output stored",
+        &run,
+        RUN_GOAL_S,
+    );
+    line(
+        "server.info round trip, HTTP keep-alive",
+        &server_info_http,
+        SERVER_INFO_HTTP_GOAL_S,
+    );
+    line(
+        "server.info round trip, WebSocket",
+        &server_info_ws,
+        SERVER_INFO_WS_GOAL_S,
+    );
     line("dataset.rows, 10,000 rows x 9 columns, HTTP", &rows, ROWS_GOAL_S);
     println!("pieces in the daemon, medians of the timed calls:");
     println!("  dataset.import CSV: {}", describe_pieces(&csv_pieces));

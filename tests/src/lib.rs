@@ -8,8 +8,8 @@
 //! is skipped.
 
 pub mod bench;
-pub mod hall_readings;
 pub mod browser;
+pub mod hall_readings;
 pub mod load;
 pub mod node;
 

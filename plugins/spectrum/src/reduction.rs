@@ -15,7 +15,8 @@
 //! B_max / 100, then geometric with edges B_0 (1 + delta)^k up to B_max, delta =
 //! [`RELATIVE_BIN_WIDTH`]. A bin holding fewer than [`MIN_READINGS_PER_BIN`] readings of
 //! a field sign that it reaches is merged with the next. Readings at zero field (within the
-//! zero-field tolerance) are kept as measured.
+//! zero-field tolerance) are kept as measured (with stated uncertainties) or averaged into
+//! one point (without).
 //!
 //! # Why the information is kept
 //!
@@ -37,11 +38,17 @@
 //! Each bin value carries its propagated standard uncertainty: the value is a linear
 //! combination sum w_i y_i of the readings, so its variance is sum w_i^2 u_i^2 with the
 //! stated uncertainties u_i (and the covariance of rho_xx and rho_xy alike), or, when none
-//! are stated, s^2 sum w_i^2 with s^2 the residual variance about the bin's line (n - 2
-//! degrees of freedom), the estimate of the noise from the scatter of the readings. The
-//! analyses then weight the bins by these uncertainties. When the readings are noise-free
-//! (a residual variance of zero somewhere) no uncertainties are attached, as for the
-//! readings themselves.
+//! are stated, s^2 sum w_i^2 with s^2 the residual variance about the bins' lines, pooled
+//! over neighbouring bins of the same sign until it has 20 degrees of freedom (the noise
+//! changes slowly with field; a bin's own few readings would make its weight as noisy as
+//! their scatter). The analyses then weight the bins by these uncertainties. When the
+//! readings are noise-free (a pooled scatter of zero somewhere) no uncertainties are
+//! attached, as for the readings themselves.
+//!
+//! A bin is never wider than the grid says merely to gather readings: it is merged with the
+//! next only while a sign in it has fewer than [`MIN_READINGS_PER_BIN`] (3, a line and one
+//! degree of freedom), which happens only where the readings are sparser than the bins, so
+//! that the curvature bound above holds wherever the reduction averages.
 
 use mobilis_core::sweep::{ResistivityUncertainty, SweepPoint};
 
@@ -51,9 +58,9 @@ pub const REDUCTION_THRESHOLD: usize = 2000;
 pub const RELATIVE_BIN_WIDTH: f64 = 0.015;
 /// The linear bins reach up to this fraction of the largest |B|.
 const LINEAR_PART: f64 = 0.01;
-/// Fewest readings of a field sign in a bin: enough for a line and a scatter estimate
-/// with a few degrees of freedom.
-pub const MIN_READINGS_PER_BIN: usize = 8;
+/// Fewest readings of a field sign in a bin: enough for a line and one degree of freedom
+/// of scatter (the noise estimate pools neighbouring bins).
+pub const MIN_READINGS_PER_BIN: usize = 3;
 
 /// A reduced sweep.
 #[derive(Debug, Clone, PartialEq)]
@@ -155,49 +162,60 @@ pub fn reduce(points: &[SweepPoint], zero_field_tolerance_t: f64) -> Option<Redu
         }
     }
 
+    let with_stated = stated != 0;
     let mut reduced: Vec<SweepPoint> = Vec::with_capacity(2 * groups.len() + zero.len());
-    let mut estimated = Vec::new();
+    // Per field sign, the bins in field order with their residual scatter, for the pooled
+    // estimate of the noise when no uncertainties are stated.
+    let mut fits: [Vec<BinFit>; 2] = [Vec::new(), Vec::new()];
+    let mut kept_as_measured = Vec::new();
     for group in &groups {
         let count = group[0].len() + group[1].len();
         let centroid = group.iter().flatten().map(|&i| points[i].field_t.abs()).sum::<f64>() / count as f64;
         for (sign, indices) in group.iter().enumerate() {
-            if indices.is_empty() {
-                continue;
-            }
             let readings: Vec<&SweepPoint> = indices.iter().map(|&i| &points[i]).collect();
-            if readings.len() < 3 {
-                // Too few for a line and its scatter (only at the end of a branch that
-                // stops short of the other): kept as measured.
-                reduced.extend(readings.iter().map(|p| **p));
+            if readings.is_empty() {
                 continue;
             }
-            let (point, scatter) = line_value(&readings, centroid, if sign == 0 { 1.0 } else { -1.0 });
-            reduced.push(point);
-            estimated.push(scatter);
+            if readings.len() < MIN_READINGS_PER_BIN {
+                // Too few for a line and its scatter (only in a sweep too short to merge
+                // into bins): kept as measured.
+                kept_as_measured.extend(readings.iter().map(|p| **p));
+                continue;
+            }
+            fits[sign].push(line_fit(&readings, centroid, if sign == 0 { 1.0 } else { -1.0 }));
         }
     }
-    let with_stated = stated != 0;
-    let noise_free = estimated.iter().any(|s| s.is_none());
     if with_stated {
-        reduced.extend(zero);
-    } else if noise_free {
-        // Noise-free readings: no bin gets an uncertainty, as no reading had one.
-        for point in reduced.iter_mut() {
-            point.uncertainty = None;
+        for fit in fits.iter().flatten() {
+            reduced.push(fit.point);
         }
+        reduced.extend(kept_as_measured);
         reduced.extend(zero);
     } else {
-        // Every point needs an uncertainty now: the few readings kept as measured (none
-        // known for them) are dropped, and the zero-field readings become one point whose
-        // uncertainty is estimated from their own scatter (dropped when fewer than 3).
-        reduced.retain(|p| p.uncertainty.is_some());
-        if zero.len() >= 3 {
+        let pooled: Vec<Option<ResistivityUncertainty>> =
+            fits.iter().flat_map(|sign| pooled_uncertainties(sign)).collect();
+        let noise_free = pooled.iter().any(|u| u.is_none());
+        for (fit, uncertainty) in fits.iter().flatten().zip(&pooled) {
+            reduced.push(SweepPoint {
+                uncertainty: if noise_free { None } else { *uncertainty },
+                ..fit.point
+            });
+        }
+        if noise_free {
+            // Noise-free readings: no point gets an uncertainty, as no reading had one.
+            reduced.extend(kept_as_measured);
+            reduced.extend(zero);
+        } else if zero.len() >= MIN_READINGS_PER_BIN {
+            // Every point needs an uncertainty now: the zero-field readings become one point
+            // whose uncertainty is estimated from their own scatter (the few readings kept
+            // as measured, with none known, are left out).
             let refs: Vec<&SweepPoint> = zero.iter().collect();
-            if let (point, Some(u)) = line_value(&refs, 0.0, 1.0) {
+            let fit = line_fit(&refs, 0.0, 1.0);
+            if let Some(u) = pooled_uncertainties(std::slice::from_ref(&fit))[0] {
                 reduced.push(SweepPoint {
                     field_t: 0.0,
                     uncertainty: Some(u),
-                    ..point
+                    ..fit.point
                 });
             }
         }
@@ -212,11 +230,54 @@ pub fn reduce(points: &[SweepPoint], zero_field_tolerance_t: f64) -> Option<Redu
     })
 }
 
-/// The straight-line fit of rho_xx and rho_xy against |B| of `readings` evaluated at
-/// `centroid` (given the field sign `sign`), with the stated uncertainties propagated when
-/// the readings carry them, and the uncertainty estimated from the residual scatter
-/// (second value; `None` when the scatter vanishes).
-fn line_value(readings: &[&SweepPoint], centroid: f64, sign: f64) -> (SweepPoint, Option<ResistivityUncertainty>) {
+/// Degrees of freedom the pooled noise estimate of a bin gathers from its neighbours (of
+/// the same field sign) at least: a variance estimated with 20 has a relative standard
+/// deviation of sqrt(2 / 20) = 32 %, so weights built on it stay close to the true ones.
+const POOLED_DEGREES: f64 = 20.0;
+
+/// One bin and field sign: its value at the shared field and what its scatter says.
+#[derive(Debug, Clone, Copy)]
+struct BinFit {
+    /// With the propagated uncertainty when the readings state theirs.
+    point: SweepPoint,
+    /// Residual sums of squares (xx, xy) and cross products about the bin's lines.
+    residual_xx: f64,
+    residual_xy: f64,
+    residual_cross: f64,
+    degrees: f64,
+    /// sum w_i^2 of the bin value's weights: its variance over the readings' variance.
+    weight_square_sum: f64,
+}
+
+/// The uncertainties of a field sign's bins from the residual scatter about their lines,
+/// pooled over neighbouring bins until [`POOLED_DEGREES`] are reached (the noise varies
+/// slowly with field, and a bin of a few readings alone would give a weight as noisy as its
+/// scatter); `None` where the pooled scatter vanishes (noise-free readings).
+fn pooled_uncertainties(bins: &[BinFit]) -> Vec<Option<ResistivityUncertainty>> {
+    (0..bins.len())
+        .map(|i| {
+            let (mut low, mut high) = (i, i + 1);
+            let sum = |low: usize, high: usize, f: &dyn Fn(&BinFit) -> f64| bins[low..high].iter().map(f).sum::<f64>();
+            while sum(low, high, &|b| b.degrees) < POOLED_DEGREES && (low > 0 || high < bins.len()) {
+                low = low.saturating_sub(1);
+                high = (high + 1).min(bins.len());
+            }
+            let degrees = sum(low, high, &|b| b.degrees);
+            let (xx, xy, cross) = (
+                sum(low, high, &|b| b.residual_xx),
+                sum(low, high, &|b| b.residual_xy),
+                sum(low, high, &|b| b.residual_cross),
+            );
+            let scale = bins[i].weight_square_sum / degrees;
+            (degrees > 0.0 && xx > 0.0 && xy > 0.0).then(|| uncertainty_of(xx * scale, xy * scale, cross * scale))
+        })
+        .collect()
+}
+
+/// The straight-line fit of rho_xx and rho_xy against |B| of `readings` (at least 3)
+/// evaluated at `centroid`, given the field sign `sign`, with the stated uncertainties
+/// propagated when the readings carry them, and the residual scatter about the lines.
+fn line_fit(readings: &[&SweepPoint], centroid: f64, sign: f64) -> BinFit {
     let n = readings.len() as f64;
     let mean_b = readings.iter().map(|p| p.field_t.abs()).sum::<f64>() / n;
     let sxx: f64 = readings.iter().map(|p| (p.field_t.abs() - mean_b).powi(2)).sum();
@@ -235,7 +296,7 @@ fn line_value(readings: &[&SweepPoint], centroid: f64, sign: f64) -> (SweepPoint
     let value = |y: &dyn Fn(&SweepPoint) -> f64| -> f64 { readings.iter().zip(&weights).map(|(p, w)| w * y(p)).sum() };
     let rho_xx = value(&|p| p.rho_xx_ohm_sq);
     let rho_xy = value(&|p| p.rho_xy_ohm);
-    let sum_w2: f64 = weights.iter().map(|w| w * w).sum();
+    let weight_square_sum: f64 = weights.iter().map(|w| w * w).sum();
     let stated = readings.iter().all(|p| p.uncertainty.is_some()).then(|| {
         let (mut var_xx, mut var_xy, mut cov) = (0.0, 0.0, 0.0);
         for (p, w) in readings.iter().zip(&weights) {
@@ -246,7 +307,6 @@ fn line_value(readings: &[&SweepPoint], centroid: f64, sign: f64) -> (SweepPoint
         }
         uncertainty_of(var_xx, var_xy, cov)
     });
-    // Residuals about each component's line.
     let line = |y: &dyn Fn(&SweepPoint) -> f64| -> (f64, f64) {
         let mean_y = readings.iter().map(|p| y(p)).sum::<f64>() / n;
         let slope = if sxx > 0.0 {
@@ -262,25 +322,28 @@ fn line_value(readings: &[&SweepPoint], centroid: f64, sign: f64) -> (SweepPoint
     };
     let (mean_xx, slope_xx) = line(&|p| p.rho_xx_ohm_sq);
     let (mean_xy, slope_xy) = line(&|p| p.rho_xy_ohm);
-    let dof = if sxx > 0.0 { n - 2.0 } else { n - 1.0 };
-    let (mut ss_xx, mut ss_xy, mut ss_cross) = (0.0, 0.0, 0.0);
+    let (mut residual_xx, mut residual_xy, mut residual_cross) = (0.0, 0.0, 0.0);
     for p in readings {
         let db = p.field_t.abs() - mean_b;
         let r_xx = p.rho_xx_ohm_sq - mean_xx - slope_xx * db;
         let r_xy = p.rho_xy_ohm - mean_xy - slope_xy * db;
-        ss_xx += r_xx * r_xx;
-        ss_xy += r_xy * r_xy;
-        ss_cross += r_xx * r_xy;
+        residual_xx += r_xx * r_xx;
+        residual_xy += r_xy * r_xy;
+        residual_cross += r_xx * r_xy;
     }
-    let scatter = (dof > 0.0 && ss_xx > 0.0 && ss_xy > 0.0)
-        .then(|| uncertainty_of(ss_xx / dof * sum_w2, ss_xy / dof * sum_w2, ss_cross / dof * sum_w2));
-    let point = SweepPoint {
-        field_t: sign * centroid,
-        rho_xx_ohm_sq: rho_xx,
-        rho_xy_ohm: rho_xy,
-        uncertainty: stated.or(scatter),
-    };
-    (point, scatter)
+    BinFit {
+        point: SweepPoint {
+            field_t: sign * centroid,
+            rho_xx_ohm_sq: rho_xx,
+            rho_xy_ohm: rho_xy,
+            uncertainty: stated,
+        },
+        residual_xx,
+        residual_xy,
+        residual_cross,
+        degrees: if sxx > 0.0 { n - 2.0 } else { n - 1.0 },
+        weight_square_sum,
+    }
 }
 
 fn uncertainty_of(var_xx: f64, var_xy: f64, cov: f64) -> ResistivityUncertainty {

@@ -680,16 +680,33 @@ impl Svd {
         // a stricter test could chase rounding forever).
         let tolerance = (m as f64).sqrt().max(1.0) * f64::EPSILON;
         let mut converged = n < 2;
+        // The squared norm of each column as `dot` gives it, kept while the column is not
+        // rotated: the same value a fresh `dot` would return, so caching it changes no
+        // result, and late sweeps (few rotations) then need one product per pair, not three.
+        let mut squared: Vec<Option<f64>> = vec![None; n];
         for _ in 0..JACOBI_MAX_SWEEPS {
             let mut rotated = false;
             for p in 0..n {
                 for q in p + 1..n {
-                    let alpha = dot(&columns[p], &columns[p]);
-                    let beta = dot(&columns[q], &columns[q]);
-                    let gamma = dot(&columns[p], &columns[q]);
+                    let (alpha, beta, gamma) = match (squared[p], squared[q]) {
+                        (Some(alpha), Some(beta)) => (alpha, beta, dot(&columns[p], &columns[q])),
+                        (Some(alpha), None) => {
+                            let (beta, gamma) = dot_pair(&columns[q], &columns[p]);
+                            (alpha, beta, gamma)
+                        }
+                        (None, Some(beta)) => {
+                            let (alpha, gamma) = dot_pair(&columns[p], &columns[q]);
+                            (alpha, beta, gamma)
+                        }
+                        (None, None) => dot_triple(&columns[p], &columns[q]),
+                    };
+                    squared[p] = Some(alpha);
+                    squared[q] = Some(beta);
                     if gamma == 0.0 || gamma.abs() <= tolerance * alpha.sqrt() * beta.sqrt() {
                         continue;
                     }
+                    squared[p] = None;
+                    squared[q] = None;
                     rotated = true;
                     // The rotation that makes columns p and q orthogonal:
                     // tan(theta) = t, the smaller root of t^2 + 2 zeta t - 1 = 0.
@@ -796,6 +813,32 @@ impl Svd {
 }
 
 /// Applies the plane rotation (c, s) to the column pair (p, q).
+/// (a . a, a . b) in one pass, each sum in the order of [`dot`] (so the values are the
+/// same to the last bit): the two chains of additions interleave, which is what makes it
+/// faster than two passes.
+fn dot_pair(a: &[f64], b: &[f64]) -> (f64, f64) {
+    debug_assert_eq!(a.len(), b.len());
+    // -0.0 is the start of the standard library's float sum, which `dot` uses.
+    let (mut aa, mut ab) = (-0.0, -0.0);
+    for (x, y) in a.iter().zip(b) {
+        aa += x * x;
+        ab += x * y;
+    }
+    (aa, ab)
+}
+
+/// (a . a, b . b, a . b) in one pass, as [`dot_pair`].
+fn dot_triple(a: &[f64], b: &[f64]) -> (f64, f64, f64) {
+    debug_assert_eq!(a.len(), b.len());
+    let (mut aa, mut bb, mut ab) = (-0.0, -0.0, -0.0);
+    for (x, y) in a.iter().zip(b) {
+        aa += x * x;
+        bb += y * y;
+        ab += x * y;
+    }
+    (aa, bb, ab)
+}
+
 fn rotate(p: &mut [f64], q: &mut [f64], c: f64, s: f64) {
     for (a, b) in p.iter_mut().zip(q.iter_mut()) {
         let (x, y) = (*a, *b);
@@ -808,6 +851,24 @@ fn rotate(p: &mut [f64], q: &mut [f64], c: f64, s: f64) {
 mod tests {
     use super::*;
     use crate::noise::Rng;
+
+    #[test]
+    fn fused_products_equal_dot_to_the_bit() {
+        let mut rng = Rng::seeded(5);
+        for len in [0, 1, 7, 280, 1001] {
+            let a: Vec<f64> = (0..len).map(|_| rng.standard_normal() * 1e3).collect();
+            let b: Vec<f64> = (0..len).map(|_| rng.standard_normal() * 1e-3).collect();
+            let (aa, bb, ab) = dot_triple(&a, &b);
+            assert_eq!(aa.to_bits(), dot(&a, &a).to_bits());
+            assert_eq!(bb.to_bits(), dot(&b, &b).to_bits());
+            assert_eq!(ab.to_bits(), dot(&a, &b).to_bits());
+            let (aa, ab) = dot_pair(&a, &b);
+            assert_eq!(
+                (aa.to_bits(), ab.to_bits()),
+                (dot(&a, &a).to_bits(), dot(&a, &b).to_bits())
+            );
+        }
+    }
 
     fn assert_matrix_close(actual: &Matrix, expected: &Matrix, tolerance: f64) {
         assert_eq!((actual.rows(), actual.cols()), (expected.rows(), expected.cols()));

@@ -64,6 +64,7 @@ pub const METHODS: &[MethodDoc] = &[
             ("units", false, UNITS, "{column: unit} or {column: {unit, to}}, columns named after rename: convert into SI and rename by the quantity_unit convention"),
             ("csv", false, CSV_DIALECT, "CSV dialect: separator, decimal_comma, comment_prefix, skip_rows (lines before the header), header; rows with another number of fields than the header are errors naming their line"),
             ("overwrite", false, r#"{"type": "boolean", "default": false}"#, "replace an existing dataset of that name"),
+            ("call_id", false, STRING, "client-chosen id, unique among running calls: the token of the import's progress (progress.subscribe, analysis.progress; stages reading, parsing, converting units, storing) and the handle to cancel it between stages (analysis.cancel)"),
         ],
         result: DATASET_SUMMARY,
     },

@@ -9,6 +9,7 @@
 
 pub mod bench;
 pub mod browser;
+pub mod hall_readings;
 pub mod load;
 pub mod node;
 

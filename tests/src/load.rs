@@ -458,7 +458,7 @@ async fn run_client(plan: &LoadPlan, index: usize) -> ClientOutcome {
 
 /// JSON-RPC 2.0 over HTTP/1.1 on one kept-alive connection, with hyper's low-level client
 /// (no pool, no redirects, no TLS: the generator should cost as little as possible).
-mod http_keep_alive {
+pub mod http_keep_alive {
     use http_body_util::{BodyExt, Full};
     use hyper::body::Bytes;
     use hyper::client::conn::http1::SendRequest;

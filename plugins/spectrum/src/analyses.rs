@@ -12,6 +12,7 @@ use crate::mobility_spectrum::{
 use crate::multi_carrier::{
     fit_sweep_monitored, CarrierSelection, InformationCriterion, MultiCarrierError, MultiCarrierSettings,
 };
+use crate::reduction::reduce;
 use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType};
 use mobilis_core::forward::tensor::CarrierKind;
 use mobilis_core::sdk::{Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
@@ -117,7 +118,16 @@ impl Analysis for MultiCarrierFitAnalysis {
         let sweep = inputs.required("sweep")?;
         let table = single_sweep(sweep, &params.sweep.grouping())?;
         let (points, identity) = (table.points.clone(), Value::Object(table.identity()));
-        let grouping_warnings = table.warnings.clone();
+        let mut grouping_warnings = table.warnings.clone();
+        // A long logged sweep is reduced onto a field grid first (see `crate::reduction`).
+        let reduction = reduce(&points, params.sweep.settings().zero_field_tolerance_t);
+        let points = match &reduction {
+            Some(reduced) => {
+                grouping_warnings.push(reduced.note());
+                reduced.points.clone()
+            }
+            None => points,
+        };
         let mut settings = MultiCarrierSettings::default();
         settings.selection = match (&params.carriers, params.max_carriers) {
             (Some(list), _) => CarrierSelection::Kinds(
@@ -297,7 +307,16 @@ impl Analysis for MobilitySpectrumAnalysis {
         let sweep = inputs.required("sweep")?;
         let table = single_sweep(sweep, &params.sweep.grouping())?;
         let (points, identity) = (table.points.clone(), Value::Object(table.identity()));
-        let grouping_warnings = table.warnings.clone();
+        let mut grouping_warnings = table.warnings.clone();
+        // A long logged sweep is reduced onto a field grid first (see `crate::reduction`).
+        let reduction = reduce(&points, params.sweep.settings().zero_field_tolerance_t);
+        let points = match &reduction {
+            Some(reduced) => {
+                grouping_warnings.push(reduced.note());
+                reduced.points.clone()
+            }
+            None => points,
+        };
         let mut settings = SpectrumSettings::default();
         if let Some(count) = params.points_per_sign {
             settings.points_per_sign = count;

@@ -12,6 +12,7 @@
 pub mod analyses;
 pub mod mobility_spectrum;
 pub mod multi_carrier;
+pub mod reduction;
 
 mobilis_core::export_plugin!(
     name: "spectrum",

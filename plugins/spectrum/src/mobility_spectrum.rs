@@ -152,6 +152,7 @@ use mobilis_core::noise::Rng;
 use mobilis_core::sdk::Host;
 use mobilis_core::sweep::{conductivity_points, symmetrize, SweepPoint, SymmetrizeSettings, Symmetrized};
 pub use mobilis_core::sweep::{TensorPoint, TensorUncertainty};
+use rayon::prelude::*;
 
 use crate::multi_carrier::budget::{floor_uncertainties, reading_reuse_factor};
 use crate::multi_carrier::{Budget, Calibration, SWEEP_RELATIVE_UNCERTAINTY_FLOOR};
@@ -688,19 +689,32 @@ impl Replicas {
             .sqrt();
         let fitted = problem.a.mul_vec(&chosen.u);
         let h = problem.regularized_gram(chosen.lambda);
-        let cancelled = || monitor.is_cancelled();
+        // The noise of every replica is drawn first, in replica order, so that the replicas
+        // are the same however many of them are solved at once.
         let mut rng = Rng::seeded(BOOTSTRAP_SEED);
+        let data_sets: Vec<Vec<f64>> = (0..count)
+            .map(|_| fitted.iter().map(|f| f + scale * rng.standard_normal()).collect())
+            .collect();
+        // The replicas are independent solves: one batch per worker thread at a time, the
+        // monitor asked (on this thread) between batches.
+        let batch = rayon::current_num_threads().max(1);
+        let never = || false;
         let mut weights = Vec::with_capacity(count);
-        for replica in 0..count {
+        for (index, chunk) in data_sets.chunks(batch).enumerate() {
             if monitor.is_cancelled() {
                 return Err(SpectrumError::Cancelled);
             }
-            let b: Vec<f64> = fitted.iter().map(|f| f + scale * rng.standard_normal()).collect();
-            let u = problem.solve_for(&h, chosen.lambda, &b, &chosen.u, &cancelled)?;
-            weights.push(u.iter().map(|v| v * data.reference_s).collect());
+            let solved: Vec<Result<Vec<f64>, SpectrumError>> = chunk
+                .par_iter()
+                .map(|b| problem.solve_for(&h, chosen.lambda, b, &chosen.u, &never))
+                .collect();
+            for u in solved {
+                weights.push(u?.iter().map(|v| v * data.reference_s).collect());
+            }
             let (from, to) = progress_range;
+            let done = (index * batch + chunk.len()) as f64;
             monitor.progress(
-                from + (to - from) * (replica + 1) as f64 / count as f64,
+                from + (to - from) * done / count as f64,
                 "mobility spectrum: uncertainties",
             );
         }

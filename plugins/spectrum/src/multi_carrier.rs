@@ -112,6 +112,7 @@ use mobilis_core::forward::tensor::sum_conductivity;
 use mobilis_core::linalg::Matrix;
 use mobilis_core::noise::Rng;
 use mobilis_core::sweep::{conductivity_points, symmetrize};
+use rayon::prelude::*;
 
 use crate::mobility_spectrum::{Monitor, Unmonitored};
 use model::Data;
@@ -657,20 +658,30 @@ fn fit_points(
             let mut lists_done = 0usize;
             for n in 1..=allowed {
                 let mut best_here: Option<CandidateFit> = None;
-                for holes in 0..=n {
-                    if monitor.is_cancelled() {
-                        return Err(MultiCarrierError::Cancelled);
-                    }
-                    monitor.progress(
-                        lists_done as f64 / total_lists,
-                        &format!("fitting {n} carrier(s), {holes} of them holes"),
-                    );
-                    lists_done += 1;
-                    let kinds: Vec<CarrierKind> = std::iter::repeat_n(CarrierKind::Electron, n - holes)
-                        .chain(std::iter::repeat_n(CarrierKind::Hole, holes))
-                        .collect();
-                    let result = fit_kinds(&data, &kinds, None, settings, &bounds);
-                    candidates.push(candidate_record(&kinds, &result));
+                if monitor.is_cancelled() {
+                    return Err(MultiCarrierError::Cancelled);
+                }
+                monitor.progress(
+                    lists_done as f64 / total_lists,
+                    &format!("fitting {n} carrier(s), every electron/hole split"),
+                );
+                lists_done += n + 1;
+                // The n + 1 sign mixtures of n carriers are independent fits (each list has
+                // its own generator), solved at once on the cores there are and then taken
+                // in order, so that the choice is the same as one after the other.
+                let lists: Vec<Vec<CarrierKind>> = (0..=n)
+                    .map(|holes| {
+                        std::iter::repeat_n(CarrierKind::Electron, n - holes)
+                            .chain(std::iter::repeat_n(CarrierKind::Hole, holes))
+                            .collect()
+                    })
+                    .collect();
+                let results: Vec<Result<CandidateFit, MultiCarrierError>> = lists
+                    .par_iter()
+                    .map(|kinds| fit_kinds(&data, kinds, None, settings, &bounds))
+                    .collect();
+                for (kinds, result) in lists.iter().zip(results) {
+                    candidates.push(candidate_record(kinds, &result));
                     match result {
                         Ok(fit) => {
                             if best_here.as_ref().is_none_or(|b| fit.score < b.score) {

@@ -17,6 +17,7 @@ use reduce::{
 };
 use serde::Deserialize;
 use serde_json::json;
+use std::borrow::Cow;
 
 /// `hall.reduce`.
 pub struct HallReduce;
@@ -141,19 +142,21 @@ fn params_schema() -> serde_json::Value {
 /// How one output column is read from a reduced row.
 enum Getter {
     Float(fn(&ReducedRow) -> Option<f64>),
-    Text(fn(&ReducedRow) -> Option<String>),
+    /// Borrowed where the row holds the text, so that a column of 1e5 rows is not 1e5
+    /// allocations.
+    Text(fn(&ReducedRow) -> Option<Cow<'_, str>>),
     Count(fn(&ReducedRow) -> i64),
     Flag(fn(&ReducedRow) -> bool),
 }
 
 /// The output table: one entry per column, used both to declare and to build it.
 const OUTPUT: &[(&str, Option<&str>, &str, Getter)] = &[
-    ("sample", None, "sample name", Getter::Text(|r| Some(r.sample.clone()))),
+    ("sample", None, "sample name", Getter::Text(|r| Some(Cow::Borrowed(&r.sample)))),
     (
         "geometry",
         None,
         "van_der_pauw or hall_bar",
-        Getter::Text(|r| Some(r.geometry.to_owned())),
+        Getter::Text(|r| Some(Cow::Borrowed(r.geometry))),
     ),
     (
         "temperature_K",
@@ -297,7 +300,7 @@ const OUTPUT: &[(&str, Option<&str>, &str, Getter)] = &[
         "carrier_type",
         None,
         "n or p from the sign of the Hall coefficient",
-        Getter::Text(|r| r.carrier_type.map(str::to_owned)),
+        Getter::Text(|r| r.carrier_type.map(Cow::Borrowed)),
     ),
     (
         "sheet_density_m2",
@@ -435,7 +438,13 @@ const OUTPUT: &[(&str, Option<&str>, &str, Getter)] = &[
         "flags",
         None,
         "raised quality flags, comma-separated (see DEVELOPERS.md)",
-        Getter::Text(|r| Some(r.flags.join(","))),
+        Getter::Text(|r| {
+            Some(match r.flags[..] {
+                [] => Cow::Borrowed(""),
+                [only] => Cow::Borrowed(only),
+                _ => Cow::Owned(r.flags.join(",")),
+            })
+        }),
     ),
     (
         "quality_ok",
@@ -454,20 +463,75 @@ fn column_type(getter: &Getter) -> ColumnType {
     }
 }
 
+/// Rows per block of [`output_table`]: a block's rows (about 1 kB each) stay in the
+/// cache while every column takes its values from them.
+const OUTPUT_BLOCK_ROWS: usize = 128;
+
+/// One output column as it is filled.
+enum ColumnBuffer {
+    /// Values, and whether each is present (a null otherwise).
+    Float(Vec<f64>, Vec<bool>),
+    Count(Vec<i64>),
+    Flag(Vec<bool>),
+    /// Text columns are built from the rows in one go at the end.
+    Text,
+}
+
 fn output_table(rows: &[ReducedRow]) -> Result<DataFrame, AnalysisError> {
-    let columns: Vec<Column> = OUTPUT
+    let height = rows.len();
+    let mut buffers: Vec<ColumnBuffer> = OUTPUT
         .iter()
-        .map(|(name, _, _, getter)| {
+        .map(|(_, _, _, getter)| match getter {
+            Getter::Float(_) => ColumnBuffer::Float(Vec::with_capacity(height), Vec::with_capacity(height)),
+            Getter::Count(_) => ColumnBuffer::Count(Vec::with_capacity(height)),
+            Getter::Flag(_) => ColumnBuffer::Flag(Vec::with_capacity(height)),
+            Getter::Text(_) => ColumnBuffer::Text,
+        })
+        .collect();
+    // Block by block, every column: a row is read from memory once, not once per column.
+    for block in rows.chunks(OUTPUT_BLOCK_ROWS) {
+        for (buffer, (_, _, _, getter)) in buffers.iter_mut().zip(OUTPUT) {
+            match (buffer, getter) {
+                (ColumnBuffer::Float(values, present), Getter::Float(get)) => {
+                    for row in block {
+                        let value = get(row);
+                        values.push(value.unwrap_or(0.0));
+                        present.push(value.is_some());
+                    }
+                }
+                (ColumnBuffer::Count(values), Getter::Count(get)) => values.extend(block.iter().map(get)),
+                (ColumnBuffer::Flag(values), Getter::Flag(get)) => values.extend(block.iter().map(get)),
+                _ => {}
+            }
+        }
+    }
+    let columns: Vec<Column> = buffers
+        .into_iter()
+        .zip(OUTPUT)
+        .map(|(buffer, (name, _, _, getter))| {
             let name = PlSmallStr::from_static(name);
-            match getter {
-                Getter::Float(get) => Column::new(name, rows.iter().map(get).collect::<Vec<_>>()),
-                Getter::Text(get) => Column::new(name, rows.iter().map(get).collect::<Vec<_>>()),
-                Getter::Count(get) => Column::new(name, rows.iter().map(get).collect::<Vec<_>>()),
-                Getter::Flag(get) => Column::new(name, rows.iter().map(get).collect::<Vec<_>>()),
+            match (buffer, getter) {
+                (ColumnBuffer::Float(values, present), _) => {
+                    if present.iter().all(|&p| p) {
+                        Float64Chunked::from_vec(name, values).into_column()
+                    } else {
+                        Float64Chunked::from_iter_options(
+                            name,
+                            values.into_iter().zip(present).map(|(value, p)| p.then_some(value)),
+                        )
+                        .into_column()
+                    }
+                }
+                (ColumnBuffer::Count(values), _) => Int64Chunked::from_vec(name, values).into_column(),
+                (ColumnBuffer::Flag(values), _) => BooleanChunked::from_slice(name, &values).into_column(),
+                (ColumnBuffer::Text, Getter::Text(get)) => {
+                    StringChunked::from_iter_options(name, rows.iter().map(get)).into_column()
+                }
+                (ColumnBuffer::Text, _) => unreachable!("text buffers belong to text getters"),
             }
         })
         .collect();
-    DataFrame::new(rows.len(), columns).map_err(|e| AnalysisError::Numerical(e.to_string()))
+    DataFrame::new(height, columns).map_err(|e| AnalysisError::Numerical(e.to_string()))
 }
 
 /// A float column as a slice: zero-copy when it has one chunk and no nulls (nulls become NaN,

@@ -145,10 +145,31 @@
 //!
 //! # Performance
 //!
-//! Sample names are interned once (consecutive readings of one sample skip the hash); each
-//! valid reading becomes a 40-byte record; grouping is by sorting those records (by sample and
-//! temperature, then within a group by |B|, then within a cell by configuration, field sign
-//! and polarity) and walking contiguous slices. O(n log n), no allocation per reading.
+//! The work is linear in the readings apart from one sort, which costs a single pass when
+//! the readings arrive ordered by sample and temperature (the usual export order: the sort
+//! detects the sorted run and stops). Measured with `cargo bench -p mobilis-tests --bench
+//! hall_reduce` (figures and where the time goes: `DEVELOPERS.md`, Benchmarks).
+//!
+//! - Sample names are interned once (consecutive readings of one sample skip the hash).
+//! - A reading's contacts are classified by one look-up in a table of every contact
+//!   assignment, built per call by the classifiers of `mobilis_core::contacts`; only a
+//!   refused assignment asks the classifier again, for its message. Each valid reading
+//!   becomes a 40-byte record.
+//! - Grouping is by sorting those records (by sample and temperature, then within a group
+//!   by |B|, then within a cell by configuration, field sign and polarity) and walking
+//!   contiguous slices; nothing is allocated per reading, per cell or per row in the
+//!   statistics (short lists live on the stack).
+//! - Samples are independent: above 20,000 readings they are reduced in parallel (rayon),
+//!   each into its own rows, joined in sample order, so that the result does not depend on
+//!   the number of threads.
+//! - Van der Pauw's equation is solved once per row; the factor f and the gradient are
+//!   derived from that solution.
+//! - Warnings are formatted only for the rows that raise them.
+//! - The table glue builds the output columns block by block straight from the rows, with
+//!   borrowed text, instead of one pass over all rows per column.
+//!
+//! Every result is the same, to the bit, as the straightforward version: the arithmetic
+//! and its order are unchanged.
 
 mod cells;
 #[cfg(test)]
@@ -161,7 +182,7 @@ mod tests;
 
 use std::collections::HashMap;
 
-use mobilis_core::contacts::{classify_hall_bar, classify_van_der_pauw, Configuration};
+use mobilis_core::contacts::{classify_hall_bar, classify_van_der_pauw, Classified, Configuration, ContactError};
 pub use mobilis_core::readings::RawReading;
 
 use cells::{
@@ -611,6 +632,7 @@ impl ReadingSource for &[RawReading] {
         self.len()
     }
 
+    #[inline]
     fn reading(&self, index: usize) -> ReadingView<'_> {
         let reading = &self[index];
         ReadingView {
@@ -632,6 +654,7 @@ impl ReadingSource for ReadingColumns<'_> {
         self.sample.len()
     }
 
+    #[inline]
     fn reading(&self, index: usize) -> ReadingView<'_> {
         ReadingView {
             sample: self.sample[index],
@@ -683,12 +706,13 @@ fn reduce_source<S: ReadingSource>(
     let resolved = resolve_samples(&sorted_names, samples, &settings.calibration, &mut warnings)?;
 
     // Validate and canonicalize.
+    let contact_tables = ContactTables::new();
     let mut prepared: Vec<Prepared> = Vec::with_capacity(total);
     let mut skipped = 0usize;
     for index in 0..total {
         let view = source.reading(index);
         let rank = rank_of_id[reading_sample_id[index] as usize];
-        match prepare(&view, rank, resolved[rank as usize].geometry) {
+        match prepare(&view, rank, resolved[rank as usize].geometry, &contact_tables) {
             Ok(reading) => prepared.push(reading),
             Err(problem) if settings.skip_invalid_readings => {
                 skipped += 1;
@@ -721,105 +745,36 @@ fn reduce_source<S: ReadingSource>(
             .cmp(&b.sample_rank)
             .then(a.temperature_k.total_cmp(&b.temperature_k))
     });
-    let mut rows = Vec::new();
-    let mut row_warnings = Vec::new();
-    let mut calibrations = Vec::new();
-    for sample_range in runs_by_key(&prepared, |reading| reading.sample_rank) {
-        let sample_readings = &mut prepared[sample_range];
+    // Samples are independent: each is reduced on its own (in parallel where there are
+    // several), and the results are joined in sample order, so that rows, warnings and
+    // calibrations come out exactly as a sequential pass would give them.
+    let mut sample_slices: Vec<&mut [Prepared]> = Vec::new();
+    let mut rest: &mut [Prepared] = &mut prepared;
+    while !rest.is_empty() {
+        let rank = rest[0].sample_rank;
+        let length = rest.iter().take_while(|reading| reading.sample_rank == rank).count();
+        let (sample_readings, tail) = rest.split_at_mut(length);
+        sample_slices.push(sample_readings);
+        rest = tail;
+    }
+    let reduce_one = |sample_readings: &mut [Prepared]| {
         let sample = &resolved[sample_readings[0].sample_rank as usize];
-        let temperature_ranges = gap_clusters(
-            sample_readings.iter().map(|reading| reading.temperature_k),
-            settings.temperature_tolerance_k,
-        );
-        // First pass: every temperature group as measured.
-        let mut largest_zero_field_t = 0.0_f64;
-        let mut groups: Vec<Vec<(ReducedRow, RowDraft)>> = Vec::with_capacity(temperature_ranges.len());
-        let mut group_warnings: Vec<Vec<String>> = Vec::with_capacity(temperature_ranges.len());
-        for temperature_range in &temperature_ranges {
-            let mut group_rows = Vec::new();
-            let mut warnings_of_group = Vec::new();
-            let largest = reduce_temperature_group(
-                &mut sample_readings[temperature_range.clone()],
-                sample,
-                settings,
-                None,
-                &mut group_rows,
-                &mut warnings_of_group,
-            );
-            largest_zero_field_t = largest_zero_field_t.max(largest);
-            groups.push(group_rows);
-            group_warnings.push(warnings_of_group);
-        }
-        // Further passes for the groups whose readings drifted: each reading brought to the
-        // group's mean temperature with the series' own slopes, taken from the previous
-        // pass (whose values the drift biased a little; a second correction removes what
-        // the first left).
-        for _ in 0..DRIFT_CORRECTION_PASSES {
-            let slopes = drift_slopes(&groups);
-            let mut any = false;
-            for (index, temperature_range) in temperature_ranges.iter().enumerate() {
-                let readings = &sample_readings[temperature_range.clone()];
-                let drifted = readings
-                    .iter()
-                    .any(|reading| reading.temperature_k != readings[0].temperature_k);
-                let Some(group_slopes) = slopes[index].filter(|_| drifted) else {
-                    continue;
-                };
-                if largest_drift_correction(readings, group_slopes, sample.geometry) > LARGEST_DRIFT_CORRECTION {
-                    // Beyond first order (a Hall coefficient crossing zero, a transition):
-                    // the group stays as measured, with its readings' spread in u(T).
-                    continue;
-                }
-                any = true;
-                let mut corrected = readings.to_vec();
-                correct_drift(&mut corrected, group_slopes, sample.geometry);
-                let mut group_rows = Vec::new();
-                let mut warnings_of_group = Vec::new();
-                reduce_temperature_group(
-                    &mut corrected,
-                    sample,
-                    settings,
-                    Some(group_slopes),
-                    &mut group_rows,
-                    &mut warnings_of_group,
-                );
-                groups[index] = group_rows;
-                group_warnings[index] = warnings_of_group;
-            }
-            if !any {
-                break;
-            }
-        }
-        let drafts: Vec<(ReducedRow, RowDraft)> = groups.into_iter().flatten().collect();
-        row_warnings.extend(group_warnings.into_iter().flatten());
-        if largest_zero_field_t > STRICT_ZERO_FIELD_T {
-            warnings.push(format!(
-                "sample {:?}: readings with |B| up to {:.4} T were taken as zero field (zero_field_tolerance_T = {} T), a remanent field at a nominal zero; if they were meant as a Hall field, lower zero_field_tolerance_T",
-                sample.name, largest_zero_field_t, settings.zero_field_tolerance_t
-            ));
-        }
-        // The sample's voltage noise pooled over every row of its series (JCGM 100:2008,
-        // 4.2.8): one voltmeter, so one noise, for the rows with too little evidence of
-        // their own.
-        let mut evidence = NoiseEvidence::default();
-        for (_, draft) in &drafts {
-            evidence.add(draft.evidence);
-        }
-        let reading_noise_v = evidence.pooled_noise_v();
-        for (mut row, draft) in drafts {
-            finish_row(&mut row, &draft, &evidence, &sample.calibration);
-            rows.push(row);
-        }
-        calibrations.push(CalibrationUsed {
-            sample: sample.name.to_owned(),
-            thickness_rel: sample.calibration.thickness_rel,
-            field_rel: sample.calibration.field_rel,
-            current_rel: sample.calibration.current_rel,
-            voltage_rel: sample.calibration.voltage_rel,
-            temperature_accuracy_k: sample.calibration.temperature_accuracy_k,
-            not_stated: sample.not_stated.clone(),
-            reading_noise_v,
-        });
+        reduce_sample(sample_readings, sample, settings)
+    };
+    let reduced: Vec<SampleReduction> = if sample_slices.len() > 1 && total >= PARALLEL_READINGS {
+        use rayon::prelude::*;
+        sample_slices.into_par_iter().map(reduce_one).collect()
+    } else {
+        sample_slices.into_iter().map(reduce_one).collect()
+    };
+    let mut rows = Vec::with_capacity(reduced.iter().map(|sample| sample.rows.len()).sum());
+    let mut row_warnings = Vec::new();
+    let mut calibrations = Vec::with_capacity(reduced.len());
+    for sample in reduced {
+        rows.extend(sample.rows);
+        row_warnings.extend(sample.row_warnings);
+        warnings.extend(sample.warning);
+        calibrations.push(sample.calibration);
     }
     let mut not_stated: Vec<(&'static str, usize)> = Vec::new();
     for used in &calibrations {
@@ -860,6 +815,158 @@ fn reduce_source<S: ReadingSource>(
         skipped_readings: skipped,
         calibrations,
     })
+}
+
+/// Below this many readings the samples are reduced one after the other: spreading a small
+/// call over threads costs more than it saves.
+const PARALLEL_READINGS: usize = 20_000;
+
+/// What one sample's series gives.
+struct SampleReduction {
+    rows: Vec<ReducedRow>,
+    /// Warnings about single rows, in row order (the caller caps them).
+    row_warnings: Vec<String>,
+    /// The sample's warning about readings taken as zero field, if any.
+    warning: Option<String>,
+    calibration: CalibrationUsed,
+}
+
+/// Reduces the readings of one sample, sorted by temperature: every temperature group, the
+/// drift corrections, the pooled noise and the rows' uncertainties.
+fn reduce_sample(
+    sample_readings: &mut [Prepared],
+    sample: &ResolvedSample<'_>,
+    settings: &ReduceSettings,
+) -> SampleReduction {
+    let temperature_ranges = gap_clusters(
+        sample_readings.iter().map(|reading| reading.temperature_k),
+        settings.temperature_tolerance_k,
+    );
+    // First pass: every temperature group as measured, its rows one after the other in
+    // `drafts` (`bounds` says which are whose), so that a row is moved as little as possible.
+    let mut largest_zero_field_t = 0.0_f64;
+    let mut drafts: Vec<(ReducedRow, RowDraft)> = Vec::with_capacity(temperature_ranges.len());
+    let mut bounds: Vec<std::ops::Range<usize>> = Vec::with_capacity(temperature_ranges.len());
+    let mut group_warnings: Vec<Vec<String>> = Vec::with_capacity(temperature_ranges.len());
+    for temperature_range in &temperature_ranges {
+        let mut warnings_of_group = Vec::new();
+        let start = drafts.len();
+        let largest = reduce_temperature_group(
+            &mut sample_readings[temperature_range.clone()],
+            sample,
+            settings,
+            None,
+            &mut drafts,
+            &mut warnings_of_group,
+        );
+        bounds.push(start..drafts.len());
+        largest_zero_field_t = largest_zero_field_t.max(largest);
+        group_warnings.push(warnings_of_group);
+    }
+    // Further passes for the groups whose readings drifted: each reading brought to the
+    // group's mean temperature with the series' own slopes, taken from the previous
+    // pass (whose values the drift biased a little; a second correction removes what
+    // the first left). A corrected group's rows replace its first-pass rows.
+    let mut replaced: Vec<Option<Vec<(ReducedRow, RowDraft)>>> = Vec::new();
+    for _ in 0..DRIFT_CORRECTION_PASSES {
+        let first_rows: Vec<Option<&ReducedRow>> = (0..bounds.len())
+            .map(|index| match replaced.get(index).and_then(Option::as_ref) {
+                Some(rows) => rows.first().map(|(row, _)| row),
+                None => drafts
+                    .get(bounds[index].start)
+                    .filter(|_| !bounds[index].is_empty())
+                    .map(|(row, _)| row),
+            })
+            .collect();
+        let slopes = drift_slopes(&first_rows);
+        let mut any = false;
+        for (index, temperature_range) in temperature_ranges.iter().enumerate() {
+            let readings = &sample_readings[temperature_range.clone()];
+            let drifted = readings
+                .iter()
+                .any(|reading| reading.temperature_k != readings[0].temperature_k);
+            let Some(group_slopes) = slopes[index].filter(|_| drifted) else {
+                continue;
+            };
+            if largest_drift_correction(readings, group_slopes, sample.geometry) > LARGEST_DRIFT_CORRECTION {
+                // Beyond first order (a Hall coefficient crossing zero, a transition):
+                // the group stays as measured, with its readings' spread in u(T).
+                continue;
+            }
+            any = true;
+            let mut corrected = readings.to_vec();
+            correct_drift(&mut corrected, group_slopes, sample.geometry);
+            let mut group_rows = Vec::new();
+            let mut warnings_of_group = Vec::new();
+            reduce_temperature_group(
+                &mut corrected,
+                sample,
+                settings,
+                Some(group_slopes),
+                &mut group_rows,
+                &mut warnings_of_group,
+            );
+            if replaced.is_empty() {
+                replaced.resize_with(bounds.len(), || None);
+            }
+            replaced[index] = Some(group_rows);
+            group_warnings[index] = warnings_of_group;
+        }
+        if !any {
+            break;
+        }
+    }
+    if !replaced.is_empty() {
+        let mut first_pass = drafts.into_iter();
+        let mut joined = Vec::with_capacity(bounds.len());
+        for (index, range) in bounds.iter().enumerate() {
+            match replaced[index].take() {
+                Some(rows) => {
+                    first_pass.by_ref().take(range.len()).for_each(drop);
+                    joined.extend(rows);
+                }
+                None => joined.extend(first_pass.by_ref().take(range.len())),
+            }
+        }
+        drafts = joined;
+    }
+    let row_warnings: Vec<String> = group_warnings.into_iter().flatten().collect();
+    let warning = (largest_zero_field_t > STRICT_ZERO_FIELD_T).then(|| {
+        format!(
+            "sample {:?}: readings with |B| up to {:.4} T were taken as zero field (zero_field_tolerance_T = {} T), a remanent field at a nominal zero; if they were meant as a Hall field, lower zero_field_tolerance_T",
+            sample.name, largest_zero_field_t, settings.zero_field_tolerance_t
+        )
+    });
+    // The sample's voltage noise pooled over every row of its series (JCGM 100:2008,
+    // 4.2.8): one voltmeter, so one noise, for the rows with too little evidence of
+    // their own.
+    let mut evidence = NoiseEvidence::default();
+    for (_, draft) in &drafts {
+        evidence.add(draft.evidence);
+    }
+    let reading_noise_v = evidence.pooled_noise_v();
+    let rows: Vec<ReducedRow> = drafts
+        .into_iter()
+        .map(|(mut row, draft)| {
+            finish_row(&mut row, &draft, &evidence, &sample.calibration);
+            row
+        })
+        .collect();
+    SampleReduction {
+        rows,
+        row_warnings,
+        warning,
+        calibration: CalibrationUsed {
+            sample: sample.name.to_owned(),
+            thickness_rel: sample.calibration.thickness_rel,
+            field_rel: sample.calibration.field_rel,
+            current_rel: sample.calibration.current_rel,
+            voltage_rel: sample.calibration.voltage_rel,
+            temperature_accuracy_k: sample.calibration.temperature_accuracy_k,
+            not_stated: sample.not_stated.clone(),
+            reading_noise_v,
+        },
+    }
 }
 
 /// Checks the sheet and returns one resolved sample per name, in the order of `names`.
@@ -1056,8 +1163,82 @@ fn validate_sample(info: &SampleInfo) -> Result<(), ReduceError> {
     Ok(())
 }
 
+/// The classification of every contact assignment with contacts 1 to 6, per geometry, made
+/// once per call by the classifiers of `mobilis_core::contacts` themselves: a reading then
+/// costs one table look-up instead of a search over the configurations. An entry is the
+/// slot (bits 0-2), a reversed current (bit 3) and a reversed voltmeter (bit 4), or
+/// [`ContactTables::INVALID`], for which the classifier is asked again for its error.
+struct ContactTables {
+    van_der_pauw: [u8; 4096],
+    hall_bar: [u8; 4096],
+}
+
+impl ContactTables {
+    const INVALID: u8 = 0xFF;
+
+    fn new() -> Self {
+        let mut tables = ContactTables {
+            van_der_pauw: [Self::INVALID; 4096],
+            hall_bar: [Self::INVALID; 4096],
+        };
+        for i_in in 1..=6 {
+            for i_out in 1..=6 {
+                for v_pos in 1..=6 {
+                    for v_neg in 1..=6 {
+                        let index = Self::index(i_in, i_out, v_pos, v_neg).expect("1 to 6");
+                        tables.van_der_pauw[index] = Self::entry(
+                            classify_van_der_pauw(i_in, i_out, v_pos, v_neg),
+                            &Configuration::VAN_DER_PAUW,
+                        );
+                        tables.hall_bar[index] =
+                            Self::entry(classify_hall_bar(i_in, i_out, v_pos, v_neg), &Configuration::HALL_BAR);
+                    }
+                }
+            }
+        }
+        tables
+    }
+
+    #[inline]
+    fn index(i_in: i64, i_out: i64, v_pos: i64, v_neg: i64) -> Option<usize> {
+        let in_range = |contact: i64| (0..8).contains(&contact);
+        (in_range(i_in) && in_range(i_out) && in_range(v_pos) && in_range(v_neg))
+            .then_some(((i_in as usize) << 9) | ((i_out as usize) << 6) | ((v_pos as usize) << 3) | v_neg as usize)
+    }
+
+    fn entry(classified: Result<Classified, ContactError>, configurations: &[Configuration]) -> u8 {
+        let Ok(classified) = classified else {
+            return Self::INVALID;
+        };
+        let slot = configurations
+            .iter()
+            .position(|configuration| *configuration == classified.configuration)
+            .expect("the classifier returns a configuration of its own geometry") as u8;
+        slot | (u8::from(classified.current_sign < 0.0) << 3) | (u8::from(classified.voltage_sign < 0.0) << 4)
+    }
+
+    /// The slot and the current and voltage signs of a reading; `None` when the classifier
+    /// refuses the contacts.
+    #[inline]
+    fn classify(&self, geometry: Geometry, view: &ReadingView<'_>) -> Option<(u8, f64, f64)> {
+        let index = Self::index(view.i_in, view.i_out, view.v_pos, view.v_neg)?;
+        let entry = match geometry {
+            Geometry::VanDerPauw => self.van_der_pauw[index],
+            Geometry::HallBar { .. } => self.hall_bar[index],
+        };
+        let sign = |negative: bool| if negative { -1.0 } else { 1.0 };
+        (entry != Self::INVALID).then(|| (entry & 0b111, sign(entry & 0b1000 != 0), sign(entry & 0b1_0000 != 0)))
+    }
+}
+
 /// Validates one reading and puts it in canonical orientation.
-fn prepare(view: &ReadingView<'_>, sample_rank: u32, geometry: Geometry) -> Result<Prepared, ReadingProblem> {
+#[inline]
+fn prepare(
+    view: &ReadingView<'_>,
+    sample_rank: u32,
+    geometry: Geometry,
+    tables: &ContactTables,
+) -> Result<Prepared, ReadingProblem> {
     if !view.temperature_k.is_finite() {
         return Err(ReadingProblem::NonFiniteTemperature(view.temperature_k));
     }
@@ -1076,6 +1257,17 @@ fn prepare(view: &ReadingView<'_>, sample_rank: u32, geometry: Geometry) -> Resu
     if !view.voltage_v.is_finite() {
         return Err(ReadingProblem::NonFiniteVoltage(view.voltage_v));
     }
+    if let Some((slot, current_sign, voltage_sign)) = tables.classify(geometry, view) {
+        return Ok(Prepared {
+            sample_rank,
+            slot,
+            temperature_k: view.temperature_k,
+            field_t: view.field_t,
+            current_a: current_sign * view.current_a,
+            voltage_v: voltage_sign * view.voltage_v,
+        });
+    }
+    // Refused contacts: the classifier says why.
     let (classified, configurations) = match geometry {
         Geometry::VanDerPauw => (
             classify_van_der_pauw(view.i_in, view.i_out, view.v_pos, view.v_neg),
@@ -1123,15 +1315,12 @@ struct DriftSlopes {
 /// end). In 1/T a thermally activated density is a straight line, which the parabola follows
 /// exactly; a power law in T is followed to second order. `None` for a group without a resistance slope, or without a
 /// Hall slope when it has Hall quantities, and for a series of one temperature.
-fn drift_slopes(groups: &[Vec<(ReducedRow, RowDraft)>]) -> Vec<Option<DriftSlopes>> {
-    fn first_row(group: &[(ReducedRow, RowDraft)]) -> Option<&ReducedRow> {
-        group.first().map(|(row, _)| row)
-    }
+fn drift_slopes(first_rows: &[Option<&ReducedRow>]) -> Vec<Option<DriftSlopes>> {
     let points = |value: fn(&ReducedRow) -> Option<f64>| -> Vec<Option<(f64, f64)>> {
-        groups
+        first_rows
             .iter()
-            .map(|group| {
-                let row = first_row(group)?;
+            .map(|row| {
+                let row = (*row)?;
                 let value = value(row)?.abs();
                 (value > 0.0 && value.is_finite()).then(|| (1.0 / row.temperature_k, value.ln()))
             })
@@ -1155,7 +1344,7 @@ fn drift_slopes(groups: &[Vec<(ReducedRow, RowDraft)>]) -> Vec<Option<DriftSlope
         let slope = -centre.0 * centre.0 * parabola_slope(centre, first, second);
         slope.is_finite().then_some(slope)
     };
-    (0..groups.len())
+    (0..first_rows.len())
         .map(|index| {
             let resistance_per_k = slope_at(&resistance, index)?;
             let hall_per_k = match hall[index] {

@@ -41,7 +41,7 @@ pub(super) fn cell_key(reading: &Prepared, split_by_field_sign: bool) -> u8 {
 }
 
 /// A value with its standard uncertainty, when the data allow one to be estimated.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
 pub(super) struct Estimate {
     pub value: f64,
     /// From the scatter of this estimate's own readings (and redundant configurations).
@@ -90,17 +90,12 @@ pub(super) fn redundancy_evidence(estimates: &[Estimate]) -> NoiseEvidence {
     if estimates.len() < 2 || estimates.iter().any(|estimate| !(estimate.noise_coefficient > 0.0)) {
         return NoiseEvidence::default();
     }
-    let weights: Vec<f64> = estimates
-        .iter()
-        .map(|e| 1.0 / (e.noise_coefficient * e.noise_coefficient))
-        .collect();
-    let total: f64 = weights.iter().sum();
-    let mean = estimates.iter().zip(&weights).map(|(e, w)| e.value * w).sum::<f64>() / total;
-    let sum_of_squares_v2 = estimates
-        .iter()
-        .zip(&weights)
-        .map(|(e, w)| (e.value - mean).powi(2) * w)
-        .sum();
+    // The weights are recomputed in each pass rather than kept in a vector: this runs for
+    // every row, and the arithmetic (hence every bit of the result) is the same.
+    let weight = |e: &Estimate| 1.0 / (e.noise_coefficient * e.noise_coefficient);
+    let total: f64 = estimates.iter().map(weight).sum();
+    let mean = estimates.iter().map(|e| e.value * weight(e)).sum::<f64>() / total;
+    let sum_of_squares_v2 = estimates.iter().map(|e| (e.value - mean).powi(2) * weight(e)).sum();
     NoiseEvidence {
         sum_of_squares_v2,
         degrees_of_freedom: estimates.len() - 1,
@@ -109,9 +104,14 @@ pub(super) fn redundancy_evidence(estimates: &[Estimate]) -> NoiseEvidence {
 
 /// Root sum of squares of the components that could be estimated; `None` when none could.
 pub(super) fn quadrature(components: &[Option<f64>]) -> Option<f64> {
+    quadrature_of(components.iter().copied())
+}
+
+/// [`quadrature`] over an iterator, so that callers need not collect the components.
+pub(super) fn quadrature_of(components: impl Iterator<Item = Option<f64>>) -> Option<f64> {
     let mut any = false;
     let mut sum = 0.0;
-    for component in components.iter().flatten() {
+    for component in components.flatten() {
         any = true;
         sum += component * component;
     }
@@ -121,13 +121,20 @@ pub(super) fn quadrature(components: &[Option<f64>]) -> Option<f64> {
 /// Mean of values and the standard error of that mean (sample standard deviation over
 /// sqrt(n)); the error is `None` for a single value.
 pub(super) fn mean_with_standard_error(values: &[f64]) -> Option<Estimate> {
-    if values.is_empty() {
+    mean_with_standard_error_of(values.iter().copied())
+}
+
+/// [`mean_with_standard_error`] over values that can be iterated twice, without collecting
+/// them.
+pub(super) fn mean_with_standard_error_of(values: impl Iterator<Item = f64> + Clone) -> Option<Estimate> {
+    let length = values.clone().count();
+    if length == 0 {
         return None;
     }
-    let count = values.len() as f64;
-    let mean = values.iter().sum::<f64>() / count;
-    let standard_error = (values.len() >= 2).then(|| {
-        let sum_of_squares: f64 = values.iter().map(|value| (value - mean).powi(2)).sum();
+    let count = length as f64;
+    let mean = values.clone().sum::<f64>() / count;
+    let standard_error = (length >= 2).then(|| {
+        let sum_of_squares: f64 = values.map(|value| (value - mean).powi(2)).sum();
         (sum_of_squares / (count - 1.0) / count).sqrt()
     });
     Some(Estimate {
@@ -141,10 +148,9 @@ pub(super) fn mean_with_standard_error(values: &[f64]) -> Option<Estimate> {
 /// uncertainty combines the standard error of the mean of the estimates, which sees
 /// inhomogeneity and contact effects, with their own standard errors, which see the noise.
 pub(super) fn combine_redundant(estimates: &[Estimate]) -> Option<Estimate> {
-    let values: Vec<f64> = estimates.iter().map(|estimate| estimate.value).collect();
-    let spread = mean_with_standard_error(&values)?;
-    let own: Vec<Option<f64>> = estimates.iter().map(|estimate| estimate.standard_error).collect();
-    let own_of_mean = quadrature(&own).map(|combined| combined / estimates.len() as f64);
+    let spread = mean_with_standard_error_of(estimates.iter().map(|estimate| estimate.value))?;
+    let own_of_mean = quadrature_of(estimates.iter().map(|estimate| estimate.standard_error))
+        .map(|combined| combined / estimates.len() as f64);
     let noise_coefficient = estimates
         .iter()
         .map(|estimate| estimate.noise_coefficient.powi(2))
@@ -220,12 +226,24 @@ pub(super) fn summarize_cell(readings: &[Prepared]) -> CellSummary {
     let mut min_current = f64::INFINITY;
     let mut max_current = f64::NEG_INFINITY;
     let mut max_abs_current = 0.0_f64;
+    // The first pass also gathers, per current polarity, the sums of the means of V/I and
+    // of |B| (index 0: positive current, 1: negative), each in reading order as its own
+    // pass would: one walk over the cell instead of five.
+    let mut polarity_sums = [RatioSums::default(); 2];
+    let mut field_sums = [(0.0_f64, 0usize); 2];
     for reading in readings {
         sum_current += reading.current_a;
         sum_voltage += reading.voltage_v;
         min_current = min_current.min(reading.current_a);
         max_current = max_current.max(reading.current_a);
         max_abs_current = max_abs_current.max(reading.current_a.abs());
+        if reading.current_a > 0.0 {
+            polarity_sums[0].add(reading);
+        } else if reading.current_a < 0.0 {
+            polarity_sums[1].add(reading);
+        }
+        let side = if reading.current_a > 0.0 { 0 } else { 1 };
+        field_sums[side] = (field_sums[side].0 + reading.field_t.abs(), field_sums[side].1 + 1);
     }
     let mean_current = sum_current / n;
     let mean_voltage = sum_voltage / n;
@@ -280,15 +298,9 @@ pub(super) fn summarize_cell(readings: &[Prepared]) -> CellSummary {
             max_abs_current_a: max_abs_current,
         }
     };
-    let positive = ratio_mean(readings.iter().filter(|reading| reading.current_a > 0.0));
-    let negative = ratio_mean(readings.iter().filter(|reading| reading.current_a < 0.0));
-    let mean_field = |positive_current: bool| {
-        let (sum, count) = readings
-            .iter()
-            .filter(|reading| (reading.current_a > 0.0) == positive_current)
-            .fold((0.0, 0usize), |(sum, count), reading| {
-                (sum + reading.field_t.abs(), count + 1)
-            });
+    let positive = polarity_sums[0].finish(readings.iter().filter(|reading| reading.current_a > 0.0));
+    let negative = polarity_sums[1].finish(readings.iter().filter(|reading| reading.current_a < 0.0));
+    let mean_field = |(sum, count): (f64, usize)| {
         if count > 0 {
             sum / count as f64
         } else {
@@ -298,37 +310,55 @@ pub(super) fn summarize_cell(readings: &[Prepared]) -> CellSummary {
     CellSummary {
         fit,
         polarity: [positive, negative],
-        polarity_field_t: [mean_field(true), mean_field(false)],
+        polarity_field_t: [mean_field(field_sums[0]), mean_field(field_sums[1])],
         noise,
+    }
+}
+
+/// The first-pass sums of [`ratio_mean`], gathered while another pass walks the cell.
+#[derive(Clone, Copy, Default)]
+struct RatioSums {
+    count: usize,
+    sum: f64,
+    sum_inverse_square_current: f64,
+}
+
+impl RatioSums {
+    #[inline]
+    fn add(&mut self, reading: &Prepared) {
+        self.count += 1;
+        self.sum += reading.voltage_v / reading.current_a;
+        self.sum_inverse_square_current += 1.0 / (reading.current_a * reading.current_a);
+    }
+
+    /// [`ratio_mean`] from these sums and its second pass over the same readings.
+    fn finish<'a>(self, readings: impl Iterator<Item = &'a Prepared>) -> Option<Estimate> {
+        if self.count == 0 {
+            return None;
+        }
+        let n = self.count as f64;
+        let mean = self.sum / n;
+        let standard_error = (self.count >= 2).then(|| {
+            let sum_of_squares: f64 = readings
+                .map(|reading| (reading.voltage_v / reading.current_a - mean).powi(2))
+                .sum();
+            (sum_of_squares / (n - 1.0) / n).sqrt()
+        });
+        Some(Estimate {
+            value: mean,
+            standard_error,
+            noise_coefficient: self.sum_inverse_square_current.sqrt() / n,
+        })
     }
 }
 
 /// Mean of V/I and its standard error, in two passes over an iterator that can be cloned.
 fn ratio_mean<'a>(readings: impl Iterator<Item = &'a Prepared> + Clone) -> Option<Estimate> {
-    let mut count = 0usize;
-    let mut sum = 0.0;
-    let mut sum_inverse_square_current = 0.0;
+    let mut sums = RatioSums::default();
     for reading in readings.clone() {
-        count += 1;
-        sum += reading.voltage_v / reading.current_a;
-        sum_inverse_square_current += 1.0 / (reading.current_a * reading.current_a);
+        sums.add(reading);
     }
-    if count == 0 {
-        return None;
-    }
-    let n = count as f64;
-    let mean = sum / n;
-    let standard_error = (count >= 2).then(|| {
-        let sum_of_squares: f64 = readings
-            .map(|reading| (reading.voltage_v / reading.current_a - mean).powi(2))
-            .sum();
-        (sum_of_squares / (n - 1.0) / n).sqrt()
-    });
-    Some(Estimate {
-        value: mean,
-        standard_error,
-        noise_coefficient: sum_inverse_square_current.sqrt() / n,
-    })
+    sums.finish(readings)
 }
 
 /// Below this fraction of the temperature, neighbouring readings may share a temperature
@@ -388,15 +418,21 @@ pub(super) fn setpoint_clusters(values: impl Iterator<Item = f64>, tolerance: f6
     ranges
 }
 
-/// Index ranges of the runs of equal keys in a slice sorted by that key.
-pub(super) fn runs_by_key<T, K: PartialEq>(items: &[T], key: impl Fn(&T) -> K) -> Vec<std::ops::Range<usize>> {
-    let mut ranges = Vec::new();
+/// Index ranges of the runs of equal keys in a slice sorted by that key, in order. An
+/// iterator rather than a vector: it runs for every cell of every row.
+pub(super) fn runs_by_key<'a, T, K: PartialEq>(
+    items: &'a [T],
+    key: impl Fn(&T) -> K + 'a,
+) -> impl Iterator<Item = std::ops::Range<usize>> + 'a {
     let mut start = 0usize;
-    for index in 1..=items.len() {
-        if index == items.len() || key(&items[index]) != key(&items[start]) {
-            ranges.push(start..index);
-            start = index;
+    std::iter::from_fn(move || {
+        if start >= items.len() {
+            return None;
         }
-    }
-    ranges
+        let first = key(&items[start]);
+        let end = start + 1 + items[start + 1..].iter().take_while(|item| key(item) == first).count();
+        let range = start..end;
+        start = end;
+        Some(range)
+    })
 }

@@ -6,10 +6,11 @@
 
 use mobilis_core::constants::ELEMENTARY_CHARGE_C;
 use mobilis_core::van_der_pauw;
+use std::f64::consts::{LN_2, PI};
 
 use super::cells::{
-    combine_redundant, mean_with_standard_error, quadrature, redundancy_evidence, CellSummary, Estimate, NoiseEvidence,
-    MAX_SLOTS,
+    combine_redundant, mean_with_standard_error, quadrature, quadrature_of, redundancy_evidence, CellSummary, Estimate,
+    NoiseEvidence, MAX_SLOTS,
 };
 use super::{flags, Geometry, ReduceSettings, ReducedRow};
 
@@ -265,12 +266,59 @@ struct HallPart {
 
 /// Relative uncertainty of a product or quotient of independent factors.
 fn relative_quadrature(terms: &[(f64, Option<f64>)]) -> Option<f64> {
-    let relative: Vec<Option<f64>> = terms
-        .iter()
-        .map(|(value, uncertainty)| uncertainty.map(|u| u / value.abs()))
-        .collect();
-    quadrature(&relative)
+    quadrature_of(
+        terms
+            .iter()
+            .map(|(value, uncertainty)| uncertainty.map(|u| u / value.abs())),
+    )
 }
+
+/// A short list kept on the stack: the configurations, cells and redundant estimates of one
+/// row number a dozen at most, and a heap allocation for each would cost more than the
+/// arithmetic they feed.
+#[derive(Clone, Copy)]
+pub(super) struct Few<T: Copy, const N: usize> {
+    items: [Option<T>; N],
+    len: usize,
+}
+
+impl<T: Copy, const N: usize> Few<T, N> {
+    pub fn new() -> Self {
+        Few {
+            items: [None; N],
+            len: 0,
+        }
+    }
+
+    pub fn push(&mut self, item: T) {
+        self.items[self.len] = Some(item);
+        self.len += 1;
+    }
+
+    pub fn len(&self) -> usize {
+        self.len
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.len == 0
+    }
+
+    pub fn iter(&self) -> impl Iterator<Item = T> + Clone + '_ {
+        self.items[..self.len].iter().map(|item| item.expect("pushed"))
+    }
+}
+
+/// The estimates of a [`Few`] as a slice on the stack, for the functions that take one.
+fn estimates<const N: usize>(few: &Few<Estimate, N>, storage: &mut [Estimate; N]) -> usize {
+    for (slot, estimate) in storage.iter_mut().zip(few.iter()) {
+        *slot = estimate;
+    }
+    few.len()
+}
+
+/// Cells whose fits enter a row, with whether each is a resistance configuration: at most
+/// 4 resistance configurations at two field signs and 2 Hall configurations at two.
+type UsedCells<'a> = Few<(&'a CellSummary, bool), 12>;
 
 pub(super) fn build_row(
     group: &TemperatureGroup<'_>,
@@ -284,7 +332,7 @@ pub(super) fn build_row(
     let layout = layout(sample.geometry);
     let mut raised = RaisedFlags::default();
     // Cells whose fits enter the row: (cell, is a resistance configuration).
-    let mut used_cells: Vec<(&CellSummary, bool)> = Vec::new();
+    let mut used_cells = UsedCells::new();
 
     let resistance_slots = || layout.families.iter().flat_map(|family| family.iter().copied());
     let zero_has_resistance = resistance_slots().any(|slot| zero.cells[slot].is_some());
@@ -332,14 +380,14 @@ pub(super) fn build_row(
     // Offsets, current reversal and polarity coverage over every fit the row rests on.
     let mut thermoelectric_offset_ratio: Option<f64> = None;
     let mut current_reversal_mismatch: Option<f64> = None;
-    for (cell, is_resistance) in &used_cells {
+    for (cell, is_resistance) in used_cells.iter() {
         if !cell.has_both_polarities() {
             raised.raise(flags::NO_CURRENT_REVERSAL);
         }
         if let Some(ratio) = cell.offset_ratio() {
             thermoelectric_offset_ratio = Some(thermoelectric_offset_ratio.map_or(ratio, |max| max.max(ratio)));
         }
-        if *is_resistance {
+        if is_resistance {
             if let Some(mismatch) = cell.current_reversal_mismatch() {
                 current_reversal_mismatch = Some(current_reversal_mismatch.map_or(mismatch, |max| max.max(mismatch)));
             }
@@ -422,7 +470,7 @@ pub(super) fn build_row(
 
     let mut evidence = resistance.evidence;
     evidence.add(hall.evidence);
-    for (cell, _) in &used_cells {
+    for (cell, _) in used_cells.iter() {
         evidence.add(cell.noise);
     }
     let draft = RowDraft {
@@ -545,6 +593,17 @@ fn grouping_warning(
     raised: &[&'static str],
     settings: &ReduceSettings,
 ) -> Option<String> {
+    // Most rows warn of nothing: the message is only formatted for those that do.
+    let warns = [
+        flags::NO_FIELD_DATA,
+        flags::MISSING_CONFIGURATIONS,
+        flags::NO_FIELD_REVERSAL,
+    ]
+    .iter()
+    .any(|flag| raised.contains(flag));
+    if !warns {
+        return None;
+    }
     let at = match field {
         Some(cells) => format!("|B| = {:.4} T", cells.field_t),
         None => "zero field".to_owned(),
@@ -579,10 +638,7 @@ fn exceeds(value: Option<f64>, limit: f64) -> bool {
 
 /// The field-even part (R(+B) + R(-B)) / 2 of a resistance configuration, or the one field
 /// sign present.
-fn field_even_resistance<'a>(
-    cells: &'a [Option<CellSummary>; 2],
-    used_cells: &mut Vec<(&'a CellSummary, bool)>,
-) -> Option<Estimate> {
+fn field_even_resistance<'a>(cells: &'a [Option<CellSummary>; 2], used_cells: &mut UsedCells<'a>) -> Option<Estimate> {
     match cells {
         [Some(plus), Some(minus)] => {
             used_cells.push((plus, true));
@@ -616,14 +672,20 @@ fn van_der_pauw_resistance(
     let mut reciprocity_mismatch: Option<f64> = None;
     let mut evidence = NoiseEvidence::default();
     let mut family_estimate = |slots: [usize; 2]| -> Option<Estimate> {
-        let present: Vec<Estimate> = slots.iter().filter_map(|&slot| slot_resistance[slot]).collect();
-        evidence.add(redundancy_evidence(&present));
+        let mut storage = [Estimate::default(); 2];
+        let mut count = 0;
+        for estimate in slots.iter().filter_map(|&slot| slot_resistance[slot]) {
+            storage[count] = estimate;
+            count += 1;
+        }
+        let present = &storage[..count];
+        evidence.add(redundancy_evidence(present));
         if let [direct, reciprocal] = present[..] {
             let mean = 0.5 * (direct.value + reciprocal.value);
             let mismatch = (direct.value - reciprocal.value).abs() / mean.abs();
             reciprocity_mismatch = Some(reciprocity_mismatch.map_or(mismatch, |max: f64| max.max(mismatch)));
         }
-        combine_redundant(&present)
+        combine_redundant(present)
     };
     let family_a = family_estimate(VAN_DER_PAUW_LAYOUT.families[0]);
     let family_b = family_estimate(VAN_DER_PAUW_LAYOUT.families[1]);
@@ -660,9 +722,17 @@ fn van_der_pauw_resistance(
     let (a, b) = (resistance_a.value, resistance_b.value);
     part.resistance_ratio = Some((a / b).max(b / a));
     // Positive finite inputs cannot fail; an error here would be a defect of the solver.
+    // One solution serves the sheet resistance, the factor f and the gradient: they are
+    // the formulas of `van_der_pauw::correction_factor` and `sheet_resistance_gradient`,
+    // applied to the same R_s, without solving the equation three times per row.
     let sheet = van_der_pauw::sheet_resistance(a, b).ok();
-    let factor = van_der_pauw::correction_factor(a, b).ok();
-    let gradient = van_der_pauw::sheet_resistance_gradient(a, b).ok();
+    let factor = sheet.map(|sheet| sheet * 2.0 * LN_2 / (PI * (a + b)));
+    let gradient = sheet.map(|sheet| {
+        let term_a = (-PI * a / sheet).exp();
+        let term_b = (-PI * b / sheet).exp();
+        let denominator = a * term_a + b * term_b;
+        (sheet * term_a / denominator, sheet * term_b / denominator)
+    });
     part.geometry_factor = factor;
     part.sheet_resistance = sheet.map(|value| {
         let standard_error = gradient.and_then(|(gradient_a, gradient_b)| {
@@ -699,12 +769,18 @@ fn hall_bar_resistance(
     raised: &mut RaisedFlags,
     warnings: &mut Vec<String>,
 ) -> ResistancePart {
-    let present: Vec<Estimate> = HALL_BAR_LAYOUT.families[0]
+    let mut storage = [Estimate::default(); 2];
+    let mut count = 0;
+    for estimate in HALL_BAR_LAYOUT.families[0]
         .iter()
         .filter_map(|&slot| slot_resistance[slot])
-        .collect();
-    let evidence = redundancy_evidence(&present);
-    let Some(longitudinal) = combine_redundant(&present) else {
+    {
+        storage[count] = estimate;
+        count += 1;
+    }
+    let present = &storage[..count];
+    let evidence = redundancy_evidence(present);
+    let Some(longitudinal) = combine_redundant(present) else {
         return ResistancePart::default();
     };
     let mut part = ResistancePart {
@@ -735,11 +811,11 @@ fn raise_nonpositive(group: &TemperatureGroup<'_>, values: &str, raised: &mut Ra
 fn hall_resistance<'a>(
     field: &'a FieldCells,
     layout: &Layout,
-    used_cells: &mut Vec<(&'a CellSummary, bool)>,
+    used_cells: &mut UsedCells<'a>,
     raised: &mut RaisedFlags,
 ) -> HallPart {
-    let mut odd_parts: Vec<Estimate> = Vec::with_capacity(4);
-    let mut misalignment: Vec<f64> = Vec::with_capacity(2);
+    let mut odd_parts: Few<Estimate, 4> = Few::new();
+    let mut misalignment: Few<f64, 2> = Few::new();
     for slot in layout.hall_slots {
         let [plus, minus] = &field.cells[slot];
         for cell in [plus, minus].into_iter().flatten() {
@@ -756,7 +832,7 @@ fn hall_resistance<'a>(
                 continue;
             }
         };
-        let mut even_parts: Vec<f64> = Vec::with_capacity(2);
+        let mut even_parts: Few<f64, 2> = Few::new();
         for polarity in 0..2 {
             if let (Some(at_plus), Some(at_minus)) = (plus.polarity[polarity], minus.polarity[polarity]) {
                 // (R(+B1) - R(-B2)) / (B1 + B2) is R_Hs whatever the two fields; times the
@@ -786,9 +862,16 @@ fn hall_resistance<'a>(
         // polarity found by the caller say why the Hall quantities are null.
         return HallPart::default();
     }
-    let hall_resistance = combine_redundant(&odd_parts).expect("at least one odd part");
-    let values: Vec<f64> = odd_parts.iter().map(|estimate| estimate.value).collect();
-    let mean = mean_with_standard_error(&values).expect("at least one odd part").value;
+    let mut odd_storage = [Estimate::default(); 4];
+    let odd_count = estimates(&odd_parts, &mut odd_storage);
+    let odd_parts = &odd_storage[..odd_count];
+    let hall_resistance = combine_redundant(odd_parts).expect("at least one odd part");
+    let mut value_storage = [0.0; 4];
+    for (slot, estimate) in value_storage.iter_mut().zip(odd_parts) {
+        *slot = estimate.value;
+    }
+    let values = &value_storage[..odd_count];
+    let mean = mean_with_standard_error(values).expect("at least one odd part").value;
     let mixed_signs = values.iter().any(|value| *value > 0.0) && values.iter().any(|value| *value < 0.0);
     if mixed_signs {
         raised.raise(flags::HALL_INCONSISTENT);
@@ -812,6 +895,6 @@ fn hall_resistance<'a>(
         hall_resistance: Some(hall_resistance),
         hall_spread,
         misalignment_ratio,
-        evidence: redundancy_evidence(&odd_parts),
+        evidence: redundancy_evidence(odd_parts),
     }
 }

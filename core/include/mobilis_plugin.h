@@ -1,5 +1,5 @@
 /*
- * mobilis plugin ABI, version 1.0: the C view of core/src/abi.rs.
+ * mobilis plugin ABI, version 1.1: the C view of core/src/abi.rs.
  *
  * A plugin is a shared library exporting one function:
  *
@@ -17,10 +17,28 @@
  *  - The output table is written by the plugin into output->schema / output->array with
  *    release callbacks of its own; the host calls them when done.
  *
- * Tables are Arrow struct arrays, one child per column. Hosts send the classic layouts:
- * "g" float64, "l" int64, "b" boolean, "U" large UTF-8 (int64 offsets); nulls through the
+ * Tables are Arrow struct arrays, one child per column. Hosts send "g" float64, "l" int64,
+ * "b" boolean, and text as "U" large UTF-8 (int64 offsets) or, to a plugin that declared
+ * the feature MOBILIS_FEATURE_STRING_VIEWS, as "vu" string views; nulls through the
  * validity bitmap. A plugin's output may use any layout the Arrow C Data Interface defines
- * that the host understands (the same four, and "u" UTF-8, are always fine).
+ * that the host understands ("g", "l", "b", "U", "u" and "vu" are always fine).
+ *
+ * String views ("vu"; Arrow Columnar Format, "Variable-size Binary View Layout", and the
+ * C Data Interface, "Binary view arrays"): buffers[0] is the validity bitmap, buffers[1]
+ * holds one 16-byte view per row, buffers[2 .. n_buffers-2] are the variadic data buffers
+ * and buffers[n_buffers-1] holds their sizes as int64. A view starts with an int32 length;
+ * a string of at most 12 bytes follows inline, a longer one is given by a 4-byte prefix,
+ * an int32 index into the data buffers and an int32 offset into that buffer. Text crosses
+ * as views without a copy, because that is how the host keeps it.
+ *
+ * Versions. A host accepts every plugin of its major version, whatever its minor; a minor
+ * version only adds things an older peer may ignore:
+ *  1.0  the descriptor below, describe, invoke, release_string; text sent as "U".
+ *  1.1  the declaration's "features" may list MOBILIS_FEATURE_STRING_VIEWS, and the host
+ *       then sends text as "vu". No descriptor field was added: a plugin that does not
+ *       list the feature (every 1.0 plugin) keeps receiving "U".
+ * Fields appended to MobilisPluginDescriptor in a later minor version will be read only
+ * from plugins whose abi_minor is at least that version.
  *
  * Threads: invoke may be called from several host threads at once, for different calls.
  * Never longjmp or throw across these functions.
@@ -36,8 +54,11 @@ extern "C" {
 #endif
 
 #define MOBILIS_ABI_MAJOR 1
-#define MOBILIS_ABI_MINOR 0
+#define MOBILIS_ABI_MINOR 1
 #define MOBILIS_ENTRY_SYMBOL "mobilis_plugin_entry"
+
+/* Names a plugin may list in its declaration's "features" (ABI 1.1 and later). */
+#define MOBILIS_FEATURE_STRING_VIEWS "string_views" /* send text as "vu" string views */
 
 /* Status codes returned by invoke. */
 #define MOBILIS_STATUS_OK 0

@@ -1,9 +1,11 @@
-//! The C ABI between the daemon and plugin libraries, version 1.0.
+//! The C ABI between the daemon and plugin libraries, version 1.1.
 //!
 //! **API Boundary.** Everything here is `#[repr(C)]` and mirrored field by field in
 //! `core/include/mobilis_plugin.h`; change both or neither, and bump [`ABI_MAJOR`] for any
-//! change that an older host or plugin would misread. Adding a status code or a field at
-//! the *end* of [`PluginDescriptor`] is a minor change.
+//! change that an older host or plugin would misread. Adding a status code, a declaration
+//! feature or a field at the *end* of [`PluginDescriptor`] is a minor change; a host reads
+//! an appended field only from plugins whose `abi_minor` is at least the version that
+//! added it.
 //!
 //! A plugin exports one function, [`ENTRY_SYMBOL`], returning a pointer to a static
 //! [`PluginDescriptor`]. The first two fields of the descriptor (`abi_major`, `abi_minor`)
@@ -20,9 +22,22 @@
 //!   host through the Arrow release callbacks (which run plugin code: a host never unloads a
 //!   library while it runs).
 //!
-//! Tables are Arrow struct arrays, one child per column, with the classic layouts (float64
-//! `g`, int64 `l`, boolean `b`, large UTF-8 `U`; no string views), so that a plugin written
-//! in C can read them with the Arrow specification alone.
+//! Tables are Arrow struct arrays, one child per column: float64 `g`, int64 `l`, boolean
+//! `b`, and text as large UTF-8 `U` or, for a plugin that declared
+//! [`FEATURE_STRING_VIEWS`], as string views `vu`. A plugin written in C reads either with
+//! the Arrow specification alone.
+//!
+//! Minor versions (each is read by every host of the same major):
+//! - 1.0: the descriptor, `describe`, `invoke`, `release_string`; text crosses as `U`.
+//! - 1.1: no new descriptor field. The declaration's `features` may name
+//!   [`FEATURE_STRING_VIEWS`]: the host then sends text columns as string views, the
+//!   layout polars keeps them in, so they cross without a copy. Plugins that do not name it
+//!   (every 1.0 plugin) still get `U`. Outputs may use `U`, `u` or `vu` in every version
+//!   (a 1.0 daemon already read all three). The capability travels in the declaration, the
+//!   existing place for optional capabilities, rather than in a field appended to the
+//!   descriptor: a host would have to read such a field through a pointer to a shorter
+//!   static in every 1.0 plugin, and the declaration already reaches isolated workers'
+//!   supervisors as it is.
 
 use polars_arrow::ffi::{ArrowArray, ArrowSchema};
 use serde::{Deserialize, Serialize};
@@ -31,7 +46,12 @@ use std::os::raw::{c_char, c_void};
 /// Incompatible changes bump the major version; hosts refuse any other major.
 pub const ABI_MAJOR: u32 = 1;
 /// Compatible additions bump the minor version.
-pub const ABI_MINOR: u32 = 0;
+pub const ABI_MINOR: u32 = 1;
+/// Declaration feature (ABI 1.1): the plugin reads text columns as Arrow string views
+/// (format `vu`: a views buffer of 16-byte views, variadic data buffers, then a buffer of
+/// their int64 sizes; Arrow Columnar Format, "Variable-size Binary View Layout"). Hosts
+/// send such a plugin its text without copying it.
+pub const FEATURE_STRING_VIEWS: &str = "string_views";
 /// Name of the exported entry function, `const MobilisPluginDescriptor *mobilis_plugin_entry(void)`.
 pub const ENTRY_SYMBOL: &str = "mobilis_plugin_entry";
 
@@ -146,7 +166,8 @@ pub type EntryFn = unsafe extern "C" fn() -> *const PluginDescriptor;
 /// format: the host turns it into its own wire types.
 #[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct PluginDeclaration {
-    /// Optional capabilities beyond ABI 1.0; hosts ignore names they do not know.
+    /// Optional capabilities beyond ABI 1.0 (for example [`FEATURE_STRING_VIEWS`]); hosts
+    /// ignore names they do not know.
     #[serde(default)]
     pub features: Vec<String>,
     pub analyses: Vec<AnalysisDeclaration>,

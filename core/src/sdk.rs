@@ -207,7 +207,8 @@ fn panic_message(payload: &(dyn std::any::Any + Send)) -> String {
 pub fn describe_registered(registry: &[Registration]) -> *mut c_char {
     let built = catch_unwind(|| {
         let declaration = PluginDeclaration {
-            features: Vec::new(),
+            // The SDK imports text in either layout; views spare the host a copy.
+            features: vec![abi::FEATURE_STRING_VIEWS.to_owned()],
             analyses: registry.iter().map(|entry| (entry.declaration)()).collect(),
         };
         serde_json::to_string(&declaration).map(|json| into_raw_c_string(&json))
@@ -314,6 +315,7 @@ unsafe fn invoke_unguarded(
         .map_err(|error| (error.status(), error.to_string()))?;
 
     let result_json = serde_json::json!({ "summary": result.summary, "warnings": result.warnings }).to_string();
+    // Text leaves as string views: every host reads them (a 1.0 daemon did too).
     let (schema, array) = table_ffi::export_frame(&result.table).map_err(|error| {
         (
             abi::STATUS_PANIC,

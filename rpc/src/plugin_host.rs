@@ -19,7 +19,7 @@ use crate::plugin_supervisor::{WorkerPool, WorkerSettings};
 use mobilis_core::abi::{
     self, AnalysisDeclaration, EntryFn, HostContext, InputTable, InvokeOutput, PluginDeclaration, PluginDescriptor,
 };
-use mobilis_core::table_ffi;
+use mobilis_core::table_ffi::{self, TextLayout};
 use polars::prelude::DataFrame;
 use std::collections::BTreeMap;
 use std::ffi::{CStr, CString};
@@ -454,15 +454,20 @@ impl PluginHost {
             .plugin_of(analysis)
             .ok_or_else(|| failure(abi::STATUS_UNKNOWN_ANALYSIS, format!("no analysis `{analysis}`")))?;
         match &plugin.backend {
-            Backend::InProcess(descriptor) => invoke_descriptor(descriptor, analysis, params, inputs, control),
+            Backend::InProcess(descriptor) => {
+                let layout = TextLayout::for_features(&plugin.features);
+                invoke_descriptor(descriptor, layout, analysis, params, inputs, control)
+            }
             Backend::Isolated(pool) => pool.invoke(analysis, params, inputs, control),
         }
     }
 }
 
-/// Calls an analysis of a library loaded in this process. Blocking.
+/// Calls an analysis of a library loaded in this process, its input text in `layout` (see
+/// [`TextLayout::for_features`]). Blocking.
 pub fn invoke_descriptor(
     descriptor: &PluginDescriptor,
+    layout: TextLayout,
     analysis: &str,
     params: &serde_json::Value,
     inputs: &[(String, DataFrame)],
@@ -478,7 +483,7 @@ pub fn invoke_descriptor(
     let mut exported = Vec::with_capacity(inputs.len());
     for (role, frame) in inputs {
         roles.push(CString::new(role.as_str()).map_err(|_| failure(abi::STATUS_INVALID_INPUT, "NUL in role".into()))?);
-        let (schema, array) = table_ffi::export_frame(frame)
+        let (schema, array) = table_ffi::export_frame_as(frame, layout)
             .map_err(|error| failure(abi::STATUS_INVALID_INPUT, format!("input `{role}`: {error}")))?;
         exported.push((Box::new(schema), Box::new(array)));
     }

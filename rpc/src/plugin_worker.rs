@@ -9,6 +9,7 @@
 
 use crate::plugin_host::{self, CallControl, OpenedLibrary};
 use crate::worker_protocol::{self as protocol, Frame, FromWorker, ToWorker};
+use mobilis_core::table_ffi::TextLayout;
 use polars::prelude::DataFrame;
 use std::fs::File;
 use std::io::{BufReader, BufWriter, Write};
@@ -54,6 +55,7 @@ pub fn run(library: &Path) -> i32 {
             return 0;
         }
     };
+    let layout = TextLayout::for_features(&declaration.features);
     let declaration = serde_json::to_string(&declaration).expect("a declaration serialises");
     if send(&FromWorker::Ready {
         name: identity.name,
@@ -77,7 +79,8 @@ pub fn run(library: &Path) -> i32 {
     for call in incoming {
         let control = progress_control(Arc::clone(&output));
         *current.lock().unwrap_or_else(|p| p.into_inner()) = Some(Arc::clone(&control));
-        let result = plugin_host::invoke_descriptor(descriptor, &call.analysis, &call.params, &call.inputs, &control);
+        let result =
+            plugin_host::invoke_descriptor(descriptor, layout, &call.analysis, &call.params, &call.inputs, &control);
         drop(call);
         // Cleared before answering, so that a cancel arriving after the answer finds no call.
         *current.lock().unwrap_or_else(|p| p.into_inner()) = None;

@@ -29,10 +29,9 @@
 //!   this is the whole cost of the boundary (both ways) for this table, with no compute.
 //! - (c) `table_ffi::export_frame` followed by `table_ffi::import_frame` in the same
 //!   process: one crossing without a plugin, the reference for (b), which makes two.
-//! - (b') and (c'): the same without the `sample` column. Numeric columns cross without a
-//!   copy; a string column is rewritten to the classic large UTF-8 layout on export and
-//!   back to string views on import (see `mobilis_core::abi`), so the difference between
-//!   (b) and (b') is what the text column costs.
+//! - (b') and (c'): the same without the `sample` column. Every column crosses without a
+//!   copy (text as Arrow string views, see `mobilis_core::table_ffi`), so the difference
+//!   between (b) and (b') is what the text column costs: one buffer more, no copy.
 //!
 //! - (a-iso) and (b-iso): (a) and (b) with the plugins isolated, as the daemon runs a
 //!   `--plugin-dir` library: the call goes to a worker process (`mobilisd --plugin-worker`,

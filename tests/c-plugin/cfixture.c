@@ -17,6 +17,11 @@
  *                           (SIGSEGV), 2 calls exit(3), 3 spins for ever without looking at
  *                           the cancel flag; the plugin-isolation tests use these
  *   FIXTURE_ABORT_ON_LOAD   call abort() from a library constructor, before any entry point
+ *   FIXTURE_ABI_MINOR=N     declare ABI minor N instead of the header's (an "older plugin" build)
+ *   FIXTURE_STRING_VIEWS    declare the "string_views" feature (ABI 1.1) and a text column x,
+ *                           read as string views "vu" or large UTF-8 "U": total is then the
+ *                           byte length of its non-null strings, after every view was checked
+ *                           against its data buffer (a C reader of the view layout)
  */
 #include "mobilis_plugin.h"
 
@@ -28,6 +33,16 @@
 
 #ifndef FIXTURE_ABI_MAJOR
 #define FIXTURE_ABI_MAJOR MOBILIS_ABI_MAJOR
+#endif
+#ifndef FIXTURE_ABI_MINOR
+#define FIXTURE_ABI_MINOR MOBILIS_ABI_MINOR
+#endif
+#ifdef FIXTURE_STRING_VIEWS
+#define FIXTURE_FEATURES "[\"" MOBILIS_FEATURE_STRING_VIEWS "\"]"
+#define FIXTURE_X_DTYPE "str"
+#else
+#define FIXTURE_FEATURES "[]"
+#define FIXTURE_X_DTYPE "f64"
 #endif
 
 /* Two steps, so that the define's value, not its name, becomes the string. */
@@ -67,13 +82,13 @@ __attribute__((constructor)) static void abort_on_load(void) { abort(); }
 
 /* The declaration describe returns: the same JSON a Rust plugin's SDK would write. */
 static const char DECLARATION[] =
-    "{\"features\":[],\"analyses\":[{"
+    "{\"features\":" FIXTURE_FEATURES ",\"analyses\":[{"
     "\"name\":\"" SUM_ANALYSIS "\","
     "\"summary\":\"Sum and count of the non-null values of column x\","
     "\"description\":\"A plugin written in C99 against the C header, to test the plugin boundary.\","
     "\"params\":{\"type\":\"object\",\"additionalProperties\":false,\"properties\":{}},"
     "\"inputs\":[{\"role\":\"" VALUES_ROLE "\",\"required\":true,\"description\":\"the values to sum\","
-    "\"columns\":[{\"name\":\"x\",\"dtype\":\"f64\",\"unit\":null,\"required\":true,"
+    "\"columns\":[{\"name\":\"x\",\"dtype\":\"" FIXTURE_X_DTYPE "\",\"unit\":null,\"required\":true,"
     "\"description\":\"values; nulls are skipped\"}]}],"
     "\"outputs\":["
     "{\"name\":\"total\",\"dtype\":\"f64\",\"unit\":null,\"required\":true,\"description\":\"sum of the non-null x\"},"
@@ -292,6 +307,61 @@ static int32_t fail(MobilisInvokeOutput *output, int32_t status, char *message) 
   return status;
 }
 
+static int32_t finish(double total, int64_t count, const MobilisHostContext *context, MobilisInvokeOutput *output);
+
+#ifdef FIXTURE_STRING_VIEWS
+/* Column x as text: the sum of the byte lengths of its non-null strings. With views
+ * ("vu"), every view is checked as the Arrow columnar format describes it: 16 bytes, an
+ * int32 length, then up to 12 inline bytes or a 4-byte prefix, an int32 index into the
+ * variadic data buffers and an int32 offset into that buffer; the last buffer holds the
+ * int64 sizes of the data buffers. */
+static int32_t sum_text_lengths(const struct ArrowArray *table, int64_t column, int views,
+                                const MobilisHostContext *context, MobilisInvokeOutput *output) {
+  const struct ArrowArray *x = table->children[column];
+  const int64_t start = table->offset + x->offset;
+  const uint8_t *validity = x->null_count != 0 ? x->buffers[0] : NULL;
+  if (views && x->n_buffers < 3) {
+    return fail(output, MOBILIS_STATUS_INVALID_INPUT,
+                format_string("a string view column has at least 3 buffers, got %lld", (long long)x->n_buffers));
+  }
+  const int64_t data_count = views ? x->n_buffers - 3 : 0;
+  const int64_t *sizes = views ? x->buffers[x->n_buffers - 1] : NULL;
+  double total = 0.0;
+  int64_t count = 0;
+  for (int64_t row = 0; row < table->length; row++) {
+    if (validity != NULL && !bit_is_set(validity, start + row)) {
+      continue;
+    }
+    int64_t length;
+    if (views) {
+      const uint8_t *view = (const uint8_t *)x->buffers[1] + 16 * (start + row);
+      int32_t view_length, index, offset;
+      memcpy(&view_length, view, 4);
+      length = view_length;
+      if (view_length > 12) {
+        memcpy(&index, view + 8, 4);
+        memcpy(&offset, view + 12, 4);
+        if (index < 0 || index >= data_count || offset < 0 || (int64_t)offset + view_length > sizes[index]) {
+          return fail(output, MOBILIS_STATUS_INVALID_INPUT,
+                      format_string("row %lld: the view points outside its data buffer", (long long)row));
+        }
+        const uint8_t *data = (const uint8_t *)x->buffers[2 + index] + offset;
+        if (memcmp(data, view + 4, 4) != 0) {
+          return fail(output, MOBILIS_STATUS_INVALID_INPUT,
+                      format_string("row %lld: the view's prefix differs from its data", (long long)row));
+        }
+      }
+    } else {
+      const int64_t *offsets = x->buffers[1];
+      length = offsets[start + row + 1] - offsets[start + row];
+    }
+    total += (double)length;
+    count++;
+  }
+  return finish(total, count, context, output);
+}
+#endif
+
 static int32_t sum_values(const MobilisInputTable *input, const MobilisHostContext *context,
                           MobilisInvokeOutput *output) {
   const struct ArrowSchema *schema = input->schema;
@@ -318,6 +388,11 @@ static int32_t sum_values(const MobilisInputTable *input, const MobilisHostConte
                 copy_string("input `" VALUES_ROLE "` has no column `x`; add a float64 column named x"));
   }
   const char *format = schema->children[column]->format;
+#ifdef FIXTURE_STRING_VIEWS
+  if (strcmp(format, "vu") == 0 || strcmp(format, "U") == 0) {
+    return sum_text_lengths(array, column, format[0] == 'v', context, output);
+  }
+#endif
   if (strcmp(format, "g") != 0) {
     return fail(output, MOBILIS_STATUS_INVALID_INPUT,
                 format_string("column `x` of input `" VALUES_ROLE "` must be float64 (Arrow format \"g\"), got \"%s\"",
@@ -351,6 +426,11 @@ static int32_t sum_values(const MobilisInputTable *input, const MobilisHostConte
     total += values[start + row];
     count++;
   }
+  return finish(total, count, context, output);
+}
+
+/* Reports completion and writes the result of a sum. */
+static int32_t finish(double total, int64_t count, const MobilisHostContext *context, MobilisInvokeOutput *output) {
   if (context != NULL && context->report_progress != NULL) {
     context->report_progress(context->host_data, 1.0, "summed");
   }
@@ -406,7 +486,7 @@ static int32_t invoke(const char *analysis, const char *params_json, const Mobil
 }
 
 static const MobilisPluginDescriptor DESCRIPTOR = {
-    FIXTURE_ABI_MAJOR, MOBILIS_ABI_MINOR, FIXTURE_NAME_TEXT, "0.1.0", describe, invoke, release_string,
+    FIXTURE_ABI_MAJOR, FIXTURE_ABI_MINOR, FIXTURE_NAME_TEXT, "0.1.0", describe, invoke, release_string,
 };
 
 FIXTURE_EXPORT const MobilisPluginDescriptor *FIXTURE_ENTRY_FUNCTION(void);

@@ -256,7 +256,8 @@ async fn unusable_libraries_are_refused_by_name_and_the_daemon_keeps_serving(mod
 
     let reason = reason_for("cfixture_abi2");
     assert!(
-        reason.contains("ABI 2.0") && reason.contains("ABI 1.0"),
+        reason.contains(&format!("ABI 2.{}", abi::ABI_MINOR))
+            && reason.contains(&format!("ABI {}.{}", abi::ABI_MAJOR, abi::ABI_MINOR)),
         "the reason should give both ABI versions: {reason}"
     );
     let reason = reason_for("cfixture_no_entry");
@@ -578,7 +579,108 @@ async fn a_pipeline_pushes_its_progress_over_websocket_step_by_step(mode: Mode) 
     assert!(message.contains("cannot carry its own call_id"), "{message}");
 }
 
+/// Text for the string-view tests: nulls, strings short enough to live inside their view
+/// (at most 12 bytes) and longer ones in the data buffers; with the byte length and number
+/// of the non-null ones.
+fn text_values(rows: usize) -> (Vec<Option<String>>, f64, i64) {
+    let values: Vec<Option<String>> = (0..rows)
+        .map(|i| match i % 7 {
+            3 => None,
+            0 | 2 => Some(format!("s{i}")),
+            _ => Some(format!("a sample name long enough to need a data buffer, row {i}")),
+        })
+        .collect();
+    let total = values.iter().flatten().map(|text| text.len() as f64).sum();
+    let count = values.iter().flatten().count() as i64;
+    (values, total, count)
+}
+
+/// ABI 1.1: a plugin that declared `string_views` gets text as Arrow string views, read
+/// here by C code that knows only the Arrow specification, in process and isolated.
+async fn a_c_plugin_that_declared_string_views_reads_text_as_views(mode: Mode) {
+    let dir = tempfile::tempdir().unwrap();
+    build_c_plugin(dir.path(), "cfixture_views", &[("FIXTURE_STRING_VIEWS", None)]);
+    let daemon = daemon_with_plugins(dir.path(), mode).await;
+    let plugins = daemon.call("plugin.list", json!({})).await;
+    assert_eq!(
+        plugins[0]["features"],
+        json!([abi::FEATURE_STRING_VIEWS]),
+        "{plugins:?}"
+    );
+    assert_eq!(plugins[0]["abi_minor"], abi::ABI_MINOR);
+
+    let (values, expected_total, expected_count) = text_values(1000);
+    daemon
+        .call("dataset.import", json!({"name": "text", "columns": {"x": values}}))
+        .await;
+    let run = daemon
+        .call(
+            "analysis.run",
+            json!({"analysis": "cfixture.sum", "inputs": {"values": "text"}, "output": "text_sum"}),
+        )
+        .await;
+    assert_eq!(run["summary"]["total"].as_f64(), Some(expected_total), "{run}");
+    let page = daemon.call("dataset.rows", json!({"name": "text_sum"})).await;
+    assert_eq!(page["columns"]["count"], json!([expected_count]));
+}
+
+/// The layout of text follows what each C plugin declared: an ABI 1.0 plugin (and a 1.1
+/// plugin without the feature) gets large UTF-8, as ABI 1.0 promised; a plugin that
+/// declared `string_views` gets views, sliced tables included. Called in process, where
+/// the C plugin's own message names the Arrow format it received.
+#[test]
+fn text_reaches_each_c_plugin_in_the_layout_it_declared() {
+    let dir = tempfile::tempdir().unwrap();
+    let control = Arc::new(CallControl::default());
+    let params = json!({});
+    let (values, total, count) = text_values(300);
+    let text = table(Column::new("x".into(), values));
+
+    for (name, defines) in [
+        ("cfixture_old", vec![("FIXTURE_ABI_MINOR", Some("0"))]),
+        ("cfixture_plain", vec![]),
+    ] {
+        let library = build_c_plugin(dir.path(), name, &defines);
+        let mut host = PluginHost::default();
+        host.load(&library).expect("the C plugin loads");
+        let minor = host.plugin_of("cfixture.sum").unwrap().abi_minor;
+        assert_eq!(minor, if name == "cfixture_old" { 0 } else { abi::ABI_MINOR });
+        let failure = host
+            .invoke("cfixture.sum", &params, &[("values".into(), text.clone())], &control)
+            .err()
+            .unwrap();
+        assert!(failure.message.contains("got \"U\""), "{name}: {}", failure.message);
+    }
+
+    let library = build_c_plugin(dir.path(), "cfixture_views", &[("FIXTURE_STRING_VIEWS", None)]);
+    let mut host = PluginHost::default();
+    host.load(&library).expect("the C plugin loads");
+    let sum = |frame: DataFrame| {
+        let success = host
+            .invoke("cfixture.sum", &params, &[("values".into(), frame)], &control)
+            .map_err(|failure| failure.message)
+            .unwrap();
+        let total = success.summary["total"].as_f64().unwrap();
+        let count = success.table.column("count").unwrap().i64().unwrap().get(0).unwrap();
+        (total, count)
+    };
+    assert_eq!(sum(text.clone()), (total, count));
+    // A slice starts at an offset into the views and the validity bitmap.
+    let slice = text.slice(5, 100);
+    let expected = slice.column("x").unwrap().str().unwrap();
+    let expected_total: f64 = expected.iter().flatten().map(|text| text.len() as f64).sum();
+    assert_eq!(
+        sum(slice.clone()),
+        (
+            expected_total,
+            slice.height() as i64 - slice.column("x").unwrap().null_count() as i64
+        )
+    );
+    assert_eq!(sum(text.head(Some(0))), (0.0, 0));
+}
+
 in_both_modes!(
+    a_c_plugin_that_declared_string_views_reads_text_as_views,
     the_c_plugin_loads_and_sums_a_column_with_nulls,
     unusable_libraries_are_refused_by_name_and_the_daemon_keeps_serving,
     a_panic_in_a_plugin_is_an_error_and_the_plugin_keeps_working,

@@ -58,6 +58,8 @@
 //!
 //! Runs from each start, keeps the converged run of lowest chi-square and counts how many
 //! converged runs reached the same minimum ([`SameMinimum`]).
+//! [`minimize_multi_start_parallel`] spreads the runs over the rayon pool and gives the same
+//! result to the last bit.
 //!
 //! # Fit quality ([`quality`])
 //!
@@ -80,7 +82,7 @@ mod tests;
 
 pub use line::{fit_line, LineFit};
 pub use lm::{minimize, Bounds, LeastSquares, LmFit, LmOptions, Termination};
-pub use multi_start::{MultiStartFit, SameMinimum, StartOutcome, StartSummary};
+pub use multi_start::{minimize_multi_start_parallel, MultiStartFit, SameMinimum, StartOutcome, StartSummary};
 pub use quality::{
     chi_square_p_value, effective_uncertainty, floored_relative_uncertainty, largest_relative_change, Coverage,
     FitQuality, RELATIVE_UNCERTAINTY_FLOOR,

@@ -110,22 +110,20 @@ impl LeastSquares<'_> {
         options: &LmOptions,
         same_minimum: &SameMinimum,
     ) -> Result<MultiStartFit, FitError> {
-        if starts.is_empty() {
-            return Err(FitError::NoStarts);
-        }
-        for (name, value) in [
-            ("same_minimum.chi_square", same_minimum.chi_square),
-            ("same_minimum.standard_errors", same_minimum.standard_errors),
-        ] {
-            if !(value.is_finite() && value >= 0.0) {
-                return Err(FitError::InvalidOption {
-                    name,
-                    value,
-                    requirement: "give a finite tolerance of 0 or more",
-                });
-            }
-        }
+        check_multi_start(starts, same_minimum)?;
         let runs: Vec<Result<RawRun, FitError>> = starts.iter().map(|start| self.solve(start, options)).collect();
+        self.choose_best(starts, runs, options, same_minimum)
+    }
+
+    /// The best converged run of `runs` (one per start, in the order of `starts`) and the
+    /// agreement of the others with it: the second half of [`Self::minimize_multi_start`].
+    fn choose_best(
+        &self,
+        starts: &[Vec<f64>],
+        runs: Vec<Result<RawRun, FitError>>,
+        options: &LmOptions,
+        same_minimum: &SameMinimum,
+    ) -> Result<MultiStartFit, FitError> {
         // The best run is chosen by chi-square before its covariance is computed: a best
         // minimum whose parameters the data do not determine is reported as such
         // (FitError::Singular), not silently replaced by a worse minimum.
@@ -209,4 +207,42 @@ impl LeastSquares<'_> {
             outcomes,
         })
     }
+}
+
+/// The checks [`LeastSquares::minimize_multi_start`] makes before any run.
+fn check_multi_start(starts: &[Vec<f64>], same_minimum: &SameMinimum) -> Result<(), FitError> {
+    if starts.is_empty() {
+        return Err(FitError::NoStarts);
+    }
+    for (name, value) in [
+        ("same_minimum.chi_square", same_minimum.chi_square),
+        ("same_minimum.standard_errors", same_minimum.standard_errors),
+    ] {
+        if !(value.is_finite() && value >= 0.0) {
+            return Err(FitError::InvalidOption {
+                name,
+                value,
+                requirement: "give a finite tolerance of 0 or more",
+            });
+        }
+    }
+    Ok(())
+}
+
+/// [`LeastSquares::minimize_multi_start`] with the runs spread over the threads of the
+/// rayon pool. The runs are independent and each is computed exactly as in the serial
+/// call, then chosen among in the order of `starts`, so the result is the same to the last
+/// bit. `problem` builds the problem once per run (a [`LeastSquares`] holds its residual
+/// function as a plain closure, which need not be shareable between threads; the data it
+/// borrows must be).
+pub fn minimize_multi_start_parallel<'a>(
+    problem: impl Fn() -> LeastSquares<'a> + Sync,
+    starts: &[Vec<f64>],
+    options: &LmOptions,
+    same_minimum: &SameMinimum,
+) -> Result<MultiStartFit, FitError> {
+    use rayon::prelude::*;
+    check_multi_start(starts, same_minimum)?;
+    let runs: Vec<Result<RawRun, FitError>> = starts.par_iter().map(|start| problem().solve(start, options)).collect();
+    problem().choose_best(starts, runs, options, same_minimum)
 }

@@ -528,3 +528,43 @@ fn fit_refuses_bad_problems_with_clear_errors() {
         assert!(message.contains("give") || message.contains("fix") || message.contains("add"));
     }
 }
+
+// The parallel multi-start runs the same runs and chooses among them in the same order, so
+// its result equals the serial one to the last bit, failed and unconverged starts included.
+#[test]
+fn parallel_multi_start_equals_the_serial_one_bit_for_bit() {
+    let times: Vec<f64> = (0..200).map(|i| i as f64 * 0.05).collect();
+    let data: Vec<f64> = times.iter().map(|t| (3.0 * t).sin()).collect();
+    let residuals = |p: &[f64], r: &mut [f64]| {
+        for (i, t) in times.iter().enumerate() {
+            r[i] = (p[0] * t).sin() - data[i];
+        }
+    };
+    let starts = vec![vec![0.7], vec![1.6], vec![2.9], vec![f64::NAN], vec![3.1], vec![5.0]];
+    for options in [
+        LmOptions::default(),
+        LmOptions {
+            max_iterations: 3,
+            ..LmOptions::default()
+        },
+    ] {
+        let serial =
+            LeastSquares::new(times.len(), residuals).minimize_multi_start(&starts, &options, &SameMinimum::default());
+        let parallel = minimize_multi_start_parallel(
+            || LeastSquares::new(times.len(), residuals),
+            &starts,
+            &options,
+            &SameMinimum::default(),
+        );
+        assert_eq!(format!("{serial:?}"), format!("{parallel:?}"));
+    }
+    assert!(matches!(
+        minimize_multi_start_parallel(
+            || LeastSquares::new(times.len(), residuals),
+            &[],
+            &LmOptions::default(),
+            &SameMinimum::default()
+        ),
+        Err(FitError::NoStarts)
+    ));
+}

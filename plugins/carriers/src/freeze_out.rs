@@ -144,10 +144,12 @@ mod tests;
 
 use std::fmt;
 
+use rayon::prelude::*;
+
 use mobilis_core::constants::BOLTZMANN_EV_PER_K;
 use mobilis_core::fit::{
-    effective_uncertainty, fit_line, floored_relative_uncertainty, Bounds, FitError, FitQuality, LeastSquares,
-    LmOptions, MultiStartFit, SameMinimum, RELATIVE_UNCERTAINTY_FLOOR,
+    effective_uncertainty, fit_line, floored_relative_uncertainty, minimize_multi_start_parallel, Bounds, FitError,
+    FitQuality, LeastSquares, LmOptions, MultiStartFit, SameMinimum, RELATIVE_UNCERTAINTY_FLOOR,
 };
 use mobilis_core::forward::mobility::hall_scattering_factor;
 use mobilis_core::forward::statistics::{ACCEPTOR_DEGENERACY_DEFAULT, DONOR_DEGENERACY_DEFAULT};
@@ -999,7 +1001,7 @@ const GRID_STARTS: usize = 4;
 /// starts. The grid covers the whole bounded box, so it finds every basin wider than a grid
 /// step whatever the user guessed.
 fn grid_starts(
-    residual: &dyn Fn(&[f64], &mut [f64]),
+    residual: &(dyn Fn(&[f64], &mut [f64]) + Sync),
     count: usize,
     log_net: f64,
     lower: &[f64],
@@ -1008,17 +1010,24 @@ fn grid_starts(
     let (rows, columns) = (GRID_COMPENSATION_NODES, GRID_ENERGY_NODES);
     let compensation = |i: usize| lower[1] + (upper[1] - lower[1]) * i as f64 / (rows - 1) as f64;
     let energy = |j: usize| lower[2] * (upper[2] / lower[2]).powf(j as f64 / (columns - 1) as f64);
-    let mut r = vec![0.0; count];
-    let mut chi = vec![vec![f64::INFINITY; columns]; rows];
-    for (i, row) in chi.iter_mut().enumerate() {
-        for (j, value) in row.iter_mut().enumerate() {
-            residual(&[log_net, compensation(i), energy(j)], &mut r);
-            let sum: f64 = r.iter().map(|x| x * x).sum();
-            if sum.is_finite() {
-                *value = sum;
-            }
-        }
-    }
+    // The nodes are independent: the rows are computed in parallel.
+    let chi: Vec<Vec<f64>> = (0..rows)
+        .into_par_iter()
+        .map(|i| {
+            let mut r = vec![0.0; count];
+            (0..columns)
+                .map(|j| {
+                    residual(&[log_net, compensation(i), energy(j)], &mut r);
+                    let sum: f64 = r.iter().map(|x| x * x).sum();
+                    if sum.is_finite() {
+                        sum
+                    } else {
+                        f64::INFINITY
+                    }
+                })
+                .collect()
+        })
+        .collect();
     let mut minima: Vec<(f64, usize, usize)> = Vec::new();
     for i in 0..rows {
         for j in 0..columns {
@@ -1286,10 +1295,17 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
         ..LmOptions::default()
     };
     let solve = |sigma: &[f64], starts: &[Vec<f64>]| -> Result<MultiStartFit, FreezeOutError> {
-        let residual = |theta: &[f64], r: &mut [f64]| problem.residuals(theta, sigma, r);
-        let result = LeastSquares::new(count, residual)
-            .with_bounds(bounds.clone())
-            .minimize_multi_start(starts, &options, &SameMinimum::default());
+        // The starts are independent: they run in parallel, with the same result as one
+        // after the other.
+        let result = minimize_multi_start_parallel(
+            || {
+                let residual = |theta: &[f64], r: &mut [f64]| problem.residuals(theta, sigma, r);
+                LeastSquares::new(count, residual).with_bounds(bounds.clone())
+            },
+            starts,
+            &options,
+            &SameMinimum::default(),
+        );
         result.map_err(|error| match error {
             FitError::Singular { parameters } => FreezeOutError::Undetermined {
                 parameters: parameters.iter().map(|&j| PARAMETER_NAMES[j]).collect(),

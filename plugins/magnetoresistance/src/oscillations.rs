@@ -237,6 +237,8 @@ mod waveform;
 
 use std::f64::consts::PI;
 
+use rayon::prelude::*;
+
 use mobilis_core::fft::{amplitude_spectrum, Window};
 use mobilis_core::forward::oscillations::{
     sheet_density_from_frequency_m2, thermal_damping, thermal_damping_log_derivative, LK_FIELD_PER_KELVIN,
@@ -888,10 +890,17 @@ pub fn analyze_oscillations(
     let mut analysis = analyze_once(sweeps, settings)?;
     let mut outcomes = Vec::new();
     if settings.model_spread {
-        for (label, variant) in budget::variants(settings, &analysis) {
+        // The variants are independent analyses of the same sweeps: they run in parallel
+        // and are taken in their order, as one after the other would give them.
+        let variants = budget::variants(settings, &analysis);
+        let results: Vec<_> = variants
+            .par_iter()
+            .map(|(_, variant)| analyze_once(sweeps, variant))
+            .collect();
+        for ((label, _), result) in variants.into_iter().zip(results) {
             // A variant that fails (too few points for a high degree, a window without a
             // line) has nothing to say about the spread; it is left out, and named.
-            match analyze_once(sweeps, &variant) {
+            match result {
                 Ok(other) => outcomes.push((label, other)),
                 Err(error) => analysis.warnings.push(format!(
                     "the check of the uncertainty with {label} failed and was left out: {error}"

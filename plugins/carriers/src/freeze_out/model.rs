@@ -103,18 +103,24 @@ pub(crate) struct LevelParameters {
     pub compensating_level: Option<(f64, f64)>,
 }
 
-/// ln(1 + e^z) without overflow or loss of precision.
-fn softplus(z: f64) -> f64 {
-    z.max(0.0) + (-z.abs()).exp().ln_1p()
+/// softplus(z) = ln(1 + e^z) without overflow or loss of precision, and the logistic
+/// sigmoid 1 / (1 + e^-z) (its derivative), from one exponential: both need e^-|z|, and the
+/// solver evaluates them together at every step. The operations are those of the two
+/// separate textbook forms, so the values are the same to the last bit.
+fn softplus_and_sigmoid(z: f64) -> (f64, f64) {
+    let e = (-z.abs()).exp();
+    let softplus = z.max(0.0) + e.ln_1p();
+    let sigmoid = if z >= 0.0 { 1.0 / (1.0 + e) } else { e / (1.0 + e) };
+    (softplus, sigmoid)
 }
 
-/// 1 / (1 + e^-z).
-fn sigmoid(z: f64) -> f64 {
-    if z >= 0.0 {
-        1.0 / (1.0 + (-z).exp())
+/// e^(a - largest) for a term of a log-sum-exp: exactly 1 for the largest term itself
+/// (e^0), which saves one exponential per call without changing a bit.
+fn exp_relative(a: f64, largest: f64) -> f64 {
+    if a == largest && largest.is_finite() {
+        1.0
     } else {
-        let e = z.exp();
-        e / (1.0 + e)
+        (a - largest).exp()
     }
 }
 
@@ -124,8 +130,8 @@ fn log_sum_exp(a: f64, b: f64) -> (f64, f64) {
     if largest == f64::NEG_INFINITY {
         return (f64::NEG_INFINITY, 0.5);
     }
-    let ea = (a - largest).exp();
-    let eb = (b - largest).exp();
+    let ea = exp_relative(a, largest);
+    let eb = exp_relative(b, largest);
     (largest + (ea + eb).ln(), ea / (ea + eb))
 }
 
@@ -168,14 +174,13 @@ pub(crate) fn ln_majority_density(terms: &TemperatureTerms, parameters: &LevelPa
         let ln_minority = terms.ln_intrinsic_squared - x;
         let (ln_compensating_ionized, compensating_slope) = match ln_k_compensating {
             Some(ln_kc) => {
-                let z = ln_minority - ln_kc;
-                (parameters.ln_compensating - softplus(z), sigmoid(z))
+                let (softplus, sigmoid) = softplus_and_sigmoid(ln_minority - ln_kc);
+                (parameters.ln_compensating - softplus, sigmoid)
             }
             None => (parameters.ln_compensating, 0.0),
         };
-        let z = x - ln_k;
-        let ln_dopant_ionized = parameters.ln_dopant - softplus(z);
-        let dopant_slope = sigmoid(z);
+        let (softplus, dopant_slope) = softplus_and_sigmoid(x - ln_k);
+        let ln_dopant_ionized = parameters.ln_dopant - softplus;
         let (negative, weight_carriers) = log_sum_exp(x, ln_compensating_ionized);
         let (positive, weight_minority) = log_sum_exp(ln_minority, ln_dopant_ionized);
         let derivative = weight_carriers
@@ -186,12 +191,33 @@ pub(crate) fn ln_majority_density(terms: &TemperatureTerms, parameters: &LevelPa
     };
 
     let start = ln_closed_form_root(ln_k, parameters);
-    let (value, _) = balance(start);
+    let (value, start_derivative) = balance(start);
     if value == 0.0 {
         return start;
     }
     if !value.is_finite() {
         return f64::NAN;
+    }
+    // Where the closed form is already the root to rounding (most temperatures of a fit: the
+    // minority carriers and the compensating level's occupancy negligible), the first
+    // Newton step from it moves it by a few ulps and ends the search. That step does not
+    // depend on the bracket: the bracket's first trial is start +- 1, the step stays strictly
+    // inside (start, start + 1) (or (start - 1, start)) and so inside whatever bracket the
+    // doubling search below finds, and the bracket's width (at least 1) never meets the
+    // width test. So the same value is returned without evaluating the bracket, which is
+    // half the work per point there. (h is strictly increasing and tends to -inf and +inf at
+    // the ends, so that search cannot fail once h is finite at the start.)
+    let tolerance = 4.0 * f64::EPSILON * start.abs().max(1.0);
+    if start_derivative.is_finite() && start_derivative > 0.0 && tolerance < 0.5 {
+        let next = start - value / start_derivative;
+        let inside = if value < 0.0 {
+            next > start && next < start + 1.0
+        } else {
+            next < start && next > start - 1.0
+        };
+        if inside && (next - start).abs() <= tolerance {
+            return next;
+        }
     }
     // Bracket the root: h increases with x. The closed form is usually a lower bound
     // already; 40 doublings (a factor e^(2^40)) cover any representable density.
@@ -214,10 +240,12 @@ pub(crate) fn ln_majority_density(terms: &TemperatureTerms, parameters: &LevelPa
     if !bracketed {
         return f64::NAN;
     }
-    // Safeguarded Newton.
+    // Safeguarded Newton. Its first step is taken from the balance at the start, already
+    // known.
     let mut x = start;
+    let mut at_x = Some((value, start_derivative));
     for _ in 0..200 {
-        let (h, derivative) = balance(x);
+        let (h, derivative) = at_x.take().unwrap_or_else(|| balance(x));
         if h == 0.0 {
             return x;
         }

@@ -1,0 +1,160 @@
+//! Speed and memory of `mr.oscillations` through the plugin ABI, as the daemon calls it:
+//!
+//! - six sweeps of 4,000 points each (1.5 K to 10 K, 0.05 T to 14 T at a constant ramp
+//!   rate) of an invented two-dimensional electron gas (F = 10 T, m* = 0.067 m0,
+//!   T_D = 0.5 K) on a parabolic background, generated with
+//!   `mobilis_core::forward::oscillations` with 5 mOhm of noise;
+//! - one sweep of 40,000 points at 1.5 K: a 0 to 14 T ramp logged continuously at 10 Hz;
+//! - the peak memory of the call on one such ramp of 10,000, 20,000 and 40,000 points (the
+//!   peak resident set is reset before each call), which should grow linearly.
+//!
+//! Run it with
+//!
+//! ```text
+//! cargo bench -p mobilis-tests --bench oscillations
+//! ```
+//!
+//! It builds the release plugin library first. Each figure is the wall time of one call
+//! after one untimed warm-up, median and fastest of several repetitions, beside its goal.
+
+use mobilis_core::forward::oscillations::{synthetic_sdh_sweep, OscillationComponent, SdhModel};
+use mobilis_core::forward::tensor::SweepNoise;
+use mobilis_core::noise::Rng;
+use mobilis_rpc::plugin_host::{CallControl, PluginHost};
+use mobilis_tests::bench::{
+    build_release_plugins, fail, format_kib, format_seconds, invoked_as_benchmark, load_plugins, measure, peak_rss_kib,
+};
+use polars::prelude::*;
+use serde_json::json;
+use std::sync::Arc;
+
+const BENCH: &str = "oscillations";
+const ANALYSIS: &str = "mr.oscillations";
+/// Goals of the speed issue: six sweeps of 4,000 points, and one ramp of 40,000.
+const GOAL_SHORT_S: f64 = 0.050;
+const GOAL_LONG_S: f64 = 0.5;
+const TEMPERATURES_K: [f64; 6] = [1.5, 2.5, 4.0, 6.0, 8.0, 10.0];
+
+fn model() -> SdhModel {
+    SdhModel {
+        background_ohm_sq: vec![100.0, 0.0, 3.0, -0.1],
+        components: vec![OscillationComponent {
+            amplitude: 0.2,
+            ..OscillationComponent::two_dimensional(10.0, 0.067, 0.5)
+        }],
+    }
+}
+
+/// Sweeps of `points` fields each from 0.05 T to 14 T, one per temperature, in the long
+/// layout the daemon stores (a `temperature_K` column tells the sweeps apart).
+fn sweeps(temperatures_k: &[f64], points: usize, seed: u64) -> DataFrame {
+    let model = model();
+    let noise = SweepNoise {
+        absolute_ohm: 5e-3,
+        relative: 0.0,
+    };
+    let mut rng = Rng::seeded(seed);
+    let fields: Vec<f64> = (0..points)
+        .map(|k| 0.05 + (14.0 - 0.05) * k as f64 / (points - 1) as f64)
+        .collect();
+    let (mut field, mut rho_xx, mut temperature) = (Vec::new(), Vec::new(), Vec::new());
+    for &t in temperatures_k {
+        let values = synthetic_sdh_sweep(&model, t, &fields, &noise, &mut rng)
+            .unwrap_or_else(|error| fail(BENCH, &format!("forward model: {error}")));
+        field.extend_from_slice(&fields);
+        rho_xx.extend(values);
+        temperature.extend(std::iter::repeat_n(t, points));
+    }
+    let rho_xy: Vec<f64> = field.iter().map(|b| -50.0 * b).collect();
+    df!(
+        "field_T" => field,
+        "rho_xx_ohm_sq" => rho_xx,
+        "rho_xy_ohm" => rho_xy,
+        "temperature_K" => temperature,
+    )
+    .expect("columns of equal length")
+}
+
+/// Resets the peak resident set of this process to its current size (Linux, since 4.0);
+/// false where that is not possible.
+fn reset_peak_rss() -> bool {
+    std::fs::write("/proc/self/clear_refs", "5").is_ok()
+}
+
+fn current_rss_kib() -> Option<u64> {
+    let status = std::fs::read_to_string("/proc/self/status").ok()?;
+    let line = status.lines().find(|line| line.starts_with("VmRSS:"))?;
+    line.split_whitespace().nth(1)?.parse().ok()
+}
+
+fn run(host: &PluginHost, control: &Arc<CallControl>, inputs: &[(String, DataFrame)]) {
+    let output = host
+        .invoke(ANALYSIS, &json!({}), inputs, control)
+        .unwrap_or_else(|failure| fail(BENCH, &format!("{ANALYSIS}: {}", failure.message)));
+    drop(std::hint::black_box(output));
+}
+
+fn verdict(seconds: f64, goal: f64) -> &'static str {
+    if seconds <= goal {
+        "met"
+    } else {
+        "NOT met"
+    }
+}
+
+fn main() {
+    if !invoked_as_benchmark(BENCH) {
+        return;
+    }
+    let release = build_release_plugins(BENCH, &["mobilis-plugin-magnetoresistance"]);
+    let host = load_plugins(BENCH, &release, &["mobilis_magnetoresistance"]);
+    let control = Arc::new(CallControl::default());
+
+    let short = vec![("sweep".to_owned(), sweeps(&TEMPERATURES_K, 4_000, 6))];
+    let long = vec![("sweep".to_owned(), sweeps(&TEMPERATURES_K[..1], 40_000, 40))];
+    println!(
+        "{:<44} {:>10} {:>10} {:>10}  ",
+        "mr.oscillations", "median", "fastest", "goal"
+    );
+    for (label, inputs, repetitions, goal) in [
+        ("6 sweeps x 4,000 points", &short, 7, GOAL_SHORT_S),
+        ("1 sweep x 40,000 points (10 Hz, 0-14 T)", &long, 3, GOAL_LONG_S),
+    ] {
+        let timing = measure(1, repetitions, || run(&host, &control, inputs));
+        println!(
+            "{label:<44} {:>10} {:>10} {:>10}  {}",
+            format_seconds(timing.median_s),
+            format_seconds(timing.min_s),
+            format!("<= {}", format_seconds(goal)),
+            verdict(timing.median_s, goal)
+        );
+    }
+
+    // Memory against the sweep length: the peak above the resident set before the call.
+    println!(
+        "{:<44} {:>10} {:>10}",
+        "peak memory of one call", "above RSS", "per point"
+    );
+    for points in [10_000, 20_000, 40_000] {
+        let inputs = vec![("sweep".to_owned(), sweeps(&TEMPERATURES_K[..1], points, points as u64))];
+        let before = current_rss_kib();
+        if !reset_peak_rss() {
+            println!("{points:>6} points: the peak resident set cannot be reset here");
+            continue;
+        }
+        run(&host, &control, &inputs);
+        match (peak_rss_kib(), before) {
+            (Some(peak), Some(before)) => {
+                let above = peak.saturating_sub(before);
+                println!(
+                    "{:<44} {:>10} {:>10}",
+                    format!("1 sweep x {points} points"),
+                    format_kib(Some(above)),
+                    format!("{:.0} B", above as f64 * 1024.0 / points as f64)
+                );
+            }
+            _ => println!("{points:>6} points: no /proc/self/status"),
+        }
+    }
+    println!("peak RSS {}", format_kib(peak_rss_kib()));
+}

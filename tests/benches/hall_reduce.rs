@@ -11,7 +11,8 @@
 //! It first builds the release plugin libraries it loads (`cargo build --release -p
 //! mobilis-plugin-hall -p mobilis-test-fixture`, into `target/release` or
 //! `$CARGO_TARGET_DIR/release`) and stops with cargo's message if that fails. It then
-//! generates, with the forward models of `mobilis_core::forward` and a fixed seed, a
+//! generates, with the forward models of `mobilis_core::forward` and a fixed seed
+//! ([`mobilis_tests::hall_readings`], shared with the `daemon` benchmark), a
 //! temperature run of 100 compensated n-type silicon van der Pauw pieces at 625 temperatures
 //! (26 K to 650 K), 16 readings each (8 resistance readings at zero field, 8 Hall readings
 //! at +-0.5 T): 1,000,000 readings with voltmeter noise, thermoelectric offsets, Hall
@@ -67,66 +68,16 @@
 //! Cargo passes `--bench` to the binary under `cargo bench`; without it (for example under
 //! `cargo test --all-targets`, in a debug build) the binary only says how to run it.
 
-use mobilis_core::forward::mobility::hall_scattering_factor;
-use mobilis_core::forward::readings::{
-    van_der_pauw_readings, CurrentReversal, MeasurementProtocol, VanDerPauwSample, VoltageNoise, VoltmeterWiring,
-};
-use mobilis_core::forward::statistics::{BandModel, Dopants};
-use mobilis_core::forward::transport::{n_type_transport, MobilityModel};
-use mobilis_core::noise::Rng;
 use mobilis_core::table_ffi;
 use mobilis_rpc::plugin_host::{CallControl, PluginHost};
 use mobilis_rpc::plugin_supervisor::WorkerSettings;
 use mobilis_tests::bench::{self, format_kib, format_seconds, peak_rss_kib, Timing};
+use mobilis_tests::hall_readings::{self, READINGS_PER_TEMPERATURE, SAMPLE_COUNT, SETPOINT_COUNT};
 use polars::prelude::*;
 use std::sync::Arc;
 use std::time::Instant;
 
 const BENCH: &str = "hall_reduce";
-
-/// The seed of every random number of the dataset.
-const SEED: u64 = 0xB3AC_4A11_2025;
-const SAMPLE_COUNT: usize = 100;
-/// Setpoints every 1 K from here: twice the default temperature tolerance of `hall.reduce`
-/// (0.5 K), so that controller jitter never merges two steps into one row.
-const FIRST_SETPOINT_K: f64 = 26.0;
-const SETPOINT_COUNT: usize = 625;
-const READINGS_PER_TEMPERATURE: usize = 16;
-const HALL_FIELD_T: f64 = 0.5;
-
-/// cm^-3 to m^-3.
-const PER_CM3: f64 = 1e6;
-/// Phosphorus donors, boron acceptors, eV.
-const DONOR_IONIZATION_EV: f64 = 0.045;
-const ACCEPTOR_IONIZATION_EV: f64 = 0.045;
-/// Voltmeter noise: 0.5 uV floor plus 1e-4 of the reading.
-const NOISE: VoltageNoise = VoltageNoise {
-    absolute_v: 0.5e-6,
-    relative: 1e-4,
-};
-/// Standard deviation of the temperature controller about its setpoint, K.
-const CONTROLLER_JITTER_K: f64 = 0.02;
-/// Thermoelectric offsets are drawn uniformly within +- this, V: a few microvolts, as in a
-/// cryostat with well-anchored leads. Tens of microvolts against the few millivolts the
-/// source's 1-2-5 steps leave would raise `current_reversal` and `large_offset` on most
-/// rows, and the benchmark is meant to time the common, mostly clean case.
-const THERMOELECTRIC_OFFSET_LIMIT_V: f64 = 10e-6;
-/// The voltage the lab aims for when it picks the current, V.
-const TARGET_VOLTAGE_V: f64 = 10e-3;
-/// Currents the source offers, A: 1-2-5 steps from 1 nA to 1 mA.
-const CURRENT_LADDER_A: [f64; 19] = [
-    1e-9, 2e-9, 5e-9, 1e-8, 2e-8, 5e-8, 1e-7, 2e-7, 5e-7, 1e-6, 2e-6, 5e-6, 1e-5, 2e-5, 5e-5, 1e-4, 2e-4, 5e-4, 1e-3,
-];
-/// Every way a lab reverses the current and wires the voltmeter; the pieces take turns, so
-/// the reduction's canonicalisation sees all of them.
-const WIRINGS: [(CurrentReversal, VoltmeterWiring); 6] = [
-    (CurrentReversal::SourceSign, VoltmeterWiring::Canonical),
-    (CurrentReversal::SwapLeads, VoltmeterWiring::FollowsCurrentLeads),
-    (CurrentReversal::SourceSign, VoltmeterWiring::Reversed),
-    (CurrentReversal::SwapLeads, VoltmeterWiring::Canonical),
-    (CurrentReversal::SourceSign, VoltmeterWiring::FollowsCurrentLeads),
-    (CurrentReversal::SwapLeads, VoltmeterWiring::Reversed),
-];
 
 /// Untimed calls before the timed ones: the first call pays for page faults, lazy
 /// initialisation and the plugins' thread pools.
@@ -174,7 +125,7 @@ fn main() {
     let host = bench::load_plugins(BENCH, &release, &["mobilis_hall", "test_fixture_plugin"]);
 
     let started = Instant::now();
-    let (readings, sheet) = generate();
+    let (readings, sheet) = hall_readings::generate(SAMPLE_COUNT).unwrap_or_else(|message| fail(&message));
     let generation_s = started.elapsed().as_secs_f64();
     let reading_count = readings.height();
     let peak_after_generation = peak_rss_kib();
@@ -472,150 +423,6 @@ fn tiled(readings: &DataFrame, sheet: &DataFrame, copies: usize) -> (DataFrame, 
 /// Stops the benchmark with a message on stderr.
 fn fail(message: &str) -> ! {
     bench::fail(BENCH, message)
-}
-
-/// The readings table and the sample sheet.
-fn generate() -> (DataFrame, DataFrame) {
-    let bands = BandModel::silicon();
-    // The Hall factor a lab would type for acoustic-phonon scattering, 3 pi / 8 rounded;
-    // the sheet gives the reduction the same value, so its densities are the true ones.
-    let hall_factor = (hall_scattering_factor(-0.5) * 100.0).round() / 100.0;
-    let model = MobilityModel {
-        hall_factor,
-        ..MobilityModel::silicon_electrons()
-    };
-    let mut rng = Rng::seeded(SEED);
-
-    let capacity = SAMPLE_COUNT * SETPOINT_COUNT * READINGS_PER_TEMPERATURE;
-    let mut sample_index: Vec<u32> = Vec::with_capacity(capacity);
-    let mut temperature_k: Vec<f64> = Vec::with_capacity(capacity);
-    let mut field_t: Vec<f64> = Vec::with_capacity(capacity);
-    let mut contacts: [Vec<i64>; 4] = std::array::from_fn(|_| Vec::with_capacity(capacity));
-    let mut current_a: Vec<f64> = Vec::with_capacity(capacity);
-    let mut voltage_v: Vec<f64> = Vec::with_capacity(capacity);
-    let mut names: Vec<String> = Vec::with_capacity(SAMPLE_COUNT);
-    let mut thicknesses_m: Vec<f64> = Vec::with_capacity(SAMPLE_COUNT);
-
-    for index in 0..SAMPLE_COUNT {
-        // Donors log-uniform over two decades, 5e14 to 5e16 cm^-3, compensated by 2 to 15 %
-        // acceptors: lightly doped epitaxial and bulk silicon, frozen out at the cold end.
-        let donor_density_m3 = 5e14 * PER_CM3 * 100f64.powf(rng.uniform());
-        let acceptor_density_m3 = donor_density_m3 * rng.uniform_between(0.02, 0.15);
-        let thickness_m = rng.uniform_between(300e-6, 650e-6);
-        let resistance_ratio_b_over_a = rng.uniform_between(1.0, 1.4);
-        let misalignment_fraction = rng.uniform_between(-0.04, 0.04);
-        let (current_reversal, voltmeter_wiring) = WIRINGS[index % WIRINGS.len()];
-        let name = format!("Si-{index:03}");
-        let dopants = Dopants::new(
-            donor_density_m3,
-            acceptor_density_m3,
-            DONOR_IONIZATION_EV,
-            ACCEPTOR_IONIZATION_EV,
-        );
-
-        for step in 0..SETPOINT_COUNT {
-            let setpoint_k = FIRST_SETPOINT_K + step as f64;
-            // The lab records the controller's reading to 1 mK once per step.
-            let temperature = ((setpoint_k + CONTROLLER_JITTER_K * rng.standard_normal()) * 1000.0).round() / 1000.0;
-            let layer = n_type_transport(&dopants, &bands, thickness_m, temperature, &model)
-                .unwrap_or_else(|error| fail(&format!("transport model of {name} at {temperature} K: {error}")));
-            let misalignment_ohm = misalignment_fraction * layer.sheet_resistance_ohm_sq;
-            let mut offsets_v = [0.0; 6];
-            for offset in &mut offsets_v {
-                *offset = rng.uniform_between(-THERMOELECTRIC_OFFSET_LIMIT_V, THERMOELECTRIC_OFFSET_LIMIT_V);
-            }
-            let sample = VanDerPauwSample {
-                thermoelectric_offsets_v: offsets_v,
-                hall_misalignment_ohm: [misalignment_ohm, -misalignment_ohm],
-                ..VanDerPauwSample::ideal(
-                    name.as_str(),
-                    temperature,
-                    layer.sheet_resistance_ohm_sq,
-                    resistance_ratio_b_over_a,
-                    layer.sheet_hall_coefficient_m2_per_c,
-                )
-            };
-            let (resistance_a, resistance_b) = sample
-                .characteristic_resistances_ohm()
-                .unwrap_or_else(|error| fail(&format!("{name} at {temperature} K: {error}")));
-            let hall_ohm = layer.sheet_hall_coefficient_m2_per_c.abs() * HALL_FIELD_T + misalignment_ohm.abs();
-            let protocol = MeasurementProtocol {
-                current_reversal,
-                voltmeter_wiring,
-                noise: NOISE,
-                ..MeasurementProtocol::van_der_pauw(
-                    choose_current_a(resistance_a.max(resistance_b).max(hall_ohm)),
-                    vec![HALL_FIELD_T],
-                )
-            }
-            .with_resistance_at_zero_and_hall_in_field();
-            let readings = van_der_pauw_readings(&sample, &protocol, &mut rng)
-                .unwrap_or_else(|error| fail(&format!("readings of {name} at {temperature} K: {error}")));
-            if readings.len() != READINGS_PER_TEMPERATURE {
-                fail(&format!(
-                    "the protocol gave {} readings per temperature, {READINGS_PER_TEMPERATURE} expected",
-                    readings.len()
-                ));
-            }
-            for reading in readings {
-                sample_index.push(index as u32);
-                temperature_k.push(reading.temperature_k);
-                field_t.push(reading.field_t);
-                contacts[0].push(reading.i_in);
-                contacts[1].push(reading.i_out);
-                contacts[2].push(reading.v_pos);
-                contacts[3].push(reading.v_neg);
-                current_a.push(reading.current_a);
-                voltage_v.push(reading.voltage_v);
-            }
-        }
-        names.push(name);
-        thicknesses_m.push(thickness_m);
-    }
-
-    let sample: Vec<&str> = sample_index
-        .iter()
-        .map(|&index| names[index as usize].as_str())
-        .collect();
-    let [i_in, i_out, v_pos, v_neg] = contacts;
-    let height = sample.len();
-    let readings = DataFrame::new(
-        height,
-        vec![
-            Column::new("sample".into(), sample),
-            Column::new("temperature_K".into(), temperature_k),
-            Column::new("field_T".into(), field_t),
-            Column::new("i_in".into(), i_in),
-            Column::new("i_out".into(), i_out),
-            Column::new("v_pos".into(), v_pos),
-            Column::new("v_neg".into(), v_neg),
-            Column::new("current_A".into(), current_a),
-            Column::new("voltage_V".into(), voltage_v),
-        ],
-    )
-    .unwrap_or_else(|error| fail(&format!("cannot build the readings table: {error}")));
-    let sheet = DataFrame::new(
-        SAMPLE_COUNT,
-        vec![
-            Column::new("sample".into(), names),
-            Column::new("thickness_m".into(), thicknesses_m),
-            Column::new("hall_factor".into(), vec![hall_factor; SAMPLE_COUNT]),
-        ],
-    )
-    .unwrap_or_else(|error| fail(&format!("cannot build the sample sheet: {error}")));
-    (readings, sheet)
-}
-
-/// The largest current of the ladder that keeps the largest |V| at or below the target, as
-/// a lab picks it.
-fn choose_current_a(largest_resistance_ohm: f64) -> f64 {
-    let wanted = TARGET_VOLTAGE_V / largest_resistance_ohm;
-    CURRENT_LADDER_A
-        .iter()
-        .copied()
-        .rev()
-        .find(|&current| current <= wanted)
-        .unwrap_or(CURRENT_LADDER_A[0])
 }
 
 /// One crossing of the boundary in-process: export, then import into a new DataFrame.

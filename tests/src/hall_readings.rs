@@ -4,8 +4,7 @@
 //! (26 K to 650 K), 16 readings each (8 resistance readings at zero field, 8 Hall readings
 //! at +-0.5 T), with voltmeter noise, thermoelectric offsets, Hall misalignment, controller
 //! jitter and the six lab wirings. The sample sheet (thickness, Hall factor) is the
-//! `samples` table of `hall.reduce`. With 100 samples these are the readings the
-//! `hall_reduce` benchmark generates with its own copy of this code.
+//! `samples` table of `hall.reduce`.
 
 use mobilis_core::forward::mobility::hall_scattering_factor;
 use mobilis_core::forward::readings::{

@@ -119,15 +119,11 @@ impl Analysis for MultiCarrierFitAnalysis {
         let table = single_sweep(sweep, &params.sweep.grouping())?;
         let (points, identity) = (table.points.clone(), Value::Object(table.identity()));
         let mut grouping_warnings = table.warnings.clone();
-        // A long logged sweep is reduced onto a field grid first (see `crate::reduction`).
-        let reduction = reduce(&points, params.sweep.settings().zero_field_tolerance_t);
-        let points = match &reduction {
-            Some(reduced) => {
-                grouping_warnings.push(reduced.note());
-                reduced.points.clone()
-            }
-            None => points,
-        };
+        let points = reduced_if_long(
+            points,
+            params.sweep.settings().zero_field_tolerance_t,
+            &mut grouping_warnings,
+        );
         let mut settings = MultiCarrierSettings::default();
         settings.selection = match (&params.carriers, params.max_carriers) {
             (Some(list), _) => CarrierSelection::Kinds(
@@ -308,15 +304,11 @@ impl Analysis for MobilitySpectrumAnalysis {
         let table = single_sweep(sweep, &params.sweep.grouping())?;
         let (points, identity) = (table.points.clone(), Value::Object(table.identity()));
         let mut grouping_warnings = table.warnings.clone();
-        // A long logged sweep is reduced onto a field grid first (see `crate::reduction`).
-        let reduction = reduce(&points, params.sweep.settings().zero_field_tolerance_t);
-        let points = match &reduction {
-            Some(reduced) => {
-                grouping_warnings.push(reduced.note());
-                reduced.points.clone()
-            }
-            None => points,
-        };
+        let points = reduced_if_long(
+            points,
+            params.sweep.settings().zero_field_tolerance_t,
+            &mut grouping_warnings,
+        );
         let mut settings = SpectrumSettings::default();
         if let Some(count) = params.points_per_sign {
             settings.points_per_sign = count;
@@ -528,5 +520,21 @@ mod tests {
             run_typed::<MultiCarrierFitAnalysis>(r#"{"temperature_tolerance_K": -1}"#, &inputs, &Host::detached())
                 .unwrap_err();
         assert!(error.to_string().contains("temperature_tolerance_K"), "{error}");
+    }
+}
+
+/// A long logged sweep reduced onto a field grid (see `crate::reduction`), with a warning
+/// that says so; a short sweep as it is.
+fn reduced_if_long(
+    points: Vec<mobilis_core::sweep::SweepPoint>,
+    zero_field_tolerance_t: f64,
+    warnings: &mut Vec<String>,
+) -> Vec<mobilis_core::sweep::SweepPoint> {
+    match reduce(&points, zero_field_tolerance_t) {
+        Some(reduced) => {
+            warnings.push(reduced.note());
+            reduced.points
+        }
+        None => points,
     }
 }

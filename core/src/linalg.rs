@@ -229,7 +229,18 @@ impl Matrix {
             self.cols,
             v.len()
         );
-        (0..self.rows).map(|i| dot(self.row(i), v)).collect()
+        // Four rows at a time ([`dots`]): each entry is dot(row, v) to the last bit.
+        let mut product = Vec::with_capacity(self.rows);
+        let mut i = 0;
+        while i + 4 <= self.rows {
+            product.extend(dots(
+                v,
+                [self.row(i), self.row(i + 1), self.row(i + 2), self.row(i + 3)],
+            ));
+            i += 4;
+        }
+        product.extend((i..self.rows).map(|i| dot(self.row(i), v)));
+        product
     }
 
     /// The product self^T * v.
@@ -352,6 +363,23 @@ impl Matrix {
 pub fn dot(a: &[f64], b: &[f64]) -> f64 {
     debug_assert_eq!(a.len(), b.len());
     a.iter().zip(b).map(|(x, y)| x * y).sum()
+}
+
+/// The dot products of `a` with each of `others`, each to the last bit what [`dot`] gives:
+/// every product is summed in the same order from the same start (-0.0, the start of the
+/// standard library's float sum). Walking the K sums together lets their additions overlap
+/// in the processor's pipeline; a single sum waits on its previous addition at every term.
+pub fn dots<const K: usize>(a: &[f64], others: [&[f64]; K]) -> [f64; K] {
+    for other in &others {
+        assert_eq!(a.len(), other.len(), "dot products of slices of unequal length");
+    }
+    let mut sums = [-0.0f64; K];
+    for (i, x) in a.iter().enumerate() {
+        for (sum, other) in sums.iter_mut().zip(&others) {
+            *sum += x * other[i];
+        }
+    }
+    sums
 }
 
 /// The Euclidean norm, scaled so that it neither overflows nor underflows.
@@ -867,6 +895,10 @@ mod tests {
                 (aa.to_bits(), ab.to_bits()),
                 (dot(&a, &a).to_bits(), dot(&a, &b).to_bits())
             );
+            let c: Vec<f64> = b.iter().map(|v| -v * 7.0).collect();
+            let products = dots(&a, [&a, &b, &c, &a]);
+            let expected = [dot(&a, &a), dot(&a, &b), dot(&a, &c), dot(&a, &a)];
+            assert_eq!(products.map(f64::to_bits), expected.map(f64::to_bits));
         }
     }
 

@@ -153,20 +153,32 @@
 //! - Sample names are interned once (consecutive readings of one sample skip the hash).
 //! - A reading's contacts are classified by one look-up in a table of every contact
 //!   assignment, built per call by the classifiers of `mobilis_core::contacts`; only a
-//!   refused assignment asks the classifier again, for its message. Each valid reading
-//!   becomes a 40-byte record.
+//!   refused assignment asks the classifier again, for its message. Readings are read
+//!   straight from the input columns and validated independently (in parallel above 20,000
+//!   readings) into one buffer of 40-byte records sized once; an invalid one is marked,
+//!   and only when there is one does a sequential pass report the problems in reading
+//!   order and drop the marked readings.
 //! - Grouping is by sorting those records (by sample and temperature, then within a group
 //!   by |B|, then within a cell by configuration, field sign and polarity) and walking
 //!   contiguous slices; nothing is allocated per reading, per cell or per row in the
 //!   statistics (short lists live on the stack).
 //! - Samples are independent: above 20,000 readings they are reduced in parallel (rayon),
-//!   each into its own rows, joined in sample order, so that the result does not depend on
-//!   the number of threads.
+//!   each into its own block of rows, joined in sample order, so that the result does not
+//!   depend on the number of threads.
+//! - A row is drafted as a compact record (`row::RowRecord`: plain values with a presence
+//!   mask, the estimates its uncertainties are finished from, the flags as a bit set; no
+//!   text or list per row). A drift-corrected group overwrites its rows in place, from
+//!   scratch buffers reused from group to group.
+//! - The result is columnar (`table`): every output column is one buffer sized once for all
+//!   rows (values and validity), each sample writes its rows' finished values (the
+//!   uncertainty budgets, with the noise scales and systematic factors shared by a row or a
+//!   sample computed once) into its own stretch of every column, in parallel; the table
+//!   glue moves the buffers into the output table with an Arrow validity bitmap, and
+//!   builds the flags text once per distinct set of flags. [`reduce`] and
+//!   [`reduce_columns`] turn the same columns into [`ReducedRow`]s.
 //! - Van der Pauw's equation is solved once per row; the factor f and the gradient are
 //!   derived from that solution.
 //! - Warnings are formatted only for the rows that raise them.
-//! - The table glue builds the output columns block by block straight from the rows, with
-//!   borrowed text, instead of one pass over all rows per column.
 //!
 //! Every result is the same, to the bit, as the straightforward version: the arithmetic
 //! and its order are unchanged.

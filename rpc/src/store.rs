@@ -192,6 +192,10 @@ pub struct NewDataset {
     pub name: String,
     pub frame: DataFrame,
     pub provenance: Provenance,
+    /// The bytes of a Parquet file that `frame` was decoded from with nothing changed. When
+    /// given, the stored file is these bytes with the manifest added to the footer (see
+    /// [`disk::stage_dataset`]); encoding the frame again would only cost time.
+    pub parquet_source: Option<Vec<u8>>,
 }
 
 impl DatasetStore {
@@ -305,7 +309,7 @@ impl DatasetStore {
     /// versions and has just been migrated.
     fn load_one(&self, name: &str) -> Result<(Dataset, bool), String> {
         let parquet = self.directory.join(format!("{name}.parquet"));
-        let (mut frame, footer) = disk::read_dataset(&parquet)?;
+        let (frame, footer) = disk::read_dataset(&parquet)?;
         let legacy_path = self.directory.join(format!("{name}.json"));
         let (manifest_text, legacy) = match footer {
             Some(text) => (text, false),
@@ -336,7 +340,7 @@ impl DatasetStore {
             // manifest goes. A crash between the two leaves a stale manifest that the next
             // start removes, since the footer's copy wins. A workspace that cannot be
             // written (read-only, full) keeps its two files and still loads.
-            let migrated = disk::stage_dataset(&self.directory, parquet, &mut frame, &manifest, false)
+            let migrated = disk::stage_dataset(&self.directory, parquet, &frame, &manifest, None, false)
                 .and_then(|staged| disk::commit(&self.directory, vec![staged]));
             match migrated {
                 Ok(()) => {
@@ -445,6 +449,7 @@ impl DatasetStore {
                 name: name.to_owned(),
                 frame,
                 provenance,
+                parquet_source: None,
             }],
             overwrite,
         )?;
@@ -488,7 +493,7 @@ impl DatasetStore {
             .with_help("choose another name, drop the old dataset, or pass overwrite: true"));
         }
         let created = utc_timestamp(std::time::SystemTime::now());
-        let mut prepared: Vec<(DataFrame, Manifest)> = items
+        let mut prepared: Vec<(DataFrame, Manifest, Option<Vec<u8>>)> = items
             .into_iter()
             .map(|item| {
                 let mut frame = item.frame;
@@ -501,10 +506,10 @@ impl DatasetStore {
                     created: created.clone(),
                     provenance: item.provenance,
                 };
-                (frame, manifest)
+                (frame, manifest, item.parquet_source)
             })
             .collect();
-        let adding: u64 = prepared.iter().map(|(frame, _)| table_bytes(frame)).sum();
+        let adding: u64 = prepared.iter().map(|(frame, _, _)| table_bytes(frame)).sum();
         let freeing: u64 = replaced.iter().map(|d| table_bytes(&d.frame)).sum();
         self.reserve(adding, freeing)?;
         let committed = self.write_files(&mut prepared);
@@ -514,7 +519,7 @@ impl DatasetStore {
         }
         let stored: Vec<Arc<Dataset>> = prepared
             .into_iter()
-            .map(|(frame, manifest)| Arc::new(Dataset { frame, manifest }))
+            .map(|(frame, manifest, _)| Arc::new(Dataset { frame, manifest }))
             .collect();
         {
             let mut map = self.write_map();
@@ -531,15 +536,19 @@ impl DatasetStore {
     }
 
     /// Stages every file, then commits them together; nothing is left behind on failure.
-    fn write_files(&self, prepared: &mut [(DataFrame, Manifest)]) -> ServiceResult<()> {
+    fn write_files(&self, prepared: &mut [(DataFrame, Manifest, Option<Vec<u8>>)]) -> ServiceResult<()> {
         let mut staged = Vec::with_capacity(prepared.len());
-        for (frame, manifest) in prepared.iter_mut() {
+        for (frame, manifest, source) in prepared.iter_mut() {
             #[cfg(test)]
             let inject = self.panic_in_next_write.swap(false, Ordering::SeqCst);
             #[cfg(not(test))]
             let inject = false;
             let target = self.directory.join(format!("{}.parquet", manifest.name));
-            match disk::stage_dataset(&self.directory, target, frame, manifest, inject) {
+            let written = disk::stage_dataset(&self.directory, target, frame, manifest, source.as_deref(), inject);
+            // The source's bytes are not needed past its write: give them back before the
+            // next file of the group and the commit.
+            *source = None;
+            match written {
                 Ok(one) => staged.push(one),
                 Err(error) => {
                     for one in staged {
@@ -659,6 +668,7 @@ mod tests {
             name: name.into(),
             frame,
             provenance: provenance(),
+            parquet_source: None,
         }
     }
 
@@ -789,7 +799,7 @@ mod tests {
         // commit record in place, only the first rename done.
         let mut staged = Vec::new();
         for (name, rows) in [("output", 3), ("summary", 1)] {
-            let mut frame = DataFrame::new(rows, vec![Column::new("x".into(), vec![1i32; rows])]).unwrap();
+            let frame = DataFrame::new(rows, vec![Column::new("x".into(), vec![1i32; rows])]).unwrap();
             let manifest = Manifest {
                 format: MANIFEST_FORMAT,
                 name: name.into(),
@@ -799,7 +809,7 @@ mod tests {
                 provenance: provenance(),
             };
             let target = directory.join(format!("{name}.parquet"));
-            staged.push(disk::stage_dataset(&directory, target, &mut frame, &manifest, false).unwrap());
+            staged.push(disk::stage_dataset(&directory, target, &frame, &manifest, None, false).unwrap());
         }
         let record = serde_json::json!({"renames": staged.iter().map(|s| serde_json::json!({
             "from": s.temporary.file_name().unwrap().to_str().unwrap(),

@@ -106,14 +106,14 @@ pub fn load_opened(path: &Path, mut file: File) -> ServiceResult<SourceFile> {
 /// every row (see [`csv_dialect::read_csv`] for `keeps_commas`).
 pub fn read_bytes(
     path: &Path,
-    bytes: Vec<u8>,
+    bytes: &[u8],
     format: FileFormat,
     dialect: &CsvDialect,
     keeps_commas: impl Fn(&str) -> bool,
 ) -> ServiceResult<(DataFrame, Option<SourceMap>)> {
     let (frame, map) = match format {
         FileFormat::Csv => {
-            let (frame, map) = csv_dialect::read_csv(&bytes, dialect, keeps_commas).map_err(|e| ServiceError {
+            let (frame, map) = csv_dialect::read_csv(bytes, dialect, keeps_commas).map_err(|e| ServiceError {
                 message: format!("{}: {}", path.display(), e.message),
                 ..e
             })?;

@@ -669,13 +669,16 @@ impl Service {
                 }
                 let dialect = params.csv.clone().unwrap_or_default();
                 stage(0.0, "reading the file")?;
-                let source = tables::load_opened(&resolved, opened)?;
-                read_done = started.elapsed();
-                stage(0.2, "parsing")?;
                 let rename = &params.rename;
                 // The contacts pair notation (`21,34`) keeps its comma under decimal_comma.
                 let keeps_commas = |name: &str| rename.get(name).map(String::as_str).unwrap_or(name) == "contacts";
-                let (frame, map) = tables::read_bytes(&resolved, &source.bytes, format, &dialect, keeps_commas)?;
+                // Parsed while the bytes' checksum is computed beside.
+                let (source, parsed) = tables::load_opened_while(&resolved, opened, |bytes| {
+                    read_done = started.elapsed();
+                    stage(0.2, "parsing")?;
+                    tables::read_bytes(&resolved, bytes, format, &dialect, keeps_commas)
+                })?;
+                let (frame, map) = parsed?;
                 // A Parquet file whose frame is stored as decoded (nothing renamed, no
                 // units) is stored as its own bytes with the manifest in the footer: it
                 // reads back to this very frame, and encoding it again would be the

@@ -497,7 +497,10 @@ impl DatasetStore {
             .into_iter()
             .map(|item| {
                 let mut frame = item.frame;
-                frame.rechunk_mut();
+                // One chunk per column, so that a plugin gets each column as one Arrow
+                // array; a decoded Parquet file comes as one chunk per row group. The
+                // columns are copied in parallel: this copy is a large part of an import.
+                frame.rechunk_mut_par();
                 let manifest = Manifest {
                     format: MANIFEST_FORMAT,
                     name: item.name,
@@ -529,8 +532,7 @@ impl DatasetStore {
         }
         self.release(freeing);
         if !replaced.is_empty() {
-            drop(replaced);
-            memory::return_freed_memory();
+            memory::free_in_background(replaced);
         }
         Ok(stored)
     }
@@ -574,8 +576,7 @@ impl DatasetStore {
         let removed = self.write_map().remove(name);
         if let Some(dataset) = removed {
             self.release(table_bytes(&dataset.frame));
-            drop(dataset);
-            memory::return_freed_memory();
+            memory::free_in_background(dataset);
         }
         Ok(())
     }

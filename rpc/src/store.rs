@@ -498,9 +498,10 @@ impl DatasetStore {
             .map(|item| {
                 let mut frame = item.frame;
                 // One chunk per column, so that a plugin gets each column as one Arrow
-                // array; a decoded Parquet file comes as one chunk per row group. The
-                // columns are copied in parallel: this copy is a large part of an import.
-                frame.rechunk_mut_par();
+                // array; a decoded Parquet file comes as one chunk per row group. Copied on
+                // this thread: copies made on polars' pool landed in allocator arenas that
+                // did not give their memory back after a drop.
+                frame.rechunk_mut();
                 let manifest = Manifest {
                     format: MANIFEST_FORMAT,
                     name: item.name,
@@ -576,7 +577,10 @@ impl DatasetStore {
         let removed = self.write_map().remove(name);
         if let Some(dataset) = removed {
             self.release(table_bytes(&dataset.frame));
-            memory::free_in_background(dataset);
+            // Here, not in the background: whoever drops a dataset expects its memory back
+            // when the call answers.
+            drop(dataset);
+            memory::return_freed_memory();
         }
         Ok(())
     }

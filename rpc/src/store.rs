@@ -14,6 +14,10 @@
 //! map that readers use is locked only for the in-memory swap, never across a write or an
 //! fsync. Locks ignore poisoning, and a panic inside the Parquet writer fails only its call.
 //!
+//! Writing is most of what the store costs (a file is written on every import and run, read
+//! only at start): how a frame is encoded, and how a Parquet import keeps its source's own
+//! bytes instead, is in [`disk`].
+//!
 //! Layout: `<workspace>/datasets/<name>.parquet`. Workspaces of earlier versions kept the
 //! manifest beside it as `<name>.json`; such pairs are migrated to the one-file form on load.
 

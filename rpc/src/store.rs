@@ -191,6 +191,9 @@ fn table_bytes(frame: &DataFrame) -> u64 {
     frame.estimated_size() as u64
 }
 
+/// Bytes of tables written at once from which the allocator is trimmed after the write.
+const LARGE_WRITE_BYTES: u64 = 64 << 20;
+
 /// A dataset to store with [`DatasetStore::insert_all`].
 pub struct NewDataset {
     pub name: String,
@@ -536,7 +539,11 @@ impl DatasetStore {
             }
         }
         self.release(freeing);
-        if !replaced.is_empty() {
+        // A replaced table is freed off the request path. So is what a large write leaves in
+        // the allocator: the buffers that decoding a file or running an analysis freed just
+        // before, which glibc keeps unless trimmed, so that the next call (an analysis of
+        // this very table, say) starts from the table's own size.
+        if !replaced.is_empty() || adding >= LARGE_WRITE_BYTES {
             memory::free_in_background(replaced);
         }
         Ok(stored)

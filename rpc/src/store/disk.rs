@@ -211,7 +211,7 @@ pub fn write_parquet(file: &mut File, frame: &DataFrame, manifest_json: String) 
         let length = ROW_GROUP_ROWS.min(height - offset);
         let group = frame.slice(offset as i64, length);
         for batch in group.iter_chunks(CompatLevel::newest(), false) {
-            if batch.len() == 0 {
+            if batch.is_empty() {
                 continue;
             }
             let columns: Vec<Vec<Vec<CompressedPage>>> = batch

@@ -5,7 +5,7 @@
 //! nobody waits for its answer.
 
 use super::access::{self, AccessPolicy, Body, Verdict};
-use super::messages::{Dispatcher, Session, Via};
+use super::messages::{Dispatcher, Session, Started, Via};
 use super::{MAX_CONNECTIONS, MAX_REQUEST_BYTES};
 use bytes::Bytes;
 use http_body_util::{BodyExt, Full, Limited};
@@ -241,14 +241,22 @@ fn upgrade(
 }
 
 /// Reads messages until the socket closes, then drops the calls still running.
+///
+/// A call that answers at once (the cheap reads) is answered by this task itself, as hyper
+/// answers an HTTP request on its connection's task; the others run as tasks of their own
+/// and hand their answers to a writer task. Both write through one lock on the sender, so
+/// frames never interleave.
 async fn serve_websocket(
-    mut sender: soketto::connection::Sender<Socket>,
+    sender: soketto::connection::Sender<Socket>,
     mut receiver: soketto::connection::Receiver<Socket>,
     dispatcher: Dispatcher,
 ) {
+    let sender = Arc::new(tokio::sync::Mutex::new(sender));
     let (output, mut outgoing) = mpsc::channel::<String>(64);
+    let writer_sender = sender.clone();
     let writer = tokio::spawn(async move {
         while let Some(text) = outgoing.recv().await {
+            let mut sender = writer_sender.lock().await;
             if sender.send_text_owned(text).await.is_err() {
                 return;
             }
@@ -257,7 +265,7 @@ async fn serve_websocket(
                 return;
             }
         }
-        let _ = sender.close().await;
+        let _ = writer_sender.lock().await.close().await;
     });
     let mut session = Session::new(dispatcher, Via::WebSocket, output);
     let mut message = Vec::new();
@@ -265,7 +273,15 @@ async fn serve_websocket(
         message.clear();
         match receiver.receive_data(&mut message).await {
             // Text and binary messages alike carry JSON.
-            Ok(_) => session.start(std::mem::take(&mut message)).await,
+            Ok(_) => match session.start_or_answer(std::mem::take(&mut message)).await {
+                Started::Answered(Some(reply)) => {
+                    let mut sender = sender.lock().await;
+                    if sender.send_text_owned(reply).await.is_err() || sender.flush().await.is_err() {
+                        break;
+                    }
+                }
+                Started::Answered(None) | Started::Running => {}
+            },
             Err(soketto::connection::Error::Closed) => break,
             Err(error) => {
                 tracing::debug!(%error, "WebSocket ended");

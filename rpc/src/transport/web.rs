@@ -3,6 +3,11 @@
 //! future when its client disconnects, and a WebSocket's calls live in a set that is
 //! aborted when the socket closes. Either way a method stops being polled as soon as
 //! nobody waits for its answer.
+//!
+//! Cheap calls cost what the connection's own task does: an HTTP request is answered on it
+//! by hyper, and a WebSocket message whose call is ready at once is answered by the socket's
+//! reader, over a buffered connection, so a round trip is one read, one write and one
+//! wake-up of the daemon (see [`serve_websocket`]).
 
 use super::access::{self, AccessPolicy, Body, Verdict};
 use super::messages::{Dispatcher, Session, Started, Via};

@@ -208,7 +208,7 @@ fn invoke_error(analysis: &str, failure: InvokeFailure) -> ServiceError {
 }
 
 /// A JSON value of one cell.
-fn cell_to_json(value: AnyValue) -> Value {
+pub(crate) fn cell_to_json(value: AnyValue) -> Value {
     match value {
         AnyValue::Null => Value::Null,
         AnyValue::Boolean(b) => Value::Bool(b),
@@ -232,7 +232,8 @@ fn cell_to_json(value: AnyValue) -> Value {
     }
 }
 
-/// The frame's columns as JSON arrays.
+/// The frame's columns as JSON arrays. `dataset.rows` writes the same text without building
+/// the values ([`crate::rows_json`]); its tests compare the two.
 pub fn frame_to_json_columns(frame: &DataFrame) -> serde_json::Map<String, Value> {
     let mut columns = serde_json::Map::new();
     for column in frame.columns() {
@@ -779,7 +780,7 @@ impl Service {
         }))
     }
 
-    pub fn dataset_rows(&self, params: RowsParams) -> ServiceResult<Value> {
+    pub fn dataset_rows(&self, params: RowsParams) -> ServiceResult<Box<serde_json::value::RawValue>> {
         let dataset = self.store.get(&params.name)?;
         let limit = params.limit.unwrap_or(1000);
         if limit > MAX_ROWS_PER_CALL {
@@ -791,7 +792,12 @@ impl Service {
         let total = dataset.frame.height();
         let offset = params.offset.min(total);
         let slice = dataset.frame.slice(offset as i64, limit);
-        Ok(json!({ "total_rows": total, "offset": offset, "columns": frame_to_json_columns(&slice) }))
+        crate::rows_json::rows_page(total, offset, &slice).map_err(|error| {
+            ServiceError::new(
+                ErrorKind::InvalidData,
+                format!("dataset `{}` could not be written as JSON: {error}", params.name),
+            )
+        })
     }
 
     /// Registers a call under its `call_id` (if any) with progress going to the hub, and

@@ -239,7 +239,7 @@ use std::f64::consts::PI;
 
 use rayon::prelude::*;
 
-use mobilis_core::fft::{amplitude_spectrum, Window};
+use mobilis_core::fft::{amplitude_spectrum, AmplitudeSpectrum, Window};
 use mobilis_core::forward::oscillations::{
     sheet_density_from_frequency_m2, thermal_damping, thermal_damping_log_derivative, LK_FIELD_PER_KELVIN,
 };
@@ -887,17 +887,41 @@ pub fn analyze_oscillations(
     sweeps: &[OscillationSweep],
     settings: &OscillationSettings,
 ) -> Result<OscillationAnalysis, OscillationError> {
-    let mut analysis = analyze_once(sweeps, settings)?;
+    if !settings.model_spread {
+        let mut analysis = analyze_once(sweeps, settings, Pass::Main)?;
+        budget::assign(&mut analysis, &[], settings);
+        return Ok(analysis);
+    }
+    // The variants need only the field window of the main pass (and its line, to decide
+    // whether the shorter window holds enough periods, which is decided afterwards): they
+    // run in parallel with it, so that on two cores the four passes take the time of two.
+    // When the window itself is refused, the main pass alone says why.
+    let candidates = match settings
+        .validate()
+        .and_then(|()| validate_sweeps(sweeps))
+        .and_then(|()| field_window(sweeps, settings))
+    {
+        Ok(window) => budget::variants(settings, window),
+        Err(_) => Vec::new(),
+    };
+    let (main, results) = rayon::join(
+        || analyze_once(sweeps, settings, Pass::Main),
+        || {
+            candidates
+                .par_iter()
+                .map(|(_, variant)| analyze_once(sweeps, variant, Pass::Variant))
+                .collect::<Vec<_>>()
+        },
+    );
+    let mut analysis = main?;
     let mut outcomes = Vec::new();
-    if settings.model_spread {
+    {
         // The variants are independent analyses of the same sweeps: they run in parallel
         // and are taken in their order, as one after the other would give them.
-        let variants = budget::variants(settings, &analysis);
-        let results: Vec<_> = variants
-            .par_iter()
-            .map(|(_, variant)| analyze_once(sweeps, variant))
-            .collect();
-        for ((label, _), result) in variants.into_iter().zip(results) {
+        for ((label, variant), result) in candidates.into_iter().zip(results) {
+            if !budget::variant_applies(settings, &variant, &analysis) {
+                continue;
+            }
             // A variant that fails (too few points for a high degree, a window without a
             // line) has nothing to say about the spread; it is left out, and named.
             match result {
@@ -912,10 +936,22 @@ pub fn analyze_oscillations(
     Ok(analysis)
 }
 
+/// What a pass of the analysis is for.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Pass {
+    /// The reported analysis: everything.
+    Main,
+    /// A variant of the model spread: only its lines, mass and Dingle temperature are read
+    /// (`budget::assign`), so the spectra of the sweeps other than the reference, which the
+    /// line search does not look at, are not computed and not returned.
+    Variant,
+}
+
 /// One pass of the analysis with these settings, without the spread over variants.
 fn analyze_once(
     sweeps: &[OscillationSweep],
     settings: &OscillationSettings,
+    pass: Pass,
 ) -> Result<OscillationAnalysis, OscillationError> {
     settings.validate()?;
     validate_sweeps(sweeps)?;
@@ -932,13 +968,20 @@ fn analyze_once(
     let centre = 0.5 * (range.0 + range.1);
     let mut warnings = Vec::new();
 
-    let spectra: Vec<_> = prepared
-        .iter()
-        .map(|sweep| amplitude_spectrum(&sweep.grid_values, grid.spacing, settings.window, settings.zero_padding))
-        .collect();
     let reference = (0..prepared.len())
         .min_by(|a, b| prepared[*a].temperature_k.total_cmp(&prepared[*b].temperature_k))
         .unwrap_or(0);
+    let spectra: Vec<Option<AmplitudeSpectrum>> = prepared
+        .iter()
+        .enumerate()
+        .map(|(index, sweep)| {
+            (pass == Pass::Main || index == reference)
+                .then(|| amplitude_spectrum(&sweep.grid_values, grid.spacing, settings.window, settings.zero_padding))
+        })
+        .collect();
+    let reference_spectrum = spectra[reference]
+        .as_ref()
+        .expect("the reference spectrum is always computed");
 
     // Lines.
     let lowest = settings.frequency_min_t.unwrap_or(settings.min_periods / span);
@@ -958,7 +1001,7 @@ fn analyze_once(
         min_ratio: settings.min_peak_ratio,
         min_relative_amplitude: settings.min_relative_amplitude,
     };
-    let peaks = match find_peaks(&spectra[reference], &limits) {
+    let peaks = match find_peaks(reference_spectrum, &limits) {
         PeakSearch::Found(peaks) => peaks,
         PeakSearch::TooFewPeriods { frequency_t } => {
             return Err(OscillationError::TooFewPeriods {
@@ -1403,6 +1446,7 @@ fn analyze_once(
     let spectra_out = prepared
         .iter()
         .zip(&spectra)
+        .filter_map(|(sweep, spectrum)| spectrum.as_ref().map(|spectrum| (sweep, spectrum)))
         .map(|(sweep, spectrum)| {
             let keep = spectrum.frequencies.iter().take_while(|f| **f <= highest).count();
             SweepSpectrum {
@@ -1412,7 +1456,7 @@ fn analyze_once(
             }
         })
         .collect();
-    let padded_length = spectra[reference].padded_length;
+    let padded_length = reference_spectrum.padded_length;
     let curves = prepared
         .into_iter()
         .map(|sweep| SweepCurve {

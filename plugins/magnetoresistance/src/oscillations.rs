@@ -220,6 +220,20 @@
 //! The coverage test (`oscillations/coverage.rs`) checks on realistic sweep sets that the
 //! totals cover the truth as often as standard uncertainties should.
 //!
+//! # Performance
+//!
+//! The analysis is four passes (the main one and three model-spread variants). The variants
+//! need only the field window, so all four run at once on the rayon pool; a variant computes
+//! only the reference sweep's spectrum (the line search reads no other) and skips the
+//! narrow-window mass when the waveform fit's mass is reported (it reads only the reported
+//! mass). The transforms (`mobilis_core::fft`) share one twiddle table and skip the butterfly
+//! stages that only copy the zero padding. None of this changes a bit of the result
+//! (`OSCILLATIONS_COMPARE_OUTPUT` of the bench checks it). What remains is mostly the
+//! Levenberg-Marquardt fits (the waveform fit over every sweep's points, three starts, in
+//! each pass: the singular value decompositions of `mobilis_core::fit` and the evaluations
+//! of R_T = X / sinh X, exp and cos per point) and the 8-fold zero-padded transforms
+//! (65,536 points per 4,000-point sweep, 2^20 for a 40,000-point ramp).
+//!
 //! Multiple lines: the frequencies and densities are reported for each; the narrow-window
 //! mass, the Dingle plot and the fan use the strongest line only, and the other lines are
 //! noise to them (a warning says when a second line is above 20 % of the first).
@@ -943,7 +957,8 @@ enum Pass {
     Main,
     /// A variant of the model spread: only its lines, mass and Dingle temperature are read
     /// (`budget::assign`), so the spectra of the sweeps other than the reference, which the
-    /// line search does not look at, are not computed and not returned.
+    /// line search does not look at, are not computed and not returned, nor is the
+    /// narrow-window mass when the waveform fit's mass is the one reported.
     Variant,
 }
 
@@ -1338,25 +1353,31 @@ fn analyze_once(
             || dingle_from_decay(mass_start, refined[0].decay_t),
             |w| w.components[0].dingle_temperature_k,
         );
-        let (windows, combined) = mass::narrow_window_mass(
-            &prepared,
-            reference,
-            dominant_frequency,
-            range,
-            count,
-            dingle_hint,
-            &mut warnings,
-        );
-        match combined {
-            Some((mass, unc, birge)) => {
-                narrow = Some(NarrowWindowMass {
-                    windows,
-                    effective_mass_ratio: mass,
-                    effective_mass_ratio_unc: unc,
-                    birge_ratio: birge,
-                })
+        // A variant reads only the reported mass: with the waveform fit's mass reported and
+        // present, the narrow windows (its fallback and cross-check) would not be read.
+        let narrow_unread =
+            pass == Pass::Variant && settings.mass_method == MassMethod::WaveformFit && waveform_fit.is_some();
+        if !narrow_unread {
+            let (windows, combined) = mass::narrow_window_mass(
+                &prepared,
+                reference,
+                dominant_frequency,
+                range,
+                count,
+                dingle_hint,
+                &mut warnings,
+            );
+            match combined {
+                Some((mass, unc, birge)) => {
+                    narrow = Some(NarrowWindowMass {
+                        windows,
+                        effective_mass_ratio: mass,
+                        effective_mass_ratio_unc: unc,
+                        birge_ratio: birge,
+                    })
+                }
+                None => warnings.push("no narrow window gave a mass".to_string()),
             }
-            None => warnings.push("no narrow window gave a mass".to_string()),
         }
         let from_waveform = waveform_fit.as_ref().map(|w| MassEstimate {
             effective_mass_ratio: w.components[0].effective_mass_ratio,

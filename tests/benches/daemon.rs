@@ -355,7 +355,7 @@ fn ten_million(
         data_root,
         scratch.join("daemon-10m.log"),
     );
-    let (import_s, events, run_s, answer) = runtime.block_on(async {
+    let (import_s, import_peak_kib, events, run_s, answer) = runtime.block_on(async {
         let client = Client::connect(&daemon.url, None)
             .await
             .unwrap_or_else(|error| fail(BENCH, &format!("WebSocket: {error}")));
@@ -381,6 +381,8 @@ fn ten_million(
             .await
             .unwrap_or_else(|error| fail(BENCH, &format!("dataset.import of 1e7 readings: {error}")));
         let import_s = started.elapsed().as_secs_f64();
+        // The peak so far is the import's: which of import and reduce holds the most.
+        let import_peak_kib = daemon.peak_rss_kib();
         let started = Instant::now();
         let answer = client
             .call(
@@ -393,17 +395,34 @@ fn ten_million(
             )
             .await
             .unwrap_or_else(|error| fail(BENCH, &format!("hall.reduce of 1e7 readings: {error}")));
-        (import_s, reports, started.elapsed().as_secs_f64(), answer)
+        (
+            import_s,
+            import_peak_kib,
+            reports,
+            started.elapsed().as_secs_f64(),
+            answer,
+        )
     });
     let peak_kib = daemon.peak_rss_kib();
     let pieces = median_pieces(&daemon.logged_timings("analysis.run timings"));
     let import_pieces = median_pieces(&daemon.logged_timings("dataset.import timings"));
+    // The second store of this daemon is the readings' (the sheet is the first).
+    let stores = daemon.logged_timings("store write timings");
+    let import_store_pieces = median_pieces(stores.get(1..2).unwrap_or_default());
     drop(daemon);
     println!(
-        "dataset.import of 1e7 readings (Parquet): {} with {events} progress reports; {}",
+        "dataset.import of 1e7 readings (Parquet): {} with {events} progress reports; {}; its store: {}",
         format_seconds(import_s),
-        describe_pieces(&import_pieces)
+        describe_pieces(&import_pieces),
+        describe_pieces(&import_store_pieces)
     );
+    if let Some(kib) = import_peak_kib {
+        println!(
+            "daemon peak RSS after the import, before the reduction: {:.0} MB = {:.2} x the raw data",
+            kib as f64 * 1024.0 / 1e6,
+            kib as f64 * 1024.0 / raw as f64
+        );
+    }
     println!(
         "analysis.run hall.reduce on 1e7 readings: {} ({} output rows, {:.3e} readings per second); {}",
         format_seconds(run_s),

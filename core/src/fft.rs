@@ -41,6 +41,7 @@
 
 use std::f64::consts::PI;
 use std::ops::{Add, AddAssign, Mul, Sub};
+use std::sync::{Arc, Mutex};
 
 /// A complex number: what the transforms work on.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
@@ -160,24 +161,93 @@ fn radix2(data: &mut [Complex], inverse: bool) {
             data.swap(i, j);
         }
     }
-    let sign = if inverse { 1.0 } else { -1.0 };
-    let twiddles: Vec<Complex> = (0..n / 2)
-        .map(|j| Complex::from_polar(1.0, sign * 2.0 * PI * j as f64 / n as f64))
-        .collect();
-    let mut length = 2;
+    butterflies(data, inverse, 2);
+}
+
+/// The butterfly stages of radix-2 Cooley-Tukey from sub-transforms of length
+/// `first_length` on (data already in bit-reversed order, every block of `first_length / 2`
+/// points already transformed). The twiddle factors are those of a table of the largest
+/// length seen so far, read with a stride: cos and sin of 2 pi (j s) / (N s) with s a power
+/// of two are those of 2 pi j / N bit for bit (scaling by a power of two is exact), so every
+/// length gets exactly the factors computed for it alone, without recomputing a table on
+/// every call.
+fn butterflies(data: &mut [Complex], inverse: bool, first_length: usize) {
+    let n = data.len();
+    let table = twiddle_table(n, inverse);
+    let table_stride = (table.len() * 2) / n;
+    let mut length = first_length;
     while length <= n {
         let half = length / 2;
-        let stride = n / length;
-        for start in (0..n).step_by(length) {
-            for j in 0..half {
-                let twiddled = data[start + j + half] * twiddles[j * stride];
-                let even = data[start + j];
-                data[start + j] = even + twiddled;
-                data[start + j + half] = even - twiddled;
+        let stride = table_stride * (n / length);
+        for block in data.chunks_exact_mut(length) {
+            let (low, high) = block.split_at_mut(half);
+            for (j, (even, odd)) in low.iter_mut().zip(high.iter_mut()).enumerate() {
+                let twiddled = *odd * table[j * stride];
+                let e = *even;
+                *even = e + twiddled;
+                *odd = e - twiddled;
             }
         }
         length *= 2;
     }
+}
+
+/// The twiddle factors exp(sign 2 pi i j / N), j < N/2, of a power of two N at least `n`,
+/// computed once per direction for the largest length asked for so far and shared (a
+/// transform of length n reads every (N/n)-th factor).
+fn twiddle_table(n: usize, inverse: bool) -> Arc<Vec<Complex>> {
+    static TABLES: Mutex<[Option<Arc<Vec<Complex>>>; 2]> = Mutex::new([None, None]);
+    let slot = usize::from(inverse);
+    let mut tables = TABLES.lock().unwrap_or_else(|poisoned| poisoned.into_inner());
+    if let Some(table) = &tables[slot] {
+        if table.len() * 2 >= n {
+            return Arc::clone(table);
+        }
+    }
+    let sign = if inverse { 1.0 } else { -1.0 };
+    let table: Arc<Vec<Complex>> = Arc::new(
+        (0..n / 2)
+            .map(|j| Complex::from_polar(1.0, sign * 2.0 * PI * j as f64 / n as f64))
+            .collect(),
+    );
+    tables[slot] = Some(Arc::clone(&table));
+    table
+}
+
+/// The forward transform of `values` followed by zeros up to `padded_length` (a power of two
+/// at least `values.len()`), as [`fft`] of the padded record gives it.
+///
+/// After the bit-reversal permutation the nonzero values of a record padded P-fold (P a
+/// power of two, values only in the first padded_length / P places) stand at the first place
+/// of blocks of P, the rest of each block zero, and the first log2 P stages of butterflies
+/// only copy each value across its block (e + 0 w = e - 0 w = e exactly). Those stages are
+/// replaced by the copy itself: the same numbers (up to the sign of zeros) for less work, the
+/// pruning of Markel (IEEE Trans. Audio Electroacoust. 19, 305, 1971).
+fn fft_zero_padded(values: &[Complex], padded_length: usize) -> Vec<Complex> {
+    assert!(padded_length.is_power_of_two() && values.len() <= padded_length);
+    let occupied = values.len().max(1).next_power_of_two();
+    let block = padded_length / occupied;
+    if block < 2 {
+        let mut data = vec![Complex::ZERO; padded_length];
+        data[..values.len()].copy_from_slice(values);
+        fft(&mut data);
+        return data;
+    }
+    let bits = occupied.trailing_zeros();
+    let mut data = Vec::with_capacity(padded_length);
+    // Position p * block holds value rev(p) (bit reversal over log2 occupied bits), copied
+    // across its block.
+    for p in 0..occupied {
+        let source = if bits == 0 {
+            0
+        } else {
+            p.reverse_bits() >> (usize::BITS - bits)
+        };
+        let value = values.get(source).copied().unwrap_or(Complex::ZERO);
+        data.extend(std::iter::repeat_n(value, block));
+    }
+    butterflies(&mut data, false, 2 * block);
+    data
 }
 
 /// Bluestein's chirp-z transform for any length, through radix-2 convolution.
@@ -299,11 +369,12 @@ pub fn amplitude_spectrum(samples: &[f64], spacing: f64, window: Window, padding
     let weights = window.coefficients(n);
     let weight_sum: f64 = weights.iter().sum();
     let padded_length = (n * padding_factor).next_power_of_two();
-    let mut data = vec![Complex::ZERO; padded_length];
-    for (j, (sample, weight)) in samples.iter().zip(&weights).enumerate() {
-        data[j] = Complex::new(sample * weight, 0.0);
-    }
-    fft(&mut data);
+    let windowed: Vec<Complex> = samples
+        .iter()
+        .zip(&weights)
+        .map(|(sample, weight)| Complex::new(sample * weight, 0.0))
+        .collect();
+    let data = fft_zero_padded(&windowed, padded_length);
     let bin_width = 1.0 / (padded_length as f64 * spacing);
     let bins = padded_length / 2 + 1;
     let frequencies = (0..bins).map(|k| k as f64 * bin_width).collect();
@@ -374,6 +445,76 @@ mod tests {
             let mut back = output.clone();
             inverse_fft(&mut back);
             assert!(max_difference(&back, &input) < 1e-13 * (n as f64).max(1.0), "N = {n}");
+        }
+    }
+
+    /// Radix-2 with a table of its own length built for the call (the textbook form).
+    fn radix2_fresh_table(data: &mut [Complex]) {
+        let n = data.len();
+        let bits = n.trailing_zeros();
+        for i in 0..n {
+            let j = i.reverse_bits() >> (usize::BITS - bits);
+            if j > i {
+                data.swap(i, j);
+            }
+        }
+        let twiddles: Vec<Complex> = (0..n / 2)
+            .map(|j| Complex::from_polar(1.0, -2.0 * PI * j as f64 / n as f64))
+            .collect();
+        let mut length = 2;
+        while length <= n {
+            let half = length / 2;
+            let stride = n / length;
+            for start in (0..n).step_by(length) {
+                for j in 0..half {
+                    let twiddled = data[start + j + half] * twiddles[j * stride];
+                    let even = data[start + j];
+                    data[start + j] = even + twiddled;
+                    data[start + j + half] = even - twiddled;
+                }
+            }
+            length *= 2;
+        }
+    }
+
+    /// Equal numbers, a zero of either sign equal to the other.
+    fn same_bits(a: &[Complex], b: &[Complex]) -> bool {
+        a.len() == b.len() && a.iter().zip(b).all(|(x, y)| x.re == y.re && x.im == y.im)
+    }
+
+    // The shared twiddle table (read with a stride by shorter transforms) and the pruned
+    // first stages of a zero-padded record give the very numbers of the textbook radix-2
+    // with its own table, for every padding and record length.
+    #[test]
+    fn fft_shared_table_and_pruned_padding_change_no_bit() {
+        // A long transform first, so that the shorter ones read its table with a stride.
+        let mut long = random_signal(4096, 5);
+        fft(&mut long);
+        for (seed, (n, padded)) in [
+            (1usize, 2usize),
+            (1, 16),
+            (3, 4),
+            (5, 8),
+            (100, 128),
+            (100, 1024),
+            (700, 8192),
+            (1000, 1024),
+        ]
+        .into_iter()
+        .enumerate()
+        {
+            let values = random_signal(n, seed as u64 + 40);
+            let mut reference = vec![Complex::ZERO; padded];
+            reference[..n].copy_from_slice(&values);
+            radix2_fresh_table(&mut reference);
+            let mut plain = vec![Complex::ZERO; padded];
+            plain[..n].copy_from_slice(&values);
+            fft(&mut plain);
+            assert!(same_bits(&plain, &reference), "N = {padded}");
+            assert!(
+                same_bits(&fft_zero_padded(&values, padded), &reference),
+                "{n} of {padded}"
+            );
         }
     }
 

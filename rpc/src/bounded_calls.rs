@@ -215,11 +215,11 @@ impl CallScope {
 
     /// Runs `work` on a blocking thread and answers with its result, or with error 5005 as
     /// soon as the deadline passes.
-    pub async fn run(
+    pub async fn run<T: Send + 'static>(
         mut self,
         slots: Option<&crate::compute_slots::ComputeSlots>,
-        work: impl FnOnce() -> Result<Value, ErrorObjectOwned> + Send + 'static,
-    ) -> Result<Value, ErrorObjectOwned> {
+        work: impl FnOnce() -> Result<T, ErrorObjectOwned> + Send + 'static,
+    ) -> Result<T, ErrorObjectOwned> {
         // Heavy calls wait for a compute slot first; the wait counts against the deadline.
         let permit = match slots {
             Some(slots) => match tokio::time::timeout(self.bound.deadline, slots.acquire()).await {

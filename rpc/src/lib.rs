@@ -21,6 +21,7 @@ pub mod plugin_supervisor;
 pub mod plugin_worker;
 pub mod progress;
 pub mod report;
+pub mod rows_json;
 pub mod service;
 pub mod store;
 pub mod suggest;

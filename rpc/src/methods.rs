@@ -219,7 +219,7 @@ pub fn plain_words(message: &str) -> String {
 }
 
 /// Runs a service call, turning a panic in the daemon into an error instead of a dropped connection.
-fn guarded(call: impl FnOnce() -> Result<Value, ServiceError>) -> Result<Value, ErrorObjectOwned> {
+fn guarded<T>(call: impl FnOnce() -> Result<T, ServiceError>) -> Result<T, ErrorObjectOwned> {
     match catch_unwind(AssertUnwindSafe(call)) {
         Ok(result) => result.map_err(to_rpc_error),
         Err(_) => Err(to_rpc_error(ServiceError::new(
@@ -341,10 +341,24 @@ pub fn module_with_slots(service: Arc<Service>, slots: ComputeSlots) -> RpcModul
         let p: NameParam = parse(p)?;
         guarded(|| s.dataset_drop(&p.name))
     });
-    register(&mut module, "dataset.rows", Runs::InComputeSlot, |p, s| {
-        let p: RowsParams = parse(p)?;
-        guarded(|| s.dataset_rows(p))
-    });
+    // Registered as the heavy calls are, but answering with JSON text written straight from
+    // the columns (see `rows_json`) rather than with a value built cell by cell.
+    let rows_slots = slots.clone();
+    module
+        .register_async_method("dataset.rows", move |params, service, _| {
+            let slots = rows_slots.clone();
+            async move {
+                check_params("dataset.rows", &params)?;
+                let (deadline, params) = bounded_calls::take_deadline("dataset.rows", params)?;
+                bounded_calls::CallScope::new("dataset.rows", deadline)
+                    .run(Some(&slots), move || {
+                        let p: RowsParams = parse(&params)?;
+                        guarded(|| service.dataset_rows(p))
+                    })
+                    .await
+            }
+        })
+        .expect("method names are unique");
     register(&mut module, "dataset.import", Runs::InComputeSlot, |p, s| {
         let p: ImportParams = parse(p)?;
         guarded(|| s.dataset_import(p))

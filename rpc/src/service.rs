@@ -208,7 +208,7 @@ fn invoke_error(analysis: &str, failure: InvokeFailure) -> ServiceError {
 }
 
 /// A JSON value of one cell.
-fn cell_to_json(value: AnyValue) -> Value {
+pub(crate) fn cell_to_json(value: AnyValue) -> Value {
     match value {
         AnyValue::Null => Value::Null,
         AnyValue::Boolean(b) => Value::Bool(b),
@@ -232,7 +232,8 @@ fn cell_to_json(value: AnyValue) -> Value {
     }
 }
 
-/// The frame's columns as JSON arrays.
+/// The frame's columns as JSON arrays. `dataset.rows` writes the same text without building
+/// the values ([`crate::rows_json`]); its tests compare the two.
 pub fn frame_to_json_columns(frame: &DataFrame) -> serde_json::Map<String, Value> {
     let mut columns = serde_json::Map::new();
     for column in frame.columns() {
@@ -651,62 +652,73 @@ impl Service {
             .collect();
         let started = std::time::Instant::now();
         let mut read_done = std::time::Duration::ZERO;
-        let (frame, source_map, provenance) =
-            match (&params.path, &params.columns) {
-                (Some(path), None) => {
-                    let (resolved, opened) = self.roots.open_readable(Path::new(path))?;
-                    let format = match &params.format {
-                        Some(name) => FileFormat::parse(name)?,
-                        None => FileFormat::from_extension(&resolved)?,
-                    };
-                    if params.csv.is_some() && format != FileFormat::Csv {
-                        return Err(ServiceError::invalid_params(format!(
-                            "csv options apply to CSV files; {} is read as {}",
-                            resolved.display(),
-                            format.name()
-                        ))
-                        .with_help("leave out csv, or pass format: csv if the file is CSV text"));
-                    }
-                    let dialect = params.csv.clone().unwrap_or_default();
-                    stage(0.0, "reading the file")?;
-                    let source = tables::load_opened(&resolved, opened)?;
+        let mut parquet_source = None;
+        let (frame, source_map, provenance) = match (&params.path, &params.columns) {
+            (Some(path), None) => {
+                let (resolved, opened) = self.roots.open_readable(Path::new(path))?;
+                let format = match &params.format {
+                    Some(name) => FileFormat::parse(name)?,
+                    None => FileFormat::from_extension(&resolved)?,
+                };
+                if params.csv.is_some() && format != FileFormat::Csv {
+                    return Err(ServiceError::invalid_params(format!(
+                        "csv options apply to CSV files; {} is read as {}",
+                        resolved.display(),
+                        format.name()
+                    ))
+                    .with_help("leave out csv, or pass format: csv if the file is CSV text"));
+                }
+                let dialect = params.csv.clone().unwrap_or_default();
+                stage(0.0, "reading the file")?;
+                let rename = &params.rename;
+                // The contacts pair notation (`21,34`) keeps its comma under decimal_comma.
+                let keeps_commas = |name: &str| rename.get(name).map(String::as_str).unwrap_or(name) == "contacts";
+                // Parsed while the bytes' checksum is computed beside.
+                let (source, parsed) = tables::load_opened_while(&resolved, opened, |bytes| {
                     read_done = started.elapsed();
                     stage(0.2, "parsing")?;
-                    let rename = &params.rename;
-                    // The contacts pair notation (`21,34`) keeps its comma under decimal_comma.
-                    let keeps_commas = |name: &str| rename.get(name).map(String::as_str).unwrap_or(name) == "contacts";
-                    let (frame, map) = tables::read_bytes(&resolved, source.bytes, format, &dialect, keeps_commas)?;
-                    let provenance = Provenance::File {
-                        path: resolved.display().to_string(),
-                        format: format.name().into(),
-                        units: units_text,
-                        rename: params.rename.clone(),
-                        csv: params.csv.clone().filter(|d| *d != CsvDialect::default()),
-                        sha256: Some(source.sha256),
-                        size_bytes: Some(source.size_bytes),
-                        modified: source.modified,
-                    };
-                    (frame, map, provenance)
+                    tables::read_bytes(&resolved, bytes, format, &dialect, keeps_commas)
+                })?;
+                let (frame, map) = parsed?;
+                // A Parquet file whose frame is stored as decoded (nothing renamed, no
+                // units) is stored as its own bytes with the manifest in the footer: it
+                // reads back to this very frame, and encoding it again would be the
+                // import's largest cost. Otherwise the bytes go here, before the store.
+                let unchanged = format == FileFormat::Parquet && params.rename.is_empty() && params.units.is_empty();
+                parquet_source = unchanged.then_some(source.bytes);
+                let provenance = Provenance::File {
+                    path: resolved.display().to_string(),
+                    format: format.name().into(),
+                    units: units_text,
+                    rename: params.rename.clone(),
+                    csv: params.csv.clone().filter(|d| *d != CsvDialect::default()),
+                    sha256: Some(source.sha256),
+                    size_bytes: Some(source.size_bytes),
+                    modified: source.modified,
+                };
+                (frame, map, provenance)
+            }
+            (None, Some(columns)) => {
+                if params.csv.is_some() {
+                    return Err(
+                        ServiceError::invalid_params("csv options apply to files, not to inline columns")
+                            .with_help("leave out csv when sending columns"),
+                    );
                 }
-                (None, Some(columns)) => {
-                    if params.csv.is_some() {
-                        return Err(
-                            ServiceError::invalid_params("csv options apply to files, not to inline columns")
-                                .with_help("leave out csv when sending columns"),
-                        );
-                    }
-                    (
-                        tables::frame_from_json_columns(columns)?,
-                        None,
-                        Provenance::Inline { units: units_text },
-                    )
-                }
-                _ => return Err(
+                (
+                    tables::frame_from_json_columns(columns)?,
+                    None,
+                    Provenance::Inline { units: units_text },
+                )
+            }
+            _ => {
+                return Err(
                     ServiceError::invalid_params("give exactly one of `path` and `columns`").with_help(
                         "path: a CSV, Parquet or Arrow IPC file inside the data roots; columns: {\"name\": [values]}",
                     ),
-                ),
-            };
+                )
+            }
+        };
         let parse_done = started.elapsed();
         stage(0.6, "converting units")?;
         let frame = tables::apply_rename(frame, &params.rename)?;
@@ -717,8 +729,13 @@ impl Service {
         };
         let units_done = started.elapsed();
         stage(0.7, "storing")?;
-        let dataset =
-            crate::bounded_calls::commit(|| self.store.insert(&params.name, frame, provenance, params.overwrite))?;
+        let new = store::NewDataset {
+            name: params.name.clone(),
+            frame,
+            provenance,
+            parquet_source,
+        };
+        let dataset = crate::bounded_calls::commit(|| self.store.insert_all(vec![new], params.overwrite))?.remove(0);
         tracing::debug!(
             dataset = %params.name,
             read_ms = millis(read_done),
@@ -763,7 +780,7 @@ impl Service {
         }))
     }
 
-    pub fn dataset_rows(&self, params: RowsParams) -> ServiceResult<Value> {
+    pub fn dataset_rows(&self, params: RowsParams) -> ServiceResult<Box<serde_json::value::RawValue>> {
         let dataset = self.store.get(&params.name)?;
         let limit = params.limit.unwrap_or(1000);
         if limit > MAX_ROWS_PER_CALL {
@@ -775,7 +792,12 @@ impl Service {
         let total = dataset.frame.height();
         let offset = params.offset.min(total);
         let slice = dataset.frame.slice(offset as i64, limit);
-        Ok(json!({ "total_rows": total, "offset": offset, "columns": frame_to_json_columns(&slice) }))
+        crate::rows_json::rows_page(total, offset, &slice).map_err(|error| {
+            ServiceError::new(
+                ErrorKind::InvalidData,
+                format!("dataset `{}` could not be written as JSON: {error}", params.name),
+            )
+        })
     }
 
     /// Registers a call under its `call_id` (if any) with progress going to the hub, and
@@ -979,12 +1001,14 @@ impl Service {
             name: run.output.clone(),
             frame: table,
             provenance: provenance(false),
+            parquet_source: None,
         }];
         if let (Some(name), Some(frame)) = (&run.summary_output, summary_frame) {
             writes.push(store::NewDataset {
                 name: name.clone(),
                 frame,
                 provenance: provenance(true),
+                parquet_source: None,
             });
         }
         // A call stopped by its deadline or its client stores neither.

@@ -14,6 +14,10 @@
 //! map that readers use is locked only for the in-memory swap, never across a write or an
 //! fsync. Locks ignore poisoning, and a panic inside the Parquet writer fails only its call.
 //!
+//! Writing is most of what the store costs (a file is written on every import and run, read
+//! only at start): how a frame is encoded, and how a Parquet import keeps its source's own
+//! bytes instead, is in [`disk`].
+//!
 //! Layout: `<workspace>/datasets/<name>.parquet`. Workspaces of earlier versions kept the
 //! manifest beside it as `<name>.json`; such pairs are migrated to the one-file form on load.
 
@@ -187,11 +191,18 @@ fn table_bytes(frame: &DataFrame) -> u64 {
     frame.estimated_size() as u64
 }
 
+/// Bytes of tables written at once from which the allocator is trimmed after the write.
+const LARGE_WRITE_BYTES: u64 = 64 << 20;
+
 /// A dataset to store with [`DatasetStore::insert_all`].
 pub struct NewDataset {
     pub name: String,
     pub frame: DataFrame,
     pub provenance: Provenance,
+    /// The bytes of a Parquet file that `frame` was decoded from with nothing changed. When
+    /// given, the stored file is these bytes with the manifest added to the footer (see
+    /// [`disk::stage_dataset`]); encoding the frame again would only cost time.
+    pub parquet_source: Option<Vec<u8>>,
 }
 
 impl DatasetStore {
@@ -305,7 +316,7 @@ impl DatasetStore {
     /// versions and has just been migrated.
     fn load_one(&self, name: &str) -> Result<(Dataset, bool), String> {
         let parquet = self.directory.join(format!("{name}.parquet"));
-        let (mut frame, footer) = disk::read_dataset(&parquet)?;
+        let (frame, footer) = disk::read_dataset(&parquet)?;
         let legacy_path = self.directory.join(format!("{name}.json"));
         let (manifest_text, legacy) = match footer {
             Some(text) => (text, false),
@@ -336,7 +347,7 @@ impl DatasetStore {
             // manifest goes. A crash between the two leaves a stale manifest that the next
             // start removes, since the footer's copy wins. A workspace that cannot be
             // written (read-only, full) keeps its two files and still loads.
-            let migrated = disk::stage_dataset(&self.directory, parquet, &mut frame, &manifest, false)
+            let migrated = disk::stage_dataset(&self.directory, parquet, &frame, &manifest, None, false)
                 .and_then(|staged| disk::commit(&self.directory, vec![staged]));
             match migrated {
                 Ok(()) => {
@@ -445,6 +456,7 @@ impl DatasetStore {
                 name: name.to_owned(),
                 frame,
                 provenance,
+                parquet_source: None,
             }],
             overwrite,
         )?;
@@ -488,10 +500,14 @@ impl DatasetStore {
             .with_help("choose another name, drop the old dataset, or pass overwrite: true"));
         }
         let created = utc_timestamp(std::time::SystemTime::now());
-        let mut prepared: Vec<(DataFrame, Manifest)> = items
+        let mut prepared: Vec<(DataFrame, Manifest, Option<Vec<u8>>)> = items
             .into_iter()
             .map(|item| {
                 let mut frame = item.frame;
+                // One chunk per column, so that a plugin gets each column as one Arrow
+                // array; a decoded Parquet file comes as one chunk per row group. Copied on
+                // this thread: copies made on polars' pool landed in allocator arenas that
+                // did not give their memory back after a drop.
                 frame.rechunk_mut();
                 let manifest = Manifest {
                     format: MANIFEST_FORMAT,
@@ -501,10 +517,10 @@ impl DatasetStore {
                     created: created.clone(),
                     provenance: item.provenance,
                 };
-                (frame, manifest)
+                (frame, manifest, item.parquet_source)
             })
             .collect();
-        let adding: u64 = prepared.iter().map(|(frame, _)| table_bytes(frame)).sum();
+        let adding: u64 = prepared.iter().map(|(frame, _, _)| table_bytes(frame)).sum();
         let freeing: u64 = replaced.iter().map(|d| table_bytes(&d.frame)).sum();
         self.reserve(adding, freeing)?;
         let committed = self.write_files(&mut prepared);
@@ -514,7 +530,7 @@ impl DatasetStore {
         }
         let stored: Vec<Arc<Dataset>> = prepared
             .into_iter()
-            .map(|(frame, manifest)| Arc::new(Dataset { frame, manifest }))
+            .map(|(frame, manifest, _)| Arc::new(Dataset { frame, manifest }))
             .collect();
         {
             let mut map = self.write_map();
@@ -523,23 +539,30 @@ impl DatasetStore {
             }
         }
         self.release(freeing);
-        if !replaced.is_empty() {
-            drop(replaced);
-            memory::return_freed_memory();
+        // A replaced table is freed off the request path. So is what a large write leaves in
+        // the allocator: the buffers that decoding a file or running an analysis freed just
+        // before, which glibc keeps unless trimmed, so that the next call (an analysis of
+        // this very table, say) starts from the table's own size.
+        if !replaced.is_empty() || adding >= LARGE_WRITE_BYTES {
+            memory::free_in_background(replaced);
         }
         Ok(stored)
     }
 
     /// Stages every file, then commits them together; nothing is left behind on failure.
-    fn write_files(&self, prepared: &mut [(DataFrame, Manifest)]) -> ServiceResult<()> {
+    fn write_files(&self, prepared: &mut [(DataFrame, Manifest, Option<Vec<u8>>)]) -> ServiceResult<()> {
         let mut staged = Vec::with_capacity(prepared.len());
-        for (frame, manifest) in prepared.iter_mut() {
+        for (frame, manifest, source) in prepared.iter_mut() {
             #[cfg(test)]
             let inject = self.panic_in_next_write.swap(false, Ordering::SeqCst);
             #[cfg(not(test))]
             let inject = false;
             let target = self.directory.join(format!("{}.parquet", manifest.name));
-            match disk::stage_dataset(&self.directory, target, frame, manifest, inject) {
+            let written = disk::stage_dataset(&self.directory, target, frame, manifest, source.as_deref(), inject);
+            // The source's bytes are not needed past its write: give them back before the
+            // next file of the group and the commit.
+            *source = None;
+            match written {
                 Ok(one) => staged.push(one),
                 Err(error) => {
                     for one in staged {
@@ -565,6 +588,8 @@ impl DatasetStore {
         let removed = self.write_map().remove(name);
         if let Some(dataset) = removed {
             self.release(table_bytes(&dataset.frame));
+            // Here, not in the background: whoever drops a dataset expects its memory back
+            // when the call answers.
             drop(dataset);
             memory::return_freed_memory();
         }
@@ -659,6 +684,7 @@ mod tests {
             name: name.into(),
             frame,
             provenance: provenance(),
+            parquet_source: None,
         }
     }
 
@@ -789,7 +815,7 @@ mod tests {
         // commit record in place, only the first rename done.
         let mut staged = Vec::new();
         for (name, rows) in [("output", 3), ("summary", 1)] {
-            let mut frame = DataFrame::new(rows, vec![Column::new("x".into(), vec![1i32; rows])]).unwrap();
+            let frame = DataFrame::new(rows, vec![Column::new("x".into(), vec![1i32; rows])]).unwrap();
             let manifest = Manifest {
                 format: MANIFEST_FORMAT,
                 name: name.into(),
@@ -799,7 +825,7 @@ mod tests {
                 provenance: provenance(),
             };
             let target = directory.join(format!("{name}.parquet"));
-            staged.push(disk::stage_dataset(&directory, target, &mut frame, &manifest, false).unwrap());
+            staged.push(disk::stage_dataset(&directory, target, &frame, &manifest, None, false).unwrap());
         }
         let record = serde_json::json!({"renames": staged.iter().map(|s| serde_json::json!({
             "from": s.temporary.file_name().unwrap().to_str().unwrap(),

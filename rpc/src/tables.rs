@@ -82,7 +82,18 @@ pub fn load_source(path: &Path) -> ServiceResult<SourceFile> {
 
 /// [`load_source`] of a file already opened (and checked) by the caller; `path` names it
 /// in messages.
-pub fn load_opened(path: &Path, mut file: File) -> ServiceResult<SourceFile> {
+pub fn load_opened(path: &Path, file: File) -> ServiceResult<SourceFile> {
+    Ok(load_opened_while(path, file, |_| ())?.0)
+}
+
+/// [`load_opened`] that runs `work` on the file's bytes on this thread while their SHA-256
+/// is computed on another: on a large file the hash costs about as much as decoding
+/// Parquet, and neither needs the other.
+pub fn load_opened_while<R>(
+    path: &Path,
+    mut file: File,
+    work: impl FnOnce(&[u8]) -> R,
+) -> ServiceResult<(SourceFile, R)> {
     use sha2::{Digest, Sha256};
     use std::io::Read;
     let mut bytes = Vec::new();
@@ -92,28 +103,41 @@ pub fn load_opened(path: &Path, mut file: File) -> ServiceResult<SourceFile> {
         .and_then(|m| m.modified())
         .ok()
         .map(crate::store::utc_timestamp);
-    let digest = Sha256::digest(&bytes);
+    let (digest, worked) = std::thread::scope(|scope| {
+        let hashing = std::thread::Builder::new()
+            .name("mobilis-sha256".into())
+            .spawn_scoped(scope, || Sha256::digest(&bytes));
+        let worked = work(&bytes);
+        let digest = match hashing {
+            Ok(handle) => handle.join().unwrap_or_else(|panic| std::panic::resume_unwind(panic)),
+            Err(_) => Sha256::digest(&bytes),
+        };
+        (digest, worked)
+    });
     let sha256 = digest.iter().map(|b| format!("{b:02x}")).collect();
-    Ok(SourceFile {
-        size_bytes: bytes.len() as u64,
-        bytes,
-        sha256,
-        modified,
-    })
+    Ok((
+        SourceFile {
+            size_bytes: bytes.len() as u64,
+            bytes,
+            sha256,
+            modified,
+        },
+        worked,
+    ))
 }
 
 /// Reads a file's bytes into a DataFrame; CSV in the given dialect, with the line of
 /// every row (see [`csv_dialect::read_csv`] for `keeps_commas`).
 pub fn read_bytes(
     path: &Path,
-    bytes: Vec<u8>,
+    bytes: &[u8],
     format: FileFormat,
     dialect: &CsvDialect,
     keeps_commas: impl Fn(&str) -> bool,
 ) -> ServiceResult<(DataFrame, Option<SourceMap>)> {
     let (frame, map) = match format {
         FileFormat::Csv => {
-            let (frame, map) = csv_dialect::read_csv(&bytes, dialect, keeps_commas).map_err(|e| ServiceError {
+            let (frame, map) = csv_dialect::read_csv(bytes, dialect, keeps_commas).map_err(|e| ServiceError {
                 message: format!("{}: {}", path.display(), e.message),
                 ..e
             })?;

@@ -1,7 +1,8 @@
 //! The daemon's own costs, end to end through a release `mobilisd`: importing a million
 //! readings from CSV and from Parquet, `analysis.run hall.reduce` on them with the output
 //! stored, round trips of cheap calls over HTTP keep-alive and WebSocket, a page of 10,000
-//! rows, and ten million readings imported (with progress) and reduced, with the daemon's
+//! rows (each timed with a lean client that leaves the answer unparsed, the figure the goal
+//! is for, and with an application's client, to show the client's own share), and ten million readings imported (with progress) and reduced, with the daemon's
 //! peak memory against the size of the data.
 //!
 //! Run it with
@@ -29,6 +30,7 @@ use mobilis_client::{Client, ProgressEvent};
 use mobilis_tests::bench::{self, fail, format_seconds, Timing};
 use mobilis_tests::hall_readings::{self, READINGS_PER_TEMPERATURE, SETPOINT_COUNT};
 use mobilis_tests::load::http_keep_alive::Connection;
+use mobilis_tests::load::raw_wire;
 use polars::prelude::*;
 use serde_json::{json, Value};
 use std::io::{BufRead, BufReader};
@@ -219,14 +221,16 @@ fn main() {
     let run = bench::measure(0, RUN_REPETITIONS, || call("analysis.run", run_params.clone()));
     let run_pieces = median_pieces(&daemon.logged_timings("analysis.run timings")[skip..]);
     let run_store_pieces = median_pieces(&daemon.logged_timings(store_marker)[skip_stores..]);
-    let server_info_http = bench::measure(100, ROUND_TRIPS, || call("server.info", json!({})));
-    let rows = bench::measure(1, ROWS_REPETITIONS, || {
-        call(
-            "dataset.rows",
-            json!({"name": "readings", "offset": 123_456, "limit": ROWS_PAGE}),
-        )
-    });
-    let server_info_ws = runtime.block_on(async {
+    // Round trips, each twice: through the lean clients of `load::raw_wire` (blocking
+    // sockets, answers not parsed, only their opening checked), which is nearly all daemon
+    // and loopback, and the figure the goals are for; and through the clients an
+    // application uses (hyper with the answer read into a JSON value, the WebSocket client
+    // of `mobilis_client`), whose own work is the difference.
+    let server_info_http_client = bench::measure(100, ROUND_TRIPS, || call("server.info", json!({})));
+    let rows_params = json!({"name": "readings", "offset": 123_456, "limit": ROWS_PAGE});
+    let rows_client = bench::measure(1, ROWS_REPETITIONS, || call("dataset.rows", rows_params.clone()));
+    let wire = measure_raw_wire(&daemon.url, &rows_params);
+    let server_info_ws_client = runtime.block_on(async {
         let client = Client::connect(&daemon.url, None)
             .await
             .unwrap_or_else(|error| fail(BENCH, &format!("WebSocket: {error}")));
@@ -283,15 +287,48 @@ fn main() {
     );
     line(
         "server.info round trip, HTTP keep-alive",
-        &server_info_http,
+        &wire.server_info_http,
         SERVER_INFO_HTTP_GOAL_S,
     );
     line(
         "server.info round trip, WebSocket",
-        &server_info_ws,
+        &wire.server_info_ws,
         SERVER_INFO_WS_GOAL_S,
     );
-    line("dataset.rows, 10,000 rows x 9 columns, HTTP", &rows, ROWS_GOAL_S);
+    line(
+        "dataset.rows, 10,000 rows x 9 columns, HTTP",
+        &wire.rows_http,
+        ROWS_GOAL_S,
+    );
+    println!("the round trips above by lean clients (answers not parsed); with an application's client:");
+    let client_line = |label: &str, timing: &Timing, lean: &Timing| {
+        println!(
+            "  {label:<60} {:>10} {:>10}   client's own share {}",
+            format_seconds(timing.median_s),
+            format_seconds(timing.min_s),
+            format_seconds((timing.median_s - lean.median_s).max(0.0))
+        );
+    };
+    client_line(
+        "server.info, HTTP (hyper, answer read as a JSON value)",
+        &server_info_http_client,
+        &wire.server_info_http,
+    );
+    client_line(
+        "server.info, WebSocket (mobilis_client)",
+        &server_info_ws_client,
+        &wire.server_info_ws,
+    );
+    client_line(
+        "dataset.rows, HTTP (hyper, answer read as a JSON value)",
+        &rows_client,
+        &wire.rows_http,
+    );
+    println!(
+        "  reading the dataset.rows answer ({:.2} MB) into a JSON value alone: {}",
+        wire.rows_bytes as f64 / 1e6,
+        format_seconds(wire.rows_parse.median_s)
+    );
     println!("pieces in the daemon, medians of the timed calls:");
     println!("  dataset.import CSV: {}", describe_pieces(&csv_pieces));
     println!(
@@ -319,6 +356,63 @@ fn main() {
         println!("{BENCH}: every figure within its goal");
     } else {
         println!("{BENCH}: above the goal: {}", missed.join("; "));
+    }
+}
+
+/// Round trips through the lean clients of [`raw_wire`].
+struct WireTimings {
+    server_info_http: Timing,
+    server_info_ws: Timing,
+    rows_http: Timing,
+    /// Size of the `dataset.rows` answer, and the time a client takes to read it as a value.
+    rows_bytes: usize,
+    rows_parse: Timing,
+}
+
+fn measure_raw_wire(url: &str, rows_params: &Value) -> WireTimings {
+    let refuse = |what: &str, message: String| -> ! { fail(BENCH, &format!("{what}: {message}")) };
+    // Only the opening of an answer is checked: its id, and a result rather than an error.
+    let check = |what: &str, answer: &[u8], id: u64| {
+        let expected = format!(r#"{{"jsonrpc":"2.0","id":{id},"result":"#);
+        if !answer.starts_with(expected.as_bytes()) {
+            let shown = String::from_utf8_lossy(&answer[..answer.len().min(300)]).into_owned();
+            refuse(what, format!("an unexpected answer: {shown}"));
+        }
+    };
+    let info = br#"{"jsonrpc":"2.0","id":7,"method":"server.info"}"#;
+    let rows = json!({"jsonrpc": "2.0", "id": 8, "method": "dataset.rows", "params": rows_params}).to_string();
+
+    let mut http = raw_wire::Http::open(url).unwrap_or_else(|message| refuse("HTTP", message));
+    let server_info_http = bench::measure(100, ROUND_TRIPS, || {
+        let answer = http.call(info).unwrap_or_else(|m| refuse("server.info over HTTP", m));
+        check("server.info over HTTP", answer, 7);
+    });
+    let rows_http = bench::measure(1, ROWS_REPETITIONS, || {
+        let answer = http.call(rows.as_bytes()).unwrap_or_else(|m| refuse("dataset.rows", m));
+        check("dataset.rows", answer, 8);
+    });
+    let body = http
+        .call(rows.as_bytes())
+        .unwrap_or_else(|m| refuse("dataset.rows", m))
+        .to_vec();
+    let rows_parse = bench::measure(1, ROWS_REPETITIONS, || {
+        serde_json::from_slice::<Value>(&body).unwrap_or_else(|e| refuse("dataset.rows", e.to_string()))
+    });
+    drop(http);
+
+    let mut socket = raw_wire::WebSocket::open(url).unwrap_or_else(|message| refuse("WebSocket", message));
+    let server_info_ws = bench::measure(100, ROUND_TRIPS, || {
+        let answer = socket
+            .call(info)
+            .unwrap_or_else(|m| refuse("server.info over WebSocket", m));
+        check("server.info over WebSocket", answer, 7);
+    });
+    WireTimings {
+        server_info_http,
+        server_info_ws,
+        rows_http,
+        rows_bytes: body.len(),
+        rows_parse,
     }
 }
 
@@ -355,7 +449,7 @@ fn ten_million(
         data_root,
         scratch.join("daemon-10m.log"),
     );
-    let (import_s, events, run_s, answer) = runtime.block_on(async {
+    let (import_s, import_peak_kib, events, run_s, answer) = runtime.block_on(async {
         let client = Client::connect(&daemon.url, None)
             .await
             .unwrap_or_else(|error| fail(BENCH, &format!("WebSocket: {error}")));
@@ -381,6 +475,8 @@ fn ten_million(
             .await
             .unwrap_or_else(|error| fail(BENCH, &format!("dataset.import of 1e7 readings: {error}")));
         let import_s = started.elapsed().as_secs_f64();
+        // The peak so far is the import's: which of import and reduce holds the most.
+        let import_peak_kib = daemon.peak_rss_kib();
         let started = Instant::now();
         let answer = client
             .call(
@@ -393,17 +489,34 @@ fn ten_million(
             )
             .await
             .unwrap_or_else(|error| fail(BENCH, &format!("hall.reduce of 1e7 readings: {error}")));
-        (import_s, reports, started.elapsed().as_secs_f64(), answer)
+        (
+            import_s,
+            import_peak_kib,
+            reports,
+            started.elapsed().as_secs_f64(),
+            answer,
+        )
     });
     let peak_kib = daemon.peak_rss_kib();
     let pieces = median_pieces(&daemon.logged_timings("analysis.run timings"));
     let import_pieces = median_pieces(&daemon.logged_timings("dataset.import timings"));
+    // The second store of this daemon is the readings' (the sheet is the first).
+    let stores = daemon.logged_timings("store write timings");
+    let import_store_pieces = median_pieces(stores.get(1..2).unwrap_or_default());
     drop(daemon);
     println!(
-        "dataset.import of 1e7 readings (Parquet): {} with {events} progress reports; {}",
+        "dataset.import of 1e7 readings (Parquet): {} with {events} progress reports; {}; its store: {}",
         format_seconds(import_s),
-        describe_pieces(&import_pieces)
+        describe_pieces(&import_pieces),
+        describe_pieces(&import_store_pieces)
     );
+    if let Some(kib) = import_peak_kib {
+        println!(
+            "daemon peak RSS after the import, before the reduction: {:.0} MB = {:.2} x the raw data",
+            kib as f64 * 1024.0 / 1e6,
+            kib as f64 * 1024.0 / raw as f64
+        );
+    }
     println!(
         "analysis.run hall.reduce on 1e7 readings: {} ({} output rows, {:.3e} readings per second); {}",
         format_seconds(run_s),

@@ -16,6 +16,15 @@
 //!
 //! It builds the release plugin library first. Each figure is the wall time of one call
 //! after one untimed warm-up, median and fastest of several repetitions, beside its goal.
+//!
+//! The result check: with `OSCILLATIONS_SAVE_OUTPUT=FILE` the outputs of a set of calls (the
+//! two timed inputs with the defaults, and the short sweeps with a smoothing background, a
+//! Blackman window with two lines and the fan, a rectangular window with other padding, and
+//! a known mass) are written to FILE, every table column (floats in their exact shortest
+//! form), the summary and the warnings; with `OSCILLATIONS_COMPARE_OUTPUT=FILE` they are
+//! compared with a saved set, and the bench prints the largest relative difference and stops
+//! if it exceeds 1e-12 or if any text, null or count differs. Save before a change to the
+//! analysis, compare after. `OSCILLATIONS_CHECK_ONLY=1` runs the check without the timings.
 
 use mobilis_core::forward::oscillations::{synthetic_sdh_sweep, OscillationComponent, SdhModel};
 use mobilis_core::forward::tensor::SweepNoise;
@@ -94,6 +103,187 @@ fn run(host: &PluginHost, control: &Arc<CallControl>, inputs: &[(String, DataFra
     drop(std::hint::black_box(output));
 }
 
+const SAVE_OUTPUT_VARIABLE: &str = "OSCILLATIONS_SAVE_OUTPUT";
+const COMPARE_OUTPUT_VARIABLE: &str = "OSCILLATIONS_COMPARE_OUTPUT";
+const CHECK_ONLY_VARIABLE: &str = "OSCILLATIONS_CHECK_ONLY";
+/// The largest relative difference of a number allowed between two versions of the analysis
+/// (the project's rule for a change that is meant to leave results alone).
+const LARGEST_RELATIVE_CHANGE: f64 = 1e-12;
+
+/// The calls whose outputs the result check keeps: (label, which input, parameters).
+fn checked_calls() -> Vec<(&'static str, bool, serde_json::Value)> {
+    vec![
+        ("short, defaults", false, json!({})),
+        ("long, defaults", true, json!({})),
+        (
+            "short, smoothing background",
+            false,
+            json!({"background": "smoothing", "background_width_per_T": 0.02}),
+        ),
+        (
+            "short, blackman, two lines, fan",
+            false,
+            json!({"window": "blackman", "frequencies": 2, "landau_fan": true, "temperature_stability_K": 0.01}),
+        ),
+        (
+            "short, rectangular, padding 3, narrow windows",
+            false,
+            json!({"window": "rectangular", "zero_padding": 3, "mass_method": "narrow_windows", "background_degree": 5}),
+        ),
+        (
+            "long, known mass, padding 16",
+            true,
+            json!({"mass": "known", "effective_mass_ratio": 0.067, "zero_padding": 16}),
+        ),
+    ]
+}
+
+/// A call's outcome as JSON: every column (cells as strings, floats in Rust's shortest
+/// exact form so that they read back bit for bit, or null), the summary and the warnings;
+/// or the failure message.
+fn outcome_as_json(
+    host: &PluginHost,
+    control: &Arc<CallControl>,
+    inputs: &[(String, DataFrame)],
+    params: &serde_json::Value,
+) -> serde_json::Value {
+    let output = match host.invoke(ANALYSIS, params, inputs, control) {
+        Ok(output) => output,
+        Err(failure) => return json!({"failure": failure.message}),
+    };
+    let columns: Vec<serde_json::Value> = output
+        .table
+        .columns()
+        .iter()
+        .map(|column| {
+            let values: Vec<serde_json::Value> = match column.dtype() {
+                DataType::Float64 => column
+                    .f64()
+                    .expect("float column")
+                    .iter()
+                    .map(|v| v.map_or(serde_json::Value::Null, |v| format!("{v:?}").into()))
+                    .collect(),
+                _ => {
+                    let text = column.cast(&DataType::String).expect("any column casts to text");
+                    text.str()
+                        .expect("text column")
+                        .iter()
+                        .map(|v| v.map_or(serde_json::Value::Null, |v| v.to_owned().into()))
+                        .collect()
+                }
+            };
+            json!({"name": column.name().as_str(), "dtype": column.dtype().to_string(), "values": values})
+        })
+        .collect();
+    json!({"columns": columns, "summary": output.summary, "warnings": output.warnings})
+}
+
+/// |a - b| / max(|a|, |b|), 0 when equal (both NaN included).
+fn relative_difference(a: f64, b: f64) -> f64 {
+    if a == b || (a.is_nan() && b.is_nan()) {
+        0.0
+    } else {
+        (a - b).abs() / a.abs().max(b.abs())
+    }
+}
+
+/// The largest relative difference between two JSON values: numbers and strings that parse as
+/// floats by relative difference, the rest exactly (a mismatch is added to `problems`).
+/// Texts that differ only in printed numbers (warnings) compare their numbers.
+fn compare_json(path: &str, saved: &serde_json::Value, now: &serde_json::Value, problems: &mut Vec<String>) -> f64 {
+    use serde_json::Value;
+    match (saved, now) {
+        (Value::Number(a), Value::Number(b)) => match (a.as_f64(), b.as_f64()) {
+            (Some(a), Some(b)) if a.fract() != 0.0 || b.fract() != 0.0 => relative_difference(a, b),
+            _ if a == b => 0.0,
+            _ => {
+                problems.push(format!("{path}: {a} then {b}"));
+                0.0
+            }
+        },
+        (Value::String(a), Value::String(b)) if a != b => match (a.parse::<f64>(), b.parse::<f64>()) {
+            (Ok(x), Ok(y)) => relative_difference(x, y),
+            _ => {
+                problems.push(format!("{path}: {a:?} then {b:?}"));
+                0.0
+            }
+        },
+        (Value::Array(a), Value::Array(b)) if a.len() == b.len() => a
+            .iter()
+            .zip(b)
+            .enumerate()
+            .map(|(index, (a, b))| compare_json(&format!("{path}[{index}]"), a, b, problems))
+            .fold(0.0, f64::max),
+        (Value::Object(a), Value::Object(b)) if a.len() == b.len() => {
+            let mut largest = 0.0_f64;
+            for (key, a_value) in a {
+                match b.get(key) {
+                    Some(b_value) => {
+                        largest = largest.max(compare_json(&format!("{path}.{key}"), a_value, b_value, problems))
+                    }
+                    None => problems.push(format!("{path}.{key}: missing")),
+                }
+            }
+            largest
+        }
+        _ if saved == now => 0.0,
+        _ => {
+            problems.push(format!("{path}: {saved} then {now}"));
+            0.0
+        }
+    }
+}
+
+/// Writes and compares the outputs of [`checked_calls`] as the environment asks (see
+/// [`SAVE_OUTPUT_VARIABLE`]); a mismatch stops the bench.
+fn save_or_compare_output(
+    host: &PluginHost,
+    control: &Arc<CallControl>,
+    short: &[(String, DataFrame)],
+    long: &[(String, DataFrame)],
+) {
+    let saved_path = std::env::var_os(SAVE_OUTPUT_VARIABLE);
+    let compare_path = std::env::var_os(COMPARE_OUTPUT_VARIABLE);
+    if saved_path.is_none() && compare_path.is_none() {
+        return;
+    }
+    let now: serde_json::Map<String, serde_json::Value> = checked_calls()
+        .into_iter()
+        .map(|(label, is_long, params)| {
+            let inputs = if is_long { long } else { short };
+            (label.to_owned(), outcome_as_json(host, control, inputs, &params))
+        })
+        .collect();
+    let now = serde_json::Value::Object(now);
+    if let Some(path) = saved_path {
+        std::fs::write(&path, now.to_string())
+            .unwrap_or_else(|error| fail(BENCH, &format!("cannot write {}: {error}", path.to_string_lossy())));
+        println!("outputs of {ANALYSIS} saved to {}", path.to_string_lossy());
+    }
+    let Some(path) = compare_path else { return };
+    let text = std::fs::read_to_string(&path)
+        .unwrap_or_else(|error| fail(BENCH, &format!("cannot read {}: {error}", path.to_string_lossy())));
+    let saved: serde_json::Value = serde_json::from_str(&text)
+        .unwrap_or_else(|error| fail(BENCH, &format!("{}: {error}", path.to_string_lossy())));
+    let mut problems = Vec::new();
+    for (label, _, _) in checked_calls() {
+        let change = compare_json(label, &saved[label], &now[label], &mut problems);
+        println!("output compared ({label}): largest relative difference {change:.3e}");
+    }
+    let largest = compare_json("", &saved, &now, &mut Vec::new());
+    for problem in problems.iter().take(20) {
+        eprintln!("  {problem}");
+    }
+    println!(
+        "outputs compared with {}: largest relative difference {largest:.3e} (goal <= {LARGEST_RELATIVE_CHANGE:e}), {} texts, nulls or counts differ",
+        path.to_string_lossy(),
+        problems.len()
+    );
+    if largest > LARGEST_RELATIVE_CHANGE || !problems.is_empty() {
+        fail(BENCH, &format!("the output of {ANALYSIS} changed"));
+    }
+}
+
 fn verdict(seconds: f64, goal: f64) -> &'static str {
     if seconds <= goal {
         "met"
@@ -112,6 +302,10 @@ fn main() {
 
     let short = vec![("sweep".to_owned(), sweeps(&TEMPERATURES_K, 4_000, 6))];
     let long = vec![("sweep".to_owned(), sweeps(&TEMPERATURES_K[..1], 40_000, 40))];
+    save_or_compare_output(&host, &control, &short, &long);
+    if std::env::var_os(CHECK_ONLY_VARIABLE).is_some() {
+        return;
+    }
     println!(
         "{:<44} {:>10} {:>10} {:>10}  ",
         "mr.oscillations", "median", "fastest", "goal"

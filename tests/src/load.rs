@@ -604,3 +604,220 @@ fn clock_ticks_per_second() -> f64 {
             .unwrap_or(100.0)
     })
 }
+
+/// The leanest clients there are, for timing the daemon's share of a round trip: blocking
+/// sockets on the caller's thread (no runtime, no task to wake), requests written as ready
+/// bytes, and answers returned as bytes without being parsed. HTTP/1.1 on one kept-alive
+/// connection (RFC 9112) and a WebSocket (RFC 6455) with one text frame per message.
+pub mod raw_wire {
+    use std::io::{Read, Write};
+    use std::net::TcpStream;
+
+    /// The authority (`host:port`) of an `http://` address.
+    fn authority(url: &str) -> Result<&str, String> {
+        url.strip_prefix("http://")
+            .map(|rest| rest.trim_end_matches('/'))
+            .ok_or_else(|| format!("{url} is not an http:// address"))
+    }
+
+    fn connect(authority: &str) -> Result<TcpStream, String> {
+        let stream = TcpStream::connect(authority).map_err(|e| format!("cannot connect to {authority}: {e}"))?;
+        // Small request-answer exchanges: waiting to fill a segment only adds latency.
+        stream
+            .set_nodelay(true)
+            .map_err(|e| format!("cannot set TCP_NODELAY: {e}"))?;
+        Ok(stream)
+    }
+
+    /// Reads until the end of an HTTP head (`\r\n\r\n`); returns the head's length, the
+    /// bytes after it staying in `buffer`.
+    fn read_head(stream: &mut TcpStream, buffer: &mut Vec<u8>) -> Result<usize, String> {
+        let mut scanned = 0;
+        loop {
+            if let Some(at) = buffer[scanned..].windows(4).position(|w| w == b"\r\n\r\n") {
+                return Ok(scanned + at + 4);
+            }
+            scanned = buffer.len().saturating_sub(3);
+            let mut chunk = [0u8; 16 * 1024];
+            let read = stream.read(&mut chunk).map_err(|e| format!("reading an answer: {e}"))?;
+            if read == 0 {
+                return Err("the daemon closed the connection".into());
+            }
+            buffer.extend_from_slice(&chunk[..read]);
+        }
+    }
+
+    /// JSON-RPC over HTTP/1.1 keep-alive: one POST, one answer body.
+    pub struct Http {
+        stream: TcpStream,
+        head: Vec<u8>,
+        buffer: Vec<u8>,
+    }
+
+    impl Http {
+        pub fn open(url: &str) -> Result<Http, String> {
+            let authority = authority(url)?;
+            Ok(Http {
+                stream: connect(authority)?,
+                head: format!("POST / HTTP/1.1\r\nHost: {authority}\r\nContent-Type: application/json\r\n")
+                    .into_bytes(),
+                buffer: Vec::new(),
+            })
+        }
+
+        /// Posts `body` and returns the answer's body, unread.
+        pub fn call(&mut self, body: &[u8]) -> Result<&[u8], String> {
+            let mut request = Vec::with_capacity(self.head.len() + 32 + body.len());
+            request.extend_from_slice(&self.head);
+            request.extend_from_slice(format!("Content-Length: {}\r\n\r\n", body.len()).as_bytes());
+            request.extend_from_slice(body);
+            self.stream
+                .write_all(&request)
+                .map_err(|e| format!("sending a request: {e}"))?;
+            self.buffer.clear();
+            let head_length = read_head(&mut self.stream, &mut self.buffer)?;
+            let head =
+                std::str::from_utf8(&self.buffer[..head_length]).map_err(|_| "an answer head that is not text")?;
+            if !head.starts_with("HTTP/1.1 200") {
+                return Err(format!(
+                    "the answer is not 200 OK: {}",
+                    head.lines().next().unwrap_or("")
+                ));
+            }
+            let length: usize = head
+                .lines()
+                .find_map(|line| {
+                    let (name, value) = line.split_once(':')?;
+                    name.eq_ignore_ascii_case("content-length")
+                        .then(|| value.trim().parse().ok())?
+                })
+                .ok_or("an answer without Content-Length")?;
+            let end = head_length + length;
+            while self.buffer.len() < end {
+                let have = self.buffer.len();
+                self.buffer.resize(end.max(have + 64 * 1024), 0);
+                let read = self
+                    .stream
+                    .read(&mut self.buffer[have..])
+                    .map_err(|e| format!("reading an answer: {e}"))?;
+                self.buffer.truncate(have + read);
+                if read == 0 {
+                    return Err("the daemon closed the connection mid-answer".into());
+                }
+            }
+            Ok(&self.buffer[head_length..end])
+        }
+    }
+
+    /// JSON-RPC over a WebSocket: one text message out, one message back.
+    pub struct WebSocket {
+        stream: TcpStream,
+        buffer: Vec<u8>,
+        message: Vec<u8>,
+    }
+
+    impl WebSocket {
+        pub fn open(url: &str) -> Result<WebSocket, String> {
+            let authority = authority(url)?;
+            let mut stream = connect(authority)?;
+            // The handshake of RFC 6455, section 4.1, with the key of its own example.
+            let handshake = format!(
+                "GET / HTTP/1.1\r\nHost: {authority}\r\nUpgrade: websocket\r\nConnection: Upgrade\r\n\
+                 Sec-WebSocket-Key: dGhlIHNhbXBsZSBub25jZQ==\r\nSec-WebSocket-Version: 13\r\n\r\n"
+            );
+            stream
+                .write_all(handshake.as_bytes())
+                .map_err(|e| format!("sending the handshake: {e}"))?;
+            let mut buffer = Vec::new();
+            let head_length = read_head(&mut stream, &mut buffer)?;
+            if !buffer.starts_with(b"HTTP/1.1 101") {
+                return Err(format!(
+                    "the WebSocket handshake was refused: {}",
+                    String::from_utf8_lossy(&buffer[..head_length])
+                        .lines()
+                        .next()
+                        .unwrap_or("")
+                ));
+            }
+            buffer.drain(..head_length);
+            Ok(WebSocket {
+                stream,
+                buffer,
+                message: Vec::new(),
+            })
+        }
+
+        fn fill(&mut self, wanted: usize) -> Result<(), String> {
+            while self.buffer.len() < wanted {
+                let have = self.buffer.len();
+                self.buffer.resize(wanted.max(have + 64 * 1024), 0);
+                let read = self
+                    .stream
+                    .read(&mut self.buffer[have..])
+                    .map_err(|e| format!("reading a frame: {e}"))?;
+                self.buffer.truncate(have + read);
+                if read == 0 {
+                    return Err("the daemon closed the WebSocket".into());
+                }
+            }
+            Ok(())
+        }
+
+        /// Sends `text` as one message and returns the next message's payload, unread.
+        pub fn call(&mut self, text: &[u8]) -> Result<&[u8], String> {
+            // A client's frames are masked (section 5.3); a zero key leaves the payload as
+            // it is, which keeps the client's own work to a copy.
+            let mut frame = Vec::with_capacity(text.len() + 14);
+            frame.push(0x81);
+            match text.len() {
+                n if n < 126 => frame.push(0x80 | n as u8),
+                n if n <= 0xffff => {
+                    frame.push(0x80 | 126);
+                    frame.extend_from_slice(&(n as u16).to_be_bytes());
+                }
+                n => {
+                    frame.push(0x80 | 127);
+                    frame.extend_from_slice(&(n as u64).to_be_bytes());
+                }
+            }
+            frame.extend_from_slice(&[0; 4]);
+            frame.extend_from_slice(text);
+            self.stream
+                .write_all(&frame)
+                .map_err(|e| format!("sending a frame: {e}"))?;
+            // Frames of the answer (section 5.2) until one ends the message.
+            self.message.clear();
+            loop {
+                self.fill(2)?;
+                let (first, second) = (self.buffer[0], self.buffer[1]);
+                let (mut header, length) = match second & 0x7f {
+                    126 => {
+                        self.fill(4)?;
+                        (4, u16::from_be_bytes([self.buffer[2], self.buffer[3]]) as usize)
+                    }
+                    127 => {
+                        self.fill(10)?;
+                        let bytes: [u8; 8] = self.buffer[2..10].try_into().expect("eight bytes");
+                        (10, u64::from_be_bytes(bytes) as usize)
+                    }
+                    n => (2, n as usize),
+                };
+                if second & 0x80 != 0 {
+                    return Err("the daemon masked a frame (RFC 6455 forbids it)".into());
+                }
+                self.fill(header + length)?;
+                let opcode = first & 0x0f;
+                if opcode < 0x8 {
+                    self.message.extend_from_slice(&self.buffer[header..header + length]);
+                } else if opcode == 0x8 {
+                    return Err("the daemon closed the WebSocket".into());
+                }
+                header += length;
+                self.buffer.drain(..header);
+                if first & 0x80 != 0 && opcode < 0x8 {
+                    return Ok(&self.message);
+                }
+            }
+        }
+    }
+}

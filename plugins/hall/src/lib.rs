@@ -11,13 +11,13 @@ pub mod reduce;
 use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
 use mobilis_core::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
 use polars::prelude::*;
+use polars_arrow::bitmap::Bitmap;
 use reduce::{
-    calibration_names, flags, Calibration, Geometry, QualityThresholds, ReadingColumns, ReduceSettings, ReducedRow,
-    SampleInfo,
+    calibration_names, flags, float_column, Calibration, FlagSet, Geometry, QualityThresholds, ReadingColumns,
+    ReduceSettings, ReductionTable, SampleInfo,
 };
 use serde::Deserialize;
 use serde_json::json;
-use std::borrow::Cow;
 
 /// `hall.reduce`.
 pub struct HallReduce;
@@ -139,398 +139,409 @@ fn params_schema() -> serde_json::Value {
     })
 }
 
-/// How one output column is read from a reduced row.
-enum Getter {
-    Float(fn(&ReducedRow) -> Option<f64>),
-    /// Borrowed where the row holds the text, so that a column of 1e5 rows is not 1e5
-    /// allocations.
-    Text(fn(&ReducedRow) -> Option<Cow<'_, str>>),
-    Count(fn(&ReducedRow) -> i64),
-    Flag(fn(&ReducedRow) -> bool),
+/// Where an output column comes from in the [`ReductionTable`].
+enum Source {
+    /// A float column of the reduction, by [`float_column`] index.
+    Float(usize),
+    Sample,
+    Geometry,
+    Carrier,
+    ReadingCount,
+    DriftCorrected,
+    Flags,
+    QualityOk,
 }
 
 /// The output table: one entry per column, used both to declare and to build it.
-const OUTPUT: &[(&str, Option<&str>, &str, Getter)] = &[
-    ("sample", None, "sample name", Getter::Text(|r| Some(Cow::Borrowed(&r.sample)))),
+const OUTPUT: &[(&str, Option<&str>, &str, Source)] = &[
+    ("sample", None, "sample name", Source::Sample),
     (
         "geometry",
         None,
         "van_der_pauw or hall_bar",
-        Getter::Text(|r| Some(Cow::Borrowed(r.geometry))),
+        Source::Geometry,
     ),
     (
         "temperature_K",
         Some("K"),
         "mean temperature of the group",
-        Getter::Float(|r| Some(r.temperature_k)),
+        Source::Float(float_column::TEMPERATURE_K),
     ),
     (
         "temperature_K_unc",
         Some("K"),
         "standard uncertainty of the temperature: standard deviation of the readings' temperatures and the thermometer accuracy in quadrature",
-        Getter::Float(|r| Some(r.temperature_k_unc)),
+        Source::Float(float_column::TEMPERATURE_K_UNC),
     ),
     (
         "temperature_spread_K",
         Some("K"),
         "max - min of the group's temperatures",
-        Getter::Float(|r| Some(r.temperature_spread_k)),
+        Source::Float(float_column::TEMPERATURE_SPREAD_K),
     ),
     (
         "field_T",
         Some("T"),
         "|B| of the Hall quantities; null without field readings",
-        Getter::Float(|r| r.field_t),
+        Source::Float(float_column::FIELD_T),
     ),
     (
         "reading_count",
         None,
         "readings that entered the row",
-        Getter::Count(|r| r.reading_count as i64),
+        Source::ReadingCount,
     ),
     (
         "resistance_a_ohm",
         Some("ohm"),
         "van der Pauw R_A (Hall bar: R_xx)",
-        Getter::Float(|r| r.resistance_a_ohm),
+        Source::Float(float_column::RESISTANCE_A),
     ),
     (
         "resistance_b_ohm",
         Some("ohm"),
         "van der Pauw R_B",
-        Getter::Float(|r| r.resistance_b_ohm),
+        Source::Float(float_column::RESISTANCE_B),
     ),
     (
         "resistance_ratio",
         None,
         "max(R_A/R_B, R_B/R_A)",
-        Getter::Float(|r| r.resistance_ratio),
+        Source::Float(float_column::RESISTANCE_RATIO),
     ),
     (
         "geometry_factor",
         None,
         "van der Pauw f of R_s = pi (R_A + R_B) f / (2 ln 2)",
-        Getter::Float(|r| r.geometry_factor),
+        Source::Float(float_column::GEOMETRY_FACTOR),
     ),
     (
         "sheet_resistance_ohm_sq",
         Some("ohm_sq"),
         "sheet resistance from van der Pauw's exact equation (Hall bar: R_xx W / L)",
-        Getter::Float(|r| r.sheet_resistance_ohm_sq),
+        Source::Float(float_column::SHEET_RESISTANCE),
     ),
     (
         "sheet_resistance_ohm_sq_unc",
         Some("ohm_sq"),
         "total standard uncertainty: _unc_stat and _unc_sys in quadrature",
-        Getter::Float(|r| r.sheet_resistance_ohm_sq_unc),
+        Source::Float(float_column::SHEET_RESISTANCE_UNC),
     ),
     (
         "sheet_resistance_ohm_sq_unc_stat",
         Some("ohm_sq"),
         "statistical part (Type A): the scatter of the readings, or the sample's pooled reading noise if larger",
-        Getter::Float(|r| r.sheet_resistance_ohm_sq_unc_stat),
+        Source::Float(float_column::SHEET_RESISTANCE_UNC_STAT),
     ),
     (
         "sheet_resistance_ohm_sq_unc_sys",
         Some("ohm_sq"),
         "systematic part (Type B): the calibrations, common to every row of the sample; apply once, after a fit",
-        Getter::Float(|r| r.sheet_resistance_ohm_sq_unc_sys),
+        Source::Float(float_column::SHEET_RESISTANCE_UNC_SYS),
     ),
     (
         "resistivity_ohm_m",
         Some("ohm_m"),
         "R_s t; null for a 2D sample",
-        Getter::Float(|r| r.resistivity_ohm_m),
+        Source::Float(float_column::RESISTIVITY),
     ),
     (
         "resistivity_ohm_m_unc",
         Some("ohm_m"),
         "total standard uncertainty: _unc_stat and _unc_sys in quadrature",
-        Getter::Float(|r| r.resistivity_ohm_m_unc),
+        Source::Float(float_column::RESISTIVITY_UNC),
     ),
     (
         "resistivity_ohm_m_unc_stat",
         Some("ohm_m"),
         "statistical part (Type A): the scatter of the readings, or the sample's pooled reading noise if larger",
-        Getter::Float(|r| r.resistivity_ohm_m_unc_stat),
+        Source::Float(float_column::RESISTIVITY_UNC_STAT),
     ),
     (
         "resistivity_ohm_m_unc_sys",
         Some("ohm_m"),
         "systematic part (Type B): the calibrations, common to every row of the sample; apply once, after a fit",
-        Getter::Float(|r| r.resistivity_ohm_m_unc_sys),
+        Source::Float(float_column::RESISTIVITY_UNC_SYS),
     ),
     (
         "hall_resistance_ohm",
         Some("ohm"),
         "R_xy at field_T, positive for holes",
-        Getter::Float(|r| r.hall_resistance_ohm),
+        Source::Float(float_column::HALL_RESISTANCE),
     ),
     (
         "hall_resistance_ohm_unc",
         Some("ohm"),
         "standard uncertainty",
-        Getter::Float(|r| r.hall_resistance_ohm_unc),
+        Source::Float(float_column::HALL_RESISTANCE_UNC),
     ),
     (
         "sheet_hall_coefficient_m2_per_C",
         Some("m2_per_C"),
         "R_Hs = R_xy / |B|",
-        Getter::Float(|r| r.sheet_hall_coefficient_m2_per_c),
+        Source::Float(float_column::SHEET_HALL_COEFFICIENT),
     ),
     (
         "sheet_hall_coefficient_m2_per_C_unc",
         Some("m2_per_C"),
         "standard uncertainty",
-        Getter::Float(|r| r.sheet_hall_coefficient_m2_per_c_unc),
+        Source::Float(float_column::SHEET_HALL_COEFFICIENT_UNC),
     ),
     (
         "hall_coefficient_m3_per_C",
         Some("m3_per_C"),
         "R_H = R_Hs t; null for a 2D sample",
-        Getter::Float(|r| r.hall_coefficient_m3_per_c),
+        Source::Float(float_column::HALL_COEFFICIENT),
     ),
     (
         "hall_coefficient_m3_per_C_unc",
         Some("m3_per_C"),
         "standard uncertainty",
-        Getter::Float(|r| r.hall_coefficient_m3_per_c_unc),
+        Source::Float(float_column::HALL_COEFFICIENT_UNC),
     ),
     (
         "carrier_type",
         None,
         "n or p from the sign of the Hall coefficient",
-        Getter::Text(|r| r.carrier_type.map(Cow::Borrowed)),
+        Source::Carrier,
     ),
     (
         "sheet_density_m2",
         Some("m2"),
         "r_H / (e |R_Hs|)",
-        Getter::Float(|r| r.sheet_density_m2),
+        Source::Float(float_column::SHEET_DENSITY),
     ),
     (
         "sheet_density_m2_unc",
         Some("m2"),
         "total standard uncertainty: _unc_stat and _unc_sys in quadrature",
-        Getter::Float(|r| r.sheet_density_m2_unc),
+        Source::Float(float_column::SHEET_DENSITY_UNC),
     ),
     (
         "sheet_density_m2_unc_stat",
         Some("m2"),
         "statistical part (Type A): the scatter of the readings, or the sample's pooled reading noise if larger",
-        Getter::Float(|r| r.sheet_density_m2_unc_stat),
+        Source::Float(float_column::SHEET_DENSITY_UNC_STAT),
     ),
     (
         "sheet_density_m2_unc_sys",
         Some("m2"),
         "systematic part (Type B): the calibrations, common to every row of the sample; apply once, after a fit",
-        Getter::Float(|r| r.sheet_density_m2_unc_sys),
+        Source::Float(float_column::SHEET_DENSITY_UNC_SYS),
     ),
     (
         "density_m3",
         Some("m3"),
         "sheet density / t; null for a 2D sample",
-        Getter::Float(|r| r.density_m3),
+        Source::Float(float_column::DENSITY),
     ),
     (
         "density_m3_unc",
         Some("m3"),
         "total standard uncertainty: _unc_stat and _unc_sys in quadrature",
-        Getter::Float(|r| r.density_m3_unc),
+        Source::Float(float_column::DENSITY_UNC),
     ),
     (
         "density_m3_unc_stat",
         Some("m3"),
         "statistical part (Type A): the scatter of the readings, or the sample's pooled reading noise if larger",
-        Getter::Float(|r| r.density_m3_unc_stat),
+        Source::Float(float_column::DENSITY_UNC_STAT),
     ),
     (
         "density_m3_unc_sys",
         Some("m3"),
         "systematic part (Type B): the calibrations, common to every row of the sample; apply once, after a fit",
-        Getter::Float(|r| r.density_m3_unc_sys),
+        Source::Float(float_column::DENSITY_UNC_SYS),
     ),
     (
         "hall_mobility_m2_per_Vs",
         Some("m2_per_Vs"),
         "|R_Hs| / R_s",
-        Getter::Float(|r| r.hall_mobility_m2_per_vs),
+        Source::Float(float_column::HALL_MOBILITY),
     ),
     (
         "hall_mobility_m2_per_Vs_unc",
         Some("m2_per_Vs"),
         "total standard uncertainty: _unc_stat and _unc_sys in quadrature",
-        Getter::Float(|r| r.hall_mobility_m2_per_vs_unc),
+        Source::Float(float_column::HALL_MOBILITY_UNC),
     ),
     (
         "hall_mobility_m2_per_Vs_unc_stat",
         Some("m2_per_Vs"),
         "statistical part (Type A): the scatter of the readings, or the sample's pooled reading noise if larger",
-        Getter::Float(|r| r.hall_mobility_m2_per_vs_unc_stat),
+        Source::Float(float_column::HALL_MOBILITY_UNC_STAT),
     ),
     (
         "hall_mobility_m2_per_Vs_unc_sys",
         Some("m2_per_Vs"),
         "systematic part (Type B): the calibrations, common to every row of the sample; apply once, after a fit",
-        Getter::Float(|r| r.hall_mobility_m2_per_vs_unc_sys),
+        Source::Float(float_column::HALL_MOBILITY_UNC_SYS),
     ),
     (
         "drift_mobility_m2_per_Vs",
         Some("m2_per_Vs"),
         "Hall mobility / r_H",
-        Getter::Float(|r| r.drift_mobility_m2_per_vs),
+        Source::Float(float_column::DRIFT_MOBILITY),
     ),
     (
         "drift_mobility_m2_per_Vs_unc",
         Some("m2_per_Vs"),
         "standard uncertainty",
-        Getter::Float(|r| r.drift_mobility_m2_per_vs_unc),
+        Source::Float(float_column::DRIFT_MOBILITY_UNC),
     ),
     (
         "hall_factor",
         None,
         "Hall scattering factor r_H used",
-        Getter::Float(|r| Some(r.hall_factor)),
+        Source::Float(float_column::HALL_FACTOR),
     ),
     (
         "reciprocity_mismatch",
         None,
         "largest |direct - reciprocal| / mean of R_A and R_B",
-        Getter::Float(|r| r.reciprocity_mismatch),
+        Source::Float(float_column::RECIPROCITY_MISMATCH),
     ),
     (
         "current_reversal_mismatch",
         None,
         "largest |R(+I) - R(-I)| / mean",
-        Getter::Float(|r| r.current_reversal_mismatch),
+        Source::Float(float_column::CURRENT_REVERSAL_MISMATCH),
     ),
     (
         "hall_spread",
         None,
         "(max - min) / |mean| of the Hall resistances of the configurations",
-        Getter::Float(|r| r.hall_spread),
+        Source::Float(float_column::HALL_SPREAD),
     ),
     (
         "thermoelectric_offset_ratio",
         None,
         "largest |V_offset| / |R I|",
-        Getter::Float(|r| r.thermoelectric_offset_ratio),
+        Source::Float(float_column::THERMOELECTRIC_OFFSET_RATIO),
     ),
     (
         "misalignment_ratio",
         None,
         "largest field-even / field-odd part of the Hall configurations",
-        Getter::Float(|r| r.misalignment_ratio),
+        Source::Float(float_column::MISALIGNMENT_RATIO),
     ),
     (
         "drift_corrected",
         None,
         "true when the readings of a drifting stage were brought to the group's mean temperature with the series' own slopes",
-        Getter::Flag(|r| r.drift_corrected),
+        Source::DriftCorrected,
     ),
     (
         "reading_noise_V",
         Some("V"),
         "pooled standard deviation of one reading's voltage over the sample's series",
-        Getter::Float(|r| r.reading_noise_v),
+        Source::Float(float_column::READING_NOISE_V),
     ),
     (
         "flags",
         None,
         "raised quality flags, comma-separated (see DEVELOPERS.md)",
-        Getter::Text(|r| {
-            Some(match r.flags[..] {
-                [] => Cow::Borrowed(""),
-                [only] => Cow::Borrowed(only),
-                _ => Cow::Owned(r.flags.join(",")),
-            })
-        }),
+        Source::Flags,
     ),
     (
         "quality_ok",
         None,
         "true when no flag is raised",
-        Getter::Flag(|r| r.quality_ok),
+        Source::QualityOk,
     ),
 ];
 
-fn column_type(getter: &Getter) -> ColumnType {
-    match getter {
-        Getter::Float(_) => ColumnType::F64,
-        Getter::Text(_) => ColumnType::Str,
-        Getter::Count(_) => ColumnType::I64,
-        Getter::Flag(_) => ColumnType::Bool,
+fn column_type(source: &Source) -> ColumnType {
+    match source {
+        Source::Float(_) => ColumnType::F64,
+        Source::Sample | Source::Geometry | Source::Carrier | Source::Flags => ColumnType::Str,
+        Source::ReadingCount => ColumnType::I64,
+        Source::DriftCorrected | Source::QualityOk => ColumnType::Bool,
     }
 }
 
-/// Rows per block of [`output_table`]: a block's rows (about 1 kB each) stay in the
-/// cache while every column takes its values from them.
-const OUTPUT_BLOCK_ROWS: usize = 128;
-
-/// One output column as it is filled.
-enum ColumnBuffer {
-    /// Values, and whether each is present (a null otherwise).
-    Float(Vec<f64>, Vec<bool>),
-    Count(Vec<i64>),
-    Flag(Vec<bool>),
-    /// Text columns are built from the rows in one go at the end.
-    Text,
+/// A validity bitmap (Arrow's layout: bit i of byte i / 8, least significant first; Arrow
+/// columnar format, "Validity bitmaps") from one flag per row; `None` when every value is
+/// present, so that a column without nulls carries no bitmap.
+fn validity(present: &[bool]) -> Option<Bitmap> {
+    if present.iter().all(|&p| p) {
+        return None;
+    }
+    let mut bytes = vec![0u8; present.len().div_ceil(8)];
+    for (byte, chunk) in bytes.iter_mut().zip(present.chunks(8)) {
+        *byte = chunk
+            .iter()
+            .enumerate()
+            .fold(0u8, |bits, (bit, &p)| bits | (u8::from(p) << bit));
+    }
+    Some(Bitmap::from_u8_vec(bytes, present.len()))
 }
 
-fn output_table(rows: &[ReducedRow]) -> Result<DataFrame, AnalysisError> {
-    let height = rows.len();
-    let mut buffers: Vec<ColumnBuffer> = OUTPUT
-        .iter()
-        .map(|(_, _, _, getter)| match getter {
-            Getter::Float(_) => ColumnBuffer::Float(Vec::with_capacity(height), Vec::with_capacity(height)),
-            Getter::Count(_) => ColumnBuffer::Count(Vec::with_capacity(height)),
-            Getter::Flag(_) => ColumnBuffer::Flag(Vec::with_capacity(height)),
-            Getter::Text(_) => ColumnBuffer::Text,
-        })
-        .collect();
-    // Block by block, every column: a row is read from memory once, not once per column.
-    for block in rows.chunks(OUTPUT_BLOCK_ROWS) {
-        for (buffer, (_, _, _, getter)) in buffers.iter_mut().zip(OUTPUT) {
-            match (buffer, getter) {
-                (ColumnBuffer::Float(values, present), Getter::Float(get)) => {
-                    for row in block {
-                        let value = get(row);
-                        values.push(value.unwrap_or(0.0));
-                        present.push(value.is_some());
-                    }
-                }
-                (ColumnBuffer::Count(values), Getter::Count(get)) => values.extend(block.iter().map(get)),
-                (ColumnBuffer::Flag(values), Getter::Flag(get)) => values.extend(block.iter().map(get)),
-                _ => {}
-            }
-        }
+/// The text of a row's flags, comma-separated in the order of [`flags::ALL`]: each distinct
+/// set is joined once.
+struct FlagTexts(Vec<Option<String>>);
+
+impl FlagTexts {
+    fn new() -> Self {
+        FlagTexts(vec![None; 1 << flags::ALL.len()])
     }
-    let columns: Vec<Column> = buffers
-        .into_iter()
-        .zip(OUTPUT)
-        .map(|(buffer, (name, _, _, getter))| {
-            let name = PlSmallStr::from_static(name);
-            match (buffer, getter) {
-                (ColumnBuffer::Float(values, present), _) => {
-                    if present.iter().all(|&p| p) {
-                        Float64Chunked::from_vec(name, values).into_column()
-                    } else {
-                        Float64Chunked::from_iter_options(
-                            name,
-                            values.into_iter().zip(present).map(|(value, p)| p.then_some(value)),
-                        )
-                        .into_column()
-                    }
-                }
-                (ColumnBuffer::Count(values), _) => Int64Chunked::from_vec(name, values).into_column(),
-                (ColumnBuffer::Flag(values), _) => BooleanChunked::from_slice(name, &values).into_column(),
-                (ColumnBuffer::Text, Getter::Text(get)) => {
-                    StringChunked::from_iter_options(name, rows.iter().map(get)).into_column()
-                }
-                (ColumnBuffer::Text, _) => unreachable!("text buffers belong to text getters"),
+
+    fn text(&mut self, set: FlagSet) -> &str {
+        self.0[set.0 as usize].get_or_insert_with(|| set.iter().collect::<Vec<_>>().join(","))
+    }
+}
+
+/// The output table from the reduction's columns: the float buffers are moved into the
+/// table as they are (a validity bitmap added where a column has nulls), the text columns
+/// are built once per row.
+fn output_table(mut table: ReductionTable) -> Result<DataFrame, AnalysisError> {
+    let height = table.height;
+    let mut flag_texts = FlagTexts::new();
+    let mut columns: Vec<Column> = Vec::with_capacity(OUTPUT.len());
+    for (name, _, _, source) in OUTPUT {
+        let name = PlSmallStr::from_static(name);
+        let column = match source {
+            Source::Float(index) => {
+                let column = std::mem::take(&mut table.floats[*index]);
+                let bitmap = validity(&column.present);
+                Float64Chunked::from_vec_validity(name, column.values, bitmap).into_column()
             }
-        })
-        .collect();
+            Source::Sample => StringChunked::from_iter_values(
+                name,
+                table
+                    .samples
+                    .iter()
+                    .flat_map(|(sample, _, rows)| std::iter::repeat_n(sample.as_str(), *rows)),
+            )
+            .into_column(),
+            Source::Geometry => StringChunked::from_iter_values(
+                name,
+                table
+                    .samples
+                    .iter()
+                    .flat_map(|(_, geometry, rows)| std::iter::repeat_n(*geometry, *rows)),
+            )
+            .into_column(),
+            Source::Carrier => {
+                StringChunked::from_iter_options(name, (0..height).map(|row| table.carrier_type(row))).into_column()
+            }
+            Source::ReadingCount => {
+                Int64Chunked::from_vec(name, std::mem::take(&mut table.reading_count)).into_column()
+            }
+            Source::DriftCorrected => BooleanChunked::from_slice(name, &table.drift_corrected).into_column(),
+            Source::Flags => {
+                let mut builder = StringChunkedBuilder::new(name, height);
+                for set in &table.flags {
+                    builder.append_value(flag_texts.text(*set));
+                }
+                builder.finish().into_column()
+            }
+            Source::QualityOk => {
+                BooleanChunked::from_iter_values(name, table.flags.iter().map(|set| set.is_empty())).into_column()
+            }
+        };
+        columns.push(column);
+    }
     DataFrame::new(height, columns).map_err(|e| AnalysisError::Numerical(e.to_string()))
 }
 
@@ -816,37 +827,43 @@ impl Analysis for HallReduce {
             voltage_v: floats(readings, "voltage_V", &mut s4)?,
         };
         host.check_cancelled()?;
-        let reduction = reduce::reduce_columns(&columns, samples.as_deref(), &params.settings())
+        let mut reduction = reduce::reduce_to_table(&columns, samples.as_deref(), &params.settings())
             .map_err(|error| AnalysisError::InvalidInput(error.to_string()))?;
         host.progress(0.9, "building the output table");
 
-        let mut output = AnalysisOutput::new(output_table(&reduction.rows)?);
-        let mut sample_list: Vec<&str> = reduction.rows.iter().map(|r| r.sample.as_str()).collect();
-        sample_list.dedup();
+        // One pass over the flag sets counts every flag.
+        let mut counts = [0usize; flags::ALL.len()];
+        let mut flagged_rows = 0usize;
+        for set in &reduction.flags {
+            flagged_rows += usize::from(!set.is_empty());
+            for (index, count) in counts.iter_mut().enumerate() {
+                *count += usize::from(set.0 & (1 << index) != 0);
+            }
+        }
         let flag_counts: serde_json::Map<String, serde_json::Value> = flags::ALL
             .iter()
-            .map(|flag| {
-                (
-                    flag.to_string(),
-                    json!(reduction.rows.iter().filter(|r| r.flags.contains(flag)).count()),
-                )
-            })
-            .filter(|(_, count)| count != &json!(0))
+            .zip(counts)
+            .filter(|(_, count)| *count != 0)
+            .map(|(flag, count)| (flag.to_string(), json!(count)))
             .collect();
-        output.summary.insert("rows".into(), json!(reduction.rows.len()));
-        output.summary.insert("samples".into(), json!(sample_list));
-        output.summary.insert(
-            "flagged_rows".into(),
-            json!(reduction.rows.iter().filter(|r| !r.quality_ok).count()),
-        );
+        let mut sample_list: Vec<&str> = reduction.samples.iter().map(|(name, _, _)| name.as_str()).collect();
+        sample_list.dedup();
+        let sample_list = json!(sample_list);
+        let row_count = reduction.height;
+        let warnings = std::mem::take(&mut reduction.warnings);
+        let skipped_readings = reduction.skipped_readings;
+        let calibration_list = std::mem::take(&mut reduction.calibrations);
+        let mut output = AnalysisOutput::new(output_table(reduction)?);
+        output.summary.insert("rows".into(), json!(row_count));
+        output.summary.insert("samples".into(), sample_list);
+        output.summary.insert("flagged_rows".into(), json!(flagged_rows));
         output
             .summary
             .insert("flag_counts".into(), serde_json::Value::Object(flag_counts));
         output
             .summary
-            .insert("skipped_readings".into(), json!(reduction.skipped_readings));
-        let calibrations: serde_json::Map<String, serde_json::Value> = reduction
-            .calibrations
+            .insert("skipped_readings".into(), json!(skipped_readings));
+        let calibrations: serde_json::Map<String, serde_json::Value> = calibration_list
             .iter()
             .map(|used| {
                 (
@@ -864,7 +881,7 @@ impl Analysis for HallReduce {
             })
             .collect();
         let mut not_stated: Vec<&str> = Vec::new();
-        for used in &reduction.calibrations {
+        for used in &calibration_list {
             for name in &used.not_stated {
                 if !not_stated.contains(name) {
                     not_stated.push(name);
@@ -877,7 +894,7 @@ impl Analysis for HallReduce {
         output
             .summary
             .insert("calibrations_not_stated".into(), json!(not_stated));
-        output.warnings = reduction.warnings;
+        output.warnings = warnings;
         host.progress(1.0, "done");
         Ok(output)
     }

@@ -153,20 +153,32 @@
 //! - Sample names are interned once (consecutive readings of one sample skip the hash).
 //! - A reading's contacts are classified by one look-up in a table of every contact
 //!   assignment, built per call by the classifiers of `mobilis_core::contacts`; only a
-//!   refused assignment asks the classifier again, for its message. Each valid reading
-//!   becomes a 40-byte record.
+//!   refused assignment asks the classifier again, for its message. Readings are read
+//!   straight from the input columns and validated independently (in parallel above 20,000
+//!   readings) into one buffer of 40-byte records sized once; an invalid one is marked,
+//!   and only when there is one does a sequential pass report the problems in reading
+//!   order and drop the marked readings.
 //! - Grouping is by sorting those records (by sample and temperature, then within a group
 //!   by |B|, then within a cell by configuration, field sign and polarity) and walking
 //!   contiguous slices; nothing is allocated per reading, per cell or per row in the
 //!   statistics (short lists live on the stack).
 //! - Samples are independent: above 20,000 readings they are reduced in parallel (rayon),
-//!   each into its own rows, joined in sample order, so that the result does not depend on
-//!   the number of threads.
+//!   each into its own block of rows, joined in sample order, so that the result does not
+//!   depend on the number of threads.
+//! - A row is drafted as a compact record (`row::RowRecord`: plain values with a presence
+//!   mask, the estimates its uncertainties are finished from, the flags as a bit set; no
+//!   text or list per row). A drift-corrected group overwrites its rows in place, from
+//!   scratch buffers reused from group to group.
+//! - The result is columnar (`table`): every output column is one buffer sized once for all
+//!   rows (values and validity), each sample writes its rows' finished values (the
+//!   uncertainty budgets, with the noise scales and systematic factors shared by a row or a
+//!   sample computed once) into its own stretch of every column, in parallel; the table
+//!   glue moves the buffers into the output table with an Arrow validity bitmap, and
+//!   builds the flags text once per distinct set of flags. [`reduce`] and
+//!   [`reduce_columns`] turn the same columns into [`ReducedRow`]s.
 //! - Van der Pauw's equation is solved once per row; the factor f and the gradient are
 //!   derived from that solution.
 //! - Warnings are formatted only for the rows that raise them.
-//! - The table glue builds the output columns block by block straight from the rows, with
-//!   borrowed text, instead of one pass over all rows per column.
 //!
 //! Every result is the same, to the bit, as the straightforward version: the arithmetic
 //! and its order are unchanged.
@@ -177,6 +189,7 @@ mod coverage_tests;
 pub mod error;
 pub mod flags;
 mod row;
+mod table;
 #[cfg(test)]
 mod tests;
 
@@ -190,9 +203,11 @@ use cells::{
     MAX_SLOTS,
 };
 pub use error::{ReadingProblem, ReduceError};
+pub use row::FlagSet;
 use row::{
-    build_row, finish_row, FieldCells, ResolvedCalibration, ResolvedSample, RowDraft, TemperatureGroup, ZeroFieldCells,
+    build_row, FieldCells, Quantity, ResolvedCalibration, ResolvedSample, RowRecord, TemperatureGroup, ZeroFieldCells,
 };
+pub use table::{float_column, FloatColumn, ReductionTable};
 
 /// How many skipped readings, and separately how many rows, get a warning of their own
 /// before the rest are summarized in one line.
@@ -576,7 +591,7 @@ pub fn reduce(
     samples: Option<&[SampleInfo]>,
     settings: &ReduceSettings,
 ) -> Result<Reduction, ReduceError> {
-    reduce_source(&readings, samples, settings)
+    reduce_source(&readings, samples, settings).map(ReductionTable::into_reduction)
 }
 
 /// Reduces readings given as columns; see [`reduce`].
@@ -585,6 +600,16 @@ pub fn reduce_columns(
     samples: Option<&[SampleInfo]>,
     settings: &ReduceSettings,
 ) -> Result<Reduction, ReduceError> {
+    reduce_to_table(columns, samples, settings).map(ReductionTable::into_reduction)
+}
+
+/// Reduces readings given as columns into output columns: the same result as
+/// [`reduce_columns`], without a record per row.
+pub fn reduce_to_table(
+    columns: &ReadingColumns<'_>,
+    samples: Option<&[SampleInfo]>,
+    settings: &ReduceSettings,
+) -> Result<ReductionTable, ReduceError> {
     let expected = columns.sample.len();
     let lengths = [
         ("temperature_K", columns.temperature_k.len()),
@@ -610,8 +635,7 @@ pub fn reduce_columns(
 
 /// One reading, borrowed from either input form.
 #[derive(Clone, Copy)]
-struct ReadingView<'a> {
-    sample: &'a str,
+struct ReadingView {
     temperature_k: f64,
     field_t: f64,
     i_in: i64,
@@ -622,9 +646,11 @@ struct ReadingView<'a> {
     voltage_v: f64,
 }
 
-trait ReadingSource {
+trait ReadingSource: Sync {
     fn reading_count(&self) -> usize;
-    fn reading(&self, index: usize) -> ReadingView<'_>;
+    fn reading(&self, index: usize) -> ReadingView;
+    /// The sample name of one reading, without the rest of it.
+    fn sample(&self, index: usize) -> &str;
 }
 
 impl ReadingSource for &[RawReading] {
@@ -633,10 +659,14 @@ impl ReadingSource for &[RawReading] {
     }
 
     #[inline]
-    fn reading(&self, index: usize) -> ReadingView<'_> {
+    fn sample(&self, index: usize) -> &str {
+        &self[index].sample
+    }
+
+    #[inline]
+    fn reading(&self, index: usize) -> ReadingView {
         let reading = &self[index];
         ReadingView {
-            sample: &reading.sample,
             temperature_k: reading.temperature_k,
             field_t: reading.field_t,
             i_in: reading.i_in,
@@ -655,9 +685,13 @@ impl ReadingSource for ReadingColumns<'_> {
     }
 
     #[inline]
-    fn reading(&self, index: usize) -> ReadingView<'_> {
+    fn sample(&self, index: usize) -> &str {
+        self.sample[index]
+    }
+
+    #[inline]
+    fn reading(&self, index: usize) -> ReadingView {
         ReadingView {
-            sample: self.sample[index],
             temperature_k: self.temperature_k[index],
             field_t: self.field_t[index],
             i_in: self.i_in[index],
@@ -674,7 +708,7 @@ fn reduce_source<S: ReadingSource>(
     source: &S,
     samples: Option<&[SampleInfo]>,
     settings: &ReduceSettings,
-) -> Result<Reduction, ReduceError> {
+) -> Result<ReductionTable, ReduceError> {
     settings.validate()?;
     let total = source.reading_count();
     let mut warnings = Vec::new();
@@ -685,7 +719,7 @@ fn reduce_source<S: ReadingSource>(
     let mut reading_sample_id: Vec<u32> = Vec::with_capacity(total);
     let mut last: Option<(&str, u32)> = None;
     for index in 0..total {
-        let name = source.reading(index).sample;
+        let name = source.sample(index);
         let id = match last {
             Some((last_name, last_id)) if last_name == name => last_id,
             _ => *ids.entry(name).or_insert_with(|| {
@@ -705,29 +739,50 @@ fn reduce_source<S: ReadingSource>(
     let sorted_names: Vec<&str> = order.iter().map(|id| names[*id as usize]).collect();
     let resolved = resolve_samples(&sorted_names, samples, &settings.calibration, &mut warnings)?;
 
-    // Validate and canonicalize.
+    // Validate and canonicalize: every reading independently (in parallel for a large
+    // call, each thread writing its stretch of one buffer sized once), an invalid one
+    // marked; only when there is one does a sequential pass report the problems in reading
+    // order and drop the marked readings.
     let contact_tables = ContactTables::new();
-    let mut prepared: Vec<Prepared> = Vec::with_capacity(total);
-    let mut skipped = 0usize;
-    for index in 0..total {
+    let prepare_at = |index: usize| -> Result<Prepared, ReadingProblem> {
         let view = source.reading(index);
         let rank = rank_of_id[reading_sample_id[index] as usize];
-        match prepare(&view, rank, resolved[rank as usize].geometry, &contact_tables) {
-            Ok(reading) => prepared.push(reading),
-            Err(problem) if settings.skip_invalid_readings => {
-                skipped += 1;
-                if skipped <= DETAILED_WARNINGS {
-                    warnings.push(format!("reading {index} (sample {:?}) skipped: {problem}", view.sample));
-                }
+        prepare(&view, rank, resolved[rank as usize].geometry, &contact_tables)
+    };
+    let mark = |index: usize| prepare_at(index).unwrap_or(Prepared::INVALID);
+    let mut prepared: Vec<Prepared> = Vec::with_capacity(total);
+    let any_invalid = if total >= PARALLEL_READINGS {
+        use rayon::prelude::*;
+        (0..total).into_par_iter().map(mark).collect_into_vec(&mut prepared);
+        prepared.par_iter().any(Prepared::is_invalid)
+    } else {
+        prepared.extend((0..total).map(mark));
+        prepared.iter().any(Prepared::is_invalid)
+    };
+    let mut skipped = 0usize;
+    if any_invalid {
+        let mut kept = 0usize;
+        for index in 0..total {
+            if !prepared[index].is_invalid() {
+                prepared[kept] = prepared[index];
+                kept += 1;
+                continue;
             }
-            Err(problem) => {
+            let problem = prepare_at(index).expect_err("a marked reading is invalid");
+            let sample = source.sample(index);
+            if !settings.skip_invalid_readings {
                 return Err(ReduceError::InvalidReading {
                     row: index,
-                    sample: view.sample.to_owned(),
+                    sample: sample.to_owned(),
                     problem,
-                })
+                });
+            }
+            skipped += 1;
+            if skipped <= DETAILED_WARNINGS {
+                warnings.push(format!("reading {index} (sample {sample:?}) skipped: {problem}"));
             }
         }
+        prepared.truncate(kept);
     }
     if skipped > DETAILED_WARNINGS {
         warnings.push(format!(
@@ -761,19 +816,37 @@ fn reduce_source<S: ReadingSource>(
         let sample = &resolved[sample_readings[0].sample_rank as usize];
         reduce_sample(sample_readings, sample, settings)
     };
-    let reduced: Vec<SampleReduction> = if sample_slices.len() > 1 && total >= PARALLEL_READINGS {
+    let mut reduced: Vec<SampleReduction> = if sample_slices.len() > 1 && total >= PARALLEL_READINGS {
         use rayon::prelude::*;
         sample_slices.into_par_iter().map(reduce_one).collect()
     } else {
         sample_slices.into_iter().map(reduce_one).collect()
     };
-    let mut rows = Vec::with_capacity(reduced.iter().map(|sample| sample.rows.len()).sum());
+    drop(prepared);
+    let table::BuiltColumns {
+        height,
+        floats,
+        reading_count,
+        drift_corrected,
+        carrier,
+        flags,
+    } = table::build_columns(&reduced, |index| resolved[reduced_rank(&reduced, index)].hall_factor);
     let mut row_warnings = Vec::new();
     let mut calibrations = Vec::with_capacity(reduced.len());
+    let mut sample_list = Vec::with_capacity(reduced.len());
+    for sample in &mut reduced {
+        let resolved_sample = &resolved[sample.rank as usize];
+        sample_list.push((
+            resolved_sample.name.to_owned(),
+            resolved_sample.geometry.name(),
+            sample.records.len(),
+        ));
+        // The records are finished: give their memory back before the next sample's.
+        sample.records = Vec::new();
+        row_warnings.append(&mut sample.row_warnings);
+        warnings.extend(sample.warning.take());
+    }
     for sample in reduced {
-        rows.extend(sample.rows);
-        row_warnings.extend(sample.row_warnings);
-        warnings.extend(sample.warning);
         calibrations.push(sample.calibration);
     }
     let mut not_stated: Vec<(&'static str, usize)> = Vec::new();
@@ -809,12 +882,38 @@ fn reduce_source<S: ReadingSource>(
             row_warning_count - DETAILED_WARNINGS
         ));
     }
-    Ok(Reduction {
-        rows,
+    Ok(ReductionTable {
+        height,
+        samples: sample_list,
+        floats,
+        reading_count,
+        drift_corrected,
+        carrier,
+        flags,
         warnings,
         skipped_readings: skipped,
         calibrations,
     })
+}
+
+/// The rank of the sample whose reduction is `index`.
+fn reduced_rank(reduced: &[SampleReduction], index: usize) -> usize {
+    reduced[index].rank as usize
+}
+
+impl ReductionTable {
+    /// The result as rows.
+    fn into_reduction(self) -> Reduction {
+        let warnings = self.warnings.clone();
+        let skipped_readings = self.skipped_readings;
+        let calibrations = self.calibrations.clone();
+        Reduction {
+            rows: self.into_rows(),
+            warnings,
+            skipped_readings,
+            calibrations,
+        }
+    }
 }
 
 /// Below this many readings the samples are reduced one after the other: spreading a small
@@ -823,7 +922,13 @@ const PARALLEL_READINGS: usize = 20_000;
 
 /// What one sample's series gives.
 struct SampleReduction {
-    rows: Vec<ReducedRow>,
+    /// Rank of the sample (its index among the resolved samples).
+    rank: u32,
+    /// The rows, to be finished with `series_evidence`.
+    records: Vec<RowRecord>,
+    /// The sample's voltage-noise evidence pooled over every row of its series.
+    series_evidence: NoiseEvidence,
+    calibration_resolved: ResolvedCalibration,
     /// Warnings about single rows, in row order (the caller caps them).
     row_warnings: Vec<String>,
     /// The sample's warning about readings taken as zero field, if any.
@@ -843,42 +948,42 @@ fn reduce_sample(
         settings.temperature_tolerance_k,
     );
     // First pass: every temperature group as measured, its rows one after the other in
-    // `drafts` (`bounds` says which are whose), so that a row is moved as little as possible.
+    // `records` (`bounds` says which are whose), written once into one block per sample.
     let mut largest_zero_field_t = 0.0_f64;
-    let mut drafts: Vec<(ReducedRow, RowDraft)> = Vec::with_capacity(temperature_ranges.len());
+    let mut records: Vec<RowRecord> = Vec::with_capacity(temperature_ranges.len());
     let mut bounds: Vec<std::ops::Range<usize>> = Vec::with_capacity(temperature_ranges.len());
     let mut group_warnings: Vec<Vec<String>> = Vec::with_capacity(temperature_ranges.len());
     for temperature_range in &temperature_ranges {
         let mut warnings_of_group = Vec::new();
-        let start = drafts.len();
+        let start = records.len();
         let largest = reduce_temperature_group(
             &mut sample_readings[temperature_range.clone()],
             sample,
             settings,
             None,
-            &mut drafts,
+            &mut records,
             &mut warnings_of_group,
         );
-        bounds.push(start..drafts.len());
+        bounds.push(start..records.len());
         largest_zero_field_t = largest_zero_field_t.max(largest);
         group_warnings.push(warnings_of_group);
     }
     // Further passes for the groups whose readings drifted: each reading brought to the
     // group's mean temperature with the series' own slopes, taken from the previous
     // pass (whose values the drift biased a little; a second correction removes what
-    // the first left). A corrected group's rows replace its first-pass rows.
-    let mut replaced: Vec<Option<Vec<(ReducedRow, RowDraft)>>> = Vec::new();
+    // the first left). A corrected group's rows replace its previous rows in place (the
+    // correction changes voltages only, so the group's rows are as many as before). The
+    // corrected copy of a group's readings and its rows live in buffers reused from group
+    // to group.
+    let mut corrected: Vec<Prepared> = Vec::new();
+    let mut group_rows: Vec<RowRecord> = Vec::new();
     for _ in 0..DRIFT_CORRECTION_PASSES {
-        let first_rows: Vec<Option<&ReducedRow>> = (0..bounds.len())
-            .map(|index| match replaced.get(index).and_then(Option::as_ref) {
-                Some(rows) => rows.first().map(|(row, _)| row),
-                None => drafts
-                    .get(bounds[index].start)
-                    .filter(|_| !bounds[index].is_empty())
-                    .map(|(row, _)| row),
-            })
+        let first_rows: Vec<Option<&RowRecord>> = bounds
+            .iter()
+            .map(|range| (!range.is_empty()).then(|| &records[range.start]))
             .collect();
         let slopes = drift_slopes(&first_rows);
+        drop(first_rows);
         let mut any = false;
         for (index, temperature_range) in temperature_ranges.iter().enumerate() {
             let readings = &sample_readings[temperature_range.clone()];
@@ -894,9 +999,10 @@ fn reduce_sample(
                 continue;
             }
             any = true;
-            let mut corrected = readings.to_vec();
+            corrected.clear();
+            corrected.extend_from_slice(readings);
             correct_drift(&mut corrected, group_slopes, sample.geometry);
-            let mut group_rows = Vec::new();
+            group_rows.clear();
             let mut warnings_of_group = Vec::new();
             reduce_temperature_group(
                 &mut corrected,
@@ -906,29 +1012,22 @@ fn reduce_sample(
                 &mut group_rows,
                 &mut warnings_of_group,
             );
-            if replaced.is_empty() {
-                replaced.resize_with(bounds.len(), || None);
+            let range = bounds[index].clone();
+            if range.len() == group_rows.len() {
+                records[range].copy_from_slice(&group_rows);
+            } else {
+                let shift = group_rows.len() as isize - range.len() as isize;
+                records.splice(range.clone(), group_rows.iter().copied());
+                bounds[index] = range.start..range.start + group_rows.len();
+                for later in &mut bounds[index + 1..] {
+                    *later = (later.start as isize + shift) as usize..(later.end as isize + shift) as usize;
+                }
             }
-            replaced[index] = Some(group_rows);
             group_warnings[index] = warnings_of_group;
         }
         if !any {
             break;
         }
-    }
-    if !replaced.is_empty() {
-        let mut first_pass = drafts.into_iter();
-        let mut joined = Vec::with_capacity(bounds.len());
-        for (index, range) in bounds.iter().enumerate() {
-            match replaced[index].take() {
-                Some(rows) => {
-                    first_pass.by_ref().take(range.len()).for_each(drop);
-                    joined.extend(rows);
-                }
-                None => joined.extend(first_pass.by_ref().take(range.len())),
-            }
-        }
-        drafts = joined;
     }
     let row_warnings: Vec<String> = group_warnings.into_iter().flatten().collect();
     let warning = (largest_zero_field_t > STRICT_ZERO_FIELD_T).then(|| {
@@ -941,19 +1040,15 @@ fn reduce_sample(
     // 4.2.8): one voltmeter, so one noise, for the rows with too little evidence of
     // their own.
     let mut evidence = NoiseEvidence::default();
-    for (_, draft) in &drafts {
-        evidence.add(draft.evidence);
+    for record in &records {
+        evidence.add(record.evidence);
     }
     let reading_noise_v = evidence.pooled_noise_v();
-    let rows: Vec<ReducedRow> = drafts
-        .into_iter()
-        .map(|(mut row, draft)| {
-            finish_row(&mut row, &draft, &evidence, &sample.calibration);
-            row
-        })
-        .collect();
     SampleReduction {
-        rows,
+        rank: sample_readings[0].sample_rank,
+        records,
+        series_evidence: evidence,
+        calibration_resolved: sample.calibration,
         row_warnings,
         warning,
         calibration: CalibrationUsed {
@@ -1220,7 +1315,7 @@ impl ContactTables {
     /// The slot and the current and voltage signs of a reading; `None` when the classifier
     /// refuses the contacts.
     #[inline]
-    fn classify(&self, geometry: Geometry, view: &ReadingView<'_>) -> Option<(u8, f64, f64)> {
+    fn classify(&self, geometry: Geometry, view: &ReadingView) -> Option<(u8, f64, f64)> {
         let index = Self::index(view.i_in, view.i_out, view.v_pos, view.v_neg)?;
         let entry = match geometry {
             Geometry::VanDerPauw => self.van_der_pauw[index],
@@ -1234,7 +1329,7 @@ impl ContactTables {
 /// Validates one reading and puts it in canonical orientation.
 #[inline]
 fn prepare(
-    view: &ReadingView<'_>,
+    view: &ReadingView,
     sample_rank: u32,
     geometry: Geometry,
     tables: &ContactTables,
@@ -1315,8 +1410,8 @@ struct DriftSlopes {
 /// end). In 1/T a thermally activated density is a straight line, which the parabola follows
 /// exactly; a power law in T is followed to second order. `None` for a group without a resistance slope, or without a
 /// Hall slope when it has Hall quantities, and for a series of one temperature.
-fn drift_slopes(first_rows: &[Option<&ReducedRow>]) -> Vec<Option<DriftSlopes>> {
-    let points = |value: fn(&ReducedRow) -> Option<f64>| -> Vec<Option<(f64, f64)>> {
+fn drift_slopes(first_rows: &[Option<&RowRecord>]) -> Vec<Option<DriftSlopes>> {
+    let points = |value: fn(&RowRecord) -> Option<f64>| -> Vec<Option<(f64, f64)>> {
         first_rows
             .iter()
             .map(|row| {
@@ -1326,8 +1421,8 @@ fn drift_slopes(first_rows: &[Option<&ReducedRow>]) -> Vec<Option<DriftSlopes>> 
             })
             .collect()
     };
-    let resistance = points(|row| row.sheet_resistance_ohm_sq);
-    let hall = points(|row| row.sheet_hall_coefficient_m2_per_c);
+    let resistance = points(|row| row.estimate(Quantity::SheetResistance).map(|e| e.value));
+    let hall = points(|row| row.estimate(Quantity::SheetHallCoefficient).map(|e| e.value));
     let slope_at = |series: &[Option<(f64, f64)>], index: usize| -> Option<f64> {
         let centre = series[index]?;
         let mut before = series[..index].iter().rev().flatten();
@@ -1419,7 +1514,7 @@ fn reduce_temperature_group(
     sample: &ResolvedSample<'_>,
     settings: &ReduceSettings,
     drift_correction: Option<DriftSlopes>,
-    rows: &mut Vec<(ReducedRow, RowDraft)>,
+    rows: &mut Vec<RowRecord>,
     warnings: &mut Vec<String>,
 ) -> f64 {
     let count = readings.len() as f64;

@@ -220,6 +220,20 @@
 //! The coverage test (`oscillations/coverage.rs`) checks on realistic sweep sets that the
 //! totals cover the truth as often as standard uncertainties should.
 //!
+//! # Performance
+//!
+//! The analysis is four passes (the main one and three model-spread variants). The variants
+//! need only the field window, so all four run at once on the rayon pool; a variant computes
+//! only the reference sweep's spectrum (the line search reads no other) and skips the
+//! narrow-window mass when the waveform fit's mass is reported (it reads only the reported
+//! mass). The transforms (`mobilis_core::fft`) share one twiddle table and skip the butterfly
+//! stages that only copy the zero padding. None of this changes a bit of the result
+//! (`OSCILLATIONS_COMPARE_OUTPUT` of the bench checks it). What remains is mostly the
+//! Levenberg-Marquardt fits (the waveform fit over every sweep's points, three starts, in
+//! each pass: the singular value decompositions of `mobilis_core::fit` and the evaluations
+//! of R_T = X / sinh X, exp and cos per point) and the 8-fold zero-padded transforms
+//! (65,536 points per 4,000-point sweep, 2^20 for a 40,000-point ramp).
+//!
 //! Multiple lines: the frequencies and densities are reported for each; the narrow-window
 //! mass, the Dingle plot and the fan use the strongest line only, and the other lines are
 //! noise to them (a warning says when a second line is above 20 % of the first).
@@ -239,7 +253,7 @@ use std::f64::consts::PI;
 
 use rayon::prelude::*;
 
-use mobilis_core::fft::{amplitude_spectrum, Window};
+use mobilis_core::fft::{amplitude_spectrum, AmplitudeSpectrum, Window};
 use mobilis_core::forward::oscillations::{
     sheet_density_from_frequency_m2, thermal_damping, thermal_damping_log_derivative, LK_FIELD_PER_KELVIN,
 };
@@ -887,17 +901,41 @@ pub fn analyze_oscillations(
     sweeps: &[OscillationSweep],
     settings: &OscillationSettings,
 ) -> Result<OscillationAnalysis, OscillationError> {
-    let mut analysis = analyze_once(sweeps, settings)?;
+    if !settings.model_spread {
+        let mut analysis = analyze_once(sweeps, settings, Pass::Main)?;
+        budget::assign(&mut analysis, &[], settings);
+        return Ok(analysis);
+    }
+    // The variants need only the field window of the main pass (and its line, to decide
+    // whether the shorter window holds enough periods, which is decided afterwards): they
+    // run in parallel with it, so that on two cores the four passes take the time of two.
+    // When the window itself is refused, the main pass alone says why.
+    let candidates = match settings
+        .validate()
+        .and_then(|()| validate_sweeps(sweeps))
+        .and_then(|()| field_window(sweeps, settings))
+    {
+        Ok(window) => budget::variants(settings, window),
+        Err(_) => Vec::new(),
+    };
+    let (main, results) = rayon::join(
+        || analyze_once(sweeps, settings, Pass::Main),
+        || {
+            candidates
+                .par_iter()
+                .map(|(_, variant)| analyze_once(sweeps, variant, Pass::Variant))
+                .collect::<Vec<_>>()
+        },
+    );
+    let mut analysis = main?;
     let mut outcomes = Vec::new();
-    if settings.model_spread {
+    {
         // The variants are independent analyses of the same sweeps: they run in parallel
         // and are taken in their order, as one after the other would give them.
-        let variants = budget::variants(settings, &analysis);
-        let results: Vec<_> = variants
-            .par_iter()
-            .map(|(_, variant)| analyze_once(sweeps, variant))
-            .collect();
-        for ((label, _), result) in variants.into_iter().zip(results) {
+        for ((label, variant), result) in candidates.into_iter().zip(results) {
+            if !budget::variant_applies(settings, &variant, &analysis) {
+                continue;
+            }
             // A variant that fails (too few points for a high degree, a window without a
             // line) has nothing to say about the spread; it is left out, and named.
             match result {
@@ -912,10 +950,23 @@ pub fn analyze_oscillations(
     Ok(analysis)
 }
 
+/// What a pass of the analysis is for.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Pass {
+    /// The reported analysis: everything.
+    Main,
+    /// A variant of the model spread: only its lines, mass and Dingle temperature are read
+    /// (`budget::assign`), so the spectra of the sweeps other than the reference, which the
+    /// line search does not look at, are not computed and not returned, nor is the
+    /// narrow-window mass when the waveform fit's mass is the one reported.
+    Variant,
+}
+
 /// One pass of the analysis with these settings, without the spread over variants.
 fn analyze_once(
     sweeps: &[OscillationSweep],
     settings: &OscillationSettings,
+    pass: Pass,
 ) -> Result<OscillationAnalysis, OscillationError> {
     settings.validate()?;
     validate_sweeps(sweeps)?;
@@ -932,13 +983,20 @@ fn analyze_once(
     let centre = 0.5 * (range.0 + range.1);
     let mut warnings = Vec::new();
 
-    let spectra: Vec<_> = prepared
-        .iter()
-        .map(|sweep| amplitude_spectrum(&sweep.grid_values, grid.spacing, settings.window, settings.zero_padding))
-        .collect();
     let reference = (0..prepared.len())
         .min_by(|a, b| prepared[*a].temperature_k.total_cmp(&prepared[*b].temperature_k))
         .unwrap_or(0);
+    let spectra: Vec<Option<AmplitudeSpectrum>> = prepared
+        .iter()
+        .enumerate()
+        .map(|(index, sweep)| {
+            (pass == Pass::Main || index == reference)
+                .then(|| amplitude_spectrum(&sweep.grid_values, grid.spacing, settings.window, settings.zero_padding))
+        })
+        .collect();
+    let reference_spectrum = spectra[reference]
+        .as_ref()
+        .expect("the reference spectrum is always computed");
 
     // Lines.
     let lowest = settings.frequency_min_t.unwrap_or(settings.min_periods / span);
@@ -958,7 +1016,7 @@ fn analyze_once(
         min_ratio: settings.min_peak_ratio,
         min_relative_amplitude: settings.min_relative_amplitude,
     };
-    let peaks = match find_peaks(&spectra[reference], &limits) {
+    let peaks = match find_peaks(reference_spectrum, &limits) {
         PeakSearch::Found(peaks) => peaks,
         PeakSearch::TooFewPeriods { frequency_t } => {
             return Err(OscillationError::TooFewPeriods {
@@ -1295,25 +1353,31 @@ fn analyze_once(
             || dingle_from_decay(mass_start, refined[0].decay_t),
             |w| w.components[0].dingle_temperature_k,
         );
-        let (windows, combined) = mass::narrow_window_mass(
-            &prepared,
-            reference,
-            dominant_frequency,
-            range,
-            count,
-            dingle_hint,
-            &mut warnings,
-        );
-        match combined {
-            Some((mass, unc, birge)) => {
-                narrow = Some(NarrowWindowMass {
-                    windows,
-                    effective_mass_ratio: mass,
-                    effective_mass_ratio_unc: unc,
-                    birge_ratio: birge,
-                })
+        // A variant reads only the reported mass: with the waveform fit's mass reported and
+        // present, the narrow windows (its fallback and cross-check) would not be read.
+        let narrow_unread =
+            pass == Pass::Variant && settings.mass_method == MassMethod::WaveformFit && waveform_fit.is_some();
+        if !narrow_unread {
+            let (windows, combined) = mass::narrow_window_mass(
+                &prepared,
+                reference,
+                dominant_frequency,
+                range,
+                count,
+                dingle_hint,
+                &mut warnings,
+            );
+            match combined {
+                Some((mass, unc, birge)) => {
+                    narrow = Some(NarrowWindowMass {
+                        windows,
+                        effective_mass_ratio: mass,
+                        effective_mass_ratio_unc: unc,
+                        birge_ratio: birge,
+                    })
+                }
+                None => warnings.push("no narrow window gave a mass".to_string()),
             }
-            None => warnings.push("no narrow window gave a mass".to_string()),
         }
         let from_waveform = waveform_fit.as_ref().map(|w| MassEstimate {
             effective_mass_ratio: w.components[0].effective_mass_ratio,
@@ -1403,6 +1467,7 @@ fn analyze_once(
     let spectra_out = prepared
         .iter()
         .zip(&spectra)
+        .filter_map(|(sweep, spectrum)| spectrum.as_ref().map(|spectrum| (sweep, spectrum)))
         .map(|(sweep, spectrum)| {
             let keep = spectrum.frequencies.iter().take_while(|f| **f <= highest).count();
             SweepSpectrum {
@@ -1412,7 +1477,7 @@ fn analyze_once(
             }
         })
         .collect();
-    let padded_length = spectra[reference].padded_length;
+    let padded_length = reference_spectrum.padded_length;
     let curves = prepared
         .into_iter()
         .map(|sweep| SweepCurve {

@@ -8,14 +8,32 @@
 //! Writes that must land together (an analysis's output and its summary) first stage every
 //! file, then write one commit record; from the moment the record is renamed into place the
 //! whole group counts as committed, and a start after a crash finishes the renames.
+//!
+//! **How a file is written.** A frame is encoded by [`write_parquet`]: numeric columns in
+//! plain encoding (no dictionary tries, which cost more time than they save bytes on
+//! measurements), text and categorical columns dictionary-encoded, the column chunks of a
+//! row group encoded and compressed in parallel, then written in order through one buffer.
+//! Only one row group's encoded pages are held at a time, so writing a large table costs
+//! little memory beyond the table. A Parquet import whose decoded frame is stored unchanged
+//! keeps the source file's bytes instead of encoding them again ([`stage_parquet_source`]):
+//! the data pages stay as they are and only the footer is rewritten with the manifest added,
+//! so the stored file reads back to the very frame the import decoded.
 
 use super::{storage_error, Manifest};
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
-use polars::io::parquet::write::{KeyValueMetadata, ParquetCompression, StatisticsOptions};
+use polars::io::parquet::write::{ParquetCompression, StatisticsOptions};
 use polars::prelude::*;
+use polars_arrow::datatypes::{ArrowSchema, PhysicalType as ArrowPhysicalType};
+use polars_parquet::write::{
+    array_to_columns, compress, fallible_streaming_iterator, get_dtype_encoding, schema_to_metadata_key,
+    CompressedPage, CompressionOptions, DynIter, DynStreamingIterator, Encoding, FileWriter, KeyValue, Version,
+    WriteOptions,
+};
+use polars_parquet_format::thrift::protocol::{TCompactInputProtocol, TCompactOutputProtocol};
+use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 use std::fs::File;
-use std::io::Write;
+use std::io::{BufWriter, Write};
 use std::panic::{catch_unwind, AssertUnwindSafe};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicU64, Ordering};
@@ -69,13 +87,17 @@ impl Staged {
 }
 
 /// Writes `frame` with `manifest` in its footer to a staged file beside `target`, flushed to
-/// disk. A panic inside the Parquet writer fails this write only: it is caught here so that
-/// no lock a caller holds is poisoned and the staged file is removed.
+/// disk. `source`, when given, is a Parquet file that `frame` was decoded from unchanged:
+/// it is written with the manifest added to its footer instead of encoding `frame` (one
+/// that cannot be taken apart is ignored and `frame` encoded). A panic inside the Parquet
+/// writer fails this write only: it is caught here so that no lock a caller holds is
+/// poisoned and the staged file is removed.
 pub fn stage_dataset(
     directory: &Path,
     target: PathBuf,
-    frame: &mut DataFrame,
+    frame: &DataFrame,
     manifest: &Manifest,
+    source: Option<&[u8]>,
     #[allow(unused_variables)] inject_panic: bool,
 ) -> ServiceResult<Staged> {
     let file_name = target
@@ -92,22 +114,25 @@ pub fn stage_dataset(
             panic!("injected failure inside the Parquet writer");
         }
         let started = std::time::Instant::now();
-        ParquetWriter::new(&mut file)
-            .with_compression(STORED_COMPRESSION)
-            // Column statistics serve readers that skip row groups; the daemon reads whole
-            // files, and computing them cost a tenth of the write.
-            .with_statistics(StatisticsOptions::empty())
-            .with_key_value_metadata(Some(KeyValueMetadata::from_static(vec![(
-                MANIFEST_KEY.to_owned(),
-                manifest_json,
-            )])))
-            .finish(frame)
-            .map_err(|e| storage_error("write", &temporary, e))?;
+        // A source kept as it is when its footer can be rewritten; encoded otherwise.
+        let kept = source.and_then(|bytes| footer_with_entry(bytes, MANIFEST_KEY, &manifest_json).map(|f| (bytes, f)));
+        let form = if kept.is_some() { "source kept" } else { "encoded" };
+        match kept {
+            Some((bytes, (data_end, footer))) => {
+                file.write_all(&bytes[..data_end])
+                    .and_then(|()| file.write_all(&footer))
+                    .map_err(|e| storage_error("write", &temporary, e))?;
+            }
+            None => {
+                write_parquet(&mut file, frame, manifest_json).map_err(|e| storage_error("write", &temporary, e))?
+            }
+        }
         let written = started.elapsed();
         file.sync_all().map_err(|e| storage_error("flush", &temporary, e))?;
         tracing::debug!(
             dataset = %manifest.name,
             rows = frame.height(),
+            form,
             encode_ms = written.as_secs_f64() * 1e3,
             fsync_ms = (started.elapsed() - written).as_secs_f64() * 1e3,
             "store write timings"
@@ -137,6 +162,134 @@ pub fn stage_dataset(
             Err(error)
         }
     }
+}
+
+/// Rows per row group of a stored file, polars' own default (512 x 512): large enough that
+/// per-group costs vanish, small enough that one group's encoded pages are little memory.
+const ROW_GROUP_ROWS: usize = 512 * 512;
+
+/// The encoding of each leaf column: plain for numbers, polars' choice (dictionary) for
+/// text, binary and categorical columns. Measured values rarely repeat, so a dictionary
+/// try on them (a cardinality estimate, and a hash of every value when it looks worth it)
+/// costs time on every write for bytes that LZ4 mostly saves anyway.
+fn stored_encodings(schema: &ArrowSchema) -> Vec<Vec<Encoding>> {
+    schema
+        .iter_values()
+        .map(|field| {
+            let numeric = matches!(field.dtype.to_physical_type(), ArrowPhysicalType::Primitive(_));
+            get_dtype_encoding(&field.dtype)
+                .into_iter()
+                .map(|encoding| match encoding {
+                    Encoding::RleDictionary if numeric => Encoding::Plain,
+                    other => other,
+                })
+                .collect()
+        })
+        .collect()
+}
+
+/// Encodes `frame` as one Parquet file into `file` (Apache Parquet format, version 1 data
+/// pages, [`STORED_COMPRESSION`], no statistics: the daemon reads whole files, and
+/// computing them cost a tenth of the write), with polars' Arrow schema and the manifest in
+/// the footer's key-value metadata, so that polars reads back the same dtypes (categorical
+/// included). Row groups are written one after another; within one, the column chunks are
+/// encoded and compressed in parallel.
+pub fn write_parquet(file: &mut File, frame: &DataFrame, manifest_json: String) -> PolarsResult<()> {
+    let schema = frame.schema().to_arrow(CompatLevel::newest());
+    let options = WriteOptions {
+        statistics: StatisticsOptions::empty(),
+        compression: CompressionOptions::from(STORED_COMPRESSION),
+        version: Version::V1,
+        data_page_size: None,
+    };
+    let encodings = stored_encodings(&schema);
+    let mut writer = FileWriter::try_new(BufWriter::with_capacity(1 << 20, file), schema, options)?;
+    let fields = writer.parquet_schema().fields().to_vec();
+    let height = frame.height();
+    let mut offset = 0;
+    while offset < height {
+        let length = ROW_GROUP_ROWS.min(height - offset);
+        let group = frame.slice(offset as i64, length);
+        for batch in group.iter_chunks(CompatLevel::newest(), false) {
+            if batch.is_empty() {
+                continue;
+            }
+            let columns: Vec<Vec<Vec<CompressedPage>>> = batch
+                .columns()
+                .par_iter()
+                .zip(&fields)
+                .zip(&encodings)
+                .map(|((array, parquet_type), encoding)| {
+                    array_to_columns(array, parquet_type.clone(), options, encoding)?
+                        .into_iter()
+                        .map(|pages| {
+                            pages
+                                .map(|page| compress(page?, Vec::new(), options.compression).map_err(PolarsError::from))
+                                .collect::<PolarsResult<Vec<CompressedPage>>>()
+                        })
+                        .collect::<PolarsResult<Vec<_>>>()
+                })
+                .collect::<PolarsResult<Vec<_>>>()?;
+            let leaves = columns.iter().flatten().map(|pages| {
+                Ok(DynStreamingIterator::new(fallible_streaming_iterator::convert(
+                    pages.iter().map(Ok::<_, PolarsError>),
+                )))
+            });
+            writer.write(batch.len() as u64, DynIter::new(leaves))?;
+        }
+        offset += length;
+    }
+    let key_value = vec![
+        schema_to_metadata_key(writer.schema()),
+        KeyValue {
+            key: MANIFEST_KEY.to_owned(),
+            value: Some(manifest_json),
+        },
+    ];
+    writer.end(Some(key_value))?;
+    writer.into_inner().flush()?;
+    Ok(())
+}
+
+/// Takes a Parquet file apart at its footer and sets `key` to `value` in the footer's
+/// key-value metadata. Returns where the file's data ends (everything before the footer,
+/// kept byte for byte) and the new footer with its length and closing magic; `None` for
+/// bytes that are not a plain Parquet file (an encrypted footer, say).
+///
+/// Layout (Apache Parquet format, "File Format"): `PAR1`, the column chunks, the
+/// `FileMetaData` in Thrift's compact protocol, its length as 4-byte little-endian, `PAR1`.
+/// Column chunks are located by absolute offsets in the metadata, so they stay valid as
+/// long as everything before the footer is unchanged, which it is.
+pub fn footer_with_entry(bytes: &[u8], key: &str, value: &str) -> Option<(usize, Vec<u8>)> {
+    const MAGIC: &[u8; 4] = b"PAR1";
+    let size = bytes.len();
+    if size < 12 || &bytes[..4] != MAGIC || &bytes[size - 4..] != MAGIC {
+        return None;
+    }
+    let footer_length = u32::from_le_bytes(bytes[size - 8..size - 4].try_into().ok()?) as usize;
+    let footer_start = size.checked_sub(8 + footer_length).filter(|start| *start >= 4)?;
+    let footer = &bytes[footer_start..size - 8];
+    // The bound on what the decoder may allocate, as polars' own footer reader sets it.
+    let mut input = TCompactInputProtocol::new(footer, footer_length * 2 + 1024);
+    let mut metadata = polars_parquet_format::FileMetaData::read_from_in_protocol(&mut input).ok()?;
+    if metadata.encryption_algorithm.is_some() {
+        return None;
+    }
+    let mut pairs = metadata.key_value_metadata.take().unwrap_or_default();
+    pairs.retain(|pair| pair.key != key);
+    pairs.push(polars_parquet_format::KeyValue {
+        key: key.to_owned(),
+        value: Some(value.to_owned()),
+    });
+    metadata.key_value_metadata = Some(pairs);
+    let mut written = Vec::with_capacity(footer_length + value.len() + 64);
+    metadata
+        .write_to_out_protocol(&mut TCompactOutputProtocol::new(&mut written))
+        .ok()?;
+    let length = u32::try_from(written.len()).ok()?;
+    written.extend_from_slice(&length.to_le_bytes());
+    written.extend_from_slice(MAGIC);
+    Some((footer_start, written))
 }
 
 /// One staged file of a commit record, as file names inside the datasets directory.
@@ -287,4 +440,160 @@ pub fn read_dataset(path: &Path) -> Result<(DataFrame, Option<String>), String> 
         .and_then(|kv| kv.value.clone());
     let frame = reader.finish().map_err(|e| format!("Parquet unreadable: {e}"))?;
     Ok((frame, manifest))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::store::{column_infos, Provenance, MANIFEST_FORMAT};
+
+    fn manifest_of(name: &str, frame: &DataFrame) -> Manifest {
+        Manifest {
+            format: MANIFEST_FORMAT,
+            name: name.into(),
+            rows: frame.height(),
+            columns: column_infos(frame),
+            created: "2026-01-01T00:00:00Z".into(),
+            provenance: Provenance::Inline {
+                units: Default::default(),
+            },
+        }
+    }
+
+    /// Every column kind a dataset holds, with nulls, over more rows than one row group.
+    fn mixed_frame(rows: usize) -> DataFrame {
+        let index: Vec<i64> = (0..rows as i64).collect();
+        let field: Vec<Option<f64>> = (0..rows)
+            .map(|i| (i % 97 != 5).then(|| (i as f64 * 0.37).sin() * 14.0))
+            .collect();
+        let setpoint: Vec<f64> = (0..rows).map(|i| 2.0 + (i / 16 % 625) as f64 * 0.5).collect();
+        let sample: Vec<Option<String>> = (0..rows)
+            .map(|i| (i % 1013 != 7).then(|| format!("wafer-{:03}", i / 10_000)))
+            .collect();
+        let flag: Vec<Option<bool>> = (0..rows).map(|i| (i % 11 != 0).then_some(i % 3 == 0)).collect();
+        let count: Vec<Option<i32>> = (0..rows).map(|i| (i % 5 != 0).then_some(i as i32 % 40)).collect();
+        df!(
+            "index" => index,
+            "field_T" => field,
+            "temperature_K" => setpoint,
+            "sample" => sample,
+            "good" => flag,
+            "count" => count,
+        )
+        .unwrap()
+    }
+
+    fn assert_same(read: &DataFrame, written: &DataFrame) {
+        assert_eq!(read.schema(), written.schema());
+        assert!(read.equals_missing(written), "{read:?}\n{written:?}");
+    }
+
+    #[test]
+    fn an_encoded_file_reads_back_to_the_same_frame() {
+        let directory = tempfile::tempdir().unwrap();
+        for rows in [0, 1, 1000, ROW_GROUP_ROWS + 1234] {
+            let frame = mixed_frame(rows);
+            let manifest = manifest_of("mixed", &frame);
+            let target = directory.path().join("mixed.parquet");
+            let staged = stage_dataset(directory.path(), target.clone(), &frame, &manifest, None, false).unwrap();
+            commit(directory.path(), vec![staged]).unwrap();
+            let (read, footer) = read_dataset(&target).unwrap();
+            assert_same(&read, &frame);
+            let footer: Manifest = serde_json::from_str(&footer.unwrap()).unwrap();
+            assert_eq!((footer.rows, footer.columns), (rows, column_infos(&frame)));
+        }
+    }
+
+    #[test]
+    fn a_kept_source_reads_back_to_the_frame_it_decoded_to() {
+        let directory = tempfile::tempdir().unwrap();
+        // A source as another program writes it: zstd, statistics, dictionaries, its own
+        // footer entries, and a manifest of another workspace that must be replaced.
+        let mut source_frame = mixed_frame(ROW_GROUP_ROWS + 77);
+        let mut bytes = Vec::new();
+        ParquetWriter::new(&mut bytes)
+            .with_key_value_metadata(Some(polars::io::parquet::write::KeyValueMetadata::from_static(vec![
+                ("origin".to_owned(), "a lab script".to_owned()),
+                (MANIFEST_KEY.to_owned(), "{\"stale\": true}".to_owned()),
+            ])))
+            .finish(&mut source_frame)
+            .unwrap();
+        let decoded = ParquetReader::new(std::io::Cursor::new(&bytes[..])).finish().unwrap();
+        let manifest = manifest_of("kept", &decoded);
+        let target = directory.path().join("kept.parquet");
+        let staged = stage_dataset(
+            directory.path(),
+            target.clone(),
+            &decoded,
+            &manifest,
+            Some(&bytes),
+            false,
+        )
+        .unwrap();
+        commit(directory.path(), vec![staged]).unwrap();
+        let stored = std::fs::read(&target).unwrap();
+        let (data_end, _) = footer_with_entry(&bytes, MANIFEST_KEY, "x").unwrap();
+        assert_eq!(
+            &stored[..data_end],
+            &bytes[..data_end],
+            "the data pages are kept byte for byte"
+        );
+        let (read, footer) = read_dataset(&target).unwrap();
+        assert_same(&read, &decoded);
+        let footer: Manifest = serde_json::from_str(&footer.unwrap()).unwrap();
+        assert_eq!(footer.name, "kept");
+        let metadata = ParquetReader::new(File::open(&target).unwrap())
+            .get_metadata()
+            .unwrap()
+            .clone();
+        let pairs = metadata.key_value_metadata().clone().unwrap();
+        assert!(pairs.iter().any(|kv| kv.key == "origin"));
+        assert_eq!(pairs.iter().filter(|kv| kv.key == MANIFEST_KEY).count(), 1);
+    }
+
+    #[test]
+    fn bytes_that_are_not_plain_parquet_are_encoded_instead() {
+        for junk in [
+            &b""[..],
+            b"PAR1",
+            b"PAR1\x00\x00\x00\x00PAR1",
+            b"PAR1garbage\xff\xff\x00\x00PAR1",
+        ] {
+            assert!(footer_with_entry(junk, MANIFEST_KEY, "x").is_none(), "{junk:?}");
+        }
+        let directory = tempfile::tempdir().unwrap();
+        let frame = mixed_frame(100);
+        let manifest = manifest_of("junk", &frame);
+        let target = directory.path().join("junk.parquet");
+        let staged = stage_dataset(
+            directory.path(),
+            target.clone(),
+            &frame,
+            &manifest,
+            Some(b"PAR1 not a file PAR1"),
+            false,
+        )
+        .unwrap();
+        commit(directory.path(), vec![staged]).unwrap();
+        assert_same(&read_dataset(&target).unwrap().0, &frame);
+    }
+
+    #[test]
+    fn files_of_earlier_versions_in_zstd_still_load() {
+        let directory = tempfile::tempdir().unwrap();
+        let mut frame = mixed_frame(5000);
+        let manifest = serde_json::to_string(&manifest_of("old", &frame)).unwrap();
+        let path = directory.path().join("old.parquet");
+        ParquetWriter::new(File::create(&path).unwrap())
+            .with_compression(ParquetCompression::Zstd(None))
+            .with_key_value_metadata(Some(polars::io::parquet::write::KeyValueMetadata::from_static(vec![(
+                MANIFEST_KEY.to_owned(),
+                manifest.clone(),
+            )])))
+            .finish(&mut frame)
+            .unwrap();
+        let (read, footer) = read_dataset(&path).unwrap();
+        assert_same(&read, &frame);
+        assert_eq!(footer.unwrap(), manifest);
+    }
 }

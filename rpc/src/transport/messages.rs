@@ -17,8 +17,10 @@ use crate::errors::{ErrorKind, ServiceError};
 use jsonrpsee::{MethodCallback, Methods};
 use serde_json::value::RawValue;
 use std::collections::HashMap;
+use std::future::Future;
 use std::sync::atomic::{AtomicU64, Ordering};
 use std::sync::{Arc, Mutex};
+use std::task::Poll;
 use tokio::sync::{mpsc, Semaphore};
 use tokio::task::JoinSet;
 
@@ -300,6 +302,40 @@ impl Dispatcher {
     }
 }
 
+/// What became of a message given to [`Session::start_or_answer`].
+pub(super) enum Started {
+    /// Answered at once: the reply to write (none for notifications).
+    Answered(Option<String>),
+    /// Running as its own task, which sends its reply to the session's output.
+    Running,
+}
+
+/// Sends a call's reply to the connection's output, then forwards the notifications of the
+/// subscriptions it opened.
+async fn deliver(answer: Answer, output: mpsc::Sender<String>, forwarders: Arc<Mutex<JoinSet<()>>>) {
+    if let Some(reply) = answer.reply {
+        if output.send(reply).await.is_err() {
+            return;
+        }
+    }
+    if answer.subscriptions.is_empty() {
+        return;
+    }
+    // The answer went first, so the client knows a subscription's id before its events.
+    let mut forwarders = forwarders.lock().unwrap_or_else(|poisoned| poisoned.into_inner());
+    while forwarders.try_join_next().is_some() {}
+    for mut notifications in answer.subscriptions {
+        let output = output.clone();
+        forwarders.spawn(async move {
+            while let Some(notification) = notifications.recv().await {
+                if output.send(notification.get().to_owned()).await.is_err() {
+                    break;
+                }
+            }
+        });
+    }
+}
+
 /// The calls of one connection. Dropping the session drops the futures of every call still
 /// running (a closed WebSocket); [`Session::finish`] lets them answer first (stdin's end).
 pub(super) struct Session {
@@ -326,38 +362,43 @@ impl Session {
 
     /// Starts answering one message; waits while the connection has too many calls running.
     pub(super) async fn start(&mut self, body: Vec<u8>) {
+        if let Started::Answered(Some(reply)) = self.start_or_answer(body).await {
+            let _ = self.output.send(reply).await;
+        }
+    }
+
+    /// Answers one message at once if it can be (a cheap method answers the first time its
+    /// future is polled), or starts it as its own task. An answer given at once is returned
+    /// for the caller to write: it skips the hand-over to a task and from it to the writer,
+    /// two wake-ups that cost more than such a call itself.
+    pub(super) async fn start_or_answer(&mut self, body: Vec<u8>) -> Started {
         while self.calls.try_join_next().is_some() {}
+        let (dispatcher, via) = (self.dispatcher.clone(), self.via);
+        let mut call = Box::pin(async move { dispatcher.answer(&body, via).await });
+        // Polled once here, with this task's waker: if it is not ready it moves to its own
+        // task below, which polls it from then on (a boxed future may move once polled).
+        // The permit first, so that no more than MAX_CALLS_IN_FLIGHT calls ever run.
         let Ok(permit) = self.in_flight.clone().acquire_owned().await else {
-            return;
+            return Started::Running;
         };
-        let (dispatcher, via, output, forwarders) = (
-            self.dispatcher.clone(),
-            self.via,
-            self.output.clone(),
-            self.forwarders.clone(),
-        );
-        self.calls.spawn(async move {
-            let answer = dispatcher.answer(&body, via).await;
+        let first = std::future::poll_fn(|context| Poll::Ready(call.as_mut().poll(context))).await;
+        if let Poll::Ready(answer) = first {
             drop(permit);
-            if let Some(reply) = answer.reply {
-                if output.send(reply).await.is_err() {
-                    return;
-                }
+            if answer.subscriptions.is_empty() {
+                return Started::Answered(answer.reply);
             }
-            // The answer went first, so the client knows a subscription's id before its events.
-            let mut forwarders = forwarders.lock().unwrap_or_else(|poisoned| poisoned.into_inner());
-            while forwarders.try_join_next().is_some() {}
-            for mut notifications in answer.subscriptions {
-                let output = output.clone();
-                forwarders.spawn(async move {
-                    while let Some(notification) = notifications.recv().await {
-                        if output.send(notification.get().to_owned()).await.is_err() {
-                            break;
-                        }
-                    }
-                });
-            }
+            // The answer goes before the notifications of the subscriptions it opened.
+            let (output, forwarders) = (self.output.clone(), self.forwarders.clone());
+            self.calls.spawn(deliver(answer, output, forwarders));
+            return Started::Running;
+        }
+        let (output, forwarders) = (self.output.clone(), self.forwarders.clone());
+        self.calls.spawn(async move {
+            let answer = call.await;
+            drop(permit);
+            deliver(answer, output, forwarders).await;
         });
+        Started::Running
     }
 
     /// Sends a reply that did not come from a call (a refused frame).

@@ -3,9 +3,14 @@
 //! future when its client disconnects, and a WebSocket's calls live in a set that is
 //! aborted when the socket closes. Either way a method stops being polled as soon as
 //! nobody waits for its answer.
+//!
+//! Cheap calls cost what the connection's own task does: an HTTP request is answered on it
+//! by hyper, and a WebSocket message whose call is ready at once is answered by the socket's
+//! reader, over a buffered connection, so a round trip is one read, one write and one
+//! wake-up of the daemon (see [`serve_websocket`]).
 
 use super::access::{self, AccessPolicy, Body, Verdict};
-use super::messages::{Dispatcher, Session, Via};
+use super::messages::{Dispatcher, Session, Started, Via};
 use super::{MAX_CONNECTIONS, MAX_REQUEST_BYTES};
 use bytes::Bytes;
 use http_body_util::{BodyExt, Full, Limited};
@@ -15,6 +20,7 @@ use jsonrpsee::RpcModule;
 use std::convert::Infallible;
 use std::net::SocketAddr;
 use std::sync::Arc;
+use tokio::io::BufStream;
 use tokio::net::{TcpListener, TcpStream};
 use tokio::sync::{mpsc, watch, OwnedSemaphorePermit, Semaphore};
 use tokio::task::JoinSet;
@@ -43,8 +49,12 @@ impl ServerHandle {
     }
 }
 
-/// An upgraded connection as soketto reads and writes it.
-type Socket = tokio_util::compat::Compat<TokioIo<hyper::upgrade::Upgraded>>;
+/// An upgraded connection as soketto reads and writes it. Buffered both ways: soketto reads
+/// a frame's header, mask and payload with one call each and writes a header and its
+/// payload with two, which unbuffered were as many system calls, and two TCP segments per
+/// answer (the socket has `TCP_NODELAY`). Buffered, a message is one read and one write
+/// (when the writer flushes).
+type Socket = tokio_util::compat::Compat<BufStream<TokioIo<hyper::upgrade::Upgraded>>>;
 
 /// What every connection shares.
 struct Shared {
@@ -230,7 +240,7 @@ fn upgrade(
                 return;
             }
         };
-        let mut builder = handshake.into_builder(TokioIo::new(upgraded).compat());
+        let mut builder = handshake.into_builder(BufStream::new(TokioIo::new(upgraded)).compat());
         builder.set_max_message_size(MAX_REQUEST_BYTES as usize);
         builder.set_max_frame_size(MAX_REQUEST_BYTES as usize);
         let (sender, receiver) = builder.finish();
@@ -241,14 +251,22 @@ fn upgrade(
 }
 
 /// Reads messages until the socket closes, then drops the calls still running.
+///
+/// A call that answers at once (the cheap reads) is answered by this task itself, as hyper
+/// answers an HTTP request on its connection's task; the others run as tasks of their own
+/// and hand their answers to a writer task. Both write through one lock on the sender, so
+/// frames never interleave.
 async fn serve_websocket(
-    mut sender: soketto::connection::Sender<Socket>,
+    sender: soketto::connection::Sender<Socket>,
     mut receiver: soketto::connection::Receiver<Socket>,
     dispatcher: Dispatcher,
 ) {
+    let sender = Arc::new(tokio::sync::Mutex::new(sender));
     let (output, mut outgoing) = mpsc::channel::<String>(64);
+    let writer_sender = sender.clone();
     let writer = tokio::spawn(async move {
         while let Some(text) = outgoing.recv().await {
+            let mut sender = writer_sender.lock().await;
             if sender.send_text_owned(text).await.is_err() {
                 return;
             }
@@ -257,7 +275,7 @@ async fn serve_websocket(
                 return;
             }
         }
-        let _ = sender.close().await;
+        let _ = writer_sender.lock().await.close().await;
     });
     let mut session = Session::new(dispatcher, Via::WebSocket, output);
     let mut message = Vec::new();
@@ -265,7 +283,15 @@ async fn serve_websocket(
         message.clear();
         match receiver.receive_data(&mut message).await {
             // Text and binary messages alike carry JSON.
-            Ok(_) => session.start(std::mem::take(&mut message)).await,
+            Ok(_) => match session.start_or_answer(std::mem::take(&mut message)).await {
+                Started::Answered(Some(reply)) => {
+                    let mut sender = sender.lock().await;
+                    if sender.send_text_owned(reply).await.is_err() || sender.flush().await.is_err() {
+                        break;
+                    }
+                }
+                Started::Answered(None) | Started::Running => {}
+            },
             Err(soketto::connection::Error::Closed) => break,
             Err(error) => {
                 tracing::debug!(%error, "WebSocket ended");

@@ -28,6 +28,22 @@ pub(super) struct Prepared {
     pub voltage_v: f64,
 }
 
+impl Prepared {
+    /// A reading that failed validation, as the parallel preparation marks it.
+    pub const INVALID: Prepared = Prepared {
+        sample_rank: u32::MAX,
+        slot: u8::MAX,
+        temperature_k: f64::NAN,
+        field_t: f64::NAN,
+        current_a: f64::NAN,
+        voltage_v: f64::NAN,
+    };
+
+    pub fn is_invalid(&self) -> bool {
+        self.slot == u8::MAX
+    }
+}
+
 /// The largest number of configurations a geometry has (van der Pauw: 4 resistance + 2 Hall).
 pub(super) const MAX_SLOTS: usize = 6;
 

@@ -12,7 +12,7 @@ use super::cells::{
     combine_redundant, mean_with_standard_error, quadrature, quadrature_of, redundancy_evidence, CellSummary, Estimate,
     NoiseEvidence, MAX_SLOTS,
 };
-use super::{flags, Geometry, ReduceSettings, ReducedRow};
+use super::{flags, Geometry, ReduceSettings};
 
 /// The calibrations of one sample as resolved from the sheet, the call and the defaults:
 /// relative standard uncertainties of the scales, the thermometer's accuracy in K.
@@ -30,6 +30,7 @@ pub(super) struct ResolvedCalibration {
 /// rho = R_s t, n = n_s / t, mu_H = R_Hs / R_s (voltage and current cancel: one voltmeter
 /// and one source measure both).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[repr(usize)]
 pub(super) enum Quantity {
     SheetResistance,
     Resistivity,
@@ -43,18 +44,6 @@ pub(super) enum Quantity {
 }
 
 impl Quantity {
-    pub const ALL: [Quantity; 9] = [
-        Quantity::SheetResistance,
-        Quantity::Resistivity,
-        Quantity::HallResistance,
-        Quantity::SheetHallCoefficient,
-        Quantity::HallCoefficient,
-        Quantity::SheetDensity,
-        Quantity::Density,
-        Quantity::HallMobility,
-        Quantity::DriftMobility,
-    ];
-
     /// Which scales enter: (voltage and current, field, thickness).
     fn scales(self) -> (bool, bool, bool) {
         match self {
@@ -83,12 +72,98 @@ impl Quantity {
     }
 }
 
-/// What a row still needs once the sample's pooled noise is known: each quantity's estimate
-/// (scatter-based standard error and noise coefficient) and the row's noise evidence.
-#[derive(Debug, Clone)]
-pub(super) struct RowDraft {
-    pub estimates: [Option<Estimate>; 9],
+/// Indices of the optional scalar values of a [`RowRecord`].
+pub(super) mod optional {
+    pub const FIELD: usize = 0;
+    pub const RESISTANCE_A: usize = 1;
+    pub const RESISTANCE_B: usize = 2;
+    pub const RESISTANCE_RATIO: usize = 3;
+    pub const GEOMETRY_FACTOR: usize = 4;
+    pub const RECIPROCITY: usize = 5;
+    pub const CURRENT_REVERSAL: usize = 6;
+    pub const HALL_SPREAD: usize = 7;
+    pub const OFFSET_RATIO: usize = 8;
+    pub const MISALIGNMENT: usize = 9;
+    pub const COUNT: usize = 10;
+}
+
+/// The bit of `present` of the first estimate: the optional values take the bits below.
+const ESTIMATE_BIT: u32 = 16;
+
+/// One row as the reduction drafts it: plain values with a presence mask instead of a
+/// record of `Option`s, the estimates (scatter-based standard error and noise coefficient)
+/// that the uncertainties are finished from once the sample's pooled noise is known, and
+/// the flags as a bit set. No heap memory: a sample's rows are one contiguous block.
+#[derive(Debug, Clone, Copy)]
+pub(super) struct RowRecord {
+    pub temperature_k: f64,
+    pub temperature_k_unc: f64,
+    pub temperature_spread_k: f64,
+    optional: [f64; optional::COUNT],
+    /// By [`Quantity`] (its discriminant): the estimate of each quantity, whose value is the row's value.
+    estimates: [Estimate; 9],
+    /// Bit i (i < 16): `optional[i]` is present; bit 16 + q: `estimates[q]` is present.
+    present: u32,
+    /// The row's evidence about the reading noise.
     pub evidence: NoiseEvidence,
+    pub reading_count: usize,
+    pub flags: FlagSet,
+    /// 0: no carrier type, 1: "n", 2: "p".
+    pub carrier: u8,
+    pub drift_corrected: bool,
+}
+
+impl RowRecord {
+    #[inline]
+    pub fn optional(&self, index: usize) -> Option<f64> {
+        (self.present & (1 << index) != 0).then(|| self.optional[index])
+    }
+
+    #[inline]
+    fn set_optional(&mut self, index: usize, value: Option<f64>) {
+        if let Some(value) = value {
+            self.optional[index] = value;
+            self.present |= 1 << index;
+        }
+    }
+
+    #[inline]
+    pub fn estimate(&self, quantity: Quantity) -> Option<Estimate> {
+        let index = quantity as usize;
+        (self.present & (1 << (ESTIMATE_BIT + index as u32)) != 0).then(|| self.estimates[index])
+    }
+}
+
+/// Raised flags as bits in the order of [`flags::ALL`].
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct FlagSet(pub u16);
+
+impl FlagSet {
+    /// The bit of a flag, its position in [`flags::ALL`].
+    pub fn bit(flag: &str) -> u16 {
+        let index = flags::ALL
+            .iter()
+            .position(|known| *known == flag)
+            .expect("every raised flag is listed in flags::ALL");
+        1 << index
+    }
+
+    pub fn contains(self, flag: &str) -> bool {
+        self.0 & Self::bit(flag) != 0
+    }
+
+    pub fn is_empty(self) -> bool {
+        self.0 == 0
+    }
+
+    /// The raised flags in the order of [`flags::ALL`].
+    pub fn iter(self) -> impl Iterator<Item = &'static str> {
+        flags::ALL
+            .iter()
+            .enumerate()
+            .filter(move |(index, _)| self.0 & (1 << index) != 0)
+            .map(|(_, flag)| *flag)
+    }
 }
 
 /// The smallest relative statistical uncertainty reported: the resolution of the
@@ -115,32 +190,59 @@ pub(super) fn student_factor(degrees_of_freedom: usize) -> Option<f64> {
     })
 }
 
-impl RowDraft {
+/// The pooled noise of some evidence times [`student_factor`] of its degrees of freedom:
+/// what a noise coefficient is multiplied by to give a statistical uncertainty. `None`
+/// below 3 degrees of freedom. Computed once per row (and once per series) for all its
+/// quantities, with the same arithmetic as one quantity at a time.
+pub(super) fn noise_scale(evidence: &NoiseEvidence) -> Option<f64> {
+    let factor = student_factor(evidence.degrees_of_freedom)?;
+    Some(evidence.pooled_noise_v()? * factor)
+}
+
+/// What the budgets of one sample's rows share: the series' noise scale and, per quantity,
+/// the relative systematic uncertainty of its calibrations.
+pub(super) struct SeriesBudget {
+    pub noise_scale: Option<f64>,
+    pub systematic_relative: [f64; 9],
+}
+
+impl SeriesBudget {
+    pub fn new(series_evidence: &NoiseEvidence, calibration: &ResolvedCalibration) -> Self {
+        let quantities = [
+            Quantity::SheetResistance,
+            Quantity::Resistivity,
+            Quantity::HallResistance,
+            Quantity::SheetHallCoefficient,
+            Quantity::HallCoefficient,
+            Quantity::SheetDensity,
+            Quantity::Density,
+            Quantity::HallMobility,
+            Quantity::DriftMobility,
+        ];
+        SeriesBudget {
+            noise_scale: noise_scale(series_evidence),
+            systematic_relative: quantities.map(|quantity| quantity.systematic_relative(calibration)),
+        }
+    }
+}
+
+impl RowRecord {
     /// The budget of one quantity. The statistical part is the noise coefficient times the
     /// row's own pooled reading noise, widened by [`student_factor`] of its degrees of
-    /// freedom; a row with fewer than 3 degrees of freedom borrows the noise pooled over its
-    /// sample's whole series (`series_evidence`), and with fewer than 3 there as well keeps
-    /// its own scatter-based standard error. The systematic part is the calibrations; the
-    /// total their quadrature sum.
-    pub fn budget(
-        &self,
-        quantity: Quantity,
-        series_evidence: &NoiseEvidence,
-        calibration: &ResolvedCalibration,
-    ) -> Budget {
-        let index = Quantity::ALL.iter().position(|q| *q == quantity).expect("listed");
-        let Some(estimate) = self.estimates[index] else {
+    /// freedom (`row_scale`, from [`noise_scale`]); a row with fewer than 3 degrees of
+    /// freedom borrows the noise pooled over its sample's whole series, and with fewer
+    /// than 3 there as well keeps its own scatter-based standard error. The systematic
+    /// part is the calibrations; the total their quadrature sum.
+    pub fn budget(&self, quantity: Quantity, row_scale: Option<f64>, series: &SeriesBudget) -> Budget {
+        let Some(estimate) = self.estimate(quantity) else {
             return Budget::default();
         };
-        let pooled = |evidence: &NoiseEvidence| {
-            let factor = student_factor(evidence.degrees_of_freedom)?;
-            Some(evidence.pooled_noise_v()? * factor * estimate.noise_coefficient)
-        };
-        let statistical = pooled(&self.evidence)
-            .or_else(|| pooled(series_evidence))
+        let statistical = row_scale
+            .map(|scale| scale * estimate.noise_coefficient)
+            .or_else(|| series.noise_scale.map(|scale| scale * estimate.noise_coefficient))
             .or(estimate.standard_error)
             .map(|u| u.max(ARITHMETIC_RELATIVE_RESOLUTION * estimate.value.abs()));
-        let systematic = Some(quantity.systematic_relative(calibration) * estimate.value.abs());
+        let systematic = Some(series.systematic_relative[quantity as usize] * estimate.value.abs());
         let total = statistical.map(|stat| stat.hypot(systematic.unwrap_or(0.0)));
         Budget {
             total,
@@ -222,23 +324,11 @@ pub(super) struct TemperatureGroup<'a> {
 
 /// The raised flags of a row, kept in the order of [`flags::ALL`].
 #[derive(Default)]
-struct RaisedFlags([bool; flags::ALL.len()]);
+struct RaisedFlags(FlagSet);
 
 impl RaisedFlags {
     fn raise(&mut self, flag: &'static str) {
-        let index = flags::ALL
-            .iter()
-            .position(|known| *known == flag)
-            .expect("every raised flag is listed in flags::ALL");
-        self.0[index] = true;
-    }
-
-    fn into_list(self) -> Vec<&'static str> {
-        flags::ALL
-            .iter()
-            .zip(self.0)
-            .filter_map(|(flag, raised)| raised.then_some(*flag))
-            .collect()
+        self.0 .0 |= FlagSet::bit(flag);
     }
 }
 
@@ -326,7 +416,7 @@ pub(super) fn build_row(
     field: Option<&FieldCells>,
     settings: &ReduceSettings,
     warnings: &mut Vec<String>,
-) -> (ReducedRow, RowDraft) {
+) -> RowRecord {
     let thresholds = &settings.thresholds;
     let sample = group.sample;
     let layout = layout(sample.geometry);
@@ -473,116 +563,138 @@ pub(super) fn build_row(
     for (cell, _) in used_cells.iter() {
         evidence.add(cell.noise);
     }
-    let draft = RowDraft {
-        estimates: [
-            sheet,
-            resistivity,
-            hall.hall_resistance,
-            sheet_hall_coefficient,
-            hall_coefficient,
-            sheet_density,
-            density,
-            hall_mobility,
-            drift_mobility,
-        ],
-        evidence,
-    };
+    let estimates = [
+        sheet,
+        resistivity,
+        hall.hall_resistance,
+        sheet_hall_coefficient,
+        hall_coefficient,
+        sheet_density,
+        density,
+        hall_mobility,
+        drift_mobility,
+    ];
 
-    let flags = raised.into_list();
-    if let Some(warning) = grouping_warning(group, field, &flags, settings) {
+    let flags = raised.0;
+    if let Some(warning) = grouping_warning(group, field, flags, settings) {
         warnings.push(warning);
     }
     let reading_count = zero.count + field.map_or(0, |cells| cells.count);
-    let row = ReducedRow {
-        sample: sample.name.to_owned(),
-        geometry: sample.geometry.name(),
+    let mut record = RowRecord {
         temperature_k: group.temperature_k,
-        temperature_spread_k: group.temperature_spread_k,
         temperature_k_unc: group
             .temperature_reading_unc_k
             .hypot(sample.calibration.temperature_accuracy_k),
-        drift_corrected: group.drift_corrected,
-        field_t,
+        temperature_spread_k: group.temperature_spread_k,
+        optional: [0.0; optional::COUNT],
+        estimates: [Estimate::default(); 9],
+        present: 0,
+        evidence,
         reading_count,
-        resistance_a_ohm: resistance.resistance_a_ohm,
-        resistance_b_ohm: resistance.resistance_b_ohm,
-        resistance_ratio: resistance.resistance_ratio,
-        geometry_factor: resistance.geometry_factor,
-        sheet_resistance_ohm_sq: sheet.map(|e| e.value),
-        sheet_resistance_ohm_sq_unc: None,
-        sheet_resistance_ohm_sq_unc_stat: None,
-        sheet_resistance_ohm_sq_unc_sys: None,
-        resistivity_ohm_m: resistivity.map(|e| e.value),
-        resistivity_ohm_m_unc: None,
-        resistivity_ohm_m_unc_stat: None,
-        resistivity_ohm_m_unc_sys: None,
-        hall_resistance_ohm: hall.hall_resistance.map(|e| e.value),
-        hall_resistance_ohm_unc: None,
-        sheet_hall_coefficient_m2_per_c: sheet_hall_coefficient.map(|e| e.value),
-        sheet_hall_coefficient_m2_per_c_unc: None,
-        hall_coefficient_m3_per_c: hall_coefficient.map(|e| e.value),
-        hall_coefficient_m3_per_c_unc: None,
-        carrier_type,
-        sheet_density_m2: sheet_density.map(|e| e.value),
-        sheet_density_m2_unc: None,
-        sheet_density_m2_unc_stat: None,
-        sheet_density_m2_unc_sys: None,
-        density_m3: density.map(|e| e.value),
-        density_m3_unc: None,
-        density_m3_unc_stat: None,
-        density_m3_unc_sys: None,
-        hall_mobility_m2_per_vs: hall_mobility.map(|e| e.value),
-        hall_mobility_m2_per_vs_unc: None,
-        hall_mobility_m2_per_vs_unc_stat: None,
-        hall_mobility_m2_per_vs_unc_sys: None,
-        drift_mobility_m2_per_vs: drift_mobility.map(|e| e.value),
-        drift_mobility_m2_per_vs_unc: None,
-        hall_factor: sample.hall_factor,
-        reciprocity_mismatch: resistance.reciprocity_mismatch,
-        current_reversal_mismatch,
-        hall_spread: hall.hall_spread,
-        thermoelectric_offset_ratio,
-        misalignment_ratio: hall.misalignment_ratio,
-        quality_ok: flags.is_empty(),
-        reading_noise_v: None,
         flags,
+        carrier: match carrier_type {
+            Some("n") => 1,
+            Some(_) => 2,
+            None => 0,
+        },
+        drift_corrected: group.drift_corrected,
     };
-    (row, draft)
+    record.set_optional(optional::FIELD, field_t);
+    record.set_optional(optional::RESISTANCE_A, resistance.resistance_a_ohm);
+    record.set_optional(optional::RESISTANCE_B, resistance.resistance_b_ohm);
+    record.set_optional(optional::RESISTANCE_RATIO, resistance.resistance_ratio);
+    record.set_optional(optional::GEOMETRY_FACTOR, resistance.geometry_factor);
+    record.set_optional(optional::RECIPROCITY, resistance.reciprocity_mismatch);
+    record.set_optional(optional::CURRENT_REVERSAL, current_reversal_mismatch);
+    record.set_optional(optional::HALL_SPREAD, hall.hall_spread);
+    record.set_optional(optional::OFFSET_RATIO, thermoelectric_offset_ratio);
+    record.set_optional(optional::MISALIGNMENT, hall.misalignment_ratio);
+    for (index, estimate) in estimates.into_iter().enumerate() {
+        if let Some(estimate) = estimate {
+            record.estimates[index] = estimate;
+            record.present |= 1 << (ESTIMATE_BIT + index as u32);
+        }
+    }
+    record
 }
 
-/// Fills a row's uncertainties once the pooled voltage noise of its sample is known.
-pub(super) fn finish_row(
-    row: &mut ReducedRow,
-    draft: &RowDraft,
-    series_evidence: &NoiseEvidence,
-    calibration: &ResolvedCalibration,
-) {
-    row.reading_noise_v = draft.evidence.pooled_noise_v();
-    let budget = |quantity| draft.budget(quantity, series_evidence, calibration);
+/// The float columns of a finished row, in the order of [`super::float_column`], and a
+/// mask of the present ones (bit i for column i).
+pub(super) type FinishedFloats = ([f64; super::float_column::COUNT], u64);
+
+/// A row's float columns once the pooled voltage noise of its sample is known: the values
+/// and their uncertainty budgets.
+pub(super) fn finish_row(record: &RowRecord, hall_factor: f64, series: &SeriesBudget) -> FinishedFloats {
+    use super::float_column as column;
+    let mut values = [0.0; column::COUNT];
+    let mut present = 0u64;
+    let mut put = |index: usize, value: Option<f64>| {
+        if let Some(value) = value {
+            values[index] = value;
+            present |= 1 << index;
+        }
+    };
+    put(column::TEMPERATURE_K, Some(record.temperature_k));
+    put(column::TEMPERATURE_K_UNC, Some(record.temperature_k_unc));
+    put(column::TEMPERATURE_SPREAD_K, Some(record.temperature_spread_k));
+    put(column::FIELD_T, record.optional(optional::FIELD));
+    put(column::RESISTANCE_A, record.optional(optional::RESISTANCE_A));
+    put(column::RESISTANCE_B, record.optional(optional::RESISTANCE_B));
+    put(column::RESISTANCE_RATIO, record.optional(optional::RESISTANCE_RATIO));
+    put(column::GEOMETRY_FACTOR, record.optional(optional::GEOMETRY_FACTOR));
+    let value = |quantity| record.estimate(quantity).map(|estimate: Estimate| estimate.value);
+    let row_scale = noise_scale(&record.evidence);
+    let budget = |quantity| record.budget(quantity, row_scale, series);
+    put(column::SHEET_RESISTANCE, value(Quantity::SheetResistance));
     let sheet = budget(Quantity::SheetResistance);
-    row.sheet_resistance_ohm_sq_unc = sheet.total;
-    row.sheet_resistance_ohm_sq_unc_stat = sheet.statistical;
-    row.sheet_resistance_ohm_sq_unc_sys = sheet.systematic;
+    put(column::SHEET_RESISTANCE_UNC, sheet.total);
+    put(column::SHEET_RESISTANCE_UNC_STAT, sheet.statistical);
+    put(column::SHEET_RESISTANCE_UNC_SYS, sheet.systematic);
+    put(column::RESISTIVITY, value(Quantity::Resistivity));
     let resistivity = budget(Quantity::Resistivity);
-    row.resistivity_ohm_m_unc = resistivity.total;
-    row.resistivity_ohm_m_unc_stat = resistivity.statistical;
-    row.resistivity_ohm_m_unc_sys = resistivity.systematic;
-    row.hall_resistance_ohm_unc = budget(Quantity::HallResistance).total;
-    row.sheet_hall_coefficient_m2_per_c_unc = budget(Quantity::SheetHallCoefficient).total;
-    row.hall_coefficient_m3_per_c_unc = budget(Quantity::HallCoefficient).total;
+    put(column::RESISTIVITY_UNC, resistivity.total);
+    put(column::RESISTIVITY_UNC_STAT, resistivity.statistical);
+    put(column::RESISTIVITY_UNC_SYS, resistivity.systematic);
+    put(column::HALL_RESISTANCE, value(Quantity::HallResistance));
+    put(column::HALL_RESISTANCE_UNC, budget(Quantity::HallResistance).total);
+    put(column::SHEET_HALL_COEFFICIENT, value(Quantity::SheetHallCoefficient));
+    put(
+        column::SHEET_HALL_COEFFICIENT_UNC,
+        budget(Quantity::SheetHallCoefficient).total,
+    );
+    put(column::HALL_COEFFICIENT, value(Quantity::HallCoefficient));
+    put(column::HALL_COEFFICIENT_UNC, budget(Quantity::HallCoefficient).total);
+    put(column::SHEET_DENSITY, value(Quantity::SheetDensity));
     let sheet_density = budget(Quantity::SheetDensity);
-    row.sheet_density_m2_unc = sheet_density.total;
-    row.sheet_density_m2_unc_stat = sheet_density.statistical;
-    row.sheet_density_m2_unc_sys = sheet_density.systematic;
+    put(column::SHEET_DENSITY_UNC, sheet_density.total);
+    put(column::SHEET_DENSITY_UNC_STAT, sheet_density.statistical);
+    put(column::SHEET_DENSITY_UNC_SYS, sheet_density.systematic);
+    put(column::DENSITY, value(Quantity::Density));
     let density = budget(Quantity::Density);
-    row.density_m3_unc = density.total;
-    row.density_m3_unc_stat = density.statistical;
-    row.density_m3_unc_sys = density.systematic;
+    put(column::DENSITY_UNC, density.total);
+    put(column::DENSITY_UNC_STAT, density.statistical);
+    put(column::DENSITY_UNC_SYS, density.systematic);
+    put(column::HALL_MOBILITY, value(Quantity::HallMobility));
     let mobility = budget(Quantity::HallMobility);
-    row.hall_mobility_m2_per_vs_unc = mobility.total;
-    row.hall_mobility_m2_per_vs_unc_stat = mobility.statistical;
-    row.hall_mobility_m2_per_vs_unc_sys = mobility.systematic;
-    row.drift_mobility_m2_per_vs_unc = budget(Quantity::DriftMobility).total;
+    put(column::HALL_MOBILITY_UNC, mobility.total);
+    put(column::HALL_MOBILITY_UNC_STAT, mobility.statistical);
+    put(column::HALL_MOBILITY_UNC_SYS, mobility.systematic);
+    put(column::DRIFT_MOBILITY, value(Quantity::DriftMobility));
+    put(column::DRIFT_MOBILITY_UNC, budget(Quantity::DriftMobility).total);
+    put(column::HALL_FACTOR, Some(hall_factor));
+    put(column::RECIPROCITY_MISMATCH, record.optional(optional::RECIPROCITY));
+    put(
+        column::CURRENT_REVERSAL_MISMATCH,
+        record.optional(optional::CURRENT_REVERSAL),
+    );
+    put(column::HALL_SPREAD, record.optional(optional::HALL_SPREAD));
+    put(
+        column::THERMOELECTRIC_OFFSET_RATIO,
+        record.optional(optional::OFFSET_RATIO),
+    );
+    put(column::MISALIGNMENT_RATIO, record.optional(optional::MISALIGNMENT));
+    put(column::READING_NOISE_V, record.evidence.pooled_noise_v());
+    (values, present)
 }
 
 /// For a row that lacks configurations, field signs or field readings: what is missing and
@@ -590,7 +702,7 @@ pub(super) fn finish_row(
 fn grouping_warning(
     group: &TemperatureGroup<'_>,
     field: Option<&FieldCells>,
-    raised: &[&'static str],
+    raised: FlagSet,
     settings: &ReduceSettings,
 ) -> Option<String> {
     // Most rows warn of nothing: the message is only formatted for those that do.
@@ -609,19 +721,18 @@ fn grouping_warning(
         None => "zero field".to_owned(),
     };
     let place = format!("sample {:?} at {:.3} K, {at}", group.sample.name, group.temperature_k);
-    if raised.contains(&flags::NO_FIELD_DATA) {
+    if raised.contains(flags::NO_FIELD_DATA) {
         return Some(format!(
             "{place}: no reading above zero_field_tolerance_T = {} T, so no Hall quantities; lower zero_field_tolerance_T if the Hall field is below it",
             settings.zero_field_tolerance_t
         ));
     }
-    if raised.contains(&flags::MISSING_CONFIGURATIONS) || raised.contains(&flags::NO_FIELD_REVERSAL) {
+    if raised.contains(flags::MISSING_CONFIGURATIONS) || raised.contains(flags::NO_FIELD_REVERSAL) {
         return Some(format!(
             "{place}: {} in this row; if one setpoint's readings were split, widen field_tolerance_T (now {} T, the width of a field setpoint) or zero_field_tolerance_T (now {} T), or temperature_tolerance_K (now {} K) for a temperature",
             raised
                 .iter()
                 .filter(|flag| [flags::MISSING_CONFIGURATIONS, flags::NO_FIELD_REVERSAL].contains(flag))
-                .copied()
                 .collect::<Vec<_>>()
                 .join(" and "),
             settings.field_tolerance_t,

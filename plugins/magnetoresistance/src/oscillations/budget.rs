@@ -17,19 +17,17 @@ const SHORTER_WINDOW_FRACTION: f64 = 0.8;
 /// The other analyses whose results bound the choices of background and window: for a
 /// polynomial background the degrees d + 2 and d + 4 (up to 12), for a smoothing one the
 /// half-widths 0.6 and 1.5 times the given, and the window without the lowest fifth of its
-/// 1/B span. Each keeps the settings otherwise, without the fan and without a spread of its
-/// own.
-pub(super) fn variants(
-    settings: &OscillationSettings,
-    analysis: &OscillationAnalysis,
-) -> Vec<(String, OscillationSettings)> {
+/// 1/B span (kept only when [`variant_applies`]: it needs the main pass's line). Each keeps
+/// the settings otherwise, with the main pass's field `window`, without the fan and without
+/// a spread of its own.
+pub(super) fn variants(settings: &OscillationSettings, window: (f64, f64)) -> Vec<(String, OscillationSettings)> {
     let base = OscillationSettings {
         landau_fan: false,
         model_spread: false,
         temperature_accuracy_k: None,
         temperature_stability_k: None,
-        field_min_t: Some(analysis.field_window_t.0),
-        field_max_t: Some(analysis.field_window_t.1),
+        field_min_t: Some(window.0),
+        field_max_t: Some(window.1),
         ..settings.clone()
     };
     let mut result = Vec::new();
@@ -61,19 +59,32 @@ pub(super) fn variants(
             }
         }
     }
+    let (x_low, x_high) = (1.0 / window.1, 1.0 / window.0);
+    let shorter = x_low + SHORTER_WINDOW_FRACTION * (x_high - x_low);
+    result.push((
+        format!("the field window from {:.3} T", 1.0 / shorter),
+        OscillationSettings {
+            field_min_t: Some(1.0 / shorter),
+            ..base
+        },
+    ));
+    result
+}
+
+/// Whether a variant of [`variants`] counts for the main `analysis`: the shorter window only
+/// when it holds at least `min_periods + 1` periods of the main line.
+pub(super) fn variant_applies(
+    settings: &OscillationSettings,
+    variant: &OscillationSettings,
+    analysis: &OscillationAnalysis,
+) -> bool {
+    if variant.field_min_t == Some(analysis.field_window_t.0) {
+        return true;
+    }
     let (x_low, x_high) = analysis.inverse_field_window_per_t;
     let shorter = x_low + SHORTER_WINDOW_FRACTION * (x_high - x_low);
     let periods = analysis.lines[0].frequency_t * (shorter - x_low);
-    if periods >= settings.min_periods + 1.0 {
-        result.push((
-            format!("the field window from {:.3} T", 1.0 / shorter),
-            OscillationSettings {
-                field_min_t: Some(1.0 / shorter),
-                ..base
-            },
-        ));
-    }
-    result
+    periods >= settings.min_periods + 1.0
 }
 
 /// The spread of a result over the variants beyond what their noise explains: for each

@@ -1,0 +1,301 @@
+//! The reduction's result as typed columns: one buffer per output column, sized once for
+//! every row, filled sample by sample (in parallel, each sample into its own stretch of
+//! every column), so that no per-row record outlives its sample and the table glue hands
+//! the buffers to the output table without another pass.
+
+use super::row::{finish_row, FlagSet, RowRecord, SeriesBudget};
+use super::{CalibrationUsed, ReducedRow, SampleReduction};
+
+/// The float columns of the output, by index into [`ReductionTable::floats`].
+pub mod float_column {
+    pub const TEMPERATURE_K: usize = 0;
+    pub const TEMPERATURE_K_UNC: usize = 1;
+    pub const TEMPERATURE_SPREAD_K: usize = 2;
+    pub const FIELD_T: usize = 3;
+    pub const RESISTANCE_A: usize = 4;
+    pub const RESISTANCE_B: usize = 5;
+    pub const RESISTANCE_RATIO: usize = 6;
+    pub const GEOMETRY_FACTOR: usize = 7;
+    pub const SHEET_RESISTANCE: usize = 8;
+    pub const SHEET_RESISTANCE_UNC: usize = 9;
+    pub const SHEET_RESISTANCE_UNC_STAT: usize = 10;
+    pub const SHEET_RESISTANCE_UNC_SYS: usize = 11;
+    pub const RESISTIVITY: usize = 12;
+    pub const RESISTIVITY_UNC: usize = 13;
+    pub const RESISTIVITY_UNC_STAT: usize = 14;
+    pub const RESISTIVITY_UNC_SYS: usize = 15;
+    pub const HALL_RESISTANCE: usize = 16;
+    pub const HALL_RESISTANCE_UNC: usize = 17;
+    pub const SHEET_HALL_COEFFICIENT: usize = 18;
+    pub const SHEET_HALL_COEFFICIENT_UNC: usize = 19;
+    pub const HALL_COEFFICIENT: usize = 20;
+    pub const HALL_COEFFICIENT_UNC: usize = 21;
+    pub const SHEET_DENSITY: usize = 22;
+    pub const SHEET_DENSITY_UNC: usize = 23;
+    pub const SHEET_DENSITY_UNC_STAT: usize = 24;
+    pub const SHEET_DENSITY_UNC_SYS: usize = 25;
+    pub const DENSITY: usize = 26;
+    pub const DENSITY_UNC: usize = 27;
+    pub const DENSITY_UNC_STAT: usize = 28;
+    pub const DENSITY_UNC_SYS: usize = 29;
+    pub const HALL_MOBILITY: usize = 30;
+    pub const HALL_MOBILITY_UNC: usize = 31;
+    pub const HALL_MOBILITY_UNC_STAT: usize = 32;
+    pub const HALL_MOBILITY_UNC_SYS: usize = 33;
+    pub const DRIFT_MOBILITY: usize = 34;
+    pub const DRIFT_MOBILITY_UNC: usize = 35;
+    pub const HALL_FACTOR: usize = 36;
+    pub const RECIPROCITY_MISMATCH: usize = 37;
+    pub const CURRENT_REVERSAL_MISMATCH: usize = 38;
+    pub const HALL_SPREAD: usize = 39;
+    pub const THERMOELECTRIC_OFFSET_RATIO: usize = 40;
+    pub const MISALIGNMENT_RATIO: usize = 41;
+    pub const READING_NOISE_V: usize = 42;
+    pub const COUNT: usize = 43;
+}
+
+/// One float column: its values (0 where null) and, per row, whether the value is present.
+#[derive(Debug, Clone, Default)]
+pub struct FloatColumn {
+    pub values: Vec<f64>,
+    pub present: Vec<bool>,
+}
+
+impl FloatColumn {
+    #[inline]
+    pub fn get(&self, row: usize) -> Option<f64> {
+        self.present[row].then(|| self.values[row])
+    }
+}
+
+/// The result of [`super::reduce_to_table`]: the output columns, rows sorted by sample,
+/// temperature and field, and the warnings and calibrations of [`super::Reduction`].
+#[derive(Debug, Clone)]
+pub struct ReductionTable {
+    pub height: usize,
+    /// The samples in row order, each with its geometry's name ("van_der_pauw" or
+    /// "hall_bar") and its number of rows.
+    pub samples: Vec<(String, &'static str, usize)>,
+    /// By [`float_column`].
+    pub floats: Vec<FloatColumn>,
+    pub reading_count: Vec<i64>,
+    pub drift_corrected: Vec<bool>,
+    /// 0: no carrier type, 1: "n", 2: "p".
+    pub carrier: Vec<u8>,
+    /// The raised flags of each row, bit i for `flags::ALL[i]`; none raised is `quality_ok`.
+    pub flags: Vec<FlagSet>,
+    pub warnings: Vec<String>,
+    pub skipped_readings: usize,
+    pub calibrations: Vec<CalibrationUsed>,
+}
+
+impl ReductionTable {
+    /// The carrier type of a row: "n", "p" or none.
+    pub fn carrier_type(&self, row: usize) -> Option<&'static str> {
+        match self.carrier[row] {
+            1 => Some("n"),
+            2 => Some("p"),
+            _ => None,
+        }
+    }
+
+    /// The same result as rows.
+    pub fn into_rows(self) -> Vec<ReducedRow> {
+        use float_column as c;
+        let mut rows = Vec::with_capacity(self.height);
+        let mut row = 0usize;
+        for (name, geometry, count) in &self.samples {
+            for _ in 0..*count {
+                let f = |column: usize| self.floats[column].get(row);
+                let value = |column: usize| self.floats[column].values[row];
+                let flags = self.flags[row];
+                rows.push(ReducedRow {
+                    sample: name.clone(),
+                    geometry,
+                    temperature_k: value(c::TEMPERATURE_K),
+                    temperature_k_unc: value(c::TEMPERATURE_K_UNC),
+                    drift_corrected: self.drift_corrected[row],
+                    temperature_spread_k: value(c::TEMPERATURE_SPREAD_K),
+                    field_t: f(c::FIELD_T),
+                    reading_count: self.reading_count[row] as usize,
+                    resistance_a_ohm: f(c::RESISTANCE_A),
+                    resistance_b_ohm: f(c::RESISTANCE_B),
+                    resistance_ratio: f(c::RESISTANCE_RATIO),
+                    geometry_factor: f(c::GEOMETRY_FACTOR),
+                    sheet_resistance_ohm_sq: f(c::SHEET_RESISTANCE),
+                    sheet_resistance_ohm_sq_unc: f(c::SHEET_RESISTANCE_UNC),
+                    sheet_resistance_ohm_sq_unc_stat: f(c::SHEET_RESISTANCE_UNC_STAT),
+                    sheet_resistance_ohm_sq_unc_sys: f(c::SHEET_RESISTANCE_UNC_SYS),
+                    resistivity_ohm_m: f(c::RESISTIVITY),
+                    resistivity_ohm_m_unc: f(c::RESISTIVITY_UNC),
+                    resistivity_ohm_m_unc_stat: f(c::RESISTIVITY_UNC_STAT),
+                    resistivity_ohm_m_unc_sys: f(c::RESISTIVITY_UNC_SYS),
+                    hall_resistance_ohm: f(c::HALL_RESISTANCE),
+                    hall_resistance_ohm_unc: f(c::HALL_RESISTANCE_UNC),
+                    sheet_hall_coefficient_m2_per_c: f(c::SHEET_HALL_COEFFICIENT),
+                    sheet_hall_coefficient_m2_per_c_unc: f(c::SHEET_HALL_COEFFICIENT_UNC),
+                    hall_coefficient_m3_per_c: f(c::HALL_COEFFICIENT),
+                    hall_coefficient_m3_per_c_unc: f(c::HALL_COEFFICIENT_UNC),
+                    carrier_type: self.carrier_type(row),
+                    sheet_density_m2: f(c::SHEET_DENSITY),
+                    sheet_density_m2_unc: f(c::SHEET_DENSITY_UNC),
+                    sheet_density_m2_unc_stat: f(c::SHEET_DENSITY_UNC_STAT),
+                    sheet_density_m2_unc_sys: f(c::SHEET_DENSITY_UNC_SYS),
+                    density_m3: f(c::DENSITY),
+                    density_m3_unc: f(c::DENSITY_UNC),
+                    density_m3_unc_stat: f(c::DENSITY_UNC_STAT),
+                    density_m3_unc_sys: f(c::DENSITY_UNC_SYS),
+                    hall_mobility_m2_per_vs: f(c::HALL_MOBILITY),
+                    hall_mobility_m2_per_vs_unc: f(c::HALL_MOBILITY_UNC),
+                    hall_mobility_m2_per_vs_unc_stat: f(c::HALL_MOBILITY_UNC_STAT),
+                    hall_mobility_m2_per_vs_unc_sys: f(c::HALL_MOBILITY_UNC_SYS),
+                    drift_mobility_m2_per_vs: f(c::DRIFT_MOBILITY),
+                    drift_mobility_m2_per_vs_unc: f(c::DRIFT_MOBILITY_UNC),
+                    hall_factor: value(c::HALL_FACTOR),
+                    reciprocity_mismatch: f(c::RECIPROCITY_MISMATCH),
+                    current_reversal_mismatch: f(c::CURRENT_REVERSAL_MISMATCH),
+                    hall_spread: f(c::HALL_SPREAD),
+                    thermoelectric_offset_ratio: f(c::THERMOELECTRIC_OFFSET_RATIO),
+                    misalignment_ratio: f(c::MISALIGNMENT_RATIO),
+                    reading_noise_v: f(c::READING_NOISE_V),
+                    flags: flags.iter().collect(),
+                    quality_ok: flags.is_empty(),
+                });
+                row += 1;
+            }
+        }
+        rows
+    }
+}
+
+/// One sample's stretch of every column.
+struct SampleColumns<'a> {
+    values: Vec<&'a mut [f64]>,
+    present: Vec<&'a mut [bool]>,
+    reading_count: &'a mut [i64],
+    drift_corrected: &'a mut [bool],
+    carrier: &'a mut [u8],
+    flags: &'a mut [FlagSet],
+}
+
+/// Splits a column into consecutive stretches of the given lengths.
+fn stretches<'a, T>(mut column: &'a mut [T], lengths: &[usize]) -> Vec<&'a mut [T]> {
+    lengths
+        .iter()
+        .map(|&length| {
+            let (head, tail) = std::mem::take(&mut column).split_at_mut(length);
+            column = tail;
+            head
+        })
+        .collect()
+}
+
+/// The columns [`build_columns`] fills, before the warnings and calibrations join them.
+pub(super) struct BuiltColumns {
+    pub height: usize,
+    pub floats: Vec<FloatColumn>,
+    pub reading_count: Vec<i64>,
+    pub drift_corrected: Vec<bool>,
+    pub carrier: Vec<u8>,
+    pub flags: Vec<FlagSet>,
+}
+
+/// Below this many rows the samples are finished one after the other.
+const PARALLEL_ROWS: usize = 2_000;
+
+/// The columns of the reduced samples, joined in sample order: every row's uncertainties
+/// are finished with its sample's pooled noise and written straight into the columns.
+pub(super) fn build_columns(
+    samples: &[SampleReduction],
+    resolved_hall_factor: impl Fn(usize) -> f64 + Sync,
+) -> BuiltColumns {
+    let lengths: Vec<usize> = samples.iter().map(|sample| sample.records.len()).collect();
+    let height: usize = lengths.iter().sum();
+    // Zeroed memory comes from the allocator as fresh pages, written once below.
+    let mut floats: Vec<FloatColumn> = (0..float_column::COUNT)
+        .map(|_| FloatColumn {
+            values: vec![0.0; height],
+            present: vec![false; height],
+        })
+        .collect();
+    let mut reading_count = vec![0i64; height];
+    let mut drift_corrected = vec![false; height];
+    let mut carrier = vec![0u8; height];
+    let mut flags = vec![FlagSet::default(); height];
+
+    let mut per_sample: Vec<SampleColumns<'_>> = {
+        let mut value_stretches: Vec<std::vec::IntoIter<&mut [f64]>> = Vec::new();
+        let mut present_stretches: Vec<std::vec::IntoIter<&mut [bool]>> = Vec::new();
+        for column in floats.iter_mut() {
+            value_stretches.push(stretches(&mut column.values, &lengths).into_iter());
+            present_stretches.push(stretches(&mut column.present, &lengths).into_iter());
+        }
+        let counts = stretches(&mut reading_count, &lengths);
+        let drifts = stretches(&mut drift_corrected, &lengths);
+        let carriers = stretches(&mut carrier, &lengths);
+        let flag_stretches = stretches(&mut flags, &lengths);
+        counts
+            .into_iter()
+            .zip(drifts)
+            .zip(carriers)
+            .zip(flag_stretches)
+            .map(|(((reading_count, drift_corrected), carrier), flags)| SampleColumns {
+                values: value_stretches
+                    .iter_mut()
+                    .map(|it| it.next().expect("one per sample"))
+                    .collect(),
+                present: present_stretches
+                    .iter_mut()
+                    .map(|it| it.next().expect("one per sample"))
+                    .collect(),
+                reading_count,
+                drift_corrected,
+                carrier,
+                flags,
+            })
+            .collect()
+    };
+
+    let fill = |(index, out): (usize, &mut SampleColumns<'_>)| {
+        let sample = &samples[index];
+        let hall_factor = resolved_hall_factor(index);
+        let series = SeriesBudget::new(&sample.series_evidence, &sample.calibration_resolved);
+        for (row, record) in sample.records.iter().enumerate() {
+            let (values, present) = finish_row(record, hall_factor, &series);
+            for (column, ((values_out, present_out), value)) in out
+                .values
+                .iter_mut()
+                .zip(out.present.iter_mut())
+                .zip(values)
+                .enumerate()
+            {
+                values_out[row] = value;
+                present_out[row] = present & (1 << column) != 0;
+            }
+            write_scalars(out, row, record);
+        }
+    };
+    if height >= PARALLEL_ROWS && samples.len() > 1 {
+        use rayon::prelude::*;
+        per_sample.par_iter_mut().enumerate().for_each(fill);
+    } else {
+        per_sample.iter_mut().enumerate().for_each(fill);
+    }
+    drop(per_sample);
+    BuiltColumns {
+        height,
+        floats,
+        reading_count,
+        drift_corrected,
+        carrier,
+        flags,
+    }
+}
+
+#[inline]
+fn write_scalars(out: &mut SampleColumns<'_>, row: usize, record: &RowRecord) {
+    out.reading_count[row] = record.reading_count as i64;
+    out.drift_corrected[row] = record.drift_corrected;
+    out.carrier[row] = record.carrier;
+    out.flags[row] = record.flags;
+}

@@ -229,7 +229,18 @@ impl Matrix {
             self.cols,
             v.len()
         );
-        (0..self.rows).map(|i| dot(self.row(i), v)).collect()
+        // Four rows at a time ([`dots`]): each entry is dot(row, v) to the last bit.
+        let mut product = Vec::with_capacity(self.rows);
+        let mut i = 0;
+        while i + 4 <= self.rows {
+            product.extend(dots(
+                v,
+                [self.row(i), self.row(i + 1), self.row(i + 2), self.row(i + 3)],
+            ));
+            i += 4;
+        }
+        product.extend((i..self.rows).map(|i| dot(self.row(i), v)));
+        product
     }
 
     /// The product self^T * v.
@@ -352,6 +363,23 @@ impl Matrix {
 pub fn dot(a: &[f64], b: &[f64]) -> f64 {
     debug_assert_eq!(a.len(), b.len());
     a.iter().zip(b).map(|(x, y)| x * y).sum()
+}
+
+/// The dot products of `a` with each of `others`, each to the last bit what [`dot`] gives:
+/// every product is summed in the same order from the same start (-0.0, the start of the
+/// standard library's float sum). Walking the K sums together lets their additions overlap
+/// in the processor's pipeline; a single sum waits on its previous addition at every term.
+pub fn dots<const K: usize>(a: &[f64], others: [&[f64]; K]) -> [f64; K] {
+    for other in &others {
+        assert_eq!(a.len(), other.len(), "dot products of slices of unequal length");
+    }
+    let mut sums = [-0.0f64; K];
+    for (i, x) in a.iter().enumerate() {
+        for (sum, other) in sums.iter_mut().zip(&others) {
+            *sum += x * other[i];
+        }
+    }
+    sums
 }
 
 /// The Euclidean norm, scaled so that it neither overflows nor underflows.
@@ -684,12 +712,21 @@ impl Svd {
         // rotated: the same value a fresh `dot` would return, so caching it changes no
         // result, and late sweeps (few rotations) then need one product per pair, not three.
         let mut squared: Vec<Option<f64>> = vec![None; n];
+        // Products of column p with the next columns, computed up to four at a time while
+        // column p stands (see `ahead_of`): `ahead[q - ready.start]` for q in `ready`.
+        let mut ahead = [0.0f64; 4];
         for _ in 0..JACOBI_MAX_SWEEPS {
             let mut rotated = false;
             for p in 0..n {
+                let mut ready = 0..0;
                 for q in p + 1..n {
                     let (alpha, beta, gamma) = match (squared[p], squared[q]) {
-                        (Some(alpha), Some(beta)) => (alpha, beta, dot(&columns[p], &columns[q])),
+                        (Some(alpha), Some(beta)) => {
+                            if !ready.contains(&q) {
+                                ready = ahead_of(&columns, p, q, &mut ahead);
+                            }
+                            (alpha, beta, ahead[q - ready.start])
+                        }
                         (Some(alpha), None) => {
                             let (beta, gamma) = dot_pair(&columns[q], &columns[p]);
                             (alpha, beta, gamma)
@@ -708,6 +745,8 @@ impl Svd {
                     squared[p] = None;
                     squared[q] = None;
                     rotated = true;
+                    // Column p changes: the products computed ahead are stale.
+                    ready = 0..0;
                     // The rotation that makes columns p and q orthogonal:
                     // tan(theta) = t, the smaller root of t^2 + 2 zeta t - 1 = 0.
                     let zeta = (beta - alpha) / (2.0 * gamma);
@@ -839,6 +878,23 @@ fn dot_triple(a: &[f64], b: &[f64]) -> (f64, f64, f64) {
     (aa, bb, ab)
 }
 
+/// The products of column p with columns q, q + 1, ... (up to four, as many as there are)
+/// into `ahead`, each equal to `dot` of the two columns to the last bit; returns the range
+/// of q they cover. In the late sweeps of the Jacobi SVD most pairs need no rotation, so
+/// the products of one column with the next few are all used while it stands, and four
+/// sums walked together cost about what one does (each addition waits on its sum's last).
+fn ahead_of(columns: &[Vec<f64>], p: usize, q: usize, ahead: &mut [f64; 4]) -> std::ops::Range<usize> {
+    let own = &columns[p];
+    let count = (columns.len() - q).min(4);
+    match count {
+        4 => *ahead = dots(own, [&columns[q], &columns[q + 1], &columns[q + 2], &columns[q + 3]]),
+        3 => ahead[..3].copy_from_slice(&dots(own, [&columns[q], &columns[q + 1], &columns[q + 2]])),
+        2 => ahead[..2].copy_from_slice(&dots(own, [&columns[q], &columns[q + 1]])),
+        _ => ahead[0] = dot(own, &columns[q]),
+    }
+    q..q + count
+}
+
 fn rotate(p: &mut [f64], q: &mut [f64], c: f64, s: f64) {
     for (a, b) in p.iter_mut().zip(q.iter_mut()) {
         let (x, y) = (*a, *b);
@@ -867,6 +923,10 @@ mod tests {
                 (aa.to_bits(), ab.to_bits()),
                 (dot(&a, &a).to_bits(), dot(&a, &b).to_bits())
             );
+            let c: Vec<f64> = b.iter().map(|v| -v * 7.0).collect();
+            let products = dots(&a, [&a, &b, &c, &a]);
+            let expected = [dot(&a, &a), dot(&a, &b), dot(&a, &c), dot(&a, &a)];
+            assert_eq!(products.map(f64::to_bits), expected.map(f64::to_bits));
         }
     }
 

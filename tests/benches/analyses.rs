@@ -15,7 +15,9 @@
 //!
 //! Each figure is printed beside its goal. With `MOBILIS_BENCH_DUMP=DIR` the outputs of the
 //! short cases (table and summary) are written to `DIR` as JSON, to compare results before
-//! and after a change.
+//! and after a change. `MOBILIS_BENCH_ONLY=TEXT` runs only the short cases whose label
+//! contains TEXT (and no long sweep), and `MOBILIS_BENCH_REPEAT=N` times each of them N
+//! times: a profiler then sees one analysis alone.
 //!
 //! Run it with
 //!
@@ -189,8 +191,16 @@ fn main() {
         ),
     ];
     let dump_directory = std::env::var("MOBILIS_BENCH_DUMP").ok();
+    let only = std::env::var("MOBILIS_BENCH_ONLY").ok();
+    let repeat: Option<usize> = std::env::var("MOBILIS_BENCH_REPEAT")
+        .ok()
+        .and_then(|text| text.parse().ok());
     println!("{:<52} {:>12} {:>12} {:>12}", "analysis", "median", "fastest", "goal");
     for (label, analysis, params, inputs, repetitions, goal_s) in cases {
+        if only.as_ref().is_some_and(|text| !label.contains(text.as_str())) {
+            continue;
+        }
+        let repetitions = repeat.unwrap_or(repetitions);
         if let Some(directory) = &dump_directory {
             let output = host
                 .invoke(analysis, &params, inputs, &control)
@@ -209,6 +219,9 @@ fn main() {
         );
     }
 
+    if only.is_some() {
+        return;
+    }
     // Long sweeps: one untimed call, then the median of three; the peak resident set of
     // the process during the calls (reset before them, so it is theirs and the table's).
     println!();

@@ -966,7 +966,10 @@ fn level_parameters(theta: &[f64], ln_degeneracy: f64, compensating_level: Optio
         ionization_energy_ev: theta[2],
         ln_degeneracy,
         compensating_level,
+        compensating_ratio: f64::NAN,
+        net_ratio: f64::NAN,
     }
+    .with_ratios()
 }
 
 /// The slope of ln(n T^-1.5) against 1/kT over the lowest-temperature third (at least three
@@ -1010,24 +1013,25 @@ fn grid_starts(
     let (rows, columns) = (GRID_COMPENSATION_NODES, GRID_ENERGY_NODES);
     let compensation = |i: usize| lower[1] + (upper[1] - lower[1]) * i as f64 / (rows - 1) as f64;
     let energy = |j: usize| lower[2] * (upper[2] / lower[2]).powf(j as f64 / (columns - 1) as f64);
-    // The nodes are independent: the rows are computed in parallel.
-    let chi: Vec<Vec<f64>> = (0..rows)
+    // The nodes are independent: computed in parallel node by node (nine rows would share
+    // two cores five to four), each with a residual buffer per worker.
+    let nodes: Vec<f64> = (0..rows * columns)
         .into_par_iter()
-        .map(|i| {
-            let mut r = vec![0.0; count];
-            (0..columns)
-                .map(|j| {
-                    residual(&[log_net, compensation(i), energy(j)], &mut r);
-                    let sum: f64 = r.iter().map(|x| x * x).sum();
-                    if sum.is_finite() {
-                        sum
-                    } else {
-                        f64::INFINITY
-                    }
-                })
-                .collect()
-        })
+        .map_init(
+            || vec![0.0; count],
+            |r, node| {
+                let (i, j) = (node / columns, node % columns);
+                residual(&[log_net, compensation(i), energy(j)], r);
+                let sum: f64 = r.iter().map(|x| x * x).sum();
+                if sum.is_finite() {
+                    sum
+                } else {
+                    f64::INFINITY
+                }
+            },
+        )
         .collect();
+    let chi: Vec<&[f64]> = nodes.chunks(columns).collect();
     let mut minima: Vec<(f64, usize, usize)> = Vec::new();
     for i in 0..rows {
         for j in 0..columns {

@@ -689,6 +689,9 @@ impl Replicas {
             .sqrt();
         let fitted = problem.a.mul_vec(&chosen.u);
         let h = problem.regularized_gram(chosen.lambda);
+        // Every replica starts from the chosen spectrum in the same matrix: its passive set
+        // is factored once and copied to each.
+        let start = problem.warm_start(&h, chosen.lambda, &chosen.u)?;
         // The noise of every replica is drawn first, in replica order, so that the replicas
         // are the same however many of them are solved at once.
         let mut rng = Rng::seeded(BOOTSTRAP_SEED);
@@ -706,7 +709,7 @@ impl Replicas {
             }
             let solved: Vec<Result<Vec<f64>, SpectrumError>> = chunk
                 .par_iter()
-                .map(|b| problem.solve_for(&h, chosen.lambda, b, &chosen.u, &never))
+                .map(|b| problem.solve_for(&h, chosen.lambda, b, &start, &never))
                 .collect();
             for u in solved {
                 weights.push(u?.iter().map(|v| v * data.reference_s).collect());

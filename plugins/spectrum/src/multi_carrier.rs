@@ -107,7 +107,9 @@ pub use error::MultiCarrierError;
 pub use mobilis_core::forward::tensor::{Carrier, CarrierKind};
 pub use mobilis_core::sweep::{SweepPoint, SymmetrizeSettings, Symmetrized, TensorPoint, TensorUncertainty};
 
-use mobilis_core::fit::{Bounds, FitQuality, LeastSquares, LmOptions, MultiStartFit, SameMinimum};
+use mobilis_core::fit::{
+    minimize_multi_start_parallel, Bounds, FitQuality, LeastSquares, LmOptions, MultiStartFit, SameMinimum,
+};
 use mobilis_core::forward::tensor::sum_conductivity;
 use mobilis_core::linalg::Matrix;
 use mobilis_core::noise::Rng;
@@ -540,11 +542,13 @@ fn fit_kinds(
         .flat_map(|_| [bounds.ln_density.1, bounds.ln_mobility.1])
         .collect();
     let box_bounds = Bounds::new(lower, upper).map_err(|e| MultiCarrierError::from_fit(kinds, e))?;
-    let problem = LeastSquares::new(data.residual_count, |p: &[f64], r: &mut [f64]| {
-        model::residuals(data, kinds, p, r)
-    })
-    .with_jacobian(|p: &[f64], j: &mut Matrix| model::jacobian(data, kinds, p, j))
-    .with_bounds(box_bounds);
+    let problem = || {
+        LeastSquares::new(data.residual_count, |p: &[f64], r: &mut [f64]| {
+            model::residuals(data, kinds, p, r)
+        })
+        .with_jacobian(|p: &[f64], j: &mut Matrix| model::jacobian(data, kinds, p, j))
+        .with_bounds(box_bounds.clone())
+    };
     let options = LmOptions {
         residuals_are_weighted: data.weighted,
         max_iterations: settings.max_iterations,
@@ -552,8 +556,11 @@ fn fit_kinds(
         parameter_scales: Some(vec![1.0; 2 * n]),
         ..LmOptions::default()
     };
-    let run = problem
-        .minimize_multi_start(&starts, &options, &SameMinimum::default())
+    // The starts are independent runs: on the worker threads, with the same result as one
+    // after the other (`minimize_multi_start_parallel`). Together with the carrier lists
+    // solved at once this keeps both cores busy when the lists are fewer than the cores
+    // or of unequal cost, and the second pass of `fit_sweep`, one list, gets them too.
+    let run = minimize_multi_start_parallel(problem, &starts, &options, &SameMinimum::default())
         .map_err(|e| MultiCarrierError::from_fit(kinds, e))?;
     let score = settings
         .criterion

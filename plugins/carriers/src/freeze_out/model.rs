@@ -101,6 +101,21 @@ pub(crate) struct LevelParameters {
     pub ln_degeneracy: f64,
     /// (ionization energy, ln degeneracy) of the compensating level.
     pub compensating_level: Option<(f64, f64)>,
+    /// N_comp / N_maj and N_net / N_maj, e^(ln_compensating - ln_dopant) and
+    /// e^(ln_net - ln_dopant): the closed-form root needs them at every temperature, and
+    /// they do not depend on it ([`LevelParameters::with_ratios`]).
+    pub compensating_ratio: f64,
+    pub net_ratio: f64,
+}
+
+impl LevelParameters {
+    /// Fills in the two ratios from the logarithms (the same operations as at each point,
+    /// done once per parameter set).
+    pub fn with_ratios(mut self) -> Self {
+        self.compensating_ratio = (self.ln_compensating - self.ln_dopant).exp();
+        self.net_ratio = (self.ln_net - self.ln_dopant).exp();
+        self
+    }
 }
 
 /// softplus(z) = ln(1 + e^z) without overflow or loss of precision, and the logistic
@@ -154,8 +169,8 @@ fn ln_closed_form_root(ln_k: f64, parameters: &LevelParameters) -> f64 {
         };
     }
     let k = relative.exp();
-    let a = (parameters.ln_compensating - parameters.ln_dopant).exp();
-    let d = (parameters.ln_net - parameters.ln_dopant).exp();
+    let a = parameters.compensating_ratio;
+    let d = parameters.net_ratio;
     let linear = a + k;
     let ratio = 2.0 * k * d / (linear + (linear * linear + 4.0 * k * d).sqrt());
     parameters.ln_dopant + ratio.ln()
@@ -279,7 +294,10 @@ impl FreezeOutModel {
             compensating_level: self
                 .compensating_level
                 .map(|level| (level.ionization_energy_ev, level.degeneracy.ln())),
+            compensating_ratio: f64::NAN,
+            net_ratio: f64::NAN,
         }
+        .with_ratios()
     }
 
     /// ln of the majority carrier density at `temperature_k`, ln(m^-3). NaN when the

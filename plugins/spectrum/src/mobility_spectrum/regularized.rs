@@ -33,8 +33,9 @@
 //!   interior point is that of the circle through it and its two neighbours (Menger
 //!   curvature), signed so that the corner of the L counts positive.
 
-use mobilis_core::linalg::{dot, Matrix};
-use mobilis_core::nnls::{solve_gram, NnlsError, NnlsOptions, NnlsSolution};
+use mobilis_core::linalg::{dot, dots, Matrix};
+use mobilis_core::nnls::{solve_gram, solve_gram_from, NnlsError, NnlsOptions, NnlsSolution, WarmStart};
+use rayon::prelude::*;
 
 use super::error::SpectrumError;
 use super::{Monitor, RegularizationRule, RuleUsed};
@@ -81,14 +82,22 @@ impl Problem {
         let n = a.cols();
         let columns: Vec<Vec<f64>> = (0..n).map(|j| a.column(j)).collect();
         let mut gram = Matrix::zeros(n, n);
-        for i in 0..n {
-            if i % 16 == 0 && cancelled() {
+        // Rows of the upper triangle in blocks of 16, the rows of a block on the worker
+        // threads at once and the cancel check (on this thread) between blocks. Every entry
+        // is the plain dot product of two columns, whichever thread computes it.
+        for block in (0..n).step_by(16) {
+            if cancelled() {
                 return Err(SpectrumError::Cancelled);
             }
-            for j in i..n {
-                let value = dot(&columns[i], &columns[j]);
-                gram[(i, j)] = value;
-                gram[(j, i)] = value;
+            let rows: Vec<(usize, Vec<f64>)> = (block..(block + 16).min(n))
+                .into_par_iter()
+                .map(|i| (i, gram_row(&columns, i)))
+                .collect();
+            for (i, row) in rows {
+                for (offset, value) in row.into_iter().enumerate() {
+                    gram[(i, i + offset)] = value;
+                    gram[(i + offset, i)] = value;
+                }
             }
         }
         let g = a.transpose_mul_vec(&b);
@@ -155,19 +164,58 @@ impl Problem {
         })
     }
 
+    /// The start `start` factored in the penalized Gram matrix `h` of `lambda`, once for
+    /// all the replicas solved from it ([`Problem::solve_for`]).
+    pub fn warm_start(&self, h: &Matrix, lambda: f64, start: &[f64]) -> Result<WarmStart, SpectrumError> {
+        WarmStart::new(h, start, &NnlsOptions::default()).map_err(|error| numerical(lambda, error))
+    }
+
     /// The solution at `lambda` for other whitened data `b`, given the penalized Gram
-    /// matrix `h` of that lambda: one replica of the bootstrap.
+    /// matrix `h` of that lambda and a start prepared in it: one replica of the bootstrap.
+    /// The same as a solve from that start with [`solve_gram`], to the last bit.
     pub fn solve_for(
         &self,
         h: &Matrix,
         lambda: f64,
         b: &[f64],
-        start: &[f64],
+        start: &WarmStart,
         cancelled: &dyn Fn() -> bool,
     ) -> Result<Vec<f64>, SpectrumError> {
         let g = self.a.transpose_mul_vec(b);
-        Ok(nnls(h, &g, Some(start), lambda, cancelled)?.x)
+        let solution = solve_gram_from(h, &g, start, &NnlsOptions::default(), cancelled)
+            .map_err(|error| numerical(lambda, error))?;
+        Ok(solution.x)
     }
+}
+
+/// An NNLS failure as the spectrum reports it.
+fn numerical(lambda: f64, error: NnlsError) -> SpectrumError {
+    match error {
+        NnlsError::Cancelled => SpectrumError::Cancelled,
+        other => SpectrumError::Numerical(format!(
+            "the regularized spectrum could not be solved at lambda = {lambda:e}: {other}"
+        )),
+    }
+}
+
+/// Entries i..n of row i of the Gram matrix of `columns`: the dot products of column i with
+/// columns i, i + 1, ..., four at a time ([`dots`] gives each to the last bit as [`dot`]).
+fn gram_row(columns: &[Vec<f64>], i: usize) -> Vec<f64> {
+    let n = columns.len();
+    let own = &columns[i];
+    let mut row = Vec::with_capacity(n - i);
+    let mut j = i;
+    while j + 4 <= n {
+        row.extend(dots(
+            own,
+            [&columns[j], &columns[j + 1], &columns[j + 2], &columns[j + 3]],
+        ));
+        j += 4;
+    }
+    for column in &columns[j..] {
+        row.push(dot(own, column));
+    }
+    row
 }
 
 fn nnls(
@@ -177,12 +225,7 @@ fn nnls(
     lambda: f64,
     cancelled: &dyn Fn() -> bool,
 ) -> Result<NnlsSolution, SpectrumError> {
-    solve_gram(h, g, start, &NnlsOptions::default(), cancelled).map_err(|error| match error {
-        NnlsError::Cancelled => SpectrumError::Cancelled,
-        other => SpectrumError::Numerical(format!(
-            "the regularized spectrum could not be solved at lambda = {lambda:e}: {other}"
-        )),
-    })
+    solve_gram(h, g, start, &NnlsOptions::default(), cancelled).map_err(|error| numerical(lambda, error))
 }
 
 /// Row `i` of D^T D, (column, value) pairs, for D the second difference within each of the

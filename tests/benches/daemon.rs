@@ -2,8 +2,9 @@
 //! readings from CSV and from Parquet, `analysis.run hall.reduce` on them with the output
 //! stored, round trips of cheap calls over HTTP keep-alive and WebSocket, a page of 10,000
 //! rows (each timed with a lean client that leaves the answer unparsed, the figure the goal
-//! is for, and with an application's client, to show the client's own share), and ten million readings imported (with progress) and reduced, with the daemon's
-//! peak memory against the size of the data.
+//! is for, and with an application's client, to show the client's own share), and ten
+//! million readings imported (with progress) and reduced, with the daemon's peak memory
+//! against the size of the data.
 //!
 //! Run it with
 //!

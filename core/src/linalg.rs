@@ -697,9 +697,33 @@ impl Svd {
                 v: transposed.u,
             });
         }
-        let (m, n) = (a.rows, a.cols);
         // Columns stored contiguously: the rotations act on pairs of columns.
-        let mut columns: Vec<Vec<f64>> = (0..n).map(|j| a.column(j)).collect();
+        Svd::decompose(a.rows, (0..a.cols).map(|j| a.column(j)).collect())
+    }
+
+    /// [`Svd::new`] of the m x n matrix whose columns are `columns` (each of length m,
+    /// m >= n): the same decomposition to the last bit, without building the matrix first,
+    /// for callers that produce a matrix column by column (a scaled Jacobian).
+    ///
+    /// # Panics
+    /// When a column's length is not `rows` or there are more columns than rows.
+    pub fn from_columns(rows: usize, columns: Vec<Vec<f64>>) -> Result<Self, LinalgError> {
+        assert!(
+            columns.len() <= rows && columns.iter().all(|column| column.len() == rows),
+            "columns of unequal length or more columns than rows"
+        );
+        // The first non-finite entry in row order, as [`Matrix::check_finite`] reports it.
+        for i in 0..rows {
+            if let Some(j) = columns.iter().position(|column| !column[i].is_finite()) {
+                return Err(LinalgError::NonFinite { row: i, column: j });
+            }
+        }
+        Svd::decompose(rows, columns)
+    }
+
+    /// One-sided Jacobi on the columns of an m x n matrix, m >= n.
+    fn decompose(m: usize, mut columns: Vec<Vec<f64>>) -> Result<Self, LinalgError> {
+        let n = columns.len();
         let mut v_columns: Vec<Vec<f64>> = (0..n)
             .map(|j| (0..n).map(|i| if i == j { 1.0 } else { 0.0 }).collect())
             .collect();

@@ -1300,11 +1300,12 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
     };
     let solve = |sigma: &[f64], starts: &[Vec<f64>]| -> Result<MultiStartFit, FreezeOutError> {
         // The starts are independent: they run in parallel, with the same result as one
-        // after the other.
+        // after the other. A single start (the later effective-variance passes) spreads the
+        // columns of its finite-difference Jacobian over the pool instead.
         let result = minimize_multi_start_parallel(
             || {
                 let residual = |theta: &[f64], r: &mut [f64]| problem.residuals(theta, sigma, r);
-                LeastSquares::new(count, residual).with_bounds(bounds.clone())
+                LeastSquares::new_shared(count, residual).with_bounds(bounds.clone())
             },
             starts,
             &options,

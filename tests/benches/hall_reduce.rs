@@ -71,7 +71,7 @@
 use mobilis_core::table_ffi;
 use mobilis_rpc::plugin_host::{CallControl, PluginHost};
 use mobilis_rpc::plugin_supervisor::WorkerSettings;
-use mobilis_tests::bench::{self, format_kib, format_seconds, peak_rss_kib, Timing};
+use mobilis_tests::bench::{self, compare_json, format_kib, format_seconds, peak_rss_kib, relative_difference, Timing};
 use mobilis_tests::hall_readings::{self, READINGS_PER_TEMPERATURE, SAMPLE_COUNT, SETPOINT_COUNT};
 use polars::prelude::*;
 use std::sync::Arc;
@@ -471,55 +471,6 @@ fn output_as_json(table: &DataFrame, summary: &serde_json::Value) -> serde_json:
         })
         .collect();
     serde_json::json!({"columns": columns, "summary": summary})
-}
-
-/// The relative difference of two numbers: 0 when equal (both NaN included), else
-/// |a - b| / max(|a|, |b|).
-fn relative_difference(a: f64, b: f64) -> f64 {
-    if a == b || (a.is_nan() && b.is_nan()) {
-        0.0
-    } else {
-        (a - b).abs() / a.abs().max(b.abs())
-    }
-}
-
-/// Compares two JSON values: numbers (and float strings) by relative difference, the rest
-/// exactly. Returns the largest relative difference and adds every mismatch to `problems`.
-fn compare_json(path: &str, saved: &serde_json::Value, now: &serde_json::Value, problems: &mut Vec<String>) -> f64 {
-    use serde_json::Value;
-    match (saved, now) {
-        (Value::Number(a), Value::Number(b)) => match (a.as_f64(), b.as_f64()) {
-            (Some(a), Some(b)) if a.fract() != 0.0 || b.fract() != 0.0 => relative_difference(a, b),
-            _ if a == b => 0.0,
-            _ => {
-                problems.push(format!("{path}: {a} then {b}"));
-                0.0
-            }
-        },
-        (Value::Array(a), Value::Array(b)) if a.len() == b.len() => a
-            .iter()
-            .zip(b)
-            .enumerate()
-            .map(|(index, (a, b))| compare_json(&format!("{path}[{index}]"), a, b, problems))
-            .fold(0.0, f64::max),
-        (Value::Object(a), Value::Object(b)) if a.len() == b.len() => {
-            let mut largest = 0.0_f64;
-            for (key, a_value) in a {
-                match b.get(key) {
-                    Some(b_value) => {
-                        largest = largest.max(compare_json(&format!("{path}.{key}"), a_value, b_value, problems))
-                    }
-                    None => problems.push(format!("{path}.{key}: missing")),
-                }
-            }
-            largest
-        }
-        _ if saved == now => 0.0,
-        _ => {
-            problems.push(format!("{path}: {saved} then {now}"));
-            0.0
-        }
-    }
 }
 
 /// Writes and compares the reduction's output as the environment asks (see

@@ -31,7 +31,8 @@ use mobilis_core::forward::tensor::SweepNoise;
 use mobilis_core::noise::Rng;
 use mobilis_rpc::plugin_host::{CallControl, PluginHost};
 use mobilis_tests::bench::{
-    build_release_plugins, fail, format_kib, format_seconds, invoked_as_benchmark, load_plugins, measure, peak_rss_kib,
+    build_release_plugins, compare_json, fail, format_kib, format_seconds, invoked_as_benchmark, load_plugins, measure,
+    peak_rss_kib,
 };
 use polars::prelude::*;
 use serde_json::json;
@@ -176,62 +177,6 @@ fn outcome_as_json(
         })
         .collect();
     json!({"columns": columns, "summary": output.summary, "warnings": output.warnings})
-}
-
-/// |a - b| / max(|a|, |b|), 0 when equal (both NaN included).
-fn relative_difference(a: f64, b: f64) -> f64 {
-    if a == b || (a.is_nan() && b.is_nan()) {
-        0.0
-    } else {
-        (a - b).abs() / a.abs().max(b.abs())
-    }
-}
-
-/// The largest relative difference between two JSON values: numbers and strings that parse as
-/// floats by relative difference, the rest exactly (a mismatch is added to `problems`).
-/// Texts that differ only in printed numbers (warnings) compare their numbers.
-fn compare_json(path: &str, saved: &serde_json::Value, now: &serde_json::Value, problems: &mut Vec<String>) -> f64 {
-    use serde_json::Value;
-    match (saved, now) {
-        (Value::Number(a), Value::Number(b)) => match (a.as_f64(), b.as_f64()) {
-            (Some(a), Some(b)) if a.fract() != 0.0 || b.fract() != 0.0 => relative_difference(a, b),
-            _ if a == b => 0.0,
-            _ => {
-                problems.push(format!("{path}: {a} then {b}"));
-                0.0
-            }
-        },
-        (Value::String(a), Value::String(b)) if a != b => match (a.parse::<f64>(), b.parse::<f64>()) {
-            (Ok(x), Ok(y)) => relative_difference(x, y),
-            _ => {
-                problems.push(format!("{path}: {a:?} then {b:?}"));
-                0.0
-            }
-        },
-        (Value::Array(a), Value::Array(b)) if a.len() == b.len() => a
-            .iter()
-            .zip(b)
-            .enumerate()
-            .map(|(index, (a, b))| compare_json(&format!("{path}[{index}]"), a, b, problems))
-            .fold(0.0, f64::max),
-        (Value::Object(a), Value::Object(b)) if a.len() == b.len() => {
-            let mut largest = 0.0_f64;
-            for (key, a_value) in a {
-                match b.get(key) {
-                    Some(b_value) => {
-                        largest = largest.max(compare_json(&format!("{path}.{key}"), a_value, b_value, problems))
-                    }
-                    None => problems.push(format!("{path}.{key}: missing")),
-                }
-            }
-            largest
-        }
-        _ if saved == now => 0.0,
-        _ => {
-            problems.push(format!("{path}: {saved} then {now}"));
-            0.0
-        }
-    }
 }
 
 /// Writes and compares the outputs of [`checked_calls`] as the environment asks (see

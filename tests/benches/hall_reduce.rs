@@ -447,30 +447,7 @@ const LARGEST_RELATIVE_CHANGE: f64 = 1e-12;
 /// A table and summary as JSON, every cell a string (floats in Rust's shortest exact
 /// form, so that they read back bit for bit) or null.
 fn output_as_json(table: &DataFrame, summary: &serde_json::Value) -> serde_json::Value {
-    let columns: Vec<serde_json::Value> = table
-        .columns()
-        .iter()
-        .map(|column| {
-            let values: Vec<serde_json::Value> = match column.dtype() {
-                DataType::Float64 => column
-                    .f64()
-                    .expect("float column")
-                    .iter()
-                    .map(|v| v.map_or(serde_json::Value::Null, |v| format!("{v:?}").into()))
-                    .collect(),
-                _ => {
-                    let text = column.cast(&DataType::String).expect("any column casts to text");
-                    text.str()
-                        .expect("text column")
-                        .iter()
-                        .map(|v| v.map_or(serde_json::Value::Null, |v| v.to_owned().into()))
-                        .collect()
-                }
-            };
-            serde_json::json!({"name": column.name().as_str(), "dtype": column.dtype().to_string(), "values": values})
-        })
-        .collect();
-    serde_json::json!({"columns": columns, "summary": summary})
+    serde_json::json!({"columns": bench::columns_as_json(table), "summary": summary})
 }
 
 /// Writes and compares the reduction's output as the environment asks (see

@@ -31,8 +31,8 @@ use mobilis_core::forward::tensor::SweepNoise;
 use mobilis_core::noise::Rng;
 use mobilis_rpc::plugin_host::{CallControl, PluginHost};
 use mobilis_tests::bench::{
-    build_release_plugins, compare_json, fail, format_kib, format_seconds, invoked_as_benchmark, load_plugins, measure,
-    peak_rss_kib,
+    self, build_release_plugins, compare_json, fail, format_kib, format_seconds, invoked_as_benchmark, load_plugins,
+    measure, peak_rss_kib,
 };
 use polars::prelude::*;
 use serde_json::json;
@@ -152,30 +152,7 @@ fn outcome_as_json(
         Ok(output) => output,
         Err(failure) => return json!({"failure": failure.message}),
     };
-    let columns: Vec<serde_json::Value> = output
-        .table
-        .columns()
-        .iter()
-        .map(|column| {
-            let values: Vec<serde_json::Value> = match column.dtype() {
-                DataType::Float64 => column
-                    .f64()
-                    .expect("float column")
-                    .iter()
-                    .map(|v| v.map_or(serde_json::Value::Null, |v| format!("{v:?}").into()))
-                    .collect(),
-                _ => {
-                    let text = column.cast(&DataType::String).expect("any column casts to text");
-                    text.str()
-                        .expect("text column")
-                        .iter()
-                        .map(|v| v.map_or(serde_json::Value::Null, |v| v.to_owned().into()))
-                        .collect()
-                }
-            };
-            json!({"name": column.name().as_str(), "dtype": column.dtype().to_string(), "values": values})
-        })
-        .collect();
+    let columns = bench::columns_as_json(&output.table);
     json!({"columns": columns, "summary": output.summary, "warnings": output.warnings})
 }
 

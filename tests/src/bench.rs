@@ -184,3 +184,33 @@ pub fn compare_json(path: &str, saved: &serde_json::Value, now: &serde_json::Val
         }
     }
 }
+
+/// The columns of a table as JSON for a saved-output comparison: each column's name, dtype
+/// and values, every cell a string (floats in Rust's shortest exact form, so that they read
+/// back bit for bit) or null.
+pub fn columns_as_json(table: &polars::prelude::DataFrame) -> Vec<serde_json::Value> {
+    use polars::prelude::DataType;
+    table
+        .columns()
+        .iter()
+        .map(|column| {
+            let values: Vec<serde_json::Value> = match column.dtype() {
+                DataType::Float64 => column
+                    .f64()
+                    .expect("float column")
+                    .iter()
+                    .map(|v| v.map_or(serde_json::Value::Null, |v| format!("{v:?}").into()))
+                    .collect(),
+                _ => {
+                    let text = column.cast(&DataType::String).expect("any column casts to text");
+                    text.str()
+                        .expect("text column")
+                        .iter()
+                        .map(|v| v.map_or(serde_json::Value::Null, |v| v.to_owned().into()))
+                        .collect()
+                }
+            };
+            serde_json::json!({"name": column.name().as_str(), "dtype": column.dtype().to_string(), "values": values})
+        })
+        .collect()
+}

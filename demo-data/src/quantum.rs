@@ -3,8 +3,8 @@
 //! truth file that records them.
 //!
 //! The classical part is the same Drude tensor as the other sweeps
-//! (`mobilis_core::forward::tensor`). The oscillations come from
-//! `mobilis_core::forward::oscillations`, the model `mr.oscillations` inverts:
+//! (`mobilis_physics::forward::tensor`). The oscillations come from
+//! `mobilis_physics::forward::oscillations`, the model `mr.oscillations` inverts:
 //! rho_xx(B, T) = rho_xx,classical(B) + rho_0 a R_T R_D cos(2 pi F / |B| + phi), the
 //! Lifshitz-Kosevich first harmonic of an [`OscillationComponent`] in the Ando form (a = 4,
 //! phi = -pi), with the prefactor rho_0 = rho_xx(0) of [`SdhModel`]. Only the smooth
@@ -17,14 +17,16 @@
 
 use crate::format::Json;
 use crate::sweeps::{round_to_resolution, Layer, SweepRow, SweepSample, FIELD_RESOLUTION_T, MAX_FIELD_T};
-use mobilis_core::constants::{ELECTRON_MASS_KG, ELEMENTARY_CHARGE_C};
-use mobilis_core::forward::oscillations::{
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::constants::{ELECTRON_MASS_KG, ELEMENTARY_CHARGE_C};
+use mobilis_physics::forward::oscillations::{
     dingle_damping, frequency_from_sheet_density_t, quantum_lifetime_s, thermal_damping_argument,
     thermal_damping_factor, OscillationComponent, SdhModel, LK_FIELD_PER_KELVIN,
 };
-use mobilis_core::forward::tensor::{resistivity_tensor, Carrier, ResistivityTensor, SweepImperfections, SweepNoise};
-use mobilis_core::noise::Rng;
-use mobilis_core::sweep::{ResistivityUncertainty, SweepPoint};
+use mobilis_physics::forward::tensor::{
+    resistivity_tensor, Carrier, ResistivityTensor, SweepImperfections, SweepNoise,
+};
+use mobilis_physics::sweep::{ResistivityUncertainty, SweepPoint};
 
 /// The lowest |B| of the oscillation sweeps, T. Below it the oscillations of this channel are
 /// damped far into the noise at every temperature, and the 1/B step of a sweep that reached
@@ -346,8 +348,8 @@ mod tests {
     use super::*;
     use crate::heterostructure::QUANTUM;
     use crate::sweeps::sweeps_csv;
-    use mobilis_core::forward::oscillations::sheet_density_from_frequency_m2;
-    use mobilis_core::sweep::{symmetrize, SymmetrizeSettings, SymmetrizedPoint};
+    use mobilis_physics::forward::oscillations::sheet_density_from_frequency_m2;
+    use mobilis_physics::sweep::{symmetrize, SymmetrizeSettings, SymmetrizedPoint};
 
     fn close(actual: f64, expected: f64, relative: f64) -> bool {
         ((actual - expected) / expected).abs() <= relative

@@ -1,6 +1,6 @@
 //! Field sweeps of the resistivity tensor, shared by the wafers the invented lab measures in
 //! its magnet: the field program, the generation of each sweep from classical Drude carriers
-//! with `mobilis_core::forward::tensor::synthetic_sweep`, the `sweep` table it writes and
+//! with `mobilis_physics::forward::tensor::synthetic_sweep`, the `sweep` table it writes and
 //! the truth file that records the invented carriers.
 //!
 //! A wafer is a set of samples, each swept at one or more temperatures. At each temperature
@@ -9,12 +9,12 @@
 //! field, inverts it, mixes in the sample's contact misalignment and adds Gaussian noise.
 
 use crate::format::{number, Json};
-use mobilis_core::forward::tensor::{
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::forward::tensor::{
     high_field_hall_coefficient_m2_per_c, low_field_hall_coefficient_m2_per_c, resistivity_tensor, sum_conductivity,
     symmetric_fields, synthetic_sweep, Carrier, SweepImperfections, SweepNoise,
 };
-use mobilis_core::noise::Rng;
-use mobilis_core::sweep::SweepPoint;
+use mobilis_physics::sweep::SweepPoint;
 
 /// The columns of the `sweep` table, in the order of the contract.
 pub const SWEEP_COLUMNS: [&str; 5] = ["sample", "temperature_K", "field_T", "rho_xx_ohm_sq", "rho_xy_ohm"];
@@ -305,7 +305,7 @@ pub fn sweeps_csv(rows: &[SweepRow]) -> String {
 mod tests {
     use super::*;
     use crate::{heterostructure, inas_film};
-    use mobilis_core::sweep::{symmetrize, SymmetrizeSettings};
+    use mobilis_physics::sweep::{symmetrize, SymmetrizeSettings};
 
     const WAFERS: [&Wafer; 2] = [&heterostructure::WAFER, &inas_film::WAFER];
 

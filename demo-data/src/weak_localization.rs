@@ -2,9 +2,9 @@
 //! it.
 //!
 //! The classical part is the Drude tensor of the film's one carrier population
-//! (`mobilis_core::forward::tensor`): its 1/rho_xx does not depend on the field, and its
+//! (`mobilis_physics::forward::tensor`): its 1/rho_xx does not depend on the field, and its
 //! rho_xy is the Hall resistivity -B / (n e) of electrons. The Hikami-Larkin-Nagaoka
-//! correction of `mobilis_core::forward::oscillations` is added to the sheet conductance
+//! correction of `mobilis_physics::forward::oscillations` is added to the sheet conductance
 //! 1/rho_xx, as [`WeakLocalizationModel`] adds it to sigma_0 + beta B^2. rho_xy stays
 //! classical, as it does to first order in the theory (weak localization leaves the Hall
 //! coefficient unchanged). The sweep then gets the sample's contact misalignment and Gaussian
@@ -21,14 +21,14 @@ use std::f64::consts::PI;
 use crate::format::Json;
 use crate::quantum::{measured_point, noise_truth};
 use crate::sweeps::{layer_truth, round_to_resolution, Layer, SweepRow, FIELD_RESOLUTION_T};
-use mobilis_core::constants::{ELEMENTARY_CHARGE_C, REDUCED_PLANCK_J_S};
-use mobilis_core::forward::oscillations::{
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::constants::{ELEMENTARY_CHARGE_C, REDUCED_PLANCK_J_S};
+use mobilis_physics::forward::oscillations::{
     hln_correction_s, phase_coherence_field_t, WeakLocalizationModel, HLN_CONDUCTANCE_S,
 };
-use mobilis_core::forward::tensor::{
+use mobilis_physics::forward::tensor::{
     resistivity_tensor, symmetric_fields, Carrier, ResistivityTensor, SweepImperfections, SweepNoise,
 };
-use mobilis_core::noise::Rng;
 
 /// The largest |B| of the weak-localization sweep, T: a few tens of B_phi, where the
 /// correction has long become logarithmic, and still far below the transport field.
@@ -263,9 +263,9 @@ mod tests {
     use super::*;
     use crate::sweeps::sweeps_csv;
     use crate::thin_film::FILM;
-    use mobilis_core::constants::PLANCK_J_S;
-    use mobilis_core::forward::oscillations::hln_bracket;
-    use mobilis_core::sweep::{symmetrize, SweepPoint, SymmetrizeSettings, SymmetrizedPoint};
+    use mobilis_physics::constants::PLANCK_J_S;
+    use mobilis_physics::forward::oscillations::hln_bracket;
+    use mobilis_physics::sweep::{symmetrize, SweepPoint, SymmetrizeSettings, SymmetrizedPoint};
 
     fn close(actual: f64, expected: f64, relative: f64) -> bool {
         ((actual - expected) / expected).abs() <= relative
@@ -471,7 +471,7 @@ mod tests {
         let alpha_unc = ((m[0][0] * m[2][2] - m[0][2] * m[2][0]) / determinant).sqrt();
         let ln_b_phi_unc = ((m[0][0] * m[1][1] - m[0][1] * m[1][0]) / determinant).sqrt();
 
-        let coherence_length = mobilis_core::forward::oscillations::phase_coherence_length_m(ln_b_phi.exp());
+        let coherence_length = mobilis_physics::forward::oscillations::phase_coherence_length_m(ln_b_phi.exp());
         // l_phi goes as B_phi^-1/2.
         let coherence_length_unc = 0.5 * ln_b_phi_unc * coherence_length;
         assert!(alpha_unc < 0.01 * FILM.hln_alpha, "alpha +- {alpha_unc}");

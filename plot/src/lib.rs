@@ -180,7 +180,7 @@ fn size(name: &str, value: Option<f64>, default: f64) -> Result<f64, PlotError> 
 /// "0.5 T"; to a relative 1e-9 for any other column, so that 300 matches 300.0000000001.
 pub fn matches_nominal(column: &str, value: f64, target: f64) -> bool {
     let tolerance = match column {
-        "temperature_K" => mobilis_core::sweep_table::TemperatureGrouping::default().allowed_gap_k(target),
+        "temperature_K" => mobilis_sdk::sweep_table::TemperatureGrouping::default().allowed_gap_k(target),
         "field_T" => recipes::FIELD_SETPOINT_T,
         _ => 1e-9 * target.abs().max(1e-300),
     };

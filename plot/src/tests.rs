@@ -1420,7 +1420,7 @@ fn hall_coefficients_and_log_densities_are_shown_in_the_tables_units() {
     .unwrap();
     let spec = check_vega(&figure);
     let shown = vega_values(&spec, "ln_reduced_density_m3", "y");
-    let table_shows = mobilis_core::units::customary_display("ln_reduced_density_m3").unwrap();
+    let table_shows = mobilis_physics::units::customary_display("ln_reduced_density_m3").unwrap();
     for (shown, stored) in shown.iter().zip([40.0, 41.0, 42.0]) {
         assert!(close(*shown, stored - 1e6f64.ln(), 1e-12));
         assert!(close(*shown, table_shows.from_si(stored), 1e-12));

@@ -16,10 +16,10 @@
 
 use crate::param_schema;
 use crate::plugin_supervisor::{WorkerPool, WorkerSettings};
-use mobilis_core::abi::{
+use mobilis_sdk::abi::{
     self, AnalysisDeclaration, EntryFn, HostContext, InputTable, InvokeOutput, PluginDeclaration, PluginDescriptor,
 };
-use mobilis_core::table_ffi::{self, TextLayout};
+use mobilis_sdk::table_ffi::{self, TextLayout};
 use polars::prelude::DataFrame;
 use std::collections::BTreeMap;
 use std::ffi::{CStr, CString};

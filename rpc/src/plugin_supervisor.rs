@@ -14,7 +14,7 @@
 
 use crate::plugin_host::{CallControl, InvokeFailure, InvokeSuccess, PluginIdentity};
 use crate::worker_protocol::{self as protocol, Frame, FromWorker, ToWorker};
-use mobilis_core::abi::{self, PluginDeclaration};
+use mobilis_sdk::abi::{self, PluginDeclaration};
 use polars::prelude::DataFrame;
 use std::path::{Path, PathBuf};
 use std::process::{Child, ChildStdin, Command, ExitStatus, Stdio};

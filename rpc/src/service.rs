@@ -9,7 +9,7 @@ use crate::plugin_host::{CallControl, InvokeFailure, PluginHost};
 use crate::progress::{Outcome, ProgressHub};
 use crate::store::{self, DatasetStore, Provenance};
 use crate::tables::{self, FileFormat, UnitSpec};
-use mobilis_core::abi::{self, ColumnSpec, ColumnType};
+use mobilis_sdk::abi::{self, ColumnSpec, ColumnType};
 use polars::prelude::*;
 use serde::Deserialize;
 use serde_json::{json, Value};

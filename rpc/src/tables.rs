@@ -3,7 +3,7 @@
 
 use crate::csv_dialect::{self, CsvDialect, SourceMap};
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
-use mobilis_core::units;
+use mobilis_physics::units;
 use polars::prelude::*;
 use serde::Deserialize;
 use std::collections::BTreeMap;

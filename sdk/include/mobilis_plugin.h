@@ -1,5 +1,5 @@
 /*
- * mobilis plugin ABI, version 1.1: the C view of core/src/abi.rs.
+ * mobilis plugin ABI, version 1.1: the C view of sdk/src/abi.rs.
  *
  * A plugin is a shared library exporting one function:
  *

@@ -3,13 +3,13 @@
 //!
 //! ```text
 //! struct Reduce;
-//! impl mobilis_core::sdk::Analysis for Reduce {
+//! impl mobilis_sdk::sdk::Analysis for Reduce {
 //!     const NAME: &'static str = "example.reduce";
 //!     type Params = MyParams; // serde::Deserialize
 //!     fn declaration() -> AnalysisDeclaration { ... }
 //!     fn run(params: MyParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> { ... }
 //! }
-//! mobilis_core::export_plugin!(name: "example", analyses: [Reduce]);
+//! mobilis_sdk::export_plugin!(name: "example", analyses: [Reduce]);
 //! ```
 //!
 //! **Architecture Invariant.** A panic never crosses the boundary: every exported function
@@ -392,13 +392,13 @@ macro_rules! export_plugin {
             static REGISTRY: &[$crate::sdk::Registration] = &[$($crate::sdk::registration::<$analysis>()),+];
 
             /// # Safety
-            /// No requirement: `unsafe` only to match `mobilis_core::abi::DescribeFn`.
+            /// No requirement: `unsafe` only to match `mobilis_sdk::abi::DescribeFn`.
             unsafe extern "C" fn describe() -> *mut ::std::os::raw::c_char {
                 $crate::sdk::describe_registered(REGISTRY)
             }
 
             /// # Safety
-            /// The contract of `mobilis_core::abi::InvokeFn`.
+            /// The contract of `mobilis_sdk::abi::InvokeFn`.
             unsafe extern "C" fn invoke(
                 analysis: *const ::std::os::raw::c_char,
                 params_json: *const ::std::os::raw::c_char,

@@ -20,7 +20,7 @@
 
 use crate::abi::{ColumnSpec, ColumnType, InputRole};
 use crate::sdk::{self, AnalysisError};
-use crate::sweep::{ResistivityUncertainty, SweepPoint, SymmetrizeSettings};
+use mobilis_physics::sweep::{ResistivityUncertainty, SweepPoint, SymmetrizeSettings};
 use polars::prelude::DataFrame;
 use serde::Deserialize;
 use serde_json::{json, Map, Value};

@@ -44,7 +44,7 @@
 //!
 //! d_sigma(B) = sigma(B) - sigma(0) = alpha (e^2 / 2 pi^2 hbar) [psi(1/2 + B_phi / B) - ln(B_phi / B)],
 //!
-//! B_phi = hbar / (4 e l_phi^2), psi the digamma function ([`crate::special`]). The bracket
+//! B_phi = hbar / (4 e l_phi^2), psi the digamma function ([`mobilis_numerics::special`]). The bracket
 //! is positive and grows like ln(B / B_phi) at B >> B_phi and like (B / B_phi)^2 / 24 at
 //! B << B_phi. alpha = -1/2 per channel is weak antilocalization (conductance falls with
 //! field), positive alpha weak localization. The function is even in B and zero at B = 0
@@ -63,8 +63,8 @@ use std::f64::consts::PI;
 use super::tensor::SweepNoise;
 use super::{require_finite, require_non_negative, require_positive, ForwardError};
 use crate::constants::{BOLTZMANN_J_PER_K, ELECTRON_MASS_KG, ELEMENTARY_CHARGE_C, PLANCK_J_S, REDUCED_PLANCK_J_S};
-use crate::noise::Rng;
-use crate::special::digamma_half_shift_minus_ln;
+use mobilis_numerics::noise::Rng;
+use mobilis_numerics::special::digamma_half_shift_minus_ln;
 
 /// 2 pi^2 k_B m_0 / (hbar e) in T/K: X = this x (m*/m_0) x T / B (14.69317 T/K).
 pub const LK_FIELD_PER_KELVIN: f64 =

@@ -38,9 +38,9 @@
 
 use super::{require_finite, require_non_negative, require_positive, ForwardError};
 use crate::contacts::{Configuration, ResistanceFamily};
-use crate::noise::Rng;
 use crate::readings::RawReading;
 use crate::van_der_pauw::resistances_for;
+use mobilis_numerics::noise::Rng;
 
 /// How the lab reverses the current.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

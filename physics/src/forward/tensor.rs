@@ -48,8 +48,8 @@
 
 use super::{require_finite, require_non_negative, require_positive, ForwardError};
 use crate::constants::ELEMENTARY_CHARGE_C;
-use crate::noise::Rng;
 use crate::sweep::{ResistivityUncertainty, SweepPoint};
+use mobilis_numerics::noise::Rng;
 
 /// Electron or hole.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]

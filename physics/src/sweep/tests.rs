@@ -4,7 +4,7 @@ use super::*;
 use crate::forward::tensor::{
     resistivity_tensor, symmetric_fields, synthetic_sweep, Carrier, SweepImperfections, SweepNoise,
 };
-use crate::noise::Rng;
+use mobilis_numerics::noise::Rng;
 
 // Onsager 1931: L. Onsager, Phys. Rev. 38, 2265 (reciprocal relations: rho_xx(B) = rho_xx(-B),
 // rho_xy(B) = -rho_xy(-B)).

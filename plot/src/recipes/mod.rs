@@ -432,7 +432,7 @@ pub(crate) const FIELD_SETPOINT_T: f64 = 5e-3;
 /// by the roundest number within half that tolerance of its mean ([`roundest`]): a sample
 /// measured at 0.4997-0.5002 T is one series "0.5 T", not ten series of exact means.
 pub(crate) fn nominal_keys(values: &[f64], rows: &[usize], setpoint: Setpoint) -> Vec<Option<String>> {
-    let grouping = mobilis_core::sweep_table::TemperatureGrouping::default();
+    let grouping = mobilis_sdk::sweep_table::TemperatureGrouping::default();
     let mut sorted: Vec<(f64, usize)> = rows
         .iter()
         .filter(|&&r| values[r].is_finite())

@@ -20,7 +20,7 @@ pub mod materials;
 pub mod purity;
 pub mod scattering;
 
-mobilis_core::export_plugin!(
+mobilis_sdk::export_plugin!(
     name: "carriers",
     analyses: [
         analyses::freeze_out_fit::FreezeOutFitAnalysis,

@@ -4,12 +4,12 @@
 //! and quality flags.
 //!
 //! This file is the table glue: the physics is in [`reduce`] and knows nothing of
-//! DataFrames; the C side is written by `mobilis_core::export_plugin!`.
+//! DataFrames; the C side is written by `mobilis_sdk::export_plugin!`.
 
 pub mod reduce;
 
-use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
-use mobilis_core::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
+use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
+use mobilis_sdk::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
 use polars::prelude::*;
 use polars_arrow::bitmap::Bitmap;
 use reduce::{
@@ -624,7 +624,7 @@ fn contact_columns<'a>(frame: &'a DataFrame, storage: [&'a mut Vec<i64>; 4]) -> 
                 "reading {row}: `contacts` is empty; every reading needs its configuration, such as \"21,34\""
             ))
         })?;
-        let contacts = mobilis_core::contacts::parse_pair_notation(cell)
+        let contacts = mobilis_physics::contacts::parse_pair_notation(cell)
             .map_err(|error| AnalysisError::InvalidInput(format!("reading {row}: {error}")))?;
         parsed.push(contacts);
     }
@@ -900,7 +900,7 @@ impl Analysis for HallReduce {
     }
 }
 
-mobilis_core::export_plugin!(name: "hall", analyses: [HallReduce]);
+mobilis_sdk::export_plugin!(name: "hall", analyses: [HallReduce]);
 
 #[cfg(test)]
 mod tests {
@@ -908,9 +908,11 @@ mod tests {
     //! summary keys out, through the SDK without the C boundary.
 
     use super::*;
-    use mobilis_core::forward::readings::{van_der_pauw_readings, MeasurementProtocol, VanDerPauwSample, VoltageNoise};
-    use mobilis_core::noise::Rng;
-    use mobilis_core::sdk::run_typed;
+    use mobilis_numerics::noise::Rng;
+    use mobilis_physics::forward::readings::{
+        van_der_pauw_readings, MeasurementProtocol, VanDerPauwSample, VoltageNoise,
+    };
+    use mobilis_sdk::sdk::run_typed;
 
     fn readings_frame() -> DataFrame {
         let sample = VanDerPauwSample::ideal("w1", 77.0, 300.0, 1.1, -600.0);
@@ -923,8 +925,9 @@ mod tests {
         };
         let readings = van_der_pauw_readings(&sample, &protocol, &mut Rng::seeded(3)).unwrap();
         let floats =
-            |get: fn(&mobilis_core::readings::RawReading) -> f64| readings.iter().map(get).collect::<Vec<f64>>();
-        let ints = |get: fn(&mobilis_core::readings::RawReading) -> i64| readings.iter().map(get).collect::<Vec<i64>>();
+            |get: fn(&mobilis_physics::readings::RawReading) -> f64| readings.iter().map(get).collect::<Vec<f64>>();
+        let ints =
+            |get: fn(&mobilis_physics::readings::RawReading) -> i64| readings.iter().map(get).collect::<Vec<i64>>();
         DataFrame::new(
             readings.len(),
             vec![

@@ -9,7 +9,7 @@
 //!
 //! 1. **Validation.** Every reading needs a finite temperature above 0 K, a finite field,
 //!    current and voltage, a nonzero current, and contacts that form a configuration of its
-//!    sample's geometry (`mobilis_core::contacts`). An invalid reading is an error naming its
+//!    sample's geometry (`mobilis_physics::contacts`). An invalid reading is an error naming its
 //!    0-based index; with [`ReduceSettings::skip_invalid_readings`] it is dropped, counted and
 //!    reported as a warning instead (the first [`DETAILED_WARNINGS`] individually, the rest in
 //!    one summary line, so a bad million-row import does not produce a million warnings; the
@@ -56,7 +56,7 @@
 //!    |direct - reciprocal| / mean, the larger of the two families. When one family is
 //!    absent the sample is assumed symmetric (R_B = R_A, `missing_configurations`) and the
 //!    uncertainty propagates as fully correlated. The sheet resistance solves van der Pauw's
-//!    equation exactly (`mobilis_core::van_der_pauw`; geometry factor f from the same
+//!    equation exactly (`mobilis_physics::van_der_pauw`; geometry factor f from the same
 //!    solution) and its uncertainty uses the exact gradient. A resistance that is not
 //!    positive, which no uniform sample gives in canonical orientation, nulls the sheet
 //!    resistance and mobility and raises `nonpositive_resistance` with a warning rather than
@@ -152,7 +152,7 @@
 //!
 //! - Sample names are interned once (consecutive readings of one sample skip the hash).
 //! - A reading's contacts are classified by one look-up in a table of every contact
-//!   assignment, built per call by the classifiers of `mobilis_core::contacts`; only a
+//!   assignment, built per call by the classifiers of `mobilis_physics::contacts`; only a
 //!   refused assignment asks the classifier again, for its message. Readings are read
 //!   straight from the input columns and validated independently (in parallel above 20,000
 //!   readings) into one buffer of 40-byte records sized once; an invalid one is marked,
@@ -195,8 +195,8 @@ mod tests;
 
 use std::collections::HashMap;
 
-use mobilis_core::contacts::{classify_hall_bar, classify_van_der_pauw, Classified, Configuration, ContactError};
-pub use mobilis_core::readings::RawReading;
+use mobilis_physics::contacts::{classify_hall_bar, classify_van_der_pauw, Classified, Configuration, ContactError};
+pub use mobilis_physics::readings::RawReading;
 
 use cells::{
     cell_key, gap_clusters, runs_by_key, setpoint_clusters, summarize_cell, CellSummary, NoiseEvidence, Prepared,
@@ -218,7 +218,7 @@ pub const DETAILED_WARNINGS: usize = 20;
 pub enum Geometry {
     /// Four contacts 1 to 4 on the perimeter, counterclockwise seen from the +B side.
     VanDerPauw,
-    /// Six contacts (see `mobilis_core::contacts`): `length_m` is the distance between the
+    /// Six contacts (see `mobilis_physics::contacts`): `length_m` is the distance between the
     /// longitudinal voltage contacts (centre to centre), `width_m` the bar width.
     HallBar { length_m: f64, width_m: f64 },
 }
@@ -281,7 +281,7 @@ pub struct Calibration {
 
 /// The values assumed when a calibration is not stated (common practice, shared by every
 /// analysis that applies calibrations).
-pub use mobilis_core::calibration::{
+pub use mobilis_physics::calibration::{
     DEFAULT_CURRENT_CALIBRATION_REL, DEFAULT_FIELD_CALIBRATION_REL, DEFAULT_TEMPERATURE_ACCURACY_K,
     DEFAULT_VOLTAGE_CALIBRATION_REL,
 };
@@ -1259,7 +1259,7 @@ fn validate_sample(info: &SampleInfo) -> Result<(), ReduceError> {
 }
 
 /// The classification of every contact assignment with contacts 1 to 6, per geometry, made
-/// once per call by the classifiers of `mobilis_core::contacts` themselves: a reading then
+/// once per call by the classifiers of `mobilis_physics::contacts` themselves: a reading then
 /// costs one table look-up instead of a search over the configurations. An entry is the
 /// slot (bits 0-2), a reversed current (bit 3) and a reversed voltmeter (bit 4), or
 /// [`ContactTables::INVALID`], for which the classifier is asked again for its error.

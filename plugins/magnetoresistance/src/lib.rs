@@ -6,7 +6,7 @@
 //!   temperature ([`oscillations`]);
 //! - `mr.weak_localization`: the Hikami-Larkin-Nagaoka fit ([`weak_localization`]).
 //!
-//! Sweeps are symmetrized by `mobilis_core::sweep`; [`analyses`] is the table glue.
+//! Sweeps are symmetrized by `mobilis_physics::sweep`; [`analyses`] is the table glue.
 
 pub mod analyses;
 pub mod kohler;
@@ -16,7 +16,7 @@ pub mod symmetrize;
 pub mod two_band;
 pub mod weak_localization;
 
-mobilis_core::export_plugin!(
+mobilis_sdk::export_plugin!(
     name: "magnetoresistance",
     analyses: [
         analyses::classical::SymmetrizeAnalysis,

@@ -14,7 +14,7 @@
 //! two dimensions F fixes the sheet density, n = g_s e F / h (g_s the spin degeneracy of the
 //! levels, 2 unless the spin splitting is resolved). Its amplitude is damped by the
 //! Lifshitz-Kosevich factors R_T = X / sinh X, X = c m* T / B, and R_D = exp(-c m* T_D / B),
-//! c = 2 pi^2 k_B m_0 / (hbar e) = 14.69 T/K (`mobilis_core::forward::oscillations`, which
+//! c = 2 pi^2 k_B m_0 / (hbar e) = 14.69 T/K (`mobilis_physics::forward::oscillations`, which
 //! also generates the synthetic sweeps of the tests, so that simulated and fitted physics
 //! are the same code). Lifshitz and Kosevich, Sov. Phys. JETP 2, 636 (1956); Shoenberg,
 //! Magnetic Oscillations in Metals (1984).
@@ -67,9 +67,9 @@
 //!    with a few points per period. If the sweep samples fewer than 4 points per period
 //!    anywhere in the window (the field step is widest in 1/B at B_min), a warning says so.
 //! 5. **Spectrum and lines.** Each sweep's grid is multiplied by the window function
-//!    (`mobilis_core::fft::Window`, Hann by default, rectangular or Blackman), zero-padded
+//!    (`mobilis_numerics::fft::Window`, Hann by default, rectangular or Blackman), zero-padded
 //!    to a power of two at least `zero_padding` (default 8) times the grid, and transformed
-//!    (`mobilis_core::fft`); the amplitude is scaled so that a sinusoid on a bin shows its
+//!    (`mobilis_numerics::fft`); the amplitude is scaled so that a sinusoid on a bin shows its
 //!    amplitude in ohm per square. Lines are searched in the spectrum of the reference
 //!    sweep (the coldest; the first given among equals) between `frequency_min_t` (default
 //!    `min_periods` / (1/B_min - 1/B_max): fewer periods than that in the window are not
@@ -101,7 +101,7 @@
 //!    often a few per cent. The lines are refined by fitting
 //!    sum_k A_k exp(-lambda_k (x - x_c)) cos(2 pi F_k (x - x_c) + psi_k) (x = 1/B, x_c the
 //!    window centre, where phase and frequency are nearly uncorrelated) to the reference
-//!    sweep's points with bounded Levenberg-Marquardt (`mobilis_core::fit`), from the FFT
+//!    sweep's points with bounded Levenberg-Marquardt (`mobilis_numerics::fit`), from the FFT
 //!    values (F within 1.5 / span of them) and linear least-squares amplitudes and phases,
 //!    two starts in lambda. The exponential envelope stands in for R_T R_D at one
 //!    temperature; F, its standard error (scaled by the scatter), the phase phi of
@@ -203,7 +203,7 @@
 //!   whose strongest line is another line, or that fails, is left out with a warning. This
 //!   costs three more passes of the analysis.
 //! - **Calibrations** (Type B, stated per call; when not given the common-practice values of
-//!   `mobilis_core::calibration` are assumed, 0.5 % and 0.02 K, and the summary lists them
+//!   `mobilis_physics::calibration` are assumed, 0.5 % and 0.02 K, and the summary lists them
 //!   under `calibrations_not_stated`): `field_calibration_rel` scales F
 //!   and n, and m* (X = c m* T / B), by the same relative amount, and leaves T_D (c m* T_D /
 //!   B is what the data fix); `temperature_accuracy_k`, a thermometer error common to every
@@ -226,11 +226,11 @@
 //! need only the field window, so all four run at once on the rayon pool; a variant computes
 //! only the reference sweep's spectrum (the line search reads no other) and skips the
 //! narrow-window mass when the waveform fit's mass is reported (it reads only the reported
-//! mass). The transforms (`mobilis_core::fft`) share one twiddle table and skip the butterfly
+//! mass). The transforms (`mobilis_numerics::fft`) share one twiddle table and skip the butterfly
 //! stages that only copy the zero padding. None of this changes a bit of the result
 //! (`OSCILLATIONS_COMPARE_OUTPUT` of the bench checks it). What remains is mostly the
 //! Levenberg-Marquardt fits (the waveform fit over every sweep's points, three starts, in
-//! each pass: the singular value decompositions of `mobilis_core::fit` and the evaluations
+//! each pass: the singular value decompositions of `mobilis_numerics::fit` and the evaluations
 //! of R_T = X / sinh X, exp and cos per point) and the 8-fold zero-padded transforms
 //! (65,536 points per 4,000-point sweep, 2^20 for a 40,000-point ramp).
 //!
@@ -253,8 +253,8 @@ use std::f64::consts::PI;
 
 use rayon::prelude::*;
 
-use mobilis_core::fft::{amplitude_spectrum, AmplitudeSpectrum, Window};
-use mobilis_core::forward::oscillations::{
+use mobilis_numerics::fft::{amplitude_spectrum, AmplitudeSpectrum, Window};
+use mobilis_physics::forward::oscillations::{
     sheet_density_from_frequency_m2, thermal_damping, thermal_damping_log_derivative, LK_FIELD_PER_KELVIN,
 };
 

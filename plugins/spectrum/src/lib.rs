@@ -6,7 +6,7 @@
 //! - `spectrum.mobility`: the Beck-Anderson envelope and a regularized mobility spectrum with
 //!   its peaks ([`mobility_spectrum`]).
 //!
-//! Sweeps are symmetrized by `mobilis_core::sweep` (shared with the magnetoresistance
+//! Sweeps are symmetrized by `mobilis_physics::sweep` (shared with the magnetoresistance
 //! plugin); [`analyses`] is the table glue.
 
 pub mod analyses;
@@ -14,7 +14,7 @@ pub mod mobility_spectrum;
 pub mod multi_carrier;
 pub mod reduction;
 
-mobilis_core::export_plugin!(
+mobilis_sdk::export_plugin!(
     name: "spectrum",
     analyses: [analyses::MultiCarrierFitAnalysis, analyses::MobilitySpectrumAnalysis]
 );

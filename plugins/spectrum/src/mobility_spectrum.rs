@@ -4,10 +4,10 @@
 //! peaks are integrated into a sheet density and a mean mobility each.
 //!
 //! Pure computation: no DataFrames, no I/O. The plugin's table glue turns the `sweep` role
-//! into [`TensorPoint`]s (`mobilis_core::sweep`: symmetrize in field, then invert the
+//! into [`TensorPoint`]s (`mobilis_physics::sweep`: symmetrize in field, then invert the
 //! resistivity tensor; [`mobility_spectrum_of_sweep`] does both) and the
 //! [`MobilitySpectrum`] back into a table and a summary. Progress and cancellation come in
-//! through a [`Monitor`], which `mobilis_core::sdk::Host` implements.
+//! through a [`Monitor`], which `mobilis_sdk::sdk::Host` implements.
 //!
 //! # Model
 //!
@@ -146,12 +146,12 @@ pub mod summary;
 #[cfg(test)]
 mod tests;
 
-use mobilis_core::constants::ELEMENTARY_CHARGE_C;
-pub use mobilis_core::forward::tensor::CarrierKind;
-use mobilis_core::noise::Rng;
-use mobilis_core::sdk::Host;
-use mobilis_core::sweep::{conductivity_points, symmetrize, SweepPoint, SymmetrizeSettings, Symmetrized};
-pub use mobilis_core::sweep::{TensorPoint, TensorUncertainty};
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::constants::ELEMENTARY_CHARGE_C;
+pub use mobilis_physics::forward::tensor::CarrierKind;
+use mobilis_physics::sweep::{conductivity_points, symmetrize, SweepPoint, SymmetrizeSettings, Symmetrized};
+pub use mobilis_physics::sweep::{TensorPoint, TensorUncertainty};
+use mobilis_sdk::sdk::Host;
 use rayon::prelude::*;
 
 use crate::multi_carrier::budget::{floor_uncertainties, reading_reuse_factor};

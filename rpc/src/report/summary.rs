@@ -18,7 +18,7 @@
 
 use super::{escape, SAMPLE_COLUMN};
 use crate::store::{Dataset, Provenance};
-use mobilis_core::quote::{self, Notation};
+use mobilis_physics::quote::{self, Notation};
 use polars::prelude::*;
 use serde_json::{Map, Value};
 use std::fmt::Write;

@@ -2,11 +2,11 @@
 //!
 //! Every message names what is wrong (the 0-based point index, the value) and what to change.
 //! `Display` is written by hand, as in the other plugins, so that the module needs nothing
-//! beyond the standard library and mobilis-core.
+//! beyond the standard library and the mobilis crates it builds on.
 
 use std::fmt;
 
-use mobilis_core::fit::FitError;
+use mobilis_numerics::fit::FitError;
 
 use super::CarrierType;
 use crate::materials::MaterialError;

@@ -4,8 +4,8 @@
 //!
 //! The physics and the choices behind it are documented in the parent module.
 
-use mobilis_core::constants::ELEMENTARY_CHARGE_C;
-use mobilis_core::van_der_pauw;
+use mobilis_physics::constants::ELEMENTARY_CHARGE_C;
+use mobilis_physics::van_der_pauw;
 use std::f64::consts::{LN_2, PI};
 
 use super::cells::{

@@ -1,7 +1,7 @@
 //! Validation, the field window, background removal and resampling on a uniform 1/B grid
 //! (steps 1 to 4 of the parent module's documentation).
 
-use mobilis_core::linalg::Matrix;
+use mobilis_numerics::linalg::Matrix;
 
 use super::{Background, OscillationError, OscillationSettings, OscillationSweep};
 

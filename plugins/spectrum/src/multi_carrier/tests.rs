@@ -1,10 +1,10 @@
 //! Tests of the `multi_carrier` module: published values, recovery from forward-generated data, coverage of the uncertainties, and bad input.
 
 use super::*;
-use mobilis_core::forward::tensor::{
+use mobilis_physics::forward::tensor::{
     resistivity_tensor, symmetric_fields, synthetic_sweep, SweepImperfections, SweepNoise,
 };
-use mobilis_core::sweep::{conductivity_point, SweepError};
+use mobilis_physics::sweep::{conductivity_point, SweepError};
 
 mod coverage;
 mod recovery;

@@ -8,6 +8,8 @@
 //! - [`van_der_pauw`]: the exact van der Pauw relation and its derivatives.
 //! - [`contacts`]: contact pairs, their notation and the measurement configurations they form.
 //! - [`readings`]: one raw reading of a resistivity or Hall measurement.
+//! - [`field_tensor`]: the resistivity and conductivity tensors at one field, each the
+//!   inverse of the other.
 //! - [`forward`]: forward models, parameters in and raw readings out, shared by the demo
 //!   generator, the property tests and the plugins' fits.
 //! - [`sweep`]: field sweeps: symmetrization in field, resistivity <-> conductivity tensor,
@@ -25,6 +27,7 @@
 pub mod calibration;
 pub mod constants;
 pub mod contacts;
+pub mod field_tensor;
 pub mod forward;
 pub mod quote;
 pub mod readings;

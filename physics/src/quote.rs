@@ -4,7 +4,7 @@
 //! with one power of ten; and the unit the trade quotes a summary value in (cm^-3, cm^2/(V s),
 //! ohm cm, meV, ps, nm ...), from the SI suffix of its name.
 
-use crate::units::{customary_display, format_number};
+use crate::units::{customary_display, format_number, superscript_digit, SUPERSCRIPT_DIGITS};
 
 /// How a power of ten is written: `3.000e15 ± 0.038e15` for a terminal or a text file,
 /// `(3.000 ± 0.038) × 10¹⁵` for a page that a person prints.
@@ -33,9 +33,6 @@ fn fixed(value: f64, decimals: i32) -> String {
     }
 }
 
-/// The Unicode superscript digits 0 to 9.
-const SUPERSCRIPT_DIGITS: [char; 10] = ['⁰', '¹', '²', '³', '⁴', '⁵', '⁶', '⁷', '⁸', '⁹'];
-
 /// Digits as Unicode superscripts, so that a power of ten survives copying and PDF text.
 pub fn superscript(exponent: i32) -> String {
     exponent
@@ -43,12 +40,6 @@ pub fn superscript(exponent: i32) -> String {
         .chars()
         .map(|c| c.to_digit(10).map_or('⁻', |d| SUPERSCRIPT_DIGITS[d as usize]))
         .collect()
-}
-
-/// The digit a superscript digit stands for (`²` -> `2`).
-pub fn superscript_digit(c: char) -> Option<char> {
-    let position = SUPERSCRIPT_DIGITS.iter().position(|&digit| digit == c)?;
-    char::from_digit(position as u32, 10)
 }
 
 /// An exponent written as [`superscript`] writes it (`⁻¹⁵` -> -15).

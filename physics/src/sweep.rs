@@ -96,7 +96,7 @@
 //! # Tensor conversion
 //!
 //! [`conductivity_point`] and [`resistivity_point`] convert between (rho_xx, rho_xy) and
-//! (sigma_xx, sigma_xy) with the inversion of [`crate::forward::tensor::invert_tensor`];
+//! (sigma_xx, sigma_xy) with the inversion of [`crate::field_tensor::invert_tensor`];
 //! the 2 x 2 covariance propagates to first order through the Jacobian of the inversion,
 //! 1/D^2 [[b^2 - a^2, -2ab], [-2ab, a^2 - b^2]] at (a, b), D = a^2 + b^2. The conversion
 //! correlates the two components even when the inputs are independent, so the result
@@ -110,7 +110,57 @@
 
 use std::collections::BTreeMap;
 
-use crate::forward::tensor::{invert_tensor, ResistivityTensor};
+use crate::field_tensor::{invert_tensor, ResistivityTensor};
+
+// ---------------------------------------------------------------------------------------
+// Sweeps by temperature: how the rows of a table that holds one sample's sweeps at several
+// temperatures are told apart (a gap between consecutive sorted temperatures larger than the
+// tolerance starts a new sweep; see the `sweep_table` module of mobilis-sdk).
+
+/// Default of `temperature_tolerance_K`: consecutive sorted temperatures further apart than
+/// this (and than the relative tolerance) belong to different sweeps, K. Below the 0.1 K
+/// steps of a sub-kelvin series, above the scatter of a stage held at one setpoint (common
+/// practice).
+pub const DEFAULT_TEMPERATURE_TOLERANCE_K: f64 = 0.05;
+
+/// Default of `temperature_relative_tolerance`: the same gap relative to T, which matters
+/// above about 10 K, where a stage scatters by a fraction of T rather than by mK (common
+/// practice).
+pub const DEFAULT_TEMPERATURE_RELATIVE_TOLERANCE: f64 = 0.005;
+
+/// How the rows of a table are told apart into sweeps by temperature (the `sweep_table`
+/// module of mobilis-sdk describes the rule).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct TemperatureGrouping {
+    /// K, 0 or more.
+    pub tolerance_k: f64,
+    /// Dimensionless, 0 or more.
+    pub relative_tolerance: f64,
+}
+
+impl Default for TemperatureGrouping {
+    fn default() -> Self {
+        TemperatureGrouping {
+            tolerance_k: DEFAULT_TEMPERATURE_TOLERANCE_K,
+            relative_tolerance: DEFAULT_TEMPERATURE_RELATIVE_TOLERANCE,
+        }
+    }
+}
+
+impl TemperatureGrouping {
+    /// The largest gap between consecutive temperatures of one sweep at `temperature_k`, K.
+    pub fn allowed_gap_k(&self, temperature_k: f64) -> f64 {
+        self.tolerance_k.max(self.relative_tolerance * temperature_k.abs())
+    }
+
+    /// The two tolerances as a message names them.
+    pub fn describe(&self) -> String {
+        format!(
+            "temperature_tolerance_K = {} K, temperature_relative_tolerance = {}",
+            self.tolerance_k, self.relative_tolerance
+        )
+    }
+}
 
 #[cfg(test)]
 mod tests;

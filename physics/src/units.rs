@@ -52,7 +52,6 @@
 //! reciprocal, so that 3 kG becomes 0.3 T, the double nearest the exact value, where 3 * 0.1
 //! would give 0.30000000000000004.
 
-use crate::quote::superscript_digit;
 use std::collections::HashMap;
 use std::fmt;
 use std::sync::OnceLock;
@@ -864,6 +863,16 @@ pub fn customary_display(column_name: &str) -> Option<Display> {
             offset: 0.0,
         })
     })
+}
+
+/// The Unicode superscript digits 0 to 9: lab unit names write powers with them (`cm⁻³`), and
+/// [`crate::quote`] writes powers of ten with them.
+pub(crate) const SUPERSCRIPT_DIGITS: [char; 10] = ['⁰', '¹', '²', '³', '⁴', '⁵', '⁶', '⁷', '⁸', '⁹'];
+
+/// The digit a superscript digit stands for (`²` -> `2`).
+pub fn superscript_digit(c: char) -> Option<char> {
+    let position = SUPERSCRIPT_DIGITS.iter().position(|&digit| digit == c)?;
+    char::from_digit(position as u32, 10)
 }
 
 #[cfg(test)]

@@ -1238,7 +1238,7 @@ fn temperatures_group_by_setpoint_and_are_named_by_their_nominal_value() {
 
 #[test]
 fn nominal_values_are_the_roundest_within_the_tolerance() {
-    use crate::recipes::{nominal_keys, roundest, Setpoint};
+    use crate::recipes::context::{nominal_keys, roundest, Setpoint};
     assert_eq!(roundest(0.49996, 2.5e-3), 0.5);
     assert_eq!(roundest(0.5002, 2.5e-3), 0.5);
     assert_eq!(roundest(9.0001, 2.5e-3), 9.0);

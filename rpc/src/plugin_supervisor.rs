@@ -12,7 +12,7 @@
 //! first asked to stop (the plugin's cancel check turns true); a worker that has not
 //! answered after [`STOP_GRACE`] is killed (SIGKILL).
 
-use crate::plugin_host::{CallControl, InvokeFailure, InvokeSuccess, PluginIdentity};
+use crate::plugin_call::{CallControl, InvokeFailure, InvokeSuccess, PluginIdentity};
 use crate::worker_protocol::{self as protocol, Frame, FromWorker, ToWorker};
 use mobilis_sdk::abi::{self, PluginDeclaration};
 use polars::prelude::DataFrame;

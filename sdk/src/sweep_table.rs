@@ -21,67 +21,29 @@
 use crate::abi::{ColumnSpec, ColumnType, InputRole};
 use crate::sdk::{self, AnalysisError};
 use mobilis_physics::sweep::{ResistivityUncertainty, SweepPoint, SymmetrizeSettings};
+// The grouping is physics (the figures use it without tables); it is named here too because
+// it is what the `sweep` role's temperature parameters set.
+pub use mobilis_physics::sweep::{
+    TemperatureGrouping, DEFAULT_TEMPERATURE_RELATIVE_TOLERANCE, DEFAULT_TEMPERATURE_TOLERANCE_K,
+};
 use polars::prelude::DataFrame;
 use serde::Deserialize;
 use serde_json::{json, Map, Value};
 
-/// Default of `temperature_tolerance_K`: consecutive sorted temperatures further apart than
-/// this (and than the relative tolerance) belong to different sweeps, K. Below the 0.1 K
-/// steps of a sub-kelvin series, above the scatter of a stage held at one setpoint (common
-/// practice).
-pub const DEFAULT_TEMPERATURE_TOLERANCE_K: f64 = 0.05;
-
-/// Default of `temperature_relative_tolerance`: the same gap relative to T, which matters
-/// above about 10 K, where a stage scatters by a fraction of T rather than by mK (common
-/// practice).
-pub const DEFAULT_TEMPERATURE_RELATIVE_TOLERANCE: f64 = 0.005;
-
 /// A sweep spanning more than this many allowed gaps is reported: it may be chained.
 const CHAINED_SPAN_GAPS: f64 = 10.0;
 
-/// How the rows of a table are told apart into sweeps by temperature (see the module
-/// documentation).
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct TemperatureGrouping {
-    /// K, 0 or more.
-    pub tolerance_k: f64,
-    /// Dimensionless, 0 or more.
-    pub relative_tolerance: f64,
-}
-
-impl Default for TemperatureGrouping {
-    fn default() -> Self {
-        TemperatureGrouping {
-            tolerance_k: DEFAULT_TEMPERATURE_TOLERANCE_K,
-            relative_tolerance: DEFAULT_TEMPERATURE_RELATIVE_TOLERANCE,
+/// Refuses a grouping whose tolerances are negative or not finite.
+fn validate_grouping(grouping: &TemperatureGrouping) -> Result<(), AnalysisError> {
+    for (name, value) in [
+        ("temperature_tolerance_K", grouping.tolerance_k),
+        ("temperature_relative_tolerance", grouping.relative_tolerance),
+    ] {
+        if !(value.is_finite() && value >= 0.0) {
+            return Err(invalid(format!("{name} is {value}; give a finite value of 0 or more")));
         }
     }
-}
-
-impl TemperatureGrouping {
-    /// The largest gap between consecutive temperatures of one sweep at `temperature_k`, K.
-    pub fn allowed_gap_k(&self, temperature_k: f64) -> f64 {
-        self.tolerance_k.max(self.relative_tolerance * temperature_k.abs())
-    }
-
-    fn validate(&self) -> Result<(), AnalysisError> {
-        for (name, value) in [
-            ("temperature_tolerance_K", self.tolerance_k),
-            ("temperature_relative_tolerance", self.relative_tolerance),
-        ] {
-            if !(value.is_finite() && value >= 0.0) {
-                return Err(invalid(format!("{name} is {value}; give a finite value of 0 or more")));
-            }
-        }
-        Ok(())
-    }
-
-    fn describe(&self) -> String {
-        format!(
-            "temperature_tolerance_K = {} K, temperature_relative_tolerance = {}",
-            self.tolerance_k, self.relative_tolerance
-        )
-    }
+    Ok(())
 }
 
 fn invalid(message: impl Into<String>) -> AnalysisError {
@@ -253,7 +215,7 @@ pub fn sweeps_by_temperature(
     frame: &DataFrame,
     grouping: &TemperatureGrouping,
 ) -> Result<Vec<SweepTable>, AnalysisError> {
-    grouping.validate()?;
+    validate_grouping(grouping)?;
     let sample = single_sample(frame)?;
     let fields = sdk::float_column(frame, "field_T")?;
     let rho_xx = sdk::float_column(frame, "rho_xx_ohm_sq")?;

@@ -1,6 +1,6 @@
 //! The weighted straight line y = intercept + slope x in closed form.
 
-use super::FitError;
+use super::error::FitError;
 
 /// A fitted line and its uncertainties.
 #[derive(Debug, Clone, PartialEq)]

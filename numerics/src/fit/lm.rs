@@ -2,7 +2,7 @@
 
 use std::cell::Cell;
 
-use super::FitError;
+use super::error::FitError;
 use crate::linalg::{dot, norm, Matrix, Svd};
 
 /// Box constraints lower_j <= p_j <= upper_j; infinite sides are allowed.

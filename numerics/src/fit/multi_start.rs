@@ -1,7 +1,7 @@
 //! Multi-start: the same problem from several starting points, the best converged run kept.
 
-use super::lm::RawRun;
-use super::{FitError, LeastSquares, LmFit, LmOptions, Termination};
+use super::error::FitError;
+use super::lm::{LeastSquares, LmFit, LmOptions, RawRun, Termination};
 
 /// When two converged runs count as the same minimum: both conditions must hold.
 #[derive(Debug, Clone, Copy, PartialEq)]

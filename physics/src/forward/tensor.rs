@@ -50,6 +50,9 @@ use super::{require_finite, require_non_negative, require_positive, ForwardError
 use crate::constants::ELEMENTARY_CHARGE_C;
 use crate::sweep::{ResistivityUncertainty, SweepPoint};
 use mobilis_numerics::noise::Rng;
+// The tensors at one field live below both the forward models and the sweeps, which use
+// them; they are named here too because they are what this model returns.
+pub use crate::field_tensor::{invert_tensor, ConductivityTensor, ResistivityTensor};
 
 /// Electron or hole.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]
@@ -101,22 +104,6 @@ pub struct Carrier {
     pub sheet_density_m2: f64,
     /// Drift mobility, m^2/(V s), positive.
     pub mobility_m2_per_vs: f64,
-}
-
-/// Sheet conductivity tensor at one field: sigma_xx and sigma_xy in S (S/m for a volume).
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct ConductivityTensor {
-    pub sigma_xx_s: f64,
-    /// Positive for holes at positive field.
-    pub sigma_xy_s: f64,
-}
-
-/// Sheet resistivity tensor at one field: rho_xx in ohm per square, rho_xy in ohm.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct ResistivityTensor {
-    pub rho_xx_ohm_sq: f64,
-    /// Positive for holes at positive field.
-    pub rho_xy_ohm: f64,
 }
 
 impl Carrier {
@@ -177,38 +164,6 @@ impl Carrier {
             sigma_xx_s: conductance / denominator,
             sigma_xy_s: self.kind.charge_sign() * conductance * mu_b / denominator,
         }
-    }
-}
-
-/// The inverse of a tensor in the convention of this module: (a, b) -> (a, b) / (a^2 + b^2).
-/// It maps (sigma_xx, sigma_xy) to (rho_xx, rho_xy) and back. Infinite or NaN when
-/// a = b = 0.
-pub fn invert_tensor(xx: f64, xy: f64) -> (f64, f64) {
-    // Scaled to avoid overflow of the squares for extreme magnitudes.
-    let scale = xx.abs().max(xy.abs());
-    if scale == 0.0 || !scale.is_finite() {
-        let determinant = xx * xx + xy * xy;
-        return (xx / determinant, xy / determinant);
-    }
-    let (a, b) = (xx / scale, xy / scale);
-    let determinant = (a * a + b * b) * scale;
-    (a / determinant, b / determinant)
-}
-
-impl ConductivityTensor {
-    pub fn to_resistivity(self) -> ResistivityTensor {
-        let (rho_xx_ohm_sq, rho_xy_ohm) = invert_tensor(self.sigma_xx_s, self.sigma_xy_s);
-        ResistivityTensor {
-            rho_xx_ohm_sq,
-            rho_xy_ohm,
-        }
-    }
-}
-
-impl ResistivityTensor {
-    pub fn to_conductivity(self) -> ConductivityTensor {
-        let (sigma_xx_s, sigma_xy_s) = invert_tensor(self.rho_xx_ohm_sq, self.rho_xy_ohm);
-        ConductivityTensor { sigma_xx_s, sigma_xy_s }
     }
 }
 

@@ -142,8 +142,6 @@ pub(crate) mod realistic;
 #[cfg(test)]
 mod tests;
 
-use std::fmt;
-
 use rayon::prelude::*;
 
 use mobilis_numerics::fit::{
@@ -153,57 +151,17 @@ use mobilis_numerics::fit::{
 use mobilis_numerics::linalg::Matrix;
 use mobilis_physics::constants::BOLTZMANN_EV_PER_K;
 use mobilis_physics::forward::mobility::hall_scattering_factor;
-use mobilis_physics::forward::statistics::{ACCEPTOR_DEGENERACY_DEFAULT, DONOR_DEGENERACY_DEFAULT};
 
 pub use error::{FreezeOutError, SeriesError};
 use model::{ln_majority_density, LevelParameters, TemperatureTerms};
 pub use model::{CompensatingLevel, FreezeOutModel};
 
+pub use crate::carrier_type::CarrierType;
 use crate::materials::Material;
 
 /// The smallest number of distinct temperatures for three parameters plus one degree of
 /// freedom.
 pub const MIN_TEMPERATURES: usize = 4;
-
-/// Which carriers dominate: electrons (n) or holes (p).
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
-pub enum CarrierType {
-    N,
-    P,
-}
-
-impl CarrierType {
-    /// "n" or "p", as in the `carrier_type` column of `hall.reduce`.
-    pub fn as_str(self) -> &'static str {
-        match self {
-            CarrierType::N => "n",
-            CarrierType::P => "p",
-        }
-    }
-
-    /// Parses "n" or "p" (also "N", "P", "electrons", "holes").
-    pub fn parse(text: &str) -> Option<CarrierType> {
-        match text.trim().to_ascii_lowercase().as_str() {
-            "n" | "electron" | "electrons" => Some(CarrierType::N),
-            "p" | "hole" | "holes" => Some(CarrierType::P),
-            _ => None,
-        }
-    }
-
-    /// The default degeneracy of the majority dopant level: 2 for donors, 4 for acceptors.
-    pub fn default_degeneracy(self) -> f64 {
-        match self {
-            CarrierType::N => DONOR_DEGENERACY_DEFAULT,
-            CarrierType::P => ACCEPTOR_DEGENERACY_DEFAULT,
-        }
-    }
-}
-
-impl fmt::Display for CarrierType {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        f.write_str(self.as_str())
-    }
-}
 
 /// One measured carrier density.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]

@@ -33,7 +33,7 @@
 
 use std::fmt;
 
-use crate::freeze_out::CarrierType;
+use crate::carrier_type::CarrierType;
 use mobilis_physics::constants::{BOLTZMANN_J_PER_K, ELECTRON_MASS_KG, PLANCK_J_S};
 use mobilis_physics::forward::statistics::{BandModel, DOS_REFERENCE_TEMPERATURE_K};
 

@@ -174,6 +174,7 @@ use std::f64::consts::PI;
 use crate::freeze_out::CarrierType;
 use crate::materials::Material;
 
+use crate::purity::ScatteringDensities;
 pub use crate::purity::{
     compare_densities, compare_with_upper_limit, ConsistencyTolerance, DensityComparison, DopantDensities, Estimate,
     PurityError, ReferenceBasis,
@@ -2039,4 +2040,17 @@ fn build_rows(
             }
         })
         .collect()
+}
+
+// Written here rather than beside `ScatteringDensities` so that the purity summary does not
+// import the scattering fit, which imports it.
+impl From<&ScatteringFit> for ScatteringDensities {
+    fn from(fit: &ScatteringFit) -> Self {
+        ScatteringDensities {
+            ionized_impurity_density_m3: fit.ionized_impurity_density_m3,
+            compensating_density_m3: fit.compensating_density_m3,
+            comparison: fit.comparison,
+            upper_limit_m3: fit.ionized_parameter_upper_limit_m3,
+        }
+    }
 }

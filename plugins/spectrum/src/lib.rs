@@ -11,6 +11,7 @@
 
 pub mod analyses;
 pub mod mobility_spectrum;
+pub mod monitor;
 pub mod multi_carrier;
 pub mod reduction;
 

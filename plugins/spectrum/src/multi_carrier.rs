@@ -116,7 +116,7 @@ use mobilis_physics::forward::tensor::sum_conductivity;
 use mobilis_physics::sweep::{conductivity_points, symmetrize};
 use rayon::prelude::*;
 
-use crate::mobility_spectrum::{Monitor, Unmonitored};
+use crate::monitor::{Monitor, Unmonitored};
 use model::Data;
 use seeds::LogBounds;
 

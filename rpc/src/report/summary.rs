@@ -16,7 +16,7 @@
 //! calibrations not stated, one field sign, counts that disagree, the run's warnings) go
 //! with each block.
 
-use super::{escape, SAMPLE_COLUMN};
+use super::text::{escape, SAMPLE_COLUMN};
 use crate::store::{Dataset, Provenance};
 use mobilis_physics::quote::{self, Notation};
 use polars::prelude::*;
@@ -469,7 +469,7 @@ pub fn blocks(sample: &str, datasets: &[(&Dataset, DataFrame)]) -> Vec<Block> {
             continue;
         };
         let name = &dataset.manifest.name;
-        let only_this_sample = super::samples_of(dataset).len() == 1;
+        let only_this_sample = super::text::samples_of(dataset).len() == 1;
         if analysis == "hall.reduce" && !is_summary_table {
             let mut block = Block::new(
                 format!(

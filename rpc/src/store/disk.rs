@@ -19,7 +19,7 @@
 //! the data pages stay as they are and only the footer is rewritten with the manifest added,
 //! so the stored file reads back to the very frame the import decoded.
 
-use super::{storage_error, Manifest};
+use super::manifest::{storage_error, Manifest};
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use polars::io::parquet::write::{ParquetCompression, StatisticsOptions};
 use polars::prelude::*;
@@ -445,7 +445,7 @@ pub fn read_dataset(path: &Path) -> Result<(DataFrame, Option<String>), String> 
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::store::{column_infos, Provenance, MANIFEST_FORMAT};
+    use crate::store::manifest::{column_infos, Provenance, MANIFEST_FORMAT};
 
     fn manifest_of(name: &str, frame: &DataFrame) -> Manifest {
         Manifest {

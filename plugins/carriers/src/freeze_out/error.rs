@@ -8,7 +8,7 @@ use std::fmt;
 
 use mobilis_numerics::fit::FitError;
 
-use super::CarrierType;
+use crate::carrier_type::CarrierType;
 use crate::materials::MaterialError;
 
 /// What is wrong with a temperature series of carrier densities (shared by the freeze-out

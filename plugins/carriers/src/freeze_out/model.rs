@@ -27,7 +27,7 @@
 use mobilis_physics::constants::BOLTZMANN_EV_PER_K;
 use mobilis_physics::forward::statistics::BandModel;
 
-use super::CarrierType;
+use crate::carrier_type::CarrierType;
 
 /// The level of the compensating species, when its occupancy is to be modelled.
 #[derive(Debug, Clone, Copy, PartialEq)]

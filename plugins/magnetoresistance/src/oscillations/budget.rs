@@ -2,7 +2,8 @@
 //! documentation): the fit's own standard errors, the spread over other backgrounds and a
 //! shorter window, and the stated field and thermometer calibrations.
 
-use super::{Background, OscillationAnalysis, OscillationBudget, OscillationSettings, UncertaintyBudget};
+use super::results::{OscillationAnalysis, OscillationBudget, UncertaintyBudget};
+use super::settings::{Background, OscillationSettings};
 
 /// The analysis spread and the per-sweep temperature stability both belong to the
 /// statistical part; they enter it as one quadrature term.

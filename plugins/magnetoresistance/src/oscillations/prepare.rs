@@ -3,7 +3,8 @@
 
 use mobilis_numerics::linalg::Matrix;
 
-use super::{Background, OscillationError, OscillationSettings, OscillationSweep};
+use super::error::OscillationError;
+use super::settings::{Background, OscillationSettings, OscillationSweep};
 
 /// Fewest points of a sweep inside the field window.
 pub const MIN_WINDOW_POINTS: usize = 16;

@@ -5,7 +5,7 @@ use mobilis_numerics::linalg::Matrix;
 use mobilis_physics::sweep::TensorPoint;
 
 use super::error::SpectrumError;
-use super::{GridRange, SpectrumSettings, MIN_DISTINCT_FIELDS};
+use super::settings::{GridRange, SpectrumSettings, MIN_DISTINCT_FIELDS};
 
 /// Fields within this (T) of the lowest of their group count as one when the distinct
 /// fields are counted.

@@ -38,7 +38,8 @@ use mobilis_numerics::nnls::{solve_gram, solve_gram_from, NnlsError, NnlsOptions
 use rayon::prelude::*;
 
 use super::error::SpectrumError;
-use super::{Monitor, RegularizationRule, RuleUsed};
+use super::settings::{RegularizationRule, RuleUsed};
+use crate::monitor::Monitor;
 
 const LAMBDA_MAX: f64 = 1.0;
 const LAMBDA_MIN: f64 = 1e-18;

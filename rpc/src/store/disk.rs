@@ -18,6 +18,12 @@
 //! keeps the source file's bytes instead of encoding them again ([`stage_parquet_source`]):
 //! the data pages stay as they are and only the footer is rewritten with the manifest added,
 //! so the stored file reads back to the very frame the import decoded.
+//!
+//! Files are compressed with LZ4 (Parquet's `LZ4_RAW`) and written without column statistics
+//! ([`STORED_COMPRESSION`]): a file is written on every import and run but read only at start,
+//! and this halves the encoding time of the zstd default for a few percent more bytes. Files
+//! written by earlier versions (zstd) load as before. A kept Parquet import stays in its
+//! source's own codec; bytes that cannot be taken apart are encoded as usual.
 
 use super::{storage_error, Manifest};
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};

@@ -32,11 +32,12 @@
 //!   (freeze-out and scattering fits);
 //! - `carrier_type`, to force n or p;
 //! - the Hall factor, at most one of `hall_factor`, `hall_factor_scattering_exponent` (Putley's
-//!   r_H for tau ~ E^s) and `hall_factor_table` ([temperature_K, r_H] pairs, linear in T and
-//!   held at the end values, for an r_H that varies with temperature; freeze-out fit and
-//!   Arrhenius line). Each *replaces* the factor `hall.reduce` applied: n = n_given r_H(T) /
-//!   r_applied ([`freeze_out::HallFactor`]). The summary's `hall_factor` is null when it varies
-//!   with temperature;
+//!   r_H for tau ~ E^s) and, for the freeze-out fit and the Arrhenius line, `hall_factor_table`
+//!   ([temperature_K, r_H] pairs, linear in T and held at the end values, for an r_H that
+//!   varies with temperature). In the density fits each *replaces* the factor `hall.reduce`
+//!   applied: n = n_given r_H(T) / r_applied ([`freeze_out::HallFactor`]), and the summary's
+//!   `hall_factor` is null when it varies with temperature. The scattering fit divides the Hall
+//!   mobilities by it ([`scattering`], "Hall and drift mobility");
 //! - `temperature_min_K`, `temperature_max_K`: the range fitted;
 //! - `relative_uncertainty_floor` (default 1e-3,
 //!   `mobilis_core::fit::RELATIVE_UNCERTAINTY_FLOOR`);

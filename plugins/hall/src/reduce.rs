@@ -148,7 +148,7 @@
 //! The work is linear in the readings apart from one sort, which costs a single pass when
 //! the readings arrive ordered by sample and temperature (the usual export order: the sort
 //! detects the sorted run and stops). Measured with `cargo bench -p mobilis-tests --bench
-//! hall_reduce` (figures and where the time goes: `DEVELOPERS.md`, Benchmarks).
+//! hall_reduce` (its module docs say what each figure measures).
 //!
 //! - Sample names are interned once (consecutive readings of one sample skip the hash).
 //! - A reading's contacts are classified by one look-up in a table of every contact

@@ -12,7 +12,7 @@
 //! preflight), and every answer names the origin in `Access-Control-Allow-Origin`. Browser
 //! WebSockets cannot set headers, so a page reaching a token-protected daemon uses HTTP.
 //!
-//! The three transports share one message handler ([`messages`]): it answers every id the
+//! The three transports share one message handler (`messages`): it answers every id the
 //! JSON-RPC 2.0 specification allows, verbatim, and batches as section 6 of the
 //! specification says. A call's future belongs to its connection: when an HTTP client
 //! disconnects or a WebSocket closes, the futures of its calls are dropped.

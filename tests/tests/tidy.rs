@@ -589,6 +589,6 @@ fn the_import_graph_scan_sees_paths_use_trees_and_inline_modules() {
     // test module's edge to d is one way.
     assert_eq!(
         names,
-        vec![vec!["a.rs".to_owned(), "c.rs".to_owned(), "c/inner.rs".to_owned()]]
+        vec![vec!["a.rs".to_owned(), "c/inner.rs".to_owned(), "c.rs".to_owned()]]
     );
 }

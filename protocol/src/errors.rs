@@ -8,7 +8,6 @@ use serde::{Deserialize, Serialize};
 
 /// The kinds of failure, each with a stable code.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-#[non_exhaustive]
 pub enum ErrorKind {
     /// Parameters are missing, of the wrong type or outside the allowed values.
     InvalidParams,

@@ -8,6 +8,7 @@
 //! links it pays for serde and JSON Schema only.
 
 pub mod errors;
+pub mod openrpc;
 pub mod params;
 pub mod progress;
 pub mod results;

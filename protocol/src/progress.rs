@@ -28,6 +28,12 @@ impl Outcome {
     }
 }
 
+impl PartialEq<str> for Outcome {
+    fn eq(&self, name: &str) -> bool {
+        self.name() == name
+    }
+}
+
 /// One progress event of the call `call_id`.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(tag = "kind", rename_all = "lowercase")]

@@ -476,6 +476,19 @@ mod tests {
         assert_eq!(registered, documented);
     }
 
+    #[test]
+    fn deadlines_and_their_defaults_are_the_protocol_tables() {
+        for spec in mobilis_protocol::METHODS {
+            let bounded = bounded_calls::DEADLINE_METHODS.contains(&spec.name);
+            assert_eq!(bounded, spec.deadline.is_some(), "{}", spec.name);
+            if let Some(deadline) = spec.deadline {
+                let default = bounded_calls::default_deadline(spec.name).as_secs();
+                assert_eq!(default, u64::from(deadline.default_s), "{}", spec.name);
+            }
+        }
+        assert_eq!(bounded_calls::MAX_DEADLINE_S, mobilis_protocol::MAX_DEADLINE_S);
+    }
+
     /// The names of the types this crate and the protocol declare (`ImportParams`, `UnitSpec`, ...).
     fn crate_type_names() -> Vec<String> {
         let manifest = std::path::Path::new(env!("CARGO_MANIFEST_DIR"));

@@ -326,7 +326,11 @@ mod tests {
         let (name, params) = pipeline_import(table, &directory).unwrap();
         let params = serde_json::to_value(params).unwrap();
         assert_eq!(name, "r");
-        assert_eq!(params["csv"], json!({"separator": ";", "skip_rows": 2}));
+        // The dialect goes out whole, the members the files leave out at their defaults.
+        assert_eq!(
+            params["csv"],
+            json!({"separator": ";", "decimal_comma": false, "skip_rows": 2, "header": true})
+        );
         assert_eq!(params["units"], json!({"T": "degC"}));
         assert!(params["path"].as_str().unwrap().ends_with("r.csv"));
         let table: toml::Table = toml::from_str("name = \"r\"\npath = \"r.csv\"\ncolour = 1\n").unwrap();

@@ -450,8 +450,8 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             let client = connect(&cli).await?;
             let params = RowsParams {
                 name: name.clone(),
-                offset: *offset as usize,
-                limit: Some(*limit as usize),
+                offset: *offset,
+                limit: Some(*limit),
             };
             let page = client.request::<method::DatasetRows>(&params).await?;
             let present: Vec<&str> = page.columns.keys().map(String::as_str).collect();

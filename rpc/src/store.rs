@@ -149,11 +149,8 @@ pub struct Manifest {
     pub provenance: Provenance,
 }
 
-#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
-pub struct ColumnInfo {
-    pub name: String,
-    pub dtype: String,
-}
+/// A stored column's name and type, as manifests keep it and clients see it.
+pub use mobilis_protocol::results::ColumnInfo;
 
 /// A stored dataset.
 pub struct Dataset {

@@ -8,27 +8,9 @@
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use mobilis_physics::units::customary_display;
 use polars::prelude::*;
-use serde::Deserialize;
 
-/// The units a table is written in.
-#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Deserialize)]
-#[serde(rename_all = "lowercase")]
-pub enum ExportUnits {
-    /// As stored: SI, with the SI unit in each column's name.
-    #[default]
-    Si,
-    /// The customary units of the trade, named in each column's name.
-    Customary,
-}
-
-impl ExportUnits {
-    pub fn name(self) -> &'static str {
-        match self {
-            ExportUnits::Si => "si",
-            ExportUnits::Customary => "customary",
-        }
-    }
-}
+/// The units a table is written in: a member of `dataset.export`'s params.
+pub use mobilis_protocol::params::ExportUnits;
 
 /// `frame` with every SI quantity column in its customary unit and named after it.
 pub fn to_customary(frame: &DataFrame) -> ServiceResult<DataFrame> {

@@ -10,7 +10,9 @@
 //! (boolean or a schema), `enum`, `const`, `minimum`, `maximum`, `exclusiveMinimum`,
 //! `exclusiveMaximum`, `minLength`, `maxLength`, `items`, `minItems`, `maxItems`, `anyOf`,
 //! `oneOf`; annotations `title`, `description`, `default`, `examples`, `$schema`,
-//! `$comment` are accepted and ignored.
+//! `$comment`, `format`, `deprecated`, `readOnly`, `writeOnly` are accepted and ignored
+//! (`format` as JSON Schema 2020-12 makes it, an annotation: derived schemas write
+//! `"format": "uint"` beside `"minimum": 0`, which does the checking).
 
 use serde_json::{Map, Value};
 
@@ -33,7 +35,18 @@ const VALIDATING: [&str; 17] = [
     "anyOf",
     "oneOf",
 ];
-const ANNOTATIONS: [&str; 6] = ["title", "description", "default", "examples", "$schema", "$comment"];
+const ANNOTATIONS: [&str; 10] = [
+    "title",
+    "description",
+    "default",
+    "examples",
+    "$schema",
+    "$comment",
+    "format",
+    "deprecated",
+    "readOnly",
+    "writeOnly",
+];
 
 /// Refuses a schema that uses keywords this validator does not implement.
 pub fn check_supported(schema: &Value, path: &str) -> Result<(), String> {

@@ -40,7 +40,6 @@ use crate::csv_dialect::{self, CsvDialect, SourceMap};
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use mobilis_physics::units;
 use polars::prelude::*;
-use serde::Deserialize;
 use std::collections::BTreeMap;
 use std::fs::File;
 use std::io::Cursor;
@@ -317,21 +316,8 @@ fn json_values_to_column(name: &str, values: &[serde_json::Value]) -> ServiceRes
     Ok(Column::new(name, data))
 }
 
-/// A unit given for one column: a unit name, or a unit with an explicit new column name.
-#[derive(Debug, Clone, Deserialize, PartialEq)]
-#[serde(untagged)]
-pub enum UnitSpec {
-    Unit(String),
-    Renamed { unit: String, to: String },
-}
-
-impl UnitSpec {
-    pub fn unit(&self) -> &str {
-        match self {
-            UnitSpec::Unit(unit) | UnitSpec::Renamed { unit, .. } => unit,
-        }
-    }
-}
+/// A unit given for one column: a member of `dataset.import`'s params, defined by the protocol.
+pub use mobilis_protocol::params::UnitSpec;
 
 /// Converts the named columns into SI and renames them by the table convention
 /// (`temperature_C` in degC becomes `temperature_K`), or to the explicit `to` name.

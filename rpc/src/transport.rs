@@ -62,7 +62,7 @@ mod tests {
 
     #[test]
     fn unknown_methods_are_named_with_the_closest_known_ones() {
-        let known: Vec<String> = crate::openrpc::METHODS.iter().map(|m| m.name.to_owned()).collect();
+        let known: Vec<String> = mobilis_protocol::METHODS.iter().map(|m| m.name.to_owned()).collect();
         let closest = |asked: &str| crate::suggest::closest_names(asked, known.iter().map(String::as_str));
         assert_eq!(closest("dataset.lst")[0], "dataset.list");
         assert_eq!(closest("datasets.list")[0], "dataset.list");

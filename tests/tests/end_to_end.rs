@@ -256,6 +256,31 @@ async fn readings_to_densities_through_a_real_daemon_and_back_after_a_restart() 
         .iter()
         .any(|m| m["name"] == "pipeline.run"));
     assert!(discover["components"]["schemas"]["hall.reduce.params"].is_object());
+    if let Err(problems) = mobilis_client::protocol::openrpc::check_document(&discover) {
+        panic!("rpc.discover is not an OpenRPC 1.x document:\n{}", problems.join("\n"));
+    }
+    // analysis.run documents each parameter with its type, and each loaded analysis's own
+    // parameters by name.
+    let run = discover["methods"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|m| m["name"] == "analysis.run")
+        .unwrap();
+    let params = run["params"].as_array().unwrap();
+    for name in ["analysis", "inputs", "params", "output", "group_by", "deadline_s"] {
+        let param = params
+            .iter()
+            .find(|p| p["name"] == name)
+            .unwrap_or_else(|| panic!("{name} in {run}"));
+        let schema = &param["schema"];
+        assert!(schema.get("type").is_some() || schema.get("anyOf").is_some(), "{param}");
+    }
+    let analysis_params = params.iter().find(|p| p["name"] == "params").unwrap();
+    assert_eq!(
+        analysis_params["x-analyses"]["hall.reduce"]["$ref"],
+        "#/components/schemas/hall.reduce.params"
+    );
 
     bad_requests_get_clear_errors(&daemon, &readings).await;
 

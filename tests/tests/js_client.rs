@@ -84,3 +84,103 @@ async fn the_javascript_client_passes_its_node_tests() {
     }
     drop(daemon);
 }
+
+/// Each literal call in the client's source: the method name and the member names of the
+/// object literal sent with it (spread members, `...params`, cannot be read and are
+/// skipped), or `None` for params sent by position or not at all.
+fn literal_calls(source: &str) -> Vec<(String, Option<Vec<String>>)> {
+    let mut calls = Vec::new();
+    for opener in ["call(", "request(", "subscribe(", "tracked("] {
+        let mut rest = source;
+        while let Some(at) = rest.find(opener) {
+            let preceded_by_name_part = rest[..at]
+                .chars()
+                .last()
+                .is_some_and(|c| c.is_alphanumeric() || c == '_');
+            rest = &rest[at + opener.len()..];
+            if preceded_by_name_part {
+                continue;
+            }
+            let arguments = rest.trim_start();
+            let Some(quoted) = arguments.strip_prefix('"') else {
+                continue;
+            };
+            let Some(end) = quoted.find('"') else { continue };
+            let method = &quoted[..end];
+            if !method.contains('.') || method.contains(' ') {
+                continue;
+            }
+            let after = quoted[end + 1..].trim_start();
+            let members = after
+                .strip_prefix(',')
+                .map(str::trim_start)
+                .and_then(|object| object.strip_prefix('{'))
+                .map(|object| {
+                    let mut depth = 0usize;
+                    let mut body = String::new();
+                    for c in object.chars() {
+                        match c {
+                            '{' | '[' | '(' => depth += 1,
+                            '}' | ']' | ')' if depth == 0 => break,
+                            '}' | ']' | ')' => depth -= 1,
+                            ',' if depth == 0 => body.push('\u{1}'),
+                            _ => {}
+                        }
+                        if c != ',' || depth > 0 {
+                            body.push(c);
+                        }
+                    }
+                    body.split('\u{1}')
+                        .map(str::trim)
+                        .filter(|member| !member.is_empty() && !member.starts_with("..."))
+                        .map(|member| {
+                            let key = member.split(':').next().unwrap_or(member).trim();
+                            key.trim_matches(|c| c == '"' || c == '\'').to_owned()
+                        })
+                        .collect()
+                });
+            calls.push((method.to_owned(), members));
+        }
+    }
+    calls
+}
+
+/// The JavaScript client cannot share the protocol's Rust types, so its calls are checked
+/// against the daemon's own description: every method it names is in `rpc.discover`, and
+/// every parameter it sends by name is one that method documents.
+#[tokio::test(flavor = "multi_thread")]
+async fn every_call_of_the_javascript_client_is_documented() {
+    let source = std::fs::read_to_string(workspace_root().join("clients/js/mobilis.js")).expect("the client's source");
+    let calls = literal_calls(&source);
+    assert!(calls.len() >= 12, "found only {calls:?}");
+    assert!(calls
+        .iter()
+        .any(|(method, members)| method == "analysis.describe"
+            && members.as_deref() == Some(&["analysis".to_owned()][..])));
+    let daemon = TestDaemon::start().await;
+    let discover = daemon.call("rpc.discover", serde_json::json!({})).await;
+    let methods = discover["methods"].as_array().expect("methods");
+    let mut problems = Vec::new();
+    for (method, members) in &calls {
+        let Some(documented) = methods.iter().find(|m| m["name"] == method.as_str()) else {
+            problems.push(format!("{method} is not in rpc.discover"));
+            continue;
+        };
+        let names: Vec<&str> = documented["params"]
+            .as_array()
+            .into_iter()
+            .flatten()
+            .filter_map(|p| p["name"].as_str())
+            .collect();
+        for member in members.iter().flatten() {
+            if !names.contains(&member.as_str()) {
+                problems.push(format!(
+                    "{method} is sent `{member}`, which it does not take ({})",
+                    names.join(", ")
+                ));
+            }
+        }
+    }
+    assert!(problems.is_empty(), "{}", problems.join("\n"));
+    drop(daemon);
+}

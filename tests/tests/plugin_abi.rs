@@ -592,7 +592,7 @@ async fn a_pipeline_pushes_its_progress_over_websocket_step_by_step(mode: Mode) 
 
     use mobilis_client::ProgressEvent;
     assert!(
-        matches!(&events[0], ProgressEvent::Begin { title } if title.contains("2 steps")),
+        matches!(&events[0], ProgressEvent::Begin { title, .. } if title.contains("2 steps")),
         "{events:?}"
     );
     assert!(
@@ -602,7 +602,7 @@ async fn a_pipeline_pushes_its_progress_over_websocket_step_by_step(mode: Mode) 
     let reports: Vec<(f64, &str)> = events
         .iter()
         .filter_map(|e| match e {
-            ProgressEvent::Report { fraction, message } => Some((*fraction, message.as_str())),
+            ProgressEvent::Report { fraction, message, .. } => Some((*fraction, message.as_str())),
             _ => None,
         })
         .collect();

@@ -80,11 +80,8 @@ pub struct Manifest {
     pub provenance: Provenance,
 }
 
-#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
-pub struct ColumnInfo {
-    pub name: String,
-    pub dtype: String,
-}
+/// A stored column's name and type, as manifests keep it and clients see it.
+pub use mobilis_protocol::results::ColumnInfo;
 
 pub fn column_infos(frame: &DataFrame) -> Vec<ColumnInfo> {
     frame

@@ -5,15 +5,9 @@
 //! The fast rounds run with the default tests; `tests/reliability` runs every check with
 //! its full round counts (`MOBILIS_SLOW_TESTS=1`) and then the capacity benchmark.
 
-#[path = "reliability/counts.rs"]
 mod counts;
-#[path = "reliability/load.rs"]
 mod load;
-#[path = "reliability/plugin_isolation.rs"]
 mod plugin_isolation;
-#[path = "reliability/store_crashes.rs"]
 mod store_crashes;
-#[path = "reliability/transport_frames.rs"]
 mod transport_frames;
-#[path = "reliability/workspace_and_bounds.rs"]
 mod workspace_and_bounds;

@@ -65,7 +65,12 @@ fn every_integration_test_file_is_a_module_of_the_one_suite_binary() {
             parent_dir.with_extension("rs")
         };
         if !declaring.is_file() || !declared_modules(&declaring).contains(&stem) {
-            undeclared.push(file.strip_prefix(workspace_root()).unwrap_or(file).display().to_string());
+            undeclared.push(
+                file.strip_prefix(workspace_root())
+                    .unwrap_or(file)
+                    .display()
+                    .to_string(),
+            );
         }
     }
     assert!(

@@ -1067,13 +1067,12 @@ fn text_is_escaped_in_titles_and_legends() {
     assert_eq!(count(&elements, "legend-entry"), 2);
 }
 
-/// Writes sample figures for a person to look at when MOBILIS_PLOT_SAMPLES names a folder.
+/// The sample figures, one of each common recipe, render whole in both formats: each SVG is
+/// well-formed with its title, axes and marks, and each Vega-Lite spec is v5 with data. When
+/// `MOBILIS_PLOT_SAMPLES` names a folder, they are also written there (`NAME.svg`,
+/// `NAME.vl.json`) for a person to look at; that part alone waits for the switch.
 #[test]
-fn write_samples_when_asked() {
-    let Ok(folder) = std::env::var("MOBILIS_PLOT_SAMPLES") else {
-        return;
-    };
-    std::fs::create_dir_all(&folder).unwrap();
+fn sample_figures_render_and_are_written_when_asked() {
     let hall = hall_frame();
     let figures = [
         (
@@ -1118,13 +1117,37 @@ fn write_samples_when_asked() {
             .unwrap(),
         ),
     ];
+    let folder = std::env::var_os("MOBILIS_PLOT_SAMPLES").map(std::path::PathBuf::from);
+    match &folder {
+        Some(folder) => {
+            std::fs::create_dir_all(folder).unwrap();
+            println!("writing the sample figures into {}", folder.display());
+        }
+        None => println!("set MOBILIS_PLOT_SAMPLES=FOLDER to write the sample figures there"),
+    }
     for (name, figure) in figures {
-        std::fs::write(format!("{folder}/{name}.svg"), figure.to_svg()).unwrap();
-        std::fs::write(
-            format!("{folder}/{name}.vl.json"),
-            serde_json::to_string_pretty(&figure.to_vega_lite()).unwrap(),
-        )
-        .unwrap();
+        let kind = name.strip_suffix("_jittered").unwrap_or(name);
+        assert_eq!(figure.kind(), kind, "{name}");
+        let (svg, elements) = checked_svg(&figure);
+        assert!(count(&elements, "mark") > 0, "{name} draws no marks:\n{svg}");
+        assert!(svg.trim_end().ends_with("</svg>"), "{name} is cut short");
+        let spec = check_vega(&figure);
+        let layers = vega_layers(&spec);
+        assert!(!layers.is_empty(), "{name}: a Vega-Lite spec without layers");
+        assert!(
+            layers.iter().any(|layer| layer["data"]["values"]
+                .as_array()
+                .is_some_and(|values| !values.is_empty())),
+            "{name}: a Vega-Lite spec without data"
+        );
+        if let Some(folder) = &folder {
+            std::fs::write(folder.join(format!("{name}.svg")), &svg).unwrap();
+            std::fs::write(
+                folder.join(format!("{name}.vl.json")),
+                serde_json::to_string_pretty(&spec).unwrap(),
+            )
+            .unwrap();
+        }
     }
 }
 

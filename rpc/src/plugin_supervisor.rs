@@ -38,7 +38,7 @@
 //! Other calls, other plugins and the stored datasets are untouched. A loader refusal gives the
 //! loader's own reason (`dlerror`), never only "dlopen failed".
 //!
-//! The checks: `cargo test -p mobilis-tests --test reliability -- plugin_isolation` (C plugins
+//! The checks: `cargo test -p mobilis-tests --test suite -- reliability::plugin_isolation` (C plugins
 //! from `tests/c-plugin/cfixture.c` built with `FIXTURE_FAULT=1|2|3` segfault, exit(3) or hang
 //! on a 13-row table, the hang both past its deadline and cancelled by its client;
 //! `FIXTURE_ABORT_ON_LOAD` aborts in its constructor; truncated copies of the hall plugin at

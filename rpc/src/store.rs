@@ -57,7 +57,7 @@
 //!
 //! The unit tests (`cargo test -p mobilis-rpc --lib store`) cover the panic in the writer,
 //! poisoned locks, migration and an interrupted group commit. The reliability checks
-//! (`tests/tests/reliability/store_crashes.rs`) run kill -9 rounds (12 by default, 200 with
+//! (`tests/tests/suite/reliability/store_crashes.rs`) run kill -9 rounds (12 by default, 200 with
 //! `MOBILIS_SLOW_TESTS=1`): clients import, overwrite and drop, run `fixture.scale` with a
 //! summary table and two-step pipelines, the daemon is killed at a random moment, and after
 //! each restart every dataset must be the acknowledged or the in-flight version, its rows

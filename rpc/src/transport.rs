@@ -36,7 +36,7 @@
 //!   every local user can read in the process list, and refuses to start with an empty or blank
 //!   one.
 //!
-//! The checks (`tests/tests/reliability/transport_frames.rs`): every allowed and disallowed id
+//! The checks (`tests/tests/suite/reliability/transport_frames.rs`): every allowed and disallowed id
 //! over the three transports; each bad stdio frame followed by a good request that must be
 //! answered, and the specification's examples; finished work answered before the end of input;
 //! a seeded fuzz of random frames over stdio and random JSON over HTTP and WebSocket (300

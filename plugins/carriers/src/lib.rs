@@ -62,7 +62,7 @@
 //! | `carriers.freeze_out_fit` N_D | `freeze_out/coverage.rs` | 100; 400 | 66 % / 96 %; 67 % / 95 % |
 //! | `carriers.freeze_out_fit` N_A | same | 100; 400 | 67 % / 96 %; 68 % / 95 % |
 //! | `carriers.freeze_out_fit` E_D | same | 100; 400 | 69 % / 95 %; 69 % / 95 % |
-//! | raw readings -> `hall.reduce` -> `carriers.freeze_out_fit` through the daemon, N_D / N_A / E_D | `tests/tests/carriers_chain.rs` | 60; 200 | 63 / 62 / 65 % and 97 % each; 69 / 68 / 70 % and 94 / 96 / 95 % |
+//! | raw readings -> `hall.reduce` -> `carriers.freeze_out_fit` through the daemon, N_D / N_A / E_D | `tests/tests/suite/carriers_chain.rs` | 60; 200 | 63 / 62 / 65 % and 97 % each; 69 / 68 / 70 % and 94 / 96 / 95 % |
 //! | `carriers.arrhenius` E | `arrhenius/tests.rs` | 400; 2000 | 72 % / 97 %; 68 % / 96 % |
 //! | `carriers.mobility_scattering` mu_300 / alpha / N_I (constant N_I) | `scattering/budget_tests.rs` | 100 | 73 / 63 / 71 % and 95 / 97 / 95 % |
 //! | `carriers.mobility_scattering` N_A / mu_300 / alpha (n + 2 N_comp) | same | 100 | 66 / 68 / 74 % and 92 / 98 / 97 % |

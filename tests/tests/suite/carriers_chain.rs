@@ -193,7 +193,7 @@ async fn bad_temperature_series_get_clear_errors_and_the_daemon_serves_on() {
 /// Realizations of the drifting-lab series below: enough for a 1-sigma fraction good to about
 /// +-6 % by default, more under `MOBILIS_SLOW_TESTS=1`.
 fn lab_series_realizations() -> usize {
-    if std::env::var_os("MOBILIS_SLOW_TESTS").is_some() {
+    if mobilis_tests::slow_tests() {
         200
     } else {
         60

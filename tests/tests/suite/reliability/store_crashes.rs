@@ -10,7 +10,7 @@
 //!
 //! `MOBILIS_CRASH_SEED=<n>` repeats a round sequence; the seed is printed on every run.
 
-use crate::counts;
+use super::counts;
 use mobilis_client::Client;
 use mobilis_tests::{fixture_plugin_dir, TestDaemon};
 use serde_json::{json, Value};

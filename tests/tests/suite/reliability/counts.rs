@@ -1,9 +1,8 @@
 //! The one line every reliability check prints, and the round counts of fast and slow runs.
 
 /// True when the full (slow) round counts are asked for: `MOBILIS_SLOW_TESTS=1`.
-#[allow(dead_code)]
 pub fn slow() -> bool {
-    std::env::var_os("MOBILIS_SLOW_TESTS").is_some_and(|v| !v.is_empty() && v != "0")
+    mobilis_tests::slow_tests()
 }
 
 /// `fast` rounds in the default run, `full` under `MOBILIS_SLOW_TESTS=1`.

@@ -5,8 +5,18 @@
 use mobilis_tests::node::{install_npm_dependencies, run_with_timeout};
 use mobilis_tests::{workspace_root, TestDaemon};
 
-/// The Rust notebook's code cells, in order, as one block.
-fn rust_notebook_cells() -> Result<(), Box<dyn std::error::Error>> {
+/// The Rust notebook's code cells, in order, as one block. The cells read `MOBILIS_URL` and
+/// `MOBILIS_DEMO_DATA` from the environment, as in a user's kernel; `build.rs` turns those
+/// reads into calls of `notebook_env`, which answers from `environment`, because setting the
+/// environment of this process, which all tests share, would race with the other tests.
+fn rust_notebook_cells(environment: &[(&str, String)]) -> Result<(), Box<dyn std::error::Error>> {
+    let notebook_env = |name: &str| {
+        environment
+            .iter()
+            .find(|(key, _)| *key == name)
+            .map(|(_, value)| value.clone())
+            .ok_or(std::env::VarError::NotPresent)
+    };
     include!(concat!(env!("OUT_DIR"), "/rust_client_notebook.rs"))
 }
 
@@ -23,11 +33,15 @@ fn daemon_with_demo_data(runtime: &tokio::runtime::Runtime) -> TestDaemon {
 fn the_rust_notebook_runs_against_a_real_daemon() {
     let runtime = tokio::runtime::Runtime::new().unwrap();
     let daemon = daemon_with_demo_data(&runtime);
-    // The notebook reads these, as a user's kernel would; this test binary's other test does
-    // not read them, so setting them here races with nothing.
-    std::env::set_var("MOBILIS_URL", daemon.daemon.url());
-    std::env::set_var("MOBILIS_DEMO_DATA", workspace_root().join("demo-data"));
-    if let Err(error) = rust_notebook_cells() {
+    // What a user's kernel would have in its environment.
+    let environment = [
+        ("MOBILIS_URL", daemon.daemon.url().to_owned()),
+        (
+            "MOBILIS_DEMO_DATA",
+            workspace_root().join("demo-data").display().to_string(),
+        ),
+    ];
+    if let Err(error) = rust_notebook_cells(&environment) {
         panic!("a cell of notebooks/rust-client.ipynb failed: {error}");
     }
     let datasets = runtime.block_on(daemon.call("dataset.list", serde_json::json!({})));

@@ -454,8 +454,12 @@ fn crate_roots(root: &Path) -> Vec<PathBuf> {
                 continue;
             };
             for entry in entries.flatten() {
-                if entry.path().extension().is_some_and(|e| e == "rs") {
-                    roots.push(entry.path());
+                let path = entry.path();
+                if path.extension().is_some_and(|e| e == "rs") {
+                    roots.push(path);
+                } else if path.join("main.rs").is_file() {
+                    // A target of several files: `tests/suite/main.rs` and its modules.
+                    roots.push(path.join("main.rs"));
                 }
             }
         }

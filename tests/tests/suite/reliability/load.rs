@@ -3,7 +3,7 @@
 //! gone. Speed is the benchmark's business (`cargo bench -p mobilis-tests --bench capacity`);
 //! this check counts only what failed or was lost.
 
-use crate::counts;
+use super::counts;
 use mobilis_tests::load::{self, LoadPlan, Step, Transport};
 use mobilis_tests::TestDaemon;
 use serde_json::json;

@@ -44,15 +44,9 @@
 //! | capacity websocket 32x250, debug daemon | 8,000 requests, failed 0, lost 0; 116 answered/s; `server.info` p50 2.0 ms, p99 27 ms; `analysis.run` p50 1.7 s; daemon CPU 0.62 cores, RSS 136 MiB | 2026-12-03, 2-core machine shared with builds |
 //! | capacity websocket 32x250, debug daemon, `--compute-slots 64` (no real limit), for comparison | 8,000 requests, failed 0, lost 0; 111 answered/s; `server.info` p50 3.5 ms, p99 47 ms; `dataset.drop` p50 1.1 s | 2026-12-03, 2-core machine shared with builds |
 
-#[path = "reliability/counts.rs"]
 mod counts;
-#[path = "reliability/load.rs"]
 mod load;
-#[path = "reliability/plugin_isolation.rs"]
 mod plugin_isolation;
-#[path = "reliability/store_crashes.rs"]
 mod store_crashes;
-#[path = "reliability/transport_frames.rs"]
 mod transport_frames;
-#[path = "reliability/workspace_and_bounds.rs"]
 mod workspace_and_bounds;

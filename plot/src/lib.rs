@@ -13,7 +13,9 @@
 //! enough to test element by element. The crate knows nothing of JSON-RPC, the store or
 //! files; callers pass a frame and get text or JSON back.
 
+mod error;
 mod figure;
+mod options;
 mod recipes;
 mod svg;
 mod units;
@@ -23,63 +25,11 @@ mod vega;
 mod tests;
 
 use polars::prelude::DataFrame;
-use serde::{Deserialize, Deserializer};
 
+pub use error::PlotError;
 pub use figure::Figure;
+pub use options::PlotOptions;
 pub use recipes::MAX_SERIES;
-
-/// What to draw. Every field is optional, so that the JSON-RPC layer can take it from the
-/// request parameters as they are.
-#[derive(Debug, Clone, Default, PartialEq, Deserialize)]
-#[serde(default, deny_unknown_fields)]
-pub struct PlotOptions {
-    /// A recipe name (see [`kinds`]); None or "auto": the first recipe of `analysis`, else
-    /// "columns".
-    pub kind: Option<String>,
-    /// The analysis that produced the dataset (from its provenance), if any.
-    pub analysis: Option<String>,
-    /// For kind "columns": the x column.
-    pub x: Option<String>,
-    /// For kind "columns": one or more y columns (a single string is accepted too).
-    #[serde(deserialize_with = "one_or_many")]
-    pub y: Vec<String>,
-    /// Optional 1-sigma uncertainty columns, one per y column; without them a y column's
-    /// `_unc` companion is used when the dataset has it.
-    #[serde(deserialize_with = "one_or_many")]
-    pub y_error: Vec<String>,
-    /// Columns whose value combinations become separate series; None: the recipe's default
-    /// (sample, temperature, field where present and varying).
-    pub series_by: Option<Vec<String>>,
-    /// Override the recipe's choice of logarithmic axes.
-    pub log_x: Option<bool>,
-    pub log_y: Option<bool>,
-    pub title: Option<String>,
-    /// The rows the caller kept, as (column, value) pairs: the daemon's `filter`. The title
-    /// names them ("... (sample = W1)"), so that a figure of part of a dataset says which
-    /// part it shows. Not a request parameter of its own: `plot.render` fills it from
-    /// `filter`.
-    #[serde(skip)]
-    pub selection: Vec<(String, String)>,
-    /// Size of one panel in pixels (default 640 x 420 for a figure of one panel, 500 x 400
-    /// for figures of several, which tile them two to a row, 1000 px wide).
-    pub width: Option<f64>,
-    pub height: Option<f64>,
-}
-
-fn one_or_many<'de, D: Deserializer<'de>>(deserializer: D) -> Result<Vec<String>, D::Error> {
-    #[derive(Deserialize)]
-    #[serde(untagged)]
-    enum OneOrMany {
-        One(String),
-        Many(Vec<String>),
-        Null(()),
-    }
-    Ok(match OneOrMany::deserialize(deserializer)? {
-        OneOrMany::One(one) => vec![one],
-        OneOrMany::Many(many) => many,
-        OneOrMany::Null(()) => Vec::new(),
-    })
-}
 
 /// A recipe as listed to clients.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -88,39 +38,6 @@ pub struct KindInfo {
     pub description: &'static str,
     /// The analyses whose output the recipe draws; empty for `columns`, which draws any.
     pub analyses: &'static [&'static str],
-}
-
-/// Why no figure could be built; every message says what to change.
-#[derive(thiserror::Error, Debug, Clone, PartialEq)]
-#[non_exhaustive]
-pub enum PlotError {
-    #[error("unknown plot kind `{kind}`; use one of: {known}")]
-    UnknownKind { kind: String, known: String },
-    #[error("plot kind `{kind}` needs column `{column}`, which dataset `{dataset}` does not have; {detail}")]
-    MissingColumn {
-        kind: String,
-        column: String,
-        dataset: String,
-        /// The columns the kind needs, the dataset's columns and the analyses that make such a
-        /// dataset.
-        detail: String,
-    },
-    #[error("column `{column}` holds {dtype}, not numbers; choose a numeric column")]
-    NotNumeric { column: String, dtype: String },
-    #[error("dataset `{dataset}` has no finite values to draw as kind `{kind}`{hint}")]
-    NoFinitePoints {
-        dataset: String,
-        kind: String,
-        hint: String,
-    },
-    #[error("{0}")]
-    BadOption(String),
-    #[error("{0}")]
-    Unusable(String),
-    /// More than the daemon draws in one figure (series, points); the message names the
-    /// filter to use.
-    #[error("{0}")]
-    TooLarge(String),
 }
 
 static KINDS: std::sync::OnceLock<Vec<KindInfo>> = std::sync::OnceLock::new();
@@ -180,7 +97,7 @@ fn size(name: &str, value: Option<f64>, default: f64) -> Result<f64, PlotError> 
 /// "0.5 T"; to a relative 1e-9 for any other column, so that 300 matches 300.0000000001.
 pub fn matches_nominal(column: &str, value: f64, target: f64) -> bool {
     let tolerance = match column {
-        "temperature_K" => mobilis_core::sweep_table::TemperatureGrouping::default().allowed_gap_k(target),
+        "temperature_K" => mobilis_physics::sweep::TemperatureGrouping::default().allowed_gap_k(target),
         "field_T" => recipes::FIELD_SETPOINT_T,
         _ => 1e-9 * target.abs().max(1e-300),
     };

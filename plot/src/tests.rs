@@ -1261,7 +1261,7 @@ fn temperatures_group_by_setpoint_and_are_named_by_their_nominal_value() {
 
 #[test]
 fn nominal_values_are_the_roundest_within_the_tolerance() {
-    use crate::recipes::{nominal_keys, roundest, Setpoint};
+    use crate::recipes::context::{nominal_keys, roundest, Setpoint};
     assert_eq!(roundest(0.49996, 2.5e-3), 0.5);
     assert_eq!(roundest(0.5002, 2.5e-3), 0.5);
     assert_eq!(roundest(9.0001, 2.5e-3), 9.0);
@@ -1443,7 +1443,7 @@ fn hall_coefficients_and_log_densities_are_shown_in_the_tables_units() {
     .unwrap();
     let spec = check_vega(&figure);
     let shown = vega_values(&spec, "ln_reduced_density_m3", "y");
-    let table_shows = mobilis_core::units::customary_display("ln_reduced_density_m3").unwrap();
+    let table_shows = mobilis_physics::units::customary_display("ln_reduced_density_m3").unwrap();
     for (shown, stored) in shown.iter().zip([40.0, 41.0, 42.0]) {
         assert!(close(*shown, stored - 1e6f64.ln(), 1e-12));
         assert!(close(*shown, table_shows.from_si(stored), 1e-12));

@@ -1,9 +1,9 @@
 //! Recipes of temperature series: the `hall.reduce` output and the carriers fits (freeze-out,
 //! Arrhenius, mobility scattering).
 
-use super::{all_rows, inverse_temperature, named, points, Context, Drawing};
+use super::context::{all_rows, inverse_temperature, named, points, Context, Drawing};
+use crate::error::PlotError;
 use crate::figure::{AxisSpec, Dash, Series, SHAPES};
-use crate::PlotError;
 
 const TEMPERATURE: &str = "Temperature T";
 const INVERSE_TEMPERATURE: &str = "1000/T";

@@ -1,10 +1,10 @@
 //! The `columns` recipe: any numeric columns against one another, for imported data and for
 //! the columns no recipe draws.
 
-use super::{all_rows, points, Context, Drawing};
+use super::context::{all_rows, points, Context, Drawing};
+use crate::error::PlotError;
 use crate::figure::{AxisSpec, Series, SHAPES};
 use crate::units::{column_display, is_density_unit};
-use crate::PlotError;
 
 pub(crate) fn build(ctx: &Context) -> Result<Drawing, PlotError> {
     let options = ctx.options;

@@ -1,8 +1,8 @@
 //! Recipes of field sweeps: the spectrum analyses and the magnetoresistance analyses.
 
-use super::{all_rows, named, points, Context, Drawing, Group};
+use super::context::{all_rows, named, points, Context, Drawing, Group};
+use crate::error::PlotError;
 use crate::figure::{format_value, AxisSpec, Dash, Panel, Point, Series, SHAPES};
-use crate::PlotError;
 
 const FIELD: &str = "Magnetic field B";
 
@@ -181,7 +181,7 @@ pub(crate) fn magnetoresistance(ctx: &Context) -> Result<Drawing, PlotError> {
         let rho = ctx.floats("rho_xx_ohm_sq").map_err(|_| {
             let mut columns: Vec<String> = ctx.frame.get_column_names().iter().map(|c| c.to_string()).collect();
             columns.sort();
-            super::missing_column(ctx.recipe, ctx.dataset, "magnetoresistance", &columns)
+            super::context::missing_column(ctx.recipe, ctx.dataset, "magnetoresistance", &columns)
         })?;
         let rho_unc = if ctx.has("rho_xx_ohm_sq_unc") {
             Some(ctx.floats("rho_xx_ohm_sq_unc")?)

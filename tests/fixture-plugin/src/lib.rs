@@ -13,8 +13,8 @@
 //! The library is named `test_fixture_plugin`, not `mobilis_*`, so a daemon never loads it
 //! unless its directory is passed with `--plugin-dir`.
 
-use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
-use mobilis_core::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
+use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
+use mobilis_sdk::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
 use polars::prelude::{Column, DataFrame};
 use serde::Deserialize;
 use serde_json::json;
@@ -217,7 +217,7 @@ impl Analysis for Wait {
     }
 }
 
-mobilis_core::export_plugin!(name: "fixture", analyses: [Identity, Scale, Panic, Wait]);
+mobilis_sdk::export_plugin!(name: "fixture", analyses: [Identity, Scale, Panic, Wait]);
 
 #[cfg(test)]
 mod tests {

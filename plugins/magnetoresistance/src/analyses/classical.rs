@@ -6,10 +6,10 @@ use crate::kohler::{kohler, KohlerCurve, KohlerSettings};
 use crate::ratio::{magnetoresistance, RatioSettings, ZeroFieldResistivity};
 use crate::symmetrize::{symmetrize_sweep, SymmetrizeOptions};
 use crate::two_band::{fit_two_band_sweep, TwoBandError, TwoBandSettings};
-use mobilis_core::abi::AnalysisDeclaration;
-use mobilis_core::forward::tensor::CarrierKind;
-use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
-use mobilis_core::sweep_table::{
+use mobilis_physics::forward::tensor::CarrierKind;
+use mobilis_sdk::abi::AnalysisDeclaration;
+use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
+use mobilis_sdk::sweep_table::{
     single_field_sign_series_warning, single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature,
     SweepParams,
 };

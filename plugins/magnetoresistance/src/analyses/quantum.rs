@@ -13,15 +13,13 @@ use crate::oscillations::{
     analyze_oscillations, Background, MassMethod, MassRequest, OscillationError, OscillationSettings, OscillationSweep,
 };
 use crate::weak_localization::{fit_weak_localization, WeakLocalizationSettings, WeakLocalizationSweep};
-use mobilis_core::abi::AnalysisDeclaration;
-use mobilis_core::fft::Window;
-use mobilis_core::fit::FitQuality;
-use mobilis_core::forward::oscillations::thermal_damping_factor;
-use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
-use mobilis_core::sweep::{symmetrize, SweepUse};
-use mobilis_core::sweep_table::{
-    single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature, SweepParams,
-};
+use mobilis_numerics::fft::Window;
+use mobilis_numerics::fit::FitQuality;
+use mobilis_physics::forward::oscillations::thermal_damping_factor;
+use mobilis_physics::sweep::{symmetrize, SweepUse};
+use mobilis_sdk::abi::AnalysisDeclaration;
+use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
+use mobilis_sdk::sweep_table::{single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature, SweepParams};
 use serde::Deserialize;
 use serde_json::{json, Value};
 
@@ -708,8 +706,8 @@ impl Analysis for WeakLocalizationAnalysis {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use mobilis_core::forward::oscillations::{OscillationComponent, SdhModel};
-    use mobilis_core::sdk::run_typed;
+    use mobilis_physics::forward::oscillations::{OscillationComponent, SdhModel};
+    use mobilis_sdk::sdk::run_typed;
 
     fn text(frame: &DataFrame, name: &str) -> Vec<String> {
         let column = frame.column(name).unwrap().str().unwrap().clone();
@@ -815,7 +813,7 @@ mod tests {
     /// T_D = 0.5 K).
     #[test]
     fn dingle_and_landau_rows_carry_their_fitted_lines() {
-        use mobilis_core::forward::oscillations::LK_FIELD_PER_KELVIN;
+        use mobilis_physics::forward::oscillations::LK_FIELD_PER_KELVIN;
         let model = SdhModel {
             background_ohm_sq: vec![100.0, 0.0, 3.0, -0.1],
             components: vec![OscillationComponent {
@@ -903,9 +901,9 @@ mod tests {
     /// alpha = 1, l_phi = 250 nm); the fit finds l_phi within its uncertainty.
     #[test]
     fn weak_localization_runs_on_a_long_logged_ramp() {
-        use mobilis_core::forward::oscillations::{synthetic_weak_localization_sweep, WeakLocalizationModel};
-        use mobilis_core::forward::tensor::SweepNoise;
-        use mobilis_core::noise::Rng;
+        use mobilis_numerics::noise::Rng;
+        use mobilis_physics::forward::oscillations::{synthetic_weak_localization_sweep, WeakLocalizationModel};
+        use mobilis_physics::forward::tensor::SweepNoise;
         let model = WeakLocalizationModel {
             sigma_0_s: 1.0 / 2080.5,
             alpha: 1.0,

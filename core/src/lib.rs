@@ -29,6 +29,7 @@ pub mod calibration;
 pub mod constants;
 pub mod contacts;
 pub mod fft;
+pub mod figure_spec;
 pub mod fit;
 pub mod forward;
 pub mod linalg;

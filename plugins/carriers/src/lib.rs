@@ -15,6 +15,7 @@
 
 pub mod analyses;
 pub mod arrhenius;
+pub mod figures;
 pub mod freeze_out;
 pub mod materials;
 pub mod purity;

@@ -6,6 +6,7 @@
 //! This file is the table glue: the physics is in [`reduce`] and knows nothing of
 //! DataFrames; the C side is written by `mobilis_core::export_plugin!`.
 
+pub mod figures;
 pub mod reduce;
 
 use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
@@ -791,6 +792,7 @@ impl Analysis for HallReduce {
                 column("calibrations", Str, None, "object per sample: the calibrations used (relative standard uncertainties, temperature_accuracy_K), the names not stated and assumed, and reading_noise_V, the pooled voltage noise of one reading"),
                 column("calibrations_not_stated", Str, None, "list of the calibration parameters some sample did not state (their defaults were assumed)"),
             ],
+            figures: crate::figures::reduce(),
         }
     }
 

@@ -9,6 +9,7 @@
 //! Sweeps are symmetrized by `mobilis_core::sweep`; [`analyses`] is the table glue.
 
 pub mod analyses;
+pub mod figures;
 pub mod kohler;
 pub mod oscillations;
 pub mod ratio;

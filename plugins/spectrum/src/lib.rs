@@ -10,6 +10,7 @@
 //! plugin); [`analyses`] is the table glue.
 
 pub mod analyses;
+pub mod figures;
 pub mod mobility_spectrum;
 pub mod multi_carrier;
 pub mod reduction;

@@ -26,7 +26,7 @@ fn rust_files(directory: &Path, found: &mut Vec<PathBuf>) {
 fn every_rust_file_starts_with_a_module_doc_comment() {
     let root = workspace_root();
     let mut files = Vec::new();
-    for top in ["core", "rpc", "plugins", "clients", "tests", "demo-data"] {
+    for top in ["core", "rpc", "plugins", "clients", "tests", "demo-data", "templates"] {
         rust_files(&root.join(top), &mut files);
     }
     assert!(files.len() > 50, "the walk found only {} files", files.len());

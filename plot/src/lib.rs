@@ -28,7 +28,7 @@ use polars::prelude::DataFrame;
 use serde::{Deserialize, Deserializer};
 
 pub use figure::Figure;
-pub use mobilis_core::figure_spec::FigureSpec;
+pub use mobilis_core::abi::FigureSpec;
 pub use recipes::MAX_SERIES;
 
 /// What to draw. Every field is optional, so that the JSON-RPC layer can take it from the

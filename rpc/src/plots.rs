@@ -1,8 +1,9 @@
 //! `plot.render` and `plot.kinds`: figures of stored datasets, drawn by mobilis-plot.
 //!
 //! The daemon's part is small on purpose: find the dataset, keep the rows the client asked
-//! for (`filter`), tell the plot crate which analysis made the dataset (its provenance), and
-//! return the SVG and the Vega-Lite specification.
+//! for (`filter`), tell the plot crate which analysis made the dataset (its provenance) and
+//! the figures the loaded analyses declare ([`Service::figure_catalog`]), and return the SVG
+//! and the Vega-Lite specification. The daemon knows no figure of its own beyond `columns`.
 //!
 //! Figures are bounded before they are drawn: rows are grouped into series with one hash lookup
 //! per row, and a figure of more than `mobilis_plot::MAX_SERIES` (200) series or of more than

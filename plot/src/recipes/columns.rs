@@ -5,7 +5,7 @@ use super::{all_rows, points, Context, Drawing};
 use crate::figure::{AxisSpec, Series, SHAPES};
 use crate::units::{column_display, is_density_unit};
 use crate::PlotError;
-use mobilis_core::figure_spec::SeriesKey;
+use mobilis_core::abi::SeriesKey;
 
 pub(crate) fn build(ctx: &Context) -> Result<Drawing, PlotError> {
     let options = ctx.options;

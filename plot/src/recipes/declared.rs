@@ -2,7 +2,7 @@
 //! the panels, series and axes. Every figure of an analysis's output, the built-in plugins'
 //! and a lab's own, is drawn here; nothing in this file knows an analysis or its columns.
 
-use mobilis_core::figure_spec::{
+use mobilis_core::abi::{
     AxisScale, AxisSpec as AxisDecl, DashSpec, ErrorBars, FigureSpec, LayerSpec, MarkSpec, Naming, PanelSpec, Transform,
 };
 
@@ -14,7 +14,8 @@ use crate::PlotError;
 /// The figure `spec` declares, drawn from the context's table.
 pub(crate) fn build(ctx: &Context, spec: &FigureSpec) -> Result<Drawing, PlotError> {
     let spec = chosen(ctx, spec)?;
-    let rows = figure_rows(ctx, spec)?;
+    let kinds = RowKinds::read(ctx, spec)?;
+    let rows = figure_rows(ctx, spec, &kinds)?;
     let groups = ctx.groups(&rows, &spec.series_by)?;
     let mut panels = Vec::new();
     if spec.panel_per_series {
@@ -22,14 +23,14 @@ pub(crate) fn build(ctx: &Context, spec: &FigureSpec) -> Result<Drawing, PlotErr
         if let Some(panel) = spec.panels.first() {
             for group in &groups {
                 let title = (groups.len() > 1 && !group.label.is_empty()).then(|| group.label.clone());
-                let mut built = build_panel(ctx, panel, std::slice::from_ref(group), 1)?;
+                let mut built = build_panel(ctx, panel, std::slice::from_ref(group), 1, &kinds)?;
                 built.title = title;
                 panels.push(built);
             }
         }
     } else {
         for panel in &spec.panels {
-            panels.push(build_panel(ctx, panel, &groups, groups.len())?);
+            panels.push(build_panel(ctx, panel, &groups, groups.len(), &kinds)?);
         }
     }
     Ok(Drawing {
@@ -64,9 +65,9 @@ fn has_values(ctx: &Context, name: &str) -> Result<bool, PlotError> {
 
 /// The rows the figure draws: its row kinds' rows in the declared order (the order that names
 /// the series), trimmed in x when declared.
-fn figure_rows(ctx: &Context, spec: &FigureSpec) -> Result<Vec<usize>, PlotError> {
+fn figure_rows(ctx: &Context, spec: &FigureSpec, kinds: &RowKinds) -> Result<Vec<usize>, PlotError> {
     if let Some(required) = &spec.requires {
-        if ctx.rows_of_kind(&required.kind)?.is_empty() {
+        if kinds.rows_of(&required.kind).is_empty() {
             return Err(PlotError::Unusable(format!(
                 "dataset `{}` has no rows of kind {}: {}",
                 ctx.dataset, required.kind, required.hint
@@ -78,7 +79,7 @@ fn figure_rows(ctx: &Context, spec: &FigureSpec) -> Result<Vec<usize>, PlotError
     } else {
         let mut rows = Vec::new();
         for kind in &spec.row_kinds {
-            rows.extend(ctx.rows_of_kind(kind)?);
+            rows.extend(kinds.rows_of(kind));
         }
         rows
     };
@@ -172,26 +173,55 @@ fn axis(ctx: &Context, decl: &AxisDecl, column: &str, transforms: &[Transform]) 
 }
 
 /// One panel: every layer for every group, group by group.
-fn build_panel(ctx: &Context, panel: &PanelSpec, groups: &[Group], named_groups: usize) -> Result<Panel, PlotError> {
+fn build_panel(
+    ctx: &Context,
+    panel: &PanelSpec,
+    groups: &[Group],
+    named_groups: usize,
+    kinds: &RowKinds,
+) -> Result<Panel, PlotError> {
     let x = x_values(ctx, &panel.x)?;
-    let x_axis = axis(ctx, &panel.x, x_column(ctx, &panel.x)?, &[])?;
-    let mut layers = Vec::new();
+    let x_name = x_column(ctx, &panel.x)?;
+    let x_axis = axis(ctx, &panel.x, x_name, &[])?;
+    // Layers that draw the same values (data points in and out of a fit, a fit line over the
+    // same column) share one computation over the table.
+    let mut computed: Vec<(&LayerSpec, LayerValues)> = Vec::new();
+    let mut layers: Vec<(&LayerSpec, usize)> = Vec::new();
     for layer in &panel.layers {
         if layer.optional && !has_values(ctx, &layer.y)? {
             continue;
         }
-        layers.push((layer, layer_values(ctx, layer, (x_column(ctx, &panel.x)?, &x), groups)?));
+        let same = computed.iter().position(|(other, _)| {
+            other.y == layer.y && other.errors == layer.errors && other.transforms == layer.transforms
+        });
+        let index = match same {
+            Some(index) => index,
+            None => {
+                computed.push((layer, layer_values(ctx, layer, (x_name, &x), groups)?));
+                computed.len() - 1
+            }
+        };
+        layers.push((layer, index));
     }
     let y_axis = match panel.layers.first() {
         Some(first) => axis(ctx, &panel.y, &first.y, &first.transforms)?,
         None => AxisSpec::new(panel.y.label.clone(), None, matches!(panel.y.scale, AxisScale::Log)),
     };
-    let kinds = RowKinds::of(ctx, &panel.layers)?;
+    // Boolean columns that select rows, read once for all groups.
+    let mut flags: Vec<(&str, Option<Vec<bool>>)> = Vec::new();
+    for (layer, _) in &layers {
+        if let Some(flag) = &layer.rows.flag {
+            if !flags.iter().any(|(name, _)| *name == flag.column) {
+                flags.push((&flag.column, ctx.flags(&flag.column)));
+            }
+        }
+    }
     let single = groups.len() == 1;
     let mut series = Vec::new();
     for (k, group) in groups.iter().enumerate() {
-        for (layer, values) in &layers {
-            let rows = kinds.select(ctx, layer, group, &values.y)?;
+        for (layer, index) in &layers {
+            let values = &computed[*index].1;
+            let rows = kinds.select(ctx, layer, group, &values.y, &flags)?;
             let drawn = points(&rows, &x, &values.y, values.errors.as_deref());
             let name = series_name(ctx, layer, group, named_groups, &drawn);
             let colour = match (layer.colour, layer.colour_alone) {
@@ -350,31 +380,66 @@ fn layer_values(
     Ok(LayerValues { y, errors })
 }
 
-/// Which rows hold which `kind`, read once per panel for the layers that select by kind.
+/// Which rows hold which of the kinds a figure names, read once per figure.
 struct RowKinds {
-    kinds: Option<Vec<Option<String>>>,
+    names: Vec<String>,
+    /// Each row's kind as an index into `names`; None when the figure names no kind.
+    codes: Option<Vec<Option<usize>>>,
 }
 
 impl RowKinds {
-    fn of(ctx: &Context, layers: &[LayerSpec]) -> Result<RowKinds, PlotError> {
-        let needed = layers.iter().any(|l| l.rows.kind.is_some());
-        Ok(RowKinds {
-            kinds: if needed { Some(ctx.texts("kind")?) } else { None },
-        })
+    fn read(ctx: &Context, spec: &FigureSpec) -> Result<RowKinds, PlotError> {
+        let mut names: Vec<String> = Vec::new();
+        let mentioned =
+            spec.requires
+                .iter()
+                .map(|r| &r.kind)
+                .chain(&spec.row_kinds)
+                .chain(spec.panels.iter().flat_map(|p| {
+                    p.layers
+                        .iter()
+                        .flat_map(|l| l.rows.kind.iter().chain(l.rows.kind_fallback.iter()))
+                }));
+        for kind in mentioned {
+            if !names.contains(kind) {
+                names.push(kind.clone());
+            }
+        }
+        let codes = if names.is_empty() {
+            None
+        } else {
+            let borrowed: Vec<&str> = names.iter().map(String::as_str).collect();
+            Some(ctx.kind_codes(&borrowed)?)
+        };
+        Ok(RowKinds { names, codes })
+    }
+
+    fn code(&self, kind: &str) -> Option<usize> {
+        self.names.iter().position(|n| n == kind)
+    }
+
+    /// Every row of `kind`, in table order.
+    fn rows_of(&self, kind: &str) -> Vec<usize> {
+        let (Some(codes), Some(code)) = (&self.codes, self.code(kind)) else {
+            return Vec::new();
+        };
+        (0..codes.len()).filter(|&r| codes[r] == Some(code)).collect()
     }
 
     /// The rows of `group` that `layer` draws.
-    fn select(&self, ctx: &Context, layer: &LayerSpec, group: &Group, y: &[f64]) -> Result<Vec<usize>, PlotError> {
+    fn select(
+        &self,
+        ctx: &Context,
+        layer: &LayerSpec,
+        group: &Group,
+        y: &[f64],
+        flags: &[(&str, Option<Vec<bool>>)],
+    ) -> Result<Vec<usize>, PlotError> {
         let selection = &layer.rows;
         let of_kind = |kind: &str| -> Vec<usize> {
-            match &self.kinds {
-                Some(kinds) => group
-                    .rows
-                    .iter()
-                    .copied()
-                    .filter(|&r| kinds[r].as_deref() == Some(kind))
-                    .collect(),
-                None => group.rows.clone(),
+            match (&self.codes, self.code(kind)) {
+                (Some(codes), Some(code)) => group.rows.iter().copied().filter(|&r| codes[r] == Some(code)).collect(),
+                _ => Vec::new(),
             }
         };
         let mut rows = match &selection.kind {
@@ -388,7 +453,11 @@ impl RowKinds {
             None => group.rows.clone(),
         };
         if let Some(flag) = &selection.flag {
-            match ctx.flags(&flag.column) {
+            let read = flags
+                .iter()
+                .find(|(name, _)| *name == flag.column)
+                .and_then(|(_, f)| f.as_ref());
+            match read {
                 Some(flags) => rows.retain(|&r| flags[r] == flag.value),
                 None if flag.required => {
                     return Err(match ctx.floats(&flag.column) {

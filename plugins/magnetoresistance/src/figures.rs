@@ -2,7 +2,7 @@
 //! symmetrized sweeps, magnetoresistance and Kohler plots, the two-band fit, the quantum
 //! oscillation plots (spectrum, mass, curves, Dingle, Landau fan) and weak localization.
 
-use mobilis_core::figure_spec::{
+use mobilis_core::abi::{
     AxisScale, AxisSpec, DashSpec, ErrorBars, FigureSpec, LayerSpec, Naming, PanelSpec, SeriesKey, Transform,
 };
 

@@ -23,8 +23,8 @@
 //! with `mobilisd --plugin-dir`, test.
 
 use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
+use mobilis_core::abi::{AxisScale, AxisSpec, FigureSpec, LayerSpec, Naming, PanelSpec};
 use mobilis_core::constants::ELEMENTARY_CHARGE_C;
-use mobilis_core::figure_spec::{AxisScale, AxisSpec, FigureSpec, LayerSpec, Naming, PanelSpec};
 use mobilis_core::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
 use polars::prelude::{Column, DataFrame};
 use serde::Deserialize;

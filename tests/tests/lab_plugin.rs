@@ -33,6 +33,35 @@ fn analysis_names(list: &Value) -> Vec<String> {
         .collect()
 }
 
+/// The columns a declared figure reads (not those of its fallback): x columns, layer columns,
+/// flag and `kind` columns.
+fn figure_columns(figure: &Value) -> Vec<String> {
+    let mut columns = Vec::new();
+    if figure["row_kinds"].as_array().is_some_and(|k| !k.is_empty()) {
+        columns.push("kind".to_owned());
+    }
+    for panel in figure["panels"].as_array().into_iter().flatten() {
+        columns.extend(panel["x"]["column"].as_str().map(str::to_owned));
+        for layer in panel["layers"].as_array().into_iter().flatten() {
+            columns.extend(layer["y"].as_str().map(str::to_owned));
+            columns.extend(layer["rows"]["flag"]["column"].as_str().map(str::to_owned));
+            if layer["rows"]["kind"].is_string() {
+                columns.push("kind".to_owned());
+            }
+        }
+    }
+    columns
+}
+
+fn declared_outputs(described: &Value) -> Vec<String> {
+    described["outputs"]
+        .as_array()
+        .into_iter()
+        .flatten()
+        .filter_map(|c| c["name"].as_str().map(str::to_owned))
+        .collect()
+}
+
 #[tokio::test(flavor = "multi_thread")]
 async fn the_template_plugin_runs_and_gets_its_declared_figure_through_the_daemon() {
     // Not loaded by default: the daemon's own scan takes only mobilis's plugins.
@@ -40,6 +69,29 @@ async fn the_template_plugin_runs_and_gets_its_declared_figure_through_the_daemo
     let names = analysis_names(&plain.call("analysis.list", json!({})).await);
     assert!(names.iter().any(|n| n == "hall.reduce"), "{names:?}");
     assert!(!names.iter().any(|n| n.starts_with("lab.")), "{names:?}");
+    // Every built-in figure draws columns its analysis declares as outputs.
+    for name in &names {
+        let described = plain.call("analysis.describe", json!({"analysis": name})).await;
+        let figures = described["figures"].as_array().cloned().unwrap_or_default();
+        let outputs = declared_outputs(&described);
+        for figure in &figures {
+            // The figure or one of its fallbacks (a figure shared by two analyses draws each
+            // one's table by its own variant) reads declared columns only.
+            let mut variants = vec![figure];
+            while let Some(fallback) = variants.last().map(|v| &v["fallback"]).filter(|f| f.is_object()) {
+                variants.push(fallback);
+            }
+            let undeclared: Vec<Vec<String>> = variants
+                .iter()
+                .map(|v| figure_columns(v).into_iter().filter(|c| !outputs.contains(c)).collect())
+                .collect();
+            assert!(
+                undeclared.iter().any(Vec::is_empty),
+                "figure {} of {name} draws {undeclared:?}, which {name} does not declare",
+                figure["name"]
+            );
+        }
+    }
     drop(plain);
 
     let dir = template_dir();

@@ -2,11 +2,13 @@
 //! same figure in Vega-Lite for notebooks that render it interactively.
 //!
 //! [`build`] turns a dataset (a polars DataFrame in SI units, columns named as the plugins
-//! write them) into a [`Figure`] by a recipe, a "kind": the plots the trade draws from each
-//! analysis's output (carrier density against temperature, the Arrhenius plot, the mobility
-//! spectrum, the Kohler plot, ...) or `columns` for anything else. Axes are in the customary
-//! units (cm^-3, cm^2/(V s), ohm cm, T, K, 1000/T), logarithmic where the trade draws them so,
-//! and uncertainty columns (`_unc`, one sigma) become error bars.
+//! write them) into a [`Figure`] of a "kind": one of the figures the analysis that made the
+//! dataset declares ([`FigureSpec`], in its plugin's declaration, gathered in a
+//! [`FigureCatalog`]), or `columns` for anything else. The crate knows no analysis: a lab's own
+//! plugin that declares its figures gets them drawn as the built-in plugins' are. Axes are in
+//! the customary units the column names imply (cm^-3, cm^2/(V s), ohm cm, T, K, 1000/T),
+//! logarithmic where the declaration says, and uncertainty columns (`_unc`, one sigma) become
+//! error bars.
 //!
 //! The SVG is written here rather than by a plotting crate: the figures are few and
 //! specific, a dependency would bring its own fonts and rasterizers, and the renderer is small
@@ -28,49 +30,105 @@ use polars::prelude::DataFrame;
 
 pub use error::PlotError;
 pub use figure::Figure;
+pub use mobilis_sdk::abi::FigureSpec;
 pub use options::PlotOptions;
 pub use recipes::MAX_SERIES;
 
-/// A recipe as listed to clients.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+/// A plot kind as listed to clients.
+#[derive(Debug, Clone, PartialEq, Eq)]
 pub struct KindInfo {
-    pub name: &'static str,
-    pub description: &'static str,
-    /// The analyses whose output the recipe draws; empty for `columns`, which draws any.
-    pub analyses: &'static [&'static str],
+    pub name: String,
+    pub description: String,
+    /// The analyses that declare the kind for their output; empty for `columns`, which draws
+    /// any table.
+    pub analyses: Vec<String>,
 }
 
-static KINDS: std::sync::OnceLock<Vec<KindInfo>> = std::sync::OnceLock::new();
+/// The generic figure every table gets.
+pub const COLUMNS: &str = "columns";
 
-/// Every recipe, `columns` first.
-pub fn kinds() -> &'static [KindInfo] {
-    KINDS.get_or_init(|| {
-        recipes::RECIPES
-            .iter()
-            .map(|r| KindInfo {
-                name: r.name,
-                description: r.description,
-                analyses: r.analyses,
-            })
-            .collect()
-    })
+const COLUMNS_DESCRIPTION: &str = "Any dataset: the columns `y` against `x`, one series per combination of `series_by`, with error bars from `y_error` or the columns' `_unc` companions; axes in the units of the trade.";
+
+/// The figures the loaded analyses declare, by analysis: what [`build`] can draw besides
+/// `columns`. The daemon fills it from the plugins' declarations, so that the host knows no
+/// analysis's figures of its own.
+#[derive(Debug, Clone, Default)]
+pub struct FigureCatalog<'a> {
+    /// (analysis, its figures in declared order), in the order added.
+    analyses: Vec<(&'a str, &'a [FigureSpec])>,
 }
 
-/// The recipes that draw a dataset made by `analysis`, its default first: all the plots of
-/// the dataset for a report. Imported data, and analyses without a recipe, get `columns`.
-pub fn kinds_for(analysis: Option<&str>) -> Vec<&'static str> {
-    let found: Vec<&'static str> = match analysis {
-        Some(analysis) => recipes::RECIPES
+impl<'a> FigureCatalog<'a> {
+    pub fn new() -> Self {
+        FigureCatalog::default()
+    }
+
+    /// Adds the figures `analysis` declares (its default first).
+    pub fn add(&mut self, analysis: &'a str, figures: &'a [FigureSpec]) {
+        self.analyses.push((analysis, figures));
+    }
+
+    /// The figure `kind` as `analysis` declares it, else as the first analysis declaring it
+    /// does, with the analyses that declare a figure of that name.
+    fn find(&self, kind: &str, analysis: Option<&str>) -> Option<(&'a FigureSpec, Vec<String>)> {
+        let declaring: Vec<(&'a str, &'a FigureSpec)> = self
+            .analyses
             .iter()
-            .filter(|r| r.analyses.contains(&analysis))
-            .map(|r| r.name)
-            .collect(),
-        None => Vec::new(),
-    };
-    if found.is_empty() {
-        vec!["columns"]
-    } else {
-        found
+            .filter_map(|(name, figures)| figures.iter().find(|f| f.name == kind).map(|f| (*name, f)))
+            .collect();
+        let spec = declaring
+            .iter()
+            .find(|(name, _)| Some(*name) == analysis)
+            .or(declaring.first())
+            .map(|(_, spec)| *spec)?;
+        Some((spec, declaring.iter().map(|(name, _)| (*name).to_owned()).collect()))
+    }
+
+    /// Every kind, `columns` first, then the declared figures in the order of their first
+    /// declaration.
+    pub fn kinds(&self) -> Vec<KindInfo> {
+        let mut kinds = vec![KindInfo {
+            name: COLUMNS.to_owned(),
+            description: COLUMNS_DESCRIPTION.to_owned(),
+            analyses: Vec::new(),
+        }];
+        for (analysis, figures) in &self.analyses {
+            for figure in figures.iter() {
+                match kinds.iter_mut().find(|k| k.name == figure.name) {
+                    Some(kind) => {
+                        if !kind.analyses.iter().any(|a| a == analysis) {
+                            kind.analyses.push((*analysis).to_owned());
+                        }
+                    }
+                    None => kinds.push(KindInfo {
+                        name: figure.name.clone(),
+                        description: figure.description.clone(),
+                        analyses: vec![(*analysis).to_owned()],
+                    }),
+                }
+            }
+        }
+        kinds
+    }
+
+    /// The kinds that draw a dataset made by `analysis`, its default first: all the plots of
+    /// the dataset for a report. Imported data, and analyses that declare no figure, get
+    /// `columns`.
+    pub fn kinds_for(&self, analysis: Option<&str>) -> Vec<String> {
+        let found: Vec<String> = match analysis {
+            Some(analysis) => self
+                .analyses
+                .iter()
+                .filter(|(name, _)| *name == analysis)
+                .flat_map(|(_, figures)| figures.iter().map(|f| f.name.clone()))
+                .collect(),
+            None => Vec::new(),
+        };
+        if found.is_empty() {
+            vec![COLUMNS.to_owned()]
+        } else {
+            found
+        }
     }
 }
 
@@ -129,34 +187,64 @@ fn selection_text(selection: &[(String, String)]) -> Option<String> {
 }
 
 /// Builds the figure of `frame` (named `dataset` in titles and messages) that `options` ask
-/// for.
-pub fn build(frame: &DataFrame, dataset: &str, options: &PlotOptions) -> Result<Figure, PlotError> {
+/// for, from the figures `catalog` declares (or the generic `columns` figure).
+pub fn build(
+    frame: &DataFrame,
+    dataset: &str,
+    options: &PlotOptions,
+    catalog: &FigureCatalog,
+) -> Result<Figure, PlotError> {
     size("width", options.width, DEFAULT_WIDTH)?;
     size("height", options.height, DEFAULT_HEIGHT)?;
+    let default_kind;
     let kind = match options.kind.as_deref().map(str::trim) {
-        None | Some("") | Some("auto") => kinds_for(options.analysis.as_deref())[0],
+        None | Some("") | Some("auto") => {
+            default_kind = catalog.kinds_for(options.analysis.as_deref()).remove(0);
+            default_kind.as_str()
+        }
         Some(kind) => kind,
     };
-    let recipe = recipes::find(kind).ok_or_else(|| PlotError::UnknownKind {
-        kind: kind.to_owned(),
-        known: std::iter::once("auto")
-            .chain(recipes::RECIPES.iter().map(|r| r.name))
-            .collect::<Vec<_>>()
-            .join(", "),
-    })?;
-    if kind != "columns" && (options.x.is_some() || !options.y.is_empty()) {
+    let declared = if kind == COLUMNS {
+        None
+    } else {
+        Some(catalog.find(kind, options.analysis.as_deref()).ok_or_else(|| {
+            PlotError::UnknownKind {
+                kind: kind.to_owned(),
+                known: std::iter::once("auto".to_owned())
+                    .chain(catalog.kinds().into_iter().map(|k| k.name))
+                    .collect::<Vec<_>>()
+                    .join(", "),
+            }
+        })?)
+    };
+    let kind_ref = match &declared {
+        None => recipes::KindRef {
+            name: COLUMNS.to_owned(),
+            needs: "the columns named by x and y".to_owned(),
+            analyses: Vec::new(),
+        },
+        Some((spec, analyses)) => recipes::KindRef {
+            name: spec.name.clone(),
+            needs: needs_text(spec),
+            analyses: analyses.clone(),
+        },
+    };
+    if declared.is_some() && (options.x.is_some() || !options.y.is_empty()) {
         return Err(PlotError::BadOption(format!(
             "x and y choose the columns of kind `columns`; kind `{kind}` draws fixed columns ({}); leave x and y out or ask for kind `columns`",
-            recipe.needs
+            kind_ref.needs
         )));
     }
     let context = recipes::Context {
         frame,
         dataset,
         options,
-        recipe,
+        kind: &kind_ref,
     };
-    let drawing = (recipe.build)(&context)?;
+    let drawing = match &declared {
+        None => recipes::columns::build(&context)?,
+        Some((spec, _)) => recipes::declared::build(&context, spec)?,
+    };
     let (default_width, default_height) = if drawing.panels.len() > 1 {
         (DEFAULT_MULTI_WIDTH, DEFAULT_MULTI_HEIGHT)
     } else {
@@ -181,7 +269,7 @@ pub fn build(frame: &DataFrame, dataset: &str, options: &PlotOptions) -> Result<
         title = format!("{title} ({selection})");
     }
     let mut figure = Figure {
-        kind: recipe.name.to_owned(),
+        kind: kind_ref.name.clone(),
         title,
         panels,
         panel_width: width,
@@ -198,11 +286,30 @@ pub fn build(frame: &DataFrame, dataset: &str, options: &PlotOptions) -> Result<
         };
         return Err(PlotError::NoFinitePoints {
             dataset: dataset.to_owned(),
-            kind: recipe.name.to_owned(),
+            kind: kind_ref.name.clone(),
             hint,
         });
     }
     Ok(figure)
+}
+
+/// "temperature_K and density_m3 (or sheet_density_m2)": the columns a declared figure draws,
+/// for messages.
+fn needs_text(spec: &FigureSpec) -> String {
+    let join = |columns: Vec<String>| match columns.split_last() {
+        None => "its declared columns".to_owned(),
+        Some((last, [])) => last.clone(),
+        Some((last, rest)) => format!("{} and {last}", rest.join(", ")),
+    };
+    let mut text = join(spec.needed_columns());
+    let mut fallback = spec.fallback.as_deref();
+    while let Some(other) = fallback {
+        if let Some(layer) = other.panels.first().and_then(|p| p.layers.first()) {
+            text.push_str(&format!(" (or {})", layer.y));
+        }
+        fallback = other.fallback.as_deref();
+    }
+    text
 }
 
 impl Figure {

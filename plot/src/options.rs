@@ -1,4 +1,4 @@
-//! What to draw: the options of one figure as the JSON-RPC layer passes them. The recipes read
+//! What to draw: the options of one figure as the JSON-RPC layer passes them. The figure builders read
 //! them and the crate root takes them, so they sit below both.
 
 use serde::{Deserialize, Deserializer};
@@ -8,8 +8,8 @@ use serde::{Deserialize, Deserializer};
 #[derive(Debug, Clone, Default, PartialEq, Deserialize)]
 #[serde(default, deny_unknown_fields)]
 pub struct PlotOptions {
-    /// A recipe name (see [`crate::kinds`]); None or "auto": the first recipe of `analysis`, else
-    /// "columns".
+    /// A kind (see [`crate::FigureCatalog::kinds`]); None or "auto": the first figure `analysis`
+    /// declares, else "columns".
     pub kind: Option<String>,
     /// The analysis that produced the dataset (from its provenance), if any.
     pub analysis: Option<String>,
@@ -22,10 +22,10 @@ pub struct PlotOptions {
     /// `_unc` companion is used when the dataset has it.
     #[serde(deserialize_with = "one_or_many")]
     pub y_error: Vec<String>,
-    /// Columns whose value combinations become separate series; None: the recipe's default
+    /// Columns whose value combinations become separate series; None: the figure's default
     /// (sample, temperature, field where present and varying).
     pub series_by: Option<Vec<String>>,
-    /// Override the recipe's choice of logarithmic axes.
+    /// Override the figure's choice of logarithmic axes.
     pub log_x: Option<bool>,
     pub log_y: Option<bool>,
     pub title: Option<String>,

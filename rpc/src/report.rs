@@ -365,7 +365,7 @@ fn flags_html(frame: &DataFrame) -> Option<String> {
         .map(|(flag, count)| format!("<code>{}</code> on {count}", escape(flag)))
         .collect();
     Some(format!(
-        "<p class=\"flags raised\">Quality flags: {flagged} of {} rows flagged — {}. Thresholds and meanings: DEVELOPERS.md, hall.reduce.</p>",
+        "<p class=\"flags raised\">Quality flags: {flagged} of {} rows flagged — {}. Thresholds and meanings: the flags column and the threshold parameters in mobilis describe hall.reduce.</p>",
         frame.height(),
         list.join(", ")
     ))
@@ -684,6 +684,8 @@ impl Service {
         let mut body = summary::html(&results);
         let mut figures_drawn = 0usize;
         let mut contents = Vec::new();
+        // The figures come from the declarations of the analyses that made the datasets.
+        let catalog = self.figure_catalog();
         for (dataset, frame) in &frames {
             let name = &dataset.manifest.name;
             let _ = write!(
@@ -707,22 +709,23 @@ impl Service {
                 } => Some(analysis.as_str()),
                 _ => None,
             };
-            let kinds: Vec<&str> = match analysis {
-                Some(analysis) => mobilis_plot::kinds_for(Some(analysis))
+            let kinds: Vec<String> = match analysis {
+                Some(analysis) => catalog
+                    .kinds_for(Some(analysis))
                     .into_iter()
-                    .filter(|k| *k != "columns")
+                    .filter(|k| k != mobilis_plot::COLUMNS)
                     .collect(),
                 None => Vec::new(),
             };
             let mut drawn = Vec::new();
             let mut not_drawn = Vec::new();
-            for kind in kinds {
+            for kind in &kinds {
                 let options = mobilis_plot::PlotOptions {
-                    kind: Some(kind.to_owned()),
+                    kind: Some(kind.clone()),
                     analysis: analysis.map(str::to_owned),
                     ..Default::default()
                 };
-                match mobilis_plot::build(frame, name, &options) {
+                match mobilis_plot::build(frame, name, &options, &catalog) {
                     Ok(figure) => {
                         let svg = figure.to_svg();
                         let (width, drawn_width) = figure_width(&svg);
@@ -736,7 +739,7 @@ impl Service {
                                 height: Some(PRINT_PANEL_HEIGHT),
                                 ..options.clone()
                             };
-                            if let Ok(small) = mobilis_plot::build(frame, name, &print) {
+                            if let Ok(small) = mobilis_plot::build(frame, name, &print, &catalog) {
                                 drawn.push(format!(
                                     "<figure class=\"plot wide print-only\" data-kind=\"{}\">{}<figcaption>figure kind {} (plot.render)</figcaption></figure>",
                                     escape(kind),

@@ -62,6 +62,8 @@
 //!   static in every 1.0 plugin, and the declaration already reaches isolated workers'
 //!   supervisors as it is.
 
+// The figure vocabulary is part of the declaration: plugins name it through this module.
+pub use crate::figure_spec::*;
 use polars_arrow::ffi::{ArrowArray, ArrowSchema};
 use serde::{Deserialize, Serialize};
 use std::os::raw::{c_char, c_void};
@@ -446,6 +448,12 @@ pub struct AnalysisDeclaration {
     /// The keys of the result's `summary` object.
     #[serde(default)]
     pub summary_keys: Vec<ColumnSpec>,
+    /// The figures of the output table, the default first (see [`crate::figure_spec`]).
+    /// Optional: a declaration without it (every plugin older than the field) has none, and
+    /// its tables get the generic `columns` figure. JSON only, so the C-side structs and the
+    /// ABI version do not change.
+    #[serde(default)]
+    pub figures: Vec<FigureSpec>,
 }
 
 /// One input table of an analysis.

@@ -1,5 +1,6 @@
 //! mobilis-sdk: the plugin contract of mobilis, as one crate for the daemon and every plugin.
 //!
+//! - [`figure_spec`]: the figures an analysis declares for its output table.
 //! - [`abi`]: the C ABI between the daemon and plugin libraries (mirrored by
 //!   `include/mobilis_plugin.h`).
 //! - [`table_ffi`]: DataFrames across the Arrow C Data Interface.
@@ -15,6 +16,7 @@
 //! - I/O: no files, no sockets, no printing.
 
 pub mod abi;
+pub mod figure_spec;
 pub mod sdk;
 pub mod sweep_table;
 pub mod table_ffi;

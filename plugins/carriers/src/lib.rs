@@ -88,6 +88,7 @@
 pub mod analyses;
 pub mod arrhenius;
 pub mod carrier_type;
+pub mod figures;
 pub mod freeze_out;
 pub mod materials;
 pub mod purity;

@@ -45,6 +45,7 @@
 //! standard. Bad readings (zero current, NaN, a contact outside 1..4 or 1..6) are errors naming
 //! the reading; `skip_invalid_readings: true` drops them with warnings.
 
+pub mod figures;
 pub mod reduce;
 
 use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
@@ -830,6 +831,7 @@ impl Analysis for HallReduce {
                 column("calibrations", Str, None, "object per sample: the calibrations used (relative standard uncertainties, temperature_accuracy_K), the names not stated and assumed, and reading_noise_V, the pooled voltage noise of one reading"),
                 column("calibrations_not_stated", Str, None, "list of the calibration parameters some sample did not state (their defaults were assumed)"),
             ],
+            figures: crate::figures::reduce(),
         }
     }
 

@@ -68,6 +68,7 @@
 //! is the suspect.
 
 pub mod analyses;
+pub mod figures;
 pub mod kohler;
 pub mod oscillations;
 pub mod ratio;

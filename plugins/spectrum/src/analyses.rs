@@ -111,6 +111,7 @@ impl Analysis for MultiCarrierFitAnalysis {
                 column("carriers", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc"),
                 single_field_sign_key(),
             ],
+            figures: crate::figures::multi_carrier_fit(),
         }
     }
 
@@ -296,6 +297,7 @@ impl Analysis for MobilitySpectrumAnalysis {
                 column("peaks", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc"),
                 single_field_sign_key(),
             ],
+            figures: crate::figures::mobility(),
         }
     }
 

@@ -55,6 +55,7 @@
 //! three of its uncertainties.
 
 pub mod analyses;
+pub mod figures;
 pub mod mobility_spectrum;
 pub mod monitor;
 pub mod multi_carrier;

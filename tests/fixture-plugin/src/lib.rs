@@ -63,6 +63,7 @@ impl Analysis for Identity {
             inputs: vec![values_role(Vec::new(), "any table; every column is returned")],
             outputs: Vec::new(),
             summary_keys: Vec::new(),
+            figures: Vec::new(),
         }
     }
 
@@ -109,6 +110,7 @@ impl Analysis for Scale {
                 None,
                 "sum of the non-null x_scaled",
             )],
+            figures: Vec::new(),
         }
     }
 
@@ -141,6 +143,7 @@ impl Analysis for Panic {
             inputs: vec![values_role(Vec::new(), "any table")],
             outputs: Vec::new(),
             summary_keys: Vec::new(),
+            figures: Vec::new(),
         }
     }
 
@@ -193,6 +196,7 @@ impl Analysis for Wait {
                 "time spent waiting",
             )],
             summary_keys: Vec::new(),
+            figures: Vec::new(),
         }
     }
 

@@ -25,16 +25,18 @@ fn rust_files(directory: &Path, found: &mut Vec<PathBuf>) {
 }
 
 /// The folders of the workspace that hold Rust sources.
-const SOURCE_FOLDERS: [&str; 9] = [
+const SOURCE_FOLDERS: [&str; 11] = [
     "numerics",
     "physics",
     "sdk",
+    "protocol",
     "rpc",
     "plot",
     "plugins",
     "clients",
     "tests",
     "demo-data",
+    "templates",
 ];
 
 #[test]

@@ -101,6 +101,7 @@ impl Analysis for ArrheniusAnalysis {
                 keys.extend(budget_summary_keys());
                 keys
             },
+            figures: crate::figures::arrhenius(),
         }
     }
 

@@ -217,6 +217,7 @@ impl Analysis for FreezeOutFitAnalysis {
                 keys.extend(budget_summary_keys());
                 keys
             },
+            figures: crate::figures::freeze_out(),
         }
     }
 

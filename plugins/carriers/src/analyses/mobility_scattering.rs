@@ -276,6 +276,7 @@ impl Analysis for MobilityScatteringAnalysis {
                 column("birge_ratio", F64, None, "the factor the uncertainties were scaled by (1: not scaled)"),
                 column("floored_points", I64, None, "points whose uncertainty was raised to relative_uncertainty_floor"),
             ],
+            figures: crate::figures::mobility_scattering(),
         }
     }
 

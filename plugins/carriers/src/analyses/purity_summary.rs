@@ -176,6 +176,7 @@ impl Analysis for PurityAnalysis {
             ],
             outputs,
             summary_keys: vec![column("samples", I64, None, "rows of the output")],
+            figures: Vec::new(),
         }
     }
 

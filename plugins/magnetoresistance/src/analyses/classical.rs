@@ -106,6 +106,7 @@ impl Analysis for SymmetrizeAnalysis {
                 column("misalignment_fraction", F64, None, "rho_xy_even / rho_xx at low field, with _unc"),
                 column("max_rho_xy_asymmetry", F64, None, "largest removed even part relative to rho_xy"),
             ],
+            figures: crate::figures::symmetrize(),
         }
     }
 
@@ -190,6 +191,7 @@ impl Analysis for RatioAnalysis {
                 column("magnetoresistance_at_max_field", F64, None, "MR at the largest field"),
                 single_field_sign_key(),
             ],
+            figures: crate::figures::ratio(),
         }
     }
 
@@ -275,6 +277,7 @@ impl Analysis for KohlerAnalysis {
                 column("rms_excess_spread", F64, None, "rms spread of ln MR beyond the noise"),
                 single_field_sign_key(),
             ],
+            figures: crate::figures::kohler(),
         }
     }
 
@@ -428,6 +431,7 @@ impl Analysis for TwoBandAnalysis {
                 column("birge_ratio", F64, None, "sqrt(chi^2 / nu) when above 1 (the uncertainties were multiplied by it), else 1; null without stated uncertainties"),
                 single_field_sign_key(),
             ],
+            figures: crate::figures::two_band_fit(),
         }
     }
 

@@ -213,6 +213,7 @@ impl Analysis for OscillationsAnalysis {
                 column("calibrations_not_stated", Str, None, "the calibration parameters not stated, whose common-practice values were assumed in the _unc_sys parts (JSON list)"),
                 column("uncertainty_checks", Str, None, "the repeated analyses whose spread is in the _unc_stat parts (JSON list)"),
             ],
+            figures: crate::figures::oscillations(),
         }
     }
 
@@ -634,6 +635,7 @@ impl Analysis for WeakLocalizationAnalysis {
                 column("chi_square_p_value", F64, None, "P(chi^2 >= observed) when rho_xx_ohm_sq_unc weights the fit, else null"),
                 column("birge_ratio", F64, None, "sqrt(chi^2 / nu) when above 1 (the uncertainties were multiplied by it), else 1; null without stated uncertainties"),
             ],
+            figures: crate::figures::weak_localization(),
         }
     }
 

@@ -10,7 +10,9 @@
 //! (boolean or a schema), `enum`, `const`, `minimum`, `maximum`, `exclusiveMinimum`,
 //! `exclusiveMaximum`, `minLength`, `maxLength`, `items`, `minItems`, `maxItems`, `anyOf`,
 //! `oneOf`; annotations `title`, `description`, `default`, `examples`, `$schema`,
-//! `$comment` are accepted and ignored.
+//! `$comment`, `format`, `deprecated`, `readOnly`, `writeOnly` are accepted and ignored.
+//! Schemas derived by the SDK from typed parameters stay within this subset (subschemas
+//! inline, every enum a list of constants).
 
 use serde_json::{Map, Value};
 
@@ -33,7 +35,21 @@ const VALIDATING: [&str; 17] = [
     "anyOf",
     "oneOf",
 ];
-const ANNOTATIONS: [&str; 6] = ["title", "description", "default", "examples", "$schema", "$comment"];
+/// Keywords that describe and never constrain; `format` is among them because schemars
+/// writes it for every number (`double`, `uint32`, ...) and JSON Schema 2020-12 makes it an
+/// annotation unless a validator opts in.
+const ANNOTATIONS: [&str; 10] = [
+    "title",
+    "description",
+    "default",
+    "examples",
+    "$schema",
+    "$comment",
+    "format",
+    "deprecated",
+    "readOnly",
+    "writeOnly",
+];
 
 /// Refuses a schema that uses keywords this validator does not implement.
 pub fn check_supported(schema: &Value, path: &str) -> Result<(), String> {
@@ -216,6 +232,20 @@ fn validate_at(schema: &Value, value: &Value, path: &str) -> Result<(), String> 
             }
         }
     }
+    for key in ["anyOf", "oneOf"] {
+        // A derived enum is a list of constants (with their descriptions), perhaps with
+        // null: name the choices rather than "matches none of the forms".
+        if let Some(allowed) = map
+            .get(key)
+            .and_then(Value::as_array)
+            .and_then(|options| choices(options))
+        {
+            if !allowed.contains(value) {
+                let listed: Vec<String> = allowed.iter().map(Value::to_string).collect();
+                return Err(format!("{path} must be one of {} (got {value})", listed.join(", ")));
+            }
+        }
+    }
     if let Some(Value::Array(options)) = map.get("anyOf") {
         if !options.iter().any(|option| validate_at(option, value, path).is_ok()) {
             let first = options
@@ -237,6 +267,27 @@ fn validate_at(schema: &Value, value: &Value, path: &str) -> Result<(), String> 
         }
     }
     Ok(())
+}
+
+/// The values a list of alternatives allows, when every alternative is a constant, an
+/// enum, a list of such alternatives or `{"type": "null"}`; `None` otherwise.
+fn choices(options: &[Value]) -> Option<Vec<Value>> {
+    let mut allowed = Vec::new();
+    for option in options {
+        let map = option.as_object()?;
+        if let Some(constant) = map.get("const") {
+            allowed.push(constant.clone());
+        } else if let Some(Value::Array(values)) = map.get("enum") {
+            allowed.extend(values.iter().cloned());
+        } else if let Some(Value::Array(nested)) = map.get("oneOf").or_else(|| map.get("anyOf")) {
+            allowed.extend(choices(nested)?);
+        } else if map.get("type") == Some(&Value::String("null".into())) {
+            allowed.push(Value::Null);
+        } else {
+            return None;
+        }
+    }
+    Some(allowed)
 }
 
 #[cfg(test)]

@@ -19,6 +19,7 @@ use crate::plugin_supervisor::{WorkerPool, WorkerSettings};
 use mobilis_core::abi::{
     self, AnalysisDeclaration, EntryFn, HostContext, InputTable, InvokeOutput, PluginDeclaration, PluginDescriptor,
 };
+use mobilis_core::sdk;
 use mobilis_core::table_ffi::{self, TextLayout};
 use polars::prelude::DataFrame;
 use std::collections::BTreeMap;
@@ -450,17 +451,49 @@ impl PluginHost {
         control: &Arc<CallControl>,
     ) -> Result<InvokeSuccess, InvokeFailure> {
         let failure = |status: i32, message: String| InvokeFailure { status, message };
-        let plugin = self
-            .plugin_of(analysis)
+        let entry = self
+            .analyses
+            .get(analysis)
             .ok_or_else(|| failure(abi::STATUS_UNKNOWN_ANALYSIS, format!("no analysis `{analysis}`")))?;
-        match &plugin.backend {
+        let plugin = &self.plugins[entry.plugin_index];
+        let success = match &plugin.backend {
             Backend::InProcess(descriptor) => {
                 let layout = TextLayout::for_features(&plugin.features);
                 invoke_descriptor(descriptor, layout, analysis, params, inputs, control)
             }
             Backend::Isolated(pool) => pool.invoke(analysis, params, inputs, control),
-        }
+        }?;
+        check_declared_output(&plugin.name, &entry.declaration, &success)?;
+        Ok(success)
     }
+}
+
+/// Holds every output to its declaration, whichever SDK (or none) built it: a client
+/// reads columns and summary keys by their declared names and types, so a mismatch is the
+/// plugin's bug, reported as such (nothing is stored from a refused output).
+fn check_declared_output(
+    plugin: &str,
+    declaration: &AnalysisDeclaration,
+    success: &InvokeSuccess,
+) -> Result<(), InvokeFailure> {
+    let empty = serde_json::Map::new();
+    let summary = match &success.summary {
+        serde_json::Value::Object(map) => map,
+        serde_json::Value::Null => &empty,
+        other => {
+            return Err(InvokeFailure {
+                status: abi::STATUS_PANIC,
+                message: format!("plugin `{plugin}` returned a summary that is not an object: {other}"),
+            })
+        }
+    };
+    sdk::check_output(declaration, &success.table, summary).map_err(|violation| InvokeFailure {
+        status: abi::STATUS_PANIC,
+        message: format!(
+            "plugin `{plugin}` broke the declaration of `{}`: {violation}",
+            declaration.name
+        ),
+    })
 }
 
 /// Calls an analysis of a library loaded in this process, its input text in `layout` (see

@@ -51,7 +51,7 @@ fn float_series(name: &str, values: Vec<f64>) -> Column {
 /// `spectrum.multi_carrier_fit`.
 pub struct MultiCarrierFitAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 pub struct MultiCarrierParams {
     #[serde(flatten)]
     sweep: SweepParams,
@@ -111,6 +111,7 @@ impl Analysis for MultiCarrierFitAnalysis {
                 column("carriers", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc"),
                 single_field_sign_key(),
             ],
+            ..Default::default()
         }
     }
 
@@ -236,7 +237,7 @@ impl Analysis for MultiCarrierFitAnalysis {
 /// `spectrum.mobility`.
 pub struct MobilitySpectrumAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 pub struct SpectrumParams {
     #[serde(flatten)]
     sweep: SweepParams,
@@ -296,6 +297,7 @@ impl Analysis for MobilitySpectrumAnalysis {
                 column("peaks", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc"),
                 single_field_sign_key(),
             ],
+            ..Default::default()
         }
     }
 

@@ -11,7 +11,7 @@ use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 
 pub struct ArrheniusAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ArrheniusParams {
     #[serde(default)]
@@ -91,6 +91,7 @@ impl Analysis for ArrheniusAnalysis {
                 keys.extend(budget_summary_keys());
                 keys
             },
+            ..Default::default()
         }
     }
 

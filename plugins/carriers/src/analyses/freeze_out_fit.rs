@@ -14,7 +14,7 @@ fn default_material() -> String {
     "Si".into()
 }
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct FreezeOutParams {
     #[serde(default = "default_material")]
@@ -203,6 +203,7 @@ impl Analysis for FreezeOutFitAnalysis {
                 keys.extend(budget_summary_keys());
                 keys
             },
+            ..Default::default()
         }
     }
 

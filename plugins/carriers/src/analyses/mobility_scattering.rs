@@ -17,7 +17,7 @@ fn default_material() -> String {
     "Si".into()
 }
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ScatteringParams {
     #[serde(default = "default_material")]
@@ -260,6 +260,7 @@ impl Analysis for MobilityScatteringAnalysis {
                 column("birge_ratio", F64, None, "the factor the uncertainties were scaled by (1: not scaled)"),
                 column("floored_points", I64, None, "points whose uncertainty was raised to relative_uncertainty_floor"),
             ],
+            ..Default::default()
         }
     }
 

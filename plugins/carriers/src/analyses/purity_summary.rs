@@ -12,7 +12,7 @@ use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 
 pub struct PurityAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct PurityParams {
     #[serde(default)]
@@ -164,6 +164,7 @@ impl Analysis for PurityAnalysis {
             ],
             outputs,
             summary_keys: vec![column("samples", I64, None, "rows of the output")],
+            ..Default::default()
         }
     }
 

@@ -35,7 +35,7 @@ fn zero_field_properties(properties: &mut serde_json::Map<String, Value>) {
     properties.insert("extrapolation_points".into(), json!({"type": "integer", "minimum": 3, "default": crate::ratio::DEFAULT_EXTRAPOLATION_POINTS, "description": "lowest-field points of the quadratic extrapolation"}));
 }
 
-#[derive(Debug, Default, Deserialize)]
+#[derive(Debug, Default, Deserialize, schemars::JsonSchema)]
 struct ZeroFieldParams {
     #[serde(default)]
     zero_field: Option<String>,
@@ -69,7 +69,7 @@ fn ratio_settings(sweep: &SweepParams, zero: &ZeroFieldParams) -> Result<RatioSe
 
 pub struct SymmetrizeAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 pub struct SymmetrizeParams {
     #[serde(flatten)]
     sweep: SweepParams,
@@ -106,6 +106,7 @@ impl Analysis for SymmetrizeAnalysis {
                 column("misalignment_fraction", F64, None, "rho_xy_even / rho_xx at low field, with _unc"),
                 column("max_rho_xy_asymmetry", F64, None, "largest removed even part relative to rho_xy"),
             ],
+            ..Default::default()
         }
     }
 
@@ -156,7 +157,7 @@ impl Analysis for SymmetrizeAnalysis {
 
 pub struct RatioAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 pub struct RatioParams {
     #[serde(flatten)]
     sweep: SweepParams,
@@ -190,6 +191,7 @@ impl Analysis for RatioAnalysis {
                 column("magnetoresistance_at_max_field", F64, None, "MR at the largest field"),
                 single_field_sign_key(),
             ],
+            ..Default::default()
         }
     }
 
@@ -233,7 +235,7 @@ impl Analysis for RatioAnalysis {
 
 pub struct KohlerAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 pub struct KohlerParams {
     #[serde(flatten)]
     sweep: SweepParams,
@@ -275,6 +277,7 @@ impl Analysis for KohlerAnalysis {
                 column("rms_excess_spread", F64, None, "rms spread of ln MR beyond the noise"),
                 single_field_sign_key(),
             ],
+            ..Default::default()
         }
     }
 
@@ -381,7 +384,7 @@ impl Analysis for KohlerAnalysis {
 
 pub struct TwoBandAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 pub struct TwoBandParams {
     #[serde(flatten)]
     sweep: SweepParams,
@@ -428,6 +431,7 @@ impl Analysis for TwoBandAnalysis {
                 column("birge_ratio", F64, None, "sqrt(chi^2 / nu) when above 1 (the uncertainties were multiplied by it), else 1; null without stated uncertainties"),
                 single_field_sign_key(),
             ],
+            ..Default::default()
         }
     }
 

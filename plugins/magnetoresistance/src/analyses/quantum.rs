@@ -19,7 +19,7 @@ use serde_json::{json, Value};
 
 pub struct OscillationsAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 pub struct OscillationParams {
     #[serde(flatten)]
     sweep: SweepParams,
@@ -207,6 +207,7 @@ impl Analysis for OscillationsAnalysis {
                 column("calibrations_not_stated", Str, None, "the calibration parameters not stated, whose common-practice values were assumed in the _unc_sys parts (JSON list)"),
                 column("uncertainty_checks", Str, None, "the repeated analyses whose spread is in the _unc_stat parts (JSON list)"),
             ],
+            ..Default::default()
         }
     }
 
@@ -569,7 +570,7 @@ fn mass_fit_temperatures(measured_k: &[f64]) -> Vec<f64> {
 
 pub struct WeakLocalizationAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct WeakLocalizationParams {
     #[serde(rename = "max_field_T", default)]
@@ -628,6 +629,7 @@ impl Analysis for WeakLocalizationAnalysis {
                 column("chi_square_p_value", F64, None, "P(chi^2 >= observed) when rho_xx_ohm_sq_unc weights the fit, else null"),
                 column("birge_ratio", F64, None, "sqrt(chi^2 / nu) when above 1 (the uncertainties were multiplied by it), else 1; null without stated uncertainties"),
             ],
+            ..Default::default()
         }
     }
 

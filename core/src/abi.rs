@@ -195,7 +195,8 @@ pub struct AnalysisDeclaration {
     /// The columns of the output table.
     pub outputs: Vec<ColumnSpec>,
     /// The keys of the result's `summary` object. A declared `f64` key `x` also admits its
-    /// standard uncertainty `x_unc` (same unit), so the companions are not listed one by one.
+    /// standard uncertainty `x_unc` and the parts of its budget `x_unc_<part>` (`_unc_stat`,
+    /// `_unc_sys`, ...; same unit), so the companions are not listed one by one.
     #[serde(default)]
     pub summary_keys: Vec<ColumnSpec>,
     /// The output table carries the input's own columns as well as `outputs` (an analysis
@@ -204,7 +205,8 @@ pub struct AnalysisDeclaration {
     pub open_outputs: bool,
 }
 
-/// Suffix of a summary key's standard uncertainty, admitted for every declared `f64` key.
+/// Suffix of a summary key's standard uncertainty (and, followed by `_<part>`, of a part
+/// of its budget), admitted for every declared `f64` key.
 pub const UNCERTAINTY_SUFFIX: &str = "_unc";
 
 /// How an output breaks its analysis's declaration; the text names the column or key.
@@ -221,7 +223,13 @@ impl AnalysisDeclaration {
     /// The declared summary key of that name, with the `_unc` companion rule applied.
     pub fn summary_key(&self, name: &str) -> Option<&ColumnSpec> {
         self.summary_keys.iter().find(|spec| spec.name == name).or_else(|| {
-            let base = name.strip_suffix(UNCERTAINTY_SUFFIX)?;
+            // `x_unc`, or a part of its budget such as `x_unc_stat`, `x_unc_sys`.
+            let at = name.rfind(UNCERTAINTY_SUFFIX)?;
+            let part = &name[at + UNCERTAINTY_SUFFIX.len()..];
+            if !(part.is_empty() || part.starts_with('_')) {
+                return None;
+            }
+            let base = &name[..at];
             self.summary_keys
                 .iter()
                 .find(|spec| spec.name == base && spec.dtype == ColumnType::F64)

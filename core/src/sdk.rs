@@ -24,8 +24,9 @@
 //! The output goes through an [`OutputBuilder`] made from the declaration: a column or a
 //! summary key the declaration does not name, a wrong dtype or a missing required column
 //! is a "plugin bug" error, never a silent surprise for a client. A declared `f64` summary
-//! key `x` implies its standard uncertainty `x_unc` (same unit): companions are not
-//! declared one by one (see [`AnalysisDeclaration::summary_key`]). The host checks every
+//! key `x` implies its standard uncertainty `x_unc` and the parts of its budget
+//! `x_unc_stat`, `x_unc_sys`, ... (same unit): companions are not declared one by one (see
+//! [`AnalysisDeclaration::summary_key`]). The host checks every
 //! output against the declaration again ([`check_output`]), so a plugin written without
 //! this SDK is held to the same contract.
 //!

@@ -354,6 +354,33 @@ mod tests {
     }
 
     #[test]
+    fn derived_enums_name_their_choices() {
+        // The shape schemars gives a documented enum, optional: constants with descriptions.
+        let schema = json!({
+            "type": "object",
+            "additionalProperties": false,
+            "properties": {
+                "criterion": {"anyOf": [
+                    {"oneOf": [
+                        {"type": "string", "const": "bic", "description": "Bayesian"},
+                        {"type": "string", "const": "aicc", "description": "corrected Akaike"}
+                    ]},
+                    {"type": "null"}
+                ]},
+                "seed": {"type": "integer", "format": "uint64", "minimum": 0}
+            }
+        });
+        assert!(check_supported(&schema, "spectrum.fit").is_ok());
+        assert!(validate(&schema, &json!({"criterion": "aicc", "seed": 3})).is_ok());
+        assert!(validate(&schema, &json!({"criterion": null})).is_ok());
+        let message = validate(&schema, &json!({"criterion": "aic"})).unwrap_err();
+        assert_eq!(
+            message,
+            r#"params.criterion must be one of "bic", "aicc", null (got "aic")"#
+        );
+    }
+
+    #[test]
     fn unsupported_keywords_are_refused() {
         assert!(check_supported(&schema(), "hall.reduce").is_ok());
         let bad = json!({"type": "object", "properties": {"x": {"type": "string", "pattern": "^a"}}});

@@ -1,6 +1,6 @@
 //! `spectrum.mobility`: the mobility spectrum of a symmetrized field sweep, for electrons
 //! and holes on a logarithmic mobility grid. Two spectra are computed: the Beck-Anderson
-//! envelope (an upper bound) and a quantitative, regularized non-negative spectrum whose
+//! envelope (an upper bound) and a regularized non-negative spectrum whose
 //! peaks are integrated into a sheet density and a mean mobility each.
 //!
 //! Pure computation: no DataFrames, no I/O. The plugin's table glue turns the `sweep` role
@@ -45,7 +45,7 @@
 //!   sigma_xx(B) (1 + mu^2 B^2); see the submodule for the derivation and for the loading
 //!   that makes it robust to noise. It is a point conductance (S), not a density: the most
 //!   a delta-like carrier at mu can carry.
-//! - **Quantitative spectrum** ([`regularized`]): non-negative least squares with a
+//! - **Regularized spectrum** ([`regularized`]): non-negative least squares with a
 //!   second-difference penalty in ln|mu|, the constrained-regularization method of
 //!   Provencher's CONTIN (S. W. Provencher, Comput. Phys. Commun. 27, 213 and 229, 1982;
 //!   details from memory) applied to the Beck-Anderson kernel. It plays the role of the
@@ -278,15 +278,15 @@ impl Default for SpectrumSettings {
 pub struct SignSpectrum {
     /// Beck-Anderson bound: the largest conductance of one carrier at this mobility, S.
     pub envelope_s: Vec<f64>,
-    /// Quantitative spectrum: point conductance x_k of the grid carrier, S.
+    /// Regularized spectrum: point conductance x_k of the grid carrier, S.
     pub conductance_s: Vec<f64>,
-    /// Quantitative spectrum as a density on the log axis, dsigma / d ln|mu| = x_k / Delta, S.
+    /// Regularized spectrum as a density on the log axis, dsigma / d ln|mu| = x_k / Delta, S.
     pub spectrum_s: Vec<f64>,
     /// Sheet density per unit ln|mu|, x_k / (Delta e mu_k), m^-2.
     pub density_m2: Vec<f64>,
 }
 
-/// A peak of the quantitative spectrum.
+/// A peak of the regularized spectrum.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Peak {
     pub carrier: CarrierKind,
@@ -361,7 +361,7 @@ pub struct Regularization {
     pub trials: Vec<RegularizationTrial>,
 }
 
-/// The data and the tensor of the quantitative spectrum at one point.
+/// The data and the tensor of the regularized spectrum at one point.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct FitPoint {
     pub field_t: f64,
@@ -653,7 +653,7 @@ pub fn mobility_spectrum_of_symmetrized(
     spectrum_of_points(&conductivity_points(symmetrized), settings, monitor, reuse)
 }
 
-/// The parametric bootstrap of the quantitative spectrum (see the module documentation):
+/// The parametric bootstrap of the regularized spectrum (see the module documentation):
 /// the point conductances (S) of every replica.
 struct Replicas {
     weights: Vec<Vec<f64>>,

@@ -163,7 +163,16 @@ impl Analysis for PurityAnalysis {
                 },
             ],
             outputs,
-            summary_keys: vec![column("samples", I64, None, "rows of the output")],
+            summary_keys: vec![
+                column("donor_density_m3", ColumnType::F64, Some("m3"), "N_D, with _unc"),
+                column("acceptor_density_m3", ColumnType::F64, Some("m3"), "N_A, with _unc"),
+                column("net_doping_m3", ColumnType::F64, Some("m3"), "|N_D - N_A|, with _unc"),
+                column("total_impurity_density_m3", ColumnType::F64, Some("m3"), "N_D + N_A, with _unc"),
+                column("compensation_ratio", ColumnType::F64, None, "minority over majority dopant density, with _unc"),
+                column("candidate_dopants", ColumnType::Str, None, "dopants whose ionization energy matches"),
+                column("scattering_upper_limit_m3", ColumnType::F64, Some("m3"), "upper limit of the ionized-impurity density from the mobility"),
+                column("samples", I64, None, "rows of the output"),
+            ],
             ..Default::default()
         }
     }

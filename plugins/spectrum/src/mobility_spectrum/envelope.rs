@@ -29,13 +29,13 @@
 //! Beck and Anderson's bound then breaks down (recalled, not verified: they smoothed the
 //! data first). Here P is loaded: Q = P + tau S^2, S = diag(noise scale of each field), and
 //! the envelope is 1 / (a^H Q^-1 a). tau is the Frobenius norm (an upper bound of the
-//! spectral norm) of S^-1 E S^-1, E the Pick matrix of the residuals of the quantitative
+//! spectral norm) of S^-1 E S^-1, E the Pick matrix of the residuals of the regularized
 //! spectrum (its fitted tensor minus the data). Then
 //!
 //! - P + E is the Pick matrix of the fitted, physical tensor, so Q >= P + E >= 0: Q is
 //!   positive definite;
 //! - any non-negative spectrum whose tensor differs from the data by no more than that
-//!   (in the same norm) has its conductance at mu below the envelope, the quantitative
+//!   (in the same norm) has its conductance at mu below the envelope, the regularized
 //!   spectrum included. So the envelope is a strict upper bound for the spectra as
 //!   compatible with the data as the fitted one, and for exact data (tau -> 0) it is the
 //!   exact bound.
@@ -128,7 +128,7 @@ fn expected_noise_norm(fields: &[f64], uncertainties: &[(f64, f64)]) -> f64 {
 
 impl Envelope {
     /// Factors the data's Pick matrix loaded by the norm of the residuals' Pick matrix.
-    /// `fitted` is the tensor of the quantitative spectrum at each point.
+    /// `fitted` is the tensor of the regularized spectrum at each point.
     pub fn new(data: &Data, fitted: &[(f64, f64)], cancelled: &dyn Fn() -> bool) -> Result<Self, SpectrumError> {
         let n = data.fields.len();
         let scales = &data.noise_scale;

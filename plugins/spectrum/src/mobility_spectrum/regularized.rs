@@ -1,4 +1,4 @@
-//! The quantitative spectrum: non-negative least squares with a second-difference
+//! The regularized spectrum: non-negative least squares with a second-difference
 //! (smoothness) penalty, and the choice of its strength.
 //!
 //! Minimizes chi^2(u) + alpha ||D u||^2 over u >= 0, u the point conductivities in units of

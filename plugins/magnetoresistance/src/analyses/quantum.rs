@@ -198,6 +198,7 @@ impl Analysis for OscillationsAnalysis {
                 column("landau_index", F64, None, "Landau level index: integer at minima of rho_xx, half-integer at maxima (landau rows); F_fan / B + beta on landau_fit rows"),
             ],
             summary_keys: vec![
+                column("lines", ColumnType::Str, None, "list of {frequency_T, sheet_density_m2, ...} with _unc: one entry per frequency found"),
                 column("sample", ColumnType::Str, None, "the series' sample"),
                 column("temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures of the series"),
                 column("single_field_sign_temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures measured at one field sign"),

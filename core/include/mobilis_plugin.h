@@ -37,11 +37,25 @@
  *  1.1  the declaration's "features" may list MOBILIS_FEATURE_STRING_VIEWS, and the host
  *       then sends text as "vu". No descriptor field was added: a plugin that does not
  *       list the feature (every 1.0 plugin) keeps receiving "U".
- * Fields appended to MobilisPluginDescriptor in a later minor version will be read only
- * from plugins whose abi_minor is at least that version.
+ *
+ * Appended fields and minor versions (the same rule stands in core/src/abi.rs):
+ *  1. Fields are only ever appended to the end of the descriptor. No field is removed,
+ *     moved, resized or given another type or meaning.
+ *  2. A field appended in minor version M is read only from a plugin whose abi_minor is at
+ *     least M. DESCRIPTOR_FIELDS in core/src/abi.rs lists every field with the minor that
+ *     added it; every field below dates from 1.0.
+ *  3. A host reads abi_major first and nothing else unless it is the host's own major;
+ *     then abi_minor; then only the fields the plugin's minor declares. It never reads past
+ *     the end of that prefix, so an older plugin's shorter static descriptor is never
+ *     overrun.
+ *  4. Any other change (removing, reordering or retyping a field, changing a function's
+ *     signature or what a field means) bumps the major version.
+ *  5. The function fields are nullable pointers; a host checks each one at load and refuses
+ *     a library that leaves a required one NULL, naming the field.
  *
  * Threads: invoke may be called from several host threads at once, for different calls.
- * Never longjmp or throw across these functions.
+ * Never longjmp, throw or unwind across these functions: the host cannot catch anything
+ * that leaves them. A plugin catches its own failures and returns MOBILIS_STATUS_PANIC.
  */
 #ifndef MOBILIS_PLUGIN_H
 #define MOBILIS_PLUGIN_H
@@ -130,6 +144,7 @@ typedef struct MobilisPluginDescriptor {
   uint32_t abi_minor; /* stays second in every version */
   const char *plugin_name;
   const char *plugin_version;
+  /* The three functions are required: a library that leaves one NULL is refused. */
   /* JSON declaration of the analyses (see DEVELOPERS.md); released with release_string.
    * NULL on failure. */
   char *(*describe)(void);

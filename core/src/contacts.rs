@@ -22,6 +22,8 @@
 //! part of a Hall configuration's V/I is positive for holes at positive field (the sign
 //! convention of the NIST Hall-effect pages: a positive sum of the Hall voltages means
 //! p-type). Reciprocity: R_21,34(B) = R_43,12(-B) (van der Pauw 1958).
+//! Current along one edge with the voltage taken on the opposite edge is a resistance
+//! configuration; current and voltage on the two diagonals is a Hall configuration.
 //!
 //! ## Hall bar (contacts 1 to 6)
 //!
@@ -39,6 +41,15 @@
 //! `BarTransverse(0)` is + at 5, - at 3; `BarTransverse(1)` is + at 6, - at 4: holes
 //! driven along +x at +B are pushed towards -y, so the canonical transverse voltage is
 //! positive for holes, as for the van der Pauw Hall configurations.
+//!
+//! ## Pair notation
+//!
+//! A table may give each reading's configuration as one cell instead of four contact columns,
+//! in the pair notation of ASTM F76 and van der Pauw (1958): the current pair, then the voltage
+//! pair. `"21,34"` is current entering at 2 and leaving at 1, with the voltage V3 - V4
+//! ([`parse_pair_notation`]: digits 1 to 6, blanks around the pairs allowed). A CSV file
+//! separated by commas must quote such a cell (`"21,34"`); the import leaves a column named
+//! `contacts` alone when it turns decimal commas into points.
 
 /// The two characteristic resistances of van der Pauw's method.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]

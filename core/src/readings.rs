@@ -1,8 +1,12 @@
 //! The raw reading: one row of the `readings` input role of `hall.reduce`, as a Rust value.
 //!
-//! Column names and meaning are fixed by the table convention (see the project's
-//! DEVELOPERS.md): `sample`, `temperature_K`, `field_T`, `i_in`, `i_out`, `v_pos`, `v_neg`,
-//! `current_A`, `voltage_V`. Contact numbering and orientation are in [`crate::contacts`].
+//! Column names and meaning are fixed by the table convention (SI values, `quantity_unit`
+//! names, [`crate::units`]): `sample`, `temperature_K`, `field_T`, `i_in` (the contact the
+//! current enters), `i_out`, `v_pos`, `v_neg`, `current_A` (entering at `i_in`; negative for a
+//! reversed source) and `voltage_V` (V(`v_pos`) - V(`v_neg`)). Instead of the four contact
+//! columns a table may give a `contacts` column in pair notation (`"21,34"`,
+//! [`crate::contacts::parse_pair_notation`]). Contact numbering and orientation are in
+//! [`crate::contacts`].
 
 /// One four-terminal reading in SI units.
 #[derive(Debug, Clone, PartialEq)]

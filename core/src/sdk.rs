@@ -32,7 +32,10 @@
 //!
 //! **Architecture Invariant.** A panic never crosses the boundary: every exported function
 //! runs its body under `catch_unwind` and turns a panic into [`abi::STATUS_PANIC`] with the
-//! panic message. Plugins must therefore not be built with `panic = "abort"`.
+//! panic message. This catch is the only one there is: unwinding out of an `extern "C"`
+//! function aborts the process, so the host cannot catch a plugin's panic for it. Plugins
+//! therefore must not be built with `panic = "abort"`, and [`export_plugin!`](crate::export_plugin)
+//! refuses to compile in such a build.
 
 use crate::abi::{
     self, AnalysisDeclaration, ColumnType, ContractViolation, HostContext, InputTable, InvokeOutput, PluginDeclaration,
@@ -661,6 +664,16 @@ pub fn string_column(frame: &DataFrame, name: &str) -> Result<Vec<Option<String>
 #[macro_export]
 macro_rules! export_plugin {
     (name: $name:literal, analyses: [$($analysis:ty),+ $(,)?] $(,)?) => {
+        // The SDK turns a panic into STATUS_PANIC by catching it inside the exported
+        // functions; with `panic = "abort"` there is nothing to catch and a panic would end
+        // the host's process, so such a build is refused here, in the plugin's crate.
+        #[cfg(panic = "abort")]
+        compile_error!(concat!(
+            "plugin `", $name, "` is built with `panic = \"abort\"`, but mobilis plugins must unwind so that ",
+            "a panic becomes an error of one call instead of killing the daemon; remove `panic = \"abort\"` ",
+            "from the [profile.*] sections of Cargo.toml (and `-C panic=abort` from RUSTFLAGS)"
+        ));
+
         const _: () = {
             static REGISTRY: &[$crate::sdk::Registration] = &[$($crate::sdk::registration::<$analysis>()),+];
 
@@ -698,9 +711,9 @@ macro_rules! export_plugin {
                 abi_minor: $crate::abi::ABI_MINOR,
                 plugin_name: concat!($name, "\0").as_ptr().cast(),
                 plugin_version: concat!(env!("CARGO_PKG_VERSION"), "\0").as_ptr().cast(),
-                describe,
-                invoke,
-                release_string,
+                describe: Some(describe),
+                invoke: Some(invoke),
+                release_string: Some(release_string),
             };
 
             #[no_mangle]

@@ -33,7 +33,9 @@
 //!    within the resolution of its *neighbour*), because a sweep logged continuously along a
 //!    slow ramp has every neighbour closer than any sensible resolution: chaining would
 //!    merge the whole ramp into one node at its mean field, while anchoring keeps its field
-//!    range, averaging only what lies within one resolution.
+//!    range, averaging only what lies within one resolution. The analyses' parameter is
+//!    `field_resolution_T` (default 1e-4 T); state a coarser one (say 5e-3 T) to average a
+//!    40,000-reading log into fewer points.
 //! 4. **Common grid.** The two branches need not share field points. The grid is the union
 //!    of the |B| of both branches' nodes within their overlap [max of the two lowest, min of
 //!    the two highest] (grouped around anchors with the same resolution, each group at its
@@ -76,6 +78,12 @@
 //! as are the largest asymmetries. A Hall pickup of the longitudinal contacts stays in
 //! rho_xx and a misalignment of the Hall contacts stays in rho_xy:
 //! [`Symmetrized::warnings`] says so.
+//! The summary of every sweep analysis then says `single_field_sign: true`, and the warning
+//! names what stays in the data ([`SweepUse`]): for `mr.ratio`, `mr.kohler`, `mr.oscillations`
+//! and `mr.weak_localization` a Hall voltage picked up by the longitudinal contacts; for
+//! `spectrum.multi_carrier_fit`, `spectrum.mobility` and `mr.two_band_fit` also the
+//! misalignment of the Hall contacts, sized by rho_xy / rho_xx at zero field. `mr.symmetrize`,
+//! whose output is the removed parts, needs both signs.
 //!
 //! The summary numbers [`Symmetrized::max_rho_xx_asymmetry`] and
 //! [`Symmetrized::max_rho_xy_asymmetry`] are the largest |odd part of rho_xx| and |even part

@@ -18,6 +18,15 @@
 //! - [`customary_display`] goes the other way for clients and reports: from an SI column to the
 //!   label, unit and factor the trade reads (`density_m3` is shown as `density_cm3` in cm^-3).
 //!
+//! # Accepted units
+//!
+//! The unit table of this module (`ENTRIES`) is the list; [`Quantity::accepted_units`] prints
+//! it in error messages. In short: K, degC, mK; T, mT, G, kG, Oe, kOe; A, mA, uA, nA, pA; V,
+//! mV, uV, nV; m, cm, mm, um, nm; m^-3, cm^-3; m^-2, cm^-2; m^2/(V s), cm^2/(V s); ohm m, ohm
+//! cm and its milli-, micro- and kilo- forms; ohm/sq, kohm/sq; ohm, mohm, kohm, Mohm; and
+//! dimensionless. The uncertainty of a column is the column's name plus `_unc`: a standard
+//! uncertainty (one sigma) in the same unit.
+//!
 //! # Normalisation
 //!
 //! Before matching, a unit string is normalised, so that the many ways one unit is typed meet:

@@ -17,6 +17,19 @@
 //!
 //! The service finds its call's scope through a thread-local set for the duration of the
 //! work, so that its methods keep their signatures, whichever thread pool runs them.
+//!
+//! The defaults: 600 s for `analysis.run` and `pipeline.run`, 300 s for `dataset.import` and
+//! `dataset.export`, 120 s for the others. `analysis.run`, `pipeline.run`, `plot.render` and
+//! `report.render` take `deadline_s` (above 0, at most [`MAX_DEADLINE_S`], one day; `mobilis
+//! run --deadline`). The scopes are registered in `methods::module`. An `analysis.run` answered
+//! 5005 stored nothing; a pipeline keeps the outputs of the steps that finished before its
+//! deadline, and stops before its next group or step. Work that does not poll the cancel flag
+//! (a drawing, a plugin without cancel checks) runs on to its end, unseen.
+//!
+//! The checks: `cargo test -p mobilis-tests --test reliability -- workspace_and_bounds
+//! --nocapture` (path attacks through both kinds of root, a symlink race on imports and
+//! exports, export overwrite and racing exports, clients that go away over HTTP and WebSocket,
+//! deadlines, figure limits); `MOBILIS_SLOW_TESTS=1` runs more rounds.
 
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use crate::plugin_host::CallControl;

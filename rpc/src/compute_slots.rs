@@ -6,6 +6,15 @@
 //! an analysis would start 32 blocking threads on a 2-core machine, and every cheap call would
 //! share the cores with all of them; with it, at most one analysis per core runs at a time and
 //! the rest wait their turn in the queue, which costs them nothing but time.
+//!
+//! Heavy calls are `analysis.run`, `pipeline.run`, `dataset.import`, `dataset.export`,
+//! `dataset.rows`, `plot.render` and `report.render`. `--compute-slots N` sets the number of
+//! slots; the default is the number of CPUs the process may use. The permit moves into the
+//! blocking task, so work whose client left keeps its slot until it really ends. Cheap calls
+//! (`server.info`, `dataset.list`, `dataset.info`, `analysis.describe`, `plot.kinds`, ...) run
+//! inline on the async runtime; `dataset.drop` runs on the blocking pool outside the slots,
+//! since it only removes files. Where a method runs is the `Runs` value of its registration in
+//! `crate::methods` (`Inline`, `Blocking`, `InComputeSlot`).
 
 use std::sync::Arc;
 use tokio::sync::Semaphore;

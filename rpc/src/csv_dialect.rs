@@ -15,6 +15,33 @@
 //! may hold the separator, line breaks and doubled quotes; unquoted fields are trimmed of
 //! surrounding blanks; blank lines are skipped; a UTF-8 byte-order mark is dropped; header
 //! names are trimmed, and an empty one becomes `column_N`.
+//!
+//! # Options and what the scan checks
+//!
+//! The options (CLI: `--separator`, `--decimal-comma`, `--comment-prefix`, `--skip-rows`,
+//! `--no-header`) describe the dialect. The scan skips the first `skip_rows` lines, blank
+//! lines, and lines starting with `comment_prefix` wherever they stand. It then stops at the
+//! first structural problem, each an error naming its line and the option that fixes it:
+//!
+//! - a header that is one field holding another separator (`csv.separator`);
+//! - a preamble, leading rows with another field count than the table (`comment_prefix` or
+//!   `skip_rows`, with the count of lines to skip);
+//! - a row with another number of fields than the header (never padded with nulls).
+//!
+//! Parser messages of polars never reach the user for these problems. With `decimal_comma`
+//! the rewrite for polars turns the comma into a point in unquoted cells that read as numbers
+//! with a decimal comma, except in a column named `contacts` after `rename` (its pair notation
+//! `21,34` looks like one). Without a header the columns are `column_1`, `column_2`, ...
+//!
+//! # The plain-file path
+//!
+//! A file in the default dialect that is already the plain CSV the scan would produce
+//! (distinct header names without surrounding blanks; no quotes, blanks, carriage returns or
+//! blank lines; every row with the header's field count) skips the scan and goes to polars as
+//! it is, after one pass over its bytes that checks exactly that (`plain_file_rows`); its
+//! rows are then on lines 2, 3, ... Every other file, every file the scan would refuse
+//! included, takes the scan, so the errors above are the same either way, and so is the frame
+//! (a unit test reads plain files both ways).
 
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use polars::prelude::*;

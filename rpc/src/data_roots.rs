@@ -17,6 +17,13 @@
 //! directory for a symlink during the call cannot redirect the write. Without `overwrite`
 //! the rename refuses to replace anything (Linux `renameat2` with `RENAME_NOREPLACE`, or
 //! POSIX `link()`, which fails with `EEXIST`), so a file that appears meanwhile is kept.
+//!
+//! Refusals are error 4006 (`path_refused`). The checks are repeated on the file or directory
+//! as opened (its path from `/proc/self/fd`), so a directory swapped for a symlink between the
+//! check and the open is caught too; a root inside the workspace is dropped at start with a
+//! warning. The temporary file of an export is `.NAME.PID-N.partial`; an existing file is
+//! replaced only with `overwrite: true` (`mobilis export --overwrite`), otherwise the call
+//! fails with 4008 naming `overwrite`.
 
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use std::ffi::CString;

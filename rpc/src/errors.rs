@@ -5,6 +5,14 @@
 //! 4xxx means "the request must change", 5xxx "the daemon or a plugin failed on a valid
 //! request". Every message says what to change; the `data` member carries the kind as a
 //! string and, where useful, a help line.
+//!
+//! When one request parameter is at fault the error also carries `data.param`, its path in the
+//! request (`inputs.readings`, `params.temperature_tolerance_K`, `output`, `summary_output`,
+//! `group_by`, `analysis`): a new error about one parameter gets [`ServiceError::with_param`].
+//! The help line speaks JSON-RPC; the CLI turns `param` into its option and the method names
+//! into commands (`clients/cli/src/cli_errors.rs`), so a new JSON phrase in a help line needs a
+//! row in that file's table of phrases. The codes and their one-line meanings are listed in
+//! `rpc.discover` (each method's `errors`).
 
 use serde_json::json;
 

@@ -12,6 +12,10 @@
 //! size and count of the program and section header tables, and each loadable segment
 //! (`PT_LOAD`) and each section that occupies file space (all but `SHT_NOBITS`) gives its
 //! offset and size in the file. Every one of those must lie within the file.
+//!
+//! The check runs before any library is mapped, in process or in a worker. A half-copied hall
+//! plugin is refused with `refused before loading: the file is 4096 bytes but its loadable
+//! segment 1 ends at byte ...: it is truncated (a partial copy?)`.
 
 use std::io::Read;
 use std::path::Path;

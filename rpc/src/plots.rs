@@ -3,6 +3,14 @@
 //! The daemon's part is small on purpose: find the dataset, keep the rows the client asked
 //! for (`filter`), tell the plot crate which analysis made the dataset (its provenance), and
 //! return the SVG and the Vega-Lite specification.
+//!
+//! Figures are bounded before they are drawn: rows are grouped into series with one hash lookup
+//! per row, and a figure of more than `mobilis_plot::MAX_SERIES` (200) series or of more than
+//! [`MAX_PLOT_ROWS`] (2,000,000) rows after the filter is refused with 4009 (`resource_limit`)
+//! naming `filter`. `filter` keeps rows equal to given values, temperatures and fields within
+//! their setpoint's tolerance (so `{"field_T": 0.5}` keeps the rows at 0.4997 T that a legend
+//! calls "0.5 T"), and the title says which; `series_by` names the columns whose values make
+//! separate series.
 
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use crate::service::Service;

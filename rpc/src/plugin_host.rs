@@ -5,9 +5,10 @@
 //! tables live in the dataset store for as long as the daemon does.
 //!
 //! A library is refused, with its file name and the reason, when it lacks the entry
-//! symbol, reports another ABI major version, returns an unusable declaration, declares a
-//! parameter schema the host cannot validate, or offers an analysis whose name is already
-//! taken. A refused library is never half-registered; the daemon keeps serving.
+//! symbol, reports another ABI major version, leaves one of its functions NULL in the
+//! descriptor, returns an unusable declaration, declares a parameter schema the host cannot
+//! validate, or offers an analysis whose name is already taken. A refused library is never
+//! half-registered; the daemon keeps serving.
 //!
 //! A plugin runs in process (the daemon's own plugins, `--trusted-plugin-dir`) or isolated
 //! in worker processes (`--plugin-dir`, see [`crate::plugin_supervisor`]); [`PluginHost::invoke`]
@@ -17,7 +18,8 @@
 use crate::param_schema;
 use crate::plugin_supervisor::{WorkerPool, WorkerSettings};
 use mobilis_core::abi::{
-    self, AnalysisDeclaration, EntryFn, HostContext, InputTable, InvokeOutput, PluginDeclaration, PluginDescriptor,
+    self, AnalysisDeclaration, DescriptorError, EntryFn, HostContext, InputTable, InvokeOutput, PluginDeclaration,
+    PluginFunctions,
 };
 use mobilis_core::sdk;
 use mobilis_core::table_ffi::{self, TextLayout};
@@ -64,7 +66,7 @@ impl Isolation {
 
 /// How calls reach a plugin.
 enum Backend {
-    InProcess(&'static PluginDescriptor),
+    InProcess(PluginFunctions),
     Isolated(Box<WorkerPool>),
 }
 
@@ -80,7 +82,8 @@ pub struct PluginIdentity {
 pub struct OpenedLibrary {
     pub identity: PluginIdentity,
     pub declaration: PluginDeclaration,
-    pub descriptor: &'static PluginDescriptor,
+    /// The descriptor's functions, each checked non-NULL.
+    pub functions: PluginFunctions,
 }
 
 /// A library that was refused, and why.
@@ -265,35 +268,37 @@ pub fn open_in_process(file: &Path) -> Result<OpenedLibrary, String> {
     // Never unload: see the module documentation.
     std::mem::forget(library);
 
+    // No catch_unwind around this or any other call into a plugin: unwinding out of an
+    // `extern "C"` function aborts the process before any host frame could catch it. The
+    // host relies instead on the plugin catching its own panics (the SDK does, and refuses
+    // to build with `panic = "abort"`) and, for libraries it does not trust, on running
+    // them in worker processes (`crate::plugin_supervisor`), where an abort ends one call.
     // SAFETY: calling the entry function is the ABI's first step; it returns a pointer to
-    // a static descriptor or NULL. Only the two leading fields are read before the
-    // version check, and those keep their place in every ABI version.
-    let descriptor_pointer =
-        catch_unwind(|| unsafe { entry() }).map_err(|_| "the entry function panicked".to_owned())?;
-    if descriptor_pointer.is_null() {
-        return Err("the entry function returned no descriptor".into());
-    }
-    let descriptor: &'static PluginDescriptor = unsafe { &*descriptor_pointer };
-    if descriptor.abi_major != abi::ABI_MAJOR {
-        return Err(format!(
-            "built for plugin ABI {}.{}, this daemon speaks ABI {}.{}; rebuild the plugin against this version",
-            descriptor.abi_major,
-            descriptor.abi_minor,
-            abi::ABI_MAJOR,
-            abi::ABI_MINOR
-        ));
-    }
-    let name = static_str(descriptor.plugin_name).ok_or("the plugin name is not valid UTF-8")?;
-    let version = static_str(descriptor.plugin_version).ok_or("the plugin version is not valid UTF-8")?;
-    let declaration = describe(descriptor)?;
+    // a static descriptor or NULL.
+    let descriptor_pointer = unsafe { entry() };
+    // Read under the ABI's minor-version rule: the major version through a raw pointer
+    // before anything else, then only the fields the plugin's minor declares, every
+    // function checked non-NULL.
+    // SAFETY: what the entry function returned, which the ABI makes NULL or a static
+    // descriptor holding at least the fields its minor declares.
+    let fields = unsafe { abi::read_descriptor(descriptor_pointer) }.map_err(|error| match error {
+        DescriptorError::NullFunction { ref plugin, .. } => {
+            let file_name = file.file_name().unwrap_or(file.as_os_str()).to_string_lossy();
+            format!("plugin `{plugin}` ({file_name}): {error}")
+        }
+        other => other.to_string(),
+    })?;
+    let name = static_str(fields.plugin_name).ok_or("the plugin name is missing or not valid UTF-8")?;
+    let version = static_str(fields.plugin_version).ok_or("the plugin version is missing or not valid UTF-8")?;
+    let declaration = describe(&fields.functions)?;
     Ok(OpenedLibrary {
         identity: PluginIdentity {
             name: name.to_owned(),
             version: version.to_owned(),
-            abi_minor: descriptor.abi_minor,
+            abi_minor: fields.abi_minor,
         },
         declaration,
-        descriptor,
+        functions: fields.functions,
     })
 }
 
@@ -317,12 +322,11 @@ impl PluginHost {
     /// library itself may stay mapped: unloading is never safe once its code ran).
     pub fn load(&mut self, file: &Path) -> Result<(), String> {
         let opened = open_in_process(file)?;
-        let descriptor = opened.descriptor;
         self.register(
             file,
             opened.identity,
             opened.declaration,
-            Backend::InProcess(descriptor),
+            Backend::InProcess(opened.functions),
         )
     }
 
@@ -457,9 +461,9 @@ impl PluginHost {
             .ok_or_else(|| failure(abi::STATUS_UNKNOWN_ANALYSIS, format!("no analysis `{analysis}`")))?;
         let plugin = &self.plugins[entry.plugin_index];
         let success = match &plugin.backend {
-            Backend::InProcess(descriptor) => {
+            Backend::InProcess(functions) => {
                 let layout = TextLayout::for_features(&plugin.features);
-                invoke_descriptor(descriptor, layout, analysis, params, inputs, control)
+                invoke_functions(functions, layout, analysis, params, inputs, control)
             }
             Backend::Isolated(pool) => pool.invoke(analysis, params, inputs, control),
         }?;
@@ -498,8 +502,8 @@ fn check_declared_output(
 
 /// Calls an analysis of a library loaded in this process, its input text in `layout` (see
 /// [`TextLayout::for_features`]). Blocking.
-pub fn invoke_descriptor(
-    descriptor: &PluginDescriptor,
+pub fn invoke_functions(
+    functions: &PluginFunctions,
     layout: TextLayout,
     analysis: &str,
     params: &serde_json::Value,
@@ -538,10 +542,10 @@ pub fn invoke_descriptor(
 
     // SAFETY: every pointer is valid for the call: the C strings, the input tables (owned
     // by `exported`, which outlives the call), the context (whose host_data points into
-    // `control`, kept alive by the caller's Arc) and the zero-initialised output.
-    // catch_unwind guards against a plugin that breaks the no-unwind rule of the ABI.
-    let status = catch_unwind(AssertUnwindSafe(|| unsafe {
-        (descriptor.invoke)(
+    // `control`, kept alive by the caller's Arc) and the zero-initialised output. A panic
+    // cannot come back from here (see `open_in_process`): the plugin catches its own.
+    let status = unsafe {
+        (functions.invoke)(
             analysis_c.as_ptr(),
             params_c.as_ptr(),
             tables.as_ptr(),
@@ -549,14 +553,13 @@ pub fn invoke_descriptor(
             &context,
             &mut output,
         )
-    }))
-    .map_err(|_| failure(abi::STATUS_PANIC, "the plugin unwound across the ABI".into()))?;
+    };
     // Inputs the plugin did not take over are released here, when `exported` drops.
     drop(tables);
     drop(exported);
 
-    let result_json = take_plugin_string(descriptor, &mut output.result_json);
-    let error_message = take_plugin_string(descriptor, &mut output.error_message);
+    let result_json = take_plugin_string(functions, &mut output.result_json);
+    let error_message = take_plugin_string(functions, &mut output.error_message);
     if status != abi::STATUS_OK {
         // A failed call leaves the output empty or, if the plugin wrote one anyway, its
         // release callbacks free it when `output` drops.
@@ -609,7 +612,7 @@ fn static_str(pointer: *const c_char) -> Option<&'static str> {
 }
 
 /// Copies a plugin-owned string and gives it back to the plugin.
-fn take_plugin_string(descriptor: &PluginDescriptor, slot: &mut *mut c_char) -> Option<String> {
+fn take_plugin_string(functions: &PluginFunctions, slot: &mut *mut c_char) -> Option<String> {
     let pointer = std::mem::replace(slot, std::ptr::null_mut());
     if pointer.is_null() {
         return None;
@@ -617,15 +620,14 @@ fn take_plugin_string(descriptor: &PluginDescriptor, slot: &mut *mut c_char) -> 
     // SAFETY: the plugin wrote a NUL-terminated string it owns; we copy it, then return it
     // through the plugin's own release function, exactly once.
     let text = unsafe { CStr::from_ptr(pointer) }.to_string_lossy().into_owned();
-    unsafe { (descriptor.release_string)(pointer) };
+    unsafe { (functions.release_string)(pointer) };
     Some(text)
 }
 
-fn describe(descriptor: &PluginDescriptor) -> Result<PluginDeclaration, String> {
+fn describe(functions: &PluginFunctions) -> Result<PluginDeclaration, String> {
     // SAFETY: `describe` takes no arguments and returns a plugin-owned string or NULL.
-    let mut pointer =
-        catch_unwind(|| unsafe { (descriptor.describe)() }).map_err(|_| "describe panicked".to_owned())?;
-    let text = take_plugin_string(descriptor, &mut pointer).ok_or("describe returned nothing")?;
+    let mut pointer = unsafe { (functions.describe)() };
+    let text = take_plugin_string(functions, &mut pointer).ok_or("describe returned nothing")?;
     serde_json::from_str(&text).map_err(|error| format!("describe returned an unusable declaration: {error}"))
 }
 
@@ -709,6 +711,49 @@ pub fn load_failure(file: &Path, error: &libloading::Error) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// A descriptor of another major version is refused from its two version fields alone:
+    /// they are placed at the very end of a readable page, followed by a page that may not
+    /// be read, so any read past them would end the test with SIGSEGV.
+    #[cfg(unix)]
+    #[test]
+    fn another_major_is_refused_without_reading_past_the_versions() {
+        // SAFETY: sysconf has no preconditions.
+        let page = unsafe { libc::sysconf(libc::_SC_PAGESIZE) } as usize;
+        // SAFETY: a fresh anonymous private mapping of two pages, unmapped below.
+        let base = unsafe {
+            libc::mmap(
+                std::ptr::null_mut(),
+                2 * page,
+                libc::PROT_READ | libc::PROT_WRITE,
+                libc::MAP_PRIVATE | libc::MAP_ANONYMOUS,
+                -1,
+                0,
+            )
+        };
+        assert_ne!(base, libc::MAP_FAILED);
+        // SAFETY: the second page lies inside the mapping.
+        let guard = unsafe { base.cast::<u8>().add(page) };
+        assert_eq!(unsafe { libc::mprotect(guard.cast(), page, libc::PROT_NONE) }, 0);
+        // SAFETY: the last 8 bytes of the first page, writable and aligned for u32.
+        let versions = unsafe { guard.sub(8) }.cast::<u32>();
+        unsafe {
+            versions.write(abi::ABI_MAJOR + 1);
+            versions.add(1).write(7);
+        }
+
+        // SAFETY: the pointer a plugin of another major version could return.
+        let error = unsafe { abi::read_descriptor(versions.cast()) }.err();
+        assert_eq!(
+            error,
+            Some(DescriptorError::OtherMajor {
+                major: abi::ABI_MAJOR + 1,
+                minor: 7
+            })
+        );
+        // SAFETY: the mapping made above, no longer used.
+        assert_eq!(unsafe { libc::munmap(base, 2 * page) }, 0);
+    }
 
     #[test]
     fn a_refused_library_says_why() {

@@ -47,7 +47,7 @@ pub fn run(library: &Path) -> i32 {
     let OpenedLibrary {
         identity,
         declaration,
-        descriptor,
+        functions,
     } = match plugin_host::open_in_process(library) {
         Ok(opened) => opened,
         Err(reason) => {
@@ -80,7 +80,7 @@ pub fn run(library: &Path) -> i32 {
         let control = progress_control(Arc::clone(&output));
         *current.lock().unwrap_or_else(|p| p.into_inner()) = Some(Arc::clone(&control));
         let result =
-            plugin_host::invoke_descriptor(descriptor, layout, &call.analysis, &call.params, &call.inputs, &control);
+            plugin_host::invoke_functions(&functions, layout, &call.analysis, &call.params, &call.inputs, &control);
         drop(call);
         // Cleared before answering, so that a cancel arriving after the answer finds no call.
         *current.lock().unwrap_or_else(|p| p.into_inner()) = None;

@@ -5,6 +5,19 @@
 //! The hub knows nothing of transports: `methods` turns a subscription into a channel
 //! receiver here and forwards what arrives. Clients that cannot hold a subscription (plain
 //! HTTP) poll `analysis.progress` instead.
+//!
+//! The `call_id` of `analysis.run`, `pipeline.run` or `dataset.import` is unique among running
+//! calls (a pipeline's steps carry none of their own). A client subscribes (`progress.subscribe
+//! {call_id}`, WebSocket and stdio) before starting the call; `report` events reach it at most
+//! every [`REPORT_INTERVAL`] (100 ms), however often a plugin reports; after `end` (`done`,
+//! `failed` or `cancelled`) the subscription is over, and a client that subscribes just after a
+//! call ended gets its `end` at once. Every grouped run and pipeline reports per group and step
+//! (`step 4 of 9 (spectrum.mobility) [sample=HEMT-A1, temperature_K=2]: ...`). `dataset.import`
+//! reports its stages `reading the file`, `parsing`, `converting units` and `storing` at the
+//! fractions 0, 0.2, 0.6 and 0.7 and honours a cancel between them. Inside one invocation,
+//! `spectrum.mobility` and `spectrum.multi_carrier_fit` report as they go, the analyses whose
+//! time grows with their settings; the others report their stages (reading, fitting, writing)
+//! and look for a cancellation between them.
 
 use serde_json::{json, Value};
 use std::collections::{HashMap, VecDeque};

@@ -5,6 +5,23 @@
 //!
 //! Self-contained means no external resource at all: styles inline, figures as inline SVG
 //! drawn by mobilis-plot, so the page opens the same on any machine, years later.
+//!
+//! The page is laid out here, its results found by `report/summary.rs`, and its numbers printed
+//! by `mobilis_core::quote`, the same code that `mobilis run`, `mobilis pipeline` and the demo
+//! print with (`Notation::Plain` there, `Notation::Typeset` on the page). Its tables:
+//! `hall.reduce`'s key columns are fixed; other tables lead with `temperature_K`,
+//! `carrier_type`, each `X` with its `X_unc` (at most twelve) and `flags`. An analysis output
+//! whose figures the page draws is not tabulated (its rows are points, curves or grids); one
+//! without figures is. Tables up to 60 000 cells are embedded as a `data:text/csv` download.
+//!
+//! On screen a figure is never drawn wider than the page nor narrower than its own width when
+//! the page has room (one-panel figures sit side by side only where two fit whole), so that its
+//! text, scripts included, stays at 10 px or more. Figures of two panels are drawn twice, full
+//! width for the screen and with 380 x 300 px panels for paper (`print-only`), so that their
+//! text prints near its size. The print style sits in its own `<style media="print"
+//! id="print-style">`; the page's script applies it on screen when the address ends in
+//! `#print-check` and sets `data-tables-clipped`, `data-smallest-text-px` and friends on
+//! `<html>`, which the report test reads with `--dump-dom`.
 
 mod summary;
 

@@ -20,6 +20,51 @@
 //!
 //! Layout: `<workspace>/datasets/<name>.parquet`. Workspaces of earlier versions kept the
 //! manifest beside it as `<name>.json`; such pairs are migrated to the one-file form on load.
+//! The migration rewrites the file with the manifest in its footer, then removes the JSON file;
+//! a JSON file beside an already migrated dataset is stale and removed.
+//!
+//! # Files, commits and the start
+//!
+//! A write stages `.tmp-<pid>-<n>-<name>.parquet` in the datasets directory
+//! ([`disk::STAGING_PREFIX`]), fsyncs it, renames it into place and fsyncs the directory; a
+//! drop unlinks the one file. A group (an analysis's output and its `summary_output` table;
+//! each pipeline step is one) stages every file, then writes a commit record
+//! `.commit-<pid>-<n>.json` ([`disk::RECORD_PREFIX`]) naming the renames and renames it into
+//! place (the group's commit point), then renames the files and removes the record. At start
+//! the store sweeps the directory once: records are rolled forward, every other staged file and
+//! stale record is removed, and one info line gives the count. Only committed files can be
+//! reported as damaged (`server.info` `damaged_files`), and those are never deleted. Steps of a
+//! pipeline that finished before a crash stay stored.
+//!
+//! The import hashes its source (SHA-256, for provenance) on a second thread while parsing it.
+//! A replaced table is freed, and the allocator trimmed after a write of 64 MiB or more
+//! (`LARGE_WRITE_BYTES`), off the request path; a `dataset.drop` still frees before it answers.
+//! Locks of different names are taken in sorted order for a group. A panic inside the Parquet
+//! writer fails its call with `storage_failure` (5004), the staged file is removed, and the
+//! store serves on.
+//!
+//! # Memory budget
+//!
+//! Stored tables count against a budget, `mobilisd --memory-budget 4GiB` ([`memory`]: binary
+//! units `KiB` to `TiB` or `K` to `T`, decimal `kB` to `TB`, or bytes; default half of
+//! `MemTotal`, else 8 GiB). An import or analysis output that would pass it is refused with
+//! `resource_limit` (4009), saying what is stored and the budget; drop datasets or raise the
+//! flag. `server.info` reports `memory: {stored_bytes, budget_bytes}`. After a drop or an
+//! overwrite the daemon calls glibc's `malloc_trim(0)`, so freed table memory goes back to the
+//! system instead of staying in the allocator's arenas.
+//!
+//! # Checks
+//!
+//! The unit tests (`cargo test -p mobilis-rpc --lib store`) cover the panic in the writer,
+//! poisoned locks, migration and an interrupted group commit. The reliability checks
+//! (`tests/tests/reliability/store_crashes.rs`) run kill -9 rounds (12 by default, 200 with
+//! `MOBILIS_SLOW_TESTS=1`): clients import, overwrite and drop, run `fixture.scale` with a
+//! summary table and two-step pipelines, the daemon is killed at a random moment, and after
+//! each restart every dataset must be the acknowledged or the in-flight version, its rows
+//! matching the source file or factor its provenance names, output and summary of one run
+//! together, with no leftover file and no damage (the seed is printed; `MOBILIS_CRASH_SEED`
+//! repeats a run). They also measure RSS over three import-and-drop cycles of a million rows
+//! and the refusal past `--memory-budget`.
 
 pub mod disk;
 pub mod memory;

@@ -1,5 +1,40 @@
 //! Reading and writing tables: CSV, Parquet and Arrow IPC files, inline JSON columns, and
 //! conversion of lab units into the SI columns of the table convention.
+//!
+//! # What `dataset.import` does with a lab's file
+//!
+//! In this order (`Service::dataset_import` drives it; the `call_id` progress stages are
+//! `reading the file`, `parsing`, `converting units` and `storing`, and a cancel is honoured
+//! between them):
+//!
+//! 1. **Read.** The file is read whole once ([`load_source`]); its SHA-256 (computed on a
+//!    second thread while the bytes are parsed, [`load_opened_while`]), size and modification
+//!    time (UTC, RFC 3339) go into the dataset's provenance with the path, format, rename,
+//!    units and the CSV options that differ from the default. Manifests written before these
+//!    members existed still load.
+//! 2. **Scan** (CSV only): the dialect options and the structural checks of
+//!    [`csv_dialect`]; the rows reach polars only after the scan has accepted them.
+//! 3. **Rename** (`rename: {"source": "new"}`, [`apply_rename`]): any column, text ones
+//!    included; inline `columns` take it too. A source column that is missing, or two columns
+//!    ending with one name, are errors that list the columns.
+//! 4. **Units** (`units: {column: unit}`, [`apply_units`]), naming columns by their name
+//!    after rename. The values are converted into SI and the column renamed by the
+//!    `quantity_unit` convention of `mobilis_core::units` (`temperature_C` in `degC` becomes
+//!    `temperature_K`, `field_kG` in `kG` becomes `field_T`, a name without a unit suffix gets
+//!    one appended); `{column: {"unit": "...", "to": "new_name"}}` chooses the new name
+//!    instead ([`UnitSpec`]). A text column given a unit is accepted when every cell reads as
+//!    a number (a file that quotes its numbers); otherwise the first cell that does not is
+//!    named, with `csv.decimal_comma` as the fix when it looks like `1,5`.
+//! 5. **Notes** ([`decimal_comma_notes`]). Text columns of a CSV file read without
+//!    `decimal_comma` whose every cell looks like a number with a decimal comma (`25,5`) do
+//!    not stop the import, but the answer's `notes` names them, with one cell's place and the
+//!    options to use (the CLI prints them). The `contacts` column is left out: its pair
+//!    notation `21,34` looks the same.
+//!
+//! Errors about a file name it and point at the place, `line L` or `line L, column C` (lines
+//! counted from 1 in the file as written, skipped and comment lines included; columns are field
+//! positions from 1), and the help line names the option that would fix it in both spellings,
+//! JSON-RPC and CLI: `csv.separator ";" in dataset.import (mobilis import --separator ';')`.
 
 use crate::csv_dialect::{self, CsvDialect, SourceMap};
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};

@@ -12,10 +12,37 @@
 //! preflight), and every answer names the origin in `Access-Control-Allow-Origin`. Browser
 //! WebSockets cannot set headers, so a page reaching a token-protected daemon uses HTTP.
 //!
-//! The three transports share one message handler ([`messages`]): it answers every id the
+//! The three transports share one message handler (`messages`): it answers every id the
 //! JSON-RPC 2.0 specification allows, verbatim, and batches as section 6 of the
 //! specification says. A call's future belongs to its connection: when an HTTP client
 //! disconnects or a WebSocket closes, the futures of its calls are dropped.
+//!
+//! # Limits and answers
+//!
+//! - A connection beyond [`MAX_CONNECTIONS`] (64) gets 503; one connection runs at most 256
+//!   calls at once, and its reader waits beyond. An HTTP POST of notifications only gets 204.
+//! - stdio frames are read with bounded buffers: a header line of at most 8 KiB, at most 32
+//!   header lines, a body of at most [`MAX_STDIO_FRAME_BYTES`]. Any frame that cannot be read
+//!   gets -32700 and the reader goes on; when stdin ends, even inside a frame, the calls in
+//!   flight are answered before the daemon exits.
+//! - An unknown method keeps JSON-RPC's code -32601 ([`METHOD_NOT_FOUND`]) but names the method
+//!   and the closest known ones by edit distance, with `data.closest` ([`method_not_found`]),
+//!   on every transport and inside batches.
+//! - A plain `GET /` (not a WebSocket upgrade) that passes the origin and token checks gets a
+//!   short JSON note of what answers on the port and where the documentation is.
+//! - The token is compared in constant time (the SHA-256 digests of both, their difference
+//!   folded and read once at the end), the `Bearer` scheme in any case (RFC 9110, section
+//!   11.1). Pass it as `MOBILIS_TOKEN`: the daemon warns when it came from `--token`, which
+//!   every local user can read in the process list, and refuses to start with an empty or blank
+//!   one.
+//!
+//! The checks (`tests/tests/reliability/transport_frames.rs`): every allowed and disallowed id
+//! over the three transports; each bad stdio frame followed by a good request that must be
+//! answered, and the specification's examples; finished work answered before the end of input;
+//! a seeded fuzz of random frames over stdio and random JSON over HTTP and WebSocket (300
+//! rounds, 20,000 with `MOBILIS_SLOW_TESTS=1`; the daemon must answer a final `server.info`);
+//! the token. The unit tests `transport::web::tests` check with a method that counts its drops
+//! that a call stops when its HTTP client or WebSocket goes.
 
 mod access;
 mod messages;

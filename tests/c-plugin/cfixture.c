@@ -18,6 +18,11 @@
  *                           the cancel flag; the plugin-isolation tests use these
  *   FIXTURE_ABORT_ON_LOAD   call abort() from a library constructor, before any entry point
  *   FIXTURE_ABI_MINOR=N     declare ABI minor N instead of the header's (an "older plugin" build)
+ *   FIXTURE_NULL_FUNCTION=f leave the descriptor's function f (describe, invoke or
+ *                           release_string) NULL, as a C plugin with a missing function would
+ *   FIXTURE_VERSIONS_ONLY   return a descriptor that holds only the two version fields
+ *                           (ABI 2.0 here), so a host that read past them would read
+ *                           whatever follows it in the library
  *   FIXTURE_STRING_VIEWS    declare the "string_views" feature (ABI 1.1) and a text column x,
  *                           read as string views "vu" or large UTF-8 "U": total is then the
  *                           byte length of its non-null strings, after every view was checked
@@ -485,10 +490,43 @@ static int32_t invoke(const char *analysis, const char *params_json, const Mobil
               copy_string(SUM_ANALYSIS " needs the input role `" VALUES_ROLE "`"));
 }
 
+/* FIXTURE_NULL_FUNCTION names one function; the preprocessor compares names only as
+ * numbers, so each name is given a number first. */
+#define FIXTURE_FUNCTION_describe 1
+#define FIXTURE_FUNCTION_invoke 2
+#define FIXTURE_FUNCTION_release_string 3
+#define FIXTURE_FUNCTION_NUMBER_OF(f) FIXTURE_FUNCTION_##f
+#define FIXTURE_FUNCTION_NUMBER(f) FIXTURE_FUNCTION_NUMBER_OF(f)
+#ifdef FIXTURE_NULL_FUNCTION
+#define FIXTURE_NULL FIXTURE_FUNCTION_NUMBER(FIXTURE_NULL_FUNCTION)
+#else
+#define FIXTURE_NULL 0
+#endif
+
 static const MobilisPluginDescriptor DESCRIPTOR = {
-    FIXTURE_ABI_MAJOR, FIXTURE_ABI_MINOR, FIXTURE_NAME_TEXT, "0.1.0", describe, invoke, release_string,
+    FIXTURE_ABI_MAJOR,
+    FIXTURE_ABI_MINOR,
+    FIXTURE_NAME_TEXT,
+    "0.1.0",
+    FIXTURE_NULL == 1 ? NULL : describe,
+    FIXTURE_NULL == 2 ? NULL : invoke,
+    FIXTURE_NULL == 3 ? NULL : release_string,
 };
 
 FIXTURE_EXPORT const MobilisPluginDescriptor *FIXTURE_ENTRY_FUNCTION(void);
 
+#ifdef FIXTURE_VERSIONS_ONLY
+/* A descriptor of another major version may have any layout after its version fields, so
+ * this one has none: a host must refuse it from these two numbers alone. */
+static const struct {
+  uint32_t abi_major;
+  uint32_t abi_minor;
+} VERSIONS_ONLY = {MOBILIS_ABI_MAJOR + 1, 0};
+
+FIXTURE_EXPORT const MobilisPluginDescriptor *FIXTURE_ENTRY_FUNCTION(void) {
+  (void)DESCRIPTOR;
+  return (const MobilisPluginDescriptor *)(const void *)&VERSIONS_ONLY;
+}
+#else
 FIXTURE_EXPORT const MobilisPluginDescriptor *FIXTURE_ENTRY_FUNCTION(void) { return &DESCRIPTOR; }
+#endif

@@ -13,6 +13,13 @@
 //! output is kept, and twice an `analysis.run` whose output is dropped at once
 //! (`dataset.drop`). The analyses reduce a small table of readings (2 samples at 3
 //! temperatures) that [`prepare`] imports first.
+//!
+//! After the run every kept output must be listed and every dropped one gone. The capacity
+//! benchmark (`tests/benches/capacity.rs`) runs it against a release daemon; its goal is
+//! `server.info` p99 at most 20 ms under 32 clients, and it says whether that was met (no test
+//! asserts on time). The reliability check `load` runs the same mix against the debug daemon,
+//! 8 clients x 100 requests per transport by default (32 x 1,000 under
+//! `MOBILIS_SLOW_TESTS=1`), and fails on any failed request or lost output.
 
 use mobilis_client::{Client, ClientError};
 use serde_json::{json, Value};

@@ -231,6 +231,12 @@ async fn unusable_libraries_are_refused_by_name_and_the_daemon_keeps_serving(mod
     build_c_plugin(dir.path(), "cfixture", &[]);
     build_c_plugin(dir.path(), "cfixture_abi2", &[("FIXTURE_ABI_MAJOR", Some("2"))]);
     build_c_plugin(dir.path(), "cfixture_no_entry", &[("FIXTURE_NO_ENTRY", None)]);
+    build_c_plugin(
+        dir.path(),
+        "cfixture_null_invoke",
+        &[("FIXTURE_NULL_FUNCTION", Some("invoke"))],
+    );
+    build_c_plugin(dir.path(), "cfixture_versions_only", &[("FIXTURE_VERSIONS_ONLY", None)]);
     // Loaded after `libcfixture` (the daemon loads a directory in file name order), so this
     // is the copy that finds `cfixture.sum` taken.
     build_c_plugin(
@@ -252,7 +258,7 @@ async fn unusable_libraries_are_refused_by_name_and_the_daemon_keeps_serving(mod
             .unwrap_or_else(|| panic!("{file} is not among the refused libraries: {refused:?}"));
         entry["reason"].as_str().expect("a reason").to_owned()
     };
-    assert_eq!(refused.len(), 3, "{refused:?}");
+    assert_eq!(refused.len(), 5, "{refused:?}");
 
     let reason = reason_for("cfixture_abi2");
     assert!(
@@ -262,6 +268,16 @@ async fn unusable_libraries_are_refused_by_name_and_the_daemon_keeps_serving(mod
     );
     let reason = reason_for("cfixture_no_entry");
     assert!(reason.contains(abi::ENTRY_SYMBOL), "{reason}");
+    let reason = reason_for("cfixture_null_invoke");
+    assert!(
+        reason.contains(&format!(
+            "plugin `cfixture` ({}): `invoke` is NULL",
+            shared_library_name("cfixture_null_invoke")
+        )),
+        "the reason should name the plugin, its file and the NULL function: {reason}"
+    );
+    let reason = reason_for("cfixture_versions_only");
+    assert!(reason.contains(&format!("ABI {}.0", abi::ABI_MAJOR + 1)), "{reason}");
     let reason = reason_for("cfixture_copy");
     assert!(
         reason.contains("`cfixture.sum`") && reason.contains("already provided"),
@@ -282,6 +298,44 @@ async fn unusable_libraries_are_refused_by_name_and_the_daemon_keeps_serving(mod
         )
         .await;
     assert_eq!(run["summary"]["total"].as_f64(), Some(3.0));
+}
+
+/// A descriptor is read field by field under the ABI's minor-version rule: a C plugin that
+/// leaves any of its three functions NULL is refused with the field's name before anything
+/// is called, and one of another major version is refused from its two version fields
+/// alone (the fixture's descriptor has nothing after them). Loaded in process through the
+/// host's loader, where a wrong read would be undefined behaviour in the test itself.
+#[test]
+fn c_descriptors_with_a_null_function_or_another_major_are_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    for field in ["describe", "invoke", "release_string"] {
+        let name = format!("cfixture_null_{field}");
+        let library = build_c_plugin(dir.path(), &name, &[("FIXTURE_NULL_FUNCTION", Some(field))]);
+        let mut host = PluginHost::default();
+        let reason = host.load(&library).expect_err("a NULL function refuses the library");
+        assert_eq!(
+            reason,
+            format!(
+                "plugin `cfixture` ({}): `{field}` is NULL; a plugin must set describe, invoke and release_string in its descriptor",
+                shared_library_name(&name)
+            )
+        );
+        assert!(host.plugins.is_empty() && host.analyses.is_empty());
+    }
+
+    let library = build_c_plugin(dir.path(), "cfixture_versions_only", &[("FIXTURE_VERSIONS_ONLY", None)]);
+    let reason = PluginHost::default()
+        .load(&library)
+        .expect_err("another major is refused");
+    assert_eq!(
+        reason,
+        format!(
+            "built for plugin ABI {}.0, this daemon speaks ABI {}.{}; rebuild the plugin against this version",
+            abi::ABI_MAJOR + 1,
+            abi::ABI_MAJOR,
+            abi::ABI_MINOR
+        )
+    );
 }
 
 async fn a_panic_in_a_plugin_is_an_error_and_the_plugin_keeps_working(mode: Mode) {
@@ -338,7 +392,7 @@ async fn an_output_that_breaks_its_declaration_is_refused_and_nothing_is_stored(
     let (code, message) = daemon
         .call_error(
             "analysis.run",
-            json!({"analysis": "fixture.undeclared", "output": "undeclared"}),
+            json!({"analysis": "fixture.undeclared", "inputs": {}, "output": "undeclared"}),
         )
         .await;
     assert_eq!(code, 5001, "{message}");

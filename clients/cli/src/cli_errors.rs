@@ -6,6 +6,10 @@
 //! parameter becomes the option that sets it (`--overwrite`, `--input readings=DATASET`,
 //! `--params '{"temperature_tolerance_K": ...}'`, `--group-by`), or the key of a pipeline
 //! file, and the remaining method names become the commands that call them.
+//!
+//! `dataset.list` becomes `mobilis datasets`, and so on; `mobilis call` keeps the daemon's
+//! words. A new JSON phrase in a daemon help line gets a row in `PHRASES`;
+//! `tests/tests/cli.rs` runs each through a real daemon.
 
 use mobilis_client::ClientError;
 use serde_json::Value;

@@ -296,7 +296,7 @@ pub fn ln_gamma(x: f64) -> f64 {
     0.5 * (2.0 * PI).ln() + (shifted + 0.5) * t.ln() - t + series.ln()
 }
 
-/// The Hall scattering factor r_H = <tau^2>/<tau>^2 for a non-degenerate parabolic band and
+/// The Hall scattering factor r_H = `<tau^2>/<tau>^2` for a non-degenerate parabolic band and
 /// tau ~ E^s: Gamma(2s + 5/2) Gamma(5/2) / Gamma(s + 5/2)^2 (Putley 1960). Acoustic
 /// phonons s = -1/2 give 3 pi/8, ionized impurities s = 3/2 give 315 pi/512. Defined for
 /// s > -5/4 (NaN below).

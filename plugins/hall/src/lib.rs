@@ -5,6 +5,45 @@
 //!
 //! This file is the table glue: the physics is in [`reduce`] and knows nothing of
 //! DataFrames; the C side is written by `mobilis_core::export_plugin!`.
+//!
+//! # Input roles
+//!
+//! **`readings`**, one row per reading: `sample`, `temperature_K`, `field_T`, `current_A`
+//! (entering at `i_in`; negative for a reversed source), `voltage_V` (V(`v_pos`) - V(`v_neg`)),
+//! and the configuration, either as the four contact columns `i_in`, `i_out`, `v_pos`, `v_neg`
+//! or as one `contacts` column in pair notation (`"21,34"`: current in at 2, out at 1, voltage
+//! V3 - V4; `mobilis_core::contacts::parse_pair_notation`). Both forms are declared optional
+//! and the glue checks that one is there; with both, every reading must agree, and a
+//! disagreement or a malformed cell (`21;3`) is an error naming its reading and the expected
+//! form. In a CSV file separated by commas the cell must be quoted. Contact numbering (van der
+//! Pauw 1 to 4 counterclockwise seen from the +B side; Hall bars 1 to 6) and the canonical
+//! orientations are in `mobilis_core::contacts`.
+//!
+//! **`samples`** (optional), the sample sheet, one row per sample: `sample`, `thickness_m`
+//! (null for a 2D sheet), optional `thickness_m_unc`, `hall_factor` (r_H, default 1),
+//! `geometry` (`van_der_pauw`, the default, or `hall_bar`), and for Hall bars `bar_length_m`
+//! (the centre-to-centre distance of the longitudinal voltage contacts) and `bar_width_m`. A
+//! sample listed twice, or one in the readings but not in a given sheet, is an error. Without a
+//! sheet every sample is a 2D van der Pauw sample with Hall factor 1.
+//!
+//! # Calibrations
+//!
+//! `thickness_m_unc` (m; 0 when not stated), `field_calibration_rel` (0.005),
+//! `current_calibration_rel` (0.001), `voltage_calibration_rel` (1e-4) and
+//! `temperature_accuracy_K` (0.02 K) come per sample from sample-sheet columns of those names,
+//! else per call from parameters of the same names, else from these defaults (common practice,
+//! not a standard). The summary lists them (`calibrations`: per sample the values used, the
+//! names `not_stated`, and `reading_noise_V`, the pooled voltage noise of one reading;
+//! `calibrations_not_stated` over all samples), and a warning names the assumed ones. How they
+//! enter each quantity is in [`reduce`], "The uncertainty budget".
+//!
+//! # Output
+//!
+//! One row per sample, temperature group and field magnitude; the columns are the `OUTPUT`
+//! table of this file, listed by `analysis.describe`. The quality flags, their thresholds and
+//! parameters are in [`reduce::flags`]; their defaults are common practice, not taken from a
+//! standard. Bad readings (zero current, NaN, a contact outside 1..4 or 1..6) are errors naming
+//! the reading; `skip_invalid_readings: true` drops them with warnings.
 
 pub mod reduce;
 

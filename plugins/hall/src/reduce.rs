@@ -17,21 +17,21 @@
 //!    carries its flag). A sample with readings but no sheet row is an error listing every such name.
 //!    Without a sheet every sample is a 2D van der Pauw sample with Hall factor 1.
 //! 2. **Temperature groups.** Per sample, readings are sorted by temperature and consecutive
-//!    temperatures closer than `temperature_tolerance_k` and than 5 % of the temperature
-//!    share a group (the second limit keeps a sub-kelvin series apart: 0.3, 0.4, 0.5 K are
-//!    three groups). Chains are allowed, so a slow drift stays one group; the row reports
-//!    the group's mean and its spread (max - min) so that a drift is visible.
+//!    temperatures closer than `temperature_tolerance_K` (0.5 K) and than 5 % of the temperature
+//!    share a group (the second limit keeps a sub-kelvin series apart: 0.3, 0.4, 0.5 K are three
+//!    groups). Chains are allowed, so a slow drift stays one group; the row reports the group's
+//!    mean and its spread (max - min) so that a drift is visible.
 //! 3. **Zero field and field setpoints.** Within a group, |B| <= `zero_field_tolerance_t`
-//!    (default 10 mT) is zero field: an electromagnet keeps a few mT at a nominal zero, and
-//!    a gaussmeter records it, so the window is wide enough for that remanence and far below
-//!    any Hall field (common practice); readings above 1e-4 T taken as zero field are named
-//!    in a warning with the parameter. The other readings are grouped by |B| around
-//!    setpoints: a row starts at the smallest |B| not yet placed and takes every reading
-//!    within `field_tolerance_t` (5 mT) of it, so a row is never wider than that and a
-//!    densely logged ramp is cut into setpoints instead of being chained into one. A field
+//!    (default 10 mT) is zero field: an electromagnet keeps a few mT at a nominal zero, and a
+//!    gaussmeter records it, so the window is wide enough for that remanence and far below any
+//!    Hall field (common practice; lower it for a Hall field below 10 mT); readings above 1e-4 T
+//!    taken as zero field are named in a warning with the parameter. The other readings are
+//!    grouped by |B| around setpoints: a row starts at the smallest |B| not yet placed and takes
+//!    every reading within `field_tolerance_t` (5 mT) of it, so a row is never wider than that
+//!    and a densely logged ramp is cut into setpoints instead of being chained into one. A field
 //!    that wanders by tenths of a mT between readings stays one row, and each polarity's
-//!    field-odd part is divided by its own fields (step 6). Each setpoint gives one row; a
-//!    group without field readings gives one row with null Hall quantities and the flag
+//!    field-odd part is divided by its own fields (step 6). Each setpoint gives one row; a group
+//!    without field readings gives one row with null Hall quantities and the flag
 //!    `no_field_data`. A row with a missing configuration or field sign warns and names
 //!    `field_tolerance_T`, `zero_field_tolerance_T` and `temperature_tolerance_K`, the
 //!    parameters that decide which readings share it.
@@ -148,7 +148,7 @@
 //! The work is linear in the readings apart from one sort, which costs a single pass when
 //! the readings arrive ordered by sample and temperature (the usual export order: the sort
 //! detects the sorted run and stops). Measured with `cargo bench -p mobilis-tests --bench
-//! hall_reduce` (figures and where the time goes: `DEVELOPERS.md`, Benchmarks).
+//! hall_reduce` (its module docs say what each figure measures).
 //!
 //! - Sample names are interned once (consecutive readings of one sample skip the hash).
 //! - A reading's contacts are classified by one look-up in a table of every contact

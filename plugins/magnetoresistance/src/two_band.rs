@@ -67,18 +67,23 @@
 //!    chi-square is kept.
 //! 5. **Uncertainties.** From the covariance (J^T J)^-1 of the best run (times chi^2 / nu
 //!    without uncertainties), in ln n and ln mu; the standard uncertainty of n is n times
-//!    that of ln n (first order), likewise for mu. A parameter on its bound has none (the
+//!    that of ln n (first order), likewise for mu. With stated uncertainties the errors are
+//!    widened by the Birge ratio sqrt(chi^2 / nu) when that exceeds 1 and never narrowed
+//!    (`mobilis_core::fit::FitQuality`; the summary's `chi_square_p_value` and
+//!    `birge_ratio`, null without uncertainties). A parameter on its bound has none (the
 //!    curvature says nothing about a one-sided minimum). A best minimum whose parameters the
 //!    data do not determine is refused ([`TwoBandError::Indistinguishable`]).
 //! 6. **Warnings.** A carrier with mu B_max < 1 whose density or mobility is uncertain by
 //!    more than 10 % (the sweep does not reach its magnetoresistance); both carriers with
 //!    mu B_max < 1 (then they act as one carrier up to small curvatures); parameters on their
-//!    bounds; a chi-square per degree of freedom above 1 + 4 sqrt(2 / nu) with uncertainties
-//!    given (a third carrier, a field-dependent mobility, or underestimated uncertainties);
+//!    bounds; with uncertainties given, a chi-square p-value below 1e-3, naming the worst
+//!    fields (a third carrier, a field-dependent mobility, or underestimated uncertainties);
 //!    a best minimum that only one of several converged starts reached.
 //!
 //! The carriers are reported electrons first, then holes, each kind by increasing mobility,
-//! as `spectrum.multi_carrier_fit` reports them.
+//! as `spectrum.multi_carrier_fit` reports them. For two carriers the two fits agree to well
+//! within their uncertainties; this one works in resistivity space, the other in
+//! conductivity space.
 
 use mobilis_core::constants::ELEMENTARY_CHARGE_C;
 use mobilis_core::fit::{Bounds, FitError, FitQuality, LeastSquares, LmOptions, MultiStartFit, SameMinimum};

@@ -19,7 +19,8 @@
 //! ln(B / B_phi) above it: the field where the quadratic cusp turns logarithmic fixes B_phi,
 //! the size fixes alpha. alpha = -1/2 per independent channel is weak antilocalization (strong
 //! spin-orbit coupling, conductance falling with field), alpha > 0 weak localization; two
-//! decoupled surfaces give -1.
+//! decoupled surfaces give -1. The form assumes a mean free path well below l_phi (the
+//! diffusive limit).
 //!
 //! # Steps and the choices made
 //!
@@ -37,8 +38,9 @@
 //! 3. **Zero field.** sigma(0) is the mean sigma_xx of the points with |B| <=
 //!    `zero_field_tolerance_t` (default 1e-3 T); a sweep without such a point is refused,
 //!    since d_sigma is defined against it and the cusp at zero field carries B_phi. With
-//!    `fit_offset` a constant is fitted as well, which lets every field point, not just the
-//!    zero-field ones, set the reference (use it when sigma(0) is noisy or drifts).
+//!    `fit_offset` (the analysis's default) a constant is fitted as well, which lets every
+//!    field point, not just the zero-field ones, set the reference (the zero-field average
+//!    already holds part of the cusp when B_phi is small, and it may be noisy or drift).
 //! 4. **Fit.** d_sigma(B) = sigma(B) - sigma(0) at the nonzero fields up to `max_field_t`
 //!    (default: all) is fitted with alpha, ln B_phi (a logarithm keeps B_phi positive and
 //!    makes its steps relative over the decades it can span), and optionally a classical
@@ -58,7 +60,8 @@
 //!    the relative error of B_phi halved. Weighted by stated errors, the covariance is
 //!    multiplied by chi^2 / nu when that exceeds 1 (the Birge ratio, Birge 1932, as the
 //!    Particle Data Group does; never shrunk); weighted by the scatter, it is scaled by the
-//!    scatter. A coverage test (`weak_localization/coverage.rs`) checks that l_phi's
+//!    scatter; the summary's `chi_square_p_value` and `birge_ratio` are then null. A coverage
+//!    test (`weak_localization/coverage.rs`) checks that l_phi's
 //!    uncertainty covers the truth as often as a standard uncertainty should.
 //! 6. **Warnings.** B_phi below a third of the lowest nonzero |B| (the cusp is not resolved:
 //!    only a lower bound on l_phi is meaningful; measure closer to zero field); B_phi above the

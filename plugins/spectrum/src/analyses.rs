@@ -1,4 +1,4 @@
-//! Table glue of the spectrum analyses: the `sweep` role into [`SweepPoint`]s, the
+//! Table glue of the spectrum analyses: the `sweep` role into `SweepPoint`s, the
 //! parameters into settings, and the results into tables ready to plot and summaries.
 //!
 //! A sweep at one field sign is accepted when it has rho_xy (the `sweep` role requires it):

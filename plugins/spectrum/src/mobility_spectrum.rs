@@ -1,6 +1,6 @@
 //! `spectrum.mobility`: the mobility spectrum of a symmetrized field sweep, for electrons
 //! and holes on a logarithmic mobility grid. Two spectra are computed: the Beck-Anderson
-//! envelope (an upper bound) and a regularized non-negative spectrum whose
+//! envelope (an upper bound) and the regularized spectrum, a smooth non-negative one whose
 //! peaks are integrated into a sheet density and a mean mobility each.
 //!
 //! Pure computation: no DataFrames, no I/O. The plugin's table glue turns the `sweep` role
@@ -54,7 +54,8 @@
 //!   smooth non-negative spectrum that fits the data to within their noise, with the
 //!   smoothness chosen by a stated rule, not by the user. Non-negativity is what gives the
 //!   spectrum its resolution; the penalty removes the spikes with which an unregularized
-//!   non-negative fit chases the noise.
+//!   non-negative fit chases the noise. (It is called the regularized spectrum throughout:
+//!   "quantitative mobility spectrum" names a different published method.)
 //!   The penalty strength is chosen ([`RegularizationRule`]) by the discrepancy principle
 //!   when the data carry uncertainties (the smoothest spectrum with chi-square at most the
 //!   number of data, or one standard deviation above the misfit's floor when a grid's

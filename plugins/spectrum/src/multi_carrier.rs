@@ -53,9 +53,9 @@
 //!    electrons and holes is fitted, the best of them scored by an information criterion,
 //!    and N grows while the score improves by more than
 //!    [`MultiCarrierSettings::min_criterion_improvement`]. The criterion is BIC by default
-//!    (Schwarz, Ann. Stat. 6, 461, 1978): chi^2 + k ln m with uncertainties, m ln(chi^2 / m)
-//!    + k ln m without, for k parameters (2N, plus the noise scale when it is estimated) and
-//!    m residuals. BIC is consistent (it finds the true N as the data grow) and penalizes an
+//!    (Schwarz, Ann. Stat. 6, 461, 1978): chi^2 + k ln m with uncertainties,
+//!    m ln(chi^2 / m) + k ln m without, for k parameters (2N, plus the noise scale when it is
+//!    estimated) and m residuals. BIC is consistent (it finds the true N as the data grow) and penalizes an
 //!    extra carrier more than AIC does for m >= 8; spurious carriers that fit the noise are
 //!    the common failure of multi-carrier fits, so the stricter criterion is the default.
 //!    AICc (Hurvich and Tsai, Biometrika 76, 297, 1989), AIC + 2k(k + 1) / (m - k - 1), is the

@@ -15,6 +15,30 @@
 //! Fit quality (reduced chi-square, p-value, Birge ratio) and flags (parameters at a bound,
 //! calibrations not stated, one field sign, counts that disagree, the run's warnings) go
 //! with each block.
+//!
+//! So a plugin's numbers reach the page without touching the report:
+//!
+//! - `analysis.run` keeps the summary it answers (per group under `groups`) and its warnings in
+//!   the output dataset's manifest (`provenance.run_summary`, `provenance.warnings`; manifests
+//!   written before have neither and load as before).
+//! - A group belongs to the sample when its `sample` group value (or the summary's own
+//!   `sample`) names it; an ungrouped summary without one counts when the dataset holds that
+//!   sample only.
+//! - A key number `X` is shown as `X ± X_unc` in the unit its suffix names (`_m3` cm⁻³, `_m2`
+//!   cm⁻², `_m2_per_Vs` cm²/(V s), `_ohm_m` Ω cm, `_eV` meV, `_s` ps, `_m` nm or µm, `_K`,
+//!   `_T`; no suffix: a ratio), rounded by `mobilis_core::quote` (two significant digits of the
+//!   uncertainty, GUM 7.2.6). `_unc_stat` and `_unc_sys` parts stay in the provenance. A label
+//!   table here names the well-known ones (N_D, E_D, F, m*/m0, l_phi ...); others read as their
+//!   key.
+//! - A carrier is an object of a `carriers` or `peaks` list with `carrier_type` and
+//!   `sheet_density_m2` (or `density_m3`) and/or `mobility_m2_per_Vs`, with their `_unc`.
+//! - Quality and flags: `reduced_chi_square`, `chi_square_p_value`, `birge_ratio` (also with a
+//!   `dingle_` prefix), `r_squared`; a flag for p < 0.001, a non-empty `at_bound`, a non-empty
+//!   `calibrations_not_stated`, `single_field_sign: true`, `freeze_out_consistent: false`, a
+//!   carrier's `at_bound` or `at_grid_edge`, and the run's warnings. Conditions come from the
+//!   group's other values (`at 2.000 K`), `temperature_min_K`/`temperature_max_K` and
+//!   `temperatures_K`.
+//! - `hall.reduce` is the one analysis read by name.
 
 use super::{escape, SAMPLE_COLUMN};
 use crate::store::{Dataset, Provenance};

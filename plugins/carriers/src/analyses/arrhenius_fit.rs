@@ -1,4 +1,14 @@
 //! `carriers.arrhenius`: table glue of [`crate::arrhenius`].
+//!
+//! The table's `ln_reduced_density_m3` and `ln_reduced_density_fit_m3` hold ln(n / m^-3) - r
+//! ln(T / K) with r = 3/2 (`regime: compensated`, E = -slope) or 3/4 (`uncompensated`, E = -2
+//! slope), shown by clients in cm^-3. The range is `temperature_min_K`..`temperature_max_K` or
+//! the automatic low-temperature window of steady slope, reported either way. A common density
+//! scale leaves the slope unchanged, so the energy has no systematic part: the summary gives
+//! `activation_energy_eV_unc_stat` beside the total, with `chi_square`, `degrees_of_freedom`,
+//! `reduced_chi_square`, `chi_square_p_value`, `birge_ratio`, `floored_points`,
+//! `effective_variance_passes` and `weighted`. The slope is E only where n << N_A; expect a few
+//! percent low otherwise (`carriers.freeze_out_fit` is exact).
 
 use super::freeze_out_fit::{
     budget_columns, budget_schema_properties, budget_summary_keys, hall_factor_setting, hall_role,

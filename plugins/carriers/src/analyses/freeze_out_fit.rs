@@ -1,6 +1,20 @@
 //! `carriers.freeze_out_fit`: table glue of [`crate::freeze_out`], and the parts of the
 //! uncertainty budget (input columns, parameters, summary keys) that `carriers.arrhenius`
 //! shares with it.
+//!
+//! Summary: `dopant_density_m3`, `compensating_density_m3`, `net_density_m3`,
+//! `compensation_ratio` and `ionization_energy_eV`, each with `_unc`, `_unc_stat` and
+//! `_unc_sys`; their covariance `dopant_compensating_covariance_m6`;
+//! `density_scale_relative_uncertainty` and its source; `reduced_chi_square`,
+//! `chi_square_p_value`, `birge_ratio`, `floored_points`, `effective_variance_passes`;
+//! `hall_factor` (null when it varies with temperature) and `uncertainties_not_given`. The
+//! common density scale (the largest `density_m3_unc_sys / density_m3` of the series, with a
+//! warning when the rows differ by more than 10 %) moves N_D - N_A nearly in full, N_A little,
+//! and E_D a little through the bend between saturation and freeze-out (about 0.24 meV for 3 %
+//! on a realistic silicon series, against 0.045 meV statistical). The table's `kind` is `data`
+//! (a measured point, with its residual) or `curve` (the fitted model). `effective_dos_300K_m3`
+//! replaces the majority band's Nc (or Nv); `degeneracy` defaults to 2 for donors and 4 for
+//! acceptors.
 
 use super::*;
 use crate::freeze_out::{fit_freeze_out, Estimate, FreezeOutSettings, UncertaintySource};

@@ -1,4 +1,20 @@
 //! `carriers.mobility_scattering`: table glue of [`crate::scattering`].
+//!
+//! Parameters beyond the shared ones: `formula` (`brooks_herring`, the default, or
+//! `conwell_weisskopf`), `ionized_density` (`constant`: one N_I fitted;
+//! `carriers_plus_compensation`: N_I = n + 2 N_comp with the measured n and N_comp fitted,
+//! right for a series through freeze-out), `neutral` (Erginsoy's neutral-impurity term: `none`,
+//! `fitted`, or `from_carriers`), `constant_term`, `charge_number`, `fixed_lattice_exponent`,
+//! `mobility_column` (`hall_mobility_m2_per_Vs`, the default, or `drift_mobility_m2_per_Vs`).
+//! With the freeze-out summary table as input role `freeze_out` the screening uses the
+//! compensated density and the fitted count is compared with the freeze-out one:
+//! `freeze_out_consistent` is true within `consistency_sigma_multiple` (2) combined standard
+//! uncertainties, the theory included through `model_relative_uncertainty` (0.7 in ln N, see
+//! [`crate::purity`]: on published silicon mobilities this model returns 1.3 to 3.4 times the
+//! true doping between 1e16 and 1e18 cm^-3, so `false` means counts more than about a factor of
+//! 4 apart). When N_I (or N_comp) ends on its lower bound the summary gives the profile upper
+//! limit `ionized_impurity_density_upper_limit_m3` and `freeze_out_comparison: "upper_limit"`.
+//! A warning says when Brooks-Herring is used where its screening parameter falls below 1.
 
 use super::freeze_out_fit::hall_role;
 use super::*;

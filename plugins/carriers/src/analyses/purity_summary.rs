@@ -1,4 +1,16 @@
 //! `carriers.purity`: table glue of [`crate::purity`].
+//!
+//! Inputs are the summary tables (`analysis.run` `summary_output`) of the two fits: role
+//! `freeze_out` (required) and role `scattering` (optional). One row per sample: N_D, N_A, net
+//! doping, compensation ratio (compensating over majority) and N_D + N_A with uncertainties
+//! from the freeze-out covariance, beside the mobility fit's count, or its upper limit where it
+//! has one (`scattering_upper_limit_m3`), and `candidate_dopants`: silicon's handbook shallow
+//! levels (Sze and Ng, Physics of Semiconductor Devices, 2007, from memory: P 45, As 54, Sb 43,
+//! B 45, Al 67, Ga 72, In 160 meV; [`crate::materials::SILICON_DOPANT_LEVELS`]) within two
+//! standard uncertainties of the fitted ionization energy, its uncertainty combined with the 2
+//! meV by which thermal and optical determinations of one level differ
+//! ([`crate::materials::DOPANT_LEVEL_SPREAD_EV`]). "none" means a deeper centre, or a fit to
+//! check.
 
 use super::mobility_scattering::{freeze_out_densities, freeze_out_role};
 use super::*;

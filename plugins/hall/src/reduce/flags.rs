@@ -5,6 +5,14 @@
 //! (`missing_configurations`) is kept apart from a missing current polarity
 //! (`no_current_reversal`) and a missing field sign (`no_field_reversal`). A row lists its
 //! flags in the order of [`ALL`]; `quality_ok` is true when the list is empty.
+//!
+//! The thresholds and their defaults (`QualityThresholds`, parameters of the same
+//! names): `reciprocity_tolerance` 0.03, `max_resistance_ratio` 2, `hall_spread_tolerance`
+//! 0.10, `thermoelectric_offset_ratio` 0.2, `misalignment_ratio` 10,
+//! `current_reversal_tolerance` 0.03. They are common practice, not taken from a standard: a
+//! lab with other habits sets its own. The flags without a threshold (`missing_configurations`,
+//! `no_field_reversal`, `no_current_reversal`, `resistance_from_field_readings`,
+//! `no_field_data`, `nonpositive_resistance`) say what was not measured or cannot be.
 
 /// R_A's (or R_B's) direct and reciprocal configurations differ by more than
 /// `reciprocity_tolerance` relative to their mean.

@@ -1,4 +1,12 @@
 //! `mr.oscillations` and `mr.weak_localization`: the quantum corrections.
+//!
+//! The `mr.oscillations` table holds the curves, spectra, window amplitudes, Dingle points and
+//! line and the fan, told apart by `kind`: `oscillation`, `fft`, `mass`, `mass_fit`, `dingle`,
+//! `dingle_fit`, `landau` (the extrema, column `landau_index`: integer at minima of rho_xx,
+//! half-integer at maxima) and `landau_fit`. Each of F, n, m*, T_D and tau_q has `_unc`,
+//! `_unc_stat`, `_unc_sys`, `_unc_fit` (the fit's own error) and `_unc_analysis_spread` (the
+//! spread over backgrounds and windows); the Dingle line reports `dingle_reduced_chi_square`,
+//! `dingle_chi_square_p_value` and `dingle_birge_ratio`.
 
 use super::*;
 use crate::oscillations::{

@@ -1,9 +1,12 @@
-//! Turns the Rust notebook's code cells into one Rust block that `tests/notebooks.rs`
-//! compiles and runs, so the notebook cannot silently rot: a cell that no longer compiles
-//! or fails against the real daemon fails the test suite.
+//! Turns the Rust notebook's code cells into one Rust block that
+//! `tests/tests/suite/notebooks.rs` compiles and runs, so the notebook cannot silently rot: a
+//! cell that no longer compiles or fails against the real daemon fails the test suite.
 //!
 //! Kernel commands (lines starting with `:`, such as `:dep`) are left out; the test crate
-//! already depends on what they load.
+//! already depends on what they load. The cells' `std::env::var` calls become calls of
+//! `notebook_env`, which the test defines: the tests share one process, and setting the
+//! process environment there would race with the other tests' threads and leak the test's
+//! daemon address into every child process they start.
 
 use std::path::Path;
 
@@ -25,7 +28,7 @@ fn main() {
         };
         for line in source.lines() {
             if !line.trim_start().starts_with(':') {
-                code.push_str(line);
+                code.push_str(&line.replace("std::env::var(", "notebook_env("));
                 code.push('\n');
             }
         }

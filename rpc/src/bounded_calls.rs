@@ -26,7 +26,7 @@
 //! deadline, and stops before its next group or step. Work that does not poll the cancel flag
 //! (a drawing, a plugin without cancel checks) runs on to its end, unseen.
 //!
-//! The checks: `cargo test -p mobilis-tests --test reliability -- workspace_and_bounds
+//! The checks: `cargo test -p mobilis-tests --test suite -- reliability::workspace_and_bounds
 //! --nocapture` (path attacks through both kinds of root, a symlink race on imports and
 //! exports, export overwrite and racing exports, clients that go away over HTTP and WebSocket,
 //! deadlines, figure limits); `MOBILIS_SLOW_TESTS=1` runs more rounds.

@@ -45,92 +45,51 @@
 
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use polars::prelude::*;
-use serde::{Deserialize, Serialize};
 use std::io::Cursor;
 
-/// How a CSV file is written. Every member is optional; the defaults read a plain
-/// comma-separated file with a header line.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct CsvDialect {
-    /// One character between fields (`","`, `";"`, `"\t"` or `"tab"`, `"|"`).
-    #[serde(default = "default_separator")]
-    pub separator: String,
-    /// Numbers are written with a decimal comma (`1,5`); needs a separator other than `,`.
-    #[serde(default)]
-    pub decimal_comma: bool,
-    /// Lines starting with this text (after leading blanks) are comments, anywhere in the file.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub comment_prefix: Option<String>,
-    /// Lines to skip at the top of the file, before the header.
-    #[serde(default)]
-    pub skip_rows: u32,
-    /// Whether the first row names the columns; without one they are `column_1`, `column_2`, ...
-    #[serde(default = "yes")]
-    pub header: bool,
-}
+/// How a CSV file is written: a member of `dataset.import`'s params, defined by the protocol.
+pub use mobilis_protocol::params::CsvDialect;
 
-fn default_separator() -> String {
-    ",".into()
-}
-
-fn yes() -> bool {
-    true
-}
-
-impl Default for CsvDialect {
-    fn default() -> Self {
-        CsvDialect {
-            separator: default_separator(),
-            decimal_comma: false,
-            comment_prefix: None,
-            skip_rows: 0,
-            header: true,
-        }
-    }
-}
-
-impl CsvDialect {
-    /// The separator as one character, or an error saying what is accepted.
-    pub fn separator_char(&self) -> ServiceResult<char> {
-        let text = self.separator.as_str();
-        let character = match text {
-            "tab" | "\\t" => Some('\t'),
-            _ => {
-                let mut chars = text.chars();
-                match (chars.next(), chars.next()) {
-                    (Some(c), None) => Some(c),
-                    _ => None,
-                }
+/// The separator as one character, or an error saying what is accepted.
+pub fn separator_char(dialect: &CsvDialect) -> ServiceResult<char> {
+    let text = dialect.separator.as_str();
+    let character = match text {
+        "tab" | "\\t" => Some('\t'),
+        _ => {
+            let mut chars = text.chars();
+            match (chars.next(), chars.next()) {
+                (Some(c), None) => Some(c),
+                _ => None,
             }
-        };
-        match character {
-            Some('"') | Some('\n') | Some('\r') | None => Err(ServiceError::invalid_params(format!(
-                "csv.separator is `{text}`; it must be one character other than a quote or a line break"
-            ))
-            .with_help("for example \",\", \";\", \"tab\" or \"|\" (mobilis import --separator ';')")),
-            Some(c) => Ok(c),
         }
+    };
+    match character {
+        Some('"') | Some('\n') | Some('\r') | None => Err(ServiceError::invalid_params(format!(
+            "csv.separator is `{text}`; it must be one character other than a quote or a line break"
+        ))
+        .with_help("for example \",\", \";\", \"tab\" or \"|\" (mobilis import --separator ';')")),
+        Some(c) => Ok(c),
     }
+}
 
-    fn check(&self) -> ServiceResult<char> {
-        let separator = self.separator_char()?;
-        if self.decimal_comma && separator == ',' {
-            return Err(ServiceError::invalid_params(
+/// The dialect's separator, once the dialect is found consistent.
+fn check(dialect: &CsvDialect) -> ServiceResult<char> {
+    let separator = separator_char(dialect)?;
+    if dialect.decimal_comma && separator == ',' {
+        return Err(ServiceError::invalid_params(
                 "csv.decimal_comma needs a separator other than `,`: a comma cannot both part fields and numbers",
             )
             .with_help("files with decimal commas are usually separated by `;`: csv.separator \";\" (mobilis import --separator ';')"));
-        }
-        if let Some(prefix) = &self.comment_prefix {
-            if prefix.trim().is_empty() {
-                return Err(
-                    ServiceError::invalid_params("csv.comment_prefix must not be empty or blank")
-                        .with_help("for example \"#\" (mobilis import --comment-prefix '#')"),
-                );
-            }
-        }
-        Ok(separator)
     }
+    if let Some(prefix) = &dialect.comment_prefix {
+        if prefix.trim().is_empty() {
+            return Err(
+                ServiceError::invalid_params("csv.comment_prefix must not be empty or blank")
+                    .with_help("for example \"#\" (mobilis import --comment-prefix '#')"),
+            );
+        }
+    }
+    Ok(separator)
 }
 
 /// Where the rows and columns of an imported frame came from in the file.
@@ -507,7 +466,7 @@ pub fn read_csv(
     dialect: &CsvDialect,
     keeps_commas: impl Fn(&str) -> bool,
 ) -> ServiceResult<(DataFrame, SourceMap)> {
-    let separator = dialect.check()?;
+    let separator = check(dialect)?;
     let text = std::str::from_utf8(bytes).map_err(|error| {
         let line = bytes[..error.valid_up_to()].iter().filter(|b| **b == b'\n').count() + 1;
         file_error(format!(

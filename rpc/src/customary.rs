@@ -3,32 +3,14 @@
 //! um; temperatures, fields, currents, voltages and resistances stay in SI. Each converted
 //! column is renamed after its unit (`density_m3` -> `density_cm3`,
 //! `hall_mobility_m2_per_Vs_unc` -> `hall_mobility_cm2_per_Vs_unc`), as `show` and the reports
-//! label them ([`mobilis_core::units::customary_display`]). Stored tables stay in SI.
+//! label them ([`mobilis_physics::units::customary_display`]). Stored tables stay in SI.
 
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
-use mobilis_core::units::customary_display;
+use mobilis_physics::units::customary_display;
 use polars::prelude::*;
-use serde::Deserialize;
 
-/// The units a table is written in.
-#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Deserialize)]
-#[serde(rename_all = "lowercase")]
-pub enum ExportUnits {
-    /// As stored: SI, with the SI unit in each column's name.
-    #[default]
-    Si,
-    /// The customary units of the trade, named in each column's name.
-    Customary,
-}
-
-impl ExportUnits {
-    pub fn name(self) -> &'static str {
-        match self {
-            ExportUnits::Si => "si",
-            ExportUnits::Customary => "customary",
-        }
-    }
-}
+/// The units a table is written in: a member of `dataset.export`'s params.
+pub use mobilis_protocol::params::ExportUnits;
 
 /// `frame` with every SI quantity column in its customary unit and named after it.
 pub fn to_customary(frame: &DataFrame) -> ServiceResult<DataFrame> {

@@ -1,4 +1,6 @@
 //! The JSON-RPC methods: parameter parsing, error conversion, dispatch into [`Service`].
+//! Every method, its params and result types and where it runs come from the protocol's
+//! table ([`mobilis_protocol::METHODS`]); this module binds each to the service.
 //!
 //! **Architecture Invariant.** This module and `transport` are the only ones that know
 //! jsonrpsee. CPU- and file-bound methods run off the async runtime, at most one per core
@@ -18,14 +20,17 @@
 use crate::bounded_calls;
 use crate::compute_slots::ComputeSlots;
 use crate::errors::ServiceError;
+use crate::errors::ServiceResult;
 use crate::openrpc;
-use crate::service::{ExportParams, ImportParams, ListParams, PipelineParams, RowsParams, RunParams, Service};
+use crate::service::Service;
 use jsonrpsee::types::{ErrorObjectOwned, Params};
 use jsonrpsee::RpcModule;
+use mobilis_protocol::{method, params, Method, Runs};
 use serde::Deserialize;
 use serde_json::Value;
+use std::collections::HashMap;
 use std::panic::{catch_unwind, AssertUnwindSafe};
-use std::sync::Arc;
+use std::sync::{Arc, OnceLock};
 
 fn to_rpc_error(error: ServiceError) -> ErrorObjectOwned {
     ErrorObjectOwned::owned(error.kind.code(), error.message.clone(), Some(error.data()))
@@ -44,49 +49,41 @@ fn params_value(params: &Params) -> Result<Value, ErrorObjectOwned> {
     })
 }
 
-/// The JSON Schema of a method's params object, from its entry in [`openrpc::METHODS`].
-fn params_schema(method: &str) -> Option<Value> {
-    let doc = openrpc::METHODS.iter().find(|m| m.name == method)?;
-    let mut properties = serde_json::Map::new();
-    let mut required = Vec::new();
-    for (name, is_required, schema, _) in doc.params {
-        let mut schema: Value = serde_json::from_str(schema).expect("method table schemas are valid JSON");
-        if method == "pipeline.run" && *name == "steps" {
-            // Each step is an analysis.run parameter object.
-            schema["items"] = params_schema("analysis.run").expect("analysis.run is documented");
-            // The deadline is the whole pipeline's.
-            if let Some(step) = schema["items"]["properties"].as_object_mut() {
-                step.remove("deadline_s");
-            }
-        }
-        properties.insert((*name).to_owned(), schema);
-        if *is_required {
-            required.push(Value::String((*name).to_owned()));
-        }
-    }
-    // plot.render passes further figure options on to the plotting crate, which checks them.
-    let closed = method != "plot.render";
-    Some(serde_json::json!({
-        "type": "object",
-        "properties": properties,
-        "required": required,
-        "additionalProperties": !closed,
-    }))
+/// The JSON Schema of a method's params object, derived once from its protocol type.
+fn params_schema(method: &str) -> Option<&'static Value> {
+    static SCHEMAS: OnceLock<HashMap<&'static str, Value>> = OnceLock::new();
+    SCHEMAS
+        .get_or_init(|| {
+            mobilis_protocol::METHODS
+                .iter()
+                .map(|spec| (spec.name, spec.params_schema()))
+                .collect()
+        })
+        .get(method)
 }
 
-/// What a method takes, for help lines: `name (required), offset, limit`.
+/// What a method takes, for help lines: `name (required): what it is; offset: ...`.
 fn params_summary(method: &str) -> String {
-    let Some(doc) = openrpc::METHODS.iter().find(|m| m.name == method) else {
+    let Some(schema) = params_schema(method) else {
         return String::new();
     };
-    if doc.params.is_empty() {
+    let Some(properties) = schema["properties"].as_object().filter(|p| !p.is_empty()) else {
         return format!("{method} takes no parameters");
-    }
-    let listed: Vec<String> = doc
-        .params
+    };
+    let required: Vec<&str> = schema["required"]
+        .as_array()
+        .map(|names| names.iter().filter_map(Value::as_str).collect())
+        .unwrap_or_default();
+    let listed: Vec<String> = properties
         .iter()
-        .map(|(name, required, _, description)| {
-            format!("{name}{}: {description}", if *required { " (required)" } else { "" })
+        .map(|(name, sub)| {
+            let description = sub["description"].as_str().unwrap_or("");
+            let required = if required.contains(&name.as_str()) {
+                " (required)"
+            } else {
+                ""
+            };
+            format!("{name}{required}: {description}")
         })
         .collect();
     format!("{method} takes, by name: {}", listed.join("; "))
@@ -128,7 +125,7 @@ fn check_params(method: &str, params: &Params) -> Result<(), ErrorObjectOwned> {
             return Err(refuse(format!("{name} must be {listed} (got {given})")));
         }
     }
-    crate::param_schema::validate(&schema, &value).map_err(|message| {
+    crate::param_schema::validate(schema, &value).map_err(|message| {
         let message = message.strip_prefix("params.").unwrap_or(&message);
         refuse(plain_schema_words(&message.replace("params.", "")))
     })
@@ -239,62 +236,50 @@ fn guarded<T>(call: impl FnOnce() -> Result<T, ServiceError>) -> Result<T, Error
     }
 }
 
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
-struct NameParam {
-    name: String,
+/// A method bound to the service: params in, result out, both as JSON.
+type Handler = Arc<dyn Fn(&Params, &Service) -> Result<Value, ErrorObjectOwned> + Send + Sync>;
+
+/// Binds method `M` to `call`: the params are read as `M`'s params type and the answer is
+/// `M`'s result type, so the daemon answers exactly what the protocol documents.
+fn typed<M: Method + 'static>(call: fn(M::Params, &Service) -> ServiceResult<M::Result>) -> Handler {
+    Arc::new(move |params, service| {
+        let params: M::Params = parse(params)?;
+        let result = guarded(|| call(params, service))?;
+        Ok(serde_json::to_value(result).expect("protocol results serialise"))
+    })
 }
 
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
-struct AnalysisParam {
-    analysis: String,
+/// A JSON object as the open object the protocol declares (a value that is not an object
+/// cannot come from the service, which builds these from declarations).
+fn into_object(value: Value) -> serde_json::Map<String, Value> {
+    match value {
+        Value::Object(map) => map,
+        _ => serde_json::Map::new(),
+    }
 }
 
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
-struct SampleParam {
-    sample: String,
+/// Binds a method whose result the service builds as JSON itself (figures and reports).
+fn untyped<P: for<'de> Deserialize<'de> + 'static>(call: fn(P, &Service) -> ServiceResult<Value>) -> Handler {
+    Arc::new(move |params, service| {
+        let params: P = parse(params)?;
+        guarded(|| call(params, service))
+    })
 }
 
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
-struct DatasetOption {
-    #[serde(default)]
-    dataset: Option<String>,
-}
-
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
-struct CallIdParam {
-    call_id: String,
-}
-
-/// Where a method's work runs.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum Runs {
-    /// On the async runtime: cheap reads of state held in memory, answered at once.
-    Inline,
-    /// On a blocking thread, outside the compute slots: short file work that must not wait
-    /// behind analyses (dropping a dataset).
-    Blocking,
-    /// On a blocking thread holding one of the [`ComputeSlots`]: CPU- or file-heavy work.
-    InComputeSlot,
-}
-
-/// Builds the module with every method of [`openrpc::METHODS`], heavy calls limited to one
-/// per core.
+/// Builds the module with every method of [`mobilis_protocol::METHODS`], heavy calls limited
+/// to one per core.
 pub fn module(service: Arc<Service>) -> RpcModule<Service> {
     module_with_slots(service, ComputeSlots::per_core())
 }
 
-/// Builds the module with every method of [`openrpc::METHODS`], heavy calls sharing `slots`.
+/// Builds the module with every method of [`mobilis_protocol::METHODS`], heavy calls sharing
+/// `slots`.
 pub fn module_with_slots(service: Arc<Service>, slots: ComputeSlots) -> RpcModule<Service> {
     let mut module = RpcModule::from_arc(service);
-    let register = |module: &mut RpcModule<Service>,
-                    name: &'static str,
-                    runs: Runs,
-                    f: fn(&Params, &Service) -> Result<Value, ErrorObjectOwned>| {
+    let register = |module: &mut RpcModule<Service>, name: &'static str, f: Handler| {
+        let runs = mobilis_protocol::method(name)
+            .map(|spec| spec.runs)
+            .expect("every bound method is in the protocol table");
         let result = match runs {
             Runs::Inline => module
                 .register_method(name, move |params, service, _| {
@@ -309,6 +294,7 @@ pub fn module_with_slots(service: Arc<Service>, slots: ComputeSlots) -> RpcModul
                 module
                     .register_async_method(name, move |params, service, _| {
                         let slots = slots.clone();
+                        let f = f.clone();
                         async move {
                             // A malformed request is refused at once, without waiting for a slot.
                             check_params(name, &params)?;
@@ -320,107 +306,134 @@ pub fn module_with_slots(service: Arc<Service>, slots: ComputeSlots) -> RpcModul
                     })
                     .map(|_| ())
             }
+            Runs::Subscription => unreachable!("{name}: subscriptions are registered on their own"),
         };
         result.expect("method names are unique");
     };
-    register(&mut module, "server.info", Runs::Inline, |_, s| {
-        guarded(|| Ok(s.server_info()))
-    });
-    register(&mut module, "rpc.discover", Runs::Inline, |_, s| {
-        guarded(|| Ok(openrpc::document(s)))
-    });
-    register(&mut module, "plugin.list", Runs::Inline, |_, s| {
-        guarded(|| Ok(s.plugin_list()))
-    });
-    register(&mut module, "analysis.list", Runs::Inline, |_, s| {
-        guarded(|| Ok(s.analysis_list()))
-    });
-    register(&mut module, "analysis.describe", Runs::Inline, |p, s| {
-        let p: AnalysisParam = parse(p)?;
-        guarded(|| s.analysis_describe(&p.analysis))
-    });
-    register(&mut module, "dataset.list", Runs::Inline, |p, s| {
-        let p: ListParams = parse(p)?;
-        guarded(|| s.dataset_list(p))
-    });
-    register(&mut module, "dataset.info", Runs::Inline, |p, s| {
-        let p: NameParam = parse(p)?;
-        guarded(|| s.dataset_info(&p.name))
-    });
-    register(&mut module, "dataset.drop", Runs::Blocking, |p, s| {
-        let p: NameParam = parse(p)?;
-        guarded(|| s.dataset_drop(&p.name))
-    });
+    use method::*;
+    register(
+        &mut module,
+        ServerInfoMethod::NAME,
+        typed::<ServerInfoMethod>(|_, s| Ok(s.server_info())),
+    );
+    register(
+        &mut module,
+        Discover::NAME,
+        typed::<Discover>(|_, s| Ok(openrpc::document(s))),
+    );
+    register(
+        &mut module,
+        PluginList::NAME,
+        typed::<PluginList>(|_, s| Ok(s.plugin_list())),
+    );
+    register(
+        &mut module,
+        AnalysisList::NAME,
+        typed::<AnalysisList>(|_, s| Ok(s.analysis_list())),
+    );
+    register(
+        &mut module,
+        AnalysisDescribe::NAME,
+        typed::<AnalysisDescribe>(|p, s| s.analysis_describe(&p.analysis).map(into_object)),
+    );
+    register(
+        &mut module,
+        DatasetList::NAME,
+        typed::<DatasetList>(|p, s| s.dataset_list(p)),
+    );
+    register(
+        &mut module,
+        DatasetInfoMethod::NAME,
+        typed::<DatasetInfoMethod>(|p, s| s.dataset_info(&p.name)),
+    );
+    register(
+        &mut module,
+        DatasetDrop::NAME,
+        typed::<DatasetDrop>(|p, s| s.dataset_drop(&p.name)),
+    );
     // Registered as the heavy calls are, but answering with JSON text written straight from
     // the columns (see `rows_json`) rather than with a value built cell by cell.
     let rows_slots = slots.clone();
     module
-        .register_async_method("dataset.rows", move |params, service, _| {
+        .register_async_method(DatasetRows::NAME, move |params, service, _| {
             let slots = rows_slots.clone();
             async move {
-                check_params("dataset.rows", &params)?;
-                let (deadline, params) = bounded_calls::take_deadline("dataset.rows", params)?;
-                bounded_calls::CallScope::new("dataset.rows", deadline)
+                check_params(DatasetRows::NAME, &params)?;
+                let (deadline, params) = bounded_calls::take_deadline(DatasetRows::NAME, params)?;
+                bounded_calls::CallScope::new(DatasetRows::NAME, deadline)
                     .run(Some(&slots), move || {
-                        let p: RowsParams = parse(&params)?;
+                        let p: params::RowsParams = parse(&params)?;
                         guarded(|| service.dataset_rows(p))
                     })
                     .await
             }
         })
         .expect("method names are unique");
-    register(&mut module, "dataset.import", Runs::InComputeSlot, |p, s| {
-        let p: ImportParams = parse(p)?;
-        guarded(|| s.dataset_import(p))
-    });
-    register(&mut module, "dataset.export", Runs::InComputeSlot, |p, s| {
-        let p: ExportParams = parse(p)?;
-        guarded(|| s.dataset_export(p))
-    });
-    register(&mut module, "analysis.run", Runs::InComputeSlot, |p, s| {
-        let p: RunParams = parse(p)?;
-        guarded(|| s.run_analysis(p))
-    });
-    register(&mut module, "analysis.cancel", Runs::Inline, |p, s| {
-        let p: CallIdParam = parse(p)?;
-        guarded(|| Ok(s.cancel(&p.call_id)))
-    });
-    register(&mut module, "analysis.progress", Runs::Inline, |p, s| {
-        let p: CallIdParam = parse(p)?;
-        guarded(|| Ok(s.progress(&p.call_id)))
-    });
-    register(&mut module, "pipeline.run", Runs::InComputeSlot, |p, s| {
-        let p: PipelineParams = parse(p)?;
-        guarded(|| s.run_pipeline(p))
-    });
-    register(&mut module, "plot.render", Runs::InComputeSlot, |p, s| {
-        let p: serde_json::Map<String, Value> = parse(p)?;
-        guarded(|| s.plot_render(p))
-    });
-    register(&mut module, "report.samples", Runs::Inline, |_, s| {
-        guarded(|| Ok(s.report_samples()))
-    });
-    register(&mut module, "report.render", Runs::InComputeSlot, |p, s| {
-        let p: SampleParam = parse(p)?;
-        guarded(|| s.report_render(&p.sample))
-    });
-    register(&mut module, "plot.kinds", Runs::Inline, |p, s| {
-        let p: DatasetOption = parse(p)?;
-        guarded(|| s.plot_kinds(p.dataset.as_deref()))
-    });
+    register(
+        &mut module,
+        DatasetImport::NAME,
+        typed::<DatasetImport>(|p, s| s.dataset_import(p)),
+    );
+    register(
+        &mut module,
+        DatasetExport::NAME,
+        typed::<DatasetExport>(|p, s| s.dataset_export(p)),
+    );
+    register(
+        &mut module,
+        AnalysisRun::NAME,
+        typed::<AnalysisRun>(|p, s| s.run_analysis(p)),
+    );
+    register(
+        &mut module,
+        AnalysisCancel::NAME,
+        typed::<AnalysisCancel>(|p, s| Ok(s.cancel(&p.call_id))),
+    );
+    register(
+        &mut module,
+        AnalysisProgress::NAME,
+        typed::<AnalysisProgress>(|p, s| Ok(s.progress(&p.call_id))),
+    );
+    register(
+        &mut module,
+        PipelineRun::NAME,
+        typed::<PipelineRun>(|p, s| s.run_pipeline(p)),
+    );
+    // The plotting code reads the figure options itself, the further ones included.
+    register(
+        &mut module,
+        PlotRender::NAME,
+        untyped::<serde_json::Map<String, Value>>(|p, s| s.plot_render(p)),
+    );
+    register(
+        &mut module,
+        ReportSamples::NAME,
+        untyped::<params::NoParams>(|_, s| Ok(s.report_samples())),
+    );
+    register(
+        &mut module,
+        ReportRender::NAME,
+        untyped::<params::SampleName>(|p, s| s.report_render(&p.sample)),
+    );
+    register(
+        &mut module,
+        PlotKinds::NAME,
+        untyped::<params::DatasetFilter>(|p, s| s.plot_kinds(p.dataset.as_deref())),
+    );
     module
         .register_subscription(
-            "progress.subscribe",
+            ProgressSubscribe::NAME,
             PROGRESS_NOTIFICATION,
-            "progress.unsubscribe",
+            ProgressUnsubscribe::NAME,
             |params, pending, service, _| async move {
-                let call: CallIdParam = match check_params("progress.subscribe", &params).and_then(|_| parse(&params)) {
-                    Ok(call) => call,
-                    Err(error) => {
-                        pending.reject(error).await;
-                        return Ok(());
-                    }
-                };
+                let call: params::CallId =
+                    match check_params(ProgressSubscribe::NAME, &params).and_then(|_| parse(&params)) {
+                        Ok(call) => call,
+                        Err(error) => {
+                            pending.reject(error).await;
+                            return Ok(());
+                        }
+                    };
                 let mut events = service.progress_hub.subscribe(&call.call_id);
                 let sink = pending.accept().await?;
                 loop {
@@ -444,7 +457,7 @@ pub fn module_with_slots(service: Arc<Service>, slots: ComputeSlots) -> RpcModul
 }
 
 /// The method name of the notifications a progress subscription sends.
-pub const PROGRESS_NOTIFICATION: &str = "progress.event";
+pub use mobilis_protocol::PROGRESS_NOTIFICATION;
 
 #[cfg(test)]
 mod tests {
@@ -467,15 +480,29 @@ mod tests {
     fn the_openrpc_table_lists_exactly_the_registered_methods() {
         let (_workspace, module) = module_without_plugins();
         let mut registered: Vec<&str> = module.method_names().collect();
-        let mut documented: Vec<&str> = openrpc::METHODS.iter().map(|m| m.name).collect();
+        let mut documented: Vec<&str> = mobilis_protocol::METHODS.iter().map(|m| m.name).collect();
         registered.sort();
         documented.sort();
         assert_eq!(registered, documented);
     }
 
-    /// The names of the types this crate declares (`NameParam`, `UnitSpec`, ...).
+    #[test]
+    fn deadlines_and_their_defaults_are_the_protocol_tables() {
+        for spec in mobilis_protocol::METHODS {
+            let bounded = bounded_calls::DEADLINE_METHODS.contains(&spec.name);
+            assert_eq!(bounded, spec.deadline.is_some(), "{}", spec.name);
+            if let Some(deadline) = spec.deadline {
+                let default = bounded_calls::default_deadline(spec.name).as_secs();
+                assert_eq!(default, u64::from(deadline.default_s), "{}", spec.name);
+            }
+        }
+        assert_eq!(bounded_calls::MAX_DEADLINE_S, mobilis_protocol::MAX_DEADLINE_S);
+    }
+
+    /// The names of the types this crate and the protocol declare (`ImportParams`, `UnitSpec`, ...).
     fn crate_type_names() -> Vec<String> {
-        let mut directories = vec![std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("src")];
+        let manifest = std::path::Path::new(env!("CARGO_MANIFEST_DIR"));
+        let mut directories = vec![manifest.join("src"), manifest.join("../protocol/src")];
         let mut files = Vec::new();
         while let Some(directory) = directories.pop() {
             for entry in std::fs::read_dir(directory).unwrap() {
@@ -505,8 +532,7 @@ mod tests {
     }
 
     /// A plausible value of a documented parameter's type, to fill required ones.
-    fn plausible(schema: &str) -> Value {
-        let schema: Value = serde_json::from_str(schema).unwrap();
+    fn plausible(schema: &Value) -> Value {
         match schema["type"].as_str() {
             Some("object") => serde_json::json!({}),
             Some("array") => serde_json::json!([{}]),
@@ -521,7 +547,7 @@ mod tests {
         use serde_json::json;
         let (_workspace, module) = module_without_plugins();
         let type_names = crate_type_names();
-        assert!(type_names.contains(&"NameParam".to_owned()) && type_names.contains(&"UnitSpec".to_owned()));
+        assert!(type_names.contains(&"ImportParams".to_owned()) && type_names.contains(&"UnitSpec".to_owned()));
         let wrong_values = [
             json!(12.5),
             json!("text"),
@@ -533,13 +559,13 @@ mod tests {
             json!(1e30),
         ];
         let mut requests: Vec<(String, Value)> = Vec::new();
-        for doc in openrpc::METHODS {
+        for doc in mobilis_protocol::METHODS {
             let method = doc.name.to_owned();
-            let filled: serde_json::Map<String, Value> = doc
-                .params
+            let documented = doc.params_list();
+            let filled: serde_json::Map<String, Value> = documented
                 .iter()
-                .filter(|(_, required, _, _)| *required)
-                .map(|(name, _, schema, _)| ((*name).to_owned(), plausible(schema)))
+                .filter(|(_, required, _)| *required)
+                .map(|(name, _, schema)| (name.clone(), plausible(schema)))
                 .collect();
             requests.push((method.clone(), json!([1, 2])));
             requests.push((method.clone(), json!("text")));
@@ -547,10 +573,10 @@ mod tests {
             let mut unknown = filled.clone();
             unknown.insert("colour".into(), json!(1));
             requests.push((method.clone(), Value::Object(unknown)));
-            for (name, _, _, _) in doc.params {
+            for (name, _, _) in &documented {
                 for wrong in &wrong_values {
                     let mut params = filled.clone();
-                    params.insert((*name).to_owned(), wrong.clone());
+                    params.insert(name.clone(), wrong.clone());
                     requests.push((method.clone(), Value::Object(params)));
                 }
             }

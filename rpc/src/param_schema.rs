@@ -10,7 +10,9 @@
 //! (boolean or a schema), `enum`, `const`, `minimum`, `maximum`, `exclusiveMinimum`,
 //! `exclusiveMaximum`, `minLength`, `maxLength`, `items`, `minItems`, `maxItems`, `anyOf`,
 //! `oneOf`; annotations `title`, `description`, `default`, `examples`, `$schema`,
-//! `$comment`, `format`, `deprecated`, `readOnly`, `writeOnly` are accepted and ignored.
+//! `$comment`, `format`, `deprecated`, `readOnly`, `writeOnly` are accepted and ignored
+//! (`format` as JSON Schema 2020-12 makes it, an annotation: derived schemas write
+//! `"format": "uint"` beside `"minimum": 0`, which does the checking).
 //! Schemas derived by the SDK from typed parameters stay within this subset (subschemas
 //! inline, every enum a list of constants).
 

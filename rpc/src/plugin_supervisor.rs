@@ -38,7 +38,7 @@
 //! Other calls, other plugins and the stored datasets are untouched. A loader refusal gives the
 //! loader's own reason (`dlerror`), never only "dlopen failed".
 //!
-//! The checks: `cargo test -p mobilis-tests --test reliability -- plugin_isolation` (C plugins
+//! The checks: `cargo test -p mobilis-tests --test suite -- reliability::plugin_isolation` (C plugins
 //! from `tests/c-plugin/cfixture.c` built with `FIXTURE_FAULT=1|2|3` segfault, exit(3) or hang
 //! on a 13-row table, the hang both past its deadline and cancelled by its client;
 //! `FIXTURE_ABORT_ON_LOAD` aborts in its constructor; truncated copies of the hall plugin at
@@ -50,9 +50,9 @@
 //! same within the noise; the bare boundary, `fixture.identity` of the same nine-column table,
 //! 3.6 s against 1.9 s).
 
-use crate::plugin_host::{CallControl, InvokeFailure, InvokeSuccess, PluginIdentity};
+use crate::plugin_call::{CallControl, InvokeFailure, InvokeSuccess, PluginIdentity};
 use crate::worker_protocol::{self as protocol, Frame, FromWorker, ToWorker};
-use mobilis_core::abi::{self, PluginDeclaration};
+use mobilis_sdk::abi::{self, PluginDeclaration};
 use polars::prelude::DataFrame;
 use std::path::{Path, PathBuf};
 use std::process::{Child, ChildStdin, Command, ExitStatus, Stdio};

@@ -7,19 +7,18 @@ use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use crate::param_schema;
 use crate::plugin_host::{CallControl, InvokeFailure, PluginHost};
 use crate::progress::{Outcome, ProgressHub};
+// The JSON of table cells is written beside the `dataset.rows` page that shares its rules.
+use crate::rows_json::cell_to_json;
+pub use crate::rows_json::frame_to_json_columns;
 use crate::store::{self, DatasetStore, Provenance};
-use crate::tables::{self, FileFormat, UnitSpec};
-use mobilis_core::abi::{self, ColumnSpec, ColumnType};
+use crate::tables::{self, FileFormat};
+use mobilis_sdk::abi::{self, ColumnSpec, ColumnType};
 use polars::prelude::*;
-use serde::Deserialize;
 use serde_json::{json, Value};
 use std::collections::{BTreeMap, HashMap};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::Ordering;
 use std::sync::{Arc, Mutex};
-
-/// Largest number of rows `dataset.rows` returns at once.
-pub const MAX_ROWS_PER_CALL: usize = 100_000;
 
 pub struct Service {
     pub store: DatasetStore,
@@ -31,126 +30,18 @@ pub struct Service {
     pub progress_hub: Arc<ProgressHub>,
 }
 
-#[derive(Debug, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct ImportParams {
-    pub name: String,
-    #[serde(default)]
-    pub path: Option<String>,
-    #[serde(default)]
-    pub columns: Option<serde_json::Map<String, Value>>,
-    #[serde(default)]
-    pub format: Option<String>,
-    /// Source column name to new name, any column, applied before `units`.
-    #[serde(default)]
-    pub rename: BTreeMap<String, String>,
-    /// Units by column name after renaming.
-    #[serde(default)]
-    pub units: BTreeMap<String, UnitSpec>,
-    /// The CSV dialect (CSV files only).
-    #[serde(default)]
-    pub csv: Option<CsvDialect>,
-    #[serde(default)]
-    pub overwrite: bool,
-    /// A client-chosen identifier: the token of the import's progress and the handle to
-    /// cancel it, as for analysis.run.
-    #[serde(default)]
-    pub call_id: Option<String>,
-}
+pub use mobilis_protocol::params::{
+    ExportParams, GroupBy, ImportParams, ListParams, PipelineParams, RowsParams, RunParams, DEFAULT_LIST_PAGE,
+    MAX_LIST_PAGE, MAX_ROWS_PER_CALL,
+};
+use mobilis_protocol::results::{
+    AbiVersion, AnalysisEntry, CancelResult, DatasetEntry, DatasetInfo, DatasetPage, DatasetSummary, Dropped, Exported,
+    LoadedPlugin, MemoryUse, PipelineResult, PluginEntry, ProgressState, RefusedPlugin, RunResult, ServerInfo,
+};
 
-#[derive(Debug, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct ExportParams {
-    pub name: String,
-    pub path: String,
-    #[serde(default)]
-    pub format: Option<String>,
-    /// `si` (as stored, the default) or `customary` (cm^-3, cm^2/(V s), ohm cm, um, with
-    /// column names saying so).
-    #[serde(default)]
-    pub units: crate::customary::ExportUnits,
-    /// Replace an existing file at `path` (refused otherwise).
-    #[serde(default)]
-    pub overwrite: bool,
-}
-
-#[derive(Debug, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct RowsParams {
-    pub name: String,
-    #[serde(default)]
-    pub offset: usize,
-    #[serde(default)]
-    pub limit: Option<usize>,
-}
-
-/// A page of `dataset.list`: datasets in name order from `offset`, at most `limit` of them,
-/// optionally only names that start with `prefix`.
-#[derive(Debug, Default, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct ListParams {
-    #[serde(default)]
-    pub offset: usize,
-    #[serde(default)]
-    pub limit: Option<usize>,
-    #[serde(default)]
-    pub prefix: Option<String>,
-}
-
-/// Datasets per `dataset.list` page unless the caller says otherwise.
-pub const DEFAULT_LIST_PAGE: usize = 200;
-/// The largest `dataset.list` page: a page stays small on the wire (a few hundred kB at
-/// most) however many datasets the workspace holds.
-pub const MAX_LIST_PAGE: usize = 5000;
-
-/// One column name or several.
-#[derive(Debug, Clone, Deserialize, Default)]
-#[serde(untagged)]
-pub enum GroupBy {
-    #[default]
-    None,
-    One(String),
-    Many(Vec<String>),
-}
-
-impl GroupBy {
-    fn columns(&self) -> Vec<String> {
-        match self {
-            GroupBy::None => Vec::new(),
-            GroupBy::One(name) => vec![name.clone()],
-            GroupBy::Many(names) => names.clone(),
-        }
-    }
-}
-
-#[derive(Debug, Clone, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct RunParams {
-    pub analysis: String,
-    pub inputs: BTreeMap<String, String>,
-    #[serde(default)]
-    pub params: Value,
-    pub output: String,
-    #[serde(default)]
-    pub group_by: GroupBy,
-    #[serde(default)]
-    pub overwrite: bool,
-    /// A client-chosen identifier under which `analysis.cancel` can stop this call.
-    #[serde(default)]
-    pub call_id: Option<String>,
-    /// Also store the summary as a dataset: one row per group (or one row), one column
-    /// per scalar summary value, so that later steps can take fitted numbers as input.
-    #[serde(default)]
-    pub summary_output: Option<String>,
-}
-
-#[derive(Debug, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct PipelineParams {
-    pub steps: Vec<RunParams>,
-    /// Cancels the whole pipeline (`analysis.cancel`) and carries its progress.
-    #[serde(default)]
-    pub call_id: Option<String>,
+/// The group columns of a run: none, one or several.
+fn group_columns(group_by: &Option<GroupBy>) -> Vec<String> {
+    group_by.as_ref().map(GroupBy::columns).unwrap_or_default()
 }
 
 /// A running call registered under its `call_id`; unregistered, with its end announced,
@@ -205,74 +96,6 @@ fn invoke_error(analysis: &str, failure: InvokeFailure) -> ServiceError {
         }
         _ => error,
     }
-}
-
-/// A JSON value of one cell.
-pub(crate) fn cell_to_json(value: AnyValue) -> Value {
-    match value {
-        AnyValue::Null => Value::Null,
-        AnyValue::Boolean(b) => Value::Bool(b),
-        AnyValue::String(s) => Value::String(s.to_owned()),
-        AnyValue::StringOwned(s) => Value::String(s.to_string()),
-        AnyValue::Float64(f) => serde_json::Number::from_f64(f)
-            .map(Value::Number)
-            .unwrap_or(Value::Null),
-        AnyValue::Float32(f) => serde_json::Number::from_f64(f as f64)
-            .map(Value::Number)
-            .unwrap_or(Value::Null),
-        AnyValue::Int64(i) => json!(i),
-        AnyValue::Int32(i) => json!(i),
-        AnyValue::Int16(i) => json!(i),
-        AnyValue::Int8(i) => json!(i),
-        AnyValue::UInt64(i) => json!(i),
-        AnyValue::UInt32(i) => json!(i),
-        AnyValue::UInt16(i) => json!(i),
-        AnyValue::UInt8(i) => json!(i),
-        other => Value::String(other.to_string()),
-    }
-}
-
-/// The frame's columns as JSON arrays. `dataset.rows` writes the same text without building
-/// the values ([`crate::rows_json`]); its tests compare the two.
-pub fn frame_to_json_columns(frame: &DataFrame) -> serde_json::Map<String, Value> {
-    let mut columns = serde_json::Map::new();
-    for column in frame.columns() {
-        let series = column.as_materialized_series();
-        // The common types read their values directly, without a dynamically typed cell
-        // per value; the same JSON as `cell_to_json` gives (NaN and infinities as null).
-        let values: Vec<Value> = match series.dtype() {
-            DataType::Float64 => series
-                .f64()
-                .expect("a Float64 column")
-                .iter()
-                .map(|v| {
-                    v.and_then(serde_json::Number::from_f64)
-                        .map_or(Value::Null, Value::Number)
-                })
-                .collect(),
-            DataType::Int64 => series
-                .i64()
-                .expect("an Int64 column")
-                .iter()
-                .map(|v| v.map_or(Value::Null, |i| Value::Number(i.into())))
-                .collect(),
-            DataType::String => series
-                .str()
-                .expect("a String column")
-                .iter()
-                .map(|v| v.map_or(Value::Null, |text| Value::String(text.to_owned())))
-                .collect(),
-            DataType::Boolean => series
-                .bool()
-                .expect("a Boolean column")
-                .iter()
-                .map(|v| v.map_or(Value::Null, Value::Bool))
-                .collect(),
-            _ => series.iter().map(cell_to_json).collect(),
-        };
-        columns.insert(column.name().to_string(), Value::Array(values));
-    }
-    columns
 }
 
 /// Casts one declared column to the type the plugin expects, or says why it cannot.
@@ -475,57 +298,78 @@ impl Service {
         }
     }
 
-    pub fn server_info(&self) -> Value {
-        json!({
-            "name": "mobilisd",
-            "version": env!("CARGO_PKG_VERSION"),
-            "abi": { "major": abi::ABI_MAJOR, "minor": abi::ABI_MINOR },
-            "workspace": self.workspace.display().to_string(),
-            "data_roots": self.roots.roots().iter().map(|r| r.display().to_string()).collect::<Vec<_>>(),
-            "plugins": self.host.plugins.iter().map(|p| json!({"name": p.name, "version": p.version, "isolation": p.isolation.as_str()})).collect::<Vec<_>>(),
-            "refused_plugins": self.host.refused.iter().map(|r| json!({"file": r.file.display().to_string(), "reason": r.reason})).collect::<Vec<_>>(),
-            "damaged_files": self.store.damaged(),
-            "memory": {
-                "stored_bytes": self.store.memory_usage().0,
-                "budget_bytes": self.store.memory_usage().1,
+    pub fn server_info(&self) -> ServerInfo {
+        let (stored_bytes, budget_bytes) = self.store.memory_usage();
+        ServerInfo {
+            name: "mobilisd".into(),
+            version: env!("CARGO_PKG_VERSION").into(),
+            abi: AbiVersion {
+                major: abi::ABI_MAJOR,
+                minor: abi::ABI_MINOR,
             },
-        })
-    }
-
-    pub fn plugin_list(&self) -> Value {
-        Value::Array(
-            self.host
+            workspace: self.workspace.display().to_string(),
+            data_roots: self.roots.roots().iter().map(|r| r.display().to_string()).collect(),
+            plugins: self
+                .host
                 .plugins
                 .iter()
-                .map(|p| {
-                    json!({
-                        "name": p.name,
-                        "version": p.version,
-                        "abi_minor": p.abi_minor,
-                        "library": p.file.display().to_string(),
-                        "features": p.features,
-                        "analyses": p.analyses,
-                        "isolation": p.isolation.as_str(),
-                    })
+                .map(|p| LoadedPlugin {
+                    name: p.name.clone(),
+                    version: p.version.clone(),
+                    isolation: p.isolation.as_str().into(),
                 })
                 .collect(),
-        )
+            refused_plugins: self
+                .host
+                .refused
+                .iter()
+                .map(|r| RefusedPlugin {
+                    file: r.file.display().to_string(),
+                    reason: r.reason.clone(),
+                })
+                .collect(),
+            damaged_files: self
+                .store
+                .damaged()
+                .iter()
+                .map(|d| mobilis_protocol::results::DamagedFile {
+                    file: d.file.clone(),
+                    reason: d.reason.clone(),
+                })
+                .collect(),
+            memory: MemoryUse {
+                stored_bytes,
+                budget_bytes,
+            },
+        }
     }
 
-    pub fn analysis_list(&self) -> Value {
-        Value::Array(
-            self.host
-                .analyses
-                .iter()
-                .map(|(name, entry)| {
-                    json!({
-                        "name": name,
-                        "plugin": self.host.plugins[entry.plugin_index].name,
-                        "summary": entry.declaration.summary,
-                    })
-                })
-                .collect(),
-        )
+    pub fn plugin_list(&self) -> Vec<PluginEntry> {
+        self.host
+            .plugins
+            .iter()
+            .map(|p| PluginEntry {
+                name: p.name.clone(),
+                version: p.version.clone(),
+                abi_minor: p.abi_minor,
+                library: p.file.display().to_string(),
+                features: p.features.clone(),
+                analyses: p.analyses.clone(),
+                isolation: p.isolation.as_str().into(),
+            })
+            .collect()
+    }
+
+    pub fn analysis_list(&self) -> Vec<AnalysisEntry> {
+        self.host
+            .analyses
+            .iter()
+            .map(|(name, entry)| AnalysisEntry {
+                name: name.clone(),
+                plugin: self.host.plugins[entry.plugin_index].name.clone(),
+                summary: entry.declaration.summary.clone(),
+            })
+            .collect()
     }
 
     fn unknown_analysis(&self, name: &str) -> ServiceError {
@@ -557,17 +401,18 @@ impl Service {
         Ok(value)
     }
 
-    fn dataset_summary(dataset: &store::Dataset) -> Value {
-        json!({
-            "name": dataset.manifest.name,
-            "rows": dataset.manifest.rows,
-            "columns": dataset.manifest.columns,
-        })
+    fn dataset_summary(dataset: &store::Dataset) -> DatasetSummary {
+        DatasetSummary {
+            name: dataset.manifest.name.clone(),
+            rows: dataset.manifest.rows,
+            columns: dataset.manifest.columns.clone(),
+            notes: Vec::new(),
+        }
     }
 
     /// One page of the stored datasets, lean entries only (`dataset.info` has the columns and
     /// provenance): the whole list at thousands of datasets was megabytes per call.
-    pub fn dataset_list(&self, params: ListParams) -> ServiceResult<Value> {
+    pub fn dataset_list(&self, params: ListParams) -> ServiceResult<DatasetPage> {
         let limit = params.limit.unwrap_or(DEFAULT_LIST_PAGE);
         if limit > MAX_LIST_PAGE {
             return Err(ServiceError::invalid_params(format!(
@@ -587,35 +432,42 @@ impl Service {
             .filter(|d| d.manifest.name.starts_with(prefix))
             .collect();
         let total = matching.len();
-        let datasets: Vec<Value> = matching
+        let datasets: Vec<DatasetEntry> = matching
             .iter()
             .skip(params.offset)
             .take(limit)
-            .map(|d| {
-                json!({
-                    "name": d.manifest.name,
-                    "rows": d.manifest.rows,
-                    "column_count": d.manifest.columns.len(),
-                })
+            .map(|d| DatasetEntry {
+                name: d.manifest.name.clone(),
+                rows: d.manifest.rows,
+                column_count: d.manifest.columns.len(),
             })
             .collect();
-        Ok(json!({ "total": total, "offset": params.offset.min(total), "datasets": datasets }))
+        Ok(DatasetPage {
+            total,
+            offset: params.offset.min(total),
+            datasets,
+        })
     }
 
-    pub fn dataset_info(&self, name: &str) -> ServiceResult<Value> {
+    pub fn dataset_info(&self, name: &str) -> ServiceResult<DatasetInfo> {
         let dataset = self.store.get(name)?;
-        let mut value = Self::dataset_summary(&dataset);
-        value["created"] = json!(dataset.manifest.created);
-        value["provenance"] = serde_json::to_value(&dataset.manifest.provenance).expect("provenance serialises");
-        Ok(value)
+        Ok(DatasetInfo {
+            name: dataset.manifest.name.clone(),
+            rows: dataset.manifest.rows,
+            columns: dataset.manifest.columns.clone(),
+            created: dataset.manifest.created.clone(),
+            provenance: serde_json::to_value(&dataset.manifest.provenance).expect("provenance serialises"),
+        })
     }
 
-    pub fn dataset_drop(&self, name: &str) -> ServiceResult<Value> {
+    pub fn dataset_drop(&self, name: &str) -> ServiceResult<Dropped> {
         crate::bounded_calls::commit(|| self.store.remove(name))?;
-        Ok(json!({ "dropped": name }))
+        Ok(Dropped {
+            dropped: name.to_owned(),
+        })
     }
 
-    pub fn dataset_import(&self, params: ImportParams) -> ServiceResult<Value> {
+    pub fn dataset_import(&self, params: ImportParams) -> ServiceResult<DatasetSummary> {
         let title = format!("dataset.import -> {}", params.name);
         let mut call = self.register_call(params.call_id.as_deref(), &title)?;
         let result = self.dataset_import_under(params, &call.control);
@@ -626,7 +478,7 @@ impl Service {
     /// [`Self::dataset_import`] reporting its stages to `control`: reading the file,
     /// parsing it, converting units, storing. The shares of the whole are rough, from where
     /// the time of a large CSV import goes; a cancel is honoured between stages.
-    fn dataset_import_under(&self, params: ImportParams, control: &Arc<CallControl>) -> ServiceResult<Value> {
+    fn dataset_import_under(&self, params: ImportParams, control: &Arc<CallControl>) -> ServiceResult<DatasetSummary> {
         let stage = |fraction: f64, message: &str| -> ServiceResult<()> {
             if control.cancelled.load(Ordering::Relaxed) {
                 return Err(ServiceError::new(
@@ -656,8 +508,8 @@ impl Service {
         let (frame, source_map, provenance) = match (&params.path, &params.columns) {
             (Some(path), None) => {
                 let (resolved, opened) = self.roots.open_readable(Path::new(path))?;
-                let format = match &params.format {
-                    Some(name) => FileFormat::parse(name)?,
+                let format = match params.format {
+                    Some(name) => FileFormat::parse(name.name())?,
                     None => FileFormat::from_extension(&resolved)?,
                 };
                 if params.csv.is_some() && format != FileFormat::Csv {
@@ -744,17 +596,16 @@ impl Service {
             store_ms = millis(started.elapsed() - units_done),
             "dataset.import timings"
         );
-        let mut answer = Self::dataset_summary(&dataset);
-        if !notes.is_empty() {
-            answer["notes"] = json!(notes);
-        }
-        Ok(answer)
+        Ok(DatasetSummary {
+            notes,
+            ..Self::dataset_summary(&dataset)
+        })
     }
 
-    pub fn dataset_export(&self, params: ExportParams) -> ServiceResult<Value> {
+    pub fn dataset_export(&self, params: ExportParams) -> ServiceResult<Exported> {
         let dataset = self.store.get(&params.name)?;
-        let format = match &params.format {
-            Some(name) => FileFormat::parse(name)?,
+        let format = match params.format {
+            Some(name) => FileFormat::parse(name.name())?,
             None => FileFormat::from_extension(Path::new(&params.path))?,
         };
         let frame = match params.units {
@@ -774,10 +625,14 @@ impl Service {
             |rename| crate::bounded_calls::commit(rename),
         )?;
         let columns: Vec<String> = frame.get_column_names().iter().map(|n| n.to_string()).collect();
-        Ok(json!({
-            "name": params.name, "path": target.display().to_string(), "format": format.name(),
-            "rows": frame.height(), "units": params.units.name(), "columns": columns,
-        }))
+        Ok(Exported {
+            name: params.name,
+            path: target.display().to_string(),
+            format: format.name().into(),
+            rows: frame.height(),
+            units: params.units.name().into(),
+            columns,
+        })
     }
 
     pub fn dataset_rows(&self, params: RowsParams) -> ServiceResult<Box<serde_json::value::RawValue>> {
@@ -842,28 +697,34 @@ impl Service {
     }
 
     /// Sets the cancel flag of a running call.
-    pub fn cancel(&self, call_id: &str) -> Value {
+    pub fn cancel(&self, call_id: &str) -> CancelResult {
         let running = self.running.lock().expect("running calls");
-        match running.get(call_id) {
+        let cancelled = match running.get(call_id) {
             Some(control) => {
                 control.cancelled.store(true, Ordering::Relaxed);
-                json!({ "call_id": call_id, "cancelled": true })
+                true
             }
-            None => json!({ "call_id": call_id, "cancelled": false, "reason": "no running call with that id" }),
+            None => false,
+        };
+        CancelResult {
+            call_id: call_id.to_owned(),
+            cancelled,
+            reason: (!cancelled).then(|| "no running call with that id".to_owned()),
         }
     }
 
     /// Progress last reported by a running call.
-    pub fn progress(&self, call_id: &str) -> Value {
+    pub fn progress(&self, call_id: &str) -> ProgressState {
         let running = self.running.lock().expect("running calls");
-        match running
+        let (fraction, message) = running
             .get(call_id)
             .and_then(|c| c.progress.lock().ok().and_then(|p| p.clone()))
-        {
-            Some((fraction, message)) => {
-                json!({ "call_id": call_id, "running": true, "fraction": fraction, "message": message })
-            }
-            None => json!({ "call_id": call_id, "running": running.contains_key(call_id) }),
+            .map_or((None, None), |(fraction, message)| (Some(fraction), Some(message)));
+        ProgressState {
+            call_id: call_id.to_owned(),
+            running: running.contains_key(call_id),
+            fraction,
+            message,
         }
     }
 
@@ -907,7 +768,7 @@ impl Service {
     }
 
     /// Runs one analysis (once per group with `group_by`) and stores its output.
-    pub fn run_analysis(&self, run: RunParams) -> ServiceResult<Value> {
+    pub fn run_analysis(&self, run: RunParams) -> ServiceResult<RunResult> {
         let title = format!("{} -> {}", run.analysis, run.output);
         let mut call = self.register_call(run.call_id.as_deref(), &title)?;
         let result = self.run_analysis_under(run, &call.control);
@@ -916,7 +777,7 @@ impl Service {
     }
 
     /// [`Self::run_analysis`] under a control the caller owns (a pipeline shares one).
-    fn run_analysis_under(&self, run: RunParams, control: &Arc<CallControl>) -> ServiceResult<Value> {
+    fn run_analysis_under(&self, run: RunParams, control: &Arc<CallControl>) -> ServiceResult<RunResult> {
         store::validate_name(&run.output)?;
         if !run.overwrite && self.store.contains(&run.output) {
             return Err(ServiceError::new(
@@ -931,11 +792,7 @@ impl Service {
             .analyses
             .get(&run.analysis)
             .ok_or_else(|| self.unknown_analysis(&run.analysis))?;
-        let params = if run.params.is_null() {
-            json!({})
-        } else {
-            run.params.clone()
-        };
+        let params = Value::Object(run.params.clone().unwrap_or_default());
         param_schema::validate(&entry.declaration.params, &params).map_err(|message| {
             // The message starts with the path of the offending parameter (`params.x`).
             let param = message
@@ -969,7 +826,7 @@ impl Service {
         }
         let started = std::time::Instant::now();
         let inputs = self.prepare_inputs(&run)?;
-        let group_columns = run.group_by.columns();
+        let group_columns = group_columns(&run.group_by);
         let inputs_done = started.elapsed();
 
         let (table, summary, warnings) = self.run_groups(&run, &params, &inputs, &group_columns, control)?;
@@ -1016,17 +873,16 @@ impl Service {
         let store_started = started.elapsed();
         let stored = self.store.insert_all(writes, run.overwrite)?;
         let store_done = started.elapsed();
-        let mut answer = json!({
-            "output": run.output,
-            "rows": stored[0].frame.height(),
-            "columns": stored[0].manifest.columns,
-            "summary": summary,
-            "warnings": warnings,
-        });
-        if let (Some(name), Some(summary_stored)) = (&run.summary_output, stored.get(1)) {
-            answer["summary_output"] = json!(name);
-            answer["summary_rows"] = json!(summary_stored.frame.height());
-        }
+        let summary_rows = stored.get(1).map(|summary_stored| summary_stored.frame.height());
+        let answer = RunResult {
+            output: run.output.clone(),
+            rows: stored[0].frame.height(),
+            columns: stored[0].manifest.columns.clone(),
+            summary,
+            warnings,
+            summary_output: summary_rows.and(run.summary_output.clone()),
+            summary_rows,
+        };
         // Where a run's time goes, for the daemon benchmark and for a person tuning a lab's
         // workflow: fetching inputs, the plugin call, what lies between, storing the output.
         tracing::debug!(
@@ -1150,7 +1006,7 @@ impl Service {
 
     /// Runs steps in order; a step may name an earlier step's output as an input. Every
     /// step is checked before the first one runs.
-    pub fn run_pipeline(&self, pipeline: PipelineParams) -> ServiceResult<Value> {
+    pub fn run_pipeline(&self, pipeline: PipelineParams) -> ServiceResult<PipelineResult> {
         if pipeline.steps.is_empty() {
             return Err(ServiceError::invalid_params("the pipeline has no steps"));
         }
@@ -1193,7 +1049,7 @@ impl Service {
         result
     }
 
-    fn run_steps(&self, steps: Vec<RunParams>, control: &Arc<CallControl>) -> ServiceResult<Value> {
+    fn run_steps(&self, steps: Vec<RunParams>, control: &Arc<CallControl>) -> ServiceResult<PipelineResult> {
         let whole = control.span();
         let count = steps.len();
         let mut results = Vec::with_capacity(count);
@@ -1210,10 +1066,7 @@ impl Service {
             }
             control.enter(whole.part(index, count, &format!("step {} of {count} ({analysis})", index + 1)));
             let result = self.run_analysis_under(step, control).map_err(|e| {
-                let done: Vec<String> = results
-                    .iter()
-                    .filter_map(|r: &Value| r["output"].as_str().map(str::to_owned))
-                    .collect();
+                let done: Vec<String> = results.iter().map(|r: &RunResult| r.output.clone()).collect();
                 ServiceError {
                     message: format!("step {} ({analysis}): {}", index + 1, e.message),
                     help: Some(match &e.help {
@@ -1232,7 +1085,7 @@ impl Service {
             })?;
             results.push(result);
         }
-        Ok(json!({ "steps": results }))
+        Ok(PipelineResult { steps: results })
     }
 }
 
@@ -1255,7 +1108,7 @@ mod tests {
         }))
         .unwrap();
         let answer = service.dataset_import(params).unwrap();
-        assert_eq!(answer["rows"], json!(2));
+        assert_eq!(answer.rows, 2);
         let mut kinds = Vec::new();
         while let Ok(event) = events.try_recv() {
             kinds.push(event["kind"].as_str().unwrap().to_owned());
@@ -1267,6 +1120,6 @@ mod tests {
         assert!(kinds.iter().any(|k| k == "report"), "{kinds:?}");
         assert_eq!(kinds.last().map(String::as_str), Some("end"), "{kinds:?}");
         // The id is free again once the import has ended.
-        assert_eq!(service.progress("import-1")["running"], json!(false));
+        assert!(!service.progress("import-1").running);
     }
 }

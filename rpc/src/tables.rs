@@ -19,7 +19,7 @@
 //!    ending with one name, are errors that list the columns.
 //! 4. **Units** (`units: {column: unit}`, [`apply_units`]), naming columns by their name
 //!    after rename. The values are converted into SI and the column renamed by the
-//!    `quantity_unit` convention of `mobilis_core::units` (`temperature_C` in `degC` becomes
+//!    `quantity_unit` convention of `mobilis_physics::units` (`temperature_C` in `degC` becomes
 //!    `temperature_K`, `field_kG` in `kG` becomes `field_T`, a name without a unit suffix gets
 //!    one appended); `{column: {"unit": "...", "to": "new_name"}}` chooses the new name
 //!    instead ([`UnitSpec`]). A text column given a unit is accepted when every cell reads as
@@ -38,9 +38,8 @@
 
 use crate::csv_dialect::{self, CsvDialect, SourceMap};
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
-use mobilis_core::units;
+use mobilis_physics::units;
 use polars::prelude::*;
-use serde::Deserialize;
 use std::collections::BTreeMap;
 use std::fs::File;
 use std::io::Cursor;
@@ -317,21 +316,8 @@ fn json_values_to_column(name: &str, values: &[serde_json::Value]) -> ServiceRes
     Ok(Column::new(name, data))
 }
 
-/// A unit given for one column: a unit name, or a unit with an explicit new column name.
-#[derive(Debug, Clone, Deserialize, PartialEq)]
-#[serde(untagged)]
-pub enum UnitSpec {
-    Unit(String),
-    Renamed { unit: String, to: String },
-}
-
-impl UnitSpec {
-    pub fn unit(&self) -> &str {
-        match self {
-            UnitSpec::Unit(unit) | UnitSpec::Renamed { unit, .. } => unit,
-        }
-    }
-}
+/// A unit given for one column: a member of `dataset.import`'s params, defined by the protocol.
+pub use mobilis_protocol::params::UnitSpec;
 
 /// Converts the named columns into SI and renames them by the table convention
 /// (`temperature_C` in degC becomes `temperature_K`), or to the explicit `to` name.

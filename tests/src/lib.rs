@@ -25,6 +25,13 @@ pub fn workspace_root() -> PathBuf {
         .to_owned()
 }
 
+/// True when the slow checks are asked for: `MOBILIS_SLOW_TESTS=1`, the one switch of the
+/// whole workspace (the plugins' unit tests read it the same way). Without it the tests run
+/// their fast round counts; every test runs either way.
+pub fn slow_tests() -> bool {
+    std::env::var("MOBILIS_SLOW_TESTS").is_ok_and(|value| value == "1")
+}
+
 /// The directory holding the built binaries and plugin libraries (`target/debug`).
 pub fn build_directory() -> PathBuf {
     let target = std::env::var_os("CARGO_TARGET_DIR")
@@ -201,9 +208,11 @@ pub fn van_der_pauw_run(
     offsets_v: [f64; 6],
     misalignment: f64,
     seed: u64,
-) -> Vec<mobilis_core::readings::RawReading> {
-    use mobilis_core::forward::readings::{van_der_pauw_readings, MeasurementProtocol, VanDerPauwSample, VoltageNoise};
-    let mut rng = mobilis_core::noise::Rng::seeded(seed);
+) -> Vec<mobilis_physics::readings::RawReading> {
+    use mobilis_physics::forward::readings::{
+        van_der_pauw_readings, MeasurementProtocol, VanDerPauwSample, VoltageNoise,
+    };
+    let mut rng = mobilis_numerics::noise::Rng::seeded(seed);
     let mut readings = Vec::new();
     for &(name, sheet, ratio, hall) in samples {
         for &temperature in temperatures_k {

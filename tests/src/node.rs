@@ -4,6 +4,7 @@
 
 use std::path::Path;
 use std::process::{Command, ExitStatus, Stdio};
+use std::sync::Mutex;
 use std::time::{Duration, Instant};
 
 /// The major version of `node`, failing with what to install when there is none.
@@ -35,7 +36,15 @@ pub fn node_command() -> Command {
 }
 
 /// Runs `npm ci` in `dir` when its dependencies are not installed (a fresh clone).
+///
+/// The tests that need Node run in parallel threads of one process, and two `npm ci` runs in
+/// the same directory would delete each other's `node_modules`: one install at a time, and
+/// the later callers find the packages installed.
 pub fn install_npm_dependencies(dir: &Path) {
+    static ONE_AT_A_TIME: Mutex<()> = Mutex::new(());
+    // A test that panicked while holding the lock left no lasting state but the directory,
+    // which the check below looks at afresh.
+    let _installing = ONE_AT_A_TIME.lock().unwrap_or_else(|poisoned| poisoned.into_inner());
     if dir.join("node_modules").is_dir() {
         return;
     }

@@ -9,7 +9,7 @@
 //!
 //! `dataset.list` becomes `mobilis datasets`, and so on; `mobilis call` keeps the daemon's
 //! words. A new JSON phrase in a daemon help line gets a row in `PHRASES`;
-//! `tests/tests/cli.rs` runs each through a real daemon.
+//! `tests/tests/suite/cli.rs` runs each through a real daemon.
 
 use mobilis_client::ClientError;
 use serde_json::Value;

@@ -8,7 +8,9 @@ use crate::summary::plus_minus_json;
 use crate::table::format_number;
 use anyhow::{bail, Context};
 use mobilis_client::{Client, Daemon, DaemonOptions};
-use serde_json::{json, Value};
+use mobilis_protocol::method;
+use mobilis_protocol::params::RowsParams;
+use serde_json::Value;
 use std::path::PathBuf;
 
 /// The demo-data directory of the source tree this binary was built from.
@@ -55,20 +57,14 @@ async fn run_with_daemon(
     progress: ProgressMode,
 ) -> anyhow::Result<()> {
     let client = Client::connect(daemon.url(), None).await?;
-    let info = client.call("server.info", json!({})).await?;
-    println!(
-        "mobilisd {} at {}",
-        info["version"].as_str().unwrap_or("?"),
-        daemon.url()
-    );
-    for plugin in info["plugins"].as_array().into_iter().flatten() {
-        println!(
-            "  plugin {} {} (loaded dynamically)",
-            plugin["name"].as_str().unwrap_or("?"),
-            plugin["version"].as_str().unwrap_or("?")
-        );
+    let info = client
+        .request::<method::ServerInfoMethod>(&mobilis_protocol::params::NoParams {})
+        .await?;
+    println!("mobilisd {} at {}", info.version, daemon.url());
+    for plugin in &info.plugins {
+        println!("  plugin {} {} (loaded dynamically)", plugin.name, plugin.version);
     }
-    if info["plugins"].as_array().is_none_or(|p| p.is_empty()) {
+    if info.plugins.is_empty() {
         bail!("the daemon loaded no plugins; build them with `cargo build --release` (or `cargo build`)");
     }
     println!();
@@ -79,25 +75,31 @@ async fn run_with_daemon(
     let mut bar = ProgressBar::new(progress);
     let steps = pipeline_file::run(&client, &data.join("pipeline.toml"), |event| bar.update(event)).await?;
     drop(bar);
-    for step in steps.as_array().into_iter().flatten() {
-        println!(
-            "  step -> {} ({} rows)",
-            step["output"].as_str().unwrap_or("?"),
-            step["rows"]
-        );
+    for step in &steps {
+        println!("  step -> {} ({} rows)", step.output, step.rows);
     }
+    // The summaries are the plugins' own objects; they are read as JSON below.
+    let steps: Vec<Value> = steps
+        .iter()
+        .map(|step| serde_json::to_value(step).expect("a run result serialises"))
+        .collect();
     let truth: Value = serde_json::from_str(&std::fs::read_to_string(data.join("si-wafer/truth.json"))?)?;
+    let rows = |name: &str, limit: Option<usize>| RowsParams {
+        name: name.to_owned(),
+        offset: 0,
+        limit,
+    };
     let page = client
-        .call("dataset.rows", json!({ "name": "si-hall", "limit": 10_000 }))
+        .request::<method::DatasetRows>(&rows("si-hall", Some(10_000)))
         .await?;
-    print_hall_table(&page["columns"], &truth);
+    print_hall_table(&Value::Object(page.columns), &truth);
     let summary = |name: &'static str| {
         let client = &client;
         async move {
             client
-                .call("dataset.rows", json!({ "name": name }))
+                .request::<method::DatasetRows>(&rows(name, None))
                 .await
-                .map(|page| page["columns"].clone())
+                .map(|page| Value::Object(page.columns))
         }
     };
     let freeze_out = summary("si-freeze-out-summary").await?;
@@ -110,22 +112,12 @@ async fn run_with_daemon(
         ("inas-film", "inas-carriers", "inas-spectrum"),
     ] {
         let truth: Value = serde_json::from_str(&std::fs::read_to_string(data.join(directory).join("truth.json"))?)?;
-        let step = |output: &str| {
-            steps
-                .as_array()
-                .and_then(|all| all.iter().find(|s| s["output"] == output))
-                .cloned()
-        };
+        let step = |output: &str| steps.iter().find(|s| s["output"] == output).cloned();
         if let (Some(fit), Some(spectrum)) = (step(fit_output), step(spectrum_output)) {
             print_carriers(&fit, &spectrum, &truth);
         }
     }
-    let find = |output: &str| {
-        steps
-            .as_array()
-            .and_then(|all| all.iter().find(|s| s["output"] == output))
-            .cloned()
-    };
+    let find = |output: &str| steps.iter().find(|s| s["output"] == output).cloned();
     let read_truth =
         |file: &str| -> anyhow::Result<Value> { Ok(serde_json::from_str(&std::fs::read_to_string(data.join(file))?)?) };
     let oscillation_truth = read_truth("heterostructure/truth-sdh.json")?;

@@ -149,7 +149,15 @@ impl ImportRecipe {
     }
 
     /// The parameters of `dataset.import` besides name, path and overwrite.
-    pub fn to_params(&self) -> anyhow::Result<serde_json::Map<String, Value>> {
+    /// The recipe as `dataset.import` params (without name, path and overwrite).
+    pub fn to_params(&self) -> anyhow::Result<mobilis_protocol::params::ImportParams> {
+        let mut object = self.to_object()?;
+        // The name is the caller's to give; the protocol type needs one to be read.
+        object.insert("name".into(), json!(""));
+        serde_json::from_value(Value::Object(object)).context("the import recipe is not a valid dataset.import request")
+    }
+
+    fn to_object(&self) -> anyhow::Result<serde_json::Map<String, Value>> {
         let mut params = serde_json::Map::new();
         if let Some(format) = &self.format {
             params.insert("format".into(), json!(format));
@@ -218,7 +226,10 @@ impl ImportFlags {
 
 /// The `dataset.import` parameters of a pipeline file's `[[import]]` table, whose paths
 /// (`path`, `recipe`) are relative to the pipeline file's directory `base`.
-pub fn pipeline_import(mut table: toml::Table, base: &Path) -> anyhow::Result<(String, Value)> {
+pub fn pipeline_import(
+    mut table: toml::Table,
+    base: &Path,
+) -> anyhow::Result<(String, mobilis_protocol::params::ImportParams)> {
     let mut take_string = |key: &str| -> anyhow::Result<Option<String>> {
         match table.remove(key) {
             None => Ok(None),
@@ -238,11 +249,13 @@ pub fn pipeline_import(mut table: toml::Table, base: &Path) -> anyhow::Result<(S
         Some(file) => ImportRecipe::load(&base.join(file))?.overridden_by(inline),
         None => inline,
     };
-    let mut params = recipe.to_params()?;
-    params.insert("name".into(), json!(name));
-    params.insert("path".into(), json!(base.join(&path).display().to_string()));
-    params.insert("overwrite".into(), json!(true));
-    Ok((name, Value::Object(params)))
+    let params = mobilis_protocol::params::ImportParams {
+        name: name.clone(),
+        path: Some(base.join(&path).display().to_string()),
+        overwrite: true,
+        ..recipe.to_params()?
+    };
+    Ok((name, params))
 }
 
 #[cfg(test)]
@@ -282,7 +295,7 @@ mod tests {
             },
             ..ImportRecipe::default()
         };
-        let params = recipe.overridden_by(flags).to_params().unwrap();
+        let params = recipe.overridden_by(flags).to_object().unwrap();
         assert_eq!(
             Value::Object(params),
             json!({
@@ -311,8 +324,13 @@ mod tests {
             toml::from_str("name = \"r\"\npath = \"r.csv\"\nrecipe = \"station.toml\"\ncsv = { skip_rows = 2 }\n")
                 .unwrap();
         let (name, params) = pipeline_import(table, &directory).unwrap();
+        let params = serde_json::to_value(params).unwrap();
         assert_eq!(name, "r");
-        assert_eq!(params["csv"], json!({"separator": ";", "skip_rows": 2}));
+        // The dialect goes out whole, the members the files leave out at their defaults.
+        assert_eq!(
+            params["csv"],
+            json!({"separator": ";", "decimal_comma": false, "skip_rows": 2, "header": true})
+        );
         assert_eq!(params["units"], json!({"T": "degC"}));
         assert!(params["path"].as_str().unwrap().ends_with("r.csv"));
         let table: toml::Table = toml::from_str("name = \"r\"\npath = \"r.csv\"\ncolour = 1\n").unwrap();

@@ -17,8 +17,13 @@ mod table;
 use anyhow::{bail, Context};
 use clap::{Parser, Subcommand};
 use mobilis_client::Client;
+use mobilis_protocol::method;
+use mobilis_protocol::params::{
+    AnalysisName, ExportParams, FilterValue, GroupBy, ImportParams, ListParams, NoParams, PlotParams, RowsParams,
+    RunParams, TableFormat,
+};
 use progress_bar::{ProgressBar, ProgressMode};
-use serde_json::{json, Value};
+use serde_json::Value;
 use std::path::{Path, PathBuf};
 
 /// Command-line client of the mobilis analysis daemon.
@@ -247,7 +252,7 @@ fn parse_key_value(text: &str) -> Result<(String, String), String> {
 
 /// The units `--unit COLUMN=UNIT` accepts, per quantity, as the unit table lists them.
 fn accepted_units_help() -> String {
-    use mobilis_core::units::Quantity;
+    use mobilis_physics::units::Quantity;
     let mut text = String::from(
         "Units accepted by `mobilis import --unit COLUMN=UNIT` (the column is converted into SI \
          and renamed after the SI unit, e.g. temperature_C=degC becomes temperature_K):\n",
@@ -322,47 +327,52 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             workspace,
             reports,
         } => demo::run(data.clone(), workspace.clone(), reports.clone(), cli.progress).await,
-        Command::Info => print_json(&connect(&cli).await?.call("server.info", json!({})).await?),
+        Command::Info => {
+            let info = connect(&cli)
+                .await?
+                .request::<method::ServerInfoMethod>(&NoParams {})
+                .await?;
+            print_json(&serde_json::to_value(info)?)
+        }
         Command::Analyses => {
-            let list = connect(&cli).await?.call("analysis.list", json!({})).await?;
-            for entry in list.as_array().into_iter().flatten() {
-                println!(
-                    "{:<32} {}",
-                    entry["name"].as_str().unwrap_or(""),
-                    entry["summary"].as_str().unwrap_or("")
-                );
+            let list = connect(&cli)
+                .await?
+                .request::<method::AnalysisList>(&NoParams {})
+                .await?;
+            for entry in list {
+                println!("{:<32} {}", entry.name, entry.summary);
             }
             Ok(())
         }
         Command::Describe { analysis } => {
             let description = connect(&cli)
                 .await?
-                .call("analysis.describe", json!({ "analysis": analysis }))
+                .request::<method::AnalysisDescribe>(&AnalysisName {
+                    analysis: analysis.clone(),
+                })
                 .await?;
-            print!("{}", describe::render(&description));
+            print!("{}", describe::render(&Value::Object(description)));
             Ok(())
         }
         Command::Datasets { prefix } => {
             let client = connect(&cli).await?;
             // dataset.list answers a page at a time; walk the pages until total is reached.
-            let mut offset = 0u64;
+            let mut offset = 0;
             loop {
-                let mut params = json!({ "offset": offset, "limit": 1000 });
-                if let Some(prefix) = &prefix {
-                    params["prefix"] = json!(prefix);
-                }
-                let page = client.call("dataset.list", params).await?;
-                let entries = page["datasets"].as_array().cloned().unwrap_or_default();
-                for entry in &entries {
+                let params = ListParams {
+                    offset,
+                    limit: Some(1000),
+                    prefix: prefix.clone(),
+                };
+                let page = client.request::<method::DatasetList>(&params).await?;
+                for entry in &page.datasets {
                     println!(
                         "{:<32} {:>10} rows {:>4} columns",
-                        entry["name"].as_str().unwrap_or(""),
-                        entry["rows"],
-                        entry["column_count"]
+                        entry.name, entry.rows, entry.column_count
                     );
                 }
-                offset += entries.len() as u64;
-                if entries.is_empty() || offset >= page["total"].as_u64().unwrap_or(0) {
+                offset += page.datasets.len();
+                if page.datasets.is_empty() || offset >= page.total {
                     break;
                 }
             }
@@ -374,21 +384,16 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             layout,
             overwrite,
         } => {
-            let mut params = layout.recipe()?.to_params()?;
-            params.insert("name".into(), json!(name));
-            params.insert("path".into(), json!(absolute(path)?));
-            params.insert("overwrite".into(), json!(overwrite));
-            let result = connect(&cli)
-                .await?
-                .call("dataset.import", Value::Object(params))
-                .await?;
-            println!(
-                "imported {} ({} rows)",
-                result["name"].as_str().unwrap_or(name),
-                result["rows"]
-            );
-            for note in result["notes"].as_array().into_iter().flatten() {
-                println!("  note: {}", note.as_str().unwrap_or(""));
+            let params = ImportParams {
+                name: name.clone(),
+                path: Some(absolute(path)?),
+                overwrite: *overwrite,
+                ..layout.recipe()?.to_params()?
+            };
+            let result = connect(&cli).await?.request::<method::DatasetImport>(&params).await?;
+            println!("imported {} ({} rows)", result.name, result.rows);
+            for note in &result.notes {
+                println!("  note: {note}");
             }
             Ok(())
         }
@@ -402,22 +407,24 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             summary_output,
             deadline,
         } => {
-            let params: Value = serde_json::from_str(params).context("--params must be a JSON object")?;
-            let inputs: serde_json::Map<String, Value> = inputs.iter().map(|(r, d)| (r.clone(), json!(d))).collect();
-            let mut request = json!({
-                "analysis": analysis, "inputs": inputs, "params": params, "output": output,
-                "group_by": group_by, "overwrite": overwrite,
-            });
-            if let Some(name) = summary_output {
-                request["summary_output"] = json!(name);
-            }
-            if let Some(seconds) = deadline {
-                request["deadline_s"] = json!(seconds);
-            }
+            let params: serde_json::Map<String, Value> =
+                serde_json::from_str(params).context("--params must be a JSON object")?;
+            let request = RunParams {
+                analysis: analysis.clone(),
+                inputs: inputs.iter().cloned().collect(),
+                params: Some(params),
+                output: output.clone(),
+                group_by: (!group_by.is_empty()).then(|| GroupBy::Many(group_by.clone())),
+                overwrite: *overwrite,
+                call_id: None,
+                summary_output: summary_output.clone(),
+            };
             let mut bar = ProgressBar::new(cli.progress);
             let result = connect(&cli)
                 .await?
-                .call_with_progress("analysis.run", request, |event| bar.update(event))
+                .request_with_progress::<method::AnalysisRun>(&request, deadline.map(f64::from), |event| {
+                    bar.update(event)
+                })
                 .await?;
             drop(bar);
             print_run_result(&result);
@@ -428,7 +435,7 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             let mut bar = ProgressBar::new(cli.progress);
             let results = pipeline_file::run(&client, file, |event| bar.update(event)).await?;
             drop(bar);
-            for result in results.as_array().into_iter().flatten() {
+            for result in &results {
                 print_run_result(result);
             }
             Ok(())
@@ -441,16 +448,13 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             si,
         } => {
             let client = connect(&cli).await?;
-            let page = client
-                .call(
-                    "dataset.rows",
-                    json!({ "name": name, "offset": offset, "limit": limit }),
-                )
-                .await?;
-            let present: Vec<&str> = page["columns"]
-                .as_object()
-                .map(|map| map.keys().map(String::as_str).collect())
-                .unwrap_or_default();
+            let params = RowsParams {
+                name: name.clone(),
+                offset: *offset,
+                limit: Some(*limit),
+            };
+            let page = client.request::<method::DatasetRows>(&params).await?;
+            let present: Vec<&str> = page.columns.keys().map(String::as_str).collect();
             let unknown: Vec<&str> = columns
                 .iter()
                 .map(String::as_str)
@@ -463,9 +467,9 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
                     present.join(", ")
                 );
             }
-            let rendered = table::render(&page["columns"], columns, !si);
+            let rendered = table::render(&Value::Object(page.columns.clone()), columns, !si);
             print!("{rendered}");
-            let total = page["total_rows"].as_u64().unwrap_or(0);
+            let total = page.total_rows as u64;
             println!(
                 "rows {}..{} of {total}",
                 offset,
@@ -480,21 +484,18 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             units,
             overwrite,
         } => {
-            let units = match units {
-                ExportUnits::Si => "si",
-                ExportUnits::Customary => "customary",
+            let params = ExportParams {
+                name: name.clone(),
+                path: absolute(path)?,
+                format: format.as_deref().map(table_format).transpose()?,
+                units: match units {
+                    ExportUnits::Si => mobilis_protocol::params::ExportUnits::Si,
+                    ExportUnits::Customary => mobilis_protocol::params::ExportUnits::Customary,
+                },
+                overwrite: *overwrite,
             };
-            let mut params = json!({ "name": name, "path": absolute(path)?, "units": units, "overwrite": overwrite });
-            if let Some(format) = format {
-                params["format"] = json!(format);
-            }
-            let result = connect(&cli).await?.call("dataset.export", params).await?;
-            println!(
-                "wrote {} rows to {} ({} units)",
-                result["rows"],
-                result["path"].as_str().unwrap_or(""),
-                result["units"].as_str().unwrap_or(units)
-            );
+            let result = connect(&cli).await?.request::<method::DatasetExport>(&params).await?;
+            println!("wrote {} rows to {} ({} units)", result.rows, result.path, result.units);
             Ok(())
         }
         Command::Plot {
@@ -510,43 +511,40 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
         } => {
             let client = connect(&cli).await?;
             if *list {
-                let kinds = client.call("plot.kinds", json!({ "dataset": dataset })).await?;
-                for kind in kinds.as_array().into_iter().flatten() {
-                    println!(
-                        "{:<28} {}",
-                        kind["name"].as_str().unwrap_or(""),
-                        kind["description"].as_str().unwrap_or("")
-                    );
+                let kinds = client
+                    .request::<method::PlotKinds>(&mobilis_protocol::params::DatasetFilter {
+                        dataset: Some(dataset.clone()),
+                    })
+                    .await?;
+                for kind in kinds {
+                    println!("{:<28} {}", kind.name, kind.description);
                 }
                 return Ok(());
             }
-            let filter: serde_json::Map<String, Value> = filter
-                .iter()
-                .map(|(column, value)| (column.clone(), filter_value(value)))
-                .collect();
-            let mut params = json!({ "dataset": dataset, "filter": filter });
-            if let Some(kind) = kind {
-                params["kind"] = json!(kind);
-            }
-            if let Some(x) = x {
-                params["x"] = json!(x);
-            }
-            if !y.is_empty() {
-                params["y"] = json!(y);
-            }
-            if !series_by.is_empty() {
-                params["series_by"] = json!(series_by);
-            }
-            let figure = client.call("plot.render", params).await?;
-            let kind = figure["kind"].as_str().unwrap_or("plot");
+            let params = PlotParams {
+                dataset: dataset.clone(),
+                kind: kind.clone(),
+                filter: Some(
+                    filter
+                        .iter()
+                        .map(|(column, value)| (column.clone(), filter_value(value)))
+                        .collect(),
+                ),
+                x: x.clone(),
+                y: (!y.is_empty()).then(|| y.clone()),
+                series_by: (!series_by.is_empty()).then(|| series_by.clone()),
+                ..Default::default()
+            };
+            let figure = client.request::<method::PlotRender>(&params).await?;
+            let kind = figure.kind.as_str();
             let out = out
                 .clone()
                 .unwrap_or_else(|| PathBuf::from(format!("{dataset}-{kind}.svg")));
-            std::fs::write(&out, figure["svg"].as_str().unwrap_or(""))
+            std::fs::write(&out, figure.svg.as_deref().unwrap_or(""))
                 .with_context(|| format!("cannot write {}", out.display()))?;
             println!("wrote {} ({kind})", out.display());
             if let Some(path) = vega_lite {
-                std::fs::write(path, serde_json::to_string_pretty(&figure["vega_lite"])?)
+                std::fs::write(path, serde_json::to_string_pretty(&figure.vega_lite)?)
                     .with_context(|| format!("cannot write {}", path.display()))?;
                 println!("wrote {}", path.display());
             }
@@ -564,11 +562,17 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
 }
 
 /// A `--where` value: a number when it reads as one, else text.
-fn filter_value(text: &str) -> Value {
+fn filter_value(text: &str) -> FilterValue {
     match text.parse::<f64>() {
-        Ok(number) if number.is_finite() => json!(number),
-        _ => json!(text),
+        Ok(number) if number.is_finite() => FilterValue::Number(number),
+        _ => FilterValue::Text(text.to_owned()),
     }
+}
+
+/// A `--format` value as the protocol names table formats.
+fn table_format(text: &str) -> anyhow::Result<TableFormat> {
+    serde_json::from_value(Value::String(text.to_owned()))
+        .map_err(|_| anyhow::anyhow!("--format must be csv, parquet or ipc (got `{text}`)"))
 }
 
 fn print_json(value: &Value) -> anyhow::Result<()> {
@@ -576,6 +580,7 @@ fn print_json(value: &Value) -> anyhow::Result<()> {
     Ok(())
 }
 
-fn print_run_result(result: &Value) {
-    print!("{}", summary::render_run(result));
+fn print_run_result(result: &mobilis_protocol::results::RunResult) {
+    let result = serde_json::to_value(result).expect("a run result serialises");
+    print!("{}", summary::render_run(&result));
 }

@@ -22,8 +22,10 @@
 
 use anyhow::{bail, Context};
 use mobilis_client::Client;
+use mobilis_protocol::method;
+use mobilis_protocol::params::{PipelineParams, RunParams};
+use mobilis_protocol::results::RunResult;
 use serde::Deserialize;
-use serde_json::{json, Value};
 use std::path::Path;
 
 #[derive(Debug, Deserialize)]
@@ -53,29 +55,36 @@ pub async fn run(
     client: &Client,
     file: &Path,
     on_progress: impl FnMut(&mobilis_client::ProgressEvent),
-) -> anyhow::Result<Value> {
+) -> anyhow::Result<Vec<RunResult>> {
     let pipeline = load(file)?;
     let base = file.canonicalize()?.parent().map(Path::to_owned).unwrap_or_default();
     for import in pipeline.imports {
         let (name, params) = crate::import_recipe::pipeline_import(import, &base)?;
         client
-            .call("dataset.import", params)
+            .request::<method::DatasetImport>(&params)
             .await
             .with_context(|| format!("importing {name}"))?;
     }
-    let steps: Vec<Value> = pipeline
+    let steps: Vec<RunParams> = pipeline
         .steps
         .iter()
-        .map(|step| {
-            let mut value = serde_json::to_value(step).expect("TOML converts to JSON");
-            if value.get("overwrite").is_none() {
-                value["overwrite"] = json!(true);
-            }
-            value
+        .enumerate()
+        .map(|(index, step)| {
+            let mut step = step.clone();
+            step.entry("overwrite").or_insert(toml::Value::Boolean(true));
+            let value = serde_json::to_value(step).expect("TOML converts to JSON");
+            serde_json::from_value(value).with_context(|| {
+                format!(
+                    "[[step]] {} of {} is not an analysis.run request",
+                    index + 1,
+                    file.display()
+                )
+            })
         })
-        .collect();
+        .collect::<anyhow::Result<_>>()?;
+    let params = PipelineParams { steps, call_id: None };
     let result = client
-        .call_with_progress("pipeline.run", json!({ "steps": steps }), on_progress)
+        .request_with_progress::<method::PipelineRun>(&params, None, on_progress)
         .await?;
-    Ok(result["steps"].clone())
+    Ok(result.steps)
 }

@@ -49,11 +49,11 @@ impl ProgressBar {
             return;
         }
         match event {
-            ProgressEvent::Begin { title } => {
+            ProgressEvent::Begin { title, .. } => {
                 self.title = title.clone();
                 self.draw(&render_line(0.0, title));
             }
-            ProgressEvent::Report { fraction, message } => {
+            ProgressEvent::Report { fraction, message, .. } => {
                 let text = if message.is_empty() {
                     self.title.clone()
                 } else {

@@ -3,7 +3,7 @@
 
 use anyhow::{bail, Context};
 use mobilis_client::Client;
-use serde_json::json;
+use mobilis_protocol::method;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Stdio};
 use std::time::{Duration, Instant};
@@ -43,13 +43,10 @@ pub async fn write_reports_as(
     pdf: bool,
 ) -> anyhow::Result<Vec<PathBuf>> {
     let samples: Vec<String> = if samples.is_empty() {
-        let known = client.call("report.samples", json!({})).await?;
-        known
-            .as_array()
-            .into_iter()
-            .flatten()
-            .filter_map(|s| s["sample"].as_str().map(str::to_owned))
-            .collect()
+        let known = client
+            .request::<method::ReportSamples>(&mobilis_protocol::params::NoParams {})
+            .await?;
+        known.into_iter().map(|entry| entry.sample).collect()
     } else {
         samples.to_vec()
     };
@@ -68,15 +65,16 @@ pub async fn write_reports_as(
     }
     let mut written = Vec::with_capacity(samples.len());
     for sample in &samples {
-        let page = client.call("report.render", json!({ "sample": sample })).await?;
+        let page = client
+            .request::<method::ReportRender>(&mobilis_protocol::params::SampleName { sample: sample.clone() })
+            .await?;
         let path = out.join(format!("{}.html", file_stem(sample)));
-        std::fs::write(&path, page["html"].as_str().unwrap_or(""))
-            .with_context(|| format!("cannot write {}", path.display()))?;
+        std::fs::write(&path, &page.html).with_context(|| format!("cannot write {}", path.display()))?;
         println!(
             "wrote {} ({} datasets, {} figures)",
             path.display(),
-            page["datasets"].as_array().map_or(0, Vec::len),
-            page["figures"]
+            page.datasets.len(),
+            page.figures
         );
         if let Some(browser) = &browser {
             let pdf_path = path.with_extension("pdf");

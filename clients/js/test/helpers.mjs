@@ -1,7 +1,7 @@
 // Shared by the Node tests: the daemon's address and small utilities.
 //
 // The tests run against a real daemon whose address is in MOBILIS_URL and which loads the
-// test fixture plugin (for `fixture.wait`). `cargo test -p mobilis-tests --test js_client`
+// test fixture plugin (for `fixture.wait`). `cargo test -p mobilis-tests --test suite js_client::`
 // starts such a daemon and runs these tests; to run them by hand, start
 // `mobilisd --listen 127.0.0.1:0 --plugin-dir DIR` with DIR holding the plugin libraries
 // and `libtest_fixture_plugin`, then `MOBILIS_URL=http://127.0.0.1:PORT npm test`.
@@ -15,7 +15,7 @@ export function daemonUrl() {
   assert.ok(
     url,
     "set MOBILIS_URL to the address of a running mobilisd that loads the fixture plugin " +
-      "(`cargo test -p mobilis-tests --test js_client` does this for you)",
+      "(`cargo test -p mobilis-tests --test suite js_client::` does this for you)",
   );
   return url;
 }

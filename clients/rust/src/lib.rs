@@ -5,19 +5,25 @@
 //! # async fn example() -> Result<(), mobilis_client::ClientError> {
 //! let daemon = mobilis_client::Daemon::spawn(&mobilis_client::DaemonOptions::default())?;
 //! let client = mobilis_client::Client::connect(daemon.url(), None).await?;
-//! let info = client.call("server.info", serde_json::json!({})).await?;
-//! println!("{info}");
+//! use mobilis_client::protocol::{method, params::NoParams};
+//! let info = client.request::<method::ServerInfoMethod>(&NoParams {}).await?;
+//! println!("mobilisd {}", info.version);
 //! # Ok(()) }
 //! ```
 
 use jsonrpsee::core::client::{ClientT, SubscriptionClientT};
 use jsonrpsee::core::params::{ArrayParams, ObjectParams};
 use jsonrpsee_ws_client::{WsClient, WsClientBuilder};
+use mobilis_protocol::Method;
 use serde_json::Value;
 use std::io::{BufRead, BufReader};
 use std::path::PathBuf;
 use std::process::{Child, Command, Stdio};
 use std::time::Duration;
+
+/// The protocol's types (every method's params and result), re-exported for callers.
+pub use mobilis_protocol as protocol;
+pub use mobilis_protocol::{ErrorData, ErrorKind, Outcome, ProgressEvent};
 
 /// Why a call failed.
 #[derive(Debug, thiserror::Error)]
@@ -35,6 +41,9 @@ pub enum ClientError {
     /// The daemon could not be started.
     #[error("{0}")]
     Daemon(String),
+    /// A request or an answer does not have the shape the protocol gives it.
+    #[error("{0}")]
+    Protocol(String),
 }
 
 fn help_suffix(data: &Option<Value>) -> String {
@@ -52,6 +61,40 @@ impl ClientError {
             _ => None,
         }
     }
+
+    /// The error's `data` member, if the daemon answered with an error that has one.
+    pub fn data(&self) -> Option<ErrorData> {
+        match self {
+            ClientError::Rpc { data: Some(data), .. } => serde_json::from_value(data.clone()).ok(),
+            _ => None,
+        }
+    }
+
+    /// The kind of error the daemon answered with.
+    pub fn kind(&self) -> Option<ErrorKind> {
+        self.code().and_then(ErrorKind::from_code)
+    }
+}
+
+/// `params` as the JSON object a call sends, with `deadline_s` where the method takes one.
+fn request_object<M: Method>(params: &M::Params, deadline_s: Option<f64>) -> Result<Value, ClientError> {
+    let mut value = serde_json::to_value(params).map_err(|e| ClientError::Protocol(format!("{}: {e}", M::NAME)))?;
+    if let Some(seconds) = deadline_s {
+        let takes_one = mobilis_protocol::method(M::NAME).is_some_and(|spec| spec.deadline.is_some());
+        match value.as_object_mut() {
+            Some(map) if takes_one => {
+                map.insert("deadline_s".into(), Value::from(seconds));
+            }
+            _ => return Err(ClientError::Protocol(format!("{} takes no deadline_s", M::NAME))),
+        }
+    }
+    Ok(value)
+}
+
+/// An answer read as method `M`'s result type.
+fn read_result<M: Method>(answer: Value) -> Result<M::Result, ClientError> {
+    serde_json::from_value(answer)
+        .map_err(|e| ClientError::Protocol(format!("the answer to {} is not what the protocol says: {e}", M::NAME)))
 }
 
 /// A connection to a daemon.
@@ -121,6 +164,25 @@ impl Client {
         })
     }
 
+    /// Calls method `M` with its params type and reads the answer as its result type.
+    pub async fn request<M: Method>(&self, params: &M::Params) -> Result<M::Result, ClientError> {
+        let answer = self.call(M::NAME, request_object::<M>(params, None)?).await?;
+        read_result::<M>(answer)
+    }
+
+    /// [`Client::request`] with a deadline (`deadline_s`, for the methods that take one) and
+    /// the call's progress handed to `on_event` while it runs (see [`Client::call_with_progress`]).
+    pub async fn request_with_progress<M: Method>(
+        &self,
+        params: &M::Params,
+        deadline_s: Option<f64>,
+        on_event: impl FnMut(&ProgressEvent),
+    ) -> Result<M::Result, ClientError> {
+        let params = request_object::<M>(params, deadline_s)?;
+        let answer = self.call_with_progress(M::NAME, params, on_event).await?;
+        read_result::<M>(answer)
+    }
+
     /// Subscribes to the progress of the call that is (or will be) given `call_id`.
     /// Subscribe before starting the call; a call that ended recently yields its end at once.
     pub async fn subscribe_progress(&self, call_id: &str) -> Result<ProgressEvents, ClientError> {
@@ -130,7 +192,11 @@ impl Client {
             .map_err(|e| ClientError::Transport(e.to_string()))?;
         let inner = self
             .inner
-            .subscribe::<Value, _>("progress.subscribe", params, "progress.unsubscribe")
+            .subscribe::<Value, _>(
+                mobilis_protocol::method::ProgressSubscribe::NAME,
+                params,
+                mobilis_protocol::method::ProgressUnsubscribe::NAME,
+            )
             .await
             .map_err(|e| ClientError::Transport(format!("cannot subscribe to progress: {e}")))?;
         Ok(ProgressEvents { inner })
@@ -200,35 +266,6 @@ pub fn new_call_id() -> String {
     )
 }
 
-/// One progress event of a call (see `progress.subscribe` in the OpenRPC document).
-#[derive(Debug, Clone, PartialEq)]
-pub enum ProgressEvent {
-    Begin { title: String },
-    Report { fraction: f64, message: String },
-    End { outcome: String, message: Option<String> },
-}
-
-impl ProgressEvent {
-    /// Reads an event as the daemon sends it; `None` for a shape this client does not know.
-    pub fn from_json(event: &Value) -> Option<ProgressEvent> {
-        let text = |key: &str| event.get(key).and_then(Value::as_str).map(str::to_owned);
-        match event.get("kind")?.as_str()? {
-            "begin" => Some(ProgressEvent::Begin {
-                title: text("title").unwrap_or_default(),
-            }),
-            "report" => Some(ProgressEvent::Report {
-                fraction: event.get("fraction")?.as_f64()?,
-                message: text("message").unwrap_or_default(),
-            }),
-            "end" => Some(ProgressEvent::End {
-                outcome: text("outcome")?,
-                message: text("message"),
-            }),
-            _ => None,
-        }
-    }
-}
-
 /// The progress events of one call, ending after its end event.
 pub struct ProgressEvents {
     inner: jsonrpsee::core::client::Subscription<Value>,
@@ -239,7 +276,8 @@ impl ProgressEvents {
     pub async fn next(&mut self) -> Option<ProgressEvent> {
         loop {
             let event = self.inner.next().await?.ok()?;
-            if let Some(event) = ProgressEvent::from_json(&event) {
+            // An event of a shape this client does not know is skipped.
+            if let Ok(event) = serde_json::from_value::<ProgressEvent>(event) {
                 return Some(event);
             }
         }

@@ -16,8 +16,8 @@
 //! The library is named `test_fixture_plugin`, not `mobilis_*`, so a daemon never loads it
 //! unless its directory is passed with `--plugin-dir`.
 
-use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
-use mobilis_core::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs, OutputBuilder};
+use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
+use mobilis_sdk::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs, OutputBuilder};
 use polars::prelude::{Column, DataFrame};
 use schemars::JsonSchema;
 use serde::Deserialize;
@@ -229,7 +229,7 @@ impl Analysis for Undeclared {
     }
 }
 
-mobilis_core::export_plugin!(name: "fixture", analyses: [Identity, Scale, Panic, Wait, Undeclared]);
+mobilis_sdk::export_plugin!(name: "fixture", analyses: [Identity, Scale, Panic, Wait, Undeclared]);
 
 #[cfg(test)]
 mod tests {

@@ -365,7 +365,7 @@ fn flags_html(frame: &DataFrame) -> Option<String> {
         .map(|(flag, count)| format!("<code>{}</code> on {count}", escape(flag)))
         .collect();
     Some(format!(
-        "<p class=\"flags raised\">Quality flags: {flagged} of {} rows flagged — {}. Thresholds and meanings: DEVELOPERS.md, hall.reduce.</p>",
+        "<p class=\"flags raised\">Quality flags: {flagged} of {} rows flagged — {}. Thresholds and meanings: the flags column and the threshold parameters in mobilis describe hall.reduce.</p>",
         frame.height(),
         list.join(", ")
     ))

@@ -124,7 +124,7 @@ enum Command {
         #[arg(long, value_name = "SECONDS")]
         deadline: Option<f64>,
     },
-    /// Run a pipeline file (TOML: [[import]] and [[step]] tables; see DEVELOPERS.md).
+    /// Run a pipeline file (TOML: [[import]] and [[step]] tables; demo-data/pipeline.toml is an example).
     Pipeline {
         /// The pipeline file; its import paths are relative to it.
         file: PathBuf,

@@ -25,11 +25,10 @@
 use mobilis_physics::constants::ELEMENTARY_CHARGE_C;
 use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
 use mobilis_sdk::abi::{AxisScale, AxisSpec, FigureSpec, LayerSpec, Naming, PanelSpec};
-use mobilis_sdk::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
-use polars::prelude::{Column, DataFrame};
+use mobilis_sdk::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs, OutputBuilder};
+use polars::prelude::Column;
 use schemars::JsonSchema;
 use serde::Deserialize;
-use serde_json::json;
 
 /// The input role the analysis reads.
 pub const HALL: &str = "hall";
@@ -146,25 +145,22 @@ impl Analysis for SheetCarriers {
             density.push(r_h.map(|v| params.hall_factor / (ELEMENTARY_CHARGE_C * v.abs())));
             mobility.push(r_h.zip(r_s).map(|(h, s)| h.abs() / s));
         }
-        let output = DataFrame::new(
-            rows,
-            vec![
-                Column::new("sample".into(), sample),
-                Column::new("temperature_K".into(), temperature),
-                Column::new("carrier_type".into(), carrier_type),
-                Column::new("sheet_density_m2".into(), density),
-                Column::new("hall_mobility_m2_per_Vs".into(), mobility),
-            ],
-        )
-        .map_err(|error| AnalysisError::Numerical(error.to_string()))?;
-        let mut result = AnalysisOutput::new(output);
-        result.summary.insert("rows".into(), json!(rows));
+        // The builder holds the output to the declaration: an undeclared column or summary key,
+        // or one of another type, is reported as the plugin's bug instead of reaching a client.
+        let mut output = OutputBuilder::of::<Self>();
+        output
+            .column(Column::new("sample".into(), sample))
+            .column(Column::new("temperature_K".into(), temperature))
+            .column(Column::new("carrier_type".into(), carrier_type))
+            .f64_nullable("sheet_density_m2", density)
+            .f64_nullable("hall_mobility_m2_per_Vs", mobility)
+            .summary("rows", rows);
         if unusable > 0 {
-            result.warnings.push(format!(
+            output.warn(format!(
                 "{unusable} rows have no usable R_s (> 0) or R_H,s (non-zero) and give nulls"
             ));
         }
-        Ok(result)
+        output.finish(rows)
     }
 }
 
@@ -173,6 +169,7 @@ mobilis_sdk::export_plugin!(name: "lab", analyses: [SheetCarriers]);
 #[cfg(test)]
 mod tests {
     use super::*;
+    use polars::prelude::DataFrame;
 
     fn run(table: DataFrame, params: &str) -> Result<AnalysisOutput, AnalysisError> {
         let inputs = Inputs::from_tables([(HALL.to_owned(), table)]);

@@ -38,7 +38,7 @@
 export const DEFAULT_URL = "http://127.0.0.1:8470";
 
 /**
- * Error codes: those of the daemon (see DEVELOPERS.md, "JSON-RPC") and `transport`, this
+ * Error codes: those of the daemon (listed in `protocol/src/errors.rs` and in each method of `rpc.discover`) and `transport`, this
  * client's code for a daemon that could not be reached or a connection that broke.
  */
 export const ERROR_CODES = Object.freeze({

@@ -16,7 +16,7 @@
 
 use crate::quantum::QuantumTransport;
 use crate::sweeps::{Layer, SweepAt, SweepSample, Wafer};
-use mobilis_core::forward::tensor::{Carrier, CarrierKind, SweepImperfections, SweepNoise};
+use mobilis_physics::forward::tensor::{Carrier, CarrierKind, SweepImperfections, SweepNoise};
 
 const fn electrons(sheet_density_m2: f64, mobility_m2_per_vs: f64) -> Carrier {
     Carrier {

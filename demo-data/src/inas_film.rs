@@ -8,7 +8,7 @@
 //! single-carrier Hall analysis reads as an n-type film.
 
 use crate::sweeps::{Layer, SweepAt, SweepSample, Wafer};
-use mobilis_core::forward::tensor::{Carrier, CarrierKind, SweepImperfections, SweepNoise};
+use mobilis_physics::forward::tensor::{Carrier, CarrierKind, SweepImperfections, SweepNoise};
 
 /// The film thickness, m.
 const THICKNESS_M: f64 = 10e-6;

@@ -20,7 +20,7 @@
 //!   file.
 //!
 //! The data are made up; see `README.md` next to this crate. The physics is
-//! `mobilis_core::forward`, the same models the plugins fit.
+//! `mobilis_physics::forward`, the same models the plugins fit.
 
 mod format;
 mod heterostructure;
@@ -165,8 +165,8 @@ fn main() -> anyhow::Result<()> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use mobilis_core::contacts::{classify_van_der_pauw, Configuration, ResistanceFamily};
-    use mobilis_core::van_der_pauw::sheet_resistance;
+    use mobilis_physics::contacts::{classify_van_der_pauw, Configuration, ResistanceFamily};
+    use mobilis_physics::van_der_pauw::sheet_resistance;
 
     fn committed_root() -> PathBuf {
         PathBuf::from(env!("CARGO_MANIFEST_DIR"))

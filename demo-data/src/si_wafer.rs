@@ -1,20 +1,20 @@
 //! The invented silicon reference wafer: its true parameters, the temperature run a small
 //! epitaxy lab would make on two van der Pauw pieces cut from it, and the raw readings that
-//! run produces, all from the forward models of `mobilis_core::forward`.
+//! run produces, all from the forward models of `mobilis_physics::forward`.
 //!
 //! The wafer is lightly phosphorus-doped and compensated by a trace of boron. Its electron
 //! density freezes out below about 100 K, which is what `carriers.freeze_out_fit` is meant
 //! to recover: donor and acceptor densities and the donor ionization energy.
 
 use crate::format::{number, Json};
-use mobilis_core::forward::mobility::hall_scattering_factor;
-use mobilis_core::forward::readings::{
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::forward::mobility::hall_scattering_factor;
+use mobilis_physics::forward::readings::{
     van_der_pauw_readings, CurrentReversal, MeasurementProtocol, VanDerPauwSample, VoltageNoise, VoltmeterWiring,
 };
-use mobilis_core::forward::statistics::{BandModel, Dopants};
-use mobilis_core::forward::transport::{n_type_transport, MobilityModel, NTypeTransport};
-use mobilis_core::noise::Rng;
-use mobilis_core::readings::{RawReading, READING_COLUMNS};
+use mobilis_physics::forward::statistics::{BandModel, Dopants};
+use mobilis_physics::forward::transport::{n_type_transport, MobilityModel, NTypeTransport};
+use mobilis_physics::readings::{RawReading, READING_COLUMNS};
 
 /// The seed of every random number in the scenario.
 pub const SEED: u64 = 0x5111_C0DE_2025;

@@ -9,7 +9,7 @@
 
 use crate::sweeps::Layer;
 use crate::weak_localization::WeakLocalizationSample;
-use mobilis_core::forward::tensor::{Carrier, CarrierKind, SweepImperfections, SweepNoise};
+use mobilis_physics::forward::tensor::{Carrier, CarrierKind, SweepImperfections, SweepNoise};
 
 /// The film thickness, m.
 const THICKNESS_M: f64 = 5e-9;

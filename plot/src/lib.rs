@@ -2,18 +2,22 @@
 //! same figure in Vega-Lite for notebooks that render it interactively.
 //!
 //! [`build`] turns a dataset (a polars DataFrame in SI units, columns named as the plugins
-//! write them) into a [`Figure`] by a recipe, a "kind": the plots the trade draws from each
-//! analysis's output (carrier density against temperature, the Arrhenius plot, the mobility
-//! spectrum, the Kohler plot, ...) or `columns` for anything else. Axes are in the customary
-//! units (cm^-3, cm^2/(V s), ohm cm, T, K, 1000/T), logarithmic where the trade draws them so,
-//! and uncertainty columns (`_unc`, one sigma) become error bars.
+//! write them) into a [`Figure`] of a "kind": one of the figures the analysis that made the
+//! dataset declares ([`FigureSpec`], in its plugin's declaration, gathered in a
+//! [`FigureCatalog`]), or `columns` for anything else. The crate knows no analysis: a lab's own
+//! plugin that declares its figures gets them drawn as the built-in plugins' are. Axes are in
+//! the customary units the column names imply (cm^-3, cm^2/(V s), ohm cm, T, K, 1000/T),
+//! logarithmic where the declaration says, and uncertainty columns (`_unc`, one sigma) become
+//! error bars.
 //!
 //! The SVG is written here rather than by a plotting crate: the figures are few and
 //! specific, a dependency would bring its own fonts and rasterizers, and the renderer is small
 //! enough to test element by element. The crate knows nothing of JSON-RPC, the store or
 //! files; callers pass a frame and get text or JSON back.
 
+mod error;
 mod figure;
+mod options;
 mod recipes;
 mod svg;
 mod units;
@@ -23,137 +27,108 @@ mod vega;
 mod tests;
 
 use polars::prelude::DataFrame;
-use serde::{Deserialize, Deserializer};
 
+pub use error::PlotError;
 pub use figure::Figure;
+pub use mobilis_sdk::abi::FigureSpec;
+pub use options::PlotOptions;
 pub use recipes::MAX_SERIES;
 
-/// What to draw. Every field is optional, so that the JSON-RPC layer can take it from the
-/// request parameters as they are.
-#[derive(Debug, Clone, Default, PartialEq, Deserialize)]
-#[serde(default, deny_unknown_fields)]
-pub struct PlotOptions {
-    /// A recipe name (see [`kinds`]); None or "auto": the first recipe of `analysis`, else
-    /// "columns".
-    pub kind: Option<String>,
-    /// The analysis that produced the dataset (from its provenance), if any.
-    pub analysis: Option<String>,
-    /// For kind "columns": the x column.
-    pub x: Option<String>,
-    /// For kind "columns": one or more y columns (a single string is accepted too).
-    #[serde(deserialize_with = "one_or_many")]
-    pub y: Vec<String>,
-    /// Optional 1-sigma uncertainty columns, one per y column; without them a y column's
-    /// `_unc` companion is used when the dataset has it.
-    #[serde(deserialize_with = "one_or_many")]
-    pub y_error: Vec<String>,
-    /// Columns whose value combinations become separate series; None: the recipe's default
-    /// (sample, temperature, field where present and varying).
-    pub series_by: Option<Vec<String>>,
-    /// Override the recipe's choice of logarithmic axes.
-    pub log_x: Option<bool>,
-    pub log_y: Option<bool>,
-    pub title: Option<String>,
-    /// The rows the caller kept, as (column, value) pairs: the daemon's `filter`. The title
-    /// names them ("... (sample = W1)"), so that a figure of part of a dataset says which
-    /// part it shows. Not a request parameter of its own: `plot.render` fills it from
-    /// `filter`.
-    #[serde(skip)]
-    pub selection: Vec<(String, String)>,
-    /// Size of one panel in pixels (default 640 x 420 for a figure of one panel, 500 x 400
-    /// for figures of several, which tile them two to a row, 1000 px wide).
-    pub width: Option<f64>,
-    pub height: Option<f64>,
-}
-
-fn one_or_many<'de, D: Deserializer<'de>>(deserializer: D) -> Result<Vec<String>, D::Error> {
-    #[derive(Deserialize)]
-    #[serde(untagged)]
-    enum OneOrMany {
-        One(String),
-        Many(Vec<String>),
-        Null(()),
-    }
-    Ok(match OneOrMany::deserialize(deserializer)? {
-        OneOrMany::One(one) => vec![one],
-        OneOrMany::Many(many) => many,
-        OneOrMany::Null(()) => Vec::new(),
-    })
-}
-
-/// A recipe as listed to clients.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+/// A plot kind as listed to clients.
+#[derive(Debug, Clone, PartialEq, Eq)]
 pub struct KindInfo {
-    pub name: &'static str,
-    pub description: &'static str,
-    /// The analyses whose output the recipe draws; empty for `columns`, which draws any.
-    pub analyses: &'static [&'static str],
+    pub name: String,
+    pub description: String,
+    /// The analyses that declare the kind for their output; empty for `columns`, which draws
+    /// any table.
+    pub analyses: Vec<String>,
 }
 
-/// Why no figure could be built; every message says what to change.
-#[derive(thiserror::Error, Debug, Clone, PartialEq)]
-#[non_exhaustive]
-pub enum PlotError {
-    #[error("unknown plot kind `{kind}`; use one of: {known}")]
-    UnknownKind { kind: String, known: String },
-    #[error("plot kind `{kind}` needs column `{column}`, which dataset `{dataset}` does not have; {detail}")]
-    MissingColumn {
-        kind: String,
-        column: String,
-        dataset: String,
-        /// The columns the kind needs, the dataset's columns and the analyses that make such a
-        /// dataset.
-        detail: String,
-    },
-    #[error("column `{column}` holds {dtype}, not numbers; choose a numeric column")]
-    NotNumeric { column: String, dtype: String },
-    #[error("dataset `{dataset}` has no finite values to draw as kind `{kind}`{hint}")]
-    NoFinitePoints {
-        dataset: String,
-        kind: String,
-        hint: String,
-    },
-    #[error("{0}")]
-    BadOption(String),
-    #[error("{0}")]
-    Unusable(String),
-    /// More than the daemon draws in one figure (series, points); the message names the
-    /// filter to use.
-    #[error("{0}")]
-    TooLarge(String),
+/// The generic figure every table gets.
+pub const COLUMNS: &str = "columns";
+
+const COLUMNS_DESCRIPTION: &str = "Any dataset: the columns `y` against `x`, one series per combination of `series_by`, with error bars from `y_error` or the columns' `_unc` companions; axes in the units of the trade.";
+
+/// The figures the loaded analyses declare, by analysis: what [`build`] can draw besides
+/// `columns`. The daemon fills it from the plugins' declarations, so that the host knows no
+/// analysis's figures of its own.
+#[derive(Debug, Clone, Default)]
+pub struct FigureCatalog<'a> {
+    /// (analysis, its figures in declared order), in the order added.
+    analyses: Vec<(&'a str, &'a [FigureSpec])>,
 }
 
-static KINDS: std::sync::OnceLock<Vec<KindInfo>> = std::sync::OnceLock::new();
+impl<'a> FigureCatalog<'a> {
+    pub fn new() -> Self {
+        FigureCatalog::default()
+    }
 
-/// Every recipe, `columns` first.
-pub fn kinds() -> &'static [KindInfo] {
-    KINDS.get_or_init(|| {
-        recipes::RECIPES
+    /// Adds the figures `analysis` declares (its default first).
+    pub fn add(&mut self, analysis: &'a str, figures: &'a [FigureSpec]) {
+        self.analyses.push((analysis, figures));
+    }
+
+    /// The figure `kind` as `analysis` declares it, else as the first analysis declaring it
+    /// does, with the analyses that declare a figure of that name.
+    fn find(&self, kind: &str, analysis: Option<&str>) -> Option<(&'a FigureSpec, Vec<String>)> {
+        let declaring: Vec<(&'a str, &'a FigureSpec)> = self
+            .analyses
             .iter()
-            .map(|r| KindInfo {
-                name: r.name,
-                description: r.description,
-                analyses: r.analyses,
-            })
-            .collect()
-    })
-}
-
-/// The recipes that draw a dataset made by `analysis`, its default first: all the plots of
-/// the dataset for a report. Imported data, and analyses without a recipe, get `columns`.
-pub fn kinds_for(analysis: Option<&str>) -> Vec<&'static str> {
-    let found: Vec<&'static str> = match analysis {
-        Some(analysis) => recipes::RECIPES
+            .filter_map(|(name, figures)| figures.iter().find(|f| f.name == kind).map(|f| (*name, f)))
+            .collect();
+        let spec = declaring
             .iter()
-            .filter(|r| r.analyses.contains(&analysis))
-            .map(|r| r.name)
-            .collect(),
-        None => Vec::new(),
-    };
-    if found.is_empty() {
-        vec!["columns"]
-    } else {
-        found
+            .find(|(name, _)| Some(*name) == analysis)
+            .or(declaring.first())
+            .map(|(_, spec)| *spec)?;
+        Some((spec, declaring.iter().map(|(name, _)| (*name).to_owned()).collect()))
+    }
+
+    /// Every kind, `columns` first, then the declared figures in the order of their first
+    /// declaration.
+    pub fn kinds(&self) -> Vec<KindInfo> {
+        let mut kinds = vec![KindInfo {
+            name: COLUMNS.to_owned(),
+            description: COLUMNS_DESCRIPTION.to_owned(),
+            analyses: Vec::new(),
+        }];
+        for (analysis, figures) in &self.analyses {
+            for figure in figures.iter() {
+                match kinds.iter_mut().find(|k| k.name == figure.name) {
+                    Some(kind) => {
+                        if !kind.analyses.iter().any(|a| a == analysis) {
+                            kind.analyses.push((*analysis).to_owned());
+                        }
+                    }
+                    None => kinds.push(KindInfo {
+                        name: figure.name.clone(),
+                        description: figure.description.clone(),
+                        analyses: vec![(*analysis).to_owned()],
+                    }),
+                }
+            }
+        }
+        kinds
+    }
+
+    /// The kinds that draw a dataset made by `analysis`, its default first: all the plots of
+    /// the dataset for a report. Imported data, and analyses that declare no figure, get
+    /// `columns`.
+    pub fn kinds_for(&self, analysis: Option<&str>) -> Vec<String> {
+        let found: Vec<String> = match analysis {
+            Some(analysis) => self
+                .analyses
+                .iter()
+                .filter(|(name, _)| *name == analysis)
+                .flat_map(|(_, figures)| figures.iter().map(|f| f.name.clone()))
+                .collect(),
+            None => Vec::new(),
+        };
+        if found.is_empty() {
+            vec![COLUMNS.to_owned()]
+        } else {
+            found
+        }
     }
 }
 
@@ -180,7 +155,7 @@ fn size(name: &str, value: Option<f64>, default: f64) -> Result<f64, PlotError> 
 /// "0.5 T"; to a relative 1e-9 for any other column, so that 300 matches 300.0000000001.
 pub fn matches_nominal(column: &str, value: f64, target: f64) -> bool {
     let tolerance = match column {
-        "temperature_K" => mobilis_core::sweep_table::TemperatureGrouping::default().allowed_gap_k(target),
+        "temperature_K" => mobilis_physics::sweep::TemperatureGrouping::default().allowed_gap_k(target),
         "field_T" => recipes::FIELD_SETPOINT_T,
         _ => 1e-9 * target.abs().max(1e-300),
     };
@@ -212,34 +187,64 @@ fn selection_text(selection: &[(String, String)]) -> Option<String> {
 }
 
 /// Builds the figure of `frame` (named `dataset` in titles and messages) that `options` ask
-/// for.
-pub fn build(frame: &DataFrame, dataset: &str, options: &PlotOptions) -> Result<Figure, PlotError> {
+/// for, from the figures `catalog` declares (or the generic `columns` figure).
+pub fn build(
+    frame: &DataFrame,
+    dataset: &str,
+    options: &PlotOptions,
+    catalog: &FigureCatalog,
+) -> Result<Figure, PlotError> {
     size("width", options.width, DEFAULT_WIDTH)?;
     size("height", options.height, DEFAULT_HEIGHT)?;
+    let default_kind;
     let kind = match options.kind.as_deref().map(str::trim) {
-        None | Some("") | Some("auto") => kinds_for(options.analysis.as_deref())[0],
+        None | Some("") | Some("auto") => {
+            default_kind = catalog.kinds_for(options.analysis.as_deref()).remove(0);
+            default_kind.as_str()
+        }
         Some(kind) => kind,
     };
-    let recipe = recipes::find(kind).ok_or_else(|| PlotError::UnknownKind {
-        kind: kind.to_owned(),
-        known: std::iter::once("auto")
-            .chain(recipes::RECIPES.iter().map(|r| r.name))
-            .collect::<Vec<_>>()
-            .join(", "),
-    })?;
-    if kind != "columns" && (options.x.is_some() || !options.y.is_empty()) {
+    let declared = if kind == COLUMNS {
+        None
+    } else {
+        Some(catalog.find(kind, options.analysis.as_deref()).ok_or_else(|| {
+            PlotError::UnknownKind {
+                kind: kind.to_owned(),
+                known: std::iter::once("auto".to_owned())
+                    .chain(catalog.kinds().into_iter().map(|k| k.name))
+                    .collect::<Vec<_>>()
+                    .join(", "),
+            }
+        })?)
+    };
+    let kind_ref = match &declared {
+        None => recipes::KindRef {
+            name: COLUMNS.to_owned(),
+            needs: "the columns named by x and y".to_owned(),
+            analyses: Vec::new(),
+        },
+        Some((spec, analyses)) => recipes::KindRef {
+            name: spec.name.clone(),
+            needs: needs_text(spec),
+            analyses: analyses.clone(),
+        },
+    };
+    if declared.is_some() && (options.x.is_some() || !options.y.is_empty()) {
         return Err(PlotError::BadOption(format!(
             "x and y choose the columns of kind `columns`; kind `{kind}` draws fixed columns ({}); leave x and y out or ask for kind `columns`",
-            recipe.needs
+            kind_ref.needs
         )));
     }
     let context = recipes::Context {
         frame,
         dataset,
         options,
-        recipe,
+        kind: &kind_ref,
     };
-    let drawing = (recipe.build)(&context)?;
+    let drawing = match &declared {
+        None => recipes::columns::build(&context)?,
+        Some((spec, _)) => recipes::declared::build(&context, spec)?,
+    };
     let (default_width, default_height) = if drawing.panels.len() > 1 {
         (DEFAULT_MULTI_WIDTH, DEFAULT_MULTI_HEIGHT)
     } else {
@@ -264,7 +269,7 @@ pub fn build(frame: &DataFrame, dataset: &str, options: &PlotOptions) -> Result<
         title = format!("{title} ({selection})");
     }
     let mut figure = Figure {
-        kind: recipe.name.to_owned(),
+        kind: kind_ref.name.clone(),
         title,
         panels,
         panel_width: width,
@@ -281,11 +286,30 @@ pub fn build(frame: &DataFrame, dataset: &str, options: &PlotOptions) -> Result<
         };
         return Err(PlotError::NoFinitePoints {
             dataset: dataset.to_owned(),
-            kind: recipe.name.to_owned(),
+            kind: kind_ref.name.clone(),
             hint,
         });
     }
     Ok(figure)
+}
+
+/// "temperature_K and density_m3 (or sheet_density_m2)": the columns a declared figure draws,
+/// for messages.
+fn needs_text(spec: &FigureSpec) -> String {
+    let join = |columns: Vec<String>| match columns.split_last() {
+        None => "its declared columns".to_owned(),
+        Some((last, [])) => last.clone(),
+        Some((last, rest)) => format!("{} and {last}", rest.join(", ")),
+    };
+    let mut text = join(spec.needed_columns());
+    let mut fallback = spec.fallback.as_deref();
+    while let Some(other) = fallback {
+        if let Some(layer) = other.panels.first().and_then(|p| p.layers.first()) {
+            text.push_str(&format!(" (or {})", layer.y));
+        }
+        fallback = other.fallback.as_deref();
+    }
+    text
 }
 
 impl Figure {

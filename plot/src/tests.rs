@@ -1,11 +1,65 @@
-//! Tests of the recipes and renderers on small frames shaped like the plugins' outputs (SI
-//! columns as the analyses write them), with a small XML well-formedness check standing in
-//! for an XML parser (none is in the offline registry cache).
+//! Tests of the declared figures and renderers on small frames shaped like the plugins' outputs
+//! (SI columns as the analyses write them), drawn from the built-in plugins' own figure
+//! declarations, with a small XML well-formedness check standing in for an XML parser (none is
+//! in the offline registry cache).
 
 use polars::prelude::*;
 use serde_json::Value;
 
-use crate::{build, kinds, kinds_for, Figure, PlotError, PlotOptions};
+use crate::{Figure, FigureCatalog, FigureSpec, KindInfo, PlotError, PlotOptions};
+
+// The built-in plugins' figure declarations, read from their sources: the tests draw exactly
+// what the plugins declare, without loading the plugin libraries.
+#[path = "../../plugins/carriers/src/figures.rs"]
+mod carriers_figures;
+#[path = "../../plugins/hall/src/figures.rs"]
+mod hall_figures;
+#[path = "../../plugins/magnetoresistance/src/figures.rs"]
+mod magnetoresistance_figures;
+#[path = "../../plugins/spectrum/src/figures.rs"]
+mod spectrum_figures;
+
+/// Each built-in analysis and its declared figures, as the daemon registers them (by name).
+fn builtin_figures() -> &'static [(&'static str, Vec<FigureSpec>)] {
+    static FIGURES: std::sync::OnceLock<Vec<(&'static str, Vec<FigureSpec>)>> = std::sync::OnceLock::new();
+    FIGURES.get_or_init(|| {
+        vec![
+            ("carriers.arrhenius", carriers_figures::arrhenius()),
+            ("carriers.freeze_out_fit", carriers_figures::freeze_out()),
+            ("carriers.mobility_scattering", carriers_figures::mobility_scattering()),
+            ("carriers.purity", Vec::new()),
+            ("hall.reduce", hall_figures::reduce()),
+            ("mr.kohler", magnetoresistance_figures::kohler()),
+            ("mr.oscillations", magnetoresistance_figures::oscillations()),
+            ("mr.ratio", magnetoresistance_figures::ratio()),
+            ("mr.symmetrize", magnetoresistance_figures::symmetrize()),
+            ("mr.two_band_fit", magnetoresistance_figures::two_band_fit()),
+            ("mr.weak_localization", magnetoresistance_figures::weak_localization()),
+            ("spectrum.mobility", spectrum_figures::mobility()),
+            ("spectrum.multi_carrier_fit", spectrum_figures::multi_carrier_fit()),
+        ]
+    })
+}
+
+fn catalog() -> FigureCatalog<'static> {
+    let mut catalog = FigureCatalog::new();
+    for (analysis, figures) in builtin_figures() {
+        catalog.add(analysis, figures);
+    }
+    catalog
+}
+
+fn build(frame: &DataFrame, dataset: &str, options: &PlotOptions) -> Result<Figure, PlotError> {
+    crate::build(frame, dataset, options, &catalog())
+}
+
+fn kinds() -> Vec<KindInfo> {
+    catalog().kinds()
+}
+
+fn kinds_for(analysis: Option<&str>) -> Vec<String> {
+    catalog().kinds_for(analysis)
+}
 
 // ---------------------------------------------------------------------------------------
 // A minimal XML checker: nesting, attribute quoting, entity references, one root.
@@ -301,13 +355,14 @@ fn hall_frame() -> DataFrame {
 
 #[test]
 fn every_kind_is_listed_and_kinds_for_analyses_exist() {
-    let names: Vec<&str> = kinds().iter().map(|k| k.name).collect();
+    let kinds = kinds();
+    let names: Vec<&str> = kinds.iter().map(|k| k.name.as_str()).collect();
     assert_eq!(names[0], "columns");
     let mut sorted = names.clone();
     sorted.sort();
     sorted.dedup();
     assert_eq!(sorted.len(), names.len(), "duplicate kind names");
-    for kind in kinds() {
+    for kind in &kinds {
         assert!(!kind.description.is_empty());
     }
     assert_eq!(
@@ -1336,7 +1391,7 @@ fn fit_lines_are_drawn_above_the_markers() {
 #[test]
 fn landau_fan_draws_the_extrema_and_a_line_whose_slope_is_the_frequency() {
     let frame = oscillation_frame();
-    assert!(kinds_for(Some("mr.oscillations")).contains(&"landau_fan"));
+    assert!(kinds_for(Some("mr.oscillations")).iter().any(|k| k == "landau_fan"));
     let figure = build(&frame, "sdh", &options("landau_fan")).unwrap();
     let (svg, elements) = checked_svg(&figure);
     // Minima (integer index) filled, maxima (half-integer) open.
@@ -1443,7 +1498,7 @@ fn hall_coefficients_and_log_densities_are_shown_in_the_tables_units() {
     .unwrap();
     let spec = check_vega(&figure);
     let shown = vega_values(&spec, "ln_reduced_density_m3", "y");
-    let table_shows = mobilis_core::units::customary_display("ln_reduced_density_m3").unwrap();
+    let table_shows = mobilis_physics::units::customary_display("ln_reduced_density_m3").unwrap();
     for (shown, stored) in shown.iter().zip([40.0, 41.0, 42.0]) {
         assert!(close(*shown, stored - 1e6f64.ln(), 1e-12));
         assert!(close(*shown, table_shows.from_si(stored), 1e-12));

@@ -1,7 +1,7 @@
 //! Axis units of the trade and the small text markup of axis titles.
 //!
 //! Datasets hold SI values; readers of transport measurements expect cm^-3, cm^2/(V s), ohm cm
-//! and the like. `mobilis_core::units::customary_display` is the one place that knows those
+//! and the like. `mobilis_physics::units::customary_display` is the one place that knows those
 //! conversions for the contract's suffixes, so it is asked first; this module adds only the
 //! columns it does not cover (conductances in S, 1/T, T/ohm, Hall coefficients, eV) and turns
 //! the unit spelling into the title markup.
@@ -10,7 +10,7 @@
 //! that one title serves both renderers: the SVG draws shifted `tspan`s, Vega-Lite gets
 //! Unicode super- and subscripts where they exist.
 
-use mobilis_core::units::customary_display;
+use mobilis_physics::units::customary_display;
 
 /// How a column is shown: displayed = SI value * `factor` + `offset`, in `unit` (markup), with
 /// a readable `name` taken from the column's stem. The offset is zero except for the logarithm

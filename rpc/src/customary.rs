@@ -3,10 +3,10 @@
 //! um; temperatures, fields, currents, voltages and resistances stay in SI. Each converted
 //! column is renamed after its unit (`density_m3` -> `density_cm3`,
 //! `hall_mobility_m2_per_Vs_unc` -> `hall_mobility_cm2_per_Vs_unc`), as `show` and the reports
-//! label them ([`mobilis_core::units::customary_display`]). Stored tables stay in SI.
+//! label them ([`mobilis_physics::units::customary_display`]). Stored tables stay in SI.
 
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
-use mobilis_core::units::customary_display;
+use mobilis_physics::units::customary_display;
 use polars::prelude::*;
 
 /// The units a table is written in: a member of `dataset.export`'s params.

@@ -16,6 +16,7 @@ pub mod methods;
 pub mod openrpc;
 pub mod param_schema;
 pub mod plots;
+pub mod plugin_call;
 pub mod plugin_host;
 pub mod plugin_supervisor;
 pub mod plugin_worker;

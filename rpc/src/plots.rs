@@ -1,8 +1,9 @@
 //! `plot.render` and `plot.kinds`: figures of stored datasets, drawn by mobilis-plot.
 //!
 //! The daemon's part is small on purpose: find the dataset, keep the rows the client asked
-//! for (`filter`), tell the plot crate which analysis made the dataset (its provenance), and
-//! return the SVG and the Vega-Lite specification.
+//! for (`filter`), tell the plot crate which analysis made the dataset (its provenance) and
+//! the figures the loaded analyses declare ([`Service::figure_catalog`]), and return the SVG
+//! and the Vega-Lite specification. The daemon knows no figure of its own beyond `columns`.
 //!
 //! Figures are bounded before they are drawn: rows are grouped into series with one hash lookup
 //! per row, and a figure of more than `mobilis_plot::MAX_SERIES` (200) series or of more than
@@ -15,7 +16,7 @@
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use crate::service::Service;
 use crate::store::Provenance;
-use mobilis_plot::{PlotError, PlotOptions};
+use mobilis_plot::{FigureCatalog, PlotError, PlotOptions};
 use polars::prelude::*;
 use serde_json::{json, Map, Value};
 
@@ -128,6 +129,16 @@ pub fn filter_rows(frame: &DataFrame, filter: &Map<String, Value>) -> ServiceRes
 }
 
 impl Service {
+    /// The figures the loaded analyses declare: the only figures the daemon knows besides
+    /// `columns`, so that a lab's plugin is drawn as the built-in ones are.
+    pub fn figure_catalog(&self) -> FigureCatalog<'_> {
+        let mut catalog = FigureCatalog::new();
+        for (name, entry) in &self.host.analyses {
+            catalog.add(name, &entry.declaration.figures);
+        }
+        catalog
+    }
+
     /// Draws a dataset (see `plot.render` in the OpenRPC document).
     pub fn plot_render(&self, params: Map<String, Value>) -> ServiceResult<Value> {
         let dataset_name = params
@@ -197,7 +208,8 @@ impl Service {
             )
             .with_help("check the filter's values with dataset.rows"));
         }
-        let figure = mobilis_plot::build(&frame, &dataset_name, &options).map_err(|e| plot_error(&dataset_name, e))?;
+        let figure = mobilis_plot::build(&frame, &dataset_name, &options, &self.figure_catalog())
+            .map_err(|e| plot_error(&dataset_name, e))?;
         let mut answer = json!({ "dataset": dataset_name, "kind": figure.kind(), "title": figure.title() });
         if formats != Formats::VegaLite {
             answer["svg"] = json!(figure.to_svg());
@@ -211,16 +223,19 @@ impl Service {
     /// The plot kinds; with a dataset, the kinds that apply to it.
     pub fn plot_kinds(&self, dataset: Option<&str>) -> ServiceResult<Value> {
         let describe = |kind: &mobilis_plot::KindInfo| json!({ "name": kind.name, "description": kind.description, "analyses": kind.analyses });
+        let catalog = self.figure_catalog();
         match dataset {
-            None => Ok(Value::Array(mobilis_plot::kinds().iter().map(describe).collect())),
+            None => Ok(Value::Array(catalog.kinds().iter().map(describe).collect())),
             Some(name) => {
                 let dataset = self.store.get(name)?;
                 let analysis = producing_analysis(&dataset.manifest.provenance);
-                let applicable = mobilis_plot::kinds_for(analysis.as_deref());
+                // In the analysis's declared order, its default first.
+                let kinds = catalog.kinds();
                 Ok(Value::Array(
-                    mobilis_plot::kinds()
+                    catalog
+                        .kinds_for(analysis.as_deref())
                         .iter()
-                        .filter(|kind| applicable.contains(&kind.name))
+                        .filter_map(|name| kinds.iter().find(|kind| &kind.name == name))
                         .map(describe)
                         .collect(),
                 ))

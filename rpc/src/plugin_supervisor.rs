@@ -50,9 +50,9 @@
 //! same within the noise; the bare boundary, `fixture.identity` of the same nine-column table,
 //! 3.6 s against 1.9 s).
 
-use crate::plugin_host::{CallControl, InvokeFailure, InvokeSuccess, PluginIdentity};
+use crate::plugin_call::{CallControl, InvokeFailure, InvokeSuccess, PluginIdentity};
 use crate::worker_protocol::{self as protocol, Frame, FromWorker, ToWorker};
-use mobilis_core::abi::{self, PluginDeclaration};
+use mobilis_sdk::abi::{self, PluginDeclaration};
 use polars::prelude::DataFrame;
 use std::path::{Path, PathBuf};
 use std::process::{Child, ChildStdin, Command, ExitStatus, Stdio};

@@ -9,7 +9,7 @@
 
 use crate::plugin_host::{self, CallControl, OpenedLibrary};
 use crate::worker_protocol::{self as protocol, Frame, FromWorker, ToWorker};
-use mobilis_core::table_ffi::TextLayout;
+use mobilis_sdk::table_ffi::TextLayout;
 use polars::prelude::DataFrame;
 use std::fs::File;
 use std::io::{BufReader, BufWriter, Write};

@@ -7,7 +7,7 @@
 //! drawn by mobilis-plot, so the page opens the same on any machine, years later.
 //!
 //! The page is laid out here, its results found by `report/summary.rs`, and its numbers printed
-//! by `mobilis_core::quote`, the same code that `mobilis run`, `mobilis pipeline` and the demo
+//! by `mobilis_physics::quote`, the same code that `mobilis run`, `mobilis pipeline` and the demo
 //! print with (`Notation::Plain` there, `Notation::Typeset` on the page). Its tables:
 //! `hall.reduce`'s key columns are fixed; other tables lead with `temperature_K`,
 //! `carrier_type`, each `X` with its `X_unc` (at most twelve) and `flags`. An analysis output
@@ -24,21 +24,21 @@
 //! `<html>`, which the report test reads with `--dump-dom`.
 
 mod summary;
+mod text;
 
 use crate::errors::{ServiceError, ServiceResult};
 use crate::plots::filter_rows;
 use crate::service::Service;
 use crate::store::{Dataset, Provenance};
-use mobilis_core::abi;
-use mobilis_core::units::{customary_display, format_number};
+use mobilis_physics::units::{customary_display, format_number};
+use mobilis_sdk::abi;
 use polars::prelude::*;
 use serde_json::{json, Map, Value};
-use std::collections::BTreeSet;
 use std::fmt::Write;
 use std::sync::Arc;
+pub use text::SAMPLE_COLUMN;
+pub(crate) use text::{escape, samples_of};
 
-/// The column that names the sample a row belongs to.
-pub const SAMPLE_COLUMN: &str = "sample";
 /// Rows shown of a dataset produced by an analysis (they are few: one per temperature or peak).
 const ANALYSIS_ROWS_SHOWN: usize = 200;
 /// Rows shown of imported data, which can be large: the full table stays in the workspace.
@@ -53,32 +53,6 @@ const SMALLEST_TEXT_PX: f64 = 10.0;
 /// is drawn near its own size.
 const PRINT_PANEL_WIDTH: f64 = 380.0;
 const PRINT_PANEL_HEIGHT: f64 = 300.0;
-
-pub(crate) fn escape(text: &str) -> String {
-    let mut out = String::with_capacity(text.len());
-    for c in text.chars() {
-        match c {
-            '&' => out.push_str("&amp;"),
-            '<' => out.push_str("&lt;"),
-            '>' => out.push_str("&gt;"),
-            '"' => out.push_str("&quot;"),
-            '\'' => out.push_str("&#39;"),
-            c => out.push(c),
-        }
-    }
-    out
-}
-
-/// The distinct sample names of a dataset, if it has a text `sample` column.
-pub(crate) fn samples_of(dataset: &Dataset) -> BTreeSet<String> {
-    let Ok(column) = dataset.frame.column(SAMPLE_COLUMN) else {
-        return BTreeSet::new();
-    };
-    let Ok(strings) = column.str() else {
-        return BTreeSet::new();
-    };
-    strings.iter().flatten().map(str::to_owned).collect()
-}
 
 /// A cell as the report shows it, numbers in the column's customary unit
 /// (displayed = SI * factor + offset; the offset shifts ln n from m^-3 to cm^-3).
@@ -391,7 +365,7 @@ fn flags_html(frame: &DataFrame) -> Option<String> {
         .map(|(flag, count)| format!("<code>{}</code> on {count}", escape(flag)))
         .collect();
     Some(format!(
-        "<p class=\"flags raised\">Quality flags: {flagged} of {} rows flagged — {}. Thresholds and meanings: DEVELOPERS.md, hall.reduce.</p>",
+        "<p class=\"flags raised\">Quality flags: {flagged} of {} rows flagged — {}. Thresholds and meanings: the flags column and the threshold parameters in mobilis describe hall.reduce.</p>",
         frame.height(),
         list.join(", ")
     ))
@@ -710,6 +684,8 @@ impl Service {
         let mut body = summary::html(&results);
         let mut figures_drawn = 0usize;
         let mut contents = Vec::new();
+        // The figures come from the declarations of the analyses that made the datasets.
+        let catalog = self.figure_catalog();
         for (dataset, frame) in &frames {
             let name = &dataset.manifest.name;
             let _ = write!(
@@ -733,22 +709,23 @@ impl Service {
                 } => Some(analysis.as_str()),
                 _ => None,
             };
-            let kinds: Vec<&str> = match analysis {
-                Some(analysis) => mobilis_plot::kinds_for(Some(analysis))
+            let kinds: Vec<String> = match analysis {
+                Some(analysis) => catalog
+                    .kinds_for(Some(analysis))
                     .into_iter()
-                    .filter(|k| *k != "columns")
+                    .filter(|k| k != mobilis_plot::COLUMNS)
                     .collect(),
                 None => Vec::new(),
             };
             let mut drawn = Vec::new();
             let mut not_drawn = Vec::new();
-            for kind in kinds {
+            for kind in &kinds {
                 let options = mobilis_plot::PlotOptions {
-                    kind: Some(kind.to_owned()),
+                    kind: Some(kind.clone()),
                     analysis: analysis.map(str::to_owned),
                     ..Default::default()
                 };
-                match mobilis_plot::build(frame, name, &options) {
+                match mobilis_plot::build(frame, name, &options, &catalog) {
                     Ok(figure) => {
                         let svg = figure.to_svg();
                         let (width, drawn_width) = figure_width(&svg);
@@ -762,7 +739,7 @@ impl Service {
                                 height: Some(PRINT_PANEL_HEIGHT),
                                 ..options.clone()
                             };
-                            if let Ok(small) = mobilis_plot::build(frame, name, &print) {
+                            if let Ok(small) = mobilis_plot::build(frame, name, &print, &catalog) {
                                 drawn.push(format!(
                                     "<figure class=\"plot wide print-only\" data-kind=\"{}\">{}<figcaption>figure kind {} (plot.render)</figcaption></figure>",
                                     escape(kind),

@@ -16,6 +16,7 @@ use polars::prelude::*;
 use serde::ser::{Error as _, SerializeMap, SerializeSeq};
 use serde::{Serialize, Serializer};
 use serde_json::value::RawValue;
+use serde_json::{json, Value};
 
 /// One page of rows as the JSON text `dataset.rows` answers with.
 pub fn rows_page(total_rows: usize, offset: usize, frame: &DataFrame) -> serde_json::Result<Box<RawValue>> {
@@ -87,7 +88,7 @@ impl Serialize for Cells<'_> {
             // The rarer types go through one dynamically typed cell each, as before.
             _ => {
                 for cell in series.iter() {
-                    cells.serialize_element(&crate::service::cell_to_json(cell))?;
+                    cells.serialize_element(&cell_to_json(cell))?;
                 }
             }
         }
@@ -95,10 +96,77 @@ impl Serialize for Cells<'_> {
     }
 }
 
+/// A JSON value of one cell.
+pub(crate) fn cell_to_json(value: AnyValue) -> Value {
+    match value {
+        AnyValue::Null => Value::Null,
+        AnyValue::Boolean(b) => Value::Bool(b),
+        AnyValue::String(s) => Value::String(s.to_owned()),
+        AnyValue::StringOwned(s) => Value::String(s.to_string()),
+        AnyValue::Float64(f) => serde_json::Number::from_f64(f)
+            .map(Value::Number)
+            .unwrap_or(Value::Null),
+        AnyValue::Float32(f) => serde_json::Number::from_f64(f as f64)
+            .map(Value::Number)
+            .unwrap_or(Value::Null),
+        AnyValue::Int64(i) => json!(i),
+        AnyValue::Int32(i) => json!(i),
+        AnyValue::Int16(i) => json!(i),
+        AnyValue::Int8(i) => json!(i),
+        AnyValue::UInt64(i) => json!(i),
+        AnyValue::UInt32(i) => json!(i),
+        AnyValue::UInt16(i) => json!(i),
+        AnyValue::UInt8(i) => json!(i),
+        other => Value::String(other.to_string()),
+    }
+}
+
+/// The frame's columns as JSON arrays. `dataset.rows` writes the same text without building
+/// the values (above in this file); its tests compare the two.
+pub fn frame_to_json_columns(frame: &DataFrame) -> serde_json::Map<String, Value> {
+    let mut columns = serde_json::Map::new();
+    for column in frame.columns() {
+        let series = column.as_materialized_series();
+        // The common types read their values directly, without a dynamically typed cell
+        // per value; the same JSON as `cell_to_json` gives (NaN and infinities as null).
+        let values: Vec<Value> = match series.dtype() {
+            DataType::Float64 => series
+                .f64()
+                .expect("a Float64 column")
+                .iter()
+                .map(|v| {
+                    v.and_then(serde_json::Number::from_f64)
+                        .map_or(Value::Null, Value::Number)
+                })
+                .collect(),
+            DataType::Int64 => series
+                .i64()
+                .expect("an Int64 column")
+                .iter()
+                .map(|v| v.map_or(Value::Null, |i| Value::Number(i.into())))
+                .collect(),
+            DataType::String => series
+                .str()
+                .expect("a String column")
+                .iter()
+                .map(|v| v.map_or(Value::Null, |text| Value::String(text.to_owned())))
+                .collect(),
+            DataType::Boolean => series
+                .bool()
+                .expect("a Boolean column")
+                .iter()
+                .map(|v| v.map_or(Value::Null, Value::Bool))
+                .collect(),
+            _ => series.iter().map(cell_to_json).collect(),
+        };
+        columns.insert(column.name().to_string(), Value::Array(values));
+    }
+    columns
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::service::frame_to_json_columns;
     use serde_json::json;
 
     /// The text the value-building serializer gave for the same page.

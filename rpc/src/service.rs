@@ -7,9 +7,12 @@ use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use crate::param_schema;
 use crate::plugin_host::{CallControl, InvokeFailure, PluginHost};
 use crate::progress::{Outcome, ProgressHub};
+// The JSON of table cells is written beside the `dataset.rows` page that shares its rules.
+use crate::rows_json::cell_to_json;
+pub use crate::rows_json::frame_to_json_columns;
 use crate::store::{self, DatasetStore, Provenance};
 use crate::tables::{self, FileFormat};
-use mobilis_core::abi::{self, ColumnSpec, ColumnType};
+use mobilis_sdk::abi::{self, ColumnSpec, ColumnType};
 use polars::prelude::*;
 use serde_json::{json, Value};
 use std::collections::{BTreeMap, HashMap};
@@ -98,74 +101,6 @@ fn invoke_error(analysis: &str, failure: InvokeFailure) -> ServiceError {
         }
         _ => error,
     }
-}
-
-/// A JSON value of one cell.
-pub(crate) fn cell_to_json(value: AnyValue) -> Value {
-    match value {
-        AnyValue::Null => Value::Null,
-        AnyValue::Boolean(b) => Value::Bool(b),
-        AnyValue::String(s) => Value::String(s.to_owned()),
-        AnyValue::StringOwned(s) => Value::String(s.to_string()),
-        AnyValue::Float64(f) => serde_json::Number::from_f64(f)
-            .map(Value::Number)
-            .unwrap_or(Value::Null),
-        AnyValue::Float32(f) => serde_json::Number::from_f64(f as f64)
-            .map(Value::Number)
-            .unwrap_or(Value::Null),
-        AnyValue::Int64(i) => json!(i),
-        AnyValue::Int32(i) => json!(i),
-        AnyValue::Int16(i) => json!(i),
-        AnyValue::Int8(i) => json!(i),
-        AnyValue::UInt64(i) => json!(i),
-        AnyValue::UInt32(i) => json!(i),
-        AnyValue::UInt16(i) => json!(i),
-        AnyValue::UInt8(i) => json!(i),
-        other => Value::String(other.to_string()),
-    }
-}
-
-/// The frame's columns as JSON arrays. `dataset.rows` writes the same text without building
-/// the values ([`crate::rows_json`]); its tests compare the two.
-pub fn frame_to_json_columns(frame: &DataFrame) -> serde_json::Map<String, Value> {
-    let mut columns = serde_json::Map::new();
-    for column in frame.columns() {
-        let series = column.as_materialized_series();
-        // The common types read their values directly, without a dynamically typed cell
-        // per value; the same JSON as `cell_to_json` gives (NaN and infinities as null).
-        let values: Vec<Value> = match series.dtype() {
-            DataType::Float64 => series
-                .f64()
-                .expect("a Float64 column")
-                .iter()
-                .map(|v| {
-                    v.and_then(serde_json::Number::from_f64)
-                        .map_or(Value::Null, Value::Number)
-                })
-                .collect(),
-            DataType::Int64 => series
-                .i64()
-                .expect("an Int64 column")
-                .iter()
-                .map(|v| v.map_or(Value::Null, |i| Value::Number(i.into())))
-                .collect(),
-            DataType::String => series
-                .str()
-                .expect("a String column")
-                .iter()
-                .map(|v| v.map_or(Value::Null, |text| Value::String(text.to_owned())))
-                .collect(),
-            DataType::Boolean => series
-                .bool()
-                .expect("a Boolean column")
-                .iter()
-                .map(|v| v.map_or(Value::Null, Value::Bool))
-                .collect(),
-            _ => series.iter().map(cell_to_json).collect(),
-        };
-        columns.insert(column.name().to_string(), Value::Array(values));
-    }
-    columns
 }
 
 /// Casts one declared column to the type the plugin expects, or says why it cannot.

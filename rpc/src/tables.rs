@@ -19,7 +19,7 @@
 //!    ending with one name, are errors that list the columns.
 //! 4. **Units** (`units: {column: unit}`, [`apply_units`]), naming columns by their name
 //!    after rename. The values are converted into SI and the column renamed by the
-//!    `quantity_unit` convention of `mobilis_core::units` (`temperature_C` in `degC` becomes
+//!    `quantity_unit` convention of `mobilis_physics::units` (`temperature_C` in `degC` becomes
 //!    `temperature_K`, `field_kG` in `kG` becomes `field_T`, a name without a unit suffix gets
 //!    one appended); `{column: {"unit": "...", "to": "new_name"}}` chooses the new name
 //!    instead ([`UnitSpec`]). A text column given a unit is accepted when every cell reads as
@@ -38,7 +38,7 @@
 
 use crate::csv_dialect::{self, CsvDialect, SourceMap};
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
-use mobilis_core::units;
+use mobilis_physics::units;
 use polars::prelude::*;
 use std::collections::BTreeMap;
 use std::fs::File;

@@ -45,47 +45,16 @@
 //! that a call stops when its HTTP client or WebSocket goes.
 
 mod access;
+mod limits;
 mod messages;
 mod stdio;
 mod web;
 
 pub use access::{check_token_setting, AccessPolicy};
+pub use limits::{MAX_CONNECTIONS, MAX_REQUEST_BYTES, MAX_RESPONSE_BYTES, MAX_STDIO_FRAME_BYTES};
+pub use messages::{method_not_found, METHOD_NOT_FOUND};
 pub use stdio::serve_stdio;
 pub use web::{serve_http, ServerHandle};
-
-use jsonrpsee::types::ErrorObjectOwned;
-
-/// Largest request body the HTTP transport accepts (inline imports are the large ones).
-pub const MAX_REQUEST_BYTES: u32 = 64 * 1024 * 1024;
-/// Largest response body (a page of `dataset.rows`).
-pub const MAX_RESPONSE_BYTES: u32 = 256 * 1024 * 1024;
-/// Simultaneous connections.
-pub const MAX_CONNECTIONS: u32 = 64;
-/// Largest stdio frame.
-pub const MAX_STDIO_FRAME_BYTES: usize = 64 * 1024 * 1024;
-
-/// The JSON-RPC code of an unknown method (kept: clients recognise it).
-pub const METHOD_NOT_FOUND: i32 = -32601;
-
-/// The error for a method the daemon does not serve: names it and the closest ones.
-pub fn method_not_found(asked: &str, known: &[String]) -> ErrorObjectOwned {
-    let closest = crate::suggest::closest_names(asked, known.iter().map(String::as_str));
-    let message = if closest.is_empty() {
-        format!("no method named `{asked}`; rpc.discover lists every method")
-    } else {
-        format!("no method named `{asked}`; did you mean {}?", closest.join(", "))
-    };
-    ErrorObjectOwned::owned(
-        METHOD_NOT_FOUND,
-        message,
-        Some(serde_json::json!({
-            "kind": "method_not_found",
-            "method": asked,
-            "closest": closest,
-            "help": "rpc.discover lists every method with its parameters",
-        })),
-    )
-}
 
 #[cfg(test)]
 mod tests {

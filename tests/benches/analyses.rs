@@ -2,7 +2,7 @@
 //!
 //! - `carriers.freeze_out_fit` on a temperature series of 100 points (20 K to 400 K) of an
 //!   invented compensated n-type silicon sample, generated with the full charge-neutrality
-//!   model of `mobilis_core::forward::statistics` and 0.5 % noise;
+//!   model of `mobilis_physics::forward::statistics` and 0.5 % noise;
 //! - `spectrum.mobility` on a 200-point grid per carrier sign and 140 fields (two 70-point
 //!   branches to 9 T), three invented carriers, 5e-4 noise, with its default 24 bootstrap
 //!   replicas for the peak uncertainties;
@@ -28,9 +28,9 @@
 //! It builds the release plugin libraries first. Each figure is the wall time of one call
 //! after one untimed warm-up, median and fastest of several repetitions.
 
-use mobilis_core::forward::statistics::{solve_charge_neutrality, BandModel, Dopants};
-use mobilis_core::forward::tensor::{symmetric_fields, synthetic_sweep, Carrier, SweepImperfections, SweepNoise};
-use mobilis_core::noise::Rng;
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::forward::statistics::{solve_charge_neutrality, BandModel, Dopants};
+use mobilis_physics::forward::tensor::{symmetric_fields, synthetic_sweep, Carrier, SweepImperfections, SweepNoise};
 use mobilis_rpc::plugin_host::CallControl;
 use mobilis_tests::bench::{
     build_release_plugins, fail, format_kib, format_seconds, invoked_as_benchmark, load_plugins, measure, peak_rss_kib,

@@ -15,11 +15,22 @@
 //! Each time is the wall time of one build-and-render after one untimed warm-up, median and
 //! fastest of several repetitions.
 
-use mobilis_plot::PlotOptions;
+use mobilis_plot::{FigureCatalog, FigureSpec, PlotOptions};
 use mobilis_tests::bench::{format_kib, format_seconds, invoked_as_benchmark, measure, peak_rss_kib};
 use polars::prelude::*;
 
 const BENCH: &str = "figures";
+
+// `hall.reduce`'s figure declarations, read from the plugin's source as the daemon would get
+// them from its declaration.
+#[path = "../../plugins/hall/src/figures.rs"]
+mod hall_figures;
+
+/// The figures the bench draws by kind: those `hall.reduce` declares.
+fn hall_declarations() -> &'static [FigureSpec] {
+    static FIGURES: std::sync::OnceLock<Vec<FigureSpec>> = std::sync::OnceLock::new();
+    FIGURES.get_or_init(hall_figures::reduce)
+}
 
 /// A table shaped like `hall.reduce` output: sample, temperature, density with uncertainty.
 fn reduced_table(samples: usize, temperatures: usize) -> DataFrame {
@@ -56,11 +67,13 @@ fn readings(rows: usize) -> DataFrame {
 }
 
 fn report(label: &str, frame: &DataFrame, options: &PlotOptions) {
-    let figure = mobilis_plot::build(frame, "bench", options).expect("the figure builds");
+    let mut catalog = FigureCatalog::new();
+    catalog.add("hall.reduce", hall_declarations());
+    let figure = mobilis_plot::build(frame, "bench", options, &catalog).expect("the figure builds");
     let svg_bytes = figure.to_svg().len();
     let vega_bytes = figure.to_vega_lite().to_string().len();
     let timing = measure(1, 5, || {
-        let figure = mobilis_plot::build(frame, "bench", options).expect("the figure builds");
+        let figure = mobilis_plot::build(frame, "bench", options, &catalog).expect("the figure builds");
         (figure.to_svg().len(), figure.to_vega_lite().to_string().len())
     });
     println!(

@@ -11,7 +11,7 @@
 //! It first builds the release plugin libraries it loads (`cargo build --release -p
 //! mobilis-plugin-hall -p mobilis-test-fixture`, into `target/release` or
 //! `$CARGO_TARGET_DIR/release`) and stops with cargo's message if that fails. It then
-//! generates, with the forward models of `mobilis_core::forward` and a fixed seed
+//! generates, with the forward models of `mobilis_physics::forward` and a fixed seed
 //! ([`mobilis_tests::hall_readings`], shared with the `daemon` benchmark), a
 //! temperature run of 100 compensated n-type silicon van der Pauw pieces at 625 temperatures
 //! (26 K to 650 K), 16 readings each (8 resistance readings at zero field, 8 Hall readings
@@ -50,7 +50,7 @@
 //!   no compute. (c) `table_ffi::export_frame` followed by `table_ffi::import_frame` in the
 //!   same process: one crossing without a plugin. (b') and (c'): the same without the
 //!   `sample` column. Every column crosses without a copy (text as Arrow string views, see
-//!   `mobilis_core::table_ffi`), so the difference between (b) and (b') is what the text
+//!   `mobilis_sdk::table_ffi`), so the difference between (b) and (b') is what the text
 //!   column costs: one buffer more, no copy.
 //! - `isolated`: (a-iso) and (b-iso): (a) and (b) with the plugins isolated, as the daemon
 //!   runs a `--plugin-dir` library: the call goes to a worker process (`mobilisd
@@ -68,9 +68,9 @@
 //! Cargo passes `--bench` to the binary under `cargo bench`; without it (for example under
 //! `cargo test --all-targets`, in a debug build) the binary only says how to run it.
 
-use mobilis_core::table_ffi;
 use mobilis_rpc::plugin_host::{CallControl, PluginHost};
 use mobilis_rpc::plugin_supervisor::WorkerSettings;
+use mobilis_sdk::table_ffi;
 use mobilis_tests::bench::{self, compare_json, format_kib, format_seconds, peak_rss_kib, relative_difference, Timing};
 use mobilis_tests::hall_readings::{self, READINGS_PER_TEMPERATURE, SAMPLE_COUNT, SETPOINT_COUNT};
 use polars::prelude::*;

@@ -3,7 +3,7 @@
 //! - six sweeps of 4,000 points each (1.5 K to 10 K, 0.05 T to 14 T at a constant ramp
 //!   rate) of an invented two-dimensional electron gas (F = 10 T, m* = 0.067 m0,
 //!   T_D = 0.5 K) on a parabolic background, generated with
-//!   `mobilis_core::forward::oscillations` with 5 mOhm of noise;
+//!   `mobilis_physics::forward::oscillations` with 5 mOhm of noise;
 //! - one sweep of 40,000 points at 1.5 K: a 0 to 14 T ramp logged continuously at 10 Hz;
 //! - the peak memory of the call on one such ramp of 10,000, 20,000 and 40,000 points (the
 //!   peak resident set is reset before each call), which should grow linearly.
@@ -26,9 +26,9 @@
 //! if it exceeds 1e-12 or if any text, null or count differs. Save before a change to the
 //! analysis, compare after. `OSCILLATIONS_CHECK_ONLY=1` runs the check without the timings.
 
-use mobilis_core::forward::oscillations::{synthetic_sdh_sweep, OscillationComponent, SdhModel};
-use mobilis_core::forward::tensor::SweepNoise;
-use mobilis_core::noise::Rng;
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::forward::oscillations::{synthetic_sdh_sweep, OscillationComponent, SdhModel};
+use mobilis_physics::forward::tensor::SweepNoise;
 use mobilis_rpc::plugin_host::{CallControl, PluginHost};
 use mobilis_tests::bench::{
     self, build_release_plugins, compare_json, fail, format_kib, format_seconds, invoked_as_benchmark, load_plugins,

@@ -1,18 +1,18 @@
 //! The raw readings of a temperature run of compensated n-type silicon van der Pauw pieces,
-//! generated with the forward models of `mobilis_core::forward` and a fixed seed: the data
+//! generated with the forward models of `mobilis_physics::forward` and a fixed seed: the data
 //! of the `hall_reduce` and `daemon` benchmarks. Each piece is measured at 625 temperatures
 //! (26 K to 650 K), 16 readings each (8 resistance readings at zero field, 8 Hall readings
 //! at +-0.5 T), with voltmeter noise, thermoelectric offsets, Hall misalignment, controller
 //! jitter and the six lab wirings. The sample sheet (thickness, Hall factor) is the
 //! `samples` table of `hall.reduce`.
 
-use mobilis_core::forward::mobility::hall_scattering_factor;
-use mobilis_core::forward::readings::{
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::forward::mobility::hall_scattering_factor;
+use mobilis_physics::forward::readings::{
     van_der_pauw_readings, CurrentReversal, MeasurementProtocol, VanDerPauwSample, VoltageNoise, VoltmeterWiring,
 };
-use mobilis_core::forward::statistics::{BandModel, Dopants};
-use mobilis_core::forward::transport::{n_type_transport, MobilityModel};
-use mobilis_core::noise::Rng;
+use mobilis_physics::forward::statistics::{BandModel, Dopants};
+use mobilis_physics::forward::transport::{n_type_transport, MobilityModel};
 use polars::prelude::*;
 
 /// The seed of every random number of the dataset.

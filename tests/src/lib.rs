@@ -208,9 +208,11 @@ pub fn van_der_pauw_run(
     offsets_v: [f64; 6],
     misalignment: f64,
     seed: u64,
-) -> Vec<mobilis_core::readings::RawReading> {
-    use mobilis_core::forward::readings::{van_der_pauw_readings, MeasurementProtocol, VanDerPauwSample, VoltageNoise};
-    let mut rng = mobilis_core::noise::Rng::seeded(seed);
+) -> Vec<mobilis_physics::readings::RawReading> {
+    use mobilis_physics::forward::readings::{
+        van_der_pauw_readings, MeasurementProtocol, VanDerPauwSample, VoltageNoise,
+    };
+    let mut rng = mobilis_numerics::noise::Rng::seeded(seed);
     let mut readings = Vec::new();
     for &(name, sheet, ratio, hall) in samples {
         for &temperature in temperatures_k {

@@ -1,7 +1,7 @@
 //! `mobilis describe ANALYSIS`: an analysis's inputs and parameters as a person reads them,
 //! from `analysis.describe` (the parameters' JSON Schema, the input roles' columns).
 
-use mobilis_core::units::unit_from_column_name;
+use mobilis_physics::units::unit_from_column_name;
 use serde_json::{Map, Value};
 use std::fmt::Write;
 

@@ -124,7 +124,7 @@ enum Command {
         #[arg(long, value_name = "SECONDS")]
         deadline: Option<f64>,
     },
-    /// Run a pipeline file (TOML: [[import]] and [[step]] tables; see DEVELOPERS.md).
+    /// Run a pipeline file (TOML: [[import]] and [[step]] tables; demo-data/pipeline.toml is an example).
     Pipeline {
         /// The pipeline file; its import paths are relative to it.
         file: PathBuf,
@@ -252,7 +252,7 @@ fn parse_key_value(text: &str) -> Result<(String, String), String> {
 
 /// The units `--unit COLUMN=UNIT` accepts, per quantity, as the unit table lists them.
 fn accepted_units_help() -> String {
-    use mobilis_core::units::Quantity;
+    use mobilis_physics::units::Quantity;
     let mut text = String::from(
         "Units accepted by `mobilis import --unit COLUMN=UNIT` (the column is converted into SI \
          and renamed after the SI unit, e.g. temperature_C=degC becomes temperature_K):\n",

@@ -3,8 +3,8 @@
 //! the warnings; per group when the run was grouped. `mobilis run`, `mobilis pipeline` and
 //! the demo print values the same way.
 
-use mobilis_core::quote::{self, Notation};
-use mobilis_core::units::format_number;
+use mobilis_physics::quote::{self, Notation};
+use mobilis_physics::units::format_number;
 use serde_json::{Map, Value};
 use std::fmt::Write;
 
@@ -39,7 +39,7 @@ const FIT_QUALITY: &[&str] = &[
     "birge_ratio",
 ];
 
-/// The readable name of a key and its customary unit (`mobilis_core::quote`, as the report
+/// The readable name of a key and its customary unit (`mobilis_physics::quote`, as the report
 /// pages quote it). `None` for a key that carries no unit.
 fn shown(key: &str, value: f64) -> Option<Shown> {
     let unit = quote::summary_unit(key, value)?;

@@ -1,7 +1,7 @@
 //! Plain-text tables of dataset pages, in the customary units of the trade.
 
-use mobilis_core::units::customary_display;
-pub use mobilis_core::units::format_number;
+use mobilis_physics::units::customary_display;
+pub use mobilis_physics::units::format_number;
 use serde_json::Value;
 
 /// Renders `{column: [values]}` as aligned text; numbers converted to customary units

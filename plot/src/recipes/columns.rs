@@ -1,10 +1,11 @@
-//! The `columns` recipe: any numeric columns against one another, for imported data and for
-//! the columns no recipe draws.
+//! The `columns` figure: any numeric columns against one another, for imported data and for
+//! the columns no declared figure draws.
 
 use super::{all_rows, points, Context, Drawing};
+use crate::error::PlotError;
 use crate::figure::{AxisSpec, Series, SHAPES};
 use crate::units::{column_display, is_density_unit};
-use crate::PlotError;
+use mobilis_sdk::abi::SeriesKey;
 
 pub(crate) fn build(ctx: &Context) -> Result<Drawing, PlotError> {
     let options = ctx.options;
@@ -33,9 +34,10 @@ pub(crate) fn build(ctx: &Context) -> Result<Drawing, PlotError> {
     let x_display = column_display(x_name);
     let rows = all_rows(ctx.frame);
     // The x column is the abscissa, never a series key.
-    let defaults: Vec<&str> = ["sample", "temperature_K"]
+    let defaults: Vec<SeriesKey> = ["sample", "temperature_K"]
         .into_iter()
         .filter(|c| *c != x_name)
+        .map(SeriesKey::column)
         .collect();
     let groups = ctx.groups(&rows, &defaults)?;
     let y_displays: Vec<_> = options.y.iter().map(|y| column_display(y)).collect();

@@ -1,208 +1,51 @@
-//! The recipes: which figure each kind draws from a dataset, and the shared reading of
-//! columns, series grouping and unit conversion they use.
+//! The two ways a figure is built (a plugin's declared figure, [`declared`], and the generic
+//! `columns` figure, [`columns`]) and the shared reading of columns, series grouping and unit
+//! conversion they use.
 //!
-//! A recipe knows the output table of the analysis it serves (its columns, and for tables
-//! with several row kinds the `kind` values) and draws what the trade draws from it. Values
-//! enter the figure already in displayed units (`crate::units`), so the renderers never
-//! convert.
+//! Nothing here knows an analysis: what a table's columns mean and how they are drawn comes
+//! from the declaration of the analysis that made it. Values enter the figure already in
+//! displayed units (`crate::units`), so the renderers never convert.
 
-mod carriers;
-mod columns;
-mod sweeps;
+pub(crate) mod columns;
+pub(crate) mod declared;
 
 use polars::prelude::*;
 
+use crate::error::PlotError;
 use crate::figure::{format_value, Panel, Point};
+use crate::options::PlotOptions;
 use crate::units::column_display;
-use crate::{PlotError, PlotOptions};
+use mobilis_sdk::abi::SeriesKey;
 
-/// What a recipe returns: its panels and a default title.
+/// What a builder returns: its panels and a default title.
 pub(crate) struct Drawing {
     pub title: String,
     pub panels: Vec<Panel>,
 }
 
-impl Drawing {
-    /// A drawing of one untitled panel, as most recipes make.
-    pub(crate) fn single(
-        title: &str,
-        x: crate::figure::AxisSpec,
-        y: crate::figure::AxisSpec,
-        series: Vec<crate::figure::Series>,
-    ) -> Drawing {
-        Drawing {
-            title: title.into(),
-            panels: vec![Panel::new(None, x, y, series)],
-        }
-    }
+/// The kind being drawn, as error messages name it: its name, the columns it draws and the
+/// analyses whose tables it is declared for.
+pub(crate) struct KindRef {
+    pub name: String,
+    pub needs: String,
+    pub analyses: Vec<String>,
 }
 
-/// One recipe: its public description, the columns it needs (for the error message) and its
-/// builder.
-pub(crate) struct Recipe {
-    pub name: &'static str,
-    pub description: &'static str,
-    pub analyses: &'static [&'static str],
-    pub needs: &'static str,
-    pub build: fn(&Context) -> Result<Drawing, PlotError>,
-}
-
-/// Every recipe, `columns` first; for an analysis the first recipe listing it is its default.
-pub(crate) static RECIPES: &[Recipe] = &[
-    Recipe {
-        name: "columns",
-        description: "Any dataset: the columns `y` against `x`, one series per combination of `series_by`, with error bars from `y_error` or the columns' `_unc` companions; axes in the units of the trade.",
-        analyses: &[],
-        needs: "the columns named by x and y",
-        build: columns::build,
-    },
-    Recipe {
-        name: "hall_density",
-        description: "Carrier density against temperature, log density axis, one series per sample (and field): the volume density in cm^-3, or the sheet density in cm^-2 for 2D samples.",
-        analyses: &["hall.reduce"],
-        needs: "temperature_K and density_m3 (or sheet_density_m2)",
-        build: carriers::hall_density,
-    },
-    Recipe {
-        name: "hall_mobility",
-        description: "Hall mobility in cm^2/(V s) against temperature, log-log, one series per sample (and field).",
-        analyses: &["hall.reduce"],
-        needs: "temperature_K and hall_mobility_m2_per_Vs",
-        build: carriers::hall_mobility,
-    },
-    Recipe {
-        name: "hall_resistivity",
-        description: "Resistivity in ohm cm (sheet resistance in ohm/sq for 2D samples) against temperature, log resistivity axis, one series per sample.",
-        analyses: &["hall.reduce"],
-        needs: "temperature_K and resistivity_ohm_m (or sheet_resistance_ohm_sq)",
-        build: carriers::hall_resistivity,
-    },
-    Recipe {
-        name: "freeze_out",
-        description: "Freeze-out: measured density (points with error bars) and the fitted charge-neutrality model (line) against 1000/T, log density axis, one colour per sample.",
-        analyses: &["carriers.freeze_out_fit"],
-        needs: "kind, temperature_K, density_m3 and fitted_density_m3",
-        build: carriers::freeze_out,
-    },
-    Recipe {
-        name: "arrhenius",
-        description: "Arrhenius plot: ln(n T^-3/2) (or ln(n T^-3/4), as the fit used) with n in cm^-3 against 1000/T; points on the fitted line filled, the others open, and the fitted line over its range.",
-        analyses: &["carriers.arrhenius"],
-        needs: "temperature_K, ln_reduced_density_m3, ln_reduced_density_fit_m3 and used",
-        build: carriers::arrhenius,
-    },
-    Recipe {
-        name: "mobility_scattering",
-        description: "Mobility against temperature, log-log: measured points with error bars (open when outside the fitted range), the fitted total (Matthiessen) and each scattering term as dashed lines.",
-        analyses: &["carriers.mobility_scattering"],
-        needs: "temperature_K, mobility_m2_per_Vs and fitted_mobility_m2_per_Vs",
-        build: carriers::mobility_scattering,
-    },
-    Recipe {
-        name: "mobility_spectrum",
-        description: "Mobility spectrum: d sigma / d ln mu against mobility (log axis), electrons and holes in their own colours, the regularized spectrum solid and the Beck-Anderson envelope dashed; one panel per sample and temperature.",
-        analyses: &["spectrum.mobility"],
-        needs: "mobility_m2_per_Vs, electron_spectrum_S, hole_spectrum_S (envelopes optional)",
-        build: sweeps::mobility_spectrum,
-    },
-    Recipe {
-        name: "conductivity_fit",
-        description: "Multi-carrier fit in conductivity space: measured sigma_xx and sigma_xy (points) and the fitted model (lines) against field, one panel each.",
-        analyses: &["spectrum.multi_carrier_fit"],
-        needs: "field_T, sigma_xx_S, sigma_xy_S, sigma_xx_fit_S and sigma_xy_fit_S",
-        build: sweeps::conductivity_fit,
-    },
-    Recipe {
-        name: "resistivity_fit",
-        description: "Fit in resistivity space: measured rho_xx and rho_xy (points) and the fitted model (lines) against field, one panel each.",
-        analyses: &["mr.two_band_fit", "spectrum.multi_carrier_fit"],
-        needs: "field_T, rho_xx_ohm_sq, rho_xy_ohm, rho_xx_fit_ohm_sq and rho_xy_fit_ohm",
-        build: sweeps::resistivity_fit,
-    },
-    Recipe {
-        name: "magnetoresistance",
-        description: "Magnetoresistance (rho(B) - rho(0)) / rho(0) in percent against field, one series per sample and temperature, with error bars; from mr.symmetrize output rho(0) is the zero-field row.",
-        analyses: &["mr.ratio", "mr.symmetrize"],
-        needs: "field_T and magnetoresistance (or rho_xx_ohm_sq with a zero-field row)",
-        build: sweeps::magnetoresistance,
-    },
-    Recipe {
-        name: "symmetrized",
-        description: "The symmetrized sweep: even rho_xx and odd rho_xy against field, one panel each, with error bars.",
-        analyses: &["mr.symmetrize"],
-        needs: "field_T, rho_xx_ohm_sq and rho_xy_ohm",
-        build: sweeps::symmetrized,
-    },
-    Recipe {
-        name: "kohler",
-        description: "Kohler plot: Delta rho / rho0 against B / rho0, log-log, one series per temperature; points outside the range common to all curves open.",
-        analyses: &["mr.kohler"],
-        needs: "temperature_K, x_T_per_ohm and magnetoresistance",
-        build: sweeps::kohler,
-    },
-    Recipe {
-        name: "oscillation_fft",
-        description: "Shubnikov-de Haas spectrum: FFT amplitude against frequency (T), one line per temperature (rows of kind fft).",
-        analyses: &["mr.oscillations"],
-        needs: "kind, temperature_K, frequency_T and value_ohm_sq",
-        build: sweeps::oscillation_fft,
-    },
-    Recipe {
-        name: "oscillation_mass",
-        description: "Mass plot: oscillation amplitude / T against T (log amplitude axis) for each narrow 1/B window, with the window's Lifshitz-Kosevich fit as a line (rows of kind mass and mass_fit).",
-        analyses: &["mr.oscillations"],
-        needs: "kind, temperature_K, field_T, value_ohm_sq (rows of kind mass)",
-        build: sweeps::oscillation_mass,
-    },
-    Recipe {
-        name: "oscillation_curves",
-        description: "The oscillatory part of rho_xx (background removed) against 1/B, one line per temperature (rows of kind oscillation).",
-        analyses: &["mr.oscillations"],
-        needs: "kind, temperature_K, inverse_field_per_T and value_ohm_sq",
-        build: sweeps::oscillation_curves,
-    },
-    Recipe {
-        name: "dingle",
-        description: "Dingle plot: ln(A sinh X / X) against 1/B at the reference temperature, with error bars (rows of kind dingle), and the fitted line whose slope gives T_D (rows of kind dingle_fit).",
-        analyses: &["mr.oscillations"],
-        needs: "kind, inverse_field_per_T and dingle_ordinate",
-        build: sweeps::dingle,
-    },
-    Recipe {
-        name: "landau_fan",
-        description: "Landau fan: the Landau level index of each extremum of rho_xx against 1/B (minima filled at integers, maxima open at half-integers, rows of kind landau) and the fitted line from 1/B = 0, slope F and intercept beta (rows of kind landau_fit); needs mr.oscillations with landau_fan: true.",
-        analyses: &["mr.oscillations"],
-        needs: "kind, inverse_field_per_T and landau_index",
-        build: sweeps::landau_fan,
-    },
-    Recipe {
-        name: "weak_localization",
-        description: "Weak localization: Delta sigma against field (points with error bars, open outside the fitted range) and the Hikami-Larkin-Nagaoka fit (line).",
-        analyses: &["mr.weak_localization"],
-        needs: "field_T, delta_sigma_S and model_S",
-        build: sweeps::weak_localization,
-    },
-];
-
-pub(crate) fn find(name: &str) -> Option<&'static Recipe> {
-    RECIPES.iter().find(|r| r.name == name)
-}
-
-/// The error for a column `recipe` needs and `dataset` lacks.
-pub(crate) fn missing_column(recipe: &Recipe, dataset: &str, column: &str, columns: &[String]) -> PlotError {
-    let made_by = if recipe.analyses.is_empty() {
+/// The error for a column `kind` needs and `dataset` lacks.
+pub(crate) fn missing_column(kind: &KindRef, dataset: &str, column: &str, columns: &[String]) -> PlotError {
+    let made_by = if kind.analyses.is_empty() {
         "any analysis or import".to_owned()
     } else {
-        recipe.analyses.join(" or ")
+        kind.analyses.join(" or ")
     };
     PlotError::MissingColumn {
-        kind: recipe.name.to_owned(),
+        kind: kind.name.clone(),
         column: column.to_owned(),
         dataset: dataset.to_owned(),
         detail: format!(
             "kind `{}` draws {}; the dataset's columns are {}; such a dataset is made by {made_by}",
-            recipe.name,
-            recipe.needs,
+            kind.name,
+            kind.needs,
             columns.join(", ")
         ),
     }
@@ -222,7 +65,7 @@ pub(crate) struct Context<'a> {
     pub frame: &'a DataFrame,
     pub dataset: &'a str,
     pub options: &'a PlotOptions,
-    pub recipe: &'static Recipe,
+    pub kind: &'a KindRef,
 }
 
 impl Context<'_> {
@@ -233,7 +76,7 @@ impl Context<'_> {
     fn missing(&self, name: &str) -> PlotError {
         let mut columns: Vec<String> = self.frame.get_column_names().iter().map(|c| c.to_string()).collect();
         columns.sort();
-        missing_column(self.recipe, self.dataset, name, &columns)
+        missing_column(self.kind, self.dataset, name, &columns)
     }
 
     /// A numeric column as f64 (nulls as NaN, which the figure skips).
@@ -266,15 +109,6 @@ impl Context<'_> {
             .collect())
     }
 
-    /// An optional numeric column in displayed units.
-    pub fn displayed_opt(&self, name: &str) -> Result<Option<Vec<f64>>, PlotError> {
-        if self.has(name) {
-            self.displayed(name).map(Some)
-        } else {
-            Ok(None)
-        }
-    }
-
     /// A column as text (numbers formatted), nulls as None.
     pub fn texts(&self, name: &str) -> Result<Vec<Option<String>>, PlotError> {
         let column = self.frame.column(name).map_err(|_| self.missing(name))?;
@@ -304,20 +138,24 @@ impl Context<'_> {
         Some(cast.bool().ok()?.iter().map(|v| v.unwrap_or(false)).collect())
     }
 
-    /// The rows whose `kind` column holds `kind`; all rows when `kind_column` is absent.
-    pub fn rows_of_kind(&self, kind: &str) -> Result<Vec<usize>, PlotError> {
-        let kinds = self.texts("kind")?;
-        Ok((0..kinds.len())
-            .filter(|&i| kinds[i].as_deref() == Some(kind))
-            .collect())
+    /// The `kind` column of a table with several row kinds, as the index of each row's kind
+    /// among `names` (None for any other kind and for nulls), read once for a whole figure:
+    /// an oscillation table holds a hundred thousand rows of five kinds.
+    pub fn kind_codes(&self, names: &[&str]) -> Result<Vec<Option<usize>>, PlotError> {
+        let code = |kind: Option<&str>| kind.and_then(|k| names.iter().position(|n| *n == k));
+        if let Ok(strings) = self.frame.column("kind").and_then(|c| c.str()) {
+            return Ok(strings.iter().map(code).collect());
+        }
+        Ok(self.texts("kind")?.iter().map(|k| code(k.as_deref())).collect())
     }
 
-    /// Splits `rows` into series by `options.series_by`, or by the recipe's `defaults` that
-    /// are present and take more than one value among the rows. Temperatures and fields
-    /// count by their nominal values ([`nominal_keys`]), other columns by their text.
-    pub fn groups(&self, rows: &[usize], defaults: &[&str]) -> Result<Vec<Group>, PlotError> {
+    /// Splits `rows` into series by `options.series_by`, or by the figure's `defaults` that
+    /// are present and take more than one value among the rows (or are marked `always`).
+    /// Temperatures and fields count by their nominal values ([`nominal_keys`]), other columns
+    /// by their text.
+    pub fn groups(&self, rows: &[usize], defaults: &[SeriesKey]) -> Result<Vec<Group>, PlotError> {
         let chosen_by_caller = self.options.series_by.is_some();
-        let candidates: Vec<String> = match &self.options.series_by {
+        let candidates: Vec<SeriesKey> = match &self.options.series_by {
             Some(columns) => {
                 for column in columns {
                     if !self.has(column) {
@@ -333,19 +171,15 @@ impl Context<'_> {
                         )));
                     }
                 }
-                columns.clone()
+                columns.iter().map(|c| SeriesKey::column(c)).collect()
             }
-            None => defaults
-                .iter()
-                .filter(|c| self.has(c))
-                .map(|c| (*c).to_owned())
-                .collect(),
+            None => defaults.iter().filter(|c| self.has(&c.column)).cloned().collect(),
         };
         let mut columns = Vec::new();
         let mut values: Vec<Vec<Option<String>>> = Vec::new();
         for column in candidates {
-            let keys = self.group_keys(&column, rows)?;
-            if !chosen_by_caller {
+            let keys = self.group_keys(&column.column, rows)?;
+            if !chosen_by_caller && !column.always {
                 let varies = rows
                     .first()
                     .is_some_and(|&first| rows.iter().any(|&r| keys[r] != keys[first]));
@@ -372,7 +206,7 @@ impl Context<'_> {
             let owned: Vec<Option<String>> = key.iter().map(|k| k.map(str::to_owned)).collect();
             index_of.insert(key, groups.len());
             groups.push(Group {
-                label: group_label(&columns, &owned),
+                label: self.group_label(&columns, &owned, row)?,
                 rows: vec![row],
             });
         }
@@ -380,11 +214,11 @@ impl Context<'_> {
     }
 
     /// The refusal of a figure with more than [`MAX_SERIES`] series, before anything is drawn.
-    fn too_many_series(&self, columns: &[String]) -> PlotError {
+    fn too_many_series(&self, columns: &[SeriesKey]) -> PlotError {
         let by = if columns.is_empty() {
             "its series".to_owned()
         } else {
-            columns.join(", ")
+            columns.iter().map(|c| c.column.as_str()).collect::<Vec<_>>().join(", ")
         };
         PlotError::TooLarge(format!(
             "dataset `{}` would draw more than {MAX_SERIES} series (one per value of {by}), too many to read or to draw in time; keep part of the rows with filter, for example {{\"sample\": \"W1\"}}, or choose series_by with fewer values (series_by: [] draws one series)",
@@ -432,7 +266,7 @@ pub(crate) const FIELD_SETPOINT_T: f64 = 5e-3;
 /// by the roundest number within half that tolerance of its mean ([`roundest`]): a sample
 /// measured at 0.4997-0.5002 T is one series "0.5 T", not ten series of exact means.
 pub(crate) fn nominal_keys(values: &[f64], rows: &[usize], setpoint: Setpoint) -> Vec<Option<String>> {
-    let grouping = mobilis_core::sweep_table::TemperatureGrouping::default();
+    let grouping = mobilis_physics::sweep::TemperatureGrouping::default();
     let mut sorted: Vec<(f64, usize)> = rows
         .iter()
         .filter(|&&r| values[r].is_finite())
@@ -485,22 +319,28 @@ pub(crate) fn roundest(value: f64, tolerance: f64) -> f64 {
     value
 }
 
-/// "A, 300 K, 0.5 T": sample names as they are, quantities with their unit.
-fn group_label(columns: &[String], key: &[Option<String>]) -> String {
-    let parts: Vec<String> = columns
-        .iter()
-        .zip(key)
-        .map(|(column, value)| {
-            let value = value.clone().unwrap_or_else(|| "none".to_owned());
-            match column.as_str() {
+impl Context<'_> {
+    /// "A, 300 K, 0.5 T": sample names as they are, quantities with their unit, a key's
+    /// prefix before its value; an `exact` key shows the value of the group's `first` row.
+    fn group_label(&self, columns: &[SeriesKey], key: &[Option<String>], first: usize) -> Result<String, PlotError> {
+        let mut parts: Vec<String> = Vec::new();
+        for (column, value) in columns.iter().zip(key) {
+            let mut value = value.clone().unwrap_or_else(|| "none".to_owned());
+            if column.exact {
+                if let Some(exact) = self.floats(&column.column)?.get(first).filter(|v| v.is_finite()) {
+                    value = format_value(*exact);
+                }
+            }
+            let text = match column.column.as_str() {
                 "sample" => value,
                 "temperature_K" => format!("{value} K"),
                 "field_T" => format!("{value} T"),
                 other => format!("{other} = {value}"),
-            }
-        })
-        .collect();
-    parts.join(", ")
+            };
+            parts.push(format!("{}{text}", column.prefix));
+        }
+        Ok(parts.join(", "))
+    }
 }
 
 /// Points at `rows` from displayed x and y (and optional y errors).
@@ -508,11 +348,6 @@ pub(crate) fn points(rows: &[usize], x: &[f64], y: &[f64], y_err: Option<&[f64]>
     rows.iter()
         .map(|&r| Point::new(x[r], y[r]).with_y_err(y_err.map(|e| e[r])))
         .collect()
-}
-
-/// 1000/T in 1/K, the customary abscissa of freeze-out and Arrhenius plots.
-pub(crate) fn inverse_temperature(temperatures_k: &[f64]) -> Vec<f64> {
-    temperatures_k.iter().map(|t| 1000.0 / t).collect()
 }
 
 /// A series name within a group: "A: fit", or just "fit" when there is one group.

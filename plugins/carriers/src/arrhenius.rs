@@ -24,13 +24,13 @@
 //!
 //! # The straight line
 //!
-//! A weighted least-squares line (`mobilis_core::fit::fit_line`) when every point has a
+//! A weighted least-squares line (`mobilis_numerics::fit::fit_line`) when every point has a
 //! density uncertainty; unweighted otherwise (standard errors from the scatter about the
 //! line, and no use for temperature uncertainties). The weights:
 //!
 //! - **Statistical part.** u_y = u_stat(n) / n, raised to at least
 //!   [`ArrheniusSettings::relative_uncertainty_floor`] (default
-//!   `mobilis_core::fit::RELATIVE_UNCERTAINTY_FLOOR`, 0.1 %) so that no point pins the
+//!   `mobilis_numerics::fit::RELATIVE_UNCERTAINTY_FLOOR`, 0.1 %) so that no point pins the
 //!   line. A common scale of the densities (thickness, current, field calibrations) moves
 //!   every y by the same amount and leaves the slope alone, so it has no part here.
 //! - **Temperature (effective variance).** The temperature enters x = 1/kT and the
@@ -69,11 +69,11 @@ mod tests;
 
 use std::fmt;
 
-use mobilis_core::constants::BOLTZMANN_EV_PER_K;
-use mobilis_core::fit::{
+use mobilis_numerics::fit::{
     effective_uncertainty, fit_line, floored_relative_uncertainty, FitError, FitQuality, LineFit,
     RELATIVE_UNCERTAINTY_FLOOR,
 };
+use mobilis_physics::constants::BOLTZMANN_EV_PER_K;
 
 use crate::freeze_out::{
     prepare_series, validate_stated_uncertainties, CarrierType, DensityPoint, HallFactor, Series, SeriesError,
@@ -486,7 +486,7 @@ pub fn fit_arrhenius(points: &[DensityPoint], settings: &ArrheniusSettings) -> R
                     .zip(base)
                     .map(|(point, base)| effective(line.slope, point, *base))
                     .collect();
-                let change = mobilis_core::fit::largest_relative_change(&updated, &sigma);
+                let change = mobilis_numerics::fit::largest_relative_change(&updated, &sigma);
                 if change <= EFFECTIVE_VARIANCE_TOLERANCE {
                     settled = true;
                     break;

@@ -23,7 +23,7 @@
 //! closed form is not. A p-type crystal is the mirror image: holes, acceptors of density N_A
 //! and level E_A above the valence band with degeneracy g_A (default 4), compensating donors,
 //! Nv in place of Nc. The equation is solved exactly at every temperature ([`model`]; the
-//! same physics as `mobilis_core::forward::statistics::solve_charge_neutrality`).
+//! same physics as `mobilis_physics::forward::statistics::solve_charge_neutrality`).
 //!
 //! # Fit
 //!
@@ -32,7 +32,7 @@
 //!   ([`DensityPoint::applied_hall_factor`], the `hall_factor` column of `hall.reduce`).
 //!   [`HallFactor::Unity`] leaves the densities as they are; [`HallFactor::Constant`],
 //!   [`HallFactor::ScatteringExponent`] (r_H of tau ~ E^s from
-//!   `mobilis_core::forward::mobility::hall_scattering_factor`) and [`HallFactor::Table`]
+//!   `mobilis_physics::forward::mobility::hall_scattering_factor`) and [`HallFactor::Table`]
 //!   (r_H(T) from (temperature, factor) pairs, linear in T between them and held at the end
 //!   values beyond them) *replace* the applied factor: n = n_given r_H(T) / r_applied. A
 //!   Hall factor that changes through the series changes the slope of ln n(T), so a
@@ -48,7 +48,7 @@
 //!   common part never weights the fit: it is applied once, after the fit (see "The
 //!   common scale" below). The relative statistical uncertainty is raised to at least
 //!   [`FreezeOutSettings::relative_uncertainty_floor`] (default
-//!   `mobilis_core::fit::RELATIVE_UNCERTAINTY_FLOOR`, 0.1 %), so that no single point can
+//!   `mobilis_numerics::fit::RELATIVE_UNCERTAINTY_FLOOR`, 0.1 %), so that no single point can
 //!   pin the fit (a Hall density reported to 5e-13 would otherwise outweigh the rest by
 //!   twenty orders of magnitude).
 //! - **Temperature errors (effective variance).** Each point's temperature has a standard
@@ -71,7 +71,7 @@
 //!   [n_min / 3, 1000 n_max] of the data unless [`FreezeOutSettings::net_density_bounds_m3`]
 //!   says otherwise, c within [`FreezeOutSettings::compensation_bounds`] (default 1e-6 to
 //!   0.995), E within [`FreezeOutSettings::ionization_energy_bounds_ev`] (default 1 meV to
-//!   1 eV). Levenberg-Marquardt with box bounds (`mobilis_core::fit`).
+//!   1 eV). Levenberg-Marquardt with box bounds (`mobilis_numerics::fit`).
 //! - **Starts.** Up to twelve from the data ([`FreezeOutSettings::derive_starts_from_data`]):
 //!   N_net = n_max and 3 n_max (the plateau, or above it if the data stop short of
 //!   saturation); E = E_a and 2 E_a, E_a from the slope of ln(n T^-1.5) against 1/kT over
@@ -88,7 +88,7 @@
 //!   [`FreezeOutSettings::initial_guesses`] are added. The converged run of lowest
 //!   chi-square wins; the result says how many starts reached it.
 //! - **Is the model right within the errors?** chi^2 / nu and its p-value
-//!   (`mobilis_core::fit::FitQuality`). In a weighted fit the covariance is multiplied by
+//!   (`mobilis_numerics::fit::FitQuality`). In a weighted fit the covariance is multiplied by
 //!   chi^2 / nu when that exceeds 1 (the Birge ratio, Birge, Phys. Rev. 40, 207, 1932; the
 //!   Particle Data Group's practice for inconsistent data) and never shrunk; when the
 //!   p-value is below 1e-3 a warning names the worst points and the inputs that set the
@@ -142,68 +142,26 @@ pub(crate) mod realistic;
 #[cfg(test)]
 mod tests;
 
-use std::fmt;
-
 use rayon::prelude::*;
 
-use mobilis_core::constants::BOLTZMANN_EV_PER_K;
-use mobilis_core::fit::{
+use mobilis_numerics::fit::{
     effective_uncertainty, fit_line, floored_relative_uncertainty, minimize_multi_start_parallel, Bounds, FitError,
     FitQuality, LeastSquares, LmOptions, MultiStartFit, SameMinimum, RELATIVE_UNCERTAINTY_FLOOR,
 };
-use mobilis_core::forward::mobility::hall_scattering_factor;
-use mobilis_core::forward::statistics::{ACCEPTOR_DEGENERACY_DEFAULT, DONOR_DEGENERACY_DEFAULT};
-use mobilis_core::linalg::Matrix;
+use mobilis_numerics::linalg::Matrix;
+use mobilis_physics::constants::BOLTZMANN_EV_PER_K;
+use mobilis_physics::forward::mobility::hall_scattering_factor;
 
 pub use error::{FreezeOutError, SeriesError};
 use model::{ln_majority_density, LevelParameters, TemperatureTerms};
 pub use model::{CompensatingLevel, FreezeOutModel};
 
+pub use crate::carrier_type::CarrierType;
 use crate::materials::Material;
 
 /// The smallest number of distinct temperatures for three parameters plus one degree of
 /// freedom.
 pub const MIN_TEMPERATURES: usize = 4;
-
-/// Which carriers dominate: electrons (n) or holes (p).
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
-pub enum CarrierType {
-    N,
-    P,
-}
-
-impl CarrierType {
-    /// "n" or "p", as in the `carrier_type` column of `hall.reduce`.
-    pub fn as_str(self) -> &'static str {
-        match self {
-            CarrierType::N => "n",
-            CarrierType::P => "p",
-        }
-    }
-
-    /// Parses "n" or "p" (also "N", "P", "electrons", "holes").
-    pub fn parse(text: &str) -> Option<CarrierType> {
-        match text.trim().to_ascii_lowercase().as_str() {
-            "n" | "electron" | "electrons" => Some(CarrierType::N),
-            "p" | "hole" | "holes" => Some(CarrierType::P),
-            _ => None,
-        }
-    }
-
-    /// The default degeneracy of the majority dopant level: 2 for donors, 4 for acceptors.
-    pub fn default_degeneracy(self) -> f64 {
-        match self {
-            CarrierType::N => DONOR_DEGENERACY_DEFAULT,
-            CarrierType::P => ACCEPTOR_DEGENERACY_DEFAULT,
-        }
-    }
-}
-
-impl fmt::Display for CarrierType {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        f.write_str(self.as_str())
-    }
-}
 
 /// One measured carrier density.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
@@ -1334,7 +1292,7 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
             let updated: Vec<f64> = (0..count)
                 .map(|i| effective_uncertainty(base[i], slopes[i], series.temperature_unc_k[i]))
                 .collect();
-            let change = mobilis_core::fit::largest_relative_change(&updated, &sigma);
+            let change = mobilis_numerics::fit::largest_relative_change(&updated, &sigma);
             if change <= EFFECTIVE_VARIANCE_TOLERANCE {
                 settled = true;
                 break;
@@ -1575,7 +1533,7 @@ struct WarningInputs<'a> {
     terms: &'a [TemperatureTerms],
     temperatures_k: &'a [f64],
     points: &'a [FittedPoint],
-    bands: &'a mobilis_core::forward::statistics::BandModel,
+    bands: &'a mobilis_physics::forward::statistics::BandModel,
     carrier_type: CarrierType,
 }
 

@@ -40,7 +40,7 @@
 //!   mobilities by it ([`scattering`], "Hall and drift mobility");
 //! - `temperature_min_K`, `temperature_max_K`: the range fitted;
 //! - `relative_uncertainty_floor` (default 1e-3,
-//!   `mobilis_core::fit::RELATIVE_UNCERTAINTY_FLOOR`);
+//!   `mobilis_numerics::fit::RELATIVE_UNCERTAINTY_FLOOR`);
 //! - `temperature_uncertainty_K` for rows without `temperature_K_unc` (0 when not given;
 //!   freeze-out fit and Arrhenius line), and for the freeze-out fit only
 //!   `density_scale_relative_uncertainty` for a table without `density_m3_unc_sys` (0 when not
@@ -49,11 +49,11 @@
 //!
 //! Every fit weighs its points by the statistical part alone and applies the calibrations
 //! common to the series once, after the fit, through its own linear response (the conventions
-//! of `mobilis_core::fit::quality`).
+//! of `mobilis_numerics::fit::quality`).
 //!
 //! # Coverage and validation
 //!
-//! The coverage tests (rule and method in `mobilis_core::fit::quality`, "Coverage") and their
+//! The coverage tests (rule and method in `mobilis_numerics::fit::quality`, "Coverage") and their
 //! last counts, within 1 sigma / within 2 sigma, for the default run and then the
 //! `MOBILIS_SLOW_TESTS=1` run:
 //!
@@ -87,12 +87,14 @@
 
 pub mod analyses;
 pub mod arrhenius;
+pub mod carrier_type;
+pub mod figures;
 pub mod freeze_out;
 pub mod materials;
 pub mod purity;
 pub mod scattering;
 
-mobilis_core::export_plugin!(
+mobilis_sdk::export_plugin!(
     name: "carriers",
     analyses: [
         analyses::freeze_out_fit::FreezeOutFitAnalysis,

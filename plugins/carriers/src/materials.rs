@@ -33,9 +33,9 @@
 
 use std::fmt;
 
-use crate::freeze_out::CarrierType;
-use mobilis_core::constants::{BOLTZMANN_J_PER_K, ELECTRON_MASS_KG, PLANCK_J_S};
-use mobilis_core::forward::statistics::{BandModel, DOS_REFERENCE_TEMPERATURE_K};
+use crate::carrier_type::CarrierType;
+use mobilis_physics::constants::{BOLTZMANN_J_PER_K, ELECTRON_MASS_KG, PLANCK_J_S};
+use mobilis_physics::forward::statistics::{BandModel, DOS_REFERENCE_TEMPERATURE_K};
 
 /// cm^-3 to m^-3.
 const PER_CM3: f64 = 1e6;

@@ -430,17 +430,6 @@ pub struct ScatteringDensities {
     pub upper_limit_m3: Option<f64>,
 }
 
-impl From<&crate::scattering::ScatteringFit> for ScatteringDensities {
-    fn from(fit: &crate::scattering::ScatteringFit) -> Self {
-        ScatteringDensities {
-            ionized_impurity_density_m3: fit.ionized_impurity_density_m3,
-            compensating_density_m3: fit.compensating_density_m3,
-            comparison: fit.comparison,
-            upper_limit_m3: fit.ionized_parameter_upper_limit_m3,
-        }
-    }
-}
-
 /// One sample's results, whichever fits ran.
 #[derive(Debug, Clone, PartialEq)]
 pub struct PurityInput {

@@ -15,7 +15,7 @@
 //!   the 1.5 of acoustic deformation-potential scattering alone.
 //! - **Ionized impurities**, mu_I by Brooks-Herring (default) or Conwell-Weisskopf, the
 //!   formulas reviewed by Chattopadhyay and Queisser, Rev. Mod. Phys. 53, 745 (1981), as
-//!   `mobilis_core::forward::mobility` implements them (so the fit evaluates exactly the
+//!   `mobilis_physics::forward::mobility` implements them (so the fit evaluates exactly the
 //!   physics the forward models simulate). The density of charged centres N_I is either one
 //!   fitted constant ([`IonizedDensityModel::Constant`], default) or follows the measured
 //!   carrier density as N_I = n + 2 N_comp with the compensating density N_comp fitted
@@ -28,7 +28,7 @@
 //!   or Brooks' expression for a compensated crystal,
 //!   n' = n + (n + N_comp) (N_dop - N_comp - n) / N_dop,
 //!   which adds the screening of the partly filled donor levels (the form that
-//!   `mobilis_core::forward::statistics` derives from the full statistics). In the
+//!   `mobilis_physics::forward::statistics` derives from the full statistics). In the
 //!   freeze-out range the choice matters: on data from core's forward model of a compensated
 //!   silicon wafer from 20 to 400 K, the carriers-plus-compensation model with Brooks'
 //!   screening recovers N_A within 1 % at chi^2/nu near 1, while screening by n alone misses
@@ -64,7 +64,7 @@
 //! # The fit
 //!
 //! Least squares in ln mu (so that a mobility spanning decades weighs each point by its
-//! relative error), with the bounded Levenberg-Marquardt solver of `mobilis_core::fit` and
+//! relative error), with the bounded Levenberg-Marquardt solver of `mobilis_numerics::fit` and
 //! an analytic Jacobian (the ionized-impurity column by a central difference in ln N_I,
 //! because the screening may depend on N_I too). The parameters are ln mu_300, alpha,
 //! ln N_I (or ln N_comp), ln N_N and ln mu_C, so densities and mobilities stay positive and
@@ -160,18 +160,21 @@ mod validation;
 
 pub use error::ScatteringError;
 
-use mobilis_core::constants::{ELECTRON_MASS_KG, ELEMENTARY_CHARGE_C, REDUCED_PLANCK_J_S, VACUUM_PERMITTIVITY_F_PER_M};
-use mobilis_core::fit::{
+use mobilis_numerics::fit::{
     effective_uncertainty, floored_relative_uncertainty, Bounds, FitError, FitQuality, LeastSquares, LmFit, LmOptions,
     MultiStartFit, SameMinimum, StartSummary, RELATIVE_UNCERTAINTY_FLOOR,
 };
-use mobilis_core::forward::mobility::{lattice_mobility_m2_per_vs, ScatteringMedium};
-use mobilis_core::linalg::Matrix;
+use mobilis_numerics::linalg::Matrix;
+use mobilis_physics::constants::{
+    ELECTRON_MASS_KG, ELEMENTARY_CHARGE_C, REDUCED_PLANCK_J_S, VACUUM_PERMITTIVITY_F_PER_M,
+};
+use mobilis_physics::forward::mobility::{lattice_mobility_m2_per_vs, ScatteringMedium};
 use std::f64::consts::PI;
 
 use crate::freeze_out::CarrierType;
 use crate::materials::Material;
 
+use crate::purity::ScatteringDensities;
 pub use crate::purity::{
     compare_densities, compare_with_upper_limit, ConsistencyTolerance, DensityComparison, DopantDensities, Estimate,
     PurityError, ReferenceBasis,
@@ -2037,4 +2040,17 @@ fn build_rows(
             }
         })
         .collect()
+}
+
+// Written here rather than beside `ScatteringDensities` so that the purity summary does not
+// import the scattering fit, which imports it.
+impl From<&ScatteringFit> for ScatteringDensities {
+    fn from(fit: &ScatteringFit) -> Self {
+        ScatteringDensities {
+            ionized_impurity_density_m3: fit.ionized_impurity_density_m3,
+            compensating_density_m3: fit.compensating_density_m3,
+            comparison: fit.comparison,
+            upper_limit_m3: fit.ionized_parameter_upper_limit_m3,
+        }
+    }
 }

@@ -4,7 +4,7 @@
 //! and quality flags.
 //!
 //! This file is the table glue: the physics is in [`reduce`] and knows nothing of
-//! DataFrames; the C side is written by `mobilis_core::export_plugin!`.
+//! DataFrames; the C side is written by `mobilis_sdk::export_plugin!`.
 //!
 //! # Input roles
 //!
@@ -12,12 +12,12 @@
 //! (entering at `i_in`; negative for a reversed source), `voltage_V` (V(`v_pos`) - V(`v_neg`)),
 //! and the configuration, either as the four contact columns `i_in`, `i_out`, `v_pos`, `v_neg`
 //! or as one `contacts` column in pair notation (`"21,34"`: current in at 2, out at 1, voltage
-//! V3 - V4; `mobilis_core::contacts::parse_pair_notation`). Both forms are declared optional
+//! V3 - V4; `mobilis_physics::contacts::parse_pair_notation`). Both forms are declared optional
 //! and the glue checks that one is there; with both, every reading must agree, and a
 //! disagreement or a malformed cell (`21;3`) is an error naming its reading and the expected
 //! form. In a CSV file separated by commas the cell must be quoted. Contact numbering (van der
 //! Pauw 1 to 4 counterclockwise seen from the +B side; Hall bars 1 to 6) and the canonical
-//! orientations are in `mobilis_core::contacts`.
+//! orientations are in `mobilis_physics::contacts`.
 //!
 //! **`samples`** (optional), the sample sheet, one row per sample: `sample`, `thickness_m`
 //! (null for a 2D sheet), optional `thickness_m_unc`, `hall_factor` (r_H, default 1),
@@ -45,10 +45,11 @@
 //! standard. Bad readings (zero current, NaN, a contact outside 1..4 or 1..6) are errors naming
 //! the reading; `skip_invalid_readings: true` drops them with warnings.
 
+pub mod figures;
 pub mod reduce;
 
-use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
-use mobilis_core::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
+use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
+use mobilis_sdk::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
 use polars::prelude::*;
 use polars_arrow::bitmap::Bitmap;
 use reduce::{
@@ -663,7 +664,7 @@ fn contact_columns<'a>(frame: &'a DataFrame, storage: [&'a mut Vec<i64>; 4]) -> 
                 "reading {row}: `contacts` is empty; every reading needs its configuration, such as \"21,34\""
             ))
         })?;
-        let contacts = mobilis_core::contacts::parse_pair_notation(cell)
+        let contacts = mobilis_physics::contacts::parse_pair_notation(cell)
             .map_err(|error| AnalysisError::InvalidInput(format!("reading {row}: {error}")))?;
         parsed.push(contacts);
     }
@@ -830,6 +831,7 @@ impl Analysis for HallReduce {
                 column("calibrations", Str, None, "object per sample: the calibrations used (relative standard uncertainties, temperature_accuracy_K), the names not stated and assumed, and reading_noise_V, the pooled voltage noise of one reading"),
                 column("calibrations_not_stated", Str, None, "list of the calibration parameters some sample did not state (their defaults were assumed)"),
             ],
+            figures: crate::figures::reduce(),
         }
     }
 
@@ -939,7 +941,7 @@ impl Analysis for HallReduce {
     }
 }
 
-mobilis_core::export_plugin!(name: "hall", analyses: [HallReduce]);
+mobilis_sdk::export_plugin!(name: "hall", analyses: [HallReduce]);
 
 #[cfg(test)]
 mod tests {
@@ -947,9 +949,11 @@ mod tests {
     //! summary keys out, through the SDK without the C boundary.
 
     use super::*;
-    use mobilis_core::forward::readings::{van_der_pauw_readings, MeasurementProtocol, VanDerPauwSample, VoltageNoise};
-    use mobilis_core::noise::Rng;
-    use mobilis_core::sdk::run_typed;
+    use mobilis_numerics::noise::Rng;
+    use mobilis_physics::forward::readings::{
+        van_der_pauw_readings, MeasurementProtocol, VanDerPauwSample, VoltageNoise,
+    };
+    use mobilis_sdk::sdk::run_typed;
 
     fn readings_frame() -> DataFrame {
         let sample = VanDerPauwSample::ideal("w1", 77.0, 300.0, 1.1, -600.0);
@@ -962,8 +966,9 @@ mod tests {
         };
         let readings = van_der_pauw_readings(&sample, &protocol, &mut Rng::seeded(3)).unwrap();
         let floats =
-            |get: fn(&mobilis_core::readings::RawReading) -> f64| readings.iter().map(get).collect::<Vec<f64>>();
-        let ints = |get: fn(&mobilis_core::readings::RawReading) -> i64| readings.iter().map(get).collect::<Vec<i64>>();
+            |get: fn(&mobilis_physics::readings::RawReading) -> f64| readings.iter().map(get).collect::<Vec<f64>>();
+        let ints =
+            |get: fn(&mobilis_physics::readings::RawReading) -> i64| readings.iter().map(get).collect::<Vec<i64>>();
         DataFrame::new(
             readings.len(),
             vec![

@@ -36,7 +36,7 @@
 //! 3. **Resampling.** Each covering curve is evaluated at each grid x from its used points
 //!    in the bin around it (ln x within half a grid step either side; the bins do not
 //!    overlap, so every point enters one bin): a straight line ln MR = c + n ln x fitted to
-//!    them (`mobilis_core::fit::fit_line`, weighted by the relative uncertainties u_MR / MR
+//!    them (`mobilis_numerics::fit::fit_line`, weighted by the relative uncertainties u_MR / MR
 //!    when given) and evaluated at the grid x, with its standard error when weighted. A line
 //!    through a curved ln MR is off at the centre of a window of half width w by about
 //!    f'' w^2 / 6 (f = ln MR as a function of ln x), up to about 1e-3 for the bend of a
@@ -74,7 +74,7 @@
 //!    (signed: positive above the others) over the grid points it covers say which
 //!    temperatures leave the master curve and in which direction.
 //! 7. **Power laws.** Per curve, MR = a x^n fitted by the weighted straight line ln MR =
-//!    ln a + n ln x (`mobilis_core::fit::fit_line`, weights from u_MR / MR when given) over the
+//!    ln a + n ln x (`mobilis_numerics::fit::fit_line`, weights from u_MR / MR when given) over the
 //!    used points, or over those within [`KohlerSettings::power_law_range`]. n is 2 in the
 //!    classical low-field regime and falls towards 0 where MR saturates; curves that collapse
 //!    share a and n over a common x range. a is MR at x = 1 T/ohm, possibly far outside the
@@ -84,7 +84,7 @@
 //! judged on logarithmic axes, where 5 % is about the line width of a printed curve, and no
 //! published threshold exists.
 
-use mobilis_core::fit::fit_line;
+use mobilis_numerics::fit::fit_line;
 
 use crate::ratio::MrCurve;
 

@@ -6,18 +6,18 @@
 //!   temperature ([`oscillations`]);
 //! - `mr.weak_localization`: the Hikami-Larkin-Nagaoka fit ([`weak_localization`]).
 //!
-//! Sweeps are symmetrized by `mobilis_core::sweep`; [`analyses`] is the table glue.
+//! Sweeps are symmetrized by `mobilis_physics::sweep`; [`analyses`] is the table glue.
 //!
 //! # Input
 //!
-//! Input role `sweep`, as for the spectrum plugin (`mobilis_core::sweep_table`: `field_T`,
+//! Input role `sweep`, as for the spectrum plugin (`mobilis_sdk::sweep_table`: `field_T`,
 //! `rho_xx_ohm_sq`, `rho_xy_ohm`, optional `_unc` columns). `mr.symmetrize`, `mr.ratio`,
 //! `mr.two_band_fit` and `mr.weak_localization` take one sweep per call (`group_by: ["sample",
 //! "temperature_K"]`); `mr.kohler` and `mr.oscillations` take one sample's sweeps at several
 //! temperatures (`group_by: "sample"`), split where the sorted temperatures jump by more than
 //! the larger of `temperature_tolerance_K` (0.05 K) and `temperature_relative_tolerance` x T
 //! (0.5 %). Zero field is |B| <= `zero_field_tolerance_T`: 1e-4 T by default, as in
-//! `mobilis_core::sweep`, except `mr.weak_localization`, whose sigma(0) takes 1e-3 T. A sweep
+//! `mobilis_physics::sweep`, except `mr.weak_localization`, whose sigma(0) takes 1e-3 T. A sweep
 //! at one field sign is accepted (flagged `single_field_sign`) by every analysis but
 //! `mr.symmetrize`.
 //!
@@ -44,11 +44,11 @@
 //!   term (`classical_term`).
 //!
 //! Every fit weighted by stated uncertainties widens its errors by the Birge ratio when
-//! chi^2/nu > 1 and warns below p = 1e-3 with the worst fields (`mobilis_core::fit::quality`).
+//! chi^2/nu > 1 and warns below p = 1e-3 with the worst fields (`mobilis_numerics::fit::quality`).
 //!
 //! # Coverage
 //!
-//! Rule and method in `mobilis_core::fit::quality`, "Coverage"; within 1 sigma / within 2
+//! Rule and method in `mobilis_numerics::fit::quality`, "Coverage"; within 1 sigma / within 2
 //! sigma, default run; then `MOBILIS_SLOW_TESTS=1`:
 //!
 //! | quantity | test | realizations | coverage |
@@ -68,6 +68,7 @@
 //! is the suspect.
 
 pub mod analyses;
+pub mod figures;
 pub mod kohler;
 pub mod oscillations;
 pub mod ratio;
@@ -75,7 +76,7 @@ pub mod symmetrize;
 pub mod two_band;
 pub mod weak_localization;
 
-mobilis_core::export_plugin!(
+mobilis_sdk::export_plugin!(
     name: "magnetoresistance",
     analyses: [
         analyses::classical::SymmetrizeAnalysis,

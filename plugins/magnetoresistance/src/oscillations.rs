@@ -14,7 +14,7 @@
 //! two dimensions F fixes the sheet density, n = g_s e F / h (g_s the spin degeneracy of the
 //! levels, 2 unless the spin splitting is resolved). Its amplitude is damped by the
 //! Lifshitz-Kosevich factors R_T = X / sinh X, X = c m* T / B, and R_D = exp(-c m* T_D / B),
-//! c = 2 pi^2 k_B m_0 / (hbar e) = 14.69 T/K (`mobilis_core::forward::oscillations`, which
+//! c = 2 pi^2 k_B m_0 / (hbar e) = 14.69 T/K (`mobilis_physics::forward::oscillations`, which
 //! also generates the synthetic sweeps of the tests, so that simulated and fitted physics
 //! are the same code). Lifshitz and Kosevich, Sov. Phys. JETP 2, 636 (1956); Shoenberg,
 //! Magnetic Oscillations in Metals (1984).
@@ -67,9 +67,9 @@
 //!    with a few points per period. If the sweep samples fewer than 4 points per period
 //!    anywhere in the window (the field step is widest in 1/B at B_min), a warning says so.
 //! 5. **Spectrum and lines.** Each sweep's grid is multiplied by the window function
-//!    (`mobilis_core::fft::Window`, Hann by default, rectangular or Blackman), zero-padded
+//!    (`mobilis_numerics::fft::Window`, Hann by default, rectangular or Blackman), zero-padded
 //!    to a power of two at least `zero_padding` (default 8) times the grid, and transformed
-//!    (`mobilis_core::fft`); the amplitude is scaled so that a sinusoid on a bin shows its
+//!    (`mobilis_numerics::fft`); the amplitude is scaled so that a sinusoid on a bin shows its
 //!    amplitude in ohm per square. Lines are searched in the spectrum of the reference
 //!    sweep (the coldest; the first given among equals) between `frequency_min_t` (default
 //!    `min_periods` / (1/B_min - 1/B_max): fewer periods than that in the window are not
@@ -101,7 +101,7 @@
 //!    often a few per cent. The lines are refined by fitting
 //!    sum_k A_k exp(-lambda_k (x - x_c)) cos(2 pi F_k (x - x_c) + psi_k) (x = 1/B, x_c the
 //!    window centre, where phase and frequency are nearly uncorrelated) to the reference
-//!    sweep's points with bounded Levenberg-Marquardt (`mobilis_core::fit`), from the FFT
+//!    sweep's points with bounded Levenberg-Marquardt (`mobilis_numerics::fit`), from the FFT
 //!    values (F within 1.5 / span of them) and linear least-squares amplitudes and phases,
 //!    two starts in lambda. The exponential envelope stands in for R_T R_D at one
 //!    temperature; F, its standard error (scaled by the scatter), the phase phi of
@@ -203,7 +203,7 @@
 //!   whose strongest line is another line, or that fails, is left out with a warning. This
 //!   costs three more passes of the analysis.
 //! - **Calibrations** (Type B, stated per call; when not given the common-practice values of
-//!   `mobilis_core::calibration` are assumed, 0.5 % and 0.02 K, and the summary lists them
+//!   `mobilis_physics::calibration` are assumed, 0.5 % and 0.02 K, and the summary lists them
 //!   under `calibrations_not_stated`): `field_calibration_rel` scales F
 //!   and n, and m* (X = c m* T / B), by the same relative amount, and leaves T_D (c m* T_D /
 //!   B is what the data fix); `temperature_accuracy_k`, a thermometer error common to every
@@ -226,11 +226,11 @@
 //! need only the field window, so all four run at once on the rayon pool; a variant computes
 //! only the reference sweep's spectrum (the line search reads no other) and skips the
 //! narrow-window mass when the waveform fit's mass is reported (it reads only the reported
-//! mass). The transforms (`mobilis_core::fft`) share one twiddle table and skip the butterfly
+//! mass). The transforms (`mobilis_numerics::fft`) share one twiddle table and skip the butterfly
 //! stages that only copy the zero padding. None of this changes a bit of the result
 //! (`OSCILLATIONS_COMPARE_OUTPUT` of the bench checks it). What remains is mostly the
 //! Levenberg-Marquardt fits (the waveform fit over every sweep's points, three starts, in
-//! each pass: the singular value decompositions of `mobilis_core::fit` and the evaluations
+//! each pass: the singular value decompositions of `mobilis_numerics::fit` and the evaluations
 //! of R_T = X / sinh X, exp and cos per point) and the 8-fold zero-padded transforms
 //! (65,536 points per 4,000-point sweep, 2^20 for a 40,000-point ramp).
 //!
@@ -244,6 +244,8 @@ mod coverage;
 mod error;
 mod mass;
 mod prepare;
+mod results;
+mod settings;
 mod spectrum;
 #[cfg(test)]
 mod tests;
@@ -253,14 +255,20 @@ use std::f64::consts::PI;
 
 use rayon::prelude::*;
 
-use mobilis_core::fft::{amplitude_spectrum, AmplitudeSpectrum, Window};
-use mobilis_core::forward::oscillations::{
+use mobilis_numerics::fft::{amplitude_spectrum, AmplitudeSpectrum};
+use mobilis_physics::forward::oscillations::{
     sheet_density_from_frequency_m2, thermal_damping, thermal_damping_log_derivative, LK_FIELD_PER_KELVIN,
 };
 
 pub use error::OscillationError;
 pub use mass::fit_thermal_damping;
 use prepare::{condense_sweep, field_window, make_grid, prepare_sweep, resample, validate_sweeps, Prepared};
+pub use results::{
+    DinglePlot, DinglePoint, Extremum, FanPoint, FrequencyLine, LandauFan, MassEstimate, MassWindow, NarrowWindowMass,
+    OscillationAnalysis, OscillationBudget, OscillationSummary, SweepCurve, SweepSpectrum, ThermalDampingFit,
+    UncertaintyBudget, WaveformComponent, WaveformFit, WindowAmplitude,
+};
+pub use settings::{Background, MassMethod, MassRequest, OscillationSettings, OscillationSweep};
 use spectrum::{find_peaks, Peak, PeakSearch, SearchLimits};
 use waveform::{
     fit_waveform, in_phase_amplitude, refine_components, FitSweep, RefinedComponent, WaveformStart,
@@ -271,630 +279,6 @@ use waveform::{
 /// oscillation) for the smoothing background: each round shrinks the share of the
 /// oscillation the smoother took by that share again.
 pub const BACKFITTING_ROUNDS: usize = 3;
-
-/// One rho_xx(B) sweep at one temperature.
-#[derive(Debug, Clone, PartialEq)]
-pub struct OscillationSweep {
-    pub temperature_k: f64,
-    /// Fields, T, strictly increasing or decreasing.
-    pub field_t: Vec<f64>,
-    /// Sheet rho_xx, ohm per square (symmetrized in field).
-    pub rho_xx_ohm_sq: Vec<f64>,
-}
-
-/// How the smooth background is removed (step 3 of the module documentation).
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub enum Background {
-    /// Least-squares polynomial of this degree in B over the window.
-    Polynomial { degree: usize },
-    /// Local quadratic regression in 1/B with this half-width, 1/T.
-    Smoothing { width_inverse_t: f64 },
-}
-
-impl Default for Background {
-    fn default() -> Self {
-        Background::Polynomial { degree: 3 }
-    }
-}
-
-/// Whether and how a mass is obtained.
-#[derive(Debug, Clone, Copy, PartialEq, Default)]
-pub enum MassRequest {
-    /// Fitted when the sweeps span two or more temperatures, otherwise none (a warning).
-    #[default]
-    Auto,
-    /// Fitted; an error when the sweeps are at one temperature.
-    Fit,
-    /// Given (for the Dingle plot); no fit.
-    Known { effective_mass_ratio: f64 },
-    /// No mass and no Dingle plot.
-    Skip,
-}
-
-/// Which fitted mass is reported as the result (both are computed).
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
-pub enum MassMethod {
-    /// The damped waveform fitted across temperatures.
-    #[default]
-    WaveformFit,
-    /// R_T fitted per narrow window of 1/B, windows combined.
-    NarrowWindows,
-}
-
-impl MassMethod {
-    pub fn name(self) -> &'static str {
-        match self {
-            MassMethod::WaveformFit => "waveform_fit",
-            MassMethod::NarrowWindows => "narrow_windows",
-        }
-    }
-}
-
-/// Settings of [`analyze_oscillations`]; [`OscillationSettings::default`] gives the defaults
-/// of the module documentation.
-#[derive(Debug, Clone, PartialEq)]
-pub struct OscillationSettings {
-    /// B_min of the window, T (default: see step 2).
-    pub field_min_t: Option<f64>,
-    /// B_max of the window, T (default: the lowest highest field of the sweeps).
-    pub field_max_t: Option<f64>,
-    pub background: Background,
-    /// Points of the uniform 1/B grid (default: twice the most points in the window, >= 512).
-    pub grid_points: Option<usize>,
-    pub window: Window,
-    /// The transform is at least this many times the grid (default 8).
-    pub zero_padding: usize,
-    /// Lines to report (default 1).
-    pub frequencies: usize,
-    /// Lowest frequency searched, T (default: min_periods / span of 1/B).
-    pub frequency_min_t: Option<f64>,
-    /// Highest frequency searched, T (default: the grid's Nyquist frequency).
-    pub frequency_max_t: Option<f64>,
-    /// Periods a line must complete in the window (default 2).
-    pub min_periods: f64,
-    /// A line must be this many times the median amplitude of the band (default 6).
-    pub min_peak_ratio: f64,
-    /// A line must be this fraction of the strongest (default 0.05).
-    pub min_relative_amplitude: f64,
-    /// g_s of n = g_s e F / h (default 2).
-    pub spin_degeneracy: f64,
-    pub mass: MassRequest,
-    pub mass_method: MassMethod,
-    /// Narrow windows (default: as many as hold `mass_window_periods` periods, 1 to 12).
-    pub mass_windows: Option<usize>,
-    /// Periods per narrow window when their number is not given (default 3).
-    pub mass_window_periods: f64,
-    /// Fit the Dingle plot when a mass is known (default true).
-    pub dingle: bool,
-    /// Periods per window of the Dingle plot (default: 2, or fewer down to 1 so that the
-    /// window holds at least 5 Dingle windows).
-    pub dingle_window_periods: Option<f64>,
-    /// Build the Landau-level fan (default false).
-    pub landau_fan: bool,
-    /// Repeat the analysis with other backgrounds and a shorter window and add the spread of
-    /// the results to the uncertainties (default true; see "Uncertainties").
-    pub model_spread: bool,
-    /// Relative standard uncertainty of the field calibration (Type B; not given: 0.5 % is
-    /// assumed and listed).
-    pub field_calibration_rel: Option<f64>,
-    /// Standard uncertainty of the thermometer, K, common to every sweep (Type B; not given:
-    /// 0.02 K is assumed and listed).
-    pub temperature_accuracy_k: Option<f64>,
-    /// Standard uncertainty of each sweep's temperature on its own, K: the stage's drift and
-    /// setpoint scatter, independent from sweep to sweep (Type A; default: not given, not
-    /// included).
-    pub temperature_stability_k: Option<f64>,
-}
-
-impl Default for OscillationSettings {
-    fn default() -> Self {
-        OscillationSettings {
-            field_min_t: None,
-            field_max_t: None,
-            background: Background::default(),
-            grid_points: None,
-            window: Window::Hann,
-            zero_padding: 8,
-            frequencies: 1,
-            frequency_min_t: None,
-            frequency_max_t: None,
-            min_periods: 2.0,
-            min_peak_ratio: 6.0,
-            min_relative_amplitude: 0.05,
-            spin_degeneracy: 2.0,
-            mass: MassRequest::Auto,
-            mass_method: MassMethod::WaveformFit,
-            mass_windows: None,
-            mass_window_periods: 3.0,
-            dingle: true,
-            dingle_window_periods: None,
-            landau_fan: false,
-            model_spread: true,
-            field_calibration_rel: None,
-            temperature_accuracy_k: None,
-            temperature_stability_k: None,
-        }
-    }
-}
-
-impl OscillationSettings {
-    fn validate(&self) -> Result<(), OscillationError> {
-        let invalid = |name: &'static str, value: f64, requirement: &'static str| {
-            Err(OscillationError::InvalidSetting {
-                name,
-                value,
-                requirement,
-            })
-        };
-        let positive = |value: f64| value.is_finite() && value > 0.0;
-        for (name, value) in [
-            ("field_min_t", self.field_min_t),
-            ("field_max_t", self.field_max_t),
-            ("frequency_min_t", self.frequency_min_t),
-            ("frequency_max_t", self.frequency_max_t),
-        ] {
-            if let Some(value) = value {
-                if !positive(value) {
-                    return invalid(
-                        name,
-                        value,
-                        "give a finite positive value, or leave it out for the default",
-                    );
-                }
-            }
-        }
-        match self.background {
-            Background::Polynomial { degree } if degree > 12 => return invalid(
-                "background.degree",
-                degree as f64,
-                "give a degree of at most 12 (a smooth background needs few terms; more would follow the oscillation)",
-            ),
-            Background::Smoothing { width_inverse_t } if !positive(width_inverse_t) => {
-                return invalid(
-                    "background.width_inverse_t",
-                    width_inverse_t,
-                    "give a finite positive half-width in 1/T, several oscillation periods 1/F",
-                )
-            }
-            _ => {}
-        }
-        if let Some(points) = self.grid_points {
-            if !(64..=1 << 22).contains(&points) {
-                return invalid("grid_points", points as f64, "give between 64 and 4194304 grid points");
-            }
-        }
-        if !(1..=64).contains(&self.zero_padding) {
-            return invalid(
-                "zero_padding",
-                self.zero_padding as f64,
-                "give a padding factor from 1 to 64",
-            );
-        }
-        if !(1..=10).contains(&self.frequencies) {
-            return invalid("frequencies", self.frequencies as f64, "ask for 1 to 10 frequencies");
-        }
-        if !(self.min_periods.is_finite() && self.min_periods >= 1.0) {
-            return invalid(
-                "min_periods",
-                self.min_periods,
-                "give at least 1 period (2 is the default)",
-            );
-        }
-        if !(self.min_peak_ratio.is_finite() && self.min_peak_ratio > 1.0) {
-            return invalid(
-                "min_peak_ratio",
-                self.min_peak_ratio,
-                "give a ratio above 1 (6 is the default)",
-            );
-        }
-        if !(0.0..=1.0).contains(&self.min_relative_amplitude) {
-            return invalid(
-                "min_relative_amplitude",
-                self.min_relative_amplitude,
-                "give a fraction of the strongest line from 0 to 1",
-            );
-        }
-        if !positive(self.spin_degeneracy) {
-            return invalid(
-                "spin_degeneracy",
-                self.spin_degeneracy,
-                "give g_s > 0 (2 without resolved spin splitting, 1 with)",
-            );
-        }
-        if let MassRequest::Known { effective_mass_ratio } = self.mass {
-            if !positive(effective_mass_ratio) {
-                return invalid(
-                    "effective_mass_ratio",
-                    effective_mass_ratio,
-                    "give a finite positive m*/m_0",
-                );
-            }
-        }
-        if let Some(windows) = self.mass_windows {
-            if !(1..=50).contains(&windows) {
-                return invalid("mass_windows", windows as f64, "give 1 to 50 windows");
-            }
-        }
-        if !(self.mass_window_periods.is_finite() && self.mass_window_periods >= 1.0) {
-            return invalid(
-                "mass_window_periods",
-                self.mass_window_periods,
-                "give at least 1 period per window",
-            );
-        }
-        if let Some(accuracy) = self.field_calibration_rel {
-            if !(accuracy.is_finite() && (0.0..0.5).contains(&accuracy)) {
-                return invalid(
-                    "field_calibration_rel",
-                    accuracy,
-                    "give the field calibration's relative standard uncertainty, from 0 to 0.5 (0.001 is 0.1 %)",
-                );
-            }
-        }
-        if let Some(accuracy) = self.temperature_accuracy_k {
-            if !(accuracy.is_finite() && accuracy >= 0.0) {
-                return invalid(
-                    "temperature_accuracy_K",
-                    accuracy,
-                    "give the thermometer's standard uncertainty in K, 0 or more",
-                );
-            }
-        }
-        if let Some(stability) = self.temperature_stability_k {
-            if !(stability.is_finite() && stability >= 0.0) {
-                return invalid(
-                    "temperature_stability_K",
-                    stability,
-                    "give each sweep's temperature stability as a standard uncertainty in K, 0 or more",
-                );
-            }
-        }
-        if let Some(periods) = self.dingle_window_periods {
-            if !(periods.is_finite() && periods >= 0.5) {
-                return invalid(
-                    "dingle_window_periods",
-                    periods,
-                    "give at least half a period per window, or leave it out for the default",
-                );
-            }
-        }
-        Ok(())
-    }
-}
-
-/// One line of the spectrum, refined.
-#[derive(Debug, Clone, PartialEq)]
-pub struct FrequencyLine {
-    /// F, T: from the waveform fit across temperatures when the line is in it, else from
-    /// the refinement at the reference temperature, else the FFT peak ([`Self::source`]).
-    pub frequency_t: f64,
-    pub frequency_unc_t: Option<f64>,
-    /// The FFT peak, T, and its amplitude, ohm per square.
-    pub fft_frequency_t: f64,
-    pub fft_amplitude_ohm_sq: f64,
-    /// The refined envelope at the window centre in 1/B, reference sweep, ohm per square.
-    pub amplitude_ohm_sq: f64,
-    /// phi of cos(2 pi F / B + phi), rad.
-    pub phase_rad: f64,
-    /// From the refinement; None when the phase comes from the waveform fit or the FFT.
-    pub phase_unc_rad: Option<f64>,
-    /// n = g_s e F / h, m^-2.
-    pub sheet_density_m2: f64,
-    pub sheet_density_unc_m2: Option<f64>,
-    /// F times the span of 1/B.
-    pub periods_in_window: f64,
-    /// The index of the stronger line this one is a harmonic of, and the order.
-    pub harmonic_of: Option<(usize, u32)>,
-    /// Where F, its error and the phase come from: "waveform_fit", "refinement" or "fft".
-    pub source: &'static str,
-}
-
-/// The amplitude spectrum of one sweep.
-#[derive(Debug, Clone, PartialEq)]
-pub struct SweepSpectrum {
-    pub temperature_k: f64,
-    pub frequencies_t: Vec<f64>,
-    pub amplitudes_ohm_sq: Vec<f64>,
-}
-
-/// One sweep in the window: data, background and oscillation, ordered by increasing 1/B.
-#[derive(Debug, Clone, PartialEq)]
-pub struct SweepCurve {
-    pub temperature_k: f64,
-    pub field_t: Vec<f64>,
-    pub inverse_field_per_t: Vec<f64>,
-    pub rho_xx_ohm_sq: Vec<f64>,
-    pub background_ohm_sq: Vec<f64>,
-    pub oscillation_ohm_sq: Vec<f64>,
-    /// The oscillation on the uniform 1/B grid (mean removed).
-    pub resampled_ohm_sq: Vec<f64>,
-}
-
-/// R_T(T) fitted at one effective field ([`fit_thermal_damping`]).
-#[derive(Debug, Clone, PartialEq)]
-pub struct ThermalDampingFit {
-    pub effective_mass_ratio: f64,
-    pub effective_mass_ratio_unc: Option<f64>,
-    /// A_0 of A_0 R_T, ohm per square.
-    pub prefactor_ohm_sq: f64,
-    pub effective_field_t: f64,
-    pub chi_square: f64,
-    pub points: usize,
-    pub converged: bool,
-}
-
-/// One sweep's amplitude in one window.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct WindowAmplitude {
-    pub temperature_k: f64,
-    pub amplitude_ohm_sq: f64,
-    pub amplitude_unc_ohm_sq: f64,
-}
-
-/// One narrow window of the mass analysis (the points of the mass plot).
-#[derive(Debug, Clone, PartialEq)]
-pub struct MassWindow {
-    pub inverse_field_range_per_t: (f64, f64),
-    /// B_eff = 1 / mean(1/B), T.
-    pub effective_field_t: f64,
-    pub amplitudes: Vec<WindowAmplitude>,
-    /// None when the fit failed (a warning says why).
-    pub fit: Option<ThermalDampingFit>,
-}
-
-/// The narrow-window mass.
-#[derive(Debug, Clone, PartialEq)]
-pub struct NarrowWindowMass {
-    pub windows: Vec<MassWindow>,
-    pub effective_mass_ratio: f64,
-    pub effective_mass_ratio_unc: Option<f64>,
-    /// sqrt(chi^2 / (K - 1)) of the windows' masses about their mean.
-    pub birge_ratio: Option<f64>,
-}
-
-/// One line of the waveform fit.
-#[derive(Debug, Clone, PartialEq)]
-pub struct WaveformComponent {
-    /// Index into [`OscillationAnalysis::lines`].
-    pub line: usize,
-    pub frequency_t: f64,
-    pub frequency_unc_t: Option<f64>,
-    pub effective_mass_ratio: f64,
-    pub effective_mass_ratio_unc: Option<f64>,
-    pub dingle_temperature_k: f64,
-    pub dingle_temperature_unc_k: Option<f64>,
-    /// A_0 at the window centre without thermal damping, ohm per square.
-    pub amplitude_ohm_sq: f64,
-    pub phase_rad: f64,
-}
-
-/// The damped waveform fitted across temperatures.
-#[derive(Debug, Clone, PartialEq)]
-pub struct WaveformFit {
-    pub components: Vec<WaveformComponent>,
-    pub reduced_chi_square: f64,
-    pub points: usize,
-    /// Starts that reached the best minimum, of how many.
-    pub starts_at_best: usize,
-    pub starts: usize,
-}
-
-/// The reported mass and where it came from.
-#[derive(Debug, Clone, PartialEq)]
-pub struct MassEstimate {
-    pub effective_mass_ratio: f64,
-    pub effective_mass_ratio_unc: Option<f64>,
-    /// "waveform_fit", "narrow_windows" or "known".
-    pub method: &'static str,
-}
-
-/// One window of the Dingle plot.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct DinglePoint {
-    pub inverse_field_per_t: f64,
-    pub amplitude_ohm_sq: f64,
-    pub amplitude_unc_ohm_sq: f64,
-    /// ln(A sinh X / X), A in ohm per square.
-    pub ordinate: f64,
-    pub ordinate_unc: f64,
-}
-
-/// The Dingle plot and the Dingle temperature and quantum lifetime from it.
-#[derive(Debug, Clone, PartialEq)]
-pub struct DinglePlot {
-    pub temperature_k: f64,
-    pub effective_mass_ratio: f64,
-    pub window_periods: f64,
-    pub points: Vec<DinglePoint>,
-    /// Slope of ln(A sinh X / X) against 1/B, T.
-    pub slope_t: f64,
-    pub slope_unc_t: f64,
-    pub intercept: f64,
-    pub reduced_chi_square: f64,
-    pub dingle_temperature_k: f64,
-    pub dingle_temperature_unc_k: f64,
-    pub quantum_lifetime_s: f64,
-    pub quantum_lifetime_unc_s: f64,
-    /// Windows left out (too few points, no amplitude above three times its error, or beyond
-    /// the first such window).
-    pub dropped_windows: usize,
-}
-
-/// A minimum or a maximum of rho_xx.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Extremum {
-    Minimum,
-    Maximum,
-}
-
-/// One extremum of the Landau fan.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct FanPoint {
-    pub inverse_field_per_t: f64,
-    /// Integer for minima, half-integer for maxima.
-    pub index: f64,
-    pub kind: Extremum,
-}
-
-/// The Landau-level fan: index = F_fan / B + intercept.
-#[derive(Debug, Clone, PartialEq)]
-pub struct LandauFan {
-    pub temperature_k: f64,
-    pub points: Vec<FanPoint>,
-    pub frequency_t: f64,
-    pub frequency_unc_t: f64,
-    /// beta, in about (-1/2, 1/2]: 0 for a conventional 2D gas, +-1/2 for a Berry phase pi.
-    pub intercept: f64,
-    pub intercept_unc: f64,
-    /// phi = 2 pi (beta + 1/2), rad.
-    pub phase_rad: f64,
-}
-
-/// The contract's summary numbers (and their uncertainties: `_unc` the total standard
-/// uncertainty, the budgets its parts).
-#[derive(Debug, Clone, PartialEq)]
-pub struct OscillationSummary {
-    pub frequency_t: f64,
-    pub frequency_unc_t: Option<f64>,
-    pub frequency_budget: Option<UncertaintyBudget>,
-    pub sheet_density_budget: Option<UncertaintyBudget>,
-    pub effective_mass_budget: Option<UncertaintyBudget>,
-    pub dingle_temperature_budget: Option<UncertaintyBudget>,
-    pub sheet_density_m2: f64,
-    pub sheet_density_unc_m2: Option<f64>,
-    pub effective_mass_ratio: Option<f64>,
-    pub effective_mass_ratio_unc: Option<f64>,
-    pub mass_method: Option<&'static str>,
-    pub dingle_temperature_k: Option<f64>,
-    pub dingle_temperature_unc_k: Option<f64>,
-    pub quantum_lifetime_s: Option<f64>,
-    pub quantum_lifetime_unc_s: Option<f64>,
-}
-
-/// Everything [`analyze_oscillations`] found.
-#[derive(Debug, Clone, PartialEq)]
-pub struct OscillationAnalysis {
-    /// [B_min, B_max], T.
-    pub field_window_t: (f64, f64),
-    /// [1/B_max, 1/B_min], 1/T.
-    pub inverse_field_window_per_t: (f64, f64),
-    pub grid_points: usize,
-    pub grid_spacing_per_t: f64,
-    /// The transform length after padding.
-    pub padded_length: usize,
-    /// 1 / span of 1/B, T.
-    pub resolution_t: f64,
-    /// Index of the reference (coldest) sweep.
-    pub reference_sweep: usize,
-    /// Strongest first.
-    pub lines: Vec<FrequencyLine>,
-    /// One per sweep, in input order.
-    pub spectra: Vec<SweepSpectrum>,
-    pub curves: Vec<SweepCurve>,
-    pub mass: Option<MassEstimate>,
-    pub narrow_windows: Option<NarrowWindowMass>,
-    pub waveform: Option<WaveformFit>,
-    pub dingle: Option<DinglePlot>,
-    pub landau_fan: Option<LandauFan>,
-    /// The uncertainty budget of F, n, m* and T_D ("Uncertainties" in the module
-    /// documentation).
-    pub budget: OscillationBudget,
-    /// d m* / d T_thermometer and d T_D / d T_thermometer of the waveform fit (per K), from
-    /// a refit with every temperature raised by the stated thermometer accuracy.
-    temperature_sensitivity: Option<(f64, f64)>,
-    /// The change of m* and of the waveform's T_D from the stated per-sweep temperature
-    /// stability, each sweep's effect in quadrature.
-    temperature_stability_effect: Option<(f64, f64)>,
-    pub warnings: Vec<String>,
-}
-
-/// The uncertainty budget of one result: `statistical` (Type A: the fit's standard error,
-/// scaled by the residual scatter, and the spread over backgrounds and windows) and
-/// `systematic` (Type B: the stated calibrations), `total` their quadrature sum.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct UncertaintyBudget {
-    /// The fit's own standard error (scaled by the scatter of the residuals).
-    pub fit: Option<f64>,
-    /// The spread over the other backgrounds and windows beyond what their noise explains,
-    /// with the effect of the stated per-sweep temperature stability in quadrature.
-    pub analysis_spread: f64,
-    /// From the stated field and temperature calibrations.
-    pub calibration: f64,
-    pub statistical: Option<f64>,
-    pub systematic: f64,
-    pub total: Option<f64>,
-}
-
-impl UncertaintyBudget {
-    fn new(fit: Option<f64>, analysis_spread: f64, calibration: f64) -> Self {
-        let statistical = fit.map(|u| u.hypot(analysis_spread));
-        UncertaintyBudget {
-            fit,
-            analysis_spread,
-            calibration,
-            statistical,
-            systematic: calibration,
-            total: statistical.map(|u| u.hypot(calibration)),
-        }
-    }
-}
-
-/// The budgets of the summary's numbers and what went into them.
-#[derive(Debug, Clone, PartialEq, Default)]
-pub struct OscillationBudget {
-    pub frequency: Option<UncertaintyBudget>,
-    pub sheet_density: Option<UncertaintyBudget>,
-    pub effective_mass: Option<UncertaintyBudget>,
-    pub dingle_temperature: Option<UncertaintyBudget>,
-    /// The repeated analyses whose spread entered ("background degree 5", ...).
-    pub variants: Vec<String>,
-    /// Calibrations not stated, so assumed: parameter names.
-    pub calibrations_not_stated: Vec<&'static str>,
-}
-
-impl OscillationAnalysis {
-    /// The summary numbers of the strongest line, with the totals of the budget as their
-    /// uncertainties.
-    pub fn summary(&self) -> OscillationSummary {
-        let line = &self.lines[0];
-        let budget = &self.budget;
-        let total = |b: &Option<UncertaintyBudget>, fit: Option<f64>| match b {
-            Some(b) => b.total,
-            None => fit,
-        };
-        let dingle_temperature_k = self.dingle.as_ref().map(|d| d.dingle_temperature_k);
-        let dingle_temperature_unc_k = total(
-            &budget.dingle_temperature,
-            self.dingle.as_ref().map(|d| d.dingle_temperature_unc_k),
-        );
-        let quantum_lifetime_s = self.dingle.as_ref().map(|d| d.quantum_lifetime_s);
-        // tau_q = hbar / (2 pi k_B T_D): the relative uncertainty of T_D.
-        let quantum_lifetime_unc_s = match (quantum_lifetime_s, dingle_temperature_k, dingle_temperature_unc_k) {
-            (Some(tau), Some(t), Some(u)) => Some((tau * u / t).abs()),
-            _ => None,
-        };
-        OscillationSummary {
-            frequency_t: line.frequency_t,
-            frequency_unc_t: total(&budget.frequency, line.frequency_unc_t),
-            frequency_budget: budget.frequency,
-            sheet_density_budget: budget.sheet_density,
-            effective_mass_budget: budget.effective_mass,
-            dingle_temperature_budget: budget.dingle_temperature,
-            sheet_density_m2: line.sheet_density_m2,
-            sheet_density_unc_m2: total(&budget.sheet_density, line.sheet_density_unc_m2),
-            effective_mass_ratio: self.mass.as_ref().map(|m| m.effective_mass_ratio),
-            effective_mass_ratio_unc: total(
-                &budget.effective_mass,
-                self.mass.as_ref().and_then(|m| m.effective_mass_ratio_unc),
-            ),
-            mass_method: self.mass.as_ref().map(|m| m.method),
-            dingle_temperature_k,
-            dingle_temperature_unc_k,
-            quantum_lifetime_s,
-            quantum_lifetime_unc_s,
-        }
-    }
-}
 
 /// Runs the analysis of the module documentation on `sweeps`, with its uncertainty budget.
 pub fn analyze_oscillations(

@@ -6,7 +6,7 @@
 //!
 //! # Steps and the choices made
 //!
-//! 1. **Symmetrization.** The sweep is symmetrized by `mobilis_core::sweep::symmetrize`
+//! 1. **Symmetrization.** The sweep is symmetrized by `mobilis_physics::sweep::symmetrize`
 //!    (the same as `mr.symmetrize`): MR is computed from the even part of rho_xx on the
 //!    common |B| grid, so a Hall voltage picked up by the longitudinal contacts (odd in B)
 //!    does not enter it. A sweep with one field sign only (most superconducting-magnet runs)
@@ -21,7 +21,7 @@
 //!      points, otherwise none. A sweep without such a point is refused: MR is a ratio to
 //!      rho(0), and a value invented for it would shift every point.
 //!    - `Extrapolated`: rho_xx = rho(0) + c B^2 fitted by weighted least squares
-//!      (`mobilis_core::fit::fit_line` in B^2) to the lowest grid fields, rho(0) the
+//!      (`mobilis_numerics::fit::fit_line` in B^2) to the lowest grid fields, rho(0) the
 //!      intercept and its standard error. Any Drude conductor's rho_xx is even and analytic
 //!      in B, so its low-field expansion starts with B^2 (classical MR goes as (mu B)^2
 //!      while mu B << 1); the fit uses the [`DEFAULT_EXTRAPOLATION_POINTS`] lowest fields
@@ -41,8 +41,8 @@
 //!    denominator, with signed mobilities), so it points at weak localization, spin
 //!    scattering, or a drifting temperature between the zero-field and the field points.
 
-use mobilis_core::fit::{fit_line, FitError};
-use mobilis_core::sweep::{symmetrize, SweepError, SweepPoint, SweepUse, SymmetrizeSettings, Symmetrized};
+use mobilis_numerics::fit::{fit_line, FitError};
+use mobilis_physics::sweep::{symmetrize, SweepError, SweepPoint, SweepUse, SymmetrizeSettings, Symmetrized};
 
 /// Grid fields the default extrapolation uses.
 pub const DEFAULT_EXTRAPOLATION_POINTS: usize = 5;
@@ -75,7 +75,7 @@ impl ZeroFieldResistivity {
 /// Settings of [`magnetoresistance`].
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct RatioSettings {
-    /// Symmetrization (defaults of `mobilis_core::sweep::SymmetrizeSettings`).
+    /// Symmetrization (defaults of `mobilis_physics::sweep::SymmetrizeSettings`).
     pub sweep: SymmetrizeSettings,
     /// Default: measured.
     pub zero_field: ZeroFieldResistivity,

@@ -7,7 +7,7 @@
 //!
 //! # What is computed
 //!
-//! The symmetrization itself is `mobilis_core::sweep::symmetrize`, shared with
+//! The symmetrization itself is `mobilis_physics::sweep::symmetrize`, shared with
 //! `spectrum.multi_carrier_fit` and the other magnetoresistance analyses, so that every
 //! analysis of a sweep sees the same numbers: zero-field points averaged into one node,
 //! repeats within the field resolution averaged, the two branches interpolated linearly in
@@ -60,15 +60,15 @@
 //! # Warnings
 //!
 //! - measured points outside the field range both branches cover (they are not used; the
-//!   warning of `mobilis_core::sweep::Symmetrized::outside_overlap_warning`, which names
+//!   warning of `mobilis_physics::sweep::Symmetrized::outside_overlap_warning`, which names
 //!   `zero_field_tolerance_T` for a magnet's remanence at its nominal zero);
 //! - |rho_xy_even| above |rho_xy| at the highest field of the grid: the Hall signal is then
 //!   the small difference of two large readings, and any drift or field error between the
 //!   branches enters it at full size.
 
-use mobilis_core::sweep::{symmetrize, SweepError, SweepUse, SymmetrizeSettings, Symmetrized};
+use mobilis_physics::sweep::{symmetrize, SweepError, SweepUse, SymmetrizeSettings, Symmetrized};
 
-pub use mobilis_core::sweep::{FieldGrid, ResistivityUncertainty, SweepPoint};
+pub use mobilis_physics::sweep::{FieldGrid, ResistivityUncertainty, SweepPoint};
 
 /// The fewest grid points the default misalignment estimate uses (when the sweep has them),
 /// so that the estimate has a scatter and is not one noisy reading.
@@ -78,7 +78,7 @@ pub const MIN_LOW_FIELD_POINTS: usize = 3;
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct SymmetrizeOptions {
     /// Zero-field tolerance, field resolution and grid of the symmetrization (defaults of
-    /// `mobilis_core::sweep::SymmetrizeSettings`: 1e-4 T, 1e-4 T, the union grid).
+    /// `mobilis_physics::sweep::SymmetrizeSettings`: 1e-4 T, 1e-4 T, the union grid).
     pub sweep: SymmetrizeSettings,
     /// Grid fields at or below this enter the Hall misalignment estimate, T. Default `None`:
     /// the lower quarter of the overlap, and at least the [`MIN_LOW_FIELD_POINTS`] lowest
@@ -351,10 +351,10 @@ fn pickup_estimate(rows: &[SymmetrizedRow]) -> Option<FractionEstimate> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use mobilis_core::forward::tensor::{
+    use mobilis_numerics::noise::Rng;
+    use mobilis_physics::forward::tensor::{
         resistivity_tensor, symmetric_fields, synthetic_sweep, Carrier, SweepImperfections, SweepNoise,
     };
-    use mobilis_core::noise::Rng;
 
     fn carriers() -> Vec<Carrier> {
         vec![Carrier::electron(2e15, 1.0), Carrier::hole(5e15, 0.2)]

@@ -11,7 +11,7 @@
 //! two electrons for a 2D channel over a parallel layer, for instance), each with a sheet
 //! density n_i and a mobility mu_i and its own constant relaxation time. Their conductivity
 //! tensors add (Beck and Anderson, J. Appl. Phys. 62, 541, 1987), and the resistivity is the
-//! inverse of the sum: `mobilis_core::forward::tensor`, the same forward model that
+//! inverse of the sum: `mobilis_physics::forward::tensor`, the same forward model that
 //! generates the synthetic sweeps, evaluated by [`two_band_resistivity`]. For an electron
 //! (n, mu_n) and a hole (p, mu_p) band it is the closed two-band form (the two-band model,
 //! Ashcroft and Mermin, Solid State Physics, 1976, ch. 12, problem 4; from memory), D = (n mu_n + p mu_p)^2 + (p - n)^2 mu_n^2 mu_p^2 B^2,
@@ -21,15 +21,15 @@
 //!
 //! rho_xy positive for holes at positive field, the sign convention of the `sweep` table.
 //! Sheet quantities throughout; a volume density follows from the thickness
-//! (`mobilis_core::sweep::Thickness`).
+//! (`mobilis_physics::sweep::Thickness`).
 //!
 //! # Steps and the choices made
 //!
-//! 1. **Data.** [`fit_two_band_sweep`] symmetrizes the sweep (`mobilis_core::sweep`, as
+//! 1. **Data.** [`fit_two_band_sweep`] symmetrizes the sweep (`mobilis_physics::sweep`, as
 //!    `mr.symmetrize` does) and fits the even rho_xx and odd rho_xy at +|B| of the common
 //!    grid; a sweep at one field sign is used as measured, rho_xy taken as odd without the
 //!    Hall misalignment removed (`single_field_sign` and a warning, from
-//!    `mobilis_core::sweep::Symmetrized::warnings`); [`fit_two_band`] fits resistivity
+//!    `mobilis_physics::sweep::Symmetrized::warnings`); [`fit_two_band`] fits resistivity
 //!    points as given (any field sign). Every value
 //!    finite, rho_xx > 0, uncertainties on every point or none, some point in field.
 //! 2. **Residuals, in resistivity space.** Two per field, (model - data) of rho_xx and
@@ -53,7 +53,7 @@
 //!    2 s g mu B / (1 + x)^2 with g = e n mu, x = (mu B)^2) carried through the inversion by
 //!    its Jacobian 1/D^2 [[b^2 - a^2, -2ab], [-2ab, a^2 - b^2]] at (a, b) = (sigma_xx,
 //!    sigma_xy), D = a^2 + b^2.
-//! 4. **Starts.** The bounded Levenberg-Marquardt solver of `mobilis_core::fit` runs from
+//! 4. **Starts.** The bounded Levenberg-Marquardt solver of `mobilis_numerics::fit` runs from
 //!    every pair of 5 mobilities spread evenly in log over 0.03 / B_max .. 10 / B_min (a
 //!    carrier shows its magnetoresistance around B = 1/mu, so this covers every carrier the
 //!    sweep can see; pairs of one mobility are left out for two carriers of one kind, which
@@ -69,7 +69,7 @@
 //!    without uncertainties), in ln n and ln mu; the standard uncertainty of n is n times
 //!    that of ln n (first order), likewise for mu. With stated uncertainties the errors are
 //!    widened by the Birge ratio sqrt(chi^2 / nu) when that exceeds 1 and never narrowed
-//!    (`mobilis_core::fit::FitQuality`; the summary's `chi_square_p_value` and
+//!    (`mobilis_numerics::fit::FitQuality`; the summary's `chi_square_p_value` and
 //!    `birge_ratio`, null without uncertainties). A parameter on its bound has none (the
 //!    curvature says nothing about a one-sided minimum). A best minimum whose parameters the
 //!    data do not determine is refused ([`TwoBandError::Indistinguishable`]).
@@ -85,18 +85,18 @@
 //! within their uncertainties; this one works in resistivity space, the other in
 //! conductivity space.
 
-use mobilis_core::constants::ELEMENTARY_CHARGE_C;
-use mobilis_core::fit::{Bounds, FitError, FitQuality, LeastSquares, LmOptions, MultiStartFit, SameMinimum};
-use mobilis_core::forward::tensor::{
+use mobilis_numerics::fit::{Bounds, FitError, FitQuality, LeastSquares, LmOptions, MultiStartFit, SameMinimum};
+use mobilis_numerics::linalg::{Matrix, Svd};
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::constants::ELEMENTARY_CHARGE_C;
+use mobilis_physics::forward::tensor::{
     high_field_hall_coefficient_m2_per_c, invert_tensor, low_field_hall_coefficient_m2_per_c, sum_conductivity,
 };
-use mobilis_core::linalg::{Matrix, Svd};
-use mobilis_core::noise::Rng;
-use mobilis_core::sweep::{symmetrize, SweepError, SweepUse, SymmetrizeSettings, Symmetrized};
-use mobilis_core::tensor_data::{TensorData, TensorDataError};
+use mobilis_physics::sweep::{symmetrize, SweepError, SweepUse, SymmetrizeSettings, Symmetrized};
+use mobilis_physics::tensor_data::{TensorData, TensorDataError};
 
-pub use mobilis_core::forward::tensor::{Carrier, CarrierKind, ResistivityTensor};
-pub use mobilis_core::sweep::{ResistivityUncertainty, SweepPoint};
+pub use mobilis_physics::forward::tensor::{Carrier, CarrierKind, ResistivityTensor};
+pub use mobilis_physics::sweep::{ResistivityUncertainty, SweepPoint};
 
 /// Mobilities per carrier in the grid of deterministic starts.
 const GRID_MOBILITIES: usize = 5;
@@ -731,7 +731,7 @@ fn output_order(kinds: &[CarrierKind; 2], p: &[f64]) -> [usize; 2] {
 /// Converged starts at the best minimum, carriers compared in output order (two carriers
 /// of one kind found with their labels swapped are the same minimum). Agreement: a
 /// chi-square within 1e-3 of the noise variance and every parameter within 0.1 standard
-/// errors (the tolerances of `mobilis_core::fit::SameMinimum`).
+/// errors (the tolerances of `mobilis_numerics::fit::SameMinimum`).
 fn starts_at_best_minimum(kinds: &[CarrierKind; 2], run: &MultiStartFit) -> usize {
     run.starts_at_best_minimum_reordered(|p: &[f64]| -> Vec<usize> {
         output_order(kinds, p)

@@ -13,8 +13,8 @@
 //! d_sigma(B) = alpha (e^2 / 2 pi^2 hbar) [psi(1/2 + B_phi / B) - ln(B_phi / B)],
 //! B_phi = hbar / (4 e l_phi^2),
 //!
-//! evaluated by `mobilis_core::forward::oscillations::hln_correction_s` (psi the digamma
-//! function of `mobilis_core::special`), the same code that generates the tests' synthetic
+//! evaluated by `mobilis_physics::forward::oscillations::hln_correction_s` (psi the digamma
+//! function of `mobilis_numerics::special`), the same code that generates the tests' synthetic
 //! sweeps. The bracket is positive, grows as (B / B_phi)^2 / 24 below B_phi and as
 //! ln(B / B_phi) above it: the field where the quadratic cusp turns logarithmic fixes B_phi,
 //! the size fixes alpha. alpha = -1/2 per independent channel is weak antilocalization (strong
@@ -45,7 +45,7 @@
 //!    (default: all) is fitted with alpha, ln B_phi (a logarithm keeps B_phi positive and
 //!    makes its steps relative over the decades it can span), and optionally a classical
 //!    term beta B^2 (`classical_term`; the Drude magnetoconductance -sigma_0 mu^2 B^2 that adds
-//!    at higher field) and the offset, by bounded Levenberg-Marquardt (`mobilis_core::fit`).
+//!    at higher field) and the offset, by bounded Levenberg-Marquardt (`mobilis_numerics::fit`).
 //!    ln B_phi is bounded by l_phi within `phase_coherence_length_bounds_m` (default 1 nm to
 //!    1 mm). Starts: for 25 values of B_phi spread geometrically from a hundredth of the
 //!    lowest nonzero |B| to ten times the highest, the model is linear in alpha (and beta and
@@ -72,11 +72,11 @@
 
 use std::fmt;
 
-use mobilis_core::fit::{Bounds, FitError, FitQuality, LeastSquares, LmOptions, SameMinimum};
-use mobilis_core::forward::oscillations::{
+use mobilis_numerics::fit::{Bounds, FitError, FitQuality, LeastSquares, LmOptions, SameMinimum};
+use mobilis_numerics::linalg::{Matrix, Svd};
+use mobilis_physics::forward::oscillations::{
     hln_bracket, phase_coherence_field_t, phase_coherence_length_m, HLN_CONDUCTANCE_S,
 };
-use mobilis_core::linalg::{Matrix, Svd};
 
 #[cfg(test)]
 mod coverage;

@@ -2,7 +2,7 @@
 //! parameters into settings, and the results into tables ready to plot and summaries.
 //!
 //! A sweep at one field sign is accepted when it has rho_xy (the `sweep` role requires it):
-//! `mobilis_core::sweep::symmetrize` uses the branch as measured, and both analyses report
+//! `mobilis_physics::sweep::symmetrize` uses the branch as measured, and both analyses report
 //! `single_field_sign: true` with a warning that the misalignment of the Hall contacts (a
 //! part of rho_xx picked up in rho_xy, even in B) could not be removed.
 
@@ -13,11 +13,11 @@ use crate::multi_carrier::{
     fit_sweep_monitored, CarrierSelection, InformationCriterion, MultiCarrierError, MultiCarrierSettings,
 };
 use crate::reduction::reduce;
-use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType};
-use mobilis_core::forward::tensor::CarrierKind;
-use mobilis_core::sdk::{Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
-use mobilis_core::sweep::{symmetrize, SweepUse};
-use mobilis_core::sweep_table::{single_sweep, sweep_role, sweep_schema_properties, SweepParams};
+use mobilis_physics::forward::tensor::CarrierKind;
+use mobilis_physics::sweep::{symmetrize, SweepUse};
+use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType};
+use mobilis_sdk::sdk::{Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
+use mobilis_sdk::sweep_table::{single_sweep, sweep_role, sweep_schema_properties, SweepParams};
 use polars::prelude::*;
 use serde::Deserialize;
 use serde_json::{json, Value};
@@ -111,6 +111,7 @@ impl Analysis for MultiCarrierFitAnalysis {
                 column("carriers", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc"),
                 single_field_sign_key(),
             ],
+            figures: crate::figures::multi_carrier_fit(),
         }
     }
 
@@ -296,6 +297,7 @@ impl Analysis for MobilitySpectrumAnalysis {
                 column("peaks", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc"),
                 single_field_sign_key(),
             ],
+            figures: crate::figures::mobility(),
         }
     }
 
@@ -406,9 +408,9 @@ impl Analysis for MobilitySpectrumAnalysis {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use mobilis_core::forward::tensor::{synthetic_sweep, Carrier, SweepImperfections, SweepNoise};
-    use mobilis_core::noise::Rng;
-    use mobilis_core::sdk::run_typed;
+    use mobilis_numerics::noise::Rng;
+    use mobilis_physics::forward::tensor::{synthetic_sweep, Carrier, SweepImperfections, SweepNoise};
+    use mobilis_sdk::sdk::run_typed;
 
     /// A sweep table of one electron with a Hall misalignment, at the given signed fields.
     fn table(fields: &[f64]) -> Inputs {
@@ -526,10 +528,10 @@ mod tests {
 /// A long logged sweep reduced onto a field grid (see `crate::reduction`), with a warning
 /// that says so; a short sweep as it is.
 fn reduced_if_long(
-    points: Vec<mobilis_core::sweep::SweepPoint>,
+    points: Vec<mobilis_physics::sweep::SweepPoint>,
     zero_field_tolerance_t: f64,
     warnings: &mut Vec<String>,
-) -> Vec<mobilis_core::sweep::SweepPoint> {
+) -> Vec<mobilis_physics::sweep::SweepPoint> {
     match reduce(&points, zero_field_tolerance_t) {
         Some(reduced) => {
             warnings.push(reduced.note());

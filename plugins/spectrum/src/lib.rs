@@ -6,16 +6,16 @@
 //! - `spectrum.mobility`: the Beck-Anderson envelope and a regularized mobility spectrum with
 //!   its peaks ([`mobility_spectrum`]).
 //!
-//! Sweeps are symmetrized by `mobilis_core::sweep` (shared with the magnetoresistance
+//! Sweeps are symmetrized by `mobilis_physics::sweep` (shared with the magnetoresistance
 //! plugin); [`analyses`] is the table glue.
 //!
 //! # Input, shared parameters and what both analyses report
 //!
-//! Input role `sweep` (`mobilis_core::sweep_table`): `field_T`, `rho_xx_ohm_sq`, `rho_xy_ohm`
+//! Input role `sweep` (`mobilis_sdk::sweep_table`): `field_T`, `rho_xx_ohm_sq`, `rho_xy_ohm`
 //! (sheet quantities, `rho_xy` positive for holes at positive field), optional `_unc` columns,
 //! one sample and temperature per call (`group_by: ["sample", "temperature_K"]`). With both
 //! field signs rho_xx is symmetrized and rho_xy antisymmetrized after interpolating each branch
-//! onto the common |B| points (`mobilis_core::sweep`: Onsager's reciprocity removes what
+//! onto the common |B| points (`mobilis_physics::sweep`: Onsager's reciprocity removes what
 //! misaligned contacts add), then converted to sigma_xx, sigma_xy; one sign is accepted too,
 //! with `single_field_sign: true` and a warning. `zero_field_tolerance_T` (1e-4 T) and
 //! `field_resolution_T` (1e-4 T) are explained there.
@@ -38,7 +38,7 @@
 //!
 //! # Coverage
 //!
-//! Rule and method in `mobilis_core::fit::quality`, "Coverage"; within 1 sigma / within 2
+//! Rule and method in `mobilis_numerics::fit::quality`, "Coverage"; within 1 sigma / within 2
 //! sigma, default run; then `MOBILIS_SLOW_TESTS=1`:
 //!
 //! | quantity | test | realizations | coverage |
@@ -55,11 +55,13 @@
 //! three of its uncertainties.
 
 pub mod analyses;
+pub mod figures;
 pub mod mobility_spectrum;
+pub mod monitor;
 pub mod multi_carrier;
 pub mod reduction;
 
-mobilis_core::export_plugin!(
+mobilis_sdk::export_plugin!(
     name: "spectrum",
     analyses: [analyses::MultiCarrierFitAnalysis, analyses::MobilitySpectrumAnalysis]
 );

@@ -4,10 +4,10 @@
 //! peaks are integrated into a sheet density and a mean mobility each.
 //!
 //! Pure computation: no DataFrames, no I/O. The plugin's table glue turns the `sweep` role
-//! into [`TensorPoint`]s (`mobilis_core::sweep`: symmetrize in field, then invert the
+//! into [`TensorPoint`]s (`mobilis_physics::sweep`: symmetrize in field, then invert the
 //! resistivity tensor; [`mobility_spectrum_of_sweep`] does both) and the
 //! [`MobilitySpectrum`] back into a table and a summary. Progress and cancellation come in
-//! through a [`Monitor`], which `mobilis_core::sdk::Host` implements.
+//! through a [`Monitor`], which `mobilis_sdk::sdk::Host` implements.
 //!
 //! # Model
 //!
@@ -143,136 +143,26 @@ pub mod envelope;
 pub mod error;
 pub mod peaks;
 pub mod regularized;
+mod settings;
 pub mod summary;
 #[cfg(test)]
 mod tests;
 
-use mobilis_core::constants::ELEMENTARY_CHARGE_C;
-pub use mobilis_core::forward::tensor::CarrierKind;
-use mobilis_core::noise::Rng;
-use mobilis_core::sdk::Host;
-use mobilis_core::sweep::{conductivity_points, symmetrize, SweepPoint, SymmetrizeSettings, Symmetrized};
-pub use mobilis_core::sweep::{TensorPoint, TensorUncertainty};
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::constants::ELEMENTARY_CHARGE_C;
+pub use mobilis_physics::forward::tensor::CarrierKind;
+
+use mobilis_physics::sweep::{conductivity_points, symmetrize, SweepPoint, SymmetrizeSettings, Symmetrized};
+pub use mobilis_physics::sweep::{TensorPoint, TensorUncertainty};
 use rayon::prelude::*;
 
-use crate::multi_carrier::budget::{floor_uncertainties, reading_reuse_factor};
-use crate::multi_carrier::{Budget, Calibration, SWEEP_RELATIVE_UNCERTAINTY_FLOOR};
+pub use crate::monitor::{Monitor, Unmonitored};
+use crate::multi_carrier::budget::{floor_uncertainties, reading_reuse_factor, Budget, Calibration};
 use data::{kernel, Data, Grid};
 use envelope::Envelope;
 pub use error::SpectrumError;
 use regularized::Problem;
-
-/// The fewest distinct nonzero fields a spectrum is computed from.
-pub const MIN_DISTINCT_FIELDS: usize = 4;
-
-/// Progress reports and the cancel check of a long computation.
-pub trait Monitor {
-    /// `fraction` in [0, 1].
-    fn progress(&self, fraction: f64, message: &str);
-    /// True once the caller wants the computation to stop.
-    fn is_cancelled(&self) -> bool;
-}
-
-impl Monitor for Host<'_> {
-    fn progress(&self, fraction: f64, message: &str) {
-        Host::progress(self, fraction, message);
-    }
-
-    fn is_cancelled(&self) -> bool {
-        Host::is_cancelled(self)
-    }
-}
-
-/// A monitor that reports nowhere and never cancels.
-#[derive(Debug, Clone, Copy, Default)]
-pub struct Unmonitored;
-
-impl Monitor for Unmonitored {
-    fn progress(&self, _fraction: f64, _message: &str) {}
-
-    fn is_cancelled(&self) -> bool {
-        false
-    }
-}
-
-/// How the strength of the smoothness penalty is chosen.
-#[derive(Debug, Clone, Copy, PartialEq, Default)]
-pub enum RegularizationRule {
-    /// The discrepancy principle with uncertainties, the L-curve without.
-    #[default]
-    Auto,
-    /// The largest strength whose chi-square is at most the number of data (needs
-    /// uncertainties).
-    Discrepancy,
-    /// The corner of the L-curve.
-    LCurve,
-    /// This dimensionless strength lambda (alpha = lambda tr(A^T A) / tr(D^T D)).
-    Fixed(f64),
-}
-
-/// The rule that was actually applied.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum RuleUsed {
-    Discrepancy,
-    LCurve,
-    Fixed,
-}
-
-impl RuleUsed {
-    /// "discrepancy", "l_curve" or "fixed".
-    pub fn name(self) -> &'static str {
-        match self {
-            RuleUsed::Discrepancy => "discrepancy",
-            RuleUsed::LCurve => "l_curve",
-            RuleUsed::Fixed => "fixed",
-        }
-    }
-}
-
-/// The mobility range of the grid, m^2/(V s), the same for both signs.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct GridRange {
-    pub min_mobility_m2_per_vs: f64,
-    pub max_mobility_m2_per_vs: f64,
-}
-
-/// Settings of [`mobility_spectrum`].
-#[derive(Debug, Clone, PartialEq)]
-pub struct SpectrumSettings {
-    /// Grid mobilities per carrier sign (8 to 1000). Default 200: about 50 per decade over
-    /// the default range, fine enough that the grid's discretization error (of order
-    /// Delta^2 / 8 of a narrow peak's tensor) stays below a noise of 1e-3.
-    pub points_per_sign: usize,
-    /// Default: 0.1 / B_max to 10 / B_min (B_min the lowest nonzero field).
-    pub mobility_range: Option<GridRange>,
-    pub rule: RegularizationRule,
-    /// A local maximum is a peak when it reaches this fraction of the largest spectrum
-    /// value of either sign, in (0, 1). Default 0.05.
-    pub peak_threshold: f64,
-    /// Bootstrap replicas for the peaks' uncertainties (0 to 1000; 0: no uncertainties,
-    /// reported as NaN). Default 24, which estimates a standard deviation to about 15 %.
-    pub uncertainty_replicas: usize,
-    /// A stated component uncertainty below this fraction of |sigma(B)| is raised to it.
-    /// Default 1e-5 (see `multi_carrier::budget`).
-    pub relative_uncertainty_floor: f64,
-    /// Stated scale calibrations, applied to the peaks after the spectrum. Default: none
-    /// stated, the defaults of `multi_carrier::budget` assumed.
-    pub calibration: Calibration,
-}
-
-impl Default for SpectrumSettings {
-    fn default() -> Self {
-        SpectrumSettings {
-            points_per_sign: 200,
-            mobility_range: None,
-            rule: RegularizationRule::Auto,
-            peak_threshold: 0.05,
-            uncertainty_replicas: 24,
-            relative_uncertainty_floor: SWEEP_RELATIVE_UNCERTAINTY_FLOOR,
-            calibration: Calibration::default(),
-        }
-    }
-}
+pub use settings::{GridRange, RegularizationRule, RuleUsed, SpectrumSettings, MIN_DISTINCT_FIELDS};
 
 /// One carrier sign's spectra on the grid (index k: mobility `mobility_m2_per_vs[k]`).
 #[derive(Debug, Clone, PartialEq)]

@@ -11,7 +11,7 @@
 //! electrons over bulk holes, light and heavy holes), a Hall measurement at one field gives a
 //! conductance-weighted average density and mobility that belong to no carrier. Each carrier
 //! adds to the conductivity tensor a Lorentzian of its own width 1/mu
-//! (`mobilis_core::forward::tensor`, after Beck and Anderson, J. Appl. Phys. 62, 541, 1987):
+//! (`mobilis_physics::forward::tensor`, after Beck and Anderson, J. Appl. Phys. 62, 541, 1987):
 //!
 //! sigma_xx(B) = sum e n_i mu_i / (1 + mu_i^2 B^2), sigma_xy(B) = sum s_i e n_i mu_i^2 B /
 //! (1 + mu_i^2 B^2),
@@ -21,7 +21,7 @@
 //!
 //! # Steps and the choices made
 //!
-//! 1. **Data.** [`fit_sweep`] symmetrizes the sweep (`mobilis_core::sweep::symmetrize`: even
+//! 1. **Data.** [`fit_sweep`] symmetrizes the sweep (`mobilis_physics::sweep::symmetrize`: even
 //!    rho_xx, odd rho_xy, branches interpolated onto a common |B| grid) and converts it to
 //!    sigma_xx and sigma_xy with their propagated uncertainties and correlation;
 //!    [`fit_carriers`] takes the conductivity points directly. Every value must be finite,
@@ -46,7 +46,7 @@
 //! 4. **Starts.** Several starts per carrier list, seeded from the data (the `seeds` submodule):
 //!    mobilities spread over 0.03 / B_max .. 10 / B_min and around the low-field Hall
 //!    mobility, densities from the linear least squares that fixed mobilities allow. The
-//!    bounded Levenberg-Marquardt solver of `mobilis_core::fit` runs from each and keeps the
+//!    bounded Levenberg-Marquardt solver of `mobilis_numerics::fit` runs from each and keeps the
 //!    converged run of lowest chi-square.
 //! 5. **How many carriers.** Given ([`CarrierSelection::Kinds`], [`CarrierSelection::Guess`]),
 //!    or chosen ([`CarrierSelection::Automatic`]): for N = 1, 2, ... every split into
@@ -104,19 +104,19 @@ mod tests;
 
 pub use budget::{Budget, Calibration, SWEEP_RELATIVE_UNCERTAINTY_FLOOR};
 pub use error::MultiCarrierError;
-pub use mobilis_core::forward::tensor::{Carrier, CarrierKind};
-pub use mobilis_core::sweep::{SweepPoint, SymmetrizeSettings, Symmetrized, TensorPoint, TensorUncertainty};
+pub use mobilis_physics::forward::tensor::{Carrier, CarrierKind};
+pub use mobilis_physics::sweep::{SweepPoint, SymmetrizeSettings, Symmetrized, TensorPoint, TensorUncertainty};
 
-use mobilis_core::fit::{
+use mobilis_numerics::fit::{
     minimize_multi_start_parallel, Bounds, FitQuality, LeastSquares, LmOptions, MultiStartFit, SameMinimum,
 };
-use mobilis_core::forward::tensor::sum_conductivity;
-use mobilis_core::linalg::Matrix;
-use mobilis_core::noise::Rng;
-use mobilis_core::sweep::{conductivity_points, symmetrize};
+use mobilis_numerics::linalg::Matrix;
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::forward::tensor::sum_conductivity;
+use mobilis_physics::sweep::{conductivity_points, symmetrize};
 use rayon::prelude::*;
 
-use crate::mobility_spectrum::{Monitor, Unmonitored};
+use crate::monitor::{Monitor, Unmonitored};
 use model::Data;
 use seeds::LogBounds;
 
@@ -741,7 +741,7 @@ const POORLY_DETERMINED: f64 = 0.1;
 /// mobility) before the comparison; otherwise a run that found the same carriers with
 /// their labels swapped would count as another minimum. Agreement means a chi-square
 /// within 1e-3 of the noise variance and every parameter within 0.1 standard errors (the
-/// tolerances of `mobilis_core::fit::SameMinimum`).
+/// tolerances of `mobilis_numerics::fit::SameMinimum`).
 fn starts_at_best_minimum(kinds: &[CarrierKind], run: &MultiStartFit) -> usize {
     run.starts_at_best_minimum_reordered(|parameters: &[f64]| -> Vec<usize> {
         let mut order: Vec<usize> = (0..kinds.len()).collect();
@@ -852,7 +852,7 @@ fn finish(
         .map(|(k, p)| {
             let fit = sum_conductivity(&model_carriers, p.field_t);
             let fit_rho = fit.to_resistivity();
-            let data_rho = mobilis_core::forward::tensor::ConductivityTensor {
+            let data_rho = mobilis_physics::forward::tensor::ConductivityTensor {
                 sigma_xx_s: p.sigma_xx_s,
                 sigma_xy_s: p.sigma_xy_s,
             }

@@ -50,7 +50,7 @@
 //! degree of freedom), which happens only where the readings are sparser than the bins, so
 //! that the curvature bound above holds wherever the reduction averages.
 
-use mobilis_core::sweep::{ResistivityUncertainty, SweepPoint};
+use mobilis_physics::sweep::{ResistivityUncertainty, SweepPoint};
 
 /// Sweeps with more readings than this are reduced.
 pub const REDUCTION_THRESHOLD: usize = 2000;
@@ -365,11 +365,11 @@ mod tests {
     use super::*;
     use crate::mobility_spectrum::{mobility_spectrum_of_sweep, SpectrumSettings, Unmonitored};
     use crate::multi_carrier::{fit_sweep, CarrierSelection, FittedCarrier, MultiCarrierSettings};
-    use mobilis_core::forward::tensor::{
+    use mobilis_numerics::noise::Rng;
+    use mobilis_physics::forward::tensor::{
         conductivity_tensor, synthetic_sweep, Carrier, CarrierKind, SweepImperfections, SweepNoise,
     };
-    use mobilis_core::noise::Rng;
-    use mobilis_core::sweep::SymmetrizeSettings;
+    use mobilis_physics::sweep::SymmetrizeSettings;
 
     /// A ramp from -14 T to 14 T logged `readings` times: noise `relative` |rho| plus a
     /// tenth of that of the zero-field rho_xx, stated on every reading, and a Hall

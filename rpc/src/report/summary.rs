@@ -26,7 +26,7 @@
 //!   sample only.
 //! - A key number `X` is shown as `X ± X_unc` in the unit its suffix names (`_m3` cm⁻³, `_m2`
 //!   cm⁻², `_m2_per_Vs` cm²/(V s), `_ohm_m` Ω cm, `_eV` meV, `_s` ps, `_m` nm or µm, `_K`,
-//!   `_T`; no suffix: a ratio), rounded by `mobilis_core::quote` (two significant digits of the
+//!   `_T`; no suffix: a ratio), rounded by `mobilis_physics::quote` (two significant digits of the
 //!   uncertainty, GUM 7.2.6). `_unc_stat` and `_unc_sys` parts stay in the provenance. A label
 //!   table here names the well-known ones (N_D, E_D, F, m*/m0, l_phi ...); others read as their
 //!   key.
@@ -40,9 +40,9 @@
 //!   `temperatures_K`.
 //! - `hall.reduce` is the one analysis read by name.
 
-use super::{escape, SAMPLE_COLUMN};
+use super::text::{escape, SAMPLE_COLUMN};
 use crate::store::{Dataset, Provenance};
-use mobilis_core::quote::{self, Notation};
+use mobilis_physics::quote::{self, Notation};
 use polars::prelude::*;
 use serde_json::{Map, Value};
 use std::fmt::Write;
@@ -493,7 +493,7 @@ pub fn blocks(sample: &str, datasets: &[(&Dataset, DataFrame)]) -> Vec<Block> {
             continue;
         };
         let name = &dataset.manifest.name;
-        let only_this_sample = super::samples_of(dataset).len() == 1;
+        let only_this_sample = super::text::samples_of(dataset).len() == 1;
         if analysis == "hall.reduce" && !is_summary_table {
             let mut block = Block::new(
                 format!(

@@ -25,7 +25,7 @@
 //! written by earlier versions (zstd) load as before. A kept Parquet import stays in its
 //! source's own codec; bytes that cannot be taken apart are encoded as usual.
 
-use super::{storage_error, Manifest};
+use super::manifest::{storage_error, Manifest};
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use polars::io::parquet::write::{ParquetCompression, StatisticsOptions};
 use polars::prelude::*;
@@ -451,7 +451,7 @@ pub fn read_dataset(path: &Path) -> Result<(DataFrame, Option<String>), String> 
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::store::{column_infos, Provenance, MANIFEST_FORMAT};
+    use crate::store::manifest::{column_infos, Provenance, MANIFEST_FORMAT};
 
     fn manifest_of(name: &str, frame: &DataFrame) -> Manifest {
         Manifest {

@@ -165,7 +165,7 @@ pub(super) fn self_description() -> http::Response<Body> {
         "what": "the mobilis analysis server for resistivity, Hall-effect, multi-carrier and magnetoresistance measurements",
         "protocol": "JSON-RPC 2.0: POST a request to this address, or open a WebSocket here",
         "discover": "call rpc.discover for the OpenRPC document of every method and analysis.list for the analyses",
-        "docs": "README.md (using it) and DEVELOPERS.md (methods, tables, plugins) in the mobilis source tree"
+        "docs": "README.md (using it), the rpc.discover method (every method and its parameters) and DEVELOPERS.md (architecture, plugins) in the mobilis source tree"
     })
     .to_string();
     json_response(200, body)

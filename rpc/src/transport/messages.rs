@@ -12,8 +12,9 @@
 //! not a request object gets its own error, notifications get no answer, and a batch of
 //! notifications gets no answer at all.
 
-use super::{method_not_found, MAX_RESPONSE_BYTES};
+use super::limits::MAX_RESPONSE_BYTES;
 use crate::errors::{ErrorKind, ServiceError};
+use jsonrpsee::types::ErrorObjectOwned;
 use jsonrpsee::{MethodCallback, Methods};
 use serde_json::value::RawValue;
 use std::collections::HashMap;
@@ -414,6 +415,29 @@ impl Session {
             .unwrap_or_else(|poisoned| poisoned.into_inner())
             .abort_all();
     }
+}
+
+/// The JSON-RPC code of an unknown method (kept: clients recognise it).
+pub const METHOD_NOT_FOUND: i32 = -32601;
+
+/// The error for a method the daemon does not serve: names it and the closest ones.
+pub fn method_not_found(asked: &str, known: &[String]) -> ErrorObjectOwned {
+    let closest = crate::suggest::closest_names(asked, known.iter().map(String::as_str));
+    let message = if closest.is_empty() {
+        format!("no method named `{asked}`; rpc.discover lists every method")
+    } else {
+        format!("no method named `{asked}`; did you mean {}?", closest.join(", "))
+    };
+    ErrorObjectOwned::owned(
+        METHOD_NOT_FOUND,
+        message,
+        Some(serde_json::json!({
+            "kind": "method_not_found",
+            "method": asked,
+            "closest": closest,
+            "help": "rpc.discover lists every method with its parameters",
+        })),
+    )
 }
 
 #[cfg(test)]

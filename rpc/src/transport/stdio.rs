@@ -8,8 +8,8 @@
 //! cannot be told apart from a body, so the reader skips to the next line that holds a
 //! `Content-Length:` header and starts again there.
 
+use super::limits::MAX_STDIO_FRAME_BYTES;
 use super::messages::{parse_error, Dispatcher, Session, Via};
-use super::MAX_STDIO_FRAME_BYTES;
 use jsonrpsee::RpcModule;
 use tokio::io::{AsyncBufRead, AsyncBufReadExt, AsyncReadExt, AsyncWrite, AsyncWriteExt, BufReader};
 use tokio::sync::mpsc;

@@ -10,8 +10,8 @@
 //! wake-up of the daemon (see [`serve_websocket`]).
 
 use super::access::{self, AccessPolicy, Body, Verdict};
+use super::limits::{MAX_CONNECTIONS, MAX_REQUEST_BYTES};
 use super::messages::{Dispatcher, Session, Started, Via};
-use super::{MAX_CONNECTIONS, MAX_REQUEST_BYTES};
 use bytes::Bytes;
 use http_body_util::{BodyExt, Full, Limited};
 use hyper::body::Incoming;

@@ -13,8 +13,8 @@
 //! The library is named `test_fixture_plugin`, not `mobilis_*`, so a daemon never loads it
 //! unless its directory is passed with `--plugin-dir`.
 
-use mobilis_core::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
-use mobilis_core::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
+use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
+use mobilis_sdk::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
 use polars::prelude::{Column, DataFrame};
 use serde::Deserialize;
 use serde_json::json;
@@ -63,6 +63,7 @@ impl Analysis for Identity {
             inputs: vec![values_role(Vec::new(), "any table; every column is returned")],
             outputs: Vec::new(),
             summary_keys: Vec::new(),
+            figures: Vec::new(),
         }
     }
 
@@ -109,6 +110,7 @@ impl Analysis for Scale {
                 None,
                 "sum of the non-null x_scaled",
             )],
+            figures: Vec::new(),
         }
     }
 
@@ -141,6 +143,7 @@ impl Analysis for Panic {
             inputs: vec![values_role(Vec::new(), "any table")],
             outputs: Vec::new(),
             summary_keys: Vec::new(),
+            figures: Vec::new(),
         }
     }
 
@@ -193,6 +196,7 @@ impl Analysis for Wait {
                 "time spent waiting",
             )],
             summary_keys: Vec::new(),
+            figures: Vec::new(),
         }
     }
 
@@ -217,7 +221,7 @@ impl Analysis for Wait {
     }
 }
 
-mobilis_core::export_plugin!(name: "fixture", analyses: [Identity, Scale, Panic, Wait]);
+mobilis_sdk::export_plugin!(name: "fixture", analyses: [Identity, Scale, Panic, Wait]);
 
 #[cfg(test)]
 mod tests {

@@ -214,13 +214,13 @@ fn lab_series_realizations() -> usize {
 /// `group_by: sample` call reduces or fits them all.
 #[tokio::test(flavor = "multi_thread")]
 async fn a_drifting_lab_series_gives_freeze_out_error_bars_that_cover_the_truth() {
-    use mobilis_core::fit::Coverage;
-    use mobilis_core::forward::readings::{
+    use mobilis_numerics::fit::Coverage;
+    use mobilis_numerics::noise::Rng;
+    use mobilis_physics::forward::readings::{
         lab_van_der_pauw_series, LabConditions, MeasurementProtocol, VanDerPauwSample, VoltageNoise,
     };
-    use mobilis_core::forward::statistics::{BandModel, Dopants};
-    use mobilis_core::forward::transport::{n_type_transport, MobilityModel};
-    use mobilis_core::noise::Rng;
+    use mobilis_physics::forward::statistics::{BandModel, Dopants};
+    use mobilis_physics::forward::transport::{n_type_transport, MobilityModel};
 
     const DONORS_M3: f64 = 3.3e21;
     const ACCEPTORS_M3: f64 = 4.1e20;

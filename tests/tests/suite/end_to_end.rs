@@ -5,12 +5,12 @@
 //! clear errors while the daemon keeps serving, and a restart on the same workspace finds
 //! every dataset intact.
 
-use mobilis_core::readings::RawReading;
+use mobilis_physics::readings::RawReading;
 use mobilis_tests::{float_column, string_column, van_der_pauw_run, InventedSample, TestDaemon};
 use serde_json::{json, Value};
 use std::io::{Read, Write};
 
-const ELEMENTARY_CHARGE: f64 = mobilis_core::constants::ELEMENTARY_CHARGE_C;
+const ELEMENTARY_CHARGE: f64 = mobilis_physics::constants::ELEMENTARY_CHARGE_C;
 
 /// The invented samples of this test: (name, sheet resistance ohm/sq, R_B/R_A, sheet Hall coefficient m^2/C).
 const SAMPLES: [InventedSample; 2] = [("n-film", 250.0, 1.3, -624.15), ("p-film", 4000.0, 0.8, 3120.75)];

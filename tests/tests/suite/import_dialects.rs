@@ -7,12 +7,12 @@
 //! that do not match their recipe get errors naming the line and the option to change, and
 //! the provenance identifies the file by its SHA-256, size and modification time.
 
-use mobilis_core::readings::RawReading;
+use mobilis_physics::readings::RawReading;
 use mobilis_tests::{float_column, run_cli, string_column, van_der_pauw_run, InventedSample, TestDaemon};
 use serde_json::json;
 use std::path::Path;
 
-const ELEMENTARY_CHARGE: f64 = mobilis_core::constants::ELEMENTARY_CHARGE_C;
+const ELEMENTARY_CHARGE: f64 = mobilis_physics::constants::ELEMENTARY_CHARGE_C;
 
 /// The invented wafers: (name, sheet resistance ohm/sq, R_B/R_A, sheet Hall coefficient m^2/C).
 const WAFERS: [InventedSample; 2] = [("W1", 180.0, 1.2, -450.0), ("W2", 2600.0, 0.9, 1900.0)];

@@ -3,10 +3,10 @@
 //! symmetrization finds the misalignment, the ratio and Kohler analyses see a collapsing
 //! family, the two-band fit recovers both bands, and bad sweeps get clear errors.
 
-use mobilis_core::forward::tensor::{
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::forward::tensor::{
     resistivity_tensor, symmetric_fields, synthetic_sweep, Carrier, SweepImperfections, SweepNoise,
 };
-use mobilis_core::noise::Rng;
 use mobilis_tests::TestDaemon;
 use serde_json::{json, Value};
 
@@ -195,7 +195,7 @@ async fn sweeps_without_zero_field_or_with_one_sign_are_refused_clearly() {
 
 mod quantum {
     use super::*;
-    use mobilis_core::forward::oscillations::{
+    use mobilis_physics::forward::oscillations::{
         synthetic_sdh_sweep, synthetic_weak_localization_sweep, OscillationComponent, SdhModel, WeakLocalizationModel,
     };
 

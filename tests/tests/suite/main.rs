@@ -19,6 +19,7 @@ mod end_to_end;
 mod figure_errors;
 mod import_dialects;
 mod js_client;
+mod lab_plugin;
 mod magnetoresistance;
 mod notebooks;
 mod plugin_abi;

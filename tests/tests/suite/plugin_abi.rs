@@ -13,8 +13,8 @@
 //! running that compiler directly with `-shared`.
 
 use mobilis_client::{Client, ClientError};
-use mobilis_core::abi;
 use mobilis_rpc::plugin_host::{CallControl, PluginHost};
+use mobilis_sdk::abi;
 use mobilis_tests::{fixture_plugin_dir, float_column, plugin_library, workspace_root, TestDaemon};
 use polars::prelude::{Column, DataFrame};
 use serde_json::{json, Value};
@@ -57,7 +57,7 @@ fn build_c_plugin(dir: &Path, name: &str, defines: &[(&str, Option<&str>)]) -> P
     let source = workspace_root().join("tests/c-plugin/cfixture.c");
     let mut build = cc::Build::new();
     build
-        .include(workspace_root().join("core/include"))
+        .include(workspace_root().join("sdk/include"))
         .std("c99")
         // The plugin is meant as an example of clean C: any warning fails the test.
         .warnings(true)

@@ -178,7 +178,7 @@ fn parse_printed(token: &str) -> Option<Printed> {
 
 /// Superscript digits back to a number: `¹⁵` -> 15, `⁻³¹` -> -31.
 fn superscript_number(text: &str) -> Option<i32> {
-    mobilis_core::quote::parse_superscript(text)
+    mobilis_physics::quote::parse_superscript(text)
 }
 
 /// Every number in a text: plain ones (`2.797e15`, `45.00`), `a ± b` (the value good to the

@@ -4,8 +4,8 @@
 //! `spectrum.mobility` find both layers at their densities and mobilities; a long spectrum
 //! is cancelled from a second connection; bad sweeps get clear errors.
 
-use mobilis_core::forward::tensor::{symmetric_fields, synthetic_sweep, Carrier, SweepImperfections, SweepNoise};
-use mobilis_core::noise::Rng;
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::forward::tensor::{symmetric_fields, synthetic_sweep, Carrier, SweepImperfections, SweepNoise};
 use mobilis_tests::TestDaemon;
 use serde_json::{json, Value};
 use std::time::{Duration, Instant};

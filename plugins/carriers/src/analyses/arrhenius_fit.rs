@@ -16,8 +16,8 @@ use super::freeze_out_fit::{
 };
 use super::*;
 use crate::arrhenius::{fit_arrhenius, ArrheniusRange, ArrheniusRegime, ArrheniusSettings, AutomaticRange};
-use mobilis_core::abi::AnalysisDeclaration;
-use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
+use mobilis_sdk::abi::AnalysisDeclaration;
+use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 
 pub struct ArrheniusAnalysis;
 
@@ -101,6 +101,7 @@ impl Analysis for ArrheniusAnalysis {
                 keys.extend(budget_summary_keys());
                 keys
             },
+            figures: crate::figures::arrhenius(),
         }
     }
 
@@ -234,7 +235,7 @@ impl Analysis for ArrheniusAnalysis {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use mobilis_core::sdk::run_typed;
+    use mobilis_sdk::sdk::run_typed;
 
     /// The output names the power of T it divided out, per regime, on every row.
     #[test]
@@ -308,8 +309,8 @@ mod tests {
 mod budget_tests {
     use super::*;
     use crate::freeze_out::realistic::{geometric, RealisticSeries};
-    use mobilis_core::noise::Rng;
-    use mobilis_core::sdk::run_typed;
+    use mobilis_numerics::noise::Rng;
+    use mobilis_sdk::sdk::run_typed;
 
     #[test]
     fn the_summary_carries_the_diagnostics_and_the_table_the_weights() {

@@ -18,9 +18,9 @@
 
 use super::*;
 use crate::freeze_out::{fit_freeze_out, Estimate, FreezeOutSettings, UncertaintySource};
-use mobilis_core::abi::{AnalysisDeclaration, InputRole};
-use mobilis_core::fit::RELATIVE_UNCERTAINTY_FLOOR;
-use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
+use mobilis_numerics::fit::RELATIVE_UNCERTAINTY_FLOOR;
+use mobilis_sdk::abi::{AnalysisDeclaration, InputRole};
+use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 
 pub struct FreezeOutFitAnalysis;
 
@@ -217,6 +217,7 @@ impl Analysis for FreezeOutFitAnalysis {
                 keys.extend(budget_summary_keys());
                 keys
             },
+            figures: crate::figures::freeze_out(),
         }
     }
 
@@ -376,8 +377,8 @@ impl Analysis for FreezeOutFitAnalysis {
 mod tests {
     use super::*;
     use crate::freeze_out::realistic::RealisticSeries;
-    use mobilis_core::noise::Rng;
-    use mobilis_core::sdk::run_typed;
+    use mobilis_numerics::noise::Rng;
+    use mobilis_sdk::sdk::run_typed;
 
     /// A realistic series as `hall.reduce` writes it (with the budget columns), or as an
     /// older table did (`density_m3_unc` only).

@@ -23,9 +23,9 @@ use crate::scattering::{
     fit_mobility_scattering, medium_for, IonizedDensityModel, IonizedImpurityFormula, MobilityPoint,
     NeutralImpurityModel, ScatteringFit, ScatteringSettings, ScreeningDensity,
 };
-use mobilis_core::abi::{AnalysisDeclaration, InputRole};
-use mobilis_core::fit::RELATIVE_UNCERTAINTY_FLOOR;
-use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
+use mobilis_numerics::fit::RELATIVE_UNCERTAINTY_FLOOR;
+use mobilis_sdk::abi::{AnalysisDeclaration, InputRole};
+use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 
 pub struct MobilityScatteringAnalysis;
 
@@ -276,6 +276,7 @@ impl Analysis for MobilityScatteringAnalysis {
                 column("birge_ratio", F64, None, "the factor the uncertainties were scaled by (1: not scaled)"),
                 column("floored_points", I64, None, "points whose uncertainty was raised to relative_uncertainty_floor"),
             ],
+            figures: crate::figures::mobility_scattering(),
         }
     }
 
@@ -665,8 +666,8 @@ fn fill_summary(
 mod tests {
     use super::*;
     use crate::scattering::{evaluate_model, ScatteringParameters};
-    use mobilis_core::noise::Rng;
-    use mobilis_core::sdk::run_typed;
+    use mobilis_numerics::noise::Rng;
+    use mobilis_sdk::sdk::run_typed;
 
     /// A hall table of n-Si mobilities from 30 to 400 K (Brooks-Herring on 1e16 cm^-3, a
     /// lattice law of 1448 (T/300)^-2.33 cm^2/Vs; invented test input), with 0.5 %

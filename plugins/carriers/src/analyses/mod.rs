@@ -9,8 +9,8 @@ pub mod purity_summary;
 
 use crate::freeze_out::{CarrierType, DensityPoint, HallFactor};
 use crate::materials::{Material, MaterialOverrides, PRESET_NAMES};
-use mobilis_core::abi::{ColumnSpec, ColumnType};
-use mobilis_core::sdk::{self, AnalysisError};
+use mobilis_sdk::abi::{ColumnSpec, ColumnType};
+use mobilis_sdk::sdk::{self, AnalysisError};
 use polars::prelude::*;
 use serde::Deserialize;
 use serde_json::{json, Value};

@@ -19,8 +19,8 @@ use crate::purity::{
     summarize_purity, ConsistencyTolerance, DensityComparison, Estimate, PurityInput, ReferenceBasis,
     ScatteringDensities,
 };
-use mobilis_core::abi::{AnalysisDeclaration, InputRole};
-use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
+use mobilis_sdk::abi::{AnalysisDeclaration, InputRole};
+use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 
 pub struct PurityAnalysis;
 
@@ -176,6 +176,7 @@ impl Analysis for PurityAnalysis {
             ],
             outputs,
             summary_keys: vec![column("samples", I64, None, "rows of the output")],
+            figures: Vec::new(),
         }
     }
 
@@ -325,7 +326,7 @@ impl Analysis for PurityAnalysis {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use mobilis_core::sdk::run_typed;
+    use mobilis_sdk::sdk::run_typed;
 
     fn freeze_out_summary(material: &str, energy_ev: f64) -> DataFrame {
         DataFrame::new(

@@ -3,9 +3,9 @@
 use super::*;
 use crate::freeze_out::realistic::{realizations, RealisticSeries, CM3};
 use crate::materials::Material;
-use mobilis_core::fit::Coverage;
-use mobilis_core::forward::statistics::{solve_charge_neutrality, Dopants};
-use mobilis_core::noise::Rng;
+use mobilis_numerics::fit::Coverage;
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::forward::statistics::{solve_charge_neutrality, Dopants};
 
 /// Electron density of n-type silicon (Levinshtein bands) from core's full neutrality
 /// solver.
@@ -94,7 +94,7 @@ fn uncompensated_slope_with_t_three_quarters_returns_the_donor_energy() {
         .iter()
         .map(|t| point(*t, silicon_electrons(&dopants, *t), CarrierType::N))
         .collect();
-    let kelvin_ev = mobilis_core::constants::BOLTZMANN_EV_PER_K;
+    let kelvin_ev = mobilis_physics::constants::BOLTZMANN_EV_PER_K;
     let lowest_local = points
         .iter()
         .map(|p| {
@@ -462,7 +462,7 @@ fn a_point_stated_absurdly_precisely_is_floored_and_the_temperature_enters_throu
     // The point's weight: the floor (1e-3) with the drift through the line's slope,
     // (b / kT^2 - 1.5 / T) u_T with b = -E: (E + 1.5 kT) / kT^2 x 30 mK, about 3.7 % at
     // 20 K (the derivative of ln(n T^-3/2) = const - E / kT).
-    let kt = mobilis_core::constants::BOLTZMANN_EV_PER_K * 20.0;
+    let kt = mobilis_physics::constants::BOLTZMANN_EV_PER_K * 20.0;
     let expected = (1e-6 + ((-fit.line.slope + 1.5 * kt) / (kt * 20.0) * 0.030f64).powi(2)).sqrt();
     let coldest = fit.points[0].reduced_ln_density_unc.unwrap();
     assert!((coldest / expected - 1.0).abs() < 1e-9, "{coldest} vs {expected}");

@@ -4,7 +4,7 @@
 
 use super::realistic::RealisticSeries;
 use super::*;
-use mobilis_core::noise::Rng;
+use mobilis_numerics::noise::Rng;
 
 /// A realistic series with the stated statistical uncertainty of every point as drawn.
 fn drawn(seed: u64) -> (RealisticSeries, realistic::Realization) {

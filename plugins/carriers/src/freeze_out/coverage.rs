@@ -3,12 +3,12 @@
 //! the truth lies within 1 and 2 reported standard uncertainties (the Monte Carlo check of
 //! JCGM 101:2008, the GUM supplement on propagation of distributions, in its simplest
 //! form). Honest means 55-80 % within 1 sigma and at least 90 % within 2 sigma
-//! (`mobilis_core::fit::Coverage::is_honest`; 68.3 % and 95.4 % for a normal distribution).
+//! (`mobilis_numerics::fit::Coverage::is_honest`; 68.3 % and 95.4 % for a normal distribution).
 
 use super::realistic::{realizations, RealisticSeries};
 use super::*;
-use mobilis_core::fit::Coverage;
-use mobilis_core::noise::Rng;
+use mobilis_numerics::fit::Coverage;
+use mobilis_numerics::noise::Rng;
 
 /// Fits `count` realizations of `series` and returns the coverage of N_D, N_A and E_D, the
 /// largest relative error of N_D once the drawn thickness calibration is divided out, and

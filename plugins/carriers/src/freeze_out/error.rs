@@ -2,13 +2,13 @@
 //!
 //! Every message names what is wrong (the 0-based point index, the value) and what to change.
 //! `Display` is written by hand, as in the other plugins, so that the module needs nothing
-//! beyond the standard library and mobilis-core.
+//! beyond the standard library and the mobilis crates it builds on.
 
 use std::fmt;
 
-use mobilis_core::fit::FitError;
+use mobilis_numerics::fit::FitError;
 
-use super::CarrierType;
+use crate::carrier_type::CarrierType;
 use crate::materials::MaterialError;
 
 /// What is wrong with a temperature series of carrier densities (shared by the freeze-out

@@ -2,7 +2,7 @@
 //!
 //! For the majority carriers (electrons of density n in an n-type crystal; the p-type case
 //! is the mirror image with the roles of the bands and of donors and acceptors swapped) the
-//! condition p + N_D+ = n + N_A- of `mobilis_core::forward::statistics` is, with Boltzmann
+//! condition p + N_D+ = n + N_A- of `mobilis_physics::forward::statistics` is, with Boltzmann
 //! statistics,
 //!
 //! - N_D+ = N_D / (1 + n / K_D), K_D = (Nc / g_D) exp(-E_D / kT);
@@ -24,10 +24,10 @@
 //! about fifty times cheaper than its bisection to the last bit, which matters because a fit
 //! evaluates it thousands of times.
 
-use mobilis_core::constants::BOLTZMANN_EV_PER_K;
-use mobilis_core::forward::statistics::BandModel;
+use mobilis_physics::constants::BOLTZMANN_EV_PER_K;
+use mobilis_physics::forward::statistics::BandModel;
 
-use super::CarrierType;
+use crate::carrier_type::CarrierType;
 
 /// The level of the compensating species, when its occupancy is to be modelled.
 #[derive(Debug, Clone, Copy, PartialEq)]

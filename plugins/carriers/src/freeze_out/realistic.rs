@@ -3,7 +3,7 @@
 //! readings, stage drift between the reported and the true temperature, and a thickness
 //! calibration error drawn once per series.
 //!
-//! The densities come from `mobilis_core::forward::statistics::solve_charge_neutrality`,
+//! The densities come from `mobilis_physics::forward::statistics::solve_charge_neutrality`,
 //! the forward model the freeze-out fit inverts (the compensating acceptors get a 45 meV
 //! level, whose occupancy the fit neglects; it is below 1e-6 of N_A here). Every number
 //! below is an invented test input, chosen to resemble a van der Pauw series on compensated
@@ -12,8 +12,8 @@
 
 use super::{CarrierType, DensityPoint};
 use crate::materials::Material;
-use mobilis_core::forward::statistics::{solve_charge_neutrality, Dopants};
-use mobilis_core::noise::Rng;
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::forward::statistics::{solve_charge_neutrality, Dopants};
 
 /// cm^-3 to m^-3.
 pub(crate) const CM3: f64 = 1e6;

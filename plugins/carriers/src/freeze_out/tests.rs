@@ -2,8 +2,8 @@
 
 use super::*;
 use crate::materials::{Material, MaterialOverrides};
-use mobilis_core::forward::statistics::{solve_charge_neutrality, Dopants};
-use mobilis_core::noise::Rng;
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::forward::statistics::{solve_charge_neutrality, Dopants};
 
 const CM3: f64 = 1e6; // cm^-3 to m^-3
 

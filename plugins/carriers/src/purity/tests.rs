@@ -3,7 +3,7 @@
 //! comparison verdict and the refusals.
 
 use super::*;
-use mobilis_core::noise::Rng;
+use mobilis_numerics::noise::Rng;
 
 const CM3: f64 = 1e6; // cm^-3 to m^-3
 

@@ -5,8 +5,8 @@
 //! realizations of realistic data.
 
 use super::*;
-use mobilis_core::fit::Coverage;
-use mobilis_core::noise::Rng;
+use mobilis_numerics::fit::Coverage;
+use mobilis_numerics::noise::Rng;
 
 const CM3: f64 = 1e6; // cm^-3 to m^-3
 
@@ -479,8 +479,8 @@ fn brooks_herring_outside_its_validity_is_named() {
 // and alpha honestly. 100 series take about 10 s in a debug build.
 #[test]
 fn compensation_through_freeze_out_is_covered_with_calibration_errors() {
-    use mobilis_core::forward::statistics::{BandModel, Dopants};
-    use mobilis_core::forward::transport::{n_type_transport, MobilityModel};
+    use mobilis_physics::forward::statistics::{BandModel, Dopants};
+    use mobilis_physics::forward::transport::{n_type_transport, MobilityModel};
     let dopants = Dopants::new(3e15 * CM3, 2e14 * CM3, 0.045, 0.045);
     let bands = BandModel::silicon();
     let model = MobilityModel::silicon_electrons();

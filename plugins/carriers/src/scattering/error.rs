@@ -2,7 +2,7 @@
 //!
 //! Every message names the offending point (0-based index in the order given) or setting,
 //! its value, and what to change. `Display` and `std::error::Error` are written by hand so
-//! that the module needs nothing beyond the standard library and mobilis-core.
+//! that the module needs nothing beyond the standard library and the mobilis crates it builds on.
 
 use std::fmt;
 

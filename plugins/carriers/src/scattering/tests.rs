@@ -4,10 +4,10 @@
 //! core's forward model, and every refusal.
 
 use super::*;
-use mobilis_core::forward::mobility::ScatteringMedium;
-use mobilis_core::forward::statistics::{BandModel, Dopants};
-use mobilis_core::forward::transport::{n_type_transport, MobilityModel};
-use mobilis_core::noise::Rng;
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::forward::mobility::ScatteringMedium;
+use mobilis_physics::forward::statistics::{BandModel, Dopants};
+use mobilis_physics::forward::transport::{n_type_transport, MobilityModel};
 
 const CM2: f64 = 1e-4; // cm^2/(V s) to m^2/(V s)
 const CM3: f64 = 1e6; // cm^-3 to m^-3
@@ -149,9 +149,12 @@ fn brooks_compensated_screening_density() {
     // and the acceptors' occupancy do not count.
     let dopants = Dopants::new(3e15 * CM3, 2e14 * CM3, 0.045, 0.045);
     for temperature_k in [25.0, 50.0, 100.0, 300.0] {
-        let state =
-            mobilis_core::forward::statistics::solve_charge_neutrality(&dopants, &BandModel::silicon(), temperature_k)
-                .unwrap();
+        let state = mobilis_physics::forward::statistics::solve_charge_neutrality(
+            &dopants,
+            &BandModel::silicon(),
+            temperature_k,
+        )
+        .unwrap();
         let brooks = brooks_screening_density_m3(state.electron_density_m3, 3e15 * CM3, 2e14 * CM3);
         assert!(
             (brooks / state.screening_density_m3 - 1.0).abs() < 1e-6,

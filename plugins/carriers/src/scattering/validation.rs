@@ -6,10 +6,10 @@
 //! Masetti's silicon.
 //!
 //! Values recalled rather than read say "from memory": Arora's parameters, Jacoboni's laws
-//! and the two intrinsic densities are, and Masetti's Table I is as `mobilis_core` stores it.
+//! and the two intrinsic densities are, and Masetti's Table I is as `mobilis_physics` stores it.
 
 use super::*;
-use mobilis_core::forward::mobility::{AroraParameters, MasettiParameters};
+use mobilis_physics::forward::mobility::{AroraParameters, MasettiParameters};
 
 const CM2: f64 = 1e-4; // cm^2/(V s) to m^2/(V s)
 const CM3: f64 = 1e6; // cm^-3 to m^-3

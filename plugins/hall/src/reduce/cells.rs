@@ -14,7 +14,7 @@
 //! cell also hands over its evidence about that noise: the residual sum of squares of its
 //! fit, in V^2, with its degrees of freedom.
 
-/// A validated reading in canonical orientation (see `mobilis_core::contacts`): `current_a`
+/// A validated reading in canonical orientation (see `mobilis_physics::contacts`): `current_a`
 /// and `voltage_v` already carry the configuration's current and voltage signs.
 #[derive(Debug, Clone, Copy)]
 pub(super) struct Prepared {

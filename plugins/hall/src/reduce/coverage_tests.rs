@@ -1,5 +1,5 @@
 //! Coverage of the reported uncertainties: many series of readings as a real lab records them
-//! (`mobilis_core::forward::readings::lab_van_der_pauw_series`: autoranged current, 1 uV of
+//! (`mobilis_physics::forward::readings::lab_van_der_pauw_series`: autoranged current, 1 uV of
 //! voltmeter noise, 30 mK of stage drift between readings, 3 mT of remanence, field wander,
 //! and calibration errors of thickness, field, current, voltage and thermometer drawn once
 //! per series) are reduced, and we count how often the truth lies within 1 and 2 reported
@@ -16,13 +16,13 @@
 //! activation energy of 15 meV and a mobility ~ T^-1.5, measured from 24 K to 300 K. At 24 K,
 //! d ln n / dT = 0.30 per K: 30 mK of drift moves the density by about 1 % between readings.
 
-use mobilis_core::constants::{BOLTZMANN_EV_PER_K, ELEMENTARY_CHARGE_C};
-use mobilis_core::fit::Coverage;
-use mobilis_core::forward::readings::{
+use mobilis_numerics::fit::Coverage;
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::constants::{BOLTZMANN_EV_PER_K, ELEMENTARY_CHARGE_C};
+use mobilis_physics::forward::readings::{
     lab_van_der_pauw_series, CalibrationErrors, LabConditions, MeasurementProtocol, VanDerPauwSample, VoltageNoise,
 };
-use mobilis_core::forward::ForwardError;
-use mobilis_core::noise::Rng;
+use mobilis_physics::forward::ForwardError;
 
 use super::*;
 

@@ -2,11 +2,11 @@
 //!
 //! Every message names what is wrong (the 0-based reading index, the sample, the value) and
 //! what to change. `Display` and `std::error::Error` are written out by hand so that the
-//! module needs nothing beyond the standard library and mobilis-core.
+//! module needs nothing beyond the standard library and the mobilis crates it builds on.
 
 use std::fmt;
 
-use mobilis_core::contacts::ContactError;
+use mobilis_physics::contacts::ContactError;
 
 /// What is wrong with one reading. Carried by [`ReduceError::InvalidReading`], and turned
 /// into a warning when the reading is skipped.

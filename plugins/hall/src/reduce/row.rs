@@ -4,15 +4,16 @@
 //!
 //! The physics and the choices behind it are documented in the parent module.
 
-use mobilis_core::constants::ELEMENTARY_CHARGE_C;
-use mobilis_core::van_der_pauw;
+use mobilis_physics::constants::ELEMENTARY_CHARGE_C;
+use mobilis_physics::van_der_pauw;
 use std::f64::consts::{LN_2, PI};
 
 use super::cells::{
     combine_redundant, mean_with_standard_error, quadrature, quadrature_of, redundancy_evidence, CellSummary, Estimate,
     NoiseEvidence, MAX_SLOTS,
 };
-use super::{flags, Geometry, ReduceSettings};
+use super::contract::{Geometry, ReduceSettings};
+use super::flags;
 
 /// The calibrations of one sample as resolved from the sheet, the call and the defaults:
 /// relative standard uncertainties of the scales, the thermometer's accuracy in K.
@@ -618,14 +619,14 @@ pub(super) fn build_row(
     record
 }
 
-/// The float columns of a finished row, in the order of [`super::float_column`], and a
+/// The float columns of a finished row, in the order of [`super::contract::float_column`], and a
 /// mask of the present ones (bit i for column i).
-pub(super) type FinishedFloats = ([f64; super::float_column::COUNT], u64);
+pub(super) type FinishedFloats = ([f64; super::contract::float_column::COUNT], u64);
 
 /// A row's float columns once the pooled voltage noise of its sample is known: the values
 /// and their uncertainty budgets.
 pub(super) fn finish_row(record: &RowRecord, hall_factor: f64, series: &SeriesBudget) -> FinishedFloats {
-    use super::float_column as column;
+    use super::contract::float_column as column;
     let mut values = [0.0; column::COUNT];
     let mut present = 0u64;
     let mut put = |index: usize, value: Option<f64>| {

@@ -3,56 +3,9 @@
 //! every column), so that no per-row record outlives its sample and the table glue hands
 //! the buffers to the output table without another pass.
 
-use super::row::{finish_row, FlagSet, RowRecord, SeriesBudget};
-use super::{CalibrationUsed, ReducedRow, SampleReduction};
-
-/// The float columns of the output, by index into [`ReductionTable::floats`].
-pub mod float_column {
-    pub const TEMPERATURE_K: usize = 0;
-    pub const TEMPERATURE_K_UNC: usize = 1;
-    pub const TEMPERATURE_SPREAD_K: usize = 2;
-    pub const FIELD_T: usize = 3;
-    pub const RESISTANCE_A: usize = 4;
-    pub const RESISTANCE_B: usize = 5;
-    pub const RESISTANCE_RATIO: usize = 6;
-    pub const GEOMETRY_FACTOR: usize = 7;
-    pub const SHEET_RESISTANCE: usize = 8;
-    pub const SHEET_RESISTANCE_UNC: usize = 9;
-    pub const SHEET_RESISTANCE_UNC_STAT: usize = 10;
-    pub const SHEET_RESISTANCE_UNC_SYS: usize = 11;
-    pub const RESISTIVITY: usize = 12;
-    pub const RESISTIVITY_UNC: usize = 13;
-    pub const RESISTIVITY_UNC_STAT: usize = 14;
-    pub const RESISTIVITY_UNC_SYS: usize = 15;
-    pub const HALL_RESISTANCE: usize = 16;
-    pub const HALL_RESISTANCE_UNC: usize = 17;
-    pub const SHEET_HALL_COEFFICIENT: usize = 18;
-    pub const SHEET_HALL_COEFFICIENT_UNC: usize = 19;
-    pub const HALL_COEFFICIENT: usize = 20;
-    pub const HALL_COEFFICIENT_UNC: usize = 21;
-    pub const SHEET_DENSITY: usize = 22;
-    pub const SHEET_DENSITY_UNC: usize = 23;
-    pub const SHEET_DENSITY_UNC_STAT: usize = 24;
-    pub const SHEET_DENSITY_UNC_SYS: usize = 25;
-    pub const DENSITY: usize = 26;
-    pub const DENSITY_UNC: usize = 27;
-    pub const DENSITY_UNC_STAT: usize = 28;
-    pub const DENSITY_UNC_SYS: usize = 29;
-    pub const HALL_MOBILITY: usize = 30;
-    pub const HALL_MOBILITY_UNC: usize = 31;
-    pub const HALL_MOBILITY_UNC_STAT: usize = 32;
-    pub const HALL_MOBILITY_UNC_SYS: usize = 33;
-    pub const DRIFT_MOBILITY: usize = 34;
-    pub const DRIFT_MOBILITY_UNC: usize = 35;
-    pub const HALL_FACTOR: usize = 36;
-    pub const RECIPROCITY_MISMATCH: usize = 37;
-    pub const CURRENT_REVERSAL_MISMATCH: usize = 38;
-    pub const HALL_SPREAD: usize = 39;
-    pub const THERMOELECTRIC_OFFSET_RATIO: usize = 40;
-    pub const MISALIGNMENT_RATIO: usize = 41;
-    pub const READING_NOISE_V: usize = 42;
-    pub const COUNT: usize = 43;
-}
+use super::cells::NoiseEvidence;
+use super::contract::{float_column, CalibrationUsed, ReducedRow};
+use super::row::{finish_row, FlagSet, ResolvedCalibration, RowRecord, SeriesBudget};
 
 /// One float column: its values (0 where null) and, per row, whether the value is present.
 #[derive(Debug, Clone, Default)]
@@ -298,4 +251,20 @@ fn write_scalars(out: &mut SampleColumns<'_>, row: usize, record: &RowRecord) {
     out.drift_corrected[row] = record.drift_corrected;
     out.carrier[row] = record.carrier;
     out.flags[row] = record.flags;
+}
+
+/// What one sample's series gives.
+pub(super) struct SampleReduction {
+    /// Rank of the sample (its index among the resolved samples).
+    pub(super) rank: u32,
+    /// The rows, to be finished with `series_evidence`.
+    pub(super) records: Vec<RowRecord>,
+    /// The sample's voltage-noise evidence pooled over every row of its series.
+    pub(super) series_evidence: NoiseEvidence,
+    pub(super) calibration_resolved: ResolvedCalibration,
+    /// Warnings about single rows, in row order (the caller caps them).
+    pub(super) row_warnings: Vec<String>,
+    /// The sample's warning about readings taken as zero field, if any.
+    pub(super) warning: Option<String>,
+    pub(super) calibration: CalibrationUsed,
 }

@@ -6,10 +6,10 @@ use crate::kohler::{kohler, KohlerCurve, KohlerSettings};
 use crate::ratio::{magnetoresistance, RatioSettings, ZeroFieldResistivity};
 use crate::symmetrize::{symmetrize_sweep, SymmetrizeOptions};
 use crate::two_band::{fit_two_band_sweep, TwoBandError, TwoBandSettings};
-use mobilis_core::abi::AnalysisDeclaration;
-use mobilis_core::forward::tensor::CarrierKind;
-use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
-use mobilis_core::sweep_table::{
+use mobilis_physics::forward::tensor::CarrierKind;
+use mobilis_sdk::abi::AnalysisDeclaration;
+use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
+use mobilis_sdk::sweep_table::{
     single_field_sign_series_warning, single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature,
     SweepParams,
 };
@@ -106,6 +106,7 @@ impl Analysis for SymmetrizeAnalysis {
                 column("misalignment_fraction", F64, None, "rho_xy_even / rho_xx at low field, with _unc"),
                 column("max_rho_xy_asymmetry", F64, None, "largest removed even part relative to rho_xy"),
             ],
+            figures: crate::figures::symmetrize(),
         }
     }
 
@@ -190,6 +191,7 @@ impl Analysis for RatioAnalysis {
                 column("magnetoresistance_at_max_field", F64, None, "MR at the largest field"),
                 single_field_sign_key(),
             ],
+            figures: crate::figures::ratio(),
         }
     }
 
@@ -275,6 +277,7 @@ impl Analysis for KohlerAnalysis {
                 column("rms_excess_spread", F64, None, "rms spread of ln MR beyond the noise"),
                 single_field_sign_key(),
             ],
+            figures: crate::figures::kohler(),
         }
     }
 
@@ -428,6 +431,7 @@ impl Analysis for TwoBandAnalysis {
                 column("birge_ratio", F64, None, "sqrt(chi^2 / nu) when above 1 (the uncertainties were multiplied by it), else 1; null without stated uncertainties"),
                 single_field_sign_key(),
             ],
+            figures: crate::figures::two_band_fit(),
         }
     }
 

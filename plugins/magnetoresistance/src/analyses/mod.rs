@@ -1,12 +1,12 @@
 //! Table glue of the magnetoresistance analyses: sweeps in (through
-//! `mobilis_core::sweep_table`), parameters into the physics' settings, results out as tables
+//! `mobilis_sdk::sweep_table`), parameters into the physics' settings, results out as tables
 //! ready to plot and summaries.
 
 pub mod classical;
 pub mod quantum;
 
-use mobilis_core::abi::{ColumnSpec, ColumnType};
-use mobilis_core::sdk::AnalysisError;
+use mobilis_sdk::abi::{ColumnSpec, ColumnType};
+use mobilis_sdk::sdk::AnalysisError;
 use polars::prelude::*;
 
 pub(crate) fn invalid(message: impl Into<String>) -> AnalysisError {

@@ -14,13 +14,13 @@ use crate::oscillations::{
     OscillationSettings, OscillationSweep,
 };
 use crate::weak_localization::{fit_weak_localization, WeakLocalizationSettings, WeakLocalizationSweep};
-use mobilis_core::abi::AnalysisDeclaration;
-use mobilis_core::fft::Window;
-use mobilis_core::fit::FitQuality;
-use mobilis_core::forward::oscillations::thermal_damping_factor;
-use mobilis_core::sdk::{Analysis, AnalysisOutput, Host, Inputs};
-use mobilis_core::sweep::{symmetrize, SweepUse};
-use mobilis_core::sweep_table::{
+use mobilis_numerics::fft::Window;
+use mobilis_numerics::fit::FitQuality;
+use mobilis_physics::forward::oscillations::thermal_damping_factor;
+use mobilis_physics::sweep::{symmetrize, SweepUse};
+use mobilis_sdk::abi::AnalysisDeclaration;
+use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
+use mobilis_sdk::sweep_table::{
     single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature, SweepParams, SweepTable,
 };
 use serde::Deserialize;
@@ -216,6 +216,7 @@ impl Analysis for OscillationsAnalysis {
                 column("calibrations_not_stated", Str, None, "the calibration parameters not stated, whose common-practice values were assumed in the _unc_sys parts (JSON list)"),
                 column("uncertainty_checks", Str, None, "the repeated analyses whose spread is in the _unc_stat parts (JSON list)"),
             ],
+            figures: crate::figures::oscillations(),
         }
     }
 
@@ -703,6 +704,7 @@ impl Analysis for WeakLocalizationAnalysis {
                 column("chi_square_p_value", F64, None, "P(chi^2 >= observed) when rho_xx_ohm_sq_unc weights the fit, else null"),
                 column("birge_ratio", F64, None, "sqrt(chi^2 / nu) when above 1 (the uncertainties were multiplied by it), else 1; null without stated uncertainties"),
             ],
+            figures: crate::figures::weak_localization(),
         }
     }
 
@@ -775,8 +777,8 @@ impl Analysis for WeakLocalizationAnalysis {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use mobilis_core::forward::oscillations::{OscillationComponent, SdhModel};
-    use mobilis_core::sdk::run_typed;
+    use mobilis_physics::forward::oscillations::{OscillationComponent, SdhModel};
+    use mobilis_sdk::sdk::run_typed;
 
     fn text(frame: &DataFrame, name: &str) -> Vec<String> {
         let column = frame.column(name).unwrap().str().unwrap().clone();
@@ -882,7 +884,7 @@ mod tests {
     /// T_D = 0.5 K).
     #[test]
     fn dingle_and_landau_rows_carry_their_fitted_lines() {
-        use mobilis_core::forward::oscillations::LK_FIELD_PER_KELVIN;
+        use mobilis_physics::forward::oscillations::LK_FIELD_PER_KELVIN;
         let model = SdhModel {
             background_ohm_sq: vec![100.0, 0.0, 3.0, -0.1],
             components: vec![OscillationComponent {
@@ -970,9 +972,9 @@ mod tests {
     /// alpha = 1, l_phi = 250 nm); the fit finds l_phi within its uncertainty.
     #[test]
     fn weak_localization_runs_on_a_long_logged_ramp() {
-        use mobilis_core::forward::oscillations::{synthetic_weak_localization_sweep, WeakLocalizationModel};
-        use mobilis_core::forward::tensor::SweepNoise;
-        use mobilis_core::noise::Rng;
+        use mobilis_numerics::noise::Rng;
+        use mobilis_physics::forward::oscillations::{synthetic_weak_localization_sweep, WeakLocalizationModel};
+        use mobilis_physics::forward::tensor::SweepNoise;
         let model = WeakLocalizationModel {
             sigma_0_s: 1.0 / 2080.5,
             alpha: 1.0,

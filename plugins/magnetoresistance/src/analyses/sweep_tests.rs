@@ -6,12 +6,12 @@
 use super::classical::{KohlerAnalysis, RatioAnalysis, SymmetrizeAnalysis, TwoBandAnalysis};
 use super::quantum::{OscillationsAnalysis, WeakLocalizationAnalysis};
 use super::*;
-use mobilis_core::forward::oscillations::{
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::forward::oscillations::{
     synthetic_weak_localization_sweep, OscillationComponent, SdhModel, WeakLocalizationModel,
 };
-use mobilis_core::forward::tensor::{resistivity_tensor, Carrier, SweepNoise};
-use mobilis_core::noise::Rng;
-use mobilis_core::sdk::{run_typed, AnalysisOutput, Host, Inputs};
+use mobilis_physics::forward::tensor::{resistivity_tensor, Carrier, SweepNoise};
+use mobilis_sdk::sdk::{run_typed, AnalysisOutput, Host, Inputs};
 use serde_json::json;
 
 /// A `sweep` table: (temperature, field, rho_xx, rho_xy) rows.
@@ -36,7 +36,7 @@ fn ramp(max_t: f64, count: usize, sign: f64) -> Vec<f64> {
         .collect()
 }
 
-fn run<A: mobilis_core::sdk::Analysis>(params: serde_json::Value, rows: &[(f64, f64, f64, f64)]) -> AnalysisOutput {
+fn run<A: mobilis_sdk::sdk::Analysis>(params: serde_json::Value, rows: &[(f64, f64, f64, f64)]) -> AnalysisOutput {
     run_typed::<A>(&params.to_string(), &inputs(rows), &Host::detached()).unwrap_or_else(|e| panic!("{}: {e}", A::NAME))
 }
 
@@ -62,7 +62,10 @@ fn classical_rows(temperature: f64, fields: &[f64]) -> Vec<(f64, f64, f64, f64)>
 fn classical_analyses_take_one_field_sign_with_the_flag() {
     let both = run::<RatioAnalysis>(
         json!({}),
-        &classical_rows(10.0, &mobilis_core::forward::tensor::symmetric_fields(6.0, 30).unwrap()),
+        &classical_rows(
+            10.0,
+            &mobilis_physics::forward::tensor::symmetric_fields(6.0, 30).unwrap(),
+        ),
     );
     assert_eq!(both.summary["single_field_sign"], json!(false));
     assert!(!flagged(&both));
@@ -257,9 +260,9 @@ fn the_demo_sdh_series_keeps_six_temperatures() {
         ],
     )
     .unwrap();
-    let sweeps = mobilis_core::sweep_table::sweeps_by_temperature(
+    let sweeps = mobilis_sdk::sweep_table::sweeps_by_temperature(
         &frame,
-        &mobilis_core::sweep_table::TemperatureGrouping::default(),
+        &mobilis_sdk::sweep_table::TemperatureGrouping::default(),
     )
     .unwrap();
     let temperatures: Vec<f64> = sweeps.iter().map(|s| s.temperature_k.unwrap()).collect();

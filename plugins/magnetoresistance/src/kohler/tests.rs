@@ -2,8 +2,8 @@
 
 use super::*;
 use crate::ratio::{magnetoresistance, RatioSettings};
-use mobilis_core::forward::tensor::{symmetric_fields, synthetic_sweep, Carrier, SweepImperfections, SweepNoise};
-use mobilis_core::noise::Rng;
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::forward::tensor::{symmetric_fields, synthetic_sweep, Carrier, SweepImperfections, SweepNoise};
 
 const TEMPERATURES: [f64; 4] = [50.0, 100.0, 200.0, 300.0];
 

@@ -2,7 +2,8 @@
 //! documentation): the fit's own standard errors, the spread over other backgrounds and a
 //! shorter window, and the stated field and thermometer calibrations.
 
-use super::{Background, OscillationAnalysis, OscillationBudget, OscillationSettings, UncertaintyBudget};
+use super::results::{OscillationAnalysis, OscillationBudget, UncertaintyBudget};
+use super::settings::{Background, OscillationSettings};
 
 /// The analysis spread and the per-sweep temperature stability both belong to the
 /// statistical part; they enter it as one quadrature term.
@@ -133,10 +134,10 @@ pub(super) fn assign(
     // Not stated is assumed at the common-practice values every analysis assumes, and said.
     let field_relative = settings
         .field_calibration_rel
-        .unwrap_or(mobilis_core::calibration::DEFAULT_FIELD_CALIBRATION_REL);
+        .unwrap_or(mobilis_physics::calibration::DEFAULT_FIELD_CALIBRATION_REL);
     let temperature_accuracy = settings
         .temperature_accuracy_k
-        .unwrap_or(mobilis_core::calibration::DEFAULT_TEMPERATURE_ACCURACY_K);
+        .unwrap_or(mobilis_physics::calibration::DEFAULT_TEMPERATURE_ACCURACY_K);
     if settings.field_calibration_rel.is_none() {
         budget.calibrations_not_stated.push("field_calibration_rel");
     }
@@ -216,8 +217,8 @@ pub(super) fn assign(
         analysis.warnings.push(format!(
             "no calibration was stated for {}: the common-practice values were assumed ({} 0.5 % of the field, {} 0.02 K); state your magnet's and thermometer's calibrations to replace them",
             budget.calibrations_not_stated.join(" and "),
-            mobilis_core::calibration::FIELD_CALIBRATION,
-            mobilis_core::calibration::TEMPERATURE_ACCURACY
+            mobilis_physics::calibration::FIELD_CALIBRATION,
+            mobilis_physics::calibration::TEMPERATURE_ACCURACY
         ));
     }
     analysis.budget = budget;

@@ -12,9 +12,9 @@
 //! `field_calibration_rel`).
 
 use super::*;
-use mobilis_core::fit::Coverage;
-use mobilis_core::forward::oscillations::{OscillationComponent, SdhModel};
-use mobilis_core::noise::Rng;
+use mobilis_numerics::fit::Coverage;
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::forward::oscillations::{OscillationComponent, SdhModel};
 
 /// The invented truth: a 2D gas of F = 60 T, m* = 0.2 m_0, T_D = 1.5 K, Delta rho / rho_0
 /// prefactor 0.2 (test inputs, not measured values).

@@ -5,7 +5,7 @@
 
 use std::fmt;
 
-use mobilis_core::fit::FitError;
+use mobilis_numerics::fit::FitError;
 
 /// Why [`super::analyze_oscillations`] refuses its input or finds no result.
 #[derive(Debug, Clone, PartialEq)]

@@ -3,16 +3,16 @@
 
 use std::f64::consts::PI;
 
-use mobilis_core::fit::{fit_line, Bounds, LeastSquares, LmOptions};
-use mobilis_core::forward::oscillations::{quantum_lifetime_s, thermal_damping, LK_FIELD_PER_KELVIN};
+use mobilis_numerics::fit::{fit_line, Bounds, LeastSquares, LmOptions};
+use mobilis_physics::forward::oscillations::{quantum_lifetime_s, thermal_damping, LK_FIELD_PER_KELVIN};
 
+use super::error::OscillationError;
 use super::prepare::Prepared;
-use super::waveform::{finite, in_phase_amplitude, linear_least_squares, wrap_phase};
-use super::{
-    DinglePlot, DinglePoint, Extremum, FanPoint, LandauFan, MassWindow, OscillationError, ThermalDampingFit,
-    WindowAmplitude,
+use super::results::{
+    DinglePlot, DinglePoint, Extremum, FanPoint, LandauFan, MassWindow, ThermalDampingFit, WindowAmplitude,
 };
-use mobilis_core::linalg::Matrix;
+use super::waveform::{finite, in_phase_amplitude, linear_least_squares, wrap_phase};
+use mobilis_numerics::linalg::Matrix;
 
 /// Temperatures closer than this fraction of the larger count as one.
 pub const SAME_TEMPERATURE: f64 = 1e-3;

@@ -1,9 +1,10 @@
 //! Validation, the field window, background removal and resampling on a uniform 1/B grid
 //! (steps 1 to 4 of the parent module's documentation).
 
-use mobilis_core::linalg::Matrix;
+use mobilis_numerics::linalg::Matrix;
 
-use super::{Background, OscillationError, OscillationSettings, OscillationSweep};
+use super::error::OscillationError;
+use super::settings::{Background, OscillationSettings, OscillationSweep};
 
 /// Fewest points of a sweep inside the field window.
 pub const MIN_WINDOW_POINTS: usize = 16;

@@ -1,6 +1,6 @@
 //! Peaks of the 1/B spectrum (step 5 of the parent module's documentation).
 
-use mobilis_core::fft::{AmplitudeSpectrum, Window};
+use mobilis_numerics::fft::{AmplitudeSpectrum, Window};
 
 /// Half the width of the window's main lobe, in units of the record's resolution 1/span:
 /// peaks closer than 1.5 times this to a stronger one are its own lobe, not a line.
@@ -155,7 +155,7 @@ pub(super) fn find_peaks(spectrum: &AmplitudeSpectrum, limits: &SearchLimits) ->
 #[cfg(test)]
 mod tests {
     use super::*;
-    use mobilis_core::fft::amplitude_spectrum;
+    use mobilis_numerics::fft::amplitude_spectrum;
     use std::f64::consts::PI;
 
     // Two cosines of different amplitude are found strongest first at their frequencies
@@ -192,7 +192,7 @@ mod tests {
     fn spectrum_reports_too_few_periods() {
         let spacing = 1e-3;
         let samples: Vec<f64> = (0..1000).map(|k| (2.0 * PI * 1.5 * k as f64 * spacing).cos()).collect();
-        let mut rng = mobilis_core::noise::Rng::seeded(4);
+        let mut rng = mobilis_numerics::noise::Rng::seeded(4);
         let noisy: Vec<f64> = samples.iter().map(|v| v + 0.01 * rng.standard_normal()).collect();
         let spectrum = amplitude_spectrum(&noisy, spacing, Window::Hann, 8);
         let limits = SearchLimits {

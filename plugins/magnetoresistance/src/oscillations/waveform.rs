@@ -4,9 +4,9 @@
 
 use std::f64::consts::PI;
 
-use mobilis_core::fit::{Bounds, FitError, LeastSquares, LmFit, LmOptions, SameMinimum};
-use mobilis_core::forward::oscillations::{thermal_damping, thermal_damping_log_derivative, LK_FIELD_PER_KELVIN};
-use mobilis_core::linalg::{Matrix, Svd};
+use mobilis_numerics::fit::{Bounds, FitError, LeastSquares, LmFit, LmOptions, SameMinimum};
+use mobilis_numerics::linalg::{Matrix, Svd};
+use mobilis_physics::forward::oscillations::{thermal_damping, thermal_damping_log_derivative, LK_FIELD_PER_KELVIN};
 
 /// Fewest points a window's linear fit may use (four coefficients and a scatter).
 pub const MIN_WINDOW_FIT_POINTS: usize = 8;
@@ -574,7 +574,7 @@ mod tests {
             .collect();
         let design = Matrix::from_fn(x.len(), 2, |i, j| if j == 0 { 1.0 } else { x[i] });
         let fit = linear_least_squares(&design, &y).unwrap();
-        let line = mobilis_core::fit::fit_line(&x, &y, None).unwrap();
+        let line = mobilis_numerics::fit::fit_line(&x, &y, None).unwrap();
         assert!((fit.coefficients[1] - line.slope).abs() < 1e-12);
         assert!((fit.covariance[(1, 1)].sqrt() - line.slope_unc).abs() < 1e-12 * line.slope_unc.max(1.0));
         let short = Matrix::from_fn(2, 2, |i, j| if j == 0 { 1.0 } else { i as f64 });

@@ -1,11 +1,11 @@
 //! Tests of the `ratio` module: published check values, recovery from forward-generated data, and bad input.
 
 use super::*;
-use mobilis_core::forward::tensor::{
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::forward::tensor::{
     resistivity_tensor, symmetric_fields, synthetic_sweep, Carrier, CarrierKind, SweepImperfections, SweepNoise,
 };
-use mobilis_core::noise::Rng;
-use mobilis_core::sweep::ResistivityUncertainty;
+use mobilis_physics::sweep::ResistivityUncertainty;
 
 const CM3: f64 = 1e6;
 const CM2_PER_VS: f64 = 1e-4;
@@ -359,7 +359,7 @@ fn ratio_dense_one_sign_ramp_keeps_its_field_range() {
     assert!(curve.single_field_sign);
     assert!(curve.max_field_t > 13.99, "{}", curve.max_field_t);
     let rho = |b: f64| {
-        mobilis_core::forward::tensor::resistivity_tensor(&carriers, b)
+        mobilis_physics::forward::tensor::resistivity_tensor(&carriers, b)
             .unwrap()
             .rho_xx_ohm_sq
     };

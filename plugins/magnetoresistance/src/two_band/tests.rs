@@ -1,9 +1,9 @@
 //! Tests of the `two_band` module: published check values, recovery from forward-generated data, and bad input.
 
 use super::*;
-use mobilis_core::fit::{LeastSquares, LmOptions};
-use mobilis_core::forward::tensor::{symmetric_fields, synthetic_sweep, SweepImperfections, SweepNoise};
-use mobilis_core::sweep::{conductivity_points, TensorPoint};
+use mobilis_numerics::fit::{LeastSquares, LmOptions};
+use mobilis_physics::forward::tensor::{symmetric_fields, synthetic_sweep, SweepImperfections, SweepNoise};
+use mobilis_physics::sweep::{conductivity_points, TensorPoint};
 
 const CM3: f64 = 1e6;
 const CM2_PER_VS: f64 = 1e-4;
@@ -218,7 +218,7 @@ fn conductivity_residuals(points: &[TensorPoint], kinds: &[CarrierKind; 2], p: &
 
 // Agreement with the conductivity-space fit of spectrum.multi_carrier_fit for two carriers:
 // the same symmetrized sweep converted to sigma with its propagated covariance
-// (mobilis_core::sweep::conductivity_points) and fitted by the same solver in sigma. To first
+// (mobilis_physics::sweep::conductivity_points) and fitted by the same solver in sigma. To first
 // order the two are the same weighted least squares (the tensor inversion is a smooth map
 // whose Jacobian carries the covariance across), so their parameters must agree to a small
 // fraction of an uncertainty, and both must lie near the truth.
@@ -251,7 +251,7 @@ fn two_band_agrees_with_the_conductivity_space_fit() {
         assert!(sigma_fit.converged);
         // Both fits widen their covariance by the Birge ratio of their own chi-square.
         let sigma_widening =
-            mobilis_core::fit::FitQuality::assess(sigma_fit.chi_square, sigma_fit.degrees_of_freedom).birge_ratio;
+            mobilis_numerics::fit::FitQuality::assess(sigma_fit.chi_square, sigma_fit.degrees_of_freedom).birge_ratio;
         let rho_fit = &result.fit;
         for (i, carrier) in rho_fit.carriers.iter().enumerate() {
             let values = [carrier.sheet_density_m2.ln(), carrier.mobility_m2_per_vs.ln()];

@@ -11,9 +11,9 @@
 //! fitted), once weighted by the stated noise and once by the scatter.
 
 use super::*;
-use mobilis_core::fit::Coverage;
-use mobilis_core::forward::oscillations::WeakLocalizationModel;
-use mobilis_core::noise::Rng;
+use mobilis_numerics::fit::Coverage;
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::forward::oscillations::WeakLocalizationModel;
 
 const PHASE_COHERENCE_LENGTH_M: f64 = 250e-9;
 const REALIZATIONS: usize = 100;

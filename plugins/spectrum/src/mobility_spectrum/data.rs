@@ -1,11 +1,11 @@
 //! The validated conductivity data, their whitened residual rows, the logarithmic mobility
 //! grid and the kernel that links a spectrum to the data.
 
-use mobilis_core::linalg::Matrix;
-use mobilis_core::sweep::TensorPoint;
+use mobilis_numerics::linalg::Matrix;
+use mobilis_physics::sweep::TensorPoint;
 
 use super::error::SpectrumError;
-use super::{GridRange, SpectrumSettings, MIN_DISTINCT_FIELDS};
+use super::settings::{GridRange, SpectrumSettings, MIN_DISTINCT_FIELDS};
 
 /// Fields within this (T) of the lowest of their group count as one when the distinct
 /// fields are counted.
@@ -103,7 +103,7 @@ impl Data {
         let mut nonzero: Vec<f64> = points.iter().map(|p| p.field_t).filter(|&b| b > 0.0).collect();
         nonzero.sort_by(f64::total_cmp);
         // Anchored groups, so that a densely logged ramp is never chained into one field.
-        let distinct = mobilis_core::sweep::anchored_groups(&nonzero, DISTINCT_FIELD_RESOLUTION_T).len();
+        let distinct = mobilis_physics::sweep::anchored_groups(&nonzero, DISTINCT_FIELD_RESOLUTION_T).len();
         if distinct < MIN_DISTINCT_FIELDS {
             return Err(SpectrumError::TooFewFields {
                 distinct,

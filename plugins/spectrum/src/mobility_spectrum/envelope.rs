@@ -55,7 +55,7 @@
 //! [[Re Q, -Im Q], [Im Q, Re Q]] acting on (Re v, Im v): one Cholesky factor, then one
 //! triangular solve per mobility, O(N^2).
 
-use mobilis_core::linalg::{Cholesky, Matrix};
+use mobilis_numerics::linalg::{Cholesky, Matrix};
 
 use super::data::Data;
 use super::error::SpectrumError;

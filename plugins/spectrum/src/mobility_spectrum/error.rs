@@ -2,12 +2,12 @@
 //!
 //! Every message names what is wrong (the 0-based point, the value) and what to change.
 //! `Display` is written out by hand so that the module needs nothing beyond the standard
-//! library and mobilis-core.
+//! library and the mobilis crates it builds on.
 
 use std::fmt;
 
-use mobilis_core::sdk::AnalysisError;
-use mobilis_core::sweep::SweepError;
+use mobilis_physics::sweep::SweepError;
+use mobilis_sdk::sdk::AnalysisError;
 
 /// Why `spectrum.mobility` refuses its input or stops.
 #[derive(Debug, Clone, PartialEq)]

@@ -5,7 +5,7 @@
 //! the reference conductivity, chi^2 = ||A u - b||^2 the whitened misfit and D the second
 //! difference along ln|mu| within each carrier sign. The problem is solved in its Gram form,
 //! (A^T A + alpha D^T D) u = A^T b on the passive set, by the active-set NNLS of
-//! `mobilis_core::nnls`, each trial warm-started from the previous one.
+//! `mobilis_numerics::nnls`, each trial warm-started from the previous one.
 //!
 //! alpha = lambda tr(A^T A) / tr(D^T D): lambda is dimensionless and does not depend on the
 //! units or the number of points.
@@ -33,12 +33,13 @@
 //!   interior point is that of the circle through it and its two neighbours (Menger
 //!   curvature), signed so that the corner of the L counts positive.
 
-use mobilis_core::linalg::{dot, dots, Matrix};
-use mobilis_core::nnls::{solve_gram, solve_gram_from, NnlsError, NnlsOptions, NnlsSolution, WarmStart};
+use mobilis_numerics::linalg::{dot, dots, Matrix};
+use mobilis_numerics::nnls::{solve_gram, solve_gram_from, NnlsError, NnlsOptions, NnlsSolution, WarmStart};
 use rayon::prelude::*;
 
 use super::error::SpectrumError;
-use super::{Monitor, RegularizationRule, RuleUsed};
+use super::settings::{RegularizationRule, RuleUsed};
+use crate::monitor::Monitor;
 
 const LAMBDA_MAX: f64 = 1.0;
 const LAMBDA_MIN: f64 = 1e-18;

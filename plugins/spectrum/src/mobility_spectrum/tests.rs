@@ -1,7 +1,7 @@
 //! Recovery of known carriers from synthetic sweeps, the envelope's bound property and
 //! closed forms, bad input, cancellation and the benchmark case.
 //!
-//! Every synthetic sweep comes from `mobilis_core::forward::tensor` (the Drude sums of
+//! Every synthetic sweep comes from `mobilis_physics::forward::tensor` (the Drude sums of
 //! Beck and Anderson, J. Appl. Phys. 62, 541, 1987, tested there against values computed
 //! from those sums)
 //! and goes through the same symmetrization and tensor inversion as measured data.
@@ -12,11 +12,11 @@ use super::data::{Data, Grid};
 use super::envelope::Envelope;
 use super::regularized::l_curve_corner;
 use super::*;
-use mobilis_core::forward::tensor::{
+use mobilis_physics::forward::tensor::{
     conductivity_tensor, symmetric_fields, synthetic_sweep, Carrier, SweepImperfections, SweepNoise,
 };
-use mobilis_core::sdk::AnalysisError;
-use mobilis_core::sweep::SweepError;
+use mobilis_physics::sweep::SweepError;
+use mobilis_sdk::sdk::AnalysisError;
 
 mod coverage;
 

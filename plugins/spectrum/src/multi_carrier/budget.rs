@@ -49,14 +49,14 @@
 //! the tensor's magnitude, not the component's, because sigma_xy passes through zero at
 //! zero field and a relative floor on it alone would vanish there. The default,
 //! [`SWEEP_RELATIVE_UNCERTAINTY_FLOOR`] = 1e-5, is lower than the 1e-3 of the temperature
-//! series (`mobilis_core::fit::RELATIVE_UNCERTAINTY_FLOOR`): that floor stands for the
+//! series (`mobilis_numerics::fit::RELATIVE_UNCERTAINTY_FLOOR`): that floor stands for the
 //! reproducibility of a density between cooldowns, which within one sweep is a common
 //! scale (the resistivity calibration above), not noise between its points. Point to point
 //! within one sweep a lock-in or bridge reading repeats to about 1e-5 of its value at best
 //! (common practice), so the floor catches only uncertainties no instrument can have
 //! (rounding, a unit error), while real noise of 1e-4 to 1e-3 is kept as stated.
 
-use mobilis_core::sweep::{
+use mobilis_physics::sweep::{
     symmetrize, ResistivityUncertainty, SweepPoint, SymmetrizeSettings, Symmetrized, TensorPoint, TensorUncertainty,
 };
 
@@ -64,7 +64,7 @@ use mobilis_core::sweep::{
 pub const SWEEP_RELATIVE_UNCERTAINTY_FLOOR: f64 = 1e-5;
 
 /// The values assumed when a calibration is not stated, as in `hall.reduce` (common practice).
-pub use mobilis_core::calibration::{
+pub use mobilis_physics::calibration::{
     DEFAULT_CURRENT_CALIBRATION_REL, DEFAULT_FIELD_CALIBRATION_REL, DEFAULT_VOLTAGE_CALIBRATION_REL,
 };
 

@@ -2,14 +2,14 @@
 //!
 //! Every message names what is wrong (the 0-based point, the value, the carriers) and what
 //! to change. `Display` is written by hand, as in the other plugins, so that the module
-//! needs nothing beyond the standard library and mobilis-core.
+//! needs nothing beyond the standard library and the mobilis crates it builds on.
 
 use std::fmt;
 
-use mobilis_core::fit::FitError;
-use mobilis_core::forward::tensor::CarrierKind;
-use mobilis_core::sweep::SweepError;
-use mobilis_core::tensor_data::TensorDataError;
+use mobilis_numerics::fit::FitError;
+use mobilis_physics::forward::tensor::CarrierKind;
+use mobilis_physics::sweep::SweepError;
+use mobilis_physics::tensor_data::TensorDataError;
 
 /// Why `fit_carriers` or `fit_sweep` refuses its input or finds no fit.
 #[derive(Debug, Clone, PartialEq)]

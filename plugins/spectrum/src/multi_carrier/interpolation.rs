@@ -16,8 +16,10 @@
 //! rules, keeps the correction right whatever the symmetrization does (grouping of close
 //! fields, zero field, the grid).
 
-use mobilis_core::forward::tensor::{sum_conductivity, Carrier};
-use mobilis_core::sweep::{conductivity_point, symmetrize, SweepPoint, SymmetrizeSettings, Symmetrized, TensorPoint};
+use mobilis_physics::forward::tensor::{sum_conductivity, Carrier};
+use mobilis_physics::sweep::{
+    conductivity_point, symmetrize, SweepPoint, SymmetrizeSettings, Symmetrized, TensorPoint,
+};
 
 /// The symmetrized data with the model's interpolation error removed, as conductivity
 /// points, and the largest correction relative to |rho|; `None` when no point needed one

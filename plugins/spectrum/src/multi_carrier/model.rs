@@ -1,9 +1,9 @@
 //! The least-squares problem of the multi-carrier fit: the residuals and analytic Jacobian
-//! in the log parameters, whitened per point as `mobilis_core::tensor_data` sets up.
+//! in the log parameters, whitened per point as `mobilis_physics::tensor_data` sets up.
 
-use mobilis_core::forward::tensor::{sum_conductivity, Carrier, CarrierKind};
-use mobilis_core::linalg::Matrix;
-use mobilis_core::tensor_data::TensorData;
+use mobilis_numerics::linalg::Matrix;
+use mobilis_physics::forward::tensor::{sum_conductivity, Carrier, CarrierKind};
+use mobilis_physics::tensor_data::TensorData;
 
 /// Validated sheet conductivity data: xx is sigma_xx, xy is sigma_xy, in S (see the parent
 /// module for the weights used without uncertainties).

@@ -20,10 +20,10 @@
 //! - random starts, each mobility log-uniform over the range, from a seeded generator so
 //!   that a fit is reproducible.
 
-use mobilis_core::constants::ELEMENTARY_CHARGE_C;
-use mobilis_core::forward::tensor::{Carrier, CarrierKind};
-use mobilis_core::linalg::{Matrix, Svd};
-use mobilis_core::noise::Rng;
+use mobilis_numerics::linalg::{Matrix, Svd};
+use mobilis_numerics::noise::Rng;
+use mobilis_physics::constants::ELEMENTARY_CHARGE_C;
+use mobilis_physics::forward::tensor::{Carrier, CarrierKind};
 
 use super::model::Data;
 
@@ -96,7 +96,7 @@ pub(super) fn densities_for(data: &Data, kinds: &[CarrierKind], mobilities: &[f6
         }
     }
     let norms: Vec<f64> = (0..n)
-        .map(|i| mobilis_core::linalg::norm(&design.column(i)).max(f64::MIN_POSITIVE))
+        .map(|i| mobilis_numerics::linalg::norm(&design.column(i)).max(f64::MIN_POSITIVE))
         .collect();
     let scaled = Matrix::from_fn(m, n, |r, i| design[(r, i)] / norms[i]);
     let solution = Svd::new(&scaled)

@@ -1,37 +1,19 @@
 //! Tests of the `multi_carrier` module: published values, recovery from forward-generated data, coverage of the uncertainties, and bad input.
 
 use super::*;
-use mobilis_core::forward::tensor::{
+use mobilis_physics::forward::tensor::{
     resistivity_tensor, symmetric_fields, synthetic_sweep, SweepImperfections, SweepNoise,
 };
-use mobilis_core::sweep::{conductivity_point, SweepError};
+use mobilis_physics::sweep::{conductivity_point, SweepError};
 
 mod coverage;
 mod recovery;
+mod support;
+
+use support::{given, noisy_sweep};
 
 fn close(actual: f64, expected: f64, relative: f64) -> bool {
     ((actual - expected) / expected).abs() <= relative
-}
-
-/// A noisy symmetric sweep of `carriers` to +-`max_field_t` in `steps` steps per sign:
-/// noise 0.1 % of each component plus a floor of 1e-4 rho_xx(0), with uncertainties.
-pub(super) fn noisy_sweep(carriers: &[Carrier], max_field_t: f64, steps: usize, seed: u64) -> Vec<SweepPoint> {
-    let rho_0 = resistivity_tensor(carriers, 0.0).unwrap().rho_xx_ohm_sq;
-    let noise = SweepNoise {
-        absolute_ohm: 1e-4 * rho_0,
-        relative: 1e-3,
-    };
-    synthetic_sweep(
-        carriers,
-        &symmetric_fields(max_field_t, steps).unwrap(),
-        &noise,
-        &SweepImperfections {
-            hall_misalignment: 0.01,
-            longitudinal_hall_pickup: 0.002,
-        },
-        &mut Rng::seeded(seed),
-    )
-    .unwrap()
 }
 
 /// Exact conductivity points of `carriers` at `fields`, without uncertainties.
@@ -43,13 +25,6 @@ fn exact_points(carriers: &[Carrier], fields: &[f64]) -> Vec<TensorPoint> {
             conductivity_point(&SweepPoint::new(b, rho.rho_xx_ohm_sq, rho.rho_xy_ohm))
         })
         .collect()
-}
-
-fn given(kinds: &[CarrierKind]) -> MultiCarrierSettings {
-    MultiCarrierSettings {
-        selection: CarrierSelection::Kinds(kinds.to_vec()),
-        ..MultiCarrierSettings::default()
-    }
 }
 
 use CarrierKind::{Electron, Hole};

@@ -8,12 +8,12 @@
 //! (the peak of its kind nearest in ln mu) is compared with the truth: the total
 //! uncertainty against the true density, the statistical part against the density a
 //! perfect analysis of the miscalibrated sweep would give. The rule is
-//! `mobilis_core::fit::Coverage::is_honest` (55-80 % within 1 sigma, at least 90 % within 2
+//! `mobilis_numerics::fit::Coverage::is_honest` (55-80 % within 1 sigma, at least 90 % within 2
 //! sigma; 68.3 % and 95.4 % for a normal error, JCGM 100:2008, G.1). Seeds are fixed.
 
 use super::*;
-use mobilis_core::fit::Coverage;
-use mobilis_core::sweep::ResistivityUncertainty;
+use mobilis_numerics::fit::Coverage;
+use mobilis_physics::sweep::ResistivityUncertainty;
 
 use crate::multi_carrier::Calibration;
 

@@ -11,12 +11,12 @@
 //! calibration uncertainties and must include them.
 //!
 //! The count within 1 and 2 standard uncertainties must lie within 55-80 % and reach 90 %
-//! (`mobilis_core::fit::Coverage::is_honest`; a normal error gives 68.3 % and 95.4 %,
+//! (`mobilis_numerics::fit::Coverage::is_honest`; a normal error gives 68.3 % and 95.4 %,
 //! JCGM 100:2008, G.1). Seeds are fixed, so the counts are the same on every run.
 
 use super::*;
-use mobilis_core::fit::Coverage;
-use mobilis_core::sweep::ResistivityUncertainty;
+use mobilis_numerics::fit::Coverage;
+use mobilis_physics::sweep::ResistivityUncertainty;
 
 /// Realizations per case: 100 in a debug build, or `full` when MOBILIS_SLOW_TESTS=1.
 pub(crate) fn realizations(fast: usize, full: usize) -> usize {

@@ -1,7 +1,9 @@
 //! Recovery: sweeps generated from known carriers with noise, fitted with the kinds given;
 //! every density and mobility must come back within its reported uncertainty.
 
-use super::*;
+use super::support::{given, noisy_sweep};
+use crate::multi_carrier::*;
+use CarrierKind::{Electron, Hole};
 
 /// How many reported standard uncertainties a recovered value may be off. With about 200
 /// recovered values in this file, a Gaussian error beyond 4 sigma has a chance of about

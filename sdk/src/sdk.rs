@@ -1,0 +1,452 @@
+//! The Rust SDK for plugin authors: one typed function per analysis, the C side written
+//! by [`export_plugin!`](crate::export_plugin).
+//!
+//! ```text
+//! struct Reduce;
+//! impl mobilis_sdk::sdk::Analysis for Reduce {
+//!     const NAME: &'static str = "example.reduce";
+//!     type Params = MyParams; // serde::Deserialize
+//!     fn declaration() -> AnalysisDeclaration { ... }
+//!     fn run(params: MyParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> { ... }
+//! }
+//! mobilis_sdk::export_plugin!(name: "example", analyses: [Reduce]);
+//! ```
+//!
+//! **Architecture Invariant.** A panic never crosses the boundary: every exported function
+//! runs its body under `catch_unwind` and turns a panic into [`abi::STATUS_PANIC`] with the
+//! panic message. This catch is the only one there is: unwinding out of an `extern "C"`
+//! function aborts the process, so the host cannot catch a plugin's panic for it. Plugins
+//! therefore must not be built with `panic = "abort"`, and [`export_plugin!`](crate::export_plugin)
+//! refuses to compile in such a build.
+
+use crate::abi::{self, AnalysisDeclaration, HostContext, InputTable, InvokeOutput, PluginDeclaration};
+use crate::table_ffi;
+use polars::prelude::{DataFrame, DataType};
+use serde::de::DeserializeOwned;
+use std::ffi::{CStr, CString};
+use std::os::raw::c_char;
+use std::panic::{catch_unwind, AssertUnwindSafe};
+
+/// How an analysis fails. The message says what the caller should change.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[non_exhaustive]
+pub enum AnalysisError {
+    /// Parameters or input data are unusable.
+    #[error("{0}")]
+    InvalidInput(String),
+    /// Valid input, but the computation failed (no convergence, singular system, ...).
+    #[error("{0}")]
+    Numerical(String),
+    /// The host asked to stop.
+    #[error("cancelled by the client")]
+    Cancelled,
+}
+
+impl AnalysisError {
+    fn status(&self) -> i32 {
+        match self {
+            AnalysisError::InvalidInput(_) => abi::STATUS_INVALID_INPUT,
+            AnalysisError::Numerical(_) => abi::STATUS_NUMERICAL_FAILURE,
+            AnalysisError::Cancelled => abi::STATUS_CANCELLED,
+        }
+    }
+}
+
+/// What an analysis returns: one table, summary numbers and warnings for the client.
+#[derive(Debug, Clone)]
+pub struct AnalysisOutput {
+    pub table: DataFrame,
+    /// A JSON object; its keys are declared in [`AnalysisDeclaration::summary_keys`].
+    pub summary: serde_json::Map<String, serde_json::Value>,
+    pub warnings: Vec<String>,
+}
+
+impl AnalysisOutput {
+    pub fn new(table: DataFrame) -> Self {
+        AnalysisOutput {
+            table,
+            summary: serde_json::Map::new(),
+            warnings: Vec::new(),
+        }
+    }
+}
+
+/// The input tables of one call, by role.
+pub struct Inputs {
+    tables: Vec<(String, DataFrame)>,
+}
+
+impl Inputs {
+    /// Builds inputs directly, for testing an analysis without a host.
+    pub fn from_tables(tables: impl IntoIterator<Item = (String, DataFrame)>) -> Self {
+        Inputs {
+            tables: tables.into_iter().collect(),
+        }
+    }
+
+    /// The table of a role, if the caller supplied one.
+    pub fn optional(&self, role: &str) -> Option<&DataFrame> {
+        self.tables
+            .iter()
+            .find(|(name, _)| name == role)
+            .map(|(_, table)| table)
+    }
+
+    /// The table of a required role. The host checks required roles before calling, so
+    /// this fails only when an analysis is run without a host.
+    pub fn required(&self, role: &str) -> Result<&DataFrame, AnalysisError> {
+        self.optional(role).ok_or_else(|| {
+            AnalysisError::InvalidInput(format!("input role `{role}` is missing; pass a dataset for it"))
+        })
+    }
+}
+
+/// The host's services, as seen by an analysis.
+pub struct Host<'a> {
+    context: Option<&'a HostContext>,
+}
+
+impl<'a> Host<'a> {
+    /// A host that reports nowhere and never cancels, for tests and benchmarks.
+    pub fn detached() -> Host<'static> {
+        Host { context: None }
+    }
+
+    /// Reports progress, `fraction` in [0, 1].
+    pub fn progress(&self, fraction: f64, message: &str) {
+        let Some(context) = self.context else { return };
+        let Some(report) = context.report_progress else { return };
+        let message = c_string_lossy(message);
+        // SAFETY: the host guarantees the context and its callbacks are valid during invoke.
+        unsafe { report(context.host_data, fraction.clamp(0.0, 1.0), message.as_ptr()) };
+    }
+
+    /// True once the client asked to cancel.
+    pub fn is_cancelled(&self) -> bool {
+        let Some(context) = self.context else { return false };
+        let Some(check) = context.is_cancelled else {
+            return false;
+        };
+        // SAFETY: as in `progress`.
+        unsafe { check(context.host_data) != 0 }
+    }
+
+    /// `Err(Cancelled)` once the client asked to cancel; use with `?` in long loops.
+    pub fn check_cancelled(&self) -> Result<(), AnalysisError> {
+        if self.is_cancelled() {
+            Err(AnalysisError::Cancelled)
+        } else {
+            Ok(())
+        }
+    }
+}
+
+/// One analysis, written by a plugin author.
+pub trait Analysis {
+    /// The analysis name, `plugin.analysis` by convention.
+    const NAME: &'static str;
+    /// The parameters, deserialised from the call's JSON (the host has already checked
+    /// them against the declared schema).
+    type Params: DeserializeOwned;
+    /// The declaration: summary, parameter schema, input roles, output columns. Its `name`
+    /// is overwritten with [`Analysis::NAME`].
+    fn declaration() -> AnalysisDeclaration;
+    fn run(params: Self::Params, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError>;
+}
+
+/// An analysis with its types erased, as the export macro stores it.
+pub struct Registration {
+    pub name: &'static str,
+    pub declaration: fn() -> AnalysisDeclaration,
+    pub run: fn(&str, &Inputs, &Host) -> Result<AnalysisOutput, AnalysisError>,
+}
+
+/// The registration of one analysis (used by [`export_plugin!`](crate::export_plugin)).
+pub const fn registration<A: Analysis>() -> Registration {
+    Registration {
+        name: A::NAME,
+        declaration: declaration_of::<A>,
+        run: run_typed::<A>,
+    }
+}
+
+fn declaration_of<A: Analysis>() -> AnalysisDeclaration {
+    let mut declaration = A::declaration();
+    declaration.name = A::NAME.to_owned();
+    declaration
+}
+
+/// Runs an analysis from JSON parameters, as the host would, without the C boundary.
+pub fn run_typed<A: Analysis>(
+    params_json: &str,
+    inputs: &Inputs,
+    host: &Host,
+) -> Result<AnalysisOutput, AnalysisError> {
+    let params: A::Params = serde_json::from_str(params_json)
+        .map_err(|error| AnalysisError::InvalidInput(format!("parameters of {}: {error}", A::NAME)))?;
+    A::run(params, inputs, host)
+}
+
+/// Replaces interior NUL bytes so that any message can cross as a C string.
+fn c_string_lossy(text: &str) -> CString {
+    CString::new(text.replace('\0', " ")).unwrap_or_default()
+}
+
+fn into_raw_c_string(text: &str) -> *mut c_char {
+    c_string_lossy(text).into_raw()
+}
+
+fn panic_message(payload: &(dyn std::any::Any + Send)) -> String {
+    if let Some(text) = payload.downcast_ref::<&str>() {
+        (*text).to_owned()
+    } else if let Some(text) = payload.downcast_ref::<String>() {
+        text.clone()
+    } else {
+        "unknown panic payload".to_owned()
+    }
+}
+
+/// Body of the exported `describe`: the JSON declaration of every registered analysis.
+pub fn describe_registered(registry: &[Registration]) -> *mut c_char {
+    let built = catch_unwind(|| {
+        let declaration = PluginDeclaration {
+            // The SDK imports text in either layout; views spare the host a copy.
+            features: vec![abi::FEATURE_STRING_VIEWS.to_owned()],
+            analyses: registry.iter().map(|entry| (entry.declaration)()).collect(),
+        };
+        serde_json::to_string(&declaration).map(|json| into_raw_c_string(&json))
+    });
+    match built {
+        Ok(Ok(pointer)) => pointer,
+        _ => std::ptr::null_mut(),
+    }
+}
+
+/// Body of the exported `release_string`.
+///
+/// # Safety
+/// `text` is NULL or a pointer this SDK returned and that was not released before.
+pub unsafe fn release_string(text: *mut c_char) {
+    if !text.is_null() {
+        // SAFETY: created by `CString::into_raw` in this library.
+        drop(unsafe { CString::from_raw(text) });
+    }
+}
+
+/// Body of the exported `invoke`: imports the inputs, runs the analysis, exports the output.
+///
+/// # Safety
+/// The arguments satisfy the contract of [`abi::InvokeFn`].
+pub unsafe fn invoke_registered(
+    registry: &[Registration],
+    analysis: *const c_char,
+    params_json: *const c_char,
+    inputs: *const InputTable,
+    input_count: usize,
+    context: *const HostContext,
+    output: *mut InvokeOutput,
+) -> i32 {
+    if output.is_null() {
+        return abi::STATUS_INVALID_INPUT;
+    }
+    let outcome = catch_unwind(AssertUnwindSafe(|| {
+        // SAFETY: the contract of InvokeFn.
+        unsafe { invoke_unguarded(registry, analysis, params_json, inputs, input_count, context, output) }
+    }));
+    let (status, message) = match outcome {
+        Ok(Ok(())) => return abi::STATUS_OK,
+        Ok(Err((status, message))) => (status, message),
+        Err(payload) => (
+            abi::STATUS_PANIC,
+            format!("the analysis panicked: {}", panic_message(payload.as_ref())),
+        ),
+    };
+    // Writing the message must not unwind either; CString creation cannot panic here.
+    // SAFETY: `output` is valid per the contract.
+    unsafe { (*output).error_message = into_raw_c_string(&message) };
+    status
+}
+
+/// The work of [`invoke_registered`] without the panic guard.
+///
+/// # Safety
+/// The arguments satisfy the contract of [`abi::InvokeFn`]; `output` is not NULL.
+unsafe fn invoke_unguarded(
+    registry: &[Registration],
+    analysis: *const c_char,
+    params_json: *const c_char,
+    inputs: *const InputTable,
+    input_count: usize,
+    context: *const HostContext,
+    output: *mut InvokeOutput,
+) -> Result<(), (i32, String)> {
+    let invalid = |message: String| (abi::STATUS_INVALID_INPUT, message);
+    // SAFETY (this block): pointers are valid NUL-terminated strings per the contract.
+    let name = unsafe { CStr::from_ptr(analysis) }
+        .to_str()
+        .map_err(|_| invalid("analysis name is not UTF-8".into()))?;
+    let params = unsafe { CStr::from_ptr(params_json) }
+        .to_str()
+        .map_err(|_| invalid("parameters are not UTF-8".into()))?;
+    let entry = registry.iter().find(|entry| entry.name == name).ok_or_else(|| {
+        (
+            abi::STATUS_UNKNOWN_ANALYSIS,
+            format!("this plugin has no analysis `{name}`"),
+        )
+    })?;
+
+    let mut tables = Vec::with_capacity(input_count);
+    for index in 0..input_count {
+        // SAFETY: `inputs` holds `input_count` valid entries.
+        let table = unsafe { &*inputs.add(index) };
+        let role = unsafe { CStr::from_ptr(table.role) }.to_string_lossy().into_owned();
+        // Take ownership: the host's structs are left released, so it will not free them.
+        let array = unsafe { table_ffi::take_array(table.array) };
+        let schema = unsafe { table_ffi::take_schema(table.schema) };
+        let frame = unsafe { table_ffi::import_frame(&schema, array) }
+            .map_err(|error| invalid(format!("input `{role}`: {error}")))?;
+        tables.push((role, frame));
+    }
+    let host = Host {
+        context: if context.is_null() {
+            None
+        } else {
+            Some(unsafe { &*context })
+        },
+    };
+    let result = (entry.run)(params, &Inputs::from_tables(tables), &host)
+        .map_err(|error| (error.status(), error.to_string()))?;
+
+    let result_json = serde_json::json!({ "summary": result.summary, "warnings": result.warnings }).to_string();
+    // Text leaves as string views: every host reads them (a 1.0 daemon did too).
+    let (schema, array) = table_ffi::export_frame(&result.table).map_err(|error| {
+        (
+            abi::STATUS_PANIC,
+            format!("the analysis produced an unusable table: {error}"),
+        )
+    })?;
+    // SAFETY: `output` is valid; the host initialised it with empty structs, which need no release.
+    unsafe {
+        std::ptr::write(&mut (*output).schema, schema);
+        std::ptr::write(&mut (*output).array, array);
+        (*output).result_json = into_raw_c_string(&result_json);
+    }
+    Ok(())
+}
+
+/// Reads a float column, accepting integers (CSV readers make `300` an integer).
+pub fn float_column(frame: &DataFrame, name: &str) -> Result<Vec<Option<f64>>, AnalysisError> {
+    let column = frame
+        .column(name)
+        .map_err(|_| AnalysisError::InvalidInput(format!("column `{name}` is missing; add it to the input table")))?;
+    if !(column.dtype().is_primitive_numeric() || column.dtype().is_null()) {
+        return Err(AnalysisError::InvalidInput(format!(
+            "column `{name}` must be numeric (found {})",
+            column.dtype()
+        )));
+    }
+    let cast = column.cast(&DataType::Float64).map_err(|_| {
+        AnalysisError::InvalidInput(format!("column `{name}` must be numeric (found {})", column.dtype()))
+    })?;
+    Ok(cast.f64().expect("cast to Float64").iter().collect())
+}
+
+/// Reads an integer column, accepting floats that hold whole numbers.
+pub fn integer_column(frame: &DataFrame, name: &str) -> Result<Vec<Option<i64>>, AnalysisError> {
+    let floats = float_column(frame, name)?;
+    floats
+        .into_iter()
+        .enumerate()
+        .map(|(row, value)| match value {
+            Some(v) if v.fract() == 0.0 && v.abs() < 9.0e15 => Ok(Some(v as i64)),
+            Some(v) => Err(AnalysisError::InvalidInput(format!(
+                "column `{name}` row {row}: {v} is not a whole number; contact numbers are integers"
+            ))),
+            None => Ok(None),
+        })
+        .collect()
+}
+
+/// Reads a string column.
+pub fn string_column(frame: &DataFrame, name: &str) -> Result<Vec<Option<String>>, AnalysisError> {
+    let column = frame
+        .column(name)
+        .map_err(|_| AnalysisError::InvalidInput(format!("column `{name}` is missing; add it to the input table")))?;
+    let cast = column
+        .cast(&DataType::String)
+        .map_err(|_| AnalysisError::InvalidInput(format!("column `{name}` must be text (found {})", column.dtype())))?;
+    Ok(cast
+        .str()
+        .expect("cast to String")
+        .iter()
+        .map(|v| v.map(str::to_owned))
+        .collect())
+}
+
+/// Writes the C side of a plugin: the entry function, its static descriptor, and the
+/// `describe`, `invoke` and `release_string` functions, for the listed [`sdk::Analysis`]
+/// types. The plugin version is the crate's `CARGO_PKG_VERSION`.
+///
+/// [`sdk::Analysis`]: crate::sdk::Analysis
+#[macro_export]
+macro_rules! export_plugin {
+    (name: $name:literal, analyses: [$($analysis:ty),+ $(,)?] $(,)?) => {
+        // The SDK turns a panic into STATUS_PANIC by catching it inside the exported
+        // functions; with `panic = "abort"` there is nothing to catch and a panic would end
+        // the host's process, so such a build is refused here, in the plugin's crate.
+        #[cfg(panic = "abort")]
+        compile_error!(concat!(
+            "plugin `", $name, "` is built with `panic = \"abort\"`, but mobilis plugins must unwind so that ",
+            "a panic becomes an error of one call instead of killing the daemon; remove `panic = \"abort\"` ",
+            "from the [profile.*] sections of Cargo.toml (and `-C panic=abort` from RUSTFLAGS)"
+        ));
+
+        const _: () = {
+            static REGISTRY: &[$crate::sdk::Registration] = &[$($crate::sdk::registration::<$analysis>()),+];
+
+            /// # Safety
+            /// No requirement: `unsafe` only to match `mobilis_sdk::abi::DescribeFn`.
+            unsafe extern "C" fn describe() -> *mut ::std::os::raw::c_char {
+                $crate::sdk::describe_registered(REGISTRY)
+            }
+
+            /// # Safety
+            /// The contract of `mobilis_sdk::abi::InvokeFn`.
+            unsafe extern "C" fn invoke(
+                analysis: *const ::std::os::raw::c_char,
+                params_json: *const ::std::os::raw::c_char,
+                inputs: *const $crate::abi::InputTable,
+                input_count: usize,
+                context: *const $crate::abi::HostContext,
+                output: *mut $crate::abi::InvokeOutput,
+            ) -> i32 {
+                // SAFETY: forwarded contract.
+                unsafe {
+                    $crate::sdk::invoke_registered(REGISTRY, analysis, params_json, inputs, input_count, context, output)
+                }
+            }
+
+            /// # Safety
+            /// `text` is NULL or a string this plugin returned.
+            unsafe extern "C" fn release_string(text: *mut ::std::os::raw::c_char) {
+                // SAFETY: forwarded contract.
+                unsafe { $crate::sdk::release_string(text) }
+            }
+
+            static DESCRIPTOR: $crate::abi::PluginDescriptor = $crate::abi::PluginDescriptor {
+                abi_major: $crate::abi::ABI_MAJOR,
+                abi_minor: $crate::abi::ABI_MINOR,
+                plugin_name: concat!($name, "\0").as_ptr().cast(),
+                plugin_version: concat!(env!("CARGO_PKG_VERSION"), "\0").as_ptr().cast(),
+                describe: Some(describe),
+                invoke: Some(invoke),
+                release_string: Some(release_string),
+            };
+
+            #[no_mangle]
+            pub extern "C" fn mobilis_plugin_entry() -> *const $crate::abi::PluginDescriptor {
+                &DESCRIPTOR
+            }
+        };
+    };
+}

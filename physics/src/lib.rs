@@ -16,6 +16,8 @@
 //!   sheet <-> volume quantities.
 //! - [`tensor_data`]: validated two-component tensor data of a sweep (rho or sigma) and the
 //!   whitening of their residuals, shared by the carrier fits.
+//! - [`carrier_fit`]: the N-carrier fit engine (model, analytic Jacobian, bounded
+//!   multi-start solver run) that the multi-carrier and two-band fits share.
 //!
 //! What this crate does not know:
 //! - polars, because the CLI and the demo generator link it and need no table engine to
@@ -25,6 +27,7 @@
 //! - I/O: no files, no sockets, no printing.
 
 pub mod calibration;
+pub mod carrier_fit;
 pub mod constants;
 pub mod contacts;
 pub mod field_tensor;

@@ -262,18 +262,25 @@ pub struct KohlerAnalysis {
 }
 
 /// Why the analysis cannot be made.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
 #[non_exhaustive]
 pub enum KohlerError {
     /// Fewer than two curves given.
+    #[error(
+        "a Kohler plot compares curves at different temperatures and {curves} was given; give MR curves of one sample at two or more temperatures"
+    )]
     TooFewCurves { curves: usize },
     /// A curve's temperature or rho(0) is not finite and positive.
+    #[error("curve {curve}: {what} is {value}; give a finite positive value")]
     InvalidCurve {
         curve: usize,
         what: &'static str,
         value: f64,
     },
     /// A point's value is not usable.
+    #[error(
+        "curve {curve}, point {index}: {column} is {value}; give finite values and uncertainties of 0 or more, or drop the point"
+    )]
     InvalidPoint {
         curve: usize,
         index: usize,
@@ -281,12 +288,23 @@ pub enum KohlerError {
         value: f64,
     },
     /// Some points of a curve have uncertainties and others not.
+    #[error(
+        "curve {curve} has uncertainties on some points and not on others; give them for every point of the curve or for none"
+    )]
     MixedUncertainties { curve: usize },
     /// Fewer than two curves have two usable points.
+    #[error(
+        "only {usable} curve(s) have two or more points with a clearly positive MR; measure to higher field, or lower min_mr or significance"
+    )]
     TooFewUsableCurves { usable: usize },
     /// No two curves share a range of x.
+    #[error(
+        "no two curves share a range of B / rho(0) (T/ohm: {}); measure to fields where the curves overlap",
+        ranges_text(.ranges)
+    )]
     NoOverlap { ranges: Vec<(f64, f64, f64)> },
     /// A setting out of its range.
+    #[error("setting {name} is {value}; {requirement}")]
     InvalidSetting {
         name: &'static str,
         value: f64,
@@ -294,55 +312,14 @@ pub enum KohlerError {
     },
 }
 
-impl std::fmt::Display for KohlerError {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        match self {
-            KohlerError::TooFewCurves { curves } => write!(
-                f,
-                "a Kohler plot compares curves at different temperatures and {curves} was given; give MR curves of one sample at two or more temperatures"
-            ),
-            KohlerError::InvalidCurve { curve, what, value } => write!(
-                f,
-                "curve {curve}: {what} is {value}; give a finite positive value"
-            ),
-            KohlerError::InvalidPoint {
-                curve,
-                index,
-                column,
-                value,
-            } => write!(
-                f,
-                "curve {curve}, point {index}: {column} is {value}; give finite values and uncertainties of 0 or more, or drop the point"
-            ),
-            KohlerError::MixedUncertainties { curve } => write!(
-                f,
-                "curve {curve} has uncertainties on some points and not on others; give them for every point of the curve or for none"
-            ),
-            KohlerError::TooFewUsableCurves { usable } => write!(
-                f,
-                "only {usable} curve(s) have two or more points with a clearly positive MR; measure to higher field, or lower min_mr or significance"
-            ),
-            KohlerError::NoOverlap { ranges } => {
-                let text: Vec<String> = ranges
-                    .iter()
-                    .map(|(t, lo, hi)| format!("{t} K: {lo:.4e} to {hi:.4e}"))
-                    .collect();
-                write!(
-                    f,
-                    "no two curves share a range of B / rho(0) (T/ohm: {}); measure to fields where the curves overlap",
-                    text.join("; ")
-                )
-            }
-            KohlerError::InvalidSetting {
-                name,
-                value,
-                requirement,
-            } => write!(f, "setting {name} is {value}; {requirement}"),
-        }
-    }
+/// The x range of each curve, "T K: low to high".
+fn ranges_text(ranges: &[(f64, f64, f64)]) -> String {
+    let text: Vec<String> = ranges
+        .iter()
+        .map(|(t, lo, hi)| format!("{t} K: {lo:.4e} to {hi:.4e}"))
+        .collect();
+    text.join("; ")
 }
-
-impl std::error::Error for KohlerError {}
 
 /// How many standard errors of the spread estimate a judged grid point may exceed the
 /// tolerance by (see the module documentation, step 5).

@@ -132,62 +132,37 @@ pub struct MrCurve {
 }
 
 /// Why MR cannot be computed.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
 #[non_exhaustive]
 pub enum RatioError {
     /// The sweep could not be symmetrized (one field sign only, rho_xx <= 0, NaN ...).
-    Sweep(SweepError),
+    #[error("{0}")]
+    Sweep(#[from] SweepError),
     /// rho(0) is to be measured but no point is at zero field.
+    #[error(
+        "the sweep has no point at zero field (|B| <= {tolerance_t} T; the lowest |B| is {lowest_field_t} T), so rho(0) is unknown; measure at zero field, raise zero_field_tolerance_T if the lowest field is zero within the magnet's remanence, or extrapolate rho(0) quadratically from the lowest fields"
+    )]
     NoZeroField { tolerance_t: f64, lowest_field_t: f64 },
     /// Too few grid fields for the extrapolation.
+    #[error(
+        "the quadratic extrapolation of rho(0) needs at least {required} field points (3 without uncertainties, 2 with) and the chosen range has {available}; raise the number of points or the field limit of the extrapolation"
+    )]
     TooFewForExtrapolation { available: usize, required: usize },
     /// A setting out of its range.
+    #[error("setting {name} is {value}; {requirement}")]
     InvalidSetting {
         name: &'static str,
         value: f64,
         requirement: &'static str,
     },
     /// The extrapolation failed.
+    #[error("the quadratic extrapolation of rho(0) failed: {0}")]
     Fit(FitError),
     /// The extrapolated rho(0) is not positive.
+    #[error(
+        "the quadratic extrapolation gives rho(0) = {value} ohm/sq, which no sample has; the chosen fields are not in the quadratic regime, so extrapolate from fewer, lower fields or measure at zero field"
+    )]
     NonPositiveExtrapolation { value: f64 },
-}
-
-impl std::fmt::Display for RatioError {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        match self {
-            RatioError::Sweep(error) => write!(f, "{error}"),
-            RatioError::NoZeroField {
-                tolerance_t,
-                lowest_field_t,
-            } => write!(
-                f,
-                "the sweep has no point at zero field (|B| <= {tolerance_t} T; the lowest |B| is {lowest_field_t} T), so rho(0) is unknown; measure at zero field, raise zero_field_tolerance_T if the lowest field is zero within the magnet's remanence, or extrapolate rho(0) quadratically from the lowest fields"
-            ),
-            RatioError::TooFewForExtrapolation { available, required } => write!(
-                f,
-                "the quadratic extrapolation of rho(0) needs at least {required} field points (3 without uncertainties, 2 with) and the chosen range has {available}; raise the number of points or the field limit of the extrapolation"
-            ),
-            RatioError::InvalidSetting {
-                name,
-                value,
-                requirement,
-            } => write!(f, "setting {name} is {value}; {requirement}"),
-            RatioError::Fit(error) => write!(f, "the quadratic extrapolation of rho(0) failed: {error}"),
-            RatioError::NonPositiveExtrapolation { value } => write!(
-                f,
-                "the quadratic extrapolation gives rho(0) = {value} ohm/sq, which no sample has; the chosen fields are not in the quadratic regime, so extrapolate from fewer, lower fields or measure at zero field"
-            ),
-        }
-    }
-}
-
-impl std::error::Error for RatioError {}
-
-impl From<SweepError> for RatioError {
-    fn from(error: SweepError) -> Self {
-        RatioError::Sweep(error)
-    }
 }
 
 /// The MR of one sweep (see the module documentation).

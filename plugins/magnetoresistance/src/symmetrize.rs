@@ -155,38 +155,19 @@ pub struct SymmetrizedSweep {
 }
 
 /// Why a sweep cannot be symmetrized.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
 #[non_exhaustive]
 pub enum SymmetrizeError {
     /// Refused by the symmetrization (no points, one field sign only, rho_xx <= 0, NaN ...).
-    Sweep(SweepError),
+    #[error("{0}")]
+    Sweep(#[from] SweepError),
     /// An option out of its range.
+    #[error("option {name} is {value}; {requirement}")]
     InvalidOption {
         name: &'static str,
         value: f64,
         requirement: &'static str,
     },
-}
-
-impl std::fmt::Display for SymmetrizeError {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        match self {
-            SymmetrizeError::Sweep(error) => write!(f, "{error}"),
-            SymmetrizeError::InvalidOption {
-                name,
-                value,
-                requirement,
-            } => write!(f, "option {name} is {value}; {requirement}"),
-        }
-    }
-}
-
-impl std::error::Error for SymmetrizeError {}
-
-impl From<SweepError> for SymmetrizeError {
-    fn from(error: SweepError) -> Self {
-        SymmetrizeError::Sweep(error)
-    }
 }
 
 /// Symmetrizes a sweep and reports its asymmetries (see the module documentation).

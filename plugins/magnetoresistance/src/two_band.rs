@@ -52,7 +52,9 @@
 //!    g (1 - x) / (1 + x)^2, d sigma_xy / d ln n = s g mu B / (1 + x), d sigma_xy / d ln mu =
 //!    2 s g mu B / (1 + x)^2 with g = e n mu, x = (mu B)^2) carried through the inversion by
 //!    its Jacobian 1/D^2 [[b^2 - a^2, -2ab], [-2ab, a^2 - b^2]] at (a, b) = (sigma_xx,
-//!    sigma_xy), D = a^2 + b^2.
+//!    sigma_xy), D = a^2 + b^2. Model, Jacobian and solver run are the N-carrier engine of
+//!    `mobilis_physics::carrier_fit` with N = 2, which `spectrum.multi_carrier_fit` runs in
+//!    conductivity space; this fit asks it for residuals in resistivity.
 //! 4. **Starts.** The bounded Levenberg-Marquardt solver of `mobilis_numerics::fit` runs from
 //!    every pair of 5 mobilities spread evenly in log over 0.03 / B_max .. 10 / B_min (a
 //!    carrier shows its magnetoresistance around B = 1/mu, so this covers every carrier the
@@ -85,9 +87,12 @@
 //! within their uncertainties; this one works in resistivity space, the other in
 //! conductivity space.
 
-use mobilis_numerics::fit::{Bounds, FitError, FitQuality, LeastSquares, LmOptions, MultiStartFit, SameMinimum};
+use mobilis_numerics::fit::{FitError, FitQuality, MultiStartFit};
 use mobilis_numerics::linalg::{Matrix, Svd};
 use mobilis_numerics::noise::Rng;
+use mobilis_physics::carrier_fit::{
+    output_order, starts_at_best_minimum, CarrierModel, InvalidRange, LogBounds, TensorSpace,
+};
 use mobilis_physics::constants::ELEMENTARY_CHARGE_C;
 use mobilis_physics::forward::tensor::{
     high_field_hall_coefficient_m2_per_c, invert_tensor, low_field_hall_coefficient_m2_per_c, sum_conductivity,
@@ -269,122 +274,79 @@ pub struct TwoBandSweepFit {
 }
 
 /// Why a two-band fit is refused or fails.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
 #[non_exhaustive]
 pub enum TwoBandError {
     /// The sweep could not be symmetrized (zero field only, rho_xx <= 0, NaN ...).
-    Sweep(SweepError),
+    #[error("{0}")]
+    Sweep(#[from] SweepError),
+    #[error("the sweep has no points; give rho_xx and rho_xy at several fields")]
     NoPoints,
+    #[error("point {index}: {column} is {value}; give a finite number or drop the point")]
     NonFinite {
         index: usize,
         column: &'static str,
         value: f64,
     },
-    NonPositiveRhoXx {
-        index: usize,
-        value: f64,
-    },
+    #[error(
+        "point {index}: rho_xx_ohm_sq is {value}; a sample's longitudinal resistivity is positive, so check the voltage polarity and the units, or drop the point"
+    )]
+    NonPositiveRhoXx { index: usize, value: f64 },
+    #[error(
+        "point {index}: the uncertainty {column} is {value}; give a finite positive standard uncertainty (a correlation within (-1, 1))"
+    )]
     InvalidUncertainty {
         index: usize,
         column: &'static str,
         value: f64,
     },
-    MixedUncertainties {
-        with: usize,
-        without: usize,
-    },
+    #[error("{with} points have uncertainties and {without} do not; give uncertainties for every point or for none")]
+    MixedUncertainties { with: usize, without: usize },
     /// Every point is at zero field.
-    NoField {
-        points: usize,
-    },
+    #[error("all {points} points are at zero field, where two bands cannot be told apart; give a field sweep")]
+    NoField { points: usize },
     /// Fewer residuals than the four parameters need.
+    #[error(
+        "{points} points give {residuals} residuals, too few for the 4 parameters of two bands ({} needed); give more field points",
+        residuals_needed(.weighted)
+    )]
     TooFewPoints {
         points: usize,
         residuals: usize,
         weighted: bool,
     },
+    #[error("setting {name} is {value}; {requirement}")]
     InvalidSetting {
         name: &'static str,
         value: f64,
         requirement: &'static str,
     },
     /// The guess is of other kinds than `kinds`, or not finite and positive.
-    InvalidGuess {
-        index: usize,
-        what: &'static str,
-    },
+    #[error(
+        "guess carrier {index}: {what}; give carriers of the kinds of `kinds`, in that order, with finite positive densities and mobilities"
+    )]
+    InvalidGuess { index: usize, what: &'static str },
     /// The data do not determine the parameters.
-    Indistinguishable {
-        parameters: Vec<usize>,
-    },
-    NotConverged {
-        starts: usize,
-        max_iterations: usize,
-    },
+    #[error(
+        "the data do not determine the two bands (parameters {parameters:?} of ln n_1, ln mu_1, ln n_2, ln mu_2 are degenerate); measure to higher field, where the bands' magnetoresistance appears, or fit one carrier"
+    )]
+    Indistinguishable { parameters: Vec<usize> },
+    #[error(
+        "none of {starts} starts converged within {max_iterations} iterations; raise max_iterations or random_starts, or give a guess"
+    )]
+    NotConverged { starts: usize, max_iterations: usize },
     /// Any other failure of the solver.
+    #[error("the two-band fit failed: {0}")]
     Fit(FitError),
 }
 
-impl std::fmt::Display for TwoBandError {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        match self {
-            TwoBandError::Sweep(error) => write!(f, "{error}"),
-            TwoBandError::NoPoints => write!(f, "the sweep has no points; give rho_xx and rho_xy at several fields"),
-            TwoBandError::NonFinite { index, column, value } => {
-                write!(f, "point {index}: {column} is {value}; give a finite number or drop the point")
-            }
-            TwoBandError::NonPositiveRhoXx { index, value } => write!(
-                f,
-                "point {index}: rho_xx_ohm_sq is {value}; a sample's longitudinal resistivity is positive, so check the voltage polarity and the units, or drop the point"
-            ),
-            TwoBandError::InvalidUncertainty { index, column, value } => write!(
-                f,
-                "point {index}: the uncertainty {column} is {value}; give a finite positive standard uncertainty (a correlation within (-1, 1))"
-            ),
-            TwoBandError::MixedUncertainties { with, without } => write!(
-                f,
-                "{with} points have uncertainties and {without} do not; give uncertainties for every point or for none"
-            ),
-            TwoBandError::NoField { points } => write!(
-                f,
-                "all {points} points are at zero field, where two bands cannot be told apart; give a field sweep"
-            ),
-            TwoBandError::TooFewPoints {
-                points,
-                residuals,
-                weighted,
-            } => write!(
-                f,
-                "{points} points give {residuals} residuals, too few for the 4 parameters of two bands ({} needed); give more field points",
-                if *weighted { 4 } else { 5 }
-            ),
-            TwoBandError::InvalidSetting {
-                name,
-                value,
-                requirement,
-            } => write!(f, "setting {name} is {value}; {requirement}"),
-            TwoBandError::InvalidGuess { index, what } => write!(
-                f,
-                "guess carrier {index}: {what}; give carriers of the kinds of `kinds`, in that order, with finite positive densities and mobilities"
-            ),
-            TwoBandError::Indistinguishable { parameters } => write!(
-                f,
-                "the data do not determine the two bands (parameters {parameters:?} of ln n_1, ln mu_1, ln n_2, ln mu_2 are degenerate); measure to higher field, where the bands' magnetoresistance appears, or fit one carrier"
-            ),
-            TwoBandError::NotConverged { starts, max_iterations } => write!(
-                f,
-                "none of {starts} starts converged within {max_iterations} iterations; raise max_iterations or random_starts, or give a guess"
-            ),
-            TwoBandError::Fit(error) => write!(f, "the two-band fit failed: {error}"),
-        }
-    }
-}
-
-impl std::error::Error for TwoBandError {}
-
-impl From<SweepError> for TwoBandError {
-    fn from(error: SweepError) -> Self {
-        TwoBandError::Sweep(error)
+/// Residuals the four parameters need: one more without uncertainties, whose scale is then
+/// estimated from the same residuals.
+fn residuals_needed(weighted: &bool) -> usize {
+    if *weighted {
+        4
+    } else {
+        5
     }
 }
 
@@ -428,75 +390,6 @@ fn validated_data(points: &[SweepPoint]) -> Result<Data, TwoBandError> {
         });
     }
     Ok(data)
-}
-
-/// The carriers of a parameter vector (ln n_1, ln mu_1, ln n_2, ln mu_2).
-fn carriers_of(kinds: &[CarrierKind; 2], p: &[f64]) -> [Carrier; 2] {
-    [0, 1].map(|i| Carrier {
-        kind: kinds[i],
-        sheet_density_m2: p[2 * i].exp(),
-        mobility_m2_per_vs: p[2 * i + 1].exp(),
-    })
-}
-
-fn residuals(data: &Data, kinds: &[CarrierKind; 2], p: &[f64], out: &mut [f64]) {
-    let carriers = carriers_of(kinds, p);
-    for (k, &field) in data.fields_t.iter().enumerate() {
-        let model = two_band_resistivity(&carriers, field);
-        let offset = data.offsets[k];
-        let w = &data.whitening[k];
-        w.apply(
-            model.rho_xx_ohm_sq - data.xx[k],
-            model.rho_xy_ohm - data.xy[k],
-            &mut out[offset..offset + w.count()],
-        );
-    }
-}
-
-/// The analytic Jacobian of [`residuals`] (module documentation, step 3).
-fn jacobian(data: &Data, kinds: &[CarrierKind; 2], p: &[f64], jacobian: &mut Matrix) {
-    let carriers = carriers_of(kinds, p);
-    let mut pair = [0.0; 2];
-    for (k, &field) in data.fields_t.iter().enumerate() {
-        let total = sum_conductivity(&carriers, field);
-        let (a, b) = (total.sigma_xx_s, total.sigma_xy_s);
-        let d2 = (a * a + b * b).powi(2);
-        let inversion = [
-            [(b * b - a * a) / d2, -2.0 * a * b / d2],
-            [-2.0 * a * b / d2, (a * a - b * b) / d2],
-        ];
-        let offset = data.offsets[k];
-        let w = &data.whitening[k];
-        for (i, carrier) in carriers.iter().enumerate() {
-            let g = carrier.sheet_conductance_s();
-            let mu_b = carrier.mobility_m2_per_vs * field;
-            let x = mu_b * mu_b;
-            let denominator = 1.0 + x;
-            let s = carrier.kind.charge_sign();
-            let sigma_derivatives = [
-                (g / denominator, s * g * mu_b / denominator),
-                (
-                    g * (1.0 - x) / (denominator * denominator),
-                    2.0 * s * g * mu_b / (denominator * denominator),
-                ),
-            ];
-            for (q, (d_xx, d_xy)) in sigma_derivatives.into_iter().enumerate() {
-                let rho_xx = inversion[0][0] * d_xx + inversion[0][1] * d_xy;
-                let rho_xy = inversion[1][0] * d_xx + inversion[1][1] * d_xy;
-                w.apply(rho_xx, rho_xy, &mut pair);
-                for r in 0..w.count() {
-                    jacobian[(offset + r, 2 * i + q)] = pair[r];
-                }
-            }
-        }
-    }
-}
-
-/// The box of the fit in ln n and ln mu.
-#[derive(Debug, Clone, Copy)]
-struct LogBounds {
-    ln_density: (f64, f64),
-    ln_mobility: (f64, f64),
 }
 
 /// ln n of both carriers for fixed mobilities: the weighted linear least squares of the
@@ -617,20 +510,13 @@ fn starts(data: &Data, settings: &TwoBandSettings, bounds: &LogBounds) -> Vec<Ve
 }
 
 fn validate_settings(settings: &TwoBandSettings) -> Result<LogBounds, TwoBandError> {
-    let range = |name: &'static str, (low, high): (f64, f64)| -> Result<(f64, f64), TwoBandError> {
-        if !(low.is_finite() && high.is_finite() && low > 0.0 && high > low) {
-            return Err(TwoBandError::InvalidSetting {
-                name,
-                value: if low.is_finite() && low > 0.0 { high } else { low },
-                requirement: "give finite positive lower and upper limits, lower < upper",
-            });
-        }
-        Ok((low.ln(), high.ln()))
-    };
-    let bounds = LogBounds {
-        ln_density: range("sheet_density_bounds_m2", settings.sheet_density_bounds_m2)?,
-        ln_mobility: range("mobility_bounds_m2_per_vs", settings.mobility_bounds_m2_per_vs)?,
-    };
+    let bounds = LogBounds::new(settings.sheet_density_bounds_m2, settings.mobility_bounds_m2_per_vs).map_err(
+        |InvalidRange { name, value }| TwoBandError::InvalidSetting {
+            name,
+            value,
+            requirement: InvalidRange::REQUIREMENT,
+        },
+    )?;
     if settings.max_iterations == 0 {
         return Err(TwoBandError::InvalidSetting {
             name: "max_iterations",
@@ -683,35 +569,16 @@ pub fn fit_two_band(points: &[SweepPoint], settings: &TwoBandSettings) -> Result
     let bounds = validate_settings(settings)?;
     let data = validated_data(points)?;
     let kinds = settings.kinds;
-    let box_bounds = Bounds::new(
-        vec![
-            bounds.ln_density.0,
-            bounds.ln_mobility.0,
-            bounds.ln_density.0,
-            bounds.ln_mobility.0,
-        ],
-        vec![
-            bounds.ln_density.1,
-            bounds.ln_mobility.1,
-            bounds.ln_density.1,
-            bounds.ln_mobility.1,
-        ],
-    )?;
-    let problem = LeastSquares::new(data.residual_count, |p: &[f64], r: &mut [f64]| {
-        residuals(&data, &kinds, p, r)
-    })
-    .with_jacobian(|p: &[f64], j: &mut Matrix| jacobian(&data, &kinds, p, j))
-    .with_bounds(box_bounds);
-    let options = LmOptions {
-        residuals_are_weighted: data.weighted,
-        max_iterations: settings.max_iterations,
-        // ln n and ln mu have a natural scale of 1 (a factor e).
-        parameter_scales: Some(vec![1.0; 4]),
-        ..LmOptions::default()
+    // The engine of `spectrum.multi_carrier_fit` with N = 2, its residuals taken in
+    // resistivity (module documentation, step 2).
+    let model = CarrierModel {
+        data: &data,
+        kinds: &kinds,
+        space: TensorSpace::Resistivity,
     };
     let starts = starts(&data, settings, &bounds);
-    let run = problem
-        .minimize_multi_start(&starts, &options, &SameMinimum::default())
+    let run = model
+        .fit(&starts, &bounds, settings.max_iterations)
         .map_err(|error| match error {
             FitError::NotConverged {
                 starts, max_iterations, ..
@@ -721,30 +588,10 @@ pub fn fit_two_band(points: &[SweepPoint], settings: &TwoBandSettings) -> Result
     Ok(finish(&data, points, &kinds, &run))
 }
 
-/// The parameter indices of a run in output order: electrons first, each kind by mobility.
-fn output_order(kinds: &[CarrierKind; 2], p: &[f64]) -> [usize; 2] {
-    let mut order = [0, 1];
-    order.sort_by(|&a, &b| kinds[a].cmp(&kinds[b]).then(p[2 * a + 1].total_cmp(&p[2 * b + 1])));
-    order
-}
-
-/// Converged starts at the best minimum, carriers compared in output order (two carriers
-/// of one kind found with their labels swapped are the same minimum). Agreement: a
-/// chi-square within 1e-3 of the noise variance and every parameter within 0.1 standard
-/// errors (the tolerances of `mobilis_numerics::fit::SameMinimum`).
-fn starts_at_best_minimum(kinds: &[CarrierKind; 2], run: &MultiStartFit) -> usize {
-    run.starts_at_best_minimum_reordered(|p: &[f64]| -> Vec<usize> {
-        output_order(kinds, p)
-            .iter()
-            .flat_map(|&i| [2 * i, 2 * i + 1])
-            .collect()
-    })
-}
-
 /// Orders the carriers and computes uncertainties, the curve and the warnings.
 fn finish(data: &Data, points: &[SweepPoint], kinds: &[CarrierKind; 2], run: &MultiStartFit) -> TwoBandFit {
     let best = &run.best;
-    let order = output_order(kinds, &best.parameters);
+    let order: [usize; 2] = output_order(kinds, &best.parameters).try_into().expect("two carriers");
     let raw_correlation = best.correlation();
     let index = |k: usize| 2 * order[k / 2] + k % 2;
     let correlation = Matrix::from_fn(4, 4, |i, j| raw_correlation[(index(i), index(j))]);

@@ -70,8 +70,6 @@
 //!    below 1e-3, naming the worst points (the HLN form alone does not describe the data:
 //!    add the classical term or lower `max_field_t`, or check the stated uncertainties).
 
-use std::fmt;
-
 use mobilis_numerics::fit::{Bounds, FitError, FitQuality, LeastSquares, LmOptions, SameMinimum};
 use mobilis_numerics::linalg::{Matrix, Svd};
 use mobilis_physics::forward::oscillations::{
@@ -194,80 +192,52 @@ fn model(alpha: f64, b_phi: f64, beta: f64, offset: f64, field_t: f64) -> f64 {
 }
 
 /// Why [`fit_weak_localization`] refuses its input or finds no fit.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
 #[non_exhaustive]
 pub enum WeakLocalizationError {
     /// A column has another length than the fields.
+    #[error("{column} has {got} values for {expected} fields; give one per field")]
     LengthMismatch {
         column: &'static str,
         expected: usize,
         got: usize,
     },
     /// A value is NaN or infinite.
+    #[error("point {index}: {column} is {value}; give a finite number or drop the point")]
     NonFinite {
         index: usize,
         column: &'static str,
         value: f64,
     },
     /// rho_xx is zero or negative.
+    #[error(
+        "point {index}: rho_xx is {value} ohm per square; a conducting film has rho_xx > 0, so check the sign and the units, or drop the point"
+    )]
     NonPositiveResistivity { index: usize, value: f64 },
     /// An uncertainty is not finite and positive.
+    #[error("point {index}: the rho_xx uncertainty is {value}; give finite positive uncertainties, or none")]
     InvalidUncertainty { index: usize, value: f64 },
     /// No point at zero field.
+    #[error(
+        "no point lies at zero field (|B| <= {tolerance_t} T; the lowest |B| is {lowest_field_t} T): d_sigma is sigma(B) - sigma(0), so measure a point at zero field, or raise zero_field_tolerance_T if the zero-field setpoint reads a small residual field (a magnet's remanence)"
+    )]
     NoZeroField { tolerance_t: f64, lowest_field_t: f64 },
     /// Too few nonzero fields for the parameters.
+    #[error(
+        "{points} nonzero fields are within the fitted range, but the fit needs at least {required}; give more low-field points, raise max_field_T, or fit fewer terms"
+    )]
     TooFewPoints { points: usize, required: usize },
     /// A setting out of its range.
+    #[error("setting {name} is {value}; {requirement}")]
     InvalidSetting {
         name: &'static str,
         value: f64,
         requirement: &'static str,
     },
     /// The least-squares fit failed.
+    #[error("the HLN fit failed: {0}")]
     Fit(FitError),
 }
-
-impl fmt::Display for WeakLocalizationError {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        match self {
-            WeakLocalizationError::LengthMismatch {
-                column,
-                expected,
-                got,
-            } => write!(f, "{column} has {got} values for {expected} fields; give one per field"),
-            WeakLocalizationError::NonFinite { index, column, value } => {
-                write!(f, "point {index}: {column} is {value}; give a finite number or drop the point")
-            }
-            WeakLocalizationError::NonPositiveResistivity { index, value } => write!(
-                f,
-                "point {index}: rho_xx is {value} ohm per square; a conducting film has rho_xx > 0, so check the sign and the units, or drop the point"
-            ),
-            WeakLocalizationError::InvalidUncertainty { index, value } => write!(
-                f,
-                "point {index}: the rho_xx uncertainty is {value}; give finite positive uncertainties, or none"
-            ),
-            WeakLocalizationError::NoZeroField {
-                tolerance_t,
-                lowest_field_t,
-            } => write!(
-                f,
-                "no point lies at zero field (|B| <= {tolerance_t} T; the lowest |B| is {lowest_field_t} T): d_sigma is sigma(B) - sigma(0), so measure a point at zero field, or raise zero_field_tolerance_T if the zero-field setpoint reads a small residual field (a magnet's remanence)"
-            ),
-            WeakLocalizationError::TooFewPoints { points, required } => write!(
-                f,
-                "{points} nonzero fields are within the fitted range, but the fit needs at least {required}; give more low-field points, raise max_field_T, or fit fewer terms"
-            ),
-            WeakLocalizationError::InvalidSetting {
-                name,
-                value,
-                requirement,
-            } => write!(f, "setting {name} is {value}; {requirement}"),
-            WeakLocalizationError::Fit(error) => write!(f, "the HLN fit failed: {error}"),
-        }
-    }
-}
-
-impl std::error::Error for WeakLocalizationError {}
 
 /// B_phi values tried for the starting values.
 const START_GRID: usize = 25;

@@ -42,7 +42,9 @@
 //!    Logarithms keep densities and mobilities positive, make the steps scale-free across
 //!    the decades they span, and make the Gaussian uncertainty a relative one. Bounds (box
 //!    constraints of the solver) keep them within [`MultiCarrierSettings::sheet_density_bounds_m2`]
-//!    and [`MultiCarrierSettings::mobility_bounds_m2_per_vs`]. The Jacobian is analytic.
+//!    and [`MultiCarrierSettings::mobility_bounds_m2_per_vs`]. The Jacobian is analytic. The
+//!    model, its Jacobian and the solver run are the engine of `mobilis_physics::carrier_fit`,
+//!    which `mr.two_band_fit` shares.
 //! 4. **Starts.** Several starts per carrier list, seeded from the data (the `seeds` submodule):
 //!    mobilities spread over 0.03 / B_max .. 10 / B_min and around the low-field Hall
 //!    mobility, densities from the linear least squares that fixed mobilities allow. The
@@ -96,7 +98,6 @@
 pub mod budget;
 mod error;
 mod interpolation;
-mod model;
 mod seeds;
 pub mod summary;
 #[cfg(test)]
@@ -107,18 +108,18 @@ pub use error::MultiCarrierError;
 pub use mobilis_physics::forward::tensor::{Carrier, CarrierKind};
 pub use mobilis_physics::sweep::{SweepPoint, SymmetrizeSettings, Symmetrized, TensorPoint, TensorUncertainty};
 
-use mobilis_numerics::fit::{
-    minimize_multi_start_parallel, Bounds, FitQuality, LeastSquares, LmOptions, MultiStartFit, SameMinimum,
-};
+use mobilis_numerics::fit::{FitQuality, MultiStartFit};
 use mobilis_numerics::linalg::Matrix;
 use mobilis_numerics::noise::Rng;
+use mobilis_physics::carrier_fit::{
+    output_order, starts_at_best_minimum, CarrierModel, InvalidRange, LogBounds, TensorSpace,
+};
 use mobilis_physics::forward::tensor::sum_conductivity;
 use mobilis_physics::sweep::{conductivity_points, symmetrize};
+use mobilis_physics::tensor_data::TensorData as Data;
 use rayon::prelude::*;
 
 use crate::monitor::{Monitor, Unmonitored};
-use model::Data;
-use seeds::LogBounds;
 
 /// Which carriers are fitted.
 #[derive(Debug, Clone, PartialEq)]
@@ -450,20 +451,13 @@ struct CandidateFit {
 }
 
 fn validate_settings(settings: &MultiCarrierSettings) -> Result<LogBounds, MultiCarrierError> {
-    let range = |name: &'static str, (low, high): (f64, f64)| -> Result<(f64, f64), MultiCarrierError> {
-        if !(low.is_finite() && high.is_finite() && low > 0.0 && high > low) {
-            return Err(MultiCarrierError::InvalidSetting {
-                name,
-                value: if low.is_finite() && low > 0.0 { high } else { low },
-                requirement: "give finite positive lower and upper limits, lower < upper",
-            });
-        }
-        Ok((low.ln(), high.ln()))
-    };
-    let bounds = LogBounds {
-        ln_density: range("sheet_density_bounds_m2", settings.sheet_density_bounds_m2)?,
-        ln_mobility: range("mobility_bounds_m2_per_vs", settings.mobility_bounds_m2_per_vs)?,
-    };
+    let bounds = LogBounds::new(settings.sheet_density_bounds_m2, settings.mobility_bounds_m2_per_vs).map_err(
+        |InvalidRange { name, value }| MultiCarrierError::InvalidSetting {
+            name,
+            value,
+            requirement: InvalidRange::REQUIREMENT,
+        },
+    )?;
     if !(settings.min_criterion_improvement.is_finite() && settings.min_criterion_improvement >= 0.0) {
         return Err(MultiCarrierError::InvalidSetting {
             name: "min_criterion_improvement",
@@ -535,32 +529,17 @@ fn fit_kinds(
         .fold(settings.seed, |acc, k| acc.wrapping_mul(31).wrapping_add(1 + *k as u64));
     let mut rng = Rng::seeded(list_seed);
     let starts = seeds::starts(data, kinds, guess, settings.random_starts, &mut rng, bounds);
-    let lower: Vec<f64> = (0..n)
-        .flat_map(|_| [bounds.ln_density.0, bounds.ln_mobility.0])
-        .collect();
-    let upper: Vec<f64> = (0..n)
-        .flat_map(|_| [bounds.ln_density.1, bounds.ln_mobility.1])
-        .collect();
-    let box_bounds = Bounds::new(lower, upper).map_err(|e| MultiCarrierError::from_fit(kinds, e))?;
-    let problem = || {
-        LeastSquares::new(data.residual_count, |p: &[f64], r: &mut [f64]| {
-            model::residuals(data, kinds, p, r)
-        })
-        .with_jacobian(|p: &[f64], j: &mut Matrix| model::jacobian(data, kinds, p, j))
-        .with_bounds(box_bounds.clone())
-    };
-    let options = LmOptions {
-        residuals_are_weighted: data.weighted,
-        max_iterations: settings.max_iterations,
-        // ln n and ln mu have a natural scale of 1 (a factor e).
-        parameter_scales: Some(vec![1.0; 2 * n]),
-        ..LmOptions::default()
-    };
     // The starts are independent runs: on the worker threads, with the same result as one
-    // after the other (`minimize_multi_start_parallel`). Together with the carrier lists
-    // solved at once this keeps both cores busy when the lists are fewer than the cores
-    // or of unequal cost, and the second pass of `fit_sweep`, one list, gets them too.
-    let run = minimize_multi_start_parallel(problem, &starts, &options, &SameMinimum::default())
+    // after the other. Together with the carrier lists solved at once this keeps both cores
+    // busy when the lists are fewer than the cores or of unequal cost, and the second pass
+    // of `fit_sweep`, one list, gets them too.
+    let model = CarrierModel {
+        data,
+        kinds,
+        space: TensorSpace::Conductivity,
+    };
+    let run = model
+        .fit(&starts, bounds, settings.max_iterations)
         .map_err(|e| MultiCarrierError::from_fit(kinds, e))?;
     let score = settings
         .criterion
@@ -736,24 +715,6 @@ fn fit_points(
 /// practice).
 const POORLY_DETERMINED: f64 = 0.1;
 
-/// How many converged starts reached the best minimum. Carriers of the same kind are
-/// interchangeable, so each run's carriers are put in the output order (kind, then
-/// mobility) before the comparison; otherwise a run that found the same carriers with
-/// their labels swapped would count as another minimum. Agreement means a chi-square
-/// within 1e-3 of the noise variance and every parameter within 0.1 standard errors (the
-/// tolerances of `mobilis_numerics::fit::SameMinimum`).
-fn starts_at_best_minimum(kinds: &[CarrierKind], run: &MultiStartFit) -> usize {
-    run.starts_at_best_minimum_reordered(|parameters: &[f64]| -> Vec<usize> {
-        let mut order: Vec<usize> = (0..kinds.len()).collect();
-        order.sort_by(|&a, &b| {
-            kinds[a]
-                .cmp(&kinds[b])
-                .then(parameters[2 * a + 1].total_cmp(&parameters[2 * b + 1]))
-        });
-        order.iter().flat_map(|&i| [2 * i, 2 * i + 1]).collect()
-    })
-}
-
 /// Bookkeeping of the data passed on to [`finish`].
 struct Counts {
     floored_points: usize,
@@ -797,12 +758,7 @@ fn finish(
     let birge_ratio = if data.weighted { quality.birge_ratio } else { 1.0 };
     let statistical_scale = birge_ratio * reading_reuse_factor.max(1.0).sqrt();
     let calibration = settings.calibration;
-    let mut order: Vec<usize> = (0..n).collect();
-    order.sort_by(|&a, &b| {
-        kinds[a]
-            .cmp(&kinds[b])
-            .then(best.parameters[2 * a + 1].total_cmp(&best.parameters[2 * b + 1]))
-    });
+    let order = output_order(&kinds, &best.parameters);
     let correlation_raw = best.correlation();
     let parameter_index = |k: usize| 2 * order[k / 2] + k % 2;
     let correlation = Matrix::from_fn(2 * n, 2 * n, |i, j| {

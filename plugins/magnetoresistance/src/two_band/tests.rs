@@ -308,16 +308,21 @@ fn two_band_analytic_jacobian_matches_finite_differences() {
     let data = Data::new(&points).unwrap();
     let kinds = [CarrierKind::Electron, CarrierKind::Hole];
     let p = [(3e15f64).ln(), (0.7f64).ln(), (8e15f64).ln(), (0.2f64).ln()];
+    let model = CarrierModel {
+        data: &data,
+        kinds: &kinds,
+        space: TensorSpace::Resistivity,
+    };
     let mut analytic = Matrix::zeros(data.residual_count, 4);
-    jacobian(&data, &kinds, &p, &mut analytic);
+    model.jacobian(&p, &mut analytic);
     let h = 1e-6;
     let (mut plus, mut minus) = (vec![0.0; data.residual_count], vec![0.0; data.residual_count]);
     for j in 0..4 {
         let mut q = p;
         q[j] += h;
-        residuals(&data, &kinds, &q, &mut plus);
+        model.residuals(&q, &mut plus);
         q[j] -= 2.0 * h;
-        residuals(&data, &kinds, &q, &mut minus);
+        model.residuals(&q, &mut minus);
         let scale = (0..data.residual_count)
             .map(|r| analytic[(r, j)].abs())
             .fold(0.0, f64::max);

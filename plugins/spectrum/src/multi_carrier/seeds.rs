@@ -25,24 +25,8 @@ use mobilis_numerics::noise::Rng;
 use mobilis_physics::constants::ELEMENTARY_CHARGE_C;
 use mobilis_physics::forward::tensor::{Carrier, CarrierKind};
 
-use super::model::Data;
-
-/// Box limits of the fit, as natural logarithms.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub(super) struct LogBounds {
-    pub ln_density: (f64, f64),
-    pub ln_mobility: (f64, f64),
-}
-
-impl LogBounds {
-    fn clamp_density(&self, ln_n: f64) -> f64 {
-        ln_n.clamp(self.ln_density.0, self.ln_density.1)
-    }
-
-    fn clamp_mobility(&self, ln_mu: f64) -> f64 {
-        ln_mu.clamp(self.ln_mobility.0, self.ln_mobility.1)
-    }
-}
+use mobilis_physics::carrier_fit::LogBounds;
+use mobilis_physics::tensor_data::TensorData as Data;
 
 /// The mobility range the starts are drawn from, as ln mu, within the bounds.
 pub(super) fn mobility_seed_range(data: &Data, bounds: &LogBounds) -> (f64, f64) {

@@ -100,21 +100,26 @@ fn multi_carrier_analytic_jacobian_matches_finite_differences() {
     let symmetrized = symmetrize(&sweep, &SymmetrizeSettings::default()).unwrap();
     let points = conductivity_points(&symmetrized);
     assert!(points[0].field_t == 0.0 && points.iter().all(|p| p.uncertainty.is_some()));
-    let data = model::Data::new(&points).unwrap();
+    let data = Data::new(&points).unwrap();
     assert_eq!(data.residual_count, 2 * points.len() - 1);
     let kinds = [Electron, Hole, Electron];
     let parameters = [36.5, -0.4, 38.0, -2.3, 35.0, 1.1];
+    let model = CarrierModel {
+        data: &data,
+        kinds: &kinds,
+        space: TensorSpace::Conductivity,
+    };
     let m = data.residual_count;
     let mut analytic = Matrix::zeros(m, 6);
-    model::jacobian(&data, &kinds, &parameters, &mut analytic);
+    model.jacobian(&parameters, &mut analytic);
     let (mut plus, mut minus) = (vec![0.0; m], vec![0.0; m]);
     for j in 0..6 {
         let h = 1e-6;
         let mut shifted = parameters;
         shifted[j] += h;
-        model::residuals(&data, &kinds, &shifted, &mut plus);
+        model.residuals(&shifted, &mut plus);
         shifted[j] -= 2.0 * h;
-        model::residuals(&data, &kinds, &shifted, &mut minus);
+        model.residuals(&shifted, &mut minus);
         let scale = (0..m).map(|i| analytic[(i, j)].abs()).fold(0.0, f64::max);
         for i in 0..m {
             let numeric = (plus[i] - minus[i]) / (2.0 * h);

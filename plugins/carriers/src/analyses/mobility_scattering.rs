@@ -33,7 +33,7 @@ fn default_material() -> String {
     "Si".into()
 }
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ScatteringParams {
     #[serde(default = "default_material")]
@@ -266,6 +266,27 @@ impl Analysis for MobilityScatteringAnalysis {
                 column("normalized_residual", F64, None, "the log residual over the uncertainty the fit weighted it by (floor and temperature included)"),
             ],
             summary_keys: vec![
+                column("compensating_density_m3", ColumnType::F64, Some("m3"), "N_comp of the carriers-plus-compensation model, with _unc"),
+                column("compensating_density_upper_limit_m3", ColumnType::F64, Some("m3"), "upper limit of N_comp when it is not resolved"),
+                column("neutral_impurity_density_m3", ColumnType::F64, Some("m3"), "neutral impurity density when fitted, with _unc"),
+                column("constant_mobility_m2_per_Vs", ColumnType::F64, Some("m2_per_Vs"), "the constant mobility term when fitted, with _unc"),
+                column("carrier_type", ColumnType::Str, None, "n or p"),
+                column("formula", ColumnType::Str, None, "ionized-impurity formula used"),
+                column("lattice_exponent_fixed", ColumnType::Bool, None, "the lattice exponent was fixed, not fitted"),
+                column("weighted", ColumnType::Bool, None, "the fit used the stated uncertainties"),
+                column("weights_column", ColumnType::Str, None, "the column the weights came from"),
+                column("calibrations_not_stated", ColumnType::Str, None, "list of the calibrations not stated (their defaults were assumed)"),
+                column("degrees_of_freedom", ColumnType::I64, None, "points minus fitted parameters"),
+                column("points_used", ColumnType::I64, None, "points fitted"),
+                column("hall_factor", ColumnType::F64, None, "Hall scattering factor used"),
+                column("mobility_column", ColumnType::Str, None, "the mobility column fitted"),
+                column("relative_uncertainty_floor", ColumnType::F64, None, "the floor applied to relative uncertainties"),
+                column("temperature_uncertainty_used", ColumnType::Bool, None, "temperature uncertainties entered the weights"),
+                column("freeze_out_reference_m3", ColumnType::F64, Some("m3"), "the freeze-out fit's density compared with"),
+                column("freeze_out_reference_basis", ColumnType::Str, None, "which freeze-out density was compared with"),
+                column("density_ratio", ColumnType::F64, None, "N_I over the freeze-out reference, with _unc"),
+                column("deviation_sigma", ColumnType::F64, None, "deviation from the freeze-out reference in standard uncertainties"),
+                column("freeze_out_comparison", ColumnType::Str, None, "upper_limit when the comparison is a bound only"),
                 column("lattice_exponent", F64, None, "alpha of mu_L ~ T^-alpha, with _unc, _unc_stat and _unc_sys"),
                 column("lattice_mobility_300K_m2_per_Vs", F64, Some("m2_per_Vs"), "mu_L at 300 K, with _unc, _unc_stat and _unc_sys"),
                 column("ionized_impurity_density_m3", F64, Some("m3"), "N_I, with _unc, _unc_stat and _unc_sys"),
@@ -277,6 +298,7 @@ impl Analysis for MobilityScatteringAnalysis {
                 column("floored_points", I64, None, "points whose uncertainty was raised to relative_uncertainty_floor"),
             ],
             figures: crate::figures::mobility_scattering(),
+            ..Default::default()
         }
     }
 

@@ -28,7 +28,7 @@ use serde_json::{json, Value};
 
 pub struct OscillationsAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 pub struct OscillationParams {
     #[serde(flatten)]
     sweep: SweepParams,
@@ -207,6 +207,19 @@ impl Analysis for OscillationsAnalysis {
                 column("landau_index", F64, None, "Landau level index: integer at minima of rho_xx, half-integer at maxima (landau rows); F_fan / B + beta on landau_fit rows"),
             ],
             summary_keys: vec![
+                column("lines", ColumnType::Str, None, "list of {frequency_T, sheet_density_m2, ...} with _unc: one entry per frequency found"),
+                column("sample", ColumnType::Str, None, "the series' sample"),
+                column("temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures of the series"),
+                column("single_field_sign_temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures measured at one field sign"),
+                column("field_window_T", ColumnType::F64, Some("T"), "[lowest, highest] field analysed"),
+                column("resolution_T", ColumnType::F64, Some("T"), "frequency resolution of the transform"),
+                column("mass_method", ColumnType::Str, None, "how the effective mass was obtained"),
+                column("dingle_reduced_chi_square", ColumnType::F64, None, "chi^2 / nu of the Dingle fit"),
+                column("dingle_chi_square_p_value", ColumnType::F64, None, "P(chi^2 >= observed) of the Dingle fit"),
+                column("dingle_birge_ratio", ColumnType::F64, None, "sqrt(chi^2 / nu) of the Dingle fit when above 1"),
+                column("landau_fan_intercept", ColumnType::F64, None, "intercept of the Landau fan, with _unc"),
+                column("landau_fan_phase_rad", ColumnType::F64, Some("rad"), "Berry-phase offset of the Landau fan"),
+                column("waveform_residual_rms_ohm_sq", ColumnType::F64, Some("ohm_sq"), "rms residual of the waveform fit"),
                 column("frequency_T", F64, Some("T"), "the dominant frequency, with _unc"),
                 column("sheet_density_m2", F64, Some("m2"), "g_s e F / h, with _unc"),
                 column("effective_mass_ratio", F64, None, "m*/m0, with _unc"),
@@ -217,6 +230,7 @@ impl Analysis for OscillationsAnalysis {
                 column("uncertainty_checks", Str, None, "the repeated analyses whose spread is in the _unc_stat parts (JSON list)"),
             ],
             figures: crate::figures::oscillations(),
+            ..Default::default()
         }
     }
 
@@ -645,7 +659,7 @@ fn mass_fit_temperatures(measured_k: &[f64]) -> Vec<f64> {
 
 pub struct WeakLocalizationAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct WeakLocalizationParams {
     #[serde(rename = "max_field_T", default)]
@@ -697,6 +711,12 @@ impl Analysis for WeakLocalizationAnalysis {
                 column("fitted", Bool, None, "inside the fitted range"),
             ],
             summary_keys: vec![
+                column("sample", ColumnType::Str, None, "the sweep's sample"),
+                column("temperature_K", ColumnType::F64, Some("K"), "the sweep's temperature"),
+                column("phase_coherence_field_T", ColumnType::F64, Some("T"), "B_phi = hbar / (4 e l_phi^2)"),
+                column("zero_field_conductance_S", ColumnType::F64, Some("S"), "sigma(0) of the fitted sweep"),
+                column("classical_S_per_T2", ColumnType::F64, Some("S_per_T2"), "coefficient of the classical B^2 term, null when not fitted"),
+                column("fitted_points", ColumnType::I64, None, "points fitted"),
                 column("phase_coherence_length_m", F64, Some("m"), "l_phi, with _unc"),
                 column("alpha", F64, None, "HLN prefactor (-1/2 for one channel with strong spin-orbit coupling), with _unc"),
                 super::classical::single_field_sign_key(),
@@ -705,6 +725,7 @@ impl Analysis for WeakLocalizationAnalysis {
                 column("birge_ratio", F64, None, "sqrt(chi^2 / nu) when above 1 (the uncertainties were multiplied by it), else 1; null without stated uncertainties"),
             ],
             figures: crate::figures::weak_localization(),
+            ..Default::default()
         }
     }
 

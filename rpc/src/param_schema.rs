@@ -13,6 +13,8 @@
 //! `$comment`, `format`, `deprecated`, `readOnly`, `writeOnly` are accepted and ignored
 //! (`format` as JSON Schema 2020-12 makes it, an annotation: derived schemas write
 //! `"format": "uint"` beside `"minimum": 0`, which does the checking).
+//! Schemas derived by the SDK from typed parameters stay within this subset (subschemas
+//! inline, every enum a list of constants).
 
 use serde_json::{Map, Value};
 
@@ -35,6 +37,9 @@ const VALIDATING: [&str; 17] = [
     "anyOf",
     "oneOf",
 ];
+/// Keywords that describe and never constrain; `format` is among them because schemars
+/// writes it for every number (`double`, `uint32`, ...) and JSON Schema 2020-12 makes it an
+/// annotation unless a validator opts in.
 const ANNOTATIONS: [&str; 10] = [
     "title",
     "description",
@@ -229,6 +234,20 @@ fn validate_at(schema: &Value, value: &Value, path: &str) -> Result<(), String> 
             }
         }
     }
+    for key in ["anyOf", "oneOf"] {
+        // A derived enum is a list of constants (with their descriptions), perhaps with
+        // null: name the choices rather than "matches none of the forms".
+        if let Some(allowed) = map
+            .get(key)
+            .and_then(Value::as_array)
+            .and_then(|options| choices(options))
+        {
+            if !allowed.contains(value) {
+                let listed: Vec<String> = allowed.iter().map(Value::to_string).collect();
+                return Err(format!("{path} must be one of {} (got {value})", listed.join(", ")));
+            }
+        }
+    }
     if let Some(Value::Array(options)) = map.get("anyOf") {
         if !options.iter().any(|option| validate_at(option, value, path).is_ok()) {
             let first = options
@@ -250,6 +269,27 @@ fn validate_at(schema: &Value, value: &Value, path: &str) -> Result<(), String> 
         }
     }
     Ok(())
+}
+
+/// The values a list of alternatives allows, when every alternative is a constant, an
+/// enum, a list of such alternatives or `{"type": "null"}`; `None` otherwise.
+fn choices(options: &[Value]) -> Option<Vec<Value>> {
+    let mut allowed = Vec::new();
+    for option in options {
+        let map = option.as_object()?;
+        if let Some(constant) = map.get("const") {
+            allowed.push(constant.clone());
+        } else if let Some(Value::Array(values)) = map.get("enum") {
+            allowed.extend(values.iter().cloned());
+        } else if let Some(Value::Array(nested)) = map.get("oneOf").or_else(|| map.get("anyOf")) {
+            allowed.extend(choices(nested)?);
+        } else if map.get("type") == Some(&Value::String("null".into())) {
+            allowed.push(Value::Null);
+        } else {
+            return None;
+        }
+    }
+    Some(allowed)
 }
 
 #[cfg(test)]
@@ -313,6 +353,33 @@ mod tests {
             Some("params.columns[0] must be string"),
         );
         check(json!([1]), Some("params must be object"));
+    }
+
+    #[test]
+    fn derived_enums_name_their_choices() {
+        // The shape schemars gives a documented enum, optional: constants with descriptions.
+        let schema = json!({
+            "type": "object",
+            "additionalProperties": false,
+            "properties": {
+                "criterion": {"anyOf": [
+                    {"oneOf": [
+                        {"type": "string", "const": "bic", "description": "Bayesian"},
+                        {"type": "string", "const": "aicc", "description": "corrected Akaike"}
+                    ]},
+                    {"type": "null"}
+                ]},
+                "seed": {"type": "integer", "format": "uint64", "minimum": 0}
+            }
+        });
+        assert!(check_supported(&schema, "spectrum.fit").is_ok());
+        assert!(validate(&schema, &json!({"criterion": "aicc", "seed": 3})).is_ok());
+        assert!(validate(&schema, &json!({"criterion": null})).is_ok());
+        let message = validate(&schema, &json!({"criterion": "aic"})).unwrap_err();
+        assert_eq!(
+            message,
+            r#"params.criterion must be one of "bic", "aicc", null (got "aic")"#
+        );
     }
 
     #[test]

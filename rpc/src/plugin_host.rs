@@ -25,6 +25,7 @@ use mobilis_sdk::abi::{
     self, AnalysisDeclaration, DescriptorError, EntryFn, HostContext, InputTable, InvokeOutput, PluginDeclaration,
     PluginFunctions,
 };
+use mobilis_sdk::sdk;
 use mobilis_sdk::table_ffi::{self, TextLayout};
 use polars::prelude::DataFrame;
 use std::collections::BTreeMap;
@@ -334,17 +335,49 @@ impl PluginHost {
         control: &Arc<CallControl>,
     ) -> Result<InvokeSuccess, InvokeFailure> {
         let failure = |status: i32, message: String| InvokeFailure { status, message };
-        let plugin = self
-            .plugin_of(analysis)
+        let entry = self
+            .analyses
+            .get(analysis)
             .ok_or_else(|| failure(abi::STATUS_UNKNOWN_ANALYSIS, format!("no analysis `{analysis}`")))?;
-        match &plugin.backend {
+        let plugin = &self.plugins[entry.plugin_index];
+        let success = match &plugin.backend {
             Backend::InProcess(functions) => {
                 let layout = TextLayout::for_features(&plugin.features);
                 invoke_functions(functions, layout, analysis, params, inputs, control)
             }
             Backend::Isolated(pool) => pool.invoke(analysis, params, inputs, control),
-        }
+        }?;
+        check_declared_output(&plugin.name, &entry.declaration, &success)?;
+        Ok(success)
     }
+}
+
+/// Holds every output to its declaration, whichever SDK (or none) built it: a client
+/// reads columns and summary keys by their declared names and types, so a mismatch is the
+/// plugin's bug, reported as such (nothing is stored from a refused output).
+fn check_declared_output(
+    plugin: &str,
+    declaration: &AnalysisDeclaration,
+    success: &InvokeSuccess,
+) -> Result<(), InvokeFailure> {
+    let empty = serde_json::Map::new();
+    let summary = match &success.summary {
+        serde_json::Value::Object(map) => map,
+        serde_json::Value::Null => &empty,
+        other => {
+            return Err(InvokeFailure {
+                status: abi::STATUS_PANIC,
+                message: format!("plugin `{plugin}` returned a summary that is not an object: {other}"),
+            })
+        }
+    };
+    sdk::check_output(declaration, &success.table, summary).map_err(|violation| InvokeFailure {
+        status: abi::STATUS_PANIC,
+        message: format!(
+            "plugin `{plugin}` broke the declaration of `{}`: {violation}",
+            declaration.name
+        ),
+    })
 }
 
 /// Calls an analysis of a library loaded in this process, its input text in `layout` (see

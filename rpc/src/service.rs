@@ -34,6 +34,11 @@ pub use mobilis_protocol::params::{
     ExportParams, GroupBy, ImportParams, ListParams, PipelineParams, RowsParams, RunParams, DEFAULT_LIST_PAGE,
     MAX_LIST_PAGE, MAX_ROWS_PER_CALL,
 };
+mod groups;
+
+pub use groups::summary_table;
+use groups::{group_rows, rows_matching};
+
 use mobilis_protocol::results::{
     AbiVersion, AnalysisEntry, CancelResult, DatasetEntry, DatasetInfo, DatasetPage, DatasetSummary, Dropped, Exported,
     LoadedPlugin, MemoryUse, PipelineResult, PluginEntry, ProgressState, RefusedPlugin, RunResult, ServerInfo,
@@ -162,127 +167,6 @@ fn conform_column(frame: &mut DataFrame, spec: &ColumnSpec, role: &str, dataset:
             .map_err(|e| ServiceError::new(ErrorKind::ColumnProblem, e.to_string()))?;
     }
     Ok(())
-}
-
-/// The scalar values of a summary as a table: one row per group (group columns first) or
-/// a single row. Numbers become f64 columns, booleans and strings keep their type, nested
-/// objects and lists are kept as JSON text; a key missing from a group is null.
-pub fn summary_table(summary: &Value, group_columns: &[String]) -> ServiceResult<DataFrame> {
-    let rows: Vec<(serde_json::Map<String, Value>, &Value)> = if group_columns.is_empty() {
-        vec![(serde_json::Map::new(), summary)]
-    } else {
-        summary["groups"]
-            .as_array()
-            .map(|groups| {
-                groups
-                    .iter()
-                    .map(|g| (g["group"].as_object().cloned().unwrap_or_default(), &g["summary"]))
-                    .collect()
-            })
-            .unwrap_or_default()
-    };
-    let mut names: Vec<String> = group_columns.to_vec();
-    for (_, values) in &rows {
-        for key in values.as_object().into_iter().flat_map(|m| m.keys()) {
-            if !names.contains(key) {
-                names.push(key.clone());
-            }
-        }
-    }
-    if rows.is_empty() || names.is_empty() {
-        return Err(ServiceError::new(
-            ErrorKind::InvalidData,
-            "the analysis returned an empty summary; there is nothing to store",
-        ));
-    }
-    let columns: serde_json::Map<String, Value> = names
-        .iter()
-        .map(|name| {
-            let cells: Vec<Value> = rows
-                .iter()
-                .map(|(group, values)| {
-                    group
-                        .get(name)
-                        .or_else(|| values.get(name))
-                        .cloned()
-                        .unwrap_or(Value::Null)
-                })
-                .collect();
-            let uniform = cells.iter().filter(|v| !v.is_null()).all(|v| v.is_number())
-                || cells.iter().filter(|v| !v.is_null()).all(|v| v.is_string())
-                || cells.iter().filter(|v| !v.is_null()).all(|v| v.is_boolean());
-            let cells = if uniform {
-                cells
-                    .into_iter()
-                    .map(|v| match v {
-                        Value::Number(n) => json!(n.as_f64()),
-                        other => other,
-                    })
-                    .collect()
-            } else {
-                cells
-                    .into_iter()
-                    .map(|v| if v.is_null() { v } else { Value::String(v.to_string()) })
-                    .collect()
-            };
-            (name.clone(), Value::Array(cells))
-        })
-        .collect();
-    tables::frame_from_json_columns(&columns)
-}
-
-/// Row indices of each group, in order of first appearance, with the key values.
-fn group_rows(frame: &DataFrame, columns: &[String]) -> ServiceResult<Vec<(Vec<AnyValue<'static>>, Vec<IdxSize>)>> {
-    let series: Vec<Series> = columns
-        .iter()
-        .map(|name| {
-            frame
-                .column(name)
-                .map(|c| c.as_materialized_series().clone())
-                .map_err(|_| {
-                    let present: Vec<&str> = frame.get_column_names().iter().map(|c| c.as_str()).collect();
-                    ServiceError::new(
-                        ErrorKind::ColumnProblem,
-                        format!("group_by column `{name}` is not in the first input table"),
-                    )
-                    .with_help(format!("its columns are: {}", present.join(", ")))
-                    .with_param("group_by")
-                })
-        })
-        .collect::<ServiceResult<_>>()?;
-    let mut order: Vec<(Vec<AnyValue<'static>>, Vec<IdxSize>)> = Vec::new();
-    let mut index_of: HashMap<String, usize> = HashMap::new();
-    for row in 0..frame.height() {
-        let key: Vec<AnyValue<'static>> = series
-            .iter()
-            .map(|s| s.get(row).expect("row in range").into_static())
-            .collect();
-        let text = format!("{key:?}");
-        match index_of.get(&text) {
-            Some(&position) => order[position].1.push(row as IdxSize),
-            None => {
-                index_of.insert(text, order.len());
-                order.push((key, vec![row as IdxSize]));
-            }
-        }
-    }
-    Ok(order)
-}
-
-fn rows_matching(frame: &DataFrame, columns: &[String], key: &[AnyValue<'static>]) -> Vec<IdxSize> {
-    let series: Vec<&Series> = columns
-        .iter()
-        .map(|name| frame.column(name).expect("checked").as_materialized_series())
-        .collect();
-    (0..frame.height())
-        .filter(|&row| {
-            series
-                .iter()
-                .zip(key)
-                .all(|(s, k)| s.get(row).map(|v| v.into_static() == *k).unwrap_or(false))
-        })
-        .map(|row| row as IdxSize)
-        .collect()
 }
 
 impl Service {
@@ -1121,5 +1005,127 @@ mod tests {
         assert_eq!(kinds.last().map(String::as_str), Some("end"), "{kinds:?}");
         // The id is free again once the import has ended.
         assert!(!service.progress("import-1").running);
+    }
+
+    fn empty_service(workspace: &Path) -> Service {
+        Service::new(
+            DatasetStore::open(workspace).unwrap(),
+            PluginHost::default(),
+            DataRoots::new([workspace.to_owned()]),
+            workspace.to_owned(),
+        )
+    }
+
+    #[test]
+    fn each_plugin_status_maps_to_its_error_kind_and_code() {
+        let cases = [
+            (abi::STATUS_INVALID_INPUT, ErrorKind::InvalidData, 4007),
+            (abi::STATUS_NUMERICAL_FAILURE, ErrorKind::NumericalFailure, 5002),
+            (abi::STATUS_CANCELLED, ErrorKind::Cancelled, 5003),
+            (abi::STATUS_UNKNOWN_ANALYSIS, ErrorKind::UnknownAnalysis, 4003),
+            (-12345, ErrorKind::PluginFailure, 5001),
+        ];
+        for (status, kind, code) in cases {
+            let error = invoke_error(
+                "hall.reduce",
+                InvokeFailure {
+                    status,
+                    message: "thickness_m must be positive".into(),
+                },
+            );
+            assert_eq!(error.kind, kind, "status {status}");
+            assert_eq!(error.kind.code(), code, "status {status}");
+            // The message names the analysis and keeps the plugin's words on what to change.
+            assert_eq!(error.message, "hall.reduce: thickness_m must be positive");
+            assert_eq!(error.data()["kind"], json!(kind.name()));
+        }
+    }
+
+    #[test]
+    fn a_plugin_bug_says_the_daemon_is_unaffected() {
+        let error = invoke_error(
+            "x.y",
+            InvokeFailure {
+                status: -1,
+                message: "panicked".into(),
+            },
+        );
+        assert!(error.help.as_deref().unwrap().contains("bug in the plugin"));
+        let data = invoke_error(
+            "x.y",
+            InvokeFailure {
+                status: abi::STATUS_INVALID_INPUT,
+                message: "bad".into(),
+            },
+        );
+        assert_eq!(data.help, None);
+    }
+
+    #[test]
+    fn an_unknown_analysis_is_refused_before_any_input_is_read() {
+        let workspace = tempfile::tempdir().unwrap();
+        let service = empty_service(workspace.path());
+        let run: RunParams = serde_json::from_value(json!({
+            "analysis": "hall.reduse", "inputs": {"readings": "absent"}, "output": "out",
+        }))
+        .unwrap();
+        let error = service.run_analysis(run).unwrap_err();
+        assert_eq!(error.kind, ErrorKind::UnknownAnalysis);
+        assert_eq!(error.message, "no analysis named `hall.reduse`");
+        assert_eq!(error.param.as_deref(), Some("analysis"));
+        assert_eq!(error.help.as_deref(), Some("loaded analyses: none"));
+        let error = service.analysis_describe("hall.reduse").unwrap_err();
+        assert_eq!(error.kind, ErrorKind::UnknownAnalysis);
+    }
+
+    #[test]
+    fn a_taken_output_name_is_refused_with_the_way_out() {
+        let workspace = tempfile::tempdir().unwrap();
+        let service = empty_service(workspace.path());
+        let import: ImportParams =
+            serde_json::from_value(json!({"name": "out", "columns": {"temperature_K": [10.0]}})).unwrap();
+        service.dataset_import(import).unwrap();
+        let run: RunParams = serde_json::from_value(json!({
+            "analysis": "hall.reduce", "inputs": {"readings": "out"}, "output": "out",
+        }))
+        .unwrap();
+        let error = service.run_analysis(run).unwrap_err();
+        assert_eq!(error.kind, ErrorKind::DatasetExists);
+        assert_eq!(error.kind.code(), 4005);
+        assert_eq!(error.param.as_deref(), Some("output"));
+        assert!(error.help.as_deref().unwrap().contains("overwrite: true"));
+    }
+
+    #[test]
+    fn dataset_calls_go_to_the_store() {
+        let workspace = tempfile::tempdir().unwrap();
+        let service = empty_service(workspace.path());
+        let error = service.dataset_info("nothing").unwrap_err();
+        assert_eq!(error.kind, ErrorKind::UnknownDataset);
+        assert_eq!(error.kind.code(), 4002);
+        assert!(error.help.as_deref().unwrap().contains("dataset.import"));
+        let import: ImportParams =
+            serde_json::from_value(json!({"name": "t", "columns": {"temperature_K": [10.0, 20.0]}})).unwrap();
+        service.dataset_import(import).unwrap();
+        assert_eq!(service.dataset_info("t").unwrap().rows, 2);
+        service.dataset_drop("t").unwrap();
+        assert_eq!(service.dataset_info("t").unwrap_err().kind, ErrorKind::UnknownDataset);
+    }
+
+    #[test]
+    fn a_finished_call_reports_its_outcome() {
+        let workspace = tempfile::tempdir().unwrap();
+        let service = empty_service(workspace.path());
+        let mut call = service.register_call(Some("c-1"), "test").unwrap();
+        // A second call may not take a running call's id.
+        assert!(service.register_call(Some("c-1"), "test").is_err());
+        call.finish::<()>(&Err(ServiceError::new(ErrorKind::Cancelled, "stopped")));
+        assert_eq!(call.outcome, Some((Outcome::Cancelled, Some("stopped".to_owned()))));
+        call.finish::<()>(&Err(ServiceError::invalid_params("bad")));
+        assert_eq!(call.outcome, Some((Outcome::Failed, Some("bad".to_owned()))));
+        call.finish(&Ok(()));
+        assert_eq!(call.outcome, Some((Outcome::Done, None)));
+        drop(call);
+        assert!(service.register_call(Some("c-1"), "test").is_ok());
     }
 }

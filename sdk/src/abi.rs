@@ -430,7 +430,12 @@ pub struct PluginDeclaration {
 }
 
 /// One analysis a plugin offers.
-#[derive(Debug, Clone, Serialize, Deserialize)]
+///
+/// The declaration is the analysis's contract: the host validates parameters against
+/// `params` before a call and checks the returned table and summary against `outputs` and
+/// `summary_keys` after it ([`AnalysisDeclaration::check_output`]), so a plugin that emits
+/// an undeclared column or key fails the call instead of surprising a client.
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
 pub struct AnalysisDeclaration {
     /// Globally unique, `plugin.analysis` by convention (for example `hall.reduce`).
     pub name: String,
@@ -445,15 +450,107 @@ pub struct AnalysisDeclaration {
     pub inputs: Vec<InputRole>,
     /// The columns of the output table.
     pub outputs: Vec<ColumnSpec>,
-    /// The keys of the result's `summary` object.
+    /// The keys of the result's `summary` object. A declared `f64` key `x` also admits its
+    /// standard uncertainty `x_unc` and the parts of its budget `x_unc_<part>` (`_unc_stat`,
+    /// `_unc_sys`, ...; same unit), so the companions are not listed one by one.
     #[serde(default)]
     pub summary_keys: Vec<ColumnSpec>,
+    /// The output table carries the input's own columns as well as `outputs` (an analysis
+    /// that passes a table through); the declared columns are still checked.
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub open_outputs: bool,
     /// The figures of the output table, the default first (see [`crate::figure_spec`]).
     /// Optional: a declaration without it (every plugin older than the field) has none, and
     /// its tables get the generic `columns` figure. JSON only, so the C-side structs and the
     /// ABI version do not change.
     #[serde(default)]
     pub figures: Vec<FigureSpec>,
+}
+
+/// Suffix of a summary key's standard uncertainty (and, followed by `_<part>`, of a part
+/// of its budget), admitted for every declared `f64` key.
+pub const UNCERTAINTY_SUFFIX: &str = "_unc";
+
+/// How an output breaks its analysis's declaration; the text names the column or key.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+#[error("{0}")]
+pub struct ContractViolation(pub String);
+
+impl AnalysisDeclaration {
+    /// The declared output column of that name.
+    pub fn output(&self, name: &str) -> Option<&ColumnSpec> {
+        self.outputs.iter().find(|spec| spec.name == name)
+    }
+
+    /// The declared summary key of that name, with the `_unc` companion rule applied.
+    pub fn summary_key(&self, name: &str) -> Option<&ColumnSpec> {
+        self.summary_keys.iter().find(|spec| spec.name == name).or_else(|| {
+            // `x_unc`, or a part of its budget such as `x_unc_stat`, `x_unc_sys`.
+            let at = name.rfind(UNCERTAINTY_SUFFIX)?;
+            let part = &name[at + UNCERTAINTY_SUFFIX.len()..];
+            if !(part.is_empty() || part.starts_with('_')) {
+                return None;
+            }
+            let base = &name[..at];
+            self.summary_keys
+                .iter()
+                .find(|spec| spec.name == base && spec.dtype == ColumnType::F64)
+        })
+    }
+
+    /// Checks one output column: declared (unless the outputs are open) and of its dtype.
+    /// `dtype` is `None` for a column whose type no [`ColumnType`] covers.
+    pub fn check_column(&self, name: &str, dtype: Option<ColumnType>) -> Result<(), ContractViolation> {
+        match self.output(name) {
+            Some(spec) => match dtype {
+                Some(found) if found == spec.dtype => Ok(()),
+                found => Err(ContractViolation(format!(
+                    "output column `{name}` is declared {} but holds {}",
+                    spec.dtype.as_str(),
+                    found.map_or("another type", ColumnType::as_str)
+                ))),
+            },
+            None if self.open_outputs => Ok(()),
+            None => Err(ContractViolation(format!("output column `{name}` is not declared"))),
+        }
+    }
+
+    /// Checks a whole output: every column as in [`Self::check_column`], every required
+    /// declared column present, and every summary key declared with a value of its dtype
+    /// (or null, or a list of such values).
+    pub fn check_output<'a>(
+        &self,
+        columns: impl IntoIterator<Item = (&'a str, Option<ColumnType>)>,
+        summary: &serde_json::Map<String, serde_json::Value>,
+    ) -> Result<(), ContractViolation> {
+        let mut present = Vec::new();
+        for (name, dtype) in columns {
+            self.check_column(name, dtype)?;
+            present.push(name);
+        }
+        if let Some(missing) = self
+            .outputs
+            .iter()
+            .find(|spec| spec.required && !present.contains(&spec.name.as_str()))
+        {
+            return Err(ContractViolation(format!(
+                "required output column `{}` is missing",
+                missing.name
+            )));
+        }
+        for (key, value) in summary {
+            let spec = self
+                .summary_key(key)
+                .ok_or_else(|| ContractViolation(format!("summary key `{key}` is not declared")))?;
+            if !spec.dtype.admits(value) {
+                return Err(ContractViolation(format!(
+                    "summary key `{key}` is declared {} but holds {value}",
+                    spec.dtype.as_str()
+                )));
+            }
+        }
+        Ok(())
+    }
 }
 
 /// One input table of an analysis.
@@ -474,6 +571,38 @@ pub enum ColumnType {
     I64,
     Str,
     Bool,
+}
+
+impl ColumnType {
+    /// The name used in declarations.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            ColumnType::F64 => "f64",
+            ColumnType::I64 => "i64",
+            ColumnType::Str => "str",
+            ColumnType::Bool => "bool",
+        }
+    }
+
+    /// Whether a summary value fits this type: null, one value of it, or a list of them.
+    /// Integers fit `f64` (JSON does not tell 2.0 from 2). A JSON object (a breakdown, for
+    /// example by sample) is declared `str` and described in the key's description; its
+    /// contents are not checked.
+    pub fn admits(self, value: &serde_json::Value) -> bool {
+        use serde_json::Value;
+        match value {
+            Value::Null => true,
+            Value::Array(items) => items.iter().all(|item| !item.is_array() && self.admits(item)),
+            Value::Bool(_) => self == ColumnType::Bool,
+            Value::String(_) => self == ColumnType::Str,
+            Value::Number(number) => match self {
+                ColumnType::F64 => true,
+                ColumnType::I64 => number.is_i64() || number.is_u64(),
+                _ => false,
+            },
+            Value::Object(_) => self == ColumnType::Str,
+        }
+    }
 }
 
 /// One column (or summary value) with its type, unit and meaning.

@@ -12,6 +12,24 @@
 //! mobilis_sdk::export_plugin!(name: "example", analyses: [Reduce]);
 //! ```
 //!
+//! # One contract per analysis
+//!
+//! The parameters are one typed struct: [`Analysis::Params`] derives both its
+//! deserialisation (serde) and its JSON Schema (schemars), so a parameter's name, type,
+//! default, bounds and description are written once, on the field. The SDK puts the
+//! derived schema ([`params_schema`]) in the declaration; the host validates calls against
+//! it. Choice parameters are Rust enums, so an unknown choice is refused by the host with
+//! the list of choices before the plugin runs.
+//!
+//! The output goes through an [`OutputBuilder`] made from the declaration: a column or a
+//! summary key the declaration does not name, a wrong dtype or a missing required column
+//! is a "plugin bug" error, never a silent surprise for a client. A declared `f64` summary
+//! key `x` implies its standard uncertainty `x_unc` and the parts of its budget
+//! `x_unc_stat`, `x_unc_sys`, ... (same unit): companions are not declared one by one (see
+//! [`AnalysisDeclaration::summary_key`]). The host checks every
+//! output against the declaration again ([`check_output`]), so a plugin written without
+//! this SDK is held to the same contract.
+//!
 //! **Architecture Invariant.** A panic never crosses the boundary: every exported function
 //! runs its body under `catch_unwind` and turns a panic into [`abi::STATUS_PANIC`] with the
 //! panic message. This catch is the only one there is: unwinding out of an `extern "C"`
@@ -19,13 +37,19 @@
 //! therefore must not be built with `panic = "abort"`, and [`export_plugin!`](crate::export_plugin)
 //! refuses to compile in such a build.
 
-use crate::abi::{self, AnalysisDeclaration, HostContext, InputTable, InvokeOutput, PluginDeclaration};
+use crate::abi::{
+    self, AnalysisDeclaration, ColumnType, ContractViolation, HostContext, InputTable, InvokeOutput, PluginDeclaration,
+};
 use crate::table_ffi;
-use polars::prelude::{DataFrame, DataType};
+use polars::prelude::{Column, DataFrame, DataType, IntoColumn, NamedFrom, PlSmallStr, Series};
 use serde::de::DeserializeOwned;
+use serde_json::{Map, Value};
+use std::any::TypeId;
+use std::collections::HashMap;
 use std::ffi::{CStr, CString};
 use std::os::raw::c_char;
 use std::panic::{catch_unwind, AssertUnwindSafe};
+use std::sync::{Arc, Mutex, OnceLock};
 
 /// How an analysis fails. The message says what the caller should change.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -40,6 +64,10 @@ pub enum AnalysisError {
     /// The host asked to stop.
     #[error("cancelled by the client")]
     Cancelled,
+    /// The plugin broke its own contract (for example an undeclared output column): a bug
+    /// to fix in the plugin, reported like a panic.
+    #[error("plugin bug: {0}")]
+    Bug(String),
 }
 
 impl AnalysisError {
@@ -48,6 +76,7 @@ impl AnalysisError {
             AnalysisError::InvalidInput(_) => abi::STATUS_INVALID_INPUT,
             AnalysisError::Numerical(_) => abi::STATUS_NUMERICAL_FAILURE,
             AnalysisError::Cancelled => abi::STATUS_CANCELLED,
+            AnalysisError::Bug(_) => abi::STATUS_PANIC,
         }
     }
 }
@@ -142,14 +171,18 @@ impl<'a> Host<'a> {
 }
 
 /// One analysis, written by a plugin author.
-pub trait Analysis {
+pub trait Analysis: 'static {
     /// The analysis name, `plugin.analysis` by convention.
     const NAME: &'static str;
     /// The parameters, deserialised from the call's JSON (the host has already checked
-    /// them against the declared schema).
-    type Params: DeserializeOwned;
-    /// The declaration: summary, parameter schema, input roles, output columns. Its `name`
-    /// is overwritten with [`Analysis::NAME`].
+    /// them against the schema derived from this type, see [`params_schema`]). Doc
+    /// comments become descriptions, serde defaults become `default`, and bounds are
+    /// written as `#[schemars(range(min = ..))]` or
+    /// `#[schemars(extend("exclusiveMinimum" = ..))]` on the field.
+    type Params: DeserializeOwned + schemars::JsonSchema;
+    /// The declaration: summary, input roles, output columns and summary keys. Its `name`
+    /// is overwritten with [`Analysis::NAME`] and its `params` with the schema derived from
+    /// [`Analysis::Params`].
     fn declaration() -> AnalysisDeclaration;
     fn run(params: Self::Params, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError>;
 }
@@ -166,25 +199,272 @@ pub const fn registration<A: Analysis>() -> Registration {
     Registration {
         name: A::NAME,
         declaration: declaration_of::<A>,
-        run: run_typed::<A>,
+        run: run_params::<A>,
     }
 }
 
-fn declaration_of<A: Analysis>() -> AnalysisDeclaration {
+/// The complete declaration of an analysis, as the plugin sends it to the host.
+pub fn declaration_of<A: Analysis>() -> AnalysisDeclaration {
     let mut declaration = A::declaration();
     declaration.name = A::NAME.to_owned();
+    // A declaration still carrying a hand-written schema keeps it until its plugin moves to
+    // the derived one; a derived schema is the rule for new analyses.
+    if declaration.params.is_null() {
+        declaration.params = params_schema::<A::Params>();
+    }
     declaration
 }
 
-/// Runs an analysis from JSON parameters, as the host would, without the C boundary.
+/// The declaration of `A`, built once per process: output builders consult it on every
+/// call, and building it derives a schema.
+pub fn declared<A: Analysis>() -> Arc<AnalysisDeclaration> {
+    static BUILT: OnceLock<Mutex<HashMap<TypeId, Arc<AnalysisDeclaration>>>> = OnceLock::new();
+    let mut built = BUILT
+        .get_or_init(Default::default)
+        .lock()
+        .unwrap_or_else(|poisoned| poisoned.into_inner());
+    built
+        .entry(TypeId::of::<A>())
+        .or_insert_with(|| Arc::new(declaration_of::<A>()))
+        .clone()
+}
+
+/// The JSON Schema of a parameter type, in the subset the host validates: subschemas are
+/// written inline (no `$ref`), and every object schema is closed
+/// (`additionalProperties: false`), so unknown parameters are refused even where
+/// `#[serde(flatten)]` rules out serde's `deny_unknown_fields`.
+pub fn params_schema<P: schemars::JsonSchema>() -> Value {
+    let generator = schemars::generate::SchemaSettings::draft2020_12()
+        .with(|settings| {
+            settings.inline_subschemas = true;
+            settings.meta_schema = None;
+        })
+        .into_generator();
+    let mut schema = generator.into_root_schema_for::<P>().to_value();
+    close_objects(&mut schema);
+    schema
+}
+
+fn close_objects(schema: &mut Value) {
+    match schema {
+        Value::Object(map) => {
+            if map.contains_key("properties") && !map.contains_key("additionalProperties") {
+                map.insert("additionalProperties".into(), Value::Bool(false));
+            }
+            for (key, value) in map.iter_mut() {
+                // `enum`, `const`, `default` and `examples` hold values, not schemas.
+                if !matches!(key.as_str(), "enum" | "const" | "default" | "examples") {
+                    close_objects(value);
+                }
+            }
+        }
+        Value::Array(items) => items.iter_mut().for_each(close_objects),
+        _ => {}
+    }
+}
+
+/// Deserialises the parameters and runs the analysis: what a call through the C boundary
+/// does. The output is not checked here: the host checks every output against the
+/// declaration, whichever SDK built it.
+fn run_params<A: Analysis>(params_json: &str, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
+    let params: A::Params = serde_json::from_str(params_json)
+        .map_err(|error| AnalysisError::InvalidInput(format!("parameters of {}: {error}", A::NAME)))?;
+    A::run(params, inputs, host)
+}
+
+/// Runs an analysis from JSON parameters, as the host would, without the C boundary, and
+/// checks its output against its declaration as the host does.
 pub fn run_typed<A: Analysis>(
     params_json: &str,
     inputs: &Inputs,
     host: &Host,
 ) -> Result<AnalysisOutput, AnalysisError> {
-    let params: A::Params = serde_json::from_str(params_json)
-        .map_err(|error| AnalysisError::InvalidInput(format!("parameters of {}: {error}", A::NAME)))?;
-    A::run(params, inputs, host)
+    let output = run_params::<A>(params_json, inputs, host)?;
+    check_output(&declared::<A>(), &output.table, &output.summary)
+        .map_err(|violation| AnalysisError::Bug(format!("{}: {violation}", A::NAME)))?;
+    Ok(output)
+}
+
+/// The declaration type of a table column, `None` for a type no [`ColumnType`] covers.
+pub fn column_type(dtype: &DataType) -> Option<ColumnType> {
+    match dtype {
+        DataType::Float64 => Some(ColumnType::F64),
+        DataType::Int64 => Some(ColumnType::I64),
+        DataType::String => Some(ColumnType::Str),
+        DataType::Boolean => Some(ColumnType::Bool),
+        _ => None,
+    }
+}
+
+/// Checks an output table and summary against a declaration (the host's check of every
+/// call, and [`run_typed`]'s).
+pub fn check_output(
+    declaration: &AnalysisDeclaration,
+    table: &DataFrame,
+    summary: &Map<String, Value>,
+) -> Result<(), ContractViolation> {
+    declaration.check_output(
+        table
+            .columns()
+            .iter()
+            .map(|column| (column.name().as_str(), column_type(column.dtype()))),
+        summary,
+    )
+}
+
+/// Builds an [`AnalysisOutput`] that holds only what the analysis declared.
+///
+/// Every column and summary key is checked as it is added; the first violation is kept
+/// and returned by [`OutputBuilder::finish`] as [`AnalysisError::Bug`], so the building code
+/// stays a straight sequence of calls. Columns keep the order in which they are added.
+pub struct OutputBuilder {
+    declaration: Arc<AnalysisDeclaration>,
+    columns: Vec<Column>,
+    summary: Map<String, Value>,
+    warnings: Vec<String>,
+    violation: Option<ContractViolation>,
+}
+
+impl OutputBuilder {
+    /// A builder for analysis `A`.
+    pub fn of<A: Analysis>() -> Self {
+        Self::new(declared::<A>())
+    }
+
+    /// A builder for a declaration.
+    pub fn new(declaration: Arc<AnalysisDeclaration>) -> Self {
+        OutputBuilder {
+            declaration,
+            columns: Vec::new(),
+            summary: Map::new(),
+            warnings: Vec::new(),
+            violation: None,
+        }
+    }
+
+    fn record(&mut self, outcome: Result<(), ContractViolation>) -> bool {
+        match outcome {
+            Ok(()) => true,
+            Err(violation) => {
+                self.violation.get_or_insert(violation);
+                false
+            }
+        }
+    }
+
+    /// Adds a ready column without copying it (a `Series` converts with `into_column`).
+    pub fn column(&mut self, column: Column) -> &mut Self {
+        let checked = self
+            .declaration
+            .check_column(column.name().as_str(), column_type(column.dtype()));
+        if self.record(checked) {
+            self.columns.push(column);
+        }
+        self
+    }
+
+    /// Adds a float column without nulls.
+    pub fn f64(&mut self, name: &str, values: Vec<f64>) -> &mut Self {
+        self.column(Column::new(PlSmallStr::from_str(name), values))
+    }
+
+    /// Adds a float column with nulls.
+    pub fn f64_nullable(&mut self, name: &str, values: Vec<Option<f64>>) -> &mut Self {
+        self.column(Column::new(PlSmallStr::from_str(name), values))
+    }
+
+    /// Adds an integer column.
+    pub fn i64(&mut self, name: &str, values: Vec<i64>) -> &mut Self {
+        self.column(Column::new(PlSmallStr::from_str(name), values))
+    }
+
+    /// Adds an integer column with nulls.
+    pub fn i64_nullable(&mut self, name: &str, values: Vec<Option<i64>>) -> &mut Self {
+        self.column(Column::new(PlSmallStr::from_str(name), values))
+    }
+
+    /// Adds a text column.
+    pub fn str<S: AsRef<str>>(&mut self, name: &str, values: &[S]) -> &mut Self {
+        let values: Vec<&str> = values.iter().map(AsRef::as_ref).collect();
+        self.column(Column::new(PlSmallStr::from_str(name), values))
+    }
+
+    /// Adds a text column with nulls.
+    pub fn str_nullable(&mut self, name: &str, values: Vec<Option<String>>) -> &mut Self {
+        self.column(Series::new(PlSmallStr::from_str(name), values).into_column())
+    }
+
+    /// Adds a boolean column.
+    pub fn bool(&mut self, name: &str, values: Vec<bool>) -> &mut Self {
+        self.column(Column::new(PlSmallStr::from_str(name), values))
+    }
+
+    /// Sets a summary value; `value` is anything serde writes as a JSON scalar or list.
+    pub fn summary(&mut self, key: &str, value: impl serde::Serialize) -> &mut Self {
+        let value = serde_json::to_value(value).unwrap_or(Value::Null);
+        let checked = match self.declaration.summary_key(key) {
+            None => Err(ContractViolation(format!("summary key `{key}` is not declared"))),
+            Some(spec) if !spec.dtype.admits(&value) => Err(ContractViolation(format!(
+                "summary key `{key}` is declared {} but holds {value}",
+                spec.dtype.as_str()
+            ))),
+            Some(_) => Ok(()),
+        };
+        if self.record(checked) {
+            self.summary.insert(key.to_owned(), value);
+        }
+        self
+    }
+
+    /// Sets every entry of a summary map (for example a sweep's identity keys).
+    pub fn summary_map(&mut self, entries: Map<String, Value>) -> &mut Self {
+        for (key, value) in entries {
+            self.summary(&key, value);
+        }
+        self
+    }
+
+    /// Adds a warning for the client.
+    pub fn warn(&mut self, warning: impl Into<String>) -> &mut Self {
+        self.warnings.push(warning.into());
+        self
+    }
+
+    /// Adds warnings for the client.
+    pub fn warnings(&mut self, warnings: impl IntoIterator<Item = String>) -> &mut Self {
+        self.warnings.extend(warnings);
+        self
+    }
+
+    /// The output, or the first contract violation (a plugin bug); `height` is the row
+    /// count, needed when the table has no column.
+    pub fn finish(&mut self, height: usize) -> Result<AnalysisOutput, AnalysisError> {
+        let bug = |violation: ContractViolation| AnalysisError::Bug(format!("{}: {violation}", self.declaration.name));
+        if let Some(violation) = self.violation.take() {
+            return Err(bug(violation));
+        }
+        let columns = std::mem::take(&mut self.columns);
+        let names: Vec<(String, Option<ColumnType>)> = columns
+            .iter()
+            .map(|column| (column.name().to_string(), column_type(column.dtype())))
+            .collect();
+        self.declaration
+            .check_output(names.iter().map(|(name, dtype)| (name.as_str(), *dtype)), &Map::new())
+            .map_err(bug)?;
+        let table = DataFrame::new(height, columns)
+            .map_err(|error| AnalysisError::Bug(format!("{}: {error}", self.declaration.name)))?;
+        Ok(AnalysisOutput {
+            table,
+            summary: std::mem::take(&mut self.summary),
+            warnings: std::mem::take(&mut self.warnings),
+        })
+    }
+}
+
+/// An [`AnalysisError::InvalidInput`] with this message: the input or the parameters must
+/// change.
+pub fn invalid(message: impl Into<String>) -> AnalysisError {
+    AnalysisError::InvalidInput(message.into())
 }
 
 /// Replaces interior NUL bytes so that any message can cross as a C string.

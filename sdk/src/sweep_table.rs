@@ -105,7 +105,7 @@ pub fn sweep_schema_properties() -> Map<String, Value> {
 }
 
 /// The symmetrization parameters (flatten into an analysis's parameters).
-#[derive(Debug, Default, Deserialize)]
+#[derive(Debug, Default, Deserialize, schemars::JsonSchema)]
 pub struct SweepParams {
     #[serde(rename = "zero_field_tolerance_T", default)]
     pub zero_field_tolerance_t: Option<f64>,

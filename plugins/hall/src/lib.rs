@@ -49,13 +49,14 @@ pub mod figures;
 pub mod reduce;
 
 use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
-use mobilis_sdk::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
+use mobilis_sdk::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs, OutputBuilder};
 use polars::prelude::*;
 use polars_arrow::bitmap::Bitmap;
 use reduce::{
     calibration_names, flags, float_column, Calibration, FlagSet, Geometry, QualityThresholds, ReadingColumns,
     ReduceSettings, ReductionTable, SampleInfo,
 };
+use schemars::JsonSchema;
 use serde::Deserialize;
 use serde_json::json;
 
@@ -63,67 +64,97 @@ use serde_json::json;
 pub struct HallReduce;
 
 /// Parameters of `hall.reduce`; every one has a documented default.
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ReduceParams {
-    #[serde(rename = "temperature_tolerance_K", default = "defaults::temperature_tolerance")]
+    /// readings whose sorted temperatures are no further apart than this, and than 5 % of
+    /// the temperature, share a row, K (so sub-kelvin setpoints stay apart)
+    #[serde(rename = "temperature_tolerance_K", default = "ReduceParams::temperature_tolerance")]
+    #[schemars(range(min = 0))]
     pub temperature_tolerance_k: f64,
-    #[serde(rename = "zero_field_tolerance_T", default = "defaults::zero_field_tolerance")]
+    /// |B| at or below this counts as zero field, T: wide enough for the few mT of
+    /// remanence an electromagnet keeps at a nominal zero (common practice); lower it for a
+    /// Hall field below 10 mT
+    #[serde(rename = "zero_field_tolerance_T", default = "ReduceParams::zero_field_tolerance")]
+    #[schemars(range(min = 0))]
     pub zero_field_tolerance_t: f64,
-    #[serde(rename = "field_tolerance_T", default = "defaults::field_tolerance")]
+    /// width of a field setpoint, T: a row takes the readings whose |B| lie within this of
+    /// its smallest |B|, so a densely logged ramp is cut into setpoints rather than chained
+    /// into one row
+    #[serde(rename = "field_tolerance_T", default = "ReduceParams::field_tolerance")]
+    #[schemars(range(min = 0))]
     pub field_tolerance_t: f64,
-    #[serde(default = "defaults::reciprocity")]
+    /// flag `reciprocity` above this |direct - reciprocal| / mean (common practice)
+    #[serde(default = "ReduceParams::reciprocity")]
+    #[schemars(extend("exclusiveMinimum" = 0))]
     pub reciprocity_tolerance: f64,
-    #[serde(default = "defaults::resistance_ratio")]
+    /// flag `resistance_ratio` above this max(R_A/R_B, R_B/R_A) (common practice)
+    #[serde(default = "ReduceParams::resistance_ratio")]
+    #[schemars(range(min = 1))]
     pub max_resistance_ratio: f64,
-    #[serde(default = "defaults::hall_spread")]
+    /// flag `hall_inconsistent` above this (max - min) / |mean| of the Hall resistances
+    /// (common practice)
+    #[serde(default = "ReduceParams::hall_spread")]
+    #[schemars(extend("exclusiveMinimum" = 0))]
     pub hall_spread_tolerance: f64,
-    #[serde(default = "defaults::thermoelectric")]
+    /// flag `large_offset` above this |V_offset| / |R I| (common practice)
+    #[serde(default = "ReduceParams::thermoelectric")]
+    #[schemars(extend("exclusiveMinimum" = 0))]
     pub thermoelectric_offset_ratio: f64,
-    #[serde(default = "defaults::misalignment")]
+    /// flag `large_offset` above this field-even / field-odd ratio of the Hall
+    /// configurations (common practice)
+    #[serde(default = "ReduceParams::misalignment")]
+    #[schemars(extend("exclusiveMinimum" = 0))]
     pub misalignment_ratio: f64,
-    #[serde(default = "defaults::current_reversal")]
+    /// flag `current_reversal` above this |R(+I) - R(-I)| / mean (common practice)
+    #[serde(default = "ReduceParams::current_reversal")]
+    #[schemars(extend("exclusiveMinimum" = 0))]
     pub current_reversal_tolerance: f64,
+    /// drop invalid readings (zero current, NaN, bad contacts) with a warning instead of
+    /// refusing the input
     #[serde(default)]
     pub skip_invalid_readings: bool,
-    /// Relative standard uncertainty of the field scale; `None`: not stated.
     #[serde(default)]
+    #[schemars(range(min = 0), description = format!("relative standard uncertainty of the field scale (gaussmeter, magnet constant); a sample-sheet column of the same name takes precedence; when not stated {} is assumed (common practice) and the summary says so", reduce::DEFAULT_FIELD_CALIBRATION_REL))]
     pub field_calibration_rel: Option<f64>,
     #[serde(default)]
+    #[schemars(range(min = 0), description = format!("relative standard uncertainty of the current source's scale; sample-sheet column of the same name takes precedence; when not stated {} is assumed (common practice)", reduce::DEFAULT_CURRENT_CALIBRATION_REL))]
     pub current_calibration_rel: Option<f64>,
     #[serde(default)]
+    #[schemars(range(min = 0), description = format!("relative standard uncertainty of the voltmeter's gain; sample-sheet column of the same name takes precedence; when not stated {} is assumed (common practice)", reduce::DEFAULT_VOLTAGE_CALIBRATION_REL))]
     pub voltage_calibration_rel: Option<f64>,
     #[serde(rename = "temperature_accuracy_K", default)]
+    #[schemars(range(min = 0), description = format!("standard uncertainty of the thermometer, K, added in quadrature to the readings' temperature spread in temperature_K_unc; sample-sheet column of the same name takes precedence; when not stated {} K is assumed (common practice)", reduce::DEFAULT_TEMPERATURE_ACCURACY_K))]
     pub temperature_accuracy_k: Option<f64>,
 }
 
-mod defaults {
-    use super::{QualityThresholds, ReduceSettings};
-    pub fn temperature_tolerance() -> f64 {
+/// The defaults are those of the physics settings, so they are stated once.
+impl ReduceParams {
+    fn temperature_tolerance() -> f64 {
         ReduceSettings::default().temperature_tolerance_k
     }
-    pub fn zero_field_tolerance() -> f64 {
+    fn zero_field_tolerance() -> f64 {
         ReduceSettings::default().zero_field_tolerance_t
     }
-    pub fn field_tolerance() -> f64 {
+    fn field_tolerance() -> f64 {
         ReduceSettings::default().field_tolerance_t
     }
-    pub fn reciprocity() -> f64 {
+    fn reciprocity() -> f64 {
         QualityThresholds::default().reciprocity_tolerance
     }
-    pub fn resistance_ratio() -> f64 {
+    fn resistance_ratio() -> f64 {
         QualityThresholds::default().max_resistance_ratio
     }
-    pub fn hall_spread() -> f64 {
+    fn hall_spread() -> f64 {
         QualityThresholds::default().hall_spread_tolerance
     }
-    pub fn thermoelectric() -> f64 {
+    fn thermoelectric() -> f64 {
         QualityThresholds::default().thermoelectric_offset_ratio
     }
-    pub fn misalignment() -> f64 {
+    fn misalignment() -> f64 {
         QualityThresholds::default().misalignment_ratio
     }
-    pub fn current_reversal() -> f64 {
+    fn current_reversal() -> f64 {
         QualityThresholds::default().current_reversal_tolerance
     }
 }
@@ -151,32 +182,6 @@ impl ReduceParams {
             },
         }
     }
-}
-
-fn params_schema() -> serde_json::Value {
-    let settings = ReduceSettings::default();
-    let thresholds = settings.thresholds;
-    let number = |default: f64, description: &str| json!({"type": "number", "minimum": 0, "default": default, "description": description});
-    json!({
-        "type": "object",
-        "additionalProperties": false,
-        "properties": {
-            "temperature_tolerance_K": number(settings.temperature_tolerance_k, "readings whose sorted temperatures are no further apart than this, and than 5 % of the temperature, share a row, K (so sub-kelvin setpoints stay apart)"),
-            "zero_field_tolerance_T": number(settings.zero_field_tolerance_t, "|B| at or below this counts as zero field, T: wide enough for the few mT of remanence an electromagnet keeps at a nominal zero (common practice); lower it for a Hall field below 10 mT"),
-            "field_tolerance_T": number(settings.field_tolerance_t, "width of a field setpoint, T: a row takes the readings whose |B| lie within this of its smallest |B|, so a densely logged ramp is cut into setpoints rather than chained into one row"),
-            "reciprocity_tolerance": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.reciprocity_tolerance, "description": "flag `reciprocity` above this |direct - reciprocal| / mean (common practice)"},
-            "max_resistance_ratio": {"type": "number", "minimum": 1, "default": thresholds.max_resistance_ratio, "description": "flag `resistance_ratio` above this max(R_A/R_B, R_B/R_A) (common practice)"},
-            "hall_spread_tolerance": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.hall_spread_tolerance, "description": "flag `hall_inconsistent` above this (max - min) / |mean| of the Hall resistances (common practice)"},
-            "thermoelectric_offset_ratio": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.thermoelectric_offset_ratio, "description": "flag `large_offset` above this |V_offset| / |R I| (common practice)"},
-            "misalignment_ratio": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.misalignment_ratio, "description": "flag `large_offset` above this field-even / field-odd ratio of the Hall configurations (common practice)"},
-            "current_reversal_tolerance": {"type": "number", "exclusiveMinimum": 0, "default": thresholds.current_reversal_tolerance, "description": "flag `current_reversal` above this |R(+I) - R(-I)| / mean (common practice)"},
-            "skip_invalid_readings": {"type": "boolean", "default": false, "description": "drop invalid readings (zero current, NaN, bad contacts) with a warning instead of refusing the input"},
-            "field_calibration_rel": {"type": "number", "minimum": 0, "description": format!("relative standard uncertainty of the field scale (gaussmeter, magnet constant); a sample-sheet column of the same name takes precedence; when not stated {} is assumed (common practice) and the summary says so", reduce::DEFAULT_FIELD_CALIBRATION_REL)},
-            "current_calibration_rel": {"type": "number", "minimum": 0, "description": format!("relative standard uncertainty of the current source's scale; sample-sheet column of the same name takes precedence; when not stated {} is assumed (common practice)", reduce::DEFAULT_CURRENT_CALIBRATION_REL)},
-            "voltage_calibration_rel": {"type": "number", "minimum": 0, "description": format!("relative standard uncertainty of the voltmeter's gain; sample-sheet column of the same name takes precedence; when not stated {} is assumed (common practice)", reduce::DEFAULT_VOLTAGE_CALIBRATION_REL)},
-            "temperature_accuracy_K": {"type": "number", "minimum": 0, "description": format!("standard uncertainty of the thermometer, K, added in quadrature to the readings' temperature spread in temperature_K_unc; sample-sheet column of the same name takes precedence; when not stated {} K is assumed (common practice)", reduce::DEFAULT_TEMPERATURE_ACCURACY_K)}
-        }
-    })
 }
 
 /// Where an output column comes from in the [`ReductionTable`].
@@ -534,10 +539,9 @@ impl FlagTexts {
 /// The output table from the reduction's columns: the float buffers are moved into the
 /// table as they are (a validity bitmap added where a column has nulls), the text columns
 /// are built once per row.
-fn output_table(mut table: ReductionTable) -> Result<DataFrame, AnalysisError> {
+fn output_table(mut table: ReductionTable, output: &mut OutputBuilder) {
     let height = table.height;
     let mut flag_texts = FlagTexts::new();
-    let mut columns: Vec<Column> = Vec::with_capacity(OUTPUT.len());
     for (name, _, _, source) in OUTPUT {
         let name = PlSmallStr::from_static(name);
         let column = match source {
@@ -580,9 +584,9 @@ fn output_table(mut table: ReductionTable) -> Result<DataFrame, AnalysisError> {
                 BooleanChunked::from_iter_values(name, table.flags.iter().map(|set| set.is_empty())).into_column()
             }
         };
-        columns.push(column);
+        // The builder takes the ready column as it is: no copy.
+        output.column(column);
     }
-    DataFrame::new(height, columns).map_err(|e| AnalysisError::Numerical(e.to_string()))
 }
 
 /// A float column as a slice: zero-copy when it has one chunk and no nulls (nulls become NaN,
@@ -783,7 +787,6 @@ impl Analysis for HallReduce {
             name: String::new(),
             summary: "Raw van der Pauw or Hall-bar readings to sheet resistance, resistivity, carrier type, density and Hall mobility per sample, temperature and field".into(),
             description: "Resistances from whichever configurations are present (current reversal by source sign or swapped leads), sheet resistance from van der Pauw's exact equation, Hall coefficient from the field-odd part of the diagonal (or transverse) configurations, so thermoelectric and misalignment offsets cancel. Uncertainty budget: _unc is the total, _unc_stat the reading noise pooled over the row's fit residuals and redundant configurations, _unc_sys the calibrations (thickness, field, current, voltage) common to a sample's series; temperature_K_unc the thermometer accuracy. Readings of a drifting stage are brought to the mean temperature; |B| up to zero_field_tolerance_T (10 mT) is zero field; field setpoints are never wider than field_tolerance_T. Quality flags with configurable thresholds. Contact numbering: counterclockwise 1-4 seen from the +B side (van der Pauw); 1-6 for Hall bars as described in DEVELOPERS.md.".into(),
-            params: params_schema(),
             inputs: vec![
                 InputRole {
                     role: "readings".into(),
@@ -832,6 +835,7 @@ impl Analysis for HallReduce {
                 column("calibrations_not_stated", Str, None, "list of the calibration parameters some sample did not state (their defaults were assumed)"),
             ],
             figures: crate::figures::reduce(),
+            ..Default::default()
         }
     }
 
@@ -894,16 +898,14 @@ impl Analysis for HallReduce {
         let warnings = std::mem::take(&mut reduction.warnings);
         let skipped_readings = reduction.skipped_readings;
         let calibration_list = std::mem::take(&mut reduction.calibrations);
-        let mut output = AnalysisOutput::new(output_table(reduction)?);
-        output.summary.insert("rows".into(), json!(row_count));
-        output.summary.insert("samples".into(), sample_list);
-        output.summary.insert("flagged_rows".into(), json!(flagged_rows));
+        let mut output = OutputBuilder::of::<Self>();
+        output_table(reduction, &mut output);
         output
-            .summary
-            .insert("flag_counts".into(), serde_json::Value::Object(flag_counts));
-        output
-            .summary
-            .insert("skipped_readings".into(), json!(skipped_readings));
+            .summary("rows", row_count)
+            .summary("samples", sample_list)
+            .summary("flagged_rows", flagged_rows)
+            .summary("flag_counts", flag_counts)
+            .summary("skipped_readings", skipped_readings);
         let calibrations: serde_json::Map<String, serde_json::Value> = calibration_list
             .iter()
             .map(|used| {
@@ -930,12 +932,10 @@ impl Analysis for HallReduce {
             }
         }
         output
-            .summary
-            .insert("calibrations".into(), serde_json::Value::Object(calibrations));
-        output
-            .summary
-            .insert("calibrations_not_stated".into(), json!(not_stated));
-        output.warnings = warnings;
+            .summary("calibrations", calibrations)
+            .summary("calibrations_not_stated", not_stated)
+            .warnings(warnings);
+        let output = output.finish(row_count)?;
         host.progress(1.0, "done");
         Ok(output)
     }

@@ -262,14 +262,14 @@ use mobilis_physics::forward::oscillations::{
 
 pub use error::OscillationError;
 pub use mass::fit_thermal_damping;
-use prepare::{condense_sweep, field_window, make_grid, prepare_sweep, resample, validate_sweeps};
+use prepare::{condense_sweep, field_window, make_grid, prepare_sweep, resample, validate_sweeps, Prepared};
 pub use results::{
     DinglePlot, DinglePoint, Extremum, FanPoint, FrequencyLine, LandauFan, MassEstimate, MassWindow, NarrowWindowMass,
     OscillationAnalysis, OscillationBudget, OscillationSummary, SweepCurve, SweepSpectrum, ThermalDampingFit,
     UncertaintyBudget, WaveformComponent, WaveformFit, WindowAmplitude,
 };
 pub use settings::{Background, MassMethod, MassRequest, OscillationSettings, OscillationSweep};
-use spectrum::{find_peaks, PeakSearch, SearchLimits};
+use spectrum::{find_peaks, Peak, PeakSearch, SearchLimits};
 use waveform::{
     fit_waveform, in_phase_amplitude, refine_components, FitSweep, RefinedComponent, WaveformStart,
     WAVEFORM_MASS_FACTORS,
@@ -346,7 +346,46 @@ enum Pass {
     Variant,
 }
 
-/// One pass of the analysis with these settings, without the spread over variants.
+/// The inverse-field window of a pass, 1/T: its ends, its span and its centre.
+#[derive(Debug, Clone, Copy)]
+struct InverseWindow {
+    range: (f64, f64),
+    span: f64,
+    centre: f64,
+}
+
+/// What every phase of one pass reads: the settings, the pass, the reference (coldest)
+/// sweep, the window and the number of backfitting rounds.
+#[derive(Clone, Copy)]
+struct PassContext<'a> {
+    settings: &'a OscillationSettings,
+    pass: Pass,
+    reference: usize,
+    inverse: InverseWindow,
+    rounds: usize,
+}
+
+/// The lines the search found in the reference spectrum, and the highest frequency searched
+/// (the spectra are reported up to it).
+struct LineSearch {
+    peaks: Vec<Peak>,
+    highest_t: f64,
+}
+
+/// What the mass phase found: the reported mass, the two estimates behind it, and the
+/// thermometer's effect on the waveform fit.
+#[derive(Default)]
+struct MassFindings {
+    mass: Option<MassEstimate>,
+    narrow: Option<NarrowWindowMass>,
+    waveform: Option<WaveformFit>,
+    temperature_sensitivity: Option<(f64, f64)>,
+    temperature_stability_effect: Option<(f64, f64)>,
+}
+
+/// One pass of the analysis with these settings, without the spread over variants: the
+/// sweeps prepared and resampled, the lines found and refined, the mass, the Dingle plot
+/// and the fan, each a phase of its own below.
 fn analyze_once(
     sweeps: &[OscillationSweep],
     settings: &OscillationSettings,
@@ -363,8 +402,12 @@ fn analyze_once(
     let grid = make_grid(&prepared, window, settings);
     resample(&mut prepared, &grid);
     let range = (1.0 / window.1, 1.0 / window.0);
-    let span = range.1 - range.0;
-    let centre = 0.5 * (range.0 + range.1);
+    let inverse = InverseWindow {
+        range,
+        span: range.1 - range.0,
+        centre: 0.5 * (range.0 + range.1),
+    };
+    let span = inverse.span;
     let mut warnings = Vec::new();
 
     let reference = (0..prepared.len())
@@ -382,9 +425,72 @@ fn analyze_once(
         .as_ref()
         .expect("the reference spectrum is always computed");
 
-    // Lines.
+    let search = search_lines(reference_spectrum, settings, span, grid.spacing, &mut warnings)?;
+    let fft_frequencies: Vec<f64> = search.peaks.iter().map(|p| p.frequency_t).collect();
+    // A smoothing background is re-estimated from the data minus the fitted oscillation and
+    // the fit repeated (backfitting); a polynomial one is fitted jointly in one pass.
+    let rounds = match settings.background {
+        Background::Polynomial { .. } => 1,
+        Background::Smoothing { .. } => BACKFITTING_ROUNDS,
+    };
+    let context = PassContext {
+        settings,
+        pass,
+        reference,
+        inverse,
+        rounds,
+    };
+    condense_dense_sweeps(sweeps, &mut prepared, window, &context, &fft_frequencies, &mut warnings)?;
+    let (refined, source) = refine_reference(&mut prepared, &context, &search.peaks, &fft_frequencies, &mut warnings)?;
+    let mut lines = frequency_lines(&search.peaks, &refined, source, settings, span);
+    sampling_warnings(&prepared[reference], &lines, &mut warnings);
+
+    let masses = mass_phase(&context, &mut prepared, &refined, &mut lines, &mut warnings)?;
+    let dingle = dingle_phase(&context, &prepared[reference], &lines, &masses, &mut warnings);
+    let mut landau_fan = None;
+    if settings.landau_fan {
+        match mass::landau_fan(&prepared[reference], lines[0].frequency_t, lines[0].phase_rad) {
+            Ok(fan) => landau_fan = Some(fan),
+            Err(message) => warnings.push(message),
+        }
+    }
+
+    let spectra_out = sweep_spectra(&prepared, &spectra, search.highest_t);
+    let padded_length = reference_spectrum.padded_length;
+    Ok(OscillationAnalysis {
+        field_window_t: window,
+        inverse_field_window_per_t: range,
+        grid_points: grid.points,
+        grid_spacing_per_t: grid.spacing,
+        padded_length,
+        resolution_t: 1.0 / span,
+        reference_sweep: reference,
+        lines,
+        spectra: spectra_out,
+        curves: sweep_curves(prepared),
+        mass: masses.mass,
+        narrow_windows: masses.narrow,
+        waveform: masses.waveform,
+        dingle,
+        landau_fan,
+        budget: OscillationBudget::default(),
+        temperature_sensitivity: masses.temperature_sensitivity,
+        temperature_stability_effect: masses.temperature_stability_effect,
+        warnings,
+    })
+}
+
+/// Lines: the peaks of the reference spectrum between the lowest and highest frequency
+/// searched, or the error that says why there are none.
+fn search_lines(
+    reference_spectrum: &AmplitudeSpectrum,
+    settings: &OscillationSettings,
+    span: f64,
+    grid_spacing: f64,
+    warnings: &mut Vec<String>,
+) -> Result<LineSearch, OscillationError> {
     let lowest = settings.frequency_min_t.unwrap_or(settings.min_periods / span);
-    let highest = settings.frequency_max_t.unwrap_or(0.5 / grid.spacing);
+    let highest = settings.frequency_max_t.unwrap_or(0.5 / grid_spacing);
     if lowest >= highest {
         return Err(OscillationError::InvalidSetting {
             name: "frequency_min_t",
@@ -426,20 +532,28 @@ fn analyze_once(
             peaks.len()
         ));
     }
-    let fft_frequencies: Vec<f64> = peaks.iter().map(|p| p.frequency_t).collect();
-    // A smoothing background is re-estimated from the data minus the fitted oscillation and
-    // the fit repeated (backfitting); a polynomial one is fitted jointly in one pass.
-    let rounds = match settings.background {
-        Background::Polynomial { .. } => 1,
-        Background::Smoothing { .. } => BACKFITTING_ROUNDS,
-    };
-    // Dense sweeps are condensed for the fits (the spectra above used every point).
-    let highest_line = fft_frequencies.iter().copied().fold(0.0f64, f64::max) + 2.0 / span;
+    Ok(LineSearch {
+        peaks,
+        highest_t: highest,
+    })
+}
+
+/// Dense sweeps are condensed for the fits (the spectra used every point); each keeps its
+/// resampled values.
+fn condense_dense_sweeps(
+    sweeps: &[OscillationSweep],
+    prepared: &mut [Prepared],
+    window: (f64, f64),
+    context: &PassContext,
+    fft_frequencies: &[f64],
+    warnings: &mut Vec<String>,
+) -> Result<(), OscillationError> {
+    let highest_line = fft_frequencies.iter().copied().fold(0.0f64, f64::max) + 2.0 / context.inverse.span;
     for (index, sweep) in sweeps.iter().enumerate() {
         if let Some(condensed) = condense_sweep(sweep, window, highest_line) {
             let grid_values = std::mem::take(&mut prepared[index].grid_values);
             let merged = sweep.field_t.len() / condensed.field_t.len().max(1);
-            prepared[index] = prepare_sweep(index, &condensed, window, &settings.background)?;
+            prepared[index] = prepare_sweep(index, &condensed, window, &context.settings.background)?;
             prepared[index].grid_values = grid_values;
             prepared[index].merged_points = merged;
             warnings.push(format!(
@@ -448,9 +562,24 @@ fn analyze_once(
             ));
         }
     }
+    Ok(())
+}
+
+/// The damped-cosine refinement of the lines on the reference sweep (with backfitting of a
+/// smoothing background), or the FFT lines with their in-phase phases when it fails; and
+/// the name of the source.
+fn refine_reference(
+    prepared: &mut [Prepared],
+    context: &PassContext,
+    peaks: &[Peak],
+    fft_frequencies: &[f64],
+    warnings: &mut Vec<String>,
+) -> Result<(Vec<RefinedComponent>, &'static str), OscillationError> {
+    let reference = context.reference;
+    let InverseWindow { range, span, centre } = context.inverse;
     let mut refined: Option<Vec<RefinedComponent>> = None;
     let mut source = "refinement";
-    for _ in 0..rounds {
+    for _ in 0..context.rounds {
         let sweep = &prepared[reference];
         let fit_sweep = FitSweep {
             x: &sweep.inverse_field,
@@ -458,7 +587,7 @@ fn analyze_once(
             temperature_k: sweep.temperature_k,
             projection: sweep.projection(),
         };
-        match refine_components(&fit_sweep, &fft_frequencies, centre, span) {
+        match refine_components(&fit_sweep, fft_frequencies, centre, span) {
             Ok(refinement) => {
                 prepared[reference].update_background(&refinement.model)?;
                 refined = Some(refinement.components);
@@ -501,8 +630,20 @@ fn analyze_once(
             })
             .collect()
     });
+    Ok((refined, source))
+}
+
+/// The reported lines, strongest first, each with its density and the stronger line it is
+/// a harmonic of, if any.
+fn frequency_lines(
+    peaks: &[Peak],
+    refined: &[RefinedComponent],
+    source: &'static str,
+    settings: &OscillationSettings,
+    span: f64,
+) -> Vec<FrequencyLine> {
     let mut lines: Vec<FrequencyLine> = Vec::with_capacity(peaks.len());
-    for (peak, component) in peaks.iter().zip(&refined) {
+    for (peak, component) in peaks.iter().zip(refined) {
         let density = sheet_density_from_frequency_m2(component.frequency_t, settings.spin_degeneracy);
         let harmonic_of = lines.iter().enumerate().find_map(|(index, stronger)| {
             let order = (component.frequency_t / stronger.frequency_t).round();
@@ -526,8 +667,12 @@ fn analyze_once(
             source,
         });
     }
-    let mut dominant_frequency = lines[0].frequency_t;
-    let mut dominant_phase = lines[0].phase_rad;
+    lines
+}
+
+/// Warnings about the sampling of the strongest line and a second line that beats with it.
+fn sampling_warnings(reference_sweep: &Prepared, lines: &[FrequencyLine], warnings: &mut Vec<String>) {
+    let dominant_frequency = lines[0].frequency_t;
     let widest_step = reference_sweep
         .inverse_field
         .windows(2)
@@ -544,8 +689,18 @@ fn analyze_once(
             "a second line above 20 % of the strongest beats with it in the narrow-window amplitudes, the Dingle plot and the fan, which use the strongest line only".to_string(),
         );
     }
+}
 
-    // Mass.
+/// Mass: whether one is fitted (two or more temperatures, unless known or skipped), and if
+/// so the fit.
+fn mass_phase(
+    context: &PassContext,
+    prepared: &mut [Prepared],
+    refined: &[RefinedComponent],
+    lines: &mut [FrequencyLine],
+    warnings: &mut Vec<String>,
+) -> Result<MassFindings, OscillationError> {
+    let settings = context.settings;
     let temperatures: Vec<f64> = prepared.iter().map(|p| p.temperature_k).collect();
     let distinct = mass::distinct_temperatures(&temperatures);
     let fit_mass = match settings.mass {
@@ -565,11 +720,10 @@ fn analyze_once(
         MassRequest::Fit | MassRequest::Auto => true,
         MassRequest::Known { .. } | MassRequest::Skip => false,
     };
-    let mut narrow = None;
-    let mut waveform_fit = None;
-    let mut temperature_sensitivity = None;
-    let mut temperature_stability_effect = None;
-    let mut mass_estimate = match settings.mass {
+    if fit_mass {
+        return fit_mass_across_temperatures(context, prepared, refined, lines, warnings);
+    }
+    let mass = match settings.mass {
         MassRequest::Known { effective_mass_ratio } => Some(MassEstimate {
             effective_mass_ratio,
             effective_mass_ratio_unc: None,
@@ -577,280 +731,349 @@ fn analyze_once(
         }),
         _ => None,
     };
-    if fit_mass {
-        let periods = dominant_frequency * span;
-        // With the damping across each window taken into account, a single window is
-        // unbiased too; more windows show whether the mass depends on the field.
-        let count = settings
-            .mass_windows
-            .unwrap_or(((periods / settings.mass_window_periods).floor() as usize).clamp(1, 12));
-        // First pass: a starting mass for the waveform fit, with the Dingle temperature the
-        // refinement's decay implies for a typical mass.
-        let reference_temperature = prepared[reference].temperature_k;
-        let dingle_from_decay = |mass: f64, decay: f64| {
-            let x_centre = LK_FIELD_PER_KELVIN * mass * reference_temperature * centre;
-            (decay / (LK_FIELD_PER_KELVIN * mass) + reference_temperature * thermal_damping_log_derivative(x_centre))
-                .clamp(0.0, 100.0)
-        };
-        let mut scratch = Vec::new();
-        let (_, first) = mass::narrow_window_mass(
-            &prepared,
+    Ok(MassFindings {
+        mass,
+        ..MassFindings::default()
+    })
+}
+
+/// The mass from the sweeps' temperatures: a first narrow-window pass for a starting mass,
+/// the waveform fit across temperatures (with the thermometer's effect on it), the second
+/// narrow-window pass, and the choice of the reported mass.
+fn fit_mass_across_temperatures(
+    context: &PassContext,
+    prepared: &mut [Prepared],
+    refined: &[RefinedComponent],
+    lines: &mut [FrequencyLine],
+    warnings: &mut Vec<String>,
+) -> Result<MassFindings, OscillationError> {
+    let settings = context.settings;
+    let reference = context.reference;
+    let InverseWindow { range, span, centre } = context.inverse;
+    let periods = lines[0].frequency_t * span;
+    // With the damping across each window taken into account, a single window is
+    // unbiased too; more windows show whether the mass depends on the field.
+    let count = settings
+        .mass_windows
+        .unwrap_or(((periods / settings.mass_window_periods).floor() as usize).clamp(1, 12));
+    // First pass: a starting mass for the waveform fit, with the Dingle temperature the
+    // refinement's decay implies for a typical mass.
+    let reference_temperature = prepared[reference].temperature_k;
+    let dingle_from_decay = |mass: f64, decay: f64| {
+        let x_centre = LK_FIELD_PER_KELVIN * mass * reference_temperature * centre;
+        (decay / (LK_FIELD_PER_KELVIN * mass) + reference_temperature * thermal_damping_log_derivative(x_centre))
+            .clamp(0.0, 100.0)
+    };
+    let mut scratch = Vec::new();
+    let (_, first) = mass::narrow_window_mass(
+        prepared,
+        reference,
+        lines[0].frequency_t,
+        range,
+        count,
+        dingle_from_decay(0.1, refined[0].decay_t),
+        &mut scratch,
+    );
+    let mass_start = first.map_or(0.1, |(m, _, _)| m.clamp(0.005, 5.0));
+    let included: Vec<usize> = (0..lines.len()).filter(|&i| lines[i].harmonic_of.is_none()).collect();
+    let mut starts: Vec<WaveformStart> = included
+        .iter()
+        .map(|&i| {
+            let component = &refined[i];
+            let x_centre = LK_FIELD_PER_KELVIN * mass_start * reference_temperature * centre;
+            WaveformStart {
+                amplitude: component.amplitude_ohm_sq / thermal_damping(x_centre).max(1e-12),
+                mass: mass_start,
+                dingle_k: dingle_from_decay(mass_start, component.decay_t).max(0.05),
+                frequency: component.frequency_t,
+                phase: waveform::wrap_phase(component.phase_rad + 2.0 * PI * component.frequency_t * centre),
+            }
+        })
+        .collect();
+    let waveform_fit = waveform_rounds(context, prepared, &mut starts, &included, warnings)?;
+    let mut findings = MassFindings::default();
+    if let Some(fit) = &waveform_fit {
+        (findings.temperature_sensitivity, findings.temperature_stability_effect) =
+            thermometer_effects(context, prepared, &starts, fit);
+        adopt_waveform_lines(lines, fit, settings, span);
+    }
+    // Second pass, on the backgrounds the waveform fit re-estimated and with its Dingle
+    // temperature for the damping across each window.
+    let dingle_hint = waveform_fit.as_ref().map_or_else(
+        || dingle_from_decay(mass_start, refined[0].decay_t),
+        |w| w.components[0].dingle_temperature_k,
+    );
+    // A variant reads only the reported mass: with the waveform fit's mass reported and
+    // present, the narrow windows (its fallback and cross-check) would not be read.
+    let narrow_unread =
+        context.pass == Pass::Variant && settings.mass_method == MassMethod::WaveformFit && waveform_fit.is_some();
+    if !narrow_unread {
+        let (windows, combined) = mass::narrow_window_mass(
+            prepared,
             reference,
-            dominant_frequency,
+            lines[0].frequency_t,
             range,
             count,
-            dingle_from_decay(0.1, refined[0].decay_t),
-            &mut scratch,
+            dingle_hint,
+            warnings,
         );
-        let mass_start = first.map_or(0.1, |(m, _, _)| m.clamp(0.005, 5.0));
-        let included: Vec<usize> = (0..lines.len()).filter(|&i| lines[i].harmonic_of.is_none()).collect();
-        let mut starts: Vec<WaveformStart> = included
+        match combined {
+            Some((mass, unc, birge)) => {
+                findings.narrow = Some(NarrowWindowMass {
+                    windows,
+                    effective_mass_ratio: mass,
+                    effective_mass_ratio_unc: unc,
+                    birge_ratio: birge,
+                })
+            }
+            None => warnings.push("no narrow window gave a mass".to_string()),
+        }
+    }
+    findings.mass = choose_mass(settings, waveform_fit.as_ref(), findings.narrow.as_ref(), warnings)?;
+    findings.waveform = waveform_fit;
+    Ok(findings)
+}
+
+/// The waveform fit across temperatures, repeated for backfitting: each round re-estimates
+/// the backgrounds and starts where the last ended (`starts` is left there).
+fn waveform_rounds(
+    context: &PassContext,
+    prepared: &mut [Prepared],
+    starts: &mut [WaveformStart],
+    included: &[usize],
+    warnings: &mut Vec<String>,
+) -> Result<Option<WaveformFit>, OscillationError> {
+    let InverseWindow { span, centre, .. } = context.inverse;
+    let mut waveform_fit = None;
+    for round in 0..context.rounds {
+        let fit_sweeps: Vec<FitSweep> = prepared
             .iter()
-            .map(|&i| {
-                let component = &refined[i];
-                let x_centre = LK_FIELD_PER_KELVIN * mass_start * reference_temperature * centre;
-                WaveformStart {
-                    amplitude: component.amplitude_ohm_sq / thermal_damping(x_centre).max(1e-12),
-                    mass: mass_start,
-                    dingle_k: dingle_from_decay(mass_start, component.decay_t).max(0.05),
-                    frequency: component.frequency_t,
-                    phase: waveform::wrap_phase(component.phase_rad + 2.0 * PI * component.frequency_t * centre),
-                }
+            .map(|sweep| FitSweep {
+                x: &sweep.inverse_field,
+                target: sweep.fit_target(),
+                temperature_k: sweep.temperature_k,
+                projection: sweep.projection(),
             })
             .collect();
-        for round in 0..rounds {
-            let fit_sweeps: Vec<FitSweep> = prepared
-                .iter()
-                .map(|sweep| FitSweep {
-                    x: &sweep.inverse_field,
-                    target: sweep.fit_target(),
-                    temperature_k: sweep.temperature_k,
-                    projection: sweep.projection(),
-                })
-                .collect();
-            match fit_waveform(&fit_sweeps, &starts, centre, span, &WAVEFORM_MASS_FACTORS) {
-                Ok(outcome) => {
-                    for (sweep, model) in prepared.iter_mut().zip(&outcome.models) {
-                        sweep.update_background(model)?;
-                    }
-                    // The next round starts where this one ended.
-                    for (start, component) in starts.iter_mut().zip(&outcome.components) {
-                        start.mass = component.effective_mass_ratio;
-                        start.dingle_k = component.dingle_temperature_k;
-                        start.frequency = component.frequency_t;
-                        start.amplitude = component.amplitude_ohm_sq;
-                        start.phase =
-                            waveform::wrap_phase(component.phase_rad + 2.0 * PI * component.frequency_t * centre);
-                    }
-                    waveform_fit = Some(WaveformFit {
-                        components: outcome
-                            .components
-                            .iter()
-                            .zip(&included)
-                            .map(|(c, &line)| WaveformComponent {
-                                line,
-                                frequency_t: c.frequency_t,
-                                frequency_unc_t: c.frequency_unc_t,
-                                effective_mass_ratio: c.effective_mass_ratio,
-                                effective_mass_ratio_unc: c.effective_mass_ratio_unc,
-                                dingle_temperature_k: c.dingle_temperature_k,
-                                dingle_temperature_unc_k: c.dingle_temperature_unc_k,
-                                amplitude_ohm_sq: c.amplitude_ohm_sq,
-                                phase_rad: c.phase_rad,
-                            })
-                            .collect(),
-                        reduced_chi_square: outcome.reduced_chi_square,
-                        points: outcome.points,
-                        starts_at_best: outcome.starts_at_best,
-                        starts: outcome.starts,
-                    });
+        match fit_waveform(&fit_sweeps, starts, centre, span, &WAVEFORM_MASS_FACTORS) {
+            Ok(outcome) => {
+                for (sweep, model) in prepared.iter_mut().zip(&outcome.models) {
+                    sweep.update_background(model)?;
                 }
-                Err(error) => {
-                    if round == 0 {
-                        warnings.push(format!("the waveform fit across temperatures failed: {error}"));
-                    }
-                    break;
+                // The next round starts where this one ended.
+                for (start, component) in starts.iter_mut().zip(&outcome.components) {
+                    start.mass = component.effective_mass_ratio;
+                    start.dingle_k = component.dingle_temperature_k;
+                    start.frequency = component.frequency_t;
+                    start.amplitude = component.amplitude_ohm_sq;
+                    start.phase = waveform::wrap_phase(component.phase_rad + 2.0 * PI * component.frequency_t * centre);
                 }
+                waveform_fit = Some(WaveformFit {
+                    components: outcome
+                        .components
+                        .iter()
+                        .zip(included)
+                        .map(|(c, &line)| WaveformComponent {
+                            line,
+                            frequency_t: c.frequency_t,
+                            frequency_unc_t: c.frequency_unc_t,
+                            effective_mass_ratio: c.effective_mass_ratio,
+                            effective_mass_ratio_unc: c.effective_mass_ratio_unc,
+                            dingle_temperature_k: c.dingle_temperature_k,
+                            dingle_temperature_unc_k: c.dingle_temperature_unc_k,
+                            amplitude_ohm_sq: c.amplitude_ohm_sq,
+                            phase_rad: c.phase_rad,
+                        })
+                        .collect(),
+                    reduced_chi_square: outcome.reduced_chi_square,
+                    points: outcome.points,
+                    starts_at_best: outcome.starts_at_best,
+                    starts: outcome.starts,
+                });
+            }
+            Err(error) => {
+                if round == 0 {
+                    warnings.push(format!("the waveform fit across temperatures failed: {error}"));
+                }
+                break;
             }
         }
-        // The thermometer: the waveform refitted, from where the fit ended, with every
-        // temperature raised by the stated accuracy (an error common to the series), and
-        // with each sweep's alone raised by the stated stability (errors independent from
-        // sweep to sweep, added in quadrature): numerical sensitivity coefficients, JCGM
-        // 100:2008 5.1.3.
-        if let Some(fit) = &waveform_fit {
-            let base = &fit.components[0];
-            let refit = |raise: &dyn Fn(usize) -> f64| -> Option<(f64, f64)> {
-                let shifted: Vec<FitSweep> = prepared
-                    .iter()
-                    .enumerate()
-                    .map(|(index, sweep)| FitSweep {
-                        x: &sweep.inverse_field,
-                        target: sweep.fit_target(),
-                        temperature_k: sweep.temperature_k + raise(index),
-                        projection: sweep.projection(),
-                    })
-                    .collect();
-                let outcome = fit_waveform(&shifted, &starts, centre, span, &[1.0]).ok()?;
-                let moved = &outcome.components[0];
-                Some((
-                    moved.effective_mass_ratio - base.effective_mass_ratio,
-                    moved.dingle_temperature_k - base.dingle_temperature_k,
-                ))
-            };
-            if let Some(accuracy) = settings.temperature_accuracy_k.filter(|a| *a > 0.0) {
-                temperature_sensitivity = refit(&|_| accuracy).map(|(m, t)| (m / accuracy, t / accuracy));
-            }
-            if let Some(stability) = settings.temperature_stability_k.filter(|s| *s > 0.0) {
-                let mut squares = (0.0, 0.0);
-                for index in 0..prepared.len() {
-                    if let Some((m, t)) = refit(&|i| if i == index { stability } else { 0.0 }) {
-                        squares.0 += m * m;
-                        squares.1 += t * t;
-                    }
-                }
-                temperature_stability_effect = Some((squares.0.sqrt(), squares.1.sqrt()));
-            }
-        }
-        // The waveform fit's frequencies and phases use every sweep and the exact damping.
-        if let Some(fit) = &waveform_fit {
-            for component in &fit.components {
-                let line = &mut lines[component.line];
-                line.frequency_t = component.frequency_t;
-                line.frequency_unc_t = component.frequency_unc_t;
-                line.phase_rad = component.phase_rad;
-                line.phase_unc_rad = None;
-                line.sheet_density_m2 =
-                    sheet_density_from_frequency_m2(component.frequency_t, settings.spin_degeneracy);
-                line.sheet_density_unc_m2 = component
-                    .frequency_unc_t
-                    .map(|unc| line.sheet_density_m2 * unc / component.frequency_t);
-                line.periods_in_window = component.frequency_t * span;
-                line.source = "waveform_fit";
-            }
-            dominant_frequency = lines[0].frequency_t;
-            dominant_phase = lines[0].phase_rad;
-        }
-        // Second pass, on the backgrounds the waveform fit re-estimated and with its Dingle
-        // temperature for the damping across each window.
-        let dingle_hint = waveform_fit.as_ref().map_or_else(
-            || dingle_from_decay(mass_start, refined[0].decay_t),
-            |w| w.components[0].dingle_temperature_k,
-        );
-        // A variant reads only the reported mass: with the waveform fit's mass reported and
-        // present, the narrow windows (its fallback and cross-check) would not be read.
-        let narrow_unread =
-            pass == Pass::Variant && settings.mass_method == MassMethod::WaveformFit && waveform_fit.is_some();
-        if !narrow_unread {
-            let (windows, combined) = mass::narrow_window_mass(
-                &prepared,
-                reference,
-                dominant_frequency,
-                range,
-                count,
-                dingle_hint,
-                &mut warnings,
-            );
-            match combined {
-                Some((mass, unc, birge)) => {
-                    narrow = Some(NarrowWindowMass {
-                        windows,
-                        effective_mass_ratio: mass,
-                        effective_mass_ratio_unc: unc,
-                        birge_ratio: birge,
-                    })
-                }
-                None => warnings.push("no narrow window gave a mass".to_string()),
+    }
+    Ok(waveform_fit)
+}
+
+/// The thermometer: the waveform refitted, from where the fit ended, with every
+/// temperature raised by the stated accuracy (an error common to the series), and with
+/// each sweep's alone raised by the stated stability (errors independent from sweep to
+/// sweep, added in quadrature): numerical sensitivity coefficients, JCGM 100:2008 5.1.3.
+/// Returns the sensitivity (per K) and the stability's effect, on m* and T_D.
+fn thermometer_effects(
+    context: &PassContext,
+    prepared: &[Prepared],
+    starts: &[WaveformStart],
+    fit: &WaveformFit,
+) -> (Option<(f64, f64)>, Option<(f64, f64)>) {
+    let settings = context.settings;
+    let InverseWindow { span, centre, .. } = context.inverse;
+    let base = &fit.components[0];
+    let refit = |raise: &dyn Fn(usize) -> f64| -> Option<(f64, f64)> {
+        let shifted: Vec<FitSweep> = prepared
+            .iter()
+            .enumerate()
+            .map(|(index, sweep)| FitSweep {
+                x: &sweep.inverse_field,
+                target: sweep.fit_target(),
+                temperature_k: sweep.temperature_k + raise(index),
+                projection: sweep.projection(),
+            })
+            .collect();
+        let outcome = fit_waveform(&shifted, starts, centre, span, &[1.0]).ok()?;
+        let moved = &outcome.components[0];
+        Some((
+            moved.effective_mass_ratio - base.effective_mass_ratio,
+            moved.dingle_temperature_k - base.dingle_temperature_k,
+        ))
+    };
+    let mut temperature_sensitivity = None;
+    let mut temperature_stability_effect = None;
+    if let Some(accuracy) = settings.temperature_accuracy_k.filter(|a| *a > 0.0) {
+        temperature_sensitivity = refit(&|_| accuracy).map(|(m, t)| (m / accuracy, t / accuracy));
+    }
+    if let Some(stability) = settings.temperature_stability_k.filter(|s| *s > 0.0) {
+        let mut squares = (0.0, 0.0);
+        for index in 0..prepared.len() {
+            if let Some((m, t)) = refit(&|i| if i == index { stability } else { 0.0 }) {
+                squares.0 += m * m;
+                squares.1 += t * t;
             }
         }
-        let from_waveform = waveform_fit.as_ref().map(|w| MassEstimate {
-            effective_mass_ratio: w.components[0].effective_mass_ratio,
-            effective_mass_ratio_unc: w.components[0].effective_mass_ratio_unc,
-            method: MassMethod::WaveformFit.name(),
-        });
-        let from_windows = narrow.as_ref().map(|n| MassEstimate {
-            effective_mass_ratio: n.effective_mass_ratio,
-            effective_mass_ratio_unc: n.effective_mass_ratio_unc,
-            method: MassMethod::NarrowWindows.name(),
-        });
-        if let (Some(a), Some(b)) = (&from_waveform, &from_windows) {
-            if let (Some(ua), Some(ub)) = (a.effective_mass_ratio_unc, b.effective_mass_ratio_unc) {
-                let difference = (a.effective_mass_ratio - b.effective_mass_ratio).abs();
-                if difference > 3.0 * ua.hypot(ub) {
-                    warnings.push(format!(
-                        "the waveform-fit mass {:.4} and the narrow-window mass {:.4} differ by more than three combined standard errors: a temperature or field dependence other than Lifshitz-Kosevich's (a mass that changes with field, a drifting temperature, a second line) affects the two differently; compare the masses of the narrow windows",
-                        a.effective_mass_ratio, b.effective_mass_ratio
-                    ));
-                }
-            }
-        }
-        let (primary, secondary) = match settings.mass_method {
-            MassMethod::WaveformFit => (from_waveform, from_windows),
-            MassMethod::NarrowWindows => (from_windows, from_waveform),
-        };
-        mass_estimate = match (primary, secondary) {
-            (Some(primary), _) => Some(primary),
-            (None, Some(secondary)) => {
+        temperature_stability_effect = Some((squares.0.sqrt(), squares.1.sqrt()));
+    }
+    (temperature_sensitivity, temperature_stability_effect)
+}
+
+/// The waveform fit's frequencies and phases use every sweep and the exact damping, so
+/// they replace the refinement's in the lines it fitted.
+fn adopt_waveform_lines(lines: &mut [FrequencyLine], fit: &WaveformFit, settings: &OscillationSettings, span: f64) {
+    for component in &fit.components {
+        let line = &mut lines[component.line];
+        line.frequency_t = component.frequency_t;
+        line.frequency_unc_t = component.frequency_unc_t;
+        line.phase_rad = component.phase_rad;
+        line.phase_unc_rad = None;
+        line.sheet_density_m2 = sheet_density_from_frequency_m2(component.frequency_t, settings.spin_degeneracy);
+        line.sheet_density_unc_m2 = component
+            .frequency_unc_t
+            .map(|unc| line.sheet_density_m2 * unc / component.frequency_t);
+        line.periods_in_window = component.frequency_t * span;
+        line.source = "waveform_fit";
+    }
+}
+
+/// The reported mass: the one `mass_method` asks for, else the other with a warning; a
+/// warning when the two disagree; an error when a mass was required and neither exists.
+fn choose_mass(
+    settings: &OscillationSettings,
+    waveform_fit: Option<&WaveformFit>,
+    narrow: Option<&NarrowWindowMass>,
+    warnings: &mut Vec<String>,
+) -> Result<Option<MassEstimate>, OscillationError> {
+    let from_waveform = waveform_fit.map(|w| MassEstimate {
+        effective_mass_ratio: w.components[0].effective_mass_ratio,
+        effective_mass_ratio_unc: w.components[0].effective_mass_ratio_unc,
+        method: MassMethod::WaveformFit.name(),
+    });
+    let from_windows = narrow.map(|n| MassEstimate {
+        effective_mass_ratio: n.effective_mass_ratio,
+        effective_mass_ratio_unc: n.effective_mass_ratio_unc,
+        method: MassMethod::NarrowWindows.name(),
+    });
+    if let (Some(a), Some(b)) = (&from_waveform, &from_windows) {
+        if let (Some(ua), Some(ub)) = (a.effective_mass_ratio_unc, b.effective_mass_ratio_unc) {
+            let difference = (a.effective_mass_ratio - b.effective_mass_ratio).abs();
+            if difference > 3.0 * ua.hypot(ub) {
                 warnings.push(format!(
-                    "the {} mass is not available; the {} mass is reported instead",
-                    settings.mass_method.name(),
-                    secondary.method
+                    "the waveform-fit mass {:.4} and the narrow-window mass {:.4} differ by more than three combined standard errors: a temperature or field dependence other than Lifshitz-Kosevich's (a mass that changes with field, a drifting temperature, a second line) affects the two differently; compare the masses of the narrow windows",
+                    a.effective_mass_ratio, b.effective_mass_ratio
                 ));
-                Some(secondary)
-            }
-            (None, None) => {
-                if settings.mass == MassRequest::Fit {
-                    return Err(OscillationError::MassNotDetermined { reasons: warnings });
-                }
-                None
-            }
-        };
-    }
-
-    // Dingle plot.
-    let mut dingle = None;
-    if settings.dingle {
-        if let Some(estimate) = &mass_estimate {
-            match mass::dingle_plot(
-                &prepared[reference],
-                dominant_frequency,
-                dominant_phase,
-                range,
-                settings
-                    .dingle_window_periods
-                    .unwrap_or((dominant_frequency * span / 5.0).clamp(1.0, 2.0)),
-                estimate.effective_mass_ratio,
-                estimate.effective_mass_ratio_unc,
-                waveform_fit
-                    .as_ref()
-                    .map_or(0.0, |w| w.components[0].dingle_temperature_k),
-            ) {
-                Ok(plot) => {
-                    if plot.dingle_temperature_k < 0.0 {
-                        warnings.push(format!(
-                            "the Dingle plot rises with 1/B (T_D = {:.3} K < 0): the amplitude grows toward low field, which the Lifshitz-Kosevich form does not allow; check the background removal and the window",
-                            plot.dingle_temperature_k
-                        ));
-                    }
-                    dingle = Some(plot);
-                }
-                Err(message) => warnings.push(message),
             }
         }
     }
+    let (primary, secondary) = match settings.mass_method {
+        MassMethod::WaveformFit => (from_waveform, from_windows),
+        MassMethod::NarrowWindows => (from_windows, from_waveform),
+    };
+    Ok(match (primary, secondary) {
+        (Some(primary), _) => Some(primary),
+        (None, Some(secondary)) => {
+            warnings.push(format!(
+                "the {} mass is not available; the {} mass is reported instead",
+                settings.mass_method.name(),
+                secondary.method
+            ));
+            Some(secondary)
+        }
+        (None, None) => {
+            if settings.mass == MassRequest::Fit {
+                return Err(OscillationError::MassNotDetermined {
+                    reasons: std::mem::take(warnings),
+                });
+            }
+            None
+        }
+    })
+}
 
-    // Landau fan.
-    let mut landau_fan = None;
-    if settings.landau_fan {
-        match mass::landau_fan(&prepared[reference], dominant_frequency, dominant_phase) {
-            Ok(fan) => landau_fan = Some(fan),
-            Err(message) => warnings.push(message),
+/// Dingle plot: of the strongest line on the reference sweep, with the reported mass.
+fn dingle_phase(
+    context: &PassContext,
+    reference_sweep: &Prepared,
+    lines: &[FrequencyLine],
+    masses: &MassFindings,
+    warnings: &mut Vec<String>,
+) -> Option<DinglePlot> {
+    let settings = context.settings;
+    if !settings.dingle {
+        return None;
+    }
+    let estimate = masses.mass.as_ref()?;
+    let dominant_frequency = lines[0].frequency_t;
+    match mass::dingle_plot(
+        reference_sweep,
+        dominant_frequency,
+        lines[0].phase_rad,
+        context.inverse.range,
+        settings
+            .dingle_window_periods
+            .unwrap_or((dominant_frequency * context.inverse.span / 5.0).clamp(1.0, 2.0)),
+        estimate.effective_mass_ratio,
+        estimate.effective_mass_ratio_unc,
+        masses
+            .waveform
+            .as_ref()
+            .map_or(0.0, |w| w.components[0].dingle_temperature_k),
+    ) {
+        Ok(plot) => {
+            if plot.dingle_temperature_k < 0.0 {
+                warnings.push(format!(
+                    "the Dingle plot rises with 1/B (T_D = {:.3} K < 0): the amplitude grows toward low field, which the Lifshitz-Kosevich form does not allow; check the background removal and the window",
+                    plot.dingle_temperature_k
+                ));
+            }
+            Some(plot)
+        }
+        Err(message) => {
+            warnings.push(message);
+            None
         }
     }
+}
 
-    let spectra_out = prepared
+/// The spectra computed, each up to the highest frequency searched.
+fn sweep_spectra(prepared: &[Prepared], spectra: &[Option<AmplitudeSpectrum>], highest: f64) -> Vec<SweepSpectrum> {
+    prepared
         .iter()
-        .zip(&spectra)
+        .zip(spectra)
         .filter_map(|(sweep, spectrum)| spectrum.as_ref().map(|spectrum| (sweep, spectrum)))
         .map(|(sweep, spectrum)| {
             let keep = spectrum.frequencies.iter().take_while(|f| **f <= highest).count();
@@ -860,9 +1083,12 @@ fn analyze_once(
                 amplitudes_ohm_sq: spectrum.amplitudes[..keep].to_vec(),
             }
         })
-        .collect();
-    let padded_length = reference_spectrum.padded_length;
-    let curves = prepared
+        .collect()
+}
+
+/// The prepared sweeps as reported curves.
+fn sweep_curves(prepared: Vec<Prepared>) -> Vec<SweepCurve> {
+    prepared
         .into_iter()
         .map(|sweep| SweepCurve {
             temperature_k: sweep.temperature_k,
@@ -873,26 +1099,5 @@ fn analyze_once(
             oscillation_ohm_sq: sweep.oscillation,
             resampled_ohm_sq: sweep.grid_values,
         })
-        .collect();
-    Ok(OscillationAnalysis {
-        field_window_t: window,
-        inverse_field_window_per_t: range,
-        grid_points: grid.points,
-        grid_spacing_per_t: grid.spacing,
-        padded_length,
-        resolution_t: 1.0 / span,
-        reference_sweep: reference,
-        lines,
-        spectra: spectra_out,
-        curves,
-        mass: mass_estimate,
-        narrow_windows: narrow,
-        waveform: waveform_fit,
-        dingle,
-        landau_fan,
-        budget: OscillationBudget::default(),
-        temperature_sensitivity,
-        temperature_stability_effect,
-        warnings,
-    })
+        .collect()
 }

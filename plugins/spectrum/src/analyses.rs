@@ -51,7 +51,7 @@ fn float_series(name: &str, values: Vec<f64>) -> Column {
 /// `spectrum.multi_carrier_fit`.
 pub struct MultiCarrierFitAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 pub struct MultiCarrierParams {
     #[serde(flatten)]
     sweep: SweepParams,
@@ -108,10 +108,31 @@ impl Analysis for MultiCarrierFitAnalysis {
                 column("residual_xy", F64, None, "whitened residual of sigma_xy"),
             ],
             summary_keys: vec![
+                column("sample", ColumnType::Str, None, "the sweep's sample"),
+                column("temperature_K", ColumnType::F64, Some("K"), "the sweep's temperature"),
+                column("carrier_count", ColumnType::I64, None, "carriers fitted"),
+                column("criterion", ColumnType::Str, None, "information criterion of the selection"),
+                column("score", ColumnType::F64, None, "the chosen fit's criterion value"),
+                column("candidates", ColumnType::Str, None, "list of {carriers, score, chi_square, ...}: every carrier list tried"),
+                column("chi_square", ColumnType::F64, None, "chi^2 of the fit"),
+                column("reduced_chi_square", ColumnType::F64, None, "chi^2 / nu of the fit"),
+                column("chi_square_p_value", ColumnType::F64, None, "P(chi^2 >= observed) when the uncertainties are stated"),
+                column("birge_ratio", ColumnType::F64, None, "sqrt(chi^2 / nu) when above 1"),
+                column("degrees_of_freedom", ColumnType::I64, None, "points minus fitted parameters"),
+                column("weighted", ColumnType::Bool, None, "the fit used the stated uncertainties"),
+                column("floored_points", ColumnType::I64, None, "points whose relative uncertainty was raised to relative_uncertainty_floor"),
+                column("relative_uncertainty_floor", ColumnType::F64, None, "the floor applied to relative uncertainties"),
+                column("reading_reuse_factor", ColumnType::F64, None, "how often a reading enters the symmetrized points"),
+                column("calibrations_not_stated", ColumnType::Str, None, "list of the calibrations not stated (their defaults were assumed)"),
+                column("max_field_T", ColumnType::F64, Some("T"), "the largest |B|"),
+                column("max_interpolation_correction", ColumnType::F64, None, "largest relative change made by interpolating the field branches"),
+                column("max_rho_xx_asymmetry", ColumnType::F64, None, "largest removed odd part relative to rho_xx"),
+                column("max_rho_xy_asymmetry", ColumnType::F64, None, "largest removed even part relative to rho_xy"),
                 column("carriers", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc"),
                 single_field_sign_key(),
             ],
             figures: crate::figures::multi_carrier_fit(),
+            ..Default::default()
         }
     }
 
@@ -237,7 +258,7 @@ impl Analysis for MultiCarrierFitAnalysis {
 /// `spectrum.mobility`.
 pub struct MobilitySpectrumAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 pub struct SpectrumParams {
     #[serde(flatten)]
     sweep: SweepParams,
@@ -245,9 +266,9 @@ pub struct SpectrumParams {
     thickness_m: Option<f64>,
     #[serde(default)]
     points_per_sign: Option<usize>,
-    #[serde(default)]
+    #[serde(rename = "mobility_min_m2_per_Vs", default)]
     mobility_min_m2_per_vs: Option<f64>,
-    #[serde(default)]
+    #[serde(rename = "mobility_max_m2_per_Vs", default)]
     mobility_max_m2_per_vs: Option<f64>,
     #[serde(default)]
     regularization: Option<String>,
@@ -271,8 +292,8 @@ impl Analysis for MobilitySpectrumAnalysis {
         let mut properties = sweep_schema_properties();
         properties.insert("thickness_m".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "conducting thickness: also report volume densities"}));
         properties.insert("points_per_sign".into(), json!({"type": "integer", "minimum": 8, "maximum": 1000, "default": defaults.points_per_sign, "description": "grid mobilities per carrier sign (logarithmic grid)"}));
-        properties.insert("mobility_min_m2_per_vs".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "lowest grid mobility; default 0.1 / B_max"}));
-        properties.insert("mobility_max_m2_per_vs".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "highest grid mobility; default 10 / B_min"}));
+        properties.insert("mobility_min_m2_per_Vs".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "lowest grid mobility; default 0.1 / B_max"}));
+        properties.insert("mobility_max_m2_per_Vs".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "highest grid mobility; default 10 / B_min"}));
         properties.insert("regularization".into(), json!({"type": "string", "enum": ["auto", "discrepancy", "l_curve", "fixed"], "default": "auto", "description": "how the smoothing strength is chosen: auto (discrepancy principle with uncertainties, L-curve without), or fixed (regularization_strength)"}));
         properties.insert("regularization_strength".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "the dimensionless strength for regularization: fixed"}));
         properties.insert("peak_threshold".into(), json!({"type": "number", "exclusiveMinimum": 0, "exclusiveMaximum": 1, "default": defaults.peak_threshold, "description": "a local maximum is a peak above this fraction of the largest spectrum value"}));
@@ -281,7 +302,7 @@ impl Analysis for MobilitySpectrumAnalysis {
         AnalysisDeclaration {
             name: String::new(),
             summary: "Mobility spectrum of electrons and holes: the Beck-Anderson envelope and a regularized non-negative spectrum with its peaks integrated into sheet densities and mobilities".into(),
-            description: "On a logarithmic mobility grid for each sign: the Beck-Anderson upper bound (J. Appl. Phys. 62, 541, 1987) and a quantitative spectrum by non-negative least squares with a second-difference penalty in ln mu (Provencher's CONTIN approach on the Beck-Anderson kernel), its strength chosen by the discrepancy principle or the L-curve. Reports progress and stops promptly when cancelled (analysis.cancel).".into(),
+            description: "On a logarithmic mobility grid for each sign: the Beck-Anderson upper bound (J. Appl. Phys. 62, 541, 1987) and a regularized spectrum by non-negative least squares with a second-difference penalty in ln mu (Provencher's CONTIN approach on the Beck-Anderson kernel), its strength chosen by the discrepancy principle or the L-curve. Reports progress and stops promptly when cancelled (analysis.cancel).".into(),
             params: json!({"type": "object", "additionalProperties": false, "properties": properties}),
             inputs: vec![sweep_role(false)],
             outputs: vec![
@@ -294,10 +315,21 @@ impl Analysis for MobilitySpectrumAnalysis {
                 column("hole_density_m2", F64, Some("m2"), "d n / d ln mu of holes"),
             ],
             summary_keys: vec![
+                column("sample", ColumnType::Str, None, "the sweep's sample"),
+                column("temperature_K", ColumnType::F64, Some("K"), "the sweep's temperature"),
+                column("regularization", ColumnType::Str, None, "how the smoothing strength was chosen"),
+                column("regularization_strength", ColumnType::F64, None, "the dimensionless smoothing strength used"),
+                column("chi_square", ColumnType::F64, None, "chi^2 of the regularized spectrum"),
+                column("data_count", ColumnType::I64, None, "data values fitted"),
+                column("total_conductance_S", ColumnType::F64, Some("S"), "sigma_xx(0) of the data"),
+                column("floored_points", ColumnType::I64, None, "points whose relative uncertainty was raised to relative_uncertainty_floor"),
+                column("reading_reuse_factor", ColumnType::F64, None, "how often a reading enters the symmetrized points"),
+                column("calibrations_not_stated", ColumnType::Str, None, "list of the calibrations not stated (their defaults were assumed)"),
                 column("peaks", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc"),
                 single_field_sign_key(),
             ],
             figures: crate::figures::mobility(),
+            ..Default::default()
         }
     }
 
@@ -323,7 +355,7 @@ impl Analysis for MobilitySpectrumAnalysis {
             (None, None) => None,
             _ => {
                 return Err(invalid(
-                    "give both mobility_min_m2_per_vs and mobility_max_m2_per_vs, or neither",
+                    "give both mobility_min_m2_per_Vs and mobility_max_m2_per_Vs, or neither",
                 ))
             }
         };

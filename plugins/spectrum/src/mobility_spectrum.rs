@@ -169,15 +169,15 @@ pub use settings::{GridRange, RegularizationRule, RuleUsed, SpectrumSettings, MI
 pub struct SignSpectrum {
     /// Beck-Anderson bound: the largest conductance of one carrier at this mobility, S.
     pub envelope_s: Vec<f64>,
-    /// Quantitative spectrum: point conductance x_k of the grid carrier, S.
+    /// Regularized spectrum: point conductance x_k of the grid carrier, S.
     pub conductance_s: Vec<f64>,
-    /// Quantitative spectrum as a density on the log axis, dsigma / d ln|mu| = x_k / Delta, S.
+    /// Regularized spectrum as a density on the log axis, dsigma / d ln|mu| = x_k / Delta, S.
     pub spectrum_s: Vec<f64>,
     /// Sheet density per unit ln|mu|, x_k / (Delta e mu_k), m^-2.
     pub density_m2: Vec<f64>,
 }
 
-/// A peak of the quantitative spectrum.
+/// A peak of the regularized spectrum.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Peak {
     pub carrier: CarrierKind,
@@ -252,7 +252,7 @@ pub struct Regularization {
     pub trials: Vec<RegularizationTrial>,
 }
 
-/// The data and the tensor of the quantitative spectrum at one point.
+/// The data and the tensor of the regularized spectrum at one point.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct FitPoint {
     pub field_t: f64,
@@ -544,7 +544,7 @@ pub fn mobility_spectrum_of_symmetrized(
     spectrum_of_points(&conductivity_points(symmetrized), settings, monitor, reuse)
 }
 
-/// The parametric bootstrap of the quantitative spectrum (see the module documentation):
+/// The parametric bootstrap of the regularized spectrum (see the module documentation):
 /// the point conductances (S) of every replica.
 struct Replicas {
     weights: Vec<Vec<f64>>,

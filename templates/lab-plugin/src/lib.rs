@@ -25,10 +25,10 @@
 use mobilis_physics::constants::ELEMENTARY_CHARGE_C;
 use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
 use mobilis_sdk::abi::{AxisScale, AxisSpec, FigureSpec, LayerSpec, Naming, PanelSpec};
-use mobilis_sdk::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
-use polars::prelude::{Column, DataFrame};
+use mobilis_sdk::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs, OutputBuilder};
+use polars::prelude::Column;
+use schemars::JsonSchema;
 use serde::Deserialize;
-use serde_json::json;
 
 /// The input role the analysis reads.
 pub const HALL: &str = "hall";
@@ -36,34 +36,21 @@ pub const HALL: &str = "hall";
 /// The analysis.
 pub struct SheetCarriers;
 
-/// The parameters as a typed struct. The host checks every call against the JSON Schema of
-/// [`params_schema`] before the plugin sees it, so the schema states the same fields, ranges
-/// and default as this struct; keep the two together when you add a parameter.
-#[derive(Debug, Clone, Deserialize)]
+/// The parameters as a typed struct, the one place they are written: the SDK derives the
+/// JSON Schema the host checks every call against from this type (doc comments become
+/// descriptions, the serde default becomes `default`, the schemars attribute the bound).
+#[derive(Debug, Clone, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct SheetCarriersParams {
-    /// Hall scattering factor r_H = <tau^2>/<tau>^2 of the dominant carrier.
+    /// Hall scattering factor r_H of the dominant carrier: n_s = r_H / (e |R_H,s|); 1 when
+    /// unknown.
     #[serde(default = "default_hall_factor")]
+    #[schemars(extend("exclusiveMinimum" = 0))]
     pub hall_factor: f64,
 }
 
 fn default_hall_factor() -> f64 {
     1.0
-}
-
-fn params_schema() -> serde_json::Value {
-    json!({
-        "type": "object",
-        "additionalProperties": false,
-        "properties": {
-            "hall_factor": {
-                "type": "number",
-                "exclusiveMinimum": 0,
-                "default": default_hall_factor(),
-                "description": "Hall scattering factor r_H of the dominant carrier: n_s = r_H / (e |R_H,s|); 1 when unknown"
-            }
-        }
-    })
 }
 
 fn column(name: &str, dtype: ColumnType, unit: Option<&str>, description: &str) -> ColumnSpec {
@@ -102,7 +89,6 @@ impl Analysis for SheetCarriers {
             name: String::new(),
             summary: "Sheet carrier density and Hall mobility from sheet resistance and sheet Hall coefficient".into(),
             description: "Single-carrier Hall relations (van der Pauw 1958): n_s = r_H / (e |R_H,s|), mu_H = |R_H,s| / R_s; the sign of R_H,s gives the carrier type. Rows with a missing or zero value give nulls.".into(),
-            params: params_schema(),
             inputs: vec![InputRole {
                 role: HALL.into(),
                 required: true,
@@ -128,6 +114,7 @@ impl Analysis for SheetCarriers {
             ],
             summary_keys: vec![column("rows", I64, None, "rows of the output")],
             figures: figures(),
+            ..Default::default()
         }
     }
 
@@ -158,25 +145,22 @@ impl Analysis for SheetCarriers {
             density.push(r_h.map(|v| params.hall_factor / (ELEMENTARY_CHARGE_C * v.abs())));
             mobility.push(r_h.zip(r_s).map(|(h, s)| h.abs() / s));
         }
-        let output = DataFrame::new(
-            rows,
-            vec![
-                Column::new("sample".into(), sample),
-                Column::new("temperature_K".into(), temperature),
-                Column::new("carrier_type".into(), carrier_type),
-                Column::new("sheet_density_m2".into(), density),
-                Column::new("hall_mobility_m2_per_Vs".into(), mobility),
-            ],
-        )
-        .map_err(|error| AnalysisError::Numerical(error.to_string()))?;
-        let mut result = AnalysisOutput::new(output);
-        result.summary.insert("rows".into(), json!(rows));
+        // The builder holds the output to the declaration: an undeclared column or summary key,
+        // or one of another type, is reported as the plugin's bug instead of reaching a client.
+        let mut output = OutputBuilder::of::<Self>();
+        output
+            .column(Column::new("sample".into(), sample))
+            .column(Column::new("temperature_K".into(), temperature))
+            .column(Column::new("carrier_type".into(), carrier_type))
+            .f64_nullable("sheet_density_m2", density)
+            .f64_nullable("hall_mobility_m2_per_Vs", mobility)
+            .summary("rows", rows);
         if unusable > 0 {
-            result.warnings.push(format!(
+            output.warn(format!(
                 "{unusable} rows have no usable R_s (> 0) or R_H,s (non-zero) and give nulls"
             ));
         }
-        Ok(result)
+        output.finish(rows)
     }
 }
 
@@ -185,6 +169,7 @@ mobilis_sdk::export_plugin!(name: "lab", analyses: [SheetCarriers]);
 #[cfg(test)]
 mod tests {
     use super::*;
+    use polars::prelude::DataFrame;
 
     fn run(table: DataFrame, params: &str) -> Result<AnalysisOutput, AnalysisError> {
         let inputs = Inputs::from_tables([(HALL.to_owned(), table)]);

@@ -8,16 +8,19 @@
 //! - `fixture.panic` panics, to show that the SDK turns a panic into an error status and
 //!   that the plugin and the daemon keep working;
 //! - `fixture.wait` runs until cancelled (or for `seconds`), reporting progress, to test
-//!   `analysis.cancel` and `analysis.progress`.
+//!   `analysis.cancel` and `analysis.progress`;
+//! - `fixture.undeclared` returns a column its declaration does not name, bypassing the
+//!   SDK's output builder as a plugin written without the SDK could, to show that the host
+//!   refuses such an output and keeps working.
 //!
 //! The library is named `test_fixture_plugin`, not `mobilis_*`, so a daemon never loads it
 //! unless its directory is passed with `--plugin-dir`.
 
 use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
-use mobilis_sdk::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs};
+use mobilis_sdk::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs, OutputBuilder};
 use polars::prelude::{Column, DataFrame};
+use schemars::JsonSchema;
 use serde::Deserialize;
-use serde_json::json;
 use std::time::{Duration, Instant};
 
 /// The text `fixture.panic` panics with; tests look for it in the daemon's error message.
@@ -27,13 +30,9 @@ pub const PANIC_MESSAGE: &str = "fixture.panic was asked to fail: deliberate pan
 const VALUES: &str = "values";
 
 /// Parameters of the analyses that take none; unknown names are refused.
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct NoParams {}
-
-fn no_params_schema() -> serde_json::Value {
-    json!({ "type": "object", "additionalProperties": false, "properties": {} })
-}
 
 /// The `values` role, with the given declared columns.
 fn values_role(columns: Vec<ColumnSpec>, description: &str) -> InputRole {
@@ -59,11 +58,9 @@ impl Analysis for Identity {
             description:
                 "Measures the cost of the plugin boundary: the table crosses into the plugin and back without a copy."
                     .into(),
-            params: no_params_schema(),
             inputs: vec![values_role(Vec::new(), "any table; every column is returned")],
-            outputs: Vec::new(),
-            summary_keys: Vec::new(),
-            figures: Vec::new(),
+            open_outputs: true,
+            ..Default::default()
         }
     }
 
@@ -76,9 +73,10 @@ impl Analysis for Identity {
 pub struct Scale;
 
 /// Parameters of `fixture.scale`.
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ScaleParams {
+    /// what every `x` is multiplied by
     pub factor: f64,
 }
 
@@ -91,14 +89,6 @@ impl Analysis for Scale {
             name: String::new(),
             summary: "Multiplies column `x` by `factor`".into(),
             description: "Nulls stay null and are left out of the sum.".into(),
-            params: json!({
-                "type": "object",
-                "additionalProperties": false,
-                "required": ["factor"],
-                "properties": {
-                    "factor": { "type": "number", "description": "what every `x` is multiplied by" }
-                }
-            }),
             inputs: vec![values_role(
                 vec![ColumnSpec::new("x", ColumnType::F64, None, "the values to scale")],
                 "a table with a numeric column `x`",
@@ -110,7 +100,7 @@ impl Analysis for Scale {
                 None,
                 "sum of the non-null x_scaled",
             )],
-            figures: Vec::new(),
+            ..Default::default()
         }
     }
 
@@ -119,11 +109,10 @@ impl Analysis for Scale {
         let scaled: Vec<Option<f64>> = values.iter().map(|x| x.map(|x| x * params.factor)).collect();
         let sum: f64 = scaled.iter().flatten().sum();
         let height = scaled.len();
-        let table = DataFrame::new(height, vec![Column::new("x_scaled".into(), scaled)])
-            .map_err(|error| AnalysisError::Numerical(error.to_string()))?;
-        let mut output = AnalysisOutput::new(table);
-        output.summary.insert("sum".into(), json!(sum));
-        Ok(output)
+        OutputBuilder::of::<Self>()
+            .f64_nullable("x_scaled", scaled)
+            .summary("sum", sum)
+            .finish(height)
     }
 }
 
@@ -139,11 +128,8 @@ impl Analysis for Panic {
             name: String::new(),
             summary: "Panics after taking over its input table".into(),
             description: "The input is taken over by the plugin before the panic, so the unwinding drops (and releases) a table the host exported: the stored dataset must not suffer.".into(),
-            params: no_params_schema(),
             inputs: vec![values_role(Vec::new(), "any table")],
-            outputs: Vec::new(),
-            summary_keys: Vec::new(),
-            figures: Vec::new(),
+            ..Default::default()
         }
     }
 
@@ -157,10 +143,12 @@ impl Analysis for Panic {
 pub struct Wait;
 
 /// Parameters of `fixture.wait`.
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct WaitParams {
+    /// how long to wait, s
     #[serde(default = "default_wait_seconds")]
+    #[schemars(range(min = 0.0))]
     pub seconds: f64,
 }
 
@@ -181,13 +169,6 @@ impl Analysis for Wait {
             name: String::new(),
             summary: "Waits for `seconds` or until cancelled, reporting progress".into(),
             description: "Checks for cancellation and reports progress every 10 ms.".into(),
-            params: json!({
-                "type": "object",
-                "additionalProperties": false,
-                "properties": {
-                    "seconds": { "type": "number", "minimum": 0, "default": default_wait_seconds(), "description": "how long to wait, s" }
-                }
-            }),
             inputs: Vec::new(),
             outputs: vec![ColumnSpec::new(
                 "waited_s",
@@ -195,8 +176,7 @@ impl Analysis for Wait {
                 Some("s"),
                 "time spent waiting",
             )],
-            summary_keys: Vec::new(),
-            figures: Vec::new(),
+            ..Default::default()
         }
     }
 
@@ -215,17 +195,46 @@ impl Analysis for Wait {
             std::thread::sleep(WAIT_TICK.min(total - waited));
         }
         let waited = started.elapsed().as_secs_f64();
-        let table = DataFrame::new(1, vec![Column::new("waited_s".into(), [waited])])
-            .map_err(|error| AnalysisError::Numerical(error.to_string()))?;
+        OutputBuilder::of::<Self>().f64("waited_s", vec![waited]).finish(1)
+    }
+}
+
+/// `fixture.undeclared`.
+pub struct Undeclared;
+
+/// The column `fixture.undeclared` returns without declaring it.
+pub const UNDECLARED_COLUMN: &str = "not_in_the_declaration";
+
+impl Analysis for Undeclared {
+    const NAME: &'static str = "fixture.undeclared";
+    type Params = NoParams;
+
+    fn declaration() -> AnalysisDeclaration {
+        AnalysisDeclaration {
+            name: String::new(),
+            summary: "Returns a column it does not declare".into(),
+            description: "Builds its table by hand, as a plugin without the SDK could, and breaks its own declaration: the host must refuse the output.".into(),
+            outputs: vec![ColumnSpec::new("x", ColumnType::F64, None, "the only declared column")],
+            ..Default::default()
+        }
+    }
+
+    fn run(_params: NoParams, _inputs: &Inputs, _host: &Host) -> Result<AnalysisOutput, AnalysisError> {
+        let columns = vec![
+            Column::new("x".into(), [1.0]),
+            Column::new(UNDECLARED_COLUMN.into(), [2.0]),
+        ];
+        let table = DataFrame::new(1, columns).map_err(|error| AnalysisError::Numerical(error.to_string()))?;
         Ok(AnalysisOutput::new(table))
     }
 }
 
-mobilis_sdk::export_plugin!(name: "fixture", analyses: [Identity, Scale, Panic, Wait]);
+mobilis_sdk::export_plugin!(name: "fixture", analyses: [Identity, Scale, Panic, Wait, Undeclared]);
 
 #[cfg(test)]
 mod tests {
     use super::*;
+    use serde_json::json;
 
     fn values(x: Vec<Option<f64>>) -> Inputs {
         let height = x.len();
@@ -252,6 +261,43 @@ mod tests {
             sdk::run_typed::<Wait>(r#"{"seconds": 0.05}"#, &Inputs::from_tables([]), &Host::detached()).unwrap();
         let waited = output.table.column("waited_s").unwrap().f64().unwrap().get(0).unwrap();
         assert!((0.05..5.0).contains(&waited), "{waited}");
+    }
+
+    #[test]
+    fn the_sdk_refuses_an_output_that_breaks_the_declaration() {
+        let error = sdk::run_typed::<Undeclared>("{}", &Inputs::from_tables([]), &Host::detached()).unwrap_err();
+        assert!(error.to_string().contains("plugin bug"), "{error}");
+        assert!(error.to_string().contains(UNDECLARED_COLUMN), "{error}");
+        let error = OutputBuilder::of::<Scale>()
+            .f64("x_scaled", vec![1.0])
+            .summary("total", 1.0)
+            .finish(1)
+            .unwrap_err();
+        assert!(
+            error.to_string().contains("summary key `total` is not declared"),
+            "{error}"
+        );
+        let error = OutputBuilder::of::<Scale>().finish(0).unwrap_err();
+        assert!(error.to_string().contains("`x_scaled` is missing"), "{error}");
+        let error = OutputBuilder::of::<Scale>()
+            .i64("x_scaled", vec![1])
+            .finish(1)
+            .unwrap_err();
+        assert!(error.to_string().contains("declared f64 but holds i64"), "{error}");
+    }
+
+    #[test]
+    fn derived_parameter_schemas_are_closed_and_carry_defaults_and_bounds() {
+        let wait = sdk::declaration_of::<Wait>().params;
+        assert_eq!(wait["additionalProperties"], json!(false));
+        assert_eq!(wait["properties"]["seconds"]["default"], json!(30.0));
+        assert_eq!(wait["properties"]["seconds"]["minimum"], json!(0.0));
+        assert_eq!(
+            wait["properties"]["seconds"]["description"],
+            json!("how long to wait, s")
+        );
+        let scale = sdk::declaration_of::<Scale>().params;
+        assert_eq!(scale["required"], json!(["factor"]));
     }
 
     #[test]

@@ -380,6 +380,39 @@ async fn a_panic_in_a_plugin_is_an_error_and_the_plugin_keeps_working(mode: Mode
     );
 }
 
+/// `fixture.undeclared` builds its table by hand with a column it does not declare: the
+/// host's check of outputs refuses it, whatever SDK built it, and names the column.
+async fn an_output_that_breaks_its_declaration_is_refused_and_nothing_is_stored(mode: Mode) {
+    let dir = fixture_plugin_dir();
+    let daemon = daemon_with_plugins(dir.path(), mode).await;
+    daemon
+        .call("dataset.import", json!({"name": "v", "columns": {"x": [1.0, 2.0]}}))
+        .await;
+    let before = dataset_list(&daemon).await;
+    let (code, message) = daemon
+        .call_error(
+            "analysis.run",
+            json!({"analysis": "fixture.undeclared", "inputs": {}, "output": "undeclared"}),
+        )
+        .await;
+    assert_eq!(code, 5001, "{message}");
+    for fragment in [
+        "plugin `fixture`",
+        "fixture.undeclared",
+        "`not_in_the_declaration` is not declared",
+    ] {
+        assert!(message.contains(fragment), "`{message}` lacks `{fragment}`");
+    }
+    assert_eq!(dataset_list(&daemon).await, before, "a refused output stored nothing");
+    let run = daemon
+        .call(
+            "analysis.run",
+            json!({"analysis": "fixture.scale", "inputs": {"values": "v"}, "params": {"factor": 2.0}, "output": "scaled"}),
+        )
+        .await;
+    assert_eq!(run["summary"]["sum"], json!(6.0));
+}
+
 async fn bad_parameters_are_refused_before_the_plugin_runs(mode: Mode) {
     let dir = fixture_plugin_dir();
     let daemon = daemon_with_plugins(dir.path(), mode).await;
@@ -738,6 +771,7 @@ in_both_modes!(
     the_c_plugin_loads_and_sums_a_column_with_nulls,
     unusable_libraries_are_refused_by_name_and_the_daemon_keeps_serving,
     a_panic_in_a_plugin_is_an_error_and_the_plugin_keeps_working,
+    an_output_that_breaks_its_declaration_is_refused_and_nothing_is_stored,
     bad_parameters_are_refused_before_the_plugin_runs,
     a_running_analysis_is_cancelled_from_another_connection,
     a_missing_or_mistyped_required_column_is_named,

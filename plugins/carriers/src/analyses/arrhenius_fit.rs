@@ -21,7 +21,7 @@ use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 
 pub struct ArrheniusAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ArrheniusParams {
     #[serde(default)]
@@ -92,6 +92,15 @@ impl Analysis for ArrheniusAnalysis {
             ],
             summary_keys: {
                 let mut keys = vec![
+                    column("regime", ColumnType::Str, None, "the conduction regime the slope was read in"),
+                    column("carrier_type", ColumnType::Str, None, "n or p"),
+                    column("r_squared", ColumnType::F64, None, "coefficient of determination of the line"),
+                    column("hall_factor", ColumnType::F64, None, "Hall scattering factor used"),
+                    column("chi_square", ColumnType::F64, None, "chi-square of the line fit"),
+                    column("degrees_of_freedom", ColumnType::I64, None, "points minus fitted parameters"),
+                    column("effective_variance_passes", ColumnType::I64, None, "passes of the effective-variance weighting (temperature uncertainties)"),
+                    column("weighted", ColumnType::Bool, None, "the fit used the stated uncertainties"),
+                    column("relative_uncertainty_floor", ColumnType::F64, None, "the floor applied to relative uncertainties"),
                     column("activation_energy_eV", F64, Some("eV"), "with activation_energy_eV_unc and _unc_stat (the same: a density scale does not move the slope)"),
                     column("temperature_min_K", F64, Some("K"), "lowest temperature of the line"),
                     column("temperature_max_K", F64, Some("K"), "highest temperature of the line"),
@@ -102,6 +111,7 @@ impl Analysis for ArrheniusAnalysis {
                 keys
             },
             figures: crate::figures::arrhenius(),
+            ..Default::default()
         }
     }
 

@@ -28,7 +28,7 @@ fn default_material() -> String {
     "Si".into()
 }
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct FreezeOutParams {
     #[serde(default = "default_material")]
@@ -204,6 +204,19 @@ impl Analysis for FreezeOutFitAnalysis {
             ],
             summary_keys: {
                 let mut keys = vec![
+                    column("material", ColumnType::Str, None, "material whose constants were used"),
+                    column("uncertainties_not_given", ColumnType::Str, None, "list of the uncertainty contributions not stated (left out of the budget)"),
+                    column("degeneracy", ColumnType::F64, None, "ground-state degeneracy factor of the dopant"),
+                    column("hall_factor", ColumnType::F64, None, "Hall scattering factor used"),
+                    column("chi_square", ColumnType::F64, None, "chi-square of the fit"),
+                    column("degrees_of_freedom", ColumnType::I64, None, "points minus fitted parameters"),
+                    column("effective_variance_passes", ColumnType::I64, None, "passes of the effective-variance weighting (temperature uncertainties)"),
+                    column("weighted", ColumnType::Bool, None, "the fit used the stated uncertainties"),
+                    column("points", ColumnType::I64, None, "points fitted"),
+                    column("at_bound", ColumnType::Str, None, "list of the parameters that ended at a bound"),
+                    column("starts", ColumnType::I64, None, "fit starts tried"),
+                    column("starts_converged", ColumnType::I64, None, "fit starts that converged"),
+                    column("relative_uncertainty_floor", ColumnType::F64, None, "the floor applied to relative uncertainties"),
                     column("carrier_type", Str, None, "n or p"),
                     column("dopant_density_m3", F64, Some("m3"), "majority dopant density (donors for n-type), with _unc (total), _unc_stat and _unc_sys"),
                     column("compensating_density_m3", F64, Some("m3"), "compensating density (acceptors for n-type), with _unc, _unc_stat and _unc_sys"),
@@ -218,6 +231,7 @@ impl Analysis for FreezeOutFitAnalysis {
                 keys
             },
             figures: crate::figures::freeze_out(),
+            ..Default::default()
         }
     }
 

@@ -21,7 +21,7 @@ use super::*;
 use crate::purity::{ConsistencyTolerance, DopantDensities};
 use crate::scattering::{
     fit_mobility_scattering, medium_for, IonizedDensityModel, IonizedImpurityFormula, MobilityPoint,
-    NeutralImpurityModel, ScatteringSettings, ScreeningDensity,
+    NeutralImpurityModel, ScatteringFit, ScatteringSettings, ScreeningDensity,
 };
 use mobilis_numerics::fit::RELATIVE_UNCERTAINTY_FLOOR;
 use mobilis_sdk::abi::{AnalysisDeclaration, InputRole};
@@ -33,7 +33,7 @@ fn default_material() -> String {
     "Si".into()
 }
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ScatteringParams {
     #[serde(default = "default_material")]
@@ -266,6 +266,27 @@ impl Analysis for MobilityScatteringAnalysis {
                 column("normalized_residual", F64, None, "the log residual over the uncertainty the fit weighted it by (floor and temperature included)"),
             ],
             summary_keys: vec![
+                column("compensating_density_m3", ColumnType::F64, Some("m3"), "N_comp of the carriers-plus-compensation model, with _unc"),
+                column("compensating_density_upper_limit_m3", ColumnType::F64, Some("m3"), "upper limit of N_comp when it is not resolved"),
+                column("neutral_impurity_density_m3", ColumnType::F64, Some("m3"), "neutral impurity density when fitted, with _unc"),
+                column("constant_mobility_m2_per_Vs", ColumnType::F64, Some("m2_per_Vs"), "the constant mobility term when fitted, with _unc"),
+                column("carrier_type", ColumnType::Str, None, "n or p"),
+                column("formula", ColumnType::Str, None, "ionized-impurity formula used"),
+                column("lattice_exponent_fixed", ColumnType::Bool, None, "the lattice exponent was fixed, not fitted"),
+                column("weighted", ColumnType::Bool, None, "the fit used the stated uncertainties"),
+                column("weights_column", ColumnType::Str, None, "the column the weights came from"),
+                column("calibrations_not_stated", ColumnType::Str, None, "list of the calibrations not stated (their defaults were assumed)"),
+                column("degrees_of_freedom", ColumnType::I64, None, "points minus fitted parameters"),
+                column("points_used", ColumnType::I64, None, "points fitted"),
+                column("hall_factor", ColumnType::F64, None, "Hall scattering factor used"),
+                column("mobility_column", ColumnType::Str, None, "the mobility column fitted"),
+                column("relative_uncertainty_floor", ColumnType::F64, None, "the floor applied to relative uncertainties"),
+                column("temperature_uncertainty_used", ColumnType::Bool, None, "temperature uncertainties entered the weights"),
+                column("freeze_out_reference_m3", ColumnType::F64, Some("m3"), "the freeze-out fit's density compared with"),
+                column("freeze_out_reference_basis", ColumnType::Str, None, "which freeze-out density was compared with"),
+                column("density_ratio", ColumnType::F64, None, "N_I over the freeze-out reference, with _unc"),
+                column("deviation_sigma", ColumnType::F64, None, "deviation from the freeze-out reference in standard uncertainties"),
+                column("freeze_out_comparison", ColumnType::Str, None, "upper_limit when the comparison is a bound only"),
                 column("lattice_exponent", F64, None, "alpha of mu_L ~ T^-alpha, with _unc, _unc_stat and _unc_sys"),
                 column("lattice_mobility_300K_m2_per_Vs", F64, Some("m2_per_Vs"), "mu_L at 300 K, with _unc, _unc_stat and _unc_sys"),
                 column("ionized_impurity_density_m3", F64, Some("m3"), "N_I, with _unc, _unc_stat and _unc_sys"),
@@ -277,6 +298,7 @@ impl Analysis for MobilityScatteringAnalysis {
                 column("floored_points", I64, None, "points whose uncertainty was raised to relative_uncertainty_floor"),
             ],
             figures: crate::figures::mobility_scattering(),
+            ..Default::default()
         }
     }
 
@@ -288,304 +310,377 @@ impl Analysis for MobilityScatteringAnalysis {
             Some(table) => Some(freeze_out_densities(table, sample.as_deref())?),
             None => None,
         };
-        let temperatures = sdk::float_column(hall, "temperature_K")?;
-        let mobility_column = params.mobility_column.as_deref().unwrap_or("hall_mobility_m2_per_Vs");
-        let mobilities = sdk::float_column(hall, mobility_column)?;
-        // The fit weights by the statistical part; a table without one (not from hall.reduce,
-        // or from an older version) has its total taken as statistical.
-        let (uncertainties, mobility_systematic, weight_column) =
-            mobility_budget(hall, mobility_column, &mobilities, &mut warnings)?;
-        let temperature_uncertainties = optional_floats(hall, "temperature_K_unc")?;
-        let densities = optional_floats(hall, "density_m3")?;
-        let density_systematic = optional_floats(hall, "density_m3_unc_sys")?;
-        // A calibration error is one scale for the whole series: its relative size, the
-        // largest a row states (rows normally state the same).
-        let common_scale = |values: &[Option<f64>], systematic: &[Option<f64>]| -> Option<f64> {
-            values
-                .iter()
-                .zip(systematic)
-                .filter_map(|(value, unc)| Some(unc.as_ref()? / value.as_ref()?.abs()))
-                .filter(|relative| relative.is_finite() && *relative >= 0.0)
-                .reduce(f64::max)
-        };
-        let mobility_scale_relative_unc = common_scale(&mobilities, &mobility_systematic);
-        let density_scale_relative_unc = common_scale(&densities, &density_systematic);
-        let types = optional_strings(hall, "carrier_type")?;
-        let mut points = Vec::new();
-        for row in 0..hall.height() {
-            let (Some(temperature_k), Some(mobility)) = (temperatures[row], mobilities[row]) else {
-                continue;
-            };
-            points.push(MobilityPoint {
-                temperature_k,
-                mobility_m2_per_vs: mobility.abs(),
-                mobility_unc_m2_per_vs: uncertainties[row],
-                temperature_unc_k: temperature_uncertainties[row],
-                carrier_density_m3: densities[row],
-            });
-        }
-        if points.len() < hall.height() {
-            warnings.push(format!(
-                "{} rows without a temperature or mobility were skipped",
-                hall.height() - points.len()
-            ));
-        }
-        let carrier_type = match parse_carrier_type(params.carrier_type.as_deref())? {
-            Some(forced) => forced,
-            None => {
-                let mut seen: Vec<&str> = types.iter().flatten().map(String::as_str).collect();
-                seen.sort();
-                seen.dedup();
-                match seen.as_slice() {
-                    [] => freeze_out.as_ref().and_then(|(_, t)| *t).unwrap_or(CarrierType::N),
-                    [one] => parse_carrier_type(Some(one))?.expect("parsed"),
-                    _ => {
-                        return Err(invalid(
-                            "the carrier type changes within the series; fit one type (temperature_min_K/temperature_max_K) or force carrier_type",
-                        ))
-                    }
-                }
-            }
-        };
-        let material = resolve_material(&params.material, &params.material_overrides)?;
-        let mut settings = ScatteringSettings::new(medium_for(&material, carrier_type));
-        settings.formula = match params.formula.as_deref() {
-            None | Some("brooks_herring") => IonizedImpurityFormula::BrooksHerring,
-            Some("conwell_weisskopf") => IonizedImpurityFormula::ConwellWeisskopf,
-            Some(other) => {
-                return Err(invalid(format!(
-                    "formula `{other}` is unknown; use brooks_herring or conwell_weisskopf"
-                )))
-            }
-        };
-        settings.ionized_density = match params.ionized_density.as_deref() {
-            None | Some("constant") => IonizedDensityModel::Constant,
-            Some("carriers_plus_compensation") => IonizedDensityModel::CarriersPlusCompensation,
-            Some(other) => {
-                return Err(invalid(format!(
-                    "ionized_density `{other}` is unknown; use constant or carriers_plus_compensation"
-                )))
-            }
-        };
-        let have_densities = points.iter().all(|p| p.carrier_density_m3.is_some());
-        settings.screening = match (&freeze_out, have_densities) {
-            (Some((densities, _)), true) => ScreeningDensity::Compensated {
-                dopant_density_m3: densities.dopant_density_m3,
-                compensating_density_m3: densities.compensating_density_m3,
-            },
-            (_, true) => ScreeningDensity::MeasuredCarriers,
-            (_, false) => ScreeningDensity::ImpurityDensity,
-        };
-        settings.neutral = match params.neutral.as_deref() {
-            None | Some("none") => NeutralImpurityModel::None,
-            Some("fitted") => NeutralImpurityModel::FittedConstant,
-            Some("from_carriers") => match &freeze_out {
-                Some((densities, _)) => NeutralImpurityModel::FromCarrierDensity {
-                    net_doping_m3: densities.dopant_density_m3 - densities.compensating_density_m3,
-                },
-                None => {
-                    return Err(invalid(
-                        "neutral: from_carriers needs the freeze_out input (the net doping)",
-                    ))
-                }
-            },
-            Some(other) => {
-                return Err(invalid(format!(
-                    "neutral `{other}` is unknown; use none, fitted or from_carriers"
-                )))
-            }
-        };
-        settings.constant_term = params.constant_term;
-        if let Some(z) = params.charge_number {
-            settings.charge_number = z;
-        }
-        settings.hall_factor = hall_factor(params.hall_factor, params.hall_factor_scattering_exponent)?
-            .value()
-            .map_err(|e| invalid(e.to_string()))?;
-        let range = temperature_range(params.temperature_min_k, params.temperature_max_k)?;
-        settings.temperature_min_k = range.map(|r| r.0);
-        settings.temperature_max_k = range.and_then(|r| r.1.is_finite().then_some(r.1));
-        settings.fixed_lattice_exponent = params.fixed_lattice_exponent;
-        if let Some(k) = params.consistency_sigma_multiple {
-            settings.tolerance.sigma_multiple = k;
-        }
-        if let Some(m) = params.model_relative_uncertainty {
-            settings.tolerance.model_relative_uncertainty = m;
-        }
-        if let Some(floor) = params.relative_uncertainty_floor {
-            settings.relative_uncertainty_floor = floor;
-        }
-        settings.mobility_scale_relative_unc = mobility_scale_relative_unc;
-        settings.density_scale_relative_unc = density_scale_relative_unc;
-        let temperature_unc_given = points.iter().any(|point| point.temperature_unc_k.is_some());
-        if temperature_unc_given && weight_column.is_none() {
-            warnings.push(
-                "temperature_K_unc was not used: the mobilities carry no uncertainty, so the fit is unweighted \
-                 (give the mobility's _unc_stat column to weigh the points)"
-                    .to_string(),
-            );
-        }
+        let series = read_series(&params, hall, &mut warnings)?;
+        let carrier_type = series_carrier_type(&params, &series.types, freeze_out.as_ref())?;
+        let settings = scattering_settings(&params, carrier_type, &series, freeze_out.as_ref(), &mut warnings)?;
         host.progress(0.1, "fitting");
         host.check_cancelled()?;
-        let fit =
-            fit_mobility_scattering(&points, &settings, freeze_out.as_ref().map(|(d, _)| d)).map_err(|error| {
-                match error {
-                    crate::scattering::ScatteringError::FitFailed(_) => AnalysisError::Numerical(error.to_string()),
-                    other => invalid(other.to_string()),
-                }
-            })?;
-
-        let rows = &fit.rows;
-        let table = frame(
-            rows.len(),
-            vec![
-                float_series("temperature_K", rows.iter().map(|r| Some(r.temperature_k)).collect()),
-                Column::new(
-                    "in_fit_range".into(),
-                    rows.iter().map(|r| r.in_fit_range).collect::<Vec<bool>>(),
-                ),
-                float_series(
-                    "mobility_m2_per_Vs",
-                    rows.iter().map(|r| Some(r.mobility_data)).collect(),
-                ),
-                float_series(
-                    "mobility_m2_per_Vs_unc",
-                    rows.iter().map(|r| r.mobility_data_unc).collect(),
-                ),
-                float_series(
-                    "fitted_mobility_m2_per_Vs",
-                    rows.iter().map(|r| r.mobility_fit).collect(),
-                ),
-                float_series(
-                    "lattice_mobility_m2_per_Vs",
-                    rows.iter().map(|r| r.mobility_lattice).collect(),
-                ),
-                float_series(
-                    "ionized_impurity_mobility_m2_per_Vs",
-                    rows.iter().map(|r| r.mobility_ionized).collect(),
-                ),
-                float_series(
-                    "neutral_impurity_mobility_m2_per_Vs",
-                    rows.iter().map(|r| r.mobility_neutral).collect(),
-                ),
-                float_series(
-                    "constant_mobility_m2_per_Vs",
-                    rows.iter().map(|r| r.mobility_constant).collect(),
-                ),
-                float_series(
-                    "ionized_density_m3",
-                    rows.iter().map(|r| r.ionized_density_m3).collect(),
-                ),
-                float_series(
-                    "screening_density_m3",
-                    rows.iter().map(|r| r.screening_density_m3).collect(),
-                ),
-                float_series("log_residual", rows.iter().map(|r| r.log_residual).collect()),
-                float_series(
-                    "normalized_residual",
-                    rows.iter().map(|r| r.normalized_residual).collect(),
-                ),
-            ],
+        let fit = fit_mobility_scattering(&series.points, &settings, freeze_out.as_ref().map(|(d, _)| d)).map_err(
+            |error| match error {
+                crate::scattering::ScatteringError::FitFailed(_) => AnalysisError::Numerical(error.to_string()),
+                other => invalid(other.to_string()),
+            },
         )?;
-        let mut output = AnalysisOutput::new(table);
-        let summary = &mut output.summary;
-        summary.insert("carrier_type".into(), json!(carrier_type.as_str()));
-        summary.insert("formula".into(), json!(fit.formula.name()));
-        insert_estimate(
-            summary,
-            "lattice_exponent",
-            fit.lattice_exponent.value,
-            fit.lattice_exponent.uncertainty,
+        let mut output = AnalysisOutput::new(fit_table(&fit)?);
+        fill_summary(
+            &mut output.summary,
+            &fit,
+            &settings,
+            carrier_type,
+            &series,
+            &mut warnings,
         );
-        summary.insert("lattice_exponent_fixed".into(), json!(fit.lattice_exponent_fixed));
-        insert_estimate(
-            summary,
-            "lattice_mobility_300K_m2_per_Vs",
-            fit.lattice_mobility_300k_m2_per_vs.value,
-            fit.lattice_mobility_300k_m2_per_vs.uncertainty,
-        );
-        insert_estimate(
-            summary,
-            "ionized_impurity_density_m3",
-            fit.ionized_impurity_density_m3.value,
-            fit.ionized_impurity_density_m3.uncertainty,
-        );
-        if let Some(limit) = fit.ionized_parameter_upper_limit_m3 {
-            let name = match fit.ionized_density_model {
-                IonizedDensityModel::Constant => "ionized_impurity_density_upper_limit_m3",
-                IonizedDensityModel::CarriersPlusCompensation => "compensating_density_upper_limit_m3",
-            };
-            summary.insert(name.into(), json!(limit));
-        }
-        if let Some(estimate) = fit.compensating_density_m3 {
-            insert_estimate(summary, "compensating_density_m3", estimate.value, estimate.uncertainty);
-        }
-        if let Some(estimate) = fit.neutral_impurity_density_m3 {
-            insert_estimate(
-                summary,
-                "neutral_impurity_density_m3",
-                estimate.value,
-                estimate.uncertainty,
-            );
-        }
-        if let Some(estimate) = fit.constant_mobility_m2_per_vs {
-            insert_estimate(
-                summary,
-                "constant_mobility_m2_per_Vs",
-                estimate.value,
-                estimate.uncertainty,
-            );
-        }
-        for (name, split) in &fit.budget {
-            summary.insert(format!("{name}_unc_stat"), json!(split.statistical));
-            summary.insert(format!("{name}_unc_sys"), json!(split.systematic));
-        }
-        let finite = |value: f64| if value.is_finite() { json!(value) } else { Value::Null };
-        let goodness = &fit.goodness;
-        summary.insert("reduced_chi_square".into(), finite(goodness.reduced_chi_square));
-        summary.insert("chi_square_p_value".into(), finite(goodness.p_value));
-        summary.insert("birge_ratio".into(), finite(goodness.birge_ratio));
-        summary.insert("weighted".into(), json!(goodness.weighted));
-        summary.insert("weights_column".into(), json!(weight_column));
-        summary.insert("floored_points".into(), json!(goodness.floored_points));
-        summary.insert(
-            "relative_uncertainty_floor".into(),
-            json!(settings.relative_uncertainty_floor),
-        );
-        summary.insert(
-            "temperature_uncertainty_used".into(),
-            json!(goodness.temperature_uncertainty_used),
-        );
-        summary.insert("calibrations_not_stated".into(), json!(fit.calibrations_not_stated));
-        summary.insert("degrees_of_freedom".into(), json!(goodness.degrees_of_freedom));
-        summary.insert("points_used".into(), json!(fit.points_used));
-        summary.insert("hall_factor".into(), json!(fit.hall_factor));
-        summary.insert("mobility_column".into(), json!(mobility_column));
-        if let Some(comparison) = &fit.comparison {
-            summary.insert("freeze_out_reference_m3".into(), json!(comparison.reference.value));
-            summary.insert("freeze_out_reference_basis".into(), json!(comparison.basis.name()));
-            summary.insert("density_ratio".into(), json!(comparison.ratio));
-            summary.insert("density_ratio_unc".into(), json!(comparison.ratio_unc));
-            summary.insert("deviation_sigma".into(), json!(comparison.deviation_sigma));
-            summary.insert("freeze_out_consistent".into(), json!(comparison.consistent));
-            if comparison.upper_limit_m3.is_some() {
-                summary.insert("freeze_out_comparison".into(), json!("upper_limit"));
-            }
-            if !comparison.consistent {
-                warnings.push(format!(
-                    "the scattering fit's {} ({:.3e} cm^-3) disagrees with the freeze-out {} ({:.3e} cm^-3) by {:.1} combined standard uncertainties",
-                    comparison.quantity.replace('_', " "),
-                    comparison.fitted.value * 1e-6,
-                    comparison.basis.description(),
-                    comparison.reference.value * 1e-6,
-                    comparison.deviation_sigma
-                ));
-            }
-        }
         warnings.extend(fit.warnings.iter().cloned());
         output.warnings = warnings;
         host.progress(1.0, "done");
         Ok(output)
+    }
+}
+
+/// The series as read from the hall table: its points, the carrier types it states, and the
+/// budget of its mobility column.
+struct ScatteringSeries<'a> {
+    points: Vec<MobilityPoint>,
+    types: Vec<Option<String>>,
+    mobility_column: &'a str,
+    weight_column: Option<String>,
+    mobility_scale_relative_unc: Option<f64>,
+    density_scale_relative_unc: Option<f64>,
+}
+
+/// Reading: the points of the hall table with their uncertainties, and the common
+/// calibration scales of the mobility and the density.
+fn read_series<'a>(
+    params: &'a ScatteringParams,
+    hall: &DataFrame,
+    warnings: &mut Vec<String>,
+) -> Result<ScatteringSeries<'a>, AnalysisError> {
+    let temperatures = sdk::float_column(hall, "temperature_K")?;
+    let mobility_column = params.mobility_column.as_deref().unwrap_or("hall_mobility_m2_per_Vs");
+    let mobilities = sdk::float_column(hall, mobility_column)?;
+    // The fit weights by the statistical part; a table without one (not from hall.reduce,
+    // or from an older version) has its total taken as statistical.
+    let (uncertainties, mobility_systematic, weight_column) =
+        mobility_budget(hall, mobility_column, &mobilities, warnings)?;
+    let temperature_uncertainties = optional_floats(hall, "temperature_K_unc")?;
+    let densities = optional_floats(hall, "density_m3")?;
+    let density_systematic = optional_floats(hall, "density_m3_unc_sys")?;
+    // A calibration error is one scale for the whole series: its relative size, the
+    // largest a row states (rows normally state the same).
+    let common_scale = |values: &[Option<f64>], systematic: &[Option<f64>]| -> Option<f64> {
+        values
+            .iter()
+            .zip(systematic)
+            .filter_map(|(value, unc)| Some(unc.as_ref()? / value.as_ref()?.abs()))
+            .filter(|relative| relative.is_finite() && *relative >= 0.0)
+            .reduce(f64::max)
+    };
+    let mobility_scale_relative_unc = common_scale(&mobilities, &mobility_systematic);
+    let density_scale_relative_unc = common_scale(&densities, &density_systematic);
+    let types = optional_strings(hall, "carrier_type")?;
+    let mut points = Vec::new();
+    for row in 0..hall.height() {
+        let (Some(temperature_k), Some(mobility)) = (temperatures[row], mobilities[row]) else {
+            continue;
+        };
+        points.push(MobilityPoint {
+            temperature_k,
+            mobility_m2_per_vs: mobility.abs(),
+            mobility_unc_m2_per_vs: uncertainties[row],
+            temperature_unc_k: temperature_uncertainties[row],
+            carrier_density_m3: densities[row],
+        });
+    }
+    if points.len() < hall.height() {
+        warnings.push(format!(
+            "{} rows without a temperature or mobility were skipped",
+            hall.height() - points.len()
+        ));
+    }
+    Ok(ScatteringSeries {
+        points,
+        types,
+        mobility_column,
+        weight_column,
+        mobility_scale_relative_unc,
+        density_scale_relative_unc,
+    })
+}
+
+/// The carrier type: forced, else the one the series states, else the freeze-out's, else n.
+fn series_carrier_type(
+    params: &ScatteringParams,
+    types: &[Option<String>],
+    freeze_out: Option<&(DopantDensities, Option<CarrierType>)>,
+) -> Result<CarrierType, AnalysisError> {
+    Ok(match parse_carrier_type(params.carrier_type.as_deref())? {
+        Some(forced) => forced,
+        None => {
+            let mut seen: Vec<&str> = types.iter().flatten().map(String::as_str).collect();
+            seen.sort();
+            seen.dedup();
+            match seen.as_slice() {
+                [] => freeze_out.and_then(|(_, t)| *t).unwrap_or(CarrierType::N),
+                [one] => parse_carrier_type(Some(one))?.expect("parsed"),
+                _ => {
+                    return Err(invalid(
+                        "the carrier type changes within the series; fit one type (temperature_min_K/temperature_max_K) or force carrier_type",
+                    ))
+                }
+            }
+        }
+    })
+}
+
+/// Settings: the medium of the material and carrier type, the model choices, the fit range
+/// and tolerances, and the calibration scales of the series.
+fn scattering_settings(
+    params: &ScatteringParams,
+    carrier_type: CarrierType,
+    series: &ScatteringSeries,
+    freeze_out: Option<&(DopantDensities, Option<CarrierType>)>,
+    warnings: &mut Vec<String>,
+) -> Result<ScatteringSettings, AnalysisError> {
+    let points = &series.points;
+    let material = resolve_material(&params.material, &params.material_overrides)?;
+    let mut settings = ScatteringSettings::new(medium_for(&material, carrier_type));
+    settings.formula = match params.formula.as_deref() {
+        None | Some("brooks_herring") => IonizedImpurityFormula::BrooksHerring,
+        Some("conwell_weisskopf") => IonizedImpurityFormula::ConwellWeisskopf,
+        Some(other) => {
+            return Err(invalid(format!(
+                "formula `{other}` is unknown; use brooks_herring or conwell_weisskopf"
+            )))
+        }
+    };
+    settings.ionized_density = match params.ionized_density.as_deref() {
+        None | Some("constant") => IonizedDensityModel::Constant,
+        Some("carriers_plus_compensation") => IonizedDensityModel::CarriersPlusCompensation,
+        Some(other) => {
+            return Err(invalid(format!(
+                "ionized_density `{other}` is unknown; use constant or carriers_plus_compensation"
+            )))
+        }
+    };
+    let have_densities = points.iter().all(|p| p.carrier_density_m3.is_some());
+    settings.screening = match (freeze_out, have_densities) {
+        (Some((densities, _)), true) => ScreeningDensity::Compensated {
+            dopant_density_m3: densities.dopant_density_m3,
+            compensating_density_m3: densities.compensating_density_m3,
+        },
+        (_, true) => ScreeningDensity::MeasuredCarriers,
+        (_, false) => ScreeningDensity::ImpurityDensity,
+    };
+    settings.neutral = match params.neutral.as_deref() {
+        None | Some("none") => NeutralImpurityModel::None,
+        Some("fitted") => NeutralImpurityModel::FittedConstant,
+        Some("from_carriers") => match freeze_out {
+            Some((densities, _)) => NeutralImpurityModel::FromCarrierDensity {
+                net_doping_m3: densities.dopant_density_m3 - densities.compensating_density_m3,
+            },
+            None => {
+                return Err(invalid(
+                    "neutral: from_carriers needs the freeze_out input (the net doping)",
+                ))
+            }
+        },
+        Some(other) => {
+            return Err(invalid(format!(
+                "neutral `{other}` is unknown; use none, fitted or from_carriers"
+            )))
+        }
+    };
+    settings.constant_term = params.constant_term;
+    if let Some(z) = params.charge_number {
+        settings.charge_number = z;
+    }
+    settings.hall_factor = hall_factor(params.hall_factor, params.hall_factor_scattering_exponent)?
+        .value()
+        .map_err(|e| invalid(e.to_string()))?;
+    let range = temperature_range(params.temperature_min_k, params.temperature_max_k)?;
+    settings.temperature_min_k = range.map(|r| r.0);
+    settings.temperature_max_k = range.and_then(|r| r.1.is_finite().then_some(r.1));
+    settings.fixed_lattice_exponent = params.fixed_lattice_exponent;
+    if let Some(k) = params.consistency_sigma_multiple {
+        settings.tolerance.sigma_multiple = k;
+    }
+    if let Some(m) = params.model_relative_uncertainty {
+        settings.tolerance.model_relative_uncertainty = m;
+    }
+    if let Some(floor) = params.relative_uncertainty_floor {
+        settings.relative_uncertainty_floor = floor;
+    }
+    settings.mobility_scale_relative_unc = series.mobility_scale_relative_unc;
+    settings.density_scale_relative_unc = series.density_scale_relative_unc;
+    let temperature_unc_given = points.iter().any(|point| point.temperature_unc_k.is_some());
+    if temperature_unc_given && series.weight_column.is_none() {
+        warnings.push(
+            "temperature_K_unc was not used: the mobilities carry no uncertainty, so the fit is unweighted \
+             (give the mobility's _unc_stat column to weigh the points)"
+                .to_string(),
+        );
+    }
+    Ok(settings)
+}
+
+/// The table: one row per point, with the fitted mobility, its parts and the residuals.
+fn fit_table(fit: &ScatteringFit) -> Result<DataFrame, AnalysisError> {
+    let rows = &fit.rows;
+    frame(
+        rows.len(),
+        vec![
+            float_series("temperature_K", rows.iter().map(|r| Some(r.temperature_k)).collect()),
+            Column::new(
+                "in_fit_range".into(),
+                rows.iter().map(|r| r.in_fit_range).collect::<Vec<bool>>(),
+            ),
+            float_series(
+                "mobility_m2_per_Vs",
+                rows.iter().map(|r| Some(r.mobility_data)).collect(),
+            ),
+            float_series(
+                "mobility_m2_per_Vs_unc",
+                rows.iter().map(|r| r.mobility_data_unc).collect(),
+            ),
+            float_series(
+                "fitted_mobility_m2_per_Vs",
+                rows.iter().map(|r| r.mobility_fit).collect(),
+            ),
+            float_series(
+                "lattice_mobility_m2_per_Vs",
+                rows.iter().map(|r| r.mobility_lattice).collect(),
+            ),
+            float_series(
+                "ionized_impurity_mobility_m2_per_Vs",
+                rows.iter().map(|r| r.mobility_ionized).collect(),
+            ),
+            float_series(
+                "neutral_impurity_mobility_m2_per_Vs",
+                rows.iter().map(|r| r.mobility_neutral).collect(),
+            ),
+            float_series(
+                "constant_mobility_m2_per_Vs",
+                rows.iter().map(|r| r.mobility_constant).collect(),
+            ),
+            float_series(
+                "ionized_density_m3",
+                rows.iter().map(|r| r.ionized_density_m3).collect(),
+            ),
+            float_series(
+                "screening_density_m3",
+                rows.iter().map(|r| r.screening_density_m3).collect(),
+            ),
+            float_series("log_residual", rows.iter().map(|r| r.log_residual).collect()),
+            float_series(
+                "normalized_residual",
+                rows.iter().map(|r| r.normalized_residual).collect(),
+            ),
+        ],
+    )
+}
+
+/// The summary: the fitted parameters with their budgets, the fit quality, and the
+/// comparison with the freeze-out count (a warning when they disagree).
+fn fill_summary(
+    summary: &mut serde_json::Map<String, Value>,
+    fit: &ScatteringFit,
+    settings: &ScatteringSettings,
+    carrier_type: CarrierType,
+    series: &ScatteringSeries,
+    warnings: &mut Vec<String>,
+) {
+    summary.insert("carrier_type".into(), json!(carrier_type.as_str()));
+    summary.insert("formula".into(), json!(fit.formula.name()));
+    insert_estimate(
+        summary,
+        "lattice_exponent",
+        fit.lattice_exponent.value,
+        fit.lattice_exponent.uncertainty,
+    );
+    summary.insert("lattice_exponent_fixed".into(), json!(fit.lattice_exponent_fixed));
+    insert_estimate(
+        summary,
+        "lattice_mobility_300K_m2_per_Vs",
+        fit.lattice_mobility_300k_m2_per_vs.value,
+        fit.lattice_mobility_300k_m2_per_vs.uncertainty,
+    );
+    insert_estimate(
+        summary,
+        "ionized_impurity_density_m3",
+        fit.ionized_impurity_density_m3.value,
+        fit.ionized_impurity_density_m3.uncertainty,
+    );
+    if let Some(limit) = fit.ionized_parameter_upper_limit_m3 {
+        let name = match fit.ionized_density_model {
+            IonizedDensityModel::Constant => "ionized_impurity_density_upper_limit_m3",
+            IonizedDensityModel::CarriersPlusCompensation => "compensating_density_upper_limit_m3",
+        };
+        summary.insert(name.into(), json!(limit));
+    }
+    if let Some(estimate) = fit.compensating_density_m3 {
+        insert_estimate(summary, "compensating_density_m3", estimate.value, estimate.uncertainty);
+    }
+    if let Some(estimate) = fit.neutral_impurity_density_m3 {
+        insert_estimate(
+            summary,
+            "neutral_impurity_density_m3",
+            estimate.value,
+            estimate.uncertainty,
+        );
+    }
+    if let Some(estimate) = fit.constant_mobility_m2_per_vs {
+        insert_estimate(
+            summary,
+            "constant_mobility_m2_per_Vs",
+            estimate.value,
+            estimate.uncertainty,
+        );
+    }
+    for (name, split) in &fit.budget {
+        summary.insert(format!("{name}_unc_stat"), json!(split.statistical));
+        summary.insert(format!("{name}_unc_sys"), json!(split.systematic));
+    }
+    let finite = |value: f64| if value.is_finite() { json!(value) } else { Value::Null };
+    let goodness = &fit.goodness;
+    summary.insert("reduced_chi_square".into(), finite(goodness.reduced_chi_square));
+    summary.insert("chi_square_p_value".into(), finite(goodness.p_value));
+    summary.insert("birge_ratio".into(), finite(goodness.birge_ratio));
+    summary.insert("weighted".into(), json!(goodness.weighted));
+    summary.insert("weights_column".into(), json!(series.weight_column));
+    summary.insert("floored_points".into(), json!(goodness.floored_points));
+    summary.insert(
+        "relative_uncertainty_floor".into(),
+        json!(settings.relative_uncertainty_floor),
+    );
+    summary.insert(
+        "temperature_uncertainty_used".into(),
+        json!(goodness.temperature_uncertainty_used),
+    );
+    summary.insert("calibrations_not_stated".into(), json!(fit.calibrations_not_stated));
+    summary.insert("degrees_of_freedom".into(), json!(goodness.degrees_of_freedom));
+    summary.insert("points_used".into(), json!(fit.points_used));
+    summary.insert("hall_factor".into(), json!(fit.hall_factor));
+    summary.insert("mobility_column".into(), json!(series.mobility_column));
+    if let Some(comparison) = &fit.comparison {
+        summary.insert("freeze_out_reference_m3".into(), json!(comparison.reference.value));
+        summary.insert("freeze_out_reference_basis".into(), json!(comparison.basis.name()));
+        summary.insert("density_ratio".into(), json!(comparison.ratio));
+        summary.insert("density_ratio_unc".into(), json!(comparison.ratio_unc));
+        summary.insert("deviation_sigma".into(), json!(comparison.deviation_sigma));
+        summary.insert("freeze_out_consistent".into(), json!(comparison.consistent));
+        if comparison.upper_limit_m3.is_some() {
+            summary.insert("freeze_out_comparison".into(), json!("upper_limit"));
+        }
+        if !comparison.consistent {
+            warnings.push(format!(
+                "the scattering fit's {} ({:.3e} cm^-3) disagrees with the freeze-out {} ({:.3e} cm^-3) by {:.1} combined standard uncertainties",
+                comparison.quantity.replace('_', " "),
+                comparison.fitted.value * 1e-6,
+                comparison.basis.description(),
+                comparison.reference.value * 1e-6,
+                comparison.deviation_sigma
+            ));
+        }
     }
 }
 

@@ -73,7 +73,7 @@ pub(crate) fn material_schema_properties() -> serde_json::Map<String, Value> {
 }
 
 /// `material_overrides`: values replacing the preset's.
-#[derive(Debug, Default, Deserialize)]
+#[derive(Debug, Default, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub(crate) struct MaterialOverrideParams {
     #[serde(rename = "conduction_dos_300K_m3")]

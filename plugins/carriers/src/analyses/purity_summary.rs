@@ -24,7 +24,7 @@ use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 
 pub struct PurityAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct PurityParams {
     #[serde(default)]
@@ -175,8 +175,17 @@ impl Analysis for PurityAnalysis {
                 },
             ],
             outputs,
-            summary_keys: vec![column("samples", I64, None, "rows of the output")],
-            figures: Vec::new(),
+            summary_keys: vec![
+                column("donor_density_m3", ColumnType::F64, Some("m3"), "N_D, with _unc"),
+                column("acceptor_density_m3", ColumnType::F64, Some("m3"), "N_A, with _unc"),
+                column("net_doping_m3", ColumnType::F64, Some("m3"), "|N_D - N_A|, with _unc"),
+                column("total_impurity_density_m3", ColumnType::F64, Some("m3"), "N_D + N_A, with _unc"),
+                column("compensation_ratio", ColumnType::F64, None, "minority over majority dopant density, with _unc"),
+                column("candidate_dopants", ColumnType::Str, None, "dopants whose ionization energy matches"),
+                column("scattering_upper_limit_m3", ColumnType::F64, Some("m3"), "upper limit of the ionized-impurity density from the mobility"),
+                column("samples", I64, None, "rows of the output"),
+            ],
+            ..Default::default()
         }
     }
 

@@ -35,7 +35,7 @@ fn zero_field_properties(properties: &mut serde_json::Map<String, Value>) {
     properties.insert("extrapolation_points".into(), json!({"type": "integer", "minimum": 3, "default": crate::ratio::DEFAULT_EXTRAPOLATION_POINTS, "description": "lowest-field points of the quadratic extrapolation"}));
 }
 
-#[derive(Debug, Default, Deserialize)]
+#[derive(Debug, Default, Deserialize, schemars::JsonSchema)]
 struct ZeroFieldParams {
     #[serde(default)]
     zero_field: Option<String>,
@@ -69,7 +69,7 @@ fn ratio_settings(sweep: &SweepParams, zero: &ZeroFieldParams) -> Result<RatioSe
 
 pub struct SymmetrizeAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 pub struct SymmetrizeParams {
     #[serde(flatten)]
     sweep: SweepParams,
@@ -103,10 +103,17 @@ impl Analysis for SymmetrizeAnalysis {
                 column("rho_xy_asymmetry", F64, None, "removed part relative to rho_xy"),
             ],
             summary_keys: vec![
+                column("sample", ColumnType::Str, None, "the sweep's sample"),
+                column("temperature_K", ColumnType::F64, Some("K"), "the sweep's temperature"),
+                column("hall_pickup_fraction", ColumnType::F64, None, "part of rho_xx picked up in rho_xy, with _unc"),
+                column("max_rho_xx_asymmetry", ColumnType::F64, None, "largest removed odd part relative to rho_xx"),
+                column("overlap_T", ColumnType::F64, Some("T"), "[lowest, highest] |B| where both field signs were measured"),
+                column("points_outside_overlap", ColumnType::I64, None, "points outside the overlap of the field signs"),
                 column("misalignment_fraction", F64, None, "rho_xy_even / rho_xx at low field, with _unc"),
                 column("max_rho_xy_asymmetry", F64, None, "largest removed even part relative to rho_xy"),
             ],
             figures: crate::figures::symmetrize(),
+            ..Default::default()
         }
     }
 
@@ -157,7 +164,7 @@ impl Analysis for SymmetrizeAnalysis {
 
 pub struct RatioAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 pub struct RatioParams {
     #[serde(flatten)]
     sweep: SweepParams,
@@ -187,11 +194,18 @@ impl Analysis for RatioAnalysis {
                 column("magnetoresistance_unc", F64, None, "standard uncertainty"),
             ],
             summary_keys: vec![
+                column("sample", ColumnType::Str, None, "the sweep's sample"),
+                column("temperature_K", ColumnType::F64, Some("K"), "the sweep's temperature"),
+                column("rho0_method", ColumnType::Str, None, "how rho(0) was obtained"),
+                column("max_field_T", ColumnType::F64, Some("T"), "the largest |B|"),
+                column("max_magnetoresistance", ColumnType::F64, None, "the largest MR"),
+                column("max_magnetoresistance_field_T", ColumnType::F64, Some("T"), "the field of the largest MR"),
                 column("rho0_ohm_sq", F64, Some("ohm_sq"), "zero-field sheet resistivity, with _unc"),
                 column("magnetoresistance_at_max_field", F64, None, "MR at the largest field"),
                 single_field_sign_key(),
             ],
             figures: crate::figures::ratio(),
+            ..Default::default()
         }
     }
 
@@ -235,7 +249,7 @@ impl Analysis for RatioAnalysis {
 
 pub struct KohlerAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 pub struct KohlerParams {
     #[serde(flatten)]
     sweep: SweepParams,
@@ -273,11 +287,22 @@ impl Analysis for KohlerAnalysis {
                 column("used", Bool, None, "inside the common range"),
             ],
             summary_keys: vec![
+                column("sample", ColumnType::Str, None, "the series' sample"),
+                column("temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures of the series"),
+                column("tolerance", ColumnType::F64, None, "the collapse tolerance used"),
+                column("rms_spread", ColumnType::F64, None, "rms spread of ln MR between temperatures"),
+                column("max_excess_spread", ColumnType::F64, None, "largest spread beyond the noise"),
+                column("max_excess_x_T_per_ohm", ColumnType::F64, Some("T_per_ohm"), "B / rho(0) of the largest excess spread"),
+                column("most_deviating_temperature_K", ColumnType::F64, Some("K"), "the temperature that deviates most"),
+                column("failing_ranges", ColumnType::Str, None, "list of the x ranges where the collapse fails"),
+                column("power_laws", ColumnType::Str, None, "list of {temperature_K, exponent, ...}: MR ~ x^exponent per temperature"),
+                column("single_field_sign_temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures measured at one field sign"),
                 column("kohler_holds", Bool, None, "the curves collapse within the tolerance (null when nothing could be judged)"),
                 column("rms_excess_spread", F64, None, "rms spread of ln MR beyond the noise"),
                 single_field_sign_key(),
             ],
             figures: crate::figures::kohler(),
+            ..Default::default()
         }
     }
 
@@ -384,7 +409,7 @@ impl Analysis for KohlerAnalysis {
 
 pub struct TwoBandAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 pub struct TwoBandParams {
     #[serde(flatten)]
     sweep: SweepParams,
@@ -425,6 +450,13 @@ impl Analysis for TwoBandAnalysis {
                 column("residual_xy", F64, None, "whitened residual"),
             ],
             summary_keys: vec![
+                column("sample", ColumnType::Str, None, "the sweep's sample"),
+                column("temperature_K", ColumnType::F64, Some("K"), "the sweep's temperature"),
+                column("chi_square", ColumnType::F64, None, "chi^2 of the fit"),
+                column("degrees_of_freedom", ColumnType::I64, None, "points minus fitted parameters"),
+                column("zero_field_rho_ohm_sq", ColumnType::F64, Some("ohm_sq"), "rho_xx(0) of the fitted bands"),
+                column("low_field_hall_coefficient_m2_per_C", ColumnType::F64, Some("m2_per_C"), "R_H(B -> 0) of the fitted bands"),
+                column("high_field_hall_coefficient_m2_per_C", ColumnType::F64, Some("m2_per_C"), "R_H(B -> infinity) of the fitted bands"),
                 column("carriers", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc"),
                 column("reduced_chi_square", F64, None, "chi^2 / nu of the fit"),
                 column("chi_square_p_value", F64, None, "P(chi^2 >= observed) when the sweep's uncertainties weight the fit, else null"),
@@ -432,6 +464,7 @@ impl Analysis for TwoBandAnalysis {
                 single_field_sign_key(),
             ],
             figures: crate::figures::two_band_fit(),
+            ..Default::default()
         }
     }
 

@@ -10,7 +10,8 @@
 
 use super::*;
 use crate::oscillations::{
-    analyze_oscillations, Background, MassMethod, MassRequest, OscillationError, OscillationSettings, OscillationSweep,
+    analyze_oscillations, Background, MassMethod, MassRequest, OscillationAnalysis, OscillationError,
+    OscillationSettings, OscillationSweep,
 };
 use crate::weak_localization::{fit_weak_localization, WeakLocalizationSettings, WeakLocalizationSweep};
 use mobilis_numerics::fft::Window;
@@ -19,13 +20,15 @@ use mobilis_physics::forward::oscillations::thermal_damping_factor;
 use mobilis_physics::sweep::{symmetrize, SweepUse};
 use mobilis_sdk::abi::AnalysisDeclaration;
 use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
-use mobilis_sdk::sweep_table::{single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature, SweepParams};
+use mobilis_sdk::sweep_table::{
+    single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature, SweepParams, SweepTable,
+};
 use serde::Deserialize;
 use serde_json::{json, Value};
 
 pub struct OscillationsAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 pub struct OscillationParams {
     #[serde(flatten)]
     sweep: SweepParams,
@@ -204,6 +207,19 @@ impl Analysis for OscillationsAnalysis {
                 column("landau_index", F64, None, "Landau level index: integer at minima of rho_xx, half-integer at maxima (landau rows); F_fan / B + beta on landau_fit rows"),
             ],
             summary_keys: vec![
+                column("lines", ColumnType::Str, None, "list of {frequency_T, sheet_density_m2, ...} with _unc: one entry per frequency found"),
+                column("sample", ColumnType::Str, None, "the series' sample"),
+                column("temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures of the series"),
+                column("single_field_sign_temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures measured at one field sign"),
+                column("field_window_T", ColumnType::F64, Some("T"), "[lowest, highest] field analysed"),
+                column("resolution_T", ColumnType::F64, Some("T"), "frequency resolution of the transform"),
+                column("mass_method", ColumnType::Str, None, "how the effective mass was obtained"),
+                column("dingle_reduced_chi_square", ColumnType::F64, None, "chi^2 / nu of the Dingle fit"),
+                column("dingle_chi_square_p_value", ColumnType::F64, None, "P(chi^2 >= observed) of the Dingle fit"),
+                column("dingle_birge_ratio", ColumnType::F64, None, "sqrt(chi^2 / nu) of the Dingle fit when above 1"),
+                column("landau_fan_intercept", ColumnType::F64, None, "intercept of the Landau fan, with _unc"),
+                column("landau_fan_phase_rad", ColumnType::F64, Some("rad"), "Berry-phase offset of the Landau fan"),
+                column("waveform_residual_rms_ohm_sq", ColumnType::F64, Some("ohm_sq"), "rms residual of the waveform fit"),
                 column("frequency_T", F64, Some("T"), "the dominant frequency, with _unc"),
                 column("sheet_density_m2", F64, Some("m2"), "g_s e F / h, with _unc"),
                 column("effective_mass_ratio", F64, None, "m*/m0, with _unc"),
@@ -214,336 +230,403 @@ impl Analysis for OscillationsAnalysis {
                 column("uncertainty_checks", Str, None, "the repeated analyses whose spread is in the _unc_stat parts (JSON list)"),
             ],
             figures: crate::figures::oscillations(),
+            ..Default::default()
         }
     }
 
     fn run(params: OscillationParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
         let tables = sweeps_by_temperature(inputs.required("sweep")?, &params.sweep.grouping())?;
-        let symmetrize_settings = params.sweep.settings();
-        let mut sweeps = Vec::with_capacity(tables.len());
-        let mut sweep_warnings: Vec<String> = Vec::new();
-        let mut single_sign_temperatures: Vec<f64> = Vec::new();
-        for table in &tables {
-            let temperature_k = table
-                .temperature_k
-                .ok_or_else(|| invalid("mr.oscillations needs temperature_K for every sweep"))?;
-            let symmetrized = symmetrize(&table.points, &symmetrize_settings)
-                .map_err(|e| invalid(format!("sweep at {temperature_k} K: {e}")))?;
-            if symmetrized.single_field_sign {
-                single_sign_temperatures.push(temperature_k);
-            }
-            sweep_warnings.extend(table.warnings.iter().cloned());
-            sweep_warnings.extend(
-                symmetrized
-                    .warnings(SweepUse::EvenRhoXx)
-                    .into_iter()
-                    .filter(|w| !w.starts_with("single_field_sign"))
-                    .map(|w| format!("sweep at {temperature_k} K: {w}")),
-            );
-            let (field_t, rho_xx_ohm_sq) = symmetrized
-                .points
-                .iter()
-                .filter(|p| p.field_t > 0.0)
-                .map(|p| (p.field_t, p.rho_xx_ohm_sq))
-                .unzip();
-            sweeps.push(OscillationSweep {
-                temperature_k,
-                field_t,
-                rho_xx_ohm_sq,
-            });
-        }
+        let symmetrized = symmetrized_sweeps(&params, &tables)?;
         host.progress(0.2, "transforming");
         host.check_cancelled()?;
-        let analysis = analyze_oscillations(&sweeps, &params.settings()?).map_err(|error| match error {
+        let analysis = analyze_oscillations(&symmetrized.sweeps, &params.settings()?).map_err(|error| match error {
             OscillationError::Fit { .. } => AnalysisError::Numerical(error.to_string()),
             other => invalid(other.to_string()),
         })?;
+        let mut output = AnalysisOutput::new(oscillation_table(&analysis)?);
+        fill_oscillation_summary(&mut output.summary, &analysis, &tables, &symmetrized.sweeps);
+        super::classical::report_series_field_signs(
+            &mut output,
+            &symmetrized.single_sign_temperatures,
+            symmetrized.warnings,
+        );
+        output.warnings.extend(analysis.warnings.iter().cloned());
+        host.progress(1.0, "done");
+        Ok(output)
+    }
+}
 
-        // One long table, a `kind` per plot.
-        let mut kind: Vec<&str> = Vec::new();
-        let mut cells: [Vec<Option<f64>>; 8] = Default::default();
-        let mut push = |k: &'static str, values: [Option<f64>; 8]| {
-            kind.push(k);
-            for (cell, value) in cells.iter_mut().zip(values) {
-                cell.push(value);
-            }
-        };
-        for curve in &analysis.curves {
-            for i in 0..curve.field_t.len() {
+/// The sweeps symmetrized in field, their positive-field halves ready for the analysis,
+/// with the sweeps' warnings and the temperatures measured on one field sign only.
+struct SymmetrizedSweeps {
+    sweeps: Vec<OscillationSweep>,
+    warnings: Vec<String>,
+    single_sign_temperatures: Vec<f64>,
+}
+
+/// Each sweep symmetrized (rho_xx even in B) and cut to B > 0.
+fn symmetrized_sweeps(params: &OscillationParams, tables: &[SweepTable]) -> Result<SymmetrizedSweeps, AnalysisError> {
+    let symmetrize_settings = params.sweep.settings();
+    let mut sweeps = Vec::with_capacity(tables.len());
+    let mut sweep_warnings: Vec<String> = Vec::new();
+    let mut single_sign_temperatures: Vec<f64> = Vec::new();
+    for table in tables {
+        let temperature_k = table
+            .temperature_k
+            .ok_or_else(|| invalid("mr.oscillations needs temperature_K for every sweep"))?;
+        let symmetrized = symmetrize(&table.points, &symmetrize_settings)
+            .map_err(|e| invalid(format!("sweep at {temperature_k} K: {e}")))?;
+        if symmetrized.single_field_sign {
+            single_sign_temperatures.push(temperature_k);
+        }
+        sweep_warnings.extend(table.warnings.iter().cloned());
+        sweep_warnings.extend(
+            symmetrized
+                .warnings(SweepUse::EvenRhoXx)
+                .into_iter()
+                .filter(|w| !w.starts_with("single_field_sign"))
+                .map(|w| format!("sweep at {temperature_k} K: {w}")),
+        );
+        let (field_t, rho_xx_ohm_sq) = symmetrized
+            .points
+            .iter()
+            .filter(|p| p.field_t > 0.0)
+            .map(|p| (p.field_t, p.rho_xx_ohm_sq))
+            .unzip();
+        sweeps.push(OscillationSweep {
+            temperature_k,
+            field_t,
+            rho_xx_ohm_sq,
+        });
+    }
+    Ok(SymmetrizedSweeps {
+        sweeps,
+        warnings: sweep_warnings,
+        single_sign_temperatures,
+    })
+}
+
+/// The rows of the long table, a `kind` per plot, in the eight shared value columns
+/// (temperature, field, 1/B, frequency, rho_xx, background, value, its uncertainty).
+#[derive(Default)]
+struct PlotRows {
+    kind: Vec<&'static str>,
+    cells: [Vec<Option<f64>>; 8],
+}
+
+impl PlotRows {
+    fn push(&mut self, k: &'static str, values: [Option<f64>; 8]) {
+        self.kind.push(k);
+        for (cell, value) in self.cells.iter_mut().zip(values) {
+            cell.push(value);
+        }
+    }
+}
+
+/// A row of the Dingle plot or the Landau fan: its kind, its shared cells, and its
+/// `dingle_ordinate` and `landau_index`.
+type LineRow = (&'static str, [Option<f64>; 8], Option<f64>, Option<f64>);
+
+/// One long table, a `kind` per plot.
+fn oscillation_table(analysis: &OscillationAnalysis) -> Result<DataFrame, AnalysisError> {
+    let mut rows = PlotRows::default();
+    push_sweep_rows(&mut rows, analysis);
+    push_mass_rows(&mut rows, analysis);
+    // The Dingle plot and the Landau fan come last: their rows alone carry dingle_ordinate
+    // and landau_index. Each has its fitted line as two rows, so that a figure draws the
+    // line the analysis fitted rather than one of its own.
+    let tail = line_rows(analysis);
+    let tail_ordinates: Vec<Option<f64>> = tail.iter().map(|row| row.2).collect();
+    let tail_indices: Vec<Option<f64>> = tail.iter().map(|row| row.3).collect();
+    for (k, values, _, _) in tail {
+        rows.push(k, values);
+    }
+    let PlotRows { kind, cells } = rows;
+    let rows = kind.len();
+    let mut ordinate = vec![None; rows - tail_ordinates.len()];
+    ordinate.extend(tail_ordinates);
+    let mut landau_index = vec![None; rows - tail_indices.len()];
+    landau_index.extend(tail_indices);
+    let [t, b, inv, f, rho, bg, value, unc] = cells;
+    frame(
+        rows,
+        vec![
+            Column::new("kind".into(), kind),
+            optional("temperature_K", t),
+            optional("field_T", b),
+            optional("inverse_field_per_T", inv),
+            optional("frequency_T", f),
+            optional("rho_xx_ohm_sq", rho),
+            optional("background_ohm_sq", bg),
+            optional("value_ohm_sq", value),
+            optional("value_ohm_sq_unc", unc),
+            optional("dingle_ordinate", ordinate),
+            optional("landau_index", landau_index),
+        ],
+    )
+}
+
+/// The oscillation of every sweep and the spectra.
+fn push_sweep_rows(rows: &mut PlotRows, analysis: &OscillationAnalysis) {
+    let mut push = |k: &'static str, values: [Option<f64>; 8]| rows.push(k, values);
+    for curve in &analysis.curves {
+        for i in 0..curve.field_t.len() {
+            push(
+                "oscillation",
+                [
+                    Some(curve.temperature_k),
+                    Some(curve.field_t[i]),
+                    Some(curve.inverse_field_per_t[i]),
+                    None,
+                    Some(curve.rho_xx_ohm_sq[i]),
+                    Some(curve.background_ohm_sq[i]),
+                    Some(curve.oscillation_ohm_sq[i]),
+                    None,
+                ],
+            );
+        }
+    }
+    for spectrum in &analysis.spectra {
+        for (f, a) in spectrum.frequencies_t.iter().zip(&spectrum.amplitudes_ohm_sq) {
+            push(
+                "fft",
+                [
+                    Some(spectrum.temperature_k),
+                    None,
+                    None,
+                    Some(*f),
+                    None,
+                    None,
+                    Some(*a),
+                    None,
+                ],
+            );
+        }
+    }
+}
+
+/// The amplitudes of each narrow window against temperature, with the fitted curve.
+fn push_mass_rows(rows: &mut PlotRows, analysis: &OscillationAnalysis) {
+    let mut push = |k: &'static str, values: [Option<f64>; 8]| rows.push(k, values);
+    if let Some(windows) = &analysis.narrow_windows {
+        for window in &windows.windows {
+            for a in &window.amplitudes {
                 push(
-                    "oscillation",
+                    "mass",
                     [
-                        Some(curve.temperature_k),
-                        Some(curve.field_t[i]),
-                        Some(curve.inverse_field_per_t[i]),
+                        Some(a.temperature_k),
+                        Some(window.effective_field_t),
                         None,
-                        Some(curve.rho_xx_ohm_sq[i]),
-                        Some(curve.background_ohm_sq[i]),
-                        Some(curve.oscillation_ohm_sq[i]),
                         None,
+                        None,
+                        None,
+                        Some(a.amplitude_ohm_sq),
+                        Some(a.amplitude_unc_ohm_sq),
                     ],
                 );
             }
-        }
-        for spectrum in &analysis.spectra {
-            for (f, a) in spectrum.frequencies_t.iter().zip(&spectrum.amplitudes_ohm_sq) {
-                push(
-                    "fft",
-                    [
-                        Some(spectrum.temperature_k),
-                        None,
-                        None,
-                        Some(*f),
-                        None,
-                        None,
-                        Some(*a),
-                        None,
-                    ],
-                );
-            }
-        }
-        if let Some(windows) = &analysis.narrow_windows {
-            for window in &windows.windows {
-                for a in &window.amplitudes {
+            // The fitted curve itself, so that a mass plot draws the fit and not a line
+            // joining the few measured temperatures.
+            if let Some(fit) = &window.fit {
+                let temperatures: Vec<f64> = window.amplitudes.iter().map(|a| a.temperature_k).collect();
+                for temperature_k in mass_fit_temperatures(&temperatures) {
+                    let damping =
+                        thermal_damping_factor(temperature_k, fit.effective_mass_ratio, window.effective_field_t);
                     push(
-                        "mass",
+                        "mass_fit",
                         [
-                            Some(a.temperature_k),
+                            Some(temperature_k),
                             Some(window.effective_field_t),
                             None,
                             None,
                             None,
                             None,
-                            Some(a.amplitude_ohm_sq),
-                            Some(a.amplitude_unc_ohm_sq),
+                            Some(fit.prefactor_ohm_sq * damping),
+                            None,
                         ],
                     );
                 }
-                // The fitted curve itself, so that a mass plot draws the fit and not a line
-                // joining the few measured temperatures.
-                if let Some(fit) = &window.fit {
-                    let temperatures: Vec<f64> = window.amplitudes.iter().map(|a| a.temperature_k).collect();
-                    for temperature_k in mass_fit_temperatures(&temperatures) {
-                        let damping =
-                            thermal_damping_factor(temperature_k, fit.effective_mass_ratio, window.effective_field_t);
-                        push(
-                            "mass_fit",
-                            [
-                                Some(temperature_k),
-                                Some(window.effective_field_t),
-                                None,
-                                None,
-                                None,
-                                None,
-                                Some(fit.prefactor_ohm_sq * damping),
-                                None,
-                            ],
-                        );
-                    }
-                }
             }
         }
-        // The Dingle plot and the Landau fan come last: their rows alone carry dingle_ordinate
-        // and landau_index. Each has its fitted line as two rows, so that a figure draws the
-        // line the analysis fitted rather than one of its own.
-        let mut tail: Vec<(&'static str, [Option<f64>; 8], Option<f64>, Option<f64>)> = Vec::new();
-        let at = |temperature_k: f64, inverse_field: f64, value: Option<f64>, unc: Option<f64>| {
-            [
-                Some(temperature_k),
-                None,
-                Some(inverse_field),
-                None,
-                None,
-                None,
-                value,
-                unc,
-            ]
-        };
-        if let Some(dingle) = &analysis.dingle {
-            for point in &dingle.points {
-                tail.push((
-                    "dingle",
-                    at(
-                        dingle.temperature_k,
-                        point.inverse_field_per_t,
-                        Some(point.amplitude_ohm_sq),
-                        Some(point.amplitude_unc_ohm_sq),
-                    ),
-                    Some(point.ordinate),
-                    None,
-                ));
-            }
-            // ln(A sinh X / X) = intercept + slope / B across the windows.
-            let (first, last) = span(dingle.points.iter().map(|p| p.inverse_field_per_t));
-            for x in [first, last] {
-                tail.push((
-                    "dingle_fit",
-                    at(dingle.temperature_k, x, None, None),
-                    Some(dingle.intercept + dingle.slope_t * x),
-                    None,
-                ));
-            }
-        }
-        if let Some(fan) = &analysis.landau_fan {
-            for point in &fan.points {
-                tail.push((
-                    "landau",
-                    at(fan.temperature_k, point.inverse_field_per_t, None, None),
-                    None,
-                    Some(point.index),
-                ));
-            }
-            // index = F_fan / B + beta, from 1/B = 0 (where the intercept beta is read) to the
-            // last extremum.
-            let (_, last) = span(fan.points.iter().map(|p| p.inverse_field_per_t));
-            for x in [0.0, last] {
-                tail.push((
-                    "landau_fit",
-                    at(fan.temperature_k, x, None, None),
-                    None,
-                    Some(fan.frequency_t * x + fan.intercept),
-                ));
-            }
-        }
-        let tail_ordinates: Vec<Option<f64>> = tail.iter().map(|row| row.2).collect();
-        let tail_indices: Vec<Option<f64>> = tail.iter().map(|row| row.3).collect();
-        for (k, values, _, _) in tail {
-            push(k, values);
-        }
-        let rows = kind.len();
-        let mut ordinate = vec![None; rows - tail_ordinates.len()];
-        ordinate.extend(tail_ordinates);
-        let mut landau_index = vec![None; rows - tail_indices.len()];
-        landau_index.extend(tail_indices);
-        let [t, b, inv, f, rho, bg, value, unc] = cells;
-        let table = frame(
-            rows,
-            vec![
-                Column::new("kind".into(), kind),
-                optional("temperature_K", t),
-                optional("field_T", b),
-                optional("inverse_field_per_T", inv),
-                optional("frequency_T", f),
-                optional("rho_xx_ohm_sq", rho),
-                optional("background_ohm_sq", bg),
-                optional("value_ohm_sq", value),
-                optional("value_ohm_sq_unc", unc),
-                optional("dingle_ordinate", ordinate),
-                optional("landau_index", landau_index),
-            ],
-        )?;
+    }
+}
 
-        let summary_values = analysis.summary();
-        let mut output = AnalysisOutput::new(table);
-        let summary = &mut output.summary;
-        if let Some(sample) = &tables[0].sample {
-            summary.insert("sample".into(), json!(sample));
+/// The Dingle plot's and the Landau fan's points and fitted lines.
+fn line_rows(analysis: &OscillationAnalysis) -> Vec<LineRow> {
+    let mut tail: Vec<LineRow> = Vec::new();
+    let at = |temperature_k: f64, inverse_field: f64, value: Option<f64>, unc: Option<f64>| {
+        [
+            Some(temperature_k),
+            None,
+            Some(inverse_field),
+            None,
+            None,
+            None,
+            value,
+            unc,
+        ]
+    };
+    if let Some(dingle) = &analysis.dingle {
+        for point in &dingle.points {
+            tail.push((
+                "dingle",
+                at(
+                    dingle.temperature_k,
+                    point.inverse_field_per_t,
+                    Some(point.amplitude_ohm_sq),
+                    Some(point.amplitude_unc_ohm_sq),
+                ),
+                Some(point.ordinate),
+                None,
+            ));
         }
-        summary.insert(
-            "temperatures_K".into(),
-            json!(sweeps.iter().map(|s| s.temperature_k).collect::<Vec<_>>()),
-        );
-        summary.insert("frequency_T".into(), json!(summary_values.frequency_t));
-        summary.insert("frequency_T_unc".into(), json!(summary_values.frequency_unc_t));
-        summary.insert("sheet_density_m2".into(), json!(summary_values.sheet_density_m2));
-        summary.insert(
-            "sheet_density_m2_unc".into(),
-            json!(summary_values.sheet_density_unc_m2),
-        );
-        summary.insert(
-            "effective_mass_ratio".into(),
-            json!(summary_values.effective_mass_ratio),
-        );
-        summary.insert(
-            "effective_mass_ratio_unc".into(),
-            json!(summary_values.effective_mass_ratio_unc),
-        );
-        summary.insert("mass_method".into(), json!(summary_values.mass_method));
-        summary.insert(
-            "dingle_temperature_K".into(),
-            json!(summary_values.dingle_temperature_k),
-        );
-        summary.insert(
-            "dingle_temperature_K_unc".into(),
-            json!(summary_values.dingle_temperature_unc_k),
-        );
-        // The budget: _unc the total, _unc_stat (the fit's scatter-scaled error and the spread
-        // over backgrounds and windows), _unc_sys (the stated calibrations), and the parts of
-        // the statistical one.
-        for (key, budget) in [
-            ("frequency_T", summary_values.frequency_budget),
-            ("sheet_density_m2", summary_values.sheet_density_budget),
-            ("effective_mass_ratio", summary_values.effective_mass_budget),
-            ("dingle_temperature_K", summary_values.dingle_temperature_budget),
-        ] {
-            if let Some(budget) = budget {
-                summary.insert(format!("{key}_unc_stat"), json!(budget.statistical));
-                summary.insert(format!("{key}_unc_sys"), json!(budget.systematic));
-                summary.insert(format!("{key}_unc_fit"), json!(budget.fit));
-                summary.insert(format!("{key}_unc_analysis_spread"), json!(budget.analysis_spread));
-            }
+        // ln(A sinh X / X) = intercept + slope / B across the windows.
+        let (first, last) = span(dingle.points.iter().map(|p| p.inverse_field_per_t));
+        for x in [first, last] {
+            tail.push((
+                "dingle_fit",
+                at(dingle.temperature_k, x, None, None),
+                Some(dingle.intercept + dingle.slope_t * x),
+                None,
+            ));
         }
-        summary.insert(
-            "calibrations_not_stated".into(),
-            json!(analysis.budget.calibrations_not_stated),
-        );
-        summary.insert("uncertainty_checks".into(), json!(analysis.budget.variants));
-        if let Some(plot) = &analysis.dingle {
-            // The Dingle line is weighted by its windows' amplitude errors; its slope's error
-            // was scaled by the Birge ratio when chi^2 / nu > 1.
-            let nu = plot.points.len().saturating_sub(2);
-            let quality = FitQuality::assess(plot.reduced_chi_square * nu as f64, nu);
-            summary.insert(
-                "dingle_reduced_chi_square".into(),
-                json!(finite_or_null(quality.reduced_chi_square)),
-            );
-            summary.insert(
-                "dingle_chi_square_p_value".into(),
-                json!(finite_or_null(quality.p_value)),
-            );
-            summary.insert("dingle_birge_ratio".into(), json!(quality.birge_ratio));
+    }
+    if let Some(fan) = &analysis.landau_fan {
+        for point in &fan.points {
+            tail.push((
+                "landau",
+                at(fan.temperature_k, point.inverse_field_per_t, None, None),
+                None,
+                Some(point.index),
+            ));
         }
-        if let Some(fit) = &analysis.waveform {
-            // The waveform fit weights every point alike and scales its errors by the
-            // residual scatter: its reduced chi-square is that scatter's variance.
-            summary.insert(
-                "waveform_residual_rms_ohm_sq".into(),
-                json!(fit.reduced_chi_square.max(0.0).sqrt()),
-            );
+        // index = F_fan / B + beta, from 1/B = 0 (where the intercept beta is read) to the
+        // last extremum.
+        let (_, last) = span(fan.points.iter().map(|p| p.inverse_field_per_t));
+        for x in [0.0, last] {
+            tail.push((
+                "landau_fit",
+                at(fan.temperature_k, x, None, None),
+                None,
+                Some(fan.frequency_t * x + fan.intercept),
+            ));
         }
-        summary.insert("quantum_lifetime_s".into(), json!(summary_values.quantum_lifetime_s));
-        summary.insert(
-            "quantum_lifetime_s_unc".into(),
-            json!(summary_values.quantum_lifetime_unc_s),
-        );
-        summary.insert(
-            "field_window_T".into(),
-            json!([analysis.field_window_t.0, analysis.field_window_t.1]),
-        );
-        summary.insert("resolution_T".into(), json!(analysis.resolution_t));
-        summary.insert(
-            "lines".into(),
-            Value::Array(
-                analysis
-                    .lines
-                    .iter()
-                    .map(|l| {
-                        json!({"frequency_T": l.frequency_t, "frequency_T_unc": l.frequency_unc_t, "amplitude_ohm_sq": l.amplitude_ohm_sq,
-                               "sheet_density_m2": l.sheet_density_m2, "sheet_density_m2_unc": l.sheet_density_unc_m2,
-                               "periods_in_window": l.periods_in_window, "harmonic_of": l.harmonic_of.map(|(line, order)| json!([line, order]))})
-                    })
-                    .collect(),
-            ),
-        );
-        if let Some(fan) = &analysis.landau_fan {
-            summary.insert("landau_fan_intercept".into(), json!(fan.intercept));
-            summary.insert("landau_fan_intercept_unc".into(), json!(fan.intercept_unc));
-            summary.insert("landau_fan_phase_rad".into(), json!(fan.phase_rad));
+    }
+    tail
+}
+
+/// The summary: the strongest line's numbers with their budgets, the quality of the
+/// Dingle and waveform fits, the lines and the fan.
+fn fill_oscillation_summary(
+    summary: &mut serde_json::Map<String, Value>,
+    analysis: &OscillationAnalysis,
+    tables: &[SweepTable],
+    sweeps: &[OscillationSweep],
+) {
+    let summary_values = analysis.summary();
+    if let Some(sample) = &tables[0].sample {
+        summary.insert("sample".into(), json!(sample));
+    }
+    summary.insert(
+        "temperatures_K".into(),
+        json!(sweeps.iter().map(|s| s.temperature_k).collect::<Vec<_>>()),
+    );
+    summary.insert("frequency_T".into(), json!(summary_values.frequency_t));
+    summary.insert("frequency_T_unc".into(), json!(summary_values.frequency_unc_t));
+    summary.insert("sheet_density_m2".into(), json!(summary_values.sheet_density_m2));
+    summary.insert(
+        "sheet_density_m2_unc".into(),
+        json!(summary_values.sheet_density_unc_m2),
+    );
+    summary.insert(
+        "effective_mass_ratio".into(),
+        json!(summary_values.effective_mass_ratio),
+    );
+    summary.insert(
+        "effective_mass_ratio_unc".into(),
+        json!(summary_values.effective_mass_ratio_unc),
+    );
+    summary.insert("mass_method".into(), json!(summary_values.mass_method));
+    summary.insert(
+        "dingle_temperature_K".into(),
+        json!(summary_values.dingle_temperature_k),
+    );
+    summary.insert(
+        "dingle_temperature_K_unc".into(),
+        json!(summary_values.dingle_temperature_unc_k),
+    );
+    // The budget: _unc the total, _unc_stat (the fit's scatter-scaled error and the spread
+    // over backgrounds and windows), _unc_sys (the stated calibrations), and the parts of
+    // the statistical one.
+    for (key, budget) in [
+        ("frequency_T", summary_values.frequency_budget),
+        ("sheet_density_m2", summary_values.sheet_density_budget),
+        ("effective_mass_ratio", summary_values.effective_mass_budget),
+        ("dingle_temperature_K", summary_values.dingle_temperature_budget),
+    ] {
+        if let Some(budget) = budget {
+            summary.insert(format!("{key}_unc_stat"), json!(budget.statistical));
+            summary.insert(format!("{key}_unc_sys"), json!(budget.systematic));
+            summary.insert(format!("{key}_unc_fit"), json!(budget.fit));
+            summary.insert(format!("{key}_unc_analysis_spread"), json!(budget.analysis_spread));
         }
-        super::classical::report_series_field_signs(&mut output, &single_sign_temperatures, sweep_warnings);
-        output.warnings.extend(analysis.warnings.iter().cloned());
-        host.progress(1.0, "done");
-        Ok(output)
+    }
+    summary.insert(
+        "calibrations_not_stated".into(),
+        json!(analysis.budget.calibrations_not_stated),
+    );
+    summary.insert("uncertainty_checks".into(), json!(analysis.budget.variants));
+    if let Some(plot) = &analysis.dingle {
+        // The Dingle line is weighted by its windows' amplitude errors; its slope's error
+        // was scaled by the Birge ratio when chi^2 / nu > 1.
+        let nu = plot.points.len().saturating_sub(2);
+        let quality = FitQuality::assess(plot.reduced_chi_square * nu as f64, nu);
+        summary.insert(
+            "dingle_reduced_chi_square".into(),
+            json!(finite_or_null(quality.reduced_chi_square)),
+        );
+        summary.insert(
+            "dingle_chi_square_p_value".into(),
+            json!(finite_or_null(quality.p_value)),
+        );
+        summary.insert("dingle_birge_ratio".into(), json!(quality.birge_ratio));
+    }
+    if let Some(fit) = &analysis.waveform {
+        // The waveform fit weights every point alike and scales its errors by the
+        // residual scatter: its reduced chi-square is that scatter's variance.
+        summary.insert(
+            "waveform_residual_rms_ohm_sq".into(),
+            json!(fit.reduced_chi_square.max(0.0).sqrt()),
+        );
+    }
+    summary.insert("quantum_lifetime_s".into(), json!(summary_values.quantum_lifetime_s));
+    summary.insert(
+        "quantum_lifetime_s_unc".into(),
+        json!(summary_values.quantum_lifetime_unc_s),
+    );
+    summary.insert(
+        "field_window_T".into(),
+        json!([analysis.field_window_t.0, analysis.field_window_t.1]),
+    );
+    summary.insert("resolution_T".into(), json!(analysis.resolution_t));
+    summary.insert(
+        "lines".into(),
+        Value::Array(
+            analysis
+                .lines
+                .iter()
+                .map(|l| {
+                    json!({"frequency_T": l.frequency_t, "frequency_T_unc": l.frequency_unc_t, "amplitude_ohm_sq": l.amplitude_ohm_sq,
+                           "sheet_density_m2": l.sheet_density_m2, "sheet_density_m2_unc": l.sheet_density_unc_m2,
+                           "periods_in_window": l.periods_in_window, "harmonic_of": l.harmonic_of.map(|(line, order)| json!([line, order]))})
+                })
+                .collect(),
+        ),
+    );
+    if let Some(fan) = &analysis.landau_fan {
+        summary.insert("landau_fan_intercept".into(), json!(fan.intercept));
+        summary.insert("landau_fan_intercept_unc".into(), json!(fan.intercept_unc));
+        summary.insert("landau_fan_phase_rad".into(), json!(fan.phase_rad));
     }
 }
 
@@ -576,7 +659,7 @@ fn mass_fit_temperatures(measured_k: &[f64]) -> Vec<f64> {
 
 pub struct WeakLocalizationAnalysis;
 
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct WeakLocalizationParams {
     #[serde(rename = "max_field_T", default)]
@@ -628,6 +711,12 @@ impl Analysis for WeakLocalizationAnalysis {
                 column("fitted", Bool, None, "inside the fitted range"),
             ],
             summary_keys: vec![
+                column("sample", ColumnType::Str, None, "the sweep's sample"),
+                column("temperature_K", ColumnType::F64, Some("K"), "the sweep's temperature"),
+                column("phase_coherence_field_T", ColumnType::F64, Some("T"), "B_phi = hbar / (4 e l_phi^2)"),
+                column("zero_field_conductance_S", ColumnType::F64, Some("S"), "sigma(0) of the fitted sweep"),
+                column("classical_S_per_T2", ColumnType::F64, Some("S_per_T2"), "coefficient of the classical B^2 term, null when not fitted"),
+                column("fitted_points", ColumnType::I64, None, "points fitted"),
                 column("phase_coherence_length_m", F64, Some("m"), "l_phi, with _unc"),
                 column("alpha", F64, None, "HLN prefactor (-1/2 for one channel with strong spin-orbit coupling), with _unc"),
                 super::classical::single_field_sign_key(),
@@ -636,6 +725,7 @@ impl Analysis for WeakLocalizationAnalysis {
                 column("birge_ratio", F64, None, "sqrt(chi^2 / nu) when above 1 (the uncertainties were multiplied by it), else 1; null without stated uncertainties"),
             ],
             figures: crate::figures::weak_localization(),
+            ..Default::default()
         }
     }
 

@@ -128,7 +128,7 @@ fn expected_noise_norm(fields: &[f64], uncertainties: &[(f64, f64)]) -> f64 {
 
 impl Envelope {
     /// Factors the data's Pick matrix loaded by the norm of the residuals' Pick matrix.
-    /// `fitted` is the tensor of the quantitative spectrum at each point.
+    /// `fitted` is the tensor of the regularized spectrum at each point.
     pub fn new(data: &Data, fitted: &[(f64, f64)], cancelled: &dyn Fn() -> bool) -> Result<Self, SpectrumError> {
         let n = data.fields.len();
         let scales = &data.noise_scale;

@@ -356,11 +356,11 @@ fn envelope_with_one_field_is_the_closed_form() {
 }
 
 #[test]
-fn envelope_of_noisy_data_bounds_the_truth_and_the_quantitative_spectrum() {
+fn envelope_of_noisy_data_bounds_the_truth_and_the_regularized_spectrum() {
     let carriers = [Carrier::electron(5e15, 1.2), Carrier::hole(2e16, 0.08)];
     let points = measured(&carriers, 9.0, 60, 1e-3, 5);
     let result = mobility_spectrum(&points, &SpectrumSettings::default(), &Unmonitored).unwrap();
-    // Every grid carrier of the quantitative spectrum is under the envelope (guaranteed by
+    // Every grid carrier of the regularized spectrum is under the envelope (guaranteed by
     // the loading; 1e-9 for rounding).
     for spectrum in [&result.electron, &result.hole] {
         for (x, bound) in spectrum.conductance_s.iter().zip(&spectrum.envelope_s) {

@@ -16,7 +16,7 @@ use super::{Calibration, FittedCarrier, MultiCarrierFit, SWEEP_RELATIVE_UNCERTAI
 
 /// The budget's parameters as both spectrum analyses take them (flattened into their
 /// parameters; `schema_properties` declares them).
-#[derive(Debug, Default, serde::Deserialize)]
+#[derive(Debug, Default, serde::Deserialize, schemars::JsonSchema)]
 pub struct BudgetParams {
     #[serde(default)]
     pub relative_uncertainty_floor: Option<f64>,

@@ -33,6 +33,7 @@ pub use figure::Figure;
 pub use mobilis_sdk::abi::FigureSpec;
 pub use options::PlotOptions;
 pub use recipes::MAX_SERIES;
+pub use svg::escape;
 
 /// A plot kind as listed to clients.
 #[derive(Debug, Clone, PartialEq, Eq)]

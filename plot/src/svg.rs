@@ -34,8 +34,11 @@ const MARKER: f64 = 4.2;
 const AXIS_COLOR: &str = "#2b2b2b";
 const GRID_COLOR: &str = "#e3e6ea";
 
-/// Escapes text for XML content and attribute values.
-pub(crate) fn escape(text: &str) -> String {
+/// Escapes text for XML and HTML content and attribute values: the five markup characters
+/// become references, and control characters other than newline and tab become spaces
+/// (XML 1.0 forbids them, section 2.2). `'` is written `&#39;`, which HTML 4 and every XML
+/// parser accept, so the report's HTML and the figures' SVG share this one escaper.
+pub fn escape(text: &str) -> String {
     let mut out = String::with_capacity(text.len());
     for c in text.chars() {
         match c {
@@ -43,7 +46,7 @@ pub(crate) fn escape(text: &str) -> String {
             '<' => out.push_str("&lt;"),
             '>' => out.push_str("&gt;"),
             '"' => out.push_str("&quot;"),
-            '\'' => out.push_str("&apos;"),
+            '\'' => out.push_str("&#39;"),
             c if (c as u32) < 0x20 && c != '\n' && c != '\t' => out.push(' '),
             c => out.push(c),
         }

@@ -67,8 +67,6 @@
 #[cfg(test)]
 mod tests;
 
-use std::fmt;
-
 use mobilis_numerics::fit::{
     effective_uncertainty, fit_line, floored_relative_uncertainty, FitError, FitQuality, LineFit,
     RELATIVE_UNCERTAINTY_FLOOR,
@@ -234,51 +232,28 @@ pub struct ArrheniusFit {
 }
 
 /// Why `fit_arrhenius` refuses its input.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
 #[non_exhaustive]
 pub enum ArrheniusError {
+    #[error("{0}")]
     Series(SeriesError),
+    #[error("{setting} is {value}; {requirement}")]
     InvalidSetting {
         setting: &'static str,
         value: f64,
         requirement: &'static str,
     },
     /// The automatic rule found no steady freeze-out window.
-    NoFreezeOutRange {
-        candidates: usize,
-        min_points: usize,
-    },
+    #[error(
+        "no steady freeze-out range of {min_points} or more temperatures was found ({candidates} temperatures lie well below the saturation density); give temperature_min_K and temperature_max_K, or relax slope_spread or plateau_fraction"
+    )]
+    NoFreezeOutRange { candidates: usize, min_points: usize },
     /// Too few distinct temperatures in the range.
-    TooFewPointsInRange {
-        count: usize,
-        required: usize,
-    },
+    #[error("the range holds {count} distinct temperatures; give a range with at least {required}")]
+    TooFewPointsInRange { count: usize, required: usize },
+    #[error("the Arrhenius line could not be fitted: {0}")]
     Fit(FitError),
 }
-
-impl fmt::Display for ArrheniusError {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        match self {
-            ArrheniusError::Series(error) => error.fmt(f),
-            ArrheniusError::InvalidSetting {
-                setting,
-                value,
-                requirement,
-            } => write!(f, "{setting} is {value}; {requirement}"),
-            ArrheniusError::NoFreezeOutRange { candidates, min_points } => write!(
-                f,
-                "no steady freeze-out range of {min_points} or more temperatures was found ({candidates} temperatures lie well below the saturation density); give temperature_min_K and temperature_max_K, or relax slope_spread or plateau_fraction"
-            ),
-            ArrheniusError::TooFewPointsInRange { count, required } => write!(
-                f,
-                "the range holds {count} distinct temperatures; give a range with at least {required}"
-            ),
-            ArrheniusError::Fit(error) => write!(f, "the Arrhenius line could not be fitted: {error}"),
-        }
-    }
-}
-
-impl std::error::Error for ArrheniusError {}
 
 impl From<SeriesError> for ArrheniusError {
     fn from(error: SeriesError) -> Self {

@@ -31,8 +31,6 @@
 //! before relying on it, and override it where the lab has better values. Every field is
 //! public and [`MaterialOverrides`] replaces any of them.
 
-use std::fmt;
-
 use crate::carrier_type::CarrierType;
 use mobilis_physics::constants::{BOLTZMANN_J_PER_K, ELECTRON_MASS_KG, PLANCK_J_S};
 use mobilis_physics::forward::statistics::{BandModel, DOS_REFERENCE_TEMPERATURE_K};
@@ -533,37 +531,24 @@ pub fn effective_dos_for_mass_300k_m3(mass_ratio: f64) -> f64 {
 }
 
 /// Why a material cannot be built.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
 #[non_exhaustive]
 pub enum MaterialError {
     /// No preset of that name.
+    #[error(
+        "no material preset is called {:?}; choose one of {} or give every band parameter explicitly",
+        .0,
+        PRESET_NAMES.join(", ")
+    )]
     UnknownPreset(String),
     /// A field is out of range.
+    #[error("material {field} is {value}; {requirement}")]
     InvalidValue {
         field: &'static str,
         value: f64,
         requirement: &'static str,
     },
 }
-
-impl fmt::Display for MaterialError {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        match self {
-            MaterialError::UnknownPreset(name) => write!(
-                f,
-                "no material preset is called {name:?}; choose one of {} or give every band parameter explicitly",
-                PRESET_NAMES.join(", ")
-            ),
-            MaterialError::InvalidValue {
-                field,
-                value,
-                requirement,
-            } => write!(f, "material {field} is {value}; {requirement}"),
-        }
-    }
-}
-
-impl std::error::Error for MaterialError {}
 
 #[cfg(test)]
 mod tests {

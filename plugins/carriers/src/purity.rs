@@ -63,8 +63,6 @@
 //! none, so only a reference above it can disagree. The issue that prompted this measured
 //! N_I at 0.05 of the doping there: that was the bound, not a measurement.
 
-use std::fmt;
-
 pub use crate::freeze_out::CarrierType;
 use crate::freeze_out::FreezeOutFit;
 
@@ -83,30 +81,17 @@ impl Estimate {
 }
 
 /// Why a purity summary or a comparison is refused.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
 #[non_exhaustive]
 pub enum PurityError {
     /// A density, uncertainty, covariance or tolerance is outside its range.
+    #[error("{name} is {value}; {requirement}")]
     InvalidInput {
         name: &'static str,
         value: f64,
         requirement: &'static str,
     },
 }
-
-impl fmt::Display for PurityError {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        match self {
-            PurityError::InvalidInput {
-                name,
-                value,
-                requirement,
-            } => write!(f, "{name} is {value}; {requirement}"),
-        }
-    }
-}
-
-impl std::error::Error for PurityError {}
 
 fn check(name: &'static str, value: f64, ok: bool, requirement: &'static str) -> Result<(), PurityError> {
     if ok && value.is_finite() {

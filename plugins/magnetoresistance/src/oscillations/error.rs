@@ -1,21 +1,22 @@
 //! Why an oscillation analysis is refused or fails.
 //!
 //! Every message names what is wrong (the 0-based sweep and point, the value, the window)
-//! and what to change. `Display` is written by hand, as in the other plugins.
-
-use std::fmt;
+//! and what to change. `Display` is derived with `thiserror`, as in the other plugins.
 
 use mobilis_numerics::fit::FitError;
 
 /// Why [`super::analyze_oscillations`] refuses its input or finds no result.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
 #[non_exhaustive]
 pub enum OscillationError {
     /// No sweep was given.
+    #[error("no sweep was given; give at least one rho_xx(B) sweep (several temperatures for an effective mass)")]
     NoSweeps,
     /// The field and rho_xx columns of a sweep differ in length.
+    #[error("sweep {sweep} has {fields} fields but {values} rho_xx values; give one rho_xx per field")]
     LengthMismatch { sweep: usize, fields: usize, values: usize },
     /// A value is NaN or infinite.
+    #[error("sweep {sweep}, point {index}: {column} is {value}; give a finite number or drop the point")]
     NonFinite {
         sweep: usize,
         index: usize,
@@ -23,18 +24,29 @@ pub enum OscillationError {
         value: f64,
     },
     /// A sweep's temperature is not finite and positive.
+    #[error("sweep {sweep} has temperature {value} K; give the finite positive temperature of the measurement")]
     InvalidTemperature { sweep: usize, value: f64 },
     /// The fields of a sweep do not increase (or decrease) strictly.
+    #[error(
+        "sweep {sweep}: the field at point {index} ({field_t} T) breaks the order of the fields (they must increase or decrease strictly, without repeats); give one branch sorted by field, such as the output of mr.symmetrize"
+    )]
     NonMonotonic { sweep: usize, index: usize, field_t: f64 },
     /// A setting out of its range.
+    #[error("setting {name} is {value}; {requirement}")]
     InvalidSetting {
         name: &'static str,
         value: f64,
         requirement: &'static str,
     },
     /// The field window is empty or reaches zero field.
+    #[error(
+        "the field window [{field_min_t}, {field_max_t}] T is empty or reaches zero field, where 1/B diverges; give 0 < field_min_t < field_max_t"
+    )]
     InvalidWindow { field_min_t: f64, field_max_t: f64 },
     /// Too few points of a sweep inside the field window.
+    #[error(
+        "sweep {sweep} has {points} points in the field window [{field_min_t}, {field_max_t}] T, fewer than the {required} the analysis needs; widen the window or give a denser sweep"
+    )]
     TooFewPoints {
         sweep: usize,
         points: usize,
@@ -43,6 +55,9 @@ pub enum OscillationError {
         field_max_t: f64,
     },
     /// The window does not hold the required number of periods of the strongest component.
+    #[error(
+        "the strongest oscillation (about {frequency_t:.3} T) completes only {periods:.2} periods over the 1/B range of the window ({inverse_span_per_t:.4} 1/T), fewer than {required}; widen the field window (a lower field_min_t) so that it holds at least {required} periods"
+    )]
     TooFewPeriods {
         frequency_t: f64,
         periods: f64,
@@ -50,6 +65,9 @@ pub enum OscillationError {
         inverse_span_per_t: f64,
     },
     /// No peak of the spectrum stands out of the noise above the lowest resolvable frequency.
+    #[error(
+        "no peak of the spectrum between {lowest_frequency_t:.3} T and {highest_frequency_t:.3} T stands out of the noise (best peak {best_ratio:.2} times the median, {required_ratio} needed); frequencies below {lowest_frequency_t:.3} T complete fewer than the required periods in the window, so widen the field window (a lower field_min_t), or lower min_peak_ratio if the oscillation is weak"
+    )]
     NoOscillation {
         lowest_frequency_t: f64,
         highest_frequency_t: f64,
@@ -57,93 +75,17 @@ pub enum OscillationError {
         required_ratio: f64,
     },
     /// A mass was asked for but every sweep is at one temperature.
+    #[error(
+        "an effective mass needs sweeps at two or more temperatures, but all {sweeps} sweep(s) are at {temperature_k} K; add sweeps at other temperatures, give a known effective_mass_ratio, or do not ask for the mass"
+    )]
     SingleTemperature { temperature_k: f64, sweeps: usize },
     /// A least-squares fit failed.
+    #[error("the {what} failed: {error}")]
     Fit { what: &'static str, error: FitError },
     /// A mass was asked for but neither method gave one; the reasons are the warnings.
+    #[error(
+        "neither the waveform fit nor the narrow windows gave an effective mass ({}); widen the field window, add temperatures where the oscillation is still visible, or do not ask for the mass",
+        .reasons.join("; ")
+    )]
     MassNotDetermined { reasons: Vec<String> },
 }
-
-impl fmt::Display for OscillationError {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        match self {
-            OscillationError::NoSweeps => write!(
-                f,
-                "no sweep was given; give at least one rho_xx(B) sweep (several temperatures for an effective mass)"
-            ),
-            OscillationError::LengthMismatch { sweep, fields, values } => write!(
-                f,
-                "sweep {sweep} has {fields} fields but {values} rho_xx values; give one rho_xx per field"
-            ),
-            OscillationError::NonFinite {
-                sweep,
-                index,
-                column,
-                value,
-            } => write!(
-                f,
-                "sweep {sweep}, point {index}: {column} is {value}; give a finite number or drop the point"
-            ),
-            OscillationError::InvalidTemperature { sweep, value } => write!(
-                f,
-                "sweep {sweep} has temperature {value} K; give the finite positive temperature of the measurement"
-            ),
-            OscillationError::NonMonotonic { sweep, index, field_t } => write!(
-                f,
-                "sweep {sweep}: the field at point {index} ({field_t} T) breaks the order of the fields (they must increase or decrease strictly, without repeats); give one branch sorted by field, such as the output of mr.symmetrize"
-            ),
-            OscillationError::InvalidSetting {
-                name,
-                value,
-                requirement,
-            } => write!(f, "setting {name} is {value}; {requirement}"),
-            OscillationError::InvalidWindow {
-                field_min_t,
-                field_max_t,
-            } => write!(
-                f,
-                "the field window [{field_min_t}, {field_max_t}] T is empty or reaches zero field, where 1/B diverges; give 0 < field_min_t < field_max_t"
-            ),
-            OscillationError::TooFewPoints {
-                sweep,
-                points,
-                required,
-                field_min_t,
-                field_max_t,
-            } => write!(
-                f,
-                "sweep {sweep} has {points} points in the field window [{field_min_t}, {field_max_t}] T, fewer than the {required} the analysis needs; widen the window or give a denser sweep"
-            ),
-            OscillationError::TooFewPeriods {
-                frequency_t,
-                periods,
-                required,
-                inverse_span_per_t,
-            } => write!(
-                f,
-                "the strongest oscillation (about {frequency_t:.3} T) completes only {periods:.2} periods over the 1/B range of the window ({inverse_span_per_t:.4} 1/T), fewer than {required}; widen the field window (a lower field_min_t) so that it holds at least {required} periods"
-            ),
-            OscillationError::NoOscillation {
-                lowest_frequency_t,
-                highest_frequency_t,
-                best_ratio,
-                required_ratio,
-            } => write!(
-                f,
-                "no peak of the spectrum between {lowest_frequency_t:.3} T and {highest_frequency_t:.3} T stands out of the noise (best peak {best_ratio:.2} times the median, {required_ratio} needed); frequencies below {lowest_frequency_t:.3} T complete fewer than the required periods in the window, so widen the field window (a lower field_min_t), or lower min_peak_ratio if the oscillation is weak"
-            ),
-            OscillationError::SingleTemperature { temperature_k, sweeps } => write!(
-                f,
-                "an effective mass needs sweeps at two or more temperatures, but all {sweeps} sweep(s) are at {temperature_k} K; add sweeps at other temperatures, give a known effective_mass_ratio, or do not ask for the mass"
-            ),
-            OscillationError::Fit { what, error } => write!(f, "the {what} failed: {error}"),
-            OscillationError::MassNotDetermined { reasons } => write!(
-                f,
-                "neither the waveform fit nor the narrow windows gave an effective mass ({}); widen the field window, add temperatures where the oscillation is still visible, or do not ask for the mass",
-                reasons.join("; ")
-            ),
-        }
-    }
-}
-
-impl std::error::Error for OscillationError {}

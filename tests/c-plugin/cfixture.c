@@ -1,5 +1,5 @@
 /*
- * cfixture: a mobilis plugin written in plain C99 against sdk/include/mobilis_plugin.h
+ * cfixture: a mobilis plugin written in plain C99 against core/sdk/include/mobilis_plugin.h
  * and the Arrow C Data Interface specification alone, with no Rust and no Arrow library.
  * It proves that the plugin boundary is a C ABI, not a Rust one.
  *

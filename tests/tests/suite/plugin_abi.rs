@@ -57,7 +57,7 @@ fn build_c_plugin(dir: &Path, name: &str, defines: &[(&str, Option<&str>)]) -> P
     let source = workspace_root().join("tests/c-plugin/cfixture.c");
     let mut build = cc::Build::new();
     build
-        .include(workspace_root().join("sdk/include"))
+        .include(workspace_root().join("core/sdk/include"))
         .std("c99")
         // The plugin is meant as an example of clean C: any warning fails the test.
         .warnings(true)

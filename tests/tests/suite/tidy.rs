@@ -25,10 +25,8 @@ fn rust_files(directory: &Path, found: &mut Vec<PathBuf>) {
 }
 
 /// The folders of the workspace that hold Rust sources.
-const SOURCE_FOLDERS: [&str; 11] = [
-    "numerics",
-    "physics",
-    "sdk",
+const SOURCE_FOLDERS: [&str; 9] = [
+    "core",
     "protocol",
     "rpc",
     "plot",

@@ -34,7 +34,7 @@ fn build_fixture(dir: &Path, name: &str, defines: &[(&str, Option<&str>)]) -> Pa
     let source = workspace_root().join("tests/c-plugin/cfixture.c");
     let mut build = cc::Build::new();
     build
-        .include(workspace_root().join("sdk/include"))
+        .include(workspace_root().join("core/sdk/include"))
         .std("c99")
         .warnings(true)
         .warnings_into_errors(true)

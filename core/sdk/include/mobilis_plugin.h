@@ -1,5 +1,5 @@
 /*
- * mobilis plugin ABI, version 1.1: the C view of sdk/src/abi.rs.
+ * mobilis plugin ABI, version 1.1: the C view of core/sdk/src/abi.rs.
  *
  * A plugin is a shared library exporting one function:
  *
@@ -38,11 +38,11 @@
  *       then sends text as "vu". No descriptor field was added: a plugin that does not
  *       list the feature (every 1.0 plugin) keeps receiving "U".
  *
- * Appended fields and minor versions (the same rule stands in sdk/src/abi.rs):
+ * Appended fields and minor versions (the same rule stands in core/sdk/src/abi.rs):
  *  1. Fields are only ever appended to the end of the descriptor. No field is removed,
  *     moved, resized or given another type or meaning.
  *  2. A field appended in minor version M is read only from a plugin whose abi_minor is at
- *     least M. DESCRIPTOR_FIELDS in sdk/src/abi.rs lists every field with the minor that
+ *     least M. DESCRIPTOR_FIELDS in core/sdk/src/abi.rs lists every field with the minor that
  *     added it; every field below dates from 1.0.
  *  3. A host reads abi_major first and nothing else unless it is the host's own major;
  *     then abi_minor; then only the fields the plugin's minor declares. It never reads past

@@ -1,7 +1,7 @@
 //! The C ABI between the daemon and plugin libraries, version 1.1.
 //!
 //! **API Boundary.** Everything here is `#[repr(C)]` and mirrored field by field in
-//! `sdk/include/mobilis_plugin.h`; change both or neither, and bump [`ABI_MAJOR`] for any
+//! `core/sdk/include/mobilis_plugin.h`; change both or neither, and bump [`ABI_MAJOR`] for any
 //! change that an older host or plugin would misread. Adding a status code, a declaration
 //! feature or a field at the *end* of [`PluginDescriptor`] is a minor change, under the
 //! rule below.

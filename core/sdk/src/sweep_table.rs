@@ -91,53 +91,105 @@ pub fn sweep_role(several_temperatures: bool) -> InputRole {
     }
 }
 
-/// JSON Schema properties of the symmetrization parameters every sweep analysis takes.
-pub fn sweep_schema_properties() -> Map<String, Value> {
-    let mut properties = Map::new();
-    properties.insert(
-        "zero_field_tolerance_T".into(),
-        json!({"type": "number", "minimum": 0, "default": 1e-4, "description": "|B| at or below this is zero field; raise it above a magnet's remanence (a few mT) when the readings at its nominal zero read a field"}),
-    );
-    properties.insert("field_resolution_T".into(), json!({"type": "number", "exclusiveMinimum": 0, "default": 1e-4, "description": "readings within this of the lowest |B| of their group are averaged into one field (groups are anchored, so a densely logged ramp keeps its field range)"}));
-    properties.insert("temperature_tolerance_K".into(), json!({"type": "number", "minimum": 0, "default": DEFAULT_TEMPERATURE_TOLERANCE_K, "description": "sorted temperatures further apart than this (and than temperature_relative_tolerance x T) start a new sweep"}));
-    properties.insert("temperature_relative_tolerance".into(), json!({"type": "number", "minimum": 0, "maximum": 1, "default": DEFAULT_TEMPERATURE_RELATIVE_TOLERANCE, "description": "the same gap relative to the temperature"}));
-    properties
+/// How a table's rows are grouped into sweeps by temperature (flatten into an analysis's
+/// parameters; [`SweepParams`] carries it). The defaults are the physics'.
+#[derive(Debug, Clone, Deserialize, schemars::JsonSchema)]
+pub struct TemperatureGroupingParams {
+    /// sorted temperatures further apart than this (and than temperature_relative_tolerance
+    /// x T) start a new sweep, K
+    #[serde(rename = "temperature_tolerance_K", default = "default_temperature_tolerance")]
+    #[schemars(range(min = 0))]
+    pub temperature_tolerance_k: f64,
+    /// the same gap relative to the temperature
+    #[serde(default = "default_relative_tolerance")]
+    #[schemars(range(min = 0, max = 1))]
+    pub temperature_relative_tolerance: f64,
 }
 
-/// The symmetrization parameters (flatten into an analysis's parameters).
-#[derive(Debug, Default, Deserialize, schemars::JsonSchema)]
+fn default_temperature_tolerance() -> f64 {
+    DEFAULT_TEMPERATURE_TOLERANCE_K
+}
+
+fn default_relative_tolerance() -> f64 {
+    DEFAULT_TEMPERATURE_RELATIVE_TOLERANCE
+}
+
+impl Default for TemperatureGroupingParams {
+    fn default() -> Self {
+        Self {
+            temperature_tolerance_k: default_temperature_tolerance(),
+            temperature_relative_tolerance: default_relative_tolerance(),
+        }
+    }
+}
+
+impl TemperatureGroupingParams {
+    /// The temperature grouping of these parameters.
+    pub fn grouping(&self) -> TemperatureGrouping {
+        TemperatureGrouping {
+            tolerance_k: self.temperature_tolerance_k,
+            relative_tolerance: self.temperature_relative_tolerance,
+        }
+    }
+}
+
+/// The symmetrization parameters every sweep analysis takes (flatten into an analysis's
+/// parameters). The defaults are those of [`SymmetrizeSettings`], so they are stated once.
+#[derive(Debug, Clone, Deserialize, schemars::JsonSchema)]
 pub struct SweepParams {
-    #[serde(rename = "zero_field_tolerance_T", default)]
-    pub zero_field_tolerance_t: Option<f64>,
-    #[serde(rename = "field_resolution_T", default)]
-    pub field_resolution_t: Option<f64>,
-    #[serde(rename = "temperature_tolerance_K", default)]
-    pub temperature_tolerance_k: Option<f64>,
-    #[serde(default)]
-    pub temperature_relative_tolerance: Option<f64>,
+    /// |B| at or below this is zero field, T; raise it above a magnet's remanence (a few mT)
+    /// when the readings at its nominal zero read a field
+    #[serde(rename = "zero_field_tolerance_T", default = "default_zero_field_tolerance")]
+    #[schemars(range(min = 0))]
+    pub zero_field_tolerance_t: f64,
+    /// readings within this of the lowest |B| of their group are averaged into one field, T
+    /// (groups are anchored, so a densely logged ramp keeps its field range)
+    #[serde(rename = "field_resolution_T", default = "default_field_resolution")]
+    #[schemars(extend("exclusiveMinimum" = 0))]
+    pub field_resolution_t: f64,
+    #[serde(flatten)]
+    pub temperatures: TemperatureGroupingParams,
+}
+
+fn default_zero_field_tolerance() -> f64 {
+    SymmetrizeSettings::default().zero_field_tolerance_t
+}
+
+fn default_field_resolution() -> f64 {
+    SymmetrizeSettings::default().field_resolution_t
+}
+
+impl Default for SweepParams {
+    fn default() -> Self {
+        Self {
+            zero_field_tolerance_t: default_zero_field_tolerance(),
+            field_resolution_t: default_field_resolution(),
+            temperatures: TemperatureGroupingParams::default(),
+        }
+    }
 }
 
 impl SweepParams {
     pub fn settings(&self) -> SymmetrizeSettings {
-        let mut settings = SymmetrizeSettings::default();
-        if let Some(tolerance) = self.zero_field_tolerance_t {
-            settings.zero_field_tolerance_t = tolerance;
+        SymmetrizeSettings {
+            zero_field_tolerance_t: self.zero_field_tolerance_t,
+            field_resolution_t: self.field_resolution_t,
+            ..SymmetrizeSettings::default()
         }
-        if let Some(resolution) = self.field_resolution_t {
-            settings.field_resolution_t = resolution;
-        }
-        settings
     }
 
-    /// The temperature grouping of these parameters (defaults where not given).
+    /// The temperature grouping of these parameters.
     pub fn grouping(&self) -> TemperatureGrouping {
-        let defaults = TemperatureGrouping::default();
-        TemperatureGrouping {
-            tolerance_k: self.temperature_tolerance_k.unwrap_or(defaults.tolerance_k),
-            relative_tolerance: self
-                .temperature_relative_tolerance
-                .unwrap_or(defaults.relative_tolerance),
-        }
+        self.temperatures.grouping()
+    }
+}
+
+/// The JSON Schema properties of [`SweepParams`], for a declaration whose schema is still
+/// written by hand around them; derived from the type, so both say the same.
+pub fn sweep_schema_properties() -> Map<String, Value> {
+    match sdk::params_schema::<SweepParams>().get("properties") {
+        Some(Value::Object(properties)) => properties.clone(),
+        _ => Map::new(),
     }
 }
 

@@ -22,6 +22,7 @@ use mobilis_sdk::abi::AnalysisDeclaration;
 use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 use mobilis_sdk::sweep_table::{
     single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature, SweepParams, SweepTable,
+    TemperatureGroupingParams, DEFAULT_TEMPERATURE_RELATIVE_TOLERANCE, DEFAULT_TEMPERATURE_TOLERANCE_K,
 };
 use serde::Deserialize;
 use serde_json::{json, Value};
@@ -730,10 +731,13 @@ impl Analysis for WeakLocalizationAnalysis {
     }
 
     fn run(params: WeakLocalizationParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
-        let grouping = SweepParams {
-            temperature_tolerance_k: params.temperature_tolerance_k,
-            temperature_relative_tolerance: params.temperature_relative_tolerance,
-            ..SweepParams::default()
+        let grouping = TemperatureGroupingParams {
+            temperature_tolerance_k: params
+                .temperature_tolerance_k
+                .unwrap_or(DEFAULT_TEMPERATURE_TOLERANCE_K),
+            temperature_relative_tolerance: params
+                .temperature_relative_tolerance
+                .unwrap_or(DEFAULT_TEMPERATURE_RELATIVE_TOLERANCE),
         }
         .grouping();
         let table = single_sweep(inputs.required("sweep")?, &grouping)?;

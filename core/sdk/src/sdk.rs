@@ -663,6 +663,24 @@ pub fn string_column(frame: &DataFrame, name: &str) -> Result<Vec<Option<String>
         .collect())
 }
 
+/// Reads an optional float column: all `None` when the table does not have it.
+pub fn optional_float_column(frame: &DataFrame, name: &str) -> Result<Vec<Option<f64>>, AnalysisError> {
+    if frame.column(name).is_ok() {
+        float_column(frame, name)
+    } else {
+        Ok(vec![None; frame.height()])
+    }
+}
+
+/// Reads an optional text column: all `None` when the table does not have it.
+pub fn optional_string_column(frame: &DataFrame, name: &str) -> Result<Vec<Option<String>>, AnalysisError> {
+    if frame.column(name).is_ok() {
+        string_column(frame, name)
+    } else {
+        Ok(vec![None; frame.height()])
+    }
+}
+
 /// Writes the C side of a plugin: the entry function, its static descriptor, and the
 /// `describe`, `invoke` and `release_string` functions, for the listed [`sdk::Analysis`]
 /// types. The plugin version is the crate's `CARGO_PKG_VERSION`.

@@ -206,15 +206,6 @@ pub fn single_field_sign_series_warning(temperatures_k: &[f64]) -> Option<String
     ))
 }
 
-/// An optional float column (absent: all `None`).
-pub fn optional_floats(frame: &DataFrame, name: &str) -> Result<Vec<Option<f64>>, AnalysisError> {
-    if frame.column(name).is_ok() {
-        sdk::float_column(frame, name)
-    } else {
-        Ok(vec![None; frame.height()])
-    }
-}
-
 /// One sweep of a table.
 #[derive(Debug, Clone)]
 pub struct SweepTable {
@@ -272,9 +263,9 @@ pub fn sweeps_by_temperature(
     let fields = sdk::float_column(frame, "field_T")?;
     let rho_xx = sdk::float_column(frame, "rho_xx_ohm_sq")?;
     let rho_xy = sdk::float_column(frame, "rho_xy_ohm")?;
-    let rho_xx_unc = optional_floats(frame, "rho_xx_ohm_sq_unc")?;
-    let rho_xy_unc = optional_floats(frame, "rho_xy_ohm_unc")?;
-    let temperatures = optional_floats(frame, "temperature_K")?;
+    let rho_xx_unc = sdk::optional_float_column(frame, "rho_xx_ohm_sq_unc")?;
+    let rho_xy_unc = sdk::optional_float_column(frame, "rho_xy_ohm_unc")?;
+    let temperatures = sdk::optional_float_column(frame, "temperature_K")?;
     let mut rows: Vec<(Option<f64>, SweepPoint)> = Vec::with_capacity(frame.height());
     for row in 0..frame.height() {
         let value = |v: Option<f64>, name: &str| {

@@ -8,7 +8,6 @@
 //! spread over backgrounds and windows); the Dingle line reports `dingle_reduced_chi_square`,
 //! `dingle_chi_square_p_value` and `dingle_birge_ratio`.
 
-use super::*;
 use crate::oscillations::{
     analyze_oscillations, Background, MassMethod, MassRequest, OscillationAnalysis, OscillationError,
     OscillationSettings, OscillationSweep,
@@ -18,142 +17,271 @@ use mobilis_numerics::fft::Window;
 use mobilis_numerics::fit::FitQuality;
 use mobilis_physics::forward::oscillations::thermal_damping_factor;
 use mobilis_physics::sweep::{symmetrize, SweepUse};
-use mobilis_sdk::abi::AnalysisDeclaration;
-use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
+use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType};
+use mobilis_sdk::sdk::{invalid, Analysis, AnalysisError, AnalysisOutput, Host, Inputs, OutputBuilder};
 use mobilis_sdk::sweep_table::{
-    single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature, SweepParams, SweepTable,
-    TemperatureGroupingParams, DEFAULT_TEMPERATURE_RELATIVE_TOLERANCE, DEFAULT_TEMPERATURE_TOLERANCE_K,
+    single_field_sign_series_warning, single_sweep, sweep_role, sweeps_by_temperature, SweepParams, SweepTable,
+    TemperatureGroupingParams,
 };
-use serde::Deserialize;
+use schemars::JsonSchema;
+use serde::{Deserialize, Serialize};
 use serde_json::{json, Value};
 
 pub struct OscillationsAnalysis;
 
-#[derive(Debug, Deserialize, schemars::JsonSchema)]
+/// How the smooth background under the oscillation is removed.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, Serialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum BackgroundChoice {
+    /// a least-squares polynomial in B of degree background_degree
+    Polynomial,
+    /// a local quadratic smoothing in 1/B of half-width background_width_per_T
+    Smoothing,
+}
+
+/// The window applied before the transform.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, Serialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum WindowChoice {
+    /// 0.5 (1 - cos 2 pi t): the default balance of resolution and leakage
+    Hann,
+    /// no window: the best resolution, the worst leakage
+    Rectangular,
+    /// the lowest leakage, the widest lines
+    Blackman,
+}
+
+impl WindowChoice {
+    fn window(self) -> Window {
+        match self {
+            WindowChoice::Hann => Window::Hann,
+            WindowChoice::Rectangular => Window::Rectangular,
+            WindowChoice::Blackman => Window::Blackman,
+        }
+    }
+
+    fn of(window: Window) -> Self {
+        match window {
+            Window::Hann => WindowChoice::Hann,
+            Window::Rectangular => WindowChoice::Rectangular,
+            Window::Blackman => WindowChoice::Blackman,
+        }
+    }
+}
+
+/// Where the effective mass comes from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, Serialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum MassChoice {
+    /// fitted from the temperature dependence when the sweeps span several temperatures,
+    /// otherwise none
+    Auto,
+    /// fitted from the temperature dependence; sweeps at one temperature are refused
+    Fit,
+    /// given as effective_mass_ratio
+    Known,
+    /// no mass and no Dingle analysis
+    Skip,
+}
+
+impl MassChoice {
+    fn of(request: MassRequest) -> Self {
+        match request {
+            MassRequest::Auto => MassChoice::Auto,
+            MassRequest::Fit => MassChoice::Fit,
+            MassRequest::Known { .. } => MassChoice::Known,
+            MassRequest::Skip => MassChoice::Skip,
+        }
+    }
+}
+
+/// Parameters of `mr.oscillations`. Those without a default value are optional because "not
+/// given" means something of its own, stated on each (a window chosen from the data, an
+/// assumed calibration listed in `calibrations_not_stated`); the defaults are the analysis'
+/// own.
+#[derive(Debug, Deserialize, JsonSchema)]
 pub struct OscillationParams {
     #[serde(flatten)]
     sweep: SweepParams,
+    /// lower end of the field window, T; default the larger of the lowest positive field
+    /// and B_max / 10
     #[serde(rename = "field_min_T", default)]
+    #[schemars(extend("exclusiveMinimum" = 0))]
     field_min_t: Option<f64>,
+    /// upper end of the field window, T; default the largest field
     #[serde(rename = "field_max_T", default)]
+    #[schemars(extend("exclusiveMinimum" = 0))]
     field_max_t: Option<f64>,
+    /// how the smooth background is removed: a polynomial in B, or a smoothing in 1/B
+    #[serde(default = "OscillationParams::background")]
+    background: BackgroundChoice,
+    /// degree of the polynomial background (background: polynomial only)
     #[serde(default)]
-    background: Option<String>,
-    #[serde(default)]
+    #[schemars(range(max = 12), extend("default" = OscillationParams::background_degree()))]
     background_degree: Option<usize>,
+    /// smoothing half-width in 1/B, several periods 1/F (background: smoothing only, which
+    /// needs it)
     #[serde(rename = "background_width_per_T", default)]
+    #[schemars(extend("exclusiveMinimum" = 0))]
     background_width_per_t: Option<f64>,
+    /// FFT window
+    #[serde(default = "OscillationParams::window")]
+    window: WindowChoice,
+    /// FFT zero-padding factor
+    #[serde(default = "OscillationParams::zero_padding")]
+    #[schemars(range(min = 1, max = 64))]
+    zero_padding: usize,
+    /// dominant frequencies to report
+    #[serde(default = "OscillationParams::frequencies")]
+    #[schemars(range(min = 1, max = 10))]
+    frequencies: usize,
+    /// g_s of n = g_s e F / h
+    #[serde(default = "OscillationParams::spin_degeneracy")]
+    #[schemars(extend("exclusiveMinimum" = 0))]
+    spin_degeneracy: f64,
+    /// effective mass: fitted from the temperature dependence (auto: when several
+    /// temperatures), given (known, with effective_mass_ratio), or skipped; not given with
+    /// effective_mass_ratio it is known, else auto
     #[serde(default)]
-    window: Option<String>,
+    #[schemars(extend("default" = OscillationParams::mass()))]
+    mass: Option<MassChoice>,
+    /// m*/m0 for mass: known (the Dingle analysis needs a mass)
     #[serde(default)]
-    zero_padding: Option<usize>,
-    #[serde(default)]
-    frequencies: Option<usize>,
-    #[serde(default)]
-    spin_degeneracy: Option<f64>,
-    #[serde(default)]
-    mass: Option<String>,
-    #[serde(default)]
+    #[schemars(extend("exclusiveMinimum" = 0))]
     effective_mass_ratio: Option<f64>,
+    /// fit the damped waveform across temperatures, or fit the Lifshitz-Kosevich damping in
+    /// narrow 1/B windows each with its own field; both avoid the bias of one wide FFT window
+    #[serde(default = "OscillationParams::mass_method")]
+    mass_method: MassMethod,
+    /// Dingle temperature and quantum lifetime from the amplitude's field dependence
+    #[serde(default = "OscillationParams::dingle")]
+    dingle: bool,
+    /// Landau-level fan of the extrema for the phase
+    #[serde(default = "OscillationParams::landau_fan")]
+    landau_fan: bool,
+    /// repeat the analysis with higher background degrees (or other smoothing widths) and a
+    /// shorter field window, and add the spread of F, m* and T_D beyond their noise to the
+    /// statistical uncertainty
+    #[serde(default = "OscillationParams::model_spread")]
+    model_spread: bool,
+    /// relative standard uncertainty of the magnet's field calibration (Type B); scales F, n
+    /// and m*. Not given: 0.005 is assumed and listed in calibrations_not_stated
     #[serde(default)]
-    mass_method: Option<String>,
-    #[serde(default)]
-    dingle: Option<bool>,
-    #[serde(default)]
-    landau_fan: Option<bool>,
-    #[serde(default)]
-    model_spread: Option<bool>,
-    #[serde(default)]
+    #[schemars(range(min = 0, max = 0.5))]
     field_calibration_rel: Option<f64>,
+    /// standard uncertainty of the thermometer, common to every sweep (Type B), K; moves m*
+    /// and T_D. Not given: 0.02 K is assumed and listed in calibrations_not_stated
     #[serde(rename = "temperature_accuracy_K", default)]
+    #[schemars(range(min = 0))]
     temperature_accuracy_k: Option<f64>,
+    /// standard uncertainty of each sweep's own temperature (stage drift, setpoint scatter),
+    /// independent from sweep to sweep, K; moves m* and T_D in the statistical part. Not
+    /// included when not given
     #[serde(rename = "temperature_stability_K", default)]
+    #[schemars(range(min = 0))]
     temperature_stability_k: Option<f64>,
 }
 
+/// The defaults are those of the analysis' settings, so they are stated once.
 impl OscillationParams {
+    fn background() -> BackgroundChoice {
+        match Background::default() {
+            Background::Polynomial { .. } => BackgroundChoice::Polynomial,
+            Background::Smoothing { .. } => BackgroundChoice::Smoothing,
+        }
+    }
+    /// The degree of the default background, or a cubic should the default ever be a
+    /// smoothing (three terms beyond the constant follow a smooth background; step 3 of the
+    /// analysis' documentation).
+    fn background_degree() -> usize {
+        match Background::default() {
+            Background::Polynomial { degree } => degree,
+            Background::Smoothing { .. } => 3,
+        }
+    }
+    fn window() -> WindowChoice {
+        WindowChoice::of(OscillationSettings::default().window)
+    }
+    fn zero_padding() -> usize {
+        OscillationSettings::default().zero_padding
+    }
+    fn frequencies() -> usize {
+        OscillationSettings::default().frequencies
+    }
+    fn spin_degeneracy() -> f64 {
+        OscillationSettings::default().spin_degeneracy
+    }
+    fn mass() -> MassChoice {
+        MassChoice::of(OscillationSettings::default().mass)
+    }
+    fn mass_method() -> MassMethod {
+        OscillationSettings::default().mass_method
+    }
+    fn dingle() -> bool {
+        OscillationSettings::default().dingle
+    }
+    fn landau_fan() -> bool {
+        OscillationSettings::default().landau_fan
+    }
+    fn model_spread() -> bool {
+        OscillationSettings::default().model_spread
+    }
+}
+
+impl OscillationParams {
+    /// The settings of these parameters; refuses the combinations the schema cannot: a
+    /// background's parameter given with the other background, a mass without its ratio or
+    /// a ratio with another mass.
     fn settings(&self) -> Result<OscillationSettings, AnalysisError> {
-        let mut settings = OscillationSettings::default();
-        settings.field_min_t = self.field_min_t;
-        settings.field_max_t = self.field_max_t;
-        settings.background = match (
-            self.background.as_deref(),
-            self.background_degree,
-            self.background_width_per_t,
-        ) {
-            (None | Some("polynomial"), degree, None) => Background::Polynomial {
-                degree: degree.unwrap_or(3),
+        let background = match (self.background, self.background_degree, self.background_width_per_t) {
+            (BackgroundChoice::Polynomial, degree, None) => Background::Polynomial {
+                degree: degree.unwrap_or_else(OscillationParams::background_degree),
             },
-            (Some("smoothing"), None, Some(width)) => Background::Smoothing { width_inverse_t: width },
-            (Some("smoothing"), None, None) => {
+            (BackgroundChoice::Smoothing, None, Some(width)) => Background::Smoothing { width_inverse_t: width },
+            (BackgroundChoice::Smoothing, None, None) => {
                 return Err(invalid(
                     "background: smoothing needs background_width_per_T (several periods 1/F)",
                 ))
-            }
-            (Some(other), _, _) if other != "polynomial" && other != "smoothing" => {
-                return Err(invalid(format!(
-                    "background `{other}` is unknown; use polynomial or smoothing"
-                )))
             }
             _ => return Err(invalid(
                 "background_degree goes with background: polynomial, background_width_per_T with background: smoothing",
             )),
         };
-        settings.window = match self.window.as_deref() {
-            None | Some("hann") => Window::Hann,
-            Some("rectangular") => Window::Rectangular,
-            Some("blackman") => Window::Blackman,
-            Some(other) => {
-                return Err(invalid(format!(
-                    "window `{other}` is unknown; use hann, rectangular or blackman"
-                )))
-            }
-        };
-        if let Some(padding) = self.zero_padding {
-            settings.zero_padding = padding;
-        }
-        if let Some(count) = self.frequencies {
-            settings.frequencies = count;
-        }
-        if let Some(g) = self.spin_degeneracy {
-            settings.spin_degeneracy = g;
-        }
-        settings.mass = match (self.mass.as_deref(), self.effective_mass_ratio) {
-            (None | Some("auto"), None) => MassRequest::Auto,
-            (Some("fit"), None) => MassRequest::Fit,
-            (Some("skip"), None) => MassRequest::Skip,
-            (None | Some("known"), Some(ratio)) => MassRequest::Known {
+        let mass = match (self.mass, self.effective_mass_ratio) {
+            (None, None) => OscillationSettings::default().mass,
+            (Some(MassChoice::Auto), None) => MassRequest::Auto,
+            (Some(MassChoice::Fit), None) => MassRequest::Fit,
+            (Some(MassChoice::Skip), None) => MassRequest::Skip,
+            (None | Some(MassChoice::Known), Some(ratio)) => MassRequest::Known {
                 effective_mass_ratio: ratio,
             },
-            (Some("known"), None) => return Err(invalid("mass: known needs effective_mass_ratio")),
-            (Some(other), _) => {
+            (Some(MassChoice::Known), None) => return Err(invalid("mass: known needs effective_mass_ratio")),
+            (Some(other), Some(_)) => {
+                let name = serde_json::to_value(other).unwrap_or(Value::Null);
+                let name = name.as_str().unwrap_or_default();
                 return Err(invalid(format!(
-                    "mass `{other}` with effective_mass_ratio: give mass: known, or leave effective_mass_ratio out"
-                )))
+                    "mass `{name}` with effective_mass_ratio: give mass: known, or leave effective_mass_ratio out"
+                )));
             }
         };
-        settings.mass_method = match self.mass_method.as_deref() {
-            None | Some("waveform_fit") => MassMethod::WaveformFit,
-            Some("narrow_windows") => MassMethod::NarrowWindows,
-            Some(other) => {
-                return Err(invalid(format!(
-                    "mass_method `{other}` is unknown; use waveform_fit or narrow_windows"
-                )))
-            }
-        };
-        if let Some(dingle) = self.dingle {
-            settings.dingle = dingle;
-        }
-        if let Some(fan) = self.landau_fan {
-            settings.landau_fan = fan;
-        }
-        if let Some(spread) = self.model_spread {
-            settings.model_spread = spread;
-        }
-        settings.field_calibration_rel = self.field_calibration_rel;
-        settings.temperature_accuracy_k = self.temperature_accuracy_k;
-        settings.temperature_stability_k = self.temperature_stability_k;
-        Ok(settings)
+        Ok(OscillationSettings {
+            field_min_t: self.field_min_t,
+            field_max_t: self.field_max_t,
+            background,
+            window: self.window.window(),
+            zero_padding: self.zero_padding,
+            frequencies: self.frequencies,
+            spin_degeneracy: self.spin_degeneracy,
+            mass,
+            mass_method: self.mass_method,
+            dingle: self.dingle,
+            landau_fan: self.landau_fan,
+            model_spread: self.model_spread,
+            field_calibration_rel: self.field_calibration_rel,
+            temperature_accuracy_k: self.temperature_accuracy_k,
+            temperature_stability_k: self.temperature_stability_k,
+            ..OscillationSettings::default()
+        })
     }
 }
 
@@ -163,72 +291,46 @@ impl Analysis for OscillationsAnalysis {
 
     fn declaration() -> AnalysisDeclaration {
         use ColumnType::*;
-        let mut p = sweep_schema_properties();
-        p.insert("field_min_T".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "lower end of the field window; default the larger of the lowest positive field and B_max / 10"}));
-        p.insert("field_max_T".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "upper end of the field window; default the largest field"}));
-        p.insert("background".into(), json!({"type": "string", "enum": ["polynomial", "smoothing"], "default": "polynomial", "description": "how the smooth background is removed: a polynomial in B, or a smoothing in 1/B"}));
-        p.insert(
-            "background_degree".into(),
-            json!({"type": "integer", "minimum": 0, "maximum": 12, "default": 3}),
-        );
-        p.insert("background_width_per_T".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "smoothing half-width in 1/B, several periods 1/F"}));
-        p.insert("window".into(), json!({"type": "string", "enum": ["hann", "rectangular", "blackman"], "default": "hann", "description": "FFT window"}));
-        p.insert("zero_padding".into(), json!({"type": "integer", "minimum": 1, "maximum": 64, "default": 8, "description": "FFT zero-padding factor"}));
-        p.insert("frequencies".into(), json!({"type": "integer", "minimum": 1, "maximum": 10, "default": 1, "description": "dominant frequencies to report"}));
-        p.insert(
-            "spin_degeneracy".into(),
-            json!({"type": "number", "exclusiveMinimum": 0, "default": 2, "description": "g_s of n = g_s e F / h"}),
-        );
-        p.insert("mass".into(), json!({"type": "string", "enum": ["auto", "fit", "known", "skip"], "default": "auto", "description": "effective mass: fitted from the temperature dependence (auto: when several temperatures), given (known, with effective_mass_ratio), or skipped"}));
-        p.insert("effective_mass_ratio".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "m*/m0 for mass: known (the Dingle analysis needs a mass)"}));
-        p.insert("mass_method".into(), json!({"type": "string", "enum": ["waveform_fit", "narrow_windows"], "default": "waveform_fit", "description": "fit the damped waveform across temperatures, or fit the Lifshitz-Kosevich damping in narrow 1/B windows each with its own field; both avoid the bias of one wide FFT window"}));
-        p.insert("dingle".into(), json!({"type": "boolean", "default": true, "description": "Dingle temperature and quantum lifetime from the amplitude's field dependence"}));
-        p.insert("landau_fan".into(), json!({"type": "boolean", "default": false, "description": "Landau-level fan of the extrema for the phase"}));
-        p.insert("model_spread".into(), json!({"type": "boolean", "default": true, "description": "repeat the analysis with higher background degrees (or other smoothing widths) and a shorter field window, and add the spread of F, m* and T_D beyond their noise to the statistical uncertainty"}));
-        p.insert("field_calibration_rel".into(), json!({"type": "number", "minimum": 0, "maximum": 0.5, "description": "relative standard uncertainty of the magnet's field calibration (Type B); scales F, n and m*. Not given: 0.005 is assumed and listed in calibrations_not_stated"}));
-        p.insert("temperature_stability_K".into(), json!({"type": "number", "minimum": 0, "description": "standard uncertainty of each sweep's own temperature (stage drift, setpoint scatter), independent from sweep to sweep; moves m* and T_D in the statistical part. Not included when not given"}));
-        p.insert("temperature_accuracy_K".into(), json!({"type": "number", "minimum": 0, "description": "standard uncertainty of the thermometer, common to every sweep (Type B); moves m* and T_D. Not given: 0.02 K is assumed and listed in calibrations_not_stated"}));
         AnalysisDeclaration {
             name: String::new(),
             summary: "Shubnikov-de Haas analysis: frequencies and 2D densities, the effective mass from the thermal damping, the Dingle temperature and quantum lifetime".into(),
             description: "Each temperature's sweep is symmetrized; the background is removed (polynomial in B or smoothing), the oscillation resampled on a uniform 1/B grid and transformed (windowed, zero-padded FFT). n = g_s e F / h (Onsager). The mass comes from the Lifshitz-Kosevich factor X / sinh X, X = 2 pi^2 k_B T m* / (hbar e B), fitted where each amplitude has its own effective field, never from one wide-window FFT amplitude (which mixes very different damping); the Dingle temperature from ln(A sinh X / X) against 1/B, tau_q = hbar / (2 pi k_B T_D). Each result's _unc is the total standard uncertainty: _unc_stat (the fit's scatter-scaled error and the spread over higher background degrees and a shorter window) and _unc_sys (the stated field_calibration_rel and temperature_accuracy_K) in quadrature.".into(),
-            params: json!({"type": "object", "additionalProperties": false, "properties": p}),
             inputs: vec![sweep_role(true)],
             outputs: vec![
-                column("kind", Str, None, "oscillation (the curve), fft (the spectrum), mass (window amplitudes), mass_fit (each window's Lifshitz-Kosevich fit A_0 R_T on a temperature grid), dingle (Dingle plot windows), dingle_fit (the fitted Dingle line at the first and last window), landau (extrema of the Landau fan, with landau_fan) or landau_fit (the fan's fitted line at 1/B = 0 and at the last extremum)"),
-                column("temperature_K", F64, Some("K"), "temperature of the sweep"),
-                column("field_T", F64, Some("T"), "field (oscillation rows) or effective field (mass and mass_fit rows)"),
-                column("inverse_field_per_T", F64, None, "1/B, 1/T (oscillation, dingle, dingle_fit, landau and landau_fit rows)"),
-                column("frequency_T", F64, Some("T"), "frequency (fft rows)"),
-                column("rho_xx_ohm_sq", F64, Some("ohm_sq"), "symmetrized rho_xx (oscillation rows)"),
-                column("background_ohm_sq", F64, Some("ohm_sq"), "removed background (oscillation rows)"),
-                column("value_ohm_sq", F64, Some("ohm_sq"), "the oscillation (oscillation rows), amplitude (fft, mass and dingle rows) or fitted amplitude (mass_fit rows)"),
-                column("value_ohm_sq_unc", F64, Some("ohm_sq"), "amplitude uncertainty (mass and dingle rows)"),
-                column("dingle_ordinate", F64, None, "ln(A sinh X / X), A in ohm per square (dingle rows; the fitted line on dingle_fit rows)"),
-                column("landau_index", F64, None, "Landau level index: integer at minima of rho_xx, half-integer at maxima (landau rows); F_fan / B + beta on landau_fit rows"),
+                ColumnSpec::new("kind", Str, None, "oscillation (the curve), fft (the spectrum), mass (window amplitudes), mass_fit (each window's Lifshitz-Kosevich fit A_0 R_T on a temperature grid), dingle (Dingle plot windows), dingle_fit (the fitted Dingle line at the first and last window), landau (extrema of the Landau fan, with landau_fan) or landau_fit (the fan's fitted line at 1/B = 0 and at the last extremum)"),
+                ColumnSpec::new("temperature_K", F64, Some("K"), "temperature of the sweep"),
+                ColumnSpec::new("field_T", F64, Some("T"), "field (oscillation rows) or effective field (mass and mass_fit rows)"),
+                ColumnSpec::new("inverse_field_per_T", F64, None, "1/B, 1/T (oscillation, dingle, dingle_fit, landau and landau_fit rows)"),
+                ColumnSpec::new("frequency_T", F64, Some("T"), "frequency (fft rows)"),
+                ColumnSpec::new("rho_xx_ohm_sq", F64, Some("ohm_sq"), "symmetrized rho_xx (oscillation rows)"),
+                ColumnSpec::new("background_ohm_sq", F64, Some("ohm_sq"), "removed background (oscillation rows)"),
+                ColumnSpec::new("value_ohm_sq", F64, Some("ohm_sq"), "the oscillation (oscillation rows), amplitude (fft, mass and dingle rows) or fitted amplitude (mass_fit rows)"),
+                ColumnSpec::new("value_ohm_sq_unc", F64, Some("ohm_sq"), "amplitude uncertainty (mass and dingle rows)"),
+                ColumnSpec::new("dingle_ordinate", F64, None, "ln(A sinh X / X), A in ohm per square (dingle rows; the fitted line on dingle_fit rows)"),
+                ColumnSpec::new("landau_index", F64, None, "Landau level index: integer at minima of rho_xx, half-integer at maxima (landau rows); F_fan / B + beta on landau_fit rows"),
             ],
             summary_keys: vec![
-                column("lines", ColumnType::Str, None, "list of {frequency_T, sheet_density_m2, ...} with _unc: one entry per frequency found"),
-                column("sample", ColumnType::Str, None, "the series' sample"),
-                column("temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures of the series"),
-                column("single_field_sign_temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures measured at one field sign"),
-                column("field_window_T", ColumnType::F64, Some("T"), "[lowest, highest] field analysed"),
-                column("resolution_T", ColumnType::F64, Some("T"), "frequency resolution of the transform"),
-                column("mass_method", ColumnType::Str, None, "how the effective mass was obtained"),
-                column("dingle_reduced_chi_square", ColumnType::F64, None, "chi^2 / nu of the Dingle fit"),
-                column("dingle_chi_square_p_value", ColumnType::F64, None, "P(chi^2 >= observed) of the Dingle fit"),
-                column("dingle_birge_ratio", ColumnType::F64, None, "sqrt(chi^2 / nu) of the Dingle fit when above 1"),
-                column("landau_fan_intercept", ColumnType::F64, None, "intercept of the Landau fan, with _unc"),
-                column("landau_fan_phase_rad", ColumnType::F64, Some("rad"), "Berry-phase offset of the Landau fan"),
-                column("waveform_residual_rms_ohm_sq", ColumnType::F64, Some("ohm_sq"), "rms residual of the waveform fit"),
-                column("frequency_T", F64, Some("T"), "the dominant frequency, with _unc"),
-                column("sheet_density_m2", F64, Some("m2"), "g_s e F / h, with _unc"),
-                column("effective_mass_ratio", F64, None, "m*/m0, with _unc"),
-                column("dingle_temperature_K", F64, Some("K"), "with _unc"),
-                column("quantum_lifetime_s", F64, Some("s"), "hbar / (2 pi k_B T_D), with _unc"),
+                ColumnSpec::new("lines", ColumnType::Str, None, "list of {frequency_T, sheet_density_m2, ...} with _unc: one entry per frequency found"),
+                ColumnSpec::new("sample", ColumnType::Str, None, "the series' sample"),
+                ColumnSpec::new("temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures of the series"),
+                ColumnSpec::new("single_field_sign_temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures measured at one field sign"),
+                ColumnSpec::new("field_window_T", ColumnType::F64, Some("T"), "[lowest, highest] field analysed"),
+                ColumnSpec::new("resolution_T", ColumnType::F64, Some("T"), "frequency resolution of the transform"),
+                ColumnSpec::new("mass_method", ColumnType::Str, None, "how the effective mass was obtained"),
+                ColumnSpec::new("dingle_reduced_chi_square", ColumnType::F64, None, "chi^2 / nu of the Dingle fit"),
+                ColumnSpec::new("dingle_chi_square_p_value", ColumnType::F64, None, "P(chi^2 >= observed) of the Dingle fit"),
+                ColumnSpec::new("dingle_birge_ratio", ColumnType::F64, None, "sqrt(chi^2 / nu) of the Dingle fit when above 1"),
+                ColumnSpec::new("landau_fan_intercept", ColumnType::F64, None, "intercept of the Landau fan, with _unc"),
+                ColumnSpec::new("landau_fan_phase_rad", ColumnType::F64, Some("rad"), "Berry-phase offset of the Landau fan"),
+                ColumnSpec::new("waveform_residual_rms_ohm_sq", ColumnType::F64, Some("ohm_sq"), "rms residual of the waveform fit"),
+                ColumnSpec::new("frequency_T", F64, Some("T"), "the dominant frequency, with _unc"),
+                ColumnSpec::new("sheet_density_m2", F64, Some("m2"), "g_s e F / h, with _unc"),
+                ColumnSpec::new("effective_mass_ratio", F64, None, "m*/m0, with _unc"),
+                ColumnSpec::new("dingle_temperature_K", F64, Some("K"), "with _unc"),
+                ColumnSpec::new("quantum_lifetime_s", F64, Some("s"), "hbar / (2 pi k_B T_D), with _unc"),
                 super::classical::single_field_sign_key(),
-                column("calibrations_not_stated", Str, None, "the calibration parameters not stated, whose common-practice values were assumed in the _unc_sys parts (JSON list)"),
-                column("uncertainty_checks", Str, None, "the repeated analyses whose spread is in the _unc_stat parts (JSON list)"),
+                ColumnSpec::new("calibrations_not_stated", Str, None, "the calibration parameters not stated, whose common-practice values were assumed in the _unc_sys parts (JSON list)"),
+                ColumnSpec::new("uncertainty_checks", Str, None, "the repeated analyses whose spread is in the _unc_stat parts (JSON list)"),
             ],
             figures: crate::figures::oscillations(),
             ..Default::default()
@@ -244,16 +346,19 @@ impl Analysis for OscillationsAnalysis {
             OscillationError::Fit { .. } => AnalysisError::Numerical(error.to_string()),
             other => invalid(other.to_string()),
         })?;
-        let mut output = AnalysisOutput::new(oscillation_table(&analysis)?);
-        fill_oscillation_summary(&mut output.summary, &analysis, &tables, &symmetrized.sweeps);
-        super::classical::report_series_field_signs(
-            &mut output,
-            &symmetrized.single_sign_temperatures,
-            symmetrized.warnings,
-        );
-        output.warnings.extend(analysis.warnings.iter().cloned());
+        let mut out = OutputBuilder::of::<Self>();
+        let height = oscillation_table(&mut out, &analysis);
+        fill_oscillation_summary(&mut out, &analysis, &tables, &symmetrized.sweeps);
+        // The series' field signs: one warning for every sweep measured at one sign, before
+        // the sweeps' own warnings and the analysis' warnings.
+        let single_sign = &symmetrized.single_sign_temperatures;
+        out.summary("single_field_sign", !single_sign.is_empty())
+            .summary("single_field_sign_temperatures_K", single_sign)
+            .warnings(single_field_sign_series_warning(single_sign))
+            .warnings(symmetrized.warnings)
+            .warnings(analysis.warnings.iter().cloned());
         host.progress(1.0, "done");
-        Ok(output)
+        out.finish(height)
     }
 }
 
@@ -328,8 +433,8 @@ impl PlotRows {
 /// `dingle_ordinate` and `landau_index`.
 type LineRow = (&'static str, [Option<f64>; 8], Option<f64>, Option<f64>);
 
-/// One long table, a `kind` per plot.
-fn oscillation_table(analysis: &OscillationAnalysis) -> Result<DataFrame, AnalysisError> {
+/// One long table, a `kind` per plot; returns its height.
+fn oscillation_table(out: &mut OutputBuilder, analysis: &OscillationAnalysis) -> usize {
     let mut rows = PlotRows::default();
     push_sweep_rows(&mut rows, analysis);
     push_mass_rows(&mut rows, analysis);
@@ -349,22 +454,18 @@ fn oscillation_table(analysis: &OscillationAnalysis) -> Result<DataFrame, Analys
     let mut landau_index = vec![None; rows - tail_indices.len()];
     landau_index.extend(tail_indices);
     let [t, b, inv, f, rho, bg, value, unc] = cells;
-    frame(
-        rows,
-        vec![
-            Column::new("kind".into(), kind),
-            optional("temperature_K", t),
-            optional("field_T", b),
-            optional("inverse_field_per_T", inv),
-            optional("frequency_T", f),
-            optional("rho_xx_ohm_sq", rho),
-            optional("background_ohm_sq", bg),
-            optional("value_ohm_sq", value),
-            optional("value_ohm_sq_unc", unc),
-            optional("dingle_ordinate", ordinate),
-            optional("landau_index", landau_index),
-        ],
-    )
+    out.str("kind", &kind)
+        .f64_nullable("temperature_K", t)
+        .f64_nullable("field_T", b)
+        .f64_nullable("inverse_field_per_T", inv)
+        .f64_nullable("frequency_T", f)
+        .f64_nullable("rho_xx_ohm_sq", rho)
+        .f64_nullable("background_ohm_sq", bg)
+        .f64_nullable("value_ohm_sq", value)
+        .f64_nullable("value_ohm_sq_unc", unc)
+        .f64_nullable("dingle_ordinate", ordinate)
+        .f64_nullable("landau_index", landau_index);
+    rows
 }
 
 /// The oscillation of every sweep and the spectra.
@@ -519,43 +620,28 @@ fn line_rows(analysis: &OscillationAnalysis) -> Vec<LineRow> {
 /// The summary: the strongest line's numbers with their budgets, the quality of the
 /// Dingle and waveform fits, the lines and the fan.
 fn fill_oscillation_summary(
-    summary: &mut serde_json::Map<String, Value>,
+    out: &mut OutputBuilder,
     analysis: &OscillationAnalysis,
     tables: &[SweepTable],
     sweeps: &[OscillationSweep],
 ) {
     let summary_values = analysis.summary();
     if let Some(sample) = &tables[0].sample {
-        summary.insert("sample".into(), json!(sample));
+        out.summary("sample", sample);
     }
-    summary.insert(
-        "temperatures_K".into(),
-        json!(sweeps.iter().map(|s| s.temperature_k).collect::<Vec<_>>()),
+    out.summary(
+        "temperatures_K",
+        sweeps.iter().map(|s| s.temperature_k).collect::<Vec<_>>(),
     );
-    summary.insert("frequency_T".into(), json!(summary_values.frequency_t));
-    summary.insert("frequency_T_unc".into(), json!(summary_values.frequency_unc_t));
-    summary.insert("sheet_density_m2".into(), json!(summary_values.sheet_density_m2));
-    summary.insert(
-        "sheet_density_m2_unc".into(),
-        json!(summary_values.sheet_density_unc_m2),
-    );
-    summary.insert(
-        "effective_mass_ratio".into(),
-        json!(summary_values.effective_mass_ratio),
-    );
-    summary.insert(
-        "effective_mass_ratio_unc".into(),
-        json!(summary_values.effective_mass_ratio_unc),
-    );
-    summary.insert("mass_method".into(), json!(summary_values.mass_method));
-    summary.insert(
-        "dingle_temperature_K".into(),
-        json!(summary_values.dingle_temperature_k),
-    );
-    summary.insert(
-        "dingle_temperature_K_unc".into(),
-        json!(summary_values.dingle_temperature_unc_k),
-    );
+    out.summary("frequency_T", summary_values.frequency_t);
+    out.summary("frequency_T_unc", summary_values.frequency_unc_t);
+    out.summary("sheet_density_m2", summary_values.sheet_density_m2);
+    out.summary("sheet_density_m2_unc", summary_values.sheet_density_unc_m2);
+    out.summary("effective_mass_ratio", summary_values.effective_mass_ratio);
+    out.summary("effective_mass_ratio_unc", summary_values.effective_mass_ratio_unc);
+    out.summary("mass_method", summary_values.mass_method);
+    out.summary("dingle_temperature_K", summary_values.dingle_temperature_k);
+    out.summary("dingle_temperature_K_unc", summary_values.dingle_temperature_unc_k);
     // The budget: _unc the total, _unc_stat (the fit's scatter-scaled error and the spread
     // over backgrounds and windows), _unc_sys (the stated calibrations), and the parts of
     // the statistical one.
@@ -566,53 +652,33 @@ fn fill_oscillation_summary(
         ("dingle_temperature_K", summary_values.dingle_temperature_budget),
     ] {
         if let Some(budget) = budget {
-            summary.insert(format!("{key}_unc_stat"), json!(budget.statistical));
-            summary.insert(format!("{key}_unc_sys"), json!(budget.systematic));
-            summary.insert(format!("{key}_unc_fit"), json!(budget.fit));
-            summary.insert(format!("{key}_unc_analysis_spread"), json!(budget.analysis_spread));
+            out.summary(&format!("{key}_unc_stat"), budget.statistical);
+            out.summary(&format!("{key}_unc_sys"), budget.systematic);
+            out.summary(&format!("{key}_unc_fit"), budget.fit);
+            out.summary(&format!("{key}_unc_analysis_spread"), budget.analysis_spread);
         }
     }
-    summary.insert(
-        "calibrations_not_stated".into(),
-        json!(analysis.budget.calibrations_not_stated),
-    );
-    summary.insert("uncertainty_checks".into(), json!(analysis.budget.variants));
+    out.summary("calibrations_not_stated", &analysis.budget.calibrations_not_stated);
+    out.summary("uncertainty_checks", &analysis.budget.variants);
     if let Some(plot) = &analysis.dingle {
         // The Dingle line is weighted by its windows' amplitude errors; its slope's error
         // was scaled by the Birge ratio when chi^2 / nu > 1.
         let nu = plot.points.len().saturating_sub(2);
         let quality = FitQuality::assess(plot.reduced_chi_square * nu as f64, nu);
-        summary.insert(
-            "dingle_reduced_chi_square".into(),
-            json!(finite_or_null(quality.reduced_chi_square)),
-        );
-        summary.insert(
-            "dingle_chi_square_p_value".into(),
-            json!(finite_or_null(quality.p_value)),
-        );
-        summary.insert("dingle_birge_ratio".into(), json!(quality.birge_ratio));
+        out.summary("dingle_reduced_chi_square", finite_or_null(quality.reduced_chi_square));
+        out.summary("dingle_chi_square_p_value", finite_or_null(quality.p_value));
+        out.summary("dingle_birge_ratio", quality.birge_ratio);
     }
     if let Some(fit) = &analysis.waveform {
         // The waveform fit weights every point alike and scales its errors by the
         // residual scatter: its reduced chi-square is that scatter's variance.
-        summary.insert(
-            "waveform_residual_rms_ohm_sq".into(),
-            json!(fit.reduced_chi_square.max(0.0).sqrt()),
-        );
+        out.summary("waveform_residual_rms_ohm_sq", fit.reduced_chi_square.max(0.0).sqrt());
     }
-    summary.insert("quantum_lifetime_s".into(), json!(summary_values.quantum_lifetime_s));
-    summary.insert(
-        "quantum_lifetime_s_unc".into(),
-        json!(summary_values.quantum_lifetime_unc_s),
-    );
-    summary.insert(
-        "field_window_T".into(),
-        json!([analysis.field_window_t.0, analysis.field_window_t.1]),
-    );
-    summary.insert("resolution_T".into(), json!(analysis.resolution_t));
-    summary.insert(
-        "lines".into(),
-        Value::Array(
+    out.summary("quantum_lifetime_s", summary_values.quantum_lifetime_s);
+    out.summary("quantum_lifetime_s_unc", summary_values.quantum_lifetime_unc_s);
+    out.summary("field_window_T", [analysis.field_window_t.0, analysis.field_window_t.1]);
+    out.summary("resolution_T", analysis.resolution_t);
+    out.summary("lines", Value::Array(
             analysis
                 .lines
                 .iter()
@@ -625,9 +691,9 @@ fn fill_oscillation_summary(
         ),
     );
     if let Some(fan) = &analysis.landau_fan {
-        summary.insert("landau_fan_intercept".into(), json!(fan.intercept));
-        summary.insert("landau_fan_intercept_unc".into(), json!(fan.intercept_unc));
-        summary.insert("landau_fan_phase_rad".into(), json!(fan.phase_rad));
+        out.summary("landau_fan_intercept", fan.intercept);
+        out.summary("landau_fan_intercept_unc", fan.intercept_unc);
+        out.summary("landau_fan_phase_rad", fan.phase_rad);
     }
 }
 
@@ -660,24 +726,55 @@ fn mass_fit_temperatures(measured_k: &[f64]) -> Vec<f64> {
 
 pub struct WeakLocalizationAnalysis;
 
-#[derive(Debug, Deserialize, schemars::JsonSchema)]
-#[serde(deny_unknown_fields)]
+/// Parameters of `mr.weak_localization`: the sweep's temperature grouping and the fit's
+/// settings. The sweep is fitted as measured, sigma(0) its own zero-field average, so the
+/// symmetrization parameters of the other sweep analyses do not apply.
+#[derive(Debug, Deserialize, JsonSchema)]
 pub struct WeakLocalizationParams {
+    /// fit up to this field, T; not given: the whole sweep
     #[serde(rename = "max_field_T", default)]
+    #[schemars(extend("exclusiveMinimum" = 0))]
     max_field_t: Option<f64>,
-    #[serde(rename = "zero_field_tolerance_T", default)]
-    zero_field_tolerance_t: Option<f64>,
-    #[serde(default)]
+    /// |B| at or below this gives sigma(0), T
+    #[serde(
+        rename = "zero_field_tolerance_T",
+        default = "WeakLocalizationParams::zero_field_tolerance"
+    )]
+    #[schemars(range(min = 0))]
+    zero_field_tolerance_t: f64,
+    /// also fit a classical -c B^2 term
+    #[serde(default = "WeakLocalizationParams::classical_term")]
     classical_term: bool,
+    /// fit an offset of sigma(0) instead of trusting the zero-field average (which already
+    /// holds part of the cusp when B_phi is small)
     #[serde(default = "fit_offset_default")]
     fit_offset: bool,
-    #[serde(rename = "temperature_tolerance_K", default)]
-    temperature_tolerance_k: Option<f64>,
-    #[serde(default)]
-    temperature_relative_tolerance: Option<f64>,
+    #[serde(flatten)]
+    temperatures: TemperatureGroupingParams,
 }
 
-/// A fitted offset is the default: the points averaged into sigma(0) (within
+/// The defaults are those of the fit's settings, so they are stated once.
+impl WeakLocalizationParams {
+    fn zero_field_tolerance() -> f64 {
+        WeakLocalizationSettings::default().zero_field_tolerance_t
+    }
+    fn classical_term() -> bool {
+        WeakLocalizationSettings::default().classical_term
+    }
+
+    fn settings(&self) -> WeakLocalizationSettings {
+        WeakLocalizationSettings {
+            max_field_t: self.max_field_t,
+            zero_field_tolerance_t: self.zero_field_tolerance_t,
+            classical_term: self.classical_term,
+            fit_offset: self.fit_offset,
+            ..WeakLocalizationSettings::default()
+        }
+    }
+}
+
+/// A fitted offset is the analysis' default, unlike the fit's own (which fits the
+/// correction as the formula states it): the points averaged into sigma(0) (within
 /// zero_field_tolerance_T) already carry part of the cusp when B_phi is of the same order,
 /// which biases alpha and l_phi by many times their uncertainties; the offset lets every
 /// field set the zero-field reference.
@@ -695,35 +792,27 @@ impl Analysis for WeakLocalizationAnalysis {
             name: String::new(),
             summary: "Hikami-Larkin-Nagaoka fit of the low-field conductance correction of a thin film: phase-coherence length and prefactor".into(),
             description: "d_sigma(B) = sigma(B) - sigma(0) = alpha e^2/(2 pi^2 hbar) [psi(1/2 + B_phi/B) - ln(B_phi/B)], B_phi = hbar / (4 e l_phi^2) (Hikami, Larkin and Nagaoka 1980), fitted for alpha and l_phi (optionally with a classical B^2 term and an offset) over |B| <= max_field_T. HLN assumes a mean free path well below l_phi.".into(),
-            params: json!({"type": "object", "additionalProperties": false, "properties": {
-                "max_field_T": {"type": "number", "exclusiveMinimum": 0, "description": "fit up to this field; default the whole sweep"},
-                "zero_field_tolerance_T": {"type": "number", "minimum": 0, "default": 1e-3, "description": "|B| at or below this gives sigma(0)"},
-                "classical_term": {"type": "boolean", "default": false, "description": "also fit a classical -c B^2 term"},
-                "fit_offset": {"type": "boolean", "default": true, "description": "fit an offset of sigma(0) instead of trusting the zero-field average (which already holds part of the cusp when B_phi is small)"},
-                "temperature_tolerance_K": sweep_schema_properties()["temperature_tolerance_K"],
-                "temperature_relative_tolerance": sweep_schema_properties()["temperature_relative_tolerance"]
-            }}),
             inputs: vec![sweep_role(false)],
             outputs: vec![
-                column("field_T", F64, Some("T"), "field"),
-                column("delta_sigma_S", F64, Some("S"), "sigma(B) - sigma(0)"),
-                column("delta_sigma_S_unc", F64, Some("S"), "standard uncertainty"),
-                column("model_S", F64, Some("S"), "the fitted correction"),
-                column("fitted", Bool, None, "inside the fitted range"),
+                ColumnSpec::new("field_T", F64, Some("T"), "field"),
+                ColumnSpec::new("delta_sigma_S", F64, Some("S"), "sigma(B) - sigma(0)"),
+                ColumnSpec::new("delta_sigma_S_unc", F64, Some("S"), "standard uncertainty"),
+                ColumnSpec::new("model_S", F64, Some("S"), "the fitted correction"),
+                ColumnSpec::new("fitted", Bool, None, "inside the fitted range"),
             ],
             summary_keys: vec![
-                column("sample", ColumnType::Str, None, "the sweep's sample"),
-                column("temperature_K", ColumnType::F64, Some("K"), "the sweep's temperature"),
-                column("phase_coherence_field_T", ColumnType::F64, Some("T"), "B_phi = hbar / (4 e l_phi^2)"),
-                column("zero_field_conductance_S", ColumnType::F64, Some("S"), "sigma(0) of the fitted sweep"),
-                column("classical_S_per_T2", ColumnType::F64, Some("S_per_T2"), "coefficient of the classical B^2 term, null when not fitted"),
-                column("fitted_points", ColumnType::I64, None, "points fitted"),
-                column("phase_coherence_length_m", F64, Some("m"), "l_phi, with _unc"),
-                column("alpha", F64, None, "HLN prefactor (-1/2 for one channel with strong spin-orbit coupling), with _unc"),
+                ColumnSpec::new("sample", ColumnType::Str, None, "the sweep's sample"),
+                ColumnSpec::new("temperature_K", ColumnType::F64, Some("K"), "the sweep's temperature"),
+                ColumnSpec::new("phase_coherence_field_T", ColumnType::F64, Some("T"), "B_phi = hbar / (4 e l_phi^2)"),
+                ColumnSpec::new("zero_field_conductance_S", ColumnType::F64, Some("S"), "sigma(0) of the fitted sweep"),
+                ColumnSpec::new("classical_S_per_T2", ColumnType::F64, Some("S_per_T2"), "coefficient of the classical B^2 term, null when not fitted"),
+                ColumnSpec::new("fitted_points", ColumnType::I64, None, "points fitted"),
+                ColumnSpec::new("phase_coherence_length_m", F64, Some("m"), "l_phi, with _unc"),
+                ColumnSpec::new("alpha", F64, None, "HLN prefactor (-1/2 for one channel with strong spin-orbit coupling), with _unc"),
                 super::classical::single_field_sign_key(),
-                column("reduced_chi_square", F64, None, "chi^2 / nu of the fit"),
-                column("chi_square_p_value", F64, None, "P(chi^2 >= observed) when rho_xx_ohm_sq_unc weights the fit, else null"),
-                column("birge_ratio", F64, None, "sqrt(chi^2 / nu) when above 1 (the uncertainties were multiplied by it), else 1; null without stated uncertainties"),
+                ColumnSpec::new("reduced_chi_square", F64, None, "chi^2 / nu of the fit"),
+                ColumnSpec::new("chi_square_p_value", F64, None, "P(chi^2 >= observed) when rho_xx_ohm_sq_unc weights the fit, else null"),
+                ColumnSpec::new("birge_ratio", F64, None, "sqrt(chi^2 / nu) when above 1 (the uncertainties were multiplied by it), else 1; null without stated uncertainties"),
             ],
             figures: crate::figures::weak_localization(),
             ..Default::default()
@@ -731,15 +820,7 @@ impl Analysis for WeakLocalizationAnalysis {
     }
 
     fn run(params: WeakLocalizationParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
-        let grouping = TemperatureGroupingParams {
-            temperature_tolerance_k: params
-                .temperature_tolerance_k
-                .unwrap_or(DEFAULT_TEMPERATURE_TOLERANCE_K),
-            temperature_relative_tolerance: params
-                .temperature_relative_tolerance
-                .unwrap_or(DEFAULT_TEMPERATURE_RELATIVE_TOLERANCE),
-        }
-        .grouping();
+        let grouping = params.temperatures.grouping();
         let table = single_sweep(inputs.required("sweep")?, &grouping)?;
         let sweep = WeakLocalizationSweep {
             field_t: table.points.iter().map(|p| p.field_t).collect(),
@@ -751,51 +832,33 @@ impl Analysis for WeakLocalizationAnalysis {
                 .map(|p| p.uncertainty.map(|u| u.rho_xx_ohm_sq))
                 .collect::<Option<Vec<f64>>>(),
         };
-        let mut settings = WeakLocalizationSettings::default();
-        settings.max_field_t = params.max_field_t;
-        if let Some(tolerance) = params.zero_field_tolerance_t {
-            settings.zero_field_tolerance_t = tolerance;
-        }
-        settings.classical_term = params.classical_term;
-        settings.fit_offset = params.fit_offset;
+        let settings = params.settings();
         host.check_cancelled()?;
         let fit = fit_weak_localization(&sweep, &settings).map_err(|e| invalid(e.to_string()))?;
         let curve = &fit.curve;
-        let out = frame(
-            curve.len(),
-            vec![
-                floats("field_T", curve.iter().map(|p| p.field_t).collect()),
-                floats("delta_sigma_S", curve.iter().map(|p| p.delta_sigma_s).collect()),
-                optional("delta_sigma_S_unc", curve.iter().map(|p| p.delta_sigma_unc_s).collect()),
-                floats("model_S", curve.iter().map(|p| p.model_s).collect()),
-                Column::new("fitted".into(), curve.iter().map(|p| p.fitted).collect::<Vec<bool>>()),
-            ],
-        )?;
-        let mut output = AnalysisOutput::new(out);
-        let summary = &mut output.summary;
-        summary.extend(table.identity());
-        summary.insert("phase_coherence_length_m".into(), json!(fit.phase_coherence_length_m));
-        summary.insert(
-            "phase_coherence_length_m_unc".into(),
-            json!(fit.phase_coherence_length_unc_m),
-        );
-        summary.insert("phase_coherence_field_T".into(), json!(fit.phase_coherence_field_t));
-        summary.insert("alpha".into(), json!(fit.alpha));
-        summary.insert("alpha_unc".into(), json!(fit.alpha_unc));
-        summary.insert("classical_S_per_T2".into(), json!(fit.classical_s_per_t2));
-        summary.insert("zero_field_conductance_S".into(), json!(fit.zero_field_conductance_s));
-        summary.insert("reduced_chi_square".into(), json!(fit.reduced_chi_square));
-        // p-value and Birge ratio only mean something against stated errors.
-        summary.insert(
-            "chi_square_p_value".into(),
-            json!(fit.quality.as_ref().map(|q| q.p_value)),
-        );
-        summary.insert("birge_ratio".into(), json!(fit.quality.as_ref().map(|q| q.birge_ratio)));
-        summary.insert("fitted_points".into(), json!(fit.fitted_points));
-        summary.insert("single_field_sign".into(), json!(fit.single_field_sign));
-        output.warnings = table.warnings.clone();
-        output.warnings.extend(fit.warnings.iter().cloned());
-        Ok(output)
+        let mut out = OutputBuilder::of::<Self>();
+        out.f64("field_T", curve.iter().map(|p| p.field_t).collect())
+            .f64("delta_sigma_S", curve.iter().map(|p| p.delta_sigma_s).collect())
+            .f64_nullable("delta_sigma_S_unc", curve.iter().map(|p| p.delta_sigma_unc_s).collect())
+            .f64("model_S", curve.iter().map(|p| p.model_s).collect())
+            .bool("fitted", curve.iter().map(|p| p.fitted).collect());
+        out.summary_map(table.identity())
+            .summary("phase_coherence_length_m", fit.phase_coherence_length_m)
+            .summary("phase_coherence_length_m_unc", fit.phase_coherence_length_unc_m)
+            .summary("phase_coherence_field_T", fit.phase_coherence_field_t)
+            .summary("alpha", fit.alpha)
+            .summary("alpha_unc", fit.alpha_unc)
+            .summary("classical_S_per_T2", fit.classical_s_per_t2)
+            .summary("zero_field_conductance_S", fit.zero_field_conductance_s)
+            .summary("reduced_chi_square", fit.reduced_chi_square)
+            // p-value and Birge ratio only mean something against stated errors.
+            .summary("chi_square_p_value", fit.quality.as_ref().map(|q| q.p_value))
+            .summary("birge_ratio", fit.quality.as_ref().map(|q| q.birge_ratio))
+            .summary("fitted_points", fit.fitted_points)
+            .summary("single_field_sign", fit.single_field_sign)
+            .warnings(table.warnings.iter().cloned())
+            .warnings(fit.warnings.iter().cloned());
+        out.finish(curve.len())
     }
 }
 
@@ -804,6 +867,7 @@ mod tests {
     use super::*;
     use mobilis_physics::forward::oscillations::{OscillationComponent, SdhModel};
     use mobilis_sdk::sdk::run_typed;
+    use polars::prelude::*;
 
     fn text(frame: &DataFrame, name: &str) -> Vec<String> {
         let column = frame.column(name).unwrap().str().unwrap().clone();
@@ -842,10 +906,10 @@ mod tests {
         let sweep = DataFrame::new(
             rows,
             vec![
-                floats("field_T", field),
-                floats("rho_xx_ohm_sq", rho_xx),
-                floats("rho_xy_ohm", rho_xy),
-                floats("temperature_K", temperature),
+                Column::new("field_T".into(), field),
+                Column::new("rho_xx_ohm_sq".into(), rho_xx),
+                Column::new("rho_xy_ohm".into(), rho_xy),
+                Column::new("temperature_K".into(), temperature),
             ],
         )
         .unwrap();
@@ -930,10 +994,13 @@ mod tests {
         let sweep = DataFrame::new(
             rows,
             vec![
-                floats("rho_xy_ohm", field.iter().map(|b| -50.0 * b).collect()),
-                floats("field_T", field),
-                floats("rho_xx_ohm_sq", rho_xx),
-                floats("temperature_K", temperature),
+                Column::new(
+                    "rho_xy_ohm".into(),
+                    field.iter().map(|b| -50.0 * b).collect::<Vec<f64>>(),
+                ),
+                Column::new("field_T".into(), field),
+                Column::new("rho_xx_ohm_sq".into(), rho_xx),
+                Column::new("temperature_K".into(), temperature),
             ],
         )
         .unwrap();
@@ -1016,9 +1083,9 @@ mod tests {
         let sweep = DataFrame::new(
             rows,
             vec![
-                floats("field_T", field),
-                floats("rho_xx_ohm_sq", rho_xx),
-                floats("rho_xy_ohm", vec![0.0; rows]),
+                Column::new("field_T".into(), field),
+                Column::new("rho_xx_ohm_sq".into(), rho_xx),
+                Column::new("rho_xy_ohm".into(), vec![0.0; rows]),
             ],
         )
         .unwrap();
@@ -1032,6 +1099,156 @@ mod tests {
             "{l_phi} +- {unc}"
         );
         assert_eq!(output.table.height(), rows);
+    }
+
+    /// The parameters the host refuses with its validator before the plugin is called: an
+    /// out-of-range value, an unknown choice and an unknown name, each named in the message.
+    #[test]
+    fn parameters_are_refused_by_the_hosts_validator() {
+        use mobilis_rpc::param_schema::{check_supported, validate};
+        let oscillations = mobilis_sdk::sdk::declaration_of::<OscillationsAnalysis>().params;
+        let weak_localization = mobilis_sdk::sdk::declaration_of::<WeakLocalizationAnalysis>().params;
+        for (name, schema) in [
+            ("oscillations", &oscillations),
+            ("weak_localization", &weak_localization),
+        ] {
+            check_supported(schema, name).unwrap();
+        }
+        let refused = |schema: &Value, params: Value, fragments: &[&str]| {
+            let message = validate(schema, &params).expect_err(&params.to_string());
+            for fragment in fragments {
+                assert!(message.contains(fragment), "{params}: `{message}` lacks `{fragment}`");
+            }
+        };
+        refused(&oscillations, json!({"zero_padding": 0}), &["zero_padding"]);
+        refused(&oscillations, json!({"background_degree": 13}), &["background_degree"]);
+        refused(&oscillations, json!({"spin_degeneracy": 0}), &["spin_degeneracy"]);
+        refused(
+            &oscillations,
+            json!({"field_calibration_rel": 0.6}),
+            &["field_calibration_rel"],
+        );
+        refused(
+            &oscillations,
+            json!({"window": "flat"}),
+            &["window", "hann", "blackman"],
+        );
+        refused(&oscillations, json!({"mass": "guess"}), &["mass", "known"]);
+        refused(
+            &oscillations,
+            json!({"mass_method": "fft"}),
+            &["mass_method", "narrow_windows"],
+        );
+        refused(&oscillations, json!({"field_resolution_T": 0}), &["field_resolution_T"]);
+        refused(&weak_localization, json!({"max_field_T": 0}), &["max_field_T"]);
+        refused(
+            &weak_localization,
+            json!({"zero_field_tolerance_T": -1e-3}),
+            &["zero_field_tolerance_T"],
+        );
+        refused(
+            &weak_localization,
+            json!({"temperature_relative_tolerance": 2}),
+            &["temperature_relative_tolerance"],
+        );
+        // Symmetrization does not apply to the weak-localization fit.
+        refused(
+            &weak_localization,
+            json!({"field_resolution_T": 1e-3}),
+            &["field_resolution_T"],
+        );
+        for params in [
+            json!({"mass": "known", "effective_mass_ratio": 0.07, "window": "blackman"}),
+            json!({"background": "smoothing", "background_width_per_T": 0.3, "mass_method": "narrow_windows"}),
+            json!({"field_resolution_T": 1e-3, "temperature_tolerance_K": 0.1, "field_min_T": null}),
+        ] {
+            validate(&oscillations, &params).unwrap();
+        }
+        validate(
+            &weak_localization,
+            &json!({"classical_term": true, "temperature_tolerance_K": 0.1}),
+        )
+        .unwrap();
+    }
+
+    /// Omitted parameters take the defaults the schema states: each stated default, given
+    /// explicitly, yields the settings of no parameters, and those are the analysis'
+    /// documented defaults.
+    #[test]
+    fn omitted_parameters_take_the_stated_defaults() {
+        fn stated_defaults(schema: &Value) -> Vec<(String, Value)> {
+            let properties = schema["properties"].as_object().unwrap();
+            properties
+                .iter()
+                .filter_map(|(name, property)| {
+                    Some((name.clone(), property.get("default").filter(|d| !d.is_null())?.clone()))
+                })
+                .collect()
+        }
+        let oscillation = |params: Value| -> OscillationParams { serde_json::from_value(params).unwrap() };
+        let omitted = oscillation(json!({}));
+        assert_eq!(omitted.settings().unwrap(), OscillationSettings::default());
+        assert_eq!(
+            omitted.sweep.settings(),
+            mobilis_physics::sweep::SymmetrizeSettings::default()
+        );
+        let schema = mobilis_sdk::sdk::declaration_of::<OscillationsAnalysis>().params;
+        let defaults = stated_defaults(&schema);
+        assert_eq!(defaults.len(), 15, "{defaults:?}");
+        for (name, value) in defaults {
+            let given = oscillation(json!({ name.clone(): value }));
+            assert_eq!(given.settings().unwrap(), omitted.settings().unwrap(), "{name}");
+            assert_eq!(given.sweep.settings(), omitted.sweep.settings(), "{name}");
+            assert_eq!(given.sweep.grouping(), omitted.sweep.grouping(), "{name}");
+        }
+
+        let weak = |params: Value| -> WeakLocalizationParams { serde_json::from_value(params).unwrap() };
+        let omitted = weak(json!({}));
+        // The analysis fits the offset by default (see fit_offset_default); the rest are the fit's.
+        assert_eq!(
+            omitted.settings(),
+            WeakLocalizationSettings {
+                fit_offset: true,
+                ..WeakLocalizationSettings::default()
+            }
+        );
+        let schema = mobilis_sdk::sdk::declaration_of::<WeakLocalizationAnalysis>().params;
+        let defaults = stated_defaults(&schema);
+        assert_eq!(defaults.len(), 5, "{defaults:?}");
+        for (name, value) in defaults {
+            let given = weak(json!({ name.clone(): value }));
+            assert_eq!(given.settings(), omitted.settings(), "{name}");
+            assert_eq!(given.temperatures.grouping(), omitted.temperatures.grouping(), "{name}");
+        }
+    }
+
+    /// The combinations the schema cannot express are refused by the analysis, saying what
+    /// to change.
+    #[test]
+    fn conflicting_oscillation_parameters_are_refused() {
+        let settings = |params: Value| {
+            serde_json::from_value::<OscillationParams>(params)
+                .unwrap()
+                .settings()
+                .unwrap_err()
+                .to_string()
+        };
+        assert!(settings(json!({"background": "smoothing"})).contains("needs background_width_per_T"));
+        assert!(settings(json!({"background_width_per_T": 0.3})).contains("background: smoothing"));
+        assert!(
+            settings(json!({"background": "smoothing", "background_degree": 2, "background_width_per_T": 0.3}))
+                .contains("background_degree goes with background: polynomial")
+        );
+        assert!(settings(json!({"mass": "known"})).contains("needs effective_mass_ratio"));
+        assert!(settings(json!({"mass": "skip", "effective_mass_ratio": 0.07}))
+            .contains("mass `skip` with effective_mass_ratio"));
+        let known = serde_json::from_value::<OscillationParams>(json!({"effective_mass_ratio": 0.07})).unwrap();
+        assert_eq!(
+            known.settings().unwrap().mass,
+            MassRequest::Known {
+                effective_mass_ratio: 0.07
+            }
+        );
     }
 
     #[test]

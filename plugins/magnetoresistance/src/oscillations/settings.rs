@@ -44,13 +44,16 @@ pub enum MassRequest {
     Skip,
 }
 
-/// Which fitted mass is reported as the result (both are computed).
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+/// Which fitted mass is reported as the result (both are computed). Its wire names, those
+/// of the `mass_method` parameter, are [`MassMethod::name`]'s.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Deserialize, serde::Serialize, schemars::JsonSchema)]
+#[serde(rename_all = "snake_case")]
 pub enum MassMethod {
-    /// The damped waveform fitted across temperatures.
+    /// the damped waveform fitted across temperatures
     #[default]
     WaveformFit,
-    /// R_T fitted per narrow window of 1/B, windows combined.
+    /// the Lifshitz-Kosevich damping fitted in narrow 1/B windows, each with its own field,
+    /// the windows combined
     NarrowWindows,
 }
 

@@ -280,31 +280,11 @@ pub enum TwoBandError {
     /// The sweep could not be symmetrized (zero field only, rho_xx <= 0, NaN ...).
     #[error("{0}")]
     Sweep(#[from] SweepError),
-    #[error("the sweep has no points; give rho_xx and rho_xy at several fields")]
-    NoPoints,
-    #[error("point {index}: {column} is {value}; give a finite number or drop the point")]
-    NonFinite {
-        index: usize,
-        column: &'static str,
-        value: f64,
-    },
-    #[error(
-        "point {index}: rho_xx_ohm_sq is {value}; a sample's longitudinal resistivity is positive, so check the voltage polarity and the units, or drop the point"
-    )]
-    NonPositiveRhoXx { index: usize, value: f64 },
-    #[error(
-        "point {index}: the uncertainty {column} is {value}; give a finite positive standard uncertainty (a correlation within (-1, 1))"
-    )]
-    InvalidUncertainty {
-        index: usize,
-        column: &'static str,
-        value: f64,
-    },
-    #[error("{with} points have uncertainties and {without} do not; give uncertainties for every point or for none")]
-    MixedUncertainties { with: usize, without: usize },
-    /// Every point is at zero field.
-    #[error("all {points} points are at zero field, where two bands cannot be told apart; give a field sweep")]
-    NoField { points: usize },
+    /// The resistivity points break a rule of every two-component fit (no points, a value
+    /// not finite, rho_xx <= 0, an invalid or partial set of uncertainties, no point in
+    /// field), checked once by `mobilis_physics::tensor_data`.
+    #[error(transparent)]
+    Data(#[from] TensorDataError),
     /// Fewer residuals than the four parameters need.
     #[error(
         "{points} points give {residuals} residuals, too few for the 4 parameters of two bands ({} needed); give more field points",
@@ -325,7 +305,7 @@ pub enum TwoBandError {
     #[error(
         "guess carrier {index}: {what}; give carriers of the kinds of `kinds`, in that order, with finite positive densities and mobilities"
     )]
-    InvalidGuess { index: usize, what: &'static str },
+    InvalidGuess { index: usize, what: String },
     /// The data do not determine the parameters.
     #[error(
         "the data do not determine the two bands (parameters {parameters:?} of ln n_1, ln mu_1, ln n_2, ln mu_2 are degenerate); measure to higher field, where the bands' magnetoresistance appears, or fit one carrier"
@@ -347,21 +327,6 @@ fn residuals_needed(weighted: &bool) -> usize {
         4
     } else {
         5
-    }
-}
-
-impl From<TensorDataError> for TwoBandError {
-    fn from(error: TensorDataError) -> Self {
-        match error {
-            TensorDataError::NoPoints => TwoBandError::NoPoints,
-            TensorDataError::NonFinite { index, column, value } => TwoBandError::NonFinite { index, column, value },
-            TensorDataError::NonPositiveXx { index, value, .. } => TwoBandError::NonPositiveRhoXx { index, value },
-            TensorDataError::InvalidUncertainty { index, column, value } => {
-                TwoBandError::InvalidUncertainty { index, column, value }
-            }
-            TensorDataError::MixedUncertainties { with, without } => TwoBandError::MixedUncertainties { with, without },
-            TensorDataError::NoField { points } => TwoBandError::NoField { points },
-        }
     }
 }
 
@@ -529,21 +494,14 @@ fn validate_settings(settings: &TwoBandSettings) -> Result<LogBounds, TwoBandErr
             if carrier.kind != settings.kinds[index] {
                 return Err(TwoBandError::InvalidGuess {
                     index,
-                    what: "its kind differs from the one in `kinds`",
+                    what: "its kind differs from the one in `kinds`".into(),
                 });
             }
-            if !(carrier.sheet_density_m2.is_finite() && carrier.sheet_density_m2 > 0.0) {
-                return Err(TwoBandError::InvalidGuess {
-                    index,
-                    what: "its sheet density is not finite and positive",
-                });
-            }
-            if !(carrier.mobility_m2_per_vs.is_finite() && carrier.mobility_m2_per_vs > 0.0) {
-                return Err(TwoBandError::InvalidGuess {
-                    index,
-                    what: "its mobility is not finite and positive",
-                });
-            }
+            // The forward model's own rule for a carrier: finite positive density and mobility.
+            carrier.validate().map_err(|error| TwoBandError::InvalidGuess {
+                index,
+                what: error.to_string(),
+            })?;
         }
     }
     Ok(bounds)

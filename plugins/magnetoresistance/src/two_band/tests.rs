@@ -361,7 +361,9 @@ fn two_band_refuses_bad_input_with_clear_errors() {
     assert!(error.to_string().contains("zero_field_tolerance_T"), "{error}");
     // Field points only at zero field.
     let zero: Vec<SweepPoint> = (0..5).map(|_| SweepPoint::new(0.0, 100.0, 0.0)).collect();
-    assert_eq!(fit_two_band(&zero, &defaults), Err(TwoBandError::NoField { points: 5 }));
+    let error = fit_two_band(&zero, &defaults).unwrap_err();
+    assert_eq!(error, TwoBandError::Data(TensorDataError::NoField { points: 5 }));
+    assert!(error.to_string().contains("give a field sweep"), "{error}");
     // Too few points for four parameters.
     let two = [SweepPoint::new(0.0, 100.0, 0.0), SweepPoint::new(1.0, 101.0, -3.0)];
     let error = fit_two_band(&two, &defaults).unwrap_err();
@@ -375,16 +377,19 @@ fn two_band_refuses_bad_input_with_clear_errors() {
     bad[4].rho_xy_ohm = f64::INFINITY;
     assert!(matches!(
         fit_two_band(&bad, &defaults),
-        Err(TwoBandError::NonFinite {
+        Err(TwoBandError::Data(TensorDataError::NonFinite {
             index: 4,
             column: "rho_xy_ohm",
             ..
-        })
+        }))
     ));
     bad[4].rho_xy_ohm = 1.0;
     bad[2].rho_xx_ohm_sq = -5.0;
     let error = fit_two_band(&bad, &defaults).unwrap_err();
-    assert!(matches!(error, TwoBandError::NonPositiveRhoXx { index: 2, .. }));
+    assert!(matches!(
+        error,
+        TwoBandError::Data(TensorDataError::NonPositiveXx { index: 2, .. })
+    ));
     assert!(!error.to_string().ends_with('.'));
     // Settings.
     let settings = TwoBandSettings {
@@ -407,9 +412,20 @@ fn two_band_refuses_bad_input_with_clear_errors() {
         error,
         TwoBandError::InvalidGuess {
             index: 0,
-            what: "its kind differs from the one in `kinds`"
+            what: "its kind differs from the one in `kinds`".into()
         }
     );
+    // A guess breaking the forward model's rule for a carrier is named with that rule.
+    let settings = TwoBandSettings {
+        guess: Some([Carrier::electron(1e15, f64::NAN), Carrier::hole(1e16, 0.1)]),
+        ..Default::default()
+    };
+    let error = fit_two_band(&points, &settings).unwrap_err();
+    assert!(
+        matches!(error, TwoBandError::InvalidGuess { index: 0, .. }),
+        "{error:?}"
+    );
+    assert!(error.to_string().contains("mobility_m2_per_vs = NaN"), "{error}");
 }
 
 // A guess is one more start and leaves the answer unchanged when the data decide it.

@@ -60,8 +60,8 @@ pub struct FreezeOutParams {
     #[serde(flatten)]
     pub budget: BudgetParams,
     /// relative standard uncertainty of a scale common to every density (thickness, current,
-    /// voltage, field calibrations) when the table has no density_m3_unc_sys, e.g. 0.03 for 3
-    /// %; applied once to N_D, N_A and the net density after the fit; default: not given (0)
+    /// voltage, field calibrations) when the table has no density_m3_unc_sys, e.g. 0.03 for
+    /// 3 %; applied once to N_D, N_A and the net density after the fit; default: not given (0)
     #[serde(default)]
     #[schemars(range(min = 0), extend("exclusiveMaximum" = 1))]
     pub density_scale_relative_uncertainty: Option<f64>,

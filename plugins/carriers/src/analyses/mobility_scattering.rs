@@ -45,8 +45,8 @@ pub struct ScatteringParams {
     /// with N_comp fitted (needs density_m3)
     #[serde(default)]
     pub ionized_density: IonizedDensityModel,
-    /// neutral-impurity scattering (Erginsoy): none, a fitted constant density, or N_D - N_A
-    /// - n from the freeze_out input
+    /// neutral-impurity scattering (Erginsoy): none, a fitted constant density, or
+    /// N_D - N_A - n from the freeze_out input
     #[serde(default)]
     pub neutral: NeutralChoice,
     /// fit a temperature-independent mobility term

@@ -26,6 +26,7 @@ pub(crate) fn single_field_sign_key() -> ColumnSpec {
 }
 
 /// Where rho(0) comes from: the `zero_field` parameter of `mr.ratio` and `mr.kohler`.
+// Serialize so that the derived schema can state the default choice.
 #[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum ZeroFieldSource {
@@ -416,6 +417,7 @@ impl Analysis for KohlerAnalysis {
 pub struct TwoBandAnalysis;
 
 /// The kind of one band of `mr.two_band_fit`, by its `carrier_type` code.
+// Serialize so that the derived schema can state the default pair.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
 pub enum BandKind {
     /// electrons

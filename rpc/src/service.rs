@@ -14,7 +14,7 @@ use crate::store::{self, DatasetStore, Provenance};
 use crate::tables::{self, FileFormat};
 use mobilis_sdk::abi::{self, ColumnSpec, ColumnType};
 use polars::prelude::*;
-use serde_json::{json, Value};
+use serde_json::Value;
 use std::collections::{BTreeMap, HashMap};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::Ordering;
@@ -40,8 +40,9 @@ pub use groups::summary_table;
 use groups::{group_rows, rows_matching};
 
 use mobilis_protocol::results::{
-    AbiVersion, AnalysisEntry, CancelResult, DatasetEntry, DatasetInfo, DatasetPage, DatasetSummary, Dropped, Exported,
-    LoadedPlugin, MemoryUse, PipelineResult, PluginEntry, ProgressState, RefusedPlugin, RunResult, ServerInfo,
+    AbiVersion, AnalysisDescription, AnalysisEntry, CancelResult, DatasetEntry, DatasetInfo, DatasetPage,
+    DatasetSummary, Dropped, Exported, GroupSummary, GroupedSummary, LoadedPlugin, MemoryUse, PipelineResult,
+    PluginEntry, PluginIdentity, ProgressState, RefusedPlugin, RunResult, ServerInfo,
 };
 
 /// The group columns of a run: none, one or several.
@@ -273,16 +274,24 @@ impl Service {
             .with_param("analysis")
     }
 
-    pub fn analysis_describe(&self, name: &str) -> ServiceResult<Value> {
+    pub fn analysis_describe(&self, name: &str) -> ServiceResult<AnalysisDescription> {
         let entry = self
             .host
             .analyses
             .get(name)
             .ok_or_else(|| self.unknown_analysis(name))?;
         let plugin = &self.host.plugins[entry.plugin_index];
-        let mut value = serde_json::to_value(&entry.declaration).expect("declaration serialises");
-        value["plugin"] = json!({"name": plugin.name, "version": plugin.version});
-        Ok(value)
+        let Value::Object(declaration) = serde_json::to_value(&entry.declaration).expect("declaration serialises")
+        else {
+            unreachable!("a declaration serialises as an object")
+        };
+        Ok(AnalysisDescription {
+            declaration,
+            plugin: PluginIdentity {
+                name: plugin.name.clone(),
+                version: plugin.version.clone(),
+            },
+        })
     }
 
     fn dataset_summary(dataset: &store::Dataset) -> DatasetSummary {
@@ -861,8 +870,11 @@ impl Service {
                 .zip(&key)
                 .map(|(c, v)| (c.clone(), cell_to_json(v.clone())))
                 .collect();
-            group_summaries
-                .push(json!({ "group": group_object, "summary": result.summary, "warnings": result.warnings }));
+            group_summaries.push(GroupSummary {
+                group: group_object,
+                summary: result.summary,
+                warnings: result.warnings,
+            });
             combined = Some(match combined {
                 None => table,
                 Some(mut all) => {
@@ -885,7 +897,14 @@ impl Service {
                 ),
             )
         })?;
-        Ok((table, json!({ "groups": group_summaries }), warnings))
+        let summary = GroupedSummary {
+            groups: group_summaries,
+        };
+        Ok((
+            table,
+            serde_json::to_value(summary).expect("a grouped summary serialises"),
+            warnings,
+        ))
     }
 
     /// Runs steps in order; a step may name an earlier step's output as an input. Every
@@ -976,6 +995,7 @@ impl Service {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use serde_json::json;
 
     #[test]
     fn an_import_with_a_call_id_reports_its_progress_and_its_end() {

@@ -463,12 +463,7 @@ mod tests {
     /// returned directory).
     fn module_without_plugins() -> (tempfile::TempDir, RpcModule<Service>) {
         let workspace = tempfile::tempdir().unwrap();
-        let service = Service::new(
-            crate::store::DatasetStore::open(workspace.path()).unwrap(),
-            crate::plugin_host::PluginHost::default(),
-            crate::data_roots::DataRoots::new([workspace.path().to_owned()]),
-            workspace.path().to_owned(),
-        );
+        let service = Service::without_plugins(workspace.path());
         (workspace, module(Arc::new(service)))
     }
 
@@ -763,12 +758,7 @@ mod tests {
         assert_eq!(unknown["error"]["code"], 4001, "{unknown}");
         // Asked directly, past the schema, the service refuses the same way and says what to do.
         let workspace = tempfile::tempdir().unwrap();
-        let service = Service::new(
-            crate::store::DatasetStore::open(workspace.path()).unwrap(),
-            crate::plugin_host::PluginHost::default(),
-            crate::data_roots::DataRoots::new([workspace.path().to_owned()]),
-            workspace.path().to_owned(),
-        );
+        let service = Service::without_plugins(workspace.path());
         let service_refusal = service
             .dataset_list(crate::service::ListParams {
                 limit: Some(6000),

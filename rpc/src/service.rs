@@ -993,6 +993,20 @@ impl Service {
 }
 
 #[cfg(test)]
+impl Service {
+    /// A service with no plugins over the (empty) workspace `workspace`, which is also its
+    /// one data root: what the daemon's own unit tests call.
+    pub(crate) fn without_plugins(workspace: &Path) -> Service {
+        Service::new(
+            DatasetStore::open(workspace).unwrap(),
+            PluginHost::default(),
+            DataRoots::new([workspace.to_owned()]),
+            workspace.to_owned(),
+        )
+    }
+}
+
+#[cfg(test)]
 mod tests {
     use super::*;
     use serde_json::json;
@@ -1000,12 +1014,7 @@ mod tests {
     #[test]
     fn an_import_with_a_call_id_reports_its_progress_and_its_end() {
         let workspace = tempfile::tempdir().unwrap();
-        let service = Service::new(
-            DatasetStore::open(workspace.path()).unwrap(),
-            PluginHost::default(),
-            DataRoots::new([workspace.path().to_owned()]),
-            workspace.path().to_owned(),
-        );
+        let service = Service::without_plugins(workspace.path());
         let mut events = service.progress_hub.subscribe("import-1");
         let params: ImportParams = serde_json::from_value(json!({
             "name": "t", "columns": {"temperature_K": [10.0, 20.0]}, "call_id": "import-1",
@@ -1025,15 +1034,6 @@ mod tests {
         assert_eq!(kinds.last().map(String::as_str), Some("end"), "{kinds:?}");
         // The id is free again once the import has ended.
         assert!(!service.progress("import-1").running);
-    }
-
-    fn empty_service(workspace: &Path) -> Service {
-        Service::new(
-            DatasetStore::open(workspace).unwrap(),
-            PluginHost::default(),
-            DataRoots::new([workspace.to_owned()]),
-            workspace.to_owned(),
-        )
     }
 
     #[test]
@@ -1084,7 +1084,7 @@ mod tests {
     #[test]
     fn an_unknown_analysis_is_refused_before_any_input_is_read() {
         let workspace = tempfile::tempdir().unwrap();
-        let service = empty_service(workspace.path());
+        let service = Service::without_plugins(workspace.path());
         let run: RunParams = serde_json::from_value(json!({
             "analysis": "hall.reduse", "inputs": {"readings": "absent"}, "output": "out",
         }))
@@ -1101,7 +1101,7 @@ mod tests {
     #[test]
     fn a_taken_output_name_is_refused_with_the_way_out() {
         let workspace = tempfile::tempdir().unwrap();
-        let service = empty_service(workspace.path());
+        let service = Service::without_plugins(workspace.path());
         let import: ImportParams =
             serde_json::from_value(json!({"name": "out", "columns": {"temperature_K": [10.0]}})).unwrap();
         service.dataset_import(import).unwrap();
@@ -1119,7 +1119,7 @@ mod tests {
     #[test]
     fn dataset_calls_go_to_the_store() {
         let workspace = tempfile::tempdir().unwrap();
-        let service = empty_service(workspace.path());
+        let service = Service::without_plugins(workspace.path());
         let error = service.dataset_info("nothing").unwrap_err();
         assert_eq!(error.kind, ErrorKind::UnknownDataset);
         assert_eq!(error.kind.code(), 4002);
@@ -1135,7 +1135,7 @@ mod tests {
     #[test]
     fn a_finished_call_reports_its_outcome() {
         let workspace = tempfile::tempdir().unwrap();
-        let service = empty_service(workspace.path());
+        let service = Service::without_plugins(workspace.path());
         let mut call = service.register_call(Some("c-1"), "test").unwrap();
         // A second call may not take a running call's id.
         assert!(service.register_call(Some("c-1"), "test").is_err());

@@ -36,8 +36,8 @@ pub use mobilis_protocol::params::{
 };
 mod groups;
 
-pub use groups::summary_table;
 use groups::{group_rows, rows_matching};
+pub use groups::{summary_table, RunSummary};
 
 use mobilis_protocol::results::{
     AbiVersion, AnalysisDescription, AnalysisEntry, CancelResult, DatasetEntry, DatasetInfo, DatasetPage,
@@ -722,7 +722,7 @@ impl Service {
         let group_columns = group_columns(&run.group_by);
         let inputs_done = started.elapsed();
 
-        let (table, summary, warnings) = self.run_groups(&run, &params, &inputs, &group_columns, control)?;
+        let (table, run_summary, warnings) = self.run_groups(&run, &params, &inputs, &group_columns, control)?;
         drop(inputs);
         let analysis_done = started.elapsed();
 
@@ -730,6 +730,7 @@ impl Service {
             .host
             .plugin_of(&run.analysis)
             .expect("registered analysis has a plugin");
+        let summary = run_summary.to_value();
         let provenance = |of_summary: bool| Provenance::Analysis {
             analysis: run.analysis.clone(),
             plugin: plugin.name.clone(),
@@ -743,7 +744,7 @@ impl Service {
             warnings: if of_summary { Vec::new() } else { warnings.clone() },
         };
         let summary_frame = match &run.summary_output {
-            Some(_) => Some(summary_table(&summary, &group_columns)?),
+            Some(_) => Some(summary_table(&run_summary, &group_columns)?),
             None => None,
         };
         // The output and its summary commit together: a crash never keeps one without the other.
@@ -798,7 +799,7 @@ impl Service {
         inputs: &[(String, DataFrame)],
         group_columns: &[String],
         control: &Arc<CallControl>,
-    ) -> ServiceResult<(DataFrame, Value, Vec<String>)> {
+    ) -> ServiceResult<(DataFrame, RunSummary, Vec<String>)> {
         let whole = control.span();
         if group_columns.is_empty() {
             control.enter(whole.part(0, 1, ""));
@@ -806,7 +807,7 @@ impl Service {
                 .host
                 .invoke(&run.analysis, params, inputs, control)
                 .map_err(|f| invoke_error(&run.analysis, f))?;
-            return Ok((result.table, result.summary, result.warnings));
+            return Ok((result.table, RunSummary::Single(result.summary), result.warnings));
         }
         let (_, primary) = inputs
             .first()
@@ -900,11 +901,7 @@ impl Service {
         let summary = GroupedSummary {
             groups: group_summaries,
         };
-        Ok((
-            table,
-            serde_json::to_value(summary).expect("a grouped summary serialises"),
-            warnings,
-        ))
+        Ok((table, RunSummary::Grouped(summary), warnings))
     }
 
     /// Runs steps in order; a step may name an earlier step's output as an input. Every

@@ -599,26 +599,6 @@ pub(super) fn series_field_signs(
         .warnings(sweep_warnings);
 }
 
-/// [`series_field_signs`] on a finished output, whose warnings it replaces (still used by
-/// quantum.rs).
-pub(super) fn report_series_field_signs(
-    output: &mut AnalysisOutput,
-    single_sign_temperatures: &[f64],
-    sweep_warnings: Vec<String>,
-) {
-    output
-        .summary
-        .insert("single_field_sign".into(), json!(!single_sign_temperatures.is_empty()));
-    output.summary.insert(
-        "single_field_sign_temperatures_K".into(),
-        json!(single_sign_temperatures),
-    );
-    output.warnings = single_field_sign_series_warning(single_sign_temperatures)
-        .into_iter()
-        .chain(sweep_warnings)
-        .collect();
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;

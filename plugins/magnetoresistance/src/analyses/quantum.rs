@@ -20,8 +20,7 @@ use mobilis_physics::sweep::{symmetrize, SweepUse};
 use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType};
 use mobilis_sdk::sdk::{invalid, Analysis, AnalysisError, AnalysisOutput, Host, Inputs, OutputBuilder};
 use mobilis_sdk::sweep_table::{
-    single_field_sign_series_warning, single_sweep, sweep_role, sweeps_by_temperature, SweepParams, SweepTable,
-    TemperatureGroupingParams,
+    single_sweep, sweep_role, sweeps_by_temperature, SweepParams, SweepTable, TemperatureGroupingParams,
 };
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
@@ -349,14 +348,8 @@ impl Analysis for OscillationsAnalysis {
         let mut out = OutputBuilder::of::<Self>();
         let height = oscillation_table(&mut out, &analysis);
         fill_oscillation_summary(&mut out, &analysis, &tables, &symmetrized.sweeps);
-        // The series' field signs: one warning for every sweep measured at one sign, before
-        // the sweeps' own warnings and the analysis' warnings.
-        let single_sign = &symmetrized.single_sign_temperatures;
-        out.summary("single_field_sign", !single_sign.is_empty())
-            .summary("single_field_sign_temperatures_K", single_sign)
-            .warnings(single_field_sign_series_warning(single_sign))
-            .warnings(symmetrized.warnings)
-            .warnings(analysis.warnings.iter().cloned());
+        super::classical::series_field_signs(&mut out, &symmetrized.single_sign_temperatures, symmetrized.warnings);
+        out.warnings(analysis.warnings.iter().cloned());
         host.progress(1.0, "done");
         out.finish(height)
     }

@@ -140,8 +140,10 @@ impl Default for CarrierSelection {
     }
 }
 
-/// The information criterion of the automatic selection.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+/// The information criterion of the automatic selection; the parameters name it `bic` or
+/// `aicc`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Deserialize, serde::Serialize, schemars::JsonSchema)]
+#[serde(rename_all = "lowercase")]
 pub enum InformationCriterion {
     /// Bayesian (Schwarz 1978). Default.
     #[default]

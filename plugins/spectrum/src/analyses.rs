@@ -314,10 +314,8 @@ impl Analysis for MultiCarrierFitAnalysis {
 /// `spectrum.mobility`.
 pub struct MobilitySpectrumAnalysis;
 
-/// How the strength of the smoothness penalty is chosen, as the parameters name it.
-///
-/// [`RegularizationRule`] carries the fixed strength itself, so the parameters need a
-/// choice of their own.
+/// How the strength of the smoothness penalty is chosen.
+// A choice of the parameters' own: `RegularizationRule` carries the fixed strength itself.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, Serialize, JsonSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum Regularization {

@@ -360,7 +360,10 @@ pub struct SpectrumParams {
     #[schemars(extend("exclusiveMinimum" = 0))]
     mobility_max_m2_per_vs: Option<f64>,
     /// how the smoothing strength is chosen: auto (discrepancy principle with uncertainties, L-curve without), or fixed (regularization_strength); not given: auto, or fixed when regularization_strength is given
-    #[schemars(extend("default" = "auto"))]
+    // Declared as the plain choice: "not given" is the only way to leave it out (null is
+    // not a choice), and it reads as auto unless a strength is given.
+    #[serde(default)]
+    #[schemars(with = "Regularization", extend("default" = "auto"))]
     regularization: Option<Regularization>,
     /// the dimensionless strength for regularization: fixed
     #[schemars(extend("exclusiveMinimum" = 0))]
@@ -661,10 +664,26 @@ mod tests {
             "{carriers}"
         );
         assert_eq!(property::<MultiCarrierFitAnalysis>("max_carriers")["maximum"], json!(5));
-        let regularization = property::<MobilitySpectrumAnalysis>("regularization").to_string();
-        for choice in ["auto", "discrepancy", "l_curve", "fixed"] {
-            assert!(regularization.contains(&format!("\"{choice}\"")), "{regularization}");
-        }
+        let regularization = property::<MobilitySpectrumAnalysis>("regularization");
+        let choices: Vec<&Value> = regularization["oneOf"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|c| &c["const"])
+            .collect();
+        assert_eq!(
+            choices,
+            [
+                &json!("auto"),
+                &json!("discrepancy"),
+                &json!("l_curve"),
+                &json!("fixed")
+            ],
+            "{regularization}"
+        );
+        assert_eq!(regularization["default"], json!("auto"));
+        let required = &declaration_of::<MobilitySpectrumAnalysis>().params["required"];
+        assert!(required.is_null() || required == &json!([]), "{required}");
         assert_eq!(
             property::<MobilitySpectrumAnalysis>("points_per_sign")["minimum"],
             json!(8)

@@ -219,12 +219,25 @@ pub struct Unsubscribe {
     pub subscription: results::SubscriptionId,
 }
 
+/// The value given, or the default when none was.
+macro_rules! or_default {
+    (, $default:expr) => {
+        $default
+    };
+    ($given:expr, $default:expr) => {
+        $given
+    };
+}
+
+/// Builds the method table and the marker types from one entry per method. An entry names
+/// what differs between methods; `deadline` (none) and `structure` (by name) may be left
+/// out, as most methods take no deadline and every method but one takes its params by name.
 macro_rules! methods {
     ($(
         $(#[$doc:meta])*
         $marker:ident = $name:literal ($params:ty) -> $result:ty {
-            runs: $runs:ident, deadline: $deadline:expr, errors: $errors:literal,
-            structure: $structure:ident, summary: $summary:literal $(,)?
+            runs: $runs:ident, $(deadline: $deadline:expr,)? errors: $errors:literal,
+            $(structure: $structure:ident,)? summary: $summary:literal $(,)?
         }
     )*) => {
         /// One type per method, to call it with its own params and result types.
@@ -249,9 +262,9 @@ macro_rules! methods {
                 summary: $summary,
                 params: schema_of::<$params>,
                 result: schema_of::<$result>,
-                structure: ParamStructure::$structure,
+                structure: or_default!($(ParamStructure::$structure)?, ParamStructure::ByName),
                 runs: Runs::$runs,
-                deadline: $deadline,
+                deadline: or_default!($($deadline)?, None),
                 lists_errors: $errors,
             },
         )*];
@@ -277,107 +290,107 @@ const FIGURE_DEADLINE: Option<Deadline> = Some(Deadline {
 methods! {
     /// `server.info`
     ServerInfoMethod = "server.info" (NoParams) -> ServerInfo {
-        runs: Inline, deadline: None, errors: false, structure: ByName,
+        runs: Inline, errors: false,
         summary: "Name, version, plugin ABI version, workspace, data roots, plugins loaded (name, version, isolation) and refused (file, reason), damaged workspace files, memory {stored_bytes, budget_bytes} of the stored tables",
     }
     /// `rpc.discover`
     Discover = "rpc.discover" (NoParams) -> Object {
-        runs: Inline, deadline: None, errors: false, structure: ByName,
+        runs: Inline, errors: false,
         summary: "This OpenRPC document",
     }
     /// `plugin.list`
     PluginList = "plugin.list" (NoParams) -> Vec<PluginEntry> {
-        runs: Inline, deadline: None, errors: false, structure: ByName,
+        runs: Inline, errors: false,
         summary: "Each plugin: name, version, library file, analyses, isolation (\"in_process\": in the daemon's process; \"isolated\": in supervised worker processes, where a crash, exit or hang fails one call with 5001)",
     }
     /// `analysis.list`
     AnalysisList = "analysis.list" (NoParams) -> Vec<AnalysisEntry> {
-        runs: Inline, deadline: None, errors: false, structure: ByName,
+        runs: Inline, errors: false,
         summary: "Each analysis: name, plugin, one-line summary",
     }
     /// `analysis.describe`
-    AnalysisDescribe = "analysis.describe" (AnalysisName) -> Object {
-        runs: Inline, deadline: None, errors: true, structure: ByName,
+    AnalysisDescribe = "analysis.describe" (AnalysisName) -> AnalysisDescription {
+        runs: Inline, errors: true,
         summary: "An analysis's parameters (JSON Schema), input roles with their columns and units, output columns and summary keys",
     }
     /// `dataset.import`
     DatasetImport = "dataset.import" (ImportParams) -> DatasetSummary {
-        runs: InComputeSlot, deadline: None, errors: true, structure: ByName,
+        runs: InComputeSlot, errors: true,
         summary: "Stores a table read from a file inside the data roots (CSV, Parquet, Arrow IPC) or sent inline as columns; `rename` renames columns, then `units` converts columns into SI; `csv` describes a CSV file's dialect",
     }
     /// `dataset.list`
     DatasetList = "dataset.list" (ListParams) -> DatasetPage {
-        runs: Inline, deadline: None, errors: true, structure: ByName,
+        runs: Inline, errors: true,
         summary: "A page of the stored datasets in name order: name, rows and column count of each (dataset.info has the columns and provenance); total counts every match, so a client pages with offset until it has them all",
     }
     /// `dataset.info`
     DatasetInfoMethod = "dataset.info" (DatasetName) -> DatasetInfo {
-        runs: Inline, deadline: None, errors: true, structure: ByName,
+        runs: Inline, errors: true,
         summary: "A dataset's rows, columns, creation time and provenance (for an analysis output also the run's summary and warnings as answered: run_summary, warnings)",
     }
     /// `dataset.drop`
     DatasetDrop = "dataset.drop" (DatasetName) -> Dropped {
-        runs: Blocking, deadline: None, errors: true, structure: ByName,
+        runs: Blocking, errors: true,
         summary: "Removes a dataset from memory and from the workspace",
     }
     /// `dataset.rows`
     DatasetRows = "dataset.rows" (RowsParams) -> RowsPage {
-        runs: InComputeSlot, deadline: None, errors: true, structure: ByName,
+        runs: InComputeSlot, errors: true,
         summary: "A page of rows as columns of JSON values (SI units; NaN as null)",
     }
     /// `dataset.export`
     DatasetExport = "dataset.export" (ExportParams) -> Exported {
-        runs: InComputeSlot, deadline: None, errors: true, structure: ByName,
+        runs: InComputeSlot, errors: true,
         summary: "Writes a dataset to a file inside the data roots (CSV, Parquet or Arrow IPC)",
     }
     /// `analysis.run`
     AnalysisRun = "analysis.run" (RunParams) -> RunResult {
-        runs: InComputeSlot, deadline: RUN_DEADLINE, errors: true, structure: ByName,
+        runs: InComputeSlot, deadline: RUN_DEADLINE, errors: true,
         summary: "Runs an analysis on stored datasets and stores its output table; with group_by, once per group of the first input, outputs concatenated and one summary per group",
     }
     /// `analysis.cancel`
     AnalysisCancel = "analysis.cancel" (CallId) -> CancelResult {
-        runs: Inline, deadline: None, errors: true, structure: ByName,
+        runs: Inline, errors: true,
         summary: "Asks a running analysis.run (by its call_id) to stop; the run then fails with the cancelled error",
     }
     /// `analysis.progress`
     AnalysisProgress = "analysis.progress" (CallId) -> ProgressState {
-        runs: Inline, deadline: None, errors: true, structure: ByName,
+        runs: Inline, errors: true,
         summary: "The progress last reported by a running analysis.run (by its call_id)",
     }
     /// `pipeline.run`
     PipelineRun = "pipeline.run" (PipelineParams) -> PipelineResult {
-        runs: InComputeSlot, deadline: PIPELINE_DEADLINE, errors: true, structure: ByName,
+        runs: InComputeSlot, deadline: PIPELINE_DEADLINE, errors: true,
         summary: "Runs analysis.run steps in order; a step may name an earlier step's output; every step is checked before the first runs",
     }
     /// `plot.render`
     PlotRender = "plot.render" (PlotParams) -> Figure {
-        runs: InComputeSlot, deadline: FIGURE_DEADLINE, errors: true, structure: ByName,
+        runs: InComputeSlot, deadline: FIGURE_DEADLINE, errors: true,
         summary: "Draws a stored dataset: SVG drawn by the daemon and the same figure as a Vega-Lite v5 specification. Without `kind`, the figure suits the analysis that produced the dataset (see plot.kinds); axes in the customary units of the trade, uncertainties as error bars",
     }
     /// `plot.kinds`
     PlotKinds = "plot.kinds" (DatasetFilter) -> Vec<PlotKind> {
-        runs: Inline, deadline: None, errors: true, structure: ByName,
+        runs: Inline, errors: true,
         summary: "The figures plot.render can draw, each with the analyses whose outputs it draws; with `dataset`, only those that apply to it",
     }
     /// `report.samples`
     ReportSamples = "report.samples" (NoParams) -> Vec<ReportSample> {
-        runs: Inline, deadline: None, errors: false, structure: ByName,
+        runs: Inline, errors: false,
         summary: "Every sample named in a `sample` column of a stored dataset, with the datasets that hold it",
     }
     /// `report.render`
     ReportRender = "report.render" (SampleName) -> Report {
-        runs: InComputeSlot, deadline: FIGURE_DEADLINE, errors: true, structure: ByName,
+        runs: InComputeSlot, deadline: FIGURE_DEADLINE, errors: true,
         summary: "One self-contained HTML page for a sample: first its results (each analysis's key numbers with uncertainties, fit quality and flags, from the stored run summaries), then every dataset holding it, in the order the work went, with figures (inline SVG), key columns first, the full table behind a disclosure and as a CSV download, quality flags, and provenance (source files, analyses, parameters, plugin and daemon versions); prints on A4 and Letter",
     }
     /// `progress.subscribe`
     ProgressSubscribe = "progress.subscribe" (CallId) -> SubscriptionId {
-        runs: Subscription, deadline: None, errors: true, structure: ByName,
+        runs: Subscription, errors: true,
         summary: "WebSocket and stdio only: subscribes to the progress of the call with this call_id (subscribe before starting the call). The daemon sends `progress.event` notifications, params {subscription, result: event}, where event is {call_id, kind: \"begin\", title}, then {call_id, kind: \"report\", fraction 0-1, message} at most every 100 ms, then {call_id, kind: \"end\", outcome: \"done\"|\"failed\"|\"cancelled\", message?}, after which the subscription is over. A call that ended recently answers with its end event at once",
     }
     /// `progress.unsubscribe`
     ProgressUnsubscribe = "progress.unsubscribe" (Unsubscribe) -> bool {
-        runs: Subscription, deadline: None, errors: true, structure: ByPosition,
+        runs: Subscription, errors: true, structure: ByPosition,
         summary: "Ends a progress subscription early; params by position: [subscription id]",
     }
 }
@@ -432,6 +445,83 @@ mod tests {
         assert!(schema["properties"]["steps"]["items"]["properties"]
             .get("deadline_s")
             .is_none());
+    }
+
+    /// The daemon once wrote these answers as JSON literals; the types must put the same
+    /// members on the wire, in the same order, and leave out what was left out.
+    #[test]
+    fn typed_answers_keep_the_wire_shape() {
+        // Through `serde_json::Value`, as the daemon answers.
+        fn text<T: Serialize>(value: &T) -> String {
+            serde_json::to_value(value).unwrap().to_string()
+        }
+        let figure = Figure {
+            dataset: "d".into(),
+            kind: "columns".into(),
+            title: "t".into(),
+            svg: None,
+            vega_lite: Some(json!({"mark": "point"})),
+        };
+        assert_eq!(
+            text(&figure),
+            r#"{"dataset":"d","kind":"columns","title":"t","vega_lite":{"mark":"point"}}"#
+        );
+        let grouped = GroupedSummary {
+            groups: vec![GroupSummary {
+                group: json!({"sample": "W1", "temperature_K": 300.0})
+                    .as_object()
+                    .unwrap()
+                    .clone(),
+                summary: json!({"n": 1}),
+                warnings: vec!["w".into()],
+            }],
+        };
+        assert_eq!(
+            text(&grouped),
+            r#"{"groups":[{"group":{"sample":"W1","temperature_K":300.0},"summary":{"n":1},"warnings":["w"]}]}"#
+        );
+        let described = AnalysisDescription {
+            declaration: json!({"name": "a.b", "summary": "s"}).as_object().unwrap().clone(),
+            plugin: PluginIdentity {
+                name: "a".into(),
+                version: "1".into(),
+            },
+        };
+        let wire = text(&described);
+        assert_eq!(
+            wire,
+            r#"{"name":"a.b","summary":"s","plugin":{"name":"a","version":"1"}}"#
+        );
+        let back: AnalysisDescription = serde_json::from_str(&wire).unwrap();
+        assert_eq!(back.plugin.name, "a");
+        assert!(!back.declaration.contains_key("plugin"));
+        let sample = ReportSample {
+            sample: "W1".into(),
+            datasets: vec!["raw".into()],
+        };
+        assert_eq!(text(&sample), r#"{"sample":"W1","datasets":["raw"]}"#);
+        let report = Report {
+            sample: "W1".into(),
+            datasets: vec![],
+            figures: 2,
+            html: "<p>".into(),
+        };
+        assert_eq!(
+            text(&report),
+            r#"{"sample":"W1","datasets":[],"figures":2,"html":"<p>"}"#
+        );
+        let kind = PlotKind {
+            name: "k".into(),
+            description: "d".into(),
+            analyses: vec![],
+        };
+        assert_eq!(text(&kind), r#"{"name":"k","description":"d","analyses":[]}"#);
+        // rpc.discover documents both shapes of a run's summary.
+        let run = method("analysis.run").unwrap().result_schema();
+        let shapes = run["properties"]["summary"]["anyOf"].as_array().unwrap();
+        assert_eq!(shapes[0]["required"], json!(["groups"]));
+        let describe = method("analysis.describe").unwrap().result_schema();
+        assert_eq!(describe["required"], json!(["plugin"]));
     }
 
     #[test]

@@ -164,12 +164,42 @@ pub struct RunResult {
     #[serde(default)]
     pub columns: Vec<ColumnInfo>,
     /// the analysis's summary; with group_by, {groups: [{group, summary, warnings}]}
+    #[schemars(with = "RunSummary")]
     pub summary: Value,
     pub warnings: Vec<String>,
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub summary_output: Option<String>,
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub summary_rows: Option<usize>,
+}
+
+/// The shapes a run's summary takes, for its schema only: the daemon passes the plugin's
+/// summary through as JSON, and groups it as a `GroupedSummary` when the run has group_by.
+#[derive(JsonSchema)]
+#[serde(untagged)]
+#[allow(dead_code)]
+enum RunSummary {
+    Grouped(GroupedSummary),
+    Single(Map<String, Value>),
+}
+
+/// The summary of an `analysis.run` with group_by: one entry per group of the first input,
+/// in the order the groups first appear.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
+pub struct GroupedSummary {
+    pub groups: Vec<GroupSummary>,
+}
+
+/// One group of a grouped run's summary.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, JsonSchema)]
+pub struct GroupSummary {
+    /// the group's value in each group_by column, by column name
+    pub group: Map<String, Value>,
+    /// the analysis's summary of this group's rows
+    pub summary: Value,
+    /// this group's warnings as the analysis gave them (the run's warnings repeat them,
+    /// each prefixed with its group)
+    pub warnings: Vec<String>,
 }
 
 /// `pipeline.run`.
@@ -210,6 +240,24 @@ pub struct Figure {
     /// a Vega-Lite v5 specification
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub vega_lite: Option<Value>,
+}
+
+/// The plugin that serves an analysis, as `analysis.describe` names it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, JsonSchema)]
+pub struct PluginIdentity {
+    pub name: String,
+    pub version: String,
+}
+
+/// `analysis.describe`: the analysis's declaration as its plugin made it (name, summary,
+/// params schema, input roles, output columns, summary keys, figures), and its plugin.
+#[derive(Debug, Clone, Serialize, Deserialize, JsonSchema)]
+pub struct AnalysisDescription {
+    /// the declaration's members, as the plugin defines them
+    #[serde(flatten)]
+    pub declaration: Map<String, Value>,
+    /// the plugin that serves the analysis
+    pub plugin: PluginIdentity,
 }
 
 /// One figure kind of `plot.kinds`.

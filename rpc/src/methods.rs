@@ -26,7 +26,7 @@ use crate::service::Service;
 use jsonrpsee::types::{ErrorObjectOwned, Params};
 use jsonrpsee::RpcModule;
 use mobilis_protocol::{method, params, Method, Runs};
-use serde::Deserialize;
+use serde::{Deserialize, Serialize};
 use serde_json::Value;
 use std::collections::HashMap;
 use std::panic::{catch_unwind, AssertUnwindSafe};
@@ -249,20 +249,16 @@ fn typed<M: Method + 'static>(call: fn(M::Params, &Service) -> ServiceResult<M::
     })
 }
 
-/// A JSON object as the open object the protocol declares (a value that is not an object
-/// cannot come from the service, which builds these from declarations).
-fn into_object(value: Value) -> serde_json::Map<String, Value> {
-    match value {
-        Value::Object(map) => map,
-        _ => serde_json::Map::new(),
-    }
-}
-
-/// Binds a method whose result the service builds as JSON itself (figures and reports).
-fn untyped<P: for<'de> Deserialize<'de> + 'static>(call: fn(P, &Service) -> ServiceResult<Value>) -> Handler {
+/// Binds a method whose params the service reads as it likes (`plot.render`: the plotting
+/// code reads the figure options itself, the further ones included) but whose result is a
+/// protocol type.
+fn untyped<P: for<'de> Deserialize<'de> + 'static, R: Serialize + 'static>(
+    call: fn(P, &Service) -> ServiceResult<R>,
+) -> Handler {
     Arc::new(move |params, service| {
         let params: P = parse(params)?;
-        guarded(|| call(params, service))
+        let result = guarded(|| call(params, service))?;
+        Ok(serde_json::to_value(result).expect("protocol results serialise"))
     })
 }
 
@@ -334,7 +330,7 @@ pub fn module_with_slots(service: Arc<Service>, slots: ComputeSlots) -> RpcModul
     register(
         &mut module,
         AnalysisDescribe::NAME,
-        typed::<AnalysisDescribe>(|p, s| s.analysis_describe(&p.analysis).map(into_object)),
+        typed::<AnalysisDescribe>(|p, s| s.analysis_describe(&p.analysis)),
     );
     register(
         &mut module,
@@ -403,22 +399,22 @@ pub fn module_with_slots(service: Arc<Service>, slots: ComputeSlots) -> RpcModul
     register(
         &mut module,
         PlotRender::NAME,
-        untyped::<serde_json::Map<String, Value>>(|p, s| s.plot_render(p)),
+        untyped::<serde_json::Map<String, Value>, _>(|p, s| s.plot_render(p)),
     );
     register(
         &mut module,
         ReportSamples::NAME,
-        untyped::<params::NoParams>(|_, s| Ok(s.report_samples())),
+        typed::<ReportSamples>(|_, s| Ok(s.report_samples())),
     );
     register(
         &mut module,
         ReportRender::NAME,
-        untyped::<params::SampleName>(|p, s| s.report_render(&p.sample)),
+        typed::<ReportRender>(|p, s| s.report_render(&p.sample)),
     );
     register(
         &mut module,
         PlotKinds::NAME,
-        untyped::<params::DatasetFilter>(|p, s| s.plot_kinds(p.dataset.as_deref())),
+        typed::<PlotKinds>(|p, s| s.plot_kinds(p.dataset.as_deref())),
     );
     module
         .register_subscription(
@@ -467,12 +463,7 @@ mod tests {
     /// returned directory).
     fn module_without_plugins() -> (tempfile::TempDir, RpcModule<Service>) {
         let workspace = tempfile::tempdir().unwrap();
-        let service = Service::new(
-            crate::store::DatasetStore::open(workspace.path()).unwrap(),
-            crate::plugin_host::PluginHost::default(),
-            crate::data_roots::DataRoots::new([workspace.path().to_owned()]),
-            workspace.path().to_owned(),
-        );
+        let service = Service::without_plugins(workspace.path());
         (workspace, module(Arc::new(service)))
     }
 
@@ -767,12 +758,7 @@ mod tests {
         assert_eq!(unknown["error"]["code"], 4001, "{unknown}");
         // Asked directly, past the schema, the service refuses the same way and says what to do.
         let workspace = tempfile::tempdir().unwrap();
-        let service = Service::new(
-            crate::store::DatasetStore::open(workspace.path()).unwrap(),
-            crate::plugin_host::PluginHost::default(),
-            crate::data_roots::DataRoots::new([workspace.path().to_owned()]),
-            workspace.path().to_owned(),
-        );
+        let service = Service::without_plugins(workspace.path());
         let service_refusal = service
             .dataset_list(crate::service::ListParams {
                 limit: Some(6000),

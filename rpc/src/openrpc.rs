@@ -109,12 +109,7 @@ mod tests {
     #[test]
     fn the_document_is_openrpc_and_documents_the_run_parameters() {
         let workspace = tempfile::tempdir().unwrap();
-        let service = Service::new(
-            crate::store::DatasetStore::open(workspace.path()).unwrap(),
-            crate::plugin_host::PluginHost::default(),
-            crate::data_roots::DataRoots::new([workspace.path().to_owned()]),
-            workspace.path().to_owned(),
-        );
+        let service = Service::without_plugins(workspace.path());
         let document = Value::Object(document(&service));
         if let Err(problems) = mobilis_protocol::openrpc::check_document(&document) {
             panic!("{}", problems.join("\n"));

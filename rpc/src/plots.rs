@@ -17,8 +17,9 @@ use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use crate::service::Service;
 use crate::store::Provenance;
 use mobilis_plot::{FigureCatalog, PlotError, PlotOptions};
+use mobilis_protocol::results::{Figure, PlotKind};
 use polars::prelude::*;
-use serde_json::{json, Map, Value};
+use serde_json::{Map, Value};
 
 /// Which renderings a `plot.render` call returns.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -140,7 +141,7 @@ impl Service {
     }
 
     /// Draws a dataset (see `plot.render` in the OpenRPC document).
-    pub fn plot_render(&self, params: Map<String, Value>) -> ServiceResult<Value> {
+    pub fn plot_render(&self, params: Map<String, Value>) -> ServiceResult<Figure> {
         let dataset_name = params
             .get("dataset")
             .and_then(Value::as_str)
@@ -210,35 +211,36 @@ impl Service {
         }
         let figure = mobilis_plot::build(&frame, &dataset_name, &options, &self.figure_catalog())
             .map_err(|e| plot_error(&dataset_name, e))?;
-        let mut answer = json!({ "dataset": dataset_name, "kind": figure.kind(), "title": figure.title() });
-        if formats != Formats::VegaLite {
-            answer["svg"] = json!(figure.to_svg());
-        }
-        if formats != Formats::Svg {
-            answer["vega_lite"] = figure.to_vega_lite();
-        }
-        Ok(answer)
+        Ok(Figure {
+            kind: figure.kind().to_owned(),
+            title: figure.title().to_owned(),
+            svg: (formats != Formats::VegaLite).then(|| figure.to_svg()),
+            vega_lite: (formats != Formats::Svg).then(|| figure.to_vega_lite()),
+            dataset: dataset_name,
+        })
     }
 
     /// The plot kinds; with a dataset, the kinds that apply to it.
-    pub fn plot_kinds(&self, dataset: Option<&str>) -> ServiceResult<Value> {
-        let describe = |kind: &mobilis_plot::KindInfo| json!({ "name": kind.name, "description": kind.description, "analyses": kind.analyses });
+    pub fn plot_kinds(&self, dataset: Option<&str>) -> ServiceResult<Vec<PlotKind>> {
+        let describe = |kind: &mobilis_plot::KindInfo| PlotKind {
+            name: kind.name.clone(),
+            description: kind.description.clone(),
+            analyses: kind.analyses.clone(),
+        };
         let catalog = self.figure_catalog();
         match dataset {
-            None => Ok(Value::Array(catalog.kinds().iter().map(describe).collect())),
+            None => Ok(catalog.kinds().iter().map(describe).collect()),
             Some(name) => {
                 let dataset = self.store.get(name)?;
                 let analysis = producing_analysis(&dataset.manifest.provenance);
                 // In the analysis's declared order, its default first.
                 let kinds = catalog.kinds();
-                Ok(Value::Array(
-                    catalog
-                        .kinds_for(analysis.as_deref())
-                        .iter()
-                        .filter_map(|name| kinds.iter().find(|kind| &kind.name == name))
-                        .map(describe)
-                        .collect(),
-                ))
+                Ok(catalog
+                    .kinds_for(analysis.as_deref())
+                    .iter()
+                    .filter_map(|name| kinds.iter().find(|kind| &kind.name == name))
+                    .map(describe)
+                    .collect())
             }
         }
     }
@@ -247,6 +249,7 @@ impl Service {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use serde_json::json;
 
     #[test]
     fn the_filter_keeps_rows_equal_to_each_value() {

@@ -540,6 +540,33 @@ unsafe extern "C" fn is_cancelled(host_data: *mut c_void) -> i32 {
     control.cancelled.load(Ordering::Relaxed) as i32
 }
 
+/// What the system loaders' messages (glibc, macOS dyld, Windows) mean, in the order they
+/// are tried: any of the lower-case words, and the meaning told to the user.
+const LOADER_REASONS: &[(&[&str], &str)] = &[
+    (
+        &[
+            "invalid elf header",
+            "file too short",
+            "not a mach-o",
+            "not a valid win32",
+        ],
+        "it is not a shared library",
+    ),
+    (
+        &["wrong elf class", "architecture", "machine"],
+        "it was built for another architecture",
+    ),
+    (
+        &["undefined symbol", "symbol not found"],
+        "a symbol it needs is missing (built against other libraries or another version?)",
+    ),
+    (
+        &["no such file", "cannot open shared object", "image not found"],
+        "it, or a library it depends on, was not found",
+    ),
+    (&["permission denied"], "the daemon may not read it"),
+];
+
 /// Why the system loader refused a library, in words, with the loader's own reason.
 /// libloading's message alone is only "dlopen failed"; the reason is its source.
 pub fn load_failure(file: &Path, error: &libloading::Error) -> String {
@@ -555,36 +582,10 @@ pub fn load_failure(file: &Path, error: &libloading::Error) -> String {
         .unwrap_or(&reason)
         .to_owned();
     let lower = reason.to_ascii_lowercase();
-    let meaning = if [
-        "invalid elf header",
-        "file too short",
-        "not a mach-o",
-        "not a valid win32",
-    ]
-    .iter()
-    .any(|m| lower.contains(m))
-    {
-        "it is not a shared library"
-    } else if ["wrong elf class", "architecture", "machine"]
+    let meaning = LOADER_REASONS
         .iter()
-        .any(|m| lower.contains(m))
-    {
-        "it was built for another architecture"
-    } else if ["undefined symbol", "symbol not found"]
-        .iter()
-        .any(|m| lower.contains(m))
-    {
-        "a symbol it needs is missing (built against other libraries or another version?)"
-    } else if ["no such file", "cannot open shared object", "image not found"]
-        .iter()
-        .any(|m| lower.contains(m))
-    {
-        "it, or a library it depends on, was not found"
-    } else if lower.contains("permission denied") {
-        "the daemon may not read it"
-    } else {
-        "the system loader refused it"
-    };
+        .find(|(words, _)| words.iter().any(|word| lower.contains(word)))
+        .map_or("the system loader refused it", |(_, meaning)| meaning);
     format!("cannot load the library: {meaning} (loader: {reason})")
 }
 

@@ -31,6 +31,7 @@ use crate::plots::filter_rows;
 use crate::service::Service;
 use crate::store::{Dataset, Provenance};
 use mobilis_physics::units::{customary_display, format_number};
+use mobilis_protocol::results::{Report, ReportSample};
 use mobilis_sdk::abi;
 use polars::prelude::*;
 use serde_json::{json, Map, Value};
@@ -618,23 +619,21 @@ fn chain_depth(
 
 impl Service {
     /// Every sample named in a `sample` column, with the datasets that hold it.
-    pub fn report_samples(&self) -> Value {
+    pub fn report_samples(&self) -> Vec<ReportSample> {
         let mut samples: std::collections::BTreeMap<String, Vec<String>> = Default::default();
         for dataset in self.store.list() {
             for sample in samples_of(&dataset) {
                 samples.entry(sample).or_default().push(dataset.manifest.name.clone());
             }
         }
-        Value::Array(
-            samples
-                .into_iter()
-                .map(|(sample, datasets)| json!({ "sample": sample, "datasets": datasets }))
-                .collect(),
-        )
+        samples
+            .into_iter()
+            .map(|(sample, datasets)| ReportSample { sample, datasets })
+            .collect()
     }
 
     /// The HTML page of one sample.
-    pub fn report_render(&self, sample: &str) -> ServiceResult<Value> {
+    pub fn report_render(&self, sample: &str) -> ServiceResult<Report> {
         let mut datasets: Vec<Arc<Dataset>> = self
             .store
             .list()
@@ -642,13 +641,7 @@ impl Service {
             .filter(|d| samples_of(d).contains(sample))
             .collect();
         if datasets.is_empty() {
-            let known: Vec<String> = self
-                .report_samples()
-                .as_array()
-                .into_iter()
-                .flatten()
-                .filter_map(|s| s["sample"].as_str().map(str::to_owned))
-                .collect();
+            let known: Vec<String> = self.report_samples().into_iter().map(|s| s.sample).collect();
             return Err(
                 ServiceError::invalid_params(format!("no dataset has rows of sample `{sample}`")).with_help(
                     if known.is_empty() {
@@ -834,12 +827,12 @@ procedures and review.</p></main></body></html>\n",
             plugins = plugins.join(", "),
             toc = toc.join(" · "),
         );
-        Ok(json!({
-            "sample": sample,
-            "datasets": contents,
-            "figures": figures_drawn,
-            "html": html,
-        }))
+        Ok(Report {
+            sample: sample.to_owned(),
+            datasets: contents,
+            figures: figures_drawn,
+            html,
+        })
     }
 }
 

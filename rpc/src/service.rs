@@ -14,7 +14,7 @@ use crate::store::{self, DatasetStore, Provenance};
 use crate::tables::{self, FileFormat};
 use mobilis_sdk::abi::{self, ColumnSpec, ColumnType};
 use polars::prelude::*;
-use serde_json::{json, Value};
+use serde_json::Value;
 use std::collections::{BTreeMap, HashMap};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::Ordering;
@@ -36,12 +36,13 @@ pub use mobilis_protocol::params::{
 };
 mod groups;
 
-pub use groups::summary_table;
 use groups::{group_rows, rows_matching};
+pub use groups::{summary_table, RunSummary};
 
 use mobilis_protocol::results::{
-    AbiVersion, AnalysisEntry, CancelResult, DatasetEntry, DatasetInfo, DatasetPage, DatasetSummary, Dropped, Exported,
-    LoadedPlugin, MemoryUse, PipelineResult, PluginEntry, ProgressState, RefusedPlugin, RunResult, ServerInfo,
+    AbiVersion, AnalysisDescription, AnalysisEntry, CancelResult, DatasetEntry, DatasetInfo, DatasetPage,
+    DatasetSummary, Dropped, Exported, GroupSummary, GroupedSummary, LoadedPlugin, MemoryUse, PipelineResult,
+    PluginEntry, PluginIdentity, ProgressState, RefusedPlugin, RunResult, ServerInfo,
 };
 
 /// The group columns of a run: none, one or several.
@@ -273,16 +274,24 @@ impl Service {
             .with_param("analysis")
     }
 
-    pub fn analysis_describe(&self, name: &str) -> ServiceResult<Value> {
+    pub fn analysis_describe(&self, name: &str) -> ServiceResult<AnalysisDescription> {
         let entry = self
             .host
             .analyses
             .get(name)
             .ok_or_else(|| self.unknown_analysis(name))?;
         let plugin = &self.host.plugins[entry.plugin_index];
-        let mut value = serde_json::to_value(&entry.declaration).expect("declaration serialises");
-        value["plugin"] = json!({"name": plugin.name, "version": plugin.version});
-        Ok(value)
+        let Value::Object(declaration) = serde_json::to_value(&entry.declaration).expect("declaration serialises")
+        else {
+            unreachable!("a declaration serialises as an object")
+        };
+        Ok(AnalysisDescription {
+            declaration,
+            plugin: PluginIdentity {
+                name: plugin.name.clone(),
+                version: plugin.version.clone(),
+            },
+        })
     }
 
     fn dataset_summary(dataset: &store::Dataset) -> DatasetSummary {
@@ -713,7 +722,7 @@ impl Service {
         let group_columns = group_columns(&run.group_by);
         let inputs_done = started.elapsed();
 
-        let (table, summary, warnings) = self.run_groups(&run, &params, &inputs, &group_columns, control)?;
+        let (table, run_summary, warnings) = self.run_groups(&run, &params, &inputs, &group_columns, control)?;
         drop(inputs);
         let analysis_done = started.elapsed();
 
@@ -721,6 +730,7 @@ impl Service {
             .host
             .plugin_of(&run.analysis)
             .expect("registered analysis has a plugin");
+        let summary = run_summary.to_value();
         let provenance = |of_summary: bool| Provenance::Analysis {
             analysis: run.analysis.clone(),
             plugin: plugin.name.clone(),
@@ -734,7 +744,7 @@ impl Service {
             warnings: if of_summary { Vec::new() } else { warnings.clone() },
         };
         let summary_frame = match &run.summary_output {
-            Some(_) => Some(summary_table(&summary, &group_columns)?),
+            Some(_) => Some(summary_table(&run_summary, &group_columns)?),
             None => None,
         };
         // The output and its summary commit together: a crash never keeps one without the other.
@@ -789,7 +799,7 @@ impl Service {
         inputs: &[(String, DataFrame)],
         group_columns: &[String],
         control: &Arc<CallControl>,
-    ) -> ServiceResult<(DataFrame, Value, Vec<String>)> {
+    ) -> ServiceResult<(DataFrame, RunSummary, Vec<String>)> {
         let whole = control.span();
         if group_columns.is_empty() {
             control.enter(whole.part(0, 1, ""));
@@ -797,7 +807,7 @@ impl Service {
                 .host
                 .invoke(&run.analysis, params, inputs, control)
                 .map_err(|f| invoke_error(&run.analysis, f))?;
-            return Ok((result.table, result.summary, result.warnings));
+            return Ok((result.table, RunSummary::Single(result.summary), result.warnings));
         }
         let (_, primary) = inputs
             .first()
@@ -861,8 +871,11 @@ impl Service {
                 .zip(&key)
                 .map(|(c, v)| (c.clone(), cell_to_json(v.clone())))
                 .collect();
-            group_summaries
-                .push(json!({ "group": group_object, "summary": result.summary, "warnings": result.warnings }));
+            group_summaries.push(GroupSummary {
+                group: group_object,
+                summary: result.summary,
+                warnings: result.warnings,
+            });
             combined = Some(match combined {
                 None => table,
                 Some(mut all) => {
@@ -885,7 +898,10 @@ impl Service {
                 ),
             )
         })?;
-        Ok((table, json!({ "groups": group_summaries }), warnings))
+        let summary = GroupedSummary {
+            groups: group_summaries,
+        };
+        Ok((table, RunSummary::Grouped(summary), warnings))
     }
 
     /// Runs steps in order; a step may name an earlier step's output as an input. Every
@@ -974,18 +990,28 @@ impl Service {
 }
 
 #[cfg(test)]
+impl Service {
+    /// A service with no plugins over the (empty) workspace `workspace`, which is also its
+    /// one data root: what the daemon's own unit tests call.
+    pub(crate) fn without_plugins(workspace: &Path) -> Service {
+        Service::new(
+            DatasetStore::open(workspace).unwrap(),
+            PluginHost::default(),
+            DataRoots::new([workspace.to_owned()]),
+            workspace.to_owned(),
+        )
+    }
+}
+
+#[cfg(test)]
 mod tests {
     use super::*;
+    use serde_json::json;
 
     #[test]
     fn an_import_with_a_call_id_reports_its_progress_and_its_end() {
         let workspace = tempfile::tempdir().unwrap();
-        let service = Service::new(
-            DatasetStore::open(workspace.path()).unwrap(),
-            PluginHost::default(),
-            DataRoots::new([workspace.path().to_owned()]),
-            workspace.path().to_owned(),
-        );
+        let service = Service::without_plugins(workspace.path());
         let mut events = service.progress_hub.subscribe("import-1");
         let params: ImportParams = serde_json::from_value(json!({
             "name": "t", "columns": {"temperature_K": [10.0, 20.0]}, "call_id": "import-1",
@@ -1005,15 +1031,6 @@ mod tests {
         assert_eq!(kinds.last().map(String::as_str), Some("end"), "{kinds:?}");
         // The id is free again once the import has ended.
         assert!(!service.progress("import-1").running);
-    }
-
-    fn empty_service(workspace: &Path) -> Service {
-        Service::new(
-            DatasetStore::open(workspace).unwrap(),
-            PluginHost::default(),
-            DataRoots::new([workspace.to_owned()]),
-            workspace.to_owned(),
-        )
     }
 
     #[test]
@@ -1064,7 +1081,7 @@ mod tests {
     #[test]
     fn an_unknown_analysis_is_refused_before_any_input_is_read() {
         let workspace = tempfile::tempdir().unwrap();
-        let service = empty_service(workspace.path());
+        let service = Service::without_plugins(workspace.path());
         let run: RunParams = serde_json::from_value(json!({
             "analysis": "hall.reduse", "inputs": {"readings": "absent"}, "output": "out",
         }))
@@ -1081,7 +1098,7 @@ mod tests {
     #[test]
     fn a_taken_output_name_is_refused_with_the_way_out() {
         let workspace = tempfile::tempdir().unwrap();
-        let service = empty_service(workspace.path());
+        let service = Service::without_plugins(workspace.path());
         let import: ImportParams =
             serde_json::from_value(json!({"name": "out", "columns": {"temperature_K": [10.0]}})).unwrap();
         service.dataset_import(import).unwrap();
@@ -1099,7 +1116,7 @@ mod tests {
     #[test]
     fn dataset_calls_go_to_the_store() {
         let workspace = tempfile::tempdir().unwrap();
-        let service = empty_service(workspace.path());
+        let service = Service::without_plugins(workspace.path());
         let error = service.dataset_info("nothing").unwrap_err();
         assert_eq!(error.kind, ErrorKind::UnknownDataset);
         assert_eq!(error.kind.code(), 4002);
@@ -1115,7 +1132,7 @@ mod tests {
     #[test]
     fn a_finished_call_reports_its_outcome() {
         let workspace = tempfile::tempdir().unwrap();
-        let service = empty_service(workspace.path());
+        let service = Service::without_plugins(workspace.path());
         let mut call = service.register_call(Some("c-1"), "test").unwrap();
         // A second call may not take a running call's id.
         assert!(service.register_call(Some("c-1"), "test").is_err());

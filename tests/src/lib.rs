@@ -9,6 +9,7 @@
 
 pub mod bench;
 pub mod browser;
+pub mod c_plugin;
 pub mod hall_readings;
 pub mod load;
 pub mod node;
@@ -130,10 +131,7 @@ impl TestDaemon {
             ..DaemonOptions::default()
         };
         adjust(&mut options);
-        let daemon = Daemon::spawn(&options).expect("mobilisd starts");
-        let client = Client::connect(daemon.url(), token_of(&options))
-            .await
-            .expect("client connects");
+        let (daemon, client) = launch(&options).await;
         TestDaemon {
             daemon,
             client,
@@ -156,10 +154,7 @@ impl TestDaemon {
         } = self;
         drop(client);
         daemon.stop();
-        let daemon = Daemon::spawn(&options).expect("mobilisd restarts");
-        let client = Client::connect(daemon.url(), token_of(&options))
-            .await
-            .expect("client reconnects");
+        let (daemon, client) = launch(&options).await;
         TestDaemon {
             daemon,
             client,
@@ -186,6 +181,26 @@ impl TestDaemon {
             Err(other) => panic!("{method} {params}: transport failure {other}"),
         }
     }
+
+    /// Calls a method that must be refused with `code` and a message carrying each of
+    /// `words` (what a user reads to know what to change); returns the message.
+    pub async fn call_refused(&self, method: &str, params: serde_json::Value, code: i32, words: &[&str]) -> String {
+        let (got, message) = self.call_error(method, params.clone()).await;
+        assert_eq!(got, code, "{method} {params}: {message}");
+        for word in words {
+            assert!(message.contains(word), "{method} {params}: `{message}` lacks `{word}`");
+        }
+        message
+    }
+}
+
+/// Spawns the daemon of `options` and connects a client to it.
+async fn launch(options: &DaemonOptions) -> (Daemon, Client) {
+    let daemon = Daemon::spawn(options).expect("mobilisd starts");
+    let client = Client::connect(daemon.url(), token_of(options))
+        .await
+        .expect("client connects");
+    (daemon, client)
 }
 
 /// The `--token` a daemon was given, so that the test's client presents it.
@@ -229,6 +244,58 @@ pub fn van_der_pauw_run(
         }
     }
     readings
+}
+
+/// Readings as the inline JSON columns of `dataset.import`, in SI.
+pub fn readings_json_columns(readings: &[mobilis_physics::readings::RawReading]) -> serde_json::Value {
+    serde_json::json!({
+        "sample": readings.iter().map(|r| r.sample.clone()).collect::<Vec<_>>(),
+        "temperature_K": readings.iter().map(|r| r.temperature_k).collect::<Vec<_>>(),
+        "field_T": readings.iter().map(|r| r.field_t).collect::<Vec<_>>(),
+        "i_in": readings.iter().map(|r| r.i_in).collect::<Vec<_>>(),
+        "i_out": readings.iter().map(|r| r.i_out).collect::<Vec<_>>(),
+        "v_pos": readings.iter().map(|r| r.v_pos).collect::<Vec<_>>(),
+        "v_neg": readings.iter().map(|r| r.v_neg).collect::<Vec<_>>(),
+        "current_A": readings.iter().map(|r| r.current_a).collect::<Vec<_>>(),
+        "voltage_V": readings.iter().map(|r| r.voltage_v).collect::<Vec<_>>(),
+    })
+}
+
+/// Reads the `Content-Length` frames of a `mobilisd --stdio` on a thread, each body as
+/// text, until the daemon's stdout closes. A frame without a numeric `Content-Length` or
+/// cut short ends the reading with a panic on that thread, which names the fault and drops
+/// the sender, so that a test waiting on the receiver fails at once rather than at its
+/// timeout.
+pub fn read_stdio_frames(stdout: impl std::io::Read + Send + 'static) -> std::sync::mpsc::Receiver<String> {
+    use std::io::{BufRead, Read};
+    let (sender, receiver) = std::sync::mpsc::channel();
+    std::thread::spawn(move || {
+        let mut reader = std::io::BufReader::new(stdout);
+        loop {
+            let mut length = None;
+            loop {
+                let mut line = String::new();
+                if reader.read_line(&mut line).unwrap_or(0) == 0 {
+                    return;
+                }
+                let line = line.trim_end();
+                if line.is_empty() {
+                    break;
+                }
+                if let Some(value) = line.strip_prefix("Content-Length:") {
+                    let value = value.trim();
+                    let parsed = value.parse::<usize>();
+                    length = Some(parsed.unwrap_or_else(|_| panic!("Content-Length `{value}` is not a number")));
+                }
+            }
+            let mut body = vec![0; length.expect("every frame has a Content-Length")];
+            reader.read_exact(&mut body).expect("the announced body arrives");
+            if sender.send(String::from_utf8_lossy(&body).into_owned()).is_err() {
+                return;
+            }
+        }
+    });
+    receiver
 }
 
 /// What one run of the `mobilis` command line printed, and whether it succeeded.

@@ -237,17 +237,7 @@ pub fn readings_columns() -> Value {
         0.02,
         20261203,
     );
-    json!({
-        "sample": readings.iter().map(|r| r.sample.clone()).collect::<Vec<_>>(),
-        "temperature_K": readings.iter().map(|r| r.temperature_k).collect::<Vec<_>>(),
-        "field_T": readings.iter().map(|r| r.field_t).collect::<Vec<_>>(),
-        "i_in": readings.iter().map(|r| r.i_in).collect::<Vec<_>>(),
-        "i_out": readings.iter().map(|r| r.i_out).collect::<Vec<_>>(),
-        "v_pos": readings.iter().map(|r| r.v_pos).collect::<Vec<_>>(),
-        "v_neg": readings.iter().map(|r| r.v_neg).collect::<Vec<_>>(),
-        "current_A": readings.iter().map(|r| r.current_a).collect::<Vec<_>>(),
-        "voltage_V": readings.iter().map(|r| r.voltage_v).collect::<Vec<_>>(),
-    })
+    crate::readings_json_columns(&readings)
 }
 
 /// Imports [`READINGS_DATASET`] (replacing one of that name) and checks that `hall.reduce`

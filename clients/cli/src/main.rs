@@ -351,7 +351,10 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
                     analysis: analysis.clone(),
                 })
                 .await?;
-            print!("{}", describe::render(&Value::Object(description)));
+            print!(
+                "{}",
+                describe::render(&serde_json::to_value(description).expect("a description serialises"))
+            );
             Ok(())
         }
         Command::Datasets { prefix } => {

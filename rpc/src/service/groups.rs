@@ -3,26 +3,35 @@
 
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use crate::tables;
+use mobilis_protocol::results::GroupedSummary;
 use polars::prelude::*;
 use serde_json::{json, Value};
 use std::collections::HashMap;
 
-/// The scalar values of a summary as a table: one row per group (group columns first) or
+/// A run's summary: the analysis's own, or one per group when the run has group_by.
+#[derive(Debug, Clone, PartialEq)]
+pub enum RunSummary {
+    Single(Value),
+    Grouped(GroupedSummary),
+}
+
+impl RunSummary {
+    /// The summary as `analysis.run` answers it and the output's provenance keeps it.
+    pub fn to_value(&self) -> Value {
+        match self {
+            RunSummary::Single(summary) => summary.clone(),
+            RunSummary::Grouped(grouped) => serde_json::to_value(grouped).expect("a grouped summary serialises"),
+        }
+    }
+}
+
+/// The scalar values of a summary as a table: one row per group (`group_columns` first) or
 /// a single row. Numbers become f64 columns, booleans and strings keep their type, nested
 /// objects and lists are kept as JSON text; a key missing from a group is null.
-pub fn summary_table(summary: &Value, group_columns: &[String]) -> ServiceResult<DataFrame> {
-    let rows: Vec<(serde_json::Map<String, Value>, &Value)> = if group_columns.is_empty() {
-        vec![(serde_json::Map::new(), summary)]
-    } else {
-        summary["groups"]
-            .as_array()
-            .map(|groups| {
-                groups
-                    .iter()
-                    .map(|g| (g["group"].as_object().cloned().unwrap_or_default(), &g["summary"]))
-                    .collect()
-            })
-            .unwrap_or_default()
+pub fn summary_table(summary: &RunSummary, group_columns: &[String]) -> ServiceResult<DataFrame> {
+    let rows: Vec<(serde_json::Map<String, Value>, &Value)> = match summary {
+        RunSummary::Single(summary) => vec![(serde_json::Map::new(), summary)],
+        RunSummary::Grouped(grouped) => grouped.groups.iter().map(|g| (g.group.clone(), &g.summary)).collect(),
     };
     let mut names: Vec<String> = group_columns.to_vec();
     for (_, values) in &rows {
@@ -188,9 +197,18 @@ mod tests {
         assert!(rows_matching(&none, &["sample".to_owned()], &groups[0].0).is_empty());
     }
 
+    /// A grouped summary of these groups, as a run with group_by makes it.
+    fn grouped(groups: Value) -> RunSummary {
+        RunSummary::Grouped(serde_json::from_value(json!({ "groups": groups })).unwrap())
+    }
+
     #[test]
     fn an_ungrouped_summary_is_one_row() {
-        let table = summary_table(&json!({"n_m2": 2, "ok": true, "method": "fit"}), &[]).unwrap();
+        let table = summary_table(
+            &RunSummary::Single(json!({"n_m2": 2, "ok": true, "method": "fit"})),
+            &[],
+        )
+        .unwrap();
         assert_eq!(table.height(), 1);
         assert_eq!(table.column("n_m2").unwrap().dtype(), &DataType::Float64);
         assert_eq!(table.column("ok").unwrap().dtype(), &DataType::Boolean);
@@ -199,10 +217,10 @@ mod tests {
 
     #[test]
     fn grouped_summaries_put_the_group_columns_first_and_fill_gaps_with_null() {
-        let summary = json!({"groups": [
-            {"group": {"sample": "a"}, "summary": {"n_m2": 1.0, "note": "x"}},
-            {"group": {"sample": "b"}, "summary": {"n_m2": 2.0, "extra": 3.0}},
-        ]});
+        let summary = grouped(json!([
+            {"group": {"sample": "a"}, "summary": {"n_m2": 1.0, "note": "x"}, "warnings": []},
+            {"group": {"sample": "b"}, "summary": {"n_m2": 2.0, "extra": 3.0}, "warnings": []},
+        ]));
         let table = summary_table(&summary, &["sample".to_owned()]).unwrap();
         let names: Vec<&str> = table.get_column_names().iter().map(|c| c.as_str()).collect();
         assert_eq!(names, ["sample", "n_m2", "note", "extra"]);
@@ -213,10 +231,10 @@ mod tests {
 
     #[test]
     fn mixed_values_of_one_key_are_kept_as_json_text() {
-        let summary = json!({"groups": [
-            {"group": {"sample": "a"}, "summary": {"v": 1.0}},
-            {"group": {"sample": "b"}, "summary": {"v": [1, 2]}},
-        ]});
+        let summary = grouped(json!([
+            {"group": {"sample": "a"}, "summary": {"v": 1.0}, "warnings": []},
+            {"group": {"sample": "b"}, "summary": {"v": [1, 2]}, "warnings": []},
+        ]));
         let table = summary_table(&summary, &["sample".to_owned()]).unwrap();
         let column = table.column("v").unwrap();
         assert_eq!(column.dtype(), &DataType::String);
@@ -225,10 +243,10 @@ mod tests {
 
     #[test]
     fn an_empty_summary_says_there_is_nothing_to_store() {
-        let error = summary_table(&json!({}), &[]).unwrap_err();
+        let error = summary_table(&RunSummary::Single(json!({})), &[]).unwrap_err();
         assert_eq!(error.kind, ErrorKind::InvalidData);
         assert!(error.message.contains("empty summary"), "{}", error.message);
-        let error = summary_table(&json!({"groups": []}), &["sample".to_owned()]).unwrap_err();
+        let error = summary_table(&grouped(json!([])), &["sample".to_owned()]).unwrap_err();
         assert_eq!(error.kind, ErrorKind::InvalidData);
     }
 }

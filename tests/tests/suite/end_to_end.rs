@@ -6,7 +6,7 @@
 //! every dataset intact.
 
 use mobilis_physics::readings::RawReading;
-use mobilis_tests::{float_column, string_column, van_der_pauw_run, InventedSample, TestDaemon};
+use mobilis_tests::{float_column, readings_json_columns, string_column, van_der_pauw_run, InventedSample, TestDaemon};
 use serde_json::{json, Value};
 use std::io::{Read, Write};
 
@@ -24,21 +24,6 @@ fn generate_readings() -> Vec<RawReading> {
         0.02,
         20261201,
     )
-}
-
-/// The readings as inline JSON columns, in SI.
-fn inline_columns(readings: &[RawReading]) -> Value {
-    json!({
-        "sample": readings.iter().map(|r| r.sample.clone()).collect::<Vec<_>>(),
-        "temperature_K": readings.iter().map(|r| r.temperature_k).collect::<Vec<_>>(),
-        "field_T": readings.iter().map(|r| r.field_t).collect::<Vec<_>>(),
-        "i_in": readings.iter().map(|r| r.i_in).collect::<Vec<_>>(),
-        "i_out": readings.iter().map(|r| r.i_out).collect::<Vec<_>>(),
-        "v_pos": readings.iter().map(|r| r.v_pos).collect::<Vec<_>>(),
-        "v_neg": readings.iter().map(|r| r.v_neg).collect::<Vec<_>>(),
-        "current_A": readings.iter().map(|r| r.current_a).collect::<Vec<_>>(),
-        "voltage_V": readings.iter().map(|r| r.voltage_v).collect::<Vec<_>>(),
-    })
 }
 
 /// The readings as a lab would write them: degC, kG, mA, mV.
@@ -161,7 +146,7 @@ async fn readings_to_densities_through_a_real_daemon_and_back_after_a_restart() 
     daemon
         .call(
             "dataset.import",
-            json!({"name": "readings", "columns": inline_columns(&readings)}),
+            json!({"name": "readings", "columns": readings_json_columns(&readings)}),
         )
         .await;
     daemon
@@ -403,7 +388,7 @@ async fn bad_requests_get_clear_errors(daemon: &TestDaemon, readings: &[RawReadi
         ),
     ];
     // Readings the plugin must refuse: a zero current, a NaN-like null, a contact 5, an unknown sample.
-    let mut zero = inline_columns(&readings[..64]);
+    let mut zero = readings_json_columns(&readings[..64]);
     zero["current_A"][3] = json!(0.0);
     daemon
         .call("dataset.import", json!({"name": "zero-current", "columns": zero}))
@@ -414,7 +399,7 @@ async fn bad_requests_get_clear_errors(daemon: &TestDaemon, readings: &[RawReadi
         4007,
         "current_A is 0",
     ));
-    let mut contact = inline_columns(&readings[..64]);
+    let mut contact = readings_json_columns(&readings[..64]);
     contact["v_pos"][5] = json!(5);
     daemon
         .call("dataset.import", json!({"name": "contact-five", "columns": contact}))
@@ -425,7 +410,7 @@ async fn bad_requests_get_clear_errors(daemon: &TestDaemon, readings: &[RawReadi
         4007,
         "contact number 5",
     ));
-    let mut missing = inline_columns(&readings[..64]);
+    let mut missing = readings_json_columns(&readings[..64]);
     missing["voltage_V"][7] = Value::Null;
     daemon
         .call("dataset.import", json!({"name": "missing-voltage", "columns": missing}))

@@ -149,6 +149,54 @@ async fn sweeps_without_zero_field_or_with_one_sign_are_refused_clearly() {
             ),
         )
         .await;
+    // The derived parameter schemas are checked before a call: a bound and a choice are
+    // refused naming the parameter and what it takes.
+    for (analysis, params, expected) in [
+        (
+            "mr.ratio",
+            json!({"zero_field": "fitted"}),
+            "params.zero_field must be one of",
+        ),
+        (
+            "mr.ratio",
+            json!({"extrapolation_points": 2}),
+            "params.extrapolation_points must be at least 3",
+        ),
+        (
+            "mr.kohler",
+            json!({"grid_points": 1001}),
+            "params.grid_points must be at most 1000",
+        ),
+        (
+            "mr.kohler",
+            json!({"tolerance": 0}),
+            "params.tolerance must be greater than 0",
+        ),
+        (
+            "mr.two_band_fit",
+            json!({"carriers": ["n", "e"]}),
+            "params.carriers[1] must be one of",
+        ),
+        (
+            "mr.two_band_fit",
+            json!({"carriers": ["n"]}),
+            "params.carriers must have at least 2 items",
+        ),
+        (
+            "mr.symmetrize",
+            json!({"misalignment_max_field_T": -1.0}),
+            "params.misalignment_max_field_T must be greater than 0",
+        ),
+    ] {
+        let (code, message) = daemon
+            .call_error(
+                "analysis.run",
+                run(analysis, "v", json!(["sample", "temperature_K"]), params),
+            )
+            .await;
+        assert_eq!(code, 4001, "{message}");
+        assert!(message.contains(expected), "{analysis}: `{message}` lacks `{expected}`");
+    }
 
     let one_sign = json!({"field_T": [0.0, 1.0, 2.0, 3.0, 4.0], "rho_xx_ohm_sq": [10.0, 11.0, 12.0, 13.0, 14.0], "rho_xy_ohm": [0.0, 1.0, 2.0, 3.0, 4.0]});
     daemon

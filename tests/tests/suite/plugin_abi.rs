@@ -7,92 +7,22 @@
 //! daemon's default plugin scan, and one calls the C plugin in process through the host's
 //! loader, with tables a daemon would never send.
 //!
-//! The C libraries are compiled from `tests/c-plugin/cfixture.c` by each test that needs
-//! them (a second or so): the compiler and its flags come from the `cc` crate, which
-//! normally makes static archives for build scripts, so the shared object is linked by
-//! running that compiler directly with `-shared`.
+//! The C libraries are compiled from `tests/c-plugin/cfixture.c` by
+//! [`mobilis_tests::c_plugin`], once per set of definitions.
 
 use mobilis_client::{Client, ClientError};
 use mobilis_rpc::plugin_host::{CallControl, PluginHost};
 use mobilis_sdk::abi;
-use mobilis_tests::{fixture_plugin_dir, float_column, plugin_library, workspace_root, TestDaemon};
+use mobilis_tests::c_plugin::{build_c_plugin, shared_library_name, Defines};
+use mobilis_tests::{fixture_plugin_dir, float_column, plugin_library, TestDaemon};
 use polars::prelude::{Column, DataFrame};
 use serde_json::{json, Value};
-use std::path::{Path, PathBuf};
-use std::process::Command;
-use std::sync::{Arc, OnceLock};
+use std::path::Path;
+use std::sync::Arc;
 use std::time::{Duration, Instant};
 
 /// Part of the message `fixture.panic` panics with (see `tests/fixture-plugin`).
 const FIXTURE_PANIC_TEXT: &str = "deliberate panic 7e3f";
-
-/// The Rust target triple of this machine, which `cc` needs outside a build script (where
-/// cargo would tell it). Tests run on the machine they were built for, so the host's
-/// triple is the target's.
-fn host_triple() -> &'static str {
-    static TRIPLE: OnceLock<String> = OnceLock::new();
-    TRIPLE.get_or_init(|| {
-        let rustc = std::env::var("RUSTC").unwrap_or_else(|_| "rustc".into());
-        let output = Command::new(&rustc)
-            .arg("-vV")
-            .output()
-            .unwrap_or_else(|error| panic!("cannot run `{rustc} -vV` to learn the target triple: {error}"));
-        let text = String::from_utf8_lossy(&output.stdout);
-        text.lines()
-            .find_map(|line| line.strip_prefix("host: "))
-            .unwrap_or_else(|| panic!("`{rustc} -vV` printed no host line:\n{text}"))
-            .trim()
-            .to_owned()
-    })
-}
-
-/// The file name of a shared library on this platform (`libNAME.so` on Linux).
-fn shared_library_name(name: &str) -> String {
-    format!("{}{name}{}", std::env::consts::DLL_PREFIX, std::env::consts::DLL_SUFFIX)
-}
-
-/// Compiles `tests/c-plugin/cfixture.c` with the given preprocessor definitions into the
-/// shared library `dir/libNAME.so` and returns its path.
-fn build_c_plugin(dir: &Path, name: &str, defines: &[(&str, Option<&str>)]) -> PathBuf {
-    let source = workspace_root().join("tests/c-plugin/cfixture.c");
-    let mut build = cc::Build::new();
-    build
-        .include(workspace_root().join("core/sdk/include"))
-        .std("c99")
-        // The plugin is meant as an example of clean C: any warning fails the test.
-        .warnings(true)
-        .extra_warnings(true)
-        .warnings_into_errors(true)
-        .pic(true)
-        .opt_level(0)
-        .debug(false)
-        .target(host_triple())
-        .host(host_triple())
-        .out_dir(dir)
-        // Not a build script: cargo must not read our output as instructions.
-        .cargo_metadata(false);
-    for (key, value) in defines {
-        build.define(key, *value);
-    }
-    let compiler = build.get_compiler();
-    let library = dir.join(shared_library_name(name));
-    let output = compiler
-        .to_command()
-        .args(["-shared", "-fPIC", "-o"])
-        .arg(&library)
-        .arg(&source)
-        .output()
-        .unwrap_or_else(|error| panic!("cannot run the C compiler {}: {error}", compiler.path().display()));
-    assert!(
-        output.status.success(),
-        "compiling {} into {} failed:\n{}{}",
-        source.display(),
-        library.display(),
-        String::from_utf8_lossy(&output.stdout),
-        String::from_utf8_lossy(&output.stderr)
-    );
-    library
-}
 
 /// Where the daemon runs the plugins of a test's directory.
 #[derive(Clone, Copy, Debug)]
@@ -142,6 +72,23 @@ async fn dataset_list(daemon: &TestDaemon) -> Vec<Value> {
     list
 }
 
+/// Imports `columns` as dataset `name`, runs `cfixture.sum` on it into `NAME_sum`, and
+/// returns the run's answer and the output's rows.
+async fn c_sum(daemon: &TestDaemon, name: &str, columns: Value) -> (Value, Value) {
+    daemon
+        .call("dataset.import", json!({"name": name, "columns": columns}))
+        .await;
+    let output = format!("{name}_sum");
+    let run = daemon
+        .call(
+            "analysis.run",
+            json!({"analysis": "cfixture.sum", "inputs": {"values": name}, "output": output}),
+        )
+        .await;
+    let page = daemon.call("dataset.rows", json!({"name": output})).await;
+    (run, page)
+}
+
 fn file_name_of(path: &str) -> &str {
     Path::new(path).file_name().and_then(|n| n.to_str()).unwrap_or_default()
 }
@@ -174,22 +121,15 @@ async fn the_c_plugin_loads_and_sums_a_column_with_nulls(mode: Mode) {
 
     // A text column next to `x`: the plugin must find `x` among other children and skip a
     // large UTF-8 child it does not read.
-    daemon
-        .call(
-            "dataset.import",
-            json!({"name": "small", "columns": {"label": ["a", "b", "c", "d"], "x": [1.5, null, 2.25, 4.0]}}),
-        )
-        .await;
-    let run = daemon
-        .call(
-            "analysis.run",
-            json!({"analysis": "cfixture.sum", "inputs": {"values": "small"}, "output": "small_sum"}),
-        )
-        .await;
+    let (run, page) = c_sum(
+        &daemon,
+        "small",
+        json!({"label": ["a", "b", "c", "d"], "x": [1.5, null, 2.25, 4.0]}),
+    )
+    .await;
     assert_eq!(run["rows"], 1);
     assert_eq!(run["summary"]["total"].as_f64(), Some(7.75));
     assert_eq!(run["warnings"], json!([]));
-    let page = daemon.call("dataset.rows", json!({"name": "small_sum"})).await;
     assert_eq!(float_column(&page, "total"), vec![Some(7.75)]);
     assert_eq!(page["columns"]["count"], json!([3]));
 
@@ -200,50 +140,64 @@ async fn the_c_plugin_loads_and_sums_a_column_with_nulls(mode: Mode) {
         .collect();
     let expected_total: f64 = (0..1000).filter(|i| i % 7 != 3).map(|i| i as f64 * 0.5).sum();
     let expected_count = (0..1000).filter(|i| i % 7 != 3).count();
-    daemon
-        .call("dataset.import", json!({"name": "large", "columns": {"x": values}}))
-        .await;
-    let run = daemon
-        .call(
-            "analysis.run",
-            json!({"analysis": "cfixture.sum", "inputs": {"values": "large"}, "output": "large_sum"}),
-        )
-        .await;
+    let (run, page) = c_sum(&daemon, "large", json!({"x": values})).await;
     assert_eq!(run["summary"]["total"].as_f64(), Some(expected_total));
-    let page = daemon.call("dataset.rows", json!({"name": "large_sum"})).await;
     assert_eq!(page["columns"]["count"], json!([expected_count]));
 
     // Integers are converted by the host to the declared float64 before the call.
-    daemon
-        .call("dataset.import", json!({"name": "whole", "columns": {"x": [1, 2, 3]}}))
-        .await;
-    let run = daemon
-        .call(
-            "analysis.run",
-            json!({"analysis": "cfixture.sum", "inputs": {"values": "whole"}, "output": "whole_sum"}),
-        )
-        .await;
+    let (run, _) = c_sum(&daemon, "whole", json!({"x": [1, 2, 3]})).await;
     assert_eq!(run["summary"]["total"].as_f64(), Some(6.0));
 }
 
 async fn unusable_libraries_are_refused_by_name_and_the_daemon_keeps_serving(mode: Mode) {
+    // Each refused library: its name, how it is built, and the words its reason carries.
+    let refusals: [(&str, Defines, Vec<String>); 5] = [
+        // Both ABI versions, the plugin's and the daemon's.
+        (
+            "cfixture_abi2",
+            &[("FIXTURE_ABI_MAJOR", Some("2"))],
+            vec![
+                format!("ABI 2.{}", abi::ABI_MINOR),
+                format!("ABI {}.{}", abi::ABI_MAJOR, abi::ABI_MINOR),
+            ],
+        ),
+        (
+            "cfixture_no_entry",
+            &[("FIXTURE_NO_ENTRY", None)],
+            vec![abi::ENTRY_SYMBOL.to_owned()],
+        ),
+        // The plugin, its file and the NULL function.
+        (
+            "cfixture_null_invoke",
+            &[("FIXTURE_NULL_FUNCTION", Some("invoke"))],
+            vec![format!(
+                "plugin `cfixture` ({}): `invoke` is NULL",
+                shared_library_name("cfixture_null_invoke")
+            )],
+        ),
+        (
+            "cfixture_versions_only",
+            &[("FIXTURE_VERSIONS_ONLY", None)],
+            vec![format!("ABI {}.0", abi::ABI_MAJOR + 1)],
+        ),
+        // Loaded after `libcfixture` (the daemon loads a directory in file name order), so
+        // this is the copy that finds `cfixture.sum` taken; the reason names the library that
+        // provides it.
+        (
+            "cfixture_copy",
+            &[("FIXTURE_PLUGIN_NAME", Some("cfixture_copy"))],
+            vec![
+                "`cfixture.sum`".to_owned(),
+                "already provided".to_owned(),
+                shared_library_name("cfixture"),
+            ],
+        ),
+    ];
     let dir = tempfile::tempdir().unwrap();
     build_c_plugin(dir.path(), "cfixture", &[]);
-    build_c_plugin(dir.path(), "cfixture_abi2", &[("FIXTURE_ABI_MAJOR", Some("2"))]);
-    build_c_plugin(dir.path(), "cfixture_no_entry", &[("FIXTURE_NO_ENTRY", None)]);
-    build_c_plugin(
-        dir.path(),
-        "cfixture_null_invoke",
-        &[("FIXTURE_NULL_FUNCTION", Some("invoke"))],
-    );
-    build_c_plugin(dir.path(), "cfixture_versions_only", &[("FIXTURE_VERSIONS_ONLY", None)]);
-    // Loaded after `libcfixture` (the daemon loads a directory in file name order), so this
-    // is the copy that finds `cfixture.sum` taken.
-    build_c_plugin(
-        dir.path(),
-        "cfixture_copy",
-        &[("FIXTURE_PLUGIN_NAME", Some("cfixture_copy"))],
-    );
+    for (name, defines, _) in &refusals {
+        build_c_plugin(dir.path(), name, defines);
+    }
     let daemon = daemon_with_plugins(dir.path(), mode).await;
 
     let info = daemon.call("server.info", json!({})).await;
@@ -258,45 +212,15 @@ async fn unusable_libraries_are_refused_by_name_and_the_daemon_keeps_serving(mod
             .unwrap_or_else(|| panic!("{file} is not among the refused libraries: {refused:?}"));
         entry["reason"].as_str().expect("a reason").to_owned()
     };
-    assert_eq!(refused.len(), 5, "{refused:?}");
+    assert_eq!(refused.len(), refusals.len(), "{refused:?}");
+    for (name, _, words) in &refusals {
+        let reason = reason_for(name);
+        for word in words {
+            assert!(reason.contains(word.as_str()), "{name}: `{reason}` lacks `{word}`");
+        }
+    }
 
-    let reason = reason_for("cfixture_abi2");
-    assert!(
-        reason.contains(&format!("ABI 2.{}", abi::ABI_MINOR))
-            && reason.contains(&format!("ABI {}.{}", abi::ABI_MAJOR, abi::ABI_MINOR)),
-        "the reason should give both ABI versions: {reason}"
-    );
-    let reason = reason_for("cfixture_no_entry");
-    assert!(reason.contains(abi::ENTRY_SYMBOL), "{reason}");
-    let reason = reason_for("cfixture_null_invoke");
-    assert!(
-        reason.contains(&format!(
-            "plugin `cfixture` ({}): `invoke` is NULL",
-            shared_library_name("cfixture_null_invoke")
-        )),
-        "the reason should name the plugin, its file and the NULL function: {reason}"
-    );
-    let reason = reason_for("cfixture_versions_only");
-    assert!(reason.contains(&format!("ABI {}.0", abi::ABI_MAJOR + 1)), "{reason}");
-    let reason = reason_for("cfixture_copy");
-    assert!(
-        reason.contains("`cfixture.sum`") && reason.contains("already provided"),
-        "{reason}"
-    );
-    assert!(
-        reason.contains(&shared_library_name("cfixture")),
-        "the reason should name the library that provides the analysis: {reason}"
-    );
-
-    daemon
-        .call("dataset.import", json!({"name": "v", "columns": {"x": [1.0, 2.0]}}))
-        .await;
-    let run = daemon
-        .call(
-            "analysis.run",
-            json!({"analysis": "cfixture.sum", "inputs": {"values": "v"}, "output": "v_sum"}),
-        )
-        .await;
+    let (run, _) = c_sum(&daemon, "v", json!({"x": [1.0, 2.0]})).await;
     assert_eq!(run["summary"]["total"].as_f64(), Some(3.0));
 }
 
@@ -352,14 +276,14 @@ async fn a_panic_in_a_plugin_is_an_error_and_the_plugin_keeps_working(mode: Mode
 
     // Twice: a plugin that panicked once must still be able to panic cleanly again.
     for attempt in 0..2 {
-        let (code, message) = daemon
-            .call_error(
+        daemon
+            .call_refused(
                 "analysis.run",
                 json!({"analysis": "fixture.panic", "inputs": {"values": "v"}, "output": format!("never_{attempt}")}),
+                5001,
+                &[FIXTURE_PANIC_TEXT],
             )
             .await;
-        assert_eq!(code, 5001, "{message}");
-        assert!(message.contains(FIXTURE_PANIC_TEXT), "{message}");
     }
 
     // The panic dropped the plugin's copy of the input; the stored dataset is untouched.
@@ -389,20 +313,18 @@ async fn an_output_that_breaks_its_declaration_is_refused_and_nothing_is_stored(
         .call("dataset.import", json!({"name": "v", "columns": {"x": [1.0, 2.0]}}))
         .await;
     let before = dataset_list(&daemon).await;
-    let (code, message) = daemon
-        .call_error(
+    daemon
+        .call_refused(
             "analysis.run",
             json!({"analysis": "fixture.undeclared", "inputs": {}, "output": "undeclared"}),
+            5001,
+            &[
+                "plugin `fixture`",
+                "fixture.undeclared",
+                "`not_in_the_declaration` is not declared",
+            ],
         )
         .await;
-    assert_eq!(code, 5001, "{message}");
-    for fragment in [
-        "plugin `fixture`",
-        "fixture.undeclared",
-        "`not_in_the_declaration` is not declared",
-    ] {
-        assert!(message.contains(fragment), "`{message}` lacks `{fragment}`");
-    }
     assert_eq!(dataset_list(&daemon).await, before, "a refused output stored nothing");
     let run = daemon
         .call(
@@ -432,14 +354,14 @@ async fn bad_parameters_are_refused_before_the_plugin_runs(mode: Mode) {
         ),
     ];
     for (params, expected) in cases {
-        let (code, message) = daemon
-            .call_error(
+        daemon
+            .call_refused(
                 "analysis.run",
                 json!({"analysis": "fixture.scale", "inputs": {"values": "v"}, "params": params, "output": "scaled"}),
+                4001,
+                &[expected],
             )
             .await;
-        assert_eq!(code, 4001, "{params}: {message}");
-        assert!(message.contains(expected), "{params}: {message}");
     }
     assert_eq!(dataset_list(&daemon).await, before, "a refused call stored nothing");
 }
@@ -513,35 +435,25 @@ async fn a_running_analysis_is_cancelled_from_another_connection(mode: Mode) {
 async fn a_missing_or_mistyped_required_column_is_named(mode: Mode) {
     let dir = fixture_plugin_dir();
     let daemon = daemon_with_plugins(dir.path(), mode).await;
-    daemon
-        .call("dataset.import", json!({"name": "no_x", "columns": {"y": [1.0, 2.0]}}))
-        .await;
-    let (code, message) = daemon
-        .call_error(
-            "analysis.run",
-            json!({"analysis": "fixture.scale", "inputs": {"values": "no_x"}, "params": {"factor": 2.0}, "output": "scaled"}),
-        )
-        .await;
-    assert_eq!(code, 4004, "{message}");
-    assert!(
-        message.contains("`x`") && message.contains("no_x"),
-        "the message should name the column and the dataset: {message}"
-    );
-
-    daemon
-        .call(
-            "dataset.import",
-            json!({"name": "text_x", "columns": {"x": ["1", "2"]}}),
-        )
-        .await;
-    let (code, message) = daemon
-        .call_error(
-            "analysis.run",
-            json!({"analysis": "fixture.scale", "inputs": {"values": "text_x"}, "params": {"factor": 2.0}, "output": "scaled"}),
-        )
-        .await;
-    assert_eq!(code, 4004, "{message}");
-    assert!(message.contains("`x`"), "{message}");
+    // (dataset, its columns, the words the refusal carries): the column, and the dataset
+    // where it is missing.
+    let cases = [
+        ("no_x", json!({"y": [1.0, 2.0]}), &["`x`", "no_x"][..]),
+        ("text_x", json!({"x": ["1", "2"]}), &["`x`"][..]),
+    ];
+    for (name, columns, words) in cases {
+        daemon
+            .call("dataset.import", json!({"name": name, "columns": columns}))
+            .await;
+        daemon
+            .call_refused(
+                "analysis.run",
+                json!({"analysis": "fixture.scale", "inputs": {"values": name}, "params": {"factor": 2.0}, "output": "scaled"}),
+                4004,
+                words,
+            )
+            .await;
+    }
 }
 
 #[tokio::test(flavor = "multi_thread")]
@@ -560,6 +472,9 @@ async fn the_fixture_plugin_is_not_loaded_by_default() {
     assert!(!names.contains(&"fixture"), "{names:?}");
 }
 
+/// Named input tables of an in-process call.
+type Inputs = Vec<(String, DataFrame)>;
+
 /// A one-column table for the in-process calls below.
 fn table(column: Column) -> DataFrame {
     DataFrame::new(column.len(), vec![column]).unwrap()
@@ -577,23 +492,34 @@ fn the_c_plugin_refuses_unusable_tables_itself() {
     let params = json!({});
     let call = |analysis: &str, inputs: Vec<(String, DataFrame)>| host.invoke(analysis, &params, &inputs, &control);
 
-    let no_x = table(Column::new("y".into(), [1.0, 2.0]));
-    let failure = call("cfixture.sum", vec![("values".into(), no_x)]).err().unwrap();
-    assert_eq!(failure.status, abi::STATUS_INVALID_INPUT);
-    assert!(failure.message.contains("`x`"), "{}", failure.message);
-
-    let integer_x = table(Column::new("x".into(), [1i64, 2]));
-    let failure = call("cfixture.sum", vec![("values".into(), integer_x)]).err().unwrap();
-    assert_eq!(failure.status, abi::STATUS_INVALID_INPUT);
-    assert!(
-        failure.message.contains("float64") && failure.message.contains("\"l\""),
-        "{}",
-        failure.message
-    );
-
-    let failure = call("cfixture.sum", Vec::new()).err().unwrap();
-    assert_eq!(failure.status, abi::STATUS_INVALID_INPUT);
-    assert!(failure.message.contains("values"), "{}", failure.message);
+    // (case, inputs, the words the plugin's refusal carries); each is invalid input.
+    let cases: [(&str, Inputs, &[&str]); 3] = [
+        (
+            "no column x",
+            vec![("values".into(), table(Column::new("y".into(), [1.0, 2.0])))],
+            &["`x`"],
+        ),
+        // The format it wants and the Arrow format it got (`l`, int64).
+        (
+            "x of integers",
+            vec![("values".into(), table(Column::new("x".into(), [1i64, 2])))],
+            &["float64", "\"l\""],
+        ),
+        ("no input table", Vec::new(), &["values"]),
+    ];
+    for (case, inputs, words) in cases {
+        let failure = call("cfixture.sum", inputs)
+            .err()
+            .unwrap_or_else(|| panic!("{case}: accepted"));
+        assert_eq!(failure.status, abi::STATUS_INVALID_INPUT, "{case}: {}", failure.message);
+        for word in words {
+            assert!(
+                failure.message.contains(word),
+                "{case}: `{}` lacks `{word}`",
+                failure.message
+            );
+        }
+    }
 
     let x = table(Column::new("x".into(), [Some(1.0), None, Some(2.5)]));
     let success = call("cfixture.sum", vec![("values".into(), x)])
@@ -656,14 +582,14 @@ async fn a_pipeline_pushes_its_progress_over_websocket_step_by_step(mode: Mode) 
     assert!(second.iter().all(|(f, _)| *f >= 0.5), "{reports:?}");
 
     // A call_id inside a step is refused with what to do instead; a running id is refused too.
-    let (code, message) = daemon
-        .call_error(
+    daemon
+        .call_refused(
             "pipeline.run",
             json!({"steps": [{"analysis": "fixture.wait", "inputs": {}, "output": "x", "call_id": "inner"}]}),
+            4001,
+            &["cannot carry its own call_id"],
         )
         .await;
-    assert_eq!(code, 4001, "{message}");
-    assert!(message.contains("cannot carry its own call_id"), "{message}");
 }
 
 /// Text for the string-view tests: nulls, strings short enough to live inside their view
@@ -697,17 +623,8 @@ async fn a_c_plugin_that_declared_string_views_reads_text_as_views(mode: Mode) {
     assert_eq!(plugins[0]["abi_minor"], abi::ABI_MINOR);
 
     let (values, expected_total, expected_count) = text_values(1000);
-    daemon
-        .call("dataset.import", json!({"name": "text", "columns": {"x": values}}))
-        .await;
-    let run = daemon
-        .call(
-            "analysis.run",
-            json!({"analysis": "cfixture.sum", "inputs": {"values": "text"}, "output": "text_sum"}),
-        )
-        .await;
+    let (run, page) = c_sum(&daemon, "text", json!({"x": values})).await;
     assert_eq!(run["summary"]["total"].as_f64(), Some(expected_total), "{run}");
-    let page = daemon.call("dataset.rows", json!({"name": "text_sum"})).await;
     assert_eq!(page["columns"]["count"], json!([expected_count]));
 }
 

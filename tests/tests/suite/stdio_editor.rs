@@ -2,11 +2,11 @@
 //! in `Content-Length` frames, read responses and progress notifications from stdout, and
 //! cancel a running call while waiting for it — all over the one pipe pair.
 
-use mobilis_tests::{ensure_built, fixture_plugin_dir};
+use mobilis_tests::{ensure_built, fixture_plugin_dir, read_stdio_frames};
 use serde_json::{json, Value};
-use std::io::{BufRead, BufReader, Read, Write};
+use std::io::Write;
 use std::process::{Child, ChildStdin, Command, Stdio};
-use std::sync::mpsc::{channel, Receiver};
+use std::sync::mpsc::Receiver;
 use std::time::Duration;
 
 /// The longest a single message may take to arrive.
@@ -16,40 +16,9 @@ const PATIENCE: Duration = Duration::from_secs(60);
 struct Editor {
     child: Child,
     stdin: Option<ChildStdin>,
-    messages: Receiver<Value>,
+    messages: Receiver<String>,
     _workspace: tempfile::TempDir,
     _plugins: tempfile::TempDir,
-}
-
-/// Reads `Content-Length` frames until stdout closes.
-fn read_frames(stdout: impl Read + Send + 'static) -> Receiver<Value> {
-    let (sender, receiver) = channel();
-    std::thread::spawn(move || {
-        let mut reader = BufReader::new(stdout);
-        loop {
-            let mut length = None;
-            loop {
-                let mut line = String::new();
-                if reader.read_line(&mut line).unwrap_or(0) == 0 {
-                    return;
-                }
-                let line = line.trim_end();
-                if line.is_empty() {
-                    break;
-                }
-                if let Some(value) = line.strip_prefix("Content-Length:") {
-                    length = Some(value.trim().parse::<usize>().expect("a numeric Content-Length"));
-                }
-            }
-            let mut body = vec![0; length.expect("every frame has a Content-Length")];
-            reader.read_exact(&mut body).expect("the announced body arrives");
-            let message = serde_json::from_slice(&body).expect("every frame is JSON");
-            if sender.send(message).is_err() {
-                return;
-            }
-        }
-    });
-    receiver
 }
 
 impl Editor {
@@ -68,7 +37,7 @@ impl Editor {
             .stderr(Stdio::null())
             .spawn()
             .expect("mobilisd starts");
-        let messages = read_frames(child.stdout.take().expect("stdout is piped"));
+        let messages = read_stdio_frames(child.stdout.take().expect("stdout is piped"));
         Editor {
             stdin: child.stdin.take(),
             child,
@@ -94,9 +63,11 @@ impl Editor {
     }
 
     fn next(&self) -> Value {
-        self.messages
+        let frame = self
+            .messages
             .recv_timeout(PATIENCE)
-            .expect("the daemon answers within a minute")
+            .expect("the daemon answers within a minute");
+        serde_json::from_str(&frame).unwrap_or_else(|error| panic!("a frame that is not JSON ({error}): {frame}"))
     }
 
     /// Messages until the response with `id`; returns (notifications before it, response).

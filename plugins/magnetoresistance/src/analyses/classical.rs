@@ -1,28 +1,23 @@
 //! `mr.symmetrize`, `mr.ratio`, `mr.kohler` and `mr.two_band_fit`: the classical
 //! magnetoresistance analyses.
 
-use super::*;
 use crate::kohler::{kohler, KohlerCurve, KohlerSettings};
-use crate::ratio::{magnetoresistance, RatioSettings, ZeroFieldResistivity};
+use crate::ratio::{magnetoresistance, RatioSettings, ZeroFieldResistivity, DEFAULT_EXTRAPOLATION_POINTS};
 use crate::symmetrize::{symmetrize_sweep, SymmetrizeOptions};
 use crate::two_band::{fit_two_band_sweep, TwoBandError, TwoBandSettings};
 use mobilis_physics::forward::tensor::CarrierKind;
-use mobilis_sdk::abi::AnalysisDeclaration;
-use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
+use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType};
+use mobilis_sdk::sdk::{invalid, Analysis, AnalysisError, AnalysisOutput, Host, Inputs, OutputBuilder};
 use mobilis_sdk::sweep_table::{
-    single_field_sign_series_warning, single_sweep, sweep_role, sweep_schema_properties, sweeps_by_temperature,
-    SweepParams,
+    single_field_sign_series_warning, single_sweep, sweep_role, sweeps_by_temperature, SweepParams,
 };
-use serde::Deserialize;
+use schemars::JsonSchema;
+use serde::{Deserialize, Serialize};
 use serde_json::{json, Value};
-
-fn schema(properties: serde_json::Map<String, Value>) -> Value {
-    json!({"type": "object", "additionalProperties": false, "properties": properties})
-}
 
 /// The summary key every analysis of a sweep carries.
 pub(crate) fn single_field_sign_key() -> ColumnSpec {
-    column(
+    ColumnSpec::new(
         "single_field_sign",
         ColumnType::Bool,
         None,
@@ -30,38 +25,50 @@ pub(crate) fn single_field_sign_key() -> ColumnSpec {
     )
 }
 
-fn zero_field_properties(properties: &mut serde_json::Map<String, Value>) {
-    properties.insert("zero_field".into(), json!({"type": "string", "enum": ["measured", "extrapolated"], "default": "measured", "description": "rho(0) from the points at zero field, or extrapolated quadratically from the lowest fields when there is none"}));
-    properties.insert("extrapolation_points".into(), json!({"type": "integer", "minimum": 3, "default": crate::ratio::DEFAULT_EXTRAPOLATION_POINTS, "description": "lowest-field points of the quadratic extrapolation"}));
+/// Where rho(0) comes from: the `zero_field` parameter of `mr.ratio` and `mr.kohler`.
+// Serialize so that the derived schema can state the default choice.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum ZeroFieldSource {
+    /// the mean of the points at |B| <= zero_field_tolerance_T
+    #[default]
+    Measured,
+    /// rho(0) + c B^2 fitted to the lowest fields, for a sweep without a zero-field point
+    Extrapolated,
 }
 
-#[derive(Debug, Default, Deserialize, schemars::JsonSchema)]
-struct ZeroFieldParams {
+/// The rho(0) parameters of `mr.ratio` and `mr.kohler` (flattened into theirs).
+#[derive(Debug, Clone, Deserialize, JsonSchema)]
+pub struct ZeroFieldParams {
+    /// rho(0) from the points at zero field, or extrapolated quadratically from the lowest
+    /// fields when there is none
     #[serde(default)]
-    zero_field: Option<String>,
-    #[serde(default)]
-    extrapolation_points: Option<usize>,
+    zero_field: ZeroFieldSource,
+    /// lowest-field points of the quadratic extrapolation
+    #[serde(default = "ZeroFieldParams::default_extrapolation_points")]
+    #[schemars(range(min = 3))]
+    extrapolation_points: usize,
 }
 
-fn ratio_settings(sweep: &SweepParams, zero: &ZeroFieldParams) -> Result<RatioSettings, AnalysisError> {
-    let zero_field = match zero.zero_field.as_deref() {
-        None | Some("measured") => ZeroFieldResistivity::Measured,
-        Some("extrapolated") => ZeroFieldResistivity::Extrapolated {
-            points: zero
-                .extrapolation_points
-                .unwrap_or(crate::ratio::DEFAULT_EXTRAPOLATION_POINTS),
-            max_field_t: None,
-        },
-        Some(other) => {
-            return Err(invalid(format!(
-                "zero_field `{other}` is unknown; use measured or extrapolated"
-            )))
+impl ZeroFieldParams {
+    fn default_extrapolation_points() -> usize {
+        DEFAULT_EXTRAPOLATION_POINTS
+    }
+
+    /// The ratio settings of these parameters over the sweep's symmetrization.
+    fn ratio_settings(&self, sweep: &SweepParams) -> RatioSettings {
+        let zero_field = match self.zero_field {
+            ZeroFieldSource::Measured => ZeroFieldResistivity::Measured,
+            ZeroFieldSource::Extrapolated => ZeroFieldResistivity::Extrapolated {
+                points: self.extrapolation_points,
+                max_field_t: None,
+            },
+        };
+        RatioSettings {
+            sweep: sweep.settings(),
+            zero_field,
         }
-    };
-    Ok(RatioSettings {
-        sweep: sweep.settings(),
-        zero_field,
-    })
+    }
 }
 
 // ---------------------------------------------------------------------------------------
@@ -69,12 +76,24 @@ fn ratio_settings(sweep: &SweepParams, zero: &ZeroFieldParams) -> Result<RatioSe
 
 pub struct SymmetrizeAnalysis;
 
-#[derive(Debug, Deserialize, schemars::JsonSchema)]
+/// Parameters of `mr.symmetrize`.
+#[derive(Debug, Deserialize, JsonSchema)]
 pub struct SymmetrizeParams {
     #[serde(flatten)]
     sweep: SweepParams,
+    /// estimate the contact misalignment from points up to this field; default the lower
+    /// quarter of the overlap
+    // Not given means the lower quarter of the overlap, which depends on the sweep, so there
+    // is no default value to state, and null is not a field: the schema says number.
     #[serde(rename = "misalignment_max_field_T", default)]
+    #[schemars(with = "f64", extend("exclusiveMinimum" = 0), transform = without_default)]
     misalignment_max_field_t: Option<f64>,
+}
+
+/// Drops the `default` schemars writes for an optional parameter (null), where not given
+/// means something of its own that the description states.
+fn without_default(schema: &mut schemars::Schema) {
+    schema.remove("default");
 }
 
 impl Analysis for SymmetrizeAnalysis {
@@ -83,34 +102,31 @@ impl Analysis for SymmetrizeAnalysis {
 
     fn declaration() -> AnalysisDeclaration {
         use ColumnType::*;
-        let mut properties = sweep_schema_properties();
-        properties.insert("misalignment_max_field_T".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "estimate the contact misalignment from points up to this field; default the lower quarter of the overlap"}));
         AnalysisDeclaration {
             name: String::new(),
             summary: "Even part of rho_xx and odd part of rho_xy of a sweep, with the residual asymmetry (a measure of contact misalignment)".into(),
             description: "Each field branch is interpolated onto the common |B| points of the overlap; rho_xx(|B|) = (rho_xx(+B) + rho_xx(-B))/2, rho_xy(|B|) = (rho_xy(+B) - rho_xy(-B))/2. The removed parts (odd in rho_xx, even in rho_xy) are reported point by point and summarised as a misalignment fraction rho_xy_even / rho_xx and a Hall pickup in rho_xx.".into(),
-            params: schema(properties),
             inputs: vec![sweep_role(false)],
             outputs: vec![
-                column("field_T", F64, Some("T"), "|B|"),
-                column("rho_xx_ohm_sq", F64, Some("ohm_sq"), "even part"),
-                column("rho_xx_ohm_sq_unc", F64, Some("ohm_sq"), "standard uncertainty"),
-                column("rho_xy_ohm", F64, Some("ohm"), "odd part, positive for holes"),
-                column("rho_xy_ohm_unc", F64, Some("ohm"), "standard uncertainty"),
-                column("rho_xx_odd_ohm_sq", F64, Some("ohm_sq"), "the removed odd part of rho_xx"),
-                column("rho_xy_even_ohm", F64, Some("ohm"), "the removed even part of rho_xy"),
-                column("rho_xx_asymmetry", F64, None, "removed part relative to rho_xx"),
-                column("rho_xy_asymmetry", F64, None, "removed part relative to rho_xy"),
+                ColumnSpec::new("field_T", F64, Some("T"), "|B|"),
+                ColumnSpec::new("rho_xx_ohm_sq", F64, Some("ohm_sq"), "even part"),
+                ColumnSpec::new("rho_xx_ohm_sq_unc", F64, Some("ohm_sq"), "standard uncertainty"),
+                ColumnSpec::new("rho_xy_ohm", F64, Some("ohm"), "odd part, positive for holes"),
+                ColumnSpec::new("rho_xy_ohm_unc", F64, Some("ohm"), "standard uncertainty"),
+                ColumnSpec::new("rho_xx_odd_ohm_sq", F64, Some("ohm_sq"), "the removed odd part of rho_xx"),
+                ColumnSpec::new("rho_xy_even_ohm", F64, Some("ohm"), "the removed even part of rho_xy"),
+                ColumnSpec::new("rho_xx_asymmetry", F64, None, "removed part relative to rho_xx"),
+                ColumnSpec::new("rho_xy_asymmetry", F64, None, "removed part relative to rho_xy"),
             ],
             summary_keys: vec![
-                column("sample", ColumnType::Str, None, "the sweep's sample"),
-                column("temperature_K", ColumnType::F64, Some("K"), "the sweep's temperature"),
-                column("hall_pickup_fraction", ColumnType::F64, None, "part of rho_xx picked up in rho_xy, with _unc"),
-                column("max_rho_xx_asymmetry", ColumnType::F64, None, "largest removed odd part relative to rho_xx"),
-                column("overlap_T", ColumnType::F64, Some("T"), "[lowest, highest] |B| where both field signs were measured"),
-                column("points_outside_overlap", ColumnType::I64, None, "points outside the overlap of the field signs"),
-                column("misalignment_fraction", F64, None, "rho_xy_even / rho_xx at low field, with _unc"),
-                column("max_rho_xy_asymmetry", F64, None, "largest removed even part relative to rho_xy"),
+                ColumnSpec::new("sample", ColumnType::Str, None, "the sweep's sample"),
+                ColumnSpec::new("temperature_K", ColumnType::F64, Some("K"), "the sweep's temperature"),
+                ColumnSpec::new("hall_pickup_fraction", ColumnType::F64, None, "part of rho_xx picked up in rho_xy, with _unc"),
+                ColumnSpec::new("max_rho_xx_asymmetry", ColumnType::F64, None, "largest removed odd part relative to rho_xx"),
+                ColumnSpec::new("overlap_T", ColumnType::F64, Some("T"), "[lowest, highest] |B| where both field signs were measured"),
+                ColumnSpec::new("points_outside_overlap", ColumnType::I64, None, "points outside the overlap of the field signs"),
+                ColumnSpec::new("misalignment_fraction", F64, None, "rho_xy_even / rho_xx at low field, with _unc"),
+                ColumnSpec::new("max_rho_xy_asymmetry", F64, None, "largest removed even part relative to rho_xy"),
             ],
             figures: crate::figures::symmetrize(),
             ..Default::default()
@@ -125,37 +141,35 @@ impl Analysis for SymmetrizeAnalysis {
         };
         let result = symmetrize_sweep(&sweep.points, &options).map_err(|e| invalid(e.to_string()))?;
         let rows = &result.rows;
-        let table = frame(
-            rows.len(),
-            vec![
-                floats("field_T", rows.iter().map(|r| r.field_t).collect()),
-                floats("rho_xx_ohm_sq", rows.iter().map(|r| r.rho_xx_ohm_sq).collect()),
-                optional("rho_xx_ohm_sq_unc", rows.iter().map(|r| r.rho_xx_unc_ohm_sq).collect()),
-                floats("rho_xy_ohm", rows.iter().map(|r| r.rho_xy_ohm).collect()),
-                optional("rho_xy_ohm_unc", rows.iter().map(|r| r.rho_xy_unc_ohm).collect()),
-                floats("rho_xx_odd_ohm_sq", rows.iter().map(|r| r.rho_xx_odd_ohm_sq).collect()),
-                floats("rho_xy_even_ohm", rows.iter().map(|r| r.rho_xy_even_ohm).collect()),
-                floats("rho_xx_asymmetry", rows.iter().map(|r| r.rho_xx_asymmetry).collect()),
-                floats("rho_xy_asymmetry", rows.iter().map(|r| r.rho_xy_asymmetry).collect()),
-            ],
-        )?;
-        let mut output = AnalysisOutput::new(table);
-        let summary = &mut output.summary;
-        summary.extend(sweep.identity());
+        let mut output = OutputBuilder::of::<Self>();
+        output
+            .f64("field_T", rows.iter().map(|r| r.field_t).collect())
+            .f64("rho_xx_ohm_sq", rows.iter().map(|r| r.rho_xx_ohm_sq).collect())
+            .f64_nullable("rho_xx_ohm_sq_unc", rows.iter().map(|r| r.rho_xx_unc_ohm_sq).collect())
+            .f64("rho_xy_ohm", rows.iter().map(|r| r.rho_xy_ohm).collect())
+            .f64_nullable("rho_xy_ohm_unc", rows.iter().map(|r| r.rho_xy_unc_ohm).collect())
+            .f64("rho_xx_odd_ohm_sq", rows.iter().map(|r| r.rho_xx_odd_ohm_sq).collect())
+            .f64("rho_xy_even_ohm", rows.iter().map(|r| r.rho_xy_even_ohm).collect())
+            .f64("rho_xx_asymmetry", rows.iter().map(|r| r.rho_xx_asymmetry).collect())
+            .f64("rho_xy_asymmetry", rows.iter().map(|r| r.rho_xy_asymmetry).collect())
+            .summary_map(sweep.identity());
         let s = &result.summary;
-        summary.insert("misalignment_fraction".into(), json!(s.misalignment.fraction));
-        summary.insert("misalignment_fraction_unc".into(), json!(s.misalignment.fraction_unc));
+        output
+            .summary("misalignment_fraction", s.misalignment.fraction)
+            .summary("misalignment_fraction_unc", s.misalignment.fraction_unc);
         if let Some(pickup) = &s.hall_pickup {
-            summary.insert("hall_pickup_fraction".into(), json!(pickup.fraction));
-            summary.insert("hall_pickup_fraction_unc".into(), json!(pickup.fraction_unc));
+            output
+                .summary("hall_pickup_fraction", pickup.fraction)
+                .summary("hall_pickup_fraction_unc", pickup.fraction_unc);
         }
-        summary.insert("max_rho_xx_asymmetry".into(), json!(s.max_rho_xx_asymmetry));
-        summary.insert("max_rho_xy_asymmetry".into(), json!(s.max_rho_xy_asymmetry));
-        summary.insert("overlap_T".into(), json!([s.overlap_t.0, s.overlap_t.1]));
-        summary.insert("points_outside_overlap".into(), json!(s.points_outside_overlap));
-        output.warnings = sweep.warnings.clone();
-        output.warnings.extend(result.warnings.iter().cloned());
-        Ok(output)
+        output
+            .summary("max_rho_xx_asymmetry", s.max_rho_xx_asymmetry)
+            .summary("max_rho_xy_asymmetry", s.max_rho_xy_asymmetry)
+            .summary("overlap_T", [s.overlap_t.0, s.overlap_t.1])
+            .summary("points_outside_overlap", s.points_outside_overlap)
+            .warnings(sweep.warnings.iter().cloned())
+            .warnings(result.warnings.iter().cloned());
+        output.finish(rows.len())
     }
 }
 
@@ -164,7 +178,8 @@ impl Analysis for SymmetrizeAnalysis {
 
 pub struct RatioAnalysis;
 
-#[derive(Debug, Deserialize, schemars::JsonSchema)]
+/// Parameters of `mr.ratio`.
+#[derive(Debug, Deserialize, JsonSchema)]
 pub struct RatioParams {
     #[serde(flatten)]
     sweep: SweepParams,
@@ -178,30 +193,27 @@ impl Analysis for RatioAnalysis {
 
     fn declaration() -> AnalysisDeclaration {
         use ColumnType::*;
-        let mut properties = sweep_schema_properties();
-        zero_field_properties(&mut properties);
         AnalysisDeclaration {
             name: String::new(),
             summary: "Magnetoresistance (rho(B) - rho(0)) / rho(0) of a symmetrized sweep, rho(0) from the data at zero field".into(),
             description: "rho_xx is symmetrized first (a sweep at one field sign is used as measured, rho_xx being even in B, and flagged single_field_sign); rho(0) is the mean of the zero-field points (|B| <= zero_field_tolerance_T) (or, with zero_field: extrapolated, a quadratic fit to the lowest fields). Uncertainties propagate when the sweep has them.".into(),
-            params: schema(properties),
             inputs: vec![sweep_role(false)],
             outputs: vec![
-                column("field_T", F64, Some("T"), "|B|"),
-                column("rho_xx_ohm_sq", F64, Some("ohm_sq"), "symmetrized rho_xx"),
-                column("rho_xx_ohm_sq_unc", F64, Some("ohm_sq"), "standard uncertainty"),
-                column("magnetoresistance", F64, None, "(rho(B) - rho(0)) / rho(0)"),
-                column("magnetoresistance_unc", F64, None, "standard uncertainty"),
+                ColumnSpec::new("field_T", F64, Some("T"), "|B|"),
+                ColumnSpec::new("rho_xx_ohm_sq", F64, Some("ohm_sq"), "symmetrized rho_xx"),
+                ColumnSpec::new("rho_xx_ohm_sq_unc", F64, Some("ohm_sq"), "standard uncertainty"),
+                ColumnSpec::new("magnetoresistance", F64, None, "(rho(B) - rho(0)) / rho(0)"),
+                ColumnSpec::new("magnetoresistance_unc", F64, None, "standard uncertainty"),
             ],
             summary_keys: vec![
-                column("sample", ColumnType::Str, None, "the sweep's sample"),
-                column("temperature_K", ColumnType::F64, Some("K"), "the sweep's temperature"),
-                column("rho0_method", ColumnType::Str, None, "how rho(0) was obtained"),
-                column("max_field_T", ColumnType::F64, Some("T"), "the largest |B|"),
-                column("max_magnetoresistance", ColumnType::F64, None, "the largest MR"),
-                column("max_magnetoresistance_field_T", ColumnType::F64, Some("T"), "the field of the largest MR"),
-                column("rho0_ohm_sq", F64, Some("ohm_sq"), "zero-field sheet resistivity, with _unc"),
-                column("magnetoresistance_at_max_field", F64, None, "MR at the largest field"),
+                ColumnSpec::new("sample", ColumnType::Str, None, "the sweep's sample"),
+                ColumnSpec::new("temperature_K", ColumnType::F64, Some("K"), "the sweep's temperature"),
+                ColumnSpec::new("rho0_method", ColumnType::Str, None, "how rho(0) was obtained"),
+                ColumnSpec::new("max_field_T", ColumnType::F64, Some("T"), "the largest |B|"),
+                ColumnSpec::new("max_magnetoresistance", ColumnType::F64, None, "the largest MR"),
+                ColumnSpec::new("max_magnetoresistance_field_T", ColumnType::F64, Some("T"), "the field of the largest MR"),
+                ColumnSpec::new("rho0_ohm_sq", F64, Some("ohm_sq"), "zero-field sheet resistivity, with _unc"),
+                ColumnSpec::new("magnetoresistance_at_max_field", F64, None, "MR at the largest field"),
                 single_field_sign_key(),
             ],
             figures: crate::figures::ratio(),
@@ -211,36 +223,31 @@ impl Analysis for RatioAnalysis {
 
     fn run(params: RatioParams, inputs: &Inputs, _host: &Host) -> Result<AnalysisOutput, AnalysisError> {
         let sweep = single_sweep(inputs.required("sweep")?, &params.sweep.grouping())?;
-        let settings = ratio_settings(&params.sweep, &params.zero)?;
+        let settings = params.zero.ratio_settings(&params.sweep);
         let curve = magnetoresistance(&sweep.points, &settings).map_err(|e| invalid(e.to_string()))?;
         let points = &curve.points;
-        let table = frame(
-            points.len(),
-            vec![
-                floats("field_T", points.iter().map(|p| p.field_t).collect()),
-                floats("rho_xx_ohm_sq", points.iter().map(|p| p.rho_xx_ohm_sq).collect()),
-                optional(
-                    "rho_xx_ohm_sq_unc",
-                    points.iter().map(|p| p.rho_xx_unc_ohm_sq).collect(),
-                ),
-                floats("magnetoresistance", points.iter().map(|p| p.mr).collect()),
-                optional("magnetoresistance_unc", points.iter().map(|p| p.mr_unc).collect()),
-            ],
-        )?;
-        let mut output = AnalysisOutput::new(table);
-        let summary = &mut output.summary;
-        summary.extend(sweep.identity());
-        summary.insert("rho0_ohm_sq".into(), json!(curve.zero_field.rho_ohm_sq));
-        summary.insert("rho0_ohm_sq_unc".into(), json!(curve.zero_field.rho_unc_ohm_sq));
-        summary.insert("rho0_method".into(), json!(curve.zero_field.method));
-        summary.insert("max_field_T".into(), json!(curve.max_field_t));
-        summary.insert("magnetoresistance_at_max_field".into(), json!(curve.mr_at_max_field));
-        summary.insert("max_magnetoresistance".into(), json!(curve.max_mr));
-        summary.insert("max_magnetoresistance_field_T".into(), json!(curve.max_mr_field_t));
-        summary.insert("single_field_sign".into(), json!(curve.single_field_sign));
-        output.warnings = sweep.warnings.clone();
-        output.warnings.extend(curve.warnings.iter().cloned());
-        Ok(output)
+        let mut output = OutputBuilder::of::<Self>();
+        output
+            .f64("field_T", points.iter().map(|p| p.field_t).collect())
+            .f64("rho_xx_ohm_sq", points.iter().map(|p| p.rho_xx_ohm_sq).collect())
+            .f64_nullable(
+                "rho_xx_ohm_sq_unc",
+                points.iter().map(|p| p.rho_xx_unc_ohm_sq).collect(),
+            )
+            .f64("magnetoresistance", points.iter().map(|p| p.mr).collect())
+            .f64_nullable("magnetoresistance_unc", points.iter().map(|p| p.mr_unc).collect())
+            .summary_map(sweep.identity())
+            .summary("rho0_ohm_sq", curve.zero_field.rho_ohm_sq)
+            .summary("rho0_ohm_sq_unc", curve.zero_field.rho_unc_ohm_sq)
+            .summary("rho0_method", curve.zero_field.method)
+            .summary("max_field_T", curve.max_field_t)
+            .summary("magnetoresistance_at_max_field", curve.mr_at_max_field)
+            .summary("max_magnetoresistance", curve.max_mr)
+            .summary("max_magnetoresistance_field_T", curve.max_mr_field_t)
+            .summary("single_field_sign", curve.single_field_sign)
+            .warnings(sweep.warnings.iter().cloned())
+            .warnings(curve.warnings.iter().cloned());
+        output.finish(points.len())
     }
 }
 
@@ -249,16 +256,40 @@ impl Analysis for RatioAnalysis {
 
 pub struct KohlerAnalysis;
 
-#[derive(Debug, Deserialize, schemars::JsonSchema)]
+/// Parameters of `mr.kohler`.
+#[derive(Debug, Deserialize, JsonSchema)]
 pub struct KohlerParams {
     #[serde(flatten)]
     sweep: SweepParams,
     #[serde(flatten)]
     zero: ZeroFieldParams,
-    #[serde(default)]
-    tolerance: Option<f64>,
-    #[serde(default)]
-    grid_points: Option<usize>,
+    /// largest spread of ln MR between temperatures, beyond the noise, at which the curves
+    /// still collapse
+    #[serde(default = "KohlerParams::default_tolerance")]
+    #[schemars(extend("exclusiveMinimum" = 0))]
+    tolerance: f64,
+    /// points of the common log grid in B / rho(0)
+    #[serde(default = "KohlerParams::default_grid_points")]
+    #[schemars(range(min = 3, max = 1000))]
+    grid_points: usize,
+}
+
+impl KohlerParams {
+    fn default_tolerance() -> f64 {
+        KohlerSettings::default().tolerance
+    }
+
+    fn default_grid_points() -> usize {
+        KohlerSettings::default().grid_points
+    }
+
+    fn settings(&self) -> KohlerSettings {
+        KohlerSettings {
+            tolerance: self.tolerance,
+            grid_points: self.grid_points,
+            ..KohlerSettings::default()
+        }
+    }
 }
 
 impl Analysis for KohlerAnalysis {
@@ -267,38 +298,32 @@ impl Analysis for KohlerAnalysis {
 
     fn declaration() -> AnalysisDeclaration {
         use ColumnType::*;
-        let defaults = KohlerSettings::default();
-        let mut properties = sweep_schema_properties();
-        zero_field_properties(&mut properties);
-        properties.insert("tolerance".into(), json!({"type": "number", "exclusiveMinimum": 0, "default": defaults.tolerance, "description": "largest spread of ln MR between temperatures, beyond the noise, at which the curves still collapse"}));
-        properties.insert("grid_points".into(), json!({"type": "integer", "minimum": 3, "maximum": 1000, "default": defaults.grid_points, "description": "points of the common log grid in B / rho(0)"}));
         AnalysisDeclaration {
             name: String::new(),
             summary: "Kohler plot: MR against B / rho(0) across temperatures, and whether (and where) the curves collapse".into(),
             description: "Each temperature's MR curve is resampled on a common logarithmic grid of x = B / rho(0) over the overlapping range; at each grid point the spread of ln MR between temperatures beyond what their noise explains is compared with the tolerance. Kohler's rule holds where it stays below; failing ranges and the most deviating temperature are reported, with a power law MR = a x^n per temperature.".into(),
-            params: schema(properties),
             inputs: vec![sweep_role(true)],
             outputs: vec![
-                column("temperature_K", F64, Some("K"), "temperature of the curve"),
-                column("field_T", F64, Some("T"), "|B|"),
-                column("x_T_per_ohm", F64, None, "B / rho(0), T/ohm"),
-                column("magnetoresistance", F64, None, "(rho(B) - rho(0)) / rho(0)"),
-                column("magnetoresistance_unc", F64, None, "standard uncertainty"),
-                column("used", Bool, None, "inside the common range"),
+                ColumnSpec::new("temperature_K", F64, Some("K"), "temperature of the curve"),
+                ColumnSpec::new("field_T", F64, Some("T"), "|B|"),
+                ColumnSpec::new("x_T_per_ohm", F64, None, "B / rho(0), T/ohm"),
+                ColumnSpec::new("magnetoresistance", F64, None, "(rho(B) - rho(0)) / rho(0)"),
+                ColumnSpec::new("magnetoresistance_unc", F64, None, "standard uncertainty"),
+                ColumnSpec::new("used", Bool, None, "inside the common range"),
             ],
             summary_keys: vec![
-                column("sample", ColumnType::Str, None, "the series' sample"),
-                column("temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures of the series"),
-                column("tolerance", ColumnType::F64, None, "the collapse tolerance used"),
-                column("rms_spread", ColumnType::F64, None, "rms spread of ln MR between temperatures"),
-                column("max_excess_spread", ColumnType::F64, None, "largest spread beyond the noise"),
-                column("max_excess_x_T_per_ohm", ColumnType::F64, Some("T_per_ohm"), "B / rho(0) of the largest excess spread"),
-                column("most_deviating_temperature_K", ColumnType::F64, Some("K"), "the temperature that deviates most"),
-                column("failing_ranges", ColumnType::Str, None, "list of the x ranges where the collapse fails"),
-                column("power_laws", ColumnType::Str, None, "list of {temperature_K, exponent, ...}: MR ~ x^exponent per temperature"),
-                column("single_field_sign_temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures measured at one field sign"),
-                column("kohler_holds", Bool, None, "the curves collapse within the tolerance (null when nothing could be judged)"),
-                column("rms_excess_spread", F64, None, "rms spread of ln MR beyond the noise"),
+                ColumnSpec::new("sample", ColumnType::Str, None, "the series' sample"),
+                ColumnSpec::new("temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures of the series"),
+                ColumnSpec::new("tolerance", ColumnType::F64, None, "the collapse tolerance used"),
+                ColumnSpec::new("rms_spread", ColumnType::F64, None, "rms spread of ln MR between temperatures"),
+                ColumnSpec::new("max_excess_spread", ColumnType::F64, None, "largest spread beyond the noise"),
+                ColumnSpec::new("max_excess_x_T_per_ohm", ColumnType::F64, Some("T_per_ohm"), "B / rho(0) of the largest excess spread"),
+                ColumnSpec::new("most_deviating_temperature_K", ColumnType::F64, Some("K"), "the temperature that deviates most"),
+                ColumnSpec::new("failing_ranges", ColumnType::Str, None, "list of the x ranges where the collapse fails"),
+                ColumnSpec::new("power_laws", ColumnType::Str, None, "list of {temperature_K, exponent, ...}: MR ~ x^exponent per temperature"),
+                ColumnSpec::new("single_field_sign_temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures measured at one field sign"),
+                ColumnSpec::new("kohler_holds", Bool, None, "the curves collapse within the tolerance (null when nothing could be judged)"),
+                ColumnSpec::new("rms_excess_spread", F64, None, "rms spread of ln MR beyond the noise"),
                 single_field_sign_key(),
             ],
             figures: crate::figures::kohler(),
@@ -308,7 +333,7 @@ impl Analysis for KohlerAnalysis {
 
     fn run(params: KohlerParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
         let sweeps = sweeps_by_temperature(inputs.required("sweep")?, &params.sweep.grouping())?;
-        let ratio = ratio_settings(&params.sweep, &params.zero)?;
+        let ratio = params.zero.ratio_settings(&params.sweep);
         let mut curves = Vec::with_capacity(sweeps.len());
         let mut sweep_warnings: Vec<String> = Vec::new();
         let mut single_sign_temperatures: Vec<f64> = Vec::new();
@@ -332,48 +357,33 @@ impl Analysis for KohlerAnalysis {
             );
             curves.push(KohlerCurve::from_ratio(temperature, &curve));
         }
-        let mut settings = KohlerSettings::default();
-        if let Some(tolerance) = params.tolerance {
-            settings.tolerance = tolerance;
-        }
-        if let Some(points) = params.grid_points {
-            settings.grid_points = points;
-        }
-        let analysis = kohler(&curves, &settings).map_err(|e| invalid(e.to_string()))?;
+        let analysis = kohler(&curves, &params.settings()).map_err(|e| invalid(e.to_string()))?;
         let points = &analysis.points;
-        let table = frame(
-            points.len(),
-            vec![
-                floats("temperature_K", points.iter().map(|p| p.temperature_k).collect()),
-                floats("field_T", points.iter().map(|p| p.field_t).collect()),
-                floats("x_T_per_ohm", points.iter().map(|p| p.x_t_per_ohm).collect()),
-                floats("magnetoresistance", points.iter().map(|p| p.mr).collect()),
-                optional("magnetoresistance_unc", points.iter().map(|p| p.mr_unc).collect()),
-                Column::new("used".into(), points.iter().map(|p| p.used).collect::<Vec<bool>>()),
-            ],
-        )?;
-        let mut output = AnalysisOutput::new(table);
-        let summary = &mut output.summary;
+        let mut output = OutputBuilder::of::<Self>();
+        output
+            .f64("temperature_K", points.iter().map(|p| p.temperature_k).collect())
+            .f64("field_T", points.iter().map(|p| p.field_t).collect())
+            .f64("x_T_per_ohm", points.iter().map(|p| p.x_t_per_ohm).collect())
+            .f64("magnetoresistance", points.iter().map(|p| p.mr).collect())
+            .f64_nullable("magnetoresistance_unc", points.iter().map(|p| p.mr_unc).collect())
+            .bool("used", points.iter().map(|p| p.used).collect());
         if let Some(sample) = &sweeps[0].sample {
-            summary.insert("sample".into(), json!(sample));
+            output.summary("sample", sample);
         }
-        summary.insert(
-            "temperatures_K".into(),
-            json!(curves.iter().map(|c| c.temperature_k).collect::<Vec<_>>()),
-        );
-        summary.insert("kohler_holds".into(), json!(analysis.holds));
-        summary.insert("tolerance".into(), json!(analysis.tolerance));
-        summary.insert("rms_spread".into(), json!(analysis.rms_spread));
-        summary.insert("rms_excess_spread".into(), json!(analysis.rms_excess_spread));
-        summary.insert("max_excess_spread".into(), json!(analysis.max_excess_spread));
-        summary.insert("max_excess_x_T_per_ohm".into(), json!(analysis.max_excess_x_t_per_ohm));
-        summary.insert(
-            "most_deviating_temperature_K".into(),
-            json!(analysis.most_deviating_temperature_k),
-        );
-        summary.insert(
-            "failing_ranges".into(),
-            Value::Array(
+        output
+            .summary(
+                "temperatures_K",
+                curves.iter().map(|c| c.temperature_k).collect::<Vec<_>>(),
+            )
+            .summary("kohler_holds", analysis.holds)
+            .summary("tolerance", analysis.tolerance)
+            .summary("rms_spread", analysis.rms_spread)
+            .summary("rms_excess_spread", analysis.rms_excess_spread)
+            .summary("max_excess_spread", analysis.max_excess_spread)
+            .summary("max_excess_x_T_per_ohm", analysis.max_excess_x_t_per_ohm)
+            .summary("most_deviating_temperature_K", analysis.most_deviating_temperature_k)
+            .summary(
+                "failing_ranges",
                 analysis
                     .failures
                     .iter()
@@ -381,12 +391,10 @@ impl Analysis for KohlerAnalysis {
                         json!({"x_low_T_per_ohm": f.x_low_t_per_ohm, "x_high_T_per_ohm": f.x_high_t_per_ohm,
                                "max_excess_spread": f.max_excess_spread, "worst_temperature_K": f.worst_temperature_k})
                     })
-                    .collect(),
-            ),
-        );
-        summary.insert(
-            "power_laws".into(),
-            Value::Array(
+                    .collect::<Vec<Value>>(),
+            )
+            .summary(
+                "power_laws",
                 analysis
                     .power_laws
                     .iter()
@@ -395,12 +403,11 @@ impl Analysis for KohlerAnalysis {
                         json!({"temperature_K": p.temperature_k, "exponent": p.exponent, "exponent_unc": p.exponent_unc,
                                "prefactor": p.prefactor, "prefactor_unc": p.prefactor_unc})
                     })
-                    .collect(),
-            ),
-        );
-        report_series_field_signs(&mut output, &single_sign_temperatures, sweep_warnings);
-        output.warnings.extend(analysis.warnings.iter().cloned());
-        Ok(output)
+                    .collect::<Vec<Value>>(),
+            );
+        series_field_signs(&mut output, &single_sign_temperatures, sweep_warnings);
+        output.warnings(analysis.warnings.iter().cloned());
+        output.finish(points.len())
     }
 }
 
@@ -409,16 +416,74 @@ impl Analysis for KohlerAnalysis {
 
 pub struct TwoBandAnalysis;
 
-#[derive(Debug, Deserialize, schemars::JsonSchema)]
+/// The kind of one band of `mr.two_band_fit`, by its `carrier_type` code.
+// Serialize so that the derived schema can state the default pair.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+pub enum BandKind {
+    /// electrons
+    #[serde(rename = "n")]
+    N,
+    /// holes
+    #[serde(rename = "p")]
+    P,
+}
+
+impl From<BandKind> for CarrierKind {
+    fn from(kind: BandKind) -> Self {
+        match kind {
+            BandKind::N => CarrierKind::Electron,
+            BandKind::P => CarrierKind::Hole,
+        }
+    }
+}
+
+impl From<CarrierKind> for BandKind {
+    fn from(kind: CarrierKind) -> Self {
+        match kind {
+            CarrierKind::Electron => BandKind::N,
+            CarrierKind::Hole => BandKind::P,
+        }
+    }
+}
+
+/// Parameters of `mr.two_band_fit`.
+#[derive(Debug, Deserialize, JsonSchema)]
 pub struct TwoBandParams {
     #[serde(flatten)]
     sweep: SweepParams,
-    #[serde(default)]
-    carriers: Option<Vec<String>>,
-    #[serde(default)]
-    random_starts: Option<usize>,
-    #[serde(default)]
-    seed: Option<u64>,
+    /// the kinds of the two bands
+    #[serde(default = "TwoBandParams::default_carriers")]
+    carriers: [BandKind; 2],
+    /// random starts of the fit besides the deterministic ones
+    #[serde(default = "TwoBandParams::default_random_starts")]
+    #[schemars(range(max = 200))]
+    random_starts: usize,
+    /// seed of the random starts (the same seed gives the same fit)
+    #[serde(default = "TwoBandParams::default_seed")]
+    seed: u64,
+}
+
+impl TwoBandParams {
+    fn default_carriers() -> [BandKind; 2] {
+        TwoBandSettings::default().kinds.map(BandKind::from)
+    }
+
+    fn default_random_starts() -> usize {
+        TwoBandSettings::default().random_starts
+    }
+
+    fn default_seed() -> u64 {
+        TwoBandSettings::default().seed
+    }
+
+    fn settings(&self) -> TwoBandSettings {
+        TwoBandSettings {
+            kinds: self.carriers.map(CarrierKind::from),
+            random_starts: self.random_starts,
+            seed: self.seed,
+            ..TwoBandSettings::default()
+        }
+    }
 }
 
 impl Analysis for TwoBandAnalysis {
@@ -427,40 +492,32 @@ impl Analysis for TwoBandAnalysis {
 
     fn declaration() -> AnalysisDeclaration {
         use ColumnType::*;
-        let mut properties = sweep_schema_properties();
-        properties.insert("carriers".into(), json!({"type": "array", "items": {"type": "string", "enum": ["n", "p"]}, "minItems": 2, "maxItems": 2, "default": ["n", "p"], "description": "the kinds of the two bands"}));
-        properties.insert(
-            "random_starts".into(),
-            json!({"type": "integer", "minimum": 0, "maximum": 200, "default": 8}),
-        );
-        properties.insert("seed".into(), json!({"type": "integer", "minimum": 0, "default": 1}));
         AnalysisDeclaration {
             name: String::new(),
             summary: "Classical two-band model fitted jointly to rho_xx(B) and rho_xy(B): two sheet densities and mobilities with uncertainties".into(),
             description: "rho_xx = [(n mu_n + p mu_p) + (n mu_n mu_p^2 + p mu_p mu_n^2) B^2] / (e D), rho_xy = B [(p mu_p^2 - n mu_n^2) + (p - n) mu_n^2 mu_p^2 B^2] / (e D), D = (n mu_n + p mu_p)^2 + (p - n)^2 mu_n^2 mu_p^2 B^2 (for a hole and an electron band; any pair of kinds is allowed), fitted in resistivity space from many starts, weighted by the uncertainties. For two carriers it agrees with spectrum.multi_carrier_fit, which fits the same model in conductivity space.".into(),
-            params: schema(properties),
             inputs: vec![sweep_role(false)],
             outputs: vec![
-                column("field_T", F64, Some("T"), "|B|"),
-                column("rho_xx_ohm_sq", F64, Some("ohm_sq"), "symmetrized data"),
-                column("rho_xy_ohm", F64, Some("ohm"), "antisymmetrized data"),
-                column("rho_xx_fit_ohm_sq", F64, Some("ohm_sq"), "model"),
-                column("rho_xy_fit_ohm", F64, Some("ohm"), "model"),
-                column("residual_xx", F64, None, "whitened residual"),
-                column("residual_xy", F64, None, "whitened residual"),
+                ColumnSpec::new("field_T", F64, Some("T"), "|B|"),
+                ColumnSpec::new("rho_xx_ohm_sq", F64, Some("ohm_sq"), "symmetrized data"),
+                ColumnSpec::new("rho_xy_ohm", F64, Some("ohm"), "antisymmetrized data"),
+                ColumnSpec::new("rho_xx_fit_ohm_sq", F64, Some("ohm_sq"), "model"),
+                ColumnSpec::new("rho_xy_fit_ohm", F64, Some("ohm"), "model"),
+                ColumnSpec::new("residual_xx", F64, None, "whitened residual"),
+                ColumnSpec::new("residual_xy", F64, None, "whitened residual"),
             ],
             summary_keys: vec![
-                column("sample", ColumnType::Str, None, "the sweep's sample"),
-                column("temperature_K", ColumnType::F64, Some("K"), "the sweep's temperature"),
-                column("chi_square", ColumnType::F64, None, "chi^2 of the fit"),
-                column("degrees_of_freedom", ColumnType::I64, None, "points minus fitted parameters"),
-                column("zero_field_rho_ohm_sq", ColumnType::F64, Some("ohm_sq"), "rho_xx(0) of the fitted bands"),
-                column("low_field_hall_coefficient_m2_per_C", ColumnType::F64, Some("m2_per_C"), "R_H(B -> 0) of the fitted bands"),
-                column("high_field_hall_coefficient_m2_per_C", ColumnType::F64, Some("m2_per_C"), "R_H(B -> infinity) of the fitted bands"),
-                column("carriers", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc"),
-                column("reduced_chi_square", F64, None, "chi^2 / nu of the fit"),
-                column("chi_square_p_value", F64, None, "P(chi^2 >= observed) when the sweep's uncertainties weight the fit, else null"),
-                column("birge_ratio", F64, None, "sqrt(chi^2 / nu) when above 1 (the uncertainties were multiplied by it), else 1; null without stated uncertainties"),
+                ColumnSpec::new("sample", ColumnType::Str, None, "the sweep's sample"),
+                ColumnSpec::new("temperature_K", ColumnType::F64, Some("K"), "the sweep's temperature"),
+                ColumnSpec::new("chi_square", ColumnType::F64, None, "chi^2 of the fit"),
+                ColumnSpec::new("degrees_of_freedom", ColumnType::I64, None, "points minus fitted parameters"),
+                ColumnSpec::new("zero_field_rho_ohm_sq", ColumnType::F64, Some("ohm_sq"), "rho_xx(0) of the fitted bands"),
+                ColumnSpec::new("low_field_hall_coefficient_m2_per_C", ColumnType::F64, Some("m2_per_C"), "R_H(B -> 0) of the fitted bands"),
+                ColumnSpec::new("high_field_hall_coefficient_m2_per_C", ColumnType::F64, Some("m2_per_C"), "R_H(B -> infinity) of the fitted bands"),
+                ColumnSpec::new("carriers", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc"),
+                ColumnSpec::new("reduced_chi_square", F64, None, "chi^2 / nu of the fit"),
+                ColumnSpec::new("chi_square_p_value", F64, None, "P(chi^2 >= observed) when the sweep's uncertainties weight the fit, else null"),
+                ColumnSpec::new("birge_ratio", F64, None, "sqrt(chi^2 / nu) when above 1 (the uncertainties were multiplied by it), else 1; null without stated uncertainties"),
                 single_field_sign_key(),
             ],
             figures: crate::figures::two_band_fit(),
@@ -470,20 +527,7 @@ impl Analysis for TwoBandAnalysis {
 
     fn run(params: TwoBandParams, inputs: &Inputs, host: &Host) -> Result<AnalysisOutput, AnalysisError> {
         let sweep = single_sweep(inputs.required("sweep")?, &params.sweep.grouping())?;
-        let mut settings = TwoBandSettings::default();
-        if let Some(kinds) = &params.carriers {
-            let parse = |k: &str| CarrierKind::from_code(k).map_err(invalid);
-            match kinds.as_slice() {
-                [a, b] => settings.kinds = [parse(a)?, parse(b)?],
-                _ => return Err(invalid("carriers must name exactly two bands, e.g. [\"n\", \"p\"]")),
-            }
-        }
-        if let Some(starts) = params.random_starts {
-            settings.random_starts = starts;
-        }
-        if let Some(seed) = params.seed {
-            settings.seed = seed;
-        }
+        let settings = params.settings();
         host.check_cancelled()?;
         let result =
             fit_two_band_sweep(&sweep.points, &params.sweep.settings(), &settings).map_err(|error| match error {
@@ -492,24 +536,18 @@ impl Analysis for TwoBandAnalysis {
             })?;
         let fit = &result.fit;
         let curve = &fit.curve;
-        let table = frame(
-            curve.len(),
-            vec![
-                floats("field_T", curve.iter().map(|p| p.field_t).collect()),
-                floats("rho_xx_ohm_sq", curve.iter().map(|p| p.rho_xx_ohm_sq).collect()),
-                floats("rho_xy_ohm", curve.iter().map(|p| p.rho_xy_ohm).collect()),
-                floats("rho_xx_fit_ohm_sq", curve.iter().map(|p| p.rho_xx_fit_ohm_sq).collect()),
-                floats("rho_xy_fit_ohm", curve.iter().map(|p| p.rho_xy_fit_ohm).collect()),
-                floats("residual_xx", curve.iter().map(|p| p.residual_xx).collect()),
-                optional("residual_xy", curve.iter().map(|p| p.residual_xy).collect()),
-            ],
-        )?;
-        let mut output = AnalysisOutput::new(table);
-        let summary = &mut output.summary;
-        summary.extend(sweep.identity());
-        summary.insert(
-            "carriers".into(),
-            Value::Array(
+        let mut output = OutputBuilder::of::<Self>();
+        output
+            .f64("field_T", curve.iter().map(|p| p.field_t).collect())
+            .f64("rho_xx_ohm_sq", curve.iter().map(|p| p.rho_xx_ohm_sq).collect())
+            .f64("rho_xy_ohm", curve.iter().map(|p| p.rho_xy_ohm).collect())
+            .f64("rho_xx_fit_ohm_sq", curve.iter().map(|p| p.rho_xx_fit_ohm_sq).collect())
+            .f64("rho_xy_fit_ohm", curve.iter().map(|p| p.rho_xy_fit_ohm).collect())
+            .f64("residual_xx", curve.iter().map(|p| p.residual_xx).collect())
+            .f64_nullable("residual_xy", curve.iter().map(|p| p.residual_xy).collect())
+            .summary_map(sweep.identity())
+            .summary(
+                "carriers",
                 fit.carriers
                     .iter()
                     .map(|c| {
@@ -523,33 +561,46 @@ impl Analysis for TwoBandAnalysis {
                             "at_bound": c.at_bound,
                         })
                     })
-                    .collect(),
-            ),
-        );
-        summary.insert("chi_square".into(), json!(fit.chi_square));
-        summary.insert("reduced_chi_square".into(), json!(fit.reduced_chi_square));
-        summary.insert("chi_square_p_value".into(), json!(fit.chi_square_p_value));
-        summary.insert("birge_ratio".into(), json!(fit.birge_ratio));
-        summary.insert("degrees_of_freedom".into(), json!(fit.degrees_of_freedom));
-        summary.insert("zero_field_rho_ohm_sq".into(), json!(fit.zero_field_rho_ohm_sq));
-        summary.insert(
-            "low_field_hall_coefficient_m2_per_C".into(),
-            json!(fit.low_field_hall_coefficient_m2_per_c),
-        );
-        summary.insert(
-            "high_field_hall_coefficient_m2_per_C".into(),
-            json!(fit.high_field_hall_coefficient_m2_per_c),
-        );
-        summary.insert("single_field_sign".into(), json!(result.symmetrized.single_field_sign));
-        output.warnings = sweep.warnings.clone();
-        output.warnings.extend(fit.warnings.iter().cloned());
-        Ok(output)
+                    .collect::<Vec<Value>>(),
+            )
+            .summary("chi_square", fit.chi_square)
+            .summary("reduced_chi_square", fit.reduced_chi_square)
+            .summary("chi_square_p_value", fit.chi_square_p_value)
+            .summary("birge_ratio", fit.birge_ratio)
+            .summary("degrees_of_freedom", fit.degrees_of_freedom)
+            .summary("zero_field_rho_ohm_sq", fit.zero_field_rho_ohm_sq)
+            .summary(
+                "low_field_hall_coefficient_m2_per_C",
+                fit.low_field_hall_coefficient_m2_per_c,
+            )
+            .summary(
+                "high_field_hall_coefficient_m2_per_C",
+                fit.high_field_hall_coefficient_m2_per_c,
+            )
+            .summary("single_field_sign", result.symmetrized.single_field_sign)
+            .warnings(sweep.warnings.iter().cloned())
+            .warnings(fit.warnings.iter().cloned());
+        output.finish(curve.len())
     }
 }
 
 /// The field-sign report of an analysis of several sweeps (Kohler, oscillations): the
 /// `single_field_sign` flag and the temperatures measured at one sign in the summary, and as
 /// the first warnings the one series warning followed by the sweeps' own.
+pub(super) fn series_field_signs(
+    output: &mut OutputBuilder,
+    single_sign_temperatures: &[f64],
+    sweep_warnings: Vec<String>,
+) {
+    output
+        .summary("single_field_sign", !single_sign_temperatures.is_empty())
+        .summary("single_field_sign_temperatures_K", single_sign_temperatures)
+        .warnings(single_field_sign_series_warning(single_sign_temperatures))
+        .warnings(sweep_warnings);
+}
+
+/// [`series_field_signs`] on a finished output, whose warnings it replaces (still used by
+/// quantum.rs).
 pub(super) fn report_series_field_signs(
     output: &mut AnalysisOutput,
     single_sign_temperatures: &[f64],
@@ -566,4 +617,167 @@ pub(super) fn report_series_field_signs(
         .into_iter()
         .chain(sweep_warnings)
         .collect();
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use mobilis_sdk::sdk::{declaration_of, run_typed};
+    use polars::prelude::{Column, DataFrame};
+
+    /// A symmetric sweep of one electron and one hole band at 10 K.
+    fn sweep() -> Inputs {
+        use mobilis_physics::forward::tensor::{resistivity_tensor, symmetric_fields, Carrier};
+        let carriers = [Carrier::electron(2e15, 1.0), Carrier::hole(5e15, 0.2)];
+        let fields = symmetric_fields(6.0, 30).unwrap();
+        let rho: Vec<_> = fields
+            .iter()
+            .map(|&b| resistivity_tensor(&carriers, b).unwrap())
+            .collect();
+        let frame = DataFrame::new(
+            fields.len(),
+            vec![
+                Column::new("temperature_K".into(), vec![10.0; fields.len()]),
+                Column::new("field_T".into(), fields.clone()),
+                Column::new(
+                    "rho_xx_ohm_sq".into(),
+                    rho.iter().map(|r| r.rho_xx_ohm_sq).collect::<Vec<_>>(),
+                ),
+                Column::new(
+                    "rho_xy_ohm".into(),
+                    rho.iter().map(|r| r.rho_xy_ohm).collect::<Vec<_>>(),
+                ),
+            ],
+        )
+        .unwrap();
+        Inputs::from_tables([("sweep".to_owned(), frame)])
+    }
+
+    fn property(schema: &Value, name: &str) -> Value {
+        schema["properties"][name].clone()
+    }
+
+    /// The choices a derived enum schema allows (`enum`, or `oneOf` constants).
+    fn choices(schema: &Value) -> Vec<Value> {
+        if let Some(Value::Array(values)) = schema.get("enum") {
+            return values.clone();
+        }
+        schema["oneOf"]
+            .as_array()
+            .expect("an enum schema")
+            .iter()
+            .map(|choice| choice["const"].clone())
+            .collect()
+    }
+
+    // The derived schemas carry what the host validates before a call: every bound, every
+    // enum choice, every default, and no unknown parameter.
+    #[test]
+    fn derived_schemas_state_bounds_choices_and_defaults() {
+        let ratio = declaration_of::<RatioAnalysis>().params;
+        assert_eq!(ratio["additionalProperties"], json!(false));
+        assert_eq!(
+            choices(&property(&ratio, "zero_field")),
+            [json!("measured"), json!("extrapolated")]
+        );
+        assert_eq!(property(&ratio, "zero_field")["default"], json!("measured"));
+        assert_eq!(property(&ratio, "extrapolation_points")["minimum"], json!(3));
+        assert_eq!(
+            property(&ratio, "extrapolation_points")["default"],
+            json!(DEFAULT_EXTRAPOLATION_POINTS)
+        );
+        assert_eq!(property(&ratio, "zero_field_tolerance_T")["minimum"], json!(0));
+
+        let kohler = declaration_of::<KohlerAnalysis>().params;
+        assert_eq!(property(&kohler, "tolerance")["exclusiveMinimum"], json!(0));
+        assert_eq!(property(&kohler, "tolerance")["default"], json!(0.05));
+        assert_eq!(property(&kohler, "grid_points")["minimum"], json!(3));
+        assert_eq!(property(&kohler, "grid_points")["maximum"], json!(1000));
+        assert_eq!(property(&kohler, "grid_points")["default"], json!(30));
+        assert!(kohler["properties"].get("zero_field").is_some());
+
+        let two_band = declaration_of::<TwoBandAnalysis>().params;
+        let carriers = property(&two_band, "carriers");
+        assert_eq!(
+            (carriers["minItems"].clone(), carriers["maxItems"].clone()),
+            (json!(2), json!(2))
+        );
+        assert_eq!(choices(&carriers["items"]), [json!("n"), json!("p")]);
+        assert_eq!(carriers["default"], json!(["n", "p"]));
+        assert_eq!(property(&two_band, "random_starts")["maximum"], json!(200));
+        assert_eq!(property(&two_band, "random_starts")["default"], json!(8));
+        assert_eq!(property(&two_band, "seed")["default"], json!(1));
+
+        let symmetrize = declaration_of::<SymmetrizeAnalysis>().params;
+        let misalignment = property(&symmetrize, "misalignment_max_field_T");
+        assert_eq!(misalignment["type"], json!("number"));
+        assert_eq!(misalignment["exclusiveMinimum"], json!(0));
+        assert!(misalignment.get("default").is_none(), "{misalignment}");
+    }
+
+    // Omitted parameters are the physics settings' defaults.
+    #[test]
+    fn omitted_parameters_are_the_documented_defaults() {
+        let ratio: RatioParams = serde_json::from_str("{}").unwrap();
+        assert_eq!(ratio.zero.zero_field, ZeroFieldSource::Measured);
+        assert_eq!(ratio.zero.ratio_settings(&ratio.sweep), RatioSettings::default());
+        let extrapolated: RatioParams = serde_json::from_str(r#"{"zero_field": "extrapolated"}"#).unwrap();
+        assert_eq!(
+            extrapolated.zero.ratio_settings(&extrapolated.sweep).zero_field,
+            ZeroFieldResistivity::Extrapolated {
+                points: DEFAULT_EXTRAPOLATION_POINTS,
+                max_field_t: None
+            }
+        );
+        let kohler: KohlerParams = serde_json::from_str("{}").unwrap();
+        let (settings, defaults) = (kohler.settings(), KohlerSettings::default());
+        assert_eq!(
+            (settings.tolerance, settings.grid_points),
+            (defaults.tolerance, defaults.grid_points)
+        );
+        let two_band: TwoBandParams = serde_json::from_str("{}").unwrap();
+        let (settings, defaults) = (two_band.settings(), TwoBandSettings::default());
+        assert_eq!(settings.kinds, defaults.kinds);
+        assert_eq!(
+            (settings.random_starts, settings.seed),
+            (defaults.random_starts, defaults.seed)
+        );
+        let symmetrize: SymmetrizeParams = serde_json::from_str("{}").unwrap();
+        assert_eq!(symmetrize.misalignment_max_field_t, None);
+    }
+
+    // A choice outside an enum is refused naming the choices, even past the host's check.
+    #[test]
+    fn unknown_choices_are_refused_naming_the_valid_ones() {
+        let inputs = sweep();
+        let refused = |result: Result<AnalysisOutput, AnalysisError>| match result {
+            Err(AnalysisError::InvalidInput(message)) => message,
+            other => panic!("refused as invalid input, not {other:?}"),
+        };
+        let message = refused(run_typed::<RatioAnalysis>(
+            r#"{"zero_field": "fitted"}"#,
+            &inputs,
+            &Host::detached(),
+        ));
+        assert!(
+            message.contains("fitted") && message.contains("extrapolated"),
+            "{message}"
+        );
+        let message = refused(run_typed::<TwoBandAnalysis>(
+            r#"{"carriers": ["n", "e"]}"#,
+            &inputs,
+            &Host::detached(),
+        ));
+        assert!(message.contains("`e`") && message.contains("`p`"), "{message}");
+        let message = refused(run_typed::<TwoBandAnalysis>(
+            r#"{"carriers": ["n"]}"#,
+            &inputs,
+            &Host::detached(),
+        ));
+        assert!(message.contains("length"), "{message}");
+        // Given choices reach the physics.
+        let output = run_typed::<TwoBandAnalysis>(r#"{"carriers": ["n", "n"]}"#, &inputs, &Host::detached()).unwrap();
+        assert_eq!(output.summary["carriers"][0]["carrier_type"], json!("n"));
+        assert_eq!(output.summary["carriers"][1]["carrier_type"], json!("n"));
+    }
 }

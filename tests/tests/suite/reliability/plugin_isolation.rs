@@ -8,66 +8,10 @@
 
 use super::counts;
 use mobilis_client::ClientError;
-use mobilis_tests::{plugin_library, workspace_root, TestDaemon};
+use mobilis_tests::c_plugin::build_c_plugin;
+use mobilis_tests::{plugin_library, TestDaemon};
 use serde_json::{json, Value};
-use std::path::{Path, PathBuf};
-use std::process::Command;
-use std::sync::OnceLock;
-
-/// The target triple of this machine, which `cc` needs outside a build script.
-fn host_triple() -> &'static str {
-    static TRIPLE: OnceLock<String> = OnceLock::new();
-    TRIPLE.get_or_init(|| {
-        let rustc = std::env::var("RUSTC").unwrap_or_else(|_| "rustc".into());
-        let output = Command::new(&rustc).arg("-vV").output().expect("rustc -vV runs");
-        String::from_utf8_lossy(&output.stdout)
-            .lines()
-            .find_map(|line| line.strip_prefix("host: "))
-            .expect("rustc -vV names the host")
-            .trim()
-            .to_owned()
-    })
-}
-
-/// Builds `cfixture.c` with `defines` into `dir/libNAME.so`.
-fn build_fixture(dir: &Path, name: &str, defines: &[(&str, Option<&str>)]) -> PathBuf {
-    let source = workspace_root().join("tests/c-plugin/cfixture.c");
-    let mut build = cc::Build::new();
-    build
-        .include(workspace_root().join("core/sdk/include"))
-        .std("c99")
-        .warnings(true)
-        .warnings_into_errors(true)
-        .pic(true)
-        .opt_level(0)
-        .debug(false)
-        .target(host_triple())
-        .host(host_triple())
-        .out_dir(dir)
-        .cargo_metadata(false);
-    for (key, value) in defines {
-        build.define(key, *value);
-    }
-    let compiler = build.get_compiler();
-    let library = dir.join(format!(
-        "{}{name}{}",
-        std::env::consts::DLL_PREFIX,
-        std::env::consts::DLL_SUFFIX
-    ));
-    let output = compiler
-        .to_command()
-        .args(["-shared", "-fPIC", "-o"])
-        .arg(&library)
-        .arg(&source)
-        .output()
-        .expect("the C compiler runs");
-    assert!(
-        output.status.success(),
-        "compiling {name} failed:\n{}",
-        String::from_utf8_lossy(&output.stderr)
-    );
-    library
-}
+use std::path::Path;
 
 /// A daemon running the plugins of `dir` isolated, with a short per-call deadline.
 async fn isolated_daemon(dir: &Path, call_timeout_s: &str) -> TestDaemon {
@@ -86,9 +30,9 @@ fn sum_call(input: &str, output: &str) -> Value {
     json!({"analysis": "cfixture.sum", "inputs": {"values": input}, "output": output, "overwrite": true})
 }
 
-/// One fault, `rounds` times: the faulty call must fail with 5001 and `words`, and the
-/// daemon, the plugin and the stored data must come through. Returns (failed, lost).
-async fn fault_rounds(daemon: &TestDaemon, rounds: usize, words: &[&str]) -> (usize, usize) {
+/// Stores `good` (3 rows, summing to 6.5) and `unlucky` (the 13 rows the faulty plugins
+/// misbehave on).
+async fn import_good_and_unlucky(daemon: &TestDaemon) {
     daemon
         .call(
             "dataset.import",
@@ -99,6 +43,61 @@ async fn fault_rounds(daemon: &TestDaemon, rounds: usize, words: &[&str]) -> (us
     daemon
         .call("dataset.import", json!({"name": "unlucky", "columns": {"x": unlucky}}))
         .await;
+}
+
+/// After a fault: a good call to the same plugin succeeds (in a fresh worker), and `good`
+/// is still whole. Returns (the good call failed, the dataset was lost), the failures told
+/// on stderr with the round and what came `after`.
+async fn serves_on_after(daemon: &TestDaemon, round: usize, after: &str) -> (bool, bool) {
+    let mut failed = false;
+    match daemon.client.call("analysis.run", sum_call("good", "good_sum")).await {
+        Ok(run) if run["summary"]["total"].as_f64() == Some(6.5) => {}
+        other => {
+            eprintln!("round {round}: the good call after {after} answered {other:?}");
+            failed = true;
+        }
+    }
+    let lost = match daemon.client.call("dataset.info", json!({"name": "good"})).await {
+        Ok(info) if info["rows"] == 3 => false,
+        other => {
+            eprintln!("round {round}: the stored dataset is not whole: {other:?}");
+            true
+        }
+    };
+    (failed, lost)
+}
+
+/// Stores two rows and checks that the good `cfixture` sums them: the daemon serves on.
+async fn the_good_plugin_sums(daemon: &TestDaemon) {
+    daemon
+        .call("dataset.import", json!({"name": "good", "columns": {"x": [1.0, 2.0]}}))
+        .await;
+    let run = daemon.call("analysis.run", sum_call("good", "good_sum")).await;
+    assert_eq!(run["summary"]["total"].as_f64(), Some(3.0));
+}
+
+/// One way for an isolated plugin to fail a call.
+struct Fault {
+    /// What the counts report calls it.
+    label: &'static str,
+    /// The value of `FIXTURE_FAULT` that builds it.
+    fault: &'static str,
+    /// The daemon's `--plugin-call-timeout`, in seconds.
+    call_timeout_s: &'static str,
+    /// Rounds in a normal run and in a slow one.
+    rounds: (usize, usize),
+    /// The words the 5001 error must carry.
+    words: &'static [&'static str],
+}
+
+/// One fault, round after round: the faulty call must fail with 5001 and the fault's words,
+/// and the daemon, the plugin and the stored data must come through.
+async fn the_daemon_serves_on_after(fault: Fault) {
+    let dir = tempfile::tempdir().unwrap();
+    build_c_plugin(dir.path(), "cfixture", &[("FIXTURE_FAULT", Some(fault.fault))]);
+    let daemon = isolated_daemon(dir.path(), fault.call_timeout_s).await;
+    import_good_and_unlucky(&daemon).await;
+    let rounds = counts::rounds(fault.rounds.0, fault.rounds.1);
     let (mut failed, mut lost) = (0, 0);
     for round in 0..rounds {
         let mut round_failed = false;
@@ -106,8 +105,8 @@ async fn fault_rounds(daemon: &TestDaemon, rounds: usize, words: &[&str]) -> (us
             Err(ClientError::Rpc {
                 code: 5001, message, ..
             }) => {
-                if !words.iter().all(|w| message.contains(w)) {
-                    eprintln!("round {round}: the message lacks {words:?}: {message}");
+                if !fault.words.iter().all(|w| message.contains(w)) {
+                    eprintln!("round {round}: the message lacks {:?}: {message}", fault.words);
                     round_failed = true;
                 }
             }
@@ -120,64 +119,56 @@ async fn fault_rounds(daemon: &TestDaemon, rounds: usize, words: &[&str]) -> (us
             eprintln!("round {round}: server.info failed after the fault");
             round_failed = true;
         }
-        match daemon.client.call("analysis.run", sum_call("good", "good_sum")).await {
-            Ok(run) if run["summary"]["total"].as_f64() == Some(6.5) => {}
-            other => {
-                eprintln!("round {round}: the good call after the fault answered {other:?}");
-                round_failed = true;
-            }
-        }
-        match daemon.client.call("dataset.info", json!({"name": "good"})).await {
-            Ok(info) if info["rows"] == 3 => {}
-            other => {
-                eprintln!("round {round}: the stored dataset is not whole: {other:?}");
-                lost += 1;
-            }
-        }
-        failed += usize::from(round_failed);
+        let (good_failed, round_lost) = serves_on_after(&daemon, round, "the fault").await;
+        failed += usize::from(round_failed || good_failed);
+        lost += usize::from(round_lost);
     }
-    (failed, lost)
+    counts::report(fault.label, rounds, failed, lost);
+    assert_eq!((failed, lost), (0, 0));
 }
 
 #[tokio::test(flavor = "multi_thread")]
 async fn a_segfaulting_plugin_fails_its_call_and_the_daemon_serves_on() {
-    let dir = tempfile::tempdir().unwrap();
-    build_fixture(dir.path(), "cfixture", &[("FIXTURE_FAULT", Some("1"))]);
-    let daemon = isolated_daemon(dir.path(), "60").await;
-    let rounds = counts::rounds(3, 50);
-    let (failed, lost) = fault_rounds(&daemon, rounds, &["SIGSEGV", "serves on"]).await;
-    counts::report("plugin segfault (NULL dereference), isolated", rounds, failed, lost);
-    assert_eq!((failed, lost), (0, 0));
+    the_daemon_serves_on_after(Fault {
+        label: "plugin segfault (NULL dereference), isolated",
+        fault: "1",
+        call_timeout_s: "60",
+        rounds: (3, 50),
+        words: &["SIGSEGV", "serves on"],
+    })
+    .await
 }
 
 #[tokio::test(flavor = "multi_thread")]
 async fn a_plugin_calling_exit_fails_its_call_and_the_daemon_serves_on() {
-    let dir = tempfile::tempdir().unwrap();
-    build_fixture(dir.path(), "cfixture", &[("FIXTURE_FAULT", Some("2"))]);
-    let daemon = isolated_daemon(dir.path(), "60").await;
-    let rounds = counts::rounds(3, 50);
-    let (failed, lost) = fault_rounds(&daemon, rounds, &["exited with code 3"]).await;
-    counts::report("plugin calls exit(3), isolated", rounds, failed, lost);
-    assert_eq!((failed, lost), (0, 0));
+    the_daemon_serves_on_after(Fault {
+        label: "plugin calls exit(3), isolated",
+        fault: "2",
+        call_timeout_s: "60",
+        rounds: (3, 50),
+        words: &["exited with code 3"],
+    })
+    .await
 }
 
 #[tokio::test(flavor = "multi_thread")]
 async fn a_hanging_plugin_is_stopped_at_its_deadline_and_the_daemon_serves_on() {
-    let dir = tempfile::tempdir().unwrap();
-    build_fixture(dir.path(), "cfixture", &[("FIXTURE_FAULT", Some("3"))]);
     // Each round waits out the deadline and the grace before the kill: about 3 s.
-    let daemon = isolated_daemon(dir.path(), "1").await;
-    let rounds = counts::rounds(2, 10);
-    let (failed, lost) = fault_rounds(&daemon, rounds, &["did not finish within 1 s", "--plugin-call-timeout"]).await;
-    counts::report("plugin hangs past its deadline, isolated", rounds, failed, lost);
-    assert_eq!((failed, lost), (0, 0));
+    the_daemon_serves_on_after(Fault {
+        label: "plugin hangs past its deadline, isolated",
+        fault: "3",
+        call_timeout_s: "1",
+        rounds: (2, 10),
+        words: &["did not finish within 1 s", "--plugin-call-timeout"],
+    })
+    .await
 }
 
 #[tokio::test(flavor = "multi_thread")]
 async fn a_plugin_aborting_in_its_constructor_is_refused_in_both_modes() {
     let dir = tempfile::tempdir().unwrap();
-    build_fixture(dir.path(), "cfixture", &[]);
-    build_fixture(
+    build_c_plugin(dir.path(), "cfixture", &[]);
+    build_c_plugin(
         dir.path(),
         "cfixture_abort",
         &[
@@ -213,11 +204,7 @@ async fn a_plugin_aborting_in_its_constructor_is_refused_in_both_modes() {
             eprintln!("trusted={trusted}: reason {reason:?}, plugins {plugins:?}");
             failed += 1;
         }
-        daemon
-            .call("dataset.import", json!({"name": "good", "columns": {"x": [1.0, 2.0]}}))
-            .await;
-        let run = daemon.call("analysis.run", sum_call("good", "good_sum")).await;
-        assert_eq!(run["summary"]["total"].as_f64(), Some(3.0));
+        the_good_plugin_sums(&daemon).await;
     }
     counts::report("plugin aborts in its constructor", tried, failed, 0);
     assert_eq!(failed, 0);
@@ -228,7 +215,7 @@ async fn truncated_libraries_are_refused_and_the_daemon_serves_on() {
     let whole = std::fs::read(plugin_library("mobilis_hall")).expect("the hall plugin is built");
     let dir = tempfile::tempdir().unwrap();
     let trusted = tempfile::tempdir().unwrap();
-    build_fixture(dir.path(), "cfixture", &[]);
+    build_c_plugin(dir.path(), "cfixture", &[]);
     // Cut points: before the magic number is whole (the loader's own refusal), inside the
     // ELF header, at the page the report names, and further in.
     let mut cuts = vec![1, 20, 63, 4096, whole.len() / 3, whole.len() / 2, whole.len() - 1];
@@ -268,11 +255,7 @@ async fn truncated_libraries_are_refused_and_the_daemon_serves_on() {
             failed += 2 - explained.min(2);
         }
     }
-    daemon
-        .call("dataset.import", json!({"name": "good", "columns": {"x": [1.0, 2.0]}}))
-        .await;
-    let run = daemon.call("analysis.run", sum_call("good", "good_sum")).await;
-    assert_eq!(run["summary"]["total"].as_f64(), Some(3.0));
+    the_good_plugin_sums(&daemon).await;
     counts::report("truncated plugin libraries", tried, failed, 0);
     assert_eq!(failed, 0, "{refused:?}");
 }
@@ -280,18 +263,9 @@ async fn truncated_libraries_are_refused_and_the_daemon_serves_on() {
 #[tokio::test(flavor = "multi_thread")]
 async fn a_hanging_plugin_that_ignores_cancel_is_killed_after_the_grace() {
     let dir = tempfile::tempdir().unwrap();
-    build_fixture(dir.path(), "cfixture", &[("FIXTURE_FAULT", Some("3"))]);
+    build_c_plugin(dir.path(), "cfixture", &[("FIXTURE_FAULT", Some("3"))]);
     let daemon = isolated_daemon(dir.path(), "600").await;
-    daemon
-        .call(
-            "dataset.import",
-            json!({"name": "good", "columns": {"x": [1.0, 2.0, 3.5]}}),
-        )
-        .await;
-    let unlucky: Vec<f64> = (0..13).map(f64::from).collect();
-    daemon
-        .call("dataset.import", json!({"name": "unlucky", "columns": {"x": unlucky}}))
-        .await;
+    import_good_and_unlucky(&daemon).await;
     let rounds = counts::rounds(1, 5);
     let (mut failed, mut lost) = (0, 0);
     for round in 0..rounds {
@@ -322,17 +296,9 @@ async fn a_hanging_plugin_that_ignores_cancel_is_killed_after_the_grace() {
                 failed += 1;
             }
         }
-        match daemon.client.call("analysis.run", sum_call("good", "good_sum")).await {
-            Ok(run) if run["summary"]["total"].as_f64() == Some(6.5) => {}
-            other => {
-                eprintln!("round {round}: the good call after the kill answered {other:?}");
-                failed += 1;
-            }
-        }
-        match daemon.client.call("dataset.info", json!({"name": "good"})).await {
-            Ok(info) if info["rows"] == 3 => {}
-            _ => lost += 1,
-        }
+        let (good_failed, round_lost) = serves_on_after(&daemon, round, "the kill").await;
+        failed += usize::from(good_failed);
+        lost += usize::from(round_lost);
     }
     counts::report("hanging plugin cancelled by its client, isolated", rounds, failed, lost);
     assert_eq!((failed, lost), (0, 0));

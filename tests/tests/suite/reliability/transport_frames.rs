@@ -5,14 +5,14 @@
 //! client libraries cannot send what a hostile or unlucky client sends.
 
 use super::counts;
-use mobilis_tests::{ensure_built, TestDaemon};
+use mobilis_tests::{ensure_built, read_stdio_frames, TestDaemon};
 use serde_json::value::RawValue;
 use serde_json::{json, Value};
 use std::collections::HashMap;
 use std::io::{BufRead, BufReader, Read, Write};
 use std::net::TcpStream;
 use std::process::{Child, ChildStdin, Command, Stdio};
-use std::sync::mpsc::{channel, Receiver};
+use std::sync::mpsc::Receiver;
 use std::time::Duration;
 
 /// The longest one answer may take.
@@ -188,34 +188,7 @@ impl StdioDaemon {
             .stderr(Stdio::null())
             .spawn()
             .expect("mobilisd --stdio starts");
-        let stdout = child.stdout.take().unwrap();
-        let (sender, answers) = channel();
-        std::thread::spawn(move || {
-            let mut reader = BufReader::new(stdout);
-            loop {
-                let mut length = None;
-                loop {
-                    let mut line = String::new();
-                    if reader.read_line(&mut line).unwrap_or(0) == 0 {
-                        return;
-                    }
-                    let line = line.trim_end();
-                    if line.is_empty() {
-                        break;
-                    }
-                    if let Some(value) = line.strip_prefix("Content-Length:") {
-                        length = value.trim().parse::<usize>().ok();
-                    }
-                }
-                let mut body = vec![0; length.expect("the daemon writes a Content-Length")];
-                if reader.read_exact(&mut body).is_err() {
-                    return;
-                }
-                if sender.send(String::from_utf8_lossy(&body).into_owned()).is_err() {
-                    return;
-                }
-            }
-        });
+        let answers = read_stdio_frames(child.stdout.take().unwrap());
         StdioDaemon {
             stdin: child.stdin.take(),
             child,

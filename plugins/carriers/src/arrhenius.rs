@@ -78,8 +78,10 @@ use crate::freeze_out::{
     SeriesOptions, UncertaintySource, EFFECTIVE_VARIANCE_PASSES, EFFECTIVE_VARIANCE_TOLERANCE,
 };
 
-/// Which limit of the freeze-out equation the range is taken to be in.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+/// Which limit of the freeze-out equation the range is taken to be in; a parameter names it
+/// in snake case.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize, schemars::JsonSchema)]
+#[serde(rename_all = "snake_case")]
 pub enum ArrheniusRegime {
     /// n << N_A: fit ln(n T^-3/2); E = -slope.
     Compensated,

@@ -5,10 +5,13 @@ use std::fmt;
 
 use mobilis_physics::forward::statistics::{ACCEPTOR_DEGENERACY_DEFAULT, DONOR_DEGENERACY_DEFAULT};
 
-/// Which carriers dominate: electrons (n) or holes (p).
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+/// Which carriers dominate: electrons (n) or holes (p). A parameter names it "n" or "p".
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, serde::Serialize, serde::Deserialize, schemars::JsonSchema)]
+#[serde(rename_all = "lowercase")]
 pub enum CarrierType {
+    /// electrons
     N,
+    /// holes
     P,
 }
 

@@ -85,6 +85,67 @@ pub struct Material {
 /// The preset names [`Material::preset`] accepts (case-insensitively).
 pub const PRESET_NAMES: [&str; 6] = ["Si", "Ge", "GaAs", "InP", "GaN", "4H-SiC"];
 
+/// The material presets, as parameters name them: one variant per [`PRESET_NAMES`] entry,
+/// with the same wire name.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, serde::Serialize, serde::Deserialize, schemars::JsonSchema)]
+pub enum MaterialPreset {
+    /// silicon
+    #[default]
+    #[serde(rename = "Si")]
+    Silicon,
+    /// germanium
+    #[serde(rename = "Ge")]
+    Germanium,
+    /// gallium arsenide
+    #[serde(rename = "GaAs")]
+    GalliumArsenide,
+    /// indium phosphide
+    #[serde(rename = "InP")]
+    IndiumPhosphide,
+    /// wurtzite gallium nitride
+    #[serde(rename = "GaN")]
+    GalliumNitride,
+    /// 4H silicon carbide
+    #[serde(rename = "4H-SiC")]
+    SiliconCarbide4H,
+}
+
+impl MaterialPreset {
+    /// Every preset, in the order of [`PRESET_NAMES`].
+    pub const ALL: [MaterialPreset; 6] = [
+        MaterialPreset::Silicon,
+        MaterialPreset::Germanium,
+        MaterialPreset::GalliumArsenide,
+        MaterialPreset::IndiumPhosphide,
+        MaterialPreset::GalliumNitride,
+        MaterialPreset::SiliconCarbide4H,
+    ];
+
+    /// The wire name ("Si", "4H-SiC", ...).
+    pub fn name(self) -> &'static str {
+        match self {
+            MaterialPreset::Silicon => "Si",
+            MaterialPreset::Germanium => "Ge",
+            MaterialPreset::GalliumArsenide => "GaAs",
+            MaterialPreset::IndiumPhosphide => "InP",
+            MaterialPreset::GalliumNitride => "GaN",
+            MaterialPreset::SiliconCarbide4H => "4H-SiC",
+        }
+    }
+
+    /// The preset's constants.
+    pub fn material(self) -> Material {
+        match self {
+            MaterialPreset::Silicon => Material::silicon(),
+            MaterialPreset::Germanium => Material::germanium(),
+            MaterialPreset::GalliumArsenide => Material::gallium_arsenide(),
+            MaterialPreset::IndiumPhosphide => Material::indium_phosphide(),
+            MaterialPreset::GalliumNitride => Material::gallium_nitride(),
+            MaterialPreset::SiliconCarbide4H => Material::silicon_carbide_4h(),
+        }
+    }
+}
+
 impl Material {
     /// Silicon.
     pub fn silicon() -> Self {
@@ -613,7 +674,11 @@ mod tests {
 
     #[test]
     fn every_preset_is_physical_and_reachable_by_name() {
-        for name in PRESET_NAMES {
+        for (name, preset) in PRESET_NAMES.into_iter().zip(MaterialPreset::ALL) {
+            // The parameter's choices are the preset names, each the same material.
+            assert_eq!(preset.name(), name);
+            assert_eq!(serde_json::to_value(preset).unwrap(), name);
+            assert_eq!(preset.material().name, Material::preset(name).unwrap().name);
             let material = Material::preset(name).unwrap();
             material.validate().unwrap();
             // Density-of-states masses between 0.01 and 5 m0, a sanity range for these

@@ -223,8 +223,9 @@ pub struct MobilityPoint {
     pub carrier_density_m3: Option<f64>,
 }
 
-/// Which ionized-impurity formula.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+/// Which ionized-impurity formula; a parameter names it in snake case.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize, schemars::JsonSchema)]
+#[serde(rename_all = "snake_case")]
 pub enum IonizedImpurityFormula {
     /// Screened Coulomb potential (Brooks-Herring).
     #[default]
@@ -243,8 +244,10 @@ impl IonizedImpurityFormula {
     }
 }
 
-/// What density of charged centres the ionized-impurity term sees.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+/// What density of charged centres the ionized-impurity term sees; a parameter names
+/// it in snake case.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize, schemars::JsonSchema)]
+#[serde(rename_all = "snake_case")]
 pub enum IonizedDensityModel {
     /// One constant N_I, fitted.
     #[default]

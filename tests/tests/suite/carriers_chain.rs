@@ -188,6 +188,85 @@ async fn bad_temperature_series_get_clear_errors_and_the_daemon_serves_on() {
         .await;
     assert_eq!(code, 4001, "{message}");
     assert!(message.contains("material"));
+    // The derived parameter schemas are checked before a call: a choice, a bound, a nested
+    // override and an unknown name are refused naming the parameter and what it takes.
+    for (analysis, role, params, expected) in [
+        (
+            "carriers.freeze_out_fit",
+            "hall",
+            json!({"carrier_type": "x"}),
+            r#"params.carrier_type must be one of "n", "p", null"#,
+        ),
+        (
+            "carriers.freeze_out_fit",
+            "hall",
+            json!({"compensation_bounds": [0.1, 1.0]}),
+            "params.compensation_bounds[1] must be less than 1",
+        ),
+        (
+            "carriers.arrhenius",
+            "hall",
+            json!({"regime": "frozen"}),
+            r#"params.regime must be one of "compensated", "uncompensated""#,
+        ),
+        (
+            "carriers.arrhenius",
+            "hall",
+            json!({"min_points": 2}),
+            "params.min_points must be at least 3",
+        ),
+        (
+            "carriers.arrhenius",
+            "hall",
+            json!({"hall_factor_table": [[30.0, 1.9, 2.0]]}),
+            "params.hall_factor_table[0] must have at most 2 items",
+        ),
+        (
+            "carriers.mobility_scattering",
+            "hall",
+            json!({"neutral": "some"}),
+            r#"params.neutral must be one of "none", "fitted", "from_carriers""#,
+        ),
+        (
+            "carriers.mobility_scattering",
+            "hall",
+            json!({"relative_uncertainty_floor": 1}),
+            "params.relative_uncertainty_floor must be less than 1",
+        ),
+        (
+            "carriers.mobility_scattering",
+            "hall",
+            json!({"material_overrides": {"band_gap_0K_eV": 0}}),
+            "params.material_overrides.band_gap_0K_eV must be greater than 0",
+        ),
+        (
+            "carriers.mobility_scattering",
+            "hall",
+            json!({"material_overrides": {"gap": 1.1}}),
+            "params.material_overrides.gap is not a known parameter",
+        ),
+        (
+            "carriers.purity",
+            "freeze_out",
+            json!({"consistency_sigma_multiple": 0}),
+            "params.consistency_sigma_multiple must be greater than 0",
+        ),
+        (
+            "carriers.purity",
+            "freeze_out",
+            json!({"material": "Si"}),
+            "params.material is not a known parameter",
+        ),
+    ] {
+        let (code, message) = daemon
+            .call_error(
+                "analysis.run",
+                json!({"analysis": analysis, "inputs": {role: "too-few"}, "output": "out", "params": params}),
+            )
+            .await;
+        assert_eq!(code, 4001, "{analysis}: {message}");
+        assert!(message.contains(expected), "{analysis}: `{message}` lacks `{expected}`");
+    }
 }
 
 /// Realizations of the drifting-lab series below: enough for a 1-sigma fraction good to about

@@ -10,44 +10,58 @@
 //! `effective_variance_passes` and `weighted`. The slope is E only where n << N_A; expect a few
 //! percent low otherwise (`carriers.freeze_out_fit` is exact).
 
-use super::freeze_out_fit::{
-    budget_columns, budget_schema_properties, budget_summary_keys, hall_factor_setting, hall_role,
-    temperature_source_name,
-};
+use super::freeze_out_fit::{budget_columns, budget_summary_keys, hall_role, temperature_source_name};
 use super::*;
 use crate::arrhenius::{fit_arrhenius, ArrheniusRange, ArrheniusRegime, ArrheniusSettings, AutomaticRange};
-use mobilis_sdk::abi::AnalysisDeclaration;
+use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType};
 use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 
 pub struct ArrheniusAnalysis;
 
-#[derive(Debug, Deserialize, schemars::JsonSchema)]
-#[serde(deny_unknown_fields)]
+/// Parameters of `carriers.arrhenius`.
+#[derive(Debug, Deserialize, JsonSchema)]
 pub struct ArrheniusParams {
+    /// compensated: slope of ln(n T^-3/2) against 1/kT is -E; uncompensated (N_A << n <<
+    /// N_D): slope of ln(n T^-3/4) is -E/2 and 2 x slope is reported
+    #[serde(default = "ArrheniusParams::regime")]
+    pub regime: ArrheniusRegime,
+    /// force n or p; default: from the data's carrier_type column
     #[serde(default)]
-    regime: Option<String>,
-    #[serde(default)]
-    carrier_type: Option<String>,
-    #[serde(default)]
-    hall_factor: Option<f64>,
-    #[serde(default)]
-    hall_factor_scattering_exponent: Option<f64>,
-    #[serde(rename = "temperature_min_K", default)]
-    temperature_min_k: Option<f64>,
-    #[serde(rename = "temperature_max_K", default)]
-    temperature_max_k: Option<f64>,
-    #[serde(default)]
-    plateau_fraction: Option<f64>,
-    #[serde(default)]
-    slope_spread: Option<f64>,
-    #[serde(default)]
-    min_points: Option<usize>,
-    #[serde(default)]
-    hall_factor_table: Option<Vec<[f64; 2]>>,
-    #[serde(default)]
-    relative_uncertainty_floor: Option<f64>,
-    #[serde(rename = "temperature_uncertainty_K", default)]
-    temperature_uncertainty_k: Option<f64>,
+    pub carrier_type: Option<CarrierType>,
+    // The range of the line; without either bound it is chosen from the data.
+    #[serde(flatten)]
+    pub temperature_range: TemperatureRangeParams,
+    /// automatic range: points below this fraction of the largest density
+    #[serde(default = "ArrheniusParams::plateau_fraction")]
+    #[schemars(extend("exclusiveMinimum" = 0, "exclusiveMaximum" = 1))]
+    pub plateau_fraction: f64,
+    /// automatic range: largest relative spread of the local slopes
+    #[serde(default = "ArrheniusParams::slope_spread")]
+    #[schemars(extend("exclusiveMinimum" = 0))]
+    pub slope_spread: f64,
+    /// automatic range: fewest temperatures
+    #[serde(default = "ArrheniusParams::min_points")]
+    #[schemars(range(min = 3))]
+    pub min_points: usize,
+    #[serde(flatten)]
+    pub budget: BudgetParams,
+}
+
+/// The defaults are those of [`ArrheniusSettings`] and [`AutomaticRange`], so they are
+/// stated once.
+impl ArrheniusParams {
+    fn regime() -> ArrheniusRegime {
+        ArrheniusSettings::default().regime
+    }
+    fn plateau_fraction() -> f64 {
+        AutomaticRange::default().plateau_fraction
+    }
+    fn slope_spread() -> f64 {
+        AutomaticRange::default().slope_spread
+    }
+    fn min_points() -> usize {
+        AutomaticRange::default().min_points
+    }
 }
 
 impl Analysis for ArrheniusAnalysis {
@@ -56,56 +70,38 @@ impl Analysis for ArrheniusAnalysis {
 
     fn declaration() -> AnalysisDeclaration {
         use ColumnType::*;
-        let defaults = AutomaticRange::default();
-        let shared = material_schema_properties();
-        let mut properties = serde_json::Map::new();
-        for key in [
-            "carrier_type",
-            "hall_factor",
-            "hall_factor_scattering_exponent",
-            "temperature_min_K",
-            "temperature_max_K",
-        ] {
-            properties.insert(key.into(), shared[key].clone());
-        }
-        properties.insert("regime".into(), json!({"type": "string", "enum": ["compensated", "uncompensated"], "default": "compensated", "description": "compensated: slope of ln(n T^-3/2) against 1/kT is -E; uncompensated (N_A << n << N_D): slope of ln(n T^-3/4) is -E/2 and 2 x slope is reported"}));
-        properties.insert("plateau_fraction".into(), json!({"type": "number", "exclusiveMinimum": 0, "exclusiveMaximum": 1, "default": defaults.plateau_fraction, "description": "automatic range: points below this fraction of the largest density"}));
-        properties.insert("slope_spread".into(), json!({"type": "number", "exclusiveMinimum": 0, "default": defaults.slope_spread, "description": "automatic range: largest relative spread of the local slopes"}));
-        properties.insert("min_points".into(), json!({"type": "integer", "minimum": 3, "default": defaults.min_points, "description": "automatic range: fewest temperatures"}));
-        budget_schema_properties(&mut properties);
         AnalysisDeclaration {
             name: String::new(),
             summary: "Activation energy from the slope of the Arrhenius plot of carrier density, over a given or an automatically chosen freeze-out range".into(),
             description: "Weighted straight line of ln(n T^-3/2) (or ln(n T^-3/4)) against 1/kT, weighted by the statistical density uncertainties (floored) and the temperature uncertainties through the line's slope (effective variance, iterated); the slope's error is scaled by the Birge ratio when chi-square says the errors fall short. Without temperature_min_K and temperature_max_K the range is the longest low-temperature window of steady negative local slope below the plateau; the range used is reported.".into(),
-            params: json!({"type": "object", "additionalProperties": false, "properties": properties}),
             inputs: vec![hall_role(budget_columns())],
             outputs: vec![
-                column("temperature_K", F64, Some("K"), "temperature"),
-                column("inverse_thermal_energy_per_eV", F64, None, "1/kT, eV^-1 (the Arrhenius abscissa)"),
-                column("ln_reduced_density_m3", F64, None, "ln(n / m^-3) - exponent ln(T / K) (SI; shown as ln_reduced_density_cm3, ln(n / cm^-3) - exponent ln(T / K), which is ln(1e6) less)"),
-                column("ln_reduced_density_m3_unc", F64, None, "the standard uncertainty of the ordinate that weighted the point: u_stat(n)/n (floored) with the temperature's through the line's slope"),
-                column("temperature_K_unc", F64, Some("K"), "the temperature's standard uncertainty as used"),
-                column("hall_factor", F64, None, "the Hall factor in effect"),
-                column("ln_reduced_density_fit_m3", F64, None, "the fitted line at this abscissa, as ln_reduced_density_m3"),
-                column("used", Bool, None, "inside the range of the line"),
-                column("temperature_exponent", F64, None, "r of ln(n T^-r): 1.5 (compensated) or 0.75 (uncompensated), so that a plot can name its ordinate"),
+                ColumnSpec::new("temperature_K", F64, Some("K"), "temperature"),
+                ColumnSpec::new("inverse_thermal_energy_per_eV", F64, None, "1/kT, eV^-1 (the Arrhenius abscissa)"),
+                ColumnSpec::new("ln_reduced_density_m3", F64, None, "ln(n / m^-3) - exponent ln(T / K) (SI; shown as ln_reduced_density_cm3, ln(n / cm^-3) - exponent ln(T / K), which is ln(1e6) less)"),
+                ColumnSpec::new("ln_reduced_density_m3_unc", F64, None, "the standard uncertainty of the ordinate that weighted the point: u_stat(n)/n (floored) with the temperature's through the line's slope"),
+                ColumnSpec::new("temperature_K_unc", F64, Some("K"), "the temperature's standard uncertainty as used"),
+                ColumnSpec::new("hall_factor", F64, None, "the Hall factor in effect"),
+                ColumnSpec::new("ln_reduced_density_fit_m3", F64, None, "the fitted line at this abscissa, as ln_reduced_density_m3"),
+                ColumnSpec::new("used", Bool, None, "inside the range of the line"),
+                ColumnSpec::new("temperature_exponent", F64, None, "r of ln(n T^-r): 1.5 (compensated) or 0.75 (uncompensated), so that a plot can name its ordinate"),
             ],
             summary_keys: {
                 let mut keys = vec![
-                    column("regime", ColumnType::Str, None, "the conduction regime the slope was read in"),
-                    column("carrier_type", ColumnType::Str, None, "n or p"),
-                    column("r_squared", ColumnType::F64, None, "coefficient of determination of the line"),
-                    column("hall_factor", ColumnType::F64, None, "Hall scattering factor used"),
-                    column("chi_square", ColumnType::F64, None, "chi-square of the line fit"),
-                    column("degrees_of_freedom", ColumnType::I64, None, "points minus fitted parameters"),
-                    column("effective_variance_passes", ColumnType::I64, None, "passes of the effective-variance weighting (temperature uncertainties)"),
-                    column("weighted", ColumnType::Bool, None, "the fit used the stated uncertainties"),
-                    column("relative_uncertainty_floor", ColumnType::F64, None, "the floor applied to relative uncertainties"),
-                    column("activation_energy_eV", F64, Some("eV"), "with activation_energy_eV_unc and _unc_stat (the same: a density scale does not move the slope)"),
-                    column("temperature_min_K", F64, Some("K"), "lowest temperature of the line"),
-                    column("temperature_max_K", F64, Some("K"), "highest temperature of the line"),
-                    column("points_used", I64, None, "points on the line"),
-                    column("automatic_range", Bool, None, "the range was chosen from the data"),
+                    ColumnSpec::new("regime", ColumnType::Str, None, "the conduction regime the slope was read in"),
+                    ColumnSpec::new("carrier_type", ColumnType::Str, None, "n or p"),
+                    ColumnSpec::new("r_squared", ColumnType::F64, None, "coefficient of determination of the line"),
+                    ColumnSpec::new("hall_factor", ColumnType::F64, None, "Hall scattering factor used"),
+                    ColumnSpec::new("chi_square", ColumnType::F64, None, "chi-square of the line fit"),
+                    ColumnSpec::new("degrees_of_freedom", ColumnType::I64, None, "points minus fitted parameters"),
+                    ColumnSpec::new("effective_variance_passes", ColumnType::I64, None, "passes of the effective-variance weighting (temperature uncertainties)"),
+                    ColumnSpec::new("weighted", ColumnType::Bool, None, "the fit used the stated uncertainties"),
+                    ColumnSpec::new("relative_uncertainty_floor", ColumnType::F64, None, "the floor applied to relative uncertainties"),
+                    ColumnSpec::new("activation_energy_eV", F64, Some("eV"), "with activation_energy_eV_unc and _unc_stat (the same: a density scale does not move the slope)"),
+                    ColumnSpec::new("temperature_min_K", F64, Some("K"), "lowest temperature of the line"),
+                    ColumnSpec::new("temperature_max_K", F64, Some("K"), "highest temperature of the line"),
+                    ColumnSpec::new("points_used", I64, None, "points on the line"),
+                    ColumnSpec::new("automatic_range", Bool, None, "the range was chosen from the data"),
                 ];
                 keys.extend(budget_summary_keys());
                 keys
@@ -119,126 +115,87 @@ impl Analysis for ArrheniusAnalysis {
         let hall = inputs.required("hall")?;
         let mut warnings = Vec::new();
         let points = density_points(hall, &mut warnings)?;
-        let regime = match params.regime.as_deref() {
-            None | Some("compensated") => ArrheniusRegime::Compensated,
-            Some("uncompensated") => ArrheniusRegime::Uncompensated,
-            Some(other) => {
-                return Err(invalid(format!(
-                    "regime `{other}` is unknown; use compensated or uncompensated"
-                )))
-            }
-        };
-        let range = match (params.temperature_min_k, params.temperature_max_k) {
-            (None, None) => {
-                let defaults = AutomaticRange::default();
-                ArrheniusRange::Automatic(AutomaticRange {
-                    plateau_fraction: params.plateau_fraction.unwrap_or(defaults.plateau_fraction),
-                    slope_spread: params.slope_spread.unwrap_or(defaults.slope_spread),
-                    min_points: params.min_points.unwrap_or(defaults.min_points),
-                })
-            }
-            (min, max) => {
-                let (min_k, max_k) = temperature_range(min, max)?.expect("one bound given");
-                ArrheniusRange::Temperatures { min_k, max_k }
-            }
+        let range = match params.temperature_range.range()? {
+            None => ArrheniusRange::Automatic(AutomaticRange {
+                plateau_fraction: params.plateau_fraction,
+                slope_spread: params.slope_spread,
+                min_points: params.min_points,
+            }),
+            Some((min_k, max_k)) => ArrheniusRange::Temperatures { min_k, max_k },
         };
         let settings = ArrheniusSettings {
-            regime,
+            regime: params.regime,
             range,
-            carrier_type: parse_carrier_type(params.carrier_type.as_deref())?,
-            hall_factor: hall_factor_setting(
-                params.hall_factor,
-                params.hall_factor_scattering_exponent,
-                params.hall_factor_table.as_deref(),
-            )?,
-            relative_uncertainty_floor: params
-                .relative_uncertainty_floor
-                .unwrap_or(ArrheniusSettings::default().relative_uncertainty_floor),
-            temperature_unc_k: params.temperature_uncertainty_k,
+            carrier_type: params.carrier_type,
+            hall_factor: params.budget.hall_factor.setting()?,
+            relative_uncertainty_floor: params.budget.relative_uncertainty_floor,
+            temperature_unc_k: params.budget.temperature_uncertainty_k,
         };
         host.check_cancelled()?;
         let fit = fit_arrhenius(&points, &settings).map_err(|e| invalid(e.to_string()))?;
         let rows = fit.points.len();
-        let table = frame(
-            rows,
-            vec![
-                float_series(
-                    "temperature_K",
-                    fit.points.iter().map(|p| Some(p.temperature_k)).collect(),
-                ),
-                float_series(
-                    "inverse_thermal_energy_per_eV",
-                    fit.points
-                        .iter()
-                        .map(|p| Some(p.inverse_thermal_energy_per_ev))
-                        .collect(),
-                ),
-                float_series(
-                    "ln_reduced_density_m3",
-                    fit.points.iter().map(|p| Some(p.reduced_ln_density)).collect(),
-                ),
-                float_series(
-                    "ln_reduced_density_m3_unc",
-                    fit.points.iter().map(|p| p.reduced_ln_density_unc).collect(),
-                ),
-                float_series(
-                    "temperature_K_unc",
-                    fit.points.iter().map(|p| Some(p.temperature_unc_k)).collect(),
-                ),
-                float_series("hall_factor", fit.points.iter().map(|p| Some(p.hall_factor)).collect()),
-                float_series(
-                    "ln_reduced_density_fit_m3",
-                    fit.points
-                        .iter()
-                        .map(|p| Some(fit.line.evaluate(p.inverse_thermal_energy_per_ev)))
-                        .collect(),
-                ),
-                Column::new("used".into(), fit.points.iter().map(|p| p.used).collect::<Vec<bool>>()),
-                float_series(
-                    "temperature_exponent",
-                    vec![Some(fit.regime.temperature_exponent()); rows],
-                ),
-            ],
-        )?;
-        let mut output = AnalysisOutput::new(table);
-        let summary = &mut output.summary;
-        insert_estimate(
-            summary,
+        let points = &fit.points;
+        let mut output = OutputBuilder::of::<Self>();
+        output
+            .f64("temperature_K", points.iter().map(|p| p.temperature_k).collect())
+            .f64(
+                "inverse_thermal_energy_per_eV",
+                points.iter().map(|p| p.inverse_thermal_energy_per_ev).collect(),
+            )
+            .f64(
+                "ln_reduced_density_m3",
+                points.iter().map(|p| p.reduced_ln_density).collect(),
+            )
+            .f64_nullable(
+                "ln_reduced_density_m3_unc",
+                points.iter().map(|p| p.reduced_ln_density_unc).collect(),
+            )
+            .f64(
+                "temperature_K_unc",
+                points.iter().map(|p| p.temperature_unc_k).collect(),
+            )
+            .f64("hall_factor", points.iter().map(|p| p.hall_factor).collect())
+            .f64(
+                "ln_reduced_density_fit_m3",
+                points
+                    .iter()
+                    .map(|p| fit.line.evaluate(p.inverse_thermal_energy_per_ev))
+                    .collect(),
+            )
+            .bool("used", points.iter().map(|p| p.used).collect())
+            .f64("temperature_exponent", vec![fit.regime.temperature_exponent(); rows]);
+        summary_estimate(
+            &mut output,
             "activation_energy_eV",
             fit.activation_energy_ev,
             Some(fit.activation_energy_ev_unc),
         );
-        summary.insert("regime".into(), json!(fit.regime.as_str()));
-        summary.insert("carrier_type".into(), json!(fit.carrier_type.as_str()));
-        summary.insert("temperature_min_K".into(), json!(fit.temperature_min_k));
-        summary.insert("temperature_max_K".into(), json!(fit.temperature_max_k));
-        summary.insert("points_used".into(), json!(fit.points_used));
-        summary.insert("automatic_range".into(), json!(fit.automatic_range));
-        summary.insert("r_squared".into(), json!(fit.line.r_squared));
-        summary.insert(
-            "activation_energy_eV_unc_stat".into(),
-            json!(fit.activation_energy_ev_unc),
-        );
-        summary.insert("hall_factor".into(), json!(fit.hall_factor));
-        summary.insert("chi_square".into(), json!(fit.line.chi_square));
-        summary.insert("degrees_of_freedom".into(), json!(fit.line.degrees_of_freedom));
-        summary.insert("reduced_chi_square".into(), json!(fit.line.reduced_chi_square));
-        summary.insert("chi_square_p_value".into(), json!(fit.chi_square_p_value));
-        summary.insert("birge_ratio".into(), json!(fit.birge_ratio));
-        summary.insert("floored_points".into(), json!(fit.floored_points));
-        summary.insert(
-            "relative_uncertainty_floor".into(),
-            json!(fit.relative_uncertainty_floor),
-        );
-        summary.insert("effective_variance_passes".into(), json!(fit.effective_variance_passes));
-        summary.insert("weighted".into(), json!(fit.line.weighted));
-        summary.insert(
-            "temperature_uncertainty_source".into(),
-            json!(temperature_source_name(fit.temperature_unc_source)),
-        );
-        warnings.extend(fit.warnings.iter().cloned());
-        output.warnings = warnings;
-        Ok(output)
+        output
+            .summary("regime", fit.regime.as_str())
+            .summary("carrier_type", fit.carrier_type.as_str())
+            .summary("temperature_min_K", fit.temperature_min_k)
+            .summary("temperature_max_K", fit.temperature_max_k)
+            .summary("points_used", fit.points_used)
+            .summary("automatic_range", fit.automatic_range)
+            .summary("r_squared", fit.line.r_squared)
+            .summary("activation_energy_eV_unc_stat", fit.activation_energy_ev_unc)
+            .summary("hall_factor", fit.hall_factor)
+            .summary("chi_square", fit.line.chi_square)
+            .summary("degrees_of_freedom", fit.line.degrees_of_freedom)
+            .summary("reduced_chi_square", fit.line.reduced_chi_square)
+            .summary("chi_square_p_value", fit.chi_square_p_value)
+            .summary("birge_ratio", fit.birge_ratio)
+            .summary("floored_points", fit.floored_points)
+            .summary("relative_uncertainty_floor", fit.relative_uncertainty_floor)
+            .summary("effective_variance_passes", fit.effective_variance_passes)
+            .summary("weighted", fit.line.weighted)
+            .summary(
+                "temperature_uncertainty_source",
+                temperature_source_name(fit.temperature_unc_source),
+            )
+            .warnings(warnings)
+            .warnings(fit.warnings.iter().cloned());
+        output.finish(rows)
     }
 }
 
@@ -321,6 +278,7 @@ mod budget_tests {
     use crate::freeze_out::realistic::{geometric, RealisticSeries};
     use mobilis_numerics::noise::Rng;
     use mobilis_sdk::sdk::run_typed;
+    use serde_json::json;
 
     #[test]
     fn the_summary_carries_the_diagnostics_and_the_table_the_weights() {

@@ -18,66 +18,67 @@
 
 use super::*;
 use crate::freeze_out::{fit_freeze_out, Estimate, FreezeOutSettings, UncertaintySource};
-use mobilis_numerics::fit::RELATIVE_UNCERTAINTY_FLOOR;
-use mobilis_sdk::abi::{AnalysisDeclaration, InputRole};
+use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
 use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 
 pub struct FreezeOutFitAnalysis;
 
-fn default_material() -> String {
-    "Si".into()
-}
-
-#[derive(Debug, Deserialize, schemars::JsonSchema)]
-#[serde(deny_unknown_fields)]
+/// Parameters of `carriers.freeze_out_fit`.
+#[derive(Debug, Deserialize, JsonSchema)]
 pub struct FreezeOutParams {
-    #[serde(default = "default_material")]
-    material: String,
+    #[serde(flatten)]
+    pub material: MaterialParams,
+    /// force n or p; default: from the data's carrier_type column
     #[serde(default)]
-    material_overrides: MaterialOverrideParams,
-    #[serde(default)]
-    carrier_type: Option<String>,
+    pub carrier_type: Option<CarrierType>,
+    /// replaces the majority band's effective density of states at 300 K (Nc for n-type, Nv
+    /// for p-type), scaled as T^1.5; not given: the material's
     #[serde(rename = "effective_dos_300K_m3", default)]
-    effective_dos_300k_m3: Option<f64>,
+    #[schemars(extend("exclusiveMinimum" = 0))]
+    pub effective_dos_300k_m3: Option<f64>,
+    /// degeneracy factor of the majority level; default 2 for donors, 4 for acceptors
     #[serde(default)]
-    degeneracy: Option<f64>,
+    #[schemars(extend("exclusiveMinimum" = 0))]
+    pub degeneracy: Option<f64>,
+    #[serde(flatten)]
+    pub temperature_range: TemperatureRangeParams,
+    /// bounds of the fitted ionization energy, eV
+    #[serde(
+        rename = "ionization_energy_bounds_eV",
+        default = "FreezeOutParams::ionization_energy_bounds"
+    )]
+    #[schemars(extend("items" = {"type": "number", "exclusiveMinimum": 0}))]
+    pub ionization_energy_bounds_ev: [f64; 2],
+    /// bounds of N_comp / N_maj
+    #[serde(default = "FreezeOutParams::compensation_bounds")]
+    #[schemars(extend("items" = {"type": "number", "exclusiveMinimum": 0, "exclusiveMaximum": 1}))]
+    pub compensation_bounds: [f64; 2],
+    /// points of the fitted curve
+    #[serde(default = "FreezeOutParams::curve_points")]
+    #[schemars(range(min = 2, max = 100000))]
+    pub curve_points: usize,
+    #[serde(flatten)]
+    pub budget: BudgetParams,
+    /// relative standard uncertainty of a scale common to every density (thickness, current,
+    /// voltage, field calibrations) when the table has no density_m3_unc_sys, e.g. 0.03 for
+    /// 3 %; applied once to N_D, N_A and the net density after the fit; default: not given (0)
     #[serde(default)]
-    hall_factor: Option<f64>,
-    #[serde(default)]
-    hall_factor_scattering_exponent: Option<f64>,
-    #[serde(rename = "temperature_min_K", default)]
-    temperature_min_k: Option<f64>,
-    #[serde(rename = "temperature_max_K", default)]
-    temperature_max_k: Option<f64>,
-    #[serde(rename = "ionization_energy_bounds_eV", default)]
-    ionization_energy_bounds_ev: Option<[f64; 2]>,
-    #[serde(default)]
-    compensation_bounds: Option<[f64; 2]>,
-    #[serde(default)]
-    curve_points: Option<usize>,
-    #[serde(default)]
-    hall_factor_table: Option<Vec<[f64; 2]>>,
-    #[serde(default)]
-    relative_uncertainty_floor: Option<f64>,
-    #[serde(rename = "temperature_uncertainty_K", default)]
-    temperature_uncertainty_k: Option<f64>,
-    #[serde(default)]
-    density_scale_relative_uncertainty: Option<f64>,
+    #[schemars(range(min = 0), extend("exclusiveMaximum" = 1))]
+    pub density_scale_relative_uncertainty: Option<f64>,
 }
 
-/// The Hall factor from `hall_factor`, `hall_factor_scattering_exponent` or
-/// `hall_factor_table` (one of them at most).
-pub(crate) fn hall_factor_setting(
-    constant: Option<f64>,
-    exponent: Option<f64>,
-    table: Option<&[[f64; 2]]>,
-) -> Result<HallFactor, AnalysisError> {
-    match table {
-        None => hall_factor(constant, exponent),
-        Some(_) if constant.is_some() || exponent.is_some() => Err(invalid(
-            "give one of hall_factor, hall_factor_scattering_exponent and hall_factor_table, not several",
-        )),
-        Some(table) => Ok(HallFactor::Table(table.iter().map(|pair| (pair[0], pair[1])).collect())),
+/// The defaults are those of [`FreezeOutSettings`], so they are stated once.
+impl FreezeOutParams {
+    fn ionization_energy_bounds() -> [f64; 2] {
+        let (low, high) = FreezeOutSettings::default().ionization_energy_bounds_ev;
+        [low, high]
+    }
+    fn compensation_bounds() -> [f64; 2] {
+        let (low, high) = FreezeOutSettings::default().compensation_bounds;
+        [low, high]
+    }
+    fn curve_points() -> usize {
+        FreezeOutSettings::default().curve_points
     }
 }
 
@@ -85,48 +86,24 @@ pub(crate) fn hall_factor_setting(
 pub(crate) fn budget_columns() -> Vec<ColumnSpec> {
     use ColumnType::*;
     vec![
-        column("density_m3", F64, Some("m3"), "majority carrier density"),
-        column("density_m3_unc_stat", F64, Some("m3"), "its statistical standard uncertainty (from the scatter of the readings); weights the fit").optional(),
-        column("density_m3_unc_sys", F64, Some("m3"), "its systematic standard uncertainty common to the whole series (thickness, current, voltage, field calibrations); applied once after the fit as a scale").optional(),
-        column("density_m3_unc", F64, Some("m3"), "total standard uncertainty; used as statistical only when density_m3_unc_stat is absent (an older table)").optional(),
-        column("temperature_K_unc", F64, Some("K"), "standard uncertainty of the sample temperature (readings' spread and thermometer accuracy); propagated through the slope of the model").optional(),
-        column("hall_factor", F64, None, "the Hall factor already applied to density_m3 (default 1); replaced when a Hall factor parameter is given").optional(),
+        ColumnSpec::new("density_m3", F64, Some("m3"), "majority carrier density"),
+        ColumnSpec::new("density_m3_unc_stat", F64, Some("m3"), "its statistical standard uncertainty (from the scatter of the readings); weights the fit").optional(),
+        ColumnSpec::new("density_m3_unc_sys", F64, Some("m3"), "its systematic standard uncertainty common to the whole series (thickness, current, voltage, field calibrations); applied once after the fit as a scale").optional(),
+        ColumnSpec::new("density_m3_unc", F64, Some("m3"), "total standard uncertainty; used as statistical only when density_m3_unc_stat is absent (an older table)").optional(),
+        ColumnSpec::new("temperature_K_unc", F64, Some("K"), "standard uncertainty of the sample temperature (readings' spread and thermometer accuracy); propagated through the slope of the model").optional(),
+        ColumnSpec::new("hall_factor", F64, None, "the Hall factor already applied to density_m3 (default 1); replaced when a Hall factor parameter is given").optional(),
     ]
-}
-
-/// The parameters of the uncertainty budget shared by the temperature-series fits.
-pub(crate) fn budget_schema_properties(properties: &mut serde_json::Map<String, Value>) {
-    properties.insert(
-        "hall_factor".into(),
-        json!({"type": "number", "exclusiveMinimum": 0, "description": "a constant Hall factor r_H replacing the one already applied to the densities (the hall_factor column of hall.reduce, 1 without it): n = n_given r_H / r_applied; default: the densities as given"}),
-    );
-    properties.insert(
-        "hall_factor_scattering_exponent".into(),
-        json!({"type": "number", "description": "instead of hall_factor: r_H of a relaxation time tau ~ E^s (s = -0.5 acoustic phonons, 1.5 ionized impurities; Putley 1960), replacing the applied factor"}),
-    );
-    properties.insert(
-        "hall_factor_table".into(),
-        json!({"type": "array", "minItems": 1, "items": {"type": "array", "items": {"type": "number", "exclusiveMinimum": 0}, "minItems": 2, "maxItems": 2}, "description": "instead of hall_factor: r_H(T) as [temperature_K, hall_factor] pairs, linear in T between them and the end values beyond; replaces the factor hall.reduce applied (its hall_factor column)"}),
-    );
-    properties.insert(
-        "relative_uncertainty_floor".into(),
-        json!({"type": "number", "minimum": 0, "exclusiveMaximum": 1, "default": RELATIVE_UNCERTAINTY_FLOOR, "description": "smallest relative statistical density uncertainty a point keeps, so that no point pins the fit"}),
-    );
-    properties.insert(
-        "temperature_uncertainty_K".into(),
-        json!({"type": "number", "minimum": 0, "description": "standard uncertainty of the temperature for rows without temperature_K_unc, K; default: not given (0)"}),
-    );
 }
 
 /// The summary keys of the uncertainty budget shared by the temperature-series fits.
 pub(crate) fn budget_summary_keys() -> Vec<ColumnSpec> {
     use ColumnType::*;
     vec![
-        column("reduced_chi_square", F64, None, "chi-square per degree of freedom"),
-        column("chi_square_p_value", F64, None, "probability of a chi-square at least this large if the model and the weights are right (weighted fits)"),
-        column("birge_ratio", F64, None, "factor the statistical uncertainties were multiplied by: sqrt(reduced chi-square) when above 1, else 1 (weighted fits)"),
-        column("floored_points", I64, None, "points whose relative uncertainty was raised to relative_uncertainty_floor"),
-        column("temperature_uncertainty_source", Str, None, "temperature_K_unc, temperature_uncertainty_K or not given"),
+        ColumnSpec::new("reduced_chi_square", F64, None, "chi-square per degree of freedom"),
+        ColumnSpec::new("chi_square_p_value", F64, None, "probability of a chi-square at least this large if the model and the weights are right (weighted fits)"),
+        ColumnSpec::new("birge_ratio", F64, None, "factor the statistical uncertainties were multiplied by: sqrt(reduced chi-square) when above 1, else 1 (weighted fits)"),
+        ColumnSpec::new("floored_points", I64, None, "points whose relative uncertainty was raised to relative_uncertainty_floor"),
+        ColumnSpec::new("temperature_uncertainty_source", Str, None, "temperature_K_unc, temperature_uncertainty_K or not given"),
     ]
 }
 
@@ -140,25 +117,26 @@ pub(crate) fn temperature_source_name(source: UncertaintySource) -> &'static str
 }
 
 /// Inserts `name`, `name_unc`, `name_unc_stat` and `name_unc_sys`.
-fn insert_budget(summary: &mut serde_json::Map<String, Value>, name: &str, estimate: &Estimate) {
-    insert_estimate(summary, name, estimate.value, estimate.unc);
-    summary.insert(format!("{name}_unc_stat"), json!(estimate.unc_stat));
-    summary.insert(format!("{name}_unc_sys"), json!(estimate.unc_sys));
+fn summary_budget(output: &mut OutputBuilder, name: &str, estimate: &Estimate) {
+    summary_estimate(output, name, estimate.value, estimate.unc);
+    output
+        .summary(&format!("{name}_unc_stat"), estimate.unc_stat)
+        .summary(&format!("{name}_unc_sys"), estimate.unc_sys);
 }
 
 /// The `hall` input role shared by the carriers analyses that read a temperature series.
 pub(crate) fn hall_role(extra: Vec<ColumnSpec>) -> InputRole {
     use ColumnType::*;
     let mut columns = vec![
-        column("temperature_K", F64, Some("K"), "temperature of the point"),
-        column(
+        ColumnSpec::new("temperature_K", F64, Some("K"), "temperature of the point"),
+        ColumnSpec::new(
             "carrier_type",
             Str,
             None,
             "n or p, from the sign of the Hall coefficient",
         )
         .optional(),
-        column("sample", Str, None, "sample name (group by it for several samples)").optional(),
+        ColumnSpec::new("sample", Str, None, "sample name (group by it for several samples)").optional(),
     ];
     columns.extend(extra);
     InputRole {
@@ -176,56 +154,47 @@ impl Analysis for FreezeOutFitAnalysis {
 
     fn declaration() -> AnalysisDeclaration {
         use ColumnType::*;
-        let mut properties = material_schema_properties();
-        properties.insert("effective_dos_300K_m3".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "replaces the majority band's effective density of states at 300 K (Nc for n-type, Nv for p-type), scaled as T^1.5"}));
-        properties.insert("degeneracy".into(), json!({"type": "number", "exclusiveMinimum": 0, "description": "degeneracy factor of the majority level; default 2 for donors, 4 for acceptors"}));
-        properties.insert("ionization_energy_bounds_eV".into(), json!({"type": "array", "items": {"type": "number", "exclusiveMinimum": 0}, "minItems": 2, "maxItems": 2, "description": "bounds of the fitted ionization energy, default [0.001, 1.0]"}));
-        properties.insert("compensation_bounds".into(), json!({"type": "array", "items": {"type": "number", "exclusiveMinimum": 0, "exclusiveMaximum": 1}, "minItems": 2, "maxItems": 2, "description": "bounds of N_comp / N_maj, default [1e-6, 0.995]"}));
-        properties.insert("curve_points".into(), json!({"type": "integer", "minimum": 2, "maximum": 100000, "default": 200, "description": "points of the fitted curve"}));
-        budget_schema_properties(&mut properties);
-        properties.insert("density_scale_relative_uncertainty".into(), json!({"type": "number", "minimum": 0, "exclusiveMaximum": 1, "description": "relative standard uncertainty of a scale common to every density (thickness, current, voltage, field calibrations) when the table has no density_m3_unc_sys, e.g. 0.03 for 3 %; applied once to N_D, N_A and the net density after the fit; default: not given (0)"}));
         AnalysisDeclaration {
             name: String::new(),
             summary: "Majority and compensating dopant densities and the ionization energy from carrier density against temperature (charge neutrality of a compensated semiconductor)".into(),
             description: "Fits ln n(T) with the exact charge-neutrality equation p + N_D+ = n + N_A- (mirrored for p-type): Boltzmann bands with Nc, Nv ~ T^1.5, the majority level with its degeneracy factor, fully ionized compensating centres, and the intrinsic carriers of the Varshni band gap at high temperature. Bounded Levenberg-Marquardt from many starts (derived from the data and a grid over compensation and energy), so the result does not depend on a guess. Weighted by the statistical density uncertainties (floored) and the temperature uncertainties through the model's slope (effective variance, iterated); the covariance is scaled by the Birge ratio when chi-square says the errors fall short; the common density scale (density_m3_unc_sys) is applied once to the densities after the fit. A parameter on a bound gets no uncertainty.".into(),
-            params: json!({"type": "object", "additionalProperties": false, "properties": properties}),
             inputs: vec![hall_role(budget_columns())],
             outputs: vec![
-                column("kind", Str, None, "data (a measured point) or curve (the fitted model)"),
-                column("temperature_K", F64, Some("K"), "temperature"),
-                column("temperature_K_unc", F64, Some("K"), "its standard uncertainty as used (data rows)"),
-                column("density_m3", F64, Some("m3"), "measured density after the Hall-factor correction (data rows)"),
-                column("density_m3_unc", F64, Some("m3"), "the uncertainty that weighted the point: statistical (floored) and the temperature's through the model's slope, before Birge scaling; the common scale is not in it (data rows of weighted fits)"),
-                column("density_m3_unc_stat", F64, Some("m3"), "the statistical uncertainty as given, after the Hall-factor correction (data rows)"),
-                column("hall_factor", F64, None, "the Hall factor in effect (data rows)"),
-                column("fitted_density_m3", F64, Some("m3"), "the fitted model"),
-                column("log_residual", F64, None, "ln(model) - ln(data) (data rows)"),
-                column("normalized_residual", F64, None, "the residual over the relative uncertainty that weighted the point (data rows of weighted fits)"),
+                ColumnSpec::new("kind", Str, None, "data (a measured point) or curve (the fitted model)"),
+                ColumnSpec::new("temperature_K", F64, Some("K"), "temperature"),
+                ColumnSpec::new("temperature_K_unc", F64, Some("K"), "its standard uncertainty as used (data rows)"),
+                ColumnSpec::new("density_m3", F64, Some("m3"), "measured density after the Hall-factor correction (data rows)"),
+                ColumnSpec::new("density_m3_unc", F64, Some("m3"), "the uncertainty that weighted the point: statistical (floored) and the temperature's through the model's slope, before Birge scaling; the common scale is not in it (data rows of weighted fits)"),
+                ColumnSpec::new("density_m3_unc_stat", F64, Some("m3"), "the statistical uncertainty as given, after the Hall-factor correction (data rows)"),
+                ColumnSpec::new("hall_factor", F64, None, "the Hall factor in effect (data rows)"),
+                ColumnSpec::new("fitted_density_m3", F64, Some("m3"), "the fitted model"),
+                ColumnSpec::new("log_residual", F64, None, "ln(model) - ln(data) (data rows)"),
+                ColumnSpec::new("normalized_residual", F64, None, "the residual over the relative uncertainty that weighted the point (data rows of weighted fits)"),
             ],
             summary_keys: {
                 let mut keys = vec![
-                    column("material", ColumnType::Str, None, "material whose constants were used"),
-                    column("uncertainties_not_given", ColumnType::Str, None, "list of the uncertainty contributions not stated (left out of the budget)"),
-                    column("degeneracy", ColumnType::F64, None, "ground-state degeneracy factor of the dopant"),
-                    column("hall_factor", ColumnType::F64, None, "Hall scattering factor used"),
-                    column("chi_square", ColumnType::F64, None, "chi-square of the fit"),
-                    column("degrees_of_freedom", ColumnType::I64, None, "points minus fitted parameters"),
-                    column("effective_variance_passes", ColumnType::I64, None, "passes of the effective-variance weighting (temperature uncertainties)"),
-                    column("weighted", ColumnType::Bool, None, "the fit used the stated uncertainties"),
-                    column("points", ColumnType::I64, None, "points fitted"),
-                    column("at_bound", ColumnType::Str, None, "list of the parameters that ended at a bound"),
-                    column("starts", ColumnType::I64, None, "fit starts tried"),
-                    column("starts_converged", ColumnType::I64, None, "fit starts that converged"),
-                    column("relative_uncertainty_floor", ColumnType::F64, None, "the floor applied to relative uncertainties"),
-                    column("carrier_type", Str, None, "n or p"),
-                    column("dopant_density_m3", F64, Some("m3"), "majority dopant density (donors for n-type), with _unc (total), _unc_stat and _unc_sys"),
-                    column("compensating_density_m3", F64, Some("m3"), "compensating density (acceptors for n-type), with _unc, _unc_stat and _unc_sys"),
-                    column("net_density_m3", F64, Some("m3"), "dopant minus compensating, with _unc, _unc_stat and _unc_sys"),
-                    column("compensation_ratio", F64, None, "compensating / dopant, with _unc, _unc_stat and _unc_sys"),
-                    column("ionization_energy_eV", F64, Some("eV"), "majority level below its band edge, with _unc, _unc_stat and _unc_sys (what the common density scale moves it by through the fit: small, from the bend between saturation and freeze-out)"),
-                    column("dopant_compensating_covariance_m6", F64, None, "total covariance of the two densities (the common scale included)"),
-                    column("density_scale_relative_uncertainty", F64, None, "the common relative scale uncertainty applied to the densities (0 when not given)"),
-                    column("density_scale_source", Str, None, "density_m3_unc_sys (largest of the rows), density_scale_relative_uncertainty or not given"),
+                    ColumnSpec::new("material", ColumnType::Str, None, "material whose constants were used"),
+                    ColumnSpec::new("uncertainties_not_given", ColumnType::Str, None, "list of the uncertainty contributions not stated (left out of the budget)"),
+                    ColumnSpec::new("degeneracy", ColumnType::F64, None, "ground-state degeneracy factor of the dopant"),
+                    ColumnSpec::new("hall_factor", ColumnType::F64, None, "Hall scattering factor used"),
+                    ColumnSpec::new("chi_square", ColumnType::F64, None, "chi-square of the fit"),
+                    ColumnSpec::new("degrees_of_freedom", ColumnType::I64, None, "points minus fitted parameters"),
+                    ColumnSpec::new("effective_variance_passes", ColumnType::I64, None, "passes of the effective-variance weighting (temperature uncertainties)"),
+                    ColumnSpec::new("weighted", ColumnType::Bool, None, "the fit used the stated uncertainties"),
+                    ColumnSpec::new("points", ColumnType::I64, None, "points fitted"),
+                    ColumnSpec::new("at_bound", ColumnType::Str, None, "list of the parameters that ended at a bound"),
+                    ColumnSpec::new("starts", ColumnType::I64, None, "fit starts tried"),
+                    ColumnSpec::new("starts_converged", ColumnType::I64, None, "fit starts that converged"),
+                    ColumnSpec::new("relative_uncertainty_floor", ColumnType::F64, None, "the floor applied to relative uncertainties"),
+                    ColumnSpec::new("carrier_type", Str, None, "n or p"),
+                    ColumnSpec::new("dopant_density_m3", F64, Some("m3"), "majority dopant density (donors for n-type), with _unc (total), _unc_stat and _unc_sys"),
+                    ColumnSpec::new("compensating_density_m3", F64, Some("m3"), "compensating density (acceptors for n-type), with _unc, _unc_stat and _unc_sys"),
+                    ColumnSpec::new("net_density_m3", F64, Some("m3"), "dopant minus compensating, with _unc, _unc_stat and _unc_sys"),
+                    ColumnSpec::new("compensation_ratio", F64, None, "compensating / dopant, with _unc, _unc_stat and _unc_sys"),
+                    ColumnSpec::new("ionization_energy_eV", F64, Some("eV"), "majority level below its band edge, with _unc, _unc_stat and _unc_sys (what the common density scale moves it by through the fit: small, from the bend between saturation and freeze-out)"),
+                    ColumnSpec::new("dopant_compensating_covariance_m6", F64, None, "total covariance of the two densities (the common scale included)"),
+                    ColumnSpec::new("density_scale_relative_uncertainty", F64, None, "the common relative scale uncertainty applied to the densities (0 when not given)"),
+                    ColumnSpec::new("density_scale_source", Str, None, "density_m3_unc_sys (largest of the rows), density_scale_relative_uncertainty or not given"),
                 ];
                 keys.extend(budget_summary_keys());
                 keys
@@ -239,31 +208,20 @@ impl Analysis for FreezeOutFitAnalysis {
         let hall = inputs.required("hall")?;
         let mut warnings = Vec::new();
         let points = density_points(hall, &mut warnings)?;
-        let material = resolve_material(&params.material, &params.material_overrides)?;
-        let mut settings = FreezeOutSettings::for_material(material);
-        settings.carrier_type = parse_carrier_type(params.carrier_type.as_deref())?;
+        let mut settings = FreezeOutSettings::for_material(params.material.resolve()?);
+        settings.carrier_type = params.carrier_type;
         settings.effective_dos_300k_m3 = params.effective_dos_300k_m3;
         settings.degeneracy = params.degeneracy;
-        settings.hall_factor = hall_factor_setting(
-            params.hall_factor,
-            params.hall_factor_scattering_exponent,
-            params.hall_factor_table.as_deref(),
-        )?;
-        if let Some(floor) = params.relative_uncertainty_floor {
-            settings.relative_uncertainty_floor = floor;
-        }
-        settings.temperature_unc_k = params.temperature_uncertainty_k;
+        settings.hall_factor = params.budget.hall_factor.setting()?;
+        settings.relative_uncertainty_floor = params.budget.relative_uncertainty_floor;
+        settings.temperature_unc_k = params.budget.temperature_uncertainty_k;
         settings.density_scale_relative_unc = params.density_scale_relative_uncertainty;
-        settings.temperature_range_k = temperature_range(params.temperature_min_k, params.temperature_max_k)?;
-        if let Some([low, high]) = params.ionization_energy_bounds_ev {
-            settings.ionization_energy_bounds_ev = (low, high);
-        }
-        if let Some([low, high]) = params.compensation_bounds {
-            settings.compensation_bounds = (low, high);
-        }
-        if let Some(count) = params.curve_points {
-            settings.curve_points = count;
-        }
+        settings.temperature_range_k = params.temperature_range.range()?;
+        let [low, high] = params.ionization_energy_bounds_ev;
+        settings.ionization_energy_bounds_ev = (low, high);
+        let [low, high] = params.compensation_bounds;
+        settings.compensation_bounds = (low, high);
+        settings.curve_points = params.curve_points;
         host.progress(0.1, "fitting");
         host.check_cancelled()?;
         let fit = fit_freeze_out(&points, &settings).map_err(|error| match error {
@@ -309,51 +267,27 @@ impl Analysis for FreezeOutFitAnalysis {
         ] {
             column.resize(rows, None);
         }
-        let table = frame(
-            rows,
-            vec![
-                Column::new("kind".into(), kind),
-                float_series("temperature_K", temperature),
-                float_series("temperature_K_unc", temperature_unc),
-                float_series("density_m3", density),
-                float_series("density_m3_unc", density_unc),
-                float_series("density_m3_unc_stat", density_unc_stat),
-                float_series("hall_factor", hall_factors),
-                float_series("fitted_density_m3", fitted),
-                float_series("log_residual", residual),
-                float_series("normalized_residual", normalized),
-            ],
-        )?;
-        let mut output = AnalysisOutput::new(table);
-        let summary = &mut output.summary;
-        summary.insert("carrier_type".into(), json!(fit.carrier_type.as_str()));
-        summary.insert("material".into(), json!(params.material));
-        insert_budget(summary, "dopant_density_m3", &fit.dopant);
-        insert_budget(summary, "compensating_density_m3", &fit.compensating);
-        insert_budget(summary, "net_density_m3", &fit.net);
-        insert_budget(summary, "compensation_ratio", &fit.ratio);
-        insert_budget(summary, "ionization_energy_eV", &fit.energy);
+        let mut output = OutputBuilder::of::<Self>();
+        output
+            .str("kind", &kind)
+            .f64_nullable("temperature_K", temperature)
+            .f64_nullable("temperature_K_unc", temperature_unc)
+            .f64_nullable("density_m3", density)
+            .f64_nullable("density_m3_unc", density_unc)
+            .f64_nullable("density_m3_unc_stat", density_unc_stat)
+            .f64_nullable("hall_factor", hall_factors)
+            .f64_nullable("fitted_density_m3", fitted)
+            .f64_nullable("log_residual", residual)
+            .f64_nullable("normalized_residual", normalized);
+        output
+            .summary("carrier_type", fit.carrier_type.as_str())
+            .summary("material", params.material.material.name());
+        summary_budget(&mut output, "dopant_density_m3", &fit.dopant);
+        summary_budget(&mut output, "compensating_density_m3", &fit.compensating);
+        summary_budget(&mut output, "net_density_m3", &fit.net);
+        summary_budget(&mut output, "compensation_ratio", &fit.ratio);
+        summary_budget(&mut output, "ionization_energy_eV", &fit.energy);
         let both = fit.dopant_density_m3_unc.is_some() && fit.compensating_density_m3_unc.is_some();
-        summary.insert(
-            "dopant_compensating_covariance_m6".into(),
-            json!(both.then_some(fit.covariance[0][1])),
-        );
-        summary.insert(
-            "density_scale_relative_uncertainty".into(),
-            json!(fit.density_scale_relative_unc),
-        );
-        summary.insert(
-            "density_scale_source".into(),
-            json!(match fit.density_scale_source {
-                UncertaintySource::Points => "density_m3_unc_sys",
-                UncertaintySource::Stated => "density_scale_relative_uncertainty",
-                UncertaintySource::NotGiven => "not given",
-            }),
-        );
-        summary.insert(
-            "temperature_uncertainty_source".into(),
-            json!(temperature_source_name(fit.temperature_unc_source)),
-        );
         let mut not_given = Vec::new();
         if fit.density_scale_source == UncertaintySource::NotGiven {
             not_given.push("density scale (density_m3_unc_sys or density_scale_relative_uncertainty)");
@@ -361,29 +295,44 @@ impl Analysis for FreezeOutFitAnalysis {
         if fit.temperature_unc_source == UncertaintySource::NotGiven {
             not_given.push("temperature (temperature_K_unc or temperature_uncertainty_K)");
         }
-        summary.insert("uncertainties_not_given".into(), json!(not_given));
-        summary.insert("degeneracy".into(), json!(fit.degeneracy));
-        summary.insert("hall_factor".into(), json!(fit.hall_factor));
-        summary.insert("chi_square".into(), json!(fit.chi_square));
-        summary.insert("degrees_of_freedom".into(), json!(fit.degrees_of_freedom));
-        summary.insert("reduced_chi_square".into(), json!(fit.reduced_chi_square));
-        summary.insert("chi_square_p_value".into(), json!(fit.chi_square_p_value));
-        summary.insert("birge_ratio".into(), json!(fit.birge_ratio));
-        summary.insert("floored_points".into(), json!(fit.floored_points));
-        summary.insert(
-            "relative_uncertainty_floor".into(),
-            json!(fit.relative_uncertainty_floor),
-        );
-        summary.insert("effective_variance_passes".into(), json!(fit.effective_variance_passes));
-        summary.insert("weighted".into(), json!(fit.weighted));
-        summary.insert("points".into(), json!(data_rows));
-        summary.insert("at_bound".into(), json!(fit.at_bound));
-        summary.insert("starts".into(), json!(fit.starts));
-        summary.insert("starts_converged".into(), json!(fit.starts_converged));
-        warnings.extend(fit.warnings.iter().cloned());
-        output.warnings = warnings;
+        output
+            .summary(
+                "dopant_compensating_covariance_m6",
+                both.then_some(fit.covariance[0][1]),
+            )
+            .summary("density_scale_relative_uncertainty", fit.density_scale_relative_unc)
+            .summary(
+                "density_scale_source",
+                match fit.density_scale_source {
+                    UncertaintySource::Points => "density_m3_unc_sys",
+                    UncertaintySource::Stated => "density_scale_relative_uncertainty",
+                    UncertaintySource::NotGiven => "not given",
+                },
+            )
+            .summary(
+                "temperature_uncertainty_source",
+                temperature_source_name(fit.temperature_unc_source),
+            )
+            .summary("uncertainties_not_given", not_given)
+            .summary("degeneracy", fit.degeneracy)
+            .summary("hall_factor", fit.hall_factor)
+            .summary("chi_square", fit.chi_square)
+            .summary("degrees_of_freedom", fit.degrees_of_freedom)
+            .summary("reduced_chi_square", fit.reduced_chi_square)
+            .summary("chi_square_p_value", fit.chi_square_p_value)
+            .summary("birge_ratio", fit.birge_ratio)
+            .summary("floored_points", fit.floored_points)
+            .summary("relative_uncertainty_floor", fit.relative_uncertainty_floor)
+            .summary("effective_variance_passes", fit.effective_variance_passes)
+            .summary("weighted", fit.weighted)
+            .summary("points", data_rows)
+            .summary("at_bound", &fit.at_bound)
+            .summary("starts", fit.starts)
+            .summary("starts_converged", fit.starts_converged)
+            .warnings(warnings)
+            .warnings(fit.warnings.iter().cloned());
         host.progress(1.0, "done");
-        Ok(output)
+        output.finish(rows)
     }
 }
 
@@ -393,6 +342,7 @@ mod tests {
     use crate::freeze_out::realistic::RealisticSeries;
     use mobilis_numerics::noise::Rng;
     use mobilis_sdk::sdk::run_typed;
+    use serde_json::{json, Value};
 
     /// A realistic series as `hall.reduce` writes it (with the budget columns), or as an
     /// older table did (`density_m3_unc` only).

@@ -18,58 +18,106 @@
 
 use super::freeze_out_fit::hall_role;
 use super::*;
-use crate::purity::{ConsistencyTolerance, DopantDensities};
+use crate::purity::DopantDensities;
 use crate::scattering::{
     fit_mobility_scattering, medium_for, IonizedDensityModel, IonizedImpurityFormula, MobilityPoint,
     NeutralImpurityModel, ScatteringFit, ScatteringSettings, ScreeningDensity,
 };
-use mobilis_numerics::fit::RELATIVE_UNCERTAINTY_FLOOR;
-use mobilis_sdk::abi::{AnalysisDeclaration, InputRole};
+use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
 use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
+use serde::Serialize;
 
 pub struct MobilityScatteringAnalysis;
 
-fn default_material() -> String {
-    "Si".into()
+/// Parameters of `carriers.mobility_scattering`.
+#[derive(Debug, Deserialize, JsonSchema)]
+pub struct ScatteringParams {
+    #[serde(flatten)]
+    pub material: MaterialParams,
+    /// force n or p; default: from the data's carrier_type column
+    #[serde(default)]
+    pub carrier_type: Option<CarrierType>,
+    /// ionized-impurity scattering: screened (Brooks-Herring) or bare Coulomb with a cut-off
+    /// (Conwell-Weisskopf)
+    #[serde(default)]
+    pub formula: IonizedImpurityFormula,
+    /// constant: one N_I fitted; carriers_plus_compensation: N_I = n + 2 N_comp at each point
+    /// with N_comp fitted (needs density_m3)
+    #[serde(default)]
+    pub ionized_density: IonizedDensityModel,
+    /// neutral-impurity scattering (Erginsoy): none, a fitted constant density, or
+    /// N_D - N_A - n from the freeze_out input
+    #[serde(default)]
+    pub neutral: NeutralChoice,
+    /// fit a temperature-independent mobility term
+    #[serde(default)]
+    pub constant_term: bool,
+    /// charge number Z of the ionized impurities
+    #[serde(default = "ScatteringParams::charge_number")]
+    #[schemars(extend("exclusiveMinimum" = 0))]
+    pub charge_number: f64,
+    #[serde(flatten)]
+    pub hall_factor: MobilityHallFactorParams,
+    #[serde(flatten)]
+    pub temperature_range: TemperatureRangeParams,
+    /// hold the lattice exponent at this value instead of fitting it; not given: fitted
+    #[serde(default)]
+    #[schemars(range(min = 0))]
+    pub fixed_lattice_exponent: Option<f64>,
+    #[serde(flatten)]
+    pub consistency: ConsistencyParams,
+    /// which mobility of the hall table to fit: the Hall mobility, or the drift mobility
+    /// hall.reduce derived with the sample sheet's Hall factor
+    #[serde(default)]
+    pub mobility_column: MobilityColumn,
+    /// the smallest relative uncertainty a mobility keeps in the weights, so that no point
+    /// can pin the fit
+    #[serde(default = "relative_uncertainty_floor")]
+    #[schemars(range(min = 0), extend("exclusiveMaximum" = 1))]
+    pub relative_uncertainty_floor: f64,
 }
 
-#[derive(Debug, Deserialize, schemars::JsonSchema)]
-#[serde(deny_unknown_fields)]
-pub struct ScatteringParams {
-    #[serde(default = "default_material")]
-    material: String,
-    #[serde(default)]
-    material_overrides: MaterialOverrideParams,
-    #[serde(default)]
-    carrier_type: Option<String>,
-    #[serde(default)]
-    formula: Option<String>,
-    #[serde(default)]
-    ionized_density: Option<String>,
-    #[serde(default)]
-    neutral: Option<String>,
-    #[serde(default)]
-    constant_term: bool,
-    #[serde(default)]
-    charge_number: Option<f64>,
-    #[serde(default)]
-    hall_factor: Option<f64>,
-    #[serde(default)]
-    hall_factor_scattering_exponent: Option<f64>,
-    #[serde(rename = "temperature_min_K", default)]
-    temperature_min_k: Option<f64>,
-    #[serde(rename = "temperature_max_K", default)]
-    temperature_max_k: Option<f64>,
-    #[serde(default)]
-    fixed_lattice_exponent: Option<f64>,
-    #[serde(default)]
-    consistency_sigma_multiple: Option<f64>,
-    #[serde(default)]
-    model_relative_uncertainty: Option<f64>,
-    #[serde(default)]
-    mobility_column: Option<String>,
-    #[serde(default)]
-    relative_uncertainty_floor: Option<f64>,
+impl ScatteringParams {
+    /// The default of the physics settings, so that it is stated once.
+    fn charge_number() -> f64 {
+        ScatteringSettings::new(medium_for(&Material::silicon(), CarrierType::N)).charge_number
+    }
+}
+
+/// `neutral`: the neutral-impurity term (Erginsoy). The physics' own choice carries the net
+/// doping, which only the freeze_out input gives, so the parameter is a choice of its own.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum NeutralChoice {
+    /// no neutral-impurity scattering
+    #[default]
+    None,
+    /// one constant neutral density, fitted
+    Fitted,
+    /// N_D - N_A - n at each point, from the freeze_out input
+    FromCarriers,
+}
+
+/// `mobility_column`: which mobility of the hall table is fitted.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+pub enum MobilityColumn {
+    /// the Hall mobility
+    #[default]
+    #[serde(rename = "hall_mobility_m2_per_Vs")]
+    Hall,
+    /// the drift mobility hall.reduce derived with the sample sheet's Hall factor
+    #[serde(rename = "drift_mobility_m2_per_Vs")]
+    Drift,
+}
+
+impl MobilityColumn {
+    /// The column name, as on the wire.
+    pub fn name(self) -> &'static str {
+        match self {
+            MobilityColumn::Hall => "hall_mobility_m2_per_Vs",
+            MobilityColumn::Drift => "drift_mobility_m2_per_Vs",
+        }
+    }
 }
 
 /// The `freeze_out` role: the summary table of `carriers.freeze_out_fit`.
@@ -81,28 +129,28 @@ pub(crate) fn freeze_out_role(required: bool) -> InputRole {
         description: "the summary table of carriers.freeze_out_fit (analysis.run summary_output), one row per sample"
             .into(),
         columns: vec![
-            column("dopant_density_m3", F64, Some("m3"), "majority dopant density"),
-            column("dopant_density_m3_unc", F64, Some("m3"), "its uncertainty").optional(),
-            column("compensating_density_m3", F64, Some("m3"), "compensating density"),
-            column("compensating_density_m3_unc", F64, Some("m3"), "its uncertainty").optional(),
-            column("dopant_compensating_covariance_m6", F64, None, "their covariance").optional(),
-            column("carrier_type", Str, None, "n or p").optional(),
-            column("sample", Str, None, "sample name").optional(),
-            column(
+            ColumnSpec::new("dopant_density_m3", F64, Some("m3"), "majority dopant density"),
+            ColumnSpec::new("dopant_density_m3_unc", F64, Some("m3"), "its uncertainty").optional(),
+            ColumnSpec::new("compensating_density_m3", F64, Some("m3"), "compensating density"),
+            ColumnSpec::new("compensating_density_m3_unc", F64, Some("m3"), "its uncertainty").optional(),
+            ColumnSpec::new("dopant_compensating_covariance_m6", F64, None, "their covariance").optional(),
+            ColumnSpec::new("carrier_type", Str, None, "n or p").optional(),
+            ColumnSpec::new("sample", Str, None, "sample name").optional(),
+            ColumnSpec::new(
                 "material",
                 Str,
                 None,
                 "the material preset of the fit (names candidate dopants)",
             )
             .optional(),
-            column(
+            ColumnSpec::new(
                 "ionization_energy_eV",
                 F64,
                 Some("eV"),
                 "the majority level's ionization energy",
             )
             .optional(),
-            column("ionization_energy_eV_unc", F64, Some("eV"), "its uncertainty").optional(),
+            ColumnSpec::new("ionization_energy_eV_unc", F64, Some("eV"), "its uncertainty").optional(),
         ],
     }
 }
@@ -113,7 +161,7 @@ pub(crate) fn freeze_out_densities(
     table: &DataFrame,
     sample: Option<&str>,
 ) -> Result<(DopantDensities, Option<CarrierType>), AnalysisError> {
-    let samples = optional_strings(table, "sample")?;
+    let samples = sdk::optional_string_column(table, "sample")?;
     let row = match sample {
         Some(name) if samples.iter().any(|s| s.is_some()) => samples
             .iter()
@@ -127,7 +175,8 @@ pub(crate) fn freeze_out_densities(
             )))
         }
     };
-    let value = |name: &str| -> Result<Option<f64>, AnalysisError> { Ok(optional_floats(table, name)?[row]) };
+    let value =
+        |name: &str| -> Result<Option<f64>, AnalysisError> { Ok(sdk::optional_float_column(table, name)?[row]) };
     let densities = DopantDensities {
         dopant_density_m3: value("dopant_density_m3")?
             .ok_or_else(|| invalid("the freeze_out table's dopant_density_m3 is empty"))?,
@@ -137,7 +186,10 @@ pub(crate) fn freeze_out_densities(
         compensating_density_unc_m3: value("compensating_density_m3_unc")?,
         covariance_m6: value("dopant_compensating_covariance_m6")?,
     };
-    let carrier_type = parse_carrier_type(optional_strings(table, "carrier_type")?[row].as_deref())?;
+    let carrier_type = table_carrier_type(
+        sdk::optional_string_column(table, "carrier_type")?[row].as_deref(),
+        "the freeze_out table",
+    )?;
     Ok((densities, carrier_type))
 }
 
@@ -158,8 +210,8 @@ fn mobility_budget(
     let present = |name: &str| hall.column(name).is_ok();
     // `part` of the Hall mobility carried over to the chosen column as a relative error.
     let from_hall = |part: &str| -> Result<Vec<Option<f64>>, AnalysisError> {
-        let hall_values = optional_floats(hall, HALL)?;
-        let hall_part = optional_floats(hall, &format!("{HALL}_{part}"))?;
+        let hall_values = sdk::optional_float_column(hall, HALL)?;
+        let hall_part = sdk::optional_float_column(hall, &format!("{HALL}_{part}"))?;
         Ok(mobilities
             .iter()
             .zip(hall_values.iter().zip(&hall_part))
@@ -171,7 +223,10 @@ fn mobility_budget(
     let total = format!("{mobility_column}_unc");
     let carried_over = mobility_column != HALL;
     let (weights, source) = if present(&statistical) {
-        (optional_floats(hall, &statistical)?, Some(statistical.clone()))
+        (
+            sdk::optional_float_column(hall, &statistical)?,
+            Some(statistical.clone()),
+        )
     } else if carried_over && present(&format!("{HALL}_unc_stat")) {
         (from_hall("unc_stat")?, Some(format!("{HALL}_unc_stat")))
     } else if present(&total) {
@@ -179,12 +234,12 @@ fn mobility_budget(
             "the hall table has {total} but no {statistical}: it was taken as statistical, and no calibration \
              budget was given (give the hall.reduce output, or the _unc_stat and _unc_sys columns)"
         ));
-        (optional_floats(hall, &total)?, Some(total.clone()))
+        (sdk::optional_float_column(hall, &total)?, Some(total.clone()))
     } else {
         (vec![None; hall.height()], None)
     };
     let calibration = if present(&systematic) {
-        optional_floats(hall, &systematic)?
+        sdk::optional_float_column(hall, &systematic)?
     } else if carried_over && present(&format!("{HALL}_unc_sys")) {
         from_hall("unc_sys")?
     } else {
@@ -195,7 +250,10 @@ fn mobility_budget(
 
 /// The single sample named in a table, if it names one.
 pub(crate) fn single_sample(table: &DataFrame) -> Result<Option<String>, AnalysisError> {
-    let mut names: Vec<String> = optional_strings(table, "sample")?.into_iter().flatten().collect();
+    let mut names: Vec<String> = sdk::optional_string_column(table, "sample")?
+        .into_iter()
+        .flatten()
+        .collect();
     names.sort();
     names.dedup();
     match names.len() {
@@ -214,88 +272,72 @@ impl Analysis for MobilityScatteringAnalysis {
 
     fn declaration() -> AnalysisDeclaration {
         use ColumnType::*;
-        let tolerance = ConsistencyTolerance::default();
-        let mut properties = material_schema_properties();
-        properties.insert("formula".into(), json!({"type": "string", "enum": ["brooks_herring", "conwell_weisskopf"], "default": "brooks_herring", "description": "ionized-impurity scattering: screened (Brooks-Herring) or bare Coulomb with a cut-off (Conwell-Weisskopf)"}));
-        properties.insert("ionized_density".into(), json!({"type": "string", "enum": ["constant", "carriers_plus_compensation"], "default": "constant", "description": "constant: one N_I fitted; carriers_plus_compensation: N_I = n + 2 N_comp at each point with N_comp fitted (needs density_m3)"}));
-        properties.insert("neutral".into(), json!({"type": "string", "enum": ["none", "fitted", "from_carriers"], "default": "none", "description": "neutral-impurity scattering (Erginsoy): none, a fitted constant density, or N_D - N_A - n from the freeze_out input"}));
-        properties.insert(
-            "constant_term".into(),
-            json!({"type": "boolean", "default": false, "description": "fit a temperature-independent mobility term"}),
-        );
-        properties.insert("charge_number".into(), json!({"type": "number", "exclusiveMinimum": 0, "default": 1, "description": "charge number Z of the ionized impurities"}));
-        properties.insert("mobility_column".into(), json!({"type": "string", "enum": ["hall_mobility_m2_per_Vs", "drift_mobility_m2_per_Vs"], "default": "hall_mobility_m2_per_Vs", "description": "which mobility of the hall table to fit: the Hall mobility, or the drift mobility hall.reduce derived with the sample sheet's Hall factor"}));
-        properties.insert("fixed_lattice_exponent".into(), json!({"type": "number", "minimum": 0, "description": "hold the lattice exponent at this value instead of fitting it"}));
-        properties.insert("consistency_sigma_multiple".into(), json!({"type": "number", "exclusiveMinimum": 0, "default": tolerance.sigma_multiple, "description": "the two impurity counts agree within this many combined standard uncertainties (common practice: 2)"}));
-        properties.insert("relative_uncertainty_floor".into(), json!({"type": "number", "minimum": 0, "exclusiveMaximum": 1, "default": RELATIVE_UNCERTAINTY_FLOOR, "description": "the smallest relative uncertainty a mobility keeps in the weights, so that no point can pin the fit"}));
-        properties.insert("model_relative_uncertainty".into(), json!({"type": "number", "minimum": 0, "default": tolerance.model_relative_uncertainty, "description": "relative uncertainty allowed for the scattering theory itself in the comparison"}));
         AnalysisDeclaration {
             name: String::new(),
             summary: "Lattice exponent and ionized-impurity density from mobility against temperature (Matthiessen's rule), compared with the freeze-out count".into(),
             description: "1/mu = 1/mu_L + 1/mu_I (+ 1/mu_N + 1/mu_C) with mu_L = mu_300 (T/300)^-alpha and Brooks-Herring or Conwell-Weisskopf ionized-impurity scattering, fitted in ln mu from several starts. Points are weighted by the mobility's statistical uncertainty (_unc_stat, floored at relative_uncertainty_floor) widened by temperature_K_unc through the model's slope (effective variance); calibration errors common to the series (_unc_sys of the mobility and of density_m3) are applied once after the fit, as _unc_sys of each result; the covariance is scaled by the Birge ratio when chi-square says the model misses the data. Given the freeze-out summary (role freeze_out), Brooks-Herring screening uses the compensated screening density and the fitted N_I is compared with the freeze-out densities: two independent counts of the same impurities (an upper limit when the mobility cannot determine N_I).".into(),
-            params: json!({"type": "object", "additionalProperties": false, "properties": properties}),
             inputs: vec![
                 hall_role(vec![
-                    column("hall_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "Hall mobility"),
-                    column("hall_mobility_m2_per_Vs_unc", F64, Some("m2_per_Vs"), "its total uncertainty; weights the fit when the _stat column is absent").optional(),
-                    column("hall_mobility_m2_per_Vs_unc_stat", F64, Some("m2_per_Vs"), "its statistical uncertainty; weights the fit").optional(),
-                    column("hall_mobility_m2_per_Vs_unc_sys", F64, Some("m2_per_Vs"), "its calibration uncertainty common to the series; applied after the fit").optional(),
-                    column("drift_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "drift mobility (mobility_column)").optional(),
-                    column("drift_mobility_m2_per_Vs_unc", F64, Some("m2_per_Vs"), "its uncertainty").optional(),
-                    column("drift_mobility_m2_per_Vs_unc_stat", F64, Some("m2_per_Vs"), "its statistical uncertainty").optional(),
-                    column("drift_mobility_m2_per_Vs_unc_sys", F64, Some("m2_per_Vs"), "its calibration uncertainty").optional(),
-                    column("density_m3", F64, Some("m3"), "carrier density (screening, comparison)").optional(),
-                    column("density_m3_unc_sys", F64, Some("m3"), "its calibration uncertainty common to the series").optional(),
-                    column("temperature_K_unc", F64, Some("K"), "standard uncertainty of the temperature; propagated through the model's slope").optional(),
+                    ColumnSpec::new("hall_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "Hall mobility"),
+                    ColumnSpec::new("hall_mobility_m2_per_Vs_unc", F64, Some("m2_per_Vs"), "its total uncertainty; weights the fit when the _stat column is absent").optional(),
+                    ColumnSpec::new("hall_mobility_m2_per_Vs_unc_stat", F64, Some("m2_per_Vs"), "its statistical uncertainty; weights the fit").optional(),
+                    ColumnSpec::new("hall_mobility_m2_per_Vs_unc_sys", F64, Some("m2_per_Vs"), "its calibration uncertainty common to the series; applied after the fit").optional(),
+                    ColumnSpec::new("drift_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "drift mobility (mobility_column)").optional(),
+                    ColumnSpec::new("drift_mobility_m2_per_Vs_unc", F64, Some("m2_per_Vs"), "its uncertainty").optional(),
+                    ColumnSpec::new("drift_mobility_m2_per_Vs_unc_stat", F64, Some("m2_per_Vs"), "its statistical uncertainty").optional(),
+                    ColumnSpec::new("drift_mobility_m2_per_Vs_unc_sys", F64, Some("m2_per_Vs"), "its calibration uncertainty").optional(),
+                    ColumnSpec::new("density_m3", F64, Some("m3"), "carrier density (screening, comparison)").optional(),
+                    ColumnSpec::new("density_m3_unc_sys", F64, Some("m3"), "its calibration uncertainty common to the series").optional(),
+                    ColumnSpec::new("temperature_K_unc", F64, Some("K"), "standard uncertainty of the temperature; propagated through the model's slope").optional(),
                 ]),
                 freeze_out_role(false),
             ],
             outputs: vec![
-                column("temperature_K", F64, Some("K"), "temperature"),
-                column("in_fit_range", Bool, None, "the point was fitted"),
-                column("mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "measured mobility after the Hall-factor correction"),
-                column("mobility_m2_per_Vs_unc", F64, Some("m2_per_Vs"), "its uncertainty"),
-                column("fitted_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "the model"),
-                column("lattice_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "lattice term"),
-                column("ionized_impurity_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "ionized-impurity term"),
-                column("neutral_impurity_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "neutral-impurity term"),
-                column("constant_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "temperature-independent term"),
-                column("ionized_density_m3", F64, Some("m3"), "N_I at this point"),
-                column("screening_density_m3", F64, Some("m3"), "Brooks-Herring screening density"),
-                column("log_residual", F64, None, "ln(data) - ln(model)"),
-                column("normalized_residual", F64, None, "the log residual over the uncertainty the fit weighted it by (floor and temperature included)"),
+                ColumnSpec::new("temperature_K", F64, Some("K"), "temperature"),
+                ColumnSpec::new("in_fit_range", Bool, None, "the point was fitted"),
+                ColumnSpec::new("mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "measured mobility after the Hall-factor correction"),
+                ColumnSpec::new("mobility_m2_per_Vs_unc", F64, Some("m2_per_Vs"), "its uncertainty"),
+                ColumnSpec::new("fitted_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "the model"),
+                ColumnSpec::new("lattice_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "lattice term"),
+                ColumnSpec::new("ionized_impurity_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "ionized-impurity term"),
+                ColumnSpec::new("neutral_impurity_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "neutral-impurity term"),
+                ColumnSpec::new("constant_mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "temperature-independent term"),
+                ColumnSpec::new("ionized_density_m3", F64, Some("m3"), "N_I at this point"),
+                ColumnSpec::new("screening_density_m3", F64, Some("m3"), "Brooks-Herring screening density"),
+                ColumnSpec::new("log_residual", F64, None, "ln(data) - ln(model)"),
+                ColumnSpec::new("normalized_residual", F64, None, "the log residual over the uncertainty the fit weighted it by (floor and temperature included)"),
             ],
             summary_keys: vec![
-                column("compensating_density_m3", ColumnType::F64, Some("m3"), "N_comp of the carriers-plus-compensation model, with _unc"),
-                column("compensating_density_upper_limit_m3", ColumnType::F64, Some("m3"), "upper limit of N_comp when it is not resolved"),
-                column("neutral_impurity_density_m3", ColumnType::F64, Some("m3"), "neutral impurity density when fitted, with _unc"),
-                column("constant_mobility_m2_per_Vs", ColumnType::F64, Some("m2_per_Vs"), "the constant mobility term when fitted, with _unc"),
-                column("carrier_type", ColumnType::Str, None, "n or p"),
-                column("formula", ColumnType::Str, None, "ionized-impurity formula used"),
-                column("lattice_exponent_fixed", ColumnType::Bool, None, "the lattice exponent was fixed, not fitted"),
-                column("weighted", ColumnType::Bool, None, "the fit used the stated uncertainties"),
-                column("weights_column", ColumnType::Str, None, "the column the weights came from"),
-                column("calibrations_not_stated", ColumnType::Str, None, "list of the calibrations not stated (their defaults were assumed)"),
-                column("degrees_of_freedom", ColumnType::I64, None, "points minus fitted parameters"),
-                column("points_used", ColumnType::I64, None, "points fitted"),
-                column("hall_factor", ColumnType::F64, None, "Hall scattering factor used"),
-                column("mobility_column", ColumnType::Str, None, "the mobility column fitted"),
-                column("relative_uncertainty_floor", ColumnType::F64, None, "the floor applied to relative uncertainties"),
-                column("temperature_uncertainty_used", ColumnType::Bool, None, "temperature uncertainties entered the weights"),
-                column("freeze_out_reference_m3", ColumnType::F64, Some("m3"), "the freeze-out fit's density compared with"),
-                column("freeze_out_reference_basis", ColumnType::Str, None, "which freeze-out density was compared with"),
-                column("density_ratio", ColumnType::F64, None, "N_I over the freeze-out reference, with _unc"),
-                column("deviation_sigma", ColumnType::F64, None, "deviation from the freeze-out reference in standard uncertainties"),
-                column("freeze_out_comparison", ColumnType::Str, None, "upper_limit when the comparison is a bound only"),
-                column("lattice_exponent", F64, None, "alpha of mu_L ~ T^-alpha, with _unc, _unc_stat and _unc_sys"),
-                column("lattice_mobility_300K_m2_per_Vs", F64, Some("m2_per_Vs"), "mu_L at 300 K, with _unc, _unc_stat and _unc_sys"),
-                column("ionized_impurity_density_m3", F64, Some("m3"), "N_I, with _unc, _unc_stat and _unc_sys"),
-                column("ionized_impurity_density_upper_limit_m3", F64, Some("m3"), "when the mobility does not determine N_I: the largest it allows"),
-                column("freeze_out_consistent", Bool, None, "the scattering and freeze-out counts agree"),
-                column("reduced_chi_square", F64, None, "chi^2 / nu"),
-                column("chi_square_p_value", F64, None, "P(chi^2_nu >= chi^2) of a weighted fit"),
-                column("birge_ratio", F64, None, "the factor the uncertainties were scaled by (1: not scaled)"),
-                column("floored_points", I64, None, "points whose uncertainty was raised to relative_uncertainty_floor"),
+                ColumnSpec::new("compensating_density_m3", ColumnType::F64, Some("m3"), "N_comp of the carriers-plus-compensation model, with _unc"),
+                ColumnSpec::new("compensating_density_upper_limit_m3", ColumnType::F64, Some("m3"), "upper limit of N_comp when it is not resolved"),
+                ColumnSpec::new("neutral_impurity_density_m3", ColumnType::F64, Some("m3"), "neutral impurity density when fitted, with _unc"),
+                ColumnSpec::new("constant_mobility_m2_per_Vs", ColumnType::F64, Some("m2_per_Vs"), "the constant mobility term when fitted, with _unc"),
+                ColumnSpec::new("carrier_type", ColumnType::Str, None, "n or p"),
+                ColumnSpec::new("formula", ColumnType::Str, None, "ionized-impurity formula used"),
+                ColumnSpec::new("lattice_exponent_fixed", ColumnType::Bool, None, "the lattice exponent was fixed, not fitted"),
+                ColumnSpec::new("weighted", ColumnType::Bool, None, "the fit used the stated uncertainties"),
+                ColumnSpec::new("weights_column", ColumnType::Str, None, "the column the weights came from"),
+                ColumnSpec::new("calibrations_not_stated", ColumnType::Str, None, "list of the calibrations not stated (their defaults were assumed)"),
+                ColumnSpec::new("degrees_of_freedom", ColumnType::I64, None, "points minus fitted parameters"),
+                ColumnSpec::new("points_used", ColumnType::I64, None, "points fitted"),
+                ColumnSpec::new("hall_factor", ColumnType::F64, None, "Hall scattering factor used"),
+                ColumnSpec::new("mobility_column", ColumnType::Str, None, "the mobility column fitted"),
+                ColumnSpec::new("relative_uncertainty_floor", ColumnType::F64, None, "the floor applied to relative uncertainties"),
+                ColumnSpec::new("temperature_uncertainty_used", ColumnType::Bool, None, "temperature uncertainties entered the weights"),
+                ColumnSpec::new("freeze_out_reference_m3", ColumnType::F64, Some("m3"), "the freeze-out fit's density compared with"),
+                ColumnSpec::new("freeze_out_reference_basis", ColumnType::Str, None, "which freeze-out density was compared with"),
+                ColumnSpec::new("density_ratio", ColumnType::F64, None, "N_I over the freeze-out reference, with _unc"),
+                ColumnSpec::new("deviation_sigma", ColumnType::F64, None, "deviation from the freeze-out reference in standard uncertainties"),
+                ColumnSpec::new("freeze_out_comparison", ColumnType::Str, None, "upper_limit when the comparison is a bound only"),
+                ColumnSpec::new("lattice_exponent", F64, None, "alpha of mu_L ~ T^-alpha, with _unc, _unc_stat and _unc_sys"),
+                ColumnSpec::new("lattice_mobility_300K_m2_per_Vs", F64, Some("m2_per_Vs"), "mu_L at 300 K, with _unc, _unc_stat and _unc_sys"),
+                ColumnSpec::new("ionized_impurity_density_m3", F64, Some("m3"), "N_I, with _unc, _unc_stat and _unc_sys"),
+                ColumnSpec::new("ionized_impurity_density_upper_limit_m3", F64, Some("m3"), "when the mobility does not determine N_I: the largest it allows"),
+                ColumnSpec::new("freeze_out_consistent", Bool, None, "the scattering and freeze-out counts agree"),
+                ColumnSpec::new("reduced_chi_square", F64, None, "chi^2 / nu"),
+                ColumnSpec::new("chi_square_p_value", F64, None, "P(chi^2_nu >= chi^2) of a weighted fit"),
+                ColumnSpec::new("birge_ratio", F64, None, "the factor the uncertainties were scaled by (1: not scaled)"),
+                ColumnSpec::new("floored_points", I64, None, "points whose uncertainty was raised to relative_uncertainty_floor"),
             ],
             figures: crate::figures::mobility_scattering(),
             ..Default::default()
@@ -321,28 +363,21 @@ impl Analysis for MobilityScatteringAnalysis {
                 other => invalid(other.to_string()),
             },
         )?;
-        let mut output = AnalysisOutput::new(fit_table(&fit)?);
-        fill_summary(
-            &mut output.summary,
-            &fit,
-            &settings,
-            carrier_type,
-            &series,
-            &mut warnings,
-        );
-        warnings.extend(fit.warnings.iter().cloned());
-        output.warnings = warnings;
+        let mut output = OutputBuilder::of::<Self>();
+        fit_table(&mut output, &fit);
+        fill_summary(&mut output, &fit, &settings, carrier_type, &series, &mut warnings);
+        output.warnings(warnings).warnings(fit.warnings.iter().cloned());
         host.progress(1.0, "done");
-        Ok(output)
+        output.finish(fit.rows.len())
     }
 }
 
 /// The series as read from the hall table: its points, the carrier types it states, and the
 /// budget of its mobility column.
-struct ScatteringSeries<'a> {
+struct ScatteringSeries {
     points: Vec<MobilityPoint>,
     types: Vec<Option<String>>,
-    mobility_column: &'a str,
+    mobility_column: &'static str,
     weight_column: Option<String>,
     mobility_scale_relative_unc: Option<f64>,
     density_scale_relative_unc: Option<f64>,
@@ -350,21 +385,21 @@ struct ScatteringSeries<'a> {
 
 /// Reading: the points of the hall table with their uncertainties, and the common
 /// calibration scales of the mobility and the density.
-fn read_series<'a>(
-    params: &'a ScatteringParams,
+fn read_series(
+    params: &ScatteringParams,
     hall: &DataFrame,
     warnings: &mut Vec<String>,
-) -> Result<ScatteringSeries<'a>, AnalysisError> {
+) -> Result<ScatteringSeries, AnalysisError> {
     let temperatures = sdk::float_column(hall, "temperature_K")?;
-    let mobility_column = params.mobility_column.as_deref().unwrap_or("hall_mobility_m2_per_Vs");
+    let mobility_column = params.mobility_column.name();
     let mobilities = sdk::float_column(hall, mobility_column)?;
     // The fit weights by the statistical part; a table without one (not from hall.reduce,
     // or from an older version) has its total taken as statistical.
     let (uncertainties, mobility_systematic, weight_column) =
         mobility_budget(hall, mobility_column, &mobilities, warnings)?;
-    let temperature_uncertainties = optional_floats(hall, "temperature_K_unc")?;
-    let densities = optional_floats(hall, "density_m3")?;
-    let density_systematic = optional_floats(hall, "density_m3_unc_sys")?;
+    let temperature_uncertainties = sdk::optional_float_column(hall, "temperature_K_unc")?;
+    let densities = sdk::optional_float_column(hall, "density_m3")?;
+    let density_systematic = sdk::optional_float_column(hall, "density_m3_unc_sys")?;
     // A calibration error is one scale for the whole series: its relative size, the
     // largest a row states (rows normally state the same).
     let common_scale = |values: &[Option<f64>], systematic: &[Option<f64>]| -> Option<f64> {
@@ -377,7 +412,7 @@ fn read_series<'a>(
     };
     let mobility_scale_relative_unc = common_scale(&mobilities, &mobility_systematic);
     let density_scale_relative_unc = common_scale(&densities, &density_systematic);
-    let types = optional_strings(hall, "carrier_type")?;
+    let types = sdk::optional_string_column(hall, "carrier_type")?;
     let mut points = Vec::new();
     for row in 0..hall.height() {
         let (Some(temperature_k), Some(mobility)) = (temperatures[row], mobilities[row]) else {
@@ -413,15 +448,20 @@ fn series_carrier_type(
     types: &[Option<String>],
     freeze_out: Option<&(DopantDensities, Option<CarrierType>)>,
 ) -> Result<CarrierType, AnalysisError> {
-    Ok(match parse_carrier_type(params.carrier_type.as_deref())? {
+    Ok(match params.carrier_type {
         Some(forced) => forced,
         None => {
-            let mut seen: Vec<&str> = types.iter().flatten().map(String::as_str).collect();
+            let mut seen: Vec<&str> = types
+                .iter()
+                .flatten()
+                .map(String::as_str)
+                .filter(|text| !text.is_empty())
+                .collect();
             seen.sort();
             seen.dedup();
             match seen.as_slice() {
                 [] => freeze_out.and_then(|(_, t)| *t).unwrap_or(CarrierType::N),
-                [one] => parse_carrier_type(Some(one))?.expect("parsed"),
+                [one] => table_carrier_type(Some(one), "the hall table")?.unwrap_or(CarrierType::N),
                 _ => {
                     return Err(invalid(
                         "the carrier type changes within the series; fit one type (temperature_min_K/temperature_max_K) or force carrier_type",
@@ -442,26 +482,10 @@ fn scattering_settings(
     warnings: &mut Vec<String>,
 ) -> Result<ScatteringSettings, AnalysisError> {
     let points = &series.points;
-    let material = resolve_material(&params.material, &params.material_overrides)?;
+    let material = params.material.resolve()?;
     let mut settings = ScatteringSettings::new(medium_for(&material, carrier_type));
-    settings.formula = match params.formula.as_deref() {
-        None | Some("brooks_herring") => IonizedImpurityFormula::BrooksHerring,
-        Some("conwell_weisskopf") => IonizedImpurityFormula::ConwellWeisskopf,
-        Some(other) => {
-            return Err(invalid(format!(
-                "formula `{other}` is unknown; use brooks_herring or conwell_weisskopf"
-            )))
-        }
-    };
-    settings.ionized_density = match params.ionized_density.as_deref() {
-        None | Some("constant") => IonizedDensityModel::Constant,
-        Some("carriers_plus_compensation") => IonizedDensityModel::CarriersPlusCompensation,
-        Some(other) => {
-            return Err(invalid(format!(
-                "ionized_density `{other}` is unknown; use constant or carriers_plus_compensation"
-            )))
-        }
-    };
+    settings.formula = params.formula;
+    settings.ionized_density = params.ionized_density;
     let have_densities = points.iter().all(|p| p.carrier_density_m3.is_some());
     settings.screening = match (freeze_out, have_densities) {
         (Some((densities, _)), true) => ScreeningDensity::Compensated {
@@ -471,10 +495,10 @@ fn scattering_settings(
         (_, true) => ScreeningDensity::MeasuredCarriers,
         (_, false) => ScreeningDensity::ImpurityDensity,
     };
-    settings.neutral = match params.neutral.as_deref() {
-        None | Some("none") => NeutralImpurityModel::None,
-        Some("fitted") => NeutralImpurityModel::FittedConstant,
-        Some("from_carriers") => match freeze_out {
+    settings.neutral = match params.neutral {
+        NeutralChoice::None => NeutralImpurityModel::None,
+        NeutralChoice::Fitted => NeutralImpurityModel::FittedConstant,
+        NeutralChoice::FromCarriers => match freeze_out {
             Some((densities, _)) => NeutralImpurityModel::FromCarrierDensity {
                 net_doping_m3: densities.dopant_density_m3 - densities.compensating_density_m3,
             },
@@ -484,32 +508,20 @@ fn scattering_settings(
                 ))
             }
         },
-        Some(other) => {
-            return Err(invalid(format!(
-                "neutral `{other}` is unknown; use none, fitted or from_carriers"
-            )))
-        }
     };
     settings.constant_term = params.constant_term;
-    if let Some(z) = params.charge_number {
-        settings.charge_number = z;
-    }
-    settings.hall_factor = hall_factor(params.hall_factor, params.hall_factor_scattering_exponent)?
+    settings.charge_number = params.charge_number;
+    settings.hall_factor = params
+        .hall_factor
+        .setting()?
         .value()
         .map_err(|e| invalid(e.to_string()))?;
-    let range = temperature_range(params.temperature_min_k, params.temperature_max_k)?;
+    let range = params.temperature_range.range()?;
     settings.temperature_min_k = range.map(|r| r.0);
     settings.temperature_max_k = range.and_then(|r| r.1.is_finite().then_some(r.1));
     settings.fixed_lattice_exponent = params.fixed_lattice_exponent;
-    if let Some(k) = params.consistency_sigma_multiple {
-        settings.tolerance.sigma_multiple = k;
-    }
-    if let Some(m) = params.model_relative_uncertainty {
-        settings.tolerance.model_relative_uncertainty = m;
-    }
-    if let Some(floor) = params.relative_uncertainty_floor {
-        settings.relative_uncertainty_floor = floor;
-    }
+    settings.tolerance = params.consistency.tolerance();
+    settings.relative_uncertainty_floor = params.relative_uncertainty_floor;
     settings.mobility_scale_relative_unc = series.mobility_scale_relative_unc;
     settings.density_scale_relative_unc = series.density_scale_relative_unc;
     let temperature_unc_given = points.iter().any(|point| point.temperature_unc_k.is_some());
@@ -524,88 +536,55 @@ fn scattering_settings(
 }
 
 /// The table: one row per point, with the fitted mobility, its parts and the residuals.
-fn fit_table(fit: &ScatteringFit) -> Result<DataFrame, AnalysisError> {
+fn fit_table(output: &mut OutputBuilder, fit: &ScatteringFit) {
     let rows = &fit.rows;
-    frame(
-        rows.len(),
-        vec![
-            float_series("temperature_K", rows.iter().map(|r| Some(r.temperature_k)).collect()),
-            Column::new(
-                "in_fit_range".into(),
-                rows.iter().map(|r| r.in_fit_range).collect::<Vec<bool>>(),
-            ),
-            float_series(
-                "mobility_m2_per_Vs",
-                rows.iter().map(|r| Some(r.mobility_data)).collect(),
-            ),
-            float_series(
-                "mobility_m2_per_Vs_unc",
-                rows.iter().map(|r| r.mobility_data_unc).collect(),
-            ),
-            float_series(
-                "fitted_mobility_m2_per_Vs",
-                rows.iter().map(|r| r.mobility_fit).collect(),
-            ),
-            float_series(
-                "lattice_mobility_m2_per_Vs",
-                rows.iter().map(|r| r.mobility_lattice).collect(),
-            ),
-            float_series(
-                "ionized_impurity_mobility_m2_per_Vs",
-                rows.iter().map(|r| r.mobility_ionized).collect(),
-            ),
-            float_series(
-                "neutral_impurity_mobility_m2_per_Vs",
-                rows.iter().map(|r| r.mobility_neutral).collect(),
-            ),
-            float_series(
-                "constant_mobility_m2_per_Vs",
-                rows.iter().map(|r| r.mobility_constant).collect(),
-            ),
-            float_series(
-                "ionized_density_m3",
-                rows.iter().map(|r| r.ionized_density_m3).collect(),
-            ),
-            float_series(
-                "screening_density_m3",
-                rows.iter().map(|r| r.screening_density_m3).collect(),
-            ),
-            float_series("log_residual", rows.iter().map(|r| r.log_residual).collect()),
-            float_series(
-                "normalized_residual",
-                rows.iter().map(|r| r.normalized_residual).collect(),
-            ),
-        ],
-    )
+    let nullable = |get: fn(&crate::scattering::ScatteringRow) -> Option<f64>| -> Vec<Option<f64>> {
+        rows.iter().map(get).collect()
+    };
+    output
+        .f64("temperature_K", rows.iter().map(|r| r.temperature_k).collect())
+        .bool("in_fit_range", rows.iter().map(|r| r.in_fit_range).collect())
+        .f64("mobility_m2_per_Vs", rows.iter().map(|r| r.mobility_data).collect())
+        .f64_nullable("mobility_m2_per_Vs_unc", nullable(|r| r.mobility_data_unc))
+        .f64_nullable("fitted_mobility_m2_per_Vs", nullable(|r| r.mobility_fit))
+        .f64_nullable("lattice_mobility_m2_per_Vs", nullable(|r| r.mobility_lattice))
+        .f64_nullable("ionized_impurity_mobility_m2_per_Vs", nullable(|r| r.mobility_ionized))
+        .f64_nullable("neutral_impurity_mobility_m2_per_Vs", nullable(|r| r.mobility_neutral))
+        .f64_nullable("constant_mobility_m2_per_Vs", nullable(|r| r.mobility_constant))
+        .f64_nullable("ionized_density_m3", nullable(|r| r.ionized_density_m3))
+        .f64_nullable("screening_density_m3", nullable(|r| r.screening_density_m3))
+        .f64_nullable("log_residual", nullable(|r| r.log_residual))
+        .f64_nullable("normalized_residual", nullable(|r| r.normalized_residual));
 }
 
 /// The summary: the fitted parameters with their budgets, the fit quality, and the
 /// comparison with the freeze-out count (a warning when they disagree).
 fn fill_summary(
-    summary: &mut serde_json::Map<String, Value>,
+    output: &mut OutputBuilder,
     fit: &ScatteringFit,
     settings: &ScatteringSettings,
     carrier_type: CarrierType,
     series: &ScatteringSeries,
     warnings: &mut Vec<String>,
 ) {
-    summary.insert("carrier_type".into(), json!(carrier_type.as_str()));
-    summary.insert("formula".into(), json!(fit.formula.name()));
-    insert_estimate(
-        summary,
+    output
+        .summary("carrier_type", carrier_type.as_str())
+        .summary("formula", fit.formula.name());
+    summary_estimate(
+        output,
         "lattice_exponent",
         fit.lattice_exponent.value,
         fit.lattice_exponent.uncertainty,
     );
-    summary.insert("lattice_exponent_fixed".into(), json!(fit.lattice_exponent_fixed));
-    insert_estimate(
-        summary,
+    output.summary("lattice_exponent_fixed", fit.lattice_exponent_fixed);
+    summary_estimate(
+        output,
         "lattice_mobility_300K_m2_per_Vs",
         fit.lattice_mobility_300k_m2_per_vs.value,
         fit.lattice_mobility_300k_m2_per_vs.uncertainty,
     );
-    insert_estimate(
-        summary,
+    summary_estimate(
+        output,
         "ionized_impurity_density_m3",
         fit.ionized_impurity_density_m3.value,
         fit.ionized_impurity_density_m3.uncertainty,
@@ -615,61 +594,59 @@ fn fill_summary(
             IonizedDensityModel::Constant => "ionized_impurity_density_upper_limit_m3",
             IonizedDensityModel::CarriersPlusCompensation => "compensating_density_upper_limit_m3",
         };
-        summary.insert(name.into(), json!(limit));
+        output.summary(name, limit);
     }
     if let Some(estimate) = fit.compensating_density_m3 {
-        insert_estimate(summary, "compensating_density_m3", estimate.value, estimate.uncertainty);
+        summary_estimate(output, "compensating_density_m3", estimate.value, estimate.uncertainty);
     }
     if let Some(estimate) = fit.neutral_impurity_density_m3 {
-        insert_estimate(
-            summary,
+        summary_estimate(
+            output,
             "neutral_impurity_density_m3",
             estimate.value,
             estimate.uncertainty,
         );
     }
     if let Some(estimate) = fit.constant_mobility_m2_per_vs {
-        insert_estimate(
-            summary,
+        summary_estimate(
+            output,
             "constant_mobility_m2_per_Vs",
             estimate.value,
             estimate.uncertainty,
         );
     }
     for (name, split) in &fit.budget {
-        summary.insert(format!("{name}_unc_stat"), json!(split.statistical));
-        summary.insert(format!("{name}_unc_sys"), json!(split.systematic));
+        output
+            .summary(&format!("{name}_unc_stat"), split.statistical)
+            .summary(&format!("{name}_unc_sys"), split.systematic);
     }
-    let finite = |value: f64| if value.is_finite() { json!(value) } else { Value::Null };
+    // Not-finite goodness values (an unweighted or exactly determined fit) are written null.
+    let finite = |value: f64| value.is_finite().then_some(value);
     let goodness = &fit.goodness;
-    summary.insert("reduced_chi_square".into(), finite(goodness.reduced_chi_square));
-    summary.insert("chi_square_p_value".into(), finite(goodness.p_value));
-    summary.insert("birge_ratio".into(), finite(goodness.birge_ratio));
-    summary.insert("weighted".into(), json!(goodness.weighted));
-    summary.insert("weights_column".into(), json!(series.weight_column));
-    summary.insert("floored_points".into(), json!(goodness.floored_points));
-    summary.insert(
-        "relative_uncertainty_floor".into(),
-        json!(settings.relative_uncertainty_floor),
-    );
-    summary.insert(
-        "temperature_uncertainty_used".into(),
-        json!(goodness.temperature_uncertainty_used),
-    );
-    summary.insert("calibrations_not_stated".into(), json!(fit.calibrations_not_stated));
-    summary.insert("degrees_of_freedom".into(), json!(goodness.degrees_of_freedom));
-    summary.insert("points_used".into(), json!(fit.points_used));
-    summary.insert("hall_factor".into(), json!(fit.hall_factor));
-    summary.insert("mobility_column".into(), json!(series.mobility_column));
+    output
+        .summary("reduced_chi_square", finite(goodness.reduced_chi_square))
+        .summary("chi_square_p_value", finite(goodness.p_value))
+        .summary("birge_ratio", finite(goodness.birge_ratio))
+        .summary("weighted", goodness.weighted)
+        .summary("weights_column", &series.weight_column)
+        .summary("floored_points", goodness.floored_points)
+        .summary("relative_uncertainty_floor", settings.relative_uncertainty_floor)
+        .summary("temperature_uncertainty_used", goodness.temperature_uncertainty_used)
+        .summary("calibrations_not_stated", &fit.calibrations_not_stated)
+        .summary("degrees_of_freedom", goodness.degrees_of_freedom)
+        .summary("points_used", fit.points_used)
+        .summary("hall_factor", fit.hall_factor)
+        .summary("mobility_column", series.mobility_column);
     if let Some(comparison) = &fit.comparison {
-        summary.insert("freeze_out_reference_m3".into(), json!(comparison.reference.value));
-        summary.insert("freeze_out_reference_basis".into(), json!(comparison.basis.name()));
-        summary.insert("density_ratio".into(), json!(comparison.ratio));
-        summary.insert("density_ratio_unc".into(), json!(comparison.ratio_unc));
-        summary.insert("deviation_sigma".into(), json!(comparison.deviation_sigma));
-        summary.insert("freeze_out_consistent".into(), json!(comparison.consistent));
+        output
+            .summary("freeze_out_reference_m3", comparison.reference.value)
+            .summary("freeze_out_reference_basis", comparison.basis.name())
+            .summary("density_ratio", comparison.ratio)
+            .summary("density_ratio_unc", comparison.ratio_unc)
+            .summary("deviation_sigma", comparison.deviation_sigma)
+            .summary("freeze_out_consistent", comparison.consistent);
         if comparison.upper_limit_m3.is_some() {
-            summary.insert("freeze_out_comparison".into(), json!("upper_limit"));
+            output.summary("freeze_out_comparison", "upper_limit");
         }
         if !comparison.consistent {
             warnings.push(format!(
@@ -688,8 +665,10 @@ fn fill_summary(
 mod tests {
     use super::*;
     use crate::scattering::{evaluate_model, ScatteringParameters};
+    use mobilis_numerics::fit::RELATIVE_UNCERTAINTY_FLOOR;
     use mobilis_numerics::noise::Rng;
     use mobilis_sdk::sdk::run_typed;
+    use serde_json::json;
 
     /// A hall table of n-Si mobilities from 30 to 400 K (Brooks-Herring on 1e16 cm^-3, a
     /// lattice law of 1448 (T/300)^-2.33 cm^2/Vs; invented test input), with 0.5 %

@@ -1,165 +1,263 @@
-//! Table glue of the carriers analyses: reading the `hall` role and the summary tables of
-//! earlier fits, parsing the shared parameters (material, carrier type, Hall factor), and the
-//! small helpers that write output tables and summaries.
+//! Table glue of the carriers analyses: the parameter groups they share (material, carrier
+//! type, Hall factor, temperature range, uncertainty budget, consistency tolerance), each a
+//! typed struct flattened into the analyses' parameters, and reading the `hall` role.
 
 pub mod arrhenius_fit;
 pub mod freeze_out_fit;
 pub mod mobility_scattering;
 pub mod purity_summary;
 
-use crate::freeze_out::{CarrierType, DensityPoint, HallFactor};
-use crate::materials::{Material, MaterialOverrides, PRESET_NAMES};
-use mobilis_sdk::abi::{ColumnSpec, ColumnType};
-use mobilis_sdk::sdk::{self, AnalysisError};
+#[cfg(test)]
+mod params_tests;
+
+use crate::carrier_type::CarrierType;
+use crate::freeze_out::{DensityPoint, HallFactor};
+use crate::materials::{Material, MaterialOverrides, MaterialPreset};
+use crate::purity::ConsistencyTolerance;
+use mobilis_numerics::fit::RELATIVE_UNCERTAINTY_FLOOR;
+use mobilis_sdk::sdk::{self, invalid, AnalysisError, OutputBuilder};
 use polars::prelude::*;
+use schemars::JsonSchema;
 use serde::Deserialize;
-use serde_json::{json, Value};
 
-pub(crate) fn invalid(message: impl Into<String>) -> AnalysisError {
-    AnalysisError::InvalidInput(message.into())
+/// The material whose constants a fit uses: a preset, with any of its values replaced.
+#[derive(Debug, Default, Deserialize, JsonSchema)]
+pub struct MaterialParams {
+    /// material preset (band parameters, permittivity, masses); every value can be overridden
+    #[serde(default)]
+    pub material: MaterialPreset,
+    /// replace preset values (SI units)
+    #[serde(default)]
+    pub material_overrides: MaterialOverrideParams,
 }
 
-pub(crate) fn column(name: &str, dtype: ColumnType, unit: Option<&str>, description: &str) -> ColumnSpec {
-    ColumnSpec::new(name, dtype, unit, description)
-}
-
-/// The JSON Schema of the material parameters shared by the carriers analyses.
-pub(crate) fn material_schema_properties() -> serde_json::Map<String, Value> {
-    let positive = |description: &str| json!({"type": "number", "exclusiveMinimum": 0, "description": description});
-    let mut properties = serde_json::Map::new();
-    properties.insert(
-        "material".into(),
-        json!({"type": "string", "enum": PRESET_NAMES, "default": "Si", "description": "material preset (band parameters, permittivity, masses); every value can be overridden"}),
-    );
-    properties.insert(
-        "material_overrides".into(),
-        json!({
-            "type": "object",
-            "additionalProperties": false,
-            "description": "replace preset values (SI units)",
-            "properties": {
-                "conduction_dos_300K_m3": positive("conduction-band effective density of states at 300 K, m^-3"),
-                "valence_dos_300K_m3": positive("valence-band effective density of states at 300 K, m^-3"),
-                "band_gap_0K_eV": positive("Varshni Eg(0), eV"),
-                "varshni_alpha_eV_per_K": {"type": "number", "minimum": 0, "description": "Varshni alpha, eV/K"},
-                "varshni_beta_K": {"type": "number", "minimum": 0, "description": "Varshni beta, K"},
-                "relative_permittivity": positive("static relative permittivity"),
-                "electron_conductivity_mass_ratio": positive("electron conductivity mass / m0"),
-                "hole_conductivity_mass_ratio": positive("hole conductivity mass / m0")
-            }
-        }),
-    );
-    properties.insert(
-        "carrier_type".into(),
-        json!({"type": ["string", "null"], "enum": ["n", "p", null], "default": null, "description": "force n or p; default: from the data's carrier_type column"}),
-    );
-    properties.insert(
-        "hall_factor".into(),
-        json!({"type": "number", "exclusiveMinimum": 0, "description": "apply a constant Hall factor r_H before fitting (n = r_H n_H, mu = mu_H / r_H); default 1: use the values as given (hall.reduce already applies the sample sheet's factor)"}),
-    );
-    properties.insert(
-        "hall_factor_scattering_exponent".into(),
-        json!({"type": "number", "description": "instead of hall_factor: r_H of a relaxation time tau ~ E^s (s = -0.5 acoustic phonons, 1.5 ionized impurities; Putley 1960)"}),
-    );
-    properties.insert(
-        "temperature_min_K".into(),
-        json!({"type": "number", "exclusiveMinimum": 0, "description": "use only points at or above this temperature"}),
-    );
-    properties.insert(
-        "temperature_max_K".into(),
-        json!({"type": "number", "exclusiveMinimum": 0, "description": "use only points at or below this temperature"}),
-    );
-    properties
-}
-
-/// `material_overrides`: values replacing the preset's.
-#[derive(Debug, Default, Deserialize, schemars::JsonSchema)]
-#[serde(deny_unknown_fields)]
-pub(crate) struct MaterialOverrideParams {
-    #[serde(rename = "conduction_dos_300K_m3")]
-    conduction_dos_300k_m3: Option<f64>,
-    #[serde(rename = "valence_dos_300K_m3")]
-    valence_dos_300k_m3: Option<f64>,
-    #[serde(rename = "band_gap_0K_eV")]
-    band_gap_0k_ev: Option<f64>,
-    #[serde(rename = "varshni_alpha_eV_per_K")]
-    varshni_alpha_ev_per_k: Option<f64>,
-    #[serde(rename = "varshni_beta_K")]
-    varshni_beta_k: Option<f64>,
-    relative_permittivity: Option<f64>,
-    electron_conductivity_mass_ratio: Option<f64>,
-    hole_conductivity_mass_ratio: Option<f64>,
-}
-
-/// Resolves a preset name and overrides into a material.
-pub(crate) fn resolve_material(name: &str, overrides: &MaterialOverrideParams) -> Result<Material, AnalysisError> {
-    let preset = Material::preset(name).map_err(|e| invalid(e.to_string()))?;
-    preset
-        .with_overrides(&MaterialOverrides {
-            conduction_dos_300k_m3: overrides.conduction_dos_300k_m3,
-            valence_dos_300k_m3: overrides.valence_dos_300k_m3,
-            band_gap_0k_ev: overrides.band_gap_0k_ev,
-            varshni_alpha_ev_per_k: overrides.varshni_alpha_ev_per_k,
-            varshni_beta_k: overrides.varshni_beta_k,
-            relative_permittivity: overrides.relative_permittivity,
-            electron_conductivity_mass_ratio: overrides.electron_conductivity_mass_ratio,
-            hole_conductivity_mass_ratio: overrides.hole_conductivity_mass_ratio,
-            ..MaterialOverrides::default()
-        })
-        .map_err(|e| invalid(e.to_string()))
-}
-
-pub(crate) fn parse_carrier_type(text: Option<&str>) -> Result<Option<CarrierType>, AnalysisError> {
-    match text {
-        None => Ok(None),
-        Some(t) => CarrierType::parse(t)
-            .map(Some)
-            .ok_or_else(|| invalid(format!("carrier_type `{t}` is unknown; use n or p"))),
+impl MaterialParams {
+    /// The preset with the overrides applied; an override out of range names its field.
+    pub(crate) fn resolve(&self) -> Result<Material, AnalysisError> {
+        let given = &self.material_overrides;
+        self.material
+            .material()
+            .with_overrides(&MaterialOverrides {
+                conduction_dos_300k_m3: given.conduction_dos_300k_m3,
+                valence_dos_300k_m3: given.valence_dos_300k_m3,
+                band_gap_0k_ev: given.band_gap_0k_ev,
+                varshni_alpha_ev_per_k: given.varshni_alpha_ev_per_k,
+                varshni_beta_k: given.varshni_beta_k,
+                relative_permittivity: given.relative_permittivity,
+                electron_conductivity_mass_ratio: given.electron_conductivity_mass_ratio,
+                hole_conductivity_mass_ratio: given.hole_conductivity_mass_ratio,
+                ..MaterialOverrides::default()
+            })
+            .map_err(|e| invalid(e.to_string()))
     }
 }
 
-pub(crate) fn hall_factor(constant: Option<f64>, exponent: Option<f64>) -> Result<HallFactor, AnalysisError> {
-    match (constant, exponent) {
-        (Some(_), Some(_)) => Err(invalid(
+/// `material_overrides`: values replacing the preset's; each one not given keeps the preset's.
+#[derive(Debug, Default, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct MaterialOverrideParams {
+    /// conduction-band effective density of states at 300 K, m^-3
+    #[serde(rename = "conduction_dos_300K_m3", default)]
+    #[schemars(extend("exclusiveMinimum" = 0))]
+    pub conduction_dos_300k_m3: Option<f64>,
+    /// valence-band effective density of states at 300 K, m^-3
+    #[serde(rename = "valence_dos_300K_m3", default)]
+    #[schemars(extend("exclusiveMinimum" = 0))]
+    pub valence_dos_300k_m3: Option<f64>,
+    /// Varshni Eg(0), eV
+    #[serde(rename = "band_gap_0K_eV", default)]
+    #[schemars(extend("exclusiveMinimum" = 0))]
+    pub band_gap_0k_ev: Option<f64>,
+    /// Varshni alpha, eV/K
+    #[serde(rename = "varshni_alpha_eV_per_K", default)]
+    #[schemars(range(min = 0))]
+    pub varshni_alpha_ev_per_k: Option<f64>,
+    /// Varshni beta, K
+    #[serde(rename = "varshni_beta_K", default)]
+    #[schemars(range(min = 0))]
+    pub varshni_beta_k: Option<f64>,
+    /// static relative permittivity
+    #[serde(default)]
+    #[schemars(extend("exclusiveMinimum" = 0))]
+    pub relative_permittivity: Option<f64>,
+    /// electron conductivity mass / m0
+    #[serde(default)]
+    #[schemars(extend("exclusiveMinimum" = 0))]
+    pub electron_conductivity_mass_ratio: Option<f64>,
+    /// hole conductivity mass / m0
+    #[serde(default)]
+    #[schemars(extend("exclusiveMinimum" = 0))]
+    pub hole_conductivity_mass_ratio: Option<f64>,
+}
+
+/// The Hall factor of the density fits: each given one *replaces* the factor `hall.reduce`
+/// applied (its `hall_factor` column), n = n_given r_H(T) / r_applied.
+#[derive(Debug, Default, Deserialize, JsonSchema)]
+pub struct DensityHallFactorParams {
+    /// a constant Hall factor r_H replacing the one already applied to the densities (the
+    /// hall_factor column of hall.reduce, 1 without it): n = n_given r_H / r_applied; default:
+    /// the densities as given
+    #[serde(default)]
+    #[schemars(extend("exclusiveMinimum" = 0))]
+    pub hall_factor: Option<f64>,
+    /// instead of hall_factor: r_H of a relaxation time tau ~ E^s (s = -0.5 acoustic phonons,
+    /// 1.5 ionized impurities; Putley 1960), replacing the applied factor
+    #[serde(default)]
+    pub hall_factor_scattering_exponent: Option<f64>,
+    /// instead of hall_factor: r_H(T) as [temperature_K, hall_factor] pairs, linear in T
+    /// between them and the end values beyond; replaces the factor hall.reduce applied (its
+    /// hall_factor column)
+    #[serde(default)]
+    #[schemars(length(min = 1), extend("items" = {"type": "array", "items": {"type": "number", "exclusiveMinimum": 0}, "minItems": 2, "maxItems": 2}))]
+    pub hall_factor_table: Option<Vec<[f64; 2]>>,
+}
+
+impl DensityHallFactorParams {
+    pub(crate) fn setting(&self) -> Result<HallFactor, AnalysisError> {
+        hall_factor_setting(
+            self.hall_factor,
+            self.hall_factor_scattering_exponent,
+            self.hall_factor_table.as_deref(),
+        )
+    }
+}
+
+/// The Hall factor of the scattering fit, which divides the Hall mobilities by it.
+#[derive(Debug, Default, Deserialize, JsonSchema)]
+pub struct MobilityHallFactorParams {
+    /// apply a constant Hall factor r_H before fitting (n = r_H n_H, mu = mu_H / r_H); default
+    /// 1: use the values as given (hall.reduce already applies the sample sheet's factor)
+    #[serde(default)]
+    #[schemars(extend("exclusiveMinimum" = 0))]
+    pub hall_factor: Option<f64>,
+    /// instead of hall_factor: r_H of a relaxation time tau ~ E^s (s = -0.5 acoustic phonons,
+    /// 1.5 ionized impurities; Putley 1960)
+    #[serde(default)]
+    pub hall_factor_scattering_exponent: Option<f64>,
+}
+
+impl MobilityHallFactorParams {
+    pub(crate) fn setting(&self) -> Result<HallFactor, AnalysisError> {
+        hall_factor_setting(self.hall_factor, self.hall_factor_scattering_exponent, None)
+    }
+}
+
+/// The rule of every Hall-factor group: one of `hall_factor`,
+/// `hall_factor_scattering_exponent` and `hall_factor_table` at most.
+fn hall_factor_setting(
+    constant: Option<f64>,
+    exponent: Option<f64>,
+    table: Option<&[[f64; 2]]>,
+) -> Result<HallFactor, AnalysisError> {
+    match (constant, exponent, table) {
+        (None, None, None) => Ok(HallFactor::Unity),
+        (Some(value), None, None) => Ok(HallFactor::Constant(value)),
+        (None, Some(exponent), None) => Ok(HallFactor::ScatteringExponent(exponent)),
+        (None, None, Some(table)) => Ok(HallFactor::Table(table.iter().map(|pair| (pair[0], pair[1])).collect())),
+        (_, _, None) => Err(invalid(
             "give either hall_factor or hall_factor_scattering_exponent, not both",
         )),
-        (Some(value), None) => Ok(HallFactor::Constant(value)),
-        (None, Some(exponent)) => Ok(HallFactor::ScatteringExponent(exponent)),
-        (None, None) => Ok(HallFactor::Unity),
+        _ => Err(invalid(
+            "give one of hall_factor, hall_factor_scattering_exponent and hall_factor_table, not several",
+        )),
     }
 }
 
-pub(crate) fn temperature_range(min: Option<f64>, max: Option<f64>) -> Result<Option<(f64, f64)>, AnalysisError> {
-    match (min, max) {
-        (None, None) => Ok(None),
-        (min, max) => {
-            let range = (min.unwrap_or(0.0), max.unwrap_or(f64::INFINITY));
-            if range.0 > range.1 {
-                return Err(invalid(format!(
-                    "temperature_min_K {} is above temperature_max_K {}; give min <= max",
-                    range.0, range.1
-                )));
+/// The temperatures fitted: every point when neither bound is given.
+#[derive(Debug, Default, Deserialize, JsonSchema)]
+pub struct TemperatureRangeParams {
+    /// use only points at or above this temperature
+    #[serde(rename = "temperature_min_K", default)]
+    #[schemars(extend("exclusiveMinimum" = 0))]
+    pub temperature_min_k: Option<f64>,
+    /// use only points at or below this temperature
+    #[serde(rename = "temperature_max_K", default)]
+    #[schemars(extend("exclusiveMinimum" = 0))]
+    pub temperature_max_k: Option<f64>,
+}
+
+impl TemperatureRangeParams {
+    /// `None` without bounds; an open side is 0 or infinity.
+    pub(crate) fn range(&self) -> Result<Option<(f64, f64)>, AnalysisError> {
+        match (self.temperature_min_k, self.temperature_max_k) {
+            (None, None) => Ok(None),
+            (min, max) => {
+                let range = (min.unwrap_or(0.0), max.unwrap_or(f64::INFINITY));
+                if range.0 > range.1 {
+                    return Err(invalid(format!(
+                        "temperature_min_K {} is above temperature_max_K {}; give min <= max",
+                        range.0, range.1
+                    )));
+                }
+                Ok(Some(range))
             }
-            Ok(Some(range))
         }
     }
 }
 
-/// An optional float column (absent: all `None`).
-pub(crate) fn optional_floats(frame: &DataFrame, name: &str) -> Result<Vec<Option<f64>>, AnalysisError> {
-    if frame.column(name).is_ok() {
-        sdk::float_column(frame, name)
-    } else {
-        Ok(vec![None; frame.height()])
+/// The uncertainty budget of the temperature-series density fits (freeze-out and
+/// Arrhenius): the Hall factor, the floor of the statistical weights, and the temperature's
+/// uncertainty where the table does not give one.
+#[derive(Debug, Deserialize, JsonSchema)]
+pub struct BudgetParams {
+    #[serde(flatten)]
+    pub hall_factor: DensityHallFactorParams,
+    /// smallest relative statistical density uncertainty a point keeps, so that no point pins
+    /// the fit
+    #[serde(default = "relative_uncertainty_floor")]
+    #[schemars(range(min = 0), extend("exclusiveMaximum" = 1))]
+    pub relative_uncertainty_floor: f64,
+    /// standard uncertainty of the temperature for rows without temperature_K_unc, K;
+    /// default: not given (0)
+    #[serde(rename = "temperature_uncertainty_K", default)]
+    #[schemars(range(min = 0))]
+    pub temperature_uncertainty_k: Option<f64>,
+}
+
+/// The comparison of two impurity counts (the scattering fit's and the freeze-out fit's).
+#[derive(Debug, Deserialize, JsonSchema)]
+pub struct ConsistencyParams {
+    /// the two impurity counts agree within this many combined standard uncertainties
+    /// (common practice: 2)
+    #[serde(default = "ConsistencyParams::sigma_multiple")]
+    #[schemars(extend("exclusiveMinimum" = 0))]
+    pub consistency_sigma_multiple: f64,
+    /// relative uncertainty allowed for the scattering theory itself in the comparison
+    #[serde(default = "ConsistencyParams::model_relative_uncertainty")]
+    #[schemars(range(min = 0))]
+    pub model_relative_uncertainty: f64,
+}
+
+/// The defaults are those of [`ConsistencyTolerance`], so they are stated once.
+impl ConsistencyParams {
+    fn sigma_multiple() -> f64 {
+        ConsistencyTolerance::default().sigma_multiple
+    }
+    fn model_relative_uncertainty() -> f64 {
+        ConsistencyTolerance::default().model_relative_uncertainty
+    }
+
+    pub(crate) fn tolerance(&self) -> ConsistencyTolerance {
+        ConsistencyTolerance {
+            sigma_multiple: self.consistency_sigma_multiple,
+            model_relative_uncertainty: self.model_relative_uncertainty,
+        }
     }
 }
 
-/// An optional text column (absent: all `None`).
-pub(crate) fn optional_strings(frame: &DataFrame, name: &str) -> Result<Vec<Option<String>>, AnalysisError> {
-    if frame.column(name).is_ok() {
-        sdk::string_column(frame, name)
-    } else {
-        Ok(vec![None; frame.height()])
+/// The floor every fit of this plugin defaults to (`mobilis_numerics::fit`).
+fn relative_uncertainty_floor() -> f64 {
+    RELATIVE_UNCERTAINTY_FLOOR
+}
+
+/// A carrier type read from a table cell: empty is "not stated", anything but n or p is the
+/// table's error, named with `what` (which table and row).
+pub(crate) fn table_carrier_type(text: Option<&str>, what: &str) -> Result<Option<CarrierType>, AnalysisError> {
+    match text {
+        None | Some("") => Ok(None),
+        Some(text) => CarrierType::parse(text)
+            .map(Some)
+            .ok_or_else(|| invalid(format!("{what}: carrier_type `{text}` is unknown; use n or p"))),
     }
 }
 
@@ -175,27 +273,20 @@ pub(crate) fn density_points(hall: &DataFrame, warnings: &mut Vec<String>) -> Re
     let densities = sdk::float_column(hall, "density_m3")?;
     let has_budget = hall.column("density_m3_unc_stat").is_ok();
     let statistical = if has_budget {
-        optional_floats(hall, "density_m3_unc_stat")?
+        sdk::optional_float_column(hall, "density_m3_unc_stat")?
     } else {
-        optional_floats(hall, "density_m3_unc")?
+        sdk::optional_float_column(hall, "density_m3_unc")?
     };
-    let systematic = optional_floats(hall, "density_m3_unc_sys")?;
-    let temperature_unc = optional_floats(hall, "temperature_K_unc")?;
-    let applied_hall_factor = optional_floats(hall, "hall_factor")?;
-    let types = optional_strings(hall, "carrier_type")?;
+    let systematic = sdk::optional_float_column(hall, "density_m3_unc_sys")?;
+    let temperature_unc = sdk::optional_float_column(hall, "temperature_K_unc")?;
+    let applied_hall_factor = sdk::optional_float_column(hall, "hall_factor")?;
+    let types = sdk::optional_string_column(hall, "carrier_type")?;
     let mut points = Vec::with_capacity(hall.height());
     let mut skipped = 0;
     for row in 0..hall.height() {
         let (Some(temperature_k), Some(density_m3)) = (temperatures[row], densities[row]) else {
             skipped += 1;
             continue;
-        };
-        let carrier_type = match types[row].as_deref() {
-            None | Some("") => None,
-            Some(text) => Some(
-                CarrierType::parse(text)
-                    .ok_or_else(|| invalid(format!("row {row}: carrier_type `{text}` is unknown; use n or p")))?,
-            ),
         };
         points.push(DensityPoint {
             temperature_k,
@@ -204,7 +295,7 @@ pub(crate) fn density_points(hall: &DataFrame, warnings: &mut Vec<String>) -> Re
             density_unc_sys_m3: systematic[row],
             temperature_unc_k: temperature_unc[row],
             applied_hall_factor: applied_hall_factor[row],
-            carrier_type,
+            carrier_type: table_carrier_type(types[row].as_deref(), &format!("row {row}"))?,
         });
     }
     if skipped > 0 {
@@ -219,22 +310,7 @@ pub(crate) fn density_points(hall: &DataFrame, warnings: &mut Vec<String>) -> Re
     Ok(points)
 }
 
-/// Inserts `name` and `name_unc` into a summary.
-pub(crate) fn insert_estimate(
-    summary: &mut serde_json::Map<String, Value>,
-    name: &str,
-    value: f64,
-    uncertainty: Option<f64>,
-) {
-    summary.insert(name.into(), json!(value));
-    summary.insert(format!("{name}_unc"), json!(uncertainty));
-}
-
-/// A nullable float column.
-pub(crate) fn float_series(name: &str, values: Vec<Option<f64>>) -> Column {
-    Column::new(PlSmallStr::from_str(name), values)
-}
-
-pub(crate) fn frame(height: usize, columns: Vec<Column>) -> Result<DataFrame, AnalysisError> {
-    DataFrame::new(height, columns).map_err(|e| AnalysisError::Numerical(e.to_string()))
+/// Sets summary keys `name` and `name_unc`.
+pub(crate) fn summary_estimate(output: &mut OutputBuilder, name: &str, value: f64, uncertainty: Option<f64>) {
+    output.summary(name, value).summary(&format!("{name}_unc"), uncertainty);
 }

@@ -15,22 +15,17 @@
 use super::mobility_scattering::{freeze_out_densities, freeze_out_role};
 use super::*;
 use crate::materials::{dopant_levels, matching_dopant_levels};
-use crate::purity::{
-    summarize_purity, ConsistencyTolerance, DensityComparison, Estimate, PurityInput, ReferenceBasis,
-    ScatteringDensities,
-};
-use mobilis_sdk::abi::{AnalysisDeclaration, InputRole};
+use crate::purity::{summarize_purity, DensityComparison, Estimate, PurityInput, ReferenceBasis, ScatteringDensities};
+use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
 use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 
 pub struct PurityAnalysis;
 
-#[derive(Debug, Deserialize, schemars::JsonSchema)]
-#[serde(deny_unknown_fields)]
+/// Parameters of `carriers.purity`: the tolerance of the comparison of the two counts.
+#[derive(Debug, Deserialize, JsonSchema)]
 pub struct PurityParams {
-    #[serde(default)]
-    consistency_sigma_multiple: Option<f64>,
-    #[serde(default)]
-    model_relative_uncertainty: Option<f64>,
+    #[serde(flatten)]
+    pub consistency: ConsistencyParams,
 }
 
 fn estimate(value: Option<f64>, uncertainty: Option<f64>) -> Option<Estimate> {
@@ -39,7 +34,7 @@ fn estimate(value: Option<f64>, uncertainty: Option<f64>) -> Option<Estimate> {
 
 /// The scattering densities of one sample from the summary table of `carriers.mobility_scattering`.
 fn scattering_densities(table: &DataFrame, sample: Option<&str>) -> Result<Option<ScatteringDensities>, AnalysisError> {
-    let samples = optional_strings(table, "sample")?;
+    let samples = sdk::optional_string_column(table, "sample")?;
     let row = match sample {
         Some(name) if samples.iter().any(|s| s.is_some()) => {
             match samples.iter().position(|s| s.as_deref() == Some(name)) {
@@ -54,7 +49,8 @@ fn scattering_densities(table: &DataFrame, sample: Option<&str>) -> Result<Optio
             ))
         }
     };
-    let value = |name: &str| -> Result<Option<f64>, AnalysisError> { Ok(optional_floats(table, name)?[row]) };
+    let value =
+        |name: &str| -> Result<Option<f64>, AnalysisError> { Ok(sdk::optional_float_column(table, name)?[row]) };
     let Some(ionized) = estimate(
         value("ionized_impurity_density_m3")?,
         value("ionized_impurity_density_m3_unc")?,
@@ -67,7 +63,7 @@ fn scattering_densities(table: &DataFrame, sample: Option<&str>) -> Result<Optio
     } else {
         None
     };
-    let basis = match optional_strings(table, "freeze_out_reference_basis")?[row].as_deref() {
+    let basis = match sdk::optional_string_column(table, "freeze_out_reference_basis")?[row].as_deref() {
         Some("total_impurities") => ReferenceBasis::TotalImpurities,
         Some("compensating_density") => ReferenceBasis::CompensatingDensity,
         _ => ReferenceBasis::IonizedAtFitTemperatures,
@@ -124,30 +120,39 @@ impl Analysis for PurityAnalysis {
 
     fn declaration() -> AnalysisDeclaration {
         use ColumnType::*;
-        let tolerance = ConsistencyTolerance::default();
         let mut outputs = vec![
-            column("sample", Str, None, "sample name"),
-            column("carrier_type", Str, None, "n or p"),
+            ColumnSpec::new("sample", Str, None, "sample name"),
+            ColumnSpec::new("carrier_type", Str, None, "n or p"),
         ];
         for (name, description) in ESTIMATE_COLUMNS {
             let unit = name.ends_with("_m3").then_some("m3");
-            outputs.push(column(name, F64, unit, description));
-            outputs.push(column(&format!("{name}_unc"), F64, unit, "standard uncertainty"));
+            outputs.push(ColumnSpec::new(name, F64, unit, description));
+            outputs.push(ColumnSpec::new(
+                &format!("{name}_unc"),
+                F64,
+                unit,
+                "standard uncertainty",
+            ));
         }
-        outputs.push(column(
+        outputs.push(ColumnSpec::new(
             "density_ratio",
             F64,
             None,
             "scattering N_I over its freeze-out reference",
         ));
-        outputs.push(column("freeze_out_consistent", Bool, None, "the two counts agree"));
-        outputs.push(column(
+        outputs.push(ColumnSpec::new(
+            "freeze_out_consistent",
+            Bool,
+            None,
+            "the two counts agree",
+        ));
+        outputs.push(ColumnSpec::new(
             "scattering_upper_limit_m3",
             F64,
             Some("m3"),
             "when the mobility does not determine its density: the largest it allows",
         ));
-        outputs.push(column(
+        outputs.push(ColumnSpec::new(
             "candidate_dopants",
             Str,
             None,
@@ -157,10 +162,6 @@ impl Analysis for PurityAnalysis {
             name: String::new(),
             summary: "Purity summary per sample: donor and acceptor densities, net doping, compensation ratio and total impurities from the freeze-out fit, beside the mobility fit's ionized-impurity count".into(),
             description: "Reads the summary tables (analysis.run summary_output) of carriers.freeze_out_fit and, optionally, carriers.mobility_scattering; uncertainties propagate with the freeze-out covariance.".into(),
-            params: json!({"type": "object", "additionalProperties": false, "properties": {
-                "consistency_sigma_multiple": {"type": "number", "exclusiveMinimum": 0, "default": tolerance.sigma_multiple},
-                "model_relative_uncertainty": {"type": "number", "minimum": 0, "default": tolerance.model_relative_uncertainty}
-            }}),
             inputs: vec![
                 freeze_out_role(true),
                 InputRole {
@@ -168,22 +169,25 @@ impl Analysis for PurityAnalysis {
                     required: false,
                     description: "the summary table of carriers.mobility_scattering".into(),
                     columns: vec![
-                        column("ionized_impurity_density_m3", F64, Some("m3"), "N_I"),
-                        column("ionized_impurity_density_m3_unc", F64, Some("m3"), "its uncertainty").optional(),
-                        column("sample", Str, None, "sample name").optional(),
+                        ColumnSpec::new("ionized_impurity_density_m3", F64, Some("m3"), "N_I"),
+                        ColumnSpec::new("ionized_impurity_density_m3_unc", F64, Some("m3"), "its uncertainty").optional(),
+                        ColumnSpec::new("sample", Str, None, "sample name").optional(),
                     ],
                 },
             ],
             outputs,
             summary_keys: vec![
-                column("donor_density_m3", ColumnType::F64, Some("m3"), "N_D, with _unc"),
-                column("acceptor_density_m3", ColumnType::F64, Some("m3"), "N_A, with _unc"),
-                column("net_doping_m3", ColumnType::F64, Some("m3"), "|N_D - N_A|, with _unc"),
-                column("total_impurity_density_m3", ColumnType::F64, Some("m3"), "N_D + N_A, with _unc"),
-                column("compensation_ratio", ColumnType::F64, None, "minority over majority dopant density, with _unc"),
-                column("candidate_dopants", ColumnType::Str, None, "dopants whose ionization energy matches"),
-                column("scattering_upper_limit_m3", ColumnType::F64, Some("m3"), "upper limit of the ionized-impurity density from the mobility"),
-                column("samples", I64, None, "rows of the output"),
+                ColumnSpec::new("donor_density_m3", ColumnType::F64, Some("m3"), "N_D, with _unc"),
+                ColumnSpec::new("acceptor_density_m3", ColumnType::F64, Some("m3"), "N_A, with _unc"),
+                ColumnSpec::new("net_doping_m3", ColumnType::F64, Some("m3"), "|N_D - N_A|, with _unc"),
+                ColumnSpec::new("total_impurity_density_m3", ColumnType::F64, Some("m3"), "N_D + N_A, with _unc"),
+                ColumnSpec::new("compensation_ratio", ColumnType::F64, None, "minority over majority dopant density, with _unc"),
+                ColumnSpec::new("scattering_ionized_density_m3", ColumnType::F64, Some("m3"), "N_I from the mobility fit, with _unc"),
+                ColumnSpec::new("scattering_compensating_density_m3", ColumnType::F64, Some("m3"), "N_comp from the mobility fit (carriers_plus_compensation), with _unc"),
+                ColumnSpec::new("freeze_out_consistent", ColumnType::Bool, None, "the two counts agree"),
+                ColumnSpec::new("candidate_dopants", ColumnType::Str, None, "dopants whose ionization energy matches"),
+                ColumnSpec::new("scattering_upper_limit_m3", ColumnType::F64, Some("m3"), "upper limit of the ionized-impurity density from the mobility"),
+                ColumnSpec::new("samples", I64, None, "rows of the output"),
             ],
             ..Default::default()
         }
@@ -192,17 +196,11 @@ impl Analysis for PurityAnalysis {
     fn run(params: PurityParams, inputs: &Inputs, _host: &Host) -> Result<AnalysisOutput, AnalysisError> {
         let freeze_out = inputs.required("freeze_out")?;
         let scattering = inputs.optional("scattering");
-        let mut tolerance = ConsistencyTolerance::default();
-        if let Some(k) = params.consistency_sigma_multiple {
-            tolerance.sigma_multiple = k;
-        }
-        if let Some(m) = params.model_relative_uncertainty {
-            tolerance.model_relative_uncertainty = m;
-        }
-        let samples = optional_strings(freeze_out, "sample")?;
-        let materials = optional_strings(freeze_out, "material")?;
-        let energies = optional_floats(freeze_out, "ionization_energy_eV")?;
-        let energy_uncertainties = optional_floats(freeze_out, "ionization_energy_eV_unc")?;
+        let tolerance = params.consistency.tolerance();
+        let samples = sdk::optional_string_column(freeze_out, "sample")?;
+        let materials = sdk::optional_string_column(freeze_out, "material")?;
+        let energies = sdk::optional_float_column(freeze_out, "ionization_energy_eV")?;
+        let energy_uncertainties = sdk::optional_float_column(freeze_out, "ionization_energy_eV_unc")?;
         let mut candidates: Vec<Option<String>> = Vec::with_capacity(freeze_out.height());
         let mut candidate_warnings = Vec::new();
         let mut summaries = Vec::with_capacity(freeze_out.height());
@@ -266,69 +264,70 @@ impl Analysis for PurityAnalysis {
             |s| s.scattering_ionized_density_m3,
             |s| s.scattering_compensating_density_m3,
         ];
-        let mut columns = vec![
-            Column::new(
-                "sample".into(),
-                summaries.iter().map(|s| s.sample.clone()).collect::<Vec<_>>(),
-            ),
-            Column::new(
-                "carrier_type".into(),
+        let mut output = OutputBuilder::of::<Self>();
+        output
+            .str(
+                "sample",
+                &summaries.iter().map(|s| s.sample.as_str()).collect::<Vec<_>>(),
+            )
+            .str_nullable(
+                "carrier_type",
                 summaries
                     .iter()
                     .map(|s| s.carrier_type.map(|t| t.as_str().to_owned()))
-                    .collect::<Vec<_>>(),
-            ),
-        ];
+                    .collect(),
+            );
         for ((name, _), get) in ESTIMATE_COLUMNS.iter().zip(getters) {
             let (values, uncertainties) = pick(get);
-            columns.push(float_series(name, values));
-            columns.push(float_series(&format!("{name}_unc"), uncertainties));
+            output
+                .f64_nullable(name, values)
+                .f64_nullable(&format!("{name}_unc"), uncertainties);
         }
-        columns.push(float_series(
-            "density_ratio",
-            summaries.iter().map(|s| s.comparison.map(|c| c.ratio)).collect(),
-        ));
-        columns.push(Column::new(
-            "freeze_out_consistent".into(),
-            summaries
-                .iter()
-                .map(|s| s.comparison.map(|c| c.consistent))
-                .collect::<Vec<_>>(),
-        ));
-        columns.push(float_series(
-            "scattering_upper_limit_m3",
-            summaries
-                .iter()
-                .map(|s| s.comparison.and_then(|c| c.upper_limit_m3))
-                .collect(),
-        ));
-        columns.push(Column::new("candidate_dopants".into(), candidates.clone()));
-        let mut output = AnalysisOutput::new(frame(summaries.len(), columns)?);
-        output.summary.insert("samples".into(), json!(summaries.len()));
+        output
+            .f64_nullable(
+                "density_ratio",
+                summaries.iter().map(|s| s.comparison.map(|c| c.ratio)).collect(),
+            )
+            .column(Column::new(
+                "freeze_out_consistent".into(),
+                summaries
+                    .iter()
+                    .map(|s| s.comparison.map(|c| c.consistent))
+                    .collect::<Vec<_>>(),
+            ))
+            .f64_nullable(
+                "scattering_upper_limit_m3",
+                summaries
+                    .iter()
+                    .map(|s| s.comparison.and_then(|c| c.upper_limit_m3))
+                    .collect(),
+            )
+            .str_nullable("candidate_dopants", candidates.clone());
+        output.summary("samples", summaries.len());
         if let [only] = summaries.as_slice() {
             for ((name, _), get) in ESTIMATE_COLUMNS.iter().zip(getters) {
                 if let Some(e) = get(only) {
-                    insert_estimate(&mut output.summary, name, e.value, e.uncertainty);
+                    summary_estimate(&mut output, name, e.value, e.uncertainty);
                 }
             }
             if let Some(comparison) = only.comparison {
-                output
-                    .summary
-                    .insert("freeze_out_consistent".into(), json!(comparison.consistent));
+                output.summary("freeze_out_consistent", comparison.consistent);
                 if let Some(limit) = comparison.upper_limit_m3 {
-                    output.summary.insert("scattering_upper_limit_m3".into(), json!(limit));
+                    output.summary("scattering_upper_limit_m3", limit);
                 }
             }
             if let Some(Some(candidate)) = candidates.first() {
-                output.summary.insert("candidate_dopants".into(), json!(candidate));
+                output.summary("candidate_dopants", candidate);
             }
         }
-        output.warnings = summaries
-            .iter()
-            .flat_map(|s| s.warnings.iter().map(move |w| format!("{}: {w}", s.sample)))
-            .collect();
-        output.warnings.extend(candidate_warnings);
-        Ok(output)
+        output
+            .warnings(
+                summaries
+                    .iter()
+                    .flat_map(|s| s.warnings.iter().map(move |w| format!("{}: {w}", s.sample))),
+            )
+            .warnings(candidate_warnings);
+        output.finish(summaries.len())
     }
 }
 
@@ -336,6 +335,7 @@ impl Analysis for PurityAnalysis {
 mod tests {
     use super::*;
     use mobilis_sdk::sdk::run_typed;
+    use serde_json::json;
 
     fn freeze_out_summary(material: &str, energy_ev: f64) -> DataFrame {
         DataFrame::new(

@@ -18,34 +18,14 @@ use crate::multi_carrier::{
     fit_sweep_monitored, CarrierSelection, CurvePoint, InformationCriterion, MultiCarrierError, MultiCarrierSettings,
 };
 use crate::reduction::reduce;
-use mobilis_physics::forward::tensor::CarrierKind;
 use mobilis_physics::sweep::{symmetrize, SweepPoint, SweepUse};
 use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, FigureSpec};
+use mobilis_sdk::choices::CarrierChoice;
 use mobilis_sdk::sdk::{invalid, Analysis, AnalysisError, AnalysisOutput, Host, Inputs, OutputBuilder};
 use mobilis_sdk::sweep_table::{single_sweep, sweep_role, SweepParams, SweepTable};
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 use serde_json::{json, Value};
-
-/// A carrier's kind as the parameters name it: the `carrier_type` codes of the output.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, Serialize, JsonSchema)]
-pub enum CarrierCode {
-    /// an electron
-    #[serde(rename = "n")]
-    Electron,
-    /// a hole
-    #[serde(rename = "p")]
-    Hole,
-}
-
-impl From<CarrierCode> for CarrierKind {
-    fn from(code: CarrierCode) -> Self {
-        match code {
-            CarrierCode::Electron => CarrierKind::Electron,
-            CarrierCode::Hole => CarrierKind::Hole,
-        }
-    }
-}
 
 /// The declaration both analyses share: one sweep in, the sweep's identity first among the
 /// summary keys, the budget's bookkeeping and the one-sign flag last.
@@ -142,7 +122,7 @@ pub struct MultiCarrierParams {
     thickness_m: Option<f64>,
     /// the carrier list, e.g. ["n", "n"]; default: chosen automatically by the information criterion
     #[schemars(length(min = 1, max = 6))]
-    carriers: Option<Vec<CarrierCode>>,
+    carriers: Option<Vec<CarrierChoice>>,
     /// automatic selection: the most carriers tried
     #[serde(default = "MultiCarrierParams::max_carriers")]
     #[schemars(range(min = 1, max = 5))]

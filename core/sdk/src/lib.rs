@@ -6,6 +6,7 @@
 //! - [`table_ffi`]: DataFrames across the Arrow C Data Interface.
 //! - [`sdk`]: the Rust SDK for plugin authors (typed analyses and the `export_plugin!` macro).
 //! - [`sweep_table`]: the `sweep` input role of plugins and its conversion into sweep points.
+//! - [`choices`]: parameter choices several plugins share (the carrier kind).
 //!
 //! What this crate does not know:
 //! - JSON-RPC and the daemon's workspace: a plugin sees inputs, parameters and a host
@@ -16,6 +17,7 @@
 //! - I/O: no files, no sockets, no printing.
 
 pub mod abi;
+pub mod choices;
 pub mod figure_spec;
 pub mod sdk;
 pub mod sweep_table;

@@ -4,10 +4,11 @@
 use std::fmt;
 
 use mobilis_physics::forward::statistics::{ACCEPTOR_DEGENERACY_DEFAULT, DONOR_DEGENERACY_DEFAULT};
+use mobilis_sdk::choices::CarrierChoice;
 
-/// Which carriers dominate: electrons (n) or holes (p). A parameter names it "n" or "p".
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, serde::Serialize, serde::Deserialize, schemars::JsonSchema)]
-#[serde(rename_all = "lowercase")]
+/// Which carriers dominate: electrons (n) or holes (p). A parameter names it with the
+/// SDK's [`CarrierChoice`], the choice every plugin shares.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
 pub enum CarrierType {
     /// electrons
     N,
@@ -38,6 +39,15 @@ impl CarrierType {
         match self {
             CarrierType::N => DONOR_DEGENERACY_DEFAULT,
             CarrierType::P => ACCEPTOR_DEGENERACY_DEFAULT,
+        }
+    }
+}
+
+impl From<CarrierChoice> for CarrierType {
+    fn from(choice: CarrierChoice) -> Self {
+        match choice {
+            CarrierChoice::N => CarrierType::N,
+            CarrierChoice::P => CarrierType::P,
         }
     }
 }

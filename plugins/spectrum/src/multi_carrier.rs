@@ -115,6 +115,7 @@ use mobilis_physics::carrier_fit::{
     output_order, starts_at_best_minimum, CarrierModel, InvalidRange, LogBounds, TensorSpace,
 };
 use mobilis_physics::forward::tensor::sum_conductivity;
+use mobilis_physics::forward::ForwardError;
 use mobilis_physics::sweep::{conductivity_points, symmetrize};
 use mobilis_physics::tensor_data::TensorData as Data;
 use rayon::prelude::*;
@@ -141,7 +142,8 @@ impl Default for CarrierSelection {
 }
 
 /// The information criterion of the automatic selection.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Deserialize, serde::Serialize, schemars::JsonSchema)]
+#[serde(rename_all = "lowercase")]
 pub enum InformationCriterion {
     /// Bayesian (Schwarz 1978). Default.
     #[default]
@@ -498,13 +500,14 @@ fn validate_settings(settings: &MultiCarrierSettings) -> Result<LogBounds, Multi
         CarrierSelection::Guess(guess) if guess.is_empty() => Err(MultiCarrierError::NoCarriers),
         CarrierSelection::Guess(guess) => {
             for (index, carrier) in guess.iter().enumerate() {
-                for (what, value) in [
-                    ("sheet_density_m2", carrier.sheet_density_m2),
-                    ("mobility_m2_per_vs", carrier.mobility_m2_per_vs),
-                ] {
-                    if !(value.is_finite() && value > 0.0) {
-                        return Err(MultiCarrierError::InvalidGuess { index, what, value });
-                    }
+                // The forward model's rule for a carrier (density and mobility finite and
+                // positive), which names the offending value.
+                if let Err(ForwardError::InvalidParameter { name, value, .. }) = carrier.validate() {
+                    return Err(MultiCarrierError::InvalidGuess {
+                        index,
+                        what: name,
+                        value,
+                    });
                 }
             }
             Ok(bounds)

@@ -14,6 +14,7 @@ use super::freeze_out_fit::{budget_columns, budget_summary_keys, hall_role, temp
 use super::*;
 use crate::arrhenius::{fit_arrhenius, ArrheniusRange, ArrheniusRegime, ArrheniusSettings, AutomaticRange};
 use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType};
+use mobilis_sdk::choices::CarrierChoice;
 use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 
 pub struct ArrheniusAnalysis;
@@ -27,7 +28,7 @@ pub struct ArrheniusParams {
     pub regime: ArrheniusRegime,
     /// force n or p; default: from the data's carrier_type column
     #[serde(default)]
-    pub carrier_type: Option<CarrierType>,
+    pub carrier_type: Option<CarrierChoice>,
     // The range of the line; without either bound it is chosen from the data.
     #[serde(flatten)]
     pub temperature_range: TemperatureRangeParams,
@@ -126,7 +127,7 @@ impl Analysis for ArrheniusAnalysis {
         let settings = ArrheniusSettings {
             regime: params.regime,
             range,
-            carrier_type: params.carrier_type,
+            carrier_type: params.carrier_type.map(CarrierType::from),
             hall_factor: params.budget.hall_factor.setting()?,
             relative_uncertainty_floor: params.budget.relative_uncertainty_floor,
             temperature_unc_k: params.budget.temperature_uncertainty_k,

@@ -19,6 +19,7 @@
 use super::*;
 use crate::freeze_out::{fit_freeze_out, Estimate, FreezeOutSettings, UncertaintySource};
 use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
+use mobilis_sdk::choices::CarrierChoice;
 use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 
 pub struct FreezeOutFitAnalysis;
@@ -30,7 +31,7 @@ pub struct FreezeOutParams {
     pub material: MaterialParams,
     /// force n or p; default: from the data's carrier_type column
     #[serde(default)]
-    pub carrier_type: Option<CarrierType>,
+    pub carrier_type: Option<CarrierChoice>,
     /// replaces the majority band's effective density of states at 300 K (Nc for n-type, Nv
     /// for p-type), scaled as T^1.5; not given: the material's
     #[serde(rename = "effective_dos_300K_m3", default)]
@@ -209,7 +210,7 @@ impl Analysis for FreezeOutFitAnalysis {
         let mut warnings = Vec::new();
         let points = density_points(hall, &mut warnings)?;
         let mut settings = FreezeOutSettings::for_material(params.material.resolve()?);
-        settings.carrier_type = params.carrier_type;
+        settings.carrier_type = params.carrier_type.map(CarrierType::from);
         settings.effective_dos_300k_m3 = params.effective_dos_300k_m3;
         settings.degeneracy = params.degeneracy;
         settings.hall_factor = params.budget.hall_factor.setting()?;

@@ -24,6 +24,7 @@ use crate::scattering::{
     NeutralImpurityModel, ScatteringFit, ScatteringSettings, ScreeningDensity,
 };
 use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
+use mobilis_sdk::choices::CarrierChoice;
 use mobilis_sdk::sdk::{Analysis, AnalysisOutput, Host, Inputs};
 use serde::Serialize;
 
@@ -36,7 +37,7 @@ pub struct ScatteringParams {
     pub material: MaterialParams,
     /// force n or p; default: from the data's carrier_type column
     #[serde(default)]
-    pub carrier_type: Option<CarrierType>,
+    pub carrier_type: Option<CarrierChoice>,
     /// ionized-impurity scattering: screened (Brooks-Herring) or bare Coulomb with a cut-off
     /// (Conwell-Weisskopf)
     #[serde(default)]
@@ -449,7 +450,7 @@ fn series_carrier_type(
     freeze_out: Option<&(DopantDensities, Option<CarrierType>)>,
 ) -> Result<CarrierType, AnalysisError> {
     Ok(match params.carrier_type {
-        Some(forced) => forced,
+        Some(forced) => forced.into(),
         None => {
             let mut seen: Vec<&str> = types
                 .iter()

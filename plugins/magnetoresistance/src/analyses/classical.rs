@@ -7,6 +7,7 @@ use crate::symmetrize::{symmetrize_sweep, SymmetrizeOptions};
 use crate::two_band::{fit_two_band_sweep, TwoBandError, TwoBandSettings};
 use mobilis_physics::forward::tensor::CarrierKind;
 use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType};
+use mobilis_sdk::choices::CarrierChoice;
 use mobilis_sdk::sdk::{invalid, Analysis, AnalysisError, AnalysisOutput, Host, Inputs, OutputBuilder};
 use mobilis_sdk::sweep_table::{
     single_field_sign_series_warning, single_sweep, sweep_role, sweeps_by_temperature, SweepParams,
@@ -416,36 +417,6 @@ impl Analysis for KohlerAnalysis {
 
 pub struct TwoBandAnalysis;
 
-/// The kind of one band of `mr.two_band_fit`, by its `carrier_type` code.
-// Serialize so that the derived schema can state the default pair.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
-pub enum BandKind {
-    /// electrons
-    #[serde(rename = "n")]
-    N,
-    /// holes
-    #[serde(rename = "p")]
-    P,
-}
-
-impl From<BandKind> for CarrierKind {
-    fn from(kind: BandKind) -> Self {
-        match kind {
-            BandKind::N => CarrierKind::Electron,
-            BandKind::P => CarrierKind::Hole,
-        }
-    }
-}
-
-impl From<CarrierKind> for BandKind {
-    fn from(kind: CarrierKind) -> Self {
-        match kind {
-            CarrierKind::Electron => BandKind::N,
-            CarrierKind::Hole => BandKind::P,
-        }
-    }
-}
-
 /// Parameters of `mr.two_band_fit`.
 #[derive(Debug, Deserialize, JsonSchema)]
 pub struct TwoBandParams {
@@ -453,7 +424,7 @@ pub struct TwoBandParams {
     sweep: SweepParams,
     /// the kinds of the two bands
     #[serde(default = "TwoBandParams::default_carriers")]
-    carriers: [BandKind; 2],
+    carriers: [CarrierChoice; 2],
     /// random starts of the fit besides the deterministic ones
     #[serde(default = "TwoBandParams::default_random_starts")]
     #[schemars(range(max = 200))]
@@ -464,8 +435,8 @@ pub struct TwoBandParams {
 }
 
 impl TwoBandParams {
-    fn default_carriers() -> [BandKind; 2] {
-        TwoBandSettings::default().kinds.map(BandKind::from)
+    fn default_carriers() -> [CarrierChoice; 2] {
+        TwoBandSettings::default().kinds.map(CarrierChoice::from)
     }
 
     fn default_random_starts() -> usize {

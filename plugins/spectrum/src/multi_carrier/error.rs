@@ -18,30 +18,13 @@ pub enum MultiCarrierError {
     /// No points at all.
     #[error("no conductivity points were given; give sigma_xx and sigma_xy over a field sweep")]
     NoPoints,
-    /// A value is NaN or infinite.
-    #[error("point {index}: {column} is {value}; give a finite number or drop the point")]
-    NonFinite {
-        index: usize,
-        column: &'static str,
-        value: f64,
-    },
-    /// sigma_xx is zero or negative.
-    #[error(
-        "point {index}: sigma_xx is {value} S; a conducting sample has sigma_xx > 0, so check the sign and the units of rho_xx, or drop the point"
-    )]
-    NonPositiveSigmaXx { index: usize, value: f64 },
-    /// An uncertainty is not a finite positive number, or a correlation not within (-1, 1).
-    #[error(
-        "point {index}: {column} is {value}; give finite positive standard uncertainties and a correlation within (-1, 1)"
-    )]
-    InvalidUncertainty {
-        index: usize,
-        column: &'static str,
-        value: f64,
-    },
-    /// Some points have uncertainties and others not.
-    #[error("{with} points have uncertainties and {without} do not; give uncertainties for every point or for none")]
-    MixedUncertainties { with: usize, without: usize },
+    /// A value, a sign or an uncertainty of the points that the shared check of tensor data
+    /// refuses (`mobilis_physics::tensor_data`, the rule the two-band fit applies too): a
+    /// value not finite, sigma_xx <= 0, an invalid uncertainty or correlation, or
+    /// uncertainties on some points only. Its message names the point, the column and
+    /// what to give.
+    #[error("{0}")]
+    Data(TensorDataError),
     /// Every point is at zero field.
     #[error(
         "all {points} points are at zero field; carriers are told apart by the field dependence of the conductivity, so give a field sweep"
@@ -126,23 +109,14 @@ fn kinds_text(kinds: &[CarrierKind]) -> String {
     format!("[{}]", names.join(", "))
 }
 
+/// The shared check's refusals, except the two whose message says what the fit needs:
+/// points at all, and points in field.
 impl From<TensorDataError> for MultiCarrierError {
     fn from(error: TensorDataError) -> Self {
         match error {
             TensorDataError::NoPoints => MultiCarrierError::NoPoints,
-            TensorDataError::NonFinite { index, column, value } => {
-                MultiCarrierError::NonFinite { index, column, value }
-            }
-            TensorDataError::NonPositiveXx { index, value, .. } => {
-                MultiCarrierError::NonPositiveSigmaXx { index, value }
-            }
-            TensorDataError::InvalidUncertainty { index, column, value } => {
-                MultiCarrierError::InvalidUncertainty { index, column, value }
-            }
-            TensorDataError::MixedUncertainties { with, without } => {
-                MultiCarrierError::MixedUncertainties { with, without }
-            }
             TensorDataError::NoField { points } => MultiCarrierError::NoField { points },
+            other => MultiCarrierError::Data(other),
         }
     }
 }

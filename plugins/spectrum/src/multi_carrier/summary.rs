@@ -15,20 +15,53 @@ use super::budget::{DEFAULT_CURRENT_CALIBRATION_REL, DEFAULT_FIELD_CALIBRATION_R
 use super::{Calibration, FittedCarrier, MultiCarrierFit, SWEEP_RELATIVE_UNCERTAINTY_FLOOR};
 
 /// The budget's parameters as both spectrum analyses take them (flattened into their
-/// parameters; `schema_properties` declares them).
-#[derive(Debug, Default, serde::Deserialize, schemars::JsonSchema)]
+/// parameters, so their schema is derived with theirs).
+#[derive(Debug, serde::Deserialize, schemars::JsonSchema)]
 pub struct BudgetParams {
-    #[serde(default)]
-    pub relative_uncertainty_floor: Option<f64>,
-    #[serde(default)]
+    /// a stated uncertainty of sigma_xx or sigma_xy below this fraction of |sigma(B)| is raised to it, so that no point pins the fit
+    #[serde(default = "BudgetParams::relative_uncertainty_floor")]
+    #[schemars(range(min = 0), extend("exclusiveMaximum" = 0.1))]
+    pub relative_uncertainty_floor: f64,
+    #[schemars(range(min = 0), extend("exclusiveMaximum" = 1), description = calibration_description(
+        "the field scale (gaussmeter, magnet constant), applied once after the fit to densities and mobilities",
+        DEFAULT_FIELD_CALIBRATION_REL,
+    ))]
     pub field_calibration_rel: Option<f64>,
-    #[serde(default)]
+    #[schemars(range(min = 0), extend("exclusiveMaximum" = 1), description = calibration_description(
+        "the current source's scale, applied once after the fit to the densities",
+        DEFAULT_CURRENT_CALIBRATION_REL,
+    ))]
     pub current_calibration_rel: Option<f64>,
-    #[serde(default)]
+    #[schemars(range(min = 0), extend("exclusiveMaximum" = 1), description = calibration_description(
+        "the voltmeter's gain, applied once after the fit to the densities",
+        DEFAULT_VOLTAGE_CALIBRATION_REL,
+    ))]
     pub voltage_calibration_rel: Option<f64>,
 }
 
+/// The description of a calibration parameter: not stated is a meaning of its own (the
+/// default is assumed and listed in `calibrations_not_stated`).
+fn calibration_description(what: &str, default: f64) -> String {
+    format!("relative standard uncertainty of {what}; when not stated {default} is assumed (common practice) and calibrations_not_stated says so")
+}
+
+impl Default for BudgetParams {
+    fn default() -> Self {
+        BudgetParams {
+            relative_uncertainty_floor: Self::relative_uncertainty_floor(),
+            field_calibration_rel: None,
+            current_calibration_rel: None,
+            voltage_calibration_rel: None,
+        }
+    }
+}
+
 impl BudgetParams {
+    /// The floor both settings default to.
+    fn relative_uncertainty_floor() -> f64 {
+        SWEEP_RELATIVE_UNCERTAINTY_FLOOR
+    }
+
     /// The stated calibrations (`None` where not stated, to be assumed and listed).
     pub fn calibration(&self) -> Calibration {
         Calibration {
@@ -37,39 +70,6 @@ impl BudgetParams {
             voltage_rel: self.voltage_calibration_rel,
         }
     }
-}
-
-/// The JSON Schema properties of the budget's parameters.
-pub fn schema_properties() -> Map<String, Value> {
-    let mut properties = Map::new();
-    properties.insert(
-        "relative_uncertainty_floor".into(),
-        json!({"type": "number", "minimum": 0, "exclusiveMaximum": 0.1, "default": SWEEP_RELATIVE_UNCERTAINTY_FLOOR, "description": "a stated uncertainty of sigma_xx or sigma_xy below this fraction of |sigma(B)| is raised to it, so that no point pins the fit"}),
-    );
-    let calibrations = [
-        (
-            Calibration::FIELD_PARAMETER,
-            "the field scale (gaussmeter, magnet constant), applied once after the fit to densities and mobilities",
-            DEFAULT_FIELD_CALIBRATION_REL,
-        ),
-        (
-            Calibration::CURRENT_PARAMETER,
-            "the current source's scale, applied once after the fit to the densities",
-            DEFAULT_CURRENT_CALIBRATION_REL,
-        ),
-        (
-            Calibration::VOLTAGE_PARAMETER,
-            "the voltmeter's gain, applied once after the fit to the densities",
-            DEFAULT_VOLTAGE_CALIBRATION_REL,
-        ),
-    ];
-    for (name, what, default) in calibrations {
-        properties.insert(
-            name.into(),
-            json!({"type": "number", "minimum": 0, "exclusiveMaximum": 1, "description": format!("relative standard uncertainty of {what}; when not stated {default} is assumed (common practice) and calibrations_not_stated says so")}),
-        );
-    }
-    properties
 }
 
 /// One carrier's summary entry. `thickness_m` adds the volume density (the thickness

@@ -5,6 +5,7 @@ use mobilis_physics::forward::tensor::{
     resistivity_tensor, symmetric_fields, synthetic_sweep, SweepImperfections, SweepNoise,
 };
 use mobilis_physics::sweep::{conductivity_point, SweepError};
+use mobilis_physics::tensor_data::TensorDataError;
 
 mod coverage;
 mod recovery;
@@ -350,15 +351,24 @@ fn multi_carrier_refuses_bad_input_with_clear_errors() {
     nan_points[2].sigma_xy_s = f64::NAN;
     let error = fit_carriers(&nan_points, &settings).unwrap_err();
     assert!(
-        matches!(error, MultiCarrierError::NonFinite { index: 2, .. }),
+        matches!(
+            error,
+            MultiCarrierError::Data(TensorDataError::NonFinite { index: 2, .. })
+        ),
         "{error:?}"
+    );
+    // The shared check's message names the point and the column in the conductivity's
+    // own names, and what to give.
+    assert_eq!(
+        error.to_string(),
+        "point 2: sigma_xy_S is NaN; give a finite number or drop the point"
     );
     // sigma_xx <= 0.
     let mut bad_sigma = good_points.clone();
     bad_sigma[1].sigma_xx_s = 0.0;
     assert!(matches!(
         fit_carriers(&bad_sigma, &settings),
-        Err(MultiCarrierError::NonPositiveSigmaXx { index: 1, .. })
+        Err(MultiCarrierError::Data(TensorDataError::NonPositiveXx { index: 1, .. }))
     ));
     // Fewer points than parameters: 2 field points give 3 residuals; two carriers need 4
     // (5 without uncertainties), one carrier without uncertainties needs 3.
@@ -402,7 +412,10 @@ fn multi_carrier_refuses_bad_input_with_clear_errors() {
     });
     assert!(matches!(
         fit_carriers(&mixed, &settings),
-        Err(MultiCarrierError::MixedUncertainties { with: 1, without: 3 })
+        Err(MultiCarrierError::Data(TensorDataError::MixedUncertainties {
+            with: 1,
+            without: 3
+        }))
     ));
     // Settings.
     assert!(matches!(

@@ -14,7 +14,6 @@ pub mod errors;
 pub mod library_check;
 pub mod methods;
 pub mod openrpc;
-pub mod param_schema;
 pub mod plots;
 pub mod plugin_call;
 pub mod plugin_host;

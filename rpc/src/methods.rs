@@ -125,7 +125,7 @@ fn check_params(method: &str, params: &Params) -> Result<(), ErrorObjectOwned> {
             return Err(refuse(format!("{name} must be {listed} (got {given})")));
         }
     }
-    crate::param_schema::validate(schema, &value).map_err(|message| {
+    mobilis_sdk::param_schema::validate(schema, &value).map_err(|message| {
         let message = message.strip_prefix("params.").unwrap_or(&message);
         refuse(plain_schema_words(&message.replace("params.", "")))
     })

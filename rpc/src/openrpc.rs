@@ -135,7 +135,7 @@ mod tests {
         // Every documented schema is one the daemon's own validator implements.
         for method in document["methods"].as_array().unwrap() {
             for param in method["params"].as_array().unwrap() {
-                crate::param_schema::check_supported(&param["schema"], param["name"].as_str().unwrap()).unwrap();
+                mobilis_sdk::param_schema::check_supported(&param["schema"], param["name"].as_str().unwrap()).unwrap();
             }
         }
     }

@@ -15,7 +15,7 @@
 //! is the same call for both. Before any library is mapped, here or in a worker, its ELF
 //! headers are checked against its size ([`crate::library_check`]).
 
-use crate::param_schema;
+use mobilis_sdk::param_schema;
 // The types of one call live below the host and the worker pool, which both use them.
 pub use crate::plugin_call::{
     CallControl, InvokeFailure, InvokeSuccess, PluginIdentity, ProgressListener, ProgressSpan,

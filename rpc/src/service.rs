@@ -4,9 +4,9 @@
 use crate::csv_dialect::CsvDialect;
 use crate::data_roots::DataRoots;
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
-use crate::param_schema;
 use crate::plugin_host::{CallControl, InvokeFailure, PluginHost};
 use crate::progress::{Outcome, ProgressHub};
+use mobilis_sdk::param_schema;
 // The JSON of table cells is written beside the `dataset.rows` page that shares its rules.
 use crate::rows_json::cell_to_json;
 pub use crate::rows_json::frame_to_json_columns;

@@ -4,6 +4,8 @@
 //! - [`abi`]: the C ABI between the daemon and plugin libraries (mirrored by
 //!   `include/mobilis_plugin.h`).
 //! - [`table_ffi`]: DataFrames across the Arrow C Data Interface.
+//! - [`param_schema`]: the JSON Schema subset parameters are declared in, and the validator
+//!   the host (and [`sdk::run_typed`]) checks every call's parameters with.
 //! - [`sdk`]: the Rust SDK for plugin authors (typed analyses and the `export_plugin!` macro).
 //! - [`sweep_table`]: the `sweep` input role of plugins and its conversion into sweep points.
 //! - [`choices`]: parameter choices several plugins share (the carrier kind).
@@ -19,6 +21,7 @@
 pub mod abi;
 pub mod choices;
 pub mod figure_spec;
+pub mod param_schema;
 pub mod sdk;
 pub mod sweep_table;
 pub mod table_ffi;

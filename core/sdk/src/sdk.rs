@@ -207,11 +207,9 @@ pub const fn registration<A: Analysis>() -> Registration {
 pub fn declaration_of<A: Analysis>() -> AnalysisDeclaration {
     let mut declaration = A::declaration();
     declaration.name = A::NAME.to_owned();
-    // A declaration still carrying a hand-written schema keeps it until its plugin moves to
-    // the derived one; a derived schema is the rule for new analyses.
-    if declaration.params.is_null() {
-        declaration.params = params_schema::<A::Params>();
-    }
+    // The schema is always the one derived from the parameter type: a declaration cannot
+    // state parameters its type does not read.
+    declaration.params = params_schema::<A::Params>();
     declaration
 }
 
@@ -272,13 +270,18 @@ fn run_params<A: Analysis>(params_json: &str, inputs: &Inputs, host: &Host) -> R
     A::run(params, inputs, host)
 }
 
-/// Runs an analysis from JSON parameters, as the host would, without the C boundary, and
-/// checks its output against its declaration as the host does.
+/// Runs an analysis from JSON parameters, as the host would, without the C boundary: the
+/// parameters are checked against the declared schema with the host's validator first, and
+/// the output against the declaration after.
 pub fn run_typed<A: Analysis>(
     params_json: &str,
     inputs: &Inputs,
     host: &Host,
 ) -> Result<AnalysisOutput, AnalysisError> {
+    let params: Value = serde_json::from_str(params_json)
+        .map_err(|error| AnalysisError::InvalidInput(format!("parameters of {}: {error}", A::NAME)))?;
+    crate::param_schema::validate(&declared::<A>().params, &params)
+        .map_err(|message| AnalysisError::InvalidInput(format!("parameters of {}: {message}", A::NAME)))?;
     let output = run_params::<A>(params_json, inputs, host)?;
     check_output(&declared::<A>(), &output.table, &output.summary)
         .map_err(|violation| AnalysisError::Bug(format!("{}: {violation}", A::NAME)))?;

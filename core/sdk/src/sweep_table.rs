@@ -184,15 +184,6 @@ impl SweepParams {
     }
 }
 
-/// The JSON Schema properties of [`SweepParams`], for a declaration whose schema is still
-/// written by hand around them; derived from the type, so both say the same.
-pub fn sweep_schema_properties() -> Map<String, Value> {
-    match sdk::params_schema::<SweepParams>().get("properties") {
-        Some(Value::Object(properties)) => properties.clone(),
-        _ => Map::new(),
-    }
-}
-
 /// The one warning of an analysis of several sweeps whose sweeps at `temperatures_k` had
 /// one field sign each (instead of one warning per sweep); `None` when there are none.
 pub fn single_field_sign_series_warning(temperatures_k: &[f64]) -> Option<String> {

@@ -1098,7 +1098,7 @@ mod tests {
     /// out-of-range value, an unknown choice and an unknown name, each named in the message.
     #[test]
     fn parameters_are_refused_by_the_hosts_validator() {
-        use mobilis_rpc::param_schema::{check_supported, validate};
+        use mobilis_sdk::param_schema::{check_supported, validate};
         let oscillations = mobilis_sdk::sdk::declaration_of::<OscillationsAnalysis>().params;
         let weak_localization = mobilis_sdk::sdk::declaration_of::<WeakLocalizationAnalysis>().params;
         for (name, schema) in [

@@ -5,14 +5,23 @@
 
 use super::classical::{KohlerAnalysis, RatioAnalysis, SymmetrizeAnalysis, TwoBandAnalysis};
 use super::quantum::{OscillationsAnalysis, WeakLocalizationAnalysis};
-use super::*;
 use mobilis_numerics::noise::Rng;
 use mobilis_physics::forward::oscillations::{
     synthetic_weak_localization_sweep, OscillationComponent, SdhModel, WeakLocalizationModel,
 };
 use mobilis_physics::forward::tensor::{resistivity_tensor, Carrier, SweepNoise};
+use mobilis_sdk::sdk::AnalysisError;
 use mobilis_sdk::sdk::{run_typed, AnalysisOutput, Host, Inputs};
+use polars::prelude::*;
 use serde_json::json;
+
+fn floats(name: &str, values: Vec<f64>) -> Column {
+    Column::new(PlSmallStr::from_str(name), values)
+}
+
+fn frame(height: usize, columns: Vec<Column>) -> Result<DataFrame, AnalysisError> {
+    DataFrame::new(height, columns).map_err(|e| AnalysisError::Numerical(e.to_string()))
+}
 
 /// A `sweep` table: (temperature, field, rho_xx, rho_xy) rows.
 fn inputs(rows: &[(f64, f64, f64, f64)]) -> Inputs {

@@ -690,7 +690,10 @@ mod tests {
         assert!(error.to_string().contains("aicc"), "{error}");
         let error =
             run_typed::<MultiCarrierFitAnalysis>(r#"{"carriers": ["x"]}"#, &inputs, &Host::detached()).unwrap_err();
-        assert!(error.to_string().contains("`n`"), "{error}");
+        assert!(
+            error.to_string().contains(r#"carriers[0] must be one of "n", "p""#),
+            "{error}"
+        );
         let error =
             run_typed::<MobilitySpectrumAnalysis>(r#"{"regularization": "lcurve"}"#, &inputs, &Host::detached())
                 .unwrap_err();

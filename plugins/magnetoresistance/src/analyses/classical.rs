@@ -719,13 +719,19 @@ mod tests {
             &inputs,
             &Host::detached(),
         ));
-        assert!(message.contains("`e`") && message.contains("`p`"), "{message}");
+        assert!(
+            message.contains("carriers[1]") && message.contains(r#""e""#) && message.contains(r#""p""#),
+            "{message}"
+        );
         let message = refused(run_typed::<TwoBandAnalysis>(
             r#"{"carriers": ["n"]}"#,
             &inputs,
             &Host::detached(),
         ));
-        assert!(message.contains("length"), "{message}");
+        assert!(
+            message.contains("params.carriers must have at least 2 items"),
+            "{message}"
+        );
         // Given choices reach the physics.
         let output = run_typed::<TwoBandAnalysis>(r#"{"carriers": ["n", "n"]}"#, &inputs, &Host::detached()).unwrap();
         assert_eq!(output.summary["carriers"][0]["carrier_type"], json!("n"));

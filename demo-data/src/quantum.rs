@@ -19,13 +19,12 @@ use crate::format::Json;
 use crate::sweeps::{round_to_resolution, Layer, SweepRow, SweepSample, FIELD_RESOLUTION_T, MAX_FIELD_T};
 use mobilis_numerics::noise::Rng;
 use mobilis_physics::constants::{ELECTRON_MASS_KG, ELEMENTARY_CHARGE_C};
+use mobilis_physics::field_tensor::ResistivityTensor;
 use mobilis_physics::forward::oscillations::{
     dingle_damping, frequency_from_sheet_density_t, quantum_lifetime_s, thermal_damping_argument,
     thermal_damping_factor, OscillationComponent, SdhModel, LK_FIELD_PER_KELVIN,
 };
-use mobilis_physics::forward::tensor::{
-    resistivity_tensor, Carrier, ResistivityTensor, SweepImperfections, SweepNoise,
-};
+use mobilis_physics::forward::tensor::{resistivity_tensor, Carrier, SweepImperfections, SweepNoise};
 use mobilis_physics::sweep::{ResistivityUncertainty, SweepPoint};
 
 /// The lowest |B| of the oscillation sweeps, T. Below it the oscillations of this channel are

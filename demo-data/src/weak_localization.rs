@@ -23,12 +23,11 @@ use crate::quantum::{measured_point, noise_truth};
 use crate::sweeps::{layer_truth, round_to_resolution, Layer, SweepRow, FIELD_RESOLUTION_T};
 use mobilis_numerics::noise::Rng;
 use mobilis_physics::constants::{ELEMENTARY_CHARGE_C, REDUCED_PLANCK_J_S};
+use mobilis_physics::field_tensor::ResistivityTensor;
 use mobilis_physics::forward::oscillations::{
     hln_correction_s, phase_coherence_field_t, WeakLocalizationModel, HLN_CONDUCTANCE_S,
 };
-use mobilis_physics::forward::tensor::{
-    resistivity_tensor, symmetric_fields, Carrier, ResistivityTensor, SweepImperfections, SweepNoise,
-};
+use mobilis_physics::forward::tensor::{resistivity_tensor, symmetric_fields, Carrier, SweepImperfections, SweepNoise};
 
 /// The largest |B| of the weak-localization sweep, T: a few tens of B_phi, where the
 /// correction has long become logarithmic, and still far below the transport field.

@@ -30,7 +30,7 @@ use polars::prelude::DataFrame;
 
 pub use error::PlotError;
 pub use figure::Figure;
-pub use mobilis_sdk::abi::FigureSpec;
+use mobilis_sdk::figure_spec::FigureSpec;
 pub use options::PlotOptions;
 pub use recipes::MAX_SERIES;
 pub use svg::escape;

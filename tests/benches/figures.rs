@@ -15,7 +15,8 @@
 //! Each time is the wall time of one build-and-render after one untimed warm-up, median and
 //! fastest of several repetitions.
 
-use mobilis_plot::{FigureCatalog, FigureSpec, PlotOptions};
+use mobilis_plot::{FigureCatalog, PlotOptions};
+use mobilis_sdk::figure_spec::FigureSpec;
 use mobilis_tests::bench::{format_kib, format_seconds, invoked_as_benchmark, measure, peak_rss_kib};
 use polars::prelude::*;
 

@@ -62,8 +62,7 @@
 //!   static in every 1.0 plugin, and the declaration already reaches isolated workers'
 //!   supervisors as it is.
 
-// The figure vocabulary is part of the declaration: plugins name it through this module.
-pub use crate::figure_spec::*;
+use crate::figure_spec::FigureSpec;
 use polars_arrow::ffi::{ArrowArray, ArrowSchema};
 use serde::{Deserialize, Serialize};
 use std::os::raw::{c_char, c_void};

@@ -5,7 +5,7 @@ use super::{all_rows, points, Context, Drawing};
 use crate::error::PlotError;
 use crate::figure::{AxisSpec, Series, SHAPES};
 use crate::units::{column_display, is_density_unit};
-use mobilis_sdk::abi::SeriesKey;
+use mobilis_sdk::figure_spec::SeriesKey;
 
 pub(crate) fn build(ctx: &Context) -> Result<Drawing, PlotError> {
     let options = ctx.options;

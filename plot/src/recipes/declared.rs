@@ -2,7 +2,7 @@
 //! the panels, series and axes. Every figure of an analysis's output, the built-in plugins'
 //! and a lab's own, is drawn here; nothing in this file knows an analysis or its columns.
 
-use mobilis_sdk::abi::{
+use mobilis_sdk::figure_spec::{
     AxisScale, AxisSpec as AxisDecl, DashSpec, ErrorBars, FigureSpec, LayerSpec, MarkSpec, Naming, PanelSpec, Transform,
 };
 

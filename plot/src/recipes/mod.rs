@@ -15,7 +15,7 @@ use crate::error::PlotError;
 use crate::figure::{format_value, Panel, Point};
 use crate::options::PlotOptions;
 use crate::units::column_display;
-use mobilis_sdk::abi::SeriesKey;
+use mobilis_sdk::figure_spec::SeriesKey;
 
 /// What a builder returns: its panels and a default title.
 pub(crate) struct Drawing {

@@ -67,6 +67,7 @@
 #[cfg(test)]
 mod tests;
 
+use crate::carrier_type::CarrierType;
 use mobilis_numerics::fit::{
     effective_uncertainty, fit_line, floored_relative_uncertainty, FitError, FitQuality, LineFit,
     RELATIVE_UNCERTAINTY_FLOOR,
@@ -74,8 +75,8 @@ use mobilis_numerics::fit::{
 use mobilis_physics::constants::BOLTZMANN_EV_PER_K;
 
 use crate::freeze_out::{
-    prepare_series, validate_stated_uncertainties, CarrierType, DensityPoint, HallFactor, Series, SeriesError,
-    SeriesOptions, UncertaintySource, EFFECTIVE_VARIANCE_PASSES, EFFECTIVE_VARIANCE_TOLERANCE,
+    prepare_series, validate_stated_uncertainties, DensityPoint, HallFactor, Series, SeriesError, SeriesOptions,
+    UncertaintySource, EFFECTIVE_VARIANCE_PASSES, EFFECTIVE_VARIANCE_TOLERANCE,
 };
 
 /// Which limit of the freeze-out equation the range is taken to be in; a parameter names it

@@ -2,7 +2,7 @@
 //! and Arrhenius plots against 1000/T and the mobility with its scattering terms. Units come
 //! from the column names; only the quantities' names are written here.
 
-use mobilis_sdk::abi::{AxisScale, AxisSpec, DashSpec, FigureSpec, LayerSpec, PanelSpec, Transform};
+use mobilis_sdk::figure_spec::{AxisScale, AxisSpec, DashSpec, FigureSpec, LayerSpec, PanelSpec, Transform};
 
 /// 1000/T, the customary abscissa of freeze-out and Arrhenius plots.
 fn inverse_temperature() -> AxisSpec {

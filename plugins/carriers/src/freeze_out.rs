@@ -156,7 +156,7 @@ pub use error::{FreezeOutError, SeriesError};
 use model::{ln_majority_density, LevelParameters, TemperatureTerms};
 pub use model::{CompensatingLevel, FreezeOutModel};
 
-pub use crate::carrier_type::CarrierType;
+use crate::carrier_type::CarrierType;
 use crate::materials::Material;
 
 /// The smallest number of distinct temperatures for three parameters plus one degree of

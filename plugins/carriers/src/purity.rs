@@ -63,7 +63,7 @@
 //! none, so only a reference above it can disagree. The issue that prompted this measured
 //! N_I at 0.05 of the doping there: that was the bound, not a measurement.
 
-pub use crate::freeze_out::CarrierType;
+use crate::carrier_type::CarrierType;
 use crate::freeze_out::FreezeOutFit;
 
 /// A value with its standard uncertainty (`None` when it could not be estimated).

@@ -171,7 +171,7 @@ use mobilis_physics::constants::{
 use mobilis_physics::forward::mobility::{lattice_mobility_m2_per_vs, ScatteringMedium};
 use std::f64::consts::PI;
 
-use crate::freeze_out::CarrierType;
+use crate::carrier_type::CarrierType;
 use crate::materials::Material;
 
 use crate::purity::ScatteringDensities;

@@ -2,7 +2,7 @@
 //! resistivity against temperature, one series per sample (and field), in the units of the
 //! column names (the host converts to cm^-3, cm^2/(V s), ohm cm).
 
-use mobilis_sdk::abi::{AxisScale, AxisSpec, FigureSpec, LayerSpec, Naming, PanelSpec, Transform};
+use mobilis_sdk::figure_spec::{AxisScale, AxisSpec, FigureSpec, LayerSpec, Naming, PanelSpec, Transform};
 
 /// One series of |column| per sample and field against temperature, with error bars.
 fn against_temperature(

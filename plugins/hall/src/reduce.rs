@@ -197,7 +197,7 @@ mod tests;
 use std::collections::HashMap;
 
 use mobilis_physics::contacts::{classify_hall_bar, classify_van_der_pauw, Classified, Configuration, ContactError};
-pub use mobilis_physics::readings::RawReading;
+use mobilis_physics::readings::RawReading;
 
 use cells::{
     cell_key, gap_clusters, runs_by_key, setpoint_clusters, summarize_cell, CellSummary, NoiseEvidence, Prepared,

@@ -2,7 +2,7 @@
 //! symmetrized sweeps, magnetoresistance and Kohler plots, the two-band fit, the quantum
 //! oscillation plots (spectrum, mass, curves, Dingle, Landau fan) and weak localization.
 
-use mobilis_sdk::abi::{
+use mobilis_sdk::figure_spec::{
     AxisScale, AxisSpec, DashSpec, ErrorBars, FigureSpec, LayerSpec, Naming, PanelSpec, SeriesKey, Transform,
 };
 

@@ -95,12 +95,14 @@ use mobilis_physics::carrier_fit::{
 };
 use mobilis_physics::constants::ELEMENTARY_CHARGE_C;
 use mobilis_physics::forward::tensor::{
-    high_field_hall_coefficient_m2_per_c, invert_tensor, low_field_hall_coefficient_m2_per_c, sum_conductivity,
+    high_field_hall_coefficient_m2_per_c, low_field_hall_coefficient_m2_per_c, sum_conductivity,
 };
 use mobilis_physics::sweep::{symmetrize, SweepError, SweepUse, SymmetrizeSettings, Symmetrized};
 use mobilis_physics::tensor_data::{TensorData, TensorDataError};
 
-pub use mobilis_physics::forward::tensor::{Carrier, CarrierKind, ResistivityTensor};
+use mobilis_physics::field_tensor::invert_tensor;
+pub use mobilis_physics::field_tensor::ResistivityTensor;
+pub use mobilis_physics::forward::tensor::{Carrier, CarrierKind};
 pub use mobilis_physics::sweep::{ResistivityUncertainty, SweepPoint};
 
 /// Mobilities per carrier in the grid of deterministic starts.

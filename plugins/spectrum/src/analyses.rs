@@ -19,8 +19,9 @@ use crate::multi_carrier::{
 };
 use crate::reduction::reduce;
 use mobilis_physics::sweep::{symmetrize, SweepPoint, SweepUse};
-use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, FigureSpec};
+use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType};
 use mobilis_sdk::choices::CarrierChoice;
+use mobilis_sdk::figure_spec::FigureSpec;
 use mobilis_sdk::sdk::{invalid, Analysis, AnalysisError, AnalysisOutput, Host, Inputs, OutputBuilder};
 use mobilis_sdk::sweep_table::{single_sweep, sweep_role, SweepParams, SweepTable};
 use schemars::JsonSchema;

@@ -1,7 +1,7 @@
 //! The figures of the spectrum analyses' tables, declared for the host to draw: the mobility
 //! spectrum (one panel per sweep) and the measured and fitted tensor components against field.
 
-use mobilis_sdk::abi::{AxisScale, AxisSpec, DashSpec, FigureSpec, LayerSpec, PanelSpec};
+use mobilis_sdk::figure_spec::{AxisScale, AxisSpec, DashSpec, FigureSpec, LayerSpec, PanelSpec};
 
 /// Palette indices that keep electrons and holes in their colours in every panel.
 const ELECTRON: usize = 0;

@@ -811,7 +811,7 @@ fn finish(
         .map(|(k, p)| {
             let fit = sum_conductivity(&model_carriers, p.field_t);
             let fit_rho = fit.to_resistivity();
-            let data_rho = mobilis_physics::forward::tensor::ConductivityTensor {
+            let data_rho = mobilis_physics::field_tensor::ConductivityTensor {
                 sigma_xx_s: p.sigma_xx_s,
                 sigma_xy_s: p.sigma_xy_s,
             }

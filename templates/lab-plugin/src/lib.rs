@@ -24,7 +24,7 @@
 
 use mobilis_physics::constants::ELEMENTARY_CHARGE_C;
 use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
-use mobilis_sdk::abi::{AxisScale, AxisSpec, FigureSpec, LayerSpec, Naming, PanelSpec};
+use mobilis_sdk::figure_spec::{AxisScale, AxisSpec, FigureSpec, LayerSpec, Naming, PanelSpec};
 use mobilis_sdk::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs, OutputBuilder};
 use polars::prelude::Column;
 use schemars::JsonSchema;

@@ -50,9 +50,8 @@ use super::{require_finite, require_non_negative, require_positive, ForwardError
 use crate::constants::ELEMENTARY_CHARGE_C;
 use crate::sweep::{ResistivityUncertainty, SweepPoint};
 use mobilis_numerics::noise::Rng;
-// The tensors at one field live below both the forward models and the sweeps, which use
-// them; they are named here too because they are what this model returns.
-pub use crate::field_tensor::{invert_tensor, ConductivityTensor, ResistivityTensor};
+// The tensors at one field live below both the forward models and the sweeps, which use them.
+use crate::field_tensor::{ConductivityTensor, ResistivityTensor};
 
 /// Electron or hole.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]
@@ -323,6 +322,7 @@ pub fn symmetric_fields(max_field_t: f64, steps_per_sign: usize) -> Result<Vec<f
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::field_tensor::invert_tensor;
 
     const CM3: f64 = 1e6;
     const CM2_PER_VS: f64 = 1e-4;

@@ -10,7 +10,8 @@
 //! silicon measured with an autoranging current source and a 1 uV voltmeter (common
 //! practice).
 
-use super::{CarrierType, DensityPoint};
+use super::DensityPoint;
+use crate::carrier_type::CarrierType;
 use crate::materials::Material;
 use mobilis_numerics::noise::Rng;
 use mobilis_physics::forward::statistics::{solve_charge_neutrality, Dopants};

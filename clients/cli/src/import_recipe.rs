@@ -21,8 +21,8 @@
 //! pipeline file) beside them.
 
 use anyhow::{bail, Context};
+use mobilis_protocol::params::{CsvDialect, ImportParams, TableFormat, UnitSpec};
 use serde::Deserialize;
-use serde_json::{json, Value};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
@@ -148,52 +148,53 @@ impl ImportRecipe {
         self
     }
 
-    /// The parameters of `dataset.import` besides name, path and overwrite.
-    /// The recipe as `dataset.import` params (without name, path and overwrite).
-    pub fn to_params(&self) -> anyhow::Result<mobilis_protocol::params::ImportParams> {
-        let mut object = self.to_object()?;
-        // The name is the caller's to give; the protocol type needs one to be read.
-        object.insert("name".into(), json!(""));
-        serde_json::from_value(Value::Object(object)).context("the import recipe is not a valid dataset.import request")
-    }
-
-    fn to_object(&self) -> anyhow::Result<serde_json::Map<String, Value>> {
-        let mut params = serde_json::Map::new();
-        if let Some(format) = &self.format {
-            params.insert("format".into(), json!(format));
-        }
-        if !self.rename.is_empty() {
-            params.insert("rename".into(), json!(self.rename));
-        }
-        if !self.units.is_empty() {
-            let units: serde_json::Map<String, Value> = self
-                .units
-                .iter()
-                .map(|(column, unit)| Ok((column.clone(), serde_json::to_value(unit)?)))
-                .collect::<anyhow::Result<_>>()?;
-            params.insert("units".into(), Value::Object(units));
-        }
-        let mut csv = serde_json::Map::new();
+    /// The recipe as `dataset.import` params (without name, path and overwrite), built as
+    /// the protocol's own type so that the CLI names no member of it by hand.
+    pub fn to_params(&self) -> anyhow::Result<ImportParams> {
+        let format = match &self.format {
+            None => None,
+            Some(name) => Some(
+                TableFormat::deserialize(toml::Value::String(name.clone()))
+                    .map_err(|error| anyhow::anyhow!("format: {}", error.message()))?,
+            ),
+        };
+        let units = self
+            .units
+            .iter()
+            .map(|(column, unit)| {
+                let spec = UnitSpec::deserialize(unit.clone()).map_err(|error| {
+                    anyhow::anyhow!(
+                        "units.{column}: {} (give a unit name, or {{unit, to}})",
+                        error.message()
+                    )
+                })?;
+                Ok((column.clone(), spec))
+            })
+            .collect::<anyhow::Result<_>>()?;
         let c = &self.csv;
-        if let Some(v) = &c.separator {
-            csv.insert("separator".into(), json!(v));
-        }
-        if let Some(v) = c.decimal_comma {
-            csv.insert("decimal_comma".into(), json!(v));
-        }
-        if let Some(v) = &c.comment_prefix {
-            csv.insert("comment_prefix".into(), json!(v));
-        }
-        if let Some(v) = c.skip_rows {
-            csv.insert("skip_rows".into(), json!(v));
-        }
-        if let Some(v) = c.header {
-            csv.insert("header".into(), json!(v));
-        }
-        if !csv.is_empty() {
-            params.insert("csv".into(), Value::Object(csv));
-        }
-        Ok(params)
+        let stated = c.separator.is_some()
+            || c.decimal_comma.is_some()
+            || c.comment_prefix.is_some()
+            || c.skip_rows.is_some()
+            || c.header.is_some();
+        // A member the recipe leaves out keeps the protocol's default.
+        let csv = stated.then(|| {
+            let default = CsvDialect::default();
+            CsvDialect {
+                separator: c.separator.clone().unwrap_or(default.separator),
+                decimal_comma: c.decimal_comma.unwrap_or(default.decimal_comma),
+                comment_prefix: c.comment_prefix.clone().or(default.comment_prefix),
+                skip_rows: c.skip_rows.unwrap_or(default.skip_rows),
+                header: c.header.unwrap_or(default.header),
+            }
+        });
+        Ok(ImportParams {
+            format,
+            rename: self.rename.clone(),
+            units,
+            csv,
+            ..ImportParams::default()
+        })
     }
 }
 
@@ -226,10 +227,7 @@ impl ImportFlags {
 
 /// The `dataset.import` parameters of a pipeline file's `[[import]]` table, whose paths
 /// (`path`, `recipe`) are relative to the pipeline file's directory `base`.
-pub fn pipeline_import(
-    mut table: toml::Table,
-    base: &Path,
-) -> anyhow::Result<(String, mobilis_protocol::params::ImportParams)> {
+pub fn pipeline_import(mut table: toml::Table, base: &Path) -> anyhow::Result<(String, ImportParams)> {
     let mut take_string = |key: &str| -> anyhow::Result<Option<String>> {
         match table.remove(key) {
             None => Ok(None),
@@ -249,7 +247,7 @@ pub fn pipeline_import(
         Some(file) => ImportRecipe::load(&base.join(file))?.overridden_by(inline),
         None => inline,
     };
-    let params = mobilis_protocol::params::ImportParams {
+    let params = ImportParams {
         name: name.clone(),
         path: Some(base.join(&path).display().to_string()),
         overwrite: true,
@@ -261,6 +259,7 @@ pub fn pipeline_import(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use serde_json::json;
 
     #[test]
     fn pairs_split_at_the_first_equals_sign() {
@@ -295,15 +294,38 @@ mod tests {
             },
             ..ImportRecipe::default()
         };
-        let params = recipe.overridden_by(flags).to_object().unwrap();
+        let params = serde_json::to_value(recipe.overridden_by(flags).to_params().unwrap()).unwrap();
         assert_eq!(
-            Value::Object(params),
+            params,
             json!({
+                "name": "",
                 "rename": {"Sample ID": "sample", "T (C)": "temp_C"},
                 "units": {"temperature_C": "degC"},
-                "csv": {"separator": "tab", "decimal_comma": true, "comment_prefix": "#"},
+                "csv": {"separator": "tab", "decimal_comma": true, "comment_prefix": "#", "skip_rows": 0, "header": true},
             })
         );
+    }
+
+    #[test]
+    fn a_bad_format_or_unit_names_the_key_and_what_it_takes() {
+        let recipe: ImportRecipe = toml::from_str("format = \"xlsx\"").unwrap();
+        let error = recipe.to_params().unwrap_err().to_string();
+        assert!(error.starts_with("format:") && error.contains("parquet"), "{error}");
+        let recipe: ImportRecipe = toml::from_str("[units]\nT = 5").unwrap();
+        let error = recipe.to_params().unwrap_err().to_string();
+        assert!(error.starts_with("units.T:") && error.contains("{unit, to}"), "{error}");
+        let recipe: ImportRecipe =
+            toml::from_str("format = \"parquet\"\n[units]\nT = { unit = \"degC\", to = \"temperature_K\" }").unwrap();
+        let params = recipe.to_params().unwrap();
+        assert_eq!(params.format, Some(TableFormat::Parquet));
+        assert_eq!(
+            params.units["T"],
+            UnitSpec::Renamed {
+                unit: "degC".into(),
+                to: "temperature_K".into()
+            }
+        );
+        assert!(params.csv.is_none());
     }
 
     #[test]

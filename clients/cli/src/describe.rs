@@ -28,6 +28,72 @@ fn compact(value: &Value) -> String {
     }
 }
 
+/// A schema with its choices written out: derived parameter schemas state a choice as
+/// `oneOf` constants (each with its description) and an optional one as `anyOf` with
+/// `{"type": "null"}`; both read here as a `type` and an `enum`, plus the choices'
+/// descriptions.
+fn plain(schema: &Map<String, Value>) -> (Map<String, Value>, Vec<(String, String)>) {
+    let mut plain = schema.clone();
+    let mut meanings = Vec::new();
+    if let Some(Value::Array(options)) = schema.get("anyOf") {
+        let nullable = options.iter().any(|option| option["type"] == "null");
+        let others: Vec<&Map<String, Value>> = options
+            .iter()
+            .filter(|option| option["type"] != "null")
+            .filter_map(Value::as_object)
+            .collect();
+        if let [only] = others.as_slice() {
+            let (inner, inner_meanings) = self::plain(only);
+            for (key, value) in inner {
+                if !matches!(key.as_str(), "description" | "default") {
+                    plain.entry(key).or_insert(value);
+                }
+            }
+            plain.remove("anyOf");
+            meanings = inner_meanings;
+            if nullable {
+                let mut types: Vec<Value> = match plain.get("type") {
+                    Some(Value::Array(list)) => list.clone(),
+                    Some(one) => vec![one.clone()],
+                    None => Vec::new(),
+                };
+                types.push(Value::from("null"));
+                plain.insert("type".into(), Value::Array(types));
+                if let Some(Value::Array(choices)) = plain.get_mut("enum") {
+                    choices.push(Value::Null);
+                }
+            }
+        }
+    }
+    if let Some(Value::Array(options)) = schema.get("oneOf") {
+        if options.iter().all(|option| option.get("const").is_some()) {
+            let mut types: Vec<Value> = Vec::new();
+            for option in options {
+                if let Some(kind) = option.get("type") {
+                    if !types.contains(kind) {
+                        types.push(kind.clone());
+                    }
+                }
+                if let Some(meaning) = option.get("description").and_then(Value::as_str) {
+                    meanings.push((compact(&option["const"]), meaning.to_owned()));
+                }
+            }
+            let choices = options.iter().map(|option| option["const"].clone()).collect();
+            plain.remove("oneOf");
+            plain.insert("enum".into(), Value::Array(choices));
+            if let [one] = types.as_slice() {
+                plain.insert("type".into(), one.clone());
+            }
+        }
+    }
+    if let Some(items) = schema.get("items").and_then(Value::as_object) {
+        let (items, item_meanings) = self::plain(items);
+        plain.insert("items".into(), Value::Object(items));
+        meanings.extend(item_meanings);
+    }
+    (plain, meanings)
+}
+
 /// The type a schema allows (`number`, `string or null`, `array of number`).
 fn type_of(schema: &Map<String, Value>) -> String {
     let names: Vec<String> = match schema.get("type") {
@@ -57,6 +123,10 @@ fn allowed(schema: &Map<String, Value>) -> String {
     if let Some(Value::Array(options)) = schema.get("enum") {
         let options: Vec<String> = options.iter().map(compact).collect();
         parts.push(format!("one of {}", options.join(", ")));
+    }
+    if let Some(Value::Array(options)) = schema.get("items").and_then(|items| items.get("enum")) {
+        let options: Vec<String> = options.iter().map(compact).collect();
+        parts.push(format!("each one of {}", options.join(", ")));
     }
     for (key, symbol) in [
         ("minimum", ">="),
@@ -101,6 +171,8 @@ fn wrap(text: &str, indent: usize, width: usize) -> String {
 
 /// One parameter (and the members of an object parameter, as `name.member`).
 fn write_parameter(out: &mut String, name: &str, schema: &Map<String, Value>, required: bool) {
+    let (schema, meanings) = plain(schema);
+    let schema = &schema;
     let unit = unit_of(name, schema.get("unit").and_then(Value::as_str));
     let mut head = format!("  {name}  {}", type_of(schema));
     if !unit.is_empty() {
@@ -120,6 +192,9 @@ fn write_parameter(out: &mut String, name: &str, schema: &Map<String, Value>, re
     let _ = writeln!(out, "{head}");
     if let Some(description) = schema.get("description").and_then(Value::as_str) {
         out.push_str(&wrap(description, 6, 96));
+    }
+    for (choice, meaning) in &meanings {
+        out.push_str(&wrap(&format!("{choice}: {meaning}"), 8, 96));
     }
     if let Some(members) = schema.get("properties").and_then(Value::as_object) {
         for (member, member_schema) in members {
@@ -235,6 +310,36 @@ pub fn render(description: &Value) -> String {
 mod tests {
     use super::*;
     use serde_json::json;
+
+    #[test]
+    fn derived_choices_show_as_choices_with_their_meanings() {
+        // The shapes a derived parameter schema gives a choice, an optional choice and a
+        // list of choices (see `mobilis_sdk::sdk::params_schema`).
+        let choice = |value: &str, meaning: &str| json!({"type": "string", "const": value, "description": meaning});
+        let description = json!({
+            "name": "x.fit", "plugin": {"name": "x", "version": "1.0"}, "inputs": [],
+            "params": {"type": "object", "properties": {
+                "window": {"oneOf": [choice("hann", "raised cosine"), choice("blackman", "lowest leakage")],
+                           "default": "hann", "description": "FFT window"},
+                "kind": {"anyOf": [{"oneOf": [choice("n", "electrons"), choice("p", "holes")]}, {"type": "null"}],
+                         "default": null, "description": "force a kind"},
+                "carriers": {"type": ["array", "null"], "minItems": 1,
+                             "items": {"oneOf": [choice("n", "electrons"), choice("p", "holes")]}}
+            }},
+            "summary_keys": []
+        });
+        let text = render(&description);
+        for expected in [
+            "window  string; default hann; one of hann, blackman",
+            "hann: raised cosine",
+            "kind  string or null; default null; one of n, p, null",
+            "p: holes",
+            "carriers  array of string or null; optional; each one of n, p, at least 1 items",
+        ] {
+            assert!(text.contains(expected), "missing `{expected}` in\n{text}");
+        }
+        assert!(!text.contains(" any"), "{text}");
+    }
 
     #[test]
     fn parameters_show_unit_default_range_and_meaning() {

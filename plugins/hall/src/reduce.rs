@@ -167,8 +167,14 @@
 //!   depend on the number of threads.
 //! - A row is drafted as a compact record (`row::RowRecord`: plain values with a presence
 //!   mask, the estimates its uncertainties are finished from, the flags as a bit set; no
-//!   text or list per row). A drift-corrected group overwrites its rows in place, from
-//!   scratch buffers reused from group to group.
+//!   text or list per row).
+//! - A drifting group is reduced in full once, with the correction of the last pass that
+//!   touched it. The passes before only feed the drift slopes, which read the first row's
+//!   sheet resistance and sheet Hall coefficient: there the group is drafted
+//!   (`cells::Detail::Values`), by the same code as the full row without what the slopes
+//!   do not read (standard errors, noise evidence, flags, quality numbers, the rows of the
+//!   other field setpoints), so the values are the same to the bit. The corrected copies of
+//!   a group's readings live in a buffer reused from group to group.
 //! - The result is columnar (`table`): every output column is one buffer sized once for all
 //!   rows (values and validity), each sample writes its rows' finished values (the
 //!   uncertainty budgets, with the noise scales and systematic factors shared by a row or a
@@ -200,8 +206,8 @@ use mobilis_physics::contacts::{classify_hall_bar, classify_van_der_pauw, Classi
 use mobilis_physics::readings::RawReading;
 
 use cells::{
-    cell_key, gap_clusters, runs_by_key, setpoint_clusters, summarize_cell, CellSummary, NoiseEvidence, Prepared,
-    MAX_SLOTS,
+    cell_key, gap_clusters, runs_by_key, setpoint_clusters, summarize_cell, summarize_cell_values, CellSummary, Detail,
+    NoiseEvidence, Prepared, MAX_SLOTS,
 };
 pub use contract::{
     calibration_names, float_column, Calibration, CalibrationUsed, Geometry, QualityThresholds, ReduceSettings,
@@ -210,7 +216,8 @@ pub use contract::{
 pub use error::{ReadingProblem, ReduceError};
 pub use row::FlagSet;
 use row::{
-    build_row, FieldCells, Quantity, ResolvedCalibration, ResolvedSample, RowRecord, TemperatureGroup, ZeroFieldCells,
+    build_row, draft_row, FieldCells, ResolvedCalibration, ResolvedSample, RowDraft, RowRecord, TemperatureGroup,
+    ZeroFieldCells,
 };
 use table::SampleReduction;
 pub use table::{FloatColumn, ReductionTable};
@@ -588,89 +595,119 @@ fn reduce_sample(
         sample_readings.iter().map(|reading| reading.temperature_k),
         settings.temperature_tolerance_k,
     );
-    // First pass: every temperature group as measured, its rows one after the other in
-    // `records` (`bounds` says which are whose), written once into one block per sample.
+    let group_count = temperature_ranges.len();
+    // A group's rows are final only after the last pass that touches it, and until then
+    // the drift slopes read only its first row's sheet resistance and sheet Hall
+    // coefficient. So a group whose readings drift is first drafted (`Detail::Values`) in
+    // every pass, and reduced in full once, at the end, with its last correction; a group
+    // at one temperature is never corrected and is reduced in full in the first pass.
+    //
+    // First pass: every group as measured. It sorts each group's readings in place, as
+    // every later pass and the final reduction of a corrected group start from that order;
+    // a drifting group's readings are kept as they came for its final reduction, should it
+    // stay as measured.
     let mut largest_zero_field_t = 0.0_f64;
-    let mut records: Vec<RowRecord> = Vec::with_capacity(temperature_ranges.len());
-    let mut bounds: Vec<std::ops::Range<usize>> = Vec::with_capacity(temperature_ranges.len());
-    let mut group_warnings: Vec<Vec<String>> = Vec::with_capacity(temperature_ranges.len());
+    let mut drafts: Vec<RowDraft> = Vec::with_capacity(group_count);
+    let mut drifted: Vec<bool> = Vec::with_capacity(group_count);
+    let mut as_measured: Vec<Prepared> = Vec::new();
+    let mut final_rows: Vec<RowRecord> = Vec::new();
+    let mut final_bounds: Vec<std::ops::Range<usize>> = Vec::with_capacity(group_count);
+    let mut final_warnings: Vec<Vec<String>> = Vec::with_capacity(group_count);
     for temperature_range in &temperature_ranges {
+        let readings = &mut sample_readings[temperature_range.clone()];
+        let drifts = readings
+            .iter()
+            .any(|reading| reading.temperature_k != readings[0].temperature_k);
+        drifted.push(drifts);
         let mut warnings_of_group = Vec::new();
-        let start = records.len();
-        let largest = reduce_temperature_group(
-            &mut sample_readings[temperature_range.clone()],
-            sample,
-            settings,
-            None,
-            &mut records,
-            &mut warnings_of_group,
-        );
-        bounds.push(start..records.len());
+        let start = final_rows.len();
+        let largest = if drifts {
+            as_measured.extend_from_slice(readings);
+            let (draft, largest) = draft_temperature_group(readings, sample, settings, None);
+            drafts.push(draft);
+            largest
+        } else {
+            let largest = reduce_temperature_group(
+                readings,
+                sample,
+                settings,
+                None,
+                &mut final_rows,
+                &mut warnings_of_group,
+            );
+            drafts.push(final_rows[start].draft());
+            largest
+        };
+        final_bounds.push(start..final_rows.len());
+        final_warnings.push(warnings_of_group);
         largest_zero_field_t = largest_zero_field_t.max(largest);
-        group_warnings.push(warnings_of_group);
     }
     // Further passes for the groups whose readings drifted: each reading brought to the
     // group's mean temperature with the series' own slopes, taken from the previous
     // pass (whose values the drift biased a little; a second correction removes what
-    // the first left). A corrected group's rows replace its previous rows in place (the
-    // correction changes voltages only, so the group's rows are as many as before). The
-    // corrected copy of a group's readings and its rows live in buffers reused from group
-    // to group.
+    // the first left). The slopes a group is finally corrected with are those of the last
+    // pass that corrected it; a pass before the last drafts the corrected group for the
+    // next pass's slopes. The corrected copy of a group's readings lives in a buffer
+    // reused from group to group.
+    let mut corrections: Vec<Option<DriftSlopes>> = vec![None; group_count];
     let mut corrected: Vec<Prepared> = Vec::new();
-    let mut group_rows: Vec<RowRecord> = Vec::new();
-    for _ in 0..DRIFT_CORRECTION_PASSES {
-        let first_rows: Vec<Option<&RowRecord>> = bounds
-            .iter()
-            .map(|range| (!range.is_empty()).then(|| &records[range.start]))
-            .collect();
-        let slopes = drift_slopes(&first_rows);
-        drop(first_rows);
+    for pass in 0..DRIFT_CORRECTION_PASSES {
+        let slopes = drift_slopes(&drafts);
         let mut any = false;
         for (index, temperature_range) in temperature_ranges.iter().enumerate() {
-            let readings = &sample_readings[temperature_range.clone()];
-            let drifted = readings
-                .iter()
-                .any(|reading| reading.temperature_k != readings[0].temperature_k);
-            let Some(group_slopes) = slopes[index].filter(|_| drifted) else {
+            let Some(group_slopes) = slopes[index].filter(|_| drifted[index]) else {
                 continue;
             };
+            let readings = &sample_readings[temperature_range.clone()];
             if largest_drift_correction(readings, group_slopes, sample.geometry) > LARGEST_DRIFT_CORRECTION {
                 // Beyond first order (a Hall coefficient crossing zero, a transition):
                 // the group stays as measured, with its readings' spread in u(T).
                 continue;
             }
             any = true;
-            corrected.clear();
-            corrected.extend_from_slice(readings);
-            correct_drift(&mut corrected, group_slopes, sample.geometry);
-            group_rows.clear();
-            let mut warnings_of_group = Vec::new();
-            reduce_temperature_group(
-                &mut corrected,
-                sample,
-                settings,
-                Some(group_slopes),
-                &mut group_rows,
-                &mut warnings_of_group,
-            );
-            let range = bounds[index].clone();
-            if range.len() == group_rows.len() {
-                records[range].copy_from_slice(&group_rows);
-            } else {
-                let shift = group_rows.len() as isize - range.len() as isize;
-                records.splice(range.clone(), group_rows.iter().copied());
-                bounds[index] = range.start..range.start + group_rows.len();
-                for later in &mut bounds[index + 1..] {
-                    *later = (later.start as isize + shift) as usize..(later.end as isize + shift) as usize;
-                }
+            corrections[index] = Some(group_slopes);
+            if pass + 1 < DRIFT_CORRECTION_PASSES {
+                corrected.clear();
+                corrected.extend_from_slice(readings);
+                correct_drift(&mut corrected, group_slopes, sample.geometry);
+                drafts[index] = draft_temperature_group(&mut corrected, sample, settings, Some(group_slopes)).0;
             }
-            group_warnings[index] = warnings_of_group;
         }
         if !any {
             break;
         }
     }
-    let row_warnings: Vec<String> = group_warnings.into_iter().flatten().collect();
+    drop(drafts);
+    // The rows, group after group: a drifting group reduced in full once, corrected with its
+    // last slopes or as measured.
+    let mut records: Vec<RowRecord> = Vec::with_capacity(group_count);
+    let mut row_warnings: Vec<String> = Vec::new();
+    let mut as_measured_start = 0usize;
+    for (index, temperature_range) in temperature_ranges.iter().enumerate() {
+        if !drifted[index] {
+            records.extend_from_slice(&final_rows[final_bounds[index].clone()]);
+            row_warnings.append(&mut final_warnings[index]);
+            continue;
+        }
+        let readings = match corrections[index] {
+            Some(group_slopes) => {
+                corrected.clear();
+                corrected.extend_from_slice(&sample_readings[temperature_range.clone()]);
+                correct_drift(&mut corrected, group_slopes, sample.geometry);
+                &mut corrected[..]
+            }
+            None => &mut as_measured[as_measured_start..as_measured_start + temperature_range.len()],
+        };
+        as_measured_start += temperature_range.len();
+        reduce_temperature_group(
+            readings,
+            sample,
+            settings,
+            corrections[index],
+            &mut records,
+            &mut row_warnings,
+        );
+    }
     let warning = (largest_zero_field_t > STRICT_ZERO_FIELD_T).then(|| {
         format!(
             "sample {:?}: readings with |B| up to {:.4} T were taken as zero field (zero_field_tolerance_T = {} T), a remanent field at a nominal zero; if they were meant as a Hall field, lower zero_field_tolerance_T",
@@ -1051,19 +1088,18 @@ struct DriftSlopes {
 /// end). In 1/T a thermally activated density is a straight line, which the parabola follows
 /// exactly; a power law in T is followed to second order. `None` for a group without a resistance slope, or without a
 /// Hall slope when it has Hall quantities, and for a series of one temperature.
-fn drift_slopes(first_rows: &[Option<&RowRecord>]) -> Vec<Option<DriftSlopes>> {
-    let points = |value: fn(&RowRecord) -> Option<f64>| -> Vec<Option<(f64, f64)>> {
+fn drift_slopes(first_rows: &[RowDraft]) -> Vec<Option<DriftSlopes>> {
+    let points = |value: fn(&RowDraft) -> Option<f64>| -> Vec<Option<(f64, f64)>> {
         first_rows
             .iter()
             .map(|row| {
-                let row = (*row)?;
                 let value = value(row)?.abs();
                 (value > 0.0 && value.is_finite()).then(|| (1.0 / row.temperature_k, value.ln()))
             })
             .collect()
     };
-    let resistance = points(|row| row.estimate(Quantity::SheetResistance).map(|e| e.value));
-    let hall = points(|row| row.estimate(Quantity::SheetHallCoefficient).map(|e| e.value));
+    let resistance = points(|row| row.sheet_resistance);
+    let hall = points(|row| row.sheet_hall_coefficient);
     let slope_at = |series: &[Option<(f64, f64)>], index: usize| -> Option<f64> {
         let centre = series[index]?;
         let mut before = series[..index].iter().rev().flatten();
@@ -1158,6 +1194,62 @@ fn reduce_temperature_group(
     rows: &mut Vec<RowRecord>,
     warnings: &mut Vec<String>,
 ) -> f64 {
+    walk_temperature_group(
+        readings,
+        sample,
+        settings,
+        drift_correction,
+        Detail::Full,
+        |group, zero, field| {
+            rows.push(build_row(group, zero, field, settings, warnings));
+            true
+        },
+    )
+}
+
+/// What the drift slopes read of the first row of a temperature group ([`Detail::Values`]),
+/// and the largest |B| taken as zero field: the group's cells are summarized by their
+/// values only, and the other field setpoints not at all.
+fn draft_temperature_group(
+    readings: &mut [Prepared],
+    sample: &ResolvedSample<'_>,
+    settings: &ReduceSettings,
+    drift_correction: Option<DriftSlopes>,
+) -> (RowDraft, f64) {
+    let mut draft = None;
+    let largest_zero_field_t = walk_temperature_group(
+        readings,
+        sample,
+        settings,
+        drift_correction,
+        Detail::Values,
+        |group, zero, field| {
+            draft = Some(draft_row(group, zero, field));
+            false
+        },
+    );
+    (
+        draft.expect("a temperature group has a first row"),
+        largest_zero_field_t,
+    )
+}
+
+/// Sorts a temperature group's readings into its cells and hands each row's cells to `row`
+/// (one per field setpoint, or one at zero field only), until it returns false. The cells
+/// are summarized at `detail`. Returns the largest |B| taken as zero field.
+#[inline(always)]
+fn walk_temperature_group(
+    readings: &mut [Prepared],
+    sample: &ResolvedSample<'_>,
+    settings: &ReduceSettings,
+    drift_correction: Option<DriftSlopes>,
+    detail: Detail,
+    mut row: impl FnMut(&TemperatureGroup<'_>, &ZeroFieldCells, Option<&FieldCells>) -> bool,
+) -> f64 {
+    let summarize = match detail {
+        Detail::Full => summarize_cell,
+        Detail::Values => summarize_cell_values,
+    };
     let count = readings.len() as f64;
     let temperature_k = readings.iter().map(|reading| reading.temperature_k).sum::<f64>() / count;
     let (coldest_k, warmest_k) = readings
@@ -1169,7 +1261,7 @@ fn reduce_temperature_group(
     // A drift the second pass corrected no longer enters to first order. Without a
     // correction (one temperature, or no slope to correct with), the row's quantities refer
     // to some temperature within the readings' spread: their standard deviation.
-    let temperature_reading_unc_k = if drift_correction.is_some() || readings.len() < 2 {
+    let temperature_reading_unc_k = if drift_correction.is_some() || readings.len() < 2 || detail == Detail::Values {
         0.0
     } else {
         let squares: f64 = readings
@@ -1198,7 +1290,7 @@ fn reduce_temperature_group(
     };
     for range in runs_by_key(zero_readings, |reading| reading.slot) {
         let slot = zero_readings[range.start].slot as usize;
-        zero.cells[slot] = Some(summarize_cell(&zero_readings[range]));
+        zero.cells[slot] = Some(summarize(&zero_readings[range]));
     }
 
     let field_ranges = setpoint_clusters(
@@ -1206,24 +1298,26 @@ fn reduce_temperature_group(
         settings.field_tolerance_t,
     );
     if field_ranges.is_empty() {
-        rows.push(build_row(&group, &zero, None, settings, warnings));
+        row(&group, &zero, None);
         return largest_zero_field_t;
     }
     for field_range in field_ranges {
         let cluster = &mut field_readings[field_range];
         cluster.sort_unstable_by_key(|reading| cell_key(reading, true));
-        let field = summarize_field_cluster(cluster);
-        rows.push(build_row(&group, &zero, Some(&field), settings, warnings));
+        let field = summarize_field_cluster(cluster, summarize);
+        if !row(&group, &zero, Some(&field)) {
+            break;
+        }
     }
     largest_zero_field_t
 }
 
-fn summarize_field_cluster(cluster: &[Prepared]) -> FieldCells {
+fn summarize_field_cluster(cluster: &[Prepared], summarize: fn(&[Prepared]) -> CellSummary) -> FieldCells {
     let mut cells: [[Option<CellSummary>; 2]; MAX_SLOTS] = [[None; 2]; MAX_SLOTS];
     for range in runs_by_key(cluster, |reading| (reading.slot, reading.field_t < 0.0)) {
         let first = cluster[range.start];
         let sign = usize::from(first.field_t < 0.0);
-        cells[first.slot as usize][sign] = Some(summarize_cell(&cluster[range]));
+        cells[first.slot as usize][sign] = Some(summarize(&cluster[range]));
     }
     let mean_abs = |negative: bool| {
         let (sum, count) = cluster

@@ -233,7 +233,35 @@ impl CellSummary {
 /// them would be ill-conditioned, and repeats at one set current agree to far better than this.
 const DISTINCT_CURRENT_RELATIVE: f64 = 1e-9;
 
+/// How much of a temperature group a reduction computes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(super) enum Detail {
+    /// Everything a row reports.
+    Full,
+    /// Only the values that the drift slopes read (the first row's sheet resistance and
+    /// sheet Hall coefficient), for a drift-correction pass whose rows the next pass
+    /// supersedes. Each value is computed by the same code, hence the same arithmetic, as
+    /// in [`Detail::Full`], so it is the same to the bit; the standard errors, noise
+    /// coefficients, evidence, flags and quality numbers are left out.
+    Values,
+}
+
+/// The statistics of one cell, every one of them.
 pub(super) fn summarize_cell(readings: &[Prepared]) -> CellSummary {
+    summarize::<true>(readings)
+}
+
+/// The values of one cell's statistics (see [`Detail::Values`]): the fitted resistance and
+/// offset, the polarities' mean V/I and mean |B|; no standard error, noise coefficient or
+/// residuals (`None`, 0 and no evidence).
+pub(super) fn summarize_cell_values(readings: &[Prepared]) -> CellSummary {
+    summarize::<false>(readings)
+}
+
+/// [`summarize_cell`] with `UNCERTAINTIES`, [`summarize_cell_values`] without: one body, so
+/// that the values are the same to the bit in both.
+#[inline(always)]
+fn summarize<const UNCERTAINTIES: bool>(readings: &[Prepared]) -> CellSummary {
     debug_assert!(!readings.is_empty());
     let count = readings.len();
     let n = count as f64;
@@ -254,9 +282,9 @@ pub(super) fn summarize_cell(readings: &[Prepared]) -> CellSummary {
         max_current = max_current.max(reading.current_a);
         max_abs_current = max_abs_current.max(reading.current_a.abs());
         if reading.current_a > 0.0 {
-            polarity_sums[0].add(reading);
+            polarity_sums[0].add::<UNCERTAINTIES>(reading);
         } else if reading.current_a < 0.0 {
-            polarity_sums[1].add(reading);
+            polarity_sums[1].add::<UNCERTAINTIES>(reading);
         }
         let side = if reading.current_a > 0.0 { 0 } else { 1 };
         field_sums[side] = (field_sums[side].0 + reading.field_t.abs(), field_sums[side].1 + 1);
@@ -275,47 +303,59 @@ pub(super) fn summarize_cell(readings: &[Prepared]) -> CellSummary {
         }
         let slope = sxy / sxx;
         let offset = mean_voltage - slope * mean_current;
-        let residual_sum: f64 = readings
-            .iter()
-            .map(|reading| (reading.voltage_v - offset - slope * reading.current_a).powi(2))
-            .sum();
-        let standard_error = (count > 2).then(|| (residual_sum / (n - 2.0) / sxx).sqrt());
-        noise = NoiseEvidence {
-            sum_of_squares_v2: residual_sum,
-            degrees_of_freedom: count - 2,
+        let (standard_error, noise_coefficient) = if UNCERTAINTIES {
+            let residual_sum: f64 = readings
+                .iter()
+                .map(|reading| (reading.voltage_v - offset - slope * reading.current_a).powi(2))
+                .sum();
+            noise = NoiseEvidence {
+                sum_of_squares_v2: residual_sum,
+                degrees_of_freedom: count - 2,
+            };
+            (
+                (count > 2).then(|| (residual_sum / (n - 2.0) / sxx).sqrt()),
+                1.0 / sxx.sqrt(),
+            )
+        } else {
+            noise = NoiseEvidence::default();
+            (None, 0.0)
         };
         LineFit {
             resistance: Estimate {
                 value: slope,
                 standard_error,
-                noise_coefficient: 1.0 / sxx.sqrt(),
+                noise_coefficient,
             },
             offset_v: Some(offset),
             max_abs_current_a: max_abs_current,
         }
     } else {
-        // One current: V = R I through the origin (weights I^2) gives the residuals.
-        let (mut sum_iv, mut sum_ii) = (0.0, 0.0);
-        for reading in readings {
-            sum_iv += reading.current_a * reading.voltage_v;
-            sum_ii += reading.current_a * reading.current_a;
-        }
-        let through_origin = sum_iv / sum_ii;
-        noise = NoiseEvidence {
-            sum_of_squares_v2: readings
-                .iter()
-                .map(|reading| (reading.voltage_v - through_origin * reading.current_a).powi(2))
-                .sum(),
-            degrees_of_freedom: count - 1,
+        noise = if UNCERTAINTIES {
+            // One current: V = R I through the origin (weights I^2) gives the residuals.
+            let (mut sum_iv, mut sum_ii) = (0.0, 0.0);
+            for reading in readings {
+                sum_iv += reading.current_a * reading.voltage_v;
+                sum_ii += reading.current_a * reading.current_a;
+            }
+            let through_origin = sum_iv / sum_ii;
+            NoiseEvidence {
+                sum_of_squares_v2: readings
+                    .iter()
+                    .map(|reading| (reading.voltage_v - through_origin * reading.current_a).powi(2))
+                    .sum(),
+                degrees_of_freedom: count - 1,
+            }
+        } else {
+            NoiseEvidence::default()
         };
         LineFit {
-            resistance: ratio_mean(readings.iter()).expect("a cell holds at least one reading"),
+            resistance: ratio_mean::<UNCERTAINTIES>(readings.iter()).expect("a cell holds at least one reading"),
             offset_v: None,
             max_abs_current_a: max_abs_current,
         }
     };
-    let positive = polarity_sums[0].finish(readings.iter().filter(|reading| reading.current_a > 0.0));
-    let negative = polarity_sums[1].finish(readings.iter().filter(|reading| reading.current_a < 0.0));
+    let positive = polarity_sums[0].finish::<UNCERTAINTIES>(readings.iter().filter(|reading| reading.current_a > 0.0));
+    let negative = polarity_sums[1].finish::<UNCERTAINTIES>(readings.iter().filter(|reading| reading.current_a < 0.0));
     let mean_field = |(sum, count): (f64, usize)| {
         if count > 0 {
             sum / count as f64
@@ -340,20 +380,34 @@ struct RatioSums {
 }
 
 impl RatioSums {
+    /// Adds a reading; the sum for the noise coefficient only `WITH_UNCERTAINTY`.
     #[inline]
-    fn add(&mut self, reading: &Prepared) {
+    fn add<const WITH_UNCERTAINTY: bool>(&mut self, reading: &Prepared) {
         self.count += 1;
         self.sum += reading.voltage_v / reading.current_a;
-        self.sum_inverse_square_current += 1.0 / (reading.current_a * reading.current_a);
+        if WITH_UNCERTAINTY {
+            self.sum_inverse_square_current += 1.0 / (reading.current_a * reading.current_a);
+        }
     }
 
-    /// [`ratio_mean`] from these sums and its second pass over the same readings.
-    fn finish<'a>(self, readings: impl Iterator<Item = &'a Prepared>) -> Option<Estimate> {
+    /// [`ratio_mean`] from these sums and, `WITH_UNCERTAINTY`, its second pass over the
+    /// same readings for the standard error.
+    fn finish<'a, const WITH_UNCERTAINTY: bool>(
+        self,
+        readings: impl Iterator<Item = &'a Prepared>,
+    ) -> Option<Estimate> {
         if self.count == 0 {
             return None;
         }
         let n = self.count as f64;
         let mean = self.sum / n;
+        if !WITH_UNCERTAINTY {
+            return Some(Estimate {
+                value: mean,
+                standard_error: None,
+                noise_coefficient: 0.0,
+            });
+        }
         let standard_error = (self.count >= 2).then(|| {
             let sum_of_squares: f64 = readings
                 .map(|reading| (reading.voltage_v / reading.current_a - mean).powi(2))
@@ -368,13 +422,16 @@ impl RatioSums {
     }
 }
 
-/// Mean of V/I and its standard error, in two passes over an iterator that can be cloned.
-fn ratio_mean<'a>(readings: impl Iterator<Item = &'a Prepared> + Clone) -> Option<Estimate> {
+/// Mean of V/I and (`WITH_UNCERTAINTY`) its standard error, in two passes over an iterator
+/// that can be cloned.
+fn ratio_mean<'a, const WITH_UNCERTAINTY: bool>(
+    readings: impl Iterator<Item = &'a Prepared> + Clone,
+) -> Option<Estimate> {
     let mut sums = RatioSums::default();
     for reading in readings.clone() {
-        sums.add(reading);
+        sums.add::<WITH_UNCERTAINTY>(reading);
     }
-    sums.finish(readings)
+    sums.finish::<WITH_UNCERTAINTY>(readings)
 }
 
 /// Below this fraction of the temperature, neighbouring readings may share a temperature

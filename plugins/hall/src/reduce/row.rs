@@ -9,8 +9,8 @@ use mobilis_physics::van_der_pauw;
 use std::f64::consts::{LN_2, PI};
 
 use super::cells::{
-    combine_redundant, mean_with_standard_error, quadrature, quadrature_of, redundancy_evidence, CellSummary, Estimate,
-    NoiseEvidence, MAX_SLOTS,
+    combine_redundant, mean_with_standard_error, quadrature, quadrature_of, redundancy_evidence, CellSummary, Detail,
+    Estimate, NoiseEvidence, MAX_SLOTS,
 };
 use super::contract::{Geometry, ReduceSettings};
 use super::flags;
@@ -133,6 +133,26 @@ impl RowRecord {
         let index = quantity as usize;
         (self.present & (1 << (ESTIMATE_BIT + index as u32)) != 0).then(|| self.estimates[index])
     }
+
+    /// What the drift slopes read of this row.
+    pub fn draft(&self) -> RowDraft {
+        RowDraft {
+            temperature_k: self.temperature_k,
+            sheet_resistance: self.estimate(Quantity::SheetResistance).map(|estimate| estimate.value),
+            sheet_hall_coefficient: self
+                .estimate(Quantity::SheetHallCoefficient)
+                .map(|estimate| estimate.value),
+        }
+    }
+}
+
+/// The values of a row that the drift slopes read ([`Detail::Values`]), the same to the bit
+/// as those of the full row ([`RowRecord::draft`]).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(super) struct RowDraft {
+    pub temperature_k: f64,
+    pub sheet_resistance: Option<f64>,
+    pub sheet_hall_coefficient: Option<f64>,
 }
 
 /// Raised flags as bits in the order of [`flags::ALL`].
@@ -425,9 +445,7 @@ pub(super) fn build_row(
     // Cells whose fits enter the row: (cell, is a resistance configuration).
     let mut used_cells = UsedCells::new();
 
-    let resistance_slots = || layout.families.iter().flat_map(|family| family.iter().copied());
-    let zero_has_resistance = resistance_slots().any(|slot| zero.cells[slot].is_some());
-    let from_field = !zero_has_resistance && field.is_some();
+    let (from_field, slot_resistance) = resistance_estimates(layout, zero, field, &mut used_cells);
     if from_field {
         raised.raise(flags::RESISTANCE_FROM_FIELD_READINGS);
         warnings.push(format!(
@@ -438,30 +456,16 @@ pub(super) fn build_row(
         ));
     }
 
-    // Per-slot resistance estimates from the chosen source.
-    let mut slot_resistance: [Option<Estimate>; MAX_SLOTS] = [None; MAX_SLOTS];
-    for slot in resistance_slots() {
-        slot_resistance[slot] = match (from_field, field) {
-            (true, Some(field)) => field_even_resistance(&field.cells[slot], &mut used_cells),
-            _ => zero.cells[slot].as_ref().map(|cell| {
-                used_cells.push((cell, true));
-                cell.fit.resistance
-            }),
-        };
+    for slot in resistance_slots(layout) {
         if slot_resistance[slot].is_none() {
             raised.raise(flags::MISSING_CONFIGURATIONS);
         }
     }
 
-    let resistance = match sample.geometry {
-        Geometry::VanDerPauw => van_der_pauw_resistance(&slot_resistance, group, &mut raised, warnings),
-        Geometry::HallBar { length_m, width_m } => {
-            hall_bar_resistance(&slot_resistance, length_m, width_m, group, &mut raised, warnings)
-        }
-    };
+    let resistance = sheet_resistance(&slot_resistance, group, Detail::Full, &mut raised, warnings);
 
     let hall = match field {
-        Some(field) => hall_resistance(field, layout, &mut used_cells, &mut raised),
+        Some(field) => hall_resistance(field, layout, Detail::Full, &mut used_cells, &mut raised),
         None => {
             raised.raise(flags::NO_FIELD_DATA);
             HallPart::default()
@@ -513,10 +517,7 @@ pub(super) fn build_row(
     };
 
     let field_t = field.map(|cells| cells.field_t);
-    let sheet_hall_coefficient = match (hall.hall_resistance, field_t) {
-        (Some(hall_resistance), Some(field_t)) => Some(hall_resistance.scaled(1.0 / field_t)),
-        _ => None,
-    };
+    let sheet_hall_coefficient = sheet_hall_coefficient(hall.hall_resistance, field);
     // A Hall resistance of exactly zero has no carrier type and no finite density.
     let usable_hall = sheet_hall_coefficient.filter(|coefficient| coefficient.value != 0.0);
     let carrier_type = usable_hall.map(|coefficient| if coefficient.value > 0.0 { "p" } else { "n" });
@@ -617,6 +618,78 @@ pub(super) fn build_row(
         }
     }
     record
+}
+
+/// The values of the first row of a group that the drift slopes read, by the code of
+/// [`build_row`] at [`Detail::Values`]: the same values to the bit, without the rest of the
+/// row. The cells may be [`Detail::Values`] summaries.
+pub(super) fn draft_row(group: &TemperatureGroup<'_>, zero: &ZeroFieldCells, field: Option<&FieldCells>) -> RowDraft {
+    let layout = layout(group.sample.geometry);
+    // Flags, warnings and the cells used are what the full row reports: not kept here.
+    let mut raised = RaisedFlags::default();
+    let mut warnings = Vec::new();
+    let mut used_cells = UsedCells::new();
+    let (_, slot_resistance) = resistance_estimates(layout, zero, field, &mut used_cells);
+    let resistance = sheet_resistance(&slot_resistance, group, Detail::Values, &mut raised, &mut warnings);
+    let hall_resistance = field
+        .and_then(|field| hall_resistance(field, layout, Detail::Values, &mut used_cells, &mut raised).hall_resistance);
+    RowDraft {
+        temperature_k: group.temperature_k,
+        sheet_resistance: resistance.sheet_resistance.map(|estimate| estimate.value),
+        sheet_hall_coefficient: sheet_hall_coefficient(hall_resistance, field).map(|estimate| estimate.value),
+    }
+}
+
+/// The resistance configurations' slots of a geometry.
+fn resistance_slots(layout: &Layout) -> impl Iterator<Item = usize> + '_ {
+    layout.families.iter().flat_map(|family| family.iter().copied())
+}
+
+/// Whether a row's resistances come from its field readings (no resistance configuration
+/// at zero field), and each resistance configuration's estimate from that source.
+fn resistance_estimates<'a>(
+    layout: &Layout,
+    zero: &'a ZeroFieldCells,
+    field: Option<&'a FieldCells>,
+    used_cells: &mut UsedCells<'a>,
+) -> (bool, [Option<Estimate>; MAX_SLOTS]) {
+    let zero_has_resistance = resistance_slots(layout).any(|slot| zero.cells[slot].is_some());
+    let from_field = !zero_has_resistance && field.is_some();
+    let mut slot_resistance: [Option<Estimate>; MAX_SLOTS] = [None; MAX_SLOTS];
+    for slot in resistance_slots(layout) {
+        slot_resistance[slot] = match (from_field, field) {
+            (true, Some(field)) => field_even_resistance(&field.cells[slot], used_cells),
+            _ => zero.cells[slot].as_ref().map(|cell| {
+                used_cells.push((cell, true));
+                cell.fit.resistance
+            }),
+        };
+    }
+    (from_field, slot_resistance)
+}
+
+/// The resistance step of the sample's geometry.
+fn sheet_resistance(
+    slot_resistance: &[Option<Estimate>; MAX_SLOTS],
+    group: &TemperatureGroup<'_>,
+    detail: Detail,
+    raised: &mut RaisedFlags,
+    warnings: &mut Vec<String>,
+) -> ResistancePart {
+    match group.sample.geometry {
+        Geometry::VanDerPauw => van_der_pauw_resistance(slot_resistance, group, detail, raised, warnings),
+        Geometry::HallBar { length_m, width_m } => {
+            hall_bar_resistance(slot_resistance, length_m, width_m, group, detail, raised, warnings)
+        }
+    }
+}
+
+/// R_Hs = R_xy / |B|.
+fn sheet_hall_coefficient(hall_resistance: Option<Estimate>, field: Option<&FieldCells>) -> Option<Estimate> {
+    match (hall_resistance, field) {
+        (Some(hall_resistance), Some(field)) => Some(hall_resistance.scaled(1.0 / field.field_t)),
+        _ => None,
+    }
 }
 
 /// The float columns of a finished row, in the order of [`super::contract::float_column`], and a
@@ -778,6 +851,7 @@ fn field_even_resistance<'a>(cells: &'a [Option<CellSummary>; 2], used_cells: &m
 fn van_der_pauw_resistance(
     slot_resistance: &[Option<Estimate>; MAX_SLOTS],
     group: &TemperatureGroup<'_>,
+    detail: Detail,
     raised: &mut RaisedFlags,
     warnings: &mut Vec<String>,
 ) -> ResistancePart {
@@ -791,6 +865,9 @@ fn van_der_pauw_resistance(
             count += 1;
         }
         let present = &storage[..count];
+        if detail == Detail::Values {
+            return combine_redundant(present);
+        }
         evidence.add(redundancy_evidence(present));
         if let [direct, reciprocal] = present[..] {
             let mean = 0.5 * (direct.value + reciprocal.value);
@@ -823,6 +900,9 @@ fn van_der_pauw_resistance(
         ..ResistancePart::default()
     };
     if !(resistance_a.value > 0.0 && resistance_b.value > 0.0) {
+        if detail == Detail::Values {
+            return part;
+        }
         raise_nonpositive(
             group,
             &format!("R_A = {} ohm, R_B = {} ohm", resistance_a.value, resistance_b.value),
@@ -832,6 +912,14 @@ fn van_der_pauw_resistance(
         return part;
     }
     let (a, b) = (resistance_a.value, resistance_b.value);
+    if detail == Detail::Values {
+        part.sheet_resistance = van_der_pauw::sheet_resistance(a, b).ok().map(|value| Estimate {
+            value,
+            standard_error: None,
+            noise_coefficient: 0.0,
+        });
+        return part;
+    }
     part.resistance_ratio = Some((a / b).max(b / a));
     // Positive finite inputs cannot fail; an error here would be a defect of the solver.
     // One solution serves the sheet resistance, the factor f and the gradient: they are
@@ -878,6 +966,7 @@ fn hall_bar_resistance(
     length_m: f64,
     width_m: f64,
     group: &TemperatureGroup<'_>,
+    detail: Detail,
     raised: &mut RaisedFlags,
     warnings: &mut Vec<String>,
 ) -> ResistancePart {
@@ -901,7 +990,9 @@ fn hall_bar_resistance(
         ..ResistancePart::default()
     };
     if !(longitudinal.value > 0.0) {
-        raise_nonpositive(group, &format!("R_xx = {} ohm", longitudinal.value), raised, warnings);
+        if detail == Detail::Full {
+            raise_nonpositive(group, &format!("R_xx = {} ohm", longitudinal.value), raised, warnings);
+        }
         return part;
     }
     // rho_s = R_xx W / L: the squares between the voltage contacts.
@@ -923,6 +1014,7 @@ fn raise_nonpositive(group: &TemperatureGroup<'_>, values: &str, raised: &mut Ra
 fn hall_resistance<'a>(
     field: &'a FieldCells,
     layout: &Layout,
+    detail: Detail,
     used_cells: &mut UsedCells<'a>,
     raised: &mut RaisedFlags,
 ) -> HallPart {
@@ -978,6 +1070,12 @@ fn hall_resistance<'a>(
     let odd_count = estimates(&odd_parts, &mut odd_storage);
     let odd_parts = &odd_storage[..odd_count];
     let hall_resistance = combine_redundant(odd_parts).expect("at least one odd part");
+    if detail == Detail::Values {
+        return HallPart {
+            hall_resistance: Some(hall_resistance),
+            ..HallPart::default()
+        };
+    }
     let mut value_storage = [0.0; 4];
     for (slot, estimate) in value_storage.iter_mut().zip(odd_parts) {
         *slot = estimate.value;

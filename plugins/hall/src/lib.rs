@@ -53,8 +53,8 @@ use mobilis_sdk::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inpu
 use polars::prelude::*;
 use polars_arrow::bitmap::Bitmap;
 use reduce::{
-    calibration_names, flags, float_column, Calibration, FlagSet, Geometry, QualityThresholds, ReadingColumns,
-    ReduceSettings, ReductionTable, SampleInfo,
+    calibration_names, flags, float_column, Calibration, FlagSet, FloatColumn, Geometry, QualityThresholds,
+    ReadingColumns, ReduceSettings, ReductionTable, SampleInfo,
 };
 use schemars::JsonSchema;
 use serde::Deserialize;
@@ -536,17 +536,38 @@ impl FlagTexts {
     }
 }
 
+/// Below this many output rows the columns are built one after the other.
+const PARALLEL_OUTPUT_ROWS: usize = 2_000;
+
 /// The output table from the reduction's columns: the float buffers are moved into the
 /// table as they are (a validity bitmap added where a column has nulls), the text columns
-/// are built once per row.
+/// are built once per row. The columns are independent, so a large table builds them in
+/// parallel; they join the output in the declared order.
 fn output_table(mut table: ReductionTable, output: &mut OutputBuilder) {
     let height = table.height;
-    let mut flag_texts = FlagTexts::new();
-    for (name, _, _, source) in OUTPUT {
+    // What each column owns: its float buffer or the reading counts, moved in.
+    let mut floats: Vec<Option<FloatColumn>> = std::mem::take(&mut table.floats).into_iter().map(Some).collect();
+    let mut reading_count = Some(std::mem::take(&mut table.reading_count));
+    let owned: Vec<(&'static str, &Source, Option<FloatColumn>, Option<Vec<i64>>)> = OUTPUT
+        .iter()
+        .map(|(name, _, _, source)| {
+            let float = match source {
+                Source::Float(index) => floats[*index].take(),
+                _ => None,
+            };
+            let counts = match source {
+                Source::ReadingCount => reading_count.take(),
+                _ => None,
+            };
+            (*name, source, float, counts)
+        })
+        .collect();
+    let table = &table;
+    let build = |(name, source, float, counts): (&'static str, &Source, Option<FloatColumn>, Option<Vec<i64>>)| {
         let name = PlSmallStr::from_static(name);
-        let column = match source {
-            Source::Float(index) => {
-                let column = std::mem::take(&mut table.floats[*index]);
+        match source {
+            Source::Float(_) => {
+                let column = float.expect("each float column is moved in once");
                 let bitmap = validity(&column.present);
                 Float64Chunked::from_vec_validity(name, column.values, bitmap).into_column()
             }
@@ -570,10 +591,11 @@ fn output_table(mut table: ReductionTable, output: &mut OutputBuilder) {
                 StringChunked::from_iter_options(name, (0..height).map(|row| table.carrier_type(row))).into_column()
             }
             Source::ReadingCount => {
-                Int64Chunked::from_vec(name, std::mem::take(&mut table.reading_count)).into_column()
+                Int64Chunked::from_vec(name, counts.expect("the reading counts are moved in once")).into_column()
             }
             Source::DriftCorrected => BooleanChunked::from_slice(name, &table.drift_corrected).into_column(),
             Source::Flags => {
+                let mut flag_texts = FlagTexts::new();
                 let mut builder = StringChunkedBuilder::new(name, height);
                 for set in &table.flags {
                     builder.append_value(flag_texts.text(*set));
@@ -583,7 +605,15 @@ fn output_table(mut table: ReductionTable, output: &mut OutputBuilder) {
             Source::QualityOk => {
                 BooleanChunked::from_iter_values(name, table.flags.iter().map(|set| set.is_empty())).into_column()
             }
-        };
+        }
+    };
+    let columns: Vec<Column> = if height >= PARALLEL_OUTPUT_ROWS {
+        use rayon::prelude::*;
+        owned.into_par_iter().map(build).collect()
+    } else {
+        owned.into_iter().map(build).collect()
+    };
+    for column in columns {
         // The builder takes the ready column as it is: no copy.
         output.column(column);
     }

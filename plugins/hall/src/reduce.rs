@@ -610,7 +610,7 @@ fn reduce_sample(
     let mut drafts: Vec<RowDraft> = Vec::with_capacity(group_count);
     let mut drifted: Vec<bool> = Vec::with_capacity(group_count);
     let mut as_measured: Vec<Prepared> = Vec::new();
-    let mut final_rows: Vec<RowRecord> = Vec::new();
+    let mut final_rows: Vec<RowRecord> = Vec::with_capacity(group_count);
     let mut final_bounds: Vec<std::ops::Range<usize>> = Vec::with_capacity(group_count);
     let mut final_warnings: Vec<Vec<String>> = Vec::with_capacity(group_count);
     for temperature_range in &temperature_ranges {
@@ -679,35 +679,41 @@ fn reduce_sample(
     }
     drop(drafts);
     // The rows, group after group: a drifting group reduced in full once, corrected with its
-    // last slopes or as measured.
-    let mut records: Vec<RowRecord> = Vec::with_capacity(group_count);
-    let mut row_warnings: Vec<String> = Vec::new();
-    let mut as_measured_start = 0usize;
-    for (index, temperature_range) in temperature_ranges.iter().enumerate() {
-        if !drifted[index] {
-            records.extend_from_slice(&final_rows[final_bounds[index].clone()]);
-            row_warnings.append(&mut final_warnings[index]);
-            continue;
-        }
-        let readings = match corrections[index] {
-            Some(group_slopes) => {
-                corrected.clear();
-                corrected.extend_from_slice(&sample_readings[temperature_range.clone()]);
-                correct_drift(&mut corrected, group_slopes, sample.geometry);
-                &mut corrected[..]
+    // last slopes or as measured. Without one (a series at steady temperatures), the first
+    // pass's rows are the sample's rows as they stand.
+    let (records, row_warnings) = if drifted.iter().any(|drifts| *drifts) {
+        let mut records: Vec<RowRecord> = Vec::with_capacity(final_rows.len() + group_count);
+        let mut row_warnings: Vec<String> = Vec::new();
+        let mut as_measured_start = 0usize;
+        for (index, temperature_range) in temperature_ranges.iter().enumerate() {
+            if !drifted[index] {
+                records.extend_from_slice(&final_rows[final_bounds[index].clone()]);
+                row_warnings.append(&mut final_warnings[index]);
+                continue;
             }
-            None => &mut as_measured[as_measured_start..as_measured_start + temperature_range.len()],
-        };
-        as_measured_start += temperature_range.len();
-        reduce_temperature_group(
-            readings,
-            sample,
-            settings,
-            corrections[index],
-            &mut records,
-            &mut row_warnings,
-        );
-    }
+            let readings = match corrections[index] {
+                Some(group_slopes) => {
+                    corrected.clear();
+                    corrected.extend_from_slice(&sample_readings[temperature_range.clone()]);
+                    correct_drift(&mut corrected, group_slopes, sample.geometry);
+                    &mut corrected[..]
+                }
+                None => &mut as_measured[as_measured_start..as_measured_start + temperature_range.len()],
+            };
+            as_measured_start += temperature_range.len();
+            reduce_temperature_group(
+                readings,
+                sample,
+                settings,
+                corrections[index],
+                &mut records,
+                &mut row_warnings,
+            );
+        }
+        (records, row_warnings)
+    } else {
+        (final_rows, final_warnings.into_iter().flatten().collect())
+    };
     let warning = (largest_zero_field_t > STRICT_ZERO_FIELD_T).then(|| {
         format!(
             "sample {:?}: readings with |B| up to {:.4} T were taken as zero field (zero_field_tolerance_T = {} T), a remanent field at a nominal zero; if they were meant as a Hall field, lower zero_field_tolerance_T",

@@ -164,13 +164,18 @@ pub(super) fn build_columns(
 ) -> BuiltColumns {
     let lengths: Vec<usize> = samples.iter().map(|sample| sample.records.len()).collect();
     let height: usize = lengths.iter().sum();
-    // Zeroed memory comes from the allocator as fresh pages, written once below.
-    let mut floats: Vec<FloatColumn> = (0..float_column::COUNT)
-        .map(|_| FloatColumn {
-            values: vec![0.0; height],
-            present: vec![false; height],
-        })
-        .collect();
+    // Zeroed memory, written once below. The allocator may hand back memory of an earlier
+    // call, which it then clears: a large table clears its columns in parallel.
+    let zeroed_column = |_| FloatColumn {
+        values: vec![0.0; height],
+        present: vec![false; height],
+    };
+    let mut floats: Vec<FloatColumn> = if height >= PARALLEL_ROWS {
+        use rayon::prelude::*;
+        (0..float_column::COUNT).into_par_iter().map(zeroed_column).collect()
+    } else {
+        (0..float_column::COUNT).map(zeroed_column).collect()
+    };
     let mut reading_count = vec![0i64; height];
     let mut drift_corrected = vec![false; height];
     let mut carrier = vec![0u8; height];

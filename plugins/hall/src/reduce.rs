@@ -168,20 +168,22 @@
 //! - A row is drafted as a compact record (`row::RowRecord`: plain values with a presence
 //!   mask, the estimates its uncertainties are finished from, the flags as a bit set; no
 //!   text or list per row).
-//! - A drifting group is reduced in full once, with the correction of the last pass that
-//!   touched it. The passes before only feed the drift slopes, which read the first row's
-//!   sheet resistance and sheet Hall coefficient: there the group is drafted
-//!   (`cells::Detail::Values`), by the same code as the full row without what the slopes
-//!   do not read (standard errors, noise evidence, flags, quality numbers, the rows of the
-//!   other field setpoints), so the values are the same to the bit. The corrected copies of
-//!   a group's readings live in a buffer reused from group to group.
+//! - A group at one temperature is reduced once. A drifting group is reduced in full
+//!   once, with the correction of the last pass that touched it. The passes before only
+//!   feed the drift slopes, which read the first row's sheet resistance and sheet Hall
+//!   coefficient: there the group is drafted (`cells::Detail::Values`), by the same code
+//!   as the full row without what the slopes do not read (standard errors, noise
+//!   evidence, flags, quality numbers, the rows of the other field setpoints), so the
+//!   values are the same to the bit. The corrected copies of a group's readings live in a
+//!   buffer reused from group to group.
 //! - The result is columnar (`table`): every output column is one buffer sized once for all
 //!   rows (values and validity), each sample writes its rows' finished values (the
 //!   uncertainty budgets, with the noise scales and systematic factors shared by a row or a
 //!   sample computed once) into its own stretch of every column, in parallel; the table
 //!   glue moves the buffers into the output table with an Arrow validity bitmap, and
-//!   builds the flags text once per distinct set of flags. [`reduce`] and
-//!   [`reduce_columns`] turn the same columns into [`ReducedRow`]s.
+//!   builds the flags text once per distinct set of flags; the columns are independent, so
+//!   a large table builds them (and clears the float buffers first) in parallel.
+//!   [`reduce`] and [`reduce_columns`] turn the same columns into [`ReducedRow`]s.
 //! - Van der Pauw's equation is solved once per row; the factor f and the gradient are
 //!   derived from that solution.
 //! - Warnings are formatted only for the rows that raise them.

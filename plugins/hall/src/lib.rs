@@ -536,6 +536,16 @@ impl FlagTexts {
     }
 }
 
+/// One output column to build, with the buffer it takes over, if any.
+struct ColumnJob {
+    name: &'static str,
+    source: &'static Source,
+    /// The float buffer of a [`Source::Float`] column.
+    float: Option<FloatColumn>,
+    /// The counts of [`Source::ReadingCount`].
+    counts: Option<Vec<i64>>,
+}
+
 /// Below this many output rows the columns are built one after the other.
 const PARALLEL_OUTPUT_ROWS: usize = 2_000;
 
@@ -548,7 +558,7 @@ fn output_table(mut table: ReductionTable, output: &mut OutputBuilder) {
     // What each column owns: its float buffer or the reading counts, moved in.
     let mut floats: Vec<Option<FloatColumn>> = std::mem::take(&mut table.floats).into_iter().map(Some).collect();
     let mut reading_count = Some(std::mem::take(&mut table.reading_count));
-    let owned: Vec<(&'static str, &Source, Option<FloatColumn>, Option<Vec<i64>>)> = OUTPUT
+    let jobs: Vec<ColumnJob> = OUTPUT
         .iter()
         .map(|(name, _, _, source)| {
             let float = match source {
@@ -559,11 +569,21 @@ fn output_table(mut table: ReductionTable, output: &mut OutputBuilder) {
                 Source::ReadingCount => reading_count.take(),
                 _ => None,
             };
-            (*name, source, float, counts)
+            ColumnJob {
+                name,
+                source,
+                float,
+                counts,
+            }
         })
         .collect();
     let table = &table;
-    let build = |(name, source, float, counts): (&'static str, &Source, Option<FloatColumn>, Option<Vec<i64>>)| {
+    let build = |ColumnJob {
+                     name,
+                     source,
+                     float,
+                     counts,
+                 }| {
         let name = PlSmallStr::from_static(name);
         match source {
             Source::Float(_) => {
@@ -609,9 +629,9 @@ fn output_table(mut table: ReductionTable, output: &mut OutputBuilder) {
     };
     let columns: Vec<Column> = if height >= PARALLEL_OUTPUT_ROWS {
         use rayon::prelude::*;
-        owned.into_par_iter().map(build).collect()
+        jobs.into_par_iter().map(build).collect()
     } else {
-        owned.into_iter().map(build).collect()
+        jobs.into_iter().map(build).collect()
     };
     for column in columns {
         // The builder takes the ready column as it is: no copy.

@@ -669,6 +669,9 @@ fn resistance_estimates<'a>(
 }
 
 /// The resistance step of the sample's geometry.
+// Inlined into both callers, `build_row` and `draft_row`, with the van der Pauw and Hall
+// steps: a call that returns its parts through memory costs more per row than the code.
+#[inline(always)]
 fn sheet_resistance(
     slot_resistance: &[Option<Estimate>; MAX_SLOTS],
     group: &TemperatureGroup<'_>,
@@ -848,6 +851,7 @@ fn field_even_resistance<'a>(cells: &'a [Option<CellSummary>; 2], used_cells: &m
     }
 }
 
+#[inline(always)]
 fn van_der_pauw_resistance(
     slot_resistance: &[Option<Estimate>; MAX_SLOTS],
     group: &TemperatureGroup<'_>,
@@ -1011,6 +1015,7 @@ fn raise_nonpositive(group: &TemperatureGroup<'_>, values: &str, raised: &mut Ra
 
 /// The Hall resistance from the field-odd part of each Hall configuration and current
 /// polarity (the NIST V_C..V_F over 2I), and the field-even (misalignment) part.
+#[inline(always)]
 fn hall_resistance<'a>(
     field: &'a FieldCells,
     layout: &Layout,

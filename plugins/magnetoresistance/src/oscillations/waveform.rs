@@ -816,6 +816,50 @@ mod tests {
         }
     }
 
+    // The residuals hold the factors the Jacobian reuses: at the same parameters they are
+    // the ones computed afresh, bit for bit, and at other parameters none are offered (the
+    // fits' results must not depend on whether the Jacobian found them held).
+    #[test]
+    fn waveform_held_factors_are_the_fresh_ones() {
+        let x: Vec<f64> = (0..40).map(|k| 0.1 + k as f64 * 0.01).collect();
+        let target = vec![0.0; x.len()];
+        let sweeps = [
+            FitSweep {
+                x: &x,
+                target: &target,
+                temperature_k: 2.0,
+                projection: None,
+            },
+            FitSweep {
+                x: &x[5..],
+                target: &target[5..],
+                temperature_k: 6.0,
+                projection: None,
+            },
+        ];
+        let offsets = sweep_offsets(&sweeps);
+        let p = [3.0, 0.08, 1.2, 41.0, 0.3, 0.5, 0.2, 0.7, 83.0, -1.0];
+        let mut held = HeldFactors::default();
+        let mut r = vec![0.0; x.len() * 2 - 5];
+        lk_residuals(&sweeps, &offsets, 0.3, &p, &mut held, &mut r);
+        let factors = held.at(&p).expect("held at the parameters evaluated");
+        for (s, sweep) in sweeps.iter().enumerate() {
+            for (i, &xi) in sweep.x.iter().enumerate() {
+                let point = offsets[s] + i;
+                assert_eq!(
+                    r[point].to_bits(),
+                    lifshitz_kosevich(&p, xi, sweep.temperature_k, 0.3).to_bits()
+                );
+                for (k, q) in p.chunks_exact(5).enumerate() {
+                    assert_eq!(factors[point * 2 + k], lk_factors(q, xi, xi - 0.3, sweep.temperature_k));
+                }
+            }
+        }
+        let mut moved = p;
+        moved[1] = 0.0800000001;
+        assert!(held.at(&moved).is_none());
+    }
+
     // A pure cosine of known phase is all in phase; shifted by a quarter period it is all in
     // quadrature, and the phase correction recovers the shift.
     #[test]

@@ -25,6 +25,8 @@
 //! compared with a saved set, and the bench prints the largest relative difference and stops
 //! if it exceeds 1e-12 or if any text, null or count differs. Save before a change to the
 //! analysis, compare after. `OSCILLATIONS_CHECK_ONLY=1` runs the check without the timings.
+//! `OSCILLATIONS_CASE=short` (or `long`) times that input alone and skips the memory runs,
+//! which suits a profiler.
 
 use mobilis_numerics::noise::Rng;
 use mobilis_physics::forward::oscillations::{synthetic_sdh_sweep, OscillationComponent, SdhModel};
@@ -107,6 +109,7 @@ fn run(host: &PluginHost, control: &Arc<CallControl>, inputs: &[(String, DataFra
 const SAVE_OUTPUT_VARIABLE: &str = "OSCILLATIONS_SAVE_OUTPUT";
 const COMPARE_OUTPUT_VARIABLE: &str = "OSCILLATIONS_COMPARE_OUTPUT";
 const CHECK_ONLY_VARIABLE: &str = "OSCILLATIONS_CHECK_ONLY";
+const CASE_VARIABLE: &str = "OSCILLATIONS_CASE";
 /// The largest relative difference of a number allowed between two versions of the analysis
 /// (the project's rule for a change that is meant to leave results alone).
 const LARGEST_RELATIVE_CHANGE: f64 = 1e-12;
@@ -232,10 +235,14 @@ fn main() {
         "{:<44} {:>10} {:>10} {:>10}  ",
         "mr.oscillations", "median", "fastest", "goal"
     );
-    for (label, inputs, repetitions, goal) in [
-        ("6 sweeps x 4,000 points", &short, 7, GOAL_SHORT_S),
-        ("1 sweep x 40,000 points (10 Hz, 0-14 T)", &long, 3, GOAL_LONG_S),
+    let case = std::env::var(CASE_VARIABLE).ok();
+    for (name, label, inputs, repetitions, goal) in [
+        ("short", "6 sweeps x 4,000 points", &short, 7, GOAL_SHORT_S),
+        ("long", "1 sweep x 40,000 points (10 Hz, 0-14 T)", &long, 3, GOAL_LONG_S),
     ] {
+        if case.as_deref().is_some_and(|case| case != name) {
+            continue;
+        }
         let timing = measure(1, repetitions, || run(&host, &control, inputs));
         println!(
             "{label:<44} {:>10} {:>10} {:>10}  {}",
@@ -246,6 +253,9 @@ fn main() {
         );
     }
 
+    if case.is_some() {
+        return;
+    }
     // Memory against the sweep length: the peak above the resident set before the call.
     println!(
         "{:<44} {:>10} {:>10}",

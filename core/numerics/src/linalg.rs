@@ -73,6 +73,8 @@ impl fmt::Debug for Matrix {
 
 impl Index<(usize, usize)> for Matrix {
     type Output = f64;
+    // Inlined: element access sits in the inner loops of callers in other crates.
+    #[inline]
     fn index(&self, (row, col): (usize, usize)) -> &f64 {
         assert!(
             row < self.rows && col < self.cols,
@@ -85,6 +87,7 @@ impl Index<(usize, usize)> for Matrix {
 }
 
 impl IndexMut<(usize, usize)> for Matrix {
+    #[inline]
     fn index_mut(&mut self, (row, col): (usize, usize)) -> &mut f64 {
         assert!(
             row < self.rows && col < self.cols,
@@ -175,6 +178,12 @@ impl Matrix {
     /// Row `i` as a slice.
     pub fn row(&self, i: usize) -> &[f64] {
         &self.data[i * self.cols..(i + 1) * self.cols]
+    }
+
+    /// Row `i` as a mutable slice.
+    #[inline]
+    pub fn row_mut(&mut self, i: usize) -> &mut [f64] {
+        &mut self.data[i * self.cols..(i + 1) * self.cols]
     }
 
     /// Column `j` copied into a vector.

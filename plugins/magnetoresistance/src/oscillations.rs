@@ -227,11 +227,18 @@
 //! only the reference sweep's spectrum (the line search reads no other) and skips the
 //! narrow-window mass when the waveform fit's mass is reported (it reads only the reported
 //! mass). The transforms (`mobilis_numerics::fft`) share one twiddle table and skip the butterfly
-//! stages that only copy the zero padding. None of this changes a bit of the result
-//! (`OSCILLATIONS_COMPARE_OUTPUT` of the bench checks it). What remains is mostly the
-//! Levenberg-Marquardt fits (the waveform fit over every sweep's points, three starts, in
-//! each pass: the singular value decompositions of `mobilis_numerics::fit` and the evaluations
-//! of R_T = X / sinh X, exp and cos per point) and the 8-fold zero-padded transforms
+//! stages that only copy the zero padding. The waveform fit's three starts are independent
+//! runs and share the pool with the passes (the best is chosen in their order, as in a
+//! serial run). Its Jacobian is asked for where the residuals were last evaluated (at the
+//! start and after every accepted step), so it reuses the R_T, R_D and cosine the residuals
+//! computed there and adds only a sine and d ln R_T / dX per point and line. A narrow
+//! window's envelope computes R_T at the window's reference 1/B once, and each point's
+//! envelope, cosine and sine once, not once per column of the design. None of this changes
+//! a bit of the result (`OSCILLATIONS_COMPARE_OUTPUT` of the bench checks it). What remains
+//! is mostly the Levenberg-Marquardt fits (the waveform fit over every sweep's points, three
+//! starts, in each pass: the one-sided Jacobi singular value decompositions of
+//! `mobilis_numerics::fit` on the whole Jacobian, and R_T = X / sinh X, exp and cos per point
+//! and evaluation), the narrow windows' linear fits and the 8-fold zero-padded transforms
 //! (65,536 points per 4,000-point sweep, 2^20 for a 40,000-point ramp).
 //!
 //! Multiple lines: the frequencies and densities are reported for each; the narrow-window

@@ -11,7 +11,7 @@ use super::prepare::Prepared;
 use super::results::{
     DinglePlot, DinglePoint, Extremum, FanPoint, LandauFan, MassWindow, ThermalDampingFit, WindowAmplitude,
 };
-use super::waveform::{finite, in_phase_amplitude, linear_least_squares, wrap_phase};
+use super::waveform::{finite, in_phase_amplitude, linear_least_squares, wrap_phase, WindowEnvelope};
 use mobilis_numerics::linalg::Matrix;
 
 /// Temperatures closer than this fraction of the larger count as one.
@@ -179,12 +179,23 @@ pub(super) struct DampingHint {
     pub dingle_k: f64,
 }
 
-impl DampingHint {
-    /// R_T(c m T x) R_D(x) / (R_T(c m T x_m) R_D(x_m)) at temperature T.
-    fn relative_envelope(&self, temperature_k: f64, x: f64, mean: f64) -> f64 {
-        let scale = LK_FIELD_PER_KELVIN * self.mass;
-        let thermal = thermal_damping(scale * temperature_k * x) / thermal_damping(scale * temperature_k * mean);
-        thermal * (-scale * self.dingle_k * (x - mean)).exp()
+/// A [`DampingHint`] at one sweep's temperature: the envelope R_T(c m* T x) R_D(x) across a
+/// window, relative to its value at the window's reference 1/B.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(super) struct SweepDamping {
+    pub hint: DampingHint,
+    pub temperature_k: f64,
+}
+
+impl WindowEnvelope for SweepDamping {
+    fn relative_to(&self, reference: f64, x: &[f64], shape: &mut [f64]) {
+        let scale = LK_FIELD_PER_KELVIN * self.hint.mass;
+        // R_T at the reference 1/B, the same for every point of the window.
+        let at_reference = thermal_damping(scale * self.temperature_k * reference);
+        for (value, xi) in shape.iter_mut().zip(x) {
+            let thermal = thermal_damping(scale * self.temperature_k * xi) / at_reference;
+            *value = thermal * (-scale * self.hint.dingle_k * (xi - reference)).exp();
+        }
     }
 }
 
@@ -246,15 +257,17 @@ pub(super) fn narrow_windows(
     let mut faint = 0;
     for j in 0..windows {
         let bounds = (range.0 + j as f64 * width, range.0 + (j + 1) as f64 * width);
-        let reference_envelope =
-            hint.map(|h| move |x: f64, mean: f64| h.relative_envelope(reference_sweep.temperature_k, x, mean));
+        let reference_envelope = hint.map(|hint| SweepDamping {
+            hint,
+            temperature_k: reference_sweep.temperature_k,
+        });
         let Some(probe) = in_phase_amplitude(
             &reference_sweep.inverse_field,
             &reference_sweep.oscillation,
             bounds,
             frequency,
             0.0,
-            reference_envelope.as_ref().map(|g| g as &dyn Fn(f64, f64) -> f64),
+            reference_envelope.as_ref().map(|g| g as &dyn WindowEnvelope),
             None,
         ) else {
             warnings.push(format!(
@@ -273,14 +286,17 @@ pub(super) fn narrow_windows(
         let mut amplitudes = Vec::with_capacity(prepared.len());
         let mut complete = true;
         for sweep in prepared {
-            let envelope = hint.map(|h| move |x: f64, mean: f64| h.relative_envelope(sweep.temperature_k, x, mean));
+            let envelope = hint.map(|hint| SweepDamping {
+                hint,
+                temperature_k: sweep.temperature_k,
+            });
             match in_phase_amplitude(
                 &sweep.inverse_field,
                 &sweep.oscillation,
                 bounds,
                 frequency,
                 phase,
-                envelope.as_ref().map(|g| g as &dyn Fn(f64, f64) -> f64),
+                envelope.as_ref().map(|g| g as &dyn WindowEnvelope),
                 // Every sweep's amplitude refers to the reference sweep's mean 1/B, the
                 // field the window's R_T(T) is fitted at.
                 Some(probe.mean_inverse_field),
@@ -428,7 +444,10 @@ fn dingle_plot_once(
         mass,
         dingle_k: dingle_hint_k,
     };
-    let envelope = move |x: f64, mean: f64| hint.relative_envelope(sweep.temperature_k, x, mean);
+    let envelope = SweepDamping {
+        hint,
+        temperature_k: sweep.temperature_k,
+    };
     let width = periods / frequency;
     let count = ((range.1 - range.0) / width).floor() as usize;
     let mut points = Vec::new();

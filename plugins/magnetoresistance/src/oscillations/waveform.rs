@@ -2,9 +2,13 @@
 //! in-phase amplitude of a window, the damped-cosine refinement of the frequencies at one
 //! temperature, and the Lifshitz-Kosevich waveform fitted across temperatures.
 
+use std::cell::RefCell;
 use std::f64::consts::PI;
+use std::rc::Rc;
 
-use mobilis_numerics::fit::{Bounds, FitError, LeastSquares, LmFit, LmOptions, SameMinimum};
+use mobilis_numerics::fit::{
+    minimize_multi_start_parallel, Bounds, FitError, LeastSquares, LmFit, LmOptions, SameMinimum,
+};
 use mobilis_numerics::linalg::{Matrix, Svd};
 use mobilis_physics::forward::oscillations::{thermal_damping, thermal_damping_log_derivative, LK_FIELD_PER_KELVIN};
 
@@ -70,54 +74,69 @@ impl InPhase {
     }
 }
 
+/// The expected envelope g of the oscillation across a window, for [`in_phase_amplitude`].
+pub(super) trait WindowEnvelope {
+    /// g(x_i) / g(reference) for each x_i of `x`, into `shape`.
+    fn relative_to(&self, reference: f64, x: &[f64], shape: &mut [f64]);
+}
+
+/// An envelope given point by point as g(x, x_ref) = g(x) / g(x_ref).
+impl<F: Fn(f64, f64) -> f64> WindowEnvelope for F {
+    fn relative_to(&self, reference: f64, x: &[f64], shape: &mut [f64]) {
+        for (value, xi) in shape.iter_mut().zip(x) {
+            *value = self(*xi, reference);
+        }
+    }
+}
+
 /// Fits a g(x) cos(theta) + b g(x) sin(theta) + c + d (x - x_mid) with theta = 2 pi F x +
 /// phase to the points with x in `range` (the constant and the slope take up what the
-/// background left). g(x, x_ref) is the expected envelope relative to its value at x_ref (1
-/// for none), so that a is the amplitude at x_ref even when the damping changes across the
-/// window. x_ref is `normalize_at` when given, else the mean 1/B of this sweep's points in
-/// the window: sweeps compared with each other (the narrow-window mass) must share one x_ref,
-/// or differently sampled sweeps refer their amplitudes to different fields, which biases
-/// the mass. None with fewer than [`MIN_WINDOW_FIT_POINTS`] points or a degenerate design.
+/// background left). g(x) / g(x_ref) is the expected envelope relative to its value at
+/// x_ref (1 for none), so that a is the amplitude at x_ref even when the damping changes
+/// across the window. x_ref is `normalize_at` when given, else the mean 1/B of this sweep's
+/// points in the window: sweeps compared with each other (the narrow-window mass) must share
+/// one x_ref, or differently sampled sweeps refer their amplitudes to different fields,
+/// which biases the mass. None with fewer than [`MIN_WINDOW_FIT_POINTS`] points or a
+/// degenerate design.
 pub(super) fn in_phase_amplitude(
     x: &[f64],
     y: &[f64],
     range: (f64, f64),
     frequency: f64,
     phase: f64,
-    envelope: Option<&dyn Fn(f64, f64) -> f64>,
+    envelope: Option<&dyn WindowEnvelope>,
     normalize_at: Option<f64>,
 ) -> Option<InPhase> {
     // x is ascending: the window is one contiguous run, found by bisection, so that many
     // windows over a long sweep cost their own points only.
     let first = x.partition_point(|v| *v < range.0);
-    let end = x.partition_point(|v| *v <= range.1);
-    let selected: Vec<usize> = (first..end.max(first)).collect();
-    if selected.len() < MIN_WINDOW_FIT_POINTS {
+    let end = x.partition_point(|v| *v <= range.1).max(first);
+    let (xs, values) = (&x[first..end], &y[first..end]);
+    if xs.len() < MIN_WINDOW_FIT_POINTS {
         return None;
     }
     let middle = 0.5 * (range.0 + range.1);
     let half = 0.5 * (range.1 - range.0);
-    let own_mean = selected.iter().map(|&i| x[i]).sum::<f64>() / selected.len() as f64;
+    let own_mean = xs.iter().copied().sum::<f64>() / xs.len() as f64;
     let mean = normalize_at.unwrap_or(own_mean);
-    let design = Matrix::from_fn(selected.len(), 4, |row, col| {
-        let xi = x[selected[row]];
-        let theta = 2.0 * PI * frequency * xi + phase;
-        let shape = envelope.map_or(1.0, |g| g(xi, mean));
-        match col {
-            0 => shape * theta.cos(),
-            1 => shape * theta.sin(),
-            2 => 1.0,
-            _ => (xi - middle) / half,
-        }
+    let mut shape = vec![1.0; xs.len()];
+    if let Some(envelope) = envelope {
+        envelope.relative_to(mean, xs, &mut shape);
+    }
+    let theta = |row: usize| 2.0 * PI * frequency * xs[row] + phase;
+    let design = Matrix::from_fn(xs.len(), 4, |row, col| match col {
+        0 => shape[row] * theta(row).cos(),
+        1 => shape[row] * theta(row).sin(),
+        2 => 1.0,
+        _ => (xs[row] - middle) / half,
     });
-    let values: Vec<f64> = selected.iter().map(|&i| y[i]).collect();
-    let fit = linear_least_squares(&design, &values)?;
+    let fit = linear_least_squares(&design, values)?;
     Some(InPhase {
         amplitude: fit.coefficients[0],
         amplitude_unc: fit.covariance[(0, 0)].max(0.0).sqrt(),
         quadrature: fit.coefficients[1],
         mean_inverse_field: mean,
-        points: selected.len(),
+        points: xs.len(),
     })
 }
 
@@ -153,8 +172,45 @@ impl FitSweep<'_> {
     }
 }
 
+/// A model's per-point factors (its exp, sinh and cos values) at the parameters of its last
+/// residual evaluation. Levenberg-Marquardt asks for the Jacobian where it last evaluated
+/// the residuals (at the start, and after every accepted step), and there the Jacobian
+/// reuses them instead of computing them again: the same numbers for a fraction of the
+/// calls of the mathematical library.
+#[derive(Debug)]
+struct HeldFactors<T> {
+    parameters: Vec<f64>,
+    factors: Vec<T>,
+}
+
+impl<T> Default for HeldFactors<T> {
+    fn default() -> Self {
+        HeldFactors {
+            parameters: Vec::new(),
+            factors: Vec::new(),
+        }
+    }
+}
+
+impl<T: Copy + Default> HeldFactors<T> {
+    /// The `len` factors to be filled for the parameters `p`.
+    fn hold(&mut self, p: &[f64], len: usize) -> &mut [T] {
+        self.parameters.clear();
+        self.parameters.extend_from_slice(p);
+        self.factors.resize(len, T::default());
+        &mut self.factors
+    }
+
+    /// The factors held for `p` (the same parameters bit for bit), else None.
+    fn at(&self, p: &[f64]) -> Option<&[T]> {
+        let same =
+            self.parameters.len() == p.len() && self.parameters.iter().zip(p).all(|(a, b)| a.to_bits() == b.to_bits());
+        same.then_some(&self.factors[..])
+    }
+}
+
 /// Residuals (I - P) model - target of every sweep, written consecutively.
-fn projected_residuals(sweeps: &[FitSweep], model: impl Fn(usize, usize) -> f64, r: &mut [f64]) {
+fn projected_residuals(sweeps: &[FitSweep], mut model: impl FnMut(usize, usize) -> f64, r: &mut [f64]) {
     let mut offset = 0;
     for (s, sweep) in sweeps.iter().enumerate() {
         let n = sweep.x.len();
@@ -173,27 +229,24 @@ fn projected_residuals(sweeps: &[FitSweep], model: impl Fn(usize, usize) -> f64,
 }
 
 /// The Jacobian of the projected residuals: `derivatives(s, i, row)` writes the derivatives
-/// of the model at point i of sweep s with respect to every parameter into `row`; each
-/// sweep's block of every column is then projected off the sweep's polynomials, as the
-/// residuals are.
+/// of the model at point i of sweep s with respect to every parameter into `row` (the
+/// Jacobian's row of that point); each sweep's block of every column is then projected off
+/// the sweep's polynomials, as the residuals are.
 fn projected_jacobian(
     sweeps: &[FitSweep],
     parameters: usize,
-    derivatives: impl Fn(usize, usize, &mut [f64]),
+    mut derivatives: impl FnMut(usize, usize, &mut [f64]),
     jacobian: &mut Matrix,
 ) {
-    let mut row = vec![0.0; parameters];
+    let mut column = Vec::new();
     let mut offset = 0;
     for (s, sweep) in sweeps.iter().enumerate() {
         let n = sweep.x.len();
         for i in 0..n {
-            derivatives(s, i, &mut row);
-            for (j, value) in row.iter().enumerate() {
-                jacobian[(offset + i, j)] = *value;
-            }
+            derivatives(s, i, jacobian.row_mut(offset + i));
         }
         if let Some(basis) = sweep.projection {
-            let mut column = vec![0.0; n];
+            column.resize(n, 0.0);
             for j in 0..parameters {
                 for (i, value) in column.iter_mut().enumerate() {
                     *value = jacobian[(offset + i, j)];
@@ -206,6 +259,18 @@ fn projected_jacobian(
         }
         offset += n;
     }
+}
+
+/// The first row of each sweep's block in the stacked residuals.
+fn sweep_offsets(sweeps: &[FitSweep]) -> Vec<usize> {
+    sweeps
+        .iter()
+        .scan(0, |offset, sweep| {
+            let first = *offset;
+            *offset += sweep.x.len();
+            Some(first)
+        })
+        .collect()
 }
 
 /// The factor that turns standard errors scaled by chi^2 / (m - n) into ones scaled by
@@ -235,26 +300,52 @@ pub(super) struct RefinedComponent {
     pub phase_unc_rad: Option<f64>,
 }
 
+/// The factors of one damped cosine at one point: the decay and the cosine.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+struct DampedFactors {
+    decay: f64,
+    cosine: f64,
+}
+
+/// The factors of component `q` = [A, lambda, F, psi] at d = x - x_c.
+#[inline]
+fn damped_factors(q: &[f64], d: f64) -> DampedFactors {
+    DampedFactors {
+        decay: (-q[1] * d).exp(),
+        cosine: (2.0 * PI * q[2] * d + q[3]).cos(),
+    }
+}
+
+/// The derivatives of component `q`'s term with respect to [A, lambda, F, psi] into `out`.
+#[inline]
+fn damped_term_derivatives(q: &[f64], d: f64, factors: DampedFactors, out: &mut [f64]) {
+    let DampedFactors { decay, cosine } = factors;
+    let envelope = q[0] * decay;
+    let sine = (2.0 * PI * q[2] * d + q[3]).sin();
+    out[0] = decay * cosine;
+    out[1] = -d * envelope * cosine;
+    out[2] = -2.0 * PI * d * envelope * sine;
+    out[3] = -envelope * sine;
+}
+
 /// sum_k A_k exp(-lambda_k (x - x_c)) cos(2 pi F_k (x - x_c) + psi_k) with parameters
 /// [A, lambda, F, psi] per component.
 fn damped_cosines(p: &[f64], x: f64, centre: f64) -> f64 {
     let d = x - centre;
     p.chunks_exact(4)
-        .map(|q| q[0] * (-q[1] * d).exp() * (2.0 * PI * q[2] * d + q[3]).cos())
+        .map(|q| {
+            let factors = damped_factors(q, d);
+            q[0] * factors.decay * factors.cosine
+        })
         .sum()
 }
 
 /// The derivatives of [`damped_cosines`] with respect to [A, lambda, F, psi] per component.
+#[cfg(test)]
 fn damped_cosines_derivatives(p: &[f64], x: f64, centre: f64, row: &mut [f64]) {
     let d = x - centre;
     for (q, out) in p.chunks_exact(4).zip(row.chunks_exact_mut(4)) {
-        let envelope = q[0] * (-q[1] * d).exp();
-        let theta = 2.0 * PI * q[2] * d + q[3];
-        let (sine, cosine) = theta.sin_cos();
-        out[0] = (-q[1] * d).exp() * cosine;
-        out[1] = -d * envelope * cosine;
-        out[2] = -2.0 * PI * d * envelope * sine;
-        out[3] = -envelope * sine;
+        damped_term_derivatives(q, d, damped_factors(q, d), out);
     }
 }
 
@@ -309,8 +400,25 @@ pub(super) fn refine_components(
     }
     let bounds = Bounds::new(lower, upper)?;
     let sweeps = [*sweep];
+    // The Jacobian reuses the factors of the residuals at the same parameters.
+    let held = RefCell::new(HeldFactors::<DampedFactors>::default());
     let residuals = |p: &[f64], r: &mut [f64]| {
-        projected_residuals(&sweeps, |_, i| damped_cosines(p, x[i], centre), r);
+        let mut held = held.borrow_mut();
+        let factors = held.hold(p, x.len() * count);
+        projected_residuals(
+            &sweeps,
+            |_, i| {
+                let d = x[i] - centre;
+                p.chunks_exact(4)
+                    .zip(&mut factors[i * count..(i + 1) * count])
+                    .map(|(q, factors)| {
+                        *factors = damped_factors(q, d);
+                        q[0] * factors.decay * factors.cosine
+                    })
+                    .sum()
+            },
+            r,
+        );
     };
     let starts: Vec<Vec<f64>> = [0.0, 4.0 / span]
         .iter()
@@ -331,10 +439,18 @@ pub(super) fn refine_components(
         ..LmOptions::default()
     };
     let jacobian = |p: &[f64], j: &mut Matrix| {
+        let held = held.borrow();
+        let factors = held.at(p);
         projected_jacobian(
             &sweeps,
             4 * count,
-            |_, i, row| damped_cosines_derivatives(p, x[i], centre, row),
+            |_, i, row| {
+                let d = x[i] - centre;
+                for (k, (q, out)) in p.chunks_exact(4).zip(row.chunks_exact_mut(4)).enumerate() {
+                    let point = factors.map_or_else(|| damped_factors(q, d), |factors| factors[i * count + k]);
+                    damped_term_derivatives(q, d, point, out);
+                }
+            },
             j,
         );
     };
@@ -420,39 +536,102 @@ pub(super) struct WaveformOutcome {
     pub models: Vec<Vec<f64>>,
 }
 
+/// The factors of one component of the Lifshitz-Kosevich model at one point: R_T, R_D and
+/// the cosine, each as [`lifshitz_kosevich`] multiplies them.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+struct LkFactors {
+    thermal: f64,
+    dingle: f64,
+    cosine: f64,
+}
+
+/// The factors of component `q` = [A, m, T_D, F, psi] at x (d = x - x_c).
+#[inline]
+fn lk_factors(q: &[f64], x: f64, d: f64, temperature_k: f64) -> LkFactors {
+    LkFactors {
+        thermal: thermal_damping(LK_FIELD_PER_KELVIN * q[1] * temperature_k * x),
+        dingle: (-LK_FIELD_PER_KELVIN * q[1] * q[2] * d).exp(),
+        cosine: (2.0 * PI * q[3] * d + q[4]).cos(),
+    }
+}
+
+/// One component's term A R_T R_D cos(theta) from its factors.
+#[inline]
+fn lk_term(q: &[f64], factors: LkFactors) -> f64 {
+    q[0] * factors.thermal * factors.dingle * factors.cosine
+}
+
+/// The derivatives of component `q`'s term with respect to [A, m, T_D, F, psi] into `out`,
+/// from its factors at x (d R_T / dm through d ln R_T / dX, `thermal_damping_log_derivative`).
+#[inline]
+fn lk_term_derivatives(q: &[f64], x: f64, d: f64, temperature_k: f64, factors: LkFactors, out: &mut [f64]) {
+    let LkFactors {
+        thermal,
+        dingle,
+        cosine,
+    } = factors;
+    let argument = LK_FIELD_PER_KELVIN * q[1] * temperature_k * x;
+    let sine = (2.0 * PI * q[3] * d + q[4]).sin();
+    let in_phase = q[0] * thermal * dingle * cosine;
+    let quadrature = q[0] * thermal * dingle * sine;
+    out[0] = thermal * dingle * cosine;
+    out[1] = in_phase
+        * (thermal_damping_log_derivative(argument) * LK_FIELD_PER_KELVIN * temperature_k * x
+            - LK_FIELD_PER_KELVIN * q[2] * d);
+    out[2] = -in_phase * LK_FIELD_PER_KELVIN * q[1] * d;
+    out[3] = -2.0 * PI * d * quadrature;
+    out[4] = -quadrature;
+}
+
 /// sum_k A_k R_T(c m_k T x) exp(-c m_k T_D,k (x - x_c)) cos(2 pi F_k (x - x_c) + psi_k) with
 /// parameters [A, m, T_D, F, psi] per component.
 fn lifshitz_kosevich(p: &[f64], x: f64, temperature_k: f64, centre: f64) -> f64 {
     let d = x - centre;
     p.chunks_exact(5)
-        .map(|q| {
-            let thermal = thermal_damping(LK_FIELD_PER_KELVIN * q[1] * temperature_k * x);
-            let dingle = (-LK_FIELD_PER_KELVIN * q[1] * q[2] * d).exp();
-            q[0] * thermal * dingle * (2.0 * PI * q[3] * d + q[4]).cos()
-        })
+        .map(|q| lk_term(q, lk_factors(q, x, d, temperature_k)))
         .sum()
 }
 
 /// The derivatives of [`lifshitz_kosevich`] with respect to [A, m, T_D, F, psi] per
-/// component (d R_T / dm through d ln R_T / dX, `thermal_damping_log_derivative`).
+/// component.
+#[cfg(test)]
 fn lifshitz_kosevich_derivatives(p: &[f64], x: f64, temperature_k: f64, centre: f64, row: &mut [f64]) {
     let d = x - centre;
     for (q, out) in p.chunks_exact(5).zip(row.chunks_exact_mut(5)) {
-        let argument = LK_FIELD_PER_KELVIN * q[1] * temperature_k * x;
-        let thermal = thermal_damping(argument);
-        let dingle = (-LK_FIELD_PER_KELVIN * q[1] * q[2] * d).exp();
-        let theta = 2.0 * PI * q[3] * d + q[4];
-        let (sine, cosine) = theta.sin_cos();
-        let in_phase = q[0] * thermal * dingle * cosine;
-        let quadrature = q[0] * thermal * dingle * sine;
-        out[0] = thermal * dingle * cosine;
-        out[1] = in_phase
-            * (thermal_damping_log_derivative(argument) * LK_FIELD_PER_KELVIN * temperature_k * x
-                - LK_FIELD_PER_KELVIN * q[2] * d);
-        out[2] = -in_phase * LK_FIELD_PER_KELVIN * q[1] * d;
-        out[3] = -2.0 * PI * d * quadrature;
-        out[4] = -quadrature;
+        lk_term_derivatives(q, x, d, temperature_k, lk_factors(q, x, d, temperature_k), out);
     }
+}
+
+/// The projected residuals of the waveform fit at `p` into `r` (as [`projected_residuals`]
+/// with [`lifshitz_kosevich`] gives them), holding the model's factors (points of every
+/// sweep consecutively, lines within a point).
+fn lk_residuals(
+    sweeps: &[FitSweep],
+    offsets: &[usize],
+    centre: f64,
+    p: &[f64],
+    held: &mut HeldFactors<LkFactors>,
+    r: &mut [f64],
+) {
+    let count = p.len() / 5;
+    let factors = held.hold(p, r.len() * count);
+    projected_residuals(
+        sweeps,
+        |s, i| {
+            let sweep = &sweeps[s];
+            let x = sweep.x[i];
+            let d = x - centre;
+            let point = (offsets[s] + i) * count;
+            p.chunks_exact(5)
+                .zip(&mut factors[point..point + count])
+                .map(|(q, factors)| {
+                    *factors = lk_factors(q, x, d, sweep.temperature_k);
+                    lk_term(q, *factors)
+                })
+                .sum()
+        },
+        r,
+    );
 }
 
 /// Fits sum_k A_k R_T(X_k(T, x)) exp(-c m_k T_D,k (x - x_c)) cos(2 pi F_k (x - x_c) + psi_k),
@@ -469,13 +648,6 @@ pub(super) fn fit_waveform(
 ) -> Result<WaveformOutcome, FitError> {
     let count = starts.len();
     let points: usize = sweeps.iter().map(|s| s.x.len()).sum();
-    let residuals = |p: &[f64], r: &mut [f64]| {
-        projected_residuals(
-            sweeps,
-            |s, i| lifshitz_kosevich(p, sweeps[s].x[i], sweeps[s].temperature_k, centre),
-            r,
-        );
-    };
     let mut lower = Vec::with_capacity(5 * count);
     let mut upper = Vec::with_capacity(5 * count);
     let mut scales = Vec::with_capacity(5 * count);
@@ -507,18 +679,43 @@ pub(super) fn fit_waveform(
         parameter_scales: Some(scales),
         ..LmOptions::default()
     };
-    let jacobian = |p: &[f64], j: &mut Matrix| {
-        projected_jacobian(
-            sweeps,
-            5 * count,
-            |s, i, row| lifshitz_kosevich_derivatives(p, sweeps[s].x[i], sweeps[s].temperature_k, centre, row),
-            j,
-        );
+    let offsets = sweep_offsets(sweeps);
+    let offsets = &offsets;
+    // Each run has its own evaluation, shared by its residuals and its Jacobian.
+    let problem = || {
+        let factors = Rc::new(RefCell::new(HeldFactors::default()));
+        let filled = Rc::clone(&factors);
+        let residuals =
+            move |p: &[f64], r: &mut [f64]| lk_residuals(sweeps, offsets, centre, p, &mut filled.borrow_mut(), r);
+        let jacobian = move |p: &[f64], j: &mut Matrix| {
+            let factors = factors.borrow();
+            let held = factors.at(p);
+            projected_jacobian(
+                sweeps,
+                5 * count,
+                |s, i, row| {
+                    let sweep = &sweeps[s];
+                    let x = sweep.x[i];
+                    let d = x - centre;
+                    let point = offsets[s] + i;
+                    for (k, (q, out)) in p.chunks_exact(5).zip(row.chunks_exact_mut(5)).enumerate() {
+                        let factors = match held {
+                            Some(factors) => factors[point * count + k],
+                            None => lk_factors(q, x, d, sweep.temperature_k),
+                        };
+                        lk_term_derivatives(q, x, d, sweep.temperature_k, factors, out);
+                    }
+                },
+                j,
+            );
+        };
+        LeastSquares::new(points, residuals)
+            .with_jacobian(jacobian)
+            .with_bounds(bounds.clone())
     };
-    let multi = LeastSquares::new(points, residuals)
-        .with_jacobian(jacobian)
-        .with_bounds(bounds)
-        .minimize_multi_start(&start_vectors, &options, &SameMinimum::default())?;
+    // The starts are independent runs: they share the rayon pool with the other passes of
+    // the analysis, and the best is chosen in their order, as in a serial run.
+    let multi = minimize_multi_start_parallel(problem, &start_vectors, &options, &SameMinimum::default())?;
     let fit: &LmFit = &multi.best;
     let linear: usize = sweeps.iter().map(FitSweep::linear_parameters).sum();
     let correction = projection_correction(points, 5 * count, linear);
@@ -617,6 +814,50 @@ mod tests {
                 );
             }
         }
+    }
+
+    // The residuals hold the factors the Jacobian reuses: at the same parameters they are
+    // the ones computed afresh, bit for bit, and at other parameters none are offered (the
+    // fits' results must not depend on whether the Jacobian found them held).
+    #[test]
+    fn waveform_held_factors_are_the_fresh_ones() {
+        let x: Vec<f64> = (0..40).map(|k| 0.1 + k as f64 * 0.01).collect();
+        let target = vec![0.0; x.len()];
+        let sweeps = [
+            FitSweep {
+                x: &x,
+                target: &target,
+                temperature_k: 2.0,
+                projection: None,
+            },
+            FitSweep {
+                x: &x[5..],
+                target: &target[5..],
+                temperature_k: 6.0,
+                projection: None,
+            },
+        ];
+        let offsets = sweep_offsets(&sweeps);
+        let p = [3.0, 0.08, 1.2, 41.0, 0.3, 0.5, 0.2, 0.7, 83.0, -1.0];
+        let mut held = HeldFactors::default();
+        let mut r = vec![0.0; x.len() * 2 - 5];
+        lk_residuals(&sweeps, &offsets, 0.3, &p, &mut held, &mut r);
+        let factors = held.at(&p).expect("held at the parameters evaluated");
+        for (s, sweep) in sweeps.iter().enumerate() {
+            for (i, &xi) in sweep.x.iter().enumerate() {
+                let point = offsets[s] + i;
+                assert_eq!(
+                    r[point].to_bits(),
+                    lifshitz_kosevich(&p, xi, sweep.temperature_k, 0.3).to_bits()
+                );
+                for (k, q) in p.chunks_exact(5).enumerate() {
+                    assert_eq!(factors[point * 2 + k], lk_factors(q, xi, xi - 0.3, sweep.temperature_k));
+                }
+            }
+        }
+        let mut moved = p;
+        moved[1] = 0.0800000001;
+        assert!(held.at(&moved).is_none());
     }
 
     // A pure cosine of known phase is all in phase; shifted by a quarter period it is all in

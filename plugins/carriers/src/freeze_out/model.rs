@@ -183,36 +183,54 @@ fn ln_closed_form_root(ln_k: f64, parameters: &LevelParameters) -> f64 {
     parameters.ln_dopant + ratio.ln()
 }
 
+/// h(x) and h'(x) as in the module documentation at x = ln n, given ln K of the majority
+/// level and, when its occupancy is modelled, of the compensating one; "minority" is
+/// q = n_i^2 / n.
+#[inline(always)]
+fn balance(
+    terms: &TemperatureTerms,
+    parameters: &LevelParameters,
+    ln_k: f64,
+    ln_k_compensating: Option<f64>,
+    x: f64,
+) -> (f64, f64) {
+    let ln_minority = terms.ln_intrinsic_squared - x;
+    let (ln_compensating_ionized, compensating_slope) = match ln_k_compensating {
+        Some(ln_kc) => {
+            let (softplus, sigmoid) = softplus_and_sigmoid(ln_minority - ln_kc);
+            (parameters.ln_compensating - softplus, sigmoid)
+        }
+        None => (parameters.ln_compensating, 0.0),
+    };
+    let (softplus, dopant_slope) = softplus_and_sigmoid(x - ln_k);
+    let ln_dopant_ionized = parameters.ln_dopant - softplus;
+    let (negative, weight_carriers) = log_sum_exp(x, ln_compensating_ionized);
+    let (positive, weight_minority) = log_sum_exp(ln_minority, ln_dopant_ionized);
+    let derivative = weight_carriers
+        + (1.0 - weight_carriers) * compensating_slope
+        + weight_minority
+        + (1.0 - weight_minority) * dopant_slope;
+    (negative - positive, derivative)
+}
+
 /// ln of the majority carrier density at one temperature, ln(m^-3).
 pub(crate) fn ln_majority_density(terms: &TemperatureTerms, parameters: &LevelParameters) -> f64 {
     let ln_k =
         terms.ln_majority_dos - parameters.ln_degeneracy - parameters.ionization_energy_ev * terms.inverse_thermal_ev;
-    let ln_k_compensating = parameters
-        .compensating_level
-        .map(|(energy, ln_degeneracy)| terms.ln_minority_dos - ln_degeneracy - energy * terms.inverse_thermal_ev);
-    // h(x) and h'(x) as in the module documentation; "carriers" are the majority, "minority"
-    // q = n_i^2 / n.
-    let balance = |x: f64| -> (f64, f64) {
-        let ln_minority = terms.ln_intrinsic_squared - x;
-        let (ln_compensating_ionized, compensating_slope) = match ln_k_compensating {
-            Some(ln_kc) => {
-                let (softplus, sigmoid) = softplus_and_sigmoid(ln_minority - ln_kc);
-                (parameters.ln_compensating - softplus, sigmoid)
-            }
-            None => (parameters.ln_compensating, 0.0),
-        };
-        let (softplus, dopant_slope) = softplus_and_sigmoid(x - ln_k);
-        let ln_dopant_ionized = parameters.ln_dopant - softplus;
-        let (negative, weight_carriers) = log_sum_exp(x, ln_compensating_ionized);
-        let (positive, weight_minority) = log_sum_exp(ln_minority, ln_dopant_ionized);
-        let derivative = weight_carriers
-            + (1.0 - weight_carriers) * compensating_slope
-            + weight_minority
-            + (1.0 - weight_minority) * dopant_slope;
-        (negative - positive, derivative)
-    };
-
     let start = ln_closed_form_root(ln_k, parameters);
+    // One copy of the search for each case, so that the usual one (compensating centres
+    // fully ionized) carries no test of the level through its iterations.
+    match parameters.compensating_level {
+        None => root_from(start, |x| balance(terms, parameters, ln_k, None, x)),
+        Some((energy, ln_degeneracy)) => {
+            let ln_k_compensating = terms.ln_minority_dos - ln_degeneracy - energy * terms.inverse_thermal_ev;
+            root_from(start, |x| balance(terms, parameters, ln_k, Some(ln_k_compensating), x))
+        }
+    }
+}
+
+/// The root of the strictly increasing `balance` (h and h'), starting from `start`.
+fn root_from(start: f64, balance: impl Fn(f64) -> (f64, f64)) -> f64 {
     let (value, start_derivative) = balance(start);
     if value == 0.0 {
         return start;

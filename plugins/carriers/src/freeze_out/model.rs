@@ -143,12 +143,21 @@ fn exp_relative(a: f64, largest: f64) -> f64 {
 
 /// ln(e^a + e^b) and the weight e^a / (e^a + e^b); -inf terms allowed.
 fn log_sum_exp(a: f64, b: f64) -> (f64, f64) {
-    let largest = a.max(b);
-    if largest == f64::NEG_INFINITY {
-        return (f64::NEG_INFINITY, 0.5);
-    }
-    let ea = exp_relative(a, largest);
-    let eb = exp_relative(b, largest);
+    let (largest, ea, eb) = if a.is_finite() && b.is_finite() {
+        // The usual case: the larger term is e^0 = 1 without testing each term against the
+        // largest (and a tie's other e^0 is 1 as well).
+        if a >= b {
+            (a, 1.0, (b - a).exp())
+        } else {
+            (b, (a - b).exp(), 1.0)
+        }
+    } else {
+        let largest = a.max(b);
+        if largest == f64::NEG_INFINITY {
+            return (f64::NEG_INFINITY, 0.5);
+        }
+        (largest, exp_relative(a, largest), exp_relative(b, largest))
+    };
     let sum = ea + eb;
     // ln 1 is 0 exactly: when the smaller term is below half an ulp of the larger one (the
     // minority carriers against the ionized dopants, wherever the crystal is not

@@ -321,7 +321,10 @@ fn root_from(start: f64, balance: impl Fn(f64) -> (f64, f64)) -> f64 {
         }
         let tolerance = 4.0 * f64::EPSILON * x.abs().max(1.0);
         let mut next = x - h / derivative;
-        if !far_end_known && !(next > low && next < high && high - low > tolerance) {
+        // Inside the provisional bracket and wider than the tolerance, the step's fate is
+        // the same whatever the far end.
+        let clear_of_far_end = next > low && next < high && high - low > tolerance;
+        if !(far_end_known || clear_of_far_end) {
             if !locate_far_end(&mut low, &mut high) {
                 return f64::NAN;
             }

@@ -1259,11 +1259,15 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
     let solve = |sigma: &[f64], starts: &[Vec<f64>]| -> Result<MultiStartFit, FreezeOutError> {
         // The starts are independent: they run in parallel, with the same result as one
         // after the other. A single start (the later effective-variance passes) spreads the
-        // columns of its finite-difference Jacobian over the pool instead.
+        // columns of its finite-difference Jacobian over the pool instead. The model is
+        // finite everywhere in the box (every term of the balance is, and so is its root), so
+        // only the chosen run computes the Jacobian at its end.
         let result = minimize_multi_start_parallel(
             || {
                 let residual = |theta: &[f64], r: &mut [f64]| problem.residuals(theta, sigma, r);
-                LeastSquares::new_shared(count, residual).with_bounds(bounds.clone())
+                LeastSquares::new_shared(count, residual)
+                    .with_bounds(bounds.clone())
+                    .with_residuals_finite_in_bounds()
             },
             starts,
             &options,

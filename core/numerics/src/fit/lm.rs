@@ -264,6 +264,8 @@ pub struct LeastSquares<'a> {
     residuals: Residuals<'a>,
     jacobian: Option<JacobianFn<'a>>,
     bounds: Option<Bounds>,
+    /// See [`LeastSquares::with_residuals_finite_in_bounds`].
+    finite_in_bounds: bool,
 }
 
 impl<'a> LeastSquares<'a> {
@@ -274,6 +276,7 @@ impl<'a> LeastSquares<'a> {
             residuals: Residuals::Plain(Box::new(residuals)),
             jacobian: None,
             bounds: None,
+            finite_in_bounds: false,
         }
     }
 
@@ -287,6 +290,7 @@ impl<'a> LeastSquares<'a> {
             residuals: Residuals::Shared(Box::new(residuals)),
             jacobian: None,
             bounds: None,
+            finite_in_bounds: false,
         }
     }
 
@@ -300,6 +304,17 @@ impl<'a> LeastSquares<'a> {
     /// Box constraints (default: none).
     pub fn with_bounds(mut self, bounds: Bounds) -> Self {
         self.bounds = Some(bounds);
+        self
+    }
+
+    /// Declares that the residuals are finite wherever the parameters are within the bounds
+    /// (a model defined on the whole box), so that the Jacobian at the end of a run, which only
+    /// the covariance needs, cannot fail. A run then leaves it to [`LeastSquares::minimize`]
+    /// and to the chosen run of a multi-start fit: each other start saves one Jacobian. The
+    /// results are the same to the last bit. Without the declaration every run computes it
+    /// and fails when it is not finite, as a run that the covariance cannot use.
+    pub fn with_residuals_finite_in_bounds(mut self) -> Self {
+        self.finite_in_bounds = true;
         self
     }
 
@@ -372,8 +387,26 @@ impl<'a> LeastSquares<'a> {
     }
 
     /// The covariance and statistics of a finished run.
-    pub(super) fn finish(&self, raw: RawRun, options: &LmOptions) -> Result<LmFit, FitError> {
+    pub(super) fn finish(&self, mut raw: RawRun, options: &LmOptions) -> Result<LmFit, FitError> {
         let bounds = self.bounds_for(raw.x.len());
+        if raw.jacobian.is_none() {
+            // Left by the run (see `with_residuals_finite_in_bounds`): computed as the run
+            // would have, and counted with its evaluations.
+            let n = raw.x.len();
+            let solver = Solver {
+                problem: self,
+                bounds: bounds.as_ref(),
+                options,
+                scales: raw.scales.clone(),
+                m: self.residual_count,
+                n,
+                evaluations: Cell::new(raw.evaluations),
+            };
+            let mut jacobian = Matrix::zeros(self.residual_count, n);
+            solver.jacobian(&raw.x, &raw.r, &mut jacobian)?;
+            raw.jacobian = Some(jacobian);
+            raw.evaluations = solver.evaluations.get();
+        }
         finish(raw, bounds.as_ref(), options)
     }
 }
@@ -383,8 +416,10 @@ impl<'a> LeastSquares<'a> {
 pub(super) struct RawRun {
     pub x: Vec<f64>,
     pub r: Vec<f64>,
-    /// The Jacobian at `x`.
-    pub jacobian: Matrix,
+    /// The Jacobian at `x`; `None` when the run left it to [`LeastSquares::finish`].
+    pub jacobian: Option<Matrix>,
+    /// The parameters' typical magnitudes the run used (its finite-difference steps).
+    pub scales: Vec<f64>,
     pub initial_cost: f64,
     pub iterations: usize,
     pub evaluations: usize,
@@ -648,13 +683,19 @@ impl Solver<'_, '_> {
             Termination::NoFurtherReduction => gradient_cosine_at_stop <= options.gradient_tolerance.sqrt(),
             _ => true,
         };
-        if !jacobian_is_current {
+        let jacobian = if jacobian_is_current {
+            Some(jacobian)
+        } else if self.problem.finite_in_bounds {
+            None
+        } else {
             self.jacobian(&x, &r, &mut jacobian)?;
-        }
+            Some(jacobian)
+        };
         Ok(RawRun {
             x,
             r,
             jacobian,
+            scales: self.scales.clone(),
             initial_cost,
             iterations,
             evaluations: self.evaluations.get(),
@@ -722,7 +763,9 @@ fn finish(raw: RawRun, bounds: &Bounds, options: &LmOptions) -> Result<LmFit, Fi
         evaluations,
         converged,
         termination,
+        ..
     } = raw;
+    let jacobian = jacobian.expect("LeastSquares::finish computes a Jacobian the run left");
     let (m, n) = (r.len(), x.len());
     let at_bound: Vec<bool> = (0..n)
         .map(|j| x[j] <= bounds.lower[j] || x[j] >= bounds.upper[j])

@@ -59,7 +59,9 @@
 //! Runs from each start, keeps the converged run of lowest chi-square and counts how many
 //! converged runs reached the same minimum ([`SameMinimum`]).
 //! [`minimize_multi_start_parallel`] spreads the runs over the rayon pool and gives the same
-//! result to the last bit.
+//! result to the last bit. Only the chosen run needs the Jacobian at its end (for the
+//! covariance): a problem whose residuals are finite throughout its bounds
+//! ([`LeastSquares::with_residuals_finite_in_bounds`]) computes it for that run alone.
 //!
 //! # Fit quality ([`quality`])
 //!

@@ -568,3 +568,44 @@ fn parallel_multi_start_equals_the_serial_one_bit_for_bit() {
         Err(FitError::NoStarts)
     ));
 }
+
+// A problem declared finite in its box leaves the Jacobian at the end of each run to the run
+// that is chosen: the same fit to the last bit (the chosen run's evaluations included), with
+// one Jacobian per other start fewer.
+#[test]
+fn residuals_finite_in_bounds_change_only_the_work() {
+    let times: Vec<f64> = (0..200).map(|i| i as f64 * 0.05).collect();
+    let data: Vec<f64> = times.iter().map(|t| 2.0 * (-0.3 * t).exp() + 0.5).collect();
+    let evaluations = std::cell::Cell::new(0usize);
+    let residuals = |p: &[f64], r: &mut [f64]| {
+        evaluations.set(evaluations.get() + 1);
+        for (i, t) in times.iter().enumerate() {
+            r[i] = p[0] * (-p[1] * t).exp() + p[2] - data[i];
+        }
+    };
+    let bounds = Bounds::new(vec![0.0, 0.01, -10.0], vec![10.0, 5.0, 10.0]).unwrap();
+    let starts = vec![
+        vec![1.0, 1.0, 0.0],
+        vec![5.0, 0.05, 1.0],
+        vec![0.5, 3.0, -2.0],
+        vec![3.0, 0.2, 2.0],
+    ];
+    let options = LmOptions::default();
+    let mut fits = Vec::new();
+    let mut work = Vec::new();
+    for declared in [false, true] {
+        evaluations.set(0);
+        let mut problem = LeastSquares::new(times.len(), residuals).with_bounds(bounds.clone());
+        if declared {
+            problem = problem.with_residuals_finite_in_bounds();
+        }
+        let single = problem.minimize(&starts[0], &options).unwrap();
+        let multi = problem
+            .minimize_multi_start(&starts, &options, &SameMinimum::default())
+            .unwrap();
+        fits.push(format!("{single:?} {multi:?}"));
+        work.push(evaluations.get());
+    }
+    assert_eq!(fits[0], fits[1]);
+    assert!(work[1] < work[0], "{work:?}");
+}

@@ -17,8 +17,10 @@
 //! root of the compensated single-donor equation (holes and acceptor occupancy neglected;
 //! Blakemore, Semiconductor Statistics, 1962; Look, Electrical Characterization of GaAs
 //! Materials and Devices, 1989), which is already exact wherever those are negligible: two or
-//! three steps reach rounding. Everything is evaluated in logarithms (log-sum-exp, softplus),
-//! so densities from 1e-100 to 1e30 m^-3 cost the same and nothing underflows.
+//! three steps reach rounding. The far end of the bracket is searched for only when a step
+//! depends on it (rarely), and the iterates are the same as if it had been found first.
+//! Everything is evaluated in logarithms (log-sum-exp, softplus), so densities from 1e-100
+//! to 1e30 m^-3 cost the same and nothing underflows.
 //!
 //! This is the same physics as `solve_charge_neutrality` (a test compares them to 1e-10), but
 //! about fifty times cheaper than its bisection to the last bit, which matters because a fit
@@ -141,13 +143,27 @@ fn exp_relative(a: f64, largest: f64) -> f64 {
 
 /// ln(e^a + e^b) and the weight e^a / (e^a + e^b); -inf terms allowed.
 fn log_sum_exp(a: f64, b: f64) -> (f64, f64) {
-    let largest = a.max(b);
-    if largest == f64::NEG_INFINITY {
-        return (f64::NEG_INFINITY, 0.5);
-    }
-    let ea = exp_relative(a, largest);
-    let eb = exp_relative(b, largest);
-    (largest + (ea + eb).ln(), ea / (ea + eb))
+    let (largest, ea, eb) = if a.is_finite() && b.is_finite() {
+        // The usual case: the larger term is e^0 = 1 without testing each term against the
+        // largest (and a tie's other e^0 is 1 as well).
+        if a >= b {
+            (a, 1.0, (b - a).exp())
+        } else {
+            (b, (a - b).exp(), 1.0)
+        }
+    } else {
+        let largest = a.max(b);
+        if largest == f64::NEG_INFINITY {
+            return (f64::NEG_INFINITY, 0.5);
+        }
+        (largest, exp_relative(a, largest), exp_relative(b, largest))
+    };
+    let sum = ea + eb;
+    // ln 1 is 0 exactly: when the smaller term is below half an ulp of the larger one (the
+    // minority carriers against the ionized dopants, wherever the crystal is not
+    // intrinsic), the logarithm is not needed.
+    let ln_sum = if sum == 1.0 { 0.0 } else { sum.ln() };
+    (largest + ln_sum, ea / sum)
 }
 
 /// The closed-form root of n (n + N_A) / (N_D - N_A - n) = K in logarithms:
@@ -176,36 +192,54 @@ fn ln_closed_form_root(ln_k: f64, parameters: &LevelParameters) -> f64 {
     parameters.ln_dopant + ratio.ln()
 }
 
+/// h(x) and h'(x) as in the module documentation at x = ln n, given ln K of the majority
+/// level and, when its occupancy is modelled, of the compensating one; "minority" is
+/// q = n_i^2 / n.
+#[inline(always)]
+fn balance(
+    terms: &TemperatureTerms,
+    parameters: &LevelParameters,
+    ln_k: f64,
+    ln_k_compensating: Option<f64>,
+    x: f64,
+) -> (f64, f64) {
+    let ln_minority = terms.ln_intrinsic_squared - x;
+    let (ln_compensating_ionized, compensating_slope) = match ln_k_compensating {
+        Some(ln_kc) => {
+            let (softplus, sigmoid) = softplus_and_sigmoid(ln_minority - ln_kc);
+            (parameters.ln_compensating - softplus, sigmoid)
+        }
+        None => (parameters.ln_compensating, 0.0),
+    };
+    let (softplus, dopant_slope) = softplus_and_sigmoid(x - ln_k);
+    let ln_dopant_ionized = parameters.ln_dopant - softplus;
+    let (negative, weight_carriers) = log_sum_exp(x, ln_compensating_ionized);
+    let (positive, weight_minority) = log_sum_exp(ln_minority, ln_dopant_ionized);
+    let derivative = weight_carriers
+        + (1.0 - weight_carriers) * compensating_slope
+        + weight_minority
+        + (1.0 - weight_minority) * dopant_slope;
+    (negative - positive, derivative)
+}
+
 /// ln of the majority carrier density at one temperature, ln(m^-3).
 pub(crate) fn ln_majority_density(terms: &TemperatureTerms, parameters: &LevelParameters) -> f64 {
     let ln_k =
         terms.ln_majority_dos - parameters.ln_degeneracy - parameters.ionization_energy_ev * terms.inverse_thermal_ev;
-    let ln_k_compensating = parameters
-        .compensating_level
-        .map(|(energy, ln_degeneracy)| terms.ln_minority_dos - ln_degeneracy - energy * terms.inverse_thermal_ev);
-    // h(x) and h'(x) as in the module documentation; "carriers" are the majority, "minority"
-    // q = n_i^2 / n.
-    let balance = |x: f64| -> (f64, f64) {
-        let ln_minority = terms.ln_intrinsic_squared - x;
-        let (ln_compensating_ionized, compensating_slope) = match ln_k_compensating {
-            Some(ln_kc) => {
-                let (softplus, sigmoid) = softplus_and_sigmoid(ln_minority - ln_kc);
-                (parameters.ln_compensating - softplus, sigmoid)
-            }
-            None => (parameters.ln_compensating, 0.0),
-        };
-        let (softplus, dopant_slope) = softplus_and_sigmoid(x - ln_k);
-        let ln_dopant_ionized = parameters.ln_dopant - softplus;
-        let (negative, weight_carriers) = log_sum_exp(x, ln_compensating_ionized);
-        let (positive, weight_minority) = log_sum_exp(ln_minority, ln_dopant_ionized);
-        let derivative = weight_carriers
-            + (1.0 - weight_carriers) * compensating_slope
-            + weight_minority
-            + (1.0 - weight_minority) * dopant_slope;
-        (negative - positive, derivative)
-    };
-
     let start = ln_closed_form_root(ln_k, parameters);
+    // One copy of the search for each case, so that the usual one (compensating centres
+    // fully ionized) carries no test of the level through its iterations.
+    match parameters.compensating_level {
+        None => root_from(start, |x| balance(terms, parameters, ln_k, None, x)),
+        Some((energy, ln_degeneracy)) => {
+            let ln_k_compensating = terms.ln_minority_dos - ln_degeneracy - energy * terms.inverse_thermal_ev;
+            root_from(start, |x| balance(terms, parameters, ln_k, Some(ln_k_compensating), x))
+        }
+    }
+}
+
+/// The root of the strictly increasing `balance` (h and h'), starting from `start`.
+fn root_from(start: f64, balance: impl Fn(f64) -> (f64, f64)) -> f64 {
     let (value, start_derivative) = balance(start);
     if value == 0.0 {
         return start;
@@ -213,50 +247,63 @@ pub(crate) fn ln_majority_density(terms: &TemperatureTerms, parameters: &LevelPa
     if !value.is_finite() {
         return f64::NAN;
     }
-    // Where the closed form is already the root to rounding (most temperatures of a fit: the
-    // minority carriers and the compensating level's occupancy negligible), the first
-    // Newton step from it moves it by a few ulps and ends the search. That step does not
-    // depend on the bracket: the bracket's first trial is start +- 1, the step stays strictly
-    // inside (start, start + 1) (or (start - 1, start)) and so inside whatever bracket the
-    // doubling search below finds, and the bracket's width (at least 1) never meets the
-    // width test. So the same value is returned without evaluating the bracket, which is
-    // half the work per point there. (h is strictly increasing and tends to -inf and +inf at
-    // the ends, so that search cannot fail once h is finite at the start.)
-    let tolerance = 4.0 * f64::EPSILON * start.abs().max(1.0);
-    if start_derivative.is_finite() && start_derivative > 0.0 && tolerance < 0.5 {
-        let next = start - value / start_derivative;
-        let inside = if value < 0.0 {
-            next > start && next < start + 1.0
-        } else {
-            next < start && next > start - 1.0
-        };
-        if inside && (next - start).abs() <= tolerance {
-            return next;
+    // The end of the bracket beyond the root: h increases with x, so it is the first of
+    // start +- 1, 3, 7, ... (steps doubling) where h has changed sign; 40 doublings (a factor
+    // e^(2^40)) cover any representable density. `None` if there is none.
+    let ascending = value < 0.0;
+    let far_end = || -> Option<f64> {
+        let mut end = start;
+        let mut step = 1.0;
+        for _ in 0..40 {
+            if ascending {
+                end += step;
+                if balance(end).0 >= 0.0 {
+                    return Some(end);
+                }
+            } else {
+                end -= step;
+                if balance(end).0 <= 0.0 {
+                    return Some(end);
+                }
+            }
+            step *= 2.0;
         }
-    }
-    // Bracket the root: h increases with x. The closed form is usually a lower bound
-    // already; 40 doublings (a factor e^(2^40)) cover any representable density.
-    let (mut low, mut high) = (start, start);
-    let mut step = 1.0;
-    let mut bracketed = false;
-    for _ in 0..40 {
-        if value < 0.0 {
-            high += step;
-            bracketed = balance(high).0 >= 0.0;
-        } else {
-            low -= step;
-            bracketed = balance(low).0 <= 0.0;
+        None
+    };
+    // Safeguarded Newton from the start, in the bracket between the start and the far end.
+    // Finding the far end costs at least one evaluation of h, and most solves never need
+    // it: the closed form is within a few ulps of the root wherever the minority carriers
+    // and the compensating level's occupancy are negligible (the first step then ends the
+    // search), and within 1e-6 or so where they are not (two or three steps). So the far
+    // end starts as start +- 1, the doubling search's first trial and the nearest the far
+    // end can be, and the search runs only when a decision depends on where the far end
+    // really is: a step that would leave (start, start + 1) (or (start - 1, start)), or a
+    // bracket as narrow as the tolerance. Every other decision comes out the same whatever
+    // the far end, so every iterate and the result are those of the bracket found first,
+    // to the last bit. (h is strictly increasing and tends to -inf and +inf at the ends, so
+    // the search cannot fail once h is finite at the start.)
+    let (mut low, mut high) = if ascending {
+        (start, start + 1.0)
+    } else {
+        (start - 1.0, start)
+    };
+    let mut far_end_known = false;
+    let locate_far_end = |low: &mut f64, high: &mut f64| -> bool {
+        match far_end() {
+            Some(end) if ascending => *high = end,
+            Some(end) => *low = end,
+            None => return false,
         }
-        if bracketed {
-            break;
+        true
+    };
+    if 4.0 * f64::EPSILON * start.abs().max(1.0) >= 0.5 {
+        // start +- 1 may round to the start itself: the bracket first.
+        if !locate_far_end(&mut low, &mut high) {
+            return f64::NAN;
         }
-        step *= 2.0;
+        far_end_known = true;
     }
-    if !bracketed {
-        return f64::NAN;
-    }
-    // Safeguarded Newton. Its first step is taken from the balance at the start, already
-    // known.
+    // The first step is taken from the balance at the start, already known.
     let mut x = start;
     let mut at_x = Some((value, start_derivative));
     for _ in 0..200 {
@@ -264,18 +311,29 @@ pub(crate) fn ln_majority_density(terms: &TemperatureTerms, parameters: &LevelPa
         if h == 0.0 {
             return x;
         }
+        // An iterate beyond the root replaces the far end, wherever it was.
         if h < 0.0 {
             low = x;
+            far_end_known |= !ascending;
         } else {
             high = x;
+            far_end_known |= ascending;
         }
+        let tolerance = 4.0 * f64::EPSILON * x.abs().max(1.0);
         let mut next = x - h / derivative;
+        // Inside the provisional bracket and wider than the tolerance, the step's fate is
+        // the same whatever the far end.
+        let clear_of_far_end = next > low && next < high && high - low > tolerance;
+        if !(far_end_known || clear_of_far_end) {
+            if !locate_far_end(&mut low, &mut high) {
+                return f64::NAN;
+            }
+            far_end_known = true;
+        }
         if !(next > low && next < high) {
             next = 0.5 * (low + high);
         }
-        if (next - x).abs() <= 4.0 * f64::EPSILON * x.abs().max(1.0)
-            || high - low <= 4.0 * f64::EPSILON * x.abs().max(1.0)
-        {
+        if (next - x).abs() <= tolerance || high - low <= tolerance {
             return next;
         }
         x = next;

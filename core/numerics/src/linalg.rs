@@ -71,9 +71,10 @@ impl fmt::Debug for Matrix {
     }
 }
 
+// Indexing is inlined: the fits index matrices inside their innermost loops, and the
+// call (with its bounds message) otherwise costs more than the access.
 impl Index<(usize, usize)> for Matrix {
     type Output = f64;
-    // Inlined: element access sits in the inner loops of callers in other crates.
     #[inline]
     fn index(&self, (row, col): (usize, usize)) -> &f64 {
         assert!(
@@ -162,25 +163,35 @@ impl Matrix {
         Matrix { rows, cols, data }
     }
 
+    #[inline]
     pub fn rows(&self) -> usize {
         self.rows
     }
 
+    #[inline]
     pub fn cols(&self) -> usize {
         self.cols
     }
 
     /// The entries row by row.
+    #[inline]
     pub fn as_slice(&self) -> &[f64] {
         &self.data
     }
 
+    /// The entries row by row, to overwrite in place.
+    #[inline]
+    pub fn as_mut_slice(&mut self) -> &mut [f64] {
+        &mut self.data
+    }
+
     /// Row `i` as a slice.
+    #[inline]
     pub fn row(&self, i: usize) -> &[f64] {
         &self.data[i * self.cols..(i + 1) * self.cols]
     }
 
-    /// Row `i` as a mutable slice.
+    /// Row `i` as a slice to write into.
     #[inline]
     pub fn row_mut(&mut self, i: usize) -> &mut [f64] {
         &mut self.data[i * self.cols..(i + 1) * self.cols]
@@ -188,7 +199,11 @@ impl Matrix {
 
     /// Column `j` copied into a vector.
     pub fn column(&self, j: usize) -> Vec<f64> {
-        (0..self.rows).map(|i| self[(i, j)]).collect()
+        if self.rows == 0 {
+            return Vec::new();
+        }
+        assert!(j < self.cols, "column {j} of a {}x{} matrix", self.rows, self.cols);
+        self.data[j..].iter().step_by(self.cols).copied().collect()
     }
 
     /// The diagonal entries.
@@ -265,13 +280,29 @@ impl Matrix {
             self.cols,
             v.len()
         );
-        let mut result = vec![0.0; self.cols];
-        for (i, vi) in v.iter().enumerate() {
-            for (j, r) in result.iter_mut().enumerate() {
-                *r += self.data[i * self.cols + j] * vi;
+        // Row by row, each row scaled and added to the sums: every sum gathers its terms in
+        // row order, from 0. The few columns of a fit's Jacobian keep their sums in
+        // registers.
+        match self.cols {
+            0 => Vec::new(),
+            1 => transpose_mul_narrow::<1>(&self.data, v).to_vec(),
+            2 => transpose_mul_narrow::<2>(&self.data, v).to_vec(),
+            3 => transpose_mul_narrow::<3>(&self.data, v).to_vec(),
+            4 => transpose_mul_narrow::<4>(&self.data, v).to_vec(),
+            5 => transpose_mul_narrow::<5>(&self.data, v).to_vec(),
+            6 => transpose_mul_narrow::<6>(&self.data, v).to_vec(),
+            7 => transpose_mul_narrow::<7>(&self.data, v).to_vec(),
+            8 => transpose_mul_narrow::<8>(&self.data, v).to_vec(),
+            cols => {
+                let mut result = vec![0.0; cols];
+                for (row, vi) in self.data.chunks_exact(cols).zip(v) {
+                    for (r, a) in result.iter_mut().zip(row) {
+                        *r += a * vi;
+                    }
+                }
+                result
             }
         }
-        result
     }
 
     /// The Gram matrix self^T * self (symmetric, n x n for an m x n matrix).
@@ -366,6 +397,24 @@ impl Matrix {
         }
         Ok(inverse)
     }
+}
+
+/// A^T v for a row-major A of `C` columns (`data` its entries), as
+/// [`Matrix::transpose_mul_vec`] sums it.
+fn transpose_mul_narrow<const C: usize>(data: &[f64], v: &[f64]) -> [f64; C] {
+    let mut sums = [0.0; C];
+    for (row, vi) in data.chunks_exact(C).zip(v) {
+        for (sum, a) in sums.iter_mut().zip(row) {
+            *sum += a * vi;
+        }
+    }
+    sums
+}
+
+/// Whether every value is finite: the whole slice is read (no early exit), which lets the
+/// test run on several values at once.
+pub(crate) fn all_finite(values: &[f64]) -> bool {
+    values.iter().fold(true, |finite, value| finite & value.is_finite())
 }
 
 /// The dot product of two equally long slices.
@@ -721,10 +770,13 @@ impl Svd {
             columns.len() <= rows && columns.iter().all(|column| column.len() == rows),
             "columns of unequal length or more columns than rows"
         );
-        // The first non-finite entry in row order, as [`Matrix::check_finite`] reports it.
-        for i in 0..rows {
-            if let Some(j) = columns.iter().position(|column| !column[i].is_finite()) {
-                return Err(LinalgError::NonFinite { row: i, column: j });
+        // The first non-finite entry in row order, as [`Matrix::check_finite`] reports it,
+        // looked for only when a column holds one.
+        if !columns.iter().all(|column| all_finite(column)) {
+            for i in 0..rows {
+                if let Some(j) = columns.iter().position(|column| !column[i].is_finite()) {
+                    return Err(LinalgError::NonFinite { row: i, column: j });
+                }
             }
         }
         Svd::decompose(rows, columns)
@@ -804,20 +856,40 @@ impl Svd {
         }
         let mut order: Vec<(usize, f64)> = columns.iter().map(|column| norm(column)).enumerate().collect();
         order.sort_by(|a, b| b.1.total_cmp(&a.1));
-        let mut u = Matrix::zeros(m, n);
-        let mut v = Matrix::zeros(n, n);
-        let mut singular_values = Vec::with_capacity(n);
-        for (target, (source, sigma)) in order.into_iter().enumerate() {
-            singular_values.push(sigma);
+        let singular_values: Vec<f64> = order.iter().map(|&(_, sigma)| sigma).collect();
+        // The columns of U are the rotated columns over their singular values (zero for a
+        // zero one); U and V are then written row by row, the columns in the order of the
+        // singular values.
+        for &(source, sigma) in &order {
+            let column = &mut columns[source];
             if sigma > 0.0 {
-                for i in 0..m {
-                    u[(i, target)] = columns[source][i] / sigma;
-                }
-            }
-            for i in 0..n {
-                v[(i, target)] = v_columns[source][i];
+                column.iter_mut().for_each(|value| *value /= sigma);
+            } else {
+                column.fill(0.0);
             }
         }
+        let sources: Vec<&[f64]> = order.iter().map(|&(source, _)| &columns[source][..m]).collect();
+        let mut u = Vec::with_capacity(m * n);
+        for i in 0..m {
+            u.extend(sources.iter().map(|column| column[i]));
+        }
+        let v_sources: Vec<&[f64]> = order.iter().map(|&(source, _)| &v_columns[source][..n]).collect();
+        let mut v = Vec::with_capacity(n * n);
+        for i in 0..n {
+            v.extend(v_sources.iter().map(|column| column[i]));
+        }
+        let (u, v) = (
+            Matrix {
+                rows: m,
+                cols: n,
+                data: u,
+            },
+            Matrix {
+                rows: n,
+                cols: n,
+                data: v,
+            },
+        );
         Ok(Svd { u, singular_values, v })
     }
 
@@ -961,6 +1033,29 @@ mod tests {
             let expected = [dot(&a, &a), dot(&a, &b), dot(&a, &c), dot(&a, &a)];
             assert_eq!(products.map(f64::to_bits), expected.map(f64::to_bits));
         }
+    }
+
+    #[test]
+    fn transposed_products_and_columns_equal_their_definitions_to_the_bit() {
+        let mut rng = Rng::seeded(21);
+        for cols in 1..=10 {
+            let a = random_matrix(&mut rng, 37, cols);
+            let v: Vec<f64> = (0..37).map(|_| rng.standard_normal()).collect();
+            // (A^T v)_j summed over the rows in order, from 0.
+            let mut expected = vec![0.0; cols];
+            for (i, vi) in v.iter().enumerate() {
+                for (j, sum) in expected.iter_mut().enumerate() {
+                    *sum += a[(i, j)] * vi;
+                }
+            }
+            let bits = |values: Vec<f64>| values.into_iter().map(f64::to_bits).collect::<Vec<_>>();
+            assert_eq!(bits(a.transpose_mul_vec(&v)), bits(expected), "{cols} columns");
+            for j in 0..cols {
+                assert_eq!(a.column(j), (0..37).map(|i| a[(i, j)]).collect::<Vec<_>>());
+            }
+        }
+        assert!(all_finite(&[1.0, -0.0, f64::MAX]));
+        assert!(!all_finite(&[1.0, f64::NAN]) && !all_finite(&[f64::NEG_INFINITY]));
     }
 
     fn assert_matrix_close(actual: &Matrix, expected: &Matrix, tolerance: f64) {

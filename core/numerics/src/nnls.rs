@@ -129,6 +129,7 @@ pub fn solve(a: &Matrix, b: &[f64], options: &NnlsOptions) -> Result<NnlsSolutio
 
 /// Minimizes (1/2) x^T H x - g^T x over x >= 0, from `start` when given (projected
 /// nothing: it must already be non-negative), checking `cancelled` before every iteration.
+/// H must be symmetric: its rows serve as its columns.
 ///
 /// # Panics
 /// When H is not square or `g` (or `start`) does not have one entry per row of H.
@@ -427,42 +428,26 @@ fn restore_feasibility(
 /// w = g - H x, using only the passive columns (the others are zero), and the largest
 /// |H_ij x_j| term, the scale of rounding in H x.
 ///
-/// Each (H x)_i is summed over the passive variables in their order from -0.0, as the
-/// standard library's float sum does, four rows at a time: the four sums are independent,
-/// so their additions overlap in the pipeline instead of each waiting on the last, and
-/// every value is the one a row-by-row sum gives. The largest term does not depend on the
-/// order in which the terms are met.
+/// H is symmetric, so column j of H is its row j, contiguous in memory: each passive
+/// variable's row, times x_j, is added to all the sums (H x)_i at once, a loop the compiler
+/// vectorizes. Every (H x)_i is still the sum over the passive variables in their order
+/// from -0.0, as the standard library's float sum gives it row by row, and the largest
+/// term does not depend on the order in which the terms are met (each |term| is kept per
+/// row, then the largest of those taken).
 fn negative_gradient(h: &Matrix, g: &[f64], x: &[f64], passive: &[usize]) -> (Vec<f64>, f64) {
     let n = h.rows();
-    let mut w = g.to_vec();
-    let mut scale = 0.0f64;
-    let mut i = 0;
-    while i + 4 <= n {
-        let rows = [h.row(i), h.row(i + 1), h.row(i + 2), h.row(i + 3)];
-        let mut sums = [-0.0f64; 4];
-        for &j in passive {
-            let xj = x[j];
-            for (sum, row) in sums.iter_mut().zip(&rows) {
-                let term = row[j] * xj;
-                *sum += term;
-                scale = scale.max(term.abs());
-            }
+    let mut sums = vec![-0.0f64; n];
+    let mut largest = vec![0.0f64; n];
+    for &j in passive {
+        let xj = x[j];
+        for ((sum, top), &h_ji) in sums.iter_mut().zip(largest.iter_mut()).zip(h.row(j)) {
+            let term = h_ji * xj;
+            *sum += term;
+            *top = top.max(term.abs());
         }
-        for (k, sum) in sums.into_iter().enumerate() {
-            w[i + k] -= sum;
-        }
-        i += 4;
     }
-    for (i, wi) in w.iter_mut().enumerate().skip(i) {
-        let row = h.row(i);
-        let mut sum = -0.0f64;
-        for &j in passive {
-            let term = row[j] * x[j];
-            sum += term;
-            scale = scale.max(term.abs());
-        }
-        *wi -= sum;
-    }
+    let scale = largest.into_iter().fold(0.0f64, f64::max);
+    let w = g.iter().zip(&sums).map(|(gi, sum)| gi - sum).collect();
     (w, scale)
 }
 

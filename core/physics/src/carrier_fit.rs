@@ -137,6 +137,17 @@ impl CarrierModel<'_> {
     pub fn jacobian(&self, parameters: &[f64], jacobian: &mut Matrix) {
         let data = self.data;
         let carriers = carriers_of(self.kinds, parameters);
+        // What each carrier's derivatives share at every field: g = e n mu and the signed
+        // factors s g and 2 s g, formed once (each product as the expressions below group
+        // it, so every derivative has the same bits as when formed at each field).
+        let factors: Vec<(f64, f64, f64, f64)> = carriers
+            .iter()
+            .map(|carrier| {
+                let g = carrier.sheet_conductance_s();
+                let s = carrier.kind.charge_sign();
+                (carrier.mobility_m2_per_vs, g, s * g, 2.0 * s * g)
+            })
+            .collect();
         let mut pair = [0.0; 2];
         for (k, &field) in data.fields_t.iter().enumerate() {
             let inversion = match self.space {
@@ -153,17 +164,15 @@ impl CarrierModel<'_> {
             };
             let offset = data.offsets[k];
             let w = &data.whitening[k];
-            for (i, carrier) in carriers.iter().enumerate() {
-                let g = carrier.sheet_conductance_s();
-                let mu_b = carrier.mobility_m2_per_vs * field;
+            for (i, &(mobility, g, signed_g, twice_signed_g)) in factors.iter().enumerate() {
+                let mu_b = mobility * field;
                 let x = mu_b * mu_b;
                 let denominator = 1.0 + x;
-                let s = carrier.kind.charge_sign();
                 let derivatives = [
-                    (g / denominator, s * g * mu_b / denominator),
+                    (g / denominator, signed_g * mu_b / denominator),
                     (
                         g * (1.0 - x) / (denominator * denominator),
-                        2.0 * s * g * mu_b / (denominator * denominator),
+                        twice_signed_g * mu_b / (denominator * denominator),
                     ),
                 ];
                 for (p, (d_xx, d_xy)) in derivatives.into_iter().enumerate() {
@@ -172,8 +181,8 @@ impl CarrierModel<'_> {
                         Some(m) => (m[0][0] * d_xx + m[0][1] * d_xy, m[1][0] * d_xx + m[1][1] * d_xy),
                     };
                     w.apply(d_xx, d_xy, &mut pair);
-                    for r in 0..w.count() {
-                        jacobian[(offset + r, 2 * i + p)] = pair[r];
+                    for (r, &value) in pair[..w.count()].iter().enumerate() {
+                        jacobian.row_mut(offset + r)[2 * i + p] = value;
                     }
                 }
             }

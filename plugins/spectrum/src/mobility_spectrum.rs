@@ -133,8 +133,10 @@
 //!
 //! # Cost
 //!
-//! With N per sign and M fields: the Gram matrix O(M N^2) once; each trial O(N^2) to form
-//! the penalized matrix plus O(p^2) per NNLS iteration (warm starts keep iterations few);
+//! With N per sign and M fields: the Gram matrix O(M N^2) once; each trial O(N) to rewrite
+//! the band of the penalized matrix (the rest is the Gram matrix, kept in one buffer) plus
+//! O(N p) per NNLS iteration for p positive grid points, the gradient read from p rows of
+//! the matrix (warm starts keep iterations few);
 //! the envelope one Cholesky of size 2M, O(M^3), and O(M^2) per mobility; each bootstrap
 //! replica O(M N) plus a warm-started solve.
 

@@ -470,7 +470,12 @@ impl Solver<'_, '_> {
 
     fn jacobian(&self, x: &[f64], r: &[f64], jacobian: &mut Matrix) -> Result<(), FitError> {
         if let Some(analytic) = &self.problem.jacobian {
-            *jacobian = Matrix::zeros(self.m, self.n);
+            // Zeros on entry, in the buffer of the last Jacobian when it has the shape.
+            if jacobian.rows() == self.m && jacobian.cols() == self.n {
+                jacobian.as_mut_slice().fill(0.0);
+            } else {
+                *jacobian = Matrix::zeros(self.m, self.n);
+            }
             analytic(x, jacobian);
             for j in 0..self.n {
                 if self.bounds.is_fixed(j) {
@@ -478,8 +483,14 @@ impl Solver<'_, '_> {
                         jacobian[(i, j)] = 0.0;
                     }
                 }
-                if let Some(value) = (0..self.m).map(|i| jacobian[(i, j)]).find(|value| !value.is_finite()) {
-                    return Err(FitError::NonFiniteJacobian { parameter: j, value });
+            }
+            // The first non-finite entry of the first column that has one, looked for only
+            // when there is one.
+            if !jacobian.as_slice().iter().all(|value| value.is_finite()) {
+                for j in 0..self.n {
+                    if let Some(value) = (0..self.m).map(|i| jacobian[(i, j)]).find(|value| !value.is_finite()) {
+                        return Err(FitError::NonFiniteJacobian { parameter: j, value });
+                    }
                 }
             }
             return Ok(());
@@ -580,7 +591,7 @@ impl Solver<'_, '_> {
             self.jacobian(&x, &r, &mut jacobian)?;
             jacobian_is_current = true;
             // Each column copied once: its norm, and (scaled) a column of the SVD's input.
-            let columns: Vec<Vec<f64>> = (0..n).map(|j| jacobian.column(j)).collect();
+            let mut columns: Vec<Vec<f64>> = (0..n).map(|j| jacobian.column(j)).collect();
             let column_norms: Vec<f64> = columns.iter().map(|column| norm(column)).collect();
             for j in 0..n {
                 column_scale[j] = column_scale[j].max(column_norms[j]);
@@ -609,7 +620,9 @@ impl Solver<'_, '_> {
                 .iter()
                 .map(|&j| {
                     let scale = scale_of(j);
-                    columns[j].iter().map(|value| value / scale).collect()
+                    let mut column = std::mem::take(&mut columns[j]);
+                    column.iter_mut().for_each(|value| *value /= scale);
+                    column
                 })
                 .collect();
             let svd = Svd::from_columns(m, scaled)?;
@@ -637,8 +650,18 @@ impl Solver<'_, '_> {
                 let step: Vec<f64> = trial.iter().zip(&x).map(|(t, xj)| t - xj).collect();
                 let mut accepted = false;
                 if step.iter().any(|value| *value != 0.0) {
-                    let predicted_r: Vec<f64> = jacobian.mul_vec(&step).iter().zip(&r).map(|(a, b)| a + b).collect();
-                    let predicted = cost - 0.5 * dot(&predicted_r, &predicted_r);
+                    // |J step + r|^2, each residual of the linear model formed and squared
+                    // as it is summed.
+                    let predicted_norm = jacobian
+                        .as_slice()
+                        .chunks_exact(n)
+                        .zip(&r)
+                        .map(|(row, ri)| {
+                            let value = dot(row, &step) + ri;
+                            value * value
+                        })
+                        .sum::<f64>();
+                    let predicted = cost - 0.5 * predicted_norm;
                     self.evaluate(&trial, &mut trial_r);
                     if predicted > 0.0 && trial_r.iter().all(|value| value.is_finite()) {
                         let trial_cost = 0.5 * dot(&trial_r, &trial_r);

@@ -67,8 +67,19 @@ pub(super) struct Problem {
     g: Vec<f64>,
     /// Unknowns per carrier sign (the penalty acts within each block of this size).
     block: usize,
+    /// The nonzero entries (i, j, value) of D^T D, row by row: its band.
+    penalty: Vec<(usize, usize, f64)>,
     /// tr(A^T A) / tr(D^T D).
     pub scale: f64,
+}
+
+/// The penalized Gram matrix A^T A + alpha D^T D of one strength at a time, kept in one
+/// buffer through a scan: a new strength rewrites the band of D^T D (at most five entries
+/// a row), not the whole matrix, which a fresh copy per trial would (n^2 entries, the cost
+/// of several NNLS iterations).
+pub(super) struct PenalizedGram {
+    /// Equals the Gram matrix outside the band of D^T D.
+    matrix: Matrix,
 }
 
 impl Problem {
@@ -102,14 +113,18 @@ impl Problem {
             }
         }
         let g = a.transpose_mul_vec(&b);
-        let trace_gram: f64 = gram.diagonal().iter().sum();
-        let trace_penalty: f64 = (0..n)
+        let penalty: Vec<(usize, usize, f64)> = (0..n)
             .flat_map(|i| {
                 penalty_row(points_per_sign, i)
                     .into_iter()
-                    .filter(move |&(j, _)| j == i)
+                    .map(move |(j, value)| (i, j, value))
             })
-            .map(|(_, value)| value)
+            .collect();
+        let trace_gram: f64 = gram.diagonal().iter().sum();
+        let trace_penalty: f64 = penalty
+            .iter()
+            .filter(|&&(i, j, _)| i == j)
+            .map(|&(_, _, value)| value)
             .sum();
         Ok(Problem {
             a,
@@ -117,20 +132,34 @@ impl Problem {
             gram,
             g,
             block: points_per_sign,
+            penalty,
             scale: trace_gram / trace_penalty,
         })
     }
 
     /// A^T A + lambda scale D^T D.
     pub fn regularized_gram(&self, lambda: f64) -> Matrix {
-        let alpha = lambda * self.scale;
-        let mut h = self.gram.clone();
-        for i in 0..h.rows() {
-            for (j, value) in penalty_row(self.block, i) {
-                h[(i, j)] += alpha * value;
-            }
+        let mut h = self.penalized_gram();
+        self.penalize(lambda, &mut h);
+        h.matrix
+    }
+
+    /// A buffer for [`Problem::penalize`].
+    pub fn penalized_gram(&self) -> PenalizedGram {
+        PenalizedGram {
+            matrix: self.gram.clone(),
         }
-        h
+    }
+
+    /// Makes `h` A^T A + lambda scale D^T D: every entry of the band is set to its Gram
+    /// entry plus alpha times its D^T D entry, the same sum as adding the penalty to a
+    /// fresh copy of the Gram matrix.
+    fn penalize<'h>(&self, lambda: f64, h: &'h mut PenalizedGram) -> &'h Matrix {
+        let alpha = lambda * self.scale;
+        for &(i, j, value) in &self.penalty {
+            h.matrix[(i, j)] = self.gram[(i, j)] + alpha * value;
+        }
+        &h.matrix
     }
 
     /// ||D u||^2.
@@ -145,14 +174,17 @@ impl Problem {
             .sum()
     }
 
+    /// The solution at `lambda`, from `start` when given; `h` is the buffer the penalized
+    /// Gram matrix is formed in.
     pub fn solve(
         &self,
         lambda: f64,
         start: Option<&[f64]>,
+        h: &mut PenalizedGram,
         cancelled: &dyn Fn() -> bool,
     ) -> Result<Trial, SpectrumError> {
-        let h = self.regularized_gram(lambda);
-        let solution = nnls(&h, &self.g, start, lambda, cancelled)?;
+        let h = self.penalize(lambda, h);
+        let solution = nnls(h, &self.g, start, lambda, cancelled)?;
         let u = solution.x;
         let fit = self.a.mul_vec(&u);
         let chi_square = fit.iter().zip(&self.b).map(|(f, b)| (f - b) * (f - b)).sum();
@@ -280,6 +312,7 @@ pub(super) fn select(
     let cancelled = || monitor.is_cancelled();
     let mut search = Search {
         problem,
+        gram: problem.penalized_gram(),
         trials: Vec::new(),
         monitor,
         progress_range,
@@ -356,6 +389,8 @@ fn l_curve_choice(mut scan: Vec<Trial>) -> Trial {
 
 struct Search<'a> {
     problem: &'a Problem,
+    /// The penalized Gram matrix of the trial being solved.
+    gram: PenalizedGram,
     trials: Vec<(f64, f64, f64)>,
     monitor: &'a dyn Monitor,
     progress_range: (f64, f64),
@@ -370,7 +405,7 @@ impl Search<'_> {
         if (self.cancelled)() {
             return Err(SpectrumError::Cancelled);
         }
-        let trial = self.problem.solve(lambda, start, self.cancelled)?;
+        let trial = self.problem.solve(lambda, start, &mut self.gram, self.cancelled)?;
         self.trials.push((trial.lambda, trial.chi_square, trial.roughness));
         let (from, to) = self.progress_range;
         self.monitor.progress(

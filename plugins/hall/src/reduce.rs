@@ -1309,12 +1309,16 @@ fn walk_temperature_group(
         row(&group, &zero, None);
         return largest_zero_field_t;
     }
+    let mut wanted = true;
     for field_range in field_ranges {
         let cluster = &mut field_readings[field_range];
+        // Every cluster is sorted, wanted or not: a later pass starts from this order, and
+        // the order of a cell's readings is the order of its sums, so a draft must leave
+        // the readings as the full reduction does for the results to stay the same to the bit.
         cluster.sort_unstable_by_key(|reading| cell_key(reading, true));
-        let field = summarize_field_cluster(cluster, summarize);
-        if !row(&group, &zero, Some(&field)) {
-            break;
+        if wanted {
+            let field = summarize_field_cluster(cluster, summarize);
+            wanted = row(&group, &zero, Some(&field));
         }
     }
     largest_zero_field_t

@@ -6,7 +6,6 @@
 
 use mobilis_physics::constants::ELEMENTARY_CHARGE_C;
 use mobilis_physics::van_der_pauw;
-use std::f64::consts::{LN_2, PI};
 
 use super::cells::{
     combine_redundant, mean_with_standard_error, quadrature, quadrature_of, redundancy_evidence, CellSummary, Detail,
@@ -926,18 +925,12 @@ fn van_der_pauw_resistance(
     }
     part.resistance_ratio = Some((a / b).max(b / a));
     // Positive finite inputs cannot fail; an error here would be a defect of the solver.
-    // One solution serves the sheet resistance, the factor f and the gradient: they are
-    // the formulas of `van_der_pauw::correction_factor` and `sheet_resistance_gradient`,
-    // applied to the same R_s, without solving the equation three times per row.
-    let sheet = van_der_pauw::sheet_resistance(a, b).ok();
-    let factor = sheet.map(|sheet| sheet * 2.0 * LN_2 / (PI * (a + b)));
-    let gradient = sheet.map(|sheet| {
-        let term_a = (-PI * a / sheet).exp();
-        let term_b = (-PI * b / sheet).exp();
-        let denominator = a * term_a + b * term_b;
-        (sheet * term_a / denominator, sheet * term_b / denominator)
-    });
-    part.geometry_factor = factor;
+    // One solution serves the sheet resistance, the factor f and the gradient, without
+    // solving the equation three times per row.
+    let solution = van_der_pauw::solve(a, b).ok();
+    let sheet = solution.map(|solution| solution.sheet_resistance);
+    let gradient = solution.map(|solution| solution.gradient());
+    part.geometry_factor = solution.map(|solution| solution.correction_factor());
     part.sheet_resistance = sheet.map(|value| {
         let standard_error = gradient.and_then(|(gradient_a, gradient_b)| {
             if fully_correlated {

@@ -78,16 +78,15 @@ pub fn solve(resistance_a: f64, resistance_b: f64) -> Result<Solution, VanDerPau
     let mut term_b = (-z * b).exp();
     for _ in 0..MAX_NEWTON_STEPS {
         let value = term_a + term_b - 1.0;
-        if !(value > 0.0) {
-            break;
-        }
         let next = z + value / (a * term_a + b * term_b);
-        if !(next > z) {
+        // Left of the root g > 0 and a step rises; at the root, to rounding, one of them fails.
+        if value > 0.0 && next > z {
+            z = next;
+            term_a = (-z * a).exp();
+            term_b = (-z * b).exp();
+        } else {
             break;
         }
-        z = next;
-        term_a = (-z * a).exp();
-        term_b = (-z * b).exp();
     }
     Ok(Solution {
         resistance_a,

@@ -505,6 +505,42 @@ fn column_type(source: &Source) -> ColumnType {
     }
 }
 
+/// The sample column as runs of consecutive readings of one sample. Consecutive Arrow string
+/// views that are equal hold the same text (the view is the length, the first bytes and
+/// the place of the rest, or the whole text when it is short), so a run costs one 16-byte
+/// comparison per reading; only where the views differ are the texts compared.
+fn sample_runs(column: &StringChunked) -> Result<Vec<reduce::SampleRun<'_>>, AnalysisError> {
+    use polars_arrow::array::Array;
+    let mut runs: Vec<reduce::SampleRun<'_>> = Vec::new();
+    let mut row = 0usize;
+    for array in column.downcast_iter() {
+        if array.null_count() > 0 {
+            let first_null = (0..array.len()).find(|&index| array.is_null(index)).unwrap_or(0);
+            return Err(AnalysisError::InvalidInput(format!(
+                "reading {}: `sample` is empty; name the sample of every reading",
+                row + first_null
+            )));
+        }
+        let views = array.views();
+        let mut previous_view = None;
+        for (index, view) in views.iter().enumerate() {
+            match runs.last_mut() {
+                Some(run) if previous_view == Some(view) => run.length += 1,
+                last => {
+                    let name = array.value(index);
+                    match last {
+                        Some(run) if run.name == name => run.length += 1,
+                        _ => runs.push(reduce::SampleRun { name, length: 1 }),
+                    }
+                }
+            }
+            previous_view = Some(view);
+        }
+        row += array.len();
+    }
+    Ok(runs)
+}
+
 /// A validity bitmap (Arrow's layout: bit i of byte i / 8, least significant first; Arrow
 /// columnar format, "Validity bitmaps") from one flag per row; `None` when every value is
 /// present, so that a column without nulls carries no bitmap.
@@ -899,19 +935,12 @@ impl Analysis for HallReduce {
             .map_err(|_| AnalysisError::InvalidInput("column `sample` is missing from the readings".into()))?
             .str()
             .map_err(|_| AnalysisError::InvalidInput("column `sample` must hold text".into()))?;
-        let mut sample_names: Vec<&str> = Vec::with_capacity(sample_column.len());
-        for (row, name) in sample_column.iter().enumerate() {
-            sample_names.push(name.ok_or_else(|| {
-                AnalysisError::InvalidInput(format!(
-                    "reading {row}: `sample` is empty; name the sample of every reading"
-                ))
-            })?);
-        }
+        let sample_runs = sample_runs(sample_column)?;
         let (mut s1, mut s2, mut s3, mut s4) = (Vec::new(), Vec::new(), Vec::new(), Vec::new());
         let (mut c1, mut c2, mut c3, mut c4) = (Vec::new(), Vec::new(), Vec::new(), Vec::new());
         let [i_in, i_out, v_pos, v_neg] = contact_columns(readings, [&mut c1, &mut c2, &mut c3, &mut c4])?;
         let columns = ReadingColumns {
-            sample: &sample_names,
+            sample_runs: &sample_runs,
             temperature_k: floats(readings, "temperature_K", &mut s1)?,
             field_t: floats(readings, "field_T", &mut s2)?,
             i_in,
@@ -1004,6 +1033,30 @@ mod tests {
         van_der_pauw_readings, MeasurementProtocol, VanDerPauwSample, VoltageNoise,
     };
     use mobilis_sdk::sdk::run_typed;
+
+    // Runs of the sample column: short names (held in the view) and long ones (in a data
+    // buffer), a name that comes back after another, a run across two chunks, and a null.
+    #[test]
+    fn sample_runs_follow_the_column_across_chunks() {
+        let long = "a-sample-name-longer-than-a-view";
+        let mut column = StringChunked::new("sample".into(), [long, long, "s1", "s1", long]);
+        column
+            .append(&StringChunked::new("sample".into(), [long, "s2", long, long]))
+            .unwrap();
+        assert_eq!(column.chunks().len(), 2);
+        let runs: Vec<(&str, usize)> = sample_runs(&column)
+            .unwrap()
+            .iter()
+            .map(|run| (run.name, run.length))
+            .collect();
+        assert_eq!(runs, [(long, 2), ("s1", 2), (long, 2), ("s2", 1), (long, 2)]);
+
+        let with_null = StringChunked::new("sample".into(), [Some("s1"), Some("s1"), None]);
+        let AnalysisError::InvalidInput(message) = sample_runs(&with_null).unwrap_err() else {
+            panic!("a null sample is invalid input");
+        };
+        assert!(message.starts_with("reading 2: `sample` is empty"), "{message}");
+    }
 
     fn readings_frame() -> DataFrame {
         let sample = VanDerPauwSample::ideal("w1", 77.0, 300.0, 1.1, -600.0);

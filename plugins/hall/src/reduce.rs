@@ -145,26 +145,32 @@
 //!
 //! # Performance
 //!
-//! The work is linear in the readings apart from one sort, which costs a single pass when
-//! the readings arrive ordered by sample and temperature (the usual export order: the sort
-//! detects the sorted run and stops). Measured with `cargo bench -p mobilis-tests --bench
-//! hall_reduce` (its module docs say what each figure measures).
+//! The work is linear in the readings apart from one sort per sample, which is skipped
+//! when the sample's readings arrive in temperature order (the usual export order).
+//! Measured with `cargo bench -p mobilis-tests --bench hall_reduce` (its module docs say
+//! what each figure measures).
 //!
-//! - Sample names are interned once (consecutive readings of one sample skip the hash).
+//! - The sample column arrives run-length encoded ([`SampleRun`]: the table glue compares
+//!   consecutive Arrow string views, 16 bytes, and the texts only where the views differ),
+//!   so names are interned once per run, not once per reading, and no per-reading name or
+//!   sample number is stored.
+//! - Samples are independent: each is validated, sorted and reduced in one task (in
+//!   parallel above 20,000 readings), into a buffer of 40-byte records reused from sample
+//!   to sample, so that a sample's readings stay in cache from validation to its rows and
+//!   no buffer of the whole call is written, faulted in and read back. The results are
+//!   joined in sample order, so that they do not depend on the number of threads.
 //! - A reading's contacts are classified by one look-up in a table of every contact
 //!   assignment, built per call by the classifiers of `mobilis_physics::contacts`; only a
 //!   refused assignment asks the classifier again, for its message. Readings are read
-//!   straight from the input columns and validated independently (in parallel above 20,000
-//!   readings) into one buffer of 40-byte records sized once; an invalid one is marked,
-//!   and only when there is one does a sequential pass report the problems in reading
-//!   order and drop the marked readings.
-//! - Grouping is by sorting those records (by sample and temperature, then within a group
-//!   by |B|, then within a cell by configuration, field sign and polarity) and walking
-//!   contiguous slices; nothing is allocated per reading, per cell or per row in the
-//!   statistics (short lists live on the stack).
-//! - Samples are independent: above 20,000 readings they are reduced in parallel (rayon),
-//!   each into its own block of rows, joined in sample order, so that the result does not
-//!   depend on the number of threads.
+//!   straight from the input columns and validated independently (a single sample of more
+//!   than 20,000 readings on both threads); an invalid one is marked and dropped, and its
+//!   index is kept, so that the call reports the problems in reading order.
+//! - Grouping is by sorting those records (by temperature, with a stable sort, so that the
+//!   readings of one temperature keep their input order and the result does not depend on
+//!   the sorting algorithm; then within a group by |B|, then within a cell by
+//!   configuration, field sign and polarity) and walking contiguous slices; nothing is
+//!   allocated per reading, per cell or per row in the statistics (short lists live on the
+//!   stack).
 //! - A row is drafted as a compact record (`row::RowRecord`: plain values with a presence
 //!   mask, the estimates its uncertainties are finished from, the flags as a bit set; no
 //!   text or list per row).
@@ -184,8 +190,9 @@
 //!   builds the flags text once per distinct set of flags; the columns are independent, so
 //!   a large table builds them (and clears the float buffers first) in parallel.
 //!   [`reduce`] and [`reduce_columns`] turn the same columns into [`ReducedRow`]s.
-//! - Van der Pauw's equation is solved once per row; the factor f and the gradient are
-//!   derived from that solution.
+//! - Van der Pauw's equation is solved once per row, by Newton's iteration from a start
+//!   that is exact for a symmetric sample (five or six steps for ordinary ratios); the
+//!   factor f and the gradient are derived from that solution and its terms.
 //! - Warnings are formatted only for the rows that raise them.
 //!
 //! Every result is the same, to the bit, as the straightforward version: the arithmetic
@@ -202,7 +209,10 @@ mod table;
 #[cfg(test)]
 mod tests;
 
+use std::borrow::Cow;
 use std::collections::HashMap;
+use std::ops::Range;
+use std::sync::atomic::{AtomicBool, Ordering};
 
 use mobilis_physics::contacts::{classify_hall_bar, classify_van_der_pauw, Classified, Configuration, ContactError};
 use mobilis_physics::readings::RawReading;
@@ -239,7 +249,8 @@ pub use mobilis_physics::calibration::{
 /// without building a [`RawReading`] (and its `String`) per row.
 #[derive(Debug, Clone, Copy)]
 pub struct ReadingColumns<'a> {
-    pub sample: &'a [&'a str],
+    /// The sample column, run-length encoded: the runs cover the readings in order.
+    pub sample_runs: &'a [SampleRun<'a>],
     pub temperature_k: &'a [f64],
     pub field_t: &'a [f64],
     pub i_in: &'a [i64],
@@ -248,6 +259,28 @@ pub struct ReadingColumns<'a> {
     pub v_neg: &'a [i64],
     pub current_a: &'a [f64],
     pub voltage_v: &'a [f64],
+}
+
+/// Consecutive readings of one sample: the sample column, run-length encoded. An export
+/// lists a sample's readings together, so a million readings are typically a hundred runs,
+/// and names are compared and interned once per run rather than once per reading.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct SampleRun<'a> {
+    pub name: &'a str,
+    /// How many consecutive readings belong to `name`.
+    pub length: usize,
+}
+
+/// The runs of a sample column given as one name per reading.
+pub fn sample_runs<'a>(names: impl IntoIterator<Item = &'a str>) -> Vec<SampleRun<'a>> {
+    let mut runs: Vec<SampleRun<'a>> = Vec::new();
+    for name in names {
+        match runs.last_mut() {
+            Some(run) if run.name == name => run.length += 1,
+            _ => runs.push(SampleRun { name, length: 1 }),
+        }
+    }
+    runs
 }
 
 /// Reduces readings given as [`RawReading`]s. `samples` is the sample sheet; without one every
@@ -276,7 +309,7 @@ pub fn reduce_to_table(
     samples: Option<&[SampleInfo]>,
     settings: &ReduceSettings,
 ) -> Result<ReductionTable, ReduceError> {
-    let expected = columns.sample.len();
+    let expected = columns.sample_runs.iter().map(|run| run.length).sum();
     let lengths = [
         ("temperature_K", columns.temperature_k.len()),
         ("field_T", columns.field_t.len()),
@@ -315,8 +348,8 @@ struct ReadingView {
 trait ReadingSource: Sync {
     fn reading_count(&self) -> usize;
     fn reading(&self, index: usize) -> ReadingView;
-    /// The sample name of one reading, without the rest of it.
-    fn sample(&self, index: usize) -> &str;
+    /// The sample column as runs covering the readings in order.
+    fn sample_runs(&self) -> Cow<'_, [SampleRun<'_>]>;
 }
 
 impl ReadingSource for &[RawReading] {
@@ -324,9 +357,8 @@ impl ReadingSource for &[RawReading] {
         self.len()
     }
 
-    #[inline]
-    fn sample(&self, index: usize) -> &str {
-        &self[index].sample
+    fn sample_runs(&self) -> Cow<'_, [SampleRun<'_>]> {
+        Cow::Owned(sample_runs(self.iter().map(|reading| reading.sample.as_str())))
     }
 
     #[inline]
@@ -347,12 +379,11 @@ impl ReadingSource for &[RawReading] {
 
 impl ReadingSource for ReadingColumns<'_> {
     fn reading_count(&self) -> usize {
-        self.sample.len()
+        self.temperature_k.len()
     }
 
-    #[inline]
-    fn sample(&self, index: usize) -> &str {
-        self.sample[index]
+    fn sample_runs(&self) -> Cow<'_, [SampleRun<'_>]> {
+        Cow::Borrowed(self.sample_runs)
     }
 
     #[inline]
@@ -379,23 +410,19 @@ fn reduce_source<S: ReadingSource>(
     let total = source.reading_count();
     let mut warnings = Vec::new();
 
-    // Intern sample names; rank them so that rows come out sorted by name.
+    // Intern sample names, once per run; rank them so that rows come out sorted by name.
+    let runs = source.sample_runs();
     let mut ids: HashMap<&str, u32> = HashMap::new();
     let mut names: Vec<&str> = Vec::new();
-    let mut reading_sample_id: Vec<u32> = Vec::with_capacity(total);
-    let mut last: Option<(&str, u32)> = None;
-    for index in 0..total {
-        let name = source.sample(index);
-        let id = match last {
-            Some((last_name, last_id)) if last_name == name => last_id,
-            _ => *ids.entry(name).or_insert_with(|| {
-                names.push(name);
+    let run_ids: Vec<u32> = runs
+        .iter()
+        .map(|run| {
+            *ids.entry(run.name).or_insert_with(|| {
+                names.push(run.name);
                 (names.len() - 1) as u32
-            }),
-        };
-        last = Some((name, id));
-        reading_sample_id.push(id);
-    }
+            })
+        })
+        .collect();
     let mut order: Vec<u32> = (0..names.len() as u32).collect();
     order.sort_unstable_by(|a, b| names[*a as usize].cmp(names[*b as usize]));
     let mut rank_of_id = vec![0u32; names.len()];
@@ -404,51 +431,91 @@ fn reduce_source<S: ReadingSource>(
     }
     let sorted_names: Vec<&str> = order.iter().map(|id| names[*id as usize]).collect();
     let resolved = resolve_samples(&sorted_names, samples, &settings.calibration, &mut warnings)?;
-
-    // Validate and canonicalize: every reading independently (in parallel for a large
-    // call, each thread writing its stretch of one buffer sized once), an invalid one
-    // marked; only when there is one does a sequential pass report the problems in reading
-    // order and drop the marked readings.
-    let contact_tables = ContactTables::new();
-    let prepare_at = |index: usize| -> Result<Prepared, ReadingProblem> {
-        let view = source.reading(index);
-        let rank = rank_of_id[reading_sample_id[index] as usize];
-        prepare(&view, rank, resolved[rank as usize].geometry, &contact_tables)
-    };
-    let mark = |index: usize| prepare_at(index).unwrap_or(Prepared::INVALID);
-    let mut prepared: Vec<Prepared> = Vec::with_capacity(total);
-    let any_invalid = if total >= PARALLEL_READINGS {
-        use rayon::prelude::*;
-        (0..total).into_par_iter().map(mark).collect_into_vec(&mut prepared);
-        prepared.par_iter().any(Prepared::is_invalid)
-    } else {
-        prepared.extend((0..total).map(mark));
-        prepared.iter().any(Prepared::is_invalid)
-    };
-    let mut skipped = 0usize;
-    if any_invalid {
-        let mut kept = 0usize;
-        for index in 0..total {
-            if !prepared[index].is_invalid() {
-                prepared[kept] = prepared[index];
-                kept += 1;
-                continue;
-            }
-            let problem = prepare_at(index).expect_err("a marked reading is invalid");
-            let sample = source.sample(index);
-            if !settings.skip_invalid_readings {
-                return Err(ReduceError::InvalidReading {
-                    row: index,
-                    sample: sample.to_owned(),
-                    problem,
-                });
-            }
-            skipped += 1;
-            if skipped <= DETAILED_WARNINGS {
-                warnings.push(format!("reading {index} (sample {sample:?}) skipped: {problem}"));
-            }
+    // Each sample's readings: index ranges in reading order.
+    let mut ranges_of_rank: Vec<Vec<Range<usize>>> = vec![Vec::new(); names.len()];
+    let mut start = 0usize;
+    for (run, id) in runs.iter().zip(&run_ids) {
+        if run.length > 0 {
+            ranges_of_rank[rank_of_id[*id as usize] as usize].push(start..start + run.length);
         }
-        prepared.truncate(kept);
+        start += run.length;
+    }
+    drop(run_ids);
+
+    // Samples are independent: each is validated, sorted and reduced on its own (in
+    // parallel where there are several), in a buffer reused from sample to sample, and the
+    // results are joined in sample order, so that rows, warnings and calibrations come out
+    // exactly as a sequential pass would give them.
+    let contact_tables = ContactTables::new();
+    let parallel = total >= PARALLEL_READINGS;
+    let refused = AtomicBool::new(false);
+    let reduce_one = |buffer: &mut Vec<Prepared>, rank: usize| -> SampleOutcome {
+        let sample = &resolved[rank];
+        let ranges = &ranges_of_rank[rank];
+        let invalid = prepare_sample(
+            source,
+            ranges,
+            rank as u32,
+            sample.geometry,
+            &contact_tables,
+            parallel,
+            buffer,
+        );
+        if !invalid.is_empty() && !settings.skip_invalid_readings {
+            refused.store(true, Ordering::Relaxed);
+        }
+        if buffer.is_empty() || refused.load(Ordering::Relaxed) {
+            return SampleOutcome {
+                reduction: None,
+                invalid,
+            };
+        }
+        // Ties keep reading order, so the result does not depend on the sorting algorithm.
+        // An export ordered by temperature is checked and left as it is.
+        if !buffer.is_sorted_by(|a, b| a.temperature_k <= b.temperature_k) {
+            buffer.sort_by(|a, b| a.temperature_k.total_cmp(&b.temperature_k));
+        }
+        SampleOutcome {
+            reduction: Some(reduce_sample(buffer, sample, settings)),
+            invalid,
+        }
+    };
+    let outcomes: Vec<SampleOutcome> = if parallel && resolved.len() > 1 {
+        use rayon::prelude::*;
+        (0..resolved.len())
+            .into_par_iter()
+            .map_init(Vec::new, reduce_one)
+            .collect()
+    } else {
+        let mut buffer = Vec::new();
+        (0..resolved.len()).map(|rank| reduce_one(&mut buffer, rank)).collect()
+    };
+
+    // Invalid readings are reported in reading order: the first as the error, or, when
+    // they are skipped, the first few as warnings.
+    let mut invalid: Vec<(usize, u32)> = outcomes
+        .iter()
+        .flat_map(|outcome| outcome.invalid.iter().copied())
+        .collect();
+    invalid.sort_unstable();
+    let problem_at = |index: usize, rank: u32| {
+        let geometry = resolved[rank as usize].geometry;
+        prepare(&source.reading(index), rank, geometry, &contact_tables).expect_err("a marked reading is invalid")
+    };
+    if let Some(&(index, rank)) = invalid.first() {
+        if !settings.skip_invalid_readings {
+            return Err(ReduceError::InvalidReading {
+                row: index,
+                sample: resolved[rank as usize].name.to_owned(),
+                problem: problem_at(index, rank),
+            });
+        }
+    }
+    let skipped = invalid.len();
+    for &(index, rank) in invalid.iter().take(DETAILED_WARNINGS) {
+        let sample = resolved[rank as usize].name;
+        let problem = problem_at(index, rank);
+        warnings.push(format!("reading {index} (sample {sample:?}) skipped: {problem}"));
     }
     if skipped > DETAILED_WARNINGS {
         warnings.push(format!(
@@ -456,39 +523,10 @@ fn reduce_source<S: ReadingSource>(
             skipped - DETAILED_WARNINGS
         ));
     }
-    if prepared.is_empty() {
+    let mut reduced: Vec<SampleReduction> = outcomes.into_iter().filter_map(|outcome| outcome.reduction).collect();
+    if reduced.is_empty() {
         return Err(ReduceError::NoValidReadings { total, skipped });
     }
-    drop(reading_sample_id);
-
-    prepared.sort_unstable_by(|a, b| {
-        a.sample_rank
-            .cmp(&b.sample_rank)
-            .then(a.temperature_k.total_cmp(&b.temperature_k))
-    });
-    // Samples are independent: each is reduced on its own (in parallel where there are
-    // several), and the results are joined in sample order, so that rows, warnings and
-    // calibrations come out exactly as a sequential pass would give them.
-    let mut sample_slices: Vec<&mut [Prepared]> = Vec::new();
-    let mut rest: &mut [Prepared] = &mut prepared;
-    while !rest.is_empty() {
-        let rank = rest[0].sample_rank;
-        let length = rest.iter().take_while(|reading| reading.sample_rank == rank).count();
-        let (sample_readings, tail) = rest.split_at_mut(length);
-        sample_slices.push(sample_readings);
-        rest = tail;
-    }
-    let reduce_one = |sample_readings: &mut [Prepared]| {
-        let sample = &resolved[sample_readings[0].sample_rank as usize];
-        reduce_sample(sample_readings, sample, settings)
-    };
-    let mut reduced: Vec<SampleReduction> = if sample_slices.len() > 1 && total >= PARALLEL_READINGS {
-        use rayon::prelude::*;
-        sample_slices.into_par_iter().map(reduce_one).collect()
-    } else {
-        sample_slices.into_iter().map(reduce_one).collect()
-    };
-    drop(prepared);
     let table::BuiltColumns {
         height,
         floats,
@@ -560,6 +598,55 @@ fn reduce_source<S: ReadingSource>(
         skipped_readings: skipped,
         calibrations,
     })
+}
+
+/// What the pass over one sample gives: its reduction (none when it has no valid reading,
+/// or when an invalid reading stops the call), and its invalid readings as (index, rank).
+struct SampleOutcome {
+    reduction: Option<SampleReduction>,
+    invalid: Vec<(usize, u32)>,
+}
+
+/// Validates and canonicalizes the readings of one sample (`ranges` of reading indices, in
+/// reading order) into `buffer`, which is cleared first. A long range of a large call is
+/// prepared in parallel, each thread writing its stretch of the buffer. Returns the invalid
+/// readings as (index, rank); they are not in the buffer.
+fn prepare_sample<S: ReadingSource>(
+    source: &S,
+    ranges: &[Range<usize>],
+    rank: u32,
+    geometry: Geometry,
+    tables: &ContactTables,
+    parallel: bool,
+    buffer: &mut Vec<Prepared>,
+) -> Vec<(usize, u32)> {
+    let mark = |index: usize| prepare(&source.reading(index), rank, geometry, tables).unwrap_or(Prepared::INVALID);
+    buffer.clear();
+    buffer.reserve(ranges.iter().map(|range| range.len()).sum());
+    for range in ranges {
+        if parallel && range.len() >= PARALLEL_READINGS {
+            use rayon::prelude::*;
+            buffer.par_extend(range.clone().into_par_iter().map(mark));
+        } else {
+            buffer.extend(range.clone().map(mark));
+        }
+    }
+    if !buffer.iter().any(Prepared::is_invalid) {
+        return Vec::new();
+    }
+    let mut invalid = Vec::new();
+    let mut kept = 0usize;
+    let indices = ranges.iter().flat_map(|range| range.clone());
+    for (position, index) in indices.enumerate() {
+        if buffer[position].is_invalid() {
+            invalid.push((index, rank));
+        } else {
+            buffer[kept] = buffer[position];
+            kept += 1;
+        }
+    }
+    buffer.truncate(kept);
+    invalid
 }
 
 /// The rank of the sample whose reduction is `index`.

@@ -1128,6 +1128,95 @@ fn invalid_readings_are_refused_with_row_and_reason() {
     }
 }
 
+/// Two samples at 750 temperatures each (24,000 readings, above the size at which samples
+/// are reduced in parallel), each sample's readings in temperature order; slightly different
+/// currents make every reading's value its own.
+fn two_sample_series() -> (Vec<RawReading>, Vec<RawReading>) {
+    let first = VanDerPauwModel::asymmetric(100.0, 130.0, 50.0);
+    let second = VanDerPauwModel::symmetric(7.5, -0.2);
+    let series = |model: &VanDerPauwModel, name: &str| {
+        (0..750)
+            .flat_map(|step| {
+                let current = 1e-3 * (1.0 + 1e-3 * (step % 7) as f64);
+                nist_readings(model, name, 20.0 + 0.8 * step as f64, 0.5, current)
+            })
+            .collect::<Vec<_>>()
+    };
+    (series(&first, "a"), series(&second, "b"))
+}
+
+// A sample's readings may alternate with another's in the input, and its temperatures may
+// come in any order: the reduction is that of the same readings grouped by sample and
+// sorted by temperature, to the bit (readings at one temperature keep their input order).
+#[test]
+fn interleaved_and_unordered_samples_reduce_as_grouped_ones() {
+    let (first, second) = two_sample_series();
+    let grouped: Vec<RawReading> = first.iter().chain(&second).cloned().collect();
+    let settings = ReduceSettings::default();
+    let expected = reduce(&grouped, None, &settings).unwrap();
+    assert_eq!(expected.rows.len(), 1500);
+
+    // Runs of 5 readings of one sample, then 5 of the other.
+    let interleaved: Vec<RawReading> = first
+        .chunks(5)
+        .zip(second.chunks(5))
+        .flat_map(|(a, b)| a.iter().chain(b).cloned())
+        .collect();
+    assert_eq!(reduce(&interleaved, None, &settings).unwrap(), expected);
+
+    // The temperatures from the warmest down, each temperature's readings in their order.
+    let descending: Vec<RawReading> = first
+        .chunks(16)
+        .rev()
+        .chain(second.chunks(16).rev())
+        .flatten()
+        .cloned()
+        .collect();
+    assert_eq!(reduce(&descending, None, &settings).unwrap(), expected);
+}
+
+// Invalid readings of several samples, reduced in parallel, are reported in input order:
+// the first as the error, and all of them, in order, when they are skipped.
+#[test]
+fn invalid_readings_of_parallel_samples_are_reported_in_input_order() {
+    let (first, second) = two_sample_series();
+    let mut interleaved: Vec<RawReading> = first
+        .chunks(5)
+        .zip(second.chunks(5))
+        .flat_map(|(a, b)| a.iter().chain(b).cloned())
+        .collect();
+    // Reading 10,007 belongs to "b" (5..10 of every ten), reading 15,001 to "a".
+    assert_eq!(
+        (interleaved[10_007].sample.as_str(), interleaved[15_001].sample.as_str()),
+        ("b", "a")
+    );
+    interleaved[15_001].current_a = 0.0;
+    interleaved[10_007].temperature_k = f64::NAN;
+    let error = reduce(&interleaved, None, &ReduceSettings::default()).unwrap_err();
+    let ReduceError::InvalidReading { row, sample, .. } = &error else {
+        panic!("expected an invalid reading, got {error:?}");
+    };
+    assert_eq!((*row, sample.as_str()), (10_007, "b"));
+
+    let settings = ReduceSettings {
+        skip_invalid_readings: true,
+        ..ReduceSettings::default()
+    };
+    let reduction = reduce(&interleaved, None, &settings).unwrap();
+    assert_eq!(reduction.skipped_readings, 2);
+    assert!(
+        reduction.warnings[0].starts_with("reading 10007 (sample \"b\")"),
+        "{:?}",
+        reduction.warnings
+    );
+    assert!(
+        reduction.warnings[1].starts_with("reading 15001 (sample \"a\")"),
+        "{:?}",
+        reduction.warnings
+    );
+    assert_eq!(reduction.rows.len(), 1500);
+}
+
 #[test]
 fn contact_5_on_a_van_der_pauw_sample_suggests_the_hall_bar() {
     let model = VanDerPauwModel::symmetric(100.0, 50.0);
@@ -1356,7 +1445,7 @@ fn columns_and_structs_give_the_same_reduction() {
     );
     let mut readings = nist_readings(&model, "b", 300.0, 0.5, 1e-3);
     readings.extend(nist_readings(&model, "a", 10.0, 2.0, 1e-4));
-    let sample: Vec<&str> = readings.iter().map(|r| r.sample.as_str()).collect();
+    let sample = sample_runs(readings.iter().map(|r| r.sample.as_str()));
     let float = |f: fn(&RawReading) -> f64| readings.iter().map(f).collect::<Vec<f64>>();
     let int = |f: fn(&RawReading) -> i64| readings.iter().map(f).collect::<Vec<i64>>();
     let (temperature, field, current, voltage) = (
@@ -1367,7 +1456,7 @@ fn columns_and_structs_give_the_same_reduction() {
     );
     let (i_in, i_out, v_pos, v_neg) = (int(|r| r.i_in), int(|r| r.i_out), int(|r| r.v_pos), int(|r| r.v_neg));
     let columns = ReadingColumns {
-        sample: &sample,
+        sample_runs: &sample,
         temperature_k: &temperature,
         field_t: &field,
         i_in: &i_in,

@@ -118,6 +118,21 @@ pub(super) fn redundancy_evidence(estimates: &[Estimate]) -> NoiseEvidence {
     }
 }
 
+/// sqrt(x^2 + y^2): two uncertainties in quadrature. `f64::hypot` guards the squares
+/// against overflow and underflow at the cost of tens of cycles, and a row takes a dozen
+/// such sums; quantities in SI units lie far inside the range where the squares are safe,
+/// so the plain formula is used there (it differs from `hypot` by a unit in the last place
+/// at most) and `hypot` outside it.
+#[inline]
+pub(super) fn quadrature_sum(x: f64, y: f64) -> f64 {
+    let larger = x.abs().max(y.abs());
+    if larger > 1e-150 && larger < 1e150 {
+        (x * x + y * y).sqrt()
+    } else {
+        x.hypot(y)
+    }
+}
+
 /// Root sum of squares of the components that could be estimated; `None` when none could.
 pub(super) fn quadrature(components: &[Option<f64>]) -> Option<f64> {
     quadrature_of(components.iter().copied())

@@ -8,8 +8,8 @@ use mobilis_physics::constants::ELEMENTARY_CHARGE_C;
 use mobilis_physics::van_der_pauw;
 
 use super::cells::{
-    combine_redundant, mean_with_standard_error, quadrature, quadrature_of, redundancy_evidence, CellSummary, Detail,
-    Estimate, NoiseEvidence, MAX_SLOTS,
+    combine_redundant, mean_with_standard_error, quadrature, quadrature_of, quadrature_sum, redundancy_evidence,
+    CellSummary, Detail, Estimate, NoiseEvidence, MAX_SLOTS,
 };
 use super::contract::{Geometry, ReduceSettings};
 use super::flags;
@@ -263,7 +263,7 @@ impl RowRecord {
             .or(estimate.standard_error)
             .map(|u| u.max(ARITHMETIC_RELATIVE_RESOLUTION * estimate.value.abs()));
         let systematic = Some(series.systematic_relative[quantity as usize] * estimate.value.abs());
-        let total = statistical.map(|stat| stat.hypot(systematic.unwrap_or(0.0)));
+        let total = statistical.map(|stat| quadrature_sum(stat, systematic.unwrap_or(0.0)));
         Budget {
             total,
             statistical,
@@ -547,8 +547,10 @@ pub(super) fn build_row(
                 (coefficient.value, coefficient.standard_error),
                 (sheet.value, sheet.standard_error),
             ]);
-            let noise_relative =
-                (coefficient.noise_coefficient / coefficient.value).hypot(sheet.noise_coefficient / sheet.value);
+            let noise_relative = quadrature_sum(
+                coefficient.noise_coefficient / coefficient.value,
+                sheet.noise_coefficient / sheet.value,
+            );
             Some(Estimate {
                 value,
                 standard_error: relative.map(|r| r * value),
@@ -583,9 +585,10 @@ pub(super) fn build_row(
     let reading_count = zero.count + field.map_or(0, |cells| cells.count);
     let mut record = RowRecord {
         temperature_k: group.temperature_k,
-        temperature_k_unc: group
-            .temperature_reading_unc_k
-            .hypot(sample.calibration.temperature_accuracy_k),
+        temperature_k_unc: quadrature_sum(
+            group.temperature_reading_unc_k,
+            sample.calibration.temperature_accuracy_k,
+        ),
         temperature_spread_k: group.temperature_spread_k,
         optional: [0.0; optional::COUNT],
         estimates: [Estimate::default(); 9],
@@ -835,11 +838,10 @@ fn field_even_resistance<'a>(cells: &'a [Option<CellSummary>; 2], used_cells: &m
                 standard_error: quadrature(&[plus.fit.resistance.standard_error, minus.fit.resistance.standard_error])
                     .map(|u| 0.5 * u),
                 noise_coefficient: 0.5
-                    * plus
-                        .fit
-                        .resistance
-                        .noise_coefficient
-                        .hypot(minus.fit.resistance.noise_coefficient),
+                    * quadrature_sum(
+                        plus.fit.resistance.noise_coefficient,
+                        minus.fit.resistance.noise_coefficient,
+                    ),
             })
         }
         [Some(only), None] | [None, Some(only)] => {
@@ -946,7 +948,10 @@ fn van_der_pauw_resistance(
             if fully_correlated {
                 (gradient_a + gradient_b) * resistance_a.noise_coefficient
             } else {
-                (gradient_a * resistance_a.noise_coefficient).hypot(gradient_b * resistance_b.noise_coefficient)
+                quadrature_sum(
+                    gradient_a * resistance_a.noise_coefficient,
+                    gradient_b * resistance_b.noise_coefficient,
+                )
             }
         });
         Estimate {
@@ -1048,7 +1053,7 @@ fn hall_resistance<'a>(
                 odd_parts.push(Estimate {
                     value: scale * (at_plus.value - at_minus.value),
                     standard_error: quadrature(&[at_plus.standard_error, at_minus.standard_error]).map(|u| scale * u),
-                    noise_coefficient: scale * at_plus.noise_coefficient.hypot(at_minus.noise_coefficient),
+                    noise_coefficient: scale * quadrature_sum(at_plus.noise_coefficient, at_minus.noise_coefficient),
                 });
                 even_parts.push(0.5 * (at_plus.value + at_minus.value));
             }

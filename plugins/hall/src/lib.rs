@@ -522,19 +522,19 @@ fn sample_runs(column: &StringChunked) -> Result<Vec<reduce::SampleRun<'_>>, Ana
             )));
         }
         let views = array.views();
-        let mut previous_view = None;
-        for (index, view) in views.iter().enumerate() {
+        let mut start = 0usize;
+        while start < views.len() {
+            let view = views[start];
+            let end = start + 1 + views[start + 1..].iter().take_while(|other| **other == view).count();
+            let name = array.value(start);
             match runs.last_mut() {
-                Some(run) if previous_view == Some(view) => run.length += 1,
-                last => {
-                    let name = array.value(index);
-                    match last {
-                        Some(run) if run.name == name => run.length += 1,
-                        _ => runs.push(reduce::SampleRun { name, length: 1 }),
-                    }
-                }
+                Some(run) if run.name == name => run.length += end - start,
+                _ => runs.push(reduce::SampleRun {
+                    name,
+                    length: end - start,
+                }),
             }
-            previous_view = Some(view);
+            start = end;
         }
         row += array.len();
     }

@@ -348,6 +348,10 @@ struct ReadingView {
 trait ReadingSource: Sync {
     fn reading_count(&self) -> usize;
     fn reading(&self, index: usize) -> ReadingView;
+    /// The readings of `range`, in order.
+    fn readings(&self, range: Range<usize>) -> impl Iterator<Item = ReadingView> + '_ {
+        range.map(|index| self.reading(index))
+    }
     /// The sample column as runs covering the readings in order.
     fn sample_runs(&self) -> Cow<'_, [SampleRun<'_>]>;
 }
@@ -380,6 +384,42 @@ impl ReadingSource for &[RawReading] {
 impl ReadingSource for ReadingColumns<'_> {
     fn reading_count(&self) -> usize {
         self.temperature_k.len()
+    }
+
+    /// The columns are sliced to `range` once and walked together, so that a reading is
+    /// eight loads without a bounds check and the iterator's length is known in advance.
+    fn readings(&self, range: Range<usize>) -> impl Iterator<Item = ReadingView> + '_ {
+        let temperature_k = &self.temperature_k[range.clone()];
+        let field_t = &self.field_t[range.clone()];
+        let i_in = &self.i_in[range.clone()];
+        let i_out = &self.i_out[range.clone()];
+        let v_pos = &self.v_pos[range.clone()];
+        let v_neg = &self.v_neg[range.clone()];
+        let current_a = &self.current_a[range.clone()];
+        let voltage_v = &self.voltage_v[range];
+        temperature_k
+            .iter()
+            .zip(field_t)
+            .zip(i_in)
+            .zip(i_out)
+            .zip(v_pos)
+            .zip(v_neg)
+            .zip(current_a)
+            .zip(voltage_v)
+            .map(
+                |(((((((&temperature_k, &field_t), &i_in), &i_out), &v_pos), &v_neg), &current_a), &voltage_v)| {
+                    ReadingView {
+                        temperature_k,
+                        field_t,
+                        i_in,
+                        i_out,
+                        v_pos,
+                        v_neg,
+                        current_a,
+                        voltage_v,
+                    }
+                },
+            )
     }
 
     fn sample_runs(&self) -> Cow<'_, [SampleRun<'_>]> {
@@ -620,15 +660,19 @@ fn prepare_sample<S: ReadingSource>(
     parallel: bool,
     buffer: &mut Vec<Prepared>,
 ) -> Vec<(usize, u32)> {
-    let mark = |index: usize| prepare(&source.reading(index), rank, geometry, tables).unwrap_or(Prepared::INVALID);
+    let table = tables.of(geometry);
+    let mark = |view: &ReadingView| {
+        prepare_valid(view, rank, table)
+            .unwrap_or_else(|| prepare(view, rank, geometry, tables).unwrap_or(Prepared::INVALID))
+    };
     buffer.clear();
     buffer.reserve(ranges.iter().map(|range| range.len()).sum());
     for range in ranges {
         if parallel && range.len() >= PARALLEL_READINGS {
             use rayon::prelude::*;
-            buffer.par_extend(range.clone().into_par_iter().map(mark));
+            buffer.par_extend(range.clone().into_par_iter().map(|index| mark(&source.reading(index))));
         } else {
-            buffer.extend(range.clone().map(mark));
+            buffer.extend(source.readings(range.clone()).map(|view| mark(&view)));
         }
     }
     if !buffer.iter().any(Prepared::is_invalid) {
@@ -1085,18 +1129,56 @@ impl ContactTables {
         slot | (u8::from(classified.current_sign < 0.0) << 3) | (u8::from(classified.voltage_sign < 0.0) << 4)
     }
 
+    /// The table of one geometry.
+    #[inline]
+    fn of(&self, geometry: Geometry) -> &[u8; 4096] {
+        match geometry {
+            Geometry::VanDerPauw => &self.van_der_pauw,
+            Geometry::HallBar { .. } => &self.hall_bar,
+        }
+    }
+
     /// The slot and the current and voltage signs of a reading; `None` when the classifier
     /// refuses the contacts.
     #[inline]
     fn classify(&self, geometry: Geometry, view: &ReadingView) -> Option<(u8, f64, f64)> {
         let index = Self::index(view.i_in, view.i_out, view.v_pos, view.v_neg)?;
-        let entry = match geometry {
-            Geometry::VanDerPauw => self.van_der_pauw[index],
-            Geometry::HallBar { .. } => self.hall_bar[index],
-        };
+        let entry = self.of(geometry)[index];
         let sign = |negative: bool| if negative { -1.0 } else { 1.0 };
         (entry != Self::INVALID).then(|| (entry & 0b111, sign(entry & 0b1000 != 0), sign(entry & 0b1_0000 != 0)))
     }
+}
+
+/// A valid reading in canonical orientation, by the checks of [`prepare`] folded into one
+/// test and one look-up in its geometry's `table`; `None` for any reading [`prepare`] must
+/// look at (to refuse it with its reason, or to classify contacts outside the table).
+#[inline]
+fn prepare_valid(view: &ReadingView, sample_rank: u32, table: &[u8; 4096]) -> Option<Prepared> {
+    let valid = view.temperature_k.is_finite()
+        & (view.temperature_k > 0.0)
+        & view.field_t.is_finite()
+        & view.current_a.is_finite()
+        & (view.current_a != 0.0)
+        & view.voltage_v.is_finite();
+    // Contacts 0..8 each: any negative number or one above 7 sets a higher bit.
+    let contacts = view.i_in | view.i_out | view.v_pos | view.v_neg;
+    if !valid || (contacts as u64) >= 8 {
+        return None;
+    }
+    let index = ContactTables::index(view.i_in, view.i_out, view.v_pos, view.v_neg)?;
+    let entry = table[index];
+    if entry == ContactTables::INVALID {
+        return None;
+    }
+    let sign = |negative: bool| if negative { -1.0 } else { 1.0 };
+    Some(Prepared {
+        sample_rank,
+        slot: entry & 0b111,
+        temperature_k: view.temperature_k,
+        field_t: view.field_t,
+        current_a: sign(entry & 0b1000 != 0) * view.current_a,
+        voltage_v: sign(entry & 0b1_0000 != 0) * view.voltage_v,
+    })
 }
 
 /// Validates one reading and puts it in canonical orientation.
@@ -1341,9 +1423,11 @@ fn walk_temperature_group(
     detail: Detail,
     mut row: impl FnMut(&TemperatureGroup<'_>, &ZeroFieldCells, Option<&FieldCells>) -> bool,
 ) -> f64 {
-    let summarize = match detail {
-        Detail::Full => summarize_cell,
-        Detail::Values => summarize_cell_values,
+    // A closure, not a function pointer: `detail` is a constant where this is inlined, so
+    // the summary is inlined too and built in place.
+    let summarize = |cell: &[Prepared]| match detail {
+        Detail::Full => summarize_cell(cell),
+        Detail::Values => summarize_cell_values(cell),
     };
     let count = readings.len() as f64;
     let temperature_k = readings.iter().map(|reading| reading.temperature_k).sum::<f64>() / count;
@@ -1404,14 +1488,15 @@ fn walk_temperature_group(
         // the readings as the full reduction does for the results to stay the same to the bit.
         cluster.sort_unstable_by_key(|reading| cell_key(reading, true));
         if wanted {
-            let field = summarize_field_cluster(cluster, summarize);
+            let field = summarize_field_cluster(cluster, &summarize);
             wanted = row(&group, &zero, Some(&field));
         }
     }
     largest_zero_field_t
 }
 
-fn summarize_field_cluster(cluster: &[Prepared], summarize: fn(&[Prepared]) -> CellSummary) -> FieldCells {
+#[inline(always)]
+fn summarize_field_cluster(cluster: &[Prepared], summarize: impl Fn(&[Prepared]) -> CellSummary) -> FieldCells {
     let mut cells: [[Option<CellSummary>; 2]; MAX_SLOTS] = [[None; 2]; MAX_SLOTS];
     for range in runs_by_key(cluster, |reading| (reading.slot, reading.field_t < 0.0)) {
         let first = cluster[range.start];

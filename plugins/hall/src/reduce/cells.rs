@@ -262,6 +262,7 @@ pub(super) enum Detail {
 }
 
 /// The statistics of one cell, every one of them.
+#[inline]
 pub(super) fn summarize_cell(readings: &[Prepared]) -> CellSummary {
     summarize::<true>(readings)
 }
@@ -269,6 +270,7 @@ pub(super) fn summarize_cell(readings: &[Prepared]) -> CellSummary {
 /// The values of one cell's statistics (see [`Detail::Values`]): the fitted resistance and
 /// offset, the polarities' mean V/I and mean |B|; no standard error, noise coefficient or
 /// residuals (`None`, 0 and no evidence).
+#[inline]
 pub(super) fn summarize_cell_values(readings: &[Prepared]) -> CellSummary {
     summarize::<false>(readings)
 }

@@ -2064,7 +2064,10 @@ fn quadrature_sum_agrees_with_hypot() {
         let x = (next() - 0.5) * 10f64.powf(60.0 * next() - 30.0);
         let y = (next() - 0.5) * 10f64.powf(60.0 * next() - 30.0);
         let (fast, exact) = (quadrature_sum(x, y), x.hypot(y));
-        assert!((fast - exact).abs() <= f64::EPSILON * exact, "{x}, {y}: {fast} vs {exact}");
+        assert!(
+            (fast - exact).abs() <= f64::EPSILON * exact,
+            "{x}, {y}: {fast} vs {exact}"
+        );
     }
     for (x, y) in [(3e200, 4e200), (3e-200, 4e-200), (0.0, 0.0), (f64::INFINITY, 1.0)] {
         assert_eq!(quadrature_sum(x, y), x.hypot(y));

@@ -218,7 +218,7 @@ use mobilis_physics::contacts::{classify_hall_bar, classify_van_der_pauw, Classi
 use mobilis_physics::readings::RawReading;
 
 use cells::{
-    cell_key, gap_clusters, runs_by_key, setpoint_clusters, summarize_cell, summarize_cell_values, CellSummary, Detail,
+    cell_key, gap_clusters, runs_by_key, setpoint_end, summarize_cell, summarize_cell_values, CellSummary, Detail,
     NoiseEvidence, Prepared, MAX_SLOTS,
 };
 pub use contract::{
@@ -1472,17 +1472,18 @@ fn walk_temperature_group(
         zero.cells[slot] = Some(summarize(&zero_readings[range]));
     }
 
-    let field_ranges = setpoint_clusters(
-        field_readings.iter().map(|reading| reading.field_t.abs()),
-        settings.field_tolerance_t,
-    );
-    if field_ranges.is_empty() {
+    if field_readings.is_empty() {
         row(&group, &zero, None);
         return largest_zero_field_t;
     }
     let mut wanted = true;
-    for field_range in field_ranges {
-        let cluster = &mut field_readings[field_range];
+    let mut start = 0usize;
+    while start < field_readings.len() {
+        // Each setpoint's end is found as it is reached: sorting a cluster reorders only
+        // its own readings, so the |B| order of the rest is untouched.
+        let end = setpoint_end(field_readings, start, settings.field_tolerance_t);
+        let cluster = &mut field_readings[start..end];
+        start = end;
         // Every cluster is sorted, wanted or not: a later pass starts from this order, and
         // the order of a cell's readings is the order of its sums, so a draft must leave
         // the readings as the full reduction does for the results to stay the same to the bit.

@@ -481,31 +481,19 @@ pub(super) fn gap_clusters(values: impl Iterator<Item = f64>, tolerance: f64) ->
     ranges
 }
 
-/// Clusters of sorted values around setpoints, as index ranges: a cluster starts at its
-/// smallest value and takes every following value within `tolerance` of it, so no cluster
-/// is wider than `tolerance`. A densely logged ramp is cut into pieces of that width instead
-/// of being chained into one cluster.
-pub(super) fn setpoint_clusters(values: impl Iterator<Item = f64>, tolerance: f64) -> Vec<std::ops::Range<usize>> {
-    let mut ranges = Vec::new();
-    let mut start = 0usize;
-    let mut first: Option<f64> = None;
-    let mut index = 0usize;
-    for value in values {
-        match first {
-            Some(first_value) if value - first_value <= tolerance => {}
-            Some(_) => {
-                ranges.push(start..index);
-                start = index;
-                first = Some(value);
-            }
-            None => first = Some(value),
-        }
-        index += 1;
-    }
-    if index > start {
-        ranges.push(start..index);
-    }
-    ranges
+/// The end of the field setpoint that starts at `start` in readings sorted by |B|: a
+/// setpoint starts at its smallest |B| and takes every following reading within `tolerance`
+/// of it, so no setpoint is wider than `tolerance`. A densely logged ramp is cut into pieces
+/// of that width instead of being chained into one setpoint. Found one at a time, without a
+/// list of ranges per temperature group.
+pub(super) fn setpoint_end(readings: &[Prepared], start: usize, tolerance: f64) -> usize {
+    let first = readings[start].field_t.abs();
+    start
+        + 1
+        + readings[start + 1..]
+            .iter()
+            .take_while(|reading| reading.field_t.abs() - first <= tolerance)
+            .count()
 }
 
 /// Index ranges of the runs of equal keys in a slice sorted by that key, in order. An

@@ -153,6 +153,10 @@ pub(super) struct BuiltColumns {
     pub flags: Vec<FlagSet>,
 }
 
+/// Rows finished at a time before they are written out column by column: 64 rows of 43
+/// values, 22 KiB, stay in the first-level cache.
+const FILL_BLOCK_ROWS: usize = 64;
+
 /// Below this many rows the samples are finished one after the other.
 const PARALLEL_ROWS: usize = 2_000;
 
@@ -218,19 +222,30 @@ pub(super) fn build_columns(
         let sample = &samples[index];
         let hall_factor = resolved_hall_factor(index);
         let series = SeriesBudget::new(&sample.series_evidence, &sample.calibration_resolved);
-        for (row, record) in sample.records.iter().enumerate() {
-            let (values, present) = finish_row(record, hall_factor, &series);
-            for (column, ((values_out, present_out), value)) in out
-                .values
-                .iter_mut()
-                .zip(out.present.iter_mut())
-                .zip(values)
-                .enumerate()
-            {
-                values_out[row] = value;
-                present_out[row] = present & (1 << column) != 0;
+        // Rows are finished a block at a time and the block is written column by column:
+        // each column's stretch is then written contiguously, without an index check per
+        // value, instead of one value into each of the 43 columns per row.
+        let mut block = [([0.0; float_column::COUNT], 0u64); FILL_BLOCK_ROWS];
+        for (block_index, records) in sample.records.chunks(FILL_BLOCK_ROWS).enumerate() {
+            let first_row = block_index * FILL_BLOCK_ROWS;
+            for (finished, record) in block.iter_mut().zip(records) {
+                *finished = finish_row(record, hall_factor, &series);
             }
-            write_scalars(out, row, record);
+            let finished = &block[..records.len()];
+            for (column, (values_out, present_out)) in out.values.iter_mut().zip(out.present.iter_mut()).enumerate() {
+                let rows = first_row..first_row + records.len();
+                for ((value_out, present_out), (values, present)) in values_out[rows.clone()]
+                    .iter_mut()
+                    .zip(&mut present_out[rows])
+                    .zip(finished)
+                {
+                    *value_out = values[column];
+                    *present_out = present & (1 << column) != 0;
+                }
+            }
+            for (offset, record) in records.iter().enumerate() {
+                write_scalars(out, first_row + offset, record);
+            }
         }
     };
     if height >= PARALLEL_ROWS && samples.len() > 1 {

@@ -390,36 +390,25 @@ impl ReadingSource for ReadingColumns<'_> {
     /// eight loads without a bounds check and the iterator's length is known in advance.
     fn readings(&self, range: Range<usize>) -> impl Iterator<Item = ReadingView> + '_ {
         let temperature_k = &self.temperature_k[range.clone()];
-        let field_t = &self.field_t[range.clone()];
-        let i_in = &self.i_in[range.clone()];
-        let i_out = &self.i_out[range.clone()];
-        let v_pos = &self.v_pos[range.clone()];
-        let v_neg = &self.v_neg[range.clone()];
-        let current_a = &self.current_a[range.clone()];
-        let voltage_v = &self.voltage_v[range];
-        temperature_k
-            .iter()
-            .zip(field_t)
-            .zip(i_in)
-            .zip(i_out)
-            .zip(v_pos)
-            .zip(v_neg)
-            .zip(current_a)
-            .zip(voltage_v)
-            .map(
-                |(((((((&temperature_k, &field_t), &i_in), &i_out), &v_pos), &v_neg), &current_a), &voltage_v)| {
-                    ReadingView {
-                        temperature_k,
-                        field_t,
-                        i_in,
-                        i_out,
-                        v_pos,
-                        v_neg,
-                        current_a,
-                        voltage_v,
-                    }
-                },
-            )
+        let length = temperature_k.len();
+        // Every column cut to the same length, so that the index below needs no check.
+        let field_t = &self.field_t[range.clone()][..length];
+        let i_in = &self.i_in[range.clone()][..length];
+        let i_out = &self.i_out[range.clone()][..length];
+        let v_pos = &self.v_pos[range.clone()][..length];
+        let v_neg = &self.v_neg[range.clone()][..length];
+        let current_a = &self.current_a[range.clone()][..length];
+        let voltage_v = &self.voltage_v[range][..length];
+        (0..length).map(move |k| ReadingView {
+            temperature_k: temperature_k[k],
+            field_t: field_t[k],
+            i_in: i_in[k],
+            i_out: i_out[k],
+            v_pos: v_pos[k],
+            v_neg: v_neg[k],
+            current_a: current_a[k],
+            voltage_v: voltage_v[k],
+        })
     }
 
     fn sample_runs(&self) -> Cow<'_, [SampleRun<'_>]> {
@@ -1170,14 +1159,16 @@ fn prepare_valid(view: &ReadingView, sample_rank: u32, table: &[u8; 4096]) -> Op
     if entry == ContactTables::INVALID {
         return None;
     }
-    let sign = |negative: bool| if negative { -1.0 } else { 1.0 };
+    // The entry's sign bits (3: current, 4: voltage) moved onto the values' sign bits: the
+    // same bits as multiplying by -1.0 or 1.0.
+    let flip = |value: f64, bit: u32| f64::from_bits(value.to_bits() ^ ((u64::from(entry) >> bit & 1) << 63));
     Some(Prepared {
         sample_rank,
         slot: entry & 0b111,
         temperature_k: view.temperature_k,
         field_t: view.field_t,
-        current_a: sign(entry & 0b1000 != 0) * view.current_a,
-        voltage_v: sign(entry & 0b1_0000 != 0) * view.voltage_v,
+        current_a: flip(view.current_a, 3),
+        voltage_v: flip(view.voltage_v, 4),
     })
 }
 

@@ -57,23 +57,27 @@ pub fn parse_size(text: &str) -> Result<u64, String> {
     Ok(bytes as u64)
 }
 
-/// Drops `freed` and then gives the allocator's unused memory back to the system, on a
-/// thread of its own: unmapping a replaced table and trimming the heap cost a few percent
-/// of an import, and nothing the caller answers depends on them. The bytes were already
-/// released from the budget by the caller. Falls back to doing both here if no thread can
-/// be started.
-pub fn free_in_background<T: Send + 'static>(freed: T) {
+/// Drops `freed` and then, with `trim`, gives the allocator's unused memory back to the
+/// system, on a thread of its own: unmapping a replaced table and trimming the heap cost a
+/// few percent of an import, and nothing the caller answers depends on them. The bytes were
+/// already released from the budget by the caller. Falls back to doing both here if no
+/// thread can be started.
+pub fn free_in_background<T: Send + 'static>(freed: T, trim: bool) {
     let mut freed = Some(freed);
     let spawned = std::thread::Builder::new().name("mobilis-free".into()).spawn({
         let freed = freed.take();
         move || {
             drop(freed);
-            return_freed_memory();
+            if trim {
+                return_freed_memory();
+            }
         }
     });
     if spawned.is_err() {
         drop(freed);
-        return_freed_memory();
+        if trim {
+            return_freed_memory();
+        }
     }
 }
 

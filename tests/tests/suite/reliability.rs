@@ -14,6 +14,7 @@
 //! | --- | --- | --- |
 //! | store kill -9 rounds | 200 rounds: tried 200, failed 0, lost 0 (852 dataset writes acknowledged, 878 cut by a kill); 115 s in a debug build | 2026-12-03, 2-core machine |
 //! | memory returned after drops | anonymous RSS 13 MiB idle, 34-49 MiB holding a million rows (15 MiB stored), 19 MiB after each drop (32 MiB without `malloc_trim`) | 2026-12-03, 2-core machine |
+//! | memory while a small table is replaced | anonymous RSS 21 MiB idle, settling at 35-39 MiB over ten replacements of a 50,000-value table (below the store's 64 MiB trim size; debug build) | 2026-12-04, 2-core machine |
 //! | imports past the memory budget | refused with `resource_limit` (4009) under `--memory-budget 64KiB`: tried 1, failed 0 | 2026-12-03, 2-core machine |
 //! | ids over HTTP, WebSocket and stdio | tried 57, failed 0, lost 0 (13 allowed and 6 disallowed ids x 3 transports) | 2026-12-03, 2-core machine, debug |
 //! | bad stdio frames (slow run: a 100 MiB header line) | tried 20, failed 0, lost 0 | 2026-12-03, 2-core machine, debug |

@@ -435,6 +435,26 @@ async fn memory_comes_back_after_a_large_dataset_is_dropped() {
     assert_eq!(failed, 0, "{figures:#?}");
 }
 
+// A table replaced again and again below the size from which the store trims the allocator
+// (an analysis writing its output anew, say) leaves its memory to the allocator, which
+// serves the next write from it: the resident memory settles instead of growing.
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn replacing_a_small_table_again_and_again_does_not_grow_memory() {
+    let daemon = TestDaemon::start().await;
+    let values: Vec<f64> = (0..50_000).map(|i| f64::from(i) * 0.5).collect();
+    let table = json!({"name": "again", "columns": {"x": values}, "overwrite": true});
+    let pid = daemon.daemon.pid();
+    let mut resident = Vec::new();
+    for _ in 0..10 {
+        daemon.call("dataset.import", table.clone()).await;
+        resident.push(resident_bytes(pid) >> 20);
+    }
+    let settled = resident[3];
+    let last = *resident.last().expect("ten imports");
+    println!("memory while replacing a table: anonymous RSS {resident:?} MiB");
+    assert!(last <= settled + 16, "resident memory grew: {resident:?} MiB");
+}
+
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn imports_past_the_memory_budget_are_refused_with_what_to_do() {
     let daemon = TestDaemon::start_with(|options| {

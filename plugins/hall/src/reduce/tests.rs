@@ -1145,6 +1145,15 @@ fn two_sample_series() -> (Vec<RawReading>, Vec<RawReading>) {
     (series(&first, "a"), series(&second, "b"))
 }
 
+/// Runs of 5 readings of one sample, then 5 of the other.
+fn alternate_runs(first: &[RawReading], second: &[RawReading]) -> Vec<RawReading> {
+    first
+        .chunks(5)
+        .zip(second.chunks(5))
+        .flat_map(|(a, b)| a.iter().chain(b).cloned())
+        .collect()
+}
+
 // A sample's readings may alternate with another's in the input, and its temperatures may
 // come in any order: the reduction is that of the same readings grouped by sample and
 // sorted by temperature, to the bit (readings at one temperature keep their input order).
@@ -1156,12 +1165,7 @@ fn interleaved_and_unordered_samples_reduce_as_grouped_ones() {
     let expected = reduce(&grouped, None, &settings).unwrap();
     assert_eq!(expected.rows.len(), 1500);
 
-    // Runs of 5 readings of one sample, then 5 of the other.
-    let interleaved: Vec<RawReading> = first
-        .chunks(5)
-        .zip(second.chunks(5))
-        .flat_map(|(a, b)| a.iter().chain(b).cloned())
-        .collect();
+    let interleaved = alternate_runs(&first, &second);
     assert_eq!(reduce(&interleaved, None, &settings).unwrap(), expected);
 
     // The temperatures from the warmest down, each temperature's readings in their order.
@@ -1180,11 +1184,7 @@ fn interleaved_and_unordered_samples_reduce_as_grouped_ones() {
 #[test]
 fn invalid_readings_of_parallel_samples_are_reported_in_input_order() {
     let (first, second) = two_sample_series();
-    let mut interleaved: Vec<RawReading> = first
-        .chunks(5)
-        .zip(second.chunks(5))
-        .flat_map(|(a, b)| a.iter().chain(b).cloned())
-        .collect();
+    let mut interleaved = alternate_runs(&first, &second);
     // Reading 10,007 belongs to "b" (5..10 of every ten), reading 15,001 to "a".
     assert_eq!(
         (interleaved[10_007].sample.as_str(), interleaved[15_001].sample.as_str()),

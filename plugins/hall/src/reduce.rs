@@ -169,8 +169,8 @@
 //!   readings of one temperature keep their input order and the result does not depend on
 //!   the sorting algorithm; then within a group by |B|, then within a cell by
 //!   configuration, field sign and polarity) and walking contiguous slices; nothing is
-//!   allocated per reading, per cell or per row in the statistics (short lists live on the
-//!   stack).
+//!   allocated per reading, per cell, per field setpoint or per row in the statistics
+//!   (short lists live on the stack; a setpoint's end is found when it is reached).
 //! - A row is drafted as a compact record (`row::RowRecord`: plain values with a presence
 //!   mask, the estimates its uncertainties are finished from, the flags as a bit set; no
 //!   text or list per row).
@@ -185,7 +185,9 @@
 //! - The result is columnar (`table`): every output column is one buffer sized once for all
 //!   rows (values and validity), each sample writes its rows' finished values (the
 //!   uncertainty budgets, with the noise scales and systematic factors shared by a row or a
-//!   sample computed once) into its own stretch of every column, in parallel; the table
+//!   sample computed once) into its own stretch of every column, in parallel, a block of
+//!   64 finished rows at a time and column by column, so that each stretch is written
+//!   contiguously; the table
 //!   glue moves the buffers into the output table with an Arrow validity bitmap, and
 //!   builds the flags text once per distinct set of flags; the columns are independent, so
 //!   a large table builds them (and clears the float buffers first) in parallel.

@@ -44,6 +44,12 @@
 //!   is the dataset tiled ten times under new sample names, so that generation stays a
 //!   matter of seconds (the reduction does the same work whatever the values). The peak
 //!   RSS after this section includes the 1e7 table (about 0.9 GB as Arrow columns).
+//! - `drift`: `hall.reduce` on 1e5 readings of a run that drifts as a real cryostat does
+//!   (10 samples, 30 mK of stage drift between readings, autoranged current, field
+//!   remanence and wander, calibration errors: [`mobilis_tests::hall_readings::generate_drifting`]),
+//!   so that every temperature group is drift-corrected, against the first 1e5 readings of
+//!   the steady dataset; it prints how many rows were corrected and the ratio of the two
+//!   medians. No goal: the figure says what the correction passes cost.
 //! - `boundary`: (b) `fixture.identity` through `PluginHost::invoke` on the same readings:
 //!   the table is exported, imported by the plugin, exported back unchanged and imported by
 //!   the host, so this is the whole cost of the boundary (both ways) for this table, with
@@ -88,7 +94,7 @@ const BOUNDARY_REPETITIONS: usize = 11;
 
 /// The sections a run times (`HALL_REDUCE_SECTIONS`, comma-separated; all by default).
 const SECTIONS_VARIABLE: &str = "HALL_REDUCE_SECTIONS";
-const ALL_SECTIONS: [&str; 5] = ["reduce", "peer", "scaling", "boundary", "isolated"];
+const ALL_SECTIONS: [&str; 6] = ["reduce", "peer", "scaling", "drift", "boundary", "isolated"];
 
 /// Goals of issue 13 for `hall.reduce` on a million readings through the ABI.
 const GOAL_REDUCE_S: f64 = 40e-3;
@@ -205,6 +211,9 @@ fn main() {
         );
     }
 
+    if wants("drift") {
+        drift(&readings, &sheet, &|inputs| invoke("hall.reduce", inputs));
+    }
     if wants("boundary") {
         boundary(&readings, &|analysis, inputs| invoke(analysis, inputs));
     }
@@ -385,6 +394,49 @@ fn scaling(readings: &DataFrame, sheet: &DataFrame, invoke: InvokeReduce<'_>, mi
             }
         );
     }
+}
+
+/// Samples of the drifting run of the `drift` section.
+const DRIFT_SAMPLE_COUNT: usize = 10;
+
+/// hall.reduce on a run that drifts as a real cryostat does
+/// ([`hall_readings::generate_drifting`]), against as many readings of the steady run: what
+/// the drift correction (two passes over every drifting group, the first drafted) costs.
+fn drift(readings: &DataFrame, sheet: &DataFrame, invoke: InvokeReduce<'_>) {
+    let started = Instant::now();
+    let (drifting, drifting_sheet) =
+        hall_readings::generate_drifting(DRIFT_SAMPLE_COUNT).unwrap_or_else(|message| fail(&message));
+    let generation_s = started.elapsed().as_secs_f64();
+    let count = drifting.height();
+    let drifting_inputs = vec![
+        ("readings".to_owned(), drifting),
+        ("samples".to_owned(), drifting_sheet),
+    ];
+    let reduced = invoke(&drifting_inputs);
+    let corrected = reduced
+        .table
+        .column("drift_corrected")
+        .and_then(|column| column.bool().cloned())
+        .map(|flags| flags.sum().unwrap_or(0))
+        .unwrap_or_else(|error| fail(&format!("drift_corrected column: {error}")));
+    println!();
+    println!(
+        "drifting run: {count} readings ({DRIFT_SAMPLE_COUNT} samples, stage drift 30 mK between readings), generated in {generation_s:.2} s; {corrected} of {} rows drift-corrected",
+        reduced.table.height()
+    );
+    header("hall.reduce, drifting against steady readings (one call)");
+    let drifting_timing = bench::measure(WARM_UP, REDUCE_REPETITIONS, || invoke(&drifting_inputs));
+    line("     drifting run", &drifting_timing, count);
+    let steady_inputs = vec![
+        ("readings".to_owned(), readings.slice(0, count)),
+        ("samples".to_owned(), sheet.slice(0, DRIFT_SAMPLE_COUNT)),
+    ];
+    let steady_timing = bench::measure(WARM_UP, REDUCE_REPETITIONS, || invoke(&steady_inputs));
+    line("     steady run, the same number of readings", &steady_timing, count);
+    println!(
+        "the drift correction costs {:.2}x the steady reduction",
+        drifting_timing.median_s / steady_timing.median_s
+    );
 }
 
 /// The dataset repeated `copies` times; copy k renames sample "Si-NNN" to "Si-kNNN" (sorted

@@ -1167,9 +1167,7 @@ fn prepare_valid(view: &ReadingView, sample_rank: u32, table: &[u8; 4096]) -> Op
         & view.current_a.is_finite()
         & (view.current_a != 0.0)
         & view.voltage_v.is_finite();
-    // Contacts 0..8 each: any negative number or one above 7 sets a higher bit.
-    let contacts = view.i_in | view.i_out | view.v_pos | view.v_neg;
-    if !valid || (contacts as u64) >= 8 {
+    if !valid {
         return None;
     }
     let index = ContactTables::index(view.i_in, view.i_out, view.v_pos, view.v_neg)?;

@@ -2047,8 +2047,9 @@ mod recovers_forward_model {
     }
 }
 
-// The quadrature sum of two uncertainties agrees with `f64::hypot` to a unit in the last
-// place inside the range it computes directly, and is `hypot` outside it, where the
+// The quadrature sum of two uncertainties agrees with `f64::hypot` (the C library's hypot,
+// ISO/IEC 9899:1999 7.12.7.3, the reference here) to a unit in the last place inside the
+// range it computes directly, and is `hypot` outside it, where the
 // squares would overflow or underflow.
 #[test]
 fn quadrature_sum_agrees_with_hypot() {

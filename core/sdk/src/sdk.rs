@@ -41,7 +41,8 @@ use crate::abi::{
     self, AnalysisDeclaration, ColumnType, ContractViolation, HostContext, InputTable, InvokeOutput, PluginDeclaration,
 };
 use crate::table_ffi;
-use polars::prelude::{Column, DataFrame, DataType, IntoColumn, NamedFrom, PlSmallStr, Series};
+use polars::prelude::{Column, DataFrame, DataType, Float64Chunked, IntoColumn, NamedFrom, PlSmallStr, Series};
+use polars_arrow::bitmap::Bitmap;
 use serde::de::DeserializeOwned;
 use serde_json::{Map, Value};
 use std::any::TypeId;
@@ -315,6 +316,77 @@ pub fn check_output(
     )
 }
 
+/// A float output column built row by row: the values (0 where null) and, per row, whether
+/// the value is present. A long table of optional floats pushed as `Vec<Option<f64>>`
+/// spends most of its time growing vectors of 16-byte options and converting them; this one
+/// holds the values in the layout the column keeps and turns the flags into a validity
+/// bitmap once ([`FloatColumn::into_column`]).
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct FloatColumn {
+    pub values: Vec<f64>,
+    pub present: Vec<bool>,
+}
+
+impl FloatColumn {
+    /// An empty column with room for `rows` rows.
+    pub fn with_capacity(rows: usize) -> Self {
+        FloatColumn {
+            values: Vec::with_capacity(rows),
+            present: Vec::with_capacity(rows),
+        }
+    }
+
+    /// Appends a row: the value, or null for `None`.
+    #[inline]
+    pub fn push(&mut self, value: Option<f64>) {
+        self.values.push(value.unwrap_or(0.0));
+        self.present.push(value.is_some());
+    }
+
+    /// Appends `rows` nulls.
+    pub fn push_nulls(&mut self, rows: usize) {
+        self.values.resize(self.values.len() + rows, 0.0);
+        self.present.resize(self.present.len() + rows, false);
+    }
+
+    /// The value of `row`, None when it is null.
+    #[inline]
+    pub fn get(&self, row: usize) -> Option<f64> {
+        self.present[row].then(|| self.values[row])
+    }
+
+    pub fn len(&self) -> usize {
+        self.values.len()
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.values.is_empty()
+    }
+
+    /// The column named `name`; the values buffer becomes the column's without a copy.
+    pub fn into_column(self, name: PlSmallStr) -> Column {
+        let bitmap = validity(&self.present);
+        Float64Chunked::from_vec_validity(name, self.values, bitmap).into_column()
+    }
+}
+
+/// A validity bitmap (Arrow's layout: bit i of byte i / 8, least significant first; Arrow
+/// columnar format, "Validity bitmaps") from one flag per row; `None` when every value is
+/// present, so that a column without nulls carries no bitmap.
+pub fn validity(present: &[bool]) -> Option<Bitmap> {
+    if present.iter().all(|&p| p) {
+        return None;
+    }
+    let mut bytes = vec![0u8; present.len().div_ceil(8)];
+    for (byte, chunk) in bytes.iter_mut().zip(present.chunks(8)) {
+        *byte = chunk
+            .iter()
+            .enumerate()
+            .fold(0u8, |bits, (bit, &p)| bits | (u8::from(p) << bit));
+    }
+    Some(Bitmap::from_u8_vec(bytes, present.len()))
+}
+
 /// Builds an [`AnalysisOutput`] that holds only what the analysis declared.
 ///
 /// Every column and summary key is checked as it is added; the first violation is kept
@@ -374,6 +446,12 @@ impl OutputBuilder {
     /// Adds a float column with nulls.
     pub fn f64_nullable(&mut self, name: &str, values: Vec<Option<f64>>) -> &mut Self {
         self.column(Column::new(PlSmallStr::from_str(name), values))
+    }
+
+    /// Adds a float column built row by row ([`FloatColumn`]): its values are moved into
+    /// the table, not copied.
+    pub fn float_column(&mut self, name: &str, values: FloatColumn) -> &mut Self {
+        self.column(values.into_column(PlSmallStr::from_str(name)))
     }
 
     /// Adds an integer column.

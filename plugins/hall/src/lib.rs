@@ -51,7 +51,6 @@ pub mod reduce;
 use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
 use mobilis_sdk::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs, OutputBuilder};
 use polars::prelude::*;
-use polars_arrow::bitmap::Bitmap;
 use reduce::{
     calibration_names, flags, float_column, Calibration, FlagSet, FloatColumn, Geometry, QualityThresholds,
     ReadingColumns, ReduceSettings, ReductionTable, SampleInfo,
@@ -541,23 +540,6 @@ fn sample_runs(column: &StringChunked) -> Result<Vec<reduce::SampleRun<'_>>, Ana
     Ok(runs)
 }
 
-/// A validity bitmap (Arrow's layout: bit i of byte i / 8, least significant first; Arrow
-/// columnar format, "Validity bitmaps") from one flag per row; `None` when every value is
-/// present, so that a column without nulls carries no bitmap.
-fn validity(present: &[bool]) -> Option<Bitmap> {
-    if present.iter().all(|&p| p) {
-        return None;
-    }
-    let mut bytes = vec![0u8; present.len().div_ceil(8)];
-    for (byte, chunk) in bytes.iter_mut().zip(present.chunks(8)) {
-        *byte = chunk
-            .iter()
-            .enumerate()
-            .fold(0u8, |bits, (bit, &p)| bits | (u8::from(p) << bit));
-    }
-    Some(Bitmap::from_u8_vec(bytes, present.len()))
-}
-
 /// The text of a row's flags, comma-separated in the order of [`flags::ALL`]: each distinct
 /// set is joined once.
 struct FlagTexts(Vec<Option<String>>);
@@ -624,8 +606,7 @@ fn output_table(mut table: ReductionTable, output: &mut OutputBuilder) {
         match source {
             Source::Float(_) => {
                 let column = float.expect("each float column is moved in once");
-                let bitmap = validity(&column.present);
-                Float64Chunked::from_vec_validity(name, column.values, bitmap).into_column()
+                column.into_column(name)
             }
             Source::Sample => StringChunked::from_iter_values(
                 name,

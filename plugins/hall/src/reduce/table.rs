@@ -8,18 +8,7 @@ use super::contract::{float_column, CalibrationUsed, ReducedRow};
 use super::row::{finish_row, FlagSet, ResolvedCalibration, RowRecord, SeriesBudget};
 
 /// One float column: its values (0 where null) and, per row, whether the value is present.
-#[derive(Debug, Clone, Default)]
-pub struct FloatColumn {
-    pub values: Vec<f64>,
-    pub present: Vec<bool>,
-}
-
-impl FloatColumn {
-    #[inline]
-    pub fn get(&self, row: usize) -> Option<f64> {
-        self.present[row].then(|| self.values[row])
-    }
-}
+pub use mobilis_sdk::sdk::FloatColumn;
 
 /// The result of [`super::reduce_to_table`]: the output columns, rows sorted by sample,
 /// temperature and field, and the warnings and calibrations of [`super::Reduction`].

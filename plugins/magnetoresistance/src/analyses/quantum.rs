@@ -18,7 +18,7 @@ use mobilis_numerics::fit::FitQuality;
 use mobilis_physics::forward::oscillations::thermal_damping_factor;
 use mobilis_physics::sweep::{symmetrize, SweepUse};
 use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType};
-use mobilis_sdk::sdk::{invalid, Analysis, AnalysisError, AnalysisOutput, Host, Inputs, OutputBuilder};
+use mobilis_sdk::sdk::{invalid, Analysis, AnalysisError, AnalysisOutput, FloatColumn, Host, Inputs, OutputBuilder};
 use mobilis_sdk::sweep_table::{
     single_sweep, sweep_role, sweeps_by_temperature, SweepParams, SweepTable, TemperatureGroupingParams,
 };
@@ -406,14 +406,24 @@ fn symmetrized_sweeps(params: &OscillationParams, tables: &[SweepTable]) -> Resu
 }
 
 /// The rows of the long table, a `kind` per plot, in the eight shared value columns
-/// (temperature, field, 1/B, frequency, rho_xx, background, value, its uncertainty).
-#[derive(Default)]
+/// (temperature, field, 1/B, frequency, rho_xx, background, value, its uncertainty). The
+/// table has a row per point of every sweep and per bin of every spectrum (about 200,000
+/// for six sweeps of 4,000 points), so the columns are reserved for those rows at once and
+/// kept as values and flags ([`FloatColumn`]), not as growing vectors of options.
 struct PlotRows {
     kind: Vec<&'static str>,
-    cells: [Vec<Option<f64>>; 8],
+    cells: [FloatColumn; 8],
 }
 
 impl PlotRows {
+    /// Empty columns with room for `rows` rows.
+    fn with_capacity(rows: usize) -> Self {
+        PlotRows {
+            kind: Vec::with_capacity(rows),
+            cells: std::array::from_fn(|_| FloatColumn::with_capacity(rows)),
+        }
+    }
+
     fn push(&mut self, k: &'static str, values: [Option<f64>; 8]) {
         self.kind.push(k);
         for (cell, value) in self.cells.iter_mut().zip(values) {
@@ -428,37 +438,45 @@ type LineRow = (&'static str, [Option<f64>; 8], Option<f64>, Option<f64>);
 
 /// One long table, a `kind` per plot; returns its height.
 fn oscillation_table(out: &mut OutputBuilder, analysis: &OscillationAnalysis) -> usize {
-    let mut rows = PlotRows::default();
+    // The sweeps' points and the spectra's bins; the few rows of the other plots grow the
+    // columns once at most.
+    let long_rows = analysis.curves.iter().map(|curve| curve.field_t.len()).sum::<usize>()
+        + analysis
+            .spectra
+            .iter()
+            .map(|spectrum| spectrum.frequencies_t.len())
+            .sum::<usize>();
+    let mut rows = PlotRows::with_capacity(long_rows);
     push_sweep_rows(&mut rows, analysis);
     push_mass_rows(&mut rows, analysis);
     // The Dingle plot and the Landau fan come last: their rows alone carry dingle_ordinate
     // and landau_index. Each has its fitted line as two rows, so that a figure draws the
     // line the analysis fitted rather than one of its own.
     let tail = line_rows(analysis);
-    let tail_ordinates: Vec<Option<f64>> = tail.iter().map(|row| row.2).collect();
-    let tail_indices: Vec<Option<f64>> = tail.iter().map(|row| row.3).collect();
-    for (k, values, _, _) in tail {
+    let height = rows.kind.len() + tail.len();
+    let mut ordinate = FloatColumn::with_capacity(height);
+    let mut landau_index = FloatColumn::with_capacity(height);
+    ordinate.push_nulls(rows.kind.len());
+    landau_index.push_nulls(rows.kind.len());
+    for (k, values, dingle_ordinate, index) in tail {
         rows.push(k, values);
+        ordinate.push(dingle_ordinate);
+        landau_index.push(index);
     }
     let PlotRows { kind, cells } = rows;
-    let rows = kind.len();
-    let mut ordinate = vec![None; rows - tail_ordinates.len()];
-    ordinate.extend(tail_ordinates);
-    let mut landau_index = vec![None; rows - tail_indices.len()];
-    landau_index.extend(tail_indices);
     let [t, b, inv, f, rho, bg, value, unc] = cells;
     out.str("kind", &kind)
-        .f64_nullable("temperature_K", t)
-        .f64_nullable("field_T", b)
-        .f64_nullable("inverse_field_per_T", inv)
-        .f64_nullable("frequency_T", f)
-        .f64_nullable("rho_xx_ohm_sq", rho)
-        .f64_nullable("background_ohm_sq", bg)
-        .f64_nullable("value_ohm_sq", value)
-        .f64_nullable("value_ohm_sq_unc", unc)
-        .f64_nullable("dingle_ordinate", ordinate)
-        .f64_nullable("landau_index", landau_index);
-    rows
+        .float_column("temperature_K", t)
+        .float_column("field_T", b)
+        .float_column("inverse_field_per_T", inv)
+        .float_column("frequency_T", f)
+        .float_column("rho_xx_ohm_sq", rho)
+        .float_column("background_ohm_sq", bg)
+        .float_column("value_ohm_sq", value)
+        .float_column("value_ohm_sq_unc", unc)
+        .float_column("dingle_ordinate", ordinate)
+        .float_column("landau_index", landau_index);
+    height
 }
 
 /// The oscillation of every sweep and the spectra.

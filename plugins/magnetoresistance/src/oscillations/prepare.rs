@@ -99,6 +99,34 @@ pub(super) fn project_out(basis: &[Vec<f64>], values: &mut [f64]) {
     }
 }
 
+/// [`project_out`] of each of the `width` columns of a row-major block (row i of the block
+/// is `rows[i * width..(i + 1) * width]`, one row per basis point), in place: every column
+/// gets the same operations in the same order as [`project_out`] gives it alone, so the
+/// results agree to the last bit. The columns' sums are walked together, row by row, so that
+/// their additions overlap (a single sum waits on its previous addition at every term) and
+/// no column is copied out of the block and back.
+pub(super) fn project_out_rows(basis: &[Vec<f64>], rows: &mut [f64], width: usize) {
+    if width == 0 {
+        return;
+    }
+    debug_assert!(basis.iter().all(|column| column.len() * width == rows.len()));
+    let mut coefficients = vec![-0.0f64; width];
+    for column in basis {
+        // -0.0 is the start of the standard library's float sum, which `project_out` uses.
+        coefficients.fill(-0.0);
+        for (q, row) in column.iter().zip(rows.chunks_exact(width)) {
+            for (sum, v) in coefficients.iter_mut().zip(row) {
+                *sum += q * v;
+            }
+        }
+        for (q, row) in column.iter().zip(rows.chunks_exact_mut(width)) {
+            for (v, coefficient) in row.iter_mut().zip(&coefficients) {
+                *v -= coefficient * q;
+            }
+        }
+    }
+}
+
 /// Orthonormal columns spanning the polynomials of `degree` in t over the points: Legendre
 /// polynomials P_k(t) (well conditioned on [-1, 1], where the monomials are nearly
 /// dependent at high degree), orthonormalized by modified Gram-Schmidt applied twice
@@ -559,6 +587,32 @@ mod tests {
             assert!((a - b).abs() < 1e-12);
         }
         assert!(polynomial_basis(&t[..4], 5).is_none());
+    }
+
+    // Projecting the columns of a row-major block together gives each column exactly what
+    // projecting it alone gives (the fits' Jacobians must not depend on the layout).
+    #[test]
+    fn prepare_projecting_block_columns_equals_one_at_a_time() {
+        let t: Vec<f64> = (0..157).map(|k| -1.0 + k as f64 * 0.0127).collect();
+        let basis = polynomial_basis(&t, 4).unwrap();
+        for width in [1, 3, 5, 10] {
+            let block: Vec<f64> = (0..t.len() * width)
+                .map(|k| ((k as f64) * 0.37).sin() * 10f64.powi((k % 7) as i32 - 3))
+                .collect();
+            let mut together = block.clone();
+            project_out_rows(&basis, &mut together, width);
+            for j in 0..width {
+                let mut column: Vec<f64> = block.iter().skip(j).step_by(width).copied().collect();
+                project_out(&basis, &mut column);
+                for (i, value) in column.iter().enumerate() {
+                    assert_eq!(
+                        value.to_bits(),
+                        together[i * width + j].to_bits(),
+                        "width {width} ({i}, {j})"
+                    );
+                }
+            }
+        }
     }
 
     // Local quadratic regression reproduces a parabola exactly (it is in the local model).

@@ -231,14 +231,15 @@ fn projected_residuals(sweeps: &[FitSweep], mut model: impl FnMut(usize, usize) 
 /// The Jacobian of the projected residuals: `derivatives(s, i, row)` writes the derivatives
 /// of the model at point i of sweep s with respect to every parameter into `row` (the
 /// Jacobian's row of that point); each sweep's block of every column is then projected off
-/// the sweep's polynomials, as the residuals are.
+/// the sweep's polynomials, as the residuals are (in place, all columns at once:
+/// `project_out_rows`).
 fn projected_jacobian(
     sweeps: &[FitSweep],
     parameters: usize,
     mut derivatives: impl FnMut(usize, usize, &mut [f64]),
     jacobian: &mut Matrix,
 ) {
-    let mut column = Vec::new();
+    debug_assert_eq!(jacobian.cols(), parameters);
     let mut offset = 0;
     for (s, sweep) in sweeps.iter().enumerate() {
         let n = sweep.x.len();
@@ -246,16 +247,8 @@ fn projected_jacobian(
             derivatives(s, i, jacobian.row_mut(offset + i));
         }
         if let Some(basis) = sweep.projection {
-            column.resize(n, 0.0);
-            for j in 0..parameters {
-                for (i, value) in column.iter_mut().enumerate() {
-                    *value = jacobian[(offset + i, j)];
-                }
-                super::prepare::project_out(basis, &mut column);
-                for (i, value) in column.iter().enumerate() {
-                    jacobian[(offset + i, j)] = *value;
-                }
-            }
+            let block = &mut jacobian.as_mut_slice()[offset * parameters..(offset + n) * parameters];
+            super::prepare::project_out_rows(basis, block, parameters);
         }
         offset += n;
     }

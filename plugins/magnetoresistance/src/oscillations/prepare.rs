@@ -106,22 +106,48 @@ pub(super) fn project_out(basis: &[Vec<f64>], values: &mut [f64]) {
 /// their additions overlap (a single sum waits on its previous addition at every term) and
 /// no column is copied out of the block and back.
 pub(super) fn project_out_rows(basis: &[Vec<f64>], rows: &mut [f64], width: usize) {
-    if width == 0 {
-        return;
-    }
-    debug_assert!(basis.iter().all(|column| column.len() * width == rows.len()));
-    let mut coefficients = vec![-0.0f64; width];
-    for column in basis {
-        // -0.0 is the start of the standard library's float sum, which `project_out` uses.
-        coefficients.fill(-0.0);
-        for (q, row) in column.iter().zip(rows.chunks_exact(width)) {
-            for (sum, v) in coefficients.iter_mut().zip(row) {
-                *sum += q * v;
+    debug_assert!(width == 0 || basis.iter().all(|column| column.len() * width == rows.len()));
+    // The fits' widths (4 or 5 parameters per line, one or two lines) get loops the
+    // compiler unrolls; any other width takes the general loop, with the same arithmetic.
+    match width {
+        0 => {}
+        4 => project_out_fixed::<4>(basis, rows),
+        5 => project_out_fixed::<5>(basis, rows),
+        8 => project_out_fixed::<8>(basis, rows),
+        10 => project_out_fixed::<10>(basis, rows),
+        _ => {
+            let mut coefficients = vec![-0.0f64; width];
+            for column in basis {
+                // -0.0 is the start of the standard library's float sum, which `project_out`
+                // uses.
+                coefficients.fill(-0.0);
+                for (q, row) in column.iter().zip(rows.chunks_exact(width)) {
+                    for (sum, v) in coefficients.iter_mut().zip(row) {
+                        *sum += q * v;
+                    }
+                }
+                for (q, row) in column.iter().zip(rows.chunks_exact_mut(width)) {
+                    for (v, coefficient) in row.iter_mut().zip(&coefficients) {
+                        *v -= coefficient * q;
+                    }
+                }
             }
         }
-        for (q, row) in column.iter().zip(rows.chunks_exact_mut(width)) {
-            for (v, coefficient) in row.iter_mut().zip(&coefficients) {
-                *v -= coefficient * q;
+    }
+}
+
+/// [`project_out_rows`] for a width known at compile time.
+fn project_out_fixed<const W: usize>(basis: &[Vec<f64>], rows: &mut [f64]) {
+    for column in basis {
+        let mut coefficients = [-0.0f64; W];
+        for (q, row) in column.iter().zip(rows.chunks_exact(W)) {
+            for k in 0..W {
+                coefficients[k] += q * row[k];
+            }
+        }
+        for (q, row) in column.iter().zip(rows.chunks_exact_mut(W)) {
+            for k in 0..W {
+                row[k] -= coefficients[k] * q;
             }
         }
     }
@@ -595,7 +621,7 @@ mod tests {
     fn prepare_projecting_block_columns_equals_one_at_a_time() {
         let t: Vec<f64> = (0..157).map(|k| -1.0 + k as f64 * 0.0127).collect();
         let basis = polynomial_basis(&t, 4).unwrap();
-        for width in [1, 3, 5, 10] {
+        for width in [1, 3, 4, 5, 8, 10] {
             let block: Vec<f64> = (0..t.len() * width)
                 .map(|k| ((k as f64) * 0.37).sin() * 10f64.powi((k % 7) as i32 - 3))
                 .collect();

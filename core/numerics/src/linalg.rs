@@ -956,7 +956,6 @@ impl Svd {
     }
 }
 
-/// Applies the plane rotation (c, s) to the column pair (p, q).
 /// (a . a, a . b) in one pass, each sum in the order of [`dot`] (so the values are the
 /// same to the last bit): the two chains of additions interleave, which is what makes it
 /// faster than two passes.
@@ -1000,6 +999,7 @@ fn ahead_of(columns: &[Vec<f64>], p: usize, q: usize, ahead: &mut [f64; 4]) -> s
     q..q + count
 }
 
+/// Applies the plane rotation (c, s) to the column pair (p, q).
 fn rotate(p: &mut [f64], q: &mut [f64], c: f64, s: f64) {
     for (a, b) in p.iter_mut().zip(q.iter_mut()) {
         let (x, y) = (*a, *b);
@@ -1223,6 +1223,81 @@ mod tests {
             // The pseudo-inverse of a full-rank matrix: A A+ A = A.
             let pinv = svd.pseudo_inverse(1e-12);
             assert_matrix_close(&a.matmul(&pinv).matmul(&a), &a, 1e-11);
+        }
+    }
+
+    /// The cyclic one-sided Jacobi method as written in the textbooks (Demmel and Veselic,
+    /// SIAM J. Matrix Anal. Appl. 13, 1204, 1992, cited from memory): every pair's three products computed
+    /// afresh, then the rotation. [`Svd`] keeps norms that did not change and computes
+    /// products ahead; it must give the same numbers to the last bit.
+    fn plain_jacobi(a: &Matrix) -> (Vec<Vec<f64>>, Vec<Vec<f64>>) {
+        let (m, n) = (a.rows(), a.cols());
+        let mut columns: Vec<Vec<f64>> = (0..n).map(|j| a.column(j)).collect();
+        let mut v: Vec<Vec<f64>> = (0..n)
+            .map(|j| (0..n).map(|i| if i == j { 1.0 } else { 0.0 }).collect())
+            .collect();
+        let tolerance = (m as f64).sqrt().max(1.0) * f64::EPSILON;
+        for _ in 0..JACOBI_MAX_SWEEPS {
+            let mut rotated = false;
+            for p in 0..n {
+                for q in p + 1..n {
+                    let alpha = dot(&columns[p], &columns[p]);
+                    let beta = dot(&columns[q], &columns[q]);
+                    let gamma = dot(&columns[p], &columns[q]);
+                    if gamma == 0.0 || gamma.abs() <= tolerance * alpha.sqrt() * beta.sqrt() {
+                        continue;
+                    }
+                    rotated = true;
+                    let zeta = (beta - alpha) / (2.0 * gamma);
+                    let t = zeta.signum() / (zeta.abs() + 1.0f64.hypot(zeta));
+                    let c = 1.0 / 1.0f64.hypot(t);
+                    let s = c * t;
+                    let (left, right) = columns.split_at_mut(q);
+                    rotate(&mut left[p], &mut right[0], c, s);
+                    let (left, right) = v.split_at_mut(q);
+                    rotate(&mut left[p], &mut right[0], c, s);
+                }
+            }
+            if !rotated {
+                break;
+            }
+        }
+        (columns, v)
+    }
+
+    #[test]
+    fn linalg_svd_equals_the_plain_jacobi_method_to_the_bit() {
+        let mut rng = Rng::seeded(23);
+        for (rows, cols) in [(2, 2), (9, 3), (40, 5), (301, 5), (1000, 7), (64, 10)] {
+            let mut a = random_matrix(&mut rng, rows, cols);
+            // Columns of very different sizes and two nearly parallel ones, as a fit's
+            // scaled Jacobian has.
+            for i in 0..rows {
+                a[(i, 0)] *= 1e3;
+                if cols > 2 {
+                    a[(i, 2)] = a[(i, 1)] + 1e-6 * a[(i, 2)];
+                }
+            }
+            let (columns, v) = plain_jacobi(&a);
+            let mut expected: Vec<(f64, usize)> = columns.iter().map(|column| (norm(column), 0)).collect();
+            for (j, entry) in expected.iter_mut().enumerate() {
+                entry.1 = j;
+            }
+            expected.sort_by(|x, y| y.0.total_cmp(&x.0));
+            let svd = Svd::new(&a).unwrap();
+            for (k, &(sigma, source)) in expected.iter().enumerate() {
+                assert_eq!(
+                    svd.singular_values()[k].to_bits(),
+                    sigma.to_bits(),
+                    "{rows}x{cols}: s{k}"
+                );
+                for i in 0..rows {
+                    assert_eq!(svd.u()[(i, k)].to_bits(), (columns[source][i] / sigma).to_bits());
+                }
+                for i in 0..cols {
+                    assert_eq!(svd.v()[(i, k)].to_bits(), v[source][i].to_bits());
+                }
+            }
         }
     }
 

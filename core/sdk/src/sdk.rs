@@ -345,8 +345,19 @@ impl FloatColumn {
 
     /// Appends `rows` nulls.
     pub fn push_nulls(&mut self, rows: usize) {
-        self.values.resize(self.values.len() + rows, 0.0);
-        self.present.resize(self.present.len() + rows, false);
+        self.extend_repeated(None, rows);
+    }
+
+    /// Appends `rows` rows of `value` (nulls for `None`).
+    pub fn extend_repeated(&mut self, value: Option<f64>, rows: usize) {
+        self.values.resize(self.values.len() + rows, value.unwrap_or(0.0));
+        self.present.resize(self.present.len() + rows, value.is_some());
+    }
+
+    /// Appends a row for each of `values`, all present.
+    pub fn extend_values(&mut self, values: &[f64]) {
+        self.values.extend_from_slice(values);
+        self.present.resize(self.present.len() + values.len(), true);
     }
 
     /// The value of `row`, None when it is null.

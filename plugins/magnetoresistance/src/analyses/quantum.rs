@@ -479,42 +479,34 @@ fn oscillation_table(out: &mut OutputBuilder, analysis: &OscillationAnalysis) ->
     height
 }
 
-/// The oscillation of every sweep and the spectra.
+/// The oscillation of every sweep and the spectra, a stretch of rows per sweep written
+/// column by column (a copy of each of the sweep's vectors, a run of one value or of nulls).
 fn push_sweep_rows(rows: &mut PlotRows, analysis: &OscillationAnalysis) {
-    let mut push = |k: &'static str, values: [Option<f64>; 8]| rows.push(k, values);
     for curve in &analysis.curves {
-        for i in 0..curve.field_t.len() {
-            push(
-                "oscillation",
-                [
-                    Some(curve.temperature_k),
-                    Some(curve.field_t[i]),
-                    Some(curve.inverse_field_per_t[i]),
-                    None,
-                    Some(curve.rho_xx_ohm_sq[i]),
-                    Some(curve.background_ohm_sq[i]),
-                    Some(curve.oscillation_ohm_sq[i]),
-                    None,
-                ],
-            );
-        }
+        let n = curve.field_t.len();
+        let [t, b, inv, f, rho, bg, value, unc] = &mut rows.cells;
+        rows.kind.extend(std::iter::repeat_n("oscillation", n));
+        t.extend_repeated(Some(curve.temperature_k), n);
+        b.extend_values(&curve.field_t);
+        inv.extend_values(&curve.inverse_field_per_t);
+        f.push_nulls(n);
+        rho.extend_values(&curve.rho_xx_ohm_sq);
+        bg.extend_values(&curve.background_ohm_sq);
+        value.extend_values(&curve.oscillation_ohm_sq);
+        unc.push_nulls(n);
     }
     for spectrum in &analysis.spectra {
-        for (f, a) in spectrum.frequencies_t.iter().zip(&spectrum.amplitudes_ohm_sq) {
-            push(
-                "fft",
-                [
-                    Some(spectrum.temperature_k),
-                    None,
-                    None,
-                    Some(*f),
-                    None,
-                    None,
-                    Some(*a),
-                    None,
-                ],
-            );
-        }
+        let n = spectrum.frequencies_t.len();
+        let [t, b, inv, f, rho, bg, value, unc] = &mut rows.cells;
+        rows.kind.extend(std::iter::repeat_n("fft", n));
+        t.extend_repeated(Some(spectrum.temperature_k), n);
+        b.push_nulls(n);
+        inv.push_nulls(n);
+        f.extend_values(&spectrum.frequencies_t);
+        rho.push_nulls(n);
+        bg.push_nulls(n);
+        value.extend_values(&spectrum.amplitudes_ohm_sq);
+        unc.push_nulls(n);
     }
 }
 

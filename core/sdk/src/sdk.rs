@@ -461,7 +461,7 @@ impl OutputBuilder {
 
     /// Adds a float column built row by row ([`FloatColumn`]): its values are moved into
     /// the table, not copied.
-    pub fn float_column(&mut self, name: &str, values: FloatColumn) -> &mut Self {
+    pub fn f64_column(&mut self, name: &str, values: FloatColumn) -> &mut Self {
         self.column(values.into_column(PlSmallStr::from_str(name)))
     }
 
@@ -839,4 +839,48 @@ macro_rules! export_plugin {
             }
         };
     };
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // A column built row by row reads back as the options pushed, nulls where they were
+    // pushed; a column without nulls carries no validity bitmap; the bitmap follows the
+    // Arrow layout (bit i of byte i / 8, least significant bit first: Arrow columnar format,
+    // "Validity bitmaps").
+    #[test]
+    fn float_column_reads_back_what_was_pushed() {
+        let mut column = FloatColumn::with_capacity(4);
+        column.push(Some(1.5));
+        column.push(None);
+        column.extend_values(&[2.5, -0.0]);
+        column.extend_repeated(Some(7.0), 2);
+        column.push_nulls(3);
+        column.extend_repeated(None, 1);
+        let expected = [
+            Some(1.5),
+            None,
+            Some(2.5),
+            Some(-0.0),
+            Some(7.0),
+            Some(7.0),
+            None,
+            None,
+            None,
+            None,
+        ];
+        assert_eq!(column.len(), expected.len());
+        for (row, value) in expected.iter().enumerate() {
+            assert_eq!(column.get(row), *value);
+        }
+        let bitmap = validity(&column.present).expect("nulls need a bitmap");
+        assert_eq!(bitmap.len(), 10);
+        let (bytes, offset, _) = bitmap.as_slice();
+        assert_eq!(offset, 0);
+        assert_eq!(bytes, &[0b0011_1101, 0b0000_0000]);
+        let frame = DataFrame::new(10, vec![column.into_column(PlSmallStr::from_static("x"))]).unwrap();
+        assert_eq!(float_column(&frame, "x").unwrap(), expected.to_vec());
+        assert!(validity(&[true; 9]).is_none());
+    }
 }

@@ -234,12 +234,23 @@
 //! computed there and adds only a sine and d ln R_T / dX per point and line. A narrow
 //! window's envelope computes R_T at the window's reference 1/B once, and each point's
 //! envelope, cosine and sine once, not once per column of the design. None of this changes
-//! a bit of the result (`OSCILLATIONS_COMPARE_OUTPUT` of the bench checks it). What remains
+//! a bit of the result (`OSCILLATIONS_COMPARE_OUTPUT` of the bench checks it), and neither
+//! does projecting the Jacobian off a sweep's polynomials in place, every column's sums walked
+//! together row by row (`prepare::project_out_rows`), nor writing the output table's
+//! rows (about 200,000 for six sweeps of 4,000 points, most of them spectrum bins) a
+//! stretch per sweep into reserved columns of values and flags. What remains
 //! is mostly the Levenberg-Marquardt fits (the waveform fit over every sweep's points, three
 //! starts, in each pass: the one-sided Jacobi singular value decompositions of
 //! `mobilis_numerics::fit` on the whole Jacobian, and R_T = X / sinh X, exp and cos per point
 //! and evaluation), the narrow windows' linear fits and the 8-fold zero-padded transforms
-//! (65,536 points per 4,000-point sweep, 2^20 for a 40,000-point ramp).
+//! (65,536 points per 4,000-point sweep, 2^20 for a 40,000-point ramp). On six sweeps of
+//! 4,000 points each pass takes 45 to 55 ms on one core of two: 3 to 7 ms to prepare and
+//! transform, 3 ms to refine, the rest the narrow windows and the waveform fit (5 to 12
+//! Levenberg-Marquardt steps per start on about 10,800 points). A QR factorization before the
+//! SVD would make each step's decomposition several times cheaper, but it changes the
+//! rounding of every step, and with it where a fit stops and, near a tie, which start wins:
+//! tried on the bench's inputs, results moved by up to 8e-9 relative with the defaults and
+//! 7e-4 with a smoothing background, beyond the 1e-12 that speed work may move them.
 //!
 //! Multiple lines: the frequencies and densities are reported for each; the narrow-window
 //! mass, the Dingle plot and the fan use the strongest line only, and the other lines are

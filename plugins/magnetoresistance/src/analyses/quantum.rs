@@ -466,16 +466,16 @@ fn oscillation_table(out: &mut OutputBuilder, analysis: &OscillationAnalysis) ->
     let PlotRows { kind, cells } = rows;
     let [t, b, inv, f, rho, bg, value, unc] = cells;
     out.str("kind", &kind)
-        .float_column("temperature_K", t)
-        .float_column("field_T", b)
-        .float_column("inverse_field_per_T", inv)
-        .float_column("frequency_T", f)
-        .float_column("rho_xx_ohm_sq", rho)
-        .float_column("background_ohm_sq", bg)
-        .float_column("value_ohm_sq", value)
-        .float_column("value_ohm_sq_unc", unc)
-        .float_column("dingle_ordinate", ordinate)
-        .float_column("landau_index", landau_index);
+        .f64_column("temperature_K", t)
+        .f64_column("field_T", b)
+        .f64_column("inverse_field_per_T", inv)
+        .f64_column("frequency_T", f)
+        .f64_column("rho_xx_ohm_sq", rho)
+        .f64_column("background_ohm_sq", bg)
+        .f64_column("value_ohm_sq", value)
+        .f64_column("value_ohm_sq_unc", unc)
+        .f64_column("dingle_ordinate", ordinate)
+        .f64_column("landau_index", landau_index);
     height
 }
 

@@ -22,6 +22,7 @@ use mobilis_sdk::sdk::{invalid, Analysis, AnalysisError, AnalysisOutput, FloatCo
 use mobilis_sdk::sweep_table::{
     single_sweep, sweep_role, sweeps_by_temperature, SweepParams, SweepTable, TemperatureGroupingParams,
 };
+use polars::prelude::{IntoColumn, NewChunkedArray, PlSmallStr, StringChunked};
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 use serde_json::{json, Value};
@@ -369,12 +370,24 @@ fn symmetrized_sweeps(params: &OscillationParams, tables: &[SweepTable]) -> Resu
     let mut sweeps = Vec::with_capacity(tables.len());
     let mut sweep_warnings: Vec<String> = Vec::new();
     let mut single_sign_temperatures: Vec<f64> = Vec::new();
-    for table in tables {
-        let temperature_k = table
-            .temperature_k
-            .ok_or_else(|| invalid("mr.oscillations needs temperature_K for every sweep"))?;
-        let symmetrized = symmetrize(&table.points, &symmetrize_settings)
-            .map_err(|e| invalid(format!("sweep at {temperature_k} K: {e}")))?;
+    // The sweeps are symmetrized independently, in parallel; their results are then taken
+    // in table order, so the first refusal is the one a serial loop would give.
+    let outcomes: Vec<Result<(f64, _), AnalysisError>> = {
+        use rayon::prelude::*;
+        tables
+            .par_iter()
+            .map(|table| {
+                let temperature_k = table
+                    .temperature_k
+                    .ok_or_else(|| invalid("mr.oscillations needs temperature_K for every sweep"))?;
+                let symmetrized = symmetrize(&table.points, &symmetrize_settings)
+                    .map_err(|e| invalid(format!("sweep at {temperature_k} K: {e}")))?;
+                Ok((temperature_k, symmetrized))
+            })
+            .collect()
+    };
+    for (table, outcome) in tables.iter().zip(outcomes) {
+        let (temperature_k, symmetrized) = outcome?;
         if symmetrized.single_field_sign {
             single_sign_temperatures.push(temperature_k);
         }
@@ -409,9 +422,12 @@ fn symmetrized_sweeps(params: &OscillationParams, tables: &[SweepTable]) -> Resu
 /// (temperature, field, 1/B, frequency, rho_xx, background, value, its uncertainty). The
 /// table has a row per point of every sweep and per bin of every spectrum (about 200,000
 /// for six sweeps of 4,000 points), so the columns are reserved for those rows at once and
-/// kept as values and flags ([`FloatColumn`]), not as growing vectors of options.
+/// kept as values and flags ([`FloatColumn`]), not as growing vectors of options; the kinds
+/// come in long runs and are kept as runs.
 struct PlotRows {
-    kind: Vec<&'static str>,
+    /// Each run of rows of one kind: the kind and its number of rows.
+    kind: Vec<(&'static str, usize)>,
+    rows: usize,
     cells: [FloatColumn; 8],
 }
 
@@ -419,13 +435,23 @@ impl PlotRows {
     /// Empty columns with room for `rows` rows.
     fn with_capacity(rows: usize) -> Self {
         PlotRows {
-            kind: Vec::with_capacity(rows),
+            kind: Vec::new(),
+            rows: 0,
             cells: std::array::from_fn(|_| FloatColumn::with_capacity(rows)),
         }
     }
 
+    /// `rows` more rows of kind `k`, extending the last run when it is of that kind.
+    fn push_kind(&mut self, k: &'static str, rows: usize) {
+        match self.kind.last_mut() {
+            Some((last, count)) if *last == k => *count += rows,
+            _ => self.kind.push((k, rows)),
+        }
+        self.rows += rows;
+    }
+
     fn push(&mut self, k: &'static str, values: [Option<f64>; 8]) {
-        self.kind.push(k);
+        self.push_kind(k, 1);
         for (cell, value) in self.cells.iter_mut().zip(values) {
             cell.push(value);
         }
@@ -453,19 +479,23 @@ fn oscillation_table(out: &mut OutputBuilder, analysis: &OscillationAnalysis) ->
     // and landau_index. Each has its fitted line as two rows, so that a figure draws the
     // line the analysis fitted rather than one of its own.
     let tail = line_rows(analysis);
-    let height = rows.kind.len() + tail.len();
+    let height = rows.rows + tail.len();
     let mut ordinate = FloatColumn::with_capacity(height);
     let mut landau_index = FloatColumn::with_capacity(height);
-    ordinate.push_nulls(rows.kind.len());
-    landau_index.push_nulls(rows.kind.len());
+    ordinate.push_nulls(rows.rows);
+    landau_index.push_nulls(rows.rows);
     for (k, values, dingle_ordinate, index) in tail {
         rows.push(k, values);
         ordinate.push(dingle_ordinate);
         landau_index.push(index);
     }
-    let PlotRows { kind, cells } = rows;
+    let PlotRows { kind, cells, .. } = rows;
     let [t, b, inv, f, rho, bg, value, unc] = cells;
-    out.str("kind", &kind)
+    let kind = StringChunked::from_iter_values(
+        PlSmallStr::from_static("kind"),
+        kind.iter().flat_map(|&(k, rows)| std::iter::repeat_n(k, rows)),
+    );
+    out.column(kind.into_column())
         .f64_column("temperature_K", t)
         .f64_column("field_T", b)
         .f64_column("inverse_field_per_T", inv)
@@ -484,8 +514,8 @@ fn oscillation_table(out: &mut OutputBuilder, analysis: &OscillationAnalysis) ->
 fn push_sweep_rows(rows: &mut PlotRows, analysis: &OscillationAnalysis) {
     for curve in &analysis.curves {
         let n = curve.field_t.len();
+        rows.push_kind("oscillation", n);
         let [t, b, inv, f, rho, bg, value, unc] = &mut rows.cells;
-        rows.kind.extend(std::iter::repeat_n("oscillation", n));
         t.extend_repeated(Some(curve.temperature_k), n);
         b.extend_values(&curve.field_t);
         inv.extend_values(&curve.inverse_field_per_t);
@@ -497,8 +527,8 @@ fn push_sweep_rows(rows: &mut PlotRows, analysis: &OscillationAnalysis) {
     }
     for spectrum in &analysis.spectra {
         let n = spectrum.frequencies_t.len();
+        rows.push_kind("fft", n);
         let [t, b, inv, f, rho, bg, value, unc] = &mut rows.cells;
-        rows.kind.extend(std::iter::repeat_n("fft", n));
         t.extend_repeated(Some(spectrum.temperature_k), n);
         b.push_nulls(n);
         inv.push_nulls(n);

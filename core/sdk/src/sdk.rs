@@ -384,7 +384,7 @@ impl FloatColumn {
 /// A validity bitmap (Arrow's layout: bit i of byte i / 8, least significant first; Arrow
 /// columnar format, "Validity bitmaps") from one flag per row; `None` when every value is
 /// present, so that a column without nulls carries no bitmap.
-pub fn validity(present: &[bool]) -> Option<Bitmap> {
+fn validity(present: &[bool]) -> Option<Bitmap> {
     if present.iter().all(|&p| p) {
         return None;
     }

@@ -39,7 +39,8 @@
 //! The import hashes its source (SHA-256, for provenance) on a second thread while parsing it.
 //! A replaced table is freed, and the allocator trimmed after a write or a replacement of 64
 //! MiB or more (`LARGE_WRITE_BYTES`), off the request path; a `dataset.drop` still frees (and
-//! trims) before it answers.
+//! trims) before it answers, or, when a call is still reading the table, that call does both
+//! as it lets go of it.
 //! Locks of different names are taken in sorted order for a group. A panic inside the Parquet
 //! writer fails its call with `storage_failure` (5004), the staged file is removed, and the
 //! store serves on.
@@ -78,13 +79,36 @@ use polars::prelude::*;
 use serde::Serialize;
 use std::collections::{BTreeMap, HashMap};
 use std::path::{Path, PathBuf};
-use std::sync::atomic::{AtomicU64, Ordering};
+use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
 use std::sync::{Arc, Mutex, MutexGuard, PoisonError, RwLock};
 
 /// A stored dataset.
 pub struct Dataset {
     pub frame: DataFrame,
     pub manifest: Manifest,
+    /// Set by `dataset.drop`: whoever lets go of the dataset last (the store, or a call that
+    /// was still reading it) frees it and gives the allocator's unused memory back, so that
+    /// a drop returns the memory even when a reader held the table a moment longer.
+    trim_when_freed: AtomicBool,
+}
+
+impl Dataset {
+    pub fn new(frame: DataFrame, manifest: Manifest) -> Self {
+        Dataset {
+            frame,
+            manifest,
+            trim_when_freed: AtomicBool::new(false),
+        }
+    }
+}
+
+impl Drop for Dataset {
+    fn drop(&mut self) {
+        if *self.trim_when_freed.get_mut() {
+            drop(std::mem::take(&mut self.frame));
+            memory::return_freed_memory();
+        }
+    }
 }
 
 /// A workspace file that could not be loaded.
@@ -309,11 +333,11 @@ impl DatasetStore {
                 }
                 Err(error) => {
                     tracing::warn!(dataset = name, error = %error.message, "kept in the two-file form of earlier versions");
-                    return Ok((Dataset { frame, manifest }, false));
+                    return Ok((Dataset::new(frame, manifest), false));
                 }
             }
         }
-        Ok((Dataset { frame, manifest }, legacy))
+        Ok((Dataset::new(frame, manifest), legacy))
     }
 
     pub fn directory(&self) -> &Path {
@@ -483,7 +507,7 @@ impl DatasetStore {
         }
         let stored: Vec<Arc<Dataset>> = prepared
             .into_iter()
-            .map(|(frame, manifest, _)| Arc::new(Dataset { frame, manifest }))
+            .map(|(frame, manifest, _)| Arc::new(Dataset::new(frame, manifest)))
             .collect();
         {
             let mut map = self.write_map();
@@ -547,9 +571,11 @@ impl DatasetStore {
         if let Some(dataset) = removed {
             self.release(table_bytes(&dataset.frame));
             // Here, not in the background: whoever drops a dataset expects its memory back
-            // when the call answers.
+            // when the call answers. When this is the last reference, the dataset is freed
+            // and the allocator trimmed right here; when a call is still reading it, that
+            // call does both as it lets go.
+            dataset.trim_when_freed.store(true, Ordering::Release);
             drop(dataset);
-            memory::return_freed_memory();
         }
         Ok(())
     }

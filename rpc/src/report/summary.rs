@@ -664,17 +664,15 @@ mod tests {
     use serde_json::json;
 
     fn dataset(name: &str, frame: DataFrame, provenance: Provenance) -> Dataset {
-        Dataset {
-            manifest: Manifest {
-                format: MANIFEST_FORMAT,
-                name: name.to_owned(),
-                rows: frame.height(),
-                columns: column_infos(&frame),
-                created: "2026-01-01T00:00:00Z".into(),
-                provenance,
-            },
-            frame,
-        }
+        let manifest = Manifest {
+            format: MANIFEST_FORMAT,
+            name: name.to_owned(),
+            rows: frame.height(),
+            columns: column_infos(&frame),
+            created: "2026-01-01T00:00:00Z".into(),
+            provenance,
+        };
+        Dataset::new(frame, manifest)
     }
 
     fn analysis(name: &str, summary: bool, run_summary: Value) -> Provenance {

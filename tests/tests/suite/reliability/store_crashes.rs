@@ -412,7 +412,18 @@ async fn memory_comes_back_after_a_large_dataset_is_dropped() {
             .as_u64()
             .unwrap_or(0);
         daemon.call("dataset.drop", json!({"name": "large"})).await;
-        let dropped = resident_bytes(pid);
+        // The process gives back at least half of what the import added. A call still
+        // reading the table when the drop answers frees it (and trims) as it lets go, so
+        // the memory may come back a moment after the answer: wait up to two seconds.
+        let enough = |resident: u64| resident <= before + (loaded.saturating_sub(before)) / 2;
+        let mut dropped = resident_bytes(pid);
+        for _ in 0..20 {
+            if enough(dropped) {
+                break;
+            }
+            tokio::time::sleep(std::time::Duration::from_millis(100)).await;
+            dropped = resident_bytes(pid);
+        }
         let after = daemon.call("server.info", json!({})).await["memory"].clone();
         figures.push(format!(
             "cycle {cycle}: anonymous RSS {} MiB before, {} MiB with 1e6 rows ({} MiB stored), {} MiB after the drop",
@@ -421,10 +432,8 @@ async fn memory_comes_back_after_a_large_dataset_is_dropped() {
             stored >> 20,
             dropped >> 20
         ));
-        // The table's bytes leave the budget's account, and the process gives back at least
-        // half of what the import added.
-        let returned = dropped <= before + (loaded.saturating_sub(before)) / 2;
-        if after["stored_bytes"] != 0 || stored < 8 << 20 || !returned {
+        // The table's bytes leave the budget's account, and the memory came back.
+        if after["stored_bytes"] != 0 || stored < 8 << 20 || !enough(dropped) {
             failed += 1;
         }
     }

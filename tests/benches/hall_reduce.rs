@@ -62,6 +62,10 @@
 //!   runs a `--plugin-dir` library: the call goes to a worker process (`mobilisd
 //!   --plugin-worker`, the release binary), inputs and output cross its pipes as Arrow IPC.
 //!
+//! `HALL_REDUCE_REPETITIONS=N` times the `reduce` section's call N times instead of 7, for a
+//! profiler: `perf record -D 5000` (start recording after five seconds) then sees mostly the
+//! reduction, not the dataset's generation.
+//!
 //! The result check: with `HALL_REDUCE_SAVE_OUTPUT=FILE` the output of `hall.reduce` on the
 //! dataset (every column, floats in their exact shortest form, the summary and the
 //! warnings) is written to FILE; with `HALL_REDUCE_COMPARE_OUTPUT=FILE` it is compared with
@@ -91,6 +95,21 @@ const WARM_UP: usize = 1;
 /// Odd, so that the median is one measured call.
 const REDUCE_REPETITIONS: usize = 7;
 const BOUNDARY_REPETITIONS: usize = 11;
+/// Overrides `REDUCE_REPETITIONS` for the `reduce` section, so that a profiler attached
+/// after the dataset is generated sees mostly the reduction.
+const REPETITIONS_VARIABLE: &str = "HALL_REDUCE_REPETITIONS";
+
+fn reduce_repetitions() -> usize {
+    match std::env::var(REPETITIONS_VARIABLE) {
+        Ok(text) => text.parse().ok().filter(|count: &usize| *count > 0).unwrap_or_else(|| {
+            bench::fail(
+                BENCH,
+                &format!("{REPETITIONS_VARIABLE} must be a positive count, not {text:?}"),
+            )
+        }),
+        Err(_) => REDUCE_REPETITIONS,
+    }
+}
 
 /// The sections a run times (`HALL_REDUCE_SECTIONS`, comma-separated; all by default).
 const SECTIONS_VARIABLE: &str = "HALL_REDUCE_SECTIONS";
@@ -170,7 +189,7 @@ fn main() {
 
     let mut reduce_timing: Option<Timing> = None;
     if wants("reduce") {
-        let timing = bench::measure(WARM_UP, REDUCE_REPETITIONS, || invoke("hall.reduce", &reduce_inputs));
+        let timing = bench::measure(WARM_UP, reduce_repetitions(), || invoke("hall.reduce", &reduce_inputs));
         println!();
         println!(
             "{:<58} {:>11} {:>11} {:>16}",

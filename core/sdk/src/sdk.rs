@@ -316,31 +316,55 @@ pub fn check_output(
     )
 }
 
-/// A float output column built row by row: the values (0 where null) and, per row, whether
-/// the value is present. A long table of optional floats pushed as `Vec<Option<f64>>`
-/// spends most of its time growing vectors of 16-byte options and converting them; this one
-/// holds the values in the layout the column keeps and turns the flags into a validity
-/// bitmap once ([`FloatColumn::into_column`]).
+/// A float output column: the values (0 where null) and a validity bit per row. A long table
+/// of optional floats pushed as `Vec<Option<f64>>` spends most of its time growing vectors of
+/// 16-byte options and converting them; this one holds the values in the layout the column
+/// keeps and the validity as the bitmap's own words, so [`FloatColumn::into_column`] moves the
+/// values in and copies only one bit per row.
+///
+/// Build it row by row ([`FloatColumn::push`] and the `extend_*` methods), or, for a table
+/// filled in parallel, start from [`FloatColumn::nulls`] and write disjoint stretches of
+/// [`FloatColumn::parts_mut`].
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct FloatColumn {
-    pub values: Vec<f64>,
-    pub present: Vec<bool>,
+    values: Vec<f64>,
+    /// Bit `row % 64` of word `row / 64` is set when the value of `row` is present: the bit
+    /// order of Arrow's validity bitmap (Arrow columnar format, "Validity bitmaps"), a word
+    /// at a time. The bits past the last row are clear.
+    validity: Vec<u64>,
 }
+
+/// Rows per validity word of a [`FloatColumn`].
+pub const VALIDITY_WORD_ROWS: usize = 64;
 
 impl FloatColumn {
     /// An empty column with room for `rows` rows.
     pub fn with_capacity(rows: usize) -> Self {
         FloatColumn {
             values: Vec::with_capacity(rows),
-            present: Vec::with_capacity(rows),
+            validity: Vec::with_capacity(rows.div_ceil(VALIDITY_WORD_ROWS)),
+        }
+    }
+
+    /// `rows` nulls (values 0), to be filled in place through [`FloatColumn::parts_mut`].
+    pub fn nulls(rows: usize) -> Self {
+        FloatColumn {
+            values: vec![0.0; rows],
+            validity: vec![0; rows.div_ceil(VALIDITY_WORD_ROWS)],
         }
     }
 
     /// Appends a row: the value, or null for `None`.
     #[inline]
     pub fn push(&mut self, value: Option<f64>) {
+        let row = self.values.len();
+        if row % VALIDITY_WORD_ROWS == 0 {
+            self.validity.push(0);
+        }
         self.values.push(value.unwrap_or(0.0));
-        self.present.push(value.is_some());
+        if value.is_some() {
+            self.validity[row / VALIDITY_WORD_ROWS] |= 1 << (row % VALIDITY_WORD_ROWS);
+        }
     }
 
     /// Appends `rows` nulls.
@@ -350,20 +374,53 @@ impl FloatColumn {
 
     /// Appends `rows` rows of `value` (nulls for `None`).
     pub fn extend_repeated(&mut self, value: Option<f64>, rows: usize) {
-        self.values.resize(self.values.len() + rows, value.unwrap_or(0.0));
-        self.present.resize(self.present.len() + rows, value.is_some());
+        let start = self.values.len();
+        self.values.resize(start + rows, value.unwrap_or(0.0));
+        self.grow_validity(start, value.is_some());
     }
 
     /// Appends a row for each of `values`, all present.
     pub fn extend_values(&mut self, values: &[f64]) {
+        let start = self.values.len();
         self.values.extend_from_slice(values);
-        self.present.resize(self.present.len() + values.len(), true);
+        self.grow_validity(start, true);
+    }
+
+    /// Extends the validity to the values' length; the rows from `start` on are present or not.
+    fn grow_validity(&mut self, start: usize, present: bool) {
+        let end = self.values.len();
+        self.validity.resize(end.div_ceil(VALIDITY_WORD_ROWS), 0);
+        if present && end > start {
+            let (first, last) = (start / VALIDITY_WORD_ROWS, (end - 1) / VALIDITY_WORD_ROWS);
+            let from_start = u64::MAX << (start % VALIDITY_WORD_ROWS);
+            let to_end = u64::MAX >> (VALIDITY_WORD_ROWS - 1 - (end - 1) % VALIDITY_WORD_ROWS);
+            if first == last {
+                self.validity[first] |= from_start & to_end;
+            } else {
+                self.validity[first] |= from_start;
+                self.validity[first + 1..last].fill(u64::MAX);
+                self.validity[last] |= to_end;
+            }
+        }
     }
 
     /// The value of `row`, None when it is null.
     #[inline]
     pub fn get(&self, row: usize) -> Option<f64> {
-        self.present[row].then(|| self.values[row])
+        let present = (self.validity[row / VALIDITY_WORD_ROWS] >> (row % VALIDITY_WORD_ROWS)) & 1 != 0;
+        present.then(|| self.values[row])
+    }
+
+    /// The values, 0 where null.
+    pub fn values(&self) -> &[f64] {
+        &self.values
+    }
+
+    /// The values (0 where null) and the validity words ([`VALIDITY_WORD_ROWS`] rows each,
+    /// bit `row % 64` of word `row / 64`, least significant first), to be written in place.
+    /// The writer keeps the bits past the last row clear.
+    pub fn parts_mut(&mut self) -> (&mut [f64], &mut [u64]) {
+        (&mut self.values, &mut self.validity)
     }
 
     pub fn len(&self) -> usize {
@@ -376,26 +433,25 @@ impl FloatColumn {
 
     /// The column named `name`; the values buffer becomes the column's without a copy.
     pub fn into_column(self, name: PlSmallStr) -> Column {
-        let bitmap = validity(&self.present);
+        let bitmap = validity(&self.validity, self.values.len());
         Float64Chunked::from_vec_validity(name, self.values, bitmap).into_column()
     }
 }
 
-/// A validity bitmap (Arrow's layout: bit i of byte i / 8, least significant first; Arrow
-/// columnar format, "Validity bitmaps") from one flag per row; `None` when every value is
-/// present, so that a column without nulls carries no bitmap.
-fn validity(present: &[bool]) -> Option<Bitmap> {
-    if present.iter().all(|&p| p) {
+/// A validity bitmap (Arrow's layout: bit i of byte i / 8, least significant first) of `rows`
+/// rows from words of 64 rows; `None` when every value is present, so that a column without
+/// nulls carries no bitmap.
+fn validity(words: &[u64], rows: usize) -> Option<Bitmap> {
+    let full_words = rows / VALIDITY_WORD_ROWS;
+    let tail = rows % VALIDITY_WORD_ROWS;
+    let all_present = words[..full_words].iter().all(|&word| word == u64::MAX)
+        && (tail == 0 || words[full_words] == u64::MAX >> (VALIDITY_WORD_ROWS - tail));
+    if all_present {
         return None;
     }
-    let mut bytes = vec![0u8; present.len().div_ceil(8)];
-    for (byte, chunk) in bytes.iter_mut().zip(present.chunks(8)) {
-        *byte = chunk
-            .iter()
-            .enumerate()
-            .fold(0u8, |bits, (bit, &p)| bits | (u8::from(p) << bit));
-    }
-    Some(Bitmap::from_u8_vec(bytes, present.len()))
+    let mut bytes: Vec<u8> = words.iter().flat_map(|word| word.to_le_bytes()).collect();
+    bytes.truncate(rows.div_ceil(8));
+    Some(Bitmap::from_u8_vec(bytes, rows))
 }
 
 /// Builds an [`AnalysisOutput`] that holds only what the analysis declared.
@@ -874,13 +930,58 @@ mod tests {
         for (row, value) in expected.iter().enumerate() {
             assert_eq!(column.get(row), *value);
         }
-        let bitmap = validity(&column.present).expect("nulls need a bitmap");
+        let bitmap = validity(&column.validity, column.len()).expect("nulls need a bitmap");
         assert_eq!(bitmap.len(), 10);
         let (bytes, offset, _) = bitmap.as_slice();
         assert_eq!(offset, 0);
         assert_eq!(bytes, &[0b0011_1101, 0b0000_0000]);
         let frame = DataFrame::new(10, vec![column.into_column(PlSmallStr::from_static("x"))]).unwrap();
         assert_eq!(float_column(&frame, "x").unwrap(), expected.to_vec());
-        assert!(validity(&[true; 9]).is_none());
+        assert!(validity(&[0x1ff], 9).is_none());
+    }
+
+    /// Runs that start and end inside words, span whole words and end on a word's edge
+    /// read back row by row, as the same rows pushed one at a time do.
+    #[test]
+    fn float_column_runs_across_validity_words_match_pushed_rows() {
+        let runs: [(Option<f64>, usize); 7] = [
+            (Some(1.0), 3),
+            (None, 70),
+            (Some(2.0), 200),
+            (None, 0),
+            (Some(3.0), 61),
+            (None, 1),
+            (Some(4.0), 64),
+        ];
+        let mut by_runs = FloatColumn::with_capacity(0);
+        let mut by_rows = FloatColumn::with_capacity(0);
+        for (value, rows) in runs {
+            match value {
+                Some(value) if rows % 2 == 0 => by_runs.extend_values(&vec![value; rows]),
+                _ => by_runs.extend_repeated(value, rows),
+            }
+            for _ in 0..rows {
+                by_rows.push(value);
+            }
+        }
+        assert_eq!(by_runs, by_rows);
+        assert_eq!(by_runs.len(), 399);
+        let mut row = 0;
+        for (value, rows) in runs {
+            for _ in 0..rows {
+                assert_eq!(by_runs.get(row), value, "row {row}");
+                row += 1;
+            }
+        }
+        let mut all_present = FloatColumn::with_capacity(0);
+        all_present.extend_values(&[1.0; 128]);
+        all_present.extend_repeated(Some(2.0), 5);
+        assert!(validity(&all_present.validity, all_present.len()).is_none());
+        let mut nulls = FloatColumn::nulls(130);
+        let (values, words) = nulls.parts_mut();
+        values[129] = 9.0;
+        words[2] |= 1 << 1;
+        assert_eq!(nulls.get(129), Some(9.0));
+        assert_eq!(nulls.get(128), None);
     }
 }

@@ -1,14 +1,14 @@
 //! The reduction's result as typed columns: one buffer per output column, sized once for
-//! every row, filled sample by sample (in parallel, each sample into its own stretch of
-//! every column), so that no per-row record outlives its sample and the table glue hands
-//! the buffers to the output table without another pass.
+//! every row, filled a stretch of rows at a time (in parallel, each task into its own
+//! stretch of every column), so that the table glue hands the buffers to the output table
+//! without another pass.
 
 use super::cells::NoiseEvidence;
 use super::contract::{float_column, CalibrationUsed, ReducedRow};
 use super::row::{finish_row, FlagSet, ResolvedCalibration, RowRecord, SeriesBudget};
 
-/// One float column: its values (0 where null) and, per row, whether the value is present.
-pub use mobilis_sdk::sdk::FloatColumn;
+/// One float column: its values (0 where null) and a validity bit per row.
+pub use mobilis_sdk::sdk::{FloatColumn, VALIDITY_WORD_ROWS};
 
 /// The result of [`super::reduce_to_table`]: the output columns, rows sorted by sample,
 /// temperature and field, and the warnings and calibrations of [`super::Reduction`].
@@ -49,7 +49,7 @@ impl ReductionTable {
         for (name, geometry, count) in &self.samples {
             for _ in 0..*count {
                 let f = |column: usize| self.floats[column].get(row);
-                let value = |column: usize| self.floats[column].values[row];
+                let value = |column: usize| self.floats[column].values()[row];
                 let flags = self.flags[row];
                 rows.push(ReducedRow {
                     sample: name.clone(),
@@ -110,10 +110,13 @@ impl ReductionTable {
     }
 }
 
-/// One sample's stretch of every column.
-struct SampleColumns<'a> {
+/// One task's stretch of every column: whole validity words, so that no two tasks write
+/// to one word.
+struct TaskColumns<'a> {
+    /// The task's first row in the table, a multiple of [`VALIDITY_WORD_ROWS`].
+    first_row: usize,
     values: Vec<&'a mut [f64]>,
-    present: Vec<&'a mut [bool]>,
+    validity: Vec<&'a mut [u64]>,
     reading_count: &'a mut [i64],
     drift_corrected: &'a mut [bool],
     carrier: &'a mut [u8],
@@ -142,108 +145,147 @@ pub(super) struct BuiltColumns {
     pub flags: Vec<FlagSet>,
 }
 
-/// Rows finished at a time before they are written out column by column: 64 rows of 43
-/// values, 22 KiB, stay in the first-level cache.
-const FILL_BLOCK_ROWS: usize = 64;
+/// Rows finished at a time before they are written out column by column: one validity
+/// word of each column; 64 rows of 43 values, 22 KiB, stay in the first-level cache.
+const FILL_BLOCK_ROWS: usize = VALIDITY_WORD_ROWS;
 
-/// Below this many rows the samples are finished one after the other.
+/// Rows one task finishes and writes: 32 blocks.
+const TASK_ROWS: usize = 32 * FILL_BLOCK_ROWS;
+
+/// Below this many rows the tasks run one after the other.
 const PARALLEL_ROWS: usize = 2_000;
 
 /// The columns of the reduced samples, joined in sample order: every row's uncertainties
-/// are finished with its sample's pooled noise and written straight into the columns.
+/// are finished with its sample's pooled noise and written straight into the columns, the
+/// validity a word (64 rows) at a time. The table is cut into tasks of whole words, not into
+/// samples, so that a word never holds the rows of two writers.
 pub(super) fn build_columns(
     samples: &[SampleReduction],
     resolved_hall_factor: impl Fn(usize) -> f64 + Sync,
 ) -> BuiltColumns {
-    let lengths: Vec<usize> = samples.iter().map(|sample| sample.records.len()).collect();
-    let height: usize = lengths.iter().sum();
+    // Each sample's first row, and what its rows are finished with.
+    let mut first_rows: Vec<usize> = Vec::with_capacity(samples.len() + 1);
+    let mut height = 0usize;
+    for sample in samples {
+        first_rows.push(height);
+        height += sample.records.len();
+    }
+    first_rows.push(height);
+    let finishing: Vec<(f64, SeriesBudget)> = samples
+        .iter()
+        .enumerate()
+        .map(|(index, sample)| {
+            (
+                resolved_hall_factor(index),
+                SeriesBudget::new(&sample.series_evidence, &sample.calibration_resolved),
+            )
+        })
+        .collect();
     // Zeroed memory, written once below. The allocator may hand back memory of an earlier
     // call, which it then clears: a large table clears its columns in parallel.
-    let zeroed_column = |_| FloatColumn {
-        values: vec![0.0; height],
-        present: vec![false; height],
-    };
-    let mut floats: Vec<FloatColumn> = if height >= PARALLEL_ROWS {
+    let parallel = height >= PARALLEL_ROWS;
+    let mut floats: Vec<FloatColumn> = if parallel {
         use rayon::prelude::*;
-        (0..float_column::COUNT).into_par_iter().map(zeroed_column).collect()
+        (0..float_column::COUNT)
+            .into_par_iter()
+            .map(|_| FloatColumn::nulls(height))
+            .collect()
     } else {
-        (0..float_column::COUNT).map(zeroed_column).collect()
+        (0..float_column::COUNT).map(|_| FloatColumn::nulls(height)).collect()
     };
     let mut reading_count = vec![0i64; height];
     let mut drift_corrected = vec![false; height];
     let mut carrier = vec![0u8; height];
     let mut flags = vec![FlagSet::default(); height];
 
-    let mut per_sample: Vec<SampleColumns<'_>> = {
+    let row_lengths: Vec<usize> = (0..height)
+        .step_by(TASK_ROWS)
+        .map(|first| TASK_ROWS.min(height - first))
+        .collect();
+    let word_lengths: Vec<usize> = row_lengths
+        .iter()
+        .map(|rows| rows.div_ceil(VALIDITY_WORD_ROWS))
+        .collect();
+    let mut tasks: Vec<TaskColumns<'_>> = {
         let mut value_stretches: Vec<std::vec::IntoIter<&mut [f64]>> = Vec::new();
-        let mut present_stretches: Vec<std::vec::IntoIter<&mut [bool]>> = Vec::new();
+        let mut validity_stretches: Vec<std::vec::IntoIter<&mut [u64]>> = Vec::new();
         for column in floats.iter_mut() {
-            value_stretches.push(stretches(&mut column.values, &lengths).into_iter());
-            present_stretches.push(stretches(&mut column.present, &lengths).into_iter());
+            let (values, validity) = column.parts_mut();
+            value_stretches.push(stretches(values, &row_lengths).into_iter());
+            validity_stretches.push(stretches(validity, &word_lengths).into_iter());
         }
-        let counts = stretches(&mut reading_count, &lengths);
-        let drifts = stretches(&mut drift_corrected, &lengths);
-        let carriers = stretches(&mut carrier, &lengths);
-        let flag_stretches = stretches(&mut flags, &lengths);
+        let counts = stretches(&mut reading_count, &row_lengths);
+        let drifts = stretches(&mut drift_corrected, &row_lengths);
+        let carriers = stretches(&mut carrier, &row_lengths);
+        let flag_stretches = stretches(&mut flags, &row_lengths);
         counts
             .into_iter()
             .zip(drifts)
             .zip(carriers)
             .zip(flag_stretches)
-            .map(|(((reading_count, drift_corrected), carrier), flags)| SampleColumns {
-                values: value_stretches
-                    .iter_mut()
-                    .map(|it| it.next().expect("one per sample"))
-                    .collect(),
-                present: present_stretches
-                    .iter_mut()
-                    .map(|it| it.next().expect("one per sample"))
-                    .collect(),
-                reading_count,
-                drift_corrected,
-                carrier,
-                flags,
-            })
+            .enumerate()
+            .map(
+                |(index, (((reading_count, drift_corrected), carrier), flags))| TaskColumns {
+                    first_row: index * TASK_ROWS,
+                    values: value_stretches
+                        .iter_mut()
+                        .map(|it| it.next().expect("one per task"))
+                        .collect(),
+                    validity: validity_stretches
+                        .iter_mut()
+                        .map(|it| it.next().expect("one per task"))
+                        .collect(),
+                    reading_count,
+                    drift_corrected,
+                    carrier,
+                    flags,
+                },
+            )
             .collect()
     };
 
-    let fill = |(index, out): (usize, &mut SampleColumns<'_>)| {
-        let sample = &samples[index];
-        let hall_factor = resolved_hall_factor(index);
-        let series = SeriesBudget::new(&sample.series_evidence, &sample.calibration_resolved);
+    let fill = |out: &mut TaskColumns<'_>| {
+        let task_rows = out.reading_count.len();
+        // The sample of the task's first row; later rows move it on.
+        let mut sample = first_rows.partition_point(|&first| first <= out.first_row) - 1;
         // Rows are finished a block at a time and the block is written column by column:
-        // each column's stretch is then written contiguously, without an index check per
-        // value, instead of one value into each of the 43 columns per row.
+        // each column's stretch is then written contiguously and its validity as one word,
+        // instead of one value into each of the 43 columns per row.
         let mut block = [([0.0; float_column::COUNT], 0u64); FILL_BLOCK_ROWS];
-        for (block_index, records) in sample.records.chunks(FILL_BLOCK_ROWS).enumerate() {
-            let first_row = block_index * FILL_BLOCK_ROWS;
-            for (finished, record) in block.iter_mut().zip(records) {
-                *finished = finish_row(record, hall_factor, &series);
+        for (word, block_start) in (0..task_rows).step_by(FILL_BLOCK_ROWS).enumerate() {
+            let block_rows = FILL_BLOCK_ROWS.min(task_rows - block_start);
+            for (offset, finished) in block[..block_rows].iter_mut().enumerate() {
+                let row = out.first_row + block_start + offset;
+                while row >= first_rows[sample + 1] {
+                    sample += 1;
+                }
+                let record = &samples[sample].records[row - first_rows[sample]];
+                let (hall_factor, series) = &finishing[sample];
+                *finished = finish_row(record, *hall_factor, series);
+                write_scalars(out, block_start + offset, record);
             }
-            let finished = &block[..records.len()];
-            for (column, (values_out, present_out)) in out.values.iter_mut().zip(out.present.iter_mut()).enumerate() {
-                let rows = first_row..first_row + records.len();
-                for ((value_out, present_out), (values, present)) in values_out[rows.clone()]
+            let finished = &block[..block_rows];
+            for (column, (values_out, validity_out)) in out.values.iter_mut().zip(out.validity.iter_mut()).enumerate() {
+                let mut bits = 0u64;
+                for (bit, (value_out, (values, present))) in values_out[block_start..block_start + block_rows]
                     .iter_mut()
-                    .zip(&mut present_out[rows])
                     .zip(finished)
+                    .enumerate()
                 {
                     *value_out = values[column];
-                    *present_out = present & (1 << column) != 0;
+                    bits |= ((present >> column) & 1) << bit;
                 }
-            }
-            for (offset, record) in records.iter().enumerate() {
-                write_scalars(out, first_row + offset, record);
+                validity_out[word] = bits;
             }
         }
     };
-    if height >= PARALLEL_ROWS && samples.len() > 1 {
+    if parallel && tasks.len() > 1 {
         use rayon::prelude::*;
-        per_sample.par_iter_mut().enumerate().for_each(fill);
+        tasks.par_iter_mut().for_each(fill);
     } else {
-        per_sample.iter_mut().enumerate().for_each(fill);
+        tasks.iter_mut().for_each(fill);
     }
-    drop(per_sample);
+    drop(tasks);
     BuiltColumns {
         height,
         floats,
@@ -255,7 +297,7 @@ pub(super) fn build_columns(
 }
 
 #[inline]
-fn write_scalars(out: &mut SampleColumns<'_>, row: usize, record: &RowRecord) {
+fn write_scalars(out: &mut TaskColumns<'_>, row: usize, record: &RowRecord) {
     out.reading_count[row] = record.reading_count as i64;
     out.drift_corrected[row] = record.drift_corrected;
     out.carrier[row] = record.carrier;

@@ -41,7 +41,9 @@ use crate::abi::{
     self, AnalysisDeclaration, ColumnType, ContractViolation, HostContext, InputTable, InvokeOutput, PluginDeclaration,
 };
 use crate::table_ffi;
+use polars::prelude::StringChunked;
 use polars::prelude::{Column, DataFrame, DataType, Float64Chunked, IntoColumn, NamedFrom, PlSmallStr, Series};
+use polars_arrow::array::MutableBinaryViewArray;
 use polars_arrow::bitmap::Bitmap;
 use serde::de::DeserializeOwned;
 use serde_json::{Map, Value};
@@ -436,6 +438,23 @@ impl FloatColumn {
         let bitmap = validity(&self.validity, self.values.len());
         Float64Chunked::from_vec_validity(name, self.values, bitmap).into_column()
     }
+}
+
+/// A text column given as runs of one value (`None` for a run of nulls), in row order: each
+/// run's text is stored once and its rows share one Arrow string view, so a column of a few
+/// long runs (a sample name per reading, a kind per plotted row) costs a view per row, not a
+/// text per row.
+pub fn text_runs_column<'a>(name: PlSmallStr, runs: impl IntoIterator<Item = (Option<&'a str>, usize)>) -> Column {
+    let mut array = MutableBinaryViewArray::<str>::new();
+    for (value, rows) in runs {
+        match value {
+            Some(text) if rows > 0 => array.extend_constant(rows, Some(text)),
+            Some(_) => {}
+            // `extend_constant` with `None` marks the rows null without adding their views.
+            None => array.extend_null(rows),
+        }
+    }
+    StringChunked::with_chunk(name, array.freeze()).into_column()
 }
 
 /// A validity bitmap (Arrow's layout: bit i of byte i / 8, least significant first) of `rows`
@@ -938,6 +957,39 @@ mod tests {
         let frame = DataFrame::new(10, vec![column.into_column(PlSmallStr::from_static("x"))]).unwrap();
         assert_eq!(float_column(&frame, "x").unwrap(), expected.to_vec());
         assert!(validity(&[0x1ff], 9).is_none());
+    }
+
+    /// Runs of a text, of nulls and of a long text read back row by row, and the long text
+    /// is stored once.
+    #[test]
+    fn text_runs_read_back_row_by_row() {
+        let long = "a text longer than the twelve bytes a view holds";
+        let column = text_runs_column(
+            PlSmallStr::from_static("kind"),
+            [
+                (Some("a"), 2),
+                (None, 1),
+                (Some(long), 3),
+                (Some(""), 1),
+                (Some("a"), 0),
+                (Some(long), 1),
+            ],
+        );
+        let expected = [
+            Some("a"),
+            Some("a"),
+            None,
+            Some(long),
+            Some(long),
+            Some(long),
+            Some(""),
+            Some(long),
+        ];
+        let texts: Vec<Option<&str>> = column.str().unwrap().iter().collect();
+        assert_eq!(texts, expected);
+        let array = column.str().unwrap().downcast_iter().next().unwrap().clone();
+        let stored: usize = array.data_buffers().iter().map(|buffer| buffer.len()).sum();
+        assert_eq!(stored, 2 * long.len(), "each run's long text once");
     }
 
     /// Runs that start and end inside words, span whole words and end on a word's edge

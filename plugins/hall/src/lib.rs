@@ -587,6 +587,24 @@ impl FlagTexts {
     fn text(&mut self, set: FlagSet) -> &str {
         self.0[set.0 as usize].get_or_insert_with(|| set.iter().collect::<Vec<_>>().join(","))
     }
+
+    /// The text of a set already asked for with [`FlagTexts::text`].
+    fn written(&self, set: FlagSet) -> &str {
+        self.0[set.0 as usize].as_deref().expect("the text was written")
+    }
+}
+
+/// The runs of equal values of a column, as (first row, rows), in row order: the text
+/// columns are built a run at a time ([`sdk::text_runs_column`]).
+fn equal_runs<T: PartialEq>(values: &[T]) -> impl Iterator<Item = (usize, usize)> + '_ {
+    let mut start = 0usize;
+    std::iter::from_fn(move || {
+        let first = values.get(start)?;
+        let rows = 1 + values[start + 1..].iter().take_while(|value| *value == first).count();
+        let run = (start, rows);
+        start += rows;
+        Some(run)
+    })
 }
 
 /// One output column to build, with the buffer it takes over, if any.
@@ -643,36 +661,37 @@ fn output_table(mut table: ReductionTable, output: &mut OutputBuilder) {
                 let column = float.expect("each float column is moved in once");
                 column.into_column(name)
             }
-            Source::Sample => StringChunked::from_iter_values(
+            Source::Sample => sdk::text_runs_column(
                 name,
                 table
                     .samples
                     .iter()
-                    .flat_map(|(sample, _, rows)| std::iter::repeat_n(sample.as_str(), *rows)),
-            )
-            .into_column(),
-            Source::Geometry => StringChunked::from_iter_values(
+                    .map(|(sample, _, rows)| (Some(sample.as_str()), *rows)),
+            ),
+            Source::Geometry => sdk::text_runs_column(
                 name,
-                table
-                    .samples
-                    .iter()
-                    .flat_map(|(_, geometry, rows)| std::iter::repeat_n(*geometry, *rows)),
-            )
-            .into_column(),
-            Source::Carrier => {
-                StringChunked::from_iter_options(name, (0..height).map(|row| table.carrier_type(row))).into_column()
-            }
+                table.samples.iter().map(|(_, geometry, rows)| (Some(*geometry), *rows)),
+            ),
+            Source::Carrier => sdk::text_runs_column(
+                name,
+                equal_runs(&table.carrier).map(|(row, rows)| (table.carrier_type(row), rows)),
+            ),
             Source::ReadingCount => {
                 Int64Chunked::from_vec(name, counts.expect("the reading counts are moved in once")).into_column()
             }
             Source::DriftCorrected => BooleanChunked::from_slice(name, &table.drift_corrected).into_column(),
             Source::Flags => {
                 let mut flag_texts = FlagTexts::new();
-                let mut builder = StringChunkedBuilder::new(name, height);
-                for set in &table.flags {
-                    builder.append_value(flag_texts.text(*set));
-                }
-                builder.finish().into_column()
+                let runs: Vec<(FlagSet, usize)> = equal_runs(&table.flags)
+                    .map(|(row, rows)| {
+                        flag_texts.text(table.flags[row]);
+                        (table.flags[row], rows)
+                    })
+                    .collect();
+                sdk::text_runs_column(
+                    name,
+                    runs.iter().map(|(set, rows)| (Some(flag_texts.written(*set)), *rows)),
+                )
             }
             Source::QualityOk => {
                 BooleanChunked::from_iter_values(name, table.flags.iter().map(|set| set.is_empty())).into_column()

@@ -22,7 +22,7 @@ use mobilis_sdk::sdk::{invalid, Analysis, AnalysisError, AnalysisOutput, FloatCo
 use mobilis_sdk::sweep_table::{
     single_sweep, sweep_role, sweeps_by_temperature, SweepParams, SweepTable, TemperatureGroupingParams,
 };
-use polars::prelude::{IntoColumn, NewChunkedArray, PlSmallStr, StringChunked};
+use polars::prelude::PlSmallStr;
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 use serde_json::{json, Value};
@@ -491,11 +491,11 @@ fn oscillation_table(out: &mut OutputBuilder, analysis: &OscillationAnalysis) ->
     }
     let PlotRows { kind, cells, .. } = rows;
     let [t, b, inv, f, rho, bg, value, unc] = cells;
-    let kind = StringChunked::from_iter_values(
+    let kind = mobilis_sdk::sdk::text_runs_column(
         PlSmallStr::from_static("kind"),
-        kind.iter().flat_map(|&(k, rows)| std::iter::repeat_n(k, rows)),
+        kind.iter().map(|&(k, rows)| (Some(k), rows)),
     );
-    out.column(kind.into_column())
+    out.column(kind)
         .f64_column("temperature_K", t)
         .f64_column("field_T", b)
         .f64_column("inverse_field_per_T", inv)

@@ -151,7 +151,8 @@
 //! what each figure measures).
 //!
 //! - The sample column arrives run-length encoded ([`SampleRun`]: the table glue compares
-//!   consecutive Arrow string views, 16 bytes, and the texts only where the views differ),
+//!   consecutive Arrow string views, 16 bytes, eight at a time, and the texts only where
+//!   the views differ; a long column in two halves at once, as the walk waits on memory),
 //!   so names are interned once per run, not once per reading, and no per-reading name or
 //!   sample number is stored.
 //! - Samples are independent: each is validated, sorted and reduced in one task (in
@@ -183,14 +184,15 @@
 //!   values are the same to the bit. The corrected copies of a group's readings live in a
 //!   buffer reused from group to group.
 //! - The result is columnar (`table`): every output column is one buffer sized once for all
-//!   rows (values and validity), each sample writes its rows' finished values (the
-//!   uncertainty budgets, with the noise scales and systematic factors shared by a row or a
-//!   sample computed once) into its own stretch of every column, in parallel, a block of
-//!   64 finished rows at a time and column by column, so that each stretch is written
-//!   contiguously; the table
-//!   glue moves the buffers into the output table with an Arrow validity bitmap, and
-//!   builds the flags text once per distinct set of flags; the columns are independent, so
-//!   a large table builds them (and clears the float buffers first) in parallel.
+//!   rows (values, and validity words of 64 rows: `mobilis_sdk::sdk::FloatColumn`). The
+//!   rows are finished (the uncertainty budgets, with the noise scales and systematic
+//!   factors shared by a row or a sample computed once) by tasks of 2,048 rows in
+//!   parallel, a block of 64 rows at a time written column by column: each column's
+//!   stretch contiguously and its validity as one word, so no two tasks share a word. The
+//!   table glue moves the buffers into the output table, with the words as the Arrow
+//!   validity bitmap; the text columns (sample, geometry, carrier type, flags) are built
+//!   from their runs, each run's text stored once; the columns are independent, so a large
+//!   table builds them (and clears the float buffers first) in parallel.
 //!   [`reduce`] and [`reduce_columns`] turn the same columns into [`ReducedRow`]s.
 //! - Van der Pauw's equation is solved once per row, by Newton's iteration from a start
 //!   that is exact for a symmetric sample (five or six steps for ordinary ratios); the

@@ -3,7 +3,7 @@
 use std::cell::Cell;
 
 use super::error::FitError;
-use crate::linalg::{dot, norm, Matrix, Svd};
+use crate::linalg::{dot, norm, Matrix, ProjectedSvd, Svd};
 
 /// Box constraints lower_j <= p_j <= upper_j; infinite sides are allowed.
 #[derive(Debug, Clone, PartialEq)]
@@ -625,14 +625,17 @@ impl Solver<'_, '_> {
                     column
                 })
                 .collect();
-            let svd = Svd::from_columns(m, scaled)?;
-            let singular_values = svd.singular_values();
+            // The step reads U only through U^T r: the decomposition gives that, not U.
+            let ProjectedSvd {
+                singular_values,
+                v: svd_v,
+                projected: projected_r,
+            } = Svd::project_columns(m, scaled, &r)?;
             let largest_squared = singular_values[0] * singular_values[0];
             if largest_squared == 0.0 {
                 termination = Termination::Gradient;
                 break;
             }
-            let projected_r = svd.u().transpose_mul_vec(&r);
             if lambda.is_nan() {
                 lambda = options.initial_damping * largest_squared;
             }
@@ -642,7 +645,7 @@ impl Solver<'_, '_> {
                     .zip(&projected_r)
                     .map(|(s, ur)| -s / (s * s + lambda) * ur)
                     .collect();
-                let scaled_step = svd.v().mul_vec(&coefficients);
+                let scaled_step = svd_v.mul_vec(&coefficients);
                 trial.copy_from_slice(&x);
                 for (k, &j) in free.iter().enumerate() {
                     trial[j] = self.bounds.clamp(j, x[j] + scaled_step[k] / scale_of(j));

@@ -241,7 +241,8 @@
 //! stretch per sweep into reserved columns of values and flags. What remains
 //! is mostly the Levenberg-Marquardt fits (the waveform fit over every sweep's points, three
 //! starts, in each pass: the one-sided Jacobi singular value decompositions of
-//! `mobilis_numerics::fit` on the whole Jacobian, and R_T = X / sinh X, exp and cos per point
+//! `mobilis_numerics::fit` on the whole Jacobian, which give each step U^T r without writing
+//! U (`Svd::project_columns`, the same bits), and R_T = X / sinh X, exp and cos per point
 //! and evaluation), the narrow windows' linear fits and the 8-fold zero-padded transforms
 //! (65,536 points per 4,000-point sweep, 2^20 for a 40,000-point ramp). On six sweeps of
 //! 4,000 points each pass takes 45 to 55 ms on one core of two: 3 to 7 ms to prepare and

@@ -206,6 +206,20 @@ impl Matrix {
         self.data[j..].iter().step_by(self.cols).copied().collect()
     }
 
+    /// Every column, as [`Matrix::column`] gives each, gathered in one pass over the rows
+    /// instead of one strided pass per column.
+    pub fn columns(&self) -> Vec<Vec<f64>> {
+        let mut columns: Vec<Vec<f64>> = (0..self.cols).map(|_| Vec::with_capacity(self.rows)).collect();
+        if self.cols > 0 {
+            for row in self.data.chunks_exact(self.cols) {
+                for (column, value) in columns.iter_mut().zip(row) {
+                    column.push(*value);
+                }
+            }
+        }
+        columns
+    }
+
     /// The diagonal entries.
     pub fn diagonal(&self) -> Vec<f64> {
         (0..self.rows.min(self.cols)).map(|i| self[(i, i)]).collect()
@@ -1393,6 +1407,16 @@ mod tests {
                     assert_eq!(svd.v()[(i, k)].to_bits(), v[source][i].to_bits());
                 }
             }
+        }
+    }
+
+    #[test]
+    fn linalg_columns_are_the_columns_one_by_one() {
+        let mut rng = Rng::seeded(31);
+        for (rows, cols) in [(0, 3), (1, 1), (7, 3), (40, 5)] {
+            let a = random_matrix(&mut rng, rows, cols);
+            let one_by_one: Vec<Vec<f64>> = (0..cols).map(|j| a.column(j)).collect();
+            assert_eq!(a.columns(), one_by_one, "{rows}x{cols}");
         }
     }
 

@@ -591,7 +591,7 @@ impl Solver<'_, '_> {
             self.jacobian(&x, &r, &mut jacobian)?;
             jacobian_is_current = true;
             // Each column copied once: its norm, and (scaled) a column of the SVD's input.
-            let mut columns: Vec<Vec<f64>> = (0..n).map(|j| jacobian.column(j)).collect();
+            let mut columns: Vec<Vec<f64>> = jacobian.columns();
             let column_norms: Vec<f64> = columns.iter().map(|column| norm(column)).collect();
             for j in 0..n {
                 column_scale[j] = column_scale[j].max(column_norms[j]);

@@ -2075,3 +2075,39 @@ fn quadrature_sum_agrees_with_hypot() {
     }
     assert!(quadrature_sum(f64::NAN, 1.0).is_nan());
 }
+
+/// The columns are filled by tasks of whole validity words (2,048 rows), not by samples: a
+/// table whose samples start inside words and inside tasks (1, 2,100 and 77 rows) holds the
+/// same rows as each sample reduced alone, where every sample starts at row 0.
+#[test]
+fn samples_across_validity_words_and_tasks_read_back_as_reduced_alone() {
+    let groups = [("a", 1usize), ("b", 2_100), ("c", 77)];
+    let readings_of = |sample: &str, count: usize| -> Vec<RawReading> {
+        (0..count)
+            .flat_map(|k| {
+                let model =
+                    VanDerPauwModel::asymmetric(100.0 + 0.37 * k as f64, 130.0, -1e-3 * (1.0 + 1e-3 * k as f64));
+                // No field readings in every third group: its Hall quantities are null, the
+                // others' present, so the validity words mix.
+                let mut readings = nist_readings(&model, sample, 20.0 + k as f64, 0.5, 1e-4);
+                if k % 3 == 0 {
+                    readings.retain(|reading| reading.field_t == 0.0);
+                }
+                readings
+            })
+            .collect()
+    };
+    let settings = ReduceSettings::default();
+    let mut together = Vec::new();
+    let mut alone = Vec::new();
+    for (sample, count) in groups {
+        let readings = readings_of(sample, count);
+        alone.extend(reduce(&readings, None, &settings).expect("one sample reduces").rows);
+        together.extend(readings);
+    }
+    let combined = reduce(&together, None, &settings).expect("the samples reduce").rows;
+    assert_eq!(combined.len(), 2_178);
+    let without_hall = combined.iter().filter(|row| row.hall_resistance_ohm.is_none()).count();
+    assert_eq!(without_hall, 1 + 700 + 26, "null in every third group of each sample");
+    assert_eq!(combined, alone);
+}

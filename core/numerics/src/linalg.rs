@@ -297,26 +297,13 @@ impl Matrix {
         // Row by row, each row scaled and added to the sums: every sum gathers its terms in
         // row order, from 0. The few columns of a fit's Jacobian keep their sums in
         // registers.
-        match self.cols {
-            0 => Vec::new(),
-            1 => transpose_mul_narrow::<1>(&self.data, v).to_vec(),
-            2 => transpose_mul_narrow::<2>(&self.data, v).to_vec(),
-            3 => transpose_mul_narrow::<3>(&self.data, v).to_vec(),
-            4 => transpose_mul_narrow::<4>(&self.data, v).to_vec(),
-            5 => transpose_mul_narrow::<5>(&self.data, v).to_vec(),
-            6 => transpose_mul_narrow::<6>(&self.data, v).to_vec(),
-            7 => transpose_mul_narrow::<7>(&self.data, v).to_vec(),
-            8 => transpose_mul_narrow::<8>(&self.data, v).to_vec(),
-            cols => {
-                let mut result = vec![0.0; cols];
-                for (row, vi) in self.data.chunks_exact(cols).zip(v) {
-                    for (r, a) in result.iter_mut().zip(row) {
-                        *r += a * vi;
-                    }
-                }
-                result
-            }
-        }
+        weighted_row_sums(
+            &RowMajor {
+                data: &self.data,
+                cols: self.cols,
+            },
+            v,
+        )
     }
 
     /// The Gram matrix self^T * self (symmetric, n x n for an m x n matrix).
@@ -413,26 +400,96 @@ impl Matrix {
     }
 }
 
-/// A^T v for a row-major A of `C` columns (`data` its entries), as
-/// [`Matrix::transpose_mul_vec`] sums it.
-fn transpose_mul_narrow<const C: usize>(data: &[f64], v: &[f64]) -> [f64; C] {
-    let mut sums = [0.0; C];
-    for (row, vi) in data.chunks_exact(C).zip(v) {
-        for (sum, a) in sums.iter_mut().zip(row) {
-            *sum += a * vi;
-        }
-    }
-    sums
+/// A matrix read row by row for [`weighted_row_sums`], whichever way it is stored.
+trait Rows {
+    /// Its number of columns.
+    fn width(&self) -> usize;
+    /// Row `i`'s first `C` entries; `C` is the width.
+    fn row<const C: usize>(&self, i: usize) -> [f64; C];
+    /// Adds row `i` times `weight` to `sums`, one sum per column.
+    fn add_weighted_row(&self, i: usize, weight: f64, sums: &mut [f64]);
 }
 
-/// [`transpose_mul_narrow`] of the matrix whose columns are `columns`: the same sums, each
-/// gathered row by row from 0.0, so the same bits, read from the columns.
-fn transpose_mul_columns<const C: usize>(columns: &[Vec<f64>], v: &[f64]) -> [f64; C] {
-    let columns: [&[f64]; C] = std::array::from_fn(|k| &columns[k][..v.len()]);
+/// A row-major matrix: `data` holds its rows one after another, `cols` entries each.
+struct RowMajor<'a> {
+    data: &'a [f64],
+    cols: usize,
+}
+
+impl Rows for RowMajor<'_> {
+    fn width(&self) -> usize {
+        self.cols
+    }
+
+    #[inline(always)]
+    fn row<const C: usize>(&self, i: usize) -> [f64; C] {
+        self.data[i * C..(i + 1) * C].try_into().expect("a row of C entries")
+    }
+
+    #[inline(always)]
+    fn add_weighted_row(&self, i: usize, weight: f64, sums: &mut [f64]) {
+        let row = &self.data[i * self.cols..(i + 1) * self.cols];
+        for (sum, a) in sums.iter_mut().zip(row) {
+            *sum += a * weight;
+        }
+    }
+}
+
+/// A matrix given by its columns, each cut to the rows used.
+struct ColumnMajor<'a> {
+    columns: &'a [&'a [f64]],
+}
+
+impl Rows for ColumnMajor<'_> {
+    fn width(&self) -> usize {
+        self.columns.len()
+    }
+
+    #[inline(always)]
+    fn row<const C: usize>(&self, i: usize) -> [f64; C] {
+        std::array::from_fn(|k| self.columns[k][i])
+    }
+
+    #[inline(always)]
+    fn add_weighted_row(&self, i: usize, weight: f64, sums: &mut [f64]) {
+        for (sum, column) in sums.iter_mut().zip(self.columns) {
+            *sum += column[i] * weight;
+        }
+    }
+}
+
+/// A^T v for the matrix A that `rows` reads (`v` has one entry per row): every sum gathers
+/// its terms row by row from 0.0, so the result is the same to the bit however A is stored.
+/// Widths up to 8 (a fit's Jacobian) keep their sums in registers.
+fn weighted_row_sums(rows: &impl Rows, v: &[f64]) -> Vec<f64> {
+    match rows.width() {
+        0 => Vec::new(),
+        1 => weighted_row_sums_of::<1>(rows, v).to_vec(),
+        2 => weighted_row_sums_of::<2>(rows, v).to_vec(),
+        3 => weighted_row_sums_of::<3>(rows, v).to_vec(),
+        4 => weighted_row_sums_of::<4>(rows, v).to_vec(),
+        5 => weighted_row_sums_of::<5>(rows, v).to_vec(),
+        6 => weighted_row_sums_of::<6>(rows, v).to_vec(),
+        7 => weighted_row_sums_of::<7>(rows, v).to_vec(),
+        8 => weighted_row_sums_of::<8>(rows, v).to_vec(),
+        width => {
+            let mut sums = vec![0.0; width];
+            for (i, vi) in v.iter().enumerate() {
+                rows.add_weighted_row(i, *vi, &mut sums);
+            }
+            sums
+        }
+    }
+}
+
+/// [`weighted_row_sums`] for a width of `C`.
+#[inline(always)]
+fn weighted_row_sums_of<const C: usize>(rows: &impl Rows, v: &[f64]) -> [f64; C] {
     let mut sums = [0.0; C];
     for (i, vi) in v.iter().enumerate() {
-        for (sum, column) in sums.iter_mut().zip(&columns) {
-            *sum += column[i] * vi;
+        let row = rows.row::<C>(i);
+        for (sum, a) in sums.iter_mut().zip(row) {
+            *sum += a * vi;
         }
     }
     sums
@@ -873,20 +930,8 @@ impl Svd {
             singular_values,
             v,
         } = Svd::rotate_columns(rows, columns)?;
-        let projected = match u_columns.len() {
-            1 => transpose_mul_columns::<1>(&u_columns, b).to_vec(),
-            2 => transpose_mul_columns::<2>(&u_columns, b).to_vec(),
-            3 => transpose_mul_columns::<3>(&u_columns, b).to_vec(),
-            4 => transpose_mul_columns::<4>(&u_columns, b).to_vec(),
-            5 => transpose_mul_columns::<5>(&u_columns, b).to_vec(),
-            6 => transpose_mul_columns::<6>(&u_columns, b).to_vec(),
-            7 => transpose_mul_columns::<7>(&u_columns, b).to_vec(),
-            8 => transpose_mul_columns::<8>(&u_columns, b).to_vec(),
-            _ => u_columns
-                .iter()
-                .map(|column| column.iter().zip(b).fold(0.0, |sum, (a, bi)| sum + a * bi))
-                .collect(),
-        };
+        let columns: Vec<&[f64]> = u_columns.iter().map(|column| &column[..rows]).collect();
+        let projected = weighted_row_sums(&ColumnMajor { columns: &columns }, b);
         Ok(ProjectedSvd {
             singular_values,
             v,

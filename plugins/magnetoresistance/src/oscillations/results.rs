@@ -50,7 +50,7 @@ pub struct SweepCurve {
     pub resampled_ohm_sq: Vec<f64>,
 }
 
-/// R_T(T) fitted at one effective field ([`fit_thermal_damping`]).
+/// R_T(T) fitted at one effective field ([`fit_thermal_damping`](super::fit_thermal_damping)).
 #[derive(Debug, Clone, PartialEq)]
 pub struct ThermalDampingFit {
     pub effective_mass_ratio: f64,
@@ -211,7 +211,7 @@ pub struct OscillationSummary {
     pub quantum_lifetime_unc_s: Option<f64>,
 }
 
-/// Everything [`analyze_oscillations`] found.
+/// Everything [`analyze_oscillations`](super::analyze_oscillations) found.
 #[derive(Debug, Clone, PartialEq)]
 pub struct OscillationAnalysis {
     /// [B_min, B_max], T.

@@ -66,7 +66,7 @@ impl MassMethod {
     }
 }
 
-/// Settings of [`analyze_oscillations`]; [`OscillationSettings::default`] gives the defaults
+/// Settings of [`analyze_oscillations`](super::analyze_oscillations); [`OscillationSettings::default`] gives the defaults
 /// of the module documentation.
 #[derive(Debug, Clone, PartialEq)]
 pub struct OscillationSettings {

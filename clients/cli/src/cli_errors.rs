@@ -186,7 +186,16 @@ mod tests {
     /// (message, help, kind, param, words, expected message, expected help)
     #[test]
     fn json_words_become_options() {
-        let cases: &[(&str, Option<&str>, &str, Option<&str>, Words, &str, Option<&str>)] = &[
+        type Case = (
+            &'static str,
+            Option<&'static str>,
+            &'static str,
+            Option<&'static str>,
+            Words,
+            &'static str,
+            Option<&'static str>,
+        );
+        let cases: &[Case] = &[
             (
                 "hall.reduce needs input role `readings`",
                 Some("pass inputs: {\"readings\": \"<dataset>\"}"),

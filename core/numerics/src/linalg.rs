@@ -776,13 +776,13 @@ impl Qr {
                 continue;
             }
             let mut projection = result[k];
-            for i in k + 1..m {
-                projection += self.packed[(i, k)] * result[i];
+            for (i, value) in result.iter().enumerate().skip(k + 1) {
+                projection += self.packed[(i, k)] * value;
             }
             projection *= self.betas[k];
             result[k] -= projection;
-            for i in k + 1..m {
-                result[i] -= projection * self.packed[(i, k)];
+            for (i, value) in result.iter_mut().enumerate().skip(k + 1) {
+                *value -= projection * self.packed[(i, k)];
             }
         }
         result
@@ -1445,11 +1445,11 @@ mod tests {
                     sigma.to_bits(),
                     "{rows}x{cols}: s{k}"
                 );
-                for i in 0..rows {
-                    assert_eq!(svd.u()[(i, k)].to_bits(), (columns[source][i] / sigma).to_bits());
+                for (i, value) in columns[source].iter().enumerate() {
+                    assert_eq!(svd.u()[(i, k)].to_bits(), (value / sigma).to_bits());
                 }
-                for i in 0..cols {
-                    assert_eq!(svd.v()[(i, k)].to_bits(), v[source][i].to_bits());
+                for (i, value) in v[source].iter().enumerate() {
+                    assert_eq!(svd.v()[(i, k)].to_bits(), value.to_bits());
                 }
             }
         }

@@ -360,7 +360,7 @@ impl FloatColumn {
     #[inline]
     pub fn push(&mut self, value: Option<f64>) {
         let row = self.values.len();
-        if row % VALIDITY_WORD_ROWS == 0 {
+        if row.is_multiple_of(VALIDITY_WORD_ROWS) {
             self.validity.push(0);
         }
         self.values.push(value.unwrap_or(0.0));

@@ -1544,7 +1544,7 @@ struct WarningInputs<'a> {
 /// The conditions a careful analyst would want pointed out.
 fn collect_warnings(inputs: &WarningInputs<'_>) -> Vec<String> {
     let mut warnings = Vec::new();
-    for j in 0..3 {
+    for (j, name) in PARAMETER_NAMES.iter().enumerate() {
         if inputs.fit_at_bound[j] {
             let side = if inputs.theta[j] <= inputs.lower[j] {
                 "lower"
@@ -1560,8 +1560,7 @@ fn collect_warnings(inputs: &WarningInputs<'_>) -> Vec<String> {
                 _ => "widen ionization_energy_bounds_eV or check the temperature range",
             };
             warnings.push(format!(
-                "the {} ended on its {side} bound, so the data do not determine it and no uncertainty is given; {advice}",
-                PARAMETER_NAMES[j]
+                "the {name} ended on its {side} bound, so the data do not determine it and no uncertainty is given; {advice}"
             ));
         }
     }

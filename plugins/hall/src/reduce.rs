@@ -1498,7 +1498,7 @@ fn walk_temperature_group(
         // the readings as the full reduction does for the results to stay the same to the bit.
         cluster.sort_unstable_by_key(|reading| cell_key(reading, true));
         if wanted {
-            let field = summarize_field_cluster(cluster, &summarize);
+            let field = summarize_field_cluster(cluster, summarize);
             wanted = row(&group, &zero, Some(&field));
         }
     }

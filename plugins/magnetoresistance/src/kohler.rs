@@ -589,7 +589,7 @@ pub fn kohler(curves: &[KohlerCurve], settings: &KohlerSettings) -> Result<Kohle
         let judged = noise_spread.is_none_or(|noise| noise <= tolerance);
         let standard_error = (variance * (4.0 * tolerance * tolerance + 2.0 * variance) / (k - 1.0)).sqrt();
         let collapsed = judged
-            .then(|| spread * spread - variance <= tolerance * tolerance + STANDARD_ERRORS_ALLOWED * standard_error);
+            .then_some(spread * spread - variance <= tolerance * tolerance + STANDARD_ERRORS_ALLOWED * standard_error);
         let mut worst = (f64::NEG_INFINITY, 0usize);
         for &(curve, y, _) in &covering {
             let others = (total - y) / (k - 1.0);

@@ -924,6 +924,9 @@ fn waveform_rounds(
     Ok(waveform_fit)
 }
 
+/// A pair of effects on the effective mass ratio and the Dingle temperature (K).
+type MassAndDingle = (f64, f64);
+
 /// The thermometer: the waveform refitted, from where the fit ended, with every
 /// temperature raised by the stated accuracy (an error common to the series), and with
 /// each sweep's alone raised by the stated stability (errors independent from sweep to
@@ -934,7 +937,7 @@ fn thermometer_effects(
     prepared: &[Prepared],
     starts: &[WaveformStart],
     fit: &WaveformFit,
-) -> (Option<(f64, f64)>, Option<(f64, f64)>) {
+) -> (Option<MassAndDingle>, Option<MassAndDingle>) {
     let settings = context.settings;
     let InverseWindow { span, centre, .. } = context.inverse;
     let base = &fit.components[0];

@@ -844,8 +844,7 @@ fn finish(
         )
     };
     if n > 1 {
-        for k in 0..n {
-            let c = &carriers[k];
+        for (k, c) in carriers.iter().enumerate() {
             let product = c.mobility_field_product;
             let relative = |value: f64, unc: Option<f64>| unc.map_or(f64::INFINITY, |u| u / value);
             let worst = relative(c.sheet_density_m2, c.sheet_density_unc_m2)

@@ -142,10 +142,9 @@ pub fn reduce(points: &[SweepPoint], zero_field_tolerance_t: f64) -> Option<Redu
     // Merge consecutive bins until every sign present in the group has enough readings.
     let mut groups: Vec<[Vec<usize>; 2]> = Vec::new();
     let mut current: [Vec<usize>; 2] = [Vec::new(), Vec::new()];
-    for bin in 0..bin_count {
-        for sign in 0..2 {
-            current[sign].extend_from_slice(&members[sign][bin]);
-        }
+    for (first, second) in members[0].iter().zip(&members[1]) {
+        current[0].extend_from_slice(first);
+        current[1].extend_from_slice(second);
         let enough = current.iter().all(|m| m.is_empty() || m.len() >= MIN_READINGS_PER_BIN);
         if enough && current.iter().any(|m| !m.is_empty()) {
             groups.push(std::mem::take(&mut current));
@@ -154,8 +153,8 @@ pub fn reduce(points: &[SweepPoint], zero_field_tolerance_t: f64) -> Option<Redu
     if current.iter().any(|m| !m.is_empty()) {
         match groups.last_mut() {
             Some(last) => {
-                for sign in 0..2 {
-                    last[sign].extend(current[sign].drain(..));
+                for (kept, rest) in last.iter_mut().zip(&mut current) {
+                    kept.append(rest);
                 }
             }
             None => groups.push(current),

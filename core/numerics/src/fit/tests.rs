@@ -159,8 +159,8 @@ fn fit_lm_recovers_a_noisy_exponential_decay_within_its_uncertainties() {
     let data = noisy_decay(&mut rng, sigma);
     let fit = fit_decay(&data, sigma, &weighted());
     assert!(fit.converged);
-    for j in 0..3 {
-        let pull = (fit.parameters[j] - DECAY_TRUTH[j]) / fit.standard_errors[j];
+    for (j, truth) in DECAY_TRUTH.iter().enumerate() {
+        let pull = (fit.parameters[j] - truth) / fit.standard_errors[j];
         assert!(
             pull.abs() < 3.0,
             "parameter {j}: {} +- {}",
@@ -208,7 +208,7 @@ fn fit_lm_covariance_matches_a_monte_carlo_spread() {
     let sigma = 0.05;
     let mut rng = Rng::seeded(31415);
     let trials = 400;
-    let mut values = vec![Vec::with_capacity(trials); 3];
+    let mut values: Vec<Vec<f64>> = (0..3).map(|_| Vec::with_capacity(trials)).collect();
     let mut reported = [0.0; 3];
     for _ in 0..trials {
         let data = noisy_decay(&mut rng, sigma);

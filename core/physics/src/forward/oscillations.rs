@@ -336,6 +336,10 @@ impl WeakLocalizationModel {
 /// localized film is small, so rho_xx = 1 / sigma_xx to second order in it), with Gaussian
 /// noise of standard deviation `absolute_ohm + relative |rho_xx|`. Fails where sigma(B) is
 /// not positive (a classical term too large for the field range).
+#[allow(
+    clippy::neg_cmp_op_on_partial_ord,
+    reason = "`!(x > y)` refuses NaN too, in one test"
+)]
 pub fn synthetic_weak_localization_sweep(
     model: &WeakLocalizationModel,
     fields_t: &[f64],

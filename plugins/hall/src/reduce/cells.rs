@@ -102,6 +102,10 @@ impl NoiseEvidence {
 /// The weighted spread of redundant estimates of one quantity, in V^2: sum (x_k - x_w)^2 /
 /// c_k^2 with weights 1 / c_k^2 (c_k the noise coefficients), on K - 1 degrees of freedom.
 /// Under the noise model it is a chi-square times the voltage variance.
+#[allow(
+    clippy::neg_cmp_op_on_partial_ord,
+    reason = "`!(x > y)` refuses NaN too, in one test"
+)]
 pub(super) fn redundancy_evidence(estimates: &[Estimate]) -> NoiseEvidence {
     if estimates.len() < 2 || estimates.iter().any(|estimate| !(estimate.noise_coefficient > 0.0)) {
         return NoiseEvidence::default();

@@ -788,8 +788,10 @@ fn temperatures_within_tolerance_share_a_row() {
     assert_close(Some(reduction.rows[0].temperature_spread_k), 0.4, 1e-9, "spread");
     assert_eq!(reduction.rows[0].reading_count, 48);
     assert_eq!(reduction.rows[1].temperature_k, 310.0);
-    let mut strict = ReduceSettings::default();
-    strict.temperature_tolerance_k = 0.1;
+    let strict = ReduceSettings {
+        temperature_tolerance_k: 0.1,
+        ..ReduceSettings::default()
+    };
     assert_eq!(reduce(&readings, None, &strict).unwrap().rows.len(), 4);
 }
 
@@ -1055,7 +1057,8 @@ fn sample_missing_from_the_sheet_is_named() {
 fn invalid_readings_are_refused_with_row_and_reason() {
     let model = VanDerPauwModel::symmetric(100.0, 50.0);
     let good = nist_readings(&model, "s", 300.0, 0.5, 1e-3);
-    let cases: Vec<(Box<dyn Fn(&mut RawReading)>, ReadingProblem)> = vec![
+    type Spoil = Box<dyn Fn(&mut RawReading)>;
+    let cases: Vec<(Spoil, ReadingProblem)> = vec![
         (Box::new(|r| r.current_a = 0.0), ReadingProblem::ZeroCurrent),
         (
             Box::new(|r| r.voltage_v = f64::NAN),
@@ -1371,8 +1374,10 @@ fn bad_sample_sheet_rows_are_refused() {
 #[test]
 fn bad_settings_are_refused() {
     let readings = nist_readings(&VanDerPauwModel::symmetric(100.0, 50.0), "s", 300.0, 0.5, 1e-3);
-    let mut settings = ReduceSettings::default();
-    settings.field_tolerance_t = -1.0;
+    let settings = ReduceSettings {
+        field_tolerance_t: -1.0,
+        ..ReduceSettings::default()
+    };
     let error = reduce(&readings, None, &settings).unwrap_err();
     assert!(matches!(
         error,
@@ -1391,8 +1396,10 @@ fn bad_settings_are_refused() {
             ..
         }
     ));
-    let mut settings = ReduceSettings::default();
-    settings.temperature_tolerance_k = f64::NAN;
+    let settings = ReduceSettings {
+        temperature_tolerance_k: f64::NAN,
+        ..ReduceSettings::default()
+    };
     assert!(reduce(&readings, None, &settings).is_err());
 }
 

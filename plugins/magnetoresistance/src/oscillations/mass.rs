@@ -203,6 +203,10 @@ impl WindowEnvelope for SweepDamping {
 /// previous estimate.
 const NARROW_WINDOW_ITERATIONS: usize = 6;
 
+/// The windows' masses combined: the mass ratio m*/m_0, its uncertainty and the Birge ratio
+/// of the combination, when there is one.
+pub(super) type CombinedMass = (f64, Option<f64>, Option<f64>);
+
 /// The narrow-window mass (step 7 of the parent module's documentation): a first pass with
 /// constant envelopes, then passes whose window amplitudes are referred to each window's
 /// mean 1/B with the damping of the previous mass (and the Dingle temperature given), until
@@ -215,7 +219,7 @@ pub(super) fn narrow_window_mass(
     windows: usize,
     dingle_k: f64,
     warnings: &mut Vec<String>,
-) -> (Vec<MassWindow>, Option<(f64, Option<f64>, Option<f64>)>) {
+) -> (Vec<MassWindow>, Option<CombinedMass>) {
     let mut scratch = Vec::new();
     let mut current = narrow_windows(prepared, reference, frequency, range, windows, None, &mut scratch);
     let mut combined = combine_windows(&current);
@@ -359,7 +363,7 @@ pub(super) fn narrow_windows(
 /// Inverse-variance mean of the windows' masses; its standard error is scaled up by the
 /// Birge ratio sqrt(chi^2 / (K - 1)) when the windows scatter more than their errors allow.
 /// Returns (mass, uncertainty, Birge ratio).
-pub(super) fn combine_windows(windows: &[MassWindow]) -> Option<(f64, Option<f64>, Option<f64>)> {
+pub(super) fn combine_windows(windows: &[MassWindow]) -> Option<CombinedMass> {
     let fits: Vec<(f64, Option<f64>)> = windows
         .iter()
         .filter_map(|w| w.fit.as_ref())
@@ -430,6 +434,10 @@ const DINGLE_WINDOW_SIGNIFICANCE: f64 = 3.0;
 const DINGLE_ITERATIONS: usize = 5;
 
 #[allow(clippy::too_many_arguments)]
+#[allow(
+    clippy::neg_cmp_op_on_partial_ord,
+    reason = "`!(x > y)` refuses NaN too, in one test"
+)]
 fn dingle_plot_once(
     sweep: &Prepared,
     frequency: f64,

@@ -60,7 +60,7 @@ pub(super) fn find(spectrum: &[f64], threshold: f64) -> Vec<Region> {
             }
             Some(&next) => lowest_between(spectrum, top, next),
         };
-        for i in low.0..=high.0 {
+        for (i, &value) in spectrum.iter().enumerate().take(high.0 + 1).skip(low.0) {
             let share = if i == low.0 && index > 0 {
                 low.1
             } else if i == high.0 && index + 1 < tops.len() {
@@ -68,7 +68,7 @@ pub(super) fn find(spectrum: &[f64], threshold: f64) -> Vec<Region> {
             } else {
                 1.0
             };
-            if spectrum[i] > 0.0 {
+            if value > 0.0 {
                 members.push((i, share));
             }
         }

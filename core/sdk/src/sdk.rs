@@ -358,13 +358,9 @@ impl FloatColumn {
 
     /// Appends a row: the value, or null for `None`.
     #[inline]
-    #[allow(
-        clippy::manual_is_multiple_of,
-        reason = "usize::is_multiple_of needs Rust 1.87; the workspace declares 1.85"
-    )]
     pub fn push(&mut self, value: Option<f64>) {
         let row = self.values.len();
-        if row % VALIDITY_WORD_ROWS == 0 {
+        if row.is_multiple_of(VALIDITY_WORD_ROWS) {
             self.validity.push(0);
         }
         self.values.push(value.unwrap_or(0.0));

@@ -238,7 +238,8 @@
 //! does projecting the Jacobian off a sweep's polynomials in place, every column's sums walked
 //! together row by row (`prepare::project_out_rows`), nor writing the output table's
 //! rows (about 200,000 for six sweeps of 4,000 points, most of them spectrum bins) a
-//! stretch per sweep into reserved columns of values and flags. What remains
+//! stretch per sweep into reserved columns of values and flags, the eight shared columns in
+//! parallel (most of the table's time is the first touch of its fresh pages). What remains
 //! is mostly the Levenberg-Marquardt fits (the waveform fit over every sweep's points, three
 //! starts, in each pass: the one-sided Jacobi singular value decompositions of
 //! `mobilis_numerics::fit` on the whole Jacobian, which give each step U^T r without writing

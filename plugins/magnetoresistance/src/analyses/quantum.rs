@@ -10,7 +10,7 @@
 
 use crate::oscillations::{
     analyze_oscillations, Background, MassMethod, MassRequest, OscillationAnalysis, OscillationError,
-    OscillationSettings, OscillationSweep,
+    OscillationSettings, OscillationSweep, SweepCurve, SweepSpectrum,
 };
 use crate::weak_localization::{fit_weak_localization, WeakLocalizationSettings, WeakLocalizationSweep};
 use mobilis_numerics::fft::Window;
@@ -509,35 +509,60 @@ fn oscillation_table(out: &mut OutputBuilder, analysis: &OscillationAnalysis) ->
     height
 }
 
-/// The oscillation of every sweep and the spectra, a stretch of rows per sweep written
+/// What a shared column holds on a stretch of rows (one sweep's points or one spectrum's bins).
+enum Stretch<'a> {
+    Constant(f64),
+    Values(&'a [f64]),
+    Nulls,
+}
+
+/// The oscillation of every sweep and the spectra: a stretch of rows per sweep, written
 /// column by column (a copy of each of the sweep's vectors, a run of one value or of nulls).
+/// The columns are independent, so they are written in parallel: most of the table's time is
+/// the first touch of its fresh pages, a page fault and a cleared page each.
 fn push_sweep_rows(rows: &mut PlotRows, analysis: &OscillationAnalysis) {
+    use rayon::prelude::*;
     for curve in &analysis.curves {
-        let n = curve.field_t.len();
-        rows.push_kind("oscillation", n);
-        let [t, b, inv, f, rho, bg, value, unc] = &mut rows.cells;
-        t.extend_repeated(Some(curve.temperature_k), n);
-        b.extend_values(&curve.field_t);
-        inv.extend_values(&curve.inverse_field_per_t);
-        f.push_nulls(n);
-        rho.extend_values(&curve.rho_xx_ohm_sq);
-        bg.extend_values(&curve.background_ohm_sq);
-        value.extend_values(&curve.oscillation_ohm_sq);
-        unc.push_nulls(n);
+        rows.push_kind("oscillation", curve.field_t.len());
     }
     for spectrum in &analysis.spectra {
-        let n = spectrum.frequencies_t.len();
-        rows.push_kind("fft", n);
-        let [t, b, inv, f, rho, bg, value, unc] = &mut rows.cells;
-        t.extend_repeated(Some(spectrum.temperature_k), n);
-        b.push_nulls(n);
-        inv.push_nulls(n);
-        f.extend_values(&spectrum.frequencies_t);
-        rho.push_nulls(n);
-        bg.push_nulls(n);
-        value.extend_values(&spectrum.amplitudes_ohm_sq);
-        unc.push_nulls(n);
+        rows.push_kind("fft", spectrum.frequencies_t.len());
     }
+    type OfCurve = for<'a> fn(&'a SweepCurve) -> Stretch<'a>;
+    type OfSpectrum = for<'a> fn(&'a SweepSpectrum) -> Stretch<'a>;
+    // Per column of `PlotRows::cells`: what an oscillation row and an fft row hold.
+    let sources: [(OfCurve, OfSpectrum); 8] = [
+        (
+            |c| Stretch::Constant(c.temperature_k),
+            |s| Stretch::Constant(s.temperature_k),
+        ),
+        (|c| Stretch::Values(&c.field_t), |_| Stretch::Nulls),
+        (|c| Stretch::Values(&c.inverse_field_per_t), |_| Stretch::Nulls),
+        (|_| Stretch::Nulls, |s| Stretch::Values(&s.frequencies_t)),
+        (|c| Stretch::Values(&c.rho_xx_ohm_sq), |_| Stretch::Nulls),
+        (|c| Stretch::Values(&c.background_ohm_sq), |_| Stretch::Nulls),
+        (
+            |c| Stretch::Values(&c.oscillation_ohm_sq),
+            |s| Stretch::Values(&s.amplitudes_ohm_sq),
+        ),
+        (|_| Stretch::Nulls, |_| Stretch::Nulls),
+    ];
+    let extend = |cell: &mut FloatColumn, stretch: Stretch<'_>, rows: usize| match stretch {
+        Stretch::Constant(value) => cell.extend_repeated(Some(value), rows),
+        Stretch::Values(values) => cell.extend_values(values),
+        Stretch::Nulls => cell.push_nulls(rows),
+    };
+    rows.cells
+        .par_iter_mut()
+        .zip(sources)
+        .for_each(|(cell, (of_curve, of_spectrum))| {
+            for curve in &analysis.curves {
+                extend(cell, of_curve(curve), curve.field_t.len());
+            }
+            for spectrum in &analysis.spectra {
+                extend(cell, of_spectrum(spectrum), spectrum.frequencies_t.len());
+            }
+        });
 }
 
 /// The amplitudes of each narrow window against temperature, with the fitted curve.

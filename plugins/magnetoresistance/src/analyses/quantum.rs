@@ -547,10 +547,10 @@ fn push_sweep_rows(rows: &mut PlotRows, analysis: &OscillationAnalysis) {
         ),
         (|_| Stretch::Nulls, |_| Stretch::Nulls),
     ];
-    let extend = |cell: &mut FloatColumn, stretch: Stretch<'_>, rows: usize| match stretch {
-        Stretch::Constant(value) => cell.extend_repeated(Some(value), rows),
+    let extend = |cell: &mut FloatColumn, stretch: Stretch<'_>, count: usize| match stretch {
+        Stretch::Constant(value) => cell.extend_repeated(Some(value), count),
         Stretch::Values(values) => cell.extend_values(values),
-        Stretch::Nulls => cell.push_nulls(rows),
+        Stretch::Nulls => cell.push_nulls(count),
     };
     rows.cells
         .par_iter_mut()

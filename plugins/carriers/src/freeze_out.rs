@@ -1286,7 +1286,10 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
     // the weights settle (effective variance).
     let mut sigma = base.clone();
     let mut multi = solve(&sigma, &starts)?;
-    let (mut starts_converged, mut starts_at_best) = (multi.converged, multi.same_minimum);
+    // The counts of the last multi-start solve, with the number of starts it tried (the
+    // re-weighted solve also tries the previous best), so that converged <= tried.
+    let (mut starts_tried, mut starts_converged, mut starts_at_best) =
+        (starts.len(), multi.converged, multi.same_minimum);
     let mut passes = 0;
     let mut settled = true;
     if use_temperature {
@@ -1308,6 +1311,7 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
                 let mut again = starts.clone();
                 again.push(multi.best.parameters.clone());
                 multi = solve(&sigma, &again)?;
+                starts_tried = again.len();
                 starts_converged = multi.converged;
                 starts_at_best = multi.same_minimum;
             } else {
@@ -1445,7 +1449,7 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
         lower: &lower,
         weighted,
         quality: &quality,
-        starts: starts.len(),
+        starts: starts_tried,
         starts_at_best,
         terms: &terms,
         temperatures_k: &series.temperatures_k,
@@ -1515,7 +1519,7 @@ pub fn fit_freeze_out(points: &[DensityPoint], settings: &FreezeOutSettings) -> 
         density_scale_source: series.density_scale_source,
         temperature_unc_source: series.temperature_unc_source,
         at_bound,
-        starts: starts.len(),
+        starts: starts_tried,
         starts_converged,
         starts_at_best,
         iterations: fit.iterations,

@@ -86,7 +86,10 @@
 //!    stronger one (within 1.5 / span) is marked as its harmonic. When a feature below the
 //!    lowest frequency is stronger than every line and itself significant, the window is
 //!    refused with [`OscillationError::TooFewPeriods`]; when nothing stands out, with
-//!    [`OscillationError::NoOscillation`]. Both say to widen the window.
+//!    [`OscillationError::NoOscillation`]. Both say to widen the window. Before the search, a
+//!    reference sweep whose rho_xx minus background has an rms below 1e-10 of rho_xx's is
+//!    refused with [`OscillationError::NoVariation`]: that is rounding, whose spectrum
+//!    would otherwise pass for a line with too few periods.
 //!
 //!    **Dense sweeps.** Once the lines are known, a sweep that samples the highest line's
 //!    period in 1/B far more finely than needed (a ramp logged at 10 Hz: tens of thousands
@@ -444,6 +447,7 @@ fn analyze_once(
                 .then(|| amplitude_spectrum(&sweep.grid_values, grid.spacing, settings.window, settings.zero_padding))
         })
         .collect();
+    flat_sweep_check(&prepared[reference], reference)?;
     let reference_spectrum = spectra[reference]
         .as_ref()
         .expect("the reference spectrum is always computed");
@@ -503,6 +507,28 @@ fn analyze_once(
     })
 }
 
+/// Below this rms of rho_xx minus its background, relative to the rms of rho_xx, a sweep is
+/// flat to rounding: the rounding of a background fit over a hundred thousand points stays
+/// far below it, and no voltmeter resolves a relative change this small (common practice).
+const FLAT_RELATIVE_RMS: f64 = 1e-10;
+
+/// Refuses a reference sweep whose oscillatory part is rounding: its spectrum would still
+/// have a strongest feature, and the line search would describe it as an oscillation with
+/// too few periods or too little amplitude, which sends the user to the wrong remedy.
+fn flat_sweep_check(reference: &Prepared, index: usize) -> Result<(), OscillationError> {
+    let rms = |values: &[f64]| (values.iter().map(|value| value * value).sum::<f64>() / values.len() as f64).sqrt();
+    let scale = rms(&reference.rho_xx);
+    let relative_rms = rms(&reference.oscillation) / scale;
+    if scale > 0.0 && relative_rms >= FLAT_RELATIVE_RMS {
+        return Ok(());
+    }
+    Err(OscillationError::NoVariation {
+        sweep: index,
+        temperature_k: reference.temperature_k,
+        relative_rms: if scale > 0.0 { relative_rms } else { 0.0 },
+    })
+}
+
 /// Lines: the peaks of the reference spectrum between the lowest and highest frequency
 /// searched, or the error that says why there are none.
 fn search_lines(
@@ -518,7 +544,7 @@ fn search_lines(
         return Err(OscillationError::InvalidSetting {
             name: "frequency_min_t",
             value: lowest,
-            requirement: "the lowest frequency searched is not below the highest; lower frequency_min_t, raise frequency_max_t or grid_points, or widen the window",
+            requirement: "the lowest frequency searched (the fewest periods counted as an oscillation over the window's 1/B span) is not below the highest (the Nyquist frequency of the 1/B grid); widen the field window (a lower field_min_T or a higher field_max_T) or give a denser sweep",
         });
     }
     let limits = SearchLimits {
@@ -704,7 +730,7 @@ fn sampling_warnings(reference_sweep: &Prepared, lines: &[FrequencyLine], warnin
     let samples_per_period = 1.0 / (dominant_frequency * widest_step);
     if samples_per_period < 4.0 {
         warnings.push(format!(
-            "the field step samples the {dominant_frequency:.3} T oscillation with only {samples_per_period:.1} points per period near B_min; raise field_min_t or measure more densely there"
+            "the field step samples the {dominant_frequency:.3} T oscillation with only {samples_per_period:.1} points per period near B_min; raise field_min_T or measure more densely there"
         ));
     }
     if lines.len() > 1 && lines[1].amplitude_ohm_sq > 0.2 * lines[0].amplitude_ohm_sq {

@@ -379,6 +379,34 @@ mod tests {
         run_typed::<FreezeOutFitAnalysis>(params, &inputs, &Host::detached())
     }
 
+    // A 2D reduction (no thickness) has sheet densities only: the refusal says so and names
+    // the sample sheet's thickness, instead of calling the series empty.
+    #[test]
+    fn a_sheet_without_volume_densities_is_refused_with_the_thickness_named() {
+        let rows = 6;
+        let table = |sheet_density: Option<f64>| {
+            DataFrame::new(
+                rows,
+                vec![
+                    Column::new(
+                        "temperature_K".into(),
+                        (0..rows).map(|k| 50.0 + 40.0 * k as f64).collect::<Vec<f64>>(),
+                    ),
+                    Column::new("density_m3".into(), vec![None::<f64>; rows]),
+                    Column::new("sheet_density_m2".into(), vec![sheet_density; rows]),
+                ],
+            )
+            .unwrap()
+        };
+        let error = run("{}", table(Some(3e15))).unwrap_err().to_string();
+        assert!(
+            error.contains("thickness_m") && error.contains("sheet_density_m2"),
+            "{error}"
+        );
+        let error = run("{}", table(None)).unwrap_err().to_string();
+        assert!(error.contains("+B and -B"), "{error}");
+    }
+
     #[test]
     fn the_summary_carries_the_budget_and_the_diagnostics() {
         let output = run("{}", hall_table(true)).unwrap();

@@ -298,6 +298,9 @@ pub(crate) fn density_points(hall: &DataFrame, warnings: &mut Vec<String>) -> Re
             carrier_type: table_carrier_type(types[row].as_deref(), &format!("row {row}"))?,
         });
     }
+    if points.is_empty() && skipped > 0 {
+        return Err(no_density_rows(hall, skipped));
+    }
     if skipped > 0 {
         warnings.push(format!("{skipped} rows without a temperature or density were skipped"));
     }
@@ -308,6 +311,24 @@ pub(crate) fn density_points(hall: &DataFrame, warnings: &mut Vec<String>) -> Re
         );
     }
     Ok(points)
+}
+
+/// Why a table whose every row lacks a temperature or a density gives no series, and what
+/// to change: a Hall reduction without a thickness (a 2D sheet) has sheet densities but no
+/// volume densities, which a temperature series of a crystal needs.
+fn no_density_rows(hall: &DataFrame, skipped: usize) -> AnalysisError {
+    let sheet_densities = sdk::optional_float_column(hall, "sheet_density_m2")
+        .map(|column| column.iter().filter(|value| value.is_some()).count())
+        .unwrap_or(0);
+    if sheet_densities > 0 {
+        invalid(format!(
+            "density_m3 is null in all {skipped} rows while sheet_density_m2 has {sheet_densities} values: the Hall reduction had no thickness (a 2D sheet), and the series needs volume densities; give thickness_m in the sample sheet of hall.reduce and reduce again"
+        ))
+    } else {
+        invalid(format!(
+            "none of the {skipped} rows has both a temperature_K and a density_m3: the Hall reduction gave no densities (no field readings at ±B, or no carrier type); reduce readings taken at +B and -B"
+        ))
+    }
 }
 
 /// Sets summary keys `name` and `name_unc`.

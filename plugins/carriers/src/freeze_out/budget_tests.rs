@@ -144,6 +144,15 @@ fn temperature_errors_weigh_each_point_through_the_slope_of_the_model() {
     };
     let from_setting = fit_freeze_out(&stated, &settings).unwrap();
     assert_eq!(from_setting.temperature_unc_source, UncertaintySource::Stated);
+    // The re-weighted solve also tries the previous best: the counts are those of that
+    // solve, so no more starts converge than were tried.
+    assert!(from_setting.effective_variance_passes > 0);
+    assert!(
+        from_setting.starts_converged <= from_setting.starts,
+        "{} of {}",
+        from_setting.starts_converged,
+        from_setting.starts
+    );
     assert!((from_setting.points[0].effective_relative_unc.unwrap() / coldest - 1.0).abs() < 1e-9);
     // Without it, a point without one is refused, naming the parameter.
     let error = fit_freeze_out(&stated, &FreezeOutSettings::default()).unwrap_err();

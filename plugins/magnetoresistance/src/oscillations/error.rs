@@ -40,7 +40,7 @@ pub enum OscillationError {
     },
     /// The field window is empty or reaches zero field.
     #[error(
-        "the field window [{field_min_t}, {field_max_t}] T is empty or reaches zero field, where 1/B diverges; give 0 < field_min_t < field_max_t"
+        "the field window [{field_min_t}, {field_max_t}] T is empty or reaches zero field, where 1/B diverges; give 0 < field_min_T < field_max_T"
     )]
     InvalidWindow { field_min_t: f64, field_max_t: f64 },
     /// Too few points of a sweep inside the field window.
@@ -56,7 +56,7 @@ pub enum OscillationError {
     },
     /// The window does not hold the required number of periods of the strongest component.
     #[error(
-        "the strongest oscillation (about {frequency_t:.3} T) completes only {periods:.2} periods over the 1/B range of the window ({inverse_span_per_t:.4} 1/T), fewer than {required}; widen the field window (a lower field_min_t) so that it holds at least {required} periods"
+        "the strongest oscillation (about {frequency_t:.3} T) completes only {periods:.2} periods over the 1/B range of the window ({inverse_span_per_t:.4} 1/T), fewer than {required}; widen the field window (a lower field_min_T) so that it holds at least {required} periods"
     )]
     TooFewPeriods {
         frequency_t: f64,
@@ -66,13 +66,22 @@ pub enum OscillationError {
     },
     /// No peak of the spectrum stands out of the noise above the lowest resolvable frequency.
     #[error(
-        "no peak of the spectrum between {lowest_frequency_t:.3} T and {highest_frequency_t:.3} T stands out of the noise (best peak {best_ratio:.2} times the median, {required_ratio} needed); frequencies below {lowest_frequency_t:.3} T complete fewer than the required periods in the window, so widen the field window (a lower field_min_t), or lower min_peak_ratio if the oscillation is weak"
+        "no peak of the spectrum between {lowest_frequency_t:.3} T and {highest_frequency_t:.3} T stands out of the noise (best peak {best_ratio:.2} times the median, {required_ratio} needed); frequencies below {lowest_frequency_t:.3} T complete fewer than the required periods in the window, so widen the field window (a lower field_min_T); a weak oscillation needs less noise (more averaging per point, or several sweeps averaged) to stand out"
     )]
     NoOscillation {
         lowest_frequency_t: f64,
         highest_frequency_t: f64,
         best_ratio: f64,
         required_ratio: f64,
+    },
+    /// The reference sweep minus its background is flat to rounding.
+    #[error(
+        "the coldest sweep (sweep {sweep}, {temperature_k} K) minus its background varies by only {relative_rms:.1e} of its rho_xx, the level of rounding: it holds no oscillation to analyse; check that the column is the rho_xx of a field sweep and that the field window covers the field range where it oscillates"
+    )]
+    NoVariation {
+        sweep: usize,
+        temperature_k: f64,
+        relative_rms: f64,
     },
     /// A mass was asked for but every sweep is at one temperature.
     #[error(

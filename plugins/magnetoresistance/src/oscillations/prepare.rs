@@ -401,7 +401,7 @@ pub(super) fn prepare_sweep(
             let half = 0.5 * (field_max - field_min);
             let scaled: Vec<f64> = field_t.iter().map(|b| (b - middle) / half).collect();
             let basis = polynomial_basis(&scaled, *degree).ok_or(OscillationError::InvalidSetting {
-                name: "background.degree",
+                name: "background_degree",
                 value: *degree as f64,
                 requirement: "the fields in the window do not determine a polynomial of this degree; give a lower degree or more distinct fields",
             })?;
@@ -451,7 +451,7 @@ fn smoothing_background(x: &[f64], rho: &[f64], half_width: f64) -> Result<Vec<f
         let neighbours = high - low;
         if neighbours < MIN_SMOOTHING_POINTS {
             return Err(OscillationError::InvalidSetting {
-                name: "background.width_inverse_t",
+                name: "background_width_per_T",
                 value: half_width,
                 requirement: "the smoothing half-width holds fewer than 5 points somewhere in the window; give a wider one (it should span several oscillation periods 1/F anyway)",
             });
@@ -475,7 +475,7 @@ fn smoothing_background(x: &[f64], rho: &[f64], half_width: f64) -> Result<Vec<f
         }
         let normal = Matrix::from_fn(3, 3, |a, b| moments[a + b]);
         let solution = normal.inverse().map_err(|_| OscillationError::InvalidSetting {
-            name: "background.width_inverse_t",
+            name: "background_width_per_T",
             value: half_width,
             requirement:
                 "the points within the smoothing half-width do not determine a local parabola; give a wider one",

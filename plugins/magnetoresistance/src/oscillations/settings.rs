@@ -164,8 +164,8 @@ impl OscillationSettings {
         };
         let positive = |value: f64| value.is_finite() && value > 0.0;
         for (name, value) in [
-            ("field_min_t", self.field_min_t),
-            ("field_max_t", self.field_max_t),
+            ("field_min_T", self.field_min_t),
+            ("field_max_T", self.field_max_t),
             ("frequency_min_t", self.frequency_min_t),
             ("frequency_max_t", self.frequency_max_t),
         ] {
@@ -181,13 +181,13 @@ impl OscillationSettings {
         }
         match self.background {
             Background::Polynomial { degree } if degree > 12 => return invalid(
-                "background.degree",
+                "background_degree",
                 degree as f64,
                 "give a degree of at most 12 (a smooth background needs few terms; more would follow the oscillation)",
             ),
             Background::Smoothing { width_inverse_t } if !positive(width_inverse_t) => {
                 return invalid(
-                    "background.width_inverse_t",
+                    "background_width_per_T",
                     width_inverse_t,
                     "give a finite positive half-width in 1/T, several oscillation periods 1/F",
                 )

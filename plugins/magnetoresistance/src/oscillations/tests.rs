@@ -432,6 +432,30 @@ fn oscillations_refuse_bad_input_with_clear_errors() {
         "{error}"
     );
     assert!(error.to_string().contains("widen the field window"), "{error}");
+    assert!(
+        error.to_string().contains("field_min_T"),
+        "the parameter's API name: {error}"
+    );
+
+    // A constant rho_xx, and one that is exactly the polynomial background: flat to
+    // rounding, refused as such rather than described as a line with too few periods.
+    let steps = fields(9.0, 2000);
+    for flat_values in [
+        vec![1000.0; steps.len()],
+        steps.iter().map(|b| 100.0 + 3.0 * b * b - 0.1 * b * b * b).collect(),
+    ] {
+        let flat = [OscillationSweep {
+            temperature_k: 1.5,
+            field_t: steps.clone(),
+            rho_xx_ohm_sq: flat_values,
+        }];
+        let error = analyze_oscillations(&flat, &OscillationSettings::default()).unwrap_err();
+        assert!(
+            matches!(error, OscillationError::NoVariation { sweep: 0, .. }),
+            "{error}"
+        );
+        assert!(error.to_string().contains("holds no oscillation"), "{error}");
+    }
 
     // A mass asked for with one temperature.
     let fit = OscillationSettings {

@@ -671,7 +671,14 @@ impl Service {
         let filter: Map<String, Value> = [(SAMPLE_COLUMN.to_owned(), json!(sample))].into_iter().collect();
         let mut frames = Vec::with_capacity(datasets.len());
         for dataset in &datasets {
-            frames.push((dataset.as_ref(), filter_rows(&dataset.frame, &filter)?));
+            // A dataset without a `sample` column is here because its run summary names
+            // the sample (see `samples_of`): all its rows are the sample's.
+            let rows = if dataset.frame.column(SAMPLE_COLUMN).is_ok() {
+                filter_rows(&dataset.frame, &filter)?
+            } else {
+                dataset.frame.clone()
+            };
+            frames.push((dataset.as_ref(), rows));
         }
         let results = summary::blocks(sample, &frames);
         let mut body = summary::html(&results);

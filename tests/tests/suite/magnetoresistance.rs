@@ -392,6 +392,45 @@ mod quantum {
         assert!(fan["svg"].as_str().unwrap().contains("maxima"));
         let kinds = daemon.call("plot.kinds", json!({"dataset": "osc"})).await;
         assert!(kinds.as_array().unwrap().iter().any(|k| k["name"] == "landau_fan"));
+
+        // Run without group_by over the one sample's series: the output has no sample
+        // column, but its summary names the sample, and the sample's report shows it.
+        let ungrouped = daemon
+            .call(
+                "analysis.run",
+                json!({"analysis": "mr.oscillations", "inputs": {"sweep": "sdh"}, "output": "osc-ungrouped"}),
+            )
+            .await;
+        assert_eq!(ungrouped["summary"]["sample"], "2deg", "{}", ungrouped["summary"]);
+        let samples = daemon.call("report.samples", json!({})).await;
+        let listed = samples
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|entry| entry["sample"] == "2deg")
+            .unwrap_or_else(|| panic!("{samples}"));
+        assert!(
+            listed["datasets"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .any(|d| d == "osc-ungrouped"),
+            "{samples}"
+        );
+        let report = daemon.call("report.render", json!({"sample": "2deg"})).await;
+        assert!(
+            report["datasets"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .any(|d| d == "osc-ungrouped"),
+            "{}",
+            report["datasets"]
+        );
+        assert!(report["html"]
+            .as_str()
+            .unwrap()
+            .contains("id=\"dataset-osc-ungrouped\""));
     }
 
     #[tokio::test(flavor = "multi_thread")]

@@ -277,7 +277,17 @@ pub fn build(
         panel_height: height,
     };
     if !figure.finish() {
-        let hint = if options.log_x == Some(true)
+        // Say why: no finite value at all (the columns are null, so the log axes are not
+        // to blame), or finite values that only a log axis dropped.
+        let any_finite = figure
+            .panels
+            .iter()
+            .flat_map(|panel| &panel.series)
+            .flat_map(|series| &series.points)
+            .any(|point| point.x.is_finite() && point.y.is_finite());
+        let hint = if !any_finite {
+            "; the values it draws are null or not finite in every row (see which columns with dataset.rows)".to_owned()
+        } else if options.log_x == Some(true)
             || options.log_y == Some(true)
             || figure.panels.iter().any(|p| p.x.log || p.y.log)
         {

@@ -1067,6 +1067,16 @@ fn errors_say_what_to_change() {
     ]);
     let error = build(&nothing, "empty", &options("hall_mobility")).unwrap_err();
     assert!(matches!(error, PlotError::NoFinitePoints { .. }), "{error}");
+    // Nothing finite at all: the values are to blame, not the log axis.
+    assert!(error.to_string().contains("null or not finite in every row"), "{error}");
+    assert!(!error.to_string().contains("log axis"), "{error}");
+    // Finite values that only the log axis drops: the log axis is named.
+    let negative = table(vec![
+        floats("temperature_K", vec![0.0, -2.0]),
+        floats("hall_mobility_m2_per_Vs", vec![1.0, 2.0]),
+    ]);
+    let error = build(&negative, "negative", &options("hall_mobility")).unwrap_err();
+    assert!(error.to_string().contains("log axis"), "{error}");
 
     let error = build(
         &frame,

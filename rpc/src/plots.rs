@@ -203,11 +203,20 @@ impl Service {
             .with_help("keep part of the rows with filter, for example {\"sample\": \"W1\"}, or export the dataset and draw it elsewhere"));
         }
         if frame.height() == 0 {
-            return Err(ServiceError::new(
-                ErrorKind::InvalidData,
-                format!("no rows of `{dataset_name}` match the filter"),
-            )
-            .with_help("check the filter's values with dataset.rows"));
+            let error = if dataset.frame.height() == 0 {
+                ServiceError::new(
+                    ErrorKind::InvalidData,
+                    format!("dataset `{dataset_name}` has no rows to draw"),
+                )
+                .with_help("import or compute a dataset with rows, then draw it")
+            } else {
+                ServiceError::new(
+                    ErrorKind::InvalidData,
+                    format!("no rows of `{dataset_name}` match the filter"),
+                )
+                .with_help("check the filter's values with dataset.rows")
+            };
+            return Err(error);
         }
         let figure = mobilis_plot::build(&frame, &dataset_name, &options, &self.figure_catalog())
             .map_err(|e| plot_error(&dataset_name, e))?;

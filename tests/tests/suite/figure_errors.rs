@@ -17,6 +17,12 @@ async fn bad_figure_and_report_requests_are_refused_with_what_to_change() {
             }}),
         )
         .await;
+    daemon
+        .call(
+            "dataset.import",
+            json!({"name": "empty", "columns": {"temperature_K": [], "density_m3": []}}),
+        )
+        .await;
     let before = daemon.call("dataset.list", json!({})).await;
 
     let cases = [
@@ -24,7 +30,16 @@ async fn bad_figure_and_report_requests_are_refused_with_what_to_change() {
         (json!({"dataset": "t", "kind": "no-such-kind"}), 4001, "hall_density"),
         (json!({"dataset": "t", "kind": "columns"}), 4001, "x"),
         (json!({"dataset": "t", "kind": "hall_mobility"}), 4001, "hall.reduce"),
-        (json!({"dataset": "t", "filter": {"sample": "Z"}}), 4007, "no rows"),
+        (
+            json!({"dataset": "t", "filter": {"sample": "Z"}}),
+            4007,
+            "match the filter",
+        ),
+        (
+            json!({"dataset": "empty", "x": "temperature_K", "y": ["density_m3"]}),
+            4007,
+            "`empty` has no rows",
+        ),
         (
             json!({"dataset": "t", "filter": {"wafer": "A"}}),
             4004,

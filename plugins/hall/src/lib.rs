@@ -238,31 +238,31 @@ const OUTPUT: &[(&str, Option<&str>, &str, Source)] = &[
     (
         "resistance_a_ohm",
         Some("ohm"),
-        "van der Pauw R_A (Hall bar: R_xx)",
+        "van der Pauw R_A, the mean of R_21,34 and R_43,12 measured (Hall bar: R_xx); null when none was measured",
         Source::Float(float_column::RESISTANCE_A),
     ),
     (
         "resistance_b_ohm",
         Some("ohm"),
-        "van der Pauw R_B",
+        "van der Pauw R_B, the mean of R_32,41 and R_14,23 measured; null when none was measured (never assumed equal to R_A)",
         Source::Float(float_column::RESISTANCE_B),
     ),
     (
         "resistance_ratio",
         None,
-        "max(R_A/R_B, R_B/R_A)",
+        "max(R_A/R_B, R_B/R_A); null unless both were measured",
         Source::Float(float_column::RESISTANCE_RATIO),
     ),
     (
         "geometry_factor",
         None,
-        "van der Pauw f of R_s = pi (R_A + R_B) f / (2 ln 2)",
+        "van der Pauw f of R_s = pi (R_A + R_B) f / (2 ln 2); null unless both were measured",
         Source::Float(float_column::GEOMETRY_FACTOR),
     ),
     (
         "sheet_resistance_ohm_sq",
         Some("ohm_sq"),
-        "sheet resistance from van der Pauw's exact equation (Hall bar: R_xx W / L)",
+        "sheet resistance from van der Pauw's exact equation, null unless R_A and R_B were both measured (Hall bar: R_xx W / L)",
         Source::Float(float_column::SHEET_RESISTANCE),
     ),
     (

@@ -32,9 +32,12 @@
 //!    that wanders by tenths of a mT between readings stays one row, and each polarity's
 //!    field-odd part is divided by its own fields (step 6). Each setpoint gives one row; a group
 //!    without field readings gives one row with null Hall quantities and the flag
-//!    `no_field_data`. A row with a missing configuration or field sign warns and names
-//!    `field_tolerance_T`, `zero_field_tolerance_T` and `temperature_tolerance_K`, the
-//!    parameters that decide which readings share it.
+//!    `no_field_data`. A row with a missing configuration or field sign warns, naming each
+//!    configuration in pair notation ("32,41"), what it leaves null and what to measure
+//!    (the same configuration at the other field sign, for a Hall configuration seen at one
+//!    sign only: the field-odd part needs both); when the sample has such readings in other
+//!    rows, the warning also names `field_tolerance_T`, `zero_field_tolerance_T` and
+//!    `temperature_tolerance_K`, the parameters that decide which readings share a row.
 //! 4. **Canonical readings and fits.** Each reading is put in the canonical orientation of its
 //!    configuration (I_c = current_sign * current_A, V_c = voltage_sign * voltage_V), so a
 //!    current reversed by the source sign and one reversed by swapping the leads are the same
@@ -54,8 +57,12 @@
 //!    (which sees inhomogeneity and contact effects) and the configurations' own standard
 //!    errors over the number averaged (which see noise). The reciprocity mismatch is
 //!    |direct - reciprocal| / mean, the larger of the two families. When one family is
-//!    absent the sample is assumed symmetric (R_B = R_A, `missing_configurations`) and the
-//!    uncertainty propagates as fully correlated. The sheet resistance solves van der Pauw's
+//!    absent its column is null, and so are the resistance ratio, the geometry factor, the
+//!    sheet resistance, the resistivity and the mobilities (`missing_configurations`): van
+//!    der Pauw's equation needs both R_A and R_B (L. J. van der Pauw, Philips Res. Rep. 13,
+//!    1 (1958)), and R_s = pi R / ln 2 from one of them holds only for a sample symmetric
+//!    under a 90-degree rotation, which the readings cannot show. The Hall quantities need
+//!    no R_s and are reported. The sheet resistance solves van der Pauw's
 //!    equation exactly (`mobilis_physics::van_der_pauw`; geometry factor f from the same
 //!    solution) and its uncertainty uses the exact gradient. A resistance that is not
 //!    positive, which no uniform sample gives in canonical orientation, nulls the sheet
@@ -72,7 +79,10 @@
 //!    When the fields at +B and -B differ (a wandering setpoint), each rho_k is
 //!    (V/I at +B1 - V/I at -B2) / (B1 + B2) times the row's |B|, each B the mean |B| of that
 //!    polarity's readings, so that R_Hs B1 and R_Hs B2 are divided by their own fields.
-//!    R_xy is the mean of the rho_k. R_Hs = R_xy / |B| with |B| the mean of the mean
+//!    R_xy is the mean of the rho_k. With one Hall configuration only
+//!    (`missing_configurations`) the rho_k are its two current polarities, so `hall_spread`
+//!    and the scatter-based uncertainty see the noise and the polarities but not the
+//!    difference between the configurations, which the warning says. R_Hs = R_xy / |B| with |B| the mean of the mean
 //!    |B| at +B and at -B (positive for holes, the sign convention of the NIST Hall-effect
 //!    pages); n_s = r_H / (e |R_Hs|); n = n_s / t; R_H = R_Hs t; mu_H = |R_Hs| / R_s (free of
 //!    the Hall factor and of the thickness); drift mobility mu_H / r_H. A magnitude with no
@@ -237,8 +247,8 @@ pub use contract::{
 pub use error::{ReadingProblem, ReduceError};
 pub use row::FlagSet;
 use row::{
-    build_row, draft_row, FieldCells, ResolvedCalibration, ResolvedSample, RowDraft, RowRecord, TemperatureGroup,
-    ZeroFieldCells,
+    build_row, draft_row, FieldCells, ResolvedCalibration, ResolvedSample, RowDraft, RowRecord, SlotsSeen,
+    TemperatureGroup, ZeroFieldCells,
 };
 use table::SampleReduction;
 pub use table::{FloatColumn, ReductionTable};
@@ -738,6 +748,17 @@ fn reduce_sample(
         settings.temperature_tolerance_k,
     );
     let group_count = temperature_ranges.len();
+    // Which configurations the series has at all, so that a row's warning about a missing
+    // one can tell a reading never taken from one grouped into another row.
+    let seen = sample_readings.iter().fold(SlotsSeen::default(), |seen, reading| {
+        let bit = 1u8 << reading.slot;
+        let in_field = reading.field_t.abs() > settings.zero_field_tolerance_t;
+        SlotsSeen {
+            any: seen.any | bit,
+            plus_field: seen.plus_field | if in_field && reading.field_t > 0.0 { bit } else { 0 },
+            minus_field: seen.minus_field | if in_field && reading.field_t < 0.0 { bit } else { 0 },
+        }
+    });
     // A group's rows are final only after the last pass that touches it, and until then
     // the drift slopes read only its first row's sheet resistance and sheet Hall
     // coefficient. So a group whose readings drift is first drafted (`Detail::Values`) in
@@ -765,13 +786,14 @@ fn reduce_sample(
         let start = final_rows.len();
         let largest = if drifts {
             as_measured.extend_from_slice(readings);
-            let (draft, largest) = draft_temperature_group(readings, sample, settings, None);
+            let (draft, largest) = draft_temperature_group(readings, sample, seen, settings, None);
             drafts.push(draft);
             largest
         } else {
             let largest = reduce_temperature_group(
                 readings,
                 sample,
+                seen,
                 settings,
                 None,
                 &mut final_rows,
@@ -812,7 +834,7 @@ fn reduce_sample(
                 corrected.clear();
                 corrected.extend_from_slice(readings);
                 correct_drift(&mut corrected, group_slopes, sample.geometry);
-                drafts[index] = draft_temperature_group(&mut corrected, sample, settings, Some(group_slopes)).0;
+                drafts[index] = draft_temperature_group(&mut corrected, sample, seen, settings, Some(group_slopes)).0;
             }
         }
         if !any {
@@ -846,6 +868,7 @@ fn reduce_sample(
             reduce_temperature_group(
                 readings,
                 sample,
+                seen,
                 settings,
                 corrections[index],
                 &mut records,
@@ -1375,6 +1398,7 @@ const STRICT_ZERO_FIELD_T: f64 = 1e-4;
 fn reduce_temperature_group(
     readings: &mut [Prepared],
     sample: &ResolvedSample<'_>,
+    seen: SlotsSeen,
     settings: &ReduceSettings,
     drift_correction: Option<DriftSlopes>,
     rows: &mut Vec<RowRecord>,
@@ -1383,6 +1407,7 @@ fn reduce_temperature_group(
     walk_temperature_group(
         readings,
         sample,
+        seen,
         settings,
         drift_correction,
         Detail::Full,
@@ -1399,6 +1424,7 @@ fn reduce_temperature_group(
 fn draft_temperature_group(
     readings: &mut [Prepared],
     sample: &ResolvedSample<'_>,
+    seen: SlotsSeen,
     settings: &ReduceSettings,
     drift_correction: Option<DriftSlopes>,
 ) -> (RowDraft, f64) {
@@ -1406,6 +1432,7 @@ fn draft_temperature_group(
     let largest_zero_field_t = walk_temperature_group(
         readings,
         sample,
+        seen,
         settings,
         drift_correction,
         Detail::Values,
@@ -1427,6 +1454,7 @@ fn draft_temperature_group(
 fn walk_temperature_group(
     readings: &mut [Prepared],
     sample: &ResolvedSample<'_>,
+    seen: SlotsSeen,
     settings: &ReduceSettings,
     drift_correction: Option<DriftSlopes>,
     detail: Detail,
@@ -1464,6 +1492,7 @@ fn walk_temperature_group(
         temperature_spread_k,
         temperature_reading_unc_k,
         drift_corrected: drift_correction.is_some(),
+        seen,
     };
 
     readings.sort_unstable_by(|a, b| a.field_t.abs().total_cmp(&b.field_t.abs()));

@@ -33,7 +33,9 @@ pub const LARGE_OFFSET: &str = "large_offset";
 /// thermoelectric voltages).
 pub const CURRENT_REVERSAL: &str = "current_reversal";
 /// A resistance configuration (4 for van der Pauw, 2 longitudinal pairs for a Hall bar) or a
-/// Hall configuration (2 diagonals, 2 transverse pairs) has no reading in this row.
+/// Hall configuration (2 diagonals, 2 transverse pairs) has no reading in this row. A van der
+/// Pauw family (R_A or R_B) without any reading leaves its resistance, the ratio, the
+/// geometry factor, the sheet resistance and the mobilities null: nothing is assumed.
 pub const MISSING_CONFIGURATIONS: &str = "missing_configurations";
 /// A Hall configuration at this field magnitude was measured at one field sign only; when no
 /// configuration has both signs the Hall quantities are null.
@@ -88,7 +90,7 @@ pub const DESCRIPTIONS: [(&str, &str); 11] = [
     ),
     (
         MISSING_CONFIGURATIONS,
-        "a resistance or Hall configuration has no reading",
+        "a resistance or Hall configuration has no reading; without R_A or R_B the sheet resistance is null",
     ),
     (
         NO_FIELD_REVERSAL,

@@ -9,12 +9,18 @@
 //!
 //! 1. **Validation.** Every reading needs a finite temperature above 0 K, a finite field,
 //!    current and voltage, a nonzero current, and contacts that form a configuration of its
-//!    sample's geometry (`mobilis_physics::contacts`). An invalid reading is an error naming its
+//!    sample's geometry (`mobilis_physics::contacts`); an empty contact cell
+//!    ([`EMPTY_CONTACT`], [`EMPTY_CONTACTS_CELL`]) is an invalid reading like the others.
+//!    Magnitudes beyond [`LARGEST_READING_MAGNITUDE`] (1e30 A, V, T or K) and currents below
+//!    [`SMALLEST_CURRENT_A`] are refused too: no laboratory gives them, and their squares,
+//!    sums or V/I would overflow. An invalid reading is an error naming its
 //!    0-based index; with [`ReduceSettings::skip_invalid_readings`] it is dropped, counted and
 //!    reported as a warning instead (the first [`DETAILED_WARNINGS`] individually, the rest in
 //!    one summary line, so a bad million-row import does not produce a million warnings; the
 //!    warnings about single rows are capped the same way, since every affected row also
-//!    carries its flag). A sample with readings but no sheet row is an error listing every such name.
+//!    carries its flag). When no reading is left, the error names the first few invalid
+//!    ones with their reasons, since a refused call returns no warnings. A sample with
+//!    readings but no sheet row is an error listing every such name.
 //!    Without a sheet every sample is a 2D van der Pauw sample with Hall factor 1.
 //! 2. **Temperature groups.** Per sample, readings are sorted by temperature and consecutive
 //!    temperatures closer than `temperature_tolerance_K` (0.5 K) and than 5 % of the temperature
@@ -256,6 +262,26 @@ pub use table::{FloatColumn, ReductionTable};
 /// How many skipped readings, and separately how many rows, get a warning of their own
 /// before the rest are summarized in one line.
 pub const DETAILED_WARNINGS: usize = 20;
+
+/// How many invalid readings the error of a call without a valid one names, with reasons.
+const FIRST_PROBLEMS_IN_ERROR: usize = 3;
+
+/// The largest magnitude of a reading's current, voltage, field and temperature: far
+/// beyond any laboratory value (1e30 A, V, T or K), and far enough below the largest
+/// double (1.8e308) that the squares and sums of ten million readings stay finite. A
+/// reading beyond it is invalid: it can only be a unit or export error.
+pub const LARGEST_READING_MAGNITUDE: f64 = 1e30;
+
+/// The smallest |current_A| of a valid reading: far below any current source (1e-30 A),
+/// so that V/I of the largest voltage stays finite with room for its square.
+pub const SMALLEST_CURRENT_A: f64 = 1e-30;
+
+/// A contact number that was not given: an empty cell of a contact column (`i_in`,
+/// `i_out`, `v_pos`, `v_neg`). The reading is invalid and says which cell is empty.
+pub const EMPTY_CONTACT: i64 = i64::MIN;
+
+/// The four contact numbers of a reading whose `contacts` cell (pair notation) is empty.
+pub const EMPTY_CONTACTS_CELL: i64 = i64::MIN + 1;
 
 /// The values assumed when a calibration is not stated (common practice, shared by every
 /// analysis that applies calibrations).
@@ -571,21 +597,29 @@ fn reduce_source<S: ReadingSource>(
         }
     }
     let skipped = invalid.len();
+    let mut warnings_of_skipped = Vec::new();
     for &(index, rank) in invalid.iter().take(DETAILED_WARNINGS) {
         let sample = resolved[rank as usize].name;
         let problem = problem_at(index, rank);
-        warnings.push(format!("reading {index} (sample {sample:?}) skipped: {problem}"));
+        warnings_of_skipped.push(format!("reading {index} (sample {sample:?}) skipped: {problem}"));
     }
     if skipped > DETAILED_WARNINGS {
-        warnings.push(format!(
+        warnings_of_skipped.push(format!(
             "{} further invalid readings skipped ({skipped} in all)",
             skipped - DETAILED_WARNINGS
         ));
     }
     let mut reduced: Vec<SampleReduction> = outcomes.into_iter().filter_map(|outcome| outcome.reduction).collect();
     if reduced.is_empty() {
-        return Err(ReduceError::NoValidReadings { total, skipped });
+        // A refused call returns no warnings: the error carries the first reasons itself.
+        let first_problems = warnings_of_skipped.into_iter().take(FIRST_PROBLEMS_IN_ERROR).collect();
+        return Err(ReduceError::NoValidReadings {
+            total,
+            skipped,
+            first_problems,
+        });
     }
+    warnings.extend(warnings_of_skipped);
     let table::BuiltColumns {
         height,
         floats,
@@ -1186,12 +1220,13 @@ impl ContactTables {
 /// look at (to refuse it with its reason, or to classify contacts outside the table).
 #[inline]
 fn prepare_valid(view: &ReadingView, sample_rank: u32, table: &[u8; 4096]) -> Option<Prepared> {
-    let valid = view.temperature_k.is_finite()
-        & (view.temperature_k > 0.0)
-        & view.field_t.is_finite()
-        & view.current_a.is_finite()
-        & (view.current_a != 0.0)
-        & view.voltage_v.is_finite();
+    // Each bound is false for NaN, so the finite tests are folded into them.
+    let valid = (view.temperature_k > 0.0)
+        & (view.temperature_k <= LARGEST_READING_MAGNITUDE)
+        & (view.field_t.abs() <= LARGEST_READING_MAGNITUDE)
+        & (view.current_a.abs() >= SMALLEST_CURRENT_A)
+        & (view.current_a.abs() <= LARGEST_READING_MAGNITUDE)
+        & (view.voltage_v.abs() <= LARGEST_READING_MAGNITUDE);
     if !valid {
         return None;
     }
@@ -1238,6 +1273,36 @@ fn prepare(
     }
     if !view.voltage_v.is_finite() {
         return Err(ReadingProblem::NonFiniteVoltage(view.voltage_v));
+    }
+    let beyond = |column: &'static str, value: f64, unit: &'static str| {
+        (value.abs() > LARGEST_READING_MAGNITUDE).then_some(ReadingProblem::BeyondRange { column, value, unit })
+    };
+    if let Some(problem) = beyond("temperature_K", view.temperature_k, "K")
+        .or_else(|| beyond("field_T", view.field_t, "T"))
+        .or_else(|| beyond("current_A", view.current_a, "A"))
+        .or_else(|| beyond("voltage_V", view.voltage_v, "V"))
+    {
+        return Err(problem);
+    }
+    if view.current_a.abs() < SMALLEST_CURRENT_A {
+        return Err(ReadingProblem::CurrentTooSmall(view.current_a));
+    }
+    let contacts = [
+        ("i_in", view.i_in),
+        ("i_out", view.i_out),
+        ("v_pos", view.v_pos),
+        ("v_neg", view.v_neg),
+    ];
+    if contacts.iter().any(|(_, contact)| *contact == EMPTY_CONTACTS_CELL) {
+        return Err(ReadingProblem::EmptyContacts(vec!["contacts"]));
+    }
+    let empty: Vec<&'static str> = contacts
+        .iter()
+        .filter(|(_, contact)| *contact == EMPTY_CONTACT)
+        .map(|(name, _)| *name)
+        .collect();
+    if !empty.is_empty() {
+        return Err(ReadingProblem::EmptyContacts(empty));
     }
     if let Some((slot, current_sign, voltage_sign)) = tables.classify(geometry, view) {
         return Ok(Prepared {

@@ -1450,7 +1450,14 @@ fn row_warnings_are_capped() {
 #[test]
 fn empty_or_all_invalid_input_is_refused() {
     let error = reduce(&[], None, &ReduceSettings::default()).unwrap_err();
-    assert_eq!(error, ReduceError::NoValidReadings { total: 0, skipped: 0 });
+    assert_eq!(
+        error,
+        ReduceError::NoValidReadings {
+            total: 0,
+            skipped: 0,
+            first_problems: Vec::new()
+        }
+    );
     let model = VanDerPauwModel::symmetric(100.0, 50.0);
     let mut reading = model.reading("s", 300.0, 0.0, [2, 1, 3, 4], 1e-3);
     reading.current_a = 0.0;
@@ -1458,8 +1465,86 @@ fn empty_or_all_invalid_input_is_refused() {
         skip_invalid_readings: true,
         ..ReduceSettings::default()
     };
-    let error = reduce(&[reading], None, &settings).unwrap_err();
-    assert_eq!(error, ReduceError::NoValidReadings { total: 1, skipped: 1 });
+    let error = reduce(&[reading.clone()], None, &settings).unwrap_err();
+    assert!(matches!(
+        error,
+        ReduceError::NoValidReadings {
+            total: 1,
+            skipped: 1,
+            ..
+        }
+    ));
+    // A refused call returns no warnings, so the error itself gives the reasons.
+    let message = error.to_string();
+    assert!(
+        message.contains("each with its reason: reading 0 (sample \"s\") skipped: current_A is 0"),
+        "{message}"
+    );
+    let many = vec![reading; 16];
+    let message = reduce(&many, None, &settings).unwrap_err().to_string();
+    assert!(
+        message.starts_with("all 16 readings are invalid (16 skipped), the first 3 with its reason: reading 0"),
+        "{message}"
+    );
+    assert!(
+        message.contains("reading 2 (sample") && !message.contains("reading 3 (sample"),
+        "{message}"
+    );
+}
+
+// Values far beyond any laboratory's (a unit or export error) are invalid readings with
+// their column and reason, not a NaN resistance blamed on the contact numbering.
+#[test]
+fn overflowing_magnitudes_are_invalid_readings() {
+    let model = VanDerPauwModel::symmetric(100.0, 50.0);
+    let readings = nist_readings(&model, "s", 300.0, 0.5, 1e-3);
+    let scaled = |scale: f64| -> Vec<RawReading> {
+        readings
+            .iter()
+            .cloned()
+            .map(|mut reading| {
+                reading.current_a *= scale;
+                reading.voltage_v *= scale;
+                reading
+            })
+            .collect()
+    };
+    let error = reduce(&scaled(1e298), None, &ReduceSettings::default()).unwrap_err();
+    let ReduceError::InvalidReading { row: 0, problem, .. } = &error else {
+        panic!("{error:?}")
+    };
+    assert_eq!(
+        *problem,
+        ReadingProblem::BeyondRange {
+            column: "current_A",
+            value: 1e-3 * 1e298,
+            unit: "A"
+        }
+    );
+    let message = error.to_string();
+    assert!(message.contains("current_A is 1e295, beyond the 1e30 A"), "{message}");
+    assert!(!message.contains("counterclockwise"), "{message}");
+    let error = reduce(&scaled(1e-300), None, &ReduceSettings::default()).unwrap_err();
+    assert!(
+        matches!(
+            &error,
+            ReduceError::InvalidReading {
+                problem: ReadingProblem::CurrentTooSmall(_),
+                ..
+            }
+        ),
+        "{error:?}"
+    );
+    // Skipped, they leave the well-formed readings to reduce as before.
+    let mut mixed = readings.clone();
+    mixed.push(scaled(1e298).remove(0));
+    let settings = ReduceSettings {
+        skip_invalid_readings: true,
+        ..ReduceSettings::default()
+    };
+    let reduction = reduce(&mixed, None, &settings).unwrap();
+    assert_eq!(reduction.skipped_readings, 1);
+    assert_eq!(reduction.rows, reduce_default(&readings).rows);
 }
 
 #[test]
@@ -1532,6 +1617,21 @@ fn bad_sample_sheet_rows_are_refused() {
     );
     let error = reduce(&readings, Some(&[base.clone(), base.clone()]), &settings).unwrap_err();
     assert_eq!(error, ReduceError::DuplicateSample { sample: "s".into() });
+    // The messages name the sheet's columns as the sheet spells them.
+    let message = |info: SampleInfo| reduce(&readings, Some(&[info]), &settings).unwrap_err().to_string();
+    let thickness = message(SampleInfo {
+        thickness_unc_m: Some(-1e-9),
+        ..base.clone()
+    });
+    assert!(thickness.starts_with("thickness_m_unc of sample \"s\""), "{thickness}");
+    let bar = message(SampleInfo {
+        geometry: Geometry::HallBar {
+            length_m: 0.0,
+            width_m: 1e-4,
+        },
+        ..base.clone()
+    });
+    assert!(bar.contains("bar_length_m = 0 and bar_width_m = 0.0001"), "{bar}");
 }
 
 #[test]

@@ -129,6 +129,15 @@ fn conform_column(frame: &mut DataFrame, spec: &ColumnSpec, role: &str, dataset:
         )));
     };
     let dtype = column.dtype().clone();
+    // A column with no value at all (an all-empty column of a CSV file imports as text)
+    // says nothing in any type: it is the declared type's nulls, as if every cell were empty.
+    if column.len() > 0 && column.null_count() == column.len() && !dtype.is_null() {
+        let nulls = Column::full_null(spec.name.as_str().into(), column.len(), &DataType::Null);
+        frame
+            .with_column(nulls)
+            .map_err(|e| ServiceError::new(ErrorKind::ColumnProblem, e.to_string()))?;
+        return conform_column(frame, spec, role, dataset);
+    }
     let mistyped = |expected: &str| {
         ServiceError::new(
             ErrorKind::ColumnProblem,
@@ -137,6 +146,11 @@ fn conform_column(frame: &mut DataFrame, spec: &ColumnSpec, role: &str, dataset:
                 spec.name
             ),
         )
+        .with_help(format!(
+            "give `{}` {expected}{} in every cell (an empty cell is no value), and import the dataset again (dataset.import); a column with no value at all is accepted whatever its type",
+            spec.name,
+            spec.unit.as_deref().map(|unit| format!(" (SI unit {unit})")).unwrap_or_default(),
+        ))
     };
     let target = match spec.dtype {
         ColumnType::F64 if dtype.is_primitive_numeric() || dtype.is_null() => DataType::Float64,

@@ -828,10 +828,29 @@ fn contact_columns<'a>(frame: &'a DataFrame, storage: [&'a mut Vec<i64>; 4]) -> 
 /// Reads the sample sheet (role `samples`).
 fn sample_sheet(frame: &DataFrame) -> Result<Vec<SampleInfo>, AnalysisError> {
     let names = sdk::string_column(frame, "sample")?;
-    let thickness = sdk::float_column(frame, "thickness_m")?;
+    // A column with no value at all is nulls whatever its type: a spreadsheet column left
+    // empty (a 2D sheet's thickness_m) imports as text.
+    let is_empty = |name: &str| {
+        frame
+            .column(name)
+            .is_ok_and(|column| column.null_count() == column.len())
+    };
+    let sheet_floats = |name: &str, unit: &str| -> Result<Vec<Option<f64>>, AnalysisError> {
+        if is_empty(name) {
+            return Ok(vec![None; frame.height()]);
+        }
+        sdk::float_column(frame, name).map_err(|error| match frame.column(name) {
+            Ok(column) => AnalysisError::InvalidInput(format!(
+                "sample sheet column `{name}` holds {}, not numbers; give numbers{unit} in it (an empty cell is no value) and import the sheet again",
+                column.dtype()
+            )),
+            Err(_) => error,
+        })
+    };
+    let thickness = sheet_floats("thickness_m", " in metres, empty for a 2D sheet,")?;
     let optional_floats = |name: &str| -> Result<Vec<Option<f64>>, AnalysisError> {
         if frame.column(name).is_ok() {
-            sdk::float_column(frame, name)
+            sheet_floats(name, "")
         } else {
             Ok(vec![None; frame.height()])
         }
@@ -844,7 +863,7 @@ fn sample_sheet(frame: &DataFrame) -> Result<Vec<SampleInfo>, AnalysisError> {
     let current_calibration = optional_floats(calibration_names::CURRENT)?;
     let voltage_calibration = optional_floats(calibration_names::VOLTAGE)?;
     let temperature_accuracy = optional_floats(calibration_names::TEMPERATURE)?;
-    let geometry = if frame.column("geometry").is_ok() {
+    let geometry = if frame.column("geometry").is_ok() && !is_empty("geometry") {
         sdk::string_column(frame, "geometry")?
     } else {
         vec![None; frame.height()]

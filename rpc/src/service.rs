@@ -131,7 +131,7 @@ fn conform_column(frame: &mut DataFrame, spec: &ColumnSpec, role: &str, dataset:
     let dtype = column.dtype().clone();
     // A column with no value at all (an all-empty column of a CSV file imports as text)
     // says nothing in any type: it is the declared type's nulls, as if every cell were empty.
-    if column.len() > 0 && column.null_count() == column.len() && !dtype.is_null() {
+    if !column.is_empty() && column.null_count() == column.len() && !dtype.is_null() {
         let nulls = Column::full_null(spec.name.as_str().into(), column.len(), &DataType::Null);
         frame
             .with_column(nulls)

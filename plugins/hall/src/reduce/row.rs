@@ -1001,6 +1001,10 @@ fn field_even_resistance<'a>(cells: &'a [Option<CellSummary>; 2], used_cells: &m
 }
 
 #[inline(always)]
+#[allow(
+    clippy::neg_cmp_op_on_partial_ord,
+    reason = "`!(x > 0.0)` refuses NaN too, in one test"
+)]
 fn van_der_pauw_resistance(
     slot_resistance: &[Option<Estimate>; MAX_SLOTS],
     group: &TemperatureGroup<'_>,

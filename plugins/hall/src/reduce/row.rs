@@ -841,13 +841,24 @@ fn grouping_warning(
             settings.zero_field_tolerance_t
         ));
     }
+    // Pair notation has a comma inside each label, so labels are joined by "and".
     let labels = |mask: u8| -> String {
         (0..MAX_SLOTS)
             .filter(|slot| mask & (1 << slot) != 0)
             .map(|slot| configuration_label(geometry, slot))
             .collect::<Vec<_>>()
-            .join(", ")
+            .join(" and ")
     };
+    let several = |mask: u8| mask.count_ones() > 1;
+    let configurations = |mask: u8| {
+        let noun = if several(mask) {
+            "configurations"
+        } else {
+            "configuration"
+        };
+        format!("{noun} {}", labels(mask))
+    };
+    let them = |mask: u8| if several(mask) { "them" } else { "it" };
     let family_mask = |family: &[usize; 2]| family.iter().fold(0u8, |mask, slot| mask | (1 << slot));
     // Resistance configurations, family by family (or all at once when none was measured).
     let resistance_bits = resistance_slots(layout).fold(0u8, |mask, slot| mask | (1 << slot));
@@ -868,35 +879,39 @@ fn grouping_warning(
         if missing == 0 {
             continue;
         }
-        let text = match (geometry, missing == family_bits) {
+        let present = family_bits & !missing;
+        let text = match (geometry, present == 0) {
             (Geometry::VanDerPauw, true) => {
-                let (name, other) = if index == 0 { ("R_A", "R_B") } else { ("R_B", "R_A") };
+                let (name, column, other) = if index == 0 {
+                    ("R_A", "resistance_a_ohm", "R_B")
+                } else {
+                    ("R_B", "resistance_b_ohm", "R_A")
+                };
                 format!(
-                    "{name} not measured (configuration {}): van der Pauw's equation needs both R_A and R_B, and {other} alone gives the sheet resistance only for a sample symmetric under a 90-degree rotation, so {} resistance_ratio, geometry_factor, sheet_resistance_ohm_sq, resistivity_ohm_m and the mobilities are null; measure {}",
-                    labels(missing),
-                    if index == 0 { "resistance_a_ohm," } else { "resistance_b_ohm," },
+                    "{name} not measured ({}): van der Pauw's equation needs both R_A and R_B, and {other} alone gives the sheet resistance only for a sample symmetric under a 90-degree rotation, so {column}, resistance_ratio, geometry_factor, sheet_resistance_ohm_sq, resistivity_ohm_m and the mobilities are null; measure {} (either one gives {name}, both check its reciprocity)",
+                    configurations(missing),
                     labels(missing),
                 )
             }
             (Geometry::VanDerPauw, false) => {
                 let name = if index == 0 { "R_A" } else { "R_B" };
                 format!(
-                    "configuration {} not measured: {name} rests on {} alone and its reciprocity is not checked; measure {} as well",
-                    labels(missing),
-                    labels(family_bits & !missing),
-                    labels(missing),
+                    "{} not measured: {name} rests on {} alone and its reciprocity is not checked; measure {} as well",
+                    configurations(missing),
+                    labels(present),
+                    them(missing),
                 )
             }
             (Geometry::HallBar { .. }, true) => format!(
                 "no longitudinal configuration measured ({}), so resistance_a_ohm (R_xx), sheet_resistance_ohm_sq, resistivity_ohm_m and the mobilities are null; measure {}",
                 labels(missing),
-                labels(missing),
+                them(missing),
             ),
             (Geometry::HallBar { .. }, false) => format!(
-                "longitudinal configuration {} not measured: R_xx rests on {} alone (one edge of the bar); measure {} as well",
-                labels(missing),
-                labels(family_bits & !missing),
-                labels(missing),
+                "longitudinal {} not measured: R_xx rests on {} alone (one edge of the bar); measure {} as well",
+                configurations(missing),
+                labels(present),
+                them(missing),
             ),
         };
         parts.push(text);
@@ -911,10 +926,10 @@ fn grouping_warning(
         ));
     } else if missing_hall != 0 {
         parts.push(format!(
-            "Hall configuration {} not measured: the Hall resistance rests on {} alone, so hall_spread and the uncertainty compare its current polarities only, not the two configurations; measure {} as well",
-            labels(missing_hall),
+            "Hall {} not measured: the Hall resistance rests on {} alone, so hall_spread and the uncertainty compare its current polarities only, not the two configurations; measure {} as well",
+            configurations(missing_hall),
             labels(hall_bits & !missing_hall),
-            labels(missing_hall),
+            them(missing_hall),
         ));
     }
     let field_t = field.map_or(0.0, |cells| cells.field_t);
@@ -927,12 +942,15 @@ fn grouping_warning(
         }
         let consequence = if reversed_hall == 0 {
             "so the Hall quantities are null"
+        } else if several(mask) {
+            "so they do not enter the Hall resistance"
         } else {
             "so it does not enter the Hall resistance"
         };
         parts.push(format!(
-            "Hall configuration {} measured at {measured} only: the Hall voltage is the part odd in the field, which needs readings at both field signs, {consequence}; measure it at {other:.4} T as well",
-            labels(mask),
+            "Hall {} measured at {measured} only: the Hall voltage is the part odd in the field, which needs readings at both field signs, {consequence}; measure {} at {other:.4} T as well",
+            configurations(mask),
+            them(mask),
         ));
     }
     // The grouping parameters matter only if the sample has the missing readings elsewhere,

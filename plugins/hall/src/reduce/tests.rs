@@ -886,8 +886,12 @@ fn no_field_reversal_nulls_the_hall_quantities() {
         .collect();
     let reduction = reduce_default(&readings);
     let warnings = reduction.warnings.join("\n");
-    assert!(warnings.contains("13,24, 24,31 measured at +B only"), "{warnings}");
-    assert!(warnings.contains("measure it at -0.5000 T as well"), "{warnings}");
+    assert!(
+        warnings.contains("Hall configurations 13,24 and 24,31 measured at +B only"),
+        "{warnings}"
+    );
+
+    assert!(warnings.contains("measure them at -0.5000 T as well"), "{warnings}");
     assert!(!warnings.contains("field_tolerance_T"), "{warnings}");
     let row = reduction.rows[0].clone();
     assert!(row.flags.contains(&flags::NO_FIELD_REVERSAL), "flags {:?}", row.flags);

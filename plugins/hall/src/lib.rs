@@ -113,6 +113,13 @@ pub struct ReduceParams {
     /// refusing the input
     #[serde(default)]
     pub skip_invalid_readings: bool,
+    /// the van der Pauw samples are symmetric under a 90-degree rotation (R_A = R_B, e.g. a
+    /// cloverleaf with symmetric contacts): a row where only R_A or only R_B was measured
+    /// gets R_s = pi R / ln 2 from it (van der Pauw 1958), flagged assumed_symmetric, with an
+    /// uncertainty that does not include any asymmetry; by default such a row's sheet
+    /// resistance and mobility are null
+    #[serde(default)]
+    pub assume_symmetric_sample: bool,
     #[serde(default)]
     #[schemars(range(min = 0), description = format!("relative standard uncertainty of the field scale (gaussmeter, magnet constant); a sample-sheet column of the same name takes precedence; when not stated {} is assumed (common practice) and the summary says so", reduce::DEFAULT_FIELD_CALIBRATION_REL))]
     pub field_calibration_rel: Option<f64>,
@@ -173,6 +180,7 @@ impl ReduceParams {
                 current_reversal_tolerance: self.current_reversal_tolerance,
             },
             skip_invalid_readings: self.skip_invalid_readings,
+            assume_symmetric_sample: self.assume_symmetric_sample,
             calibration: Calibration {
                 field_rel: self.field_calibration_rel,
                 current_rel: self.current_calibration_rel,
@@ -934,7 +942,7 @@ impl Analysis for HallReduce {
         AnalysisDeclaration {
             name: String::new(),
             summary: "Raw van der Pauw or Hall-bar readings to sheet resistance, resistivity, carrier type, density and Hall mobility per sample, temperature and field".into(),
-            description: "Resistances from whichever configurations are present (current reversal by source sign or swapped leads), sheet resistance from van der Pauw's exact equation, Hall coefficient from the field-odd part of the diagonal (or transverse) configurations, so thermoelectric and misalignment offsets cancel. Uncertainty budget: _unc is the total, _unc_stat the reading noise pooled over the row's fit residuals and redundant configurations, _unc_sys the calibrations (thickness, field, current, voltage) common to a sample's series; temperature_K_unc the thermometer accuracy. Readings of a drifting stage are brought to the mean temperature; |B| up to zero_field_tolerance_T (10 mT) is zero field; field setpoints are never wider than field_tolerance_T. Van der Pauw's equation needs both R_A and R_B: a row without either has a null sheet resistance and mobility (flag missing_configurations, and a warning naming what to measure), never one assumed from the other. Quality flags with configurable thresholds (the flags column lists them). Contact numbering, with configurations in pair notation (current in and out, then the voltage V+ V-): van der Pauw contacts 1-4 counterclockwise seen from the +B side, R_A from 21,34 and 43,12, R_B from 32,41 and 14,23, Hall from 13,24 and 24,31. Hall bar contacts 1-6: the current flows between 1 and 2 along the bar, 3 and 4 sit on the edge to the left of the current from 1 to 2 seen from the +B side, 5 opposite 3 and 6 opposite 4; longitudinal pairs 12,34 and 12,56, transverse (Hall) pairs 12,53 and 12,64.".into(),
+            description: "Resistances from whichever configurations are present (current reversal by source sign or swapped leads), sheet resistance from van der Pauw's exact equation, Hall coefficient from the field-odd part of the diagonal (or transverse) configurations, so thermoelectric and misalignment offsets cancel. Uncertainty budget: _unc is the total, _unc_stat the reading noise pooled over the row's fit residuals and redundant configurations, _unc_sys the calibrations (thickness, field, current, voltage) common to a sample's series; temperature_K_unc the thermometer accuracy. Readings of a drifting stage are brought to the mean temperature; |B| up to zero_field_tolerance_T (10 mT) is zero field; field setpoints are never wider than field_tolerance_T. Van der Pauw's equation needs both R_A and R_B: a row without either has a null sheet resistance and mobility (flag missing_configurations, and a warning naming what to measure), never one assumed from the other, unless assume_symmetric_sample states the sample symmetric (then R_s = pi R / ln 2, flag assumed_symmetric). Quality flags with configurable thresholds (the flags column lists them). Contact numbering, with configurations in pair notation (current in and out, then the voltage V+ V-): van der Pauw contacts 1-4 counterclockwise seen from the +B side, R_A from 21,34 and 43,12, R_B from 32,41 and 14,23, Hall from 13,24 and 24,31. Hall bar contacts 1-6: the current flows between 1 and 2 along the bar, 3 and 4 sit on the edge to the left of the current from 1 to 2 seen from the +B side, 5 opposite 3 and 6 opposite 4; longitudinal pairs 12,34 and 12,56, transverse (Hall) pairs 12,53 and 12,64.".into(),
             inputs: vec![
                 InputRole {
                     role: "readings".into(),

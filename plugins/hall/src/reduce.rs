@@ -68,7 +68,11 @@
 //!    der Pauw's equation needs both R_A and R_B (L. J. van der Pauw, Philips Res. Rep. 13,
 //!    1 (1958)), and R_s = pi R / ln 2 from one of them holds only for a sample symmetric
 //!    under a 90-degree rotation, which the readings cannot show. The Hall quantities need
-//!    no R_s and are reported. The sheet resistance solves van der Pauw's
+//!    no R_s and are reported. A lab that knows its samples are so symmetric says so with
+//!    [`ReduceSettings::assume_symmetric_sample`]: such a row then gets R_s = pi R / ln 2
+//!    from the family measured, with that family's uncertainty (which cannot see an
+//!    asymmetry) and the flag `assumed_symmetric`; the missing family, the ratio and the
+//!    geometry factor stay null. The sheet resistance solves van der Pauw's
 //!    equation exactly (`mobilis_physics::van_der_pauw`; geometry factor f from the same
 //!    solution) and its uncertainty uses the exact gradient. A resistance that is not
 //!    positive, which no uniform sample gives in canonical orientation, nulls the sheet
@@ -1558,6 +1562,7 @@ fn walk_temperature_group(
         temperature_reading_unc_k,
         drift_corrected: drift_correction.is_some(),
         seen,
+        assume_symmetric: settings.assume_symmetric_sample,
     };
 
     readings.sort_unstable_by(|a, b| a.field_t.abs().total_cmp(&b.field_t.abs()));

@@ -12,7 +12,8 @@
 //! `current_reversal_tolerance` 0.03. They are common practice, not taken from a standard: a
 //! lab with other habits sets its own. The flags without a threshold (`missing_configurations`,
 //! `no_field_reversal`, `no_current_reversal`, `resistance_from_field_readings`,
-//! `no_field_data`, `nonpositive_resistance`) say what was not measured or cannot be.
+//! `no_field_data`, `nonpositive_resistance`) say what was not measured or cannot be;
+//! `assumed_symmetric` says a sheet resistance rests on the call's `assume_symmetric_sample`.
 
 /// R_A's (or R_B's) direct and reciprocal configurations differ by more than
 /// `reciprocity_tolerance` relative to their mean.
@@ -54,8 +55,13 @@ pub const NO_FIELD_DATA: &str = "no_field_data";
 /// broken. The sheet resistance and mobility are null.
 pub const NONPOSITIVE_RESISTANCE: &str = "nonpositive_resistance";
 
+/// One van der Pauw family was measured and `assume_symmetric_sample` is set: the sheet
+/// resistance is pi R / ln 2 from that family, exact only for a sample symmetric under a
+/// 90-degree rotation, and its uncertainty does not include any asymmetry.
+pub const ASSUMED_SYMMETRIC: &str = "assumed_symmetric";
+
 /// Every flag, in the order a row lists them.
-pub const ALL: [&str; 11] = [
+pub const ALL: [&str; 12] = [
     RECIPROCITY,
     RESISTANCE_RATIO,
     HALL_INCONSISTENT,
@@ -67,10 +73,11 @@ pub const ALL: [&str; 11] = [
     RESISTANCE_FROM_FIELD_READINGS,
     NO_FIELD_DATA,
     NONPOSITIVE_RESISTANCE,
+    ASSUMED_SYMMETRIC,
 ];
 
 /// One-line descriptions for a plugin's `describe` output, in the order of [`ALL`].
-pub const DESCRIPTIONS: [(&str, &str); 11] = [
+pub const DESCRIPTIONS: [(&str, &str); 12] = [
     (
         RECIPROCITY,
         "direct and reciprocal resistance configurations differ by more than reciprocity_tolerance",
@@ -108,5 +115,9 @@ pub const DESCRIPTIONS: [(&str, &str); 11] = [
     (
         NONPOSITIVE_RESISTANCE,
         "a resistance came out zero or negative: check contact numbering and wiring",
+    ),
+    (
+        ASSUMED_SYMMETRIC,
+        "one of R_A and R_B measured: sheet resistance pi R / ln 2 under assume_symmetric_sample",
     ),
 ];

@@ -344,6 +344,8 @@ pub(super) struct TemperatureGroup<'a> {
     pub drift_corrected: bool,
     /// The configurations the sample has readings of anywhere in its series.
     pub seen: SlotsSeen,
+    /// `assume_symmetric_sample`: one van der Pauw family gives the sheet resistance.
+    pub assume_symmetric: bool,
 }
 
 /// The raised flags of a row, kept in the order of [`flags::ALL`].
@@ -887,6 +889,14 @@ fn grouping_warning(
                 } else {
                     ("R_B", "resistance_b_ohm", "R_A")
                 };
+                if raised.contains(flags::ASSUMED_SYMMETRIC) {
+                    parts.push(format!(
+                        "{name} not measured ({}): sheet_resistance_ohm_sq is pi {other} / ln 2 under assume_symmetric_sample, exact only for a sample symmetric under a 90-degree rotation, and its uncertainty does not include any asymmetry; {column}, resistance_ratio and geometry_factor are null; measure {} to check the symmetry",
+                        configurations(missing),
+                        labels(missing),
+                    ));
+                    continue;
+                }
                 format!(
                     "{name} not measured ({}): van der Pauw's equation needs both R_A and R_B, and {other} alone gives the sheet resistance only for a sample symmetric under a 90-degree rotation, so {column}, resistance_ratio, geometry_factor, sheet_resistance_ohm_sq, resistivity_ohm_m and the mobilities are null; measure {} (either one gives {name}, both check its reciprocity)",
                     configurations(missing),
@@ -1082,8 +1092,19 @@ fn van_der_pauw_resistance(
         }
         return part;
     }
-    let (Some(resistance_a), Some(resistance_b)) = (family_a, family_b) else {
-        return part;
+    let (resistance_a, resistance_b) = match (family_a, family_b) {
+        (Some(a), Some(b)) => (a, b),
+        (Some(only), None) | (None, Some(only)) if group.assume_symmetric => {
+            // The lab states R_A = R_B: van der Pauw's equation then gives R_s = pi R / ln 2
+            // exactly, and the uncertainty is that of the one family measured (nothing in the
+            // readings bounds an asymmetry).
+            part.sheet_resistance = Some(only.scaled(std::f64::consts::PI / std::f64::consts::LN_2));
+            if detail == Detail::Full {
+                raised.raise(flags::ASSUMED_SYMMETRIC);
+            }
+            return part;
+        }
+        _ => return part,
     };
     let (a, b) = (resistance_a.value, resistance_b.value);
     if detail == Detail::Values {

@@ -1001,6 +1001,43 @@ fn missing_family_is_null_and_so_is_the_sheet_resistance() {
     assert!(!warning.contains("field_tolerance_T"), "{warning}");
 }
 
+// R_s = pi R / ln 2 for a sample symmetric under a 90-degree rotation (L. J. van der Pauw,
+// Philips Res. Rep. 13, 1 (1958)), when the lab states that symmetry.
+#[test]
+fn a_lab_that_states_the_symmetry_gets_pi_r_over_ln2_flagged() {
+    let model = VanDerPauwModel::symmetric(100.0, 50.0);
+    let readings: Vec<RawReading> = nist_readings(&model, "s", 300.0, 0.5, 1e-3)
+        .into_iter()
+        .filter(|reading| !is_family_b(reading))
+        .collect();
+    let settings = ReduceSettings {
+        assume_symmetric_sample: true,
+        ..ReduceSettings::default()
+    };
+    let reduction = reduce(&readings, None, &settings).unwrap();
+    let row = single_row(&reduction);
+    assert_eq!(row.flags, vec![flags::MISSING_CONFIGURATIONS, flags::ASSUMED_SYMMETRIC]);
+    assert_close(row.sheet_resistance_ohm_sq, PI * 100.0 / LN_2, 1e-12, "R_s");
+    assert_close(row.hall_mobility_m2_per_vs, 50.0 / (PI * 100.0 / LN_2), 1e-12, "mu_H");
+    assert!(row.sheet_resistance_ohm_sq_unc.is_some());
+    for (what, value) in [
+        ("resistance_b_ohm", row.resistance_b_ohm),
+        ("resistance_ratio", row.resistance_ratio),
+        ("geometry_factor", row.geometry_factor),
+    ] {
+        assert_eq!(value, None, "{what} was not measured");
+    }
+    let warnings = reduction.warnings.join("\n");
+    assert!(
+        warnings.contains("sheet_resistance_ohm_sq is pi R_A / ln 2 under assume_symmetric_sample"),
+        "{warnings}"
+    );
+    assert!(warnings.contains("does not include any asymmetry"), "{warnings}");
+    // With both families measured the parameter changes nothing.
+    let full = nist_readings(&VanDerPauwModel::asymmetric(100.0, 150.0, 50.0), "s", 300.0, 0.5, 1e-3);
+    assert_eq!(reduce(&full, None, &settings).unwrap().rows, reduce_default(&full).rows);
+}
+
 #[test]
 fn missing_family_a_and_a_single_reading_are_null_too() {
     let model = VanDerPauwModel::asymmetric(100.0, 150.0, 50.0);

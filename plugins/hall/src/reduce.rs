@@ -254,7 +254,7 @@ pub use contract::{
     calibration_names, float_column, Calibration, CalibrationUsed, Geometry, QualityThresholds, ReduceSettings,
     ReducedRow, Reduction, SampleInfo,
 };
-pub use error::{ReadingProblem, ReduceError};
+pub use error::{ReadingProblem, ReduceError, LARGEST_READING_MAGNITUDE, SMALLEST_CURRENT_A};
 pub use row::FlagSet;
 use row::{
     build_row, draft_row, FieldCells, ResolvedCalibration, ResolvedSample, RowDraft, RowRecord, SlotsSeen,
@@ -269,16 +269,6 @@ pub const DETAILED_WARNINGS: usize = 20;
 
 /// How many invalid readings the error of a call without a valid one names, with reasons.
 const FIRST_PROBLEMS_IN_ERROR: usize = 3;
-
-/// The largest magnitude of a reading's current, voltage, field and temperature: far
-/// beyond any laboratory value (1e30 A, V, T or K), and far enough below the largest
-/// double (1.8e308) that the squares and sums of ten million readings stay finite. A
-/// reading beyond it is invalid: it can only be a unit or export error.
-pub const LARGEST_READING_MAGNITUDE: f64 = 1e30;
-
-/// The smallest |current_A| of a valid reading: far below any current source (1e-30 A),
-/// so that V/I of the largest voltage stays finite with room for its square.
-pub const SMALLEST_CURRENT_A: f64 = 1e-30;
 
 /// A contact number that was not given: an empty cell of a contact column (`i_in`,
 /// `i_out`, `v_pos`, `v_neg`). The reading is invalid and says which cell is empty.

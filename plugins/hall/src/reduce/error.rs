@@ -6,6 +6,16 @@
 
 use mobilis_physics::contacts::ContactError;
 
+/// The largest magnitude of a reading's current, voltage, field and temperature: far
+/// beyond any laboratory value (1e30 A, V, T or K), and far enough below the largest
+/// double (1.8e308) that the squares and sums of ten million readings stay finite. A
+/// reading beyond it is invalid: it can only be a unit or export error.
+pub const LARGEST_READING_MAGNITUDE: f64 = 1e30;
+
+/// The smallest |current_A| of a valid reading: far below any current source (1e-30 A),
+/// so that V/I of the largest voltage stays finite with room for its square.
+pub const SMALLEST_CURRENT_A: f64 = 1e-30;
+
 /// What is wrong with one reading. Carried by [`ReduceError::InvalidReading`], and turned
 /// into a warning when the reading is skipped.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -29,22 +39,22 @@ pub enum ReadingProblem {
     /// `voltage_V` is NaN or infinite.
     #[error("voltage_V is {0}; give the finite measured voltage in volt, or drop an overloaded reading")]
     NonFiniteVoltage(f64),
-    /// A magnitude beyond [`LARGEST_READING_MAGNITUDE`](super::LARGEST_READING_MAGNITUDE):
+    /// A magnitude beyond [`LARGEST_READING_MAGNITUDE`]:
     /// no laboratory value, and its squares and sums would overflow.
     #[error(
         "{column} is {value:e}, beyond the {largest:e} {unit} the reduction can square and sum without overflow; check the column's unit (dataset.import units) or drop the reading",
-        largest = super::LARGEST_READING_MAGNITUDE
+        largest = LARGEST_READING_MAGNITUDE
     )]
     BeyondRange {
         column: &'static str,
         value: f64,
         unit: &'static str,
     },
-    /// |`current_A`| below [`SMALLEST_CURRENT_A`](super::SMALLEST_CURRENT_A): no source
+    /// |`current_A`| below [`SMALLEST_CURRENT_A`]: no source
     /// current, and V/I would overflow.
     #[error(
         "current_A is {0:e}, below the {smallest:e} A of any current source, where V/I overflows; check the column's unit (dataset.import units) or drop the reading",
-        smallest = super::SMALLEST_CURRENT_A
+        smallest = SMALLEST_CURRENT_A
     )]
     CurrentTooSmall(f64),
     /// Contact cells are empty: the columns named, or the `contacts` cell.

@@ -1022,6 +1022,27 @@ mod tests {
     use super::*;
     use serde_json::json;
 
+    // A spreadsheet column left empty (a 2D sheet's thickness) imports as text with no value;
+    // it is the declared type's nulls. A column with text in it is refused with what to give.
+    #[test]
+    fn an_empty_column_is_nulls_of_the_declared_type_and_a_mistyped_one_says_what_to_give() {
+        let spec = ColumnSpec::new("thickness_m", ColumnType::F64, Some("m"), "thickness");
+        let mut frame = DataFrame::new(1, vec![Column::new("thickness_m".into(), [None::<&str>])]).unwrap();
+        conform_column(&mut frame, &spec, "samples", "sheet").unwrap();
+        let column = frame.column("thickness_m").unwrap();
+        assert_eq!(column.dtype(), &DataType::Float64);
+        assert_eq!(column.null_count(), 1);
+        let mut frame = DataFrame::new(1, vec![Column::new("thickness_m".into(), ["thin"])]).unwrap();
+        let error = conform_column(&mut frame, &spec, "samples", "sheet").unwrap_err();
+        assert!(
+            error.message.contains("column `thickness_m` of input `samples`"),
+            "{}",
+            error.message
+        );
+        let help = error.help.unwrap_or_default();
+        assert!(help.contains("give `thickness_m` numbers (SI unit m)"), "{help}");
+    }
+
     #[test]
     fn an_import_with_a_call_id_reports_its_progress_and_its_end() {
         let workspace = tempfile::tempdir().unwrap();

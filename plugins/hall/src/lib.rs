@@ -23,8 +23,10 @@
 //! (null for a 2D sheet), optional `thickness_m_unc`, `hall_factor` (r_H, default 1),
 //! `geometry` (`van_der_pauw`, the default, or `hall_bar`), and for Hall bars `bar_length_m`
 //! (the centre-to-centre distance of the longitudinal voltage contacts) and `bar_width_m`. A
-//! sample listed twice, or one in the readings but not in a given sheet, is an error. Without a
-//! sheet every sample is a 2D van der Pauw sample with Hall factor 1.
+//! sample listed twice, or one in the readings but not in a given sheet, is an error. A sheet
+//! column without any value is read as empty whatever type it was imported as (a spreadsheet
+//! column left blank imports as text). Without a sheet every sample is a 2D van der Pauw
+//! sample with Hall factor 1.
 //!
 //! # Calibrations
 //!
@@ -42,8 +44,11 @@
 //! One row per sample, temperature group and field magnitude; the columns are the `OUTPUT`
 //! table of this file, listed by `analysis.describe`. The quality flags, their thresholds and
 //! parameters are in [`reduce::flags`]; their defaults are common practice, not taken from a
-//! standard. Bad readings (zero current, NaN, a contact outside 1..4 or 1..6) are errors naming
-//! the reading; `skip_invalid_readings: true` drops them with warnings.
+//! standard. Bad readings (zero current, NaN, an empty contact cell, a contact outside 1..4 or
+//! 1..6, a magnitude no laboratory gives) are errors naming the reading;
+//! `skip_invalid_readings: true` drops them with warnings. A van der Pauw row with only R_A or
+//! only R_B has a null sheet resistance unless `assume_symmetric_sample` states the samples
+//! symmetric ([`reduce`], step 5).
 
 pub mod figures;
 pub mod reduce;

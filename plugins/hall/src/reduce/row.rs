@@ -380,13 +380,13 @@ struct HallPart {
     evidence: NoiseEvidence,
     /// The Hall configurations without a reading at this field, and those with one field
     /// sign only, by slot.
-    coverage: Coverage,
+    gaps: ConfigurationGaps,
 }
 
 /// Which configurations of a row lack readings, by slot bit, so that a warning can name
 /// them and say what to measure.
 #[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
-pub(super) struct Coverage {
+pub(super) struct ConfigurationGaps {
     /// Configurations with no reading in the row.
     pub missing: u8,
     /// Hall configurations measured at +B only.
@@ -395,8 +395,8 @@ pub(super) struct Coverage {
     pub minus_field_only: u8,
 }
 
-impl Coverage {
-    fn add(&mut self, other: Coverage) {
+impl ConfigurationGaps {
+    fn add(&mut self, other: ConfigurationGaps) {
         self.missing |= other.missing;
         self.plus_field_only |= other.plus_field_only;
         self.minus_field_only |= other.minus_field_only;
@@ -484,11 +484,11 @@ pub(super) fn build_row(
         ));
     }
 
-    let mut coverage = Coverage::default();
+    let mut gaps = ConfigurationGaps::default();
     for slot in resistance_slots(layout) {
         if slot_resistance[slot].is_none() {
             raised.raise(flags::MISSING_CONFIGURATIONS);
-            coverage.missing |= 1 << slot;
+            gaps.missing |= 1 << slot;
         }
     }
 
@@ -609,9 +609,9 @@ pub(super) fn build_row(
         drift_mobility,
     ];
 
-    coverage.add(hall.coverage);
+    gaps.add(hall.gaps);
     let flags = raised.0;
-    if let Some(warning) = grouping_warning(group, field, flags, coverage, settings) {
+    if let Some(warning) = grouping_warning(group, field, flags, gaps, settings) {
         warnings.push(warning);
     }
     let reading_count = zero.count + field.map_or(0, |cells| cells.count);
@@ -815,7 +815,7 @@ fn grouping_warning(
     group: &TemperatureGroup<'_>,
     field: Option<&FieldCells>,
     raised: FlagSet,
-    coverage: Coverage,
+    gaps: ConfigurationGaps,
     settings: &ReduceSettings,
 ) -> Option<String> {
     // Most rows warn of nothing: the message is only formatted for those that do.
@@ -865,7 +865,7 @@ fn grouping_warning(
     // Resistance configurations, family by family (or all at once when none was measured).
     let resistance_bits = resistance_slots(layout).fold(0u8, |mask, slot| mask | (1 << slot));
     let families: &[[usize; 2]] = if geometry == Geometry::VanDerPauw
-        && coverage.missing & resistance_bits == resistance_bits
+        && gaps.missing & resistance_bits == resistance_bits
     {
         parts.push(format!(
             "no resistance configuration measured ({}), so resistance_a_ohm, resistance_b_ohm, resistance_ratio, geometry_factor, sheet_resistance_ohm_sq, resistivity_ohm_m and the mobilities are null; measure them",
@@ -877,7 +877,7 @@ fn grouping_warning(
     };
     for (index, family) in families.iter().enumerate() {
         let family_bits = family_mask(family);
-        let missing = coverage.missing & family_bits;
+        let missing = gaps.missing & family_bits;
         if missing == 0 {
             continue;
         }
@@ -927,8 +927,8 @@ fn grouping_warning(
         parts.push(text);
     }
     let hall_bits = layout.hall_slots.iter().fold(0u8, |mask, slot| mask | (1 << slot));
-    let missing_hall = coverage.missing & hall_bits;
-    let reversed_hall = hall_bits & !missing_hall & !coverage.plus_field_only & !coverage.minus_field_only;
+    let missing_hall = gaps.missing & hall_bits;
+    let reversed_hall = hall_bits & !missing_hall & !gaps.plus_field_only & !gaps.minus_field_only;
     if missing_hall == hall_bits {
         parts.push(format!(
             "no Hall configuration measured at this field ({}), so the Hall quantities are null; measure them at +B and -B",
@@ -944,8 +944,8 @@ fn grouping_warning(
     }
     let field_t = field.map_or(0.0, |cells| cells.field_t);
     for (mask, measured, other) in [
-        (coverage.plus_field_only, "+B", -field_t),
-        (coverage.minus_field_only, "-B", field_t),
+        (gaps.plus_field_only, "+B", -field_t),
+        (gaps.minus_field_only, "-B", field_t),
     ] {
         if mask == 0 {
             continue;
@@ -966,9 +966,9 @@ fn grouping_warning(
     // The grouping parameters matter only if the sample has the missing readings elsewhere,
     // in a row they might have been split from.
     let seen = group.seen;
-    let split = coverage.missing & seen.any != 0
-        || coverage.plus_field_only & seen.minus_field != 0
-        || coverage.minus_field_only & seen.plus_field != 0;
+    let split = gaps.missing & seen.any != 0
+        || gaps.plus_field_only & seen.minus_field != 0
+        || gaps.minus_field_only & seen.plus_field != 0;
     if split {
         parts.push(format!(
             "the sample has such readings in other rows: if one setpoint's readings were split, widen field_tolerance_T (now {} T, the width of a field setpoint) or zero_field_tolerance_T (now {} T), or temperature_tolerance_K (now {} K) for a temperature",
@@ -1209,7 +1209,7 @@ fn hall_resistance<'a>(
 ) -> HallPart {
     let mut odd_parts: Few<Estimate, 4> = Few::new();
     let mut misalignment: Few<f64, 2> = Few::new();
-    let mut coverage = Coverage::default();
+    let mut gaps = ConfigurationGaps::default();
     for slot in layout.hall_slots {
         let [plus, minus] = &field.cells[slot];
         for cell in [plus, minus].into_iter().flatten() {
@@ -1219,17 +1219,17 @@ fn hall_resistance<'a>(
             (Some(plus), Some(minus)) => (plus, minus),
             (None, None) => {
                 raised.raise(flags::MISSING_CONFIGURATIONS);
-                coverage.missing |= 1 << slot;
+                gaps.missing |= 1 << slot;
                 continue;
             }
             (Some(_), None) => {
                 raised.raise(flags::NO_FIELD_REVERSAL);
-                coverage.plus_field_only |= 1 << slot;
+                gaps.plus_field_only |= 1 << slot;
                 continue;
             }
             (None, Some(_)) => {
                 raised.raise(flags::NO_FIELD_REVERSAL);
-                coverage.minus_field_only |= 1 << slot;
+                gaps.minus_field_only |= 1 << slot;
                 continue;
             }
         };
@@ -1262,7 +1262,7 @@ fn hall_resistance<'a>(
         // The flags raised above (missing configuration, one field sign) or the missing
         // polarity found by the caller say why the Hall quantities are null.
         return HallPart {
-            coverage,
+            gaps,
             ..HallPart::default()
         };
     }
@@ -1306,6 +1306,6 @@ fn hall_resistance<'a>(
         hall_spread,
         misalignment_ratio,
         evidence: redundancy_evidence(odd_parts),
-        coverage,
+        gaps,
     }
 }

@@ -467,7 +467,7 @@ const OUTPUT: &[(&str, Option<&str>, &str, Source)] = &[
     (
         "hall_spread",
         None,
-        "(max - min) / |mean| of the Hall resistances of the configurations",
+        "(max - min) / |mean| of the Hall resistances of the configurations and current polarities (of the polarities only when one configuration was measured)",
         Source::Float(float_column::HALL_SPREAD),
     ),
     (

@@ -129,6 +129,15 @@ fn conform_column(frame: &mut DataFrame, spec: &ColumnSpec, role: &str, dataset:
         )));
     };
     let dtype = column.dtype().clone();
+    // A column with no value at all (an all-empty column of a CSV file imports as text)
+    // says nothing in any type: it is the declared type's nulls, as if every cell were empty.
+    if !column.is_empty() && column.null_count() == column.len() && !dtype.is_null() {
+        let nulls = Column::full_null(spec.name.as_str().into(), column.len(), &DataType::Null);
+        frame
+            .with_column(nulls)
+            .map_err(|e| ServiceError::new(ErrorKind::ColumnProblem, e.to_string()))?;
+        return conform_column(frame, spec, role, dataset);
+    }
     let mistyped = |expected: &str| {
         ServiceError::new(
             ErrorKind::ColumnProblem,
@@ -137,6 +146,11 @@ fn conform_column(frame: &mut DataFrame, spec: &ColumnSpec, role: &str, dataset:
                 spec.name
             ),
         )
+        .with_help(format!(
+            "give `{}` {expected}{} in every cell (an empty cell is no value), and import the dataset again (dataset.import); a column with no value at all is accepted whatever its type",
+            spec.name,
+            spec.unit.as_deref().map(|unit| format!(" (SI unit {unit})")).unwrap_or_default(),
+        ))
     };
     let target = match spec.dtype {
         ColumnType::F64 if dtype.is_primitive_numeric() || dtype.is_null() => DataType::Float64,
@@ -1007,6 +1021,27 @@ impl Service {
 mod tests {
     use super::*;
     use serde_json::json;
+
+    // A spreadsheet column left empty (a 2D sheet's thickness) imports as text with no value;
+    // it is the declared type's nulls. A column with text in it is refused with what to give.
+    #[test]
+    fn an_empty_column_is_nulls_of_the_declared_type_and_a_mistyped_one_says_what_to_give() {
+        let spec = ColumnSpec::new("thickness_m", ColumnType::F64, Some("m"), "thickness");
+        let mut frame = DataFrame::new(1, vec![Column::new("thickness_m".into(), [None::<&str>])]).unwrap();
+        conform_column(&mut frame, &spec, "samples", "sheet").unwrap();
+        let column = frame.column("thickness_m").unwrap();
+        assert_eq!(column.dtype(), &DataType::Float64);
+        assert_eq!(column.null_count(), 1);
+        let mut frame = DataFrame::new(1, vec![Column::new("thickness_m".into(), ["thin"])]).unwrap();
+        let error = conform_column(&mut frame, &spec, "samples", "sheet").unwrap_err();
+        assert!(
+            error.message.contains("column `thickness_m` of input `samples`"),
+            "{}",
+            error.message
+        );
+        let help = error.help.unwrap_or_default();
+        assert!(help.contains("give `thickness_m` numbers (SI unit m)"), "{help}");
+    }
 
     #[test]
     fn an_import_with_a_call_id_reports_its_progress_and_its_end() {

@@ -23,8 +23,10 @@
 //! (null for a 2D sheet), optional `thickness_m_unc`, `hall_factor` (r_H, default 1),
 //! `geometry` (`van_der_pauw`, the default, or `hall_bar`), and for Hall bars `bar_length_m`
 //! (the centre-to-centre distance of the longitudinal voltage contacts) and `bar_width_m`. A
-//! sample listed twice, or one in the readings but not in a given sheet, is an error. Without a
-//! sheet every sample is a 2D van der Pauw sample with Hall factor 1.
+//! sample listed twice, or one in the readings but not in a given sheet, is an error. A sheet
+//! column without any value is read as empty whatever type it was imported as (a spreadsheet
+//! column left blank imports as text). Without a sheet every sample is a 2D van der Pauw
+//! sample with Hall factor 1.
 //!
 //! # Calibrations
 //!
@@ -42,8 +44,11 @@
 //! One row per sample, temperature group and field magnitude; the columns are the `OUTPUT`
 //! table of this file, listed by `analysis.describe`. The quality flags, their thresholds and
 //! parameters are in [`reduce::flags`]; their defaults are common practice, not taken from a
-//! standard. Bad readings (zero current, NaN, a contact outside 1..4 or 1..6) are errors naming
-//! the reading; `skip_invalid_readings: true` drops them with warnings.
+//! standard. Bad readings (zero current, NaN, an empty contact cell, a contact outside 1..4 or
+//! 1..6, a magnitude no laboratory gives) are errors naming the reading;
+//! `skip_invalid_readings: true` drops them with warnings. A van der Pauw row with only R_A or
+//! only R_B has a null sheet resistance unless `assume_symmetric_sample` states the samples
+//! symmetric ([`reduce`], step 5).
 
 pub mod figures;
 pub mod reduce;
@@ -113,6 +118,13 @@ pub struct ReduceParams {
     /// refusing the input
     #[serde(default)]
     pub skip_invalid_readings: bool,
+    /// the van der Pauw samples are symmetric under a 90-degree rotation (R_A = R_B, e.g. a
+    /// cloverleaf with symmetric contacts): a row where only R_A or only R_B was measured
+    /// gets R_s = pi R / ln 2 from it (van der Pauw 1958), flagged assumed_symmetric, with an
+    /// uncertainty that does not include any asymmetry; by default such a row's sheet
+    /// resistance and mobility are null
+    #[serde(default)]
+    pub assume_symmetric_sample: bool,
     #[serde(default)]
     #[schemars(range(min = 0), description = format!("relative standard uncertainty of the field scale (gaussmeter, magnet constant); a sample-sheet column of the same name takes precedence; when not stated {} is assumed (common practice) and the summary says so", reduce::DEFAULT_FIELD_CALIBRATION_REL))]
     pub field_calibration_rel: Option<f64>,
@@ -173,6 +185,7 @@ impl ReduceParams {
                 current_reversal_tolerance: self.current_reversal_tolerance,
             },
             skip_invalid_readings: self.skip_invalid_readings,
+            assume_symmetric_sample: self.assume_symmetric_sample,
             calibration: Calibration {
                 field_rel: self.field_calibration_rel,
                 current_rel: self.current_calibration_rel,
@@ -238,31 +251,31 @@ const OUTPUT: &[(&str, Option<&str>, &str, Source)] = &[
     (
         "resistance_a_ohm",
         Some("ohm"),
-        "van der Pauw R_A (Hall bar: R_xx)",
+        "van der Pauw R_A, the mean of R_21,34 and R_43,12 measured (Hall bar: R_xx); null when none was measured",
         Source::Float(float_column::RESISTANCE_A),
     ),
     (
         "resistance_b_ohm",
         Some("ohm"),
-        "van der Pauw R_B",
+        "van der Pauw R_B, the mean of R_32,41 and R_14,23 measured; null when none was measured (never assumed equal to R_A)",
         Source::Float(float_column::RESISTANCE_B),
     ),
     (
         "resistance_ratio",
         None,
-        "max(R_A/R_B, R_B/R_A)",
+        "max(R_A/R_B, R_B/R_A); null unless both were measured",
         Source::Float(float_column::RESISTANCE_RATIO),
     ),
     (
         "geometry_factor",
         None,
-        "van der Pauw f of R_s = pi (R_A + R_B) f / (2 ln 2)",
+        "van der Pauw f of R_s = pi (R_A + R_B) f / (2 ln 2); null unless both were measured",
         Source::Float(float_column::GEOMETRY_FACTOR),
     ),
     (
         "sheet_resistance_ohm_sq",
         Some("ohm_sq"),
-        "sheet resistance from van der Pauw's exact equation (Hall bar: R_xx W / L)",
+        "sheet resistance from van der Pauw's exact equation, null unless R_A and R_B were both measured (Hall bar: R_xx W / L)",
         Source::Float(float_column::SHEET_RESISTANCE),
     ),
     (
@@ -454,7 +467,7 @@ const OUTPUT: &[(&str, Option<&str>, &str, Source)] = &[
     (
         "hall_spread",
         None,
-        "(max - min) / |mean| of the Hall resistances of the configurations",
+        "(max - min) / |mean| of the Hall resistances of the configurations and current polarities (of the polarities only when one configuration was measured)",
         Source::Float(float_column::HALL_SPREAD),
     ),
     (
@@ -484,7 +497,7 @@ const OUTPUT: &[(&str, Option<&str>, &str, Source)] = &[
     (
         "flags",
         None,
-        "raised quality flags, comma-separated (see DEVELOPERS.md)",
+        "raised quality flags, comma-separated",
         Source::Flags,
     ),
     (
@@ -736,14 +749,12 @@ fn integers<'a>(frame: &'a DataFrame, name: &str, storage: &'a mut Vec<i64>) -> 
     if let Ok(slice) = values.cont_slice() {
         return Ok(slice);
     }
-    *storage = Vec::with_capacity(values.len());
-    for (row, value) in values.iter().enumerate() {
-        storage.push(value.ok_or_else(|| {
-            AnalysisError::InvalidInput(format!(
-                "reading {row}: `{name}` is empty; every reading needs its four contact numbers"
-            ))
-        })?);
-    }
+    // An empty cell is an invalid reading, refused or skipped (skip_invalid_readings) by the
+    // reduction like any other, with the column it lacks.
+    *storage = values
+        .iter()
+        .map(|value| value.unwrap_or(reduce::EMPTY_CONTACT))
+        .collect();
     Ok(storage)
 }
 
@@ -784,11 +795,11 @@ fn contact_columns<'a>(frame: &'a DataFrame, storage: [&'a mut Vec<i64>; 4]) -> 
     })?;
     let mut parsed: Vec<[i64; 4]> = Vec::with_capacity(cells.len());
     for (row, cell) in cells.iter().enumerate() {
-        let cell = cell.ok_or_else(|| {
-            AnalysisError::InvalidInput(format!(
-                "reading {row}: `contacts` is empty; every reading needs its configuration, such as \"21,34\""
-            ))
-        })?;
+        // An empty cell is an invalid reading, as an empty contact column's cell is.
+        let Some(cell) = cell else {
+            parsed.push([reduce::EMPTY_CONTACTS_CELL; 4]);
+            continue;
+        };
         let contacts = mobilis_physics::contacts::parse_pair_notation(cell)
             .map_err(|error| AnalysisError::InvalidInput(format!("reading {row}: {error}")))?;
         parsed.push(contacts);
@@ -803,7 +814,8 @@ fn contact_columns<'a>(frame: &'a DataFrame, storage: [&'a mut Vec<i64>; 4]) -> 
         for (row, contacts) in parsed.iter().enumerate() {
             for (index, name) in CONTACT_COLUMNS.into_iter().enumerate() {
                 if let Some(&value) = given[index].get(row) {
-                    if value != contacts[index] {
+                    let either_empty = value == reduce::EMPTY_CONTACT || contacts[index] == reduce::EMPTY_CONTACTS_CELL;
+                    if !either_empty && value != contacts[index] {
                         return Err(AnalysisError::InvalidInput(format!(
                             "reading {row}: `contacts` says {name} = {}, the column {name} says {value}; give one of the two, or make them agree",
                             contacts[index]
@@ -829,10 +841,29 @@ fn contact_columns<'a>(frame: &'a DataFrame, storage: [&'a mut Vec<i64>; 4]) -> 
 /// Reads the sample sheet (role `samples`).
 fn sample_sheet(frame: &DataFrame) -> Result<Vec<SampleInfo>, AnalysisError> {
     let names = sdk::string_column(frame, "sample")?;
-    let thickness = sdk::float_column(frame, "thickness_m")?;
+    // A column with no value at all is nulls whatever its type: a spreadsheet column left
+    // empty (a 2D sheet's thickness_m) imports as text.
+    let is_empty = |name: &str| {
+        frame
+            .column(name)
+            .is_ok_and(|column| column.null_count() == column.len())
+    };
+    let sheet_floats = |name: &str, unit: &str| -> Result<Vec<Option<f64>>, AnalysisError> {
+        if is_empty(name) {
+            return Ok(vec![None; frame.height()]);
+        }
+        sdk::float_column(frame, name).map_err(|error| match frame.column(name) {
+            Ok(column) => AnalysisError::InvalidInput(format!(
+                "sample sheet column `{name}` holds {}, not numbers; give numbers{unit} in it (an empty cell is no value) and import the sheet again",
+                column.dtype()
+            )),
+            Err(_) => error,
+        })
+    };
+    let thickness = sheet_floats("thickness_m", " in metres, empty for a 2D sheet,")?;
     let optional_floats = |name: &str| -> Result<Vec<Option<f64>>, AnalysisError> {
         if frame.column(name).is_ok() {
-            sdk::float_column(frame, name)
+            sheet_floats(name, "")
         } else {
             Ok(vec![None; frame.height()])
         }
@@ -845,7 +876,7 @@ fn sample_sheet(frame: &DataFrame) -> Result<Vec<SampleInfo>, AnalysisError> {
     let current_calibration = optional_floats(calibration_names::CURRENT)?;
     let voltage_calibration = optional_floats(calibration_names::VOLTAGE)?;
     let temperature_accuracy = optional_floats(calibration_names::TEMPERATURE)?;
-    let geometry = if frame.column("geometry").is_ok() {
+    let geometry = if frame.column("geometry").is_ok() && !is_empty("geometry") {
         sdk::string_column(frame, "geometry")?
     } else {
         vec![None; frame.height()]
@@ -894,6 +925,15 @@ fn sample_sheet(frame: &DataFrame) -> Result<Vec<SampleInfo>, AnalysisError> {
     Ok(samples)
 }
 
+/// The flags column's description followed by every flag and what raises it.
+fn flags_description(description: &str) -> String {
+    let listed: Vec<String> = flags::DESCRIPTIONS
+        .iter()
+        .map(|(flag, meaning)| format!("{flag}: {meaning}"))
+        .collect();
+    format!("{description}: {}", listed.join("; "))
+}
+
 fn column(name: &str, dtype: ColumnType, unit: Option<&str>, description: &str) -> ColumnSpec {
     ColumnSpec::new(name, dtype, unit, description)
 }
@@ -907,7 +947,7 @@ impl Analysis for HallReduce {
         AnalysisDeclaration {
             name: String::new(),
             summary: "Raw van der Pauw or Hall-bar readings to sheet resistance, resistivity, carrier type, density and Hall mobility per sample, temperature and field".into(),
-            description: "Resistances from whichever configurations are present (current reversal by source sign or swapped leads), sheet resistance from van der Pauw's exact equation, Hall coefficient from the field-odd part of the diagonal (or transverse) configurations, so thermoelectric and misalignment offsets cancel. Uncertainty budget: _unc is the total, _unc_stat the reading noise pooled over the row's fit residuals and redundant configurations, _unc_sys the calibrations (thickness, field, current, voltage) common to a sample's series; temperature_K_unc the thermometer accuracy. Readings of a drifting stage are brought to the mean temperature; |B| up to zero_field_tolerance_T (10 mT) is zero field; field setpoints are never wider than field_tolerance_T. Quality flags with configurable thresholds. Contact numbering: counterclockwise 1-4 seen from the +B side (van der Pauw); 1-6 for Hall bars as described in DEVELOPERS.md.".into(),
+            description: "Resistances from whichever configurations are present (current reversal by source sign or swapped leads), sheet resistance from van der Pauw's exact equation, Hall coefficient from the field-odd part of the diagonal (or transverse) configurations, so thermoelectric and misalignment offsets cancel. Uncertainty budget: _unc is the total, _unc_stat the reading noise pooled over the row's fit residuals and redundant configurations, _unc_sys the calibrations (thickness, field, current, voltage) common to a sample's series; temperature_K_unc the thermometer accuracy. Readings of a drifting stage are brought to the mean temperature; |B| up to zero_field_tolerance_T (10 mT) is zero field; field setpoints are never wider than field_tolerance_T. Van der Pauw's equation needs both R_A and R_B: a row without either has a null sheet resistance and mobility (flag missing_configurations, and a warning naming what to measure), never one assumed from the other, unless assume_symmetric_sample states the sample symmetric (then R_s = pi R / ln 2, flag assumed_symmetric). Quality flags with configurable thresholds (the flags column lists them). Contact numbering, with configurations in pair notation (current in and out, then the voltage V+ V-): van der Pauw contacts 1-4 counterclockwise seen from the +B side, R_A from 21,34 and 43,12, R_B from 32,41 and 14,23, Hall from 13,24 and 24,31. Hall bar contacts 1-6: the current flows between 1 and 2 along the bar, 3 and 4 sit on the edge to the left of the current from 1 to 2 seen from the +B side, 5 opposite 3 and 6 opposite 4; longitudinal pairs 12,34 and 12,56, transverse (Hall) pairs 12,53 and 12,64.".into(),
             inputs: vec![
                 InputRole {
                     role: "readings".into(),
@@ -945,7 +985,11 @@ impl Analysis for HallReduce {
                     ],
                 },
             ],
-            outputs: OUTPUT.iter().map(|(name, unit, description, getter)| column(name, column_type(getter), *unit, description)).collect(),
+            outputs: OUTPUT.iter().map(|(name, unit, description, getter)| match getter {
+                // The flags column says what each flag means, from the one list of them.
+                Source::Flags => column(name, column_type(getter), *unit, &flags_description(description)),
+                _ => column(name, column_type(getter), *unit, description),
+            }).collect(),
             summary_keys: vec![
                 column("rows", I64, None, "rows of the output table"),
                 column("samples", Str, None, "list of the samples reduced"),
@@ -1068,6 +1112,37 @@ mod tests {
         van_der_pauw_readings, MeasurementProtocol, VanDerPauwSample, VoltageNoise,
     };
     use mobilis_sdk::sdk::run_typed;
+
+    // The description is where a user reads the contact numbering, and the flags column's
+    // description lists every flag: neither sends the user to a file outside the daemon.
+    #[test]
+    fn the_declaration_states_the_contact_numbering_and_the_flags() {
+        let declaration = HallReduce::declaration();
+        assert!(!declaration.description.contains("DEVELOPERS"));
+        for words in [
+            "counterclockwise seen from the +B side",
+            "R_B from 32,41 and 14,23",
+            "Hall bar contacts 1-6",
+            "5 opposite 3 and 6 opposite 4",
+            "transverse (Hall) pairs 12,53 and 12,64",
+        ] {
+            assert!(declaration.description.contains(words), "{words:?} missing");
+        }
+        let flags_column = declaration
+            .outputs
+            .iter()
+            .find(|column| column.name == "flags")
+            .expect("a flags column");
+        for flag in flags::ALL {
+            assert!(
+                flags_column.description.contains(&format!("{flag}: ")),
+                "{flag} is not described"
+            );
+        }
+        for output in &declaration.outputs {
+            assert!(!output.description.contains("DEVELOPERS"), "{}", output.name);
+        }
+    }
 
     // Runs of the sample column: short names (held in the view) and long ones (in a data
     // buffer), a name that comes back after another, a run across two chunks, and a null.
@@ -1332,6 +1407,64 @@ mod tests {
         assert!(
             message.contains("either a `contacts` column") && message.contains("i_in, i_out, v_pos, v_neg missing"),
             "{message}"
+        );
+    }
+
+    // An empty contact cell is an invalid reading like a zero current: refused with its
+    // reading and column, or skipped with a warning under skip_invalid_readings.
+    #[test]
+    fn empty_contact_cells_are_invalid_readings() {
+        let skip = |frame: DataFrame| {
+            let inputs = Inputs::from_tables([("readings".to_owned(), frame)]);
+            run_typed::<HallReduce>(r#"{"skip_invalid_readings": true}"#, &inputs, &Host::detached())
+        };
+        let complete = readings_frame();
+        let mut i_in: Vec<Option<i64>> = complete.column("i_in").unwrap().i64().unwrap().iter().collect();
+        i_in[1] = None;
+        let mut with_empty = complete.clone();
+        with_empty.with_column(Column::new("i_in".into(), i_in)).unwrap();
+        let Err(AnalysisError::InvalidInput(message)) = run_readings(with_empty.clone()) else {
+            panic!("an empty contact is refused without skip_invalid_readings")
+        };
+        assert!(
+            message.starts_with("reading 1 (sample \"w1\"): `i_in` is empty"),
+            "{message}"
+        );
+        assert!(message.contains("skip_invalid_readings"), "{message}");
+        let output = skip(with_empty).unwrap();
+        assert_eq!(output.summary["skipped_readings"], json!(1));
+        assert!(
+            output
+                .warnings
+                .iter()
+                .any(|warning| warning.starts_with("reading 1 (sample \"w1\") skipped: `i_in` is empty")),
+            "{:?}",
+            output.warnings
+        );
+        // The same for an empty cell of the pair notation.
+        let notation = with_contacts_notation(&complete);
+        let mut cells: Vec<Option<String>> = notation
+            .column("contacts")
+            .unwrap()
+            .str()
+            .unwrap()
+            .iter()
+            .map(|cell| cell.map(str::to_owned))
+            .collect();
+        cells[2] = None;
+        let mut with_empty_cell = notation.clone();
+        with_empty_cell
+            .with_column(Column::new("contacts".into(), cells))
+            .unwrap();
+        let output = skip(with_empty_cell).unwrap();
+        assert_eq!(output.summary["skipped_readings"], json!(1));
+        assert!(
+            output
+                .warnings
+                .iter()
+                .any(|warning| warning.starts_with("reading 2 (sample \"w1\") skipped: `contacts` is empty")),
+            "{:?}",
+            output.warnings
         );
     }
 }

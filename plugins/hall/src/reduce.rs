@@ -9,12 +9,18 @@
 //!
 //! 1. **Validation.** Every reading needs a finite temperature above 0 K, a finite field,
 //!    current and voltage, a nonzero current, and contacts that form a configuration of its
-//!    sample's geometry (`mobilis_physics::contacts`). An invalid reading is an error naming its
+//!    sample's geometry (`mobilis_physics::contacts`); an empty contact cell
+//!    ([`EMPTY_CONTACT`], [`EMPTY_CONTACTS_CELL`]) is an invalid reading like the others.
+//!    Magnitudes beyond [`LARGEST_READING_MAGNITUDE`] (1e30 A, V, T or K) and currents below
+//!    [`SMALLEST_CURRENT_A`] are refused too: no laboratory gives them, and their squares,
+//!    sums or V/I would overflow. An invalid reading is an error naming its
 //!    0-based index; with [`ReduceSettings::skip_invalid_readings`] it is dropped, counted and
 //!    reported as a warning instead (the first [`DETAILED_WARNINGS`] individually, the rest in
 //!    one summary line, so a bad million-row import does not produce a million warnings; the
 //!    warnings about single rows are capped the same way, since every affected row also
-//!    carries its flag). A sample with readings but no sheet row is an error listing every such name.
+//!    carries its flag). When no reading is left, the error names the first few invalid
+//!    ones with their reasons, since a refused call returns no warnings. A sample with
+//!    readings but no sheet row is an error listing every such name.
 //!    Without a sheet every sample is a 2D van der Pauw sample with Hall factor 1.
 //! 2. **Temperature groups.** Per sample, readings are sorted by temperature and consecutive
 //!    temperatures closer than `temperature_tolerance_K` (0.5 K) and than 5 % of the temperature
@@ -32,9 +38,12 @@
 //!    that wanders by tenths of a mT between readings stays one row, and each polarity's
 //!    field-odd part is divided by its own fields (step 6). Each setpoint gives one row; a group
 //!    without field readings gives one row with null Hall quantities and the flag
-//!    `no_field_data`. A row with a missing configuration or field sign warns and names
-//!    `field_tolerance_T`, `zero_field_tolerance_T` and `temperature_tolerance_K`, the
-//!    parameters that decide which readings share it.
+//!    `no_field_data`. A row with a missing configuration or field sign warns, naming each
+//!    configuration in pair notation ("32,41"), what it leaves null and what to measure
+//!    (the same configuration at the other field sign, for a Hall configuration seen at one
+//!    sign only: the field-odd part needs both); when the sample has such readings in other
+//!    rows, the warning also names `field_tolerance_T`, `zero_field_tolerance_T` and
+//!    `temperature_tolerance_K`, the parameters that decide which readings share a row.
 //! 4. **Canonical readings and fits.** Each reading is put in the canonical orientation of its
 //!    configuration (I_c = current_sign * current_A, V_c = voltage_sign * voltage_V), so a
 //!    current reversed by the source sign and one reversed by swapping the leads are the same
@@ -54,8 +63,16 @@
 //!    (which sees inhomogeneity and contact effects) and the configurations' own standard
 //!    errors over the number averaged (which see noise). The reciprocity mismatch is
 //!    |direct - reciprocal| / mean, the larger of the two families. When one family is
-//!    absent the sample is assumed symmetric (R_B = R_A, `missing_configurations`) and the
-//!    uncertainty propagates as fully correlated. The sheet resistance solves van der Pauw's
+//!    absent its column is null, and so are the resistance ratio, the geometry factor, the
+//!    sheet resistance, the resistivity and the mobilities (`missing_configurations`): van
+//!    der Pauw's equation needs both R_A and R_B (L. J. van der Pauw, Philips Res. Rep. 13,
+//!    1 (1958)), and R_s = pi R / ln 2 from one of them holds only for a sample symmetric
+//!    under a 90-degree rotation, which the readings cannot show. The Hall quantities need
+//!    no R_s and are reported. A lab that knows its samples are so symmetric says so with
+//!    [`ReduceSettings::assume_symmetric_sample`]: such a row then gets R_s = pi R / ln 2
+//!    from the family measured, with that family's uncertainty (which cannot see an
+//!    asymmetry) and the flag `assumed_symmetric`; the missing family, the ratio and the
+//!    geometry factor stay null. The sheet resistance solves van der Pauw's
 //!    equation exactly (`mobilis_physics::van_der_pauw`; geometry factor f from the same
 //!    solution) and its uncertainty uses the exact gradient. A resistance that is not
 //!    positive, which no uniform sample gives in canonical orientation, nulls the sheet
@@ -72,7 +89,10 @@
 //!    When the fields at +B and -B differ (a wandering setpoint), each rho_k is
 //!    (V/I at +B1 - V/I at -B2) / (B1 + B2) times the row's |B|, each B the mean |B| of that
 //!    polarity's readings, so that R_Hs B1 and R_Hs B2 are divided by their own fields.
-//!    R_xy is the mean of the rho_k. R_Hs = R_xy / |B| with |B| the mean of the mean
+//!    R_xy is the mean of the rho_k. With one Hall configuration only
+//!    (`missing_configurations`) the rho_k are its two current polarities, so `hall_spread`
+//!    and the scatter-based uncertainty see the noise and the polarities but not the
+//!    difference between the configurations, which the warning says. R_Hs = R_xy / |B| with |B| the mean of the mean
 //!    |B| at +B and at -B (positive for holes, the sign convention of the NIST Hall-effect
 //!    pages); n_s = r_H / (e |R_Hs|); n = n_s / t; R_H = R_Hs t; mu_H = |R_Hs| / R_s (free of
 //!    the Hall factor and of the thickness); drift mobility mu_H / r_H. A magnitude with no
@@ -234,11 +254,11 @@ pub use contract::{
     calibration_names, float_column, Calibration, CalibrationUsed, Geometry, QualityThresholds, ReduceSettings,
     ReducedRow, Reduction, SampleInfo,
 };
-pub use error::{ReadingProblem, ReduceError};
+pub use error::{ReadingProblem, ReduceError, LARGEST_READING_MAGNITUDE, SMALLEST_CURRENT_A};
 pub use row::FlagSet;
 use row::{
-    build_row, draft_row, FieldCells, ResolvedCalibration, ResolvedSample, RowDraft, RowRecord, TemperatureGroup,
-    ZeroFieldCells,
+    build_row, draft_row, FieldCells, ResolvedCalibration, ResolvedSample, RowDraft, RowRecord, SlotsSeen,
+    TemperatureGroup, ZeroFieldCells,
 };
 use table::SampleReduction;
 pub use table::{FloatColumn, ReductionTable};
@@ -246,6 +266,16 @@ pub use table::{FloatColumn, ReductionTable};
 /// How many skipped readings, and separately how many rows, get a warning of their own
 /// before the rest are summarized in one line.
 pub const DETAILED_WARNINGS: usize = 20;
+
+/// How many invalid readings the error of a call without a valid one names, with reasons.
+const FIRST_PROBLEMS_IN_ERROR: usize = 3;
+
+/// A contact number that was not given: an empty cell of a contact column (`i_in`,
+/// `i_out`, `v_pos`, `v_neg`). The reading is invalid and says which cell is empty.
+pub const EMPTY_CONTACT: i64 = i64::MIN;
+
+/// The four contact numbers of a reading whose `contacts` cell (pair notation) is empty.
+pub const EMPTY_CONTACTS_CELL: i64 = i64::MIN + 1;
 
 /// The values assumed when a calibration is not stated (common practice, shared by every
 /// analysis that applies calibrations).
@@ -561,21 +591,29 @@ fn reduce_source<S: ReadingSource>(
         }
     }
     let skipped = invalid.len();
+    let mut warnings_of_skipped = Vec::new();
     for &(index, rank) in invalid.iter().take(DETAILED_WARNINGS) {
         let sample = resolved[rank as usize].name;
         let problem = problem_at(index, rank);
-        warnings.push(format!("reading {index} (sample {sample:?}) skipped: {problem}"));
+        warnings_of_skipped.push(format!("reading {index} (sample {sample:?}) skipped: {problem}"));
     }
     if skipped > DETAILED_WARNINGS {
-        warnings.push(format!(
+        warnings_of_skipped.push(format!(
             "{} further invalid readings skipped ({skipped} in all)",
             skipped - DETAILED_WARNINGS
         ));
     }
     let mut reduced: Vec<SampleReduction> = outcomes.into_iter().filter_map(|outcome| outcome.reduction).collect();
     if reduced.is_empty() {
-        return Err(ReduceError::NoValidReadings { total, skipped });
+        // A refused call returns no warnings: the error carries the first reasons itself.
+        let first_problems = warnings_of_skipped.into_iter().take(FIRST_PROBLEMS_IN_ERROR).collect();
+        return Err(ReduceError::NoValidReadings {
+            total,
+            skipped,
+            first_problems,
+        });
     }
+    warnings.extend(warnings_of_skipped);
     let table::BuiltColumns {
         height,
         floats,
@@ -738,6 +776,17 @@ fn reduce_sample(
         settings.temperature_tolerance_k,
     );
     let group_count = temperature_ranges.len();
+    // Which configurations the series has at all, so that a row's warning about a missing
+    // one can tell a reading never taken from one grouped into another row.
+    let seen = sample_readings.iter().fold(SlotsSeen::default(), |seen, reading| {
+        let bit = 1u8 << reading.slot;
+        let in_field = reading.field_t.abs() > settings.zero_field_tolerance_t;
+        SlotsSeen {
+            any: seen.any | bit,
+            plus_field: seen.plus_field | if in_field && reading.field_t > 0.0 { bit } else { 0 },
+            minus_field: seen.minus_field | if in_field && reading.field_t < 0.0 { bit } else { 0 },
+        }
+    });
     // A group's rows are final only after the last pass that touches it, and until then
     // the drift slopes read only its first row's sheet resistance and sheet Hall
     // coefficient. So a group whose readings drift is first drafted (`Detail::Values`) in
@@ -765,13 +814,14 @@ fn reduce_sample(
         let start = final_rows.len();
         let largest = if drifts {
             as_measured.extend_from_slice(readings);
-            let (draft, largest) = draft_temperature_group(readings, sample, settings, None);
+            let (draft, largest) = draft_temperature_group(readings, sample, seen, settings, None);
             drafts.push(draft);
             largest
         } else {
             let largest = reduce_temperature_group(
                 readings,
                 sample,
+                seen,
                 settings,
                 None,
                 &mut final_rows,
@@ -812,7 +862,7 @@ fn reduce_sample(
                 corrected.clear();
                 corrected.extend_from_slice(readings);
                 correct_drift(&mut corrected, group_slopes, sample.geometry);
-                drafts[index] = draft_temperature_group(&mut corrected, sample, settings, Some(group_slopes)).0;
+                drafts[index] = draft_temperature_group(&mut corrected, sample, seen, settings, Some(group_slopes)).0;
             }
         }
         if !any {
@@ -846,6 +896,7 @@ fn reduce_sample(
             reduce_temperature_group(
                 readings,
                 sample,
+                seen,
                 settings,
                 corrections[index],
                 &mut records,
@@ -1163,12 +1214,13 @@ impl ContactTables {
 /// look at (to refuse it with its reason, or to classify contacts outside the table).
 #[inline]
 fn prepare_valid(view: &ReadingView, sample_rank: u32, table: &[u8; 4096]) -> Option<Prepared> {
-    let valid = view.temperature_k.is_finite()
-        & (view.temperature_k > 0.0)
-        & view.field_t.is_finite()
-        & view.current_a.is_finite()
-        & (view.current_a != 0.0)
-        & view.voltage_v.is_finite();
+    // Each bound is false for NaN, so the finite tests are folded into them.
+    let valid = (view.temperature_k > 0.0)
+        & (view.temperature_k <= LARGEST_READING_MAGNITUDE)
+        & (view.field_t.abs() <= LARGEST_READING_MAGNITUDE)
+        & (view.current_a.abs() >= SMALLEST_CURRENT_A)
+        & (view.current_a.abs() <= LARGEST_READING_MAGNITUDE)
+        & (view.voltage_v.abs() <= LARGEST_READING_MAGNITUDE);
     if !valid {
         return None;
     }
@@ -1215,6 +1267,36 @@ fn prepare(
     }
     if !view.voltage_v.is_finite() {
         return Err(ReadingProblem::NonFiniteVoltage(view.voltage_v));
+    }
+    let beyond = |column: &'static str, value: f64, unit: &'static str| {
+        (value.abs() > LARGEST_READING_MAGNITUDE).then_some(ReadingProblem::BeyondRange { column, value, unit })
+    };
+    if let Some(problem) = beyond("temperature_K", view.temperature_k, "K")
+        .or_else(|| beyond("field_T", view.field_t, "T"))
+        .or_else(|| beyond("current_A", view.current_a, "A"))
+        .or_else(|| beyond("voltage_V", view.voltage_v, "V"))
+    {
+        return Err(problem);
+    }
+    if view.current_a.abs() < SMALLEST_CURRENT_A {
+        return Err(ReadingProblem::CurrentTooSmall(view.current_a));
+    }
+    let contacts = [
+        ("i_in", view.i_in),
+        ("i_out", view.i_out),
+        ("v_pos", view.v_pos),
+        ("v_neg", view.v_neg),
+    ];
+    if contacts.iter().any(|(_, contact)| *contact == EMPTY_CONTACTS_CELL) {
+        return Err(ReadingProblem::EmptyContacts(vec!["contacts"]));
+    }
+    let empty: Vec<&'static str> = contacts
+        .iter()
+        .filter(|(_, contact)| *contact == EMPTY_CONTACT)
+        .map(|(name, _)| *name)
+        .collect();
+    if !empty.is_empty() {
+        return Err(ReadingProblem::EmptyContacts(empty));
     }
     if let Some((slot, current_sign, voltage_sign)) = tables.classify(geometry, view) {
         return Ok(Prepared {
@@ -1375,6 +1457,7 @@ const STRICT_ZERO_FIELD_T: f64 = 1e-4;
 fn reduce_temperature_group(
     readings: &mut [Prepared],
     sample: &ResolvedSample<'_>,
+    seen: SlotsSeen,
     settings: &ReduceSettings,
     drift_correction: Option<DriftSlopes>,
     rows: &mut Vec<RowRecord>,
@@ -1383,6 +1466,7 @@ fn reduce_temperature_group(
     walk_temperature_group(
         readings,
         sample,
+        seen,
         settings,
         drift_correction,
         Detail::Full,
@@ -1399,6 +1483,7 @@ fn reduce_temperature_group(
 fn draft_temperature_group(
     readings: &mut [Prepared],
     sample: &ResolvedSample<'_>,
+    seen: SlotsSeen,
     settings: &ReduceSettings,
     drift_correction: Option<DriftSlopes>,
 ) -> (RowDraft, f64) {
@@ -1406,6 +1491,7 @@ fn draft_temperature_group(
     let largest_zero_field_t = walk_temperature_group(
         readings,
         sample,
+        seen,
         settings,
         drift_correction,
         Detail::Values,
@@ -1427,6 +1513,7 @@ fn draft_temperature_group(
 fn walk_temperature_group(
     readings: &mut [Prepared],
     sample: &ResolvedSample<'_>,
+    seen: SlotsSeen,
     settings: &ReduceSettings,
     drift_correction: Option<DriftSlopes>,
     detail: Detail,
@@ -1464,6 +1551,8 @@ fn walk_temperature_group(
         temperature_spread_k,
         temperature_reading_unc_k,
         drift_corrected: drift_correction.is_some(),
+        seen,
+        assume_symmetric: settings.assume_symmetric_sample,
     };
 
     readings.sort_unstable_by(|a, b| a.field_t.abs().total_cmp(&b.field_t.abs()));

@@ -611,3 +611,166 @@ fn the_stdio_transport_speaks_content_length_frames() {
         .expect("the parse error");
     assert_eq!(parse_error["error"]["code"], -32700);
 }
+
+/// Whether a reading drives its current along an edge of van der Pauw family B (2-3 or 1-4).
+fn is_family_b(reading: &RawReading) -> bool {
+    matches!(
+        (reading.i_in.min(reading.i_out), reading.i_in.max(reading.i_out)),
+        (2, 3) | (1, 4)
+    )
+}
+
+// What a new user met with unusual but realistic input: a value never measured is never
+// reported, an unusable reading is skipped or refused with its reason, and a sheet column
+// left empty in a spreadsheet is no value. The daemon serves on and keeps what it stored.
+#[tokio::test(flavor = "multi_thread")]
+async fn unusual_readings_get_honest_rows_or_errors_that_say_what_to_change() {
+    let daemon = TestDaemon::start().await;
+    let readings: Vec<RawReading> = generate_readings()
+        .into_iter()
+        .filter(|reading| reading.sample == "p-film" && reading.temperature_k == 300.0)
+        .collect();
+
+    // R_B never measured: no sheet resistance made up from R_A alone (van der Pauw's
+    // equation needs both, L. J. van der Pauw, Philips Res. Rep. 13, 1 (1958)).
+    let without_b: Vec<RawReading> = readings.iter().filter(|r| !is_family_b(r)).cloned().collect();
+    daemon
+        .call(
+            "dataset.import",
+            json!({"name": "without-b", "columns": readings_json_columns(&without_b)}),
+        )
+        .await;
+    let run = daemon
+        .call(
+            "analysis.run",
+            json!({"analysis": "hall.reduce", "inputs": {"readings": "without-b"}, "output": "reduced-without-b"}),
+        )
+        .await;
+    let page = daemon.call("dataset.rows", json!({"name": "reduced-without-b"})).await;
+    assert!(float_column(&page, "resistance_a_ohm")[0].is_some());
+    for column in [
+        "resistance_b_ohm",
+        "resistance_ratio",
+        "geometry_factor",
+        "sheet_resistance_ohm_sq",
+        "sheet_resistance_ohm_sq_unc",
+        "hall_mobility_m2_per_Vs",
+    ] {
+        assert_eq!(float_column(&page, column), vec![None], "{column}");
+    }
+    assert!(float_column(&page, "sheet_density_m2")[0].is_some());
+    let warnings = run["warnings"].to_string();
+    for words in ["R_B not measured", "32,41", "14,23", "sheet_resistance_ohm_sq"] {
+        assert!(warnings.contains(words), "{words:?} missing from {warnings}");
+    }
+    assert!(!warnings.contains("field_tolerance_T"), "{warnings}");
+
+    // +B only: the warning asks for readings at -B.
+    let plus_only: Vec<RawReading> = readings.iter().filter(|r| r.field_t >= 0.0).cloned().collect();
+    daemon
+        .call(
+            "dataset.import",
+            json!({"name": "plus-only", "columns": readings_json_columns(&plus_only)}),
+        )
+        .await;
+    let run = daemon
+        .call(
+            "analysis.run",
+            json!({"analysis": "hall.reduce", "inputs": {"readings": "plus-only"}, "output": "reduced-plus-only"}),
+        )
+        .await;
+    let warnings = run["warnings"].to_string();
+    assert!(warnings.contains("measured at +B only"), "{warnings}");
+    assert!(warnings.contains("needs readings at both field signs"), "{warnings}");
+
+    // An empty contact cell is skipped like any invalid reading.
+    let mut columns = readings_json_columns(&readings);
+    columns["i_in"][0] = Value::Null;
+    daemon
+        .call("dataset.import", json!({"name": "empty-contact", "columns": columns}))
+        .await;
+    let run = daemon
+        .call(
+            "analysis.run",
+            json!({"analysis": "hall.reduce", "inputs": {"readings": "empty-contact"}, "output": "reduced-skipping",
+                   "params": {"skip_invalid_readings": true}}),
+        )
+        .await;
+    assert_eq!(run["summary"]["skipped_readings"], 1, "{run}");
+    assert!(run["warnings"].to_string().contains("`i_in` is empty"), "{run}");
+
+    // Currents beyond any laboratory's are refused with their column, not a NaN resistance.
+    let mut columns = readings_json_columns(&readings);
+    for index in 0..readings.len() {
+        columns["current_A"][index] = json!(readings[index].current_a * 1e299);
+        columns["voltage_V"][index] = json!(readings[index].voltage_v * 1e299);
+    }
+    daemon
+        .call("dataset.import", json!({"name": "huge", "columns": columns}))
+        .await;
+    let message = daemon
+        .call_refused(
+            "analysis.run",
+            json!({"analysis": "hall.reduce", "inputs": {"readings": "huge"}, "output": "x"}),
+            4007,
+            &["reading 0", "current_A is", "beyond the 1e30 A"],
+        )
+        .await;
+    assert!(!message.contains("NaN"), "{message}");
+    // Every reading invalid: the error itself carries the first reasons.
+    daemon
+        .call_refused(
+            "analysis.run",
+            json!({"analysis": "hall.reduce", "inputs": {"readings": "huge"}, "output": "x",
+                   "params": {"skip_invalid_readings": true}}),
+            4007,
+            &[
+                "readings are invalid",
+                "the first 3 with its reason",
+                "reading 0 (sample \"p-film\") skipped: current_A is",
+            ],
+        )
+        .await;
+
+    // A 2D sheet whose thickness_m column was left empty in the spreadsheet.
+    std::fs::write(
+        daemon.data.join("sheet.csv"),
+        "sample,thickness_m,hall_factor\np-film,,\n",
+    )
+    .unwrap();
+    daemon
+        .call("dataset.import", json!({"name": "sheet", "path": "sheet.csv"}))
+        .await;
+    daemon
+        .call(
+            "dataset.import",
+            json!({"name": "full", "columns": readings_json_columns(&readings)}),
+        )
+        .await;
+    daemon
+        .call(
+            "analysis.run",
+            json!({"analysis": "hall.reduce", "inputs": {"readings": "full", "samples": "sheet"}, "output": "reduced-2d"}),
+        )
+        .await;
+    let page = daemon.call("dataset.rows", json!({"name": "reduced-2d"})).await;
+    assert!(float_column(&page, "sheet_resistance_ohm_sq")[0].is_some());
+    assert_eq!(float_column(&page, "resistivity_ohm_m"), vec![None]);
+    // A sheet column with text in it is refused with what to change.
+    std::fs::write(daemon.data.join("sheet-text.csv"), "sample,thickness_m\np-film,thin\n").unwrap();
+    daemon
+        .call(
+            "dataset.import",
+            json!({"name": "sheet-text", "path": "sheet-text.csv"}),
+        )
+        .await;
+    let (code, message) = daemon
+        .call_error(
+            "analysis.run",
+            json!({"analysis": "hall.reduce", "inputs": {"readings": "full", "samples": "sheet-text"}, "output": "x"}),
+        )
+        .await;
+    assert_eq!(code, 4004, "{message}");
+    assert!(message.contains("`thickness_m`"), "{message}");
+    assert_still_serving(&daemon).await;
+}

@@ -149,6 +149,10 @@ pub struct ReduceSettings {
     pub thresholds: QualityThresholds,
     /// Drop invalid readings with a warning instead of refusing the input. Default false.
     pub skip_invalid_readings: bool,
+    /// The lab states that its van der Pauw samples are symmetric under a 90-degree rotation
+    /// (R_A = R_B): a row with one family only then gets R_s = pi R / ln 2 from it, flagged
+    /// `assumed_symmetric`. Default false: such a row's sheet resistance is null.
+    pub assume_symmetric_sample: bool,
 }
 
 impl Default for ReduceSettings {
@@ -160,6 +164,7 @@ impl Default for ReduceSettings {
             calibration: Calibration::default(),
             thresholds: QualityThresholds::default(),
             skip_invalid_readings: false,
+            assume_symmetric_sample: false,
         }
     }
 }

@@ -6,6 +6,16 @@
 
 use mobilis_physics::contacts::ContactError;
 
+/// The largest magnitude of a reading's current, voltage, field and temperature: far
+/// beyond any laboratory value (1e30 A, V, T or K), and far enough below the largest
+/// double (1.8e308) that the squares and sums of ten million readings stay finite. A
+/// reading beyond it is invalid: it can only be a unit or export error.
+pub const LARGEST_READING_MAGNITUDE: f64 = 1e30;
+
+/// The smallest |current_A| of a valid reading: far below any current source (1e-30 A),
+/// so that V/I of the largest voltage stays finite with room for its square.
+pub const SMALLEST_CURRENT_A: f64 = 1e-30;
+
 /// What is wrong with one reading. Carried by [`ReduceError::InvalidReading`], and turned
 /// into a warning when the reading is skipped.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -29,6 +39,30 @@ pub enum ReadingProblem {
     /// `voltage_V` is NaN or infinite.
     #[error("voltage_V is {0}; give the finite measured voltage in volt, or drop an overloaded reading")]
     NonFiniteVoltage(f64),
+    /// A magnitude beyond [`LARGEST_READING_MAGNITUDE`]:
+    /// no laboratory value, and its squares and sums would overflow.
+    #[error(
+        "{column} is {value:e}, beyond the {largest:e} {unit} the reduction can square and sum without overflow; check the column's unit (dataset.import units) or drop the reading",
+        largest = LARGEST_READING_MAGNITUDE
+    )]
+    BeyondRange {
+        column: &'static str,
+        value: f64,
+        unit: &'static str,
+    },
+    /// |`current_A`| below [`SMALLEST_CURRENT_A`]: no source
+    /// current, and V/I would overflow.
+    #[error(
+        "current_A is {0:e}, below the {smallest:e} A of any current source, where V/I overflows; check the column's unit (dataset.import units) or drop the reading",
+        smallest = SMALLEST_CURRENT_A
+    )]
+    CurrentTooSmall(f64),
+    /// Contact cells are empty: the columns named, or the `contacts` cell.
+    #[error(
+        "{} empty; give every reading its contacts (i_in, i_out, v_pos, v_neg, or contacts in pair notation such as \"21,34\"), or drop the reading",
+        empty_contacts(.0)
+    )]
+    EmptyContacts(Vec<&'static str>),
     /// The contacts are not a configuration of the sample's geometry.
     #[error(
         "{error} (the sample is measured as {geometry}; declare it {} in the sample sheet if it is one)",
@@ -68,9 +102,9 @@ pub enum ReduceError {
         "thickness_m of sample {sample:?} is {thickness_m}; give a positive thickness in metres, or null for a 2D sheet"
     )]
     InvalidThickness { sample: String, thickness_m: f64 },
-    /// `thickness_unc_m` is negative or not finite.
+    /// `thickness_m_unc` is negative or not finite.
     #[error(
-        "thickness_unc_m of sample {sample:?} is {thickness_unc_m}; give a non-negative standard uncertainty in metres, or null"
+        "thickness_m_unc of sample {sample:?} is {thickness_unc_m}; give a non-negative standard uncertainty in metres, or null"
     )]
     InvalidThicknessUncertainty { sample: String, thickness_unc_m: f64 },
     /// `hall_factor` is zero, negative or not finite.
@@ -89,7 +123,7 @@ pub enum ReduceError {
     },
     /// A Hall bar's length or width is zero, negative or not finite.
     #[error(
-        "Hall bar {sample:?} has length {length_m} m and width {width_m} m; give the positive distance between the longitudinal voltage contacts and the bar width, in metres"
+        "Hall bar {sample:?} has bar_length_m = {length_m} and bar_width_m = {width_m}; give the positive distance between the longitudinal voltage contacts and the bar width, in metres"
     )]
     InvalidHallBarDimensions {
         sample: String,
@@ -112,9 +146,14 @@ pub enum ReduceError {
         length: usize,
         expected: usize,
     },
-    /// Nothing left to reduce.
-    #[error("{}", no_valid_readings(*.total, *.skipped))]
-    NoValidReadings { total: usize, skipped: usize },
+    /// Nothing left to reduce. `first_problems` are the first few invalid readings, each
+    /// with its index, sample and reason, since a refused call carries no warnings.
+    #[error("{}", no_valid_readings(*.total, *.skipped, .first_problems))]
+    NoValidReadings {
+        total: usize,
+        skipped: usize,
+        first_problems: Vec<String>,
+    },
 }
 
 /// The other geometry, named as the sample sheet would declare it.
@@ -133,10 +172,24 @@ fn quoted_list(samples: &[String]) -> String {
 }
 
 /// An empty table and a table of only invalid readings need different advice.
-fn no_valid_readings(total: usize, skipped: usize) -> String {
+fn no_valid_readings(total: usize, skipped: usize, first_problems: &[String]) -> String {
     if total == 0 {
-        "the readings table is empty; give at least one four-terminal reading".to_owned()
-    } else {
-        format!("all {total} readings are invalid ({skipped} skipped); see the warnings and correct the readings")
+        return "the readings table is empty; give at least one four-terminal reading".to_owned();
     }
+    let listed = if first_problems.len() < skipped {
+        format!("the first {}", first_problems.len())
+    } else {
+        "each".to_owned()
+    };
+    format!(
+        "all {total} readings are invalid ({skipped} skipped), {listed} with its reason: {}; correct the readings",
+        first_problems.join("; ")
+    )
+}
+
+/// The empty contact cells, as a message begins: "`i_in` is", "`i_in`, `v_neg` are".
+fn empty_contacts(columns: &[&str]) -> String {
+    let names: Vec<String> = columns.iter().map(|name| format!("`{name}`")).collect();
+    let verb = if names.len() == 1 { "is" } else { "are" };
+    format!("{} {verb}", names.join(", "))
 }

@@ -12,7 +12,8 @@
 //! `current_reversal_tolerance` 0.03. They are common practice, not taken from a standard: a
 //! lab with other habits sets its own. The flags without a threshold (`missing_configurations`,
 //! `no_field_reversal`, `no_current_reversal`, `resistance_from_field_readings`,
-//! `no_field_data`, `nonpositive_resistance`) say what was not measured or cannot be.
+//! `no_field_data`, `nonpositive_resistance`) say what was not measured or cannot be;
+//! `assumed_symmetric` says a sheet resistance rests on the call's `assume_symmetric_sample`.
 
 /// R_A's (or R_B's) direct and reciprocal configurations differ by more than
 /// `reciprocity_tolerance` relative to their mean.
@@ -33,7 +34,9 @@ pub const LARGE_OFFSET: &str = "large_offset";
 /// thermoelectric voltages).
 pub const CURRENT_REVERSAL: &str = "current_reversal";
 /// A resistance configuration (4 for van der Pauw, 2 longitudinal pairs for a Hall bar) or a
-/// Hall configuration (2 diagonals, 2 transverse pairs) has no reading in this row.
+/// Hall configuration (2 diagonals, 2 transverse pairs) has no reading in this row. A van der
+/// Pauw family (R_A or R_B) without any reading leaves its resistance, the ratio, the
+/// geometry factor, the sheet resistance and the mobilities null: nothing is assumed.
 pub const MISSING_CONFIGURATIONS: &str = "missing_configurations";
 /// A Hall configuration at this field magnitude was measured at one field sign only; when no
 /// configuration has both signs the Hall quantities are null.
@@ -52,8 +55,13 @@ pub const NO_FIELD_DATA: &str = "no_field_data";
 /// broken. The sheet resistance and mobility are null.
 pub const NONPOSITIVE_RESISTANCE: &str = "nonpositive_resistance";
 
+/// One van der Pauw family was measured and `assume_symmetric_sample` is set: the sheet
+/// resistance is pi R / ln 2 from that family, exact only for a sample symmetric under a
+/// 90-degree rotation, and its uncertainty does not include any asymmetry.
+pub const ASSUMED_SYMMETRIC: &str = "assumed_symmetric";
+
 /// Every flag, in the order a row lists them.
-pub const ALL: [&str; 11] = [
+pub const ALL: [&str; 12] = [
     RECIPROCITY,
     RESISTANCE_RATIO,
     HALL_INCONSISTENT,
@@ -65,10 +73,11 @@ pub const ALL: [&str; 11] = [
     RESISTANCE_FROM_FIELD_READINGS,
     NO_FIELD_DATA,
     NONPOSITIVE_RESISTANCE,
+    ASSUMED_SYMMETRIC,
 ];
 
 /// One-line descriptions for a plugin's `describe` output, in the order of [`ALL`].
-pub const DESCRIPTIONS: [(&str, &str); 11] = [
+pub const DESCRIPTIONS: [(&str, &str); 12] = [
     (
         RECIPROCITY,
         "direct and reciprocal resistance configurations differ by more than reciprocity_tolerance",
@@ -88,7 +97,7 @@ pub const DESCRIPTIONS: [(&str, &str); 11] = [
     ),
     (
         MISSING_CONFIGURATIONS,
-        "a resistance or Hall configuration has no reading",
+        "a resistance or Hall configuration has no reading; without R_A or R_B the sheet resistance is null",
     ),
     (
         NO_FIELD_REVERSAL,
@@ -106,5 +115,9 @@ pub const DESCRIPTIONS: [(&str, &str); 11] = [
     (
         NONPOSITIVE_RESISTANCE,
         "a resistance came out zero or negative: check contact numbering and wiring",
+    ),
+    (
+        ASSUMED_SYMMETRIC,
+        "one of R_A and R_B measured: sheet resistance pi R / ln 2 under assume_symmetric_sample",
     ),
 ];

@@ -5,6 +5,7 @@
 //! The physics and the choices behind it are documented in the parent module.
 
 use mobilis_physics::constants::ELEMENTARY_CHARGE_C;
+use mobilis_physics::contacts::Configuration;
 use mobilis_physics::van_der_pauw;
 
 use super::cells::{
@@ -341,6 +342,10 @@ pub(super) struct TemperatureGroup<'a> {
     pub temperature_reading_unc_k: f64,
     /// Whether the readings were brought to the mean temperature (second pass).
     pub drift_corrected: bool,
+    /// The configurations the sample has readings of anywhere in its series.
+    pub seen: SlotsSeen,
+    /// `assume_symmetric_sample`: one van der Pauw family gives the sheet resistance.
+    pub assume_symmetric: bool,
 }
 
 /// The raised flags of a row, kept in the order of [`flags::ALL`].
@@ -373,6 +378,29 @@ struct HallPart {
     hall_spread: Option<f64>,
     misalignment_ratio: Option<f64>,
     evidence: NoiseEvidence,
+    /// The Hall configurations without a reading at this field, and those with one field
+    /// sign only, by slot.
+    gaps: ConfigurationGaps,
+}
+
+/// Which configurations of a row lack readings, by slot bit, so that a warning can name
+/// them and say what to measure.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub(super) struct ConfigurationGaps {
+    /// Configurations with no reading in the row.
+    pub missing: u8,
+    /// Hall configurations measured at +B only.
+    pub plus_field_only: u8,
+    /// Hall configurations measured at -B only.
+    pub minus_field_only: u8,
+}
+
+impl ConfigurationGaps {
+    fn add(&mut self, other: ConfigurationGaps) {
+        self.missing |= other.missing;
+        self.plus_field_only |= other.plus_field_only;
+        self.minus_field_only |= other.minus_field_only;
+    }
 }
 
 /// Relative uncertainty of a product or quotient of independent factors.
@@ -456,9 +484,11 @@ pub(super) fn build_row(
         ));
     }
 
+    let mut gaps = ConfigurationGaps::default();
     for slot in resistance_slots(layout) {
         if slot_resistance[slot].is_none() {
             raised.raise(flags::MISSING_CONFIGURATIONS);
+            gaps.missing |= 1 << slot;
         }
     }
 
@@ -579,8 +609,9 @@ pub(super) fn build_row(
         drift_mobility,
     ];
 
+    gaps.add(hall.gaps);
     let flags = raised.0;
-    if let Some(warning) = grouping_warning(group, field, flags, settings) {
+    if let Some(warning) = grouping_warning(group, field, flags, gaps, settings) {
         warnings.push(warning);
     }
     let reading_count = zero.count + field.map_or(0, |cells| cells.count);
@@ -777,12 +808,14 @@ pub(super) fn finish_row(record: &RowRecord, hall_factor: f64, series: &SeriesBu
     (values, present)
 }
 
-/// For a row that lacks configurations, field signs or field readings: what is missing and
-/// the grouping parameters that decide which readings share the row.
+/// For a row that lacks configurations, field signs or field readings: what is missing, what
+/// it leaves null and what to measure; and, when the sample has such readings in other rows,
+/// the grouping parameters that decide which readings share a row.
 fn grouping_warning(
     group: &TemperatureGroup<'_>,
     field: Option<&FieldCells>,
     raised: FlagSet,
+    gaps: ConfigurationGaps,
     settings: &ReduceSettings,
 ) -> Option<String> {
     // Most rows warn of nothing: the message is only formatted for those that do.
@@ -796,31 +829,173 @@ fn grouping_warning(
     if !warns {
         return None;
     }
+    let geometry = group.sample.geometry;
+    let layout = layout(geometry);
     let at = match field {
         Some(cells) => format!("|B| = {:.4} T", cells.field_t),
         None => "zero field".to_owned(),
     };
     let place = format!("sample {:?} at {:.3} K, {at}", group.sample.name, group.temperature_k);
+    let mut parts: Vec<String> = Vec::new();
     if raised.contains(flags::NO_FIELD_DATA) {
-        return Some(format!(
-            "{place}: no reading above zero_field_tolerance_T = {} T, so no Hall quantities; lower zero_field_tolerance_T if the Hall field is below it",
+        parts.push(format!(
+            "no reading above zero_field_tolerance_T = {} T, so no Hall quantities; lower zero_field_tolerance_T if the Hall field is below it, or measure the Hall configurations at +B and -B",
             settings.zero_field_tolerance_t
         ));
     }
-    if raised.contains(flags::MISSING_CONFIGURATIONS) || raised.contains(flags::NO_FIELD_REVERSAL) {
-        return Some(format!(
-            "{place}: {} in this row; if one setpoint's readings were split, widen field_tolerance_T (now {} T, the width of a field setpoint) or zero_field_tolerance_T (now {} T), or temperature_tolerance_K (now {} K) for a temperature",
-            raised
-                .iter()
-                .filter(|flag| [flags::MISSING_CONFIGURATIONS, flags::NO_FIELD_REVERSAL].contains(flag))
-                .collect::<Vec<_>>()
-                .join(" and "),
-            settings.field_tolerance_t,
-            settings.zero_field_tolerance_t,
-            settings.temperature_tolerance_k
+    // Pair notation has a comma inside each label, so labels are joined by "and".
+    let labels = |mask: u8| -> String {
+        (0..MAX_SLOTS)
+            .filter(|slot| mask & (1 << slot) != 0)
+            .map(|slot| configuration_label(geometry, slot))
+            .collect::<Vec<_>>()
+            .join(" and ")
+    };
+    let several = |mask: u8| mask.count_ones() > 1;
+    let configurations = |mask: u8| {
+        let noun = if several(mask) {
+            "configurations"
+        } else {
+            "configuration"
+        };
+        format!("{noun} {}", labels(mask))
+    };
+    let them = |mask: u8| if several(mask) { "them" } else { "it" };
+    let family_mask = |family: &[usize; 2]| family.iter().fold(0u8, |mask, slot| mask | (1 << slot));
+    // Resistance configurations, family by family (or all at once when none was measured).
+    let resistance_bits = resistance_slots(layout).fold(0u8, |mask, slot| mask | (1 << slot));
+    let families: &[[usize; 2]] = if geometry == Geometry::VanDerPauw
+        && gaps.missing & resistance_bits == resistance_bits
+    {
+        parts.push(format!(
+            "no resistance configuration measured ({}), so resistance_a_ohm, resistance_b_ohm, resistance_ratio, geometry_factor, sheet_resistance_ohm_sq, resistivity_ohm_m and the mobilities are null; measure them",
+            labels(resistance_bits)
+        ));
+        &[]
+    } else {
+        layout.families
+    };
+    for (index, family) in families.iter().enumerate() {
+        let family_bits = family_mask(family);
+        let missing = gaps.missing & family_bits;
+        if missing == 0 {
+            continue;
+        }
+        let present = family_bits & !missing;
+        let text = match (geometry, present == 0) {
+            (Geometry::VanDerPauw, true) => {
+                let (name, column, other) = if index == 0 {
+                    ("R_A", "resistance_a_ohm", "R_B")
+                } else {
+                    ("R_B", "resistance_b_ohm", "R_A")
+                };
+                if raised.contains(flags::ASSUMED_SYMMETRIC) {
+                    parts.push(format!(
+                        "{name} not measured ({}): sheet_resistance_ohm_sq is pi {other} / ln 2 under assume_symmetric_sample, exact only for a sample symmetric under a 90-degree rotation, and its uncertainty does not include any asymmetry; {column}, resistance_ratio and geometry_factor are null; measure {} to check the symmetry",
+                        configurations(missing),
+                        labels(missing),
+                    ));
+                    continue;
+                }
+                format!(
+                    "{name} not measured ({}): van der Pauw's equation needs both R_A and R_B, and {other} alone gives the sheet resistance only for a sample symmetric under a 90-degree rotation, so {column}, resistance_ratio, geometry_factor, sheet_resistance_ohm_sq, resistivity_ohm_m and the mobilities are null; measure {} (either one gives {name}, both check its reciprocity)",
+                    configurations(missing),
+                    labels(missing),
+                )
+            }
+            (Geometry::VanDerPauw, false) => {
+                let name = if index == 0 { "R_A" } else { "R_B" };
+                format!(
+                    "{} not measured: {name} rests on {} alone and its reciprocity is not checked; measure {} as well",
+                    configurations(missing),
+                    labels(present),
+                    them(missing),
+                )
+            }
+            (Geometry::HallBar { .. }, true) => format!(
+                "no longitudinal configuration measured ({}), so resistance_a_ohm (R_xx), sheet_resistance_ohm_sq, resistivity_ohm_m and the mobilities are null; measure {}",
+                labels(missing),
+                them(missing),
+            ),
+            (Geometry::HallBar { .. }, false) => format!(
+                "longitudinal {} not measured: R_xx rests on {} alone (one edge of the bar); measure {} as well",
+                configurations(missing),
+                labels(present),
+                them(missing),
+            ),
+        };
+        parts.push(text);
+    }
+    let hall_bits = layout.hall_slots.iter().fold(0u8, |mask, slot| mask | (1 << slot));
+    let missing_hall = gaps.missing & hall_bits;
+    let reversed_hall = hall_bits & !missing_hall & !gaps.plus_field_only & !gaps.minus_field_only;
+    if missing_hall == hall_bits {
+        parts.push(format!(
+            "no Hall configuration measured at this field ({}), so the Hall quantities are null; measure them at +B and -B",
+            labels(missing_hall)
+        ));
+    } else if missing_hall != 0 {
+        parts.push(format!(
+            "Hall {} not measured: the Hall resistance rests on {} alone, so hall_spread and the uncertainty compare its current polarities only, not the two configurations; measure {} as well",
+            configurations(missing_hall),
+            labels(hall_bits & !missing_hall),
+            them(missing_hall),
         ));
     }
-    None
+    let field_t = field.map_or(0.0, |cells| cells.field_t);
+    for (mask, measured, other) in [
+        (gaps.plus_field_only, "+B", -field_t),
+        (gaps.minus_field_only, "-B", field_t),
+    ] {
+        if mask == 0 {
+            continue;
+        }
+        let consequence = if reversed_hall == 0 {
+            "so the Hall quantities are null"
+        } else if several(mask) {
+            "so they do not enter the Hall resistance"
+        } else {
+            "so it does not enter the Hall resistance"
+        };
+        parts.push(format!(
+            "Hall {} measured at {measured} only: the Hall voltage is the part odd in the field, which needs readings at both field signs, {consequence}; measure {} at {other:.4} T as well",
+            configurations(mask),
+            them(mask),
+        ));
+    }
+    // The grouping parameters matter only if the sample has the missing readings elsewhere,
+    // in a row they might have been split from.
+    let seen = group.seen;
+    let split = gaps.missing & seen.any != 0
+        || gaps.plus_field_only & seen.minus_field != 0
+        || gaps.minus_field_only & seen.plus_field != 0;
+    if split {
+        parts.push(format!(
+            "the sample has such readings in other rows: if one setpoint's readings were split, widen field_tolerance_T (now {} T, the width of a field setpoint) or zero_field_tolerance_T (now {} T), or temperature_tolerance_K (now {} K) for a temperature",
+            settings.field_tolerance_t, settings.zero_field_tolerance_t, settings.temperature_tolerance_k
+        ));
+    }
+    Some(format!("{place}: {}", parts.join("; ")))
+}
+
+/// A configuration of the geometry by its slot, in pair notation (`mobilis_physics::contacts`:
+/// current in and out, then the voltage pair): "21,34".
+pub(super) fn configuration_label(geometry: Geometry, slot: usize) -> String {
+    let configuration = match geometry {
+        Geometry::VanDerPauw => Configuration::VAN_DER_PAUW[slot],
+        Geometry::HallBar { .. } => Configuration::HALL_BAR[slot],
+    };
+    let [i_in, i_out, v_pos, v_neg] = configuration.canonical_contacts();
+    format!("{i_in}{i_out},{v_pos}{v_neg}")
+}
+
+/// Which configurations a sample has readings of anywhere in its series, by slot bit: at
+/// any field, and at positive and negative field beyond `zero_field_tolerance_T`.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub(super) struct SlotsSeen {
+    pub any: u8,
+    pub plus_field: u8,
+    pub minus_field: u8,
 }
 
 fn exceeds(value: Option<f64>, limit: f64) -> bool {
@@ -854,6 +1029,10 @@ fn field_even_resistance<'a>(cells: &'a [Option<CellSummary>; 2], used_cells: &m
 }
 
 #[inline(always)]
+#[allow(
+    clippy::neg_cmp_op_on_partial_ord,
+    reason = "`!(x > 0.0)` refuses NaN too, in one test"
+)]
 fn van_der_pauw_resistance(
     slot_resistance: &[Option<Estimate>; MAX_SLOTS],
     group: &TemperatureGroup<'_>,
@@ -884,39 +1063,49 @@ fn van_der_pauw_resistance(
     };
     let family_a = family_estimate(VAN_DER_PAUW_LAYOUT.families[0]);
     let family_b = family_estimate(VAN_DER_PAUW_LAYOUT.families[1]);
-    // One family absent: assume the symmetric sample (R_B = R_A). The two are then one
-    // measurement, so their uncertainties add linearly, not in quadrature.
-    let (resistance_a, resistance_b, fully_correlated) = match (family_a, family_b) {
-        (Some(a), Some(b)) => (a, b, false),
-        (Some(a), None) => (a, a, true),
-        (None, Some(b)) => (b, b, true),
-        (None, None) => {
-            return ResistancePart {
-                reciprocity_mismatch,
-                evidence,
-                ..ResistancePart::default()
-            }
-        }
-    };
+    // Van der Pauw's equation needs both R_A and R_B (van der Pauw, Philips Res. Rep. 13, 1
+    // (1958)); with one family only, R_s = pi R / ln 2 would hold only for a sample
+    // symmetric under a 90-degree rotation, which nothing in the readings shows. So the
+    // family measured is reported, the other stays null, and so does everything that needs
+    // both: the ratio, the factor f and the sheet resistance (`missing_configurations`,
+    // whose warning names what to measure).
     let mut part = ResistancePart {
-        resistance_a_ohm: Some(resistance_a.value),
-        resistance_b_ohm: Some(resistance_b.value),
+        resistance_a_ohm: family_a.map(|a| a.value),
+        resistance_b_ohm: family_b.map(|b| b.value),
         reciprocity_mismatch,
         evidence,
         ..ResistancePart::default()
     };
-    if !(resistance_a.value > 0.0 && resistance_b.value > 0.0) {
-        if detail == Detail::Values {
-            return part;
+    if let Some(measured) = [family_a, family_b]
+        .into_iter()
+        .flatten()
+        .find(|family| !(family.value > 0.0))
+    {
+        // A nonpositive resistance is reported whether or not the other family exists.
+        if detail == Detail::Full {
+            let values = match (family_a, family_b) {
+                (Some(a), Some(b)) => format!("R_A = {} ohm, R_B = {} ohm", a.value, b.value),
+                (Some(a), None) => format!("R_A = {} ohm", a.value),
+                _ => format!("R_B = {} ohm", measured.value),
+            };
+            raise_nonpositive(group, &values, raised, warnings);
         }
-        raise_nonpositive(
-            group,
-            &format!("R_A = {} ohm, R_B = {} ohm", resistance_a.value, resistance_b.value),
-            raised,
-            warnings,
-        );
         return part;
     }
+    let (resistance_a, resistance_b) = match (family_a, family_b) {
+        (Some(a), Some(b)) => (a, b),
+        (Some(only), None) | (None, Some(only)) if group.assume_symmetric => {
+            // The lab states R_A = R_B: van der Pauw's equation then gives R_s = pi R / ln 2
+            // exactly, and the uncertainty is that of the one family measured (nothing in the
+            // readings bounds an asymmetry).
+            part.sheet_resistance = Some(only.scaled(std::f64::consts::PI / std::f64::consts::LN_2));
+            if detail == Detail::Full {
+                raised.raise(flags::ASSUMED_SYMMETRIC);
+            }
+            return part;
+        }
+        _ => return part,
+    };
     let (a, b) = (resistance_a.value, resistance_b.value);
     if detail == Detail::Values {
         part.sheet_resistance = van_der_pauw::sheet_resistance(a, b).ok().map(|value| Estimate {
@@ -936,24 +1125,16 @@ fn van_der_pauw_resistance(
     part.geometry_factor = solution.map(|solution| solution.correction_factor());
     part.sheet_resistance = sheet.map(|value| {
         let standard_error = gradient.and_then(|(gradient_a, gradient_b)| {
-            if fully_correlated {
-                resistance_a.standard_error.map(|u| (gradient_a + gradient_b) * u)
-            } else {
-                quadrature(&[
-                    resistance_a.standard_error.map(|u| gradient_a * u),
-                    resistance_b.standard_error.map(|u| gradient_b * u),
-                ])
-            }
+            quadrature(&[
+                resistance_a.standard_error.map(|u| gradient_a * u),
+                resistance_b.standard_error.map(|u| gradient_b * u),
+            ])
         });
         let noise_coefficient = gradient.map_or(0.0, |(gradient_a, gradient_b)| {
-            if fully_correlated {
-                (gradient_a + gradient_b) * resistance_a.noise_coefficient
-            } else {
-                quadrature_sum(
-                    gradient_a * resistance_a.noise_coefficient,
-                    gradient_b * resistance_b.noise_coefficient,
-                )
-            }
+            quadrature_sum(
+                gradient_a * resistance_a.noise_coefficient,
+                gradient_b * resistance_b.noise_coefficient,
+            )
         });
         Estimate {
             value,
@@ -1028,6 +1209,7 @@ fn hall_resistance<'a>(
 ) -> HallPart {
     let mut odd_parts: Few<Estimate, 4> = Few::new();
     let mut misalignment: Few<f64, 2> = Few::new();
+    let mut gaps = ConfigurationGaps::default();
     for slot in layout.hall_slots {
         let [plus, minus] = &field.cells[slot];
         for cell in [plus, minus].into_iter().flatten() {
@@ -1037,10 +1219,17 @@ fn hall_resistance<'a>(
             (Some(plus), Some(minus)) => (plus, minus),
             (None, None) => {
                 raised.raise(flags::MISSING_CONFIGURATIONS);
+                gaps.missing |= 1 << slot;
                 continue;
             }
-            _ => {
+            (Some(_), None) => {
                 raised.raise(flags::NO_FIELD_REVERSAL);
+                gaps.plus_field_only |= 1 << slot;
+                continue;
+            }
+            (None, Some(_)) => {
+                raised.raise(flags::NO_FIELD_REVERSAL);
+                gaps.minus_field_only |= 1 << slot;
                 continue;
             }
         };
@@ -1072,7 +1261,10 @@ fn hall_resistance<'a>(
     if odd_parts.is_empty() {
         // The flags raised above (missing configuration, one field sign) or the missing
         // polarity found by the caller say why the Hall quantities are null.
-        return HallPart::default();
+        return HallPart {
+            gaps,
+            ..HallPart::default()
+        };
     }
     let mut odd_storage = [Estimate::default(); 4];
     let odd_count = estimates(&odd_parts, &mut odd_storage);
@@ -1114,5 +1306,6 @@ fn hall_resistance<'a>(
         hall_spread,
         misalignment_ratio,
         evidence: redundancy_evidence(odd_parts),
+        gaps,
     }
 }

@@ -884,7 +884,16 @@ fn no_field_reversal_nulls_the_hall_quantities() {
         .into_iter()
         .filter(|reading| reading.field_t >= 0.0)
         .collect();
-    let row = reduce_default(&readings).rows.remove(0);
+    let reduction = reduce_default(&readings);
+    let warnings = reduction.warnings.join("\n");
+    assert!(
+        warnings.contains("Hall configurations 13,24 and 24,31 measured at +B only"),
+        "{warnings}"
+    );
+
+    assert!(warnings.contains("measure them at -0.5000 T as well"), "{warnings}");
+    assert!(!warnings.contains("field_tolerance_T"), "{warnings}");
+    let row = reduction.rows[0].clone();
     assert!(row.flags.contains(&flags::NO_FIELD_REVERSAL), "flags {:?}", row.flags);
     assert!(!row.quality_ok);
     assert_eq!(row.field_t, Some(0.5));
@@ -937,18 +946,169 @@ fn resistance_from_field_readings_when_there_is_no_zero_field() {
     );
 }
 
+/// Whether a reading drives its current along an edge of family B (2-3 or 1-4).
+fn is_family_b(reading: &RawReading) -> bool {
+    matches!(
+        (reading.i_in.min(reading.i_out), reading.i_in.max(reading.i_out)),
+        (2, 3) | (1, 4)
+    )
+}
+
+// Van der Pauw's equation needs R_A and R_B (L. J. van der Pauw, Philips Res. Rep. 13, 1
+// (1958)): a family never measured is not made up from the other one.
 #[test]
-fn missing_family_assumes_symmetry_and_flags_it() {
-    let model = VanDerPauwModel::symmetric(100.0, 50.0);
-    // Drop every R_B reading (current on the edges 2-3 and 1-4).
+fn missing_family_is_null_and_so_is_the_sheet_resistance() {
+    // An asymmetric sample, so that assuming R_B = R_A would give a wrong R_s.
+    let model = VanDerPauwModel::asymmetric(100.0, 150.0, 50.0);
     let readings: Vec<RawReading> = nist_readings(&model, "s", 300.0, 0.5, 1e-3)
         .into_iter()
-        .filter(|r| !matches!((r.i_in.min(r.i_out), r.i_in.max(r.i_out)), (2, 3) | (1, 4)))
+        .filter(|reading| !is_family_b(reading))
         .collect();
-    let row = reduce_default(&readings).rows.remove(0);
-    assert!(row.flags.contains(&flags::MISSING_CONFIGURATIONS));
-    assert_eq!(row.resistance_b_ohm, row.resistance_a_ohm);
+    let reduction = reduce_default(&readings);
+    let row = single_row(&reduction);
+    assert_eq!(row.flags, vec![flags::MISSING_CONFIGURATIONS]);
+    assert_close(row.resistance_a_ohm, 100.0, 1e-12, "R_A");
+    for (what, value) in [
+        ("resistance_b_ohm", row.resistance_b_ohm),
+        ("resistance_ratio", row.resistance_ratio),
+        ("geometry_factor", row.geometry_factor),
+        ("sheet_resistance_ohm_sq", row.sheet_resistance_ohm_sq),
+        ("sheet_resistance_ohm_sq_unc", row.sheet_resistance_ohm_sq_unc),
+        ("hall_mobility_m2_per_Vs", row.hall_mobility_m2_per_vs),
+        ("drift_mobility_m2_per_Vs", row.drift_mobility_m2_per_vs),
+    ] {
+        assert_eq!(value, None, "{what} was not measured");
+    }
+    // The Hall part needs no R_s.
+    assert_close(row.sheet_hall_coefficient_m2_per_c, 50.0, 1e-12, "R_Hs");
+    assert_eq!(row.carrier_type, Some("p"));
+    // The warning names what is missing and what to measure, and does not send the user to
+    // the grouping tolerances: no R_B reading exists anywhere in the series.
+    let warning = reduction
+        .warnings
+        .iter()
+        .find(|warning| warning.contains("R_B not measured"))
+        .unwrap_or_else(|| panic!("{:?}", reduction.warnings));
+    for words in [
+        "32,41",
+        "14,23",
+        "sheet_resistance_ohm_sq",
+        "resistance_b_ohm",
+        "measure",
+    ] {
+        assert!(warning.contains(words), "{words:?} missing from {warning}");
+    }
+    assert!(!warning.contains("field_tolerance_T"), "{warning}");
+}
+
+// R_s = pi R / ln 2 for a sample symmetric under a 90-degree rotation (L. J. van der Pauw,
+// Philips Res. Rep. 13, 1 (1958)), when the lab states that symmetry.
+#[test]
+fn a_lab_that_states_the_symmetry_gets_pi_r_over_ln2_flagged() {
+    let model = VanDerPauwModel::symmetric(100.0, 50.0);
+    let readings: Vec<RawReading> = nist_readings(&model, "s", 300.0, 0.5, 1e-3)
+        .into_iter()
+        .filter(|reading| !is_family_b(reading))
+        .collect();
+    let settings = ReduceSettings {
+        assume_symmetric_sample: true,
+        ..ReduceSettings::default()
+    };
+    let reduction = reduce(&readings, None, &settings).unwrap();
+    let row = single_row(&reduction);
+    assert_eq!(row.flags, vec![flags::MISSING_CONFIGURATIONS, flags::ASSUMED_SYMMETRIC]);
     assert_close(row.sheet_resistance_ohm_sq, PI * 100.0 / LN_2, 1e-12, "R_s");
+    assert_close(row.hall_mobility_m2_per_vs, 50.0 / (PI * 100.0 / LN_2), 1e-12, "mu_H");
+    assert!(row.sheet_resistance_ohm_sq_unc.is_some());
+    for (what, value) in [
+        ("resistance_b_ohm", row.resistance_b_ohm),
+        ("resistance_ratio", row.resistance_ratio),
+        ("geometry_factor", row.geometry_factor),
+    ] {
+        assert_eq!(value, None, "{what} was not measured");
+    }
+    let warnings = reduction.warnings.join("\n");
+    assert!(
+        warnings.contains("sheet_resistance_ohm_sq is pi R_A / ln 2 under assume_symmetric_sample"),
+        "{warnings}"
+    );
+    assert!(warnings.contains("does not include any asymmetry"), "{warnings}");
+    // With both families measured the parameter changes nothing.
+    let full = nist_readings(&VanDerPauwModel::asymmetric(100.0, 150.0, 50.0), "s", 300.0, 0.5, 1e-3);
+    assert_eq!(reduce(&full, None, &settings).unwrap().rows, reduce_default(&full).rows);
+}
+
+#[test]
+fn missing_family_a_and_a_single_reading_are_null_too() {
+    let model = VanDerPauwModel::asymmetric(100.0, 150.0, 50.0);
+    let without_a: Vec<RawReading> = nist_readings(&model, "s", 300.0, 0.5, 1e-3)
+        .into_iter()
+        .filter(|reading| reading.field_t != 0.0 || is_family_b(reading))
+        .collect();
+    let row = reduce_default(&without_a).rows.remove(0);
+    assert_eq!(row.resistance_a_ohm, None);
+    assert_close(row.resistance_b_ohm, 150.0, 1e-12, "R_B");
+    assert_eq!(row.sheet_resistance_ohm_sq, None);
+    assert_eq!(row.geometry_factor, None);
+    // A file of one reading: R_21,34 alone.
+    let single = [model.reading("s", 300.0, 0.0, [2, 1, 3, 4], 1e-3)];
+    let reduction = reduce_default(&single);
+    let row = single_row(&reduction);
+    assert_close(row.resistance_a_ohm, 100.0, 1e-12, "R_A");
+    assert_eq!(row.resistance_b_ohm, None);
+    assert_eq!(row.sheet_resistance_ohm_sq, None);
+    assert!(row.flags.contains(&flags::MISSING_CONFIGURATIONS));
+    let warnings = reduction.warnings.join("\n");
+    for words in ["43,12", "R_B not measured", "32,41"] {
+        assert!(warnings.contains(words), "{words:?} missing from {warnings}");
+    }
+}
+
+#[test]
+fn a_missing_reciprocal_configuration_keeps_the_family_and_says_so() {
+    let model = VanDerPauwModel::asymmetric(100.0, 150.0, 50.0);
+    // Drop R_43,12 and R_34,21, the reciprocal configuration of R_A.
+    let readings: Vec<RawReading> = nist_readings(&model, "s", 300.0, 0.5, 1e-3)
+        .into_iter()
+        .filter(|reading| {
+            !matches!(
+                (reading.i_in.min(reading.i_out), reading.i_in.max(reading.i_out)),
+                (3, 4)
+            )
+        })
+        .collect();
+    let reduction = reduce_default(&readings);
+    let row = single_row(&reduction);
+    assert_close(
+        row.sheet_resistance_ohm_sq,
+        mobilis_physics::van_der_pauw::sheet_resistance(100.0, 150.0).unwrap(),
+        1e-12,
+        "R_s",
+    );
+    let warnings = reduction.warnings.join("\n");
+    assert!(
+        warnings.contains("configuration 43,12 not measured: R_A rests on 21,34 alone"),
+        "{warnings}"
+    );
+}
+
+#[test]
+fn a_configuration_split_into_another_row_points_to_the_tolerances() {
+    let model = VanDerPauwModel::asymmetric(100.0, 150.0, 50.0);
+    // The R_B readings logged 2 K warmer: a second temperature group of their own.
+    let readings: Vec<RawReading> = nist_readings(&model, "s", 300.0, 0.5, 1e-3)
+        .into_iter()
+        .map(|mut reading| {
+            if is_family_b(&reading) {
+                reading.temperature_k = 302.0;
+            }
+            reading
+        })
+        .collect();
+    let reduction = reduce_default(&readings);
+    let warnings = reduction.warnings.join("\n");
+    assert!(warnings.contains("R_B not measured"), "{warnings}");
+    assert!(warnings.contains("temperature_tolerance_K (now 0.5 K)"), "{warnings}");
 }
 
 #[test]
@@ -958,9 +1118,53 @@ fn missing_hall_diagonal_is_flagged_but_the_other_one_is_used() {
         .into_iter()
         .filter(|r| !(r.field_t != 0.0 && (r.i_in == 2 || r.i_in == 4)))
         .collect();
-    let row = reduce_default(&readings).rows.remove(0);
+    let reduction = reduce_default(&readings);
+    let row = single_row(&reduction);
     assert_eq!(row.flags, vec![flags::MISSING_CONFIGURATIONS]);
     assert_close(row.sheet_hall_coefficient_m2_per_c, 50.0, 1e-12, "R_Hs");
+    let warnings = reduction.warnings.join("\n");
+    assert!(
+        warnings.contains("Hall configuration 24,31 not measured: the Hall resistance rests on 13,24 alone"),
+        "{warnings}"
+    );
+    assert!(!warnings.contains("field_tolerance_T"), "{warnings}");
+}
+
+#[test]
+fn a_hall_bar_with_one_longitudinal_pair_names_the_other() {
+    let model = HallBarModel {
+        longitudinal_ohm: 42.1,
+        sheet_hall_coefficient_m2_per_c: -62.4,
+        misalignment_ohm: 0.0,
+        contact_emf_v: [0.0; 6],
+    };
+    let sheet = SampleInfo {
+        name: "bar".into(),
+        thickness_m: None,
+        thickness_unc_m: None,
+        hall_factor: 1.0,
+        geometry: Geometry::HallBar {
+            length_m: 600e-6,
+            width_m: 200e-6,
+        },
+        calibration: Calibration::default(),
+    };
+    // Only the edge 3-4 measured along the bar: R_xx is a measurement of its own.
+    let readings: Vec<RawReading> = model
+        .readings("bar", 77.0, 1.0, 1e-3)
+        .into_iter()
+        .filter(|reading| reading.v_pos.min(reading.v_neg) != 5 || reading.v_pos.max(reading.v_neg) != 6)
+        .collect();
+    let reduction = reduce(&readings, Some(&[sheet]), &ReduceSettings::default()).unwrap();
+    let row = single_row(&reduction);
+    assert_close(row.resistance_a_ohm, 42.1, 1e-12, "R_xx");
+    assert_close(row.sheet_resistance_ohm_sq, 42.1 * 200.0 / 600.0, 1e-12, "R_s");
+    assert_eq!(row.resistance_b_ohm, None);
+    let warnings = reduction.warnings.join("\n");
+    assert!(
+        warnings.contains("longitudinal configuration 12,56 not measured: R_xx rests on 12,34 alone"),
+        "{warnings}"
+    );
 }
 
 #[test]
@@ -1287,7 +1491,14 @@ fn row_warnings_are_capped() {
 #[test]
 fn empty_or_all_invalid_input_is_refused() {
     let error = reduce(&[], None, &ReduceSettings::default()).unwrap_err();
-    assert_eq!(error, ReduceError::NoValidReadings { total: 0, skipped: 0 });
+    assert_eq!(
+        error,
+        ReduceError::NoValidReadings {
+            total: 0,
+            skipped: 0,
+            first_problems: Vec::new()
+        }
+    );
     let model = VanDerPauwModel::symmetric(100.0, 50.0);
     let mut reading = model.reading("s", 300.0, 0.0, [2, 1, 3, 4], 1e-3);
     reading.current_a = 0.0;
@@ -1295,8 +1506,86 @@ fn empty_or_all_invalid_input_is_refused() {
         skip_invalid_readings: true,
         ..ReduceSettings::default()
     };
-    let error = reduce(&[reading], None, &settings).unwrap_err();
-    assert_eq!(error, ReduceError::NoValidReadings { total: 1, skipped: 1 });
+    let error = reduce(&[reading.clone()], None, &settings).unwrap_err();
+    assert!(matches!(
+        error,
+        ReduceError::NoValidReadings {
+            total: 1,
+            skipped: 1,
+            ..
+        }
+    ));
+    // A refused call returns no warnings, so the error itself gives the reasons.
+    let message = error.to_string();
+    assert!(
+        message.contains("each with its reason: reading 0 (sample \"s\") skipped: current_A is 0"),
+        "{message}"
+    );
+    let many = vec![reading; 16];
+    let message = reduce(&many, None, &settings).unwrap_err().to_string();
+    assert!(
+        message.starts_with("all 16 readings are invalid (16 skipped), the first 3 with its reason: reading 0"),
+        "{message}"
+    );
+    assert!(
+        message.contains("reading 2 (sample") && !message.contains("reading 3 (sample"),
+        "{message}"
+    );
+}
+
+// Values far beyond any laboratory's (a unit or export error) are invalid readings with
+// their column and reason, not a NaN resistance blamed on the contact numbering.
+#[test]
+fn overflowing_magnitudes_are_invalid_readings() {
+    let model = VanDerPauwModel::symmetric(100.0, 50.0);
+    let readings = nist_readings(&model, "s", 300.0, 0.5, 1e-3);
+    let scaled = |scale: f64| -> Vec<RawReading> {
+        readings
+            .iter()
+            .cloned()
+            .map(|mut reading| {
+                reading.current_a *= scale;
+                reading.voltage_v *= scale;
+                reading
+            })
+            .collect()
+    };
+    let error = reduce(&scaled(1e298), None, &ReduceSettings::default()).unwrap_err();
+    let ReduceError::InvalidReading { row: 0, problem, .. } = &error else {
+        panic!("{error:?}")
+    };
+    assert_eq!(
+        *problem,
+        ReadingProblem::BeyondRange {
+            column: "current_A",
+            value: 1e-3 * 1e298,
+            unit: "A"
+        }
+    );
+    let message = error.to_string();
+    assert!(message.contains("current_A is 1e295, beyond the 1e30 A"), "{message}");
+    assert!(!message.contains("counterclockwise"), "{message}");
+    let error = reduce(&scaled(1e-300), None, &ReduceSettings::default()).unwrap_err();
+    assert!(
+        matches!(
+            &error,
+            ReduceError::InvalidReading {
+                problem: ReadingProblem::CurrentTooSmall(_),
+                ..
+            }
+        ),
+        "{error:?}"
+    );
+    // Skipped, they leave the well-formed readings to reduce as before.
+    let mut mixed = readings.clone();
+    mixed.push(scaled(1e298).remove(0));
+    let settings = ReduceSettings {
+        skip_invalid_readings: true,
+        ..ReduceSettings::default()
+    };
+    let reduction = reduce(&mixed, None, &settings).unwrap();
+    assert_eq!(reduction.skipped_readings, 1);
+    assert_eq!(reduction.rows, reduce_default(&readings).rows);
 }
 
 #[test]
@@ -1369,6 +1658,21 @@ fn bad_sample_sheet_rows_are_refused() {
     );
     let error = reduce(&readings, Some(&[base.clone(), base.clone()]), &settings).unwrap_err();
     assert_eq!(error, ReduceError::DuplicateSample { sample: "s".into() });
+    // The messages name the sheet's columns as the sheet spells them.
+    let message = |info: SampleInfo| reduce(&readings, Some(&[info]), &settings).unwrap_err().to_string();
+    let thickness = message(SampleInfo {
+        thickness_unc_m: Some(-1e-9),
+        ..base.clone()
+    });
+    assert!(thickness.starts_with("thickness_m_unc of sample \"s\""), "{thickness}");
+    let bar = message(SampleInfo {
+        geometry: Geometry::HallBar {
+            length_m: 0.0,
+            width_m: 1e-4,
+        },
+        ..base.clone()
+    });
+    assert!(bar.contains("bar_length_m = 0 and bar_width_m = 0.0001"), "{bar}");
 }
 
 #[test]

@@ -297,6 +297,10 @@ fn json_values_to_column(name: &str, values: &[serde_json::Value]) -> ServiceRes
             .with_help("a column holds only numbers, only strings or only booleans (and nulls)")
     };
     let name = PlSmallStr::from_str(name);
+    if !values.is_empty() && present().next().is_none() {
+        // No value in any row: missing numbers, as an empty column of a CSV file reads.
+        return Ok(Column::full_null(name, values.len(), &DataType::Float64));
+    }
     if present().all(Value::is_string) {
         let data: Vec<Option<&str>> = values.iter().map(Value::as_str).collect();
         return Ok(Column::new(name, data));
@@ -431,6 +435,144 @@ pub fn decimal_comma_notes(frame: &DataFrame, source: &SourceMap) -> Vec<String>
     vec![format!(
         "{subject} text such as {example}: numbers with a decimal comma? Import again with csv.decimal_comma true and a separator other than `,` (mobilis import --decimal-comma --separator ';')"
     )]
+}
+
+/// How many of a column's cells that are not numbers a note names, with their lines.
+const CELLS_NAMED: usize = 3;
+
+/// Texts labs commonly write for a value that is missing (common practice of spreadsheet
+/// and instrument exports), compared without regard to case.
+const MISSING_VALUE_MARKERS: [&str; 10] = ["na", "n/a", "#n/a", "nan", "null", "none", "-", "--", "---", "?"];
+
+/// Notes on text columns of a CSV file that are mostly numbers: a few cells that are not
+/// (`n/a`, `--`, `1.2e-3V`) made the whole column text, which an analysis will refuse. Each
+/// note names the column, how many cells are not numbers, the first few with their lines
+/// in the file, and what to do. Nothing is changed: the column stays text until the file
+/// says otherwise. "Mostly" is more number cells than others; a text column with a few
+/// numbers in it (sample names such as `7`) is left alone. The `contacts` column is left
+/// out (its pair notation `21,34` is text), and so are columns that
+/// [`decimal_comma_notes`] names.
+pub fn unparsed_number_notes(frame: &DataFrame, source: &SourceMap) -> Vec<String> {
+    let mut notes = Vec::new();
+    for column in frame.columns() {
+        if column.name().as_str() == "contacts" || !column.dtype().is_string() {
+            continue;
+        }
+        let texts = column.str().expect("a string column");
+        let (mut numbers, mut unparsed, mut markers) = (0usize, 0usize, 0usize);
+        let mut decimal_commas = 0usize;
+        let mut named = Vec::new();
+        for (row, text) in texts.iter().enumerate() {
+            let Some(text) = text else { continue };
+            let text = text.trim();
+            if text.parse::<f64>().is_ok_and(f64::is_finite) {
+                numbers += 1;
+                continue;
+            }
+            unparsed += 1;
+            markers += usize::from(MISSING_VALUE_MARKERS.contains(&text.to_lowercase().as_str()));
+            decimal_commas += usize::from(!source.decimal_comma && csv_dialect::is_decimal_comma_number(text));
+            if named.len() < CELLS_NAMED {
+                named.push(format!("`{text}` on {}", line_of(source, row)));
+            }
+        }
+        if unparsed == 0 || numbers <= unparsed || decimal_commas == unparsed {
+            continue;
+        }
+        let cells = numbers + unparsed;
+        let more = if unparsed > named.len() { ", ..." } else { "" };
+        let advice = if markers == unparsed {
+            "they look like marks of missing values: leave those cells empty in the file (an empty cell is a missing value) and import again".to_owned()
+        } else {
+            let mut advice =
+                "correct those cells in the file, or leave a cell empty where the value is missing, and import again"
+                    .to_owned();
+            if decimal_commas > 0 {
+                advice.push_str(
+                    "; cells with a decimal comma (1,5) need csv.decimal_comma true and a separator other than `,` (mobilis import --decimal-comma --separator ';')",
+                );
+            }
+            advice
+        };
+        notes.push(format!(
+            "column `{}` was imported as text: {unparsed} of its {cells} cells are not numbers ({}{more}; lines of the file, counted from 1); an analysis that needs numbers will refuse the column: {advice}",
+            column.name(),
+            named.join(", "),
+        ));
+    }
+    notes
+}
+
+/// Notes on float columns of a CSV file that hold `NaN` or infinities: the parser reads
+/// `NaN`, `inf` and `-inf` as such floats, which a lab may have written for a missing value.
+/// The values stay as read; the note names the column, how many, and the first few lines.
+pub fn not_a_number_notes(frame: &DataFrame, source: &SourceMap) -> Vec<String> {
+    let mut notes = Vec::new();
+    for column in frame.columns() {
+        let Ok(values) = column.f64() else { continue };
+        let mut count = 0usize;
+        let mut named = Vec::new();
+        for (row, value) in values.iter().enumerate() {
+            let Some(value) = value.filter(|value| !value.is_finite()) else {
+                continue;
+            };
+            count += 1;
+            if named.len() < CELLS_NAMED {
+                let shown = if value.is_nan() {
+                    "NaN"
+                } else if value > 0.0 {
+                    "inf"
+                } else {
+                    "-inf"
+                };
+                named.push(format!("`{shown}` on {}", line_of(source, row)));
+            }
+        }
+        if count == 0 {
+            continue;
+        }
+        let more = if count > named.len() { ", ..." } else { "" };
+        notes.push(format!(
+            "column `{}` holds {count} value{} that {} not finite numbers ({}{more}): analyses refuse or skip them; leave a cell empty where the value is missing",
+            column.name(),
+            if count == 1 { "" } else { "s" },
+            if count == 1 { "is" } else { "are" },
+            named.join(", ")
+        ));
+    }
+    notes
+}
+
+/// "line 7": where a row of the frame is in the file.
+fn line_of(source: &SourceMap, row: usize) -> String {
+    source
+        .lines
+        .get(row)
+        .map_or_else(|| format!("data row {}", row + 1), |line| format!("line {line}"))
+}
+
+/// Notes on columns that have no value in any row, which an import stores as Float64
+/// columns of nulls ([`csv_dialect::empty_columns_as_numbers`]): a sheet's `thickness_m`
+/// left empty for 2D samples reads as missing numbers, not as text.
+pub fn empty_column_notes(frame: &DataFrame) -> Vec<String> {
+    let rows = frame.height();
+    let empty: Vec<String> = frame
+        .columns()
+        .iter()
+        .filter(|column| rows > 0 && column.null_count() == rows && column.dtype() == &DataType::Float64)
+        .map(|column| format!("`{}`", column.name()))
+        .collect();
+    match empty.len() {
+        0 => Vec::new(),
+        1 => vec![format!(
+            "column {} has no value in any row: it was imported as numbers (Float64), every value missing",
+            empty[0]
+        )],
+        _ => vec![format!(
+            "columns {} have no value in any row: they were imported as numbers (Float64), every value missing",
+            empty.join(", ")
+        )],
+    }
 }
 
 /// A text column given a unit: fine when every cell reads as a number (a file that quotes
@@ -578,5 +720,72 @@ mod tests {
         // Quoted numbers are numbers.
         let (frame, map) = csv_dialect::read_csv("sample;T\na;\"25\"\n".as_bytes(), &dialect, |_| false).unwrap();
         assert!(apply_units(frame, &units, Some(&map)).is_ok());
+    }
+
+    #[test]
+    fn a_mostly_numeric_column_with_junk_is_noted_with_its_lines() {
+        let text = "sample,voltage_V\na,1.5e-3\nb,n/a\nc,2.0e-3\nd,--\ne,1.2e-3V\nf,2.5e-3\ng,NA\nh,3e-3\ni,4e-3\n";
+        let (frame, map) = csv_dialect::read_csv(text.as_bytes(), &CsvDialect::default(), |_| false).unwrap();
+        // Nothing is changed: the column stays text.
+        assert_eq!(frame.column("voltage_V").unwrap().dtype(), &DataType::String);
+        let notes = unparsed_number_notes(&frame, &map);
+        assert_eq!(notes.len(), 1, "{notes:?}");
+        let note = &notes[0];
+        for words in [
+            "column `voltage_V` was imported as text: 4 of its 9 cells are not numbers",
+            "`n/a` on line 3, `--` on line 5, `1.2e-3V` on line 6, ...",
+            "correct those cells",
+        ] {
+            assert!(note.contains(words), "{words}: {note}");
+        }
+        // Only marks of missing values: the advice says so.
+        let text = "sample,T\na,1\nb,N/A\nc,2\n";
+        let (frame, map) = csv_dialect::read_csv(text.as_bytes(), &CsvDialect::default(), |_| false).unwrap();
+        let notes = unparsed_number_notes(&frame, &map);
+        assert!(notes[0].contains("marks of missing values"), "{notes:?}");
+        // A text column with a few numbers, and numbers with decimal commas, are left alone.
+        let text = "sample;T\nW1;1,5\n7;2,5\nW3;3,5\n";
+        let semicolons = CsvDialect {
+            separator: ";".into(),
+            ..CsvDialect::default()
+        };
+        let (frame, map) = csv_dialect::read_csv(text.as_bytes(), &semicolons, |_| false).unwrap();
+        assert!(unparsed_number_notes(&frame, &map).is_empty(), "{frame}");
+        // `NaN` and `nan` read as text or as floats that are not numbers, as the parser
+        // decides; either way a note names the cell's line.
+        for text in [
+            "sample,T\na,1\nb,NaN\nc,2\nd,3\n",
+            "sample,T\na,1\nb,nan\nc,2\nd,3\n",
+            "sample,T\na,1.5\nb,NaN\nc,2.5\nd,3.5\n",
+        ] {
+            let (frame, map) = csv_dialect::read_csv(text.as_bytes(), &CsvDialect::default(), |_| false).unwrap();
+            let notes = [unparsed_number_notes(&frame, &map), not_a_number_notes(&frame, &map)].concat();
+            assert!(
+                notes.len() == 1 && notes[0].contains("`T`") && notes[0].to_lowercase().contains("`nan` on line 3"),
+                "{text}: {notes:?}"
+            );
+        }
+        let text = "sample,T\na,1.5\nb,NaN\nc,2.5\nd,\ne,inf\n";
+        let (frame, map) = csv_dialect::read_csv(text.as_bytes(), &CsvDialect::default(), |_| false).unwrap();
+        assert_eq!(frame.column("T").unwrap().dtype(), &DataType::Float64);
+        let notes = not_a_number_notes(&frame, &map);
+        assert_eq!(
+            notes,
+            vec!["column `T` holds 2 values that are not finite numbers (`NaN` on line 3, `inf` on line 6): analyses refuse or skip them; leave a cell empty where the value is missing"]
+        );
+    }
+
+    #[test]
+    fn columns_without_values_are_numbers_and_noted() {
+        let (frame, _) =
+            csv_dialect::read_csv(b"sample,thickness_m\nS1,\nS2,\n", &CsvDialect::default(), |_| false).unwrap();
+        assert_eq!(
+            empty_column_notes(&frame),
+            vec!["column `thickness_m` has no value in any row: it was imported as numbers (Float64), every value missing"]
+        );
+        let columns = json!({"sample": ["S1"], "thickness_m": [null]});
+        let frame = frame_from_json_columns(columns.as_object().unwrap()).unwrap();
+        assert_eq!(frame.column("thickness_m").unwrap().dtype(), &DataType::Float64);
+        assert_eq!(empty_column_notes(&frame).len(), 1);
     }
 }

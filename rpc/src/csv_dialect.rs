@@ -7,9 +7,13 @@
 //! too many fields is an error naming its line (a reader that pads short rows with nulls
 //! would hide a truncated export). Errors say which option would fix the file: a header
 //! that is one field holding `;` asks for that separator, a preamble asks for
-//! `comment_prefix` or `skip_rows`. The rows then go to polars as a plain CSV (comma,
-//! decimal point, one header line) for type inference, so every data row of the frame maps
-//! back to its line in the file ([`SourceMap`]).
+//! `comment_prefix` or `skip_rows`, and a header that reads as data is refused. The rows
+//! then go to polars as a plain CSV (comma, decimal point, one header line) for type
+//! inference, so every data row of the frame maps back to its line in the file
+//! ([`SourceMap`]). A column with no value in any row has nothing to infer a type from; it
+//! becomes a Float64 column of nulls ([`empty_columns_as_numbers`]), because such a column
+//! in a lab's table is a quantity nobody measured (a sheet's `thickness_m` left empty for 2D
+//! samples, a 2D result exported and read back), not text.
 //!
 //! Conventions of the scan (common practice for CSV, cf. RFC 4180): fields in double quotes
 //! may hold the separator, line breaks and doubled quotes; unquoted fields are trimmed of
@@ -26,7 +30,36 @@
 //! - a header that is one field holding another separator (`csv.separator`);
 //! - a preamble, leading rows with another field count than the table (`comment_prefix` or
 //!   `skip_rows`, with the count of lines to skip);
-//! - a row with another number of fields than the header (never padded with nulls).
+//! - a row with another number of fields than the header (never padded with nulls);
+//! - a header that looks like a row of data: at least half of its cells read as numbers,
+//!   split by the separator or by another likely one (a wrong `skip_rows` that made the
+//!   first data row the header, `S1;26,85;0,2`, or a file without a header, which needs
+//!   `header: false`). Column names are words; taking a data row as names would lose its
+//!   values and name the columns after them.
+//!
+//! # The help: the file's layout
+//!
+//! The help of these errors gives every option the file needs at once, found from the text
+//! alone (`sniff_layout`): for each likely separator (`,`, `;`, tab, `|`) the table the
+//! records form (from the first record after which nine in ten have the field count most
+//! records have), and the separator whose table covers the most records, then holds the
+//! most cells that read as numbers, is the file's. A wrong separator either leaves the
+//! header out of the table (a `;` header is one field by `,`) or splits numbers apart
+//! (`26,85` by `,`), so both counts favour the right one. The table's first line is the
+//! header (unless it looks like data: then `header: false`); the lines above it are
+//! skipped by `comment_prefix` when they all start with one mark such as `#` (with
+//! `skip_rows`, counted in lines of the file, as the alternative), else by `skip_rows`; and
+//! `decimal_comma` is added when cells read as numbers only with a decimal comma. A file
+//! whose table is separated by another character than the dialect's gets that error
+//! instead of the preamble or ragged-row error the wrong separator would give:
+//!
+//! ```text
+//! the table seems to begin on line 3 (`sample;T;V`) and to be separated by `;`, not `,`
+//! help: its header is line 3; read it with csv.separator ";", csv.comment_prefix "#",
+//!       csv.decimal_comma true in dataset.import (mobilis import --separator ';'
+//!       --comment-prefix '#' --decimal-comma); or, instead of the comment prefix, skip the
+//!       2 lines above the header: csv.skip_rows 2 (--skip-rows 2)
+//! ```
 //!
 //! Parser messages of polars never reach the user for these problems. With `decimal_comma`
 //! the rewrite for polars turns the comma into a point in unquoted cells that read as numbers
@@ -37,7 +70,8 @@
 //!
 //! A file in the default dialect that is already the plain CSV the scan would produce
 //! (distinct header names without surrounding blanks; no quotes, blanks, carriage returns or
-//! blank lines; every row with the header's field count) skips the scan and goes to polars as
+//! blank lines; every row with the header's field count; a header that does not read as
+//! data) skips the scan and goes to polars as
 //! it is, after one pass over its bytes that checks exactly that (`plain_file_rows`); its
 //! rows are then on lines 2, 3, ... Every other file, every file the scan would refuse
 //! included, takes the scan, so the errors above are the same either way, and so is the frame
@@ -1152,6 +1186,13 @@ mod tests {
             assert!(help.contains(option), "{option}: {help}");
         }
         assert!(!help.contains("skip_rows 3"), "{help}");
+        // The README's station: a comment line, then a `;` header over decimal commas.
+        let station = "# Hall station export\nSample ID; T (C); B (G); I+; I-; V+; V-; I (mA); V (mV)\nW1; 26,85; 5000; 1; 3; 2; 4; 1,0e-1; -2,81e1\n";
+        let help = read(station, &CsvDialect::default()).unwrap_err().help.unwrap();
+        assert!(
+            help.contains("--separator ';' --comment-prefix '#' --decimal-comma") && help.contains("--skip-rows 1"),
+            "{help}"
+        );
         // Following the help reads the table whole, either way.
         for dialect in [
             CsvDialect {

@@ -25,11 +25,23 @@
 //!    instead ([`UnitSpec`]). A text column given a unit is accepted when every cell reads as
 //!    a number (a file that quotes its numbers); otherwise the first cell that does not is
 //!    named, with `csv.decimal_comma` as the fix when it looks like `1,5`.
-//! 5. **Notes** ([`decimal_comma_notes`]). Text columns of a CSV file read without
-//!    `decimal_comma` whose every cell looks like a number with a decimal comma (`25,5`) do
-//!    not stop the import, but the answer's `notes` names them, with one cell's place and the
-//!    options to use (the CLI prints them). The `contacts` column is left out: its pair
-//!    notation `21,34` looks the same.
+//! 5. **Notes**: what the import read but an analysis may refuse; nothing is changed, and the
+//!    answer's `notes` says what to do (the CLI prints them). Cells are placed by their line
+//!    in the file, counted from 1 as above.
+//!    - [`decimal_comma_notes`]: text columns of a CSV file read without `decimal_comma`
+//!      whose every cell looks like a number with a decimal comma (`25,5`), with one cell's
+//!      place and the options to use. The `contacts` column is left out: its pair notation
+//!      `21,34` looks the same.
+//!    - [`unparsed_number_notes`]: text columns of a CSV file with more number cells than
+//!      others, which a few cells (`n/a`, `--`, `1.2e-3V`) made text: how many cells are not
+//!      numbers, the first three with their lines, and to correct them or leave a missing
+//!      value's cell empty (an empty cell is a missing value; marks such as `NA`, `N/A`,
+//!      `n/a`, `--` are text).
+//!    - [`not_a_number_notes`]: float columns of a CSV file holding `NaN` or infinities,
+//!      which the parser reads as such floats (not as missing values).
+//!    - [`empty_column_notes`]: columns of a CSV file or of inline columns with no value in
+//!      any row, which are stored as Float64 columns of nulls (an inline column of nulls
+//!      too), so that a sheet's empty `thickness_m` reads as 2D samples.
 //!
 //! Errors about a file name it and point at the place, `line L` or `line L, column C` (lines
 //! counted from 1 in the file as written, skipped and comment lines included; columns are field

@@ -1,6 +1,6 @@
 //! CSV files as labs write them: the dialect options of `dataset.import` (`csv:
-//! {separator, decimal_comma, comment_prefix, skip_rows, header}`) and the scan that checks
-//! a file's structure before polars infers its column types.
+//! {separator, decimal_comma, comment_prefix, skip_rows, header, null_values}`) and the
+//! scan that checks a file's structure before polars infers its column types.
 //!
 //! The scan reads the text once, respecting quotes, comment lines and the lines skipped
 //! before the header, and keeps the line on which every row starts. A row with too few or
@@ -23,7 +23,11 @@
 //! # Options and what the scan checks
 //!
 //! The options (CLI: `--separator`, `--decimal-comma`, `--comment-prefix`, `--skip-rows`,
-//! `--no-header`) describe the dialect. The scan skips the first `skip_rows` lines, blank
+//! `--no-header`, `--null-value`) describe the dialect. `null_values` lists the texts the
+//! file writes for a missing value (`n/a`, `--`): an unquoted data cell that is exactly one
+//! of them, after trimming, is handed to polars empty, so it reads as missing as an empty
+//! cell does; quoted cells and the header are left as written. Nothing is read as missing
+//! unless the file's dialect says so. The scan skips the first `skip_rows` lines, blank
 //! lines, and lines starting with `comment_prefix` wherever they stand. It then stops at the
 //! first structural problem, each an error naming its line and the option that fixes it:
 //!
@@ -114,6 +118,12 @@ fn check(dialect: &CsvDialect) -> ServiceResult<char> {
                 "csv.decimal_comma needs a separator other than `,`: a comma cannot both part fields and numbers",
             )
             .with_help("files with decimal commas are usually separated by `;`: csv.separator \";\" (mobilis import --separator ';')"));
+    }
+    if dialect.null_values.iter().any(|text| text.trim().is_empty()) {
+        return Err(ServiceError::invalid_params(
+            "csv.null_values holds an empty or blank text; empty cells are missing values already",
+        )
+        .with_help("list the texts the file writes for a missing value, e.g. [\"n/a\", \"--\"] (mobilis import --null-value 'n/a')"));
     }
     if let Some(prefix) = &dialect.comment_prefix {
         if prefix.trim().is_empty() {
@@ -910,12 +920,16 @@ pub fn read_csv(
         .iter()
         .map(|n| dialect.decimal_comma && !keeps_commas(n))
         .collect();
+    let missing = |field: &Field| !field.quoted && dialect.null_values.iter().any(|text| text.trim() == field.text);
     for record in data {
         for (position, field) in record.fields.iter().enumerate() {
             if position > 0 {
                 plain.push(',');
             }
-            push_plain(&mut plain, field, convert[position]);
+            // A missing value is an empty field, which polars reads as null.
+            if !missing(field) {
+                push_plain(&mut plain, field, convert[position]);
+            }
         }
         plain.push('\n');
     }
@@ -1249,5 +1263,28 @@ mod tests {
         for text in ["sample,V12,R_xx (ohm),B 9T\nW1,1,2,3\n", "run 2,T1,T2\n1,2,3\n"] {
             assert!(read(text, &CsvDialect::default()).is_ok(), "{text}");
         }
+    }
+
+    #[test]
+    fn null_values_read_unquoted_data_cells_as_missing() {
+        let dialect = CsvDialect {
+            null_values: vec!["n/a".into(), " -- ".into()],
+            ..CsvDialect::default()
+        };
+        let (frame, _) = read("sample,V,note\na,1.5, n/a \nb,--,\"n/a\"\nc,2.5,x\n", &dialect).unwrap();
+        let voltage: Vec<Option<f64>> = frame.column("V").unwrap().f64().unwrap().iter().collect();
+        assert_eq!(voltage, vec![Some(1.5), None, Some(2.5)]);
+        // A quoted cell is text as written.
+        let notes: Vec<Option<&str>> = frame.column("note").unwrap().str().unwrap().iter().collect();
+        assert_eq!(notes, vec![None, Some("n/a"), Some("x")]);
+        // The header is names, never values.
+        let (frame, _) = read("n/a,V\na,1\n", &dialect).unwrap();
+        assert!(frame.column("n/a").is_ok());
+        let blank = CsvDialect {
+            null_values: vec![" ".into()],
+            ..CsvDialect::default()
+        };
+        let error = read("a\n1\n", &blank).unwrap_err();
+        assert!(error.message.contains("csv.null_values"), "{}", error.message);
     }
 }

@@ -34,11 +34,13 @@
 //!      `21,34` looks the same.
 //!    - [`unparsed_number_notes`]: text columns of a CSV file with more number cells than
 //!      others, which a few cells (`n/a`, `--`, `1.2e-3V`) made text: how many cells are not
-//!      numbers, the first three with their lines, and to correct them or leave a missing
-//!      value's cell empty (an empty cell is a missing value; marks such as `NA`, `N/A`,
-//!      `n/a`, `--` are text).
+//!      numbers, the first three with their lines, and what to do: marks of a missing value
+//!      (`NA`, `N/A`, `n/a`, `NaN`, `--`, ...) are read as missing with the
+//!      `csv.null_values` the note spells out (or left empty in the file: an empty cell is a
+//!      missing value); other cells are to be corrected in the file.
 //!    - [`not_a_number_notes`]: float columns of a CSV file holding `NaN` or infinities,
-//!      which the parser reads as such floats (not as missing values).
+//!      which the parser reads as such floats (not as missing values unless
+//!      `csv.null_values` names them).
 //!    - [`empty_column_notes`]: columns of a CSV file or of inline columns with no value in
 //!      any row, which are stored as Float64 columns of nulls (an inline column of nulls
 //!      too), so that a sheet's empty `thickness_m` reads as 2D samples.
@@ -474,6 +476,7 @@ pub fn unparsed_number_notes(frame: &DataFrame, source: &SourceMap) -> Vec<Strin
         let (mut numbers, mut unparsed, mut markers) = (0usize, 0usize, 0usize);
         let mut decimal_commas = 0usize;
         let mut named = Vec::new();
+        let mut marker_texts: Vec<&str> = Vec::new();
         for (row, text) in texts.iter().enumerate() {
             let Some(text) = text else { continue };
             let text = text.trim();
@@ -482,7 +485,12 @@ pub fn unparsed_number_notes(frame: &DataFrame, source: &SourceMap) -> Vec<Strin
                 continue;
             }
             unparsed += 1;
-            markers += usize::from(MISSING_VALUE_MARKERS.contains(&text.to_lowercase().as_str()));
+            if MISSING_VALUE_MARKERS.contains(&text.to_lowercase().as_str()) {
+                markers += 1;
+                if !marker_texts.contains(&text) {
+                    marker_texts.push(text);
+                }
+            }
             decimal_commas += usize::from(!source.decimal_comma && csv_dialect::is_decimal_comma_number(text));
             if named.len() < CELLS_NAMED {
                 named.push(format!("`{text}` on {}", line_of(source, row)));
@@ -493,22 +501,32 @@ pub fn unparsed_number_notes(frame: &DataFrame, source: &SourceMap) -> Vec<Strin
         }
         let cells = numbers + unparsed;
         let more = if unparsed > named.len() { ", ..." } else { "" };
-        let advice = if markers == unparsed {
-            "they look like marks of missing values: leave those cells empty in the file (an empty cell is a missing value) and import again".to_owned()
-        } else {
-            let mut advice =
-                "correct those cells in the file, or leave a cell empty where the value is missing, and import again"
-                    .to_owned();
-            if decimal_commas > 0 {
-                advice.push_str(
-                    "; cells with a decimal comma (1,5) need csv.decimal_comma true and a separator other than `,` (mobilis import --decimal-comma --separator ';')",
-                );
-            }
-            advice
-        };
+        let mut advice = Vec::new();
+        if markers > 0 {
+            advice.push(format!(
+                "{} mark{} missing values: read {} as missing with {}, or leave those cells empty in the file (an empty cell is a missing value)",
+                quoted_texts(&marker_texts),
+                if marker_texts.len() == 1 { "s" } else { "" },
+                if marker_texts.len() == 1 { "it" } else { "them" },
+                null_values_option(&marker_texts)
+            ));
+        }
+        if markers < unparsed {
+            advice.push(format!(
+                "correct the {}cells that are not numbers in the file{}",
+                if markers > 0 { "other " } else { "" },
+                if decimal_commas > 0 {
+                    " (cells with a decimal comma, 1,5, need csv.decimal_comma true and a separator other than `,`: mobilis import --decimal-comma --separator ';')"
+                } else {
+                    ""
+                }
+            ));
+        }
+        let advice = advice.join("; ");
         notes.push(format!(
-            "column `{}` was imported as text: {unparsed} of its {cells} cells are not numbers ({}{more}; lines of the file, counted from 1); an analysis that needs numbers will refuse the column: {advice}",
+            "column `{}` was imported as text: {unparsed} of its {cells} non-empty cells {} ({}{more}; lines of the file, counted from 1); an analysis that needs numbers will refuse the column: {advice}",
             column.name(),
+            if unparsed == 1 { "is not a number" } else { "are not numbers" },
             named.join(", "),
         ));
     }
@@ -545,14 +563,34 @@ pub fn not_a_number_notes(frame: &DataFrame, source: &SourceMap) -> Vec<String> 
         }
         let more = if count > named.len() { ", ..." } else { "" };
         notes.push(format!(
-            "column `{}` holds {count} value{} that {} not finite numbers ({}{more}): analyses refuse or skip them; leave a cell empty where the value is missing",
+            "column `{}` holds {count} value{} that {} not finite numbers ({}{more}): analyses refuse or skip them; where the file means a missing value, leave the cell empty, or read `NaN` as missing with {}",
             column.name(),
             if count == 1 { "" } else { "s" },
             if count == 1 { "is" } else { "are" },
-            named.join(", ")
+            named.join(", "),
+            null_values_option(&["NaN"])
         ));
     }
     notes
+}
+
+/// `` `n/a`, `--` ``: texts as a note quotes them.
+fn quoted_texts(texts: &[&str]) -> String {
+    texts
+        .iter()
+        .map(|text| format!("`{text}`"))
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+/// The `csv.null_values` option that reads `texts` as missing values, in both spellings.
+fn null_values_option(texts: &[&str]) -> String {
+    let json = serde_json::to_string(texts).expect("texts serialize");
+    let flags: Vec<String> = texts.iter().map(|text| format!("--null-value '{text}'")).collect();
+    format!(
+        "csv.null_values {json} in dataset.import (mobilis import {})",
+        flags.join(" ")
+    )
 }
 
 /// "line 7": where a row of the frame is in the file.
@@ -616,6 +654,13 @@ fn check_text_numbers(
                 "the file writes decimal commas: csv.decimal_comma true and a separator other than `,` in dataset.import (mobilis import --decimal-comma --separator ';')",
             ),
             (true, None) => error.with_help("send numbers with a decimal point, as JSON numbers"),
+            (false, Some(_)) if MISSING_VALUE_MARKERS.contains(&text.trim().to_lowercase().as_str()) => {
+                error.with_help(format!(
+                    "`{}` marks a missing value? Read it as one with {}, or leave the cell empty",
+                    text.trim(),
+                    null_values_option(&[text.trim()])
+                ))
+            }
             _ => error.with_help(format!(
                 "correct the cell, leave it empty for a missing value, or leave `{column_name}` out of units"
             )),
@@ -725,6 +770,10 @@ mod tests {
             error.message,
             "line 4, column 2 (`T`): `n/a` is not a number, and units gives this column a unit"
         );
+        assert!(error
+            .help
+            .unwrap()
+            .contains("csv.null_values [\"n/a\"] in dataset.import (mobilis import --null-value 'n/a')"));
         let (frame, map) = csv_dialect::read_csv("sample;T\na;25,5\n".as_bytes(), &dialect, |_| false).unwrap();
         let error = apply_units(frame, &units, Some(&map)).unwrap_err();
         assert!(error.message.starts_with("line 2, column 2"), "{}", error.message);
@@ -744,17 +793,35 @@ mod tests {
         assert_eq!(notes.len(), 1, "{notes:?}");
         let note = &notes[0];
         for words in [
-            "column `voltage_V` was imported as text: 4 of its 9 cells are not numbers",
+            "column `voltage_V` was imported as text: 4 of its 9 non-empty cells are not numbers",
             "`n/a` on line 3, `--` on line 5, `1.2e-3V` on line 6, ...",
-            "correct those cells",
+            "`n/a`, `--`, `NA` mark missing values: read them as missing with csv.null_values [\"n/a\",\"--\",\"NA\"] in dataset.import (mobilis import --null-value 'n/a' --null-value '--' --null-value 'NA')",
+            "correct the other cells that are not numbers in the file",
         ] {
             assert!(note.contains(words), "{words}: {note}");
         }
-        // Only marks of missing values: the advice says so.
+        // Following the note: the markers are missing values, the cell with a unit is left.
+        let dialect = CsvDialect {
+            null_values: vec!["n/a".into(), "--".into(), "NA".into()],
+            ..CsvDialect::default()
+        };
+        let (frame, map) = csv_dialect::read_csv(text.as_bytes(), &dialect, |_| false).unwrap();
+        assert_eq!(frame.column("voltage_V").unwrap().null_count(), 3);
+        let notes = unparsed_number_notes(&frame, &map);
+        assert!(
+            notes[0].contains("1 of its 6 non-empty cells is not a number (`1.2e-3V` on line 6;"),
+            "{notes:?}"
+        );
+        assert!(!notes[0].contains("null_values"), "{notes:?}");
+        // Only marks of missing values: the advice is the option alone.
         let text = "sample,T\na,1\nb,N/A\nc,2\n";
         let (frame, map) = csv_dialect::read_csv(text.as_bytes(), &CsvDialect::default(), |_| false).unwrap();
         let notes = unparsed_number_notes(&frame, &map);
-        assert!(notes[0].contains("marks of missing values"), "{notes:?}");
+        assert!(
+            notes[0].contains("`N/A` marks missing values: read it as missing with csv.null_values [\"N/A\"]")
+                && !notes[0].contains("correct"),
+            "{notes:?}"
+        );
         // A text column with a few numbers, and numbers with decimal commas, are left alone.
         let text = "sample;T\nW1;1,5\n7;2,5\nW3;3,5\n";
         let semicolons = CsvDialect {
@@ -783,7 +850,7 @@ mod tests {
         let notes = not_a_number_notes(&frame, &map);
         assert_eq!(
             notes,
-            vec!["column `T` holds 2 values that are not finite numbers (`NaN` on line 3, `inf` on line 6): analyses refuse or skip them; leave a cell empty where the value is missing"]
+            vec!["column `T` holds 2 values that are not finite numbers (`NaN` on line 3, `inf` on line 6): analyses refuse or skip them; where the file means a missing value, leave the cell empty, or read `NaN` as missing with csv.null_values [\"NaN\"] in dataset.import (mobilis import --null-value 'NaN')"]
         );
     }
 

@@ -513,13 +513,30 @@ async fn cells_that_are_not_numbers_in_a_numeric_column_are_noted_with_their_lin
     let notes = notes(&imported);
     assert_eq!(notes.len(), 1, "{notes:?}");
     for words in [
-        "column `voltage_V` was imported as text: 4 of its 10 cells are not numbers",
+        "column `voltage_V` was imported as text: 4 of its 10 non-empty cells are not numbers",
         "`n/a` on line 3, `--` on line 5, `1.2e-3V` on line 6, ...",
         "lines of the file, counted from 1",
-        "leave a cell empty where the value is missing",
+        "csv.null_values [\"n/a\",\"--\",\"NA\"]",
+        "correct the other cells that are not numbers in the file",
     ] {
         assert!(notes[0].contains(words), "`{words}` missing: {}", notes[0]);
     }
+    // Following the note: the marks are missing values; the cell with a unit still is text.
+    let imported = daemon
+        .call(
+            "dataset.import",
+            json!({"name": "junk", "path": "junk.csv", "overwrite": true,
+                   "csv": {"null_values": ["n/a", "--", "NA"]}}),
+        )
+        .await;
+    assert_eq!(dtypes(&daemon, "junk").await["voltage_V"], "str");
+    let left = self::notes(&imported);
+    assert!(
+        left.len() == 1 && left[0].contains("1 of its 7 non-empty cells is not a number (`1.2e-3V` on line 6;"),
+        "{left:?}"
+    );
+    let info = daemon.call("dataset.info", json!({"name": "junk"})).await;
+    assert_eq!(info["provenance"]["csv"]["null_values"], json!(["n/a", "--", "NA"]));
     // Empty cells, as the note advises, are missing values of a numeric column.
     let cleaned: String = std::fs::read_to_string(daemon.data.join("junk.csv"))
         .unwrap()

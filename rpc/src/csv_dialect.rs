@@ -44,8 +44,8 @@
 //! # The help: the file's layout
 //!
 //! The help of these errors gives every option the file needs at once, found from the text
-//! alone (`sniff_layout`): for each likely separator (`,`, `;`, tab, `|`) the table the
-//! records form (from the first record after which nine in ten have the field count most
+//! alone (`sniff_layout`, on its first 1000 lines): for the dialect's separator and each
+//! likely one (`,`, `;`, tab, `|`) the table the records form (from the first record after which nine in ten have the field count most
 //! records have), and the separator whose table covers the most records, then holds the
 //! most cells that read as numbers, is the file's. A wrong separator either leaves the
 //! header out of the table (a `;` header is one field by `,`) or splits numbers apart
@@ -404,6 +404,9 @@ fn find_table(records: &[Record]) -> Option<Table> {
     Some(Table { start, width })
 }
 
+/// How many lines of a file [`sniff_layout`] reads.
+const SNIFFED_LINES: usize = 1000;
+
 /// The separators lab exports commonly use, tried in turn to find a file's layout.
 const LIKELY_SEPARATORS: [char; 4] = [',', ';', '\t', '|'];
 
@@ -500,22 +503,30 @@ impl Layout {
     }
 }
 
-/// Finds how a file is written: for each likely separator, the table the file's records
-/// form (the longest run of records at the end with one field count, at least two), and
-/// the separator whose table covers the most records, then holds the most cells that read
-/// as numbers, wins. A wrong separator either leaves the header out of the table (`;`
-/// header, comma-split data rows) or splits numbers apart (`26,85` read by `,`), so both
-/// counts favour the right one. The dialect's comment prefix is honoured, its skip_rows not:
-/// the layout says where the table begins in the file.
+/// Finds how a file is written: for the dialect's separator and each likely one, the table
+/// the file's records form ([`find_table`], at least two fields wide), and the separator
+/// whose table covers the most records, then holds the most cells that read as numbers,
+/// wins. A wrong separator either leaves the header out of the table (`;` header,
+/// comma-split data rows) or splits numbers apart (`26,85` read by `,`), so both counts
+/// favour the right one. The dialect's comment prefix is honoured, its skip_rows not: the
+/// layout says where the table begins in the file. Only the first [`SNIFFED_LINES`] lines
+/// are read: the layout shows at the top, and an error on a large file stays quick.
 fn sniff_layout(text: &str, dialect: &CsvDialect) -> Option<Layout> {
     let unskipped = CsvDialect {
         skip_rows: 0,
         comment_prefix: dialect.comment_prefix.clone(),
         ..CsvDialect::default()
     };
+    let top = match text.match_indices('\n').nth(SNIFFED_LINES) {
+        Some((end, _)) => &text[..end],
+        None => text,
+    };
+    let own = separator_char(dialect)
+        .ok()
+        .filter(|own| !LIKELY_SEPARATORS.contains(own));
     let mut best: Option<((usize, usize), Layout)> = None;
-    for separator in LIKELY_SEPARATORS {
-        let Ok(records) = scan(text, separator, &unskipped) else {
+    for separator in own.into_iter().chain(LIKELY_SEPARATORS) {
+        let Ok(records) = scan(top, separator, &unskipped) else {
             continue;
         };
         let Some(table) = find_table(&records) else {
@@ -1056,6 +1067,19 @@ mod tests {
         let text = "Station export\nsample,T,B\nW1,25,5000\n";
         let help = read(text, &CsvDialect::default()).unwrap_err().help.unwrap();
         assert!(help.contains("--skip-rows 1") && !help.contains("comment"), "{help}");
+        // A separator of the dialect's own choosing is sniffed too.
+        let colons = CsvDialect {
+            separator: ":".into(),
+            ..CsvDialect::default()
+        };
+        let help = read("% export\nsample:T\nW1:25\nW2:26\n", &colons)
+            .unwrap_err()
+            .help
+            .unwrap();
+        assert!(
+            help.contains("--separator ':' --comment-prefix '%'") && help.contains("--skip-rows 1"),
+            "{help}"
+        );
     }
 
     #[test]

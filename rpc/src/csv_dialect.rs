@@ -45,9 +45,10 @@
 //!
 //! The help of these errors gives every option the file needs at once, found from the text
 //! alone (`sniff_layout`, on its first 1000 lines): for the dialect's separator and each
-//! likely one (`,`, `;`, tab, `|`) the table the records form (from the first record after which nine in ten have the field count most
-//! records have), and the separator whose table covers the most records, then holds the
-//! most cells that read as numbers, is the file's. A wrong separator either leaves the
+//! likely one (`,`, `;`, tab, `|`) the table the records form (from the first record after
+//! which nine in ten have the field count most records have), and the separator whose
+//! table covers the most records, then holds the most cells that read as numbers, is the
+//! file's. A wrong separator either leaves the
 //! header out of the table (a `;` header is one field by `,`) or splits numbers apart
 //! (`26,85` by `,`), so both counts favour the right one. The table's first line is the
 //! header (unless it looks like data: then `header: false`); the lines above it are

@@ -473,6 +473,9 @@ pub fn unparsed_number_notes(frame: &DataFrame, source: &SourceMap) -> Vec<Strin
             continue;
         }
         let texts = column.str().expect("a string column");
+        if !mostly_numbers(texts) {
+            continue;
+        }
         let (mut numbers, mut unparsed, mut markers) = (0usize, 0usize, 0usize);
         let mut decimal_commas = 0usize;
         let mut named = Vec::new();
@@ -531,6 +534,29 @@ pub fn unparsed_number_notes(frame: &DataFrame, source: &SourceMap) -> Vec<Strin
         ));
     }
     notes
+}
+
+/// Whether more cells of a text column read as finite numbers than not. Counts only, and
+/// stops as soon as the rest cannot change the answer, so that a column of names (most
+/// text columns) costs at most half a pass before [`unparsed_number_notes`] moves on.
+fn mostly_numbers(texts: &StringChunked) -> bool {
+    let mut remaining = texts.len() - texts.null_count();
+    let (mut numbers, mut others) = (0usize, 0usize);
+    for text in texts.iter().flatten() {
+        remaining -= 1;
+        if text.trim().parse::<f64>().is_ok_and(f64::is_finite) {
+            numbers += 1;
+        } else {
+            others += 1;
+        }
+        if numbers + remaining <= others {
+            return false;
+        }
+        if numbers > others + remaining {
+            return true;
+        }
+    }
+    numbers > others
 }
 
 /// Notes on float columns of a CSV file that hold `NaN` or infinities: the parser reads

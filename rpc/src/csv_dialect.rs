@@ -647,9 +647,14 @@ fn header_problem(
     };
     Some(
         file_error(format!(
-            "line {}: the header, `{}`, looks like a row of data (numbers where column names belong); the file's first lines may be skipped wrongly",
+            "line {}: the header, `{}`, looks like a row of data (numbers where column names belong); {}",
             header.line,
-            shorten(&header.raw)
+            shorten(&header.raw),
+            if dialect.skip_rows > 0 {
+                format!("csv.skip_rows {} may skip the real header", dialect.skip_rows)
+            } else {
+                "the file may have no header, or its header may be further down".to_owned()
+            }
         ))
         .with_help(help),
     )

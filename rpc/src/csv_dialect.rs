@@ -1273,7 +1273,8 @@ mod tests {
             assert!(
                 error
                     .message
-                    .starts_with("line 4: the header, `S1;26,85;0,2`, looks like a row of data"),
+                    .starts_with("line 4: the header, `S1;26,85;0,2`, looks like a row of data")
+                    && error.message.ends_with("csv.skip_rows 3 may skip the real header"),
                 "{}",
                 error.message
             );
@@ -1282,7 +1283,11 @@ mod tests {
         }
         // Column names that are numbers: a file without a header.
         let error = read("W1,25,5000\nW2,26,5000\n", &CsvDialect::default()).unwrap_err();
-        assert!(error.message.contains("looks like a row of data"), "{}", error.message);
+        assert!(
+            error.message.contains("looks like a row of data") && error.message.contains("may have no header"),
+            "{}",
+            error.message
+        );
         assert!(error.help.unwrap().contains("csv.header false"));
         let no_header = CsvDialect {
             header: false,

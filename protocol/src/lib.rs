@@ -316,7 +316,7 @@ methods! {
     /// `dataset.import`
     DatasetImport = "dataset.import" (ImportParams) -> DatasetSummary {
         runs: InComputeSlot, errors: true,
-        summary: "Stores a table read from a file inside the data roots (CSV, Parquet, Arrow IPC) or sent inline as columns; `rename` renames columns, then `units` converts columns into SI; `csv` describes a CSV file's dialect",
+        summary: "Stores a table read from a file inside the data roots (CSV, Parquet, Arrow IPC) or sent inline as columns; `rename` renames columns, then `units` converts columns into SI; `csv` describes a CSV file's dialect; a column without any value is stored as numbers (Float64), all missing; `notes` names what was read but may need a change (a mostly numeric column made text by some cells, with their lines)",
     }
     /// `dataset.list`
     DatasetList = "dataset.list" (ListParams) -> DatasetPage {

@@ -110,6 +110,11 @@ pub struct CsvDialect {
     /// whether the first row names the columns; without one they are column_1, column_2, ...
     #[serde(default = "yes")]
     pub header: bool,
+    /// texts that mean a missing value in this file, e.g. ["n/a", "--"]: an unquoted data
+    /// cell that is exactly one of them (after trimming blanks) is read as missing, as an
+    /// empty cell always is
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub null_values: Vec<String>,
 }
 
 fn default_separator() -> String {
@@ -128,6 +133,7 @@ impl Default for CsvDialect {
             comment_prefix: None,
             skip_rows: 0,
             header: true,
+            null_values: Vec::new(),
         }
     }
 }
@@ -155,7 +161,7 @@ pub struct ImportParams {
     #[serde(default, skip_serializing_if = "BTreeMap::is_empty")]
     pub units: BTreeMap<String, UnitSpec>,
     /// CSV dialect: separator, decimal_comma, comment_prefix, skip_rows (lines before the
-    /// header), header; rows with another number of fields than the header are errors
+    /// header), header, null_values (texts read as missing values); rows with another number of fields than the header are errors
     /// naming their line
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub csv: Option<CsvDialect>,

@@ -93,8 +93,10 @@ pub struct DatasetSummary {
     pub name: String,
     pub rows: usize,
     pub columns: Vec<ColumnInfo>,
-    /// things the import noticed but did not refuse, such as text columns that look like
-    /// numbers with a decimal comma
+    /// things the import noticed but did not refuse: text columns that look like numbers
+    /// with a decimal comma, mostly numeric columns that some cells made text (the first
+    /// few with their lines in the file), NaN or infinities in float columns, columns
+    /// without any value (stored as numbers, all missing)
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub notes: Vec<String>,
 }

@@ -482,10 +482,17 @@ impl Service {
         stage(0.6, "converting units")?;
         let frame = tables::apply_rename(frame, &params.rename)?;
         let frame = tables::apply_units(frame, &params.units, source_map.as_ref())?;
-        let notes = match (&source_map, params.csv.as_ref().is_some_and(|d| d.decimal_comma)) {
+        let mut notes = match (&source_map, params.csv.as_ref().is_some_and(|d| d.decimal_comma)) {
             (Some(map), false) => tables::decimal_comma_notes(&frame, map),
             _ => Vec::new(),
         };
+        if let Some(map) = &source_map {
+            notes.extend(tables::unparsed_number_notes(&frame, map));
+            notes.extend(tables::not_a_number_notes(&frame, map));
+        }
+        if source_map.is_some() || params.columns.is_some() {
+            notes.extend(tables::empty_column_notes(&frame));
+        }
         let units_done = started.elapsed();
         stage(0.7, "storing")?;
         let new = store::NewDataset {

@@ -25,11 +25,25 @@
 //!    instead ([`UnitSpec`]). A text column given a unit is accepted when every cell reads as
 //!    a number (a file that quotes its numbers); otherwise the first cell that does not is
 //!    named, with `csv.decimal_comma` as the fix when it looks like `1,5`.
-//! 5. **Notes** ([`decimal_comma_notes`]). Text columns of a CSV file read without
-//!    `decimal_comma` whose every cell looks like a number with a decimal comma (`25,5`) do
-//!    not stop the import, but the answer's `notes` names them, with one cell's place and the
-//!    options to use (the CLI prints them). The `contacts` column is left out: its pair
-//!    notation `21,34` looks the same.
+//! 5. **Notes**: what the import read but an analysis may refuse; nothing is changed, and the
+//!    answer's `notes` says what to do (the CLI prints them). Cells are placed by their line
+//!    in the file, counted from 1 as above.
+//!    - [`decimal_comma_notes`]: text columns of a CSV file read without `decimal_comma`
+//!      whose every cell looks like a number with a decimal comma (`25,5`), with one cell's
+//!      place and the options to use. The `contacts` column is left out: its pair notation
+//!      `21,34` looks the same.
+//!    - [`unparsed_number_notes`]: text columns of a CSV file with more number cells than
+//!      others, which a few cells (`n/a`, `--`, `1.2e-3V`) made text: how many cells are not
+//!      numbers, the first three with their lines, and what to do: marks of a missing value
+//!      (`NA`, `N/A`, `n/a`, `NaN`, `--`, ...) are read as missing with the
+//!      `csv.null_values` the note spells out (or left empty in the file: an empty cell is a
+//!      missing value); other cells are to be corrected in the file.
+//!    - [`not_a_number_notes`]: float columns of a CSV file holding `NaN` or infinities,
+//!      which the parser reads as such floats (not as missing values unless
+//!      `csv.null_values` names them).
+//!    - [`empty_column_notes`]: columns of a CSV file or of inline columns with no value in
+//!      any row, which are stored as Float64 columns of nulls (an inline column of nulls
+//!      too), so that a sheet's empty `thickness_m` reads as 2D samples.
 //!
 //! Errors about a file name it and point at the place, `line L` or `line L, column C` (lines
 //! counted from 1 in the file as written, skipped and comment lines included; columns are field
@@ -297,6 +311,10 @@ fn json_values_to_column(name: &str, values: &[serde_json::Value]) -> ServiceRes
             .with_help("a column holds only numbers, only strings or only booleans (and nulls)")
     };
     let name = PlSmallStr::from_str(name);
+    if !values.is_empty() && present().next().is_none() {
+        // No value in any row: missing numbers, as an empty column of a CSV file reads.
+        return Ok(Column::full_null(name, values.len(), &DataType::Float64));
+    }
     if present().all(Value::is_string) {
         let data: Vec<Option<&str>> = values.iter().map(Value::as_str).collect();
         return Ok(Column::new(name, data));
@@ -433,6 +451,206 @@ pub fn decimal_comma_notes(frame: &DataFrame, source: &SourceMap) -> Vec<String>
     )]
 }
 
+/// How many of a column's cells that are not numbers a note names, with their lines.
+const CELLS_NAMED: usize = 3;
+
+/// Texts labs commonly write for a value that is missing (common practice of spreadsheet
+/// and instrument exports), compared without regard to case.
+const MISSING_VALUE_MARKERS: [&str; 10] = ["na", "n/a", "#n/a", "nan", "null", "none", "-", "--", "---", "?"];
+
+/// Notes on text columns of a CSV file that are mostly numbers: a few cells that are not
+/// (`n/a`, `--`, `1.2e-3V`) made the whole column text, which an analysis will refuse. Each
+/// note names the column, how many cells are not numbers, the first few with their lines
+/// in the file, and what to do. Nothing is changed: the column stays text until the file
+/// says otherwise. "Mostly" is more number cells than others; a text column with a few
+/// numbers in it (sample names such as `7`) is left alone. The `contacts` column is left
+/// out (its pair notation `21,34` is text), and so are columns that
+/// [`decimal_comma_notes`] names.
+pub fn unparsed_number_notes(frame: &DataFrame, source: &SourceMap) -> Vec<String> {
+    let mut notes = Vec::new();
+    for column in frame.columns() {
+        if column.name().as_str() == "contacts" || !column.dtype().is_string() {
+            continue;
+        }
+        let texts = column.str().expect("a string column");
+        if !mostly_numbers(texts) {
+            continue;
+        }
+        let (mut numbers, mut unparsed, mut markers) = (0usize, 0usize, 0usize);
+        let mut decimal_commas = 0usize;
+        let mut named = Vec::new();
+        let mut marker_texts: Vec<&str> = Vec::new();
+        for (row, text) in texts.iter().enumerate() {
+            let Some(text) = text else { continue };
+            let text = text.trim();
+            if text.parse::<f64>().is_ok_and(f64::is_finite) {
+                numbers += 1;
+                continue;
+            }
+            unparsed += 1;
+            if MISSING_VALUE_MARKERS.contains(&text.to_lowercase().as_str()) {
+                markers += 1;
+                if !marker_texts.contains(&text) {
+                    marker_texts.push(text);
+                }
+            }
+            decimal_commas += usize::from(!source.decimal_comma && csv_dialect::is_decimal_comma_number(text));
+            if named.len() < CELLS_NAMED {
+                named.push(format!("`{text}` on {}", line_of(source, row)));
+            }
+        }
+        if unparsed == 0 || numbers <= unparsed || decimal_commas == unparsed {
+            continue;
+        }
+        let cells = numbers + unparsed;
+        let more = if unparsed > named.len() { ", ..." } else { "" };
+        let mut advice = Vec::new();
+        if markers > 0 {
+            advice.push(format!(
+                "{} mark{} missing values: read {} as missing with {}, or leave those cells empty in the file (an empty cell is a missing value)",
+                quoted_texts(&marker_texts),
+                if marker_texts.len() == 1 { "s" } else { "" },
+                if marker_texts.len() == 1 { "it" } else { "them" },
+                null_values_option(&marker_texts)
+            ));
+        }
+        if markers < unparsed {
+            advice.push(format!(
+                "correct the {}cells that are not numbers in the file{}",
+                if markers > 0 { "other " } else { "" },
+                if decimal_commas > 0 {
+                    " (cells with a decimal comma, 1,5, need csv.decimal_comma true and a separator other than `,`: mobilis import --decimal-comma --separator ';')"
+                } else {
+                    ""
+                }
+            ));
+        }
+        let advice = advice.join("; ");
+        notes.push(format!(
+            "column `{}` was imported as text: {unparsed} of its {cells} non-empty cells {} ({}{more}; lines of the file, counted from 1); an analysis that needs numbers will refuse the column: {advice}",
+            column.name(),
+            if unparsed == 1 { "is not a number" } else { "are not numbers" },
+            named.join(", "),
+        ));
+    }
+    notes
+}
+
+/// Whether more cells of a text column read as finite numbers than not. Counts only, and
+/// stops as soon as the rest cannot change the answer, so that a column of names (most
+/// text columns) costs at most half a pass before [`unparsed_number_notes`] moves on.
+fn mostly_numbers(texts: &StringChunked) -> bool {
+    let mut remaining = texts.len() - texts.null_count();
+    let (mut numbers, mut others) = (0usize, 0usize);
+    for text in texts.iter().flatten() {
+        remaining -= 1;
+        if text.trim().parse::<f64>().is_ok_and(f64::is_finite) {
+            numbers += 1;
+        } else {
+            others += 1;
+        }
+        if numbers + remaining <= others {
+            return false;
+        }
+        if numbers > others + remaining {
+            return true;
+        }
+    }
+    numbers > others
+}
+
+/// Notes on float columns of a CSV file that hold `NaN` or infinities: the parser reads
+/// `NaN`, `inf` and `-inf` as such floats, which a lab may have written for a missing value.
+/// The values stay as read; the note names the column, how many, and the first few lines.
+pub fn not_a_number_notes(frame: &DataFrame, source: &SourceMap) -> Vec<String> {
+    let mut notes = Vec::new();
+    for column in frame.columns() {
+        let Ok(values) = column.f64() else { continue };
+        let mut count = 0usize;
+        let mut named = Vec::new();
+        for (row, value) in values.iter().enumerate() {
+            let Some(value) = value.filter(|value| !value.is_finite()) else {
+                continue;
+            };
+            count += 1;
+            if named.len() < CELLS_NAMED {
+                let shown = if value.is_nan() {
+                    "NaN"
+                } else if value > 0.0 {
+                    "inf"
+                } else {
+                    "-inf"
+                };
+                named.push(format!("`{shown}` on {}", line_of(source, row)));
+            }
+        }
+        if count == 0 {
+            continue;
+        }
+        let more = if count > named.len() { ", ..." } else { "" };
+        notes.push(format!(
+            "column `{}` holds {count} value{} that {} not finite numbers ({}{more}): analyses refuse or skip them; where the file means a missing value, leave the cell empty, or read `NaN` as missing with {}",
+            column.name(),
+            if count == 1 { "" } else { "s" },
+            if count == 1 { "is" } else { "are" },
+            named.join(", "),
+            null_values_option(&["NaN"])
+        ));
+    }
+    notes
+}
+
+/// `` `n/a`, `--` ``: texts as a note quotes them.
+fn quoted_texts(texts: &[&str]) -> String {
+    texts
+        .iter()
+        .map(|text| format!("`{text}`"))
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+/// The `csv.null_values` option that reads `texts` as missing values, in both spellings.
+fn null_values_option(texts: &[&str]) -> String {
+    let json = serde_json::to_string(texts).expect("texts serialize");
+    let flags: Vec<String> = texts.iter().map(|text| format!("--null-value '{text}'")).collect();
+    format!(
+        "csv.null_values {json} in dataset.import (mobilis import {})",
+        flags.join(" ")
+    )
+}
+
+/// "line 7": where a row of the frame is in the file.
+fn line_of(source: &SourceMap, row: usize) -> String {
+    source
+        .lines
+        .get(row)
+        .map_or_else(|| format!("data row {}", row + 1), |line| format!("line {line}"))
+}
+
+/// Notes on columns that have no value in any row, which an import stores as Float64
+/// columns of nulls ([`csv_dialect::empty_columns_as_numbers`]): a sheet's `thickness_m`
+/// left empty for 2D samples reads as missing numbers, not as text.
+pub fn empty_column_notes(frame: &DataFrame) -> Vec<String> {
+    let rows = frame.height();
+    let empty: Vec<String> = frame
+        .columns()
+        .iter()
+        .filter(|column| rows > 0 && column.null_count() == rows && column.dtype() == &DataType::Float64)
+        .map(|column| format!("`{}`", column.name()))
+        .collect();
+    match empty.len() {
+        0 => Vec::new(),
+        1 => vec![format!(
+            "column {} has no value in any row: it was imported as numbers (Float64), every value missing",
+            empty[0]
+        )],
+        _ => vec![format!(
+            "columns {} have no value in any row: they were imported as numbers (Float64), every value missing",
+            empty.join(", ")
+        )],
+    }
+}
+
 /// A text column given a unit: fine when every cell reads as a number (a file that quotes
 /// its numbers); otherwise an error naming the first cell that does not, and the option
 /// that would read it when it is a number with a decimal comma.
@@ -462,6 +680,13 @@ fn check_text_numbers(
                 "the file writes decimal commas: csv.decimal_comma true and a separator other than `,` in dataset.import (mobilis import --decimal-comma --separator ';')",
             ),
             (true, None) => error.with_help("send numbers with a decimal point, as JSON numbers"),
+            (false, Some(_)) if MISSING_VALUE_MARKERS.contains(&text.trim().to_lowercase().as_str()) => {
+                error.with_help(format!(
+                    "`{}` marks a missing value? Read it as one with {}, or leave the cell empty",
+                    text.trim(),
+                    null_values_option(&[text.trim()])
+                ))
+            }
             _ => error.with_help(format!(
                 "correct the cell, leave it empty for a missing value, or leave `{column_name}` out of units"
             )),
@@ -571,6 +796,10 @@ mod tests {
             error.message,
             "line 4, column 2 (`T`): `n/a` is not a number, and units gives this column a unit"
         );
+        assert!(error
+            .help
+            .unwrap()
+            .contains("csv.null_values [\"n/a\"] in dataset.import (mobilis import --null-value 'n/a')"));
         let (frame, map) = csv_dialect::read_csv("sample;T\na;25,5\n".as_bytes(), &dialect, |_| false).unwrap();
         let error = apply_units(frame, &units, Some(&map)).unwrap_err();
         assert!(error.message.starts_with("line 2, column 2"), "{}", error.message);
@@ -578,5 +807,90 @@ mod tests {
         // Quoted numbers are numbers.
         let (frame, map) = csv_dialect::read_csv("sample;T\na;\"25\"\n".as_bytes(), &dialect, |_| false).unwrap();
         assert!(apply_units(frame, &units, Some(&map)).is_ok());
+    }
+
+    #[test]
+    fn a_mostly_numeric_column_with_junk_is_noted_with_its_lines() {
+        let text = "sample,voltage_V\na,1.5e-3\nb,n/a\nc,2.0e-3\nd,--\ne,1.2e-3V\nf,2.5e-3\ng,NA\nh,3e-3\ni,4e-3\n";
+        let (frame, map) = csv_dialect::read_csv(text.as_bytes(), &CsvDialect::default(), |_| false).unwrap();
+        // Nothing is changed: the column stays text.
+        assert_eq!(frame.column("voltage_V").unwrap().dtype(), &DataType::String);
+        let notes = unparsed_number_notes(&frame, &map);
+        assert_eq!(notes.len(), 1, "{notes:?}");
+        let note = &notes[0];
+        for words in [
+            "column `voltage_V` was imported as text: 4 of its 9 non-empty cells are not numbers",
+            "`n/a` on line 3, `--` on line 5, `1.2e-3V` on line 6, ...",
+            "`n/a`, `--`, `NA` mark missing values: read them as missing with csv.null_values [\"n/a\",\"--\",\"NA\"] in dataset.import (mobilis import --null-value 'n/a' --null-value '--' --null-value 'NA')",
+            "correct the other cells that are not numbers in the file",
+        ] {
+            assert!(note.contains(words), "{words}: {note}");
+        }
+        // Following the note: the markers are missing values, the cell with a unit is left.
+        let dialect = CsvDialect {
+            null_values: vec!["n/a".into(), "--".into(), "NA".into()],
+            ..CsvDialect::default()
+        };
+        let (frame, map) = csv_dialect::read_csv(text.as_bytes(), &dialect, |_| false).unwrap();
+        assert_eq!(frame.column("voltage_V").unwrap().null_count(), 3);
+        let notes = unparsed_number_notes(&frame, &map);
+        assert!(
+            notes[0].contains("1 of its 6 non-empty cells is not a number (`1.2e-3V` on line 6;"),
+            "{notes:?}"
+        );
+        assert!(!notes[0].contains("null_values"), "{notes:?}");
+        // Only marks of missing values: the advice is the option alone.
+        let text = "sample,T\na,1\nb,N/A\nc,2\n";
+        let (frame, map) = csv_dialect::read_csv(text.as_bytes(), &CsvDialect::default(), |_| false).unwrap();
+        let notes = unparsed_number_notes(&frame, &map);
+        assert!(
+            notes[0].contains("`N/A` marks missing values: read it as missing with csv.null_values [\"N/A\"]")
+                && !notes[0].contains("correct"),
+            "{notes:?}"
+        );
+        // A text column with a few numbers, and numbers with decimal commas, are left alone.
+        let text = "sample;T\nW1;1,5\n7;2,5\nW3;3,5\n";
+        let semicolons = CsvDialect {
+            separator: ";".into(),
+            ..CsvDialect::default()
+        };
+        let (frame, map) = csv_dialect::read_csv(text.as_bytes(), &semicolons, |_| false).unwrap();
+        assert!(unparsed_number_notes(&frame, &map).is_empty(), "{frame}");
+        // `NaN` and `nan` read as text or as floats that are not numbers, as the parser
+        // decides; either way a note names the cell's line.
+        for text in [
+            "sample,T\na,1\nb,NaN\nc,2\nd,3\n",
+            "sample,T\na,1\nb,nan\nc,2\nd,3\n",
+            "sample,T\na,1.5\nb,NaN\nc,2.5\nd,3.5\n",
+        ] {
+            let (frame, map) = csv_dialect::read_csv(text.as_bytes(), &CsvDialect::default(), |_| false).unwrap();
+            let notes = [unparsed_number_notes(&frame, &map), not_a_number_notes(&frame, &map)].concat();
+            assert!(
+                notes.len() == 1 && notes[0].contains("`T`") && notes[0].to_lowercase().contains("`nan` on line 3"),
+                "{text}: {notes:?}"
+            );
+        }
+        let text = "sample,T\na,1.5\nb,NaN\nc,2.5\nd,\ne,inf\n";
+        let (frame, map) = csv_dialect::read_csv(text.as_bytes(), &CsvDialect::default(), |_| false).unwrap();
+        assert_eq!(frame.column("T").unwrap().dtype(), &DataType::Float64);
+        let notes = not_a_number_notes(&frame, &map);
+        assert_eq!(
+            notes,
+            vec!["column `T` holds 2 values that are not finite numbers (`NaN` on line 3, `inf` on line 6): analyses refuse or skip them; where the file means a missing value, leave the cell empty, or read `NaN` as missing with csv.null_values [\"NaN\"] in dataset.import (mobilis import --null-value 'NaN')"]
+        );
+    }
+
+    #[test]
+    fn columns_without_values_are_numbers_and_noted() {
+        let (frame, _) =
+            csv_dialect::read_csv(b"sample,thickness_m\nS1,\nS2,\n", &CsvDialect::default(), |_| false).unwrap();
+        assert_eq!(
+            empty_column_notes(&frame),
+            vec!["column `thickness_m` has no value in any row: it was imported as numbers (Float64), every value missing"]
+        );
+        let columns = json!({"sample": ["S1"], "thickness_m": [null]});
+        let frame = frame_from_json_columns(columns.as_object().unwrap()).unwrap();
+        assert_eq!(frame.column("thickness_m").unwrap().dtype(), &DataType::Float64);
+        assert_eq!(empty_column_notes(&frame).len(), 1);
     }
 }

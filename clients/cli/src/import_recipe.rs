@@ -16,9 +16,9 @@
 //!
 //! `mobilis import NAME PATH --recipe station.toml` reads it; flags given beside it add to
 //! it and win over it (`--rename`, `--unit`, `--separator`, `--decimal-comma`,
-//! `--comment-prefix`, `--skip-rows`, `--no-header`, `--format`). The `[[import]]` tables of
-//! a pipeline file take the same keys, and `recipe = "station.toml"` (relative to the
-//! pipeline file) beside them.
+//! `--comment-prefix`, `--skip-rows`, `--no-header`, `--null-value`, `--format`). The
+//! `[[import]]` tables of a pipeline file take the same keys, and `recipe = "station.toml"`
+//! (relative to the pipeline file) beside them.
 
 use anyhow::{bail, Context};
 use mobilis_protocol::params::{CsvDialect, ImportParams, TableFormat, UnitSpec};
@@ -57,6 +57,8 @@ pub struct CsvOptions {
     pub skip_rows: Option<u32>,
     #[serde(default)]
     pub header: Option<bool>,
+    #[serde(default)]
+    pub null_values: Option<Vec<String>>,
 }
 
 /// The import flags of `mobilis import`.
@@ -92,6 +94,10 @@ pub struct ImportFlags {
     /// CSV: the file has no header line; the columns are then column_1, column_2, ...
     #[arg(long)]
     pub no_header: bool,
+    /// CSV: a text that means a missing value in this file, read as an empty cell is
+    /// (repeatable), e.g. --null-value 'n/a' --null-value '--'.
+    #[arg(long = "null-value", value_name = "TEXT")]
+    pub null_values: Vec<String>,
 }
 
 /// Splits `key=value` at the first `=` (column names may hold spaces and parentheses;
@@ -144,6 +150,7 @@ impl ImportRecipe {
             comment_prefix: csv.comment_prefix.or(self.csv.comment_prefix),
             skip_rows: csv.skip_rows.or(self.csv.skip_rows),
             header: csv.header.or(self.csv.header),
+            null_values: csv.null_values.or(self.csv.null_values),
         };
         self
     }
@@ -176,7 +183,8 @@ impl ImportRecipe {
             || c.decimal_comma.is_some()
             || c.comment_prefix.is_some()
             || c.skip_rows.is_some()
-            || c.header.is_some();
+            || c.header.is_some()
+            || c.null_values.is_some();
         // A member the recipe leaves out keeps the protocol's default.
         let csv = stated.then(|| {
             let default = CsvDialect::default();
@@ -186,6 +194,7 @@ impl ImportRecipe {
                 comment_prefix: c.comment_prefix.clone().or(default.comment_prefix),
                 skip_rows: c.skip_rows.unwrap_or(default.skip_rows),
                 header: c.header.unwrap_or(default.header),
+                null_values: c.null_values.clone().unwrap_or(default.null_values),
             }
         });
         Ok(ImportParams {
@@ -219,6 +228,7 @@ impl ImportFlags {
                 comment_prefix: self.comment_prefix.clone(),
                 skip_rows: self.skip_rows,
                 header: self.no_header.then_some(false),
+                null_values: (!self.null_values.is_empty()).then(|| self.null_values.clone()),
             },
         };
         Ok(base.overridden_by(flags))
@@ -304,6 +314,20 @@ mod tests {
                 "csv": {"separator": "tab", "decimal_comma": true, "comment_prefix": "#", "skip_rows": 0, "header": true},
             })
         );
+    }
+
+    #[test]
+    fn null_values_come_from_the_recipe_or_the_flags() {
+        let recipe: ImportRecipe = toml::from_str(r#"csv = { null_values = ["n/a", "--"] }"#).unwrap();
+        let params = serde_json::to_value(recipe.clone().to_params().unwrap()).unwrap();
+        assert_eq!(params["csv"]["null_values"], json!(["n/a", "--"]));
+        let flags = ImportFlags {
+            null_values: vec!["NA".into()],
+            ..ImportFlags::default()
+        };
+        let from_flags = recipe.overridden_by(flags.recipe().unwrap());
+        let params = serde_json::to_value(from_flags.to_params().unwrap()).unwrap();
+        assert_eq!(params["csv"]["null_values"], json!(["NA"]));
     }
 
     #[test]

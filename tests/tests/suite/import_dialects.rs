@@ -6,9 +6,17 @@
 //! mobility the readings were generated from, within the uncertainties it states. Files
 //! that do not match their recipe get errors naming the line and the option to change, and
 //! the provenance identifies the file by its SHA-256, size and modification time.
+//!
+//! Unusual files a new user brought: a sample sheet whose `thickness_m` column is empty (2D
+//! samples only) imports as numbers that `hall.reduce` takes, and so does a 2D result
+//! exported and imported again; a voltage column with `n/a`, `--` and `1.2e-3V` in it is
+//! noted with the cells' lines; a commented, `;`-separated export with decimal commas gets
+//! the help that reads it, and a wrong skip_rows is refused instead of losing the header.
 
 use mobilis_physics::readings::RawReading;
-use mobilis_tests::{float_column, run_cli, string_column, van_der_pauw_run, InventedSample, TestDaemon};
+use mobilis_tests::{
+    float_column, readings_json_columns, run_cli, string_column, van_der_pauw_run, InventedSample, TestDaemon,
+};
 use serde_json::json;
 use std::path::Path;
 
@@ -391,6 +399,260 @@ group_by = ["sample"]
     let (ok, stdout, stderr) = mobilis(&url, &["pipeline", &pipeline]);
     assert!(ok, "pipeline failed:\n{stdout}\n{stderr}");
     check_reduction(&daemon, "run", "run-hall-again").await;
+}
+
+/// The dtypes of a dataset's columns, by name.
+async fn dtypes(daemon: &TestDaemon, name: &str) -> std::collections::BTreeMap<String, String> {
+    let info = daemon.call("dataset.info", json!({"name": name})).await;
+    info["columns"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| {
+            (
+                c["name"].as_str().unwrap().to_owned(),
+                c["dtype"].as_str().unwrap().to_owned(),
+            )
+        })
+        .collect()
+}
+
+/// The notes of an import's answer.
+fn notes(answer: &serde_json::Value) -> Vec<String> {
+    answer["notes"]
+        .as_array()
+        .map(|notes| notes.iter().map(|n| n.as_str().unwrap().to_owned()).collect())
+        .unwrap_or_default()
+}
+
+#[tokio::test(flavor = "multi_thread")]
+async fn a_sheet_of_2d_samples_with_an_empty_thickness_imports_as_numbers_and_reduces() {
+    let daemon = TestDaemon::start().await;
+    let readings = generate_readings();
+    daemon
+        .call(
+            "dataset.import",
+            json!({"name": "run", "columns": readings_json_columns(&readings)}),
+        )
+        .await;
+    // Null thickness means a 2D sheet: a sheet of only 2D samples has an empty column.
+    std::fs::write(
+        daemon.data.join("sheet.csv"),
+        "sample,thickness_m,hall_factor\nW1,,1.0\nW2,,1.0\n",
+    )
+    .unwrap();
+    let imported = daemon
+        .call("dataset.import", json!({"name": "sheet", "path": "sheet.csv"}))
+        .await;
+    assert_eq!(dtypes(&daemon, "sheet").await["thickness_m"], "f64");
+    assert!(
+        notes(&imported)
+            .iter()
+            .any(|n| n.contains("column `thickness_m` has no value in any row") && n.contains("Float64")),
+        "{imported}"
+    );
+    let run = daemon
+        .call(
+            "analysis.run",
+            json!({"analysis": "hall.reduce", "inputs": {"readings": "run", "samples": "sheet"},
+                   "output": "sheet-hall", "group_by": ["sample"]}),
+        )
+        .await;
+    assert_eq!(run["rows"], WAFERS.len() * TEMPERATURES_K.len(), "{run}");
+    // The 2D reduction is the one without a sheet: the same sheet densities.
+    check_reduction(&daemon, "run", "plain-hall").await;
+    let with_sheet = daemon.call("dataset.rows", json!({"name": "sheet-hall"})).await;
+    let without = daemon.call("dataset.rows", json!({"name": "plain-hall"})).await;
+    assert_eq!(
+        float_column(&with_sheet, "sheet_density_m2"),
+        float_column(&without, "sheet_density_m2")
+    );
+
+    // A 2D result exported to CSV reads back with its empty columns as numbers.
+    daemon
+        .call(
+            "dataset.export",
+            json!({"name": "sheet-hall", "path": "sheet-hall.csv"}),
+        )
+        .await;
+    daemon
+        .call(
+            "dataset.import",
+            json!({"name": "sheet-hall-again", "path": "sheet-hall.csv"}),
+        )
+        .await;
+    let stored = dtypes(&daemon, "sheet-hall").await;
+    let again = dtypes(&daemon, "sheet-hall-again").await;
+    let page = daemon.call("dataset.rows", json!({"name": "sheet-hall"})).await;
+    let mut empty_floats = 0;
+    for (name, dtype) in &stored {
+        if dtype == "f64" && float_column(&page, name).iter().all(Option::is_none) {
+            empty_floats += 1;
+            assert_eq!(again[name], "f64", "{name}: {again:?}");
+        }
+    }
+    assert!(empty_floats > 0, "a 2D result has columns without values: {stored:?}");
+}
+
+#[tokio::test(flavor = "multi_thread")]
+async fn cells_that_are_not_numbers_in_a_numeric_column_are_noted_with_their_lines() {
+    let daemon = TestDaemon::start().await;
+    let mut text = String::from("sample,temperature_K,voltage_V\n");
+    let cells = [
+        "1.5e-3", "n/a", "1.6e-3", "--", "1.2e-3V", "1.7e-3", "1.8e-3", "NA", "1.9e-3", "2.0e-3",
+    ];
+    for (row, cell) in cells.iter().enumerate() {
+        text += &format!("W1,{},{cell}\n", 250 + row);
+    }
+    std::fs::write(daemon.data.join("junk.csv"), text).unwrap();
+    let imported = daemon
+        .call("dataset.import", json!({"name": "junk", "path": "junk.csv"}))
+        .await;
+    // Nothing is changed: the column is text, as the file writes it, and the note says why.
+    assert_eq!(dtypes(&daemon, "junk").await["voltage_V"], "str");
+    let notes = notes(&imported);
+    assert_eq!(notes.len(), 1, "{notes:?}");
+    for words in [
+        "column `voltage_V` was imported as text: 4 of its 10 non-empty cells are not numbers",
+        "`n/a` on line 3, `--` on line 5, `1.2e-3V` on line 6, ...",
+        "lines of the file, counted from 1",
+        "csv.null_values [\"n/a\",\"--\",\"NA\"]",
+        "correct the other cells that are not numbers in the file",
+    ] {
+        assert!(notes[0].contains(words), "`{words}` missing: {}", notes[0]);
+    }
+    // Following the note: the marks are missing values; the cell with a unit still is text.
+    let imported = daemon
+        .call(
+            "dataset.import",
+            json!({"name": "junk", "path": "junk.csv", "overwrite": true,
+                   "csv": {"null_values": ["n/a", "--", "NA"]}}),
+        )
+        .await;
+    assert_eq!(dtypes(&daemon, "junk").await["voltage_V"], "str");
+    let left = self::notes(&imported);
+    assert!(
+        left.len() == 1 && left[0].contains("1 of its 7 non-empty cells is not a number (`1.2e-3V` on line 6;"),
+        "{left:?}"
+    );
+    let info = daemon.call("dataset.info", json!({"name": "junk"})).await;
+    assert_eq!(info["provenance"]["csv"]["null_values"], json!(["n/a", "--", "NA"]));
+    // Empty cells, as the note advises, are missing values of a numeric column.
+    let cleaned: String = std::fs::read_to_string(daemon.data.join("junk.csv"))
+        .unwrap()
+        .lines()
+        .map(|line| {
+            let mut fields: Vec<&str> = line.split(',').collect();
+            if fields[2].parse::<f64>().is_err() && fields[2] != "voltage_V" {
+                fields[2] = "";
+            }
+            fields.join(",") + "\n"
+        })
+        .collect();
+    std::fs::write(daemon.data.join("cleaned.csv"), cleaned).unwrap();
+    let imported = daemon
+        .call("dataset.import", json!({"name": "cleaned", "path": "cleaned.csv"}))
+        .await;
+    assert_eq!(dtypes(&daemon, "cleaned").await["voltage_V"], "f64");
+    assert!(imported.get("notes").is_none(), "{imported}");
+    let page = daemon.call("dataset.rows", json!({"name": "cleaned"})).await;
+    assert_eq!(
+        float_column(&page, "voltage_V").iter().filter(|v| v.is_none()).count(),
+        4
+    );
+}
+
+/// A lab's export that comments its preamble, separates by `;` and writes decimal commas.
+fn commented_semicolon_export() -> String {
+    let mut text = String::from("# run 12, cryostat B\n# operator notes\nsample;T;B;I;V;R\n");
+    for row in 0..15 {
+        text += &format!(
+            "S{};{},85;0,{};1,3;4,{};{}\n",
+            row % 3 + 1,
+            26 + row,
+            row % 10,
+            row % 10,
+            100 + row
+        );
+    }
+    text
+}
+
+/// The error's message and help of a call that must fail.
+async fn refusal(daemon: &TestDaemon, params: serde_json::Value) -> (i32, String, String) {
+    match daemon.client.call("dataset.import", params).await {
+        Ok(answer) => panic!("the import succeeded: {answer}"),
+        Err(error) => {
+            let help = error.data().and_then(|data| data.help).unwrap_or_default();
+            let mobilis_client::ClientError::Rpc { code, message, .. } = error else {
+                panic!("not a JSON-RPC error: {error}");
+            };
+            (code, message, help)
+        }
+    }
+}
+
+#[tokio::test(flavor = "multi_thread")]
+async fn the_help_for_a_commented_semicolon_export_reads_it_and_a_wrong_skip_is_refused() {
+    let daemon = TestDaemon::start().await;
+    std::fs::write(daemon.data.join("run12.csv"), commented_semicolon_export()).unwrap();
+
+    // No dialect: the help names every option at once, with the right count of lines.
+    let (code, message, help) = refusal(&daemon, json!({"name": "run12", "path": "run12.csv"})).await;
+    assert_eq!(code, 4008, "{message}");
+    assert!(
+        message.contains("begin on line 3 (`sample;T;B;I;V;R`)") && message.contains("separated by `;`, not `,`"),
+        "{message}"
+    );
+    assert!(
+        help.contains("csv.separator \";\", csv.comment_prefix \"#\", csv.decimal_comma true")
+            && help.contains("--separator ';' --comment-prefix '#' --decimal-comma")
+            && help.contains("csv.skip_rows 2"),
+        "{help}"
+    );
+    assert!(!help.contains("skip_rows 3"), "{help}");
+
+    // Skipping one line too many would make the first data row the header: refused.
+    for separator in [",", ";"] {
+        let (code, message, help) = refusal(
+            &daemon,
+            json!({"name": "run12", "path": "run12.csv", "csv": {"skip_rows": 3, "separator": separator}}),
+        )
+        .await;
+        assert_eq!(code, 4008, "{message}");
+        assert!(
+            message.contains("line 4: the header, `S1;26,85;0,0;1,3;4,0;100`, looks like a row of data"),
+            "{message}"
+        );
+        assert!(
+            help.contains("its header is line 3") && help.contains("--separator ';' --skip-rows 2 --decimal-comma"),
+            "{help}"
+        );
+    }
+
+    // Following the help reads the whole table, both ways it offers.
+    for csv in [
+        json!({"separator": ";", "comment_prefix": "#", "decimal_comma": true}),
+        json!({"separator": ";", "skip_rows": 2, "decimal_comma": true}),
+    ] {
+        let imported = daemon
+            .call(
+                "dataset.import",
+                json!({"name": "run12", "path": "run12.csv", "csv": csv, "overwrite": true}),
+            )
+            .await;
+        assert_eq!(imported["rows"], 15, "{imported}");
+        let names: Vec<&str> = imported["columns"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|c| c["name"].as_str().unwrap())
+            .collect();
+        assert_eq!(names, ["sample", "T", "B", "I", "V", "R"]);
+        let page = daemon.call("dataset.rows", json!({"name": "run12"})).await;
+        assert_eq!(float_column(&page, "T")[0], Some(26.85));
+        assert!(imported.get("notes").is_none(), "{imported}");
+    }
 }
 
 fn sha256_hex(bytes: &[u8]) -> String {

@@ -490,7 +490,7 @@ impl Symmetrized {
                     "differ by more than {REPEAT_BIRGE_RATIO_LIMIT} times their stated uncertainties (Birge ratio)"
                 ),
                 format!("Birge ratio {:.1}", worst.measure),
-                "each merged point's uncertainty was widened to its readings' scatter, which the results carry",
+                "each merged point's uncertainty was widened to its readings' scatter, which the results carry (a fit takes the points as independent, so a difference common to every field, as between two whole sweeps, is not covered)",
             )
         } else {
             (

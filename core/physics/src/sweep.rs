@@ -752,6 +752,11 @@ fn column_scatter(residuals: &[f64], stated: Option<&[f64]>, scale: f64) -> (f64
     (external, measure)
 }
 
+/// Reads one column of a sweep point.
+type ColumnValue = fn(&SweepPoint) -> f64;
+/// Reads the stated uncertainty of that column.
+type ColumnUncertainty = fn(&ResistivityUncertainty) -> f64;
+
 impl Node {
     /// Widens the node's variances to the scatter of its readings where that is the larger,
     /// and records how far they disagree (see "Repeated readings"). `group` holds the
@@ -763,7 +768,7 @@ impl Node {
         }
         let stated = group[0].1.uncertainty.is_some();
         let scale = self.rho_xx.hypot(self.rho_xy);
-        let columns: [(&'static str, fn(&SweepPoint) -> f64, fn(&ResistivityUncertainty) -> f64); 2] = [
+        let columns: [(&'static str, ColumnValue, ColumnUncertainty); 2] = [
             ("rho_xx_ohm_sq", |p| p.rho_xx_ohm_sq, |u| u.rho_xx_ohm_sq),
             ("rho_xy_ohm", |p| p.rho_xy_ohm, |u| u.rho_xy_ohm),
         ];

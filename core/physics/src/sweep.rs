@@ -28,7 +28,8 @@
 //! 3. **Repeats.** Within a branch, points sorted by |B| are grouped around anchors: a group
 //!    starts at its lowest |B| and takes every following point within `field_resolution_t`
 //!    of that anchor; the next point starts the next group. Each group becomes one node: the
-//!    means of |B|, rho_xx and rho_xy. An up and a down sweep thus average, and no group is
+//!    means of |B|, rho_xx and rho_xy, with an uncertainty that also reflects how far its
+//!    readings disagree (see "Repeated readings"). An up and a down sweep thus average, and no group is
 //!    wider than the resolution. Groups are anchored, not chained (a point joining when it is
 //!    within the resolution of its *neighbour*), because a sweep logged continuously along a
 //!    slow ramp has every neighbour closer than any sensible resolution: chaining would
@@ -91,10 +92,64 @@
 //! the Hall misalignment fraction of a sample whose Hall contacts are offset. Both are NaN
 //! for a sweep at one field sign, which cannot measure them.
 //!
+//! # Repeated readings
+//!
+//! A node that merges k >= 2 readings of one field (a group of step 3, or the zero-field
+//! readings) holds repeated observations of one quantity, and its standard uncertainty
+//! must also reflect how far they disagree, not only what each reading states: otherwise
+//! two sweeps that do not agree (a second copy of a sweep scaled by a wrong geometry,
+//! another sample, another temperature) average into points as certain as either alone.
+//! Its variance is the larger of
+//!
+//! - the **internal** one, propagated from the stated uncertainties: sum u_i^2 / k^2, and
+//! - the **external** one, from the readings' scatter: the squared standard error of the
+//!   mean, s^2 / k with s^2 = sum (x_i - x_mean)^2 / (k - 1), the Type A evaluation of
+//!   repeated observations (JCGM 100:2008, GUM 4.2.3).
+//!
+//! For readings of equal stated uncertainty the external variance is the internal one
+//! times the squared Birge ratio chi^2 / (k - 1) (R. T. Birge, Phys. Rev. 40, 207, 1932), so
+//! the rule is the Particle Data Group's practice of scaling by the Birge ratio when it is
+//! above 1 and never narrowing; the scatter about the node's plain mean is used because the
+//! node is that plain mean. The node's value, and every node of a single reading, are as
+//! before, and so is the rho_xx - rho_xy covariance (the propagated one). A group's
+//! readings may lie at |B| up to `field_resolution_T` apart along a sloping curve (a densely
+//! logged ramp averaged with a coarse resolution): the trend across the node, estimated
+//! from its neighbouring nodes' means (a central difference, one-sided at the branch ends),
+//! is removed from each reading before the scatter is taken, so that the slope of rho_xy
+//! over a group does not pass for disagreement. The zero-field readings need no trend for
+//! rho_xx, which is even in B; their rho_xy is odd in B (readings at a magnet's remanence of
+//! either sign differ by the Hall slope) and enters no output's uncertainty, so it keeps
+//! its internal variance.
+//!
+//! The rule applies only to readings of the *same* field sign. rho_xx(+B) and rho_xx(-B) are
+//! not repeats of one quantity: their difference is the field-odd part of rho_xx, the Hall
+//! voltage that longitudinal contacts off the equipotential pick up (a fraction of rho_xy),
+//! a real, reproducible signal of the sample's contacts that step 6 removes exactly as the
+//! odd part; likewise the even part of rho_xy is the Hall contacts' misalignment. Scaling
+//! the even/odd combinations by the disagreement of the two branches would turn every
+//! misaligned but well-measured sample into a noisy one, so the symmetrization propagates
+//! the nodes' variances only, and reports the parts it removed.
+//!
+//! Without stated uncertainties the nodes carry none, as before, and the fits estimate the
+//! noise from their residuals; the readings' spread is still assessed, as their standard
+//! deviation relative to |rho| = sqrt(rho_xx^2 + rho_xy^2) at the node.
+//!
+//! [`Symmetrized::repeats`] counts the merged points used, those the scatter widened, and
+//! lists the ones whose readings disagree far beyond their uncertainties: a Birge ratio
+//! sqrt(chi^2 / (k - 1)) about their weighted mean above [`REPEAT_BIRGE_RATIO_LIMIT`] (5), or
+//! without uncertainties a relative spread above [`REPEAT_RELATIVE_SPREAD_LIMIT`] (1 %).
+//! [`Symmetrized::warnings`] then says how many points, the worst (field, column, the
+//! readings' range, the ratio) and what to check: readings of one field that disagree so
+//! far are not one measurement repeated but sweeps that do not agree (another sample,
+//! contacts that changed, another temperature), which no widening makes one measurement.
+//! [`repeated_readings_uncertainty`] is the same rule for a plain list of readings (the
+//! zero-field resistivity of `mr.ratio`).
+//!
 //! # Uncertainties
 //!
 //! Every output value is a linear combination of the nodes, and the nodes are independent
-//! (a node averages k points: variance sum var_i / k^2), so the variances and the rho_xx -
+//! (a node averages k points: variance sum var_i / k^2, or their scatter's when larger; see
+//! "Repeated readings"), so the variances and the rho_xx -
 //! rho_xy covariance of each output are propagated exactly, including the zero-field node
 //! shared by the two branches. Neighbouring grid points that interpolate the same node are
 //! correlated; that correlation between fields is not reported, and a union grid has about
@@ -349,6 +404,9 @@ pub struct Symmetrized {
     /// measured: rho_xx taken as even, rho_xy as odd, the contact misalignment not removed
     /// (see "One field sign" in the module documentation).
     pub single_field_sign: bool,
+    /// The points that merge several readings and how far those disagree (see "Repeated
+    /// readings" in the module documentation).
+    pub repeats: RepeatSummary,
 }
 
 /// The fraction of the measured field range that points outside the overlap must take with
@@ -408,7 +466,51 @@ impl Symmetrized {
         if kept < (1.0 - SIGNIFICANT_RANGE_LOSS) * self.measured_max_field_t {
             warnings.extend(self.outside_overlap_warning());
         }
+        warnings.extend(self.repeat_warning(uses));
         warnings
+    }
+
+    /// Readings merged into one point that disagree far beyond their uncertainties (or,
+    /// without uncertainties, by more than [`REPEAT_RELATIVE_SPREAD_LIMIT`] of |rho|), in
+    /// the columns the analysis uses, in words: how many points, the worst, what to check.
+    pub fn repeat_warning(&self, uses: SweepUse) -> Option<String> {
+        let repeats = &self.repeats;
+        let relevant: Vec<&RepeatSpread> = repeats
+            .disagreements
+            .iter()
+            .filter(|s| uses == SweepUse::Tensor || s.column == "rho_xx_ohm_sq")
+            .collect();
+        let worst = relevant.iter().max_by(|a, b| a.measure.total_cmp(&b.measure))?;
+        let mut fields: Vec<u64> = relevant.iter().map(|s| s.field_t.to_bits()).collect();
+        fields.sort_unstable();
+        fields.dedup();
+        let (how, measure, consequence) = if repeats.stated_uncertainties {
+            (
+                format!(
+                    "differ by more than {REPEAT_BIRGE_RATIO_LIMIT} times their stated uncertainties (Birge ratio)"
+                ),
+                format!("Birge ratio {:.1}", worst.measure),
+                "each merged point's uncertainty was widened to its readings' scatter, which the results carry (a fit takes the points as independent, so a difference common to every field, as between two whole sweeps, is not covered)",
+            )
+        } else {
+            (
+                format!(
+                    "spread by more than {REPEAT_RELATIVE_SPREAD_LIMIT} of |rho| (no rho_xx_ohm_sq_unc and rho_xy_ohm_unc given to compare with)"
+                ),
+                format!("a spread of {:.3e} of |rho|", worst.measure),
+                "the merged point is their mean",
+            )
+        };
+        Some(format!(
+            "repeated readings disagree: at {} of the {} points that merge several readings (within field_resolution_T of each other, or at zero field) the readings {how}; the worst at B = {:.4} T in {}: {} readings from {:.6e} to {:.6e}, {measure}; {consequence}, but readings of one field that disagree so far are not one measurement repeated: check whether the table joins sweeps that do not agree (another sample, contacts that changed, another temperature) and analyse them apart",
+            fields.len(),
+            repeats.merged_points,
+            worst.field_t,
+            worst.column,
+            worst.readings,
+            worst.lowest,
+            worst.highest,
+        ))
     }
 
     /// The measured points outside the overlap, if any, in words (naming
@@ -544,10 +646,169 @@ struct Node {
     cov: f64,
     /// How many measured points it averages.
     count: usize,
+    /// +1 or -1 for a node of the positive or the negative branch, 0 for the zero-field node.
+    sign: f64,
+    /// How far its readings disagree, per column (rho_xx, rho_xy); `None` for a single
+    /// reading and for the zero-field node's rho_xy (see "Repeated readings").
+    spread: [Option<RepeatSpread>; 2],
+    /// True when the scatter of its readings, not their stated uncertainties, set a variance.
+    widened: bool,
 }
 
-/// Averages a group of measured points (given with |B|) into one node.
-fn average(group: &[(f64, &SweepPoint)]) -> Node {
+/// A Birge ratio above this, in some merged point, is reported as readings that disagree
+/// far beyond their stated uncertainties (see "Repeated readings"). For two consistent
+/// readings (one degree of freedom) a ratio above 5 has a probability of 6e-7, so a sweep of
+/// a thousand merged points raises it by chance less than once in a thousand sweeps, while
+/// readings of different samples, contacts or temperatures disagree by hundreds.
+pub const REPEAT_BIRGE_RATIO_LIMIT: f64 = 5.0;
+
+/// Without stated uncertainties: a standard deviation of the readings merged into one point
+/// above this fraction of |rho| = sqrt(rho_xx^2 + rho_xy^2) there is reported. Repeated
+/// readings of one sweep agree to 1e-5 to 1e-3 of their value (common practice; the spread
+/// of a lock-in or bridge reading), so ten times the noisiest of those is not noise.
+pub const REPEAT_RELATIVE_SPREAD_LIMIT: f64 = 0.01;
+
+/// How far the readings merged into one point of a sweep disagree, in one column.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct RepeatSpread {
+    /// The point's field, signed by its branch (0 at zero field), T.
+    pub field_t: f64,
+    /// "rho_xx_ohm_sq" or "rho_xy_ohm", as the `sweep` table names it.
+    pub column: &'static str,
+    /// How many readings were merged.
+    pub readings: usize,
+    /// The lowest and the highest of those readings, in the column's unit.
+    pub lowest: f64,
+    pub highest: f64,
+    /// With stated uncertainties the Birge ratio sqrt(chi^2 / (k - 1)) of the readings about
+    /// their weighted mean; without, their standard deviation over |rho| at that field.
+    pub measure: f64,
+}
+
+/// The merged points of a symmetrized sweep and how far their readings disagree.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct RepeatSummary {
+    /// Whether [`RepeatSpread::measure`] is a Birge ratio (stated uncertainties) or a
+    /// relative spread (none stated).
+    pub stated_uncertainties: bool,
+    /// Points used (within the overlap, or at zero field) that merge two or more readings.
+    pub merged_points: usize,
+    /// Of those, the ones whose uncertainty the readings' scatter widened.
+    pub widened_points: usize,
+    /// The merged points whose readings disagree beyond [`REPEAT_BIRGE_RATIO_LIMIT`] (or
+    /// [`REPEAT_RELATIVE_SPREAD_LIMIT`] without stated uncertainties), per column.
+    pub disagreements: Vec<RepeatSpread>,
+}
+
+/// The squared standard error of the mean of `values` from their scatter,
+/// s^2 / k = sum (x_i - mean)^2 / ((k - 1) k) (JCGM 100:2008, GUM 4.2.3); 0 for one value.
+fn squared_standard_error_of_mean(values: &[f64]) -> f64 {
+    if values.len() < 2 {
+        return 0.0;
+    }
+    let k = values.len() as f64;
+    let mean = values.iter().sum::<f64>() / k;
+    let variance = values.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (k - 1.0);
+    variance / k
+}
+
+/// The standard uncertainty of the plain mean of repeated readings of one quantity (see
+/// "Repeated readings" in the module documentation): with stated standard uncertainties
+/// `stated`, the larger of the propagated one, sqrt(sum u_i^2) / k, and the standard error of
+/// the mean from the readings' scatter; without, that standard error for two or more
+/// readings and none for one.
+pub fn repeated_readings_uncertainty(values: &[f64], stated: Option<&[f64]>) -> Option<f64> {
+    let external = squared_standard_error_of_mean(values).sqrt();
+    match stated {
+        Some(stated) => {
+            let internal = stated.iter().map(|u| u * u).sum::<f64>().sqrt() / values.len() as f64;
+            Some(if external > internal { external } else { internal })
+        }
+        None => (values.len() > 1).then_some(external),
+    }
+}
+
+/// How one column of a group of readings merged into one node disagrees: its squared
+/// standard error of the mean from the scatter, and the spread's measure (the Birge ratio
+/// with stated uncertainties, the relative standard deviation without). `residuals` are the
+/// readings less the field trend within the group; `scale` is |rho| at the node.
+fn column_scatter(residuals: &[f64], stated: Option<&[f64]>, scale: f64) -> (f64, f64) {
+    let external = squared_standard_error_of_mean(residuals);
+    let k = residuals.len() as f64;
+    let measure = match stated {
+        Some(stated) => {
+            let weights: Vec<f64> = stated.iter().map(|u| 1.0 / (u * u)).collect();
+            let weighted_mean =
+                residuals.iter().zip(&weights).map(|(r, w)| r * w).sum::<f64>() / weights.iter().sum::<f64>();
+            let chi_square: f64 = residuals
+                .iter()
+                .zip(&weights)
+                .map(|(r, w)| (r - weighted_mean).powi(2) * w)
+                .sum();
+            (chi_square / (k - 1.0)).sqrt()
+        }
+        None => (external * k).sqrt() / scale,
+    };
+    (external, measure)
+}
+
+/// Reads one column of a sweep point.
+type ColumnValue = fn(&SweepPoint) -> f64;
+/// Reads the stated uncertainty of that column.
+type ColumnUncertainty = fn(&ResistivityUncertainty) -> f64;
+
+impl Node {
+    /// Widens the node's variances to the scatter of its readings where that is the larger,
+    /// and records how far they disagree (see "Repeated readings"). `group` holds the
+    /// node's readings with |B|; `slopes` the field trend of rho_xx and rho_xy across the
+    /// node (d rho / d|B| from its neighbours), `None` for a column not to be assessed.
+    fn assess_repeats(&mut self, group: &[(f64, &SweepPoint)], slopes: [Option<f64>; 2]) {
+        if group.len() < 2 {
+            return;
+        }
+        let stated = group[0].1.uncertainty.is_some();
+        let scale = self.rho_xx.hypot(self.rho_xy);
+        let columns: [(&'static str, ColumnValue, ColumnUncertainty); 2] = [
+            ("rho_xx_ohm_sq", |p| p.rho_xx_ohm_sq, |u| u.rho_xx_ohm_sq),
+            ("rho_xy_ohm", |p| p.rho_xy_ohm, |u| u.rho_xy_ohm),
+        ];
+        for (index, (column, value, uncertainty)) in columns.into_iter().enumerate() {
+            let Some(slope) = slopes[index] else { continue };
+            let residuals: Vec<f64> = group
+                .iter()
+                .map(|(b, p)| value(p) - slope * (b - self.field_t))
+                .collect();
+            let stated_values: Option<Vec<f64>> = stated.then(|| {
+                group
+                    .iter()
+                    .map(|(_, p)| p.uncertainty.as_ref().map_or(f64::NAN, uncertainty))
+                    .collect()
+            });
+            let (external, measure) = column_scatter(&residuals, stated_values.as_deref(), scale);
+            let variance = if index == 0 { &mut self.var_xx } else { &mut self.var_xy };
+            if stated && external > *variance {
+                *variance = external;
+                self.widened = true;
+            }
+            let (lowest, highest) = group
+                .iter()
+                .map(|(_, p)| value(p))
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| (lo.min(v), hi.max(v)));
+            self.spread[index] = Some(RepeatSpread {
+                field_t: self.sign * self.field_t,
+                column,
+                readings: group.len(),
+                lowest,
+                highest,
+                measure,
+            });
+        }
+    }
+}
+
+/// Averages a group of measured points (given with |B|) into one node of the branch of
+/// `sign` (0 for the zero-field node); the repeats are assessed afterwards.
+fn average(group: &[(f64, &SweepPoint)], sign: f64) -> Node {
     let k = group.len() as f64;
     let mean = |f: &dyn Fn(&(f64, &SweepPoint)) -> f64| group.iter().map(f).sum::<f64>() / k;
     let unc = |f: &dyn Fn(&ResistivityUncertainty) -> f64| {
@@ -565,6 +826,9 @@ fn average(group: &[(f64, &SweepPoint)]) -> Node {
         var_xy: unc(&|u| u.rho_xy_ohm * u.rho_xy_ohm),
         cov: unc(&|u| u.correlation * u.rho_xx_ohm_sq * u.rho_xy_ohm),
         count: group.len(),
+        sign,
+        spread: [None, None],
+        widened: false,
     }
 }
 
@@ -585,14 +849,33 @@ pub fn anchored_groups(sorted: &[f64], resolution: f64) -> Vec<std::ops::Range<u
     groups
 }
 
-/// The nodes of one branch (|B| ascending), from its points as (|B|, point).
-fn branch_nodes(mut members: Vec<(f64, &SweepPoint)>, resolution: f64) -> Vec<Node> {
+/// The nodes of one branch (|B| ascending, the branch of `sign`), from its points as
+/// (|B|, point), each with its repeats assessed.
+fn branch_nodes(mut members: Vec<(f64, &SweepPoint)>, resolution: f64, sign: f64) -> Vec<Node> {
     members.sort_by(|a, b| a.0.total_cmp(&b.0));
     let fields: Vec<f64> = members.iter().map(|(b, _)| *b).collect();
-    anchored_groups(&fields, resolution)
-        .into_iter()
-        .map(|range| average(&members[range]))
-        .collect()
+    let groups = anchored_groups(&fields, resolution);
+    let mut nodes: Vec<Node> = groups
+        .iter()
+        .map(|range| average(&members[range.clone()], sign))
+        .collect();
+    // The trend of each column across a node, from its neighbours' means (a central
+    // difference, one-sided at the ends), so that readings of one group that lie at
+    // slightly different fields along a sloping curve do not count as scatter.
+    let slopes: Vec<[Option<f64>; 2]> = (0..nodes.len())
+        .map(|j| {
+            if nodes.len() < 2 {
+                return [Some(0.0), Some(0.0)];
+            }
+            let (a, b) = (&nodes[j.saturating_sub(1)], &nodes[(j + 1).min(nodes.len() - 1)]);
+            let run = b.field_t - a.field_t;
+            [Some((b.rho_xx - a.rho_xx) / run), Some((b.rho_xy - a.rho_xy) / run)]
+        })
+        .collect();
+    for ((node, range), slopes) in nodes.iter_mut().zip(&groups).zip(slopes) {
+        node.assess_repeats(&members[range.clone()], slopes);
+    }
+    nodes
 }
 
 /// Linear interpolation weights of `field` on ascending `nodes` (indices into `nodes`).
@@ -659,7 +942,14 @@ pub fn symmetrize(points: &[SweepPoint], settings: &SymmetrizeSettings) -> Resul
     // Node list of each branch, the zero-field node first in both; the shared node gets
     // the same global index so that its correlation between the branches is exact. A
     // single-sign sweep has one branch, listed twice.
-    let zero_node = (!zero.is_empty()).then(|| average(&zero));
+    // The zero-field readings repeat rho_xx(0), which is even in B, so they need no trend;
+    // their rho_xy is odd in B (readings at a magnet's remanence of either sign differ by
+    // the Hall slope) and enters no output's uncertainty, so it is not assessed.
+    let zero_node = (!zero.is_empty()).then(|| {
+        let mut node = average(&zero, 0.0);
+        node.assess_repeats(&zero, [Some(0.0), None]);
+        node
+    });
     let resolution = settings.field_resolution_t;
     let mut nodes: Vec<Node> = Vec::new();
     let mut branch_indices: [Vec<usize>; 2] = [Vec::new(), Vec::new()];
@@ -669,7 +959,8 @@ pub fn symmetrize(points: &[SweepPoint], settings: &SymmetrizeSettings) -> Resul
         branch_indices[1].push(0);
     }
     for (branch, members) in [positive, negative].into_iter().enumerate() {
-        for node in branch_nodes(members, resolution) {
+        let sign = if branch == 0 { 1.0 } else { -1.0 };
+        for node in branch_nodes(members, resolution, sign) {
             branch_indices[branch].push(nodes.len());
             nodes.push(node);
         }
@@ -699,6 +990,10 @@ pub fn symmetrize(points: &[SweepPoint], settings: &SymmetrizeSettings) -> Resul
     // nothing.
     let inside = |b: f64| b >= low - resolution && b <= high + resolution;
     let points_outside_overlap: usize = nodes.iter().filter(|n| !inside(n.field_t)).map(|n| n.count).sum();
+    let repeats = repeat_summary(
+        nodes.iter().filter(|n| n.sign == 0.0 || inside(n.field_t)),
+        with_uncertainty,
+    );
 
     let grid: Vec<f64> = match &settings.grid {
         FieldGrid::Union => {
@@ -823,7 +1118,29 @@ pub fn symmetrize(points: &[SweepPoint], settings: &SymmetrizeSettings) -> Resul
         max_rho_xy_asymmetry: if single_sign.is_none() { max_xy_asym } else { f64::NAN },
         single_field_sign: single_sign.is_some(),
         measured_max_field_t: points.iter().map(|p| p.field_t.abs()).fold(0.0, f64::max),
+        repeats,
     })
+}
+
+/// The merged points among `used` nodes and those whose readings disagree beyond the limit.
+fn repeat_summary<'a>(used: impl Iterator<Item = &'a Node>, stated_uncertainties: bool) -> RepeatSummary {
+    let limit = if stated_uncertainties {
+        REPEAT_BIRGE_RATIO_LIMIT
+    } else {
+        REPEAT_RELATIVE_SPREAD_LIMIT
+    };
+    let mut summary = RepeatSummary {
+        stated_uncertainties,
+        ..RepeatSummary::default()
+    };
+    for node in used.filter(|n| n.count > 1) {
+        summary.merged_points += 1;
+        summary.widened_points += usize::from(node.widened);
+        summary
+            .disagreements
+            .extend(node.spread.iter().flatten().filter(|s| s.measure > limit));
+    }
+    summary
 }
 
 /// Propagates the covariance of (a, b) through the inversion (a, b) -> (a, b) / (a^2 + b^2):

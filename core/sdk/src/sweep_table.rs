@@ -143,7 +143,9 @@ pub struct SweepParams {
     #[schemars(range(min = 0))]
     pub zero_field_tolerance_t: f64,
     /// readings within this of the lowest |B| of their group are averaged into one field, T
-    /// (groups are anchored, so a densely logged ramp keeps its field range)
+    /// (groups are anchored, so a densely logged ramp keeps its field range); the point's
+    /// uncertainty is the larger of the propagated one and the readings' scatter, and readings
+    /// that disagree far beyond their uncertainties are warned about
     #[serde(rename = "field_resolution_T", default = "default_field_resolution")]
     #[schemars(extend("exclusiveMinimum" = 0))]
     pub field_resolution_t: f64,

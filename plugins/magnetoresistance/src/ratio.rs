@@ -16,9 +16,13 @@
 //!    - `Measured` (default): the mean rho_xx of the points with |B| at or below the
 //!      zero-field tolerance of the symmetrization (`zero_field_tolerance_T`, default
 //!      1e-4 T; the zero-field node of the symmetrized sweep). A magnet's remanence of a few
-//!      mT at its nominal zero is a field unless that tolerance is raised above it. Its uncertainty is the propagated one when the points carry uncertainties
-//!      (sqrt(sum u_i^2) / k), otherwise the standard error of the mean of two or more
-//!      points, otherwise none. A sweep without such a point is refused: MR is a ratio to
+//!      mT at its nominal zero is a field unless that tolerance is raised above it. Its
+//!      uncertainty is that of a merged point of the sweep
+//!      (`mobilis_physics::sweep::repeated_readings_uncertainty`): when the points carry
+//!      uncertainties, the larger of the propagated one (sqrt(sum u_i^2) / k) and the
+//!      standard error of the mean from their scatter, so that zero-field readings that
+//!      disagree beyond their uncertainties widen it (JCGM 100:2008, GUM 4.2.3);
+//!      otherwise that standard error for two or more points, otherwise none. A sweep without such a point is refused: MR is a ratio to
 //!      rho(0), and a value invented for it would shift every point.
 //!    - `Extrapolated`: rho_xx = rho(0) + c B^2 fitted by weighted least squares
 //!      (`mobilis_numerics::fit::fit_line` in B^2) to the lowest grid fields, rho(0) the
@@ -42,7 +46,9 @@
 //!    scattering, or a drifting temperature between the zero-field and the field points.
 
 use mobilis_numerics::fit::{fit_line, FitError};
-use mobilis_physics::sweep::{symmetrize, SweepError, SweepPoint, SweepUse, SymmetrizeSettings, Symmetrized};
+use mobilis_physics::sweep::{
+    repeated_readings_uncertainty, symmetrize, SweepError, SweepPoint, SweepUse, SymmetrizeSettings, Symmetrized,
+};
 
 /// Grid fields the default extrapolation uses.
 pub const DEFAULT_EXTRAPOLATION_POINTS: usize = 5;
@@ -206,22 +212,11 @@ fn measured_zero_field(points: &[SweepPoint], sweep: &SymmetrizeSettings) -> Res
         });
     }
     let k = zero.len() as f64;
-    let mean = zero.iter().map(|p| p.rho_xx_ohm_sq).sum::<f64>() / k;
+    let values: Vec<f64> = zero.iter().map(|p| p.rho_xx_ohm_sq).collect();
+    let mean = values.iter().sum::<f64>() / k;
     // The core has validated the points: uncertainties are on all of them or on none.
-    let unc = if zero[0].uncertainty.is_some() {
-        Some(
-            zero.iter()
-                .map(|p| p.uncertainty.map_or(0.0, |u| u.rho_xx_ohm_sq.powi(2)))
-                .sum::<f64>()
-                .sqrt()
-                / k,
-        )
-    } else if zero.len() > 1 {
-        let variance = zero.iter().map(|p| (p.rho_xx_ohm_sq - mean).powi(2)).sum::<f64>() / (k - 1.0);
-        Some((variance / k).sqrt())
-    } else {
-        None
-    };
+    let stated: Option<Vec<f64>> = zero.iter().map(|p| p.uncertainty.map(|u| u.rho_xx_ohm_sq)).collect();
+    let unc = repeated_readings_uncertainty(&values, stated.as_deref());
     Ok(ZeroFieldValue {
         rho_ohm_sq: mean,
         rho_unc_ohm_sq: unc,

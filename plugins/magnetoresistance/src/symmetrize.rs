@@ -17,8 +17,10 @@
 //! - removed: rho_xx_odd = (rho_xx(+B) - rho_xx(-B)) / 2 and rho_xy_even = (rho_xy(+B) +
 //!   rho_xy(-B)) / 2,
 //!
-//! with the uncertainties propagated exactly through the averaging and the interpolation
-//! (see that module for the steps and the reasons for them). This module adds the per-field
+//! with the uncertainties propagated exactly through the averaging and the interpolation, a
+//! point merged from repeated readings of one field sign taking their scatter when that is
+//! larger (see that module for the steps and the reasons for them, and for the warning about
+//! repeats that disagree). This module adds the per-field
 //! relative asymmetries and two estimates of contact misalignment.
 //!
 //! # Relative asymmetries

@@ -18,7 +18,9 @@
 //! onto the common |B| points (`mobilis_physics::sweep`: Onsager's reciprocity removes what
 //! misaligned contacts add), then converted to sigma_xx, sigma_xy; one sign is accepted too,
 //! with `single_field_sign: true` and a warning. `zero_field_tolerance_T` (1e-4 T) and
-//! `field_resolution_T` (1e-4 T) are explained there.
+//! `field_resolution_T` (1e-4 T) are explained there, and so is why readings merged into one
+//! point carry their scatter when it exceeds their stated uncertainties, and the warning when
+//! they disagree far beyond them (two copies of a sweep that do not agree).
 //!
 //! Both analyses take `field_calibration_rel`, `current_calibration_rel` and
 //! `voltage_calibration_rel` (the names and defaults of `hall.reduce`, listed in

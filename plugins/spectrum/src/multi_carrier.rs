@@ -70,7 +70,12 @@
 //!    uncertainties, a chi^2 / nu above 1 widens it by the Birge ratio sqrt(chi^2 / nu)
 //!    (R. T. Birge, Phys. Rev. 40, 207, 1932; the Particle Data Group's practice), never
 //!    narrows it; a symmetrized grid that holds each reading more than once widens it by the
-//!    square root of the reading reuse factor. Calibration part: the stated field and
+//!    square root of the reading reuse factor. A point merged from repeated readings already
+//!    carries their scatter when it exceeds their stated uncertainties (`mobilis_physics::sweep`,
+//!    "Repeated readings"), and the warning of repeats that disagree far beyond them is passed
+//!    on: the fit takes its points as independent, so a disagreement common to every field
+//!    (two copies of a sweep that differ by one factor) widens the result less than the
+//!    copies differ, and that warning is what tells the user. Calibration part: the stated field and
 //!    resistivity scale uncertainties ([`Calibration`]), applied once after the fit as the
 //!    relative uncertainties they give n and mu. The total is their quadrature sum. Before
 //!    the fit, a stated uncertainty below `relative_uncertainty_floor` |sigma(B)| is raised

@@ -24,6 +24,7 @@ mod magnetoresistance;
 mod notebooks;
 mod plugin_abi;
 mod reliability;
+mod repeated_sweeps;
 mod report;
 mod rpc_messages;
 mod spectrum_analyses;

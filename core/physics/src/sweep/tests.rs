@@ -183,7 +183,9 @@ fn sweep_zero_field_node_is_shared_by_both_branches() {
 }
 
 // Repeats (an up and a down sweep whose fields differ by less than the resolution) average
-// into one node; the uncertainty of a mean of two is sqrt(u1^2 + u2^2) / 2.
+// into one node; the uncertainty of a mean of two is the larger of sqrt(u1^2 + u2^2) / 2 and
+// the standard error of the mean from their scatter (JCGM 100:2008, GUM 4.2.3), here the
+// scatter's: 1100 and 1104 +- 2 differ by 1.4 standard deviations of their difference.
 #[test]
 fn sweep_repeats_within_the_resolution_are_averaged() {
     let u = ResistivityUncertainty::independent(2.0, 1.0);
@@ -206,7 +208,15 @@ fn sweep_repeats_within_the_resolution_are_averaged() {
     let negative = (1.0 - w) * 1102.0 + w * 1400.0;
     assert!(close(first.rho_xx_ohm_sq, (1102.0 + negative) / 2.0, 1e-13));
     let unc = first.uncertainty.unwrap();
-    let var_positive = (4.0 + 4.0) / 4.0;
+    // The positive node's readings less the trend across it (the slope to the next node,
+    // at 2.0 T), then the squared standard error of their mean: (difference / 2)^2.
+    let slope: f64 = (1400.0 - 1102.0) / (2.0 - 1.00002);
+    let difference = (1104.0 - slope * 0.00002) - (1100.0 + slope * 0.00002);
+    let var_positive = f64::max((4.0 + 4.0) / 4.0, (difference / 2.0).powi(2));
+    assert!(var_positive > 3.9);
+    assert_eq!(result.repeats.merged_points, 1);
+    assert_eq!(result.repeats.widened_points, 1);
+    assert!(result.repeats.disagreements.is_empty());
     let var_negative = (1.0 - w).powi(2) * 4.0 + w * w * 4.0;
     assert!(close(
         unc.rho_xx_ohm_sq,
@@ -770,4 +780,220 @@ fn sweep_outside_overlap_is_a_warning_when_it_costs_field_range() {
         warnings.len() == 1 && warnings[0].contains("[0.0000, 5.0000] T of [0, 9.0000] T"),
         "{warnings:?}"
     );
+}
+
+// Two sweeps of one sample that do not agree (the second with rho_xx 1.5 times the first,
+// as a wrong geometry factor gives) merge into points whose uncertainty is the scatter of
+// the two (the standard error of the mean of two, |x1 - x2| / 2; JCGM 100:2008, GUM
+// 4.2.3), not the 1e-4 each states, and the warning names the points, the worst and what
+// to check. The same sweep repeated within its uncertainties keeps the propagated
+// uncertainty to the bit, and so does the sweep measured once.
+#[test]
+fn sweep_repeats_that_disagree_widen_the_uncertainty_and_warn() {
+    let carriers = vec![Carrier::hole(3e15, 2.0)];
+    let fields = symmetric_fields(2.0, 12).unwrap();
+    let stated = |p: SweepPoint| {
+        p.with_uncertainty(ResistivityUncertainty::independent(
+            1e-4 * p.rho_xx_ohm_sq,
+            1e-4 * p.rho_xy_ohm.abs().max(p.rho_xx_ohm_sq),
+        ))
+    };
+    let once: Vec<SweepPoint> = synthetic_sweep(
+        &carriers,
+        &fields,
+        &SweepNoise::NONE,
+        &SweepImperfections::default(),
+        &mut Rng::seeded(0),
+    )
+    .unwrap()
+    .into_iter()
+    .map(stated)
+    .collect();
+    let alone = symmetrize(&once, &settings()).unwrap();
+    assert_eq!(
+        alone.repeats,
+        RepeatSummary {
+            stated_uncertainties: true,
+            ..RepeatSummary::default()
+        }
+    );
+
+    // Consistent: the same readings again, each moved by 0.3 of its uncertainty.
+    let mut consistent = once.clone();
+    consistent.extend(once.iter().map(|p| {
+        let u = p.uncertainty.unwrap();
+        SweepPoint {
+            rho_xx_ohm_sq: p.rho_xx_ohm_sq + 0.3 * u.rho_xx_ohm_sq,
+            rho_xy_ohm: p.rho_xy_ohm - 0.3 * u.rho_xy_ohm,
+            ..*p
+        }
+    }));
+    let repeated = symmetrize(&consistent, &settings()).unwrap();
+    // One merged point per measured field (each branch's and the zero-field node).
+    assert_eq!(repeated.repeats.merged_points, fields.len());
+    assert_eq!(repeated.repeats.widened_points, 0);
+    assert!(repeated.repeats.disagreements.is_empty());
+    assert!(repeated.warnings(SweepUse::Tensor).is_empty());
+    for (twice, single) in repeated.points.iter().zip(&alone.points) {
+        // A mean of two readings of equal uncertainty: u / sqrt(2), the propagated value.
+        let (u2, u1) = (twice.uncertainty.unwrap(), single.uncertainty.unwrap());
+        assert!(close(u2.rho_xx_ohm_sq, u1.rho_xx_ohm_sq / 2f64.sqrt(), 1e-12));
+    }
+
+    // Disagreeing: the second copy's rho_xx 1.5 times the first's.
+    let mut disagreeing = once.clone();
+    disagreeing.extend(once.iter().map(|p| SweepPoint {
+        rho_xx_ohm_sq: 1.5 * p.rho_xx_ohm_sq,
+        ..*p
+    }));
+    let merged = symmetrize(&disagreeing, &settings()).unwrap();
+    assert_eq!(merged.repeats.merged_points, fields.len());
+    assert_eq!(merged.repeats.widened_points, fields.len());
+    for (point, single) in merged.points.iter().zip(&alone.points) {
+        assert!(close(point.rho_xx_ohm_sq, 1.25 * single.rho_xx_ohm_sq, 1e-12));
+        // Both branches' nodes carry (1.5 - 1) rho / 2 and are averaged with weights 1/2:
+        // rho / 4 / sqrt(2); at zero field the one node both branches share, rho / 4.
+        let u = point.uncertainty.unwrap();
+        let branches = if point.field_t == 0.0 { 1.0 } else { 2f64.sqrt() };
+        assert!(
+            close(u.rho_xx_ohm_sq, 0.25 * single.rho_xx_ohm_sq / branches, 1e-9),
+            "{u:?} at {} T",
+            point.field_t
+        );
+        // rho_xy agreed, so it keeps its propagated uncertainty.
+        let expected_xy = single.uncertainty.unwrap().rho_xy_ohm / 2f64.sqrt();
+        assert!(close(u.rho_xy_ohm, expected_xy, 1e-12), "{u:?}");
+    }
+    let rho_xx_disagreements = merged
+        .repeats
+        .disagreements
+        .iter()
+        .filter(|s| s.column == "rho_xx_ohm_sq");
+    assert_eq!(rho_xx_disagreements.count(), fields.len());
+    assert!(merged.repeats.disagreements.iter().all(|s| s.column == "rho_xx_ohm_sq"));
+    for uses in [SweepUse::Tensor, SweepUse::EvenRhoXx] {
+        let warnings = merged.warnings(uses);
+        assert_eq!(warnings.len(), 1, "{warnings:?}");
+        let warning = &warnings[0];
+        assert!(
+            warning.contains(&format!("at {0} of the {0} points", fields.len()))
+                && warning.contains("rho_xx_ohm_sq")
+                && warning.contains("Birge ratio")
+                && warning.contains("field_resolution_T")
+                && warning.contains("another sample"),
+            "{warning}"
+        );
+    }
+
+    // Without uncertainty columns the points carry none, as before, and the spread is
+    // still reported (relative to |rho|: 0.5 rho_xx / sqrt(2) / |rho| at least 1 %).
+    let bare: Vec<SweepPoint> = disagreeing
+        .iter()
+        .map(|p| SweepPoint {
+            uncertainty: None,
+            ..*p
+        })
+        .collect();
+    let merged = symmetrize(&bare, &settings()).unwrap();
+    assert!(merged.points.iter().all(|p| p.uncertainty.is_none()));
+    assert!(!merged.repeats.stated_uncertainties);
+    assert!(!merged.repeats.disagreements.is_empty());
+    let warning = merged.warnings(SweepUse::EvenRhoXx).join(" ");
+    assert!(
+        warning.contains("rho_xx_ohm_sq_unc") && warning.contains("of |rho|"),
+        "{warning}"
+    );
+}
+
+// The readings of a densely logged ramp averaged with a coarse resolution lie along the
+// curve at different fields: the trend across each node is not scatter, so a noise-free
+// ramp keeps its propagated uncertainties and raises no warning, with or without stated
+// uncertainties.
+#[test]
+fn sweep_coarse_groups_along_a_ramp_are_not_scatter() {
+    let carriers = two_carriers();
+    let fields: Vec<f64> = (0..4001).map(|k| -4.0 + 8.0 * k as f64 / 4000.0).collect();
+    let ramp = synthetic_sweep(
+        &carriers,
+        &fields,
+        &SweepNoise::NONE,
+        &SweepImperfections::default(),
+        &mut Rng::seeded(0),
+    )
+    .unwrap();
+    let coarse = SymmetrizeSettings {
+        field_resolution_t: 0.01,
+        ..settings()
+    };
+    let bare = symmetrize(&ramp, &coarse).unwrap();
+    assert!(bare.repeats.merged_points > 300);
+    assert!(
+        bare.repeats.disagreements.is_empty(),
+        "{:?}",
+        bare.repeats.disagreements.first()
+    );
+    let stated: Vec<SweepPoint> = ramp
+        .iter()
+        .map(|p| {
+            p.with_uncertainty(ResistivityUncertainty::independent(
+                1e-4 * p.rho_xx_ohm_sq,
+                1e-4 * p.rho_xx_ohm_sq,
+            ))
+        })
+        .collect();
+    let result = symmetrize(&stated, &coarse).unwrap();
+    assert_eq!(result.repeats.widened_points, 0);
+    assert!(result.warnings(SweepUse::Tensor).is_empty());
+}
+
+// rho_xx(+B) and rho_xx(-B) of a sample with misaligned contacts differ by the field-odd
+// Hall pickup, a signal the symmetrization removes, not scatter: one reading per field
+// and sign leaves every uncertainty the propagated one, however large the pickup.
+#[test]
+fn sweep_field_sign_asymmetry_is_not_scatter() {
+    let carriers = two_carriers();
+    let fields = symmetric_fields(9.0, 36).unwrap();
+    let imperfections = SweepImperfections {
+        hall_misalignment: 0.05,
+        longitudinal_hall_pickup: 0.2,
+    };
+    let noise = SweepNoise {
+        absolute_ohm: 0.5,
+        relative: 1e-4,
+    };
+    let sweep = synthetic_sweep(&carriers, &fields, &noise, &imperfections, &mut Rng::seeded(5)).unwrap();
+    let result = symmetrize(&sweep, &settings()).unwrap();
+    assert!(result.max_rho_xx_asymmetry > 0.01);
+    assert_eq!(result.repeats.merged_points, 0);
+    assert!(result.repeat_warning(SweepUse::Tensor).is_none());
+    let at_field = result.points.iter().find(|p| p.field_t > 1.0).unwrap();
+    let raw: Vec<&SweepPoint> = sweep
+        .iter()
+        .filter(|p| (p.field_t.abs() - at_field.field_t).abs() < 1e-9)
+        .collect();
+    assert_eq!(raw.len(), 2);
+    let expected = raw
+        .iter()
+        .map(|p| p.uncertainty.unwrap().rho_xx_ohm_sq.powi(2))
+        .sum::<f64>()
+        .sqrt()
+        / 2.0;
+    assert!(close(at_field.uncertainty.unwrap().rho_xx_ohm_sq, expected, 1e-12));
+}
+
+// The rule for a plain list of readings: the larger of the propagated and the scatter's
+// uncertainty of the mean with stated uncertainties, the scatter's alone without
+// (JCGM 100:2008, GUM 4.2.3: s / sqrt(k)).
+#[test]
+fn sweep_repeated_readings_uncertainty_takes_the_larger() {
+    // 10 and 12 +- 0.1: the scatter's |12 - 10| / 2 = 1 over the propagated 0.0707.
+    let u = repeated_readings_uncertainty(&[10.0, 12.0], Some(&[0.1, 0.1])).unwrap();
+    assert!(close(u, 1.0, 1e-15));
+    // 10 and 10.01 +- 0.1: the propagated sqrt(0.02) / 2.
+    let u = repeated_readings_uncertainty(&[10.0, 10.01], Some(&[0.1, 0.1])).unwrap();
+    assert!(close(u, 0.02f64.sqrt() / 2.0, 1e-15));
+    assert_eq!(repeated_readings_uncertainty(&[10.0], Some(&[0.1])), Some(0.1));
+    assert_eq!(repeated_readings_uncertainty(&[10.0], None), None);
+    let u = repeated_readings_uncertainty(&[10.0, 11.0, 12.0], None).unwrap();
+    assert!(close(u, (1.0f64 / 3.0).sqrt(), 1e-15));
 }

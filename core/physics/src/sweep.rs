@@ -99,7 +99,9 @@
 //! must also reflect how far they disagree, not only what each reading states: otherwise
 //! two sweeps that do not agree (a second copy of a sweep scaled by a wrong geometry,
 //! another sample, another temperature) average into points as certain as either alone.
-//! Its variance is the larger of
+//! When the readings disagree beyond their stated uncertainties (a chi-square about their
+//! weighted mean whose probability is below [`REPEAT_INCONSISTENCY_P_VALUE`], 1 %), its
+//! variance is the larger of
 //!
 //! - the **internal** one, propagated from the stated uncertainties: sum u_i^2 / k^2, and
 //! - the **external** one, from the readings' scatter: the squared standard error of the
@@ -110,7 +112,10 @@
 //! times the squared Birge ratio chi^2 / (k - 1) (R. T. Birge, Phys. Rev. 40, 207, 1932), so
 //! the rule is the Particle Data Group's practice of scaling by the Birge ratio when it is
 //! above 1 and never narrowing; the scatter about the node's plain mean is used because the
-//! node is that plain mean. The node's value, and every node of a single reading, are as
+//! node is that plain mean. Readings that agree keep the internal variance: the scatter of
+//! two or three readings is itself too uncertain to replace stated uncertainties, and taking
+//! the larger of the two always would widen about a third of the consistent points of two
+//! readings by chance. The node's value, and every node of a single reading, are as
 //! before, and so is the rho_xx - rho_xy covariance (the propagated one). A group's
 //! readings may lie at |B| up to `field_resolution_T` apart along a sloping curve (a densely
 //! logged ramp averaged with a coarse resolution): the trend across the node, estimated
@@ -722,10 +727,36 @@ pub fn repeated_readings_uncertainty(values: &[f64], stated: Option<&[f64]>) -> 
     match stated {
         Some(stated) => {
             let internal = stated.iter().map(|u| u * u).sum::<f64>().sqrt() / values.len() as f64;
-            Some(if external > internal { external } else { internal })
+            let (_, birge_ratio) = column_scatter(values, Some(stated), 1.0);
+            Some(if inconsistent(birge_ratio, values.len()) && external > internal {
+                external
+            } else {
+                internal
+            })
         }
         None => (values.len() > 1).then_some(external),
     }
+}
+
+/// Below this probability of a chi-square at least as large, readings are taken as
+/// disagreeing beyond their stated uncertainties, and their scatter may widen the merged
+/// point (see "Repeated readings"): 1 %, a common significance level (common practice).
+/// Without the test, the scatter of readings that agree would still widen about a third of
+/// the points of two readings (a chi-square of one degree of freedom exceeds its mean with
+/// probability 0.32), inflating the uncertainties of consistent data and pulling every
+/// fit's reduced chi-square below 1.
+pub const REPEAT_INCONSISTENCY_P_VALUE: f64 = 0.01;
+
+/// Whether `readings` values with this Birge ratio about their weighted mean disagree
+/// beyond their stated uncertainties: P(chi^2_{k-1} >= (k - 1) R^2) below
+/// [`REPEAT_INCONSISTENCY_P_VALUE`].
+fn inconsistent(birge_ratio: f64, readings: usize) -> bool {
+    if readings < 2 || !birge_ratio.is_finite() {
+        return false;
+    }
+    let degrees_of_freedom = readings - 1;
+    let chi_square = birge_ratio * birge_ratio * degrees_of_freedom as f64;
+    mobilis_numerics::fit::chi_square_p_value(chi_square, degrees_of_freedom) < REPEAT_INCONSISTENCY_P_VALUE
 }
 
 /// How one column of a group of readings merged into one node disagrees: its squared
@@ -786,7 +817,7 @@ impl Node {
             });
             let (external, measure) = column_scatter(&residuals, stated_values.as_deref(), scale);
             let variance = if index == 0 { &mut self.var_xx } else { &mut self.var_xy };
-            if stated && external > *variance {
+            if stated && inconsistent(measure, group.len()) && external > *variance {
                 *variance = external;
                 self.widened = true;
             }

@@ -348,7 +348,7 @@ mod tests {
             "summary": "fits things",
             "inputs": [{"role": "hall", "required": true, "description": "the table",
                         "columns": [{"name": "temperature_K", "dtype": "f64", "unit": "K", "required": true, "description": "temperature"},
-                                    {"name": "density_m3", "dtype": "f64", "unit": "m3", "required": true, "description": "density"}]}],
+                                    {"name": "density_m3", "dtype": "f64", "unit": "m^-3", "required": true, "description": "density"}]}],
             "params": {"type": "object", "properties": {
                 "temperature_tolerance_K": {"type": "number", "minimum": 0, "default": 0.5, "description": "how close"},
                 "material": {"type": "string", "enum": ["Si", "Ge"], "default": "Si", "description": "preset"},

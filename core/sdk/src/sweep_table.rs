@@ -192,7 +192,12 @@ pub fn single_field_sign_series_warning(temperatures_k: &[f64]) -> Option<String
     if temperatures_k.is_empty() {
         return None;
     }
-    let list: Vec<String> = temperatures_k.iter().map(|t| format!("{t}")).collect();
+    // Four significant digits, as the thermometer reads: a logged 0.30000906977534253 K is
+    // shown as 0.3000 K.
+    let list: Vec<String> = temperatures_k
+        .iter()
+        .map(|t| mobilis_physics::units::format_number(*t))
+        .collect();
     Some(format!(
         "single_field_sign: the sweeps at {} K have one field sign only, so rho_xx was taken as even in B as measured, not symmetrized: a Hall voltage picked up by misaligned longitudinal contacts (odd in B) stays in it; measure both field signs to remove it",
         list.join(", ")

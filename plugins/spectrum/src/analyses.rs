@@ -429,10 +429,10 @@ impl Analysis for MobilitySpectrumAnalysis {
                 ColumnSpec::new("mobility_m2_per_Vs", F64, Some("m2_per_Vs"), "grid mobility magnitude"),
                 ColumnSpec::new("electron_envelope_S", F64, Some("S"), "Beck-Anderson bound for electrons"),
                 ColumnSpec::new("electron_spectrum_S", F64, Some("S"), "d sigma / d ln mu of electrons"),
-                ColumnSpec::new("electron_density_m2", F64, Some("m2"), "d n / d ln mu of electrons"),
+                ColumnSpec::new("electron_density_m2", F64, Some("m^-2"), "d n / d ln mu of electrons"),
                 ColumnSpec::new("hole_envelope_S", F64, Some("S"), "Beck-Anderson bound for holes"),
                 ColumnSpec::new("hole_spectrum_S", F64, Some("S"), "d sigma / d ln mu of holes"),
-                ColumnSpec::new("hole_density_m2", F64, Some("m2"), "d n / d ln mu of holes"),
+                ColumnSpec::new("hole_density_m2", F64, Some("m^-2"), "d n / d ln mu of holes"),
             ],
             summary_keys: vec![
                 ColumnSpec::new("regularization", Str, None, "how the smoothing strength was chosen"),

@@ -125,7 +125,7 @@ impl Analysis for PurityAnalysis {
             ColumnSpec::new("carrier_type", Str, None, "n or p"),
         ];
         for (name, description) in ESTIMATE_COLUMNS {
-            let unit = name.ends_with("_m3").then_some("m3");
+            let unit = name.ends_with("_m3").then_some("m^-3");
             outputs.push(ColumnSpec::new(name, F64, unit, description));
             outputs.push(ColumnSpec::new(
                 &format!("{name}_unc"),
@@ -149,7 +149,7 @@ impl Analysis for PurityAnalysis {
         outputs.push(ColumnSpec::new(
             "scattering_upper_limit_m3",
             F64,
-            Some("m3"),
+            Some("m^-3"),
             "when the mobility does not determine its density: the largest it allows",
         ));
         outputs.push(ColumnSpec::new(
@@ -169,24 +169,24 @@ impl Analysis for PurityAnalysis {
                     required: false,
                     description: "the summary table of carriers.mobility_scattering".into(),
                     columns: vec![
-                        ColumnSpec::new("ionized_impurity_density_m3", F64, Some("m3"), "N_I"),
-                        ColumnSpec::new("ionized_impurity_density_m3_unc", F64, Some("m3"), "its uncertainty").optional(),
+                        ColumnSpec::new("ionized_impurity_density_m3", F64, Some("m^-3"), "N_I"),
+                        ColumnSpec::new("ionized_impurity_density_m3_unc", F64, Some("m^-3"), "its uncertainty").optional(),
                         ColumnSpec::new("sample", Str, None, "sample name").optional(),
                     ],
                 },
             ],
             outputs,
             summary_keys: vec![
-                ColumnSpec::new("donor_density_m3", ColumnType::F64, Some("m3"), "N_D, with _unc"),
-                ColumnSpec::new("acceptor_density_m3", ColumnType::F64, Some("m3"), "N_A, with _unc"),
-                ColumnSpec::new("net_doping_m3", ColumnType::F64, Some("m3"), "|N_D - N_A|, with _unc"),
-                ColumnSpec::new("total_impurity_density_m3", ColumnType::F64, Some("m3"), "N_D + N_A, with _unc"),
+                ColumnSpec::new("donor_density_m3", ColumnType::F64, Some("m^-3"), "N_D, with _unc"),
+                ColumnSpec::new("acceptor_density_m3", ColumnType::F64, Some("m^-3"), "N_A, with _unc"),
+                ColumnSpec::new("net_doping_m3", ColumnType::F64, Some("m^-3"), "|N_D - N_A|, with _unc"),
+                ColumnSpec::new("total_impurity_density_m3", ColumnType::F64, Some("m^-3"), "N_D + N_A, with _unc"),
                 ColumnSpec::new("compensation_ratio", ColumnType::F64, None, "minority over majority dopant density, with _unc"),
-                ColumnSpec::new("scattering_ionized_density_m3", ColumnType::F64, Some("m3"), "N_I from the mobility fit, with _unc"),
-                ColumnSpec::new("scattering_compensating_density_m3", ColumnType::F64, Some("m3"), "N_comp from the mobility fit (carriers_plus_compensation), with _unc"),
+                ColumnSpec::new("scattering_ionized_density_m3", ColumnType::F64, Some("m^-3"), "N_I from the mobility fit, with _unc"),
+                ColumnSpec::new("scattering_compensating_density_m3", ColumnType::F64, Some("m^-3"), "N_comp from the mobility fit (carriers_plus_compensation), with _unc"),
                 ColumnSpec::new("freeze_out_consistent", ColumnType::Bool, None, "the two counts agree"),
                 ColumnSpec::new("candidate_dopants", ColumnType::Str, None, "dopants whose ionization energy matches"),
-                ColumnSpec::new("scattering_upper_limit_m3", ColumnType::F64, Some("m3"), "upper limit of the ionized-impurity density from the mobility"),
+                ColumnSpec::new("scattering_upper_limit_m3", ColumnType::F64, Some("m^-3"), "upper limit of the ionized-impurity density from the mobility"),
                 ColumnSpec::new("samples", I64, None, "rows of the output"),
             ],
             ..Default::default()

@@ -343,8 +343,12 @@ impl Analysis for KohlerAnalysis {
             let temperature = sweep
                 .temperature_k
                 .ok_or_else(|| invalid("mr.kohler needs temperature_K: one curve per temperature"))?;
-            let curve = magnetoresistance(&sweep.points, &ratio)
-                .map_err(|e| invalid(format!("sweep at {temperature} K: {e}")))?;
+            let curve = magnetoresistance(&sweep.points, &ratio).map_err(|e| {
+                invalid(format!(
+                    "sweep at {} K: {e}",
+                    mobilis_physics::units::format_number(temperature)
+                ))
+            })?;
             if curve.single_field_sign {
                 single_sign_temperatures.push(temperature);
             }
@@ -354,7 +358,7 @@ impl Analysis for KohlerAnalysis {
                     .warnings
                     .iter()
                     .filter(|w| !w.starts_with("single_field_sign"))
-                    .map(|w| format!("sweep at {temperature} K: {w}")),
+                    .map(|w| format!("sweep at {} K: {w}", mobilis_physics::units::format_number(temperature))),
             );
             curves.push(KohlerCurve::from_ratio(temperature, &curve));
         }

@@ -324,7 +324,7 @@ impl Analysis for OscillationsAnalysis {
                 ColumnSpec::new("landau_fan_phase_rad", ColumnType::F64, Some("rad"), "Berry-phase offset of the Landau fan"),
                 ColumnSpec::new("waveform_residual_rms_ohm_sq", ColumnType::F64, Some("ohm_sq"), "rms residual of the waveform fit"),
                 ColumnSpec::new("frequency_T", F64, Some("T"), "the dominant frequency, with _unc"),
-                ColumnSpec::new("sheet_density_m2", F64, Some("m2"), "g_s e F / h, with _unc"),
+                ColumnSpec::new("sheet_density_m2", F64, Some("m^-2"), "g_s e F / h, with _unc"),
                 ColumnSpec::new("effective_mass_ratio", F64, None, "m*/m0, with _unc"),
                 ColumnSpec::new("dingle_temperature_K", F64, Some("K"), "with _unc"),
                 ColumnSpec::new("quantum_lifetime_s", F64, Some("s"), "hbar / (2 pi k_B T_D), with _unc"),
@@ -380,8 +380,12 @@ fn symmetrized_sweeps(params: &OscillationParams, tables: &[SweepTable]) -> Resu
                 let temperature_k = table
                     .temperature_k
                     .ok_or_else(|| invalid("mr.oscillations needs temperature_K for every sweep"))?;
-                let symmetrized = symmetrize(&table.points, &symmetrize_settings)
-                    .map_err(|e| invalid(format!("sweep at {temperature_k} K: {e}")))?;
+                let symmetrized = symmetrize(&table.points, &symmetrize_settings).map_err(|e| {
+                    invalid(format!(
+                        "sweep at {} K: {e}",
+                        mobilis_physics::units::format_number(temperature_k)
+                    ))
+                })?;
                 Ok((temperature_k, symmetrized))
             })
             .collect()
@@ -397,7 +401,12 @@ fn symmetrized_sweeps(params: &OscillationParams, tables: &[SweepTable]) -> Resu
                 .warnings(SweepUse::EvenRhoXx)
                 .into_iter()
                 .filter(|w| !w.starts_with("single_field_sign"))
-                .map(|w| format!("sweep at {temperature_k} K: {w}")),
+                .map(|w| {
+                    format!(
+                        "sweep at {} K: {w}",
+                        mobilis_physics::units::format_number(temperature_k)
+                    )
+                }),
         );
         let (field_t, rho_xx_ohm_sq) = symmetrized
             .points

@@ -209,7 +209,7 @@ impl Analysis for MultiCarrierFitAnalysis {
                 ColumnSpec::new("score", F64, None, "the chosen fit's criterion value"),
                 ColumnSpec::new("candidates", Str, None, "list of {carriers, score, chi_square, ...}: every carrier list tried"),
                 ColumnSpec::new("chi_square", F64, None, "chi^2 of the fit"),
-                ColumnSpec::new("reduced_chi_square", F64, None, "chi^2 / nu of the fit"),
+                ColumnSpec::new("reduced_chi_square", F64, None, "chi^2 / nu against the stated uncertainties; null when the data carry none (the residuals then set the noise scale, and chi-square tests nothing)"),
                 ColumnSpec::new("chi_square_p_value", F64, None, "P(chi^2 >= observed) when the uncertainties are stated"),
                 ColumnSpec::new("birge_ratio", F64, None, "sqrt(chi^2 / nu) when above 1"),
                 ColumnSpec::new("degrees_of_freedom", I64, None, "points minus fitted parameters"),

@@ -183,7 +183,10 @@ impl Analysis for ArrheniusAnalysis {
             .summary("hall_factor", fit.hall_factor)
             .summary("chi_square", fit.line.chi_square)
             .summary("degrees_of_freedom", fit.line.degrees_of_freedom)
-            .summary("reduced_chi_square", fit.line.reduced_chi_square)
+            .summary(
+                "reduced_chi_square",
+                Some(fit.line.reduced_chi_square).filter(|_| fit.line.weighted),
+            )
             .summary("chi_square_p_value", fit.chi_square_p_value)
             .summary("birge_ratio", fit.birge_ratio)
             .summary("floored_points", fit.floored_points)

@@ -100,7 +100,7 @@ pub(crate) fn budget_columns() -> Vec<ColumnSpec> {
 pub(crate) fn budget_summary_keys() -> Vec<ColumnSpec> {
     use ColumnType::*;
     vec![
-        ColumnSpec::new("reduced_chi_square", F64, None, "chi-square per degree of freedom"),
+        ColumnSpec::new("reduced_chi_square", F64, None, "chi-square per degree of freedom (weighted fits; without stated uncertainties the residuals set the noise scale and it tests nothing)"),
         ColumnSpec::new("chi_square_p_value", F64, None, "probability of a chi-square at least this large if the model and the weights are right (weighted fits)"),
         ColumnSpec::new("birge_ratio", F64, None, "factor the statistical uncertainties were multiplied by: sqrt(reduced chi-square) when above 1, else 1 (weighted fits)"),
         ColumnSpec::new("floored_points", I64, None, "points whose relative uncertainty was raised to relative_uncertainty_floor"),
@@ -319,7 +319,10 @@ impl Analysis for FreezeOutFitAnalysis {
             .summary("hall_factor", fit.hall_factor)
             .summary("chi_square", fit.chi_square)
             .summary("degrees_of_freedom", fit.degrees_of_freedom)
-            .summary("reduced_chi_square", fit.reduced_chi_square)
+            .summary(
+                "reduced_chi_square",
+                Some(fit.reduced_chi_square).filter(|_| fit.weighted),
+            )
             .summary("chi_square_p_value", fit.chi_square_p_value)
             .summary("birge_ratio", fit.birge_ratio)
             .summary("floored_points", fit.floored_points)
@@ -496,6 +499,7 @@ mod tests {
         assert_eq!(output.summary["weighted"], json!(false));
         assert_eq!(output.summary["chi_square_p_value"], Value::Null);
         assert_eq!(output.summary["birge_ratio"], Value::Null);
+        assert_eq!(output.summary["reduced_chi_square"], Value::Null);
         assert!(output.summary["dopant_density_m3_unc"].as_f64().is_some());
     }
 

@@ -490,7 +490,7 @@ impl Analysis for TwoBandAnalysis {
                 ColumnSpec::new("low_field_hall_coefficient_m2_per_C", ColumnType::F64, Some("m2_per_C"), "R_H(B -> 0) of the fitted bands"),
                 ColumnSpec::new("high_field_hall_coefficient_m2_per_C", ColumnType::F64, Some("m2_per_C"), "R_H(B -> infinity) of the fitted bands"),
                 ColumnSpec::new("carriers", Str, None, "list of {carrier_type, sheet_density_m2, mobility_m2_per_Vs} with _unc"),
-                ColumnSpec::new("reduced_chi_square", F64, None, "chi^2 / nu of the fit"),
+                ColumnSpec::new("reduced_chi_square", F64, None, "chi^2 / nu against the stated uncertainties; null when the data carry none (the residuals then set the noise scale, and chi-square tests nothing)"),
                 ColumnSpec::new("chi_square_p_value", F64, None, "P(chi^2 >= observed) when the sweep's uncertainties weight the fit, else null"),
                 ColumnSpec::new("birge_ratio", F64, None, "sqrt(chi^2 / nu) when above 1 (the uncertainties were multiplied by it), else 1; null without stated uncertainties"),
                 single_field_sign_key(),
@@ -539,7 +539,10 @@ impl Analysis for TwoBandAnalysis {
                     .collect::<Vec<Value>>(),
             )
             .summary("chi_square", fit.chi_square)
-            .summary("reduced_chi_square", fit.reduced_chi_square)
+            .summary(
+                "reduced_chi_square",
+                fit.chi_square_p_value.map(|_| fit.reduced_chi_square),
+            )
             .summary("chi_square_p_value", fit.chi_square_p_value)
             .summary("birge_ratio", fit.birge_ratio)
             .summary("degrees_of_freedom", fit.degrees_of_freedom)

@@ -877,7 +877,7 @@ impl Analysis for WeakLocalizationAnalysis {
                 ColumnSpec::new("phase_coherence_length_m", F64, Some("m"), "l_phi, with _unc"),
                 ColumnSpec::new("alpha", F64, None, "HLN prefactor (-1/2 for one channel with strong spin-orbit coupling), with _unc"),
                 super::classical::single_field_sign_key(),
-                ColumnSpec::new("reduced_chi_square", F64, None, "chi^2 / nu of the fit"),
+                ColumnSpec::new("reduced_chi_square", F64, None, "chi^2 / nu against the stated uncertainties; null when the data carry none (the residuals then set the noise scale, and chi-square tests nothing)"),
                 ColumnSpec::new("chi_square_p_value", F64, None, "P(chi^2 >= observed) when rho_xx_ohm_sq_unc weights the fit, else null"),
                 ColumnSpec::new("birge_ratio", F64, None, "sqrt(chi^2 / nu) when above 1 (the uncertainties were multiplied by it), else 1; null without stated uncertainties"),
             ],
@@ -917,7 +917,10 @@ impl Analysis for WeakLocalizationAnalysis {
             .summary("alpha_unc", fit.alpha_unc)
             .summary("classical_S_per_T2", fit.classical_s_per_t2)
             .summary("zero_field_conductance_S", fit.zero_field_conductance_s)
-            .summary("reduced_chi_square", fit.reduced_chi_square)
+            .summary(
+                "reduced_chi_square",
+                fit.quality.as_ref().map(|_| fit.reduced_chi_square),
+            )
             // p-value and Birge ratio only mean something against stated errors.
             .summary("chi_square_p_value", fit.quality.as_ref().map(|q| q.p_value))
             .summary("birge_ratio", fit.quality.as_ref().map(|q| q.birge_ratio))

@@ -104,7 +104,10 @@ pub fn carrier_summary(carrier: &FittedCarrier, thickness_m: Option<f64>) -> Val
 pub fn fit_summary(fit: &MultiCarrierFit) -> Map<String, Value> {
     let finite = |v: f64| v.is_finite().then_some(v);
     let mut summary = Map::new();
-    summary.insert("reduced_chi_square".into(), json!(finite(fit.reduced_chi_square)));
+    summary.insert(
+        "reduced_chi_square".into(),
+        json!(finite(fit.reduced_chi_square).filter(|_| fit.weighted)),
+    );
     summary.insert("chi_square_p_value".into(), json!(fit.chi_square_p_value));
     summary.insert("birge_ratio".into(), json!(fit.birge_ratio));
     summary.insert("floored_points".into(), json!(fit.floored_points));

@@ -361,7 +361,7 @@ methods! {
     /// `pipeline.run`
     PipelineRun = "pipeline.run" (PipelineParams) -> PipelineResult {
         runs: InComputeSlot, deadline: PIPELINE_DEADLINE, errors: true,
-        summary: "Runs analysis.run steps in order; a step may name an earlier step's output; every step is checked before the first runs",
+        summary: "Runs analysis.run steps in order; a step may name an earlier step's output. Every step is checked before the first runs (analysis, input roles and datasets, output names, parameters against the analysis's schema), and no step may write onto a stored dataset a step reads; what depends on an earlier step's output (its columns and values) is checked when the step runs, and steps that ran before a failing one stay stored",
     }
     /// `plot.render`
     PlotRender = "plot.render" (PlotParams) -> Figure {

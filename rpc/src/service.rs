@@ -170,6 +170,22 @@ fn conform_column(frame: &mut DataFrame, spec: &ColumnSpec, role: &str, dataset:
     Ok(())
 }
 
+/// Refuses to store a run's `output` (or `summary_output`, named by `param`) under the name of
+/// one of the run's own inputs: with `overwrite` that would replace the data the run read
+/// (raw readings, say) by what it made of them, and the output's provenance would name
+/// itself as its input.
+fn refuse_writing_onto_input(run: &RunParams, name: &str, param: &str) -> ServiceResult<()> {
+    match run.inputs.iter().find(|(_, dataset)| dataset.as_str() == name) {
+        Some((role, _)) => Err(ServiceError::invalid_params(format!(
+            "{param} `{name}` is the dataset {} reads as input `{role}`: choose another {param} name (storing there would replace the data the output is computed from)",
+            run.analysis
+        ))
+        .with_help(format!("`{name}` stays as stored"))
+        .with_param(param)),
+        None => Ok(()),
+    }
+}
+
 impl Service {
     pub fn new(store: DatasetStore, host: PluginHost, roots: DataRoots, workspace: PathBuf) -> Self {
         Service {
@@ -621,14 +637,9 @@ impl Service {
         }
     }
 
-    /// Resolves and type-checks the inputs of a run; returns them in declaration order.
-    fn prepare_inputs(&self, run: &RunParams) -> ServiceResult<Vec<(String, DataFrame)>> {
-        let entry = self
-            .host
-            .analyses
-            .get(&run.analysis)
-            .ok_or_else(|| self.unknown_analysis(&run.analysis))?;
-        let declared: Vec<&str> = entry.declaration.inputs.iter().map(|r| r.role.as_str()).collect();
+    /// Refuses input roles the analysis does not declare and required roles not given.
+    fn check_roles(&self, run: &RunParams, declaration: &abi::AnalysisDeclaration) -> ServiceResult<()> {
+        let declared: Vec<&str> = declaration.inputs.iter().map(|r| r.role.as_str()).collect();
         for role in run.inputs.keys() {
             if !declared.contains(&role.as_str()) {
                 return Err(
@@ -638,17 +649,29 @@ impl Service {
                 );
             }
         }
+        for role in declaration.inputs.iter().filter(|role| role.required) {
+            if !run.inputs.contains_key(&role.role) {
+                return Err(
+                    ServiceError::invalid_params(format!("{} needs input role `{}`", run.analysis, role.role))
+                        .with_help(format!("pass inputs: {{\"{}\": \"<dataset>\"}}", role.role))
+                        .with_param(format!("inputs.{}", role.role)),
+                );
+            }
+        }
+        Ok(())
+    }
+
+    /// Resolves and type-checks the inputs of a run whose roles [`Self::check_run`] passed;
+    /// returns them in declaration order.
+    fn prepare_inputs(&self, run: &RunParams) -> ServiceResult<Vec<(String, DataFrame)>> {
+        let entry = self
+            .host
+            .analyses
+            .get(&run.analysis)
+            .ok_or_else(|| self.unknown_analysis(&run.analysis))?;
         let mut prepared = Vec::new();
         for role in &entry.declaration.inputs {
             let Some(dataset_name) = run.inputs.get(&role.role) else {
-                if role.required {
-                    return Err(ServiceError::invalid_params(format!(
-                        "{} needs input role `{}`",
-                        run.analysis, role.role
-                    ))
-                    .with_help(format!("pass inputs: {{\"{}\": \"<dataset>\"}}", role.role))
-                    .with_param(format!("inputs.{}", role.role)));
-                }
                 continue;
             };
             let mut frame = self.store.get(dataset_name)?.frame.clone();
@@ -660,17 +683,13 @@ impl Service {
         Ok(prepared)
     }
 
-    /// Runs one analysis (once per group with `group_by`) and stores its output.
-    pub fn run_analysis(&self, run: RunParams) -> ServiceResult<RunResult> {
-        let title = format!("{} -> {}", run.analysis, run.output);
-        let mut call = self.register_call(run.call_id.as_deref(), &title)?;
-        let result = self.run_analysis_under(run, &call.control);
-        call.finish(&result);
-        result
-    }
-
-    /// [`Self::run_analysis`] under a control the caller owns (a pipeline shares one).
-    fn run_analysis_under(&self, run: RunParams, control: &Arc<CallControl>) -> ServiceResult<RunResult> {
+    /// Everything about a run that can be checked without reading its inputs: the output
+    /// names (free, or `overwrite`; never one of the run's own inputs), the analysis, its
+    /// input roles, and its parameters against the analysis's declared schema (the same
+    /// validation the plugin's own tests run through `sdk::run_typed`). `analysis.run`
+    /// checks this before it reads anything, `pipeline.run` for every step before the first
+    /// one runs. Returns the parameters as the plugin gets them.
+    fn check_run(&self, run: &RunParams) -> ServiceResult<Value> {
         store::validate_name(&run.output)?;
         if !run.overwrite && self.store.contains(&run.output) {
             return Err(ServiceError::new(
@@ -680,6 +699,7 @@ impl Service {
             .with_help("choose another output name, drop the old dataset, or pass overwrite: true")
             .with_param("output"));
         }
+        refuse_writing_onto_input(run, &run.output, "output")?;
         let entry = self
             .host
             .analyses
@@ -716,7 +736,24 @@ impl Service {
                 .with_help("choose another summary_output name, drop the old dataset, or pass overwrite: true")
                 .with_param("summary_output"));
             }
+            refuse_writing_onto_input(run, name, "summary_output")?;
         }
+        self.check_roles(run, &entry.declaration)?;
+        Ok(params)
+    }
+
+    /// Runs one analysis (once per group with `group_by`) and stores its output.
+    pub fn run_analysis(&self, run: RunParams) -> ServiceResult<RunResult> {
+        let title = format!("{} -> {}", run.analysis, run.output);
+        let mut call = self.register_call(run.call_id.as_deref(), &title)?;
+        let result = self.run_analysis_under(run, &call.control);
+        call.finish(&result);
+        result
+    }
+
+    /// [`Self::run_analysis`] under a control the caller owns (a pipeline shares one).
+    fn run_analysis_under(&self, run: RunParams, control: &Arc<CallControl>) -> ServiceResult<RunResult> {
+        let params = self.check_run(&run)?;
         let started = std::time::Instant::now();
         let inputs = self.prepare_inputs(&run)?;
         let group_columns = group_columns(&run.group_by);
@@ -905,15 +942,26 @@ impl Service {
     }
 
     /// Runs steps in order; a step may name an earlier step's output as an input. Every
-    /// step is checked before the first one runs.
+    /// step is checked before the first one runs, as far as it can be without running the
+    /// steps before it: its analysis, output names, input roles and parameters
+    /// ([`Self::check_run`]), that each input is stored or made by an earlier step, and that
+    /// no step writes onto a stored dataset the pipeline reads. What depends on an earlier
+    /// step's output (its columns, the values in them) is checked when the step runs.
     pub fn run_pipeline(&self, pipeline: PipelineParams) -> ServiceResult<PipelineResult> {
         if pipeline.steps.is_empty() {
             return Err(ServiceError::invalid_params("the pipeline has no steps"));
         }
         let mut produced: Vec<&str> = Vec::new();
+        // Stored datasets the steps read (not made by an earlier step), with the first reader.
+        let mut read_from_store: Vec<(&str, usize, &str)> = Vec::new();
         for (index, step) in pipeline.steps.iter().enumerate() {
             let context = |e: ServiceError| ServiceError {
-                message: format!("step {} ({}): {}", index + 1, step.analysis, e.message),
+                message: format!(
+                    "pipeline refused before any step ran: step {} ({}): {}",
+                    index + 1,
+                    step.analysis,
+                    e.message
+                ),
                 ..e
             };
             if !self.host.analyses.contains_key(&step.analysis) {
@@ -925,10 +973,29 @@ impl Service {
                         .with_help("give call_id to pipeline.run; it cancels and reports the whole pipeline"),
                 ));
             }
-            store::validate_name(&step.output).map_err(context)?;
-            for dataset in step.inputs.values() {
-                if !produced.contains(&dataset.as_str()) && !self.store.contains(dataset) {
+            self.check_run(step).map_err(context)?;
+            for (role, dataset) in &step.inputs {
+                if produced.contains(&dataset.as_str()) {
+                    continue;
+                }
+                if !self.store.contains(dataset) {
                     return Err(context(ServiceError::unknown_dataset(dataset)));
+                }
+                read_from_store.push((dataset, index, role));
+            }
+            let outputs = std::iter::once((step.output.as_str(), "output"))
+                .chain(step.summary_output.as_deref().map(|name| (name, "summary_output")));
+            for (name, param) in outputs {
+                if let Some(&(_, reader, role)) = read_from_store.iter().find(|(dataset, _, _)| *dataset == name) {
+                    return Err(context(
+                        ServiceError::invalid_params(format!(
+                            "{param} `{name}` is the stored dataset step {} ({}) reads as input `{role}`: choose another {param} name for this step (storing there would replace data the pipeline reads)",
+                            reader + 1,
+                            pipeline.steps[reader].analysis
+                        ))
+                        .with_help(format!("`{name}` stays as stored"))
+                        .with_param(param),
+                    ));
                 }
             }
             if let Some(summary) = &step.summary_output {

@@ -326,7 +326,7 @@ methods! {
     /// `dataset.info`
     DatasetInfoMethod = "dataset.info" (DatasetName) -> DatasetInfo {
         runs: Inline, errors: true,
-        summary: "A dataset's rows, columns, creation time and provenance (for an analysis output also the run's summary and warnings as answered: run_summary, warnings)",
+        summary: "A dataset's rows, columns, creation time, version (the identity of this stored table, new whenever a table is stored under the name) and provenance (for an analysis output its inputs by name and, as input_versions, the version of each input it read, so that an input dropped or stored again since is told apart; also the run's summary and warnings as answered: run_summary, warnings)",
     }
     /// `dataset.drop`
     DatasetDrop = "dataset.drop" (DatasetName) -> Dropped {

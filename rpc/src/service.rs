@@ -365,6 +365,7 @@ impl Service {
             rows: dataset.manifest.rows,
             columns: dataset.manifest.columns.clone(),
             created: dataset.manifest.created.clone(),
+            version: dataset.manifest.version.clone(),
             provenance: serde_json::to_value(&dataset.manifest.provenance).expect("provenance serialises"),
         })
     }
@@ -662,25 +663,34 @@ impl Service {
     }
 
     /// Resolves and type-checks the inputs of a run whose roles [`Self::check_run`] passed;
-    /// returns them in declaration order.
-    fn prepare_inputs(&self, run: &RunParams) -> ServiceResult<Vec<(String, DataFrame)>> {
+    /// returns them in declaration order, with the stored version of each as it was read
+    /// (role to version), for the output's provenance.
+    fn prepare_inputs(&self, run: &RunParams) -> ServiceResult<(Vec<(String, DataFrame)>, BTreeMap<String, String>)> {
         let entry = self
             .host
             .analyses
             .get(&run.analysis)
             .ok_or_else(|| self.unknown_analysis(&run.analysis))?;
         let mut prepared = Vec::new();
+        let mut versions = BTreeMap::new();
         for role in &entry.declaration.inputs {
             let Some(dataset_name) = run.inputs.get(&role.role) else {
                 continue;
             };
-            let mut frame = self.store.get(dataset_name)?.frame.clone();
+            // The version comes from the very table read: a drop or overwrite of the name
+            // while the run goes on does not change what the output's provenance names.
+            let dataset = self.store.get(dataset_name)?;
+            if let Some(version) = &dataset.manifest.version {
+                versions.insert(role.role.clone(), version.clone());
+            }
+            let mut frame = dataset.frame.clone();
+            drop(dataset);
             for column in &role.columns {
                 conform_column(&mut frame, column, &role.role, dataset_name)?;
             }
             prepared.push((role.role.clone(), frame));
         }
-        Ok(prepared)
+        Ok((prepared, versions))
     }
 
     /// Everything about a run that can be checked without reading its inputs: the output
@@ -755,7 +765,7 @@ impl Service {
     fn run_analysis_under(&self, run: RunParams, control: &Arc<CallControl>) -> ServiceResult<RunResult> {
         let params = self.check_run(&run)?;
         let started = std::time::Instant::now();
-        let inputs = self.prepare_inputs(&run)?;
+        let (inputs, input_versions) = self.prepare_inputs(&run)?;
         let group_columns = group_columns(&run.group_by);
         let inputs_done = started.elapsed();
 
@@ -774,6 +784,7 @@ impl Service {
             plugin_version: plugin.version.clone(),
             params: params.clone(),
             inputs: run.inputs.clone(),
+            input_versions: input_versions.clone(),
             group_by: group_columns.clone(),
             summary: of_summary,
             // The output keeps the summary as answered; the summary table holds it as rows.

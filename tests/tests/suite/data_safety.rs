@@ -210,3 +210,72 @@ async fn an_output_never_replaces_an_input_of_its_call() {
         .await;
     assert_eq!(result["steps"].as_array().unwrap().len(), 2);
 }
+
+#[tokio::test(flavor = "multi_thread")]
+async fn provenance_names_the_version_of_each_input_it_read() {
+    let (daemon, plugins) = daemon_with_fixture().await;
+    let version_of = |info: &Value| {
+        info["version"]
+            .as_str()
+            .expect("a stored dataset has a version")
+            .to_owned()
+    };
+    daemon
+        .call("dataset.import", json!({"name": "two", "columns": {"x": [1.0, 2.0]}}))
+        .await;
+    let read = version_of(&daemon.call("dataset.info", json!({"name": "two"})).await);
+    assert_eq!(read.len(), 32, "{read}");
+    daemon
+        .call(
+            "pipeline.run",
+            json!({"steps": [
+                {"analysis": "fixture.scale", "inputs": {"values": "two"}, "params": {"factor": 2.0},
+                 "output": "scaled", "summary_output": "scaled.sum"},
+                {"analysis": "fixture.identity", "inputs": {"values": "scaled"}, "output": "copied"},
+            ]}),
+        )
+        .await;
+    let scaled = daemon.call("dataset.info", json!({"name": "scaled"})).await;
+    assert_eq!(scaled["provenance"]["inputs"], json!({"values": "two"}));
+    assert_eq!(scaled["provenance"]["input_versions"], json!({"values": read}));
+    let summary = daemon.call("dataset.info", json!({"name": "scaled.sum"})).await;
+    assert_eq!(summary["provenance"]["input_versions"], json!({"values": read}));
+    // A later step names the version the earlier step stored.
+    let copied = daemon.call("dataset.info", json!({"name": "copied"})).await;
+    assert_eq!(
+        copied["provenance"]["input_versions"],
+        json!({"values": version_of(&scaled)})
+    );
+
+    // The input is dropped and an unrelated table imported under its name: the output's
+    // provenance still names what it read, which the new table is not.
+    daemon.call("dataset.drop", json!({"name": "two"})).await;
+    daemon
+        .call(
+            "dataset.import",
+            json!({"name": "two", "columns": {"x": [7.0, 8.0, 9.0]}}),
+        )
+        .await;
+    let replaced = version_of(&daemon.call("dataset.info", json!({"name": "two"})).await);
+    assert_ne!(replaced, read);
+    // And an overwrite is a new version too.
+    daemon
+        .call(
+            "dataset.import",
+            json!({"name": "two", "columns": {"x": [7.0, 8.0, 9.0]}, "overwrite": true}),
+        )
+        .await;
+    let overwritten = version_of(&daemon.call("dataset.info", json!({"name": "two"})).await);
+    assert!(overwritten != replaced && overwritten != read);
+
+    // Versions are stored with the datasets: a restart keeps every one.
+    let daemon = daemon.restart().await;
+    let scaled_again = daemon.call("dataset.info", json!({"name": "scaled"})).await;
+    assert_eq!(scaled_again["version"], scaled["version"]);
+    assert_eq!(scaled_again["provenance"]["input_versions"], json!({"values": read}));
+    assert_eq!(
+        version_of(&daemon.call("dataset.info", json!({"name": "two"})).await),
+        overwritten
+    );
+    drop(plugins);
+}

@@ -170,6 +170,14 @@ fn conform_column(frame: &mut DataFrame, spec: &ColumnSpec, role: &str, dataset:
     Ok(())
 }
 
+/// A run's input tables, type-checked, and what the output's provenance says of them.
+struct PreparedInputs {
+    /// Role and table, in the analysis's declaration order.
+    tables: Vec<(String, DataFrame)>,
+    /// The stored version of each input as it was read, role to version.
+    versions: BTreeMap<String, String>,
+}
+
 /// Refuses to store a run's `output` (or `summary_output`, named by `param`) under the name of
 /// one of the run's own inputs: with `overwrite` that would replace the data the run read
 /// (raw readings, say) by what it made of them, and the output's provenance would name
@@ -662,10 +670,8 @@ impl Service {
         Ok(())
     }
 
-    /// Resolves and type-checks the inputs of a run whose roles [`Self::check_run`] passed;
-    /// returns them in declaration order, with the stored version of each as it was read
-    /// (role to version), for the output's provenance.
-    fn prepare_inputs(&self, run: &RunParams) -> ServiceResult<(Vec<(String, DataFrame)>, BTreeMap<String, String>)> {
+    /// Resolves and type-checks the inputs of a run whose roles [`Self::check_run`] passed.
+    fn prepare_inputs(&self, run: &RunParams) -> ServiceResult<PreparedInputs> {
         let entry = self
             .host
             .analyses
@@ -690,7 +696,10 @@ impl Service {
             }
             prepared.push((role.role.clone(), frame));
         }
-        Ok((prepared, versions))
+        Ok(PreparedInputs {
+            tables: prepared,
+            versions,
+        })
     }
 
     /// Everything about a run that can be checked without reading its inputs: the output
@@ -765,7 +774,10 @@ impl Service {
     fn run_analysis_under(&self, run: RunParams, control: &Arc<CallControl>) -> ServiceResult<RunResult> {
         let params = self.check_run(&run)?;
         let started = std::time::Instant::now();
-        let (inputs, input_versions) = self.prepare_inputs(&run)?;
+        let PreparedInputs {
+            tables: inputs,
+            versions: input_versions,
+        } = self.prepare_inputs(&run)?;
         let group_columns = group_columns(&run.group_by);
         let inputs_done = started.elapsed();
 

@@ -6,22 +6,32 @@ use mobilis_tests::{ensure_built, fixture_plugin_dir, TestDaemon};
 use serde_json::{json, Value};
 use std::process::{Command, Stdio};
 
-/// Starts a second `mobilisd` on `workspace` and returns its exit status and log, or panics
-/// if it starts serving (its ready line comes out).
+/// Starts a second `mobilisd` on `workspace` and returns its exit status and log; panics,
+/// after stopping it, if it starts serving instead (its ready line comes out).
 fn second_daemon_on(workspace: &std::path::Path) -> (std::process::ExitStatus, String) {
-    let output = Command::new(ensure_built().join("mobilisd"))
+    use std::io::{BufRead, Read};
+    let mut child = Command::new(ensure_built().join("mobilisd"))
         .args(["--listen", "127.0.0.1:0", "--workspace"])
         .arg(workspace)
         .stdin(Stdio::null())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
         .env_remove("MOBILIS_TOKEN")
-        .output()
+        .spawn()
         .expect("mobilisd runs");
-    let stdout = String::from_utf8_lossy(&output.stdout);
-    assert!(
-        !stdout.contains("listening on"),
-        "a second daemon serves the workspace another holds: {stdout}"
-    );
-    (output.status, String::from_utf8_lossy(&output.stderr).into_owned())
+    // Either the ready line, or nothing before the refused daemon exits and closes stdout.
+    let mut first_line = String::new();
+    std::io::BufReader::new(child.stdout.take().unwrap())
+        .read_line(&mut first_line)
+        .unwrap();
+    if first_line.contains("listening on") {
+        let _ = child.kill();
+        let _ = child.wait();
+        panic!("a second daemon serves the workspace another holds: {first_line}");
+    }
+    let mut log = String::new();
+    child.stderr.take().unwrap().read_to_string(&mut log).unwrap();
+    (child.wait().unwrap(), log)
 }
 
 #[tokio::test(flavor = "multi_thread")]

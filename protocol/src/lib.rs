@@ -326,7 +326,7 @@ methods! {
     /// `dataset.info`
     DatasetInfoMethod = "dataset.info" (DatasetName) -> DatasetInfo {
         runs: Inline, errors: true,
-        summary: "A dataset's rows, columns, creation time and provenance (for an analysis output also the run's summary and warnings as answered: run_summary, warnings)",
+        summary: "A dataset's rows, columns, creation time, version (the identity of this stored table, new whenever a table is stored under the name) and provenance (for an analysis output its inputs by name and, as input_versions, the version of each input it read, so that an input dropped or stored again since is told apart; also the run's summary and warnings as answered: run_summary, warnings)",
     }
     /// `dataset.drop`
     DatasetDrop = "dataset.drop" (DatasetName) -> Dropped {
@@ -361,7 +361,7 @@ methods! {
     /// `pipeline.run`
     PipelineRun = "pipeline.run" (PipelineParams) -> PipelineResult {
         runs: InComputeSlot, deadline: PIPELINE_DEADLINE, errors: true,
-        summary: "Runs analysis.run steps in order; a step may name an earlier step's output; every step is checked before the first runs",
+        summary: "Runs analysis.run steps in order; a step may name an earlier step's output. Every step is checked before the first runs (analysis, input roles and datasets, output names, parameters against the analysis's schema), and no step may write onto a stored dataset a step reads; what depends on an earlier step's output (its columns and values) is checked when the step runs, and steps that ran before a failing one stay stored",
     }
     /// `plot.render`
     PlotRender = "plot.render" (PlotParams) -> Figure {

@@ -292,19 +292,21 @@ pub struct RunParams {
     /// the analysis's parameters (see analysis.describe, and x-analyses in rpc.discover)
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub params: Option<Map<String, Value>>,
-    /// name of the dataset to store the output table in
+    /// name of the dataset to store the output table in; never one of `inputs` (nor, in a
+    /// pipeline, a stored dataset any step reads)
     pub output: String,
     /// column(s) of the first input to group by
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub group_by: Option<GroupBy>,
-    /// replace an existing output dataset
+    /// replace an existing output dataset (never an input of the call)
     #[serde(default, skip_serializing_if = "is_false")]
     pub overwrite: bool,
     /// client-chosen id, unique among running calls: the token of its progress
     /// (progress.subscribe, analysis.progress) and the handle to cancel it (analysis.cancel)
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub call_id: Option<String>,
-    /// also store the summary as a dataset: one row per group, one column per scalar value
+    /// also store the summary as a dataset: one row per group, one column per scalar value;
+    /// never one of `inputs`
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub summary_output: Option<String>,
 }

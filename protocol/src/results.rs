@@ -109,8 +109,14 @@ pub struct DatasetInfo {
     pub columns: Vec<ColumnInfo>,
     /// UTC, RFC 3339
     pub created: String,
+    /// the identity of this stored table, 32 hex digits: new each time a table is stored
+    /// under the name (import, analysis output, overwrite), never reused; absent for datasets
+    /// stored before versions were kept
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub version: Option<String>,
     /// where the dataset came from: a file, inline columns, or an analysis run (then with
-    /// its parameters, run_summary and warnings)
+    /// its parameters, its inputs by name and, as input_versions, the version of each input
+    /// it read, its run_summary and warnings)
     pub provenance: Value,
 }
 

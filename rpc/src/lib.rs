@@ -28,3 +28,4 @@ pub mod suggest;
 pub mod tables;
 pub mod transport;
 pub mod worker_protocol;
+pub mod workspace_lock;

@@ -9,6 +9,7 @@ use mobilis_rpc::plugin_supervisor::WorkerSettings;
 use mobilis_rpc::service::Service;
 use mobilis_rpc::store::DatasetStore;
 use mobilis_rpc::transport::{self, AccessPolicy};
+use mobilis_rpc::workspace_lock::WorkspaceLock;
 use std::io::Write;
 use std::net::SocketAddr;
 use std::path::PathBuf;
@@ -95,6 +96,8 @@ fn main() -> anyhow::Result<()> {
     std::fs::create_dir_all(&arguments.workspace)
         .with_context(|| format!("cannot create the workspace {}", arguments.workspace.display()))?;
     let workspace = arguments.workspace.canonicalize()?;
+    // Held until the process ends: a second daemon on this workspace refuses to start.
+    let _workspace_lock = WorkspaceLock::acquire(&workspace)?;
     let store =
         DatasetStore::open(&workspace).with_context(|| format!("cannot open the workspace {}", workspace.display()))?;
     if let Some(budget) = arguments.memory_budget {

@@ -1,7 +1,8 @@
 //! `report.samples` and `report.render`: one self-contained HTML page per sample that a lab
 //! can file with the wafer — every dataset that holds the sample, its figures, tables,
 //! quality flags and provenance (which readings, which analyses with which parameters,
-//! which versions).
+//! which versions; an input whose name has been dropped or stored again with another table
+//! since the output was computed is marked so).
 //!
 //! Self-contained means no external resource at all: styles inline, figures as inline SVG
 //! drawn by mobilis-plot, so the page opens the same on any machine, years later.
@@ -372,7 +373,10 @@ fn flags_html(frame: &DataFrame) -> Option<String> {
     ))
 }
 
-fn provenance_html(provenance: &Provenance) -> String {
+/// A dataset's provenance as a sentence. `stored_version(name)` is the version stored under
+/// `name` now (`None` when no dataset has the name): an input whose name now holds another
+/// table than the one the output read is marked, since its link leads to that other table.
+fn provenance_html(provenance: &Provenance, stored_version: impl Fn(&str) -> Option<Option<String>>) -> String {
     match provenance {
         Provenance::File {
             path,
@@ -440,6 +444,7 @@ fn provenance_html(provenance: &Provenance) -> String {
             plugin_version,
             params,
             inputs,
+            input_versions,
             group_by,
             summary,
             ..
@@ -447,8 +452,15 @@ fn provenance_html(provenance: &Provenance) -> String {
             let inputs: Vec<String> = inputs
                 .iter()
                 .map(|(role, dataset)| {
+                    let since = match (input_versions.get(role), stored_version(dataset)) {
+                        (Some(_), None) => " (dropped since)",
+                        (Some(read), Some(now)) if now.as_deref() != Some(read.as_str()) => {
+                            " (stored again since, with another table)"
+                        }
+                        _ => "",
+                    };
                     format!(
-                        "{} = <a href=\"#dataset-{}\">{}</a>",
+                        "{} = <a href=\"#dataset-{}\">{}</a>{since}",
                         escape(role),
                         escape(dataset),
                         escape(dataset)
@@ -693,7 +705,9 @@ impl Service {
                 "<section class=\"dataset\" id=\"dataset-{}\"><h2>{}</h2><p class=\"provenance\">{} {} rows of this sample (of {} in the dataset); stored {}.</p>",
                 escape(name),
                 escape(name),
-                provenance_html(&dataset.manifest.provenance),
+                provenance_html(&dataset.manifest.provenance, |input| {
+                    self.store.get(input).ok().map(|stored| stored.manifest.version.clone())
+                }),
                 frame.height(),
                 dataset.frame.height(),
                 escape(&dataset.manifest.created)
@@ -846,6 +860,28 @@ procedures and review.</p></main></body></html>\n",
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn an_input_stored_again_since_the_output_was_made_is_marked() {
+        let provenance = Provenance::Analysis {
+            analysis: "carriers.arrhenius".into(),
+            plugin: "carriers".into(),
+            plugin_version: "0.1.0".into(),
+            params: serde_json::json!({}),
+            inputs: [("hall".to_owned(), "w-hall".to_owned())].into_iter().collect(),
+            input_versions: [("hall".to_owned(), "read".to_owned())].into_iter().collect(),
+            group_by: Vec::new(),
+            summary: false,
+            run_summary: Value::Null,
+            warnings: Vec::new(),
+        };
+        let with_stored =
+            |version: Option<Option<&str>>| provenance_html(&provenance, |_| version.map(|v| v.map(str::to_owned)));
+        assert!(!with_stored(Some(Some("read"))).contains("since"));
+        assert!(with_stored(Some(Some("later"))).contains("w-hall</a> (stored again since"));
+        assert!(with_stored(Some(None)).contains("stored again since"));
+        assert!(with_stored(None).contains("w-hall</a> (dropped since)"));
+    }
 
     #[test]
     fn text_is_escaped_for_html() {

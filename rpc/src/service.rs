@@ -184,6 +184,30 @@ fn conform_column(frame: &mut DataFrame, spec: &ColumnSpec, role: &str, dataset:
     Ok(())
 }
 
+/// A run's input tables, type-checked, and what the output's provenance says of them.
+struct PreparedInputs {
+    /// Role and table, in the analysis's declaration order.
+    tables: Vec<(String, DataFrame)>,
+    /// The stored version of each input as it was read, role to version.
+    versions: BTreeMap<String, String>,
+}
+
+/// Refuses to store a run's `output` (or `summary_output`, named by `param`) under the name of
+/// one of the run's own inputs: with `overwrite` that would replace the data the run read
+/// (raw readings, say) by what it made of them, and the output's provenance would name
+/// itself as its input.
+fn refuse_writing_onto_input(run: &RunParams, name: &str, param: &str) -> ServiceResult<()> {
+    match run.inputs.iter().find(|(_, dataset)| dataset.as_str() == name) {
+        Some((role, _)) => Err(ServiceError::invalid_params(format!(
+            "{param} `{name}` is the dataset {} reads as input `{role}`: choose another {param} name (storing there would replace the data the output is computed from)",
+            run.analysis
+        ))
+        .with_help(format!("`{name}` stays as stored"))
+        .with_param(param)),
+        None => Ok(()),
+    }
+}
+
 impl Service {
     pub fn new(store: DatasetStore, host: PluginHost, roots: DataRoots, workspace: PathBuf) -> Self {
         Service {
@@ -363,6 +387,7 @@ impl Service {
             rows: dataset.manifest.rows,
             columns: dataset.manifest.columns.clone(),
             created: dataset.manifest.created.clone(),
+            version: dataset.manifest.version.clone(),
             provenance: serde_json::to_value(&dataset.manifest.provenance).expect("provenance serialises"),
         })
     }
@@ -642,14 +667,9 @@ impl Service {
         }
     }
 
-    /// Resolves and type-checks the inputs of a run; returns them in declaration order.
-    fn prepare_inputs(&self, run: &RunParams) -> ServiceResult<Vec<(String, DataFrame)>> {
-        let entry = self
-            .host
-            .analyses
-            .get(&run.analysis)
-            .ok_or_else(|| self.unknown_analysis(&run.analysis))?;
-        let declared: Vec<&str> = entry.declaration.inputs.iter().map(|r| r.role.as_str()).collect();
+    /// Refuses input roles the analysis does not declare and required roles not given.
+    fn check_roles(&self, run: &RunParams, declaration: &abi::AnalysisDeclaration) -> ServiceResult<()> {
+        let declared: Vec<&str> = declaration.inputs.iter().map(|r| r.role.as_str()).collect();
         for role in run.inputs.keys() {
             if !declared.contains(&role.as_str()) {
                 return Err(
@@ -659,39 +679,57 @@ impl Service {
                 );
             }
         }
+        for role in declaration.inputs.iter().filter(|role| role.required) {
+            if !run.inputs.contains_key(&role.role) {
+                return Err(
+                    ServiceError::invalid_params(format!("{} needs input role `{}`", run.analysis, role.role))
+                        .with_help(format!("pass inputs: {{\"{}\": \"<dataset>\"}}", role.role))
+                        .with_param(format!("inputs.{}", role.role)),
+                );
+            }
+        }
+        Ok(())
+    }
+
+    /// Resolves and type-checks the inputs of a run whose roles [`Self::check_run`] passed.
+    fn prepare_inputs(&self, run: &RunParams) -> ServiceResult<PreparedInputs> {
+        let entry = self
+            .host
+            .analyses
+            .get(&run.analysis)
+            .ok_or_else(|| self.unknown_analysis(&run.analysis))?;
         let mut prepared = Vec::new();
+        let mut versions = BTreeMap::new();
         for role in &entry.declaration.inputs {
             let Some(dataset_name) = run.inputs.get(&role.role) else {
-                if role.required {
-                    return Err(ServiceError::invalid_params(format!(
-                        "{} needs input role `{}`",
-                        run.analysis, role.role
-                    ))
-                    .with_help(format!("pass inputs: {{\"{}\": \"<dataset>\"}}", role.role))
-                    .with_param(format!("inputs.{}", role.role)));
-                }
                 continue;
             };
-            let mut frame = self.store.get(dataset_name)?.frame.clone();
+            // The version comes from the very table read: a drop or overwrite of the name
+            // while the run goes on does not change what the output's provenance names.
+            let dataset = self.store.get(dataset_name)?;
+            if let Some(version) = &dataset.manifest.version {
+                versions.insert(role.role.clone(), version.clone());
+            }
+            let mut frame = dataset.frame.clone();
+            drop(dataset);
             for column in &role.columns {
                 conform_column(&mut frame, column, &role.role, dataset_name)?;
             }
             prepared.push((role.role.clone(), frame));
         }
-        Ok(prepared)
+        Ok(PreparedInputs {
+            tables: prepared,
+            versions,
+        })
     }
 
-    /// Runs one analysis (once per group with `group_by`) and stores its output.
-    pub fn run_analysis(&self, run: RunParams) -> ServiceResult<RunResult> {
-        let title = format!("{} -> {}", run.analysis, run.output);
-        let mut call = self.register_call(run.call_id.as_deref(), &title)?;
-        let result = self.run_analysis_under(run, &call.control);
-        call.finish(&result);
-        result
-    }
-
-    /// [`Self::run_analysis`] under a control the caller owns (a pipeline shares one).
-    fn run_analysis_under(&self, run: RunParams, control: &Arc<CallControl>) -> ServiceResult<RunResult> {
+    /// Everything about a run that can be checked without reading its inputs: the output
+    /// names (free, or `overwrite`; never one of the run's own inputs), the analysis, its
+    /// input roles, and its parameters against the analysis's declared schema (the same
+    /// validation the plugin's own tests run through `sdk::run_typed`). `analysis.run`
+    /// checks this before it reads anything, `pipeline.run` for every step before the first
+    /// one runs. Returns the parameters as the plugin gets them.
+    fn check_run(&self, run: &RunParams) -> ServiceResult<Value> {
         store::validate_name(&run.output)?;
         if !run.overwrite && self.store.contains(&run.output) {
             return Err(ServiceError::new(
@@ -701,6 +739,7 @@ impl Service {
             .with_help("choose another output name, drop the old dataset, or pass overwrite: true")
             .with_param("output"));
         }
+        refuse_writing_onto_input(run, &run.output, "output")?;
         let entry = self
             .host
             .analyses
@@ -737,9 +776,29 @@ impl Service {
                 .with_help("choose another summary_output name, drop the old dataset, or pass overwrite: true")
                 .with_param("summary_output"));
             }
+            refuse_writing_onto_input(run, name, "summary_output")?;
         }
+        self.check_roles(run, &entry.declaration)?;
+        Ok(params)
+    }
+
+    /// Runs one analysis (once per group with `group_by`) and stores its output.
+    pub fn run_analysis(&self, run: RunParams) -> ServiceResult<RunResult> {
+        let title = format!("{} -> {}", run.analysis, run.output);
+        let mut call = self.register_call(run.call_id.as_deref(), &title)?;
+        let result = self.run_analysis_under(run, &call.control);
+        call.finish(&result);
+        result
+    }
+
+    /// [`Self::run_analysis`] under a control the caller owns (a pipeline shares one).
+    fn run_analysis_under(&self, run: RunParams, control: &Arc<CallControl>) -> ServiceResult<RunResult> {
+        let params = self.check_run(&run)?;
         let started = std::time::Instant::now();
-        let inputs = self.prepare_inputs(&run)?;
+        let PreparedInputs {
+            tables: inputs,
+            versions: input_versions,
+        } = self.prepare_inputs(&run)?;
         let group_columns = group_columns(&run.group_by);
         let inputs_done = started.elapsed();
 
@@ -758,6 +817,7 @@ impl Service {
             plugin_version: plugin.version.clone(),
             params: params.clone(),
             inputs: run.inputs.clone(),
+            input_versions: input_versions.clone(),
             group_by: group_columns.clone(),
             summary: of_summary,
             // The output keeps the summary as answered; the summary table holds it as rows.
@@ -926,15 +986,26 @@ impl Service {
     }
 
     /// Runs steps in order; a step may name an earlier step's output as an input. Every
-    /// step is checked before the first one runs.
+    /// step is checked before the first one runs, as far as it can be without running the
+    /// steps before it: its analysis, output names, input roles and parameters
+    /// ([`Self::check_run`]), that each input is stored or made by an earlier step, and that
+    /// no step writes onto a stored dataset the pipeline reads. What depends on an earlier
+    /// step's output (its columns, the values in them) is checked when the step runs.
     pub fn run_pipeline(&self, pipeline: PipelineParams) -> ServiceResult<PipelineResult> {
         if pipeline.steps.is_empty() {
             return Err(ServiceError::invalid_params("the pipeline has no steps"));
         }
         let mut produced: Vec<&str> = Vec::new();
+        // Stored datasets the steps read (not made by an earlier step), with the first reader.
+        let mut read_from_store: Vec<(&str, usize, &str)> = Vec::new();
         for (index, step) in pipeline.steps.iter().enumerate() {
             let context = |e: ServiceError| ServiceError {
-                message: format!("step {} ({}): {}", index + 1, step.analysis, e.message),
+                message: format!(
+                    "pipeline refused before any step ran: step {} ({}): {}",
+                    index + 1,
+                    step.analysis,
+                    e.message
+                ),
                 ..e
             };
             if !self.host.analyses.contains_key(&step.analysis) {
@@ -946,10 +1017,29 @@ impl Service {
                         .with_help("give call_id to pipeline.run; it cancels and reports the whole pipeline"),
                 ));
             }
-            store::validate_name(&step.output).map_err(context)?;
-            for dataset in step.inputs.values() {
-                if !produced.contains(&dataset.as_str()) && !self.store.contains(dataset) {
+            self.check_run(step).map_err(context)?;
+            for (role, dataset) in &step.inputs {
+                if produced.contains(&dataset.as_str()) {
+                    continue;
+                }
+                if !self.store.contains(dataset) {
                     return Err(context(ServiceError::unknown_dataset(dataset)));
+                }
+                read_from_store.push((dataset, index, role));
+            }
+            let outputs = std::iter::once((step.output.as_str(), "output"))
+                .chain(step.summary_output.as_deref().map(|name| (name, "summary_output")));
+            for (name, param) in outputs {
+                if let Some(&(_, reader, role)) = read_from_store.iter().find(|(dataset, _, _)| *dataset == name) {
+                    return Err(context(
+                        ServiceError::invalid_params(format!(
+                            "{param} `{name}` is the stored dataset step {} ({}) reads as input `{role}`: choose another {param} name for this step (storing there would replace data the pipeline reads)",
+                            reader + 1,
+                            pipeline.steps[reader].analysis
+                        ))
+                        .with_help(format!("`{name}` stays as stored"))
+                        .with_param(param),
+                    ));
                 }
             }
             if let Some(summary) = &step.summary_output {

@@ -18,6 +18,12 @@
 //! only at start): how a frame is encoded, and how a Parquet import keeps its source's own
 //! bytes instead, is in [`disk`].
 //!
+//! Every stored table gets a version ([`Manifest::version`], from [`new_version`]) when it is
+//! stored, kept in its manifest; an analysis output's provenance names the version of each
+//! input it read (`input_versions`), so that a name dropped and stored again with other data
+//! does not pass for what the output was computed from. A version is made once per write, at
+//! no cost that grows with the table; it identifies the stored table, not its values.
+//!
 //! Layout: `<workspace>/datasets/<name>.parquet`. Workspaces of earlier versions kept the
 //! manifest beside it as `<name>.json`; such pairs are migrated to the one-file form on load.
 //! The migration rewrites the file with the manifest in its footer, then removes the JSON file;
@@ -74,7 +80,7 @@ pub mod memory;
 
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use manifest::storage_error;
-pub use manifest::{column_infos, ColumnInfo, Manifest, Provenance, MANIFEST_FORMAT};
+pub use manifest::{column_infos, new_version, ColumnInfo, Manifest, Provenance, MANIFEST_FORMAT};
 use polars::prelude::*;
 use serde::Serialize;
 use std::collections::{BTreeMap, HashMap};
@@ -492,6 +498,7 @@ impl DatasetStore {
                     rows: frame.height(),
                     columns: column_infos(&frame),
                     created: created.clone(),
+                    version: Some(new_version()),
                     provenance: item.provenance,
                 };
                 (frame, manifest, item.parquet_source)
@@ -762,6 +769,7 @@ mod tests {
             rows: 2,
             columns: column_infos(&frame),
             created: "2025-01-01T00:00:00Z".into(),
+            version: None,
             provenance: Provenance::File {
                 path: "/data/old.csv".into(),
                 format: "csv".into(),
@@ -806,6 +814,7 @@ mod tests {
                 rows,
                 columns: column_infos(&frame),
                 created: "2026-01-01T00:00:00Z".into(),
+                version: None,
                 provenance: provenance(),
             };
             let target = directory.join(format!("{name}.parquet"));
@@ -901,6 +910,26 @@ mod tests {
         // Written back, it reads as before: nothing new appears for what was not kept.
         let text = serde_json::to_string(&provenance).unwrap();
         assert!(!text.contains("run_summary") && !text.contains("warnings"), "{text}");
+    }
+
+    #[test]
+    fn every_stored_table_gets_its_own_version_which_a_restart_keeps() {
+        let workspace = tempfile::tempdir().unwrap();
+        let store = DatasetStore::open(workspace.path()).unwrap();
+        let frame = df!("x" => [1.0, 2.0]).unwrap();
+        let version_of = |store: &DatasetStore| store.get("t").unwrap().manifest.version.clone().unwrap();
+        store.insert("t", frame.clone(), provenance(), false).unwrap();
+        let first = version_of(&store);
+        assert!(
+            first.len() == 32 && first.chars().all(|c| c.is_ascii_hexdigit()),
+            "{first}"
+        );
+        // The same values stored again are another stored table.
+        store.insert("t", frame, provenance(), true).unwrap();
+        let second = version_of(&store);
+        assert_ne!(first, second);
+        drop(store);
+        assert_eq!(version_of(&DatasetStore::open(workspace.path()).unwrap()), second);
     }
 
     #[test]

@@ -670,6 +670,7 @@ mod tests {
             rows: frame.height(),
             columns: column_infos(&frame),
             created: "2026-01-01T00:00:00Z".into(),
+            version: None,
             provenance,
         };
         Dataset::new(frame, manifest)
@@ -682,6 +683,7 @@ mod tests {
             plugin_version: "0.1.0".into(),
             params: json!({}),
             inputs: [("hall".to_owned(), "w-hall".to_owned())].into_iter().collect(),
+            input_versions: Default::default(),
             group_by: vec!["sample".into()],
             summary,
             run_summary,

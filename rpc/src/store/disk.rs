@@ -460,6 +460,7 @@ mod tests {
             rows: frame.height(),
             columns: column_infos(frame),
             created: "2026-01-01T00:00:00Z".into(),
+            version: None,
             provenance: Provenance::Inline {
                 units: Default::default(),
             },

@@ -51,6 +51,12 @@ pub enum Provenance {
         plugin_version: String,
         params: serde_json::Value,
         inputs: BTreeMap<String, String>,
+        /// The stored version of each input as the run read it, role to
+        /// [`Manifest::version`]: `inputs` names datasets, and a name may since have been
+        /// dropped or stored again with other data. Empty in manifests written before
+        /// versions were kept; an input stored before then has none.
+        #[serde(default, skip_serializing_if = "BTreeMap::is_empty")]
+        input_versions: BTreeMap<String, String>,
         #[serde(default)]
         group_by: Vec<String>,
         /// True for the table of an analysis's summary (`summary_output`).
@@ -77,7 +83,37 @@ pub struct Manifest {
     pub columns: Vec<ColumnInfo>,
     /// UTC, RFC 3339.
     pub created: String,
+    /// The identity of this stored table: assigned once when it is stored (an import, an
+    /// analysis output, an overwrite) and never reused, so that a table stored later under
+    /// the same name has another. It names one stored version, not the values: the same
+    /// values stored twice get two. Absent in workspaces written before versions were kept.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub version: Option<String>,
     pub provenance: Provenance,
+}
+
+/// A new dataset version: 128 bits as 32 hex digits, hashed from the clock, this process's
+/// id, a count of this process's versions and the standard library's random per-process hash
+/// keys, so that no two stored tables share one, in one daemon or across restarts. Made
+/// once per stored table; its cost does not grow with the table.
+pub fn new_version() -> String {
+    use std::hash::{BuildHasher, Hasher};
+    use std::sync::atomic::{AtomicU64, Ordering};
+    static VERSIONS_MADE: AtomicU64 = AtomicU64::new(0);
+    let count = VERSIONS_MADE.fetch_add(1, Ordering::Relaxed);
+    let nanos = std::time::SystemTime::now()
+        .duration_since(std::time::UNIX_EPOCH)
+        .map(|elapsed| elapsed.as_nanos())
+        .unwrap_or(0);
+    let half = |which: u8| {
+        let mut hasher = std::collections::hash_map::RandomState::new().build_hasher();
+        hasher.write_u8(which);
+        hasher.write_u128(nanos);
+        hasher.write_u32(std::process::id());
+        hasher.write_u64(count);
+        hasher.finish()
+    };
+    format!("{:016x}{:016x}", half(0), half(1))
 }
 
 /// A stored column's name and type, as manifests keep it and clients see it.

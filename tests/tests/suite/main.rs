@@ -15,6 +15,7 @@
 mod browser_client;
 mod carriers_chain;
 mod cli;
+mod data_safety;
 mod end_to_end;
 mod figure_errors;
 mod import_dialects;

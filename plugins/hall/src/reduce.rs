@@ -257,8 +257,8 @@ pub use contract::{
 pub use error::{ReadingProblem, ReduceError, LARGEST_READING_MAGNITUDE, SMALLEST_CURRENT_A};
 pub use row::FlagSet;
 use row::{
-    build_row, draft_row, FieldCells, ResolvedCalibration, ResolvedSample, RowDraft, RowRecord, SlotsSeen,
-    TemperatureGroup, ZeroFieldCells,
+    build_row, draft_row, DriftTerms, FieldCells, ReadingTemperatures, ResolvedCalibration, ResolvedSample, RowDraft,
+    RowRecord, SlotsSeen, TemperatureGroup, ZeroFieldCells,
 };
 use table::SampleReduction;
 pub use table::{FloatColumn, ReductionTable};
@@ -635,7 +635,7 @@ fn reduce_source<S: ReadingSource>(
         // The records are finished: give their memory back before the next sample's.
         sample.records = Vec::new();
         row_warnings.append(&mut sample.row_warnings);
-        warnings.extend(sample.warning.take());
+        warnings.append(&mut sample.warnings);
     }
     for sample in reduced {
         calibrations.push(sample.calibration);
@@ -824,6 +824,7 @@ fn reduce_sample(
                 seen,
                 settings,
                 None,
+                None,
                 &mut final_rows,
                 &mut warnings_of_group,
             );
@@ -842,18 +843,24 @@ fn reduce_sample(
     // next pass's slopes. The corrected copy of a group's readings lives in a buffer
     // reused from group to group.
     let mut corrections: Vec<Option<DriftSlopes>> = vec![None; group_count];
+    // The largest change a refused correction would have made to a reading, per group.
+    let mut refused_corrections: Vec<f64> = vec![0.0; group_count];
     let mut corrected: Vec<Prepared> = Vec::new();
+    let mut slopes: Vec<Option<DriftSlopes>> = Vec::new();
     for pass in 0..DRIFT_CORRECTION_PASSES {
-        let slopes = drift_slopes(&drafts);
+        slopes = drift_slopes(&drafts);
         let mut any = false;
         for (index, temperature_range) in temperature_ranges.iter().enumerate() {
             let Some(group_slopes) = slopes[index].filter(|_| drifted[index]) else {
                 continue;
             };
             let readings = &sample_readings[temperature_range.clone()];
-            if largest_drift_correction(readings, group_slopes, sample.geometry) > LARGEST_DRIFT_CORRECTION {
-                // Beyond first order (a Hall coefficient crossing zero, a transition):
-                // the group stays as measured, with its readings' spread in u(T).
+            let largest = largest_drift_correction(readings, group_slopes, sample.geometry);
+            if largest > LARGEST_DRIFT_CORRECTION {
+                // Beyond first order (a Hall coefficient crossing zero, a transition, a
+                // steep freeze-out): the group stays as measured, with its readings' spread
+                // in u(T) and their temperature offsets in its quantities' uncertainties.
+                refused_corrections[index] = refused_corrections[index].max(largest);
                 continue;
             }
             any = true;
@@ -870,6 +877,21 @@ fn reduce_sample(
         }
     }
     drop(drafts);
+    // A drifting group left as measured takes its own slopes of the last pass into its
+    // uncertainties or, without any, the steepest of the series (the conservative choice).
+    let steepest_slopes = slopes
+        .iter()
+        .flatten()
+        .fold(None, |steepest: Option<DriftSlopes>, group| {
+            let steeper = |a: f64, b: f64| if b.abs() > a.abs() { b } else { a };
+            Some(match steepest {
+                Some(steepest) => DriftSlopes {
+                    resistance_per_k: steeper(steepest.resistance_per_k, group.resistance_per_k),
+                    hall_per_k: steeper(steepest.hall_per_k, group.hall_per_k),
+                },
+                None => *group,
+            })
+        });
     // The rows, group after group: a drifting group reduced in full once, corrected with its
     // last slopes or as measured. Without one (a series at steady temperatures), the first
     // pass's rows are the sample's rows as they stand.
@@ -893,12 +915,23 @@ fn reduce_sample(
                 None => &mut as_measured[as_measured_start..as_measured_start + temperature_range.len()],
             };
             as_measured_start += temperature_range.len();
+            let uncorrected_drift = corrections[index].is_none().then(|| match slopes[index] {
+                Some(own) => UncorrectedDrift {
+                    slopes: Some(own),
+                    borrowed: false,
+                },
+                None => UncorrectedDrift {
+                    slopes: steepest_slopes,
+                    borrowed: true,
+                },
+            });
             reduce_temperature_group(
                 readings,
                 sample,
                 seen,
                 settings,
                 corrections[index],
+                uncorrected_drift,
                 &mut records,
                 &mut row_warnings,
             );
@@ -907,12 +940,24 @@ fn reduce_sample(
     } else {
         (final_rows, final_warnings.into_iter().flatten().collect())
     };
-    let warning = (largest_zero_field_t > STRICT_ZERO_FIELD_T).then(|| {
-        format!(
-            "sample {:?}: readings with |B| up to {:.4} T were taken as zero field (zero_field_tolerance_T = {} T), a remanent field at a nominal zero; if they were meant as a Hall field, lower zero_field_tolerance_T",
-            sample.name, largest_zero_field_t, settings.zero_field_tolerance_t
-        )
-    });
+    let mut warnings: Vec<String> = (largest_zero_field_t > STRICT_ZERO_FIELD_T)
+        .then(|| {
+            format!(
+                "sample {:?}: readings with |B| up to {:.4} T were taken as zero field (zero_field_tolerance_T = {} T), a remanent field at a nominal zero; if they were meant as a Hall field, lower zero_field_tolerance_T",
+                sample.name, largest_zero_field_t, settings.zero_field_tolerance_t
+            )
+        })
+        .into_iter()
+        .collect();
+    warnings.extend(uncorrected_drift_warning(
+        sample.name,
+        &records,
+        &refused_corrections,
+        &slopes,
+        &drifted,
+        &corrections,
+        steepest_slopes.is_some(),
+    ));
     // The sample's voltage noise pooled over every row of its series (JCGM 100:2008,
     // 4.2.8): one voltmeter, so one noise, for the rows with too little evidence of
     // their own.
@@ -927,7 +972,7 @@ fn reduce_sample(
         series_evidence: evidence,
         calibration_resolved: sample.calibration,
         row_warnings,
-        warning,
+        warnings,
         calibration: CalibrationUsed {
             sample: sample.name.to_owned(),
             thickness_rel: sample.calibration.thickness_rel,
@@ -1430,6 +1475,113 @@ fn largest_drift_correction(readings: &[Prepared], slopes: DriftSlopes, geometry
         .fold(0.0, f64::max)
 }
 
+/// How a drifting group left as measured enters its rows' uncertainties: the logarithmic
+/// temperature slopes its readings' offsets are multiplied by (`None` when the series has
+/// none at all), and whether they are borrowed (the series' steepest, for a group without
+/// slopes of its own).
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct UncorrectedDrift {
+    slopes: Option<DriftSlopes>,
+    borrowed: bool,
+}
+
+impl UncorrectedDrift {
+    /// The relative standard uncertainties a row takes from the temperatures of its
+    /// readings (GUM, JCGM 100:2008, 5.1.2 and 5.1.3: a sensitivity coefficient times an
+    /// input's standard uncertainty, a Type B evaluation). The input is the offset
+    /// T_R - T of the mean temperature of the resistance readings from the row's temperature
+    /// T, and T_H - T of the Hall readings: left as measured, R_s refers to T_R and R_Hs to
+    /// T_H. Its standard uncertainty is taken as the offset's magnitude, as the correction
+    /// that would remove it is not trusted. The sensitivities are the slopes:
+    /// s_R = d ln R_s / dT for R_s and rho; s_H = d ln |R_Hs| / dT (in magnitude) for R_xy,
+    /// R_Hs, R_H, n_s and n; for mu_H = |R_Hs| / R_s and the drift mobility both offsets at
+    /// once, s_H (T_H - T) - s_R (T_R - T), the two being one drift (fully correlated); with
+    /// borrowed slopes, whose signs need not be the group's, |s_H (T_H - T)| + |s_R (T_R - T)|.
+    fn relative_uncertainties(self, row_k: f64, temperatures: ReadingTemperatures) -> DriftTerms {
+        let Some(slopes) = self.slopes else {
+            return DriftTerms::default();
+        };
+        let resistance = slopes.resistance_per_k * temperatures.resistance_k.map_or(0.0, |mean_k| mean_k - row_k);
+        let hall = slopes.hall_per_k * temperatures.hall_k.map_or(0.0, |mean_k| mean_k - row_k);
+        DriftTerms {
+            resistance: resistance.abs(),
+            hall: hall.abs(),
+            mobility: if self.borrowed {
+                resistance.abs() + hall.abs()
+            } else {
+                (hall - resistance).abs()
+            },
+        }
+    }
+}
+
+/// The sample's warning about its drifting groups left as measured: how many rows, at which
+/// temperatures, the largest correction refused, how their uncertainties account for it,
+/// and what to measure instead. `None` when every drifting group was corrected.
+fn uncorrected_drift_warning(
+    sample: &str,
+    records: &[RowRecord],
+    refused_corrections: &[f64],
+    slopes: &[Option<DriftSlopes>],
+    drifted: &[bool],
+    corrections: &[Option<DriftSlopes>],
+    series_has_slopes: bool,
+) -> Option<String> {
+    let uncorrected: Vec<&RowRecord> = records
+        .iter()
+        .filter(|record| record.flags.contains(flags::DRIFT_UNCORRECTED))
+        .collect();
+    let (coldest, warmest) = uncorrected
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(low, high), row| {
+            (low.min(row.temperature_k), high.max(row.temperature_k))
+        });
+    let widest_spread_k = uncorrected
+        .iter()
+        .map(|row| row.temperature_spread_k)
+        .fold(0.0, f64::max);
+    let first = uncorrected.first()?;
+    let at = if coldest == warmest {
+        format!("at {:.3} K", first.temperature_k)
+    } else {
+        format!("at {coldest:.3} to {warmest:.3} K")
+    };
+    let left = |index: usize| drifted[index] && corrections[index].is_none();
+    let largest_refused = (0..drifted.len())
+        .filter(|index| left(*index))
+        .map(|index| refused_corrections[index])
+        .fold(0.0, f64::max);
+    let without_slopes = (0..drifted.len())
+        .filter(|index| left(*index) && slopes[*index].is_none())
+        .count();
+    let mut reasons = Vec::new();
+    if largest_refused > 0.0 {
+        reasons.push(format!(
+            "correcting them would change a reading by up to {:.1} %, more than the {:.0} % a first-order correction is trusted with",
+            100.0 * largest_refused,
+            100.0 * LARGEST_DRIFT_CORRECTION
+        ));
+    }
+    if without_slopes > 0 {
+        reasons.push(format!(
+            "{without_slopes} temperature groups have too few neighbouring temperatures to take a slope from"
+        ));
+    }
+    let accounted = if without_slopes == 0 {
+        "their _unc_stat (and so _unc) includes each quantity's temperature slope times the offset of its readings' mean temperature from the row's"
+    } else if series_has_slopes {
+        "their _unc_stat (and so _unc) includes each quantity's temperature slope (the series' steepest where a group has none) times the offset of its readings' mean temperature from the row's"
+    } else {
+        "the series has no temperature slope, so their uncertainties do not include the drift beyond temperature_K_unc"
+    };
+    Some(format!(
+        "sample {sample:?}: {} of {} rows {at} left as measured although their readings drift (over up to {widest_spread_k:.3} K; flag drift_uncorrected): {}; resistance and Hall readings taken at different temperatures are mixed in one row, and {accounted}; hold the stage steadier, take the resistance and Hall readings interleaved, or measure more temperatures so that the slopes are known",
+        uncorrected.len(),
+        records.len(),
+        reasons.join("; ")
+    ))
+}
+
 /// Brings every reading of a group to the group's mean temperature T: V x exp(s (T - T_k))
 /// with s the Hall slope on a Hall configuration and the resistance slope on the others.
 /// The offsets and the misalignment are scaled with it, which is harmless: both cancel in
@@ -1460,6 +1612,7 @@ fn reduce_temperature_group(
     seen: SlotsSeen,
     settings: &ReduceSettings,
     drift_correction: Option<DriftSlopes>,
+    uncorrected_drift: Option<UncorrectedDrift>,
     rows: &mut Vec<RowRecord>,
     warnings: &mut Vec<String>,
 ) -> f64 {
@@ -1469,6 +1622,7 @@ fn reduce_temperature_group(
         seen,
         settings,
         drift_correction,
+        uncorrected_drift,
         Detail::Full,
         |group, zero, field| {
             rows.push(build_row(group, zero, field, settings, warnings));
@@ -1494,6 +1648,7 @@ fn draft_temperature_group(
         seen,
         settings,
         drift_correction,
+        None,
         Detail::Values,
         |group, zero, field| {
             draft = Some(draft_row(group, zero, field));
@@ -1516,6 +1671,7 @@ fn walk_temperature_group(
     seen: SlotsSeen,
     settings: &ReduceSettings,
     drift_correction: Option<DriftSlopes>,
+    uncorrected_drift: Option<UncorrectedDrift>,
     detail: Detail,
     mut row: impl FnMut(&TemperatureGroup<'_>, &ZeroFieldCells, Option<&FieldCells>) -> bool,
 ) -> f64 {
@@ -1551,6 +1707,7 @@ fn walk_temperature_group(
         temperature_spread_k,
         temperature_reading_unc_k,
         drift_corrected: drift_correction.is_some(),
+        uncorrected_drift,
         seen,
         assume_symmetric: settings.assume_symmetric_sample,
     };
@@ -1561,9 +1718,16 @@ fn walk_temperature_group(
     let largest_zero_field_t = zero_readings.last().map_or(0.0, |reading| reading.field_t.abs());
 
     zero_readings.sort_unstable_by_key(|reading| cell_key(reading, false));
+    // Only a drifting group left as measured asks where its readings' temperatures lie:
+    // a steady or corrected group does no work per reading for it.
+    let mean_temperatures = |readings: &[Prepared]| match uncorrected_drift {
+        Some(_) => ReadingTemperatures::of(readings, sample.geometry),
+        None => ReadingTemperatures::default(),
+    };
     let mut zero = ZeroFieldCells {
         cells: [None; MAX_SLOTS],
         count: zero_readings.len(),
+        mean_temperatures: mean_temperatures(zero_readings),
     };
     for range in runs_by_key(zero_readings, |reading| reading.slot) {
         let slot = zero_readings[range.start].slot as usize;
@@ -1587,7 +1751,8 @@ fn walk_temperature_group(
         // the readings as the full reduction does for the results to stay the same to the bit.
         cluster.sort_unstable_by_key(|reading| cell_key(reading, true));
         if wanted {
-            let field = summarize_field_cluster(cluster, summarize);
+            let mut field = summarize_field_cluster(cluster, summarize);
+            field.mean_temperatures = mean_temperatures(cluster);
             wanted = row(&group, &zero, Some(&field));
         }
     }
@@ -1620,5 +1785,6 @@ fn summarize_field_cluster(cluster: &[Prepared], summarize: impl Fn(&[Prepared])
         cells,
         field_t,
         count: cluster.len(),
+        mean_temperatures: ReadingTemperatures::default(),
     }
 }

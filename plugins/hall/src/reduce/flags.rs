@@ -13,7 +13,9 @@
 //! lab with other habits sets its own. The flags without a threshold (`missing_configurations`,
 //! `no_field_reversal`, `no_current_reversal`, `resistance_from_field_readings`,
 //! `no_field_data`, `nonpositive_resistance`) say what was not measured or cannot be;
-//! `assumed_symmetric` says a sheet resistance rests on the call's `assume_symmetric_sample`.
+//! `assumed_symmetric` says a sheet resistance rests on the call's `assume_symmetric_sample`;
+//! `drift_uncorrected` says the readings of a drifting stage were left at their own
+//! temperatures.
 
 /// R_A's (or R_B's) direct and reciprocal configurations differ by more than
 /// `reciprocity_tolerance` relative to their mean.
@@ -60,8 +62,16 @@ pub const NONPOSITIVE_RESISTANCE: &str = "nonpositive_resistance";
 /// 90-degree rotation, and its uncertainty does not include any asymmetry.
 pub const ASSUMED_SYMMETRIC: &str = "assumed_symmetric";
 
+/// The group's readings drift in temperature and were left as measured: the correction would
+/// change a reading by more than 10 %, or the series has no neighbouring temperatures to
+/// take a slope from. The resistance and Hall readings were taken at different temperatures,
+/// so the row mixes them; its statistical uncertainties include each quantity's
+/// sensitivity to temperature times the offset of its readings' mean temperature from the
+/// row's (the parent module's step 8).
+pub const DRIFT_UNCORRECTED: &str = "drift_uncorrected";
+
 /// Every flag, in the order a row lists them.
-pub const ALL: [&str; 12] = [
+pub const ALL: [&str; 13] = [
     RECIPROCITY,
     RESISTANCE_RATIO,
     HALL_INCONSISTENT,
@@ -74,10 +84,11 @@ pub const ALL: [&str; 12] = [
     NO_FIELD_DATA,
     NONPOSITIVE_RESISTANCE,
     ASSUMED_SYMMETRIC,
+    DRIFT_UNCORRECTED,
 ];
 
 /// One-line descriptions for a plugin's `describe` output, in the order of [`ALL`].
-pub const DESCRIPTIONS: [(&str, &str); 12] = [
+pub const DESCRIPTIONS: [(&str, &str); 13] = [
     (
         RECIPROCITY,
         "direct and reciprocal resistance configurations differ by more than reciprocity_tolerance",
@@ -119,5 +130,9 @@ pub const DESCRIPTIONS: [(&str, &str); 12] = [
     (
         ASSUMED_SYMMETRIC,
         "one of R_A and R_B measured: sheet resistance pi R / ln 2 under assume_symmetric_sample",
+    ),
+    (
+        DRIFT_UNCORRECTED,
+        "readings drift in temperature and were left as measured: _unc_stat includes their temperature offsets",
     ),
 ];

@@ -8,12 +8,14 @@ use mobilis_physics::constants::ELEMENTARY_CHARGE_C;
 use mobilis_physics::contacts::Configuration;
 use mobilis_physics::van_der_pauw;
 
+use super::cells::Prepared;
 use super::cells::{
     combine_redundant, mean_with_standard_error, quadrature, quadrature_of, quadrature_sum, redundancy_evidence,
     CellSummary, Detail, Estimate, NoiseEvidence, MAX_SLOTS,
 };
 use super::contract::{Geometry, ReduceSettings};
 use super::flags;
+use super::UncorrectedDrift;
 
 /// The calibrations of one sample as resolved from the sheet, the call and the defaults:
 /// relative standard uncertainties of the scales, the thermometer's accuracy in K.
@@ -112,6 +114,9 @@ pub(super) struct RowRecord {
     /// 0: no carrier type, 1: "n", 2: "p".
     pub carrier: u8,
     pub drift_corrected: bool,
+    /// What the temperatures of the readings of a drifting group left as measured add to the
+    /// statistical parts (zero otherwise).
+    drift_relative: DriftTerms,
 }
 
 impl RowRecord {
@@ -184,6 +189,55 @@ impl FlagSet {
             .enumerate()
             .filter(move |(index, _)| self.0 & (1 << index) != 0)
             .map(|(_, flag)| *flag)
+    }
+}
+
+/// The relative standard uncertainties a row's quantities take from the temperatures of its
+/// readings when a drifting group is left as measured (`UncorrectedDrift`): of R_s and rho;
+/// of R_xy, R_Hs, R_H, n_s and n; of mu_H and the drift mobility. Zero for other rows.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub(super) struct DriftTerms {
+    pub resistance: f64,
+    pub hall: f64,
+    pub mobility: f64,
+}
+
+impl DriftTerms {
+    fn of(self, quantity: Quantity) -> f64 {
+        match quantity {
+            Quantity::SheetResistance | Quantity::Resistivity => self.resistance,
+            Quantity::HallResistance
+            | Quantity::SheetHallCoefficient
+            | Quantity::HallCoefficient
+            | Quantity::SheetDensity
+            | Quantity::Density => self.hall,
+            Quantity::HallMobility | Quantity::DriftMobility => self.mobility,
+        }
+    }
+}
+
+/// The mean temperatures of the resistance and of the Hall readings among some readings of
+/// one temperature group (`None` for a kind without readings there): what a row of a
+/// drifting group left as measured refers to.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub(super) struct ReadingTemperatures {
+    pub resistance_k: Option<f64>,
+    pub hall_k: Option<f64>,
+}
+
+impl ReadingTemperatures {
+    pub fn of(readings: &[Prepared], geometry: Geometry) -> Self {
+        let mut sums = [(0.0, 0usize); 2];
+        for reading in readings {
+            let sum = &mut sums[usize::from(is_hall_slot(geometry, reading.slot as usize))];
+            sum.0 += reading.temperature_k;
+            sum.1 += 1;
+        }
+        let mean = |(sum, count): (f64, usize)| (count > 0).then(|| sum / count as f64);
+        ReadingTemperatures {
+            resistance_k: mean(sums[0]),
+            hall_k: mean(sums[1]),
+        }
     }
 }
 
@@ -262,7 +316,12 @@ impl RowRecord {
             .map(|scale| scale * estimate.noise_coefficient)
             .or_else(|| series.noise_scale.map(|scale| scale * estimate.noise_coefficient))
             .or(estimate.standard_error)
-            .map(|u| u.max(ARITHMETIC_RELATIVE_RESOLUTION * estimate.value.abs()));
+            .map(|u| u.max(ARITHMETIC_RELATIVE_RESOLUTION * estimate.value.abs()))
+            .map(|u| match self.drift_relative.of(quantity) {
+                // Specific to the row's readings, so statistical (never common to the series).
+                drift if drift > 0.0 => quadrature_sum(u, drift * estimate.value.abs()),
+                _ => u,
+            });
         let systematic_value = series.systematic_relative[quantity as usize] * estimate.value.abs();
         let systematic = Some(systematic_value);
         let total = statistical.map(|stat| quadrature_sum(stat, systematic_value));
@@ -321,6 +380,8 @@ fn layout(geometry: Geometry) -> &'static Layout {
 pub(super) struct ZeroFieldCells {
     pub cells: [Option<CellSummary>; MAX_SLOTS],
     pub count: usize,
+    /// Filled for a drifting group left as measured only.
+    pub mean_temperatures: ReadingTemperatures,
 }
 
 /// The cells of one field magnitude, by slot and field sign (`[+B, -B]`).
@@ -330,6 +391,8 @@ pub(super) struct FieldCells {
     /// that (R(+B1) - R(-B2)) / 2 = R_Hs (B1 + B2) / 2 is divided by the right field.
     pub field_t: f64,
     pub count: usize,
+    /// Filled for a drifting group left as measured only.
+    pub mean_temperatures: ReadingTemperatures,
 }
 
 /// The temperature group a row belongs to.
@@ -342,6 +405,9 @@ pub(super) struct TemperatureGroup<'a> {
     pub temperature_reading_unc_k: f64,
     /// Whether the readings were brought to the mean temperature (second pass).
     pub drift_corrected: bool,
+    /// For a drifting group left as measured: how its readings' temperatures enter its
+    /// rows' uncertainties.
+    pub uncorrected_drift: Option<UncorrectedDrift>,
     /// The configurations the sample has readings of anywhere in its series.
     pub seen: SlotsSeen,
     /// `assume_symmetric_sample`: one van der Pauw family gives the sheet resistance.
@@ -609,6 +675,22 @@ pub(super) fn build_row(
         drift_mobility,
     ];
 
+    // A drifting group left as measured: its resistance readings (at zero field, or the
+    // field readings they came from) and its Hall readings refer to their own temperatures.
+    let drift_relative = group.uncorrected_drift.map_or(DriftTerms::default(), |drift| {
+        raised.raise(flags::DRIFT_UNCORRECTED);
+        let field_temperatures = field.map_or(ReadingTemperatures::default(), |cells| cells.mean_temperatures);
+        let temperatures = ReadingTemperatures {
+            resistance_k: if from_field {
+                field_temperatures.resistance_k
+            } else {
+                zero.mean_temperatures.resistance_k
+            },
+            hall_k: field_temperatures.hall_k,
+        };
+        drift.relative_uncertainties(group.temperature_k, temperatures)
+    });
+
     gaps.add(hall.gaps);
     let flags = raised.0;
     if let Some(warning) = grouping_warning(group, field, flags, gaps, settings) {
@@ -634,6 +716,7 @@ pub(super) fn build_row(
             None => 0,
         },
         drift_corrected: group.drift_corrected,
+        drift_relative,
     };
     record.set_optional(optional::FIELD, field_t);
     record.set_optional(optional::RESISTANCE_A, resistance.resistance_a_ohm);

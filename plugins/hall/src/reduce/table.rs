@@ -315,7 +315,8 @@ pub(super) struct SampleReduction {
     pub(super) calibration_resolved: ResolvedCalibration,
     /// Warnings about single rows, in row order (the caller caps them).
     pub(super) row_warnings: Vec<String>,
-    /// The sample's warning about readings taken as zero field, if any.
-    pub(super) warning: Option<String>,
+    /// The sample's own warnings: readings taken as zero field, drifting groups left as
+    /// measured.
+    pub(super) warnings: Vec<String>,
     pub(super) calibration: CalibrationUsed,
 }

@@ -116,7 +116,12 @@
 //!    straight line). The slopes come from the previous pass, whose values the drift
 //!    biased a little, so the correction is made twice. What remains is second order. A
 //!    group whose correction would change a reading by more than 10 % (a Hall coefficient
-//!    crossing zero, a transition) is left as measured. The row says `drift_corrected`.
+//!    crossing zero, a transition, a steep freeze-out) is left as measured. The row says
+//!    `drift_corrected`. A drifting group left as measured (refused, or without slopes) is
+//!    flagged `drift_uncorrected`: its resistance readings and its Hall readings refer to
+//!    their own mean temperatures, so each quantity's `_unc_stat` takes its slope times the
+//!    offset of those temperatures from the row's (the series' steepest slopes for a group
+//!    without its own), and the sample's warning names the rows.
 //!
 //! # The uncertainty budget
 //!

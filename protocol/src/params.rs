@@ -298,6 +298,12 @@ pub struct RunParams {
     /// column(s) of the first input to group by
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub group_by: Option<GroupBy>,
+    /// for numeric group_by columns, the widest gap between sorted values that stays within
+    /// one group, by column name: {"temperature_K": 0.5} keeps a logged temperature that
+    /// jitters around its setpoint in one group per setpoint (keyed by the group's mean);
+    /// a column not named here groups by exact values
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub group_tolerance: Option<BTreeMap<String, f64>>,
     /// replace an existing output dataset (never an input of the call)
     #[serde(default, skip_serializing_if = "is_false")]
     pub overwrite: bool,

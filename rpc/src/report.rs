@@ -446,6 +446,7 @@ fn provenance_html(provenance: &Provenance, stored_version: impl Fn(&str) -> Opt
             inputs,
             input_versions,
             group_by,
+            group_tolerance,
             summary,
             ..
         } => {
@@ -476,7 +477,14 @@ fn provenance_html(provenance: &Provenance, stored_version: impl Fn(&str) -> Opt
                 inputs.join(", ")
             );
             if !group_by.is_empty() {
-                let _ = write!(text, ", run per {}", escape(&group_by.join(", ")));
+                let columns: Vec<String> = group_by
+                    .iter()
+                    .map(|column| match group_tolerance.get(column) {
+                        Some(tolerance) => format!("{column} (sorted values up to {tolerance} apart in one group)"),
+                        None => column.clone(),
+                    })
+                    .collect();
+                let _ = write!(text, ", run per {}", escape(&columns.join(", ")));
             }
             let params = serde_json::to_string(params).unwrap_or_default();
             let _ = write!(text, ". Parameters: <code>{}</code>.", escape(&params));
@@ -871,6 +879,7 @@ mod tests {
             inputs: [("hall".to_owned(), "w-hall".to_owned())].into_iter().collect(),
             input_versions: [("hall".to_owned(), "read".to_owned())].into_iter().collect(),
             group_by: Vec::new(),
+            group_tolerance: Default::default(),
             summary: false,
             run_summary: Value::Null,
             warnings: Vec::new(),

@@ -50,6 +50,45 @@ fn group_columns(group_by: &Option<GroupBy>) -> Vec<String> {
     group_by.as_ref().map(GroupBy::columns).unwrap_or_default()
 }
 
+/// The `group_tolerance` of each group column, in the order of `columns`.
+fn group_tolerances(run: &RunParams, columns: &[String]) -> Vec<Option<f64>> {
+    columns
+        .iter()
+        .map(|column| {
+            run.group_tolerance
+                .as_ref()
+                .and_then(|tolerances| tolerances.get(column).copied())
+        })
+        .collect()
+}
+
+/// Refuses a `group_tolerance` that names a column the run does not group by, or a
+/// tolerance that is not a positive finite number.
+fn check_group_tolerance(run: &RunParams) -> ServiceResult<()> {
+    let columns = group_columns(&run.group_by);
+    for (column, tolerance) in run.group_tolerance.iter().flatten() {
+        if !columns.contains(column) {
+            return Err(ServiceError::invalid_params(format!(
+                "group_tolerance names `{column}`, which is not a group_by column"
+            ))
+            .with_help(if columns.is_empty() {
+                format!("add group_by [\"{column}\"], or leave group_tolerance out")
+            } else {
+                format!("the run groups by {}; add `{column}` to group_by", columns.join(", "))
+            })
+            .with_param("group_tolerance"));
+        }
+        if !(tolerance.is_finite() && *tolerance > 0.0) {
+            return Err(ServiceError::invalid_params(format!(
+                "group_tolerance of `{column}` must be a positive number, got {tolerance}"
+            ))
+            .with_help("the widest gap between sorted values that stays within one group, in the column's unit (0.5 for a temperature in K)")
+            .with_param("group_tolerance"));
+        }
+    }
+    Ok(())
+}
+
 /// A running call registered under its `call_id`; unregistered, with its end announced,
 /// when dropped, so that no return path can leave a stale entry behind.
 struct RegisteredCall<'a> {
@@ -778,6 +817,7 @@ impl Service {
             }
             refuse_writing_onto_input(run, name, "summary_output")?;
         }
+        check_group_tolerance(run)?;
         self.check_roles(run, &entry.declaration)?;
         Ok(params)
     }
@@ -819,6 +859,7 @@ impl Service {
             inputs: run.inputs.clone(),
             input_versions: input_versions.clone(),
             group_by: group_columns.clone(),
+            group_tolerance: run.group_tolerance.clone().unwrap_or_default(),
             summary: of_summary,
             // The output keeps the summary as answered; the summary table holds it as rows.
             run_summary: if of_summary { Value::Null } else { summary.clone() },
@@ -893,24 +934,23 @@ impl Service {
         let (_, primary) = inputs
             .first()
             .ok_or_else(|| ServiceError::invalid_params("group_by needs at least one input table"))?;
-        let groups = group_rows(primary, group_columns)?;
+        let tolerances = group_tolerances(run, group_columns);
+        let groups = group_rows(primary, group_columns, &tolerances)?;
+        // Exact values of a logged float column split it row by row: said when a group fails.
+        let jittery = groups::looks_jittery(primary, group_columns, &tolerances, &groups);
         let mut combined: Option<DataFrame> = None;
         let mut group_summaries = Vec::with_capacity(groups.len());
         let mut warnings = Vec::new();
         let group_count = groups.len();
-        for (group_index, (key, rows)) in groups.into_iter().enumerate() {
+        for (group_index, group) in groups.iter().enumerate() {
+            let (key, rows) = (&group.key, &group.rows);
             if control.cancelled.load(Ordering::Relaxed) {
                 return Err(ServiceError::new(
                     ErrorKind::Cancelled,
                     format!("{}: cancelled by the client", run.analysis),
                 ));
             }
-            let label: Vec<String> = group_columns
-                .iter()
-                .zip(&key)
-                .map(|(c, v)| format!("{c}={v}"))
-                .collect();
-            let label = label.join(", ");
+            let label = group.label(group_columns);
             control.enter(whole.part(group_index, group_count, &format!("[{label}]")));
             let mut group_inputs = Vec::with_capacity(inputs.len());
             for (index, (role, frame)) in inputs.iter().enumerate() {
@@ -920,7 +960,7 @@ impl Service {
                 } else if has_keys {
                     frame.take(&IdxCa::from_vec(
                         PlSmallStr::from_static("rows"),
-                        rows_matching(frame, group_columns, &key),
+                        rows_matching(frame, group_columns, &tolerances, group),
                     ))
                 } else {
                     Ok(frame.clone())
@@ -931,9 +971,18 @@ impl Service {
             let result = self
                 .host
                 .invoke(&run.analysis, params, &group_inputs, control)
-                .map_err(|f| invoke_error(&format!("{} [{label}]", run.analysis), f))?;
+                .map_err(|f| {
+                    let error = invoke_error(&format!("{} [{label}]", run.analysis), f);
+                    match &jittery {
+                        Some(column) if matches!(error.kind, ErrorKind::InvalidData | ErrorKind::NumericalFailure) => error.with_help(format!(
+                            "group_by `{column}` made {group_count} groups of {} rows, most of them a single row: its values differ from row to row, as a logged reading does; give group_tolerance {{\"{column}\": T}}, T wider than the gaps between the values of one setpoint and narrower than the step between setpoints (0.5 for temperatures in K a few kelvin apart), so that each setpoint is one group",
+                            primary.height()
+                        )),
+                        _ => error,
+                    }
+                })?;
             let mut table = result.table;
-            for (position, (column, value)) in group_columns.iter().zip(&key).enumerate() {
+            for (position, (column, value)) in group_columns.iter().zip(key).enumerate() {
                 if table.column(column).is_err() {
                     let constant = Series::from_any_values(
                         PlSmallStr::from_str(column),
@@ -949,7 +998,7 @@ impl Service {
             warnings.extend(result.warnings.iter().map(|w| format!("[{label}] {w}")));
             let group_object: serde_json::Map<String, Value> = group_columns
                 .iter()
-                .zip(&key)
+                .zip(key)
                 .map(|(c, v)| (c.clone(), cell_to_json(v.clone())))
                 .collect();
             group_summaries.push(GroupSummary {

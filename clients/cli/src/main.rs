@@ -112,6 +112,11 @@ enum Command {
         /// (repeatable: sample, temperature_K); the outputs are stacked, one summary per group.
         #[arg(long = "group-by", value_name = "COLUMN")]
         group_by: Vec<String>,
+        /// Group a numeric --group-by column by clusters of its values instead of exact values:
+        /// sorted values no further apart than TOLERANCE share a group (repeatable;
+        /// temperature_K=0.5 keeps a logged temperature in one group per setpoint).
+        #[arg(long = "group-tolerance", value_name = "COLUMN=TOLERANCE", value_parser = parse_group_tolerance)]
+        group_tolerance: Vec<(String, f64)>,
         /// Replace a stored output dataset of the same name (refused otherwise).
         #[arg(long)]
         overwrite: bool,
@@ -248,6 +253,14 @@ fn parse_key_value(text: &str) -> Result<(String, String), String> {
     text.split_once('=')
         .map(|(k, v)| (k.trim().to_owned(), v.trim().to_owned()))
         .ok_or_else(|| format!("expected key=value, got `{text}`"))
+}
+
+fn parse_group_tolerance(text: &str) -> Result<(String, f64), String> {
+    let (column, tolerance) = parse_key_value(text)?;
+    let tolerance: f64 = tolerance
+        .parse()
+        .map_err(|_| format!("expected COLUMN=TOLERANCE with a number, got `{text}`"))?;
+    Ok((column, tolerance))
 }
 
 /// The units `--unit COLUMN=UNIT` accepts, per quantity, as the unit table lists them.
@@ -406,6 +419,7 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
             output,
             params,
             group_by,
+            group_tolerance,
             overwrite,
             summary_output,
             deadline,
@@ -418,6 +432,7 @@ async fn run(cli: Cli) -> anyhow::Result<()> {
                 params: Some(params),
                 output: output.clone(),
                 group_by: (!group_by.is_empty()).then(|| GroupBy::Many(group_by.clone())),
+                group_tolerance: (!group_tolerance.is_empty()).then(|| group_tolerance.iter().cloned().collect()),
                 overwrite: *overwrite,
                 call_id: None,
                 summary_output: summary_output.clone(),

@@ -335,6 +335,28 @@ pub fn sweeps_by_temperature(
     Ok(sweeps)
 }
 
+/// A `group_tolerance` for the daemon's grouping that splits the table where the sweeps
+/// split: half the narrowest gap between two sweeps, which leaves the most room for a
+/// logged temperature's jitter; the widest gap a sweep may hold when that half is smaller
+/// and the gap allows it (a relative tolerance allows wider gaps in a warm sweep).
+fn separating_tolerance_k(sweeps: &[SweepTable], grouping: &TemperatureGrouping) -> f64 {
+    let spans: Vec<(f64, f64)> = sweeps.iter().filter_map(|sweep| sweep.temperature_range_k).collect();
+    let widest_within = spans
+        .iter()
+        .map(|&(_, high)| grouping.allowed_gap_k(high))
+        .fold(0.0, f64::max);
+    let narrowest_between = spans
+        .windows(2)
+        .map(|pair| pair[1].0 - pair[0].1)
+        .fold(f64::INFINITY, f64::min);
+    let half = narrowest_between / 2.0;
+    if half < widest_within && widest_within < narrowest_between {
+        widest_within
+    } else {
+        half
+    }
+}
+
 /// The single sweep of a table; refuses a table holding several samples or temperatures.
 pub fn single_sweep(frame: &DataFrame, grouping: &TemperatureGrouping) -> Result<SweepTable, AnalysisError> {
     let mut sweeps = sweeps_by_temperature(frame, grouping)?;
@@ -345,9 +367,13 @@ pub fn single_sweep(frame: &DataFrame, grouping: &TemperatureGrouping) -> Result
             .map(|t| format!("{t:.4} K"))
             .collect();
         return Err(invalid(format!(
-            "the sweep table holds sweeps at {} (a gap between sorted temperatures wider than {} starts a new sweep); run with group_by [\"sample\", \"temperature_K\"] so that each call sees one temperature, or raise temperature_tolerance_K if they are one sweep",
+            "the sweep table holds sweeps at {} (a gap between sorted temperatures wider than {} starts a new sweep); run with group_by [\"sample\", \"temperature_K\"] and group_tolerance {{\"temperature_K\": {}}} so that each call sees one sweep however its logged temperature jitters (without group_tolerance each distinct value is a group of its own), or raise temperature_tolerance_K if they are one sweep",
             temperatures.join(", "),
-            grouping.describe()
+            grouping.describe(),
+            // Two significant digits, written as JSON would take it back.
+            format!("{:.1e}", separating_tolerance_k(&sweeps, grouping))
+                .parse::<f64>()
+                .expect("a formatted number parses")
         )));
     }
     Ok(sweeps.pop().expect("one sweep"))
@@ -375,10 +401,15 @@ mod tests {
         assert_eq!(sweeps[0].sample.as_deref(), Some("s"));
         // Point order within a sweep is kept.
         assert_eq!(sweeps[0].points[0].field_t, -1.0);
-        assert!(single_sweep(&frame, &TemperatureGrouping::default())
+        // The advice gives a group tolerance that splits the table where the sweeps split:
+        // half the 2.19 K between them.
+        let advice = single_sweep(&frame, &TemperatureGrouping::default())
             .unwrap_err()
-            .to_string()
-            .contains("group_by"));
+            .to_string();
+        assert!(
+            advice.contains(r#"group_by ["sample", "temperature_K"] and group_tolerance {"temperature_K": 1.1}"#),
+            "{advice}"
+        );
     }
 
     #[test]

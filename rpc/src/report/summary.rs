@@ -685,6 +685,7 @@ mod tests {
             inputs: [("hall".to_owned(), "w-hall".to_owned())].into_iter().collect(),
             input_versions: Default::default(),
             group_by: vec!["sample".into()],
+            group_tolerance: Default::default(),
             summary,
             run_summary,
             warnings: Vec::new(),

@@ -83,15 +83,124 @@ pub fn summary_table(summary: &RunSummary, group_columns: &[String]) -> ServiceR
     tables::frame_from_json_columns(&columns)
 }
 
-/// Row indices of each group, in order of first appearance, with the key values.
+/// One group of a run: its key (a value per group_by column), the range of values a
+/// column grouped with a tolerance spans in it, and its rows of the first input.
+#[derive(Debug, Clone, PartialEq)]
+pub(super) struct Group {
+    /// The exact value of each column; for a column grouped with a tolerance, the mean of
+    /// the group's values (what the output's column and the group's summary show).
+    pub key: Vec<AnyValue<'static>>,
+    /// For a column grouped with a tolerance, the lowest and highest value in the group.
+    pub spans: Vec<Option<(f64, f64)>>,
+    pub rows: Vec<IdxSize>,
+}
+
+impl Group {
+    /// `column=value` for each group column, as warnings and errors name the group; a
+    /// column grouped with a tolerance also shows the span of its values.
+    pub fn label(&self, columns: &[String]) -> String {
+        let parts: Vec<String> = columns
+            .iter()
+            .zip(&self.key)
+            .zip(&self.spans)
+            .map(|((column, value), span)| match (value, span) {
+                (AnyValue::Float64(mean), Some((low, high))) if low < high => format!(
+                    "{column}={} ({} to {})",
+                    format_number(*mean),
+                    format_number(*low),
+                    format_number(*high)
+                ),
+                (AnyValue::Float64(mean), Some(_)) => format!("{column}={}", format_number(*mean)),
+                _ => format!("{column}={value}"),
+            })
+            .collect();
+        parts.join(", ")
+    }
+}
+
+/// Four significant digits, trailing zeros dropped: a group's mean of logged values needs
+/// no more to be named.
+fn format_number(value: f64) -> String {
+    format!("{value:.3e}")
+        .parse::<f64>()
+        .map_or_else(|_| value.to_string(), |short| short.to_string())
+}
+
+/// The values of one group column: exact values, or (with a tolerance) the index of the
+/// cluster of sorted values each row falls in, with each cluster's mean and span.
+enum ColumnGrouping {
+    Exact(Series),
+    Clustered {
+        cluster_of_row: Vec<Option<usize>>,
+        clusters: Vec<Cluster>,
+    },
+}
+
+#[derive(Debug, Clone, Copy)]
+struct Cluster {
+    mean: f64,
+    low: f64,
+    high: f64,
+}
+
+/// Splits a numeric column's sorted values where two neighbours lie more than `tolerance`
+/// apart: a temperature logged around its setpoint stays one group however it jitters.
+/// Null and not-finite values are in no cluster (a group of their own, keyed null).
+fn cluster_values(values: &[Option<f64>], tolerance: f64) -> (Vec<Option<usize>>, Vec<Cluster>) {
+    let mut sorted: Vec<f64> = values.iter().flatten().copied().filter(|v| v.is_finite()).collect();
+    sorted.sort_unstable_by(f64::total_cmp);
+    // The first value of each cluster, in increasing order, and the clusters themselves.
+    let mut starts: Vec<f64> = Vec::new();
+    let mut clusters: Vec<Cluster> = Vec::new();
+    let mut sum = 0.0;
+    let mut count = 0usize;
+    for (index, &value) in sorted.iter().enumerate() {
+        if index > 0 && value - sorted[index - 1] > tolerance {
+            let last = clusters.last_mut().expect("a cluster is open");
+            last.mean = sum / count as f64;
+            sum = 0.0;
+            count = 0;
+        }
+        if index == 0 || value - sorted[index - 1] > tolerance {
+            starts.push(value);
+            clusters.push(Cluster {
+                mean: value,
+                low: value,
+                high: value,
+            });
+        }
+        let last = clusters.last_mut().expect("a cluster is open");
+        last.high = value;
+        sum += value;
+        count += 1;
+    }
+    if let Some(last) = clusters.last_mut() {
+        last.mean = sum / count as f64;
+    }
+    let cluster_of_row = values
+        .iter()
+        .map(|value| {
+            value
+                .filter(|v| v.is_finite())
+                .map(|v| starts.partition_point(|&start| start <= v) - 1)
+        })
+        .collect();
+    (cluster_of_row, clusters)
+}
+
+/// The groups of the first input, in order of first appearance. `tolerances` holds, for
+/// each group column, the widest gap between sorted values that stays within one group
+/// (`group_tolerance`), or `None` for grouping by exact values.
 pub(super) fn group_rows(
     frame: &DataFrame,
     columns: &[String],
-) -> ServiceResult<Vec<(Vec<AnyValue<'static>>, Vec<IdxSize>)>> {
-    let series: Vec<Series> = columns
+    tolerances: &[Option<f64>],
+) -> ServiceResult<Vec<Group>> {
+    let groupings: Vec<ColumnGrouping> = columns
         .iter()
-        .map(|name| {
-            frame
+        .zip(tolerances)
+        .map(|(name, tolerance)| {
+            let series = frame
                 .column(name)
                 .map(|c| c.as_materialized_series().clone())
                 .map_err(|_| {
@@ -102,43 +211,141 @@ pub(super) fn group_rows(
                     )
                     .with_help(format!("its columns are: {}", present.join(", ")))
                     .with_param("group_by")
-                })
+                })?;
+            let Some(tolerance) = tolerance else {
+                return Ok(ColumnGrouping::Exact(series));
+            };
+            if !series.dtype().is_primitive_numeric() {
+                return Err(ServiceError::new(
+                    ErrorKind::ColumnProblem,
+                    format!(
+                        "group_tolerance applies to numeric columns, and `{name}` holds {}",
+                        series.dtype()
+                    ),
+                )
+                .with_help(format!(
+                    "group `{name}` by its exact values (leave it out of group_tolerance)"
+                ))
+                .with_param("group_tolerance"));
+            }
+            let values = series
+                .cast(&DataType::Float64)
+                .map_err(|e| ServiceError::new(ErrorKind::ColumnProblem, e.to_string()))?;
+            let values: Vec<Option<f64>> = values.f64().expect("cast to f64").iter().collect();
+            let (cluster_of_row, clusters) = cluster_values(&values, *tolerance);
+            Ok(ColumnGrouping::Clustered {
+                cluster_of_row,
+                clusters,
+            })
         })
         .collect::<ServiceResult<_>>()?;
-    let mut order: Vec<(Vec<AnyValue<'static>>, Vec<IdxSize>)> = Vec::new();
+    let mut order: Vec<Group> = Vec::new();
     let mut index_of: HashMap<String, usize> = HashMap::new();
     for row in 0..frame.height() {
-        let key: Vec<AnyValue<'static>> = series
-            .iter()
-            .map(|s| s.get(row).expect("row in range").into_static())
-            .collect();
-        let text = format!("{key:?}");
+        let mut key: Vec<AnyValue<'static>> = Vec::with_capacity(groupings.len());
+        let mut spans = Vec::with_capacity(groupings.len());
+        let mut text = String::new();
+        for grouping in &groupings {
+            match grouping {
+                ColumnGrouping::Exact(series) => {
+                    let value = series.get(row).expect("row in range").into_static();
+                    text.push_str(&format!("{value:?}|"));
+                    key.push(value);
+                    spans.push(None);
+                }
+                ColumnGrouping::Clustered {
+                    cluster_of_row,
+                    clusters,
+                } => match cluster_of_row[row] {
+                    Some(index) => {
+                        let cluster = clusters[index];
+                        text.push_str(&format!("cluster {index}|"));
+                        key.push(AnyValue::Float64(cluster.mean));
+                        spans.push(Some((cluster.low, cluster.high)));
+                    }
+                    None => {
+                        text.push_str("null|");
+                        key.push(AnyValue::Null);
+                        spans.push(None);
+                    }
+                },
+            }
+        }
         match index_of.get(&text) {
-            Some(&position) => order[position].1.push(row as IdxSize),
+            Some(&position) => order[position].rows.push(row as IdxSize),
             None => {
                 index_of.insert(text, order.len());
-                order.push((key, vec![row as IdxSize]));
+                order.push(Group {
+                    key,
+                    spans,
+                    rows: vec![row as IdxSize],
+                });
             }
         }
     }
     Ok(order)
 }
 
-/// Rows of `frame` whose `columns` hold `key`: another input's share of one group.
-pub(super) fn rows_matching(frame: &DataFrame, columns: &[String], key: &[AnyValue<'static>]) -> Vec<IdxSize> {
+/// Rows of `frame` that belong to `group`: another input's share of one group. A column
+/// grouped exactly must hold the group's value; a column grouped with a tolerance, a value
+/// within the tolerance of the group's span.
+pub(super) fn rows_matching(
+    frame: &DataFrame,
+    columns: &[String],
+    tolerances: &[Option<f64>],
+    group: &Group,
+) -> Vec<IdxSize> {
     let series: Vec<&Series> = columns
         .iter()
         .map(|name| frame.column(name).expect("checked").as_materialized_series())
         .collect();
+    let numbers: Vec<Option<Series>> = series
+        .iter()
+        .zip(tolerances)
+        .map(|(s, tolerance)| tolerance.and_then(|_| s.cast(&DataType::Float64).ok()))
+        .collect();
     (0..frame.height())
         .filter(|&row| {
-            series
-                .iter()
-                .zip(key)
-                .all(|(s, k)| s.get(row).map(|v| v.into_static() == *k).unwrap_or(false))
+            (0..series.len()).all(
+                |column| match (&numbers[column], group.spans[column], tolerances[column]) {
+                    (Some(values), Some((low, high)), Some(tolerance)) => values
+                        .f64()
+                        .ok()
+                        .and_then(|values| values.get(row))
+                        .is_some_and(|value| value >= low - tolerance && value <= high + tolerance),
+                    _ => series[column]
+                        .get(row)
+                        .map(|value| value.into_static() == group.key[column])
+                        .unwrap_or(false),
+                },
+            )
         })
         .map(|row| row as IdxSize)
         .collect()
+}
+
+/// Whether a grouping looks like exact values of a logged, jittering quantity: a float
+/// column grouped exactly, and most groups a single row.
+pub(super) fn looks_jittery(
+    frame: &DataFrame,
+    columns: &[String],
+    tolerances: &[Option<f64>],
+    groups: &[Group],
+) -> Option<String> {
+    let singles = groups.iter().filter(|group| group.rows.len() == 1).count();
+    if groups.len() < 4 || 2 * singles < groups.len() {
+        return None;
+    }
+    columns
+        .iter()
+        .zip(tolerances)
+        .find(|(name, tolerance)| {
+            tolerance.is_none()
+                && frame
+                    .column(name)
+                    .is_ok_and(|column| matches!(column.dtype(), DataType::Float32 | DataType::Float64))
+        })
+        .map(|(name, _)| name.clone())
 }
 
 #[cfg(test)]
@@ -156,26 +363,26 @@ mod tests {
 
     #[test]
     fn groups_keep_the_order_of_first_appearance() {
-        let groups = group_rows(&frame(), &["sample".to_owned()]).unwrap();
+        let groups = group_rows(&frame(), &["sample".to_owned()], &[None]).unwrap();
         let keys: Vec<String> = groups
             .iter()
-            .map(|(key, _)| key[0].get_str().unwrap().to_owned())
+            .map(|group| group.key[0].get_str().unwrap().to_owned())
             .collect();
         assert_eq!(keys, ["b", "a", "c"]);
-        let rows: Vec<Vec<IdxSize>> = groups.into_iter().map(|(_, rows)| rows).collect();
+        let rows: Vec<Vec<IdxSize>> = groups.into_iter().map(|group| group.rows).collect();
         assert_eq!(rows, vec![vec![0, 2], vec![1, 4], vec![3]]);
     }
 
     #[test]
     fn several_group_columns_split_on_every_key() {
-        let groups = group_rows(&frame(), &["sample".to_owned(), "contact".to_owned()]).unwrap();
-        let rows: Vec<Vec<IdxSize>> = groups.into_iter().map(|(_, rows)| rows).collect();
+        let groups = group_rows(&frame(), &["sample".to_owned(), "contact".to_owned()], &[None, None]).unwrap();
+        let rows: Vec<Vec<IdxSize>> = groups.into_iter().map(|group| group.rows).collect();
         assert_eq!(rows, vec![vec![0], vec![1, 4], vec![2], vec![3]]);
     }
 
     #[test]
     fn a_missing_group_column_names_the_columns_there_are() {
-        let error = group_rows(&frame(), &["wafer".to_owned()]).unwrap_err();
+        let error = group_rows(&frame(), &["wafer".to_owned()], &[None]).unwrap_err();
         assert_eq!(error.kind, ErrorKind::ColumnProblem);
         assert_eq!(error.kind.code(), 4004);
         assert!(error.message.contains("`wafer`"), "{}", error.message);
@@ -185,16 +392,70 @@ mod tests {
 
     #[test]
     fn another_input_gives_the_rows_of_the_same_key() {
-        let groups = group_rows(&frame(), &["sample".to_owned()]).unwrap();
+        let groups = group_rows(&frame(), &["sample".to_owned()], &[None]).unwrap();
         let other = df!("sample" => ["a", "c", "a", "b"], "t" => [1.0, 2.0, 3.0, 4.0]).unwrap();
         let shares: Vec<Vec<IdxSize>> = groups
             .iter()
-            .map(|(key, _)| rows_matching(&other, &["sample".to_owned()], key))
+            .map(|group| rows_matching(&other, &["sample".to_owned()], &[None], group))
             .collect();
         assert_eq!(shares, vec![vec![3], vec![0, 2], vec![1]]);
         // A key the other input lacks gives it no rows.
         let none = df!("sample" => ["z"], "t" => [1.0]).unwrap();
-        assert!(rows_matching(&none, &["sample".to_owned()], &groups[0].0).is_empty());
+        assert!(rows_matching(&none, &["sample".to_owned()], &[None], &groups[0]).is_empty());
+    }
+
+    /// A field sweep logged at two setpoints, its thermometer jittering by tens of mK: with
+    /// a tolerance each setpoint is one group, keyed by its mean, whatever the order of rows.
+    #[test]
+    fn a_tolerance_keeps_a_jittering_column_in_one_group_per_setpoint() {
+        let logged = df!(
+            "sample" => ["s", "s", "s", "s", "s", "s"],
+            "temperature_K" => [4.21, 10.02, 4.19, 9.97, 4.2, 10.01],
+        )
+        .unwrap();
+        let columns = ["sample".to_owned(), "temperature_K".to_owned()];
+        let exact = group_rows(&logged, &columns, &[None, None]).unwrap();
+        assert_eq!(exact.len(), 6, "exact values split every row");
+        assert_eq!(
+            looks_jittery(&logged, &columns, &[None, None], &exact).as_deref(),
+            Some("temperature_K")
+        );
+        let tolerances = [None, Some(0.5)];
+        let groups = group_rows(&logged, &columns, &tolerances).unwrap();
+        let rows: Vec<Vec<IdxSize>> = groups.iter().map(|group| group.rows.clone()).collect();
+        assert_eq!(rows, vec![vec![0, 2, 4], vec![1, 3, 5]]);
+        assert!(looks_jittery(&logged, &columns, &tolerances, &groups).is_none());
+        let AnyValue::Float64(mean) = groups[1].key[1] else {
+            panic!("a clustered key is a float: {:?}", groups[1].key[1]);
+        };
+        assert!((mean - 10.0).abs() < 1e-12, "{mean}");
+        assert_eq!(groups[1].spans[1], Some((9.97, 10.02)));
+        assert_eq!(
+            groups[0].label(&columns),
+            "sample=\"s\", temperature_K=4.2 (4.19 to 4.21)"
+        );
+        // Another input's rows join the group whose span they fall within the tolerance of.
+        let other = df!("temperature_K" => [4.5, 10.6, 20.0], "x" => [1.0, 2.0, 3.0]).unwrap();
+        let only_temperature = ["temperature_K".to_owned()];
+        let groups = group_rows(&logged, &only_temperature, &[Some(0.5)]).unwrap();
+        let shares: Vec<Vec<IdxSize>> = groups
+            .iter()
+            .map(|group| rows_matching(&other, &only_temperature, &[Some(0.5)], group))
+            .collect();
+        assert_eq!(shares, vec![vec![0], Vec::<IdxSize>::new()]);
+    }
+
+    #[test]
+    fn a_tolerance_on_a_text_column_is_refused_with_the_way_out() {
+        let error = group_rows(&frame(), &["sample".to_owned()], &[Some(1.0)]).unwrap_err();
+        assert_eq!(error.kind, ErrorKind::ColumnProblem);
+        assert_eq!(error.param.as_deref(), Some("group_tolerance"));
+        assert!(error.message.contains("numeric columns"), "{}", error.message);
+        // Nulls are a group of their own.
+        let with_null = df!("t" => [Some(1.0), None, Some(1.1)]).unwrap();
+        let groups = group_rows(&with_null, &["t".to_owned()], &[Some(0.5)]).unwrap();
+        let rows: Vec<Vec<IdxSize>> = groups.iter().map(|group| group.rows.clone()).collect();
+        assert_eq!(rows, vec![vec![0, 2], vec![1]]);
     }
 
     /// A grouped summary of these groups, as a run with group_by makes it.

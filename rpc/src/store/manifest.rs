@@ -59,6 +59,9 @@ pub enum Provenance {
         input_versions: BTreeMap<String, String>,
         #[serde(default)]
         group_by: Vec<String>,
+        /// `group_tolerance` of the run: columns grouped by value clusters, not exact values.
+        #[serde(default, skip_serializing_if = "BTreeMap::is_empty")]
+        group_tolerance: BTreeMap<String, f64>,
         /// True for the table of an analysis's summary (`summary_output`).
         #[serde(default)]
         summary: bool,

@@ -228,3 +228,109 @@ async fn bad_sweeps_get_clear_errors() {
     }
     assert_eq!(daemon.call("server.info", json!({})).await["name"], "mobilisd");
 }
+
+/// Two field sweeps of one sample logged continuously, their thermometer jittering by up to
+/// 30 mK around setpoints of 2 K and 10 K, in one table.
+fn logged_sweeps_at_two_setpoints() -> Value {
+    let mut columns = json!({"sample": [], "temperature_K": [], "field_T": [], "rho_xx_ohm_sq": [], "rho_xy_ohm": []});
+    let mut jitter = Rng::seeded(11);
+    for setpoint_k in [2.0, 10.0] {
+        let sweep = sweep_columns(9.0, 40, 2e-4);
+        for name in ["sample", "field_T", "rho_xx_ohm_sq", "rho_xy_ohm"] {
+            let values = sweep[name].as_array().unwrap().clone();
+            columns[name].as_array_mut().unwrap().extend(values);
+        }
+        let points = sweep["field_T"].as_array().unwrap().len();
+        let temperatures = (0..points).map(|_| json!(setpoint_k + jitter.uniform_between(-0.03, 0.03)));
+        columns["temperature_K"].as_array_mut().unwrap().extend(temperatures);
+    }
+    columns
+}
+
+#[tokio::test(flavor = "multi_thread")]
+async fn a_jittering_logged_temperature_is_grouped_per_setpoint_with_a_tolerance() {
+    let daemon = TestDaemon::start().await;
+    daemon
+        .call(
+            "dataset.import",
+            json!({"name": "logged", "columns": logged_sweeps_at_two_setpoints()}),
+        )
+        .await;
+    let fit = |extra: Value| {
+        let mut params = json!({"analysis": "spectrum.multi_carrier_fit", "inputs": {"sweep": "logged"},
+                                "output": "fit", "params": {"carriers": ["n", "n"]}});
+        params
+            .as_object_mut()
+            .unwrap()
+            .extend(extra.as_object().unwrap().clone());
+        params
+    };
+    let help_of = |error: mobilis_client::ClientError| error.data().and_then(|data| data.help).unwrap_or_default();
+
+    // The whole table: two sweeps, and the advice gives the tolerance that splits them.
+    daemon
+        .call_refused(
+            "analysis.run",
+            fit(json!({})),
+            4007,
+            &["sweeps at 1.99", r#"group_tolerance {"temperature_K": 4}"#],
+        )
+        .await;
+    // Exact values split the logged temperature point by point; the error says what to add.
+    let error = daemon
+        .client
+        .call("analysis.run", fit(json!({"group_by": ["sample", "temperature_K"]})))
+        .await
+        .unwrap_err();
+    let help = help_of(error);
+    assert!(
+        help.contains("group_by `temperature_K` made 162 groups of 162 rows") && help.contains("group_tolerance"),
+        "{help}"
+    );
+    // A tolerance that names a column the run does not group by, or is not positive.
+    for (tolerance, words) in [
+        (json!({"field_T": 0.1}), ["`field_T`", "not a group_by column"]),
+        (json!({"temperature_K": -1.0}), ["`temperature_K`", "positive number"]),
+    ] {
+        daemon
+            .call_refused(
+                "analysis.run",
+                fit(json!({"group_by": ["sample", "temperature_K"], "group_tolerance": tolerance})),
+                4001,
+                &words,
+            )
+            .await;
+    }
+
+    // With the tolerance, one group per setpoint, keyed by the mean of its logged values, and
+    // each finds both layers (the forward model's carriers, as in the test above).
+    let answer = daemon
+        .call(
+            "analysis.run",
+            fit(json!({"group_by": ["sample", "temperature_K"], "group_tolerance": {"temperature_K": 0.5}})),
+        )
+        .await;
+    let groups = answer["summary"]["groups"].as_array().unwrap();
+    assert_eq!(groups.len(), 2, "{answer}");
+    for (group, setpoint_k) in groups.iter().zip([2.0, 10.0]) {
+        let mean_k = group["group"]["temperature_K"].as_f64().unwrap();
+        assert!((mean_k - setpoint_k).abs() < 0.03, "{mean_k}");
+        assert_found(group["summary"]["carriers"].as_array().unwrap(), 0.05);
+    }
+    let rows = daemon.call("dataset.rows", json!({"name": "fit", "limit": 1000})).await;
+    let mut temperatures: Vec<f64> = rows["columns"]["temperature_K"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|t| t.as_f64().unwrap())
+        .collect();
+    temperatures.dedup();
+    assert_eq!(
+        temperatures.len(),
+        2,
+        "the output's rows carry their group's mean: {temperatures:?}"
+    );
+    // The provenance keeps the tolerance, and the report says how the run was grouped.
+    let info = daemon.call("dataset.info", json!({"name": "fit"})).await;
+    assert_eq!(info["provenance"]["group_tolerance"]["temperature_K"], 0.5, "{info}");
+}

@@ -22,6 +22,13 @@
 //!
 //! # The measure of collapse
 //!
+//! 0. **Uncertainties.** A curve given without uncertainties (its sweep had no
+//!    rho_xx_ohm_sq_unc) takes each point's from the scatter of its neighbours along the
+//!    curve: the median absolute third difference of MR around it, 1.4826 / sqrt(20) times
+//!    (`with_estimated_uncertainties`). Without it, the lowest fields, where MR is below
+//!    its noise, would be used and judged as if exact and fail the collapse by their noise
+//!    alone. A curve whose scatter is below 1e-7 of its MR (computed, not measured) stays
+//!    without; the summary lists the temperatures that were estimated.
 //! 1. **Points used.** Per curve, the points with B > 0 and an MR that is clearly positive:
 //!    MR > [`KohlerSettings::min_mr`] and, with uncertainties, MR > `significance` u_MR. A
 //!    logarithm needs MR > 0, and at the lowest fields MR is far below its noise, where its
@@ -258,6 +265,9 @@ pub struct KohlerAnalysis {
     pub failures: Vec<FailureRange>,
     /// The temperature of largest rms deviation.
     pub most_deviating_temperature_k: f64,
+    /// The temperatures of the curves without stated uncertainties whose points took them
+    /// from the curve's own scatter ([`kohler`], step 0).
+    pub estimated_temperatures_k: Vec<f64>,
     pub warnings: Vec<String>,
 }
 
@@ -455,6 +465,31 @@ fn validate(curves: &[KohlerCurve], settings: &KohlerSettings) -> Result<(), Koh
 pub fn kohler(curves: &[KohlerCurve], settings: &KohlerSettings) -> Result<KohlerAnalysis, KohlerError> {
     validate(curves, settings)?;
     let mut warnings = Vec::new();
+
+    // Step 0: a curve without uncertainties takes them from its own scatter.
+    let estimated: Vec<Option<KohlerCurve>> = curves.iter().map(with_estimated_uncertainties).collect();
+    let estimated_temperatures_k: Vec<f64> = curves
+        .iter()
+        .zip(&estimated)
+        .filter(|(_, estimate)| estimate.is_some())
+        .map(|(curve, _)| curve.temperature_k)
+        .collect();
+    if !estimated_temperatures_k.is_empty() {
+        let temperatures: Vec<String> = estimated_temperatures_k
+            .iter()
+            .map(|t| format!("{} K", mobilis_physics::units::format_number(*t)))
+            .collect();
+        warnings.push(format!(
+            "the curves at {} carry no MR uncertainties: each point's was estimated from the scatter of its neighbours along the curve (third differences), and sets which points are clearly positive and the noise the spread is judged against; give rho_xx_ohm_sq_unc for stated ones",
+            temperatures.join(", ")
+        ));
+    }
+    let owned: Vec<KohlerCurve> = curves
+        .iter()
+        .zip(estimated)
+        .map(|(curve, estimate)| estimate.unwrap_or_else(|| curve.clone()))
+        .collect();
+    let curves = &owned[..];
 
     // Step 1: scaled points and the ones used.
     let mut points = Vec::new();
@@ -705,7 +740,95 @@ pub fn kohler(curves: &[KohlerCurve], settings: &KohlerSettings) -> Result<Kohle
         rms_excess_spread,
         failures,
         most_deviating_temperature_k,
+        estimated_temperatures_k,
         warnings,
+    })
+}
+
+/// Third differences that estimate one point's noise: those of the points within this many
+/// places either side.
+const SCATTER_WINDOW: usize = 20;
+
+/// Fewest third differences a scatter estimate is made from.
+const SCATTER_MIN_DIFFERENCES: usize = 5;
+
+/// Below this noise relative to MR (at the median point), a curve is taken as computed, not
+/// measured, and left without uncertainties: a tenth of the default `min_mr`, itself about
+/// the resolution of a resistance bridge. A dense computed two-band curve shows about 6e-9
+/// (its curvature and rounding).
+const NEGLIGIBLE_RELATIVE_SCATTER: f64 = 1e-7;
+
+/// `curve` with each point's MR uncertainty estimated from the scatter of its neighbours,
+/// when it has none stated and enough points for the estimate; `None` otherwise.
+///
+/// Along a dense sweep, the third difference m[i+2] - 3 m[i+1] + 3 m[i] - m[i-1] of the MR
+/// values cancels any quadratic trend, so it is noise alone wherever the curve's third
+/// derivative times the field step cubed is small; independent noise of standard deviation
+/// u gives it the variance 20 u^2 (1 + 9 + 9 + 1). Each point's u is taken from the median
+/// absolute third difference around it (1.4826 x the median estimates a normal standard
+/// deviation robustly: P. J. Rousseeuw and C. Croux, J. Am. Stat. Assoc. 88, 1273 (1993)),
+/// so that a noise growing with MR is followed along the curve. On a sparse sweep the trend
+/// does not cancel and the estimate is too large, which marks fewer points as clearly
+/// positive and judges fewer grid points: the verdict errs towards "unknown".
+fn with_estimated_uncertainties(curve: &KohlerCurve) -> Option<KohlerCurve> {
+    if curve.points.iter().any(|p| p.mr_unc.is_some()) {
+        return None;
+    }
+    let mut order: Vec<usize> = (0..curve.points.len())
+        .filter(|&i| curve.points[i].field_t > 0.0)
+        .collect();
+    order.sort_by(|&a, &b| curve.points[a].field_t.total_cmp(&curve.points[b].field_t));
+    if order.len() < SCATTER_MIN_DIFFERENCES + 3 {
+        return None;
+    }
+    let mr = |k: usize| curve.points[order[k]].mr;
+    let differences: Vec<f64> = (1..order.len() - 2)
+        .map(|k| (mr(k + 2) - 3.0 * mr(k + 1) + 3.0 * mr(k) - mr(k - 1)).abs())
+        .collect();
+    // Difference j is centred between points j + 1 and j + 2.
+    let mut uncertainties = vec![None; curve.points.len()];
+    let mut window: Vec<f64> = Vec::with_capacity(2 * SCATTER_WINDOW + 2);
+    for (k, &point) in order.iter().enumerate() {
+        let first = (k + 1).saturating_sub(SCATTER_WINDOW + 2);
+        let last = (k + SCATTER_WINDOW).min(differences.len() - 1);
+        window.clear();
+        window.extend_from_slice(&differences[first..=last]);
+        window.sort_unstable_by(f64::total_cmp);
+        let median = if window.len() % 2 == 1 {
+            window[window.len() / 2]
+        } else {
+            0.5 * (window[window.len() / 2 - 1] + window[window.len() / 2])
+        };
+        uncertainties[point] = Some(1.4826 * median / 20f64.sqrt());
+    }
+    // A curve computed without noise leaves only rounding in its differences.
+    let mut relative: Vec<f64> = order
+        .iter()
+        .filter(|&&i| curve.points[i].mr > 0.0)
+        .map(|&i| uncertainties[i].unwrap_or(0.0) / curve.points[i].mr)
+        .collect();
+    relative.sort_unstable_by(f64::total_cmp);
+    if relative
+        .get(relative.len() / 2)
+        .is_none_or(|&median| median < NEGLIGIBLE_RELATIVE_SCATTER)
+    {
+        return None;
+    }
+    // Points at B <= 0 are not used, but a curve is uncertain at every point or at none:
+    // they take the smallest estimate.
+    let smallest = uncertainties.iter().flatten().copied().fold(f64::INFINITY, f64::min);
+    Some(KohlerCurve {
+        temperature_k: curve.temperature_k,
+        rho0_ohm_sq: curve.rho0_ohm_sq,
+        points: curve
+            .points
+            .iter()
+            .zip(uncertainties)
+            .map(|(point, estimate)| KohlerInput {
+                mr_unc: Some(estimate.unwrap_or(smallest)),
+                ..*point
+            })
+            .collect(),
     })
 }
 

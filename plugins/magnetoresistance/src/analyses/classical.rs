@@ -204,7 +204,7 @@ impl Analysis for RatioAnalysis {
                 ColumnSpec::new("rho_xx_ohm_sq", F64, Some("ohm_sq"), "symmetrized rho_xx"),
                 ColumnSpec::new("rho_xx_ohm_sq_unc", F64, Some("ohm_sq"), "standard uncertainty"),
                 ColumnSpec::new("magnetoresistance", F64, None, "(rho(B) - rho(0)) / rho(0)"),
-                ColumnSpec::new("magnetoresistance_unc", F64, None, "standard uncertainty"),
+                ColumnSpec::new("magnetoresistance_unc", F64, None, "standard uncertainty: propagated from rho_xx_ohm_sq_unc, or estimated from the curve's scatter (see estimated_uncertainty_temperatures_K)"),
             ],
             summary_keys: vec![
                 ColumnSpec::new("sample", ColumnType::Str, None, "the sweep's sample"),
@@ -309,7 +309,7 @@ impl Analysis for KohlerAnalysis {
                 ColumnSpec::new("field_T", F64, Some("T"), "|B|"),
                 ColumnSpec::new("x_T_per_ohm", F64, None, "B / rho(0), T/ohm"),
                 ColumnSpec::new("magnetoresistance", F64, None, "(rho(B) - rho(0)) / rho(0)"),
-                ColumnSpec::new("magnetoresistance_unc", F64, None, "standard uncertainty"),
+                ColumnSpec::new("magnetoresistance_unc", F64, None, "standard uncertainty: propagated from rho_xx_ohm_sq_unc, or estimated from the curve's scatter (see estimated_uncertainty_temperatures_K)"),
                 ColumnSpec::new("used", Bool, None, "inside the common range"),
             ],
             summary_keys: vec![
@@ -325,6 +325,7 @@ impl Analysis for KohlerAnalysis {
                 ColumnSpec::new("single_field_sign_temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures measured at one field sign"),
                 ColumnSpec::new("kohler_holds", Bool, None, "the curves collapse within the tolerance (null when nothing could be judged)"),
                 ColumnSpec::new("rms_excess_spread", F64, None, "rms spread of ln MR beyond the noise"),
+                ColumnSpec::new("estimated_uncertainty_temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures whose sweeps had no rho_xx_ohm_sq_unc: their MR uncertainties were estimated from each curve's own scatter"),
                 single_field_sign_key(),
             ],
             figures: crate::figures::kohler(),
@@ -381,6 +382,10 @@ impl Analysis for KohlerAnalysis {
                 curves.iter().map(|c| c.temperature_k).collect::<Vec<_>>(),
             )
             .summary("kohler_holds", analysis.holds)
+            .summary(
+                "estimated_uncertainty_temperatures_K",
+                &analysis.estimated_temperatures_k,
+            )
             .summary("tolerance", analysis.tolerance)
             .summary("rms_spread", analysis.rms_spread)
             .summary("rms_excess_spread", analysis.rms_excess_spread)

@@ -310,3 +310,73 @@ fn kohler_refuses_bad_input_with_clear_errors() {
         Err(KohlerError::InvalidSetting { name: "tolerance", .. })
     ));
 }
+
+/// The same sample measured with relative noise only and given without uncertainties, as
+/// a lab's table often is: at the lowest fields MR is below its noise, and judged as exact
+/// those points failed the collapse (spreads of 0.2 to 0.75 in ln MR at 1e-5 and 1e-4
+/// relative noise). With each point's uncertainty estimated from the curve's scatter the
+/// rule holds, and a violating sample still fails.
+#[test]
+fn kohler_estimates_missing_uncertainties_from_the_scatter() {
+    let strip = |mut curves: Vec<KohlerCurve>| {
+        for curve in &mut curves {
+            for point in &mut curve.points {
+                point.mr_unc = None;
+            }
+        }
+        curves
+    };
+    for relative in [1e-5, 1e-4] {
+        let noise = SweepNoise {
+            absolute_ohm: 0.0,
+            relative,
+        };
+        let stated = curves(common_scattering_time, noise);
+        let analysis = kohler(&strip(stated.clone()), &KohlerSettings::default()).unwrap();
+        assert_eq!(analysis.holds, Some(true), "{relative}: {:?}", analysis.failures);
+        assert_eq!(analysis.estimated_temperatures_k, TEMPERATURES.to_vec());
+        assert!(
+            analysis
+                .warnings
+                .iter()
+                .any(|w| w.contains("estimated from the scatter")),
+            "{:?}",
+            analysis.warnings
+        );
+        // The estimate follows the noise put in: rho_xx noise relative x rho at +B and at
+        // -B, averaged by the symmetrization, gives MR = rho(B) / rho(0) - 1 a point-to-point
+        // noise of relative (1 + MR) / sqrt(2) (propagation of a mean and a ratio, JCGM
+        // 100:2008 5.1.2); rho(0)'s own error is common to the curve and not in its scatter.
+        // Each point within the scatter of a median of 41 values (a relative standard
+        // deviation near 0.2, and about 3,000 points: 3.5 of them either side).
+        let mut ratios = Vec::new();
+        for point in analysis.points.iter().filter(|p| p.field_t > 1.0) {
+            let expected = relative * (1.0 + point.mr) / 2f64.sqrt();
+            ratios.push(point.mr_unc.unwrap() / expected);
+        }
+        ratios.sort_by(f64::total_cmp);
+        let median = ratios[ratios.len() / 2];
+        assert!(
+            (median - 1.0).abs() < 0.1,
+            "{relative}: median estimate / expected {median}"
+        );
+        assert!(
+            ratios[0] > 0.3 && ratios[ratios.len() - 1] < 2.0,
+            "{relative}: estimate / expected from {} to {}",
+            ratios[0],
+            ratios[ratios.len() - 1]
+        );
+        let split = |t: f64| vec![Carrier::electron(2e15, 0.5 * 300.0 / t), Carrier::hole(5e15, 0.1)];
+        let violating = kohler(&strip(curves(split, noise)), &KohlerSettings::default()).unwrap();
+        assert_eq!(violating.holds, Some(false), "{relative}");
+    }
+    // A computed curve has no scatter (its third differences are 6e-9 of MR at the median,
+    // from its curvature and rounding) and stays without uncertainties.
+    let exact = kohler(
+        &strip(curves(common_scattering_time, SweepNoise::NONE)),
+        &KohlerSettings::default(),
+    )
+    .unwrap();
+    assert!(exact.estimated_temperatures_k.is_empty());
+    assert_eq!(exact.holds, Some(true));
+}

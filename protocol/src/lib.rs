@@ -376,7 +376,7 @@ methods! {
     /// `report.samples`
     ReportSamples = "report.samples" (NoParams) -> Vec<ReportSample> {
         runs: Inline, errors: false,
-        summary: "Every sample named in a `sample` column of a stored dataset (or, for an analysis output without that column, by its run summary's `sample`: an ungrouped run over one sample's series), with the datasets that hold it",
+        summary: "Every sample named in a `sample` column of a stored dataset (or, for an analysis output without that column, by its run summary's `sample`, or else the one sample its inputs hold: an ungrouped run over one sample's series), with the datasets that hold it",
     }
     /// `report.render`
     ReportRender = "report.render" (SampleName) -> Report {

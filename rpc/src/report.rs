@@ -637,12 +637,49 @@ fn chain_depth(
     depth
 }
 
+/// The samples a dataset's report pages are: its own (`samples_of`) or, for an analysis
+/// output that names none (an ungrouped fit of one sample's series, stored without a
+/// `sample` column), the one sample all its inputs hold, followed back through the
+/// analyses that made them. An output of inputs with several samples names none.
+fn attributed_samples(
+    dataset: &Dataset,
+    all: &[Arc<Dataset>],
+    memo: &mut std::collections::HashMap<String, std::collections::BTreeSet<String>>,
+    guard: usize,
+) -> std::collections::BTreeSet<String> {
+    if let Some(samples) = memo.get(&dataset.manifest.name) {
+        return samples.clone();
+    }
+    let own = samples_of(dataset);
+    let samples = match &dataset.manifest.provenance {
+        Provenance::Analysis { inputs, .. } if own.is_empty() && guard < 64 => {
+            let mut from_inputs = std::collections::BTreeSet::new();
+            for input in inputs.values() {
+                if let Some(stored) = all.iter().find(|d| &d.manifest.name == input) {
+                    from_inputs.extend(attributed_samples(stored, all, memo, guard + 1));
+                }
+            }
+            if from_inputs.len() == 1 {
+                from_inputs
+            } else {
+                Default::default()
+            }
+        }
+        _ => own,
+    };
+    memo.insert(dataset.manifest.name.clone(), samples.clone());
+    samples
+}
+
 impl Service {
-    /// Every sample named in a `sample` column, with the datasets that hold it.
+    /// Every sample named in a `sample` column (or, for an output without one, the sample
+    /// of its inputs: [`attributed_samples`]), with the datasets that hold it.
     pub fn report_samples(&self) -> Vec<ReportSample> {
         let mut samples: std::collections::BTreeMap<String, Vec<String>> = Default::default();
-        for dataset in self.store.list() {
-            for sample in samples_of(&dataset) {
+        let all = self.store.list();
+        let mut memo = Default::default();
+        for dataset in &all {
+            for sample in attributed_samples(dataset, &all, &mut memo, 0) {
                 samples.entry(sample).or_default().push(dataset.manifest.name.clone());
             }
         }
@@ -654,11 +691,12 @@ impl Service {
 
     /// The HTML page of one sample.
     pub fn report_render(&self, sample: &str) -> ServiceResult<Report> {
-        let mut datasets: Vec<Arc<Dataset>> = self
-            .store
-            .list()
-            .into_iter()
-            .filter(|d| samples_of(d).contains(sample))
+        let all = self.store.list();
+        let mut memo = Default::default();
+        let mut datasets: Vec<Arc<Dataset>> = all
+            .iter()
+            .filter(|d| attributed_samples(d, &all, &mut memo, 0).contains(sample))
+            .cloned()
             .collect();
         if datasets.is_empty() {
             let known: Vec<String> = self.report_samples().into_iter().map(|s| s.sample).collect();
@@ -674,7 +712,6 @@ impl Service {
         }
         // Imports first, then each analysis after the datasets it read: the page reads as
         // the work went (creation times have whole seconds and cannot order a fast pipeline).
-        let all = self.store.list();
         let mut depths: std::collections::HashMap<String, usize> = Default::default();
         for dataset in &datasets {
             chain_depth(&dataset.manifest.name, &all, &mut depths, 0);
@@ -691,8 +728,8 @@ impl Service {
         let filter: Map<String, Value> = [(SAMPLE_COLUMN.to_owned(), json!(sample))].into_iter().collect();
         let mut frames = Vec::with_capacity(datasets.len());
         for dataset in &datasets {
-            // A dataset without a `sample` column is here because its run summary names
-            // the sample (see `samples_of`): all its rows are the sample's.
+            // A dataset without a `sample` column is here because its run summary or its
+            // inputs name the sample (see `attributed_samples`): all its rows are the sample's.
             let rows = if dataset.frame.column(SAMPLE_COLUMN).is_ok() {
                 filter_rows(&dataset.frame, &filter)?
             } else {

@@ -502,3 +502,54 @@ async fn show_refuses_an_unknown_column_and_lists_the_real_ones() {
     let (shown, _) = mobilis(daemon.daemon.url(), "never", &["show", "few", "--column", "density_m3"]);
     assert!(shown.contains("rows 0..2 of 2"), "{shown}");
 }
+
+/// An output stored without a `sample` column (an ungrouped analysis of one sample's table)
+/// belongs to the sample of its inputs, followed back through the analyses that made them;
+/// an output of inputs that hold several samples belongs to none of them.
+#[tokio::test(flavor = "multi_thread")]
+async fn an_output_without_a_sample_column_is_reported_under_its_inputs_sample() {
+    use serde_json::json;
+    let dir = mobilis_tests::fixture_plugin_dir();
+    let daemon = TestDaemon::start_with(|options| options.plugin_dirs.push(dir.path().to_owned())).await;
+    for (name, samples) in [("one", ["W7", "W7"]), ("two", ["W7", "W8"])] {
+        daemon
+            .call(
+                "dataset.import",
+                json!({"name": name, "columns": {"sample": samples, "x": [1.0, 2.0]}}),
+            )
+            .await;
+    }
+    let scale = |input: &str, output: &str| json!({"analysis": "fixture.scale", "inputs": {"values": input}, "output": output, "params": {"factor": 2.0}});
+    daemon.call("analysis.run", scale("one", "one-scaled")).await;
+    // Two steps from the sample's table: the first output has no sample column either.
+    daemon
+        .call(
+            "analysis.run",
+            json!({"analysis": "fixture.identity", "inputs": {"values": "one-scaled"}, "output": "one-scaled-twice"}),
+        )
+        .await;
+    daemon.call("analysis.run", scale("two", "two-scaled")).await;
+    let rows = daemon.call("dataset.rows", json!({"name": "one-scaled-twice"})).await;
+    assert!(rows["columns"].get("sample").is_none(), "{rows}");
+
+    let samples = daemon.call("report.samples", json!({})).await;
+    let datasets_of = |sample: &str| -> Vec<String> {
+        samples
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|entry| entry["sample"] == sample)
+            .map(|entry| serde_json::from_value(entry["datasets"].clone()).unwrap())
+            .unwrap_or_default()
+    };
+    let mut w7 = datasets_of("W7");
+    w7.sort();
+    assert_eq!(w7, ["one", "one-scaled", "one-scaled-twice", "two"], "{samples}");
+    assert_eq!(datasets_of("W8"), ["two"], "{samples}");
+    let page = daemon.call("report.render", json!({"sample": "W7"})).await;
+    let html = page["html"].as_str().unwrap_or_default();
+    assert!(
+        html.contains("one-scaled-twice") && !html.contains("two-scaled"),
+        "{page}"
+    );
+}

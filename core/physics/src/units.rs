@@ -766,6 +766,22 @@ impl Display {
     }
 }
 
+/// The strongest fields of laboratory magnets: about 100 T, reached by non-destructive
+/// pulsed magnets (continuous fields stop near 45 T); common practice, from memory. A larger
+/// field in a lab's file is almost always millitesla or gauss read as tesla.
+pub const LARGEST_LABORATORY_FIELD_T: f64 = 100.0;
+
+/// A warning when a field column's largest magnitude goes beyond any laboratory magnet,
+/// naming the import that converts a millitesla or gauss column into tesla.
+pub fn implausible_field_warning(column: &str, largest_t: f64) -> Option<String> {
+    (largest_t > LARGEST_LABORATORY_FIELD_T).then(|| {
+        format!(
+            "{column} reaches {} T, beyond the {LARGEST_LABORATORY_FIELD_T} T of the strongest laboratory magnets: if the column holds millitesla or gauss, import the file again with its unit (units {{\"{column}\": \"mT\"}} or \"G\"; mobilis import --unit {column}=mT) so that it is converted to tesla",
+            format_number(largest_t)
+        )
+    })
+}
+
 /// Formats a number with four significant digits, switching to exponent form outside
 /// 1e-3..1e5 where fixed notation would hide the digits.
 pub fn format_number(value: f64) -> String {

@@ -322,6 +322,17 @@ pub fn sweeps_by_temperature(
     if sweeps.is_empty() {
         return Err(invalid("the sweep table is empty"));
     }
+    // Once per table: a field beyond any magnet is a unit error of the whole column.
+    let largest_field_t = sweeps
+        .iter()
+        .flat_map(|sweep| &sweep.points)
+        .fold(0.0_f64, |largest, point| largest.max(point.field_t.abs()));
+    sweeps[0]
+        .warnings
+        .extend(mobilis_physics::units::implausible_field_warning(
+            "field_T",
+            largest_field_t,
+        ));
     for sweep in &mut sweeps {
         if let (Some((low, high)), Some(mean)) = (sweep.temperature_range_k, sweep.temperature_k) {
             if high - low > CHAINED_SPAN_GAPS * grouping.allowed_gap_k(low) && high > low {
@@ -410,6 +421,32 @@ mod tests {
             advice.contains(r#"group_by ["sample", "temperature_K"] and group_tolerance {"temperature_K": 1.1}"#),
             "{advice}"
         );
+    }
+
+    /// A field beyond any laboratory magnet (about 100 T; common practice, from memory) is
+    /// reported once per table, with the import that converts it.
+    #[test]
+    fn a_field_beyond_any_magnet_is_reported_once() {
+        let frame = df!(
+            "temperature_K" => [2.0, 2.0, 10.0, 10.0],
+            "field_T" => [5000.0, -5000.0, 5000.0, -5000.0],
+            "rho_xx_ohm_sq" => [10.0, 10.0, 12.0, 12.0],
+            "rho_xy_ohm" => [1.0, -1.0, 1.0, -1.0],
+        )
+        .unwrap();
+        let sweeps = sweeps_by_temperature(&frame, &TemperatureGrouping::default()).unwrap();
+        let warnings: Vec<&String> = sweeps.iter().flat_map(|sweep| &sweep.warnings).collect();
+        assert_eq!(warnings.len(), 1, "{warnings:?}");
+        assert!(warnings[0].starts_with("field_T reaches 5000 T"), "{}", warnings[0]);
+        let in_tesla = df!(
+            "temperature_K" => [2.0, 2.0],
+            "field_T" => [0.5, -0.5],
+            "rho_xx_ohm_sq" => [10.0, 10.0],
+            "rho_xy_ohm" => [1.0, -1.0],
+        )
+        .unwrap();
+        let sweeps = sweeps_by_temperature(&in_tesla, &TemperatureGrouping::default()).unwrap();
+        assert!(sweeps.iter().all(|sweep| sweep.warnings.is_empty()));
     }
 
     #[test]

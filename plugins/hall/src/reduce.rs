@@ -627,6 +627,15 @@ fn reduce_source<S: ReadingSource>(
         carrier,
         flags,
     } = table::build_columns(&reduced, |index| resolved[reduced_rank(&reduced, index)].hall_factor);
+    // Nulls are stored as 0 and do not raise it.
+    let largest_field_t = floats[contract::float_column::FIELD_T]
+        .values()
+        .iter()
+        .fold(0.0_f64, |largest, field| largest.max(field.abs()));
+    warnings.extend(mobilis_physics::units::implausible_field_warning(
+        "field_T",
+        largest_field_t,
+    ));
     let mut row_warnings = Vec::new();
     let mut calibrations = Vec::with_capacity(reduced.len());
     let mut sample_list = Vec::with_capacity(reduced.len());

@@ -1874,6 +1874,34 @@ mod real_setups {
         }
     }
 
+    /// A field column in gauss read as tesla: 0.5 T becomes 5000 "T", beyond any magnet
+    /// (about 100 T; common practice, from memory), and the warning names the import that
+    /// converts it; the run in tesla has no such warning.
+    #[test]
+    fn a_field_beyond_any_magnet_is_reported_as_a_unit_error() {
+        let lab = LabConditions::IDEAL;
+        let readings = series(&lab, 1e-7);
+        let in_tesla = reduce(&readings, Some(&[sheet(1e-6)]), &ReduceSettings::default()).unwrap();
+        assert!(!in_tesla
+            .warnings
+            .iter()
+            .any(|w| w.contains("strongest laboratory magnets")));
+        let mut in_gauss = readings.clone();
+        for reading in &mut in_gauss {
+            reading.field_t *= 1e4;
+        }
+        let reduction = reduce(&in_gauss, Some(&[sheet(1e-6)]), &ReduceSettings::default()).unwrap();
+        let warning = reduction
+            .warnings
+            .iter()
+            .find(|w| w.contains("strongest laboratory magnets"))
+            .expect("the field is reported");
+        assert!(
+            warning.starts_with("field_T reaches 5000 T") && warning.contains("--unit field_T=mT"),
+            "{warning}"
+        );
+    }
+
     #[test]
     fn three_millitesla_of_remanence_give_one_row_per_temperature() {
         let lab = LabConditions {

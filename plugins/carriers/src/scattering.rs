@@ -1347,10 +1347,11 @@ pub fn fit_mobility_scattering(
             .min_by(|a, b| a.0.total_cmp(&b.0));
         if let Some((b, temperature_k)) = weakest.filter(|(b, _)| *b < 1.0) {
             warnings.push(format!(
-                "the Brooks-Herring screening parameter b falls to {b:.3} at {temperature_k} K, where ionized-impurity \
+                "the Brooks-Herring screening parameter b falls to {b:.3} at {} K, where ionized-impurity \
                  scattering matters; the formula assumes b >> 1, so the fitted density is outside its validity. Give \
                  the measured carrier densities (density_m3) for the screening, narrow the temperature range, or use \
-                 formula conwell_weisskopf"
+                 formula conwell_weisskopf",
+                mobilis_physics::units::format_number(temperature_k)
             ));
         }
     }

@@ -326,7 +326,7 @@ pub enum KohlerError {
 fn ranges_text(ranges: &[(f64, f64, f64)]) -> String {
     let text: Vec<String> = ranges
         .iter()
-        .map(|(t, lo, hi)| format!("{t} K: {lo:.4e} to {hi:.4e}"))
+        .map(|(t, lo, hi)| format!("{} K: {lo:.4e} to {hi:.4e}", mobilis_physics::units::format_number(*t)))
         .collect();
     text.join("; ")
 }
@@ -520,7 +520,7 @@ pub fn kohler(curves: &[KohlerCurve], settings: &KohlerSettings) -> Result<Kohle
         if used.len() < 2 {
             warnings.push(format!(
                 "the {} K curve has {} point(s) with a clearly positive MR (above {:e}{}) and takes no part; measure to higher field or lower min_mr",
-                curve.temperature_k,
+                mobilis_physics::units::format_number(curve.temperature_k),
                 used.len(),
                 settings.min_mr,
                 if weighted {
@@ -721,7 +721,7 @@ pub fn kohler(curves: &[KohlerCurve], settings: &KohlerSettings) -> Result<Kohle
         if sums[index].0 == 0 {
             warnings.push(format!(
                 "the {} K curve shares no x range with another curve and was not compared",
-                curves[index].temperature_k
+                mobilis_physics::units::format_number(curves[index].temperature_k)
             ));
         }
     }
@@ -917,7 +917,8 @@ fn power_law(
         }
         Err(error) => {
             warnings.push(format!(
-                "no power law for the {temperature_k} K curve ({} usable point(s) in range): {error}",
+                "no power law for the {} K curve ({} usable point(s) in range): {error}",
+                mobilis_physics::units::format_number(temperature_k),
                 x.len()
             ));
             None

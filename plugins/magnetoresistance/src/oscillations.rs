@@ -762,7 +762,7 @@ fn mass_phase(
         MassRequest::Auto if distinct.len() < 2 => {
             warnings.push(format!(
                 "all sweeps are at {} K, so no effective mass is fitted (it needs two or more temperatures) and there is no Dingle plot unless a known mass is given",
-                distinct[0]
+                mobilis_physics::units::format_number(distinct[0])
             ));
             false
         }

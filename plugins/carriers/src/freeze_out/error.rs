@@ -40,7 +40,8 @@ pub enum SeriesError {
     MixedUncertainties { with: usize, without: usize },
     /// The carrier type changes within the series.
     #[error(
-        "the carrier type changes from {first} to {then} at point {index} ({temperature_k} K); a freeze-out analysis needs one carrier type, so restrict temperature_min_K and temperature_max_K to one side of the change"
+        "the carrier type changes from {first} to {then} at point {index} ({} K); a freeze-out analysis needs one carrier type, so restrict temperature_min_K and temperature_max_K to one side of the change",
+        mobilis_physics::units::format_number(*.temperature_k)
     )]
     CarrierTypeSwitch {
         index: usize,

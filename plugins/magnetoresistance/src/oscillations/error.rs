@@ -76,7 +76,8 @@ pub enum OscillationError {
     },
     /// The reference sweep minus its background is flat to rounding.
     #[error(
-        "the coldest sweep (sweep {sweep}, {temperature_k} K) minus its background varies by only {relative_rms:.1e} of its rho_xx, the level of rounding: it holds no oscillation to analyse; check that the column is the rho_xx of a field sweep and that the field window covers the field range where it oscillates"
+        "the coldest sweep (sweep {sweep}, {} K) minus its background varies by only {relative_rms:.1e} of its rho_xx, the level of rounding: it holds no oscillation to analyse; check that the column is the rho_xx of a field sweep and that the field window covers the field range where it oscillates",
+        mobilis_physics::units::format_number(*.temperature_k)
     )]
     NoVariation {
         sweep: usize,
@@ -85,7 +86,8 @@ pub enum OscillationError {
     },
     /// A mass was asked for but every sweep is at one temperature.
     #[error(
-        "an effective mass needs sweeps at two or more temperatures, but all {sweeps} sweep(s) are at {temperature_k} K; add sweeps at other temperatures, give a known effective_mass_ratio, or do not ask for the mass"
+        "an effective mass needs sweeps at two or more temperatures, but all {sweeps} sweep(s) are at {} K; add sweeps at other temperatures, give a known effective_mass_ratio, or do not ask for the mass",
+        mobilis_physics::units::format_number(*.temperature_k)
     )]
     SingleTemperature { temperature_k: f64, sweeps: usize },
     /// A least-squares fit failed.

@@ -427,6 +427,7 @@ mod tests {
                 "params",
                 "output",
                 "group_by",
+                "group_tolerance",
                 "overwrite",
                 "call_id",
                 "summary_output",
@@ -435,7 +436,10 @@ mod tests {
         );
         let required: Vec<&str> = list.iter().filter(|p| p.1).map(|p| p.0.as_str()).collect();
         assert_eq!(required, ["analysis", "inputs", "output"]);
-        assert_eq!(list[6].2["type"], "string", "{}", list[6].2);
+        assert_eq!(list[7].2["type"], "string", "{}", list[7].2);
+        // A tolerance per column: an object of numbers, not nullable.
+        assert_eq!(list[5].2["type"], "object", "{}", list[5].2);
+        assert_eq!(list[5].2["additionalProperties"]["type"], "number", "{}", list[5].2);
         let schema = method("pipeline.run").unwrap().params_schema();
         assert_eq!(schema["properties"]["steps"]["minItems"], 1);
         assert_eq!(

@@ -113,6 +113,9 @@ const UNSUBSCRIBE_RETRY_MS = 50;
  * @property {Record<string, unknown>} [params] The analysis's parameters (see `describe`).
  * @property {string} output Name of the dataset that stores the output table.
  * @property {string | string[]} [group_by] Column(s) of the first input to group by.
+ * @property {Record<string, number>} [group_tolerance] Per numeric `group_by` column, the
+ *   widest gap between sorted values within one group (`{temperature_K: 0.5}` for a logged
+ *   temperature); other columns group by exact values.
  * @property {boolean} [overwrite] Replace an existing output dataset.
  * @property {string} [call_id] Id for cancellation and progress; generated when missing.
  * @property {string} [summary_output] Also store the summary as a dataset.

@@ -262,8 +262,8 @@ pub use contract::{
 pub use error::{ReadingProblem, ReduceError, LARGEST_READING_MAGNITUDE, SMALLEST_CURRENT_A};
 pub use row::FlagSet;
 use row::{
-    build_row, draft_row, DriftTerms, FieldCells, ReadingTemperatures, ResolvedCalibration, ResolvedSample, RowDraft,
-    RowRecord, SlotsSeen, TemperatureGroup, ZeroFieldCells,
+    build_row, draft_row, DriftSlopes, FieldCells, ReadingTemperatures, ResolvedCalibration, ResolvedSample, RowDraft,
+    RowRecord, SlotsSeen, TemperatureGroup, UncorrectedDrift, ZeroFieldCells,
 };
 use table::SampleReduction;
 pub use table::{FloatColumn, ReductionTable};
@@ -1400,15 +1400,6 @@ fn prepare(
 /// temperatures, each time with the slopes of the previous pass.
 const DRIFT_CORRECTION_PASSES: usize = 2;
 
-/// The logarithmic temperature slopes of one group, per K, that bring its readings to the
-/// group's mean temperature: of the resistances (d ln R_s / dT) and of the Hall
-/// configurations (d ln |R_Hs| / dT).
-#[derive(Debug, Clone, Copy, PartialEq)]
-struct DriftSlopes {
-    resistance_per_k: f64,
-    hall_per_k: f64,
-}
-
 /// The slopes of each temperature group from the previous pass over the series: the
 /// derivative of the parabola in 1/T through ln R_s (or ln |R_Hs|) of the group and of its
 /// two nearest groups that have one (a neighbour on each side, or the two next ones at an
@@ -1487,46 +1478,6 @@ fn largest_drift_correction(readings: &[Prepared], slopes: DriftSlopes, geometry
             (slope * (mean_k - reading.temperature_k)).abs()
         })
         .fold(0.0, f64::max)
-}
-
-/// How a drifting group left as measured enters its rows' uncertainties: the logarithmic
-/// temperature slopes its readings' offsets are multiplied by (`None` when the series has
-/// none at all), and whether they are borrowed (the series' steepest, for a group without
-/// slopes of its own).
-#[derive(Debug, Clone, Copy, PartialEq)]
-struct UncorrectedDrift {
-    slopes: Option<DriftSlopes>,
-    borrowed: bool,
-}
-
-impl UncorrectedDrift {
-    /// The relative standard uncertainties a row takes from the temperatures of its
-    /// readings (GUM, JCGM 100:2008, 5.1.2 and 5.1.3: a sensitivity coefficient times an
-    /// input's standard uncertainty, a Type B evaluation). The input is the offset
-    /// T_R - T of the mean temperature of the resistance readings from the row's temperature
-    /// T, and T_H - T of the Hall readings: left as measured, R_s refers to T_R and R_Hs to
-    /// T_H. Its standard uncertainty is taken as the offset's magnitude, as the correction
-    /// that would remove it is not trusted. The sensitivities are the slopes:
-    /// s_R = d ln R_s / dT for R_s and rho; s_H = d ln |R_Hs| / dT (in magnitude) for R_xy,
-    /// R_Hs, R_H, n_s and n; for mu_H = |R_Hs| / R_s and the drift mobility both offsets at
-    /// once, s_H (T_H - T) - s_R (T_R - T), the two being one drift (fully correlated); with
-    /// borrowed slopes, whose signs need not be the group's, |s_H (T_H - T)| + |s_R (T_R - T)|.
-    fn relative_uncertainties(self, row_k: f64, temperatures: ReadingTemperatures) -> DriftTerms {
-        let Some(slopes) = self.slopes else {
-            return DriftTerms::default();
-        };
-        let resistance = slopes.resistance_per_k * temperatures.resistance_k.map_or(0.0, |mean_k| mean_k - row_k);
-        let hall = slopes.hall_per_k * temperatures.hall_k.map_or(0.0, |mean_k| mean_k - row_k);
-        DriftTerms {
-            resistance: resistance.abs(),
-            hall: hall.abs(),
-            mobility: if self.borrowed {
-                resistance.abs() + hall.abs()
-            } else {
-                (hall - resistance).abs()
-            },
-        }
-    }
 }
 
 /// The sample's warning about its drifting groups left as measured: how many rows, at which

@@ -15,7 +15,6 @@ use super::cells::{
 };
 use super::contract::{Geometry, ReduceSettings};
 use super::flags;
-use super::UncorrectedDrift;
 
 /// The calibrations of one sample as resolved from the sheet, the call and the defaults:
 /// relative standard uncertainties of the scales, the thermometer's accuracy in K.
@@ -189,6 +188,55 @@ impl FlagSet {
             .enumerate()
             .filter(move |(index, _)| self.0 & (1 << index) != 0)
             .map(|(_, flag)| *flag)
+    }
+}
+
+/// The logarithmic temperature slopes of one group, per K, that bring its readings to the
+/// group's mean temperature: of the resistances (d ln R_s / dT) and of the Hall
+/// configurations (d ln |R_Hs| / dT).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(super) struct DriftSlopes {
+    pub resistance_per_k: f64,
+    pub hall_per_k: f64,
+}
+
+/// How a drifting group left as measured enters its rows' uncertainties: the logarithmic
+/// temperature slopes its readings' offsets are multiplied by (`None` when the series has
+/// none at all), and whether they are borrowed (the series' steepest, for a group without
+/// slopes of its own).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(super) struct UncorrectedDrift {
+    pub slopes: Option<DriftSlopes>,
+    pub borrowed: bool,
+}
+
+impl UncorrectedDrift {
+    /// The relative standard uncertainties a row takes from the temperatures of its
+    /// readings (GUM, JCGM 100:2008, 5.1.2 and 5.1.3: a sensitivity coefficient times an
+    /// input's standard uncertainty, a Type B evaluation). The input is the offset
+    /// T_R - T of the mean temperature of the resistance readings from the row's temperature
+    /// T, and T_H - T of the Hall readings: left as measured, R_s refers to T_R and R_Hs to
+    /// T_H. Its standard uncertainty is taken as the offset's magnitude, as the correction
+    /// that would remove it is not trusted. The sensitivities are the slopes:
+    /// s_R = d ln R_s / dT for R_s and rho; s_H = d ln |R_Hs| / dT (in magnitude) for R_xy,
+    /// R_Hs, R_H, n_s and n; for mu_H = |R_Hs| / R_s and the drift mobility both offsets at
+    /// once, s_H (T_H - T) - s_R (T_R - T), the two being one drift (fully correlated); with
+    /// borrowed slopes, whose signs need not be the group's, |s_H (T_H - T)| + |s_R (T_R - T)|.
+    pub fn relative_uncertainties(self, row_k: f64, temperatures: ReadingTemperatures) -> DriftTerms {
+        let Some(slopes) = self.slopes else {
+            return DriftTerms::default();
+        };
+        let resistance = slopes.resistance_per_k * temperatures.resistance_k.map_or(0.0, |mean_k| mean_k - row_k);
+        let hall = slopes.hall_per_k * temperatures.hall_k.map_or(0.0, |mean_k| mean_k - row_k);
+        DriftTerms {
+            resistance: resistance.abs(),
+            hall: hall.abs(),
+            mobility: if self.borrowed {
+                resistance.abs() + hall.abs()
+            } else {
+                (hall - resistance).abs()
+            },
+        }
     }
 }
 

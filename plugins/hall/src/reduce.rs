@@ -837,8 +837,7 @@ fn reduce_sample(
                 sample,
                 seen,
                 settings,
-                None,
-                None,
+                GroupDrift::default(),
                 &mut final_rows,
                 &mut warnings_of_group,
             );
@@ -944,8 +943,10 @@ fn reduce_sample(
                 sample,
                 seen,
                 settings,
-                corrections[index],
-                uncorrected_drift,
+                GroupDrift {
+                    correction: corrections[index],
+                    uncorrected: uncorrected_drift,
+                },
                 &mut records,
                 &mut row_warnings,
             );
@@ -1568,6 +1569,15 @@ fn correct_drift(readings: &mut [Prepared], slopes: DriftSlopes, geometry: Geome
 /// says: readings above it that are taken as zero field are reported in a warning.
 const STRICT_ZERO_FIELD_T: f64 = 1e-4;
 
+/// How a temperature group stands against a drifting stage: the slopes its readings were
+/// brought to the group's mean temperature with, or, for a drifting group left as measured,
+/// how its rows take the drift into their uncertainties. Neither for a steady group.
+#[derive(Debug, Clone, Copy, Default)]
+struct GroupDrift {
+    correction: Option<DriftSlopes>,
+    uncorrected: Option<UncorrectedDrift>,
+}
+
 /// Rows of one sample's temperature group: one per field setpoint, or one without Hall
 /// quantities when the group has no field readings. Returns the largest |B| taken as zero
 /// field.
@@ -1576,8 +1586,7 @@ fn reduce_temperature_group(
     sample: &ResolvedSample<'_>,
     seen: SlotsSeen,
     settings: &ReduceSettings,
-    drift_correction: Option<DriftSlopes>,
-    uncorrected_drift: Option<UncorrectedDrift>,
+    drift: GroupDrift,
     rows: &mut Vec<RowRecord>,
     warnings: &mut Vec<String>,
 ) -> f64 {
@@ -1586,8 +1595,7 @@ fn reduce_temperature_group(
         sample,
         seen,
         settings,
-        drift_correction,
-        uncorrected_drift,
+        drift,
         Detail::Full,
         |group, zero, field| {
             rows.push(build_row(group, zero, field, settings, warnings));
@@ -1612,8 +1620,10 @@ fn draft_temperature_group(
         sample,
         seen,
         settings,
-        drift_correction,
-        None,
+        GroupDrift {
+            correction: drift_correction,
+            uncorrected: None,
+        },
         Detail::Values,
         |group, zero, field| {
             draft = Some(draft_row(group, zero, field));
@@ -1635,8 +1645,7 @@ fn walk_temperature_group(
     sample: &ResolvedSample<'_>,
     seen: SlotsSeen,
     settings: &ReduceSettings,
-    drift_correction: Option<DriftSlopes>,
-    uncorrected_drift: Option<UncorrectedDrift>,
+    drift: GroupDrift,
     detail: Detail,
     mut row: impl FnMut(&TemperatureGroup<'_>, &ZeroFieldCells, Option<&FieldCells>) -> bool,
 ) -> f64 {
@@ -1657,7 +1666,7 @@ fn walk_temperature_group(
     // A drift the second pass corrected no longer enters to first order. Without a
     // correction (one temperature, or no slope to correct with), the row's quantities refer
     // to some temperature within the readings' spread: their standard deviation.
-    let temperature_reading_unc_k = if drift_correction.is_some() || readings.len() < 2 || detail == Detail::Values {
+    let temperature_reading_unc_k = if drift.correction.is_some() || readings.len() < 2 || detail == Detail::Values {
         0.0
     } else {
         let squares: f64 = readings
@@ -1671,8 +1680,8 @@ fn walk_temperature_group(
         temperature_k,
         temperature_spread_k,
         temperature_reading_unc_k,
-        drift_corrected: drift_correction.is_some(),
-        uncorrected_drift,
+        drift_corrected: drift.correction.is_some(),
+        uncorrected_drift: drift.uncorrected,
         seen,
         assume_symmetric: settings.assume_symmetric_sample,
     };
@@ -1685,7 +1694,7 @@ fn walk_temperature_group(
     zero_readings.sort_unstable_by_key(|reading| cell_key(reading, false));
     // Only a drifting group left as measured asks where its readings' temperatures lie:
     // a steady or corrected group does no work per reading for it.
-    let mean_temperatures = |readings: &[Prepared]| match uncorrected_drift {
+    let mean_temperatures = |readings: &[Prepared]| match drift.uncorrected {
         Some(_) => ReadingTemperatures::of(readings, sample.geometry),
         None => ReadingTemperatures::default(),
     };

@@ -404,7 +404,7 @@ mod steep_freeze_out {
     fn rows_left_as_measured_are_flagged_and_cover_the_truth() {
         let slow = std::env::var("MOBILIS_SLOW_TESTS").is_ok_and(|value| value == "1");
         let realizations = if slow { 1000 } else { 100 };
-        let tally = run(2026_12_05, realizations);
+        let tally = run(20_261_205, realizations);
         assert!(
             tally.uncorrected_rows >= realizations / 4,
             "{} rows left as measured",

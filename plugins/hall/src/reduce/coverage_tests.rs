@@ -102,11 +102,11 @@ struct Tally {
     density: Coverage,
 }
 
-/// Reduces `realizations` series drawn under `lab`, stating to the reduction exactly the
-/// calibration spread the errors were drawn from, and tallies `_unc` (or `_unc_stat` alone).
-fn run(seed: u64, realizations: usize, lab: &LabConditions, statistical_only: bool) -> Tally {
+/// The settings that state to the reduction exactly the calibration spread `lab` draws its
+/// errors from.
+fn stating_the_spread_of(lab: &LabConditions) -> ReduceSettings {
     let spread = lab.calibration_spread;
-    let settings = ReduceSettings {
+    ReduceSettings {
         calibration: Calibration {
             field_rel: Some(spread.field_rel),
             current_rel: Some(spread.current_rel),
@@ -114,7 +114,14 @@ fn run(seed: u64, realizations: usize, lab: &LabConditions, statistical_only: bo
             temperature_accuracy_k: Some(spread.thermometer_offset_k),
         },
         ..ReduceSettings::default()
-    };
+    }
+}
+
+/// Reduces `realizations` series drawn under `lab`, stating to the reduction exactly the
+/// calibration spread the errors were drawn from, and tallies `_unc` (or `_unc_stat` alone).
+fn run(seed: u64, realizations: usize, lab: &LabConditions, statistical_only: bool) -> Tally {
+    let spread = lab.calibration_spread;
+    let settings = stating_the_spread_of(lab);
     let mut rng = Rng::seeded(seed);
     let mut tally = Tally {
         sheet_density: Coverage::default(),
@@ -291,15 +298,7 @@ mod steep_freeze_out {
     fn run(seed: u64, realizations: usize) -> Tally {
         let lab = LabConditions::TYPICAL;
         let spread = lab.calibration_spread;
-        let settings = ReduceSettings {
-            calibration: Calibration {
-                field_rel: Some(spread.field_rel),
-                current_rel: Some(spread.current_rel),
-                voltage_rel: Some(spread.voltage_rel),
-                temperature_accuracy_k: Some(spread.thermometer_offset_k),
-            },
-            ..ReduceSettings::default()
-        };
+        let settings = super::stating_the_spread_of(&lab);
         let sample_at = |temperature_k: f64| {
             let wafer = wafer_at(temperature_k);
             let mut sample = VanDerPauwSample::ideal(

@@ -141,6 +141,18 @@ pub fn translate(
         (_, Some("group_by")) if options => {
             message = message.replacen("group_by column", "--group-by column", 1);
         }
+        (_, Some("group_tolerance")) if options => {
+            message = message
+                .replace("group_tolerance", "--group-tolerance")
+                .replace("group_by", "--group-by");
+            help = help.map(|help| {
+                let help = grouping_options(&help)
+                    .replace("add `", "add --group-by `")
+                    .replace("` to group_by", "`")
+                    .replace("the run groups by", "the run has --group-by");
+                bare_word_as_option(&help, "group_tolerance", "--group-tolerance")
+            });
+        }
         (_, Some("summary_output")) if options => {
             message = message
                 .replace("summary_output", "--summary-output")
@@ -148,7 +160,50 @@ pub fn translate(
         }
         _ => {}
     }
+    if options {
+        message = grouping_options(&message);
+        help = help.map(|help| grouping_options(&help));
+    }
     (replace_phrases(&message), help.map(|h| replace_phrases(&h)))
+}
+
+/// `word` replaced by `option` where it stands alone (not already part of an option).
+fn bare_word_as_option(text: &str, word: &str, option: &str) -> String {
+    let mut out = String::with_capacity(text.len());
+    let mut rest = text;
+    while let Some(position) = rest.find(word) {
+        let before = &rest[..position];
+        out.push_str(before);
+        let preceded = out.ends_with("--") || out.ends_with('-');
+        out.push_str(if preceded { word } else { option });
+        rest = &rest[position + word.len()..];
+    }
+    out.push_str(rest);
+    out
+}
+
+/// A daemon's grouping advice in options: `group_by ["a", "b"]` becomes `--group-by a
+/// --group-by b`, and `group_tolerance {"c": X}` becomes `--group-tolerance c=X`.
+fn grouping_options(text: &str) -> String {
+    let mut text = text.to_owned();
+    while let Some(start) = text.find("group_by [\"") {
+        let Some(length) = text[start..].find(']') else { break };
+        let columns: Vec<String> = text[start + "group_by [".len()..start + length]
+            .split(',')
+            .map(|column| format!("--group-by {}", column.trim().trim_matches('"')))
+            .collect();
+        text.replace_range(start..=start + length, &columns.join(" "));
+    }
+    while let Some(start) = text.find("group_tolerance {\"") {
+        let Some(length) = text[start..].find('}') else { break };
+        let inside = &text[start + "group_tolerance {".len()..start + length];
+        let Some((column, value)) = inside.split_once(':') else {
+            break;
+        };
+        let option = format!("--group-tolerance {}={}", column.trim().trim_matches('"'), value.trim());
+        text.replace_range(start..=start + length, &option);
+    }
+    text
 }
 
 /// The text after `error: ` for an error of a command: a daemon's error in the command's own
@@ -249,6 +304,24 @@ mod tests {
                 Words::Options,
                 "--series-by names `wafer`, which dataset `d` does not have; its columns are sample",
                 None,
+            ),
+            (
+                "spectrum.mobility: the sweep table holds sweeps at 2 K, 10 K; run with group_by [\"sample\", \"temperature_K\"] and group_tolerance {\"temperature_K\": 4} so that each call sees one sweep",
+                Some("give group_tolerance {\"temperature_K\": T}, T wider than the gaps"),
+                "invalid_data",
+                None,
+                Words::Options,
+                "spectrum.mobility: the sweep table holds sweeps at 2 K, 10 K; run with --group-by sample --group-by temperature_K and --group-tolerance temperature_K=4 so that each call sees one sweep",
+                Some("give --group-tolerance temperature_K=T, T wider than the gaps"),
+            ),
+            (
+                "group_tolerance names `field_T`, which is not a group_by column",
+                Some("the run groups by sample; add `field_T` to group_by"),
+                "invalid_params",
+                Some("group_tolerance"),
+                Words::Options,
+                "--group-tolerance names `field_T`, which is not a --group-by column",
+                Some("the run has --group-by sample; add --group-by `field_T`"),
             ),
             (
                 "group_by column `wafer` is not in the first input table",

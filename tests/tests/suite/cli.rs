@@ -200,6 +200,26 @@ async fn errors_name_the_options_to_change() {
             &["group_by"],
         ),
         (
+            &[
+                "run",
+                "hall.reduce",
+                "--input",
+                "readings=si-readings",
+                "--output",
+                "x",
+                "--group-by",
+                "sample",
+                "--group-tolerance",
+                "sample=1",
+            ],
+            &[
+                "--group-tolerance applies to numeric columns",
+                "`sample`",
+                "leave it out of --group-tolerance",
+            ],
+            &["group_tolerance"],
+        ),
+        (
             &["run", "hall.reduc", "--input", "readings=si-readings", "--output", "x"],
             &["no analysis named `hall.reduc`", "did you mean hall.reduce?"],
             &[],

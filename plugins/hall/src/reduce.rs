@@ -812,7 +812,9 @@ fn reduce_sample(
     // a drifting group's readings are kept as they came for its final reduction, should it
     // stay as measured.
     let mut largest_zero_field_t = 0.0_f64;
-    let mut drafts: Vec<RowDraft> = Vec::with_capacity(group_count);
+    // The drafts of the drifting groups only: a steady group's draft is its first row's,
+    // read from the finished rows once a drifting group calls for slopes at all.
+    let mut drifting_drafts: Vec<Option<RowDraft>> = Vec::with_capacity(group_count);
     let mut drifted: Vec<bool> = Vec::with_capacity(group_count);
     let mut as_measured: Vec<Prepared> = Vec::new();
     let mut final_rows: Vec<RowRecord> = Vec::with_capacity(group_count);
@@ -829,7 +831,7 @@ fn reduce_sample(
         let largest = if drifts {
             as_measured.extend_from_slice(readings);
             let (draft, largest) = draft_temperature_group(readings, sample, seen, settings, None);
-            drafts.push(draft);
+            drifting_drafts.push(Some(draft));
             largest
         } else {
             let largest = reduce_temperature_group(
@@ -841,13 +843,32 @@ fn reduce_sample(
                 &mut final_rows,
                 &mut warnings_of_group,
             );
-            drafts.push(final_rows[start].draft());
+            drifting_drafts.push(None);
             largest
         };
         final_bounds.push(start..final_rows.len());
         final_warnings.push(warnings_of_group);
         largest_zero_field_t = largest_zero_field_t.max(largest);
     }
+    if !drifted.iter().any(|drifts| *drifts) {
+        // A series at steady temperatures: the first pass's rows are the sample's rows as
+        // they stand, and no slope is needed.
+        let row_warnings = final_warnings.into_iter().flatten().collect();
+        return finish_sample(
+            sample,
+            sample_readings,
+            final_rows,
+            row_warnings,
+            largest_zero_field_t,
+            settings,
+            None,
+        );
+    }
+    let mut drafts: Vec<RowDraft> = drifting_drafts
+        .into_iter()
+        .zip(&final_bounds)
+        .map(|(draft, bounds)| draft.unwrap_or_else(|| final_rows[bounds.start].draft()))
+        .collect();
     // Further passes for the groups whose readings drifted: each reading brought to the
     // group's mean temperature with the series' own slopes, taken from the previous
     // pass (whose values the drift biased a little; a second correction removes what
@@ -908,9 +929,9 @@ fn reduce_sample(
     // The rows, group after group: a drifting group reduced in full once, corrected with its
     // last slopes or as measured. Without one (a series at steady temperatures), the first
     // pass's rows are the sample's rows as they stand.
-    let (records, row_warnings) = if drifted.iter().any(|drifts| *drifts) {
-        let mut records: Vec<RowRecord> = Vec::with_capacity(final_rows.len() + group_count);
-        let mut row_warnings: Vec<String> = Vec::new();
+    let mut records: Vec<RowRecord> = Vec::with_capacity(final_rows.len() + group_count);
+    let mut row_warnings: Vec<String> = Vec::new();
+    {
         let mut as_measured_start = 0usize;
         for (index, temperature_range) in temperature_ranges.iter().enumerate() {
             if !drifted[index] {
@@ -951,10 +972,38 @@ fn reduce_sample(
                 &mut row_warnings,
             );
         }
-        (records, row_warnings)
-    } else {
-        (final_rows, final_warnings.into_iter().flatten().collect())
-    };
+    }
+    let uncorrected_warning = uncorrected_drift_warning(
+        sample.name,
+        &records,
+        &refused_corrections,
+        &slopes,
+        &drifted,
+        &corrections,
+        steepest_slopes.is_some(),
+    );
+    finish_sample(
+        sample,
+        sample_readings,
+        records,
+        row_warnings,
+        largest_zero_field_t,
+        settings,
+        uncorrected_warning,
+    )
+}
+
+/// A sample's reduction from its rows: its own warnings (a remanent field taken as zero,
+/// drifting groups left as measured) and the voltage noise pooled over its series.
+fn finish_sample(
+    sample: &ResolvedSample<'_>,
+    sample_readings: &[Prepared],
+    records: Vec<RowRecord>,
+    row_warnings: Vec<String>,
+    largest_zero_field_t: f64,
+    settings: &ReduceSettings,
+    uncorrected_drift_warning: Option<String>,
+) -> SampleReduction {
     let mut warnings: Vec<String> = (largest_zero_field_t > STRICT_ZERO_FIELD_T)
         .then(|| {
             format!(
@@ -964,15 +1013,7 @@ fn reduce_sample(
         })
         .into_iter()
         .collect();
-    warnings.extend(uncorrected_drift_warning(
-        sample.name,
-        &records,
-        &refused_corrections,
-        &slopes,
-        &drifted,
-        &corrections,
-        steepest_slopes.is_some(),
-    ));
+    warnings.extend(uncorrected_drift_warning);
     // The sample's voltage noise pooled over every row of its series (JCGM 100:2008,
     // 4.2.8): one voltmeter, so one noise, for the rows with too little evidence of
     // their own.

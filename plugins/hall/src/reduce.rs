@@ -398,6 +398,21 @@ trait ReadingSource: Sync {
     }
     /// The sample column as runs covering the readings in order.
     fn sample_runs(&self) -> Cow<'_, [SampleRun<'_>]>;
+    /// Appends the readings of `range` to `buffer`, each as [`prepare_valid`] gives it with
+    /// `table` or, where that declines, as `otherwise` gives it.
+    fn extend_prepared(
+        &self,
+        range: Range<usize>,
+        sample_rank: u32,
+        table: &[u8; 4096],
+        otherwise: impl Fn(&ReadingView) -> Prepared,
+        buffer: &mut Vec<Prepared>,
+    ) {
+        buffer.extend(
+            self.readings(range)
+                .map(|view| prepare_valid(&view, sample_rank, table).unwrap_or_else(|| otherwise(&view))),
+        );
+    }
 }
 
 impl ReadingSource for &[RawReading] {
@@ -468,6 +483,49 @@ impl ReadingSource for ReadingColumns<'_> {
 
     fn sample_runs(&self) -> Cow<'_, [SampleRun<'_>]> {
         Cow::Borrowed(self.sample_runs)
+    }
+
+    /// Column by column, a block at a time: first each reading's contact-table entry from
+    /// the four contact columns, then the checks and the canonical reading from the four
+    /// value columns. Walking all eight columns in one loop kept more pointers than there
+    /// are registers, and the loop reloaded them from the stack for every reading. The
+    /// readings and their checks are those of [`prepare_valid`], so the results are too.
+    fn extend_prepared(
+        &self,
+        range: Range<usize>,
+        sample_rank: u32,
+        table: &[u8; 4096],
+        otherwise: impl Fn(&ReadingView) -> Prepared,
+        buffer: &mut Vec<Prepared>,
+    ) {
+        const BLOCK: usize = 256;
+        let mut entries = [ContactTables::INVALID; BLOCK];
+        let mut start = range.start;
+        while start < range.end {
+            let end = range.end.min(start + BLOCK);
+            let block = start..end;
+            let contacts = self.i_in[block.clone()]
+                .iter()
+                .zip(&self.i_out[block.clone()])
+                .zip(&self.v_pos[block.clone()])
+                .zip(&self.v_neg[block.clone()]);
+            for (entry, (((&i_in, &i_out), &v_pos), &v_neg)) in entries.iter_mut().zip(contacts) {
+                *entry = ContactTables::index(i_in, i_out, v_pos, v_neg)
+                    .map_or(ContactTables::INVALID, |index| table[index]);
+            }
+            let values = self.temperature_k[block.clone()]
+                .iter()
+                .zip(&self.field_t[block.clone()])
+                .zip(&self.current_a[block.clone()])
+                .zip(&self.voltage_v[block.clone()]);
+            buffer.extend(values.zip(&entries).enumerate().map(
+                |(offset, ((((&temperature_k, &field_t), &current_a), &voltage_v), &entry))| {
+                    canonical_reading(temperature_k, field_t, current_a, voltage_v, entry, sample_rank)
+                        .unwrap_or_else(|| otherwise(&self.reading(start + offset)))
+                },
+            ));
+            start = end;
+        }
     }
 
     #[inline]
@@ -722,10 +780,10 @@ fn prepare_sample<S: ReadingSource>(
     buffer: &mut Vec<Prepared>,
 ) -> Vec<(usize, u32)> {
     let table = tables.of(geometry);
-    let mark = |view: &ReadingView| {
-        prepare_valid(view, rank, table)
-            .unwrap_or_else(|| prepare(view, rank, geometry, tables).unwrap_or(Prepared::INVALID))
-    };
+    // A reading the table's quick checks decline: valid after all (contacts outside the
+    // table), or marked invalid for its reason to be asked again.
+    let checked = |view: &ReadingView| prepare(view, rank, geometry, tables).unwrap_or(Prepared::INVALID);
+    let mark = |view: &ReadingView| prepare_valid(view, rank, table).unwrap_or_else(|| checked(view));
     buffer.clear();
     buffer.reserve(ranges.iter().map(|range| range.len()).sum());
     for range in ranges {
@@ -733,7 +791,7 @@ fn prepare_sample<S: ReadingSource>(
             use rayon::prelude::*;
             buffer.par_extend(range.clone().into_par_iter().map(|index| mark(&source.reading(index))));
         } else {
-            buffer.extend(source.readings(range.clone()).map(|view| mark(&view)));
+            source.extend_prepared(range.clone(), rank, table, checked, buffer);
         }
     }
     if !buffer.iter().any(Prepared::is_invalid) {
@@ -1315,19 +1373,38 @@ impl ContactTables {
 /// look at (to refuse it with its reason, or to classify contacts outside the table).
 #[inline]
 fn prepare_valid(view: &ReadingView, sample_rank: u32, table: &[u8; 4096]) -> Option<Prepared> {
+    let entry = ContactTables::index(view.i_in, view.i_out, view.v_pos, view.v_neg)
+        .map_or(ContactTables::INVALID, |index| table[index]);
+    canonical_reading(
+        view.temperature_k,
+        view.field_t,
+        view.current_a,
+        view.voltage_v,
+        entry,
+        sample_rank,
+    )
+}
+
+/// The checks of [`prepare_valid`] on a reading's values, with its contact-table `entry`
+/// ([`ContactTables::INVALID`] for contacts outside the table).
+#[inline(always)]
+fn canonical_reading(
+    temperature_k: f64,
+    field_t: f64,
+    current_a: f64,
+    voltage_v: f64,
+    entry: u8,
+    sample_rank: u32,
+) -> Option<Prepared> {
     // Each bound is false for NaN, so the finite tests are folded into them.
-    let valid = (view.temperature_k > 0.0)
-        & (view.temperature_k <= LARGEST_READING_MAGNITUDE)
-        & (view.field_t.abs() <= LARGEST_READING_MAGNITUDE)
-        & (view.current_a.abs() >= SMALLEST_CURRENT_A)
-        & (view.current_a.abs() <= LARGEST_READING_MAGNITUDE)
-        & (view.voltage_v.abs() <= LARGEST_READING_MAGNITUDE);
+    let valid = (temperature_k > 0.0)
+        & (temperature_k <= LARGEST_READING_MAGNITUDE)
+        & (field_t.abs() <= LARGEST_READING_MAGNITUDE)
+        & (current_a.abs() >= SMALLEST_CURRENT_A)
+        & (current_a.abs() <= LARGEST_READING_MAGNITUDE)
+        & (voltage_v.abs() <= LARGEST_READING_MAGNITUDE)
+        & (entry != ContactTables::INVALID);
     if !valid {
-        return None;
-    }
-    let index = ContactTables::index(view.i_in, view.i_out, view.v_pos, view.v_neg)?;
-    let entry = table[index];
-    if entry == ContactTables::INVALID {
         return None;
     }
     // The entry's sign bits (3: current, 4: voltage) moved onto the values' sign bits: the
@@ -1336,10 +1413,10 @@ fn prepare_valid(view: &ReadingView, sample_rank: u32, table: &[u8; 4096]) -> Op
     Some(Prepared {
         sample_rank,
         slot: entry & 0b111,
-        temperature_k: view.temperature_k,
-        field_t: view.field_t,
-        current_a: flip(view.current_a, 3),
-        voltage_v: flip(view.voltage_v, 4),
+        temperature_k,
+        field_t,
+        current_a: flip(current_a, 3),
+        voltage_v: flip(voltage_v, 4),
     })
 }
 
@@ -1755,6 +1832,14 @@ fn walk_temperature_group(
     }
     let mut wanted = true;
     let mut start = 0usize;
+    // One setpoint's cells at a time, filled in place: returned by value, their 1.8 kB
+    // were copied once more per setpoint.
+    let mut field = FieldCells {
+        cells: [[None; 2]; MAX_SLOTS],
+        field_t: 0.0,
+        count: 0,
+        mean_temperatures: ReadingTemperatures::default(),
+    };
     while start < field_readings.len() {
         // Each setpoint's end is found as it is reached: sorting a cluster reorders only
         // its own readings, so the |B| order of the rest is untouched.
@@ -1766,7 +1851,7 @@ fn walk_temperature_group(
         // the readings as the full reduction does for the results to stay the same to the bit.
         cluster.sort_unstable_by_key(|reading| cell_key(reading, true));
         if wanted {
-            let mut field = summarize_field_cluster(cluster, summarize);
+            summarize_field_cluster(cluster, summarize, &mut field);
             field.mean_temperatures = mean_temperatures(cluster);
             wanted = row(&group, &zero, Some(&field));
         }
@@ -1774,13 +1859,21 @@ fn walk_temperature_group(
     largest_zero_field_t
 }
 
+/// Fills `field` with the cells of one field setpoint's readings (`cluster`), sorted by
+/// [`cell_key`]; its `mean_temperatures` are left to the caller.
 #[inline(always)]
-fn summarize_field_cluster(cluster: &[Prepared], summarize: impl Fn(&[Prepared]) -> CellSummary) -> FieldCells {
-    let mut cells: [[Option<CellSummary>; 2]; MAX_SLOTS] = [[None; 2]; MAX_SLOTS];
+fn summarize_field_cluster(
+    cluster: &[Prepared],
+    summarize: impl Fn(&[Prepared]) -> CellSummary,
+    field: &mut FieldCells,
+) {
+    for signs in &mut field.cells {
+        *signs = [None; 2];
+    }
     for range in runs_by_key(cluster, |reading| (reading.slot, reading.field_t < 0.0)) {
         let first = cluster[range.start];
         let sign = usize::from(first.field_t < 0.0);
-        cells[first.slot as usize][sign] = Some(summarize(&cluster[range]));
+        field.cells[first.slot as usize][sign] = Some(summarize(&cluster[range]));
     }
     let mean_abs = |negative: bool| {
         let (sum, count) = cluster
@@ -1796,10 +1889,7 @@ fn summarize_field_cluster(cluster: &[Prepared], summarize: impl Fn(&[Prepared])
         (Some(only), None) | (None, Some(only)) => only,
         (None, None) => unreachable!("a field cluster holds at least one reading"),
     };
-    FieldCells {
-        cells,
-        field_t,
-        count: cluster.len(),
-        mean_temperatures: ReadingTemperatures::default(),
-    }
+    field.field_t = field_t;
+    field.count = cluster.len();
+    field.mean_temperatures = ReadingTemperatures::default();
 }

@@ -24,7 +24,10 @@
 //!
 //! Files are compressed with LZ4 (Parquet's `LZ4_RAW`) and written without column statistics
 //! ([`STORED_COMPRESSION`]): a file is written on every import and run but read only at start,
-//! and this halves the encoding time of the zstd default for a few percent more bytes. Files
+//! and this halves the encoding time of the zstd default for a few percent more bytes. A
+//! column chunk whose first page LZ4 would shrink by less than a tenth (noisy measured values)
+//! is stored uncompressed ([`chunk_codec`]), which saves the compression's time for a few
+//! percent more bytes of that column. Files
 //! written by earlier versions (zstd) load as before. A kept Parquet import stays in its
 //! source's own codec; bytes that cannot be taken apart are encoded as usual.
 
@@ -33,6 +36,7 @@ use crate::errors::{ErrorKind, ServiceError, ServiceResult};
 use polars::io::parquet::write::{ParquetCompression, StatisticsOptions};
 use polars::prelude::*;
 use polars_arrow::datatypes::{ArrowSchema, PhysicalType as ArrowPhysicalType};
+use polars_parquet::parquet::page::Page;
 use polars_parquet::write::{
     array_to_columns, compress, fallible_streaming_iterator, get_dtype_encoding, schema_to_metadata_key,
     CompressedPage, CompressionOptions, DynIter, DynStreamingIterator, Encoding, FileWriter, KeyValue, Version,
@@ -339,8 +343,14 @@ fn write_row_groups(
                     array_to_columns(array, parquet_type.clone(), options, encoding)?
                         .into_iter()
                         .map(|pages| {
+                            // One codec for a column chunk (the format's rule), chosen on its first page.
+                            let mut codec = None;
                             pages
-                                .map(|page| compress(page?, Vec::new(), options.compression).map_err(PolarsError::from))
+                                .map(|page| {
+                                    let page = page?;
+                                    let codec = *codec.get_or_insert_with(|| chunk_codec(&page, options.compression));
+                                    compress(page, Vec::new(), codec).map_err(PolarsError::from)
+                                })
                                 .collect::<PolarsResult<Vec<CompressedPage>>>()
                         })
                         .collect::<PolarsResult<Vec<_>>>()
@@ -365,6 +375,39 @@ fn write_row_groups(
     writer.end(Some(key_value))?;
     writer.into_inner().flush()?;
     Ok(())
+}
+
+/// The bytes of a column chunk's first data page that [`chunk_codec`] tries to compress.
+const CODEC_PROBE_BYTES: usize = 8 << 10;
+
+/// A column chunk whose probe compresses to more than this share of its size is stored
+/// uncompressed.
+const INCOMPRESSIBLE_SHARE: f64 = 0.9;
+
+/// The codec of one column chunk, chosen on its first page: `stored` unless the first
+/// [`CODEC_PROBE_BYTES`] of a data page compress to more than [`INCOMPRESSIBLE_SHARE`] of
+/// their size, when the chunk is stored uncompressed. Measured values in plain encoding
+/// (an analysis's uncertainties, say) have noisy low bytes that LZ4 barely shrinks, and
+/// compressing them was about a quarter of an analysis output's encoding; columns that
+/// repeat (contacts, setpoints, flags, dictionaries) still compress. Readers take each
+/// chunk's codec from its own metadata (Apache Parquet format, `ColumnMetaData.codec`).
+fn chunk_codec(page: &Page, stored: CompressionOptions) -> CompressionOptions {
+    let Page::Data(data) = page else {
+        return stored;
+    };
+    let buffer = data.buffer();
+    if matches!(stored, CompressionOptions::Uncompressed) || buffer.len() < 2 * CODEC_PROBE_BYTES {
+        return stored;
+    }
+    // The page's middle, past its levels and any run at its start.
+    let middle = buffer.len() / 2 - CODEC_PROBE_BYTES / 2;
+    let probe = &buffer[middle..middle + CODEC_PROBE_BYTES];
+    let mut compressed = Vec::with_capacity(CODEC_PROBE_BYTES + 64);
+    match polars_parquet::parquet::compression::compress(stored, probe, &mut compressed) {
+        Ok(()) if (compressed.len() as f64) <= INCOMPRESSIBLE_SHARE * probe.len() as f64 => stored,
+        Ok(()) => CompressionOptions::Uncompressed,
+        Err(_) => stored,
+    }
 }
 
 /// Takes a Parquet file apart at its footer and sets `key` to `value` in the footer's
@@ -704,6 +747,50 @@ mod tests {
         sweep(directory.path()).unwrap();
         assert!(!name.exists() && target.exists());
         assert_same(&read_dataset(&target).unwrap().0, &second);
+    }
+
+    #[test]
+    fn noisy_measurements_are_stored_uncompressed_and_repeating_columns_compressed() {
+        let directory = tempfile::tempdir().unwrap();
+        let rows = 50_000;
+        // A noisy value (an uncertainty, say: every bit of its mantissa varies) beside a
+        // setpoint that repeats and a count.
+        let mut state = 0x2545_f491_4f6c_dd1d_u64;
+        let noisy: Vec<f64> = (0..rows)
+            .map(|_| {
+                state ^= state << 13;
+                state ^= state >> 7;
+                state ^= state << 17;
+                1e-3 * (1.0 + (state >> 11) as f64 / (1u64 << 53) as f64)
+            })
+            .collect();
+        let setpoint: Vec<f64> = (0..rows).map(|i| 2.0 + (i / 16 % 625) as f64 * 0.5).collect();
+        let count: Vec<i64> = (0..rows as i64).map(|i| 16 + i % 2).collect();
+        let frame = df!("noisy" => noisy, "setpoint_K" => setpoint, "count" => count).unwrap();
+        let target = directory.path().join("codecs.parquet");
+        let manifest = manifest_of("codecs", &frame);
+        let staged = stage_dataset(directory.path(), target.clone(), &frame, &manifest, None, false).unwrap();
+        commit(directory.path(), vec![staged]).unwrap();
+        assert_same(&read_dataset(&target).unwrap().0, &frame);
+        let metadata = ParquetReader::new(File::open(&target).unwrap())
+            .get_metadata()
+            .unwrap()
+            .clone();
+        for group in &metadata.row_groups {
+            let codecs: Vec<_> = group
+                .parquet_columns()
+                .iter()
+                .map(|column| column.compression())
+                .collect();
+            assert_eq!(
+                codecs,
+                [
+                    polars_parquet::parquet::compression::Compression::Uncompressed,
+                    polars_parquet::parquet::compression::Compression::Lz4Raw,
+                    polars_parquet::parquet::compression::Compression::Lz4Raw
+                ]
+            );
+        }
     }
 
     #[test]

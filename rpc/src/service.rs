@@ -36,7 +36,7 @@ pub use mobilis_protocol::params::{
 };
 mod groups;
 
-use groups::{group_rows, rows_matching};
+use groups::group_rows;
 pub use groups::{summary_table, RunSummary};
 
 use mobilis_protocol::results::{
@@ -942,6 +942,15 @@ impl Service {
         let mut group_summaries = Vec::with_capacity(groups.len());
         let mut warnings = Vec::new();
         let group_count = groups.len();
+        // The other inputs that hold the group columns, read once for all the groups.
+        let matchers: Vec<Option<groups::GroupMatcher>> = inputs
+            .iter()
+            .enumerate()
+            .map(|(index, (_, frame))| {
+                let has_keys = group_columns.iter().all(|c| frame.column(c).is_ok());
+                (index > 0 && has_keys).then(|| groups::GroupMatcher::new(frame, group_columns, &tolerances))
+            })
+            .collect();
         for (group_index, group) in groups.iter().enumerate() {
             let (key, rows) = (&group.key, &group.rows);
             if control.cancelled.load(Ordering::Relaxed) {
@@ -954,13 +963,12 @@ impl Service {
             control.enter(whole.part(group_index, group_count, &format!("[{label}]")));
             let mut group_inputs = Vec::with_capacity(inputs.len());
             for (index, (role, frame)) in inputs.iter().enumerate() {
-                let has_keys = group_columns.iter().all(|c| frame.column(c).is_ok());
                 let subset = if index == 0 {
                     frame.take(&IdxCa::from_vec(PlSmallStr::from_static("rows"), rows.clone()))
-                } else if has_keys {
+                } else if let Some(matcher) = &matchers[index] {
                     frame.take(&IdxCa::from_vec(
                         PlSmallStr::from_static("rows"),
-                        rows_matching(frame, group_columns, &tolerances, group),
+                        matcher.rows_of(group),
                     ))
                 } else {
                     Ok(frame.clone())

@@ -286,42 +286,79 @@ pub(super) fn group_rows(
     Ok(order)
 }
 
-/// Rows of `frame` that belong to `group`: another input's share of one group. A column
-/// grouped exactly must hold the group's value; a column grouped with a tolerance, a value
-/// within the tolerance of the group's span.
+/// Another input's share of each group: its rows whose group columns hold a group's key.
+/// A column grouped exactly must hold the group's value; a column grouped with a tolerance,
+/// a value within the tolerance of the group's span. Each row's values are read once when
+/// the matcher is made, so that matching a run's groups against the input costs one
+/// comparison per row and group instead of a read (and a cast) of every row per group.
+pub(super) struct GroupMatcher {
+    /// Per group column: each row's value, as the exact comparison reads it.
+    exact: Vec<Vec<AnyValue<'static>>>,
+    /// Per group column grouped with a tolerance: each row's value as a float (`None` for a
+    /// null or a value that is not a number).
+    numbers: Vec<Option<Vec<Option<f64>>>>,
+    tolerances: Vec<Option<f64>>,
+    height: usize,
+}
+
+impl GroupMatcher {
+    pub(super) fn new(frame: &DataFrame, columns: &[String], tolerances: &[Option<f64>]) -> Self {
+        let series: Vec<&Series> = columns
+            .iter()
+            .map(|name| frame.column(name).expect("checked").as_materialized_series())
+            .collect();
+        let numbers = series
+            .iter()
+            .zip(tolerances)
+            .map(|(s, tolerance)| {
+                tolerance
+                    .and_then(|_| s.cast(&DataType::Float64).ok())
+                    .and_then(|cast| cast.f64().ok().map(|values| values.iter().collect()))
+            })
+            .collect();
+        // Every column's exact values: a tolerance column's too, for its group of nulls.
+        let exact = series
+            .iter()
+            .map(|s| s.iter().map(|value| value.into_static()).collect())
+            .collect();
+        GroupMatcher {
+            exact,
+            numbers,
+            tolerances: tolerances.to_vec(),
+            height: frame.height(),
+        }
+    }
+
+    /// The rows of `group`, in row order.
+    pub(super) fn rows_of(&self, group: &Group) -> Vec<IdxSize> {
+        (0..self.height)
+            .filter(|&row| {
+                (0..self.tolerances.len()).all(|column| {
+                    match (&self.numbers[column], group.spans[column], self.tolerances[column]) {
+                        (Some(values), Some((low, high)), Some(tolerance)) => {
+                            values[row].is_some_and(|value| value >= low - tolerance && value <= high + tolerance)
+                        }
+                        _ => self.exact[column]
+                            .get(row)
+                            .is_some_and(|value| *value == group.key[column]),
+                    }
+                })
+            })
+            .map(|row| row as IdxSize)
+            .collect()
+    }
+}
+
+/// Rows of `frame` that belong to `group` (see [`GroupMatcher`], which a run of many
+/// groups makes once per input).
+#[cfg(test)]
 pub(super) fn rows_matching(
     frame: &DataFrame,
     columns: &[String],
     tolerances: &[Option<f64>],
     group: &Group,
 ) -> Vec<IdxSize> {
-    let series: Vec<&Series> = columns
-        .iter()
-        .map(|name| frame.column(name).expect("checked").as_materialized_series())
-        .collect();
-    let numbers: Vec<Option<Series>> = series
-        .iter()
-        .zip(tolerances)
-        .map(|(s, tolerance)| tolerance.and_then(|_| s.cast(&DataType::Float64).ok()))
-        .collect();
-    (0..frame.height())
-        .filter(|&row| {
-            (0..series.len()).all(
-                |column| match (&numbers[column], group.spans[column], tolerances[column]) {
-                    (Some(values), Some((low, high)), Some(tolerance)) => values
-                        .f64()
-                        .ok()
-                        .and_then(|values| values.get(row))
-                        .is_some_and(|value| value >= low - tolerance && value <= high + tolerance),
-                    _ => series[column]
-                        .get(row)
-                        .map(|value| value.into_static() == group.key[column])
-                        .unwrap_or(false),
-                },
-            )
-        })
-        .map(|row| row as IdxSize)
-        .collect()
+    GroupMatcher::new(frame, columns, tolerances).rows_of(group)
 }
 
 /// Whether a grouping looks like exact values of a logged, jittering quantity: a float
@@ -443,6 +480,50 @@ mod tests {
             .map(|group| rows_matching(&other, &only_temperature, &[Some(0.5)], group))
             .collect();
         assert_eq!(shares, vec![vec![0], Vec::<IdxSize>::new()]);
+    }
+
+    /// One matcher serves every group of a run: each group gets the rows an exact or a
+    /// tolerant comparison gives it, a group of nulls the other input's nulls.
+    #[test]
+    fn one_matcher_gives_every_group_its_rows_of_another_input() {
+        let primary = df!(
+            "sample" => ["s", "s", "s", "t"],
+            "temperature_K" => [Some(4.2), Some(10.0), None, Some(4.2)],
+        )
+        .unwrap();
+        let columns = ["sample".to_owned(), "temperature_K".to_owned()];
+        let tolerances = [None, Some(0.5)];
+        let groups = group_rows(&primary, &columns, &tolerances).unwrap();
+        let other = df!(
+            "sample" => ["t", "s", "s", "s", "s"],
+            "temperature_K" => [Some(4.4), None, Some(9.6), Some(4.0), Some(7.0)],
+            "x" => [1.0, 2.0, 3.0, 4.0, 5.0],
+        )
+        .unwrap();
+        let matcher = GroupMatcher::new(&other, &columns, &tolerances);
+        let shares: Vec<(String, Vec<IdxSize>)> = groups
+            .iter()
+            .map(|group| (group.label(&columns), matcher.rows_of(group)))
+            .collect();
+        let share = |label: &str| {
+            shares
+                .iter()
+                .find(|(group, _)| group.as_str() == label)
+                .unwrap_or_else(|| panic!("no group {label} in {shares:?}"))
+                .1
+                .clone()
+        };
+        assert_eq!(share("sample=\"s\", temperature_K=4.2"), vec![3]);
+        assert_eq!(share("sample=\"s\", temperature_K=10"), vec![2]);
+        assert_eq!(share("sample=\"s\", temperature_K=null"), vec![1]);
+        assert_eq!(share("sample=\"t\", temperature_K=4.2"), vec![0]);
+        // The same rows as the one-group form gives.
+        for group in &groups {
+            assert_eq!(
+                matcher.rows_of(group),
+                rows_matching(&other, &columns, &tolerances, group)
+            );
+        }
     }
 
     #[test]

@@ -20,7 +20,7 @@
 
 use crate::abi::{ColumnSpec, ColumnType, InputRole};
 use crate::sdk::{self, AnalysisError};
-use mobilis_physics::sweep::{ResistivityUncertainty, SweepPoint, SymmetrizeSettings};
+use mobilis_physics::sweep::{RepeatSummary, ResistivityUncertainty, SweepPoint, SymmetrizeSettings};
 // The grouping is physics (the figures use it without tables); it is named here too because
 // it is what the `sweep` role's temperature parameters set.
 pub use mobilis_physics::sweep::{
@@ -202,6 +202,40 @@ pub fn single_field_sign_series_warning(temperatures_k: &[f64]) -> Option<String
         "single_field_sign: the sweeps at {} K have one field sign only, so rho_xx was taken as even in B as measured, not symmetrized: a Hall voltage picked up by misaligned longitudinal contacts (odd in B) stays in it; measure both field signs to remove it",
         list.join(", ")
     ))
+}
+
+/// The summary keys that count the points of a symmetrized sweep that merge several
+/// readings (repeated sweeps, or readings within `field_resolution_T` of each other), summed
+/// over a series' sweeps: every analysis that symmetrizes sweeps declares them, and
+/// [`repeat_summary`] gives their values.
+pub fn repeat_summary_keys() -> [ColumnSpec; 2] {
+    [
+        ColumnSpec::new(
+            "merged_points",
+            ColumnType::I64,
+            None,
+            "symmetrized points that merge two or more readings (repeated sweeps, or readings within field_resolution_T of each other)",
+        ),
+        ColumnSpec::new(
+            "widened_points",
+            ColumnType::I64,
+            None,
+            "merged points whose uncertainty was widened to their readings' scatter, the readings disagreeing beyond their stated uncertainties",
+        ),
+    ]
+}
+
+/// The values of [`repeat_summary_keys`] for the symmetrized sweeps of a run.
+pub fn repeat_summary<'a>(repeats: impl IntoIterator<Item = &'a RepeatSummary>) -> Map<String, Value> {
+    let (merged, widened) = repeats
+        .into_iter()
+        .fold((0usize, 0usize), |(merged, widened), repeats| {
+            (merged + repeats.merged_points, widened + repeats.widened_points)
+        });
+    let mut entries = Map::new();
+    entries.insert("merged_points".into(), json!(merged));
+    entries.insert("widened_points".into(), json!(widened));
+    entries
 }
 
 /// One sweep of a table.
@@ -394,6 +428,22 @@ pub fn single_sweep(frame: &DataFrame, grouping: &TemperatureGrouping) -> Result
 mod tests {
     use super::*;
     use polars::prelude::*;
+
+    #[test]
+    fn repeat_counts_add_up_over_a_series_and_are_declared() {
+        let sweep = |merged_points, widened_points| RepeatSummary {
+            merged_points,
+            widened_points,
+            ..Default::default()
+        };
+        let series = [sweep(73, 73), sweep(10, 0), sweep(0, 0)];
+        let summary = repeat_summary(&series);
+        assert_eq!(summary["merged_points"], json!(83));
+        assert_eq!(summary["widened_points"], json!(73));
+        assert_eq!(repeat_summary([]), repeat_summary([&sweep(0, 0)]));
+        let declared: Vec<String> = repeat_summary_keys().iter().map(|key| key.name.clone()).collect();
+        assert_eq!(declared, summary.keys().cloned().collect::<Vec<_>>());
+    }
 
     #[test]
     fn a_table_splits_into_sweeps_by_temperature() {

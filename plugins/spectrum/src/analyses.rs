@@ -23,7 +23,9 @@ use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType};
 use mobilis_sdk::choices::CarrierChoice;
 use mobilis_sdk::figure_spec::FigureSpec;
 use mobilis_sdk::sdk::{invalid, Analysis, AnalysisError, AnalysisOutput, Host, Inputs, OutputBuilder};
-use mobilis_sdk::sweep_table::{single_sweep, sweep_role, SweepParams, SweepTable};
+use mobilis_sdk::sweep_table::{
+    repeat_summary, repeat_summary_keys, single_sweep, sweep_role, SweepParams, SweepTable,
+};
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 use serde_json::{json, Value};
@@ -73,6 +75,7 @@ impl SweepDeclaration {
                 "true when the sweep had one field sign: used as measured, the Hall contacts' misalignment not removed",
             ),
         ]);
+        summary_keys.extend(repeat_summary_keys());
         AnalysisDeclaration {
             summary: self.summary.into(),
             description: self.description.into(),
@@ -284,6 +287,7 @@ impl Analysis for MultiCarrierFitAnalysis {
             .summary("max_rho_xy_asymmetry", result.symmetrized.max_rho_xy_asymmetry)
             .summary("max_interpolation_correction", result.max_interpolation_correction)
             .summary("single_field_sign", result.symmetrized.single_field_sign)
+            .summary_map(repeat_summary([&result.symmetrized.repeats]))
             .warnings(table.warnings)
             .warnings(result.symmetrized.warnings(SweepUse::Tensor))
             .warnings(fit.warnings.iter().cloned());
@@ -486,6 +490,7 @@ impl Analysis for MobilitySpectrumAnalysis {
             .summary("total_conductance_S", spectrum.total_conductance_s)
             .summary_map(crate::mobility_spectrum::summary::spectrum_summary(&spectrum))
             .summary("single_field_sign", symmetrized.single_field_sign)
+            .summary_map(repeat_summary([&symmetrized.repeats]))
             .warnings(table.warnings)
             .warnings(symmetrized.warnings(SweepUse::Tensor))
             .warnings(spectrum.warnings.iter().cloned());

@@ -115,6 +115,16 @@ async fn a_sweep_imported_twice_that_disagrees_is_not_answered_as_one_measuremen
     }
     let warnings = repeat_warnings(&ratio);
     assert_eq!(warnings.len(), 1, "{ratio}");
+    // The counts in the summary, for a report or a script: every one of the 73 points merges
+    // two readings, and every one was widened to their scatter; one copy merges none.
+    let counts = |result: &Value| {
+        (
+            result["summary"]["merged_points"].as_u64().unwrap(),
+            result["summary"]["widened_points"].as_u64().unwrap(),
+        )
+    };
+    assert_eq!(counts(&single), (0, 0), "{single}");
+    assert_eq!(counts(&ratio), (73, 73), "{ratio}");
     // 73 fields: every merged point disagrees in rho_xx, the worst named with its column.
     assert!(
         warnings[0].contains("at 73 of the 73 points")
@@ -169,6 +179,8 @@ async fn a_sweep_imported_twice_that_disagrees_is_not_answered_as_one_measuremen
         .call("analysis.run", run("mr.two_band_fit", "twice", "two-band", json!({})))
         .await;
     assert_eq!(repeat_warnings(&two_band).len(), 1, "{two_band}");
+    assert_eq!(counts(&two_band), (73, 73), "{two_band}");
+    assert_eq!(counts(&fit), counts(&ratio), "{fit}");
     let spectrum = daemon
         .call(
             "analysis.run",
@@ -181,4 +193,9 @@ async fn a_sweep_imported_twice_that_disagrees_is_not_answered_as_one_measuremen
         )
         .await;
     assert_eq!(repeat_warnings(&spectrum).len(), 1, "{spectrum}");
+    assert_eq!(counts(&spectrum), (73, 73), "{spectrum}");
+    let symmetrized = daemon
+        .call("analysis.run", run("mr.symmetrize", "twice", "symmetrized", json!({})))
+        .await;
+    assert_eq!(counts(&symmetrized), (73, 73), "{symmetrized}");
 }

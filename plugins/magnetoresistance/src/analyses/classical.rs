@@ -10,7 +10,8 @@ use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType};
 use mobilis_sdk::choices::CarrierChoice;
 use mobilis_sdk::sdk::{invalid, Analysis, AnalysisError, AnalysisOutput, Host, Inputs, OutputBuilder};
 use mobilis_sdk::sweep_table::{
-    single_field_sign_series_warning, single_sweep, sweep_role, sweeps_by_temperature, SweepParams,
+    repeat_summary, repeat_summary_keys, single_field_sign_series_warning, single_sweep, sweep_role,
+    sweeps_by_temperature, SweepParams,
 };
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
@@ -24,6 +25,13 @@ pub(crate) fn single_field_sign_key() -> ColumnSpec {
         None,
         "true when the sweep had one field sign and was used as measured, not symmetrized (contact misalignment not removed)",
     )
+}
+
+/// `keys` and the counts of merged repeated readings ([`repeat_summary_keys`]), which every
+/// analysis of symmetrized sweeps reports.
+pub(crate) fn with_repeat_keys(mut keys: Vec<ColumnSpec>) -> Vec<ColumnSpec> {
+    keys.extend(repeat_summary_keys());
+    keys
 }
 
 /// Where rho(0) comes from: the `zero_field` parameter of `mr.ratio` and `mr.kohler`.
@@ -119,7 +127,7 @@ impl Analysis for SymmetrizeAnalysis {
                 ColumnSpec::new("rho_xx_asymmetry", F64, None, "removed part relative to rho_xx"),
                 ColumnSpec::new("rho_xy_asymmetry", F64, None, "removed part relative to rho_xy"),
             ],
-            summary_keys: vec![
+            summary_keys: with_repeat_keys(vec![
                 ColumnSpec::new("sample", ColumnType::Str, None, "the sweep's sample"),
                 ColumnSpec::new("temperature_K", ColumnType::F64, Some("K"), "the sweep's temperature"),
                 ColumnSpec::new("hall_pickup_fraction", ColumnType::F64, None, "part of rho_xx picked up in rho_xy, with _unc"),
@@ -128,7 +136,7 @@ impl Analysis for SymmetrizeAnalysis {
                 ColumnSpec::new("points_outside_overlap", ColumnType::I64, None, "points outside the overlap of the field signs"),
                 ColumnSpec::new("misalignment_fraction", F64, None, "rho_xy_even / rho_xx at low field, with _unc"),
                 ColumnSpec::new("max_rho_xy_asymmetry", F64, None, "largest removed even part relative to rho_xy"),
-            ],
+            ]),
             figures: crate::figures::symmetrize(),
             ..Default::default()
         }
@@ -168,6 +176,7 @@ impl Analysis for SymmetrizeAnalysis {
             .summary("max_rho_xy_asymmetry", s.max_rho_xy_asymmetry)
             .summary("overlap_T", [s.overlap_t.0, s.overlap_t.1])
             .summary("points_outside_overlap", s.points_outside_overlap)
+            .summary_map(repeat_summary([&result.symmetrized.repeats]))
             .warnings(sweep.warnings.iter().cloned())
             .warnings(result.warnings.iter().cloned());
         output.finish(rows.len())
@@ -206,7 +215,7 @@ impl Analysis for RatioAnalysis {
                 ColumnSpec::new("magnetoresistance", F64, None, "(rho(B) - rho(0)) / rho(0)"),
                 ColumnSpec::new("magnetoresistance_unc", F64, None, "standard uncertainty: propagated from rho_xx_ohm_sq_unc, or estimated from the curve's scatter (see estimated_uncertainty_temperatures_K)"),
             ],
-            summary_keys: vec![
+            summary_keys: with_repeat_keys(vec![
                 ColumnSpec::new("sample", ColumnType::Str, None, "the sweep's sample"),
                 ColumnSpec::new("temperature_K", ColumnType::F64, Some("K"), "the sweep's temperature"),
                 ColumnSpec::new("rho0_method", ColumnType::Str, None, "how rho(0) was obtained"),
@@ -216,7 +225,7 @@ impl Analysis for RatioAnalysis {
                 ColumnSpec::new("rho0_ohm_sq", F64, Some("ohm_sq"), "zero-field sheet resistivity, with _unc"),
                 ColumnSpec::new("magnetoresistance_at_max_field", F64, None, "MR at the largest field"),
                 single_field_sign_key(),
-            ],
+            ]),
             figures: crate::figures::ratio(),
             ..Default::default()
         }
@@ -246,6 +255,7 @@ impl Analysis for RatioAnalysis {
             .summary("max_magnetoresistance", curve.max_mr)
             .summary("max_magnetoresistance_field_T", curve.max_mr_field_t)
             .summary("single_field_sign", curve.single_field_sign)
+            .summary_map(repeat_summary([&curve.symmetrized.repeats]))
             .warnings(sweep.warnings.iter().cloned())
             .warnings(curve.warnings.iter().cloned());
         output.finish(points.len())
@@ -312,7 +322,7 @@ impl Analysis for KohlerAnalysis {
                 ColumnSpec::new("magnetoresistance_unc", F64, None, "standard uncertainty: propagated from rho_xx_ohm_sq_unc, or estimated from the curve's scatter (see estimated_uncertainty_temperatures_K)"),
                 ColumnSpec::new("used", Bool, None, "inside the common range"),
             ],
-            summary_keys: vec![
+            summary_keys: with_repeat_keys(vec![
                 ColumnSpec::new("sample", ColumnType::Str, None, "the series' sample"),
                 ColumnSpec::new("temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures of the series"),
                 ColumnSpec::new("tolerance", ColumnType::F64, None, "the collapse tolerance used"),
@@ -327,7 +337,7 @@ impl Analysis for KohlerAnalysis {
                 ColumnSpec::new("rms_excess_spread", F64, None, "rms spread of ln MR beyond the noise"),
                 ColumnSpec::new("estimated_uncertainty_temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures whose sweeps had no rho_xx_ohm_sq_unc: their MR uncertainties were estimated from each curve's own scatter"),
                 single_field_sign_key(),
-            ],
+            ]),
             figures: crate::figures::kohler(),
             ..Default::default()
         }
@@ -339,6 +349,7 @@ impl Analysis for KohlerAnalysis {
         let mut curves = Vec::with_capacity(sweeps.len());
         let mut sweep_warnings: Vec<String> = Vec::new();
         let mut single_sign_temperatures: Vec<f64> = Vec::new();
+        let mut repeats = Vec::with_capacity(sweeps.len());
         for sweep in &sweeps {
             host.check_cancelled()?;
             let temperature = sweep
@@ -362,6 +373,7 @@ impl Analysis for KohlerAnalysis {
                     .map(|w| format!("sweep at {} K: {w}", mobilis_physics::units::format_number(temperature))),
             );
             curves.push(KohlerCurve::from_ratio(temperature, &curve));
+            repeats.push(curve.symmetrized.repeats);
         }
         let analysis = kohler(&curves, &params.settings()).map_err(|e| invalid(e.to_string()))?;
         let points = &analysis.points;
@@ -415,6 +427,7 @@ impl Analysis for KohlerAnalysis {
                     })
                     .collect::<Vec<Value>>(),
             );
+        output.summary_map(repeat_summary(&repeats));
         series_field_signs(&mut output, &single_sign_temperatures, sweep_warnings);
         output.warnings(analysis.warnings.iter().cloned());
         output.finish(points.len())
@@ -486,7 +499,7 @@ impl Analysis for TwoBandAnalysis {
                 ColumnSpec::new("residual_xx", F64, None, "whitened residual"),
                 ColumnSpec::new("residual_xy", F64, None, "whitened residual"),
             ],
-            summary_keys: vec![
+            summary_keys: with_repeat_keys(vec![
                 ColumnSpec::new("sample", ColumnType::Str, None, "the sweep's sample"),
                 ColumnSpec::new("temperature_K", ColumnType::F64, Some("K"), "the sweep's temperature"),
                 ColumnSpec::new("chi_square", ColumnType::F64, None, "chi^2 of the fit"),
@@ -499,7 +512,7 @@ impl Analysis for TwoBandAnalysis {
                 ColumnSpec::new("chi_square_p_value", F64, None, "P(chi^2 >= observed) when the sweep's uncertainties weight the fit, else null"),
                 ColumnSpec::new("birge_ratio", F64, None, "sqrt(chi^2 / nu) when above 1 (the uncertainties were multiplied by it), else 1; null without stated uncertainties"),
                 single_field_sign_key(),
-            ],
+            ]),
             figures: crate::figures::two_band_fit(),
             ..Default::default()
         }
@@ -561,6 +574,7 @@ impl Analysis for TwoBandAnalysis {
                 fit.high_field_hall_coefficient_m2_per_c,
             )
             .summary("single_field_sign", result.symmetrized.single_field_sign)
+            .summary_map(repeat_summary([&result.symmetrized.repeats]))
             .warnings(sweep.warnings.iter().cloned())
             .warnings(fit.warnings.iter().cloned());
         output.finish(curve.len())

@@ -16,11 +16,11 @@ use crate::weak_localization::{fit_weak_localization, WeakLocalizationSettings, 
 use mobilis_numerics::fft::Window;
 use mobilis_numerics::fit::FitQuality;
 use mobilis_physics::forward::oscillations::thermal_damping_factor;
-use mobilis_physics::sweep::{symmetrize, SweepUse};
+use mobilis_physics::sweep::{symmetrize, RepeatSummary, SweepUse};
 use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType};
 use mobilis_sdk::sdk::{invalid, Analysis, AnalysisError, AnalysisOutput, FloatColumn, Host, Inputs, OutputBuilder};
 use mobilis_sdk::sweep_table::{
-    single_sweep, sweep_role, sweeps_by_temperature, SweepParams, SweepTable, TemperatureGroupingParams,
+    repeat_summary, single_sweep, sweep_role, sweeps_by_temperature, SweepParams, SweepTable, TemperatureGroupingParams,
 };
 use polars::prelude::PlSmallStr;
 use schemars::JsonSchema;
@@ -309,7 +309,7 @@ impl Analysis for OscillationsAnalysis {
                 ColumnSpec::new("dingle_ordinate", F64, None, "ln(A sinh X / X), A in ohm per square (dingle rows; the fitted line on dingle_fit rows)"),
                 ColumnSpec::new("landau_index", F64, None, "Landau level index: integer at minima of rho_xx, half-integer at maxima (landau rows); F_fan / B + beta on landau_fit rows"),
             ],
-            summary_keys: vec![
+            summary_keys: super::classical::with_repeat_keys(vec![
                 ColumnSpec::new("lines", ColumnType::Str, None, "list of {frequency_T, sheet_density_m2, ...} with _unc: one entry per frequency found"),
                 ColumnSpec::new("sample", ColumnType::Str, None, "the series' sample"),
                 ColumnSpec::new("temperatures_K", ColumnType::F64, Some("K"), "list of the temperatures of the series"),
@@ -331,7 +331,7 @@ impl Analysis for OscillationsAnalysis {
                 super::classical::single_field_sign_key(),
                 ColumnSpec::new("calibrations_not_stated", Str, None, "the calibration parameters not stated, whose common-practice values were assumed in the _unc_sys parts (JSON list)"),
                 ColumnSpec::new("uncertainty_checks", Str, None, "the repeated analyses whose spread is in the _unc_stat parts (JSON list)"),
-            ],
+            ]),
             figures: crate::figures::oscillations(),
             ..Default::default()
         }
@@ -349,6 +349,7 @@ impl Analysis for OscillationsAnalysis {
         let mut out = OutputBuilder::of::<Self>();
         let height = oscillation_table(&mut out, &analysis);
         fill_oscillation_summary(&mut out, &analysis, &tables, &symmetrized.sweeps);
+        out.summary_map(repeat_summary(&symmetrized.repeats));
         super::classical::series_field_signs(&mut out, &symmetrized.single_sign_temperatures, symmetrized.warnings);
         out.warnings(analysis.warnings.iter().cloned());
         host.progress(1.0, "done");
@@ -362,6 +363,8 @@ struct SymmetrizedSweeps {
     sweeps: Vec<OscillationSweep>,
     warnings: Vec<String>,
     single_sign_temperatures: Vec<f64>,
+    /// Each sweep's merged repeated readings.
+    repeats: Vec<RepeatSummary>,
 }
 
 /// Each sweep symmetrized (rho_xx even in B) and cut to B > 0.
@@ -370,6 +373,7 @@ fn symmetrized_sweeps(params: &OscillationParams, tables: &[SweepTable]) -> Resu
     let mut sweeps = Vec::with_capacity(tables.len());
     let mut sweep_warnings: Vec<String> = Vec::new();
     let mut single_sign_temperatures: Vec<f64> = Vec::new();
+    let mut repeats = Vec::with_capacity(tables.len());
     // The sweeps are symmetrized independently, in parallel; their results are then taken
     // in table order, so the first refusal is the one a serial loop would give.
     let outcomes: Vec<Result<(f64, _), AnalysisError>> = {
@@ -408,6 +412,7 @@ fn symmetrized_sweeps(params: &OscillationParams, tables: &[SweepTable]) -> Resu
                     )
                 }),
         );
+        repeats.push(symmetrized.repeats.clone());
         let (field_t, rho_xx_ohm_sq) = symmetrized
             .points
             .iter()
@@ -422,6 +427,7 @@ fn symmetrized_sweeps(params: &OscillationParams, tables: &[SweepTable]) -> Resu
     }
     Ok(SymmetrizedSweeps {
         sweeps,
+        repeats,
         warnings: sweep_warnings,
         single_sign_temperatures,
     })

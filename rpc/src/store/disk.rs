@@ -17,7 +17,8 @@
 //! `sync_file_range`, from a thread beside the writer) while the next is encoded, so the
 //! `fsync` that makes the file durable waits for the last stretch only (an analysis's
 //! 62,500-row output: 2 ms instead of 11). Only one row group's encoded pages are held at a
-//! time, so writing a large table costs little memory beyond the table. A Parquet import whose decoded frame is stored unchanged keeps the source file's bytes
+//! time, so writing a large table costs little memory beyond the table. A Parquet import
+//! whose decoded frame is stored unchanged keeps the source file's bytes
 //! instead of encoding them again ([`stage_dataset`], [`footer_with_entry`]): the data pages
 //! stay as they are and only the footer is rewritten with the manifest added, so the stored file
 //! reads back to the very frame the import decoded.
@@ -27,9 +28,9 @@
 //! and this halves the encoding time of the zstd default for a few percent more bytes. A
 //! column chunk whose first page LZ4 would shrink by less than a tenth (noisy measured values)
 //! is stored uncompressed ([`chunk_codec`]), which saves the compression's time for a few
-//! percent more bytes of that column. Files
-//! written by earlier versions (zstd) load as before. A kept Parquet import stays in its
-//! source's own codec; bytes that cannot be taken apart are encoded as usual.
+//! percent more bytes of that column. Files written by earlier versions (zstd) load as
+//! before. A kept Parquet import stays in its source's own codec; bytes that cannot be taken
+//! apart are encoded as usual.
 
 use super::manifest::{storage_error, Manifest};
 use crate::errors::{ErrorKind, ServiceError, ServiceResult};
@@ -377,16 +378,18 @@ fn write_row_groups(
     Ok(())
 }
 
-/// The bytes of a column chunk's first data page that [`chunk_codec`] tries to compress.
+/// The bytes from the middle of a column chunk's first data page that [`chunk_codec`]
+/// tries to compress.
 const CODEC_PROBE_BYTES: usize = 8 << 10;
 
 /// A column chunk whose probe compresses to more than this share of its size is stored
 /// uncompressed.
 const INCOMPRESSIBLE_SHARE: f64 = 0.9;
 
-/// The codec of one column chunk, chosen on its first page: `stored` unless the first
-/// [`CODEC_PROBE_BYTES`] of a data page compress to more than [`INCOMPRESSIBLE_SHARE`] of
-/// their size, when the chunk is stored uncompressed. Measured values in plain encoding
+/// The codec of one column chunk, chosen on its first page: `stored` unless
+/// [`CODEC_PROBE_BYTES`] from the middle of a data page compress to more than
+/// [`INCOMPRESSIBLE_SHARE`] of their size, when the chunk is stored uncompressed (a page too
+/// small to probe keeps `stored`). Measured values in plain encoding
 /// (an analysis's uncertainties, say) have noisy low bytes that LZ4 barely shrinks, and
 /// compressing them was about a quarter of an analysis output's encoding; columns that
 /// repeat (contacts, setpoints, flags, dictionaries) still compress. Readers take each

@@ -628,6 +628,13 @@ impl OutputBuilder {
     }
 }
 
+/// How a message names a row of an input table: as a person counts data rows, from 1 (as
+/// the daemon's own import messages do), with the 0-based offset `dataset.rows` takes to
+/// show it: `data row 6 (offset 5)`.
+pub fn data_row(row: usize) -> String {
+    format!("data row {} (offset {row})", row + 1)
+}
+
 /// An [`AnalysisError::InvalidInput`] with this message: the input or the parameters must
 /// change.
 pub fn invalid(message: impl Into<String>) -> AnalysisError {

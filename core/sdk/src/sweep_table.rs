@@ -303,7 +303,8 @@ pub fn sweeps_by_temperature(
         let value = |v: Option<f64>, name: &str| {
             v.ok_or_else(|| {
                 invalid(format!(
-                    "row {row}: `{name}` is empty; every sweep point needs B, rho_xx and rho_xy"
+                    "{}: `{name}` is empty; every sweep point needs B, rho_xx and rho_xy",
+                    sdk::data_row(row)
                 ))
             })
         };
@@ -318,7 +319,8 @@ pub fn sweeps_by_temperature(
         if let Some(t) = temperatures[row] {
             if !t.is_finite() {
                 return Err(invalid(format!(
-                    "row {row}: temperature_K is {t}; give a finite temperature or leave the cell empty"
+                    "{}: temperature_K is {t}; give a finite temperature or leave the cell empty",
+                    sdk::data_row(row)
                 )));
             }
         }
@@ -511,7 +513,7 @@ mod tests {
         assert!(single_sweep(&frame, &TemperatureGrouping::default())
             .unwrap_err()
             .to_string()
-            .contains("row 1"));
+            .contains("data row 2 (offset 1): `field_T` is empty"));
     }
 
     /// A table of `per_sweep` rows at each temperature, each row's temperature offset by
@@ -595,7 +597,7 @@ mod tests {
             .unwrap_err()
             .to_string();
         assert!(
-            message.contains("row 1") && message.contains("temperature_K"),
+            message.contains("data row 2 (offset 1): temperature_K is NaN"),
             "{message}"
         );
     }

@@ -54,7 +54,7 @@ pub mod figures;
 pub mod reduce;
 
 use mobilis_sdk::abi::{AnalysisDeclaration, ColumnSpec, ColumnType, InputRole};
-use mobilis_sdk::sdk::{self, Analysis, AnalysisError, AnalysisOutput, Host, Inputs, OutputBuilder};
+use mobilis_sdk::sdk::{self, data_row, Analysis, AnalysisError, AnalysisOutput, Host, Inputs, OutputBuilder};
 use polars::prelude::*;
 use reduce::{
     calibration_names, flags, float_column, Calibration, FlagSet, FloatColumn, Geometry, QualityThresholds,
@@ -531,8 +531,8 @@ fn sample_runs(column: &StringChunked) -> Result<Vec<reduce::SampleRun<'_>>, Ana
         if array.null_count() > 0 {
             let first_null = (0..array.len()).find(|&index| array.is_null(index)).unwrap_or(0);
             return Err(AnalysisError::InvalidInput(format!(
-                "reading {}: `sample` is empty; name the sample of every reading",
-                row + first_null
+                "reading in {}: `sample` is empty; name the sample of every reading",
+                data_row(row + first_null)
             )));
         }
         let views = array.views();
@@ -801,7 +801,7 @@ fn contact_columns<'a>(frame: &'a DataFrame, storage: [&'a mut Vec<i64>; 4]) -> 
             continue;
         };
         let contacts = mobilis_physics::contacts::parse_pair_notation(cell)
-            .map_err(|error| AnalysisError::InvalidInput(format!("reading {row}: {error}")))?;
+            .map_err(|error| AnalysisError::InvalidInput(format!("reading in {}: {error}", data_row(row))))?;
         parsed.push(contacts);
     }
     if !present.is_empty() {
@@ -817,7 +817,8 @@ fn contact_columns<'a>(frame: &'a DataFrame, storage: [&'a mut Vec<i64>; 4]) -> 
                     let either_empty = value == reduce::EMPTY_CONTACT || contacts[index] == reduce::EMPTY_CONTACTS_CELL;
                     if !either_empty && value != contacts[index] {
                         return Err(AnalysisError::InvalidInput(format!(
-                            "reading {row}: `contacts` says {name} = {}, the column {name} says {value}; give one of the two, or make them agree",
+                            "reading in {}: `contacts` says {name} = {}, the column {name} says {value}; give one of the two, or make them agree",
+                            data_row(row),
                             contacts[index]
                         )));
                     }
@@ -1165,7 +1166,10 @@ mod tests {
         let AnalysisError::InvalidInput(message) = sample_runs(&with_null).unwrap_err() else {
             panic!("a null sample is invalid input");
         };
-        assert!(message.starts_with("reading 2: `sample` is empty"), "{message}");
+        assert!(
+            message.starts_with("reading in data row 3 (offset 2): `sample` is empty"),
+            "{message}"
+        );
     }
 
     /// A column long enough to be walked in two halves gives the runs of a walk from the
@@ -1386,7 +1390,10 @@ mod tests {
         let Err(AnalysisError::InvalidInput(message)) = run_readings(both) else {
             panic!("disagreeing contacts are refused")
         };
-        assert!(message.starts_with("reading 0: `contacts` says i_in"), "{message}");
+        assert!(
+            message.starts_with("reading in data row 1 (offset 0): `contacts` says i_in"),
+            "{message}"
+        );
         // A malformed cell names its reading and the expected form.
         cells[0] = "21;3".into();
         let mut malformed = notation_frame.clone();
@@ -1395,7 +1402,7 @@ mod tests {
             panic!("a malformed cell is refused")
         };
         assert!(
-            message.starts_with("reading 0: `21;3` is not a contact configuration"),
+            message.starts_with("reading in data row 1 (offset 0): `21;3` is not a contact configuration"),
             "{message}"
         );
         assert!(message.contains("\"21,34\""), "{message}");
@@ -1427,17 +1434,15 @@ mod tests {
             panic!("an empty contact is refused without skip_invalid_readings")
         };
         assert!(
-            message.starts_with("reading 1 (sample \"w1\"): `i_in` is empty"),
+            message.starts_with("reading in data row 2 (offset 1), sample \"w1\": `i_in` is empty"),
             "{message}"
         );
         assert!(message.contains("skip_invalid_readings"), "{message}");
         let output = skip(with_empty).unwrap();
         assert_eq!(output.summary["skipped_readings"], json!(1));
         assert!(
-            output
-                .warnings
-                .iter()
-                .any(|warning| warning.starts_with("reading 1 (sample \"w1\") skipped: `i_in` is empty")),
+            output.warnings.iter().any(|warning| warning
+                .starts_with("reading in data row 2 (offset 1), sample \"w1\", skipped: `i_in` is empty")),
             "{:?}",
             output.warnings
         );
@@ -1459,10 +1464,8 @@ mod tests {
         let output = skip(with_empty_cell).unwrap();
         assert_eq!(output.summary["skipped_readings"], json!(1));
         assert!(
-            output
-                .warnings
-                .iter()
-                .any(|warning| warning.starts_with("reading 2 (sample \"w1\") skipped: `contacts` is empty")),
+            output.warnings.iter().any(|warning| warning
+                .starts_with("reading in data row 3 (offset 2), sample \"w1\", skipped: `contacts` is empty")),
             "{:?}",
             output.warnings
         );

@@ -658,7 +658,10 @@ fn reduce_source<S: ReadingSource>(
     for &(index, rank) in invalid.iter().take(DETAILED_WARNINGS) {
         let sample = resolved[rank as usize].name;
         let problem = problem_at(index, rank);
-        warnings_of_skipped.push(format!("reading {index} (sample {sample:?}) skipped: {problem}"));
+        warnings_of_skipped.push(format!(
+            "reading in {}, sample {sample:?}, skipped: {problem}",
+            mobilis_sdk::sdk::data_row(index)
+        ));
     }
     if skipped > DETAILED_WARNINGS {
         warnings_of_skipped.push(format!(

@@ -713,7 +713,7 @@ async fn unusual_readings_get_honest_rows_or_errors_that_say_what_to_change() {
             "analysis.run",
             json!({"analysis": "hall.reduce", "inputs": {"readings": "huge"}, "output": "x"}),
             4007,
-            &["reading 0", "current_A is", "beyond the 1e30 A"],
+            &["reading in data row 1 (offset 0)", "current_A is", "beyond the 1e30 A"],
         )
         .await;
     assert!(!message.contains("NaN"), "{message}");
@@ -727,7 +727,7 @@ async fn unusual_readings_get_honest_rows_or_errors_that_say_what_to_change() {
             &[
                 "readings are invalid",
                 "the first 3 with its reason",
-                "reading 0 (sample \"p-film\") skipped: current_A is",
+                "reading in data row 1 (offset 0), sample \"p-film\", skipped: current_A is",
             ],
         )
         .await;

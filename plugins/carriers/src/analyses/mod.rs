@@ -295,7 +295,7 @@ pub(crate) fn density_points(hall: &DataFrame, warnings: &mut Vec<String>) -> Re
             density_unc_sys_m3: systematic[row],
             temperature_unc_k: temperature_unc[row],
             applied_hall_factor: applied_hall_factor[row],
-            carrier_type: table_carrier_type(types[row].as_deref(), &format!("row {row}"))?,
+            carrier_type: table_carrier_type(types[row].as_deref(), &mobilis_sdk::sdk::data_row(row))?,
         });
     }
     if points.is_empty() && skipped > 0 {

@@ -241,7 +241,7 @@ impl Analysis for PurityAnalysis {
                 None => None,
             };
             let input = PurityInput {
-                sample: sample.clone().unwrap_or_else(|| format!("row {row}")),
+                sample: sample.clone().unwrap_or_else(|| mobilis_sdk::sdk::data_row(row)),
                 carrier_type,
                 freeze_out: Some(densities),
                 scattering,

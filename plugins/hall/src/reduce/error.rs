@@ -80,7 +80,8 @@ pub enum ReadingProblem {
 pub enum ReduceError {
     /// One reading is unusable and `skip_invalid_readings` is off.
     #[error(
-        "reading {row} (sample {sample:?}): {problem}; or set skip_invalid_readings to drop invalid readings with a warning"
+        "reading in {}, sample {sample:?}: {problem}; or set skip_invalid_readings to drop invalid readings with a warning",
+        mobilis_sdk::sdk::data_row(*.row)
     )]
     InvalidReading {
         /// 0-based index of the reading in the input.

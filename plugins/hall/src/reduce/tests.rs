@@ -1307,7 +1307,10 @@ fn invalid_readings_are_refused_with_row_and_reason() {
         // NaN != NaN: compare the variants through their messages.
         assert_eq!(problem.to_string(), expected.to_string());
         let message = error.to_string();
-        assert!(message.starts_with("reading 5 (sample \"s\")"), "{message}");
+        assert!(
+            message.starts_with("reading in data row 6 (offset 5), sample \"s\""),
+            "{message}"
+        );
         assert!(
             message.contains("skip_invalid_readings") && !message.ends_with('.'),
             "{message}"
@@ -1321,7 +1324,7 @@ fn invalid_readings_are_refused_with_row_and_reason() {
         let reduction = reduce(&readings, None, &settings).unwrap();
         assert_eq!(reduction.skipped_readings, 1);
         assert!(
-            reduction.warnings[0].starts_with("reading 5"),
+            reduction.warnings[0].starts_with("reading in data row 6 (offset 5)"),
             "{:?}",
             reduction.warnings
         );
@@ -1412,12 +1415,12 @@ fn invalid_readings_of_parallel_samples_are_reported_in_input_order() {
     let reduction = reduce(&interleaved, None, &settings).unwrap();
     assert_eq!(reduction.skipped_readings, 2);
     assert!(
-        reduction.warnings[0].starts_with("reading 10007 (sample \"b\")"),
+        reduction.warnings[0].starts_with("reading in data row 10008 (offset 10007), sample \"b\""),
         "{:?}",
         reduction.warnings
     );
     assert!(
-        reduction.warnings[1].starts_with("reading 15001 (sample \"a\")"),
+        reduction.warnings[1].starts_with("reading in data row 15002 (offset 15001), sample \"a\""),
         "{:?}",
         reduction.warnings
     );
@@ -1518,17 +1521,20 @@ fn empty_or_all_invalid_input_is_refused() {
     // A refused call returns no warnings, so the error itself gives the reasons.
     let message = error.to_string();
     assert!(
-        message.contains("each with its reason: reading 0 (sample \"s\") skipped: current_A is 0"),
+        message
+            .contains("each with its reason: reading in data row 1 (offset 0), sample \"s\", skipped: current_A is 0"),
         "{message}"
     );
     let many = vec![reading; 16];
     let message = reduce(&many, None, &settings).unwrap_err().to_string();
     assert!(
-        message.starts_with("all 16 readings are invalid (16 skipped), the first 3 with its reason: reading 0"),
+        message.starts_with(
+            "all 16 readings are invalid (16 skipped), the first 3 with its reason: reading in data row 1 (offset 0)"
+        ),
         "{message}"
     );
     assert!(
-        message.contains("reading 2 (sample") && !message.contains("reading 3 (sample"),
+        message.contains("data row 3 (offset 2), sample") && !message.contains("data row 4 (offset 3), sample"),
         "{message}"
     );
 }
